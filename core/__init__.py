@@ -1,0 +1,7 @@
+"""wakeline core: the headless measurement of seamed-ball PIV shots (no Qt here)."""
+
+__version__ = "0.1.0"
+
+
+class WakelineError(Exception):
+    """An error the user caused or can fix; its message is one line naming the file and problem."""

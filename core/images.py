@@ -1,0 +1,113 @@
+"""Reading and checking frame pairs: two single-page files (TIFF or PNG) or one two-page TIFF.
+
+Colour images are refused rather than converted: a PIV camera records one channel, and a colour
+file usually means the wrong export was picked, so guessing a conversion would hide a mistake.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from core import WakelineError
+
+TIFF_SUFFIXES = {".tif", ".tiff"}
+PNG_SUFFIXES = {".png"}
+
+
+def read_frame_pair(path_a: str | Path, path_b: str | Path | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Read a frame pair as two float32 ``(H, W)`` arrays.
+
+    Parameters
+    ----------
+    path_a, path_b : path
+        Two single-page images, or ``path_b=None`` and a two-page TIFF in ``path_a``.
+
+    Raises
+    ------
+    WakelineError
+        One line naming the file and the problem.
+    """
+    if path_b is None:
+        pages = _read_pages(Path(path_a))
+        if len(pages) < 2:
+            raise WakelineError(f"{path_a}: has {len(pages)} page, a frame pair needs two")
+        frame_a, frame_b = pages[0], pages[1]
+        name_a = name_b = str(path_a)
+    else:
+        frame_a = _single_page(Path(path_a))
+        frame_b = _single_page(Path(path_b))
+        name_a, name_b = str(path_a), str(path_b)
+    if frame_a.shape != frame_b.shape:
+        raise WakelineError(
+            f"{name_b}: frame shape {frame_b.shape[1]}x{frame_b.shape[0]} differs from "
+            f"{name_a} ({frame_a.shape[1]}x{frame_a.shape[0]})"
+        )
+    return frame_a, frame_b
+
+
+def _single_page(path: Path) -> np.ndarray:
+    pages = _read_pages(path)
+    return pages[0]
+
+
+def _read_pages(path: Path) -> list[np.ndarray]:
+    if not path.exists():
+        raise WakelineError(f"{path}: file not found")
+    if path.stat().st_size == 0:
+        raise WakelineError(f"{path}: file is empty")
+    suffix = path.suffix.lower()
+    try:
+        if suffix in TIFF_SUFFIXES:
+            raw = _read_tiff_pages(path)
+        elif suffix in PNG_SUFFIXES:
+            raw = [_read_png(path)]
+        else:
+            raise WakelineError(f"{path}: unsupported image type '{suffix}' (use TIFF or PNG)")
+    except WakelineError:
+        raise
+    except Exception as exc:  # any decoder failure is the file's fault, not ours
+        reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise WakelineError(f"{path}: not a readable image ({reason})") from None
+    return [_checked_frame(path, page) for page in raw]
+
+
+def _read_tiff_pages(path: Path) -> list[np.ndarray]:
+    import tifffile
+
+    with tifffile.TiffFile(path) as tif:
+        if len(tif.pages) == 0:
+            raise WakelineError(f"{path}: TIFF has no pages")
+        return [page.asarray() for page in tif.pages]
+
+
+def _read_png(path: Path) -> np.ndarray:
+    from skimage import io
+
+    return io.imread(path)
+
+
+def _checked_frame(path: Path, page: np.ndarray) -> np.ndarray:
+    page = np.asarray(page)
+    if page.ndim == 3 and page.shape[-1] in (3, 4):
+        raise WakelineError(
+            f"{path}: colour image ({page.shape[-1]} channels); export the camera's single-channel frames"
+        )
+    if page.ndim != 2:
+        raise WakelineError(f"{path}: expected a 2-D greyscale frame, got shape {page.shape}")
+    if page.size == 0 or min(page.shape) < 16:
+        raise WakelineError(f"{path}: frame of {page.shape[1]}x{page.shape[0]} px is too small")
+    frame = page.astype(np.float32, copy=False)
+    if not np.all(np.isfinite(frame)):
+        raise WakelineError(f"{path}: frame contains non-finite values (NaN or inf)")
+    return frame
+
+
+def write_frame(path: str | Path, frame: np.ndarray, bits: int = 16) -> None:
+    """Write one frame as an uncompressed single-page TIFF of the given bit depth (8 or 16)."""
+    import tifffile
+
+    dtype = np.uint8 if bits <= 8 else np.uint16
+    top = np.iinfo(dtype).max
+    tifffile.imwrite(path, np.clip(np.rint(frame), 0, top).astype(dtype))

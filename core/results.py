@@ -1,0 +1,105 @@
+"""Result records shared by the measurement, the session store, the CLI and the window.
+
+Conventions (also in README.md):
+- image coordinates: x = column to the right, y = row downward, origin at the top-left pixel centre;
+- flight direction: 0 deg = toward +x, 90 deg = toward the top of the picture (i.e. toward -y);
+- separation angle: from the plane through the ball centre normal to the flight, in the image
+  plane; 0 on that plane, positive rearward (downstream), negative ahead. Angle from the front
+  stagnation point = separation angle + 90 deg.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field
+
+import numpy as np
+
+
+@dataclass
+class VectorField:
+    """Displacement field of one frame pair on a regular grid of interrogation windows.
+
+    All arrays are ``(M, N)``; ``x_px``/``y_px`` are window centres in image coordinates and
+    ``dx_px``/``dy_px`` the displacement A->B at that position.
+    """
+
+    x_px: np.ndarray
+    y_px: np.ndarray
+    dx_px: np.ndarray
+    dy_px: np.ndarray
+    valid: np.ndarray  # bool: measured and passed validation
+    replaced: np.ndarray  # bool: rejected by validation and replaced by interpolation
+    masked: np.ndarray  # bool: window mostly masked; no vector (dx, dy are NaN)
+    peak_ratio: np.ndarray  # primary over secondary correlation peak (NaN where masked)
+    window_px: int = 32
+    spacing_px: float = 16.0
+    warnings: list[str] = field(default_factory=list)
+
+    ARRAY_NAMES = ("x_px", "y_px", "dx_px", "dy_px", "valid", "replaced", "masked", "peak_ratio")
+
+    def arrays(self) -> dict[str, np.ndarray]:
+        return {name: getattr(self, name) for name in self.ARRAY_NAMES}
+
+
+@dataclass
+class BallFit:
+    """Circle fitted to the ball in one frame (image coordinates, px)."""
+
+    center_px: tuple[float, float]
+    radius_px: float
+    residual_px: float = float("nan")  # RMS distance of edge points from the circle
+    cut_by_edge: bool = False
+
+
+@dataclass
+class Flight:
+    """Ball flight from its displacement between frames (or an override)."""
+
+    direction_deg: float  # 0 = +x, 90 = toward the top of the picture
+    speed_m_s: float | None  # None when dt or scale is unknown
+    displacement_px: tuple[float, float]  # ball centre B - A, image coordinates
+    source: str = "ball displacement"  # or "override"
+
+
+@dataclass
+class SideProposal:
+    """Proposed separation on one side of the ball."""
+
+    angle_deg: float | None  # None: no proposal (see reason)
+    uncertainty_deg: float | None = None
+    quality: float | None = None  # 0..1, higher is better
+    reason: str = ""  # why there is no proposal, or a remark on a weak one
+
+
+@dataclass
+class SeparationResult:
+    upper: SideProposal
+    lower: SideProposal
+    wake_deflection_deg: float | None = None  # wake centreline relative to the flight axis
+    wake_state: str = "undetermined"
+
+
+def finite_or_none(value):
+    """Numbers for JSON: NaN and inf become None."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def dataclass_dict(obj) -> dict:
+    """asdict with NaN replaced by None, tuples by lists (JSON ready)."""
+
+    def clean(v):
+        if isinstance(v, float):
+            return finite_or_none(v)
+        if isinstance(v, (list, tuple)):
+            return [clean(x) for x in v]
+        if isinstance(v, dict):
+            return {k: clean(x) for k, x in v.items()}
+        if isinstance(v, (np.floating, np.integer)):
+            return clean(float(v))
+        return v
+
+    return clean(asdict(obj))
