@@ -1,0 +1,1 @@
+"""wakeline application layer: the `wakeline` command and the PySide6 review window."""
