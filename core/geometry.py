@@ -1,0 +1,70 @@
+"""Ball-side geometry: flight and side directions, and separation angle <-> point on the outline.
+
+All vectors are in image coordinates (x right, y down). The flight direction angle follows the
+convention 0 deg = toward +x, 90 deg = toward the top of the picture (toward -y).
+"""
+
+from __future__ import annotations
+
+import math
+
+SIDES = ("upper", "lower")
+VERTICAL_TIE_DEG = 1.0  # flights this close to vertical use the left/right tie-break
+
+
+def flight_unit(direction_deg: float) -> tuple[float, float]:
+    """Unit vector of the flight direction in image coordinates."""
+    a = math.radians(direction_deg)
+    return math.cos(a), -math.sin(a)
+
+
+def upper_normal(direction_deg: float) -> tuple[float, float]:
+    """Unit normal to the flight pointing to the *upper* side of the ball.
+
+    Upper is the side toward the top of the picture whatever the flight direction (left or right).
+    For a flight within ``VERTICAL_TIE_DEG`` of vertical the tie-break is: upper = the side toward
+    the left of the picture (-x).
+    """
+    fx, fy = flight_unit(direction_deg)
+    nx, ny = fy, -fx  # one of the two normals (the flight turned 90 deg counter-clockwise on screen)
+    off_vertical = abs(math.degrees(math.asin(max(-1.0, min(1.0, abs(fx))))))
+    if off_vertical < VERTICAL_TIE_DEG:
+        return (nx, ny) if nx < 0 else (-nx, -ny)
+    return (nx, ny) if ny < 0 else (-nx, -ny)
+
+
+def side_normal(direction_deg: float, side: str) -> tuple[float, float]:
+    """Unit normal to the flight pointing to ``side`` ("upper" or "lower")."""
+    nx, ny = upper_normal(direction_deg)
+    if side == "upper":
+        return nx, ny
+    if side == "lower":
+        return -nx, -ny
+    raise ValueError(f"side must be 'upper' or 'lower', not {side!r}")
+
+
+def point_at_angle(
+    center_px: tuple[float, float], radius_px: float, direction_deg: float, side: str, angle_deg: float
+) -> tuple[float, float]:
+    """Point on the ball outline at a separation angle (deg, positive rearward) on one side."""
+    fx, fy = flight_unit(direction_deg)
+    nx, ny = side_normal(direction_deg, side)
+    a = math.radians(angle_deg)
+    return (
+        center_px[0] + radius_px * (math.cos(a) * nx - math.sin(a) * fx),
+        center_px[1] + radius_px * (math.cos(a) * ny - math.sin(a) * fy),
+    )
+
+
+def angle_of_point(
+    center_px: tuple[float, float], direction_deg: float, side: str, point_px: tuple[float, float]
+) -> float:
+    """Separation angle (deg) of the outline point nearest to ``point_px`` on ``side``.
+
+    Range (-180, 180]; 0 on the plane normal to the flight, +90 at the rear stagnation point,
+    -90 at the front stagnation point.
+    """
+    fx, fy = flight_unit(direction_deg)
+    nx, ny = side_normal(direction_deg, side)
+    rx, ry = point_px[0] - center_px[0], point_px[1] - center_px[1]
+    return math.degrees(math.atan2(-(rx * fx + ry * fy), rx * nx + ry * ny))
