@@ -1,0 +1,76 @@
+"""The `wakeline` command contract (DESIGN.md): --help, exit codes 0/1/2, one-line errors."""
+
+import csv
+import json
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+import tifffile
+
+
+def wakeline(*args, cwd=None):
+    return subprocess.run(
+        [sys.executable, "-m", "app.cli", *map(str, args)], capture_output=True, text=True, cwd=cwd
+    )
+
+
+def test_help_lists_commands():
+    done = wakeline("--help")
+    assert done.returncode == 0
+    assert "pair" in done.stdout
+
+
+def test_bad_usage_is_exit_2():
+    done = wakeline("pair")
+    assert done.returncode == 2
+    done = wakeline("pair", "a.tif", "b.tif", "--dt", "soon")
+    assert done.returncode == 2
+
+
+@pytest.mark.parametrize("content", [b"", b"plain text, not a TIFF\n"], ids=["empty", "text"])
+def test_bad_file_is_one_line_exit_1(tmp_path, content):
+    good = tmp_path / "a.tif"
+    tifffile.imwrite(good, np.zeros((64, 64), np.uint16))
+    bad = tmp_path / "b.tif"
+    bad.write_bytes(content)
+    done = wakeline("pair", good, bad, "--no-ball")
+    assert done.returncode == 1
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1 and str(bad) in lines[0] and "Traceback" not in done.stderr
+
+
+def test_mismatched_shapes_exit_1(tmp_path):
+    tifffile.imwrite(tmp_path / "a.tif", np.zeros((64, 64), np.uint16))
+    tifffile.imwrite(tmp_path / "b.tif", np.zeros((64, 80), np.uint16))
+    done = wakeline("pair", tmp_path / "a.tif", tmp_path / "b.tif", "--no-ball")
+    assert done.returncode == 1 and "b.tif" in done.stderr and "differs" in done.stderr
+
+
+def test_negative_dt_exit_1(tmp_path):
+    tifffile.imwrite(tmp_path / "a.tif", np.zeros((64, 64), np.uint16))
+    done = wakeline("pair", tmp_path / "a.tif", tmp_path / "a.tif", "--no-ball", "--dt", "-1")
+    assert done.returncode == 1 and "--dt" in done.stderr
+
+
+def test_pair_no_ball_writes_vectors_and_json(tmp_path):
+    """A uniform shift of (3.3, -1.2) px is recovered by the command (closed form: uniform flow)."""
+    from core.images import write_frame
+    from core.synth import particle_pair, uniform
+
+    a, b = particle_pair((256, 256), uniform(3.3, -1.2), seed=3)
+    write_frame(tmp_path / "a.tif", a)
+    write_frame(tmp_path / "b.tif", b)
+    done = wakeline("pair", tmp_path / "a.tif", tmp_path / "b.tif", "--no-ball",
+                    "--vectors", tmp_path / "v.csv", "--json", tmp_path / "r.json")
+    assert done.returncode == 0, done.stderr
+    with open(tmp_path / "v.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert list(rows[0]) == ["x_px", "y_px", "dx_px", "dy_px", "valid"]
+    good = [r for r in rows if r["valid"] == "1"]
+    assert len(good) >= 0.9 * len(rows)
+    assert np.median([float(r["dx_px"]) for r in good]) == pytest.approx(3.3, abs=0.05)
+    assert np.median([float(r["dy_px"]) for r in good]) == pytest.approx(-1.2, abs=0.05)
+    record = json.loads((tmp_path / "r.json").read_text())
+    assert record["separation"]["upper_deg"] is None and record["ball"] is None

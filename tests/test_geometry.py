@@ -1,0 +1,61 @@
+"""Ball-side geometry against closed forms (the conventions of README.md)."""
+
+import math
+
+import pytest
+
+from core.geometry import angle_of_point, point_at_angle, side_normal, upper_normal
+
+
+@pytest.mark.parametrize("direction_deg", [0.0, 180.0, 5.0, -5.0, 175.0, 185.0, 30.0, 150.0])
+def test_upper_side_is_toward_top_of_picture(direction_deg):
+    nx, ny = upper_normal(direction_deg)
+    assert ny < 0  # image y is downward
+    assert math.isclose(math.hypot(nx, ny), 1.0)
+
+
+@pytest.mark.parametrize("direction_deg", [90.0, -90.0, 90.5, 269.5])
+def test_vertical_flight_tie_break_is_left_of_picture(direction_deg):
+    nx, _ = upper_normal(direction_deg)
+    assert nx < 0
+
+
+def test_zero_angle_lies_on_plane_normal_to_flight():
+    # Flight to the right: the plane normal to the flight is vertical through the centre, so the
+    # upper mark at 0 deg is straight above the centre (derived).
+    x, y = point_at_angle((100.0, 50.0), 20.0, 0.0, "upper", 0.0)
+    assert x == pytest.approx(100.0) and y == pytest.approx(30.0)
+
+
+def test_positive_angle_is_rearward_for_both_flight_directions():
+    # Rearward = opposite the flight (derived from the definition in README.md).
+    right = point_at_angle((0.0, 0.0), 1.0, 0.0, "upper", 20.0)
+    left = point_at_angle((0.0, 0.0), 1.0, 180.0, "upper", 20.0)
+    assert right[0] == pytest.approx(-math.sin(math.radians(20)))
+    assert left[0] == pytest.approx(math.sin(math.radians(20)))
+    assert right[1] < 0 and left[1] < 0
+
+
+def test_angle_from_stagnation_point():
+    # Angle from the front stagnation point = separation angle + 90 deg (DESIGN.md convention):
+    # -90 deg is the front stagnation point, +90 the rear one.
+    front = point_at_angle((0.0, 0.0), 1.0, 0.0, "lower", -90.0)
+    rear = point_at_angle((0.0, 0.0), 1.0, 0.0, "lower", 90.0)
+    assert front == pytest.approx((1.0, 0.0))
+    assert rear == pytest.approx((-1.0, 0.0))
+
+
+@pytest.mark.parametrize("side", ["upper", "lower"])
+@pytest.mark.parametrize("direction_deg", [0.0, 180.0, 12.0, 200.0, 90.0])
+@pytest.mark.parametrize("angle_deg", [-30.0, -8.5, 0.0, 17.25, 45.0, 120.0])
+def test_round_trip(side, direction_deg, angle_deg):
+    p = point_at_angle((10.0, -4.0), 33.0, direction_deg, side, angle_deg)
+    assert angle_of_point((10.0, -4.0), direction_deg, side, p) == pytest.approx(angle_deg)
+
+
+def test_sides_are_opposite():
+    ux, uy = side_normal(30.0, "upper")
+    lx, ly = side_normal(30.0, "lower")
+    assert (ux + lx, uy + ly) == pytest.approx((0.0, 0.0))
+    with pytest.raises(ValueError):
+        side_normal(0.0, "left")

@@ -1,0 +1,105 @@
+"""Frame-pair reading: good files load, bad files give one-line errors naming the file."""
+
+import numpy as np
+import pytest
+import tifffile
+from skimage import io as skio
+
+from core import WakelineError
+from core.images import read_frame_pair, write_frame
+
+
+def _frame(seed=0, shape=(64, 80)):
+    return np.random.default_rng(seed).integers(0, 4000, shape).astype(np.uint16)
+
+
+def test_two_single_page_tiffs(tmp_path):
+    a, b = _frame(0), _frame(1)
+    tifffile.imwrite(tmp_path / "a.tif", a)
+    tifffile.imwrite(tmp_path / "b.tif", b)
+    fa, fb = read_frame_pair(tmp_path / "a.tif", tmp_path / "b.tif")
+    assert fa.dtype == np.float32 and fa.shape == (64, 80)
+    np.testing.assert_array_equal(fa, a)
+    np.testing.assert_array_equal(fb, b)
+
+
+def test_two_page_tiff(tmp_path):
+    a, b = _frame(0), _frame(1)
+    tifffile.imwrite(tmp_path / "pair.tif", np.stack([a, b]))
+    fa, fb = read_frame_pair(tmp_path / "pair.tif")
+    np.testing.assert_array_equal(fb, b)
+
+
+def test_png_8bit(tmp_path):
+    a = (_frame(0) // 16).astype(np.uint8)
+    skio.imsave(tmp_path / "a.png", a, check_contrast=False)
+    skio.imsave(tmp_path / "b.png", a, check_contrast=False)
+    fa, _ = read_frame_pair(tmp_path / "a.png", tmp_path / "b.png")
+    np.testing.assert_array_equal(fa, a)
+
+
+def test_write_frame_roundtrip(tmp_path):
+    frame = np.linspace(0, 5000, 64 * 80).reshape(64, 80)
+    write_frame(tmp_path / "f.tif", frame, bits=16)
+    np.testing.assert_array_equal(tifffile.imread(tmp_path / "f.tif"), np.rint(frame))
+
+
+@pytest.mark.parametrize(
+    "make, expected",
+    [
+        (lambda p: p.write_bytes(b""), "empty"),
+        (lambda p: p.write_text("this is not an image\n"), "not a readable image"),
+        (lambda p: p.write_bytes(_truncated_tiff()), "not a readable image"),
+    ],
+    ids=["empty", "text-renamed", "truncated"],
+)
+def test_bad_file_messages(tmp_path, make, expected):
+    good = tmp_path / "good.tif"
+    tifffile.imwrite(good, _frame())
+    bad = tmp_path / "bad.tif"
+    make(bad)
+    with pytest.raises(WakelineError) as err:
+        read_frame_pair(good, bad)
+    message = str(err.value)
+    assert str(bad) in message and expected in message and "\n" not in message
+
+
+def _truncated_tiff() -> bytes:
+    import io
+
+    buf = io.BytesIO()
+    tifffile.imwrite(buf, _frame(shape=(256, 256)))
+    return buf.getvalue()[:5000]
+
+
+def test_mismatched_shapes(tmp_path):
+    tifffile.imwrite(tmp_path / "a.tif", _frame(shape=(64, 80)))
+    tifffile.imwrite(tmp_path / "b.tif", _frame(shape=(64, 96)))
+    with pytest.raises(WakelineError, match="b.tif: frame shape 96x64 differs"):
+        read_frame_pair(tmp_path / "a.tif", tmp_path / "b.tif")
+
+
+def test_single_page_where_two_needed(tmp_path):
+    tifffile.imwrite(tmp_path / "one.tif", _frame())
+    with pytest.raises(WakelineError, match="one.tif: has 1 page"):
+        read_frame_pair(tmp_path / "one.tif")
+
+
+def test_colour_refused(tmp_path):
+    rgb = np.zeros((64, 80, 3), np.uint8)
+    skio.imsave(tmp_path / "c.png", rgb, check_contrast=False)
+    with pytest.raises(WakelineError, match="colour image"):
+        read_frame_pair(tmp_path / "c.png", tmp_path / "c.png")
+
+
+def test_non_finite_refused(tmp_path):
+    f = np.ones((64, 80), np.float32)
+    f[3, 4] = np.nan
+    tifffile.imwrite(tmp_path / "n.tif", f)
+    with pytest.raises(WakelineError, match="non-finite"):
+        read_frame_pair(tmp_path / "n.tif", tmp_path / "n.tif")
+
+
+def test_missing_file(tmp_path):
+    with pytest.raises(WakelineError, match="missing.tif: file not found"):
+        read_frame_pair(tmp_path / "missing.tif", tmp_path / "missing.tif")
