@@ -2,8 +2,10 @@
 
 import csv
 import json
+import os
 import subprocess
 import sys
+import tempfile
 
 import numpy as np
 import pytest
@@ -11,8 +13,10 @@ import tifffile
 
 
 def wakeline(*args, cwd=None):
+    env = {**os.environ, "WAKELINE_HOME": tempfile.mkdtemp(prefix="wakeline-home-")}
     return subprocess.run(
-        [sys.executable, "-m", "app.cli", *map(str, args)], capture_output=True, text=True, cwd=cwd
+        [sys.executable, "-m", "app.cli", *map(str, args)],
+        capture_output=True, text=True, cwd=cwd, env=env,
     )
 
 
