@@ -1,0 +1,331 @@
+"""Session overview: every shot's upper and lower separation angle against one numeric column.
+
+``overview_points`` gathers the numbers (shared by the window panel and the PDF cover page);
+``SessionOverview`` is the window panel: a pyqtgraph scatter, one upper and one lower point per
+shot, coloured by review status, filled for the analyst's final angle and hollow for a proposal
+not yet reviewed. Clicking a point emits ``shot_clicked(shot_id)``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6 import QtCore, QtGui, QtWidgets
+
+from app import colours
+
+SHOT_ORDER = "shot order"  # pseudo-column: position of the shot in the session
+MEASURED_SPEED = "measured speed_m_s"  # pseudo-column: ball speed from its displacement
+PREFERRED_COLUMNS = ("seam_deg", "speed_nominal_m_s", "spin_rpm")
+PLOTTED_STATUSES = ("to review", "accepted", "adjusted")  # unusable shots are counted, not drawn
+
+
+@dataclass
+class OverviewPoints:
+    """The numbers behind the overview plot.
+
+    All arrays have one entry per plotted shot, in session order. ``upper_deg``/``lower_deg`` are
+    NaN where a side has no angle; ``is_final`` is False where the value shown is the proposal.
+    """
+
+    column: str
+    shot_ids: list[str]
+    x: np.ndarray
+    upper_deg: np.ndarray
+    lower_deg: np.ndarray
+    status: list[str]
+    is_final: np.ndarray
+    left_out: dict[str, int] = field(default_factory=dict)  # reason -> number of shots not drawn
+
+    def __len__(self) -> int:
+        return len(self.shot_ids)
+
+
+def _as_number(value) -> float | None:
+    if value is None or isinstance(value, bool):
+        return None
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        return None
+    return number if math.isfinite(number) else None
+
+
+def _measured_speed(record) -> float | None:
+    flight = (record.summary or {}).get("flight") or {}
+    return _as_number(flight.get("speed_m_s"))
+
+
+def column_value(record, column: str, position: int) -> float | None:
+    """Value of ``column`` for one shot record (metadata or one of the pseudo-columns)."""
+    if column == SHOT_ORDER:
+        return float(position + 1)
+    if column == MEASURED_SPEED:
+        return _measured_speed(record)
+    return _as_number((record.metadata or {}).get(column))
+
+
+def numeric_columns(records) -> list[str]:
+    """Metadata columns whose filled values are all numbers, preferred ones first.
+
+    The pseudo-columns ``shot order`` (always) and ``measured speed_m_s`` (when any shot has a
+    measured speed) are appended.
+    """
+    seen: dict[str, bool] = {}
+    for record in records:
+        for key, value in (record.metadata or {}).items():
+            if value is None or (isinstance(value, str) and not value.strip()):
+                continue
+            seen[key] = seen.get(key, True) and _as_number(value) is not None
+    numeric = [k for k, ok in seen.items() if ok]
+    ordered = [k for k in PREFERRED_COLUMNS if k in numeric]
+    ordered += sorted(k for k in numeric if k not in PREFERRED_COLUMNS)
+    if any(_measured_speed(r) is not None for r in records):
+        ordered.append(MEASURED_SPEED)
+    ordered.append(SHOT_ORDER)
+    return ordered
+
+
+def default_column(records) -> str:
+    """The column the overview opens with: the seam orientation when the session has it."""
+    return numeric_columns(records)[0]
+
+
+def _shown_angle(record, side: str) -> tuple[float, bool]:
+    final = record.final_deg(side)
+    if final is not None:
+        return float(final), True
+    proposed = record.proposed_deg(side) if record.pick.status == "to review" else None
+    return (float(proposed) if proposed is not None else float("nan")), False
+
+
+def overview_points(records, column: str) -> OverviewPoints:
+    """Collect one point pair per shot for ``column`` (see ``OverviewPoints``).
+
+    Shots marked unusable, shots without a value in ``column`` and shots with no angle on
+    either side are left out and counted in ``left_out``.
+    """
+    ids, xs, ups, lows, statuses, finals = [], [], [], [], [], []
+    left_out: dict[str, int] = {}
+
+    def skip(reason: str) -> None:
+        left_out[reason] = left_out.get(reason, 0) + 1
+
+    for position, record in enumerate(records):
+        status = record.pick.status
+        if status not in PLOTTED_STATUSES:
+            skip(status)
+            continue
+        x = column_value(record, column, position)
+        if x is None:
+            skip(f"no {column}")
+            continue
+        upper, upper_final = _shown_angle(record, "upper")
+        lower, lower_final = _shown_angle(record, "lower")
+        if math.isnan(upper) and math.isnan(lower):
+            skip("no angle")
+            continue
+        ids.append(record.shot_id)
+        xs.append(x)
+        ups.append(upper)
+        lows.append(lower)
+        statuses.append(status)
+        finals.append(upper_final or lower_final)
+    return OverviewPoints(
+        column=column,
+        shot_ids=ids,
+        x=np.asarray(xs, dtype=float),
+        upper_deg=np.asarray(ups, dtype=float),
+        lower_deg=np.asarray(lows, dtype=float),
+        status=statuses,
+        is_final=np.asarray(finals, dtype=bool),
+        left_out=left_out,
+    )
+
+
+def left_out_text(points: OverviewPoints) -> str:
+    """One line saying which shots are not drawn, or "" when all are."""
+    if not points.left_out:
+        return ""
+    parts = [f"{n} {reason}" for reason, n in sorted(points.left_out.items())]
+    return "not drawn: " + ", ".join(parts)
+
+
+# --- the window panel --------------------------------------------------------------------------
+
+UPPER_SYMBOL = "t1"  # triangle pointing up
+LOWER_SYMBOL = "t"  # triangle pointing down
+POINT_SIZE = 11
+
+
+class SessionOverview(QtWidgets.QWidget):
+    """Scatter of separation angles against a chosen column, one point pair per shot.
+
+    Signals
+    -------
+    shot_clicked(str)
+        The shot id of a clicked point.
+    """
+
+    shot_clicked = QtCore.Signal(str)
+
+    def __init__(self, parent: QtWidgets.QWidget | None = None):
+        super().__init__(parent)
+        self._records: list = []
+        self._points: OverviewPoints | None = None
+        self._current: str | None = None
+
+        self.column_box = QtWidgets.QComboBox()
+        self.column_box.setToolTip("Quantity on the horizontal axis")
+        self.column_box.currentTextChanged.connect(self._on_column_changed)
+        self.note_label = QtWidgets.QLabel()
+        self.note_label.setStyleSheet(f"color: {colours.MUTED_INK};")
+
+        self.plot = pg.PlotWidget(background="w")
+        self.plot.setMinimumSize(280, 200)
+        item = self.plot.getPlotItem()
+        item.showGrid(x=True, y=True, alpha=0.25)
+        item.setLabel("left", "separation angle (deg, + rearward)")
+        item.setMenuEnabled(False)
+        for axis in ("left", "bottom"):
+            item.getAxis(axis).setPen(pg.mkPen(colours.MUTED_INK))
+            item.getAxis(axis).setTextPen(pg.mkPen(colours.INK))
+        self.plane_line = pg.InfiniteLine(pos=0, angle=0, pen=pg.mkPen(colours.RULE, width=1))
+        item.addItem(self.plane_line)
+        self.link_lines = pg.PlotCurveItem(pen=pg.mkPen(colours.RULE, width=1), connect="pairs")
+        item.addItem(self.link_lines)
+        self.upper_item = pg.ScatterPlotItem(symbol=UPPER_SYMBOL, size=POINT_SIZE, hoverable=True)
+        self.lower_item = pg.ScatterPlotItem(symbol=LOWER_SYMBOL, size=POINT_SIZE, hoverable=True)
+        self.current_item = pg.ScatterPlotItem(
+            symbol="o", size=POINT_SIZE + 9, pen=pg.mkPen(colours.INK, width=2), brush=None
+        )
+        for scatter in (self.upper_item, self.lower_item):
+            scatter.sigClicked.connect(self._on_points_clicked)
+            item.addItem(scatter)
+        item.addItem(self.current_item)
+
+        top = QtWidgets.QHBoxLayout()
+        top.addWidget(QtWidgets.QLabel("Against:"))
+        top.addWidget(self.column_box, 1)
+        layout = QtWidgets.QVBoxLayout(self)
+        layout.setContentsMargins(4, 4, 4, 4)
+        layout.addLayout(top)
+        layout.addWidget(self.plot, 1)
+        layout.addWidget(_legend_label())
+        layout.addWidget(self.note_label)
+
+    # public ---------------------------------------------------------------------------------
+    def set_records(self, records) -> None:
+        """Show these shot records (``core.session.ShotRecord``), keeping the chosen column."""
+        self._records = list(records)
+        columns = numeric_columns(self._records) if self._records else [SHOT_ORDER]
+        wanted = self.column_box.currentText() or default_column(self._records or [])
+        if wanted not in columns:
+            wanted = columns[0]
+        blocker = QtCore.QSignalBlocker(self.column_box)
+        self.column_box.clear()
+        self.column_box.addItems(columns)
+        self.column_box.setCurrentText(wanted)
+        del blocker
+        self._redraw()
+
+    def set_column(self, column: str) -> None:
+        """Put ``column`` on the horizontal axis (one of ``numeric_columns``)."""
+        self.column_box.setCurrentText(column)
+
+    def column(self) -> str:
+        return self.column_box.currentText()
+
+    def points(self) -> OverviewPoints | None:
+        """The numbers currently drawn."""
+        return self._points
+
+    def set_current(self, shot_id: str | None) -> None:
+        """Ring the points of the shot selected elsewhere (e.g. in the shot list)."""
+        self._current = shot_id
+        self._draw_current()
+
+    def point_scene_pos(self, shot_id: str, side: str = "upper") -> QtCore.QPointF:
+        """Scene position of a shot's point (for tests and tooltips)."""
+        pts = self._points
+        i = pts.shot_ids.index(shot_id)
+        y = pts.upper_deg[i] if side == "upper" else pts.lower_deg[i]
+        view = self.plot.getPlotItem().getViewBox()
+        return view.mapViewToScene(QtCore.QPointF(float(pts.x[i]), float(y)))
+
+    # slots ------------------------------------------------------------------------------------
+    def _on_column_changed(self, column: str) -> None:
+        if column:
+            self._redraw()
+
+    def _on_points_clicked(self, _item, spots, _event=None) -> None:
+        if len(spots):
+            self.shot_clicked.emit(str(spots[0].data()))
+
+    # drawing ----------------------------------------------------------------------------------
+    def _redraw(self) -> None:
+        column = self.column_box.currentText() or SHOT_ORDER
+        self._points = pts = overview_points(self._records, column)
+        self.plot.getPlotItem().setLabel("bottom", column)
+        for scatter, values in ((self.upper_item, pts.upper_deg), (self.lower_item, pts.lower_deg)):
+            scatter.setData(spots=_spots(pts, values))
+        self._draw_links(pts)
+        self.note_label.setText(left_out_text(pts))
+        self.note_label.setVisible(bool(pts.left_out))
+        self._draw_current()
+        self.plot.getPlotItem().enableAutoRange()
+
+    def _draw_links(self, pts: OverviewPoints) -> None:
+        both = np.isfinite(pts.upper_deg) & np.isfinite(pts.lower_deg)
+        xs = np.repeat(pts.x[both], 2)
+        ys = np.column_stack([pts.upper_deg[both], pts.lower_deg[both]]).ravel()
+        self.link_lines.setData(xs, ys)
+
+    def _draw_current(self) -> None:
+        pts = self._points
+        if pts is None or self._current not in pts.shot_ids:
+            self.current_item.setData([], [])
+            return
+        i = pts.shot_ids.index(self._current)
+        ys = [v for v in (pts.upper_deg[i], pts.lower_deg[i]) if np.isfinite(v)]
+        self.current_item.setData([pts.x[i]] * len(ys), ys)
+
+
+def _spots(pts: OverviewPoints, values: np.ndarray) -> list[dict]:
+    spots = []
+    for i, shot_id in enumerate(pts.shot_ids):
+        if not np.isfinite(values[i]):
+            continue
+        colour = colours.STATUS_COLOURS[pts.status[i]]
+        filled = bool(pts.is_final[i])
+        spots.append(
+            {
+                "pos": (float(pts.x[i]), float(values[i])),
+                "data": shot_id,
+                "pen": pg.mkPen(colour, width=1.6),
+                "brush": pg.mkBrush(colour if filled else "#ffffff"),
+            }
+        )
+    return spots
+
+
+def _legend_label() -> QtWidgets.QLabel:
+    swatches = " &nbsp; ".join(
+        f"<span style='color:{colours.STATUS_COLOURS[s]}; font-size:14px'>&#9679;</span> {s}"
+        for s in PLOTTED_STATUSES
+    )
+    label = QtWidgets.QLabel(
+        f"&#9650; upper &nbsp; &#9660; lower &nbsp; | &nbsp; {swatches}"
+        " &nbsp; | &nbsp; hollow = proposal not yet reviewed"
+    )
+    label.setTextFormat(QtCore.Qt.TextFormat.RichText)
+    label.setWordWrap(True)
+    return label
+
+
+def status_brush(status: str) -> QtGui.QBrush:
+    """Brush of a review status (for list items that should match the overview's colours)."""
+    return QtGui.QBrush(QtGui.QColor(colours.STATUS_COLOURS.get(status, colours.MUTED_INK)))
