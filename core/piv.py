@@ -1,0 +1,596 @@
+"""Correlation engine: multi-pass FFT cross-correlation with symmetric window deformation.
+
+Method (each step a published one, named where it is used):
+
+1. The first pass correlates straight windows of the two frames. All windows of a pass go
+   through one batched real FFT (``scipy.fft.rfft2``/``irfft2`` with ``workers``); the
+   displacement is the correlation peak (Willert & Gharib 1991).
+2. Between passes the vectors are checked with the normalised median test, outliers replaced,
+   the field lightly smoothed (predictor). Later passes deform both frames symmetrically by
+   half the predictor, ``A'(x) = A(x - d(x)/2)``, ``B'(x) = B(x + d(x)/2)``, with cubic
+   B-spline interpolation, and correlate the deformed windows for the residual
+   (Scarano 2002, predictor-corrector).
+3. The peak is refined by a three-point Gaussian fit per axis, after dividing the three samples
+   by the overlap weight ``1 - |s|/D`` of a circular correlation of ``D``-wide windows (the
+   bias of un-normalised FFT correlation, Westerweel 1997).
+
+Conventions: image coordinates (x = column right, y = row down, origin at the top-left pixel
+centre); a window of ``D`` px starting at pixel ``j`` has its centre at ``j + (D - 1)/2``.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass, field
+
+import numpy as np
+import scipy.fft
+from numpy.lib.stride_tricks import sliding_window_view
+from scipy import ndimage
+from scipy.interpolate import make_interp_spline
+
+from core import WakelineError
+from core.results import VectorField
+from core.validate import normalized_median_test, replace_outliers
+
+#: Half-width (px) of the neighbourhood of the primary peak left out when finding the second.
+SECOND_PEAK_EXCLUSION_PX = 3
+#: Gaussian smoothing of the predictor between passes, in grid spacings.
+PREDICTOR_SMOOTHING = 0.5
+
+Progress = Callable[[int, int, str], object]
+
+
+class Cancelled(Exception):
+    """Raised by :func:`correlate_pair` when its progress callback asks to stop."""
+
+
+@dataclass(frozen=True)
+class PivPass:
+    """One correlation pass: square windows of ``window_px`` with fractional ``overlap``."""
+
+    window_px: int
+    overlap: float = 0.5
+
+    @property
+    def spacing_px(self) -> int:
+        """Distance between neighbouring window centres, px (at least 1)."""
+        return max(1, round(self.window_px * (1.0 - self.overlap)))
+
+
+@dataclass(frozen=True)
+class PivSettings:
+    """Settings of the correlation engine (JSON-able through ``to_dict``/``from_dict``)."""
+
+    passes: tuple[PivPass, ...] = (PivPass(64, 0.5), PivPass(32, 0.5), PivPass(32, 0.5))
+    median_threshold: float = 2.0
+    median_eps_px: float = 0.1
+    max_masked_fraction: float = 0.5
+    workers: int | None = None  # None: all cores
+
+    def __post_init__(self):
+        passes = tuple(p if isinstance(p, PivPass) else PivPass(**dict(p)) for p in self.passes)
+        object.__setattr__(self, "passes", passes)
+        _check_settings(self)
+
+    def to_dict(self) -> dict:
+        return {
+            "passes": [{"window_px": p.window_px, "overlap": p.overlap} for p in self.passes],
+            "median_threshold": self.median_threshold,
+            "median_eps_px": self.median_eps_px,
+            "max_masked_fraction": self.max_masked_fraction,
+            "workers": self.workers,
+        }
+
+    @classmethod
+    def from_dict(cls, data: dict) -> PivSettings:
+        known = {"passes", "median_threshold", "median_eps_px", "max_masked_fraction", "workers"}
+        values = {k: v for k, v in dict(data).items() if k in known}
+        if "passes" in values:
+            values["passes"] = tuple(_pass_from(p) for p in values["passes"])
+        return cls(**values)
+
+
+def _pass_from(p) -> PivPass:
+    if isinstance(p, PivPass):
+        return p
+    if isinstance(p, dict):
+        return PivPass(int(p["window_px"]), float(p.get("overlap", 0.5)))
+    window, overlap = p
+    return PivPass(int(window), float(overlap))
+
+
+def _check_settings(s: PivSettings) -> None:
+    if not s.passes:
+        raise WakelineError("PIV settings: at least one pass is needed")
+    for p in s.passes:
+        if int(p.window_px) != p.window_px or p.window_px < 8:
+            raise WakelineError(f"PIV settings: window {p.window_px} px (use a whole number >= 8)")
+        if not 0.0 <= p.overlap < 1.0:
+            raise WakelineError(f"PIV settings: overlap {p.overlap} (use 0 <= overlap < 1)")
+    if s.median_threshold <= 0 or s.median_eps_px < 0:
+        raise WakelineError("PIV settings: median threshold must be > 0 and eps >= 0")
+    if not 0.0 <= s.max_masked_fraction <= 1.0:
+        raise WakelineError("PIV settings: max masked fraction must lie in 0..1")
+    if s.workers is not None and s.workers < 1:
+        raise WakelineError("PIV settings: workers must be at least 1")
+
+
+# --- sub-pixel peak ---------------------------------------------------------------------------
+
+
+def gaussian_peak_offset(r_minus, r0, r_plus) -> np.ndarray:
+    """Three-point Gaussian peak offset from the middle sample, in samples.
+
+    ``e = (ln R- - ln R+) / (2 ln R- - 4 ln R0 + 2 ln R+)`` (Willert & Gharib 1991), exact
+    for a sampled Gaussian. Where a sample is not positive (logarithm undefined) the
+    parabolic estimate is used; where that is degenerate too, 0.
+
+    Parameters
+    ----------
+    r_minus, r0, r_plus : array_like, same shape
+        Correlation values at the peak and its two neighbours along one axis.
+
+    Returns
+    -------
+    ndarray of float64
+    """
+    rm, rc, rp = (np.asarray(v, dtype=np.float64) for v in (r_minus, r0, r_plus))
+    positive = (rm > 0) & (rc > 0) & (rp > 0)
+    lm, lc, lp = (np.log(np.where(positive, v, 1.0)) for v in (rm, rc, rp))
+    denom = 2.0 * lm - 4.0 * lc + 2.0 * lp
+    ok = positive & (denom < 0)
+    gauss = (lm - lp) / np.where(ok, denom, 1.0)
+    return np.where(ok, gauss, parabolic_peak_offset(rm, rc, rp))
+
+
+def parabolic_peak_offset(r_minus, r0, r_plus) -> np.ndarray:
+    """Three-point parabolic peak offset ``(R- - R+) / (2 R- - 4 R0 + 2 R+)``; 0 if degenerate."""
+    rm, rc, rp = (np.asarray(v, dtype=np.float64) for v in (r_minus, r0, r_plus))
+    denom = 2.0 * rm - 4.0 * rc + 2.0 * rp
+    ok = denom < 0
+    return np.where(ok, (rm - rp) / np.where(ok, denom, 1.0), 0.0)
+
+
+# --- grid ---------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Grid:
+    """Window layout of one pass: window ``(i, j)`` starts at pixel ``(i, j) * step``."""
+
+    window: int
+    step: int
+    rows: int
+    cols: int
+
+    @property
+    def x_px(self) -> np.ndarray:
+        return (self.window - 1) / 2.0 + self.step * np.arange(self.cols)
+
+    @property
+    def y_px(self) -> np.ndarray:
+        return (self.window - 1) / 2.0 + self.step * np.arange(self.rows)
+
+
+def _grid_for(shape: tuple[int, int], p: PivPass) -> _Grid:
+    height, width = shape
+    step = p.spacing_px
+    return _Grid(
+        p.window_px, step, (height - p.window_px) // step + 1, (width - p.window_px) // step + 1
+    )
+
+
+def _windows(image: np.ndarray, grid: _Grid, dtype) -> np.ndarray:
+    """``(K, D, D)`` contiguous copy of the windows of ``image`` on ``grid`` (one copy)."""
+    view = sliding_window_view(image, (grid.window, grid.window))
+    view = view[: grid.step * grid.rows : grid.step, : grid.step * grid.cols : grid.step]
+    return np.array(view, dtype=dtype, copy=True).reshape(-1, grid.window, grid.window)
+
+
+# --- correlation of one pass ------------------------------------------------------------------
+
+
+@dataclass
+class _PassResult:
+    dx: np.ndarray  # (M, N) residual displacement, px (NaN: no correlation)
+    dy: np.ndarray
+    peak_ratio: np.ndarray
+    masked: np.ndarray  # (M, N) bool
+
+
+def _prepared_windows(image, mask, grid, max_masked):
+    """Windows with their mean removed; masked pixels set to the mean (zero after removal).
+
+    Returns ``(windows (K, D, D) float32, energy (K,), masked fraction (K,))``.
+    """
+    win = _windows(image, grid, np.float32)
+    if mask is None:
+        win -= win.mean(axis=(1, 2), keepdims=True, dtype=np.float32)
+        fraction = np.zeros(win.shape[0])
+    else:
+        excluded = _windows(mask, grid, bool)
+        keep = ~excluded
+        count = keep.sum(axis=(1, 2))
+        fraction = 1.0 - count / float(grid.window**2)
+        mean = np.where(keep, win, 0).sum(axis=(1, 2), dtype=np.float64) / np.maximum(count, 1)
+        win = np.where(keep, win - mean[:, None, None].astype(np.float32), np.float32(0.0))
+    energy = np.einsum("kij,kij->k", win, win, dtype=np.float64)
+    return win, energy, fraction
+
+
+def _correlation_planes(win_a: np.ndarray, win_b: np.ndarray, workers: int) -> np.ndarray:
+    """Circular cross-correlation ``c[s] = sum_x a[x] b[x + s]`` of every window pair, batched."""
+    size = win_a.shape[-2:]
+    spec = scipy.fft.rfft2(win_a, workers=workers, overwrite_x=True)
+    spec_b = scipy.fft.rfft2(win_b, workers=workers, overwrite_x=True)
+    np.conjugate(spec, out=spec)
+    spec *= spec_b
+    del spec_b
+    return scipy.fft.irfft2(spec, s=size, workers=workers, overwrite_x=True)
+
+
+def _correlate(frame_a, frame_b, mask_a, mask_b, grid: _Grid, settings, workers) -> _PassResult:
+    win_a, energy_a, frac_a = _prepared_windows(frame_a, mask_a, grid, settings.max_masked_fraction)
+    win_b, energy_b, frac_b = _prepared_windows(frame_b, mask_b, grid, settings.max_masked_fraction)
+    planes = _correlation_planes(win_a, win_b, workers)
+    del win_a, win_b
+    norm = np.sqrt(energy_a * energy_b)
+    dx, dy, ratio = _peaks(planes, norm > 0)
+    masked = np.maximum(frac_a, frac_b) > settings.max_masked_fraction
+    shape = (grid.rows, grid.cols)
+    return _PassResult(
+        dx.reshape(shape), dy.reshape(shape), ratio.reshape(shape), masked.reshape(shape)
+    )
+
+
+def _peaks(planes: np.ndarray, usable: np.ndarray):
+    """Sub-pixel peak of every plane: ``(dx (K,), dy (K,), primary/secondary peak ratio (K,))``."""
+    k, size, _ = planes.shape
+    flat = planes.reshape(k, size * size)
+    index = np.argmax(flat, axis=1)
+    row, col = np.divmod(index, size)
+    kk = np.arange(k)
+    primary = flat[kk, index]
+    up, down = planes[kk, (row - 1) % size, col], planes[kk, (row + 1) % size, col]
+    left, right = planes[kk, row, (col - 1) % size], planes[kk, row, (col + 1) % size]
+    shift_y = (row + size // 2) % size - size // 2
+    shift_x = (col + size // 2) % size - size // 2
+    dy = shift_y + _unbiased_offset(up, primary, down, shift_y, size)
+    dx = shift_x + _unbiased_offset(left, primary, right, shift_x, size)
+    ratio = _peak_ratio(planes, row, col, primary)
+    bad = ~usable
+    dx[bad] = np.nan
+    dy[bad] = np.nan
+    ratio[bad] = np.nan
+    return dx, dy, ratio
+
+
+def _unbiased_offset(r_minus, r0, r_plus, shift, size):
+    """Gaussian offset after dividing each sample by its overlap weight ``1 - |s|/D``."""
+
+    def weight(s):
+        return np.maximum(1.0 - np.abs(s) / size, 1.0 / size)
+
+    return gaussian_peak_offset(
+        r_minus / weight(shift - 1), r0 / weight(shift), r_plus / weight(shift + 1)
+    )
+
+
+def _peak_ratio(planes, row, col, primary):
+    """Primary over the highest value outside ``SECOND_PEAK_EXCLUSION_PX`` of the primary."""
+    k, size, _ = planes.shape
+    reach = min(SECOND_PEAK_EXCLUSION_PX, size // 4)
+    offsets = np.arange(-reach, reach + 1)
+    rr = (row[:, None] + offsets) % size
+    cc = (col[:, None] + offsets) % size
+    planes[np.arange(k)[:, None, None], rr[:, :, None], cc[:, None, :]] = -np.inf
+    second = planes.reshape(k, -1).max(axis=1)
+    floor = 1e-6 * np.abs(primary) + np.finfo(np.float32).tiny
+    return primary / np.maximum(second, floor)
+
+
+# --- predictor and deformation ------------------------------------------------------------------
+
+
+def _spline_1d(coords: np.ndarray, values: np.ndarray, axis: int, query: np.ndarray):
+    """Interpolating cubic spline along ``axis`` (lower degree for few points), held constant
+    beyond the end points."""
+    n = coords.size
+    if n == 1:
+        return np.repeat(values, query.size, axis=axis)
+    spline = make_interp_spline(coords, values, k=min(3, n - 1), axis=axis)
+    return spline(np.clip(query, coords[0], coords[-1]))
+
+
+def _interpolate_grid(grid: _Grid, values: np.ndarray, y_query, x_query) -> np.ndarray:
+    """Tensor-product cubic spline interpolation of ``(M, N)`` grid values at rows ``y_query``
+    and columns ``x_query``; returns ``(len(y_query), len(x_query))``."""
+    by_rows = _spline_1d(grid.y_px, values, 0, np.asarray(y_query, dtype=np.float64))
+    return _spline_1d(grid.x_px, by_rows, 1, np.asarray(x_query, dtype=np.float64))
+
+
+@dataclass
+class _Predictor:
+    grid: _Grid
+    dx: np.ndarray  # (M, N), finite everywhere
+    dy: np.ndarray
+
+    def at(self, grid: _Grid) -> tuple[np.ndarray, np.ndarray]:
+        return (
+            _interpolate_grid(self.grid, self.dx, grid.y_px, grid.x_px),
+            _interpolate_grid(self.grid, self.dy, grid.y_px, grid.x_px),
+        )
+
+    def dense(self, shape) -> tuple[np.ndarray, np.ndarray]:
+        rows, cols = np.arange(shape[0]), np.arange(shape[1])
+        return (
+            _interpolate_grid(self.grid, self.dx, rows, cols).astype(np.float32),
+            _interpolate_grid(self.grid, self.dy, rows, cols).astype(np.float32),
+        )
+
+
+def _make_predictor(grid: _Grid, dx, dy, outliers, masked) -> _Predictor:
+    """Replace outliers, fill masked and empty cells from neighbours, smooth lightly."""
+    fx, fy = replace_outliers(dx, dy, outliers | ~np.isfinite(dx), masked)
+    fx, fy = replace_outliers(fx, fy, ~np.isfinite(fx), None)
+    fx = np.nan_to_num(fx)
+    fy = np.nan_to_num(fy)
+    if PREDICTOR_SMOOTHING > 0:
+        fx = ndimage.gaussian_filter(fx, PREDICTOR_SMOOTHING, mode="nearest", truncate=2.0)
+        fy = ndimage.gaussian_filter(fy, PREDICTOR_SMOOTHING, mode="nearest", truncate=2.0)
+    return _Predictor(grid, fx, fy)
+
+
+@dataclass
+class _Frames:
+    """The pair, its spline coefficients (computed once) and masks."""
+
+    a: np.ndarray
+    b: np.ndarray
+    mask_a: np.ndarray | None
+    mask_b: np.ndarray | None
+    workers: int
+    coeff: list = field(default_factory=list)
+
+    def coefficients(self):
+        if not self.coeff:
+            self.coeff = [
+                ndimage.spline_filter(f, order=3, output=np.float32, mode="mirror")
+                for f in (self.a, self.b)
+            ]
+        return self.coeff
+
+    def deformed(self, predictor: _Predictor):
+        """Both frames (and masks) deformed symmetrically by half the predictor."""
+        half_x, half_y = predictor.dense(self.a.shape)
+        half_x *= 0.5
+        half_y *= 0.5
+        ca, cb = self.coefficients()
+        out_a = _warp(ca, half_x, half_y, -1.0, self.workers)
+        out_b = _warp(cb, half_x, half_y, +1.0, self.workers)
+        return (
+            out_a,
+            out_b,
+            _warp_mask(self.mask_a, half_x, half_y, -1.0),
+            _warp_mask(self.mask_b, half_x, half_y, +1.0),
+        )
+
+
+def _warp(coeff, half_x, half_y, sign, workers) -> np.ndarray:
+    """Sample the cubic spline with coefficients ``coeff`` at ``(y + sign*hy, x + sign*hx)``,
+    split by rows over threads (the interpolation releases the interpreter lock)."""
+    height, width = coeff.shape
+    out = np.empty((height, width), np.float32)
+    cols = np.arange(width, dtype=np.float32)
+
+    def run(rows: slice) -> None:
+        r = np.arange(rows.start, rows.stop, dtype=np.float32)[:, None]
+        coords = np.stack([r + sign * half_y[rows], cols + sign * half_x[rows]])
+        ndimage.map_coordinates(
+            coeff, coords, output=out[rows], order=3, mode="mirror", prefilter=False
+        )
+
+    chunks = _row_chunks(height, max(1, workers) * 2)
+    if workers <= 1 or len(chunks) == 1:
+        for rows in chunks:
+            run(rows)
+    else:
+        with ThreadPoolExecutor(workers) as pool:
+            list(pool.map(run, chunks))
+    return out
+
+
+def _row_chunks(height: int, count: int) -> list[slice]:
+    edges = np.linspace(0, height, min(count, height) + 1).astype(int)
+    return [slice(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:]) if b > a]
+
+
+def _warp_mask(mask, half_x, half_y, sign):
+    """Nearest-pixel deformation of a bool mask (outside the image counts as not masked)."""
+    if mask is None:
+        return None
+    height, width = mask.shape
+    r = np.rint(np.arange(height)[:, None] + sign * half_y).astype(np.intp)
+    c = np.rint(np.arange(width)[None, :] + sign * half_x).astype(np.intp)
+    np.clip(r, 0, height - 1, out=r)
+    np.clip(c, 0, width - 1, out=c)
+    return mask[r, c]
+
+
+# --- the engine -------------------------------------------------------------------------------
+
+
+def correlate_pair(
+    frame_a: np.ndarray,
+    frame_b: np.ndarray,
+    mask_a: np.ndarray | None = None,
+    mask_b: np.ndarray | None = None,
+    settings: PivSettings | None = None,
+    progress: Progress | None = None,
+) -> VectorField:
+    """Displacement field of one frame pair by multi-pass FFT cross-correlation.
+
+    Parameters
+    ----------
+    frame_a, frame_b : (H, W) ndarray
+        The two exposures, same shape, any real dtype (counts).
+    mask_a, mask_b : (H, W) bool ndarray, optional
+        True = pixel excluded (e.g. the ball, which moves between the frames).
+    settings : PivSettings, optional
+        Passes, validation and threading; default ``PivSettings()``.
+    progress : callable, optional
+        ``progress(done_passes, total_passes, message)``; returning True stops the work
+        with :class:`Cancelled`.
+
+    Returns
+    -------
+    VectorField
+        On the last pass's grid. ``dx_px, dy_px`` A->B at each window centre; ``masked``
+        windows (masked fraction above ``max_masked_fraction`` in either frame, or centre on a
+        masked pixel) have NaN displacement; ``valid`` = measured and passed the normalised
+        median test; ``replaced`` = rejected and replaced from neighbours.
+
+    Raises
+    ------
+    core.WakelineError
+        Frames of different shapes, not 2-D, not finite, or smaller than a window.
+    Cancelled
+        When ``progress`` returned True.
+    """
+    settings = settings or PivSettings()
+    frames = _checked_frames(frame_a, frame_b, mask_a, mask_b, settings)
+    total = len(settings.passes)
+    _report(progress, 0, total, "correlating")
+    warnings: list[str] = []
+    predictor: _Predictor | None = None
+    for number, p in enumerate(settings.passes, start=1):
+        grid = _grid_for(frames.a.shape, p)
+        dx, dy, ratio, masked = _run_pass(frames, grid, predictor, settings)
+        outliers = normalized_median_test(
+            dx, dy, settings.median_threshold, settings.median_eps_px, valid=~masked
+        )
+        if number == 1:
+            warnings += _quarter_rule(dx, dy, outliers, masked, p.window_px)
+        if number == total:
+            return _field(grid, dx, dy, ratio, masked, outliers, warnings)
+        predictor = _make_predictor(grid, dx, dy, outliers, masked)
+        _report(progress, number, total, f"pass {number} of {total} done ({p.window_px} px)")
+    raise AssertionError("unreachable: the last pass returns")
+
+
+def _run_pass(frames: _Frames, grid: _Grid, predictor: _Predictor | None, settings):
+    """Correlate one pass; returns total displacement, peak ratio and masked cells."""
+    if predictor is None:
+        res = _correlate(
+            frames.a, frames.b, frames.mask_a, frames.mask_b, grid, settings, frames.workers
+        )
+        px = py = 0.0
+    else:
+        a, b, ma, mb = frames.deformed(predictor)
+        res = _correlate(a, b, ma, mb, grid, settings, frames.workers)
+        px, py = predictor.at(grid)
+    masked = res.masked | _centre_masked(frames, grid)
+    dx = np.where(masked, np.nan, px + res.dx)
+    dy = np.where(masked, np.nan, py + res.dy)
+    ratio = np.where(masked, np.nan, res.peak_ratio)
+    return dx, dy, ratio, masked
+
+
+def _centre_masked(frames: _Frames, grid: _Grid) -> np.ndarray:
+    """Windows whose centre lies on a masked pixel in either frame (the central 1 or 2x2 px)."""
+    out = np.zeros((grid.rows, grid.cols), bool)
+    lo = (grid.window - 1) // 2
+    hi = grid.window // 2
+    for mask in (frames.mask_a, frames.mask_b):
+        if mask is None:
+            continue
+        for r0 in {lo, hi}:
+            for c0 in {lo, hi}:
+                out |= mask[
+                    r0 : r0 + grid.step * grid.rows : grid.step,
+                    c0 : c0 + grid.step * grid.cols : grid.step,
+                ]
+    return out
+
+
+def _field(grid, dx, dy, ratio, masked, outliers, warnings) -> VectorField:
+    measured = ~masked & np.isfinite(dx) & np.isfinite(dy)
+    rejected = ~masked & (outliers | ~measured)
+    fx, fy = replace_outliers(dx, dy, rejected, masked)
+    replaced = rejected & np.isfinite(fx) & np.isfinite(fy)
+    x, y = np.meshgrid(grid.x_px, grid.y_px)
+    return VectorField(
+        x_px=x,
+        y_px=y,
+        dx_px=fx,
+        dy_px=fy,
+        valid=measured & ~outliers,
+        replaced=replaced,
+        masked=masked,
+        peak_ratio=ratio,
+        window_px=grid.window,
+        spacing_px=float(grid.step),
+        warnings=warnings,
+    )
+
+
+def _quarter_rule(dx, dy, outliers, masked, window_px) -> list[str]:
+    """Warn when the first pass saw displacements beyond a quarter window (Keane & Adrian 1990)."""
+    good = ~masked & ~outliers & np.isfinite(dx) & np.isfinite(dy)
+    if not np.any(good):
+        return []
+    largest = float(np.max(np.hypot(dx[good], dy[good])))
+    if largest <= window_px / 4.0:
+        return []
+    return [
+        f"largest first-pass displacement {largest:.1f} px exceeds a quarter of the "
+        f"{window_px} px first window; use a larger first window or a shorter dt"
+    ]
+
+
+def _report(progress: Progress | None, done: int, total: int, message: str) -> None:
+    if progress is not None and progress(done, total, message) is True:
+        raise Cancelled(message)
+
+
+def _checked_frames(frame_a, frame_b, mask_a, mask_b, settings: PivSettings) -> _Frames:
+    a = np.asarray(frame_a)
+    b = np.asarray(frame_b)
+    if a.ndim != 2 or b.ndim != 2:
+        raise WakelineError(f"frame pair: frames must be 2-D images, got {a.shape} and {b.shape}")
+    if a.shape != b.shape:
+        raise WakelineError(f"frame pair: frame shapes differ ({a.shape} and {b.shape})")
+    largest = max(p.window_px for p in settings.passes)
+    if min(a.shape) < largest:
+        raise WakelineError(
+            f"frame pair: image {a.shape[1]}x{a.shape[0]} px is smaller than the {largest} px window"
+        )
+    a = np.ascontiguousarray(a, dtype=np.float32)
+    b = np.ascontiguousarray(b, dtype=np.float32)
+    if not (np.isfinite(a).all() and np.isfinite(b).all()):
+        raise WakelineError("frame pair: frames contain NaN or infinite values")
+    masks = [_checked_mask(m, a.shape, name) for m, name in ((mask_a, "A"), (mask_b, "B"))]
+    workers = settings.workers or os.cpu_count() or 1
+    return _Frames(a, b, masks[0], masks[1], workers)
+
+
+def _checked_mask(mask, shape, name) -> np.ndarray | None:
+    if mask is None:
+        return None
+    m = np.asarray(mask, dtype=bool)
+    if m.shape != shape:
+        raise WakelineError(f"frame pair: mask of frame {name} is {m.shape}, frames are {shape}")
+    return m if m.any() else None
+
+
+__all__ = [
+    "Cancelled",
+    "PivPass",
+    "PivSettings",
+    "correlate_pair",
+    "gaussian_peak_offset",
+    "parabolic_peak_offset",
+]
