@@ -1,0 +1,314 @@
+"""Synthetic ball shots with known truth: a ball flying through seeded air, and its wake.
+
+The flow is built in the ball frame around the ball centre at mid-exposure and then shifted to
+the lab frame (air at rest far away, the ball moving):
+
+- outside the wake: potential flow past a sphere (Batchelor 1967, memory) with the free stream
+  ``-D`` (the air streams past the ball opposite to its displacement ``D`` per frame pair);
+- each separated shear layer leaves the surface at the prescribed separation angle, at a shallow
+  ``leave_deg`` from the tangent, and bends (its heading relaxes exponentially with arc length)
+  toward the wake direction; across it the speed drops with a ``tanh`` profile of half-width
+  ``layer_px`` (a few px: thin, as real shear layers near separation are);
+- inside the wake (between the two layers, behind the ball) the air is nearly still in the ball
+  frame, i.e. it moves with the ball in the lab frame.
+
+The ball is painted over the particle images in each frame at its own position: a dark disc
+(particles absent inside it) with a lit rim brightest on the side facing the light sheet's source.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from core.geometry import flight_unit, side_normal
+from core.synth import particle_pair, render_particles
+
+BACKGROUND_COUNTS = 40.0  # camera background of the particle images
+
+
+@dataclass
+class ShotTruth:
+    """What a synthetic shot was made with (image coordinates, px; angles deg)."""
+
+    center_a_px: tuple[float, float]
+    center_b_px: tuple[float, float]
+    radius_px: float
+    flight_deg: float
+    displacement_px: tuple[float, float]
+    speed_m_s: float
+    dt_s: float
+    scale_mm_per_px: float
+    ball_diameter_mm: float
+    upper_deg: float | None  # None: attached flow, no separation
+    lower_deg: float | None
+    wake_deflection_deg: float | None  # positive toward the upper side
+    leave_deg: tuple[float, float] = (10.0, 10.0)  # (upper, lower) departure from the tangent
+    notes: list[str] = field(default_factory=list)
+
+
+@dataclass(frozen=True)
+class _Layer:
+    """One separated shear layer in side coordinates (xi rearward, zeta toward that side)."""
+
+    xi_px: np.ndarray  # (K,) increasing
+    zeta_px: np.ndarray  # (K,)
+    heading_rad: np.ndarray  # (K,) angle from +xi toward +zeta
+    start: tuple[float, float, float]  # xi0, zeta0, heading0
+    radius_px: float
+
+    @classmethod
+    def build(cls, radius_px, angle_deg, leave_deg, final_deg, bend_px) -> _Layer:
+        th = math.radians(angle_deg)
+        psi0 = -th + math.radians(leave_deg)
+        psi_end = math.radians(final_deg)
+        s = np.arange(0.0, 12.0 * radius_px, 0.25)
+        psi = psi_end + (psi0 - psi_end) * np.exp(-s / bend_px)
+        ds = 0.25
+        xi = radius_px * math.sin(th) + np.concatenate([[0.0], np.cumsum(np.cos(psi[:-1]) * ds)])
+        zeta = radius_px * math.cos(th) + np.concatenate([[0.0], np.cumsum(np.sin(psi[:-1]) * ds)])
+        return cls(xi, zeta, psi, (xi[0], zeta[0], psi0), radius_px)
+
+    def outward_distance(self, xi: np.ndarray, zeta: np.ndarray) -> np.ndarray:
+        """Signed distance (px) from the layer, positive on the outer (free-stream) side."""
+        xi0, zeta0, psi0 = self.start
+        path = np.interp(xi, self.xi_px, self.zeta_px)
+        heading = np.interp(xi, self.xi_px, self.heading_rad)
+        ahead = xi - xi0
+        # upstream of separation the layer's continuation dives into the ball, so attached flow
+        # there is outside the wake
+        back = zeta0 + ahead * math.tan(psi0) - ahead**2 / self.radius_px
+        path = np.where(ahead < 0, back, path)
+        heading = np.where(ahead < 0, psi0, heading)
+        return (zeta - path) * np.cos(heading)
+
+
+@dataclass(frozen=True)
+class BallWakeFlow:
+    """Lab-frame displacement (px per frame pair) around a flying ball with a separated wake.
+
+    Call with image coordinates ``(x_px, y_px)`` (arrays) to get ``(dx_px, dy_px)``.
+    """
+
+    center_px: tuple[float, float]  # ball centre at mid-exposure
+    radius_px: float
+    displacement_px: tuple[float, float]  # ball displacement A->B
+    flight_deg: float
+    upper_deg: float | None
+    lower_deg: float | None
+    leave_deg: tuple[float, float] = (10.0, 10.0)
+    wake_deflection_deg: float = 0.0
+    layer_px: float = 1.5
+    bend_px: float | None = None
+    wake_speed_fraction: float = 0.0  # ball-frame wake drift along the free stream, fraction of U
+
+    def __call__(self, x_px, y_px):
+        rx = np.asarray(x_px, dtype=np.float64) - self.center_px[0]
+        ry = np.asarray(y_px, dtype=np.float64) - self.center_px[1]
+        ux, uy = self._potential(rx, ry)
+        w = self.wake_weight(x_px, y_px)
+        fx, fy = -self.displacement_px[0], -self.displacement_px[1]
+        ux = (1.0 - w) * ux + w * self.wake_speed_fraction * fx
+        uy = (1.0 - w) * uy + w * self.wake_speed_fraction * fy
+        return ux + self.displacement_px[0], uy + self.displacement_px[1]
+
+    def _potential(self, rx: np.ndarray, ry: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Ball-frame potential flow past the sphere, free stream ``-D`` (zero inside)."""
+        sx, sy = -self.displacement_px[0], -self.displacement_px[1]
+        r2 = rx**2 + ry**2
+        outside = r2 > self.radius_px**2
+        r2s = np.where(outside, r2, 1.0)
+        k = self.radius_px**3 / r2s**1.5
+        dot = sx * rx + sy * ry
+        ux = sx * (1.0 + 0.5 * k) - 1.5 * k * dot * rx / r2s
+        uy = sy * (1.0 + 0.5 * k) - 1.5 * k * dot * ry / r2s
+        return np.where(outside, ux, 0.0), np.where(outside, uy, 0.0)
+
+    def wake_weight(self, x_px, y_px) -> np.ndarray:
+        """1 inside the wake, 0 in the free stream (smooth across each shear layer)."""
+        rx = np.asarray(x_px, dtype=np.float64) - self.center_px[0]
+        ry = np.asarray(y_px, dtype=np.float64) - self.center_px[1]
+        if self.upper_deg is None or self.lower_deg is None:
+            return np.zeros(np.shape(rx))
+        fx, fy = flight_unit(self.flight_deg)
+        weight = np.ones(np.shape(rx))
+        bend = self.bend_px if self.bend_px is not None else 0.8 * self.radius_px
+        for side, angle, leave, final in (
+            ("upper", self.upper_deg, self.leave_deg[0], self.wake_deflection_deg),
+            ("lower", self.lower_deg, self.leave_deg[1], -self.wake_deflection_deg),
+        ):
+            nx, ny = side_normal(self.flight_deg, side)
+            xi = -(rx * fx + ry * fy)
+            zeta = rx * nx + ry * ny
+            layer = _Layer.build(self.radius_px, angle, leave, final, bend)
+            d = layer.outward_distance(xi, zeta)
+            weight *= 0.5 * (1.0 - np.tanh(d / self.layer_px))
+        return weight
+
+
+def ball_shot(
+    shape: tuple[int, int] = (384, 512),
+    *,
+    radius_px: float = 64.0,
+    flight_deg: float = 180.0,
+    shift_px: float = 8.0,
+    center_px: tuple[float, float] | None = None,
+    upper_deg: float | None = 10.0,
+    lower_deg: float | None = 10.0,
+    leave_deg: tuple[float, float] = (10.0, 10.0),
+    wake_deflection_deg: float = 0.0,
+    layer_px: float = 1.5,
+    speed_m_s: float = 30.0,
+    ball_diameter_mm: float = 71.6,
+    density_ppp: float = 0.06,
+    noise: float = 0.03,
+    light_from_deg: float = 270.0,
+    seed: int = 0,
+) -> tuple[np.ndarray, np.ndarray, ShotTruth]:
+    """A synthetic shot: a ball moving ``shift_px`` along ``flight_deg`` between the frames.
+
+    Parameters
+    ----------
+    shape : (int, int)
+        Frame shape ``(H, W)``.
+    radius_px : float
+        Ball radius (px).
+    flight_deg : float
+        Flight direction (0 = toward +x, 90 = toward the top of the picture).
+    shift_px : float
+        Ball displacement between the frames (px).
+    center_px : (float, float), optional
+        Ball centre at mid-exposure; by default a quarter of the width ahead of the frame centre
+        so the wake fits behind it.
+    upper_deg, lower_deg : float or None
+        True separation angles (deg from the plane normal to the flight, positive rearward);
+        both None gives the attached potential flow (no wake).
+    leave_deg : (float, float)
+        Angle (deg) at which each shear layer leaves the surface, from the local tangent.
+    wake_deflection_deg : float
+        Final direction of the wake relative to the rearward axis, positive toward the upper side.
+    layer_px : float
+        Half-width of the shear layers' tanh velocity profile (px).
+    speed_m_s : float
+        Ball speed; with the scale from ``ball_diameter_mm`` it sets ``dt_s``.
+    ball_diameter_mm : float
+        True ball diameter (mm); the scale is ``ball_diameter_mm / (2 radius_px)``.
+    density_ppp, noise : float
+        Seeding (particles per pixel) and image noise (fraction of the particle peak).
+    light_from_deg : float
+        Direction (same convention as the flight) toward the light source: the rim is brightest
+        on that side of the ball.
+    seed : int
+        Random seed (particles, noise).
+
+    Returns
+    -------
+    frame_a, frame_b : (H, W) ndarray of float32
+    truth : ShotTruth
+    """
+    height, width = shape
+    fx, fy = flight_unit(flight_deg)
+    if center_px is None:
+        center_px = ((width - 1) / 2 + fx * 0.25 * width, (height - 1) / 2 + fy * 0.25 * height)
+    disp = (shift_px * fx, shift_px * fy)
+    center_a = (center_px[0] - disp[0] / 2, center_px[1] - disp[1] / 2)
+    center_b = (center_px[0] + disp[0] / 2, center_px[1] + disp[1] / 2)
+    attached = upper_deg is None or lower_deg is None
+    flow = BallWakeFlow(
+        center_px, radius_px, disp, flight_deg, upper_deg, lower_deg, tuple(leave_deg),
+        0.0 if attached else wake_deflection_deg, layer_px,
+    )
+    frame_a, frame_b, parts = particle_pair(
+        shape, flow, density_ppp=density_ppp, diameter_px=(2.0, 3.2), noise=noise, seed=seed,
+        background=BACKGROUND_COUNTS, return_particles=True,
+    )
+    # no particle lies inside the ball: take away the light of those drawn there
+    frame_a = _remove_inside(frame_a, parts.x_a_px, parts.y_a_px, parts.diameter_px,
+                             parts.peak_a, center_a, radius_px)
+    frame_b = _remove_inside(frame_b, parts.x_b_px, parts.y_b_px, parts.diameter_px,
+                             parts.peak_b, center_b, radius_px)
+    rng = np.random.default_rng(seed + 7919)
+    frame_a = paint_ball(frame_a, center_a, radius_px, light_from_deg, rng)
+    frame_b = paint_ball(frame_b, center_b, radius_px, light_from_deg, rng)
+    scale = ball_diameter_mm / (2.0 * radius_px)
+    dt_s = shift_px * scale * 1e-3 / speed_m_s
+    truth = ShotTruth(
+        center_a, center_b, float(radius_px), float(flight_deg) % 360.0, disp, speed_m_s, dt_s,
+        scale, ball_diameter_mm, None if attached else float(upper_deg),
+        None if attached else float(lower_deg), None if attached else float(wake_deflection_deg),
+        tuple(leave_deg),
+    )
+    return frame_a, frame_b, truth
+
+
+def _remove_inside(frame, x_px, y_px, diameter_px, peak, center_px, radius_px) -> np.ndarray:
+    """Frame without the light of particles whose centre lies inside the ball's outline."""
+    inside = np.hypot(x_px - center_px[0], y_px - center_px[1]) < radius_px
+    light = render_particles(frame.shape, x_px[inside], y_px[inside], diameter_px[inside],
+                             peak[inside])
+    return np.clip(frame - light, 0.0, None)
+
+
+def paint_ball(
+    frame: np.ndarray,
+    center_px: tuple[float, float],
+    radius_px: float,
+    light_from_deg: float,
+    rng: np.random.Generator,
+    *,
+    rim_counts: float = 2600.0,
+    dark_counts: float = 55.0,
+    noise_counts: float = 20.0,
+) -> np.ndarray:
+    """Paint the ball over a frame: dark disc, lit rim, anti-aliased edge, no particles inside.
+
+    Parameters
+    ----------
+    frame : (H, W) ndarray
+        Particle image (counts).
+    center_px, radius_px : the ball's circle (px).
+    light_from_deg : float
+        Direction toward the light source (deg, flight convention); the rim fades to a faint
+        glint on the far side.
+    rng : numpy Generator
+        For the noise on the ball's surface.
+
+    Returns
+    -------
+    (H, W) ndarray of float32
+        Same counts range as ``frame``.
+    """
+    height, width = frame.shape
+    yy, xx = np.mgrid[0:height, 0:width].astype(np.float64)
+    rx, ry = xx - center_px[0], yy - center_px[1]
+    r = np.hypot(rx, ry)
+    cover = np.clip(radius_px - r + 0.5, 0.0, 1.0)  # pixel fraction inside the outline
+    lx, ly = flight_unit(light_from_deg)
+    facing = (rx * lx + ry * ly) / np.maximum(r, 1e-9)
+    rim_gain = 0.12 + 0.88 * np.clip(facing, 0.0, 1.0) ** 0.7
+    depth = np.clip(radius_px - r, 0.0, None)
+    rim = rim_counts * rim_gain * np.exp(-((depth / 1.6) ** 2))
+    # the ball's surface replaces the background inside the outline; particle images just
+    # outside it are optical blur and overlap the outline (they are not cut by it)
+    surface = dark_counts - BACKGROUND_COUNTS + rim + rng.normal(0.0, noise_counts, frame.shape)
+    painted = frame + cover * surface
+    return np.clip(np.rint(painted), 0.0, 4095.0).astype(np.float32)
+
+
+def smooth_sphere_shot(**kwargs) -> tuple[np.ndarray, np.ndarray, ShotTruth]:
+    """Smooth sphere below the drag crisis: laminar separation 81 deg from the front stagnation
+    point on both sides, i.e. -9 deg from the plane normal to the flight (Achenbach 1972,
+    J. Fluid Mech. 54:565, memory: 80-82 deg).
+    """
+    kwargs.setdefault("upper_deg", 81.0 - 90.0)
+    kwargs.setdefault("lower_deg", 81.0 - 90.0)
+    return ball_shot(**kwargs)
+
+
+def attached_shot(**kwargs) -> tuple[np.ndarray, np.ndarray, ShotTruth]:
+    """Attached potential flow past a sphere, no wake (Batchelor 1967, memory)."""
+    kwargs["upper_deg"] = None
+    kwargs["lower_deg"] = None
+    return ball_shot(**kwargs)
