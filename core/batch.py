@@ -63,7 +63,7 @@ def plan_shots(session: Session, shot_ids=None, force: bool = False) -> tuple[li
     WakelineError
         When a requested shot id is not in the session.
     """
-    chosen = list(session.shot_ids()) if not shot_ids else list(dict.fromkeys(shot_ids))
+    chosen = list(session.shot_ids()) if shot_ids is None else list(dict.fromkeys(shot_ids))
     for shot_id in chosen:
         session.record(shot_id)  # raises for an unknown id
     todo = [s for s in chosen if force or session.needs_processing(s)]
