@@ -1,0 +1,341 @@
+"""The session store: picks and their history survive, reprocessing keeps picks, bad files are
+named, the lock keeps a second writer out, old files still open."""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import socket
+import subprocess
+import sys
+from pathlib import Path
+
+import h5py
+import numpy as np
+import pytest
+from data.make_session_v1 import EXPECTED as V1
+from data.session_helpers import fake_result, write_shot_folder
+
+from core import WakelineError
+from core.session import (
+    FORMAT_VERSION,
+    Pick,
+    Session,
+    SessionLocked,
+    import_folder,
+)
+
+ROOT = Path(__file__).resolve().parent.parent
+V1_FILE = Path(__file__).resolve().parent / "data" / "session_v1.h5"
+
+
+@pytest.fixture
+def session_path(tmp_path):
+    """A closed session of three referenced shots, none processed."""
+    report = import_folder(write_shot_folder(tmp_path / "src", 3), tmp_path / "s.h5")
+    assert report.problems == []
+    return tmp_path / "s.h5"
+
+
+def test_create_refuses_existing_file(session_path):
+    with pytest.raises(WakelineError, match="already exists"):
+        Session.create(session_path)
+
+
+def test_pick_and_history_survive_close_and_reopen(session_path):
+    with Session.open(session_path) as s:
+        s.save_result("S1", fake_result(s.settings_for("S1"), 6.0, -2.0))
+        s.set_pick("S1", status="accepted", who="ann")
+        s.set_pick("S1", status="adjusted", upper_deg=8.5, note="later", who="ben")
+    with Session.open(session_path, writable=False) as s:
+        rec = s.record("S1")
+        assert rec.pick.status == "adjusted" and rec.pick.upper_deg == 8.5
+        assert rec.final_deg("upper") == 8.5
+        assert rec.final_deg("lower") == -2.0  # side left alone keeps the proposal
+        history = s.history("S1")
+        assert [(p.status, p.who) for p in history] == [("accepted", "ann"), ("adjusted", "ben")]
+        assert all(p.when.endswith("Z") for p in history)
+        assert s.history("S0") == []
+
+
+def test_edits_are_kept_by_the_journal_without_close(session_path):
+    s = Session.open(session_path)
+    s.set_pick("S0", status="unusable", reason="ball out of the sheet")
+    journal = session_path.with_name("s.h5.journal")
+    assert journal.exists()
+    s._journal.close()  # as if the process died: no close(), no compaction
+    s._lock.release()
+    with Session.open(session_path) as again:
+        assert again.record("S0").pick.reason == "ball out of the sheet"
+        assert len(again.history("S0")) == 1
+    assert not journal.exists()  # folded into the snapshot on close
+    with Session.open(session_path, writable=False) as again:
+        assert again.record("S0").pick.status == "unusable"
+
+
+def test_reprocessing_updates_the_proposal_and_keeps_the_pick(session_path):
+    with Session.open(session_path) as s:
+        s.save_result("S2", fake_result(s.settings_for("S2"), 4.0, -1.0))
+        s.set_pick("S2", status="adjusted", lower_deg=3.0)
+        s.save_result("S2", fake_result(s.settings_for("S2"), 7.0, 2.0))
+        s.save_failure("S2", "frame file gone")
+    with Session.open(session_path, writable=False) as s:
+        rec = s.record("S2")
+        assert rec.proposed_deg("upper") == 7.0 and rec.proposed_deg("lower") == 2.0
+        assert rec.pick.status == "adjusted" and rec.pick.lower_deg == 3.0
+        assert rec.state == "failed" and rec.failure == "frame file gone"
+        assert s.load_result("S2").separation.upper.angle_deg == 7.0  # last good result kept
+
+
+def test_result_arrays_round_trip_with_units(session_path):
+    with Session.open(session_path) as s:
+        original = fake_result(s.settings_for("S0"))
+        s.save_result("S0", original)
+        pending = s.load_result("S0")  # read from the pending file before compaction
+    with Session.open(session_path, writable=False) as s:
+        stored = s.load_result("S0")
+    for result in (pending, stored):
+        for name, array in original.arrays().items():
+            np.testing.assert_array_equal(result.arrays()[name], array)
+        assert result.flight.direction_deg == 180.0
+    with h5py.File(session_path, "r") as f:
+        assert f.attrs["format_version"] == FORMAT_VERSION
+        result = f["shots/S0/result"]
+        assert result["u_m_s"].attrs["units"] == "m/s"
+        assert result["vorticity_1_s"].attrs["units"] == "1/s"
+        assert result["dx_px"].attrs["units"] == "px"
+
+
+def test_records_read_no_field_data(session_path, monkeypatch):
+    with Session.open(session_path) as s:
+        for shot_id in s.shot_ids():
+            s.save_result(shot_id, fake_result(s.settings_for(shot_id)))
+    s = Session.open(session_path, writable=False)
+
+    def refuse(*args, **kwargs):
+        raise AssertionError("records() opened the HDF5 file")
+
+    monkeypatch.setattr(h5py, "File", refuse)
+    records = s.records()
+    assert [r.shot_id for r in records] == ["S0", "S1", "S2"]
+    assert records[1].proposed_deg("upper") == 5.0 and records[1].uncertainty_deg("upper") == 1.5
+    assert records[1].metadata["seam_deg"] == 10.0
+    s.close()
+
+
+def test_second_writer_gets_a_clear_read_only_message(session_path):
+    with Session.open(session_path) as s:
+        code = (
+            "import sys; from core.session import Session, SessionLocked\n"
+            f"try:\n    Session.open({str(session_path)!r})\n"
+            "except SessionLocked as exc:\n    print(exc); sys.exit(3)\n"
+        )
+        other = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, check=False,
+                               text=True, timeout=60)
+        assert other.returncode == 3, other.stderr
+        assert f"pid {os.getpid()}" in other.stdout and "read-only" in other.stdout
+        with Session.open(session_path, writable=False) as reader:
+            assert reader.read_only and reader.shot_ids() == ["S0", "S1", "S2"]
+            with pytest.raises(WakelineError, match="read-only"):
+                reader.set_pick("S0", status="accepted")
+        s.set_pick("S0", status="accepted")
+
+
+def test_second_writer_in_the_same_process_is_refused(session_path):
+    with Session.open(session_path), pytest.raises(SessionLocked):
+        Session.open(session_path)
+
+
+def test_stale_lock_of_a_dead_process_is_recovered(session_path):
+    dead = subprocess.Popen([sys.executable, "-c", "pass"])
+    dead.wait()
+    lock = session_path.with_name("s.h5.lock")
+    lock.write_text(json.dumps({"host": socket.gethostname(), "pid": dead.pid, "since": "x"}))
+    with Session.open(session_path) as s:
+        s.set_pick("S1", status="accepted")
+    assert not lock.exists()
+
+
+def test_lock_of_another_host_is_respected(session_path):
+    lock = session_path.with_name("s.h5.lock")
+    lock.write_text(json.dumps({"host": "elsewhere.invalid", "pid": 1, "since": "x"}))
+    with pytest.raises(SessionLocked, match="elsewhere.invalid"):
+        Session.open(session_path)
+
+
+def test_torn_last_journal_line_is_ignored_and_appending_goes_on(session_path):
+    s = Session.open(session_path)
+    s.set_pick("S0", status="accepted")
+    s._journal.close()
+    s._lock.release()
+    journal = session_path.with_name("s.h5.journal")
+    with open(journal, "ab") as fh:
+        fh.write(b'{"seq": 99, "op": "pick", "shot": "S0", "pick": {"stat')  # killed mid-write
+    with Session.open(session_path, writable=False) as reader:
+        assert reader.record("S0").pick.status == "accepted"
+    s = Session.open(session_path)
+    s.set_pick("S0", status="unusable", reason="blurred")
+    s._journal.close()
+    s._lock.release()
+    with Session.open(session_path) as again:
+        assert [p.status for p in again.history("S0")] == ["accepted", "unusable"]
+
+
+def test_compaction_killed_before_dropping_the_journal_replays_nothing_twice(session_path):
+    journal = session_path.with_name("s.h5.journal")
+    s = Session.open(session_path)
+    s.set_pick("S1", status="accepted")
+    s.save_result("S1", fake_result(s.settings_for("S1")))
+    kept = journal.read_bytes()
+    s.close()  # snapshot replaced, journal dropped; now put the journal back as if killed
+    journal.write_bytes(kept)
+    with Session.open(session_path) as s:
+        assert len(s.history("S1")) == 1
+        s.set_pick("S1", status="adjusted", upper_deg=1.0)
+    with Session.open(session_path, writable=False) as s:
+        assert [p.status for p in s.history("S1")] == ["accepted", "adjusted"]
+        assert s.load_result("S1") is not None
+
+
+def test_leftovers_of_a_killed_writer_are_removed(session_path):
+    pending = session_path.with_name("s.h5.pending")
+    pending.mkdir()
+    (pending / "000000042.h5.tmp").write_bytes(b"half")
+    (pending / "000000043.h5").write_bytes(b"not referenced by the journal")
+    session_path.with_name("s.h5.tmp").write_bytes(b"half a snapshot")
+    with Session.open(session_path) as s:
+        assert s.shot_ids() == ["S0", "S1", "S2"]
+    assert not session_path.with_name("s.h5.tmp").exists()
+    assert not pending.exists() or not any(pending.iterdir())
+
+
+@pytest.mark.parametrize(
+    ("content", "message"),
+    [
+        (None, "damaged or truncated session file"),
+        (b"shot,dt_s\n", "not an HDF5 file"),
+        (b"", "damaged or truncated session file"),
+    ],
+)
+def test_bad_session_files_give_one_line_naming_the_file(session_path, content, message):
+    with Session.open(session_path) as s:
+        s.set_pick("S0", status="accepted")
+    if content is None:  # truncated: the first half of a real session file
+        content = session_path.read_bytes()[: session_path.stat().st_size // 2]
+    session_path.write_bytes(content)
+    journal = session_path.with_name("s.h5.journal")
+    journal.write_text("kept\n")
+    for writable in (True, False):
+        with pytest.raises(WakelineError, match=message) as info:
+            Session.open(session_path, writable=writable)
+        text = str(info.value)
+        assert str(session_path) in text and "\n" not in text
+    assert session_path.read_bytes() == content and journal.read_text() == "kept\n"
+    assert not session_path.with_name("s.h5.lock").exists()
+
+
+def test_foreign_hdf5_file_is_named(tmp_path):
+    path = tmp_path / "other.h5"
+    with h5py.File(path, "w") as f:
+        f["data"] = np.zeros(3)
+    with pytest.raises(WakelineError, match=r"other\.h5: not a wakeline session"):
+        Session.open(path)
+
+
+def test_newer_format_version_is_refused_with_a_message(session_path):
+    with h5py.File(session_path, "a") as f:
+        f.attrs["format_version"] = FORMAT_VERSION + 1
+    with pytest.raises(WakelineError, match="newer than this wakeline"):
+        Session.open(session_path, writable=False)
+
+
+def test_committed_format_1_file_still_opens():
+    with Session.open(V1_FILE, writable=False) as s:
+        assert s.name == V1["name"] and s.shot_ids() == V1["shots"]
+        r1, r2 = s.record("R1"), s.record("R2")
+        assert r1.proposed_deg("upper") == V1["R1"]["upper_proposed_deg"]
+        assert r1.proposed_deg("lower") == V1["R1"]["lower_proposed_deg"]
+        assert r1.pick.status == V1["R1"]["status"]
+        assert r1.final_deg("upper") == V1["R1"]["final_upper_deg"]
+        assert len(s.history("R1")) == V1["R1"]["edits"]
+        assert s.load_result("R1").field.dx_px.shape == V1["R1"]["shape"]
+        assert r2.state == "failed" and r2.failure == V1["R2"]["failure"]
+        frame_a, _ = s.load_frames("R2")
+        assert frame_a.shape == (48, 64) and frame_a.dtype == np.float32
+
+
+def test_committed_format_1_file_is_rewritten_in_the_current_format(tmp_path):
+    copy = tmp_path / "old.h5"
+    shutil.copyfile(V1_FILE, copy)
+    with Session.open(copy) as s:
+        s.set_pick("R2", status="unusable", reason="no ball")
+    with Session.open(copy, writable=False) as s:
+        assert len(s.history("R1")) == V1["R1"]["edits"]
+        assert s.record("R2").pick.reason == "no ball"
+        assert s.load_result("R1") is not None
+
+
+def test_changed_and_missing_frame_files_are_reported_per_shot(session_path):
+    src = session_path.parent / "src"
+    with open(src / "S1_b.tif", "ab") as fh:
+        fh.write(b"\0")
+    (src / "S2_a.tif").unlink()
+    with Session.open(session_path, writable=False) as s:
+        problems = s.check_frames()
+        assert set(problems) == {"S1", "S2"}
+        assert "S1_b.tif changed since import" in problems["S1"]
+        assert "S2_a.tif not found" in problems["S2"]
+        with pytest.raises(WakelineError, match="shot S1: frame file .*S1_b.tif changed"):
+            s.load_frames("S1")
+        assert s.load_frames("S0")[0].shape == (192, 256)
+
+
+def test_embedded_frames_do_not_need_the_source_folder(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    import_folder(src, tmp_path / "e.h5", embed=True)
+    with Session.open(tmp_path / "e.h5", writable=False) as s:
+        expected = s.load_frames("S1")
+    shutil.rmtree(src)
+    with Session.open(tmp_path / "e.h5", writable=False) as s:
+        frame_a, frame_b = s.load_frames("S1")
+        assert s.check_frames() == {}
+    np.testing.assert_array_equal(frame_a, expected[0])
+    np.testing.assert_array_equal(frame_b, expected[1])
+
+
+@pytest.mark.parametrize(
+    ("kwargs", "message"),
+    [
+        ({"status": "done"}, "not one of"),
+        ({"status": "unusable"}, "needs a reason"),
+        ({"status": "adjusted"}, "needs an upper or lower angle"),
+        ({"upper_deg": float("nan")}, "finite angle"),
+    ],
+)
+def test_bad_picks_are_refused_and_nothing_is_written(session_path, kwargs, message):
+    with Session.open(session_path) as s:
+        with pytest.raises(WakelineError, match=message):
+            s.set_pick("S0", **kwargs)
+        assert s.history("S0") == [] and s.record("S0").pick == Pick()
+
+
+def test_unknown_shot_is_named(session_path):
+    with Session.open(session_path, writable=False) as s, pytest.raises(
+        WakelineError, match="shot S9: not in s.h5"
+    ):
+        s.record("S9")
+
+
+def test_settings_change_marks_shots_for_processing(session_path):
+    with Session.open(session_path) as s:
+        s.save_result("S0", fake_result(s.settings_for("S0")))
+        assert not s.needs_processing("S0") and s.needs_processing("S1")
+        s.set_processing_settings({"piv": {"passes": [{"window_px": 48, "overlap": 0.5}]}})
+        assert s.needs_processing("S0")
+        assert s.settings_for("S0").piv.passes[0].window_px == 48
+        assert s.settings_for("S0").dt_s == 2e-5
+        with pytest.raises(WakelineError, match="unknown key"):
+            s.set_processing_settings({"windows": 3})
+    with Session.open(session_path, writable=False) as s:
+        assert s.processing_settings()["piv"]["passes"][0]["window_px"] == 48
