@@ -105,7 +105,9 @@ def replace_outliers(
 
     Holes are filled from the outside in: each round fills the holes with the most usable
     neighbours (at least 3 when any hole has that many), so a filled value rests on measured
-    ones where possible. Masked cells are neither used nor filled: they stay NaN.
+    ones where possible; the filled values are then relaxed to the mean of their 4 neighbours
+    (a discrete Laplace fill, exact on linear fields). Masked cells are neither used nor
+    filled: they stay NaN.
 
     Parameters
     ----------
@@ -127,12 +129,35 @@ def replace_outliers(
     holes = ~masked & ~(np.isfinite(out_x) & np.isfinite(out_y))
     out_x[holes] = np.nan
     out_y[holes] = np.nan
-    while np.any(holes):
-        filled = _fill_round(out_x, out_y, holes)
+    todo = holes.copy()
+    while np.any(todo):
+        filled = _fill_round(out_x, out_y, todo)
         if not np.any(filled):
             break
-        holes &= ~filled
+        todo &= ~filled
+    _relax(out_x, holes & ~todo)
+    _relax(out_y, holes & ~todo)
     return out_x, out_y
+
+
+def _relax(values: np.ndarray, cells: np.ndarray, tol_px: float = 1e-3, rounds: int = 500) -> None:
+    """Relax ``cells`` (in place) toward the mean of their 4 neighbours (a discrete Laplace
+    fill, exact for linear fields), starting from the neighbour-mean fill."""
+    if not np.any(cells):
+        return
+    m, n = values.shape
+    for _ in range(rounds):
+        padded = np.full((m + 2, n + 2), np.nan)
+        padded[1:-1, 1:-1] = values
+        near = np.stack([padded[:-2, 1:-1], padded[2:, 1:-1], padded[1:-1, :-2], padded[1:-1, 2:]])
+        count = np.count_nonzero(np.isfinite(near), axis=0)
+        total = np.nansum(near, axis=0)
+        update = cells & (count > 0)
+        new = total[update] / count[update]
+        change = np.max(np.abs(new - values[update]), initial=0.0)
+        values[update] = new
+        if change < tol_px:
+            return
 
 
 def _fill_round(out_x: np.ndarray, out_y: np.ndarray, holes: np.ndarray) -> np.ndarray:

@@ -1,0 +1,213 @@
+"""The correlation engine against synthetic images of known displacement."""
+
+import json
+import math
+from dataclasses import asdict
+
+import numpy as np
+import pytest
+
+from core import WakelineError, synth
+from core.piv import (
+    Cancelled,
+    PivPass,
+    PivSettings,
+    correlate_pair,
+    gaussian_peak_offset,
+    parabolic_peak_offset,
+)
+
+
+def _sampled_gaussian(x0, sigma):
+    k = np.array([-1.0, 0.0, 1.0])
+    return np.exp(-((k - x0) ** 2) / (2 * sigma**2))
+
+
+def test_gaussian_estimator_is_exact_on_a_sampled_gaussian_and_the_parabola_is_not():
+    # Three-point Gaussian estimator (Willert & Gharib 1991; Raffel et al., memory).
+    # derived: ln R(k) = c - (k - x0)^2 / (2 sigma^2) is a parabola in k, so the vertex of the
+    # parabola through the three logarithms is x0 itself; the parabola through the raw samples
+    # has its vertex elsewhere (about 0.267 for x0 = 0.3, sigma = 1.2).
+    r = _sampled_gaussian(0.3, 1.2)
+    assert float(gaussian_peak_offset(*r)) == pytest.approx(0.300, abs=1e-12)
+    a, b, _ = np.polyfit([-1.0, 0.0, 1.0], r, 2)
+    vertex = -b / (2 * a)
+    assert float(parabolic_peak_offset(*r)) == pytest.approx(vertex, abs=1e-12)
+    assert vertex == pytest.approx(0.267, abs=0.001)
+
+
+def test_peak_estimators_fall_back_safely():
+    # a non-positive sample has no logarithm: the parabolic estimate is used instead
+    assert float(gaussian_peak_offset(-0.1, 1.0, 0.5)) == pytest.approx(
+        float(parabolic_peak_offset(-0.1, 1.0, 0.5))
+    )
+    assert float(gaussian_peak_offset(1.0, 1.0, 1.0)) == 0.0  # flat: no peak, no offset
+    out = gaussian_peak_offset(np.array([0.0, 0.5]), np.array([0.0, 1.0]), np.array([0.0, 0.5]))
+    np.testing.assert_array_equal(out, [0.0, 0.0])
+
+
+SWEEP = [round(0.1 * i, 1) for i in range(11)] + [3.3, 5.7]
+
+
+@pytest.mark.parametrize("shift_px", SWEEP)
+def test_uniform_displacement_sweep_is_accurate_and_unbiased(shift_px):
+    # Random error of 32 px windows with Gaussian peak fit and 2-3.5 px particles: about
+    # 0.02-0.05 px RMS (Raffel et al., memory, Monte-Carlo); the bias of FFT correlation is
+    # removed by window deformation (Westerweel 1997, memory). Limits: RMS <= 0.05 px and
+    # |mean| <= 0.02 px per component, over every vector including the border ones.
+    truth = (shift_px, 0.6 - 0.5 * shift_px)
+    a, b = synth.particle_pair(
+        (256, 256),
+        synth.uniform(*truth),
+        density_ppp=0.05,
+        diameter_px=(2.0, 3.5),
+        noise=0.02,
+        seed=int(10 * shift_px),
+    )
+    vf = correlate_pair(a, b)
+    assert vf.window_px == 32
+    assert np.all(vf.valid)
+    for measured, true in ((vf.dx_px, truth[0]), (vf.dy_px, truth[1])):
+        err = measured - true
+        assert np.sqrt(np.mean(err**2)) <= 0.05
+        assert abs(np.mean(err)) <= 0.02
+
+
+def test_lamb_oseen_vortex_is_resolved():
+    # Lamb-Oseen: swirl peak 0.63817 G / (2 pi rc) (closed form, seen); G chosen for a 6 px peak.
+    # Limits RMS <= 0.1 px (commonly quoted overall error 0.05-0.1 px, Wieneke 2015, seen)
+    # and >= 97 % valid.
+    rc = 40.0
+    circulation = 6.0 * 2 * math.pi * rc / 0.63817
+    field = synth.lamb_oseen((195.3, 187.6), circulation, rc)
+    a, b = synth.particle_pair((384, 384), field, seed=4)
+    vf = correlate_pair(a, b)
+    tx, ty = field(vf.x_px, vf.y_px)
+    assert np.max(np.hypot(tx, ty)) > 5.5
+    err = np.hypot(vf.dx_px - tx, vf.dy_px - ty)
+    assert np.sqrt(np.mean(err**2)) <= 0.1
+    assert np.mean(vf.valid) >= 0.97
+
+
+def _ball_pair(centre_a, centre_b, radius, field, shape=(320, 320), seed=0):
+    a, b = synth.particle_pair(shape, field, seed=seed)
+    yy, xx = np.mgrid[0 : shape[0], 0 : shape[1]]
+    masks = []
+    for frame, (cx, cy) in ((a, centre_a), (b, centre_b)):
+        inside = np.hypot(xx - cx, yy - cy) <= radius
+        frame[inside] = 3000.0  # a bright ball surface
+        masks.append(np.hypot(xx - cx, yy - cy) <= radius + 2)
+    return a, b, masks[0], masks[1]
+
+
+def test_flow_past_a_masked_sphere_reports_no_vector_inside_the_mask():
+    # Potential flow past a sphere (Batchelor 1967, memory): u_r = U cos a (1 - R^3/r^3),
+    # u_a = -U sin a (1 + R^3/(2 r^3)); the sphere is masked in both frames.
+    sphere = synth.potential_sphere((160.0, 158.0), 50.0, 5.0)
+    a, b, mask_a, mask_b = _ball_pair((160.0, 158.0), (160.0, 158.0), 50.0, sphere)
+    vf = correlate_pair(a, b, mask_a, mask_b)
+    col = np.clip(np.rint(vf.x_px).astype(int), 0, 319)
+    row = np.clip(np.rint(vf.y_px).astype(int), 0, 319)
+    inside = mask_a[row, col] | mask_b[row, col]
+    assert np.count_nonzero(inside) > 10
+    assert not np.any(vf.valid[inside])
+    assert np.all(vf.masked[inside])
+    assert np.all(np.isnan(vf.dx_px[vf.masked])) and np.all(np.isnan(vf.peak_ratio[vf.masked]))
+    # away from the ball (window clear of the mask) the flow is measured as it should be
+    far = np.hypot(vf.x_px - 160.0, vf.y_px - 158.0) > 50.0 + 2 + 0.75 * vf.window_px
+    tx, ty = sphere(vf.x_px, vf.y_px)
+    err = np.hypot(vf.dx_px - tx, vf.dy_px - ty)[far]
+    assert np.sqrt(np.mean(err**2)) <= 0.1
+
+
+def test_a_ball_that_moves_between_frames_is_excluded_in_each_frame():
+    # the bright ball moves 9 px while the air moves 2 px: if its pixels took part, windows on
+    # its edge would lock on the ball's motion
+    a, b, mask_a, mask_b = _ball_pair((150.0, 160.0), (159.0, 160.0), 40.0, synth.uniform(2.0, 0.5))
+    vf = correlate_pair(a, b, mask_a, mask_b)
+    measured = ~vf.masked
+    near = measured & (np.hypot(vf.x_px - 155.0, vf.y_px - 160.0) < 40 + vf.window_px)
+    assert np.count_nonzero(near) > 8
+    assert np.max(np.abs(vf.dx_px[near] - 2.0)) < 0.3
+    assert np.max(np.abs(vf.dy_px[near] - 0.5)) < 0.3
+    only_b = mask_b & ~mask_a
+    col = np.rint(vf.x_px).astype(int)
+    row = np.rint(vf.y_px).astype(int)
+    assert np.count_nonzero(only_b[row, col]) > 0
+    assert np.all(vf.masked[only_b[row, col]])
+
+
+def test_quarter_window_rule_warns_only_when_broken():
+    # keep first-pass displacement <= 1/4 of the window (Keane & Adrian 1990, memory)
+    a, b = synth.particle_pair((256, 256), synth.uniform(10.0, 5.0), seed=1)
+    assert correlate_pair(a, b).warnings == []  # 11.2 px < 16 px
+    a, b = synth.particle_pair((256, 256), synth.uniform(19.0, 0.0), seed=1)
+    vf = correlate_pair(a, b)
+    assert len(vf.warnings) == 1 and "quarter" in vf.warnings[0]
+
+
+def test_grid_and_record_layout():
+    settings = PivSettings(passes=(PivPass(32, 0.5), PivPass(16, 0.5)))
+    a, b = synth.particle_pair((96, 128), synth.uniform(1.0, 0.0), seed=2)
+    vf = correlate_pair(a, b, settings=settings)
+    # centres at (D - 1)/2 + k * spacing in image coordinates (origin at the pixel centre)
+    assert vf.x_px.shape == (11, 15) and vf.window_px == 16 and vf.spacing_px == 8.0
+    np.testing.assert_allclose(vf.x_px[0], 7.5 + 8.0 * np.arange(15))
+    np.testing.assert_allclose(vf.y_px[:, 0], 7.5 + 8.0 * np.arange(11))
+    for name, arr in vf.arrays().items():
+        assert arr.shape == (11, 15), name
+    assert vf.valid.dtype == bool and not np.any(vf.replaced & vf.valid)
+
+
+def test_peak_ratio_separates_signal_from_noise():
+    # peak ratio = primary / secondary correlation peak (Charonko & Vlachos 2013, memory)
+    settings = PivSettings(passes=(PivPass(32, 0.5),))
+    a, b = synth.particle_pair((256, 256), synth.uniform(2.0, 1.0), seed=3)
+    c, _ = synth.particle_pair((256, 256), synth.uniform(2.0, 1.0), seed=99)
+    good = correlate_pair(a, b, settings=settings).peak_ratio
+    noise = correlate_pair(a, c, settings=settings).peak_ratio
+    assert np.median(good) > 3.0
+    assert np.median(noise) < 1.6
+
+
+def test_outliers_are_replaced_and_flagged():
+    a, b = synth.particle_pair((256, 256), synth.uniform(2.0, 1.0), seed=5)
+    rng = np.random.default_rng(0)
+    b[96:128, 96:128] = rng.uniform(0, 4095, (32, 32))  # a patch of noise in frame B
+    vf = correlate_pair(a, b)
+    assert np.any(vf.replaced)
+    assert not np.any(vf.valid & vf.replaced)
+    assert np.all(np.isfinite(vf.dx_px))
+    assert np.max(np.abs(vf.dx_px[vf.replaced] - 2.0)) < 0.5
+
+
+def test_progress_reports_each_pass_and_can_stop():
+    a, b = synth.particle_pair((128, 128), synth.uniform(1.0, 0.0), seed=6)
+    calls = []
+    correlate_pair(a, b, progress=lambda done, total, msg: calls.append((done, total)))
+    assert calls == [(0, 3), (1, 3), (2, 3), (3, 3)]
+    with pytest.raises(Cancelled):
+        correlate_pair(a, b, progress=lambda done, total, msg: done == 1)
+
+
+def test_settings_round_trip_through_json_and_reject_nonsense():
+    s = PivSettings(passes=(PivPass(48, 0.75), PivPass(24, 0.5)), median_threshold=3.0, workers=1)
+    back = PivSettings.from_dict(json.loads(json.dumps(s.to_dict())))
+    assert back == s
+    assert PivSettings.from_dict(asdict(s)) == s
+    with pytest.raises(WakelineError):
+        PivSettings(passes=())
+    with pytest.raises(WakelineError):
+        PivSettings(passes=(PivPass(32, 1.0),))
+    with pytest.raises(WakelineError):
+        PivSettings(passes=(PivPass(4, 0.5),))
+
+
+def test_bad_frames_are_refused_with_one_line():
+    a = np.zeros((64, 64), np.float32)
+    with pytest.raises(WakelineError, match="shapes differ"):
+        correlate_pair(a, np.zeros((64, 65)))
+    with pytest.raises(WakelineError, match="smaller than"):
+        correlate_pair(a[:40], a[:40])
+    with pytest.raises(WakelineError, match="mask of frame B"):
+        correlate_pair(a, a, mask_b=np.zeros((3, 3), bool))
