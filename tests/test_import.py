@@ -1,0 +1,138 @@
+"""Importing a folder of shots: good rows go in, each bad row is named by line and shot."""
+
+from __future__ import annotations
+
+import shutil
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+import tifffile
+from data.session_helpers import HEADER, write_pair, write_shot_folder
+
+from app.cli import main
+from core import WakelineError
+from core.session import Session, import_folder
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def test_good_folder_imports_every_shot_with_its_metadata(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    a = tifffile.imread(src / "S0_a.tif")
+    tifffile.imwrite(src / "T1.tif", np.stack([a, a]))  # one two-page TIFF
+    (src / "shots.csv").write_text(
+        "shot,dt_s,scale_mm_per_px,ball_diameter_mm,ball_type,seam_deg,spin_rpm,operator\n"
+        "S0,2e-05,0.08,71.6,cricket,15,1200,Ann\n"
+        "S1,2.5e-05,,72.0,cricket,-10,,Bo\n"
+        "T1,2e-05,0.08,,baseball,,,Ann\n",
+        encoding="utf-8",
+    )
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == ["S0", "S1", "T1"] and report.problems == []
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        meta = s.record("S1").metadata
+        assert meta["dt_s"] == 2.5e-5 and meta["scale_mm_per_px"] is None  # derived from ball
+        assert meta["seam_deg"] == -10.0 and meta["spin_rpm"] is None
+        assert meta["operator"] == "Bo"  # unknown column kept as text
+        assert s.settings_for("S1").scale_mm_per_px is None
+        assert s.record("T1").frames["path_b"] is None
+        frame_a, frame_b = s.load_frames("T1")
+        np.testing.assert_array_equal(frame_a, frame_b)
+        assert s.record("S0").frames["path_a"] == "src/S0_a.tif"  # relative to the session
+
+
+def test_bad_rows_are_reported_by_line_and_shot_and_good_rows_imported(tmp_path, capsys):
+    src = write_shot_folder(tmp_path / "src", 3, extra_rows=("S9,2e-05,0.08,71.6,0,",))
+    lines = (src / "shots.csv").read_text().splitlines()
+    lines[2] = lines[2].replace("2e-05", "abc")  # S1: non-numeric dt
+    (src / "shots.csv").write_text("\n".join(lines) + "\n")
+    code = main(["import", str(src), str(tmp_path / "s.h5")])
+    err = capsys.readouterr().err
+    assert code == 1
+    assert "shots.csv line 3 (shot S1): dt_s 'abc' is not a number" in err
+    assert "shots.csv line 5 (shot S9): no frame files S9_a/_b" in err
+    assert "S1_a.tif" in err  # the unused frame files are mentioned as a note
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert s.shot_ids() == ["S0", "S2"]
+
+
+def test_missing_column_refuses_the_manifest_and_creates_nothing(tmp_path, capsys):
+    src = write_shot_folder(tmp_path / "src", 1)
+    (src / "shots.csv").write_text("shot,scale_mm_per_px,ball_diameter_mm\nS0,0.08,71.6\n")
+    with pytest.raises(WakelineError, match=r"shots\.csv: missing column 'dt_s'"):
+        import_folder(src, tmp_path / "s.h5")
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
+    assert "missing column 'dt_s'" in capsys.readouterr().err
+    assert not (tmp_path / "s.h5").exists()
+
+
+@pytest.mark.parametrize(
+    ("row", "message"),
+    [
+        ("S0,,0.08,71.6,,", "dt_s is empty"),
+        ("S0,-2e-05,0.08,71.6,,", "dt_s must be positive"),
+        ("S0,2e-05,0.08,,,", "ball_diameter_mm is empty"),
+        ("S0,2e-05,nan,71.6,,", "not a finite number"),
+        (",2e-05,0.08,71.6,,", "empty shot id"),
+        ("S0,2e-05,0.08,71.6,,,,extra", "header has 6 columns"),
+    ],
+)
+def test_each_bad_value_has_its_own_message(tmp_path, row, message):
+    src = tmp_path / "src"
+    write_shot_folder(src, 0)
+    write_pair(src, "S0", (2.0, 0.0))
+    (src / "shots.csv").write_text(f"{HEADER}\n{row}\n")
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == [] and len(report.problems) == 1
+    assert report.problems[0].startswith("shots.csv line 2")
+    assert message in report.problems[0]
+
+
+def test_unreadable_frame_and_duplicate_row_are_reported(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2, extra_rows=("S0,2e-05,0.08,71.6,0,again",))
+    tifffile.imwrite(src / "S1_b.tif", np.zeros((192, 256, 3), np.uint8))
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == ["S0"]
+    assert any("line 3 (shot S1)" in p and "colour image" in p for p in report.problems)
+    assert any("line 4 (shot S0)" in p and "already in s.h5" in p for p in report.problems)
+
+
+def test_second_import_adds_to_an_existing_session(tmp_path):
+    write_shot_folder(tmp_path / "one", 1)
+    two = tmp_path / "two"
+    two.mkdir()
+    write_pair(two, "X1", (1.0, 1.0))
+    (two / "shots.csv").write_text(f"{HEADER}\nX1,1e-05,0.1,57.2,0,\n")
+    import_folder(tmp_path / "one", tmp_path / "s.h5")
+    report = import_folder(two, tmp_path / "s.h5")
+    assert report.problems == []
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert s.shot_ids() == ["S0", "X1"]
+
+
+def test_session_and_frames_moved_together_still_find_the_frames(tmp_path):
+    write_shot_folder(tmp_path / "a" / "src", 1)
+    import_folder(tmp_path / "a" / "src", tmp_path / "a" / "s.h5")
+    shutil.move(tmp_path / "a", tmp_path / "b")
+    with Session.open(tmp_path / "b" / "s.h5", writable=False) as s:
+        assert s.check_frames() == {}
+        assert s.load_frames("S0")[0].shape == (192, 256)
+
+
+def test_import_command_from_the_shell(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 1)
+    run = subprocess.run(
+        [sys.executable, "-m", "app.cli", "import", str(src), str(tmp_path / "s.h5"), "--embed"],
+        cwd=ROOT, capture_output=True, text=True, timeout=120, check=False,
+    )
+    assert run.returncode == 0, run.stderr
+    assert "imported 1 shot" in run.stdout
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert s.record("S0").frames["storage"] == "embedded"
+    bad = subprocess.run([sys.executable, "-m", "app.cli", "import", str(tmp_path / "nowhere"),
+                          str(tmp_path / "s.h5")], cwd=ROOT, capture_output=True, text=True,
+                         timeout=120, check=False)
+    assert bad.returncode == 1 and bad.stderr.strip().endswith("nowhere: folder not found")
