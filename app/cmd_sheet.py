@@ -1,0 +1,205 @@
+"""`wakeline sheet` (the shot sheet PDF) and `wakeline demo` (the bundled demo session)."""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import shutil
+import sys
+from pathlib import Path
+
+from core import WakelineError
+
+SAMPLE_RUNS = Path(__file__).resolve().parent.parent / "sample_runs"
+DEMO_SESSION = "demo_session.h5"
+DEMO_SHEET = "demo_sheet.pdf"
+DEMO_TABLE = "demo_table.csv"
+DEMO_REVIEWER = "demo analyst (invented)"
+DEMO_INPUTS = ("shots.csv", "truth.csv", "reviews.csv", "README.md")
+
+
+def add_commands(subparsers) -> None:
+    _add_sheet(subparsers)
+    _add_demo(subparsers)
+
+
+def _add_sheet(subparsers) -> None:
+    p = subparsers.add_parser(
+        "sheet",
+        help="write the shot sheet of a session as PDF",
+        description="Write a vector PDF handing over a session: a cover page (counts by review "
+        "status, the overview plot of separation angles, a summary table of the final angles) "
+        "and a panel per shot (vorticity and vectors, ball, flight, separation marks, numbers, "
+        "metadata, review). Needs no display.",
+    )
+    p.add_argument("session", type=Path, help="session file (.h5)")
+    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.pdf")
+    p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
+    p.add_argument("--per-page", type=int, default=2, choices=(1, 2, 3, 4), metavar="N",
+                   help="shot panels per page: 1, 2 (default), 3 or 4")
+    p.add_argument("--status", metavar="LIST",
+                   help="only shots with these review statuses, comma-separated, e.g. "
+                   "accepted,adjusted (statuses: to review, accepted, adjusted, unusable)")
+    p.add_argument("--column", metavar="NAME",
+                   help="numeric metadata column for the overview and the summary table "
+                   "(default: seam_deg when present)")
+    p.set_defaults(func=run_sheet)
+
+
+def _add_demo(subparsers) -> None:
+    p = subparsers.add_parser(
+        "demo",
+        help="process the bundled demo session and open it",
+        description="Copy the bundled demo shots (an invented seam-angle sweep of a cricket "
+        "ball, see sample_runs/README.md) to a folder of yours, import and process them, replay "
+        "the invented analyst's review decisions, then open the review window. With no display "
+        "(or --no-window) write the shot sheet PDF and the CSV table next to the session instead.",
+    )
+    p.add_argument("--out", type=Path, metavar="DIR",
+                   help="where the demo session goes (default: ~/.local/share/wakeline/demo)")
+    p.add_argument("--no-window", action="store_true",
+                   help="do not open the window; write the shot sheet and the table")
+    p.add_argument("--fresh", action="store_true",
+                   help="start again from the bundled shots, discarding the demo session's edits")
+    p.add_argument("--workers", type=int, metavar="N",
+                   help="worker processes (default: all cores; 0 = in this process)")
+    p.set_defaults(func=run_demo)
+
+
+# --- sheet ---------------------------------------------------------------------------------------
+
+
+def run_sheet(args: argparse.Namespace) -> int:
+    from app.sheet import make_sheet, parse_statuses
+    from core.session import Session
+
+    statuses = parse_statuses(args.status)
+    with Session.open(args.session, writable=False) as session:
+        report = make_sheet(session, args.output, shot_ids=args.shots, per_page=args.per_page,
+                            statuses=statuses, column=args.column)
+    print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
+    return 0
+
+
+# --- demo ----------------------------------------------------------------------------------------
+
+
+def demo_dir(out: Path | None) -> Path:
+    """The folder of the demo session (created)."""
+    from core.paths import user_data_dir
+
+    folder = Path(out) if out is not None else user_data_dir() / "demo"
+    if folder.resolve() == SAMPLE_RUNS.resolve():
+        raise WakelineError(f"{folder}: the bundled demo folder is kept as shipped; choose --out")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise WakelineError(f"{folder}: cannot create the demo folder ({exc.strerror})") from None
+    return folder
+
+
+def run_demo(args: argparse.Namespace) -> int:
+    from app.sheet import has_display
+
+    folder = demo_dir(args.out)
+    session_path = prepare_demo(folder, fresh=args.fresh)
+    process_demo(session_path, workers=args.workers)
+    if args.no_window or not has_display():
+        if not args.no_window:
+            print("no display found: writing the shot sheet and the table instead of opening "
+                  "the window")
+        return write_demo_outputs(session_path)
+    from app.window import run_window
+
+    return run_window(session_path)
+
+
+def prepare_demo(folder: Path, fresh: bool = False) -> Path:
+    """Copy the bundled shots into ``folder/frames`` and import them (unless already there).
+
+    Returns the session path. With ``fresh`` an earlier demo session in ``folder`` is removed
+    first (only the files this command makes).
+    """
+    from core.session import import_folder
+
+    if not (SAMPLE_RUNS / "shots.csv").is_file():
+        raise WakelineError(f"{SAMPLE_RUNS}: the bundled demo shots are missing (shots.csv)")
+    session_path = folder / DEMO_SESSION
+    if fresh:
+        _remove_demo_session(session_path)
+    if session_path.exists():
+        print(f"{session_path}: using the existing demo session (--fresh starts again)")
+        return session_path
+    frames = folder / "frames"
+    frames.mkdir(exist_ok=True)
+    for src in [SAMPLE_RUNS / n for n in DEMO_INPUTS] + sorted(SAMPLE_RUNS.glob("*.tif")):
+        if src.is_file():
+            shutil.copyfile(src, frames / src.name)
+    report = import_folder(frames, session_path)
+    if report.problems:
+        raise WakelineError(f"{frames}: demo import failed: {report.problems[0]}")
+    print(f"{session_path}: imported {len(report.imported)} demo shot(s)")
+    return session_path
+
+
+def _remove_demo_session(session_path: Path) -> None:
+    for suffix in ("", ".journal"):
+        session_path.with_name(session_path.name + suffix).unlink(missing_ok=True)
+    shutil.rmtree(session_path.with_name(session_path.name + ".pending"), ignore_errors=True)
+    for name in (DEMO_SHEET, DEMO_TABLE):
+        (session_path.parent / name).unlink(missing_ok=True)
+
+
+def process_demo(session_path: Path, workers: int | None = None) -> None:
+    """Process the shots not yet processed, then replay the invented reviews on untouched shots."""
+    from core.batch import process_shots
+    from core.session import Session
+
+    with Session.open(session_path) as session:
+
+        def show(outcome) -> None:
+            state = "ok" if outcome.ok else f"failed: {outcome.message}"
+            print(f"  {outcome.shot_id} {state} ({outcome.done}/{outcome.total})", file=sys.stderr)
+
+        report = process_shots(session, workers=workers, on_result=show)
+        if report.interrupted:
+            raise WakelineError(f"{session_path}: processing stopped; run the demo again")
+        applied = replay_reviews(session, session_path.parent / "frames" / "reviews.csv")
+    print(f"{session_path}: processed {len(report.processed)} shot(s)"
+          + (f", {len(report.failed)} failed" if report.failed else "")
+          + (f"; replayed {applied} review decision(s)" if applied else ""))
+
+
+def replay_reviews(session, reviews_csv: Path) -> int:
+    """Apply the demo's review decisions to shots the analyst has not touched; return how many."""
+    if not reviews_csv.is_file():
+        return 0
+    applied = 0
+    with open(reviews_csv, encoding="utf-8", newline="") as fh:
+        for row in csv.DictReader(fh):
+            shot_id = row["shot"]
+            if shot_id not in session.shot_ids() or session.history(shot_id):
+                continue
+            if session.record(shot_id).state != "processed":
+                continue
+            angles = {f"{side}_deg": float(row[f"{side}_deg"])
+                      for side in ("upper", "lower") if row.get(f"{side}_deg")}
+            session.set_pick(shot_id, status=row["status"], reason=row.get("reason") or None,
+                             note=row.get("note") or None, who=DEMO_REVIEWER, **angles)
+            applied += 1
+    return applied
+
+
+def write_demo_outputs(session_path: Path) -> int:
+    """Write the demo's shot sheet and table next to the session and print their paths."""
+    from app.sheet import make_sheet
+    from core.session import Session, write_table_csv
+
+    sheet_path = session_path.parent / DEMO_SHEET
+    table_path = session_path.parent / DEMO_TABLE
+    with Session.open(session_path, writable=False) as session:
+        report = make_sheet(session, sheet_path)
+        write_table_csv(session, table_path)
+    print(f"shot sheet: {sheet_path} ({report.pages} pages)")
+    print(f"table:      {table_path}")
+    return 0
