@@ -265,19 +265,18 @@ def _run_dask(tasks: list[dict], stop, scheduler) -> Iterator[tuple]:
     run = uuid.uuid4().hex[:8]
     futures = {client.submit(measure_task, task, 1, key=f"wakeline-{run}-{i}", pure=False):
                task["shot_id"] for i, task in enumerate(tasks)}
-    pending = set(futures)
+    arriving = distributed.as_completed(list(futures), loop=client.loop)
     try:
-        while pending and not stop():
-            try:
-                state = distributed.wait(list(pending), timeout=_POLL_S, return_when="FIRST_COMPLETED")
-            except TimeoutError:
-                continue
-            for future in state.done:
-                pending.discard(future)
+        while not arriving.is_empty() and not stop():
+            ready = arriving.next_batch(block=False)
+            if not ready:
+                time.sleep(_POLL_S / 4)
+            for future in ready:
                 yield _dask_outcome(future, futures[future])
     finally:
-        if pending:
-            client.cancel(list(pending))
+        unfinished = [f for f in futures if not f.done()]
+        if unfinished:
+            client.cancel(unfinished)
         if own:
             client.close()
 

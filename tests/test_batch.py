@@ -1,0 +1,111 @@
+"""Batch processing: results saved as they arrive, failures recorded, runs resume, picks kept."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from data.session_helpers import fast_settings, shift_of, write_shot_folder
+
+from app.cli import main
+from core import WakelineError
+from core.batch import iter_process, plan_shots, process_shots
+from core.session import Session, import_folder
+
+
+@pytest.fixture
+def session_path(tmp_path):
+    """Four referenced shots with uniform shifts, fast processing settings."""
+    import_folder(write_shot_folder(tmp_path / "src", 4), tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        s.set_processing_settings(fast_settings())
+    return tmp_path / "s.h5"
+
+
+def _median_shift(result) -> tuple[float, float]:
+    field = result.field
+    return float(np.nanmedian(field.dx_px)), float(np.nanmedian(field.dy_px))
+
+
+def test_import_process_pick_close_reopen_round_trip(session_path):
+    with Session.open(session_path) as s:
+        report = process_shots(s, workers=2)
+        assert sorted(report.processed) == ["S0", "S1", "S2", "S3"] and not report.failed
+        s.set_pick("S2", status="unusable", reason="seeding too sparse", who="ann")
+    with Session.open(session_path, writable=False) as s:
+        for i, shot_id in enumerate(s.shot_ids()):
+            rec = s.record(shot_id)
+            assert rec.state == "processed" and not s.needs_processing(shot_id)
+            # The frames were drawn with a known uniform shift (core.synth, derived truth).
+            assert _median_shift(s.load_result(shot_id)) == pytest.approx(shift_of(i), abs=0.1)
+        assert s.record("S2").pick.reason == "seeding too sparse"
+        assert [(p.status, p.who) for p in s.history("S2")] == [("unusable", "ann")]
+
+
+def test_reprocessing_with_new_settings_keeps_picks_and_updates_results(session_path):
+    with Session.open(session_path) as s:
+        process_shots(s, workers=0)
+        s.set_pick("S1", status="adjusted", upper_deg=12.0, lower_deg=-4.0)
+        s.set_pick("S3", status="accepted")
+        assert process_shots(s, workers=0).total == 0  # all up to date
+        settings = fast_settings()
+        settings["piv"]["passes"] = [{"window_px": 48, "overlap": 0.5}]
+        s.set_processing_settings(settings)
+        assert plan_shots(s)[0] == ["S0", "S1", "S2", "S3"]
+        report = process_shots(s, workers=2)
+        assert report.total == 4 and len(report.processed) == 4
+    with Session.open(session_path, writable=False) as s:
+        for shot_id in s.shot_ids():
+            assert s.record(shot_id).summary["vectors"]["window_px"] == 48
+            assert s.load_result(shot_id).field.window_px == 48
+        s1 = s.record("S1").pick
+        assert (s1.status, s1.upper_deg, s1.lower_deg) == ("adjusted", 12.0, -4.0)
+        assert s.record("S3").pick.status == "accepted"
+        assert len(s.history("S1")) == 1
+
+
+def test_failing_shot_is_recorded_and_the_others_go_on(session_path, capsys):
+    with open(session_path.parent / "src" / "S1_a.tif", "ab") as fh:
+        fh.write(b"changed")
+    assert main(["process", str(session_path), "--workers", "2", "--quiet"]) == 1
+    captured = capsys.readouterr()
+    assert "shot S1: frame file" in captured.err and "changed since import" in captured.err
+    assert "processed 3 shot(s), 1 failed" in captured.out
+    with Session.open(session_path, writable=False) as s:
+        failed = s.record("S1")
+        assert failed.state == "failed" and "changed since import" in failed.failure
+        assert [s.record(x).state for x in ("S0", "S2", "S3")] == ["processed"] * 3
+        assert s.needs_processing("S1")
+
+
+def test_stopped_run_keeps_finished_shots_and_the_next_run_resumes(session_path):
+    with Session.open(session_path) as s:
+        seen = []
+        report = process_shots(s, workers=0, on_result=seen.append,
+                               should_stop=lambda: len(seen) >= 2)
+        assert report.interrupted and len(report.processed) == 2 and report.not_run == 2
+        assert [o.done for o in seen] == [1, 2] and all(o.total == 4 for o in seen)
+    with Session.open(session_path) as s:
+        todo, skipped = plan_shots(s)
+        assert sorted(skipped) == sorted(report.processed) and len(todo) == 2
+        outcomes = list(iter_process(s, workers=2))
+        assert sorted(o.shot_id for o in outcomes) == sorted(todo)
+        assert all(o.ok for o in outcomes)
+
+
+def test_chosen_shots_and_force(session_path):
+    with Session.open(session_path) as s:
+        assert process_shots(s, ["S3", "S0"], workers=0).processed == ["S3", "S0"]
+        assert process_shots(s, ["S0"], workers=0).skipped == ["S0"]
+        assert process_shots(s, ["S0"], workers=0, force=True).processed == ["S0"]
+        with pytest.raises(WakelineError, match="shot S7: not in s.h5"):
+            plan_shots(s, ["S7"])
+
+
+def test_process_on_a_dask_cluster(session_path):
+    distributed = pytest.importorskip("distributed")
+    with distributed.LocalCluster(n_workers=1, threads_per_worker=2, processes=False,
+                                  dashboard_address=None) as cluster, Session.open(
+                                      session_path) as s:
+        report = process_shots(s, scheduler=cluster.scheduler_address)
+        assert sorted(report.processed) == ["S0", "S1", "S2", "S3"]
+        assert _median_shift(s.load_result("S3")) == pytest.approx(shift_of(3), abs=0.1)
