@@ -1,0 +1,68 @@
+"""The table of picks: one row per shot, proposed and final angles, empty cells for no value."""
+
+from __future__ import annotations
+
+import csv
+
+import pytest
+from data.session_helpers import fake_result, write_shot_folder
+
+from app.cli import main
+from core.session import Session, import_folder, session_table_rows
+
+REQUIRED = ("shot", "upper_proposed_deg", "lower_proposed_deg", "upper_final_deg",
+            "lower_final_deg", "review_status")
+
+
+@pytest.fixture
+def session_path(tmp_path):
+    """S0 accepted, S1 adjusted on the upper side, S2 unusable, S3 never processed."""
+    import_folder(write_shot_folder(tmp_path / "src", 4), tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        for shot_id, upper, lower in (("S0", 5.0, -3.0), ("S1", 7.5, 1.25), ("S2", None, 2.0)):
+            s.save_result(shot_id, fake_result(s.settings_for(shot_id), upper, lower))
+        s.set_pick("S0", status="accepted", who="ann")
+        s.set_pick("S1", status="adjusted", upper_deg=11.0, note="Schräg – später", who="bö")
+        s.set_pick("S2", status="unusable", reason="ball cut by the frame edge", who="ann")
+    return tmp_path / "s.h5"
+
+
+def _read(path) -> dict[str, dict[str, str]]:
+    with open(path, encoding="utf-8", newline="") as fh:
+        return {row["shot"]: row for row in csv.DictReader(fh)}
+
+
+def test_table_command_writes_one_row_per_shot(session_path, tmp_path, capsys):
+    out = tmp_path / "picks.csv"
+    assert main(["table", str(session_path), "-o", str(out)]) == 0
+    assert "4 shot(s)" in capsys.readouterr().out
+    rows = _read(out)
+    assert list(rows) == ["S0", "S1", "S2", "S3"]
+    assert set(REQUIRED) <= set(next(iter(rows.values())))
+    s0, s1, s2, s3 = (rows[k] for k in ("S0", "S1", "S2", "S3"))
+    assert (s0["upper_final_deg"], s0["lower_final_deg"], s0["review_status"]) == (
+        "5", "-3", "accepted")
+    assert (s1["upper_proposed_deg"], s1["upper_final_deg"]) == ("7.5", "11")
+    assert s1["lower_final_deg"] == "1.25"  # the side left alone keeps its proposal
+    assert s1["review_note"] == "Schräg – später" and s1["reviewed_by"] == "bö"
+    assert (s2["upper_proposed_deg"], s2["upper_final_deg"], s2["lower_final_deg"]) == ("", "", "")
+    assert s2["unusable_reason"] == "ball cut by the frame edge"
+    assert s3["state"] == "unprocessed" and s3["upper_proposed_deg"] == ""
+    assert s3["review_status"] == "to review" and s3["wake_state"] == ""
+    assert s0["upper_uncertainty_deg"] == "1.5" and s0["wake_deflection_deg"] == "4"
+    assert s0["seam_deg"] == "0" and s0["dt_s"] == "2e-05" and s0["notes"] == "shot 0"
+
+
+def test_units_are_in_the_column_names(session_path):
+    with Session.open(session_path, writable=False) as s:
+        header, rows = session_table_rows(s)
+    assert len(rows) == 4 and all(len(r) == len(header) for r in rows)
+    numeric = [h for h in header if h.startswith(("upper_", "lower_", "flight_"))]
+    assert all(h.endswith(("_deg", "_m_s")) for h in numeric)
+
+
+def test_table_can_be_written_while_the_session_is_open_for_writing(session_path, tmp_path):
+    with Session.open(session_path) as writer:
+        writer.set_pick("S3", status="unusable", reason="no seeding")
+        assert main(["table", str(session_path), "-o", str(tmp_path / "t.csv")]) == 0
+    assert _read(tmp_path / "t.csv")["S3"]["review_status"] == "unusable"
