@@ -187,7 +187,7 @@ class SessionOverview(QtWidgets.QWidget):
         self.plot = pg.PlotWidget(background="w")
         self.plot.setMinimumSize(280, 200)
         item = self.plot.getPlotItem()
-        item.showGrid(x=True, y=True, alpha=0.25)
+        item.showGrid(x=True, y=True, alpha=0.15)
         item.setLabel("left", "separation angle (deg, + rearward)")
         item.setMenuEnabled(False)
         for axis in ("left", "bottom"):
@@ -319,7 +319,7 @@ def _legend_label() -> QtWidgets.QLabel:
     )
     label = QtWidgets.QLabel(
         f"&#9650; upper &nbsp; &#9660; lower &nbsp; | &nbsp; {swatches}"
-        " &nbsp; | &nbsp; hollow = proposal not yet reviewed"
+        " &nbsp; | &nbsp; hollow = not yet reviewed"
     )
     label.setTextFormat(QtCore.Qt.TextFormat.RichText)
     label.setWordWrap(True)

@@ -777,7 +777,7 @@ def _paint_field_legend(p, x: float, y: float, limit: float, view: _View, result
                        QtGui.QColor(int(r), int(g), int(b)))
         centre = QtCore.Qt.AlignmentFlag.AlignHCenter
         for value, at in ((-limit, 0.0), (0.0, 0.5), (limit, 1.0)):
-            label = f"{value:+.3g}" if value else "0"
+            label = _signed(value) if value else "0"
             text(p, rect_mm(x + 12.5 + 30 * at - 8, y + 3.6, 16, 4), label, small - 0.4,
                  colour=colours.MUTED_INK, flags=centre)
         text(p, rect_mm(x + 44, y + 0.4, 10, 4), "1/s", small, colour=colours.MUTED_INK)
@@ -799,6 +799,13 @@ def _paint_field_legend(p, x: float, y: float, limit: float, view: _View, result
         unit = "m/s" if result.u_m_s is not None else "px"
         text(p, QtCore.QRectF(left, mm(y + 3.6), mm(30), mm(4)), f"{speed:.3g} {unit}", small,
              colour=colours.MUTED_INK)
+
+
+def _signed(value: float) -> str:
+    """Colour-bar end labels: three significant figures without exponents."""
+    if abs(value) >= 100:
+        return f"{value:+.0f}"
+    return f"{value:+.3g}"
 
 
 def _round_length(value_mm: float) -> float:
@@ -852,7 +859,16 @@ def _final_text(record, side: str) -> str:
     if final is None:
         return {"unusable": "- (unusable)", "to review": "- (not reviewed)"}.get(
             record.pick.status, "-")
-    return f"{format_angle(final)} deg" + ("  ADJUSTED" if record.pick.status == "adjusted" else "")
+    return f"{format_angle(final)} deg" + ("  ADJUSTED" if _moved(record, side) else "")
+
+
+def _moved(record, side: str) -> bool:
+    """True when the analyst set this side's angle away from the proposal."""
+    if record.pick.status != "adjusted":
+        return False
+    mine = getattr(record.pick, f"{side}_deg")
+    proposed = record.proposed_deg(side)
+    return mine is not None and (proposed is None or abs(mine - proposed) > 0.05)
 
 
 def _side_detail(record, sep: dict, side: str) -> str:

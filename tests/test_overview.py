@@ -1,0 +1,120 @@
+"""Session overview: the numbers behind the plot, the panel's drawing and point clicks."""
+
+from __future__ import annotations
+
+import os
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+import numpy as np  # noqa: E402
+import pytest  # noqa: E402
+
+from core.session import Pick, ShotRecord  # noqa: E402
+
+# showing a widget on the offscreen platform logs this harmless notice
+pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
+
+
+def _record(shot_id, seam, status="to review", up=None, low=None, adj_up=None, adj_low=None,
+            speed=None):
+    summary = {
+        "separation": {"upper_deg": up, "lower_deg": low},
+        "flight": {"direction_deg": 180.0, "speed_m_s": speed},
+    }
+    metadata = {"dt_s": 1e-4, "seam_deg": seam, "ball_type": "cricket", "notes": "x"}
+    pick = Pick(status=status, upper_deg=adj_up, lower_deg=adj_low,
+                reason="bad seeding" if status == "unusable" else "")
+    return ShotRecord(shot_id, metadata, state="processed", summary=summary, pick=pick)
+
+
+@pytest.fixture
+def records():
+    return [
+        _record("a1", 0.0, "accepted", up=-9.0, low=-7.5, speed=30.1),
+        _record("a2", 20.0, "adjusted", up=-8.0, low=10.0, adj_low=14.0, speed=29.5),
+        _record("a3", 20.0, "to review", up=-10.0, low=12.0),
+        _record("a4", 40.0, "unusable", up=-9.0, low=2.0),
+        _record("a5", None, "accepted", up=-9.5, low=1.0),
+        _record("a6", 30.0, "to review"),
+    ]
+
+
+def test_points_follow_review_status(records):
+    from app.overview import overview_points
+
+    pts = overview_points(records, "seam_deg")
+    assert pts.shot_ids == ["a1", "a2", "a3"]
+    np.testing.assert_array_equal(pts.x, [0.0, 20.0, 20.0])
+    # adjusted: the analyst's lower value, the proposal on the side left alone
+    np.testing.assert_array_equal(pts.upper_deg, [-9.0, -8.0, -10.0])
+    np.testing.assert_array_equal(pts.lower_deg, [-7.5, 14.0, 12.0])
+    assert pts.status == ["accepted", "adjusted", "to review"]
+    np.testing.assert_array_equal(pts.is_final, [True, True, False])
+    assert pts.left_out == {"unusable": 1, "no seam_deg": 1, "no angle": 1}
+
+
+def test_numeric_columns_prefer_seam_and_add_pseudo_columns(records):
+    from app.overview import MEASURED_SPEED, SHOT_ORDER, column_value, numeric_columns
+
+    columns = numeric_columns(records)
+    assert columns[0] == "seam_deg"
+    assert "dt_s" in columns and "ball_type" not in columns and "notes" not in columns
+    assert columns[-2:] == [MEASURED_SPEED, SHOT_ORDER]
+    assert column_value(records[1], MEASURED_SPEED, 1) == 29.5
+    assert column_value(records[1], SHOT_ORDER, 1) == 2.0
+
+
+def test_panel_draws_and_switches_column(qtbot, records, tmp_path):
+    from app import colours
+    from app.overview import SHOT_ORDER, SessionOverview
+
+    panel = SessionOverview()
+    qtbot.addWidget(panel)
+    panel.resize(520, 380)
+    panel.set_records(records)
+    panel.show()
+    qtbot.waitExposed(panel)
+    assert panel.column() == "seam_deg"
+    assert len(panel.upper_item.points()) == 3 and len(panel.lower_item.points()) == 3
+    # colour by status; hollow (white brush) for the proposal not yet reviewed
+    brushes = {p.data(): p.brush().color().name() for p in panel.upper_item.points()}
+    assert brushes["a1"] == colours.STATUS_COLOURS["accepted"]
+    assert brushes["a2"] == colours.STATUS_COLOURS["adjusted"]
+    assert brushes["a3"] == "#ffffff"
+    assert "1 unusable" in panel.note_label.text()
+
+    image = panel.grab().toImage()
+    image.save(str(tmp_path / "overview.png"))
+    adjusted = colours.STATUS_COLOURS["adjusted"]
+    found = any(image.pixelColor(x, y).name() == adjusted
+                for x in range(0, image.width(), 2) for y in range(0, image.height(), 2))
+    assert found, "the adjusted shot's point is not drawn"
+
+    panel.set_column(SHOT_ORDER)
+    assert panel.points().column == SHOT_ORDER
+    np.testing.assert_array_equal(panel.points().x, [1.0, 2.0, 3.0, 5.0])
+
+
+def test_clicking_a_point_emits_its_shot(qtbot, records):
+    from PySide6.QtCore import QPoint, Qt
+    from PySide6.QtWidgets import QApplication
+
+    from app.overview import SessionOverview
+
+    panel = SessionOverview()
+    qtbot.addWidget(panel)
+    panel.resize(520, 380)
+    panel.set_records(records)
+    panel.show()
+    qtbot.waitExposed(panel)
+    QApplication.processEvents()  # let the layout and the auto-range settle before mapping
+    view = panel.plot
+    for shot_id, side in (("a2", "lower"), ("a3", "upper")):
+        scene_pos = panel.point_scene_pos(shot_id, side)
+        pos = view.mapFromScene(scene_pos)
+        with qtbot.waitSignal(panel.shot_clicked, timeout=2000) as blocker:
+            qtbot.mouseClick(view.viewport(), Qt.MouseButton.LeftButton, pos=QPoint(pos.x(),
+                                                                                    pos.y()))
+        assert blocker.args == [shot_id]
+    panel.set_current("a2")
+    assert len(panel.current_item.points()) == 2

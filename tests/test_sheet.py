@@ -1,0 +1,173 @@
+"""The PDF shot sheet: pages, text against the CSV table, a rendered page, selection, command."""
+
+from __future__ import annotations
+
+import csv
+import math
+import os
+import re
+import shutil
+import subprocess
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+
+import numpy as np  # noqa: E402
+import pytest  # noqa: E402
+
+PICKS = {
+    "s01": {"status": "accepted"},
+    "s02": {"status": "adjusted", "upper_deg": 17.25, "note": "moved to the shear-layer root"},
+    "s03": {"status": "unusable", "reason": "ball cut by the frame edge"},
+    "s05": {"status": "adjusted", "lower_deg": -3.75},
+}
+
+
+@pytest.fixture
+def reviewed_session(make_session):
+    """Five processed shots (analytic results with proposals) and the picks above."""
+    from core.session import Session
+
+    path = make_session(5, name="sheet demo")
+    with Session.open(path) as session:
+        for shot_id, pick in PICKS.items():
+            session.set_pick(shot_id, who="tester", **pick)
+    return path
+
+
+def _pdf_text(path) -> tuple[int, str]:
+    from pypdf import PdfReader
+
+    reader = PdfReader(str(path))
+    text = " ".join(page.extract_text() for page in reader.pages)
+    return len(reader.pages), re.sub(r"\s+", " ", text)  # words come apart as tabs/newlines
+
+
+def _table(session_path, out_csv) -> list[dict]:
+    from core.session import Session, write_table_csv
+
+    with Session.open(session_path, writable=False) as session:
+        write_table_csv(session, out_csv)
+    with open(out_csv, encoding="utf-8", newline="") as fh:
+        return list(csv.DictReader(fh))
+
+
+def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
+    from app.sheet import format_angle, make_sheet
+    from core.session import Session
+
+    out = tmp_path / "sheet.pdf"
+    with Session.open(reviewed_session, writable=False) as session:
+        report = make_sheet(session, out, per_page=2)
+    n_pages, text = _pdf_text(out)
+    assert n_pages == report.pages == 1 + math.ceil(5 / 2)
+    rows = _table(reviewed_session, tmp_path / "table.csv")
+    finals = 0
+    for row in rows:
+        assert f"Shot {row['shot']}" in text
+        for side in ("upper", "lower"):
+            cell = row[f"{side}_final_deg"]
+            if cell:
+                finals += 1
+                assert format_angle(float(cell)) in text, (row["shot"], side, cell)
+    assert finals == 6  # s01 both (accepted), s02 both, s05 both (adjusted one side each)
+    assert "17.2" in text or "17.3" in text  # the analyst's value, not the proposal
+    assert "ADJUSTED" in text and "ball cut by the frame edge" in text
+    assert "moved to the shear-layer root" in text
+    assert "page 1 of 4" in text and "page 4 of 4" in text
+    # cover: counts by status and the summary table's column
+    assert "Final angles by seam_deg" in text
+
+
+def test_sheet_page_renders_with_content(reviewed_session, tmp_path):
+    from app.sheet import make_sheet
+    from core.session import Session
+
+    if shutil.which("pdftoppm") is None:
+        pytest.fail("pdftoppm (poppler-utils) is needed; scripts/setup.sh installs it")
+    out = tmp_path / "sheet.pdf"
+    with Session.open(reviewed_session, writable=False) as session:
+        make_sheet(session, out, per_page=1, shot_ids=["s02"])
+    subprocess.run(["pdftoppm", "-r", "40", "-png", "-f", "2", "-l", "2", str(out),
+                    str(tmp_path / "page")], check=True)
+    from skimage import io
+
+    page = io.imread(next(tmp_path.glob("page*.png")))[..., :3].astype(float)
+    ink = np.any(page < 200, axis=-1).mean()
+    colourful = (page.max(axis=-1) - page.min(axis=-1) > 60).mean()
+    assert ink > 0.05, "the shot page is nearly blank"
+    assert colourful > 0.01, "no vorticity colours on the shot page"
+
+
+def test_sheet_selection_and_layout(reviewed_session, tmp_path):
+    from app.sheet import make_sheet, summary_rows
+    from core import WakelineError
+    from core.session import Session
+
+    with Session.open(reviewed_session, writable=False) as session:
+        report = make_sheet(session, tmp_path / "a.pdf", statuses=("accepted", "adjusted"),
+                            per_page=4)
+        assert report.shot_ids == ["s01", "s02", "s05"]
+        assert report.pages == 1 + 1
+        report = make_sheet(session, tmp_path / "b.pdf", shot_ids=["s04", "s01"], per_page=3)
+        assert report.shot_ids == ["s01", "s04"]
+        _, text = _pdf_text(tmp_path / "b.pdf")
+        assert "Shot s01" in text and "Shot s04" in text and "Shot s02" not in text
+        with pytest.raises(WakelineError, match="no shot 'nope'"):
+            make_sheet(session, tmp_path / "c.pdf", shot_ids=["nope"])
+        with pytest.raises(WakelineError, match="nothing to print"):
+            make_sheet(session, tmp_path / "c.pdf", shot_ids=["s03"], statuses=("accepted",))
+        with pytest.raises(WakelineError, match="not a numeric column"):
+            make_sheet(session, tmp_path / "c.pdf", column="notes")
+        rows = summary_rows(session.records(), "seam_deg")
+    assert not (tmp_path / "c.pdf").exists()
+    # one row per seam angle with a final value: s01 (-10), s02 (0), s05 (45)
+    assert [r.value for r in rows] == [-10.0, 0.0, 45.0]
+    assert all(r.n == 1 and math.isnan(r.upper_sd) for r in rows)
+
+
+def test_summary_statistics():
+    """Mean and sample SD (n-1) per group (derived: closed forms of the listed values)."""
+    from app.sheet import summary_rows
+    from core.session import Pick, ShotRecord
+
+    def rec(shot_id, seam, up, low):
+        summary = {"separation": {"upper_deg": up, "lower_deg": low}}
+        return ShotRecord(shot_id, {"seam_deg": seam}, state="processed", summary=summary,
+                          pick=Pick(status="accepted"))
+
+    records = [rec("a", 10, -9.0, 4.0), rec("b", 10, -7.0, 8.0), rec("c", 10, -8.0, 6.0),
+               rec("d", 20, -9.0, None)]
+    rows = summary_rows(records, "seam_deg")
+    assert [r.value for r in rows] == [10.0, 20.0]
+    assert rows[0].n == 3
+    assert rows[0].upper_mean == pytest.approx(-8.0)
+    assert rows[0].upper_sd == pytest.approx(1.0)  # sqrt(((-1)^2 + 1^2 + 0) / 2)
+    assert rows[0].lower_mean == pytest.approx(6.0)
+    assert rows[0].lower_sd == pytest.approx(2.0)
+    assert rows[1].n == 1 and math.isnan(rows[1].lower_mean)
+
+
+def test_parse_statuses():
+    from app.sheet import parse_statuses
+    from core import WakelineError
+
+    assert parse_statuses("accepted, adjusted") == ("accepted", "adjusted")
+    assert parse_statuses("") is None
+    with pytest.raises(WakelineError, match="unknown review status 'done'"):
+        parse_statuses("accepted,done")
+
+
+def test_sheet_command(reviewed_session, tmp_path, capsys):
+    from app.cli import main
+
+    out = tmp_path / "cli.pdf"
+    assert main(["sheet", reviewed_session, "-o", str(out), "--status", "accepted,adjusted",
+                 "--per-page", "1", "--column", "seam_deg"]) == 0
+    assert out.stat().st_size > 0
+    assert f"{out}: 4 page(s), 3 shot(s)" in capsys.readouterr().out
+    assert main(["sheet", reviewed_session, "-o", str(out), "--status", "finished"]) == 1
+    err = capsys.readouterr().err.strip()
+    assert err.startswith("wakeline: --status: unknown review status") and "\n" not in err
+    with pytest.raises(SystemExit) as exc:
+        main(["sheet", reviewed_session, "-o", str(out), "--per-page", "5"])
+    assert exc.value.code == 2
