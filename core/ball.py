@@ -38,6 +38,11 @@ BALL_CIRCUMFERENCE_MM = {
     "softball": (11.875 * 25.4, 12.125 * 25.4),
 }
 
+#: Nominal diameters (mm): mid-range rulebook circumference / pi.
+NOMINAL_BALL_DIAMETER_MM = {
+    name: 0.5 * (lo + hi) / math.pi for name, (lo, hi) in BALL_CIRCUMFERENCE_MM.items()
+}
+
 #: Extra ring (px) around the fitted circle excluded from correlation: rim glare, reflections
 #: and the sub-pixel fit error.
 DEFAULT_MASK_MARGIN_PX = 3.0
@@ -60,8 +65,7 @@ def nominal_diameter_mm(ball_type: str) -> float:
     if key not in BALL_CIRCUMFERENCE_MM:
         known = ", ".join(sorted(BALL_CIRCUMFERENCE_MM))
         raise WakelineError(f"ball type {ball_type!r}: unknown (known: {known})")
-    lo, hi = BALL_CIRCUMFERENCE_MM[key]
-    return 0.5 * (lo + hi) / math.pi
+    return NOMINAL_BALL_DIAMETER_MM[key]
 
 
 def scale_from_ball(radius_px: float, diameter_mm: float) -> float:
@@ -212,7 +216,7 @@ def _edge_points(
     height, width = smooth.shape
     prof = ndimage.map_coordinates(smooth, [ys, xs], order=1, mode="nearest")
     texture = np.abs(np.roll(prof, -1, axis=0) - prof)
-    texture = ndimage.uniform_filter1d(texture, 7, axis=0, mode="wrap")
+    texture = ndimage.uniform_filter1d(texture, 5, axis=0, mode="wrap")
     edges = _texture_crossings(texture, radii, r, half_width)
     raw = ndimage.map_coordinates(image, [ys, xs], order=1, mode="nearest")
     rim_edges = _rim_crossings(raw, radii, r, half_width)

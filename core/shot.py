@@ -8,11 +8,12 @@ session store keeps, and ``ShotResult.from_stored`` rebuilds it from those two.
 from __future__ import annotations
 
 import json
-from dataclasses import asdict, dataclass, field, fields as dc_fields
+from dataclasses import asdict, dataclass, field
+from dataclasses import fields as dc_fields
 
 import numpy as np
 
-from core.piv import PivSettings
+from core.piv import PivPass, PivSettings
 from core.results import (
     BallFit,
     Flight,
@@ -40,7 +41,7 @@ class ShotSettings:
         return asdict(self)
 
     @classmethod
-    def from_dict(cls, data: dict) -> "ShotSettings":
+    def from_dict(cls, data: dict) -> ShotSettings:
         data = dict(data)
         piv = data.pop("piv", None)
         known = {f.name for f in dc_fields(cls)}
@@ -67,6 +68,7 @@ class ShotResult:
     v_m_s: np.ndarray | None = None  # (M, N) lab frame, y component (image y, downward)
     vorticity_1_s: np.ndarray | None = None  # (M, N), counter-clockwise positive as seen on screen
     warnings: list[str] = field(default_factory=list)
+    valid_near_ball: int | None = None  # valid vectors within two grid spacings of the outline
 
     def summary(self) -> dict:
         """JSON-ready record (the ``wakeline pair --json`` contract)."""
@@ -84,7 +86,7 @@ class ShotResult:
             "separation": _separation_summary(sep),
             "scale_mm_per_px": finite_or_none(self.scale_mm_per_px),
             "dt_s": finite_or_none(self.settings.dt_s),
-            "vectors": _vector_counts(self.field),
+            "vectors": {**_vector_counts(self.field), "valid_near_ball": self.valid_near_ball},
             "settings": self.settings.to_dict(),
             "warnings": list(self.warnings + self.field.warnings),
         }
@@ -98,7 +100,7 @@ class ShotResult:
         return out
 
     @classmethod
-    def from_stored(cls, summary: dict, arrays: dict[str, np.ndarray]) -> "ShotResult":
+    def from_stored(cls, summary: dict, arrays: dict[str, np.ndarray]) -> ShotResult:
         vf = VectorField(
             **{name: np.asarray(arrays[name]) for name in VectorField.ARRAY_NAMES},
             window_px=summary["vectors"]["window_px"],
@@ -118,6 +120,7 @@ class ShotResult:
             v_m_s=arrays.get("v_m_s"),
             vorticity_1_s=arrays.get("vorticity_1_s"),
             warnings=list(summary.get("warnings", [])),
+            valid_near_ball=summary["vectors"].get("valid_near_ball"),
         )
 
 
@@ -189,14 +192,35 @@ def _separation_from(d: dict) -> SeparationResult:
     )
 
 
-def measure_shot(frame_a: np.ndarray, frame_b: np.ndarray, settings: ShotSettings) -> ShotResult:
+#: Final window (px) and overlap of the fine correlation around the ball.
+FINE_PASSES = (
+    PivPass(64, 0.5), PivPass(32, 0.5), PivPass(32, 0.75), PivPass(16, 0.75), PivPass(16, 0.75),
+)
+#: Ball displacement (px) below which its direction is not trusted without an override.
+MIN_FLIGHT_PX = 1.0
+
+
+def measure_shot(
+    frame_a: np.ndarray, frame_b: np.ndarray, settings: ShotSettings, progress=None
+) -> ShotResult:
     """Measure one shot: ball (unless ``settings.find_ball`` is False), PIV, fields, separation.
+
+    Stages: ball circle in each frame -> masks (ball + margin, per frame) -> PIV with the core
+    settings -> a fine correlation (16 px windows, 75 % overlap) on a crop around the ball in the
+    ball frame -> velocity and vorticity -> separation proposal from the fine field.
+
+    Units of the fields on the result: with ``dt_s`` and a scale (given, or derived from the
+    fitted ball and its diameter) ``u_m_s``/``v_m_s`` are lab-frame m/s and ``vorticity_1_s`` is
+    1/s; without ``dt_s`` the velocities are None and the vorticity is per frame pair
+    (displacement px per px), as noted in the warnings.
 
     Parameters
     ----------
     frame_a, frame_b : (H, W) ndarray
         The frame pair, same shape.
     settings : ShotSettings
+    progress : callable, optional
+        Passed to the correlation (``progress(done, total, message)``).
 
     Raises
     ------
@@ -205,6 +229,167 @@ def measure_shot(frame_a: np.ndarray, frame_b: np.ndarray, settings: ShotSetting
     """
     from core.piv import correlate_pair
 
-    # The ball stages (core.ball, core.fields, core.separation) extend this pipeline.
-    vf = correlate_pair(frame_a, frame_b, settings=settings.piv)
-    return ShotResult(field=vf, settings=settings, scale_mm_per_px=settings.scale_mm_per_px)
+    warnings: list[str] = []
+    balls = _find_balls(frame_a, frame_b, settings) if settings.find_ball else None
+    masks = (None, None) if balls is None else _masks(frame_a.shape, balls)
+    vf = correlate_pair(frame_a, frame_b, masks[0], masks[1], settings.piv, progress)
+    result = ShotResult(field=vf, settings=settings, scale_mm_per_px=settings.scale_mm_per_px,
+                        warnings=warnings)
+    if balls is not None:
+        _ball_stages(result, frame_a, frame_b, balls, warnings)
+    _fill_fields(result, warnings)
+    return result
+
+
+def _find_balls(frame_a, frame_b, settings: ShotSettings):
+    from core.ball import find_ball
+
+    diameter = _ball_diameter_mm(settings)
+    hint = None
+    if diameter and settings.scale_mm_per_px:
+        hint = 0.5 * diameter / settings.scale_mm_per_px
+    return (
+        find_ball(frame_a, radius_hint_px=hint, name="frame A"),
+        find_ball(frame_b, radius_hint_px=hint, name="frame B"),
+    )
+
+
+def _ball_diameter_mm(settings: ShotSettings) -> float | None:
+    from core.ball import nominal_diameter_mm
+
+    if settings.ball_diameter_mm:
+        return float(settings.ball_diameter_mm)
+    if settings.ball_type:
+        return nominal_diameter_mm(settings.ball_type)
+    return None
+
+
+def _masks(shape, balls):
+    from core.ball import ball_mask
+
+    return ball_mask(shape, balls[0]), ball_mask(shape, balls[1])
+
+
+def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str]) -> None:
+    """Scale, flight, frame-order check and separation (fills ``result`` in place)."""
+    from core.ball import flight_from_balls, scale_from_ball
+    from core.fields import valid_near_ball
+
+    settings = result.settings
+    ball_a, ball_b = balls
+    result.ball_a, result.ball_b = ball_a, ball_b
+    if ball_a.cut_by_edge or ball_b.cut_by_edge:
+        warnings.append("the image edge cuts the ball: its circle is fitted to the visible outline")
+    if result.scale_mm_per_px is None and _ball_diameter_mm(settings):
+        mean_r = 0.5 * (ball_a.radius_px + ball_b.radius_px)
+        result.scale_mm_per_px = scale_from_ball(mean_r, _ball_diameter_mm(settings))
+    flight = flight_from_balls(
+        ball_a, ball_b, dt_s=settings.dt_s, scale_mm_per_px=result.scale_mm_per_px,
+        flight_deg=settings.flight_deg,
+    )
+    result.flight = flight
+    moved = float(np.hypot(*flight.displacement_px))
+    if moved < MIN_FLIGHT_PX and settings.flight_deg is None:
+        warnings.append(
+            f"the ball moved only {moved:.2f} px between frames: flight direction unreliable; "
+            "give the flight direction (override) for a held ball"
+        )
+    result.valid_near_ball = valid_near_ball(result.field, ball_a, 2.0 * result.field.spacing_px)
+    if _order_reversed(result.field, ball_a, flight):
+        warnings.append(
+            "frames look swapped: the air ahead of the ball moves with it and the air behind "
+            "does not; swap frame A and frame B (no separation proposed)"
+        )
+        reason = "frames look swapped (see warnings)"
+        result.separation = SeparationResult(
+            SideProposal(None, reason=reason), SideProposal(None, reason=reason)
+        )
+        return
+    result.separation = _separation(frame_a, frame_b, balls, flight, settings)
+
+
+def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
+    """True when the air ahead of the ball follows it more than the air behind (wake)."""
+    from core.geometry import flight_unit
+
+    dx, dy = flight.displacement_px
+    moved = float(np.hypot(dx, dy))
+    if moved < MIN_FLIGHT_PX:
+        return False
+    fx, fy = flight_unit(flight.direction_deg)
+    rx, ry = vf.x_px - ball.center_px[0], vf.y_px - ball.center_px[1]
+    along = rx * fx + ry * fy
+    across = np.abs(-rx * fy + ry * fx)
+    r = ball.radius_px
+    follow = (vf.dx_px * dx + vf.dy_px * dy) / moved
+    usable = vf.valid & np.isfinite(follow) & (across < 0.7 * r)
+    ahead = usable & (along > 1.2 * r) & (along < 2.5 * r)
+    behind = usable & (along < -1.2 * r) & (along > -2.5 * r)
+    if ahead.sum() < 3 or behind.sum() < 3:
+        return False
+    return float(np.median(follow[ahead])) > float(np.median(follow[behind])) + 0.2 * moved
+
+
+def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings):
+    """Fine correlation around the ball in the ball frame, vorticity, proposal."""
+    from core.fields import vorticity
+    from core.piv import correlate_pair
+    from core.separation import FieldOnGrid, propose_separation
+
+    crop, a, b, mask, centre, radius = _ball_frame_crop(frame_a, frame_b, balls, flight)
+    fine = PivSettings(
+        passes=FINE_PASSES, median_threshold=settings.piv.median_threshold,
+        median_eps_px=settings.piv.median_eps_px,
+        max_masked_fraction=settings.piv.max_masked_fraction, workers=settings.piv.workers,
+    )
+    if min(a.shape) < 2 * FINE_PASSES[0].window_px:
+        reason = "too little of the image around the ball for the fine correlation"
+        return SeparationResult(SideProposal(None, reason=reason), SideProposal(None, reason=reason))
+    vf = correlate_pair(a, b, mask, mask, fine)
+    usable = vf.valid | vf.replaced
+    omega = vorticity(vf.dx_px, vf.dy_px, vf.spacing_px, usable=usable)
+    grid = FieldOnGrid(omega, vf.x_px[0, 0] + crop[1], vf.y_px[0, 0] + crop[0], vf.spacing_px)
+    return propose_separation(grid, centre, radius, flight.direction_deg)
+
+
+def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):
+    """Crop around the ball with both frames shifted half the ball displacement, so the ball
+    sits still at its mid-exposure position (the ball frame); one mask serves both frames."""
+    from scipy import ndimage
+
+    from core.ball import ball_mask
+
+    ball_a, ball_b = balls
+    cx = 0.5 * (ball_a.center_px[0] + ball_b.center_px[0])
+    cy = 0.5 * (ball_a.center_px[1] + ball_b.center_px[1])
+    r = 0.5 * (ball_a.radius_px + ball_b.radius_px)
+    dx, dy = ball_b.center_px[0] - ball_a.center_px[0], ball_b.center_px[1] - ball_a.center_px[1]
+    height, width = frame_a.shape
+    y0, y1 = max(0, int(cy - 1.9 * r)), min(height, int(cy + 1.9 * r) + 1)
+    x0, x1 = max(0, int(cx - 2.3 * r)), min(width, int(cx + 2.3 * r) + 1)
+    pad = int(np.ceil(abs(dx) / 2 + abs(dy) / 2)) + 4
+    ya, yb = max(0, y0 - pad), min(height, y1 + pad)
+    xa, xb = max(0, x0 - pad), min(width, x1 + pad)
+    a = np.asarray(frame_a[ya:yb, xa:xb], dtype=np.float32)
+    b = np.asarray(frame_b[ya:yb, xa:xb], dtype=np.float32)
+    a = ndimage.shift(a, (dy / 2, dx / 2), order=3, mode="nearest")
+    b = ndimage.shift(b, (-dy / 2, -dx / 2), order=3, mode="nearest")
+    a = a[y0 - ya : y1 - ya, x0 - xa : x1 - xa]
+    b = b[y0 - ya : y1 - ya, x0 - xa : x1 - xa]
+    mask = ball_mask(a.shape, BallFit((cx - x0, cy - y0), r))
+    return (y0, x0), a, b, mask, (cx, cy), r
+
+
+def _fill_fields(result: ShotResult, warnings: list[str]) -> None:
+    """Velocity (m/s, lab frame) and vorticity (1/s, or per frame pair without dt)."""
+    from core.fields import velocity_m_s, vorticity_1_s
+
+    vf = result.field
+    dt, scale = result.settings.dt_s, result.scale_mm_per_px
+    if dt and scale:
+        result.u_m_s, result.v_m_s = velocity_m_s(vf.dx_px, vf.dy_px, dt, scale)
+    else:
+        warnings.append("no dt or scale: velocities not in m/s (displacements in px only)")
+    result.vorticity_1_s = vorticity_1_s(vf, dt, usable=vf.valid | vf.replaced)
+    if not dt:
+        warnings.append("no dt: vorticity is per frame pair (px/px), not 1/s")

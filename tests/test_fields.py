@@ -1,0 +1,79 @@
+"""Derivative stencil, vorticity convention and noise gain, frames of reference."""
+
+import math
+
+import numpy as np
+import pytest
+
+from core.fields import (
+    ball_frame,
+    least_squares_derivative,
+    velocity_m_s,
+    vorticity,
+)
+from core.synth import lamb_oseen, uniform_shear
+
+
+def _grid(n=40, h=4.0):
+    y, x = np.mgrid[0:n, 0:n].astype(float) * h
+    return x, y, h
+
+
+def test_least_squares_stencil_matches_the_closed_form():
+    # (2 f2 + f1 - f-1 - 2 f-2) / (10 h) (REFERENCES.md, derived)
+    f = np.array([[0.0, 1.0, 4.0, 9.0, 16.0]])
+    d = least_squares_derivative(f, 2.0, axis=1)
+    assert d[0, 2] == pytest.approx((2 * 16 + 9 - 1 - 0) / 20.0)
+
+
+def test_uniform_shear_vorticity_counter_clockwise_on_screen():
+    # u = S y (y downward) turns counter-clockwise on screen: omega = +S (derived)
+    x, y, h = _grid()
+    field = uniform_shear(0.05)
+    dx, dy = field(x, y)
+    omega = vorticity(dx, dy, h)
+    assert np.allclose(omega, 0.05)
+
+
+def test_solid_body_rotation_gives_twice_the_rate():
+    # screen-counter-clockwise rotation Omega: omega = 2 Omega (derived)
+    x, y, h = _grid()
+    rate = 0.01
+    cx = cy = x.max() / 2
+    dx, dy = rate * (y - cy), -rate * (x - cx)
+    assert np.allclose(vorticity(dx, dy, h), 2 * rate)
+
+
+def test_lamb_oseen_peak_vorticity():
+    # omega(0) = G / (pi rc^2) (seen: standard references); rc = 8 h keeps the stencil bias small
+    x, y, h = _grid(60, 1.0)
+    vortex = lamb_oseen((30.0, 30.0), 400.0, 8.0)
+    dx, dy = vortex(x, y)
+    omega = vorticity(dx, dy, h)
+    assert omega[30, 30] == pytest.approx(400.0 / (math.pi * 64.0), rel=0.03)
+
+
+def test_noise_gain_is_045_e_over_h():
+    # least-squares stencil on vorticity: 0.45 e/h (REFERENCES.md, derived)
+    rng = np.random.default_rng(1)
+    e, h = 0.1, 4.0
+    dx = rng.normal(0, e, (200, 200))
+    dy = rng.normal(0, e, (200, 200))
+    omega = vorticity(dx, dy, h)[5:-5, 5:-5]
+    assert np.std(omega) == pytest.approx(0.45 * e / h, rel=0.05)
+
+
+def test_holes_use_the_remaining_points():
+    x, y, h = _grid()
+    dx, dy = uniform_shear(0.02)(x, y)
+    dx[10, 10] = np.nan
+    omega = vorticity(dx, dy, h)
+    assert omega[11, 10] == pytest.approx(0.02)
+    assert np.isnan(omega[10, 10])
+
+
+def test_velocity_and_ball_frame():
+    u, v = velocity_m_s(np.array([8.0]), np.array([-2.0]), dt_s=20e-6, scale_mm_per_px=0.1)
+    assert u[0] == pytest.approx(40.0) and v[0] == pytest.approx(-10.0)
+    bx, by = ball_frame(np.array([8.0]), np.array([1.0]), (8.0, 0.0))
+    assert bx[0] == 0.0 and by[0] == 1.0
