@@ -63,7 +63,7 @@ def format_angle(value_deg: float | None) -> str:
 
 # --- Qt application ------------------------------------------------------------------------------
 
-_APP: QtGui.QGuiApplication | None = None
+_APP: QtCore.QCoreApplication | None = None
 
 
 def has_display() -> bool:
@@ -78,13 +78,16 @@ def has_display() -> bool:
 
 def ensure_gui_application() -> QtCore.QCoreApplication:
     """The running Qt application, or a new one on the offscreen platform (painting a PDF needs
-    no screen, and a display that cannot be reached must not stop it)."""
+    no screen, and a display that cannot be reached must not stop it). A widgets application,
+    so that a window opened later in the same process can use it."""
     global _APP
     app = QtCore.QCoreApplication.instance()
     if app is not None:
         return app
+    from PySide6.QtWidgets import QApplication
+
     os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
-    _APP = QtGui.QGuiApplication(["wakeline"])
+    _APP = QApplication(["wakeline"])
     return _APP
 
 
