@@ -21,6 +21,7 @@ centre); a window of ``D`` px starting at pixel ``j`` has its centre at ``j + (D
 from __future__ import annotations
 
 import itertools
+import math
 import os
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
@@ -184,11 +185,20 @@ def _grid_for(shape: tuple[int, int], p: PivPass) -> _Grid:
     )
 
 
-def _windows(image: np.ndarray, grid: _Grid, dtype) -> np.ndarray:
-    """``(K, D, D)`` contiguous copy of the windows of ``image`` on ``grid`` (one copy)."""
+def _window_view(image: np.ndarray, grid: _Grid) -> np.ndarray:
+    """``(M, N, D, D)`` strided view of the windows of ``image`` on ``grid`` (no copy)."""
     view = sliding_window_view(image, (grid.window, grid.window))
-    view = view[: grid.step * grid.rows : grid.step, : grid.step * grid.cols : grid.step]
-    return np.array(view, dtype=dtype, copy=True).reshape(-1, grid.window, grid.window)
+    return view[: grid.step * grid.rows : grid.step, : grid.step * grid.cols : grid.step]
+
+
+def _box_sums(values: np.ndarray, grid: _Grid) -> np.ndarray:
+    """Sum of ``values`` over every window of ``grid``, ``(K,)``, from an integral image."""
+    total = np.zeros((values.shape[0] + 1, values.shape[1] + 1))
+    np.cumsum(np.cumsum(values, axis=0, dtype=np.float64), axis=1, out=total[1:, 1:])
+    r0 = grid.step * np.arange(grid.rows)[:, None]
+    c0 = grid.step * np.arange(grid.cols)[None, :]
+    d = grid.window
+    return (total[r0 + d, c0 + d] - total[r0, c0 + d] - total[r0 + d, c0] + total[r0, c0]).ravel()
 
 
 # --- correlation of one pass ------------------------------------------------------------------
@@ -202,44 +212,54 @@ class _PassResult:
     masked: np.ndarray  # (M, N) bool
 
 
-def _prepared_windows(image, mask, grid, max_masked):
-    """Windows with their mean removed; masked pixels set to the mean (zero after removal).
+def _window_spectra(image, mask, grid: _Grid, workers: int):
+    """Real FFT of every window with its mean removed and masked pixels at the window mean.
 
-    Returns ``(windows (K, D, D) float32, energy (K,), masked fraction (K,))``.
+    The FFT reads the windows straight from the strided view (no window copies). Removing
+    the mean is zeroing the zero-frequency term. With a mask, masked pixels are zeroed first;
+    a window ``w = (a - m) keep`` then has spectrum ``F(a keep) - m F(keep)``, and only the
+    partly masked windows need the second term.
+
+    Returns
+    -------
+    spectra : (K, D, D//2 + 1) complex ndarray
+    fraction : (K,) ndarray
+        Masked fraction of each window.
     """
-    win = _windows(image, grid, np.float32)
+    d = grid.window
+    count = grid.rows * grid.cols
+    source = image if mask is None else np.where(mask, np.float32(0), image)
+    spec = scipy.fft.rfft2(_window_view(source, grid), workers=workers)
+    spec = spec.reshape(count, d, d // 2 + 1)
     if mask is None:
-        win -= win.mean(axis=(1, 2), keepdims=True, dtype=np.float32)
-        fraction = np.zeros(win.shape[0])
-    else:
-        excluded = _windows(mask, grid, bool)
-        keep = ~excluded
-        count = keep.sum(axis=(1, 2))
-        fraction = 1.0 - count / float(grid.window**2)
-        mean = np.where(keep, win, 0).sum(axis=(1, 2), dtype=np.float64) / np.maximum(count, 1)
-        win = np.where(keep, win - mean[:, None, None].astype(np.float32), np.float32(0.0))
-    energy = np.einsum("kij,kij->k", win, win, dtype=np.float64)
-    return win, energy, fraction
+        spec[:, 0, 0] = 0
+        return spec, np.zeros(count)
+    kept = _box_sums(~mask, grid)
+    partial = (kept > 0) & (kept < d * d)
+    spec[~partial, 0, 0] = 0
+    if np.any(partial):
+        mean = _box_sums(source, grid)[partial] / kept[partial]
+        rows, cols = np.divmod(np.flatnonzero(partial), grid.cols)
+        keep_windows = _window_view(~mask, grid)[rows, cols].astype(np.float32)
+        keep_spec = scipy.fft.rfft2(keep_windows, workers=workers)
+        spec[partial] -= mean[:, None, None].astype(np.float32) * keep_spec
+    return spec, 1.0 - kept / float(d * d)
 
 
-def _correlation_planes(win_a: np.ndarray, win_b: np.ndarray, workers: int) -> np.ndarray:
-    """Circular cross-correlation ``c[s] = sum_x a[x] b[x + s]`` of every window pair, batched."""
-    size = win_a.shape[-2:]
-    spec = scipy.fft.rfft2(win_a, workers=workers, overwrite_x=True)
-    spec_b = scipy.fft.rfft2(win_b, workers=workers, overwrite_x=True)
+def _correlate(frame_a, frame_b, mask_a, mask_b, grid: _Grid, settings, frames) -> _PassResult:
+    """Circular cross-correlation ``c[s] = sum_x a[x] b[x + s]`` of every window pair, batched,
+    and its peaks."""
+    workers = frames.workers
+    spec, frac_a = _window_spectra(frame_a, mask_a, grid, workers)
+    spec_b, frac_b = _window_spectra(frame_b, mask_b, grid, workers)
     np.conjugate(spec, out=spec)
     spec *= spec_b
     del spec_b
-    return scipy.fft.irfft2(spec, s=size, workers=workers, overwrite_x=True)
-
-
-def _correlate(frame_a, frame_b, mask_a, mask_b, grid: _Grid, settings, workers) -> _PassResult:
-    win_a, energy_a, frac_a = _prepared_windows(frame_a, mask_a, grid, settings.max_masked_fraction)
-    win_b, energy_b, frac_b = _prepared_windows(frame_b, mask_b, grid, settings.max_masked_fraction)
-    planes = _correlation_planes(win_a, win_b, workers)
-    del win_a, win_b
-    norm = np.sqrt(energy_a * energy_b)
-    dx, dy, ratio = _peaks(planes, norm > 0)
+    planes = scipy.fft.irfft2(spec, s=(grid.window, grid.window), workers=workers, overwrite_x=True)
+    del spec
+    # a flat window (no texture) gives a plane of round-off only
+    floor = 1e-4 * grid.window**2 * frames.power
+    dx, dy, ratio = _peaks(planes, floor)
     masked = np.maximum(frac_a, frac_b) > settings.max_masked_fraction
     shape = (grid.rows, grid.cols)
     return _PassResult(
@@ -247,8 +267,9 @@ def _correlate(frame_a, frame_b, mask_a, mask_b, grid: _Grid, settings, workers)
     )
 
 
-def _peaks(planes: np.ndarray, usable: np.ndarray):
-    """Sub-pixel peak of every plane: ``(dx (K,), dy (K,), primary/secondary peak ratio (K,))``."""
+def _peaks(planes: np.ndarray, floor: float):
+    """Sub-pixel peak of every plane: ``(dx (K,), dy (K,), primary/secondary peak ratio (K,))``;
+    NaN where the primary peak does not exceed ``floor``."""
     k, size, _ = planes.shape
     flat = planes.reshape(k, size * size)
     index = np.argmax(flat, axis=1)
@@ -262,7 +283,7 @@ def _peaks(planes: np.ndarray, usable: np.ndarray):
     dy = shift_y + _unbiased_offset(up, primary, down, shift_y, size)
     dx = shift_x + _unbiased_offset(left, primary, right, shift_x, size)
     ratio = _peak_ratio(planes, row, col, primary)
-    bad = ~usable
+    bad = ~(primary > floor)
     dx[bad] = np.nan
     dy[bad] = np.nan
     ratio[bad] = np.nan
@@ -350,21 +371,37 @@ def _smooth(values: np.ndarray) -> np.ndarray:
 
 @dataclass
 class _Frames:
-    """The pair, its spline coefficients (computed once) and masks."""
+    """The pair, its spline coefficients (computed once), masks and the worker threads."""
 
     a: np.ndarray
     b: np.ndarray
     mask_a: np.ndarray | None
     mask_b: np.ndarray | None
     workers: int
+    power: float  # geometric mean of the frames' mean squares, counts^2
     coeff: list = field(default_factory=list)
+    pool: ThreadPoolExecutor | None = None
+
+    def run(self, fn, items) -> list:
+        """``[fn(item) for item in items]`` on the worker threads (the heavy numpy and
+        ndimage calls used here release the interpreter lock)."""
+        if self.workers <= 1:
+            return [fn(item) for item in items]
+        if self.pool is None:
+            self.pool = ThreadPoolExecutor(self.workers)
+        return list(self.pool.map(fn, items))
+
+    def close(self) -> None:
+        if self.pool is not None:
+            self.pool.shutdown()
+            self.pool = None
 
     def coefficients(self):
         if not self.coeff:
-            self.coeff = [
-                ndimage.spline_filter(f, order=3, output=np.float32, mode="mirror")
-                for f in (self.a, self.b)
-            ]
+            self.coeff = self.run(
+                lambda f: ndimage.spline_filter(f, order=3, output=np.float32, mode="mirror"),
+                (self.a, self.b),
+            )
         return self.coeff
 
     def deformed(self, predictor: _Predictor):
@@ -373,8 +410,14 @@ class _Frames:
         half_x *= 0.5
         half_y *= 0.5
         ca, cb = self.coefficients()
-        out_a = _warp(ca, half_x, half_y, -1.0, self.workers)
-        out_b = _warp(cb, half_x, half_y, +1.0, self.workers)
+        out_a = np.empty(self.a.shape, np.float32)
+        out_b = np.empty(self.a.shape, np.float32)
+        jobs = [
+            (coeff, out, sign, rows)
+            for rows in _row_chunks(self.a.shape[0], 2 * self.workers)
+            for coeff, out, sign in ((ca, out_a, -1.0), (cb, out_b, 1.0))
+        ]
+        self.run(lambda job: _warp_rows(*job, half_x, half_y), jobs)
         return (
             out_a,
             out_b,
@@ -383,28 +426,20 @@ class _Frames:
         )
 
 
-def _warp(coeff, half_x, half_y, sign, workers) -> np.ndarray:
-    """Sample the cubic spline with coefficients ``coeff`` at ``(y + sign*hy, x + sign*hx)``,
-    split by rows over threads (the interpolation releases the interpreter lock)."""
-    height, width = coeff.shape
-    out = np.empty((height, width), np.float32)
-    cols = np.arange(width, dtype=np.float32)
-
-    def run(rows: slice) -> None:
-        r = np.arange(rows.start, rows.stop, dtype=np.float32)[:, None]
-        coords = np.stack([r + sign * half_y[rows], cols + sign * half_x[rows]])
-        ndimage.map_coordinates(
-            coeff, coords, output=out[rows], order=3, mode="mirror", prefilter=False
-        )
-
-    chunks = _row_chunks(height, max(1, workers) * 2)
-    if workers <= 1 or len(chunks) == 1:
-        for rows in chunks:
-            run(rows)
-    else:
-        with ThreadPoolExecutor(workers) as pool:
-            list(pool.map(run, chunks))
-    return out
+def _warp_rows(coeff, out, sign, rows: slice, half_x, half_y) -> None:
+    """Rows ``rows`` of the cubic spline with coefficients ``coeff`` sampled at
+    ``(y + sign*hy, x + sign*hx)``, written into ``out``."""
+    width = coeff.shape[1]
+    coords = np.empty((2, rows.stop - rows.start, width))
+    np.add(
+        np.arange(rows.start, rows.stop, dtype=np.float64)[:, None],
+        sign * half_y[rows],
+        out=coords[0],
+    )
+    np.add(np.arange(width, dtype=np.float64), sign * half_x[rows], out=coords[1])
+    ndimage.map_coordinates(
+        coeff, coords, output=out[rows], order=3, mode="mirror", prefilter=False
+    )
 
 
 def _row_chunks(height: int, count: int) -> list[slice]:
@@ -466,6 +501,13 @@ def correlate_pair(
     """
     settings = settings or PivSettings()
     frames = _checked_frames(frame_a, frame_b, mask_a, mask_b, settings)
+    try:
+        return _all_passes(frames, settings, progress)
+    finally:
+        frames.close()
+
+
+def _all_passes(frames: _Frames, settings: PivSettings, progress) -> VectorField:
     total = len(settings.passes)
     _report(progress, 0, total, "correlating")
     warnings: list[str] = []
@@ -490,13 +532,11 @@ def correlate_pair(
 def _run_pass(frames: _Frames, grid: _Grid, predictor: _Predictor | None, settings):
     """Correlate one pass; returns total displacement, peak ratio and masked cells."""
     if predictor is None:
-        res = _correlate(
-            frames.a, frames.b, frames.mask_a, frames.mask_b, grid, settings, frames.workers
-        )
+        res = _correlate(frames.a, frames.b, frames.mask_a, frames.mask_b, grid, settings, frames)
         px = py = 0.0
     else:
         a, b, ma, mb = frames.deformed(predictor)
-        res = _correlate(a, b, ma, mb, grid, settings, frames.workers)
+        res = _correlate(a, b, ma, mb, grid, settings, frames)
         px, py = predictor.at(grid)
     masked = res.masked | _centre_masked(frames, grid)
     dx = np.where(masked, np.nan, px + res.dx)
@@ -582,7 +622,11 @@ def _checked_frames(frame_a, frame_b, mask_a, mask_b, settings: PivSettings) -> 
         raise WakelineError("frame pair: frames contain NaN or infinite values")
     masks = [_checked_mask(m, a.shape, name) for m, name in ((mask_a, "A"), (mask_b, "B"))]
     workers = settings.workers or os.cpu_count() or 1
-    return _Frames(a, b, masks[0], masks[1], workers)
+    power = math.sqrt(
+        float(np.mean(a, dtype=np.float64) ** 2 + np.var(a, dtype=np.float64))
+        * float(np.mean(b, dtype=np.float64) ** 2 + np.var(b, dtype=np.float64))
+    )
+    return _Frames(a, b, masks[0], masks[1], workers, power)
 
 
 def _checked_mask(mask, shape, name) -> np.ndarray | None:
