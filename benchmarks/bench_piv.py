@@ -24,8 +24,8 @@ import scipy.fft
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from core import synth  # noqa: E402
-from core.piv import PivSettings, correlate_pair  # noqa: E402
+from core import synth
+from core.piv import PivSettings, correlate_pair
 
 
 def bare_fft_seconds(shape, settings: PivSettings, workers: int, repeats: int) -> float:
