@@ -1,0 +1,47 @@
+"""Loading wakeline's own SVG icons (icons/ at the top of the project) as QIcons, cached."""
+
+from __future__ import annotations
+
+from functools import cache
+from pathlib import Path
+
+from PySide6.QtGui import QIcon
+
+ICON_DIR = Path(__file__).resolve().parent.parent / "icons"
+
+STATUS_ICONS = {
+    "to review": "status_to_review",
+    "accepted": "status_accepted",
+    "adjusted": "status_adjusted",
+    "unusable": "status_unusable",
+}
+STATE_ICONS = {"failed": "state_failed", "unprocessed": "state_unprocessed"}
+
+
+def icon_path(name: str) -> Path:
+    """Path of ``icons/<name>.svg``; raises FileNotFoundError when the icon is missing."""
+    path = ICON_DIR / f"{name}.svg"
+    if not path.is_file():
+        raise FileNotFoundError(f"{path}: icon file missing")
+    return path
+
+
+@cache
+def icon(name: str) -> QIcon:
+    """The icon ``icons/<name>.svg`` (needs a QGuiApplication)."""
+    return QIcon(str(icon_path(name)))
+
+
+def status_icon(status: str) -> QIcon:
+    """Icon of a review status (one of core.session.REVIEW_STATUSES)."""
+    return icon(STATUS_ICONS[status])
+
+
+def state_icon(state: str) -> QIcon | None:
+    """Icon marking a failed or unprocessed shot; None for a processed one."""
+    name = STATE_ICONS.get(state)
+    return None if name is None else icon(name)
+
+
+def app_icon() -> QIcon:
+    return icon("wakeline")

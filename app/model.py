@@ -1,0 +1,188 @@
+"""Observable state of the review window: the open session, the current shot, the analyst's picks.
+
+``SessionModel`` wraps a ``core.session.Session`` (which knows nothing of Qt) and emits a signal
+only when something really changes. Every pick edit goes straight to the store's journal
+(``Session.set_pick`` returns after the edit is on disk), so the window never holds unsaved work.
+All session file access happens on the GUI thread; background workers only compute.
+"""
+
+from __future__ import annotations
+
+from collections import OrderedDict
+from dataclasses import dataclass
+
+import numpy as np
+from PySide6.QtCore import QObject, Signal
+
+from core.session import Pick, Session, ShotRecord
+
+PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
+
+
+def pick_values(pick: Pick) -> dict:
+    """The editable fields of a pick as a plain dict (what undo commands store)."""
+    return {name: getattr(pick, name) for name in PICK_FIELDS}
+
+
+@dataclass
+class _Lru:
+    """A tiny least-recently-used cache keyed by shot id."""
+
+    size: int
+
+    def __post_init__(self) -> None:
+        self._items: OrderedDict = OrderedDict()
+
+    def get(self, key):
+        if key not in self._items:
+            return None
+        self._items.move_to_end(key)
+        return self._items[key]
+
+    def put(self, key, value) -> None:
+        self._items[key] = value
+        self._items.move_to_end(key)
+        while len(self._items) > self.size:
+            self._items.popitem(last=False)
+
+    def drop(self, key) -> None:
+        self._items.pop(key, None)
+
+    def clear(self) -> None:
+        self._items.clear()
+
+
+class SessionModel(QObject):
+    """The open session and the current shot, with change signals for the views."""
+
+    session_changed = Signal()  # a session was opened or closed
+    current_changed = Signal(str)  # the current shot id ("" for none)
+    record_changed = Signal(str)  # one shot's pick, result or processing state changed
+
+    def __init__(self, parent: QObject | None = None, cache_size: int = 6) -> None:
+        super().__init__(parent)
+        self._session: Session | None = None
+        self._records: dict[str, ShotRecord] = {}
+        self._order: list[str] = []
+        self._current = ""
+        self._results = _Lru(cache_size)
+        self._frames = _Lru(cache_size)
+
+    # -- session -----------------------------------------------------------------------------
+    @property
+    def session(self) -> Session | None:
+        return self._session
+
+    def open(self, path, writable: bool = True) -> None:
+        """Open the session file at ``path`` (closing any open one first).
+
+        Raises
+        ------
+        core.WakelineError
+            When the file cannot be opened (``SessionLocked`` when another process holds it).
+        """
+        session = Session.open(path, writable=writable)
+        self.adopt(session)
+
+    def adopt(self, session: Session) -> None:
+        """Make an already open ``Session`` the model's session."""
+        self._drop_session()
+        self._session = session
+        self._order = list(session.shot_ids())
+        self._records = {rec.shot_id: rec for rec in session.records()}
+        self._current = ""
+        self.session_changed.emit()
+        self.current_changed.emit("")
+
+    def close(self) -> None:
+        had = self._session is not None
+        self._drop_session()
+        if had:
+            self.session_changed.emit()
+            self.current_changed.emit("")
+
+    def _drop_session(self) -> None:
+        if self._session is not None:
+            self._session.close()
+        self._session = None
+        self._records.clear()
+        self._order = []
+        self._current = ""
+        self._results.clear()
+        self._frames.clear()
+
+    @property
+    def read_only(self) -> bool:
+        return self._session is None or bool(self._session.read_only)
+
+    # -- records -----------------------------------------------------------------------------
+    def shot_ids(self) -> list[str]:
+        return list(self._order)
+
+    def record(self, shot_id: str) -> ShotRecord:
+        return self._records[shot_id]
+
+    def records(self) -> list[ShotRecord]:
+        return [self._records[sid] for sid in self._order]
+
+    def refresh(self, shot_id: str) -> None:
+        """Re-read one shot's record from the store and tell the views."""
+        self._records[shot_id] = self._session.record(shot_id)
+        self._results.drop(shot_id)
+        self.record_changed.emit(shot_id)
+
+    # -- current shot ------------------------------------------------------------------------
+    @property
+    def current_id(self) -> str:
+        return self._current
+
+    def set_current(self, shot_id: str) -> None:
+        if shot_id and shot_id not in self._records:
+            raise KeyError(shot_id)
+        if shot_id != self._current:
+            self._current = shot_id
+            self.current_changed.emit(shot_id)
+
+    # -- data of one shot --------------------------------------------------------------------
+    def result(self, shot_id: str):
+        """The shot's stored ``ShotResult`` (None when unprocessed or failed), cached."""
+        cached = self._results.get(shot_id)
+        if cached is None and self._records[shot_id].state == "processed":
+            cached = self._session.load_result(shot_id)
+            if cached is not None:
+                self._results.put(shot_id, cached)
+        return cached
+
+    def frames(self, shot_id: str) -> tuple[np.ndarray, np.ndarray]:
+        """The shot's frame pair, cached. Raises core.WakelineError when frames are missing."""
+        cached = self._frames.get(shot_id)
+        if cached is None:
+            cached = self._session.load_frames(shot_id)
+            self._frames.put(shot_id, cached)
+        return cached
+
+    # -- edits -------------------------------------------------------------------------------
+    def apply_pick(self, shot_id: str, **changes) -> Pick:
+        """Write a pick edit through the store's journal, then tell the views if it changed.
+
+        ``changes`` takes the keywords of ``Session.set_pick`` (status, upper_deg, lower_deg,
+        reason, note); the edit is on disk when this returns.
+        """
+        before = pick_values(self._records[shot_id].pick)
+        pick = self._session.set_pick(shot_id, **changes)
+        self._records[shot_id] = self._session.record(shot_id)
+        if pick_values(pick) != before:
+            self.record_changed.emit(shot_id)
+        return pick
+
+    def store_result(self, shot_id: str, result) -> None:
+        """Save a fresh processing result (the proposal only; the pick stays)."""
+        self._session.save_result(shot_id, result)
+        self.refresh(shot_id)
+
+    def store_failure(self, shot_id: str, reason: str) -> None:
+        self._session.save_failure(shot_id, reason)
+        self.refresh(shot_id)
+
+    def unprocessed_ids(self) -> list[str]:
+        return [sid for sid in self._order if self._records[sid].state == "unprocessed"]
