@@ -200,7 +200,10 @@ def fit_separation(ridge: Ridge, radius_px: float, near_wall_px: float) -> SideP
         if ridge.xi_px.size == 0:
             reason = "no shear layer next to the ball (attached flow, or too few valid vectors)"
         else:
-            reason = f"shear layer seen at only {ridge.xi_px.size} points: too short to follow"
+            reason = (
+                f"no separated shear layer long enough to follow (attached flow?): only "
+                f"{ridge.xi_px.size} ridge points"
+            )
         return SideProposal(None, None, 0.0, reason)
     gap = np.hypot(ridge.xi_px, ridge.zeta_px) - radius_px
     order = np.argsort(ridge.xi_px)

@@ -272,7 +272,7 @@ def _masks(shape, balls):
 
 def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str]) -> None:
     """Scale, flight, frame-order check and separation (fills ``result`` in place)."""
-    from core.ball import flight_from_balls, scale_from_ball
+    from core.ball import flight_from_balls, refine_displacement, scale_from_ball
     from core.fields import valid_near_ball
 
     settings = result.settings
@@ -283,8 +283,9 @@ def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str
     if result.scale_mm_per_px is None and _ball_diameter_mm(settings):
         mean_r = 0.5 * (ball_a.radius_px + ball_b.radius_px)
         result.scale_mm_per_px = scale_from_ball(mean_r, _ball_diameter_mm(settings))
+    shift = refine_displacement(frame_a, frame_b, ball_a, ball_b)
     flight = flight_from_balls(
-        ball_a, ball_b, dt_s=settings.dt_s, scale_mm_per_px=result.scale_mm_per_px,
+        ball_a, ball_b, displacement_px=shift, dt_s=settings.dt_s, scale_mm_per_px=result.scale_mm_per_px,
         flight_deg=settings.flight_deg,
     )
     result.flight = flight

@@ -11,6 +11,7 @@ from core.ball import (
     find_ball,
     flight_from_balls,
     nominal_diameter_mm,
+    refine_displacement,
     scale_from_ball,
 )
 from core.results import BallFit
@@ -32,7 +33,11 @@ def test_centre_and_radius_within_half_a_pixel(flight_deg, radius_px, seed):
 def test_flight_direction_and_speed_from_the_two_fits():
     frame_a, frame_b, truth = ball_shot(flight_deg=184.0, shift_px=9.0, seed=4)
     ball_a, ball_b = find_ball(frame_a), find_ball(frame_b)
-    flight = flight_from_balls(ball_a, ball_b, dt_s=truth.dt_s, scale_mm_per_px=truth.scale_mm_per_px)
+    shift = refine_displacement(frame_a, frame_b, ball_a, ball_b)
+    flight = flight_from_balls(
+        ball_a, ball_b, displacement_px=shift, dt_s=truth.dt_s,
+        scale_mm_per_px=truth.scale_mm_per_px,
+    )
     assert abs((flight.direction_deg - truth.flight_deg + 180) % 360 - 180) < 0.5
     assert flight.speed_m_s == pytest.approx(truth.speed_m_s, rel=0.01)
 

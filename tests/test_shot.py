@@ -1,0 +1,114 @@
+"""The shot pipeline on synthetic shots: ball, flight, masks, fields, summary contract."""
+
+import json
+import math
+
+import numpy as np
+import pytest
+
+from core import WakelineError
+from core.shot import ShotResult, ShotSettings, measure_shot
+from core.synth_shot import attached_shot, ball_shot
+
+
+@pytest.fixture(scope="module")
+def shot():
+    frame_a, frame_b, truth = ball_shot(flight_deg=183.0, seed=11)
+    settings = ShotSettings(dt_s=truth.dt_s, ball_diameter_mm=truth.ball_diameter_mm)
+    return measure_shot(frame_a, frame_b, settings), truth
+
+
+def test_summary_has_the_json_contract(shot):
+    result, _ = shot
+    summary = json.loads(json.dumps(result.summary()))
+    assert len(summary["ball"]["center_px"]) == 2
+    assert summary["ball"]["radius_px"] > 0
+    for key in ("direction_deg", "speed_m_s"):
+        assert summary["flight"][key] is not None
+    sep = summary["separation"]
+    for key in ("upper_deg", "lower_deg", "upper_uncertainty_deg", "lower_uncertainty_deg",
+                "wake_deflection_deg", "wake_state"):
+        assert key in sep
+    assert "quality" in sep["upper"] and "reason" in sep["lower"]
+    assert summary["vectors"]["valid_near_ball"] is not None
+
+
+def test_ball_flight_and_derived_scale(shot):
+    result, truth = shot
+    cx, cy = result.ball_a.center_px
+    assert math.hypot(cx - truth.center_a_px[0], cy - truth.center_a_px[1]) < 0.5
+    assert abs(result.ball_a.radius_px - truth.radius_px) < 0.5
+    assert abs(result.flight.direction_deg - truth.flight_deg) < 0.5
+    # scale derived from the fitted radius and the ball diameter, so speed within ~1 %
+    assert result.scale_mm_per_px == pytest.approx(truth.scale_mm_per_px, rel=0.01)
+    assert result.flight.speed_m_s == pytest.approx(truth.speed_m_s, rel=0.015)
+
+
+def test_fields_in_si_units_and_no_ball_pixels_used(shot):
+    result, truth = shot
+    assert result.u_m_s.shape == result.field.dx_px.shape
+    assert result.vorticity_1_s.shape == result.field.dx_px.shape
+    r = np.hypot(result.field.x_px - result.ball_a.center_px[0],
+                 result.field.y_px - result.ball_a.center_px[1])
+    assert result.field.masked[r < truth.radius_px - 2].all()
+    # far ahead of the ball the air is at rest in the lab frame
+    far = (r > 2.5 * truth.radius_px) & result.field.valid
+    assert np.median(np.hypot(result.u_m_s[far], result.v_m_s[far])) < 0.1 * truth.speed_m_s
+
+
+def test_round_trip_through_the_stored_form(shot):
+    result, _ = shot
+    again = ShotResult.from_stored(result.summary(), result.arrays())
+    assert again.summary()["separation"] == result.summary()["separation"]
+    assert again.valid_near_ball == result.valid_near_ball
+
+
+def test_without_ball_search_no_separation():
+    frame_a, frame_b, _ = ball_shot(shape=(256, 384), radius_px=40.0, seed=12)
+    result = measure_shot(frame_a, frame_b, ShotSettings(find_ball=False))
+    summary = result.summary()
+    assert summary["ball"] is None and summary["separation"]["upper_deg"] is None
+    assert result.u_m_s is None and any("no dt" in w for w in result.warnings)
+
+
+def test_no_ball_is_a_one_line_error():
+    rng = np.random.default_rng(3)
+    frame = rng.poisson(150.0, (256, 256)).astype(np.float32)
+    with pytest.raises(WakelineError, match="frame A: no ball found"):
+        measure_shot(frame, frame, ShotSettings())
+
+
+def test_swapped_frames_warn_and_propose_nothing():
+    frame_a, frame_b, truth = ball_shot(seed=13)
+    result = measure_shot(frame_b, frame_a, ShotSettings(dt_s=truth.dt_s))
+    assert any("swap" in w for w in result.warnings)
+    assert result.separation.upper.angle_deg is None
+    assert "swapped" in result.separation.upper.reason
+
+
+def test_ball_cut_by_the_edge_gives_a_result():
+    frame_a, frame_b, truth = ball_shot(
+        shape=(256, 384), radius_px=60.0, center_px=(25.0, 128.0), flight_deg=180.0, seed=14
+    )
+    result = measure_shot(frame_a, frame_b, ShotSettings(dt_s=truth.dt_s))
+    assert result.ball_a.cut_by_edge
+    assert any("edge cuts the ball" in w for w in result.warnings)
+    assert result.separation is not None
+
+
+def test_attached_flow_proposes_no_separation():
+    # potential flow past a sphere has no wake and no vorticity (Batchelor 1967, memory)
+    frame_a, frame_b, truth = attached_shot(seed=15)
+    result = measure_shot(frame_a, frame_b, ShotSettings(dt_s=truth.dt_s))
+    for side in (result.separation.upper, result.separation.lower):
+        assert side.angle_deg is None
+        assert "attached" in side.reason
+    assert result.separation.wake_state == "undetermined"
+
+
+def test_held_ball_warns_without_override():
+    frame_a, frame_b, _ = ball_shot(shape=(256, 384), radius_px=40.0, shift_px=0.3, seed=16)
+    result = measure_shot(frame_a, frame_b, ShotSettings())
+    assert any("override" in w for w in result.warnings)
+    held = measure_shot(frame_a, frame_b, ShotSettings(flight_deg=180.0))
+    assert held.flight.source == "override" and held.flight.direction_deg == 180.0
