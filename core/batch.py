@@ -89,7 +89,8 @@ def iter_process(
         Shots to consider (default all); those already processed with the same settings are
         left out unless ``force``.
     workers : int, optional
-        Worker processes (default: all cores); 0 measures in this process, one shot at a time.
+        Worker processes, each measuring one shot at a time single-threaded (default: all
+        cores); 0 measures in this process with the PIV settings' own thread count.
     scheduler : str or distributed.Client, optional
         ``tcp://host:port`` of a dask scheduler (or a client): measure on that cluster instead.
         Its workers must see the frame files and the session file at the same paths.
@@ -229,9 +230,9 @@ def _run_pool(tasks: list[dict], stop, count: int) -> Iterator[tuple]:
     if not tasks:
         return
     count = min(count, len(tasks))
-    threads = 1 if count > 1 else None
+    # One worker process is one core's worth of work: the PIV inside it runs single-threaded.
     pool = ProcessPoolExecutor(count, mp_context=_pool_context(), initializer=_ignore_sigint)
-    futures = {pool.submit(measure_task, task, threads): task["shot_id"] for task in tasks}
+    futures = {pool.submit(measure_task, task, 1): task["shot_id"] for task in tasks}
     pending = set(futures)
     try:
         while pending and not stop():
