@@ -191,14 +191,27 @@ def _window_view(image: np.ndarray, grid: _Grid) -> np.ndarray:
     return view[: grid.step * grid.rows : grid.step, : grid.step * grid.cols : grid.step]
 
 
-def _box_sums(values: np.ndarray, grid: _Grid) -> np.ndarray:
-    """Sum of ``values`` over every window of ``grid``, ``(K,)``, from an integral image."""
-    total = np.zeros((values.shape[0] + 1, values.shape[1] + 1))
-    np.cumsum(np.cumsum(values, axis=0, dtype=np.float64), axis=1, out=total[1:, 1:])
-    r0 = grid.step * np.arange(grid.rows)[:, None]
-    c0 = grid.step * np.arange(grid.cols)[None, :]
-    d = grid.window
-    return (total[r0 + d, c0 + d] - total[r0, c0 + d] - total[r0 + d, c0] + total[r0, c0]).ravel()
+def _masked_counts(mask: np.ndarray, grid: _Grid) -> np.ndarray:
+    """Number of masked pixels in every window of ``grid``, ``(K,)``.
+
+    The image is cut into blocks of one grid step; when the window is a whole number of
+    steps (any 0, 50 or 75 % overlap of a power-of-two window) a window sum is a sum of
+    blocks, otherwise it comes from an integral image.
+    """
+    d, step = grid.window, grid.step
+    if d % step == 0:
+        k = d // step
+        nr, nc = grid.rows + k - 1, grid.cols + k - 1
+        cells = mask[: nr * step, : nc * step].reshape(nr, step, nc, step).sum(axis=(1, 3))
+        starts_r, starts_c, size = np.arange(grid.rows), np.arange(grid.cols), k
+    else:
+        cells = mask
+        starts_r, starts_c, size = step * np.arange(grid.rows), step * np.arange(grid.cols), d
+    total = np.zeros((cells.shape[0] + 1, cells.shape[1] + 1), np.int64)
+    np.cumsum(np.cumsum(cells, axis=0, dtype=np.int64), axis=1, out=total[1:, 1:])
+    r0, c0 = starts_r[:, None], starts_c[None, :]
+    box = total[r0 + size, c0 + size] - total[r0, c0 + size] - total[r0 + size, c0] + total[r0, c0]
+    return box.ravel()
 
 
 # --- correlation of one pass ------------------------------------------------------------------
@@ -234,12 +247,13 @@ def _window_spectra(image, mask, grid: _Grid, workers: int):
     if mask is None:
         spec[:, 0, 0] = 0
         return spec, np.zeros(count)
-    kept = _box_sums(~mask, grid)
+    kept = d * d - _masked_counts(mask, grid)
     partial = (kept > 0) & (kept < d * d)
     spec[~partial, 0, 0] = 0
     if np.any(partial):
-        mean = _box_sums(source, grid)[partial] / kept[partial]
         rows, cols = np.divmod(np.flatnonzero(partial), grid.cols)
+        windows = _window_view(source, grid)[rows, cols]
+        mean = windows.sum(axis=(1, 2), dtype=np.float64) / kept[partial]
         keep_windows = _window_view(~mask, grid)[rows, cols].astype(np.float32)
         keep_spec = scipy.fft.rfft2(keep_windows, workers=workers)
         spec[partial] -= mean[:, None, None].astype(np.float32) * keep_spec
@@ -359,7 +373,7 @@ def _make_predictor(grid: _Grid, dx, dy, outliers, masked) -> _Predictor:
     smoothed lightly to steady the iteration (Scarano 2002). Smoothing the whole field did
     better on a resolved vortex than smoothing only the correction to the previous predictor."""
     fx, fy = replace_outliers(dx, dy, outliers | ~np.isfinite(dx), masked)
-    fx, fy = replace_outliers(fx, fy, ~np.isfinite(fx), None)
+    fx, fy = replace_outliers(fx, fy, ~np.isfinite(fx), None, relax=False)
     return _Predictor(grid, _smooth(np.nan_to_num(fx)), _smooth(np.nan_to_num(fy)))
 
 
@@ -448,15 +462,27 @@ def _row_chunks(height: int, count: int) -> list[slice]:
 
 
 def _warp_mask(mask, half_x, half_y, sign):
-    """Nearest-pixel deformation of a bool mask (outside the image counts as not masked)."""
+    """Nearest-pixel deformation of a bool mask: ``mask(x + sign * h(x))``, the edge pixel
+    repeated beyond the image. Only the mask's bounding box, grown by the largest shift, can
+    come out masked, so only that part is computed."""
     if mask is None:
         return None
+    rows = np.flatnonzero(mask.any(axis=1))
+    cols = np.flatnonzero(mask.any(axis=0))
+    out = np.zeros_like(mask)
+    if rows.size == 0:
+        return out
+    reach = int(np.ceil(max(np.abs(half_x).max(), np.abs(half_y).max()))) + 1
     height, width = mask.shape
-    r = np.rint(np.arange(height)[:, None] + sign * half_y).astype(np.intp)
-    c = np.rint(np.arange(width)[None, :] + sign * half_x).astype(np.intp)
+    r0, r1 = max(rows[0] - reach, 0), min(rows[-1] + reach + 1, height)
+    c0, c1 = max(cols[0] - reach, 0), min(cols[-1] + reach + 1, width)
+    box = (slice(r0, r1), slice(c0, c1))
+    r = np.rint(np.arange(r0, r1)[:, None] + sign * half_y[box]).astype(np.intp)
+    c = np.rint(np.arange(c0, c1)[None, :] + sign * half_x[box]).astype(np.intp)
     np.clip(r, 0, height - 1, out=r)
     np.clip(c, 0, width - 1, out=c)
-    return mask[r, c]
+    out[box] = mask[r, c]
+    return out
 
 
 # --- the engine -------------------------------------------------------------------------------

@@ -100,14 +100,16 @@ def replace_outliers(
     dy: np.ndarray,
     outliers: np.ndarray,
     masked: np.ndarray | None = None,
+    *,
+    relax: bool = True,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Replace outliers (and NaN holes) by the mean of their usable neighbours, iteratively.
 
     Holes are filled from the outside in: each round fills the holes with the most usable
     neighbours (at least 3 when any hole has that many), so a filled value rests on measured
-    ones where possible; the filled values are then relaxed to the mean of their 4 neighbours
-    (a discrete Laplace fill, exact on linear fields). Masked cells are neither used nor
-    filled: they stay NaN.
+    ones where possible; with ``relax`` the filled values are then relaxed to the mean of their
+    4 neighbours (a discrete Laplace fill, exact on linear fields). Masked cells are neither
+    used nor filled: they stay NaN. Work grows with the number of holes, not the grid.
 
     Parameters
     ----------
@@ -117,62 +119,68 @@ def replace_outliers(
         Cells to replace.
     masked : (M, N) bool ndarray, optional
         Cells with no vector.
+    relax : bool
+        Relax the filled values (Laplace); off gives the plain outside-in neighbour mean.
 
     Returns
     -------
     dx, dy : (M, N) ndarray of float64
         New arrays; a hole with no usable neighbour anywhere stays NaN.
     """
-    masked = np.zeros(dx.shape, bool) if masked is None else np.asarray(masked, dtype=bool)
-    out_x = np.where(outliers | masked, np.nan, dx).astype(np.float64)
-    out_y = np.where(outliers | masked, np.nan, dy).astype(np.float64)
-    holes = ~masked & ~(np.isfinite(out_x) & np.isfinite(out_y))
-    out_x[holes] = np.nan
-    out_y[holes] = np.nan
-    todo = holes.copy()
-    while np.any(todo):
-        filled = _fill_round(out_x, out_y, todo)
-        if not np.any(filled):
-            break
-        todo &= ~filled
-    _relax(out_x, holes & ~todo)
-    _relax(out_y, holes & ~todo)
-    return out_x, out_y
-
-
-def _relax(values: np.ndarray, cells: np.ndarray, tol_px: float = 1e-3, rounds: int = 500) -> None:
-    """Relax ``cells`` (in place) toward the mean of their 4 neighbours (a discrete Laplace
-    fill, exact for linear fields), starting from the neighbour-mean fill."""
-    if not np.any(cells):
-        return
-    m, n = values.shape
-    for _ in range(rounds):
+    m, n = dx.shape
+    masked = np.zeros((m, n), bool) if masked is None else np.asarray(masked, dtype=bool)
+    values = []
+    for comp in (dx, dy):
         padded = np.full((m + 2, n + 2), np.nan)
-        padded[1:-1, 1:-1] = values
-        near = np.stack([padded[:-2, 1:-1], padded[2:, 1:-1], padded[1:-1, :-2], padded[1:-1, 2:]])
-        count = np.count_nonzero(np.isfinite(near), axis=0)
-        total = np.nansum(near, axis=0)
-        update = cells & (count > 0)
-        new = total[update] / count[update]
-        change = np.max(np.abs(new - values[update]), initial=0.0)
-        values[update] = new
+        padded[1:-1, 1:-1] = np.where(outliers | masked, np.nan, comp)
+        values.append(padded)
+    missing = ~(np.isfinite(values[0]) & np.isfinite(values[1]))[1:-1, 1:-1]
+    hole_rows, hole_cols = np.nonzero(missing & ~masked)
+    holes = (hole_rows + 1) * (n + 2) + hole_cols + 1  # flat indices in the padded grid
+    for padded in values:
+        padded.flat[holes] = np.nan
+    filled = _fill_outside_in(values, holes, n + 2)
+    if relax:
+        for padded in values:
+            _relax(padded, filled, n + 2)
+    return values[0][1:-1, 1:-1].copy(), values[1][1:-1, 1:-1].copy()
+
+
+def _fill_outside_in(values: list[np.ndarray], holes: np.ndarray, stride: int) -> np.ndarray:
+    """Fill holes (flat indices into the padded grids) from their 8 neighbours, best-supported
+    first; returns the indices that were filled."""
+    offsets = np.array([dr * stride + dc for dr, dc in _OFFSETS])
+    todo = holes
+    done = []
+    while todo.size:
+        near = [padded.flat[todo[:, None] + offsets] for padded in values]
+        count = np.count_nonzero(np.isfinite(near[0]), axis=1)
+        best = int(count.max())
+        if best == 0:
+            break
+        fill = count >= min(best, MIN_NEIGHBOURS)
+        for padded, nb in zip(values, near, strict=True):
+            padded.flat[todo[fill]] = np.nansum(nb[fill], axis=1) / count[fill]
+        done.append(todo[fill])
+        todo = todo[~fill]
+    return np.concatenate(done) if done else np.zeros(0, np.intp)
+
+
+def _relax(
+    padded: np.ndarray, cells: np.ndarray, stride: int, tol_px: float = 1e-3, rounds: int = 500
+) -> None:
+    """Relax ``cells`` (flat indices, in place) toward the mean of their 4 neighbours, a
+    discrete Laplace fill exact on linear fields, starting from the outside-in fill."""
+    if cells.size == 0:
+        return
+    offsets = np.array([-stride, stride, -1, 1])
+    index = cells[:, None] + offsets
+    for _ in range(rounds):
+        near = padded.flat[index]
+        count = np.count_nonzero(np.isfinite(near), axis=1)
+        new = np.nansum(near, axis=1) / np.maximum(count, 1)
+        new = np.where(count > 0, new, padded.flat[cells])
+        change = float(np.max(np.abs(new - padded.flat[cells]), initial=0.0))
+        padded.flat[cells] = new
         if change < tol_px:
             return
-
-
-def _fill_round(out_x: np.ndarray, out_y: np.ndarray, holes: np.ndarray) -> np.ndarray:
-    """Fill, in place, the best-supported holes; return which were filled."""
-    nx = neighbour_stack(out_x)
-    ny = neighbour_stack(out_y)
-    count = np.count_nonzero(np.isfinite(nx), axis=0)
-    count = np.where(holes, count, 0)
-    best = int(count.max())
-    if best == 0:
-        return np.zeros(holes.shape, bool)
-    fill = count >= min(best, MIN_NEIGHBOURS)
-    with np.errstate(invalid="ignore"):
-        sum_x = np.nansum(nx, axis=0)
-        sum_y = np.nansum(ny, axis=0)
-    out_x[fill] = sum_x[fill] / count[fill]
-    out_y[fill] = sum_y[fill] / count[fill]
-    return fill
