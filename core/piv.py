@@ -593,6 +593,12 @@ def _field(grid, dx, dy, ratio, masked, outliers, warnings) -> VectorField:
     rejected = ~masked & (outliers | ~measured)
     fx, fy = replace_outliers(dx, dy, rejected, masked)
     replaced = rejected & np.isfinite(fx) & np.isfinite(fy)
+    flat = np.count_nonzero(~masked & ~measured)
+    if flat:
+        warnings = [
+            *warnings,
+            f"{flat} of {masked.size} windows have no correlation peak (flat or blank image there)",
+        ]
     x, y = np.meshgrid(grid.x_px, grid.y_px)
     return VectorField(
         x_px=x,

@@ -211,3 +211,36 @@ def test_bad_frames_are_refused_with_one_line():
         correlate_pair(a[:40], a[:40])
     with pytest.raises(WakelineError, match="mask of frame B"):
         correlate_pair(a, a, mask_b=np.zeros((3, 3), bool))
+
+
+@pytest.mark.parametrize("p", [PivPass(32, 0.5), PivPass(32, 0.6), PivPass(20, 0.75)])
+def test_masked_pixel_counts_match_a_direct_count(p):
+    from core.piv import _grid_for, _masked_counts
+
+    mask = np.random.default_rng(0).random((100, 130)) < 0.3
+    g = _grid_for(mask.shape, p)
+    direct = [
+        mask[i * g.step : i * g.step + g.window, j * g.step : j * g.step + g.window].sum()
+        for i in range(g.rows)
+        for j in range(g.cols)
+    ]
+    np.testing.assert_array_equal(_masked_counts(mask, g), direct)
+
+
+def test_small_integer_frames_and_odd_passes_work():
+    a, b = synth.particle_pair((64, 80), synth.uniform(1.2, 0.4), seed=1)
+    vf = correlate_pair(a.astype(np.uint16), b.astype(np.uint16))
+    assert vf.x_px.shape == (3, 4)
+    np.testing.assert_allclose(vf.dx_px, 1.2, atol=0.1)
+    odd = PivSettings(passes=(PivPass(24, 1 / 3), PivPass(20, 0.6)))
+    vf = correlate_pair(a, b, settings=odd)
+    assert vf.spacing_px == 8.0 and np.all(vf.valid)
+    np.testing.assert_allclose(vf.dy_px, 0.4, atol=0.1)
+
+
+def test_blank_frames_give_no_vectors_rather_than_invented_ones():
+    blank = np.zeros((128, 128), np.float32)
+    vf = correlate_pair(blank, blank)
+    assert not np.any(vf.valid) and not np.any(vf.replaced)
+    assert np.all(np.isnan(vf.dx_px))
+    assert any("no correlation peak" in w for w in vf.warnings)
