@@ -177,6 +177,12 @@ class SessionOverview(QtWidgets.QWidget):
         self._records: list = []
         self._points: OverviewPoints | None = None
         self._current: str | None = None
+        self._source = None
+        # many record changes in a row (a batch run, a quick review) redraw once
+        self._refresh_timer = QtCore.QTimer(self)
+        self._refresh_timer.setSingleShot(True)
+        self._refresh_timer.setInterval(40)
+        self._refresh_timer.timeout.connect(self._refresh_now)
 
         self.column_box = QtWidgets.QComboBox()
         self.column_box.setToolTip("Quantity on the horizontal axis")
@@ -231,6 +237,20 @@ class SessionOverview(QtWidgets.QWidget):
         self.column_box.setCurrentText(wanted)
         del blocker
         self._redraw()
+
+    def follow(self, source) -> None:
+        """Take the records from ``source()`` (a callable) now and on every ``refresh_soon``."""
+        self._source = source
+        self._refresh_now()
+
+    def refresh_soon(self, *_args) -> None:
+        """Ask for a redraw from the followed source; requests close together are merged."""
+        if self._source is not None:
+            self._refresh_timer.start()
+
+    def _refresh_now(self) -> None:
+        if self._source is not None:
+            self.set_records(self._source())
 
     def set_column(self, column: str) -> None:
         """Put ``column`` on the horizontal axis (one of ``numeric_columns``)."""

@@ -977,7 +977,7 @@ def make_sheet(
         Numeric metadata column for the overview and the summary table; default the seam
         orientation when present.
     progress : callable(done, total), optional
-        Called after each shot panel.
+        Called after each shot panel; an exception it raises stops the sheet (no file is left).
 
     Raises
     ------
@@ -1012,8 +1012,13 @@ def make_sheet(
         _paint_cover(pages, session, all_records, records, column, rows,
                      _selection_text(records, all_records, shot_ids, statuses, per_page))
         _paint_shot_pages(pages, session, records, per_page, progress)
-    finally:
+    except BaseException:
         painter.end()
+        del writer
+        tmp.unlink(missing_ok=True)
+        raise
+    painter.end()
+    del writer  # closes the file
     os.replace(tmp, out_path)
     return SheetReport(out_path, pages.number, [r.shot_id for r in records])
 

@@ -38,6 +38,7 @@ from PySide6.QtWidgets import (
 
 from app.canvas import CanvasShot, ShotCanvas
 from app.commands import MarkMove, PickEdit
+from app.export import install_export_actions, install_overview
 from app.icons import app_icon, status_icon
 from app.model import SessionModel
 from app.readout import ReadoutPanel
@@ -104,6 +105,8 @@ class MainWindow(QMainWindow):
         self._build_actions()
         self._build_menus()
         self._connect()
+        install_overview(self)
+        install_export_actions(self)
         self._restore_settings()
         self._update_title()
         self._update_enabled()
@@ -223,7 +226,7 @@ class MainWindow(QMainWindow):
         review.addSeparator()
         for action in (self.act_next, self.act_prev, self.act_next_open):
             review.addAction(action)
-        view = menu.addMenu("&View")
+        view = self.view_menu = menu.addMenu("&View")
         for action in (self.act_picture, self.act_vectors, self.act_vorticity, self.act_marks,
                        self.act_side, self.act_fit):
             view.addAction(action)

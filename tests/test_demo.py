@@ -12,8 +12,8 @@ from pathlib import Path
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
-import numpy as np  # noqa: E402
-import pytest  # noqa: E402
+import numpy as np
+import pytest
 
 SAMPLE_RUNS = Path(__file__).resolve().parent.parent / "sample_runs"
 
@@ -126,8 +126,8 @@ def test_demo_command_without_window(demo_out, capsys):
 
 
 def test_demo_opens_the_window_when_there_is_a_display(demo_out, monkeypatch):
-    import app.cmd_sheet as cmd_sheet
     import app.sheet
+    from app import cmd_sheet
     from app.cli import main
 
     opened = []

@@ -6,10 +6,10 @@ import os
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
-import numpy as np  # noqa: E402
-import pytest  # noqa: E402
+import numpy as np
+import pytest
 
-from core.session import Pick, ShotRecord  # noqa: E402
+from core.session import Pick, ShotRecord
 
 # showing a widget on the offscreen platform logs this harmless notice
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
@@ -118,3 +118,69 @@ def test_clicking_a_point_emits_its_shot(qtbot, records):
         assert blocker.args == [shot_id]
     panel.set_current("a2")
     assert len(panel.current_item.points()) == 2
+
+
+# -- in the review window -------------------------------------------------------------------------
+
+
+def _window(main_window, qtbot, path):
+    from PySide6.QtWidgets import QApplication
+
+    window = main_window(workers=0)
+    with qtbot.waitExposed(window):
+        window.show()
+    assert window.open_session(path)
+    qtbot.waitUntil(lambda: len(window.overview.points() or []) == 4, timeout=2000)
+    QApplication.processEvents()  # let the dock's plot take its size before mapping positions
+    return window
+
+
+def test_clicking_an_overview_point_selects_the_shot(main_window, make_session, qtbot):
+    from PySide6.QtCore import QPoint, Qt
+
+    window = _window(main_window, qtbot, make_session(4))
+    assert window.overview_dock.isVisible()
+    assert window.model.current_id == "s01"
+    view = window.overview.plot
+    for shot_id in ("s03", "s02"):
+        pos = view.mapFromScene(window.overview.point_scene_pos(shot_id, "lower"))
+        qtbot.mouseClick(view.viewport(), Qt.MouseButton.LeftButton, pos=QPoint(pos.x(), pos.y()))
+        qtbot.waitUntil(lambda s=shot_id: window.model.current_id == s, timeout=2000)
+        panel = window.shot_list
+        row = panel.proxy.mapToSource(panel.view.currentIndex()).row()
+        assert panel.table_model.shot_id(row) == shot_id
+        assert len(panel.view.selectionModel().selectedRows()) == 1
+    # a review edit in the window shows in the overview: the accepted point fills in
+    window.model.apply_pick("s02", status="accepted")
+    qtbot.waitUntil(lambda: window.overview.points().is_final[1], timeout=2000)
+
+
+def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, qtbot, tmp_path,
+                                                     monkeypatch):
+    from pypdf import PdfReader
+    from PySide6.QtWidgets import QFileDialog
+
+    from app.export import export_sheet
+    from core.session import Session, write_table_csv
+
+    window = _window(main_window, qtbot, make_session(4))
+    texts = [a.text() for a in window.export_menu.actions()]
+    assert texts == ["Shot sheet (&PDF)…", "&Table (CSV)…"]
+    assert window.export_menu.isEnabled()
+
+    table = tmp_path / "from_window.csv"
+    monkeypatch.setattr(QFileDialog, "getSaveFileName", lambda *a, **k: (str(table), ""))
+    window.act_export_table.trigger()
+    reference = tmp_path / "from_store.csv"
+    with Session.open(window.model.session.path, writable=False) as session:
+        write_table_csv(session, reference)
+    assert table.read_bytes() == reference.read_bytes()
+
+    sheet = tmp_path / "from_window.pdf"
+    monkeypatch.setattr(QFileDialog, "getSaveFileName", lambda *a, **k: (str(sheet), ""))
+    window.act_export_sheet.trigger()
+    assert len(PdfReader(str(sheet)).pages) == 1 + 2
+    report = export_sheet(window, tmp_path / "one.pdf", per_page=1, shot_ids=["s04"])
+    assert report.pages == 2 and report.shot_ids == ["s04"]
+    assert export_sheet(window, tmp_path / "none.pdf", shot_ids=["nope"]) is None
+    assert "no shot 'nope'" in window.last_problem

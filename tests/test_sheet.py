@@ -11,8 +11,8 @@ import subprocess
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
-import numpy as np  # noqa: E402
-import pytest  # noqa: E402
+import numpy as np
+import pytest
 
 PICKS = {
     "s01": {"status": "accepted"},
