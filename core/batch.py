@@ -102,12 +102,16 @@ def iter_process(
     tasks = [_task(session, shot_id) for shot_id in todo]
     stop = should_stop or (lambda: False)
     runner = _runner(workers, scheduler)
-    for done, (shot_id, result, message) in enumerate(runner(tasks, stop), start=1):
-        if result is not None:
-            session.save_result(shot_id, result)
-        else:
-            session.save_failure(shot_id, message, _fingerprint(tasks, shot_id))
-        yield ShotOutcome(shot_id, result is not None, message, done, len(tasks))
+    session.active_runs += 1
+    try:
+        for done, (shot_id, result, message) in enumerate(runner(tasks, stop), start=1):
+            if result is not None:
+                session.save_result(shot_id, result)
+            else:
+                session.save_failure(shot_id, message, _fingerprint(tasks, shot_id))
+            yield ShotOutcome(shot_id, result is not None, message, done, len(tasks))
+    finally:
+        session.active_runs -= 1
 
 
 def process_shots(

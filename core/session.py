@@ -230,6 +230,8 @@ def _process_start(pid: int) -> str | None:
 
 
 def _pid_alive(pid: int, start: str | None) -> bool:
+    if os.name == "nt":
+        return _windows_pid_alive(pid)
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
@@ -248,6 +250,22 @@ def _pid_alive(pid: int, start: str | None) -> bool:
     return start is None or now_start is None or now_start == start
 
 
+def _windows_pid_alive(pid: int) -> bool:
+    # os.kill(pid, 0) would terminate the process on Windows; ask for its exit code instead.
+    import ctypes
+
+    kernel32 = ctypes.windll.kernel32
+    handle = kernel32.OpenProcess(0x1000, False, pid)  # PROCESS_QUERY_LIMITED_INFORMATION
+    if not handle:
+        return False
+    try:
+        code = ctypes.c_ulong()
+        kernel32.GetExitCodeProcess(handle, ctypes.byref(code))
+        return code.value == 259  # STILL_ACTIVE
+    finally:
+        kernel32.CloseHandle(handle)
+
+
 class _Lock:
     """``S.h5.lock``: created whole (written aside, then hard-linked into place) or not at all."""
 
@@ -262,7 +280,12 @@ class _Lock:
             "since": _now_utc(), "start": _process_start(os.getpid()),
         }
         for _ in range(5):
-            if self._try_create(me):
+            try:
+                created = self._try_create(me)
+            except PermissionError:
+                raise WakelineError(f"{self.session_path}: its folder is not writable; open the "
+                                    "session read-only") from None
+            if created:
                 self.held = True
                 return
             holder = self._read()
@@ -501,6 +524,7 @@ class Session:
         self._places: dict[str, _Place] = {}
         self._dirty = False
         self._closed = False
+        self.active_runs = 0  # batch runs in progress (core.batch); see compact()
         for entry in snapshot.shots:
             self._records[entry["shot_id"]] = _record_from_index(entry)
             self._places[entry["shot_id"]] = _Place(
@@ -784,7 +808,8 @@ class Session:
             self._check_writable()
             self._write_snapshot()
             self._journal.remove()
-            shutil.rmtree(self._pending_dir, ignore_errors=True)
+            if not self.active_runs:  # a running batch's workers may still read pending frames
+                shutil.rmtree(self._pending_dir, ignore_errors=True)
             self._dirty = False
 
     # -- internals: journal --------------------------------------------------------------------

@@ -9,7 +9,7 @@ from data.session_helpers import fast_settings, shift_of, write_shot_folder
 from app.cli import main
 from core import WakelineError
 from core.batch import iter_process, plan_shots, process_shots
-from core.session import Session, import_folder
+from core.session import Session, import_folder, read_frames
 
 
 @pytest.fixture
@@ -109,3 +109,23 @@ def test_process_on_a_dask_cluster(session_path):
         report = process_shots(s, scheduler=cluster.scheduler_address)
         assert sorted(report.processed) == ["S0", "S1", "S2", "S3"]
         assert _median_shift(s.load_result("S3")) == pytest.approx(shift_of(3), abs=0.1)
+
+
+def test_compacting_during_a_run_keeps_the_frames_workers_may_still_read(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    with Session.create(tmp_path / "e.h5") as s:
+        for i in range(2):  # embedded frames stay in pending files until a compaction
+            s.add_shot(f"S{i}", src / f"S{i}_a.tif", src / f"S{i}_b.tif", {"dt_s": 2e-5},
+                       embed=True)
+        source = s.frame_source("S1")  # what a worker task of a running batch holds
+        assert ".pending" in source["file"]
+        s.active_runs += 1  # as iter_process does while it runs
+        s.compact()  # the window may save while shots are being processed
+        assert read_frames("S1", source)[0].shape == (192, 256)
+        s.active_runs -= 1
+        s.set_processing_settings(fast_settings())
+        assert all(o.ok for o in iter_process(s, workers=0))
+        assert s.active_runs == 0
+    with Session.open(tmp_path / "e.h5", writable=False) as s:
+        assert _median_shift(s.load_result("S1")) == pytest.approx(shift_of(1), abs=0.1)
+    assert not (tmp_path / "e.h5.pending").exists()
