@@ -2,6 +2,12 @@
 
 from __future__ import annotations
 
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
 import numpy as np
 import pytest
 from data.session_helpers import fast_settings, shift_of, write_shot_folder
@@ -10,6 +16,8 @@ from app.cli import main
 from core import WakelineError
 from core.batch import iter_process, plan_shots, process_shots
 from core.session import Session, import_folder, read_frames
+
+ROOT = Path(__file__).resolve().parent.parent
 
 
 @pytest.fixture
@@ -129,3 +137,27 @@ def test_compacting_during_a_run_keeps_the_frames_workers_may_still_read(tmp_pat
     with Session.open(tmp_path / "e.h5", writable=False) as s:
         assert _median_shift(s.load_result("S1")) == pytest.approx(shift_of(1), abs=0.1)
     assert not (tmp_path / "e.h5.pending").exists()
+
+
+def test_ctrl_c_stops_the_command_and_keeps_finished_shots(tmp_path):
+    session_path = tmp_path / "s.h5"
+    import_folder(write_shot_folder(tmp_path / "src", 40), session_path)
+    with Session.open(session_path) as s:
+        s.set_processing_settings(fast_settings())
+    journal = tmp_path / "s.h5.journal"
+    child = subprocess.Popen(
+        [sys.executable, "-m", "app.cli", "process", str(session_path), "--workers", "1"],
+        cwd=ROOT, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    give_up = time.monotonic() + 120  # a guard against a hung run, not a timing check
+    while not (journal.exists() and b'"op": "result"' in journal.read_bytes()):
+        assert child.poll() is None and time.monotonic() < give_up, child.communicate()
+        time.sleep(0.01)
+    child.send_signal(signal.SIGINT)
+    out, err = child.communicate(timeout=120)
+    assert child.returncode == 1, err
+    assert "stopping: finished shots are kept" in err
+    assert "left for the next run" in out
+    with Session.open(session_path, writable=False) as s:
+        done = [r.shot_id for r in s.records() if r.state == "processed"]
+        assert 0 < len(done) < 40 and not s.check_frames()
+    assert not journal.exists()  # the stopped run closed the session cleanly
