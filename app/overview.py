@@ -43,6 +43,34 @@ class OverviewPoints:
     def __len__(self) -> int:
         return len(self.shot_ids)
 
+    def drawn_x(self) -> np.ndarray:
+        """``x`` with shots that share a value set side by side, so repeats stay visible."""
+        return spread_ties(self.x)
+
+
+def spread_ties(x: np.ndarray, fraction: float = 0.012) -> np.ndarray:
+    """Offset equal values symmetrically by ``fraction`` of the data range (or of 1) each.
+
+    Parameters
+    ----------
+    x : (N,) ndarray
+
+    Returns
+    -------
+    (N,) ndarray
+        Unique values unchanged; ``k`` equal values spread over ``(k - 1) * step`` around them.
+    """
+    x = np.asarray(x, dtype=float)
+    out = x.copy()
+    if x.size < 2:
+        return out
+    span = float(x.max() - x.min())
+    step = fraction * (span if span > 0 else 1.0)
+    for value in np.unique(x):
+        where = np.flatnonzero(x == value)
+        out[where] = value + (np.arange(where.size) - (where.size - 1) / 2) * step
+    return out
+
 
 def _as_number(value) -> float | None:
     if value is None or isinstance(value, bool):
@@ -184,9 +212,13 @@ class SessionOverview(QtWidgets.QWidget):
         self._refresh_timer.setInterval(40)
         self._refresh_timer.timeout.connect(self._refresh_now)
 
+        self._chosen_column = ""  # the user's choice; until then the session's default
         self.column_box = QtWidgets.QComboBox()
         self.column_box.setToolTip("Quantity on the horizontal axis")
+        self.column_box.setSizeAdjustPolicy(
+            QtWidgets.QComboBox.SizeAdjustPolicy.AdjustToContents)
         self.column_box.currentTextChanged.connect(self._on_column_changed)
+        self.column_box.textActivated.connect(self._on_column_chosen)
         self.note_label = QtWidgets.QLabel()
         self.note_label.setStyleSheet(f"color: {colours.MUTED_INK};")
 
@@ -194,7 +226,7 @@ class SessionOverview(QtWidgets.QWidget):
         self.plot.setMinimumSize(280, 200)
         item = self.plot.getPlotItem()
         item.showGrid(x=True, y=True, alpha=0.15)
-        item.setLabel("left", "separation angle (deg, + rearward)")
+        item.setLabel("left", "separation (deg)")
         item.setMenuEnabled(False)
         for axis in ("left", "bottom"):
             item.getAxis(axis).setPen(pg.mkPen(colours.MUTED_INK))
@@ -215,20 +247,21 @@ class SessionOverview(QtWidgets.QWidget):
 
         top = QtWidgets.QHBoxLayout()
         top.addWidget(QtWidgets.QLabel("Against:"))
-        top.addWidget(self.column_box, 1)
+        top.addWidget(self.column_box)
+        top.addSpacing(12)
+        top.addWidget(_legend_label(), 1)
+        top.addWidget(self.note_label)
         layout = QtWidgets.QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
         layout.addLayout(top)
         layout.addWidget(self.plot, 1)
-        layout.addWidget(_legend_label())
-        layout.addWidget(self.note_label)
 
     # public ---------------------------------------------------------------------------------
     def set_records(self, records) -> None:
         """Show these shot records (``core.session.ShotRecord``), keeping the chosen column."""
         self._records = list(records)
         columns = numeric_columns(self._records) if self._records else [SHOT_ORDER]
-        wanted = self.column_box.currentText() or default_column(self._records or [])
+        wanted = self._chosen_column or default_column(self._records or [])
         if wanted not in columns:
             wanted = columns[0]
         blocker = QtCore.QSignalBlocker(self.column_box)
@@ -254,6 +287,7 @@ class SessionOverview(QtWidgets.QWidget):
 
     def set_column(self, column: str) -> None:
         """Put ``column`` on the horizontal axis (one of ``numeric_columns``)."""
+        self._chosen_column = column
         self.column_box.setCurrentText(column)
 
     def column(self) -> str:
@@ -274,12 +308,15 @@ class SessionOverview(QtWidgets.QWidget):
         i = pts.shot_ids.index(shot_id)
         y = pts.upper_deg[i] if side == "upper" else pts.lower_deg[i]
         view = self.plot.getPlotItem().getViewBox()
-        return view.mapViewToScene(QtCore.QPointF(float(pts.x[i]), float(y)))
+        return view.mapViewToScene(QtCore.QPointF(float(pts.drawn_x()[i]), float(y)))
 
     # slots ------------------------------------------------------------------------------------
     def _on_column_changed(self, column: str) -> None:
         if column:
             self._redraw()
+
+    def _on_column_chosen(self, column: str) -> None:
+        self._chosen_column = column
 
     def _on_points_clicked(self, _item, spots, _event=None) -> None:
         if len(spots):
@@ -300,7 +337,7 @@ class SessionOverview(QtWidgets.QWidget):
 
     def _draw_links(self, pts: OverviewPoints) -> None:
         both = np.isfinite(pts.upper_deg) & np.isfinite(pts.lower_deg)
-        xs = np.repeat(pts.x[both], 2)
+        xs = np.repeat(pts.drawn_x()[both], 2)
         ys = np.column_stack([pts.upper_deg[both], pts.lower_deg[both]]).ravel()
         self.link_lines.setData(xs, ys)
 
@@ -311,11 +348,12 @@ class SessionOverview(QtWidgets.QWidget):
             return
         i = pts.shot_ids.index(self._current)
         ys = [v for v in (pts.upper_deg[i], pts.lower_deg[i]) if np.isfinite(v)]
-        self.current_item.setData([pts.x[i]] * len(ys), ys)
+        self.current_item.setData([pts.drawn_x()[i]] * len(ys), ys)
 
 
 def _spots(pts: OverviewPoints, values: np.ndarray) -> list[dict]:
     spots = []
+    xs = pts.drawn_x()
     for i, shot_id in enumerate(pts.shot_ids):
         if not np.isfinite(values[i]):
             continue
@@ -323,7 +361,7 @@ def _spots(pts: OverviewPoints, values: np.ndarray) -> list[dict]:
         filled = bool(pts.is_final[i])
         spots.append(
             {
-                "pos": (float(pts.x[i]), float(values[i])),
+                "pos": (float(xs[i]), float(values[i])),
                 "data": shot_id,
                 "pen": pg.mkPen(colour, width=1.6),
                 "brush": pg.mkBrush(colour if filled else "#ffffff"),
@@ -339,10 +377,10 @@ def _legend_label() -> QtWidgets.QLabel:
     )
     label = QtWidgets.QLabel(
         f"&#9650; upper &nbsp; &#9660; lower &nbsp; | &nbsp; {swatches}"
-        " &nbsp; | &nbsp; hollow = not yet reviewed"
+        " &nbsp; | &nbsp; hollow: not yet reviewed &nbsp; | &nbsp; deg from the plane normal to"
+        " the flight, + rearward"
     )
     label.setTextFormat(QtCore.Qt.TextFormat.RichText)
-    label.setWordWrap(True)
     return label
 
 

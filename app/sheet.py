@@ -396,7 +396,8 @@ def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints
     ylo, yhi = min(ylo, 0.0), max(yhi, 0.0)
     pad = max(2.0, 0.08 * (yhi - ylo))
     ylo, yhi = ylo - pad, yhi + pad
-    xlo, xhi = (float(pts.x.min()), float(pts.x.max())) if len(pts) else (0.0, 1.0)
+    xs = pts.drawn_x()
+    xlo, xhi = (float(xs.min()), float(xs.max())) if len(pts) else (0.0, 1.0)
     xpad = 0.06 * (xhi - xlo) if xhi > xlo else 1.0
     xlo, xhi = xlo - xpad, xhi + xpad
 
@@ -412,12 +413,12 @@ def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints
     p.setPen(pen(colours.RULE, 0.35))
     for i in range(len(pts)):
         if np.isfinite(pts.upper_deg[i]) and np.isfinite(pts.lower_deg[i]):
-            p.drawLine(to_page(pts.x[i], pts.upper_deg[i]), to_page(pts.x[i], pts.lower_deg[i]))
+            p.drawLine(to_page(xs[i], pts.upper_deg[i]), to_page(xs[i], pts.lower_deg[i]))
     for i in range(len(pts)):
         colour = colours.STATUS_COLOURS[pts.status[i]]
         for value, up in ((pts.upper_deg[i], True), (pts.lower_deg[i], False)):
             if np.isfinite(value):
-                _triangle(p, to_page(pts.x[i], value), up, colour, bool(pts.is_final[i]))
+                _triangle(p, to_page(xs[i], value), up, colour, bool(pts.is_final[i]))
     p.setClipping(False)
     _paint_overview_legend(p, frame.left() + mm(16), frame.bottom() - mm(5.5))
     p.restore()

@@ -53,6 +53,14 @@ def test_points_follow_review_status(records):
     assert pts.left_out == {"unusable": 1, "no seam_deg": 1, "no angle": 1}
 
 
+def test_repeats_are_drawn_side_by_side():
+    from app.overview import spread_ties
+
+    x = np.array([0.0, 20.0, 20.0, 40.0, 20.0])
+    drawn = spread_ties(x, fraction=0.01)  # step 0.4 on a range of 40
+    np.testing.assert_allclose(drawn, [0.0, 19.6, 20.0, 40.0, 20.4])
+
+
 def test_numeric_columns_prefer_seam_and_add_pseudo_columns(records):
     from app.overview import MEASURED_SPEED, SHOT_ORDER, column_value, numeric_columns
 
