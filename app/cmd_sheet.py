@@ -15,6 +15,7 @@ DEMO_SESSION = "demo_session.h5"
 DEMO_SHEET = "demo_sheet.pdf"
 DEMO_TABLE = "demo_table.csv"
 DEMO_REVIEWER = "demo analyst (invented)"
+DEMO_NAME = "Seam-angle sweep, new cricket ball at 30 m/s (invented demo)"
 DEMO_INPUTS = ("shots.csv", "truth.csv", "reviews.csv", "README.md")
 
 
@@ -120,7 +121,7 @@ def prepare_demo(folder: Path, fresh: bool = False) -> Path:
     Returns the session path. With ``fresh`` an earlier demo session in ``folder`` is removed
     first (only the files this command makes).
     """
-    from core.session import import_folder
+    from core.session import Session, import_folder
 
     if not (SAMPLE_RUNS / "shots.csv").is_file():
         raise WakelineError(f"{SAMPLE_RUNS}: the bundled demo shots are missing (shots.csv)")
@@ -135,6 +136,7 @@ def prepare_demo(folder: Path, fresh: bool = False) -> Path:
     for src in [SAMPLE_RUNS / n for n in DEMO_INPUTS] + sorted(SAMPLE_RUNS.glob("*.tif")):
         if src.is_file():
             shutil.copyfile(src, frames / src.name)
+    Session.create(session_path, name=DEMO_NAME).close()
     report = import_folder(frames, session_path)
     if report.problems:
         raise WakelineError(f"{frames}: demo import failed: {report.problems[0]}")
