@@ -30,6 +30,7 @@ from PySide6.QtWidgets import (
     QGraphicsEllipseItem,
     QHBoxLayout,
     QLabel,
+    QSizePolicy,
     QSpinBox,
     QVBoxLayout,
     QWidget,
@@ -473,6 +474,8 @@ class ShotCanvas(QWidget):
         self.hover_label = QLabel(HOVER_HINT, self)
         self.hover_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.hover_label.setStyleSheet("QLabel { font-family: monospace; padding: 2px 6px; }")
+        # long readings must never widen the panel (the view would re-range under the cursor)
+        self.hover_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
         box = QVBoxLayout(self)
         box.setContentsMargins(0, 0, 0, 0)
         box.setSpacing(2)

@@ -1,0 +1,352 @@
+"""The review window, driven headless with pytest-qt: stepping, dragging, review keys, processing."""
+
+from __future__ import annotations
+
+import math
+import sys
+
+import numpy as np
+import pytest
+from PySide6.QtCore import QEvent, QMimeData, QPoint, QPointF, Qt, QUrl
+from PySide6.QtGui import QDropEvent, QMouseEvent
+from PySide6.QtWidgets import QApplication
+
+from core.geometry import angle_of_point, point_at_angle
+from core.session import Session
+
+# The offscreen platform warns that it cannot propagate size hints; harmless (QT_HEADLESS.md).
+pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
+
+
+def _open(main_window, qtbot, path, show=False, **kwargs):
+    window = main_window(workers=0, **kwargs)
+    if show:
+        with qtbot.waitExposed(window):
+            window.show()
+        window.activateWindow()
+        with qtbot.waitActive(window):
+            pass
+    assert window.open_session(path)
+    if show:
+        qtbot.wait(30)  # let the plot layout settle before mapping positions
+    return window
+
+
+def _key(qtbot, window, key, modifier=Qt.KeyboardModifier.NoModifier):
+    """Press a key in the focused widget of the window (shortcuts fire as for a user)."""
+    target = QApplication.focusWidget() or window.shot_list.view
+    qtbot.keyClick(target, key, modifier)
+
+
+def _viewport_point(canvas, x_px, y_px) -> QPoint:
+    scene = canvas.view.mapViewToScene(QPointF(x_px, y_px))
+    return canvas.graphics.mapFromScene(scene)
+
+
+def _view_point(canvas, point: QPoint) -> tuple[float, float]:
+    view = canvas.view.mapSceneToView(canvas.graphics.mapToScene(point))
+    return view.x(), view.y()
+
+
+def _mouse(widget, kind, point: QPoint, buttons) -> None:
+    moving = kind == QEvent.Type.MouseMove
+    button = Qt.MouseButton.NoButton if moving else Qt.MouseButton.LeftButton
+    local = QPointF(point)
+    event = QMouseEvent(kind, local, widget.mapToGlobal(local), button, buttons,
+                        Qt.KeyboardModifier.NoModifier)
+    QApplication.sendEvent(widget, event)
+
+
+def _drag(qtbot, widget, start: QPoint, end: QPoint, during=None, steps: int = 12) -> None:
+    """Press at ``start``, move in steps to ``end``, release; ``during()`` runs before release."""
+    left = Qt.MouseButton.LeftButton
+    _mouse(widget, QEvent.Type.MouseMove, start, Qt.MouseButton.NoButton)  # hover first, as a hand
+    qtbot.wait(15)
+    _mouse(widget, QEvent.Type.MouseButtonPress, start, left)
+    for i in range(1, steps + 1):
+        t = i / steps
+        p = QPoint(round(start.x() + t * (end.x() - start.x())),
+                   round(start.y() + t * (end.y() - start.y())))
+        _mouse(widget, QEvent.Type.MouseMove, p, left)
+        qtbot.wait(15)  # pyqtgraph drops moves closer than its mouse rate limit
+    if during is not None:
+        during()
+    _mouse(widget, QEvent.Type.MouseButtonRelease, end, Qt.MouseButton.NoButton)
+    qtbot.wait(10)
+
+
+def test_keyboard_steps_through_every_shot_and_views_follow(main_window, make_session, qtbot):
+    path = make_session(4)
+    window = _open(main_window, qtbot, path, show=True)
+    ids = window.shot_list.visible_ids()
+    assert ids == ["s01", "s02", "s03", "s04"]
+    window.shot_list.view.setFocus()
+    seen = []
+    for step in range(len(ids)):
+        if step:
+            _key(qtbot, window, Qt.Key.Key_Down)
+        shot_id = window.model.current_id
+        seen.append(shot_id)
+        assert window.canvas.shot.shot_id == shot_id
+        assert window.readout.title.text() == f"Shot {shot_id}"
+        record = window.model.record(shot_id)
+        assert window.readout.cells[("proposed", "upper")].text() == \
+            f"{record.proposed_deg('upper'):+.1f}°"
+        assert window.canvas.mark_angle("upper") == pytest.approx(record.proposed_deg("upper"))
+    assert seen == ids
+    _key(qtbot, window, Qt.Key.Key_PageUp)
+    assert window.model.current_id == "s01"
+    _key(qtbot, window, Qt.Key.Key_N)
+    assert window.model.current_id == "s02"
+    _key(qtbot, window, Qt.Key.Key_P)
+    assert window.model.current_id == "s01"
+
+
+def test_drag_upper_mark_follows_geometry_undo_redo_and_reopen(main_window, make_session, qtbot):
+    path = make_session(3)
+    window = _open(main_window, qtbot, path, show=True)
+    canvas = window.canvas
+    record = window.model.record("s01")
+    result = window.model.result("s01")
+    centre, radius = result.ball_a.center_px, result.ball_a.radius_px
+    flight = result.flight.direction_deg
+    proposal = record.proposed_deg("upper")
+    handle = canvas.handle("upper")
+    start = _viewport_point(canvas, handle.pos().x(), handle.pos().y())
+    target_deg = proposal + 25.0
+    end = _viewport_point(canvas, *point_at_angle(centre, radius, flight, "upper", target_deg))
+    # geometry of the pointer's own position (mouse events land on whole pixels)
+    pointer_deg = angle_of_point(centre, flight, "upper", _view_point(canvas, end))
+    live = {}
+
+    def read_live():
+        live["text"] = window.readout.live_text("upper")
+        live["mark"] = canvas.mark_angle("upper")
+
+    _drag(qtbot, canvas.graphics.viewport(), start, end, during=read_live)
+    assert live["mark"] == pytest.approx(pointer_deg, abs=0.2)
+    assert float(live["text"].rstrip("°")) == pytest.approx(pointer_deg, abs=0.2)
+    assert pointer_deg == pytest.approx(target_deg, abs=2.0)
+
+    adjusted = window.model.record("s01")
+    assert adjusted.pick.status == "adjusted"
+    assert adjusted.final_deg("upper") == pytest.approx(pointer_deg, abs=0.2)
+    assert adjusted.final_deg("lower") == pytest.approx(record.proposed_deg("lower"))
+    hx, hy = canvas.handle("upper").pos().x(), canvas.handle("upper").pos().y()
+    assert math.hypot(hx - centre[0], hy - centre[1]) == pytest.approx(radius, abs=1e-6)
+
+    _key(qtbot, window, Qt.Key.Key_Z, Qt.KeyboardModifier.ControlModifier)
+    undone = window.model.record("s01")
+    assert undone.pick.status == "to review" and undone.pick.upper_deg is None
+    assert canvas.mark_angle("upper") == pytest.approx(proposal)
+    _key(qtbot, window, Qt.Key.Key_Z,
+         Qt.KeyboardModifier.ControlModifier | Qt.KeyboardModifier.ShiftModifier)
+    redone = window.model.record("s01")
+    assert redone.pick.status == "adjusted"
+    assert redone.final_deg("upper") == pytest.approx(pointer_deg, abs=0.2)
+
+    window.close()
+    with Session.open(path, writable=False) as session:
+        kept = session.record("s01")
+        history = session.history("s01")
+    assert kept.pick.status == "adjusted"
+    assert kept.final_deg("upper") == pytest.approx(redone.final_deg("upper"))
+    assert [p.status for p in history] == ["adjusted", "to review", "adjusted"]
+
+
+def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot, monkeypatch):
+    path = make_session(4)
+    monkeypatch.setattr("app.window.QInputDialog.getText",
+                        lambda *a, **k: ("laser sheet misfired", True))
+    window = _open(main_window, qtbot, path, show=True)
+    window.shot_list.view.setFocus()
+    _key(qtbot, window, Qt.Key.Key_A)  # s01 accepted
+    _key(qtbot, window, Qt.Key.Key_Down)
+    _key(qtbot, window, Qt.Key.Key_U)  # s02 unusable with the reason
+    _key(qtbot, window, Qt.Key.Key_Down)
+    proposal = window.model.record("s03").proposed_deg("upper")
+    lower = window.model.record("s03").proposed_deg("lower")
+    _key(qtbot, window, Qt.Key.Key_E)  # s03 upper +0.5
+    _key(qtbot, window, Qt.Key.Key_E)
+    _key(qtbot, window, Qt.Key.Key_E, Qt.KeyboardModifier.ShiftModifier)  # +0.1
+    _key(qtbot, window, Qt.Key.Key_Z)  # lower -0.5
+    _key(qtbot, window, Qt.Key.Key_Down)
+    _key(qtbot, window, Qt.Key.Key_D)  # s04 adjusted as proposed
+    window.readout.note.setFocus()
+    qtbot.keyClicks(window.readout.note, "wake hits the frame edge")
+    qtbot.keyClick(window.readout.note, Qt.Key.Key_Escape)
+    assert window.model.record("s04").pick.note == "wake hits the frame edge"
+    # nudges of one mark merge into one undo step
+    assert window.undo_stack.count() == 6
+    window.close()
+
+    with Session.open(path, writable=False) as session:
+        s01, s02, s03, s04 = (session.record(s) for s in ("s01", "s02", "s03", "s04"))
+    assert s01.pick.status == "accepted"
+    assert s01.final_deg("upper") == s01.proposed_deg("upper")
+    assert s02.pick.status == "unusable" and s02.pick.reason == "laser sheet misfired"
+    assert s03.pick.status == "adjusted"
+    assert s03.final_deg("upper") == pytest.approx(proposal + 1.1)
+    assert s03.final_deg("lower") == pytest.approx(lower - 0.5)
+    assert s04.pick.status == "adjusted"
+    assert s04.final_deg("upper") == pytest.approx(s04.proposed_deg("upper"))
+    assert s04.pick.note == "wake hits the frame edge"
+
+
+def test_processing_started_from_window_completes(main_window, make_session, qtbot):
+    path = make_session(3, processed=False)
+    window = _open(main_window, qtbot, path)  # unprocessed shots start processing on open
+    job = window.job
+    assert job is not None and window.progress.isVisible() is not None
+    landed = []
+    job.item_done.connect(lambda outcome: landed.append(window.model.record(outcome.shot_id)))
+    with qtbot.waitSignal(job.finished, timeout=120_000) as blocker:
+        pass
+    outcome = blocker.args[0]
+    assert not outcome.error and not outcome.cancelled
+    assert outcome.value.processed + outcome.value.failed == 3
+    assert [r.state for r in landed] == [window.model.record(r.shot_id).state for r in landed]
+    assert all(window.model.record(s).state != "unprocessed" for s in ("s01", "s02", "s03"))
+    assert window.job is None
+    current = window.model.current_id
+    if window.model.record(current).state == "processed":
+        assert window.canvas.shot.result is not None
+
+
+def test_cancel_stops_processing(main_window, make_session, qtbot, _private_user_files):
+    path = make_session(5, processed=False)
+    window = main_window(workers=0)
+    window.act_auto.setChecked(False)
+    assert window.open_session(path)
+    assert window.job is None  # the preference was off
+    job = window.start_processing()
+    with qtbot.waitSignal(job.item_done, timeout=60_000):
+        pass
+    window.cancel_processing()
+    with qtbot.waitSignal(job.finished, timeout=60_000) as blocker:
+        pass
+    assert blocker.args[0].cancelled
+    states = [window.model.record(s).state for s in window.model.shot_ids()]
+    assert states.count("unprocessed") >= 1
+
+
+def test_screenshot_of_a_processed_shot_is_not_blank(main_window, make_session, qtbot, tmp_path):
+    path = make_session(3)
+    window = _open(main_window, qtbot, path, show=True)
+    qtbot.wait(50)
+    image = window.grab().toImage()
+    image.save(str(tmp_path / "window.png"))
+    canvas_rect = window.canvas.graphics.geometry()
+    origin = window.canvas.graphics.mapTo(window, QPoint(0, 0))
+    crop = image.copy(origin.x(), origin.y(), canvas_rect.width(), canvas_rect.height())
+    crop = crop.convertToFormat(crop.Format.Format_RGB32)
+    raw = np.frombuffer(crop.constBits(), dtype=np.uint8)
+    pixels = raw.reshape(crop.height(), crop.bytesPerLine() // 4, 4)[:, : crop.width(), :3]
+    colours = np.unique(pixels.reshape(-1, 3) // 16, axis=0)
+    assert len(colours) > 200  # particles, vorticity map, vectors, marks: far from blank
+    # the upper mark's own colour is in the picture
+    assert np.any(np.all(np.abs(pixels.astype(int) - [0x2b, 0x4c, 0x9a]) < 12, axis=-1))
+
+
+def test_failed_shot_shows_its_reason(main_window, make_session, qtbot):
+    path = make_session(2)
+    with Session.open(path) as session:
+        session.save_failure("s02", "shot s02: no ball found in frame A")
+    window = _open(main_window, qtbot, path)
+    window.model.set_current("s02")
+    assert "no ball found" in window.canvas.message.text()
+    assert window.canvas.message.isVisibleTo(window)
+    assert "no ball found" in window.readout.problem.text()
+    row = window.shot_list.table_model.row_of("s02")
+    index = window.shot_list.table_model.index(row, 0)
+    assert "no ball found" in index.data(Qt.ItemDataRole.ToolTipRole)
+    assert index.data(Qt.ItemDataRole.DecorationRole) is not None
+
+
+def test_bad_drops_give_a_message_not_a_crash(main_window, make_session, qtbot, tmp_path):
+    window = main_window(workers=0)
+    junk = tmp_path / "junk.h5"
+    junk.write_bytes(b"this is not a session")
+    mime = QMimeData()
+    mime.setUrls([QUrl.fromLocalFile(str(junk))])
+    drop = QDropEvent(QPointF(10, 10), Qt.DropAction.CopyAction, mime,
+                      Qt.MouseButton.LeftButton, Qt.KeyboardModifier.NoModifier)
+    window.dropEvent(drop)
+    assert "junk.h5" in window.last_problem
+    assert window.model.session is None
+    empty = tmp_path / "no_manifest"
+    empty.mkdir()
+    window.open_dropped(empty)
+    assert "shots.csv" in window.last_problem
+    path = make_session(2)
+    window.open_dropped(__import__("pathlib").Path(path))
+    assert window.model.session is not None
+
+
+def test_settings_layers_and_recent_sessions_are_kept(main_window, make_session, qtbot):
+    path = make_session(2)
+    first = _open(main_window, qtbot, path)
+    first.canvas.vectors_box.setChecked(False)
+    first.canvas.stride_box.setValue(3)
+    first.resize(760, 560)  # within the offscreen screen, which restoreGeometry clamps to
+    first.close()
+    second = main_window(workers=0)
+    assert not second.canvas.vectors_box.isChecked()
+    assert second.canvas.stride_box.value() == 3
+    assert second.size().width() == 760
+    assert second.recent_sessions()[0].endswith("review.h5")
+
+
+def test_filter_by_status_and_metadata(main_window, make_session, qtbot):
+    path = make_session(5)
+    window = _open(main_window, qtbot, path)
+    window.set_status("accepted")
+    window.model.set_current("s03")
+    window.set_status("accepted")
+    panel = window.shot_list
+    panel.status_filter.setCurrentText("accepted")
+    assert panel.visible_ids() == ["s01", "s03"]
+    panel.status_filter.setCurrentText("all shots")
+    panel.text_filter.setText("seam_deg:0..20")  # seams -10, 0, 15, 30, 45
+    assert panel.visible_ids() == ["s02", "s03"]
+    panel.text_filter.setText("seam_deg>20")
+    assert panel.visible_ids() == ["s04", "s05"]
+    panel.text_filter.setText("s0")
+    assert len(panel.visible_ids()) == 5
+    panel.text_filter.clear()
+    panel.view.sortByColumn(3, Qt.SortOrder.DescendingOrder)  # upper angle, largest first
+    uppers = [window.model.record(s).proposed_deg("upper") for s in panel.visible_ids()]
+    assert uppers == sorted(uppers, reverse=True)
+
+
+def test_unexpected_error_is_logged_and_shown(main_window, make_session, qtbot):
+    import logging
+
+    from app.window import install_excepthook, log_file
+
+    path = make_session(2)
+    window = _open(main_window, qtbot, path)
+    handler = logging.FileHandler(log_file(), encoding="utf-8")
+    logging.getLogger("wakeline").addHandler(handler)
+    saved = sys.excepthook
+    install_excepthook(window)
+    try:
+        try:
+            raise RuntimeError("a slot went wrong")
+        except RuntimeError as exc:
+            sys.excepthook(type(exc), exc, exc.__traceback__)
+    finally:
+        sys.excepthook = saved  # the hook holds the window
+        logging.getLogger("wakeline").removeHandler(handler)
+        handler.close()
+    assert "a slot went wrong" in window.last_problem
+    assert "a slot went wrong" in log_file().read_text(encoding="utf-8")
+    assert window.model.session is not None
+
+
+def test_shortcut_list_names_the_review_keys(main_window):
+    window = main_window(workers=0)
+    html = window.shortcut_table_html()
+    for text in ("Accept proposal", "Mark unusable", "Nudge upper mark rearward 0.5°", "Undo"):
+        assert text in html
+    assert window.export_menu.title() == "&Export"
