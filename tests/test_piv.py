@@ -244,3 +244,19 @@ def test_blank_frames_give_no_vectors_rather_than_invented_ones():
     assert not np.any(vf.valid) and not np.any(vf.replaced)
     assert np.all(np.isnan(vf.dx_px))
     assert any("no correlation peak" in w for w in vf.warnings)
+
+
+def test_out_of_plane_loss_of_pairs_lowers_the_peak_ratio():
+    # loss of pairs F_O ~ 1 - |dz|/dz0 weakens the correlation peak (Keane & Adrian 1992, memory)
+    settings = PivSettings(passes=(PivPass(32, 0.5),))
+    ratios = []
+    for dz in (0.0, 12.0):
+        a, b = synth.particle_pair(
+            (256, 256),
+            synth.uniform(1.5, 0.5),
+            out_of_plane_px=dz,
+            sheet_thickness_px=16.0,
+            seed=8,
+        )
+        ratios.append(np.median(correlate_pair(a, b, settings=settings).peak_ratio))
+    assert ratios[1] < 0.7 * ratios[0]
