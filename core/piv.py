@@ -16,6 +16,11 @@ Method (each step a published one, named where it is used):
 
 Conventions: image coordinates (x = column right, y = row down, origin at the top-left pixel
 centre); a window of ``D`` px starting at pixel ``j`` has its centre at ``j + (D - 1)/2``.
+
+Known limit: cubic B-spline resampling of 2-3.5 px particle images shifts them slightly wrong
+by an amount that depends on the fractional part of the half-displacement; on synthetic images
+this leaves a periodic bias of up to about 0.015 px (zero at whole and half-pixel half-shifts).
+Quintic resampling cuts it about threefold at twice the resampling cost.
 """
 
 from __future__ import annotations
@@ -360,11 +365,12 @@ class _Predictor:
             _interpolate_grid(self.grid, self.dy, grid.y_px, grid.x_px),
         )
 
-    def dense(self, shape) -> tuple[np.ndarray, np.ndarray]:
+    def dense_half(self, shape) -> tuple[np.ndarray, np.ndarray]:
+        """Half the predictor at every pixel, ``(H, W)`` float64 each (the symmetric shift)."""
         rows, cols = np.arange(shape[0]), np.arange(shape[1])
         return (
-            _interpolate_grid(self.grid, self.dx, rows, cols).astype(np.float32),
-            _interpolate_grid(self.grid, self.dy, rows, cols).astype(np.float32),
+            _interpolate_grid(self.grid, 0.5 * self.dx, rows, cols),
+            _interpolate_grid(self.grid, 0.5 * self.dy, rows, cols),
         )
 
 
@@ -420,9 +426,7 @@ class _Frames:
 
     def deformed(self, predictor: _Predictor):
         """Both frames (and masks) deformed symmetrically by half the predictor."""
-        half_x, half_y = predictor.dense(self.a.shape)
-        half_x *= 0.5
-        half_y *= 0.5
+        half_x, half_y = predictor.dense_half(self.a.shape)
         ca, cb = self.coefficients()
         out_a = np.empty(self.a.shape, np.float32)
         out_b = np.empty(self.a.shape, np.float32)
