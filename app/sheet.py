@@ -542,8 +542,10 @@ def _paint_shot(p, cell, record, result) -> None:
     p.drawRoundedRect(rect_mm(x + w - 30, y + 1.5, 28, 5), mm(2.4), mm(2.4))
     text(p, rect_mm(x + w - 30, y + 1.5, 28, 5), pill, 8, bold=True, colour="#ffffff",
          flags=QtCore.Qt.AlignmentFlag.AlignCenter)
-    text(p, rect_mm(x + w * 0.42, y + 2.2, w * 0.58 - 33, 5), _metadata_line(record), 7.5,
-         colour=colours.MUTED_INK, flags=QtCore.Qt.AlignmentFlag.AlignRight)
+    narrow = w < 120  # two panels across: the metadata goes with the numbers instead
+    if not narrow:
+        text(p, rect_mm(x + w * 0.42, y + 2.2, w * 0.58 - 33, 5), _metadata_line(record), 7.5,
+             colour=colours.MUTED_INK, flags=QtCore.Qt.AlignmentFlag.AlignRight)
     y += 10
     h -= 10
     side_by_side = w > 1.25 * h
@@ -552,7 +554,7 @@ def _paint_shot(p, cell, record, result) -> None:
         pic = (x, y, w - text_w - 4, h)
         info = (x + w - text_w, y, text_w, h)
     else:
-        pic_h = h * 0.56
+        pic_h = h * (0.5 if narrow else 0.56)
         pic = (x, y, w, pic_h)
         info = (x, y + pic_h + 3, w, h - pic_h - 3)
     if result is None:
@@ -563,7 +565,7 @@ def _paint_shot(p, cell, record, result) -> None:
              flags=QtCore.Qt.AlignmentFlag.AlignCenter)
     else:
         _paint_field(p, pic, record, result)
-    _paint_numbers(p, info, record)
+    _paint_numbers(p, info, record, with_metadata=narrow)
 
 
 def _metadata_line(record) -> str:
@@ -819,7 +821,8 @@ def _round_length(value_mm: float) -> float:
     return max(m * mag for m in (1, 2, 5) if m * mag <= value_mm)
 
 
-def _paint_numbers(p, info, record) -> None:
+def _paint_numbers(p, info, record, with_metadata: bool = False) -> None:
+    """The shot's numbers, most important first (rows that do not fit are left out)."""
     x, y, w, h = info
     summary = record.summary or {}
     sep = summary.get("separation") or {}
@@ -842,15 +845,17 @@ def _paint_numbers(p, info, record) -> None:
     for side, colour in (("upper", colours.UPPER_SIDE), ("lower", colours.LOWER_SIDE)):
         row(side, _final_text(record, side), colour, size + 2.2, bold=True, gap=0.2)
         row("", _side_detail(record, sep, side), colours.MUTED_INK, size - 0.6, gap=1.6)
-    row("wake", _wake_text(sep))
-    row("flight", _flight_text(summary.get("flight") or {}))
-    row("vectors", _vector_text(summary.get("vectors")))
-    row("timing", _timing_text(md, summary))
     row("review", _review_text(record), colours.STATUS_COLOURS.get(record.pick.status, colours.INK),
         bold=True)
     if record.pick.reason:
         row("reason", record.pick.reason)
     row("note", record.pick.note or "-")
+    row("wake", _wake_text(sep))
+    row("flight", _flight_text(summary.get("flight") or {}))
+    if with_metadata:
+        row("shot", _metadata_line(record).replace("   ", ", ") or "-")
+    row("vectors", _vector_text(summary.get("vectors")))
+    row("timing", _timing_text(md, summary))
     if md.get("notes"):
         row("shot notes", str(md["notes"]))
     warnings = summary.get("warnings") or []
