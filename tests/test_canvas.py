@@ -1,0 +1,188 @@
+"""The shot canvas on its own: arrows, layers, the constrained marks and the cursor readout."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from conftest import analytic_result, synthetic_frames
+
+from app.canvas import CanvasShot, ShotCanvas, arrow_segments, vorticity_image
+from app.colours import symmetric_limit
+from core.geometry import angle_of_point, flight_unit, point_at_angle
+from core.shot import ShotSettings
+
+pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
+
+
+@pytest.fixture(scope="module")
+def shot_data():
+    frame_a, frame_b, truth = synthetic_frames(1)
+    settings = ShotSettings(dt_s=truth.dt_s, scale_mm_per_px=truth.scale_mm_per_px,
+                            ball_diameter_mm=truth.ball_diameter_mm)
+    return frame_a, frame_b, analytic_result(truth, settings)
+
+
+@pytest.fixture
+def canvas(qtbot, shot_data):
+    frame_a, frame_b, result = shot_data
+    widget = ShotCanvas()
+    qtbot.addWidget(widget)
+    widget.resize(900, 650)
+    widget.show_shot(CanvasShot("t1", frame_a, frame_b, result,
+                                proposed_deg={"upper": 10.5, "lower": -3.0},
+                                final_deg={"upper": None, "lower": None}))
+    return widget
+
+
+def _points(item) -> np.ndarray:
+    x, y = item.getData()
+    return np.zeros((0, 2)) if x is None else np.column_stack([x, y])
+
+
+def test_arrow_segments_match_the_drawn_shape():
+    # derived: shaft tail->tip; head strokes of 0.3 length turned +-25 deg back from the tip
+    xs, ys = arrow_segments(np.array([2.0]), np.array([5.0]), np.array([10.0]), np.array([0.0]))
+    pts = np.column_stack([xs, ys])
+    assert pts.shape == (6, 2)
+    assert pts[0] == pytest.approx([2, 5]) and pts[1] == pytest.approx([12, 5])
+    back, side = 3 * math.cos(math.radians(25)), 3 * math.sin(math.radians(25))
+    heads = sorted([tuple(pts[3]), tuple(pts[5])], key=lambda p: p[1])
+    assert heads[0] == pytest.approx((12 - back, 5 - side))
+    assert heads[1] == pytest.approx((12 - back, 5 + side))
+    assert pts[2] == pytest.approx([12, 5]) and pts[4] == pytest.approx([12, 5])
+
+
+def test_vectors_are_one_item_per_kind_with_a_stride(canvas, shot_data):
+    vf = shot_data[2].field
+    good = ~vf.masked & ~vf.replaced
+    assert len(_points(canvas.vectors)) == 6 * good.sum()
+    assert len(_points(canvas.replaced)) == 6 * (vf.replaced & ~vf.masked).sum()
+    assert len(canvas.masked.data) == vf.masked.sum()
+    canvas.stride_box.setValue(2)
+    assert len(_points(canvas.vectors)) == 6 * good[::2, ::2].sum()
+    canvas.vectors_box.setChecked(False)
+    assert len(_points(canvas.vectors)) == 0 and len(_points(canvas.replaced)) == 0
+
+
+def test_marks_are_held_on_the_ball_outline(canvas, shot_data):
+    result = shot_data[2]
+    centre, radius = result.ball_a.center_px, result.ball_a.radius_px
+    flight = result.flight.direction_deg
+    handle = canvas.handle("upper")
+    x, y = handle.pos().x(), handle.pos().y()
+    assert angle_of_point(centre, flight, "upper", (x, y)) == pytest.approx(10.5)
+    far = point_at_angle(centre, 4 * radius, flight, "upper", 33.0)
+    handle.setPos(*far)
+    px, py = handle.pos().x(), handle.pos().y()
+    assert math.hypot(px - centre[0], py - centre[1]) == pytest.approx(radius)
+    assert angle_of_point(centre, flight, "upper", (px, py)) == pytest.approx(33.0)
+
+
+def test_final_angle_wins_and_the_proposal_stays_visible(canvas, shot_data):
+    result = shot_data[2]
+    canvas.update_marks({"upper": 10.5, "lower": -3.0}, {"upper": 20.0, "lower": -3.0})
+    assert canvas.mark_angle("upper") == 20.0
+    proposals = canvas.overlay.proposals.data
+    assert len(proposals) == 1  # only where the final angle differs from the proposal
+    expected = point_at_angle(result.ball_a.center_px, result.ball_a.radius_px,
+                              result.flight.direction_deg, "upper", 10.5)
+    assert (proposals[0]["x"], proposals[0]["y"]) == pytest.approx(expected)
+    assert canvas.overlay.labels["upper"].textItem.toPlainText() == "U +20.0°"
+
+
+def test_flight_arrow_and_plane_normal_through_the_centre(canvas, shot_data):
+    result = shot_data[2]
+    (cx, cy), fx_fy = result.ball_a.center_px, flight_unit(result.flight.direction_deg)
+    shaft = _points(canvas.overlay.flight)[:2]
+    direction = (shaft[1] - shaft[0]) / np.linalg.norm(shaft[1] - shaft[0])
+    assert direction == pytest.approx(fx_fy, abs=1e-9)
+    plane = _points(canvas.overlay.plane)
+    assert plane.mean(axis=0) == pytest.approx([cx, cy])
+    assert np.dot(plane[1] - plane[0], fx_fy) == pytest.approx(0.0, abs=1e-9)
+
+
+def test_cursor_readout_gives_position_velocity_and_vorticity(canvas, shot_data):
+    result = shot_data[2]
+    vf = result.field
+    row, col = 3, 25
+    assert not vf.masked[row, col]
+    text = canvas.describe_point(float(vf.x_px[row, col]) + 1.0, float(vf.y_px[row, col]) - 1.0)
+    u, v_up = result.u_m_s[row, col], -result.v_m_s[row, col]
+    assert f"u {u:+8.3f}" in text and f"v {v_up:+8.3f}" in text
+    assert f"|V| {math.hypot(u, v_up):7.3f}" in text
+    assert f"ω {result.vorticity_1_s[row, col]:+9.1f}" in text
+    x_mm = (float(vf.x_px[row, col]) + 1.0) * result.scale_mm_per_px
+    assert f"{x_mm:6.2f}" in text
+    centre = result.ball_a.center_px
+    assert "masked" in canvas.describe_point(*centre)
+    assert canvas.describe_point(-500.0, -500.0).startswith("x")
+
+
+def test_vorticity_scale_is_symmetric_and_adjustable(canvas, shot_data):
+    w = shot_data[2].vorticity_1_s
+    low, high = canvas.colour_bar.levels()
+    assert low == -high
+    assert high == pytest.approx(symmetric_limit(w), rel=0.05)
+    canvas.auto_box.setChecked(False)
+    canvas.limit_box.setValue(250.0)
+    assert canvas.colour_bar.levels() == (-250.0, 250.0)
+    # over the picture, still air is see-through and strong vorticity nearly opaque
+    rgba = vorticity_image(np.array([[0.0, 250.0, -1000.0, np.nan]]), 250.0, see_through=True)
+    assert rgba[0, 0, 3] == 0 and rgba[0, 1, 3] > 200 and rgba[0, 2, 3] > 200
+    assert rgba[0, 3, 3] == 0
+    solid = vorticity_image(np.array([[0.0, np.nan]]), 250.0, see_through=False)
+    assert solid[0, 0, 3] == 255 and solid[0, 1, 3] == 0
+
+
+def test_side_by_side_moves_fields_to_a_linked_view(canvas, qtbot):
+    with qtbot.waitExposed(canvas):
+        canvas.show()
+    canvas.side_box.setChecked(True)
+    qtbot.wait(20)
+    assert canvas.vorticity.getViewBox() is canvas.field_view
+    assert canvas.vectors.getViewBox() is canvas.field_view
+    assert canvas.picture.getViewBox() is canvas.view
+    canvas.view.setRange(xRange=(40, 120), yRange=(50, 110), padding=0)
+    assert canvas.field_view.viewRange()[0] == pytest.approx(canvas.view.viewRange()[0])
+    assert canvas.field_view.viewRange()[1] == pytest.approx(canvas.view.viewRange()[1])
+    canvas.side_box.setChecked(False)
+    assert canvas.vorticity.getViewBox() is canvas.view
+
+
+def test_flicker_alternates_the_frames(canvas, shot_data):
+    frame_a, frame_b, _ = shot_data
+    canvas.picture_box.setCurrentText("flicker A/B")
+    assert canvas._flicker.isActive()
+    shown = [canvas.picture.image.copy()]
+    canvas._on_flicker()
+    shown.append(canvas.picture.image.copy())
+    canvas._on_flicker()
+    shown.append(canvas.picture.image.copy())
+    assert np.array_equal(shown[0], frame_a) and np.array_equal(shown[1], frame_b)
+    assert np.array_equal(shown[2], frame_a)
+    canvas.picture_box.setCurrentText("no picture")
+    assert not canvas._flicker.isActive() and not canvas.picture.isVisible()
+
+
+def test_layer_state_round_trips_and_ignores_stale_keys(qtbot):
+    canvas = ShotCanvas()
+    qtbot.addWidget(canvas)
+    state = canvas.layer_state()
+    state.update({"vectors": False, "stride": 4, "picture": "frame B", "side_by_side": True})
+    other = ShotCanvas()
+    qtbot.addWidget(other)
+    other.restore_layers({**state, "an old key": 1, "marks": "false"})
+    assert other.layer_state() == {**state, "marks": False}
+
+
+def test_shot_without_ball_shows_no_marks(canvas, shot_data):
+    frame_a, frame_b, result = shot_data
+    from dataclasses import replace
+
+    bare = replace(result, ball_a=None, ball_b=None, flight=None, separation=None)
+    canvas.show_shot(CanvasShot("t2", frame_a, frame_b, bare))
+    assert not canvas.handle("upper").isVisible()
+    assert not canvas.overlay.circles["a"][1].isVisible()
+    assert len(_points(canvas.vectors)) > 0
