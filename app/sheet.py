@@ -389,6 +389,12 @@ def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints
     """The session overview as vector graphics: angles against ``pts.column``."""
     p.save()
     plot = frame.adjusted(mm(16), mm(2), -mm(3), -mm(17))
+    if not len(pts):
+        p.fillRect(plot, qcolor(colours.PAPER_TINT))
+        text(p, plot, "No shot with a separation angle to draw.", 9, italic=True,
+             colour=colours.MUTED_INK, flags=QtCore.Qt.AlignmentFlag.AlignCenter)
+        p.restore()
+        return
     p.fillRect(plot, qcolor("#ffffff"))
     ys = np.concatenate([pts.upper_deg, pts.lower_deg]) if len(pts) else np.array([])
     ys = ys[np.isfinite(ys)]
