@@ -37,7 +37,7 @@ from core.geometry import flight_unit, point_at_angle, side_normal
 PAGE_W_MM, PAGE_H_MM = 210.0, 297.0
 MARGIN_MM = 14.0
 HEADER_MM = 13.0
-FOOTER_MM = 13.0
+FOOTER_MM = 15.0
 DPI = 300
 PANEL_GAP_MM = 6.0
 PER_PAGE_CHOICES = (1, 2, 3, 4)
@@ -49,8 +49,8 @@ CONVENTIONS = (
     "+ rearward (add 90 for the angle from the front stagnation point). Upper = side toward the "
     "top of the picture. Flight direction: 0 deg = toward +x (right), 90 deg = toward the top. "
     "Vorticity in 1/s, counter-clockwise on the page positive. Velocity in m/s, lab frame. "
-    "Shot pictures: dashed line = plane normal to the flight; arrow = flight; filled dot = final "
-    "separation; hollow dot = the proposal where the analyst moved the mark."
+    "Pictures: dashed line = plane normal to the flight; arrow = flight; filled dot = final "
+    "separation; hollow dot = proposal (grey where the analyst moved the mark; ? = not reviewed)."
 )
 
 
@@ -746,16 +746,26 @@ def _paint_ball(p, view: _View, record, result) -> None:
 
 
 def _paint_mark(p, view: _View, ball, direction_deg: float, side: str, record, colour: str) -> None:
+    """Final separation (filled, labelled) and the proposal where it differs (hollow, dashed).
+
+    A shot not yet reviewed has no final angle: its proposal is drawn in the side's colour and
+    labelled with a question mark, so the sheet still shows where the machine put it.
+    """
     final = record.final_deg(side)
     proposed = record.proposed_deg(side)
     centre, rr = ball.center_px, ball.radius_px
+    open_proposal = final is None and record.pick.status == "to review"
     if proposed is not None and (final is None or abs(final - proposed) > 0.05):
         a = view(*point_at_angle(centre, rr * 1.0, direction_deg, side, proposed))
-        b = view(*point_at_angle(centre, rr * 1.35, direction_deg, side, proposed))
-        p.setPen(pen(colours.PROPOSAL_MARK, 0.35, QtCore.Qt.PenStyle.DashLine))
+        b = view(*point_at_angle(centre, rr * 1.4, direction_deg, side, proposed))
+        p.setPen(pen(colour if open_proposal else colours.PROPOSAL_MARK, 0.4,
+                     QtCore.Qt.PenStyle.DashLine))
         p.drawLine(a, b)
         p.setBrush(qcolor("#ffffff"))
-        p.drawEllipse(a, mm(0.9), mm(0.9))
+        p.drawEllipse(a, mm(1.0), mm(1.0))
+        if open_proposal:
+            _mark_label(p, view(*point_at_angle(centre, rr * 1.75, direction_deg, side, proposed)),
+                        f"{side[0].upper()} {format_angle(proposed)}° ?", colour)
     if final is None:
         return
     a = view(*point_at_angle(centre, rr * 0.92, direction_deg, side, final))
@@ -766,9 +776,12 @@ def _paint_mark(p, view: _View, ball, direction_deg: float, side: str, record, c
     p.drawLine(a, b)
     p.setBrush(qcolor(colour))
     p.drawEllipse(view(*point_at_angle(centre, rr, direction_deg, side, final)), mm(1.0), mm(1.0))
-    label = view(*point_at_angle(centre, rr * 1.75, direction_deg, side, final))
-    tag = f"{'U' if side == 'upper' else 'L'} {format_angle(final)}°"
-    box = QtCore.QRectF(label.x() - mm(9), label.y() - mm(2.2), mm(18), mm(4.4))
+    _mark_label(p, view(*point_at_angle(centre, rr * 1.75, direction_deg, side, final)),
+                f"{side[0].upper()} {format_angle(final)}°", colour)
+
+
+def _mark_label(p, at: QtCore.QPointF, tag: str, colour: str) -> None:
+    box = QtCore.QRectF(at.x() - mm(10), at.y() - mm(2.2), mm(20), mm(4.4))
     p.setPen(QtCore.Qt.PenStyle.NoPen)
     p.setBrush(qcolor("#ffffff", 215))
     p.drawRoundedRect(box, mm(1), mm(1))
