@@ -171,3 +171,17 @@ def test_sheet_command(reviewed_session, tmp_path, capsys):
     with pytest.raises(SystemExit) as exc:
         main(["sheet", reviewed_session, "-o", str(out), "--per-page", "5"])
     assert exc.value.code == 2
+
+
+def test_vorticity_colours_are_symmetric_about_zero():
+    from app import colours
+
+    w = np.array([[-2.0, -1.0, 0.0], [1.0, 2.0, np.nan]])
+    rgba = colours.vorticity_rgb(w, limit_1_s=1.0)
+    assert tuple(rgba[0, 2, :3]) == colours.hex_to_rgb(colours.VORTICITY_STOPS[3][1])  # zero
+    assert tuple(rgba[1, 0, :3]) == colours.hex_to_rgb(colours.VORTICITY_STOPS[-1][1])
+    assert tuple(rgba[0, 1, :3]) == colours.hex_to_rgb(colours.VORTICITY_STOPS[0][1])
+    np.testing.assert_array_equal(rgba[0, 0], rgba[0, 1])  # beyond the limit: clipped
+    np.testing.assert_array_equal(rgba[1, 1], rgba[1, 0])
+    assert rgba[1, 2, 3] == 0 and rgba[0, 0, 3] == 255  # NaN is transparent
+    assert colours.symmetric_limit(np.array([np.nan, 0.0])) == 1.0
