@@ -78,12 +78,12 @@ def vorticity_rgb(vorticity_1_s: np.ndarray, limit_1_s: float) -> np.ndarray:
     (M, N, 4) ndarray of uint8
         RGBA; NaN cells are fully transparent.
     """
-    lut = vorticity_lut(256)
+    lut = vorticity_lut(255)  # odd length: zero falls exactly on the middle entry
     limit = float(limit_1_s) if limit_1_s and np.isfinite(limit_1_s) and limit_1_s > 0 else 1.0
     w = np.asarray(vorticity_1_s, dtype=float)
     finite = np.isfinite(w)
     t = np.clip((np.where(finite, w, 0.0) / limit + 1.0) / 2.0, 0.0, 1.0)
-    index = np.rint(t * 255).astype(int)
+    index = np.rint(t * (len(lut) - 1)).astype(int)
     out = np.zeros(w.shape + (4,), dtype=np.uint8)
     out[..., :3] = lut[index]
     out[..., 3] = np.where(finite, 255, 0)
