@@ -113,6 +113,9 @@ def test_lamb_oseen_swirl_peak_and_vorticity():
     omega = field.vorticity(pts[:, 0], pts[:, 1])
     np.testing.assert_allclose(_numeric_vorticity(field, pts[:, 0], pts[:, 1]), omega, rtol=1e-5)
     assert omega[0] == pytest.approx(200.0 / (math.pi * 64.0))
+    r = np.linspace(0.1, 40.0, 400001)
+    scan = np.hypot(*field(10.0 + r, np.full_like(r, 20.0)))
+    assert field.peak_displacement_px() == pytest.approx(scan.max(), rel=1e-7)
 
 
 def test_uniform_shear_vorticity_sign():
