@@ -34,7 +34,8 @@ def _add_sheet(subparsers) -> None:
         "metadata, review). Needs no display.",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
-    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.pdf")
+    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.pdf",
+                   help="the PDF to write")
     p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
     p.add_argument("--per-page", type=int, default=2, choices=(1, 2, 3, 4), metavar="N",
                    help="shot panels per page: 1, 2 (default), 3 or 4")
@@ -62,9 +63,19 @@ def _add_demo(subparsers) -> None:
                    help="do not open the window; write the shot sheet and the table")
     p.add_argument("--fresh", action="store_true",
                    help="start again from the bundled shots, discarding the demo session's edits")
-    p.add_argument("--workers", type=int, metavar="N",
+    p.add_argument("--workers", type=_count, metavar="N",
                    help="worker processes (default: all cores; 0 = in this process)")
     p.set_defaults(func=run_demo)
+
+
+def _count(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"{value} (use 0 or more)")
+    return value
 
 
 # --- sheet ---------------------------------------------------------------------------------------
@@ -132,7 +143,7 @@ def prepare_demo(folder: Path, fresh: bool = False) -> Path:
         print(f"{session_path}: using the existing demo session (--fresh starts again)")
         return session_path
     frames = folder / "frames"
-    frames.mkdir(exist_ok=True)
+    frames.mkdir(parents=True, exist_ok=True)
     for src in [SAMPLE_RUNS / n for n in DEMO_INPUTS] + sorted(SAMPLE_RUNS.glob("*.tif")):
         if src.is_file():
             shutil.copyfile(src, frames / src.name)
@@ -145,6 +156,15 @@ def prepare_demo(folder: Path, fresh: bool = False) -> Path:
 
 
 def _remove_demo_session(session_path: Path) -> None:
+    from core.session import Session, SessionLocked
+
+    if session_path.exists():
+        try:
+            Session.open(session_path).close()
+        except SessionLocked:
+            raise  # a window has it open: leave it alone
+        except WakelineError:
+            pass  # damaged: starting again is what --fresh is for
     for suffix in ("", ".journal"):
         session_path.with_name(session_path.name + suffix).unlink(missing_ok=True)
     shutil.rmtree(session_path.with_name(session_path.name + ".pending"), ignore_errors=True)

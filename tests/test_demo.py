@@ -162,3 +162,19 @@ def test_has_display_rules(monkeypatch):
     assert not has_display()
     monkeypatch.setenv("WAYLAND_DISPLAY", "wayland-0")
     assert has_display()
+
+
+def test_fresh_demo_starts_again_but_not_under_an_open_window(demo_out, capsys):
+    from app.cli import main
+    from app.cmd_sheet import prepare_demo
+    from core.session import Session
+
+    path = prepare_demo(demo_out)
+    with Session.open(path) as session:
+        session.set_pick("sw02", status="unusable", reason="edited", who="me")
+        assert main(["demo", "--out", str(demo_out), "--fresh", "--no-window"]) == 1
+        assert "open for writing" in capsys.readouterr().err
+    assert prepare_demo(demo_out, fresh=True) == path
+    with Session.open(path, writable=False) as session:
+        assert session.record("sw02").pick.status == "to review"
+        assert session.history("sw02") == []
