@@ -53,6 +53,7 @@ MANIFEST_NAME = "shots.csv"
 FRAME_SUFFIXES = (".tif", ".tiff", ".png")
 
 _HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+_MAX_UNUSED_FRACTION = 0.25  # rewrite the snapshot whole beyond this much dead space
 _UNSET = object()
 
 
@@ -429,6 +430,7 @@ class _Snapshot:
     last_seq: int = 0
     processing: dict = field(default_factory=dict)
     shots: list[dict] = field(default_factory=list)  # index entries, see _index_entry
+    unused_bytes: int = 0
 
 
 def _read_snapshot(path: Path) -> _Snapshot:
@@ -474,6 +476,7 @@ def _load_v1(f: h5py.File) -> _Snapshot:
         last_seq=int(f.attrs["last_seq"]),
         processing=json.loads(str(f.attrs.get("processing_settings", "{}"))),
         shots=list(index["shots"]),
+        unused_bytes=int(f.attrs.get("unused_bytes", 0)),
     )
 
 
@@ -525,6 +528,8 @@ class Session:
         self._dirty = False
         self._closed = False
         self.active_runs = 0  # batch runs in progress (core.batch); see compact()
+        self._touched: set[str] = set()  # shots changed since the snapshot
+        self._unused_bytes = snapshot.unused_bytes  # dead space left by replaced arrays
         for entry in snapshot.shots:
             self._records[entry["shot_id"]] = _record_from_index(entry)
             self._places[entry["shot_id"]] = _Place(
@@ -860,6 +865,7 @@ class Session:
             self._processing = dict(entry["settings"])
             return
         shot_id = entry["shot"]
+        self._touched.add(shot_id)
         if op == "add_shot":
             self._records[shot_id] = ShotRecord(shot_id, dict(entry["metadata"]),
                                                 frames=dict(entry["frames"]))
@@ -896,13 +902,23 @@ class Session:
     # -- internals: snapshot -------------------------------------------------------------------
 
     def _write_snapshot(self) -> None:
+        """Write the next snapshot aside, make it durable, then put it in place."""
         tmp = self.path.with_name(self.path.name + ".tmp")
-        with h5py.File(tmp, "w") as dst:
-            self._fill_snapshot(dst)
+        tmp.unlink(missing_ok=True)
+        if self._patchable():
+            # A byte copy is many times faster than copying object by object; only the shots
+            # changed since the last snapshot are then rebuilt inside the (private) copy.
+            shutil.copyfile(self.path, tmp)
+            with h5py.File(tmp, "a") as dst:
+                self._patch_snapshot(dst)
+        else:
+            with h5py.File(tmp, "w") as dst:
+                self._fill_snapshot(dst)
         _fsync_file(tmp)
         os.replace(tmp, self.path)
         _fsync_dir(self.path.parent)
         self._snapshot_seq = self._seq
+        self._touched.clear()
         for place in self._places.values():
             place.result = "snapshot" if place.result else None
             place.frames = "snapshot" if place.frames else None
@@ -910,7 +926,39 @@ class Session:
                 place.snapshot_history = place.snapshot_history + place.history
             place.history = []
 
+    def _patchable(self) -> bool:
+        """Patch a copy unless replaced results left too much dead space in the file."""
+        if not self.path.exists():
+            return False
+        return self._unused_bytes <= _MAX_UNUSED_FRACTION * self.path.stat().st_size
+
     def _fill_snapshot(self, dst: h5py.File) -> None:
+        self._unused_bytes = 0
+        shots = dst.create_group("shots")
+        old = h5py.File(self.path, "r") if self.path.exists() else None
+        try:
+            for rec in self._records.values():
+                self._fill_shot(shots.create_group(_shot_key(rec.shot_id)), rec, old, False)
+        finally:
+            if old is not None:
+                old.close()
+        self._write_root(dst)
+
+    def _patch_snapshot(self, dst: h5py.File) -> None:
+        shots = dst.require_group("shots")
+        for rec in self._records.values():
+            if rec.shot_id not in self._touched:
+                continue
+            key = _shot_key(rec.shot_id)
+            fresh = key + "%new"  # never a key: quote() writes '%' only before two hex digits
+            self._fill_shot(shots.create_group(fresh), rec, dst, True)
+            if key in shots:
+                self._unused_bytes += _stored_bytes(shots[key])  # what was not moved over
+                del shots[key]
+            shots.move(fresh, key)
+        self._write_root(dst)
+
+    def _write_root(self, dst: h5py.File) -> None:
         dst.attrs["format_version"] = FORMAT_VERSION
         dst.attrs["application"] = "wakeline"
         dst.attrs["software_version"] = __version__
@@ -919,19 +967,17 @@ class Session:
         dst.attrs["saved_utc"] = _now_utc()
         dst.attrs["last_seq"] = self._seq
         dst.attrs["processing_settings"] = _dumps(self._processing)
+        dst.attrs["unused_bytes"] = int(self._unused_bytes)
         index = {"shots": [_index_entry(rec, self._places[rec.shot_id])
                            for rec in self._records.values()]}
+        if "index" in dst:
+            del dst["index"]
         dst.create_dataset("index", data=_dumps(index), dtype=h5py.string_dtype())
-        shots = dst.create_group("shots")
-        old = h5py.File(self.path, "r") if self.path.exists() else None
-        try:
-            for rec in self._records.values():
-                self._fill_shot(shots.create_group(_shot_key(rec.shot_id)), rec, old)
-        finally:
-            if old is not None:
-                old.close()
 
-    def _fill_shot(self, g: h5py.Group, rec: ShotRecord, old: h5py.File | None) -> None:
+    def _fill_shot(self, g: h5py.Group, rec: ShotRecord, old: h5py.File | None,
+                   move: bool) -> None:
+        """Write one shot's group; arrays already in the snapshot are copied from ``old``, or
+        moved when ``old`` is the file being written (``move``)."""
         place = self._places[rec.shot_id]
         g.attrs["shot_id"] = rec.shot_id
         g.attrs["state"] = rec.state
@@ -940,7 +986,7 @@ class Session:
         frames = g.create_group("frames")
         _write_attrs(frames, {k: v for k, v in rec.frames.items() if k != "shape"})
         if place.frames is not None:
-            self._copy_arrays(place.frames, rec.shot_id, "frames", old, frames, ("a", "b"))
+            self._copy_arrays(place.frames, rec.shot_id, "frames", old, frames, move)
         _write_attrs(g.create_group("pick"), rec.pick.to_dict())
         history = self._snapshot_history_from(old, rec.shot_id) + place.history
         g.create_dataset("history", data=[_dumps(p.to_dict()) for p in history],
@@ -948,9 +994,9 @@ class Session:
         if place.result is not None and rec.summary is not None:
             result = g.create_group("result")
             result.attrs["summary"] = _dumps(rec.summary)
-            self._copy_arrays(place.result, rec.shot_id, "result", old, result, None)
+            self._copy_arrays(place.result, rec.shot_id, "result", old, result, move)
 
-    def _copy_arrays(self, place, shot_id, kind, old, dst: h5py.Group, names) -> None:
+    def _copy_arrays(self, place, shot_id, kind, old, dst: h5py.Group, move: bool) -> None:
         if place == "snapshot":
             src_file = old
             src = old[f"shots/{_shot_key(shot_id)}/{kind}"]
@@ -958,8 +1004,11 @@ class Session:
             src_file = h5py.File(self._pending_dir / place, "r")
             src = src_file[kind]
         try:
-            for name in names or [n for n in src if isinstance(src[n], h5py.Dataset)]:
-                src_file.copy(src[name], dst, name=name)
+            for name in [n for n in src if isinstance(src[n], h5py.Dataset)]:
+                if move and src_file is old:
+                    old.move(src[name].name, f"{dst.name}/{name}")
+                else:
+                    src_file.copy(src[name], dst, name=name)
         finally:
             if src_file is not old:
                 src_file.close()
@@ -1003,6 +1052,14 @@ class Session:
 
     def _resolve(self, stored: str) -> Path:
         return (self.path.resolve().parent / stored).resolve()
+
+
+def _stored_bytes(group: h5py.Group) -> int:
+    """Bytes of dataset storage under ``group``."""
+    sizes = []
+    group.visititems(lambda _, obj: sizes.append(
+        obj.id.get_storage_size() if isinstance(obj, h5py.Dataset) else 0))
+    return sum(sizes)
 
 
 def _history_in(f: h5py.File, shot_id: str) -> list[Pick]:

@@ -339,3 +339,25 @@ def test_settings_change_marks_shots_for_processing(session_path):
             s.set_processing_settings({"windows": 3})
     with Session.open(session_path, writable=False) as s:
         assert s.processing_settings()["piv"]["passes"][0]["window_px"] == 48
+
+
+def test_repeated_reprocessing_does_not_grow_the_file_without_bound(session_path):
+    sizes, unused = [], []
+    for run in range(8):
+        with Session.open(session_path) as s:
+            for shot_id in s.shot_ids():
+                s.save_result(shot_id, fake_result(s.settings_for(shot_id), float(run),
+                                                   shape=(40, 50)))
+            s.set_pick("S0", status="adjusted", upper_deg=float(run))
+        sizes.append(session_path.stat().st_size)
+        with h5py.File(session_path, "r") as f:
+            unused.append(int(f.attrs["unused_bytes"]))
+    # Replaced results leave dead space until a whole rewrite reclaims it.
+    assert max(unused) > 0 and 0 in unused[1:]
+    assert max(sizes) < 2.0 * sizes[0]
+    with Session.open(session_path, writable=False) as s:
+        assert s.record("S2").proposed_deg("upper") == 7.0
+        assert s.load_result("S2").separation.upper.angle_deg == 7.0
+        assert [p.upper_deg for p in s.history("S0")] == [float(r) for r in range(8)]
+        with h5py.File(session_path, "r") as f:
+            assert sorted(f["shots"]) == ["S0", "S1", "S2"]
