@@ -441,10 +441,11 @@ class ShotCanvas(QWidget):
         )
         self.colour_bar.setTitle("ω 1/s", color="#e6e2d8", size="9pt")
         self.colour_bar.setToolTip("vorticity, 1/s; positive = counter-clockwise on screen")
-        for name in ("left", "right", "top", "bottom"):
-            axis = self.colour_bar.getAxis(name)
-            axis.setPen(_pen("#c9c6bd", 1.0))
-            axis.setTextPen(_pen("#e6e2d8", 1.0))
+        for name in ("left", "top", "bottom"):
+            self.colour_bar.hideAxis(name)  # one labelled axis: less to paint on every step
+        axis = self.colour_bar.getAxis("right")
+        axis.setPen(_pen("#c9c6bd", 1.0))
+        axis.setTextPen(_pen("#e6e2d8", 1.0))
         self.graphics.addItem(self.colour_bar, row=0, col=2)
         self.overlay = _Overlay(self.view, draggable=True)
         self.field_overlay = _Overlay(self.field_view, draggable=False)
@@ -634,7 +635,8 @@ class ShotCanvas(QWidget):
         self.vorticity.setImage(vorticity_image(w, limit, on_picture), levels=(0, 255),
                                 autoLevels=False)
         self.vorticity.setRect(QRectF(x0 - sp / 2, y0 - sp / 2, cols * sp, rows * sp))
-        self.colour_bar.setLevels((-limit, limit))
+        if tuple(self.colour_bar.levels()) != (-limit, limit):
+            self.colour_bar.setLevels((-limit, limit))
 
     def _draw_vectors(self, vf) -> None:
         show = self.vectors_box.isChecked() and vf is not None
@@ -842,7 +844,8 @@ def _picture_levels(shot: CanvasShot | None) -> tuple[float, float]:
     frames = [] if shot is None else [f for f in (shot.frame_a, shot.frame_b) if f is not None]
     if not frames:
         return 0.0, 1.0
-    sample = np.concatenate([np.asarray(f)[::4, ::4].ravel() for f in frames])
+    step = max(1, int(math.sqrt(frames[0].size / 40_000)))  # ~40 000 samples per frame
+    sample = np.concatenate([np.asarray(f)[::step, ::step].ravel() for f in frames])
     low, high = np.percentile(sample, [0.5, 99.7])
     if high <= low:
         high = low + 1.0

@@ -34,8 +34,21 @@ class PickEdit(QUndoCommand):
         current = pick_values(model.record(shot_id).pick)
         self.before = {name: current[name] for name in changes}
         self.after = dict(changes)
+        self._applied = False
+
+    def apply(self) -> None:
+        """Make the edit now, before the command goes on the undo stack.
+
+        A refused edit (``core.WakelineError``) raises here, where the window can report it,
+        instead of inside ``QUndoStack.push`` (Qt cannot pass exceptions back from ``redo``).
+        """
+        self._model.apply_pick(self.shot_id, **self.after)
+        self._applied = True
 
     def redo(self) -> None:
+        if self._applied:  # the push right after apply(): already done
+            self._applied = False
+            return
         self._model.apply_pick(self.shot_id, **self.after)
 
     def undo(self) -> None:

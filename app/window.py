@@ -196,6 +196,8 @@ class MainWindow(QMainWindow):
                              "Ctrl+P")
         self.act_reprocess = a("&Reprocess this shot", self.reprocess_current, "Ctrl+Shift+P")
         self.act_cancel = a("&Cancel processing", self.cancel_processing, "Ctrl+.")
+        self.act_check = a("Check &frame files", lambda: self.check_frames(),
+                           tip="look for frame files that are missing or changed since import")
         self.act_auto = a("Process new shots when a session &opens", self._on_auto_toggled,
                           checkable=True)
         self.act_keys = a("&Keyboard shortcuts", self.show_shortcuts, QKeySequence.StandardKey.HelpContents)
@@ -231,7 +233,7 @@ class MainWindow(QMainWindow):
                        self.act_side, self.act_fit):
             view.addAction(action)
         process = menu.addMenu("&Process")
-        for action in (self.act_process, self.act_reprocess, self.act_cancel):
+        for action in (self.act_process, self.act_reprocess, self.act_cancel, self.act_check):
             process.addAction(action)
         process.addSeparator()
         process.addAction(self.act_auto)
@@ -334,7 +336,6 @@ class MainWindow(QMainWindow):
         if ids:
             self.model.set_current(ids[0])
         self.shot_list.view.setFocus()
-        self._report_frame_problems()
         unprocessed = self.model.unprocessed_ids()
         if unprocessed and self.act_auto.isChecked() and not self.model.read_only:
             self.start_processing(unprocessed)
@@ -347,14 +348,29 @@ class MainWindow(QMainWindow):
                                       f"{text}\n\nOpen it read-only to look at it?")
         return answer == QMessageBox.StandardButton.Yes
 
-    def _report_frame_problems(self) -> None:
+    def check_frames(self) -> BackgroundJob | None:
+        """Check every shot's frame files (checksums) in the background and report problems."""
         session = self.model.session
-        problems = session.check_frames() if session is not None else {}
-        if problems:
-            lines = [problems[k] for k in sorted(problems)][:10]
-            more = len(problems) - len(lines)
-            text = "\n".join(lines) + (f"\n… and {more} more" if more > 0 else "")
-            self.show_problem("Frame files changed or missing", text)
+        if session is None or self.job is not None:
+            return None
+        job = BackgroundJob(lambda _report, _stop: session.check_frames(), self)
+        job.finished.connect(self._on_frames_checked)
+        self._start_job(job, "Checking frame files", 0, cancellable=False)
+        return job
+
+    def _on_frames_checked(self, outcome: JobOutcome) -> None:
+        self._end_job()
+        if outcome.error:
+            self.show_problem("Checking frame files", outcome.error)
+            return
+        problems = outcome.value or {}
+        if not problems:
+            self.statusBar().showMessage("Every frame file is present and unchanged.", 6000)
+            return
+        lines = [problems[k] for k in sorted(problems)][:10]
+        more = len(problems) - len(lines)
+        text = "\n".join(lines) + (f"\n… and {more} more" if more > 0 else "")
+        self.show_problem("Frame files changed or missing", text)
 
     def close_session(self) -> None:
         if self.job is not None:
@@ -402,7 +418,7 @@ class MainWindow(QMainWindow):
         job = import_job(folder, session_path, self)
         job.item_done.connect(self._on_import_item)
         job.finished.connect(lambda outcome: self._on_import_finished(outcome, session_path))
-        self._start_job(job, "Importing", 0)
+        self._start_job(job, "Importing", 0, cancellable=False)
         return job
 
     def _on_import_item(self, item) -> None:
@@ -455,14 +471,16 @@ class MainWindow(QMainWindow):
             self.job.cancel()
             self.progress_label.setText("Stopping after the shots already running…")
 
-    def _start_job(self, job: BackgroundJob, verb: str, total: int) -> None:
+    def _start_job(self, job: BackgroundJob, verb: str, total: int,
+                   cancellable: bool = True) -> None:
         self.job = job
         self.progress.setRange(0, total)
         self.progress.setValue(0)
         self.progress.setFormat("%v / %m" if total else "")
         self.progress_label.setText(f"{verb}…")
-        for widget in (self.progress_label, self.progress, self.cancel_button):
+        for widget in (self.progress_label, self.progress):
             widget.show()
+        self.cancel_button.setVisible(cancellable)
         self._update_enabled()
         job.start()
 
@@ -564,11 +582,14 @@ class MainWindow(QMainWindow):
         return bool(self.model.current_id) and not self.model.read_only
 
     def _push(self, command) -> None:
+        """Apply an edit (saved at once) and put it on the undo stack; report a refusal."""
         try:
-            self.undo_stack.push(command)
+            command.apply()
         except WakelineError as exc:
             self.show_problem("Edit not saved", str(exc))
             self._show_current(full=False)
+            return
+        self.undo_stack.push(command)
 
     def set_status(self, status: str, reason: str | None = None) -> None:
         """Review the current shot: accepted, adjusted, unusable (asks for a reason) or to review."""
@@ -655,6 +676,7 @@ class MainWindow(QMainWindow):
         self.act_process.setEnabled(writable and not busy)
         self.act_reprocess.setEnabled(writable and has_shot and not busy)
         self.act_cancel.setEnabled(busy)
+        self.act_check.setEnabled(has_session and not busy)
         self.act_import.setEnabled(not busy)
         self.export_menu.setEnabled(has_session and bool(self.export_menu.actions()))
 

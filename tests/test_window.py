@@ -350,3 +350,64 @@ def test_shortcut_list_names_the_review_keys(main_window):
     for text in ("Accept proposal", "Mark unusable", "Nudge upper mark rearward 0.5°", "Undo"):
         assert text in html
     assert window.export_menu.title() == "&Export"
+
+
+def test_import_folder_from_the_window_opens_the_new_session(main_window, qtbot, tmp_path):
+    from conftest import synthetic_frames
+
+    from core.images import write_frame
+
+    folder = tmp_path / "launches"
+    folder.mkdir()
+    rows = ["shot,dt_s,scale_mm_per_px,ball_diameter_mm,seam_deg"]
+    for index in range(2):
+        frame_a, frame_b, truth = synthetic_frames(index)
+        write_frame(folder / f"L{index}_a.tif", frame_a)
+        write_frame(folder / f"L{index}_b.tif", frame_b)
+        rows.append(f"L{index},{truth.dt_s},{truth.scale_mm_per_px},71.6,{10 * index}")
+    rows.append("L9,2e-5,0.1,71.6,0")  # no frames: reported, the rest still imported
+    (folder / "shots.csv").write_text("\n".join(rows) + "\n", encoding="utf-8")
+    window = main_window(workers=0)
+    window.act_auto.setChecked(False)
+    job = window.import_folder(folder, tmp_path / "launches.h5")
+    with qtbot.waitSignal(job.finished, timeout=60_000):
+        pass
+    assert window.model.shot_ids() == ["L0", "L1"]
+    assert "L9" in window.last_problem
+    assert window.model.current_id == "L0"
+    assert "Not processed yet" in window.canvas.message.text()
+
+
+def test_closing_during_processing_stops_the_worker(main_window, make_session, qtbot):
+    path = make_session(3, processed=False)
+    window = main_window(workers=0)
+    window.act_auto.setChecked(False)
+    assert window.open_session(path)
+    job = window.start_processing()
+    ended = []
+    job.finished.connect(ended.append)
+    window.close()  # must not leave a running thread behind
+    assert not job.is_running() and ended and ended[0].cancelled
+    assert window.model.session is None
+
+
+def test_a_session_held_elsewhere_is_reported(main_window, make_session, qtbot):
+    path = make_session(2)
+    with Session.open(path):
+        window = main_window(workers=0)
+        assert not window.open_session(path)
+        assert "Session in use" in window.last_problem
+        assert window.model.session is None
+
+
+def test_frame_check_reports_a_changed_file(main_window, make_session, qtbot, tmp_path):
+    path = make_session(2)
+    frame = tmp_path / "review_frames" / "s02_b.tif"
+    frame.write_bytes(frame.read_bytes()[:-64] + bytes(64))
+    window = _open(main_window, qtbot, path)
+    window.model.set_current("s02")
+    assert "s02" in window.canvas.message.text()  # shown in place when the shot is drawn
+    job = window.check_frames()
+    with qtbot.waitSignal(job.finished, timeout=30_000):
+        pass
+    assert "s02" in window.last_problem and "s01" not in window.last_problem
