@@ -610,16 +610,19 @@ class Session:
 
     def shot_ids(self) -> list[str]:
         """Shot ids in import order."""
-        return list(self._records)
+        with self._mutex:
+            return list(self._records)
 
     def record(self, shot_id: str) -> ShotRecord:
         """A copy of one shot's cheap record."""
-        rec = self._get(shot_id)
-        return replace(rec, pick=replace(rec.pick), metadata=dict(rec.metadata))
+        with self._mutex:  # another thread may be saving results (core.batch)
+            rec = self._get(shot_id)
+            return replace(rec, pick=replace(rec.pick), metadata=dict(rec.metadata))
 
     def records(self) -> list[ShotRecord]:
         """Copies of every shot's record, in import order (no file access)."""
-        return [self.record(shot_id) for shot_id in self._records]
+        with self._mutex:
+            return [self.record(shot_id) for shot_id in self._records]
 
     def processing_settings(self) -> dict:
         """Session-wide processing settings: ``{"piv": PivSettings dict, "find_ball": bool}``."""
