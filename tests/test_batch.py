@@ -72,9 +72,12 @@ def test_reprocessing_with_new_settings_keeps_picks_and_updates_results(session_
 
 
 def test_failing_shot_is_recorded_and_the_others_go_on(session_path, capsys):
+    with Session.open(session_path) as s:
+        process_shots(s, ["S1"], workers=0)
+        s.set_pick("S1", status="accepted")
     with open(session_path.parent / "src" / "S1_a.tif", "ab") as fh:
         fh.write(b"changed")
-    assert main(["process", str(session_path), "--workers", "2", "--quiet"]) == 1
+    assert main(["process", str(session_path), "--workers", "2", "--quiet", "--force"]) == 1
     captured = capsys.readouterr()
     assert "shot S1: frame file" in captured.err and "changed since import" in captured.err
     assert "processed 3 shot(s), 1 failed" in captured.out
@@ -83,6 +86,9 @@ def test_failing_shot_is_recorded_and_the_others_go_on(session_path, capsys):
         assert failed.state == "failed" and "changed since import" in failed.failure
         assert [s.record(x).state for x in ("S0", "S2", "S3")] == ["processed"] * 3
         assert s.needs_processing("S1")
+        # Nothing is lost: the earlier result and the pick of the failed shot stay.
+        assert _median_shift(s.load_result("S1")) == pytest.approx(shift_of(1), abs=0.1)
+        assert failed.pick.status == "accepted"
 
 
 def test_stopped_run_keeps_finished_shots_and_the_next_run_resumes(session_path):
