@@ -377,16 +377,28 @@ class _Predictor:
 def _make_predictor(grid: _Grid, dx, dy, outliers, masked) -> _Predictor:
     """Next predictor: outliers replaced, masked and empty cells filled from neighbours, then
     smoothed lightly to steady the iteration (Scarano 2002). Smoothing the whole field did
-    better on a resolved vortex than smoothing only the correction to the previous predictor."""
+    better on a resolved vortex than smoothing only the correction to the previous predictor.
+    The smoothing weighs only unmasked cells, so values filled into a mask do not leak into
+    the measured vectors beside it."""
     fx, fy = replace_outliers(dx, dy, outliers | ~np.isfinite(dx), masked)
     fx, fy = replace_outliers(fx, fy, ~np.isfinite(fx), None, relax=False)
-    return _Predictor(grid, _smooth(np.nan_to_num(fx)), _smooth(np.nan_to_num(fy)))
+    weight = (~masked).astype(np.float64)
+    return _Predictor(grid, _smooth(np.nan_to_num(fx), weight), _smooth(np.nan_to_num(fy), weight))
 
 
-def _smooth(values: np.ndarray) -> np.ndarray:
+def _smooth(values: np.ndarray, weight: np.ndarray) -> np.ndarray:
+    """Gaussian smoothing normalised by the smoothed ``weight`` (normalised convolution);
+    cells with no weight nearby get the plain smoothed value."""
     if PREDICTOR_SMOOTHING <= 0:
         return values
-    return ndimage.gaussian_filter(values, PREDICTOR_SMOOTHING, mode="nearest", truncate=2.0)
+
+    def blur(v):
+        return ndimage.gaussian_filter(v, PREDICTOR_SMOOTHING, mode="nearest", truncate=2.0)
+
+    norm = blur(weight)
+    plain = blur(values)
+    ok = norm > 1e-3
+    return np.where(ok, blur(values * weight) / np.where(ok, norm, 1.0), plain)
 
 
 @dataclass
