@@ -56,6 +56,7 @@ REPLACED_VECTOR = "#e0417a"  # rose: vectors the validation replaced
 MASKED_MARK = "#9aa0a8"
 PLANE_LINE = "#c9c6bd"  # the plane normal to the flight: a quieter dashed light grey
 FLICKER_MS = 350
+VORTICITY_UPSAMPLE = 4  # display only: bilinear between grid nodes instead of flat blocks
 HOVER_HINT = ("Point at the picture for position and flow values; drag a round mark along the "
               "ball outline to move it.")
 DEFAULT_LAYERS = {
@@ -142,6 +143,36 @@ def vorticity_image(vorticity_1_s: np.ndarray, limit_1_s: float, see_through: bo
     return rgba
 
 
+def smooth_upsample(values: np.ndarray, factor: int) -> np.ndarray:
+    """Bilinear upsampling of a grid with holes (NaN), for display only.
+
+    The output covers the same extent as the input cells (each cell becomes ``factor`` x
+    ``factor`` pixels); holes stay holes where less than half the neighbouring weight is real.
+
+    Parameters
+    ----------
+    values : (M, N) ndarray
+    factor : int
+
+    Returns
+    -------
+    (M * factor, N * factor) ndarray of float32
+    """
+    from scipy.ndimage import zoom
+
+    if factor <= 1:
+        return np.asarray(values, dtype=np.float32)
+    finite = np.isfinite(values)
+    filled = np.where(finite, values, 0.0)
+    kw = {"zoom": factor, "order": 1, "mode": "nearest", "grid_mode": True}
+    weight = zoom(finite.astype(np.float32), **kw)
+    total = zoom(filled.astype(np.float32), **kw)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = total / weight
+    out[weight < 0.5] = np.nan
+    return out.astype(np.float32)
+
+
 def vector_scale(dx_px: np.ndarray, dy_px: np.ndarray, cell_px: float) -> float:
     """Display factor so that a large (95th percentile) vector spans ~0.9 of one drawn cell."""
     mag = np.hypot(dx_px, dy_px)
@@ -212,6 +243,10 @@ class MarkHandle(pg.TargetItem):
             self.sigPositionChangeFinished.emit(self)
 
 
+PROPOSAL_RADIUS = 1.16  # proposal marks sit at this multiple of the ball radius
+LABEL_RADIUS = 1.55  # angle labels further out, clear of the proposal mark
+
+
 class _Overlay:
     """Ball outlines, flight arrow, normal plane and the separation marks in one view."""
 
@@ -233,7 +268,7 @@ class _Overlay:
         self.plane = pg.PlotDataItem(connect="pairs", pen=_pen(PLANE_LINE, 1.3, True))
         self.ticks = pg.PlotDataItem(connect="pairs", pen=_pen(OVERLAY_LINE, 2.0, alpha=220))
         self.proposals = pg.ScatterPlotItem(
-            size=11, symbol="d", pen=_pen(HALO, 1.6), brush=QColor(colours.PROPOSAL_MARK)
+            size=10, symbol="d", pen=_pen(OVERLAY_LINE, 1.6), brush=QColor(colours.PROPOSAL_MARK)
         )
         for item in (self.flight_halo, self.flight, self.plane_halo, self.plane, self.ticks):
             item.setZValue(31)
@@ -317,7 +352,7 @@ class _Overlay:
             tick_x += [cx + 0.82 * r * ux, cx + 1.12 * r * ux]
             tick_y += [cy + 0.82 * r * uy, cy + 1.12 * r * uy]
             label.setText(f"{SIDE_LETTERS[side]} {'—' if angle is None else f'{angle:+.1f}°'}")
-            label.setPos(cx + 1.32 * r * ux, cy + 1.32 * r * uy)
+            label.setPos(cx + LABEL_RADIUS * r * ux, cy + LABEL_RADIUS * r * uy)
             label.setVisible(True)
             if handle is not None:
                 handle.set_circle(circle)
@@ -331,8 +366,10 @@ class _Overlay:
                 dot_brushes.append(pg.mkBrush(SIDE_COLOURS[side]))
             proposal = proposals.get(side)
             if proposal is not None and (angle is None or abs(proposal - angle) > 0.05):
+                # just outside the outline, so the handle never hides the machine's proposal
                 prop_points.append(
-                    point_at_angle((cx, cy), r, flight.direction_deg, side, proposal)
+                    point_at_angle((cx, cy), PROPOSAL_RADIUS * r, flight.direction_deg, side,
+                                   proposal)
                 )
         self.ticks.setData(tick_x, tick_y)
         self.proposals.setData(pos=np.array(prop_points, dtype=float).reshape(-1, 2))
@@ -425,8 +462,10 @@ class ShotCanvas(QWidget):
         self.vorticity.setZValue(10)
         self.vectors = pg.PlotDataItem(connect="pairs", pen=_pen(VECTOR_ON_PICTURE, 1.1))
         self.replaced = pg.PlotDataItem(connect="pairs", pen=_pen(REPLACED_VECTOR, 1.4))
-        self.masked = pg.ScatterPlotItem(size=3, symbol="s", pen=None,
-                                         brush=pg.mkBrush(MASKED_MARK))
+        masked_colour = QColor(MASKED_MARK)
+        masked_colour.setAlpha(140)
+        self.masked = pg.ScatterPlotItem(size=2.5, symbol="s", pen=None,
+                                         brush=pg.mkBrush(masked_colour))
         for item, z in ((self.vectors, 20), (self.replaced, 21), (self.masked, 19)):
             item.setZValue(z)
         self._field_items = (self.vorticity, self.vectors, self.replaced, self.masked)
@@ -632,7 +671,8 @@ class ShotCanvas(QWidget):
         rows, cols = w.shape
         limit = self.limit_box.value()
         on_picture = self.picture.isVisible() and not self.side_box.isChecked()
-        self.vorticity.setImage(vorticity_image(w, limit, on_picture), levels=(0, 255),
+        smooth = smooth_upsample(np.asarray(w, dtype=np.float32), VORTICITY_UPSAMPLE)
+        self.vorticity.setImage(vorticity_image(smooth, limit, on_picture), levels=(0, 255),
                                 autoLevels=False)
         self.vorticity.setRect(QRectF(x0 - sp / 2, y0 - sp / 2, cols * sp, rows * sp))
         if tuple(self.colour_bar.levels()) != (-limit, limit):

@@ -31,6 +31,10 @@ from app.icons import status_icon
 
 SIDES = ("upper", "lower")
 ROWS = ("proposed", "final", "uncertainty", "quality")
+PROBLEM_STYLE = (f"QLabel {{ background: #f6e3e6; color: {colours.STATUS_COLOURS['unusable']};"
+                 " border-radius: 4px; padding: 6px; }")
+NOTICE_STYLE = (f"QLabel {{ background: {colours.PAPER_TINT}; color: {colours.MUTED_INK};"
+                " border-radius: 4px; padding: 6px; }")
 LIVE_STYLE = f"color: {colours.STATUS_COLOURS['adjusted']}; font-weight: bold;"
 
 
@@ -96,10 +100,7 @@ class ReadoutPanel(QWidget):
         self.status_label = QLabel(self)
         self.problem = QLabel(self)
         self.problem.setWordWrap(True)
-        self.problem.setStyleSheet(
-            f"QLabel {{ background: #f6e3e6; color: {colours.STATUS_COLOURS['unusable']};"
-            " border-radius: 4px; padding: 6px; }"
-        )
+        self.problem.setStyleSheet(PROBLEM_STYLE)
         self.problem.hide()
         head = QHBoxLayout()
         head.addWidget(self.title, 1)
@@ -262,12 +263,17 @@ class ReadoutPanel(QWidget):
 
     def _show_problem(self, record) -> None:
         if record.state == "failed":
-            self.problem.setText(f"Processing failed: {record.failure or 'no reason given'}")
+            text = f"Processing failed: {record.failure or 'no reason given'}"
+            if record.summary:
+                text += "\nThe numbers below are from the last run that succeeded."
+            self.problem.setStyleSheet(PROBLEM_STYLE)
         elif record.state == "unprocessed":
-            self.problem.setText("Not processed yet.")
+            text = "Not processed yet."
+            self.problem.setStyleSheet(NOTICE_STYLE)
         else:
-            self.problem.setText("")
-        self.problem.setVisible(bool(self.problem.text()))
+            text = ""
+        self.problem.setText(text)
+        self.problem.setVisible(bool(text))
 
     def _show_angles(self, record) -> None:
         sep = (record.summary or {}).get("separation") or {}

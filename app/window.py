@@ -526,6 +526,7 @@ class MainWindow(QMainWindow):
     def _on_record_changed(self, shot_id: str) -> None:
         if shot_id == self.model.current_id:
             self._show_current(full=False)
+            self._update_enabled()
 
     def _show_current(self, full: bool) -> None:
         shot_id = self.model.current_id
@@ -669,8 +670,13 @@ class MainWindow(QMainWindow):
         writable = has_session and not self.model.read_only
         has_shot = bool(self.model.current_id)
         busy = self.job is not None
-        for action in list(self.review_actions.values()) + self.nudge_actions:
-            action.setEnabled(writable and has_shot)
+        record = self.model.record(self.model.current_id) if has_shot else None
+        has_proposal = record is not None and record.summary is not None
+        for key, action in self.review_actions.items():
+            needs_proposal = key in ("accepted", "adjusted")
+            action.setEnabled(writable and has_shot and (has_proposal or not needs_proposal))
+        for action in self.nudge_actions:
+            action.setEnabled(writable and has_proposal)
         self.act_save.setEnabled(writable)
         self.act_close.setEnabled(has_session)
         self.act_process.setEnabled(writable and not busy)

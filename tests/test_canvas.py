@@ -8,7 +8,14 @@ import numpy as np
 import pytest
 from conftest import analytic_result, synthetic_frames
 
-from app.canvas import CanvasShot, ShotCanvas, arrow_segments, vorticity_image
+from app.canvas import (
+    PROPOSAL_RADIUS,
+    CanvasShot,
+    ShotCanvas,
+    arrow_segments,
+    smooth_upsample,
+    vorticity_image,
+)
 from app.colours import symmetric_limit
 from core.geometry import angle_of_point, flight_unit, point_at_angle
 from core.shot import ShotSettings
@@ -86,7 +93,7 @@ def test_final_angle_wins_and_the_proposal_stays_visible(canvas, shot_data):
     assert canvas.mark_angle("upper") == 20.0
     proposals = canvas.overlay.proposals.data
     assert len(proposals) == 1  # only where the final angle differs from the proposal
-    expected = point_at_angle(result.ball_a.center_px, result.ball_a.radius_px,
+    expected = point_at_angle(result.ball_a.center_px, PROPOSAL_RADIUS * result.ball_a.radius_px,
                               result.flight.direction_deg, "upper", 10.5)
     assert (proposals[0]["x"], proposals[0]["y"]) == pytest.approx(expected)
     assert canvas.overlay.labels["upper"].textItem.toPlainText() == "U +20.0°"
@@ -186,3 +193,13 @@ def test_shot_without_ball_shows_no_marks(canvas, shot_data):
     assert not canvas.handle("upper").isVisible()
     assert not canvas.overlay.circles["a"][1].isVisible()
     assert len(_points(canvas.vectors)) > 0
+
+
+def test_display_upsampling_keeps_values_extent_and_holes():
+    grid = np.array([[0.0, 4.0], [8.0, np.nan]])
+    up = smooth_upsample(grid, 4)
+    assert up.shape == (8, 8)
+    assert up[0, 0] == pytest.approx(0.0) and up[0, 7] == pytest.approx(4.0)
+    assert up[7, 0] == pytest.approx(8.0)
+    assert np.isnan(up[7, 7])  # the hole stays a hole
+    assert np.all(np.diff(up[0, :]) >= 0)  # bilinear ramp between nodes, no overshoot
