@@ -46,8 +46,9 @@ SIDES = ("upper", "lower")
 REQUIRED_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm")
 NUMBER_COLUMNS = (
     "dt_s", "scale_mm_per_px", "ball_diameter_mm", "speed_nominal_m_s", "spin_rpm",
-    "spin_axis_deg", "seam_deg",
+    "spin_axis_deg", "seam_deg", "flight_deg",
 )
+_PER_SHOT_SETTINGS = ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball_type", "flight_deg")
 TEXT_COLUMNS = ("ball_type", "notes")
 MANIFEST_NAME = "shots.csv"
 FRAME_SUFFIXES = (".tif", ".tiff", ".png")
@@ -629,18 +630,16 @@ class Session:
         return json.loads(json.dumps(self._processing))
 
     def settings_for(self, shot_id: str) -> ShotSettings:
-        """The ShotSettings a shot is processed with: its metadata plus the session settings."""
+        """The ShotSettings a shot is processed with: the session processing settings, with the
+        shot's own values (``dt_s``, scale, ball, ``flight_deg``) where its metadata has them."""
         meta = self._get(shot_id).metadata
-        data = {
-            "dt_s": meta.get("dt_s"),
-            "scale_mm_per_px": meta.get("scale_mm_per_px"),
-            "ball_diameter_mm": meta.get("ball_diameter_mm"),
-            "ball_type": meta.get("ball_type") or None,
-            "flight_deg": meta.get("flight_deg"),
-        }
-        data.update({k: v for k, v in self._processing.items() if k != "piv"})
-        if "piv" in self._processing:
-            data["piv"] = self._processing["piv"]
+        data = dict(self._processing)
+        for key in _PER_SHOT_SETTINGS:
+            value = meta.get(key)
+            if value is not None and value != "":
+                data[key] = value
+            elif key != "flight_deg":  # a session-wide flight override applies when unset
+                data[key] = None
         return ShotSettings.from_dict(data)
 
     def needs_processing(self, shot_id: str) -> bool:
@@ -751,8 +750,8 @@ class Session:
         shots processed with other settings then count as not processed."""
         with self._mutex:
             self._check_writable()
-            known = {f.name for f in fields(ShotSettings)} - {"dt_s", "scale_mm_per_px",
-                                                               "ball_diameter_mm", "ball_type"}
+            known = {f.name for f in fields(ShotSettings)} - set(_PER_SHOT_SETTINGS) | {
+                "flight_deg"}
             unknown = sorted(set(settings) - known)
             if unknown:
                 raise WakelineError(f"processing settings: unknown key(s) {', '.join(unknown)}")

@@ -136,3 +136,15 @@ def test_import_command_from_the_shell(tmp_path):
                           str(tmp_path / "s.h5")], cwd=ROOT, capture_output=True, text=True,
                          timeout=120, check=False)
     assert bad.returncode == 1 and bad.stderr.strip().endswith("nowhere: folder not found")
+
+
+def test_flight_direction_column_overrides_per_shot(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    (src / "shots.csv").write_text(
+        "shot,dt_s,scale_mm_per_px,ball_diameter_mm,flight_deg\n"
+        "S0,2e-05,0.08,71.6,175.5\nS1,2e-05,0.08,71.6,\n")
+    import_folder(src, tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        assert s.settings_for("S0").flight_deg == 175.5 and s.settings_for("S1").flight_deg is None
+        s.set_processing_settings({"flight_deg": 180.0})  # session-wide, where a shot has none
+        assert s.settings_for("S0").flight_deg == 175.5 and s.settings_for("S1").flight_deg == 180
