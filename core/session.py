@@ -21,6 +21,7 @@ from __future__ import annotations
 import csv
 import getpass
 import hashlib
+import io
 import json
 import math
 import os
@@ -1250,17 +1251,18 @@ def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
         raise WakelineError(f"{path}: manifest not found") from None
     except UnicodeDecodeError:
         raise WakelineError(f"{path}: not UTF-8 text") from None
-    reader = csv.reader(text.splitlines())
+    reader = csv.reader(io.StringIO(text, newline=""))
     header = [h.strip() for h in next(reader, [])]
     missing = [c for c in REQUIRED_COLUMNS if c not in header]
     if missing:
         raise WakelineError(f"{path}: missing column{'s' if len(missing) > 1 else ''} "
                             + ", ".join(repr(c) for c in missing))
     rows = []
-    for cells in reader:
+    end_of_last = reader.line_num
+    for cells in _csv_rows(reader, path):
+        line, end_of_last = end_of_last + 1, reader.line_num  # where the row starts
         if not any(c.strip() for c in cells):
             continue
-        line = reader.line_num
         if len(cells) > len(header):
             rows.append((line, {"shot": cells[0].strip()},
                          f"{len(cells)} cells but the header has {len(header)} columns"))
@@ -1269,6 +1271,13 @@ def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
         metadata, problem = _row_metadata(values)
         rows.append((line, metadata, problem))
     return rows
+
+
+def _csv_rows(reader, path: Path):
+    try:
+        yield from reader
+    except csv.Error as exc:
+        raise WakelineError(f"{path} line {reader.line_num}: {exc}") from None
 
 
 def _row_metadata(values: dict) -> tuple[dict, str]:

@@ -148,3 +148,16 @@ def test_flight_direction_column_overrides_per_shot(tmp_path):
         assert s.settings_for("S0").flight_deg == 175.5 and s.settings_for("S1").flight_deg is None
         s.set_processing_settings({"flight_deg": 180.0})  # session-wide, where a shot has none
         assert s.settings_for("S0").flight_deg == 175.5 and s.settings_for("S1").flight_deg == 180
+
+
+def test_quoted_notes_with_commas_and_line_breaks(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    (src / "shots.csv").write_text(
+        f'{HEADER}\nS0,2e-05,0.08,71.6,5,"seam up, new ball\nsecond line"\nS1,x,0.08,71.6,5,\n')
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == ["S0"]
+    assert report.problems[0].startswith("shots.csv line 4 (shot S1)")  # physical line
+    (src / "shots.csv").write_text(f'{HEADER}\nS0,x,0.08,71.6,5,"two\nlines"\n')
+    assert import_folder(src, tmp_path / "t.h5").problems[0].startswith("shots.csv line 2 ")
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert s.record("S0").metadata["notes"] == "seam up, new ball\nsecond line"
