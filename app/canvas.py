@@ -442,6 +442,10 @@ class ShotCanvas(QWidget):
                     self.marks_box):
             box.toggled.connect(self._on_layer_toggled)
         self.stride_box.valueChanged.connect(self._on_layer_toggled)
+        # clicking a layer switch must not take the keyboard from the shot list (Up/Down)
+        for widget in (self.picture_box, self.vectors_box, self.vorticity_box, self.auto_box,
+                       self.ball_box, self.flight_box, self.marks_box, self.side_box):
+            widget.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         self.limit_box.valueChanged.connect(self._on_limit)
         self.auto_box.toggled.connect(self._on_auto)
         self.side_box.toggled.connect(self._on_side_by_side)
@@ -449,6 +453,7 @@ class ShotCanvas(QWidget):
     def _build_views(self) -> None:
         self.graphics = pg.GraphicsLayoutWidget(self)
         self.graphics.setBackground(BACKGROUND)
+        self.graphics.setFocusPolicy(Qt.FocusPolicy.NoFocus)  # keys stay with the shot list
         self.graphics.ci.setContentsMargins(2, 2, 2, 2)
         self.view = pg.ViewBox(lockAspect=True, invertY=True, enableMenu=False)
         self.field_view = pg.ViewBox(lockAspect=True, invertY=True, enableMenu=False)

@@ -63,6 +63,7 @@ class ShotTableModel(QAbstractTableModel):
         self._model = session_model
         self._ids: list[str] = []
         self._row_of: dict[str, int] = {}
+        self._keys: dict[str, tuple] = {}
         self._italic = QFont()
         self._italic.setItalic(True)
         self._muted = QBrush(QColor(colours.MUTED_INK))
@@ -73,10 +74,12 @@ class ShotTableModel(QAbstractTableModel):
         self.beginResetModel()
         self._ids = self._model.shot_ids()
         self._row_of = {sid: row for row, sid in enumerate(self._ids)}
+        self._keys: dict[str, tuple] = {}
         self.endResetModel()
 
     def _on_record_changed(self, shot_id: str) -> None:
         row = self._row_of.get(shot_id)
+        self._keys.pop(shot_id, None)
         if row is not None:
             self.dataChanged.emit(self.index(row, 0), self.index(row, len(COLUMNS) - 1))
 
@@ -108,7 +111,11 @@ class ShotTableModel(QAbstractTableModel):
         if role == Qt.ItemDataRole.DisplayRole:
             return self._display(rec, col)
         if role == SORT_ROLE:
-            return self._sort_key(rec, col)
+            keys = self._keys.get(rec.shot_id)
+            if keys is None:  # sorting asks many times per row: keep the keys until it changes
+                keys = self._keys[rec.shot_id] = tuple(
+                    self._sort_key(rec, c) for c in range(len(COLUMNS)))
+            return keys[col]
         if role == Qt.ItemDataRole.DecorationRole:
             if col == COL_STATE:
                 return state_icon(rec.state)
@@ -293,6 +300,7 @@ class ShotListPanel(QWidget):
         self._layout()
         self.status_filter.currentTextChanged.connect(self._on_status_filter)
         self.text_filter.textChanged.connect(self._on_text_filter)
+        self.text_filter.returnPressed.connect(self.view.setFocus)
         self.view.selectionModel().currentRowChanged.connect(self._on_current_row)
         session_model.current_changed.connect(self._on_current_changed)
         session_model.session_changed.connect(self._update_count)

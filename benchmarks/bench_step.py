@@ -80,12 +80,91 @@ def time_steps(path: Path, rounds: int) -> dict[str, list[float]]:
     return times
 
 
+def make_big_session(folder: Path, shots: int) -> Path:
+    """A session of many shots with tiny frames and small stored results (list timing only)."""
+    import numpy as np
+
+    from core.images import write_frame
+    from core.results import BallFit, Flight, SeparationResult, SideProposal, VectorField
+    from core.session import Session
+    from core.shot import ShotResult
+
+    rng = np.random.default_rng(0)
+    path = folder / "many.h5"
+    frame = rng.uniform(0, 4000, (64, 64))
+    write_frame(folder / "tiny_a.tif", frame)
+    write_frame(folder / "tiny_b.tif", np.roll(frame, 2, axis=1))
+    y, x = np.mgrid[8:64:16, 8:64:16].astype(float)
+    zeros = np.zeros_like(x, dtype=bool)
+    with Session.create(path, name="many") as session:
+        for index in range(shots):
+            shot_id = f"m{index:04d}"
+            session.add_shot(shot_id, folder / "tiny_a.tif", folder / "tiny_b.tif",
+                             {"dt_s": 2e-5, "scale_mm_per_px": 0.1, "ball_diameter_mm": 71.6,
+                              "seam_deg": float(index % 37)})
+            field = VectorField(x, y, np.full_like(x, 2.0), np.zeros_like(x), ~zeros, zeros,
+                                zeros, np.full_like(x, 3.0))
+            upper, lower = rng.normal(10, 8), rng.normal(0, 8)
+            result = ShotResult(
+                field=field, settings=session.settings_for(shot_id),
+                ball_a=BallFit((32.0, 32.0), 10.0), ball_b=BallFit((30.0, 32.0), 10.0),
+                flight=Flight(180.0, 20.0, (-2.0, 0.0)),
+                separation=SeparationResult(SideProposal(upper, 1.0, 0.8),
+                                            SideProposal(lower, 1.0, 0.8)),
+            )
+            session.save_result(shot_id, result)
+    return path
+
+
+def time_list(path: Path) -> None:
+    """Open a big session and time the list operations a user does."""
+    from PySide6.QtCore import Qt
+    from PySide6.QtWidgets import QApplication
+
+    from app.window import MainWindow
+
+    app = QApplication.instance() or QApplication([])
+    window = MainWindow(workers=0)
+    window.act_auto.setChecked(False)
+    window.show()
+    app.processEvents()
+    figures = {}
+    start = time.perf_counter()
+    window.open_session(path)
+    app.processEvents()
+    figures["open session and fill the list"] = time.perf_counter() - start
+    panel = window.shot_list
+    for label, action in (
+        ("sort by upper angle", lambda: panel.view.sortByColumn(3, Qt.SortOrder.DescendingOrder)),
+        ("filter seam_deg:10..20", lambda: panel.text_filter.setText("seam_deg:10..20")),
+        ("clear the filter", lambda: panel.text_filter.setText("")),
+        ("accept one shot (row update)", lambda: window.set_status("accepted")),
+    ):
+        start = time.perf_counter()
+        action()
+        app.processEvents()
+        figures[label] = time.perf_counter() - start
+    steps = []
+    for _ in range(30):
+        start = time.perf_counter()
+        panel.step(1)
+        app.processEvents()
+        steps.append(time.perf_counter() - start)
+    figures["step (median of 30)"] = statistics.median(steps)
+    window.close()
+    print(f"shot list of {path.name}:")
+    for label, seconds in figures.items():
+        print(f"  {label:32s} {seconds * 1e3:8.1f} ms")
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--size", type=int, default=1024, help="frame side, px")
     parser.add_argument("--shots", type=int, default=6)
     parser.add_argument("--workers", type=int, default=None, help="processing workers")
     parser.add_argument("--rounds", type=int, default=3, help="passes through the session")
+    parser.add_argument("--list-shots", type=int, default=500,
+                        help="shots of the big session for the list timing (0: skip)")
     args = parser.parse_args()
     with tempfile.TemporaryDirectory(prefix="wakeline-bench-") as tmp:
         path = make_session(Path(tmp), args.size, args.shots, args.workers)
@@ -95,6 +174,12 @@ def main() -> None:
         if values:
             print(f"  {key:12s} median {statistics.median(values):6.1f} ms   "
                   f"max {max(values):6.1f} ms   ({len(values)} steps)")
+    if args.list_shots:
+        with tempfile.TemporaryDirectory(prefix="wakeline-bench-") as tmp:
+            start = time.perf_counter()
+            path = make_big_session(Path(tmp), args.list_shots)
+            print(f"made a {args.list_shots}-shot session in {time.perf_counter() - start:.1f} s")
+            time_list(path)
 
 
 if __name__ == "__main__":
