@@ -448,12 +448,14 @@ class _Frames:
             for coeff, out, sign in ((ca, out_a, -1.0), (cb, out_b, 1.0))
         ]
         self.run(lambda job: _warp_rows(*job, half_x, half_y), jobs)
-        return (
-            out_a,
-            out_b,
-            _warp_mask(self.mask_a, half_x, half_y, -1.0),
-            _warp_mask(self.mask_b, half_x, half_y, +1.0),
-        )
+        masks = [
+            _union(_warp_mask(mask, half_x, half_y, sign), _outside_frame(half_x, half_y, sign))
+            for mask, sign in ((self.mask_a, -1.0), (self.mask_b, 1.0))
+        ]
+        # after deformation a pixel shows the same fluid in both frames: a pixel excluded in
+        # one frame leaves its partner unpaired in the other, so both exclude the union
+        both = _union(masks[0], masks[1])
+        return out_a, out_b, both, both
 
 
 def _warp_rows(coeff, out, sign, rows: slice, half_x, half_y) -> None:
@@ -475,6 +477,31 @@ def _warp_rows(coeff, out, sign, rows: slice, half_x, half_y) -> None:
 def _row_chunks(height: int, count: int) -> list[slice]:
     edges = np.linspace(0, height, min(count, height) + 1).astype(int)
     return [slice(int(a), int(b)) for a, b in itertools.pairwise(edges) if b > a]
+
+
+def _union(a: np.ndarray | None, b: np.ndarray | None) -> np.ndarray | None:
+    if a is None or b is None:
+        return b if a is None else a
+    return a | b
+
+
+def _outside_frame(half_x, half_y, sign) -> np.ndarray | None:
+    """Pixels of a deformed frame sampled from beyond the image (mirrored, not recorded),
+    ``(H, W)`` bool, or None when there are none. They take no part in the correlation."""
+    height, width = half_x.shape
+    reach = math.ceil(max(float(np.abs(half_x).max()), float(np.abs(half_y).max())) + 0.5)
+    if reach <= 0.5:
+        return None
+    out = np.zeros((height, width), bool)
+    band = min(reach, height)
+    for rows in (slice(0, band), slice(height - band, height)):
+        y = np.arange(height)[rows, None] + sign * half_y[rows]
+        out[rows] |= (y < -0.5) | (y > height - 0.5)
+    band = min(reach, width)
+    for cols in (slice(0, band), slice(width - band, width)):
+        x = np.arange(width)[None, cols] + sign * half_x[:, cols]
+        out[:, cols] |= (x < -0.5) | (x > width - 0.5)
+    return out if out.any() else None
 
 
 def _warp_mask(mask, half_x, half_y, sign):
@@ -556,10 +583,8 @@ def _all_passes(frames: _Frames, settings: PivSettings, progress) -> VectorField
     predictor: _Predictor | None = None
     for number, p in enumerate(settings.passes, start=1):
         grid = _grid_for(frames.a.shape, p)
-        dx, dy, ratio, masked = _run_pass(frames, grid, predictor, settings)
-        outliers = normalized_median_test(
-            dx, dy, settings.median_threshold, settings.median_eps_px, valid=~masked
-        )
+        dx, dy, ratio, masked, px, py = _run_pass(frames, grid, predictor, settings)
+        outliers = _outliers(dx, dy, px, py, masked, settings)
         if number == 1:
             warnings += _quarter_rule(dx, dy, outliers, masked, p.window_px)
         message = f"pass {number} of {total} done ({p.window_px} px windows)"
@@ -584,7 +609,25 @@ def _run_pass(frames: _Frames, grid: _Grid, predictor: _Predictor | None, settin
     dx = np.where(masked, np.nan, px + res.dx)
     dy = np.where(masked, np.nan, py + res.dy)
     ratio = np.where(masked, np.nan, res.peak_ratio)
-    return dx, dy, ratio, masked
+    return dx, dy, ratio, masked, px, py
+
+
+def _outliers(dx, dy, px, py, masked, settings: PivSettings) -> np.ndarray:
+    """Normalised median test (Westerweel & Scarano 2005) of the vectors and, after the first
+    pass, of their corrections to the predictor; a vector is rejected only when it fails both.
+
+    In a strong gradient beside a mask a good vector can differ from the median of its few
+    neighbours (all on one side) by more than the test allows; its correction to a predictor
+    that already holds the gradient does not. A spurious correlation peak fails both.
+    """
+    test = normalized_median_test(
+        dx, dy, settings.median_threshold, settings.median_eps_px, valid=~masked
+    )
+    if np.isscalar(px):
+        return test
+    return test & normalized_median_test(
+        dx - px, dy - py, settings.median_threshold, settings.median_eps_px, valid=~masked
+    )
 
 
 def _centre_masked(frames: _Frames, grid: _Grid) -> np.ndarray:
