@@ -12,6 +12,7 @@ import logging
 import os
 import sys
 import traceback
+import weakref
 from pathlib import Path
 
 os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
@@ -774,25 +775,33 @@ def log_file() -> Path:
     return user_data_dir() / "wakeline.log"
 
 
-def _setup_logging() -> None:
-    handler = logging.FileHandler(log_file(), encoding="utf-8")
-    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+def _setup_logging() -> logging.Handler:
+    """Send wakeline's log to the user's log file (once per file)."""
+    path = str(log_file())
     root = logging.getLogger("wakeline")
+    for handler in root.handlers:
+        if isinstance(handler, logging.FileHandler) and handler.baseFilename == path:
+            return handler
+    handler = logging.FileHandler(path, encoding="utf-8")
+    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
     root.addHandler(handler)
     root.setLevel(logging.INFO)
+    return handler
 
 
 def install_excepthook(window: MainWindow) -> None:
     """Log unexpected exceptions to the user's log file and show them; the session stays open."""
+    window_ref = weakref.ref(window)  # the hook must not keep a closed window alive
 
     def hook(exc_type, exc, tb) -> None:
-        if issubclass(exc_type, KeyboardInterrupt):
+        live = window_ref()
+        if issubclass(exc_type, KeyboardInterrupt) or live is None:
             sys.__excepthook__(exc_type, exc, tb)
             return
         text = "".join(traceback.format_exception(exc_type, exc, tb))
         log.error("unexpected error\n%s", text)
         first = str(exc).splitlines()[0] if str(exc) else exc_type.__name__
-        window.show_problem(
+        live.show_problem(
             "Unexpected error",
             f"{exc_type.__name__}: {first}\n\nYour session is still open and every edit made "
             f"so far is saved. Details are in {log_file()}.",
@@ -810,8 +819,12 @@ def run_window(session_path: str | None = None) -> int:
     pg.setConfigOptions(imageAxisOrder="row-major")
     _setup_logging()
     window = MainWindow()
+    previous_hook = sys.excepthook
     install_excepthook(window)
     window.show()
     if session_path:
         QTimer.singleShot(0, lambda: window.open_session(session_path))
-    return int(app.exec())
+    try:
+        return int(app.exec())
+    finally:
+        sys.excepthook = previous_hook

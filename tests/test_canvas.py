@@ -203,3 +203,30 @@ def test_display_upsampling_keeps_values_extent_and_holes():
     assert up[7, 0] == pytest.approx(8.0)
     assert np.isnan(up[7, 7])  # the hole stays a hole
     assert np.all(np.diff(up[0, :]) >= 0)  # bilinear ramp between nodes, no overshoot
+
+
+def test_pointing_at_the_picture_fills_the_cursor_line(canvas, shot_data, qtbot):
+    from PySide6.QtCore import QEvent, QPointF, Qt
+    from PySide6.QtGui import QMouseEvent
+    from PySide6.QtWidgets import QApplication
+
+    with qtbot.waitExposed(canvas):
+        canvas.show()
+    qtbot.wait(20)
+    vf = shot_data[2].field
+    x, y = float(vf.x_px[3, 25]), float(vf.y_px[3, 25])
+    point = canvas.graphics.mapFromScene(canvas.view.mapViewToScene(QPointF(x, y)))
+    viewport = canvas.graphics.viewport()
+    with qtbot.waitSignal(canvas.hover_text, timeout=2000) as blocker:
+        event = QMouseEvent(QEvent.Type.MouseMove, QPointF(point), viewport.mapToGlobal(point),
+                            Qt.MouseButton.NoButton, Qt.MouseButton.NoButton,
+                            Qt.KeyboardModifier.NoModifier)
+        QApplication.sendEvent(viewport, event)
+    assert blocker.args[0] == canvas.hover_label.text()
+    assert blocker.args[0] == canvas.describe_point(*_view_xy(canvas, point))
+    assert "ω" in blocker.args[0]
+
+
+def _view_xy(canvas, point):
+    view = canvas.view.mapSceneToView(canvas.graphics.mapToScene(point))
+    return view.x(), view.y()

@@ -411,3 +411,28 @@ def test_frame_check_reports_a_changed_file(main_window, make_session, qtbot, tm
     with qtbot.waitSignal(job.finished, timeout=30_000):
         pass
     assert "s02" in window.last_problem and "s01" not in window.last_problem
+
+
+def test_run_window_opens_the_session_and_returns_when_closed(make_session, qtbot):
+    from PySide6.QtCore import QTimer
+
+    from app.window import MainWindow, run_window
+
+    path = make_session(2)
+    seen = {}
+    hook_before = sys.excepthook
+
+    def close_when_open():
+        windows = [w for w in QApplication.topLevelWidgets() if isinstance(w, MainWindow)]
+        if not windows or windows[0].model.session is None:
+            QTimer.singleShot(0, close_when_open)  # not yet: look again on the next turn
+            return
+        seen["title"] = windows[0].windowTitle()
+        seen["current"] = windows[0].model.current_id
+        seen["hook"] = sys.excepthook
+        windows[0].close()
+
+    QTimer.singleShot(0, close_when_open)
+    assert run_window(path) == 0
+    assert "review" in seen["title"] and seen["current"] == "s01"
+    assert seen["hook"] is not hook_before and sys.excepthook is hook_before
