@@ -458,6 +458,14 @@ def _read_snapshot(path: Path) -> _Snapshot:
         raise WakelineError(f"{path}: damaged or truncated session file ({reason})") from None
 
 
+def _file_identity(path: Path) -> tuple[int, int, int] | None:
+    try:
+        info = path.stat()
+    except OSError:
+        return None
+    return info.st_ino, info.st_size, info.st_mtime_ns
+
+
 def _check_signature(path: Path) -> None:
     try:
         with open(path, "rb") as fh:
@@ -580,13 +588,24 @@ class Session:
             _check_signature(path)
             lock.acquire()
         try:
-            session = cls(path, _read_snapshot(path), writable, lock)
-            session._replay_journal()
+            session = cls._load(path, writable, lock)
         except BaseException:
             if lock is not None:
                 lock.release()
             raise
         return session
+
+    @classmethod
+    def _load(cls, path: Path, writable: bool, lock: _Lock | None) -> Session:
+        """Snapshot plus journal. A reader retries when a writer replaced the snapshot
+        meanwhile, so it never pairs an old snapshot with a newer journal."""
+        for _ in range(10):
+            before = _file_identity(path)
+            session = cls(path, _read_snapshot(path), writable, lock)
+            session._replay_journal()
+            if writable or _file_identity(path) == before:
+                return session
+        raise WakelineError(f"{path}: keeps changing while being read; try again")
 
     def close(self) -> None:
         """Fold the journal into the snapshot (when writable) and release the lock."""
@@ -698,9 +717,13 @@ class Session:
             if place is None or rec.summary is None:
                 return None
             file, group = self._array_location(place, shot_id, "result")
-            with h5py.File(file, "r") as f:
-                g = f[group]
-                arrays = {name: g[name][()] for name in g}
+            try:
+                with h5py.File(file, "r") as f:
+                    g = f[group]
+                    arrays = {name: g[name][()] for name in g}
+            except FileNotFoundError:  # only a reader: the writer has compacted since
+                raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
+                                    "reopen the session") from None
             return ShotResult.from_stored(rec.summary, arrays)
 
     def history(self, shot_id: str) -> list[Pick]:

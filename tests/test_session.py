@@ -361,3 +361,27 @@ def test_repeated_reprocessing_does_not_grow_the_file_without_bound(session_path
         assert [p.upper_deg for p in s.history("S0")] == [float(r) for r in range(8)]
         with h5py.File(session_path, "r") as f:
             assert sorted(f["shots"]) == ["S0", "S1", "S2"]
+
+
+def test_reader_opening_during_a_compaction_sees_a_consistent_session(session_path, monkeypatch):
+    import core.session as store
+
+    writer = Session.open(session_path)
+    writer.save_result("S0", fake_result(writer.settings_for("S0"), 3.0))
+    writer.set_pick("S0", status="accepted")
+    real_read = store._read_snapshot
+    calls = []
+
+    def read_then_writer_compacts(path):
+        snapshot = real_read(path)
+        if not calls:  # the writer replaces the snapshot and drops the journal right now
+            writer.compact()
+        calls.append(path)
+        return snapshot
+
+    monkeypatch.setattr(store, "_read_snapshot", read_then_writer_compacts)
+    with Session.open(session_path, writable=False) as reader:
+        assert len(calls) == 2  # read again after seeing the file change
+        assert reader.record("S0").pick.status == "accepted"
+        assert reader.load_result("S0").separation.upper.angle_deg == 3.0
+    writer.close()
