@@ -47,7 +47,7 @@ from app.shot_list import ShotListPanel
 from app.workers import BackgroundJob, JobOutcome, import_job, process_job
 from core import WakelineError
 from core.paths import user_data_dir
-from core.session import MANIFEST_NAME, SessionLocked
+from core.session import MANIFEST_NAME, Session, SessionLocked
 
 log = logging.getLogger("wakeline.window")
 
@@ -317,9 +317,11 @@ class MainWindow(QMainWindow):
     def open_session(self, path, writable: bool = True) -> bool:
         """Open a session file; problems are shown to the user, never raised. True on success."""
         path = Path(path)
-        self.close_session()
+        current = self.model.session
+        if current is not None and Path(current.path).resolve() == path.resolve():
+            self.close_session()  # reopening the same file: our own lock must go first
         try:
-            self.model.open(path, writable=writable)
+            session = Session.open(path, writable=writable)
         except SessionLocked as exc:
             if writable and self._ask_read_only(str(exc)):
                 return self.open_session(path, writable=False)
@@ -331,6 +333,8 @@ class MainWindow(QMainWindow):
         except OSError as exc:
             self.show_problem("Cannot open session", f"{path}: {exc.strerror or exc}")
             return False
+        self.close_session()  # only now: a file that fails to open leaves the current one open
+        self.model.adopt(session)
         self._remember_recent(path)
         self.settings.setValue("last_folder", str(path.parent))
         ids = self.shot_list.visible_ids()
@@ -712,7 +716,8 @@ class MainWindow(QMainWindow):
         dialog.open()
 
     def shortcut_table_html(self) -> str:
-        rows = [("Up / Down, PageUp / PageDown, Home / End", "step through shots in the list")]
+        rows = [("Up / Down, PageUp / PageDown, Ctrl+Home / Ctrl+End",
+                 "step through shots in the list")]
         for action in self.actions():
             keys = action.shortcut().toString(QKeySequence.SequenceFormat.NativeText)
             if keys and action.text():

@@ -436,3 +436,14 @@ def test_run_window_opens_the_session_and_returns_when_closed(make_session, qtbo
     assert run_window(path) == 0
     assert "review" in seen["title"] and seen["current"] == "s01"
     assert seen["hook"] is not hook_before and sys.excepthook is hook_before
+
+
+def test_a_bad_file_leaves_the_open_session_open(main_window, make_session, qtbot, tmp_path):
+    path = make_session(2)
+    window = _open(main_window, qtbot, path)
+    junk = tmp_path / "other.h5"
+    junk.write_bytes(b"\x89HDF\r\n\x1a\n but cut short")
+    assert not window.open_session(junk)
+    assert "other.h5" in window.last_problem
+    assert window.model.session is not None and window.model.current_id == "s01"
+    assert window.open_session(path)  # reopening the same file works (its lock is ours)
