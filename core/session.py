@@ -298,8 +298,26 @@ class _Lock:
                     f"(pid {holder.get('pid')} on {holder.get('host')} since "
                     f"{holder.get('since')}); open it read-only or close it there"
                 )
-            self.path.unlink(missing_ok=True)  # stale: its process is gone
+            self._remove_stale(holder)
         raise SessionLocked(f"{self.path}: could not take the session lock")
+
+    def _remove_stale(self, holder: dict | None) -> None:
+        """Move the stale lock aside; if another opener replaced it meanwhile, put theirs back."""
+        aside = self.path.with_name(f"{self.path.name}.stale.{os.getpid()}")
+        try:
+            os.replace(self.path, aside)
+        except FileNotFoundError:
+            return
+        try:
+            moved = json.loads(aside.read_text())
+        except (OSError, ValueError):
+            moved = None
+        if moved != holder and moved is not None:
+            try:
+                os.link(aside, self.path)
+            except OSError:
+                pass  # a third process holds the lock now; its own check stands
+        aside.unlink(missing_ok=True)
 
     def _try_create(self, info: dict) -> bool:
         tmp = self.path.with_name(f"{self.path.name}.{os.getpid()}.{threading.get_ident()}")

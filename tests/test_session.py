@@ -385,3 +385,14 @@ def test_reader_opening_during_a_compaction_sees_a_consistent_session(session_pa
         assert reader.record("S0").pick.status == "accepted"
         assert reader.load_result("S0").separation.upper.angle_deg == 3.0
     writer.close()
+
+
+def test_stale_lock_removal_puts_back_a_lock_taken_meanwhile(session_path):
+    from core.session import _Lock
+
+    lock = _Lock(session_path)
+    fresh = {"host": socket.gethostname(), "pid": os.getpid(), "since": "now"}
+    lock.path.write_text(json.dumps(fresh))  # another opener won the race a moment ago
+    lock._remove_stale({"host": socket.gethostname(), "pid": 999999999, "since": "long ago"})
+    assert json.loads(lock.path.read_text()) == fresh
+    assert [p.name for p in session_path.parent.glob("s.h5.lock*")] == ["s.h5.lock"]
