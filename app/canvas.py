@@ -908,11 +908,15 @@ def _same_extent(old: CanvasShot | None, new: CanvasShot) -> bool:
 
 
 def _round_limit(value: float) -> float:
-    """Round a colour limit to two significant figures (a tidy colour-bar end)."""
+    """The next value of the 1-2-5 series at or above ``value``: a tidy colour-bar end that stays
+    the same over shots of similar strength (so the scale is comparable and cheap to redraw)."""
     if value <= 0 or not math.isfinite(value):
         return 1.0
-    digits = 1 - math.floor(math.log10(value))
-    return max(round(value, digits), 0.001)
+    decade = 10.0 ** math.floor(math.log10(value))
+    for step in (1.0, 2.0, 5.0, 10.0):
+        if value <= step * decade * (1 + 1e-9):
+            return max(step * decade, 0.001)
+    return 10.0 * decade
 
 
 def _as_bool(value) -> bool:

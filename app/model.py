@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 from PySide6.QtCore import QObject, Signal
 
+from core import WakelineError
 from core.session import Pick, Session, ShotRecord
 
 PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
@@ -160,6 +161,17 @@ class SessionModel(QObject):
             cached = self._session.load_frames(shot_id)
             self._frames.put(shot_id, cached)
         return cached
+
+    def prefetch(self, shot_id: str) -> None:
+        """Read a shot's result and frames into the cache ahead of need; problems wait until
+        the shot is shown."""
+        if not shot_id or shot_id not in self._records or self._session is None:
+            return
+        try:
+            self.result(shot_id)
+            self.frames(shot_id)
+        except WakelineError:
+            pass
 
     # -- edits -------------------------------------------------------------------------------
     def apply_pick(self, shot_id: str, **changes) -> Pick:

@@ -390,6 +390,18 @@ class ShotListPanel(QWidget):
             out.append(self.table_model.shot_id(source.row()))
         return out
 
+    def neighbour(self, shot_id: str, offset: int) -> str:
+        """The shot ``offset`` rows from ``shot_id`` in the shown order ("" when none)."""
+        row = self.table_model.row_of(shot_id)
+        if row < 0:
+            return ""
+        index = self.proxy.mapFromSource(self.table_model.index(row, COL_SHOT))
+        target = index.row() + offset
+        if not index.isValid() or not 0 <= target < self.proxy.rowCount():
+            return ""
+        source = self.proxy.mapToSource(self.proxy.index(target, COL_SHOT))
+        return self.table_model.shot_id(source.row())
+
     def step(self, offset: int) -> None:
         """Make the shot ``offset`` rows below (negative: above) the current one current."""
         rows = self.proxy.rowCount()

@@ -98,6 +98,12 @@ class MainWindow(QMainWindow):
         self.job: BackgroundJob | None = None
         self.last_problem = ""
         self._shown_key = None
+        self._previous_id = ""
+        self._prefetch_id = ""
+        self._prefetch_timer = QTimer(self)
+        self._prefetch_timer.setSingleShot(True)
+        self._prefetch_timer.setInterval(0)
+        self._prefetch_timer.timeout.connect(self._prefetch)
         self._message_boxes: list[QMessageBox] = []
         self.setWindowIcon(app_icon())
         self.setAcceptDrops(True)
@@ -525,8 +531,19 @@ class MainWindow(QMainWindow):
             self.readout.show_record(None)
 
     def _on_current_changed(self, shot_id: str) -> None:
+        previous = self._previous_id
+        self._previous_id = shot_id
         self._show_current(full=True)
         self._update_enabled()
+        if shot_id:
+            # read the next shot in the direction of travel while the analyst looks at this one
+            back = bool(previous) and self.shot_list.neighbour(shot_id, 1) == previous
+            self._prefetch_id = self.shot_list.neighbour(shot_id, -1 if back else 1)
+            self._prefetch_timer.start()
+
+    def _prefetch(self) -> None:
+        if self.job is None:  # while processing, leave the session file to the worker
+            self.model.prefetch(self._prefetch_id)
 
     def _on_record_changed(self, shot_id: str) -> None:
         if shot_id == self.model.current_id:

@@ -447,3 +447,15 @@ def test_a_bad_file_leaves_the_open_session_open(main_window, make_session, qtbo
     assert "other.h5" in window.last_problem
     assert window.model.session is not None and window.model.current_id == "s01"
     assert window.open_session(path)  # reopening the same file works (its lock is ours)
+
+
+def test_the_next_shot_is_read_ahead_in_the_direction_of_travel(main_window, make_session, qtbot):
+    path = make_session(4)
+    window = _open(main_window, qtbot, path)
+    qtbot.waitUntil(lambda: window.model._results.get("s02") is not None, timeout=5000)
+    window.model.set_current("s04")
+    window.model.set_current("s03")  # moving up: s02 is next
+    window.model._results.clear()
+    window.model.set_current("s02")
+    qtbot.waitUntil(lambda: window.model._results.get("s01") is not None, timeout=5000)
+    assert window.model._results.get("s03") is None
