@@ -207,7 +207,8 @@ class MainWindow(QMainWindow):
                            tip="look for frame files that are missing or changed since import")
         self.act_auto = a("Process new shots when a session &opens", self._on_auto_toggled,
                           checkable=True)
-        self.act_keys = a("&Keyboard shortcuts", self.show_shortcuts, QKeySequence.StandardKey.HelpContents)
+        self.act_keys = a("&Keyboard shortcuts", self.show_shortcuts,
+                          QKeySequence.StandardKey.HelpContents)
         self.act_about = a("&About wakeline", self.show_about)
 
     def _build_menus(self) -> None:
@@ -353,8 +354,6 @@ class MainWindow(QMainWindow):
         return True
 
     def _ask_read_only(self, text: str) -> bool:
-        if os.environ.get("QT_QPA_PLATFORM") == "offscreen":
-            return False  # no one to answer the question
         answer = QMessageBox.question(self, "Session in use",
                                       f"{text}\n\nOpen it read-only to look at it?")
         return answer == QMessageBox.StandardButton.Yes

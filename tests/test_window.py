@@ -391,13 +391,22 @@ def test_closing_during_processing_stops_the_worker(main_window, make_session, q
     assert window.model.session is None
 
 
-def test_a_session_held_elsewhere_is_reported(main_window, make_session, qtbot):
+def test_a_session_held_elsewhere_is_reported_or_opened_read_only(main_window, make_session,
+                                                                    qtbot):
     path = make_session(2)
     with Session.open(path):
         window = main_window(workers=0)
+        window._ask_read_only = lambda text: False  # the user says no
         assert not window.open_session(path)
         assert "Session in use" in window.last_problem
         assert window.model.session is None
+        window._ask_read_only = lambda text: True  # the user asks for a read-only look
+        assert window.open_session(path)
+        assert window.model.read_only and window.windowTitle().endswith("[read-only]")
+        assert not window.review_actions["accepted"].isEnabled()
+        assert not window.canvas.handle("upper").movable
+        window.set_status("accepted")  # ignored, nothing written
+        assert window.model.record("s01").pick.status == "to review"
 
 
 def test_frame_check_reports_a_changed_file(main_window, make_session, qtbot, tmp_path):
