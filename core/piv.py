@@ -36,7 +36,7 @@ import numpy as np
 import scipy.fft
 from numpy.lib.stride_tricks import sliding_window_view
 from scipy import ndimage
-from scipy.interpolate import make_interp_spline
+from scipy.interpolate import RectBivariateSpline, make_interp_spline
 
 from core import WakelineError
 from core.results import VectorField
@@ -196,6 +196,27 @@ def _window_view(image: np.ndarray, grid: _Grid) -> np.ndarray:
     return view[: grid.step * grid.rows : grid.step, : grid.step * grid.cols : grid.step]
 
 
+def _centroid_offsets(mask: np.ndarray | None, grid: _Grid):
+    """Offset (px) of the centroid of each window's unmasked pixels from its centre, ``(M, N)``
+    each; zero for windows with no masked pixel or no unmasked one."""
+    shape = (grid.rows, grid.cols)
+    off_x, off_y = np.zeros(shape), np.zeros(shape)
+    if mask is None:
+        return off_x, off_y
+    d = grid.window
+    count = _masked_counts(mask, grid).reshape(shape)
+    partial = (count > 0) & (count < d * d)
+    if not np.any(partial):
+        return off_x, off_y
+    rows, cols = np.nonzero(partial)
+    keep = ~_window_view(mask, grid)[rows, cols]  # (K', D, D)
+    n = keep.sum(axis=(1, 2))
+    centre = np.arange(d) - (d - 1) / 2.0
+    off_x[partial] = keep.sum(axis=1) @ centre / n
+    off_y[partial] = keep.sum(axis=2) @ centre / n
+    return off_x, off_y
+
+
 def _masked_counts(mask: np.ndarray, grid: _Grid) -> np.ndarray:
     """Number of masked pixels in every window of ``grid``, ``(K,)``.
 
@@ -337,13 +358,23 @@ def _peak_ratio(planes, row, col, primary):
 
 
 def _spline_1d(coords: np.ndarray, values: np.ndarray, axis: int, query: np.ndarray):
-    """Interpolating cubic spline along ``axis`` (lower degree for few points), held constant
-    beyond the end points."""
+    """Interpolating cubic spline along ``axis`` (lower degree for few points), continued
+    along its end slopes beyond the end points: a border window's outer half then follows the
+    flow's gradient instead of a constant."""
     n = coords.size
     if n == 1:
         return np.repeat(values, query.size, axis=axis)
     spline = make_interp_spline(coords, values, k=min(3, n - 1), axis=axis)
-    return spline(np.clip(query, coords[0], coords[-1]))
+    out = spline(np.clip(query, coords[0], coords[-1]))
+    below = np.minimum(query - coords[0], 0.0)
+    above = np.maximum(query - coords[-1], 0.0)
+    if np.any(below) or np.any(above):
+        slope = spline.derivative()
+        along = [1] * out.ndim
+        along[axis] = -1
+        out += below.reshape(along) * np.expand_dims(slope(coords[0]), axis)
+        out += above.reshape(along) * np.expand_dims(slope(coords[-1]), axis)
+    return out
 
 
 def _interpolate_grid(grid: _Grid, values: np.ndarray, y_query, x_query) -> np.ndarray:
@@ -351,6 +382,35 @@ def _interpolate_grid(grid: _Grid, values: np.ndarray, y_query, x_query) -> np.n
     and columns ``x_query``; returns ``(len(y_query), len(x_query))``."""
     by_rows = _spline_1d(grid.y_px, values, 0, np.asarray(y_query, dtype=np.float64))
     return _spline_1d(grid.x_px, by_rows, 1, np.asarray(x_query, dtype=np.float64))
+
+
+def _grid_spline(grid: _Grid, values: np.ndarray) -> RectBivariateSpline:
+    """Interpolating spline of grid values (cubic, lower degree for short axes)."""
+    ky, kx = min(3, grid.rows - 1), min(3, grid.cols - 1)
+    if ky == 0 or kx == 0:  # one row or column: repeat it to let the spline stand
+        ys = grid.y_px if ky else np.array([grid.y_px[0] - 1.0, grid.y_px[0] + 1.0])
+        xs = grid.x_px if kx else np.array([grid.x_px[0] - 1.0, grid.x_px[0] + 1.0])
+        values = np.broadcast_to(values, (ys.size, xs.size))
+        return RectBivariateSpline(ys, xs, values, kx=max(ky, 1), ky=max(kx, 1))
+    return RectBivariateSpline(grid.y_px, grid.x_px, values, kx=ky, ky=kx)
+
+
+def _spline_slopes(spline: RectBivariateSpline, y, x) -> tuple[np.ndarray, np.ndarray]:
+    """d/dy and d/dx of ``spline`` at points. FITPACK differentiates only below the degree, so
+    a straight (degree 1) axis takes the slope between its end knots."""
+    ty, tx = spline.get_knots()
+    ky, kx = spline.degrees
+    if ky >= 2:
+        slope_y = spline.ev(y, x, dx=1)
+    else:
+        ends = [spline.ev(np.full_like(y, t), x) for t in (ty[0], ty[-1])]
+        slope_y = (ends[1] - ends[0]) / (ty[-1] - ty[0])
+    if kx >= 2:
+        slope_x = spline.ev(y, x, dy=1)
+    else:
+        ends = [spline.ev(y, np.full_like(x, t)) for t in (tx[0], tx[-1])]
+        slope_x = (ends[1] - ends[0]) / (tx[-1] - tx[0])
+    return slope_y, slope_x
 
 
 @dataclass
@@ -364,6 +424,18 @@ class _Predictor:
             _interpolate_grid(self.grid, self.dx, grid.y_px, grid.x_px),
             _interpolate_grid(self.grid, self.dy, grid.y_px, grid.x_px),
         )
+
+    def at_centroids(self, x_px, y_px, off_x, off_y) -> tuple[np.ndarray, np.ndarray]:
+        """Predictor carried from window centroids ``(x + off_x, y + off_y)`` back to the
+        centres ``(x, y)`` along its own gradient: ``p(g) - J(g) (g - c)``, each ``(K,)``."""
+        gx = np.clip(x_px + off_x, self.grid.x_px[0], self.grid.x_px[-1])
+        gy = np.clip(y_px + off_y, self.grid.y_px[0], self.grid.y_px[-1])
+        out = []
+        for values in (self.dx, self.dy):
+            spline = _grid_spline(self.grid, values)
+            slope_y, slope_x = _spline_slopes(spline, gy, gx)
+            out.append(spline.ev(gy, gx) - slope_y * off_y - slope_x * off_x)
+        return out[0], out[1]
 
     def dense_half(self, shape) -> tuple[np.ndarray, np.ndarray]:
         """Half the predictor at every pixel, ``(H, W)`` float64 each (the symmetric shift)."""
@@ -583,8 +655,8 @@ def _all_passes(frames: _Frames, settings: PivSettings, progress) -> VectorField
     predictor: _Predictor | None = None
     for number, p in enumerate(settings.passes, start=1):
         grid = _grid_for(frames.a.shape, p)
-        dx, dy, ratio, masked, px, py = _run_pass(frames, grid, predictor, settings)
-        outliers = _outliers(dx, dy, px, py, masked, settings)
+        dx, dy, ratio, masked = _run_pass(frames, grid, predictor, settings)
+        outliers = _outliers(dx, dy, masked, settings)
         if number == 1:
             warnings += _quarter_rule(dx, dy, outliers, masked, p.window_px)
         message = f"pass {number} of {total} done ({p.window_px} px windows)"
@@ -604,29 +676,45 @@ def _run_pass(frames: _Frames, grid: _Grid, predictor: _Predictor | None, settin
     else:
         a, b, ma, mb = frames.deformed(predictor)
         res = _correlate(a, b, ma, mb, grid, settings, frames)
-        px, py = predictor.at(grid)
+        px, py = _predictor_at_windows(predictor, grid, ma)
     masked = res.masked | _centre_masked(frames, grid)
     dx = np.where(masked, np.nan, px + res.dx)
     dy = np.where(masked, np.nan, py + res.dy)
     ratio = np.where(masked, np.nan, res.peak_ratio)
-    return dx, dy, ratio, masked, px, py
+    return dx, dy, ratio, masked
 
 
-def _outliers(dx, dy, px, py, masked, settings: PivSettings) -> np.ndarray:
-    """Normalised median test (Westerweel & Scarano 2005) of the vectors and, after the first
-    pass, of their corrections to the predictor; a vector is rejected only when it fails both.
+def _predictor_at_windows(predictor: _Predictor, grid: _Grid, mask):
+    """The predictor each window's correction is added to, ``(M, N)`` each.
 
-    In a strong gradient beside a mask a good vector can differ from the median of its few
-    neighbours (all on one side) by more than the test allows; its correction to a predictor
-    that already holds the gradient does not. A spurious correlation peak fails both.
+    A partly masked window measures the flow at the centroid ``g`` of its unmasked pixels,
+    not at its centre ``c``; there the correction is added to ``p(g) - J(g) (g - c)``, the
+    predictor carried to the centre along its gradient (first order). Without this, vectors
+    beside a mask keep the value of the coarse first pass and converge only slowly.
     """
-    test = normalized_median_test(
-        dx, dy, settings.median_threshold, settings.median_eps_px, valid=~masked
-    )
-    if np.isscalar(px):
-        return test
-    return test & normalized_median_test(
-        dx - px, dy - py, settings.median_threshold, settings.median_eps_px, valid=~masked
+    px, py = predictor.at(grid)
+    off_x, off_y = _centroid_offsets(mask, grid)
+    shifted = (off_x != 0) | (off_y != 0)
+    if np.any(shifted):
+        x, y = np.meshgrid(grid.x_px, grid.y_px)
+        px[shifted], py[shifted] = predictor.at_centroids(
+            x[shifted], y[shifted], off_x[shifted], off_y[shifted]
+        )
+    return px, py
+
+
+def _outliers(dx, dy, masked, settings: PivSettings) -> np.ndarray:
+    """Normalised median test (Westerweel & Scarano 2005). Cells missing neighbours (image
+    edge, mask) are tested against straight-line extrapolations from their side
+    (``extrapolate_edges``): in a uniform gradient the plain test would reject whole edge
+    rows, whose one-sided neighbours lie a gradient step away."""
+    return normalized_median_test(
+        dx,
+        dy,
+        settings.median_threshold,
+        settings.median_eps_px,
+        valid=~masked,
+        extrapolate_edges=True,
     )
 
 

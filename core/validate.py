@@ -48,12 +48,37 @@ def nanmedian_first_axis(stack: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return median, count
 
 
+def extrapolated_stack(values: np.ndarray) -> np.ndarray:
+    """Estimates of every cell from each of the 8 directions by straight-line extrapolation
+    from the two nearest cells that way, ``2 u(c + o) - u(c + 2 o)``; NaN where either is
+    missing. Exact on a linear field whichever side the cells lie.
+
+    Parameters
+    ----------
+    values : (M, N) ndarray
+
+    Returns
+    -------
+    (8, M, N) ndarray of float64
+    """
+    m, n = values.shape
+    padded = np.full((m + 4, n + 4), np.nan)
+    padded[2:-2, 2:-2] = values
+
+    def shifted(dr, dc):
+        return padded[2 + dr : 2 + dr + m, 2 + dc : 2 + dc + n]
+
+    return np.stack([2.0 * shifted(dr, dc) - shifted(2 * dr, 2 * dc) for dr, dc in _OFFSETS])
+
+
 def normalized_median_test(
     dx: np.ndarray,
     dy: np.ndarray,
     threshold: float = 2.0,
     eps: float = 0.1,
     valid: np.ndarray | None = None,
+    *,
+    extrapolate_edges: bool = False,
 ) -> np.ndarray:
     """Flag outliers with the normalised median test over the 8 neighbours.
 
@@ -67,12 +92,19 @@ def normalized_median_test(
         Noise floor of the residual median, px (about the random error, 0.1-0.2 px).
     valid : (M, N) bool ndarray, optional
         Cells that take part (e.g. not masked); default: all finite cells.
+    extrapolate_edges : bool
+        For cells missing some of their 8 neighbours (grid edge, mask, holes), test against
+        the straight-line extrapolations of :func:`extrapolated_stack` instead of the
+        neighbours themselves. With neighbours on one side only, the plain test mistakes a
+        uniform gradient for an outlier (the median lies a whole gradient step away); the
+        extrapolations do not. Cells with all 8 neighbours get the plain test either way; an
+        edge cell with too few extrapolations is not judged.
 
     Returns
     -------
     (M, N) bool ndarray
         True where the vector is an outlier. Cells that do not take part, or that have fewer
-        than ``MIN_NEIGHBOURS`` usable neighbours, are never flagged.
+        than ``MIN_NEIGHBOURS`` usable neighbours (or estimates), are never flagged.
     """
     usable = np.isfinite(dx) & np.isfinite(dy)
     if valid is not None:
@@ -80,14 +112,19 @@ def normalized_median_test(
     outlier = np.zeros(dx.shape, dtype=bool)
     for comp in (dx, dy):
         values = np.where(usable, comp, np.nan)
-        residual, count = _normalised_residual(values, eps)
+        residual, count = _normalised_residual(values, neighbour_stack(values), eps)
         judged = usable & (count >= MIN_NEIGHBOURS)
+        if extrapolate_edges:
+            edge = usable & (count < 8)
+            far, far_count = _normalised_residual(values, extrapolated_stack(values), eps)
+            residual = np.where(edge, far, residual)
+            judged = np.where(edge, far_count >= MIN_NEIGHBOURS, judged)
         outlier |= judged & (residual > threshold)
     return outlier
 
 
-def _normalised_residual(values: np.ndarray, eps: float) -> tuple[np.ndarray, np.ndarray]:
-    neighbours = neighbour_stack(values)
+def _normalised_residual(values: np.ndarray, neighbours: np.ndarray, eps: float):
+    """``|u0 - um| / (median |ui - um| + eps)`` per cell (0 where undefined) and the count."""
     median, count = nanmedian_first_axis(neighbours)
     spread, _ = nanmedian_first_axis(np.abs(neighbours - median[None]))
     with np.errstate(invalid="ignore"):

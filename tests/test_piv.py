@@ -260,3 +260,21 @@ def test_out_of_plane_loss_of_pairs_lowers_the_peak_ratio():
         )
         ratios.append(np.median(correlate_pair(a, b, settings=settings).peak_ratio))
     assert ratios[1] < 0.7 * ratios[0]
+
+
+def test_uniform_shear_is_measured_up_to_the_image_edges_and_a_masked_wall():
+    # simple shear dx = dx0 + S (y - y0) (closed form, derived): edge rows and vectors beside
+    # the wall see neighbours on one side only and must not be rejected for the gradient
+    field = synth.uniform_shear(0.05, y_ref_px=128.0, dx0_px=2.0)
+    a, b = synth.particle_pair((256, 256), field, seed=3)
+    vf = correlate_pair(a, b)
+    tx, _ = field(vf.x_px, vf.y_px)
+    assert np.all(vf.valid)
+    assert np.sqrt(np.mean((vf.dx_px - tx) ** 2)) <= 0.05
+    yy, xx = np.mgrid[0:256, 0:256]
+    wall = yy > 170 - 0.3 * (xx - 128)
+    vf = correlate_pair(a, b, wall, wall)
+    tx, ty = field(vf.x_px, vf.y_px)
+    err = np.hypot(vf.dx_px - tx, vf.dy_px - ty)[~vf.masked]
+    assert np.mean(vf.valid[~vf.masked]) >= 0.97
+    assert np.sqrt(np.mean(err**2)) <= 0.08

@@ -114,3 +114,41 @@ def test_pure_noise_field_is_mostly_accepted(eps):
     dx = 2.0 + rng.normal(0, 0.03, (30, 30))
     dy = -1.0 + rng.normal(0, 0.03, (30, 30))
     assert np.count_nonzero(normalized_median_test(dx, dy, eps=eps)) <= 9
+
+
+def _sheared_grid(masked_corner=False):
+    y, x = np.mgrid[0:20, 0:24].astype(float)
+    dx = 0.8 * y - 0.3 * x + 2.0  # a strong uniform gradient, px per cell
+    dy = 0.2 * x
+    masked = np.zeros(dx.shape, bool)
+    if masked_corner:
+        masked[y > 14 - 0.5 * x] = True
+    return dx, dy, masked
+
+
+def test_plain_test_rejects_edges_of_a_uniform_gradient_and_the_extrapolating_one_does_not():
+    # derived: at an edge all neighbours lie on one side, so their median is a whole gradient
+    # step from the cell while their spread can be 0; 2 u(c+o) - u(c+2o) is exact on a linear
+    # field
+    for corner in (False, True):
+        dx, dy, masked = _sheared_grid(corner)
+        plain = normalized_median_test(dx, dy, valid=~masked)
+        assert np.any(plain)
+        assert not np.any(normalized_median_test(dx, dy, valid=~masked, extrapolate_edges=True))
+
+
+def test_extrapolating_test_still_catches_injected_outliers_at_the_edges():
+    # same protocol as the interior check (Westerweel & Scarano 2005 constants, memory)
+    tx, ty, dx, dy = _smooth_field(seed=4)
+    rng = np.random.default_rng(6)
+    bad = rng.random(dx.shape) < 0.05
+    bad[0, ::5] = bad[-1, ::7] = bad[:, 0][::6] = True  # some on the edges for sure
+    dx[bad] = rng.uniform(-8, 8, np.count_nonzero(bad))
+    dy[bad] = rng.uniform(-8, 8, np.count_nonzero(bad))
+    wrong = bad & (np.hypot(dx - tx, dy - ty) > 1.0)
+    out = normalized_median_test(dx, dy, extrapolate_edges=True)
+    assert np.count_nonzero(out & wrong) / np.count_nonzero(wrong) >= 0.95
+    assert np.count_nonzero(out & ~bad) / np.count_nonzero(~bad) <= 0.01
+    edge = np.zeros(dx.shape, bool)
+    edge[[0, -1], :] = edge[:, [0, -1]] = True
+    assert np.all(out[wrong & edge])
