@@ -413,10 +413,16 @@ class _Journal:
             self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
             if created:
                 _fsync_dir(self.path.parent)
-        view = memoryview(line)
-        while view:
-            view = view[os.write(self._fd, view):]
-        os.fsync(self._fd)
+        start = os.lseek(self._fd, 0, os.SEEK_END)
+        try:
+            view = memoryview(line)
+            while view:
+                view = view[os.write(self._fd, view):]
+            os.fsync(self._fd)
+        except OSError:
+            # e.g. disk full: drop the partial line so the next append starts a clean line
+            os.ftruncate(self._fd, start)
+            raise
 
     def close(self) -> None:
         if self._fd is not None:

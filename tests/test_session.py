@@ -396,3 +396,25 @@ def test_stale_lock_removal_puts_back_a_lock_taken_meanwhile(session_path):
     lock._remove_stale({"host": socket.gethostname(), "pid": 999999999, "since": "long ago"})
     assert json.loads(lock.path.read_text()) == fresh
     assert [p.name for p in session_path.parent.glob("s.h5.lock*")] == ["s.h5.lock"]
+
+
+def test_a_failed_journal_write_leaves_no_partial_line(session_path, monkeypatch):
+    s = Session.open(session_path)
+    s.set_pick("S0", status="accepted")
+    real_write = os.write
+
+    def disk_full(fd, data):
+        real_write(fd, bytes(data)[:7])
+        raise OSError(28, "No space left on device")
+
+    monkeypatch.setattr(os, "write", disk_full)
+    with pytest.raises(OSError, match="No space left"):
+        s.set_pick("S1", status="accepted")
+    monkeypatch.setattr(os, "write", real_write)
+    assert s.record("S1").pick.status == "to review"  # not applied either
+    s.set_pick("S2", status="accepted")
+    s._journal.close()
+    s._lock.release()
+    with Session.open(session_path, writable=False) as again:
+        assert [again.record(x).pick.status for x in ("S0", "S1", "S2")] == [
+            "accepted", "to review", "accepted"]
