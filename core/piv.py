@@ -366,14 +366,14 @@ def _spline_1d(coords: np.ndarray, values: np.ndarray, axis: int, query: np.ndar
         return np.repeat(values, query.size, axis=axis)
     spline = make_interp_spline(coords, values, k=min(3, n - 1), axis=axis)
     out = spline(np.clip(query, coords[0], coords[-1]))
-    below = np.minimum(query - coords[0], 0.0)
-    above = np.maximum(query - coords[-1], 0.0)
-    if np.any(below) or np.any(above):
-        slope = spline.derivative()
-        along = [1] * out.ndim
-        along[axis] = -1
-        out += below.reshape(along) * np.expand_dims(slope(coords[0]), axis)
-        out += above.reshape(along) * np.expand_dims(slope(coords[-1]), axis)
+    lines = np.moveaxis(out, axis, 0)  # a view: writing to it writes to out
+    slope = spline.derivative()
+    below = np.flatnonzero(query < coords[0])
+    above = np.flatnonzero(query > coords[-1])
+    for beyond, end in ((below, coords[0]), (above, coords[-1])):
+        if beyond.size:
+            step = (query[beyond] - end).reshape((-1,) + (1,) * (out.ndim - 1))
+            lines[beyond] += step * np.moveaxis(np.expand_dims(slope(end), axis), axis, 0)
     return out
 
 
