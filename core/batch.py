@@ -67,8 +67,8 @@ def plan_shots(session: Session, shot_ids=None, force: bool = False) -> tuple[li
     for shot_id in chosen:
         session.record(shot_id)  # raises for an unknown id
     todo = [s for s in chosen if force or session.needs_processing(s)]
-    skipped = [s for s in chosen if s not in set(todo)]
-    return todo, skipped
+    planned = set(todo)
+    return todo, [s for s in chosen if s not in planned]
 
 
 def iter_process(
@@ -100,6 +100,7 @@ def iter_process(
     """
     todo, _ = plan_shots(session, shot_ids, force)
     tasks = [_task(session, shot_id) for shot_id in todo]
+    fingerprints = {task["shot_id"]: task["fingerprint"] for task in tasks}
     stop = should_stop or (lambda: False)
     runner = _runner(workers, scheduler)
     session.active_runs += 1
@@ -108,7 +109,7 @@ def iter_process(
             if result is not None:
                 session.save_result(shot_id, result)
             else:
-                session.save_failure(shot_id, message, _fingerprint(tasks, shot_id))
+                session.save_failure(shot_id, message, fingerprints[shot_id])
             yield ShotOutcome(shot_id, result is not None, message, done, len(tasks))
     finally:
         session.active_runs -= 1
@@ -162,10 +163,6 @@ def _task(session: Session, shot_id: str) -> dict:
         "settings": settings.to_dict(),
         "fingerprint": settings.fingerprint(),
     }
-
-
-def _fingerprint(tasks: list[dict], shot_id: str) -> str:
-    return next(t["fingerprint"] for t in tasks if t["shot_id"] == shot_id)
 
 
 def measure_task(task: dict, piv_threads: int | None = None):
