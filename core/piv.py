@@ -3,16 +3,23 @@
 Method (each step a published one, named where it is used):
 
 1. The first pass correlates straight windows of the two frames. All windows of a pass go
-   through one batched real FFT (``scipy.fft.rfft2``/``irfft2`` with ``workers``); the
+   through one batched real FFT (``scipy.fft.rfft2``/``irfft2`` with ``workers``) read straight
+   from strided views of the frames; the window mean is removed in the spectrum; the
    displacement is the correlation peak (Willert & Gharib 1991).
-2. Between passes the vectors are checked with the normalised median test, outliers replaced,
-   the field lightly smoothed (predictor). Later passes deform both frames symmetrically by
-   half the predictor, ``A'(x) = A(x - d(x)/2)``, ``B'(x) = B(x + d(x)/2)``, with cubic
-   B-spline interpolation, and correlate the deformed windows for the residual
-   (Scarano 2002, predictor-corrector).
+2. Between passes the vectors are checked with the normalised median test (Westerweel &
+   Scarano 2005; vectors at an edge or beside a mask against straight-line extrapolations from
+   their side), outliers replaced, the field lightly smoothed (predictor). Later passes deform
+   both frames symmetrically by half the predictor, ``A'(x) = A(x - d(x)/2)``,
+   ``B'(x) = B(x + d(x)/2)``, with cubic B-spline interpolation, and correlate the deformed
+   windows for the correction (Scarano 2002, predictor-corrector).
 3. The peak is refined by a three-point Gaussian fit per axis, after dividing the three samples
    by the overlap weight ``1 - |s|/D`` of a circular correlation of ``D``-wide windows (the
    bias of un-normalised FFT correlation, Westerweel 1997).
+
+Masks: masked pixels are set to the window mean (they add nothing to the correlation). After
+deformation a pixel excluded in either frame, or sampled from beyond the image, is excluded in
+both. A partly masked window measures the flow at the centroid of its unmasked pixels; its
+correction is added to the predictor carried from that centroid to the window centre.
 
 Conventions: image coordinates (x = column right, y = row down, origin at the top-left pixel
 centre); a window of ``D`` px starting at pixel ``j`` has its centre at ``j + (D - 1)/2``.
