@@ -275,6 +275,12 @@ def test_uniform_shear_is_measured_up_to_the_image_edges_and_a_masked_wall():
     wall = yy > 170 - 0.3 * (xx - 128)
     vf = correlate_pair(a, b, wall, wall)
     tx, ty = field(vf.x_px, vf.y_px)
-    err = np.hypot(vf.dx_px - tx, vf.dy_px - ty)[~vf.masked]
+    err = np.hypot(vf.dx_px - tx, vf.dy_px - ty)
     assert np.mean(vf.valid[~vf.masked]) >= 0.97
-    assert np.sqrt(np.mean(err**2)) <= 0.08
+    assert np.sqrt(np.mean(err[~vf.masked] ** 2)) <= 0.08
+    # a partly masked window sees the flow at the centroid of its open pixels, up to half a
+    # window from its centre: 0.05 px/px x 8 px = 0.4 px if that were ignored (derived)
+    wall_y = 170 - 0.3 * (vf.x_px - 128)
+    beside = ~vf.masked & (wall_y - vf.y_px < 16)
+    assert np.count_nonzero(beside) >= 10
+    assert np.sqrt(np.mean(err[beside] ** 2)) <= 0.11
