@@ -196,8 +196,11 @@ class MarkHandle(pg.TargetItem):
     """A separation mark: a draggable handle held on the ball outline.
 
     Every position given to it (drag or program) is projected onto the circle along the ray
-    from the centre, so the handle can only move along the outline.
+    from the centre, so the handle can only move along the outline. A right click during a
+    drag puts the handle back where the drag started (``sigDragCancelled``).
     """
+
+    sigDragCancelled = Signal(object)
 
     def __init__(self, side: str) -> None:
         colour = SIDE_COLOURS[side]
@@ -235,12 +238,20 @@ class MarkHandle(pg.TargetItem):
         ev.accept()
         if ev.isStart():
             self.moving = True
+            self._drag_start = pg.Point(self.pos())
         if not self.moving:
             return
         self.setPos(self.mapToView(ev.pos()))
         if ev.isFinish():
             self.moving = False
             self.sigPositionChangeFinished.emit(self)
+
+    def mouseClickEvent(self, ev) -> None:  # noqa: N802
+        if self.moving and ev.button() == Qt.MouseButton.RightButton:
+            ev.accept()
+            self.moving = False
+            self.setPos(self._drag_start)
+            self.sigDragCancelled.emit(self)
 
 
 PROPOSAL_RADIUS = 1.16  # proposal marks sit at this multiple of the ball radius
@@ -386,12 +397,15 @@ class ShotCanvas(QWidget):
         While a mark is dragged (live).
     mark_released(side, angle_deg)
         When a drag ends: the window records an adjusted pick.
+    mark_cancelled(side)
+        A right click ended the drag; the mark went back and nothing is recorded.
     hover_text(text)
         Position and field values under the cursor.
     """
 
     mark_moved = Signal(str, float)
     mark_released = Signal(str, float)
+    mark_cancelled = Signal(str)
     hover_text = Signal(str)
     layers_changed = Signal()
 
@@ -496,6 +510,7 @@ class ShotCanvas(QWidget):
         for handle in self.overlay.handles.values():
             handle.sigPositionChanged.connect(self._on_handle_moved)
             handle.sigPositionChangeFinished.connect(self._on_handle_released)
+            handle.sigDragCancelled.connect(self._on_handle_cancelled)
         self.message = QLabel(self.graphics)
         self.message.setAlignment(Qt.AlignmentFlag.AlignCenter)
         self.message.setWordWrap(True)
@@ -762,6 +777,11 @@ class ShotCanvas(QWidget):
         self._angles[handle.side] = angle
         self._draw_marks()
         self.mark_moved.emit(handle.side, angle)
+
+    def _on_handle_cancelled(self, handle: MarkHandle) -> None:
+        self._angles = self._initial_angles(self._shot)
+        self._draw_marks()
+        self.mark_cancelled.emit(handle.side)
 
     def _on_handle_released(self, handle: MarkHandle) -> None:
         angle = self._handle_angle(handle)

@@ -86,6 +86,7 @@ class ReadoutPanel(QWidget):
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self._shot_id = ""
+        self._record = None
         self._note_shown = ""
         self._build()
 
@@ -219,9 +220,10 @@ class ReadoutPanel(QWidget):
     def shot_id(self) -> str:
         return self._shot_id
 
-    def show_record(self, record, result=None) -> None:
-        """Fill the panel from a ``ShotRecord`` (None: empty) and its loaded result, if any."""
+    def show_record(self, record) -> None:
+        """Fill the panel from a ``ShotRecord`` (None: empty); reads no field data."""
         self._shot_id = "" if record is None else record.shot_id
+        self._record = record
         if record is None:
             self._clear()
             return
@@ -232,15 +234,30 @@ class ReadoutPanel(QWidget):
         self._show_problem(record)
         self._show_angles(record)
         self._show_wake(record)
-        self._show_flight(record, result)
+        self._show_flight(record)
         self._show_metadata(record.metadata)
         self._show_review(record)
 
     def show_live(self, side: str, angle_deg: float) -> None:
-        """While a mark is dragged: the final cell shows the live angle."""
+        """While a mark is dragged: the final cell and the difference follow the live angle."""
         cell = self.cells[("final", side)]
         cell.setText(deg_text(angle_deg))
         cell.setStyleSheet(LIVE_STYLE)
+        record = self._record
+        if record is None:
+            return
+        other = "lower" if side == "upper" else "upper"
+        other_deg = record.final_deg(other)
+        if other_deg is None:
+            other_deg = record.proposed_deg(other)
+        if other_deg is not None:
+            diff = angle_deg - other_deg if side == "upper" else other_deg - angle_deg
+            self.difference.setText(f"{deg_text(diff)} (moving)")
+            self.difference.setStyleSheet(LIVE_STYLE)
+
+    def show_current(self) -> None:
+        """Show the last record again (after a cancelled drag)."""
+        self.show_record(self._record)
 
     def live_text(self, side: str) -> str:
         return self.cells[("final", side)].text()
@@ -293,6 +310,7 @@ class ReadoutPanel(QWidget):
             tip = detail.get("reason") or ""
             self.cells[("proposed", side)].setToolTip(tip)
         self.difference.setText(self._difference_text(record))
+        self.difference.setStyleSheet("")
 
     @staticmethod
     def _difference_text(record) -> str:
@@ -311,7 +329,7 @@ class ReadoutPanel(QWidget):
         self.wake.setText(f"{deg_text(deflection)} deflection, {state}"
                           if deflection is not None else state)
 
-    def _show_flight(self, record, result) -> None:
+    def _show_flight(self, record) -> None:
         summary = record.summary or {}
         flight = summary.get("flight") or {}
         direction = flight.get("direction_deg")

@@ -257,6 +257,7 @@ class MainWindow(QMainWindow):
         self.model.session_changed.connect(self._on_session_changed)
         self.canvas.mark_moved.connect(self.readout.show_live)
         self.canvas.mark_released.connect(self._on_mark_released)
+        self.canvas.mark_cancelled.connect(lambda _side: self.readout.show_current())
         self.canvas.layers_changed.connect(self._save_layers)
         self.readout.note_committed.connect(self._on_note_committed)
         self.undo_stack.indexChanged.connect(lambda _i: self._update_enabled())

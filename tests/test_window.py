@@ -48,9 +48,9 @@ def _view_point(canvas, point: QPoint) -> tuple[float, float]:
     return view.x(), view.y()
 
 
-def _mouse(widget, kind, point: QPoint, buttons) -> None:
+def _mouse(widget, kind, point: QPoint, buttons, button=Qt.MouseButton.LeftButton) -> None:
     moving = kind == QEvent.Type.MouseMove
-    button = Qt.MouseButton.NoButton if moving else Qt.MouseButton.LeftButton
+    button = Qt.MouseButton.NoButton if moving else button
     local = QPointF(point)
     event = QMouseEvent(kind, local, widget.mapToGlobal(local), button, buttons,
                         Qt.KeyboardModifier.NoModifier)
@@ -468,3 +468,30 @@ def test_the_next_shot_is_read_ahead_in_the_direction_of_travel(main_window, mak
     window.model.set_current("s02")
     qtbot.waitUntil(lambda: window.model._results.get("s01") is not None, timeout=5000)
     assert window.model._results.get("s03") is None
+
+
+def test_right_click_during_a_drag_puts_the_mark_back(main_window, make_session, qtbot):
+    path = make_session(2)
+    window = _open(main_window, qtbot, path, show=True)
+    canvas = window.canvas
+    result = window.model.result("s01")
+    proposal = window.model.record("s01").proposed_deg("upper")
+    handle = canvas.handle("upper")
+    start = _viewport_point(canvas, handle.pos().x(), handle.pos().y())
+    end = _viewport_point(canvas, *point_at_angle(result.ball_a.center_px,
+                                                  result.ball_a.radius_px,
+                                                  result.flight.direction_deg, "upper",
+                                                  proposal + 20.0))
+    viewport = canvas.graphics.viewport()
+    left, right = Qt.MouseButton.LeftButton, Qt.MouseButton.RightButton
+
+    def cancel():
+        assert canvas.mark_angle("upper") != pytest.approx(proposal, abs=1.0)
+        _mouse(viewport, QEvent.Type.MouseButtonPress, end, left | right, right)
+        _mouse(viewport, QEvent.Type.MouseButtonRelease, end, left, right)
+
+    _drag(qtbot, viewport, start, end, during=cancel)
+    assert canvas.mark_angle("upper") == pytest.approx(proposal)
+    assert window.model.record("s01").pick.status == "to review"
+    assert window.undo_stack.count() == 0
+    assert window.readout.live_text("upper") == "—"
