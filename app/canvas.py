@@ -246,7 +246,7 @@ class MarkHandle(pg.TargetItem):
             self.moving = False
             self.sigPositionChangeFinished.emit(self)
 
-    def mouseClickEvent(self, ev) -> None:  # noqa: N802
+    def mouseClickEvent(self, ev) -> None:
         if self.moving and ev.button() == Qt.MouseButton.RightButton:
             ev.accept()
             self.moving = False
