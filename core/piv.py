@@ -203,15 +203,16 @@ def _window_view(image: np.ndarray, grid: _Grid) -> np.ndarray:
     return view[: grid.step * grid.rows : grid.step, : grid.step * grid.cols : grid.step]
 
 
-def _centroid_offsets(mask: np.ndarray | None, grid: _Grid):
+def _centroid_offsets(mask: np.ndarray | None, grid: _Grid, counts: np.ndarray | None):
     """Offset (px) of the centroid of each window's unmasked pixels from its centre, ``(M, N)``
-    each; zero for windows with no masked pixel or no unmasked one."""
+    each; zero for windows with no masked pixel or no unmasked one. ``counts``: the masked
+    pixels per window (:func:`_masked_counts`)."""
     shape = (grid.rows, grid.cols)
     off_x, off_y = np.zeros(shape), np.zeros(shape)
     if mask is None:
         return off_x, off_y
     d = grid.window
-    count = _masked_counts(mask, grid).reshape(shape)
+    count = counts.reshape(shape)
     partial = (count > 0) & (count < d * d)
     if not np.any(partial):
         return off_x, off_y
@@ -258,13 +259,14 @@ class _PassResult:
     masked: np.ndarray  # (M, N) bool
 
 
-def _window_spectra(image, mask, grid: _Grid, workers: int):
+def _window_spectra(image, mask, counts, grid: _Grid, workers: int, owned: bool):
     """Real FFT of every window with its mean removed and masked pixels at the window mean.
 
     The FFT reads the windows straight from the strided view (no window copies). Removing
     the mean is zeroing the zero-frequency term. With a mask, masked pixels are zeroed first;
     a window ``w = (a - m) keep`` then has spectrum ``F(a keep) - m F(keep)``, and only the
-    partly masked windows need the second term.
+    partly masked windows need the second term. ``counts`` are the masked pixels per window;
+    ``owned``: the image is a scratch array that may be overwritten.
 
     Returns
     -------
@@ -274,13 +276,16 @@ def _window_spectra(image, mask, grid: _Grid, workers: int):
     """
     d = grid.window
     count = grid.rows * grid.cols
-    source = image if mask is None else np.where(mask, np.float32(0), image)
+    source = image
+    if mask is not None:
+        source = image if owned else image.copy()
+        source[mask] = 0
     spec = scipy.fft.rfft2(_window_view(source, grid), workers=workers)
     spec = spec.reshape(count, d, d // 2 + 1)
     if mask is None:
         spec[:, 0, 0] = 0
         return spec, np.zeros(count)
-    kept = d * d - _masked_counts(mask, grid)
+    kept = d * d - counts
     partial = (kept > 0) & (kept < d * d)
     spec[~partial, 0, 0] = 0
     if np.any(partial):
@@ -293,12 +298,13 @@ def _window_spectra(image, mask, grid: _Grid, workers: int):
     return spec, 1.0 - kept / float(d * d)
 
 
-def _correlate(frame_a, frame_b, mask_a, mask_b, grid: _Grid, settings, frames) -> _PassResult:
+def _correlate(pair, masks, counts, grid: _Grid, settings, frames, owned) -> _PassResult:
     """Circular cross-correlation ``c[s] = sum_x a[x] b[x + s]`` of every window pair, batched,
-    and its peaks."""
+    and its peaks. ``pair``, ``masks``, ``counts``: frames, masks and masked pixels per window
+    of A and B."""
     workers = frames.workers
-    spec, frac_a = _window_spectra(frame_a, mask_a, grid, workers)
-    spec_b, frac_b = _window_spectra(frame_b, mask_b, grid, workers)
+    spec, frac_a = _window_spectra(pair[0], masks[0], counts[0], grid, workers, owned)
+    spec_b, frac_b = _window_spectra(pair[1], masks[1], counts[1], grid, workers, owned)
     np.conjugate(spec, out=spec)
     spec *= spec_b
     del spec_b
@@ -678,12 +684,17 @@ def _all_passes(frames: _Frames, settings: PivSettings, progress) -> VectorField
 def _run_pass(frames: _Frames, grid: _Grid, predictor: _Predictor | None, settings):
     """Correlate one pass; returns total displacement, peak ratio and masked cells."""
     if predictor is None:
-        res = _correlate(frames.a, frames.b, frames.mask_a, frames.mask_b, grid, settings, frames)
-        px = py = 0.0
+        pair, masks = (frames.a, frames.b), (frames.mask_a, frames.mask_b)
     else:
         a, b, ma, mb = frames.deformed(predictor)
-        res = _correlate(a, b, ma, mb, grid, settings, frames)
-        px, py = _predictor_at_windows(predictor, grid, ma)
+        pair, masks = (a, b), (ma, mb)
+    counts = [_counts_or_none(masks[0], grid)]
+    counts.append(counts[0] if masks[1] is masks[0] else _counts_or_none(masks[1], grid))
+    res = _correlate(pair, masks, counts, grid, settings, frames, owned=predictor is not None)
+    if predictor is None:
+        px = py = 0.0
+    else:
+        px, py = _predictor_at_windows(predictor, grid, masks[0], counts[0])
     masked = res.masked | _centre_masked(frames, grid)
     dx = np.where(masked, np.nan, px + res.dx)
     dy = np.where(masked, np.nan, py + res.dy)
@@ -691,7 +702,11 @@ def _run_pass(frames: _Frames, grid: _Grid, predictor: _Predictor | None, settin
     return dx, dy, ratio, masked
 
 
-def _predictor_at_windows(predictor: _Predictor, grid: _Grid, mask):
+def _counts_or_none(mask, grid: _Grid):
+    return None if mask is None else _masked_counts(mask, grid)
+
+
+def _predictor_at_windows(predictor: _Predictor, grid: _Grid, mask, counts):
     """The predictor each window's correction is added to, ``(M, N)`` each.
 
     A partly masked window measures the flow at the centroid ``g`` of its unmasked pixels,
@@ -700,7 +715,7 @@ def _predictor_at_windows(predictor: _Predictor, grid: _Grid, mask):
     beside a mask keep the value of the coarse first pass and converge only slowly.
     """
     px, py = predictor.at(grid)
-    off_x, off_y = _centroid_offsets(mask, grid)
+    off_x, off_y = _centroid_offsets(mask, grid, counts)
     shifted = (off_x != 0) | (off_y != 0)
     if np.any(shifted):
         x, y = np.meshgrid(grid.x_px, grid.y_px)
