@@ -461,8 +461,12 @@ class MainWindow(QMainWindow):
         if self.job is not None:
             self.statusBar().showMessage("Processing is already running.", 4000)
             return None
-        total = len(shot_ids) if shot_ids else sum(
-            session.needs_processing(s) for s in session.shot_ids())
+        if shot_ids:
+            total = len(shot_ids)
+        elif force:
+            total = len(session.shot_ids())
+        else:
+            total = sum(session.needs_processing(s) for s in session.shot_ids())
         if total == 0:
             self.statusBar().showMessage("Every shot is processed.", 4000)
             return None
