@@ -642,9 +642,12 @@ def correlate_pair(
     -------
     VectorField
         On the last pass's grid. ``dx_px, dy_px`` A->B at each window centre; ``masked``
-        windows (masked fraction above ``max_masked_fraction`` in either frame, or centre on a
-        masked pixel) have NaN displacement; ``valid`` = measured and passed the normalised
-        median test; ``replaced`` = rejected and replaced from neighbours.
+        windows (excluded fraction above ``max_masked_fraction``, counting in the deformed
+        frames the pixels masked in either frame or sampled from beyond the image; or centre
+        on a masked pixel of either frame) have NaN displacement and peak ratio; ``valid`` =
+        measured and passed the normalised median test; ``replaced`` = rejected (or without a
+        correlation peak) and replaced from neighbours. ``warnings`` holds the quarter-window
+        rule and windows without a correlation peak.
 
     Raises
     ------
