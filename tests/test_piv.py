@@ -284,3 +284,13 @@ def test_uniform_shear_is_measured_up_to_the_image_edges_and_a_masked_wall():
     beside = ~vf.masked & (wall_y - vf.y_px < 16)
     assert np.count_nonzero(beside) >= 10
     assert np.sqrt(np.mean(err[beside] ** 2)) <= 0.11
+
+
+def test_result_does_not_depend_on_the_number_of_workers():
+    field = synth.lamb_oseen((60.0, 70.0), 600.0, 25.0)
+    a, b = synth.particle_pair((160, 144), field, seed=9)
+    one = correlate_pair(a, b, settings=PivSettings(workers=1))
+    two = correlate_pair(a, b, settings=PivSettings(workers=2))
+    np.testing.assert_allclose(one.dx_px, two.dx_px, atol=1e-6)
+    np.testing.assert_allclose(one.dy_px, two.dy_px, atol=1e-6)
+    np.testing.assert_array_equal(one.valid, two.valid)
