@@ -60,14 +60,15 @@ class SessionModel(QObject):
     current_changed = Signal(str)  # the current shot id ("" for none)
     record_changed = Signal(str)  # one shot's pick, result or processing state changed
 
-    def __init__(self, parent: QObject | None = None, cache_size: int = 6) -> None:
+    def __init__(self, parent: QObject | None = None, cache_size: int = 6,
+                 frame_cache_size: int = 3) -> None:
         super().__init__(parent)
         self._session: Session | None = None
         self._records: dict[str, ShotRecord] = {}
         self._order: list[str] = []
         self._current = ""
         self._results = _Lru(cache_size)
-        self._frames = _Lru(cache_size)
+        self._frames = _Lru(frame_cache_size)  # frame pairs are big (2 x 16 MB at 2048 px)
 
     # -- session -----------------------------------------------------------------------------
     @property
