@@ -62,6 +62,7 @@ class NoteEdit(QPlainTextEdit):
     """Notes field: commits on leaving the field, Ctrl+Return, or Escape (which also leaves it)."""
 
     committed = Signal(str)
+    escaped = Signal()  # the window hands the keyboard back to the shot list
 
     def focusOutEvent(self, event) -> None:
         super().focusOutEvent(event)
@@ -73,7 +74,9 @@ class NoteEdit(QPlainTextEdit):
             self.committed.emit(self.toPlainText())
             return
         if event.key() == Qt.Key.Key_Escape:
-            self.clearFocus()  # focusOutEvent commits
+            self.escaped.emit()  # moving the focus away commits (focusOutEvent)
+            if self.hasFocus():
+                self.clearFocus()
             return
         super().keyPressEvent(event)
 

@@ -260,6 +260,7 @@ class MainWindow(QMainWindow):
         self.canvas.mark_cancelled.connect(lambda _side: self.readout.show_current())
         self.canvas.layers_changed.connect(self._save_layers)
         self.readout.note_committed.connect(self._on_note_committed)
+        self.readout.note.escaped.connect(self.shot_list.view.setFocus)
         self.undo_stack.indexChanged.connect(lambda _i: self._update_enabled())
 
     # -- settings ----------------------------------------------------------------------------

@@ -176,6 +176,7 @@ def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot, 
     qtbot.keyClicks(window.readout.note, "wake hits the frame edge")
     qtbot.keyClick(window.readout.note, Qt.Key.Key_Escape)
     assert window.model.record("s04").pick.note == "wake hits the frame edge"
+    assert QApplication.focusWidget() is window.shot_list.view  # Up/Down work again
     # nudges of one mark merge into one undo step
     assert window.undo_stack.count() == 6
     window.close()
