@@ -193,7 +193,12 @@ def process_demo(session_path: Path, workers: int | None = None) -> None:
 
 
 def replay_reviews(session, reviews_csv: Path) -> int:
-    """Apply the demo's review decisions to shots the analyst has not touched; return how many."""
+    """Replay the invented analyst's review on processed shots nobody has touched yet.
+
+    Each row gives the analyst's marks (deg) or a reason the shot is unusable. A proposal within
+    ``ACCEPT_TOLERANCE_DEG`` of the marks on both sides is accepted; otherwise the sides that are
+    off are moved to the marks (adjusted). Returns the number of shots reviewed.
+    """
     if not reviews_csv.is_file():
         return 0
     applied = 0
@@ -202,14 +207,35 @@ def replay_reviews(session, reviews_csv: Path) -> int:
             shot_id = row["shot"]
             if shot_id not in session.shot_ids() or session.history(shot_id):
                 continue
-            if session.record(shot_id).state != "processed":
+            record = session.record(shot_id)
+            if record.state != "processed":
                 continue
-            angles = {f"{side}_deg": float(row[f"{side}_deg"])
-                      for side in ("upper", "lower") if row.get(f"{side}_deg")}
-            session.set_pick(shot_id, status=row["status"], reason=row.get("reason") or None,
-                             note=row.get("note") or None, who=DEMO_REVIEWER, **angles)
+            note = row.get("note") or None
+            if row.get("unusable_reason"):
+                session.set_pick(shot_id, status="unusable", reason=row["unusable_reason"],
+                                 note=note, who=DEMO_REVIEWER)
+            else:
+                moved = _moved_sides(record, row)
+                status = "adjusted" if moved else "accepted"
+                session.set_pick(shot_id, status=status, note=note, who=DEMO_REVIEWER, **moved)
             applied += 1
     return applied
+
+
+ACCEPT_TOLERANCE_DEG = 2.0
+
+
+def _moved_sides(record, row: dict) -> dict[str, float]:
+    """``{"upper_deg": mark, ...}`` for each side whose proposal is off the analyst's mark."""
+    moved = {}
+    for side in ("upper", "lower"):
+        if not row.get(f"{side}_deg"):
+            continue
+        mark = float(row[f"{side}_deg"])
+        proposed = record.proposed_deg(side)
+        if proposed is None or abs(proposed - mark) > ACCEPT_TOLERANCE_DEG:
+            moved[f"{side}_deg"] = mark
+    return moved
 
 
 def write_demo_outputs(session_path: Path) -> int:

@@ -154,33 +154,32 @@ def truth_text(shots: list[DemoShot]) -> str:
     return _csv_text(TRUTH_COLUMNS, rows)
 
 
-# The invented analyst's decisions that ``wakeline demo`` replays after processing, so the sheet
-# and the overview show every review status. Adjusted values are where the analyst put the mark.
-REVIEWS = (
-    ("sw01", "accepted", "", "", "", ""),
-    ("sw02", "accepted", "", "", "", ""),
-    ("sw03", "adjusted", "", "", "",
-     "moved the lower mark to where the shear layer meets the ball"),
-    ("sw04", "accepted", "", "", "", ""),
-    ("sw05", "accepted", "", "", "", "wake leans upward as expected"),
-    ("sw07", "accepted", "", "", "", ""),
-    ("sw08", "accepted", "", "", "", ""),
-    ("sw10", "accepted", "", "", "", ""),
-    ("sw12", "unusable", "", "", "too few particles behind the ball to follow the shear layers",
-     ""),
-)
-REVIEW_COLUMNS = ("shot", "status", "upper_deg", "lower_deg", "reason", "note")
+# The invented analyst's review, which ``wakeline demo`` replays after processing so the sheet and
+# the overview show every review status. The analyst looks at each reviewed shot and sees where the
+# flow leaves the ball (the drawn truth, to the analyst's half-degree); on replay a proposal within
+# the tolerance on both sides is accepted, otherwise the marks are moved there (adjusted). Shots
+# not listed are left to review.
+REVIEWED = ("sw01", "sw02", "sw03", "sw04", "sw05", "sw07", "sw08", "sw10")
+UNUSABLE = {SPARSE_SHOT: "too few particles behind the ball to follow the shear layers"}
+NOTES = {
+    "sw03": "shear layers clear on both sides; seam side leaves well behind the plane",
+    "sw05": "wake leans upward as expected",
+}
+REVIEW_COLUMNS = ("shot", "upper_deg", "lower_deg", "unusable_reason", "note")
+
+
+def _half_degree(value_deg: float) -> str:
+    return _number(round(value_deg * 2.0) / 2.0)
 
 
 def reviews_text(shots: list[DemoShot]) -> str:
-    truth = {s.shot_id: s for s in shots}
     rows = []
-    for shot_id, status, upper, lower, reason, note in REVIEWS:
-        if shot_id not in truth:
-            continue
-        if status == "adjusted" and not lower:
-            lower = _number(round(truth[shot_id].lower_deg))
-        rows.append([shot_id, status, upper, lower, reason, note])
+    for shot in shots:
+        if shot.shot_id in UNUSABLE:
+            rows.append([shot.shot_id, "", "", UNUSABLE[shot.shot_id], ""])
+        elif shot.shot_id in REVIEWED:
+            rows.append([shot.shot_id, _half_degree(shot.upper_deg), _half_degree(shot.lower_deg),
+                         "", NOTES.get(shot.shot_id, "")])
     return _csv_text(REVIEW_COLUMNS, rows)
 
 

@@ -86,6 +86,35 @@ def test_demo_truth_follows_the_seam_model():
     assert gap[0.0] < 5.0 and gap[50.0] < 10.0
 
 
+def _check_replayed(row: dict, review: dict) -> None:
+    """Accepted: both proposals within the tolerance of the analyst's marks. Adjusted: the
+    sides that were off sit exactly on the marks, the others on their proposals."""
+    from app.cmd_sheet import ACCEPT_TOLERANCE_DEG
+
+    assert row["review_status"] in ("accepted", "adjusted")
+    for side in ("upper", "lower"):
+        final, mark = float(row[f"{side}_final_deg"]), float(review[f"{side}_deg"])
+        proposed = row[f"{side}_proposed_deg"]
+        near = proposed != "" and abs(float(proposed) - mark) <= ACCEPT_TOLERANCE_DEG
+        if row["review_status"] == "accepted":
+            assert near and final == pytest.approx(float(proposed))
+        else:
+            assert final == pytest.approx(float(proposed) if near else mark)
+
+
+def test_replay_accepts_close_proposals_and_moves_the_others():
+    from app.cmd_sheet import _moved_sides
+    from core.session import ShotRecord
+
+    record = ShotRecord("x", {}, state="processed",
+                        summary={"separation": {"upper_deg": -8.2, "lower_deg": 20.0}})
+    assert _moved_sides(record, {"upper_deg": "-9.5", "lower_deg": "19"}) == {}
+    assert _moved_sides(record, {"upper_deg": "-9.5", "lower_deg": "14"}) == {"lower_deg": 14.0}
+    record.summary["separation"]["upper_deg"] = None
+    assert _moved_sides(record, {"upper_deg": "-9.5", "lower_deg": "21.5"}) == {
+        "upper_deg": -9.5}
+
+
 @pytest.fixture
 def demo_out(tmp_path):
     return tmp_path / "demo"
@@ -106,13 +135,19 @@ def test_demo_command_without_window(demo_out, capsys):
     with open(table, encoding="utf-8", newline="") as fh:
         rows = list(csv.DictReader(fh))
     assert [r["shot"] for r in rows] == shots
-    statuses = {r["shot"]: r["review_status"] for r in rows}
-    processed = {r["shot"] for r in rows if r["state"] == "processed"}
+    by_shot = {r["shot"]: r for r in rows}
     with open(SAMPLE_RUNS / "reviews.csv", encoding="utf-8", newline="") as fh:
-        for review in csv.DictReader(fh):
-            if review["shot"] in processed:
-                assert statuses[review["shot"]] == review["status"]
-    assert "to review" in statuses.values()
+        reviews = {r["shot"]: r for r in csv.DictReader(fh)}
+    for shot_id, row in by_shot.items():
+        review = reviews.get(shot_id)
+        if review is None or row["state"] != "processed":
+            assert row["review_status"] == "to review"
+        elif review["unusable_reason"]:
+            assert row["review_status"] == "unusable"
+            assert row["unusable_reason"] == review["unusable_reason"]
+        else:
+            _check_replayed(row, review)
+    assert sum(r["review_status"] == "to review" for r in rows) >= 2
 
     # a second run reuses the session and never overwrites the analyst's own edits
     with Session.open(demo_out / "demo_session.h5") as session:
