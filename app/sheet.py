@@ -41,7 +41,7 @@ FOOTER_MM = 15.0
 DPI = 300
 PANEL_GAP_MM = 6.0
 PER_PAGE_CHOICES = (1, 2, 3, 4)
-SUMMARY_ROWS_ON_COVER = 14
+SUMMARY_ROWS_ON_COVER = 10
 SUMMARY_ROWS_PER_PAGE = 40
 ALL_STATUSES = ("to review", "accepted", "adjusted", "unusable")
 CONVENTIONS = (
@@ -275,7 +275,10 @@ class _Pages:
         p.fillRect(rect_mm(MARGIN_MM, MARGIN_MM, 3.0, HEADER_MM - 2), qcolor(colours.ACCENT))
         text(p, rect_mm(MARGIN_MM + 5, MARGIN_MM - 0.5, w - 60, 6), "wakeline shot sheet",
              7.5, colour=colours.MUTED_INK)
-        text(p, rect_mm(MARGIN_MM + 5, MARGIN_MM + 3.6, w - 60, 7), self.title, 12, bold=True)
+        p.setFont(font(12, bold=True))
+        title = p.fontMetrics().elidedText(self.title, QtCore.Qt.TextElideMode.ElideRight,
+                                           int(mm(w - 62)))
+        text(p, rect_mm(MARGIN_MM + 5, MARGIN_MM + 3.6, w - 60, 7), title, 12, bold=True)
         right = QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignTop
         text(p, rect_mm(PAGE_W_MM - MARGIN_MM - 70, MARGIN_MM - 0.5, 70, 6), subtitle, 7.5,
              colour=colours.MUTED_INK, flags=right)
@@ -334,8 +337,11 @@ def _paint_cover(pages: _Pages, session, all_records, records, column: str,
     pages.new_page("cover")
     x, y, w, _h = pages.body()
     name = getattr(session, "name", "") or Path(session.path).stem
-    text(p, rect_mm(x, y, w, 10), name, 20, bold=True, colour=colours.ACCENT)
-    y += 10.5
+    p.setFont(font(20, bold=True))
+    name = p.fontMetrics().elidedText(name, QtCore.Qt.TextElideMode.ElideRight,
+                                      int(mm(2 * w - 20)))  # at most two lines
+    used = text(p, rect_mm(x, y, w, 20), name, 20, bold=True, colour=colours.ACCENT)
+    y += used.height() / mm(1) + 1.5
     info = (f"Session file: {Path(session.path).name}    Date: {_session_date(session, all_records)}"
             f"    Shots in session: {len(all_records)}")
     text(p, rect_mm(x, y, w, 5), info, 8.5, colour=colours.MUTED_INK)
