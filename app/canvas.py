@@ -57,8 +57,7 @@ MASKED_MARK = "#9aa0a8"
 PLANE_LINE = "#c9c6bd"  # the plane normal to the flight: a quieter dashed light grey
 FLICKER_MS = 350
 VORTICITY_UPSAMPLE = 4  # display only: bilinear between grid nodes instead of flat blocks
-HOVER_HINT = ("Point at the picture for position and flow values; drag a round mark along the "
-              "ball outline to move it.")
+HOVER_HINT = "Point at the picture for flow values; drag a round mark along the ball outline."
 DEFAULT_LAYERS = {
     "picture": "frame A",
     "vectors": True,
@@ -541,7 +540,15 @@ class ShotCanvas(QWidget):
         box.setSpacing(2)
         box.addLayout(bar)
         box.addWidget(self.graphics, 1)
-        box.addWidget(self.hover_label)
+        bottom = QHBoxLayout()
+        bottom.setContentsMargins(0, 0, 4, 0)
+        bottom.addWidget(self.hover_label, 1)
+        self.legend = QLabel(legend_html(), self)
+        self.legend.setToolTip("valid vectors, vectors the validation replaced, windows with no "
+                               "vector (mostly the ball), and the machine's proposal where the "
+                               "analyst moved a mark")
+        bottom.addWidget(self.legend, 0)
+        box.addLayout(bottom)
 
     # -- layer state (kept in QSettings by the window) ---------------------------------------
     def layer_state(self) -> dict:
@@ -866,6 +873,16 @@ class ShotCanvas(QWidget):
             parts.append(f"({x_px * scale:6.2f}, {y_px * scale:6.2f} mm)")
         parts.extend(_field_values(result, x_px, y_px))
         return "  ".join(parts)
+
+
+def legend_html() -> str:
+    """One line naming the marks whose meaning is not obvious from the picture."""
+    def swatch(colour: str, glyph: str = "■") -> str:
+        return f"<span style='color:{colour}'>{glyph}</span>"
+
+    return (f"{swatch(VECTOR_ON_PICTURE)} vector &nbsp;{swatch(REPLACED_VECTOR)} replaced "
+            f"&nbsp;{swatch(MASKED_MARK)} masked &nbsp;{swatch(colours.PROPOSAL_MARK, '◆')} "
+            "proposal")
 
 
 def _field_values(result, x_px: float, y_px: float) -> list[str]:
