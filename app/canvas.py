@@ -415,6 +415,7 @@ class ShotCanvas(QWidget):
         self._levels = (0.0, 1.0)
         self._flicker_b = False
         self._building = False
+        self._vorticity_unit = "1/s"
         self._build_controls()
         self._build_views()
         self._build_layout()
@@ -694,6 +695,11 @@ class ShotCanvas(QWidget):
         self.colour_bar.setVisible(show)
         if not show:
             return
+        unit = vorticity_unit(result)
+        if unit != self._vorticity_unit:
+            self._vorticity_unit = unit
+            self.colour_bar.setTitle(f"ω {unit}", color="#e6e2d8", size="9pt")
+            self.limit_box.setSuffix(f" {unit}")
         x0, y0, sp = float(vf.x_px[0, 0]), float(vf.y_px[0, 0]), float(vf.spacing_px)
         rows, cols = w.shape
         limit = self.limit_box.value()
@@ -904,8 +910,13 @@ def _field_values(result, x_px: float, y_px: float) -> list[str]:
         out.append("(replaced)")
     w = getattr(result, "vorticity_1_s", None)
     if w is not None and np.isfinite(w[row, col]):
-        out.append(f"ω {w[row, col]:+9.1f} 1/s")
+        out.append(f"ω {w[row, col]:+9.4g} {vorticity_unit(result)}")
     return out
+
+
+def vorticity_unit(result) -> str:
+    """1/s with dt and a scale; without them the pipeline gives vorticity per frame pair."""
+    return "1/s" if getattr(result, "u_m_s", None) is not None else "per frame pair"
 
 
 def _velocity_at(result, vf, row: int, col: int) -> tuple[float, float]:

@@ -119,7 +119,7 @@ def test_cursor_readout_gives_position_velocity_and_vorticity(canvas, shot_data)
     u, v_up = result.u_m_s[row, col], -result.v_m_s[row, col]
     assert f"u {u:+8.3f}" in text and f"v {v_up:+8.3f}" in text
     assert f"|V| {math.hypot(u, v_up):7.3f}" in text
-    assert f"ω {result.vorticity_1_s[row, col]:+9.1f}" in text
+    assert f"ω {result.vorticity_1_s[row, col]:+9.4g} 1/s" in text
     x_mm = (float(vf.x_px[row, col]) + 1.0) * result.scale_mm_per_px
     assert f"{x_mm:6.2f}" in text
     centre = result.ball_a.center_px
