@@ -439,7 +439,8 @@ class ShotCanvas(QWidget):
         self.stride_box.setToolTip("draw every n-th vector in each direction")
         self.vorticity_box = QCheckBox("Vorticity", self)
         self.limit_box = QDoubleSpinBox(self)
-        self.limit_box.setRange(0.001, 1e9)
+        self.limit_box.setDecimals(6)  # before the range, so small limits are not rounded away
+        self.limit_box.setRange(1e-6, 1e9)
         self.limit_box.setDecimals(0)
         self.limit_box.setPrefix("± ")
         self.limit_box.setSuffix(" 1/s")
@@ -577,7 +578,7 @@ class ShotCanvas(QWidget):
             self.stride_box.setValue(int(merged["stride"]))
             self.vorticity_box.setChecked(_as_bool(merged["vorticity"]))
             self.auto_box.setChecked(_as_bool(merged["vorticity_auto"]))
-            self.limit_box.setValue(float(merged["vorticity_limit_1_s"]))
+            self._set_limit(float(merged["vorticity_limit_1_s"]))
             self.ball_box.setChecked(_as_bool(merged["ball"]))
             self.flight_box.setChecked(_as_bool(merged["flight"]))
             self.marks_box.setChecked(_as_bool(merged["marks"]))
@@ -736,6 +737,13 @@ class ShotCanvas(QWidget):
             VECTOR_ON_PICTURE
         self.vectors.setPen(_pen(colour, 1.1))
 
+    def _set_limit(self, limit: float) -> None:
+        """Show the colour limit with enough decimals (per-frame-pair vorticity is small)."""
+        decimals = max(0, 2 - math.floor(math.log10(limit))) if limit > 0 else 0
+        self.limit_box.setDecimals(min(decimals, 6))
+        self.limit_box.setSingleStep(10.0 ** math.floor(math.log10(limit)) if limit > 0 else 1.0)
+        self.limit_box.setValue(limit)
+
     def _set_auto_limit(self, result) -> None:
         w = getattr(result, "vorticity_1_s", None)
         if w is None:
@@ -743,7 +751,7 @@ class ShotCanvas(QWidget):
         limit = colours.symmetric_limit(w)
         self._building = True
         try:
-            self.limit_box.setValue(_round_limit(limit))
+            self._set_limit(_round_limit(limit))
         finally:
             self._building = False
 
@@ -963,7 +971,7 @@ def _round_limit(value: float) -> float:
     decade = 10.0 ** math.floor(math.log10(value))
     for step in (1.0, 2.0, 5.0, 10.0):
         if value <= step * decade * (1 + 1e-9):
-            return max(step * decade, 0.001)
+            return step * decade
     return 10.0 * decade
 
 

@@ -232,3 +232,11 @@ def test_pointing_at_the_picture_fills_the_cursor_line(canvas, shot_data, qtbot)
 def _view_xy(canvas, point):
     view = canvas.view.mapSceneToView(canvas.graphics.mapToScene(point))
     return view.x(), view.y()
+
+
+def test_small_vorticity_limits_keep_their_digits(canvas):
+    canvas._set_limit(0.05)
+    assert canvas.limit_box.value() == pytest.approx(0.05)
+    assert canvas.limit_box.decimals() >= 3
+    canvas._set_limit(2000.0)
+    assert canvas.limit_box.value() == 2000.0 and canvas.limit_box.decimals() == 0
