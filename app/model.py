@@ -171,8 +171,8 @@ class SessionModel(QObject):
         try:
             self.result(shot_id)
             self.frames(shot_id)
-        except WakelineError:
-            pass
+        except (WakelineError, OSError, KeyError):
+            pass  # reported when the shot is shown
 
     # -- edits -------------------------------------------------------------------------------
     def apply_pick(self, shot_id: str, **changes) -> Pick:

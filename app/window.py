@@ -576,7 +576,13 @@ class MainWindow(QMainWindow):
         messages = []
         result = None
         if record.state == "processed":
-            result = self.model.result(record.shot_id)
+            try:
+                result = self.model.result(record.shot_id)
+            except (WakelineError, OSError, KeyError) as exc:  # a damaged stored result
+                # log text only: a kept exception would hold this window through its traceback
+                log.warning("shot %s: stored result unreadable: %s", record.shot_id, str(exc))
+                messages.append(f"shot {record.shot_id}: stored result cannot be read ({exc}); "
+                                "reprocess it (Ctrl+Shift+P)")
         elif record.state == "failed":
             messages.append(f"Processing failed: {record.failure or 'no reason given'}")
         else:
@@ -586,7 +592,7 @@ class MainWindow(QMainWindow):
         frame_a = frame_b = None
         try:
             frame_a, frame_b = self.model.frames(record.shot_id)
-        except WakelineError as exc:
+        except (WakelineError, OSError) as exc:
             messages.append(str(exc))
         proposed, final = self._mark_values(record)
         return CanvasShot(

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import logging
 import threading
+import traceback
 from dataclasses import dataclass
 
 from PySide6.QtCore import QObject, QThread, Signal, Slot
@@ -47,7 +48,8 @@ class _Worker(QObject):
         except WakelineError as exc:
             outcome.error = str(exc)
         except Exception as exc:  # report, don't kill the thread silently
-            log.exception("background job failed")
+            # text, not exc_info: a kept traceback would hold the session and the window
+            log.error("background job failed\n%s", traceback.format_exc())
             outcome.error = f"{type(exc).__name__}: {exc}"
         outcome.cancelled = self._stop.is_set()
         self.done.emit(outcome)

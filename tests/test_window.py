@@ -496,3 +496,18 @@ def test_right_click_during_a_drag_puts_the_mark_back(main_window, make_session,
     assert window.model.record("s01").pick.status == "to review"
     assert window.undo_stack.count() == 0
     assert window.readout.live_text("upper") == "—"
+
+
+def test_a_damaged_stored_result_is_reported_in_place(main_window, make_session, qtbot):
+    import h5py
+
+    path = make_session(2)
+    with h5py.File(path, "r+") as f:
+        groups = [name for name in f["shots"] if "result" in f["shots"][name]]
+        del f["shots"][sorted(groups)[1]]["result"]["dx_px"]  # s02's vectors are gone
+    window = _open(main_window, qtbot, path)
+    window.model.set_current("s02")
+    assert "stored result cannot be read" in window.canvas.message.text()
+    assert window.canvas.shot.frame_a is not None  # the frames still show
+    window.model.set_current("s01")
+    assert window.canvas.shot.result is not None
