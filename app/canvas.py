@@ -1,4 +1,4 @@
-"""The shot canvas: frames, vectors, vorticity and the ball overlays, with draggable separation marks.
+"""The shot canvas: frames, vectors, vorticity and ball overlays, with draggable separation marks.
 
 Layers the analyst toggles: the picture (frame A, frame B, or a flicker between them), vectors
 (valid, replaced and masked drawn differently, with a stride), vorticity (our diverging map,

@@ -1,4 +1,4 @@
-"""The readout panel (right): the current shot's numbers, its review status, notes and review buttons.
+"""The readout panel (right): the current shot's numbers, review status, notes and review buttons.
 
 Per side: proposed and final separation angle, uncertainty and quality, and the difference
 between the sides; the wake deflection and state; flight direction and speed; the shot's

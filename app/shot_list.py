@@ -202,7 +202,8 @@ def _number(value) -> float | None:
 
 def _natural_key(text: str):
     """Sort "s2" before "s10": digits compare as numbers."""
-    return tuple((0, int(t), "") if t.isdigit() else (1, 0, t) for t in re.findall(r"\d+|\D+", text))
+    parts = re.findall(r"\d+|\D+", text)
+    return tuple((0, int(t), "") if t.isdigit() else (1, 0, t) for t in parts)
 
 
 class ShotFilter(QSortFilterProxyModel):

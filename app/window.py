@@ -626,7 +626,7 @@ class MainWindow(QMainWindow):
         self.undo_stack.push(command)
 
     def set_status(self, status: str, reason: str | None = None) -> None:
-        """Review the current shot: accepted, adjusted, unusable (asks for a reason) or to review."""
+        """Review the current shot: accepted, adjusted, unusable (asks a reason) or to review."""
         if not self._can_edit():
             return
         shot_id = self.model.current_id

@@ -47,7 +47,7 @@ class _Worker(QObject):
             outcome.value = self._fn(self.item.emit, self._stop.is_set)
         except WakelineError as exc:
             outcome.error = str(exc)
-        except Exception as exc:  # noqa: BLE001 - report any failure, never kill the thread silently
+        except Exception as exc:  # noqa: BLE001 - report any failure, never end silently
             # text, not exc_info: a kept traceback would hold the session and the window
             log.error("background job failed\n%s", traceback.format_exc())
             outcome.error = f"{type(exc).__name__}: {exc}"

@@ -1,4 +1,4 @@
-"""Shared test set-up: headless Qt, private user settings, the main-window factory, small sessions."""
+"""Shared test set-up: headless Qt, private user settings, a main-window factory, small sessions."""
 
 from __future__ import annotations
 

@@ -1,4 +1,4 @@
-"""The review window, driven headless with pytest-qt: stepping, dragging, review keys, processing."""
+"""The review window driven headless with pytest-qt: stepping, dragging, review keys, processing."""
 
 from __future__ import annotations
 
