@@ -22,7 +22,7 @@ os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QRectF, Qt, QTimer, Signal
-from PySide6.QtGui import QColor
+from PySide6.QtGui import QAction, QColor
 from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
@@ -30,8 +30,10 @@ from PySide6.QtWidgets import (
     QGraphicsEllipseItem,
     QHBoxLayout,
     QLabel,
+    QMenu,
     QSizePolicy,
     QSpinBox,
+    QToolButton,
     QVBoxLayout,
     QWidget,
 )
@@ -447,9 +449,17 @@ class ShotCanvas(QWidget):
         self.limit_box.setToolTip("vorticity at the ends of the colour map (symmetric about 0)")
         self.auto_box = QCheckBox("auto", self)
         self.auto_box.setToolTip("set the vorticity range from each shot (98th percentile)")
-        self.ball_box = QCheckBox("Ball", self)
-        self.flight_box = QCheckBox("Flight", self)
-        self.marks_box = QCheckBox("Marks", self)
+        # the overlays sit in one drop-down so the bar fits a laptop screen
+        self.overlay_button = QToolButton(self)
+        self.overlay_button.setText("Overlays")
+        self.overlay_button.setToolTip("ball outlines, flight arrow with the normal plane, "
+                                       "separation marks")
+        self.overlay_button.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
+        overlay_menu = QMenu(self.overlay_button)
+        self.ball_box = _check_action("Ball outline in frames A and B", overlay_menu)
+        self.flight_box = _check_action("Flight arrow and normal plane", overlay_menu)
+        self.marks_box = _check_action("Separation marks", overlay_menu)
+        self.overlay_button.setMenu(overlay_menu)
         self.side_box = QCheckBox("Side by side", self)
         self.side_box.setToolTip("frames on the left, fields on the right, zoom and pan linked")
         self.picture_box.currentTextChanged.connect(self._on_picture)
@@ -459,8 +469,10 @@ class ShotCanvas(QWidget):
         self.stride_box.valueChanged.connect(self._on_layer_toggled)
         # clicking a layer switch must not take the keyboard from the shot list (Up/Down)
         for widget in (self.picture_box, self.vectors_box, self.vorticity_box, self.auto_box,
-                       self.ball_box, self.flight_box, self.marks_box, self.side_box):
+                       self.overlay_button, self.side_box):
             widget.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.stride_box.setMaximumWidth(80)
+        self.limit_box.setMaximumWidth(120)
         self.limit_box.valueChanged.connect(self._on_limit)
         self.auto_box.toggled.connect(self._on_auto)
         self.side_box.toggled.connect(self._on_side_by_side)
@@ -525,11 +537,9 @@ class ShotCanvas(QWidget):
         bar = QHBoxLayout()
         bar.setContentsMargins(4, 2, 4, 2)
         bar.setSpacing(8)
-        bar.addWidget(QLabel("Picture", self))
         bar.addWidget(self.picture_box)
         for widget in (self.vectors_box, self.stride_box, self.vorticity_box, self.limit_box,
-                       self.auto_box, self.ball_box, self.flight_box, self.marks_box,
-                       self.side_box):
+                       self.auto_box, self.overlay_button, self.side_box):
             bar.addWidget(widget)
         bar.addStretch(1)
         self.hover_label = QLabel(HOVER_HINT, self)
@@ -973,6 +983,14 @@ def _round_limit(value: float) -> float:
         if value <= step * decade * (1 + 1e-9):
             return step * decade
     return 10.0 * decade
+
+
+def _check_action(text: str, menu: QMenu) -> QAction:
+    """A checkable menu entry; like a check box it has isChecked, setChecked and toggled."""
+    action = QAction(text, menu)
+    action.setCheckable(True)
+    menu.addAction(action)
+    return action
 
 
 def _as_bool(value) -> bool:

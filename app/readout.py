@@ -132,7 +132,7 @@ class ReadoutPanel(QWidget):
         outer = QVBoxLayout(self)
         outer.setContentsMargins(0, 0, 0, 0)
         outer.addWidget(scroll)
-        self.setMinimumWidth(300)
+        self.setMinimumWidth(280)
 
     def _separation_group(self) -> QGroupBox:
         group = QGroupBox("Separation angle")

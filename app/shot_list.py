@@ -298,6 +298,8 @@ class ShotListPanel(QWidget):
         self.text_filter.setClearButtonEnabled(True)
         self.text_filter.setToolTip(_filter_help())
         self.count_label = QLabel(self)
+        self.setMinimumWidth(240)
+        self.status_filter.setMaximumWidth(120)
         self._layout()
         self.status_filter.currentTextChanged.connect(self._on_status_filter)
         self.text_filter.textChanged.connect(self._on_text_filter)

@@ -65,6 +65,8 @@ REVIEW_KEYS = (
     ("unusable", "Mark &unusable…", "U", "the shot cannot be used; asks for a reason"),
     ("to review", "Back to &review", "R", "undecided again"),
 )
+REVIEW_BUTTON_TEXT = {"accepted": "Accept", "adjusted": "Adjusted", "unusable": "Unusable…",
+                      "to review": "To review"}  # the readout's buttons: short for a narrow panel
 NUDGE_KEYS = (
     ("upper", +NUDGE_DEG, "E"), ("upper", -NUDGE_DEG, "Q"),
     ("lower", +NUDGE_DEG, "C"), ("lower", -NUDGE_DEG, "Z"),
@@ -180,6 +182,7 @@ class MainWindow(QMainWindow):
         }
         for key, action in self.review_actions.items():
             action.setIcon(status_icon(key))
+            action.setIconText(REVIEW_BUTTON_TEXT[key])
         self.nudge_actions = []
         for side, step, shortcut in NUDGE_KEYS:
             text = f"Nudge {side} mark {'rearward' if step > 0 else 'forward'} {abs(step):g}°"
