@@ -1,18 +1,30 @@
-"""Proposed separation angles: track each separated shear layer and carry it back to the ball.
+"""Proposed separation angles: fit each separated shear layer where it leaves the ball.
 
-PIV cannot resolve the boundary layer (sub-mm), so separation is located the way the trade
-does it (common practice): find the separated shear layer - a ridge of vorticity of the sign
-that side produces - in the band outside the masked ball, follow it along the ball, fit its
-path and extrapolate the path to the ball's outline. Windows that touch the mask smear the
-field, so ridge points closer to the outline than ``near_wall_px`` (about one final window) are
-not used; the fitted path bridges that band.
+PIV cannot resolve the boundary layer (sub-mm), so separation is located the way the trade does
+it (common practice): find the separated shear layer and carry it back to the ball's outline.
+Near separation the layer runs within a few pixels of the outline, where correlation windows
+that touch the mask smear it away, and a ridge traced further out and extrapolated is biased by
+several degrees. So the layer is fitted to the particle images themselves, in the ball frame, in
+a thin band along the outline (gaps ``BAND_GAP_PX`` outside it):
+
+- the stream outside the layer comes from the fine PIV vectors clear of the wall (a smooth
+  polar fit, tangential and radial components, the radial one vanishing at the wall);
+- the layer leaves the outline at ``phi_s`` and its distance from the outline grows as
+  ``g(t) = R (a t + b t^2)``, ``t = phi - phi_s`` (rad): ``a = tan`` of its departure angle from
+  the tangent, ``b`` its bending (0.5 for a straight layer);
+- across the layer the ball-frame motion changes from the stream to the near-still wake with a
+  ``tanh`` profile of width ``w`` (the mixing-layer shape); upstream of ``phi_s`` the flow is
+  attached (stream down to the wall);
+- frame A sampled at ``p - D/2 - u(p)/2`` must match frame B at ``p + D/2 + u(p)/2`` (``D`` the
+  ball displacement, ``u`` the model's ball-frame displacement): a coarse search over
+  ``(phi_s, a, b)`` and a least-squares refinement of all parameters.
+
+Separated layers leave the wall at a shallow angle (about 5-15 deg, common practice), so ``a``
+and ``b`` carry weak priors (``tan 10 deg +- 0.09`` and ``0.5 +- 0.4``); the data alone cannot
+tell a steeper departure from a later one.
 
 Angles follow the shot convention: from the plane through the ball centre normal to the flight,
 positive rearward; *upper* is the side toward the top of the picture (core.geometry).
-
-Uncertainty of a proposal: the fit's standard error, propagated to the angle, combined with a
-floor for the extrapolation across the near-wall band (``MODEL_FLOOR_DEG``), calibrated on
-synthetic shots with known truth (core.synth_shot; tests/test_separation.py checks coverage).
 """
 
 from __future__ import annotations
@@ -25,245 +37,337 @@ from scipy import ndimage
 from scipy.optimize import least_squares
 
 from core.geometry import flight_unit, side_normal
-from core.results import SeparationResult, SideProposal
+from core.results import SeparationResult, SideProposal, VectorField
 
-#: Uncertainty floor (deg) for bridging the near-wall band by extrapolation (calibrated on
-#: synthetic shots, see module docstring).
-MODEL_FLOOR_DEG = 1.5
+#: Band along the outline where the layer is fitted: gaps (px) outside the outline.
+BAND_GAP_PX = (1.0, 12.0)
+#: Angles (deg, separation convention) searched for the separation point.
+SEARCH_DEG = (-40.0, 62.0)
+#: Band extent beyond the search range (deg): some attached flow ahead, some wake behind.
+BAND_DEG = (-50.0, 80.0)
+#: Prior on the layer's departure slope ``a`` (tan of the angle from the tangent) and bending.
+PRIOR_SLOPE = (math.tan(math.radians(10.0)), 0.09)
+PRIOR_BEND = (0.5, 0.4)
+#: Neighbouring image samples are correlated (particle images span several samples): the
+#: residual variance is scaled by this many samples per independent one.
+SAMPLES_PER_INDEPENDENT = 10.0
+#: Uncertainty floor (deg): scatter of the fitted angle about the truth on synthetic shots
+#: (core.synth_shot sweeps: median |error| 2-3 deg, 90th percentile about 6 deg) that the fit's
+#: own standard error does not capture (the layer's shape beyond the model, particle noise).
+MODEL_FLOOR_DEG = 6.0
+#: A proposal needs the layered model to beat the attached-flow model by this fraction of the
+#: residual, and a separation point at least this far ahead of the band's rear end (deg).
+MIN_IMPROVEMENT = 0.02
+REAR_MARGIN_DEG = 18.0
 #: Wake state threshold (deg): sides differ when |upper - lower| exceeds the larger of this and
 #: the combined uncertainty.
 STATE_THRESHOLD_DEG = 5.0
-#: Ridge points per side needed for a proposal.
-MIN_RIDGE_POINTS = 8
-#: A ridge must stand this many noise standard deviations above zero.
-MIN_RIDGE_SNR = 6.0
 
 
 @dataclass
-class FieldOnGrid:
-    """A scalar field on a regular grid of vector positions (image coordinates, px)."""
+class BallFrame:
+    """The ball at mid-exposure and its motion (image coordinates, px)."""
 
-    values: np.ndarray  # (M, N), NaN where unknown
-    x0_px: float
-    y0_px: float
-    spacing_px: float
-
-    def sample(self, x_px: np.ndarray, y_px: np.ndarray) -> np.ndarray:
-        """Bilinear samples; NaN outside the grid or next to unknown values."""
-        gi = (np.asarray(y_px) - self.y0_px) / self.spacing_px
-        gj = (np.asarray(x_px) - self.x0_px) / self.spacing_px
-        return ndimage.map_coordinates(self.values, [gi, gj], order=1, cval=np.nan)
-
-
-@dataclass
-class Ridge:
-    """Ridge points of one side's shear layer, in side coordinates (px from the ball centre)."""
-
-    xi_px: np.ndarray  # rearward along the flight axis
-    zeta_px: np.ndarray  # toward the side
-    strength: np.ndarray  # signed vorticity at the ridge (side's sign made positive)
-    noise: float
+    center_px: tuple[float, float]
+    radius_px: float
+    displacement_px: tuple[float, float]  # ball centre B - A
+    flight_deg: float
 
 
 def propose_separation(
-    vorticity: FieldOnGrid,
-    center_px: tuple[float, float],
-    radius_px: float,
-    flight_deg: float,
-    *,
-    near_wall_px: float = 12.0,
+    frame_a: np.ndarray,
+    frame_b: np.ndarray,
+    ball: BallFrame,
+    fine: VectorField,
+    fine_origin_px: tuple[float, float] = (0.0, 0.0),
 ) -> SeparationResult:
-    """Separation proposal on both sides, wake deflection and wake state.
+    """Separation proposal on both sides, wake deflection and wake state of one shot.
 
     Parameters
     ----------
-    vorticity : FieldOnGrid
-        Vorticity (counter-clockwise positive on screen; any consistent unit) on a fine grid
-        around the ball; NaN in masked windows.
-    center_px, radius_px : ball circle at mid-exposure (image coordinates, px).
-    flight_deg : float
-        Flight direction (0 = +x, 90 = toward the top of the picture).
-    near_wall_px : float
-        Ridge points closer than this to the outline are not trusted (windows touch the mask).
+    frame_a, frame_b : (H, W) ndarray
+        The frame pair (lab frame, as recorded).
+    ball : BallFrame
+        Ball circle at mid-exposure, its displacement and the flight direction.
+    fine : VectorField
+        Fine correlation around the ball *in the ball frame* (the ball at rest), positions
+        relative to ``fine_origin_px``.
+    fine_origin_px : (float, float)
+        Image position (x, y) of the fine field's origin.
 
     Returns
     -------
     SeparationResult
     """
-    noise = _noise_level(vorticity, center_px, radius_px)
-    ridges, sides = {}, {}
-    for side in ("upper", "lower"):
-        ridge = trace_ridge(vorticity, center_px, radius_px, flight_deg, side, noise, near_wall_px)
-        ridges[side] = ridge
-        sides[side] = fit_separation(ridge, radius_px, near_wall_px)
-    deflection = wake_deflection(ridges["upper"], ridges["lower"], radius_px)
+    sides = {side: fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side)
+             for side in ("upper", "lower")}
+    deflection = wake_deflection(fine, fine_origin_px, ball)
+    if sides["upper"].angle_deg is None and sides["lower"].angle_deg is None:
+        deflection = None
     state = wake_state(sides["upper"], sides["lower"])
     return SeparationResult(sides["upper"], sides["lower"], deflection, state)
 
 
-def side_sign(flight_deg: float, side: str) -> float:
-    """Sign of the vorticity (counter-clockwise positive on screen) of ``side``'s shear layer.
+# --- geometry of one side ------------------------------------------------------------------------
 
-    Relative to the ball the air streams rearward outside the layer and is nearly still in the
-    wake; in (rearward, side-normal) axes that shear has vorticity of sign
-    ``-det[rearward, normal]`` in screen (y-up) axes (derived).
+
+def _side_axes(ball: BallFrame, side: str, phi_deg: np.ndarray):
+    """Outward radial and rearward tangential unit vectors (image coordinates) at angles phi."""
+    fx, fy = flight_unit(ball.flight_deg)
+    nx, ny = side_normal(ball.flight_deg, side)
+    t = np.radians(phi_deg)
+    ex, ey = np.cos(t) * nx - np.sin(t) * fx, np.cos(t) * ny - np.sin(t) * fy
+    tx, ty = -np.sin(t) * nx - np.cos(t) * fx, -np.sin(t) * ny - np.cos(t) * fy
+    return (ex, ey), (tx, ty)
+
+
+def _polar(ball: BallFrame, side: str, x_px: np.ndarray, y_px: np.ndarray):
+    """Separation-convention angle (deg) and gap outside the outline (px) of image points."""
+    fx, fy = flight_unit(ball.flight_deg)
+    nx, ny = side_normal(ball.flight_deg, side)
+    rx, ry = x_px - ball.center_px[0], y_px - ball.center_px[1]
+    phi = np.degrees(np.arctan2(-(rx * fx + ry * fy), rx * nx + ry * ny))
+    return phi, np.hypot(rx, ry) - ball.radius_px
+
+
+# --- the stream outside the layer, from the fine PIV ------------------------------------------
+
+
+@dataclass
+class OuterStream:
+    """Smooth fit of the ball-frame stream next to one side: ``u_t``, ``u_r`` (px per pair)."""
+
+    coef_t: np.ndarray
+    coef_r: np.ndarray
+    radius_px: float
+    count: int
+
+    @staticmethod
+    def _basis(phi_deg, gap_px, radius_px, with_constant):
+        t = np.radians(np.asarray(phi_deg, dtype=np.float64))
+        g = np.asarray(gap_px, dtype=np.float64) / radius_px
+        powers = [t**k for k in range(4)]
+        cols = ([*powers] if with_constant else []) + [p * g for p in powers] + [
+            p * g * g for p in powers[:2]
+        ]
+        return np.stack(cols, axis=-1)
+
+    def tangential(self, phi_deg, gap_px) -> np.ndarray:
+        return self._basis(phi_deg, gap_px, self.radius_px, True) @ self.coef_t
+
+    def radial(self, phi_deg, gap_px) -> np.ndarray:
+        """Radial component, zero at the wall (no flow through it)."""
+        return self._basis(phi_deg, gap_px, self.radius_px, False) @ self.coef_r
+
+
+def outer_stream(
+    fine: VectorField, origin_px, ball: BallFrame, side: str, *, gap_px=(6.0, 40.0)
+) -> OuterStream | None:
+    """Fit the stream beside the ball from fine PIV vectors clear of the wall and of the wake.
+
+    Vectors count when valid, ``gap_px`` outside the outline, and moving rearward faster than
+    0.6 of the ball's speed relative to the air (the wake and the layer are left out). The fit is
+    a low-order polar polynomial (cubic in angle, quadratic in gap), robust (Cauchy weights).
     """
-    fx, fy = flight_unit(flight_deg)
-    nx, ny = side_normal(flight_deg, side)
-    # screen axes: y_up = -y
-    rx, ry = -fx, fy
-    sx, sy = nx, -ny
-    return -math.copysign(1.0, rx * sy - ry * sx)
-
-
-def _noise_level(field: FieldOnGrid, center_px, radius_px) -> float:
-    """Robust standard deviation of the vorticity away from the ball (median absolute value)."""
-    m, n = field.values.shape
-    yy = field.y0_px + field.spacing_px * np.arange(m)[:, None]
-    xx = field.x0_px + field.spacing_px * np.arange(n)[None, :]
-    far = np.hypot(xx - center_px[0], yy - center_px[1]) > 1.3 * radius_px
-    vals = field.values[far & np.isfinite(field.values)]
-    if vals.size < 10:
-        vals = field.values[np.isfinite(field.values)]
-    if vals.size == 0:
-        return float("inf")
-    return float(1.4826 * np.median(np.abs(vals - np.median(vals)))) + 1e-12
-
-
-def trace_ridge(
-    field: FieldOnGrid,
-    center_px: tuple[float, float],
-    radius_px: float,
-    flight_deg: float,
-    side: str,
-    noise: float,
-    near_wall_px: float,
-) -> Ridge:
-    """Ridge of the side's shear-layer vorticity along rays from the ball centre.
-
-    Rays fan out every 1 deg from -30 to +85 deg (separation convention); on each the ridge is
-    the first local maximum (walking outward from the near-wall band) of the side-signed
-    vorticity above ``MIN_RIDGE_SNR`` noise levels and half the side's strongest value, refined
-    to sub-sample position by a parabola through the three samples around it.
-    """
-    fx, fy = flight_unit(flight_deg)
-    nx, ny = side_normal(flight_deg, side)
-    sign = side_sign(flight_deg, side)
-    angles = np.radians(np.arange(-30.0, 85.5, 1.0))
-    step = 0.5
-    radii = radius_px + np.arange(near_wall_px - 4.0, 0.9 * radius_px, step)
-    ex = np.cos(angles)[:, None] * nx - np.sin(angles)[:, None] * fx
-    ey = np.cos(angles)[:, None] * ny - np.sin(angles)[:, None] * fy
-    xs = center_px[0] + ex * radii[None, :]
-    ys = center_px[1] + ey * radii[None, :]
-    prof = sign * field.sample(xs, ys)
-    strongest = np.nanmax(prof) if np.isfinite(prof).any() else np.nan
-    level = max(MIN_RIDGE_SNR * noise, 0.5 * strongest) if np.isfinite(strongest) else np.inf
-    xi, zeta, strength = [], [], []
-    for k in range(len(angles)):
-        hit = _first_peak(prof[k], level)
-        if hit is None:
-            continue
-        j, offset = hit
-        rho = radii[j] + offset * step
-        if rho - radius_px < near_wall_px:
-            continue
-        a = angles[k]
-        xi.append(rho * math.sin(a))
-        zeta.append(rho * math.cos(a))
-        strength.append(prof[k, j])
-    return Ridge(np.array(xi), np.array(zeta), np.array(strength), noise)
-
-
-def _first_peak(profile: np.ndarray, level: float) -> tuple[int, float] | None:
-    """Index and parabolic sub-sample offset of the first local maximum above ``level``."""
-    p = profile
-    ok = np.isfinite(p)
-    for j in range(1, len(p) - 1):
-        if not (ok[j - 1] and ok[j] and ok[j + 1]):
-            continue
-        if p[j] >= level and p[j] >= p[j - 1] and p[j] > p[j + 1]:
-            denom = p[j - 1] - 2.0 * p[j] + p[j + 1]
-            offset = 0.5 * (p[j - 1] - p[j + 1]) / denom if denom < 0 else 0.0
-            return j, float(np.clip(offset, -0.5, 0.5))
-    return None
-
-
-def fit_separation(ridge: Ridge, radius_px: float, near_wall_px: float) -> SideProposal:
-    """Fit the ridge's path near the ball and extrapolate it to the outline.
-
-    The path is a quadratic ``zeta(xi)`` (side coordinates) fitted to the ridge points within
-    ``near_wall_px + radius/2`` of the outline, the most upstream part of the layer; its crossing
-    with the outline circle upstream of the first point is the proposed separation.
-    """
-    if ridge.xi_px.size < MIN_RIDGE_POINTS:
-        if ridge.xi_px.size == 0:
-            reason = "no shear layer next to the ball (attached flow, or too few valid vectors)"
-        else:
-            reason = (
-                f"no separated shear layer long enough to follow (attached flow?): only "
-                f"{ridge.xi_px.size} ridge points"
-            )
-        return SideProposal(None, None, 0.0, reason)
-    gap = np.hypot(ridge.xi_px, ridge.zeta_px) - radius_px
-    order = np.argsort(ridge.xi_px)
-    xi, zeta, gap, strength = (v[order] for v in (ridge.xi_px, ridge.zeta_px, gap, ridge.strength))
-    near = gap <= near_wall_px + 0.5 * radius_px
-    if near.sum() < MIN_RIDGE_POINTS:
-        return SideProposal(None, None, 0.0, "shear layer does not come near the ball")
-    phi = np.degrees(np.arctan2(xi[near], zeta[near]))
-    gap, strength = gap[near], strength[near]
-    fit = _fit_departure(phi, gap, strength, radius_px)
-    if fit is None:
-        return SideProposal(None, None, 0.0, "fitted shear-layer path does not meet the ball")
-    angle, spread = fit
-    uncertainty = math.hypot(spread, MODEL_FLOOR_DEG)
-    snr = float(np.median(strength) / max(ridge.noise, 1e-12))
-    quality = float(np.clip(min(1.0, snr / 30.0) * min(1.0, near.sum() / 25.0), 0.0, 1.0))
-    return SideProposal(round(angle, 2), round(uncertainty, 2), round(quality, 3), "")
-
-
-def _fit_departure(phi_deg, gap_px, weight, radius_px):
-    """Fit ``gap = R (c1 t + c2 t^2)``, ``t = radians(phi - phi_s)``, to the ridge's distance from
-    the outline; the layer leaves the outline at ``phi_s`` with slope ``c1 >= 0`` (it cannot
-    leave inward). Returns ``(phi_s, standard error)`` in deg, or None when the fit fails.
-    """
-    w = np.sqrt(np.clip(weight / np.max(weight), 1e-6, None))
-
-    def residual(p):
-        t = np.radians(phi_deg - p[0])
-        return w * (radius_px * (p[1] * t + p[2] * t * t) - gap_px)
-
-    first = float(phi_deg.min())
-    sol = least_squares(
-        residual, [first - 15.0, 0.2, 0.5], bounds=([first - 60.0, 0.0, -2.0], [first - 0.5, 1.0, 5.0])
+    phi, gap = _polar(ball, side, fine.x_px + origin_px[0], fine.y_px + origin_px[1])
+    (ex, ey), (tx, ty) = _side_axes(ball, side, phi)
+    u_t = fine.dx_px * tx + fine.dy_px * ty
+    u_r = fine.dx_px * ex + fine.dy_px * ey
+    speed = math.hypot(*ball.displacement_px)
+    ok = (
+        (fine.valid | fine.replaced) & np.isfinite(u_t) & (gap >= gap_px[0]) & (gap <= gap_px[1])
+        & (phi > BAND_DEG[0] - 10.0) & (phi < BAND_DEG[1] + 15.0) & (u_t > 0.6 * speed)
     )
-    if not sol.success:
+    if ok.sum() < 30:
         return None
-    dof = max(1, len(phi_deg) - 3)
-    sigma2 = float(np.sum(sol.fun**2) / dof)
-    cov = np.linalg.pinv(sol.jac.T @ sol.jac) * sigma2
-    return float(sol.x[0]), float(np.sqrt(max(cov[0, 0], 0.0)))
+    r = ball.radius_px
+    coef_t = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, True), u_t[ok])
+    coef_r = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, False), u_r[ok])
+    return OuterStream(coef_t, coef_r, r, int(ok.sum()))
 
 
-def wake_deflection(upper: Ridge, lower: Ridge, radius_px: float) -> float | None:
+def _robust_lstsq(design: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Least squares with iterated Cauchy weights (scale from the median absolute residual)."""
+    weight = np.ones_like(values)
+    coef = np.zeros(design.shape[1])
+    for _ in range(6):
+        coef, *_ = np.linalg.lstsq(design * weight[:, None], values * weight, rcond=None)
+        resid = values - design @ coef
+        scale = 1.4826 * np.median(np.abs(resid)) + 1e-6
+        weight = 1.0 / np.sqrt(1.0 + (resid / (2.0 * scale)) ** 2)
+    return coef
+
+
+# --- the band of particle images next to the ball --------------------------------------------
+
+
+class NearWallBand:
+    """Samples of both frames on a polar grid along one side of the ball (ball frame).
+
+    ``residual(u_t, u_r)`` compares frame A at ``p - D/2 - u/2`` with frame B at
+    ``p + D/2 + u/2`` for every sample ``p`` (cubic splines of lightly smoothed frames); the
+    tangential motion is applied as a rotation about the ball centre (flow along the outline).
+    """
+
+    def __init__(self, frame_a, frame_b, ball: BallFrame, side: str, *,
+                 phi_deg=BAND_DEG, gap_px=BAND_GAP_PX, arc_step_px=1.0, gap_step_px=0.5):
+        self.ball = ball
+        self.side = side
+        r = ball.radius_px
+        step_deg = math.degrees(arc_step_px / r)
+        phi = np.arange(phi_deg[0], phi_deg[1] + step_deg / 2, step_deg)
+        gap = np.arange(gap_px[0], gap_px[1] + gap_step_px / 2, gap_step_px)
+        grid_phi, grid_gap = np.meshgrid(phi, gap, indexing="ij")
+        self.phi = grid_phi.ravel()
+        self.gap = grid_gap.ravel()
+        x, y = self._xy(self.phi, r + self.gap)
+        reach = 3.0 * math.hypot(*ball.displacement_px) + 10.0
+        height, width = frame_a.shape
+        self.y0 = max(0, int(y.min() - reach))
+        self.x0 = max(0, int(x.min() - reach))
+        y1 = min(height, int(y.max() + reach) + 1)
+        x1 = min(width, int(x.max() + reach) + 1)
+        crop_a = ndimage.gaussian_filter(np.asarray(frame_a[self.y0:y1, self.x0:x1], float), 0.7)
+        crop_b = ndimage.gaussian_filter(np.asarray(frame_b[self.y0:y1, self.x0:x1], float), 0.7)
+        self.scale = float(np.std(crop_a)) + 1e-9
+        self.coeff_a = ndimage.spline_filter(crop_a, order=3)
+        self.coeff_b = ndimage.spline_filter(crop_b, order=3)
+
+    def _xy(self, phi_deg, rho):
+        (ex, ey), _ = _side_axes(self.ball, self.side, phi_deg)
+        return self.ball.center_px[0] + rho * ex, self.ball.center_px[1] + rho * ey
+
+    def residual(self, u_t: np.ndarray, u_r: np.ndarray) -> np.ndarray:
+        """Normalised difference of the two frames under ball-frame motion ``(u_t, u_r)`` (px)."""
+        rho = self.ball.radius_px + self.gap
+        half_turn = np.degrees(0.5 * u_t / rho)
+        dx, dy = self.ball.displacement_px
+        xa, ya = self._xy(self.phi - half_turn, rho - 0.5 * u_r)
+        xb, yb = self._xy(self.phi + half_turn, rho + 0.5 * u_r)
+        a = ndimage.map_coordinates(
+            self.coeff_a, [ya - 0.5 * dy - self.y0, xa - 0.5 * dx - self.x0], order=3,
+            prefilter=False, mode="nearest",
+        )
+        b = ndimage.map_coordinates(
+            self.coeff_b, [yb + 0.5 * dy - self.y0, xb + 0.5 * dx - self.x0], order=3,
+            prefilter=False, mode="nearest",
+        )
+        return (a - b) / self.scale
+
+
+# --- the layer model and its fit -------------------------------------------------------------
+
+
+def layer_gap_px(radius_px: float, phi_s_deg: float, slope: float, bend: float, phi_deg):
+    """Distance (px) of the layer from the outline at angles ``phi_deg``; -inf-like upstream."""
+    t = np.radians(np.asarray(phi_deg) - phi_s_deg)
+    return np.where(t > 0, radius_px * (slope * t + bend * t * t), -1e3)
+
+
+def _model(band: NearWallBand, params, u_t, u_r):
+    """Ball-frame motion of the layered model; ``params = (phi_s, a, b, w, u_wake, k_t, k_r)``."""
+    phi_s, slope, bend, width, u_wake, k_t, k_r = params
+    g_layer = layer_gap_px(band.ball.radius_px, phi_s, slope, bend, band.phi)
+    stream = 0.5 * (1.0 + np.tanh((band.gap - g_layer) / max(width, 0.3)))
+    return u_wake + (k_t * u_t - u_wake) * stream, k_r * u_r * stream
+
+
+def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str) -> SideProposal:
+    """Fit the shear layer on one side; an empty proposal with the reason when there is none."""
+    outer = outer_stream(fine, origin_px, ball, side)
+    if outer is None:
+        return SideProposal(None, None, 0.0, "too few valid vectors beside the ball to model the "
+                            "stream there")
+    band = NearWallBand(frame_a, frame_b, ball, side)
+    u_t = outer.tangential(band.phi, band.gap)
+    u_r = outer.radial(band.phi, band.gap)
+    attached = band.residual(u_t, u_r)
+    attached_cost = float(np.sum(attached**2))
+    start, start_cost = _coarse_search(band, u_t, u_r)
+    if not start_cost < (1.0 - MIN_IMPROVEMENT) * attached_cost:
+        return SideProposal(None, None, 0.0, "no separated shear layer next to the ball "
+                            "(the attached-flow model fits as well: attached flow?)")
+    params, spread = _refine(band, u_t, u_r, start)
+    phi_s = float(params[0])
+    if phi_s > BAND_DEG[1] - REAR_MARGIN_DEG:
+        return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "
+                            "(attached flow?)")
+    uncertainty = math.hypot(spread, MODEL_FLOOR_DEG)
+    gain = 1.0 - start_cost / attached_cost
+    quality = float(np.clip(gain / 0.2, 0.0, 1.0) * np.clip(2.0 / max(spread, 1e-3), 0.0, 1.0))
+    remark = ""
+    if math.degrees(math.atan(params[1])) > 25.0:
+        remark = "the layer leaves unusually steeply: check the proposal"
+    return SideProposal(round(phi_s, 2), round(uncertainty, 2), round(quality, 3), remark)
+
+
+def _coarse_search(band: NearWallBand, u_t, u_r):
+    """Best ``(phi_s, a, b)`` on a grid (2 deg; 3 slopes, 2 bends), then its neighbourhood."""
+    best = (np.inf, None)
+    for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 2.0):
+        params = [phi_s, PRIOR_SLOPE[0], 0.6, 1.5, 0.0, 1.0, 1.0]
+        cost = float(np.sum(band.residual(*_model(band, params, u_t, u_r)) ** 2))
+        if cost < best[0]:
+            best = (cost, params)
+    centre = best[1][0]
+    for phi_s in np.arange(centre - 6.0, centre + 6.5, 1.0):
+        for angle in (3.0, 7.0, 11.0, 15.0, 20.0):
+            for bend in (0.3, 0.6, 0.9):
+                params = [phi_s, math.tan(math.radians(angle)), bend, 1.5, 0.0, 1.0, 1.0]
+                cost = float(np.sum(band.residual(*_model(band, params, u_t, u_r)) ** 2))
+                if cost < best[0]:
+                    best = (cost, params)
+    return best[1], best[0]
+
+
+def _refine(band: NearWallBand, u_t, u_r, start):
+    """Least-squares refinement with the priors; returns parameters and the angle's std (deg)."""
+    first = band.residual(*_model(band, start, u_t, u_r))
+    sigma = math.sqrt(float(np.mean(first**2)) * SAMPLES_PER_INDEPENDENT) + 1e-12
+
+    def residuals(p):
+        r = band.residual(*_model(band, p, u_t, u_r)) / sigma
+        prior = [(p[1] - PRIOR_SLOPE[0]) / PRIOR_SLOPE[1], (p[2] - PRIOR_BEND[0]) / PRIOR_BEND[1]]
+        return np.concatenate([r, prior])
+
+    lower = [start[0] - 8.0, 0.0, -0.5, 0.3, -3.0, 0.7, 0.0]
+    upper = [start[0] + 8.0, 0.7, 2.0, 5.0, 3.0, 1.3, 2.0]
+    sol = least_squares(residuals, start, bounds=(lower, upper), diff_step=1e-3, max_nfev=60)
+    cov = np.linalg.pinv(sol.jac.T @ sol.jac)
+    return sol.x, float(math.sqrt(max(cov[0, 0], 0.0)))
+
+
+# --- wake ------------------------------------------------------------------------------------
+
+
+def wake_deflection(fine: VectorField, origin_px, ball: BallFrame) -> float | None:
     """Direction of the wake centreline relative to the rearward axis (deg, + toward upper).
 
-    The centreline is the midline of the two shear layers behind the ball (xi > 0.6 R),
-    where both are seen at matching xi; its slope is fitted by least squares.
+    Behind the ball (1.1 to 2.2 radii from its centre along the axis) the wake is the slow part
+    of the ball-frame flow; its centre at each distance is the deficit-weighted mean position
+    across the axis, and the centreline's slope is fitted by least squares.
     """
-    if upper.xi_px.size < MIN_RIDGE_POINTS or lower.xi_px.size < MIN_RIDGE_POINTS:
+    fx, fy = flight_unit(ball.flight_deg)
+    nx, ny = side_normal(ball.flight_deg, "upper")
+    rx = fine.x_px + origin_px[0] - ball.center_px[0]
+    ry = fine.y_px + origin_px[1] - ball.center_px[1]
+    xi = -(rx * fx + ry * fy)
+    eta = rx * nx + ry * ny
+    speed = math.hypot(*ball.displacement_px)
+    r = ball.radius_px
+    usable = (fine.valid | fine.replaced) & np.isfinite(fine.dx_px)
+    deficit = np.clip(1.0 - np.hypot(fine.dx_px, fine.dy_px) / max(speed, 1e-9), 0.0, 1.0)
+    centres, stations = [], []
+    for lo in np.arange(1.1, 2.2, 0.1) * r:
+        sel = usable & (xi >= lo) & (xi < lo + 0.1 * r) & (np.abs(eta) < 1.5 * r)
+        weight = np.where(sel, deficit, 0.0)
+        if weight.sum() < 1.0:
+            continue
+        centres.append(float(np.sum(weight * eta) / weight.sum()))
+        stations.append(lo + 0.05 * r)
+    if len(stations) < 4:
         return None
-    lo = max(0.6 * radius_px, upper.xi_px.min(), lower.xi_px.min())
-    hi = min(upper.xi_px.max(), lower.xi_px.max())
-    if hi - lo < 0.3 * radius_px:
-        return None
-    xi = np.linspace(lo, hi, 20)
-    ou, ol = np.argsort(upper.xi_px), np.argsort(lower.xi_px)
-    zu = np.interp(xi, upper.xi_px[ou], upper.zeta_px[ou])
-    zl = np.interp(xi, lower.xi_px[ol], lower.zeta_px[ol])
-    mid = 0.5 * (zu - zl)  # lower's zeta points the other way
-    slope = np.polyfit(xi, mid, 1)[0]
+    slope = np.polyfit(stations, centres, 1)[0]
     return round(math.degrees(math.atan(slope)), 2)
 
 

@@ -332,25 +332,22 @@ def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
 
 
 def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings):
-    """Fine correlation around the ball in the ball frame, vorticity, proposal."""
-    from core.fields import vorticity
+    """Fine correlation around the ball in the ball frame, then the layer fit on each side."""
     from core.piv import correlate_pair
-    from core.separation import FieldOnGrid, propose_separation
+    from core.separation import BallFrame, propose_separation
 
     crop, a, b, mask, centre, radius = _ball_frame_crop(frame_a, frame_b, balls, flight)
+    if min(a.shape) < 2 * FINE_PASSES[0].window_px:
+        reason = "too little of the image around the ball for the fine correlation"
+        return SeparationResult(SideProposal(None, reason=reason), SideProposal(None, reason=reason))
     fine = PivSettings(
         passes=FINE_PASSES, median_threshold=settings.piv.median_threshold,
         median_eps_px=settings.piv.median_eps_px,
         max_masked_fraction=settings.piv.max_masked_fraction, workers=settings.piv.workers,
     )
-    if min(a.shape) < 2 * FINE_PASSES[0].window_px:
-        reason = "too little of the image around the ball for the fine correlation"
-        return SeparationResult(SideProposal(None, reason=reason), SideProposal(None, reason=reason))
     vf = correlate_pair(a, b, mask, mask, fine)
-    usable = vf.valid | vf.replaced
-    omega = vorticity(vf.dx_px, vf.dy_px, vf.spacing_px, usable=usable)
-    grid = FieldOnGrid(omega, vf.x_px[0, 0] + crop[1], vf.y_px[0, 0] + crop[0], vf.spacing_px)
-    return propose_separation(grid, centre, radius, flight.direction_deg)
+    ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg)
+    return propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]))
 
 
 def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):
@@ -364,7 +361,7 @@ def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):
     cx = 0.5 * (ball_a.center_px[0] + ball_b.center_px[0])
     cy = 0.5 * (ball_a.center_px[1] + ball_b.center_px[1])
     r = 0.5 * (ball_a.radius_px + ball_b.radius_px)
-    dx, dy = ball_b.center_px[0] - ball_a.center_px[0], ball_b.center_px[1] - ball_a.center_px[1]
+    dx, dy = flight.displacement_px
     height, width = frame_a.shape
     y0, y1 = max(0, int(cy - 1.9 * r)), min(height, int(cy + 1.9 * r) + 1)
     x0, x1 = max(0, int(cx - 2.3 * r)), min(width, int(cx + 2.3 * r) + 1)
