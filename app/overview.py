@@ -13,7 +13,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6 import QtCore, QtGui, QtWidgets
+from PySide6 import QtCore, QtWidgets
 
 from app import colours
 
@@ -383,7 +383,3 @@ def _legend_label() -> QtWidgets.QLabel:
     label.setTextFormat(QtCore.Qt.TextFormat.RichText)
     return label
 
-
-def status_brush(status: str) -> QtGui.QBrush:
-    """Brush of a review status (for list items that should match the overview's colours)."""
-    return QtGui.QBrush(QtGui.QColor(colours.STATUS_COLOURS.get(status, colours.MUTED_INK)))
