@@ -206,6 +206,7 @@ class ReadoutPanel(QWidget):
         self.note.committed.connect(self._on_note_committed)
         box.addWidget(self.note)
         self.last_edit = QLabel(group)
+        self.last_edit.setWordWrap(True)  # a long analyst name must not widen the panel
         self.last_edit.setStyleSheet(f"color: {colours.MUTED_INK};")
         box.addWidget(self.last_edit)
         return group
