@@ -220,7 +220,10 @@ class NearWallBand:
         grid_phi, grid_gap = np.meshgrid(phi, gap, indexing="ij")
         self.phi = grid_phi.ravel()
         self.gap = grid_gap.ravel()
-        x, y = self._xy(self.phi, r + self.gap)
+        (ex, ey), (tx, ty) = _side_axes(ball, side, self.phi)
+        self._e = (ex, ey)
+        self._t = (tx, ty)
+        x, y = ball.center_px[0] + (r + self.gap) * ex, ball.center_px[1] + (r + self.gap) * ey
         reach = 3.0 * math.hypot(*ball.displacement_px) + 10.0
         height, width = frame_a.shape
         self.y0 = max(0, int(y.min() - reach))
@@ -233,17 +236,24 @@ class NearWallBand:
         self.coeff_a = ndimage.spline_filter(crop_a, order=3)
         self.coeff_b = ndimage.spline_filter(crop_b, order=3)
 
-    def _xy(self, phi_deg, rho):
-        (ex, ey), _ = _side_axes(self.ball, self.side, phi_deg)
-        return self.ball.center_px[0] + rho * ex, self.ball.center_px[1] + rho * ey
+    def _positions(self, turn_rad, rho):
+        """Image positions of the samples turned by ``turn_rad`` about the ball centre, at radius
+        ``rho``; the turn is small (half a frame pair's motion), so cos/sin are series."""
+        t2 = turn_rad * turn_rad
+        cos_t = 1.0 - t2 / 2.0 + t2 * t2 / 24.0
+        sin_t = turn_rad * (1.0 - t2 / 6.0 + t2 * t2 / 120.0)
+        (ex, ey), (tx, ty) = self._e, self._t
+        x = self.ball.center_px[0] + rho * (ex * cos_t + tx * sin_t)
+        y = self.ball.center_px[1] + rho * (ey * cos_t + ty * sin_t)
+        return x, y
 
     def residual(self, u_t: np.ndarray, u_r: np.ndarray) -> np.ndarray:
         """Normalised difference of the two frames under ball-frame motion ``(u_t, u_r)`` (px)."""
         rho = self.ball.radius_px + self.gap
-        half_turn = np.degrees(0.5 * u_t / rho)
+        half_turn = 0.5 * u_t / rho
         dx, dy = self.ball.displacement_px
-        xa, ya = self._xy(self.phi - half_turn, rho - 0.5 * u_r)
-        xb, yb = self._xy(self.phi + half_turn, rho + 0.5 * u_r)
+        xa, ya = self._positions(-half_turn, rho - 0.5 * u_r)
+        xb, yb = self._positions(half_turn, rho + 0.5 * u_r)
         a = ndimage.map_coordinates(
             self.coeff_a, [ya - 0.5 * dy - self.y0, xa - 0.5 * dx - self.x0], order=3,
             prefilter=False, mode="nearest",
@@ -261,7 +271,7 @@ class NearWallBand:
 def layer_gap_px(radius_px: float, phi_s_deg: float, slope: float, bend: float, phi_deg):
     """Distance (px) of the layer from the outline at angles ``phi_deg``; -inf-like upstream."""
     t = np.radians(np.asarray(phi_deg) - phi_s_deg)
-    return np.where(t > 0, radius_px * (slope * t + bend * t * t), -1e3)
+    return np.where(t >= 0, radius_px * (slope * t + bend * t * t), -1e3)
 
 
 def _model(band: NearWallBand, params, u_t, u_r):
@@ -302,7 +312,7 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
 
 
 def _coarse_search(band: NearWallBand, u_t, u_r):
-    """Best ``(phi_s, a, b)`` on a grid (2 deg; 3 slopes, 2 bends), then its neighbourhood."""
+    """Best ``phi_s`` on a 2 deg grid, then ``(phi_s, a, b)`` around it (5 slopes, 3 bends)."""
     best = (np.inf, None)
     for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 2.0):
         params = [phi_s, PRIOR_SLOPE[0], 0.6, 1.5, 0.0, 1.0, 1.0]
@@ -310,7 +320,7 @@ def _coarse_search(band: NearWallBand, u_t, u_r):
         if cost < best[0]:
             best = (cost, params)
     centre = best[1][0]
-    for phi_s in np.arange(centre - 6.0, centre + 6.5, 1.0):
+    for phi_s in np.arange(centre - 6.0, centre + 6.5, 2.0):
         for angle in (3.0, 7.0, 11.0, 15.0, 20.0):
             for bend in (0.3, 0.6, 0.9):
                 params = [phi_s, math.tan(math.radians(angle)), bend, 1.5, 0.0, 1.0, 1.0]
@@ -332,7 +342,10 @@ def _refine(band: NearWallBand, u_t, u_r, start):
 
     lower = [start[0] - 8.0, 0.0, -0.5, 0.3, -3.0, 0.7, 0.0]
     upper = [start[0] + 8.0, 0.7, 2.0, 5.0, 3.0, 1.3, 2.0]
-    sol = least_squares(residuals, start, bounds=(lower, upper), diff_step=1e-3, max_nfev=60)
+    sol = least_squares(
+        residuals, start, bounds=(lower, upper), diff_step=1e-3, max_nfev=40, xtol=1e-4, tr_solver="lsmr",
+        ftol=1e-4,
+    )
     cov = np.linalg.pinv(sol.jac.T @ sol.jac)
     return sol.x, float(math.sqrt(max(cov[0, 0], 0.0)))
 
