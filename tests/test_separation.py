@@ -1,0 +1,153 @@
+"""Separation proposals on synthetic shots with known truth (core.synth_shot).
+
+The sweep covers separation angles -15..+30 deg on each side, symmetric and asymmetric shots,
+flight to the left and to the right with up to +-5 deg of tilt, and departure angles of the
+shear layer of 5-15 deg from the tangent (separated layers leave the wall at a shallow angle:
+common practice). Truth is the generator's prescribed separation point.
+"""
+
+import math
+
+import numpy as np
+import pytest
+
+from core.results import SideProposal
+from core.separation import (
+    MODEL_FLOOR_DEG,
+    layer_gap_px,
+    wake_state,
+)
+from core.shot import ShotSettings, measure_shot
+from core.synth_shot import BallWakeFlow, attached_shot, ball_shot, smooth_sphere_shot
+
+
+def _settings(truth):
+    return ShotSettings(dt_s=truth.dt_s, ball_diameter_mm=truth.ball_diameter_mm)
+
+
+def _sweep_cases(count=14, seed=7):
+    rng = np.random.default_rng(seed)
+    cases = []
+    for i in range(count):
+        flight = (180.0 if i % 2 == 0 else 0.0) + rng.uniform(-5.0, 5.0)
+        upper = rng.uniform(-15.0, 30.0)
+        lower = upper if i % 3 == 0 else rng.uniform(-15.0, 30.0)
+        leave = (rng.uniform(5.0, 15.0), rng.uniform(5.0, 15.0))
+        deflection = rng.uniform(-8.0, 8.0)
+        cases.append((flight, upper, lower, leave, deflection, 300 + i))
+    return cases
+
+
+@pytest.fixture(scope="module")
+def sweep():
+    """Errors (deg) and reported uncertainties of every side of every sweep shot."""
+    errors, uncertainties, deflections = [], [], []
+    for flight, upper, lower, leave, deflection, seed in _sweep_cases():
+        frame_a, frame_b, truth = ball_shot(
+            flight_deg=flight, upper_deg=upper, lower_deg=lower, leave_deg=leave,
+            wake_deflection_deg=deflection, seed=seed,
+        )
+        sep = measure_shot(frame_a, frame_b, _settings(truth)).separation
+        for proposal, true in ((sep.upper, upper), (sep.lower, lower)):
+            assert proposal.angle_deg is not None, proposal.reason
+            errors.append(proposal.angle_deg - true)
+            uncertainties.append(proposal.uncertainty_deg)
+        deflections.append((sep.wake_deflection_deg, deflection))
+    return np.array(errors), np.array(uncertainties), deflections
+
+
+@pytest.mark.slow
+def test_sweep_errors_stay_within_the_reported_uncertainty(sweep):
+    errors, uncertainties, _ = sweep
+    coverage = np.mean(np.abs(errors) <= uncertainties)
+    assert coverage >= 0.9, f"coverage {coverage:.2f}, errors {np.round(errors, 1)}"
+    assert np.median(np.abs(errors)) <= 4.0
+    assert np.max(np.abs(errors)) <= 15.0  # shallow (5 deg) departures reach ~13 deg
+
+
+@pytest.mark.slow
+@pytest.mark.xfail(
+    strict=True,
+    reason="accuracy target of the issue (median 1 deg, max 2.5 deg) not reached: the sweep "
+    "gives a median of 2-3 deg and a maximum of 7-13 deg (layers within 1-2 px of the wall "
+    "for the first 5-10 deg are not resolved at this seeding)",
+)
+def test_sweep_meets_the_issue_accuracy_target(sweep):
+    errors, _, _ = sweep
+    assert np.median(np.abs(errors)) <= 1.0
+    assert np.max(np.abs(errors)) <= 2.5
+
+
+@pytest.mark.slow
+def test_wake_deflection_follows_the_wake(sweep):
+    _, _, deflections = sweep
+    measured = np.array([m for m, _ in deflections], dtype=float)
+    true = np.array([t for _, t in deflections])
+    # the near wake (1-2 radii behind) has not yet turned fully to its final direction; the sign
+    # of a clear deflection must come out right
+    clear = np.abs(true) > 4.0
+    assert np.all(np.sign(measured[clear]) == np.sign(true[clear]))
+
+
+def test_smooth_sphere_separates_near_minus_9_deg():
+    # laminar separation 80-82 deg from the front stagnation point, i.e. -8 to -10 deg from the
+    # plane normal to the flight (Achenbach 1972, J. Fluid Mech. 54:565, memory)
+    frame_a, frame_b, truth = smooth_sphere_shot(seed=21)
+    sep = measure_shot(frame_a, frame_b, _settings(truth)).separation
+    for proposal in (sep.upper, sep.lower):
+        assert proposal.angle_deg is not None
+        assert abs(proposal.angle_deg - (-9.0)) <= proposal.uncertainty_deg
+    assert sep.wake_state == "symmetric"
+
+
+@pytest.mark.parametrize("flight_deg", [180.0, 3.0])
+def test_attached_flow_proposes_nothing(flight_deg):
+    # potential flow past a sphere: no wake, no vorticity (Batchelor 1967, memory)
+    frame_a, frame_b, truth = attached_shot(flight_deg=flight_deg, seed=22)
+    sep = measure_shot(frame_a, frame_b, _settings(truth)).separation
+    for proposal in (sep.upper, sep.lower):
+        assert proposal.angle_deg is None
+        assert "attached" in proposal.reason
+    assert sep.wake_deflection_deg is None and sep.wake_state == "undetermined"
+
+
+def test_asymmetric_shot_names_the_side_that_holds_on():
+    frame_a, frame_b, truth = ball_shot(upper_deg=28.0, lower_deg=-10.0, seed=23)
+    sep = measure_shot(frame_a, frame_b, _settings(truth)).separation
+    assert sep.wake_state == "upper side holds on longer"
+
+
+def test_wake_state_threshold():
+    def side(angle, unc=1.0):
+        return SideProposal(angle, unc)
+
+    assert wake_state(side(10.0), side(6.0)) == "symmetric"  # 4 deg < 5 deg
+    assert wake_state(side(10.0), side(2.0)) == "upper side holds on longer"
+    assert wake_state(side(0.0, 9.0), side(10.0, 9.0)) == "symmetric"  # within hypot(9, 9)
+    assert wake_state(side(None), side(3.0)) == "undetermined"
+
+
+def test_layer_gap_model_leaves_the_outline_at_the_separation_angle():
+    gap = layer_gap_px(60.0, 12.0, math.tan(math.radians(10.0)), 0.5, np.array([11.0, 12.0, 20.0]))
+    assert gap[0] < 0 and gap[1] == pytest.approx(0.0)
+    # 8 deg downstream: R (a t + b t^2) with t = 8 deg (derived)
+    t = math.radians(8.0)
+    assert gap[2] == pytest.approx(60.0 * (math.tan(math.radians(10.0)) * t + 0.5 * t * t))
+
+
+def test_generator_layer_leaves_the_wall_at_the_prescribed_angle():
+    # the truth of the sweep: the synthetic wake's edge meets the outline at the prescribed angle
+    flow = BallWakeFlow((200.0, 150.0), 60.0, (-8.0, 0.0), 180.0, 12.0, 12.0)
+    from core.geometry import point_at_angle
+
+    for angle, inside in ((6.0, False), (26.0, True)):
+        x, y = point_at_angle((200.0, 150.0), 61.0, 180.0, "upper", angle)
+        weight = flow.wake_weight(np.array([x]), np.array([y]))[0]
+        assert (weight > 0.5) == inside
+
+
+def test_floor_is_part_of_every_uncertainty():
+    frame_a, frame_b, truth = ball_shot(upper_deg=5.0, lower_deg=15.0, seed=24)
+    sep = measure_shot(frame_a, frame_b, _settings(truth)).separation
+    assert sep.upper.uncertainty_deg >= MODEL_FLOOR_DEG
+    assert 0.0 <= sep.upper.quality <= 1.0
