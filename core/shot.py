@@ -69,6 +69,7 @@ class ShotResult:
     vorticity_1_s: np.ndarray | None = None  # (M, N), counter-clockwise positive as seen on screen
     warnings: list[str] = field(default_factory=list)
     valid_near_ball: int | None = None  # valid vectors within two grid spacings of the outline
+    stage_seconds: dict[str, float] = field(default_factory=dict)  # wall time per stage (not stored)
 
     def summary(self) -> dict:
         """JSON-ready record (the ``wakeline pair --json`` contract)."""
@@ -192,9 +193,10 @@ def _separation_from(d: dict) -> SeparationResult:
     )
 
 
-#: Final window (px) and overlap of the fine correlation around the ball.
+#: Passes of the finer correlation around the ball (ball frame): it gives the stream beside the
+#: layer and the wake; the layer itself is fitted to the particle images (core.separation).
 FINE_PASSES = (
-    PivPass(64, 0.5), PivPass(32, 0.5), PivPass(32, 0.75), PivPass(16, 0.75), PivPass(16, 0.75),
+    PivPass(64, 0.5), PivPass(32, 0.5), PivPass(24, 0.5), PivPass(16, 0.5),
 )
 #: Ball displacement (px) below which its direction is not trusted without an override.
 MIN_FLIGHT_PX = 1.0
@@ -206,8 +208,9 @@ def measure_shot(
     """Measure one shot: ball (unless ``settings.find_ball`` is False), PIV, fields, separation.
 
     Stages: ball circle in each frame -> masks (ball + margin, per frame) -> PIV with the core
-    settings -> a fine correlation (16 px windows, 75 % overlap) on a crop around the ball in the
-    ball frame -> velocity and vorticity -> separation proposal from the fine field.
+    settings -> a finer correlation (down to 16 px windows) on a crop around the ball in the
+    ball frame -> velocity and vorticity -> separation proposal (layer fit to the particle images
+    next to the ball, with the stream outside it from the fine field).
 
     Units of the fields on the result: with ``dt_s`` and a scale (given, or derived from the
     fitted ball and its diameter) ``u_m_s``/``v_m_s`` are lab-frame m/s and ``vorticity_1_s`` is
@@ -230,15 +233,35 @@ def measure_shot(
     from core.piv import correlate_pair
 
     warnings: list[str] = []
+    clock = _StageClock()
     balls = _find_balls(frame_a, frame_b, settings) if settings.find_ball else None
     masks = (None, None) if balls is None else _masks(frame_a.shape, balls)
+    clock.lap("ball")
     vf = correlate_pair(frame_a, frame_b, masks[0], masks[1], settings.piv, progress)
+    clock.lap("piv")
     result = ShotResult(field=vf, settings=settings, scale_mm_per_px=settings.scale_mm_per_px,
-                        warnings=warnings)
+                        warnings=warnings, stage_seconds=clock.seconds)
     if balls is not None:
-        _ball_stages(result, frame_a, frame_b, balls, warnings)
+        _ball_stages(result, frame_a, frame_b, balls, warnings, clock)
     _fill_fields(result, warnings)
+    clock.lap("fields")
     return result
+
+
+class _StageClock:
+    """Wall time of consecutive stages (seconds), accumulated by name."""
+
+    def __init__(self):
+        import time
+
+        self._now = time.perf_counter
+        self._last = self._now()
+        self.seconds: dict[str, float] = {}
+
+    def lap(self, name: str) -> None:
+        now = self._now()
+        self.seconds[name] = self.seconds.get(name, 0.0) + now - self._last
+        self._last = now
 
 
 def _find_balls(frame_a, frame_b, settings: ShotSettings):
@@ -270,7 +293,7 @@ def _masks(shape, balls):
     return ball_mask(shape, balls[0]), ball_mask(shape, balls[1])
 
 
-def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str]) -> None:
+def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str], clock) -> None:
     """Scale, flight, frame-order check and separation (fills ``result`` in place)."""
     from core.ball import flight_from_balls, refine_displacement, scale_from_ball
     from core.fields import valid_near_ball
@@ -289,6 +312,7 @@ def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str
         flight_deg=settings.flight_deg,
     )
     result.flight = flight
+    clock.lap("ball")
     moved = float(np.hypot(*flight.displacement_px))
     if moved < MIN_FLIGHT_PX and settings.flight_deg is None:
         warnings.append(
@@ -306,7 +330,7 @@ def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str
             SideProposal(None, reason=reason), SideProposal(None, reason=reason)
         )
         return
-    result.separation = _separation(frame_a, frame_b, balls, flight, settings)
+    result.separation = _separation(frame_a, frame_b, balls, flight, settings, clock)
 
 
 def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
@@ -331,7 +355,7 @@ def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
     return float(np.median(follow[ahead])) > float(np.median(follow[behind])) + 0.2 * moved
 
 
-def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings):
+def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings, clock):
     """Fine correlation around the ball in the ball frame, then the layer fit on each side."""
     from core.piv import correlate_pair
     from core.separation import BallFrame, propose_separation
@@ -346,8 +370,11 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings)
         max_masked_fraction=settings.piv.max_masked_fraction, workers=settings.piv.workers,
     )
     vf = correlate_pair(a, b, mask, mask, fine)
+    clock.lap("fine piv")
     ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg)
-    return propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]))
+    proposal = propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]))
+    clock.lap("separation")
+    return proposal
 
 
 def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):

@@ -31,6 +31,7 @@ def test_summary_has_the_json_contract(shot):
         assert key in sep
     assert "quality" in sep["upper"] and "reason" in sep["lower"]
     assert summary["vectors"]["valid_near_ball"] is not None
+    assert set(result.stage_seconds) == {"ball", "piv", "fine piv", "separation", "fields"}
 
 
 def test_ball_flight_and_derived_scale(shot):
