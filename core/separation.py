@@ -80,6 +80,7 @@ def propose_separation(
     ball: BallFrame,
     fine: VectorField,
     fine_origin_px: tuple[float, float] = (0.0, 0.0),
+    lab_field: VectorField | None = None,
 ) -> SeparationResult:
     """Separation proposal on both sides, wake deflection and wake state of one shot.
 
@@ -94,6 +95,9 @@ def propose_separation(
         relative to ``fine_origin_px``.
     fine_origin_px : (float, float)
         Image position (x, y) of the fine field's origin.
+    lab_field : VectorField, optional
+        The whole-frame field (lab frame, image coordinates): it reaches further behind the ball
+        for the wake's direction; without it the fine field is used.
 
     Returns
     -------
@@ -101,7 +105,10 @@ def propose_separation(
     """
     sides = {side: fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side)
              for side in ("upper", "lower")}
-    deflection = wake_deflection(fine, fine_origin_px, ball)
+    if lab_field is not None:
+        deflection = wake_deflection(lab_field, (0.0, 0.0), ball, lab_frame=True)
+    else:
+        deflection = wake_deflection(fine, fine_origin_px, ball, reach=(1.1, 2.2))
     if sides["upper"].angle_deg is None and sides["lower"].angle_deg is None:
         deflection = None
     state = wake_state(sides["upper"], sides["lower"])
@@ -353,34 +360,40 @@ def _refine(band: NearWallBand, u_t, u_r, start):
 # --- wake ------------------------------------------------------------------------------------
 
 
-def wake_deflection(fine: VectorField, origin_px, ball: BallFrame) -> float | None:
+def wake_deflection(
+    field: VectorField, origin_px, ball: BallFrame, *, lab_frame: bool = False,
+    reach=(1.2, 4.0),
+) -> float | None:
     """Direction of the wake centreline relative to the rearward axis (deg, + toward upper).
 
-    Behind the ball (1.1 to 2.2 radii from its centre along the axis) the wake is the slow part
-    of the ball-frame flow; its centre at each distance is the deficit-weighted mean position
-    across the axis, and the centreline's slope is fitted by least squares.
+    Behind the ball (``reach`` radii from its centre along the axis, within 1.5 radii of it)
+    the wake is the air that keeps up with the ball: weight ``1 - |u|/U`` in the ball frame, or
+    the lab-frame motion along the flight over the ball's, ``u . D / |D|^2`` (clipped to 0..1).
+    The centreline is the straight line fitted to the vectors' positions with those weights
+    (weighted least squares of the cross-axis position on the along-axis one).
     """
     fx, fy = flight_unit(ball.flight_deg)
     nx, ny = side_normal(ball.flight_deg, "upper")
-    rx = fine.x_px + origin_px[0] - ball.center_px[0]
-    ry = fine.y_px + origin_px[1] - ball.center_px[1]
+    rx = field.x_px + origin_px[0] - ball.center_px[0]
+    ry = field.y_px + origin_px[1] - ball.center_px[1]
     xi = -(rx * fx + ry * fy)
     eta = rx * nx + ry * ny
-    speed = math.hypot(*ball.displacement_px)
+    dx, dy = ball.displacement_px
+    speed2 = max(dx * dx + dy * dy, 1e-12)
     r = ball.radius_px
-    usable = (fine.valid | fine.replaced) & np.isfinite(fine.dx_px)
-    deficit = np.clip(1.0 - np.hypot(fine.dx_px, fine.dy_px) / max(speed, 1e-9), 0.0, 1.0)
-    centres, stations = [], []
-    for lo in np.arange(1.1, 2.2, 0.1) * r:
-        sel = usable & (xi >= lo) & (xi < lo + 0.1 * r) & (np.abs(eta) < 1.5 * r)
-        weight = np.where(sel, deficit, 0.0)
-        if weight.sum() < 1.0:
-            continue
-        centres.append(float(np.sum(weight * eta) / weight.sum()))
-        stations.append(lo + 0.05 * r)
-    if len(stations) < 4:
+    usable = (field.valid | field.replaced) & np.isfinite(field.dx_px) & np.isfinite(field.dy_px)
+    region = usable & (xi >= reach[0] * r) & (xi <= reach[1] * r) & (np.abs(eta) < 1.5 * r)
+    u, v = np.where(region, field.dx_px, 0.0), np.where(region, field.dy_px, 0.0)
+    if lab_frame:
+        follow = (u * dx + v * dy) / speed2
+    else:
+        follow = 1.0 - np.hypot(u, v) / math.sqrt(speed2)
+    weight = np.where(region, np.clip(follow, 0.0, 1.0), 0.0)
+    if weight.sum() < 5.0 or np.ptp(xi[weight > 0]) < 0.5 * r:
         return None
-    slope = np.polyfit(stations, centres, 1)[0]
+    mean_xi = np.sum(weight * xi) / weight.sum()
+    mean_eta = np.sum(weight * eta) / weight.sum()
+    slope = np.sum(weight * (xi - mean_xi) * (eta - mean_eta)) / np.sum(weight * (xi - mean_xi) ** 2)
     return round(math.degrees(math.atan(slope)), 2)
 
 

@@ -330,7 +330,7 @@ def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str
             SideProposal(None, reason=reason), SideProposal(None, reason=reason)
         )
         return
-    result.separation = _separation(frame_a, frame_b, balls, flight, settings, clock)
+    result.separation = _separation(frame_a, frame_b, balls, flight, settings, clock, result.field)
 
 
 def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
@@ -355,7 +355,8 @@ def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
     return float(np.median(follow[ahead])) > float(np.median(follow[behind])) + 0.2 * moved
 
 
-def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings, clock):
+def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings, clock,
+                lab_field: VectorField):
     """Fine correlation around the ball in the ball frame, then the layer fit on each side."""
     from core.piv import correlate_pair
     from core.separation import BallFrame, propose_separation
@@ -372,7 +373,7 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
     vf = correlate_pair(a, b, mask, mask, fine)
     clock.lap("fine piv")
     ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg)
-    proposal = propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]))
+    proposal = propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]), lab_field)
     clock.lap("separation")
     return proposal
 

@@ -83,10 +83,11 @@ def test_wake_deflection_follows_the_wake(sweep):
     _, _, deflections = sweep
     measured = np.array([m for m, _ in deflections], dtype=float)
     true = np.array([t for _, t in deflections])
-    # the near wake (1-2 radii behind) has not yet turned fully to its final direction; the sign
-    # of a clear deflection must come out right
+    # the wake 1.2-4 radii behind has not turned fully to its final direction yet: a clear
+    # deflection keeps its sign, and the direction is within a few degrees
     clear = np.abs(true) > 4.0
     assert np.all(np.sign(measured[clear]) == np.sign(true[clear]))
+    assert np.median(np.abs(measured - true)) <= 3.0
 
 
 def test_smooth_sphere_separates_near_minus_9_deg():
