@@ -20,8 +20,8 @@ a thin band along the outline (gaps ``BAND_GAP_PX`` outside it):
   ``(phi_s, a, b)`` and a least-squares refinement of all parameters.
 
 Separated layers leave the wall at a shallow angle (about 5-15 deg, common practice), so ``a``
-and ``b`` carry weak priors (``tan 10 deg +- 0.09`` and ``0.5 +- 0.4``); the data alone cannot
-tell a steeper departure from a later one.
+and ``b`` carry priors (``a = tan 10 deg +- 0.05``, i.e. 5-15 deg within two standard deviations,
+and ``b = 0.5 +- 0.4``); the data alone can hardly tell a steeper departure from a later one.
 
 Angles follow the shot convention: from the plane through the ball centre normal to the flight,
 positive rearward; *upper* is the side toward the top of the picture (core.geometry).
@@ -46,7 +46,7 @@ SEARCH_DEG = (-40.0, 62.0)
 #: Band extent beyond the search range (deg): some attached flow ahead, some wake behind.
 BAND_DEG = (-50.0, 80.0)
 #: Prior on the layer's departure slope ``a`` (tan of the angle from the tangent) and bending.
-PRIOR_SLOPE = (math.tan(math.radians(10.0)), 0.09)
+PRIOR_SLOPE = (math.tan(math.radians(10.0)), 0.05)
 PRIOR_BEND = (0.5, 0.4)
 #: Neighbouring image samples are correlated (particle images span several samples): the
 #: residual variance is scaled by this many samples per independent one.
