@@ -19,7 +19,7 @@ The ball is painted over the particle images in each frame at its own position: 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -46,7 +46,6 @@ class ShotTruth:
     lower_deg: float | None
     wake_deflection_deg: float | None  # positive toward the upper side
     leave_deg: tuple[float, float] = (10.0, 10.0)  # (upper, lower) departure from the tangent
-    notes: list[str] = field(default_factory=list)
 
 
 @dataclass(frozen=True)
