@@ -72,6 +72,14 @@ class BallFrame:
     radius_px: float
     displacement_px: tuple[float, float]  # ball centre B - A
     flight_deg: float
+    stream_px: float | None = None  # air speed past the ball, px per pair (None: |displacement|)
+
+    @property
+    def stream(self) -> float:
+        """Speed of the air relative to the ball far from it (px per frame pair)."""
+        if self.stream_px is not None:
+            return float(self.stream_px)
+        return math.hypot(*self.displacement_px)
 
 
 def propose_separation(
@@ -106,7 +114,9 @@ def propose_separation(
     sides = {side: fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side)
              for side in ("upper", "lower")}
     if lab_field is not None:
-        deflection = wake_deflection(lab_field, (0.0, 0.0), ball, lab_frame=True)
+        # a held ball (tunnel): the lab frame is the ball frame
+        moving = math.hypot(*ball.displacement_px) >= 0.5 * ball.stream
+        deflection = wake_deflection(lab_field, (0.0, 0.0), ball, lab_frame=moving)
     else:
         deflection = wake_deflection(fine, fine_origin_px, ball, reach=(1.1, 2.2))
     if sides["upper"].angle_deg is None and sides["lower"].angle_deg is None:
@@ -180,7 +190,7 @@ def outer_stream(
     (ex, ey), (tx, ty) = _side_axes(ball, side, phi)
     u_t = fine.dx_px * tx + fine.dy_px * ty
     u_r = fine.dx_px * ex + fine.dy_px * ey
-    speed = math.hypot(*ball.displacement_px)
+    speed = ball.stream
     ok = (
         (fine.valid | fine.replaced) & np.isfinite(u_t) & (gap >= gap_px[0]) & (gap <= gap_px[1])
         & (phi > BAND_DEG[0] - 10.0) & (phi < BAND_DEG[1] + 15.0) & (u_t > 0.6 * speed)
@@ -380,6 +390,7 @@ def wake_deflection(
     eta = rx * nx + ry * ny
     dx, dy = ball.displacement_px
     speed2 = max(dx * dx + dy * dy, 1e-12)
+    stream = max(ball.stream, 1e-9)
     r = ball.radius_px
     usable = (field.valid | field.replaced) & np.isfinite(field.dx_px) & np.isfinite(field.dy_px)
     region = usable & (xi >= reach[0] * r) & (xi <= reach[1] * r) & (np.abs(eta) < 1.5 * r)
@@ -387,7 +398,7 @@ def wake_deflection(
     if lab_frame:
         follow = (u * dx + v * dy) / speed2
     else:
-        follow = 1.0 - np.hypot(u, v) / math.sqrt(speed2)
+        follow = 1.0 - np.hypot(u, v) / stream
     weight = np.where(region, np.clip(follow, 0.0, 1.0), 0.0)
     if weight.sum() < 5.0 or np.ptp(xi[weight > 0]) < 0.5 * r:
         return None

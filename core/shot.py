@@ -370,12 +370,26 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
         median_eps_px=settings.piv.median_eps_px,
         max_masked_fraction=settings.piv.max_masked_fraction, workers=settings.piv.workers,
     )
+    stream = float(np.hypot(*flight.displacement_px))
+    if stream < MIN_FLIGHT_PX:  # a held ball: the air streams past it
+        stream = _free_stream_px(lab_field, balls[0])
+        if not stream >= MIN_FLIGHT_PX:
+            reason = "the air hardly moves relative to the ball: no wake to follow"
+            return SeparationResult(SideProposal(None, reason=reason),
+                                    SideProposal(None, reason=reason))
     vf = correlate_pair(a, b, mask, mask, fine)
     clock.lap("fine piv")
-    ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg)
+    ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg, stream)
     proposal = propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]), lab_field)
     clock.lap("separation")
     return proposal
+
+
+def _free_stream_px(vf: VectorField, ball: BallFit) -> float:
+    """Median speed (px per pair) of valid vectors more than 2.5 radii from the ball."""
+    far = np.hypot(vf.x_px - ball.center_px[0], vf.y_px - ball.center_px[1]) > 2.5 * ball.radius_px
+    speed = np.hypot(vf.dx_px, vf.dy_px)[far & vf.valid]
+    return float(np.median(speed)) if speed.size else float("nan")
 
 
 def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):

@@ -102,6 +102,7 @@ class BallWakeFlow:
     layer_px: float = 1.5
     bend_px: float | None = None
     wake_speed_fraction: float = 0.0  # ball-frame wake drift along the free stream, fraction of U
+    held: bool = False  # the ball is held still (tunnel): the air streams by at -displacement_px
 
     def __call__(self, x_px, y_px):
         rx = np.asarray(x_px, dtype=np.float64) - self.center_px[0]
@@ -111,6 +112,8 @@ class BallWakeFlow:
         fx, fy = -self.displacement_px[0], -self.displacement_px[1]
         ux = (1.0 - w) * ux + w * self.wake_speed_fraction * fx
         uy = (1.0 - w) * uy + w * self.wake_speed_fraction * fy
+        if self.held:
+            return ux, uy
         return ux + self.displacement_px[0], uy + self.displacement_px[1]
 
     def _potential(self, rx: np.ndarray, ry: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -164,6 +167,7 @@ def ball_shot(
     density_ppp: float = 0.06,
     noise: float = 0.03,
     light_from_deg: float = 270.0,
+    held: bool = False,
     seed: int = 0,
 ) -> tuple[np.ndarray, np.ndarray, ShotTruth]:
     """A synthetic shot: a ball moving ``shift_px`` along ``flight_deg`` between the frames.
@@ -199,6 +203,9 @@ def ball_shot(
     light_from_deg : float
         Direction (same convention as the flight) toward the light source: the rim is brightest
         on that side of the ball.
+    held : bool
+        The ball is held still (a tunnel): it sits at ``center_px`` in both frames and the air
+        streams past it at ``shift_px`` against ``flight_deg``; the truth's displacement is 0.
     seed : int
         Random seed (particles, noise).
 
@@ -212,12 +219,13 @@ def ball_shot(
     if center_px is None:
         center_px = ((width - 1) / 2 + fx * 0.25 * width, (height - 1) / 2 + fy * 0.25 * height)
     disp = (shift_px * fx, shift_px * fy)
-    center_a = (center_px[0] - disp[0] / 2, center_px[1] - disp[1] / 2)
-    center_b = (center_px[0] + disp[0] / 2, center_px[1] + disp[1] / 2)
+    moved = (0.0, 0.0) if held else disp
+    center_a = (center_px[0] - moved[0] / 2, center_px[1] - moved[1] / 2)
+    center_b = (center_px[0] + moved[0] / 2, center_px[1] + moved[1] / 2)
     attached = upper_deg is None or lower_deg is None
     flow = BallWakeFlow(
         center_px, radius_px, disp, flight_deg, upper_deg, lower_deg, tuple(leave_deg),
-        0.0 if attached else wake_deflection_deg, layer_px,
+        0.0 if attached else wake_deflection_deg, layer_px, held=held,
     )
     frame_a, frame_b, parts = particle_pair(
         shape, flow, density_ppp=density_ppp, diameter_px=(2.0, 3.2), noise=noise, seed=seed,
@@ -234,7 +242,7 @@ def ball_shot(
     scale = ball_diameter_mm / (2.0 * radius_px)
     dt_s = shift_px * scale * 1e-3 / speed_m_s
     truth = ShotTruth(
-        center_a, center_b, float(radius_px), float(flight_deg) % 360.0, disp, speed_m_s, dt_s,
+        center_a, center_b, float(radius_px), float(flight_deg) % 360.0, moved, speed_m_s, dt_s,
         scale, ball_diameter_mm, None if attached else float(upper_deg),
         None if attached else float(lower_deg), None if attached else float(wake_deflection_deg),
         tuple(leave_deg),

@@ -107,9 +107,15 @@ def test_attached_flow_proposes_no_separation():
     assert result.separation.wake_state == "undetermined"
 
 
-def test_held_ball_warns_without_override():
-    frame_a, frame_b, _ = ball_shot(shape=(256, 384), radius_px=40.0, shift_px=0.3, seed=16)
+def test_held_ball_warns_without_override_and_measures_with_it():
+    # a ball held in a tunnel: the air streams past, the ball does not move between frames
+    frame_a, frame_b, truth = ball_shot(flight_deg=180.0, upper_deg=12.0, lower_deg=2.0,
+                                        held=True, seed=16)
+    assert truth.displacement_px == (0.0, 0.0)
     result = measure_shot(frame_a, frame_b, ShotSettings())
     assert any("override" in w for w in result.warnings)
     held = measure_shot(frame_a, frame_b, ShotSettings(flight_deg=180.0))
     assert held.flight.source == "override" and held.flight.direction_deg == 180.0
+    for side, true in ((held.separation.upper, truth.upper_deg),
+                       (held.separation.lower, truth.lower_deg)):
+        assert abs(side.angle_deg - true) <= side.uncertainty_deg
