@@ -59,6 +59,8 @@ MODEL_FLOOR_DEG = 6.0
 #: residual, and a separation point at least this far ahead of the band's rear end (deg).
 MIN_IMPROVEMENT = 0.02
 REAR_MARGIN_DEG = 18.0
+#: Share of the band that must lie inside the image for a proposal.
+MIN_INSIDE_FRACTION = 0.9
 #: Wake state threshold (deg): sides differ when |upper - lower| exceeds the larger of this and
 #: the combined uncertainty.
 STATE_THRESHOLD_DEG = 5.0
@@ -241,8 +243,10 @@ class NearWallBand:
         self._e = (ex, ey)
         self._t = (tx, ty)
         x, y = ball.center_px[0] + (r + self.gap) * ex, ball.center_px[1] + (r + self.gap) * ey
-        reach = 3.0 * math.hypot(*ball.displacement_px) + 10.0
         height, width = frame_a.shape
+        self.inside_fraction = float(np.mean((x >= 0) & (y >= 0) & (x <= width - 1)
+                                             & (y <= height - 1)))
+        reach = 3.0 * math.hypot(*ball.displacement_px) + 10.0
         self.y0 = max(0, int(y.min() - reach))
         self.x0 = max(0, int(x.min() - reach))
         y1 = min(height, int(y.max() + reach) + 1)
@@ -306,6 +310,9 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
         return SideProposal(None, None, 0.0, "too few valid vectors beside the ball to model the "
                             "stream there")
     band = NearWallBand(frame_a, frame_b, ball, side)
+    if band.inside_fraction < MIN_INSIDE_FRACTION:
+        return SideProposal(None, None, 0.0, "the image edge cuts the band next to the ball on "
+                            "this side")
     u_t = outer.tangential(band.phi, band.gap)
     u_r = outer.radial(band.phi, band.gap)
     attached = band.residual(u_t, u_r)
