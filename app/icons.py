@@ -2,12 +2,22 @@
 
 from __future__ import annotations
 
+import sys
 from functools import cache
 from pathlib import Path
 
 from PySide6.QtGui import QIcon
 
-ICON_DIR = Path(__file__).resolve().parent.parent / "icons"
+
+
+def _icon_dir() -> Path:
+    """icons/ of the source tree (checkout or editable install), else where a wheel puts it."""
+    source = Path(__file__).resolve().parent.parent / "icons"
+    installed = Path(sys.prefix) / "share" / "wakeline" / "icons"
+    return source if source.is_dir() else installed
+
+
+ICON_DIR = _icon_dir()
 
 STATUS_ICONS = {
     "to review": "status_to_review",
