@@ -243,7 +243,8 @@ class SessionOverview(QtWidgets.QWidget):
         for scatter in (self.upper_item, self.lower_item):
             scatter.sigClicked.connect(self._on_points_clicked)
             item.addItem(scatter)
-        item.addItem(self.current_item)
+        # the ring sits on points already drawn: ignoring its bounds spares an axis relayout per step
+        item.addItem(self.current_item, ignoreBounds=True)
 
         top = QtWidgets.QHBoxLayout()
         top.addWidget(QtWidgets.QLabel("Against:"))
