@@ -8,6 +8,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import sys
+from datetime import UTC
 
 from core import WakelineError, __version__
 
@@ -54,7 +55,7 @@ def main(argv: list[str] | None = None) -> int:
         where = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
         print(f"wakeline: {where}{exc.strerror or exc}", file=sys.stderr)
         return 1
-    except Exception as exc:  # a bug of ours: keep the traceback in a log, not on the screen
+    except Exception as exc:  # noqa: BLE001 - a bug of ours: traceback to the log, not the screen
         log = write_crash_log()
         print(f"wakeline: internal error: {type(exc).__name__}: {exc} (details in {log})",
               file=sys.stderr)
@@ -64,13 +65,13 @@ def main(argv: list[str] | None = None) -> int:
 def write_crash_log() -> str:
     """Append the current exception's traceback to the user's wakeline log; return its path."""
     import traceback
-    from datetime import datetime, timezone
+    from datetime import datetime
 
     from core.paths import user_data_dir
 
     path = user_data_dir() / "wakeline-errors.log"
     with open(path, "a", encoding="utf-8") as fh:
-        fh.write(f"--- {datetime.now(timezone.utc).isoformat()} wakeline {__version__}\n")
+        fh.write(f"--- {datetime.now(UTC).isoformat()} wakeline {__version__}\n")
         fh.write(traceback.format_exc())
     return str(path)
 

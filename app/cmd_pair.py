@@ -98,8 +98,9 @@ def write_vectors_csv(path: Path, field) -> None:
 def describe(summary: dict) -> str:
     """A few human lines about a shot's result."""
     v = summary["vectors"]
-    lines = [f"vectors: {v['valid']} valid, {v['replaced']} replaced, {v['masked']} masked "
-             f"of {v['count']} ({v['window_px']} px windows, {v['spacing_px']:g} px apart)"]
+    counts = (f"vectors: {v['valid']} valid, {v['replaced']} replaced, {v['masked']} masked "
+              f"of {v['count']} ({v['window_px']} px windows, {v['spacing_px']:g} px apart)")
+    lines = [counts]
     ball = summary.get("ball")
     if ball:
         cx, cy = ball["center_px"]

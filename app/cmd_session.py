@@ -48,7 +48,7 @@ def _add_process(subparsers) -> None:
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
     p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
-    p.add_argument("--workers", type=_count, metavar="N",
+    p.add_argument("--workers", type=whole_count, metavar="N",
                    help="worker processes (default: all cores; 0 = in this process)")
     p.add_argument("--scheduler", metavar="ADDRESS",
                    help="tcp://HOST:PORT of a dask scheduler: measure on that cluster "
@@ -74,7 +74,7 @@ def _add_table(subparsers) -> None:
     p.set_defaults(func=run_table)
 
 
-def _count(text: str) -> int:
+def whole_count(text: str) -> int:
     try:
         value = int(text)
     except ValueError:

@@ -8,6 +8,7 @@ import shutil
 import sys
 from pathlib import Path
 
+from app.cmd_session import whole_count
 from core import WakelineError
 
 SAMPLE_RUNS = Path(__file__).resolve().parent.parent / "sample_runs"
@@ -63,19 +64,9 @@ def _add_demo(subparsers) -> None:
                    help="do not open the window; write the shot sheet and the table")
     p.add_argument("--fresh", action="store_true",
                    help="start again from the bundled shots, discarding the demo session's edits")
-    p.add_argument("--workers", type=_count, metavar="N",
+    p.add_argument("--workers", type=whole_count, metavar="N",
                    help="worker processes (default: all cores; 0 = in this process)")
     p.set_defaults(func=run_demo)
-
-
-def _count(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"{value} (use 0 or more)")
-    return value
 
 
 # --- sheet ---------------------------------------------------------------------------------------

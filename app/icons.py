@@ -9,7 +9,6 @@ from pathlib import Path
 from PySide6.QtGui import QIcon
 
 
-
 def _icon_dir() -> Path:
     """icons/ of the source tree (checkout or editable install), else where a wheel puts it."""
     source = Path(__file__).resolve().parent.parent / "icons"

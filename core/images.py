@@ -67,7 +67,7 @@ def _read_pages(path: Path) -> list[np.ndarray]:
             raise WakelineError(f"{path}: unsupported image type '{suffix}' (use TIFF or PNG)")
     except WakelineError:
         raise
-    except Exception as exc:  # any decoder failure is the file's fault, not ours
+    except Exception as exc:  # noqa: BLE001 - any decoder failure is the file's fault, not ours
         reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise WakelineError(f"{path}: not a readable image ({reason})") from None
     return [_checked_frame(path, page) for page in raw]

@@ -16,7 +16,7 @@ def wakeline(*args, cwd=None):
     env = {**os.environ, "WAKELINE_HOME": tempfile.mkdtemp(prefix="wakeline-home-")}
     return subprocess.run(
         [sys.executable, "-m", "app.cli", *map(str, args)],
-        capture_output=True, text=True, cwd=cwd, env=env,
+        check=False, capture_output=True, text=True, cwd=cwd, env=env,
     )
 
 

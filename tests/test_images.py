@@ -27,6 +27,7 @@ def test_two_page_tiff(tmp_path):
     a, b = _frame(0), _frame(1)
     tifffile.imwrite(tmp_path / "pair.tif", np.stack([a, b]))
     fa, fb = read_frame_pair(tmp_path / "pair.tif")
+    np.testing.assert_array_equal(fa, a)
     np.testing.assert_array_equal(fb, b)
 
 
