@@ -51,8 +51,13 @@ class ShotSettings:
         return settings
 
     def fingerprint(self) -> str:
-        """Stable text of the settings: a shot is reprocessed when this changes."""
-        return json.dumps(self.to_dict(), sort_keys=True)
+        """Stable text of the settings: a shot is reprocessed when this changes.
+
+        The PIV thread count is left out: it changes how fast, not what is measured.
+        """
+        data = self.to_dict()
+        data["piv"].pop("workers", None)
+        return json.dumps(data, sort_keys=True)
 
 
 @dataclass

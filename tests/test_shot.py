@@ -120,3 +120,12 @@ def test_held_ball_warns_without_override_and_measures_with_it():
     for side, true in ((held.separation.upper, truth.upper_deg),
                        (held.separation.lower, truth.lower_deg)):
         assert abs(side.angle_deg - true) <= side.uncertainty_deg
+
+
+def test_thread_count_does_not_change_the_settings_fingerprint():
+    from dataclasses import replace
+
+    base = ShotSettings(dt_s=1e-5)
+    threaded = replace(base, piv=replace(base.piv, workers=1))
+    assert base.fingerprint() == threaded.fingerprint()
+    assert base.fingerprint() != replace(base, dt_s=2e-5).fingerprint()
