@@ -41,9 +41,7 @@ def main(argv: list[str] | None = None) -> int:
     func = getattr(args, "func", None)
     try:
         if func is None:
-            from app.window import run_window
-
-            return run_window(None)
+            return open_window()
         return int(func(args) or 0)
     except WakelineError as exc:
         print(f"wakeline: {exc}", file=sys.stderr)
@@ -60,6 +58,20 @@ def main(argv: list[str] | None = None) -> int:
         print(f"wakeline: internal error: {type(exc).__name__}: {exc} (details in {log})",
               file=sys.stderr)
         return 1
+
+
+def open_window() -> int:
+    """The review window, or a one-line refusal where Qt has no screen to show it on."""
+    from app.sheet import has_display
+
+    if not has_display():
+        raise WakelineError(
+            "no display to open the window on (DISPLAY is not set); the headless commands "
+            "are listed by 'wakeline --help'"
+        )
+    from app.window import run_window
+
+    return run_window(None)
 
 
 def write_crash_log() -> str:

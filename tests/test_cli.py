@@ -78,3 +78,12 @@ def test_pair_no_ball_writes_vectors_and_json(tmp_path):
     assert np.median([float(r["dy_px"]) for r in good]) == pytest.approx(-1.2, abs=0.05)
     record = json.loads((tmp_path / "r.json").read_text())
     assert record["separation"]["upper_deg"] is None and record["ball"] is None
+
+
+def test_window_without_display_is_one_line_exit_1():
+    env = {k: v for k, v in os.environ.items() if k not in ("DISPLAY", "WAYLAND_DISPLAY")}
+    env.update(QT_QPA_PLATFORM="offscreen", WAKELINE_HOME=tempfile.mkdtemp())
+    done = subprocess.run([sys.executable, "-m", "app.cli"], check=False, capture_output=True,
+                          text=True, env=env, timeout=60)
+    assert done.returncode == 1
+    assert "no display" in done.stderr and "Traceback" not in done.stderr
