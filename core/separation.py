@@ -9,19 +9,23 @@ a thin band along the outline (gaps ``BAND_GAP_PX`` outside it):
 
 - the stream outside the layer comes from the fine PIV vectors clear of the wall (a smooth
   polar fit, tangential and radial components, the radial one vanishing at the wall);
-- the layer leaves the outline at ``phi_s`` and its distance from the outline grows as
-  ``g(t) = R (a t + b t^2)``, ``t = phi - phi_s`` (rad): ``a = tan`` of its departure angle from
-  the tangent, ``b`` its bending (0.5 for a straight layer);
+- the layer leaves the outline at ``phi_s`` at the angle ``atan a`` from the tangent, and its
+  heading then turns toward the wake's direction (measured first, from the field behind the
+  ball), relaxing exponentially over an arc length ``L`` (``layer_gap_px``). A quadratic
+  ``g(t) = R (a t + b t^2)`` is only the start of that curve: it cannot follow a shallow layer
+  that turns back toward the axis, and made such layers come out several degrees late;
 - across the layer the ball-frame motion changes from the stream to the near-still wake with a
-  ``tanh`` profile of width ``w`` (the mixing-layer shape); upstream of ``phi_s`` the flow is
-  attached (stream down to the wall);
+  ``tanh`` profile of width ``w`` (the mixing-layer shape); upstream of ``phi_s`` the layer's
+  tangent continues into the wall, so the flow next to the wall slows smoothly ahead of
+  separation instead of switching off at ``phi_s``;
 - frame A sampled at ``p - D/2 - u(p)/2`` must match frame B at ``p + D/2 + u(p)/2`` (``D`` the
   ball displacement, ``u`` the model's ball-frame displacement): a coarse search over
-  ``(phi_s, a, b)`` and a least-squares refinement of all parameters.
+  ``(phi_s, a, L)`` and a least-squares refinement of all parameters.
 
 Separated layers leave the wall at a shallow angle (about 5-15 deg, common practice), so ``a``
-and ``b`` carry priors (``a = tan 10 deg +- 0.05``, i.e. 5-15 deg within two standard deviations,
-and ``b = 0.5 +- 0.4``); the data alone can hardly tell a steeper departure from a later one.
+and ``L`` carry priors (``a = tan 10 deg +- 0.05``, i.e. 5-15 deg within two standard deviations;
+``ln(L / R) = 0 +- 0.7``, a weak one); the data alone can hardly tell a steeper departure from a
+later one.
 
 Angles follow the shot convention: from the plane through the ball centre normal to the flight,
 positive rearward; *upper* is the side toward the top of the picture (core.geometry).
@@ -45,17 +49,19 @@ BAND_GAP_PX = (1.0, 12.0)
 SEARCH_DEG = (-40.0, 62.0)
 #: Band extent beyond the search range (deg): some attached flow ahead, some wake behind.
 BAND_DEG = (-50.0, 80.0)
-#: Prior on the layer's departure slope ``a`` (tan of the angle from the tangent) and bending.
+#: Priors on the layer's departure slope ``a`` (tan of the angle from the tangent) and on its
+#: turning length over the radius, ``L / R`` (median and standard deviation of ``ln(L / R)``).
 PRIOR_SLOPE = (math.tan(math.radians(10.0)), 0.05)
-PRIOR_BEND = (0.5, 0.4)
+PRIOR_RELAX = (1.0, 0.7)
 #: Neighbouring image samples are correlated (particle images span several samples): the
 #: residual variance is scaled by this many samples per independent one.
 SAMPLES_PER_INDEPENDENT = 10.0
-#: Uncertainty floor (deg): scatter of the fitted angle about the truth on synthetic shots
-#: (core.synth_shot sweeps of 72 sides: median |error| 1.9 deg, 90th percentile 4.4 deg, about
-#: +1.7 deg late on average) that the fit's own standard error does not capture (the layer's
-#: shape beyond the model, particle noise); with it the uncertainty covers ~93 % of the errors.
-MODEL_FLOOR_DEG = 5.5
+#: Uncertainty floor, as an arc length along the outline (px): the scatter of the fitted
+#: separation point about the truth on synthetic shots (core.synth_shot sweeps) that the fit's own
+#: standard error does not capture (particle noise next to the wall, the layer's shape beyond the
+#: model, the fitted circle's own error). The fit resolves the separation point to a distance
+#: along the outline, so the floor in degrees shrinks as the ball grows in the picture.
+MODEL_FLOOR_ARC_PX = 7.0
 #: A proposal needs the layered model to beat the attached-flow model by this fraction of the
 #: residual, and a separation point at least this far ahead of the band's rear end (deg).
 MIN_IMPROVEMENT = 0.02
@@ -114,14 +120,17 @@ def propose_separation(
     -------
     SeparationResult
     """
-    sides = {side: fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side)
-             for side in ("upper", "lower")}
     if lab_field is not None:
         # a held ball (tunnel): the lab frame is the ball frame
         moving = math.hypot(*ball.displacement_px) >= 0.5 * ball.stream
         deflection = wake_deflection(lab_field, (0.0, 0.0), ball, lab_frame=moving)
     else:
         deflection = wake_deflection(fine, fine_origin_px, ball, reach=(1.1, 2.2))
+    # each layer turns toward the wake's direction (on the lower side it points away from it)
+    toward = 0.0 if deflection is None else deflection
+    sides = {side: fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side,
+                            final_deg=toward if side == "upper" else -toward)
+             for side in ("upper", "lower")}
     if sides["upper"].angle_deg is None and sides["lower"].angle_deg is None:
         deflection = None
     state = wake_state(sides["upper"], sides["lower"])
@@ -238,6 +247,8 @@ class NearWallBand:
         phi = np.arange(phi_deg[0], phi_deg[1] + step_deg / 2, step_deg)
         gap = np.arange(gap_px[0], gap_px[1] + gap_step_px / 2, gap_step_px)
         grid_phi, grid_gap = np.meshgrid(phi, gap, indexing="ij")
+        self.phi_grid = phi
+        self.gap_count = gap.size
         self.phi = grid_phi.ravel()
         self.gap = grid_gap.ravel()
         (ex, ey), (tx, ty) = _side_axes(ball, side, self.phi)
@@ -290,22 +301,64 @@ class NearWallBand:
 # --- the layer model and its fit -------------------------------------------------------------
 
 
-def layer_gap_px(radius_px: float, phi_s_deg: float, slope: float, bend: float, phi_deg):
-    """Distance (px) of the layer from the outline at angles ``phi_deg``; -inf-like upstream."""
-    t = np.radians(np.asarray(phi_deg) - phi_s_deg)
-    return np.where(t >= 0, radius_px * (slope * t + bend * t * t), -1e3)
+def layer_gap_px(radius_px: float, phi_s_deg: float, slope: float, relax_px: float, phi_deg,
+                 final_deg: float = 0.0):
+    """Distance (px) of the layer from the outline at angles ``phi_deg`` (separation convention).
+
+    The layer leaves the outline at ``phi_s_deg`` at ``atan(slope)`` from the tangent; its heading
+    then relaxes exponentially, over the arc length ``relax_px``, toward ``final_deg`` (the wake
+    direction on this side, from the rearward axis, positive away from the axis toward the side).
+    Upstream of ``phi_s_deg`` the layer's tangent continues into the wall (negative distance), so
+    the flow next to the wall slows smoothly as the separation point nears.
+
+    Parameters
+    ----------
+    radius_px, phi_s_deg, slope, relax_px, final_deg : float
+    phi_deg : (N,) ndarray
+        Angles (deg) where the distance is wanted.
+
+    Returns
+    -------
+    (N,) ndarray
+        Distance outside the outline (px).
+    """
+    phi = np.asarray(phi_deg, dtype=np.float64)
+    th = math.radians(phi_s_deg)
+    psi0 = -th + math.atan(slope)
+    psi_f = math.radians(final_deg)
+    s = np.linspace(0.0, 3.0 * radius_px, 241)
+    # heading integrated in closed form: psi(s) = psi_f + (psi0 - psi_f) exp(-s / L)
+    psi = psi_f + (psi0 - psi_f) * np.exp(-s / max(relax_px, 1e-6))
+    ds = s[1] - s[0]
+    step_xi, step_zeta = np.cos(psi), np.sin(psi)
+    xi = radius_px * math.sin(th) + np.concatenate(
+        [[0.0], np.cumsum(0.5 * (step_xi[1:] + step_xi[:-1]) * ds)])
+    zeta = radius_px * math.cos(th) + np.concatenate(
+        [[0.0], np.cumsum(0.5 * (step_zeta[1:] + step_zeta[:-1]) * ds)])
+    curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)))
+    curve_gap = np.hypot(xi, zeta) - radius_px
+    ahead = np.interp(phi, curve_phi, curve_gap)
+    back = radius_px * slope * np.radians(phi - phi_s_deg)
+    return np.where(phi >= phi_s_deg, ahead, back)
 
 
-def _model(band: NearWallBand, params, u_t, u_r):
-    """Ball-frame motion of the layered model; ``params = (phi_s, a, b, w, u_wake, k_t, k_r)``."""
-    phi_s, slope, bend, width, u_wake, k_t, k_r = params
-    g_layer = layer_gap_px(band.ball.radius_px, phi_s, slope, bend, band.phi)
+def _model(band: NearWallBand, params, u_t, u_r, final_deg=0.0):
+    """Ball-frame motion of the layered model; ``params = (phi_s, a, L/R, w, u_wake, k_t, k_r)``."""
+    phi_s, slope, relax, width, u_wake, k_t, k_r = params
+    r = band.ball.radius_px
+    g_layer = layer_gap_px(r, phi_s, slope, relax * r, band.phi_grid, final_deg)
+    g_layer = np.repeat(g_layer, band.gap_count)
     stream = 0.5 * (1.0 + np.tanh((band.gap - g_layer) / max(width, 0.3)))
     return u_wake + (k_t * u_t - u_wake) * stream, k_r * u_r * stream
 
 
-def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str) -> SideProposal:
-    """Fit the shear layer on one side; an empty proposal with the reason when there is none."""
+def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str, *,
+             final_deg: float = 0.0) -> SideProposal:
+    """Fit the shear layer on one side; an empty proposal with the reason when there is none.
+
+    ``final_deg`` is the direction the layer turns to (the wake's, from the rearward axis,
+    positive toward this side).
+    """
     outer = outer_stream(fine, origin_px, ball, side)
     if outer is None:
         return SideProposal(None, None, 0.0, "too few valid vectors beside the ball to model the "
@@ -318,16 +371,16 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
     u_r = outer.radial(band.phi, band.gap)
     attached = band.residual(u_t, u_r)
     attached_cost = float(np.sum(attached**2))
-    start, start_cost = _coarse_search(band, u_t, u_r)
+    start, start_cost = _coarse_search(band, u_t, u_r, final_deg)
     if not start_cost < (1.0 - MIN_IMPROVEMENT) * attached_cost:
         return SideProposal(None, None, 0.0, "no separated shear layer next to the ball "
                             "(the attached-flow model fits as well: attached flow?)")
-    params, spread = _refine(band, u_t, u_r, start)
+    params, spread = _refine(band, u_t, u_r, start, final_deg)
     phi_s = float(params[0])
     if phi_s > BAND_DEG[1] - REAR_MARGIN_DEG:
         return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "
                             "(attached flow?)")
-    uncertainty = math.hypot(spread, MODEL_FLOOR_DEG)
+    uncertainty = math.hypot(spread, model_floor_deg(ball.radius_px))
     gain = 1.0 - start_cost / attached_cost
     quality = float(np.clip(gain / 0.2, 0.0, 1.0) * np.clip(2.0 / max(spread, 1e-3), 0.0, 1.0))
     remark = ""
@@ -336,37 +389,44 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
     return SideProposal(round(phi_s, 2), round(uncertainty, 2), round(quality, 3), remark)
 
 
-def _coarse_search(band: NearWallBand, u_t, u_r):
-    """Best ``phi_s`` on a 2 deg grid, then ``(phi_s, a, b)`` around it (5 slopes, 3 bends)."""
+def model_floor_deg(radius_px: float) -> float:
+    """Uncertainty floor (deg) for a ball of ``radius_px``: ``MODEL_FLOOR_ARC_PX`` along the outline."""
+    return math.degrees(MODEL_FLOOR_ARC_PX / radius_px)
+
+
+def _coarse_search(band: NearWallBand, u_t, u_r, final_deg):
+    """Best ``phi_s`` on a 2 deg grid, then ``(phi_s, a, L)`` around it (5 slopes, 3 lengths)."""
     best = (np.inf, None)
     for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 2.0):
-        params = [phi_s, PRIOR_SLOPE[0], 0.6, 1.5, 0.0, 1.0, 1.0]
-        cost = float(np.sum(band.residual(*_model(band, params, u_t, u_r)) ** 2))
+        params = [phi_s, PRIOR_SLOPE[0], PRIOR_RELAX[0], 1.5, 0.0, 1.0, 1.0]
+        cost = float(np.sum(band.residual(*_model(band, params, u_t, u_r, final_deg)) ** 2))
         if cost < best[0]:
             best = (cost, params)
     centre = best[1][0]
     for phi_s in np.arange(centre - 6.0, centre + 6.5, 2.0):
         for angle in (3.0, 7.0, 11.0, 15.0, 20.0):
-            for bend in (0.3, 0.6, 0.9):
-                params = [phi_s, math.tan(math.radians(angle)), bend, 1.5, 0.0, 1.0, 1.0]
-                cost = float(np.sum(band.residual(*_model(band, params, u_t, u_r)) ** 2))
+            for relax in (0.5, 1.0, 2.0):
+                params = [phi_s, math.tan(math.radians(angle)), relax, 1.5, 0.0, 1.0, 1.0]
+                cost = float(np.sum(band.residual(*_model(band, params, u_t, u_r, final_deg))
+                                    ** 2))
                 if cost < best[0]:
                     best = (cost, params)
     return best[1], best[0]
 
 
-def _refine(band: NearWallBand, u_t, u_r, start):
+def _refine(band: NearWallBand, u_t, u_r, start, final_deg):
     """Least-squares refinement with the priors; returns parameters and the angle's std (deg)."""
-    first = band.residual(*_model(band, start, u_t, u_r))
+    first = band.residual(*_model(band, start, u_t, u_r, final_deg))
     sigma = math.sqrt(float(np.mean(first**2)) * SAMPLES_PER_INDEPENDENT) + 1e-12
 
     def residuals(p):
-        r = band.residual(*_model(band, p, u_t, u_r)) / sigma
-        prior = [(p[1] - PRIOR_SLOPE[0]) / PRIOR_SLOPE[1], (p[2] - PRIOR_BEND[0]) / PRIOR_BEND[1]]
+        r = band.residual(*_model(band, p, u_t, u_r, final_deg)) / sigma
+        prior = [(p[1] - PRIOR_SLOPE[0]) / PRIOR_SLOPE[1],
+                 math.log(p[2] / PRIOR_RELAX[0]) / PRIOR_RELAX[1]]
         return np.concatenate([r, prior])
 
-    lower = [start[0] - 8.0, 0.0, -0.5, 0.3, -3.0, 0.7, 0.0]
-    upper = [start[0] + 8.0, 0.7, 2.0, 5.0, 3.0, 1.3, 2.0]
+    lower = [start[0] - 8.0, 0.0, 0.15, 0.3, -3.0, 0.7, 0.0]
+    upper = [start[0] + 8.0, 0.7, 6.0, 5.0, 3.0, 1.3, 2.0]
     sol = least_squares(
         residuals, start, bounds=(lower, upper), diff_step=1e-3, max_nfev=40, xtol=1e-4, tr_solver="lsmr",
         ftol=1e-4,

@@ -4,6 +4,12 @@ The sweep covers separation angles -15..+30 deg on each side, symmetric and asym
 flight to the left and to the right with up to +-5 deg of tilt, and departure angles of the
 shear layer of 5-15 deg from the tangent (separated layers leave the wall at a shallow angle:
 common practice). Truth is the generator's prescribed separation point.
+
+The sweep's ball is drawn at a realistic size. At the scale of the timing example in the check
+values (0.078 mm/px: common practice) a 71.6 mm cricket ball has a radius of
+71.6 / 2 / 0.078 = 459 px (derived); the sweep uses ``SWEEP_RADIUS_PX`` = 200 px in 768 x 1024
+frames, i.e. 71.6 / 400 = 0.179 mm/px (derived), a coarser view than that example, so the
+accuracy found here is not flattered by the scale.
 """
 
 import math
@@ -13,12 +19,15 @@ import pytest
 
 from core.results import SideProposal
 from core.separation import (
-    MODEL_FLOOR_DEG,
     layer_gap_px,
+    model_floor_deg,
     wake_state,
 )
 from core.shot import ShotSettings, measure_shot
 from core.synth_shot import BallWakeFlow, attached_shot, ball_shot, smooth_sphere_shot
+
+SWEEP_RADIUS_PX = 200.0
+SWEEP_SHAPE = (768, 1024)
 
 
 def _settings(truth):
@@ -44,7 +53,7 @@ def sweep():
     errors, uncertainties, deflections = [], [], []
     for flight, upper, lower, leave, deflection, seed in _sweep_cases():
         frame_a, frame_b, truth = ball_shot(
-            flight_deg=flight, upper_deg=upper, lower_deg=lower, leave_deg=leave,
+            SWEEP_SHAPE, radius_px=SWEEP_RADIUS_PX, flight_deg=flight, upper_deg=upper, lower_deg=lower, leave_deg=leave,
             wake_deflection_deg=deflection, seed=seed,
         )
         sep = measure_shot(frame_a, frame_b, _settings(truth)).separation
@@ -61,17 +70,18 @@ def test_sweep_errors_stay_within_the_reported_uncertainty(sweep):
     errors, uncertainties, _ = sweep
     coverage = np.mean(np.abs(errors) <= uncertainties)
     assert coverage >= 0.9, f"coverage {coverage:.2f}, errors {np.round(errors, 1)}"
-    assert np.median(np.abs(errors)) <= 4.0
-    assert np.max(np.abs(errors)) <= 15.0  # a shallow (5 deg) departure reaches ~12 deg
+    assert coverage <= 0.98 or np.median(uncertainties) <= 4.0 * np.median(np.abs(errors)), (
+        "the uncertainty is inflated"
+    )
+    assert np.median(np.abs(errors)) <= 1.5
+    assert np.max(np.abs(errors)) <= 4.0
 
 
 @pytest.mark.slow
 @pytest.mark.xfail(
     strict=True,
-    reason="accuracy target of the issue (median 1 deg, max 2.5 deg) not reached: this sweep "
-    "gives a median of 1.5 deg and a maximum of 11.6 deg (1.9 and 6.9 deg over 72 other sides), "
-    "about +1.7 deg late on average: the layer's first 5-10 deg run within 1-2 px of the wall, "
-    "below what the particle images resolve at this seeding",
+    reason="accuracy target of the issue (median 1 deg, max 2.5 deg) not quite reached: this "
+    "sweep gives a median of 0.76 deg and a maximum of 2.6 deg, about +0.6 deg late on average",
 )
 def test_sweep_meets_the_issue_accuracy_target(sweep):
     errors, _, _ = sweep
@@ -130,11 +140,23 @@ def test_wake_state_threshold():
 
 
 def test_layer_gap_model_leaves_the_outline_at_the_separation_angle():
-    gap = layer_gap_px(60.0, 12.0, math.tan(math.radians(10.0)), 0.5, np.array([11.0, 12.0, 20.0]))
-    assert gap[0] < 0 and gap[1] == pytest.approx(0.0)
-    # 8 deg downstream: R (a t + b t^2) with t = 8 deg (derived)
-    t = math.radians(8.0)
-    assert gap[2] == pytest.approx(60.0 * (math.tan(math.radians(10.0)) * t + 0.5 * t * t))
+    radius, phi_s, leave = 60.0, 12.0, 10.0
+    slope = math.tan(math.radians(leave))
+    phi = np.array([11.0, 12.0, 20.0, 35.0])
+    # a layer that does not turn (its final heading is its first one) is a straight line
+    gap = layer_gap_px(radius, phi_s, slope, 1e9, phi, final_deg=leave - phi_s)
+    assert gap[0] < 0 and gap[1] == pytest.approx(0.0, abs=1e-9)
+    # a line leaving a circle of radius R at angle b from the tangent at polar angle p_s lies at
+    # R cos b from the centre, its foot at p_s - b: r(p) = R cos b / cos(p - p_s + b) (derived)
+    b = math.radians(leave)
+    expected = radius * math.cos(b) / np.cos(np.radians(phi[2:] - phi_s) + b) - radius
+    assert gap[2:] == pytest.approx(expected, rel=1e-3)
+    # ahead of the plane (heading outward, 22 deg from the axis) a layer turning to the axis
+    # stays closer to the wall than the straight one
+    ahead = np.array([-4.0, 10.0])
+    straight = layer_gap_px(radius, -12.0, slope, 1e9, ahead, final_deg=leave + 12.0)
+    turning = layer_gap_px(radius, -12.0, slope, radius, ahead, final_deg=0.0)
+    assert np.all(turning < straight)
 
 
 def test_generator_layer_leaves_the_wall_at_the_prescribed_angle():
@@ -151,5 +173,6 @@ def test_generator_layer_leaves_the_wall_at_the_prescribed_angle():
 def test_floor_is_part_of_every_uncertainty():
     frame_a, frame_b, truth = ball_shot(upper_deg=5.0, lower_deg=15.0, seed=24)
     sep = measure_shot(frame_a, frame_b, _settings(truth)).separation
-    assert sep.upper.uncertainty_deg >= MODEL_FLOOR_DEG
+    # the fitted radius may exceed the drawn one by a fraction of a pixel
+    assert sep.upper.uncertainty_deg >= model_floor_deg(1.01 * truth.radius_px)
     assert 0.0 <= sep.upper.quality <= 1.0
