@@ -70,20 +70,19 @@ def test_sweep_errors_stay_within_the_reported_uncertainty(sweep):
     errors, uncertainties, _ = sweep
     coverage = np.mean(np.abs(errors) <= uncertainties)
     assert coverage >= 0.9, f"coverage {coverage:.2f}, errors {np.round(errors, 1)}"
-    assert coverage <= 0.98 or np.median(uncertainties) <= 4.0 * np.median(np.abs(errors)), (
-        "the uncertainty is inflated"
-    )
+    # not inflated either: for normal errors a 95 % bound is 1.96 / 0.674 = 2.9 times the median
+    # |error| (derived); allow 5 times for the heavier tail of the sweep
+    assert np.median(uncertainties) <= 5.0 * np.median(np.abs(errors)), "inflated uncertainty"
     assert np.median(np.abs(errors)) <= 1.5
     assert np.max(np.abs(errors)) <= 4.0
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(
-    strict=True,
-    reason="accuracy target of the issue (median 1 deg, max 2.5 deg) not quite reached: this "
-    "sweep gives a median of 0.76 deg and a maximum of 2.6 deg, about +0.6 deg late on average",
-)
 def test_sweep_meets_the_issue_accuracy_target(sweep):
+    # the issue's target: median |error| <= 1 deg, max <= 2.5 deg. This sweep meets it with
+    # little room on the maximum: a second sweep of the same kind (``_sweep_cases(14, seed=11)``)
+    # gives a median of 0.83 deg but a maximum of 2.9 deg; shallow (5-7 deg) departures come
+    # out up to ~2-3 deg late, and the fitted circle's radius (~0.2 px large) adds to that
     errors, _, _ = sweep
     assert np.median(np.abs(errors)) <= 1.0
     assert np.max(np.abs(errors)) <= 2.5
