@@ -239,7 +239,9 @@ def _rim_crossings(prof: np.ndarray, radii: np.ndarray, r: float, half_width: fl
     """
     outer = radii >= r + half_width + 1.0
     air = prof[:, outer].mean(axis=1)
-    band = (radii >= r - half_width - 1.0) & (radii <= r + half_width)
+    # the lit rim lies inside the outline: a bright peak well outside the current circle is a
+    # particle image beside the ball, not the rim (it would push the outline outward)
+    band = (radii >= r - half_width - 1.0) & (radii <= r + 0.25 * half_width)
     peak_idx = np.argmax(np.where(band, prof, -np.inf), axis=1)
     rows = np.arange(len(prof))
     peak = prof[rows, peak_idx]
