@@ -57,10 +57,12 @@ def install_export_actions(window) -> dict[str, QAction]:
     """Add "Shot sheet (PDF)…" and "Table (CSV)…" to ``window.export_menu``."""
     sheet = QAction("Shot sheet (&PDF)…", window)
     sheet.setStatusTip("a printable sheet: cover with overview and summary, one panel per shot")
-    sheet.triggered.connect(lambda: _sheet_dialog(window))
+    sheet.triggered.connect(lambda: _export_dialog(
+        window, "Write the shot sheet", "_sheet.pdf", "PDF files (*.pdf)", export_sheet))
     table = QAction("&Table (CSV)…", window)
     table.setStatusTip("one row per shot: metadata, proposed and final angles, review")
-    table.triggered.connect(lambda: _table_dialog(window))
+    table.triggered.connect(lambda: _export_dialog(
+        window, "Write the table", "_table.csv", "CSV files (*.csv)", export_table))
     window.export_menu.addAction(sheet)
     window.export_menu.addAction(table)
     window.act_export_sheet, window.act_export_table = sheet, table
@@ -72,24 +74,14 @@ def _default_path(window, suffix: str) -> str:
     return str(Path(session.path).with_name(f"{Path(session.path).stem}{suffix}"))
 
 
-def _sheet_dialog(window) -> None:
+def _export_dialog(window, title: str, suffix: str, file_filter: str, export) -> None:
+    """Ask where to write, next to the session by default, then ``export(window, path)``."""
     if window.model.session is None:
         return
-    path, _ = QFileDialog.getSaveFileName(window, "Write the shot sheet",
-                                          _default_path(window, "_sheet.pdf"),
-                                          "PDF files (*.pdf)")
+    path, _ = QFileDialog.getSaveFileName(window, title, _default_path(window, suffix),
+                                          file_filter)
     if path:
-        export_sheet(window, path)
-
-
-def _table_dialog(window) -> None:
-    if window.model.session is None:
-        return
-    path, _ = QFileDialog.getSaveFileName(window, "Write the table",
-                                          _default_path(window, "_table.csv"),
-                                          "CSV files (*.csv)")
-    if path:
-        export_table(window, path)
+        export(window, path)
 
 
 def export_sheet(window, path, **options) -> SheetReport | None:
