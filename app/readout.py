@@ -91,6 +91,7 @@ class ReadoutPanel(QWidget):
         self._shot_id = ""
         self._record = None
         self._note_shown = ""
+        self._keep_typed_note = False
         self._build()
 
     # -- construction ------------------------------------------------------------------------
@@ -225,8 +226,18 @@ class ReadoutPanel(QWidget):
         return self._shot_id
 
     def show_record(self, record) -> None:
-        """Fill the panel from a ``ShotRecord`` (None: empty); reads no field data."""
-        self._shot_id = "" if record is None else record.shot_id
+        """Fill the panel from a ``ShotRecord`` (None: empty); reads no field data.
+
+        A note being typed is never thrown away: moving to another shot saves it for the shot
+        it was typed on; a refresh of the same shot (an edit, processing) leaves it in the
+        field, to be saved when the field is left.
+        """
+        new_id = "" if record is None else record.shot_id
+        typed = self._unsaved_note()
+        if typed is not None and new_id != self._shot_id:
+            self._on_note_committed(typed)
+        self._keep_typed_note = typed is not None and new_id == self._shot_id
+        self._shot_id = new_id
         self._record = record
         if record is None:
             self._clear()
@@ -382,9 +393,13 @@ class ReadoutPanel(QWidget):
         self._set_note(pick.note)
         self.last_edit.setText(f"last edit {pick.when} by {pick.who}" if pick.when else "")
 
+    def _unsaved_note(self) -> str | None:
+        text = self.note.toPlainText()
+        return text if self._shot_id and text != self._note_shown else None
+
     def _set_note(self, text: str) -> None:
         self._note_shown = text
-        if self.note.toPlainText() != text:
+        if not self._keep_typed_note and self.note.toPlainText() != text:
             self.note.setPlainText(text)
 
     def _on_note_committed(self, text: str) -> None:

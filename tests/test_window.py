@@ -194,6 +194,23 @@ def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot, 
     assert s04.pick.note == "wake hits the frame edge"
 
 
+def test_a_note_being_typed_survives_a_status_key_and_a_shot_change(main_window, make_session,
+                                                                     qtbot):
+    path = make_session(3)
+    window = _open(main_window, qtbot, path, show=True)
+    first = window.model.current_id
+    window.readout.note.setFocus()
+    qtbot.keyClicks(window.readout.note, "seeding thin on the lower side")
+    window.set_status("accepted")  # an edit refreshes the shot while the note is typed
+    assert window.readout.note.toPlainText() == "seeding thin on the lower side"
+    second = window.shot_list.visible_ids()[1]
+    window.model.set_current(second)  # moving on saves the note for the shot it was typed on
+    assert window.model.record(first).pick.note == "seeding thin on the lower side"
+    assert window.model.record(first).pick.status == "accepted"
+    assert window.readout.note.toPlainText() == window.model.record(second).pick.note
+    window.close()
+
+
 def test_processing_started_from_window_completes(main_window, make_session, qtbot):
     path = make_session(3, processed=False)
     window = _open(main_window, qtbot, path)  # unprocessed shots start processing on open
