@@ -737,7 +737,6 @@ class ShotCanvas(QWidget):
         replaced = vf.replaced[sl] & ~masked
         good = ~masked & ~replaced
         scale = vector_scale(dx[~masked], dy[~masked], vf.spacing_px * stride)
-        self._vector_scale = scale
         for item, sel in ((self.vectors, good), (self.replaced, replaced)):
             xs, ys = arrow_segments(x[sel], y[sel], dx[sel] * scale, dy[sel] * scale)
             item.setData(xs, ys)

@@ -8,7 +8,8 @@ from __future__ import annotations
 import argparse
 import importlib
 import sys
-from datetime import UTC
+import traceback
+from datetime import UTC, datetime
 
 from core import WakelineError, __version__
 
@@ -25,13 +26,7 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"wakeline {__version__}")
     subparsers = parser.add_subparsers(title="commands", metavar="COMMAND")
     for name in COMMAND_MODULES:
-        try:
-            module = importlib.import_module(name)
-        except ModuleNotFoundError as exc:
-            if exc.name != name:
-                raise
-            continue
-        module.add_commands(subparsers)
+        importlib.import_module(name).add_commands(subparsers)
     return parser
 
 
@@ -76,15 +71,15 @@ def open_window() -> int:
 
 def write_crash_log() -> str:
     """Append the current exception's traceback to the user's wakeline log; return its path."""
-    import traceback
-    from datetime import datetime
-
     from core.paths import user_data_dir
 
-    path = user_data_dir() / "wakeline-errors.log"
-    with open(path, "a", encoding="utf-8") as fh:
-        fh.write(f"--- {datetime.now(UTC).isoformat()} wakeline {__version__}\n")
-        fh.write(traceback.format_exc())
+    try:
+        path = user_data_dir() / "wakeline-errors.log"
+        with open(path, "a", encoding="utf-8") as fh:
+            fh.write(f"--- {datetime.now(UTC).isoformat()} wakeline {__version__}\n")
+            fh.write(traceback.format_exc())
+    except OSError as exc:
+        return f"no log written: {exc.strerror}"
     return str(path)
 
 

@@ -35,10 +35,8 @@ def add_commands(subparsers) -> None:
 
 
 def _ball_types() -> list[str]:
-    try:
-        from core.ball import NOMINAL_BALL_DIAMETER_MM
-    except ImportError:
-        return ["cricket", "baseball", "softball"]
+    from core.ball import NOMINAL_BALL_DIAMETER_MM
+
     return sorted(NOMINAL_BALL_DIAMETER_MM)
 
 

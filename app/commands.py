@@ -67,9 +67,7 @@ class MarkMove(PickEdit):
     ) -> None:
         record = model.record(shot_id)
         other = "lower" if side == "upper" else "upper"
-        other_deg = record.final_deg(other)
-        if other_deg is None:
-            other_deg = record.proposed_deg(other)
+        other_deg = record.shown_deg(other)
         changes = {
             "status": "adjusted",
             f"{side}_deg": float(angle_deg),

@@ -188,14 +188,5 @@ class SessionModel(QObject):
             self.record_changed.emit(shot_id)
         return pick
 
-    def store_result(self, shot_id: str, result) -> None:
-        """Save a fresh processing result (the proposal only; the pick stays)."""
-        self._session.save_result(shot_id, result)
-        self.refresh(shot_id)
-
-    def store_failure(self, shot_id: str, reason: str) -> None:
-        self._session.save_failure(shot_id, reason)
-        self.refresh(shot_id)
-
     def unprocessed_ids(self) -> list[str]:
         return [sid for sid in self._order if self._records[sid].state == "unprocessed"]

@@ -205,6 +205,7 @@ class SessionOverview(QtWidgets.QWidget):
         self._records: list = []
         self._points: OverviewPoints | None = None
         self._current: str | None = None
+        self._ranged_for: tuple | None = None  # (column, shot count) the view was fitted to
         self._source = None
         # many record changes in a row (a batch run, a quick review) redraw once
         self._refresh_timer = QtCore.QTimer(self)
@@ -334,7 +335,10 @@ class SessionOverview(QtWidgets.QWidget):
         self.note_label.setText(left_out_text(pts))
         self.note_label.setVisible(bool(pts.left_out))
         self._draw_current()
-        self.plot.getPlotItem().enableAutoRange()
+        if (column, len(pts.shot_ids)) != self._ranged_for:
+            # fit the view to a new column or shot count only, so an edit keeps the analyst's zoom
+            self._ranged_for = (column, len(pts.shot_ids))
+            self.plot.getPlotItem().enableAutoRange()
 
     def _draw_links(self, pts: OverviewPoints) -> None:
         both = np.isfinite(pts.upper_deg) & np.isfinite(pts.lower_deg)

@@ -138,8 +138,7 @@ class ShotTableModel(QAbstractTableModel):
         """Final angle when decided, else the proposal (shown in italics)."""
         if rec.pick.status == "unusable":
             return None
-        final = rec.final_deg(side)
-        return final if final is not None else rec.proposed_deg(side)
+        return rec.shown_deg(side)
 
     def _display(self, rec, col: int):
         if col == COL_SHOT:

@@ -504,7 +504,9 @@ class MainWindow(QMainWindow):
         job.start()
 
     def _end_job(self) -> None:
-        self.job = None
+        job, self.job = self.job, None
+        if job is not None:
+            job.deleteLater()  # its function holds the session: let both go
         for widget in (self.progress_label, self.progress, self.cancel_button):
             widget.hide()
         self._update_enabled()
@@ -645,7 +647,7 @@ class MainWindow(QMainWindow):
             for side in ("upper", "lower"):
                 changes[f"{side}_deg"] = self.canvas.mark_angle(side) if \
                     self.canvas.shot is not None and self.canvas.shot.shot_id == shot_id else \
-                    (record.final_deg(side) or record.proposed_deg(side))
+                    record.shown_deg(side)
         else:
             changes = {"status": status, "reason": ""}
         if status == record.pick.status and status != "adjusted":

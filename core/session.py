@@ -126,6 +126,11 @@ class ShotRecord:
             return self.proposed_deg(side)
         return None
 
+    def shown_deg(self, side: str) -> float | None:
+        """The angle to draw a mark at: the final angle where there is one, else the proposal."""
+        final = self.final_deg(side)
+        return final if final is not None else self.proposed_deg(side)
+
     def _separation_value(self, key: str) -> float | None:
         sep = (self.summary or {}).get("separation") or {}
         value = sep.get(key)
