@@ -39,13 +39,12 @@ from PySide6.QtWidgets import (
 )
 
 from app import colours
-from core.geometry import angle_of_point, point_at_angle
+from core.geometry import SIDES, angle_of_point, point_at_angle
 
 # Arrays are (row, column) = (y, x) everywhere in wakeline; run_window sets this too.
 pg.setConfigOptions(imageAxisOrder="row-major")
 
 PICTURES = ("frame A", "frame B", "flicker A/B", "no picture")
-SIDES = ("upper", "lower")
 SIDE_COLOURS = {"upper": colours.UPPER_SIDE, "lower": colours.LOWER_SIDE}
 SIDE_LETTERS = {"upper": "U", "lower": "L"}
 BACKGROUND = "#262a2f"  # canvas backdrop: a neutral slate, darker than any frame's mid-grey

@@ -175,7 +175,7 @@ def _process_summary(path: Path, report) -> int:
         line += f", {len(report.skipped)} already up to date"
     if report.interrupted:
         line += f"; stopped with {report.not_run} shot(s) left for the next run"
-    print(line)
+    print(f"{line} ({report.elapsed_s:.1f} s)")
     return 1 if report.failed or report.interrupted else 0
 
 

@@ -28,8 +28,8 @@ from PySide6.QtWidgets import (
 
 from app import colours
 from app.icons import status_icon
+from core.geometry import SIDES
 
-SIDES = ("upper", "lower")
 ROWS = ("proposed", "final", "uncertainty", "quality")
 PROBLEM_STYLE = (f"QLabel {{ background: #f6e3e6; color: {colours.STATUS_COLOURS['unusable']};"
                  " border-radius: 4px; padding: 6px; }")

@@ -49,6 +49,11 @@ def read_frame_pair(path_a: str | Path, path_b: str | Path | None = None) -> tup
 
 def _single_page(path: Path) -> np.ndarray:
     pages = _read_pages(path)
+    if len(pages) > 1:
+        raise WakelineError(
+            f"{path}: holds {len(pages)} pages where one frame was expected "
+            "(give a two-page TIFF alone as the pair)"
+        )
     return pages[0]
 
 

@@ -100,8 +100,8 @@ def propose_separation(
     frame_b: np.ndarray,
     ball: BallFrame,
     fine: VectorField,
-    fine_origin_px: tuple[float, float] = (0.0, 0.0),
-    lab_field: VectorField | None = None,
+    fine_origin_px: tuple[float, float],
+    lab_field: VectorField,
 ) -> SeparationResult:
     """Separation proposal on both sides, wake deflection and wake state of one shot.
 
@@ -124,12 +124,9 @@ def propose_separation(
     -------
     SeparationResult
     """
-    if lab_field is not None:
-        # a held ball (tunnel): the lab frame is the ball frame
-        moving = math.hypot(*ball.displacement_px) >= 0.5 * ball.stream
-        deflection = wake_deflection(lab_field, (0.0, 0.0), ball, lab_frame=moving)
-    else:
-        deflection = wake_deflection(fine, fine_origin_px, ball, reach=(1.1, 2.2))
+    # a held ball (tunnel): the lab frame is the ball frame
+    moving = math.hypot(*ball.displacement_px) >= 0.5 * ball.stream
+    deflection = wake_deflection(lab_field, (0.0, 0.0), ball, lab_frame=moving)
     # each layer turns toward the wake's direction (on the lower side it points away from it)
     toward = 0.0 if deflection is None else deflection
     sides = {side: fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side,
@@ -173,7 +170,6 @@ class OuterStream:
     coef_t: np.ndarray
     coef_r: np.ndarray
     radius_px: float
-    count: int
 
     @staticmethod
     def _basis(phi_deg, gap_px, radius_px, with_constant):
@@ -216,7 +212,7 @@ def outer_stream(
     r = ball.radius_px
     coef_t = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, True), u_t[ok])
     coef_r = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, False), u_r[ok])
-    return OuterStream(coef_t, coef_r, r, int(ok.sum()))
+    return OuterStream(coef_t, coef_r, r)
 
 
 def _robust_lstsq(design: np.ndarray, values: np.ndarray) -> np.ndarray:
@@ -262,7 +258,9 @@ class NearWallBand:
         height, width = frame_a.shape
         self.inside_fraction = float(np.mean((x >= 0) & (y >= 0) & (x <= width - 1)
                                              & (y <= height - 1)))
-        reach = 3.0 * math.hypot(*ball.displacement_px) + 10.0
+        # the model samples the frames half the air's displacement either side of the band: size
+        # the crop by the faster of the ball and the air (a held ball does not move at all)
+        reach = 3.0 * max(math.hypot(*ball.displacement_px), ball.stream) + 10.0
         self.y0 = max(0, int(y.min() - reach))
         self.x0 = max(0, int(x.min() - reach))
         y1 = min(height, int(y.max() + reach) + 1)

@@ -37,12 +37,12 @@ import h5py
 import numpy as np
 
 from core import WakelineError, __version__
+from core.geometry import SIDES
 from core.shot import ShotResult, ShotSettings
 
 FORMAT_VERSION = 1
 REVIEW_STATUSES = ("to review", "accepted", "adjusted", "unusable")
 PROCESS_STATES = ("unprocessed", "processed", "failed")
-SIDES = ("upper", "lower")
 
 REQUIRED_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm")
 NUMBER_COLUMNS = (
@@ -508,7 +508,7 @@ def _check_signature(path: Path) -> None:
 
 
 def _load_v1(f: h5py.File) -> _Snapshot:
-    index = json.loads(_read_text(f["index"]))
+    index = json.loads(_as_text(f["index"][()]))
     return _Snapshot(
         name=str(f.attrs.get("name", "")),
         created_utc=str(f.attrs.get("created_utc", "")),
@@ -522,11 +522,6 @@ def _load_v1(f: h5py.File) -> _Snapshot:
 # A new format version adds its loader here; each loader returns the current in-memory model,
 # which is the migration: the next compaction writes the file in the current version.
 _LOADERS = {1: _load_v1}
-
-
-def _read_text(ds: h5py.Dataset) -> str:
-    value = ds[()]
-    return value.decode("utf-8") if isinstance(value, bytes) else str(value)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -8,7 +8,7 @@ session store keeps, and ``ShotResult.from_stored`` rebuilds it from those two.
 from __future__ import annotations
 
 import json
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass, field, replace
 from dataclasses import fields as dc_fields
 
 import numpy as np
@@ -370,11 +370,7 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
     if min(a.shape) < 2 * FINE_PASSES[0].window_px:
         reason = "too little of the image around the ball for the fine correlation"
         return SeparationResult(SideProposal(None, reason=reason), SideProposal(None, reason=reason))
-    fine = PivSettings(
-        passes=FINE_PASSES, median_threshold=settings.piv.median_threshold,
-        median_eps_px=settings.piv.median_eps_px,
-        max_masked_fraction=settings.piv.max_masked_fraction, workers=settings.piv.workers,
-    )
+    fine = replace(settings.piv, passes=FINE_PASSES)
     stream = float(np.hypot(*flight.displacement_px))
     if stream < MIN_FLIGHT_PX:  # a held ball: the air streams past it
         stream = _free_stream_px(lab_field, balls[0])

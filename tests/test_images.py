@@ -104,3 +104,10 @@ def test_non_finite_refused(tmp_path):
 def test_missing_file(tmp_path):
     with pytest.raises(WakelineError, match="missing.tif: file not found"):
         read_frame_pair(tmp_path / "missing.tif", tmp_path / "missing.tif")
+
+
+def test_two_page_tiff_where_one_frame_is_expected(tmp_path):
+    tifffile.imwrite(tmp_path / "pair.tif", np.stack([_frame(0), _frame(1)]))
+    tifffile.imwrite(tmp_path / "b.tif", _frame(2))
+    with pytest.raises(WakelineError, match="pair.tif: holds 2 pages"):
+        read_frame_pair(tmp_path / "pair.tif", tmp_path / "b.tif")
