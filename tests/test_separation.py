@@ -73,6 +73,7 @@ def test_sweep_errors_stay_within_the_reported_uncertainty(sweep):
     # not inflated either: for normal errors a 95 % bound is 1.96 / 0.674 = 2.9 times the median
     # |error| (derived); allow 5 times for the heavier tail of the sweep
     assert np.median(uncertainties) <= 5.0 * np.median(np.abs(errors)), "inflated uncertainty"
+    # looser than the accuracy target below on purpose (ours): this test is about coverage
     assert np.median(np.abs(errors)) <= 1.5
     assert np.max(np.abs(errors)) <= 4.0
 

@@ -94,8 +94,14 @@ def test_ball_cut_by_the_edge_gives_a_result():
     result = measure_shot(frame_a, frame_b, ShotSettings(dt_s=truth.dt_s))
     assert result.ball_a.cut_by_edge
     assert any("edge cuts the ball" in w for w in result.warnings)
-    for side in (result.separation.upper, result.separation.lower):
-        assert side.angle_deg is not None or "image edge" in side.reason
+    sep = result.separation
+    for side, true_deg in ((sep.upper, truth.upper_deg), (sep.lower, truth.lower_deg)):
+        # either an honest proposal (truth from the generator, within its own uncertainty) or
+        # none, saying why
+        if side.angle_deg is None:
+            assert "image edge" in side.reason
+        else:
+            assert abs(side.angle_deg - true_deg) <= side.uncertainty_deg
 
 
 def test_attached_flow_proposes_no_separation():
