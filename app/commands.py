@@ -10,6 +10,7 @@ from __future__ import annotations
 from PySide6.QtGui import QUndoCommand
 
 from app.model import SessionModel, pick_values
+from core import WakelineError
 
 NUDGE_MERGE_ID = 4101  # consecutive nudges of one mark on one shot merge into one undo step
 
@@ -49,10 +50,20 @@ class PickEdit(QUndoCommand):
         if self._applied:  # the push right after apply(): already done
             self._applied = False
             return
-        self._model.apply_pick(self.shot_id, **self.after)
+        self._apply_from_stack(self.after)
 
     def undo(self) -> None:
-        self._model.apply_pick(self.shot_id, **self.before)
+        self._apply_from_stack(self.before)
+
+    def _apply_from_stack(self, values: dict) -> None:
+        """Qt cannot take an exception back from undo/redo: a refusal (e.g. the session became
+        read-only) is reported by signal, the command retired, and the views shown the truth."""
+        try:
+            self._model.apply_pick(self.shot_id, **values)
+        except WakelineError as exc:
+            self.setObsolete(True)
+            self._model.refresh(self.shot_id)
+            self._model.edit_refused.emit(str(exc))
 
 
 class MarkMove(PickEdit):

@@ -59,6 +59,7 @@ class SessionModel(QObject):
     session_changed = Signal()  # a session was opened or closed
     current_changed = Signal(str)  # the current shot id ("" for none)
     record_changed = Signal(str)  # one shot's pick, result or processing state changed
+    edit_refused = Signal(str)  # an undo or redo the store refused: its one-line reason
 
     def __init__(self, parent: QObject | None = None, cache_size: int = 6,
                  frame_cache_size: int = 3) -> None:

@@ -257,6 +257,7 @@ class MainWindow(QMainWindow):
         self.shot_list.shot_selected.connect(self.model.set_current)
         self.model.current_changed.connect(self._on_current_changed)
         self.model.record_changed.connect(self._on_record_changed)
+        self.model.edit_refused.connect(lambda text: self.show_problem("Edit not saved", text))
         self.model.session_changed.connect(self._on_session_changed)
         self.canvas.mark_moved.connect(self.readout.show_live)
         self.canvas.mark_released.connect(self._on_mark_released)
@@ -331,6 +332,8 @@ class MainWindow(QMainWindow):
         path = Path(path)
         current = self.model.session
         if current is not None and Path(current.path).resolve() == path.resolve():
+            if writable != self.model.read_only:
+                return True  # already open as asked
             self.close_session()  # reopening the same file: our own lock must go first
         try:
             session = Session.open(path, writable=writable)
@@ -428,7 +431,8 @@ class MainWindow(QMainWindow):
         if self.job is not None:
             self.show_problem("Busy", "Wait for the running job to finish or cancel it.")
             return None
-        if self.model.session is not None and Path(self.model.session.path) == Path(session_path):
+        open_path = None if self.model.session is None else Path(self.model.session.path).resolve()
+        if open_path == Path(session_path).resolve():
             self.close_session()
         job = import_job(folder, session_path, self)
         job.item_done.connect(self._on_import_item)

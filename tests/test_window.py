@@ -211,6 +211,24 @@ def test_a_note_being_typed_survives_a_status_key_and_a_shot_change(main_window,
     window.close()
 
 
+def test_a_refused_undo_is_reported_not_raised(main_window, make_session, qtbot, monkeypatch):
+    from core import WakelineError
+
+    window = _open(main_window, qtbot, make_session(2), show=True)
+    shot_id = window.model.current_id
+    window.set_status("accepted")
+
+    def refuse(*_args, **_kwargs):
+        raise WakelineError("demo.h5: the disk is full")
+
+    monkeypatch.setattr(window.model.session, "set_pick", refuse)
+    window.undo_stack.undo()
+    assert "disk is full" in window.last_problem
+    assert window.model.record(shot_id).pick.status == "accepted"  # the views show the truth
+    monkeypatch.undo()
+    window.close()
+
+
 def test_processing_started_from_window_completes(main_window, make_session, qtbot):
     path = make_session(3, processed=False)
     window = _open(main_window, qtbot, path)  # unprocessed shots start processing on open
