@@ -11,7 +11,12 @@ Method (each step a published one, named where it is used):
    their side), outliers replaced, the field lightly smoothed (predictor). Later passes deform
    both frames symmetrically by half the predictor, ``A'(x) = A(x - d(x)/2)``,
    ``B'(x) = B(x + d(x)/2)``, with cubic B-spline interpolation, and correlate the deformed
-   windows for the correction (Scarano 2002, predictor-corrector).
+   windows for the correction (Scarano 2002, predictor-corrector). Where the predictor
+   changes by no more than ``deform_min_change_px`` across a window (most of a typical frame),
+   each block of one grid step is moved as a whole by the predictor at its centre: a constant
+   shift of the spline is a separable 4-tap filter, several times cheaper than resampling
+   pixel by pixel, and a window of whole blocks sees the same mean shift. Only the windows
+   with real gradients are resampled pixel by pixel (``ndimage.map_coordinates``).
 3. The peak is refined by a three-point Gaussian fit per axis, after dividing the three samples
    by the overlap weight ``1 - |s|/D`` of a circular correlation of ``D``-wide windows (the
    bias of un-normalised FFT correlation, Westerweel 1997).
@@ -37,7 +42,7 @@ import math
 import os
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 import scipy.fft
@@ -53,6 +58,13 @@ from core.validate import normalized_median_test, replace_outliers
 SECOND_PEAK_EXCLUSION_PX = 3
 #: Gaussian smoothing of the predictor between passes, in grid spacings.
 PREDICTOR_SMOOTHING = 0.5
+#: Pixels kept around a cut-out of a frame before its spline prefilter: the recursive
+#: filter's reach decays as 0.268^n (the pole of the cubic B-spline, Unser 1999, memory),
+#: below 1e-7 after 12 px.
+SPLINE_MARGIN_PX = 12
+#: Change of the predictor across a window (px, centre to corner) up to which the blocks of
+#: the window are moved as a whole instead of deformed pixel by pixel (see ``_Tiles``).
+DEFORM_MIN_CHANGE_PX = 0.1
 
 Progress = Callable[[int, int, str], object]
 
@@ -82,6 +94,9 @@ class PivSettings:
     median_threshold: float = 2.0
     median_eps_px: float = 0.1
     max_masked_fraction: float = 0.5
+    #: windows whose predictor changes by at most this (px, centre to corner) are deformed
+    #: block by block instead of pixel by pixel; 0: every pixel
+    deform_min_change_px: float = DEFORM_MIN_CHANGE_PX
     workers: int | None = None  # None: all cores
 
     def __post_init__(self):
@@ -95,12 +110,16 @@ class PivSettings:
             "median_threshold": self.median_threshold,
             "median_eps_px": self.median_eps_px,
             "max_masked_fraction": self.max_masked_fraction,
+            "deform_min_change_px": self.deform_min_change_px,
             "workers": self.workers,
         }
 
     @classmethod
     def from_dict(cls, data: dict) -> PivSettings:
-        known = {"passes", "median_threshold", "median_eps_px", "max_masked_fraction", "workers"}
+        known = {
+            "passes", "median_threshold", "median_eps_px", "max_masked_fraction",
+            "deform_min_change_px", "workers",
+        }
         values = {k: v for k, v in dict(data).items() if k in known}
         if "passes" in values:
             values["passes"] = tuple(_pass_from(p) for p in values["passes"])
@@ -128,6 +147,8 @@ def _check_settings(s: PivSettings) -> None:
         raise WakelineError("PIV settings: median threshold must be > 0 and eps >= 0")
     if not 0.0 <= s.max_masked_fraction <= 1.0:
         raise WakelineError("PIV settings: max masked fraction must lie in 0..1")
+    if not s.deform_min_change_px >= 0:
+        raise WakelineError("PIV settings: the deformation threshold must be >= 0 px")
     if s.workers is not None and s.workers < 1:
         raise WakelineError("PIV settings: workers must be at least 1")
 
@@ -450,13 +471,26 @@ class _Predictor:
             out.append(spline.ev(gy, gx) - slope_y * off_y - slope_x * off_x)
         return out[0], out[1]
 
-    def dense_half(self, shape) -> tuple[np.ndarray, np.ndarray]:
-        """Half the predictor at every pixel, ``(H, W)`` float64 each (the symmetric shift)."""
-        rows, cols = np.arange(shape[0]), np.arange(shape[1])
+    def dense_half(self, rows, cols) -> tuple[np.ndarray, np.ndarray]:
+        """Half the predictor at the pixels of ``rows`` x ``cols``, ``(len(rows), len(cols))``
+        float64 each (the symmetric shift)."""
         return (
             _interpolate_grid(self.grid, 0.5 * self.dx, rows, cols),
             _interpolate_grid(self.grid, 0.5 * self.dy, rows, cols),
         )
+
+    def change_across(self, grid: _Grid) -> np.ndarray:
+        """Largest change of the predictor from the centre of each window of ``grid`` to its
+        corners and edge midpoints, px, ``(M, N)``."""
+        half = (grid.window - 1) / 2.0
+        steps = np.array([-half, 0.0, half])
+        ys = (grid.y_px[:, None] + steps).ravel()
+        xs = (grid.x_px[:, None] + steps).ravel()
+        change = np.zeros((grid.rows, grid.cols))
+        for values in (self.dx, self.dy):
+            v = _interpolate_grid(self.grid, values, ys, xs).reshape(grid.rows, 3, grid.cols, 3)
+            np.maximum(change, np.abs(v - v[:, 1:2, :, 1:2]).max(axis=(1, 3)), out=change)
+        return change
 
 
 def _make_predictor(grid: _Grid, dx, dy, outliers, masked) -> _Predictor:
@@ -488,7 +522,7 @@ def _smooth(values: np.ndarray, weight: np.ndarray) -> np.ndarray:
 
 @dataclass
 class _Frames:
-    """The pair, its spline coefficients (computed once), masks and the worker threads."""
+    """The pair, its masks and the worker threads."""
 
     a: np.ndarray
     b: np.ndarray
@@ -496,7 +530,6 @@ class _Frames:
     mask_b: np.ndarray | None
     workers: int
     power: float  # geometric mean of the frames' mean squares, counts^2
-    coeff: list = field(default_factory=list)
     pool: ThreadPoolExecutor | None = None
 
     def run(self, fn, items) -> list:
@@ -513,104 +546,308 @@ class _Frames:
             self.pool.shutdown()
             self.pool = None
 
-    def coefficients(self):
-        if not self.coeff:
-            self.coeff = self.run(
-                lambda f: ndimage.spline_filter(f, order=3, output=np.float32, mode="mirror"),
-                (self.a, self.b),
-            )
-        return self.coeff
+    def deformed(self, predictor: _Predictor, grid: _Grid, min_change_px: float):
+        """Both frames deformed symmetrically by half the predictor over the windows of
+        ``grid``, and the mask of pixels excluded in the deformed pair: ``(a, b, mask)``.
 
-    def deformed(self, predictor: _Predictor):
-        """Both frames (and masks) deformed symmetrically by half the predictor."""
-        half_x, half_y = predictor.dense_half(self.a.shape)
-        ca, cb = self.coefficients()
-        out_a = np.empty(self.a.shape, np.float32)
-        out_b = np.empty(self.a.shape, np.float32)
-        jobs = [
-            (coeff, out, sign, rows)
-            for rows in _row_chunks(self.a.shape[0], 2 * self.workers)
-            for coeff, out, sign in ((ca, out_a, -1.0), (cb, out_b, 1.0))
-        ]
-        self.run(lambda job: _warp_rows(*job, half_x, half_y), jobs)
-        masks = [
-            _union(_warp_mask(mask, half_x, half_y, sign), _outside_frame(half_x, half_y, sign))
-            for mask, sign in ((self.mask_a, -1.0), (self.mask_b, 1.0))
-        ]
+        Windows over which the predictor changes by more than ``min_change_px`` (centre to
+        corner) are resampled pixel by pixel, in regions (:func:`_deformation_regions`); the
+        other blocks are moved as a whole by the predictor at their centre
+        (:class:`_Tiles`), which gives the same windows at a fraction of the cost. Pixels
+        outside every window are left 0.
+        """
+        shape = self.a.shape
+        exact = predictor.change_across(grid) > min_change_px
+        if grid.window % grid.step:  # windows not made of whole blocks
+            exact[:] = True
+        regions = _deformation_regions(grid, exact, shape) if exact.any() else []
+        tiles = None if exact.all() else _tiles_for(grid, predictor, exact)
+        out = [np.zeros(shape, np.float32), np.zeros(shape, np.float32)]
+        halves = [predictor.dense_half(box.row_px, box.col_px) for box, _ in regions]
+        frames = ((self.a, -1.0), (self.b, 1.0))
+        coeff: list = [None, None]
+        jobs = [("region", k, i) for k in range(len(regions)) for i in (0, 1)]
+        if tiles is not None:
+            coeff = self.run(_padded_coefficients(tiles.pad_px), (self.a, self.b))
+            jobs += [("tiles", rows, i) for rows in tiles.row_chunks() for i in (0, 1)]
+
+        def warp(job):
+            kind, k, i = job
+            if kind == "region":
+                _warp_region(frames[i][0], out[i], *regions[k], *halves[k], frames[i][1],
+                             coeff[i], 0 if tiles is None else tiles.pad_px)
+            else:
+                _shift_tiles(coeff[i], out[i], tiles, frames[i][1], k)
+
+        self.run(warp, jobs)
         # after deformation a pixel shows the same fluid in both frames: a pixel excluded in
         # one frame leaves its partner unpaired in the other, so both exclude the union
-        both = _union(masks[0], masks[1])
-        return out_a, out_b, both, both
+        excluded = np.zeros(shape, bool)
+        for (box, _), (half_x, half_y) in zip(regions, halves, strict=True):
+            for (_, sign), mask in zip(frames, (self.mask_a, self.mask_b), strict=True):
+                _mark_warped_mask(excluded, mask, box, half_x, half_y, sign)
+                _mark_outside_frame(excluded, box, half_x, half_y, sign)
+        if tiles is not None:
+            for (_, sign), mask in zip(frames, (self.mask_a, self.mask_b), strict=True):
+                tiles.mark_excluded(excluded, mask, sign)
+        return out[0], out[1], excluded if excluded.any() else None
 
 
-def _warp_rows(coeff, out, sign, rows: slice, half_x, half_y) -> None:
-    """Rows ``rows`` of the cubic spline with coefficients ``coeff`` sampled at
-    ``(y + sign*hy, x + sign*hx)``, written into ``out``."""
-    width = coeff.shape[1]
-    coords = np.empty((2, rows.stop - rows.start, width))
-    np.add(
-        np.arange(rows.start, rows.stop, dtype=np.float64)[:, None],
-        sign * half_y[rows],
-        out=coords[0],
-    )
-    np.add(np.arange(width, dtype=np.float64), sign * half_x[rows], out=coords[1])
-    ndimage.map_coordinates(
-        coeff, coords, output=out[rows], order=3, mode="mirror", prefilter=False
-    )
+def _padded_coefficients(pad_px: int):
+    """A function giving a frame's cubic B-spline coefficients (mirror boundary), padded by
+    ``pad_px`` with their mirror image (the same extension ``map_coordinates`` applies)."""
+
+    def coefficients(frame):
+        coeff = ndimage.spline_filter(frame, order=3, output=np.float32, mode="mirror")
+        return np.pad(coeff, pad_px, mode="reflect")
+
+    return coefficients
 
 
-def _row_chunks(height: int, count: int) -> list[slice]:
-    edges = np.linspace(0, height, min(count, height) + 1).astype(int)
-    return [slice(int(a), int(b)) for a, b in itertools.pairwise(edges) if b > a]
+@dataclass(frozen=True)
+class _Tiles:
+    """Blocks of one grid step, each moved as a whole by half the predictor at its centre.
+
+    Where the predictor changes by less than the deformation threshold across a window, a
+    pixel-by-pixel deformation differs from moving each block by its centre value by less
+    than half that threshold, and a window made of whole blocks (window a multiple of the
+    step) still sees its centre value on average for a linear predictor. A constant shift
+    of a cubic B-spline is separable: four taps along each axis instead of sixteen per pixel
+    (written here because ``ndimage`` has no batched per-block shift).
+    """
+
+    step: int
+    use: np.ndarray  # (nr, nc) bool: blocks moved as a whole
+    half_x: np.ndarray  # (nr, nc) half the predictor at the block centres, px
+    half_y: np.ndarray
+    pad_px: int  # padding of the coefficients: largest whole shift + 2
+
+    def row_chunks(self, rows_per_chunk: int = 16) -> list[slice]:
+        count = self.use.shape[0]
+        return [slice(r, min(r + rows_per_chunk, count)) for r in range(0, count, rows_per_chunk)]
+
+    def blocks_of(self, image: np.ndarray) -> np.ndarray:
+        """``(nr, step, nc, step)`` view of the part of ``image`` the blocks cover."""
+        nr, nc = self.use.shape
+        s = self.step
+        return image[: nr * s, : nc * s].reshape(nr, s, nc, s)
+
+    def mark_excluded(self, out: np.ndarray, mask: np.ndarray | None, sign: float) -> None:
+        """Mark in ``out`` the pixels of moved blocks that come from beyond the image or from
+        ``mask`` (nearest pixel: a block moved by ``s`` takes the mask moved by ``rint(s)``)."""
+        nr, nc = self.use.shape
+        s = self.step
+        height, width = out.shape
+        view = self.blocks_of(out)
+        inside = np.arange(s)
+        ys = (s * np.arange(nr)[:, None] + inside)[:, :, None, None] \
+            + sign * self.half_y[:, None, :, None]
+        xs = (s * np.arange(nc)[:, None] + inside)[None, None, :, :] \
+            + sign * self.half_x[:, None, :, None]
+        beyond = (ys < -0.5) | (ys > height - 0.5) | (xs < -0.5) | (xs > width - 0.5)
+        view |= beyond & self.use[:, None, :, None]
+        if mask is None:
+            return
+        ry = np.rint(sign * self.half_y).astype(np.intp)
+        rx = np.rint(sign * self.half_x).astype(np.intp)
+        near = _Box.around(mask).grown(self.pad_px + s, mask.shape)
+        rows = (s * np.arange(nr) < near.r1) & (s * np.arange(nr) + s > near.r0)
+        cols = (s * np.arange(nc) < near.c1) & (s * np.arange(nc) + s > near.c0)
+        r, c = np.nonzero(self.use & rows[:, None] & cols[None, :])
+        if r.size == 0:
+            return
+        pad = self.pad_px
+        padded = np.pad(mask, pad, mode="edge")
+        moved = sliding_window_view(padded, (s, s))[s * r + ry[r, c] + pad, s * c + rx[r, c] + pad]
+        view[r, :, c, :] |= moved
 
 
-def _union(a: np.ndarray | None, b: np.ndarray | None) -> np.ndarray | None:
-    if a is None or b is None:
-        return b if a is None else a
-    return a | b
+def _tiles_for(grid: _Grid, predictor: _Predictor, exact: np.ndarray) -> _Tiles:
+    """Blocks of the windows of ``grid`` (window a multiple of the step) to move as a whole:
+    all blocks not covered by a window marked ``exact`` (``(M, N)`` bool)."""
+    k = grid.window // grid.step
+    s = grid.step
+    nr, nc = grid.rows + k - 1, grid.cols + k - 1
+    covered = np.zeros((nr, nc), bool)
+    for dr, dc in itertools.product(range(k), range(k)):
+        covered[dr : dr + grid.rows, dc : dc + grid.cols] |= exact
+    centre_y = s * np.arange(nr) + (s - 1) / 2.0
+    centre_x = s * np.arange(nc) + (s - 1) / 2.0
+    half_x, half_y = predictor.dense_half(centre_y, centre_x)
+    pad = math.ceil(_largest_shift(half_x, half_y)) + 2
+    return _Tiles(s, ~covered, half_x, half_y, pad)
 
 
-def _outside_frame(half_x, half_y, sign) -> np.ndarray | None:
-    """Pixels of a deformed frame sampled from beyond the image (mirrored, not recorded),
-    ``(H, W)`` bool, or None when there are none. They take no part in the correlation."""
-    height, width = half_x.shape
-    reach = math.ceil(max(float(np.abs(half_x).max()), float(np.abs(half_y).max())) + 0.5)
-    if reach <= 0.5:
-        return None
-    out = np.zeros((height, width), bool)
-    band = min(reach, height)
-    for rows in (slice(0, band), slice(height - band, height)):
-        y = np.arange(height)[rows, None] + sign * half_y[rows]
-        out[rows] |= (y < -0.5) | (y > height - 0.5)
-    band = min(reach, width)
-    for cols in (slice(0, band), slice(width - band, width)):
-        x = np.arange(width)[None, cols] + sign * half_x[:, cols]
-        out[:, cols] |= (x < -0.5) | (x > width - 0.5)
-    return out if out.any() else None
+def _bspline_weights(t: np.ndarray) -> list[np.ndarray]:
+    """Cubic B-spline weights of the samples at offsets -1, 0, 1, 2 for a point ``t`` in
+    [0, 1) past the sample at 0 (Unser 1999, memory), each ``(K, 1, 1)`` float32."""
+    u = 1.0 - t
+    weights = (u**3 / 6.0, (4.0 - 6.0 * t**2 + 3.0 * t**3) / 6.0,
+               (4.0 - 6.0 * u**2 + 3.0 * u**3) / 6.0, t**3 / 6.0)
+    return [w.astype(np.float32)[:, None, None] for w in weights]
 
 
-def _warp_mask(mask, half_x, half_y, sign):
-    """Nearest-pixel deformation of a bool mask: ``mask(x + sign * h(x))``, the edge pixel
-    repeated beyond the image. Only the mask's bounding box, grown by the largest shift, can
-    come out masked, so only that part is computed."""
+def _shift_tiles(padded, out, tiles: _Tiles, sign: float, rows: slice) -> None:
+    """Blocks of block-rows ``rows`` that ``tiles.use``: the cubic spline with (padded)
+    coefficients ``padded`` sampled at ``x + sign * h`` with ``h`` the block's shift, by a
+    separable 4-tap filter along x, then y, written into ``out``."""
+    r, c = np.nonzero(tiles.use[rows])
+    if r.size == 0:
+        return
+    r += rows.start
+    s, pad = tiles.step, tiles.pad_px
+    shift_y, shift_x = sign * tiles.half_y[r, c], sign * tiles.half_x[r, c]
+    whole_y, whole_x = np.floor(shift_y), np.floor(shift_x)
+    first_r = s * r + whole_y.astype(np.intp) - 1 + pad
+    first_c = s * c + whole_x.astype(np.intp) - 1 + pad
+    block = sliding_window_view(padded, (s + 3, s + 3))[first_r, first_c]  # (K, s+3, s+3)
+    wx, wy = _bspline_weights(shift_x - whole_x), _bspline_weights(shift_y - whole_y)
+    along_x = wx[0] * block[:, :, 0:s]
+    for tap in range(1, 4):
+        along_x += wx[tap] * block[:, :, tap : tap + s]
+    moved = wy[0] * along_x[:, 0:s, :]
+    for tap in range(1, 4):
+        moved += wy[tap] * along_x[:, tap : tap + s, :]
+    tiles.blocks_of(out)[r, :, c, :] = moved
+
+
+def _deformation_regions(grid: _Grid, cells: np.ndarray, shape) -> list[tuple[_Box, np.ndarray]]:
+    """The pixels of the windows at ``cells`` (``(M, N)`` bool) in separate regions, one per
+    8-connected group of cells: ``(box, pick)`` with ``pick`` the box's pixels to resample
+    (each pixel in one region only). Resampling by group keeps the work near the windows
+    that need it when they are scattered."""
+    labels, _ = ndimage.label(cells, structure=np.ones((3, 3), bool))
+    taken = np.zeros(shape, bool)
+    step, d = grid.step, grid.window
+    regions = []
+    for number, (rs, cs) in enumerate(ndimage.find_objects(labels), start=1):
+        box = _Box(rs.start * step, (rs.stop - 1) * step + d, cs.start * step,
+                   (cs.stop - 1) * step + d)
+        r, c = np.nonzero(labels[rs, cs] == number)
+        pick = _covered(step * r, step * c, d, (box.r1 - box.r0, box.c1 - box.c0))
+        pick &= ~taken[box.slices]
+        taken[box.slices] |= pick
+        regions.append((box, pick))
+    return regions
+
+
+def _covered(rows, cols, size: int, shape) -> np.ndarray:
+    """Pixels covered by the ``size`` x ``size`` squares starting at ``(rows, cols)``,
+    ``shape`` bool (a summed-area table of the squares' corners)."""
+    corners = np.zeros((shape[0] + 1, shape[1] + 1), np.int32)
+    for dr, dc, sign in ((0, 0, 1), (size, 0, -1), (0, size, -1), (size, size, 1)):
+        np.add.at(corners, (rows + dr, cols + dc), sign)
+    return np.cumsum(np.cumsum(corners, axis=0), axis=1)[:-1, :-1] > 0
+
+
+def _warp_region(frame, out, box: _Box, pick, half_x, half_y, sign, padded=None, pad=0) -> None:
+    """The picked pixels of ``box`` in ``out``: ``frame`` sampled at ``x + sign * h(x)`` by
+    cubic B-spline interpolation (``ndimage.map_coordinates``). The spline coefficients come
+    from the box grown by the largest shift and ``SPLINE_MARGIN_PX`` (the coefficients of a
+    cut-out differ from the whole frame's only within a few pixels of the cut), or are the
+    whole frame's ``padded`` by ``pad`` px when given."""
+    if padded is None:
+        reach = _largest_shift(half_x, half_y)
+        source = box.grown(math.ceil(reach) + 2 + SPLINE_MARGIN_PX, frame.shape)
+        coeff = ndimage.spline_filter(
+            frame[source.slices], order=3, output=np.float32, mode="mirror"
+        )
+        r0, c0 = source.r0, source.c0
+    else:
+        coeff, r0, c0 = padded, -pad, -pad
+    y = np.arange(box.r0 - r0, box.r1 - r0, dtype=np.float64)
+    x = np.arange(box.c0 - c0, box.c1 - c0, dtype=np.float64)
+    target = out[box.slices]
+    if pick.all():
+        coords = np.empty((2,) + pick.shape)
+        np.add(y[:, None], sign * half_y, out=coords[0])
+        np.add(x[None, :], sign * half_x, out=coords[1])
+        values = target
+    else:
+        r, c = np.nonzero(pick)
+        coords = np.stack([y[r] + sign * half_y[r, c], x[c] + sign * half_x[r, c]])
+        values = np.empty(r.size, np.float32)
+    ndimage.map_coordinates(coeff, coords, output=values, order=3, mode="mirror", prefilter=False)
+    if not pick.all():
+        target[r, c] = values
+
+
+@dataclass(frozen=True)
+class _Box:
+    """Pixels ``[r0, r1) x [c0, c1)`` of a frame."""
+
+    r0: int
+    r1: int
+    c0: int
+    c1: int
+
+    @classmethod
+    def around(cls, pick: np.ndarray) -> _Box:
+        rows = np.flatnonzero(pick.any(axis=1))
+        cols = np.flatnonzero(pick.any(axis=0))
+        return cls(int(rows[0]), int(rows[-1]) + 1, int(cols[0]), int(cols[-1]) + 1)
+
+    def grown(self, margin: int, shape) -> _Box:
+        return _Box(
+            max(self.r0 - margin, 0), min(self.r1 + margin, shape[0]),
+            max(self.c0 - margin, 0), min(self.c1 + margin, shape[1]),
+        )
+
+    @property
+    def slices(self) -> tuple[slice, slice]:
+        return slice(self.r0, self.r1), slice(self.c0, self.c1)
+
+    @property
+    def row_px(self) -> np.ndarray:
+        return np.arange(self.r0, self.r1)
+
+    @property
+    def col_px(self) -> np.ndarray:
+        return np.arange(self.c0, self.c1)
+
+
+def _mark_outside_frame(out, box: _Box, half_x, half_y, sign) -> None:
+    """Mark in ``out`` the pixels of ``box`` in a deformed frame sampled from beyond the image
+    (mirrored, not recorded): they take no part in the correlation. Only bands along the
+    image edges as wide as the largest shift can be hit."""
+    height, width = out.shape
+    reach = math.ceil(_largest_shift(half_x, half_y) + 0.5)
+    for lo, hi in ((0, reach), (height - reach, height)):
+        lo, hi = max(lo, box.r0), min(hi, box.r1)
+        if lo < hi:
+            y = np.arange(lo, hi)[:, None] + sign * half_y[lo - box.r0 : hi - box.r0]
+            out[lo:hi, box.c0 : box.c1] |= (y < -0.5) | (y > height - 0.5)
+    for lo, hi in ((0, reach), (width - reach, width)):
+        lo, hi = max(lo, box.c0), min(hi, box.c1)
+        if lo < hi:
+            x = np.arange(lo, hi)[None, :] + sign * half_x[:, lo - box.c0 : hi - box.c0]
+            out[box.r0 : box.r1, lo:hi] |= (x < -0.5) | (x > width - 0.5)
+
+
+def _largest_shift(half_x: np.ndarray, half_y: np.ndarray) -> float:
+    """Largest |component| of the shift (px); max and min need no temporary array as abs does."""
+    return max(float(half_x.max()), -float(half_x.min()), float(half_y.max()), -float(half_y.min()))
+
+
+def _mark_warped_mask(out, mask, box: _Box, half_x, half_y, sign) -> None:
+    """Mark in ``out`` the pixels of ``box`` masked after nearest-pixel deformation of
+    ``mask``: ``mask(x + sign * h(x))``, the edge pixel repeated beyond the image. Only the
+    mask's bounding box, grown by the largest shift, can come out masked."""
     if mask is None:
-        return None
-    rows = np.flatnonzero(mask.any(axis=1))
-    cols = np.flatnonzero(mask.any(axis=0))
-    out = np.zeros_like(mask)
-    if rows.size == 0:
-        return out
-    reach = int(np.ceil(max(np.abs(half_x).max(), np.abs(half_y).max()))) + 1
+        return
+    reach = math.ceil(_largest_shift(half_x, half_y)) + 1
+    area = _Box.around(mask).grown(reach, mask.shape)
+    r0, r1 = max(area.r0, box.r0), min(area.r1, box.r1)
+    c0, c1 = max(area.c0, box.c0), min(area.c1, box.c1)
+    if r0 >= r1 or c0 >= c1:
+        return
+    inner = (slice(r0 - box.r0, r1 - box.r0), slice(c0 - box.c0, c1 - box.c0))
     height, width = mask.shape
-    r0, r1 = max(rows[0] - reach, 0), min(rows[-1] + reach + 1, height)
-    c0, c1 = max(cols[0] - reach, 0), min(cols[-1] + reach + 1, width)
-    box = (slice(r0, r1), slice(c0, c1))
-    r = np.rint(np.arange(r0, r1)[:, None] + sign * half_y[box]).astype(np.intp)
-    c = np.rint(np.arange(c0, c1)[None, :] + sign * half_x[box]).astype(np.intp)
+    r = np.rint(np.arange(r0, r1)[:, None] + sign * half_y[inner]).astype(np.intp)
+    c = np.rint(np.arange(c0, c1)[None, :] + sign * half_x[inner]).astype(np.intp)
     np.clip(r, 0, height - 1, out=r)
     np.clip(c, 0, width - 1, out=c)
-    out[box] = mask[r, c]
-    return out
+    out[r0:r1, c0:c1] |= mask[r, c]
 
 
 # --- the engine -------------------------------------------------------------------------------
@@ -689,8 +926,8 @@ def _run_pass(frames: _Frames, grid: _Grid, predictor: _Predictor | None, settin
     if predictor is None:
         pair, masks = (frames.a, frames.b), (frames.mask_a, frames.mask_b)
     else:
-        a, b, ma, mb = frames.deformed(predictor)
-        pair, masks = (a, b), (ma, mb)
+        a, b, mask = frames.deformed(predictor, grid, settings.deform_min_change_px)
+        pair, masks = (a, b), (mask, mask)
     counts = [_counts_or_none(masks[0], grid)]
     counts.append(counts[0] if masks[1] is masks[0] else _counts_or_none(masks[1], grid))
     res = _correlate(pair, masks, counts, grid, settings, frames, owned=predictor is not None)
