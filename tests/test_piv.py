@@ -198,7 +198,10 @@ def test_progress_reports_each_pass_and_can_stop():
 
 
 def test_settings_round_trip_through_json_and_reject_nonsense():
-    s = PivSettings(passes=(PivPass(48, 0.75), PivPass(24, 0.5)), median_threshold=3.0, workers=1)
+    s = PivSettings(
+        passes=(PivPass(48, 0.75), PivPass(24, 0.5)), median_threshold=3.0,
+        deform_min_change_px=0.25, workers=1,
+    )
     back = PivSettings.from_dict(json.loads(json.dumps(s.to_dict())))
     assert back == s
     assert PivSettings.from_dict(asdict(s)) == s
@@ -208,6 +211,8 @@ def test_settings_round_trip_through_json_and_reject_nonsense():
         PivSettings(passes=(PivPass(32, 1.0),))
     with pytest.raises(WakelineError):
         PivSettings(passes=(PivPass(4, 0.5),))
+    with pytest.raises(WakelineError, match="deformation threshold"):
+        PivSettings(deform_min_change_px=-1.0)
 
 
 def test_bad_frames_are_refused_with_one_line():
@@ -301,3 +306,83 @@ def test_result_does_not_depend_on_the_number_of_workers():
     np.testing.assert_allclose(one.dx_px, two.dx_px, atol=1e-6)
     np.testing.assert_allclose(one.dy_px, two.dy_px, atol=1e-6)
     np.testing.assert_array_equal(one.valid, two.valid)
+
+
+def _uniform_predictor(grid, dx, dy):
+    from core.piv import _Predictor
+
+    shape = (grid.rows, grid.cols)
+    return _Predictor(grid, np.full(shape, dx), np.full(shape, dy))
+
+
+def test_block_shift_is_the_cubic_spline_shift_of_scipy():
+    # A uniform predictor moves every block by the same amount; the deformed frames must be
+    # scipy.ndimage.shift's cubic-spline shift of the frames (reference library), A by +d/2 and
+    # B by -d/2 (A'(x) = A(x - d/2), B'(x) = B(x + d/2)).
+    from scipy import ndimage
+
+    from core.piv import _Frames, _grid_for
+
+    rng = np.random.default_rng(5)
+    a, b = (rng.random((96, 128)).astype(np.float32) * 100 for _ in range(2))
+    grid = _grid_for(a.shape, PivPass(32, 0.5))
+    frames = _Frames(a, b, None, None, workers=1, power=1.0)
+    da, db, excluded = frames.deformed(_uniform_predictor(grid, 2.6, -1.3), grid, 0.1)
+    for deformed, frame, sign in ((da, a, 1.0), (db, b, -1.0)):
+        expected = ndimage.shift(frame, (sign * -0.65, sign * 1.3), order=3, mode="mirror")
+        np.testing.assert_allclose(deformed, expected, atol=2e-3)
+    # pixels sampled from beyond the image (over half a pixel past its edge) are excluded:
+    # A's first column (x - 1.3) and last row (y + 0.65), B's last column and first row
+    assert excluded is not None
+    assert excluded[:, 0].all() and excluded[:, -1].all()
+    assert excluded[0].all() and excluded[-1].all() and not excluded[1:-1, 1:-1].any()
+
+
+def test_pixel_by_pixel_deformation_of_a_cut_out_matches_the_whole_frame():
+    # Where the predictor changes, windows are resampled pixel by pixel from spline
+    # coefficients of a cut-out; they must match map_coordinates on the whole frame
+    # (scipy, reference library) to well below the PIV error.
+    from scipy import ndimage
+
+    from core.piv import _Frames, _grid_for, _Predictor
+
+    rng = np.random.default_rng(6)
+    a, b = (rng.random((192, 192)).astype(np.float32) * 100 for _ in range(2))
+    grid = _grid_for(a.shape, PivPass(32, 0.5))
+    y, x = np.meshgrid(grid.y_px, grid.x_px, indexing="ij")
+    bump = 3.0 * np.exp(-((x - 96) ** 2 + (y - 96) ** 2) / (2 * 20.0**2))
+    predictor = _Predictor(grid, 1.2 + bump, 0.4 - bump)
+    frames = _Frames(a, b, None, None, workers=2, power=1.0)
+    da, db, _ = frames.deformed(predictor, grid, 0.1)
+    exact = predictor.change_across(grid) > 0.1
+    assert 0 < exact.sum() < exact.size  # both kinds of windows occur
+    rows, cols = np.arange(a.shape[0]), np.arange(a.shape[1])
+    half_x, half_y = predictor.dense_half(rows, cols)
+    centre = (slice(72, 120), slice(72, 120))  # inside the resampled region
+    for deformed, frame, sign in ((da, a, -1.0), (db, b, 1.0)):
+        coords = np.array([rows[:, None] + sign * half_y, cols[None, :] + sign * half_x])
+        expected = ndimage.map_coordinates(frame, coords, order=3, mode="mirror")
+        np.testing.assert_allclose(deformed[centre], expected[centre], atol=2e-3)
+        frames_close = np.abs(deformed - expected)[:176, :176]  # the area the windows cover
+        # elsewhere blocks move by their centre value: the difference stays small
+        assert np.percentile(frames_close, 99) < 0.05 * 100
+
+
+def test_block_deformation_gives_the_same_vectors_as_pixel_deformation():
+    # The threshold only changes how the predictor's shift is applied where it is nearly
+    # uniform; the vectors must agree with deforming every pixel to well within the random
+    # error of 32 px windows (0.02-0.05 px, Raffel et al., memory).
+    vortex = synth.lamb_oseen((150.0, 140.0), 900.0, 30.0)
+
+    def field(x, y):
+        dx, dy = vortex(x, y)
+        return dx + 3.3, dy - 1.2
+
+    a, b = synth.particle_pair((288, 320), field, seed=8)
+    blocks = correlate_pair(a, b)
+    pixels = correlate_pair(a, b, settings=PivSettings(deform_min_change_px=0.0))
+    diff = np.hypot(blocks.dx_px - pixels.dx_px, blocks.dy_px - pixels.dy_px)
+    assert np.sqrt(np.mean(diff**2)) <= 0.01
+    tx, ty = field(blocks.x_px, blocks.y_px)
+    err = np.hypot(blocks.dx_px - tx, blocks.dy_px - ty)
+    assert np.sqrt(np.mean(err**2)) <= 0.1
