@@ -58,10 +58,6 @@ from core.validate import normalized_median_test, replace_outliers
 SECOND_PEAK_EXCLUSION_PX = 3
 #: Gaussian smoothing of the predictor between passes, in grid spacings.
 PREDICTOR_SMOOTHING = 0.5
-#: Pixels kept around a cut-out of a frame before its spline prefilter: the recursive
-#: filter's reach decays as 0.268^n (the pole of the cubic B-spline, Unser 1999, memory),
-#: below 1e-7 after 12 px.
-SPLINE_MARGIN_PX = 12
 #: Change of the predictor across a window (px, centre to corner) up to which the blocks of
 #: the window are moved as a whole instead of deformed pixel by pixel (see ``_Tiles``).
 DEFORM_MIN_CHANGE_PX = 0.1
@@ -531,6 +527,7 @@ class _Frames:
     workers: int
     power: float  # geometric mean of the frames' mean squares, counts^2
     pool: ThreadPoolExecutor | None = None
+    spline: list | None = None  # cubic B-spline coefficients of a and b, once computed
 
     def run(self, fn, items) -> list:
         """``[fn(item) for item in items]`` on the worker threads (the heavy numpy and
@@ -545,6 +542,15 @@ class _Frames:
         if self.pool is not None:
             self.pool.shutdown()
             self.pool = None
+
+    def coefficients(self) -> list[np.ndarray]:
+        """Cubic B-spline coefficients of both frames (mirror boundary), computed once."""
+        if self.spline is None:
+            self.spline = self.run(
+                lambda f: ndimage.spline_filter(f, order=3, output=np.float32, mode="mirror"),
+                (self.a, self.b),
+            )
+        return self.spline
 
     def deformed(self, predictor: _Predictor, grid: _Grid, min_change_px: float):
         """Both frames deformed symmetrically by half the predictor over the windows of
@@ -564,44 +570,34 @@ class _Frames:
         tiles = None if exact.all() else _tiles_for(grid, predictor, exact)
         out = [np.zeros(shape, np.float32), np.zeros(shape, np.float32)]
         halves = [predictor.dense_half(box.row_px, box.col_px) for box, _ in regions]
-        frames = ((self.a, -1.0), (self.b, 1.0))
-        coeff: list = [None, None]
+        shifts = halves + ([] if tiles is None else [(tiles.half_x, tiles.half_y)])
+        pad = math.ceil(max(_largest_shift(hx, hy) for hx, hy in shifts)) + 2
+        coeff = self.run(lambda c: np.pad(c, pad, mode="reflect"), self.coefficients())
+        signs = (-1.0, 1.0)
         jobs = [("region", k, i) for k in range(len(regions)) for i in (0, 1)]
         if tiles is not None:
-            coeff = self.run(_padded_coefficients(tiles.pad_px), (self.a, self.b))
             jobs += [("tiles", rows, i) for rows in tiles.row_chunks() for i in (0, 1)]
 
         def warp(job):
             kind, k, i = job
             if kind == "region":
-                _warp_region(frames[i][0], out[i], *regions[k], *halves[k], frames[i][1],
-                             coeff[i], 0 if tiles is None else tiles.pad_px)
+                _warp_region(coeff[i], pad, out[i], *regions[k], *halves[k], signs[i])
             else:
-                _shift_tiles(coeff[i], out[i], tiles, frames[i][1], k)
+                _shift_tiles(coeff[i], pad, out[i], tiles, signs[i], k)
 
         self.run(warp, jobs)
         # after deformation a pixel shows the same fluid in both frames: a pixel excluded in
         # one frame leaves its partner unpaired in the other, so both exclude the union
         excluded = np.zeros(shape, bool)
+        masks = (self.mask_a, self.mask_b)
         for (box, _), (half_x, half_y) in zip(regions, halves, strict=True):
-            for (_, sign), mask in zip(frames, (self.mask_a, self.mask_b), strict=True):
+            for sign, mask in zip(signs, masks, strict=True):
                 _mark_warped_mask(excluded, mask, box, half_x, half_y, sign)
                 _mark_outside_frame(excluded, box, half_x, half_y, sign)
         if tiles is not None:
-            for (_, sign), mask in zip(frames, (self.mask_a, self.mask_b), strict=True):
+            for sign, mask in zip(signs, masks, strict=True):
                 tiles.mark_excluded(excluded, mask, sign)
         return out[0], out[1], excluded if excluded.any() else None
-
-
-def _padded_coefficients(pad_px: int):
-    """A function giving a frame's cubic B-spline coefficients (mirror boundary), padded by
-    ``pad_px`` with their mirror image (the same extension ``map_coordinates`` applies)."""
-
-    def coefficients(frame):
-        coeff = ndimage.spline_filter(frame, order=3, output=np.float32, mode="mirror")
-        return np.pad(coeff, pad_px, mode="reflect")
-
-    return coefficients
 
 
 @dataclass(frozen=True)
@@ -620,7 +616,6 @@ class _Tiles:
     use: np.ndarray  # (nr, nc) bool: blocks moved as a whole
     half_x: np.ndarray  # (nr, nc) half the predictor at the block centres, px
     half_y: np.ndarray
-    pad_px: int  # padding of the coefficients: largest whole shift + 2
 
     def row_chunks(self, rows_per_chunk: int = 16) -> list[slice]:
         count = self.use.shape[0]
@@ -650,13 +645,13 @@ class _Tiles:
             return
         ry = np.rint(sign * self.half_y).astype(np.intp)
         rx = np.rint(sign * self.half_x).astype(np.intp)
-        near = _Box.around(mask).grown(self.pad_px + s, mask.shape)
+        pad = int(max(np.abs(ry).max(), np.abs(rx).max()))
+        near = _Box.around(mask).grown(pad + s, mask.shape)
         rows = (s * np.arange(nr) < near.r1) & (s * np.arange(nr) + s > near.r0)
         cols = (s * np.arange(nc) < near.c1) & (s * np.arange(nc) + s > near.c0)
         r, c = np.nonzero(self.use & rows[:, None] & cols[None, :])
         if r.size == 0:
             return
-        pad = self.pad_px
         padded = np.pad(mask, pad, mode="edge")
         moved = sliding_window_view(padded, (s, s))[s * r + ry[r, c] + pad, s * c + rx[r, c] + pad]
         view[r, :, c, :] |= moved
@@ -674,8 +669,7 @@ def _tiles_for(grid: _Grid, predictor: _Predictor, exact: np.ndarray) -> _Tiles:
     centre_y = s * np.arange(nr) + (s - 1) / 2.0
     centre_x = s * np.arange(nc) + (s - 1) / 2.0
     half_x, half_y = predictor.dense_half(centre_y, centre_x)
-    pad = math.ceil(_largest_shift(half_x, half_y)) + 2
-    return _Tiles(s, ~covered, half_x, half_y, pad)
+    return _Tiles(s, ~covered, half_x, half_y)
 
 
 def _bspline_weights(t: np.ndarray) -> list[np.ndarray]:
@@ -687,15 +681,15 @@ def _bspline_weights(t: np.ndarray) -> list[np.ndarray]:
     return [w.astype(np.float32)[:, None, None] for w in weights]
 
 
-def _shift_tiles(padded, out, tiles: _Tiles, sign: float, rows: slice) -> None:
-    """Blocks of block-rows ``rows`` that ``tiles.use``: the cubic spline with (padded)
-    coefficients ``padded`` sampled at ``x + sign * h`` with ``h`` the block's shift, by a
+def _shift_tiles(padded, pad: int, out, tiles: _Tiles, sign: float, rows: slice) -> None:
+    """Blocks of block-rows ``rows`` that ``tiles.use``: the cubic spline with coefficients
+    ``padded`` (by ``pad`` px) sampled at ``x + sign * h`` with ``h`` the block's shift, by a
     separable 4-tap filter along x, then y, written into ``out``."""
     r, c = np.nonzero(tiles.use[rows])
     if r.size == 0:
         return
     r += rows.start
-    s, pad = tiles.step, tiles.pad_px
+    s = tiles.step
     shift_y, shift_x = sign * tiles.half_y[r, c], sign * tiles.half_x[r, c]
     whole_y, whole_x = np.floor(shift_y), np.floor(shift_x)
     first_r = s * r + whole_y.astype(np.intp) - 1 + pad
@@ -740,23 +734,11 @@ def _covered(rows, cols, size: int, shape) -> np.ndarray:
     return np.cumsum(np.cumsum(corners, axis=0), axis=1)[:-1, :-1] > 0
 
 
-def _warp_region(frame, out, box: _Box, pick, half_x, half_y, sign, padded=None, pad=0) -> None:
-    """The picked pixels of ``box`` in ``out``: ``frame`` sampled at ``x + sign * h(x)`` by
-    cubic B-spline interpolation (``ndimage.map_coordinates``). The spline coefficients come
-    from the box grown by the largest shift and ``SPLINE_MARGIN_PX`` (the coefficients of a
-    cut-out differ from the whole frame's only within a few pixels of the cut), or are the
-    whole frame's ``padded`` by ``pad`` px when given."""
-    if padded is None:
-        reach = _largest_shift(half_x, half_y)
-        source = box.grown(math.ceil(reach) + 2 + SPLINE_MARGIN_PX, frame.shape)
-        coeff = ndimage.spline_filter(
-            frame[source.slices], order=3, output=np.float32, mode="mirror"
-        )
-        r0, c0 = source.r0, source.c0
-    else:
-        coeff, r0, c0 = padded, -pad, -pad
-    y = np.arange(box.r0 - r0, box.r1 - r0, dtype=np.float64)
-    x = np.arange(box.c0 - c0, box.c1 - c0, dtype=np.float64)
+def _warp_region(padded, pad: int, out, box: _Box, pick, half_x, half_y, sign) -> None:
+    """The picked pixels of ``box`` in ``out``: the cubic spline with coefficients ``padded``
+    (by ``pad`` px) sampled at ``x + sign * h(x)`` (``ndimage.map_coordinates``)."""
+    y = np.arange(box.r0 + pad, box.r1 + pad, dtype=np.float64)
+    x = np.arange(box.c0 + pad, box.c1 + pad, dtype=np.float64)
     target = out[box.slices]
     if pick.all():
         coords = np.empty((2,) + pick.shape)
@@ -767,7 +749,7 @@ def _warp_region(frame, out, box: _Box, pick, half_x, half_y, sign, padded=None,
         r, c = np.nonzero(pick)
         coords = np.stack([y[r] + sign * half_y[r, c], x[c] + sign * half_x[r, c]])
         values = np.empty(r.size, np.float32)
-    ndimage.map_coordinates(coeff, coords, output=values, order=3, mode="mirror", prefilter=False)
+    ndimage.map_coordinates(padded, coords, output=values, order=3, prefilter=False)
     if not pick.all():
         target[r, c] = values
 
