@@ -276,14 +276,15 @@ class _PassResult:
     masked: np.ndarray  # (M, N) bool
 
 
-def _window_spectra(image, mask, counts, grid: _Grid, workers: int, owned: bool):
-    """Real FFT of every window with its mean removed and masked pixels at the window mean.
+def _window_spectra(source, mask, counts, grid: _Grid, rows: slice):
+    """Real FFT of the windows of grid rows ``rows`` with their mean removed and masked pixels
+    at the window mean.
 
     The FFT reads the windows straight from the strided view (no window copies). Removing
-    the mean is zeroing the zero-frequency term. With a mask, masked pixels are zeroed first;
-    a window ``w = (a - m) keep`` then has spectrum ``F(a keep) - m F(keep)``, and only the
-    partly masked windows need the second term. ``counts`` are the masked pixels per window;
-    ``owned``: the image is a scratch array that may be overwritten.
+    the mean is zeroing the zero-frequency term. With a mask, ``source`` has its masked
+    pixels at 0; a window ``w = (a - m) keep`` then has spectrum ``F(a keep) - m F(keep)``,
+    and only the partly masked windows need the second term. ``counts`` are the masked
+    pixels per window of those rows.
 
     Returns
     -------
@@ -292,13 +293,9 @@ def _window_spectra(image, mask, counts, grid: _Grid, workers: int, owned: bool)
         Masked fraction of each window.
     """
     d = grid.window
-    count = grid.rows * grid.cols
-    source = image
-    if mask is not None:
-        source = image if owned else image.copy()
-        source[mask] = 0
-    spec = scipy.fft.rfft2(_window_view(source, grid), workers=workers)
-    spec = spec.reshape(count, d, d // 2 + 1)
+    view = _window_view(source, grid)[rows]
+    count = view.shape[0] * view.shape[1]
+    spec = scipy.fft.rfft2(view).reshape(count, d, d // 2 + 1)
     if mask is None:
         spec[:, 0, 0] = 0
         return spec, np.zeros(count)
@@ -306,35 +303,60 @@ def _window_spectra(image, mask, counts, grid: _Grid, workers: int, owned: bool)
     partial = (kept > 0) & (kept < d * d)
     spec[~partial, 0, 0] = 0
     if np.any(partial):
-        rows, cols = np.divmod(np.flatnonzero(partial), grid.cols)
-        windows = _window_view(source, grid)[rows, cols]
-        mean = windows.sum(axis=(1, 2), dtype=np.float64) / kept[partial]
-        keep_windows = _window_view(~mask, grid)[rows, cols].astype(np.float32)
-        keep_spec = scipy.fft.rfft2(keep_windows, workers=workers)
+        index = np.divmod(np.flatnonzero(partial), grid.cols)
+        mean = view[index].sum(axis=(1, 2), dtype=np.float64) / kept[partial]
+        keep_windows = ~_window_view(mask, grid)[rows][index]
+        keep_spec = scipy.fft.rfft2(keep_windows.astype(np.float32))
         spec[partial] -= mean[:, None, None].astype(np.float32) * keep_spec
     return spec, 1.0 - kept / float(d * d)
 
 
+#: Windows per band of grid rows correlated together on one thread (bounds the memory too).
+BAND_WINDOWS = 2048
+
+
 def _correlate(pair, masks, counts, grid: _Grid, settings, frames, owned) -> _PassResult:
-    """Circular cross-correlation ``c[s] = sum_x a[x] b[x + s]`` of every window pair, batched,
-    and its peaks. ``pair``, ``masks``, ``counts``: frames, masks and masked pixels per window
-    of A and B."""
-    workers = frames.workers
-    spec, frac_a = _window_spectra(pair[0], masks[0], counts[0], grid, workers, owned)
-    spec_b, frac_b = _window_spectra(pair[1], masks[1], counts[1], grid, workers, owned)
-    np.conjugate(spec, out=spec)
-    spec *= spec_b
-    del spec_b
-    planes = scipy.fft.irfft2(spec, s=(grid.window, grid.window), workers=workers, overwrite_x=True)
-    del spec
+    """Circular cross-correlation ``c[s] = sum_x a[x] b[x + s]`` of every window pair and its
+    peaks, in bands of grid rows on the worker threads (each band one batched FFT per frame).
+    ``pair``, ``masks``, ``counts``: frames, masks and masked pixels per window of A and B;
+    ``owned``: the frames are scratch arrays that may be overwritten."""
+    sources = []
+    for image, mask in zip(pair, masks, strict=True):
+        if mask is not None:
+            image = image if owned else image.copy()
+            image[mask] = 0
+        sources.append(image)
     # a flat window (no texture) gives a plane of round-off only
     floor = 1e-4 * grid.window**2 * frames.power
-    dx, dy, ratio = _peaks(planes, floor)
-    masked = np.maximum(frac_a, frac_b) > settings.max_masked_fraction
+    per_band = max(1, BAND_WINDOWS // grid.cols)
+    bands = [slice(r, min(r + per_band, grid.rows)) for r in range(0, grid.rows, per_band)]
+
+    def band_peaks(rows: slice):
+        windows = slice(rows.start * grid.cols, rows.stop * grid.cols)
+        spec, frac_a = _window_spectra(
+            sources[0], masks[0], _band(counts[0], windows), grid, rows
+        )
+        spec_b, frac_b = _window_spectra(
+            sources[1], masks[1], _band(counts[1], windows), grid, rows
+        )
+        np.conjugate(spec, out=spec)
+        spec *= spec_b
+        del spec_b
+        planes = scipy.fft.irfft2(spec, s=(grid.window, grid.window), overwrite_x=True)
+        del spec
+        return (*_peaks(planes, floor), np.maximum(frac_a, frac_b))
+
+    results = frames.run(band_peaks, bands)
+    dx, dy, ratio, fraction = (np.concatenate(parts) for parts in zip(*results, strict=True))
+    masked = fraction > settings.max_masked_fraction
     shape = (grid.rows, grid.cols)
     return _PassResult(
         dx.reshape(shape), dy.reshape(shape), ratio.reshape(shape), masked.reshape(shape)
     )
+
+
+def _band(counts, windows: slice):
+    return None if counts is None else counts[windows]
 
 
 def _peaks(planes: np.ndarray, floor: float):
