@@ -657,12 +657,23 @@ class _Tiles:
         height, width = out.shape
         view = self.blocks_of(out)
         inside = np.arange(s)
-        ys = (s * np.arange(nr)[:, None] + inside)[:, :, None, None] \
-            + sign * self.half_y[:, None, :, None]
-        xs = (s * np.arange(nc)[:, None] + inside)[None, None, :, :] \
-            + sign * self.half_x[:, None, :, None]
-        beyond = (ys < -0.5) | (ys > height - 0.5) | (xs < -0.5) | (xs > width - 0.5)
-        view |= beyond & self.use[:, None, :, None]
+        # only blocks within the largest shift of the image's edge can reach beyond it
+        reach = _largest_shift(self.half_x, self.half_y) + 1.0
+        top = s * np.arange(nr)
+        left = s * np.arange(nc)
+        for r, c in (
+            (np.flatnonzero((top < reach) | (top + s > height - reach)), np.arange(nc)),
+            (np.arange(nr), np.flatnonzero((left < reach) | (left + s > width - reach))),
+        ):
+            if r.size == 0 or c.size == 0:
+                continue
+            cells = np.ix_(r, c)
+            ys = (top[r, None] + inside)[:, :, None, None] + sign * self.half_y[cells][:, None, :, None]
+            xs = (left[c, None] + inside)[None, None, :, :] + sign * self.half_x[cells][:, None, :, None]
+            beyond = (ys < -0.5) | (ys > height - 0.5) | (xs < -0.5) | (xs > width - 0.5)
+            block_rows = view[r]
+            block_rows[:, :, c, :] |= beyond & self.use[cells][:, None, :, None]
+            view[r] = block_rows
         if mask is None:
             return
         ry = np.rint(sign * self.half_y).astype(np.intp)
@@ -1067,10 +1078,8 @@ def _checked_frames(frame_a, frame_b, mask_a, mask_b, settings: PivSettings) -> 
         raise WakelineError("frame pair: frames contain NaN or infinite values")
     masks = [_checked_mask(m, a.shape, name) for m, name in ((mask_a, "A"), (mask_b, "B"))]
     workers = settings.workers or os.cpu_count() or 1
-    power = math.sqrt(
-        float(np.mean(a, dtype=np.float64) ** 2 + np.var(a, dtype=np.float64))
-        * float(np.mean(b, dtype=np.float64) ** 2 + np.var(b, dtype=np.float64))
-    )
+    # mean square (= mean^2 + variance); a float32 dot is plenty for a noise floor
+    power = math.sqrt(float(np.vdot(a, a)) / a.size * float(np.vdot(b, b)) / b.size)
     return _Frames(a, b, masks[0], masks[1], workers, power)
 
 
