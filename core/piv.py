@@ -2,9 +2,11 @@
 
 Method (each step a published one, named where it is used):
 
-1. The first pass correlates straight windows of the two frames. All windows of a pass go
-   through one batched real FFT (``scipy.fft.rfft2``/``irfft2`` with ``workers``) read straight
-   from strided views of the frames; the window mean is removed in the spectrum; the
+1. The first pass correlates straight windows of the two frames. The windows of a pass go
+   through batched real FFTs (``scipy.fft.rfft2``/``irfft2``) read straight from strided views
+   of the frames, one batch per band of grid rows (``BAND_WINDOWS`` windows), the bands on the
+   worker threads: no loop over windows, and a band's spectra stay in cache, which makes it
+   faster than one batch of the whole frame. The window mean is removed in the spectrum; the
    displacement is the correlation peak (Willert & Gharib 1991).
 2. Between passes the vectors are checked with the normalised median test (Westerweel &
    Scarano 2005; vectors at an edge or beside a mask against straight-line extrapolations from
