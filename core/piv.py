@@ -670,12 +670,12 @@ class _Tiles:
             if r.size == 0 or c.size == 0:
                 continue
             cells = np.ix_(r, c)
-            ys = (top[r, None] + inside)[:, :, None, None] + sign * self.half_y[cells][:, None, :, None]
-            xs = (left[c, None] + inside)[None, None, :, :] + sign * self.half_x[cells][:, None, :, None]
+            shift_y = sign * self.half_y[cells][:, None, :, None]
+            shift_x = sign * self.half_x[cells][:, None, :, None]
+            ys = (top[r, None] + inside)[:, :, None, None] + shift_y
+            xs = (left[c, None] + inside)[None, None, :, :] + shift_x
             beyond = (ys < -0.5) | (ys > height - 0.5) | (xs < -0.5) | (xs > width - 0.5)
-            block_rows = view[r]
-            block_rows[:, :, c, :] |= beyond & self.use[cells][:, None, :, None]
-            view[r] = block_rows
+            view[np.ix_(r, inside, c, inside)] |= beyond & self.use[cells][:, None, :, None]
         if mask is None:
             return
         ry = np.rint(sign * self.half_y).astype(np.intp)
