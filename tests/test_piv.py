@@ -336,6 +336,14 @@ def test_block_shift_is_the_cubic_spline_shift_of_scipy():
     assert excluded is not None
     assert excluded[:, 0].all() and excluded[:, -1].all()
     assert excluded[0].all() and excluded[-1].all() and not excluded[1:-1, 1:-1].any()
+    # a mask of A moves with A to the nearest pixel: A'(y, x) = A(y + 0.65, x - 1.3)
+    yy, xx = np.mgrid[0:96, 0:128]
+    disc = np.hypot(xx - 60.0, yy - 45.0) <= 12.0
+    masked_frames = _Frames(a, b, disc, None, workers=1, power=1.0)
+    _, _, excluded = masked_frames.deformed(_uniform_predictor(grid, 2.6, -1.3), grid, 0.1)
+    expected = np.zeros_like(disc)
+    expected[:-1, 1:] = disc[1:, :-1]
+    np.testing.assert_array_equal(excluded[1:-1, 1:-1], expected[1:-1, 1:-1])
 
 
 def test_pixel_by_pixel_deformation_of_a_cut_out_matches_the_whole_frame():
