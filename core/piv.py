@@ -593,7 +593,8 @@ class _Frames:
         regions = _deformation_regions(grid, exact, shape) if exact.any() else []
         tiles = None if exact.all() else _tiles_for(grid, predictor, exact)
         out = [np.zeros(shape, np.float32), np.zeros(shape, np.float32)]
-        halves = [predictor.dense_half(box.row_px, box.col_px) for box, _ in regions]
+        halves = self.run(lambda region: predictor.dense_half(region[0].row_px, region[0].col_px),
+                          regions)
         shifts = halves + ([] if tiles is None else [(tiles.half_x, tiles.half_y)])
         pad = math.ceil(max(_largest_shift(hx, hy) for hx, hy in shifts)) + 2
         coeff = self.run(lambda c: np.pad(c, pad, mode="reflect"), self.coefficients())
