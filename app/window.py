@@ -141,7 +141,7 @@ class MainWindow(QMainWindow):
         self.progress.setTextVisible(True)
         self.progress_label = QLabel(self)
         self.cancel_button = QPushButton("Cancel", self)
-        self.cancel_button.setToolTip("stop processing after the shots already running")
+        self.cancel_button.setToolTip("stop the running job; what it has done stays")
         self.cancel_button.clicked.connect(self.cancel_processing)
         for widget in (self.progress_label, self.progress, self.cancel_button):
             bar.addPermanentWidget(widget)
@@ -205,7 +205,7 @@ class MainWindow(QMainWindow):
         self.act_process = a("&Process shots not yet processed", lambda: self.start_processing(),
                              "Ctrl+P")
         self.act_reprocess = a("&Reprocess this shot", self.reprocess_current, "Ctrl+Shift+P")
-        self.act_cancel = a("&Cancel processing", self.cancel_processing, "Ctrl+.")
+        self.act_cancel = a("&Cancel the running job", self.cancel_processing, "Ctrl+.")
         self.act_check = a("Check &frame files", lambda: self.check_frames(),
                            tip="look for frame files that are missing or changed since import")
         self.act_auto = a("Process new shots when a session &opens", self._on_auto_toggled,
@@ -371,9 +371,9 @@ class MainWindow(QMainWindow):
         session = self.model.session
         if session is None or self.job is not None:
             return None
-        job = BackgroundJob(lambda _report, _stop: session.check_frames(), self)
+        job = BackgroundJob(lambda _report, stop: session.check_frames(stop), self)
         job.finished.connect(self._on_frames_checked)
-        self._start_job(job, "Checking frame files", 0, cancellable=False)
+        self._start_job(job, "Checking frame files", 0)
         return job
 
     def _on_frames_checked(self, outcome: JobOutcome) -> None:
@@ -383,7 +383,9 @@ class MainWindow(QMainWindow):
             return
         problems = outcome.value or {}
         if not problems:
-            self.statusBar().showMessage("Every frame file is present and unchanged.", 6000)
+            text = ("Frame check stopped; no problem in the shots checked." if outcome.cancelled
+                    else "Every frame file is present and unchanged.")
+            self.statusBar().showMessage(text, 6000)
             return
         lines = [problems[k] for k in sorted(problems)][:10]
         more = len(problems) - len(lines)
@@ -437,7 +439,7 @@ class MainWindow(QMainWindow):
         job = import_job(folder, session_path, self)
         job.item_done.connect(self._on_import_item)
         job.finished.connect(lambda outcome: self._on_import_finished(outcome, session_path))
-        self._start_job(job, "Importing", 0, cancellable=False)
+        self._start_job(job, "Importing", 0)
         return job
 
     def _on_import_item(self, item) -> None:
@@ -450,10 +452,13 @@ class MainWindow(QMainWindow):
             self.show_problem("Import", outcome.error)
             return
         report = outcome.value
+        if report is None:  # stopped while the window closed
+            return
         if report.problems:
             self.show_problem("Import: some rows were not imported",
                               "\n".join(report.problems[:15] + report.notes))
-        self.statusBar().showMessage(f"Imported {len(report.imported)} shots.", 6000)
+        word = "Import stopped" if outcome.cancelled else "Imported"
+        self.statusBar().showMessage(f"{word}: {len(report.imported)} shots imported.", 6000)
         self.open_session(session_path)
 
     def _last_folder(self) -> str:
@@ -492,18 +497,16 @@ class MainWindow(QMainWindow):
     def cancel_processing(self) -> None:
         if self.job is not None:
             self.job.cancel()
-            self.progress_label.setText("Stopping after the shots already running…")
+            self.progress_label.setText("Stopping…")
 
-    def _start_job(self, job: BackgroundJob, verb: str, total: int,
-                   cancellable: bool = True) -> None:
+    def _start_job(self, job: BackgroundJob, verb: str, total: int) -> None:
         self.job = job
         self.progress.setRange(0, total)
         self.progress.setValue(0)
         self.progress.setFormat("%v / %m" if total else "")
         self.progress_label.setText(f"{verb}…")
-        for widget in (self.progress_label, self.progress):
+        for widget in (self.progress_label, self.progress, self.cancel_button):
             widget.show()
-        self.cancel_button.setVisible(cancellable)
         self._update_enabled()
         job.start()
 

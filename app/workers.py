@@ -165,8 +165,9 @@ def import_job(src_dir, session_path, parent: QObject | None = None) -> Backgrou
     ``(shot_id, ok, message)``; the value is core.session's ``ImportReport``."""
     from core.session import import_folder
 
-    def run(report, _should_stop):
+    def run(report, should_stop):
         return import_folder(src_dir, session_path,
-                             on_shot=lambda sid, ok, msg: report((sid, ok, msg)))
+                             on_shot=lambda sid, ok, msg: report((sid, ok, msg)),
+                             should_stop=should_stop)
 
     return BackgroundJob(run, parent)

@@ -721,10 +721,16 @@ class Session:
         with self._mutex:
             return read_frames(shot_id, self.frame_source(shot_id))
 
-    def check_frames(self) -> dict[str, str]:
-        """``shot_id -> problem`` for every shot whose frame files are missing or changed."""
+    def check_frames(self, should_stop=None) -> dict[str, str]:
+        """``shot_id -> problem`` for every shot whose frame files are missing or changed.
+
+        ``should_stop``: called before each shot; when it returns True the shots checked so
+        far are reported.
+        """
         problems = {}
-        for shot_id in self._records:
+        for shot_id in list(self._records):
+            if should_stop is not None and should_stop():
+                break
             source = self.frame_source(shot_id)
             if source["storage"] != "files":
                 continue
@@ -1238,7 +1244,8 @@ class ImportReport:
     notes: list[str] = field(default_factory=list)
 
 
-def import_folder(src_dir, session_path, embed: bool = False, on_shot=None) -> ImportReport:
+def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
+                  should_stop=None) -> ImportReport:
     """Import a folder of frame pairs described by its ``shots.csv`` into a session.
 
     The session is created when it does not exist. Good rows are imported even when other rows
@@ -1253,6 +1260,9 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None) -> I
         Store frames compressed inside the session instead of referencing them.
     on_shot : callable(shot_id, ok, message), optional
         Called after each row.
+    should_stop : callable() -> bool, optional
+        Called before each row; True stops the import there (rows already imported stay, a
+        note says how far it got).
 
     Raises
     ------
@@ -1267,7 +1277,11 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None) -> I
     with session:
         listing = _frame_listing(src_dir)
         used: set[str] = set()
-        for line, metadata, problem in rows:
+        for number, (line, metadata, problem) in enumerate(rows):
+            if should_stop is not None and should_stop():
+                report.notes.append(f"import stopped after {number} of {len(rows)} rows of "
+                                    f"{MANIFEST_NAME}; import the folder again for the rest")
+                return report
             shot_id = metadata.get("shot", "")
             where = f"{MANIFEST_NAME} line {line}" + (f" (shot {shot_id})" if shot_id else "")
             if not problem:

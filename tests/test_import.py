@@ -161,3 +161,21 @@ def test_quoted_notes_with_commas_and_line_breaks(tmp_path):
     assert import_folder(src, tmp_path / "t.h5").problems[0].startswith("shots.csv line 2 ")
     with Session.open(tmp_path / "s.h5", writable=False) as s:
         assert s.record("S0").metadata["notes"] == "seam up, new ball\nsecond line"
+
+
+def test_an_import_stopped_part_way_keeps_what_it_imported(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 3)
+    asked = []
+
+    def stop_after_one():
+        asked.append(True)
+        return len(asked) > 1
+
+    report = import_folder(src, tmp_path / "s.h5", should_stop=stop_after_one)
+    assert report.imported == ["S0"]
+    assert any("stopped after 1 of 3 rows" in note for note in report.notes)
+    with Session.open(tmp_path / "s.h5") as s:
+        assert s.shot_ids() == ["S0"]
+        assert s.check_frames(should_stop=lambda: True) == {}  # stopped before any shot
+    again = import_folder(src, tmp_path / "s.h5")  # the rest comes in on a second run
+    assert again.imported == ["S1", "S2"] and len(again.problems) == 1  # S0 already there

@@ -414,6 +414,21 @@ def test_import_folder_from_the_window_opens_the_new_session(main_window, qtbot,
     assert "Not processed yet" in window.canvas.message.text()
 
 
+def test_an_import_can_be_cancelled_and_opens_what_came_in(main_window, qtbot, tmp_path):
+    from data.session_helpers import write_shot_folder
+
+    folder = write_shot_folder(tmp_path / "launches", 20)
+    window = main_window(workers=0)
+    window.act_auto.setChecked(False)
+    job = window.import_folder(folder, tmp_path / "launches.h5")
+    assert not window.cancel_button.isHidden() and window.act_cancel.isEnabled()
+    with qtbot.waitSignal(job.finished, timeout=60_000) as finished:
+        window.cancel_processing()
+    assert finished.args[0].cancelled
+    assert "Import stopped" in window.statusBar().currentMessage()
+    assert window.model.session is not None and len(window.model.shot_ids()) < 20
+
+
 def test_closing_during_processing_stops_the_worker(main_window, make_session, qtbot):
     path = make_session(3, processed=False)
     window = main_window(workers=0)
