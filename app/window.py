@@ -275,6 +275,9 @@ class MainWindow(QMainWindow):
         splitter = self.settings.value("window/splitter")
         if splitter is not None:
             self.splitter.restoreState(splitter)
+        docks = self.settings.value("window/docks")  # the overview's place and visibility
+        if docks is not None:
+            self.restoreState(docks)
         layers = self.settings.value("canvas/layers", "")
         if layers:
             try:
@@ -807,6 +810,7 @@ class MainWindow(QMainWindow):
     def closeEvent(self, event) -> None:
         self.settings.setValue("window/geometry", self.saveGeometry())
         self.settings.setValue("window/splitter", self.splitter.saveState())
+        self.settings.setValue("window/docks", self.saveState())
         self._save_layers()
         self.settings.sync()
         self.close_session()

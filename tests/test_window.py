@@ -325,8 +325,11 @@ def test_settings_layers_and_recent_sessions_are_kept(main_window, make_session,
     first.canvas.vectors_box.setChecked(False)
     first.canvas.stride_box.setValue(3)
     first.resize(760, 560)  # within the offscreen screen, which restoreGeometry clamps to
+    first.overview_dock.close()  # the analyst closes the overview
+    assert first.overview_dock.isHidden()
     first.close()
     second = main_window(workers=0)
+    assert second.overview_dock.isHidden()
     assert not second.canvas.vectors_box.isChecked()
     assert second.canvas.stride_box.value() == 3
     assert second.size().width() == 760
