@@ -42,6 +42,7 @@ from app.commands import MarkMove, PickEdit
 from app.export import install_export_actions, install_overview
 from app.icons import app_icon, status_icon
 from app.model import SessionModel
+from app.processing_dialog import ProcessingDialog
 from app.readout import ReadoutPanel
 from app.shot_list import ShotListPanel
 from app.workers import BackgroundJob, JobOutcome, import_job, process_job
@@ -202,14 +203,16 @@ class MainWindow(QMainWindow):
         self.act_side = a("&Side by side", self.canvas.side_box.toggle, "S")
         self.act_fit = a("&Fit shot in view", lambda: self.canvas.view.autoRange(padding=0.02),
                          "Ctrl+0")
-        self.act_process = a("&Process shots not yet processed", lambda: self.start_processing(),
-                             "Ctrl+P")
+        self.act_process = a("&Process shots that need it", lambda: self.start_processing(),
+                             "Ctrl+P", "shots not processed yet, or processed with other settings")
         self.act_reprocess = a("&Reprocess this shot", self.reprocess_current, "Ctrl+Shift+P")
         self.act_cancel = a("&Cancel the running job", self.cancel_processing, "Ctrl+.")
         self.act_check = a("Check &frame files", lambda: self.check_frames(),
                            tip="look for frame files that are missing or changed since import")
         self.act_auto = a("Process new shots when a session &opens", self._on_auto_toggled,
                           checkable=True)
+        self.act_settings = a("Processing &settings…", self.edit_processing_settings,
+                              tip="PIV passes, outlier test, ball and flight; processes to use")
         self.act_keys = a("&Keyboard shortcuts", self.show_shortcuts,
                           QKeySequence.StandardKey.HelpContents)
         self.act_about = a("&About wakeline", self.show_about)
@@ -247,6 +250,7 @@ class MainWindow(QMainWindow):
         for action in (self.act_process, self.act_reprocess, self.act_cancel, self.act_check):
             process.addAction(action)
         process.addSeparator()
+        process.addAction(self.act_settings)
         process.addAction(self.act_auto)
         help_menu = menu.addMenu("&Help")
         help_menu.addAction(self.act_keys)
@@ -497,6 +501,34 @@ class MainWindow(QMainWindow):
         if shot_id:
             self.start_processing([shot_id], force=True)
 
+    def edit_processing_settings(self) -> ProcessingDialog:
+        """Open the processing settings; the session's are saved in it on OK."""
+        session = self.model.session
+        locked = ("No session is open" if session is None
+                  else "The session is open read-only" if session.read_only else "")
+        settings = {} if session is None else session.processing_settings()
+        dialog = ProcessingDialog(settings, self._workers(), locked, self)
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        dialog.accepted.connect(lambda: self._apply_processing_settings(dialog))
+        dialog.open()
+        return dialog
+
+    def _apply_processing_settings(self, dialog: ProcessingDialog) -> None:
+        count = dialog.worker_count()
+        self.settings.setValue("processing/workers", "" if count is None else count)
+        session = self.model.session
+        if session is None or session.read_only or dialog.settings() == session.processing_settings():
+            return
+        try:
+            session.set_processing_settings(dialog.settings())
+        except WakelineError as exc:
+            self.show_problem("Processing settings", str(exc))
+            return
+        stale = sum(session.needs_processing(s) for s in session.shot_ids())
+        self.statusBar().showMessage(
+            f"Processing settings saved in the session; {stale} shots need processing "
+            "(Process ▸ Process shots that need it, Ctrl+P).", 10000)
+
     def cancel_processing(self) -> None:
         if self.job is not None:
             self.job.cancel()
@@ -603,7 +635,7 @@ class MainWindow(QMainWindow):
         else:
             messages.append("Not processed yet" + (
                 " — processing is running." if self.job is not None else
-                " — use Process ▸ Process shots not yet processed (Ctrl+P)."))
+                " — use Process ▸ Process shots that need it (Ctrl+P)."))
         frame_a = frame_b = None
         try:
             frame_a, frame_b = self.model.frames(record.shot_id)

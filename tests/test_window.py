@@ -564,3 +564,25 @@ def test_a_damaged_stored_result_is_reported_in_place(main_window, make_session,
     assert window.canvas.shot.frame_a is not None  # the frames still show
     window.model.set_current("s01")
     assert window.canvas.shot.result is not None
+
+
+def test_processing_settings_are_saved_in_the_session_and_mark_shots_stale(main_window,
+                                                                           make_session, qtbot):
+    path = make_session(2)
+    window = _open(main_window, qtbot, path)
+    dialog = window.edit_processing_settings()
+    assert dialog.passes.text() == "32" and dialog.overlap.value() == 50  # the test session's
+    dialog.passes.setText("48, 24/75, abc")
+    dialog.accept()
+    assert "abc" in dialog.problem.text() and dialog.isVisible()  # stays open, nothing saved
+    assert window.model.session.processing_settings()["piv"]["passes"][0]["window_px"] == 32
+    dialog.passes.setText("48, 24/75")
+    dialog.flight.setText("181.5")
+    dialog.workers.setValue(1)
+    dialog.accept()
+    saved = window.model.session.processing_settings()
+    assert [p["window_px"] for p in saved["piv"]["passes"]] == [48, 24]
+    assert saved["piv"]["passes"][1]["overlap"] == 0.75 and saved["flight_deg"] == 181.5
+    assert all(window.model.session.needs_processing(s) for s in ("s01", "s02"))
+    assert "2 shots need processing" in window.statusBar().currentMessage()
+    assert int(window.settings.value("processing/workers")) == 1  # kept for this computer
