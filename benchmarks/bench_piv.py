@@ -44,8 +44,8 @@ def _window_stacks(shape, settings: PivSettings) -> list[tuple[np.ndarray, np.nd
 
 def bare_fft(stacks, workers: int) -> None:
     """The batched FFT correlations alone: two forward transforms, product, one inverse, in
-    batches of ``BAND_WINDOWS`` windows as the engine does (smaller batches stay in cache and
-    run faster than one huge batch, so this is the stricter lower bound)."""
+    batches of ``BAND_WINDOWS`` windows as the engine does (such batches ran faster here than
+    one batch of the whole frame, so this is the stricter lower bound)."""
     for win_a, win_b in stacks:
         for start in range(0, len(win_a), BAND_WINDOWS):
             part = slice(start, start + BAND_WINDOWS)

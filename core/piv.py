@@ -4,9 +4,9 @@ Method (each step a published one, named where it is used):
 
 1. The first pass correlates straight windows of the two frames. The windows of a pass go
    through batched real FFTs (``scipy.fft.rfft2``/``irfft2``) read straight from strided views
-   of the frames, one batch per band of grid rows (``BAND_WINDOWS`` windows), the bands on the
-   worker threads: no loop over windows, and a band's spectra stay in cache, which makes it
-   faster than one batch of the whole frame. The window mean is removed in the spectrum; the
+   of the frames, one batch per band of grid rows (up to ``BAND_WINDOWS`` windows), the bands
+   on the worker threads: no loop over windows, bounded memory, and (measured) faster than one
+   batch of the whole frame. The window mean is removed in the spectrum; the
    displacement is the correlation peak (Willert & Gharib 1991).
 2. Between passes the vectors are checked with the normalised median test (Westerweel &
    Scarano 2005; vectors at an edge or beside a mask against straight-line extrapolations from
@@ -15,7 +15,8 @@ Method (each step a published one, named where it is used):
    ``B'(x) = B(x + d(x)/2)``, with cubic B-spline interpolation, and correlate the deformed
    windows for the correction (Scarano 2002, predictor-corrector). Where the predictor
    changes by no more than ``deform_min_change_px`` across a window (most of a typical frame),
-   each block of one grid step is moved as a whole by the predictor at its centre: a constant
+   each block of one grid step is moved as a whole by half the predictor at its centre (each
+   frame its way): a constant
    shift of the spline is a separable 4-tap filter, several times cheaper than resampling
    pixel by pixel, and a window of whole blocks sees the same mean shift. Only the windows
    with real gradients are resampled pixel by pixel (``ndimage.map_coordinates``).
@@ -313,7 +314,9 @@ def _window_spectra(source, mask, counts, grid: _Grid, rows: slice):
     return spec, 1.0 - kept / float(d * d)
 
 
-#: Windows per band of grid rows correlated together on one thread (bounds the memory too).
+#: Largest number of windows in a band of grid rows correlated together on one thread: it
+#: bounds the memory of a pass, and batches of this size ran faster here than one batch of a
+#: whole 2048 x 2048 frame.
 BAND_WINDOWS = 2048
 
 
@@ -330,7 +333,8 @@ def _correlate(pair, masks, counts, grid: _Grid, settings, frames, owned) -> _Pa
         sources.append(image)
     # a flat window (no texture) gives a plane of round-off only
     floor = 1e-4 * grid.window**2 * frames.power
-    per_band = max(1, BAND_WINDOWS // grid.cols)
+    # bands of at most BAND_WINDOWS windows, and at least one per worker
+    per_band = max(1, min(BAND_WINDOWS // grid.cols, math.ceil(grid.rows / frames.workers)))
     bands = [slice(r, min(r + per_band, grid.rows)) for r in range(0, grid.rows, per_band)]
 
     def band_peaks(rows: slice):
@@ -542,7 +546,8 @@ def _smooth(values: np.ndarray, weight: np.ndarray) -> np.ndarray:
 
 @dataclass
 class _Frames:
-    """The pair, its masks and the worker threads."""
+    """The pair, its masks, the worker threads and (once computed) the frames' cubic B-spline
+    coefficients."""
 
     a: np.ndarray
     b: np.ndarray
@@ -576,25 +581,40 @@ class _Frames:
             )
         return self.spline
 
+    def _region_shifts(self, predictor: _Predictor, regions) -> list:
+        """Half the predictor over each region's box: one interpolation over the box around
+        all regions (per component, on the worker threads), sliced."""
+        if not regions:
+            return []
+        whole = _Box(min(b.r0 for b, _ in regions), max(b.r1 for b, _ in regions),
+                     min(b.c0 for b, _ in regions), max(b.c1 for b, _ in regions))
+        half_x, half_y = self.run(
+            lambda v: _interpolate_grid(predictor.grid, 0.5 * v, whole.row_px, whole.col_px),
+            (predictor.dx, predictor.dy),
+        )
+        cuts = [(slice(b.r0 - whole.r0, b.r1 - whole.r0), slice(b.c0 - whole.c0, b.c1 - whole.c0))
+                for b, _ in regions]
+        return [(half_x[cut], half_y[cut]) for cut in cuts]
+
     def deformed(self, predictor: _Predictor, grid: _Grid, min_change_px: float):
         """Both frames deformed symmetrically by half the predictor over the windows of
         ``grid``, and the mask of pixels excluded in the deformed pair: ``(a, b, mask)``.
 
         Windows over which the predictor changes by more than ``min_change_px`` (centre to
         corner) are resampled pixel by pixel, in regions (:func:`_deformation_regions`); the
-        other blocks are moved as a whole by the predictor at their centre
-        (:class:`_Tiles`), which gives the same windows at a fraction of the cost. Pixels
-        outside every window are left 0.
+        other blocks are moved as a whole by half the predictor at their centre
+        (:class:`_Tiles`), which gives nearly the same windows (the same for a uniform
+        predictor) at a fraction of the cost. Pixels outside every window are left 0.
         """
         shape = self.a.shape
-        exact = predictor.change_across(grid) > min_change_px
-        if grid.window % grid.step:  # windows not made of whole blocks
-            exact[:] = True
+        if min_change_px > 0 and grid.window % grid.step == 0:
+            exact = predictor.change_across(grid) > min_change_px
+        else:  # every pixel asked for, or windows not made of whole blocks
+            exact = np.ones((grid.rows, grid.cols), bool)
         regions = _deformation_regions(grid, exact, shape) if exact.any() else []
         tiles = None if exact.all() else _tiles_for(grid, predictor, exact)
         out = [np.zeros(shape, np.float32), np.zeros(shape, np.float32)]
-        halves = self.run(lambda region: predictor.dense_half(region[0].row_px, region[0].col_px),
-                          regions)
+        halves = self._region_shifts(predictor, regions)
         shifts = halves + ([] if tiles is None else [(tiles.half_x, tiles.half_y)])
         pad = math.ceil(max(_largest_shift(hx, hy) for hx, hy in shifts)) + 2
         coeff = self.run(lambda c: np.pad(c, pad, mode="reflect"), self.coefficients())
@@ -615,10 +635,11 @@ class _Frames:
         # one frame leaves its partner unpaired in the other, so both exclude the union
         excluded = np.zeros(shape, bool)
         masks = (self.mask_a, self.mask_b)
-        for (box, _), (half_x, half_y) in zip(regions, halves, strict=True):
-            for sign, mask in zip(signs, masks, strict=True):
-                _mark_warped_mask(excluded, mask, box, half_x, half_y, sign)
-                _mark_outside_frame(excluded, box, half_x, half_y, sign)
+        mask_boxes = [None if m is None else _Box.around(m) for m in masks]
+        for (box, pick), (half_x, half_y) in zip(regions, halves, strict=True):
+            for sign, mask, mask_box in zip(signs, masks, mask_boxes, strict=True):
+                _mark_warped_mask(excluded, mask, mask_box, box, pick, half_x, half_y, sign)
+                _mark_outside_frame(excluded, box, pick, half_x, half_y, sign)
         if tiles is not None:
             for sign, mask in zip(signs, masks, strict=True):
                 tiles.mark_excluded(excluded, mask, sign)
@@ -741,6 +762,10 @@ def _shift_tiles(padded, pad: int, out, tiles: _Tiles, sign: float, rows: slice)
     tiles.blocks_of(out)[r, :, c, :] = moved
 
 
+#: Rows of a region resampled in one job.
+STRIP_ROWS = 64
+
+
 def _deformation_regions(grid: _Grid, cells: np.ndarray, shape) -> list[tuple[_Box, np.ndarray]]:
     """The pixels of the windows at ``cells`` (``(M, N)`` bool) in separate regions, one per
     8-connected group of cells: ``(box, pick)`` with ``pick`` the box's pixels to resample
@@ -757,7 +782,12 @@ def _deformation_regions(grid: _Grid, cells: np.ndarray, shape) -> list[tuple[_B
         pick = _covered(step * r, step * c, d, (box.r1 - box.r0, box.c1 - box.c0))
         pick &= ~taken[box.slices]
         taken[box.slices] |= pick
-        regions.append((box, pick))
+        # strips of rows: a job each, so a large region uses every worker and little memory
+        for top in range(box.r0, box.r1, STRIP_ROWS):
+            strip = _Box(top, min(top + STRIP_ROWS, box.r1), box.c0, box.c1)
+            part = pick[top - box.r0 : strip.r1 - box.r0]
+            if part.any():
+                regions.append((strip, part))
     return regions
 
 
@@ -824,22 +854,24 @@ class _Box:
         return np.arange(self.c0, self.c1)
 
 
-def _mark_outside_frame(out, box: _Box, half_x, half_y, sign) -> None:
-    """Mark in ``out`` the pixels of ``box`` in a deformed frame sampled from beyond the image
-    (mirrored, not recorded): they take no part in the correlation. Only bands along the
-    image edges as wide as the largest shift can be hit."""
+def _mark_outside_frame(out, box: _Box, pick, half_x, half_y, sign) -> None:
+    """Mark in ``out`` the ``pick``ed pixels of ``box`` in a deformed frame sampled from beyond
+    the image (mirrored, not recorded): they take no part in the correlation. Only bands along
+    the image edges as wide as the largest shift can be hit."""
     height, width = out.shape
     reach = math.ceil(_largest_shift(half_x, half_y) + 0.5)
     for lo, hi in ((0, reach), (height - reach, height)):
         lo, hi = max(lo, box.r0), min(hi, box.r1)
         if lo < hi:
-            y = np.arange(lo, hi)[:, None] + sign * half_y[lo - box.r0 : hi - box.r0]
-            out[lo:hi, box.c0 : box.c1] |= (y < -0.5) | (y > height - 0.5)
+            rows = slice(lo - box.r0, hi - box.r0)
+            y = np.arange(lo, hi)[:, None] + sign * half_y[rows]
+            out[lo:hi, box.c0 : box.c1] |= ((y < -0.5) | (y > height - 0.5)) & pick[rows]
     for lo, hi in ((0, reach), (width - reach, width)):
         lo, hi = max(lo, box.c0), min(hi, box.c1)
         if lo < hi:
-            x = np.arange(lo, hi)[None, :] + sign * half_x[:, lo - box.c0 : hi - box.c0]
-            out[box.r0 : box.r1, lo:hi] |= (x < -0.5) | (x > width - 0.5)
+            cols = slice(lo - box.c0, hi - box.c0)
+            x = np.arange(lo, hi)[None, :] + sign * half_x[:, cols]
+            out[box.r0 : box.r1, lo:hi] |= ((x < -0.5) | (x > width - 0.5)) & pick[:, cols]
 
 
 def _largest_shift(half_x: np.ndarray, half_y: np.ndarray) -> float:
@@ -847,14 +879,14 @@ def _largest_shift(half_x: np.ndarray, half_y: np.ndarray) -> float:
     return max(float(half_x.max()), -float(half_x.min()), float(half_y.max()), -float(half_y.min()))
 
 
-def _mark_warped_mask(out, mask, box: _Box, half_x, half_y, sign) -> None:
-    """Mark in ``out`` the pixels of ``box`` masked after nearest-pixel deformation of
-    ``mask``: ``mask(x + sign * h(x))``, the edge pixel repeated beyond the image. Only the
-    mask's bounding box, grown by the largest shift, can come out masked."""
+def _mark_warped_mask(out, mask, mask_box, box: _Box, pick, half_x, half_y, sign) -> None:
+    """Mark in ``out`` the ``pick``ed pixels of ``box`` masked after nearest-pixel deformation
+    of ``mask``: ``mask(x + sign * h(x))``, the edge pixel repeated beyond the image. Only the
+    mask's bounding box ``mask_box``, grown by the largest shift, can come out masked."""
     if mask is None:
         return
     reach = math.ceil(_largest_shift(half_x, half_y)) + 1
-    area = _Box.around(mask).grown(reach, mask.shape)
+    area = mask_box.grown(reach, mask.shape)
     r0, r1 = max(area.r0, box.r0), min(area.r1, box.r1)
     c0, c1 = max(area.c0, box.c0), min(area.c1, box.c1)
     if r0 >= r1 or c0 >= c1:
@@ -865,7 +897,7 @@ def _mark_warped_mask(out, mask, box: _Box, half_x, half_y, sign) -> None:
     c = np.rint(np.arange(c0, c1)[None, :] + sign * half_x[inner]).astype(np.intp)
     np.clip(r, 0, height - 1, out=r)
     np.clip(c, 0, width - 1, out=c)
-    out[r0:r1, c0:c1] |= mask[r, c]
+    out[r0:r1, c0:c1] |= mask[r, c] & pick[inner]
 
 
 # --- the engine -------------------------------------------------------------------------------
