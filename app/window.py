@@ -763,6 +763,7 @@ class MainWindow(QMainWindow):
         self.act_reprocess.setEnabled(writable and has_shot and not busy)
         self.act_cancel.setEnabled(busy)
         self.act_check.setEnabled(has_session and not busy)
+        self.act_settings.setEnabled(not busy)  # not while a job reads the settings
         self.act_import.setEnabled(not busy)
         self.export_menu.setEnabled(has_session and bool(self.export_menu.actions()))
 

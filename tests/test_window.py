@@ -425,6 +425,7 @@ def test_an_import_can_be_cancelled_and_opens_what_came_in(main_window, qtbot, t
     window.act_auto.setChecked(False)
     job = window.import_folder(folder, tmp_path / "launches.h5")
     assert not window.cancel_button.isHidden() and window.act_cancel.isEnabled()
+    assert not window.act_settings.isEnabled()  # settings stay as they are while a job runs
     with qtbot.waitSignal(job.finished, timeout=60_000) as finished:
         window.cancel_processing()
     assert finished.args[0].cancelled
