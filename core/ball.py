@@ -7,10 +7,12 @@ between the frames, so each frame is fitted on its own:
 1. coarse: on a block-averaged, smoothed copy the ball is the darkest round region; its circle
    comes from the region's boundary with the image border left out (a ball cut by the edge still
    fits);
-2. fine: along rays from that centre, each edge point is where the particle speckle begins
-   (the ball's surface and rim are smooth along the outline, the seeded air is not); a robust
-   circle fit (RANSAC with :class:`skimage.measure.CircleModel`) drops rays spoilt by particles
-   or reflections, and a least-squares fit on the kept points gives the sub-pixel circle.
+2. fine: along rays from that centre, each edge point is the steepest point of the lit rim's
+   outer flank (cubic-spline samples), or, where too little of the rim is lit, where the
+   particle speckle begins (the ball's surface and rim are smooth along the outline, the seeded
+   air is not); a robust circle fit (RANSAC with :class:`skimage.measure.CircleModel`) drops
+   rays spoilt by particles or reflections, and a least-squares fit on the kept points gives the
+   sub-pixel circle.
 
 Conventions: image coordinates (x = column right, y = row down, origin at the top-left pixel
 centre); flight direction 0 deg = toward +x, 90 deg = toward the top of the picture.
@@ -46,6 +48,8 @@ NOMINAL_BALL_DIAMETER_MM = {
 #: Extra ring (px) around the fitted circle excluded from correlation: rim glare, reflections
 #: and the sub-pixel fit error.
 DEFAULT_MASK_MARGIN_PX = 3.0
+#: Share of the outline's rays with a lit rim above which only the rim gives the outline.
+MIN_RIM_SHARE = 0.3
 
 
 def nominal_diameter_mm(ball_type: str) -> float:
@@ -220,15 +224,36 @@ def _edge_points(
     texture = np.abs(np.roll(prof, -1, axis=0) - prof)
     texture = ndimage.uniform_filter1d(texture, 5, axis=0, mode="wrap")
     edges = _texture_crossings(texture, radii, r, half_width)
-    raw = ndimage.map_coordinates(image, [ys, xs], order=1, mode="nearest")
+    raw = _sample_cubic(image, xs, ys)
     rim_edges = _rim_crossings(raw, radii, r, half_width)
-    edges = np.where(np.isfinite(rim_edges), rim_edges, edges)
+    # a lit rim's outer flank is a far sharper outline than the start of the speckle: where the
+    # sheet lights enough of the rim, its rays alone give the circle (the speckle's edge is
+    # spoilt by particle images touching the outline, up to a pixel either way)
+    if np.count_nonzero(np.isfinite(rim_edges)) >= MIN_RIM_SHARE * len(rim_edges):
+        edges = rim_edges
+    else:
+        edges = np.where(np.isfinite(rim_edges), rim_edges, edges)
     inside = (xs >= 0) & (ys >= 0) & (xs <= width - 1) & (ys <= height - 1)
     # rays whose search band (or the 3 neighbours each side used for texture) leaves the image
     keep = ndimage.minimum_filter1d(inside.all(axis=1).astype(np.uint8), 9, mode="wrap") > 0
     ok = np.isfinite(edges) & keep
     th = theta[ok]
     return np.column_stack([cx + edges[ok] * np.cos(th), cy + edges[ok] * np.sin(th)])
+
+
+def _sample_cubic(image: np.ndarray, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
+    """Cubic-spline samples of ``image`` at ``(xs, ys)`` (px), splined on their bounding box only.
+
+    A cubic spline keeps the rim's flank sharper than bilinear interpolation, whose slope is
+    constant between pixel centres and so places the steepest point less precisely.
+    """
+    height, width = image.shape
+    x0 = int(np.clip(np.floor(xs.min()) - 4, 0, width - 1))
+    x1 = int(np.clip(np.ceil(xs.max()) + 5, x0 + 1, width))
+    y0 = int(np.clip(np.floor(ys.min()) - 4, 0, height - 1))
+    y1 = int(np.clip(np.ceil(ys.max()) + 5, y0 + 1, height))
+    crop = image[y0:y1, x0:x1]
+    return ndimage.map_coordinates(crop, [ys - y0, xs - x0], order=3, mode="nearest")
 
 
 def _rim_crossings(prof: np.ndarray, radii: np.ndarray, r: float, half_width: float) -> np.ndarray:

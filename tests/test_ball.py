@@ -120,3 +120,19 @@ def test_particles_beside_the_unlit_side_do_not_pull_the_outline(
     fit = find_ball(frame_a)
     assert abs(fit.center_px[1] - truth.center_a_px[1]) <= 0.12
     assert abs(fit.radius_px - truth.radius_px) <= 0.25
+
+
+@pytest.mark.parametrize(("flight_deg", "seed"), [(182.0, 308), (3.7, 305), (178.1, 310)])
+def test_outline_of_a_large_ball_within_a_third_of_a_pixel_all_round(flight_deg, seed):
+    # a 200 px ball as in the separation sweep, lit from below (the top of the rim is faint).
+    # Budget (derived): a layer leaving the wall at 5 deg crosses an outline drawn 0.3 px too far
+    # out 0.3 / (200 tan 5 deg) rad = 1.0 deg late, so the whole outline must be closer than that
+    frame_a, frame_b, truth = ball_shot(
+        (768, 1024), radius_px=200.0, flight_deg=flight_deg, upper_deg=0.3, lower_deg=-14.2,
+        leave_deg=(6.6, 15.0), seed=seed,
+    )
+    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
+        fit = find_ball(frame)
+        off_centre = math.hypot(fit.center_px[0] - centre[0], fit.center_px[1] - centre[1])
+        # farthest distance between the fitted and the drawn outline
+        assert off_centre + abs(fit.radius_px - truth.radius_px) < 0.3

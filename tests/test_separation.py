@@ -28,6 +28,10 @@ from core.synth_shot import BallWakeFlow, attached_shot, ball_shot, smooth_spher
 
 SWEEP_RADIUS_PX = 200.0
 SWEEP_SHAPE = (768, 1024)
+#: Two sweeps of the same recipe with different random cases: the method must meet the target on
+#: each, not on one lucky draw.
+SWEEP_SEEDS = (7, 11)
+SWEEP_SHOTS = 10
 
 
 def _settings(truth):
@@ -35,6 +39,10 @@ def _settings(truth):
 
 
 def _sweep_cases(count=14, seed=7):
+    """Sweep shots ``(flight, upper, lower, leave, deflection, shot seed)``, random from ``seed``.
+
+    The particle images' seeds are ``300 + i`` whatever ``seed`` is (the flows differ).
+    """
     rng = np.random.default_rng(seed)
     cases = []
     for i in range(count):
@@ -47,14 +55,13 @@ def _sweep_cases(count=14, seed=7):
     return cases
 
 
-@pytest.fixture(scope="module")
-def sweep():
-    """Errors (deg) and reported uncertainties of every side of every sweep shot."""
+def _run_sweep(seed):
+    """Errors (deg), reported uncertainties and (measured, true) wake deflections of one sweep."""
     errors, uncertainties, deflections = [], [], []
-    for flight, upper, lower, leave, deflection, seed in _sweep_cases():
+    for flight, upper, lower, leave, deflection, shot_seed in _sweep_cases(SWEEP_SHOTS, seed):
         frame_a, frame_b, truth = ball_shot(
-            SWEEP_SHAPE, radius_px=SWEEP_RADIUS_PX, flight_deg=flight, upper_deg=upper, lower_deg=lower, leave_deg=leave,
-            wake_deflection_deg=deflection, seed=seed,
+            SWEEP_SHAPE, radius_px=SWEEP_RADIUS_PX, flight_deg=flight, upper_deg=upper,
+            lower_deg=lower, leave_deg=leave, wake_deflection_deg=deflection, seed=shot_seed,
         )
         sep = measure_shot(frame_a, frame_b, _settings(truth)).separation
         for proposal, true in ((sep.upper, upper), (sep.lower, lower)):
@@ -63,6 +70,20 @@ def sweep():
             uncertainties.append(proposal.uncertainty_deg)
         deflections.append((sep.wake_deflection_deg, deflection))
     return np.array(errors), np.array(uncertainties), deflections
+
+
+@pytest.fixture(scope="module")
+def sweeps():
+    """``{seed: (errors, uncertainties, deflections)}`` for every sweep seed."""
+    return {seed: _run_sweep(seed) for seed in SWEEP_SEEDS}
+
+
+@pytest.fixture(scope="module")
+def sweep(sweeps):
+    """All sweeps pooled: errors (deg), reported uncertainties, wake deflections."""
+    parts = list(sweeps.values())
+    return (np.concatenate([p[0] for p in parts]), np.concatenate([p[1] for p in parts]),
+            [d for p in parts for d in p[2]])
 
 
 @pytest.mark.slow
@@ -79,14 +100,15 @@ def test_sweep_errors_stay_within_the_reported_uncertainty(sweep):
 
 
 @pytest.mark.slow
-def test_sweep_meets_the_issue_accuracy_target(sweep):
-    # the issue's target: median |error| <= 1 deg, max <= 2.5 deg. This sweep meets it with
-    # little room on the maximum: a second sweep of the same kind (``_sweep_cases(14, seed=11)``)
-    # gives a median of 0.83 deg but a maximum of 2.9 deg; shallow (5-7 deg) departures come
-    # out up to ~2-3 deg late, and the fitted circle's radius (~0.2 px large) adds to that
-    errors, _, _ = sweep
-    assert np.median(np.abs(errors)) <= 1.0
-    assert np.max(np.abs(errors)) <= 2.5
+@pytest.mark.parametrize("seed", SWEEP_SEEDS)
+def test_sweep_meets_the_issue_accuracy_target(sweeps, seed):
+    # the issue's target, on each sweep: median |error| <= 1 deg, max <= 2.5 deg. Full 14-shot
+    # sweeps of this recipe (seeds 7, 11, 13, 17) give medians 0.52-0.62 deg and maxima
+    # 1.7-2.2 deg; the fits are still ~0.5 deg late on average (the fitted circle is ~0.14 px
+    # large, which alone makes a 5 deg layer 0.4 deg late: 0.14 / (200 tan 5 deg) rad, derived)
+    errors, _, _ = sweeps[seed]
+    assert np.median(np.abs(errors)) <= 1.0, np.round(errors, 2)
+    assert np.max(np.abs(errors)) <= 2.5, np.round(errors, 2)
 
 
 @pytest.mark.slow
