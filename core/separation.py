@@ -54,7 +54,8 @@ BAND_DEG = (-50.0, 80.0)
 #: equally likely (separated layers leave at about 5-15 deg: common practice); outside it the
 #: penalty grows as (distance of ``a = tan angle`` from the range) / ``PRIOR_SLOPE_WALL``. A
 #: prior peaked inside the range (e.g. ``tan 10 deg +- 0.05``) pulls shallow layers steeper, and
-#: a steeper layer is fitted by a later separation point: 5-7 deg layers came out 1-2.5 deg late.
+#: a steeper layer is fitted by a later separation point: 5-7 deg layers came out up to 2.8 deg
+#: late on synthetic sweeps.
 PRIOR_LEAVE_DEG = (5.0, 15.0)
 PRIOR_SLOPE_WALL = 0.02
 #: Prior on the layer's turning length over the radius, ``L / R``: median and standard deviation
@@ -62,9 +63,11 @@ PRIOR_SLOPE_WALL = 0.02
 PRIOR_RELAX = (1.0, 0.7)
 #: Prior on the half-width ``w`` of the layer's tanh profile: median (px) and standard deviation
 #: of ``ln w``. Near separation the layer is thin, a few px (common practice). Left free, the
-#: fitted width grows (the particle images' own size widens the apparent profile), and a wider
-#: layer slows the wall flow ahead of the separation point, which the fit offsets by moving that
-#: point rearward: on synthetic sweeps the free width averaged 1.8 px and the angle +0.3 deg late.
+#: fitted width grows (the particle images' own size widens the apparent profile), and in the fit
+#: a wider layer trades against a later separation point: on synthetic sweeps (1.5 px layers) the
+#: free width averaged 1.7-1.8 px and the angles came out ~0.25 deg later than with the width
+#: held at the truth. A wider true layer still gains: with 3 px layers (6 shots) the mean error
+#: was +0.43 deg with this prior and +0.60 deg without it.
 PRIOR_WIDTH = (1.5, 0.3)
 #: Refinements run from this many starting points of the coarse search (the best wins): the
 #: image-matching cost has several shallow minima along the outline.
