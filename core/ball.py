@@ -50,6 +50,9 @@ NOMINAL_BALL_DIAMETER_MM = {
 DEFAULT_MASK_MARGIN_PX = 3.0
 #: Share of the outline's rays with a lit rim above which only the rim gives the outline.
 MIN_RIM_SHARE = 0.3
+#: Half-width (px) of the search band up to which the lit rim alone may give the outline: in the
+#: wider first bands of a large ball, bright particles far from the outline pass for a rim.
+RIM_ONLY_BAND_PX = 4.0
 
 
 def nominal_diameter_mm(ball_type: str) -> float:
@@ -227,9 +230,10 @@ def _edge_points(
     raw = _sample_cubic(image, xs, ys)
     rim_edges = _rim_crossings(raw, radii, r, half_width)
     # a lit rim's outer flank is a far sharper outline than the start of the speckle: where the
-    # sheet lights enough of the rim, its rays alone give the circle (the speckle's edge is
-    # spoilt by particle images touching the outline, up to a pixel either way)
-    if np.count_nonzero(np.isfinite(rim_edges)) >= MIN_RIM_SHARE * len(rim_edges):
+    # sheet lights enough of the rim, its rays alone give the circle once the band is narrow
+    # (the speckle's edge is spoilt by particle images touching the outline, up to a pixel)
+    lit = np.count_nonzero(np.isfinite(rim_edges)) >= MIN_RIM_SHARE * len(rim_edges)
+    if lit and half_width <= RIM_ONLY_BAND_PX:
         edges = rim_edges
     else:
         edges = np.where(np.isfinite(rim_edges), rim_edges, edges)

@@ -136,3 +136,17 @@ def test_outline_of_a_large_ball_within_a_third_of_a_pixel_all_round(flight_deg,
         off_centre = math.hypot(fit.center_px[0] - centre[0], fit.center_px[1] - centre[1])
         # farthest distance between the fitted and the drawn outline
         assert off_centre + abs(fit.radius_px - truth.radius_px) < 0.3
+
+
+def test_a_ball_filling_most_of_the_frame_fits_too():
+    # a 300 px ball in a 2160 x 2560 frame (the benchmark's large shot): the first, wide search
+    # band of such a ball reaches bright particles that must not pass for its rim.
+    # 0.5 px is the acceptance limit; truth from the generator (core.synth_shot)
+    frame_a, frame_b, truth = ball_shot(
+        (2160, 2560), radius_px=300.0, shift_px=10.0, upper_deg=12.0, lower_deg=4.0, seed=1,
+        density_ppp=0.04,
+    )
+    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
+        fit = find_ball(frame)
+        assert math.hypot(fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]) < 0.5
+        assert abs(fit.radius_px - truth.radius_px) < 0.5
