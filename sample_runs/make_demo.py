@@ -119,6 +119,7 @@ def render(shot: DemoShot) -> tuple[np.ndarray, np.ndarray]:
         upper_deg=shot.upper_deg, lower_deg=shot.lower_deg,
         wake_deflection_deg=shot.wake_deflection_deg, speed_m_s=shot.speed_m_s,
         ball_diameter_mm=BALL_DIAMETER_MM, density_ppp=shot.density_ppp, seed=shot.seed,
+        reverse_fraction=0.0, spread_rate=0.0,
     )
     return _counts(frame_a), _counts(frame_b)
 

@@ -1,0 +1,146 @@
+"""The ball-frame flow next to one side of the ball: an attached layer that separates.
+
+Separation is where the wall shear changes sign. The model describes the flow in a thin band
+along the outline (angle ``phi``, deg in the separation convention; ``gap`` px outside the
+outline) with the stream outside it ``U(phi, gap)`` from the PIV vectors:
+
+- across the layer the speed goes from a weak reverse flow ``-r U`` on the wall side to ``U``
+  with an error-function profile of vorticity thickness ``delta``, centred at a height ``h``:
+  ``S = -r + (1 + r) Phi((gap - h) / delta)``; the wall brings it to rest over ``ell`` px
+  (``u = U S (1 - exp(-gap / ell))``), so the wall shear has the sign of ``S(0)``;
+- the line where ``S = 0`` (the dividing line) lies ``c delta`` below the layer's centre, with
+  ``c = -Phi^-1(r / (1 + r))``. Ahead of separation it lies inside the wall (the attached layer
+  moves forward at the wall) and rises toward it: the layer's centre sits at ``c delta`` times
+  ``1 - a (1 - exp(-(phi_s - phi) / UPSTREAM_DEG))``. At ``phi_s`` the dividing line touches the
+  wall: zero wall shear. Behind it the dividing line leaves the wall at the departure angle
+  ``atan(slope)`` from the tangent and turns toward the wake's direction over the arc length
+  ``L``; the layer thickens linearly at the spreading rate ``k`` of a plane mixing layer;
+- the flow inside the layer follows it: it gains the radial part ``u dZ/ds`` of the rising
+  dividing line.
+
+No part of this is in pixels except through the priors (:mod:`core.separation`), which are in
+physical units scaled by the shot's Reynolds number and image scale. The alternative profile
+(``shape="quartic"``) replaces the error function by a compact polynomial of the same vorticity
+thickness, for the model-form check.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.special import erf, erfinv
+
+#: Parameter order of a side model.
+PARAM_NAMES = ("phi_s", "slope", "relax", "log_delta", "spread", "reverse", "drop", "k_t", "k_r")
+#: Angular scale (deg) over which the attached layer's centre drops toward the wall ahead of
+#: separation.
+UPSTREAM_DEG = 15.0
+#: No-slip length over the layer's thickness at separation.
+WALL_FRACTION = 0.5
+
+
+@dataclass(frozen=True)
+class SideGeometry:
+    """What the model needs of the band: the outline's radius and the samples' coordinates."""
+
+    radius_px: float
+    phi_grid: np.ndarray  # (P,) deg
+    gap: np.ndarray  # (S,) px, samples in phi-major order, len(gap) = P * G
+    gap_count: int
+    final_deg: float = 0.0  # the wake's direction on this side, from the rearward axis
+
+
+def profile(x: np.ndarray, shape: str = "erf") -> np.ndarray:
+    """Layer profile from 0 to 1 with unit largest slope (``x`` in vorticity thicknesses)."""
+    if shape == "erf":
+        return 0.5 * (1.0 + erf(math.sqrt(math.pi) * x))
+    # compact quartic: 0.5 + 15/16 y - 5/8 y^3 + 3/16 y^5 for |y| <= 1 with y = x 16 / 15,
+    # whose largest slope is 1 (derived)
+    y = np.clip(x * (16.0 / 15.0), -1.0, 1.0)
+    return 0.5 + (15.0 / 16.0) * y - 0.625 * y**3 + 0.1875 * y**5
+
+
+def centre_offset(reverse: float, shape: str = "erf") -> float:
+    """``c``: the dividing line's depth below the layer's centre, in vorticity thicknesses."""
+    p = reverse / (1.0 + reverse)
+    if shape == "erf":
+        return float(-erfinv(2.0 * p - 1.0) / math.sqrt(math.pi))
+    lo, hi = -2.0, 0.0  # invert the quartic by bisection (monotonic)
+    for _ in range(40):
+        mid = 0.5 * (lo + hi)
+        if profile(np.array(mid), "quartic") < p:
+            lo = mid
+        else:
+            hi = mid
+    return -0.5 * (lo + hi)
+
+
+def dividing_line_px(radius_px: float, phi_s_deg: float, slope: float, relax_px: float,
+                     phi_deg: np.ndarray, final_deg: float = 0.0) -> np.ndarray:
+    """Height (px) of the dividing line above the outline behind separation (0 ahead of it).
+
+    It leaves the outline at ``phi_s_deg`` at ``atan(slope)`` from the tangent; its heading then
+    relaxes exponentially over the arc length ``relax_px`` toward ``final_deg`` (the wake's
+    direction on this side, from the rearward axis, positive away from it toward the side).
+
+    Returns
+    -------
+    (N,) ndarray
+        Height above the outline (px), 0 at and ahead of ``phi_s_deg``.
+    """
+    phi = np.asarray(phi_deg, dtype=np.float64)
+    th = math.radians(phi_s_deg)
+    psi0 = -th + math.atan(slope)
+    psi_f = math.radians(final_deg)
+    s = np.linspace(0.0, 3.0 * radius_px, 241)
+    psi = psi_f + (psi0 - psi_f) * np.exp(-s / max(relax_px, 1e-6))
+    ds = s[1] - s[0]
+    xi = radius_px * math.sin(th) + np.concatenate(
+        [[0.0], np.cumsum(0.5 * (np.cos(psi[1:]) + np.cos(psi[:-1])) * ds)])
+    zeta = radius_px * math.cos(th) + np.concatenate(
+        [[0.0], np.cumsum(0.5 * (np.sin(psi[1:]) + np.sin(psi[:-1])) * ds)])
+    curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)))
+    curve_gap = np.hypot(xi, zeta) - radius_px
+    return np.where(phi > phi_s_deg, np.interp(phi, curve_phi, curve_gap), 0.0)
+
+
+def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.ndarray,
+              shape: str = "erf") -> tuple[np.ndarray, np.ndarray]:
+    """Ball-frame motion ``(u_t, u_r)`` (px per pair) at the band's samples.
+
+    Parameters
+    ----------
+    geom : SideGeometry
+    params : sequence of float
+        In the order of ``PARAM_NAMES``: ``phi_s`` (deg), ``slope`` (tan of the departure
+        angle), ``relax`` (L / R), ``log_delta`` (ln of the vorticity thickness at separation,
+        px), ``spread`` (d delta / ds), ``reverse`` (r), ``drop`` (a), ``k_t``, ``k_r``
+        (scales of the outer stream's components).
+    u_t_outer, u_r_outer : (S,) ndarray
+        The stream outside the layer at the samples.
+    shape : {"erf", "quartic"}
+    """
+    phi_s, slope, relax, log_delta, spread, reverse, drop, k_t, k_r = params
+    r = geom.radius_px
+    phi = geom.phi_grid
+    delta_s = math.exp(log_delta)
+    behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r  # arc length past separation
+    delta = delta_s + spread * behind
+    lift = dividing_line_px(r, phi_s, slope, relax * r, phi, geom.final_deg)
+    c = centre_offset(reverse, shape)
+    ahead = np.clip(phi_s - phi, 0.0, None)
+    sink = np.where(phi < phi_s, drop * -np.expm1(-ahead / UPSTREAM_DEG), 0.0)
+    centre = lift + c * (delta - delta_s * sink)
+    rise = np.gradient(lift, np.radians(phi) * r)  # dZ/ds along the outline
+    n = geom.gap_count
+    centre, delta, rise = (np.repeat(v, n) for v in (centre, delta, rise))
+    gap = geom.gap
+    across = profile((gap - centre) / delta, shape)
+    s_prof = -reverse + (1.0 + reverse) * across
+    wall = -np.expm1(-gap / (WALL_FRACTION * delta_s))
+    u_t = k_t * u_t_outer * s_prof * wall
+    inside = 1.0 - profile((gap - centre - delta) / delta, shape)
+    u_r = k_r * u_r_outer * across * wall + u_t * rise * inside
+    return u_t, u_r
