@@ -25,7 +25,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 def make_session(folder: Path, size: int, shots: int, workers: int | None) -> Path:
     from core.batch import process_shots
     from core.images import write_frame
-    from core.session import Session
+    from core.store import Session
     from core.synth_shot import ball_shot
 
     path = folder / "bench.h5"
@@ -115,7 +115,7 @@ def make_big_session(folder: Path, shots: int) -> Path:
 
     from core.images import write_frame
     from core.results import BallFit, Flight, SeparationResult, SideProposal, VectorField
-    from core.session import Session
+    from core.store import Session
     from core.shot import ShotResult
 
     rng = np.random.default_rng(0)

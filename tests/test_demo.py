@@ -104,7 +104,7 @@ def _check_replayed(row: dict, review: dict) -> None:
 
 def test_replay_accepts_close_proposals_and_moves_the_others():
     from app.cmd_sheet import _moved_sides
-    from core.session import ShotRecord
+    from core.store import ShotRecord
 
     record = ShotRecord("x", {}, state="processed",
                         summary={"separation": {"upper_deg": -8.2, "lower_deg": 20.0}})
@@ -147,7 +147,7 @@ def test_demo_command_without_window(demo_out, small_sample_runs, capsys):
     from pypdf import PdfReader
 
     from app.cli import main
-    from core.session import Session
+    from core.store import Session
 
     assert main(["demo", "--out", str(demo_out), "--no-window", "--workers", "0"]) == 0
     out = capsys.readouterr().out
@@ -178,7 +178,7 @@ def test_demo_command_without_window(demo_out, small_sample_runs, capsys):
     assert main(["demo", "--out", str(demo_out), "--no-window", "--workers", "0"]) == 0
     assert "using the existing demo session" in capsys.readouterr().out
     with Session.open(demo_out / "demo_session.h5", writable=False) as session:
-        assert session.record("sw03").pick.status == "unusable"
+        assert session["sw03"].pick.status == "unusable"
     # the bundled folder is never written to
     assert sorted(p.name for p in small_sample_runs.iterdir()) == sorted(
         ["shots.csv", "reviews.csv", "truth.csv"]
@@ -227,7 +227,7 @@ def test_has_display_rules(monkeypatch):
 def test_fresh_demo_starts_again_but_not_under_an_open_window(demo_out, capsys):
     from app.cli import main
     from app.cmd_sheet import prepare_demo
-    from core.session import Session
+    from core.store import Session
 
     path = prepare_demo(demo_out)
     with Session.open(path) as session:
@@ -236,5 +236,5 @@ def test_fresh_demo_starts_again_but_not_under_an_open_window(demo_out, capsys):
         assert "open for writing" in capsys.readouterr().err
     assert prepare_demo(demo_out, fresh=True) == path
     with Session.open(path, writable=False) as session:
-        assert session.record("sw02").pick.status == "to review"
+        assert session["sw02"].pick.status == "to review"
         assert session.history("sw02") == []

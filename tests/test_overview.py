@@ -9,7 +9,7 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 import numpy as np
 import pytest
 
-from core.session import Pick, ShotRecord
+from core.store import Pick, ShotRecord
 
 # showing a widget on the offscreen platform logs this harmless notice
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
@@ -169,7 +169,7 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
     from PySide6.QtWidgets import QFileDialog
 
     from app.export import export_sheet
-    from core.session import Session, write_table_csv
+    from core.store import Session, write_table_csv
 
     window = _window(main_window, qtbot, make_session(4))
     texts = [a.text() for a in window.export_menu.actions()]

@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from core import synth
-from core.validate import nanmedian_first_axis, normalized_median_test, replace_outliers
+from core.piv.validate import nanmedian_first_axis, normalized_median_test, replace_outliers
 
 
 def _smooth_field(seed=0, noise_px=0.05):

@@ -12,7 +12,7 @@ from PySide6.QtGui import QDropEvent, QMouseEvent
 from PySide6.QtWidgets import QApplication
 
 from core.geometry import angle_of_point, point_at_angle
-from core.session import Session
+from core.store import Session
 
 # The offscreen platform warns that it cannot propagate size hints; harmless (QT_HEADLESS.md).
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
@@ -147,7 +147,7 @@ def test_drag_upper_mark_follows_geometry_undo_redo_and_reopen(main_window, make
 
     window.close()
     with Session.open(path, writable=False) as session:
-        kept = session.record("s01")
+        kept = session["s01"]
         history = session.history("s01")
     assert kept.pick.status == "adjusted"
     assert kept.final_deg("upper") == pytest.approx(redone.final_deg("upper"))
@@ -182,7 +182,7 @@ def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot, 
     window.close()
 
     with Session.open(path, writable=False) as session:
-        s01, s02, s03, s04 = (session.record(s) for s in ("s01", "s02", "s03", "s04"))
+        s01, s02, s03, s04 = (session[s] for s in ("s01", "s02", "s03", "s04"))
     assert s01.pick.status == "accepted"
     assert s01.final_deg("upper") == s01.proposed_deg("upper")
     assert s02.pick.status == "unusable" and s02.pick.reason == "laser sheet misfired"

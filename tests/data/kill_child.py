@@ -11,7 +11,7 @@ import os
 import sys
 
 from core.batch import iter_process
-from core.session import Session
+from core.store import Session
 
 
 def main(session_path: str, confirm_path: str, tag: str) -> None:
@@ -24,7 +24,7 @@ def main(session_path: str, confirm_path: str, tag: str) -> None:
     confirm("open")
     n = 0
     while True:
-        for shot_id in session.shot_ids():
+        for shot_id in session:
             n += 1
             note = f"{tag}-{n}"
             session.set_pick(shot_id, status="adjusted", upper_deg=float(n), note=note)

@@ -16,6 +16,7 @@ from __future__ import annotations
 import math
 import os
 from dataclasses import dataclass, field
+from enum import StrEnum
 
 os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
 
@@ -27,7 +28,6 @@ from PySide6.QtWidgets import (
     QCheckBox,
     QComboBox,
     QDoubleSpinBox,
-    QGraphicsEllipseItem,
     QHBoxLayout,
     QLabel,
     QMenu,
@@ -38,29 +38,49 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from app import colours
-from core.geometry import SIDES, angle_of_point, point_at_angle
+from app.qt.canvas_items import (
+    BACKGROUND,
+    MASKED_MARK,
+    REPLACED_VECTOR,
+    VECTOR_ON_FIELD,
+    VECTOR_ON_PICTURE,
+    MarkHandle,
+    Overlay,
+    arrow_segments,
+    mark_circle,
+    pen,
+)
+from app.qt.canvas_pictures import (
+    field_values,
+    picture_levels,
+    round_limit,
+    smooth_upsample,
+    vector_scale,
+    vorticity_image,
+    vorticity_unit,
+)
+from app.review import colours
+from core.geometry import SIDES, angle_of_point
 
 # Arrays are (row, column) = (y, x) everywhere in wakeline; run_window sets this too.
 pg.setConfigOptions(imageAxisOrder="row-major")
 
-PICTURES = ("frame A", "frame B", "flicker A/B", "no picture")
-SIDE_COLOURS = {"upper": colours.UPPER_SIDE, "lower": colours.LOWER_SIDE}
-SIDE_LETTERS = {"upper": "U", "lower": "L"}
-BACKGROUND = "#262a2f"  # canvas backdrop: a neutral slate, darker than any frame's mid-grey
-OVERLAY_LINE = "#f6f2e8"  # ball outline and flight arrow: light, the frames are dark
-SHADOW = "#1d1d1f"  # dark rim under the light lines so they also read on light vorticity
-HALO = OVERLAY_LINE
-VECTOR_ON_PICTURE = "#f3d27a"  # warm straw: bright on dark particle frames
-VECTOR_ON_FIELD = colours.INK  # dark on the light middle of the vorticity map
-REPLACED_VECTOR = "#e0417a"  # rose: vectors the validation replaced
-MASKED_MARK = "#9aa0a8"
-PLANE_LINE = "#c9c6bd"  # the plane normal to the flight: a quieter dashed light grey
+
+class PictureMode(StrEnum):
+    """What lies under the overlays; the values are the menu's words (kept in the settings)."""
+
+    FRAME_A = "frame A"
+    FRAME_B = "frame B"
+    FLICKER = "flicker A/B"
+    NONE = "no picture"
+
+
+PICTURES = tuple(PictureMode)
 FLICKER_MS = 350
 VORTICITY_UPSAMPLE = 4  # display only: bilinear between grid nodes instead of flat blocks
 HOVER_HINT = "Point at the picture for flow values; drag a round mark along the ball outline."
 DEFAULT_LAYERS = {
-    "picture": "frame A",
+    "picture": PictureMode.FRAME_A,
     "vectors": True,
     "stride": 1,
     "vorticity": True,
@@ -85,307 +105,6 @@ class CanvasShot:
     final_deg: dict = field(default_factory=lambda: {"upper": None, "lower": None})
     message: str = ""  # shown over the canvas: failed, not processed, frames missing
     editable: bool = True
-
-
-def mark_circle(result) -> tuple[tuple[float, float], float] | None:
-    """Circle the separation marks live on: the ball fitted in frame A (centre px, radius px)."""
-    ball = getattr(result, "ball_a", None)
-    if ball is None or not np.isfinite(ball.radius_px) or ball.radius_px <= 0:
-        return None
-    return (float(ball.center_px[0]), float(ball.center_px[1])), float(ball.radius_px)
-
-
-def arrow_segments(
-    x_px: np.ndarray, y_px: np.ndarray, dx_px: np.ndarray, dy_px: np.ndarray, head: float = 0.3
-) -> tuple[np.ndarray, np.ndarray]:
-    """Line segments of arrows (shaft and two head strokes) for one ``connect='pairs'`` item.
-
-    Parameters
-    ----------
-    x_px, y_px : (K,) ndarray
-        Arrow tails.
-    dx_px, dy_px : (K,) ndarray
-        Arrow vectors (already scaled for display).
-    head : float
-        Head stroke length as a fraction of the arrow length.
-
-    Returns
-    -------
-    xs, ys : (6 K,) ndarray
-        Consecutive point pairs: shaft, left head stroke, right head stroke.
-    """
-    tip_x, tip_y = x_px + dx_px, y_px + dy_px
-    cos_h, sin_h = math.cos(math.radians(25.0)), math.sin(math.radians(25.0))
-    bx, by = -dx_px * head, -dy_px * head
-    lx, ly = tip_x + bx * cos_h - by * sin_h, tip_y + bx * sin_h + by * cos_h
-    rx, ry = tip_x + bx * cos_h + by * sin_h, tip_y - bx * sin_h + by * cos_h
-    xs = np.stack([x_px, tip_x, tip_x, lx, tip_x, rx], axis=1).ravel()
-    ys = np.stack([y_px, tip_y, tip_y, ly, tip_y, ry], axis=1).ravel()
-    return xs, ys
-
-
-def vorticity_image(vorticity_1_s: np.ndarray, limit_1_s: float, see_through: bool) -> np.ndarray:
-    """RGBA picture of the vorticity on our diverging map, symmetric about zero.
-
-    With ``see_through`` (drawn over the frame) the opacity grows with ``|w| / limit`` so the
-    particles stay visible where the air is not turning, and the vortical regions stand out.
-
-    Returns
-    -------
-    (M, N, 4) ndarray of uint8
-    """
-    rgba = colours.vorticity_rgb(vorticity_1_s, limit_1_s)
-    if see_through:
-        w = np.abs(np.asarray(vorticity_1_s, dtype=float))
-        strength = np.clip(np.nan_to_num(w / max(limit_1_s, 1e-12)) * 1.4, 0.0, 1.0)
-        alpha = np.rint(235 * np.sqrt(strength)).astype(np.uint8)
-        rgba[..., 3] = np.where(np.isfinite(vorticity_1_s), alpha, 0)
-    return rgba
-
-
-def smooth_upsample(values: np.ndarray, factor: int) -> np.ndarray:
-    """Bilinear upsampling of a grid with holes (NaN), for display only.
-
-    The output covers the same extent as the input cells (each cell becomes ``factor`` x
-    ``factor`` pixels); holes stay holes where less than half the neighbouring weight is real.
-
-    Parameters
-    ----------
-    values : (M, N) ndarray
-    factor : int
-
-    Returns
-    -------
-    (M * factor, N * factor) ndarray of float32
-    """
-    from scipy.ndimage import zoom
-
-    if factor <= 1:
-        return np.asarray(values, dtype=np.float32)
-    finite = np.isfinite(values)
-    filled = np.where(finite, values, 0.0)
-    kw = {"zoom": factor, "order": 1, "mode": "nearest", "grid_mode": True}
-    weight = zoom(finite.astype(np.float32), **kw)
-    total = zoom(filled.astype(np.float32), **kw)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        out = total / weight
-    out[weight < 0.5] = np.nan
-    return out.astype(np.float32)
-
-
-def vector_scale(dx_px: np.ndarray, dy_px: np.ndarray, cell_px: float) -> float:
-    """Display factor so that a large (95th percentile) vector spans ~0.9 of one drawn cell."""
-    mag = np.hypot(dx_px, dy_px)
-    mag = mag[np.isfinite(mag)]
-    if mag.size == 0:
-        return 1.0
-    big = float(np.percentile(mag, 95))
-    return 0.9 * cell_px / big if big > 0 else 1.0
-
-
-def _pen(colour: str, width: float = 1.5, dash: bool = False, alpha: int = 255):
-    qcolour = QColor(colour)
-    qcolour.setAlpha(alpha)
-    pen = pg.mkPen(qcolour, width=width)
-    if dash:
-        pen.setStyle(Qt.PenStyle.DashLine)
-    return pen
-
-
-class MarkHandle(pg.TargetItem):
-    """A separation mark: a draggable handle held on the ball outline.
-
-    Every position given to it (drag or program) is projected onto the circle along the ray
-    from the centre, so the handle can only move along the outline. A right click during a
-    drag puts the handle back where the drag started (``sigDragCancelled``).
-    """
-
-    sigDragCancelled = Signal(object)
-
-    def __init__(self, side: str) -> None:
-        colour = SIDE_COLOURS[side]
-        super().__init__(
-            size=15,
-            symbol="o",
-            pen=_pen(HALO, 2.5),
-            hoverPen=_pen(HALO, 3.5),
-            brush=QColor(colour),
-            hoverBrush=QColor(colour).lighter(150),
-            movable=True,
-        )
-        self.side = side
-        self.circle: tuple[tuple[float, float], float] | None = None
-        self.setZValue(50)
-
-    def set_circle(self, circle: tuple[tuple[float, float], float] | None) -> None:
-        self.circle = circle
-
-    def setPos(self, *args) -> None:
-        point = pg.Point(*args)
-        circle = getattr(self, "circle", None)
-        if circle is not None:
-            (cx, cy), r = circle
-            dx, dy = point.x() - cx, point.y() - cy
-            norm = math.hypot(dx, dy)
-            if norm > 0:
-                point = pg.Point(cx + r * dx / norm, cy + r * dy / norm)
-        super().setPos(point)
-
-    def mouseDragEvent(self, ev) -> None:
-        # Follow the cursor itself (no grab offset) so the angle is that of the pointer's ray.
-        if not self.movable or ev.button() != Qt.MouseButton.LeftButton:
-            return
-        ev.accept()
-        if ev.isStart():
-            self.moving = True
-            self._drag_start = pg.Point(self.pos())
-        if not self.moving:
-            return
-        self.setPos(self.mapToView(ev.pos()))
-        if ev.isFinish():
-            self.moving = False
-            self.sigPositionChangeFinished.emit(self)
-
-    def mouseClickEvent(self, ev) -> None:
-        if self.moving and ev.button() == Qt.MouseButton.RightButton:
-            ev.accept()
-            self.moving = False
-            self.setPos(self._drag_start)
-            self.sigDragCancelled.emit(self)
-
-
-PROPOSAL_RADIUS = 1.16  # proposal marks sit at this multiple of the ball radius
-LABEL_RADIUS = 1.55  # angle labels further out, clear of the proposal mark
-
-
-class _Overlay:
-    """Ball outlines, flight arrow, normal plane and the separation marks in one view."""
-
-    def __init__(self, view: pg.ViewBox, draggable: bool) -> None:
-        self.view = view
-        self.circles = {}
-        for frame, dash in (("a", False), ("b", True)):
-            halo = QGraphicsEllipseItem()
-            halo.setPen(_pen(SHADOW, 3.6, alpha=130))
-            line = QGraphicsEllipseItem()
-            line.setPen(_pen(OVERLAY_LINE, 1.5, dash=dash))
-            self.circles[frame] = (halo, line)
-            for item in (halo, line):
-                item.setZValue(30)
-                view.addItem(item)
-        self.flight_halo = pg.PlotDataItem(connect="pairs", pen=_pen(SHADOW, 4.6, alpha=130))
-        self.flight = pg.PlotDataItem(connect="pairs", pen=_pen(OVERLAY_LINE, 2.2))
-        self.plane_halo = pg.PlotDataItem(connect="pairs", pen=_pen(SHADOW, 3.4, alpha=110))
-        self.plane = pg.PlotDataItem(connect="pairs", pen=_pen(PLANE_LINE, 1.3, True))
-        self.ticks = pg.PlotDataItem(connect="pairs", pen=_pen(OVERLAY_LINE, 2.0, alpha=220))
-        self.proposals = pg.ScatterPlotItem(
-            size=10, symbol="d", pen=_pen(OVERLAY_LINE, 1.6), brush=QColor(colours.PROPOSAL_MARK)
-        )
-        for item in (self.flight_halo, self.flight, self.plane_halo, self.plane, self.ticks):
-            item.setZValue(31)
-            view.addItem(item)
-        self.proposals.setZValue(40)
-        view.addItem(self.proposals)
-        self.labels = {}
-        self.handles = {}
-        self.dots = None
-        for side in SIDES:
-            label = pg.TextItem(
-                "", color=HALO, fill=pg.mkBrush(QColor(SIDE_COLOURS[side]).darker(130)),
-                anchor=(0.5, 0.5),
-            )
-            label.setZValue(45)
-            view.addItem(label)
-            self.labels[side] = label
-        if draggable:
-            for side in SIDES:
-                handle = MarkHandle(side)
-                view.addItem(handle)
-                self.handles[side] = handle
-        else:
-            self.dots = pg.ScatterPlotItem(size=12, symbol="o", pen=_pen(HALO, 2.0))
-            self.dots.setZValue(50)
-            view.addItem(self.dots)
-
-    def set_ball(self, result, show: bool) -> None:
-        for frame in ("a", "b"):
-            ball = getattr(result, f"ball_{frame}", None) if result is not None else None
-            visible = bool(show and ball is not None and np.isfinite(ball.radius_px))
-            for item in self.circles[frame]:
-                item.setVisible(visible)
-                if visible:
-                    (cx, cy), r = ball.center_px, ball.radius_px
-                    item.setRect(QRectF(cx - r, cy - r, 2 * r, 2 * r))
-
-    def set_flight(self, result, show: bool) -> None:
-        circle = mark_circle(result) if result is not None else None
-        flight = getattr(result, "flight", None)
-        if not show or circle is None or flight is None:
-            for item in (self.flight_halo, self.flight, self.plane_halo, self.plane):
-                item.setData([], [])
-            return
-        (cx, cy), r = circle
-        fx, fy = math.cos(math.radians(flight.direction_deg)), -math.sin(
-            math.radians(flight.direction_deg)
-        )
-        start, end = 0.25 * r, 1.75 * r
-        tail = np.array([cx + fx * start, cy + fy * start])
-        vec = np.array([fx, fy]) * (end - start)
-        xs, ys = arrow_segments(np.array([tail[0]]), np.array([tail[1]]),
-                                np.array([vec[0]]), np.array([vec[1]]), head=0.22)
-        self.flight_halo.setData(xs, ys)
-        self.flight.setData(xs, ys)
-        nx, ny = -fy, fx
-        px = np.array([cx - 1.4 * r * nx, cx + 1.4 * r * nx])
-        py = np.array([cy - 1.4 * r * ny, cy + 1.4 * r * ny])
-        self.plane_halo.setData(px, py)
-        self.plane.setData(px, py)
-
-    def set_marks(self, result, angles: dict, proposals: dict, show: bool, editable: bool) -> None:
-        circle = mark_circle(result) if result is not None else None
-        flight = getattr(result, "flight", None)
-        usable = show and circle is not None and flight is not None
-        tick_x, tick_y, dots, dot_brushes = [], [], [], []
-        prop_points = []
-        for side in SIDES:
-            angle = angles.get(side)
-            label = self.labels[side]
-            handle = self.handles.get(side)
-            if not usable:
-                label.setVisible(False)
-                if handle is not None:
-                    handle.setVisible(False)
-                continue
-            (cx, cy), r = circle
-            shown = 0.0 if angle is None else angle
-            x, y = point_at_angle((cx, cy), r, flight.direction_deg, side, shown)
-            ux, uy = (x - cx) / r, (y - cy) / r
-            tick_x += [cx + 0.82 * r * ux, cx + 1.12 * r * ux]
-            tick_y += [cy + 0.82 * r * uy, cy + 1.12 * r * uy]
-            label.setText(f"{SIDE_LETTERS[side]} {'—' if angle is None else f'{angle:+.1f}°'}")
-            label.setPos(cx + LABEL_RADIUS * r * ux, cy + LABEL_RADIUS * r * uy)
-            label.setVisible(True)
-            if handle is not None:
-                handle.set_circle(circle)
-                handle.setVisible(True)
-                handle.movable = editable
-                handle.setOpacity(1.0 if angle is not None else 0.55)
-                if not handle.moving:
-                    handle.setPos(x, y)
-            else:
-                dots.append((x, y))
-                dot_brushes.append(pg.mkBrush(SIDE_COLOURS[side]))
-            proposal = proposals.get(side)
-            if proposal is not None and (angle is None or abs(proposal - angle) > 0.05):
-                # just outside the outline, so the handle never hides the machine's proposal
-                prop_points.append(
-                    point_at_angle((cx, cy), PROPOSAL_RADIUS * r, flight.direction_deg, side,
-                                   proposal)
-                )
-        self.ticks.setData(tick_x, tick_y)
-        self.proposals.setData(pos=np.array(prop_points, dtype=float).reshape(-1, 2))
-        if self.dots is not None:
-            self.dots.setData(pos=np.array(dots, dtype=float).reshape(-1, 2), brush=dot_brushes)
 
 
 class ShotCanvas(QWidget):
@@ -491,8 +210,8 @@ class ShotCanvas(QWidget):
         self.view.addItem(self.picture)
         self.vorticity = pg.ImageItem()
         self.vorticity.setZValue(10)
-        self.vectors = pg.PlotDataItem(connect="pairs", pen=_pen(VECTOR_ON_PICTURE, 1.1))
-        self.replaced = pg.PlotDataItem(connect="pairs", pen=_pen(REPLACED_VECTOR, 1.4))
+        self.vectors = pg.PlotDataItem(connect="pairs", pen=pen(VECTOR_ON_PICTURE, 1.1))
+        self.replaced = pg.PlotDataItem(connect="pairs", pen=pen(REPLACED_VECTOR, 1.4))
         masked_colour = QColor(MASKED_MARK)
         masked_colour.setAlpha(140)
         self.masked = pg.ScatterPlotItem(size=2.5, symbol="s", pen=None,
@@ -514,11 +233,11 @@ class ShotCanvas(QWidget):
         for name in ("left", "top", "bottom"):
             self.colour_bar.hideAxis(name)  # one labelled axis: less to paint on every step
         axis = self.colour_bar.getAxis("right")
-        axis.setPen(_pen("#c9c6bd", 1.0))
-        axis.setTextPen(_pen("#e6e2d8", 1.0))
+        axis.setPen(pen("#c9c6bd", 1.0))
+        axis.setTextPen(pen("#e6e2d8", 1.0))
         self.graphics.addItem(self.colour_bar, row=0, col=2)
-        self.overlay = _Overlay(self.view, draggable=True)
-        self.field_overlay = _Overlay(self.field_view, draggable=False)
+        self.overlay = Overlay(self.view, draggable=True)
+        self.field_overlay = Overlay(self.field_view, draggable=False)
         for handle in self.overlay.handles.values():
             handle.sigPositionChanged.connect(self._on_handle_moved)
             handle.sigPositionChangeFinished.connect(self._on_handle_released)
@@ -581,7 +300,7 @@ class ShotCanvas(QWidget):
         merged = {**DEFAULT_LAYERS, **{k: v for k, v in state.items() if k in DEFAULT_LAYERS}}
         self._building = True
         try:
-            picture = merged["picture"] if merged["picture"] in PICTURES else "frame A"
+            picture = merged["picture"] if merged["picture"] in PICTURES else PictureMode.FRAME_A
             self.picture_box.setCurrentText(picture)
             self.vectors_box.setChecked(_as_bool(merged["vectors"]))
             self.stride_box.setValue(int(merged["stride"]))
@@ -607,7 +326,7 @@ class ShotCanvas(QWidget):
         old = self._shot
         self._shot = shot
         self._angles = self._initial_angles(shot)
-        self._levels = _picture_levels(shot)
+        self._levels = picture_levels(shot)
         if shot is not None and self.auto_box.isChecked():
             self._set_auto_limit(shot.result)
         self._redraw_all()
@@ -668,11 +387,11 @@ class ShotCanvas(QWidget):
 
     # -- picture -----------------------------------------------------------------------------
     def _draw_picture(self) -> None:
-        mode = self.picture_box.currentText()
+        mode = self.picture_mode()
         shot = self._shot
         frame = None
-        if shot is not None and mode != "no picture":
-            use_b = mode == "frame B" or (mode == "flicker A/B" and self._flicker_b)
+        if shot is not None and mode != PictureMode.NONE:
+            use_b = mode == PictureMode.FRAME_B or (mode == PictureMode.FLICKER and self._flicker_b)
             frame = shot.frame_b if use_b else shot.frame_a
         if frame is None:
             self.picture.clear()
@@ -680,7 +399,7 @@ class ShotCanvas(QWidget):
         else:
             self.picture.setImage(frame, levels=self._levels, autoLevels=False)
             self.picture.setVisible(True)
-        if mode == "flicker A/B" and shot is not None:
+        if mode == PictureMode.FLICKER and shot is not None:
             if not self._flicker.isActive():
                 self._flicker.start()
         else:
@@ -743,7 +462,7 @@ class ShotCanvas(QWidget):
         field_only = not self.picture.isVisible() or self.side_box.isChecked()
         colour = VECTOR_ON_FIELD if field_only and self.vorticity.isVisible() else \
             VECTOR_ON_PICTURE
-        self.vectors.setPen(_pen(colour, 1.1))
+        self.vectors.setPen(pen(colour, 1.1))
 
     def _set_limit(self, limit: float) -> None:
         """Show the colour limit with enough decimals (per-frame-pair vorticity is small)."""
@@ -759,7 +478,7 @@ class ShotCanvas(QWidget):
         limit = colours.symmetric_limit(w)
         self._building = True
         try:
-            self._set_limit(_round_limit(limit))
+            self._set_limit(round_limit(limit))
         finally:
             self._building = False
 
@@ -868,6 +587,9 @@ class ShotCanvas(QWidget):
             self.graphics.removeItem(self.field_view)
         self.field_view.setVisible(checked)
 
+    def picture_mode(self) -> PictureMode:
+        return PictureMode(self.picture_box.currentText())
+
     def cycle_picture(self) -> None:
         index = (self.picture_box.currentIndex() + 1) % len(PICTURES)
         self.picture_box.setCurrentIndex(index)
@@ -893,7 +615,7 @@ class ShotCanvas(QWidget):
         parts = [f"x {x_px:7.1f} y {y_px:7.1f} px"]
         if scale:
             parts.append(f"({x_px * scale:6.2f}, {y_px * scale:6.2f} mm)")
-        parts.extend(_field_values(result, x_px, y_px))
+        parts.extend(field_values(result, x_px, y_px))
         return "  ".join(parts)
 
 
@@ -907,60 +629,6 @@ def legend_html() -> str:
             "proposal")
 
 
-def _field_values(result, x_px: float, y_px: float) -> list[str]:
-    vf = getattr(result, "field", None)
-    if vf is None:
-        return []
-    sp = float(vf.spacing_px)
-    col = round((x_px - float(vf.x_px[0, 0])) / sp)
-    row = round((y_px - float(vf.y_px[0, 0])) / sp)
-    rows, cols = vf.x_px.shape
-    if not (0 <= row < rows and 0 <= col < cols):
-        return []
-    if vf.masked[row, col]:
-        return ["masked (no vector)"]
-    out = []
-    u, v = _velocity_at(result, vf, row, col)
-    out.append(f"u {u:+8.3f}  v {v:+8.3f}  |V| {math.hypot(u, v):7.3f} {_velocity_unit(result)}")
-    if vf.replaced[row, col]:
-        out.append("(replaced)")
-    w = getattr(result, "vorticity_1_s", None)
-    if w is not None and np.isfinite(w[row, col]):
-        out.append(f"ω {w[row, col]:+9.4g} {vorticity_unit(result)}")
-    return out
-
-
-def vorticity_unit(result) -> str:
-    """1/s with dt and a scale; without them the pipeline gives vorticity per frame pair."""
-    return "1/s" if getattr(result, "u_m_s", None) is not None else "per frame pair"
-
-
-def _velocity_at(result, vf, row: int, col: int) -> tuple[float, float]:
-    u = getattr(result, "u_m_s", None)
-    v = getattr(result, "v_m_s", None)
-    if u is not None and v is not None:
-        # stored v is image-y (downward); show it upward like the flight angle convention
-        return float(u[row, col]), -float(v[row, col])
-    return float(vf.dx_px[row, col]), -float(vf.dy_px[row, col])
-
-
-def _velocity_unit(result) -> str:
-    has_speed = getattr(result, "u_m_s", None) is not None
-    return "m/s (v up)" if has_speed else "px (v up)"
-
-
-def _picture_levels(shot: CanvasShot | None) -> tuple[float, float]:
-    frames = [] if shot is None else [f for f in (shot.frame_a, shot.frame_b) if f is not None]
-    if not frames:
-        return 0.0, 1.0
-    step = max(1, int(math.sqrt(frames[0].size / 40_000)))  # ~40 000 samples per frame
-    sample = np.concatenate([np.asarray(f)[::step, ::step].ravel() for f in frames])
-    low, high = np.percentile(sample, [0.5, 99.7])
-    if high <= low:
-        high = low + 1.0
-    return float(low), float(high)
-
-
 def _same_extent(old: CanvasShot | None, new: CanvasShot) -> bool:
     def shape(shot):
         if shot is None or shot.frame_a is None:
@@ -970,17 +638,6 @@ def _same_extent(old: CanvasShot | None, new: CanvasShot) -> bool:
 
     return old is not None and shape(old) is not None and shape(old) == shape(new)
 
-
-def _round_limit(value: float) -> float:
-    """The next value of the 1-2-5 series at or above ``value``: a tidy colour-bar end that stays
-    the same over shots of similar strength (so the scale is comparable and cheap to redraw)."""
-    if value <= 0 or not math.isfinite(value):
-        return 1.0
-    decade = 10.0 ** math.floor(math.log10(value))
-    for step in (1.0, 2.0, 5.0, 10.0):
-        if value <= step * decade * (1 + 1e-9):
-            return step * decade
-    return 10.0 * decade
 
 
 def _check_action(text: str, menu: QMenu) -> QAction:

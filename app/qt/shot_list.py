@@ -31,28 +31,19 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from app import colours
-from app.icons import state_icon, status_icon
-from app.model import SessionModel
+from app.qt.icons import state_icon, status_icon
+from app.review import colours
+from app.review.model import ProcessState, ReviewStatus, SessionModel
+from app.review.text import angle_text
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
-COLUMNS = ("", "Shot", "Status", "Upper °", "Lower °", "Seam °")
+COLUMNS = ("", "Shot", "Status", "Upper", "Lower", "Seam °")
 COL_STATE, COL_SHOT, COL_STATUS, COL_UPPER, COL_LOWER, COL_SEAM = range(len(COLUMNS))
 
-STATUS_FILTERS = (
-    "all shots",
-    "to review",
-    "accepted",
-    "adjusted",
-    "unusable",
-    "failed",
-    "unprocessed",
-)
+ALL_SHOTS = "all shots"
+#: the filter's choices: every shot, a review status, or a processing state
+STATUS_FILTERS = (ALL_SHOTS, *ReviewStatus, ProcessState.FAILED, ProcessState.UNPROCESSED)
 _CONDITION = re.compile(r"^\s*([A-Za-z_][\w]*)\s*(<=|>=|=|<|>|:)\s*(\S+)\s*$")
-
-
-def _angle_text(value: float | None) -> str:
-    return "" if value is None or not math.isfinite(value) else f"{value:+.1f}"
 
 
 class ShotTableModel(QAbstractTableModel):
@@ -136,7 +127,7 @@ class ShotTableModel(QAbstractTableModel):
     @staticmethod
     def _angle(rec, side: str) -> float | None:
         """Final angle when decided, else the proposal (shown in italics)."""
-        if rec.pick.status == "unusable":
+        if rec.pick.status == ReviewStatus.UNUSABLE:
             return None
         return rec.shown_deg(side)
 
@@ -146,7 +137,7 @@ class ShotTableModel(QAbstractTableModel):
         if col == COL_STATUS:
             return rec.pick.status
         if col in (COL_UPPER, COL_LOWER):
-            return _angle_text(self._angle(rec, _side(col)))
+            return angle_text(self._angle(rec, _side(col)))
         if col == COL_SEAM:
             seam = _number(rec.metadata.get("seam_deg"))
             return "" if seam is None else f"{seam:g}"
@@ -154,7 +145,8 @@ class ShotTableModel(QAbstractTableModel):
 
     def _sort_key(self, rec, col: int):
         if col == COL_STATE:
-            return ("failed", "unprocessed", "processed").index(rec.state)
+            return (ProcessState.FAILED, ProcessState.UNPROCESSED, ProcessState.PROCESSED).index(
+                rec.state)
         if col == COL_SHOT:
             return _natural_key(rec.shot_id)
         if col == COL_STATUS:
@@ -168,9 +160,9 @@ class ShotTableModel(QAbstractTableModel):
     @staticmethod
     def _tooltip(rec) -> str:
         lines = [f"shot {rec.shot_id}: {rec.state}, {rec.pick.status}"]
-        if rec.state == "failed" and rec.failure:
+        if rec.state == ProcessState.FAILED and rec.failure:
             lines.append(f"failed: {rec.failure}")
-        if rec.pick.status == "unusable" and rec.pick.reason:
+        if rec.pick.status == ReviewStatus.UNUSABLE and rec.pick.reason:
             lines.append(f"unusable: {rec.pick.reason}")
         if rec.pick.note:
             lines.append(f"note: {rec.pick.note}")
@@ -216,7 +208,7 @@ class ShotFilter(QSortFilterProxyModel):
     def __init__(self, session_model: SessionModel, parent=None) -> None:
         super().__init__(parent)
         self._model = session_model
-        self._status = "all shots"
+        self._status = ALL_SHOTS
         self._text = ""
         self.setSortRole(SORT_ROLE)
         self.setDynamicSortFilter(True)
@@ -239,10 +231,10 @@ class ShotFilter(QSortFilterProxyModel):
     def filterAcceptsRow(self, source_row: int, source_parent: QModelIndex) -> bool:
         source = self.sourceModel()
         rec = self._model.record(source.shot_id(source_row))
-        if self._status in ("failed", "unprocessed"):
+        if self._status in (ProcessState.FAILED, ProcessState.UNPROCESSED):
             if rec.state != self._status:
                 return False
-        elif self._status != "all shots" and rec.pick.status != self._status:
+        elif self._status != ALL_SHOTS and rec.pick.status != self._status:
             return False
         return _text_matches(self._text, rec)
 

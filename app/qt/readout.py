@@ -7,8 +7,6 @@ metadata; the analyst's note. While a mark is dragged the final cell shows the l
 
 from __future__ import annotations
 
-import math
-
 from PySide6.QtCore import Qt, Signal
 from PySide6.QtGui import QAction, QFont, QKeySequence
 from PySide6.QtWidgets import (
@@ -26,9 +24,22 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
-from app import colours
-from app.icons import status_icon
+from app.qt.icons import status_icon
+from app.review import colours
+from app.review.model import ProcessState, ReviewStatus
+from app.review.text import (
+    MISSING,
+    angle_text,
+    ball_text,
+    direction_text,
+    quality_text,
+    speed_text,
+    uncertainty_text,
+    vectors_text,
+    wake_text,
+)
 from core.geometry import SIDES
+from core.results import SideProposal
 
 ROWS = ("proposed", "final", "uncertainty", "quality")
 PROBLEM_STYLE = (f"QLabel {{ background: #f6e3e6; color: {colours.STATUS_COLOURS['unusable']};"
@@ -38,24 +49,10 @@ NOTICE_STYLE = (f"QLabel {{ background: {colours.PAPER_TINT}; color: {colours.MU
 LIVE_STYLE = f"color: {colours.STATUS_COLOURS['adjusted']}; font-weight: bold;"
 
 
-def deg_text(value: float | None, signed: bool = True) -> str:
-    if value is None or not math.isfinite(value):
-        return "—"
-    return f"{value:+.1f}°" if signed else f"{value:.1f}°"
-
-
-def _plain(value, digits: int = 2) -> str:
-    if value is None:
-        return "—"
-    if isinstance(value, float):
-        return f"{value:.{digits}f}" if math.isfinite(value) else "—"
-    return str(value)
-
-
 def _metadata_text(value) -> str:
     if isinstance(value, float):
         return f"{value:.6g}"
-    return "—" if value in (None, "") else str(value)
+    return MISSING if value in (None, "") else str(value)
 
 
 class NoteEdit(QPlainTextEdit):
@@ -190,7 +187,8 @@ class ReadoutPanel(QWidget):
         box = QVBoxLayout(group)
         grid = QGridLayout()
         self.buttons: dict[str, QToolButton] = {}
-        for index, key in enumerate(("accepted", "adjusted", "unusable", "to review")):
+        for index, key in enumerate((ReviewStatus.ACCEPTED, ReviewStatus.ADJUSTED,
+                                     ReviewStatus.UNUSABLE, ReviewStatus.TO_REVIEW)):
             button = QToolButton(group)
             button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
             button.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
@@ -256,7 +254,7 @@ class ReadoutPanel(QWidget):
     def show_live(self, side: str, angle_deg: float) -> None:
         """While a mark is dragged: the final cell and the difference follow the live angle."""
         cell = self.cells[("final", side)]
-        cell.setText(deg_text(angle_deg))
+        cell.setText(angle_text(angle_deg))
         cell.setStyleSheet(LIVE_STYLE)
         record = self._record
         if record is None:
@@ -267,7 +265,7 @@ class ReadoutPanel(QWidget):
             other_deg = record.proposed_deg(other)
         if other_deg is not None:
             diff = angle_deg - other_deg if side == "upper" else other_deg - angle_deg
-            self.difference.setText(f"{deg_text(diff)} (moving)")
+            self.difference.setText(f"{angle_text(diff)} (moving)")
             self.difference.setStyleSheet(LIVE_STYLE)
 
     def show_current(self) -> None:
@@ -294,12 +292,12 @@ class ReadoutPanel(QWidget):
         self.last_edit.clear()
 
     def _show_problem(self, record) -> None:
-        if record.state == "failed":
+        if record.state == ProcessState.FAILED:
             text = f"Processing failed: {record.failure or 'no reason given'}"
             if record.summary:
                 text += "\nThe numbers below are from the last run that succeeded."
             self.problem.setStyleSheet(PROBLEM_STYLE)
-        elif record.state == "unprocessed":
+        elif record.state == ProcessState.UNPROCESSED:
             text = "Not processed yet."
             self.problem.setStyleSheet(NOTICE_STYLE)
         else:
@@ -308,69 +306,43 @@ class ReadoutPanel(QWidget):
         self.problem.setVisible(bool(text))
 
     def _show_angles(self, record) -> None:
-        sep = (record.summary or {}).get("separation") or {}
         for side in SIDES:
-            detail = sep.get(side) or {}
-            final = record.final_deg(side) if record.pick.status != "unusable" else None
+            detail = SideProposal(None) if record.summary is None else record.summary.side(side)
+            final = record.final_deg(side) if record.pick.status != ReviewStatus.UNUSABLE else None
             values = {
-                "proposed": deg_text(record.proposed_deg(side)),
-                "final": deg_text(final),
-                "uncertainty": "—" if record.uncertainty_deg(side) is None
-                else f"± {record.uncertainty_deg(side):.1f}°",
-                "quality": _plain(detail.get("quality")),
+                "proposed": angle_text(detail.angle_deg),
+                "final": angle_text(final),
+                "uncertainty": uncertainty_text(detail.uncertainty_deg),
+                "quality": quality_text(detail.quality),
             }
             for name, text in values.items():
                 self.cells[(name, side)].setText(text)
                 self.cells[(name, side)].setStyleSheet("")
-            tip = detail.get("reason") or ""
-            self.cells[("proposed", side)].setToolTip(tip)
+            self.cells[("proposed", side)].setToolTip(detail.reason)
         self.difference.setText(self._difference_text(record))
         self.difference.setStyleSheet("")
 
     @staticmethod
     def _difference_text(record) -> str:
         finals = [record.final_deg(s) for s in SIDES]
-        if record.pick.status != "unusable" and None not in finals:
-            return f"{deg_text(finals[0] - finals[1])} (final)"
+        if record.pick.status != ReviewStatus.UNUSABLE and None not in finals:
+            return f"{angle_text(finals[0] - finals[1])} (final)"
         proposed = [record.proposed_deg(s) for s in SIDES]
         if None not in proposed:
-            return f"{deg_text(proposed[0] - proposed[1])} (proposed)"
-        return "—"
+            return f"{angle_text(proposed[0] - proposed[1])} (proposed)"
+        return MISSING
 
     def _show_wake(self, record) -> None:
-        sep = (record.summary or {}).get("separation") or {}
-        deflection = sep.get("wake_deflection_deg")
-        state = sep.get("wake_state") or "—"
-        self.wake.setText(f"{deg_text(deflection)} deflection, {state}"
-                          if deflection is not None else state)
+        summary = record.summary
+        self.wake.setText(MISSING if summary is None else wake_text(summary.separation))
 
     def _show_flight(self, record) -> None:
-        summary = record.summary or {}
-        flight = summary.get("flight") or {}
-        direction = flight.get("direction_deg")
-        self.flight_dir.setText(
-            "—" if direction is None else f"{direction:.1f}° ({flight.get('source', '')})"
-        )
-        speed = flight.get("speed_m_s")
-        self.flight_speed.setText("—" if speed is None else f"{speed:.2f} m/s")
-        ball = summary.get("ball") or {}
-        scale = summary.get("scale_mm_per_px")
-        radius = ball.get("radius_px")
-        if radius is None:
-            self.ball_size.setText("—")
-        elif scale:
-            self.ball_size.setText(f"r {radius:.1f} px, Ø {2 * radius * scale:.1f} mm "
-                                   f"({scale:.4f} mm/px)")
-        else:
-            self.ball_size.setText(f"r {radius:.1f} px")
-        counts = summary.get("vectors") or {}
-        if counts:
-            self.vectors.setText(
-                f"{counts.get('valid', 0)} valid, {counts.get('replaced', 0)} replaced, "
-                f"{counts.get('masked', 0)} masked"
-            )
-        else:
-            self.vectors.setText("—")
+        summary = record.summary
+        flight = None if summary is None else summary.flight
+        self.flight_dir.setText(direction_text(flight))
+        self.flight_speed.setText(speed_text(None if flight is None else flight.speed_m_s))
+        self.ball_size.setText(MISSING if summary is None else ball_text(summary))
+        self.vectors.setText(MISSING if summary is None else vectors_text(summary.vectors))
 
     def _show_metadata(self, metadata: dict) -> None:
         while self.meta_form.rowCount():
@@ -385,7 +357,7 @@ class ReadoutPanel(QWidget):
 
     def _show_review(self, record) -> None:
         pick = record.pick
-        if pick.status == "unusable":
+        if pick.status == ReviewStatus.UNUSABLE:
             self.reason.setText(f"Unusable: {pick.reason}")
         else:
             self.reason.clear()

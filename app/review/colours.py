@@ -9,6 +9,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from core.store import ReviewStatus
+
 # Diverging map for vorticity: deep teal (clockwise) through a warm paper white (zero) to deep
 # brick (counter-clockwise). Both ends are dark enough for white vectors on top to stay visible
 # and the middle is light enough for black ones.
@@ -22,11 +24,11 @@ VORTICITY_STOPS: tuple[tuple[float, str], ...] = (
     (1.00, "#5e1a1d"),
 )
 
-STATUS_COLOURS: dict[str, str] = {
-    "to review": "#7d8597",
-    "accepted": "#2a7f62",
-    "adjusted": "#c9871a",
-    "unusable": "#a8324a",
+STATUS_COLOURS: dict[ReviewStatus, str] = {
+    ReviewStatus.TO_REVIEW: "#7d8597",
+    ReviewStatus.ACCEPTED: "#2a7f62",
+    ReviewStatus.ADJUSTED: "#c9871a",
+    ReviewStatus.UNUSABLE: "#a8324a",
 }
 
 BALL_OUTLINE = "#1d1d1f"

@@ -112,7 +112,7 @@ def run_demo(args: argparse.Namespace) -> int:
             print("no display found: writing the shot sheet and the table instead of opening "
                   "the window")
         return write_demo_outputs(session_path)
-    from app.window import run_window
+    from app.qt.window import run_window
 
     return run_window(session_path)
 

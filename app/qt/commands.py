@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from PySide6.QtGui import QUndoCommand
 
-from app.model import SessionModel, pick_values
+from app.review.model import ReviewStatus, SessionModel, pick_values
 from core import WakelineError
 
 NUDGE_MERGE_ID = 4101  # consecutive nudges of one mark on one shot merge into one undo step
@@ -80,7 +80,7 @@ class MarkMove(PickEdit):
         other = "lower" if side == "upper" else "upper"
         other_deg = record.shown_deg(other)
         changes = {
-            "status": "adjusted",
+            "status": ReviewStatus.ADJUSTED,
             f"{side}_deg": float(angle_deg),
             f"{other}_deg": other_deg,
             "reason": "",

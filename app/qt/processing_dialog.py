@@ -24,7 +24,7 @@ from PySide6.QtWidgets import (
 )
 
 from core import WakelineError
-from core.piv import PivPass, PivSettings
+from core.settings import PivPass, PivSettings
 from core.shot import ShotSettings
 
 

@@ -2,10 +2,10 @@
 
 ``BackgroundJob`` runs one callable ``fn(report, should_stop)`` on a worker thread; ``report``
 sends an item to the GUI thread (signal ``item_done``) and ``should_stop`` tells the callable a
-cancel was asked for. ``ProcessJob`` is the batch processing of a session's shots
-(core.batch.iter_process): every shot is saved by the batch code as it finishes, and the window
-refreshes that shot's row when the item arrives. The session serialises file access from the
-two threads with its own lock.
+cancel was asked for. ``process_job`` is the batch processing of a session's shots
+(``SessionModel.iter_process``): every shot is saved by the batch code as it finishes, and the
+window refreshes that shot's row when the item arrives. The session serialises file access from
+the two threads with its own lock.
 """
 
 from __future__ import annotations
@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 from PySide6.QtCore import QObject, QThread, Signal, Slot
 
+from app.review.model import import_folder
 from core import WakelineError
 
 log = logging.getLogger("wakeline.window")
@@ -128,14 +129,14 @@ class ProcessSummary:
     total: int = 0
 
 
-def process_job(session, shot_ids=None, workers: int | None = None, force: bool = False,
+def process_job(model, shot_ids=None, workers: int | None = None, force: bool = False,
                 parent: QObject | None = None) -> BackgroundJob:
-    """A job that processes shots of ``session`` with core.batch; items are ``ShotOutcome``.
+    """A job that processes shots of the model's session; items are ``core.batch.ShotOutcome``.
 
     Parameters
     ----------
-    session : core.session.Session
-        Open for writing.
+    model : app.review.model.SessionModel
+        With a session open for writing.
     shot_ids : list of str, optional
         Shots to process (default: every shot that needs it).
     workers : int, optional
@@ -143,12 +144,10 @@ def process_job(session, shot_ids=None, workers: int | None = None, force: bool 
     force : bool
         Reprocess shots already processed with the same settings.
     """
-    from core.batch import iter_process
-
     def run(report, should_stop) -> ProcessSummary:
         summary = ProcessSummary()
-        for outcome in iter_process(session, shot_ids, workers=workers, force=force,
-                                    should_stop=should_stop):
+        for outcome in model.iter_process(shot_ids, workers=workers, force=force,
+                                          should_stop=should_stop):
             summary.total = outcome.total
             if outcome.ok:
                 summary.processed += 1
@@ -162,8 +161,7 @@ def process_job(session, shot_ids=None, workers: int | None = None, force: bool 
 
 def import_job(src_dir, session_path, parent: QObject | None = None) -> BackgroundJob:
     """A job importing a folder (``shots.csv`` + frames) into a session file; items are
-    ``(shot_id, ok, message)``; the value is core.session's ``ImportReport``."""
-    from core.session import import_folder
+    ``(shot_id, ok, message)``; the value is the store's ``ImportReport``."""
 
     def run(report, should_stop):
         return import_folder(src_dir, session_path,

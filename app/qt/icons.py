@@ -8,6 +8,8 @@ from pathlib import Path
 
 from PySide6.QtGui import QIcon
 
+from app.review.model import ProcessState, ReviewStatus
+
 
 def _icon_dir() -> Path:
     """icons/ of the source tree (checkout or editable install), else where a wheel puts it."""
@@ -18,13 +20,8 @@ def _icon_dir() -> Path:
 
 ICON_DIR = _icon_dir()
 
-STATUS_ICONS = {
-    "to review": "status_to_review",
-    "accepted": "status_accepted",
-    "adjusted": "status_adjusted",
-    "unusable": "status_unusable",
-}
-STATE_ICONS = {"failed": "state_failed", "unprocessed": "state_unprocessed"}
+STATUS_ICONS = {status: f"status_{status.name.lower()}" for status in ReviewStatus}
+STATE_ICONS = {ProcessState.FAILED: "state_failed", ProcessState.UNPROCESSED: "state_unprocessed"}
 
 
 def icon_path(name: str) -> Path:
@@ -42,7 +39,7 @@ def icon(name: str) -> QIcon:
 
 
 def status_icon(status: str) -> QIcon:
-    """Icon of a review status (one of core.session.REVIEW_STATUSES)."""
+    """Icon of a review status."""
     return icon(STATUS_ICONS[status])
 
 

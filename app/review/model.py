@@ -1,21 +1,39 @@
 """Observable state of the review window: the open session, the current shot, the analyst's picks.
 
-``SessionModel`` wraps a ``core.session.Session`` (which knows nothing of Qt) and emits a signal
-only when something really changes. Every pick edit goes straight to the store's journal
-(``Session.set_pick`` returns after the edit is on disk), so the window never holds unsaved work.
-All session file access happens on the GUI thread; background workers only compute.
+``SessionModel`` wraps a ``core.store.Session`` (which knows nothing of Qt) and emits a signal
+only when something really changes; the window reaches the store through it alone. Every pick
+edit goes straight to the store's journal (``Session.set_pick`` returns after the edit is on
+disk), so the window never holds unsaved work. Only QtCore is used here (for the signals): no
+widgets.
 """
 
 from __future__ import annotations
 
 from collections import OrderedDict
 from dataclasses import dataclass
+from pathlib import Path
 
 import numpy as np
 from PySide6.QtCore import QObject, Signal
 
 from core import WakelineError
-from core.session import Pick, Session, ShotRecord
+from core.batch import iter_process
+from core.store import (
+    MANIFEST_NAME,
+    Pick,
+    ProcessState,
+    ReviewStatus,
+    Session,
+    SessionLocked,
+    ShotRecord,
+    import_folder,
+    write_table_csv,
+)
+
+__all__ = [
+    "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
+    "import_folder", "pick_values",
+]
 
 PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
 
@@ -56,6 +74,7 @@ class _Lru:
 class SessionModel(QObject):
     """The open session and the current shot, with change signals for the views."""
 
+    closing = Signal()  # the open session is about to close: stop what uses it
     session_changed = Signal()  # a session was opened or closed
     current_changed = Signal(str)  # the current shot id ("" for none)
     record_changed = Signal(str)  # one shot's pick, result or processing state changed
@@ -74,10 +93,19 @@ class SessionModel(QObject):
     # -- session -----------------------------------------------------------------------------
     @property
     def session(self) -> Session | None:
+        """The open store, for reading whole (the shot sheet); edits go through the model."""
         return self._session
 
+    @property
+    def path(self) -> Path | None:
+        return None if self._session is None else Path(self._session.path)
+
+    @property
+    def name(self) -> str:
+        return "" if self._session is None else self._session.name
+
     def open(self, path, writable: bool = True) -> None:
-        """Open the session file at ``path`` (closing any open one first).
+        """Open the session file at ``path``; the open one is closed only once it succeeded.
 
         Raises
         ------
@@ -85,14 +113,10 @@ class SessionModel(QObject):
             When the file cannot be opened (``SessionLocked`` when another process holds it).
         """
         session = Session.open(path, writable=writable)
-        self.adopt(session)
-
-    def adopt(self, session: Session) -> None:
-        """Make an already open ``Session`` the model's session."""
         self._drop_session()
         self._session = session
-        self._order = list(session.shot_ids())
-        self._records = {rec.shot_id: rec for rec in session.records()}
+        self._order = list(session)
+        self._records = dict(session.items())
         self._current = ""
         self.session_changed.emit()
         self.current_changed.emit("")
@@ -106,6 +130,7 @@ class SessionModel(QObject):
 
     def _drop_session(self) -> None:
         if self._session is not None:
+            self.closing.emit()
             self._session.close()
         self._session = None
         self._records.clear()
@@ -130,7 +155,7 @@ class SessionModel(QObject):
 
     def refresh(self, shot_id: str) -> None:
         """Re-read one shot's record from the store and tell the views."""
-        self._records[shot_id] = self._session.record(shot_id)
+        self._records[shot_id] = self._session[shot_id]
         self._results.drop(shot_id)
         self.record_changed.emit(shot_id)
 
@@ -150,7 +175,7 @@ class SessionModel(QObject):
     def result(self, shot_id: str):
         """The shot's stored ``ShotResult`` (None when unprocessed or failed), cached."""
         cached = self._results.get(shot_id)
-        if cached is None and self._records[shot_id].state == "processed":
+        if cached is None and self._records[shot_id].state == ProcessState.PROCESSED:
             cached = self._session.load_result(shot_id)
             if cached is not None:
                 self._results.put(shot_id, cached)
@@ -184,10 +209,48 @@ class SessionModel(QObject):
         """
         before = pick_values(self._records[shot_id].pick)
         pick = self._session.set_pick(shot_id, **changes)
-        self._records[shot_id] = self._session.record(shot_id)
+        self._records[shot_id] = self._session[shot_id]
         if pick_values(pick) != before:
             self.record_changed.emit(shot_id)
         return pick
 
     def unprocessed_ids(self) -> list[str]:
-        return [sid for sid in self._order if self._records[sid].state == "unprocessed"]
+        return [sid for sid in self._order
+                if self._records[sid].state == ProcessState.UNPROCESSED]
+
+    # -- processing and files ----------------------------------------------------------------
+    def count_to_process(self, shot_ids=None, force: bool = False) -> int:
+        """Shots a processing run would measure: ``shot_ids``, or all with ``force``, or those
+        not processed with the current settings."""
+        if shot_ids:
+            return len(shot_ids)
+        if force:
+            return len(self._order)
+        return sum(self._session.needs_processing(s) for s in self._order)
+
+    def processing_settings(self) -> dict:
+        return {} if self._session is None else self._session.processing_settings()
+
+    def set_processing_settings(self, settings: dict) -> bool:
+        """Keep new session-wide processing settings; False when they are the same."""
+        if settings == self._session.processing_settings():
+            return False
+        self._session.set_processing_settings(settings)
+        return True
+
+    def iter_process(self, shot_ids=None, workers=None, force: bool = False, should_stop=None):
+        """Process shots (``core.batch.iter_process``); runs on a worker thread, so the views
+        learn of each finished shot by ``refresh`` on the GUI thread."""
+        return iter_process(self._session, shot_ids, workers=workers, force=force,
+                            should_stop=should_stop)
+
+    def check_frames(self, should_stop=None) -> dict[str, str]:
+        return self._session.check_frames(should_stop)
+
+    def compact(self) -> None:
+        """Fold the journal into the session file (every edit is already on disk)."""
+        self._session.compact()
+
+    def write_table(self, path) -> int:
+        """The table of picks as CSV (as ``wakeline table``); returns the row count."""
+        return write_table_csv(self._session, path)

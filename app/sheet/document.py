@@ -21,8 +21,8 @@ from pathlib import Path
 import numpy as np
 from PySide6 import QtCore, QtGui
 
-from app import colours
-from app.overview import (
+from app.review import colours
+from app.qt.overview import (
     PLOTTED_STATUSES,
     OverviewPoints,
     column_value,

@@ -8,13 +8,12 @@ the table (CSV), the same files ``wakeline sheet`` and ``wakeline table`` write.
 
 from __future__ import annotations
 
-from pathlib import Path
-
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import QApplication, QDockWidget, QFileDialog, QProgressDialog
 
-from app.overview import SessionOverview, numeric_columns
+from app.qt.overview import SessionOverview
+from app.review.overview import numeric_columns
 from app.sheet import SheetReport, make_sheet
 from core import WakelineError
 
@@ -70,8 +69,8 @@ def install_export_actions(window) -> dict[str, QAction]:
 
 
 def _default_path(window, suffix: str) -> str:
-    session = window.model.session
-    return str(Path(session.path).with_name(f"{Path(session.path).stem}{suffix}"))
+    path = window.model.path
+    return str(path.with_name(f"{path.stem}{suffix}"))
 
 
 def _export_dialog(window, title: str, suffix: str, file_filter: str, export) -> None:
@@ -87,7 +86,8 @@ def _export_dialog(window, title: str, suffix: str, file_filter: str, export) ->
 def export_sheet(window, path, **options) -> SheetReport | None:
     """Write the open session's shot sheet to ``path`` with a cancellable progress dialog.
 
-    ``options`` go to ``app.sheet.make_sheet``; the overview's column is used unless
+    ``options`` go to ``app.sheet.make_sheet`` (which reads the model's session whole); the
+    overview's column is used unless
     ``column`` is given. Problems are shown by the window; returns None then or when cancelled.
     """
     session = window.model.session
@@ -95,10 +95,9 @@ def export_sheet(window, path, **options) -> SheetReport | None:
         return None
     overview = getattr(window, "overview", None)
     if ("column" not in options and overview is not None
-            and overview.column() in numeric_columns(session.records())):
+            and overview.column() in numeric_columns(window.model.records())):
         options["column"] = overview.column()
-    dialog = QProgressDialog("Writing the shot sheet…", "Cancel", 0, len(session.shot_ids()),
-                             window)
+    dialog = QProgressDialog("Writing the shot sheet…", "Cancel", 0, len(session), window)
     dialog.setWindowTitle("Shot sheet")
     dialog.setWindowModality(Qt.WindowModality.WindowModal)
     dialog.setMinimumDuration(400)
@@ -130,13 +129,10 @@ def export_sheet(window, path, **options) -> SheetReport | None:
 
 def export_table(window, path) -> int | None:
     """Write the open session's table of picks (as ``wakeline table``); the row count or None."""
-    from core.session import write_table_csv
-
-    session = window.model.session
-    if session is None:
+    if window.model.session is None:
         return None
     try:
-        count = write_table_csv(session, path)
+        count = window.model.write_table(path)
     except (WakelineError, OSError) as exc:
         window.show_problem("Table", str(exc))
         return None

@@ -64,7 +64,7 @@ def open_window() -> int:
             "no display to open the window on (DISPLAY is not set); the headless commands "
             "are listed by 'wakeline --help'"
         )
-    from app.window import run_window
+    from app.qt.window import run_window
 
     return run_window(None)
 
