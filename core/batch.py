@@ -21,8 +21,8 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from dataclasses import dataclass, field, replace
 
 from core import WakelineError
-from core.store import Session, read_frames
 from core.shot import ShotSettings
+from core.store import Session, read_frames
 
 _POLL_S = 0.2  # how often a waiting run looks at should_stop
 

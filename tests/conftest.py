@@ -42,7 +42,7 @@ def main_window(qtbot):
     import pyqtgraph as pg
     from PySide6.QtCore import QCoreApplication, QEvent
 
-    from app.window import MainWindow
+    from app.qt.window import MainWindow
 
     pg.setConfigOptions(imageAxisOrder="row-major")
     before = set(_top_level_keys())

@@ -52,7 +52,8 @@ def _table(session_path, out_csv) -> list[dict]:
 
 
 def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
-    from app.sheet import format_angle, make_sheet
+    from app.review.text import angle_text
+    from app.sheet import make_sheet
     from core.store import Session
 
     out = tmp_path / "sheet.pdf"
@@ -68,7 +69,7 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
             cell = row[f"{side}_final_deg"]
             if cell:
                 finals += 1
-                assert format_angle(float(cell)) in text, (row["shot"], side, cell)
+                assert angle_text(float(cell)) in text, (row["shot"], side, cell)
     assert finals == 6  # s01 both (accepted), s02 both, s05 both (adjusted one side each)
     assert "17.2" in text or "17.3" in text  # the analyst's value, not the proposal
     assert "ADJUSTED" in text and "ball cut by the frame edge" in text
@@ -129,9 +130,10 @@ def test_summary_statistics():
     """Mean and sample SD (n-1) per group (derived: closed forms of the listed values)."""
     from app.sheet import summary_rows
     from core.store import Pick, ShotRecord
+    from core.summary import ShotSummary
 
     def rec(shot_id, seam, up, low):
-        summary = {"separation": {"upper_deg": up, "lower_deg": low}}
+        summary = ShotSummary.from_dict({"separation": {"upper_deg": up, "lower_deg": low}})
         return ShotRecord(shot_id, {"seam_deg": seam}, state="processed", summary=summary,
                           pick=Pick(status="accepted"))
 

@@ -14,7 +14,7 @@ from datetime import UTC, datetime
 from core import WakelineError, __version__
 
 # Each module adds its subcommands with add_commands(subparsers); each subcommand sets func.
-COMMAND_MODULES = ("app.cmd_pair", "app.cmd_session", "app.cmd_sheet")
+COMMAND_MODULES = ("app.cli.pair", "app.cli.session", "app.cli.sheet", "app.cli.demo")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -57,9 +57,9 @@ def main(argv: list[str] | None = None) -> int:
 
 def open_window() -> int:
     """The review window, or a one-line refusal where Qt has no screen to show it on."""
-    from app.sheet import has_display
+    from app.cli import display
 
-    if not has_display():
+    if not display.has_display():
         raise WakelineError(
             "no display to open the window on (DISPLAY is not set); the headless commands "
             "are listed by 'wakeline --help'"
@@ -82,6 +82,3 @@ def write_crash_log() -> str:
         return f"no log written: {exc.strerror}"
     return str(path)
 
-
-if __name__ == "__main__":
-    sys.exit(main())

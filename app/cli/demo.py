@@ -1,4 +1,4 @@
-"""`wakeline sheet` (the shot sheet PDF) and `wakeline demo` (the bundled demo session)."""
+"""`wakeline demo`: the bundled demo session, processed and reviewed, in the window or on paper."""
 
 from __future__ import annotations
 
@@ -8,10 +8,11 @@ import shutil
 import sys
 from pathlib import Path
 
-from app.cmd_session import whole_count
+from app.cli import display
+from app.cli.options import whole_count
 from core import WakelineError
 
-SAMPLE_RUNS = Path(__file__).resolve().parent.parent / "sample_runs"
+SAMPLE_RUNS = Path(__file__).resolve().parents[2] / "sample_runs"
 DEMO_SESSION = "demo_session.h5"
 DEMO_SHEET = "demo_sheet.pdf"
 DEMO_TABLE = "demo_table.csv"
@@ -21,32 +22,7 @@ DEMO_INPUTS = ("shots.csv", "truth.csv", "reviews.csv", "README.md")
 
 
 def add_commands(subparsers) -> None:
-    _add_sheet(subparsers)
     _add_demo(subparsers)
-
-
-def _add_sheet(subparsers) -> None:
-    p = subparsers.add_parser(
-        "sheet",
-        help="write the shot sheet of a session as PDF",
-        description="Write a vector PDF handing over a session: a cover page (counts by review "
-        "status, the overview plot of separation angles, a summary table of the final angles) "
-        "and a panel per shot (vorticity and vectors, ball, flight, separation marks, numbers, "
-        "metadata, review). Needs no display.",
-    )
-    p.add_argument("session", type=Path, help="session file (.h5)")
-    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.pdf",
-                   help="the PDF to write")
-    p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
-    p.add_argument("--per-page", type=int, default=2, choices=(1, 2, 3, 4), metavar="N",
-                   help="shot panels per page: 1, 2 (default), 3 or 4")
-    p.add_argument("--status", metavar="LIST",
-                   help="only shots with these review statuses, comma-separated, e.g. "
-                   "accepted,adjusted (statuses: to review, accepted, adjusted, unusable)")
-    p.add_argument("--column", metavar="NAME",
-                   help="numeric metadata column for the overview and the summary table "
-                   "(default: seam_deg when present)")
-    p.set_defaults(func=run_sheet)
 
 
 def _add_demo(subparsers) -> None:
@@ -69,24 +45,6 @@ def _add_demo(subparsers) -> None:
     p.set_defaults(func=run_demo)
 
 
-# --- sheet ---------------------------------------------------------------------------------------
-
-
-def run_sheet(args: argparse.Namespace) -> int:
-    from app.sheet import make_sheet, parse_statuses
-    from core.session import Session
-
-    statuses = parse_statuses(args.status)
-    with Session.open(args.session, writable=False) as session:
-        report = make_sheet(session, args.output, shot_ids=args.shots, per_page=args.per_page,
-                            statuses=statuses, column=args.column)
-    print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
-    return 0
-
-
-# --- demo ----------------------------------------------------------------------------------------
-
-
 def demo_dir(out: Path | None) -> Path:
     """The folder of the demo session (created)."""
     from core.paths import user_data_dir
@@ -102,12 +60,10 @@ def demo_dir(out: Path | None) -> Path:
 
 
 def run_demo(args: argparse.Namespace) -> int:
-    from app.sheet import has_display
-
     folder = demo_dir(args.out)
     session_path = prepare_demo(folder, fresh=args.fresh)
     process_demo(session_path, workers=args.workers)
-    if args.no_window or not has_display():
+    if args.no_window or not display.has_display():
         if not args.no_window:
             print("no display found: writing the shot sheet and the table instead of opening "
                   "the window")
@@ -123,7 +79,7 @@ def prepare_demo(folder: Path, fresh: bool = False) -> Path:
     Returns the session path. With ``fresh`` an earlier demo session in ``folder`` is removed
     first (only the files this command makes).
     """
-    from core.session import Session, import_folder
+    from core.store import Session, import_folder
 
     if not (SAMPLE_RUNS / "shots.csv").is_file():
         raise WakelineError(f"{SAMPLE_RUNS}: the bundled demo shots are missing (shots.csv)")
@@ -147,18 +103,11 @@ def prepare_demo(folder: Path, fresh: bool = False) -> Path:
 
 
 def _remove_demo_session(session_path: Path) -> None:
-    from core.session import Session, SessionLocked
+    """The demo session and its outputs; refused (SessionLocked) while a window has it open,
+    done for a damaged one (starting again is what --fresh is for)."""
+    from core.store import Session
 
-    if session_path.exists():
-        try:
-            Session.open(session_path).close()
-        except SessionLocked:
-            raise  # a window has it open: leave it alone
-        except WakelineError:
-            pass  # damaged: starting again is what --fresh is for
-    for suffix in ("", ".journal"):
-        session_path.with_name(session_path.name + suffix).unlink(missing_ok=True)
-    shutil.rmtree(session_path.with_name(session_path.name + ".pending"), ignore_errors=True)
+    Session.delete(session_path)
     for name in (DEMO_SHEET, DEMO_TABLE):
         (session_path.parent / name).unlink(missing_ok=True)
 
@@ -166,7 +115,7 @@ def _remove_demo_session(session_path: Path) -> None:
 def process_demo(session_path: Path, workers: int | None = None) -> None:
     """Process the shots not yet processed, then replay the invented reviews on untouched shots."""
     from core.batch import process_shots
-    from core.session import Session
+    from core.store import Session
 
     with Session.open(session_path) as session:
 
@@ -190,24 +139,26 @@ def replay_reviews(session, reviews_csv: Path) -> int:
     ``ACCEPT_TOLERANCE_DEG`` of the marks on both sides is accepted; otherwise the sides that are
     off are moved to the marks (adjusted). Returns the number of shots reviewed.
     """
+    from core.store import ProcessState, ReviewStatus
+
     if not reviews_csv.is_file():
         return 0
     applied = 0
     with open(reviews_csv, encoding="utf-8", newline="") as fh:
         for row in csv.DictReader(fh):
             shot_id = row["shot"]
-            if shot_id not in session.shot_ids() or session.history(shot_id):
+            if shot_id not in session or session.history(shot_id):
                 continue
-            record = session.record(shot_id)
-            if record.state != "processed":
+            record = session[shot_id]
+            if record.state != ProcessState.PROCESSED:
                 continue
             note = row.get("note") or None
             if row.get("unusable_reason"):
-                session.set_pick(shot_id, status="unusable", reason=row["unusable_reason"],
-                                 note=note, who=DEMO_REVIEWER)
+                session.set_pick(shot_id, status=ReviewStatus.UNUSABLE,
+                                 reason=row["unusable_reason"], note=note, who=DEMO_REVIEWER)
             else:
                 moved = _moved_sides(record, row)
-                status = "adjusted" if moved else "accepted"
+                status = ReviewStatus.ADJUSTED if moved else ReviewStatus.ACCEPTED
                 session.set_pick(shot_id, status=status, note=note, who=DEMO_REVIEWER, **moved)
             applied += 1
     return applied
@@ -232,7 +183,7 @@ def _moved_sides(record, row: dict) -> dict[str, float]:
 def write_demo_outputs(session_path: Path) -> int:
     """Write the demo's shot sheet and table next to the session and print their paths."""
     from app.sheet import make_sheet
-    from core.session import Session, write_table_csv
+    from core.store import Session, write_table_csv
 
     sheet_path = session_path.parent / DEMO_SHEET
     table_path = session_path.parent / DEMO_TABLE

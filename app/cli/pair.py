@@ -9,7 +9,10 @@ from pathlib import Path
 
 import numpy as np
 
+from app.review.text import summary_rows
 from core import WakelineError
+from core.store.files import atomic_write
+from core.summary import ShotSummary
 
 
 def add_commands(subparsers) -> None:
@@ -62,7 +65,7 @@ def run_pair(args: argparse.Namespace) -> int:
         _write_text(args.json, json.dumps(summary, indent=2) + "\n")
     if args.vectors:
         write_vectors_csv(args.vectors, result.field)
-    print(describe(summary))
+    print(describe(ShotSummary.from_dict(summary)))
     return 0
 
 
@@ -73,7 +76,8 @@ def _check_positive(value: float | None, option: str) -> None:
 
 def _write_text(path: Path, text: str) -> None:
     try:
-        path.write_text(text, encoding="utf-8")
+        with atomic_write(path) as tmp:
+            tmp.write_text(text, encoding="utf-8")
     except OSError as exc:
         raise WakelineError(f"{path}: cannot write ({exc.strerror})") from None
 
@@ -81,7 +85,7 @@ def _write_text(path: Path, text: str) -> None:
 def write_vectors_csv(path: Path, field) -> None:
     """CSV of every grid vector (masked ones as NaN with valid 0), image coordinates, px."""
     try:
-        with open(path, "w", newline="", encoding="utf-8") as fh:
+        with atomic_write(path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
             writer = csv.writer(fh)
             writer.writerow(["x_px", "y_px", "dx_px", "dy_px", "valid"])
             for x, y, dx, dy, ok in zip(
@@ -93,33 +97,8 @@ def write_vectors_csv(path: Path, field) -> None:
         raise WakelineError(f"{path}: cannot write ({exc.strerror})") from None
 
 
-def describe(summary: dict) -> str:
-    """A few human lines about a shot's result."""
-    v = summary["vectors"]
-    counts = (f"vectors: {v['valid']} valid, {v['replaced']} replaced, {v['masked']} masked "
-              f"of {v['count']} ({v['window_px']} px windows, {v['spacing_px']:g} px apart)")
-    lines = [counts]
-    ball = summary.get("ball")
-    if ball:
-        cx, cy = ball["center_px"]
-        lines.append(f"ball: centre ({cx:.2f}, {cy:.2f}) px, radius {ball['radius_px']:.2f} px")
-    flight = summary.get("flight")
-    if flight:
-        speed = flight.get("speed_m_s")
-        speed_text = "speed unknown (give --dt and a scale)" if speed is None else f"{speed:.2f} m/s"
-        lines.append(f"flight: {flight['direction_deg']:.2f} deg, {speed_text}")
-    sep = summary.get("separation") or {}
-    for side in ("upper", "lower"):
-        rec = sep.get(side) or {}
-        if rec.get("angle_deg") is None:
-            if ball:
-                lines.append(f"{side} separation: none proposed ({rec.get('reason') or 'no reason given'})")
-        else:
-            unc = rec.get("uncertainty_deg")
-            unc_text = "" if unc is None else f" +- {unc:.1f}"
-            lines.append(f"{side} separation: {rec['angle_deg']:.1f}{unc_text} deg")
-    if ball:
-        lines.append(f"wake: {sep.get('wake_state', 'undetermined')}")
-    for warning in summary.get("warnings", []):
-        lines.append(f"warning: {warning}")
+def describe(summary: ShotSummary) -> str:
+    """A few human lines about a shot's result (the words of ``app.review.text``)."""
+    lines = [f"{label}: {text}" for label, text in summary_rows(summary)]
+    lines += [f"warning: {warning}" for warning in summary.warnings]
     return "\n".join(lines)

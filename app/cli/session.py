@@ -8,6 +8,7 @@ import signal
 import sys
 from pathlib import Path
 
+from app.cli.options import whole_count
 from core import WakelineError
 
 
@@ -74,18 +75,8 @@ def _add_table(subparsers) -> None:
     p.set_defaults(func=run_table)
 
 
-def whole_count(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"{value} (use 0 or more)")
-    return value
-
-
 def run_import(args: argparse.Namespace) -> int:
-    from core.session import import_folder
+    from core.store import import_folder
 
     if not args.src_dir.is_dir():
         raise WakelineError(f"{args.src_dir}: folder not found")
@@ -117,7 +108,7 @@ class _StopFlag:
 
 def run_process(args: argparse.Namespace) -> int:
     from core.batch import plan_shots, process_shots
-    from core.session import Session
+    from core.store import Session
 
     with Session.open(args.session) as session:
         if args.settings is not None:
@@ -180,7 +171,7 @@ def _process_summary(path: Path, report) -> int:
 
 
 def run_table(args: argparse.Namespace) -> int:
-    from core.session import Session, write_table_csv
+    from core.store import Session, write_table_csv
 
     with Session.open(args.session, writable=False) as session:
         count = write_table_csv(session, args.output)
