@@ -133,13 +133,11 @@ def test_compacting_during_a_run_keeps_the_frames_workers_may_still_read(tmp_pat
                        embed=True)
         source = s.frame_source("S1")  # what a worker task of a running batch holds
         assert ".pending" in source["file"]
-        s.active_runs += 1  # as iter_process does while it runs
-        s.compact()  # the window may save while shots are being processed
-        assert read_frames("S1", source)[0].shape == (192, 256)
-        s.active_runs -= 1
+        with s.batch_run():  # as iter_process runs
+            s.compact()  # the window may save while shots are being processed
+            assert read_frames("S1", source)[0].shape == (192, 256)
         s.set_processing_settings(fast_settings())
         assert all(o.ok for o in iter_process(s, workers=0))
-        assert s.active_runs == 0
     with Session.open(tmp_path / "e.h5", writable=False) as s:
         assert _median_shift(s.load_result("S1")) == pytest.approx(shift_of(1), abs=0.1)
     assert not (tmp_path / "e.h5.pending").exists()

@@ -369,7 +369,7 @@ def test_reader_opening_during_a_compaction_sees_a_consistent_session(session_pa
     writer = Session.open(session_path)
     writer.save_result("S0", fake_result(writer.settings_for("S0"), 3.0))
     writer.set_pick("S0", status="accepted")
-    real_read = store._read_snapshot
+    real_read = store.read_snapshot
     calls = []
 
     def read_then_writer_compacts(path):
@@ -379,7 +379,7 @@ def test_reader_opening_during_a_compaction_sees_a_consistent_session(session_pa
         calls.append(path)
         return snapshot
 
-    monkeypatch.setattr(store, "_read_snapshot", read_then_writer_compacts)
+    monkeypatch.setattr(store, "read_snapshot", read_then_writer_compacts)
     with Session.open(session_path, writable=False) as reader:
         assert len(calls) == 2  # read again after seeing the file change
         assert reader["S0"].pick.status == "accepted"
@@ -388,9 +388,9 @@ def test_reader_opening_during_a_compaction_sees_a_consistent_session(session_pa
 
 
 def test_stale_lock_removal_puts_back_a_lock_taken_meanwhile(session_path):
-    from core.store import _Lock
+    from core.store.lock import Lock
 
-    lock = _Lock(session_path)
+    lock = Lock(session_path)
     fresh = {"host": socket.gethostname(), "pid": os.getpid(), "since": "now"}
     lock.path.write_text(json.dumps(fresh))  # another opener won the race a moment ago
     lock._remove_stale({"host": socket.gethostname(), "pid": 999999999, "since": "long ago"})

@@ -14,7 +14,7 @@ from PySide6.QtWidgets import QApplication
 from core.geometry import angle_of_point, point_at_angle
 from core.store import Session
 
-# The offscreen platform warns that it cannot propagate size hints; harmless (QT_HEADLESS.md).
+# The offscreen platform warns that it cannot propagate size hints; harmless (DEVELOPERS.md).
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
 
 
