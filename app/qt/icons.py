@@ -13,7 +13,7 @@ from app.review.model import ProcessState, ReviewStatus
 
 def _icon_dir() -> Path:
     """icons/ of the source tree (checkout or editable install), else where a wheel puts it."""
-    source = Path(__file__).resolve().parent.parent / "icons"
+    source = Path(__file__).resolve().parents[2] / "icons"
     installed = Path(sys.prefix) / "share" / "wakeline" / "icons"
     return source if source.is_dir() else installed
 

@@ -114,7 +114,7 @@ def triangle(p, centre: QtCore.QPointF, up: bool, colour: str, filled: bool,
 
 
 
-def arrow(p, a: QtCore.QPointF, b: QtCore.QPointF, head_mm: float = 0.8) -> None:
+def draw_arrow(p, a: QtCore.QPointF, b: QtCore.QPointF, head_mm: float = 0.8) -> None:
     dx, dy = b.x() - a.x(), b.y() - a.y()
     length = math.hypot(dx, dy)
     if length < mm(0.15):

@@ -20,7 +20,7 @@ from app.sheet.content import (
     side_detail,
     timing_text,
 )
-from app.sheet.kit import PANEL_GAP_MM, arrow, mm, pen, qcolor, rect_mm, round_length, text
+from app.sheet.kit import PANEL_GAP_MM, draw_arrow, mm, pen, qcolor, rect_mm, round_length, text
 from core.geometry import flight_unit, point_at_angle, side_normal
 from core.store import ReviewStatus
 
@@ -184,7 +184,7 @@ def _paint_vectors(p, view: _View, result, box) -> tuple[float, float] | None:
     length_px = 0.9 * stride * float(vf.spacing_px)  # image px for the reference speed
     p.setPen(pen("#111111", 0.18))
     for xv, yv, uv, vv in zip(xs[inside], ys[inside], us[inside], vs[inside]):
-        arrow(p, view(xv, yv), view(xv + uv / ref * length_px, yv + vv / ref * length_px))
+        draw_arrow(p, view(xv, yv), view(xv + uv / ref * length_px, yv + vv / ref * length_px))
     return ref, length_px * view.scale
 
 
@@ -208,7 +208,7 @@ def _paint_ball(p, view: _View, record, result) -> None:
     p.setPen(pen(colours.PLANE_LINE, 0.3, QtCore.Qt.PenStyle.DashLine))
     p.drawLine(view(cx - 1.5 * rr * nx, cy - 1.5 * rr * ny), view(cx + 1.5 * rr * nx, cy + 1.5 * rr * ny))
     p.setPen(pen(colours.FLIGHT_ARROW, 0.45))
-    arrow(p, view(cx + 0.15 * rr * fx, cy + 0.15 * rr * fy),
+    draw_arrow(p, view(cx + 0.15 * rr * fx, cy + 0.15 * rr * fy),
            view(cx + 0.85 * rr * fx, cy + 0.85 * rr * fy), head_mm=1.6)
     for side, colour in (("upper", colours.UPPER_SIDE), ("lower", colours.LOWER_SIDE)):
         _paint_mark(p, view, ball, d, side, record, colour)
@@ -289,7 +289,7 @@ def _paint_field_legend(p, x: float, y: float, limit: float, view: _View, result
         speed, length = arrow
         left = mm(x + 78)
         p.setPen(pen("#111111", 0.25))
-        arrow(p, QtCore.QPointF(left, mm(y + 2.2)), QtCore.QPointF(left + length, mm(y + 2.2)))
+        draw_arrow(p, QtCore.QPointF(left, mm(y + 2.2)), QtCore.QPointF(left + length, mm(y + 2.2)))
         unit = "m/s" if result.u_m_s is not None else "px"
         text(p, QtCore.QRectF(left, mm(y + 3.6), mm(30), mm(4)), f"{speed:.3g} {unit}", small,
              colour=colours.MUTED_INK)

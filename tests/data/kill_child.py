@@ -10,6 +10,7 @@ from __future__ import annotations
 import os
 import sys
 
+import core.piv  # noqa: F401 - the measurement loaded before "open", as in a writer that runs
 from core.batch import iter_process
 from core.store import Session
 
