@@ -320,9 +320,32 @@ def test_bad_picks_are_refused_and_nothing_is_written(session_path, kwargs, mess
         assert s.history("S0") == [] and s["S0"].pick == Pick()
 
 
+def test_a_session_is_a_mapping_of_shot_records(session_path):
+    with Session.open(session_path, writable=False) as s:
+        assert "S1" in s and "S9" not in s and len(s) == 3
+        assert list(s) == ["S0", "S1", "S2"] and [r.shot_id for r in s.values()] == list(s)
+        assert s.get("S9") is None and s.get("S1").metadata["seam_deg"] == 10.0
+        with pytest.raises(KeyError):
+            s["S9"]
+        s["S1"].metadata["seam_deg"] = 99.0  # a copy: the session is not changed through it
+        assert s["S1"].metadata["seam_deg"] == 10.0
+
+
+def test_delete_removes_a_session_with_its_companion_files(session_path):
+    s = Session.open(session_path)
+    s.set_pick("S0", status="accepted")
+    with pytest.raises(SessionLocked):  # not while it is open for writing
+        Session.delete(session_path)
+    s._journal.close()  # as if the process died: its journal is left behind
+    s._lock.release()
+    session_path.with_name("s.h5.tmp").write_bytes(b"half a snapshot")
+    Session.delete(session_path)
+    assert sorted(p.name for p in session_path.parent.iterdir()) == ["src"]
+
+
 def test_unknown_shot_is_named(session_path):
     with Session.open(session_path, writable=False) as s, pytest.raises(
-        WakelineError, match="shot S9: not in s.h5"
+        WakelineError, match="^shot S9: not in s.h5$"
     ):
         s["S9"]
 

@@ -177,8 +177,8 @@ def final_text(record: ShotRecord, side: str) -> str:
     """The angle to report on ``side``, marked when the analyst moved it; why there is none."""
     final = record.final_deg(side)
     if final is None:
-        return {ReviewStatus.UNUSABLE: f"{MISSING} (unusable)",
-                ReviewStatus.TO_REVIEW: f"{MISSING} (not reviewed)"}.get(record.pick.status, MISSING)
+        why = {ReviewStatus.UNUSABLE: " (unusable)", ReviewStatus.TO_REVIEW: " (not reviewed)"}
+        return MISSING + why.get(record.pick.status, "")
     return angle_text(final) + ("  ADJUSTED" if moved_by_analyst(record, side) else "")
 
 

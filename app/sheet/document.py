@@ -132,7 +132,8 @@ def _paint_shot_pages(pages: Pages, session, records, per_page: int, progress) -
             last = records[min(index + per_page, len(records)) - 1].shot_id
             pages.new_page(f"shots {first} - {last}" if first != last else f"shot {first}")
             cells = panel_cells(per_page, pages.body())
-        result = session.load_result(record.shot_id) if record.state == ProcessState.PROCESSED else None
+        processed = record.state == ProcessState.PROCESSED
+        result = session.load_result(record.shot_id) if processed else None
         paint_shot(pages.painter, cells[slot], record, result)
         if progress is not None:
             progress(index + 1, len(records))
