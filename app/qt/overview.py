@@ -100,7 +100,7 @@ class SessionOverview(QtWidgets.QWidget):
 
     # public ---------------------------------------------------------------------------------
     def set_records(self, records) -> None:
-        """Show these shot records (``core.session.ShotRecord``), keeping the chosen column."""
+        """Show these shot records (``core.store.ShotRecord``), keeping the chosen column."""
         self._records = list(records)
         columns = numeric_columns(self._records) if self._records else [SHOT_ORDER]
         wanted = self._chosen_column or default_column(self._records or [])

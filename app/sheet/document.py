@@ -48,7 +48,7 @@ def make_sheet(
 
     Parameters
     ----------
-    session : core.session.Session
+    session : core.store.Session
         An open session (read-only is enough).
     out_path : path
         The PDF to write (replaced atomically when complete).
