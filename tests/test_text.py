@@ -11,8 +11,8 @@ from app.review.text import (
     angle_text,
     flight_text,
     proposal_text,
+    shot_rows,
     speed_text,
-    summary_rows,
     vectors_text,
     wake_text,
 )
@@ -52,7 +52,7 @@ def test_pair_prints_the_rows_of_the_formatter():
     from app.cli.pair import describe
 
     lines = describe(SUMMARY).splitlines()
-    assert lines[:-1] == [f"{label}: {text}" for label, text in summary_rows(SUMMARY)]
+    assert lines[:-1] == [f"{label}: {text}" for label, text in shot_rows(SUMMARY)]
     assert "flight: 178.2° at 30.1 m/s" in lines and lines[-1] == "warning: first warning"
 
 

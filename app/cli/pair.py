@@ -9,7 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
-from app.review.text import summary_rows
+from app.review.text import shot_rows
 from core import WakelineError
 from core.store.files import atomic_write
 from core.summary import ShotSummary
@@ -99,6 +99,6 @@ def write_vectors_csv(path: Path, field) -> None:
 
 def describe(summary: ShotSummary) -> str:
     """A few human lines about a shot's result (the words of ``app.review.text``)."""
-    lines = [f"{label}: {text}" for label, text in summary_rows(summary)]
+    lines = [f"{label}: {text}" for label, text in shot_rows(summary)]
     lines += [f"warning: {warning}" for warning in summary.warnings]
     return "\n".join(lines)

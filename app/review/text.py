@@ -99,7 +99,7 @@ def vectors_text(vectors: VectorCounts) -> str:
     return out
 
 
-def summary_rows(summary: ShotSummary) -> list[tuple[str, str]]:
+def shot_rows(summary: ShotSummary) -> list[tuple[str, str]]:
     """``(label, text)`` rows of a shot's numbers, most important first; rows with nothing to
     tell (no ball: no separation, wake or ball) are left out."""
     rows = []
