@@ -109,10 +109,13 @@ def _run_blocked(blocked: tuple[str, ...], body: str) -> subprocess.CompletedPro
                           capture_output=True, text=True, timeout=120)
 
 
+def _import_all(modules: list[str]) -> str:
+    return f"import importlib\nfor m in {modules!r}:\n    importlib.import_module(m)\n"
+
+
 def test_core_imports_without_qt():
     modules = sorted(n for n in _modules() if _within(n, "core"))
-    done = _run_blocked((*QT, "app"),
-                        f"import importlib\nfor m in {modules!r}:\n    importlib.import_module(m)\n")
+    done = _run_blocked((*QT, "app"), _import_all(modules))
     assert done.returncode == 0, done.stderr
 
 
@@ -120,8 +123,7 @@ def test_the_store_reads_a_session_and_its_results_without_the_piv_stack():
     modules = sorted(n for n in _modules() if _within(n, "core.store"))
     v1 = ROOT / "tests" / "data" / "session_v1.h5"
     body = (
-        f"import importlib\nfor m in {modules!r}:\n    importlib.import_module(m)\n"
-        "from core.store import Session\n"
+        _import_all(modules) + "from core.store import Session\n"
         f"with Session.open({str(v1)!r}, writable=False) as s:\n"
         "    assert s.load_result('R1').field.dx_px.ndim == 2\n"
         "    assert s['R1'].summary.proposed_deg('upper') is not None\n"

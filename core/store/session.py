@@ -256,7 +256,8 @@ class Session(SnapshotWriting, Mapping):
     def needs_processing(self, shot_id: str) -> bool:
         """True unless the shot was processed successfully with its current settings."""
         rec = self._get(shot_id)
-        return rec.state != ProcessState.PROCESSED or rec.fingerprint != self.settings_for(shot_id).fingerprint()
+        current = self.settings_for(shot_id).fingerprint()
+        return rec.state != ProcessState.PROCESSED or rec.fingerprint != current
 
     def frame_source(self, shot_id: str) -> dict:
         """Where a worker finds the frames: absolute paths and checksums, or an HDF5 location.
@@ -406,8 +407,9 @@ class Session(SnapshotWriting, Mapping):
                           "fingerprint": fingerprint, "version": __version__, "t": now_utc()})
 
     def set_pick(
-        self, shot_id: str, *, status: ReviewStatus | str | None = None, upper_deg=_UNSET, lower_deg=_UNSET,
-        reason: str | None = None, note: str | None = None, who: str | None = None,
+        self, shot_id: str, *, status: ReviewStatus | str | None = None, upper_deg=_UNSET,
+        lower_deg=_UNSET, reason: str | None = None, note: str | None = None,
+        who: str | None = None,
     ) -> Pick:
         """Edit the analyst's pick. Arguments left out keep their value; ``upper_deg=None``
         clears it. The edit is on disk (journal, fsynced) when this returns.
