@@ -47,8 +47,7 @@ class SideGeometry:
 
     radius_px: float
     phi_grid: np.ndarray  # (P,) deg
-    gap: np.ndarray  # (S,) px, samples in phi-major order, len(gap) = P * G
-    gap_count: int
+    gap_grid: np.ndarray  # (G,) px: the samples are the grid's P x G points, phi-major
     final_deg: float = 0.0  # the wake's direction on this side, from the rearward axis
 
 
@@ -118,9 +117,13 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
         angle), ``relax`` (L / R), ``log_delta`` (ln of the vorticity thickness at separation,
         px), ``spread`` (d delta / ds), ``reverse`` (r), ``drop`` (a), ``k_t``, ``k_r``
         (scales of the outer stream's components).
-    u_t_outer, u_r_outer : (S,) ndarray
+    u_t_outer, u_r_outer : (P * G,) ndarray
         The stream outside the layer at the samples.
     shape : {"erf", "quartic"}
+
+    Returns
+    -------
+    u_t, u_r : (P * G,) ndarray
     """
     phi_s, slope, relax, log_delta, spread, reverse, drop, k_t, k_r = params
     r = geom.radius_px
@@ -132,15 +135,15 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
     c = centre_offset(reverse, shape)
     ahead = np.clip(phi_s - phi, 0.0, None)
     sink = np.where(phi < phi_s, drop * -np.expm1(-ahead / UPSTREAM_DEG), 0.0)
-    centre = lift + c * (delta - delta_s * sink)
-    rise = np.gradient(lift, np.radians(phi) * r)  # dZ/ds along the outline
-    n = geom.gap_count
-    centre, delta, rise = (np.repeat(v, n) for v in (centre, delta, rise))
-    gap = geom.gap
+    centre = (lift + c * (delta - delta_s * sink))[:, None]
+    rise = np.gradient(lift, np.radians(phi) * r)[:, None]  # dZ/ds along the outline
+    delta = delta[:, None]
+    gap = geom.gap_grid[None, :]
     across = profile((gap - centre) / delta, shape)
     s_prof = -reverse + (1.0 + reverse) * across
     wall = -np.expm1(-gap / (WALL_FRACTION * delta_s))
-    u_t = k_t * u_t_outer * s_prof * wall
+    shape_pg = (phi.size, gap.size)
+    u_t = k_t * u_t_outer.reshape(shape_pg) * s_prof * wall
     inside = 1.0 - profile((gap - centre - delta) / delta, shape)
-    u_r = k_r * u_r_outer * across * wall + u_t * rise * inside
-    return u_t, u_r
+    u_r = k_r * u_r_outer.reshape(shape_pg) * across * wall + u_t * rise * inside
+    return u_t.ravel(), u_r.ravel()

@@ -17,6 +17,7 @@ flight, positive rearward) on the band's side, ``gap`` the distance outside the 
 
 from __future__ import annotations
 
+import copy
 import math
 from dataclasses import dataclass
 
@@ -90,10 +91,7 @@ class NearWallBand:
         fine = np.arange(gap_px[0], min(gap_px[1], FINE_GAP_PX) + gap_step_px / 2, gap_step_px)
         coarse = np.arange(fine[-1] + 2 * gap_step_px, gap_px[1] + gap_step_px, 2 * gap_step_px)
         self.gap_grid = np.concatenate([fine, coarse])
-        grid_phi, grid_gap = np.meshgrid(self.phi_grid, self.gap_grid, indexing="ij")
-        self.phi = grid_phi.ravel()
-        self.gap = grid_gap.ravel()
-        self.rho = r + self.gap
+        self._set_samples(self.phi_grid, self.gap_grid)
         height, width = frame_a.shape
         (ex, ey), _ = side_axes(ball.flight_deg, side, self.phi)
         x = ball.center_px[0] + self.rho * ex
@@ -114,6 +112,23 @@ class NearWallBand:
                                       phi_axis)
         self.scale = float(np.std(self.polar_a)) + 1e-9
         self._rad_per_deg = math.radians(1.0)
+
+    def _set_samples(self, phi_grid: np.ndarray, gap_grid: np.ndarray) -> None:
+        self.phi_grid, self.gap_grid = phi_grid, gap_grid
+        grid_phi, grid_gap = np.meshgrid(phi_grid, gap_grid, indexing="ij")
+        self.phi = grid_phi.ravel()
+        self.gap = grid_gap.ravel()
+        self.rho = self.ball.radius_px + self.gap
+
+    def view(self, phi_deg=None, *, every: int = 1) -> NearWallBand:
+        """The same band (same resampled frames) with fewer samples: the angles within
+        ``phi_deg`` only, and every ``every``-th angle and gap row."""
+        phi = self.phi_grid
+        if phi_deg is not None:
+            phi = phi[(phi >= phi_deg[0]) & (phi <= phi_deg[1])]
+        other = copy.copy(self)
+        other._set_samples(phi[::every], self.gap_grid[::every])
+        return other
 
     @property
     def shape(self) -> tuple[int, int]:

@@ -76,6 +76,10 @@ PRIOR_DROP = (0.0, 0.7)
 PRIOR_WALL = 0.02
 #: Prior on the layer's turning length over the radius: median and sd of ``ln(L / R)``.
 PRIOR_RELAX = (1.0, 0.7)
+#: The coarse search uses every ``COARSE_EVERY``-th angle and gap row of the band; the
+#: refinement the band's samples within ``FIT_WINDOW_DEG`` of its start.
+COARSE_EVERY = 2
+FIT_WINDOW_DEG = (-25.0, 40.0)
 #: Thicknesses (over the prior's median) tried by the coarse search.
 COARSE_THICKNESS = (1.0, 2.5, 6.0)
 #: Refinements run from this many starting points of the coarse search (the best wins): the
@@ -292,11 +296,22 @@ class SideProblem:
     """Everything one side's fit needs: the band, the outer stream at its samples, the priors."""
 
     band: NearWallBand
-    geom: SideGeometry
-    u_t: np.ndarray
-    u_r: np.ndarray
+    outer: OuterStream
+    final_deg: float  # the wake's direction on this side
     log_delta_prior: float  # ln of the prior median thickness (px)
     sigma: float = 1.0  # residual scale
+
+    def __post_init__(self):
+        self.geom = SideGeometry(self.band.ball.radius_px, self.band.phi_grid,
+                                 self.band.gap_grid, self.final_deg)
+        self.u_t = self.outer.tangential(self.band.phi, self.band.gap)
+        self.u_r = self.outer.radial(self.band.phi, self.band.gap)
+
+    def view(self, phi_deg=None, *, every: int = 1) -> SideProblem:
+        """The same problem on fewer samples (:meth:`NearWallBand.view`); the residual scale
+        follows the decimation so that the data weigh the same against the priors."""
+        return SideProblem(self.band.view(phi_deg, every=every), self.outer, self.final_deg,
+                           self.log_delta_prior, self.sigma / every)
 
     def flow(self, params, shape="erf", geom=None):
         return side_flow(geom or self.geom, params, self.u_t, self.u_r, shape)
@@ -345,9 +360,7 @@ def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px
                         gap_px=(BAND_FIRST_GAP_PX, last_gap), max_speed_px=2.0 * ball.stream)
     if band.inside_fraction < MIN_INSIDE_FRACTION:
         return "the image edge cuts the band next to the ball on this side"
-    geom = SideGeometry(ball.radius_px, band.phi_grid, band.gap, band.gap_grid.size, final_deg)
-    return SideProblem(band, geom, outer.tangential(band.phi, band.gap),
-                       outer.radial(band.phi, band.gap), math.log(delta_prior))
+    return SideProblem(band, outer, final_deg, math.log(delta_prior))
 
 
 def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str, *,
@@ -371,17 +384,22 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
     # residual scale: neighbouring samples are correlated, so one independent value per
     # SAMPLES_PER_INDEPENDENT samples
     problem.sigma = math.sqrt(attached_cost / attached.size * SAMPLES_PER_INDEPENDENT) + 1e-12
-    starts, start_cost = _coarse_search(problem)
-    if not start_cost < (1.0 - MIN_IMPROVEMENT) * attached_cost:
+    coarse = problem.view(every=COARSE_EVERY)
+    starts, start_cost = _coarse_search(coarse)
+    coarse_attached = float(np.sum(coarse.band.residual(coarse.u_t, coarse.u_r) ** 2))
+    if not start_cost < (1.0 - MIN_IMPROVEMENT) * coarse_attached:
         return SideProposal(None, None, 0.0, "no separated shear layer next to the ball "
                             "(the attached-flow model fits as well: attached flow?)")
-    fits = [_refine(problem, start) for start in starts]
-    best = min(fits, key=lambda fit: fit.cost)
+    fits = []
+    for start in starts:
+        near = problem.view((start[0] + FIT_WINDOW_DEG[0], start[0] + FIT_WINDOW_DEG[1]))
+        fits.append((_refine(near, start), near))
+    best, near = min(fits, key=lambda item: item[0].cost)
     phi_s = float(best.params[0])
     if phi_s > BAND_DEG[1] - REAR_MARGIN_DEG:
         return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "
                             "(attached flow?)")
-    budget = _uncertainty_budget(problem, best, ball)
+    budget = _uncertainty_budget(near, best, ball)
     standard = math.sqrt(sum(v * v for v in budget.values()))
     uncertainty = COVERAGE_K * standard
     gain = 1.0 - start_cost / attached_cost
@@ -471,7 +489,7 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dic
         moved = []
         for sign in (-1.0, 1.0):
             geom = replace(problem.geom, radius_px=problem.geom.radius_px + sign * radius_sd,
-                           gap=problem.geom.gap - sign * radius_sd)
+                           gap_grid=problem.geom.gap_grid - sign * radius_sd)
             moved.append(_refine(problem, best.params, geom=geom, max_nfev=25).params[0])
         budget["circle"] = 0.5 * abs(moved[1] - moved[0])
     budget["flight"] = float(ball.flight_sigma_deg)

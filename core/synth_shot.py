@@ -128,11 +128,15 @@ class BallWakeFlow:
         rx = np.asarray(x_px, dtype=np.float64) - self.center_px[0]
         ry = np.asarray(y_px, dtype=np.float64) - self.center_px[1]
         ux, uy = self._potential(rx, ry)
-        w = self.wake_weight(x_px, y_px)
+        w, follow = self._layers(rx, ry)
         keep = 1.0 - w * (1.0 + self._reverse(rx, ry))
         fx, fy = -self.displacement_px[0], -self.displacement_px[1]
         ux = keep * ux + w * self.wake_speed_fraction * fx
         uy = keep * uy + w * self.wake_speed_fraction * fy
+        for (tx, ty), gain in follow:  # the flow in a lifted layer runs along it
+            along = (ux * tx + uy * ty) * gain
+            rho = np.maximum(np.hypot(rx, ry), 1e-9)
+            ux, uy = ux + along * rx / rho, uy + along * ry / rho
         if self.no_slip_px > 0:
             gap = np.clip(np.hypot(rx, ry) - self.radius_px, 0.0, None)
             damp = -np.expm1(-gap / self.no_slip_px)
@@ -201,10 +205,21 @@ class BallWakeFlow:
         """1 inside the wake, 0 in the free stream (smooth across each shear layer)."""
         rx = np.asarray(x_px, dtype=np.float64) - self.center_px[0]
         ry = np.asarray(y_px, dtype=np.float64) - self.center_px[1]
+        return self._layers(rx, ry)[0]
+
+    def _layers(self, rx, ry):
+        """Wake weight and, per side, how the flow turns to follow the lifted layer.
+
+        Returns the weight (1 inside the wake, 0 in the free stream) and a list of
+        ``((tx, ty), gain)``: the side's rearward tangent and ``tan`` of the layer's angle to it,
+        faded out away from the layer (zero ahead of its start and without reverse flow, the
+        older form of this family): the flow there gains a radial part ``gain * u_t``.
+        """
         if self.upper_deg is None or self.lower_deg is None:
-            return np.zeros(np.shape(rx))
+            return np.zeros(np.shape(rx)), []
         fx, fy = flight_unit(self.flight_deg)
         weight = np.ones(np.shape(rx))
+        follow = []
         bend = self.bend_px if self.bend_px is not None else 0.8 * self.radius_px
         for side, angle, leave, final in (
             ("upper", self.upper_deg, self.leave_deg[0], self.wake_deflection_deg),
@@ -215,9 +230,18 @@ class BallWakeFlow:
             zeta = rx * nx + ry * ny
             layer = _Layer.build(self.radius_px, angle, leave, final, bend)
             d = layer.outward_distance(xi, zeta)
-            half_width = self.layer_px + 0.5 * self.spread_rate * layer.arc_length(xi)
-            weight *= 0.5 * (1.0 - np.tanh(d / half_width - self._centre_offset()))
-        return weight
+            arc = layer.arc_length(xi)
+            half_width = self.layer_px + 0.5 * self.spread_rate * arc
+            offset = self._centre_offset()
+            weight *= 0.5 * (1.0 - np.tanh(d / half_width - offset))
+            if offset > 0:
+                phi = np.arctan2(xi, zeta)
+                heading = np.interp(xi, layer.xi_px, layer.heading_rad)
+                near = 0.5 * (np.tanh(d / half_width + 2.0) - np.tanh(d / half_width - offset - 2.0))
+                gain = np.where(arc > 0, np.tan(heading + phi) * near, 0.0)
+                tangent = (-np.cos(phi) * fx - np.sin(phi) * nx, -np.cos(phi) * fy - np.sin(phi) * ny)
+                follow.append((tangent, gain))
+        return weight, follow
 
 
 def ball_shot(
