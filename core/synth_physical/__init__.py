@@ -5,6 +5,12 @@ on a published surface velocity, the free shear layers spread at the mixing-laye
 recirculates and travels with the ball in the lab frame.
 """
 
-from core.synth_physical.shot import PhysicalShotTruth, air_kinematic_viscosity, physical_flow, physical_shot
+from core.synth_physical.shot import (
+    PhysicalShotTruth,
+    air_kinematic_viscosity,
+    physical_cases,
+    physical_flow,
+    physical_shot,
+)
 
-__all__ = ["PhysicalShotTruth", "air_kinematic_viscosity", "physical_flow", "physical_shot"]
+__all__ = ["PhysicalShotTruth", "air_kinematic_viscosity", "physical_cases", "physical_flow", "physical_shot"]

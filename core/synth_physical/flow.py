@@ -31,7 +31,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.ndimage import map_coordinates
+from scipy.ndimage import gaussian_filter1d, map_coordinates
 from scipy.special import erf
 
 from core.geometry import flight_unit, upper_normal
@@ -40,9 +40,11 @@ from core.synth_physical.boundary_layer import FalknerSkanTable, falkner_skan_ta
 SQRT_PI = math.sqrt(math.pi)
 #: Surface arc (in layer thicknesses delta99 at separation) over which the frozen separating
 #: profile hands over to the free shear layer.
-HANDOVER_DELTA99 = 3.0
+HANDOVER_DELTA99 = 4.0
 #: Arc (rad) behind separation over which the reverse flow under the layer builds up.
 REVERSE_ONSET_RAD = 0.25
+#: Arc (rad) over which the outer slip's slope at separation dies out behind it.
+SLIP_SETTLE_RAD = 0.1
 
 
 class UniformTable:
@@ -58,11 +60,12 @@ class UniformTable:
         self.rows = np.atleast_2d(np.asarray(rows, dtype=np.float64))
         self.last = self.rows.shape[1] - 1
 
-    def __call__(self, x: np.ndarray) -> np.ndarray:
+    def __call__(self, x: np.ndarray, rows: slice = slice(None)) -> np.ndarray:
         pos = np.clip((np.asarray(x, dtype=np.float64) - self.x0) / self.dx, 0.0, self.last)
         i = np.minimum(pos.astype(np.intp), self.last - 1)
         frac = pos - i
-        return self.rows[:, i] * (1.0 - frac) + self.rows[:, i + 1] * frac
+        table = self.rows[rows]
+        return table[:, i] * (1.0 - frac) + table[:, i + 1] * frac
 
 
 def _resample(x: np.ndarray, rows: list[np.ndarray], points: int) -> UniformTable:
@@ -158,6 +161,7 @@ class SideFlow:
         theta_eta = np.interp(self.profile_index, np.arange(table.wall_shear.size), table.theta)
         self.length_px = theta_px / theta_eta  # y = length * eta
         self.attached_table = _resample(layer.t, [self.length_px, self.profile_index], 2048)
+        self.attached_reach_px = float(self.length_px.max()) * float(table.eta[-1])
         sep_len = float(self.length_px[-1])
         self.theta_sep_px = float(theta_px[-1])
         self.delta99_sep_px = sep_len * float(table.delta99[0])
@@ -184,11 +188,18 @@ class SideFlow:
         ue = ue * self.speed_px
         potential = 1.5 * self.speed_px * np.sin(t)
         after = t > self.t_sep
-        # constant pressure along the free streamline, fading to the potential value at the rear
-        ramp = np.clip((t - self.t_sep) / (math.pi - self.t_sep), 0.0, 1.0)
+        # about constant pressure along the free streamline: the slope at separation dies out
+        # over SLIP_SETTLE_RAD (so the slip and the flow stay smooth across the separation ray),
+        # then the slip fades to the potential value at the rear axis, inside the wake
+        _, slope = blended_surface_velocity(np.array([self.t_sep]), self.spec.measured_weight)
+        beyond = np.clip(t - self.t_sep, 0.0, None)
+        settled = self.ue_sep_px + float(slope[0]) * self.speed_px * SLIP_SETTLE_RAD * -np.expm1(
+            -beyond / SLIP_SETTLE_RAD)
+        ramp = np.clip(beyond / (math.pi - self.t_sep), 0.0, 1.0)
         ramp = ramp * ramp * (3.0 - 2.0 * ramp)
-        ue = np.where(after, self.ue_sep_px + (potential - self.ue_sep_px) * ramp, ue)
-        slip = ue - potential
+        ue = np.where(after, settled + (potential - settled) * ramp, ue)
+        # smoothed over 1.5 deg so that no derivative jumps along the separation ray
+        slip = gaussian_filter1d(ue - potential, sigma=6.0, mode="nearest")
         product = np.sin(t) * slip
         with np.errstate(divide="ignore", invalid="ignore"):
             k = np.gradient(product, t) / np.sin(t)
@@ -313,7 +324,7 @@ class BallWake:
 
     def split_q(self, xi):
         """Lateral position dividing the sides: the flight axis ahead, the wake's centre behind."""
-        return self.axis_table(xi)[0] * np.clip(xi / self.radius_px, 0.0, 1.0)
+        return self.axis_table(xi, slice(0, 1))[0] * np.clip(xi / self.radius_px, 0.0, 1.0)
 
     def centreline_speed(self, xi, edge_reverse_px):
         """Interior speed along the wake on its axis and next to its layers (px per frame, + downstream).
@@ -336,8 +347,10 @@ class BallWake:
         """Roll-up vortices along both free layers from one radius downstream of separation.
 
         Spacing 3 vorticity thicknesses (it grows with the layer, as pairing does), first one at a
-        random phase; each takes ``rollup_fraction`` (reached over one radius) of the layer's
-        circulation ``dU * spacing`` into a core of a quarter spacing, shielded at 0.6 spacing.
+        random phase, up to 2 radii beyond the recirculation's closure (farther the roll-ups
+        outgrow the picture); each takes ``rollup_fraction`` (reached over one radius) of the
+        layer's circulation ``dU * spacing`` into a core of a quarter spacing, shielded at 0.6
+        spacing.
         """
         vortices: list[Vortex] = []
         if self.wake.rollup_fraction <= 0:
@@ -348,7 +361,8 @@ class BallWake:
             out_n = (self.n_up[0] * side.sign, self.n_up[1] * side.sign)
             spin = math.copysign(1.0, ed[0] * out_n[1] - ed[1] * out_n[0])
             s = big_r * (1.0 + rng.uniform(0.0, 1.0) * 3.0 * side.vorticity_thickness(big_r) / big_r)
-            while s < side.path_s[-1]:
+            end = min(float(side.path_s[-1]), self.closure_xi_px + 2.0 * big_r)
+            while s < end:
                 spacing = 3.0 * float(side.vorticity_thickness(s))
                 xi = float(np.interp(s, side.path_s, side.path_xi))
                 q = float(np.interp(s, side.path_s, side.path_q))
@@ -406,10 +420,12 @@ class BallWake:
         d = r - self.radius_px
         ur, ut = side.outer(p, q_side, r, t)
         # attached layer (frozen separating profile beyond t_sep)
-        profile = side.attached_profile(t, d, self.table)
-        bl_r, bl_t = ur, ut * profile
+        bl_r, bl_t = ur, ut.copy()
+        near = np.nonzero(d < side.attached_reach_px)
+        bl_t[near] *= side.attached_profile(t[near], d[near], self.table)
         xi = -p
         w = np.clip((xi - side.xi_sep_px) / side.handover_px, 0.0, 1.0)
+        w = w * w * (3.0 - 2.0 * w)
         vr, vt = bl_r.copy(), bl_t.copy()
         free = np.nonzero(w > 0)
         if free[0].size:
@@ -427,12 +443,17 @@ class BallWake:
         xi = -p
         s, n = side.layer_coordinates(xi, q_side)
         outer_share = 0.5 * (1.0 + erf(SQRT_PI * n / side.vorticity_thickness(s)))
-        wall_r, wall_t = self._interior(side, p, q_side, r, t)
         no_slip = -np.expm1(-d / side.wall_layer_px)
-        smooth_wall = -np.expm1(-((d / side.wall_layer_px) ** 2))
-        in_r, in_t = wall_r * no_slip, wall_t * no_slip
-        share = outer_share * smooth_wall
-        return in_r + share * (ur - in_r), in_t + share * (ut - in_t)
+        share = outer_share * -np.expm1(-((d / side.wall_layer_px) ** 2))
+        out_r, out_t = ur.copy(), ut.copy()
+        # the interior matters where the outer share is visibly below 1
+        inside = np.nonzero(share < 1.0 - 1e-9)
+        wall_r, wall_t = self._interior(side, p[inside], q_side[inside], r[inside], t[inside])
+        in_r, in_t = wall_r * no_slip[inside], wall_t * no_slip[inside]
+        sh = share[inside]
+        out_r[inside] = in_r + sh * (ur[inside] - in_r)
+        out_t[inside] = in_t + sh * (ut[inside] - in_t)
+        return out_r, out_t
 
     def _interior(self, side: SideFlow, p, q_side, r, t):
         """Wake interior (radial, tangential parts): recirculation, then the recovering deficit."""
@@ -460,12 +481,18 @@ class BallWake:
 
     def _add_vortices(self, rx, ry, tau, vx, vy, outside) -> None:
         """Add the roll-up vortices (shielded: a Lamb-Oseen core less the same circulation spread wider)."""
+        if not self.vortices:
+            return
+        order = np.argsort(rx, kind="stable")
+        sorted_x = rx[order]
         for v in self.vortices:
             cx = v.center_px[0] + tau * v.velocity_px[0]
             cy = v.center_px[1] + tau * v.velocity_px[1]
-            reach = 2.5 * v.shield_px  # the shielded field is below 0.2 % of its peak beyond
-            near = np.nonzero(outside & (np.abs(rx - cx) < reach) & (np.abs(ry - cy) < reach))
-            if near[0].size == 0:
+            reach = 2.0 * v.shield_px  # the shielded field is below 0.5 % of its peak beyond
+            lo, hi = np.searchsorted(sorted_x, (cx - reach, cx + reach))
+            band = order[lo:hi]
+            near = band[outside[band] & (np.abs(ry[band] - cy) < reach)]
+            if near.size == 0:
                 continue
             dx = rx[near] - cx
             dy = ry[near] - cy
