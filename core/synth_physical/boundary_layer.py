@@ -106,6 +106,20 @@ class ThwaitesLayer:
         return np.sqrt(self.theta2_re / reynolds_radius)
 
 
+def thwaites_momentum(x: np.ndarray, ue: np.ndarray, r0: np.ndarray | float = 1.0) -> np.ndarray:
+    """Thwaites' momentum thickness ``(theta/L)^2 Re_L = 0.45 int r0^2 Ue^5 dx / (r0^2 Ue^6)``.
+
+    Lengths in a reference length ``L``, velocities in ``U``, ``Re_L = U L / nu``; ``r0`` is the
+    body's local radius for Mangler's transformation (1 for a planar layer). Trapezoid rule on
+    the given grid; where ``r0 Ue`` is zero the result is NaN (the caller takes the limit).
+    """
+    x = np.asarray(x, dtype=np.float64)
+    weight = np.broadcast_to(np.asarray(r0, dtype=np.float64) ** 2, x.shape)
+    integral = cumulative_trapezoid(weight * ue**5, x, initial=0.0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return THWAITES_A * integral / (weight * ue**6)
+
+
 def thwaites_mangler(measured_weight: float, points: int = 3001) -> ThwaitesLayer:
     """Thwaites' method with Mangler's transformation on a sphere, from the front stagnation point.
 
@@ -130,15 +144,9 @@ def thwaites_mangler(measured_weight: float, points: int = 3001) -> ThwaitesLaye
     """
     t = np.linspace(0.0, math.pi, points)
     ue, due = blended_surface_velocity(t, measured_weight)
-    integrand = np.sin(t) ** 2 * ue**5
-    integral = cumulative_trapezoid(integrand, t, initial=0.0)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        j = integral / (np.sin(t) ** 2 * ue**6)
+    theta2_re = thwaites_momentum(t, ue, np.sin(t))
     # near the stagnation point the quotient is 0/0 and the trapezoid rule is poor: use the limit
-    slope0 = float(due[0])
-    near = t < 0.05
-    j[near] = 1.0 / (8.0 * slope0)
-    theta2_re = THWAITES_A * j
+    theta2_re[t < 0.05] = THWAITES_A / (8.0 * float(due[0]))
     lam = theta2_re * due
     after = np.nonzero((lam <= LAMBDA_SEPARATION) | ~np.isfinite(lam) | (ue <= 0))[0]
     after = after[after > 0]
@@ -161,15 +169,6 @@ def thwaites_mangler(measured_weight: float, points: int = 3001) -> ThwaitesLaye
         lam=np.append(lam[: k], LAMBDA_SEPARATION),
         t_sep=t_sep,
     )
-
-
-def flat_plate_theta(x: np.ndarray, reynolds_length: float) -> np.ndarray:
-    """Thwaites' momentum thickness on a flat plate, ``theta/L = sqrt(0.45/(5 Re_L) x/L)``.
-
-    With ``Ue`` constant, ``theta^2 = 0.45 nu x / (5 Ue)`` (derived from Thwaites' integral), so
-    ``theta = 0.671 x / sqrt(Re_x)`` against Blasius' 0.664.
-    """
-    return np.sqrt(THWAITES_A / 5.0 * np.asarray(x, dtype=np.float64) / reynolds_length)
 
 
 # --- Falkner-Skan similarity profiles ------------------------------------------------------

@@ -15,6 +15,9 @@ from core.synth_physical.camera import SURFACES, BallLook, LightSheet, camera_ba
 from core.synth_physical.flow import BallWake, SideSpec, WakeSpec
 from core.synth_shot import ShotTruth
 
+#: Reynolds number U D / nu of a smooth sphere's drag crisis (Achenbach 1972; memory): beyond it a
+#: real layer turns turbulent before separating; the laminar model is kept there and flagged.
+SMOOTH_SPHERE_CRITICAL_RE = 3.7e5
 #: Substeps of the midpoint rule per half exposure interval: against 8 substeps, 2 move particles
 #: by at most 0.04 px (0.01 px at the 99th percentile next to the wall) on a 200 px ball.
 ADVECTION_SUBSTEPS = 2
@@ -30,6 +33,7 @@ class PhysicalShotTruth(ShotTruth):
     """
 
     reynolds_number: float = 0.0  # U D / nu
+    beyond_drag_crisis: bool = False  # Re above a smooth sphere's crisis, laminar model kept
     kinematic_viscosity_m2_s: float = 0.0
     air_temp_c: float = 20.0
     delta99_sep_px: tuple[float, float] = (0.0, 0.0)
@@ -146,7 +150,9 @@ def physical_flow(
         ball_diameter_mm=ball_diameter_mm,
         upper_deg=flow.separation_deg("upper"), lower_deg=flow.separation_deg("lower"),
         wake_deflection_deg=float(wake_deflection_deg), leave_deg=tuple(map(float, departure_deg)),
-        reynolds_number=2.0 * reynolds_radius, kinematic_viscosity_m2_s=nu, air_temp_c=air_temp_c,
+        reynolds_number=2.0 * reynolds_radius,
+        beyond_drag_crisis=bool(2.0 * reynolds_radius > SMOOTH_SPHERE_CRITICAL_RE),
+        kinematic_viscosity_m2_s=nu, air_temp_c=air_temp_c,
         delta99_sep_px=(up.delta99_sep_px, lo.delta99_sep_px),
         theta_sep_px=(up.theta_sep_px, lo.theta_sep_px),
         vorticity_thickness_sep_px=(up.vorticity_thickness_sep_px, lo.vorticity_thickness_sep_px),
@@ -217,8 +223,10 @@ def physical_shot(
         Ball centre at mid-exposure; by default ahead of the frame centre so the wake fits.
     layer_px : float, optional
         Mean of the two sides' 99 % layer thickness at separation, px. It sets the Reynolds
-        number: through the speed when ``speed_m_s`` is None, else through the kinematic
-        viscosity (a fluid other than air at ``air_temp_c``; the truth records it).
+        number (``delta99 / R ~ 1/sqrt(Re)``): through the speed when ``speed_m_s`` is None,
+        else through the kinematic viscosity (a fluid other than air at ``air_temp_c``; the truth
+        records it). Layers thinner than about ``0.0104 R`` need a Reynolds number beyond a
+        smooth sphere's drag crisis; the laminar model is kept and the truth flags it.
     air_temp_c : float
         Air temperature for the viscosity (Sutherland's law).
     measured_share : (float, float)
