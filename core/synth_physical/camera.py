@@ -111,7 +111,7 @@ class BallLook:
 
 
 def _rotate(v: np.ndarray, axis, angle: float) -> np.ndarray:
-    """Rotate 3-vectors ``v`` (..., 3) about a unit ``axis`` by ``angle`` (Rodrigues' formula)."""
+    """Rotate 3-vectors ``v`` (N, 3) about a unit ``axis`` by ``angle`` (Rodrigues' formula)."""
     k = np.asarray(axis, dtype=np.float64)
     c, s = math.cos(angle), math.sin(angle)
     return v * c + np.cross(k, v) * s + np.outer(v @ k, k).reshape(v.shape) * (1.0 - c)
@@ -150,21 +150,11 @@ def paint_ball(air: np.ndarray, background: np.ndarray, center_px, radius_px: fl
     facing = np.clip(-(nx * ex + ny * ey), 0.0, None)  # the outline's side facing the light
     sheet_at = sheet.intensity(cx - ex * big_r, cy - ey * big_r, air.shape, (cx, cy), big_r)
 
-    # the face seen by the camera: a unit sphere point per pixel, body-fixed for the grain
     zz = np.sqrt(np.clip(1.0 - (r / big_r) ** 2, 0.0, None))
-    point = np.stack((np.clip(u / big_r, -1, 1), np.clip(v / big_r, -1, 1), zz), axis=-1)
-    turn = look.spin_rad_per_frame * tau
-    seam_n = _rotate(np.asarray(look.seam_normal, dtype=np.float64)[None, :], look.spin_axis, turn)[0]
-    body = _rotate(point.reshape(-1, 3), look.spin_axis, -turn).reshape(point.shape)
-    seam_dist = point @ seam_n
-    seam = np.exp(-0.5 * (seam_dist / look.seam_half_width_rad) ** 2)
-    stitch_angle = np.arctan2(body[..., 1], body[..., 0])
-    seam = seam * (0.75 + 0.25 * np.cos(look.stitches * stitch_angle))
+    seam = np.zeros_like(r)
     grain = np.zeros_like(r)
-    for kx, ky, kz, phase in look.texture:
-        grain += np.cos(body[..., 0] * kx + body[..., 1] * ky + body[..., 2] * kz + phase)
-    if look.texture:
-        grain /= math.sqrt(len(look.texture))
+    face = np.nonzero(r < big_r + 4.0)  # the rim's band reaches just outside the outline
+    seam[face], grain[face] = _face_pattern(u[face] / big_r, v[face] / big_r, zz[face], look, tau)
 
     level = {"dark": 0.06, "dim": 1.0, "bright": 3.0}[look.surface] * look.level_factor
     surface_counts = bg_mean + max(air_mean - bg_mean, 1.0) * level
@@ -193,6 +183,26 @@ def paint_ball(air: np.ndarray, background: np.ndarray, center_px, radius_px: fl
             -0.5 * ((along / look.glint_length_px) ** 2 + (across / look.glint_width_px) ** 2))
     out[y0:y1, x0:x1] = painted
     return out
+
+
+def _face_pattern(u, v, z, look: BallLook, tau: float):
+    """Seam (with stitches) and grain at points ``(u, v, z)`` of the unit sphere facing the camera.
+
+    The ball turns by ``spin_rad_per_frame * tau`` about its spin axis: the seam's plane turns
+    with it, and the grain is read in body-fixed coordinates.
+    """
+    point = np.stack((np.clip(u, -1, 1), np.clip(v, -1, 1), z), axis=-1)
+    turn = look.spin_rad_per_frame * tau
+    seam_n = _rotate(np.asarray(look.seam_normal, dtype=np.float64)[None, :], look.spin_axis, turn)[0]
+    body = _rotate(point, look.spin_axis, -turn)
+    seam = np.exp(-0.5 * (point @ seam_n / look.seam_half_width_rad) ** 2)
+    seam *= 0.75 + 0.25 * np.cos(look.stitches * np.arctan2(body[:, 1], body[:, 0]))
+    grain = np.zeros(z.shape)
+    for kx, ky, kz, phase in look.texture:
+        grain += np.cos(body[:, 0] * kx + body[:, 1] * ky + body[:, 2] * kz + phase)
+    if look.texture:
+        grain /= math.sqrt(len(look.texture))
+    return seam, grain
 
 
 def camera_background(shape, full_scale: float, rng: np.random.Generator) -> np.ndarray:

@@ -483,7 +483,13 @@ class BallWake:
         """Add the roll-up vortices (shielded: a Lamb-Oseen core less the same circulation spread wider)."""
         if not self.vortices:
             return
-        order = np.argsort(rx, kind="stable")
+        # candidates: points in the box that holds every vortex's reach, sorted along x
+        boxes = np.array([(v.center_px[0] + tau * v.velocity_px[0], v.center_px[1] + tau * v.velocity_px[1],
+                           2.0 * v.shield_px) for v in self.vortices])
+        lo_x, hi_x = np.min(boxes[:, 0] - boxes[:, 2]), np.max(boxes[:, 0] + boxes[:, 2])
+        lo_y, hi_y = np.min(boxes[:, 1] - boxes[:, 2]), np.max(boxes[:, 1] + boxes[:, 2])
+        candidates = np.nonzero(outside & (rx > lo_x) & (rx < hi_x) & (ry > lo_y) & (ry < hi_y))[0]
+        order = candidates[np.argsort(rx[candidates])]
         sorted_x = rx[order]
         for v in self.vortices:
             cx = v.center_px[0] + tau * v.velocity_px[0]

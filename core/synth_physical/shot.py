@@ -103,6 +103,10 @@ def physical_flow(
     ``flow.velocity(rx, ry, tau)`` is the ball-frame velocity (px per frame interval) at
     ``(rx, ry)`` from the ball centre at mid-exposure; in the lab frame add ``displacement_px``.
     """
+    if not all(0.0 <= share <= 1.0 for share in measured_share):
+        raise ValueError("measured_share must lie in 0..1 (measured .. potential surface velocity)")
+    if not all(0.0 <= angle <= 30.0 for angle in departure_deg):
+        raise ValueError("departure_deg must lie in 0..30 deg")
     rng = np.random.default_rng([seed, 0])
     height, width = shape
     scale = ball_diameter_mm / (2.0 * radius_px)
@@ -225,7 +229,7 @@ def physical_shot(
         Mean of the two sides' 99 % layer thickness at separation, px. It sets the Reynolds
         number (``delta99 / R ~ 1/sqrt(Re)``): through the speed when ``speed_m_s`` is None,
         else through the kinematic viscosity (a fluid other than air at ``air_temp_c``; the truth
-        records it). Layers thinner than about ``0.0104 R`` need a Reynolds number beyond a
+        records it). Layers thinner than ``0.008-0.010 R`` need a Reynolds number beyond a
         smooth sphere's drag crisis; the laminar model is kept and the truth flags it.
     air_temp_c : float
         Air temperature for the viscosity (Sutherland's law).
