@@ -87,8 +87,14 @@ def _wall_speed(flow, truth, side, angle_deg, distances_px):
 
 @pytest.fixture(scope="module")
 def flow_and_truth():
-    return physical_flow((1024, 1280), radius_px=200.0, layer_px=3.0, measured_share=(1.0, 0.4),
-                         departure_deg=(8.0, 15.0), seed=4)
+    return physical_flow(
+        (1024, 1280),
+        radius_px=200.0,
+        layer_px=3.0,
+        measured_share=(1.0, 0.4),
+        departure_deg=(8.0, 15.0),
+        seed=4,
+    )
 
 
 @pytest.mark.parametrize("side", ["upper", "lower"])
@@ -130,15 +136,24 @@ def test_field_profile_at_separation_has_the_truth_thickness(flow_and_truth, sid
 def test_free_layer_thickens_at_the_mixing_layer_rate():
     # d(delta_w)/dx = c (U1 - U2)/(U1 + U2), c = 0.18 typical, 0.14-0.22 quoted (Brown & Roshko
     # 1974, J. Fluid Mech. 64:775; memory); delta_w = (U1 - U2) / max du/dn (its definition)
-    flow, truth = physical_flow((1024, 1280), radius_px=200.0, layer_px=3.0, rollup_fraction=0.0,
-                                spreading_coefficient=0.16, reverse_ratio=0.1, seed=2)
+    flow, truth = physical_flow(
+        (1024, 1280),
+        radius_px=200.0,
+        layer_px=3.0,
+        rollup_fraction=0.0,
+        spreading_coefficient=0.16,
+        reverse_ratio=0.1,
+        seed=2,
+    )
     assert truth.spreading_rate[0] == pytest.approx(0.16 * 1.1 / 0.9)
     side = flow.sides["upper"]
     ed = (-flight_unit(truth.flight_deg)[0], -flight_unit(truth.flight_deg)[1])
     out = side_normal(truth.flight_deg, "upper")
     arcs, widths = [], []
     for s in (30.0, 60.0, 100.0, 140.0):
-        xi, q, phi = (float(np.interp(s, side.path_s, v)) for v in (side.path_xi, side.path_q, side.path_phi))
+        xi, q, phi = (
+            float(np.interp(s, side.path_s, v)) for v in (side.path_xi, side.path_q, side.path_phi)
+        )
         # the layer's centre, its heading and its outward normal in image coordinates
         x0, y0 = xi * ed[0] + q * out[0], xi * ed[1] + q * out[1]
         hx = math.cos(phi) * ed[0] + math.sin(phi) * out[0]
@@ -166,8 +181,13 @@ def test_lab_frame_far_air_is_at_rest_and_the_wake_travels_with_the_ball(flow_an
     nx, ny = side_normal(truth.flight_deg, "upper")
     dx, dy = truth.displacement_px
     shift = math.hypot(dx, dy)
-    far = np.array([(8 * big_r * fx, 8 * big_r * fy), (8 * big_r * nx, 8 * big_r * ny),
-                    (-8 * big_r * nx, -8 * big_r * ny)])
+    far = np.array(
+        [
+            (8 * big_r * fx, 8 * big_r * fy),
+            (8 * big_r * nx, 8 * big_r * ny),
+            (-8 * big_r * nx, -8 * big_r * ny),
+        ]
+    )
     vx, vy = flow.velocity(far[:, 0], far[:, 1])
     assert np.all(np.hypot(vx + dx, vy + dy) < 0.02 * shift)
     behind = np.array([1.3, 1.8, 2.5]) * big_r
@@ -207,8 +227,9 @@ def _radius_map(shape, center):
 
 @pytest.mark.parametrize("bits", [8, 12])
 def test_frames_are_integer_counts_of_the_bit_depth_and_glints_saturate(bits):
-    a, b, truth = physical_shot(SMALL, radius_px=90.0, glint=True, surface="bright", bit_depth=bits,
-                                seed=3)
+    a, b, truth = physical_shot(
+        SMALL, radius_px=90.0, glint=True, surface="bright", bit_depth=bits, seed=3
+    )
     full = 2**bits - 1
     for frame in (a, b):
         assert frame.dtype == np.float32 and frame.shape == SMALL
@@ -230,8 +251,9 @@ def test_no_particle_image_inside_the_ball():
 
 def test_no_lit_particle_in_the_laser_shadow():
     # light from the top of the picture: the ball's shadow falls below it, on the lower side
-    a, b, truth = physical_shot(SMALL, radius_px=80.0, flight_deg=180.0, shadow=True,
-                                light_from_deg=90.0, seed=6)
+    a, b, truth = physical_shot(
+        SMALL, radius_px=80.0, flight_deg=180.0, shadow=True, light_from_deg=90.0, seed=6
+    )
     assert truth.shadow and truth.shadow_side == "lower"
     full = 2**truth.bit_depth - 1
     for frame, (cx, cy) in ((a, truth.center_a_px), (b, truth.center_b_px)):

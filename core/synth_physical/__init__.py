@@ -13,4 +13,10 @@ from core.synth_physical.shot import (
     physical_shot,
 )
 
-__all__ = ["PhysicalShotTruth", "air_kinematic_viscosity", "physical_cases", "physical_flow", "physical_shot"]
+__all__ = [
+    "PhysicalShotTruth",
+    "air_kinematic_viscosity",
+    "physical_cases",
+    "physical_flow",
+    "physical_shot",
+]

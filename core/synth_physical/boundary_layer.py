@@ -50,7 +50,9 @@ def potential_surface_velocity(t: np.ndarray) -> np.ndarray:
     return 1.5 * np.sin(t)
 
 
-def blended_surface_velocity(t: np.ndarray, measured_weight: float) -> tuple[np.ndarray, np.ndarray]:
+def blended_surface_velocity(
+    t: np.ndarray, measured_weight: float
+) -> tuple[np.ndarray, np.ndarray]:
     """Surface velocity and its slope between the measured (weight 1) and the potential (0) one.
 
     Both share the stagnation-point slope ``1.5`` (the potential value), so every blend has
@@ -163,10 +165,10 @@ def thwaites_mangler(measured_weight: float, points: int = 3001) -> ThwaitesLaye
     th_s = theta2_re[k - 1] + frac * (theta2_re[k] - theta2_re[k - 1])
     return ThwaitesLayer(
         t=t_out,
-        ue=np.append(ue[: k], ue_s),
-        due_dt=np.append(due[: k], due_s),
-        theta2_re=np.append(theta2_re[: k], th_s),
-        lam=np.append(lam[: k], LAMBDA_SEPARATION),
+        ue=np.append(ue[:k], ue_s),
+        due_dt=np.append(due[:k], due_s),
+        theta2_re=np.append(theta2_re[:k], th_s),
+        lam=np.append(lam[:k], LAMBDA_SEPARATION),
         t_sep=t_sep,
     )
 
@@ -271,7 +273,7 @@ def falkner_skan_beta(wall_shear: np.ndarray, *, eta_max: float = 12.0, step: fl
     """
     s = np.atleast_1d(np.asarray(wall_shear, dtype=np.float64))
     beta = np.interp(s, _GUESS_SHEAR, _GUESS_BETA)
-    steps = int(round(eta_max / step))
+    steps = round(eta_max / step)
     for _ in range(12):
         states, sens = _falkner_skan_march(s, beta, step, steps)
         residual = states[-1, 1] - 1.0
@@ -283,7 +285,9 @@ def falkner_skan_beta(wall_shear: np.ndarray, *, eta_max: float = 12.0, step: fl
 
 
 @functools.lru_cache(maxsize=2)
-def falkner_skan_table(profiles: int = 49, eta_max: float = 12.0, step: float = 0.02) -> FalknerSkanTable:
+def falkner_skan_table(
+    profiles: int = 49, eta_max: float = 12.0, step: float = 0.02
+) -> FalknerSkanTable:
     """Tabulate attached Falkner-Skan profiles from separation (``f''(0) = 0``) to Hiemenz flow.
 
     Known values the table reproduces: Blasius ``f''(0) = 0.4696`` at ``beta = 0`` (seen in
@@ -299,6 +303,14 @@ def falkner_skan_table(profiles: int = 49, eta_max: float = 12.0, step: float = 
     delta_star = np.trapezoid(1.0 - df, eta, axis=1)
     delta99 = np.array([np.interp(0.99, np.maximum.accumulate(row), eta) for row in df])
     return FalknerSkanTable(
-        wall_shear=s, beta=beta, eta=eta, f=f, df=df, theta=theta, delta_star=delta_star,
-        delta99=delta99, max_slope=d2f.max(axis=1), shear_parameter=s * theta,
+        wall_shear=s,
+        beta=beta,
+        eta=eta,
+        f=f,
+        df=df,
+        theta=theta,
+        delta_star=delta_star,
+        delta99=delta99,
+        max_slope=d2f.max(axis=1),
+        shear_parameter=s * theta,
     )

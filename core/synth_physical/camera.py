@@ -76,7 +76,9 @@ class LightSheet:
         b_across = np.abs(-(x - bx) * ey + (y - by) * ex)
         # penumbra of a few px: the sheet is not perfectly collimated
         edge = 2.0
-        behind = 0.5 * (1.0 + erf(b_along / edge)) * 0.5 * (1.0 + erf((radius_px - b_across) / edge))
+        behind = (
+            0.5 * (1.0 + erf(b_along / edge)) * 0.5 * (1.0 + erf((radius_px - b_across) / edge))
+        )
         return level * (1.0 - (1.0 - self.shadow_level) * behind)
 
 
@@ -117,8 +119,16 @@ def _rotate(v: np.ndarray, axis, angle: float) -> np.ndarray:
     return v * c + np.cross(k, v) * s + np.outer(v @ k, k).reshape(v.shape) * (1.0 - c)
 
 
-def paint_ball(air: np.ndarray, background: np.ndarray, center_px, radius_px: float, tau: float,
-               look: BallLook, sheet: LightSheet, full_scale: float) -> np.ndarray:
+def paint_ball(
+    air: np.ndarray,
+    background: np.ndarray,
+    center_px,
+    radius_px: float,
+    tau: float,
+    look: BallLook,
+    sheet: LightSheet,
+    full_scale: float,
+) -> np.ndarray:
     """Lay the ball over one frame's air image.
 
     ``air`` holds the particle images (counts above the background), ``background`` the camera's
@@ -159,28 +169,46 @@ def paint_ball(air: np.ndarray, background: np.ndarray, center_px, radius_px: fl
     level = {"dark": 0.06, "dim": 1.0, "bright": 3.0}[look.surface] * look.level_factor
     surface_counts = bg_mean + max(air_mean - bg_mean, 1.0) * level
     shade = (0.8 + 0.2 * zz) * (1.0 + 0.15 * (-(u * ex + v * ey) / big_r))
-    surface = surface_counts * shade * (1.0 + look.texture_amplitude * grain) * (1.0 + look.seam_contrast * seam)
+    surface = (
+        surface_counts
+        * shade
+        * (1.0 + look.texture_amplitude * grain)
+        * (1.0 + look.seam_contrast * seam)
+    )
 
     patch = out[y0:y1, x0:x1]
     painted = (1.0 - cover) * patch + cover * surface
     if look.lit_rim:
         # the sheet lights a band on the outline a fraction of a px wide, blurred by the optics;
         # brighter where the raised seam crosses the sheet
-        lit = facing + (sheet.shadow_level if not sheet.shadow else 0.0) * np.clip(nx * ex + ny * ey, 0.0, None)
+        lit = facing + (sheet.shadow_level if not sheet.shadow else 0.0) * np.clip(
+            nx * ex + ny * ey, 0.0, None
+        )
         band = np.exp(-0.5 * ((r - (big_r - 0.8)) / 0.8) ** 2)
         painted += look.rim_counts * full_scale * sheet_at * lit**0.7 * band * (1.0 + 2.0 * seam)
     if look.glare_counts > 0:
         outside = np.clip(r - big_r, 0.0, None)
-        painted += (1.0 - cover) * look.glare_counts * full_scale * sheet_at * facing * np.exp(
-            -outside / look.glare_length_px)
+        painted += (
+            (1.0 - cover)
+            * look.glare_counts
+            * full_scale
+            * sheet_at
+            * facing
+            * np.exp(-outside / look.glare_length_px)
+        )
     if look.glint:
         a = math.radians(look.glint_angle_deg)
         gx, gy = math.cos(a), -math.sin(a)
         centre = big_r - 1.5
         along = (u - centre * gx) * (-gy) + (v - centre * gy) * gx
         across = (u - centre * gx) * gx + (v - centre * gy) * gy
-        painted += 2.0 * full_scale * np.exp(
-            -0.5 * ((along / look.glint_length_px) ** 2 + (across / look.glint_width_px) ** 2))
+        painted += (
+            2.0
+            * full_scale
+            * np.exp(
+                -0.5 * ((along / look.glint_length_px) ** 2 + (across / look.glint_width_px) ** 2)
+            )
+        )
     out[y0:y1, x0:x1] = painted
     return out
 
@@ -193,7 +221,9 @@ def _face_pattern(u, v, z, look: BallLook, tau: float):
     """
     point = np.stack((np.clip(u, -1, 1), np.clip(v, -1, 1), z), axis=-1)
     turn = look.spin_rad_per_frame * tau
-    seam_n = _rotate(np.asarray(look.seam_normal, dtype=np.float64)[None, :], look.spin_axis, turn)[0]
+    seam_n = _rotate(np.asarray(look.seam_normal, dtype=np.float64)[None, :], look.spin_axis, turn)[
+        0
+    ]
     body = _rotate(point, look.spin_axis, -turn)
     seam = np.exp(-0.5 * (point @ seam_n / look.seam_half_width_rad) ** 2)
     seam *= 0.75 + 0.25 * np.cos(look.stitches * np.arctan2(body[:, 1], body[:, 0]))
@@ -211,14 +241,19 @@ def camera_background(shape, full_scale: float, rng: np.random.Generator) -> np.
     yy, xx = np.mgrid[0:height, 0:width].astype(np.float64)
     level = rng.uniform(0.02, 0.05) * full_scale
     a = rng.uniform(0.0, 2.0 * math.pi)
-    ramp = ((xx / width - 0.5) * math.cos(a) + (yy / height - 0.5) * math.sin(a))
+    ramp = (xx / width - 0.5) * math.cos(a) + (yy / height - 0.5) * math.sin(a)
     gx, gy = rng.uniform(0.0, width), rng.uniform(0.0, height)
     glow = np.exp(-((xx - gx) ** 2 + (yy - gy) ** 2) / (2.0 * (0.3 * width) ** 2))
     return level * (1.0 + rng.uniform(0.2, 0.5) * ramp) + rng.uniform(0.0, 0.02) * full_scale * glow
 
 
-def expose(light: np.ndarray, background: np.ndarray, bit_depth: int, rng: np.random.Generator,
-           read_noise_counts: float) -> np.ndarray:
+def expose(
+    light: np.ndarray,
+    background: np.ndarray,
+    bit_depth: int,
+    rng: np.random.Generator,
+    read_noise_counts: float,
+) -> np.ndarray:
     """Sensor: shot noise on the collected light, read noise, rounding and clipping (saturation).
 
     Shot noise is Poisson in electrons (normal approximation) with ``FULL_WELL_E`` electrons at

@@ -35,7 +35,12 @@ from scipy.ndimage import gaussian_filter1d, map_coordinates
 from scipy.special import erf
 
 from core.geometry import flight_unit, upper_normal
-from core.synth_physical.boundary_layer import FalknerSkanTable, falkner_skan_table, thwaites_mangler, thwaites_shear
+from core.synth_physical.boundary_layer import (
+    FalknerSkanTable,
+    falkner_skan_table,
+    thwaites_mangler,
+    thwaites_shear,
+)
 
 SQRT_PI = math.sqrt(math.pi)
 #: Surface arc (in layer thicknesses delta99 at separation) over which the frozen separating
@@ -146,9 +151,17 @@ class SideFlow:
     ``reynolds_radius = U R / nu``; ``sign`` is +1 for the upper side and -1 for the lower one.
     """
 
-    def __init__(self, spec: SideSpec, sign: int, radius_px: float, speed_px: float,
-                 reynolds_radius: float, wake: WakeSpec, reach_px: float,
-                 table: FalknerSkanTable):
+    def __init__(
+        self,
+        spec: SideSpec,
+        sign: int,
+        radius_px: float,
+        speed_px: float,
+        reynolds_radius: float,
+        wake: WakeSpec,
+        reach_px: float,
+        table: FalknerSkanTable,
+    ):
         self.spec, self.sign, self.radius_px, self.speed_px = spec, sign, radius_px, speed_px
         layer = thwaites_mangler(spec.measured_weight)
         self.t_sep = layer.t_sep
@@ -157,7 +170,9 @@ class SideFlow:
         self.t_grid = layer.t
         theta_px = radius_px * layer.theta_over_r(reynolds_radius)
         shear = thwaites_shear(layer.lam)
-        self.profile_index = np.interp(shear, table.shear_parameter, np.arange(table.wall_shear.size))
+        self.profile_index = np.interp(
+            shear, table.shear_parameter, np.arange(table.wall_shear.size)
+        )
         theta_eta = np.interp(self.profile_index, np.arange(table.wall_shear.size), table.theta)
         self.length_px = theta_px / theta_eta  # y = length * eta
         self.attached_table = _resample(layer.t, [self.length_px, self.profile_index], 2048)
@@ -194,7 +209,8 @@ class SideFlow:
         _, slope = blended_surface_velocity(np.array([self.t_sep]), self.spec.measured_weight)
         beyond = np.clip(t - self.t_sep, 0.0, None)
         settled = self.ue_sep_px + float(slope[0]) * self.speed_px * SLIP_SETTLE_RAD * -np.expm1(
-            -beyond / SLIP_SETTLE_RAD)
+            -beyond / SLIP_SETTLE_RAD
+        )
         ramp = np.clip(beyond / (math.pi - self.t_sep), 0.0, 1.0)
         ramp = ramp * ramp * (3.0 - 2.0 * ramp)
         ue = np.where(after, settled + (potential - settled) * ramp, ue)
@@ -250,7 +266,9 @@ class SideFlow:
         for _ in range(30):
             frac = np.minimum(s / turn, 1.0)
             phi = phi0 + (final - phi0) * (2.0 * frac - frac * frac)
-            xi = xi0 + np.concatenate(([0.0], np.cumsum(0.5 * (np.cos(phi[1:]) + np.cos(phi[:-1])))))
+            xi = xi0 + np.concatenate(
+                ([0.0], np.cumsum(0.5 * (np.cos(phi[1:]) + np.cos(phi[:-1]))))
+            )
             q = q0 + np.concatenate(([0.0], np.cumsum(0.5 * (np.sin(phi[1:]) + np.sin(phi[:-1])))))
             if np.min(np.hypot(xi, q)) >= big_r + 0.5 * h0:
                 break
@@ -291,17 +309,34 @@ class BallWake:
         Phase and scatter of the roll-up vortices.
     """
 
-    def __init__(self, radius_px: float, speed_px: float, flight_deg: float, reynolds_radius: float,
-                 upper: SideSpec, lower: SideSpec, wake: WakeSpec, reach_px: float,
-                 rng: np.random.Generator):
-        self.radius_px, self.speed_px, self.flight_deg = float(radius_px), float(speed_px), flight_deg
+    def __init__(
+        self,
+        radius_px: float,
+        speed_px: float,
+        flight_deg: float,
+        reynolds_radius: float,
+        upper: SideSpec,
+        lower: SideSpec,
+        wake: WakeSpec,
+        reach_px: float,
+        rng: np.random.Generator,
+    ):
+        self.radius_px, self.speed_px, self.flight_deg = (
+            float(radius_px),
+            float(speed_px),
+            flight_deg,
+        )
         self.wake = wake
         self.table = falkner_skan_table()
         self.f = flight_unit(flight_deg)
         self.n_up = upper_normal(flight_deg)
         self.sides = {
-            "upper": SideFlow(upper, +1, radius_px, speed_px, reynolds_radius, wake, reach_px, self.table),
-            "lower": SideFlow(lower, -1, radius_px, speed_px, reynolds_radius, wake, reach_px, self.table),
+            "upper": SideFlow(
+                upper, +1, radius_px, speed_px, reynolds_radius, wake, reach_px, self.table
+            ),
+            "lower": SideFlow(
+                lower, -1, radius_px, speed_px, reynolds_radius, wake, reach_px, self.table
+            ),
         }
         self._wake_axis(reach_px)
         self.vortices = self._rollup_vortices(rng)
@@ -336,7 +371,9 @@ class BallWake:
         sigma = np.clip((xi - big_r) / (self.closure_xi_px - big_r), 0.0, None)
         bubble = sigma < 1.0
         x0 = self.virtual_origin_px
-        deficit = ((self.closure_xi_px - x0) / np.maximum(xi - x0, self.closure_xi_px - x0)) ** (2.0 / 3.0)
+        deficit = ((self.closure_xi_px - x0) / np.maximum(xi - x0, self.closure_xi_px - x0)) ** (
+            2.0 / 3.0
+        )
         forward = u * (1.0 - deficit)
         shape = np.where(bubble, 1.0 - sigma * sigma, 0.0)
         axis = np.where(bubble, -u * self.wake.axis_reverse_ratio * shape, forward)
@@ -360,7 +397,9 @@ class BallWake:
         for side in self.sides.values():
             out_n = (self.n_up[0] * side.sign, self.n_up[1] * side.sign)
             spin = math.copysign(1.0, ed[0] * out_n[1] - ed[1] * out_n[0])
-            s = big_r * (1.0 + rng.uniform(0.0, 1.0) * 3.0 * side.vorticity_thickness(big_r) / big_r)
+            s = big_r * (
+                1.0 + rng.uniform(0.0, 1.0) * 3.0 * side.vorticity_thickness(big_r) / big_r
+            )
             end = min(float(side.path_s[-1]), self.closure_xi_px + 2.0 * big_r)
             while s < end:
                 spacing = 3.0 * float(side.vorticity_thickness(s))
@@ -368,25 +407,36 @@ class BallWake:
                 q = float(np.interp(s, side.path_s, side.path_q))
                 phi = float(np.interp(s, side.path_s, side.path_phi))
                 q += rng.normal(0.0, 0.1) * float(side.vorticity_thickness(s))
-                _, edge = self.centreline_speed(np.array([xi]), self.wake.reverse_ratio * side.ue_sep_px)
+                _, edge = self.centreline_speed(
+                    np.array([xi]), self.wake.reverse_ratio * side.ue_sep_px
+                )
                 jump = side.ue_sep_px - float(edge[0])
                 share = self.wake.rollup_fraction * min((s - big_r) / big_r, 1.0)
                 # position and velocity in image coordinates
                 gx = -xi * self.f[0] + q * out_n[0]
                 gy = -xi * self.f[1] + q * out_n[1]
-                heading = (math.cos(phi) * ed[0] + math.sin(phi) * out_n[0],
-                           math.cos(phi) * ed[1] + math.sin(phi) * out_n[1])
+                heading = (
+                    math.cos(phi) * ed[0] + math.sin(phi) * out_n[0],
+                    math.cos(phi) * ed[1] + math.sin(phi) * out_n[1],
+                )
                 convect = 0.5 * (side.ue_sep_px + float(edge[0]))
                 if share > 0 and jump > 0:
-                    vortices.append(Vortex(
-                        (gx, gy), (convect * heading[0], convect * heading[1]),
-                        spin * share * jump * spacing, 0.25 * spacing, 0.6 * spacing,
-                    ))
+                    vortices.append(
+                        Vortex(
+                            (gx, gy),
+                            (convect * heading[0], convect * heading[1]),
+                            spin * share * jump * spacing,
+                            0.25 * spacing,
+                            0.6 * spacing,
+                        )
+                    )
                 s += spacing
         return vortices
 
     # --- velocity -----------------------------------------------------------------------------
-    def velocity(self, rx: np.ndarray, ry: np.ndarray, tau: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+    def velocity(
+        self, rx: np.ndarray, ry: np.ndarray, tau: float = 0.0
+    ) -> tuple[np.ndarray, np.ndarray]:
         """Ball-frame velocity at ``(rx, ry)`` from the ball centre (image axes), px per frame.
 
         ``tau`` is the time from mid-exposure in frame intervals (it moves the roll-up vortices).
@@ -429,8 +479,9 @@ class BallWake:
         vr, vt = bl_r.copy(), bl_t.copy()
         free = np.nonzero(w > 0)
         if free[0].size:
-            fr, ft = self._free_velocity(side, p[free], q_side[free], r[free], t[free], d[free],
-                                         ur[free], ut[free])
+            fr, ft = self._free_velocity(
+                side, p[free], q_side[free], r[free], t[free], d[free], ur[free], ut[free]
+            )
             wf = w[free]
             vr[free] = (1.0 - wf) * bl_r[free] + wf * fr
             vt[free] = (1.0 - wf) * bl_t[free] + wf * ft
@@ -484,8 +535,16 @@ class BallWake:
         if not self.vortices:
             return
         # candidates: points in the box that holds every vortex's reach, sorted along x
-        boxes = np.array([(v.center_px[0] + tau * v.velocity_px[0], v.center_px[1] + tau * v.velocity_px[1],
-                           2.0 * v.shield_px) for v in self.vortices])
+        boxes = np.array(
+            [
+                (
+                    v.center_px[0] + tau * v.velocity_px[0],
+                    v.center_px[1] + tau * v.velocity_px[1],
+                    2.0 * v.shield_px,
+                )
+                for v in self.vortices
+            ]
+        )
         lo_x, hi_x = np.min(boxes[:, 0] - boxes[:, 2]), np.max(boxes[:, 0] + boxes[:, 2])
         lo_y, hi_y = np.min(boxes[:, 1] - boxes[:, 2]), np.max(boxes[:, 1] + boxes[:, 2])
         candidates = np.nonzero(outside & (rx > lo_x) & (rx < hi_x) & (ry > lo_y) & (ry < hi_y))[0]

@@ -11,7 +11,14 @@ import numpy as np
 from core.geometry import flight_unit, side_normal
 from core.synth import render_particles
 from core.synth_physical.boundary_layer import falkner_skan_table, thwaites_mangler
-from core.synth_physical.camera import SURFACES, BallLook, LightSheet, camera_background, expose, paint_ball
+from core.synth_physical.camera import (
+    SURFACES,
+    BallLook,
+    LightSheet,
+    camera_background,
+    expose,
+    paint_ball,
+)
 from core.synth_physical.flow import BallWake, SideSpec, WakeSpec
 from core.synth_shot import ShotTruth
 
@@ -113,8 +120,10 @@ def physical_flow(
     radius_m = 0.5e-3 * ball_diameter_mm
     nu = air_kinematic_viscosity(air_temp_c)
     if layer_px is not None:
-        factor = 0.5 * (separation_thickness_factor(measured_share[0])
-                        + separation_thickness_factor(measured_share[1]))
+        factor = 0.5 * (
+            separation_thickness_factor(measured_share[0])
+            + separation_thickness_factor(measured_share[1])
+        )
         reynolds_radius = (factor * radius_px / layer_px) ** 2
         if speed_m_s is None:
             speed_m_s = reynolds_radius * nu / radius_m
@@ -136,34 +145,54 @@ def physical_flow(
     if wake_deflection_deg is None:
         t_up, t_lo = (thwaites_mangler(share).t_sep for share in measured_share)
         wake_deflection_deg = float(np.clip(-0.4 * math.degrees(t_up - t_lo), -10.0, 10.0))
-    wake = WakeSpec(wake_deflection_deg, spreading_coefficient, reverse_ratio, axis_reverse_ratio,
-                    closure_diameters, rollup_fraction)
+    wake = WakeSpec(
+        wake_deflection_deg,
+        spreading_coefficient,
+        reverse_ratio,
+        axis_reverse_ratio,
+        closure_diameters,
+        rollup_fraction,
+    )
     flow = BallWake(
-        radius_px, shift_px, flight_deg, reynolds_radius,
+        radius_px,
+        shift_px,
+        flight_deg,
+        reynolds_radius,
         SideSpec(measured_share[0], departure_deg[0], turning_radii[0]),
         SideSpec(measured_share[1], departure_deg[1], turning_radii[1]),
-        wake, reach, rng,
+        wake,
+        reach,
+        rng,
     )
     moved = (0.0, 0.0) if held else (shift_px * fx, shift_px * fy)
     up, lo = flow.sides["upper"], flow.sides["lower"]
     truth = PhysicalShotTruth(
         center_a_px=(center_px[0] - 0.5 * moved[0], center_px[1] - 0.5 * moved[1]),
         center_b_px=(center_px[0] + 0.5 * moved[0], center_px[1] + 0.5 * moved[1]),
-        radius_px=float(radius_px), flight_deg=float(flight_deg) % 360.0, displacement_px=moved,
-        speed_m_s=speed_m_s, dt_s=float(dt_s), scale_mm_per_px=scale,
+        radius_px=float(radius_px),
+        flight_deg=float(flight_deg) % 360.0,
+        displacement_px=moved,
+        speed_m_s=speed_m_s,
+        dt_s=float(dt_s),
+        scale_mm_per_px=scale,
         ball_diameter_mm=ball_diameter_mm,
-        upper_deg=flow.separation_deg("upper"), lower_deg=flow.separation_deg("lower"),
-        wake_deflection_deg=float(wake_deflection_deg), leave_deg=tuple(map(float, departure_deg)),
+        upper_deg=flow.separation_deg("upper"),
+        lower_deg=flow.separation_deg("lower"),
+        wake_deflection_deg=float(wake_deflection_deg),
+        leave_deg=tuple(map(float, departure_deg)),
         reynolds_number=2.0 * reynolds_radius,
         beyond_drag_crisis=bool(2.0 * reynolds_radius > SMOOTH_SPHERE_CRITICAL_RE),
-        kinematic_viscosity_m2_s=nu, air_temp_c=air_temp_c,
+        kinematic_viscosity_m2_s=nu,
+        air_temp_c=air_temp_c,
         delta99_sep_px=(up.delta99_sep_px, lo.delta99_sep_px),
         theta_sep_px=(up.theta_sep_px, lo.theta_sep_px),
         vorticity_thickness_sep_px=(up.vorticity_thickness_sep_px, lo.vorticity_thickness_sep_px),
         spreading_coefficient=spreading_coefficient,
         spreading_rate=(up.spreading_rate, lo.spreading_rate),
         measured_share=(float(measured_share[0]), float(measured_share[1])),
-        turning_px=(up.turning_px, lo.turning_px), closure_px=flow.closure_px(), held=held,
+        turning_px=(up.turning_px, lo.turning_px),
+        closure_px=flow.closure_px(),
+        held=held,
     )
     return flow, truth
 
@@ -280,20 +309,35 @@ def physical_shot(
     if bit_depth not in (8, 12):
         raise ValueError("bit_depth must be 8 or 12")
     flow, truth = physical_flow(
-        shape, radius_px=radius_px, flight_deg=flight_deg, speed_m_s=speed_m_s,
-        ball_diameter_mm=ball_diameter_mm, dt_s=dt_s, center_px=center_px, layer_px=layer_px,
-        air_temp_c=air_temp_c, measured_share=measured_share, departure_deg=departure_deg,
-        turning_radii=turning_radii, wake_deflection_deg=wake_deflection_deg,
-        spreading_coefficient=spreading_coefficient, reverse_ratio=reverse_ratio,
-        axis_reverse_ratio=axis_reverse_ratio, closure_diameters=closure_diameters,
-        rollup_fraction=rollup_fraction, held=held, seed=seed,
+        shape,
+        radius_px=radius_px,
+        flight_deg=flight_deg,
+        speed_m_s=speed_m_s,
+        ball_diameter_mm=ball_diameter_mm,
+        dt_s=dt_s,
+        center_px=center_px,
+        layer_px=layer_px,
+        air_temp_c=air_temp_c,
+        measured_share=measured_share,
+        departure_deg=departure_deg,
+        turning_radii=turning_radii,
+        wake_deflection_deg=wake_deflection_deg,
+        spreading_coefficient=spreading_coefficient,
+        reverse_ratio=reverse_ratio,
+        axis_reverse_ratio=axis_reverse_ratio,
+        closure_diameters=closure_diameters,
+        rollup_fraction=rollup_fraction,
+        held=held,
+        seed=seed,
     )
     rng = np.random.default_rng([seed, 1])
     height, width = shape
     scale = truth.scale_mm_per_px
     shift_px = flow.speed_px
-    center_px = (0.5 * (truth.center_a_px[0] + truth.center_b_px[0]),
-                 0.5 * (truth.center_a_px[1] + truth.center_b_px[1]))
+    center_px = (
+        0.5 * (truth.center_a_px[0] + truth.center_b_px[0]),
+        0.5 * (truth.center_a_px[1] + truth.center_b_px[1]),
+    )
 
     # --- particles: seeded at mid-exposure, advected back and forth in the ball frame ---------
     thickness = rng.uniform(1.0, 2.0) / scale  # a 1-2 mm sheet
@@ -307,8 +351,11 @@ def physical_shot(
     lab_x, lab_y = lab_x[keep], lab_y[keep]
     z_mid = rng.uniform(-z_half, z_half, lab_x.size)
     z_move = oop * (1.0 + 0.5 * rng.standard_normal(lab_x.size))
-    diam = np.clip(rng.lognormal(math.log(math.sqrt(diameter_px[0] * diameter_px[1])), 0.25, lab_x.size),
-                   diameter_px[0], diameter_px[1])
+    diam = np.clip(
+        rng.lognormal(math.log(math.sqrt(diameter_px[0] * diameter_px[1])), 0.25, lab_x.size),
+        diameter_px[0],
+        diameter_px[1],
+    )
     brightness = rng.lognormal(0.0, 0.35, lab_x.size)
     rho_x, rho_y = lab_x - center_px[0], lab_y - center_px[1]
     positions = [_advect(flow, rho_x, rho_y, -0.5), _advect(flow, rho_x, rho_y, +0.5)]
@@ -322,14 +369,21 @@ def physical_shot(
         width_px=size * rng.uniform(1.1, 1.6) / (1.0 + k),
         offset_px=size * rng.uniform(-0.25, 0.25) * k,
         falloff=rng.uniform(0.1, 0.4) * k,
-        streaks=tuple((rng.uniform(0.0, 0.12) * k, 2 * math.pi / rng.uniform(40.0, 250.0),
-                       rng.uniform(0, 2 * math.pi)) for _ in range(2)),
+        streaks=tuple(
+            (
+                rng.uniform(0.0, 0.12) * k,
+                2 * math.pi / rng.uniform(40.0, 250.0),
+                rng.uniform(0, 2 * math.pi),
+            )
+            for _ in range(2)
+        ),
         thickness_px=thickness,
         shadow=shadow,
         shadow_level=rng.uniform(0.0, 0.04) if shadow else rng.uniform(0.7, 1.0),
     )
-    look = _ball_look(surface, lit_rim, glint, light_from_deg,
-                      spin_rpm * 2 * math.pi / 60.0 * truth.dt_s, rng)
+    look = _ball_look(
+        surface, lit_rim, glint, light_from_deg, spin_rpm * 2 * math.pi / 60.0 * truth.dt_s, rng
+    )
     background = camera_background(shape, full_scale, rng)
     read_noise = rng.uniform(3.0, 8.0) if bit_depth == 12 else rng.uniform(0.4, 1.2)
     peak_counts = rng.uniform(0.35, 0.6) * full_scale * brightness
@@ -338,15 +392,25 @@ def physical_shot(
     for (px, py), center, tau in zip(positions, centers, (-0.5, 0.5)):
         x, y = px + center[0], py + center[1]
         z = z_mid + tau * z_move
-        peak = peak_counts * np.exp(-8.0 * z**2 / thickness**2) * sheet.intensity(x, y, shape, center, radius_px)
+        peak = (
+            peak_counts
+            * np.exp(-8.0 * z**2 / thickness**2)
+            * sheet.intensity(x, y, shape, center, radius_px)
+        )
         air = _render(shape, x, y, diam, peak, read_noise)
         light = paint_ball(air, background, center, radius_px, tau, look, sheet, full_scale)
         frames.append(expose(light, background, bit_depth, rng, read_noise))
 
     truth = dataclasses.replace(
-        truth, surface=surface, lit_rim=lit_rim, glint=glint, shadow=shadow,
+        truth,
+        surface=surface,
+        lit_rim=lit_rim,
+        glint=glint,
+        shadow=shadow,
         shadow_side=_shadow_side(flight_deg, sheet) if shadow else None,
-        light_from_deg=float(light_from_deg), bit_depth=bit_depth, spin_rpm=float(spin_rpm),
+        light_from_deg=float(light_from_deg),
+        bit_depth=bit_depth,
+        spin_rpm=float(spin_rpm),
     )
     return frames[0], frames[1], truth
 
@@ -356,8 +420,9 @@ def _render(shape, x, y, diam, peak, floor_counts):
     seen = peak > 0.1 * floor_counts
     small = seen & (diam <= 2.6)
     large = seen & ~small
-    return (render_particles(shape, x[small], y[small], diam[small], peak[small])
-            + render_particles(shape, x[large], y[large], diam[large], peak[large]))
+    return render_particles(shape, x[small], y[small], diam[small], peak[small]) + render_particles(
+        shape, x[large], y[large], diam[large], peak[large]
+    )
 
 
 def _advect(flow: BallWake, x: np.ndarray, y: np.ndarray, tau_end: float):
@@ -376,9 +441,16 @@ def _advect(flow: BallWake, x: np.ndarray, y: np.ndarray, tau_end: float):
     return x, y
 
 
-def _ball_look(surface: str, lit_rim: bool, glint: bool, light_from_deg: float,
-               spin_rad_per_frame: float, rng: np.random.Generator) -> BallLook:
+def _ball_look(
+    surface: str,
+    lit_rim: bool,
+    glint: bool,
+    light_from_deg: float,
+    spin_rad_per_frame: float,
+    rng: np.random.Generator,
+) -> BallLook:
     """Random seam, spin axis, grain and rim/glare strengths for one ball."""
+
     def unit():
         v = rng.standard_normal(3)
         return tuple(v / np.linalg.norm(v))
@@ -390,13 +462,20 @@ def _ball_look(surface: str, lit_rim: bool, glint: bool, light_from_deg: float,
         waves.append((k * kx, k * ky, k * kz, rng.uniform(0.0, 2 * math.pi)))
     bright = surface == "bright"
     return BallLook(
-        surface=surface, lit_rim=lit_rim, glint=glint, seam_normal=unit(), spin_axis=unit(),
-        spin_rad_per_frame=spin_rad_per_frame, seam_contrast=rng.uniform(-0.4, 0.4),
-        texture=tuple(waves), texture_amplitude=rng.uniform(0.02, 0.06),
+        surface=surface,
+        lit_rim=lit_rim,
+        glint=glint,
+        seam_normal=unit(),
+        spin_axis=unit(),
+        spin_rad_per_frame=spin_rad_per_frame,
+        seam_contrast=rng.uniform(-0.4, 0.4),
+        texture=tuple(waves),
+        texture_amplitude=rng.uniform(0.02, 0.06),
         level_factor=rng.uniform(0.8, 1.25) if surface != "bright" else rng.uniform(0.9, 1.5),
         rim_counts=rng.uniform(0.9, 1.4) if bright else rng.uniform(0.3, 0.7),
         glint_angle_deg=light_from_deg + rng.uniform(-25.0, 25.0),
-        glint_length_px=rng.uniform(4.0, 12.0), glint_width_px=rng.uniform(1.5, 3.0),
+        glint_length_px=rng.uniform(4.0, 12.0),
+        glint_width_px=rng.uniform(1.5, 3.0),
         glare_counts=rng.uniform(0.1, 0.3) if bright else 0.0,
         glare_length_px=rng.uniform(3.0, 8.0),
     )
@@ -440,32 +519,39 @@ def physical_cases(count: int, seed: int = 0) -> list[dict]:
             if rng.random() < 0.8:
                 departures.append(float(rng.uniform(5.0, 20.0)))
             else:
-                departures.append(float(rng.choice([rng.uniform(0.0, 5.0), rng.uniform(20.0, 25.0)])))
-        cases.append(dict(
-            radius_px=float(rng.uniform(150.0, 260.0)),
-            layer_px=float(rng.uniform(1.5, 9.0)),
-            ball_diameter_mm=float(rng.choice(SWEEP_DIAMETERS_MM)),
-            air_temp_c=float(rng.uniform(12.0, 28.0)),
-            flight_deg=float((180.0 if rng.random() < 0.5 else 0.0) + rng.uniform(-4.0, 4.0)) % 360.0,
-            measured_share=(float(rng.uniform(0.0, 1.0)), float(rng.uniform(0.0, 1.0))),
-            departure_deg=tuple(departures),
-            turning_radii=(float(rng.uniform(0.6, 1.6)), float(rng.uniform(0.6, 1.6))),
-            spreading_coefficient=float(rng.uniform(0.14, 0.22)),
-            reverse_ratio=float(rng.uniform(0.05, 0.15)),
-            axis_reverse_ratio=float(rng.uniform(0.2, 0.4)),
-            closure_diameters=float(rng.uniform(1.0, 2.0)),
-            rollup_fraction=float(rng.uniform(0.2, 0.6)),
-            surface=str(rng.choice(SURFACES)),
-            lit_rim=bool(rng.random() < 0.7),
-            glint=bool(rng.random() < 0.25),
-            shadow=bool(rng.random() < 1.0 / 6.0),
-            light_from_deg=float((90.0 if rng.random() < 0.5 else 270.0) + rng.uniform(-20.0, 20.0)),
-            sheet_unevenness=float(rng.uniform(0.2, 1.0)),
-            bit_depth=int(rng.choice([8, 12])),
-            density_ppp=float(rng.uniform(0.03, 0.07)),
-            out_of_plane=float(rng.uniform(0.05, 0.2)),
-            spin_rpm=float(rng.uniform(500.0, 2500.0)),
-            held=bool(rng.random() < 0.1),
-            seed=int(rng.integers(0, 2**31 - 1)),
-        ))
+                departures.append(
+                    float(rng.choice([rng.uniform(0.0, 5.0), rng.uniform(20.0, 25.0)]))
+                )
+        cases.append(
+            {
+                "radius_px": float(rng.uniform(150.0, 260.0)),
+                "layer_px": float(rng.uniform(1.5, 9.0)),
+                "ball_diameter_mm": float(rng.choice(SWEEP_DIAMETERS_MM)),
+                "air_temp_c": float(rng.uniform(12.0, 28.0)),
+                "flight_deg": float((180.0 if rng.random() < 0.5 else 0.0) + rng.uniform(-4.0, 4.0))
+                % 360.0,
+                "measured_share": (float(rng.uniform(0.0, 1.0)), float(rng.uniform(0.0, 1.0))),
+                "departure_deg": tuple(departures),
+                "turning_radii": (float(rng.uniform(0.6, 1.6)), float(rng.uniform(0.6, 1.6))),
+                "spreading_coefficient": float(rng.uniform(0.14, 0.22)),
+                "reverse_ratio": float(rng.uniform(0.05, 0.15)),
+                "axis_reverse_ratio": float(rng.uniform(0.2, 0.4)),
+                "closure_diameters": float(rng.uniform(1.0, 2.0)),
+                "rollup_fraction": float(rng.uniform(0.2, 0.6)),
+                "surface": str(rng.choice(SURFACES)),
+                "lit_rim": bool(rng.random() < 0.7),
+                "glint": bool(rng.random() < 0.25),
+                "shadow": bool(rng.random() < 1.0 / 6.0),
+                "light_from_deg": float(
+                    (90.0 if rng.random() < 0.5 else 270.0) + rng.uniform(-20.0, 20.0)
+                ),
+                "sheet_unevenness": float(rng.uniform(0.2, 1.0)),
+                "bit_depth": int(rng.choice([8, 12])),
+                "density_ppp": float(rng.uniform(0.03, 0.07)),
+                "out_of_plane": float(rng.uniform(0.05, 0.2)),
+                "spin_rpm": float(rng.uniform(500.0, 2500.0)),
+                "held": bool(rng.random() < 0.1),
+                "seed": int(rng.integers(0, 2**31 - 1)),
+            }
+        )
     return cases
