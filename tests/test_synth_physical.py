@@ -126,7 +126,7 @@ def test_field_profile_at_separation_has_the_truth_thickness(flow_and_truth, sid
     # one edge value (the equivalent inviscid flow of curved-wall layers; common practice)
     big_r, t = truth.radius_px, math.radians(angle + 90.0)
     r = big_r + d
-    _, inviscid = flow.sides[side].outer(r * math.cos(t), r * math.sin(t), r, np.full_like(d, t))
+    _, inviscid = flow.sides[side].outer(r, np.full_like(d, t))
     ratio = u / (inviscid / flow.speed_px)
     theta = np.trapezoid(ratio * (1.0 - ratio), d)
     assert theta == pytest.approx(truth.theta_sep_px[k], rel=0.02)

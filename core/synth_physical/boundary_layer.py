@@ -27,7 +27,7 @@ def measured_surface_velocity(t: np.ndarray) -> np.ndarray:
     ``1.5 t - 0.4371 t^3 + 0.1481 t^5 - 0.0423 t^7`` (memory). Checked by its consequence:
     Thwaites' method puts laminar separation at 81 deg from the front stagnation point on it,
     where Achenbach (1972, J. Fluid Mech. 54:565) measured 80-82 deg (memory). The fit holds up
-    to about separation; it falls steeply beyond 95 deg and is negative past 110 deg.
+    to about separation; it falls steeply beyond 95 deg and changes sign at 107 deg.
 
     Parameters
     ----------
@@ -46,7 +46,10 @@ def measured_surface_velocity_slope(t: np.ndarray) -> np.ndarray:
 
 
 def potential_surface_velocity(t: np.ndarray) -> np.ndarray:
-    """Surface velocity ``Ue/U = 1.5 sin t`` of potential flow past a sphere (Batchelor 1967; memory)."""
+    """Surface velocity ``Ue/U = 1.5 sin t`` of potential flow past a sphere.
+
+    Batchelor (1967), An Introduction to Fluid Dynamics (memory).
+    """
     return 1.5 * np.sin(t)
 
 
@@ -85,8 +88,8 @@ class ThwaitesLayer:
     ----------
     t : (N,) ndarray
         Angle from the front stagnation point, rad, up to the separation point included.
-    ue, due_dt : (N,) ndarray
-        Edge velocity ``Ue/U`` and its slope per rad.
+    ue : (N,) ndarray
+        Edge velocity ``Ue/U``.
     theta2_re : (N,) ndarray
         ``(theta/R)^2 Re_R`` with ``Re_R = U R / nu``: the momentum thickness at any Reynolds
         number (the laminar layer scales with ``1/sqrt(Re)``).
@@ -98,7 +101,6 @@ class ThwaitesLayer:
 
     t: np.ndarray
     ue: np.ndarray
-    due_dt: np.ndarray
     theta2_re: np.ndarray
     lam: np.ndarray
     t_sep: float
@@ -161,12 +163,11 @@ def thwaites_mangler(measured_weight: float, points: int = 3001) -> ThwaitesLaye
     keep = slice(0, k + 1)
     t_out = t[keep].copy()
     t_out[-1] = t_sep
-    ue_s, due_s = blended_surface_velocity(np.array([t_sep]), measured_weight)
+    ue_s, _ = blended_surface_velocity(np.array([t_sep]), measured_weight)
     th_s = theta2_re[k - 1] + frac * (theta2_re[k] - theta2_re[k - 1])
     return ThwaitesLayer(
         t=t_out,
         ue=np.append(ue[:k], ue_s),
-        due_dt=np.append(due[:k], due_s),
         theta2_re=np.append(theta2_re[:k], th_s),
         lam=np.append(lam[:k], LAMBDA_SEPARATION),
         t_sep=t_sep,
@@ -177,7 +178,7 @@ def thwaites_mangler(measured_weight: float, points: int = 3001) -> ThwaitesLaye
 
 #: Wall shear ``f''(0)`` and ``beta`` of solved Falkner-Skan profiles, used as first guesses:
 #: (0, -0.19884) Hartree's separation profile, (0.4696, 0) Blasius, (1.2326, 1) Hiemenz
-#: (solved here by shooting; the values agree with the standard tables, seen in White).
+#: (solved here by shooting; they agree with the tables recalled from White, memory).
 _GUESS_SHEAR = np.array([0.0, 0.0857, 0.3193, 0.4696, 0.9277, 1.2326])
 _GUESS_BETA = np.array([-0.19884, -0.19, -0.1, 0.0, 0.5, 1.0])
 
@@ -197,8 +198,8 @@ class FalknerSkanTable:
         Pressure-gradient parameter of each profile.
     eta : (M,) ndarray
         Uniform grid of the similarity variable.
-    f, df : (K, M) ndarray
-        ``f`` and ``f' = u/Ue`` on the grid.
+    df : (K, M) ndarray
+        ``f' = u/Ue`` on the grid.
     theta, delta_star, delta99 : (K,) ndarray
         Momentum, displacement and 99 % thickness.
     max_slope : (K,) ndarray
@@ -211,7 +212,6 @@ class FalknerSkanTable:
     wall_shear: np.ndarray
     beta: np.ndarray
     eta: np.ndarray
-    f: np.ndarray
     df: np.ndarray
     theta: np.ndarray
     delta_star: np.ndarray
@@ -221,7 +221,7 @@ class FalknerSkanTable:
 
 
 def _falkner_skan_march(wall_shear, beta, step, steps):
-    """RK4 march of the Falkner-Skan equation and of its derivative in ``beta``, all profiles at once.
+    """RK4 march of the Falkner-Skan equation and its derivative in ``beta``, all profiles at once.
 
     Returns the states ``(f, f', f'')`` on every grid point, shape ``(steps + 1, 3, K)``, and
     ``d f'(eta_max) / d beta``.
@@ -296,7 +296,6 @@ def falkner_skan_table(
     s = np.linspace(0.0, _GUESS_SHEAR[-1], profiles)
     beta, states = falkner_skan_beta(s, eta_max=eta_max, step=step)
     eta = np.arange(states.shape[0]) * step
-    f = states[:, 0, :].T.copy()
     df = np.clip(states[:, 1, :].T, 0.0, None)
     d2f = states[:, 2, :].T
     theta = np.trapezoid(df * (1.0 - df), eta, axis=1)
@@ -306,7 +305,6 @@ def falkner_skan_table(
         wall_shear=s,
         beta=beta,
         eta=eta,
-        f=f,
         df=df,
         theta=theta,
         delta_star=delta_star,

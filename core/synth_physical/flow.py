@@ -37,6 +37,7 @@ from scipy.special import erf
 from core.geometry import flight_unit, upper_normal
 from core.synth_physical.boundary_layer import (
     FalknerSkanTable,
+    blended_surface_velocity,
     falkner_skan_table,
     thwaites_mangler,
     thwaites_shear,
@@ -167,7 +168,6 @@ class SideFlow:
         self.t_sep = layer.t_sep
         self.ue_sep_px = float(layer.ue[-1]) * speed_px
         # attached layer along t: momentum thickness, matched profile and its length scale
-        self.t_grid = layer.t
         theta_px = radius_px * layer.theta_over_r(reynolds_radius)
         shear = thwaites_shear(layer.lam)
         self.profile_index = np.interp(
@@ -190,14 +190,12 @@ class SideFlow:
         self.wall_layer_px = self.delta99_sep_px
         self.xi_sep_px = -radius_px * math.cos(self.t_sep)
         self.handover_px = HANDOVER_DELTA99 * self.delta99_sep_px * max(math.sin(self.t_sep), 0.5)
-        self._outer_slip(layer, wake)
+        self._outer_slip()
         self._free_layer_path(wake, reach_px)
 
     # --- outer flow ---------------------------------------------------------------------------
-    def _outer_slip(self, layer, wake: WakeSpec) -> None:
-        """Tabulate the slip correction ``D(t) = Ue(t) - 1.5 U sin t`` and ``d(sin t D)/dt / sin t``."""
-        from core.synth_physical.boundary_layer import blended_surface_velocity
-
+    def _outer_slip(self) -> None:
+        """Tabulate the slip correction ``D = Ue - 1.5 U sin t`` and ``d(sin t D)/dt / sin t``."""
         t = np.linspace(0.0, math.pi, 721)
         ue, _ = blended_surface_velocity(t, self.spec.measured_weight)
         ue = ue * self.speed_px
@@ -223,8 +221,13 @@ class SideFlow:
         self.slip_table = UniformTable(t, np.stack((slip, k)))
         self.slip_decay_px = self.radius_px  # the correction reaches about one radius out
 
-    def outer(self, p, q, r, t):
-        """Outer flow (components along ``f`` and the side's outward normal), px per frame."""
+    def outer(self, r, t):
+        """Outer flow at radius ``r`` and angle ``t``: radial and tangential parts, px per frame.
+
+        Potential flow past the sphere plus the slip correction from the Stokes stream function
+        ``dpsi = -R sin t D(t) (r - R) exp(-(r - R)/R)``: ``u_r = (1/(r^2 sin t)) dpsi/dt``,
+        ``u_t = -(1/(r sin t)) dpsi/dr`` (divergence-free; zero normal flow at the wall).
+        """
         big_r, u = self.radius_px, self.speed_px
         k3 = (big_r / r) ** 3
         tc = np.clip(t, 0.0, math.pi)
@@ -239,7 +242,7 @@ class SideFlow:
 
     # --- attached layer -----------------------------------------------------------------------
     def attached_profile(self, t, d, table: FalknerSkanTable):
-        """``u/Ue`` of the attached layer at angle ``t`` and wall distance ``d`` (frozen beyond ``t_sep``)."""
+        """``u/Ue`` of the attached layer at angle ``t``, wall distance ``d`` (frozen past ``t_sep``)."""
         length, index = self.attached_table(np.minimum(t, self.t_sep))
         step = table.eta[1] - table.eta[0]
         eta_index = np.minimum(d / length / step, table.eta.size - 1.0)
@@ -321,11 +324,9 @@ class BallWake:
         reach_px: float,
         rng: np.random.Generator,
     ):
-        self.radius_px, self.speed_px, self.flight_deg = (
-            float(radius_px),
-            float(speed_px),
-            flight_deg,
-        )
+        self.radius_px = float(radius_px)
+        self.speed_px = float(speed_px)
+        self.flight_deg = flight_deg
         self.wake = wake
         self.table = falkner_skan_table()
         self.f = flight_unit(flight_deg)
@@ -343,16 +344,15 @@ class BallWake:
 
     # --- wake geometry ------------------------------------------------------------------------
     def _wake_axis(self, reach_px: float) -> None:
-        """Centre line ``c(xi)`` and half-width ``b(xi)`` of the wake between the two free layers."""
+        """Centre line ``c(xi)``, half-width ``b(xi)`` and slope of the wake between the layers."""
         up, lo = self.sides["upper"], self.sides["lower"]
         xi = np.linspace(min(up.path_xi[0], lo.path_xi[0]), reach_px, 2048)
         q_up = np.interp(xi, up.path_xi, up.path_q)
         q_lo = -np.interp(xi, lo.path_xi, lo.path_q)
-        self.axis_xi = xi
-        self.axis_c = 0.5 * (q_up + q_lo)
-        self.axis_b = 0.5 * (q_up - q_lo)
-        self.axis_slope = np.gradient(self.axis_c, xi)
-        self.axis_table = UniformTable(xi, np.stack((self.axis_c, self.axis_b, self.axis_slope)))
+        centre = 0.5 * (q_up + q_lo)
+        self.axis_table = UniformTable(
+            xi, np.stack((centre, 0.5 * (q_up - q_lo), np.gradient(centre, xi)))
+        )
         big_r = self.radius_px
         self.closure_xi_px = big_r + self.wake.closure_diameters * 2.0 * big_r
         self.virtual_origin_px = self.closure_xi_px - big_r
@@ -362,9 +362,9 @@ class BallWake:
         return self.axis_table(xi, slice(0, 1))[0] * np.clip(xi / self.radius_px, 0.0, 1.0)
 
     def centreline_speed(self, xi, edge_reverse_px):
-        """Interior speed along the wake on its axis and next to its layers (px per frame, + downstream).
+        """Interior speed along the wake, on its axis and next to its layers (px per frame).
 
-        Inside the recirculation (``xi`` up to the closure) both reverse and fall to zero at the
+        Positive downstream. Inside the recirculation (``xi`` up to the closure) both reverse and fall to zero at the
         closure as ``1 - sigma^2``; beyond it the far-wake deficit ``((xc - x0)/(xi - x0))^(2/3)``.
         """
         big_r, u = self.radius_px, self.speed_px
@@ -468,7 +468,7 @@ class BallWake:
         t = np.mod(np.arctan2(q_side, p), 2.0 * math.pi)
         cos_t, sin_t = np.cos(t), np.sin(t)
         d = r - self.radius_px
-        ur, ut = side.outer(p, q_side, r, t)
+        ur, ut = side.outer(r, t)
         # attached layer (frozen separating profile beyond t_sep)
         bl_r, bl_t = ur, ut.copy()
         near = np.nonzero(d < side.attached_reach_px)
@@ -531,7 +531,7 @@ class BallWake:
         return speed * onset * hr, speed * onset * ht
 
     def _add_vortices(self, rx, ry, tau, vx, vy, outside) -> None:
-        """Add the roll-up vortices (shielded: a Lamb-Oseen core less the same circulation spread wider)."""
+        """Add the roll-up vortices: a Lamb-Oseen core less the same circulation spread wider."""
         if not self.vortices:
             return
         # candidates: points in the box that holds every vortex's reach, sorted along x
@@ -569,10 +569,6 @@ class BallWake:
             vy[near] -= ratio * dx
 
     # --- truth --------------------------------------------------------------------------------
-    def closure_px(self) -> float:
-        """Distance from the ball centre to where the axis flow turns forward again (px)."""
-        return float(self.closure_xi_px)
-
     def separation_deg(self, name: str) -> float:
         """Separation angle of one side in the README's convention (deg, 0 at the flight normal)."""
         return math.degrees(self.sides[name].t_sep) - 90.0

@@ -191,7 +191,7 @@ def physical_flow(
         spreading_rate=(up.spreading_rate, lo.spreading_rate),
         measured_share=(float(measured_share[0]), float(measured_share[1])),
         turning_px=(up.turning_px, lo.turning_px),
-        closure_px=flow.closure_px(),
+        closure_px=flow.closure_xi_px,
         held=held,
     )
     return flow, truth
