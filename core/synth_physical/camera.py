@@ -89,7 +89,10 @@ class BallLook:
     ``seam_normal`` and ``spin_axis`` are unit 3-vectors (x right, y down, z toward the camera);
     the seam is the great circle normal to ``seam_normal`` at mid-exposure and turns about
     ``spin_axis`` by ``spin_rad_per_frame`` per frame interval. ``texture`` rows are
-    ``(kx, ky, kz, phase)`` of the surface's mild grain (fixed to the ball).
+    ``(kx, ky, kz, phase)`` of the surface's mild grain (fixed to the ball). ``level_factor``
+    scales the surface level of its kind; ``rim_fraction`` and ``glare_fraction`` are the lit
+    rim's and the glare's peaks as fractions of full scale (at full sheet intensity); the glint is
+    centred ``glint_angle_deg`` (flight convention) from the ball centre, on the outline.
     """
 
     surface: str = "dark"
@@ -104,11 +107,11 @@ class BallLook:
     texture: tuple[tuple[float, float, float, float], ...] = ()
     texture_amplitude: float = 0.04
     level_factor: float = 1.0
-    rim_counts: float = 0.5
+    rim_fraction: float = 0.5
     glint_angle_deg: float = 0.0
     glint_length_px: float = 10.0
     glint_width_px: float = 2.0
-    glare_counts: float = 0.0
+    glare_fraction: float = 0.0
     glare_length_px: float = 5.0
 
 
@@ -119,6 +122,30 @@ def _rotate(v: np.ndarray, axis, angle: float) -> np.ndarray:
     return v * c + np.cross(k, v) * s + np.outer(v @ k, k).reshape(v.shape) * (1.0 - c)
 
 
+def surface_level(
+    air: np.ndarray, background: np.ndarray, center_px, radius_px: float, look: BallLook
+) -> float:
+    """Mean surface counts of the ball, set against the seeded air's mean brightness near it.
+
+    ``dark``: a few percent of the air's light above the background; ``dim``: about the air's
+    mean; ``bright``: several times it (a white ball). The air is sampled in the ring from
+    ``R + 2`` to ``1.6 R``.
+    """
+    cx, cy = center_px
+    height, width = air.shape
+    reach = 1.6 * radius_px
+    x0, x1 = max(int(cx - reach), 0), min(int(cx + reach) + 2, width)
+    y0, y1 = max(int(cy - reach), 0), min(int(cy + reach) + 2, height)
+    yy, xx = np.mgrid[y0:y1, x0:x1]
+    r = np.hypot(xx - cx, yy - cy)
+    ring = (r > radius_px + 2.0) & (r < reach)
+    lit = air[y0:y1, x0:x1] + background[y0:y1, x0:x1]
+    air_mean = float(np.mean(lit[ring])) if np.any(ring) else float(np.mean(air + background))
+    bg_mean = float(np.mean(background[y0:y1, x0:x1]))
+    level = {"dark": 0.06, "dim": 1.0, "bright": 3.0}[look.surface] * look.level_factor
+    return bg_mean + max(air_mean - bg_mean, 1.0) * level
+
+
 def paint_ball(
     air: np.ndarray,
     background: np.ndarray,
@@ -127,17 +154,17 @@ def paint_ball(
     tau: float,
     look: BallLook,
     sheet: LightSheet,
+    surface_counts: float,
     full_scale: float,
 ) -> np.ndarray:
     """Lay the ball over one frame's air image.
 
     ``air`` holds the particle images (counts above the background), ``background`` the camera's
     background; the result is the light reaching the sensor. Inside the outline (pixel coverage
-    by area) the air is replaced by the surface, so no particle image appears inside the ball.
-    The surface level is set against the air's mean brightness near the ball: ``dark`` a few
-    percent of it, ``dim`` about equal, ``bright`` several times it (a white ball), with glare
-    around the lit side. ``tau`` is the time from mid-exposure in frame intervals (the seam and
-    grain turn with the spin).
+    by area) the air is replaced by the surface (mean ``surface_counts``, see
+    :func:`surface_level`), so no particle image appears inside the ball; a bright ball adds
+    glare around its lit side. ``tau`` is the time from mid-exposure in frame intervals (the
+    seam and grain turn with the spin).
     """
     height, width = air.shape
     cx, cy = center_px
@@ -152,9 +179,6 @@ def paint_ball(
     u, v = xx - cx, yy - cy
     r = np.hypot(u, v)
     cover = np.clip(big_r + 0.5 - r, 0.0, 1.0)
-    ring = (r > big_r + 2.0) & (r < 1.6 * big_r)
-    air_mean = float(np.mean(out[y0:y1, x0:x1][ring])) if np.any(ring) else float(np.mean(out))
-    bg_mean = float(np.mean(background[y0:y1, x0:x1]))
     ex, ey = sheet.direction()
     nx, ny = u / np.maximum(r, 1e-9), v / np.maximum(r, 1e-9)
     facing = np.clip(-(nx * ex + ny * ey), 0.0, None)  # the outline's side facing the light
@@ -166,8 +190,6 @@ def paint_ball(
     face = np.nonzero(r < big_r + 4.0)  # the rim's band reaches just outside the outline
     seam[face], grain[face] = _face_pattern(u[face] / big_r, v[face] / big_r, zz[face], look, tau)
 
-    level = {"dark": 0.06, "dim": 1.0, "bright": 3.0}[look.surface] * look.level_factor
-    surface_counts = bg_mean + max(air_mean - bg_mean, 1.0) * level
     shade = (0.8 + 0.2 * zz) * (1.0 + 0.15 * (-(u * ex + v * ey) / big_r))
     surface = (
         surface_counts
@@ -185,32 +207,27 @@ def paint_ball(
             nx * ex + ny * ey, 0.0, None
         )
         band = np.exp(-0.5 * ((r - (big_r - 0.8)) / 0.8) ** 2)
-        painted += look.rim_counts * full_scale * sheet_at * lit**0.7 * band * (1.0 + 2.0 * seam)
-    if look.glare_counts > 0:
+        painted += look.rim_fraction * full_scale * sheet_at * lit**0.7 * band * (1.0 + 2.0 * seam)
+    if look.glare_fraction > 0:
         outside = np.clip(r - big_r, 0.0, None)
-        painted += (
-            (1.0 - cover)
-            * look.glare_counts
-            * full_scale
-            * sheet_at
-            * facing
-            * np.exp(-outside / look.glare_length_px)
-        )
+        glare = look.glare_fraction * full_scale * sheet_at * facing
+        painted += (1.0 - cover) * glare * np.exp(-outside / look.glare_length_px)
     if look.glint:
-        a = math.radians(look.glint_angle_deg)
-        gx, gy = math.cos(a), -math.sin(a)
-        centre = big_r - 1.5
-        along = (u - centre * gx) * (-gy) + (v - centre * gy) * gx
-        across = (u - centre * gx) * gx + (v - centre * gy) * gy
-        painted += (
-            2.0
-            * full_scale
-            * np.exp(
-                -0.5 * ((along / look.glint_length_px) ** 2 + (across / look.glint_width_px) ** 2)
-            )
-        )
+        painted += 2.0 * full_scale * _glint(u, v, big_r, look)
     out[y0:y1, x0:x1] = painted
     return out
+
+
+def _glint(u, v, big_r: float, look: BallLook) -> np.ndarray:
+    """A specular patch on the outline, elongated along it (twice full scale: it saturates)."""
+    a = math.radians(look.glint_angle_deg)
+    gx, gy = math.cos(a), -math.sin(a)
+    du, dv = u - (big_r - 1.5) * gx, v - (big_r - 1.5) * gy
+    along = -du * gy + dv * gx
+    across = du * gx + dv * gy
+    return np.exp(
+        -0.5 * ((along / look.glint_length_px) ** 2 + (across / look.glint_width_px) ** 2)
+    )
 
 
 def _face_pattern(u, v, z, look: BallLook, tau: float):
@@ -221,9 +238,7 @@ def _face_pattern(u, v, z, look: BallLook, tau: float):
     """
     point = np.stack((np.clip(u, -1, 1), np.clip(v, -1, 1), z), axis=-1)
     turn = look.spin_rad_per_frame * tau
-    seam_n = _rotate(np.asarray(look.seam_normal, dtype=np.float64)[None, :], look.spin_axis, turn)[
-        0
-    ]
+    seam_n = _rotate(np.array([look.seam_normal], dtype=np.float64), look.spin_axis, turn)[0]
     body = _rotate(point, look.spin_axis, -turn)
     seam = np.exp(-0.5 * (point @ seam_n / look.seam_half_width_rad) ** 2)
     seam *= 0.75 + 0.25 * np.cos(look.stitches * np.arctan2(body[:, 1], body[:, 0]))

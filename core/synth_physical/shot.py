@@ -18,6 +18,7 @@ from core.synth_physical.camera import (
     camera_background,
     expose,
     paint_ball,
+    surface_level,
 )
 from core.synth_physical.flow import BallWake, SideSpec, WakeSpec
 from core.synth_shot import ShotTruth
@@ -339,8 +340,10 @@ def physical_shot(
         0.5 * (truth.center_a_px[1] + truth.center_b_px[1]),
     )
 
+    sheet = _light_sheet(shape, light_from_deg, sheet_unevenness, scale, shadow, rng)
+    thickness = sheet.thickness_px
+
     # --- particles: seeded at mid-exposure, advected back and forth in the ball frame ---------
-    thickness = rng.uniform(1.0, 2.0) / scale  # a 1-2 mm sheet
     oop = out_of_plane * thickness
     z_half = 0.5 * thickness + abs(oop)
     pad = 0.75 * shift_px + 4.0 * diameter_px[1]
@@ -350,6 +353,7 @@ def physical_shot(
     keep = np.hypot(lab_x - center_px[0], lab_y - center_px[1]) > radius_px
     lab_x, lab_y = lab_x[keep], lab_y[keep]
     z_mid = rng.uniform(-z_half, z_half, lab_x.size)
+    # out-of-plane motion, scattered by half its mean (the 3D wake): pairs are lost
     z_move = oop * (1.0 + 0.5 * rng.standard_normal(lab_x.size))
     diam = np.clip(
         rng.lognormal(math.log(math.sqrt(diameter_px[0] * diameter_px[1])), 0.25, lab_x.size),
@@ -360,27 +364,8 @@ def physical_shot(
     rho_x, rho_y = lab_x - center_px[0], lab_y - center_px[1]
     positions = [_advect(flow, rho_x, rho_y, -0.5), _advect(flow, rho_x, rho_y, +0.5)]
 
-    # --- light sheet, ball, camera -----------------------------------------------------------
+    # --- ball, camera ----------------------------------------------------------------------------
     full_scale = float(2**bit_depth - 1)
-    size = max(height, width)
-    k = sheet_unevenness
-    sheet = LightSheet(
-        from_deg=light_from_deg,
-        width_px=size * rng.uniform(1.1, 1.6) / (1.0 + k),
-        offset_px=size * rng.uniform(-0.25, 0.25) * k,
-        falloff=rng.uniform(0.1, 0.4) * k,
-        streaks=tuple(
-            (
-                rng.uniform(0.0, 0.12) * k,
-                2 * math.pi / rng.uniform(40.0, 250.0),
-                rng.uniform(0, 2 * math.pi),
-            )
-            for _ in range(2)
-        ),
-        thickness_px=thickness,
-        shadow=shadow,
-        shadow_level=rng.uniform(0.0, 0.04) if shadow else rng.uniform(0.7, 1.0),
-    )
     look = _ball_look(
         surface, lit_rim, glint, light_from_deg, spin_rpm * 2 * math.pi / 60.0 * truth.dt_s, rng
     )
@@ -388,6 +373,7 @@ def physical_shot(
     read_noise = rng.uniform(3.0, 8.0) if bit_depth == 12 else rng.uniform(0.4, 1.2)
     peak_counts = rng.uniform(0.35, 0.6) * full_scale * brightness
     frames = []
+    level = None
     centers = (truth.center_a_px, truth.center_b_px)
     for (px, py), center, tau in zip(positions, centers, (-0.5, 0.5)):
         x, y = px + center[0], py + center[1]
@@ -398,7 +384,9 @@ def physical_shot(
             * sheet.intensity(x, y, shape, center, radius_px)
         )
         air = _render(shape, x, y, diam, peak, read_noise)
-        light = paint_ball(air, background, center, radius_px, tau, look, sheet, full_scale)
+        if level is None:  # one surface level for both frames: the ball does not change
+            level = surface_level(air, background, center, radius_px, look)
+        light = paint_ball(air, background, center, radius_px, tau, look, sheet, level, full_scale)
         frames.append(expose(light, background, bit_depth, rng, read_noise))
 
     truth = dataclasses.replace(
@@ -413,6 +401,29 @@ def physical_shot(
         spin_rpm=float(spin_rpm),
     )
     return frames[0], frames[1], truth
+
+
+def _light_sheet(shape, light_from_deg, unevenness, scale_mm_per_px, shadow, rng) -> LightSheet:
+    """A 1-2 mm sheet from ``light_from_deg``, its unevenness drawn in proportion to ``unevenness``."""
+    size = max(shape)
+    k = unevenness
+    return LightSheet(
+        from_deg=light_from_deg,
+        width_px=size * rng.uniform(1.1, 1.6) / (1.0 + k),
+        offset_px=size * rng.uniform(-0.25, 0.25) * k,
+        falloff=rng.uniform(0.1, 0.4) * k,
+        streaks=tuple(
+            (
+                rng.uniform(0.0, 0.12) * k,
+                2 * math.pi / rng.uniform(40.0, 250.0),
+                rng.uniform(0, 2 * math.pi),
+            )
+            for _ in range(2)
+        ),
+        thickness_px=rng.uniform(1.0, 2.0) / scale_mm_per_px,
+        shadow=shadow,
+        shadow_level=rng.uniform(0.0, 0.04) if shadow else rng.uniform(0.7, 1.0),
+    )
 
 
 def _render(shape, x, y, diam, peak, floor_counts):
@@ -472,11 +483,11 @@ def _ball_look(
         texture=tuple(waves),
         texture_amplitude=rng.uniform(0.02, 0.06),
         level_factor=rng.uniform(0.8, 1.25) if surface != "bright" else rng.uniform(0.9, 1.5),
-        rim_counts=rng.uniform(0.9, 1.4) if bright else rng.uniform(0.3, 0.7),
+        rim_fraction=rng.uniform(0.9, 1.4) if bright else rng.uniform(0.3, 0.7),
         glint_angle_deg=light_from_deg + rng.uniform(-25.0, 25.0),
         glint_length_px=rng.uniform(4.0, 12.0),
         glint_width_px=rng.uniform(1.5, 3.0),
-        glare_counts=rng.uniform(0.1, 0.3) if bright else 0.0,
+        glare_fraction=rng.uniform(0.1, 0.3) if bright else 0.0,
         glare_length_px=rng.uniform(3.0, 8.0),
     )
 
