@@ -60,7 +60,7 @@ class LightSheet:
         return -math.cos(a), math.sin(a)
 
     def intensity(self, x, y, shape, ball_center_px, radius_px) -> np.ndarray:
-        """Relative sheet intensity at ``(x, y)`` (1 at the sheet's centre), with the ball's shadow."""
+        """Relative sheet intensity at ``(x, y)`` (1 at the sheet's centre), with the shadow."""
         ex, ey = self.direction()
         height, width = shape
         ox, oy = 0.5 * (width - 1), 0.5 * (height - 1)

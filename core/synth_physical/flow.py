@@ -242,7 +242,10 @@ class SideFlow:
 
     # --- attached layer -----------------------------------------------------------------------
     def attached_profile(self, t, d, table: FalknerSkanTable):
-        """``u/Ue`` of the attached layer at angle ``t``, wall distance ``d`` (frozen past ``t_sep``)."""
+        """``u/Ue`` of the attached layer at angle ``t`` and wall distance ``d``.
+
+        Beyond separation the separating profile is kept (frozen) for the handover.
+        """
         length, index = self.attached_table(np.minimum(t, self.t_sep))
         step = table.eta[1] - table.eta[0]
         eta_index = np.minimum(d / length / step, table.eta.size - 1.0)
@@ -364,8 +367,9 @@ class BallWake:
     def centreline_speed(self, xi, edge_reverse_px):
         """Interior speed along the wake, on its axis and next to its layers (px per frame).
 
-        Positive downstream. Inside the recirculation (``xi`` up to the closure) both reverse and fall to zero at the
-        closure as ``1 - sigma^2``; beyond it the far-wake deficit ``((xc - x0)/(xi - x0))^(2/3)``.
+        Positive downstream. Inside the recirculation (``xi`` up to the closure) both reverse and
+        fall to zero at the closure as ``1 - sigma^2``; beyond it the far-wake deficit
+        ``((xc - x0)/(xi - x0))^(2/3)``.
         """
         big_r, u = self.radius_px, self.speed_px
         sigma = np.clip((xi - big_r) / (self.closure_xi_px - big_r), 0.0, None)

@@ -75,7 +75,11 @@ def air_kinematic_viscosity(temp_c: float = 20.0, pressure_pa: float = 101325.0)
 
 
 def separation_thickness_factor(measured_share: float) -> float:
-    """``delta99_sep / R * sqrt(U R / nu)``: the layer thickness at separation at any Reynolds number."""
+    """``delta99_sep / R * sqrt(U R / nu)``: the layer thickness at separation at any Reynolds.
+
+    The laminar layer scales as ``1/sqrt(Re)`` (Thwaites; derived), so one number per surface
+    velocity gives the thickness at every speed, size and viscosity.
+    """
     layer = thwaites_mangler(measured_share)
     table = falkner_skan_table()
     return math.sqrt(float(layer.theta2_re[-1])) * float(table.delta99[0] / table.theta[0])
@@ -404,7 +408,7 @@ def physical_shot(
 
 
 def _light_sheet(shape, light_from_deg, unevenness, scale_mm_per_px, shadow, rng) -> LightSheet:
-    """A 1-2 mm sheet from ``light_from_deg``, its unevenness drawn in proportion to ``unevenness``."""
+    """A 1-2 mm sheet from ``light_from_deg``, uneven in proportion to ``unevenness`` (0..1)."""
     size = max(shape)
     k = unevenness
     return LightSheet(
@@ -437,7 +441,7 @@ def _render(shape, x, y, diam, peak, floor_counts):
 
 
 def _advect(flow: BallWake, x: np.ndarray, y: np.ndarray, tau_end: float):
-    """Move particles from mid-exposure to ``tau_end`` (frame intervals) through the ball-frame flow.
+    """Move particles from mid-exposure to ``tau_end`` (frame intervals) in the ball-frame flow.
 
     Midpoint rule with ``ADVECTION_SUBSTEPS`` steps: the ball moves uniformly, so the lab-frame
     motion is the ball-frame one plus the ball's (added by the caller through the centres).
