@@ -10,13 +10,15 @@ outline) with the stream outside it ``U(phi, gap)`` from the PIV vectors:
   (``u = U S (1 - exp(-gap / ell))``), so the wall shear has the sign of ``S(0)``;
 - the line where ``S = 0`` (the dividing line) lies ``c delta`` below the layer's centre, with
   ``c = -Phi^-1(r / (1 + r))``. Ahead of separation it lies inside the wall (the attached layer
-  moves forward at the wall) and rises toward it: the layer's centre sits at ``c delta`` times
-  ``1 - a (1 - exp(-(phi_s - phi) / UPSTREAM_DEG))``. At ``phi_s`` the dividing line touches the
-  wall: zero wall shear. Behind it the dividing line leaves the wall at the departure angle
+  moves forward at the wall) and rises toward it: with ``q = 1 - exp(-(phi_s - phi) /
+  UPSTREAM_DEG)`` the attached layer is thinner, ``delta_s (1 - b q)`` (a boundary layer grows
+  downstream), and its centre sits at ``c delta (1 - a q)`` (its profile fills out toward the
+  wall). At ``phi_s`` the dividing line touches the wall: zero wall shear. Behind it the dividing line leaves the wall at the departure angle
   ``atan(slope)`` from the tangent and turns toward the wake's direction over the arc length
   ``L``; the layer thickens linearly at the spreading rate ``k`` of a plane mixing layer;
-- the flow inside the layer follows it: it gains the radial part ``u dZ/ds`` of the rising
-  dividing line.
+- the flow inside the layer may follow it: it gains the radial part ``f u dZ/ds`` of the
+  rising dividing line, with ``f`` between 0 (the flow keeps along the wall) and 1 (it runs
+  along the layer, as streamlines near the dividing streamline do).
 
 No part of this is in pixels except through the priors (:mod:`core.separation`), which are in
 physical units scaled by the shot's Reynolds number and image scale. The alternative profile
@@ -33,7 +35,8 @@ import numpy as np
 from scipy.special import erf, erfinv
 
 #: Parameter order of a side model.
-PARAM_NAMES = ("phi_s", "slope", "relax", "log_delta", "spread", "reverse", "drop", "k_t", "k_r")
+PARAM_NAMES = ("phi_s", "slope", "relax", "log_delta", "spread", "reverse", "drop", "thin",
+               "follow", "k_t", "k_r")
 #: Angular scale (deg) over which the attached layer's centre drops toward the wall ahead of
 #: separation.
 UPSTREAM_DEG = 15.0
@@ -115,8 +118,8 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
     params : sequence of float
         In the order of ``PARAM_NAMES``: ``phi_s`` (deg), ``slope`` (tan of the departure
         angle), ``relax`` (L / R), ``log_delta`` (ln of the vorticity thickness at separation,
-        px), ``spread`` (d delta / ds), ``reverse`` (r), ``drop`` (a), ``k_t``, ``k_r``
-        (scales of the outer stream's components).
+        px), ``spread`` (d delta / ds), ``reverse`` (r), ``drop`` (a), ``thin`` (b), ``follow``
+        (f), ``k_t``, ``k_r`` (scales of the outer stream's components).
     u_t_outer, u_r_outer : (P * G,) ndarray
         The stream outside the layer at the samples.
     shape : {"erf", "quartic"}
@@ -125,25 +128,25 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
     -------
     u_t, u_r : (P * G,) ndarray
     """
-    phi_s, slope, relax, log_delta, spread, reverse, drop, k_t, k_r = params
+    phi_s, slope, relax, log_delta, spread, reverse, drop, thin, follow, k_t, k_r = params
     r = geom.radius_px
     phi = geom.phi_grid
     delta_s = math.exp(log_delta)
     behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r  # arc length past separation
-    delta = delta_s + spread * behind
     lift = dividing_line_px(r, phi_s, slope, relax * r, phi, geom.final_deg)
     c = centre_offset(reverse, shape)
-    ahead = np.clip(phi_s - phi, 0.0, None)
-    sink = np.where(phi < phi_s, drop * -np.expm1(-ahead / UPSTREAM_DEG), 0.0)
-    centre = (lift + c * (delta - delta_s * sink))[:, None]
+    ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / UPSTREAM_DEG)  # 0 at and behind phi_s
+    delta = delta_s * (1.0 - thin * ramp) + spread * behind
+    centre = (lift + c * delta * (1.0 - drop * ramp))[:, None]
     rise = np.gradient(lift, np.radians(phi) * r)[:, None]  # dZ/ds along the outline
+    wall_px = WALL_FRACTION * delta_s * (1.0 - thin * ramp)[:, None]
     delta = delta[:, None]
     gap = geom.gap_grid[None, :]
     across = profile((gap - centre) / delta, shape)
     s_prof = -reverse + (1.0 + reverse) * across
-    wall = -np.expm1(-gap / (WALL_FRACTION * delta_s))
+    wall = -np.expm1(-gap / wall_px)
     shape_pg = (phi.size, gap.size)
     u_t = k_t * u_t_outer.reshape(shape_pg) * s_prof * wall
     inside = 1.0 - profile((gap - centre - delta) / delta, shape)
-    u_r = k_r * u_r_outer.reshape(shape_pg) * across * wall + u_t * rise * inside
+    u_r = k_r * u_r_outer.reshape(shape_pg) * across * wall + follow * u_t * rise * inside
     return u_t.ravel(), u_r.ravel()

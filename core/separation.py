@@ -36,6 +36,7 @@ positive rearward; *upper* is the side toward the top of the picture (core.geome
 
 from __future__ import annotations
 
+import itertools
 import math
 from dataclasses import dataclass, replace
 
@@ -50,7 +51,7 @@ from core.results import SeparationResult, SideProposal, VectorField
 #: Band along the outline where the layer is fitted: first gap (px) outside the outline; the
 #: last one is ``BAND_DEPTH`` times the prior's upper thickness (twice its median), within
 #: ``BAND_LAST_GAP_PX``.
-BAND_FIRST_GAP_PX = 1.0
+BAND_FIRST_GAP_PX = 2.0
 BAND_LAST_GAP_PX = (16.0, 28.0)
 BAND_DEPTH = 4.0
 #: Angles (deg, separation convention) searched for the separation point.
@@ -71,8 +72,10 @@ SPREADING_RATE = (0.18, 0.04)
 PRIOR_LEAVE_DEG = (0.0, 25.0)
 #: Reverse flow under the layer (fraction of the stream) treated alike.
 PRIOR_REVERSE = (0.02, 0.30)
-#: Drop of the attached layer's centre toward the wall ahead of separation, treated alike.
-PRIOR_DROP = (0.0, 0.7)
+#: Drop of the attached layer's centre toward the wall ahead of separation, and its thinning,
+#: treated alike within these ranges.
+PRIOR_DROP = (0.0, 1.0)
+PRIOR_THIN = (0.0, 0.7)
 PRIOR_WALL = 0.02
 #: Prior on the layer's turning length over the radius: median and sd of ``ln(L / R)``.
 PRIOR_RELAX = (1.0, 0.7)
@@ -80,8 +83,19 @@ PRIOR_RELAX = (1.0, 0.7)
 #: refinement the band's samples within ``FIT_WINDOW_DEG`` of its start.
 COARSE_EVERY = 2
 FIT_WINDOW_DEG = (-25.0, 40.0)
-#: Thicknesses (over the prior's median) tried by the coarse search.
-COARSE_THICKNESS = (1.0, 2.5, 6.0)
+#: Depth (layer thicknesses) to which the dividing line's place below the layer is uncertain,
+#: and the shallowest departure (deg) used to turn it into an angle (calibrated:
+#: docs/separation_accuracy.md).
+EXTRAPOLATION_DEPTH = 0.15
+EXTRAPOLATION_MIN_DEG = 3.0
+#: The angle's profile is taken this far either side of the best fit (deg); the fit's own
+#: standard uncertainty is capped at ``PROFILE_MAX_DEG``.
+PROFILE_STEP_DEG = 3.0
+PROFILE_MAX_DEG = 20.0
+#: Thicknesses (over the prior's median) tried by the coarse search, and how many of its first
+#: stage's best angles are searched further.
+COARSE_THICKNESS = (1.0, 2.5, 5.0)
+COARSE_CANDIDATES = 3
 #: Refinements run from this many starting points of the coarse search (the best wins): the
 #: image-matching cost has several shallow minima along the outline.
 REFINE_STARTS = 2
@@ -105,7 +119,7 @@ MIN_SEEDING_RATIO = 0.35
 #: the combined uncertainty.
 STATE_THRESHOLD_DEG = 5.0
 #: Typical step of each parameter (``PARAM_NAMES`` order) for the refinement's trust region.
-REFINE_SCALE = np.array([1.0, 0.05, 0.3, 0.2, 0.03, 0.05, 0.1, 0.02, 0.1])
+REFINE_SCALE = np.array([1.0, 0.05, 0.3, 0.2, 0.03, 0.05, 0.1, 0.1, 0.2, 0.02, 0.1])
 
 
 @dataclass
@@ -231,6 +245,7 @@ class OuterStream:
     coef_t: np.ndarray
     coef_r: np.ndarray
     radius_px: float
+    phi_range: tuple[float, float] = (-90.0, 180.0)  # angles covered by vectors near the wall
 
     @staticmethod
     def _basis(phi_deg, gap_px, radius_px, with_constant):
@@ -243,11 +258,16 @@ class OuterStream:
         return np.stack(cols, axis=-1)
 
     def tangential(self, phi_deg, gap_px) -> np.ndarray:
-        return self._basis(phi_deg, gap_px, self.radius_px, True) @ self.coef_t
+        """Tangential component; beyond the angles the vectors cover near the wall it is held at
+        its last value (behind separation the stream outside the layer hardly changes, and a
+        polynomial carried on into the wake would run wild)."""
+        phi = np.clip(phi_deg, *self.phi_range)
+        return self._basis(phi, gap_px, self.radius_px, True) @ self.coef_t
 
     def radial(self, phi_deg, gap_px) -> np.ndarray:
         """Radial component, zero at the wall (no flow through it)."""
-        return self._basis(phi_deg, gap_px, self.radius_px, False) @ self.coef_r
+        phi = np.clip(phi_deg, *self.phi_range)
+        return self._basis(phi, gap_px, self.radius_px, False) @ self.coef_r
 
 
 def outer_stream(
@@ -273,7 +293,14 @@ def outer_stream(
     r = ball.radius_px
     coef_t = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, True), u_t[ok])
     coef_r = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, False), u_r[ok])
-    return OuterStream(coef_t, coef_r, r)
+    near = ok & (gap <= NEAR_WALL_STREAM_PX)
+    covered = tuple(np.percentile(phi[near], [2.0, 98.0])) if near.sum() >= 10 else (
+        float(phi[ok].min()), float(phi[ok].max()))
+    return OuterStream(coef_t, coef_r, r, covered)
+
+
+#: Vectors within this gap (px) of the outline set the angles the stream fit is trusted over.
+NEAR_WALL_STREAM_PX = 25.0
 
 
 def _robust_lstsq(design: np.ndarray, values: np.ndarray) -> np.ndarray:
@@ -319,9 +346,15 @@ class SideProblem:
     def data_cost(self, params, shape="erf", geom=None) -> float:
         return float(np.sum(self.band.residual(*self.flow(params, shape, geom)) ** 2))
 
+    def score(self, params, data_cost: float | None = None) -> float:
+        """Data cost over ``sigma^2`` plus the priors: what the fit minimises (twice its cost)."""
+        if data_cost is None:
+            data_cost = self.data_cost(params)
+        return data_cost / self.sigma**2 + float(np.sum(self.prior_terms(params) ** 2))
+
     def prior_terms(self, params, log_delta_prior=None) -> np.ndarray:
         """Dimensionless prior residuals (their squares add to the cost), ``PARAM_NAMES`` order."""
-        _, slope, relax, log_delta, spread, reverse, drop, _, _ = params
+        _, slope, relax, log_delta, spread, reverse, drop, thin, follow, _, _ = params
         centre = self.log_delta_prior if log_delta_prior is None else log_delta_prior
         lo, hi = (math.tan(math.radians(v)) for v in PRIOR_LEAVE_DEG)
         ratio = (1.0 + reverse) / max(1.0 - reverse, 1e-3)
@@ -332,14 +365,16 @@ class SideProblem:
             (spread - SPREADING_RATE[0] * ratio) / (SPREADING_RATE[1] * ratio),
             _outside(reverse, *PRIOR_REVERSE),
             _outside(drop, *PRIOR_DROP),
+            _outside(thin, *PRIOR_THIN),
+            _outside(follow, 0.0, 1.0),
         ])
 
-    def start(self, phi_s, leave_deg=10.0, delta_factor=1.0) -> np.ndarray:
-        reverse = 0.1
+    def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5):
+        """Parameters at the priors' medians but for those given."""
         ratio = (1.0 + reverse) / (1.0 - reverse)
         return np.array([phi_s, math.tan(math.radians(leave_deg)), PRIOR_RELAX[0],
                          self.log_delta_prior + math.log(delta_factor),
-                         SPREADING_RATE[0] * ratio, reverse, 0.3, 1.0, 1.0])
+                         SPREADING_RATE[0] * ratio, reverse, 0.5, 0.35, follow, 1.0, 1.0])
 
 
 def _outside(value: float, lo: float, hi: float) -> float:
@@ -394,12 +429,17 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
     for start in starts:
         near = problem.view((start[0] + FIT_WINDOW_DEG[0], start[0] + FIT_WINDOW_DEG[1]))
         fits.append((_refine(near, start), near))
-    best, near = min(fits, key=lambda item: item[0].cost)
+    # the fits saw different windows: compare them on the samples all of them saw
+    angles = [fit.params[0] for fit, _ in fits]
+    common = problem.view((max(angles) + FIT_WINDOW_DEG[0], min(angles) + FIT_WINDOW_DEG[1]))
+    scores = np.array([common.score(fit.params) for fit, _ in fits])
+    best, near = fits[int(np.argmin(scores))]
     phi_s = float(best.params[0])
     if phi_s > BAND_DEG[1] - REAR_MARGIN_DEG:
         return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "
                             "(attached flow?)")
     budget = _uncertainty_budget(near, best, ball)
+    budget["other minimum"] = _other_minima(angles, scores, phi_s)
     standard = math.sqrt(sum(v * v for v in budget.values()))
     uncertainty = COVERAGE_K * standard
     gain = 1.0 - start_cost / attached_cost
@@ -414,76 +454,111 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
                         budget={k: round(v, 3) for k, v in budget.items()})
 
 
+def _other_minima(angles, scores, chosen: float) -> float:
+    """Standard uncertainty (deg) from other minima of the fit that the data hardly reject.
+
+    Each minimum is weighted by its likelihood, ``exp(-score / 2)`` (the scores are
+    chi-square-like: data cost over the residual scale plus the priors); the result is the
+    root of the weighted mean square distance of the minima from the chosen angle.
+    """
+    scores = np.asarray(scores, dtype=np.float64)
+    weights = np.exp(-0.5 * (scores - scores.min()))
+    weights /= weights.sum()
+    return float(math.sqrt(np.sum(weights * (np.asarray(angles) - chosen) ** 2)))
+
+
 @dataclass
 class Fit:
     params: np.ndarray
-    sd_deg: float  # standard error of phi_s from the fit's curvature
-    cost: float
+    score: float  # data cost over sigma^2 plus the priors (SideProblem.score)
 
 
 def _coarse_search(problem: SideProblem):
     """Starting points for the refinement, best first, and the best data cost.
 
-    ``phi_s`` on a 2 deg grid with the priors' medians; then ``(phi_s, departure, thickness)``
-    on a 1 deg grid around the best, scored by data cost over ``sigma^2`` plus the priors; the
-    best of each ``phi_s`` cell, keeping ``REFINE_STARTS`` starts at least 3 deg apart.
+    ``phi_s`` on a 2 deg grid at a few thicknesses with the other priors' medians; around the
+    best few (at least 6 deg apart), ``(phi_s, departure, thickness)`` on a 1 deg grid. Every
+    candidate is scored by its data cost over ``sigma^2`` plus the priors (a thick "attached"
+    layer can mimic a separated one far too early or late); the best of each ``phi_s`` cell
+    are kept, ``REFINE_STARTS`` of them at least 3 deg apart.
     """
-    best = (np.inf, None, 1.0)
-    for factor in COARSE_THICKNESS:
+    data_best = np.inf
+    first = []
+    for factor, reverse, follow in itertools.product(COARSE_THICKNESS, (0.08, 0.25), (0.0, 1.0)):
         for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 2.0):
-            params = problem.start(phi_s, delta_factor=factor)
-            c = problem.data_cost(params)
-            if c < best[0]:
-                best = (c, params, factor)
-    data_best = best[0]
+            params = problem.start(phi_s, delta_factor=factor, reverse=reverse, follow=follow)
+            cost = problem.data_cost(params)
+            data_best = min(data_best, cost)
+            first.append((problem.score(params, cost), params, (factor, reverse, follow)))
     scored = []
-    sigma2 = problem.sigma**2
-    for phi_s in np.arange(best[1][0] - 4.0, best[1][0] + 4.5, 1.0):
-        for leave in (2.0, 6.0, 10.0, 15.0, 20.0):
-            for factor in (0.6 * best[2], best[2], 1.6 * best[2]):
-                params = problem.start(phi_s, leave, factor)
-                c = problem.data_cost(params)
-                data_best = min(data_best, c)
-                scored.append((c / sigma2 + np.sum(problem.prior_terms(params) ** 2), params))
-    scored.sort(key=lambda item: item[0])
-    starts = []
-    for _, params in scored:
-        if all(abs(params[0] - other[0]) >= 3.0 for other in starts):
-            starts.append(params)
-        if len(starts) == REFINE_STARTS:
+    for _, centre, (factor, reverse, follow) in _distinct(first, 6.0, COARSE_CANDIDATES):
+        for phi_s in np.arange(centre[0] - 4.0, centre[0] + 4.5, 1.0):
+            for leave in (2.0, 6.0, 10.0, 15.0, 20.0):
+                for f in (0.6 * factor, factor, 1.6 * factor):
+                    params = problem.start(phi_s, leave, f, reverse, follow)
+                    cost = problem.data_cost(params)
+                    data_best = min(data_best, cost)
+                    scored.append((problem.score(params, cost), params))
+    return [item[1] for item in _distinct(scored, 3.0, REFINE_STARTS)], data_best
+
+
+def _distinct(scored, apart_deg: float, count: int):
+    """The best ``count`` of ``(score, params, ...)`` whose angles lie ``apart_deg`` apart."""
+    kept = []
+    for item in sorted(scored, key=lambda item: item[0]):
+        if all(abs(item[1][0] - other[1][0]) >= apart_deg for other in kept):
+            kept.append(item)
+        if len(kept) == count:
             break
-    return starts, data_best
+    return kept
 
 
 def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_prior=None,
-            max_nfev=60) -> Fit:
-    """Least-squares refinement of all parameters with the priors."""
+            max_nfev=60, hold=()) -> Fit:
+    """Least-squares refinement with the priors of all parameters but those named in ``hold``
+    (``PARAM_NAMES``), which keep their start values."""
+    start = np.asarray(start, dtype=np.float64)
+    free = np.array([name not in hold for name in PARAM_NAMES])
 
-    def residuals(p):
+    def residuals(q):
+        p = start.copy()
+        p[free] = q
         r = problem.band.residual(*problem.flow(p, shape, geom)) / problem.sigma
         return np.concatenate([r, problem.prior_terms(p, log_delta_prior)])
 
-    start = np.asarray(start, dtype=np.float64)
-    lower = [start[0] - 10.0, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.7, 0.0]
-    upper = [start[0] + 10.0, 0.7, 6.0, math.log(40.0), 0.6, 0.45, 0.95, 1.3, 2.0]
-    x0 = np.clip(start, np.array(lower) + 1e-9, np.array(upper) - 1e-9)
+    lower = np.array([start[0] - 10.0, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.0, 0.0, 0.7,
+                      0.0])
+    upper = np.array([start[0] + 10.0, 0.7, 6.0, math.log(40.0), 0.6, 0.45, 1.2, 0.9, 1.0, 1.3,
+                      2.0])
+    x0 = np.clip(start, lower + 1e-9, upper - 1e-9)[free]
     sol = least_squares(
-        residuals, x0, bounds=(lower, upper), diff_step=1e-3, max_nfev=max_nfev, xtol=1e-4,
-        ftol=1e-4, x_scale=REFINE_SCALE, tr_solver="lsmr",
+        residuals, x0, bounds=(lower[free], upper[free]), diff_step=1e-3, max_nfev=max_nfev,
+        xtol=1e-4, ftol=1e-4, x_scale=REFINE_SCALE[free], tr_solver="lsmr",
     )
-    cov = np.linalg.pinv(sol.jac.T @ sol.jac)
-    return Fit(sol.x, float(math.sqrt(max(cov[0, 0], 0.0))), float(sol.cost))
+    params = start.copy()
+    params[free] = sol.x
+    return Fit(params, float(2.0 * sol.cost))
 
 
 def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dict[str, float]:
     """Standard uncertainties (deg) of the separation angle by source.
 
-    Each alternative is a refit from the best parameters: the circle's radius moved by its
-    standard uncertainty both ways (half the spread), the other layer profile, the thickness
-    prior's median halved and doubled (the larger move).
+    The fit's own: the profile of the score along the angle, refitting every other parameter
+    with the angle held ``PROFILE_STEP_DEG`` either side; the flatter side's rise ``d`` gives
+    ``step / sqrt(d)`` (a score rises by 1 at one standard deviation). It sees what the curvature
+    at the minimum misses: a near-tangential layer whose start the data cannot place, a
+    parameter held at its bound. Each other source is a refit from the best parameters: the
+    circle's radius moved by its standard uncertainty both ways (half the spread), the other
+    layer profile, the thickness prior's median halved and doubled (the larger move).
     """
     phi = best.params[0]
-    budget = {"fit": best.sd_deg}
+    rises = []
+    for sign in (-1.0, 1.0):
+        moved = best.params.copy()
+        moved[0] += sign * PROFILE_STEP_DEG
+        rises.append(_refine(problem, moved, hold=("phi_s",), max_nfev=20).score - best.score)
+    rise = max(min(rises), PROFILE_STEP_DEG**2 / PROFILE_MAX_DEG**2)
+    budget = {"fit": PROFILE_STEP_DEG / math.sqrt(rise)}
     radius_sd = math.hypot(ball.radius_sigma_px, ball.center_sigma_px / math.sqrt(2.0))
     if radius_sd > 0:
         moved = []
@@ -500,7 +575,22 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dic
                     max_nfev=25).params[0] - phi)
         for shift in (-math.log(2.0), math.log(2.0))
     )
+    budget["extrapolation"] = extrapolation_deg(best.params, problem.geom.radius_px)
     return budget
+
+
+def extrapolation_deg(params, radius_px: float) -> float:
+    """Standard uncertainty (deg) of carrying the layer the data see down to the wall.
+
+    The data see the layer itself; where its dividing line meets the wall depends on how deep
+    that line lies below it, which the data hardly measure: about ``EXTRAPOLATION_DEPTH`` layer
+    thicknesses. A line rising at ``atan(slope)`` from the wall turns that depth into an arc
+    ``depth / slope`` along it (derived), without bound for a tangential layer, so the slope is
+    taken no shallower than ``EXTRAPOLATION_MIN_DEG``.
+    """
+    slope = max(float(params[1]), math.tan(math.radians(EXTRAPOLATION_MIN_DEG)))
+    depth = EXTRAPOLATION_DEPTH * math.exp(params[3])
+    return math.degrees(depth / (radius_px * slope))
 
 
 # --- wake ------------------------------------------------------------------------------------
