@@ -9,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
+from app.cli.options import check_outputs
 from app.review.text import shot_rows
 from core import WakelineError
 from core.store.files import atomic_write
@@ -50,6 +51,7 @@ def run_pair(args: argparse.Namespace) -> int:
     _check_positive(args.dt, "--dt")
     _check_positive(args.scale, "--scale")
     _check_positive(args.ball_diameter, "--ball-diameter")
+    check_outputs([args.json, args.vectors], inputs=[p for p in (args.frame_a, args.frame_b) if p])
     frame_a, frame_b = read_frame_pair(args.frame_a, args.frame_b)
     settings = ShotSettings(
         dt_s=args.dt,

@@ -8,7 +8,7 @@ import signal
 import sys
 from pathlib import Path
 
-from app.cli.options import whole_count
+from app.cli.options import check_outputs, session_frame_files, whole_count
 from core import WakelineError
 
 
@@ -174,6 +174,7 @@ def run_table(args: argparse.Namespace) -> int:
     from core.store import Session, write_table_csv
 
     with Session.open(args.session, writable=False) as session:
+        check_outputs([args.output], session.path, session_frame_files(session))
         count = write_table_csv(session, args.output)
     print(f"{args.output}: {count} shot(s)")
     return 0

@@ -78,11 +78,13 @@ class UnknownShot(WakelineError, KeyError):
 
 
 def companion_files(path: Path) -> dict[str, Path]:
-    """The files that belong to the session ``path`` besides the snapshot and its lock."""
+    """The files that belong to the session ``path`` besides the snapshot: its journal, the
+    folder of pending arrays, a half-written snapshot and the lock."""
     return {
         "journal": path.with_name(path.name + ".journal"),
         "pending": path.with_name(path.name + ".pending"),
         "snapshot_tmp": path.with_name(path.name + ".tmp"),
+        "lock": path.with_name(path.name + ".lock"),
     }
 
 
