@@ -88,6 +88,13 @@ def companion_files(path: Path) -> dict[str, Path]:
     }
 
 
+def session_path(path) -> Path:
+    """The session's real path, resolved once when it is opened: a session reached through a
+    symbolic link (or a linked folder) is the one file it points to, so its lock, journal and
+    temporary files sit beside it and replacing the snapshot keeps the link a link."""
+    return Path(path).resolve()
+
+
 def _remove_companions(path: Path) -> None:
     """Remove the journal, the pending arrays and a half-written snapshot (not the lock)."""
     files = companion_files(path)
@@ -140,7 +147,7 @@ class Session(SnapshotWriting, Mapping):
     @classmethod
     def create(cls, path, name: str = "") -> Session:
         """Create a new empty session file and open it for writing."""
-        path = Path(path)
+        path = session_path(path)
         if path.exists():
             raise WakelineError(f"{path}: already exists")
         if not path.parent.is_dir():
@@ -168,7 +175,7 @@ class Session(SnapshotWriting, Mapping):
         WakelineError
             When the file is missing, truncated or not a wakeline session.
         """
-        path = Path(path)
+        path = session_path(path)
         lock = Lock(path) if writable else None
         if lock is not None:
             check_signature(path)
@@ -459,7 +466,7 @@ class Session(SnapshotWriting, Mapping):
         SessionLocked
             When another live process has the session open for writing.
         """
-        path = Path(path)
+        path = session_path(path)
         lock = Lock(path)
         lock.acquire()
         try:
@@ -569,10 +576,10 @@ class Session(SnapshotWriting, Mapping):
 
     def _relative(self, path: Path) -> str:
         try:
-            return Path(os.path.relpath(path, self.path.resolve().parent)).as_posix()
+            return Path(os.path.relpath(path, self.path.parent)).as_posix()
         except ValueError:  # another drive
             return path.as_posix()
 
     def _resolve(self, stored: str) -> Path:
-        return (self.path.resolve().parent / stored).resolve()
+        return (self.path.parent / stored).resolve()
 
