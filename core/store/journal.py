@@ -19,13 +19,14 @@ class Journal:
         self.path = path
         self._fd: int | None = None
 
-    def read(self) -> tuple[list[dict], int]:
-        """Entries of the good prefix and its length in bytes (a torn tail is left out)."""
+    def read(self) -> tuple[list[tuple[int, dict]], int]:
+        """``(line number, entry)`` of the good prefix and its length in bytes (a torn tail is
+        left out)."""
         try:
             data = self.path.read_bytes()
         except FileNotFoundError:
             return [], 0
-        entries: list[dict] = []
+        entries: list[tuple[int, dict]] = []
         good = 0
         bad_line = None
         for number, line in enumerate(data.split(b"\n")[:-1], start=1):
@@ -34,10 +35,15 @@ class Journal:
                 bad_line = bad_line or number
                 continue
             if bad_line is not None:
-                raise WakelineError(f"{self.path}: line {bad_line} is damaged (entries follow it)")
-            entries.append(entry)
+                raise self.damaged(bad_line, "not a whole entry, and entries follow it")
+            entries.append((number, entry))
             good += len(line) + 1
         return entries, good
+
+    def damaged(self, number: int, why: str) -> WakelineError:
+        """The one-line report of a damaged line (it cannot come from a kill)."""
+        return WakelineError(f"{self.path}: line {number} is damaged ({why}); nothing was "
+                             "changed: move the journal aside to open the session as last saved")
 
     def truncate(self, length: int) -> None:
         if self.path.exists() and self.path.stat().st_size != length:

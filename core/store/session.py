@@ -49,6 +49,7 @@ from core.store.records import (
     check_shot_id,
     checked_angle,
     checked_status,
+    damage_reason,
 )
 from core.store.snapshot import (
     Place,
@@ -56,6 +57,7 @@ from core.store.snapshot import (
     SnapshotWriting,
     check_signature,
     file_identity,
+    pending_name,
     read_snapshot,
     record_from_index,
     shot_key,
@@ -135,11 +137,16 @@ class Session(SnapshotWriting, Mapping):
         self._runs = 0  # batch runs in progress (``batch_run``); see compact()
         self._touched: set[str] = set()  # shots changed since the snapshot
         self._unused_bytes = snapshot.unused_bytes  # dead space left by replaced arrays
-        for entry in snapshot.shots:
-            self._records[entry["shot_id"]] = record_from_index(entry)
-            self._places[entry["shot_id"]] = Place(
+        for number, entry in enumerate(snapshot.shots, start=1):
+            try:
+                rec = record_from_index(entry)
+            except (KeyError, TypeError, ValueError, AttributeError) as exc:
+                raise WakelineError(f"{path}: damaged session index (entry {number}: "
+                                    f"{damage_reason(exc)})") from None
+            self._records[rec.shot_id] = rec
+            self._places[rec.shot_id] = Place(
                 result="snapshot" if entry.get("has_result") else None,
-                frames="snapshot" if entry.get("frames", {}).get("storage") == "embedded" else None,
+                frames="snapshot" if rec.frames.get("storage") == "embedded" else None,
             )
 
     # -- opening and closing -------------------------------------------------------------------
@@ -496,10 +503,16 @@ class Session(SnapshotWriting, Mapping):
         self._dirty = True
 
     def _replay_journal(self) -> None:
-        entries, good_length = self._journal.read()
+        numbered, good_length = self._journal.read()
+        entries = [entry for _, entry in numbered]
         live = [e for e in entries if e["seq"] > self._snapshot_seq]
-        for entry in live:
-            self._apply(entry)
+        for number, entry in numbered:
+            if entry["seq"] <= self._snapshot_seq:
+                continue
+            try:
+                self._apply(entry)
+            except (KeyError, TypeError, ValueError, AttributeError) as exc:
+                raise self._journal.damaged(number, damage_reason(exc)) from None
             self._seq = max(self._seq, entry["seq"])
         self._dirty = bool(live)
         if self.read_only:
@@ -519,33 +532,39 @@ class Session(SnapshotWriting, Mapping):
                     item.unlink(missing_ok=True)
 
     def _apply(self, entry: dict) -> None:
+        """Apply one journal entry in memory. A malformed entry raises KeyError, TypeError,
+        ValueError or AttributeError, which replay reports as a damaged line."""
         op = entry["op"]
         if op == "settings":
             self._processing = dict(entry["settings"])
             return
+        if op not in ("add_shot", "result", "failure", "pick"):
+            raise ValueError(f"unknown entry {op!r}: written by a newer wakeline?")
         shot_id = entry["shot"]
-        self._touched.add(shot_id)
         if op == "add_shot":
+            check_shot_id(shot_id, ValueError)
             self._records[shot_id] = ShotRecord(shot_id, dict(entry["metadata"]),
                                                 frames=dict(entry["frames"]))
-            self._places[shot_id] = Place(frames=entry.get("pending"))
+            self._places[shot_id] = Place(frames=pending_name(entry.get("pending"), True))
+            self._touched.add(shot_id)
             return
+        if shot_id not in self._records:
+            raise ValueError(f"shot {shot_id!r} is not in the session")
+        self._touched.add(shot_id)
         rec, place = self._records[shot_id], self._places[shot_id]
         if op == "result":
             rec.state, rec.failure = ProcessState.PROCESSED, ""
             rec.summary = summary_from(entry["summary"], entry.get("summary_version"))
             rec.fingerprint, rec.software_version = entry["fingerprint"], entry["version"]
             rec.processed_utc = entry["t"]
-            place.result = entry["pending"]
+            place.result = pending_name(entry["pending"])
         elif op == "failure":
             rec.state, rec.failure = ProcessState.FAILED, entry["reason"]
             rec.fingerprint = entry["fingerprint"]
             rec.software_version, rec.processed_utc = entry["version"], entry["t"]
-        elif op == "pick":
+        else:
             rec.pick = Pick.from_dict(entry["pick"])
             place.history.append(replace(rec.pick))
-        else:
-            raise WakelineError(f"{self._journal.path}: unknown entry '{op}' (newer wakeline?)")
 
     def _write_pending(self, seq: int, write) -> str:
         """Write arrays to ``S.h5.pending/<seq>.h5`` whole (temporary name, fsync, rename)."""

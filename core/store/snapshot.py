@@ -6,6 +6,7 @@ renamed into place (layout in docs/session_format.md).
 from __future__ import annotations
 
 import json
+import re
 import shutil
 from dataclasses import dataclass, field, fields
 from pathlib import Path
@@ -17,7 +18,7 @@ import numpy as np
 from core import WakelineError, __version__
 from core.store.files import atomic_write, dumps, now_utc
 from core.store.manifest import NUMBER_COLUMNS
-from core.store.records import Pick, ProcessState, ShotRecord
+from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id
 from core.summary import ShotSummary
 
 FORMAT_VERSION = 1
@@ -110,6 +111,16 @@ class Place:
 
 
 
+def pending_name(value, optional: bool = False) -> str | None:
+    """A pending file name from a journal line (``NNNNNNNNN.h5``), checked: a hand-edited line
+    must not point outside the pending folder."""
+    if value is None and optional:
+        return None
+    if not (isinstance(value, str) and re.fullmatch(r"\d+\.h5", value)):
+        raise ValueError(f"pending file {value!r} is not a pending file name")
+    return value
+
+
 def shot_key(shot_id: str) -> str:
     """HDF5 group name for a shot id (no '/' and no leading '.')."""
     return quote(shot_id, safe=" -_+=,()[]{}@#!~").replace(".", "%2E")
@@ -171,8 +182,14 @@ def index_entry(rec: ShotRecord, place: Place) -> dict:
 
 
 def record_from_index(entry: dict) -> ShotRecord:
+    """A shot's record from its index entry; KeyError, TypeError, ValueError or AttributeError
+    when the entry is malformed."""
     known = {f.name for f in fields(ShotRecord)}
     data = {k: v for k, v in entry.items() if k in known}
+    check_shot_id(data["shot_id"], ValueError)
+    for key in ("metadata", "frames"):
+        if not isinstance(data.get(key, {}), dict):
+            raise TypeError(f"{key} is not a mapping")
     data["state"] = ProcessState(data.get("state", ProcessState.UNPROCESSED))
     data["pick"] = Pick.from_dict(entry.get("pick") or {})
     data["summary"] = summary_from(entry.get("summary"), entry.get("summary_version"))
