@@ -52,11 +52,13 @@ from core.store.records import (
     damage_reason,
 )
 from core.store.snapshot import (
+    STORAGE_ERRORS,
     Place,
     Snapshot,
     SnapshotWriting,
     check_signature,
     file_identity,
+    new_h5,
     pending_name,
     read_snapshot,
     record_from_index,
@@ -137,6 +139,7 @@ class Session(SnapshotWriting, Mapping):
         self._runs = 0  # batch runs in progress (``batch_run``); see compact()
         self._touched: set[str] = set()  # shots changed since the snapshot
         self._unused_bytes = snapshot.unused_bytes  # dead space left by replaced arrays
+        self._checksummed = snapshot.checksummed
         for number, entry in enumerate(snapshot.shots, start=1):
             try:
                 rec = record_from_index(entry)
@@ -335,10 +338,13 @@ class Session(SnapshotWriting, Mapping):
                 with h5py.File(file, "r") as f:
                     g = f[group]
                     arrays = {name: g[name][()] for name in g}
+                return ShotResult.from_stored(rec.summary.to_dict(), arrays)
             except FileNotFoundError:  # only a reader: the writer has compacted since
                 raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
                                     "reopen the session") from None
-            return ShotResult.from_stored(rec.summary.to_dict(), arrays)
+            except STORAGE_ERRORS as exc:
+                raise WakelineError(f"shot {shot_id}: result stored in {file} is damaged "
+                                    f"({damage_reason(exc)}); process the shot again") from None
 
     def history(self, shot_id: str) -> list[Pick]:
         """Every pick edit of a shot, oldest first."""
@@ -346,7 +352,11 @@ class Session(SnapshotWriting, Mapping):
             self._get(shot_id)
             place = self._places[shot_id]
             if place.snapshot_history is None:
-                place.snapshot_history = self._read_snapshot_history(shot_id)
+                try:
+                    place.snapshot_history = self._read_snapshot_history(shot_id)
+                except STORAGE_ERRORS as exc:
+                    raise WakelineError(f"shot {shot_id}: edit history stored in {self.path} is "
+                                        f"damaged ({damage_reason(exc)})") from None
             return [replace(p) for p in place.snapshot_history + place.history]
 
     # -- writing -------------------------------------------------------------------------------
@@ -570,7 +580,7 @@ class Session(SnapshotWriting, Mapping):
         """Write arrays to ``S.h5.pending/<seq>.h5`` whole (temporary name, fsync, rename)."""
         self._pending_dir.mkdir(exist_ok=True)
         name = f"{seq:09d}.h5"
-        with atomic_write(self._pending_dir / name) as tmp, h5py.File(tmp, "w") as f:
+        with atomic_write(self._pending_dir / name) as tmp, new_h5(tmp) as f:
             write(f)
         return name
 

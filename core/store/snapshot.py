@@ -5,6 +5,7 @@ renamed into place (layout in docs/session_format.md).
 
 from __future__ import annotations
 
+import hashlib
 import json
 import re
 import shutil
@@ -23,6 +24,11 @@ from core.summary import ShotSummary
 
 FORMAT_VERSION = 1
 _HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+#: HDF5 object layout of the files written: from 1.10 on, object headers (attributes, links,
+#: a dataset's layout and filters), the superblock and chunk indexes carry checksums.
+LIBVER = ("v110", "v110")
+#: What h5py raises on a damaged or missing object (checksum failures included).
+STORAGE_ERRORS = (OSError, KeyError, ValueError, RuntimeError)
 _MAX_UNUSED_FRACTION = 0.25  # rewrite the snapshot whole beyond this much dead space
 
 
@@ -37,6 +43,46 @@ class Snapshot:
     processing: dict = field(default_factory=dict)
     shots: list[dict] = field(default_factory=list)  # index entries, see _index_entry
     unused_bytes: int = 0
+    checksummed: bool = False  # written with checksums (Fletcher-32 arrays, SHA-256 texts)
+
+
+def new_h5(path: Path, mode: str = "w") -> h5py.File:
+    """An HDF5 file opened for writing in the layout wakeline writes (``LIBVER``)."""
+    return h5py.File(path, mode, libver=LIBVER)
+
+
+def text_sha256(items) -> str:
+    """SHA-256 of text items (str or UTF-8 bytes), each followed by a newline."""
+    digest = hashlib.sha256()
+    for item in items:
+        digest.update(item.encode("utf-8") if isinstance(item, str) else bytes(item))
+        digest.update(b"\n")
+    return digest.hexdigest()
+
+
+def _root_texts(attrs) -> list[str]:
+    """The root attributes a reader relies on that HDF5 keeps outside checksummed headers."""
+    return [str(attrs.get(key, "")) for key in ("name", "created_utc", "processing_settings")]
+
+
+def write_text(group: h5py.Group, name: str, data, extra=()) -> None:
+    """A UTF-8 text dataset (one string, or a list of lines) with the SHA-256 of its content
+    (and of ``extra`` texts) in its ``sha256`` attribute: HDF5 cannot filter variable-length
+    strings, so Fletcher-32 cannot guard them."""
+    ds = group.create_dataset(name, data=data, dtype=h5py.string_dtype())
+    items = [data] if isinstance(data, str) else list(data)
+    ds.attrs["sha256"] = text_sha256([*items, *extra])
+
+
+def read_text(ds: h5py.Dataset, extra=()):
+    """A text dataset's value (bytes, or an array of bytes), checked against its ``sha256``
+    (files written before checksums have none). Raises ValueError on a mismatch."""
+    value = ds[()]
+    expected = ds.attrs.get("sha256")
+    items = [value] if isinstance(value, bytes) else list(value)
+    if expected is not None and text_sha256([*items, *extra]) != as_text(expected):
+        raise ValueError(f"{ds.name.lstrip('/')} checksum differs")
+    return value
 
 
 def read_snapshot(path: Path) -> Snapshot:
@@ -83,7 +129,7 @@ def check_signature(path: Path) -> None:
 
 
 def _load_v1(f: h5py.File) -> Snapshot:
-    index = json.loads(as_text(f["index"][()]))
+    index = json.loads(as_text(read_text(f["index"], _root_texts(f.attrs))))
     return Snapshot(
         name=str(f.attrs.get("name", "")),
         created_utc=str(f.attrs.get("created_utc", "")),
@@ -91,6 +137,7 @@ def _load_v1(f: h5py.File) -> Snapshot:
         processing=json.loads(str(f.attrs.get("processing_settings", "{}"))),
         shots=list(index["shots"]),
         unused_bytes=int(f.attrs.get("unused_bytes", 0)),
+        checksummed="sha256" in f["index"].attrs,
     )
 
 
@@ -133,14 +180,31 @@ def _units_of(name: str) -> str:
     return "1"
 
 
-def write_array(group: h5py.Group, name: str, data: np.ndarray) -> None:
+def write_array(group: h5py.Group, name: str, data: np.ndarray, compress: bool | None = None,
+                units: str | None = None) -> None:
+    """An array with HDF5's Fletcher-32 checksum on each chunk (damage is found on reading).
+
+    Flags and counts shrink many times under gzip; measured noisy floats barely shrink (~15 %)
+    for five times the write time, so they are stored plain unless ``compress``.
+    """
     data = np.asarray(data)
-    # Flags and counts shrink many times under gzip; measured noisy floats barely shrink (~15 %)
-    # for five times the write time, so they are stored plain.
-    packable = data.dtype.kind in "biu" and data.size >= 256
-    options = {"compression": "gzip", "compression_opts": 1, "shuffle": True} if packable else {}
+    if compress is None:
+        compress = data.dtype.kind in "biu" and data.size >= 256
+    options = {"compression": "gzip", "compression_opts": 1, "shuffle": True} if compress else {}
+    if data.ndim and data.size:  # checksums live in chunks; a scalar or empty array has none
+        options["fletcher32"] = True
     ds = group.create_dataset(name, data=data, **options)
-    ds.attrs["units"] = _units_of(name)
+    ds.attrs["units"] = units or _units_of(name)
+
+
+def copy_array(src: h5py.Dataset, dst: h5py.Group, name: str) -> None:
+    """Copy a stored array into another file as it is stored; one written before checksums is
+    rewritten with one."""
+    if src.fletcher32 or not (src.ndim and src.size):
+        src.file.copy(src, dst, name=name)
+        return
+    write_array(dst, name, src[()], compress=src.compression is not None,
+                units=as_text(src.attrs.get("units", "1")))
 
 
 
@@ -153,10 +217,11 @@ def stored_bytes(group: h5py.Group) -> int:
 
 
 def history_in(f: h5py.File, shot_id: str) -> list[Pick]:
+    """A shot's stored edits; raises one of ``STORAGE_ERRORS`` when they are damaged."""
     key = f"shots/{shot_key(shot_id)}/history"
     if key not in f:
         return []
-    return [Pick.from_dict(json.loads(as_text(x))) for x in f[key][()]]
+    return [Pick.from_dict(json.loads(as_text(x))) for x in read_text(f[key])]
 
 
 def as_text(value) -> str:
@@ -219,9 +284,7 @@ def write_frames_group(f: h5py.File, frame_a: np.ndarray, frame_b: np.ndarray) -
         data = np.asarray(frame)
         if np.all(data == np.rint(data)) and data.min() >= 0 and data.max() <= 65535:
             data = data.astype(np.uint16)
-        ds = g.create_dataset(name, data=data, compression="gzip", compression_opts=1,
-                              shuffle=True, chunks=True)
-        ds.attrs["units"] = "counts"
+        write_array(g, name, data, compress=True, units="counts")
 
 
 # -- writing --------------------------------------------------------------------------------
@@ -239,12 +302,13 @@ class SnapshotWriting:
                 # A byte copy is many times faster than copying object by object; only the
                 # shots changed since the last snapshot are then rebuilt inside the copy.
                 shutil.copyfile(self.path, tmp)
-                with h5py.File(tmp, "a") as dst:
+                with new_h5(tmp, "a") as dst:
                     self._patch_snapshot(dst)
             else:
-                with h5py.File(tmp, "w") as dst:
+                with new_h5(tmp) as dst:
                     self._fill_snapshot(dst)
         self._snapshot_seq = self._seq
+        self._checksummed = True
         self._touched.clear()
         for place in self._places.values():
             place.result = "snapshot" if place.result else None
@@ -254,8 +318,9 @@ class SnapshotWriting:
             place.history = []
 
     def _patchable(self) -> bool:
-        """Patch a copy unless replaced results left too much dead space in the file."""
-        if not self.path.exists():
+        """Patch a copy unless replaced results left too much dead space in the file, or it was
+        written without checksums (by an older wakeline): a whole rewrite adds them."""
+        if not self._checksummed or not self.path.exists():
             return False
         return self._unused_bytes <= _MAX_UNUSED_FRACTION * self.path.stat().st_size
 
@@ -299,7 +364,7 @@ class SnapshotWriting:
                            for rec in self._records.values()]}
         if "index" in dst:
             del dst["index"]
-        dst.create_dataset("index", data=dumps(index), dtype=h5py.string_dtype())
+        write_text(dst, "index", dumps(index), _root_texts(dst.attrs))
 
     def _fill_shot(self, g: h5py.Group, rec: ShotRecord, old: h5py.File | None,
                    move: bool) -> None:
@@ -316,8 +381,7 @@ class SnapshotWriting:
             self._copy_arrays(place.frames, rec.shot_id, "frames", old, frames, move)
         write_attrs(g.create_group("pick"), rec.pick.to_dict())
         history = self._snapshot_history_from(old, rec.shot_id) + place.history
-        g.create_dataset("history", data=[dumps(p.to_dict()) for p in history],
-                         dtype=h5py.string_dtype())
+        write_text(g, "history", [dumps(p.to_dict()) for p in history])
         if place.result is not None and rec.summary is not None:
             result = g.create_group("result")
             write_summary(result, rec.summary)
@@ -335,7 +399,7 @@ class SnapshotWriting:
                 if move and src_file is old:
                     old.move(src[name].name, f"{dst.name}/{name}")
                 else:
-                    src_file.copy(src[name], dst, name=name)
+                    copy_array(src[name], dst, name)
         finally:
             if src_file is not old:
                 src_file.close()
