@@ -4,8 +4,9 @@ never mix two snapshots, a shared group folder (modes kept), read-only files lef
 from __future__ import annotations
 
 import pytest
-from data.session_helpers import write_shot_folder
+from data.session_helpers import fake_result, write_shot_folder
 
+from core import WakelineError
 from core.store import Session, SessionLocked, import_folder
 
 
@@ -36,3 +37,22 @@ def test_a_session_opened_through_a_symlink_is_the_one_session(session_path, tmp
         assert again["S0"].pick.status == "accepted"
         with pytest.raises(SessionLocked):
             Session.open(session_path)
+
+
+def test_a_reader_never_pairs_its_snapshot_with_a_newer_one(session_path):
+    with Session.open(session_path) as writer:
+        writer.save_result("S0", fake_result(writer.settings_for("S0"), 5.0, shape=(6, 8)))
+        writer.set_pick("S0", status="accepted")
+    reader = Session.open(session_path, writable=False)
+    with Session.open(session_path) as writer:  # closing compacts: S.h5 is replaced
+        writer.save_result("S0", fake_result(writer.settings_for("S0"), 9.0, shape=(20, 30)))
+        writer.set_pick("S0", status="adjusted", upper_deg=9.5)
+    assert reader["S0"].proposed_deg("upper") == 5.0  # what it read stays as it was
+    with pytest.raises(WakelineError, match=r"s\.h5: changed on disk .*; reopen the session"):
+        reader.load_result("S0")
+    with pytest.raises(WakelineError, match="reopen the session"):
+        reader.history("S0")
+    reader.close()
+    with Session.open(session_path, writable=False) as again:
+        assert again.load_result("S0").field.dx_px.shape == (20, 30)
+        assert len(again.history("S0")) == 2

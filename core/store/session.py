@@ -58,6 +58,7 @@ from core.store.snapshot import (
     SnapshotWriting,
     check_signature,
     file_identity,
+    identity_of,
     new_h5,
     pending_name,
     read_snapshot,
@@ -140,6 +141,7 @@ class Session(SnapshotWriting, Mapping):
         self._touched: set[str] = set()  # shots changed since the snapshot
         self._unused_bytes = snapshot.unused_bytes  # dead space left by replaced arrays
         self._checksummed = snapshot.checksummed
+        self._identity = None  # of the snapshot file read or last written (file_identity)
         for number, entry in enumerate(snapshot.shots, start=1):
             try:
                 rec = record_from_index(entry)
@@ -207,6 +209,7 @@ class Session(SnapshotWriting, Mapping):
             session = cls(path, read_snapshot(path), writable, lock)
             session._replay_journal()
             if writable or file_identity(path) == before:
+                session._identity = before
                 return session
         raise WakelineError(f"{path}: keeps changing while being read; try again")
 
@@ -335,7 +338,7 @@ class Session(SnapshotWriting, Mapping):
                 return None
             file, group = self._array_location(place, shot_id, "result")
             try:
-                with h5py.File(file, "r") as f:
+                with self._arrays_file(file) as f:
                     g = f[group]
                     arrays = {name: g[name][()] for name in g}
                 return ShotResult.from_stored(rec.summary.to_dict(), arrays)
@@ -585,6 +588,17 @@ class Session(SnapshotWriting, Mapping):
         return name
 
     # -- internals: misc -----------------------------------------------------------------------
+
+    @contextmanager
+    def _arrays_file(self, file: Path) -> Iterator[h5py.File]:
+        """Open the snapshot or a pending file to read arrays. The snapshot must be the one this
+        session read (a reader's writer may have replaced it since): its arrays would belong to
+        other summaries and histories than those in memory."""
+        with h5py.File(file, "r") as f:
+            if file == self.path and identity_of(os.fstat(f.id.get_vfd_handle())) != self._identity:
+                raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
+                                    "reopen the session")
+            yield f
 
     def _array_location(self, place: str, shot_id: str, kind: str) -> tuple[Path, str]:
         if place == "snapshot":

@@ -7,6 +7,7 @@ from __future__ import annotations
 
 import hashlib
 import json
+import os
 import re
 import shutil
 from dataclasses import dataclass, field, fields
@@ -109,10 +110,14 @@ def read_snapshot(path: Path) -> Snapshot:
 
 
 def file_identity(path: Path) -> tuple[int, int, int] | None:
+    """What tells one snapshot file from the next (it is only ever replaced, never modified)."""
     try:
-        info = path.stat()
+        return identity_of(path.stat())
     except OSError:
         return None
+
+
+def identity_of(info: os.stat_result) -> tuple[int, int, int]:
     return info.st_ino, info.st_size, info.st_mtime_ns
 
 
@@ -309,6 +314,7 @@ class SnapshotWriting:
                     self._fill_snapshot(dst)
         self._snapshot_seq = self._seq
         self._checksummed = True
+        self._identity = file_identity(self.path)
         self._touched.clear()
         for place in self._places.values():
             place.result = "snapshot" if place.result else None
@@ -413,6 +419,6 @@ class SnapshotWriting:
         return history_in(old, shot_id)
 
     def _read_snapshot_history(self, shot_id: str) -> list[Pick]:
-        with h5py.File(self.path, "r") as f:
+        with self._arrays_file(self.path) as f:
             return history_in(f, shot_id)
 
