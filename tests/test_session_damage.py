@@ -233,3 +233,102 @@ def test_random_overwrites_never_change_what_is_read_silently(session_path, tmp_
         assert seen == expected, f"bytes {start}..{start + 256} changed what is read silently"
         outcomes["same"] += 1
     assert outcomes["error"] > 10, outcomes
+
+
+# -- a damaged shot or a lost pending file blocks nothing else ------------------------------
+
+
+def _damage_header(path, name: str) -> None:
+    """Damage the object header of one HDF5 object (its checksum no longer matches)."""
+    with h5py.File(path, "r") as f:
+        address = h5py.h5o.get_info(f[name].id).addr
+    _flip(path, address + 12, 8)
+
+
+def _as_if_killed(s: Session) -> None:
+    s._journal.close()
+    s._lock.release()
+
+
+@pytest.mark.parametrize("whole", [False, True], ids=["patched", "rewritten whole"])
+@pytest.mark.parametrize("damaged", ["shots/S1/result/dx_px", "shots/S1/result", "shots/S1"])
+def test_a_damaged_shot_group_does_not_block_saving_the_others(session_path, whole, damaged):
+    _damage_header(session_path, damaged)
+    journal = session_path.with_name("s.h5.journal")
+    with Session.open(session_path) as s:
+        s.set_pick("S1", status="unusable", reason="seen damaged")  # touches the damaged shot
+        s.set_pick("S2", status="accepted")
+        if whole:
+            s._unused_bytes = 10 * session_path.stat().st_size  # force a whole rewrite
+        s.compact()
+        assert s.problems and all(p.startswith("shot S1: ") for p in s.problems)
+        assert "process the shot again" in s.problems[-1]
+    assert not journal.exists()
+    with Session.open(session_path) as s:
+        assert s["S2"].pick.status == "accepted" and s["S1"].pick.reason == "seen damaged"
+        kept = ["unusable"] if damaged == "shots/S1" else ["accepted", "unusable"]
+        assert [p.status for p in s.history("S1")] == kept  # what was readable
+        assert s.load_result("S0").field.dx_px.shape == (20, 30)
+        assert s["S1"].state == "failed" and "process the shot again" in s["S1"].failure
+        assert s.load_result("S1") is None and s.needs_processing("S1")
+        s.save_result("S1", fake_result(s.settings_for("S1"), 4.0, shape=(20, 30)))  # heals it
+        s.set_pick("S0", status="accepted")
+    with Session.open(session_path, writable=False) as s:
+        assert s.load_result("S1").separation.upper.angle_deg == 4.0
+        assert s["S0"].pick.status == "accepted"
+    assert not journal.exists()
+
+
+def test_a_lost_pending_file_costs_only_that_result(session_path):
+    s = Session.open(session_path)
+    s.save_result("S0", fake_result(s.settings_for("S0"), 8.0, shape=(20, 30)))
+    s.set_pick("S0", status="accepted")
+    s.set_pick("S2", status="accepted")
+    _as_if_killed(s)
+    pending = session_path.with_name("s.h5.pending")
+    for file in pending.iterdir():
+        file.unlink()
+    with Session.open(session_path) as s:
+        with pytest.raises(WakelineError, match="^shot S0: .*lost.*process the shot again"):
+            s.load_result("S0")
+        assert s.load_result("S1") is not None
+    assert not session_path.with_name("s.h5.journal").exists()
+    with Session.open(session_path, writable=False) as s:
+        assert s["S2"].pick.status == "accepted" and s["S0"].pick.status == "accepted"
+        assert s["S0"].state == "failed" and "process the shot again" in s["S0"].failure
+        assert s.load_result("S0") is None
+
+
+def test_damaged_embedded_frames_are_left_out_and_the_rest_saved(tmp_path):
+    import_folder(write_shot_folder(tmp_path / "src", 2), tmp_path / "e.h5", embed=True)
+    path = tmp_path / "e.h5"
+    _damage_header(path, "shots/S1/frames/a")
+    with Session.open(path) as s:
+        s.set_pick("S1", status="unusable", reason="frames damaged")
+        s.set_pick("S0", status="accepted")
+        s._unused_bytes = 10 * path.stat().st_size  # a whole rewrite reads every shot
+    with Session.open(path) as s:
+        assert s["S0"].pick.status == "accepted" and s["S1"].pick.reason == "frames damaged"
+        assert s.load_frames("S0")[0].shape == (192, 256)
+        with pytest.raises(WakelineError, match="^shot S1: frames stored in .* are damaged"):
+            s.load_frames("S1")
+
+
+def test_the_process_command_names_the_damaged_shot_and_what_to_do(session_path, capsys):
+    from app.cli import main
+    from data.session_helpers import fast_settings
+
+    with Session.open(session_path) as s:
+        s.set_processing_settings(fast_settings())
+    _damage_header(session_path, "shots/S1/result")
+    s = Session.open(session_path)
+    s.set_pick("S1", status="unusable", reason="seen damaged")  # left in the journal
+    _as_if_killed(s)
+    code = main(["process", str(session_path), "--shots", "S2", "--workers", "0", "--quiet"])
+    err = capsys.readouterr().err
+    assert code == 1
+    assert "shot S1: stored result lost" in err and "process the shot again" in err
+    assert "Traceback" not in err
+    assert not session_path.with_name("s.h5.journal").exists()
+    with Session.open(session_path, writable=False) as s:
+        assert s["S2"].state == "processed" and s["S1"].pick.reason == "seen damaged"

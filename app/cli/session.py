@@ -126,7 +126,15 @@ def run_process(args: argparse.Namespace) -> int:
         finally:
             bar.close()
             signal.signal(signal.SIGINT, previous)
-    return _process_summary(args.session, report)
+    code = _process_summary(args.session, report)
+    return 1 if tell_problems(session) else code
+
+
+def tell_problems(session) -> bool:
+    """Print what saving found damaged or lost, one line per shot part; True if anything."""
+    for problem in session.problems:
+        print(f"wakeline: {problem}", file=sys.stderr)
+    return bool(session.problems)
 
 
 def _read_settings(path: Path) -> dict:

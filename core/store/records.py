@@ -151,7 +151,9 @@ def check_pick(shot_id: str, pick: Pick) -> None:
 
 def damage_reason(exc: Exception) -> str:
     """A few words on why a hand-damaged entry could not be read (for a one-line report)."""
-    if isinstance(exc, KeyError):
+    if isinstance(exc, KeyError):  # a missing key, or h5py's text for an unreadable object
+        if exc.args and isinstance(exc.args[0], str) and " " in exc.args[0]:
+            return exc.args[0]
         return f"no {exc.args[0]!r}" if exc.args else "a key is missing"
     text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
     return text

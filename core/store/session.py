@@ -142,6 +142,8 @@ class Session(SnapshotWriting, Mapping):
         self._unused_bytes = snapshot.unused_bytes  # dead space left by replaced arrays
         self._checksummed = snapshot.checksummed
         self._identity = None  # of the snapshot file read or last written (file_identity)
+        #: One line per damaged or lost part of a shot found while saving (see compact).
+        self.problems: list[str] = []
         for number, entry in enumerate(snapshot.shots, start=1):
             try:
                 rec = record_from_index(entry)
@@ -342,7 +344,11 @@ class Session(SnapshotWriting, Mapping):
                     g = f[group]
                     arrays = {name: g[name][()] for name in g}
                 return ShotResult.from_stored(rec.summary.to_dict(), arrays)
-            except FileNotFoundError:  # only a reader: the writer has compacted since
+            except FileNotFoundError:
+                if not self.read_only:
+                    raise WakelineError(f"shot {shot_id}: result arrays lost (pending file "
+                                        f"{place} missing); process the shot again") from None
+                # a reader: the writer has compacted since and removed the pending file
                 raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
                                     "reopen the session") from None
             except STORAGE_ERRORS as exc:

@@ -20,7 +20,7 @@ import numpy as np
 from core import WakelineError, __version__
 from core.store.files import atomic_write, dumps, now_utc
 from core.store.manifest import NUMBER_COLUMNS
-from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id
+from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id, damage_reason
 from core.summary import ShotSummary
 
 FORMAT_VERSION = 1
@@ -213,11 +213,14 @@ def copy_array(src: h5py.Dataset, dst: h5py.Group, name: str) -> None:
 
 
 
-def stored_bytes(group: h5py.Group) -> int:
-    """Bytes of dataset storage under ``group``."""
+def stored_bytes(parent: h5py.Group, name: str) -> int | None:
+    """Bytes of dataset storage under ``parent[name]``; None when a damaged object hides them."""
     sizes = []
-    group.visititems(lambda _, obj: sizes.append(
-        obj.id.get_storage_size() if isinstance(obj, h5py.Dataset) else 0))
+    try:
+        parent[name].visititems(lambda _, obj: sizes.append(
+            obj.id.get_storage_size() if isinstance(obj, h5py.Dataset) else 0))
+    except STORAGE_ERRORS:
+        return None
     return sum(sizes)
 
 
@@ -328,7 +331,19 @@ class SnapshotWriting:
         written without checksums (by an older wakeline): a whole rewrite adds them."""
         if not self._checksummed or not self.path.exists():
             return False
-        return self._unused_bytes <= _MAX_UNUSED_FRACTION * self.path.stat().st_size
+        if self._unused_bytes > _MAX_UNUSED_FRACTION * self.path.stat().st_size:
+            return False
+        return self._touched_readable()
+
+    def _touched_readable(self) -> bool:
+        """Whether every changed shot's group in the snapshot can be read whole. Patching frees
+        the old group, and freeing a damaged object leaves HDF5 in a broken state; a whole
+        rewrite only reads the old file and leaves out what it cannot read."""
+        with h5py.File(self.path, "r") as old:
+            shots = old.get("shots")
+            return shots is None or all(
+                stored_bytes(shots, key) is not None
+                for key in map(shot_key, self._touched) if key in shots)
 
     def _fill_snapshot(self, dst: h5py.File) -> None:
         self._unused_bytes = 0
@@ -351,7 +366,7 @@ class SnapshotWriting:
             fresh = key + "%new"  # never a key: quote() writes '%' only before two hex digits
             self._fill_shot(shots.create_group(fresh), rec, dst, True)
             if key in shots:
-                self._unused_bytes += stored_bytes(shots[key])  # what was not moved over
+                self._unused_bytes += stored_bytes(shots, key)  # what was not moved over
                 del shots[key]
             shots.move(fresh, key)
         self._write_root(dst)
@@ -375,23 +390,58 @@ class SnapshotWriting:
     def _fill_shot(self, g: h5py.Group, rec: ShotRecord, old: h5py.File | None,
                    move: bool) -> None:
         """Write one shot's group; arrays already in the snapshot are copied from ``old``, or
-        moved when ``old`` is the file being written (``move``)."""
+        moved when ``old`` is the file being written (``move``).
+
+        A part of the shot that cannot be read (damaged storage, a lost pending file) is left
+        out and said in ``self.problems``, so that one damaged shot never stops the others
+        from being saved: a lost result makes the shot failed (process it again).
+        """
         place = self._places[rec.shot_id]
-        g.attrs["shot_id"] = rec.shot_id
-        g.attrs["state"] = str(rec.state)
-        g.attrs["failure"] = rec.failure
         write_attrs(g.create_group("metadata"), rec.metadata)
         frames = g.create_group("frames")
         write_attrs(frames, {k: v for k, v in rec.frames.items() if k != "shape"})
-        if place.frames is not None:
-            self._copy_arrays(place.frames, rec.shot_id, "frames", old, frames, move)
+        if place.frames is not None:  # lost frames leave the group empty: reading says so
+            self._arrays_kept(place.frames, rec, "frames", old, frames, move)
         write_attrs(g.create_group("pick"), rec.pick.to_dict())
-        history = self._snapshot_history_from(old, rec.shot_id) + place.history
-        write_text(g, "history", [dumps(p.to_dict()) for p in history])
+        try:
+            history = self._snapshot_history_from(old, rec.shot_id)
+        except STORAGE_ERRORS as exc:
+            history = []
+            self.problems.append(f"shot {rec.shot_id}: edit history before the last save was "
+                                 f"damaged ({damage_reason(exc)}) and is dropped; the current "
+                                 "pick and later edits are kept")
+        place.snapshot_history = history
+        write_text(g, "history", [dumps(p.to_dict()) for p in history + place.history])
         if place.result is not None and rec.summary is not None:
             result = g.create_group("result")
             write_summary(result, rec.summary)
-            self._copy_arrays(place.result, rec.shot_id, "result", old, result, move)
+            if not self._arrays_kept(place.result, rec, "result", old, result, move):
+                del g["result"]
+                place.result = None
+        g.attrs["shot_id"] = rec.shot_id
+        g.attrs["state"] = str(rec.state)
+        g.attrs["failure"] = rec.failure
+
+    def _arrays_kept(self, place, rec: ShotRecord, kind: str, old, dst: h5py.Group,
+                     move: bool) -> bool:
+        """Copy (or move) a shot's arrays; False, with the problem said, when they cannot be
+        read (the partial copy is removed)."""
+        try:
+            self._copy_arrays(place, rec.shot_id, kind, old, dst, move)
+            return True
+        except STORAGE_ERRORS as exc:
+            why = damage_reason(exc) if not isinstance(exc, FileNotFoundError) else \
+                f"pending file {place} missing"
+        for name in list(dst):
+            del dst[name]
+        if kind == "result":
+            rec.state = ProcessState.FAILED
+            rec.failure = f"stored result lost ({why}); process the shot again"
+            self.problems.append(f"shot {rec.shot_id}: {rec.failure}")
+        else:
+            self.problems.append(f"shot {rec.shot_id}: embedded frames lost ({why}); the shot "
+                                 "keeps its pick and result but cannot be processed again")
+        return False
 
     def _copy_arrays(self, place, shot_id, kind, old, dst: h5py.Group, move: bool) -> None:
         if place == "snapshot":
