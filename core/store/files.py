@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import math
 import os
+import shutil
 from collections.abc import Iterator
 from contextlib import contextmanager
 from datetime import UTC, datetime
@@ -58,6 +60,45 @@ def atomic_write(path, suffix: str = ".tmp") -> Iterator[Path]:
         tmp.unlink(missing_ok=True)
         raise
     fsync_dir(path.parent)
+
+
+def write_all(fd: int, data: bytes) -> None:
+    """Write all of ``data`` to an open file descriptor (``os.write`` may write less)."""
+    view = memoryview(data)
+    while view:
+        view = view[os.write(fd, view):]
+
+
+def write_whole(path: Path, data: bytes) -> None:
+    """Write ``data`` as a new file ``path`` (through ``write_all``)."""
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o666)
+    try:
+        write_all(fd, data)
+    except OSError as exc:
+        raise OSError(exc.errno, exc.strerror, str(path)) from None
+    finally:
+        os.close(fd)
+
+
+def reserve_space(path: Path, size: int) -> None:
+    """Make room on disk for ``path`` to grow to ``size`` bytes before HDF5 writes into it.
+
+    HDF5 is left in a broken state when one of its writes fails (a full disk crashed the
+    process at exit), so the room is taken first with ``posix_fallocate``, where a full disk
+    is a plain ``OSError`` naming the file. Where the file system cannot reserve (or the
+    platform has no ``posix_fallocate``), the free space is checked instead.
+    """
+    fd = os.open(path, os.O_RDWR)
+    try:
+        os.posix_fallocate(fd, 0, size)
+    except (AttributeError, OSError) as exc:
+        if isinstance(exc, OSError) and exc.errno not in (errno.EOPNOTSUPP, errno.EINVAL):
+            raise OSError(exc.errno, exc.strerror, str(path)) from None
+        needed = size - os.fstat(fd).st_size
+        if shutil.disk_usage(path.parent).free < needed:
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(path)) from None
+    finally:
+        os.close(fd)
 
 
 def json_ready(value):

@@ -9,7 +9,7 @@ import os
 from pathlib import Path
 
 from core import WakelineError
-from core.store.files import atomic_write, dumps, fsync_dir
+from core.store.files import atomic_write, dumps, fsync_dir, write_all
 
 
 class Journal:
@@ -61,14 +61,12 @@ class Journal:
                 fsync_dir(self.path.parent)
         start = os.lseek(self._fd, 0, os.SEEK_END)
         try:
-            view = memoryview(line)
-            while view:
-                view = view[os.write(self._fd, view):]
+            write_all(self._fd, line)
             os.fsync(self._fd)
-        except OSError:
+        except OSError as exc:
             # e.g. disk full: drop the partial line so the next append starts a clean line
             os.ftruncate(self._fd, start)
-            raise
+            raise OSError(exc.errno, exc.strerror, str(self.path)) from None
 
     def rewrite(self, entries: list[dict]) -> None:
         """Replace the journal by ``entries``, whole or not at all."""

@@ -36,7 +36,7 @@ import numpy as np
 
 from core import WakelineError, __version__
 from core.shot import ShotResult, ShotSettings
-from core.store.files import atomic_write, json_ready, now_utc, sha256_of
+from core.store.files import atomic_write, json_ready, now_utc, sha256_of, write_whole
 from core.store.frames import frame_file_problem, read_frames
 from core.store.journal import Journal
 from core.store.lock import Lock, user_name
@@ -58,8 +58,8 @@ from core.store.snapshot import (
     SnapshotWriting,
     check_signature,
     file_identity,
+    h5_image,
     identity_of,
-    new_h5,
     pending_name,
     read_snapshot,
     record_from_index,
@@ -98,6 +98,14 @@ def session_path(path) -> Path:
     symbolic link (or a linked folder) is the one file it points to, so its lock, journal and
     temporary files sit beside it and replacing the snapshot keeps the link a link."""
     return Path(path).resolve()
+
+
+def _change_words(entry: dict) -> str:
+    """A journal entry in words, for a message saying it was not saved."""
+    shot = entry.get("shot")
+    return {"add_shot": f"shot {shot}", "result": f"the result of shot {shot}",
+            "failure": f"the failure of shot {shot}", "pick": f"the edit of shot {shot}",
+            }.get(entry["op"], "the processing settings")
 
 
 def _remove_companions(path: Path) -> None:
@@ -397,7 +405,8 @@ class Session(SnapshotWriting, Mapping):
             seq = self._seq + 1
             pending = None
             if embed:
-                pending = self._write_pending(seq, lambda f: write_frames_group(f, frame_a, frame_b))
+                pending = self._write_pending(seq, f"shot {shot_id}",
+                                              lambda f: write_frames_group(f, frame_a, frame_b))
             entry = {"op": "add_shot", "shot": shot_id, "metadata": dict(metadata or {}),
                      "frames": frames, "pending": pending, "t": now_utc()}
             self._commit(entry)
@@ -423,7 +432,8 @@ class Session(SnapshotWriting, Mapping):
             seq = self._seq + 1
             summary = ShotSummary.from_dict(json_ready(result.summary()))
             arrays = result.arrays()
-            pending = self._write_pending(seq, lambda f: write_result_group(f, summary, arrays))
+            pending = self._write_pending(seq, f"the result of shot {shot_id}",
+                                          lambda f: write_result_group(f, summary, arrays))
             self._commit({
                 "op": "result", "shot": shot_id, "summary": summary.to_dict(),
                 "summary_version": summary.version, "pending": pending,
@@ -502,10 +512,19 @@ class Session(SnapshotWriting, Mapping):
             lock.release()
 
     def compact(self) -> None:
-        """Write a new snapshot holding everything, replace the old one, then drop the journal."""
+        """Write a new snapshot holding everything, replace the old one, then drop the journal.
+
+        Raises
+        ------
+        WakelineError
+            When the snapshot cannot be written (a full disk): every change stays in the
+            journal, and the next compaction (or opening the session) tries again.
+        """
         with self._mutex:
             self._check_writable()
-            self._write_snapshot()
+            with self._saving("the session file", f"every change is kept in "
+                              f"{self._journal.path.name}; free some space and save again"):
+                self._write_snapshot()
             self._journal.remove()
             if not self._runs:  # a running batch's workers may still read pending frames
                 shutil.rmtree(self._pending_dir, ignore_errors=True)
@@ -513,10 +532,24 @@ class Session(SnapshotWriting, Mapping):
 
     # -- internals: journal --------------------------------------------------------------------
 
+    @contextmanager
+    def _saving(self, what: str, advice: str = "free some space and try again") -> Iterator[None]:
+        """A write that fails (a full disk, no permission) becomes one line naming the session
+        and the file; what was confirmed before stays as it was, in memory and on disk."""
+        try:
+            yield
+        except OSError as exc:
+            reason = exc.strerror or str(exc).splitlines()[0]
+            if exc.filename:
+                reason += f", writing {Path(exc.filename).name}"
+            raise WakelineError(f"{self.path}: could not save {what} ({reason}); "
+                                f"{advice}") from None
+
     def _commit(self, entry: dict) -> None:
         """Append one change to the journal (durable on return), then apply it in memory."""
         entry = {"seq": self._seq + 1, **entry}
-        self._journal.append(entry)
+        with self._saving(_change_words(entry)):
+            self._journal.append(entry)
         self._seq = entry["seq"]
         self._apply(entry)
         self._dirty = True
@@ -549,6 +582,8 @@ class Session(SnapshotWriting, Mapping):
             for item in self._pending_dir.iterdir():
                 if item.name not in referenced:
                     item.unlink(missing_ok=True)
+            if not referenced:
+                shutil.rmtree(self._pending_dir, ignore_errors=True)
 
     def _apply(self, entry: dict) -> None:
         """Apply one journal entry in memory. A malformed entry raises KeyError, TypeError,
@@ -585,12 +620,14 @@ class Session(SnapshotWriting, Mapping):
             rec.pick = Pick.from_dict(entry["pick"])
             place.history.append(replace(rec.pick))
 
-    def _write_pending(self, seq: int, write) -> str:
+    def _write_pending(self, seq: int, what: str, write) -> str:
         """Write arrays to ``S.h5.pending/<seq>.h5`` whole (temporary name, fsync, rename)."""
-        self._pending_dir.mkdir(exist_ok=True)
+        with self._saving(what):
+            self._pending_dir.mkdir(exist_ok=True)
         name = f"{seq:09d}.h5"
-        with atomic_write(self._pending_dir / name) as tmp, new_h5(tmp) as f:
-            write(f)
+        image = h5_image(write)
+        with self._saving(what), atomic_write(self._pending_dir / name) as tmp:
+            write_whole(tmp, image)
         return name
 
     # -- internals: misc -----------------------------------------------------------------------

@@ -5,11 +5,13 @@ renamed into place (layout in docs/session_format.md).
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
 import os
 import re
 import shutil
+import uuid
 from dataclasses import dataclass, field, fields
 from pathlib import Path
 from urllib.parse import quote
@@ -18,7 +20,7 @@ import h5py
 import numpy as np
 
 from core import WakelineError, __version__
-from core.store.files import atomic_write, dumps, now_utc
+from core.store.files import atomic_write, dumps, now_utc, reserve_space, write_whole
 from core.store.manifest import NUMBER_COLUMNS
 from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id, damage_reason
 from core.summary import ShotSummary
@@ -47,9 +49,18 @@ class Snapshot:
     checksummed: bool = False  # written with checksums (Fletcher-32 arrays, SHA-256 texts)
 
 
-def new_h5(path: Path, mode: str = "w") -> h5py.File:
-    """An HDF5 file opened for writing in the layout wakeline writes (``LIBVER``)."""
-    return h5py.File(path, mode, libver=LIBVER)
+def h5_image(write=None) -> bytes:
+    """The bytes of an HDF5 file built in memory by ``write(f)`` (an empty file without).
+
+    Files are built in memory, or into room reserved beforehand (``reserve_space``), because
+    HDF5 cannot recover from a failed write (a full disk); Python writes the bytes instead.
+    """
+    name = f"wakeline-{uuid.uuid4().hex}.h5"  # core driver, nothing on disk
+    with h5py.File(name, "w", driver="core", backing_store=False, libver=LIBVER) as f:
+        if write is not None:
+            write(f)
+        f.flush()
+        return f.id.get_file_image()
 
 
 def text_sha256(items) -> str:
@@ -306,15 +317,16 @@ class SnapshotWriting:
     def _write_snapshot(self) -> None:
         """Write the next snapshot aside, make it durable, then put it in place."""
         with atomic_write(self.path) as tmp:
-            if self._patchable():
+            patch = self._patchable()
+            if patch:
                 # A byte copy is many times faster than copying object by object; only the
                 # shots changed since the last snapshot are then rebuilt inside the copy.
                 shutil.copyfile(self.path, tmp)
-                with new_h5(tmp, "a") as dst:
-                    self._patch_snapshot(dst)
             else:
-                with new_h5(tmp) as dst:
-                    self._fill_snapshot(dst)
+                write_whole(tmp, h5_image())
+            reserve_space(tmp, self._snapshot_room())
+            with h5py.File(tmp, "r+", libver=LIBVER) as dst:
+                self._patch_snapshot(dst) if patch else self._fill_snapshot(dst)
         self._snapshot_seq = self._seq
         self._checksummed = True
         self._identity = file_identity(self.path)
@@ -325,6 +337,18 @@ class SnapshotWriting:
             if place.snapshot_history is not None:
                 place.snapshot_history = place.snapshot_history + place.history
             place.history = []
+
+    def _snapshot_room(self) -> int:
+        """Bytes the next snapshot may need at most: the last one, the new arrays of the shots
+        changed since, their histories and the index, with a margin for HDF5's own records."""
+        room = self.path.stat().st_size if self.path.exists() else 0
+        for shot_id in self._touched:
+            place = self._places.get(shot_id)
+            for name in (place.result, place.frames) if place else ():
+                if name not in (None, "snapshot"):
+                    with contextlib.suppress(OSError):
+                        room += (self._pending_dir / name).stat().st_size
+        return room + 8192 * len(self._records) + 65536 * len(self._touched) + (1 << 20)
 
     def _patchable(self) -> bool:
         """Patch a copy unless replaced results left too much dead space in the file, or it was
