@@ -41,7 +41,8 @@ def _add_demo(subparsers) -> None:
     p.add_argument("--fresh", action="store_true",
                    help="start again from the bundled shots, discarding the demo session's edits")
     p.add_argument("--workers", type=whole_count, metavar="N",
-                   help="worker processes (default: all cores; 0 = in this process)")
+                   help="worker processes (default: one per core, as many as free "
+                   "memory holds; 0 = in this process)")
     p.set_defaults(func=run_demo)
 
 
