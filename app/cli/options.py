@@ -9,6 +9,13 @@ from pathlib import Path
 from core import WakelineError
 
 
+def known_ball_types() -> list[str]:
+    """The ``ball_type`` words the measurement has a rulebook diameter for."""
+    from core.ball import NOMINAL_BALL_DIAMETER_MM
+
+    return sorted(NOMINAL_BALL_DIAMETER_MM)
+
+
 def whole_count(text: str) -> int:
     """A count of 0 or more (``--workers``)."""
     try:

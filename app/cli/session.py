@@ -9,7 +9,7 @@ import signal
 import sys
 from pathlib import Path
 
-from app.cli.options import check_outputs, session_frame_files, whole_count
+from app.cli.options import check_outputs, known_ball_types, session_frame_files, whole_count
 from core import WakelineError
 
 
@@ -82,7 +82,8 @@ def run_import(args: argparse.Namespace) -> int:
 
     if not args.src_dir.is_dir():
         raise WakelineError(f"{args.src_dir}: folder not found")
-    report = import_folder(args.src_dir, args.session, embed=args.embed)
+    report = import_folder(args.src_dir, args.session, embed=args.embed,
+                           ball_types=known_ball_types())
     for problem in report.problems:
         print(f"wakeline: {problem}", file=sys.stderr)
     for note in report.notes:

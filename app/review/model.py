@@ -26,9 +26,9 @@ from core.store import (
     Session,
     SessionLocked,
     ShotRecord,
-    import_folder,
     write_table_csv,
 )
+from core.store import import_folder as store_import_folder
 
 __all__ = [
     "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
@@ -36,6 +36,14 @@ __all__ = [
 ]
 
 PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
+
+
+def import_folder(src_dir, session_path, **options):
+    """``core.store.import_folder``, refusing ball types the measurement does not know."""
+    from core.ball import NOMINAL_BALL_DIAMETER_MM
+
+    return store_import_folder(src_dir, session_path, ball_types=NOMINAL_BALL_DIAMETER_MM,
+                               **options)
 
 
 def pick_values(pick: Pick) -> dict:

@@ -32,6 +32,10 @@ def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
         raise WakelineError(f"{path}: not UTF-8 text") from None
     reader = csv.reader(io.StringIO(text, newline=""))
     header = [h.strip() for h in next(reader, [])]
+    for number, name in enumerate(header, start=1):
+        if name and name in header[:number - 1]:
+            raise WakelineError(f"{path}: column {name!r} appears twice (columns "
+                                f"{header.index(name) + 1} and {number}); keep one")
     missing = [c for c in REQUIRED_COLUMNS if c not in header]
     if missing:
         raise WakelineError(f"{path}: missing column{'s' if len(missing) > 1 else ''} "

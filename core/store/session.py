@@ -150,6 +150,7 @@ class Session(SnapshotWriting, Mapping):
         self._unused_bytes = snapshot.unused_bytes  # dead space left by replaced arrays
         self._checksummed = snapshot.checksummed
         self._identity = None  # of the snapshot file read or last written (file_identity)
+        self._folder_given = path.parent  # the folder as the caller named it (see _relative)
         #: One line per damaged or lost part of a shot found while saving (see compact).
         self.problems: list[str] = []
         for number, entry in enumerate(snapshot.shots, start=1):
@@ -169,7 +170,7 @@ class Session(SnapshotWriting, Mapping):
     @classmethod
     def create(cls, path, name: str = "") -> Session:
         """Create a new empty session file and open it for writing."""
-        path = session_path(path)
+        given, path = path, session_path(path)
         if path.exists():
             raise WakelineError(f"{path}: already exists")
         if not path.parent.is_dir():
@@ -184,6 +185,7 @@ class Session(SnapshotWriting, Mapping):
         except BaseException:
             lock.release()
             raise
+        session._folder_given = Path(os.path.abspath(given)).parent
         return session
 
     @classmethod
@@ -197,7 +199,7 @@ class Session(SnapshotWriting, Mapping):
         WakelineError
             When the file is missing, truncated or not a wakeline session.
         """
-        path = session_path(path)
+        given, path = path, session_path(path)
         lock = Lock(path) if writable else None
         if lock is not None:
             check_signature(path)
@@ -208,6 +210,7 @@ class Session(SnapshotWriting, Mapping):
             if lock is not None:
                 lock.release()
             raise
+        session._folder_given = Path(os.path.abspath(given)).parent
         return session
 
     @classmethod
@@ -391,8 +394,10 @@ class Session(SnapshotWriting, Mapping):
             check_shot_id(shot_id)
             if shot_id in self._records:
                 raise WakelineError(f"shot {shot_id}: already in {self.path.name}")
-            path_a = Path(frame_a_path).resolve()
-            path_b = None if frame_b_path is None else Path(frame_b_path).resolve()
+            # Kept by the path given, links and all (not resolved to where a link points):
+            # a linked folder stands for the frames where the lab keeps them.
+            path_a = Path(os.path.abspath(frame_a_path))
+            path_b = None if frame_b_path is None else Path(os.path.abspath(frame_b_path))
             frame_a, frame_b = read_frame_pair(path_a, path_b)
             frames = {
                 "storage": "embedded" if embed else "files",
@@ -661,6 +666,11 @@ class Session(SnapshotWriting, Mapping):
             raise WakelineError(f"{self.path}: opened read-only")
 
     def _relative(self, path: Path) -> str:
+        """A frame's path relative to the session's folder, links kept: a frame under the
+        folder as the session was named (through a link, say) is relative to that."""
+        for folder in (self._folder_given, self.path.parent):
+            if path.is_relative_to(folder):
+                return path.relative_to(folder).as_posix()
         try:
             return Path(os.path.relpath(path, self.path.parent)).as_posix()
         except ValueError:  # another drive
