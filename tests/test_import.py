@@ -197,3 +197,12 @@ def test_importing_a_folder_again_goes_on_and_refuses_only_what_differs(tmp_path
     (src / "shots.csv").write_text("\n".join(lines) + "\n")
     assert main(["import", str(src), str(tmp_path / "s.h5")]) == 0  # a plain re-run
     assert "3 shot(s) already in s.h5" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("separator", [";", "\t"], ids=["semicolon", "tab"])
+def test_a_manifest_with_another_separator_says_so(tmp_path, separator):
+    src = write_shot_folder(tmp_path / "src", 1)
+    (src / "shots.csv").write_text(HEADER.replace(",", separator) + "\n"
+                                   + separator.join(["S0", "2e-05", "0.08", "71.6", "0", ""]))
+    with pytest.raises(WakelineError, match=r"separated by .*; shots\.csv must be comma-separated"):
+        import_folder(src, tmp_path / "s.h5")

@@ -8,7 +8,7 @@ folder of shots), ``table`` (the CSV of picks). No Qt and no part of the PIV sta
 
 from core.store.frames import read_frames
 from core.store.importing import ImportReport, import_folder
-from core.store.lock import SessionLocked
+from core.store.lock import SessionLocked, SessionReadOnly
 from core.store.manifest import MANIFEST_NAME, read_manifest
 from core.store.records import Pick, ProcessState, ReviewStatus, ShotRecord
 from core.store.session import Session, UnknownShot
@@ -24,6 +24,7 @@ __all__ = [
     "ReviewStatus",
     "Session",
     "SessionLocked",
+    "SessionReadOnly",
     "ShotRecord",
     "UnknownShot",
     "import_folder",

@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import contextlib
 import errno
 import hashlib
 import json
 import math
 import os
 import shutil
+import stat
 from collections.abc import Iterator
 from contextlib import contextmanager
 from datetime import UTC, datetime
@@ -43,17 +45,38 @@ def fsync_file(path: Path) -> None:
         os.close(fd)
 
 
+def share_like(path: Path, model: Path) -> None:
+    """Give ``path`` the permissions and group of ``model`` (and its owner where allowed): a
+    session in a shared group folder stays one the group can edit after a save, and so do its
+    journal and pending files. A folder gets search permission where it can be read."""
+    info = model.stat()
+    mode = stat.S_IMODE(info.st_mode)
+    if path.is_dir():
+        mode |= (mode & 0o444) >> 2
+    with contextlib.suppress(OSError):
+        os.chmod(path, mode)
+    try:
+        os.chown(path, info.st_uid, info.st_gid)  # allowed to root only
+    except OSError:
+        with contextlib.suppress(OSError):  # a group the user belongs to
+            os.chown(path, -1, info.st_gid)
+
+
 @contextmanager
-def atomic_write(path, suffix: str = ".tmp") -> Iterator[Path]:
+def atomic_write(path, suffix: str = ".tmp", like: Path | None = None) -> Iterator[Path]:
     """Write a file whole or not at all: yields a temporary path beside ``path`` to write to;
     on leaving the block the file is fsynced and renamed over ``path`` and the rename made
-    durable. On an exception the temporary file is removed and ``path`` is left as it was.
+    durable. The new file keeps the mode and group of the one it replaces (or of ``like``).
+    On an exception the temporary file is removed and ``path`` is left as it was.
     """
     path = Path(path)
     tmp = path.with_name(path.name + suffix)
     tmp.unlink(missing_ok=True)
     try:
         yield tmp
+        model = path if path.exists() else like
+        if model is not None and model.exists():
+            share_like(tmp, model)
         fsync_file(tmp)
         os.replace(tmp, path)
     except BaseException:

@@ -9,14 +9,15 @@ import os
 from pathlib import Path
 
 from core import WakelineError
-from core.store.files import atomic_write, dumps, fsync_dir, write_all
+from core.store.files import atomic_write, dumps, fsync_dir, share_like, write_all
 
 
 class Journal:
     """Append-only JSON lines, one per change, each fsynced before ``append`` returns."""
 
-    def __init__(self, path: Path):
+    def __init__(self, path: Path, like: Path):
         self.path = path
+        self.like = like  # the session file, whose mode and group a new journal takes
         self._fd: int | None = None
 
     def read(self) -> tuple[list[tuple[int, dict]], int]:
@@ -58,6 +59,7 @@ class Journal:
             created = not self.path.exists()
             self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
             if created:
+                share_like(self.path, self.like)
                 fsync_dir(self.path.parent)
         start = os.lseek(self._fd, 0, os.SEEK_END)
         try:

@@ -25,6 +25,7 @@ from __future__ import annotations
 import json
 import os
 import shutil
+import stat
 import threading
 from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
@@ -36,10 +37,17 @@ import numpy as np
 
 from core import WakelineError, __version__
 from core.shot import ShotResult, ShotSettings
-from core.store.files import atomic_write, json_ready, now_utc, sha256_of, write_whole
+from core.store.files import (
+    atomic_write,
+    json_ready,
+    now_utc,
+    sha256_of,
+    share_like,
+    write_whole,
+)
 from core.store.frames import frame_file_problem, read_frames
 from core.store.journal import Journal
-from core.store.lock import Lock, user_name
+from core.store.lock import Lock, SessionReadOnly, user_name
 from core.store.records import (
     Pick,
     ProcessState,
@@ -108,6 +116,15 @@ def _change_words(entry: dict) -> str:
             }.get(entry["op"], "the processing settings")
 
 
+def _check_replaceable(path: Path) -> None:
+    """Refuse to edit a session whose file is read-only: saving replaces the file, which the
+    folder's permissions would allow, silently undoing the chmod."""
+    mode = stat.S_IMODE(path.stat().st_mode)
+    if not mode & 0o222 or not os.access(path, os.W_OK):
+        raise SessionReadOnly(f"{path}: the session file is read-only (mode {mode:o}); open it "
+                              "read-only, or make it writable to edit it")
+
+
 def _remove_companions(path: Path) -> None:
     """Remove the journal, the pending arrays and a half-written snapshot (not the lock)."""
     files = companion_files(path)
@@ -136,7 +153,7 @@ class Session(SnapshotWriting, Mapping):
         self._lock = lock
         self._mutex = threading.RLock()
         files = companion_files(path)
-        self._journal = Journal(files["journal"])
+        self._journal = Journal(files["journal"], path)
         self._pending_dir = files["pending"]
         self._snapshot_seq = snapshot.last_seq
         self._seq = snapshot.last_seq
@@ -203,9 +220,15 @@ class Session(SnapshotWriting, Mapping):
         lock = Lock(path) if writable else None
         if lock is not None:
             check_signature(path)
+            _check_replaceable(path)
             lock.acquire()
         try:
             session = cls._load(path, writable, lock)
+        except OSError as exc:  # e.g. a full disk while tidying what a killed writer left
+            if lock is not None:
+                lock.release()
+            raise WakelineError(f"{exc.filename or path}: cannot open the session for writing "
+                                f"({exc.strerror or exc})") from None
         except BaseException:
             if lock is not None:
                 lock.release()
@@ -628,10 +651,12 @@ class Session(SnapshotWriting, Mapping):
     def _write_pending(self, seq: int, what: str, write) -> str:
         """Write arrays to ``S.h5.pending/<seq>.h5`` whole (temporary name, fsync, rename)."""
         with self._saving(what):
-            self._pending_dir.mkdir(exist_ok=True)
+            if not self._pending_dir.is_dir():
+                self._pending_dir.mkdir()
+                share_like(self._pending_dir, self.path)
         name = f"{seq:09d}.h5"
         image = h5_image(write)
-        with self._saving(what), atomic_write(self._pending_dir / name) as tmp:
+        with self._saving(what), atomic_write(self._pending_dir / name, like=self.path) as tmp:
             write_whole(tmp, image)
         return name
 

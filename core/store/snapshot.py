@@ -138,7 +138,7 @@ def check_signature(path: Path) -> None:
             head = fh.read(8)
     except FileNotFoundError:
         raise WakelineError(f"{path}: session file not found") from None
-    if len(head) < 8:
+    if len(head) < 8 and _HDF5_SIGNATURE.startswith(head):
         raise WakelineError(f"{path}: damaged or truncated session file ({len(head)} bytes)")
     if head != _HDF5_SIGNATURE:
         raise WakelineError(f"{path}: not a wakeline session (not an HDF5 file)")

@@ -59,12 +59,28 @@ def _result_cells(r: ShotRecord) -> list[str]:
     return [_cell(v) for v in values]
 
 
+#: First characters that make a spreadsheet run a cell as a formula (OWASP, "CSV injection").
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
 def _cell(value) -> str:
     if value is None:
         return ""
     if isinstance(value, float):
         return "" if not math.isfinite(value) else f"{value:.10g}"
-    return str(value)
+    return spreadsheet_safe(str(value))
+
+
+def spreadsheet_safe(text: str) -> str:
+    """Text a spreadsheet shows as text: a leading quote before one that would start a formula
+    (a note "=HYPERLINK(...)" or a reason "-ball out"); numbers such as "-3.5" stay as they are."""
+    if not text.startswith(FORMULA_STARTS):
+        return text
+    try:
+        float(text)
+    except ValueError:
+        return "'" + text
+    return text
 
 
 def write_table_csv(session, path) -> int:
