@@ -225,7 +225,7 @@ def _run_inline(tasks: list[dict], stop) -> Iterator[tuple]:
 # -- worker processes ---------------------------------------------------------------------------
 
 #: Peak memory of one worker measuring an H x W pair, bytes: the line through the peaks measured
-#: for 4096 x 4096 (1.1 GB) and 8000 x 8000 (3.4 GB) pairs (issue 12).
+#: for 4096 x 4096 (1.1 GB) and 8000 x 8000 (3.4 GB) pairs of the measurement (docs/references.md).
 _PEAK_BASE_BYTES = 0.28e9
 _PEAK_BYTES_PER_PX = 48.7
 

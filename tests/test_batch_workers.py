@@ -71,7 +71,7 @@ def test_a_shot_finishing_while_stopping_is_kept(tmp_path):
 def test_the_default_worker_count_fits_in_free_memory(monkeypatch):
     monkeypatch.setattr(os, "cpu_count", lambda: 16)
     monkeypatch.setattr(batch, "available_memory_bytes", lambda: 8e9)
-    # 4096 x 4096 peaks near 1.1 GB and 8000 x 8000 near 3.4 GB (measured, issue 12)
+    # 4096 x 4096 peaks near 1.1 GB and 8000 x 8000 near 3.4 GB (measured; docs/references.md)
     assert batch.peak_memory_bytes((4096, 4096)) == pytest.approx(1.1e9, rel=0.1)
     assert batch.peak_memory_bytes((8000, 8000)) == pytest.approx(3.4e9, rel=0.1)
     assert batch.default_workers([{"shape": [8000, 8000]}, {"shape": [256, 256]}]) == 2

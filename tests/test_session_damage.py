@@ -210,7 +210,7 @@ def _everything(path) -> dict:
 
 
 def test_random_overwrites_never_change_what_is_read_silently(session_path, tmp_path):
-    """The adversarial check of issue 12: 256 random bytes written at a random place of a
+    """The adversarial check: 256 random bytes written at a random place of a
     closed session either change nothing that is read or give a one-line error."""
     import random
 
