@@ -139,7 +139,14 @@ def run_process(args: argparse.Namespace) -> int:
             for signum, handler in previous.items():
                 signal.signal(signum, handler)
     code = _process_summary(args.session, report)
-    return 1 if tell_problems(session) else code
+    return 1 if _tell_problems(session) else code
+
+
+def _tell_problems(session) -> bool:
+    """Print what saving found damaged or lost, one line per shot part; True if anything."""
+    for problem in session.problems:
+        print(f"wakeline: {problem}", file=sys.stderr)
+    return bool(session.problems)
 
 
 def _read_settings(path: Path) -> dict:

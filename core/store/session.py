@@ -584,20 +584,18 @@ class Session(SnapshotWriting, Mapping):
 
     def _replay_journal(self) -> None:
         numbered, good_length = self._journal.read()
-        entries = [entry for _, entry in numbered]
-        live = [e for e in entries if e["seq"] > self._snapshot_seq]
-        for number, entry in numbered:
-            if entry["seq"] <= self._snapshot_seq:
-                continue
+        live = [(n, e) for n, e in numbered if e["seq"] > self._snapshot_seq]
+        for number, entry in live:
             try:
                 self._apply(entry)
             except (KeyError, TypeError, ValueError, AttributeError) as exc:
                 raise self._journal.damaged(number, damage_reason(exc)) from None
             self._seq = max(self._seq, entry["seq"])
         self._dirty = bool(live)
+        live = [entry for _, entry in live]
         if self.read_only:
             return
-        if len(live) != len(entries):  # left from a compaction killed before it dropped them
+        if len(live) != len(numbered):  # left from a compaction killed before it dropped them
             self._journal.rewrite(live)
         else:
             self._journal.truncate(good_length)

@@ -326,7 +326,10 @@ class SnapshotWriting:
                 write_whole(tmp, h5_image())
             reserve_space(tmp, self._snapshot_room())
             with h5py.File(tmp, "r+", libver=LIBVER) as dst:
-                self._patch_snapshot(dst) if patch else self._fill_snapshot(dst)
+                if patch:
+                    self._patch_snapshot(dst)
+                else:
+                    self._fill_snapshot(dst)
         self._snapshot_seq = self._seq
         self._checksummed = True
         self._identity = file_identity(self.path)
@@ -343,8 +346,8 @@ class SnapshotWriting:
         changed since, their histories and the index, with a margin for HDF5's own records."""
         room = self.path.stat().st_size if self.path.exists() else 0
         for shot_id in self._touched:
-            place = self._places.get(shot_id)
-            for name in (place.result, place.frames) if place else ():
+            place = self._places[shot_id]
+            for name in (place.result, place.frames):
                 if name not in (None, "snapshot"):
                     with contextlib.suppress(OSError):
                         room += (self._pending_dir / name).stat().st_size
