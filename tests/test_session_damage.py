@@ -85,7 +85,8 @@ def test_hand_damaged_journal_lines_are_named_in_one_line(session_path, line):
     lambda index: index["shots"][0].update(metadata=None),
     lambda index: index.update(shots={"S0": 1}),
     lambda index: index.pop("shots"),
-], ids=["text-entry", "no-id", "empty-id", "list-pick", "bad-state", "no-metadata", "dict-shots", "no-shots"])
+], ids=["text-entry", "no-id", "empty-id", "list-pick", "bad-state", "no-metadata", "dict-shots",
+        "no-shots"])
 def test_hand_damaged_index_is_named_in_one_line(session_path, damage):
     with h5py.File(session_path, "a") as f:
         index = json.loads(f["index"][()])
@@ -134,7 +135,7 @@ def test_stored_arrays_and_texts_carry_checksums(session_path, tmp_path):
             texts = [d for d in datasets if d.dtype.kind == "O"]
             assert arrays or path == session_path
             assert all(d.fletcher32 for d in arrays), [d.name for d in arrays if not d.fletcher32]
-            assert texts and all("sha256" in d.attrs for d in texts)  # Fletcher-32 needs fixed sizes
+            assert texts and all("sha256" in d.attrs for d in texts)  # no Fletcher-32 on strings
 
 
 def test_a_damaged_result_is_reported_for_its_shot_and_reprocessing_heals_it(session_path):

@@ -101,7 +101,8 @@ def test_a_read_only_session_file_is_not_replaced(session_path):
     assert not session_path.with_name("s.h5.lock").exists()
     with Session.open(session_path, writable=False) as s:
         assert list(s) == ["S0", "S1", "S2"]
-    assert session_path.read_bytes() == before and stat.S_IMODE(session_path.stat().st_mode) == 0o444
+    assert session_path.read_bytes() == before
+    assert stat.S_IMODE(session_path.stat().st_mode) == 0o444
 
 
 # -- clearer errors at open -----------------------------------------------------------------------

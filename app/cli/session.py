@@ -46,7 +46,8 @@ def _add_process(subparsers) -> None:
         description="Measure the shots of a session in parallel worker processes, saving each "
         "result as it arrives; a stopped run (Ctrl-C, SIGTERM or SIGHUP) finishes and keeps the "
         "shots in hand and the next run goes on with the rest (a second Ctrl-C aborts them). "
-        "Shots already processed with the same settings are skipped unless --force. Exit code 1 when a shot failed or the run was stopped.",
+        "Shots already processed with the same settings are skipped unless --force. Exit "
+        "code 1 when a shot failed or the run was stopped.",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
     p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
