@@ -8,7 +8,8 @@ import pytest
 from data.session_helpers import fake_result, write_shot_folder
 
 from app.cli import main
-from core.store import Session, import_folder, session_table_rows
+from core import WakelineError
+from core.store import Session, import_folder, session_table_rows, write_table_csv
 
 REQUIRED = ("shot", "upper_proposed_deg", "lower_proposed_deg", "upper_final_deg",
             "lower_final_deg", "review_status")
@@ -85,3 +86,11 @@ def test_cells_a_spreadsheet_would_run_as_formulas_are_quoted(tmp_path):
     assert rows["S1"]["notes"] == "'+1 spare" and rows["S1"]["operator"] == "'-bo"
     assert rows["S0"]["seam_deg"] == "-10" and rows["S0"]["offset"] == "-3.5"  # numbers stay
     assert rows["S1"]["offset"] == "+2"
+
+
+def test_the_table_is_never_written_over_its_session(session_path):
+    before = session_path.read_bytes()
+    with Session.open(session_path, writable=False) as s, pytest.raises(
+            WakelineError, match=r"s\.h5: is the session s\.h5 itself"):
+        write_table_csv(s, session_path)  # as the window's export could
+    assert session_path.read_bytes() == before

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import argparse
-import os
 from pathlib import Path
 
 from core import WakelineError
@@ -27,10 +26,6 @@ def whole_count(text: str) -> int:
     return value
 
 
-_COMPANION_WORDS = {"journal": "its journal", "pending": "its folder of pending arrays",
-                    "snapshot_tmp": "its half-written snapshot", "lock": "its lock"}
-
-
 def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
     """Refuse output paths that would overwrite what the command reads or writes elsewhere.
 
@@ -43,35 +38,22 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
     WakelineError
         "OUT: is ...; choose another output file", or "OUT: is a folder; ...".
     """
-    from core.store.session import companion_files
+    from core.store.files import same_place
+    from core.store.session import refuse_session_file
 
-    protected: list[tuple[Path, str]] = []
-    if session is not None:
-        protected.append((Path(session), f"the session {Path(session).name} itself"))
-        protected += [(path, f"{_COMPANION_WORDS[kind]} (of the session {Path(session).name})")
-                      for kind, path in companion_files(Path(session)).items()]
-    protected += [(Path(frame), f"the frame file {Path(frame).name}") for frame in inputs]
     seen: list[Path] = []
     for out in (Path(o) for o in outputs if o is not None):
         if out.is_dir():
             raise WakelineError(f"{out}: is a folder; give the name of the file to write in it")
-        for path, what in protected:
-            if _same_place(out, path):
-                raise WakelineError(f"{out}: is {what}; choose another output file")
-        if any(_same_place(out, other) for other in seen):
+        if session is not None:
+            refuse_session_file(out, Path(session))
+        for frame in map(Path, inputs):
+            if same_place(out, frame):
+                raise WakelineError(f"{out}: is the frame file {frame.name}; choose another "
+                                    "output file")
+        if any(same_place(out, other) for other in seen):
             raise WakelineError(f"{out}: given for both outputs; choose another output file")
         seen.append(out)
-
-
-def _same_place(out: Path, path: Path) -> bool:
-    """``out`` names ``path`` (through any link or relative path) or lies inside it."""
-    real_out, real_path = out.resolve(), path.resolve()
-    if real_out == real_path or real_out.is_relative_to(real_path):
-        return True
-    try:
-        return os.path.samefile(out, path)  # hard links
-    except OSError:
-        return False
 
 
 def session_frame_files(session) -> list[Path]:

@@ -85,6 +85,17 @@ def atomic_write(path, suffix: str = ".tmp", like: Path | None = None) -> Iterat
     fsync_dir(path.parent)
 
 
+def same_place(path: Path, other: Path) -> bool:
+    """``path`` names ``other`` (through any link, relative path or hard link) or lies in it."""
+    real, real_other = Path(path).resolve(), Path(other).resolve()
+    if real == real_other or real.is_relative_to(real_other):
+        return True
+    try:
+        return os.path.samefile(path, other)
+    except OSError:
+        return False
+
+
 def write_all(fd: int, data: bytes) -> None:
     """Write all of ``data`` to an open file descriptor (``os.write`` may write less)."""
     view = memoryview(data)

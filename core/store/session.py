@@ -41,6 +41,7 @@ from core.store.files import (
     atomic_write,
     json_ready,
     now_utc,
+    same_place,
     sha256_of,
     share_like,
     write_whole,
@@ -99,6 +100,21 @@ def companion_files(path: Path) -> dict[str, Path]:
         "snapshot_tmp": path.with_name(path.name + ".tmp"),
         "lock": path.with_name(path.name + ".lock"),
     }
+
+
+_COMPANION_WORDS = {"journal": "its journal", "pending": "its folder of pending arrays",
+                    "snapshot_tmp": "its half-written snapshot", "lock": "its lock"}
+
+
+def refuse_session_file(out: Path, path: Path) -> None:
+    """Refuse to write ``out`` when it is the session ``path`` or one of its companion files
+    (a table or sheet written with ``-o S.h5`` replaced the whole session)."""
+    named = [(path, f"the session {path.name} itself")] + [
+        (file, f"{_COMPANION_WORDS[kind]} (of the session {path.name})")
+        for kind, file in companion_files(path).items()]
+    for file, what in named:
+        if same_place(out, file):
+            raise WakelineError(f"{out}: is {what}; choose another output file")
 
 
 def session_path(path) -> Path:

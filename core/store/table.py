@@ -4,10 +4,12 @@ from __future__ import annotations
 
 import csv
 import math
+from pathlib import Path
 
 from core.store.files import atomic_write
 from core.store.manifest import NUMBER_COLUMNS, TEXT_COLUMNS
 from core.store.records import ShotRecord
+from core.store.session import refuse_session_file
 
 
 def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
@@ -87,7 +89,13 @@ def write_table_csv(session, path) -> int:
     """Write the table of picks as UTF-8 CSV with a header row; returns the number of rows.
 
     The file is written whole or not at all (``atomic_write``): a reader never sees half a table.
+
+    Raises
+    ------
+    WakelineError
+        When ``path`` is the session or one of its companion files (the window's export too).
     """
+    refuse_session_file(Path(path), Path(session.path))
     header, rows = session_table_rows(session)
     with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
         writer = csv.writer(fh)
