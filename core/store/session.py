@@ -25,7 +25,6 @@ from __future__ import annotations
 import json
 import os
 import shutil
-import stat
 import threading
 from collections.abc import Iterator, Mapping
 from contextlib import contextmanager
@@ -37,18 +36,16 @@ import numpy as np
 
 from core import WakelineError, __version__
 from core.shot import ShotResult, ShotSettings
-from core.store.files import (
-    atomic_write,
-    json_ready,
-    now_utc,
-    same_place,
-    sha256_of,
-    share_like,
-    write_whole,
+from core.store.companions import (
+    check_replaceable,
+    companion_files,
+    remove_companions,
+    session_path,
 )
+from core.store.files import atomic_write, json_ready, now_utc, sha256_of, share_like, write_whole
 from core.store.frames import frame_file_problem, read_frames
 from core.store.journal import Journal
-from core.store.lock import Lock, SessionReadOnly, user_name
+from core.store.lock import Lock, user_name
 from core.store.records import (
     Pick,
     ProcessState,
@@ -60,6 +57,7 @@ from core.store.records import (
     checked_status,
     damage_reason,
 )
+from core.store.replay import JournalReplay
 from core.store.snapshot import (
     STORAGE_ERRORS,
     Place,
@@ -69,11 +67,9 @@ from core.store.snapshot import (
     file_identity,
     h5_image,
     identity_of,
-    pending_name,
     read_snapshot,
     record_from_index,
     shot_key,
-    summary_from,
     write_frames_group,
     write_result_group,
 )
@@ -91,39 +87,6 @@ class UnknownShot(WakelineError, KeyError):
         return str(self.args[0]) if self.args else ""
 
 
-def companion_files(path: Path) -> dict[str, Path]:
-    """The files that belong to the session ``path`` besides the snapshot: its journal, the
-    folder of pending arrays, a half-written snapshot and the lock."""
-    return {
-        "journal": path.with_name(path.name + ".journal"),
-        "pending": path.with_name(path.name + ".pending"),
-        "snapshot_tmp": path.with_name(path.name + ".tmp"),
-        "lock": path.with_name(path.name + ".lock"),
-    }
-
-
-_COMPANION_WORDS = {"journal": "its journal", "pending": "its folder of pending arrays",
-                    "snapshot_tmp": "its half-written snapshot", "lock": "its lock"}
-
-
-def refuse_session_file(out: Path, path: Path) -> None:
-    """Refuse to write ``out`` when it is the session ``path`` or one of its companion files
-    (a table or sheet written with ``-o S.h5`` replaced the whole session)."""
-    named = [(path, f"the session {path.name} itself")] + [
-        (file, f"{_COMPANION_WORDS[kind]} (of the session {path.name})")
-        for kind, file in companion_files(path).items()]
-    for file, what in named:
-        if same_place(out, file):
-            raise WakelineError(f"{out}: is {what}; choose another output file")
-
-
-def session_path(path) -> Path:
-    """The session's real path, resolved once when it is opened: a session reached through a
-    symbolic link (or a linked folder) is the one file it points to, so its lock, journal and
-    temporary files sit beside it and replacing the snapshot keeps the link a link."""
-    return Path(path).resolve()
-
-
 def _change_words(entry: dict) -> str:
     """A journal entry in words, for a message saying it was not saved."""
     shot = entry.get("shot")
@@ -132,24 +95,7 @@ def _change_words(entry: dict) -> str:
             }.get(entry["op"], "the processing settings")
 
 
-def _check_replaceable(path: Path) -> None:
-    """Refuse to edit a session whose file is read-only: saving replaces the file, which the
-    folder's permissions would allow, silently undoing the chmod."""
-    mode = stat.S_IMODE(path.stat().st_mode)
-    if not mode & 0o222 or not os.access(path, os.W_OK):
-        raise SessionReadOnly(f"{path}: the session file is read-only (mode {mode:o}); open it "
-                              "read-only, or make it writable to edit it")
-
-
-def _remove_companions(path: Path) -> None:
-    """Remove the journal, the pending arrays and a half-written snapshot (not the lock)."""
-    files = companion_files(path)
-    for name in ("journal", "snapshot_tmp"):
-        files[name].unlink(missing_ok=True)
-    shutil.rmtree(files["pending"], ignore_errors=True)
-
-
-class Session(SnapshotWriting, Mapping):
+class Session(SnapshotWriting, JournalReplay, Mapping):
     """An open session. Use ``Session.create`` / ``Session.open``, or ``with Session.open(p):``.
 
     A read-only mapping of shot id -> ``ShotRecord`` (a copy; import order): ``shot_id in
@@ -211,7 +157,7 @@ class Session(SnapshotWriting, Mapping):
         lock = Lock(path)
         lock.acquire()
         try:
-            _remove_companions(path)
+            remove_companions(path)
             snapshot = Snapshot(name=name or path.stem, created_utc=now_utc())
             session = cls(path, snapshot, True, lock)
             session._write_snapshot()
@@ -236,7 +182,7 @@ class Session(SnapshotWriting, Mapping):
         lock = Lock(path) if writable else None
         if lock is not None:
             check_signature(path)
-            _check_replaceable(path)
+            check_replaceable(path)
             lock.acquire()
         try:
             session = cls._load(path, writable, lock)
@@ -551,7 +497,7 @@ class Session(SnapshotWriting, Mapping):
         lock.acquire()
         try:
             path.unlink(missing_ok=True)
-            _remove_companions(path)
+            remove_companions(path)
         finally:
             lock.release()
 
@@ -597,70 +543,6 @@ class Session(SnapshotWriting, Mapping):
         self._seq = entry["seq"]
         self._apply(entry)
         self._dirty = True
-
-    def _replay_journal(self) -> None:
-        numbered, good_length = self._journal.read()
-        live = [(n, e) for n, e in numbered if e["seq"] > self._snapshot_seq]
-        for number, entry in live:
-            try:
-                self._apply(entry)
-            except (KeyError, TypeError, ValueError, AttributeError) as exc:
-                raise self._journal.damaged(number, damage_reason(exc)) from None
-            self._seq = max(self._seq, entry["seq"])
-        self._dirty = bool(live)
-        live = [entry for _, entry in live]
-        if self.read_only:
-            return
-        if len(live) != len(numbered):  # left from a compaction killed before it dropped them
-            self._journal.rewrite(live)
-        else:
-            self._journal.truncate(good_length)
-        self._remove_orphans({e.get("pending") for e in live} - {None})
-
-    def _remove_orphans(self, referenced: set[str]) -> None:
-        """Delete files a killed writer left behind: temporary snapshot, unreferenced arrays."""
-        companion_files(self.path)["snapshot_tmp"].unlink(missing_ok=True)
-        if self._pending_dir.is_dir():
-            for item in self._pending_dir.iterdir():
-                if item.name not in referenced:
-                    item.unlink(missing_ok=True)
-            if not referenced:
-                shutil.rmtree(self._pending_dir, ignore_errors=True)
-
-    def _apply(self, entry: dict) -> None:
-        """Apply one journal entry in memory. A malformed entry raises KeyError, TypeError,
-        ValueError or AttributeError, which replay reports as a damaged line."""
-        op = entry["op"]
-        if op == "settings":
-            self._processing = dict(entry["settings"])
-            return
-        if op not in ("add_shot", "result", "failure", "pick"):
-            raise ValueError(f"unknown entry {op!r}: written by a newer wakeline?")
-        shot_id = entry["shot"]
-        if op == "add_shot":
-            check_shot_id(shot_id, ValueError)
-            self._records[shot_id] = ShotRecord(shot_id, dict(entry["metadata"]),
-                                                frames=dict(entry["frames"]))
-            self._places[shot_id] = Place(frames=pending_name(entry.get("pending"), True))
-            self._touched.add(shot_id)
-            return
-        if shot_id not in self._records:
-            raise ValueError(f"shot {shot_id!r} is not in the session")
-        self._touched.add(shot_id)
-        rec, place = self._records[shot_id], self._places[shot_id]
-        if op == "result":
-            rec.state, rec.failure = ProcessState.PROCESSED, ""
-            rec.summary = summary_from(entry["summary"], entry.get("summary_version"))
-            rec.fingerprint, rec.software_version = entry["fingerprint"], entry["version"]
-            rec.processed_utc = entry["t"]
-            place.result = pending_name(entry["pending"])
-        elif op == "failure":
-            rec.state, rec.failure = ProcessState.FAILED, entry["reason"]
-            rec.fingerprint = entry["fingerprint"]
-            rec.software_version, rec.processed_utc = entry["version"], entry["t"]
-        else:
-            rec.pick = Pick.from_dict(entry["pick"])
-            place.history.append(replace(rec.pick))
 
     def _write_pending(self, seq: int, what: str, write) -> str:
         """Write arrays to ``S.h5.pending/<seq>.h5`` whole (temporary name, fsync, rename)."""
