@@ -28,6 +28,7 @@ thickness, for the model-form check.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 
@@ -64,6 +65,7 @@ def profile(x: np.ndarray, shape: str = "erf") -> np.ndarray:
     return 0.5 + (15.0 / 16.0) * y - 0.625 * y**3 + 0.1875 * y**5
 
 
+@functools.lru_cache(maxsize=256)
 def centre_offset(reverse: float, shape: str = "erf") -> float:
     """``c``: the dividing line's depth below the layer's centre, in vorticity thicknesses."""
     p = reverse / (1.0 + reverse)
@@ -133,12 +135,11 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
     phi = geom.phi_grid
     delta_s = math.exp(log_delta)
     behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r  # arc length past separation
-    lift = dividing_line_px(r, phi_s, slope, relax * r, phi, geom.final_deg)
+    lift, rise = _dividing_line(geom, phi_s, slope, relax)
     c = centre_offset(reverse, shape)
     ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / UPSTREAM_DEG)  # 0 at and behind phi_s
     delta = delta_s * (1.0 - thin * ramp) + spread * behind
     centre = (lift + c * delta * (1.0 - drop * ramp))[:, None]
-    rise = np.gradient(lift, np.radians(phi) * r)[:, None]  # dZ/ds along the outline
     wall_px = WALL_FRACTION * delta_s * (1.0 - thin * ramp)[:, None]
     delta = delta[:, None]
     gap = geom.gap_grid[None, :]
@@ -148,5 +149,24 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
     shape_pg = (phi.size, gap.size)
     u_t = k_t * u_t_outer.reshape(shape_pg) * s_prof * wall
     inside = 1.0 - profile((gap - centre - delta) / delta, shape)
-    u_r = k_r * u_r_outer.reshape(shape_pg) * across * wall + follow * u_t * rise * inside
+    u_r = k_r * u_r_outer.reshape(shape_pg) * across * wall + follow * u_t * rise[:, None] * inside
     return u_t.ravel(), u_r.ravel()
+
+
+_LINE_CACHE: dict = {}
+
+
+def _dividing_line(geom: SideGeometry, phi_s: float, slope: float, relax: float):
+    """The dividing line's height over the angle grid and its rise ``dZ/ds``, kept for the last
+    few geometries (a fit's finite differences change the other parameters far more often)."""
+    phi = geom.phi_grid
+    key = (phi_s, slope, relax, geom.radius_px, geom.final_deg, phi.size, phi[0], phi[-1])
+    found = _LINE_CACHE.get(key)
+    if found is None:
+        r = geom.radius_px
+        lift = dividing_line_px(r, phi_s, slope, relax * r, phi, geom.final_deg)
+        found = (lift, np.gradient(lift, np.radians(phi) * r))
+        if len(_LINE_CACHE) > 64:
+            _LINE_CACHE.clear()
+        _LINE_CACHE[key] = found
+    return found

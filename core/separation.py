@@ -79,22 +79,26 @@ PRIOR_THIN = (0.0, 0.7)
 PRIOR_WALL = 0.02
 #: Prior on the layer's turning length over the radius: median and sd of ``ln(L / R)``.
 PRIOR_RELAX = (1.0, 0.7)
-#: The coarse search uses every ``COARSE_EVERY``-th angle and gap row of the band; the
-#: refinement the band's samples within ``FIT_WINDOW_DEG`` of its start.
-COARSE_EVERY = 2
+#: The coarse search uses every ``COARSE_EVERY``-th angle and gap row of the band at first,
+#: every other one around its best angles; the refinement the band's samples within
+#: ``FIT_WINDOW_DEG`` of its start.
+COARSE_EVERY = 3
 FIT_WINDOW_DEG = (-25.0, 40.0)
 #: Depth (layer thicknesses) to which the dividing line's place below the layer is uncertain,
 #: and the shallowest departure (deg) used to turn it into an angle (calibrated:
 #: docs/separation_accuracy.md).
 EXTRAPOLATION_DEPTH = 0.15
 EXTRAPOLATION_MIN_DEG = 3.0
+#: Iterations (Jacobians) of the main refinement and of each refit from its result.
+REFINE_ITERATIONS = 25
+ALTERNATIVE_ITERATIONS = 8
 #: The angle's profile is taken this far either side of the best fit (deg); the fit's own
 #: standard uncertainty is capped at ``PROFILE_MAX_DEG``.
 PROFILE_STEP_DEG = 3.0
 PROFILE_MAX_DEG = 20.0
 #: Thicknesses (over the prior's median) tried by the coarse search, and how many of its first
 #: stage's best angles are searched further.
-COARSE_THICKNESS = (1.0, 2.5, 5.0)
+COARSE_THICKNESS = (1.0, 3.0)
 COARSE_CANDIDATES = 3
 #: Refinements run from this many starting points of the coarse search (the best wins): the
 #: image-matching cost has several shallow minima along the outline.
@@ -419,8 +423,8 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
     # residual scale: neighbouring samples are correlated, so one independent value per
     # SAMPLES_PER_INDEPENDENT samples
     problem.sigma = math.sqrt(attached_cost / attached.size * SAMPLES_PER_INDEPENDENT) + 1e-12
-    coarse = problem.view(every=COARSE_EVERY)
-    starts, start_cost = _coarse_search(coarse)
+    coarse = problem.view(every=2)
+    starts, start_cost = _coarse_search(problem)
     coarse_attached = float(np.sum(coarse.band.residual(coarse.u_t, coarse.u_r) ** 2))
     if not start_cost < (1.0 - MIN_IMPROVEMENT) * coarse_attached:
         return SideProposal(None, None, 0.0, "no separated shear layer next to the ball "
@@ -428,7 +432,7 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
     fits = []
     for start in starts:
         near = problem.view((start[0] + FIT_WINDOW_DEG[0], start[0] + FIT_WINDOW_DEG[1]))
-        fits.append((_refine(near, start), near))
+        fits.append((_refine(near, start, max_nfev=REFINE_ITERATIONS), near))
     # the fits saw different windows: compare them on the samples all of them saw
     angles = [fit.params[0] for fit, _ in fits]
     common = problem.view((max(angles) + FIT_WINDOW_DEG[0], min(angles) + FIT_WINDOW_DEG[1]))
@@ -474,7 +478,8 @@ class Fit:
 
 
 def _coarse_search(problem: SideProblem):
-    """Starting points for the refinement, best first, and the best data cost.
+    """Starting points for the refinement, best first, and the best data cost (on every other
+    sample of the band).
 
     ``phi_s`` on a 2 deg grid at a few thicknesses with the other priors' medians; around the
     best few (at least 6 deg apart), ``(phi_s, departure, thickness)`` on a 1 deg grid. Every
@@ -484,16 +489,16 @@ def _coarse_search(problem: SideProblem):
     """
     data_best = np.inf
     first = []
+    sparse = problem.view(every=COARSE_EVERY)
+    problem = problem.view(every=2)
     for factor, reverse, follow in itertools.product(COARSE_THICKNESS, (0.08, 0.25), (0.0, 1.0)):
-        for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 2.0):
-            params = problem.start(phi_s, delta_factor=factor, reverse=reverse, follow=follow)
-            cost = problem.data_cost(params)
-            data_best = min(data_best, cost)
-            first.append((problem.score(params, cost), params, (factor, reverse, follow)))
+        for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 3.0):
+            params = sparse.start(phi_s, delta_factor=factor, reverse=reverse, follow=follow)
+            first.append((sparse.score(params), params, (factor, reverse, follow)))
     scored = []
     for _, centre, (factor, reverse, follow) in _distinct(first, 6.0, COARSE_CANDIDATES):
-        for phi_s in np.arange(centre[0] - 4.0, centre[0] + 4.5, 1.0):
-            for leave in (2.0, 6.0, 10.0, 15.0, 20.0):
+        for phi_s in centre[0] + np.array([-3.0, -1.5, 0.0, 1.5, 3.0]):
+            for leave in (2.0, 7.0, 13.0, 19.0):
                 for f in (0.6 * factor, factor, 1.6 * factor):
                     params = problem.start(phi_s, leave, f, reverse, follow)
                     cost = problem.data_cost(params)
@@ -556,7 +561,8 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dic
     for sign in (-1.0, 1.0):
         moved = best.params.copy()
         moved[0] += sign * PROFILE_STEP_DEG
-        rises.append(_refine(problem, moved, hold=("phi_s",), max_nfev=20).score - best.score)
+        rises.append(_refine(problem, moved, hold=("phi_s",), max_nfev=ALTERNATIVE_ITERATIONS)
+                     .score - best.score)
     rise = max(min(rises), PROFILE_STEP_DEG**2 / PROFILE_MAX_DEG**2)
     budget = {"fit": PROFILE_STEP_DEG / math.sqrt(rise)}
     radius_sd = math.hypot(ball.radius_sigma_px, ball.center_sigma_px / math.sqrt(2.0))
@@ -565,14 +571,15 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dic
         for sign in (-1.0, 1.0):
             geom = replace(problem.geom, radius_px=problem.geom.radius_px + sign * radius_sd,
                            gap_grid=problem.geom.gap_grid - sign * radius_sd)
-            moved.append(_refine(problem, best.params, geom=geom, max_nfev=25).params[0])
+            moved.append(_refine(problem, best.params, geom=geom,
+                                 max_nfev=ALTERNATIVE_ITERATIONS).params[0])
         budget["circle"] = 0.5 * abs(moved[1] - moved[0])
     budget["flight"] = float(ball.flight_sigma_deg)
     budget["model form"] = abs(_refine(problem, best.params, shape="quartic",
-                                       max_nfev=25).params[0] - phi)
+                                       max_nfev=ALTERNATIVE_ITERATIONS).params[0] - phi)
     budget["prior"] = max(
         abs(_refine(problem, best.params, log_delta_prior=problem.log_delta_prior + shift,
-                    max_nfev=25).params[0] - phi)
+                    max_nfev=ALTERNATIVE_ITERATIONS).params[0] - phi)
         for shift in (-math.log(2.0), math.log(2.0))
     )
     budget["extrapolation"] = extrapolation_deg(best.params, problem.geom.radius_px)
