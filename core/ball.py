@@ -1,18 +1,31 @@
 """The ball in each frame: outline circle, masks, flight direction and speed, scale from its size.
 
-The ball in a PIV frame is a dark disc (no particles inside; the surface is not lit except where
-the light sheet cuts it) with a bright rim along part of its outline. It moves several pixels
-between the frames, so each frame is fitted on its own:
+In a PIV frame the ball is a round region without particle images: the light sheet lights the
+seeding around it but nothing lies inside it. Its surface may be darker than the seeded air,
+about as bright, or brighter (a white ball in scattered light), with or without a lit rim where
+the sheet grazes it, with a glint; it shadows the sheet on its far side, and the sheet may be
+brighter in one part of the picture than another. So the ball is found by texture, not by
+brightness, and each frame is fitted on its own (the ball moves several pixels between them):
 
-1. coarse: on a block-averaged, smoothed copy the ball is the darkest round region; its circle
-   comes from the region's boundary with the image border left out (a ball cut by the edge still
-   fits);
-2. fine: along rays from that centre, each edge point is the steepest point of the lit rim's
-   outer flank (cubic-spline samples), or, where too little of the rim is lit, where the
-   particle speckle begins (the ball's surface and rim are smooth along the outline, the seeded
-   air is not); a robust circle fit (RANSAC with :class:`skimage.measure.CircleModel`) drops
-   rays spoilt by particles or reflections, and a least-squares fit on the kept points gives the
-   sub-pixel circle.
+1. coarse: the local variance over blocks of a few pixels is high in the seeded air and low on
+   the ball (and in its shadow); the boundary of the low-variance region votes along its normal
+   for circle centres (a Hough transform), and the best-supported circle whose inside is
+   particle-free is kept. A shadow strip's straight edges support no circle;
+2. the particle-free disc: particle images are detected around that circle and the circle that
+   has a small share of them (2 %) inside it is fitted (a quantile regression), which needs no
+   contrast between the surface and the air;
+3. fine: along rays from the centre, the outline is taken from the best cue the frame offers:
+   the lit rim's sharp outer flank where enough of the rim is lit, else the step between the
+   surface and the background between the particles where the surface differs clearly from
+   it, else the particle-free disc of step 2. Rays through glare are left out, a robust circle
+   fit (RANSAC with :class:`skimage.measure.CircleModel`, then a Cauchy-loss least squares)
+   drops rays spoilt by particles, the seam or a shadow, and its residuals give the circle's
+   standard uncertainty.
+
+The flight comes from the ball's displacement between the frames: the difference of the two
+circles, combined with a match of the ball's whole visible image (outline, rim, seam) by
+Gauss-Newton, each with its covariance. A held ball (tunnel) takes its direction from the free
+stream.
 
 Conventions: image coordinates (x = column right, y = row down, origin at the top-left pixel
 centre); flight direction 0 deg = toward +x, 90 deg = toward the top of the picture.
@@ -21,14 +34,17 @@ centre); flight direction 0 deg = toward +x, 90 deg = toward the top of the pict
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
-from scipy import ndimage
-from scipy.optimize import least_squares
+from scipy import ndimage, sparse
+from scipy.optimize import least_squares, linprog
+from skimage.filters import threshold_otsu
 from skimage.measure import CircleModel, ransac
 
 from core import WakelineError
-from core.results import BallFit, Flight
+from core.conditioning import glare_mask
+from core.results import BallFit, Flight, VectorField
 
 # Rulebook sizes: circumference range (mm); the nominal diameter is mid-range circumference / pi.
 BALL_CIRCUMFERENCE_MM = {
@@ -48,11 +64,22 @@ NOMINAL_BALL_DIAMETER_MM = {
 #: Extra ring (px) around the fitted circle excluded from correlation: rim glare, reflections
 #: and the sub-pixel fit error.
 DEFAULT_MASK_MARGIN_PX = 3.0
-#: Share of the outline's rays with a lit rim above which only the rim gives the outline.
+#: Share of the outline's rays with a lit rim (or a clear surface step) from which that cue
+#: alone gives the outline.
 MIN_RIM_SHARE = 0.3
-#: Half-width (px) of the search band up to which the lit rim alone may give the outline: in the
-#: wider first bands of a large ball, bright particles far from the outline pass for a rim.
-RIM_ONLY_BAND_PX = 4.0
+#: A surface step counts where it exceeds this many times the surface's noise.
+STEP_SNR = 6.0
+#: Share of the particle images around the outline that the particle-free disc may hold (false
+#: detections: stitches, noise); the fit is corrected for the share's own outward offset.
+HOLE_SHARE = 0.02
+#: Particle images (about) used to fit the particle-free disc; the band outside is widened on
+#: sparse seeding to hold them.
+HOLE_POINTS = 250
+#: Half-widths (px) of the fine search bands after the particle-free disc.
+FINE_BANDS_PX = (5.0, 3.0)
+#: Fit-quality limits behind the "poor fit" warning.
+POOR_ARC_SHARE = 0.35
+POOR_CENTRE_SIGMA_PX = 0.5
 
 
 def nominal_diameter_mm(ball_type: str) -> float:
@@ -87,187 +114,315 @@ def find_ball(
     *,
     radius_hint_px: float | None = None,
     name: str = "frame",
+    saturation: float | None = None,
 ) -> BallFit:
     """Fit the ball's outline circle in one frame.
 
     Parameters
     ----------
     frame : (H, W) ndarray
-        One PIV frame (counts).
+        One PIV frame (counts), as recorded (not normalised).
     radius_hint_px : float, optional
-        Expected radius (from the ball diameter and a known scale); only regions within 25 %
+        Expected radius (from the ball diameter and a known scale); only circles within 25 %
         of it are considered.
     name : str
         Frame name used in error messages.
+    saturation : float, optional
+        The camera's saturation level (counts); default the frame's maximum. Glare (saturated
+        regions larger than a particle image) is left out of the outline.
 
     Returns
     -------
     BallFit
-        Centre (x, y) and radius in px, RMS edge residual, and whether the image edge cuts it.
+        Centre (x, y) and radius in px with their standard uncertainties and covariance, the
+        RMS edge residual, the share of the outline that carried the fit, which cue gave the
+        outline, and whether the image edge cuts the ball.
 
     Raises
     ------
     core.WakelineError
-        When no dark round region of plausible size exists ("no ball found"), or too little
-        of its outline lies inside the image.
+        When no round particle-free region of plausible size exists ("no ball found"), or too
+        little of its outline is visible.
     """
-    image = np.asarray(frame, dtype=np.float64)
+    image = np.asarray(frame, dtype=np.float32)
     if image.ndim != 2 or min(image.shape) < 16:
         raise WakelineError(f"{name}: not a 2-D frame large enough to hold a ball")
-    cx, cy, r = _coarse_circle(image, radius_hint_px, name)
-    smooth = ndimage.gaussian_filter(image, 1.0)
-    residual = float("nan")
-    for half_width in (max(6.0, 0.12 * r), 4.0, 3.0):
-        points = _edge_points(image, smooth, cx, cy, r, half_width)
-        if len(points) < 12:
-            raise WakelineError(f"{name}: no ball found (too little of an outline is visible)")
-        cx, cy, r, residual = _robust_circle(points, name)
-    height, width = image.shape
-    cut = cx - r < -0.5 or cy - r < -0.5 or cx + r > width - 0.5 or cy + r > height - 0.5
-    return BallFit(center_px=(cx, cy), radius_px=r, residual_px=residual, cut_by_edge=bool(cut))
+    level = float(image.max()) if saturation is None else float(saturation)
+    cx, cy, r, block = _coarse_circle(image, radius_hint_px, name)
+    if radius_hint_px is not None:
+        r = radius_hint_px if abs(r - radius_hint_px) > 0.25 * radius_hint_px else r
+    return _fine_circle(image, cx, cy, r, block, level, name)
+
+
+# --- coarse: a round region without particle images -----------------------------------------
+
+
+def _bin2(image: np.ndarray) -> np.ndarray:
+    """Means of 2 x 2 pixels, ``(H // 2, W // 2)``."""
+    h, w = (s // 2 * 2 for s in image.shape)
+    return image[:h, :w].reshape(h // 2, 2, w // 2, 2).mean(axis=(1, 3))
+
+
+def _block_variance(image: np.ndarray, factor: int) -> np.ndarray:
+    """Intensity variance within ``factor`` x ``factor`` blocks, ``(H // f, W // f)``."""
+    h, w = (s // factor * factor for s in image.shape)
+    blocks = image[:h, :w].reshape(h // factor, factor, w // factor, factor)
+    mean = blocks.mean(axis=(1, 3), dtype=np.float64)
+    square = np.square(blocks, dtype=np.float64).mean(axis=(1, 3))
+    return np.clip(square - mean * mean, 0.0, None)
 
 
 def _coarse_circle(
     image: np.ndarray, radius_hint_px: float | None, name: str
-) -> tuple[float, float, float]:
-    """Centre and radius (px, full resolution) of the darkest round region."""
-    factor = max(1, min(image.shape) // 192)
-    small = _block_mean(image, factor)
-    small = ndimage.gaussian_filter(small, 2.5)
-    low = np.percentile(small, 0.5)
-    air = np.median(small)
-    # the ball's surface is much darker than the seeded air (assumes a camera background well
-    # below the mean particle light, as PIV exposures are set)
-    if not low < 0.6 * air:
-        raise WakelineError(f"{name}: no ball found (no region much darker than the seeded air)")
-    dark = ndimage.binary_opening(small < low + 0.5 * (air - low), iterations=2)
-    labels, _ = ndimage.label(dark)
-    best = None
-    for index, region in enumerate(ndimage.find_objects(labels), start=1):
-        candidate = _score_region(labels[region] == index, region, small.shape, factor)
-        if candidate is None:
+) -> tuple[float, float, float, int]:
+    """Centre and radius (px) of the best-supported round particle-free region, and the block
+    size (px) they were found on (their error is about a block)."""
+    factor = 2 * max(2, int(round(min(image.shape) / 256)))
+    # variance of 2 x 2 pixel means: averaging quarters the camera noise's variance but keeps
+    # most of a particle image's (it spans 2-3 px), so dim particles stand out better; summed
+    # over 5 x 5 blocks, so that sparse seeding still puts a few particles in each sum
+    variance = ndimage.uniform_filter(_block_variance(_bin2(image), factor // 2), 5, mode="nearest")
+    texture = np.log(variance + 1e-6 * float(np.median(variance)) + 1e-12)
+    if np.ptp(texture) < 1.0:
+        raise WakelineError(f"{name}: no ball found (the picture has no particle images)")
+    # the air's texture relative to the brightest seeded air around it (an uneven sheet lights
+    # one part of the picture several times more than another); then, for a ball too large for
+    # that window, as it is
+    window = max(5, int(0.6 * min(texture.shape)))
+    reference = ndimage.gaussian_filter(ndimage.maximum_filter(texture, window), window / 4)
+    radii, edges = None, None
+    for level in (texture - reference, texture):
+        quiet = level < threshold_otsu(level)
+        quiet = ndimage.binary_opening(quiet)  # single quiet blocks between sparse particles
+        edges = _quiet_edges(quiet, level)
+        if edges is None:
             continue
-        r, score = candidate[2], candidate[3]
-        if radius_hint_px is not None and abs(r - radius_hint_px) > 0.25 * radius_hint_px:
-            continue
-        if best is None or score > best[3]:
-            best = candidate
-    if best is None:
+        radii = _radius_range(quiet.shape, radius_hint_px, factor)
+        if radii.size == 0:
+            raise WakelineError(f"{name}: no ball found (the hinted radius does not fit the frame)")
+        best = _hough_best(*edges, radii, quiet)
+        if best is not None:
+            break
+    else:
         hint = "" if radius_hint_px is None else f" near radius {radius_hint_px:.0f} px"
-        raise WakelineError(f"{name}: no ball found (no dark round region{hint})")
-    return best[0], best[1], best[2]
+        raise WakelineError(f"{name}: no ball found (no round region without particle images{hint})")
+    xc, yc, rc = best
+    # the quiet region's edge lies about half a block inside the rim or the first particles
+    return (xc + 0.5) * factor - 0.5, (yc + 0.5) * factor - 0.5, (rc + 0.5) * factor, factor
 
 
-def _block_mean(image: np.ndarray, factor: int) -> np.ndarray:
-    if factor == 1:
-        return image
-    h, w = (s // factor * factor for s in image.shape)
-    return image[:h, :w].reshape(h // factor, factor, w // factor, factor).mean(axis=(1, 3))
-
-
-def _score_region(
-    blob: np.ndarray, region: tuple[slice, slice], shape: tuple[int, int], factor: int
-) -> tuple[float, float, float, float] | None:
-    """Circle of a dark region from its boundary (image border excluded) and a roundness score."""
-    area = int(blob.sum())
-    if area < 30:
+def _quiet_edges(quiet: np.ndarray, level: np.ndarray):
+    """Edge blocks of the quiet region (the picture's border left out) and their unit normals
+    toward the textured side, or None when there are too few."""
+    edge = quiet & ~ndimage.binary_erosion(quiet, border_value=1)
+    edge[0, :] = edge[-1, :] = edge[:, 0] = edge[:, -1] = False
+    ey, ex = np.nonzero(edge)
+    gy, gx = np.gradient(ndimage.gaussian_filter(level, 1.0))
+    norm = np.hypot(gx[ey, ex], gy[ey, ex])
+    ok = norm > 0
+    if np.count_nonzero(ok) < 12:
         return None
-    interior = ndimage.binary_erosion(np.pad(blob, 1), border_value=0)[1:-1, 1:-1]
-    by, bx = np.nonzero(blob & ~interior)
-    by = by + region[0].start
-    bx = bx + region[1].start
-    away = (bx > 0) & (by > 0) & (bx < shape[1] - 1) & (by < shape[0] - 1)
-    if away.sum() < 12:
-        return None
-    model = CircleModel.from_estimate(np.column_stack([bx[away], by[away]]).astype(float))
-    if not model:
-        return None
-    (xc, yc), r = model.center, model.radius
-    if not 4.0 <= r <= 0.75 * max(shape):
-        return None
-    expected = _disc_area_inside(xc, yc, r, shape)
-    if expected < 0.3 * math.pi * r * r:
-        return None
-    fill = area / expected
-    spread = np.std(np.hypot(bx[away] - xc, by[away] - yc)) / r
-    if not 0.7 < fill < 1.3 or spread > 0.15:
-        return None
-    score = area * (1.0 - abs(1.0 - fill)) * (1.0 - spread)
-    # block centre -> pixel coordinate
-    return (xc + 0.5) * factor - 0.5, (yc + 0.5) * factor - 0.5, r * factor, score
+    return ex[ok], ey[ok], gx[ey, ex][ok] / norm[ok], gy[ey, ex][ok] / norm[ok]
 
 
-def _disc_area_inside(xc: float, yc: float, r: float, shape: tuple[int, int]) -> float:
-    """Pixel count of the disc (xc, yc, r) that falls inside an image of ``shape``."""
-    y0, y1 = max(0, int(yc - r) - 1), min(shape[0], int(yc + r) + 2)
-    x0, x1 = max(0, int(xc - r) - 1), min(shape[1], int(xc + r) + 2)
-    yy, xx = np.mgrid[y0:y1, x0:x1]
-    return float(np.count_nonzero((xx - xc) ** 2 + (yy - yc) ** 2 <= r * r))
+def _radius_range(shape, radius_hint_px, factor) -> np.ndarray:
+    """Radii (blocks) searched: 3 blocks up to 3/4 of the picture, or within 25 % of the hint."""
+    r_lo, r_hi = 3.0, 0.75 * max(shape)
+    if radius_hint_px is not None:
+        r_lo = max(r_lo, 0.75 * radius_hint_px / factor)
+        r_hi = min(r_hi, 1.25 * radius_hint_px / factor)
+    return np.arange(math.floor(r_lo), math.ceil(r_hi) + 1, dtype=np.float64)
 
 
-def _edge_points(
-    image: np.ndarray, smooth: np.ndarray, cx: float, cy: float, r: float, half_width: float
-) -> np.ndarray:
-    """Sub-pixel outline points, one per ray, ``(K, 2)`` (x, y); rays leaving the image dropped.
+def _hough_best(ex, ey, nx, ny, radii, quiet):
+    """Circle (blocks) best supported by quiet-region edge points voting along their normals.
 
-    The ball's surface and rim are smooth along the outline while the seeded air is speckled, so
-    along each circle of radius ``rho`` the mean absolute difference between neighbouring rays
-    ("texture") is low on the ball and high in the air, whatever the rim's brightness. On each
-    ray the edge is where the texture, walking outward, first crosses half-way between its
-    level well inside and its level well outside.
+    Two stages (a gradient Hough transform): every edge point votes, weighted by one over the
+    circumference, for the centres one radius inward along its normal (the direction from
+    quiet to textured) for every radius in range, so a whole circle of any size gives about 1
+    at its centre; then, for the strongest centres, the edge points facing them vote for the
+    radius. Written with ``np.bincount`` rather than :func:`skimage.transform.hough_circle`,
+    which ignores the normals and costs a full circle of votes per point and radius.
     """
+    shape = quiet.shape
+    cx = np.rint(ex[None, :] - radii[:, None] * nx[None, :]).astype(np.int64)
+    cy = np.rint(ey[None, :] - radii[:, None] * ny[None, :]).astype(np.int64)
+    weight = np.broadcast_to(1.0 / (2.0 * math.pi * radii[:, None]), cx.shape)
+    inside = (cx >= 0) & (cy >= 0) & (cx < shape[1]) & (cy < shape[0])
+    votes = np.bincount(cy[inside] * shape[1] + cx[inside], weights=weight[inside],
+                        minlength=shape[0] * shape[1]).reshape(shape)
+    # the normals of a block map scatter by some degrees: sum the votes over a few blocks
+    votes = ndimage.gaussian_filter(votes, 1.5) * (2.0 * math.pi * 1.5 * 1.5)
+    peaks = (votes == ndimage.maximum_filter(votes, 5)) & (votes > 0.15)
+    order = np.argsort(votes[peaks])[::-1][:8]
+    best, best_score = None, 0.0
+    for j, i in zip(*(a[order] for a in np.nonzero(peaks)), strict=True):
+        rx, ry = ex - i, ey - j
+        rho = np.hypot(rx, ry)
+        facing = (rx * nx + ry * ny) > 0.8 * rho
+        hist = np.bincount(np.rint(rho[facing]).astype(np.int64), minlength=int(radii[-1]) + 3)
+        hist = ndimage.gaussian_filter1d(hist.astype(np.float64), 1.0) * math.sqrt(2 * math.pi)
+        span = np.arange(hist.size, dtype=np.float64)
+        support = np.where((span >= radii[0]) & (span <= radii[-1]),
+                           hist / (2.0 * math.pi * np.maximum(span, 1.0)), 0.0)
+        r = float(np.argmax(support))
+        if r <= 0:
+            continue
+        fill, air, seen = _disc_and_ring(quiet, float(i), float(j), r)
+        support_seen = support[int(r)] / max(seen, 0.25)
+        # the air around a ball is textured on at least the lit part of its outline
+        if fill < 0.7 or air < 0.25 or support_seen < 0.2:
+            continue
+        score = support_seen * fill * fill
+        if score > best_score:
+            best, best_score = (float(i), float(j), r), score
+    if best is None:
+        return None
+    # sub-block circle through the edge points near the winner whose normals point outward
+    i, j, r = best
+    rx, ry = ex - i, ey - j
+    rho = np.hypot(rx, ry)
+    near = (np.abs(rho - r) < 2.0) & ((rx * nx + ry * ny) > 0.6 * rho)
+    if near.sum() >= 8:
+        model = CircleModel.from_estimate(np.column_stack([ex[near], ey[near]]).astype(float))
+        if (model and abs(model.radius - r) < 2.0
+                and math.hypot(model.center[0] - i, model.center[1] - j) < 2.0):
+            return float(model.center[0]), float(model.center[1]), float(model.radius)
+    return best
+
+
+def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[float, float, float]:
+    """Quiet share of the disc within 0.85 r, textured share of the ring 1.15-1.6 r (both
+    inside the picture), and the share of the circle inside the picture."""
+    reach = int(math.ceil(1.6 * r + 2))
+    y0, y1 = max(0, int(j) - reach), min(quiet.shape[0], int(j) + reach + 1)
+    x0, x1 = max(0, int(i) - reach), min(quiet.shape[1], int(i) + reach + 1)
+    yy, xx = np.ogrid[y0:y1, x0:x1]
+    rho = np.hypot(xx - i, yy - j)
+    window = quiet[y0:y1, x0:x1]
+    disc, ring = rho <= 0.85 * r, (rho > r + 1.5) & (rho <= 1.6 * r + 2)
+    if disc.sum() < 4 or ring.sum() < 4:
+        return 0.0, 0.0, 0.0
+    theta = np.linspace(0, 2 * math.pi, 64, endpoint=False)
+    px, py = i + r * np.cos(theta), j + r * np.sin(theta)
+    seen = np.mean((px >= 0) & (py >= 0) & (px <= quiet.shape[1] - 1) & (py <= quiet.shape[0] - 1))
+    return float(window[disc].mean()), float(1.0 - window[ring].mean()), float(seen)
+
+
+# --- fine: the outline from the best cue the frame offers ----------------------------------
+
+
+@dataclass
+class _Rays:
+    """Samples along rays from a centre: raw (cubic) and smoothed (linear) intensity."""
+
+    theta: np.ndarray  # (K,)
+    radii: np.ndarray  # (S,) px from the centre
+    raw: np.ndarray  # (K, S)
+    smooth: np.ndarray  # (K, S)
+    usable: np.ndarray  # (K,) bool: inside the picture, clear of glare
+
+
+def _sample_rays(crop, smooth, glare, cx, cy, r, half_width) -> _Rays:
     n_rays = int(np.clip(2.0 * math.pi * r / 1.5, 90, 2880))
     theta = np.linspace(0.0, 2.0 * math.pi, n_rays, endpoint=False)
     step = 0.25
-    radii = np.arange(r - half_width - 4.0, r + half_width + 6.0 + step / 2, step)
+    radii = np.arange(r - half_width - 6.0, r + half_width + 8.0 + step / 2, step)
     xs = cx + np.cos(theta)[:, None] * radii
     ys = cy + np.sin(theta)[:, None] * radii
-    height, width = smooth.shape
-    prof = ndimage.map_coordinates(smooth, [ys, xs], order=1, mode="nearest")
-    texture = np.abs(np.roll(prof, -1, axis=0) - prof)
-    texture = ndimage.uniform_filter1d(texture, 5, axis=0, mode="wrap")
-    edges = _texture_crossings(texture, radii, r, half_width)
-    raw = _sample_cubic(image, xs, ys)
-    rim_edges = _rim_crossings(raw, radii, r, half_width)
-    # a lit rim's outer flank is a far sharper outline than the start of the speckle: where the
-    # sheet lights enough of the rim, its rays alone give the circle once the band is narrow
-    # (the speckle's edge is spoilt by particle images touching the outline, up to a pixel)
-    lit = np.count_nonzero(np.isfinite(rim_edges)) >= MIN_RIM_SHARE * len(rim_edges)
-    if lit and half_width <= RIM_ONLY_BAND_PX:
-        edges = rim_edges
-    else:
-        edges = np.where(np.isfinite(rim_edges), rim_edges, edges)
+    height, width = crop.shape
     inside = (xs >= 0) & (ys >= 0) & (xs <= width - 1) & (ys <= height - 1)
-    # rays whose search band (or the 3 neighbours each side used for texture) leaves the image
-    keep = ndimage.minimum_filter1d(inside.all(axis=1).astype(np.uint8), 9, mode="wrap") > 0
-    ok = np.isfinite(edges) & keep
-    th = theta[ok]
-    return np.column_stack([cx + edges[ok] * np.cos(th), cy + edges[ok] * np.sin(th)])
+    # rays whose band (or the 3 neighbours each side) leaves the picture or touches glare
+    usable = inside.all(axis=1)
+    if glare.any():
+        hit = ndimage.map_coordinates(glare.astype(np.float32), [ys, xs], order=0, mode="nearest")
+        usable &= ~(hit > 0).any(axis=1)
+    usable = ndimage.minimum_filter1d(usable.astype(np.uint8), 7, mode="wrap") > 0
+    raw = ndimage.map_coordinates(crop, [ys, xs], order=3, mode="nearest")
+    smoothed = ndimage.map_coordinates(smooth, [ys, xs], order=1, mode="nearest")
+    return _Rays(theta, radii, raw, smoothed, usable)
 
 
-def _sample_cubic(image: np.ndarray, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
-    """Cubic-spline samples of ``image`` at ``(xs, ys)`` (px), splined on their bounding box only.
-
-    A cubic spline keeps the rim's flank sharper than bilinear interpolation, whose slope is
-    constant between pixel centres and so places the steepest point less precisely.
-    """
+def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
+    """Particle-free disc, then the rim or surface step on narrower bands (see module doc)."""
     height, width = image.shape
-    x0 = int(np.clip(np.floor(xs.min()) - 4, 0, width - 1))
-    x1 = int(np.clip(np.ceil(xs.max()) + 5, x0 + 1, width))
-    y0 = int(np.clip(np.floor(ys.min()) - 4, 0, height - 1))
-    y1 = int(np.clip(np.ceil(ys.max()) + 5, y0 + 1, height))
-    crop = image[y0:y1, x0:x1]
-    return ndimage.map_coordinates(crop, [ys - y0, xs - x0], order=3, mode="nearest")
+    first = max(8.0, 0.12 * r, 2.0 * block)
+    reach = r + first + 48.0
+    x0, y0 = max(0, int(cx - reach)), max(0, int(cy - reach))
+    x1, y1 = min(width, int(cx + reach) + 2), min(height, int(cy + reach) + 2)
+    if x1 - x0 < 8 or y1 - y0 < 8:
+        raise WakelineError(f"{name}: no ball found (the circle lies outside the picture)")
+    crop = np.asarray(image[y0:y1, x0:x1], dtype=np.float64)
+    glare = glare_mask(crop, level=level)
+    cx, cy = cx - x0, cy - y0
+    # 2. the particle-free disc
+    hole = _hole_circle(crop, glare, cx, cy, r, first, name)
+    cx, cy, r = hole.center[0], hole.center[1], hole.radius
+    # 3. the outline on narrower bands, from the best cue
+    smooth = ndimage.gaussian_filter(crop, 1.0)
+    fit = hole
+    cue = None
+    for half_width in FINE_BANDS_PX:
+        rays = _sample_rays(crop, smooth, glare, cx, cy, r, half_width)
+        if cue is None:
+            cue = _choose_cue(rays, r, half_width)
+        if cue == "particle images":
+            fit = _hole_circle(crop, glare, cx, cy, r, half_width + 1.0, name)
+        else:
+            edges = _rim_crossings(rays.raw, rays.radii, r, half_width)
+            if cue == "surface edge":  # the rim's flank where it is lit, else the step
+                lit = _coherent(np.isfinite(edges)) & np.isfinite(edges)
+                step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
+                edges = np.where(lit, edges, step)
+            ok = np.isfinite(edges) & rays.usable
+            th = rays.theta[ok]
+            points = np.column_stack([cx + edges[ok] * np.cos(th), cy + edges[ok] * np.sin(th)])
+            if len(points) < 12:
+                raise WakelineError(f"{name}: no ball found (too little of an outline is visible)")
+            fit = _robust_circle(points, th, np.count_nonzero(rays.usable) / rays.theta.size, name)
+        cx, cy, r = fit.center[0], fit.center[1], fit.radius
+    cx, cy = cx + x0, cy + y0
+    cut = cx - r < -0.5 or cy - r < -0.5 or cx + r > width - 0.5 or cy + r > height - 0.5
+    cov = fit.covariance
+    return BallFit(
+        center_px=(float(cx), float(cy)), radius_px=float(r), residual_px=fit.residual,
+        cut_by_edge=bool(cut),
+        center_sigma_px=(float(math.sqrt(cov[0, 0])), float(math.sqrt(cov[1, 1]))),
+        radius_sigma_px=float(math.sqrt(cov[2, 2])),
+        covariance_px2=tuple(tuple(float(v) for v in row) for row in cov),
+        arc_share=float(fit.arc_share), outline=cue,
+    )
+
+
+def _choose_cue(rays: _Rays, r: float, half_width: float) -> str:
+    """The lit rim where enough of it is lit, else a clear surface step, else the particles."""
+    usable = max(1, np.count_nonzero(rays.usable))
+    rim = _coherent(np.isfinite(_rim_crossings(rays.raw, rays.radii, r, half_width)))
+    if np.count_nonzero(rim & rays.usable) >= MIN_RIM_SHARE * usable:
+        return "lit rim"
+    step = _coherent(np.isfinite(_step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)))
+    if np.count_nonzero(step & rays.usable) >= MIN_RIM_SHARE * usable:
+        return "surface edge"
+    return "particle images"
+
+
+def _coherent(found: np.ndarray) -> np.ndarray:
+    """Rays whose cue is found on most of their 9 neighbours: a lit rim or a surface step runs
+    along the outline, a particle image touching it spans a ray or two."""
+    return ndimage.uniform_filter1d(found.astype(np.float64), 9, mode="wrap") > 0.5
 
 
 def _rim_crossings(prof: np.ndarray, radii: np.ndarray, r: float, half_width: float) -> np.ndarray:
-    """Outer half-level radius of a bright lit rim on each ray (NaN where the rim is not lit).
+    """Steepest point of a bright lit rim's outer flank on each ray (NaN where it is not lit).
 
     Where the sheet lights the rim it is far brighter than the seeded air (mean over the outer
-    part of the ray), and its outer flank is the ball's outline.
+    part of the ray), and its outer flank is the ball's outline: a blurred step keeps its
+    steepest point where the step is, whatever the rim's height.
     """
     outer = radii >= r + half_width + 1.0
     air = prof[:, outer].mean(axis=1)
+    inner = (radii >= r - half_width - 6.0) & (radii <= r - half_width - 2.0)
+    surface = np.median(prof[:, inner], axis=1)
     # the lit rim lies inside the outline: a bright peak well outside the current circle is a
     # particle image beside the ball, not the rim (it would push the outline outward)
     band = (radii >= r - half_width - 1.0) & (radii <= r + 0.25 * half_width)
@@ -278,42 +433,75 @@ def _rim_crossings(prof: np.ndarray, radii: np.ndarray, r: float, half_width: fl
     cols = np.arange(len(radii))[None, :]
     crossed = (prof <= level[:, None]) & (cols > peak_idx[:, None])
     nxt = np.argmax(crossed, axis=1)
-    lit = crossed.any(axis=1) & (peak > 3.0 * np.maximum(air, 1e-9))
-    # steepest descent of the outer flank near the half-level crossing: a blurred step keeps its
-    # steepest point where the step is, whatever the rim's height
+    lit = crossed.any(axis=1) & (peak > 3.0 * np.maximum(air, 1e-9)) & (peak > 1.5 * surface)
     slope = np.diff(prof, axis=1)  # slope[k] between samples k and k+1
     near = (cols[:, :-1] >= peak_idx[:, None]) & (np.abs(cols[:, :-1] - nxt[:, None]) <= 6)
     k = np.argmin(np.where(near, slope, np.inf), axis=1)
+    return np.where(lit, _vertex(slope, k, radii), np.nan)
+
+
+def _vertex(slope: np.ndarray, k: np.ndarray, radii: np.ndarray) -> np.ndarray:
+    """Radius of the parabolic vertex of ``slope`` around column ``k`` of each row."""
+    rows = np.arange(len(slope))
     k = np.clip(k, 1, slope.shape[1] - 2)
     s0, s1, s2 = slope[rows, k - 1], slope[rows, k], slope[rows, k + 1]
     denom = s0 - 2.0 * s1 + s2
     offset = np.clip(np.where(denom != 0, 0.5 * (s0 - s2) / np.where(denom != 0, denom, 1.0), 0.0),
                      -0.5, 0.5)
     step = radii[1] - radii[0]
-    return np.where(lit, radii[k] + (0.5 + offset) * step, np.nan)
+    return radii[k] + (0.5 + offset) * step
 
 
-def _texture_crossings(
-    texture: np.ndarray, radii: np.ndarray, r: float, half_width: float
-) -> np.ndarray:
-    """Radius where each row's texture first rises half-way to the air level (NaN: none)."""
-    inner = radii <= r - half_width - 1.0
+def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: float,
+                    half_width: float) -> np.ndarray:
+    """Half-level crossing of the step from the ball's surface to the background between the
+    particles on each ray of the smoothed samples ``prof`` (NaN where that step is not clear).
+
+    The step is clear where the surface (the median just inside the band) stands above the
+    background (a low percentile of the air just outside the band, between particle images,
+    pooled over neighbouring rays) by ``STEP_SNR`` times the noise of the smoothed surface (the
+    raw samples' noise over ``2 sqrt(pi)`` for the 1 px Gaussian: derived for white noise). The
+    edge is where the profile falls, past the edge's brightest point (the surface or a partly
+    lit rim on it), to half-way between that point and the background. A particle image
+    touching the outline delays the crossing (the robust fit drops such rays).
+    """
+    inner = (radii >= r - half_width - 5.0) & (radii <= r - half_width)
     outer = radii >= r + half_width + 1.0
-    t_in = np.median(texture[:, inner], axis=1)
-    t_out = np.median(texture[:, outer], axis=1)
-    level = 0.5 * (t_in + t_out)
-    band = (radii >= r - half_width - 1.0) & (radii <= r + half_width + 1.0)
-    crossed = (texture >= level[:, None]) & band[None, :]
-    found = crossed.any(axis=1) & (t_out > 3.0 * t_in)
+    surface = np.median(prof[:, inner], axis=1)
+    background = ndimage.median_filter(np.percentile(prof[:, outer], 10, axis=1), 9, mode="wrap")
+    spread = raw[:, inner] - np.median(raw[:, inner], axis=1)[:, None]
+    noise = 1.4826 * float(np.median(np.abs(spread))) / (2.0 * math.sqrt(math.pi))
+    clear = surface - background > STEP_SNR * max(noise, 1e-6)
+    # the edge's brightest part: the surface, or a partly lit rim on it
+    edge_band = (radii >= r - half_width) & (radii <= r + 0.25 * half_width)
+    peak_idx = np.argmax(np.where(edge_band, prof, -np.inf), axis=1)
+    rows = np.arange(len(prof))
+    level = 0.5 * (prof[rows, peak_idx] + background)
+    cols = np.arange(len(radii))[None, :]
+    crossed = (prof <= level[:, None]) & (cols > peak_idx[:, None])
+    crossed &= (radii <= r + half_width + 1.0)[None, :]
+    found = crossed.any(axis=1) & clear
     nxt = np.maximum(np.argmax(crossed, axis=1), 1)
-    rows = np.arange(len(texture))
-    p0, p1 = texture[rows, nxt - 1], texture[rows, nxt]
+    p0, p1 = prof[rows, nxt - 1], prof[rows, nxt]
     frac = np.clip((level - p0) / np.where(p1 != p0, p1 - p0, 1.0), 0.0, 1.0)
     return np.where(found, radii[nxt - 1] + frac * (radii[1] - radii[0]), np.nan)
 
 
-def _robust_circle(points: np.ndarray, name: str) -> tuple[float, float, float, float]:
-    """RANSAC circle through outline points, then least squares on its inliers."""
+@dataclass
+class _Circle:
+    center: tuple[float, float]
+    radius: float
+    covariance: np.ndarray  # (3, 3): x, y, r (px^2)
+    residual: float
+    arc_share: float
+
+
+def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str) -> _Circle:
+    """RANSAC circle through outline points, then a Cauchy-loss fit, with its covariance.
+
+    ``theta`` are the points' ray angles (for the residuals' correlation along the outline),
+    ``seen`` the share of rays that could give a point (inside the picture, clear of glare).
+    """
     rng = np.random.default_rng(12345)  # fixed: the same frame always gives the same fit
     model, inliers = ransac(
         points, CircleModel, min_samples=3, residual_threshold=1.0, max_trials=200, rng=rng
@@ -334,7 +522,133 @@ def _robust_circle(points: np.ndarray, name: str) -> tuple[float, float, float, 
     dist = np.hypot(px - cx, py - cy) - r
     near = np.abs(dist) < 1.0
     residual = float(np.sqrt(np.mean(dist[near] ** 2))) if near.any() else float("nan")
-    return cx, cy, r, residual
+    keep = np.abs(dist) < max(3.0 * 1.4826 * float(np.median(np.abs(dist))), 0.3)
+    cov = _circle_covariance(px[keep], py[keep], cx, cy, dist[keep], theta[keep])
+    arc = _arc_share(theta[keep], seen)
+    return _Circle((cx, cy), r, cov, residual, arc)
+
+
+def _arc_share(theta: np.ndarray, seen: float) -> float:
+    """Share of the whole outline covered by points (5 deg sectors holding one), at most ``seen``."""
+    sectors = np.unique(np.floor(np.mod(theta, 2 * math.pi) / math.radians(5.0)).astype(int))
+    return float(min(seen, sectors.size / 72.0))
+
+
+def _circle_covariance(px, py, cx, cy, dist, theta) -> np.ndarray:
+    """Covariance (px^2) of (x, y, r) from the kept points' residuals.
+
+    Neighbouring rays see overlapping pixels, so their errors are correlated: the variance is
+    scaled by ``1 + 2 sum rho_k`` over the residuals' positive autocorrelations along the
+    outline (the number of points per independent one).
+    """
+    rho = np.hypot(px - cx, py - cy)
+    jac = np.column_stack([(cx - px) / rho, (cy - py) / rho, -np.ones_like(rho)])
+    dof = max(1, len(dist) - 3)
+    s2 = float(np.sum(dist * dist)) / dof
+    order = np.argsort(theta)
+    e = dist[order] - dist.mean()
+    denom = float(np.dot(e, e))
+    inflation = 1.0
+    if denom > 0:
+        for lag in range(1, min(20, len(e) // 4)):
+            c = float(np.dot(e[:-lag], e[lag:])) / denom
+            if c <= 0:
+                break
+            inflation += 2.0 * c
+    try:
+        return s2 * inflation * np.linalg.inv(jac.T @ jac)
+    except np.linalg.LinAlgError:
+        return np.full((3, 3), np.inf)
+
+
+# --- the particle-free disc ------------------------------------------------------------------
+
+
+def _particle_centres(crop: np.ndarray, quiet: np.ndarray, glare: np.ndarray):
+    """Sub-pixel centres (x, y) of particle images: local maxima standing clear above their
+    surroundings on all sides but one (an edge or a rim line does not), by more than six times
+    the smoothed noise inside the ball (``quiet``: pixels known to hold no particle; its median
+    absolute deviation, which a seam or a shaded surface hardly moves)."""
+    smooth = ndimage.gaussian_filter(crop, 0.6)
+    quiet = quiet & ~glare
+    sample = smooth[quiet] if np.count_nonzero(quiet) > 50 else smooth.ravel()
+    noise = 1.4826 * float(np.median(np.abs(sample - np.median(sample))))
+    peak = smooth == ndimage.maximum_filter(smooth, 3)
+    peak[:3] = peak[-3:] = False
+    peak[:, :3] = peak[:, -3:] = False
+    peak &= ~glare
+    ys, xs = np.nonzero(peak)
+    offsets = ((3, 0), (-3, 0), (0, 3), (0, -3), (2, 2), (2, -2), (-2, 2), (-2, -2))
+    ring = np.stack([smooth[ys + dy, xs + dx] for dy, dx in offsets], axis=1)
+    ring.sort(axis=1)
+    keep = smooth[ys, xs] - ring[:, -2] > 6.0 * max(noise, 1e-6)
+    ys, xs = ys[keep], xs[keep]
+    c = smooth[ys, xs]
+    ox = _parabola(smooth[ys, xs - 1], c, smooth[ys, xs + 1])
+    oy = _parabola(smooth[ys - 1, xs], c, smooth[ys + 1, xs])
+    return xs + ox, ys + oy
+
+
+def _parabola(left, centre, right):
+    denom = left + right - 2.0 * centre
+    return np.clip(np.where(denom < 0, 0.5 * (left - right) / np.where(denom < 0, denom, -1.0), 0.0),
+                   -0.5, 0.5)
+
+
+def _hole_circle(crop, glare, cx, cy, r, inner_px, name) -> _Circle:
+    """The circle holding ``HOLE_SHARE`` of the particle images near it (quantile regression).
+
+    Particle centres are spread evenly outside the ball and absent inside, so around the true
+    circle their distance from the centre has its ``HOLE_SHARE`` quantile ``q`` at
+    ``R + HOLE_SHARE (R_out - R)`` over a band reaching ``R_out`` (derived): the fit solves for
+    that quantile (a linear programme) and steps back by the offset.
+    """
+    yy, xx = np.ogrid[0 : crop.shape[0], 0 : crop.shape[1]]
+    quiet = (xx - cx) ** 2 + (yy - cy) ** 2 < max(r - inner_px - 3.0, 0.3 * r) ** 2
+    px, py = _particle_centres(crop, quiet, glare)
+    rho = np.hypot(px - cx, py - cy)
+    # the band outside holds about HOLE_POINTS particle images (wider on sparse seeding)
+    probe = (rho > r + inner_px) & (rho < r + inner_px + 12.0)
+    density = probe.sum() / (2.0 * math.pi * (r + inner_px + 6.0) * 12.0)
+    outer = float(np.clip(HOLE_POINTS / max(density * 2.0 * math.pi * r, 1e-9), 6.0, 40.0))
+    sel = (rho > r - inner_px) & (rho < r + inner_px + outer)
+    if sel.sum() < 20:
+        raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
+    px, py = px[sel], py[sel]
+    if px.size > 4 * HOLE_POINTS:  # an even thinning leaves the quantile where it is
+        pick = np.random.default_rng(12345).choice(px.size, 4 * HOLE_POINTS, replace=False)
+        px, py = px[pick], py[pick]
+    rho = np.hypot(px - cx, py - cy)
+    ux, uy = (px - cx) / rho, (py - cy) / rho
+    n = rho.size
+    tau = HOLE_SHARE
+    # rho_i = R + ux dx + uy dy + e_i,  e = over - under;  minimise tau*over + (1 - tau)*under
+    eye = sparse.identity(n, format="csr")
+    a_eq = sparse.hstack([sparse.csr_matrix(np.column_stack([ux, uy, np.ones(n)])), eye, -eye])
+    cost = np.concatenate([[0.0, 0.0, 0.0], np.full(n, tau), np.full(n, 1.0 - tau)])
+    bounds = [(None, None)] * 3 + [(0, None)] * (2 * n)
+    res = linprog(cost, A_eq=a_eq, b_eq=rho, bounds=bounds, method="highs")
+    if not res.success:
+        raise WakelineError(f"{name}: no ball found (the particle-free disc could not be fitted)")
+    dx, dy, q = res.x[:3]
+    reach = r + inner_px + outer
+    radius = (q - tau * reach) / (1.0 - tau)
+    # covariance of a quantile regression: tau (1 - tau) / f^2 (X'X)^-1, f = 1 / (band beyond
+    # the circle) the density of the even spread at the quantile (asymptotic; doubled for the
+    # extreme quantile's skew)
+    design = np.column_stack([ux, uy, np.ones(n)])
+    f = 1.0 / max(reach - radius, 1.0)
+    try:
+        cov = 2.0 * tau * (1.0 - tau) / (f * f) * np.linalg.inv(design.T @ design)
+    except np.linalg.LinAlgError:
+        cov = np.full((3, 3), np.inf)
+    # report x, y, r: the intercept is q, whose variance carries to r scaled by 1 / (1 - tau)
+    cov[2, :] /= 1.0 - tau
+    cov[:, 2] /= 1.0 - tau
+    theta = np.arctan2(py - cy, px - cx)
+    near = np.abs(rho - ux * dx - uy * dy - radius) < 3.0
+    return _Circle((cx + dx, cy + dy), float(radius), cov, float("nan"),
+                   _arc_share(theta[near], 1.0))
 
 
 def refine_displacement(

@@ -50,6 +50,13 @@ class BallFit:
     radius_px: float
     residual_px: float = float("nan")  # RMS distance of edge points from the circle
     cut_by_edge: bool = False
+    # standard uncertainties (px) of the centre's x and y and of the radius, and the covariance
+    # of (x, y, r) in px^2 (None: not known, e.g. a session stored before they were kept)
+    center_sigma_px: tuple[float, float] = (float("nan"), float("nan"))
+    radius_sigma_px: float = float("nan")
+    covariance_px2: tuple[tuple[float, float, float], ...] | None = None
+    arc_share: float = float("nan")  # share of the whole outline that carried the fit (0..1)
+    outline: str = ""  # what gave the outline: "lit rim", "surface edge" or "particle images"
 
 
 @dataclass

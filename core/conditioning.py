@@ -1,0 +1,174 @@
+"""Image conditioning before correlation: glare masked, a background removed, intensity evened.
+
+PIV practice conditions the particle images before correlating them (common practice):
+
+- **glare**: pixels at the camera's saturation level over an area larger than any particle
+  image (a glint on the ball, a reflection off the launcher) carry no particle pattern; they
+  are masked with a margin for their halo. Particle images that merely touch saturation are
+  small and stay;
+- **background**: light that does not move with the air (fixed reflections, a lit wall, the
+  camera's offset) is taken away by subtracting a background image, the per-pixel minimum or
+  median of several frames taken at the same camera position (the ball and the particles move
+  between them, the reflections do not);
+- **local normalisation**: the sheet is brighter in some parts of the picture than in others,
+  and a correlation window is dominated by its brightest particles; subtracting a local minimum
+  and dividing by the local range (max - min) over a window of a few particle spacings evens the
+  particle images' contrast across the picture (the min-max filter).
+
+All functions take and return ``(H, W)`` arrays in counts (normalised frames: 0..1).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+import numpy as np
+from scipy import ndimage
+
+from core import WakelineError
+
+#: Saturated regions smaller than this (px) are particle images touching saturation, not glare:
+#: a particle image of e^-2 diameter 5 px four times brighter than full scale saturates over
+#: about 14 px (derived from its Gaussian profile).
+MIN_GLARE_AREA_PX = 24
+#: Share of the frame's maximum from which a pixel counts as saturated.
+SATURATED_SHARE = 0.98
+#: The glare's halo: each region is grown by this share of its equivalent radius (at least 3 px).
+GLARE_HALO_SHARE = 1.0
+#: Local normalisation window (px) as a multiple of the mean particle spacing.
+NORMALISE_SPACINGS = 3.0
+
+
+def glare_mask(frame: np.ndarray, *, level: float | None = None,
+               min_area_px: int = MIN_GLARE_AREA_PX) -> np.ndarray:
+    """Glare: saturated regions larger than a particle image, grown by their halo, ``(H, W)`` bool.
+
+    Parameters
+    ----------
+    frame : (H, W) ndarray
+        One frame (counts).
+    level : float, optional
+        The camera's saturation level (counts); default the frame's maximum (a frame without
+        glare then has no saturated region of glare size either).
+    min_area_px : int
+        Smallest saturated area (px) taken for glare.
+    """
+    image = np.asarray(frame)
+    top = float(image.max()) if level is None else float(level)
+    mask = np.zeros(image.shape, dtype=bool)
+    if not top > 0:
+        return mask
+    saturated = image >= SATURATED_SHARE * top
+    if np.count_nonzero(saturated) < min_area_px:
+        return mask
+    labels, count = ndimage.label(saturated)
+    areas = np.bincount(labels.ravel(), minlength=count + 1)
+    # a loop over the few glare regions (not over pixels): each is grown by its own halo
+    for index, region in enumerate(ndimage.find_objects(labels), start=1):
+        if areas[index] < min_area_px:
+            continue
+        grow = max(3, math.ceil(GLARE_HALO_SHARE * math.sqrt(areas[index] / math.pi)))
+        y0, x0 = max(0, region[0].start - grow), max(0, region[1].start - grow)
+        y1 = min(image.shape[0], region[0].stop + grow)
+        x1 = min(image.shape[1], region[1].stop + grow)
+        blob = labels[y0:y1, x0:x1] == index
+        reach = ndimage.distance_transform_edt(~blob) <= grow
+        mask[y0:y1, x0:x1] |= reach
+    return mask
+
+
+def background_image(frames: Sequence[np.ndarray] | np.ndarray, method: str = "min") -> np.ndarray:
+    """Background of a camera position: the per-pixel minimum or median over several frames.
+
+    The minimum keeps only light present in every frame (fixed reflections, the camera offset);
+    the median also ignores a few frames with a stray object in them but keeps some particle
+    light when the seeding is dense. Frames of shots at the same camera position, where the ball
+    is elsewhere in the picture, give the cleanest background.
+
+    Parameters
+    ----------
+    frames : sequence of (H, W) ndarray, or (N, H, W) ndarray
+        At least two frames of the same shape.
+    method : "min" or "median"
+
+    Returns
+    -------
+    (H, W) ndarray of float32
+    """
+    stack = [np.asarray(f, dtype=np.float32) for f in frames]
+    if len(stack) < 2:
+        raise WakelineError("background: needs at least two frames")
+    if any(f.shape != stack[0].shape or f.ndim != 2 for f in stack):
+        raise WakelineError("background: the frames differ in shape")
+    if method == "min":
+        out = stack[0].copy()
+        for f in stack[1:]:
+            np.minimum(out, f, out=out)
+        return out
+    if method == "median":
+        return np.median(np.stack(stack), axis=0).astype(np.float32)
+    raise WakelineError(f"background: unknown method {method!r} (use min or median)")
+
+
+def subtract_background(frame: np.ndarray, background: np.ndarray, name: str = "frame") -> np.ndarray:
+    """``frame - background`` clipped at zero, float32."""
+    frame = np.asarray(frame, dtype=np.float32)
+    background = np.asarray(background, dtype=np.float32)
+    if background.shape != frame.shape:
+        raise WakelineError(
+            f"{name}: background image is {background.shape[1]}x{background.shape[0]}, "
+            f"the frame {frame.shape[1]}x{frame.shape[0]}"
+        )
+    return np.clip(frame - background, 0.0, None)
+
+
+def particle_spacing_px(frame: np.ndarray) -> float:
+    """Mean distance (px) between particle images: ``1 / sqrt(density)``, the density counted
+    as local maxima standing well above the camera noise (a rough figure for window sizes)."""
+    image = np.asarray(frame, dtype=np.float32)
+    step = max(1, int(math.sqrt(image.size / 262144)))  # count on at most ~0.26 Mpx
+    sample = image[: image.shape[0] // step * step : step, :] if step > 1 else image
+    sample = sample[:, : sample.shape[1]]
+    smooth = ndimage.gaussian_filter(sample, 0.7)
+    noise = 1.4826 * float(np.median(np.abs(sample - np.median(sample))))
+    floor = ndimage.minimum_filter(smooth, 5)
+    peaks = (smooth == ndimage.maximum_filter(smooth, 3)) & (smooth - floor > 3.0 * max(noise, 1.0))
+    density = np.count_nonzero(peaks) / (sample.size * step)
+    return 1.0 / math.sqrt(max(density, 1e-4))
+
+
+def normalise_local(frame: np.ndarray, window_px: float, mask: np.ndarray | None = None,
+                    floor_share: float = 0.1) -> np.ndarray:
+    """Min-max normalisation: ``(I - local min) / (local max - local min)`` over ``window_px``.
+
+    The local minimum and maximum are taken over a square of ``window_px`` and smoothed over
+    half that (so the normalisation does not follow single particle images). Where the local
+    range is below ``floor_share`` of its median over the frame (unseeded air, a shadow, the
+    ball) the range is held at that floor, so camera noise is not blown up to particle contrast.
+    Masked pixels (glare) are set to 0 in the result.
+
+    Parameters
+    ----------
+    frame : (H, W) ndarray
+        Counts.
+    window_px : float
+        Window side (px), a few particle spacings (:func:`particle_spacing_px`).
+    mask : (H, W) bool ndarray, optional
+        Pixels to leave out (glare): they neither set the local range nor keep their light.
+
+    Returns
+    -------
+    (H, W) ndarray of float32, mostly in 0..1.
+    """
+    image = np.asarray(frame, dtype=np.float32)
+    size = max(3, int(round(window_px)) | 1)
+    source = image if mask is None or not mask.any() else np.where(mask, np.median(image), image)
+    low = ndimage.uniform_filter(ndimage.minimum_filter(source, size), size // 2 + 1)
+    high = ndimage.uniform_filter(ndimage.maximum_filter(source, size), size // 2 + 1)
+    span = high - low
+    floor = floor_share * float(np.median(span))
+    out = (image - low) / np.maximum(span, max(floor, 1e-6))
+    if mask is not None:
+        out[mask] = 0.0
+    return np.clip(out, 0.0, None, out=out)
