@@ -77,6 +77,17 @@ HOLE_SHARE = 0.02
 HOLE_POINTS = 250
 #: Half-widths (px) of the fine search bands after the particle-free disc.
 FINE_BANDS_PX = (5.0, 3.0)
+#: Depth (px) of the lit rim inside the outline: it moves with the centre but does not turn.
+RIM_DEPTH_PX = 5.0
+#: How far (px) particle images centred outside the outline reach into it (the e^-2 radius
+#: of a 4 px image, and the circle's error).
+SPILL_PX = 2.5
+#: Prior standard deviation of the ball's in-plane turn between the frames (rad).
+TURN_PRIOR_RAD = math.radians(2.0)
+#: Correlation of the ball's pixels between the frames below which they hold no pattern.
+MIN_MATCH_NCC = 0.1
+#: Ball pixels matched between the frames at most (those with the steepest gradients).
+MATCH_PIXELS = 20000
 #: Fit-quality limits behind the "poor fit" warning.
 POOR_ARC_SHARE = 0.35
 POOR_CENTRE_SIGMA_PX = 0.5
@@ -157,10 +168,15 @@ def find_ball(
 # --- coarse: a round region without particle images -----------------------------------------
 
 
+_DISC2 = np.hypot(*np.mgrid[-2:3, -2:3]) <= 2.0
+
+
 def _bin2(image: np.ndarray) -> np.ndarray:
     """Means of 2 x 2 pixels, ``(H // 2, W // 2)``."""
     h, w = (s // 2 * 2 for s in image.shape)
-    return image[:h, :w].reshape(h // 2, 2, w // 2, 2).mean(axis=(1, 3))
+    # strided sums: several times faster than a mean over the axes of a 4-D view
+    return 0.25 * (image[0:h:2, 0:w:2] + image[1:h:2, 0:w:2] + image[0:h:2, 1:w:2]
+                   + image[1:h:2, 1:w:2])
 
 
 def _block_variance(image: np.ndarray, factor: int) -> np.ndarray:
@@ -193,7 +209,10 @@ def _coarse_circle(
     radii, edges = None, None
     for level in (texture - reference, texture):
         quiet = level < threshold_otsu(level)
-        quiet = ndimage.binary_opening(quiet)  # single quiet blocks between sparse particles
+        # single quiet blocks between sparse particles are no ball; a seam's textured band
+        # across the ball (its line and stitches) does not split it
+        quiet = ndimage.binary_opening(quiet)
+        quiet = ndimage.binary_closing(quiet, _DISC2, border_value=1)
         edges = _quiet_edges(quiet, level)
         if edges is None:
             continue
@@ -207,8 +226,10 @@ def _coarse_circle(
         hint = "" if radius_hint_px is None else f" near radius {radius_hint_px:.0f} px"
         raise WakelineError(f"{name}: no ball found (no round region without particle images{hint})")
     xc, yc, rc = best
-    # the quiet region's edge lies about half a block inside the rim or the first particles
-    return (xc + 0.5) * factor - 0.5, (yc + 0.5) * factor - 0.5, (rc + 0.5) * factor, factor
+    # the variance summed over 5 x 5 blocks is high wherever the sum reaches the air, so the
+    # quiet region's edge lies about two blocks inside the outline (2.4 blocks measured on
+    # synthetic balls of 30-300 px)
+    return (xc + 0.5) * factor - 0.5, (yc + 0.5) * factor - 0.5, (rc + 2.5) * factor, factor
 
 
 def _quiet_edges(quiet: np.ndarray, level: np.ndarray):
@@ -261,34 +282,64 @@ def _hough_best(ex, ey, nx, ny, radii, quiet):
         rho = np.hypot(rx, ry)
         facing = (rx * nx + ry * ny) > 0.8 * rho
         hist = np.bincount(np.rint(rho[facing]).astype(np.int64), minlength=int(radii[-1]) + 3)
-        hist = ndimage.gaussian_filter1d(hist.astype(np.float64), 1.0) * math.sqrt(2 * math.pi)
+        hist = ndimage.gaussian_filter1d(hist.astype(np.float64), 1.0)
         span = np.arange(hist.size, dtype=np.float64)
-        support = np.where((span >= radii[0]) & (span <= radii[-1]),
-                           hist / (2.0 * math.pi * np.maximum(span, 1.0)), 0.0)
-        r = float(np.argmax(support))
-        if r <= 0:
+        inside = (span >= radii[0]) & (span <= radii[-1])
+        r = float(np.argmax(np.where(inside, hist / np.maximum(span, 1.0), 0.0)))
+        circle = _refined(ex, ey, nx, ny, float(i), float(j), r)
+        if circle is None:
             continue
-        fill, air, seen = _disc_and_ring(quiet, float(i), float(j), r)
-        support_seen = support[int(r)] / max(seen, 0.25)
+        support = circle[3]
+        fill, air, seen = _disc_and_ring(quiet, *circle[:3])
+        support /= max(seen, 0.25)
         # the air around a ball is textured on at least the lit part of its outline
-        if fill < 0.7 or air < 0.25 or support_seen < 0.2:
+        if fill < 0.7 or air < 0.25 or support < 0.2:
             continue
-        score = support_seen * fill * fill
+        # inside quiet, outside textured, a round edge between them; a larger circle's support
+        # is the rarer by chance (more edge points agree)
+        score = support * fill * fill * air * air * math.sqrt(circle[2])
         if score > best_score:
-            best, best_score = (float(i), float(j), r), score
-    if best is None:
-        return None
-    # sub-block circle through the edge points near the winner whose normals point outward
-    i, j, r = best
+            best, best_score = circle[:3], score
+    return best
+
+
+def _refined(ex, ey, nx, ny, i, j, r):
+    """Circle (blocks) through the edge points near ``(i, j, r)`` whose normals point away
+    from its centre (RANSAC, then least squares), with the share of its outline they cover
+    (64 sectors); None with fewer than 8 such points."""
     rx, ry = ex - i, ey - j
     rho = np.hypot(rx, ry)
-    near = (np.abs(rho - r) < 2.0) & ((rx * nx + ry * ny) > 0.6 * rho)
-    if near.sum() >= 8:
-        model = CircleModel.from_estimate(np.column_stack([ex[near], ey[near]]).astype(float))
-        if (model and abs(model.radius - r) < 2.0
-                and math.hypot(model.center[0] - i, model.center[1] - j) < 2.0):
-            return float(model.center[0]), float(model.center[1]), float(model.radius)
-    return best
+    near = (np.abs(rho - r) < 3.0) & ((rx * nx + ry * ny) > 0.6 * rho)
+    if near.sum() < 8:
+        return None
+    points = np.column_stack([ex[near], ey[near]]).astype(float)
+    model, inliers = _ransac_circle(points, 1.0)
+    if model is None or inliers.sum() < 8:
+        return None
+    (ci, cj), cr = model.center, model.radius
+    if abs(cr - r) > 3.0 or math.hypot(ci - i, cj - j) > 3.0 or cr <= 0:
+        return None
+    theta = np.arctan2(points[inliers, 1] - cj, points[inliers, 0] - ci)
+    sectors = np.unique(np.floor((theta + math.pi) / (2 * math.pi) * 64).astype(int) % 64)
+    return float(ci), float(cj), float(cr), sectors.size / 64.0
+
+
+def _ransac_circle(points: np.ndarray, threshold: float, is_model_valid=None):
+    """RANSAC circle (skimage) with a fixed seed: the same frame always gives the same fit.
+    Returns ``(model, inliers)`` or ``(None, None)``."""
+    import warnings
+
+    with warnings.catch_warnings():
+        # skimage warns when no sample passes ``is_model_valid``; that is a plain "no circle"
+        warnings.simplefilter("ignore", UserWarning)
+        model, inliers = ransac(
+            points, CircleModel, min_samples=3, residual_threshold=threshold, max_trials=200,
+            stop_probability=0.999, rng=np.random.default_rng(12345),
+            is_model_valid=is_model_valid,
+        )
+    if model is None or inliers is None:
+        return None, None
+    return model, inliers
 
 
 def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[float, float, float]:
@@ -323,14 +374,17 @@ class _Rays:
     usable: np.ndarray  # (K,) bool: inside the picture, clear of glare
 
 
-def _sample_rays(crop, smooth, glare, cx, cy, r, half_width) -> _Rays:
+def _sample_rays(coeff, smooth, glare, cx, cy, r, half_width) -> _Rays:
+    """Rays of the crop around the ball: ``coeff`` its cubic B-spline coefficients (a cubic
+    spline keeps the rim's flank sharper than bilinear interpolation, whose slope is constant
+    between pixel centres), ``smooth`` its 1 px Gaussian smoothing."""
     n_rays = int(np.clip(2.0 * math.pi * r / 1.5, 90, 2880))
     theta = np.linspace(0.0, 2.0 * math.pi, n_rays, endpoint=False)
     step = 0.25
     radii = np.arange(r - half_width - 6.0, r + half_width + 8.0 + step / 2, step)
     xs = cx + np.cos(theta)[:, None] * radii
     ys = cy + np.sin(theta)[:, None] * radii
-    height, width = crop.shape
+    height, width = smooth.shape
     inside = (xs >= 0) & (ys >= 0) & (xs <= width - 1) & (ys <= height - 1)
     # rays whose band (or the 3 neighbours each side) leaves the picture or touches glare
     usable = inside.all(axis=1)
@@ -338,7 +392,7 @@ def _sample_rays(crop, smooth, glare, cx, cy, r, half_width) -> _Rays:
         hit = ndimage.map_coordinates(glare.astype(np.float32), [ys, xs], order=0, mode="nearest")
         usable &= ~(hit > 0).any(axis=1)
     usable = ndimage.minimum_filter1d(usable.astype(np.uint8), 7, mode="wrap") > 0
-    raw = ndimage.map_coordinates(crop, [ys, xs], order=3, mode="nearest")
+    raw = ndimage.map_coordinates(coeff, [ys, xs], order=3, mode="nearest", prefilter=False)
     smoothed = ndimage.map_coordinates(smooth, [ys, xs], order=1, mode="nearest")
     return _Rays(theta, radii, raw, smoothed, usable)
 
@@ -346,40 +400,33 @@ def _sample_rays(crop, smooth, glare, cx, cy, r, half_width) -> _Rays:
 def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
     """Particle-free disc, then the rim or surface step on narrower bands (see module doc)."""
     height, width = image.shape
-    first = max(8.0, 0.12 * r, 2.0 * block)
+    first = max(10.0, 0.15 * r, 3.0 * block)
     reach = r + first + 48.0
     x0, y0 = max(0, int(cx - reach)), max(0, int(cy - reach))
     x1, y1 = min(width, int(cx + reach) + 2), min(height, int(cy + reach) + 2)
     if x1 - x0 < 8 or y1 - y0 < 8:
         raise WakelineError(f"{name}: no ball found (the circle lies outside the picture)")
-    crop = np.asarray(image[y0:y1, x0:x1], dtype=np.float64)
+    crop = np.asarray(image[y0:y1, x0:x1], dtype=np.float32)
     glare = glare_mask(crop, level=level)
     cx, cy = cx - x0, cy - y0
-    # 2. the particle-free disc
-    hole = _hole_circle(crop, glare, cx, cy, r, first, name)
-    cx, cy, r = hole.center[0], hole.center[1], hole.radius
-    # 3. the outline on narrower bands, from the best cue
     smooth = ndimage.gaussian_filter(crop, 1.0)
-    fit = hole
+    coeff = ndimage.spline_filter(crop, 3, mode="nearest")
+    # 2. the outline on narrowing bands from the best cue: the lit rim, the surface's step, or
+    # the particle-free disc (chosen again once the circle is close)
     cue = None
-    for half_width in FINE_BANDS_PX:
-        rays = _sample_rays(crop, smooth, glare, cx, cy, r, half_width)
-        if cue is None:
+    for index, half_width in enumerate((first, *FINE_BANDS_PX)):
+        rays = _sample_rays(coeff, smooth, glare, cx, cy, r, half_width)
+        if index < 2:
             cue = _choose_cue(rays, r, half_width)
         if cue == "particle images":
-            fit = _hole_circle(crop, glare, cx, cy, r, half_width + 1.0, name)
+            fit = _hole_circle(crop, glare, cx, cy, r, half_width + (index > 0), name)
         else:
             edges = _rim_crossings(rays.raw, rays.radii, r, half_width)
             if cue == "surface edge":  # the rim's flank where it is lit, else the step
                 lit = _coherent(np.isfinite(edges)) & np.isfinite(edges)
                 step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
                 edges = np.where(lit, edges, step)
-            ok = np.isfinite(edges) & rays.usable
-            th = rays.theta[ok]
-            points = np.column_stack([cx + edges[ok] * np.cos(th), cy + edges[ok] * np.sin(th)])
-            if len(points) < 12:
-                raise WakelineError(f"{name}: no ball found (too little of an outline is visible)")
-            fit = _robust_circle(points, th, np.count_nonzero(rays.usable) / rays.theta.size, name)
+            fit = _edge_circle(rays, edges, cx, cy, r, half_width, name)
         cx, cy, r = fit.center[0], fit.center[1], fit.radius
     cx, cy = cx + x0, cy + y0
     cut = cx - r < -0.5 or cy - r < -0.5 or cx + r > width - 0.5 or cy + r > height - 0.5
@@ -394,14 +441,29 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
     )
 
 
+def _edge_circle(rays: _Rays, edges: np.ndarray, cx: float, cy: float, r: float,
+                 half_width: float, name: str) -> _Circle:
+    """Robust circle through the outline points found on the usable rays."""
+    ok = np.isfinite(edges) & rays.usable
+    th = rays.theta[ok]
+    points = np.column_stack([cx + edges[ok] * np.cos(th), cy + edges[ok] * np.sin(th)])
+    if len(points) < 12:
+        raise WakelineError(f"{name}: no ball found (too little of an outline is visible)")
+    seen = np.count_nonzero(rays.usable) / rays.theta.size
+    return _robust_circle(points, th, seen, name, (cx, cy, r), half_width + 2.0)
+
+
+def _share(found: np.ndarray, usable: np.ndarray) -> float:
+    return np.count_nonzero(found & usable) / max(1, np.count_nonzero(usable))
+
+
 def _choose_cue(rays: _Rays, r: float, half_width: float) -> str:
     """The lit rim where enough of it is lit, else a clear surface step, else the particles."""
-    usable = max(1, np.count_nonzero(rays.usable))
     rim = _coherent(np.isfinite(_rim_crossings(rays.raw, rays.radii, r, half_width)))
-    if np.count_nonzero(rim & rays.usable) >= MIN_RIM_SHARE * usable:
+    if _share(rim, rays.usable) >= MIN_RIM_SHARE:
         return "lit rim"
-    step = _coherent(np.isfinite(_step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)))
-    if np.count_nonzero(step & rays.usable) >= MIN_RIM_SHARE * usable:
+    step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
+    if _share(_coherent(np.isfinite(step)), rays.usable) >= MIN_RIM_SHARE:
         return "surface edge"
     return "particle images"
 
@@ -496,27 +558,34 @@ class _Circle:
     arc_share: float
 
 
-def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str) -> _Circle:
+def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str,
+                   start: tuple[float, float, float], reach: float) -> _Circle:
     """RANSAC circle through outline points, then a Cauchy-loss fit, with its covariance.
 
     ``theta`` are the points' ray angles (for the residuals' correlation along the outline),
     ``seen`` the share of rays that could give a point (inside the picture, clear of glare).
+    Only circles within ``reach`` px of ``start`` (x, y, r) are considered: the points were
+    searched there, and a seam's arc inside the ball must not pass for the outline.
     """
-    rng = np.random.default_rng(12345)  # fixed: the same frame always gives the same fit
-    model, inliers = ransac(
-        points, CircleModel, min_samples=3, residual_threshold=1.0, max_trials=200, rng=rng
-    )
-    if model is None or inliers is None or inliers.sum() < 12:
+    def near_start(model, *_):
+        return (abs(model.radius - start[2]) <= reach
+                and math.hypot(model.center[0] - start[0], model.center[1] - start[1]) <= reach)
+
+    model, inliers = _ransac_circle(points, 1.0, near_start)
+    if model is None or inliers.sum() < 12:
         raise WakelineError(f"{name}: no ball found (the outline points do not form a circle)")
     final = CircleModel.from_estimate(points[inliers])
     if not final:
         raise WakelineError(f"{name}: no ball found (circle fit failed)")
     # the edge-point errors are skewed (a particle touching the outline pushes a point outward),
-    # so the last step is a Cauchy-loss fit on all points: it follows the densest points
-    start = np.array([final.center[0], final.center[1], final.radius])
+    # so the last step is a Cauchy-loss fit on the points near that circle: it follows the
+    # densest points
+    guess = np.array([final.center[0], final.center[1], final.radius])
+    near = np.abs(np.hypot(points[:, 0] - guess[0], points[:, 1] - guess[1]) - guess[2]) < 3.0
+    points, theta = points[near], theta[near]
     px, py = points[:, 0], points[:, 1]
     fit = least_squares(
-        lambda p: np.hypot(px - p[0], py - p[1]) - p[2], start, loss="cauchy", f_scale=0.3
+        lambda p: np.hypot(px - p[0], py - p[1]) - p[2], guess, loss="cauchy", f_scale=0.3
     )
     cx, cy, r = (float(v) for v in fit.x)
     dist = np.hypot(px - cx, py - cy) - r
@@ -615,8 +684,8 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name) -> _Circle:
     if sel.sum() < 20:
         raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
     px, py = px[sel], py[sel]
-    if px.size > 4 * HOLE_POINTS:  # an even thinning leaves the quantile where it is
-        pick = np.random.default_rng(12345).choice(px.size, 4 * HOLE_POINTS, replace=False)
+    if px.size > 2 * HOLE_POINTS:  # an even thinning leaves the quantile where it is
+        pick = np.random.default_rng(12345).choice(px.size, 2 * HOLE_POINTS, replace=False)
         px, py = px[pick], py[pick]
     rho = np.hypot(px - cx, py - cy)
     ux, uy = (px - cx) / rho, (py - cy) / rho
@@ -651,44 +720,209 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name) -> _Circle:
                    _arc_share(theta[near], 1.0))
 
 
+@dataclass
+class BallMatch:
+    """The ball's own image matched between the frames (see :func:`match_ball_image`)."""
+
+    displacement_px: tuple[float, float]  # A -> B
+    covariance_px2: np.ndarray  # (2, 2) of the displacement
+    rotation_deg: float  # in-plane turn A -> B (spin about the line of sight), ccw on screen
+    pixels: int  # ball pixels matched
+
+
+def match_ball_image(
+    frame_a: np.ndarray, frame_b: np.ndarray, ball_a: BallFit, ball_b: BallFit, *,
+    glare_a: np.ndarray | None = None, glare_b: np.ndarray | None = None,
+) -> BallMatch | None:
+    """Ball displacement A->B by matching the ball's whole visible image between the frames.
+
+    Everything inside the outline moves with the ball: the lit rim, the seam and its stitches,
+    the surface's shading. Frame A's ball pixels (inside the outline by a pixel, glare left
+    out; without a lit rim also clear of the particle images spilling over the outline) are
+    matched to frame B under a shift, an in-plane turn of the surface about the
+    ball's centre (the ball spins between the frames; the lit rim, fixed to the light, does not
+    turn) and an offset, by Gauss-Newton least squares on a cubic-spline image of B started
+    from the difference of the two circles. The two laser pulses differ in energy: B is first
+    scaled by the ratio of the balls' own brightness spreads (99th - 50th percentile inside
+    each circle), since a gain fitted with the shift trades against it (a brighter rim on the
+    lit side looks like a shift toward it). The displacement's covariance is the Gauss-Newton
+    one, ``s^2 (J'J)^-1`` from the residuals, scaled for their correlation between neighbours.
+
+    Returns None when too few pixels are visible or the match does not converge.
+    """
+    cx, cy, r = ball_a.center_px[0], ball_a.center_px[1], ball_a.radius_px
+    start = (ball_b.center_px[0] - cx, ball_b.center_px[1] - cy)
+    crop_a, (x0, y0) = _ball_crop(frame_a, ball_a.center_px, r + 2)
+    pad = 4 + int(abs(start[0]) + abs(start[1])) // 8  # room for the search in B
+    crop_b, (bx0, by0) = _ball_crop(frame_b, (cx + start[0], cy + start[1]), r + pad)
+    # particle images just outside the outline spill over it and move with the air: a lit rim
+    # outshines them, elsewhere the match keeps clear of them
+    inset = 0.5 if ball_a.outline == ball_b.outline == "lit rim" else SPILL_PX
+    region = _disc(crop_a.shape, cx - x0, cy - y0, r - inset)
+    if glare_a is not None:
+        region &= ~glare_a[y0 : y0 + crop_a.shape[0], x0 : x0 + crop_a.shape[1]]
+    if region.sum() < 50 or min(crop_b.shape) < 8:
+        return None
+    region_b = _disc(crop_b.shape, ball_b.center_px[0] - bx0, ball_b.center_px[1] - by0, r - inset)
+    spread_a = np.subtract(*np.percentile(crop_a[region], [99, 50]))
+    spread_b = np.subtract(*np.percentile(crop_b[region_b], [99, 50])) if region_b.any() else 0.0
+    gain = float(np.clip(spread_b / spread_a, 0.5, 2.0)) if spread_a > 0 and spread_b > 0 else 1.0
+    crop_b = crop_b / gain
+    ys, xs = np.nonzero(region)
+    if ys.size > MATCH_PIXELS:
+        # a large ball: the pixels with the steepest gradients carry the match (the
+        # Gauss-Newton information grows with the gradient squared); the rest is mostly noise
+        gy_s, gx_s = np.gradient(ndimage.gaussian_filter(crop_a, 1.0))
+        power = (gx_s * gx_s + gy_s * gy_s)[ys, xs]
+        keep = np.sort(np.argpartition(power, -MATCH_PIXELS)[-MATCH_PIXELS:])
+        ys, xs = ys[keep], xs[keep]
+    template = crop_a[ys, xs]
+    gy_a, gx_a = np.gradient(crop_a)
+    grad_a = gx_a[ys, xs], gy_a[ys, xs]
+    xs, ys = xs + x0 - cx, ys + y0 - cy  # about the centre in A
+    # the surface turns with the ball's spin; the lit rim is where the sheet grazes the ball,
+    # fixed to the light, so it only moves with the centre
+    turns = np.hypot(xs, ys) < r - RIM_DEPTH_PX
+    tx, ty = np.where(turns, xs, 0.0), np.where(turns, ys, 0.0)
+    coeff = ndimage.spline_filter(crop_b, 3)
+    blocked = None if glare_b is None else glare_b[by0 : by0 + crop_b.shape[0],
+                                                   bx0 : bx0 + crop_b.shape[1]]
+    p = np.array([start[0], start[1], 0.0, 0.0])  # dx, dy, turn (rad, ccw on screen), offset
+    for _ in range(30):
+        c, s_ = math.cos(p[2]) - 1.0, math.sin(p[2])
+        qx = cx + p[0] + xs + c * tx + s_ * ty - bx0  # ccw on screen: y points down
+        qy = cy + p[1] + ys - s_ * tx + c * ty - by0
+        use = (qx > 1) & (qy > 1) & (qx < crop_b.shape[1] - 2) & (qy < crop_b.shape[0] - 2)
+        if use.mean() < 0.9:
+            return None
+        if blocked is not None:
+            use &= ~blocked[np.clip(np.rint(qy).astype(int), 0, blocked.shape[0] - 1),
+                            np.clip(np.rint(qx).astype(int), 0, blocked.shape[1] - 1)]
+        value, gx, gy = _spline_and_slopes(coeff, qx, qy)
+        jac = np.column_stack([gx, gy, gx * ty - gy * tx, np.ones_like(gx)])[use]
+        resid = (template - value - p[3])[use]
+        # Cauchy weights: particle images spilling over the outline move with the air, not
+        # with the ball, and leave large residuals
+        scale = 3.0 * 1.4826 * float(np.median(np.abs(resid))) + 1e-9
+        weight = 1.0 / (1.0 + (resid / scale) ** 2)
+        normal = jac.T @ (jac * weight[:, None])
+        gradient = jac.T @ (weight * resid)
+        # a prior on the turn (a bare surface or a rim alone tells nothing of it): spin rates
+        # and pulse separations put it within a degree or two (common practice)
+        scale2 = float(np.sum(weight * resid * resid)) / max(1.0, float(weight.sum()))
+        normal[2, 2] += scale2 / TURN_PRIOR_RAD**2
+        gradient[2] -= scale2 / TURN_PRIOR_RAD**2 * p[2]
+        try:
+            step = np.linalg.solve(normal, gradient)
+        except np.linalg.LinAlgError:
+            return None
+        p += step
+        if math.hypot(step[0], step[1]) < 1e-3:
+            break
+    else:
+        return None
+    s2 = float(np.sum(weight * resid * resid)) / max(1.0, float(weight.sum()) - 4.0)
+    inflation = _correlation_inflation(xs[use], ys[use], resid)
+    # the information in the match is the pattern the two frames share: B's gradients alone
+    # include its noise's (a bare surface would look informative), the product of A's and B's
+    # does not (their noises are independent)
+    shared = np.column_stack([grad_a[0][use], grad_a[1][use]])
+    info = shared.T @ (jac[:, :2] * weight[:, None])
+    info = 0.5 * (info + info.T)
+    # and the pattern must be one: the ball's pixels in A and B correlate (a bare surface's
+    # noise does not, and its match is a fit to noise)
+    shared_ncc = float(np.corrcoef(template[use], value[use])[0, 1])
+    if np.linalg.eigvalsh(info)[0] <= 0 or not shared_ncc > MIN_MATCH_NCC:
+        return None
+    cov = s2 * inflation * np.linalg.inv(info)
+    return BallMatch((float(p[0]), float(p[1])), cov, math.degrees(p[2]), int(resid.size))
+
+
+def _spline_and_slopes(coeff, qx, qy):
+    """Cubic-spline values at (qx, qy) and the spline's own slopes (central differences of it
+    over a pixel): exact enough for Gauss-Newton to converge in a few steps."""
+    def at(x, y):
+        return ndimage.map_coordinates(coeff, [y, x], order=3, prefilter=False)
+
+    return at(qx, qy), at(qx + 0.5, qy) - at(qx - 0.5, qy), at(qx, qy + 0.5) - at(qx, qy - 0.5)
+
+
+def _ball_crop(frame, center_px, reach):
+    """``frame`` around a point out to ``reach`` px (float64) and the crop's origin (x0, y0)."""
+    height, width = frame.shape
+    x0, y0 = max(0, int(center_px[0] - reach)), max(0, int(center_px[1] - reach))
+    x1 = min(width, int(center_px[0] + reach) + 2)
+    y1 = min(height, int(center_px[1] + reach) + 2)
+    return np.asarray(frame[y0:y1, x0:x1], dtype=np.float64), (x0, y0)
+
+
+def _disc(shape, cx, cy, r) -> np.ndarray:
+    yy, xx = np.ogrid[0 : shape[0], 0 : shape[1]]
+    return (xx - cx) ** 2 + (yy - cy) ** 2 < r * r
+
+
+def _correlation_inflation(xs, ys, resid) -> float:
+    """Pixels per independent residual: ``(1 + rho_x)(1 + rho_y) / ((1 - rho_x)(1 - rho_y))``
+    from the lag-1 correlations of the residuals along rows and columns (a separable
+    first-order model of their correlation)."""
+    ix = np.rint(xs - xs.min()).astype(int)
+    iy = np.rint(ys - ys.min()).astype(int)
+    grid = np.full((iy.max() + 2, ix.max() + 2), np.nan)
+    grid[iy, ix] = resid
+    factor = 1.0
+    for a, b in ((grid[:, :-1], grid[:, 1:]), (grid[:-1, :], grid[1:, :])):
+        ok = np.isfinite(a) & np.isfinite(b)
+        if ok.sum() < 10:
+            continue
+        rho = float(np.corrcoef(a[ok], b[ok])[0, 1])
+        rho = min(max(rho, 0.0), 0.9)
+        factor *= (1.0 + rho) / (1.0 - rho)
+    return factor
+
+
+def ball_displacement(
+    ball_a: BallFit, ball_b: BallFit, match: BallMatch | None = None
+) -> tuple[tuple[float, float], np.ndarray, str]:
+    """Displacement A->B (px), its covariance (px^2) and a note when the two measures disagree.
+
+    The difference of the two circles and the image match are weighed by their inverse
+    covariances; where they disagree beyond their uncertainties (chi-square above 9.2, the 99 %
+    point for two degrees of freedom), the covariance is scaled up to cover the difference.
+    """
+    circles = np.array([ball_b.center_px[0] - ball_a.center_px[0],
+                        ball_b.center_px[1] - ball_a.center_px[1]])
+    cov_c = _centre_covariance(ball_a) + _centre_covariance(ball_b)
+    if match is None:
+        return (float(circles[0]), float(circles[1])), cov_c, ""
+    matched = np.asarray(match.displacement_px)
+    if not np.all(np.isfinite(cov_c)):
+        return (float(matched[0]), float(matched[1])), match.covariance_px2, ""
+    info_c, info_m = np.linalg.inv(cov_c), np.linalg.inv(match.covariance_px2)
+    cov = np.linalg.inv(info_c + info_m)
+    mean = cov @ (info_c @ circles + info_m @ matched)
+    diff = matched - circles
+    chi2 = float(diff @ np.linalg.solve(cov_c + match.covariance_px2, diff))
+    note = ""
+    if chi2 > 9.2:
+        cov = cov * chi2 / 2.0
+        note = (f"the ball's image match and its two circles disagree on the displacement by "
+                f"{math.hypot(*diff):.2f} px: its uncertainty is widened to cover it")
+    return (float(mean[0]), float(mean[1])), cov, note
+
+
+def _centre_covariance(ball: BallFit) -> np.ndarray:
+    if ball.covariance_px2 is not None:
+        return np.asarray(ball.covariance_px2, dtype=np.float64)[:2, :2]
+    sx, sy = ball.center_sigma_px
+    return np.diag([sx * sx, sy * sy]) if np.isfinite([sx, sy]).all() else np.full((2, 2), np.inf)
+
+
 def refine_displacement(
     frame_a: np.ndarray, frame_b: np.ndarray, ball_a: BallFit, ball_b: BallFit
 ) -> tuple[float, float]:
-    """Ball displacement A->B (px) by matching the ball's own image between the frames.
-
-    The band just inside the outline (rim and surface, no particles) moves rigidly with the
-    ball, so the shift that best maps frame A's band onto frame B (least squares, Gauss-Newton
-    on a cubic-spline image of B) is far more precise than the difference of two circle fits,
-    which start it. Falls back to that difference when the match does not converge.
-    """
-    cx, cy, r = ball_a.center_px[0], ball_a.center_px[1], ball_a.radius_px
-    sx = ball_b.center_px[0] - cx
-    sy = ball_b.center_px[1] - cy
-    height, width = frame_a.shape
-    yy, xx = np.mgrid[0:height, 0:width]
-    rho = np.hypot(xx - cx, yy - cy)
-    band = (rho > r - 8.0) & (rho < r - 0.5)
-    band &= (xx + sx > 1) & (xx + sx < width - 2) & (yy + sy > 1) & (yy + sy < height - 2)
-    if band.sum() < 50:
-        return sx, sy
-    ys, xs = np.nonzero(band)
-    template = np.asarray(frame_a, dtype=np.float64)[ys, xs]
-    coeff = ndimage.spline_filter(np.asarray(frame_b, dtype=np.float64), order=3)
-    gy_b, gx_b = np.gradient(np.asarray(frame_b, dtype=np.float64))
-    start = (sx, sy)
-    for _ in range(8):
-        pts = [ys + sy, xs + sx]
-        value = ndimage.map_coordinates(coeff, pts, order=3, prefilter=False)
-        gx = ndimage.map_coordinates(gx_b, pts, order=1)
-        gy = ndimage.map_coordinates(gy_b, pts, order=1)
-        jac = np.column_stack([gx, gy])
-        step, *_ = np.linalg.lstsq(jac, template - value, rcond=None)
-        sx, sy = sx + float(step[0]), sy + float(step[1])
-        if math.hypot(*step) < 1e-3:
-            break
-    if math.hypot(sx - start[0], sy - start[1]) > 1.5:
-        return start
-    return sx, sy
+    """Ball displacement A->B (px): the image match with the circles (:func:`ball_displacement`)."""
+    match = match_ball_image(frame_a, frame_b, ball_a, ball_b)
+    return ball_displacement(ball_a, ball_b, match)[0]
 
 
 def ball_mask(
@@ -706,8 +940,10 @@ def flight_from_balls(
     ball_b: BallFit,
     *,
     displacement_px: tuple[float, float] | None = None,
+    displacement_cov_px2: np.ndarray | None = None,
     dt_s: float | None = None,
     scale_mm_per_px: float | None = None,
+    scale_sigma_rel: float = 0.0,
     flight_deg: float | None = None,
 ) -> Flight:
     """Flight direction and speed from the ball's displacement between the frames.
@@ -716,12 +952,17 @@ def flight_from_balls(
     ----------
     ball_a, ball_b : BallFit
         The ball in frames A and B.
+    displacement_px : (float, float), optional
+        Ball displacement A->B (px) when measured more precisely (:func:`ball_displacement`);
+        default: difference of the two circle centres.
+    displacement_cov_px2 : (2, 2) array, optional
+        Its covariance; default that of the two circles' centres.
     dt_s : float, optional
         Time between the frames (s); with ``scale_mm_per_px`` gives the speed.
     scale_mm_per_px : float, optional
-    displacement_px : (float, float), optional
-        Ball displacement A->B (px) when measured more precisely (:func:`refine_displacement`);
-        default: difference of the two circle centres.
+    scale_sigma_rel : float
+        Relative standard uncertainty of the scale (e.g. from the fitted radius when the scale
+        comes from the ball's diameter).
     flight_deg : float, optional
         Override of the direction (deg), for a ball held still (tunnel) or barely moving.
 
@@ -729,18 +970,100 @@ def flight_from_balls(
     -------
     Flight
         ``direction_deg`` in [0, 360): 0 = toward +x, 90 = toward the top of the picture.
-        ``speed_m_s`` = |displacement| * scale / dt (mm/s -> m/s), None without dt or scale.
+        ``speed_m_s`` = |displacement| * scale / dt (mm/s -> m/s), None without dt or scale;
+        standard uncertainties of both (direction: the displacement's covariance across it
+        over its length; speed: along it, and the scale's).
     """
     if displacement_px is None:
         dx = ball_b.center_px[0] - ball_a.center_px[0]
         dy = ball_b.center_px[1] - ball_a.center_px[1]
     else:
         dx, dy = (float(v) for v in displacement_px)
+    cov = (_centre_covariance(ball_a) + _centre_covariance(ball_b)
+           if displacement_cov_px2 is None else np.asarray(displacement_cov_px2, dtype=np.float64))
     distance_px = math.hypot(dx, dy)
-    speed = None
+    along_var = across_var = float("nan")
+    if distance_px > 0 and np.all(np.isfinite(cov)):
+        ux, uy = dx / distance_px, dy / distance_px
+        along_var = ux * ux * cov[0, 0] + 2 * ux * uy * cov[0, 1] + uy * uy * cov[1, 1]
+        across_var = uy * uy * cov[0, 0] - 2 * ux * uy * cov[0, 1] + ux * ux * cov[1, 1]
+    speed = speed_sigma = None
     if dt_s and scale_mm_per_px and dt_s > 0 and scale_mm_per_px > 0:
         speed = distance_px * scale_mm_per_px * 1e-3 / dt_s
+        if math.isfinite(along_var) and distance_px > 0:
+            speed_sigma = speed * math.hypot(math.sqrt(along_var) / distance_px, scale_sigma_rel)
+    cov_out = None if not np.all(np.isfinite(cov)) else tuple(tuple(float(v) for v in row) for row in cov)
     if flight_deg is not None:
-        return Flight(float(flight_deg) % 360.0, speed, (dx, dy), source="override")
+        return Flight(float(flight_deg) % 360.0, speed, (dx, dy), source="override",
+                      speed_sigma_m_s=speed_sigma, displacement_cov_px2=cov_out)
     direction = math.degrees(math.atan2(-dy, dx)) % 360.0
-    return Flight(direction, speed, (dx, dy), source="ball displacement")
+    sigma_deg = None
+    if math.isfinite(across_var) and distance_px > 0:
+        sigma_deg = math.degrees(min(math.sqrt(across_var) / distance_px, math.pi))
+    return Flight(direction, speed, (dx, dy), source="ball displacement",
+                  direction_sigma_deg=sigma_deg, speed_sigma_m_s=speed_sigma,
+                  displacement_cov_px2=cov_out)
+
+
+#: Model uncertainty (deg) of the air's direction as a stand-in for the flight: a wake that
+#: leaves the ball asymmetrically (a swinging ball) is deflected by some degrees.
+AIR_DIRECTION_FLOOR_DEG = 5.0
+
+
+def air_direction(vf: VectorField, ball: BallFit, ball_shift_px: float) -> tuple[float, float] | None:
+    """Direction (deg) in which the air near the ball moves with it, and its uncertainty (deg).
+
+    In the lab frame the air far away is at rest and the air the ball drags along (the wake
+    behind it, the air pushed ahead of it) moves in the flight direction; the air beside it
+    moves back slowly. The vector sum of the valid vectors between 1.2 and 4 radii from the
+    centre that move faster than a third of the ball points along the flight. Its uncertainty
+    is the spread across that direction over the sum's length (each vector counted as half
+    an independent one: windows overlap by half), with ``AIR_DIRECTION_FLOOR_DEG`` added.
+    None with fewer than 6 such vectors.
+    """
+    rho = np.hypot(vf.x_px - ball.center_px[0], vf.y_px - ball.center_px[1])
+    speed = np.hypot(vf.dx_px, vf.dy_px)
+    near = vf.valid & (rho > 1.2 * ball.radius_px) & (rho < 4.0 * ball.radius_px)
+    moving = near & np.isfinite(speed) & (speed > ball_shift_px / 3.0)
+    if np.count_nonzero(moving) < 6:
+        return None
+    dx, dy = vf.dx_px[moving], vf.dy_px[moving]
+    sx, sy = float(dx.sum()), float(dy.sum())
+    length = math.hypot(sx, sy)
+    if length == 0:
+        return None
+    across = (-dx * sy + dy * sx) / length
+    spread = math.sqrt(2.0 * float(np.sum(across * across))) / length
+    sigma = math.hypot(math.degrees(spread), AIR_DIRECTION_FLOOR_DEG)
+    return math.degrees(math.atan2(-sy, sx)) % 360.0, sigma
+
+
+def flight_from_stream(vf: VectorField, ball: BallFit, *, dt_s=None, scale_mm_per_px=None,
+                       displacement_px=(0.0, 0.0)) -> Flight | None:
+    """Flight of a held ball (tunnel) from the free stream: opposite to the air's motion.
+
+    The free stream is the median displacement of the valid vectors beyond 2.5 radii from the
+    ball; the speed is the air's speed past the ball. Its uncertainty is the vectors' spread
+    across the stream over its length, each vector counted as half an independent one.
+    None with fewer than 6 such vectors.
+    """
+    rho = np.hypot(vf.x_px - ball.center_px[0], vf.y_px - ball.center_px[1])
+    far = vf.valid & (rho > 2.5 * ball.radius_px) & np.isfinite(vf.dx_px)
+    if np.count_nonzero(far) < 6:
+        return None
+    dx, dy = vf.dx_px[far], vf.dy_px[far]
+    mx, my = float(np.median(dx)), float(np.median(dy))
+    length = math.hypot(mx, my)
+    if length == 0:
+        return None
+    across = (-dx * my + dy * mx) / length
+    along = (dx * mx + dy * my) / length
+    n_eff = max(1.0, 0.5 * dx.size)
+    sigma_deg = math.degrees(float(np.std(across)) / math.sqrt(n_eff) / length)
+    speed = speed_sigma = None
+    if dt_s and scale_mm_per_px:
+        speed = length * scale_mm_per_px * 1e-3 / dt_s
+        speed_sigma = float(np.std(along)) / math.sqrt(n_eff) * scale_mm_per_px * 1e-3 / dt_s
+    return Flight(math.degrees(math.atan2(my, -mx)) % 360.0, speed,
+                  tuple(float(v) for v in displacement_px), source="free stream (held ball)",
+                  direction_sigma_deg=sigma_deg, speed_sigma_m_s=speed_sigma)

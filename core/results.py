@@ -61,12 +61,20 @@ class BallFit:
 
 @dataclass
 class Flight:
-    """Ball flight from its displacement between frames (or an override)."""
+    """Ball flight from its displacement between frames (or the free stream, or an override)."""
 
     direction_deg: float  # 0 = +x, 90 = toward the top of the picture
     speed_m_s: float | None  # None when dt or scale is unknown
     displacement_px: tuple[float, float]  # ball centre B - A, image coordinates
-    source: str = "ball displacement"  # or "override"
+    source: str = "ball displacement"  # or "override", or "free stream (held ball)"
+    # standard uncertainties (None: not known, e.g. a session stored before they were kept)
+    direction_sigma_deg: float | None = None
+    speed_sigma_m_s: float | None = None
+    displacement_cov_px2: tuple[tuple[float, float], tuple[float, float]] | None = None
+    # cross-check: the direction of the air moving with the ball (lab frame) or opposite to
+    # the free stream (held ball), and its uncertainty including the wake's possible deflection
+    air_direction_deg: float | None = None
+    air_direction_sigma_deg: float | None = None
 
 
 @dataclass
