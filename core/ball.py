@@ -84,6 +84,9 @@ RIM_DEPTH_PX = 5.0
 SPILL_PX = 2.5
 #: Prior standard deviation of the ball's in-plane turn between the frames (rad).
 TURN_PRIOR_RAD = math.radians(2.0)
+#: Standard uncertainty (px) added to each axis of the image match's displacement: the
+#: outline's own light (rim, spilling particle images) is not quite rigid.
+MATCH_FLOOR_PX = 0.04
 #: Correlation of the ball's pixels between the frames below which they hold no pattern.
 MIN_MATCH_NCC = 0.1
 #: Ball pixels matched between the frames at most (those with the steepest gradients).
@@ -571,7 +574,7 @@ def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str
         return (abs(model.radius - start[2]) <= reach
                 and math.hypot(model.center[0] - start[0], model.center[1] - start[1]) <= reach)
 
-    model, inliers = _ransac_circle(points, 1.0, near_start)
+    model, inliers = _ransac_circle(points, 0.5, near_start)
     if model is None or inliers.sum() < 12:
         raise WakelineError(f"{name}: no ball found (the outline points do not form a circle)")
     final = CircleModel.from_estimate(points[inliers])
@@ -785,10 +788,11 @@ def match_ball_image(
     turns = np.hypot(xs, ys) < r - RIM_DEPTH_PX
     tx, ty = np.where(turns, xs, 0.0), np.where(turns, ys, 0.0)
     coeff = ndimage.spline_filter(crop_b, 3)
+    slopes = [ndimage.spline_filter(g, 3) for g in np.gradient(crop_b)[::-1]]  # d/dx, d/dy
     blocked = None if glare_b is None else glare_b[by0 : by0 + crop_b.shape[0],
                                                    bx0 : bx0 + crop_b.shape[1]]
     p = np.array([start[0], start[1], 0.0, 0.0])  # dx, dy, turn (rad, ccw on screen), offset
-    for _ in range(30):
+    for iteration in range(30):
         c, s_ = math.cos(p[2]) - 1.0, math.sin(p[2])
         qx = cx + p[0] + xs + c * tx + s_ * ty - bx0  # ccw on screen: y points down
         qy = cy + p[1] + ys - s_ * tx + c * ty - by0
@@ -798,13 +802,21 @@ def match_ball_image(
         if blocked is not None:
             use &= ~blocked[np.clip(np.rint(qy).astype(int), 0, blocked.shape[0] - 1),
                             np.clip(np.rint(qx).astype(int), 0, blocked.shape[1] - 1)]
-        value, gx, gy = _spline_and_slopes(coeff, qx, qy)
+        value, gx, gy = (ndimage.map_coordinates(c, [qy, qx], order=3, prefilter=False)
+                         for c in (coeff, *slopes))
+        # the mean of the two frames' slopes (efficient second-order minimisation): the steps
+        # converge in a few iterations even with noisy frames, where B's slopes alone crawl
+        gx, gy = 0.5 * (gx + grad_a[0]), 0.5 * (gy + grad_a[1])
         jac = np.column_stack([gx, gy, gx * ty - gy * tx, np.ones_like(gx)])[use]
         resid = (template - value - p[3])[use]
         # Cauchy weights: particle images spilling over the outline move with the air, not
-        # with the ball, and leave large residuals
-        scale = 3.0 * 1.4826 * float(np.median(np.abs(resid))) + 1e-9
-        weight = 1.0 / (1.0 + (resid / scale) ** 2)
+        # with the ball, and leave large residuals (held after three steps, so that the
+        # Gauss-Newton steps converge as fast as plain least squares)
+        if iteration < 3:
+            scale = 3.0 * 1.4826 * float(np.median(np.abs(resid))) + 1e-9
+            weight_all = np.zeros(use.size)
+            weight_all[use] = 1.0 / (1.0 + (resid / scale) ** 2)
+        weight = weight_all[use]
         normal = jac.T @ (jac * weight[:, None])
         gradient = jac.T @ (weight * resid)
         # a prior on the turn (a bare surface or a rim alone tells nothing of it): spin rates
@@ -817,34 +829,31 @@ def match_ball_image(
         except np.linalg.LinAlgError:
             return None
         p += step
-        if math.hypot(step[0], step[1]) < 1e-3:
+        if math.hypot(step[0], step[1]) + r * abs(step[2]) < 2e-3:
             break
     else:
         return None
-    s2 = float(np.sum(weight * resid * resid)) / max(1.0, float(weight.sum()) - 4.0)
-    inflation = _correlation_inflation(xs[use], ys[use], resid)
-    # the information in the match is the pattern the two frames share: B's gradients alone
-    # include its noise's (a bare surface would look informative), the product of A's and B's
-    # does not (their noises are independent)
-    shared = np.column_stack([grad_a[0][use], grad_a[1][use]])
-    info = shared.T @ (jac[:, :2] * weight[:, None])
-    info = 0.5 * (info + info.T)
-    # and the pattern must be one: the ball's pixels in A and B correlate (a bare surface's
-    # noise does not, and its match is a fit to noise)
+    # the pattern must be one: the ball's pixels in A and B correlate (a bare surface's noise
+    # does not, and its match is a fit to noise)
     shared_ncc = float(np.corrcoef(template[use], value[use])[0, 1])
-    if np.linalg.eigvalsh(info)[0] <= 0 or not shared_ncc > MIN_MATCH_NCC:
+    if not shared_ncc > MIN_MATCH_NCC:
         return None
-    cov = s2 * inflation * np.linalg.inv(info)
+    # covariance: a sandwich over blocks of 8 x 8 px, so that residuals correlated within a
+    # block (a particle image spilling over the outline, a stitch) count once, not pixel by
+    # pixel; its bread uses the product of A's and B's slopes, the information the two frames
+    # share (B's slopes alone include its noise's, and a bare surface would look informative)
+    shared = np.column_stack([grad_a[0][use], grad_a[1][use]])
+    bread = shared.T @ (jac[:, :2] * weight[:, None])
+    bread = 0.5 * (bread + bread.T)
+    if np.linalg.eigvalsh(bread)[0] <= 0:
+        return None
+    block = (np.floor(ys[use] / 8.0) * 4096 + np.floor(xs[use] / 8.0)).astype(np.int64)
+    _, label = np.unique(block, return_inverse=True)
+    score = (jac[:, :2] * (weight * resid)[:, None])
+    sums = np.column_stack([np.bincount(label, weights=score[:, k]) for k in range(2)])
+    inverse = np.linalg.inv(bread)
+    cov = inverse @ (sums.T @ sums) @ inverse + MATCH_FLOOR_PX**2 * np.eye(2)
     return BallMatch((float(p[0]), float(p[1])), cov, math.degrees(p[2]), int(resid.size))
-
-
-def _spline_and_slopes(coeff, qx, qy):
-    """Cubic-spline values at (qx, qy) and the spline's own slopes (central differences of it
-    over a pixel): exact enough for Gauss-Newton to converge in a few steps."""
-    def at(x, y):
-        return ndimage.map_coordinates(coeff, [y, x], order=3, prefilter=False)
-
-    return at(qx, qy), at(qx + 0.5, qy) - at(qx - 0.5, qy), at(qx, qy + 0.5) - at(qx, qy - 0.5)
 
 
 def _ball_crop(frame, center_px, reach):
@@ -859,25 +868,6 @@ def _ball_crop(frame, center_px, reach):
 def _disc(shape, cx, cy, r) -> np.ndarray:
     yy, xx = np.ogrid[0 : shape[0], 0 : shape[1]]
     return (xx - cx) ** 2 + (yy - cy) ** 2 < r * r
-
-
-def _correlation_inflation(xs, ys, resid) -> float:
-    """Pixels per independent residual: ``(1 + rho_x)(1 + rho_y) / ((1 - rho_x)(1 - rho_y))``
-    from the lag-1 correlations of the residuals along rows and columns (a separable
-    first-order model of their correlation)."""
-    ix = np.rint(xs - xs.min()).astype(int)
-    iy = np.rint(ys - ys.min()).astype(int)
-    grid = np.full((iy.max() + 2, ix.max() + 2), np.nan)
-    grid[iy, ix] = resid
-    factor = 1.0
-    for a, b in ((grid[:, :-1], grid[:, 1:]), (grid[:-1, :], grid[1:, :])):
-        ok = np.isfinite(a) & np.isfinite(b)
-        if ok.sum() < 10:
-            continue
-        rho = float(np.corrcoef(a[ok], b[ok])[0, 1])
-        rho = min(max(rho, 0.0), 0.9)
-        factor *= (1.0 + rho) / (1.0 - rho)
-    return factor
 
 
 def ball_displacement(
