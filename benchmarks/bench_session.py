@@ -32,8 +32,8 @@ import tifffile
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from core.session import Session
 from core.shot import ShotResult
+from core.store import Session
 
 GRID = (127, 127)  # vectors of a 2048 x 2048 pair, 32 px windows, 50 % overlap
 
@@ -77,7 +77,7 @@ def make_large(folder: Path, shots: int) -> dict:
                          {"dt_s": 2e-5, "scale_mm_per_px": 0.078, "ball_diameter_mm": 71.6,
                           "seam_deg": float(i % 36) * 10.0})
     start = time.perf_counter()
-    for shot_id in session.shot_ids():
+    for shot_id in session:
         session.save_result(shot_id, _stand_in_result(session.settings_for(shot_id), rng))
     saved = time.perf_counter() - start
     start = time.perf_counter()
@@ -90,7 +90,7 @@ def phase_open(folder: Path) -> dict:
     path = folder / "large.h5"
     start = time.perf_counter()
     with Session.open(path, writable=False) as s:
-        records = s.records()
+        records = list(s.values())
         opened = time.perf_counter() - start
         start = time.perf_counter()
         result = s.load_result(records[len(records) // 2].shot_id)
@@ -121,7 +121,7 @@ def make_batch(folder: Path, shots: int) -> None:
         tifffile.imwrite(src / f"B{i:03d}_b.tif", b.astype(np.uint16))
         rows.append(f"B{i:03d},{truth.dt_s},{truth.scale_mm_per_px},{truth.ball_diameter_mm},0")
     (src / "shots.csv").write_text("\n".join(rows) + "\n")
-    from core.session import import_folder
+    from core.store import import_folder
 
     report = import_folder(src, folder / "batch.h5")
     assert not report.problems, report.problems

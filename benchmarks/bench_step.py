@@ -25,7 +25,7 @@ sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
 def make_session(folder: Path, size: int, shots: int, workers: int | None) -> Path:
     from core.batch import process_shots
     from core.images import write_frame
-    from core.session import Session
+    from core.store import Session
     from core.synth_shot import ball_shot
 
     path = folder / "bench.h5"
@@ -55,7 +55,7 @@ def time_steps(path: Path, rounds: int) -> dict[str, list[float]]:
     import pyqtgraph as pg
     from PySide6.QtWidgets import QApplication
 
-    from app.window import MainWindow
+    from app.qt.window import MainWindow
 
     app = QApplication.instance() or QApplication([])
     pg.setConfigOptions(imageAxisOrder="row-major")
@@ -115,8 +115,8 @@ def make_big_session(folder: Path, shots: int) -> Path:
 
     from core.images import write_frame
     from core.results import BallFit, Flight, SeparationResult, SideProposal, VectorField
-    from core.session import Session
     from core.shot import ShotResult
+    from core.store import Session
 
     rng = np.random.default_rng(0)
     path = folder / "many.h5"
@@ -150,7 +150,7 @@ def time_list(path: Path) -> None:
     from PySide6.QtCore import Qt
     from PySide6.QtWidgets import QApplication
 
-    from app.window import MainWindow
+    from app.qt.window import MainWindow
 
     app = QApplication.instance() or QApplication([])
     window = MainWindow(workers=0)

@@ -21,8 +21,8 @@ from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
 from dataclasses import dataclass, field, replace
 
 from core import WakelineError
-from core.session import Session, read_frames
 from core.shot import ShotSettings
+from core.store import Session, read_frames
 
 _POLL_S = 0.2  # how often a waiting run looks at should_stop
 
@@ -63,9 +63,9 @@ def plan_shots(session: Session, shot_ids=None, force: bool = False) -> tuple[li
     WakelineError
         When a requested shot id is not in the session.
     """
-    chosen = list(session.shot_ids()) if shot_ids is None else list(dict.fromkeys(shot_ids))
+    chosen = list(session) if shot_ids is None else list(dict.fromkeys(shot_ids))
     for shot_id in chosen:
-        session.record(shot_id)  # raises for an unknown id
+        session[shot_id]  # raises for an unknown id
     todo = [s for s in chosen if force or session.needs_processing(s)]
     planned = set(todo)
     return todo, [s for s in chosen if s not in planned]
@@ -103,16 +103,13 @@ def iter_process(
     fingerprints = {task["shot_id"]: task["fingerprint"] for task in tasks}
     stop = should_stop or (lambda: False)
     runner = _runner(workers, scheduler)
-    session.active_runs += 1
-    try:
+    with session.batch_run():
         for done, (shot_id, result, message) in enumerate(runner(tasks, stop), start=1):
             if result is not None:
                 session.save_result(shot_id, result)
             else:
                 session.save_failure(shot_id, message, fingerprints[shot_id])
             yield ShotOutcome(shot_id, result is not None, message, done, len(tasks))
-    finally:
-        session.active_runs -= 1
 
 
 def process_shots(
@@ -227,7 +224,8 @@ def _pool_context():
         return multiprocessing.get_context("spawn")
     context = multiprocessing.get_context("forkserver")
     # Workers fork from a server that has imported the measurement once: quick pool start-up.
-    context.set_forkserver_preload(["core.batch", "core.ball", "core.fields", "core.separation"])
+    context.set_forkserver_preload(
+        ["core.batch", "core.piv", "core.ball", "core.fields", "core.separation"])
     return context
 
 

@@ -26,7 +26,7 @@ def least_squares_derivative(
     """First derivative along one grid axis by a least-squares line over 5 points.
 
     With all five points usable this is ``(2 f[+2] + f[+1] - f[-1] - 2 f[-2]) / (10 h)``, whose
-    noise gain is ``sqrt(10) / 10 = 0.32 e/h`` for uncorrelated noise ``e`` (REFERENCES.md,
+    noise gain is ``sqrt(10) / 10 = 0.32 e/h`` for uncorrelated noise ``e`` (docs/references.md,
     derived; central differences: 0.71 e/h). Near holes and edges the line is fitted to the
     usable points among the five (at least 3, both sides of the centre not required).
 
@@ -84,8 +84,8 @@ def vorticity(
     """Vorticity, counter-clockwise positive on screen: ``omega = d(dx)/dy - d(dy)/dx``.
 
     Each derivative is the 5-point least-squares line of :func:`least_squares_derivative`;
-    the noise gain on vorticity is ``0.45 e/h`` (REFERENCES.md, derived: sqrt(2) x 0.32; central
-    differences 1.00, 8-point circulation 0.61).
+    the noise gain on vorticity is ``0.45 e/h`` (docs/references.md, derived: sqrt(2) x 0.32;
+    central differences 1.00, 8-point circulation 0.61).
 
     Parameters
     ----------

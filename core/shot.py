@@ -1,7 +1,7 @@
 """One shot from frame pair to proposal: ball, masks, PIV, fields, separation.
 
 This is the function the CLI, the batch workers and the window all call. ``ShotResult`` is the
-record they exchange: ``summary()`` is the JSON contract of DESIGN.md, ``arrays()`` the fields the
+record they exchange: ``summary()`` is the JSON ``pair --json`` writes, ``arrays()`` the fields the
 session store keeps, and ``ShotResult.from_stored`` rebuilds it from those two.
 """
 
@@ -13,7 +13,6 @@ from dataclasses import fields as dc_fields
 
 import numpy as np
 
-from core.piv import PivPass, PivSettings
 from core.results import (
     BallFit,
     Flight,
@@ -23,6 +22,7 @@ from core.results import (
     dataclass_dict,
     finite_or_none,
 )
+from core.settings import PivPass, PivSettings
 
 
 @dataclass

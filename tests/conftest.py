@@ -42,7 +42,7 @@ def main_window(qtbot):
     import pyqtgraph as pg
     from PySide6.QtCore import QCoreApplication, QEvent
 
-    from app.window import MainWindow
+    from app.qt.window import MainWindow
 
     pg.setConfigOptions(imageAxisOrder="row-major")
     before = set(_top_level_keys())
@@ -136,7 +136,7 @@ def make_session(tmp_path):
     Returns the session path; the session is closed (the window opens it itself).
     """
     from core.images import write_frame
-    from core.session import Session
+    from core.store import Session
 
     def make(n: int = 4, processed: bool = True, name: str = "review") -> str:
         folder = tmp_path / f"{name}_frames"

@@ -15,7 +15,7 @@ from data.session_helpers import fast_settings, shift_of, write_shot_folder
 from app.cli import main
 from core import WakelineError
 from core.batch import iter_process, plan_shots, process_shots
-from core.session import Session, import_folder, read_frames
+from core.store import Session, import_folder, read_frames
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -40,12 +40,12 @@ def test_import_process_pick_close_reopen_round_trip(session_path):
         assert sorted(report.processed) == ["S0", "S1", "S2", "S3"] and not report.failed
         s.set_pick("S2", status="unusable", reason="seeding too sparse", who="ann")
     with Session.open(session_path, writable=False) as s:
-        for i, shot_id in enumerate(s.shot_ids()):
-            rec = s.record(shot_id)
+        for i, shot_id in enumerate(s):
+            rec = s[shot_id]
             assert rec.state == "processed" and not s.needs_processing(shot_id)
             # The frames were drawn with a known uniform shift (core.synth, derived truth).
             assert _median_shift(s.load_result(shot_id)) == pytest.approx(shift_of(i), abs=0.1)
-        assert s.record("S2").pick.reason == "seeding too sparse"
+        assert s["S2"].pick.reason == "seeding too sparse"
         assert [(p.status, p.who) for p in s.history("S2")] == [("unusable", "ann")]
 
 
@@ -62,12 +62,12 @@ def test_reprocessing_with_new_settings_keeps_picks_and_updates_results(session_
         report = process_shots(s, workers=2)
         assert report.total == 4 and len(report.processed) == 4
     with Session.open(session_path, writable=False) as s:
-        for shot_id in s.shot_ids():
-            assert s.record(shot_id).summary["vectors"]["window_px"] == 48
+        for shot_id in s:
+            assert s[shot_id].summary.vectors.window_px == 48
             assert s.load_result(shot_id).field.window_px == 48
-        s1 = s.record("S1").pick
+        s1 = s["S1"].pick
         assert (s1.status, s1.upper_deg, s1.lower_deg) == ("adjusted", 12.0, -4.0)
-        assert s.record("S3").pick.status == "accepted"
+        assert s["S3"].pick.status == "accepted"
         assert len(s.history("S1")) == 1
 
 
@@ -82,9 +82,9 @@ def test_failing_shot_is_recorded_and_the_others_go_on(session_path, capsys):
     assert "shot S1: frame file" in captured.err and "changed since import" in captured.err
     assert "processed 3 shot(s), 1 failed" in captured.out
     with Session.open(session_path, writable=False) as s:
-        failed = s.record("S1")
+        failed = s["S1"]
         assert failed.state == "failed" and "changed since import" in failed.failure
-        assert [s.record(x).state for x in ("S0", "S2", "S3")] == ["processed"] * 3
+        assert [s[x].state for x in ("S0", "S2", "S3")] == ["processed"] * 3
         assert s.needs_processing("S1")
         # Nothing is lost: the earlier result and the pick of the failed shot stay.
         assert _median_shift(s.load_result("S1")) == pytest.approx(shift_of(1), abs=0.1)
@@ -133,13 +133,11 @@ def test_compacting_during_a_run_keeps_the_frames_workers_may_still_read(tmp_pat
                        embed=True)
         source = s.frame_source("S1")  # what a worker task of a running batch holds
         assert ".pending" in source["file"]
-        s.active_runs += 1  # as iter_process does while it runs
-        s.compact()  # the window may save while shots are being processed
-        assert read_frames("S1", source)[0].shape == (192, 256)
-        s.active_runs -= 1
+        with s.batch_run():  # as iter_process runs
+            s.compact()  # the window may save while shots are being processed
+            assert read_frames("S1", source)[0].shape == (192, 256)
         s.set_processing_settings(fast_settings())
         assert all(o.ok for o in iter_process(s, workers=0))
-        assert s.active_runs == 0
     with Session.open(tmp_path / "e.h5", writable=False) as s:
         assert _median_shift(s.load_result("S1")) == pytest.approx(shift_of(1), abs=0.1)
     assert not (tmp_path / "e.h5.pending").exists()
@@ -164,6 +162,6 @@ def test_ctrl_c_stops_the_command_and_keeps_finished_shots(tmp_path):
     assert "stopping: finished shots are kept" in err
     assert "left for the next run" in out
     with Session.open(session_path, writable=False) as s:
-        done = [r.shot_id for r in s.records() if r.state == "processed"]
+        done = [r.shot_id for r in s.values() if r.state == "processed"]
         assert 0 < len(done) < 40 and not s.check_frames()
     assert not journal.exists()  # the stopped run closed the session cleanly

@@ -8,15 +8,10 @@ import numpy as np
 import pytest
 from conftest import analytic_result, synthetic_frames
 
-from app.canvas import (
-    PROPOSAL_RADIUS,
-    CanvasShot,
-    ShotCanvas,
-    arrow_segments,
-    smooth_upsample,
-    vorticity_image,
-)
-from app.colours import symmetric_limit
+from app.qt.canvas import CanvasShot, ShotCanvas
+from app.qt.canvas_items import PROPOSAL_RADIUS, arrow_segments
+from app.qt.canvas_pictures import smooth_upsample, vorticity_image
+from app.review.colours import symmetric_limit
 from core.geometry import angle_of_point, flight_unit, point_at_angle
 from core.shot import ShotSettings
 

@@ -1,4 +1,4 @@
-"""The `wakeline` command contract (DESIGN.md): --help, exit codes 0/1/2, one-line errors."""
+"""The `wakeline` command contract (README): --help, exit codes 0/1/2, one-line errors."""
 
 import csv
 import json

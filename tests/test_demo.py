@@ -89,7 +89,7 @@ def test_demo_truth_follows_the_seam_model():
 def _check_replayed(row: dict, review: dict) -> None:
     """Accepted: both proposals within the tolerance of the analyst's marks. Adjusted: the
     sides that were off sit exactly on the marks, the others on their proposals."""
-    from app.cmd_sheet import ACCEPT_TOLERANCE_DEG
+    from app.cli.demo import ACCEPT_TOLERANCE_DEG
 
     assert row["review_status"] in ("accepted", "adjusted")
     for side in ("upper", "lower"):
@@ -103,14 +103,15 @@ def _check_replayed(row: dict, review: dict) -> None:
 
 
 def test_replay_accepts_close_proposals_and_moves_the_others():
-    from app.cmd_sheet import _moved_sides
-    from core.session import ShotRecord
+    from app.cli.demo import _moved_sides
+    from core.store import ShotRecord
+    from core.summary import ShotSummary
 
-    record = ShotRecord("x", {}, state="processed",
-                        summary={"separation": {"upper_deg": -8.2, "lower_deg": 20.0}})
+    record = ShotRecord("x", {}, state="processed", summary=ShotSummary.from_dict(
+        {"separation": {"upper_deg": -8.2, "lower_deg": 20.0}}))
     assert _moved_sides(record, {"upper_deg": "-9.5", "lower_deg": "19"}) == {}
     assert _moved_sides(record, {"upper_deg": "-9.5", "lower_deg": "14"}) == {"lower_deg": 14.0}
-    record.summary["separation"]["upper_deg"] = None
+    record.summary = ShotSummary.from_dict({"separation": {"lower_deg": 20.0}})
     assert _moved_sides(record, {"upper_deg": "-9.5", "lower_deg": "21.5"}) == {
         "upper_deg": -9.5}
 
@@ -128,7 +129,7 @@ def small_sample_runs(tmp_path, monkeypatch):
     """The shipped demo cut down to three shots (processing all of them takes a while)."""
     import shutil
 
-    from app import cmd_sheet
+    from app.cli import demo
 
     folder = tmp_path / "sample_runs"
     folder.mkdir()
@@ -139,7 +140,7 @@ def small_sample_runs(tmp_path, monkeypatch):
     for shot_id in DEMO_SUBSET:
         for ab in ("a", "b"):
             shutil.copyfile(SAMPLE_RUNS / f"{shot_id}_{ab}.tif", folder / f"{shot_id}_{ab}.tif")
-    monkeypatch.setattr(cmd_sheet, "SAMPLE_RUNS", folder)
+    monkeypatch.setattr(demo, "SAMPLE_RUNS", folder)
     return folder
 
 
@@ -147,7 +148,7 @@ def test_demo_command_without_window(demo_out, small_sample_runs, capsys):
     from pypdf import PdfReader
 
     from app.cli import main
-    from core.session import Session
+    from core.store import Session
 
     assert main(["demo", "--out", str(demo_out), "--no-window", "--workers", "0"]) == 0
     out = capsys.readouterr().out
@@ -178,7 +179,7 @@ def test_demo_command_without_window(demo_out, small_sample_runs, capsys):
     assert main(["demo", "--out", str(demo_out), "--no-window", "--workers", "0"]) == 0
     assert "using the existing demo session" in capsys.readouterr().out
     with Session.open(demo_out / "demo_session.h5", writable=False) as session:
-        assert session.record("sw03").pick.status == "unusable"
+        assert session["sw03"].pick.status == "unusable"
     # the bundled folder is never written to
     assert sorted(p.name for p in small_sample_runs.iterdir()) == sorted(
         ["shots.csv", "reviews.csv", "truth.csv"]
@@ -186,14 +187,12 @@ def test_demo_command_without_window(demo_out, small_sample_runs, capsys):
 
 
 def test_demo_opens_the_window_when_there_is_a_display(demo_out, small_sample_runs, monkeypatch):
-    import app.sheet
-    from app import cmd_sheet
-    from app.cli import main
+    from app.cli import demo, display, main
 
     opened = []
-    monkeypatch.setattr(app.sheet, "has_display", lambda: True)
-    monkeypatch.setattr(cmd_sheet, "process_demo", lambda path, workers=None: None)
-    monkeypatch.setitem(sys.modules, "app.window",
+    monkeypatch.setattr(display, "has_display", lambda: True)
+    monkeypatch.setattr(demo, "process_demo", lambda path, workers=None: None)
+    monkeypatch.setitem(sys.modules, "app.qt.window",
                         types.SimpleNamespace(run_window=lambda path: opened.append(path) or 0))
     assert main(["demo", "--out", str(demo_out)]) == 0
     assert opened == [demo_out / "demo_session.h5"]
@@ -209,7 +208,7 @@ def test_demo_refuses_to_write_into_the_shipped_folder(capsys):
 
 
 def test_has_display_rules(monkeypatch):
-    from app.sheet import has_display
+    from app.cli.display import has_display
 
     monkeypatch.setenv("QT_QPA_PLATFORM", "offscreen")
     assert not has_display()
@@ -226,8 +225,8 @@ def test_has_display_rules(monkeypatch):
 
 def test_fresh_demo_starts_again_but_not_under_an_open_window(demo_out, capsys):
     from app.cli import main
-    from app.cmd_sheet import prepare_demo
-    from core.session import Session
+    from app.cli.demo import prepare_demo
+    from core.store import Session
 
     path = prepare_demo(demo_out)
     with Session.open(path) as session:
@@ -236,5 +235,5 @@ def test_fresh_demo_starts_again_but_not_under_an_open_window(demo_out, capsys):
         assert "open for writing" in capsys.readouterr().err
     assert prepare_demo(demo_out, fresh=True) == path
     with Session.open(path, writable=False) as session:
-        assert session.record("sw02").pick.status == "to review"
+        assert session["sw02"].pick.status == "to review"
         assert session.history("sw02") == []

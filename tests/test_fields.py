@@ -20,7 +20,7 @@ def _grid(n=40, h=4.0):
 
 
 def test_least_squares_stencil_matches_the_closed_form():
-    # (2 f2 + f1 - f-1 - 2 f-2) / (10 h) (REFERENCES.md, derived)
+    # (2 f2 + f1 - f-1 - 2 f-2) / (10 h) (docs/references.md, derived)
     f = np.array([[0.0, 1.0, 4.0, 9.0, 16.0]])
     d = least_squares_derivative(f, 2.0, axis=1)
     assert d[0, 2] == pytest.approx((2 * 16 + 9 - 1 - 0) / 20.0)
@@ -54,7 +54,7 @@ def test_lamb_oseen_peak_vorticity():
 
 
 def test_noise_gain_is_045_e_over_h():
-    # least-squares stencil on vorticity: 0.45 e/h (REFERENCES.md, derived)
+    # least-squares stencil on vorticity: 0.45 e/h (docs/references.md, derived)
     rng = np.random.default_rng(1)
     e, h = 0.1, 4.0
     dx = rng.normal(0, e, (200, 200))

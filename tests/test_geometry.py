@@ -37,7 +37,7 @@ def test_positive_angle_is_rearward_for_both_flight_directions():
 
 
 def test_angle_from_stagnation_point():
-    # Angle from the front stagnation point = separation angle + 90 deg (DESIGN.md convention):
+    # Angle from the front stagnation point = separation angle + 90 deg (README convention):
     # -90 deg is the front stagnation point, +90 the rear one.
     front = point_at_angle((0.0, 0.0), 1.0, 0.0, "lower", -90.0)
     rear = point_at_angle((0.0, 0.0), 1.0, 0.0, "lower", 90.0)

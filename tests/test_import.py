@@ -14,7 +14,7 @@ from data.session_helpers import HEADER, write_pair, write_shot_folder
 
 from app.cli import main
 from core import WakelineError
-from core.session import Session, import_folder
+from core.store import Session, import_folder
 
 ROOT = Path(__file__).resolve().parent.parent
 
@@ -33,15 +33,15 @@ def test_good_folder_imports_every_shot_with_its_metadata(tmp_path):
     report = import_folder(src, tmp_path / "s.h5")
     assert report.imported == ["S0", "S1", "T1"] and report.problems == []
     with Session.open(tmp_path / "s.h5", writable=False) as s:
-        meta = s.record("S1").metadata
+        meta = s["S1"].metadata
         assert meta["dt_s"] == 2.5e-5 and meta["scale_mm_per_px"] is None  # derived from ball
         assert meta["seam_deg"] == -10.0 and meta["spin_rpm"] is None
         assert meta["operator"] == "Bo"  # unknown column kept as text
         assert s.settings_for("S1").scale_mm_per_px is None
-        assert s.record("T1").frames["path_b"] is None
+        assert s["T1"].frames["path_b"] is None
         frame_a, frame_b = s.load_frames("T1")
         np.testing.assert_array_equal(frame_a, frame_b)
-        assert s.record("S0").frames["path_a"] == "src/S0_a.tif"  # relative to the session
+        assert s["S0"].frames["path_a"] == "src/S0_a.tif"  # relative to the session
 
 
 def test_bad_rows_are_reported_by_line_and_shot_and_good_rows_imported(tmp_path, capsys):
@@ -56,7 +56,7 @@ def test_bad_rows_are_reported_by_line_and_shot_and_good_rows_imported(tmp_path,
     assert "shots.csv line 5 (shot S9): no frame files S9_a/_b" in err
     assert "S1_a.tif" in err  # the unused frame files are mentioned as a note
     with Session.open(tmp_path / "s.h5", writable=False) as s:
-        assert s.shot_ids() == ["S0", "S2"]
+        assert list(s) == ["S0", "S2"]
 
 
 def test_missing_column_refuses_the_manifest_and_creates_nothing(tmp_path, capsys):
@@ -110,7 +110,7 @@ def test_second_import_adds_to_an_existing_session(tmp_path):
     report = import_folder(two, tmp_path / "s.h5")
     assert report.problems == []
     with Session.open(tmp_path / "s.h5", writable=False) as s:
-        assert s.shot_ids() == ["S0", "X1"]
+        assert list(s) == ["S0", "X1"]
 
 
 def test_session_and_frames_moved_together_still_find_the_frames(tmp_path):
@@ -131,7 +131,7 @@ def test_import_command_from_the_shell(tmp_path):
     assert run.returncode == 0, run.stderr
     assert "imported 1 shot" in run.stdout
     with Session.open(tmp_path / "s.h5", writable=False) as s:
-        assert s.record("S0").frames["storage"] == "embedded"
+        assert s["S0"].frames["storage"] == "embedded"
     bad = subprocess.run([sys.executable, "-m", "app.cli", "import", str(tmp_path / "nowhere"),
                           str(tmp_path / "s.h5")], cwd=ROOT, capture_output=True, text=True,
                          timeout=120, check=False)
@@ -160,7 +160,7 @@ def test_quoted_notes_with_commas_and_line_breaks(tmp_path):
     (src / "shots.csv").write_text(f'{HEADER}\nS0,x,0.08,71.6,5,"two\nlines"\n')
     assert import_folder(src, tmp_path / "t.h5").problems[0].startswith("shots.csv line 2 ")
     with Session.open(tmp_path / "s.h5", writable=False) as s:
-        assert s.record("S0").metadata["notes"] == "seam up, new ball\nsecond line"
+        assert s["S0"].metadata["notes"] == "seam up, new ball\nsecond line"
 
 
 def test_an_import_stopped_part_way_keeps_what_it_imported(tmp_path):
@@ -175,7 +175,7 @@ def test_an_import_stopped_part_way_keeps_what_it_imported(tmp_path):
     assert report.imported == ["S0"]
     assert any("stopped after 1 of 3 rows" in note for note in report.notes)
     with Session.open(tmp_path / "s.h5") as s:
-        assert s.shot_ids() == ["S0"]
+        assert list(s) == ["S0"]
         assert s.check_frames(should_stop=lambda: True) == {}  # stopped before any shot
     again = import_folder(src, tmp_path / "s.h5")  # the rest comes in on a second run
     assert again.imported == ["S1", "S2"] and len(again.problems) == 1  # S0 already there

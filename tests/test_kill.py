@@ -14,7 +14,7 @@ from pathlib import Path
 import pytest
 from data.session_helpers import fast_settings, write_shot_folder
 
-from core.session import Session, import_folder
+from core.store import Session, import_folder
 
 ROOT = Path(__file__).resolve().parent.parent
 CHILD = Path(__file__).resolve().parent / "data" / "kill_child.py"
@@ -46,9 +46,9 @@ def _check(session: Session, picks: dict[str, list[str]], results: set[str]) -> 
         assert -1 not in positions, f"{shot_id}: confirmed edit lost ({confirmed} vs {notes})"
         assert positions == sorted(positions), f"{shot_id}: edits out of order"
         if notes:
-            assert session.record(shot_id).pick.note == notes[-1]
+            assert session[shot_id].pick.note == notes[-1]
     for shot_id in results:
-        assert session.record(shot_id).state == "processed"
+        assert session[shot_id].state == "processed"
         assert session.load_result(shot_id).field.dx_px.ndim == 2
 
 
@@ -57,7 +57,7 @@ def test_sigkill_at_random_instants_keeps_every_confirmed_change(tmp_path):
     import_folder(write_shot_folder(tmp_path / "src", 3), session_path)
     with Session.open(session_path) as s:
         s.set_processing_settings(fast_settings())
-        shot_ids = s.shot_ids()
+        shot_ids = list(s)
     rng = random.Random(4)
     picks: dict[str, list[str]] = {shot_id: [] for shot_id in shot_ids}
     results: set[str] = set()

@@ -9,7 +9,8 @@ os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 import numpy as np
 import pytest
 
-from core.session import Pick, ShotRecord
+from core.store import Pick, ShotRecord
+from core.summary import ShotSummary
 
 # showing a widget on the offscreen platform logs this harmless notice
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
@@ -17,10 +18,10 @@ pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSi
 
 def _record(shot_id, seam, status="to review", up=None, low=None, adj_up=None, adj_low=None,
             speed=None):
-    summary = {
+    summary = ShotSummary.from_dict({
         "separation": {"upper_deg": up, "lower_deg": low},
-        "flight": {"direction_deg": 180.0, "speed_m_s": speed},
-    }
+        "flight": {"direction_deg": 180.0, "speed_m_s": speed, "displacement_px": [-8.0, 0.0]},
+    })
     metadata = {"dt_s": 1e-4, "seam_deg": seam, "ball_type": "cricket", "notes": "x"}
     pick = Pick(status=status, upper_deg=adj_up, lower_deg=adj_low,
                 reason="bad seeding" if status == "unusable" else "")
@@ -40,7 +41,7 @@ def records():
 
 
 def test_points_follow_review_status(records):
-    from app.overview import overview_points
+    from app.review.overview import overview_points
 
     pts = overview_points(records, "seam_deg")
     assert pts.shot_ids == ["a1", "a2", "a3"]
@@ -54,7 +55,7 @@ def test_points_follow_review_status(records):
 
 
 def test_repeats_are_drawn_side_by_side():
-    from app.overview import spread_ties
+    from app.review.overview import spread_ties
 
     x = np.array([0.0, 20.0, 20.0, 40.0, 20.0])
     drawn = spread_ties(x, fraction=0.01)  # step 0.4 on a range of 40
@@ -62,7 +63,7 @@ def test_repeats_are_drawn_side_by_side():
 
 
 def test_numeric_columns_prefer_seam_and_add_pseudo_columns(records):
-    from app.overview import MEASURED_SPEED, SHOT_ORDER, column_value, numeric_columns
+    from app.review.overview import MEASURED_SPEED, SHOT_ORDER, column_value, numeric_columns
 
     columns = numeric_columns(records)
     assert columns[0] == "seam_deg"
@@ -74,7 +75,8 @@ def test_numeric_columns_prefer_seam_and_add_pseudo_columns(records):
 
 def test_panel_draws_and_switches_column(qtbot, records, tmp_path):
     from app import colours
-    from app.overview import SHOT_ORDER, SessionOverview
+    from app.qt.overview import SessionOverview
+    from app.review.overview import SHOT_ORDER
 
     panel = SessionOverview()
     qtbot.addWidget(panel)
@@ -107,7 +109,7 @@ def test_clicking_a_point_emits_its_shot(qtbot, records):
     from PySide6.QtCore import QPoint, Qt
     from PySide6.QtWidgets import QApplication
 
-    from app.overview import SessionOverview
+    from app.qt.overview import SessionOverview
 
     panel = SessionOverview()
     qtbot.addWidget(panel)
@@ -168,8 +170,8 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
     from pypdf import PdfReader
     from PySide6.QtWidgets import QFileDialog
 
-    from app.export import export_sheet
-    from core.session import Session, write_table_csv
+    from app.qt.export import export_sheet
+    from core.store import Session, write_table_csv
 
     window = _window(main_window, qtbot, make_session(4))
     texts = [a.text() for a in window.export_menu.actions()]

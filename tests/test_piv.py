@@ -227,16 +227,16 @@ def test_bad_frames_are_refused_with_one_line():
 
 @pytest.mark.parametrize("p", [PivPass(32, 0.5), PivPass(32, 0.6), PivPass(20, 0.75)])
 def test_masked_pixel_counts_match_a_direct_count(p):
-    from core.piv import _grid_for, _masked_counts
+    from core.piv.grid import grid_for, masked_counts
 
     mask = np.random.default_rng(0).random((100, 130)) < 0.3
-    g = _grid_for(mask.shape, p)
+    g = grid_for(mask.shape, p)
     direct = [
         mask[i * g.step : i * g.step + g.window, j * g.step : j * g.step + g.window].sum()
         for i in range(g.rows)
         for j in range(g.cols)
     ]
-    np.testing.assert_array_equal(_masked_counts(mask, g), direct)
+    np.testing.assert_array_equal(masked_counts(mask, g), direct)
 
 
 def test_small_integer_frames_and_odd_passes_work():
@@ -309,10 +309,10 @@ def test_result_does_not_depend_on_the_number_of_workers():
 
 
 def _uniform_predictor(grid, dx, dy):
-    from core.piv import _Predictor
+    from core.piv.predictor import Predictor
 
     shape = (grid.rows, grid.cols)
-    return _Predictor(grid, np.full(shape, dx), np.full(shape, dy))
+    return Predictor(grid, np.full(shape, dx), np.full(shape, dy))
 
 
 def test_block_shift_is_the_cubic_spline_shift_of_scipy():
@@ -321,12 +321,13 @@ def test_block_shift_is_the_cubic_spline_shift_of_scipy():
     # B by -d/2 (A'(x) = A(x - d/2), B'(x) = B(x + d/2)).
     from scipy import ndimage
 
-    from core.piv import _Frames, _grid_for
+    from core.piv.deform import Frames
+    from core.piv.grid import grid_for
 
     rng = np.random.default_rng(5)
     a, b = (rng.random((96, 128)).astype(np.float32) * 100 for _ in range(2))
-    grid = _grid_for(a.shape, PivPass(32, 0.5))
-    frames = _Frames(a, b, None, None, workers=1, power=1.0)
+    grid = grid_for(a.shape, PivPass(32, 0.5))
+    frames = Frames(a, b, None, None, workers=1, power=1.0)
     da, db, excluded = frames.deformed(_uniform_predictor(grid, 2.6, -1.3), grid, 0.1)
     for deformed, frame, sign in ((da, a, 1.0), (db, b, -1.0)):
         expected = ndimage.shift(frame, (sign * -0.65, sign * 1.3), order=3, mode="mirror")
@@ -339,7 +340,7 @@ def test_block_shift_is_the_cubic_spline_shift_of_scipy():
     # a mask of A moves with A to the nearest pixel: A'(y, x) = A(y + 0.65, x - 1.3)
     yy, xx = np.mgrid[0:96, 0:128]
     disc = np.hypot(xx - 60.0, yy - 45.0) <= 12.0
-    masked_frames = _Frames(a, b, disc, None, workers=1, power=1.0)
+    masked_frames = Frames(a, b, disc, None, workers=1, power=1.0)
     _, _, excluded = masked_frames.deformed(_uniform_predictor(grid, 2.6, -1.3), grid, 0.1)
     expected = np.zeros_like(disc)
     expected[:-1, 1:] = disc[1:, :-1]
@@ -352,15 +353,17 @@ def test_pixel_by_pixel_deformation_matches_map_coordinates_on_the_whole_frame()
     # (scipy, reference library).
     from scipy import ndimage
 
-    from core.piv import _Frames, _grid_for, _Predictor
+    from core.piv.deform import Frames
+    from core.piv.grid import grid_for
+    from core.piv.predictor import Predictor
 
     rng = np.random.default_rng(6)
     a, b = (rng.random((192, 192)).astype(np.float32) * 100 for _ in range(2))
-    grid = _grid_for(a.shape, PivPass(32, 0.5))
+    grid = grid_for(a.shape, PivPass(32, 0.5))
     y, x = np.meshgrid(grid.y_px, grid.x_px, indexing="ij")
     bump = 3.0 * np.exp(-((x - 96) ** 2 + (y - 96) ** 2) / (2 * 20.0**2))
-    predictor = _Predictor(grid, 1.2 + bump, 0.4 - bump)
-    frames = _Frames(a, b, None, None, workers=2, power=1.0)
+    predictor = Predictor(grid, 1.2 + bump, 0.4 - bump)
+    frames = Frames(a, b, None, None, workers=2, power=1.0)
     da, db, _ = frames.deformed(predictor, grid, 0.1)
     exact = predictor.change_across(grid) > 0.1
     assert 0 < exact.sum() < exact.size  # both kinds of windows occur

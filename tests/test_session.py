@@ -18,7 +18,7 @@ from data.make_session_v1 import EXPECTED as V1
 from data.session_helpers import fake_result, write_shot_folder
 
 from core import WakelineError
-from core.session import (
+from core.store import (
     FORMAT_VERSION,
     Pick,
     Session,
@@ -49,7 +49,7 @@ def test_pick_and_history_survive_close_and_reopen(session_path):
         s.set_pick("S1", status="accepted", who="ann")
         s.set_pick("S1", status="adjusted", upper_deg=8.5, note="later", who="ben")
     with Session.open(session_path, writable=False) as s:
-        rec = s.record("S1")
+        rec = s["S1"]
         assert rec.pick.status == "adjusted" and rec.pick.upper_deg == 8.5
         assert rec.final_deg("upper") == 8.5
         assert rec.final_deg("lower") == -2.0  # side left alone keeps the proposal
@@ -67,11 +67,11 @@ def test_edits_are_kept_by_the_journal_without_close(session_path):
     s._journal.close()  # as if the process died: no close(), no compaction
     s._lock.release()
     with Session.open(session_path) as again:
-        assert again.record("S0").pick.reason == "ball out of the sheet"
+        assert again["S0"].pick.reason == "ball out of the sheet"
         assert len(again.history("S0")) == 1
     assert not journal.exists()  # folded into the snapshot on close
     with Session.open(session_path, writable=False) as again:
-        assert again.record("S0").pick.status == "unusable"
+        assert again["S0"].pick.status == "unusable"
 
 
 def test_reprocessing_updates_the_proposal_and_keeps_the_pick(session_path):
@@ -81,7 +81,7 @@ def test_reprocessing_updates_the_proposal_and_keeps_the_pick(session_path):
         s.save_result("S2", fake_result(s.settings_for("S2"), 7.0, 2.0))
         s.save_failure("S2", "frame file gone")
     with Session.open(session_path, writable=False) as s:
-        rec = s.record("S2")
+        rec = s["S2"]
         assert rec.proposed_deg("upper") == 7.0 and rec.proposed_deg("lower") == 2.0
         assert rec.pick.status == "adjusted" and rec.pick.lower_deg == 3.0
         assert rec.state == "failed" and rec.failure == "frame file gone"
@@ -109,7 +109,7 @@ def test_result_arrays_round_trip_with_units(session_path):
 
 def test_records_read_no_field_data(session_path, monkeypatch):
     with Session.open(session_path) as s:
-        for shot_id in s.shot_ids():
+        for shot_id in s:
             s.save_result(shot_id, fake_result(s.settings_for(shot_id)))
     s = Session.open(session_path, writable=False)
 
@@ -117,7 +117,7 @@ def test_records_read_no_field_data(session_path, monkeypatch):
         raise AssertionError("records() opened the HDF5 file")
 
     monkeypatch.setattr(h5py, "File", refuse)
-    records = s.records()
+    records = list(s.values())
     assert [r.shot_id for r in records] == ["S0", "S1", "S2"]
     assert records[1].proposed_deg("upper") == 5.0 and records[1].uncertainty_deg("upper") == 1.5
     assert records[1].metadata["seam_deg"] == 10.0
@@ -127,7 +127,7 @@ def test_records_read_no_field_data(session_path, monkeypatch):
 def test_second_writer_gets_a_clear_read_only_message(session_path):
     with Session.open(session_path) as s:
         code = (
-            "import sys; from core.session import Session, SessionLocked\n"
+            "import sys; from core.store import Session, SessionLocked\n"
             f"try:\n    Session.open({str(session_path)!r})\n"
             "except SessionLocked as exc:\n    print(exc); sys.exit(3)\n"
         )
@@ -136,7 +136,7 @@ def test_second_writer_gets_a_clear_read_only_message(session_path):
         assert other.returncode == 3, other.stderr
         assert f"pid {os.getpid()}" in other.stdout and "read-only" in other.stdout
         with Session.open(session_path, writable=False) as reader:
-            assert reader.read_only and reader.shot_ids() == ["S0", "S1", "S2"]
+            assert reader.read_only and list(reader) == ["S0", "S1", "S2"]
             with pytest.raises(WakelineError, match="read-only"):
                 reader.set_pick("S0", status="accepted")
         s.set_pick("S0", status="accepted")
@@ -173,7 +173,7 @@ def test_torn_last_journal_line_is_ignored_and_appending_goes_on(session_path):
     with open(journal, "ab") as fh:
         fh.write(b'{"seq": 99, "op": "pick", "shot": "S0", "pick": {"stat')  # killed mid-write
     with Session.open(session_path, writable=False) as reader:
-        assert reader.record("S0").pick.status == "accepted"
+        assert reader["S0"].pick.status == "accepted"
     s = Session.open(session_path)
     s.set_pick("S0", status="unusable", reason="blurred")
     s._journal.close()
@@ -205,7 +205,7 @@ def test_leftovers_of_a_killed_writer_are_removed(session_path):
     (pending / "000000043.h5").write_bytes(b"not referenced by the journal")
     session_path.with_name("s.h5.tmp").write_bytes(b"half a snapshot")
     with Session.open(session_path) as s:
-        assert s.shot_ids() == ["S0", "S1", "S2"]
+        assert list(s) == ["S0", "S1", "S2"]
     assert not session_path.with_name("s.h5.tmp").exists()
     assert not pending.exists() or not any(pending.iterdir())
 
@@ -252,8 +252,8 @@ def test_newer_format_version_is_refused_with_a_message(session_path):
 
 def test_committed_format_1_file_still_opens():
     with Session.open(V1_FILE, writable=False) as s:
-        assert s.name == V1["name"] and s.shot_ids() == V1["shots"]
-        r1, r2 = s.record("R1"), s.record("R2")
+        assert s.name == V1["name"] and list(s) == V1["shots"]
+        r1, r2 = s["R1"], s["R2"]
         assert r1.proposed_deg("upper") == V1["R1"]["upper_proposed_deg"]
         assert r1.proposed_deg("lower") == V1["R1"]["lower_proposed_deg"]
         assert r1.pick.status == V1["R1"]["status"]
@@ -272,7 +272,7 @@ def test_committed_format_1_file_is_rewritten_in_the_current_format(tmp_path):
         s.set_pick("R2", status="unusable", reason="no ball")
     with Session.open(copy, writable=False) as s:
         assert len(s.history("R1")) == V1["R1"]["edits"]
-        assert s.record("R2").pick.reason == "no ball"
+        assert s["R2"].pick.reason == "no ball"
         assert s.load_result("R1") is not None
 
 
@@ -317,14 +317,37 @@ def test_bad_picks_are_refused_and_nothing_is_written(session_path, kwargs, mess
     with Session.open(session_path) as s:
         with pytest.raises(WakelineError, match=message):
             s.set_pick("S0", **kwargs)
-        assert s.history("S0") == [] and s.record("S0").pick == Pick()
+        assert s.history("S0") == [] and s["S0"].pick == Pick()
+
+
+def test_a_session_is_a_mapping_of_shot_records(session_path):
+    with Session.open(session_path, writable=False) as s:
+        assert "S1" in s and "S9" not in s and len(s) == 3
+        assert list(s) == ["S0", "S1", "S2"] and [r.shot_id for r in s.values()] == list(s)
+        assert s.get("S9") is None and s.get("S1").metadata["seam_deg"] == 10.0
+        with pytest.raises(KeyError):
+            s["S9"]
+        s["S1"].metadata["seam_deg"] = 99.0  # a copy: the session is not changed through it
+        assert s["S1"].metadata["seam_deg"] == 10.0
+
+
+def test_delete_removes_a_session_with_its_companion_files(session_path):
+    s = Session.open(session_path)
+    s.set_pick("S0", status="accepted")
+    with pytest.raises(SessionLocked):  # not while it is open for writing
+        Session.delete(session_path)
+    s._journal.close()  # as if the process died: its journal is left behind
+    s._lock.release()
+    session_path.with_name("s.h5.tmp").write_bytes(b"half a snapshot")
+    Session.delete(session_path)
+    assert sorted(p.name for p in session_path.parent.iterdir()) == ["src"]
 
 
 def test_unknown_shot_is_named(session_path):
     with Session.open(session_path, writable=False) as s, pytest.raises(
-        WakelineError, match="shot S9: not in s.h5"
+        WakelineError, match="^shot S9: not in s.h5$"
     ):
-        s.record("S9")
+        s["S9"]
 
 
 def test_settings_change_marks_shots_for_processing(session_path):
@@ -345,7 +368,7 @@ def test_repeated_reprocessing_does_not_grow_the_file_without_bound(session_path
     sizes, unused = [], []
     for run in range(8):
         with Session.open(session_path) as s:
-            for shot_id in s.shot_ids():
+            for shot_id in s:
                 s.save_result(shot_id, fake_result(s.settings_for(shot_id), float(run),
                                                    shape=(40, 50)))
             s.set_pick("S0", status="adjusted", upper_deg=float(run))
@@ -356,7 +379,7 @@ def test_repeated_reprocessing_does_not_grow_the_file_without_bound(session_path
     assert max(unused) > 0 and 0 in unused[1:]
     assert max(sizes) < 2.0 * sizes[0]
     with Session.open(session_path, writable=False) as s:
-        assert s.record("S2").proposed_deg("upper") == 7.0
+        assert s["S2"].proposed_deg("upper") == 7.0
         assert s.load_result("S2").separation.upper.angle_deg == 7.0
         assert [p.upper_deg for p in s.history("S0")] == [float(r) for r in range(8)]
         with h5py.File(session_path, "r") as f:
@@ -364,12 +387,12 @@ def test_repeated_reprocessing_does_not_grow_the_file_without_bound(session_path
 
 
 def test_reader_opening_during_a_compaction_sees_a_consistent_session(session_path, monkeypatch):
-    import core.session as store
+    import core.store.session as store
 
     writer = Session.open(session_path)
     writer.save_result("S0", fake_result(writer.settings_for("S0"), 3.0))
     writer.set_pick("S0", status="accepted")
-    real_read = store._read_snapshot
+    real_read = store.read_snapshot
     calls = []
 
     def read_then_writer_compacts(path):
@@ -379,18 +402,18 @@ def test_reader_opening_during_a_compaction_sees_a_consistent_session(session_pa
         calls.append(path)
         return snapshot
 
-    monkeypatch.setattr(store, "_read_snapshot", read_then_writer_compacts)
+    monkeypatch.setattr(store, "read_snapshot", read_then_writer_compacts)
     with Session.open(session_path, writable=False) as reader:
         assert len(calls) == 2  # read again after seeing the file change
-        assert reader.record("S0").pick.status == "accepted"
+        assert reader["S0"].pick.status == "accepted"
         assert reader.load_result("S0").separation.upper.angle_deg == 3.0
     writer.close()
 
 
 def test_stale_lock_removal_puts_back_a_lock_taken_meanwhile(session_path):
-    from core.session import _Lock
+    from core.store.lock import Lock
 
-    lock = _Lock(session_path)
+    lock = Lock(session_path)
     fresh = {"host": socket.gethostname(), "pid": os.getpid(), "since": "now"}
     lock.path.write_text(json.dumps(fresh))  # another opener won the race a moment ago
     lock._remove_stale({"host": socket.gethostname(), "pid": 999999999, "since": "long ago"})
@@ -411,10 +434,10 @@ def test_a_failed_journal_write_leaves_no_partial_line(session_path, monkeypatch
     with pytest.raises(OSError, match="No space left"):
         s.set_pick("S1", status="accepted")
     monkeypatch.setattr(os, "write", real_write)
-    assert s.record("S1").pick.status == "to review"  # not applied either
+    assert s["S1"].pick.status == "to review"  # not applied either
     s.set_pick("S2", status="accepted")
     s._journal.close()
     s._lock.release()
     with Session.open(session_path, writable=False) as again:
-        assert [again.record(x).pick.status for x in ("S0", "S1", "S2")] == [
+        assert [again[x].pick.status for x in ("S0", "S1", "S2")] == [
             "accepted", "to review", "accepted"]

@@ -25,7 +25,7 @@ PICKS = {
 @pytest.fixture
 def reviewed_session(make_session):
     """Five processed shots (analytic results with proposals) and the picks above."""
-    from core.session import Session
+    from core.store import Session
 
     path = make_session(5, name="sheet demo")
     with Session.open(path) as session:
@@ -43,7 +43,7 @@ def _pdf_text(path) -> tuple[int, str]:
 
 
 def _table(session_path, out_csv) -> list[dict]:
-    from core.session import Session, write_table_csv
+    from core.store import Session, write_table_csv
 
     with Session.open(session_path, writable=False) as session:
         write_table_csv(session, out_csv)
@@ -52,8 +52,9 @@ def _table(session_path, out_csv) -> list[dict]:
 
 
 def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
-    from app.sheet import format_angle, make_sheet
-    from core.session import Session
+    from app.review.text import angle_text
+    from app.sheet import make_sheet
+    from core.store import Session
 
     out = tmp_path / "sheet.pdf"
     with Session.open(reviewed_session, writable=False) as session:
@@ -68,7 +69,7 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
             cell = row[f"{side}_final_deg"]
             if cell:
                 finals += 1
-                assert format_angle(float(cell)) in text, (row["shot"], side, cell)
+                assert angle_text(float(cell)) in text, (row["shot"], side, cell)
     assert finals == 6  # s01 both (accepted), s02 both, s05 both (adjusted one side each)
     assert "17.2" in text or "17.3" in text  # the analyst's value, not the proposal
     assert "ADJUSTED" in text and "ball cut by the frame edge" in text
@@ -80,7 +81,7 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
 
 def test_sheet_page_renders_with_content(reviewed_session, tmp_path):
     from app.sheet import make_sheet
-    from core.session import Session
+    from core.store import Session
 
     if shutil.which("pdftoppm") is None:
         pytest.fail("pdftoppm (poppler-utils) is needed; scripts/setup.sh installs it")
@@ -101,7 +102,7 @@ def test_sheet_page_renders_with_content(reviewed_session, tmp_path):
 def test_sheet_selection_and_layout(reviewed_session, tmp_path):
     from app.sheet import make_sheet, summary_rows
     from core import WakelineError
-    from core.session import Session
+    from core.store import Session
 
     with Session.open(reviewed_session, writable=False) as session:
         report = make_sheet(session, tmp_path / "a.pdf", statuses=("accepted", "adjusted"),
@@ -118,7 +119,7 @@ def test_sheet_selection_and_layout(reviewed_session, tmp_path):
             make_sheet(session, tmp_path / "c.pdf", shot_ids=["s03"], statuses=("accepted",))
         with pytest.raises(WakelineError, match="not a numeric column"):
             make_sheet(session, tmp_path / "c.pdf", column="notes")
-        rows = summary_rows(session.records(), "seam_deg")
+        rows = summary_rows(list(session.values()), "seam_deg")
     assert not (tmp_path / "c.pdf").exists()
     # one row per seam angle with a final value: s01 (-10), s02 (0), s05 (45)
     assert [r.value for r in rows] == [-10.0, 0.0, 45.0]
@@ -128,10 +129,11 @@ def test_sheet_selection_and_layout(reviewed_session, tmp_path):
 def test_summary_statistics():
     """Mean and sample SD (n-1) per group (derived: closed forms of the listed values)."""
     from app.sheet import summary_rows
-    from core.session import Pick, ShotRecord
+    from core.store import Pick, ShotRecord
+    from core.summary import ShotSummary
 
     def rec(shot_id, seam, up, low):
-        summary = {"separation": {"upper_deg": up, "lower_deg": low}}
+        summary = ShotSummary.from_dict({"separation": {"upper_deg": up, "lower_deg": low}})
         return ShotRecord(shot_id, {"seam_deg": seam}, state="processed", summary=summary,
                           pick=Pick(status="accepted"))
 

@@ -8,7 +8,7 @@ import pytest
 from data.session_helpers import fake_result, write_shot_folder
 
 from app.cli import main
-from core.session import Session, import_folder, session_table_rows
+from core.store import Session, import_folder, session_table_rows
 
 REQUIRED = ("shot", "upper_proposed_deg", "lower_proposed_deg", "upper_final_deg",
             "lower_final_deg", "review_status")

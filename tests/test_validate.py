@@ -4,7 +4,7 @@ import numpy as np
 import pytest
 
 from core import synth
-from core.validate import nanmedian_first_axis, normalized_median_test, replace_outliers
+from core.piv.validate import nanmedian_first_axis, normalized_median_test, replace_outliers
 
 
 def _smooth_field(seed=0, noise_px=0.05):
@@ -30,8 +30,8 @@ def test_single_spike_on_a_uniform_field_against_the_hand_worked_residual():
 
 
 def test_injected_outliers_are_caught_and_good_vectors_kept():
-    # Catch rate: no published value (REFERENCES: Westerweel & Scarano 2005, memory for the
-    # constants threshold 2, eps 0.1 px); we require near-total detection of injected random
+    # Catch rate: no published value (docs/references.md: Westerweel & Scarano 2005, memory for
+    # the constants threshold 2, eps 0.1 px); we require near-total detection of injected random
     # vectors with few false rejections (common practice).
     tx, ty, dx, dy = _smooth_field()
     rng = np.random.default_rng(1)

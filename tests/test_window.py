@@ -12,9 +12,9 @@ from PySide6.QtGui import QDropEvent, QMouseEvent
 from PySide6.QtWidgets import QApplication
 
 from core.geometry import angle_of_point, point_at_angle
-from core.session import Session
+from core.store import Session
 
-# The offscreen platform warns that it cannot propagate size hints; harmless (QT_HEADLESS.md).
+# The offscreen platform warns that it cannot propagate size hints; harmless (DEVELOPERS.md).
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
 
 
@@ -147,7 +147,7 @@ def test_drag_upper_mark_follows_geometry_undo_redo_and_reopen(main_window, make
 
     window.close()
     with Session.open(path, writable=False) as session:
-        kept = session.record("s01")
+        kept = session["s01"]
         history = session.history("s01")
     assert kept.pick.status == "adjusted"
     assert kept.final_deg("upper") == pytest.approx(redone.final_deg("upper"))
@@ -156,7 +156,7 @@ def test_drag_upper_mark_follows_geometry_undo_redo_and_reopen(main_window, make
 
 def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot, monkeypatch):
     path = make_session(4)
-    monkeypatch.setattr("app.window.QInputDialog.getText",
+    monkeypatch.setattr("app.qt.window_review.QInputDialog.getText",
                         lambda *a, **k: ("laser sheet misfired", True))
     window = _open(main_window, qtbot, path, show=True)
     window.shot_list.view.setFocus()
@@ -182,7 +182,7 @@ def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot, 
     window.close()
 
     with Session.open(path, writable=False) as session:
-        s01, s02, s03, s04 = (session.record(s) for s in ("s01", "s02", "s03", "s04"))
+        s01, s02, s03, s04 = (session[s] for s in ("s01", "s02", "s03", "s04"))
     assert s01.pick.status == "accepted"
     assert s01.final_deg("upper") == s01.proposed_deg("upper")
     assert s02.pick.status == "unusable" and s02.pick.reason == "laser sheet misfired"
@@ -361,7 +361,7 @@ def test_filter_by_status_and_metadata(main_window, make_session, qtbot):
 def test_unexpected_error_is_logged_and_shown(main_window, make_session, qtbot):
     import logging
 
-    from app.window import install_excepthook, log_file
+    from app.qt.window import install_excepthook, log_file
 
     path = make_session(2)
     window = _open(main_window, qtbot, path)
@@ -480,7 +480,7 @@ def test_frame_check_reports_a_changed_file(main_window, make_session, qtbot, tm
 def test_run_window_opens_the_session_and_returns_when_closed(make_session, qtbot):
     from PySide6.QtCore import QTimer
 
-    from app.window import MainWindow, run_window
+    from app.qt.window import MainWindow, run_window
 
     path = make_session(2)
     seen = {}

@@ -10,8 +10,9 @@ from __future__ import annotations
 import os
 import sys
 
+import core.piv  # noqa: F401 - the measurement loaded before "open", as in a writer that runs
 from core.batch import iter_process
-from core.session import Session
+from core.store import Session
 
 
 def main(session_path: str, confirm_path: str, tag: str) -> None:
@@ -24,7 +25,7 @@ def main(session_path: str, confirm_path: str, tag: str) -> None:
     confirm("open")
     n = 0
     while True:
-        for shot_id in session.shot_ids():
+        for shot_id in session:
             n += 1
             note = f"{tag}-{n}"
             session.set_pick(shot_id, status="adjusted", upper_deg=float(n), note=note)

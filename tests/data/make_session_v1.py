@@ -20,7 +20,7 @@ sys.path[:0] = [str(HERE.parent.parent), str(HERE.parent)]
 
 from data.session_helpers import fake_result
 
-from core.session import FORMAT_VERSION, Session
+from core.store import FORMAT_VERSION, Session
 
 #: What the committed file holds (the test checks these values).
 EXPECTED = {

@@ -7,8 +7,8 @@ from pathlib import Path
 import numpy as np
 import tifffile
 
-from core.piv import PivPass, PivSettings
 from core.results import Flight, SeparationResult, SideProposal, VectorField
+from core.settings import PivPass, PivSettings
 from core.shot import ShotResult, ShotSettings
 from core.synth import particle_pair
 

@@ -1,0 +1,195 @@
+"""`wakeline demo`: the bundled demo session, processed and reviewed, in the window or on paper."""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import shutil
+import sys
+from pathlib import Path
+
+from app.cli import display
+from app.cli.options import whole_count
+from core import WakelineError
+
+SAMPLE_RUNS = Path(__file__).resolve().parents[2] / "sample_runs"
+DEMO_SESSION = "demo_session.h5"
+DEMO_SHEET = "demo_sheet.pdf"
+DEMO_TABLE = "demo_table.csv"
+DEMO_REVIEWER = "demo analyst (invented)"
+DEMO_NAME = "Seam-angle sweep, new cricket ball at 30 m/s (invented demo)"
+DEMO_INPUTS = ("shots.csv", "truth.csv", "reviews.csv", "README.md")
+
+
+def add_commands(subparsers) -> None:
+    _add_demo(subparsers)
+
+
+def _add_demo(subparsers) -> None:
+    p = subparsers.add_parser(
+        "demo",
+        help="process the bundled demo session and open it",
+        description="Copy the bundled demo shots (an invented seam-angle sweep of a cricket "
+        "ball, see sample_runs/README.md) to a folder of yours, import and process them, replay "
+        "the invented analyst's review decisions, then open the review window. With no display "
+        "(or --no-window) write the shot sheet PDF and the CSV table next to the session instead.",
+    )
+    p.add_argument("--out", type=Path, metavar="DIR",
+                   help="where the demo session goes (default: ~/.local/share/wakeline/demo)")
+    p.add_argument("--no-window", action="store_true",
+                   help="do not open the window; write the shot sheet and the table")
+    p.add_argument("--fresh", action="store_true",
+                   help="start again from the bundled shots, discarding the demo session's edits")
+    p.add_argument("--workers", type=whole_count, metavar="N",
+                   help="worker processes (default: all cores; 0 = in this process)")
+    p.set_defaults(func=run_demo)
+
+
+def demo_dir(out: Path | None) -> Path:
+    """The folder of the demo session (created)."""
+    from core.paths import user_data_dir
+
+    folder = Path(out) if out is not None else user_data_dir() / "demo"
+    if folder.resolve() == SAMPLE_RUNS.resolve():
+        raise WakelineError(f"{folder}: the bundled demo folder is kept as shipped; choose --out")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise WakelineError(f"{folder}: cannot create the demo folder ({exc.strerror})") from None
+    return folder
+
+
+def run_demo(args: argparse.Namespace) -> int:
+    folder = demo_dir(args.out)
+    session_path = prepare_demo(folder, fresh=args.fresh)
+    process_demo(session_path, workers=args.workers)
+    if args.no_window or not display.has_display():
+        if not args.no_window:
+            print("no display found: writing the shot sheet and the table instead of opening "
+                  "the window")
+        return write_demo_outputs(session_path)
+    from app.qt.window import run_window
+
+    return run_window(session_path)
+
+
+def prepare_demo(folder: Path, fresh: bool = False) -> Path:
+    """Copy the bundled shots into ``folder/frames`` and import them (unless already there).
+
+    Returns the session path. With ``fresh`` an earlier demo session in ``folder`` is removed
+    first (only the files this command makes).
+    """
+    from core.store import Session, import_folder
+
+    if not (SAMPLE_RUNS / "shots.csv").is_file():
+        raise WakelineError(f"{SAMPLE_RUNS}: the bundled demo shots are missing (shots.csv)")
+    session_path = folder / DEMO_SESSION
+    if fresh:
+        _remove_demo_session(session_path)
+    if session_path.exists():
+        print(f"{session_path}: using the existing demo session (--fresh starts again)")
+        return session_path
+    frames = folder / "frames"
+    frames.mkdir(parents=True, exist_ok=True)
+    for src in [SAMPLE_RUNS / n for n in DEMO_INPUTS] + sorted(SAMPLE_RUNS.glob("*.tif")):
+        if src.is_file():
+            shutil.copyfile(src, frames / src.name)
+    Session.create(session_path, name=DEMO_NAME).close()
+    report = import_folder(frames, session_path)
+    if report.problems:
+        raise WakelineError(f"{frames}: demo import failed: {report.problems[0]}")
+    print(f"{session_path}: imported {len(report.imported)} demo shot(s)")
+    return session_path
+
+
+def _remove_demo_session(session_path: Path) -> None:
+    """The demo session and its outputs; refused (SessionLocked) while a window has it open,
+    done for a damaged one (starting again is what --fresh is for)."""
+    from core.store import Session
+
+    Session.delete(session_path)
+    for name in (DEMO_SHEET, DEMO_TABLE):
+        (session_path.parent / name).unlink(missing_ok=True)
+
+
+def process_demo(session_path: Path, workers: int | None = None) -> None:
+    """Process the shots not yet processed, then replay the invented reviews on untouched shots."""
+    from core.batch import process_shots
+    from core.store import Session
+
+    with Session.open(session_path) as session:
+
+        def show(outcome) -> None:
+            state = "ok" if outcome.ok else f"failed: {outcome.message}"
+            print(f"  {outcome.shot_id} {state} ({outcome.done}/{outcome.total})", file=sys.stderr)
+
+        report = process_shots(session, workers=workers, on_result=show)
+        if report.interrupted:
+            raise WakelineError(f"{session_path}: processing stopped; run the demo again")
+        applied = replay_reviews(session, session_path.parent / "frames" / "reviews.csv")
+    print(f"{session_path}: processed {len(report.processed)} shot(s)"
+          + (f", {len(report.failed)} failed" if report.failed else "")
+          + (f"; replayed {applied} review decision(s)" if applied else ""))
+
+
+def replay_reviews(session, reviews_csv: Path) -> int:
+    """Replay the invented analyst's review on processed shots nobody has touched yet.
+
+    Each row gives the analyst's marks (deg) or a reason the shot is unusable. A proposal within
+    ``ACCEPT_TOLERANCE_DEG`` of the marks on both sides is accepted; otherwise the sides that are
+    off are moved to the marks (adjusted). Returns the number of shots reviewed.
+    """
+    from core.store import ProcessState, ReviewStatus
+
+    if not reviews_csv.is_file():
+        return 0
+    applied = 0
+    with open(reviews_csv, encoding="utf-8", newline="") as fh:
+        for row in csv.DictReader(fh):
+            shot_id = row["shot"]
+            if shot_id not in session or session.history(shot_id):
+                continue
+            record = session[shot_id]
+            if record.state != ProcessState.PROCESSED:
+                continue
+            note = row.get("note") or None
+            if row.get("unusable_reason"):
+                session.set_pick(shot_id, status=ReviewStatus.UNUSABLE,
+                                 reason=row["unusable_reason"], note=note, who=DEMO_REVIEWER)
+            else:
+                moved = _moved_sides(record, row)
+                status = ReviewStatus.ADJUSTED if moved else ReviewStatus.ACCEPTED
+                session.set_pick(shot_id, status=status, note=note, who=DEMO_REVIEWER, **moved)
+            applied += 1
+    return applied
+
+
+ACCEPT_TOLERANCE_DEG = 2.0
+
+
+def _moved_sides(record, row: dict) -> dict[str, float]:
+    """``{"upper_deg": mark, ...}`` for each side whose proposal is off the analyst's mark."""
+    moved = {}
+    for side in ("upper", "lower"):
+        if not row.get(f"{side}_deg"):
+            continue
+        mark = float(row[f"{side}_deg"])
+        proposed = record.proposed_deg(side)
+        if proposed is None or abs(proposed - mark) > ACCEPT_TOLERANCE_DEG:
+            moved[f"{side}_deg"] = mark
+    return moved
+
+
+def write_demo_outputs(session_path: Path) -> int:
+    """Write the demo's shot sheet and table next to the session and print their paths."""
+    from app.sheet import make_sheet
+    from core.store import Session, write_table_csv
+
+    sheet_path = session_path.parent / DEMO_SHEET
+    table_path = session_path.parent / DEMO_TABLE
+    with Session.open(session_path, writable=False) as session:
+        report = make_sheet(session, sheet_path)
+        write_table_csv(session, table_path)
+    print(f"shot sheet: {sheet_path} ({report.pages} pages)")
+    print(f"table:      {table_path}")
+    return 0

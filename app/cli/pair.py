@@ -1,0 +1,104 @@
+"""`wakeline pair`: measure one frame pair headless and write its JSON and vector CSV."""
+
+from __future__ import annotations
+
+import argparse
+import csv
+import json
+from pathlib import Path
+
+import numpy as np
+
+from app.review.text import shot_rows
+from core import WakelineError
+from core.store.files import atomic_write
+from core.summary import ShotSummary
+
+
+def add_commands(subparsers) -> None:
+    p = subparsers.add_parser(
+        "pair",
+        help="measure one frame pair (headless)",
+        description="Measure one frame pair: ball, flight, velocity field, vorticity and "
+        "proposed separation angles. Prints a summary; --json and --vectors write files.",
+    )
+    p.add_argument("frame_a", help="frame A (TIFF or PNG), or a two-page TIFF holding both frames")
+    p.add_argument("frame_b", nargs="?", help="frame B (omit when frame_a is a two-page TIFF)")
+    p.add_argument("--dt", type=float, metavar="S", help="time between the frames, seconds")
+    p.add_argument("--scale", type=float, metavar="MM_PER_PX", help="image scale, mm per pixel")
+    p.add_argument("--ball-diameter", type=float, metavar="MM", help="ball diameter, mm")
+    p.add_argument("--ball-type", choices=_ball_types(), help="use the rulebook nominal diameter")
+    p.add_argument("--no-ball", action="store_true", help="no ball in the picture: PIV only")
+    p.add_argument("--flight-deg", type=float, metavar="D",
+                   help="flight direction override, deg (0 = +x, 90 = toward the top)")
+    p.add_argument("--json", type=Path, metavar="OUT", help="write the result record as JSON")
+    p.add_argument("--vectors", type=Path, metavar="OUT.csv",
+                   help="write vectors as CSV: x_px,y_px,dx_px,dy_px,valid")
+    p.set_defaults(func=run_pair)
+
+
+def _ball_types() -> list[str]:
+    from core.ball import NOMINAL_BALL_DIAMETER_MM
+
+    return sorted(NOMINAL_BALL_DIAMETER_MM)
+
+
+def run_pair(args: argparse.Namespace) -> int:
+    from core.images import read_frame_pair
+    from core.shot import ShotSettings, measure_shot
+
+    _check_positive(args.dt, "--dt")
+    _check_positive(args.scale, "--scale")
+    _check_positive(args.ball_diameter, "--ball-diameter")
+    frame_a, frame_b = read_frame_pair(args.frame_a, args.frame_b)
+    settings = ShotSettings(
+        dt_s=args.dt,
+        scale_mm_per_px=args.scale,
+        ball_diameter_mm=args.ball_diameter,
+        ball_type=args.ball_type,
+        find_ball=not args.no_ball,
+        flight_deg=args.flight_deg,
+    )
+    result = measure_shot(frame_a, frame_b, settings)
+    summary = result.summary()
+    if args.json:
+        _write_text(args.json, json.dumps(summary, indent=2) + "\n")
+    if args.vectors:
+        write_vectors_csv(args.vectors, result.field)
+    print(describe(ShotSummary.from_dict(summary)))
+    return 0
+
+
+def _check_positive(value: float | None, option: str) -> None:
+    if value is not None and not (np.isfinite(value) and value > 0):
+        raise WakelineError(f"{option}: must be a positive number, got {value}")
+
+
+def _write_text(path: Path, text: str) -> None:
+    try:
+        with atomic_write(path) as tmp:
+            tmp.write_text(text, encoding="utf-8")
+    except OSError as exc:
+        raise WakelineError(f"{path}: cannot write ({exc.strerror})") from None
+
+
+def write_vectors_csv(path: Path, field) -> None:
+    """CSV of every grid vector (masked ones as NaN with valid 0), image coordinates, px."""
+    try:
+        with atomic_write(path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
+            writer = csv.writer(fh)
+            writer.writerow(["x_px", "y_px", "dx_px", "dy_px", "valid"])
+            for x, y, dx, dy, ok in zip(
+                field.x_px.ravel(), field.y_px.ravel(), field.dx_px.ravel(),
+                field.dy_px.ravel(), field.valid.ravel(),
+            ):
+                writer.writerow([f"{x:.2f}", f"{y:.2f}", f"{dx:.4f}", f"{dy:.4f}", int(bool(ok))])
+    except OSError as exc:
+        raise WakelineError(f"{path}: cannot write ({exc.strerror})") from None
+
+
+def describe(summary: ShotSummary) -> str:
+    """A few human lines about a shot's result (the words of ``app.review.text``)."""
+    lines = [f"{label}: {text}" for label, text in shot_rows(summary)]
+    lines += [f"warning: {warning}" for warning in summary.warnings]
+    return "\n".join(lines)

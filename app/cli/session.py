@@ -1,0 +1,179 @@
+"""`wakeline import`, `wakeline process`, `wakeline table`: sessions from the command line."""
+
+from __future__ import annotations
+
+import argparse
+import json
+import signal
+import sys
+from pathlib import Path
+
+from app.cli.options import whole_count
+from core import WakelineError
+
+
+def add_commands(subparsers) -> None:
+    _add_import(subparsers)
+    _add_process(subparsers)
+    _add_table(subparsers)
+
+
+def _add_import(subparsers) -> None:
+    p = subparsers.add_parser(
+        "import",
+        help="import a folder of shots into a session",
+        description="Import the shots listed in SRC_DIR/shots.csv (columns shot, dt_s, "
+        "scale_mm_per_px, ball_diameter_mm, and optional ball_type, speed_nominal_m_s, "
+        "spin_rpm, spin_axis_deg, seam_deg, flight_deg, notes; other columns are kept as "
+        "metadata). "
+        "Frames are <shot>_a.<tif|png> and <shot>_b.<tif|png>, or one two-page <shot>.tif. "
+        "The session is created if it does not exist. Bad rows are reported by line and "
+        "shot; the good ones are imported and the exit code is 1.",
+    )
+    p.add_argument("src_dir", type=Path, help="folder with shots.csv and the frame files")
+    p.add_argument("session", type=Path, help="session file (.h5)")
+    p.add_argument("--embed", action="store_true",
+                   help="store the frames compressed inside the session instead of "
+                   "referencing them by path")
+    p.set_defaults(func=run_import)
+
+
+def _add_process(subparsers) -> None:
+    p = subparsers.add_parser(
+        "process",
+        help="measure every shot of a session not yet processed with its settings",
+        description="Measure the shots of a session in parallel worker processes, saving each "
+        "result as it arrives; an interrupted run (Ctrl-C) keeps what finished and the next "
+        "run goes on with the rest. Shots already processed with the same settings are "
+        "skipped unless --force. Exit code 1 when a shot failed or the run was stopped.",
+    )
+    p.add_argument("session", type=Path, help="session file (.h5)")
+    p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
+    p.add_argument("--workers", type=whole_count, metavar="N",
+                   help="worker processes (default: all cores; 0 = in this process)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="tcp://HOST:PORT of a dask scheduler: measure on that cluster "
+                   "(its workers must see the session and frame files at the same paths)")
+    p.add_argument("--force", action="store_true", help="measure again even if up to date")
+    p.add_argument("--settings", type=Path, metavar="JSON",
+                   help="new processing settings for the session, e.g. "
+                   '{"piv": {"passes": [{"window_px": 64, "overlap": 0.5}]}, "find_ball": true}')
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=run_process)
+
+
+def _add_table(subparsers) -> None:
+    p = subparsers.add_parser(
+        "table",
+        help="write the table of picks as CSV",
+        description="One row per shot: metadata, proposed and final separation angles on both "
+        "sides, uncertainty, wake deflection and state, review status, who and when. "
+        "UTF-8 CSV with a header row; units are in the column names; empty cell = no value.",
+    )
+    p.add_argument("session", type=Path, help="session file (.h5)")
+    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.csv")
+    p.set_defaults(func=run_table)
+
+
+def run_import(args: argparse.Namespace) -> int:
+    from core.store import import_folder
+
+    if not args.src_dir.is_dir():
+        raise WakelineError(f"{args.src_dir}: folder not found")
+    report = import_folder(args.src_dir, args.session, embed=args.embed)
+    for problem in report.problems:
+        print(f"wakeline: {problem}", file=sys.stderr)
+    for note in report.notes:
+        print(f"note: {note}", file=sys.stderr)
+    print(f"{args.session}: imported {len(report.imported)} shot(s)"
+          + (f", {len(report.problems)} problem(s)" if report.problems else ""))
+    return 1 if report.problems else 0
+
+
+class _StopFlag:
+    """First Ctrl-C asks the run to stop after the shots in hand; a second one aborts."""
+
+    def __init__(self):
+        self.stop = False
+
+    def __call__(self) -> bool:
+        return self.stop
+
+    def on_sigint(self, signum, frame) -> None:
+        if self.stop:
+            raise KeyboardInterrupt
+        self.stop = True
+        print("\nstopping: finished shots are kept (Ctrl-C again to abort)", file=sys.stderr)
+
+
+def run_process(args: argparse.Namespace) -> int:
+    from core.batch import plan_shots, process_shots
+    from core.store import Session
+
+    with Session.open(args.session) as session:
+        if args.settings is not None:
+            session.set_processing_settings(_read_settings(args.settings))
+        todo, skipped = plan_shots(session, args.shots, args.force)
+        if skipped:
+            print(f"{len(skipped)} shot(s) already processed with these settings")
+        flag = _StopFlag()
+        previous = signal.signal(signal.SIGINT, flag.on_sigint)
+        bar = _progress_bar(len(todo), args.quiet)
+        try:
+            report = process_shots(session, todo, workers=args.workers, scheduler=args.scheduler,
+                                   force=True, on_result=lambda o: _show(bar, o),
+                                   should_stop=flag)
+        finally:
+            bar.close()
+            signal.signal(signal.SIGINT, previous)
+    return _process_summary(args.session, report)
+
+
+def _read_settings(path: Path) -> dict:
+    try:
+        data = json.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise WakelineError(f"{path}: file not found") from None
+    except ValueError as exc:
+        raise WakelineError(f"{path}: not valid JSON ({exc})") from None
+    if not isinstance(data, dict):
+        raise WakelineError(f"{path}: expected a JSON object of settings")
+    return data
+
+
+def _progress_bar(total: int, quiet: bool):
+    from tqdm import tqdm
+
+    return tqdm(total=total, unit="shot", desc="processing", disable=quiet or total == 0,
+                file=sys.stderr, dynamic_ncols=True)
+
+
+def _show(bar, outcome) -> None:
+    if not outcome.ok:
+        bar.write(f"wakeline: {_with_shot(outcome.shot_id, outcome.message)}", file=sys.stderr)
+    bar.update(1)
+
+
+def _with_shot(shot_id: str, message: str) -> str:
+    return message if message.startswith(f"shot {shot_id}:") else f"shot {shot_id}: {message}"
+
+
+def _process_summary(path: Path, report) -> int:
+    line = f"{path}: processed {len(report.processed)} shot(s)"
+    if report.failed:
+        line += f", {len(report.failed)} failed"
+    if report.skipped:
+        line += f", {len(report.skipped)} already up to date"
+    if report.interrupted:
+        line += f"; stopped with {report.not_run} shot(s) left for the next run"
+    print(f"{line} ({report.elapsed_s:.1f} s)")
+    return 1 if report.failed or report.interrupted else 0
+
+
+def run_table(args: argparse.Namespace) -> int:
+    from core.store import Session, write_table_csv
+
+    with Session.open(args.session, writable=False) as session:
+        count = write_table_csv(session, args.output)
+    print(f"{args.output}: {count} shot(s)")
+    return 0

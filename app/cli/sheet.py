@@ -1,0 +1,46 @@
+"""`wakeline sheet`: the shot sheet PDF of a session."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+
+def add_commands(subparsers) -> None:
+    _add_sheet(subparsers)
+
+
+def _add_sheet(subparsers) -> None:
+    p = subparsers.add_parser(
+        "sheet",
+        help="write the shot sheet of a session as PDF",
+        description="Write a vector PDF handing over a session: a cover page (counts by review "
+        "status, the overview plot of separation angles, a summary table of the final angles) "
+        "and a panel per shot (vorticity and vectors, ball, flight, separation marks, numbers, "
+        "metadata, review). Needs no display.",
+    )
+    p.add_argument("session", type=Path, help="session file (.h5)")
+    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.pdf",
+                   help="the PDF to write")
+    p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
+    p.add_argument("--per-page", type=int, default=2, choices=(1, 2, 3, 4), metavar="N",
+                   help="shot panels per page: 1, 2 (default), 3 or 4")
+    p.add_argument("--status", metavar="LIST",
+                   help="only shots with these review statuses, comma-separated, e.g. "
+                   "accepted,adjusted (statuses: to review, accepted, adjusted, unusable)")
+    p.add_argument("--column", metavar="NAME",
+                   help="numeric metadata column for the overview and the summary table "
+                   "(default: seam_deg when present)")
+    p.set_defaults(func=run_sheet)
+
+
+def run_sheet(args: argparse.Namespace) -> int:
+    from app.sheet import make_sheet, parse_statuses
+    from core.store import Session
+
+    statuses = parse_statuses(args.status)
+    with Session.open(args.session, writable=False) as session:
+        report = make_sheet(session, args.output, shot_ids=args.shots, per_page=args.per_page,
+                            statuses=statuses, column=args.column)
+    print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
+    return 0

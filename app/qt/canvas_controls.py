@@ -1,0 +1,218 @@
+"""The canvas's layer controls: the picture (frame A, frame B, flicker, none), vectors and their
+stride, vorticity and its colour range, the overlays, side by side; and their state, which the
+window keeps in the user's settings. A part of ``ShotCanvas`` (``app.qt.canvas``).
+"""
+
+from __future__ import annotations
+
+import math
+from enum import StrEnum
+
+from PySide6.QtCore import Qt
+from PySide6.QtGui import QAction
+from PySide6.QtWidgets import QCheckBox, QComboBox, QDoubleSpinBox, QMenu, QSpinBox, QToolButton
+
+from app.qt.canvas_pictures import round_limit
+from app.review import colours
+
+
+class PictureMode(StrEnum):
+    """What lies under the overlays; the values are the menu's words (kept in the settings)."""
+
+    FRAME_A = "frame A"
+    FRAME_B = "frame B"
+    FLICKER = "flicker A/B"
+    NONE = "no picture"
+
+
+PICTURES = tuple(PictureMode)
+
+DEFAULT_LAYERS = {
+    "picture": PictureMode.FRAME_A,
+    "vectors": True,
+    "stride": 1,
+    "vorticity": True,
+    "vorticity_auto": True,
+    "vorticity_limit_1_s": 1000.0,
+    "ball": True,
+    "flight": True,
+    "marks": True,
+    "side_by_side": False,
+}
+
+
+class LayerControls:
+    """The control bar of ``ShotCanvas`` and what its controls do (mixed into the canvas)."""
+
+    def _build_controls(self) -> None:
+        self.picture_box = QComboBox(self)
+        self.picture_box.addItems(PICTURES)
+        self.picture_box.setToolTip("picture under the overlays (F cycles)")
+        self.vectors_box = QCheckBox("Vectors", self)
+        self.stride_box = QSpinBox(self)
+        self.stride_box.setRange(1, 16)
+        self.stride_box.setPrefix("every ")
+        self.stride_box.setToolTip("draw every n-th vector in each direction")
+        self.vorticity_box = QCheckBox("Vorticity", self)
+        self.limit_box = QDoubleSpinBox(self)
+        self.limit_box.setDecimals(6)  # before the range, so small limits are not rounded away
+        self.limit_box.setRange(1e-6, 1e9)
+        self.limit_box.setDecimals(0)
+        self.limit_box.setPrefix("± ")
+        self.limit_box.setSuffix(" 1/s")
+        self.limit_box.setToolTip("vorticity at the ends of the colour map (symmetric about 0)")
+        self.auto_box = QCheckBox("auto", self)
+        self.auto_box.setToolTip("set the vorticity range from each shot (98th percentile)")
+        # the overlays sit in one drop-down so the bar fits a laptop screen
+        self.overlay_button = QToolButton(self)
+        self.overlay_button.setText("Overlays")
+        self.overlay_button.setToolTip("ball outlines, flight arrow with the normal plane, "
+                                       "separation marks")
+        self.overlay_button.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
+        overlay_menu = QMenu(self.overlay_button)
+        self.ball_box = _check_action("Ball outline in frames A and B", overlay_menu)
+        self.flight_box = _check_action("Flight arrow and normal plane", overlay_menu)
+        self.marks_box = _check_action("Separation marks", overlay_menu)
+        self.overlay_button.setMenu(overlay_menu)
+        self.side_box = QCheckBox("Side by side", self)
+        self.side_box.setToolTip("frames on the left, fields on the right, zoom and pan linked")
+        self.picture_box.currentTextChanged.connect(self._on_picture)
+        for box in (self.vectors_box, self.vorticity_box, self.ball_box, self.flight_box,
+                    self.marks_box):
+            box.toggled.connect(self._on_layer_toggled)
+        self.stride_box.valueChanged.connect(self._on_layer_toggled)
+        # clicking a layer switch must not take the keyboard from the shot list (Up/Down)
+        for widget in (self.picture_box, self.vectors_box, self.vorticity_box, self.auto_box,
+                       self.overlay_button, self.side_box):
+            widget.setFocusPolicy(Qt.FocusPolicy.NoFocus)
+        self.stride_box.setMaximumWidth(80)
+        self.limit_box.setMaximumWidth(120)
+        self.limit_box.valueChanged.connect(self._on_limit)
+        self.auto_box.toggled.connect(self._on_auto)
+        self.side_box.toggled.connect(self._on_side_by_side)
+
+    # -- layer state (kept in QSettings by the window) ---------------------------------------
+    def layer_state(self) -> dict:
+        return {
+            "picture": self.picture_box.currentText(),
+            "vectors": self.vectors_box.isChecked(),
+            "stride": self.stride_box.value(),
+            "vorticity": self.vorticity_box.isChecked(),
+            "vorticity_auto": self.auto_box.isChecked(),
+            "vorticity_limit_1_s": self.limit_box.value(),
+            "ball": self.ball_box.isChecked(),
+            "flight": self.flight_box.isChecked(),
+            "marks": self.marks_box.isChecked(),
+            "side_by_side": self.side_box.isChecked(),
+        }
+
+    def restore_layers(self, state: dict) -> None:
+        """Set the layer controls from a (possibly partial or stale) saved state."""
+        merged = {**DEFAULT_LAYERS, **{k: v for k, v in state.items() if k in DEFAULT_LAYERS}}
+        self._building = True
+        try:
+            picture = merged["picture"] if merged["picture"] in PICTURES else PictureMode.FRAME_A
+            self.picture_box.setCurrentText(picture)
+            self.vectors_box.setChecked(_as_bool(merged["vectors"]))
+            self.stride_box.setValue(int(merged["stride"]))
+            self.vorticity_box.setChecked(_as_bool(merged["vorticity"]))
+            self.auto_box.setChecked(_as_bool(merged["vorticity_auto"]))
+            self._set_limit(float(merged["vorticity_limit_1_s"]))
+            self.ball_box.setChecked(_as_bool(merged["ball"]))
+            self.flight_box.setChecked(_as_bool(merged["flight"]))
+            self.marks_box.setChecked(_as_bool(merged["marks"]))
+            self.side_box.setChecked(_as_bool(merged["side_by_side"]))
+        finally:
+            self._building = False
+        self._apply_side_by_side(self.side_box.isChecked())
+        self._redraw_all()
+
+    def _set_limit(self, limit: float) -> None:
+        """Show the colour limit with enough decimals (per-frame-pair vorticity is small)."""
+        decimals = max(0, 2 - math.floor(math.log10(limit))) if limit > 0 else 0
+        self.limit_box.setDecimals(min(decimals, 6))
+        self.limit_box.setSingleStep(10.0 ** math.floor(math.log10(limit)) if limit > 0 else 1.0)
+        self.limit_box.setValue(limit)
+
+    def _set_auto_limit(self, result) -> None:
+        w = getattr(result, "vorticity_1_s", None)
+        if w is None:
+            return
+        limit = colours.symmetric_limit(w)
+        self._building = True
+        try:
+            self._set_limit(round_limit(limit))
+        finally:
+            self._building = False
+
+    # -- layer controls ----------------------------------------------------------------------
+    def _on_picture(self, _text: str) -> None:
+        if not self._building:
+            self._redraw_all()
+            self.layers_changed.emit()
+
+    def _on_layer_toggled(self, *_args) -> None:
+        if not self._building:
+            self._redraw_all()
+            self.layers_changed.emit()
+
+    def _on_limit(self, _value: float) -> None:
+        if self._building:
+            return
+        if self.auto_box.isChecked() and self.limit_box.hasFocus():
+            self.auto_box.setChecked(False)
+        self._draw_fields()
+        self.layers_changed.emit()
+
+    def _on_auto(self, checked: bool) -> None:
+        if self._building:
+            return
+        if checked and self._shot is not None:
+            self._set_auto_limit(self._shot.result)
+        self._draw_fields()
+        self.layers_changed.emit()
+
+    def _on_side_by_side(self, checked: bool) -> None:
+        if self._building:
+            return
+        self._apply_side_by_side(checked)
+        self._redraw_all()
+        self.layers_changed.emit()
+
+    def _apply_side_by_side(self, checked: bool) -> None:
+        target = self.field_view if checked else self.view
+        if target is not self._field_home:
+            for item in self._field_items:
+                self._field_home.removeItem(item)
+                target.addItem(item)
+            self._field_home = target
+        in_layout = self.field_view.scene() is not None
+        if checked and not in_layout:
+            self.graphics.removeItem(self.colour_bar)
+            self.graphics.addItem(self.field_view, row=0, col=1)
+            self.graphics.addItem(self.colour_bar, row=0, col=2)
+        elif not checked and in_layout:
+            self.graphics.removeItem(self.field_view)
+        self.field_view.setVisible(checked)
+
+    def picture_mode(self) -> PictureMode:
+        return PictureMode(self.picture_box.currentText())
+
+    def cycle_picture(self) -> None:
+        index = (self.picture_box.currentIndex() + 1) % len(PICTURES)
+        self.picture_box.setCurrentIndex(index)
+
+
+def _check_action(text: str, menu: QMenu) -> QAction:
+    """A checkable menu entry; like a check box it has isChecked, setChecked and toggled."""
+    action = QAction(text, menu)
+    action.setCheckable(True)
+    menu.addAction(action)
+    return action
+
+
+def _as_bool(value) -> bool:
+    # QSettings (INI) gives strings back for booleans
+    if isinstance(value, str):
+        return value.strip().lower() in ("1", "true", "yes", "on")
+    return bool(value)

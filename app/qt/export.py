@@ -1,0 +1,140 @@
+"""Hand-over from the review window: the session overview panel and File > Export actions.
+
+``install_overview(window)`` docks the overview under the canvas and keeps it in step with the
+session model (clicking a point makes that shot current, which the shot list follows);
+``install_export_actions(window)`` fills ``window.export_menu`` with the shot sheet (PDF) and
+the table (CSV), the same files ``wakeline sheet`` and ``wakeline table`` write.
+"""
+
+from __future__ import annotations
+
+from PySide6.QtCore import Qt
+from PySide6.QtGui import QAction, QKeySequence
+from PySide6.QtWidgets import QApplication, QDockWidget, QFileDialog, QProgressDialog
+
+from app.qt.overview import SessionOverview
+from app.review.overview import numeric_columns
+from app.sheet import SheetReport, make_sheet
+from core import WakelineError
+
+
+class _Cancelled(Exception):
+    """The user stopped the shot sheet."""
+
+
+def install_overview(window) -> SessionOverview:
+    """Dock a session overview at the bottom of ``window`` and wire it to the session model."""
+    overview = SessionOverview(window)
+    dock = QDockWidget("Session overview", window)
+    dock.setObjectName("session_overview_dock")
+    dock.setWidget(overview)
+    dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetClosable
+                     | QDockWidget.DockWidgetFeature.DockWidgetMovable
+                     | QDockWidget.DockWidgetFeature.DockWidgetFloatable)
+    window.addDockWidget(Qt.DockWidgetArea.BottomDockWidgetArea, dock)
+    window.resizeDocks([dock], [250], Qt.Orientation.Vertical)
+    toggle = dock.toggleViewAction()
+    toggle.setText("Session &overview")
+    toggle.setShortcut(QKeySequence("O"))
+    toggle.setStatusTip("separation angles of every shot against the seam angle or another column")
+    window.addAction(toggle)
+    view_menu = getattr(window, "view_menu", None)
+    if view_menu is not None:
+        view_menu.addSeparator()
+        view_menu.addAction(toggle)
+    model = window.model
+    overview.follow(model.records)
+    model.session_changed.connect(overview.refresh_soon)
+    model.record_changed.connect(overview.refresh_soon)
+    model.current_changed.connect(overview.set_current)
+    overview.shot_clicked.connect(model.set_current)
+    window.overview, window.overview_dock = overview, dock
+    return overview
+
+
+def install_export_actions(window) -> dict[str, QAction]:
+    """Add "Shot sheet (PDF)…" and "Table (CSV)…" to ``window.export_menu``."""
+    sheet = QAction("Shot sheet (&PDF)…", window)
+    sheet.setStatusTip("a printable sheet: cover with overview and summary, one panel per shot")
+    sheet.triggered.connect(lambda: _export_dialog(
+        window, "Write the shot sheet", "_sheet.pdf", "PDF files (*.pdf)", export_sheet))
+    table = QAction("&Table (CSV)…", window)
+    table.setStatusTip("one row per shot: metadata, proposed and final angles, review")
+    table.triggered.connect(lambda: _export_dialog(
+        window, "Write the table", "_table.csv", "CSV files (*.csv)", export_table))
+    window.export_menu.addAction(sheet)
+    window.export_menu.addAction(table)
+    window.act_export_sheet, window.act_export_table = sheet, table
+    return {"sheet": sheet, "table": table}
+
+
+def _default_path(window, suffix: str) -> str:
+    path = window.model.path
+    return str(path.with_name(f"{path.stem}{suffix}"))
+
+
+def _export_dialog(window, title: str, suffix: str, file_filter: str, export) -> None:
+    """Ask where to write, next to the session by default, then ``export(window, path)``."""
+    if window.model.session is None:
+        return
+    path, _ = QFileDialog.getSaveFileName(window, title, _default_path(window, suffix),
+                                          file_filter)
+    if path:
+        export(window, path)
+
+
+def export_sheet(window, path, **options) -> SheetReport | None:
+    """Write the open session's shot sheet to ``path`` with a cancellable progress dialog.
+
+    ``options`` go to ``app.sheet.make_sheet`` (which reads the model's session whole); the
+    overview's column is used unless
+    ``column`` is given. Problems are shown by the window; returns None then or when cancelled.
+    """
+    session = window.model.session
+    if session is None:
+        return None
+    overview = getattr(window, "overview", None)
+    if ("column" not in options and overview is not None
+            and overview.column() in numeric_columns(window.model.records())):
+        options["column"] = overview.column()
+    dialog = QProgressDialog("Writing the shot sheet…", "Cancel", 0, len(session), window)
+    dialog.setWindowTitle("Shot sheet")
+    dialog.setWindowModality(Qt.WindowModality.WindowModal)
+    dialog.setMinimumDuration(400)
+
+    def progress(done: int, total: int) -> None:
+        dialog.setMaximum(total)
+        dialog.setValue(done)
+        if dialog.wasCanceled():
+            raise _Cancelled
+
+    QApplication.setOverrideCursor(Qt.CursorShape.WaitCursor)
+    try:
+        report = make_sheet(session, path, progress=progress, **options)
+    except _Cancelled:
+        window.statusBar().showMessage("Shot sheet cancelled; nothing written.", 6000)
+        return None
+    except (WakelineError, OSError) as exc:
+        window.show_problem("Shot sheet", str(exc))
+        return None
+    finally:
+        QApplication.restoreOverrideCursor()
+        dialog.reset()
+        dialog.deleteLater()
+    window.statusBar().showMessage(
+        f"Shot sheet written: {report.path} ({report.pages} pages, {len(report.shot_ids)} shots)",
+        8000)
+    return report
+
+
+def export_table(window, path) -> int | None:
+    """Write the open session's table of picks (as ``wakeline table``); the row count or None."""
+    if window.model.session is None:
+        return None
+    try:
+        count = window.model.write_table(path)
+    except (WakelineError, OSError) as exc:
+        window.show_problem("Table", str(exc))
+        return None
+    window.statusBar().showMessage(f"Table written: {path} ({count} shots)", 8000)
+    return count

@@ -1,0 +1,384 @@
+"""The readout panel (right): the current shot's numbers, review status, notes and review buttons.
+
+Per side: proposed and final separation angle, uncertainty and quality, and the difference
+between the sides; the wake deflection and state; flight direction and speed; the shot's
+metadata; the analyst's note. While a mark is dragged the final cell shows the live angle.
+"""
+
+from __future__ import annotations
+
+from PySide6.QtCore import Qt, Signal
+from PySide6.QtGui import QAction, QFont, QKeySequence
+from PySide6.QtWidgets import (
+    QFormLayout,
+    QFrame,
+    QGridLayout,
+    QGroupBox,
+    QHBoxLayout,
+    QLabel,
+    QPlainTextEdit,
+    QScrollArea,
+    QSizePolicy,
+    QToolButton,
+    QVBoxLayout,
+    QWidget,
+)
+
+from app.qt.icons import status_icon
+from app.review import colours
+from app.review.model import ProcessState, ReviewStatus
+from app.review.text import (
+    MISSING,
+    angle_text,
+    ball_text,
+    direction_text,
+    quality_text,
+    speed_text,
+    uncertainty_text,
+    vectors_text,
+    wake_text,
+)
+from core.geometry import SIDES
+from core.results import SideProposal
+
+ROWS = ("proposed", "final", "uncertainty", "quality")
+PROBLEM_STYLE = (f"QLabel {{ background: #f6e3e6; color: {colours.STATUS_COLOURS['unusable']};"
+                 " border-radius: 4px; padding: 6px; }")
+NOTICE_STYLE = (f"QLabel {{ background: {colours.PAPER_TINT}; color: {colours.MUTED_INK};"
+                " border-radius: 4px; padding: 6px; }")
+LIVE_STYLE = f"color: {colours.STATUS_COLOURS['adjusted']}; font-weight: bold;"
+
+
+def _metadata_text(value) -> str:
+    if isinstance(value, float):
+        return f"{value:.6g}"
+    return MISSING if value in (None, "") else str(value)
+
+
+class NoteEdit(QPlainTextEdit):
+    """Notes field: commits on leaving the field, Ctrl+Return, or Escape (which also leaves it)."""
+
+    committed = Signal(str)
+    escaped = Signal()  # the window hands the keyboard back to the shot list
+
+    def focusOutEvent(self, event) -> None:
+        super().focusOutEvent(event)
+        self.committed.emit(self.toPlainText())
+
+    def keyPressEvent(self, event) -> None:
+        ctrl = bool(event.modifiers() & Qt.KeyboardModifier.ControlModifier)
+        if event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter) and ctrl:
+            self.committed.emit(self.toPlainText())
+            return
+        if event.key() == Qt.Key.Key_Escape:
+            self.escaped.emit()  # moving the focus away commits (focusOutEvent)
+            if self.hasFocus():
+                self.clearFocus()
+            return
+        super().keyPressEvent(event)
+
+
+class ReadoutPanel(QWidget):
+    """Right panel. Review buttons run the window's actions (same shortcuts as the menu)."""
+
+    note_committed = Signal(str)
+
+    def __init__(self, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self._shot_id = ""
+        self._record = None
+        self._note_shown = ""
+        self._keep_typed_note = False
+        self._build()
+
+    # -- construction ------------------------------------------------------------------------
+    def _build(self) -> None:
+        self.title = QLabel("no shot", self)
+        font = QFont(self.title.font())
+        font.setPointSizeF(font.pointSizeF() * 1.35)
+        font.setBold(True)
+        self.title.setFont(font)
+        self.status_icon = QLabel(self)
+        self.status_label = QLabel(self)
+        self.problem = QLabel(self)
+        self.problem.setWordWrap(True)
+        self.problem.setStyleSheet(PROBLEM_STYLE)
+        self.problem.hide()
+        head = QHBoxLayout()
+        head.addWidget(self.title, 1)
+        head.addWidget(self.status_icon)
+        head.addWidget(self.status_label)
+
+        content = QWidget(self)
+        box = QVBoxLayout(content)
+        box.setContentsMargins(6, 6, 6, 6)
+        box.addLayout(head)
+        box.addWidget(self.problem)
+        box.addWidget(self._separation_group())
+        box.addWidget(self._review_group())
+        box.addWidget(self._flight_group())
+        self.meta_group = QGroupBox("Shot", content)
+        self.meta_form = QFormLayout(self.meta_group)
+        self.meta_form.setLabelAlignment(Qt.AlignmentFlag.AlignLeft)
+        box.addWidget(self.meta_group)
+        box.addStretch(1)
+        scroll = QScrollArea(self)
+        scroll.setWidgetResizable(True)
+        scroll.setFrameShape(QFrame.Shape.NoFrame)
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        scroll.setWidget(content)
+        outer = QVBoxLayout(self)
+        outer.setContentsMargins(0, 0, 0, 0)
+        outer.addWidget(scroll)
+        self.setMinimumWidth(280)
+
+    def _separation_group(self) -> QGroupBox:
+        group = QGroupBox("Separation angle")
+        group.setToolTip("degrees from the plane through the ball centre normal to the flight; "
+                         "positive = rearward (downstream); from the front stagnation point "
+                         "add 90°")
+        grid = QGridLayout(group)
+        grid.setHorizontalSpacing(14)
+        hint = QLabel("deg from the plane normal to the flight, + rearward", group)
+        hint.setWordWrap(True)
+        hint.setStyleSheet(f"color: {colours.MUTED_INK};")
+        grid.addWidget(hint, len(ROWS) + 3, 0, 1, 3)
+        self.cells: dict[tuple[str, str], QLabel] = {}
+        for col, side in enumerate(SIDES, start=1):
+            head = QLabel(side, group)
+            head.setStyleSheet(f"color: {_side_colour(side)}; font-weight: bold;")
+            head.setAlignment(Qt.AlignmentFlag.AlignRight)
+            grid.addWidget(head, 0, col)
+        for row, name in enumerate(ROWS, start=1):
+            grid.addWidget(QLabel(name, group), row, 0)
+            for col, side in enumerate(SIDES, start=1):
+                cell = QLabel("—", group)
+                cell.setAlignment(Qt.AlignmentFlag.AlignRight)
+                cell.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+                self.cells[(name, side)] = cell
+                grid.addWidget(cell, row, col)
+        self.difference = QLabel("—", group)
+        self.wake = QLabel("—", group)
+        self.wake.setWordWrap(True)
+        grid.addWidget(QLabel("upper − lower", group), len(ROWS) + 1, 0)
+        grid.addWidget(self.difference, len(ROWS) + 1, 1, 1, 2, Qt.AlignmentFlag.AlignRight)
+        grid.addWidget(QLabel("wake", group), len(ROWS) + 2, 0)
+        grid.addWidget(self.wake, len(ROWS) + 2, 1, 1, 2, Qt.AlignmentFlag.AlignRight)
+        grid.setColumnStretch(0, 1)
+        return group
+
+    def _flight_group(self) -> QGroupBox:
+        group = QGroupBox("Flight and ball")
+        form = QFormLayout(group)
+        self.flight_dir = QLabel("—", group)
+        self.flight_speed = QLabel("—", group)
+        self.ball_size = QLabel("—", group)
+        self.vectors = QLabel("—", group)
+        for label in (self.flight_dir, self.flight_speed, self.ball_size, self.vectors):
+            label.setWordWrap(True)
+        form.addRow("direction", self.flight_dir)
+        form.addRow("speed", self.flight_speed)
+        form.addRow("ball", self.ball_size)
+        form.addRow("vectors", self.vectors)
+        return group
+
+    def _review_group(self) -> QGroupBox:
+        group = QGroupBox("Review")
+        box = QVBoxLayout(group)
+        grid = QGridLayout()
+        self.buttons: dict[str, QToolButton] = {}
+        for index, key in enumerate((ReviewStatus.ACCEPTED, ReviewStatus.ADJUSTED,
+                                     ReviewStatus.UNUSABLE, ReviewStatus.TO_REVIEW)):
+            button = QToolButton(group)
+            button.setToolButtonStyle(Qt.ToolButtonStyle.ToolButtonTextBesideIcon)
+            button.setSizePolicy(QSizePolicy.Policy.Expanding, QSizePolicy.Policy.Fixed)
+            self.buttons[key] = button
+            grid.addWidget(button, index // 2, index % 2)
+        box.addLayout(grid)
+        self.reason = QLabel(group)
+        self.reason.setWordWrap(True)
+        box.addWidget(self.reason)
+        self.note = NoteEdit(group)
+        self.note.setPlaceholderText("Notes on this shot (saved when you leave the field, "
+                                     "Ctrl+Return, or Esc)")
+        self.note.setFixedHeight(72)
+        self.note.committed.connect(self._on_note_committed)
+        box.addWidget(self.note)
+        self.last_edit = QLabel(group)
+        self.last_edit.setWordWrap(True)  # a long analyst name must not widen the panel
+        self.last_edit.setStyleSheet(f"color: {colours.MUTED_INK};")
+        box.addWidget(self.last_edit)
+        return group
+
+    def set_actions(self, actions: dict[str, QAction]) -> None:
+        """Give each review button its window action (status -> QAction)."""
+        for key, action in actions.items():
+            button = self.buttons[key]
+            button.setDefaultAction(action)
+            shortcut = action.shortcut().toString(QKeySequence.SequenceFormat.NativeText)
+            button.setToolTip(f"{action.toolTip()} ({shortcut})" if shortcut else action.toolTip())
+
+    # -- showing -----------------------------------------------------------------------------
+    @property
+    def shot_id(self) -> str:
+        return self._shot_id
+
+    def show_record(self, record) -> None:
+        """Fill the panel from a ``ShotRecord`` (None: empty); reads no field data.
+
+        A note being typed is never thrown away: moving to another shot saves it for the shot
+        it was typed on; a refresh of the same shot (an edit, processing) leaves it in the
+        field, to be saved when the field is left.
+        """
+        new_id = "" if record is None else record.shot_id
+        typed = self._unsaved_note()
+        if typed is not None and new_id != self._shot_id:
+            self._on_note_committed(typed)
+        self._keep_typed_note = typed is not None and new_id == self._shot_id
+        self._shot_id = new_id
+        self._record = record
+        if record is None:
+            self._clear()
+            return
+        self.title.setText(f"Shot {record.shot_id}")
+        status = record.pick.status
+        self.status_icon.setPixmap(status_icon(status).pixmap(18, 18))
+        self.status_label.setText(status)
+        self._show_problem(record)
+        self._show_angles(record)
+        self._show_wake(record)
+        self._show_flight(record)
+        self._show_metadata(record.metadata)
+        self._show_review(record)
+
+    def show_live(self, side: str, angle_deg: float) -> None:
+        """While a mark is dragged: the final cell and the difference follow the live angle."""
+        cell = self.cells[("final", side)]
+        cell.setText(angle_text(angle_deg))
+        cell.setStyleSheet(LIVE_STYLE)
+        record = self._record
+        if record is None:
+            return
+        other = "lower" if side == "upper" else "upper"
+        other_deg = record.final_deg(other)
+        if other_deg is None:
+            other_deg = record.proposed_deg(other)
+        if other_deg is not None:
+            diff = angle_deg - other_deg if side == "upper" else other_deg - angle_deg
+            self.difference.setText(f"{angle_text(diff)} (moving)")
+            self.difference.setStyleSheet(LIVE_STYLE)
+
+    def show_current(self) -> None:
+        """Show the last record again (after a cancelled drag)."""
+        self.show_record(self._record)
+
+    def live_text(self, side: str) -> str:
+        return self.cells[("final", side)].text()
+
+    def _clear(self) -> None:
+        self.title.setText("no shot")
+        self.status_icon.clear()
+        self.status_label.clear()
+        self.problem.hide()
+        for cell in self.cells.values():
+            cell.setText("—")
+            cell.setStyleSheet("")
+        for label in (self.difference, self.wake, self.flight_dir, self.flight_speed,
+                      self.ball_size, self.vectors):
+            label.setText("—")
+        self._show_metadata({})
+        self.reason.clear()
+        self._set_note("")
+        self.last_edit.clear()
+
+    def _show_problem(self, record) -> None:
+        if record.state == ProcessState.FAILED:
+            text = f"Processing failed: {record.failure or 'no reason given'}"
+            if record.summary:
+                text += "\nThe numbers below are from the last run that succeeded."
+            self.problem.setStyleSheet(PROBLEM_STYLE)
+        elif record.state == ProcessState.UNPROCESSED:
+            text = "Not processed yet."
+            self.problem.setStyleSheet(NOTICE_STYLE)
+        else:
+            text = ""
+        self.problem.setText(text)
+        self.problem.setVisible(bool(text))
+
+    def _show_angles(self, record) -> None:
+        for side in SIDES:
+            detail = SideProposal(None) if record.summary is None else record.summary.side(side)
+            final = record.final_deg(side) if record.pick.status != ReviewStatus.UNUSABLE else None
+            values = {
+                "proposed": angle_text(detail.angle_deg),
+                "final": angle_text(final),
+                "uncertainty": uncertainty_text(detail.uncertainty_deg),
+                "quality": quality_text(detail.quality),
+            }
+            for name, text in values.items():
+                self.cells[(name, side)].setText(text)
+                self.cells[(name, side)].setStyleSheet("")
+            self.cells[("proposed", side)].setToolTip(detail.reason)
+        self.difference.setText(self._difference_text(record))
+        self.difference.setStyleSheet("")
+
+    @staticmethod
+    def _difference_text(record) -> str:
+        finals = [record.final_deg(s) for s in SIDES]
+        if record.pick.status != ReviewStatus.UNUSABLE and None not in finals:
+            return f"{angle_text(finals[0] - finals[1])} (final)"
+        proposed = [record.proposed_deg(s) for s in SIDES]
+        if None not in proposed:
+            return f"{angle_text(proposed[0] - proposed[1])} (proposed)"
+        return MISSING
+
+    def _show_wake(self, record) -> None:
+        summary = record.summary
+        self.wake.setText(MISSING if summary is None else wake_text(summary.separation))
+
+    def _show_flight(self, record) -> None:
+        summary = record.summary
+        flight = None if summary is None else summary.flight
+        self.flight_dir.setText(direction_text(flight))
+        self.flight_speed.setText(speed_text(None if flight is None else flight.speed_m_s))
+        self.ball_size.setText(MISSING if summary is None else ball_text(summary))
+        self.vectors.setText(MISSING if summary is None else vectors_text(summary.vectors))
+
+    def _show_metadata(self, metadata: dict) -> None:
+        while self.meta_form.rowCount():
+            self.meta_form.removeRow(0)
+        for key in sorted(metadata):
+            if key == "shot":
+                continue
+            label = QLabel(_metadata_text(metadata[key]), self.meta_group)
+            label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+            label.setWordWrap(True)
+            self.meta_form.addRow(key, label)
+
+    def _show_review(self, record) -> None:
+        pick = record.pick
+        if pick.status == ReviewStatus.UNUSABLE:
+            self.reason.setText(f"Unusable: {pick.reason}")
+        else:
+            self.reason.clear()
+        self.reason.setVisible(bool(self.reason.text()))
+        self._set_note(pick.note)
+        self.last_edit.setText(f"last edit {pick.when} by {pick.who}" if pick.when else "")
+
+    def _unsaved_note(self) -> str | None:
+        text = self.note.toPlainText()
+        return text if self._shot_id and text != self._note_shown else None
+
+    def _set_note(self, text: str) -> None:
+        self._note_shown = text
+        if not self._keep_typed_note and self.note.toPlainText() != text:
+            self.note.setPlainText(text)
+
+    def _on_note_committed(self, text: str) -> None:
+        if self._shot_id and text != self._note_shown:
+            self._note_shown = text
+            self.note_committed.emit(text)
+
+
+def _side_colour(side: str) -> str:
+    return colours.UPPER_SIDE if side == "upper" else colours.LOWER_SIDE

@@ -1,0 +1,452 @@
+"""The review window: shot list (left), canvas (centre), readout (right), menus and background work.
+
+``run_window(session_path)`` is the GUI entry point of the ``wakeline`` command. The window holds
+no unsaved state: each review edit is an undoable command written through the session journal at
+once, and processing results are saved by the batch code as each shot finishes. ``MainWindow``
+is built here; its session handling, background jobs and review live in ``window_session``,
+``window_jobs`` and ``window_review``. It reaches the store only through its ``SessionModel``.
+"""
+
+from __future__ import annotations
+
+import json
+import logging
+import os
+import sys
+import traceback
+import weakref
+from pathlib import Path
+
+os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
+
+import pyqtgraph as pg
+from PySide6.QtCore import QSettings, Qt, QTimer
+from PySide6.QtGui import QAction, QKeySequence, QUndoStack
+from PySide6.QtWidgets import (
+    QApplication,
+    QDialog,
+    QLabel,
+    QMainWindow,
+    QMenu,
+    QMessageBox,
+    QProgressBar,
+    QPushButton,
+    QSplitter,
+    QTextBrowser,
+    QVBoxLayout,
+    QWidget,
+)
+
+from app.qt.canvas import ShotCanvas
+from app.qt.export import install_export_actions, install_overview
+from app.qt.icons import app_icon, status_icon
+from app.qt.readout import ReadoutPanel
+from app.qt.shot_list import ShotListPanel
+from app.qt.window_jobs import JobActions
+from app.qt.window_review import ReviewActions
+from app.qt.window_session import SessionActions
+from app.qt.workers import BackgroundJob
+from app.review.model import MANIFEST_NAME, ReviewStatus, SessionModel
+from core.paths import user_data_dir
+
+log = logging.getLogger("wakeline.window")
+
+ORGANISATION = "wakeline"
+APPLICATION = "wakeline"
+NUDGE_DEG = 0.5
+FINE_NUDGE_DEG = 0.1
+
+# (action key, menu text, shortcut, tip) of the review keys; shown in Help > Keyboard shortcuts
+REVIEW_KEYS = (
+    (ReviewStatus.ACCEPTED, "&Accept proposal", "A", "accept the proposed angles"),
+    (ReviewStatus.ADJUSTED, "Mark a&djusted", "D",
+     "keep the marks where they are as the analyst's values"),
+    (ReviewStatus.UNUSABLE, "Mark &unusable…", "U", "the shot cannot be used; asks for a reason"),
+    (ReviewStatus.TO_REVIEW, "Back to &review", "R", "undecided again"),
+)
+REVIEW_BUTTON_TEXT = {ReviewStatus.ACCEPTED: "Accept", ReviewStatus.ADJUSTED: "Adjusted",
+                      ReviewStatus.UNUSABLE: "Unusable…", ReviewStatus.TO_REVIEW: "To review"}
+# (the readout's buttons: short for a narrow panel)
+NUDGE_KEYS = (
+    ("upper", +NUDGE_DEG, "E"), ("upper", -NUDGE_DEG, "Q"),
+    ("lower", +NUDGE_DEG, "C"), ("lower", -NUDGE_DEG, "Z"),
+    ("upper", +FINE_NUDGE_DEG, "Shift+E"), ("upper", -FINE_NUDGE_DEG, "Shift+Q"),
+    ("lower", +FINE_NUDGE_DEG, "Shift+C"), ("lower", -FINE_NUDGE_DEG, "Shift+Z"),
+)
+
+
+def app_settings() -> QSettings:
+    """The user's wakeline preferences (INI file; tests point QSettings' path at a temp dir)."""
+    return QSettings(QSettings.Format.IniFormat, QSettings.Scope.UserScope, ORGANISATION,
+                     APPLICATION)
+
+
+class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
+    """The review window.
+
+    Parameters
+    ----------
+    workers : int, optional
+        Worker processes for background processing (None: the saved preference, default all
+        cores; 0: one shot at a time in the worker thread).
+    """
+
+    def __init__(self, workers: int | None = None, parent: QWidget | None = None) -> None:
+        super().__init__(parent)
+        self.settings = app_settings()
+        self._workers_override = workers
+        self.model = SessionModel(self)
+        self.undo_stack = QUndoStack(self)
+        self.job: BackgroundJob | None = None
+        self.last_problem = ""
+        self._shown_key = None
+        self._previous_id = ""
+        self._prefetch_id = ""
+        self._prefetch_timer = QTimer(self)
+        self._prefetch_timer.setSingleShot(True)
+        self._prefetch_timer.setInterval(0)
+        self._prefetch_timer.timeout.connect(self._prefetch)
+        self._message_boxes: list[QMessageBox] = []
+        self.setWindowIcon(app_icon())
+        self.setAcceptDrops(True)
+        self._build_panels()
+        self._build_status_bar()
+        self._build_actions()
+        self._build_menus()
+        self._connect()
+        install_overview(self)
+        install_export_actions(self)
+        self._restore_settings()
+        self._update_title()
+        self._update_enabled()
+
+    # -- construction ------------------------------------------------------------------------
+    def _build_panels(self) -> None:
+        self.shot_list = ShotListPanel(self.model, self)
+        self.canvas = ShotCanvas(self)
+        self.readout = ReadoutPanel(self)
+        self.splitter = QSplitter(Qt.Orientation.Horizontal, self)
+        for widget, stretch in ((self.shot_list, 0), (self.canvas, 1), (self.readout, 0)):
+            self.splitter.addWidget(widget)
+            self.splitter.setStretchFactor(self.splitter.count() - 1, stretch)
+        self.splitter.setSizes([345, 905, 350])
+        self.splitter.setChildrenCollapsible(False)
+        self.setCentralWidget(self.splitter)
+        self.resize(1600, 900)
+
+    def _build_status_bar(self) -> None:
+        bar = self.statusBar()
+        self.progress = QProgressBar(self)
+        self.progress.setMaximumWidth(260)
+        self.progress.setTextVisible(True)
+        self.progress_label = QLabel(self)
+        self.cancel_button = QPushButton("Cancel", self)
+        self.cancel_button.setToolTip("stop the running job; what it has done stays")
+        self.cancel_button.clicked.connect(self.cancel_processing)
+        for widget in (self.progress_label, self.progress, self.cancel_button):
+            bar.addPermanentWidget(widget)
+            widget.hide()
+
+    def _action(self, text: str, slot, shortcut=None, tip: str = "",
+                checkable: bool = False) -> QAction:
+        action = QAction(text, self)
+        if shortcut is not None:
+            action.setShortcut(QKeySequence(shortcut))
+        if tip:
+            action.setToolTip(tip)
+            action.setStatusTip(tip)
+        action.setCheckable(checkable)
+        action.triggered.connect(slot)
+        self.addAction(action)  # shortcuts work while the menu bar is hidden or closed
+        return action
+
+    def _build_actions(self) -> None:
+        a = self._action
+        self.act_open = a("&Open session…", lambda: self.open_session_dialog(),
+                          QKeySequence.StandardKey.Open, "open a session file")
+        self.act_import = a("&Import folder…", lambda: self.import_folder_dialog(), "Ctrl+I",
+                            f"make a session from a folder of frames with its {MANIFEST_NAME}")
+        self.act_save = a("&Save", self.save_session, QKeySequence.StandardKey.Save,
+                          "edits are saved as you make them; this also compacts the file")
+        self.act_close = a("&Close session", self.close_session, QKeySequence.StandardKey.Close)
+        self.act_quit = a("&Quit", self.close, QKeySequence.StandardKey.Quit)
+        self.act_undo = self.undo_stack.createUndoAction(self, "&Undo")
+        self.act_undo.setShortcut(QKeySequence.StandardKey.Undo)
+        self.act_redo = self.undo_stack.createRedoAction(self, "&Redo")
+        self.act_redo.setShortcuts([QKeySequence("Ctrl+Shift+Z"), QKeySequence("Ctrl+Y")])
+        for action in (self.act_undo, self.act_redo):
+            self.addAction(action)
+        self.review_actions = {
+            key: a(text, lambda _=False, k=key: self.set_status(k), shortcut, tip)
+            for key, text, shortcut, tip in REVIEW_KEYS
+        }
+        for key, action in self.review_actions.items():
+            action.setIcon(status_icon(key))
+            action.setIconText(REVIEW_BUTTON_TEXT[key])
+        self.nudge_actions = []
+        for side, step, shortcut in NUDGE_KEYS:
+            text = f"Nudge {side} mark {'rearward' if step > 0 else 'forward'} {abs(step):g}°"
+            self.nudge_actions.append(
+                a(text, lambda _=False, s=side, d=step: self.nudge(s, d), shortcut)
+            )
+        self.act_next = a("&Next shot", lambda: self.shot_list.step(1), "N",
+                          "next shot in the list (also Down in the list)")
+        self.act_prev = a("&Previous shot", lambda: self.shot_list.step(-1), "P",
+                          "previous shot in the list (also Up in the list)")
+        self.act_next_open = a("Next shot &to review", self.next_to_review, "Shift+N")
+        self.act_picture = a("Cycle &picture (A, B, flicker, none)", self.canvas.cycle_picture,
+                             "F")
+        self.act_vectors = a("Toggle &vectors", self.canvas.vectors_box.toggle, "V")
+        self.act_vorticity = a("Toggle v&orticity", self.canvas.vorticity_box.toggle, "W")
+        self.act_marks = a("Toggle separation &marks", self.canvas.marks_box.toggle, "M")
+        self.act_side = a("&Side by side", self.canvas.side_box.toggle, "S")
+        self.act_fit = a("&Fit shot in view", lambda: self.canvas.view.autoRange(padding=0.02),
+                         "Ctrl+0")
+        self.act_process = a("&Process shots that need it", lambda: self.start_processing(),
+                             "Ctrl+P", "shots not processed yet, or processed with other settings")
+        self.act_reprocess = a("&Reprocess this shot", self.reprocess_current, "Ctrl+Shift+P")
+        self.act_cancel = a("&Cancel the running job", self.cancel_processing, "Ctrl+.")
+        self.act_check = a("Check &frame files", lambda: self.check_frames(),
+                           tip="look for frame files that are missing or changed since import")
+        self.act_auto = a("Process new shots when a session &opens", self._on_auto_toggled,
+                          checkable=True)
+        self.act_settings = a("Processing &settings…", self.edit_processing_settings,
+                              tip="PIV passes, outlier test, ball and flight; processes to use")
+        self.act_keys = a("&Keyboard shortcuts", self.show_shortcuts,
+                          QKeySequence.StandardKey.HelpContents)
+        self.act_about = a("&About wakeline", self.show_about)
+
+    def _build_menus(self) -> None:
+        menu = self.menuBar()
+        file_menu = menu.addMenu("&File")
+        file_menu.addAction(self.act_open)
+        file_menu.addAction(self.act_import)
+        self.recent_menu = file_menu.addMenu("Open &recent")
+        file_menu.addSeparator()
+        file_menu.addAction(self.act_save)
+        self.export_menu: QMenu = file_menu.addMenu("&Export")
+        self.export_menu.setToolTip("shot sheets and tables of the open session")
+        file_menu.addSeparator()
+        file_menu.addAction(self.act_close)
+        file_menu.addAction(self.act_quit)
+        edit = menu.addMenu("&Edit")
+        edit.addAction(self.act_undo)
+        edit.addAction(self.act_redo)
+        review = menu.addMenu("&Review")
+        for action in self.review_actions.values():
+            review.addAction(action)
+        review.addSeparator()
+        for action in self.nudge_actions:
+            review.addAction(action)
+        review.addSeparator()
+        for action in (self.act_next, self.act_prev, self.act_next_open):
+            review.addAction(action)
+        view = self.view_menu = menu.addMenu("&View")
+        for action in (self.act_picture, self.act_vectors, self.act_vorticity, self.act_marks,
+                       self.act_side, self.act_fit):
+            view.addAction(action)
+        process = menu.addMenu("&Process")
+        for action in (self.act_process, self.act_reprocess, self.act_cancel, self.act_check):
+            process.addAction(action)
+        process.addSeparator()
+        process.addAction(self.act_settings)
+        process.addAction(self.act_auto)
+        help_menu = menu.addMenu("&Help")
+        help_menu.addAction(self.act_keys)
+        help_menu.addAction(self.act_about)
+        self.readout.set_actions(self.review_actions)
+
+    def _connect(self) -> None:
+        self.shot_list.shot_selected.connect(self.model.set_current)
+        self.model.current_changed.connect(self._on_current_changed)
+        self.model.record_changed.connect(self._on_record_changed)
+        self.model.edit_refused.connect(lambda text: self.show_problem("Edit not saved", text))
+        self.model.session_changed.connect(self._on_session_changed)
+        self.model.closing.connect(self._on_session_closing)
+        self.canvas.mark_moved.connect(self.readout.show_live)
+        self.canvas.mark_released.connect(self._on_mark_released)
+        self.canvas.mark_cancelled.connect(lambda _side: self.readout.show_current())
+        self.canvas.layers_changed.connect(self._save_layers)
+        self.readout.note_committed.connect(self._on_note_committed)
+        self.readout.note.escaped.connect(self.shot_list.view.setFocus)
+        self.undo_stack.indexChanged.connect(lambda _i: self._update_enabled())
+
+    # -- settings ----------------------------------------------------------------------------
+    def _restore_settings(self) -> None:
+        geometry = self.settings.value("window/geometry")
+        if geometry is not None:
+            self.restoreGeometry(geometry)
+        splitter = self.settings.value("window/splitter")
+        if splitter is not None:
+            self.splitter.restoreState(splitter)
+        docks = self.settings.value("window/docks")  # the overview's place and visibility
+        if docks is not None:
+            self.restoreState(docks)
+        layers = self.settings.value("canvas/layers", "")
+        if layers:
+            try:
+                self.canvas.restore_layers(json.loads(layers))
+            except (ValueError, TypeError):
+                log.warning("ignoring unreadable saved canvas layers")
+        auto = self.settings.value("processing/auto_on_open", True)
+        self.act_auto.setChecked(str(auto).lower() in ("true", "1"))
+        self._rebuild_recent()
+
+    def _save_layers(self) -> None:
+        self.settings.setValue("canvas/layers", json.dumps(self.canvas.layer_state()))
+
+    def _on_auto_toggled(self, checked: bool) -> None:
+        self.settings.setValue("processing/auto_on_open", bool(checked))
+
+    def _workers(self) -> int | None:
+        if self._workers_override is not None:
+            return self._workers_override
+        value = self.settings.value("processing/workers", "")
+        try:
+            return int(value) if str(value).strip() != "" else None
+        except ValueError:
+            return None
+
+    # -- state of the window -----------------------------------------------------------------
+    def _update_title(self) -> None:
+        if self.model.path is None:
+            self.setWindowTitle("wakeline")
+            return
+        tag = " [read-only]" if self.model.read_only else ""
+        self.setWindowTitle(f"wakeline — {self.model.name} ({self.model.path}){tag}")
+
+    def _update_enabled(self) -> None:
+        has_session = self.model.session is not None
+        writable = has_session and not self.model.read_only
+        has_shot = bool(self.model.current_id)
+        busy = self.job is not None
+        record = self.model.record(self.model.current_id) if has_shot else None
+        has_proposal = record is not None and record.summary is not None
+        for key, action in self.review_actions.items():
+            needs_proposal = key in (ReviewStatus.ACCEPTED, ReviewStatus.ADJUSTED)
+            action.setEnabled(writable and has_shot and (has_proposal or not needs_proposal))
+        for action in self.nudge_actions:
+            action.setEnabled(writable and has_proposal)
+        self.act_save.setEnabled(writable)
+        self.act_close.setEnabled(has_session)
+        self.act_process.setEnabled(writable and not busy)
+        self.act_reprocess.setEnabled(writable and has_shot and not busy)
+        self.act_cancel.setEnabled(busy)
+        self.act_check.setEnabled(has_session and not busy)
+        self.act_settings.setEnabled(not busy)  # not while a job reads the settings
+        self.act_import.setEnabled(not busy)
+        self.export_menu.setEnabled(has_session and bool(self.export_menu.actions()))
+
+    def show_problem(self, title: str, text: str) -> None:
+        """Tell the user about a problem without blocking (the session stays open)."""
+        self.last_problem = f"{title}: {text}"
+        log.warning("%s", self.last_problem)
+        self.statusBar().showMessage(self.last_problem.splitlines()[0], 10000)
+        box = QMessageBox(QMessageBox.Icon.Warning, title, text, QMessageBox.StandardButton.Ok,
+                          self)
+        box.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        box.finished.connect(lambda _r, b=box: self._message_boxes.remove(b)
+                             if b in self._message_boxes else None)
+        self._message_boxes.append(box)
+        box.open()
+
+    def show_shortcuts(self) -> None:
+        dialog = QDialog(self)
+        dialog.setWindowTitle("Keyboard shortcuts")
+        dialog.setAttribute(Qt.WidgetAttribute.WA_DeleteOnClose)
+        text = QTextBrowser(dialog)
+        text.setHtml(self.shortcut_table_html())
+        box = QVBoxLayout(dialog)
+        box.addWidget(text)
+        dialog.resize(520, 600)
+        dialog.open()
+
+    def shortcut_table_html(self) -> str:
+        rows = [("Up / Down, PageUp / PageDown, Ctrl+Home / Ctrl+End",
+                 "step through shots in the list")]
+        for action in self.actions():
+            keys = action.shortcut().toString(QKeySequence.SequenceFormat.NativeText)
+            if keys and action.text():
+                rows.append((keys, action.text().replace("&", "").rstrip("…")))
+        rows.append(("drag a round mark", "move a separation mark along the ball outline"))
+        body = "".join(f"<tr><td><b>{k}</b></td><td>{t}</td></tr>" for k, t in rows)
+        return f"<table cellspacing='6'>{body}</table>"
+
+    def show_about(self) -> None:
+        from core import __version__
+
+        QMessageBox.about(self, "About wakeline",
+                          f"wakeline {__version__}\nPIV of seamed balls in flight: velocity, "
+                          "vorticity and separation angles per shot, with review.")
+
+    # -- closing -----------------------------------------------------------------------------
+    def closeEvent(self, event) -> None:
+        self.settings.setValue("window/geometry", self.saveGeometry())
+        self.settings.setValue("window/splitter", self.splitter.saveState())
+        self.settings.setValue("window/docks", self.saveState())
+        self._save_layers()
+        self.settings.sync()
+        self.close_session()
+        for box in list(self._message_boxes):
+            box.close()
+        super().closeEvent(event)
+
+
+# -- the entry point --------------------------------------------------------------------------
+def log_file() -> Path:
+    return user_data_dir() / "wakeline.log"
+
+
+def _setup_logging() -> logging.Handler:
+    """Send wakeline's log to the user's log file (once per file)."""
+    path = str(log_file())
+    root = logging.getLogger("wakeline")
+    for handler in root.handlers:
+        if isinstance(handler, logging.FileHandler) and handler.baseFilename == path:
+            return handler
+    handler = logging.FileHandler(path, encoding="utf-8")
+    handler.setFormatter(logging.Formatter("%(asctime)s %(levelname)s %(name)s: %(message)s"))
+    root.addHandler(handler)
+    root.setLevel(logging.INFO)
+    return handler
+
+
+def install_excepthook(window: MainWindow) -> None:
+    """Log unexpected exceptions to the user's log file and show them; the session stays open."""
+    window_ref = weakref.ref(window)  # the hook must not keep a closed window alive
+
+    def hook(exc_type, exc, tb) -> None:
+        live = window_ref()
+        if issubclass(exc_type, KeyboardInterrupt) or live is None:
+            sys.__excepthook__(exc_type, exc, tb)
+            return
+        text = "".join(traceback.format_exception(exc_type, exc, tb))
+        log.error("unexpected error\n%s", text)
+        first = str(exc).splitlines()[0] if str(exc) else exc_type.__name__
+        live.show_problem(
+            "Unexpected error",
+            f"{exc_type.__name__}: {first}\n\nYour session is still open and every edit made "
+            f"so far is saved. Details are in {log_file()}.",
+        )
+
+    sys.excepthook = hook
+
+
+def run_window(session_path: str | None = None) -> int:
+    """Open the review window (optionally with a session) and run until it is closed."""
+    app = QApplication.instance() or QApplication(sys.argv)
+    app.setOrganizationName(ORGANISATION)
+    app.setApplicationName(APPLICATION)
+    app.setWindowIcon(app_icon())
+    pg.setConfigOptions(imageAxisOrder="row-major")
+    _setup_logging()
+    window = MainWindow()
+    previous_hook = sys.excepthook
+    install_excepthook(window)
+    window.show()
+    if session_path:
+        QTimer.singleShot(0, lambda: window.open_session(session_path))
+    try:
+        return int(app.exec())
+    finally:
+        sys.excepthook = previous_hook

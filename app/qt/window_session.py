@@ -1,0 +1,189 @@
+"""The review window's session handling: open (recent files, drag and drop), import a folder,
+save and close. A part of ``MainWindow`` (``app.qt.window``); the store is reached through the
+window's ``SessionModel`` only.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtWidgets import QFileDialog, QMessageBox
+
+from app.qt.workers import BackgroundJob, JobOutcome, import_job
+from app.review.model import MANIFEST_NAME, SessionLocked
+from core import WakelineError
+
+MAX_RECENT = 8
+SESSION_FILTER = "wakeline sessions (*.h5 *.hdf5);;All files (*)"
+
+
+class SessionActions:
+    """Opening, importing, saving and closing sessions (mixed into ``MainWindow``)."""
+
+    def recent_sessions(self) -> list[str]:
+        value = self.settings.value("recent", [])
+        if isinstance(value, str):
+            value = [value] if value else []
+        return [str(v) for v in value]
+
+    def _remember_recent(self, path: Path) -> None:
+        text = str(Path(path).resolve())
+        items = [text] + [p for p in self.recent_sessions() if p != text]
+        self.settings.setValue("recent", items[:MAX_RECENT])
+        self._rebuild_recent()
+
+    def _rebuild_recent(self) -> None:
+        self.recent_menu.clear()
+        recent = self.recent_sessions()
+        for index, path in enumerate(recent, start=1):
+            action = self.recent_menu.addAction(f"&{index} {path}")
+            action.triggered.connect(lambda _=False, p=path: self.open_session(p))
+        self.recent_menu.setEnabled(bool(recent))
+
+
+    # -- session -----------------------------------------------------------------------------
+    def open_session_dialog(self) -> None:
+        path, _ = QFileDialog.getOpenFileName(self, "Open session", self._last_folder(),
+                                              SESSION_FILTER)
+        if path:
+            self.open_session(path)
+
+    def open_session(self, path, writable: bool = True) -> bool:
+        """Open a session file; problems are shown to the user, never raised. True on success."""
+        path = Path(path)
+        current = self.model.path
+        if current is not None and current.resolve() == path.resolve():
+            if writable != self.model.read_only:
+                return True  # already open as asked
+            self.close_session()  # reopening the same file: our own lock must go first
+        try:
+            self.model.open(path, writable=writable)  # the open session stays if this fails
+        except SessionLocked as exc:
+            if writable and self._ask_read_only(str(exc)):
+                return self.open_session(path, writable=False)
+            self.show_problem("Session in use", str(exc))
+            return False
+        except WakelineError as exc:
+            self.show_problem("Cannot open session", str(exc))
+            return False
+        except OSError as exc:
+            self.show_problem("Cannot open session", f"{path}: {exc.strerror or exc}")
+            return False
+        self._remember_recent(path)
+        self.settings.setValue("last_folder", str(path.parent))
+        ids = self.shot_list.visible_ids()
+        if ids:
+            self.model.set_current(ids[0])
+        self.shot_list.view.setFocus()
+        unprocessed = self.model.unprocessed_ids()
+        if unprocessed and self.act_auto.isChecked() and not self.model.read_only:
+            self.start_processing(unprocessed)
+        return True
+
+    def _ask_read_only(self, text: str) -> bool:
+        answer = QMessageBox.question(self, "Session in use",
+                                      f"{text}\n\nOpen it read-only to look at it?")
+        return answer == QMessageBox.StandardButton.Yes
+
+    def close_session(self) -> None:
+        try:
+            self.model.close()  # its closing signal stops the job and clears the undo stack
+        except WakelineError as exc:
+            self.show_problem("Closing the session", str(exc))
+
+    def _on_session_closing(self) -> None:
+        if self.job is not None:
+            self.job.cancel_and_wait()
+        self.undo_stack.clear()
+
+    def save_session(self) -> None:
+        if self.model.read_only:
+            self.statusBar().showMessage("Nothing to save.", 4000)
+            return
+        try:
+            self.model.compact()
+        except WakelineError as exc:
+            self.show_problem("Save", str(exc))
+            return
+        self.statusBar().showMessage(
+            "Every edit was already saved when you made it; the session file is now compacted.",
+            6000,
+        )
+
+    def import_folder_dialog(self, folder: str | None = None) -> None:
+        if folder is None:
+            folder = QFileDialog.getExistingDirectory(self, "Import a folder of shots",
+                                                      self._last_folder())
+        if not folder:
+            return
+        default = str(Path(folder).with_suffix(".h5"))
+        target, _ = QFileDialog.getSaveFileName(self, "Session file to create or add to",
+                                                default, SESSION_FILTER)
+        if target:
+            self.import_folder(folder, target)
+
+    def import_folder(self, folder, session_path) -> BackgroundJob | None:
+        """Import ``folder`` into ``session_path`` in the background, then open the session."""
+        if self.job is not None:
+            self.show_problem("Busy", "Wait for the running job to finish or cancel it.")
+            return None
+        open_path = None if self.model.path is None else self.model.path.resolve()
+        if open_path == Path(session_path).resolve():
+            self.close_session()
+        job = import_job(folder, session_path, self)
+        job.item_done.connect(self._on_import_item)
+        job.finished.connect(lambda outcome: self._on_import_finished(outcome, session_path))
+        self._start_job(job, "Importing", 0)
+        return job
+
+    def _on_import_item(self, item) -> None:
+        shot_id, _ok, _message = item
+        self.progress_label.setText(f"Importing {shot_id}")
+
+    def _on_import_finished(self, outcome: JobOutcome, session_path) -> None:
+        self._end_job()
+        if outcome.error:
+            self.show_problem("Import", outcome.error)
+            return
+        report = outcome.value
+        if report is None:  # stopped while the window closed
+            return
+        if report.problems:
+            self.show_problem("Import: some rows were not imported",
+                              "\n".join(report.problems[:15] + report.notes))
+        word = "Import stopped" if outcome.cancelled else "Imported"
+        self.statusBar().showMessage(f"{word}: {len(report.imported)} shots imported.", 6000)
+        self.open_session(session_path)
+
+    def _last_folder(self) -> str:
+        return str(self.settings.value("last_folder", str(Path.home())))
+
+    # -- drag and drop ---------------------------------------------------------------------
+    def dragEnterEvent(self, event) -> None:
+        urls = event.mimeData().urls() if event.mimeData().hasUrls() else []
+        if urls and all(u.isLocalFile() for u in urls):
+            event.acceptProposedAction()
+        else:
+            event.ignore()
+
+    def dropEvent(self, event) -> None:
+        urls = event.mimeData().urls()
+        if not urls:
+            return
+        event.acceptProposedAction()
+        self.open_dropped(Path(urls[0].toLocalFile()))
+
+    def open_dropped(self, path: Path) -> None:
+        """A session file opens; a shot folder (or its shots.csv) is offered for import."""
+        if path.is_dir() or path.name == MANIFEST_NAME:
+            folder = path if path.is_dir() else path.parent
+            if not (folder / MANIFEST_NAME).is_file():
+                self.show_problem("Not a shot folder",
+                                  f"{folder}: no {MANIFEST_NAME} describing the shots")
+                return
+            self.import_folder_dialog(str(folder))
+            return
+        if not path.is_file():
+            self.show_problem("Cannot open", f"{path}: not found")
+            return
+        self.open_session(path)

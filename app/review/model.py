@@ -1,0 +1,256 @@
+"""Observable state of the review window: the open session, the current shot, the analyst's picks.
+
+``SessionModel`` wraps a ``core.store.Session`` (which knows nothing of Qt) and emits a signal
+only when something really changes; the window reaches the store through it alone. Every pick
+edit goes straight to the store's journal (``Session.set_pick`` returns after the edit is on
+disk), so the window never holds unsaved work. Only QtCore is used here (for the signals): no
+widgets.
+"""
+
+from __future__ import annotations
+
+from collections import OrderedDict
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from PySide6.QtCore import QObject, Signal
+
+from core import WakelineError
+from core.batch import iter_process
+from core.store import (
+    MANIFEST_NAME,
+    Pick,
+    ProcessState,
+    ReviewStatus,
+    Session,
+    SessionLocked,
+    ShotRecord,
+    import_folder,
+    write_table_csv,
+)
+
+__all__ = [
+    "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
+    "import_folder", "pick_values",
+]
+
+PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
+
+
+def pick_values(pick: Pick) -> dict:
+    """The editable fields of a pick as a plain dict (what undo commands store)."""
+    return {name: getattr(pick, name) for name in PICK_FIELDS}
+
+
+@dataclass
+class _Lru:
+    """A tiny least-recently-used cache keyed by shot id."""
+
+    size: int
+
+    def __post_init__(self) -> None:
+        self._items: OrderedDict = OrderedDict()
+
+    def get(self, key):
+        if key not in self._items:
+            return None
+        self._items.move_to_end(key)
+        return self._items[key]
+
+    def put(self, key, value) -> None:
+        self._items[key] = value
+        self._items.move_to_end(key)
+        while len(self._items) > self.size:
+            self._items.popitem(last=False)
+
+    def drop(self, key) -> None:
+        self._items.pop(key, None)
+
+    def clear(self) -> None:
+        self._items.clear()
+
+
+class SessionModel(QObject):
+    """The open session and the current shot, with change signals for the views."""
+
+    closing = Signal()  # the open session is about to close: stop what uses it
+    session_changed = Signal()  # a session was opened or closed
+    current_changed = Signal(str)  # the current shot id ("" for none)
+    record_changed = Signal(str)  # one shot's pick, result or processing state changed
+    edit_refused = Signal(str)  # an undo or redo the store refused: its one-line reason
+
+    def __init__(self, parent: QObject | None = None, cache_size: int = 6,
+                 frame_cache_size: int = 3) -> None:
+        super().__init__(parent)
+        self._session: Session | None = None
+        self._records: dict[str, ShotRecord] = {}
+        self._order: list[str] = []
+        self._current = ""
+        self._results = _Lru(cache_size)
+        self._frames = _Lru(frame_cache_size)  # frame pairs are big (2 x 16 MB at 2048 px)
+
+    # -- session -----------------------------------------------------------------------------
+    @property
+    def session(self) -> Session | None:
+        """The open store, for reading whole (the shot sheet); edits go through the model."""
+        return self._session
+
+    @property
+    def path(self) -> Path | None:
+        return None if self._session is None else Path(self._session.path)
+
+    @property
+    def name(self) -> str:
+        return "" if self._session is None else self._session.name
+
+    def open(self, path, writable: bool = True) -> None:
+        """Open the session file at ``path``; the open one is closed only once it succeeded.
+
+        Raises
+        ------
+        core.WakelineError
+            When the file cannot be opened (``SessionLocked`` when another process holds it).
+        """
+        session = Session.open(path, writable=writable)
+        self._drop_session()
+        self._session = session
+        self._order = list(session)
+        self._records = dict(session.items())
+        self._current = ""
+        self.session_changed.emit()
+        self.current_changed.emit("")
+
+    def close(self) -> None:
+        had = self._session is not None
+        self._drop_session()
+        if had:
+            self.session_changed.emit()
+            self.current_changed.emit("")
+
+    def _drop_session(self) -> None:
+        if self._session is not None:
+            self.closing.emit()
+            self._session.close()
+        self._session = None
+        self._records.clear()
+        self._order = []
+        self._current = ""
+        self._results.clear()
+        self._frames.clear()
+
+    @property
+    def read_only(self) -> bool:
+        return self._session is None or bool(self._session.read_only)
+
+    # -- records -----------------------------------------------------------------------------
+    def shot_ids(self) -> list[str]:
+        return list(self._order)
+
+    def record(self, shot_id: str) -> ShotRecord:
+        return self._records[shot_id]
+
+    def records(self) -> list[ShotRecord]:
+        return [self._records[sid] for sid in self._order]
+
+    def refresh(self, shot_id: str) -> None:
+        """Re-read one shot's record from the store and tell the views."""
+        self._records[shot_id] = self._session[shot_id]
+        self._results.drop(shot_id)
+        self.record_changed.emit(shot_id)
+
+    # -- current shot ------------------------------------------------------------------------
+    @property
+    def current_id(self) -> str:
+        return self._current
+
+    def set_current(self, shot_id: str) -> None:
+        if shot_id and shot_id not in self._records:
+            raise KeyError(shot_id)
+        if shot_id != self._current:
+            self._current = shot_id
+            self.current_changed.emit(shot_id)
+
+    # -- data of one shot --------------------------------------------------------------------
+    def result(self, shot_id: str):
+        """The shot's stored ``ShotResult`` (None when unprocessed or failed), cached."""
+        cached = self._results.get(shot_id)
+        if cached is None and self._records[shot_id].state == ProcessState.PROCESSED:
+            cached = self._session.load_result(shot_id)
+            if cached is not None:
+                self._results.put(shot_id, cached)
+        return cached
+
+    def frames(self, shot_id: str) -> tuple[np.ndarray, np.ndarray]:
+        """The shot's frame pair, cached. Raises core.WakelineError when frames are missing."""
+        cached = self._frames.get(shot_id)
+        if cached is None:
+            cached = self._session.load_frames(shot_id)
+            self._frames.put(shot_id, cached)
+        return cached
+
+    def prefetch(self, shot_id: str) -> None:
+        """Read a shot's result and frames into the cache ahead of need; problems wait until
+        the shot is shown."""
+        if not shot_id or shot_id not in self._records or self._session is None:
+            return
+        try:
+            self.result(shot_id)
+            self.frames(shot_id)
+        except (WakelineError, OSError, KeyError):
+            pass  # reported when the shot is shown
+
+    # -- edits -------------------------------------------------------------------------------
+    def apply_pick(self, shot_id: str, **changes) -> Pick:
+        """Write a pick edit through the store's journal, then tell the views if it changed.
+
+        ``changes`` takes the keywords of ``Session.set_pick`` (status, upper_deg, lower_deg,
+        reason, note); the edit is on disk when this returns.
+        """
+        before = pick_values(self._records[shot_id].pick)
+        pick = self._session.set_pick(shot_id, **changes)
+        self._records[shot_id] = self._session[shot_id]
+        if pick_values(pick) != before:
+            self.record_changed.emit(shot_id)
+        return pick
+
+    def unprocessed_ids(self) -> list[str]:
+        return [sid for sid in self._order
+                if self._records[sid].state == ProcessState.UNPROCESSED]
+
+    # -- processing and files ----------------------------------------------------------------
+    def count_to_process(self, shot_ids=None, force: bool = False) -> int:
+        """Shots a processing run would measure: ``shot_ids``, or all with ``force``, or those
+        not processed with the current settings."""
+        if shot_ids:
+            return len(shot_ids)
+        if force:
+            return len(self._order)
+        return sum(self._session.needs_processing(s) for s in self._order)
+
+    def processing_settings(self) -> dict:
+        return {} if self._session is None else self._session.processing_settings()
+
+    def set_processing_settings(self, settings: dict) -> bool:
+        """Keep new session-wide processing settings; False when they are the same."""
+        if settings == self._session.processing_settings():
+            return False
+        self._session.set_processing_settings(settings)
+        return True
+
+    def iter_process(self, shot_ids=None, workers=None, force: bool = False, should_stop=None):
+        """Process shots (``core.batch.iter_process``); runs on a worker thread, so the views
+        learn of each finished shot by ``refresh`` on the GUI thread."""
+        return iter_process(self._session, shot_ids, workers=workers, force=force,
+                            should_stop=should_stop)
+
+    def check_frames(self, should_stop=None) -> dict[str, str]:
+        return self._session.check_frames(should_stop)
+
+    def compact(self) -> None:
+        """Fold the journal into the session file (every edit is already on disk)."""
+        self._session.compact()
+
+    def write_table(self, path) -> int:
+        """The table of picks as CSV (as ``wakeline table``); returns the row count."""
+        return write_table_csv(self._session, path)

@@ -1,0 +1,115 @@
+"""A shot's numbers as text: the one formatter of angles, flight, wake, ball and vectors used by
+the review window's readout, the shot sheet and ``wakeline pair`` (no Qt here).
+
+Angles are in degrees with one decimal and their sign (positive rearward, see README), speeds
+in m/s with one decimal; a missing value is an em dash.
+"""
+
+from __future__ import annotations
+
+import math
+
+from core.results import Flight, SeparationResult, SideProposal
+from core.summary import ShotSummary, VectorCounts
+
+MISSING = "—"
+BALL_DISPLACEMENT = "ball displacement"  # the usual source of the flight direction
+
+
+def angle_text(value_deg: float | None, signed: bool = True) -> str:
+    """``+12.3°`` (or ``12.3°`` unsigned); the em dash when there is no finite value."""
+    if value_deg is None or not math.isfinite(value_deg):
+        return MISSING
+    return f"{value_deg:+.1f}°" if signed else f"{value_deg:.1f}°"
+
+
+def uncertainty_text(value_deg: float | None) -> str:
+    """``± 1.5°``, or the em dash."""
+    return MISSING if value_deg is None else f"± {angle_text(value_deg, signed=False)}"
+
+
+def quality_text(value: float | None) -> str:
+    """Proposal quality 0..1 with two decimals, or the em dash."""
+    return MISSING if value is None or not math.isfinite(value) else f"{value:.2f}"
+
+
+def proposal_text(side: SideProposal) -> str:
+    """``+12.3° ± 1.5°, quality 0.80``, or ``none (reason)`` without a proposal."""
+    if side.angle_deg is None:
+        return "none" + (f" ({side.reason})" if side.reason else "")
+    out = angle_text(side.angle_deg)
+    if side.uncertainty_deg is not None:
+        out += f" {uncertainty_text(side.uncertainty_deg)}"
+    if side.quality is not None:
+        out += f", quality {quality_text(side.quality)}"
+    return out
+
+
+def speed_text(speed_m_s: float | None) -> str:
+    """``30.1 m/s``, or the em dash."""
+    return MISSING if speed_m_s is None else f"{speed_m_s:.1f} m/s"
+
+
+def direction_text(flight: Flight | None) -> str:
+    """Flight direction, with its source when it is not the ball's own displacement."""
+    if flight is None:
+        return MISSING
+    out = angle_text(flight.direction_deg, signed=False)
+    if flight.source and flight.source != BALL_DISPLACEMENT:
+        out += f" ({flight.source})"
+    return out
+
+
+def flight_text(flight: Flight | None) -> str:
+    """``178.3° at 30.1 m/s``; says why the speed is unknown when it is."""
+    if flight is None:
+        return MISSING
+    if flight.speed_m_s is None:
+        return f"{direction_text(flight)}, speed unknown (needs dt and a scale)"
+    return f"{direction_text(flight)} at {speed_text(flight.speed_m_s)}"
+
+
+def wake_text(separation: SeparationResult) -> str:
+    """The wake state, and its deflection from the flight axis when measured."""
+    state = separation.wake_state
+    if separation.wake_deflection_deg is None:
+        return state
+    return f"{state}, deflected {angle_text(separation.wake_deflection_deg)} from the flight axis"
+
+
+def ball_text(summary: ShotSummary) -> str:
+    """Ball centre and radius in frame A; its diameter with the scale when there is one."""
+    ball = summary.ball_a
+    if ball is None:
+        return MISSING
+    cx, cy = ball.center_px
+    out = f"centre ({cx:.1f}, {cy:.1f}) px, r {ball.radius_px:.1f} px"
+    scale = summary.scale_mm_per_px
+    if scale:
+        out += f", Ø {2 * ball.radius_px * scale:.1f} mm at {scale:.4g} mm/px"
+    return out
+
+
+def vectors_text(vectors: VectorCounts) -> str:
+    """Valid, replaced and masked vectors of the last pass and its grid."""
+    out = (f"{vectors.valid} valid, {vectors.replaced} replaced, {vectors.masked} masked "
+           f"of {vectors.count}")
+    if vectors.window_px is not None:
+        out += f" ({vectors.window_px} px windows, {vectors.spacing_px:g} px apart)"
+    return out
+
+
+def shot_rows(summary: ShotSummary) -> list[tuple[str, str]]:
+    """``(label, text)`` rows of a shot's numbers, most important first; rows with nothing to
+    tell (no ball: no separation, wake or ball) are left out."""
+    rows = []
+    if summary.ball_a is not None:
+        rows += [(f"{side} separation", proposal_text(summary.side(side)))
+                 for side in ("upper", "lower")]
+        rows.append(("wake", wake_text(summary.separation)))
+    if summary.flight is not None:
+        rows.append(("flight", flight_text(summary.flight)))
+    if summary.ball_a is not None:
+        rows.append(("ball", ball_text(summary)))
+    rows.append(("vectors", vectors_text(summary.vectors)))
+    return rows

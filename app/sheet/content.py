@@ -1,0 +1,237 @@
+"""What goes on the shot sheet, without painting it (no Qt): which shots, how many pages, the
+summary statistics of the cover, and the texts of a shot panel (in the words and number formats
+of ``app.review.text``).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from pathlib import Path
+
+import numpy as np
+
+from app.review.marks import moved_from_proposal
+from app.review.overview import column_value
+from app.review.text import MISSING, angle_text, proposal_text
+from core import WakelineError
+from core.results import SideProposal
+from core.store import ReviewStatus, ShotRecord
+
+PER_PAGE_CHOICES = (1, 2, 3, 4)
+SUMMARY_ROWS_ON_COVER = 10
+SUMMARY_ROWS_PER_PAGE = 40
+CONVENTIONS = (
+    "Separation angle: deg from the plane through the ball centre normal to the flight, "
+    "+ rearward (add 90 for the angle from the front stagnation point). Upper = side toward the "
+    "top of the picture. Flight direction: 0 deg = toward +x (right), 90 deg = toward the top. "
+    "Vorticity in 1/s, counter-clockwise on the page positive. Velocity in m/s, lab frame. "
+    "Pictures: dashed line = plane normal to the flight; arrow = flight; filled dot = final "
+    "separation; hollow dot = proposal (grey where the analyst moved the mark; ? = not reviewed)."
+)
+
+
+
+
+@dataclass
+class SheetReport:
+    """What ``make_sheet`` wrote."""
+
+    path: Path
+    pages: int
+    shot_ids: list[str]
+
+
+def parse_statuses(text: str | None) -> tuple[ReviewStatus, ...] | None:
+    """``"accepted,adjusted"`` -> ``(ACCEPTED, ADJUSTED)``; None or "" -> None (all)."""
+    if not text:
+        return None
+    wanted = tuple(s.strip() for s in text.split(",") if s.strip())
+    words = [str(s) for s in ReviewStatus]
+    unknown = [s for s in wanted if s not in words]
+    if unknown:
+        raise WakelineError(
+            f"--status: unknown review status {unknown[0]!r} (use {', '.join(words)})"
+        )
+    return tuple(ReviewStatus(s) for s in wanted)
+
+
+def select_records(session, shot_ids=None, statuses=None) -> list:
+    """Records of the shots on the sheet, in session order."""
+    records = list(session.values())
+    if shot_ids:
+        known = {r.shot_id for r in records}
+        missing = [s for s in shot_ids if s not in known]
+        if missing:
+            raise WakelineError(f"{session.path}: no shot {missing[0]!r} in this session")
+        chosen = set(shot_ids)
+        records = [r for r in records if r.shot_id in chosen]
+    if statuses:
+        records = [r for r in records if r.pick.status in statuses]
+    return records
+
+
+def shot_page_count(n_shots: int, per_page: int) -> int:
+    return max(1, math.ceil(n_shots / per_page)) if n_shots else 0
+
+
+def summary_page_count(n_rows: int) -> int:
+    """Pages the cover needs: the cover itself plus continuation pages for a long table."""
+    extra = max(0, n_rows - SUMMARY_ROWS_ON_COVER)
+    return 1 + math.ceil(extra / SUMMARY_ROWS_PER_PAGE)
+
+
+# --- summary table ------------------------------------------------------------------------------
+
+
+@dataclass
+class SummaryRow:
+    value: float
+    n: int
+    upper_mean: float
+    upper_sd: float
+    lower_mean: float
+    lower_sd: float
+
+
+def summary_rows(records, column: str) -> list[SummaryRow]:
+    """Mean and sample standard deviation of each side's final angle for each value of ``column``.
+
+    Only shots with a final angle (accepted or adjusted) count; SD is NaN for fewer than two.
+    """
+    groups: dict[float, tuple[list[float], list[float], set]] = {}
+    for position, record in enumerate(records):
+        x = column_value(record, column, position)
+        if x is None:
+            continue
+        ups, lows, ids = groups.setdefault(round(x, 6), ([], [], set()))
+        for side, bucket in (("upper", ups), ("lower", lows)):
+            value = record.final_deg(side)
+            if value is not None:
+                bucket.append(float(value))
+                ids.add(record.shot_id)
+    rows = []
+    for x in sorted(groups):
+        ups, lows, ids = groups[x]
+        if ids:
+            rows.append(SummaryRow(x, len(ids), *_mean_sd(ups), *_mean_sd(lows)))
+    return rows
+
+
+def _mean_sd(values: list[float]) -> tuple[float, float]:
+    if not values:
+        return float("nan"), float("nan")
+    arr = np.asarray(values)
+    sd = float(np.std(arr, ddof=1)) if arr.size > 1 else float("nan")
+    return float(arr.mean()), sd
+
+
+
+def status_counts(records) -> dict[str, int]:
+    counts = {s: 0 for s in ReviewStatus}
+    for r in records:
+        counts[r.pick.status] = counts.get(r.pick.status, 0) + 1
+    return counts
+
+
+def process_counts(records) -> dict[str, int]:
+    counts: dict[str, int] = {}
+    for r in records:
+        counts[r.state] = counts.get(r.state, 0) + 1
+    return counts
+
+
+def session_date(session, records) -> str:
+    created = getattr(session, "created", None) or getattr(session, "created_utc", None)
+    if created:
+        return str(created)[:10]
+    try:
+        stamp = Path(session.path).stat().st_mtime
+    except OSError:
+        return ""
+    return datetime.fromtimestamp(stamp, UTC).strftime("%Y-%m-%d") + " (file saved)"
+
+
+
+def metadata_line(record) -> str:
+    md = record.metadata or {}
+    parts = []
+    for key, label, unit in (("ball_type", "", ""), ("seam_deg", "seam ", " deg"),
+                             ("speed_nominal_m_s", "", " m/s nominal"),
+                             ("spin_rpm", "spin ", " rpm")):
+        value = md.get(key)
+        if value not in (None, ""):
+            parts.append(f"{label}{_short(value)}{unit}")
+    return "   ".join(parts)
+
+
+def _short(value) -> str:
+    if isinstance(value, float):
+        return f"{value:g}"
+    return str(value)
+
+
+
+def final_text(record: ShotRecord, side: str) -> str:
+    """The angle to report on ``side``, marked when the analyst moved it; why there is none."""
+    final = record.final_deg(side)
+    if final is None:
+        why = {ReviewStatus.UNUSABLE: " (unusable)", ReviewStatus.TO_REVIEW: " (not reviewed)"}
+        return MISSING + why.get(record.pick.status, "")
+    return angle_text(final) + ("  ADJUSTED" if moved_by_analyst(record, side) else "")
+
+
+def moved_by_analyst(record: ShotRecord, side: str) -> bool:
+    """True when the analyst set this side's angle away from the proposal."""
+    mine = getattr(record.pick, f"{side}_deg")
+    return (record.pick.status == ReviewStatus.ADJUSTED
+            and moved_from_proposal(mine, record.proposed_deg(side)))
+
+
+def side_detail(record: ShotRecord, side: str) -> str:
+    """The final angle from the front stagnation point, and the machine's proposal."""
+    final = record.final_deg(side)
+    parts = []
+    if final is not None:
+        parts.append(f"{angle_text(final + 90.0, signed=False)} from front stagnation")
+    proposal = SideProposal(None) if record.summary is None else record.summary.side(side)
+    parts.append("proposal " + proposal_text(proposal))
+    return "; ".join(parts)
+
+
+def timing_text(record: ShotRecord) -> str:
+    """Time between the frames, the scale used and the ball diameter."""
+    md, summary = record.metadata or {}, record.summary
+    parts = []
+    dt = md.get("dt_s") if summary is None else summary.dt_s
+    if dt not in (None, ""):
+        parts.append(f"dt {float(dt) * 1e6:.1f} us")
+    scale = md.get("scale_mm_per_px") if summary is None else summary.scale_mm_per_px
+    if scale not in (None, ""):
+        parts.append(f"{float(scale):.4g} mm/px")
+    if md.get("ball_diameter_mm") not in (None, ""):
+        parts.append(f"ball {float(md['ball_diameter_mm']):g} mm")
+    return ", ".join(parts) or MISSING
+
+
+def review_text(record: ShotRecord) -> str:
+    pick = record.pick
+    out = str(pick.status)
+    if pick.who:
+        out += f" by {pick.who}"
+    if pick.when:
+        out += f", {pick.when[:16].replace('T', ' ')}"
+    return out
+
+
+
+def selection_text(records, all_records, shot_ids, statuses, per_page) -> str:
+    parts = [f"This sheet: {len(records)} of {len(all_records)} shots"]
+    if statuses:
+        parts.append("status " + " or ".join(statuses))
+    if shot_ids:
+        parts.append("chosen by id")
+    parts.append(f"{per_page} per page")
+    return ", ".join(parts) + "."
+

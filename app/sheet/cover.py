@@ -1,0 +1,222 @@
+"""The cover of the shot sheet: the session's name, counts by review status and processing
+state, the session overview plot and the table of final angles by one column.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+from PySide6 import QtCore, QtGui
+
+from app.review import colours
+from app.review.overview import PLOTTED_STATUSES, OverviewPoints, left_out_text, overview_points
+from app.review.text import angle_text
+from app.sheet.content import (
+    SUMMARY_ROWS_ON_COVER,
+    SUMMARY_ROWS_PER_PAGE,
+    SummaryRow,
+    process_counts,
+    session_date,
+    status_counts,
+)
+from app.sheet.kit import (
+    Pages,
+    font,
+    mm,
+    nice_ticks,
+    pen,
+    qcolor,
+    rect_mm,
+    text,
+    tick_label,
+    triangle,
+)
+from core.store import ReviewStatus
+
+
+def paint_cover(pages: Pages, session, all_records, records, column: str,
+                 rows: list[SummaryRow], selection_text: str) -> None:
+    p = pages.painter
+    pages.new_page("cover")
+    x, y, w, _h = pages.body()
+    name = getattr(session, "name", "") or Path(session.path).stem
+    p.setFont(font(20, bold=True))
+    name = p.fontMetrics().elidedText(name, QtCore.Qt.TextElideMode.ElideRight,
+                                      int(mm(2 * w - 20)))  # at most two lines
+    used = text(p, rect_mm(x, y, w, 20), name, 20, bold=True, colour=colours.ACCENT)
+    y += used.height() / mm(1) + 1.5
+    info = (f"Session file: {Path(session.path).name}    Date: {session_date(session, all_records)}"
+            f"    Shots in session: {len(all_records)}")
+    text(p, rect_mm(x, y, w, 5), info, 8.5, colour=colours.MUTED_INK)
+    y += 5
+    text(p, rect_mm(x, y, w, 5), selection_text, 8.5, colour=colours.MUTED_INK)
+    y += 8
+    y = _paint_status_boxes(p, x, y, w, all_records)
+    y += 5
+    text(p, rect_mm(x, y, w, 6), "Session overview", 11, bold=True)
+    y += 6.5
+    pts = overview_points(records, column)
+    _paint_overview(p, rect_mm(x, y, w, 88), pts)
+    y += 90
+    text(p, rect_mm(x, y, w, 5), left_out_text(pts) or " ", 7.5, colour=colours.MUTED_INK)
+    y += 6
+    text(p, rect_mm(x, y, w, 6), f"Final angles by {column}", 11, bold=True)
+    y += 6.5
+    text(p, rect_mm(x, y, w, 5),
+         "Accepted and adjusted shots only; mean and sample standard deviation (SD) in deg.",
+         7.5, colour=colours.MUTED_INK)
+    y += 5.5
+    _paint_summary_table(p, x, y, w, column, rows[:SUMMARY_ROWS_ON_COVER])
+    rest = rows[SUMMARY_ROWS_ON_COVER:]
+    while rest:
+        pages.new_page("cover, continued")
+        x, y, w, _h = pages.body()
+        text(p, rect_mm(x, y, w, 6), f"Final angles by {column} (continued)", 11, bold=True)
+        _paint_summary_table(p, x, y + 8, w, column, rest[:SUMMARY_ROWS_PER_PAGE])
+        rest = rest[SUMMARY_ROWS_PER_PAGE:]
+
+
+def _paint_status_boxes(p, x: float, y: float, w: float, records) -> float:
+    counts = status_counts(records)
+    processing = process_counts(records)
+    box_w = (w - 3 * 3) / 4
+    for i, status in enumerate(ReviewStatus):
+        bx = x + i * (box_w + 3)
+        colour = colours.STATUS_COLOURS[status]
+        p.fillRect(rect_mm(bx, y, box_w, 15), qcolor(colour, 28))
+        p.fillRect(rect_mm(bx, y, 1.6, 15), qcolor(colour))
+        text(p, rect_mm(bx + 4, y + 1.2, box_w - 5, 8), str(counts.get(status, 0)), 16, bold=True,
+             colour=colour)
+        text(p, rect_mm(bx + 4, y + 9.2, box_w - 5, 5), status, 8.5, colour=colours.INK)
+    y += 17
+    parts = [f"{n} {state}" for state, n in sorted(processing.items())]
+    text(p, rect_mm(x, y, w, 5), "Processing: " + ", ".join(parts), 8, colour=colours.MUTED_INK)
+    return y + 5
+
+
+def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints) -> None:
+    """The session overview as vector graphics: angles against ``pts.column``."""
+    p.save()
+    plot = frame.adjusted(mm(16), mm(2), -mm(3), -mm(17))
+    if not len(pts):
+        p.fillRect(plot, qcolor(colours.PAPER_TINT))
+        text(p, plot, "No shot with a separation angle to draw.", 9, italic=True,
+             colour=colours.MUTED_INK, flags=QtCore.Qt.AlignmentFlag.AlignCenter)
+        p.restore()
+        return
+    p.fillRect(plot, qcolor("#ffffff"))
+    ys = np.concatenate([pts.upper_deg, pts.lower_deg]) if len(pts) else np.array([])
+    ys = ys[np.isfinite(ys)]
+    ylo, yhi = (float(ys.min()), float(ys.max())) if ys.size else (-10.0, 30.0)
+    ylo, yhi = min(ylo, 0.0), max(yhi, 0.0)
+    pad = max(2.0, 0.08 * (yhi - ylo))
+    ylo, yhi = ylo - pad, yhi + pad
+    xs = pts.drawn_x()
+    xlo, xhi = (float(xs.min()), float(xs.max())) if len(pts) else (0.0, 1.0)
+    xpad = 0.06 * (xhi - xlo) if xhi > xlo else 1.0
+    xlo, xhi = xlo - xpad, xhi + xpad
+
+    def to_page(xv: float, yv: float) -> QtCore.QPointF:
+        px = plot.left() + (xv - xlo) / (xhi - xlo) * plot.width()
+        py = plot.bottom() - (yv - ylo) / (yhi - ylo) * plot.height()
+        return QtCore.QPointF(px, py)
+
+    _paint_axes(p, plot, (xlo, xhi), (ylo, yhi), to_page, pts.column)
+    p.setClipRect(plot)
+    p.setPen(pen(colours.PLANE_LINE, 0.3, QtCore.Qt.PenStyle.DashLine))
+    p.drawLine(to_page(xlo, 0.0), to_page(xhi, 0.0))
+    p.setPen(pen(colours.RULE, 0.35))
+    for i in range(len(pts)):
+        if np.isfinite(pts.upper_deg[i]) and np.isfinite(pts.lower_deg[i]):
+            p.drawLine(to_page(xs[i], pts.upper_deg[i]), to_page(xs[i], pts.lower_deg[i]))
+    for i in range(len(pts)):
+        colour = colours.STATUS_COLOURS[pts.status[i]]
+        for value, up in ((pts.upper_deg[i], True), (pts.lower_deg[i], False)):
+            if np.isfinite(value):
+                triangle(p, to_page(xs[i], value), up, colour, bool(pts.is_final[i]))
+    p.setClipping(False)
+    _paint_overview_legend(p, frame.left() + mm(16), frame.bottom() - mm(5.5))
+    p.restore()
+
+
+def _paint_axes(p, plot: QtCore.QRectF, xr, yr, to_page, column: str) -> None:
+    grid = pen(colours.RULE, 0.15)
+    p.setPen(grid)
+    for xv in nice_ticks(*xr, 8):
+        a = to_page(xv, yr[0])
+        p.setPen(grid)
+        p.drawLine(a, QtCore.QPointF(a.x(), plot.top()))
+        text(p, QtCore.QRectF(a.x() - mm(8), plot.bottom() + mm(1), mm(16), mm(4)),
+             tick_label(xv), 7.5, flags=QtCore.Qt.AlignmentFlag.AlignHCenter)
+    for yv in nice_ticks(*yr, 7):
+        a = to_page(xr[0], yv)
+        p.setPen(grid)
+        p.drawLine(a, QtCore.QPointF(plot.right(), a.y()))
+        text(p, QtCore.QRectF(plot.left() - mm(11), a.y() - mm(2), mm(10), mm(4)),
+             tick_label(yv), 7.5,
+             flags=QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignVCenter)
+    p.setPen(pen(colours.MUTED_INK, 0.3))
+    p.setBrush(QtCore.Qt.BrushStyle.NoBrush)
+    p.drawRect(plot)
+    text(p, QtCore.QRectF(plot.left(), plot.bottom() + mm(5), plot.width(), mm(5)), column, 8.5,
+         bold=True, flags=QtCore.Qt.AlignmentFlag.AlignHCenter)
+    p.save()
+    p.translate(plot.left() - mm(15), plot.center().y())
+    p.rotate(-90)
+    text(p, QtCore.QRectF(-mm(40), 0, mm(80), mm(4.5)), "separation angle (deg, + rearward)",
+         8, bold=True, flags=QtCore.Qt.AlignmentFlag.AlignHCenter)
+    p.restore()
+
+
+
+def _paint_overview_legend(p, x: float, y: float) -> None:
+    cx = x
+    for label, up in (("upper side", True), ("lower side", False)):
+        triangle(p, QtCore.QPointF(cx + mm(1.5), y + mm(2)), up, colours.INK, True)
+        text(p, QtCore.QRectF(cx + mm(4), y, mm(22), mm(4)), label, 7.5)
+        cx += mm(24)
+    for status in PLOTTED_STATUSES:
+        p.fillRect(QtCore.QRectF(cx, y + mm(0.8), mm(2.6), mm(2.6)),
+                   qcolor(colours.STATUS_COLOURS[status]))
+        text(p, QtCore.QRectF(cx + mm(4), y, mm(22), mm(4)), status, 7.5)
+        cx += mm(22)
+    triangle(p, QtCore.QPointF(cx + mm(1.5), y + mm(2)), True, colours.MUTED_INK, False)
+    text(p, QtCore.QRectF(cx + mm(4), y, mm(60), mm(4)), "hollow: proposal, not yet reviewed",
+         7.5)
+
+
+def _paint_summary_table(p, x: float, y: float, w: float, column: str,
+                         rows: list[SummaryRow]) -> float:
+    heads = [column, "shots", "upper mean", "upper SD", "lower mean", "lower SD",
+             "lower - upper"]
+    widths = [0.2, 0.1, 0.14, 0.12, 0.14, 0.12, 0.18]
+    row_h = 5.2
+    right = QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignVCenter
+    p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.ACCENT))
+    cx = x
+    for head, frac in zip(heads, widths):
+        text(p, rect_mm(cx, y, frac * w - 2, row_h), head, 8, bold=True, colour="#ffffff",
+             flags=right)
+        cx += frac * w
+    y += row_h
+    if not rows:
+        text(p, rect_mm(x, y + 1, w, row_h), "No accepted or adjusted shots yet.", 8.5,
+             italic=True, colour=colours.MUTED_INK)
+        return y + row_h
+    for k, row in enumerate(rows):
+        if k % 2:
+            p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.PAPER_TINT))
+        cells = [tick_label(row.value), str(row.n), angle_text(row.upper_mean),
+                 angle_text(row.upper_sd, signed=False), angle_text(row.lower_mean),
+                 angle_text(row.lower_sd, signed=False),
+                 angle_text(row.lower_mean - row.upper_mean)]
+        cx = x
+        for cell, frac in zip(cells, widths):
+            text(p, rect_mm(cx, y, frac * w - 2, row_h), cell, 8.5, flags=right)
+            cx += frac * w
+        y += row_h
+    p.setPen(pen(colours.RULE, 0.3))
+    p.drawLine(QtCore.QPointF(mm(x), mm(y)), QtCore.QPointF(mm(x + w), mm(y)))
+    return y
+

@@ -1,0 +1,139 @@
+"""The shot sheet: a vector PDF handing over a session, drawn with Qt's own PDF writer.
+
+Page 1 (the cover) names the session, counts shots by review status, shows the session overview
+and a summary table (mean and spread of each side's final angle per value of one column). Then
+one panel per shot: vorticity map with vectors, ball outline, flight arrow, the plane normal to
+the flight, both separation marks (final and, when adjusted, the proposal), the numbers, the
+metadata and the analyst's review. Every page has a title block, a footer with the units and
+conventions, and a page number. Works headless (an offscreen Qt application is made if needed).
+What goes on the pages is chosen in ``content``; ``kit``, ``cover`` and ``shot_panel`` paint it.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from pathlib import Path
+
+from PySide6 import QtCore, QtGui
+
+from app.review.overview import default_column, numeric_columns
+from app.sheet.content import (
+    PER_PAGE_CHOICES,
+    SheetReport,
+    select_records,
+    selection_text,
+    shot_page_count,
+    summary_page_count,
+    summary_rows,
+)
+from app.sheet.cover import paint_cover
+from app.sheet.kit import DPI, Pages, ensure_gui_application
+from app.sheet.shot_panel import paint_shot, panel_cells
+from core import WakelineError
+from core.store import ProcessState
+from core.store.files import atomic_write
+
+
+def make_sheet(
+    session,
+    out_path: str | Path,
+    *,
+    shot_ids: list[str] | None = None,
+    per_page: int = 2,
+    statuses: tuple[str, ...] | None = None,
+    column: str | None = None,
+    progress: Callable[[int, int], None] | None = None,
+) -> SheetReport:
+    """Write the shot sheet of ``session`` as a PDF.
+
+    Parameters
+    ----------
+    session : core.store.Session
+        An open session (read-only is enough).
+    out_path : path
+        The PDF to write (replaced atomically when complete).
+    shot_ids : list of str, optional
+        Shots to include (session order is kept); default all.
+    per_page : int
+        Shot panels per page: 1, 2, 3 (stacked) or 4 (two by two).
+    statuses : tuple of str, optional
+        Only shots whose review status is one of these.
+    column : str, optional
+        Numeric metadata column for the overview and the summary table; default the seam
+        orientation when present.
+    progress : callable(done, total), optional
+        Called after each shot panel; an exception it raises stops the sheet (no file is left).
+
+    Raises
+    ------
+    core.WakelineError
+        Unknown shot, bad ``per_page`` or status, no shot left to print, unwritable output.
+    """
+    if per_page not in PER_PAGE_CHOICES:
+        raise WakelineError(f"--per-page: must be one of {PER_PAGE_CHOICES}, not {per_page}")
+    ensure_gui_application()
+    all_records = list(session.values())
+    records = select_records(session, shot_ids, statuses)
+    if not records:
+        raise WakelineError(f"{session.path}: no shot matches the selection; nothing to print")
+    if column is None:
+        column = default_column(records)
+    elif column not in numeric_columns(records):
+        raise WakelineError(
+            f"--column: {column!r} is not a numeric column of this session "
+            f"(choose from {', '.join(numeric_columns(records))})"
+        )
+    rows = summary_rows(records, column)
+    total = summary_page_count(len(rows)) + shot_page_count(len(records), per_page)
+    out_path = Path(out_path)
+    name = getattr(session, "name", "") or Path(session.path).stem
+    _make_folder(out_path.parent)
+    with atomic_write(out_path, suffix=".part") as tmp:
+        writer = _writer(tmp, name)
+        painter = QtGui.QPainter()
+        if not painter.begin(writer):
+            raise WakelineError(f"{out_path}: cannot write the PDF here")
+        try:
+            pages = Pages(painter, writer, name, total)
+            paint_cover(pages, session, all_records, records, column, rows,
+                        selection_text(records, all_records, shot_ids, statuses, per_page))
+            _paint_shot_pages(pages, session, records, per_page, progress)
+        finally:
+            painter.end()
+            del writer  # closes the file
+    return SheetReport(out_path, pages.number, [r.shot_id for r in records])
+
+
+def _make_folder(folder: Path) -> None:
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise WakelineError(f"{folder}: cannot create folder ({exc.strerror})") from None
+
+
+def _writer(path: Path, title: str) -> QtGui.QPdfWriter:
+    writer = QtGui.QPdfWriter(str(path))
+    writer.setPageSize(QtGui.QPageSize(QtGui.QPageSize.PageSizeId.A4))
+    writer.setPageOrientation(QtGui.QPageLayout.Orientation.Portrait)
+    writer.setPageMargins(QtCore.QMarginsF(0, 0, 0, 0))
+    writer.setResolution(DPI)
+    writer.setTitle(f"wakeline shot sheet: {title}")
+    writer.setCreator("wakeline")
+    return writer
+
+
+
+def _paint_shot_pages(pages: Pages, session, records, per_page: int, progress) -> None:
+    cells = None
+    for index, record in enumerate(records):
+        slot = index % per_page
+        if slot == 0:
+            first = record.shot_id
+            last = records[min(index + per_page, len(records)) - 1].shot_id
+            pages.new_page(f"shots {first} - {last}" if first != last else f"shot {first}")
+            cells = panel_cells(per_page, pages.body())
+        processed = record.state == ProcessState.PROCESSED
+        result = session.load_result(record.shot_id) if processed else None
+        paint_shot(pages.painter, cells[slot], record, result)
+        if progress is not None:
+            progress(index + 1, len(records))

@@ -1,0 +1,345 @@
+"""One shot's panel on the sheet: its title bar, the field picture (vorticity, vectors, ball,
+flight, separation marks, legend) and its numbers.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from PySide6 import QtCore, QtGui
+
+from app.review import colours
+from app.review.marks import moved_from_proposal
+from app.review.text import MISSING, angle_text, flight_text, vectors_text, wake_text
+from app.sheet.content import (
+    final_text,
+    metadata_line,
+    review_text,
+    side_detail,
+    timing_text,
+)
+from app.sheet.kit import PANEL_GAP_MM, draw_arrow, mm, pen, qcolor, rect_mm, round_length, text
+from core.geometry import flight_unit, point_at_angle, side_normal
+from core.store import ReviewStatus
+
+
+def panel_cells(per_page: int, body) -> list[tuple[float, float, float, float]]:
+    x, y, w, h = body
+    if per_page == 4:
+        cw, ch = (w - PANEL_GAP_MM) / 2, (h - PANEL_GAP_MM) / 2
+        return [(x + c * (cw + PANEL_GAP_MM), y + r * (ch + PANEL_GAP_MM), cw, ch)
+                for r in range(2) for c in range(2)]
+    ch = (h - (per_page - 1) * PANEL_GAP_MM) / per_page
+    return [(x, y + i * (ch + PANEL_GAP_MM), w, ch) for i in range(per_page)]
+
+
+def paint_shot(p, cell, record, result) -> None:
+    x, y, w, h = cell
+    colour = colours.STATUS_COLOURS.get(record.pick.status, colours.MUTED_INK)
+    p.fillRect(rect_mm(x, y, w, 8), qcolor(colours.PAPER_TINT))
+    p.fillRect(rect_mm(x, y, 1.6, 8), qcolor(colour))
+    text(p, rect_mm(x + 3.5, y + 0.9, w * 0.55, 7), f"Shot {record.shot_id}", 12.5, bold=True)
+    pill = record.pick.status.upper()
+    p.setBrush(qcolor(colour))
+    p.setPen(QtCore.Qt.PenStyle.NoPen)
+    p.drawRoundedRect(rect_mm(x + w - 30, y + 1.5, 28, 5), mm(2.4), mm(2.4))
+    text(p, rect_mm(x + w - 30, y + 1.5, 28, 5), pill, 8, bold=True, colour="#ffffff",
+         flags=QtCore.Qt.AlignmentFlag.AlignCenter)
+    narrow = w < 120  # two panels across: the metadata goes with the numbers instead
+    if not narrow:
+        text(p, rect_mm(x + w * 0.42, y + 2.2, w * 0.58 - 33, 5), metadata_line(record), 7.5,
+             colour=colours.MUTED_INK, flags=QtCore.Qt.AlignmentFlag.AlignRight)
+    y += 10
+    h -= 10
+    side_by_side = w > 1.25 * h
+    if side_by_side:
+        text_w = min(72.0, w * 0.42)
+        pic = (x, y, w - text_w - 4, h)
+        info = (x + w - text_w, y, text_w, h)
+    else:
+        pic_h = h * (0.5 if narrow else 0.56)
+        pic = (x, y, w, pic_h)
+        info = (x, y + pic_h + 3, w, h - pic_h - 3)
+    if result is None:
+        reason = record.failure or "not processed yet"
+        p.fillRect(rect_mm(*pic), qcolor(colours.PAPER_TINT))
+        text(p, rect_mm(pic[0] + 4, pic[1] + pic[3] / 2 - 4, pic[2] - 8, 10),
+             f"No field: {reason}", 9, italic=True, colour=colours.MUTED_INK,
+             flags=QtCore.Qt.AlignmentFlag.AlignCenter)
+    else:
+        _paint_field(p, pic, record, result)
+    _paint_numbers(p, info, record, with_metadata=narrow)
+
+
+
+@dataclass
+class _View:
+    """Maps image px to page device units for the field picture (uniform scale)."""
+
+    x0_px: float
+    y0_px: float
+    scale: float  # device units per image px
+    left: float
+    top: float
+
+    def __call__(self, x_px: float, y_px: float) -> QtCore.QPointF:
+        return QtCore.QPointF(self.left + (x_px - self.x0_px) * self.scale,
+                              self.top + (y_px - self.y0_px) * self.scale)
+
+
+def _crop_box(result, aspect: float) -> tuple[float, float, float, float]:
+    """Image-px box (x0, y0, w, h) around the ball and its wake, with the given w/h aspect."""
+    vf = result.field
+    spacing = float(vf.spacing_px)
+    fx0, fx1 = float(np.nanmin(vf.x_px)) - spacing / 2, float(np.nanmax(vf.x_px)) + spacing / 2
+    fy0, fy1 = float(np.nanmin(vf.y_px)) - spacing / 2, float(np.nanmax(vf.y_px)) + spacing / 2
+    ball = result.ball_a
+    if ball is None or result.flight is None:
+        bx0, by0, bx1, by1 = fx0, fy0, fx1, fy1
+    else:
+        cx, cy = ball.center_px
+        r = ball.radius_px
+        fx, fy = flight_unit(result.flight.direction_deg)
+        nx, ny = side_normal(result.flight.direction_deg, "upper")
+        corners = [(cx + r * (a * fx + b * nx), cy + r * (a * fy + b * ny))
+                   for a in (-5.0, 2.0) for b in (-2.6, 2.6)]
+        xs, ys = [c[0] for c in corners], [c[1] for c in corners]
+        bx0, bx1 = max(fx0, min(xs)), min(fx1, max(xs))
+        by0, by1 = max(fy0, min(ys)), min(fy1, max(ys))
+    bw, bh = bx1 - bx0, by1 - by0
+    if bw / bh < aspect:  # too tall: widen within the field, then accept what is left
+        bw = bh * aspect
+    else:
+        bh = bw / aspect
+    cx, cy = (bx0 + bx1) / 2, (by0 + by1) / 2
+    bw, bh = min(bw, fx1 - fx0), min(bh, fy1 - fy0)
+    x0 = min(max(cx - bw / 2, fx0), fx1 - bw)
+    y0 = min(max(cy - bh / 2, fy0), fy1 - bh)
+    return x0, y0, bw, bh
+
+
+def _paint_field(p, pic, record, result) -> None:
+    x, y, w, h = pic
+    legend_h = 9.0
+    frame = rect_mm(x, y, w, h - legend_h)
+    x0, y0, bw, bh = _crop_box(result, frame.width() / frame.height())
+    scale = min(frame.width() / bw, frame.height() / bh)
+    view = _View(x0, y0, scale, frame.left() + (frame.width() - bw * scale) / 2,
+                 frame.top() + (frame.height() - bh * scale) / 2)
+    shown = QtCore.QRectF(view(x0, y0), view(x0 + bw, y0 + bh))
+    p.save()
+    p.fillRect(shown, qcolor("#e4e1da"))
+    p.setClipRect(shown)
+    limit = _paint_vorticity(p, view, result)
+    arrow = _paint_vectors(p, view, result, (x0, y0, bw, bh))
+    _paint_ball(p, view, record, result)
+    p.setClipping(False)
+    p.setPen(pen(colours.MUTED_INK, 0.25))
+    p.setBrush(QtCore.Qt.BrushStyle.NoBrush)
+    p.drawRect(shown)
+    p.restore()
+    _paint_field_legend(p, shown.left() / mm(1), shown.bottom() / mm(1) + 1.2, limit, view,
+                        result, arrow)
+
+
+def _paint_vorticity(p, view: _View, result) -> float:
+    w = result.vorticity_1_s
+    vf = result.field
+    if w is None:
+        return float("nan")
+    limit = colours.symmetric_limit(w)
+    rgba = np.ascontiguousarray(colours.vorticity_rgb(w, limit))
+    rows, cols = rgba.shape[:2]
+    image = QtGui.QImage(rgba.data, cols, rows, cols * 4, QtGui.QImage.Format.Format_RGBA8888)
+    # smooth the coarse grid a little so the map reads as a field, not as tiles
+    image = image.scaled(cols * 4, rows * 4, QtCore.Qt.AspectRatioMode.IgnoreAspectRatio,
+                         QtCore.Qt.TransformationMode.SmoothTransformation)
+    s = float(vf.spacing_px)
+    x0, y0 = float(vf.x_px[0, 0]) - s / 2, float(vf.y_px[0, 0]) - s / 2
+    x1, y1 = float(vf.x_px[-1, -1]) + s / 2, float(vf.y_px[-1, -1]) + s / 2
+    p.drawImage(QtCore.QRectF(view(x0, y0), view(x1, y1)), image)
+    return limit
+
+
+def _paint_vectors(p, view: _View, result, box) -> tuple[float, float] | None:
+    """Every k-th vector inside ``box``; returns (reference speed, its arrow length in device
+    units) for the legend, or None when nothing was drawn."""
+    vf = result.field
+    if result.u_m_s is not None and result.v_m_s is not None:
+        u, v = np.asarray(result.u_m_s, float), np.asarray(result.v_m_s, float)
+    else:
+        u, v = np.asarray(vf.dx_px, float), np.asarray(vf.dy_px, float)
+    x0, y0, bw, bh = box
+    stride = max(1, round(bw / float(vf.spacing_px) / 24))
+    sl = (slice(None, None, stride), slice(None, None, stride))
+    xs, ys, us, vs = vf.x_px[sl], vf.y_px[sl], u[sl], v[sl]
+    inside = ((xs >= x0) & (xs <= x0 + bw) & (ys >= y0) & (ys <= y0 + bh)
+              & np.isfinite(us) & np.isfinite(vs) & ~np.asarray(vf.masked)[sl])
+    speed = np.hypot(us, vs)[inside]
+    if speed.size == 0:
+        return None
+    ref = round_length(float(np.percentile(speed, 95))) if np.percentile(speed, 95) > 0 else 1.0
+    length_px = 0.9 * stride * float(vf.spacing_px)  # image px for the reference speed
+    p.setPen(pen("#111111", 0.18))
+    for xv, yv, uv, vv in zip(xs[inside], ys[inside], us[inside], vs[inside]):
+        draw_arrow(p, view(xv, yv), view(xv + uv / ref * length_px, yv + vv / ref * length_px))
+    return ref, length_px * view.scale
+
+
+
+def _paint_ball(p, view: _View, record, result) -> None:
+    ball, flight = result.ball_a, result.flight
+    if ball is None:
+        return
+    c = view(*ball.center_px)
+    r = ball.radius_px * view.scale
+    p.setPen(pen(colours.BALL_OUTLINE, 0.35))
+    p.setBrush(qcolor("#d9d6cf"))
+    p.drawEllipse(c, r, r)
+    if flight is None:
+        return
+    d = flight.direction_deg
+    fx, fy = flight_unit(d)
+    nx, ny = side_normal(d, "upper")
+    cx, cy = ball.center_px
+    rr = ball.radius_px
+    p.setPen(pen(colours.PLANE_LINE, 0.3, QtCore.Qt.PenStyle.DashLine))
+    p.drawLine(view(cx - 1.5 * rr * nx, cy - 1.5 * rr * ny), view(cx + 1.5 * rr * nx, cy + 1.5 * rr * ny))
+    p.setPen(pen(colours.FLIGHT_ARROW, 0.45))
+    draw_arrow(p, view(cx + 0.15 * rr * fx, cy + 0.15 * rr * fy),
+           view(cx + 0.85 * rr * fx, cy + 0.85 * rr * fy), head_mm=1.6)
+    for side, colour in (("upper", colours.UPPER_SIDE), ("lower", colours.LOWER_SIDE)):
+        _paint_mark(p, view, ball, d, side, record, colour)
+
+
+def _paint_mark(p, view: _View, ball, direction_deg: float, side: str, record, colour: str) -> None:
+    """Final separation (filled, labelled) and the proposal where it differs (hollow, dashed).
+
+    A shot not yet reviewed has no final angle: its proposal is drawn in the side's colour and
+    labelled with a question mark, so the sheet still shows where the machine put it.
+    """
+    final = record.final_deg(side)
+    proposed = record.proposed_deg(side)
+    centre, rr = ball.center_px, ball.radius_px
+    open_proposal = final is None and record.pick.status == ReviewStatus.TO_REVIEW
+    if proposed is not None and (final is None or moved_from_proposal(final, proposed)):
+        a = view(*point_at_angle(centre, rr * 1.0, direction_deg, side, proposed))
+        b = view(*point_at_angle(centre, rr * 1.4, direction_deg, side, proposed))
+        p.setPen(pen(colour if open_proposal else colours.PROPOSAL_MARK, 0.4,
+                     QtCore.Qt.PenStyle.DashLine))
+        p.drawLine(a, b)
+        p.setBrush(qcolor("#ffffff"))
+        p.drawEllipse(a, mm(1.0), mm(1.0))
+        if open_proposal:
+            _mark_label(p, view(*point_at_angle(centre, rr * 1.75, direction_deg, side, proposed)),
+                        f"{side[0].upper()} {angle_text(proposed)} ?", colour)
+    if final is None:
+        return
+    a = view(*point_at_angle(centre, rr * 0.92, direction_deg, side, final))
+    b = view(*point_at_angle(centre, rr * 1.45, direction_deg, side, final))
+    p.setPen(pen("#ffffff", 0.9))
+    p.drawLine(a, b)
+    p.setPen(pen(colour, 0.5))
+    p.drawLine(a, b)
+    p.setBrush(qcolor(colour))
+    p.drawEllipse(view(*point_at_angle(centre, rr, direction_deg, side, final)), mm(1.0), mm(1.0))
+    _mark_label(p, view(*point_at_angle(centre, rr * 1.75, direction_deg, side, final)),
+                f"{side[0].upper()} {angle_text(final)}", colour)
+
+
+def _mark_label(p, at: QtCore.QPointF, tag: str, colour: str) -> None:
+    box = QtCore.QRectF(at.x() - mm(10), at.y() - mm(2.2), mm(20), mm(4.4))
+    p.setPen(QtCore.Qt.PenStyle.NoPen)
+    p.setBrush(qcolor("#ffffff", 215))
+    p.drawRoundedRect(box, mm(1), mm(1))
+    text(p, box, tag, 7.5, bold=True, colour=colour, flags=QtCore.Qt.AlignmentFlag.AlignCenter)
+
+
+def _paint_field_legend(p, x: float, y: float, limit: float, view: _View, result,
+                        arrow: tuple[float, float] | None) -> None:
+    """Colour bar, scale bar and reference vector under the field picture (mm, top-left x, y)."""
+    small = 6.8
+    if math.isfinite(limit):
+        text(p, rect_mm(x, y + 0.4, 20, 4), "vorticity", small, colour=colours.MUTED_INK)
+        bar = rect_mm(x + 12.5, y + 1, 30, 2.4)
+        lut = colours.vorticity_lut(64)
+        step = bar.width() / len(lut)
+        for i, (r, g, b) in enumerate(lut):
+            p.fillRect(QtCore.QRectF(bar.left() + i * step, bar.top(), step + 1, bar.height()),
+                       QtGui.QColor(int(r), int(g), int(b)))
+        centre = QtCore.Qt.AlignmentFlag.AlignHCenter
+        for value, at in ((-limit, 0.0), (0.0, 0.5), (limit, 1.0)):
+            label = _signed(value) if value else "0"
+            text(p, rect_mm(x + 12.5 + 30 * at - 8, y + 3.6, 16, 4), label, small - 0.4,
+                 colour=colours.MUTED_INK, flags=centre)
+        text(p, rect_mm(x + 44, y + 0.4, 10, 4), "1/s", small, colour=colours.MUTED_INK)
+    scale_mm_px = result.scale_mm_per_px
+    if scale_mm_px:
+        # the longest round object length that stays under 20 mm on the page
+        bar_mm = round_length(mm(20) / view.scale * scale_mm_px)
+        length = bar_mm / scale_mm_px * view.scale
+        left = mm(x + 55)
+        p.setPen(pen(colours.INK, 0.45))
+        p.drawLine(QtCore.QPointF(left, mm(y + 2.2)), QtCore.QPointF(left + length, mm(y + 2.2)))
+        text(p, QtCore.QRectF(left, mm(y + 3.6), mm(20), mm(4)), f"{bar_mm:g} mm", small,
+             colour=colours.MUTED_INK)
+    if arrow is not None:
+        speed, length = arrow
+        left = mm(x + 78)
+        p.setPen(pen("#111111", 0.25))
+        draw_arrow(p, QtCore.QPointF(left, mm(y + 2.2)), QtCore.QPointF(left + length, mm(y + 2.2)))
+        unit = "m/s" if result.u_m_s is not None else "px"
+        text(p, QtCore.QRectF(left, mm(y + 3.6), mm(30), mm(4)), f"{speed:.3g} {unit}", small,
+             colour=colours.MUTED_INK)
+
+
+def _signed(value: float) -> str:
+    """Colour-bar end labels: three significant figures without exponents."""
+    if abs(value) >= 100:
+        return f"{value:+.0f}"
+    return f"{value:+.3g}"
+
+
+
+def _paint_numbers(p, info, record, with_metadata: bool = False) -> None:
+    """The shot's numbers, most important first (rows that do not fit are left out)."""
+    x, y, w, h = info
+    summary = record.summary
+    md = record.metadata or {}
+    compact = h < 60
+    label_w = 17.0
+    size = 7.4 if compact else 8.2
+    cy, bottom = y, y + h
+
+    def row(label: str, value: str, colour: str = colours.INK, value_size: float = size,
+            bold: bool = False, gap: float = 1.1) -> None:
+        nonlocal cy
+        if cy > bottom - 4:
+            return
+        text(p, rect_mm(x, cy + 0.3, label_w, 4.5), label, size - 0.6, colour=colours.MUTED_INK)
+        used = text(p, rect_mm(x + label_w, cy, w - label_w, bottom - cy), value, value_size,
+                    bold=bold, colour=colour)
+        cy += max(used.height() / mm(1), 3.4) + gap
+
+    for side, colour in (("upper", colours.UPPER_SIDE), ("lower", colours.LOWER_SIDE)):
+        row(side, final_text(record, side), colour, size + 2.2, bold=True, gap=0.2)
+        row("", side_detail(record, side), colours.MUTED_INK, size - 0.6, gap=1.6)
+    row("review", review_text(record), colours.STATUS_COLOURS.get(record.pick.status, colours.INK),
+        bold=True)
+    if record.pick.reason:
+        row("reason", record.pick.reason)
+    row("note", record.pick.note or MISSING)
+    row("wake", MISSING if summary is None else wake_text(summary.separation))
+    row("flight", flight_text(None if summary is None else summary.flight))
+    if with_metadata:
+        row("shot", metadata_line(record).replace("   ", ", ") or MISSING)
+    row("vectors", MISSING if summary is None else vectors_text(summary.vectors))
+    row("timing", timing_text(record))
+    if md.get("notes"):
+        row("shot notes", str(md["notes"]))
+    warnings = () if summary is None else summary.warnings
+    if warnings:
+        row("warnings", "; ".join(warnings[:2]), colours.MUTED_INK)
+

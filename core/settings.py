@@ -1,0 +1,95 @@
+"""Settings of the measurement that travel with a shot: correlation passes and checks.
+
+Plain records (no numpy): the session store keeps them, the settings fingerprint is made
+from them, and the correlation engine (``core.piv``) reads them.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from core import WakelineError
+
+#: Change of the predictor across a window (px, centre to corner) up to which the blocks of
+#: the window are moved as a whole instead of deformed pixel by pixel (``core.piv.deform``).
+DEFORM_MIN_CHANGE_PX = 0.1
+
+
+@dataclass(frozen=True)
+class PivPass:
+    """One correlation pass: square windows of ``window_px`` with fractional ``overlap``."""
+
+    window_px: int
+    overlap: float = 0.5
+
+    @property
+    def spacing_px(self) -> int:
+        """Distance between neighbouring window centres, px (at least 1)."""
+        return max(1, round(self.window_px * (1.0 - self.overlap)))
+
+
+@dataclass(frozen=True)
+class PivSettings:
+    """Settings of the correlation engine (JSON-able through ``to_dict``/``from_dict``)."""
+
+    passes: tuple[PivPass, ...] = (PivPass(64, 0.5), PivPass(32, 0.5), PivPass(32, 0.5))
+    median_threshold: float = 2.0
+    median_eps_px: float = 0.1
+    max_masked_fraction: float = 0.5
+    #: windows whose predictor changes by at most this (px, centre to corner) are deformed
+    #: block by block instead of pixel by pixel; 0: every pixel
+    deform_min_change_px: float = DEFORM_MIN_CHANGE_PX
+    workers: int | None = None  # None: all cores
+
+    def __post_init__(self):
+        passes = tuple(p if isinstance(p, PivPass) else PivPass(**dict(p)) for p in self.passes)
+        object.__setattr__(self, "passes", passes)
+        _check_settings(self)
+
+    def to_dict(self) -> dict:
+        return {
+            "passes": [{"window_px": p.window_px, "overlap": p.overlap} for p in self.passes],
+            "median_threshold": self.median_threshold,
+            "median_eps_px": self.median_eps_px,
+            "max_masked_fraction": self.max_masked_fraction,
+            "deform_min_change_px": self.deform_min_change_px,
+            "workers": self.workers,
+        }
+
+    @classmethod
+    def from_dict(cls, data: dict) -> PivSettings:
+        known = {
+            "passes", "median_threshold", "median_eps_px", "max_masked_fraction",
+            "deform_min_change_px", "workers",
+        }
+        values = {k: v for k, v in dict(data).items() if k in known}
+        if "passes" in values:
+            values["passes"] = tuple(_pass_from(p) for p in values["passes"])
+        return cls(**values)
+
+
+def _pass_from(p) -> PivPass:
+    if isinstance(p, PivPass):
+        return p
+    if isinstance(p, dict):
+        return PivPass(int(p["window_px"]), float(p.get("overlap", 0.5)))
+    window, overlap = p
+    return PivPass(int(window), float(overlap))
+
+
+def _check_settings(s: PivSettings) -> None:
+    if not s.passes:
+        raise WakelineError("PIV settings: at least one pass is needed")
+    for p in s.passes:
+        if int(p.window_px) != p.window_px or p.window_px < 8:
+            raise WakelineError(f"PIV settings: window {p.window_px} px (use a whole number >= 8)")
+        if not 0.0 <= p.overlap < 1.0:
+            raise WakelineError(f"PIV settings: overlap {p.overlap} (use 0 <= overlap < 1)")
+    if s.median_threshold <= 0 or s.median_eps_px < 0:
+        raise WakelineError("PIV settings: median threshold must be > 0 and eps >= 0")
+    if not 0.0 <= s.max_masked_fraction <= 1.0:
+        raise WakelineError("PIV settings: max masked fraction must lie in 0..1")
+    if not s.deform_min_change_px >= 0:
+        raise WakelineError("PIV settings: the deformation threshold must be >= 0 px")
+    if s.workers is not None and s.workers < 1:
+        raise WakelineError("PIV settings: workers must be at least 1")

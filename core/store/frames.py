@@ -1,0 +1,44 @@
+"""Frames for workers: read a shot's frame pair from a picklable description of where it is
+(``Session.frame_source``), checking the files' checksums first. No ``Session`` needed."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from core import WakelineError
+from core.store.files import sha256_of
+
+
+def read_frames(shot_id: str, source: dict) -> tuple[np.ndarray, np.ndarray]:
+    """Read a shot's frames from ``Session.frame_source`` output; checks checksums.
+
+    Returns
+    -------
+    frame_a, frame_b : (H, W) float32 ndarray
+    """
+    from core.images import read_frame_pair
+
+    if source["storage"] == "embedded":
+        with h5py.File(source["file"], "r") as f:
+            g = f[source["group"]]
+            return g["a"][()].astype(np.float32), g["b"][()].astype(np.float32)
+    problem = frame_file_problem(shot_id, source)
+    if problem:
+        raise WakelineError(problem)
+    return read_frame_pair(source["path_a"], source["path_b"])
+
+
+def frame_file_problem(shot_id: str, source: dict) -> str:
+    for path_key, sum_key in (("path_a", "sha256_a"), ("path_b", "sha256_b")):
+        path = source.get(path_key)
+        if path is None:
+            continue
+        if not Path(path).is_file():
+            return f"shot {shot_id}: frame file {path} not found"
+        if source.get(sum_key) and sha256_of(Path(path)) != source[sum_key]:
+            return f"shot {shot_id}: frame file {path} changed since import (SHA-256 differs)"
+    return ""
+

@@ -1,0 +1,92 @@
+"""``S.h5.journal``: every change since the snapshot, one JSON line each, fsynced before the
+call that made it returns; a torn last line (a kill mid-write) is ignored.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+from pathlib import Path
+
+from core import WakelineError
+from core.store.files import atomic_write, dumps, fsync_dir
+
+
+class Journal:
+    """Append-only JSON lines, one per change, each fsynced before ``append`` returns."""
+
+    def __init__(self, path: Path):
+        self.path = path
+        self._fd: int | None = None
+
+    def read(self) -> tuple[list[dict], int]:
+        """Entries of the good prefix and its length in bytes (a torn tail is left out)."""
+        try:
+            data = self.path.read_bytes()
+        except FileNotFoundError:
+            return [], 0
+        entries: list[dict] = []
+        good = 0
+        bad_line = None
+        for number, line in enumerate(data.split(b"\n")[:-1], start=1):
+            entry = _parse_line(line)
+            if entry is None:
+                bad_line = bad_line or number
+                continue
+            if bad_line is not None:
+                raise WakelineError(f"{self.path}: line {bad_line} is damaged (entries follow it)")
+            entries.append(entry)
+            good += len(line) + 1
+        return entries, good
+
+    def truncate(self, length: int) -> None:
+        if self.path.exists() and self.path.stat().st_size != length:
+            with open(self.path, "r+b") as fh:
+                fh.truncate(length)
+                fh.flush()
+                os.fsync(fh.fileno())
+
+    def append(self, entry: dict) -> None:
+        line = (dumps(entry) + "\n").encode("utf-8")
+        if self._fd is None:
+            created = not self.path.exists()
+            self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
+            if created:
+                fsync_dir(self.path.parent)
+        start = os.lseek(self._fd, 0, os.SEEK_END)
+        try:
+            view = memoryview(line)
+            while view:
+                view = view[os.write(self._fd, view):]
+            os.fsync(self._fd)
+        except OSError:
+            # e.g. disk full: drop the partial line so the next append starts a clean line
+            os.ftruncate(self._fd, start)
+            raise
+
+    def rewrite(self, entries: list[dict]) -> None:
+        """Replace the journal by ``entries``, whole or not at all."""
+        self.close()
+        with atomic_write(self.path) as tmp, open(tmp, "w", encoding="utf-8") as fh:
+            fh.writelines(dumps(e) + "\n" for e in entries)
+
+    def close(self) -> None:
+        if self._fd is not None:
+            os.close(self._fd)
+            self._fd = None
+
+    def remove(self) -> None:
+        self.close()
+        self.path.unlink(missing_ok=True)
+        fsync_dir(self.path.parent)
+
+
+def _parse_line(line: bytes) -> dict | None:
+    try:
+        entry = json.loads(line.decode("utf-8"))
+    except (UnicodeDecodeError, ValueError):
+        return None
+    if not isinstance(entry, dict) or not isinstance(entry.get("seq"), int) or "op" not in entry:
+        return None
+    return entry
+

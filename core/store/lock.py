@@ -1,0 +1,169 @@
+"""``S.h5.lock``: one process at a time has a session open for writing.
+
+The lock file names host, pid, user and the process start time; a lock of a dead process on
+this host is taken over, one of another host is respected.
+"""
+
+from __future__ import annotations
+
+import getpass
+import json
+import os
+import socket
+import threading
+from pathlib import Path
+
+from core import WakelineError
+from core.store.files import now_utc
+
+
+class SessionLocked(WakelineError):
+    """The session is open for writing in another process."""
+
+
+
+def _process_start(pid: int) -> str | None:
+    """Start time of a process (clock ticks since boot, Linux), to tell a reused pid apart."""
+    try:
+        text = Path(f"/proc/{pid}/stat").read_text()
+    except OSError:
+        return None
+    after_name = text.rsplit(")", 1)[-1].split()
+    return after_name[19] if len(after_name) > 19 else None
+
+
+def _pid_alive(pid: int, start: str | None) -> bool:
+    if os.name == "nt":
+        return _windows_pid_alive(pid)
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    except OSError:
+        return False
+    try:
+        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[-1].split()[0]
+    except (OSError, IndexError):
+        return True
+    if state in ("Z", "X"):
+        return False
+    now_start = _process_start(pid)
+    return start is None or now_start is None or now_start == start
+
+
+def _windows_pid_alive(pid: int) -> bool:
+    # os.kill(pid, 0) would terminate the process on Windows; ask for its exit code instead.
+    import ctypes
+
+    kernel32 = ctypes.windll.kernel32
+    handle = kernel32.OpenProcess(0x1000, False, pid)  # PROCESS_QUERY_LIMITED_INFORMATION
+    if not handle:
+        return False
+    try:
+        code = ctypes.c_ulong()
+        kernel32.GetExitCodeProcess(handle, ctypes.byref(code))
+        return code.value == 259  # STILL_ACTIVE
+    finally:
+        kernel32.CloseHandle(handle)
+
+
+class Lock:
+    """``S.h5.lock``: created whole (written aside, then hard-linked into place) or not at all."""
+
+    def __init__(self, session_path: Path):
+        self.path = session_path.with_name(session_path.name + ".lock")
+        self.session_path = session_path
+        self.held = False
+
+    def acquire(self) -> None:
+        me = {
+            "host": socket.gethostname(), "pid": os.getpid(), "user": user_name(),
+            "since": now_utc(), "start": _process_start(os.getpid()),
+        }
+        for _ in range(5):
+            try:
+                created = self._try_create(me)
+            except PermissionError:
+                raise WakelineError(f"{self.session_path}: its folder is not writable; open the "
+                                    "session read-only") from None
+            if created:
+                self.held = True
+                return
+            holder = self._read()
+            if holder is not None and not self._stale(holder):
+                raise SessionLocked(
+                    f"{self.session_path}: open for writing by {holder.get('user', '?')} "
+                    f"(pid {holder.get('pid')} on {holder.get('host')} since "
+                    f"{holder.get('since')}); open it read-only or close it there"
+                )
+            self._remove_stale(holder)
+        raise SessionLocked(f"{self.path}: could not take the session lock")
+
+    def _remove_stale(self, holder: dict | None) -> None:
+        """Move the stale lock aside; if another opener replaced it meanwhile, put theirs back."""
+        aside = self.path.with_name(f"{self.path.name}.stale.{os.getpid()}")
+        try:
+            os.replace(self.path, aside)
+        except FileNotFoundError:
+            return
+        try:
+            moved = json.loads(aside.read_text())
+        except (OSError, ValueError):
+            moved = None
+        if moved != holder and moved is not None:
+            try:
+                os.link(aside, self.path)
+            except OSError:
+                pass  # a third process holds the lock now; its own check stands
+        aside.unlink(missing_ok=True)
+
+    def _try_create(self, info: dict) -> bool:
+        tmp = self.path.with_name(f"{self.path.name}.{os.getpid()}.{threading.get_ident()}")
+        tmp.write_text(json.dumps(info))
+        try:
+            os.link(tmp, self.path)
+            return True
+        except FileExistsError:
+            return False
+        except OSError:  # file systems without hard links
+            try:
+                fd = os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL)
+            except FileExistsError:
+                return False
+            with os.fdopen(fd, "w") as fh:
+                fh.write(json.dumps(info))
+            return True
+        finally:
+            tmp.unlink(missing_ok=True)
+
+    def _read(self) -> dict | None:
+        try:
+            return json.loads(self.path.read_text())
+        except (OSError, ValueError):
+            return None
+
+    @staticmethod
+    def _stale(holder: dict) -> bool:
+        if holder.get("host") != socket.gethostname():
+            return False  # cannot see that machine's processes
+        pid = holder.get("pid")
+        if not isinstance(pid, int):
+            return True
+        return not _pid_alive(pid, holder.get("start"))
+
+    def release(self) -> None:
+        if self.held:
+            holder = self._read()
+            if holder and holder.get("pid") == os.getpid() and holder.get("host") == socket.gethostname():
+                self.path.unlink(missing_ok=True)
+            self.held = False
+
+
+def user_name() -> str:
+    try:
+        return getpass.getuser()
+    except (KeyError, OSError):
+        return ""
+

@@ -1,0 +1,100 @@
+"""``shots.csv``, the manifest of a folder of shots: its columns and how a row is read."""
+
+from __future__ import annotations
+
+import csv
+import io
+import math
+from pathlib import Path
+
+from core import WakelineError
+
+REQUIRED_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm")
+NUMBER_COLUMNS = (
+    "dt_s", "scale_mm_per_px", "ball_diameter_mm", "speed_nominal_m_s", "spin_rpm",
+    "spin_axis_deg", "seam_deg", "flight_deg",
+)
+TEXT_COLUMNS = ("ball_type", "notes")
+MANIFEST_NAME = "shots.csv"
+
+
+def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
+    """Parse ``shots.csv``: ``(line, metadata, problem)`` per data row (problem "" when good).
+
+    Numbers become floats (None when empty); ``ball_type`` and ``notes`` and unknown columns
+    stay text.
+    """
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise WakelineError(f"{path}: manifest not found") from None
+    except UnicodeDecodeError:
+        raise WakelineError(f"{path}: not UTF-8 text") from None
+    reader = csv.reader(io.StringIO(text, newline=""))
+    header = [h.strip() for h in next(reader, [])]
+    missing = [c for c in REQUIRED_COLUMNS if c not in header]
+    if missing:
+        raise WakelineError(f"{path}: missing column{'s' if len(missing) > 1 else ''} "
+                            + ", ".join(repr(c) for c in missing))
+    rows = []
+    end_of_last = reader.line_num
+    for cells in _csv_rows(reader, path):
+        line, end_of_last = end_of_last + 1, reader.line_num  # where the row starts
+        if not any(c.strip() for c in cells):
+            continue
+        if len(cells) > len(header):
+            rows.append((line, {"shot": cells[0].strip()},
+                         f"{len(cells)} cells but the header has {len(header)} columns"))
+            continue
+        values = dict(zip(header, (c.strip() for c in cells)))
+        metadata, problem = _row_metadata(values)
+        rows.append((line, metadata, problem))
+    return rows
+
+
+def _csv_rows(reader, path: Path):
+    try:
+        yield from reader
+    except csv.Error as exc:
+        raise WakelineError(f"{path} line {reader.line_num}: {exc}") from None
+
+
+def _row_metadata(values: dict) -> tuple[dict, str]:
+    metadata = {"shot": values.get("shot", "")}
+    if not metadata["shot"]:
+        return metadata, "empty shot id"
+    for key, text in values.items():
+        if key == "shot" or not key:
+            continue
+        if key in NUMBER_COLUMNS:
+            number, problem = _number(key, text)
+            if problem:
+                return metadata, problem
+            metadata[key] = number
+        else:
+            metadata[key] = text
+    return metadata, _row_problem(metadata)
+
+
+def _number(key: str, text: str) -> tuple[float | None, str]:
+    if text == "":
+        return None, ""
+    try:
+        value = float(text)
+    except ValueError:
+        return None, f"{key} {text!r} is not a number"
+    if not math.isfinite(value):
+        return None, f"{key} {text!r} is not a finite number"
+    return value, ""
+
+
+def _row_problem(meta: dict) -> str:
+    if meta.get("dt_s") is None:
+        return "dt_s is empty (time between frames, s)"
+    for key in ("dt_s", "scale_mm_per_px", "ball_diameter_mm"):
+        if meta.get(key) is not None and meta[key] <= 0:
+            return f"{key} must be positive, got {meta[key]:g}"
+    if meta.get("ball_diameter_mm") is None and not meta.get("ball_type"):
+        return "ball_diameter_mm is empty and no ball_type gives a nominal diameter"
+    return ""
+

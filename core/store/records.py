@@ -1,0 +1,140 @@
+"""What the store keeps per shot: the analyst's pick, the cheap record, statuses and states.
+
+Statuses and states are ``StrEnum``: their values are the words written in the session file,
+the table CSV and the window, and a member compares equal to its word.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass, field, fields
+from enum import StrEnum
+
+from core import WakelineError
+from core.geometry import SIDES
+from core.summary import ShotSummary
+
+
+class ReviewStatus(StrEnum):
+    """The analyst's decision on a shot."""
+
+    TO_REVIEW = "to review"
+    ACCEPTED = "accepted"
+    ADJUSTED = "adjusted"
+    UNUSABLE = "unusable"
+
+
+class ProcessState(StrEnum):
+    """Whether a shot has been measured (a failed shot keeps its last good summary)."""
+
+    UNPROCESSED = "unprocessed"
+    PROCESSED = "processed"
+    FAILED = "failed"
+
+
+@dataclass
+class Pick:
+    """The analyst's decision for one shot; every edit is kept in the shot's history."""
+
+    status: ReviewStatus = ReviewStatus.TO_REVIEW
+    upper_deg: float | None = None  # analyst's separation angle, deg (set when adjusted)
+    lower_deg: float | None = None
+    reason: str = ""  # why the shot is unusable
+    note: str = ""
+    who: str = ""
+    when: str = ""  # ISO 8601 UTC
+
+    def to_dict(self) -> dict:
+        return {**asdict(self), "status": str(self.status)}
+
+    @classmethod
+    def from_dict(cls, data: dict) -> Pick:
+        known = {f.name for f in fields(cls)}
+        values = {k: v for k, v in data.items() if k in known}
+        if "status" in values:
+            values["status"] = ReviewStatus(values["status"])
+        return cls(**values)
+
+
+@dataclass
+class ShotRecord:
+    """Cheap per-shot information, available without reading any field data.
+
+    ``summary`` is the typed summary of the last successful processing; it is kept when a
+    later run fails (``state`` FAILED, reason in ``failure``).
+    """
+
+    shot_id: str
+    metadata: dict
+    state: ProcessState = ProcessState.UNPROCESSED
+    failure: str = ""
+    summary: ShotSummary | None = None
+    pick: Pick = field(default_factory=Pick)
+    frames: dict = field(default_factory=dict)  # storage, path_a, path_b, sha256_a, sha256_b
+    processed_utc: str = ""
+    software_version: str = ""
+    fingerprint: str = ""  # ShotSettings.fingerprint() of the last run, successful or not
+
+    def proposed_deg(self, side: str) -> float | None:
+        """Proposed separation angle on ``side`` ("upper"/"lower"), deg, or None."""
+        return None if self.summary is None else self.summary.proposed_deg(side)
+
+    def uncertainty_deg(self, side: str) -> float | None:
+        """Uncertainty of the proposed angle on ``side``, deg, or None."""
+        return None if self.summary is None else self.summary.uncertainty_deg(side)
+
+    def final_deg(self, side: str) -> float | None:
+        """The angle to report: the analyst's value when adjusted (the proposal on a side the
+        analyst left alone), the proposal when accepted, else None."""
+        status = self.pick.status
+        if status == ReviewStatus.ADJUSTED:
+            value = getattr(self.pick, f"{_checked_side(side)}_deg")
+            return value if value is not None else self.proposed_deg(side)
+        if status == ReviewStatus.ACCEPTED:
+            return self.proposed_deg(side)
+        return None
+
+    def shown_deg(self, side: str) -> float | None:
+        """The angle to draw a mark at: the final angle where there is one, else the proposal."""
+        final = self.final_deg(side)
+        return final if final is not None else self.proposed_deg(side)
+
+
+def _checked_side(side: str) -> str:
+    if side not in SIDES:
+        raise ValueError(f"side must be 'upper' or 'lower', not {side!r}")
+    return side
+
+
+def check_shot_id(shot_id: str) -> None:
+    if not isinstance(shot_id, str) or not shot_id.strip() or shot_id != shot_id.strip():
+        raise WakelineError(f"shot {shot_id!r}: a shot id must be non-empty text without "
+                            "leading or trailing spaces")
+
+
+def checked_angle(shot_id: str, side: str, value) -> float | None:
+    """``value`` as a finite angle in degrees (None stays None)."""
+    if value is None:
+        return None
+    try:
+        value = float(value)
+    except (TypeError, ValueError):
+        raise WakelineError(f"shot {shot_id}: {side} {value!r} is not a number") from None
+    if not math.isfinite(value):
+        raise WakelineError(f"shot {shot_id}: {side} must be a finite angle in degrees")
+    return value
+
+
+def checked_status(shot_id: str, status) -> ReviewStatus:
+    try:
+        return ReviewStatus(status)
+    except ValueError:
+        raise WakelineError(f"shot {shot_id}: review status {status!r} is not one of "
+                            f"{', '.join(ReviewStatus)}") from None
+
+
+def check_pick(shot_id: str, pick: Pick) -> None:
+    if pick.status == ReviewStatus.UNUSABLE and not pick.reason.strip():
+        raise WakelineError(f"shot {shot_id}: marking a shot unusable needs a reason")
+    if pick.status == ReviewStatus.ADJUSTED and pick.upper_deg is None and pick.lower_deg is None:
+        raise WakelineError(f"shot {shot_id}: an adjusted pick needs an upper or lower angle")

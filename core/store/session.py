@@ -1,0 +1,576 @@
+"""The session store's ``Session``: shots, results and the analyst's picks of one session.
+
+A session ``S.h5`` is these files side by side (layout in docs/session_format.md):
+
+- ``S.h5``: the snapshot, an HDF5 file that is only ever replaced whole (``atomic_write``), so it
+  is never half-written (format and loaders: ``core.store.snapshot``);
+- ``S.h5.journal``: every change since the snapshot (added shot, result, failure, pick, settings),
+  one JSON line each, appended and fsynced before the call returns; a torn last line is ignored;
+- ``S.h5.pending/``: the arrays named by journal lines (results, embedded frames), each file
+  written whole;
+- ``S.h5.lock``: host and pid of the one process that has the session open for writing.
+
+Opening reads the snapshot's small index and replays the journal; no field data is read until a
+shot's result is asked for. ``compact`` (run by ``close``) folds everything into a new snapshot and
+only then removes the journal. Every journal line carries a sequence number and the snapshot keeps
+the last one it holds, so a kill between the two steps replays nothing twice.
+
+The store needs no part of the PIV stack: it keeps records (``core.settings``, ``core.results``,
+``core.summary``, and ``ShotResult``/``ShotSettings`` from ``core.shot``, whose module level
+imports nothing heavier) and never measures.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import threading
+from collections.abc import Iterator, Mapping
+from contextlib import contextmanager
+from dataclasses import fields, replace
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from core import WakelineError, __version__
+from core.shot import ShotResult, ShotSettings
+from core.store.files import atomic_write, json_ready, now_utc, sha256_of
+from core.store.frames import frame_file_problem, read_frames
+from core.store.journal import Journal
+from core.store.lock import Lock, user_name
+from core.store.records import (
+    Pick,
+    ProcessState,
+    ReviewStatus,
+    ShotRecord,
+    check_pick,
+    check_shot_id,
+    checked_angle,
+    checked_status,
+)
+from core.store.snapshot import (
+    Place,
+    Snapshot,
+    SnapshotWriting,
+    check_signature,
+    file_identity,
+    read_snapshot,
+    record_from_index,
+    shot_key,
+    summary_from,
+    write_frames_group,
+    write_result_group,
+)
+from core.summary import ShotSummary
+
+#: Metadata columns that are also settings of a shot's processing.
+PER_SHOT_SETTINGS = ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball_type", "flight_deg")
+_UNSET = object()
+
+
+class UnknownShot(WakelineError, KeyError):
+    """A shot id the session does not hold (a ``KeyError`` for mapping use)."""
+
+    def __str__(self) -> str:
+        return str(self.args[0]) if self.args else ""
+
+
+def companion_files(path: Path) -> dict[str, Path]:
+    """The files that belong to the session ``path`` besides the snapshot and its lock."""
+    return {
+        "journal": path.with_name(path.name + ".journal"),
+        "pending": path.with_name(path.name + ".pending"),
+        "snapshot_tmp": path.with_name(path.name + ".tmp"),
+    }
+
+
+def _remove_companions(path: Path) -> None:
+    """Remove the journal, the pending arrays and a half-written snapshot (not the lock)."""
+    files = companion_files(path)
+    for name in ("journal", "snapshot_tmp"):
+        files[name].unlink(missing_ok=True)
+    shutil.rmtree(files["pending"], ignore_errors=True)
+
+
+class Session(SnapshotWriting, Mapping):
+    """An open session. Use ``Session.create`` / ``Session.open``, or ``with Session.open(p):``.
+
+    A read-only mapping of shot id -> ``ShotRecord`` (a copy; import order): ``shot_id in
+    session``, ``for shot_id in session``, ``session[shot_id]``, ``session.get(shot_id)``,
+    ``session.values()``. All file I/O happens in the calling thread; a lock serialises calls
+    made from several threads of one process.
+    """
+
+    __eq__ = object.__eq__  # one open session is one object, not a value
+    __hash__ = object.__hash__
+
+    def __init__(self, path: Path, snapshot: Snapshot, writable: bool, lock: Lock | None):
+        self.path = path
+        self.name = snapshot.name
+        self.read_only = not writable
+        self.created_utc = snapshot.created_utc
+        self._lock = lock
+        self._mutex = threading.RLock()
+        files = companion_files(path)
+        self._journal = Journal(files["journal"])
+        self._pending_dir = files["pending"]
+        self._snapshot_seq = snapshot.last_seq
+        self._seq = snapshot.last_seq
+        self._processing = dict(snapshot.processing)
+        self._records: dict[str, ShotRecord] = {}
+        self._places: dict[str, Place] = {}
+        self._dirty = False
+        self._closed = False
+        self._runs = 0  # batch runs in progress (``batch_run``); see compact()
+        self._touched: set[str] = set()  # shots changed since the snapshot
+        self._unused_bytes = snapshot.unused_bytes  # dead space left by replaced arrays
+        for entry in snapshot.shots:
+            self._records[entry["shot_id"]] = record_from_index(entry)
+            self._places[entry["shot_id"]] = Place(
+                result="snapshot" if entry.get("has_result") else None,
+                frames="snapshot" if entry.get("frames", {}).get("storage") == "embedded" else None,
+            )
+
+    # -- opening and closing -------------------------------------------------------------------
+
+    @classmethod
+    def create(cls, path, name: str = "") -> Session:
+        """Create a new empty session file and open it for writing."""
+        path = Path(path)
+        if path.exists():
+            raise WakelineError(f"{path}: already exists")
+        if not path.parent.is_dir():
+            raise WakelineError(f"{path.parent}: folder not found")
+        lock = Lock(path)
+        lock.acquire()
+        try:
+            _remove_companions(path)
+            snapshot = Snapshot(name=name or path.stem, created_utc=now_utc())
+            session = cls(path, snapshot, True, lock)
+            session._write_snapshot()
+        except BaseException:
+            lock.release()
+            raise
+        return session
+
+    @classmethod
+    def open(cls, path, writable: bool = True) -> Session:
+        """Open a session lazily: the shot index and the journal, no field data.
+
+        Raises
+        ------
+        SessionLocked
+            When ``writable`` and another live process has it open for writing.
+        WakelineError
+            When the file is missing, truncated or not a wakeline session.
+        """
+        path = Path(path)
+        lock = Lock(path) if writable else None
+        if lock is not None:
+            check_signature(path)
+            lock.acquire()
+        try:
+            session = cls._load(path, writable, lock)
+        except BaseException:
+            if lock is not None:
+                lock.release()
+            raise
+        return session
+
+    @classmethod
+    def _load(cls, path: Path, writable: bool, lock: Lock | None) -> Session:
+        """Snapshot plus journal. A reader retries when a writer replaced the snapshot
+        meanwhile, so it never pairs an old snapshot with a newer journal."""
+        for _ in range(10):
+            before = file_identity(path)
+            session = cls(path, read_snapshot(path), writable, lock)
+            session._replay_journal()
+            if writable or file_identity(path) == before:
+                return session
+        raise WakelineError(f"{path}: keeps changing while being read; try again")
+
+    def close(self) -> None:
+        """Fold the journal into the snapshot (when writable) and release the lock."""
+        with self._mutex:
+            if self._closed:
+                return
+            try:
+                if not self.read_only and self._dirty:
+                    self.compact()
+            finally:
+                self._journal.close()
+                if self._lock is not None:
+                    self._lock.release()
+                self._closed = True
+
+    def __enter__(self) -> Session:  # noqa: PYI034 - subclasses are not expected
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    # -- reading -------------------------------------------------------------------------------
+
+    def __getitem__(self, shot_id: str) -> ShotRecord:
+        """A copy of one shot's cheap record (no file access).
+
+        Raises
+        ------
+        UnknownShot
+            A ``KeyError`` and a ``WakelineError``: "shot <id>: not in <file>".
+        """
+        with self._mutex:  # another thread may be saving results (core.batch)
+            rec = self._get(shot_id)
+            return replace(rec, pick=replace(rec.pick), metadata=dict(rec.metadata))
+
+    def __iter__(self) -> Iterator[str]:
+        """Shot ids in import order."""
+        with self._mutex:
+            return iter(list(self._records))
+
+    def __len__(self) -> int:
+        return len(self._records)
+
+    def __contains__(self, shot_id) -> bool:
+        return shot_id in self._records
+
+    def processing_settings(self) -> dict:
+        """Session-wide processing settings: ``{"piv": PivSettings dict, "find_ball": bool}``."""
+        return json.loads(json.dumps(self._processing))
+
+    def settings_for(self, shot_id: str) -> ShotSettings:
+        """The ShotSettings a shot is processed with: the session processing settings, with the
+        shot's own values (``dt_s``, scale, ball, ``flight_deg``) where its metadata has them."""
+        meta = self._get(shot_id).metadata
+        data = dict(self._processing)
+        for key in PER_SHOT_SETTINGS:
+            value = meta.get(key)
+            if value is not None and value != "":
+                data[key] = value
+            elif key != "flight_deg":  # a session-wide flight override applies when unset
+                data[key] = None
+        return ShotSettings.from_dict(data)
+
+    def needs_processing(self, shot_id: str) -> bool:
+        """True unless the shot was processed successfully with its current settings."""
+        rec = self._get(shot_id)
+        current = self.settings_for(shot_id).fingerprint()
+        return rec.state != ProcessState.PROCESSED or rec.fingerprint != current
+
+    def frame_source(self, shot_id: str) -> dict:
+        """Where a worker finds the frames: absolute paths and checksums, or an HDF5 location.
+
+        Returns ``{"storage": "files", "path_a", "path_b" (or None), "sha256_a", "sha256_b"}`` or
+        ``{"storage": "embedded", "file", "group"}``.
+        """
+        rec = self._get(shot_id)
+        frames = rec.frames
+        if frames.get("storage") == "embedded":
+            file, group = self._array_location(self._places[shot_id].frames, shot_id, "frames")
+            return {"storage": "embedded", "file": str(file), "group": group}
+        return {
+            "storage": "files",
+            "path_a": str(self._resolve(frames["path_a"])),
+            "path_b": None if frames.get("path_b") is None else str(self._resolve(frames["path_b"])),
+            "sha256_a": frames.get("sha256_a"),
+            "sha256_b": frames.get("sha256_b"),
+        }
+
+    def load_frames(self, shot_id: str) -> tuple[np.ndarray, np.ndarray]:
+        """Frames A and B as float32 ``(H, W)``; checks file checksums first.
+
+        Raises
+        ------
+        WakelineError
+            "shot <id>: frame file <path> changed since import" or "... not found".
+        """
+        with self._mutex:
+            return read_frames(shot_id, self.frame_source(shot_id))
+
+    def check_frames(self, should_stop=None) -> dict[str, str]:
+        """``shot_id -> problem`` for every shot whose frame files are missing or changed.
+
+        ``should_stop``: called before each shot; when it returns True the shots checked so
+        far are reported.
+        """
+        problems = {}
+        for shot_id in list(self._records):
+            if should_stop is not None and should_stop():
+                break
+            source = self.frame_source(shot_id)
+            if source["storage"] != "files":
+                continue
+            problem = frame_file_problem(shot_id, source)
+            if problem:
+                problems[shot_id] = problem
+        return problems
+
+    def load_result(self, shot_id: str) -> ShotResult | None:
+        """The last successful result of a shot, arrays read now, or None."""
+        with self._mutex:
+            rec = self._get(shot_id)
+            place = self._places[shot_id].result
+            if place is None or rec.summary is None:
+                return None
+            file, group = self._array_location(place, shot_id, "result")
+            try:
+                with h5py.File(file, "r") as f:
+                    g = f[group]
+                    arrays = {name: g[name][()] for name in g}
+            except FileNotFoundError:  # only a reader: the writer has compacted since
+                raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
+                                    "reopen the session") from None
+            return ShotResult.from_stored(rec.summary.to_dict(), arrays)
+
+    def history(self, shot_id: str) -> list[Pick]:
+        """Every pick edit of a shot, oldest first."""
+        with self._mutex:
+            self._get(shot_id)
+            place = self._places[shot_id]
+            if place.snapshot_history is None:
+                place.snapshot_history = self._read_snapshot_history(shot_id)
+            return [replace(p) for p in place.snapshot_history + place.history]
+
+    # -- writing -------------------------------------------------------------------------------
+
+    def add_shot(
+        self, shot_id: str, frame_a_path, frame_b_path=None, metadata: dict | None = None,
+        embed: bool = False,
+    ) -> None:
+        """Add a shot: frames are read (to check them), checksummed, and referenced by path
+        relative to the session file, or stored compressed inside it with ``embed``."""
+        from core.images import read_frame_pair
+
+        with self._mutex:
+            self._check_writable()
+            check_shot_id(shot_id)
+            if shot_id in self._records:
+                raise WakelineError(f"shot {shot_id}: already in {self.path.name}")
+            path_a = Path(frame_a_path).resolve()
+            path_b = None if frame_b_path is None else Path(frame_b_path).resolve()
+            frame_a, frame_b = read_frame_pair(path_a, path_b)
+            frames = {
+                "storage": "embedded" if embed else "files",
+                "path_a": self._relative(path_a),
+                "path_b": None if path_b is None else self._relative(path_b),
+                "sha256_a": sha256_of(path_a),
+                "sha256_b": None if path_b is None else sha256_of(path_b),
+                "shape": [int(frame_a.shape[0]), int(frame_a.shape[1])],
+            }
+            seq = self._seq + 1
+            pending = None
+            if embed:
+                pending = self._write_pending(seq, lambda f: write_frames_group(f, frame_a, frame_b))
+            entry = {"op": "add_shot", "shot": shot_id, "metadata": dict(metadata or {}),
+                     "frames": frames, "pending": pending, "t": now_utc()}
+            self._commit(entry)
+
+    def set_processing_settings(self, settings: dict) -> None:
+        """Replace the session-wide processing settings (``{"piv": {...}, "find_ball": ...}``);
+        shots processed with other settings then count as not processed."""
+        with self._mutex:
+            self._check_writable()
+            known = {f.name for f in fields(ShotSettings)} - set(PER_SHOT_SETTINGS) | {
+                "flight_deg"}
+            unknown = sorted(set(settings) - known)
+            if unknown:
+                raise WakelineError(f"processing settings: unknown key(s) {', '.join(unknown)}")
+            ShotSettings.from_dict(settings)  # refuses bad PIV settings before they are kept
+            self._commit({"op": "settings", "settings": json_ready(settings), "t": now_utc()})
+
+    def save_result(self, shot_id: str, result: ShotResult) -> None:
+        """Keep a new result (the proposal) of a shot; never touches the analyst's pick."""
+        with self._mutex:
+            self._check_writable()
+            self._get(shot_id)
+            seq = self._seq + 1
+            summary = ShotSummary.from_dict(json_ready(result.summary()))
+            arrays = result.arrays()
+            pending = self._write_pending(seq, lambda f: write_result_group(f, summary, arrays))
+            self._commit({
+                "op": "result", "shot": shot_id, "summary": summary.to_dict(),
+                "summary_version": summary.version, "pending": pending,
+                "fingerprint": result.settings.fingerprint(), "version": __version__,
+                "t": now_utc(),
+            })
+
+    def save_failure(self, shot_id: str, reason: str, fingerprint: str | None = None) -> None:
+        """Record that processing a shot failed; its previous result and pick stay."""
+        with self._mutex:
+            self._check_writable()
+            self._get(shot_id)
+            if fingerprint is None:
+                fingerprint = self.settings_for(shot_id).fingerprint()
+            self._commit({"op": "failure", "shot": shot_id, "reason": str(reason),
+                          "fingerprint": fingerprint, "version": __version__, "t": now_utc()})
+
+    def set_pick(
+        self, shot_id: str, *, status: ReviewStatus | str | None = None, upper_deg=_UNSET,
+        lower_deg=_UNSET, reason: str | None = None, note: str | None = None,
+        who: str | None = None,
+    ) -> Pick:
+        """Edit the analyst's pick. Arguments left out keep their value; ``upper_deg=None``
+        clears it. The edit is on disk (journal, fsynced) when this returns.
+
+        Raises
+        ------
+        WakelineError
+            Unknown status, "unusable" without a reason, or a non-finite angle.
+        """
+        with self._mutex:
+            self._check_writable()
+            current = self._get(shot_id).pick
+            changes = {k: v for k, v in (("reason", reason), ("note", note)) if v is not None}
+            if status is not None:
+                changes["status"] = checked_status(shot_id, status)
+            for side, value in (("upper_deg", upper_deg), ("lower_deg", lower_deg)):
+                if value is not _UNSET:
+                    changes[side] = checked_angle(shot_id, side, value)
+            pick = replace(current, **changes, who=who if who is not None else user_name(),
+                           when=now_utc())
+            check_pick(shot_id, pick)
+            self._commit({"op": "pick", "shot": shot_id, "pick": pick.to_dict()})
+            return replace(pick)
+
+    @contextmanager
+    def batch_run(self) -> Iterator[None]:
+        """A batch run in progress (``core.batch``): while one is, ``compact`` keeps the pending
+        files its worker processes may still be reading."""
+        with self._mutex:
+            self._runs += 1
+        try:
+            yield
+        finally:
+            with self._mutex:
+                self._runs -= 1
+
+    @classmethod
+    def delete(cls, path) -> None:
+        """Remove a closed session: the snapshot and its journal, pending arrays and leftovers.
+
+        A damaged session can be deleted; one open for writing elsewhere cannot.
+
+        Raises
+        ------
+        SessionLocked
+            When another live process has the session open for writing.
+        """
+        path = Path(path)
+        lock = Lock(path)
+        lock.acquire()
+        try:
+            path.unlink(missing_ok=True)
+            _remove_companions(path)
+        finally:
+            lock.release()
+
+    def compact(self) -> None:
+        """Write a new snapshot holding everything, replace the old one, then drop the journal."""
+        with self._mutex:
+            self._check_writable()
+            self._write_snapshot()
+            self._journal.remove()
+            if not self._runs:  # a running batch's workers may still read pending frames
+                shutil.rmtree(self._pending_dir, ignore_errors=True)
+            self._dirty = False
+
+    # -- internals: journal --------------------------------------------------------------------
+
+    def _commit(self, entry: dict) -> None:
+        """Append one change to the journal (durable on return), then apply it in memory."""
+        entry = {"seq": self._seq + 1, **entry}
+        self._journal.append(entry)
+        self._seq = entry["seq"]
+        self._apply(entry)
+        self._dirty = True
+
+    def _replay_journal(self) -> None:
+        entries, good_length = self._journal.read()
+        live = [e for e in entries if e["seq"] > self._snapshot_seq]
+        for entry in live:
+            self._apply(entry)
+            self._seq = max(self._seq, entry["seq"])
+        self._dirty = bool(live)
+        if self.read_only:
+            return
+        if len(live) != len(entries):  # left from a compaction killed before it dropped them
+            self._journal.rewrite(live)
+        else:
+            self._journal.truncate(good_length)
+        self._remove_orphans({e.get("pending") for e in live} - {None})
+
+    def _remove_orphans(self, referenced: set[str]) -> None:
+        """Delete files a killed writer left behind: temporary snapshot, unreferenced arrays."""
+        companion_files(self.path)["snapshot_tmp"].unlink(missing_ok=True)
+        if self._pending_dir.is_dir():
+            for item in self._pending_dir.iterdir():
+                if item.name not in referenced:
+                    item.unlink(missing_ok=True)
+
+    def _apply(self, entry: dict) -> None:
+        op = entry["op"]
+        if op == "settings":
+            self._processing = dict(entry["settings"])
+            return
+        shot_id = entry["shot"]
+        self._touched.add(shot_id)
+        if op == "add_shot":
+            self._records[shot_id] = ShotRecord(shot_id, dict(entry["metadata"]),
+                                                frames=dict(entry["frames"]))
+            self._places[shot_id] = Place(frames=entry.get("pending"))
+            return
+        rec, place = self._records[shot_id], self._places[shot_id]
+        if op == "result":
+            rec.state, rec.failure = ProcessState.PROCESSED, ""
+            rec.summary = summary_from(entry["summary"], entry.get("summary_version"))
+            rec.fingerprint, rec.software_version = entry["fingerprint"], entry["version"]
+            rec.processed_utc = entry["t"]
+            place.result = entry["pending"]
+        elif op == "failure":
+            rec.state, rec.failure = ProcessState.FAILED, entry["reason"]
+            rec.fingerprint = entry["fingerprint"]
+            rec.software_version, rec.processed_utc = entry["version"], entry["t"]
+        elif op == "pick":
+            rec.pick = Pick.from_dict(entry["pick"])
+            place.history.append(replace(rec.pick))
+        else:
+            raise WakelineError(f"{self._journal.path}: unknown entry '{op}' (newer wakeline?)")
+
+    def _write_pending(self, seq: int, write) -> str:
+        """Write arrays to ``S.h5.pending/<seq>.h5`` whole (temporary name, fsync, rename)."""
+        self._pending_dir.mkdir(exist_ok=True)
+        name = f"{seq:09d}.h5"
+        with atomic_write(self._pending_dir / name) as tmp, h5py.File(tmp, "w") as f:
+            write(f)
+        return name
+
+    # -- internals: misc -----------------------------------------------------------------------
+
+    def _array_location(self, place: str, shot_id: str, kind: str) -> tuple[Path, str]:
+        if place == "snapshot":
+            return self.path, f"shots/{shot_key(shot_id)}/{kind}"
+        return self._pending_dir / place, kind
+
+    def _get(self, shot_id: str) -> ShotRecord:
+        try:
+            return self._records[shot_id]
+        except KeyError:
+            raise UnknownShot(f"shot {shot_id}: not in {self.path.name}") from None
+
+    def _check_writable(self) -> None:
+        if self._closed:
+            raise WakelineError(f"{self.path}: session is closed")
+        if self.read_only:
+            raise WakelineError(f"{self.path}: opened read-only")
+
+    def _relative(self, path: Path) -> str:
+        try:
+            return Path(os.path.relpath(path, self.path.resolve().parent)).as_posix()
+        except ValueError:  # another drive
+            return path.as_posix()
+
+    def _resolve(self, stored: str) -> Path:
+        return (self.path.resolve().parent / stored).resolve()
+

@@ -1,0 +1,337 @@
+"""``S.h5``, the snapshot: its format version, one loader per version, and how a new snapshot
+is written (a patched byte copy of the last one, or a whole rewrite), always aside and then
+renamed into place (layout in docs/session_format.md).
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+from dataclasses import dataclass, field, fields
+from pathlib import Path
+from urllib.parse import quote
+
+import h5py
+import numpy as np
+
+from core import WakelineError, __version__
+from core.store.files import atomic_write, dumps, now_utc
+from core.store.manifest import NUMBER_COLUMNS
+from core.store.records import Pick, ProcessState, ShotRecord
+from core.summary import ShotSummary
+
+FORMAT_VERSION = 1
+_HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+_MAX_UNUSED_FRACTION = 0.25  # rewrite the snapshot whole beyond this much dead space
+
+
+# -- reading: one loader per format version ----------------------------------------------
+
+
+@dataclass
+class Snapshot:
+    name: str = ""
+    created_utc: str = ""
+    last_seq: int = 0
+    processing: dict = field(default_factory=dict)
+    shots: list[dict] = field(default_factory=list)  # index entries, see _index_entry
+    unused_bytes: int = 0
+
+
+def read_snapshot(path: Path) -> Snapshot:
+    """Read the root attributes and the shot index (never field data)."""
+    check_signature(path)
+    try:
+        with h5py.File(path, "r") as f:
+            version = f.attrs.get("format_version")
+            if version is None or f.attrs.get("application") != "wakeline":
+                raise WakelineError(f"{path}: not a wakeline session (HDF5 file of another program)")
+            version = int(version)
+            loader = _LOADERS.get(version)
+            if loader is None:
+                raise WakelineError(
+                    f"{path}: session format version {version} is newer than this wakeline "
+                    f"reads (up to {FORMAT_VERSION}); update wakeline"
+                )
+            return loader(f)
+    except WakelineError:
+        raise
+    except (OSError, KeyError, ValueError) as exc:
+        reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        raise WakelineError(f"{path}: damaged or truncated session file ({reason})") from None
+
+
+def file_identity(path: Path) -> tuple[int, int, int] | None:
+    try:
+        info = path.stat()
+    except OSError:
+        return None
+    return info.st_ino, info.st_size, info.st_mtime_ns
+
+
+def check_signature(path: Path) -> None:
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(8)
+    except FileNotFoundError:
+        raise WakelineError(f"{path}: session file not found") from None
+    if len(head) < 8:
+        raise WakelineError(f"{path}: damaged or truncated session file ({len(head)} bytes)")
+    if head != _HDF5_SIGNATURE:
+        raise WakelineError(f"{path}: not a wakeline session (not an HDF5 file)")
+
+
+def _load_v1(f: h5py.File) -> Snapshot:
+    index = json.loads(as_text(f["index"][()]))
+    return Snapshot(
+        name=str(f.attrs.get("name", "")),
+        created_utc=str(f.attrs.get("created_utc", "")),
+        last_seq=int(f.attrs["last_seq"]),
+        processing=json.loads(str(f.attrs.get("processing_settings", "{}"))),
+        shots=list(index["shots"]),
+        unused_bytes=int(f.attrs.get("unused_bytes", 0)),
+    )
+
+
+# A new format version adds its loader here; each loader returns the current in-memory model,
+# which is the migration: the next compaction writes the file in the current version.
+_LOADERS = {1: _load_v1}
+
+
+
+@dataclass
+class Place:
+    """Where a shot's arrays are: ``None`` (nowhere), "snapshot" or a pending file name."""
+
+    result: str | None = None
+    frames: str | None = None
+    history: list[Pick] = field(default_factory=list)  # edits since the snapshot
+    snapshot_history: list[Pick] | None = None  # cached from the snapshot when asked
+
+
+
+def shot_key(shot_id: str) -> str:
+    """HDF5 group name for a shot id (no '/' and no leading '.')."""
+    return quote(shot_id, safe=" -_+=,()[]{}@#!~").replace(".", "%2E")
+
+
+def _units_of(name: str) -> str:
+    for suffix, units in (("_px", "px"), ("_m_s", "m/s"), ("_1_s", "1/s"), ("_deg", "deg")):
+        if name.endswith(suffix):
+            return units
+    return "1"
+
+
+def write_array(group: h5py.Group, name: str, data: np.ndarray) -> None:
+    data = np.asarray(data)
+    # Flags and counts shrink many times under gzip; measured noisy floats barely shrink (~15 %)
+    # for five times the write time, so they are stored plain.
+    packable = data.dtype.kind in "biu" and data.size >= 256
+    options = {"compression": "gzip", "compression_opts": 1, "shuffle": True} if packable else {}
+    ds = group.create_dataset(name, data=data, **options)
+    ds.attrs["units"] = _units_of(name)
+
+
+
+def stored_bytes(group: h5py.Group) -> int:
+    """Bytes of dataset storage under ``group``."""
+    sizes = []
+    group.visititems(lambda _, obj: sizes.append(
+        obj.id.get_storage_size() if isinstance(obj, h5py.Dataset) else 0))
+    return sum(sizes)
+
+
+def history_in(f: h5py.File, shot_id: str) -> list[Pick]:
+    key = f"shots/{shot_key(shot_id)}/history"
+    if key not in f:
+        return []
+    return [Pick.from_dict(json.loads(as_text(x))) for x in f[key][()]]
+
+
+def as_text(value) -> str:
+    return value.decode("utf-8") if isinstance(value, bytes) else str(value)
+
+
+def write_attrs(g: h5py.Group, values: dict) -> None:
+    """Metadata as attributes; None is stored as an empty string (text) or NaN (numbers)."""
+    for key, value in values.items():
+        if value is None:
+            value = np.nan if key in NUMBER_COLUMNS or key.endswith("_deg") else ""
+        g.attrs[key] = value if not isinstance(value, (dict, list)) else dumps(value)
+
+
+def index_entry(rec: ShotRecord, place: Place) -> dict:
+    """The record as one entry of the snapshot's index (plain JSON)."""
+    entry = {f.name: getattr(rec, f.name) for f in fields(ShotRecord)}
+    entry.update(state=str(rec.state), pick=rec.pick.to_dict(), summary=None)
+    if rec.summary is not None:
+        entry.update(summary=rec.summary.to_dict(), summary_version=rec.summary.version)
+    entry["has_result"] = place.result is not None and rec.summary is not None
+    return entry
+
+
+def record_from_index(entry: dict) -> ShotRecord:
+    known = {f.name for f in fields(ShotRecord)}
+    data = {k: v for k, v in entry.items() if k in known}
+    data["state"] = ProcessState(data.get("state", ProcessState.UNPROCESSED))
+    data["pick"] = Pick.from_dict(entry.get("pick") or {})
+    data["summary"] = summary_from(entry.get("summary"), entry.get("summary_version"))
+    return ShotRecord(**data)
+
+
+def summary_from(data: dict | None, version: int | None) -> ShotSummary | None:
+    """A stored summary; files written before summaries carried a version hold version 1."""
+    return None if data is None else ShotSummary.from_dict(data, version or 1)
+
+
+def write_result_group(f: h5py.File, summary: ShotSummary, arrays: dict[str, np.ndarray]) -> None:
+    g = f.create_group("result")
+    write_summary(g, summary)
+    for name, data in arrays.items():
+        write_array(g, name, data)
+
+
+def write_summary(g: h5py.Group, summary: ShotSummary) -> None:
+    g.attrs["summary"] = dumps(summary.to_dict())
+    g.attrs["summary_version"] = summary.version
+
+
+def write_frames_group(f: h5py.File, frame_a: np.ndarray, frame_b: np.ndarray) -> None:
+    g = f.create_group("frames")
+    for name, frame in (("a", frame_a), ("b", frame_b)):
+        data = np.asarray(frame)
+        if np.all(data == np.rint(data)) and data.min() >= 0 and data.max() <= 65535:
+            data = data.astype(np.uint16)
+        ds = g.create_dataset(name, data=data, compression="gzip", compression_opts=1,
+                              shuffle=True, chunks=True)
+        ds.attrs["units"] = "counts"
+
+
+# -- writing --------------------------------------------------------------------------------
+
+
+class SnapshotWriting:
+    """How ``Session`` writes its next snapshot (a part of ``Session`` kept in this module, next
+    to the format it writes). Uses the session's path, records, places and sequence numbers.
+    """
+
+    def _write_snapshot(self) -> None:
+        """Write the next snapshot aside, make it durable, then put it in place."""
+        with atomic_write(self.path) as tmp:
+            if self._patchable():
+                # A byte copy is many times faster than copying object by object; only the
+                # shots changed since the last snapshot are then rebuilt inside the copy.
+                shutil.copyfile(self.path, tmp)
+                with h5py.File(tmp, "a") as dst:
+                    self._patch_snapshot(dst)
+            else:
+                with h5py.File(tmp, "w") as dst:
+                    self._fill_snapshot(dst)
+        self._snapshot_seq = self._seq
+        self._touched.clear()
+        for place in self._places.values():
+            place.result = "snapshot" if place.result else None
+            place.frames = "snapshot" if place.frames else None
+            if place.snapshot_history is not None:
+                place.snapshot_history = place.snapshot_history + place.history
+            place.history = []
+
+    def _patchable(self) -> bool:
+        """Patch a copy unless replaced results left too much dead space in the file."""
+        if not self.path.exists():
+            return False
+        return self._unused_bytes <= _MAX_UNUSED_FRACTION * self.path.stat().st_size
+
+    def _fill_snapshot(self, dst: h5py.File) -> None:
+        self._unused_bytes = 0
+        shots = dst.create_group("shots")
+        old = h5py.File(self.path, "r") if self.path.exists() else None
+        try:
+            for rec in self._records.values():
+                self._fill_shot(shots.create_group(shot_key(rec.shot_id)), rec, old, False)
+        finally:
+            if old is not None:
+                old.close()
+        self._write_root(dst)
+
+    def _patch_snapshot(self, dst: h5py.File) -> None:
+        shots = dst.require_group("shots")
+        for rec in self._records.values():
+            if rec.shot_id not in self._touched:
+                continue
+            key = shot_key(rec.shot_id)
+            fresh = key + "%new"  # never a key: quote() writes '%' only before two hex digits
+            self._fill_shot(shots.create_group(fresh), rec, dst, True)
+            if key in shots:
+                self._unused_bytes += stored_bytes(shots[key])  # what was not moved over
+                del shots[key]
+            shots.move(fresh, key)
+        self._write_root(dst)
+
+    def _write_root(self, dst: h5py.File) -> None:
+        dst.attrs["format_version"] = FORMAT_VERSION
+        dst.attrs["application"] = "wakeline"
+        dst.attrs["software_version"] = __version__
+        dst.attrs["name"] = self.name
+        dst.attrs["created_utc"] = self.created_utc
+        dst.attrs["saved_utc"] = now_utc()
+        dst.attrs["last_seq"] = self._seq
+        dst.attrs["processing_settings"] = dumps(self._processing)
+        dst.attrs["unused_bytes"] = int(self._unused_bytes)
+        index = {"shots": [index_entry(rec, self._places[rec.shot_id])
+                           for rec in self._records.values()]}
+        if "index" in dst:
+            del dst["index"]
+        dst.create_dataset("index", data=dumps(index), dtype=h5py.string_dtype())
+
+    def _fill_shot(self, g: h5py.Group, rec: ShotRecord, old: h5py.File | None,
+                   move: bool) -> None:
+        """Write one shot's group; arrays already in the snapshot are copied from ``old``, or
+        moved when ``old`` is the file being written (``move``)."""
+        place = self._places[rec.shot_id]
+        g.attrs["shot_id"] = rec.shot_id
+        g.attrs["state"] = str(rec.state)
+        g.attrs["failure"] = rec.failure
+        write_attrs(g.create_group("metadata"), rec.metadata)
+        frames = g.create_group("frames")
+        write_attrs(frames, {k: v for k, v in rec.frames.items() if k != "shape"})
+        if place.frames is not None:
+            self._copy_arrays(place.frames, rec.shot_id, "frames", old, frames, move)
+        write_attrs(g.create_group("pick"), rec.pick.to_dict())
+        history = self._snapshot_history_from(old, rec.shot_id) + place.history
+        g.create_dataset("history", data=[dumps(p.to_dict()) for p in history],
+                         dtype=h5py.string_dtype())
+        if place.result is not None and rec.summary is not None:
+            result = g.create_group("result")
+            write_summary(result, rec.summary)
+            self._copy_arrays(place.result, rec.shot_id, "result", old, result, move)
+
+    def _copy_arrays(self, place, shot_id, kind, old, dst: h5py.Group, move: bool) -> None:
+        if place == "snapshot":
+            src_file = old
+            src = old[f"shots/{shot_key(shot_id)}/{kind}"]
+        else:
+            src_file = h5py.File(self._pending_dir / place, "r")
+            src = src_file[kind]
+        try:
+            for name in [n for n in src if isinstance(src[n], h5py.Dataset)]:
+                if move and src_file is old:
+                    old.move(src[name].name, f"{dst.name}/{name}")
+                else:
+                    src_file.copy(src[name], dst, name=name)
+        finally:
+            if src_file is not old:
+                src_file.close()
+
+    def _snapshot_history_from(self, old: h5py.File | None, shot_id: str) -> list[Pick]:
+        place = self._places[shot_id]
+        if place.snapshot_history is not None:
+            return place.snapshot_history
+        if old is None:
+            return []
+        return history_in(old, shot_id)
+
+    def _read_snapshot_history(self, shot_id: str) -> list[Pick]:
+        with h5py.File(self.path, "r") as f:
+            return history_in(f, shot_id)
+

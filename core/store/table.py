@@ -1,0 +1,80 @@
+"""The table of picks: one row per shot, as text cells and as a CSV file."""
+
+from __future__ import annotations
+
+import csv
+import math
+
+from core.store.files import atomic_write
+from core.store.manifest import NUMBER_COLUMNS, TEXT_COLUMNS
+from core.store.records import ShotRecord
+
+
+def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
+    """One row per shot: metadata, proposed and final angles, uncertainty, wake, review.
+
+    Returns
+    -------
+    header : list of str
+        Column names with units in them.
+    rows : list of list of str
+        Cells as text; empty where there is no value.
+    """
+    records = list(session.values())
+    extra = sorted({k for r in records for k in r.metadata}
+                   - set(NUMBER_COLUMNS) - set(TEXT_COLUMNS) - {"shot"})
+    meta_cols = list(NUMBER_COLUMNS) + list(TEXT_COLUMNS) + extra
+    header = ["shot", *meta_cols, *_RESULT_COLUMNS]
+    rows = [[r.shot_id, *(_cell(r.metadata.get(c)) for c in meta_cols), *_result_cells(r)]
+            for r in records]
+    return header, rows
+
+
+_RESULT_COLUMNS = (
+    "state", "failure", "flight_direction_deg", "flight_speed_m_s", "scale_used_mm_per_px",
+    "upper_proposed_deg", "upper_uncertainty_deg", "lower_proposed_deg", "lower_uncertainty_deg",
+    "upper_final_deg", "lower_final_deg", "wake_deflection_deg", "wake_state",
+    "review_status", "unusable_reason", "review_note", "reviewed_by", "reviewed_utc",
+    "processed_utc", "software_version",
+)
+
+
+def _result_cells(r: ShotRecord) -> list[str]:
+    summary, pick = r.summary, r.pick
+    flight = None if summary is None else summary.flight
+    separation = None if summary is None else summary.separation
+    values = [
+        r.state, r.failure,
+        None if flight is None else flight.direction_deg,
+        None if flight is None else flight.speed_m_s,
+        None if summary is None else summary.scale_mm_per_px,
+        r.proposed_deg("upper"), r.uncertainty_deg("upper"),
+        r.proposed_deg("lower"), r.uncertainty_deg("lower"),
+        r.final_deg("upper"), r.final_deg("lower"),
+        None if separation is None else separation.wake_deflection_deg,
+        None if separation is None else separation.wake_state,
+        pick.status, pick.reason, pick.note, pick.who, pick.when,
+        r.processed_utc, r.software_version,
+    ]
+    return [_cell(v) for v in values]
+
+
+def _cell(value) -> str:
+    if value is None:
+        return ""
+    if isinstance(value, float):
+        return "" if not math.isfinite(value) else f"{value:.10g}"
+    return str(value)
+
+
+def write_table_csv(session, path) -> int:
+    """Write the table of picks as UTF-8 CSV with a header row; returns the number of rows.
+
+    The file is written whole or not at all (``atomic_write``): a reader never sees half a table.
+    """
+    header, rows = session_table_rows(session)
+    with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(header)
+        writer.writerows(rows)
+    return len(rows)

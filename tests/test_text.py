@@ -1,0 +1,81 @@
+"""One formatter of a shot's numbers: the window's readout, the shot sheet and `wakeline pair`
+say the same thing the same way."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from app.review.text import (
+    angle_text,
+    flight_text,
+    proposal_text,
+    shot_rows,
+    speed_text,
+    vectors_text,
+    wake_text,
+)
+from core.results import Flight, SeparationResult, SideProposal
+from core.store import Pick, ShotRecord
+from core.summary import ShotSummary
+
+SUMMARY = ShotSummary.from_dict({
+    "ball": {"frame_a": {"center_px": [120.0, 80.5], "radius_px": 30.0}},
+    "flight": {"direction_deg": 178.25, "speed_m_s": 30.06, "displacement_px": [-6.0, 0.2],
+               "source": "ball displacement"},
+    "separation": {"upper": {"angle_deg": 12.34, "uncertainty_deg": 1.5, "quality": 0.8},
+                   "lower": {"angle_deg": None, "reason": "the image edge cuts the band"},
+                   "wake_deflection_deg": -3.0, "wake_state": "undetermined"},
+    "scale_mm_per_px": 0.078, "dt_s": 2e-5,
+    "vectors": {"count": 100, "valid": 90, "replaced": 6, "masked": 4, "window_px": 32,
+                "spacing_px": 16.0},
+    "warnings": ["first warning"],
+})
+
+
+def test_the_words_and_number_formats():
+    assert (angle_text(12.34), angle_text(-8.96), angle_text(None)) == ("+12.3°", "-9.0°", "—")
+    assert angle_text(math.nan) == "—" and angle_text(3.0, signed=False) == "3.0°"
+    assert proposal_text(SUMMARY.side("upper")) == "+12.3° ± 1.5°, quality 0.80"
+    assert proposal_text(SUMMARY.side("lower")) == "none (the image edge cuts the band)"
+    assert flight_text(SUMMARY.flight) == "178.2° at 30.1 m/s"
+    assert flight_text(Flight(90.0, None, (0.0, -1.0), "override")) == (
+        "90.0° (override), speed unknown (needs dt and a scale)")
+    assert wake_text(SUMMARY.separation) == "undetermined, deflected -3.0° from the flight axis"
+    assert wake_text(SeparationResult(SideProposal(None), SideProposal(None))) == "undetermined"
+    assert vectors_text(SUMMARY.vectors) == (
+        "90 valid, 6 replaced, 4 masked of 100 (32 px windows, 16 px apart)")
+
+
+def test_pair_prints_the_rows_of_the_formatter():
+    from app.cli.pair import describe
+
+    lines = describe(SUMMARY).splitlines()
+    assert lines[:-1] == [f"{label}: {text}" for label, text in shot_rows(SUMMARY)]
+    assert "flight: 178.2° at 30.1 m/s" in lines and lines[-1] == "warning: first warning"
+
+
+def test_readout_and_sheet_use_the_same_words(qtbot):
+    from app.qt.readout import ReadoutPanel
+    from app.sheet.content import side_detail
+
+    record = ShotRecord("t1", {}, state="processed", summary=SUMMARY,
+                        pick=Pick(status="accepted"))
+    panel = ReadoutPanel()
+    qtbot.addWidget(panel)
+    panel.show_record(record)
+    assert panel.cells[("proposed", "upper")].text() == angle_text(12.34)
+    assert panel.flight_speed.text() == speed_text(30.06)
+    assert panel.wake.text() == wake_text(SUMMARY.separation)
+    assert panel.vectors.text() == vectors_text(SUMMARY.vectors)
+    assert side_detail(record, "upper").endswith(proposal_text(SUMMARY.side("upper")))
+
+
+@pytest.mark.parametrize("status", ["to review", "unusable"])
+def test_no_final_angle_says_why_on_the_sheet(status):
+    from app.sheet.content import final_text
+
+    record = ShotRecord("t1", {}, summary=SUMMARY, pick=Pick(status=status, reason="x"))
+    assert final_text(record, "upper") == {"to review": "— (not reviewed)",
+                                          "unusable": "— (unusable)"}[status]
