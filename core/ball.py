@@ -69,6 +69,8 @@ DEFAULT_MASK_MARGIN_PX = 3.0
 MIN_RIM_SHARE = 0.3
 #: A surface step counts where it exceeds this many times the surface's noise.
 STEP_SNR = 6.0
+#: Lift of the air beside the outline (share of the surface's step) that marks a glaring arc.
+GLARE_LIFT = 0.2
 #: Share of the particle images around the outline that the particle-free disc may hold (false
 #: detections: stitches, noise); the fit is corrected for the share's own outward offset.
 HOLE_SHARE = 0.02
@@ -91,6 +93,10 @@ MATCH_FLOOR_PX = 0.04
 MIN_MATCH_NCC = 0.1
 #: Ball pixels matched between the frames at most (those with the steepest gradients).
 MATCH_PIXELS = 20000
+#: Systematic standard uncertainty (px) of the centre (each axis) and the radius per cue.
+OUTLINE_FLOOR_PX = {
+    "lit rim": (0.05, 0.15), "surface edge": (0.1, 0.25), "particle images": (0.1, 0.35),
+}
 #: Fit-quality limits behind the "poor fit" warning.
 POOR_ARC_SHARE = 0.35
 POOR_CENTRE_SIGMA_PX = 0.5
@@ -433,7 +439,7 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
         cx, cy, r = fit.center[0], fit.center[1], fit.radius
     cx, cy = cx + x0, cy + y0
     cut = cx - r < -0.5 or cy - r < -0.5 or cx + r > width - 0.5 or cy + r > height - 0.5
-    cov = fit.covariance
+    cov = fit.covariance + np.diag(_floor(cue)) ** 2
     return BallFit(
         center_px=(float(cx), float(cy)), radius_px=float(r), residual_px=fit.residual,
         cut_by_edge=bool(cut),
@@ -442,6 +448,16 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
         covariance_px2=tuple(tuple(float(v) for v in row) for row in cov),
         arc_share=float(fit.arc_share), outline=cue,
     )
+
+
+def _floor(cue: str) -> tuple[float, float, float]:
+    """Systematic standard uncertainty (px) of x, y and r for an outline cue, added to the fit's
+    own: where the outline lies on a blurred rim or step (a surface shaded toward its limb, a
+    rim brighter on one side), or how particle images straddling it are imaged (their light
+    added to the ball's, or cut by its silhouette), moves the fitted circle by a fraction of the
+    blur. Set from the spread of these effects between the two synthetic families."""
+    centre, radius = OUTLINE_FLOOR_PX[cue]
+    return centre, centre, radius
 
 
 def _edge_circle(rays: _Rays, edges: np.ndarray, cx: float, cy: float, r: float,
@@ -519,16 +535,19 @@ def _vertex(slope: np.ndarray, k: np.ndarray, radii: np.ndarray) -> np.ndarray:
 
 def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: float,
                     half_width: float) -> np.ndarray:
-    """Half-level crossing of the step from the ball's surface to the background between the
+    """Steepest point of the step from the ball's surface down to the background between the
     particles on each ray of the smoothed samples ``prof`` (NaN where that step is not clear).
 
     The step is clear where the surface (the median just inside the band) stands above the
     background (a low percentile of the air just outside the band, between particle images,
     pooled over neighbouring rays) by ``STEP_SNR`` times the noise of the smoothed surface (the
-    raw samples' noise over ``2 sqrt(pi)`` for the 1 px Gaussian: derived for white noise). The
-    edge is where the profile falls, past the edge's brightest point (the surface or a partly
-    lit rim on it), to half-way between that point and the background. A particle image
-    touching the outline delays the crossing (the robust fit drops such rays).
+    raw samples' noise over ``2 sqrt(pi)`` for the 1 px Gaussian: derived for white noise).
+    Walking outward, the profile first falls below half-way between the two; the edge is the
+    steepest point within 2 px of that crossing: a blurred step keeps its steepest point where
+    the step is, whatever the surface's grain or a partly lit rim. Where glare lifts the air
+    beside the outline by ``GLARE_LIFT`` of the step above the background around the rest of
+    the ball, the ray is left out. A particle image touching the outline delays the crossing
+    (the robust fit drops such rays).
     """
     inner = (radii >= r - half_width - 5.0) & (radii <= r - half_width)
     outer = radii >= r + half_width + 1.0
@@ -537,19 +556,22 @@ def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: flo
     spread = raw[:, inner] - np.median(raw[:, inner], axis=1)[:, None]
     noise = 1.4826 * float(np.median(np.abs(spread))) / (2.0 * math.sqrt(math.pi))
     clear = surface - background > STEP_SNR * max(noise, 1e-6)
-    # the edge's brightest part: the surface, or a partly lit rim on it
-    edge_band = (radii >= r - half_width) & (radii <= r + 0.25 * half_width)
-    peak_idx = np.argmax(np.where(edge_band, prof, -np.inf), axis=1)
-    rows = np.arange(len(prof))
-    level = 0.5 * (prof[rows, peak_idx] + background)
+    # glare: light spilling over the outline lifts the air beside it well above the background
+    # elsewhere around the ball; that arc is left out
+    typical = np.median(background)
+    clear &= background - typical < GLARE_LIFT * np.median(surface - typical)
+    level = 0.5 * (surface + background)
     cols = np.arange(len(radii))[None, :]
-    crossed = (prof <= level[:, None]) & (cols > peak_idx[:, None])
+    start = np.argmax(radii >= r - half_width)
+    crossed = (prof <= level[:, None]) & (cols >= start)
     crossed &= (radii <= r + half_width + 1.0)[None, :]
     found = crossed.any(axis=1) & clear
-    nxt = np.maximum(np.argmax(crossed, axis=1), 1)
-    p0, p1 = prof[rows, nxt - 1], prof[rows, nxt]
-    frac = np.clip((level - p0) / np.where(p1 != p0, p1 - p0, 1.0), 0.0, 1.0)
-    return np.where(found, radii[nxt - 1] + frac * (radii[1] - radii[0]), np.nan)
+    nxt = np.argmax(crossed, axis=1)
+    slope = np.diff(prof, axis=1)  # slope[k] between samples k and k+1
+    reach = int(round(2.0 / (radii[1] - radii[0])))
+    near = np.abs(cols[:, :-1] - nxt[:, None]) <= reach
+    k = np.argmin(np.where(near, slope, np.inf), axis=1)
+    return np.where(found, _vertex(slope, k, radii), np.nan)
 
 
 @dataclass
