@@ -92,7 +92,7 @@ MATCH_FLOOR_PX = 0.04
 #: Correlation of the ball's pixels between the frames below which they hold no pattern.
 MIN_MATCH_NCC = 0.1
 #: Ball pixels matched between the frames at most (those with the steepest gradients).
-MATCH_PIXELS = 20000
+MATCH_PIXELS = 8000
 #: Systematic standard uncertainty (px) of the centre (each axis) and the radius per cue.
 OUTLINE_FLOOR_PX = {
     "lit rim": (0.05, 0.15), "surface edge": (0.1, 0.25), "particle images": (0.1, 0.35),
@@ -383,13 +383,16 @@ class _Rays:
     usable: np.ndarray  # (K,) bool: inside the picture, clear of glare
 
 
-def _sample_rays(coeff, smooth, glare, cx, cy, r, half_width) -> _Rays:
+def _sample_rays(crop, coeff, smooth, glare, cx, cy, r, half_width) -> _Rays:
     """Rays of the crop around the ball: ``coeff`` its cubic B-spline coefficients (a cubic
     spline keeps the rim's flank sharper than bilinear interpolation, whose slope is constant
-    between pixel centres), ``smooth`` its 1 px Gaussian smoothing."""
-    n_rays = int(np.clip(2.0 * math.pi * r / 1.5, 90, 2880))
+    between pixel centres), ``smooth`` its 1 px Gaussian smoothing. A wide first band (more
+    than 6 px each side) only has to bring the circle within a pixel or two: it is sampled
+    twice as coarsely, bilinearly."""
+    wide = half_width > 6.0
+    spacing, step = (3.0, 0.5) if wide else (1.5, 0.25)
+    n_rays = int(np.clip(2.0 * math.pi * r / spacing, 90, 2880))
     theta = np.linspace(0.0, 2.0 * math.pi, n_rays, endpoint=False)
-    step = 0.25
     radii = np.arange(r - half_width - 6.0, r + half_width + 8.0 + step / 2, step)
     xs = cx + np.cos(theta)[:, None] * radii
     ys = cy + np.sin(theta)[:, None] * radii
@@ -401,7 +404,10 @@ def _sample_rays(coeff, smooth, glare, cx, cy, r, half_width) -> _Rays:
         hit = ndimage.map_coordinates(glare.astype(np.float32), [ys, xs], order=0, mode="nearest")
         usable &= ~(hit > 0).any(axis=1)
     usable = ndimage.minimum_filter1d(usable.astype(np.uint8), 7, mode="wrap") > 0
-    raw = ndimage.map_coordinates(coeff, [ys, xs], order=3, mode="nearest", prefilter=False)
+    if wide:
+        raw = ndimage.map_coordinates(crop, [ys, xs], order=1, mode="nearest")
+    else:
+        raw = ndimage.map_coordinates(coeff, [ys, xs], order=3, mode="nearest", prefilter=False)
     smoothed = ndimage.map_coordinates(smooth, [ys, xs], order=1, mode="nearest")
     return _Rays(theta, radii, raw, smoothed, usable)
 
@@ -424,7 +430,7 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
     # the particle-free disc (chosen again once the circle is close)
     cue = None
     for index, half_width in enumerate((first, *FINE_BANDS_PX)):
-        rays = _sample_rays(coeff, smooth, glare, cx, cy, r, half_width)
+        rays = _sample_rays(crop, coeff, smooth, glare, cx, cy, r, half_width)
         if index < 2:
             cue = _choose_cue(rays, r, half_width)
         if cue == "particle images":
@@ -810,7 +816,7 @@ def match_ball_image(
     turns = np.hypot(xs, ys) < r - RIM_DEPTH_PX
     tx, ty = np.where(turns, xs, 0.0), np.where(turns, ys, 0.0)
     coeff = ndimage.spline_filter(crop_b, 3)
-    slopes = [ndimage.spline_filter(g, 3) for g in np.gradient(crop_b)[::-1]]  # d/dx, d/dy
+    slopes = np.gradient(crop_b)[::-1]  # d/dx, d/dy
     blocked = None if glare_b is None else glare_b[by0 : by0 + crop_b.shape[0],
                                                    bx0 : bx0 + crop_b.shape[1]]
     p = np.array([start[0], start[1], 0.0, 0.0])  # dx, dy, turn (rad, ccw on screen), offset
@@ -824,8 +830,8 @@ def match_ball_image(
         if blocked is not None:
             use &= ~blocked[np.clip(np.rint(qy).astype(int), 0, blocked.shape[0] - 1),
                             np.clip(np.rint(qx).astype(int), 0, blocked.shape[1] - 1)]
-        value, gx, gy = (ndimage.map_coordinates(c, [qy, qx], order=3, prefilter=False)
-                         for c in (coeff, *slopes))
+        value = ndimage.map_coordinates(coeff, [qy, qx], order=3, prefilter=False)
+        gx, gy = (ndimage.map_coordinates(g, [qy, qx], order=1) for g in slopes)
         # the mean of the two frames' slopes (efficient second-order minimisation): the steps
         # converge in a few iterations even with noisy frames, where B's slopes alone crawl
         gx, gy = 0.5 * (gx + grad_a[0]), 0.5 * (gy + grad_a[1])

@@ -59,23 +59,43 @@ def glare_mask(frame: np.ndarray, *, level: float | None = None,
     mask = np.zeros(image.shape, dtype=bool)
     if not top > 0:
         return mask
-    saturated = image >= SATURATED_SHARE * top
-    if np.count_nonzero(saturated) < min_area_px:
+    ys, xs = np.nonzero(image >= SATURATED_SHARE * top)
+    if ys.size < min_area_px:
         return mask
-    labels, count = ndimage.label(saturated)
-    areas = np.bincount(labels.ravel(), minlength=count + 1)
-    # a loop over the few glare regions (not over pixels): each is grown by its own halo
+    # saturated pixels are few: group them by 16 px cells first, and label pixels only around
+    # the groups large enough for glare (labelling the whole frame costs far more)
+    cell = 16
+    grid = np.zeros((image.shape[0] // cell + 1, image.shape[1] // cell + 1), dtype=np.int64)
+    np.add.at(grid, (ys // cell, xs // cell), 1)
+    groups, count = ndimage.label(grid > 0, structure=np.ones((3, 3)))
+    totals = ndimage.sum(grid, groups, index=np.arange(1, count + 1))
+    for index, box in enumerate(ndimage.find_objects(groups), start=1):
+        if totals[index - 1] < min_area_px:
+            continue
+        y0, x0 = box[0].start * cell, box[1].start * cell
+        y1, x1 = box[0].stop * cell, box[1].stop * cell
+        _grow_glare(image[y0:y1, x0:x1] >= SATURATED_SHARE * top, mask, (y0, x0), min_area_px)
+    return mask
+
+
+def _grow_glare(saturated: np.ndarray, mask: np.ndarray, origin, min_area_px: int) -> None:
+    """Mark in ``mask`` each saturated region of ``saturated`` (a window of it at ``origin``)
+    of at least ``min_area_px`` pixels, grown by its halo. A loop over the few glare regions
+    (not over pixels): each is grown by its own halo."""
+    labels, _ = ndimage.label(saturated)
+    areas = np.bincount(labels.ravel())
     for index, region in enumerate(ndimage.find_objects(labels), start=1):
-        if areas[index] < min_area_px:
+        if region is None or areas[index] < min_area_px:
             continue
         grow = max(3, math.ceil(GLARE_HALO_SHARE * math.sqrt(areas[index] / math.pi)))
-        y0, x0 = max(0, region[0].start - grow), max(0, region[1].start - grow)
-        y1 = min(image.shape[0], region[0].stop + grow)
-        x1 = min(image.shape[1], region[1].stop + grow)
-        blob = labels[y0:y1, x0:x1] == index
-        reach = ndimage.distance_transform_edt(~blob) <= grow
-        mask[y0:y1, x0:x1] |= reach
-    return mask
+        y0 = max(0, origin[0] + region[0].start - grow)
+        x0 = max(0, origin[1] + region[1].start - grow)
+        y1 = min(mask.shape[0], origin[0] + region[0].stop + grow)
+        x1 = min(mask.shape[1], origin[1] + region[1].stop + grow)
+        blob = np.zeros((y1 - y0, x1 - x0), dtype=bool)
+        ly, lx = np.nonzero(labels[region] == index)
+        blob[ly + origin[0] + region[0].start - y0, lx + origin[1] + region[1].start - x0] = True
+        mask[y0:y1, x0:x1] |= ndimage.distance_transform_edt(~blob) <= grow
 
 
 def background_image(frames: Sequence[np.ndarray] | np.ndarray, method: str = "min") -> np.ndarray:
