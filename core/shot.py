@@ -8,6 +8,7 @@ session store keeps, and ``ShotResult.from_stored`` rebuilds it from those two.
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import asdict, dataclass, field, replace
 from dataclasses import fields as dc_fields
 
@@ -37,7 +38,9 @@ class ShotSettings:
     flight_deg: float | None = None  # override of the flight direction
     # image conditioning before correlation (core.conditioning)
     mask_glare: bool = True  # saturated regions larger than a particle image left out
-    normalise_spacings: float | None = 3.0  # min-max window in particle spacings; None: off
+    # min-max normalisation window in mean particle spacings (None: off; skipped on sparse
+    # seeding, spacing above core.conditioning.SPARSE_SPACING_PX)
+    normalise_spacings: float | None = 3.0
     piv: PivSettings = field(default_factory=PivSettings)
 
     def to_dict(self) -> dict:
@@ -326,15 +329,22 @@ def _glare(frame_a, frame_b, settings: ShotSettings):
 
 
 def _conditioned(frame_a, frame_b, settings: ShotSettings, background, glare):
-    """The frames as correlated: background removed, glare darkened, locally normalised."""
-    from core.conditioning import normalise_local, particle_spacing_px, subtract_background
+    """The frames as correlated: background removed, glare darkened, locally normalised (not
+    on sparse seeding, where it raised the vectors' error on synthetic shots)."""
+    from core.conditioning import (
+        SPARSE_SPACING_PX,
+        normalise_local,
+        particle_spacing_px,
+        subtract_background,
+    )
 
     frames = [frame_a, frame_b]
     if background is not None:
         frames = [subtract_background(f, background, name)
                   for f, name in zip(frames, ("frame A", "frame B"), strict=True)]
-    if settings.normalise_spacings:
-        window = settings.normalise_spacings * particle_spacing_px(frames[0])
+    spacing = particle_spacing_px(frames[0]) if settings.normalise_spacings else math.inf
+    if spacing <= SPARSE_SPACING_PX:
+        window = settings.normalise_spacings * spacing
         frames = [normalise_local(f, window, mask=m) for f, m in zip(frames, glare, strict=True)]
     else:
         frames = [f if m is None else np.where(m, 0, f).astype(np.float32)
