@@ -91,6 +91,8 @@ TURN_PRIOR_RAD = math.radians(2.0)
 MATCH_FLOOR_PX = 0.04
 #: Correlation of the ball's pixels between the frames below which they hold no pattern.
 MIN_MATCH_NCC = 0.1
+#: Scale (px) of the surface's shading, taken away before the image match.
+SHADING_PX = 3.0
 #: Ball pixels matched between the frames at most (those with the steepest gradients).
 MATCH_PIXELS = 8000
 #: Systematic standard uncertainty (px) of the centre (each axis) and the radius per cue.
@@ -786,6 +788,10 @@ def match_ball_image(
     crop_a, (x0, y0) = _ball_crop(frame_a, ball_a.center_px, r + 2)
     pad = 4 + int(abs(start[0]) + abs(start[1])) // 8  # room for the search in B
     crop_b, (bx0, by0) = _ball_crop(frame_b, (cx + start[0], cy + start[1]), r + pad)
+    # the shading of the surface is the light's, fixed in the lab, and does not turn with the
+    # ball: only the pattern finer than a few pixels (seam, stitches, grain, the rim) is matched
+    crop_a = crop_a - ndimage.gaussian_filter(crop_a, SHADING_PX)
+    crop_b = crop_b - ndimage.gaussian_filter(crop_b, SHADING_PX)
     # particle images just outside the outline spill over it and move with the air: a lit rim
     # outshines them, elsewhere the match keeps clear of them
     inset = 0.5 if ball_a.outline == ball_b.outline == "lit rim" else SPILL_PX
