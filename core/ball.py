@@ -77,6 +77,8 @@ HOLE_SHARE = 0.02
 #: Particle images (about) used to fit the particle-free disc; the band outside is widened on
 #: sparse seeding to hold them.
 HOLE_POINTS = 250
+#: Refits on resampled particle images behind the particle-free disc's final covariance.
+HOLE_BOOTSTRAP = 24
 #: Half-widths (px) of the fine search bands after the particle-free disc.
 FINE_BANDS_PX = (5.0, 3.0)
 #: Depth (px) of the lit rim inside the outline: it moves with the centre but does not turn.
@@ -97,7 +99,7 @@ SHADING_PX = 3.0
 MATCH_PIXELS = 8000
 #: Systematic standard uncertainty (px) of the centre (each axis) and the radius per cue.
 OUTLINE_FLOOR_PX = {
-    "lit rim": (0.05, 0.15), "surface edge": (0.1, 0.25), "particle images": (0.1, 0.35),
+    "lit rim": (0.1, 0.15), "surface edge": (0.1, 0.25), "particle images": (0.1, 0.35),
 }
 #: Fit-quality limits behind the "poor fit" warning.
 POOR_ARC_SHARE = 0.35
@@ -436,7 +438,8 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
         if index < 2:
             cue = _choose_cue(rays, r, half_width)
         if cue == "particle images":
-            fit = _hole_circle(crop, glare, cx, cy, r, half_width + (index > 0), name)
+            last = index == len(FINE_BANDS_PX)
+            fit = _hole_circle(crop, glare, cx, cy, r, half_width + (index > 0), name, last)
         else:
             edges = _rim_crossings(rays.raw, rays.radii, r, half_width)
             if cue == "surface edge":  # the rim's flank where it is lit, else the step
@@ -697,7 +700,19 @@ def _parabola(left, centre, right):
                    -0.5, 0.5)
 
 
-def _hole_circle(crop, glare, cx, cy, r, inner_px, name) -> _Circle:
+def _quantile_circle(ux, uy, rho, tau):
+    """``(dx, dy, q)`` minimising the quantile loss of ``rho_i - (q + ux_i dx + uy_i dy)``
+    (a linear programme), or None when it fails."""
+    n = rho.size
+    eye = sparse.identity(n, format="csr")
+    a_eq = sparse.hstack([sparse.csr_matrix(np.column_stack([ux, uy, np.ones(n)])), eye, -eye])
+    cost = np.concatenate([[0.0, 0.0, 0.0], np.full(n, tau), np.full(n, 1.0 - tau)])
+    bounds = [(None, None)] * 3 + [(0, None)] * (2 * n)
+    res = linprog(cost, A_eq=a_eq, b_eq=rho, bounds=bounds, method="highs")
+    return tuple(float(v) for v in res.x[:3]) if res.success else None
+
+
+def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Circle:
     """The circle holding ``HOLE_SHARE`` of the particle images near it (quantile regression).
 
     Particle centres are spread evenly outside the ball and absent inside, so around the true
@@ -722,31 +737,39 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name) -> _Circle:
         px, py = px[pick], py[pick]
     rho = np.hypot(px - cx, py - cy)
     ux, uy = (px - cx) / rho, (py - cy) / rho
-    n = rho.size
     tau = HOLE_SHARE
-    # rho_i = R + ux dx + uy dy + e_i,  e = over - under;  minimise tau*over + (1 - tau)*under
-    eye = sparse.identity(n, format="csr")
-    a_eq = sparse.hstack([sparse.csr_matrix(np.column_stack([ux, uy, np.ones(n)])), eye, -eye])
-    cost = np.concatenate([[0.0, 0.0, 0.0], np.full(n, tau), np.full(n, 1.0 - tau)])
-    bounds = [(None, None)] * 3 + [(0, None)] * (2 * n)
-    res = linprog(cost, A_eq=a_eq, b_eq=rho, bounds=bounds, method="highs")
-    if not res.success:
-        raise WakelineError(f"{name}: no ball found (the particle-free disc could not be fitted)")
-    dx, dy, q = res.x[:3]
     reach = r + inner_px + outer
+    fit = _quantile_circle(ux, uy, rho, tau)
+    if fit is None:
+        raise WakelineError(f"{name}: no ball found (the particle-free disc could not be fitted)")
+    dx, dy, q = fit
     radius = (q - tau * reach) / (1.0 - tau)
     # covariance of a quantile regression: tau (1 - tau) / f^2 (X'X)^-1, f = 1 / (band beyond
     # the circle) the density of the even spread at the quantile (asymptotic; doubled for the
-    # extreme quantile's skew)
-    design = np.column_stack([ux, uy, np.ones(n)])
+    # extreme quantile's skew); the intercept q carries to r scaled by 1 / (1 - tau)
+    design = np.column_stack([ux, uy, np.ones(rho.size)])
     f = 1.0 / max(reach - radius, 1.0)
     try:
         cov = 2.0 * tau * (1.0 - tau) / (f * f) * np.linalg.inv(design.T @ design)
     except np.linalg.LinAlgError:
         cov = np.full((3, 3), np.inf)
-    # report x, y, r: the intercept is q, whose variance carries to r scaled by 1 / (1 - tau)
     cov[2, :] /= 1.0 - tau
     cov[:, 2] /= 1.0 - tau
+    if bootstrap:
+        # a few particle images decide an extreme quantile, and with part of the outline
+        # unseen (a shadow) the solution can jump: the spread of refits on resampled particle
+        # images says how far, where the asymptotic formula does not
+        rng = np.random.default_rng(12345)
+        refits = []
+        for _ in range(HOLE_BOOTSTRAP):
+            pick = rng.integers(0, rho.size, rho.size)
+            again = _quantile_circle(ux[pick], uy[pick], rho[pick], tau)
+            if again is not None:
+                refits.append((again[0], again[1], (again[2] - tau * reach) / (1.0 - tau)))
+        if len(refits) >= HOLE_BOOTSTRAP // 2:
+            spread = np.cov(np.array(refits).T)
+            if np.trace(spread) > np.trace(cov):
+                cov = spread
     theta = np.arctan2(py - cy, px - cx)
     near = np.abs(rho - ux * dx - uy * dy - radius) < 3.0
     return _Circle((cx + dx, cy + dy), float(radius), cov, float("nan"),
