@@ -139,6 +139,7 @@ def find_ball(
     radius_hint_px: float | None = None,
     name: str = "frame",
     saturation: float | None = None,
+    near: BallFit | None = None,
 ) -> BallFit:
     """Fit the ball's outline circle in one frame.
 
@@ -154,6 +155,9 @@ def find_ball(
     saturation : float, optional
         The camera's saturation level (counts); default the frame's maximum. Glare (saturated
         regions larger than a particle image) is left out of the outline.
+    near : BallFit, optional
+        The ball in the other frame of the pair: the search starts from it (and falls back on
+        the whole frame when the ball is not found within the first band around it).
 
     Returns
     -------
@@ -172,6 +176,18 @@ def find_ball(
     if image.ndim != 2 or min(image.shape) < 16:
         raise WakelineError(f"{name}: not a 2-D frame large enough to hold a ball")
     level = float(image.max()) if saturation is None else float(saturation)
+    if near is not None:
+        # the other frame's circle: the ball moved a few pixels, well within the first band;
+        # a fit that misses (a faster ball) falls back on the search
+        try:
+            fit = _fine_circle(image, *near.center_px, near.radius_px, 4, level, name)
+            moved = math.hypot(fit.center_px[0] - near.center_px[0],
+                               fit.center_px[1] - near.center_px[1])
+            if (moved < _first_band(near.radius_px, 4) and fit.arc_share >= POOR_ARC_SHARE
+                    and abs(fit.radius_px - near.radius_px) < 0.03 * near.radius_px):
+                return fit
+        except WakelineError:
+            pass
     cx, cy, r, block = _coarse_circle(image, radius_hint_px, name)
     if radius_hint_px is not None:
         r = radius_hint_px if abs(r - radius_hint_px) > 0.25 * radius_hint_px else r
@@ -318,7 +334,8 @@ def _hough_best(ex, ey, nx, ny, radii, quiet):
 
 def _refined(ex, ey, nx, ny, i, j, r):
     """Circle (blocks) through the edge points near ``(i, j, r)`` whose normals point away
-    from its centre (RANSAC, then least squares), with the share of its outline they cover
+    from its centre (least squares, then again on the points within a block), with the share
+    of its outline they cover
     (64 sectors); None with fewer than 8 such points."""
     rx, ry = ex - i, ey - j
     rho = np.hypot(rx, ry)
@@ -326,8 +343,13 @@ def _refined(ex, ey, nx, ny, i, j, r):
     if near.sum() < 8:
         return None
     points = np.column_stack([ex[near], ey[near]]).astype(float)
-    model, inliers = _ransac_circle(points, 1.0)
-    if model is None or inliers.sum() < 8:
+    model = CircleModel.from_estimate(points)  # least squares, then once more on the closest
+    if not model:
+        return None
+    inliers = np.abs(np.hypot(points[:, 0] - model.center[0], points[:, 1] - model.center[1])
+                     - model.radius) < 1.0
+    model = CircleModel.from_estimate(points[inliers]) if inliers.sum() >= 8 else None
+    if not model:
         return None
     (ci, cj), cr = model.center, model.radius
     if abs(cr - r) > 3.0 or math.hypot(ci - i, cj - j) > 3.0 or cr <= 0:
@@ -346,7 +368,7 @@ def _ransac_circle(points: np.ndarray, threshold: float, is_model_valid=None):
         # skimage warns when no sample passes ``is_model_valid``; that is a plain "no circle"
         warnings.simplefilter("ignore", UserWarning)
         model, inliers = ransac(
-            points, CircleModel, min_samples=3, residual_threshold=threshold, max_trials=200,
+            points, CircleModel, min_samples=3, residual_threshold=threshold, max_trials=100,
             stop_probability=0.999, rng=np.random.default_rng(12345),
             is_model_valid=is_model_valid,
         )
@@ -387,20 +409,21 @@ class _Rays:
     usable: np.ndarray  # (K,) bool: inside the picture, clear of glare
 
 
-def _sample_rays(crop, coeff, smooth, glare, cx, cy, r, half_width) -> _Rays:
+def _sample_rays(crop, coeff, glare, cx, cy, r, half_width) -> _Rays:
     """Rays of the crop around the ball: ``coeff`` its cubic B-spline coefficients (a cubic
     spline keeps the rim's flank sharper than bilinear interpolation, whose slope is constant
-    between pixel centres), ``smooth`` its 1 px Gaussian smoothing. A wide first band (more
-    than 6 px each side) only has to bring the circle within a pixel or two: it is sampled
-    twice as coarsely, bilinearly."""
+    between pixel centres); the smoothed samples are the raw ones smoothed by a 1 px Gaussian
+    along and across the rays (as a 1 px Gaussian of the picture would, for a fraction of its
+    cost). A wide first band (more than 6 px each side) only has to bring the circle within a
+    pixel or two: it is sampled twice as coarsely, bilinearly."""
     wide = half_width > 6.0
     spacing, step = (3.0, 0.5) if wide else (1.5, 0.25)
-    n_rays = int(np.clip(2.0 * math.pi * r / spacing, 90, 2880))
+    n_rays = int(np.clip(2.0 * math.pi * r / spacing, 90, 1080))
     theta = np.linspace(0.0, 2.0 * math.pi, n_rays, endpoint=False)
     radii = np.arange(r - half_width - 6.0, r + half_width + 8.0 + step / 2, step)
     xs = cx + np.cos(theta)[:, None] * radii
     ys = cy + np.sin(theta)[:, None] * radii
-    height, width = smooth.shape
+    height, width = crop.shape
     inside = (xs >= 0) & (ys >= 0) & (xs <= width - 1) & (ys <= height - 1)
     # rays whose band (or the 3 neighbours each side) leaves the picture or touches glare
     usable = inside.all(axis=1)
@@ -412,14 +435,21 @@ def _sample_rays(crop, coeff, smooth, glare, cx, cy, r, half_width) -> _Rays:
         raw = ndimage.map_coordinates(crop, [ys, xs], order=1, mode="nearest")
     else:
         raw = ndimage.map_coordinates(coeff, [ys, xs], order=3, mode="nearest", prefilter=False)
-    smoothed = ndimage.map_coordinates(smooth, [ys, xs], order=1, mode="nearest")
+    smoothed = ndimage.gaussian_filter1d(raw, 1.0 / step, axis=1, mode="nearest")
+    smoothed = ndimage.gaussian_filter1d(smoothed, 1.0 / (r * (theta[1] - theta[0])), axis=0,
+                                         mode="wrap")
     return _Rays(theta, radii, raw, smoothed, usable)
+
+
+def _first_band(r: float, block: int) -> float:
+    """Half-width (px) of the first fine band: the coarse circle's error is up to ~3 blocks."""
+    return max(10.0, 0.15 * r, 3.0 * block)
 
 
 def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
     """Particle-free disc, then the rim or surface step on narrower bands (see module doc)."""
     height, width = image.shape
-    first = max(10.0, 0.15 * r, 3.0 * block)
+    first = _first_band(r, block)
     reach = r + first + 48.0
     x0, y0 = max(0, int(cx - reach)), max(0, int(cy - reach))
     x1, y1 = min(width, int(cx + reach) + 2), min(height, int(cy + reach) + 2)
@@ -428,13 +458,12 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
     crop = np.asarray(image[y0:y1, x0:x1], dtype=np.float32)
     glare = glare_mask(crop, level=level)
     cx, cy = cx - x0, cy - y0
-    smooth = ndimage.gaussian_filter(crop, 1.0)
-    coeff = ndimage.spline_filter(crop, 3, mode="nearest")
+    coeff = ndimage.spline_filter(crop, 3, output=np.float32, mode="nearest")
     # 2. the outline on narrowing bands from the best cue: the lit rim, the surface's step, or
     # the particle-free disc (chosen again once the circle is close)
     cue = None
     for index, half_width in enumerate((first, *FINE_BANDS_PX)):
-        rays = _sample_rays(crop, coeff, smooth, glare, cx, cy, r, half_width)
+        rays = _sample_rays(crop, coeff, glare, cx, cy, r, half_width)
         if index < 2:
             cue = _choose_cue(rays, r, half_width)
         if cue == "particle images":
@@ -813,8 +842,8 @@ def match_ball_image(
     crop_b, (bx0, by0) = _ball_crop(frame_b, (cx + start[0], cy + start[1]), r + pad)
     # the shading of the surface is the light's, fixed in the lab, and does not turn with the
     # ball: only the pattern finer than a few pixels (seam, stitches, grain, the rim) is matched
-    crop_a = crop_a - ndimage.gaussian_filter(crop_a, SHADING_PX)
-    crop_b = crop_b - ndimage.gaussian_filter(crop_b, SHADING_PX)
+    crop_a = crop_a - _box2(crop_a)
+    crop_b = crop_b - _box2(crop_b)
     # particle images just outside the outline spill over it and move with the air: a lit rim
     # outshines them, elsewhere the match keeps clear of them
     inset = 0.5 if ball_a.outline == ball_b.outline == "lit rim" else SPILL_PX
@@ -844,7 +873,7 @@ def match_ball_image(
     # fixed to the light, so it only moves with the centre
     turns = np.hypot(xs, ys) < r - RIM_DEPTH_PX
     tx, ty = np.where(turns, xs, 0.0), np.where(turns, ys, 0.0)
-    coeff = ndimage.spline_filter(crop_b, 3)
+    coeff = ndimage.spline_filter(crop_b, 3, output=np.float32)
     slopes = np.gradient(crop_b)[::-1]  # d/dx, d/dy
     blocked = None if glare_b is None else glare_b[by0 : by0 + crop_b.shape[0],
                                                    bx0 : bx0 + crop_b.shape[1]]
@@ -913,13 +942,20 @@ def match_ball_image(
     return BallMatch((float(p[0]), float(p[1])), cov, math.degrees(p[2]), int(resid.size))
 
 
+def _box2(image: np.ndarray) -> np.ndarray:
+    """Two passes of a box of ``2 SHADING_PX + 1`` px: close to a Gaussian of about
+    ``SHADING_PX`` (a box's deviation is ``(n^2 - 1) / 12`` per pass), at a box's cost."""
+    size = 2 * int(SHADING_PX) + 1
+    return ndimage.uniform_filter(ndimage.uniform_filter(image, size), size)
+
+
 def _ball_crop(frame, center_px, reach):
-    """``frame`` around a point out to ``reach`` px (float64) and the crop's origin (x0, y0)."""
+    """``frame`` around a point out to ``reach`` px (float32) and the crop's origin (x0, y0)."""
     height, width = frame.shape
     x0, y0 = max(0, int(center_px[0] - reach)), max(0, int(center_px[1] - reach))
     x1 = min(width, int(center_px[0] + reach) + 2)
     y1 = min(height, int(center_px[1] + reach) + 2)
-    return np.asarray(frame[y0:y1, x0:x1], dtype=np.float64), (x0, y0)
+    return np.asarray(frame[y0:y1, x0:x1], dtype=np.float32), (x0, y0)
 
 
 def _disc(shape, cx, cy, r) -> np.ndarray:

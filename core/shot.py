@@ -304,10 +304,8 @@ def _find_balls(frame_a, frame_b, settings: ShotSettings):
     from core.ball import find_ball
 
     hint = _expected_radius_px(settings)
-    return (
-        find_ball(frame_a, radius_hint_px=hint, name="frame A"),
-        find_ball(frame_b, radius_hint_px=hint, name="frame B"),
-    )
+    ball_a = find_ball(frame_a, radius_hint_px=hint, name="frame A")
+    return ball_a, find_ball(frame_b, radius_hint_px=hint, name="frame B", near=ball_a)
 
 
 def _expected_radius_px(settings: ShotSettings) -> float | None:
