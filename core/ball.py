@@ -66,7 +66,7 @@ NOMINAL_BALL_DIAMETER_MM = {
 DEFAULT_MASK_MARGIN_PX = 3.0
 #: Share of the outline's rays with a lit rim (or a clear surface step) from which that cue
 #: alone gives the outline.
-MIN_RIM_SHARE = 0.3
+MIN_RIM_SHARE = 0.2
 #: A surface step counts where it exceeds this many times the surface's noise.
 STEP_SNR = 6.0
 #: Lift of the air beside the outline (share of the surface's step) that marks a glaring arc.
@@ -77,8 +77,8 @@ HOLE_SHARE = 0.02
 #: Particle images (about) used to fit the particle-free disc; the band outside is widened on
 #: sparse seeding to hold them.
 HOLE_POINTS = 250
-#: Refits on resampled particle images behind the particle-free disc's final covariance.
-HOLE_BOOTSTRAP = 24
+#: Refits on random halves of the particle images behind the particle-free disc's covariance.
+HOLE_BOOTSTRAP = 10
 #: Half-widths (px) of the fine search bands after the particle-free disc.
 FINE_BANDS_PX = (5.0, 3.0)
 #: Depth (px) of the lit rim inside the outline: it moves with the centre but does not turn.
@@ -472,7 +472,7 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
         else:
             edges = _rim_crossings(rays.raw, rays.radii, r, half_width)
             if cue == "surface edge":  # the rim's flank where it is lit, else the step
-                lit = _coherent(np.isfinite(edges)) & np.isfinite(edges)
+                lit = _coherent(edges)
                 step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
                 edges = np.where(lit, edges, step)
             fit = _edge_circle(rays, edges, cx, cy, r, half_width, name)
@@ -518,19 +518,32 @@ def _share(found: np.ndarray, usable: np.ndarray) -> float:
 
 def _choose_cue(rays: _Rays, r: float, half_width: float) -> str:
     """The lit rim where enough of it is lit, else a clear surface step, else the particles."""
-    rim = _coherent(np.isfinite(_rim_crossings(rays.raw, rays.radii, r, half_width)))
+    rim = _coherent(_rim_crossings(rays.raw, rays.radii, r, half_width))
     if _share(rim, rays.usable) >= MIN_RIM_SHARE:
         return "lit rim"
     step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
-    if _share(_coherent(np.isfinite(step)), rays.usable) >= MIN_RIM_SHARE:
+    if _share(_coherent(step), rays.usable) >= MIN_RIM_SHARE:
         return "surface edge"
     return "particle images"
 
 
-def _coherent(found: np.ndarray) -> np.ndarray:
-    """Rays whose cue is found on most of their 9 neighbours: a lit rim or a surface step runs
-    along the outline, a particle image touching it spans a ray or two."""
-    return ndimage.uniform_filter1d(found.astype(np.float64), 9, mode="wrap") > 0.5
+def _coherent(edges: np.ndarray) -> np.ndarray:
+    """Rays whose edge is found on most of their 9 neighbours and lies within a pixel of those
+    neighbours' median: a lit rim or a surface step runs smoothly along the outline, while
+    particle images touching it span a ray or two, each at its own distance."""
+    found = np.isfinite(edges)
+    most = ndimage.uniform_filter1d(found.astype(np.float64), 9, mode="wrap") > 0.5
+    if not found.any():
+        return most
+    window = np.lib.stride_tricks.sliding_window_view(np.concatenate([edges[-4:], edges,
+                                                                      edges[:4]]), 9)
+    with np.errstate(all="ignore"):
+        import warnings
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN windows: not coherent
+            middle = np.nanmedian(window, axis=1)
+    return most & found & (np.abs(edges - middle) < 1.0)
 
 
 def _rim_crossings(prof: np.ndarray, radii: np.ndarray, r: float, half_width: float) -> np.ndarray:
@@ -786,17 +799,18 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Ci
     cov[:, 2] /= 1.0 - tau
     if bootstrap:
         # a few particle images decide an extreme quantile, and with part of the outline
-        # unseen (a shadow) the solution can jump: the spread of refits on resampled particle
-        # images says how far, where the asymptotic formula does not
+        # unseen (a shadow) the solution can jump: the spread of refits on random halves of
+        # the particle images (halved, as the variance of a fit to half the data is about
+        # twice the whole's) says how far, where the asymptotic formula does not
         rng = np.random.default_rng(12345)
         refits = []
         for _ in range(HOLE_BOOTSTRAP):
-            pick = rng.integers(0, rho.size, rho.size)
+            pick = rng.choice(rho.size, rho.size // 2, replace=False)
             again = _quantile_circle(ux[pick], uy[pick], rho[pick], tau)
             if again is not None:
                 refits.append((again[0], again[1], (again[2] - tau * reach) / (1.0 - tau)))
         if len(refits) >= HOLE_BOOTSTRAP // 2:
-            spread = np.cov(np.array(refits).T)
+            spread = 0.5 * np.cov(np.array(refits).T)
             if np.trace(spread) > np.trace(cov):
                 cov = spread
     theta = np.arctan2(py - cy, px - cx)
@@ -1088,6 +1102,10 @@ def flight_from_balls(
                   displacement_cov_px2=cov_out)
 
 
+#: Model uncertainty (deg) of a held ball's free-stream direction: the ball still turns the
+#: stream beyond 2.5 radii (its potential flow decays as (R/r)^3, up to 1.5 (R/r)^3 rad, i.e.
+#: 5 deg at 2.5 R: derived) and its wake may be deflected; over the field that mostly averages.
+STREAM_DIRECTION_FLOOR_DEG = 1.0
 #: Model uncertainty (deg) of the air's direction as a stand-in for the flight: a wake that
 #: leaves the ball asymmetrically (a swinging ball) is deflected by some degrees.
 AIR_DIRECTION_FLOOR_DEG = 5.0
@@ -1127,8 +1145,8 @@ def flight_from_stream(vf: VectorField, ball: BallFit, *, dt_s=None, scale_mm_pe
 
     The free stream is the median displacement of the valid vectors beyond 2.5 radii from the
     ball; the speed is the air's speed past the ball. Its uncertainty is the vectors' spread
-    across the stream over its length, each vector counted as half an independent one.
-    None with fewer than 6 such vectors.
+    across the stream over its length, each vector counted as half an independent one, with
+    ``STREAM_DIRECTION_FLOOR_DEG`` added. None with fewer than 6 such vectors.
     """
     rho = np.hypot(vf.x_px - ball.center_px[0], vf.y_px - ball.center_px[1])
     far = vf.valid & (rho > 2.5 * ball.radius_px) & np.isfinite(vf.dx_px)
@@ -1142,7 +1160,8 @@ def flight_from_stream(vf: VectorField, ball: BallFit, *, dt_s=None, scale_mm_pe
     across = (-dx * my + dy * mx) / length
     along = (dx * mx + dy * my) / length
     n_eff = max(1.0, 0.5 * dx.size)
-    sigma_deg = math.degrees(float(np.std(across)) / math.sqrt(n_eff) / length)
+    sigma_deg = math.hypot(math.degrees(float(np.std(across)) / math.sqrt(n_eff) / length),
+                           STREAM_DIRECTION_FLOOR_DEG)
     speed = speed_sigma = None
     if dt_s and scale_mm_per_px:
         speed = length * scale_mm_per_px * 1e-3 / dt_s

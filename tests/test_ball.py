@@ -106,7 +106,7 @@ def test_held_ball_flies_against_the_free_stream():
     assert flight.source.startswith("free stream")
     assert flight.direction_deg == pytest.approx(math.degrees(math.atan2(0.5, 6.0)), abs=0.1)
     assert flight.speed_m_s == pytest.approx(math.hypot(6.0, 0.5) * 0.1e-3 / 1e-4, rel=0.01)
-    assert 0 < flight.direction_sigma_deg < 0.5
+    assert 0 < flight.direction_sigma_deg < 1.5
 
 
 def test_flight_override_and_missing_dt():
