@@ -517,13 +517,14 @@ def _share(found: np.ndarray, usable: np.ndarray) -> float:
 
 
 def _choose_cue(rays: _Rays, r: float, half_width: float) -> str:
-    """The lit rim where enough of it is lit, else a clear surface step, else the particles."""
-    rim = _coherent(_rim_crossings(rays.raw, rays.radii, r, half_width))
-    if _share(rim, rays.usable) >= MIN_RIM_SHARE:
-        return "lit rim"
+    """A surface standing clear of the background (its step, with the rim's flank where the rim
+    is lit), else the lit rim alone, else the particle images."""
     step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
     if _share(_coherent(step), rays.usable) >= MIN_RIM_SHARE:
         return "surface edge"
+    rim = _coherent(_rim_crossings(rays.raw, rays.radii, r, half_width))
+    if _share(rim, rays.usable) >= MIN_RIM_SHARE:
+        return "lit rim"
     return "particle images"
 
 
