@@ -89,8 +89,12 @@ SPILL_PX = 2.5
 #: Prior standard deviation of the ball's in-plane turn between the frames (rad).
 TURN_PRIOR_RAD = math.radians(2.0)
 #: Standard uncertainty (px) added to each axis of the image match's displacement: the
-#: outline's own light (rim, spilling particle images) is not quite rigid.
+#: outline's own light (rim, spilling particle images) is not quite rigid. Without a lit rim
+#: the match rests on the surface's pattern, whose motion mixes the ball's with its spin:
+#: on the physically built synthetic family such matches erred by up to 0.3-0.5 px, hence
+#: the larger floor (the circles then weigh about as much).
 MATCH_FLOOR_PX = 0.04
+PATTERN_FLOOR_PX = 0.25
 #: Correlation of the ball's pixels between the frames below which they hold no pattern.
 MIN_MATCH_NCC = 0.1
 #: Scale (px) of the surface's shading, taken away before the image match.
@@ -826,7 +830,7 @@ class BallMatch:
 
     displacement_px: tuple[float, float]  # A -> B
     covariance_px2: np.ndarray  # (2, 2) of the displacement
-    rotation_deg: float  # in-plane turn A -> B (spin about the line of sight), ccw on screen
+    rotation_deg: float  # turn A -> B about the line of sight (ccw on screen)
     pixels: int  # ball pixels matched
 
 
@@ -839,9 +843,9 @@ def match_ball_image(
     Everything inside the outline moves with the ball: the lit rim, the seam and its stitches,
     the surface's shading. Frame A's ball pixels (inside the outline by a pixel, glare left
     out; without a lit rim also clear of the particle images spilling over the outline) are
-    matched to frame B under a shift, an in-plane turn of the surface about the
-    ball's centre (the ball spins between the frames; the lit rim, fixed to the light, does not
-    turn) and an offset, by Gauss-Newton least squares on a cubic-spline image of B started
+    matched to frame B under a shift, a turn of the surface about any axis (the ball spins
+    between the frames; the lit rim, fixed to the light, does not turn) and an offset, by
+    Gauss-Newton least squares on a cubic-spline image of B started
     from the difference of the two circles. The two laser pulses differ in energy: B is first
     scaled by the ratio of the balls' own brightness spreads (99th - 50th percentile inside
     each circle), since a gain fitted with the shift trades against it (a brighter rim on the
@@ -861,7 +865,8 @@ def match_ball_image(
     crop_b = crop_b - _box2(crop_b)
     # particle images just outside the outline spill over it and move with the air: a lit rim
     # outshines them, elsewhere the match keeps clear of them
-    inset = 0.5 if ball_a.outline == ball_b.outline == "lit rim" else SPILL_PX
+    rim_lit = ball_a.outline == ball_b.outline == "lit rim"
+    inset = 0.5 if rim_lit else SPILL_PX
     region = _disc(crop_a.shape, cx - x0, cy - y0, r - inset)
     if glare_a is not None:
         region &= ~glare_a[y0 : y0 + crop_a.shape[0], x0 : x0 + crop_a.shape[1]]
@@ -884,19 +889,33 @@ def match_ball_image(
     gy_a, gx_a = np.gradient(crop_a)
     grad_a = gx_a[ys, xs], gy_a[ys, xs]
     xs, ys = xs + x0 - cx, ys + y0 - cy  # about the centre in A
-    # the surface turns with the ball's spin; the lit rim is where the sheet grazes the ball,
-    # fixed to the light, so it only moves with the centre
+    # the surface turns with the ball's spin, about any axis: a point p = (x, y, z) of the
+    # visible hemisphere (z toward the camera) moves by w x p, so a turn about the line of
+    # sight moves it around the centre and one about an axis in the picture moves it by w z,
+    # most at the middle of the disc and not at all at the limb (orthographic view, derived).
+    # The lit rim is where the sheet grazes the ball, fixed to the light: it only moves with
+    # the centre
     turns = np.hypot(xs, ys) < r - RIM_DEPTH_PX
     tx, ty = np.where(turns, xs, 0.0), np.where(turns, ys, 0.0)
+    tz = np.where(turns, np.sqrt(np.clip(r * r - xs * xs - ys * ys, 0.0, None)), 0.0)
     coeff = ndimage.spline_filter(crop_b, 3, output=np.float32)
     slopes = np.gradient(crop_b)[::-1]  # d/dx, d/dy
     blocked = None if glare_b is None else glare_b[by0 : by0 + crop_b.shape[0],
                                                    bx0 : bx0 + crop_b.shape[1]]
-    p = np.array([start[0], start[1], 0.0, 0.0])  # dx, dy, turn (rad, ccw on screen), offset
+
+    def columns(gx, gy):
+        # d(position)/d(dx, dy, turn about the sight line, about x, about y), and the offset
+        return np.column_stack([gx, gy, gx * ty - gy * tx, -gy * tz, gx * tz, np.ones_like(gx)])
+
+    jac_a = columns(*grad_a)
+    prior = np.zeros(6)
+    prior[2:5] = 1.0 / TURN_PRIOR_RAD**2
+    # dx, dy (px), turns about the sight line (ccw on screen), the x and the y axis (rad), offset
+    p = np.array([start[0], start[1], 0.0, 0.0, 0.0, 0.0])
     for iteration in range(30):
         c, s_ = math.cos(p[2]) - 1.0, math.sin(p[2])
-        qx = cx + p[0] + xs + c * tx + s_ * ty - bx0  # ccw on screen: y points down
-        qy = cy + p[1] + ys - s_ * tx + c * ty - by0
+        qx = cx + p[0] + xs + c * tx + s_ * ty + p[4] * tz - bx0  # ccw on screen: y down
+        qy = cy + p[1] + ys - s_ * tx + c * ty - p[3] * tz - by0
         use = (qx > 1) & (qy > 1) & (qx < crop_b.shape[1] - 2) & (qy < crop_b.shape[0] - 2)
         if use.mean() < 0.9:
             return None
@@ -907,9 +926,8 @@ def match_ball_image(
         gx, gy = (ndimage.map_coordinates(g, [qy, qx], order=1) for g in slopes)
         # the mean of the two frames' slopes (efficient second-order minimisation): the steps
         # converge in a few iterations even with noisy frames, where B's slopes alone crawl
-        gx, gy = 0.5 * (gx + grad_a[0]), 0.5 * (gy + grad_a[1])
-        jac = np.column_stack([gx, gy, gx * ty - gy * tx, np.ones_like(gx)])[use]
-        resid = (template - value - p[3])[use]
+        jac = columns(0.5 * (gx + grad_a[0]), 0.5 * (gy + grad_a[1]))[use]
+        resid = (template - value - p[5])[use]
         # Cauchy weights: particle images spilling over the outline move with the air, not
         # with the ball, and leave large residuals (held after three steps, so that the
         # Gauss-Newton steps converge as fast as plain least squares)
@@ -918,19 +936,17 @@ def match_ball_image(
             weight_all = np.zeros(use.size)
             weight_all[use] = 1.0 / (1.0 + (resid / scale) ** 2)
         weight = weight_all[use]
-        normal = jac.T @ (jac * weight[:, None])
-        gradient = jac.T @ (weight * resid)
-        # a prior on the turn (a bare surface or a rim alone tells nothing of it): spin rates
-        # and pulse separations put it within a degree or two (common practice)
+        # a prior on the turns (a bare surface or a rim alone tells nothing of them): spin
+        # rates and pulse separations put them within a degree or two (common practice)
         scale2 = float(np.sum(weight * resid * resid)) / max(1.0, float(weight.sum()))
-        normal[2, 2] += scale2 / TURN_PRIOR_RAD**2
-        gradient[2] -= scale2 / TURN_PRIOR_RAD**2 * p[2]
+        normal = jac.T @ (jac * weight[:, None]) + np.diag(scale2 * prior)
+        gradient = jac.T @ (weight * resid) - scale2 * prior * p
         try:
             step = np.linalg.solve(normal, gradient)
         except np.linalg.LinAlgError:
             return None
         p += step
-        if math.hypot(step[0], step[1]) + r * abs(step[2]) < 2e-3:
+        if math.hypot(step[0], step[1]) + r * float(np.abs(step[2:5]).sum()) < 2e-3:
             break
     else:
         return None
@@ -942,18 +958,19 @@ def match_ball_image(
     # covariance: a sandwich over blocks of 8 x 8 px, so that residuals correlated within a
     # block (a particle image spilling over the outline, a stitch) count once, not pixel by
     # pixel; its bread uses the product of A's and B's slopes, the information the two frames
-    # share (B's slopes alone include its noise's, and a bare surface would look informative)
-    shared = np.column_stack([grad_a[0][use], grad_a[1][use]])
-    bread = shared.T @ (jac[:, :2] * weight[:, None])
+    # share (B's slopes alone include its noise's, and a bare surface would look informative),
+    # with the turns' prior; the displacement's block of it allows for the turns
+    bread = jac_a[use].T @ (jac * weight[:, None]) + np.diag(scale2 * prior)
     bread = 0.5 * (bread + bread.T)
     if np.linalg.eigvalsh(bread)[0] <= 0:
         return None
     block = (np.floor(ys[use] / 8.0) * 4096 + np.floor(xs[use] / 8.0)).astype(np.int64)
     _, label = np.unique(block, return_inverse=True)
-    score = (jac[:, :2] * (weight * resid)[:, None])
-    sums = np.column_stack([np.bincount(label, weights=score[:, k]) for k in range(2)])
+    score = jac * (weight * resid)[:, None]
+    sums = np.column_stack([np.bincount(label, weights=score[:, k]) for k in range(6)])
     inverse = np.linalg.inv(bread)
-    cov = inverse @ (sums.T @ sums) @ inverse + MATCH_FLOOR_PX**2 * np.eye(2)
+    floor = MATCH_FLOOR_PX if rim_lit else PATTERN_FLOOR_PX
+    cov = (inverse @ (sums.T @ sums) @ inverse)[:2, :2] + floor**2 * np.eye(2)
     return BallMatch((float(p[0]), float(p[1])), cov, math.degrees(p[2]), int(resid.size))
 
 

@@ -48,8 +48,8 @@ def test_centre_and_radius_within_half_a_pixel(flight_deg, radius_px, seed):
 def test_flight_direction_and_speed_within_their_uncertainty(looks, flight_deg, seed):
     """Replaces the single-look check at 0.5 deg: the flight now carries its own uncertainty,
     and the truth (the generator's displacement) lies within three of it on every look, which
-    for a lit outline or a seam is within 0.5 deg at a 9 px shift; the speed within 1 % (the
-    scale and dt given exactly)."""
+    is within 0.5 deg at a 9 px shift with a lit rim (within 1.5 deg when the match rests on
+    the surface's pattern); the speed within 1 % (the scale and dt given exactly)."""
     frame_a, frame_b, truth = ball_shot(flight_deg=flight_deg, shift_px=9.0, seed=seed, **looks)
     ball_a, ball_b = find_ball(frame_a), find_ball(frame_b)
     match = match_ball_image(frame_a, frame_b, ball_a, ball_b)
@@ -60,7 +60,7 @@ def test_flight_direction_and_speed_within_their_uncertainty(looks, flight_deg, 
         scale_mm_per_px=truth.scale_mm_per_px,
     )
     error = abs((flight.direction_deg - truth.flight_deg + 180) % 360 - 180)
-    assert flight.direction_sigma_deg < 0.5
+    assert flight.direction_sigma_deg < (0.5 if ball_a.outline == "lit rim" else 1.5)
     assert error <= 3.0 * flight.direction_sigma_deg
     assert flight.speed_m_s == pytest.approx(truth.speed_m_s, rel=0.01)
     assert abs(flight.speed_m_s - truth.speed_m_s) <= 3.0 * flight.speed_sigma_m_s
