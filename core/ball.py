@@ -257,7 +257,9 @@ def _coarse_circle(
             break
     else:
         hint = "" if radius_hint_px is None else f" near radius {radius_hint_px:.0f} px"
-        raise WakelineError(f"{name}: no ball found (no round region without particle images{hint})")
+        raise WakelineError(
+            f"{name}: no ball found (no round region without particle images{hint})"
+        )
     xc, yc, rc = best
     # the variance summed over 5 x 5 blocks is high wherever the sum reaches the air, so the
     # quiet region's edge lies about two blocks inside the outline (2.4 blocks measured on
@@ -681,7 +683,8 @@ def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str
 
 
 def _arc_share(theta: np.ndarray, seen: float) -> float:
-    """Share of the whole outline covered by points (5 deg sectors holding one), at most ``seen``."""
+    """Share of the whole outline covered by points (5 deg sectors holding one), at most
+    ``seen``."""
     sectors = np.unique(np.floor(np.mod(theta, 2 * math.pi) / math.radians(5.0)).astype(int))
     return float(min(seen, sectors.size / 72.0))
 
@@ -743,8 +746,8 @@ def _particle_centres(crop: np.ndarray, quiet: np.ndarray, glare: np.ndarray):
 
 def _parabola(left, centre, right):
     denom = left + right - 2.0 * centre
-    return np.clip(np.where(denom < 0, 0.5 * (left - right) / np.where(denom < 0, denom, -1.0), 0.0),
-                   -0.5, 0.5)
+    offset = np.where(denom < 0, 0.5 * (left - right) / np.where(denom < 0, denom, -1.0), 0.0)
+    return np.clip(offset, -0.5, 0.5)
 
 
 def _quantile_circle(ux, uy, rho, tau):
@@ -1032,14 +1035,6 @@ def _centre_covariance(ball: BallFit) -> np.ndarray:
     return np.diag([sx * sx, sy * sy]) if np.isfinite([sx, sy]).all() else np.full((2, 2), np.inf)
 
 
-def refine_displacement(
-    frame_a: np.ndarray, frame_b: np.ndarray, ball_a: BallFit, ball_b: BallFit
-) -> tuple[float, float]:
-    """Ball displacement A->B (px): the image match with the circles (:func:`ball_displacement`)."""
-    match = match_ball_image(frame_a, frame_b, ball_a, ball_b)
-    return ball_displacement(ball_a, ball_b, match)[0]
-
-
 def ball_mask(
     shape: tuple[int, int], ball: BallFit, margin_px: float = DEFAULT_MASK_MARGIN_PX
 ) -> np.ndarray:
@@ -1107,7 +1102,9 @@ def flight_from_balls(
         speed = distance_px * scale_mm_per_px * 1e-3 / dt_s
         if math.isfinite(along_var) and distance_px > 0:
             speed_sigma = speed * math.hypot(math.sqrt(along_var) / distance_px, scale_sigma_rel)
-    cov_out = None if not np.all(np.isfinite(cov)) else tuple(tuple(float(v) for v in row) for row in cov)
+    cov_out = None
+    if np.all(np.isfinite(cov)):
+        cov_out = tuple(tuple(float(v) for v in row) for row in cov)
     if flight_deg is not None:
         return Flight(float(flight_deg) % 360.0, speed, (dx, dy), source="override",
                       speed_sigma_m_s=speed_sigma, displacement_cov_px2=cov_out)
@@ -1129,7 +1126,9 @@ STREAM_DIRECTION_FLOOR_DEG = 1.0
 AIR_DIRECTION_FLOOR_DEG = 5.0
 
 
-def air_direction(vf: VectorField, ball: BallFit, ball_shift_px: float) -> tuple[float, float] | None:
+def air_direction(
+    vf: VectorField, ball: BallFit, ball_shift_px: float
+) -> tuple[float, float] | None:
     """Direction (deg) in which the air near the ball moves with it, and its uncertainty (deg).
 
     In the lab frame the air far away is at rest and the air the ball drags along (the wake

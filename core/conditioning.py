@@ -133,7 +133,9 @@ def background_image(frames: Sequence[np.ndarray] | np.ndarray, method: str = "m
     raise WakelineError(f"background: unknown method {method!r} (use min or median)")
 
 
-def subtract_background(frame: np.ndarray, background: np.ndarray, name: str = "frame") -> np.ndarray:
+def subtract_background(
+    frame: np.ndarray, background: np.ndarray, name: str = "frame"
+) -> np.ndarray:
     """``frame - background`` clipped at zero, float32."""
     frame = np.asarray(frame, dtype=np.float32)
     background = np.asarray(background, dtype=np.float32)

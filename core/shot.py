@@ -179,7 +179,8 @@ def _ball_from(d: dict | None) -> BallFit | None:
         cut_by_edge=bool(d.get("cut_by_edge", False)),
         center_sigma_px=tuple(nan if v is None else v for v in sigma),
         radius_sigma_px=_number(d.get("radius_sigma_px")),
-        covariance_px2=None if cov is None else tuple(tuple(_number(v) for v in row) for row in cov),
+        covariance_px2=None if cov is None
+        else tuple(tuple(_number(v) for v in row) for row in cov),
         arc_share=_number(d.get("arc_share")),
         outline=d.get("outline", ""),
     )

@@ -325,7 +325,8 @@ def sheet_gain(x_px, y_px, shape, uneven: float, light_from_deg: float) -> np.nd
     half = 0.5 * math.hypot(height, width)
 
     def raw(x, y):
-        rx, ry = (np.asarray(x) - 0.5 * (width - 1)) / half, (np.asarray(y) - 0.5 * (height - 1)) / half
+        rx = (np.asarray(x) - 0.5 * (width - 1)) / half
+        ry = (np.asarray(y) - 0.5 * (height - 1)) / half
         across = -rx * ly + ry * lx - 0.25
         toward_source = rx * lx + ry * ly
         return np.exp(-2.0 * (across / 0.8) ** 2) * (1.0 + 0.3 * toward_source)

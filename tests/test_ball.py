@@ -20,7 +20,6 @@ from core.ball import (
     flight_from_stream,
     match_ball_image,
     nominal_diameter_mm,
-    refine_displacement,
     scale_from_ball,
 )
 from core.results import BallFit, VectorField
