@@ -169,40 +169,13 @@ def _separation_summary(sep: SeparationResult | None) -> dict:
 def _ball_from(d: dict | None) -> BallFit | None:
     if not d:
         return None
-    nan = float("nan")
-    sigma = d.get("center_sigma_px") or (None, None)
-    cov = d.get("covariance_px2")
-    return BallFit(
-        center_px=tuple(d["center_px"]),
-        radius_px=d["radius_px"],
-        residual_px=d.get("residual_px") if d.get("residual_px") is not None else nan,
-        cut_by_edge=bool(d.get("cut_by_edge", False)),
-        center_sigma_px=tuple(nan if v is None else v for v in sigma),
-        radius_sigma_px=_number(d.get("radius_sigma_px")),
-        covariance_px2=None if cov is None
-        else tuple(tuple(_number(v) for v in row) for row in cov),
-        arc_share=_number(d.get("arc_share")),
-        outline=d.get("outline", ""),
-    )
-
-
-def _number(value) -> float:
-    return float("nan") if value is None else float(value)
+    known = {f.name for f in dc_fields(BallFit)}
+    return BallFit(**{k: v for k, v in d.items() if k in known})
 
 
 def _flight_from(d: dict) -> Flight:
-    return Flight(
-        direction_deg=d["direction_deg"],
-        speed_m_s=d.get("speed_m_s"),
-        displacement_px=tuple(d["displacement_px"]),
-        source=d.get("source", "ball displacement"),
-        direction_sigma_deg=d.get("direction_sigma_deg"),
-        speed_sigma_m_s=d.get("speed_sigma_m_s"),
-        displacement_cov_px2=None if d.get("displacement_cov_px2") is None
-        else tuple(tuple(row) for row in d["displacement_cov_px2"]),
-        air_direction_deg=d.get("air_direction_deg"),
-        air_direction_sigma_deg=d.get("air_direction_sigma_deg"),
-    )
+    known = {f.name for f in dc_fields(Flight)}
+    return Flight(**{k: v for k, v in d.items() if k in known})
 
 
 def _side_from(d: dict) -> SideProposal:
