@@ -11,21 +11,20 @@ brightness, and each frame is fitted on its own (the ball moves several pixels b
    the ball (and in its shadow); the boundary of the low-variance region votes along its normal
    for circle centres (a Hough transform), and the best-supported circle whose inside is
    particle-free is kept. A shadow strip's straight edges support no circle;
-2. the particle-free disc: particle images are detected around that circle and the circle that
-   has a small share of them (2 %) inside it is fitted (a quantile regression), which needs no
-   contrast between the surface and the air;
-3. fine: along rays from the centre, the outline is taken from the best cue the frame offers:
-   the lit rim's sharp outer flank where enough of the rim is lit, else the step between the
-   surface and the background between the particles where the surface differs clearly from
-   it, else the particle-free disc of step 2. Rays through glare are left out, a robust circle
-   fit (RANSAC with :class:`skimage.measure.CircleModel`, then a Cauchy-loss least squares)
-   drops rays spoilt by particles, the seam or a shadow, and its residuals give the circle's
-   standard uncertainty.
+2. fine: along rays from the centre, on narrowing bands, the outline comes from the best cue
+   the frame offers: where the surface stands clear of the background between the particles,
+   the steepest point of that step (and the lit rim's sharp outer flank where the rim is lit);
+   else the lit rim alone; else the particle-free disc (the circle holding 2 % of the detected
+   particle images, a quantile regression), which needs no contrast at all. A rim or step
+   counts only where it runs smoothly along the outline. Rays through glare and glaring arcs
+   are left out; a robust circle fit (RANSAC with :class:`skimage.measure.CircleModel`, then a
+   Cauchy-loss least squares) drops rays spoilt by particles, the seam or a shadow, and its
+   residuals, with a floor per cue, give the circle's covariance.
 
 The flight comes from the ball's displacement between the frames: the difference of the two
-circles, combined with a match of the ball's whole visible image (outline, rim, seam) by
-Gauss-Newton, each with its covariance. A held ball (tunnel) takes its direction from the free
-stream.
+circles, combined with a match of the ball's visible image (rim, seam, grain; the ball may
+spin) by Gauss-Newton, each with its covariance. A held ball (tunnel) takes its direction from
+the free stream.
 
 Conventions: image coordinates (x = column right, y = row down, origin at the top-left pixel
 centre); flight direction 0 deg = toward +x, 90 deg = toward the top of the picture.
