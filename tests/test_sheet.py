@@ -176,7 +176,7 @@ def test_sheet_command(reviewed_session, tmp_path, capsys):
 
 
 def test_vorticity_colours_are_symmetric_about_zero():
-    from app import colours
+    from app.review import colours
 
     w = np.array([[-2.0, -1.0, 0.0], [1.0, 2.0, np.nan]])
     rgba = colours.vorticity_rgb(w, limit_1_s=1.0)

@@ -40,6 +40,7 @@ from PySide6.QtWidgets import (
 from app.qt.canvas import ShotCanvas
 from app.qt.export import install_export_actions, install_overview
 from app.qt.icons import app_icon, status_icon
+from app.qt.platform_libs import platform_problem
 from app.qt.readout import ReadoutPanel
 from app.qt.shot_list import ShotListPanel
 from app.qt.window_jobs import JobActions
@@ -47,6 +48,7 @@ from app.qt.window_review import ReviewActions
 from app.qt.window_session import SessionActions
 from app.qt.workers import BackgroundJob
 from app.review.model import MANIFEST_NAME, ReviewStatus, SessionModel
+from core import WakelineError
 from core.paths import user_data_dir
 
 log = logging.getLogger("wakeline.window")
@@ -433,7 +435,17 @@ def install_excepthook(window: MainWindow) -> None:
 
 
 def run_window(session_path: str | None = None) -> int:
-    """Open the review window (optionally with a session) and run until it is closed."""
+    """Open the review window on a session (None: the last one) and run until it is closed.
+
+    Raises
+    ------
+    core.WakelineError
+        When Qt's platform plugin cannot load here (names the Debian packages to install).
+    """
+    if QApplication.instance() is None:
+        problem = platform_problem()
+        if problem:
+            raise WakelineError(problem)
     app = QApplication.instance() or QApplication(sys.argv)
     app.setOrganizationName(ORGANISATION)
     app.setApplicationName(APPLICATION)
@@ -444,8 +456,8 @@ def run_window(session_path: str | None = None) -> int:
     previous_hook = sys.excepthook
     install_excepthook(window)
     window.show()
-    if session_path:
-        QTimer.singleShot(0, lambda: window.open_session(session_path))
+    QTimer.singleShot(0, lambda: window.open_session(session_path) if session_path
+                      else window.reopen_last_session())
     try:
         return int(app.exec())
     finally:

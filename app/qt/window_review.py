@@ -35,6 +35,7 @@ class ReviewActions:
         self._previous_id = shot_id
         self._show_current(full=True)
         self._update_enabled()
+        self._remember_last_shot(shot_id)
         if shot_id:
             # read the next shot in the direction of travel while the analyst looks at this one
             back = bool(previous) and self.shot_list.neighbour(shot_id, 1) == previous
