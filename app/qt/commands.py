@@ -1,4 +1,5 @@
-"""Undoable review edits: every change to a pick (angle, status, reason, note) is one command.
+"""Undoable review edits: every change to a pick (angle, status, reason, note) is one command,
+and a decision on several shots at once is one command too (``BatchEdit``).
 
 Each command keeps the pick's editable fields before and after the edit and writes them through
 ``SessionModel.apply_pick``, so undo and redo are saved edits too: the store's history records
@@ -101,3 +102,38 @@ class MarkMove(PickEdit):
         self.after = dict(other.after)
         self.setText(other.text())
         return True
+
+
+class BatchEdit(QUndoCommand):
+    """One decision on several shots: one undo step. ``edits`` are ``PickEdit``s not yet applied.
+
+    ``apply`` makes them in order; when the store refuses one, those already made are undone
+    before the refusal is raised, so a batch is made whole or not at all.
+    """
+
+    def __init__(self, edits: list[PickEdit], text: str) -> None:
+        super().__init__(text)
+        self.edits = list(edits)
+
+    def apply(self) -> None:
+        done = []
+        try:
+            for edit in self.edits:
+                edit.apply()
+                done.append(edit)
+        except WakelineError:
+            for edit in reversed(done):
+                edit.undo()
+            raise
+
+    def redo(self) -> None:
+        for edit in self.edits:
+            edit.redo()
+            if edit.isObsolete():
+                self.setObsolete(True)
+
+    def undo(self) -> None:
+        for edit in reversed(self.edits):
+            edit.undo()
+            if edit.isObsolete():
+                self.setObsolete(True)

@@ -56,10 +56,11 @@ def _metadata_text(value) -> str:
 
 
 class NoteEdit(QPlainTextEdit):
-    """Notes field: commits on leaving the field, Ctrl+Return, or Escape (which also leaves it)."""
+    """Notes field: commits on leaving the field, Ctrl+Return or Escape; both keys also leave it,
+    so the next key is a review key again, not a letter of the note."""
 
     committed = Signal(str)
-    escaped = Signal()  # the window hands the keyboard back to the shot list
+    finished = Signal()  # Esc or Ctrl+Return: the window hands the keyboard back to the list
 
     def focusOutEvent(self, event) -> None:
         super().focusOutEvent(event)
@@ -67,11 +68,10 @@ class NoteEdit(QPlainTextEdit):
 
     def keyPressEvent(self, event) -> None:
         ctrl = bool(event.modifiers() & Qt.KeyboardModifier.ControlModifier)
-        if event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter) and ctrl:
+        if event.key() == Qt.Key.Key_Escape or (
+                ctrl and event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter)):
             self.committed.emit(self.toPlainText())
-            return
-        if event.key() == Qt.Key.Key_Escape:
-            self.escaped.emit()  # moving the focus away commits (focusOutEvent)
+            self.finished.emit()
             if self.hasFocus():
                 self.clearFocus()
             return
@@ -199,8 +199,8 @@ class ReadoutPanel(QWidget):
         self.reason.setWordWrap(True)
         box.addWidget(self.reason)
         self.note = NoteEdit(group)
-        self.note.setPlaceholderText("Notes on this shot (saved when you leave the field, "
-                                     "Ctrl+Return, or Esc)")
+        self.note.setPlaceholderText("Notes on this shot (saved when you leave the field: "
+                                     "Ctrl+Return or Esc)")
         self.note.setFixedHeight(72)
         self.note.committed.connect(self._on_note_committed)
         box.addWidget(self.note)

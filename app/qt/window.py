@@ -196,6 +196,9 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.act_prev = a("&Previous shot", lambda: self.shot_list.step(-1), "P",
                           "previous shot in the list (also Up in the list)")
         self.act_next_open = a("Next shot &to review", self.next_to_review, "Shift+N")
+        self.act_advance = a("&Go on to the next shot to review after a decision",
+                             self._on_advance_toggled, checkable=True,
+                             tip="after A, D or U the next shot still to review becomes current")
         self.act_picture = a("Cycle &picture (A, B, flicker, none)", self.canvas.cycle_picture,
                              "F")
         self.act_vectors = a("Toggle &vectors", self.canvas.vectors_box.toggle, "V")
@@ -243,6 +246,8 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         review.addSeparator()
         for action in (self.act_next, self.act_prev, self.act_next_open):
             review.addAction(action)
+        review.addSeparator()
+        review.addAction(self.act_advance)
         view = self.view_menu = menu.addMenu("&View")
         for action in (self.act_picture, self.act_vectors, self.act_vorticity, self.act_marks,
                        self.act_side, self.act_fit):
@@ -270,7 +275,9 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.canvas.mark_cancelled.connect(lambda _side: self.readout.show_current())
         self.canvas.layers_changed.connect(self._save_layers)
         self.readout.note_committed.connect(self._on_note_committed)
-        self.readout.note.escaped.connect(self.shot_list.view.setFocus)
+        self.readout.note.finished.connect(self.shot_list.view.setFocus)
+        self.shot_list.columns_changed.connect(lambda: self.settings.setValue(
+            "shot_list/columns", self.shot_list.wanted_columns()))
         self.undo_stack.indexChanged.connect(lambda _i: self._update_enabled())
 
     # -- settings ----------------------------------------------------------------------------
@@ -290,15 +297,25 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
                 self.canvas.restore_layers(json.loads(layers))
             except (ValueError, TypeError):
                 log.warning("ignoring unreadable saved canvas layers")
-        auto = self.settings.value("processing/auto_on_open", True)
-        self.act_auto.setChecked(str(auto).lower() in ("true", "1"))
+        self.act_auto.setChecked(self._flag("processing/auto_on_open"))
+        self.act_advance.setChecked(self._flag("review/advance_after_decision"))
+        columns = self.settings.value("shot_list/columns")
+        if columns is not None:
+            self.shot_list.show_columns([columns] if isinstance(columns, str) else columns)
         self._rebuild_recent()
+
+    def _flag(self, key: str, default: bool = True) -> bool:
+        """A yes/no preference (QSettings' INI file gives text back)."""
+        return str(self.settings.value(key, default)).lower() in ("true", "1")
 
     def _save_layers(self) -> None:
         self.settings.setValue("canvas/layers", json.dumps(self.canvas.layer_state()))
 
     def _on_auto_toggled(self, checked: bool) -> None:
         self.settings.setValue("processing/auto_on_open", bool(checked))
+
+    def _on_advance_toggled(self, checked: bool) -> None:
+        self.settings.setValue("review/advance_after_decision", bool(checked))
 
     def _workers(self) -> int | None:
         if self._workers_override is not None:

@@ -14,6 +14,10 @@ from core.summary import ShotSummary, VectorCounts
 
 MISSING = "—"
 BALL_DISPLACEMENT = "ball displacement"  # the usual source of the flight direction
+#: the usual reasons a shot cannot be used, offered when it is marked unusable (free text too)
+UNUSABLE_REASONS = ("seeding too sparse", "ball out of the sheet", "laser misfire",
+                    "out of focus")
+OTHER_REASON = "other"
 
 
 def angle_text(value_deg: float | None, signed: bool = True) -> str:
