@@ -26,6 +26,7 @@ from PySide6.QtWidgets import (
 
 from app.qt.icons import status_icon
 from app.review import colours
+from app.review.columns import status_text
 from app.review.model import ProcessState, ReviewStatus
 from app.review.text import (
     MISSING,
@@ -241,8 +242,11 @@ class ReadoutPanel(QWidget):
             self._clear()
             return
         self.title.setText(f"Shot {record.shot_id}")
-        status = record.pick.status
-        self.status_icon.setPixmap(status_icon(status).pixmap(18, 18))
+        status = status_text(record)
+        if status == record.pick.status:
+            self.status_icon.setPixmap(status_icon(status).pixmap(18, 18))
+        else:  # not processed (or failed) yet: nothing decided, no status icon
+            self.status_icon.clear()
         self.status_label.setText(status)
         self._show_problem(record)
         self._show_angles(record)
