@@ -123,16 +123,3 @@ def picture_levels(shot) -> tuple[float, float]:
     if high <= low:
         high = low + 1.0
     return float(low), float(high)
-
-
-def round_limit(value: float) -> float:
-    """The next value of the 1-2-5 series at or above ``value``: a tidy colour-bar end that stays
-    the same over shots of similar strength (so the scale is comparable and cheap to redraw)."""
-    if value <= 0 or not math.isfinite(value):
-        return 1.0
-    decade = 10.0 ** math.floor(math.log10(value))
-    for step in (1.0, 2.0, 5.0, 10.0):
-        if value <= step * decade * (1 + 1e-9):
-            return step * decade
-    return 10.0 * decade
-

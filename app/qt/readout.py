@@ -367,7 +367,10 @@ class ReadoutPanel(QWidget):
             self.reason.clear()
         self.reason.setVisible(bool(self.reason.text()))
         self._set_note(pick.note)
-        self.last_edit.setText(f"last edit {pick.when} by {pick.who}" if pick.when else "")
+        lines = [f"{pick.status} {_stamp(pick.when)} by {pick.who}"] if pick.when else []
+        if pick.note and pick.note_when:  # the note has its own author and time
+            lines.append(f"note {_stamp(pick.note_when)} by {pick.note_who}")
+        self.last_edit.setText("\n".join(lines))
 
     def _unsaved_note(self) -> str | None:
         text = self.note.toPlainText()
@@ -382,6 +385,11 @@ class ReadoutPanel(QWidget):
         if self._shot_id and text != self._note_shown:
             self._note_shown = text
             self.note_committed.emit(text)
+
+
+def _stamp(when: str) -> str:
+    """``2026-12-02 05:03 UTC`` from the stored ISO time."""
+    return f"{when[:16].replace('T', ' ')} UTC" if when else ""
 
 
 def _side_colour(side: str) -> str:

@@ -39,6 +39,7 @@ from PySide6.QtWidgets import (
 
 from app.qt.canvas import ShotCanvas
 from app.qt.export import install_export_actions, install_overview
+from app.qt.picture_export import install_picture_actions
 from app.qt.icons import app_icon, status_icon
 from app.qt.platform_libs import platform_problem
 from app.qt.readout import ReadoutPanel
@@ -118,6 +119,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self._connect()
         install_overview(self)
         install_export_actions(self)
+        install_picture_actions(self)
         self._restore_settings()
         self._update_title()
         self._update_enabled()
@@ -205,6 +207,13 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.act_vorticity = a("Toggle v&orticity", self.canvas.vorticity_box.toggle, "W")
         self.act_marks = a("Toggle separation &marks", self.canvas.marks_box.toggle, "M")
         self.act_side = a("&Side by side", self.canvas.side_box.toggle, "S")
+        self.act_keep = a("&Keep this shot for comparison", self.keep_for_comparison, "K",
+                          "show this shot beside the others (side by side, same colour range, "
+                          "zoom linked); K again on it lets it go")
+        self.act_fixed_range = a("Fi&xed vorticity range for the session",
+                                 self.canvas.fixed_box.toggle,
+                                 tip="the colour range stays as set for every shot and on the "
+                                 "shot sheet; off: each shot gets its own")
         self.act_fit = a("&Fit shot in view", lambda: self.canvas.view.autoRange(padding=0.02),
                          "Ctrl+0")
         self.act_process = a("&Process shots that need it", lambda: self.start_processing(),
@@ -234,7 +243,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         file_menu.addSeparator()
         file_menu.addAction(self.act_close)
         file_menu.addAction(self.act_quit)
-        edit = menu.addMenu("&Edit")
+        edit = self.edit_menu = menu.addMenu("&Edit")
         edit.addAction(self.act_undo)
         edit.addAction(self.act_redo)
         review = menu.addMenu("&Review")
@@ -249,8 +258,9 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         review.addSeparator()
         review.addAction(self.act_advance)
         view = self.view_menu = menu.addMenu("&View")
-        for action in (self.act_picture, self.act_vectors, self.act_vorticity, self.act_marks,
-                       self.act_side, self.act_fit):
+        for action in (self.act_picture, self.act_vectors, self.act_vorticity,
+                       self.act_fixed_range, self.act_marks, self.act_side, self.act_keep,
+                       self.act_fit):
             view.addAction(action)
         process = menu.addMenu("&Process")
         for action in (self.act_process, self.act_reprocess, self.act_cancel, self.act_check):

@@ -26,6 +26,7 @@ class ReviewActions:
 
     def _on_session_changed(self) -> None:
         self._shown_key = None
+        self.canvas.keep_for_comparison(None)
         self._update_title()
         self._update_enabled()
         if self.model.session is None:
@@ -52,6 +53,20 @@ class ReviewActions:
         if shot_id == self.model.current_id:
             self._show_current(full=False)
             self._update_enabled()
+        reference = self.canvas.reference
+        if reference is not None and reference.shot_id == shot_id:
+            self.canvas.update_reference_marks(*mark_angles(self.model.record(shot_id)))
+
+    def keep_for_comparison(self) -> None:
+        """Keep the current shot beside the others for comparison; on the kept shot, let go."""
+        shot_id = self.model.current_id
+        reference = self.canvas.reference
+        if not shot_id or (reference is not None and reference.shot_id == shot_id):
+            self.canvas.keep_for_comparison(None)
+            return
+        self.canvas.keep_for_comparison(self._canvas_shot(self.model.record(shot_id)))
+        self.statusBar().showMessage(f"Shot {shot_id} kept on the right: step to another shot "
+                                     "to compare; K on it again lets it go.", 8000)
 
     def _show_current(self, full: bool) -> None:
         shot_id = self.model.current_id

@@ -8,14 +8,14 @@ from __future__ import annotations
 import json
 from pathlib import Path
 
-from PySide6.QtWidgets import QFileDialog, QMessageBox
+from PySide6.QtWidgets import QMessageBox
 
+from app.qt.file_dialogs import SESSION_FILTER, ask_path, new_session_path
 from app.qt.workers import BackgroundJob, JobOutcome, import_job
 from app.review.model import MANIFEST_NAME, SessionLocked
 from core import WakelineError
 
 MAX_RECENT = 8
-SESSION_FILTER = "wakeline sessions (*.h5 *.hdf5);;All files (*)"
 
 
 class SessionActions:
@@ -81,8 +81,7 @@ class SessionActions:
 
     # -- session -----------------------------------------------------------------------------
     def open_session_dialog(self) -> None:
-        path, _ = QFileDialog.getOpenFileName(self, "Open session", self._last_folder(),
-                                              SESSION_FILTER)
+        path = ask_path(self, "Open session", self._last_folder(), SESSION_FILTER)
         if path:
             self.open_session(path)
 
@@ -151,13 +150,13 @@ class SessionActions:
 
     def import_folder_dialog(self, folder: str | None = None) -> None:
         if folder is None:
-            folder = QFileDialog.getExistingDirectory(self, "Import a folder of shots",
-                                                      self._last_folder())
+            folder = ask_path(self, "Import a folder of shots", self._last_folder(),
+                              mode="folder")
         if not folder:
             return
-        default = str(Path(folder).with_suffix(".h5"))
-        target, _ = QFileDialog.getSaveFileName(self, "Session file to create or add to",
-                                                default, SESSION_FILTER)
+        default = new_session_path(folder, (self._last_folder(), Path.home()))
+        target = ask_path(self, "Session file to create or add to", str(default),
+                          SESSION_FILTER, mode="save")
         if target:
             self.import_folder(folder, target)
 

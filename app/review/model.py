@@ -29,13 +29,26 @@ from core.store import (
     import_folder,
     write_table_csv,
 )
+from core.store.session import companion_files
 
 __all__ = [
     "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
-    "import_folder", "pick_values",
+    "import_folder", "is_companion_file", "pick_values",
 ]
 
 PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
+_SESSION_SUFFIXES = (".h5", ".hdf5")
+#: what the store adds to a session's name for the files it keeps beside it (journal, pending
+#: arrays, a half-written snapshot) and for its lock
+_COMPANION_ENDINGS = (*(p.name[len("s.h5"):] for p in companion_files(Path("s.h5")).values()),
+                      ".lock")
+
+
+def is_companion_file(name: str) -> bool:
+    """A file or folder the store keeps beside a session ``S.h5`` (``S.h5.journal``,
+    ``S.h5.pending``, ``S.h5.lock``, ``S.h5.tmp``): not for the analyst to open or choose."""
+    return any(name.endswith(end) and name[: -len(end)].lower().endswith(_SESSION_SUFFIXES)
+               for end in _COMPANION_ENDINGS)
 
 
 def pick_values(pick: Pick) -> dict:

@@ -11,13 +11,13 @@ from PySide6 import QtCore, QtGui
 
 from app.review import colours
 from app.review.overview import PLOTTED_STATUSES, OverviewPoints, left_out_text, overview_points
-from app.review.text import angle_text
 from app.sheet.content import (
     SUMMARY_ROWS_ON_COVER,
     SUMMARY_ROWS_PER_PAGE,
     SummaryRow,
     process_counts,
     session_date,
+    sheet_angle,
     status_counts,
 )
 from app.sheet.kit import (
@@ -207,10 +207,10 @@ def _paint_summary_table(p, x: float, y: float, w: float, column: str,
     for k, row in enumerate(rows):
         if k % 2:
             p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.PAPER_TINT))
-        cells = [tick_label(row.value), str(row.n), angle_text(row.upper_mean),
-                 angle_text(row.upper_sd, signed=False), angle_text(row.lower_mean),
-                 angle_text(row.lower_sd, signed=False),
-                 angle_text(row.lower_mean - row.upper_mean)]
+        cells = [tick_label(row.value), str(row.n), sheet_angle(row.upper_mean),
+                 sheet_angle(row.upper_sd, signed=False), sheet_angle(row.lower_mean),
+                 sheet_angle(row.lower_sd, signed=False),
+                 sheet_angle(row.lower_mean - row.upper_mean)]
         cx = x
         for cell, frac in zip(cells, widths):
             text(p, rect_mm(cx, y, frac * w - 2, row_h), cell, 8.5, flags=right)

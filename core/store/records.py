@@ -41,8 +41,10 @@ class Pick:
     lower_deg: float | None = None
     reason: str = ""  # why the shot is unusable
     note: str = ""
-    who: str = ""
-    when: str = ""  # ISO 8601 UTC
+    who: str = ""  # who made the decision (status, angles, reason)
+    when: str = ""  # ISO 8601 UTC of the decision
+    note_who: str = ""  # who wrote the note last ("" in files written before notes had theirs)
+    note_when: str = ""  # ISO 8601 UTC of the note
 
     def to_dict(self) -> dict:
         return {**asdict(self), "status": str(self.status)}

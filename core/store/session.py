@@ -412,7 +412,10 @@ class Session(SnapshotWriting, Mapping):
         who: str | None = None,
     ) -> Pick:
         """Edit the analyst's pick. Arguments left out keep their value; ``upper_deg=None``
-        clears it. The edit is on disk (journal, fsynced) when this returns.
+        clears it. The edit is on disk (journal, fsynced) when this returns. ``who`` (default:
+        this user) and the time are kept for the decision (status, angles, reason) when one of
+        those is given, and apart for the note when it changes: editing a note does not change
+        who made the decision.
 
         Raises
         ------
@@ -428,8 +431,12 @@ class Session(SnapshotWriting, Mapping):
             for side, value in (("upper_deg", upper_deg), ("lower_deg", lower_deg)):
                 if value is not _UNSET:
                     changes[side] = checked_angle(shot_id, side, value)
-            pick = replace(current, **changes, who=who if who is not None else user_name(),
-                           when=now_utc())
+            by, now = (who if who is not None else user_name()), now_utc()
+            if set(changes) - {"note"}:
+                changes.update(who=by, when=now)
+            if changes.get("note", current.note) != current.note:
+                changes.update(note_who=by, note_when=now)
+            pick = replace(current, **changes)
             check_pick(shot_id, pick)
             self._commit({"op": "pick", "shot": shot_id, "pick": pick.to_dict()})
             return replace(pick)
