@@ -153,7 +153,7 @@ class ShotCanvas(LayerControls, QWidget):
         self.vectors, self.replaced, self.masked = (self.main.vectors, self.main.replaced,
                                                     self.main.masked)
         self.overlay, self.field_overlay = self.main.overlay, self.second.overlay
-        self.graphics.addItem(self.view, row=0, col=0)
+        self.graphics.addItem(self.view, row=1, col=0)
         cmap = pg.ColorMap(
             [p for p, _ in colours.VORTICITY_STOPS], [c for _, c in colours.VORTICITY_STOPS]
         )
@@ -167,7 +167,7 @@ class ShotCanvas(LayerControls, QWidget):
         axis = self.colour_bar.getAxis("right")
         axis.setPen(pen("#c9c6bd", 1.0))
         axis.setTextPen(pen("#e6e2d8", 1.0))
-        self.graphics.addItem(self.colour_bar, row=0, col=2)
+        self.graphics.addItem(self.colour_bar, row=1, col=2)
         for handle in self.overlay.handles.values():
             handle.sigPositionChanged.connect(self._on_handle_moved)
             handle.sigPositionChangeFinished.connect(self._on_handle_released)
@@ -374,16 +374,20 @@ class ShotCanvas(LayerControls, QWidget):
 
     # -- overlays ----------------------------------------------------------------------------
     def _draw_overlays(self) -> None:
-        both = self.side_box.isChecked()
         for showing in self._showing():
             result = showing.shot.result if showing.shot is not None else None
             showing.pane.show_overlays(result, self.ball_box.isChecked(),
                                        self.flight_box.isChecked())
-            kept = showing.shot is self._reference and showing.pane is self.second
-            showing.pane.set_title("" if not both or showing.shot is None else
-                                   f"shot {showing.shot.shot_id}" + (" (kept, K lets go)"
-                                                                     if kept else ""))
+            showing.pane.set_title(self._title(showing))
         self._draw_marks()
+
+    def _title(self, showing: _Showing) -> str:
+        """The line over a view when there are two: which shot, kept or not, or its fields."""
+        if not self.side_box.isChecked() or showing.shot is None:
+            return ""
+        if showing.shot is self._reference and showing.pane is self.second:
+            return f"shot {showing.shot.shot_id} · kept"
+        return f"shot {showing.shot.shot_id}" + ("" if showing.picture else " · fields")
 
     def _draw_marks(self) -> None:
         self._placing = True
@@ -500,19 +504,26 @@ class ShotCanvas(LayerControls, QWidget):
         legend.setTextWidth(width - 12)
         strip = int(legend.size().height()) + 8
         box = QRectF(0, 0, width, max(16, height - strip))
-        layout = self.graphics.ci
+        layout, scene = self.graphics.ci, self.graphics.scene()
         geometry, ranges = layout.geometry(), self.view.viewRange()
         painter = QPainter(device)
+        # pyqtgraph's export mode: symbols are drawn as shapes, not as cached little images
+        exporting = [item for item in scene.items() if hasattr(item, "setExportMode")]
         try:
             painter.setRenderHint(QPainter.RenderHint.Antialiasing)
             painter.fillRect(QRectF(0, 0, width, height), QColor(BACKGROUND))
             layout.setGeometry(box)  # laid out at the asked size for this one render
             self.view.setRange(xRange=ranges[0], yRange=ranges[1], padding=0)
-            self.graphics.scene().render(painter, box, box)
+            for item in exporting:
+                item.setExportMode(True, {"antialias": True, "background": QColor(BACKGROUND),
+                                          "painter": painter, "resolutionScale": 1.0})
+            scene.render(painter, box, box)
             painter.translate(6, box.height() + 4)
             legend.drawContents(painter)
         finally:
             painter.end()
+            for item in exporting:
+                item.setExportMode(False)
             layout.setGeometry(geometry)
             self.view.setRange(xRange=ranges[0], yRange=ranges[1], padding=0)
 

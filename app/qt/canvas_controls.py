@@ -175,13 +175,17 @@ class LayerControls:
         self.layers_changed.emit()
 
     def _apply_side_by_side(self, checked: bool) -> None:
+        """Put the second view (and the titles over both) in the layout, or take them out."""
         in_layout = self.field_view.scene() is not None
         if checked and not in_layout:
             self.graphics.removeItem(self.colour_bar)
-            self.graphics.addItem(self.field_view, row=0, col=1)
-            self.graphics.addItem(self.colour_bar, row=0, col=2)
+            self.graphics.addItem(self.main.title, row=0, col=0)
+            self.graphics.addItem(self.second.title, row=0, col=1)
+            self.graphics.addItem(self.field_view, row=1, col=1)
+            self.graphics.addItem(self.colour_bar, row=1, col=2)
         elif not checked and in_layout:
-            self.graphics.removeItem(self.field_view)
+            for item in (self.field_view, self.main.title, self.second.title):
+                self.graphics.removeItem(item)
         self.field_view.setVisible(checked)
 
     def picture_mode(self) -> PictureMode:

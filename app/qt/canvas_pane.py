@@ -82,9 +82,7 @@ class ShotPane:
             item.setZValue(z)
             self.view.addItem(item)
         self.overlay = Overlay(self.view, draggable=draggable)
-        self.title = pg.LabelItem("", color=OVERLAY_LINE, size="9pt")
-        self.title.setParentItem(self.view)
-        self.title.anchor(itemPos=(0, 0), parentPos=(0, 0), offset=(6, 4))
+        self.title = pg.LabelItem("", color=OVERLAY_LINE, size="9pt", justify="left")
         self.length_bar = LengthBar()
         self.length_bar.setParentItem(self.view)
 
@@ -142,5 +140,5 @@ class ShotPane:
         self.length_bar.set_scale(getattr(result, "scale_mm_per_px", None))
 
     def set_title(self, text: str) -> None:
+        """The line above the view (the canvas puts it in its layout when side by side)."""
         self.title.setText(text)
-        self.title.setVisible(bool(text))

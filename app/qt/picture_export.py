@@ -25,6 +25,7 @@ from app.qt.file_dialogs import ask_path
 from core import WakelineError
 
 MAX_SIDE_PX = 20000
+SVG_DPI = 96  # a CSS pixel: the SVG's size in mm then reads as the size asked for in px
 
 
 class PictureSizeDialog(QDialog):
@@ -137,6 +138,7 @@ def write_picture(canvas, path, width: int, height: int) -> None:
         svg = QSvgGenerator()
         svg.setOutputDevice(out)
         svg.setSize(QSize(width, height))
+        svg.setResolution(SVG_DPI)  # so its width and height are the px asked for
         svg.setViewBox(QRect(0, 0, width, height))
         svg.setTitle(f"wakeline: {canvas.legend_title()}")
         canvas.render_picture(svg, width, height)

@@ -170,9 +170,19 @@ def number_text(value: float) -> str:
     return f"{value:.4g}" if abs(value) < 1e3 else f"{value:.0f}"
 
 
+UNIT_SUFFIXES = (("_deg", " °"), ("_m_s", " m/s"), ("_mm", " mm"), ("_rpm", " rpm"),
+                 ("_s", " s"))
+
+
 def metadata_column(key: str) -> Column:
-    """A column of the manifest (``seam_deg``, ``ball_type``...)."""
-    return Column(key, key, lambda r: as_number(r.metadata.get(key)),
+    """A column of the manifest (``seam_deg``, ``ball_type``...); its header shows the unit
+    (``seam °``), the filter takes the name."""
+    header = key
+    for suffix, unit in UNIT_SUFFIXES:
+        if key.endswith(suffix):
+            header = key[: -len(suffix)] + unit
+            break
+    return Column(key, header.replace("_", " "), lambda r: as_number(r.metadata.get(key)),
                   f"{key} from the shot's manifest row", "metadata")
 
 
