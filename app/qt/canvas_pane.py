@@ -15,6 +15,7 @@ os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import QRectF
+from PySide6.QtCore import Qt
 from PySide6.QtGui import QColor
 
 from app.qt.canvas_items import (
@@ -64,6 +65,19 @@ class LengthBar(pg.ScaleBar):
         super().updateBar()
 
 
+class PaneTitle(pg.LabelItem):
+    """The line over a view when there are two: it takes its height but never widens its
+    column, so the two views stay the same size whatever their titles say."""
+
+    def updateMin(self) -> None:
+        super().updateMin()
+        height = self.itemRect().height()
+        self.setMinimumWidth(0)
+        self._sizeHint[Qt.SizeHint.MinimumSize] = (0, height)
+        self._sizeHint[Qt.SizeHint.PreferredSize] = (0, height)
+        self.updateGeometry()
+
+
 class ShotPane:
     """The items that draw one shot in one ``ViewBox`` (image coordinates, y down)."""
 
@@ -82,7 +96,7 @@ class ShotPane:
             item.setZValue(z)
             self.view.addItem(item)
         self.overlay = Overlay(self.view, draggable=draggable)
-        self.title = pg.LabelItem("", color=OVERLAY_LINE, size="9pt", justify="left")
+        self.title = PaneTitle("", color=OVERLAY_LINE, size="9pt", justify="left")
         self.length_bar = LengthBar()
         self.length_bar.setParentItem(self.view)
 

@@ -41,10 +41,8 @@ def paint_cover(pages: Pages, session, all_records, records, column: str,
     pages.new_page("cover")
     x, y, w, _h = pages.body()
     name = getattr(session, "name", "") or Path(session.path).stem
-    p.setFont(font(20, bold=True))
-    name = p.fontMetrics().elidedText(name, QtCore.Qt.TextElideMode.ElideRight,
-                                      int(mm(2 * w - 20)))  # at most two lines
-    used = text(p, rect_mm(x, y, w, 20), name, 20, bold=True, colour=colours.ACCENT)
+    size = _name_size(p, name, w)
+    used = text(p, rect_mm(x, y, w, 20), name, size, bold=True, colour=colours.ACCENT)
     y += used.height() / mm(1) + 1.5
     info = (f"Session file: {Path(session.path).name}    Date: {session_date(session, all_records)}"
             f"    Shots in session: {len(all_records)}")
@@ -75,6 +73,18 @@ def paint_cover(pages: Pages, session, all_records, records, column: str,
         text(p, rect_mm(x, y, w, 6), f"Final angles by {column} (continued)", 11, bold=True)
         _paint_summary_table(p, x, y + 8, w, column, rest[:SUMMARY_ROWS_PER_PAGE])
         rest = rest[SUMMARY_ROWS_PER_PAGE:]
+
+
+def _name_size(p, name: str, width_mm: float) -> float:
+    """The largest size (20 pt down to 11) at which the session's name fits in two lines."""
+    for size in (20.0, 17.0, 14.0, 12.0, 11.0):
+        p.setFont(font(size, bold=True))
+        metrics = p.fontMetrics()
+        box = metrics.boundingRect(QtCore.QRect(0, 0, int(mm(width_mm)), 10**6),
+                                   int(QtCore.Qt.TextFlag.TextWordWrap), name)
+        if box.height() <= 2.2 * metrics.lineSpacing():
+            return size
+    return 11.0
 
 
 def _paint_status_boxes(p, x: float, y: float, w: float, records) -> float:
