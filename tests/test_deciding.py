@@ -145,3 +145,22 @@ def test_unusable_offers_the_usual_reasons_and_free_text(main_window, make_sessi
     window.model.set_current("s02")
     window.set_status("unusable")
     assert window.model.record("s02").pick.status == "to review"
+
+
+def test_a_decision_on_many_shots_is_one_write_all_or_nothing(make_session):
+    from core import WakelineError
+
+    path = make_session(3)
+    with Session.open(path) as session:
+        journal = session.path.with_name(session.path.name + ".journal")
+        lines = journal.read_text().count("\n") if journal.exists() else 0
+        with pytest.raises(WakelineError, match="s02: marking a shot unusable needs a reason"):
+            session.set_picks({"s01": {"status": "accepted"}, "s02": {"status": "unusable"}})
+        assert [session[s].pick.status for s in ("s01", "s02")] == ["to review", "to review"]
+        picks = session.set_picks({"s01": {"status": "accepted"},
+                                   "s02": {"status": "unusable", "reason": "laser misfire"}},
+                                  who="ann")
+        assert [p.status for p in picks.values()] == ["accepted", "unusable"]
+        assert journal.read_text().count("\n") == lines + 2
+    with Session.open(path, writable=False) as session:
+        assert [session[s].pick.who for s in ("s01", "s02", "s03")] == ["ann", "ann", ""]

@@ -234,7 +234,7 @@ def test_a_refused_undo_is_reported_not_raised(main_window, make_session, qtbot,
     def refuse(*_args, **_kwargs):
         raise WakelineError("demo.h5: the disk is full")
 
-    monkeypatch.setattr(window.model.session, "set_pick", refuse)
+    monkeypatch.setattr(window.model.session, "set_picks", refuse)
     window.undo_stack.undo()
     assert "disk is full" in window.last_problem
     assert window.model.record(shot_id).pick.status == "accepted"  # the views show the truth

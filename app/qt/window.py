@@ -415,6 +415,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.settings.setValue("window/docks", self.saveState())
         self._save_layers()
         self.settings.sync()
+        self.hide()  # gone at once; folding the journal into the file may take a moment
         self.close_session()
         for box in list(self._message_boxes):
             box.close()

@@ -10,7 +10,7 @@ import logging
 from PySide6.QtWidgets import QInputDialog, QMessageBox
 
 from app.qt.canvas import CanvasShot
-from app.qt.commands import BatchEdit, MarkMove, PickEdit
+from app.qt.commands import MarkMove, PickEdit, PicksEdit
 from app.review.columns import reviewable
 from app.review.marks import mark_angles, moved_from_proposal
 from app.review.model import ProcessState, ReviewStatus, pick_values
@@ -159,15 +159,15 @@ class ReviewActions:
             reason = reason or self._ask_reason(records[0].pick.reason, len(records))
             if not reason:
                 return
-        edits = []
+        edits = {}
         for record in records:
             changes = self._decision(record, status, reason)
             current = pick_values(record.pick)
             if any(current[k] != v for k, v in changes.items()):
-                edits.append(PickEdit(self.model, record.shot_id, changes,
-                                      f"Mark shot {record.shot_id} {status}"))
-        if edits and not self._push(edits[0] if len(edits) == 1 else BatchEdit(
-                edits, f"Mark {len(edits)} shots {status}")):
+                edits[record.shot_id] = changes
+        text = (f"Mark shot {next(iter(edits))} {status}" if len(edits) == 1
+                else f"Mark {len(edits)} shots {status}")
+        if edits and not self._push(PicksEdit(self.model, edits, text)):
             return
         if len(targets) > 1:
             self.statusBar().showMessage(

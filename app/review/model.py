@@ -220,12 +220,18 @@ class SessionModel(QObject):
         ``changes`` takes the keywords of ``Session.set_pick`` (status, upper_deg, lower_deg,
         reason, note); the edit is on disk when this returns.
         """
-        before = pick_values(self._records[shot_id].pick)
-        pick = self._session.set_pick(shot_id, **changes)
-        self._records[shot_id] = self._session[shot_id]
-        if pick_values(pick) != before:
-            self.record_changed.emit(shot_id)
-        return pick
+        return self.apply_picks({shot_id: changes})[shot_id]
+
+    def apply_picks(self, edits: dict[str, dict]) -> dict[str, Pick]:
+        """Several pick edits at once (``Session.set_picks``: all or none, one write), then
+        tell the views of each shot that changed."""
+        before = {shot_id: pick_values(self._records[shot_id].pick) for shot_id in edits}
+        picks = self._session.set_picks(edits)
+        for shot_id, pick in picks.items():
+            self._records[shot_id] = self._session[shot_id]
+            if pick_values(pick) != before[shot_id]:
+                self.record_changed.emit(shot_id)
+        return picks
 
     def unprocessed_ids(self) -> list[str]:
         return [sid for sid in self._order

@@ -422,24 +422,44 @@ class Session(SnapshotWriting, Mapping):
         WakelineError
             Unknown status, "unusable" without a reason, or a non-finite angle.
         """
+        changes = {k: v for k, v in (("status", status), ("reason", reason), ("note", note))
+                   if v is not None}
+        changes.update({k: v for k, v in (("upper_deg", upper_deg), ("lower_deg", lower_deg))
+                        if v is not _UNSET})
+        return self.set_picks({shot_id: changes}, who=who)[shot_id]
+
+    def set_picks(self, edits: dict[str, dict], who: str | None = None) -> dict[str, Pick]:
+        """Several pick edits as one (a decision on many shots): ``{shot_id: changes}`` with the
+        keywords of ``set_pick`` (a key left out keeps its value). All are checked first, so
+        none is made when one is refused; then all are on disk (one fsync) when this returns.
+        """
         with self._mutex:
             self._check_writable()
-            current = self._get(shot_id).pick
-            changes = {k: v for k, v in (("reason", reason), ("note", note)) if v is not None}
-            if status is not None:
-                changes["status"] = checked_status(shot_id, status)
-            for side, value in (("upper_deg", upper_deg), ("lower_deg", lower_deg)):
-                if value is not _UNSET:
-                    changes[side] = checked_angle(shot_id, side, value)
             by, now = (who if who is not None else user_name()), now_utc()
-            if set(changes) - {"note"}:
-                changes.update(who=by, when=now)
-            if changes.get("note", current.note) != current.note:
-                changes.update(note_who=by, note_when=now)
-            pick = replace(current, **changes)
-            check_pick(shot_id, pick)
-            self._commit({"op": "pick", "shot": shot_id, "pick": pick.to_dict()})
-            return replace(pick)
+            picks = {shot_id: self._edited_pick(shot_id, changes, by, now)
+                     for shot_id, changes in edits.items()}
+            self._commit(*({"op": "pick", "shot": s, "pick": p.to_dict()}
+                           for s, p in picks.items()))
+            return {shot_id: replace(pick) for shot_id, pick in picks.items()}
+
+    def _edited_pick(self, shot_id: str, changes: dict, by: str, now: str) -> Pick:
+        current = self._get(shot_id).pick
+        unknown = set(changes) - {"status", "upper_deg", "lower_deg", "reason", "note"}
+        if unknown:
+            raise WakelineError(f"shot {shot_id}: no pick field {', '.join(sorted(unknown))}")
+        changes = dict(changes)
+        if "status" in changes:
+            changes["status"] = checked_status(shot_id, changes["status"])
+        for side in ("upper_deg", "lower_deg"):
+            if side in changes:
+                changes[side] = checked_angle(shot_id, side, changes[side])
+        if set(changes) - {"note"}:
+            changes.update(who=by, when=now)
+        if changes.get("note", current.note) != current.note:
+            changes.update(note_who=by, note_when=now)
+        pick = replace(current, **changes)
+        check_pick(shot_id, pick)
+        return pick
 
     @contextmanager
     def batch_run(self) -> Iterator[None]:
@@ -485,12 +505,13 @@ class Session(SnapshotWriting, Mapping):
 
     # -- internals: journal --------------------------------------------------------------------
 
-    def _commit(self, entry: dict) -> None:
-        """Append one change to the journal (durable on return), then apply it in memory."""
-        entry = {"seq": self._seq + 1, **entry}
-        self._journal.append(entry)
-        self._seq = entry["seq"]
-        self._apply(entry)
+    def _commit(self, *entries: dict) -> None:
+        """Append changes to the journal (durable on return), then apply them in memory."""
+        entries = [{"seq": self._seq + n, **entry} for n, entry in enumerate(entries, start=1)]
+        self._journal.append(*entries)
+        for entry in entries:
+            self._seq = entry["seq"]
+            self._apply(entry)
         self._dirty = True
 
     def _replay_journal(self) -> None:
