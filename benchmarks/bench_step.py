@@ -246,19 +246,23 @@ def time_list(path: Path) -> None:
         action()
         app.processEvents()
         figures[label] = time.perf_counter() - start
-    steps = []
+    drawn, whole = [], []
     panel.view.sortByColumn(panel.table_model.column_of("shot"), Qt.SortOrder.AscendingOrder)
     for _ in range(30):
         start = time.perf_counter()
         panel.step(1)
         window.canvas.graphics.viewport().repaint()
+        drawn.append(time.perf_counter() - start)
+        app.processEvents()  # the list, readout and overview catch up
+        whole.append(time.perf_counter() - start)
+        time.sleep(0.1)  # an analyst looks at the shot: the next one is read meanwhile
         app.processEvents()
-        steps.append(time.perf_counter() - start)
-    figures["step, canvas drawn (median of 30, < 50 ms)"] = statistics.median(steps)
-    figures["step, slowest of 30"] = max(steps)
+    figures["step, canvas drawn (median of 30, < 50 ms)"] = statistics.median(drawn)
+    figures["step, whole window (median of 30)"] = statistics.median(whole)
+    figures["step, canvas drawn, slowest of 30"] = max(drawn)
     start = time.perf_counter()
     window.close()
-    figures["close the window (session compacted)"] = time.perf_counter() - start
+    figures["quit: window closed, journal folded in"] = time.perf_counter() - start
     print(f"a day of {len(ids)} shots ({path.name}):")
     for label, seconds in figures.items():
         print(f"  {label:50s} {seconds * 1e3:8.1f} ms")

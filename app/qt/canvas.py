@@ -225,8 +225,10 @@ class ShotCanvas(LayerControls, QWidget):
         old = self._shot
         self._shot = shot
         self._angles = shot.angles() if shot is not None else {"upper": None, "lower": None}
-        self._levels = {s.shot_id: picture_levels(s) for s in (shot, self._reference)
-                        if s is not None}
+        kept = self._reference
+        self._levels = {kept.shot_id: self._levels[kept.shot_id]} if kept is not None else {}
+        if shot is not None:
+            self._levels[shot.shot_id] = picture_levels(shot)
         if shot is not None and not self.fixed_box.isChecked():
             self._set_auto_limit()
         self._redraw_all()

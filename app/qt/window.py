@@ -57,6 +57,7 @@ log = logging.getLogger("wakeline.window")
 ORGANISATION = "wakeline"
 APPLICATION = "wakeline"
 NUDGE_DEG = 0.5
+PREFETCH_DELAY_MS = 60
 FINE_NUDGE_DEG = 0.1
 
 # (action key, menu text, shortcut, tip) of the review keys; shown in Help > Keyboard shortcuts
@@ -107,7 +108,8 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self._prefetch_id = ""
         self._prefetch_timer = QTimer(self)
         self._prefetch_timer.setSingleShot(True)
-        self._prefetch_timer.setInterval(0)
+        # read ahead once the analyst pauses on a shot: a held-down key pays no extra reads
+        self._prefetch_timer.setInterval(PREFETCH_DELAY_MS)
         self._prefetch_timer.timeout.connect(self._prefetch)
         self._message_boxes: list[QMessageBox] = []
         self.setWindowIcon(app_icon())
