@@ -145,7 +145,7 @@ class ReviewActions:
         shot still to review becomes current."""
         if not self._can_edit():
             return
-        order = self.shot_list.visible_ids()
+        order, current = self.shot_list.visible_ids(), self.model.current_id
         targets = self.decision_targets()
         records = [self.model.record(s) for s in targets]
         if status in (ReviewStatus.ACCEPTED, ReviewStatus.ADJUSTED):
@@ -165,15 +165,16 @@ class ReviewActions:
             current = pick_values(record.pick)
             if any(current[k] != v for k, v in changes.items()):
                 edits[record.shot_id] = changes
-        text = (f"Mark shot {next(iter(edits))} {status}" if len(edits) == 1
-                else f"Mark {len(edits)} shots {status}")
-        if edits and not self._push(PicksEdit(self.model, edits, text)):
-            return
+        if edits:
+            text = (f"Mark {len(edits)} shots {status}" if len(edits) > 1
+                    else f"Mark shot {next(iter(edits))} {status}")
+            if not self._push(PicksEdit(self.model, edits, text)):
+                return
         if len(targets) > 1:
             self.statusBar().showMessage(
                 f"{len(edits)} of {len(targets)} selected shots marked {status}.", 6000)
         if status != ReviewStatus.TO_REVIEW and self.act_advance.isChecked():
-            self._advance(order, set(targets))
+            self._advance(order, current, set(targets))
 
     def _decision(self, record, status: ReviewStatus, reason: str | None) -> dict:
         """The pick fields a decision sets on one shot."""
@@ -242,12 +243,11 @@ class ReviewActions:
             reason = reason.strip() if ok else ""
         return reason
 
-    def _advance(self, order: list[str], decided: set[str]) -> None:
-        """On to the next shot still to review after the current one, in the order the list
-        showed before the decision (a filter may have hidden the decided shots since)."""
+    def _advance(self, order: list[str], after: str, decided: set[str]) -> None:
+        """On to the next shot still to review after ``after``, in the order the list showed
+        before the decision (a filter may have hidden the decided shots since)."""
         shown = set(self.shot_list.visible_ids())
-        current = self.model.current_id
-        start = order.index(current) + 1 if current in order else 0
+        start = order.index(after) + 1 if after in order else 0
         for shot_id in order[start:] + order[:start]:
             if shot_id in shown and shot_id not in decided and reviewable(
                     self.model.record(shot_id)):
@@ -281,4 +281,4 @@ class ReviewActions:
 
     def next_to_review(self) -> None:
         """The next shot still to review (measured, undecided) after the current one."""
-        self._advance(self.shot_list.visible_ids(), set())
+        self._advance(self.shot_list.visible_ids(), self.model.current_id, set())
