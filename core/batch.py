@@ -12,13 +12,18 @@ the window (a worker thread with progress and cancel)::
 
 from __future__ import annotations
 
+import contextlib
 import multiprocessing
+import os
 import signal
+import threading
 import time
 import uuid
 from collections.abc import Callable, Iterator
 from concurrent.futures import FIRST_COMPLETED, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field, replace
+from pathlib import Path
 
 from core import WakelineError
 from core.shot import ShotSettings
@@ -89,14 +94,17 @@ def iter_process(
         Shots to consider (default all); those already processed with the same settings are
         left out unless ``force``.
     workers : int, optional
-        Worker processes, each measuring one shot at a time single-threaded (default: all
-        cores); 0 measures in this process with the PIV settings' own thread count.
+        Worker processes, each measuring one shot at a time single-threaded (default: one per
+        core, no more than free memory holds, see ``default_workers``); 0 measures in this
+        process with the PIV settings' own thread count. A worker that dies (out of memory)
+        costs only its shot, which is retried once (``_run_pool``).
     scheduler : str or distributed.Client, optional
         ``tcp://host:port`` of a dask scheduler (or a client): measure on that cluster instead.
         Its workers must see the frame files and the session file at the same paths.
     should_stop : callable, optional
         Polled while waiting; when it returns True, unstarted shots are cancelled and the
-        generator ends after saving what has finished.
+        generator ends after saving the shots in hand as they finish. Closing the generator
+        (or an exception such as KeyboardInterrupt) ends the workers at once.
     """
     todo, _ = plan_shots(session, shot_ids, force)
     tasks = [_task(session, shot_id) for shot_id in todo]
@@ -123,8 +131,9 @@ def process_shots(
 ) -> BatchReport:
     """Run :func:`iter_process` to the end and report; ``on_result(outcome)`` after each shot.
 
-    A stop request (``should_stop``) or Ctrl-C ends the run with ``interrupted=True``; every
-    shot saved until then stays saved.
+    A stop request (``should_stop``: the shots in hand are finished and saved) or a
+    KeyboardInterrupt (they are dropped) ends the run with ``interrupted=True``; every shot
+    saved until then stays saved.
     """
     start = time.perf_counter()
     todo, skipped = plan_shots(session, shot_ids, force)
@@ -159,6 +168,7 @@ def _task(session: Session, shot_id: str) -> dict:
         "source": session.frame_source(shot_id),
         "settings": settings.to_dict(),
         "fingerprint": settings.fingerprint(),
+        "shape": session[shot_id].frames.get("shape"),  # (H, W), for the memory it needs
     }
 
 
@@ -200,10 +210,9 @@ def _runner(workers: int | None, scheduler):
         return lambda tasks, stop: _run_dask(tasks, stop, scheduler)
     if workers == 0:
         return _run_inline
-    count = workers or multiprocessing.cpu_count()
-    if count < 0:
+    if workers is not None and workers < 0:
         raise WakelineError(f"--workers {workers}: use 0 or more")
-    return lambda tasks, stop: _run_pool(tasks, stop, count)
+    return lambda tasks, stop: _run_pool(tasks, stop, workers or default_workers(tasks))
 
 
 def _run_inline(tasks: list[dict], stop) -> Iterator[tuple]:
@@ -213,9 +222,69 @@ def _run_inline(tasks: list[dict], stop) -> Iterator[tuple]:
         yield measure_task(task)
 
 
-def _ignore_sigint() -> None:
-    # Ctrl-C belongs to the writer, which stops the run cleanly; workers finish their shot.
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
+# -- worker processes ---------------------------------------------------------------------------
+
+#: Peak memory of one worker measuring an H x W pair, bytes: the line through the peaks measured
+#: for 4096 x 4096 (1.1 GB) and 8000 x 8000 (3.4 GB) pairs of the measurement (docs/references.md).
+_PEAK_BASE_BYTES = 0.28e9
+_PEAK_BYTES_PER_PX = 48.7
+
+
+def peak_memory_bytes(shape) -> float:
+    """About the most memory one worker needs to measure a frame pair of ``shape`` (H, W)."""
+    return _PEAK_BASE_BYTES + _PEAK_BYTES_PER_PX * shape[0] * shape[1]
+
+
+def available_memory_bytes() -> float | None:
+    """Memory free for new work: ``MemAvailable`` (Linux), within this process group's cgroup
+    limit if it has one; None where neither can be read."""
+    free = None
+    with contextlib.suppress(OSError, ValueError, IndexError):
+        for line in Path("/proc/meminfo").read_text().splitlines():
+            if line.startswith("MemAvailable:"):
+                free = int(line.split()[1]) * 1024
+    with contextlib.suppress(OSError, ValueError):
+        limit = Path("/sys/fs/cgroup/memory.max").read_text().strip()
+        if limit != "max":
+            room = int(limit) - int(Path("/sys/fs/cgroup/memory.current").read_text())
+            free = room if free is None else min(free, room)
+    return free
+
+
+def default_workers(tasks: list[dict]) -> int:
+    """One worker per core, but no more than the free memory holds at the largest pair's peak."""
+    cores = os.cpu_count() or 1
+    free = available_memory_bytes()
+    shapes = [task["shape"] for task in tasks if task.get("shape")]
+    if free is None or not shapes:
+        return cores
+    return max(1, min(cores, int(free // max(peak_memory_bytes(s) for s in shapes))))
+
+
+_announce = None  # in a worker: where it says which shot it starts (see _run_pool)
+
+
+def _worker_start(lifeline, announce) -> None:
+    """Set up a worker. Signals belong to the writer, which stops the run cleanly while the
+    workers finish their shots; and a worker ends as soon as the writer does, however it ended
+    (killed, out of memory): its lifeline then reads end-of-file."""
+    global _announce
+    for name in ("SIGINT", "SIGTERM", "SIGHUP"):
+        if hasattr(signal, name):
+            signal.signal(getattr(signal, name), signal.SIG_IGN)
+    _announce = announce
+    threading.Thread(target=_end_with_writer, args=(lifeline,), daemon=True).start()
+
+
+def _end_with_writer(lifeline) -> None:
+    with contextlib.suppress(EOFError, OSError):
+        lifeline.recv_bytes()
+    os._exit(1)
+
+
+def _in_worker(work, task: dict, threads: int):
+    _announce.send_bytes(task["shot_id"].encode("utf-8"))
+    return work(task, threads)
 
 
 def _pool_context():
@@ -229,29 +298,87 @@ def _pool_context():
     return context
 
 
-def _run_pool(tasks: list[dict], stop, count: int) -> Iterator[tuple]:
-    if not tasks:
-        return
-    count = min(count, len(tasks))
-    # One worker process is one core's worth of work: the PIV inside it runs single-threaded.
-    pool = ProcessPoolExecutor(count, mp_context=_pool_context(), initializer=_ignore_sigint)
-    futures = {pool.submit(measure_task, task, 1): task["shot_id"] for task in tasks}
-    pending = set(futures)
+def _run_pool(tasks: list[dict], stop, count: int, work=None) -> Iterator[tuple]:
+    """Measure on ``count`` worker processes (``concurrent.futures``), yielding outcomes.
+
+    A worker that dies (killed by the out-of-memory killer, or crashed) breaks its pool: a new
+    pool of half the size takes the shots that were waiting, and each shot that was being
+    measured is retried once, alone; one that kills its worker again fails, naming memory as
+    the likely cause. Workers say which shot they start (a pipe), so only those are suspects.
+    Asked to ``stop``, no new shot starts and the shots in hand are finished and yielded; an
+    abort (an exception, or the generator closed) ends the workers at once. ``work`` stands in
+    for ``measure_task`` in tests.
+    """
+    context = _pool_context()
+    lifeline, keep_alive = context.Pipe(duplex=False)  # workers end when keep_alive closes
+    started, announce = context.Pipe(duplex=False)
+    rounds = [(list(tasks), count)]
+    strikes: dict[str, int] = {}
     try:
-        while pending and not stop():
-            finished, pending = wait(pending, timeout=_POLL_S, return_when=FIRST_COMPLETED)
-            for future in finished:
-                yield _pool_outcome(future, futures[future])
+        while rounds and not stop():
+            todo, workers = rounds.pop(0)
+            in_hand, waiting = yield from _pool_round(todo, stop, workers, work or measure_task,
+                                                      context, (lifeline, announce, started),
+                                                      keep_alive)
+            if waiting:
+                rounds.append((waiting, max(1, workers // 2)))
+            for task in in_hand:
+                strikes[task["shot_id"]] = strikes.get(task["shot_id"], 0) + 1
+                if strikes[task["shot_id"]] > 1:
+                    yield task["shot_id"], None, _lost_twice(task)
+                else:
+                    rounds.append(([task], 1))
     finally:
-        for future in pending:
-            future.cancel()
+        for end in (keep_alive, lifeline, started, announce):
+            end.close()
+
+
+def _pool_round(todo, stop, workers, work, context, pipes, keep_alive):
+    """One pool over ``todo``, yielding outcomes; returns the tasks lost with a dead worker:
+    (those being measured, those waiting)."""
+    lifeline, announce, started = pipes
+    # One worker process is one core's worth of work: the PIV inside it runs single-threaded.
+    pool = ProcessPoolExecutor(min(workers, len(todo)), mp_context=context,
+                               initializer=_worker_start, initargs=(lifeline, announce))
+    futures = {pool.submit(_in_worker, work, task, 1): task for task in todo}
+    pending, begun, lost = set(futures), set(), ([], [])
+    ended = False
+    try:
+        while pending:
+            if stop():
+                for future in pending:
+                    future.cancel()  # only those not started: the shots in hand finish
+            done, pending = wait(pending, timeout=_POLL_S, return_when=FIRST_COMPLETED)
+            while started.poll():
+                begun.add(started.recv_bytes().decode("utf-8"))
+            for future in done:
+                task = futures[future]
+                if future.cancelled():
+                    continue
+                if isinstance(future.exception(), BrokenProcessPool):
+                    lost[0 if task["shot_id"] in begun else 1].append(task)
+                    continue
+                yield _pool_outcome(future, task["shot_id"])
+        ended = True
+    finally:
+        if not ended:
+            keep_alive.close()  # an abort: the workers end now instead of finishing their shots
         pool.shutdown(wait=True, cancel_futures=True)
+    return lost
+
+
+def _lost_twice(task: dict) -> str:
+    shape = task.get("shape")
+    need = "" if not shape else (f": a {shape[1]} x {shape[0]} pair needs about "
+                                 f"{peak_memory_bytes(shape) / 1e9:.1f} GB per worker")
+    return (f"the worker process measuring this shot died twice, most likely out of memory"
+            f"{need}; run it with fewer --workers or more free memory")
 
 
 def _pool_outcome(future, shot_id: str) -> tuple:
     try:
         return future.result()
-    except Exception as exc:  # noqa: BLE001 - the worker process died (killed, out of memory, crashed)
+    except Exception as exc:  # noqa: BLE001 - the worker process crashed otherwise
         return shot_id, None, f"worker process failed ({type(exc).__name__})"
 
 

@@ -17,7 +17,7 @@ PNG_SUFFIXES = {".png"}
 
 
 def read_frame_pair(path_a: str | Path, path_b: str | Path | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Read a frame pair as two float32 ``(H, W)`` arrays.
+    """Read a frame pair as two float32 ``(H, W)`` arrays, stored alike (bit depth, scaling).
 
     Parameters
     ----------
@@ -31,8 +31,9 @@ def read_frame_pair(path_a: str | Path, path_b: str | Path | None = None) -> tup
     """
     if path_b is None:
         pages = _read_pages(Path(path_a))
-        if len(pages) < 2:
-            raise WakelineError(f"{path_a}: has {len(pages)} page, a frame pair needs two")
+        if len(pages) != 2:
+            raise WakelineError(f"{path_a}: has {len(pages)} page{'s' * (len(pages) > 1)}; a "
+                                "frame pair is two (one two-page TIFF, or two files)")
         frame_a, frame_b = pages[0], pages[1]
         name_a = name_b = str(path_a)
     else:
@@ -44,7 +45,37 @@ def read_frame_pair(path_a: str | Path, path_b: str | Path | None = None) -> tup
             f"{name_b}: frame shape {frame_b.shape[1]}x{frame_b.shape[0]} differs from "
             f"{name_a} ({frame_a.shape[1]}x{frame_a.shape[0]})"
         )
-    return frame_a, frame_b
+    _check_alike(name_a, frame_a, name_b, frame_b)
+    return _as_float(frame_a), _as_float(frame_b)
+
+
+#: Brightest counts (99.9th percentile) of frames A and B further apart than this factor mean
+#: differently scaled exports (a 12-bit frame against one shifted to 16 bits is 16x); the two
+#: laser pulses of one pair differ far less.
+MAX_BRIGHTNESS_RATIO = 8.0
+
+
+def _check_alike(name_a: str, frame_a: np.ndarray, name_b: str, frame_b: np.ndarray) -> None:
+    """Refuse frames A and B stored differently: correlating a 16-bit frame with an 8-bit one
+    (or a rescaled one) weighs their particles wrongly and moves the result."""
+    if frame_a.dtype != frame_b.dtype:
+        raise WakelineError(f"{name_b}: {_depth(frame_b)} frame but {name_a} is "
+                            f"{_depth(frame_a)}; export both frames with the same bit depth")
+    step = max(1, int(np.sqrt(frame_a.size / 1e5)))  # ~1e5 pixels say it well enough
+    bright = [float(np.percentile(f[::step, ::step], 99.9)) for f in (frame_a, frame_b)]
+    if min(bright) > 0 and max(bright) > MAX_BRIGHTNESS_RATIO * min(bright):
+        raise WakelineError(f"{name_b}: brightness scale differs from {name_a} (brightest "
+                            f"counts {bright[1]:g} against {bright[0]:g}); export both frames "
+                            "with the same scaling")
+
+
+def _depth(frame: np.ndarray) -> str:
+    kind = "float" if frame.dtype.kind == "f" else ""
+    return f"{frame.dtype.itemsize * 8}-bit" + (f" {kind}" if kind else "")
+
+
+def _as_float(frame: np.ndarray) -> np.ndarray:
+    return frame.astype(np.float32, copy=False)
 
 
 def _single_page(path: Path) -> np.ndarray:
@@ -103,10 +134,9 @@ def _checked_frame(path: Path, page: np.ndarray) -> np.ndarray:
         raise WakelineError(f"{path}: expected a 2-D greyscale frame, got shape {page.shape}")
     if page.size == 0 or min(page.shape) < 16:
         raise WakelineError(f"{path}: frame of {page.shape[1]}x{page.shape[0]} px is too small")
-    frame = page.astype(np.float32, copy=False)
-    if not np.all(np.isfinite(frame)):
+    if page.dtype.kind == "f" and not np.all(np.isfinite(page)):
         raise WakelineError(f"{path}: frame contains non-finite values (NaN or inf)")
-    return frame
+    return page  # as stored: its bit depth is compared with the other frame's
 
 
 def write_frame(path: str | Path, frame: np.ndarray, bits: int = 16) -> None:

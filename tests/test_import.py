@@ -178,4 +178,31 @@ def test_an_import_stopped_part_way_keeps_what_it_imported(tmp_path):
         assert list(s) == ["S0"]
         assert s.check_frames(should_stop=lambda: True) == {}  # stopped before any shot
     again = import_folder(src, tmp_path / "s.h5")  # the rest comes in on a second run
-    assert again.imported == ["S1", "S2"] and len(again.problems) == 1  # S0 already there
+    assert again.imported == ["S1", "S2"] and again.already == ["S0"] and again.problems == []
+    assert any("1 shot(s) already in s.h5" in note for note in again.notes)
+
+
+def test_importing_a_folder_again_goes_on_and_refuses_only_what_differs(tmp_path, capsys):
+    src = write_shot_folder(tmp_path / "src", 3)
+    lines = (src / "shots.csv").read_text().splitlines()
+    (src / "shots.csv").write_text("\n".join(lines[:2]) + "\n")  # S0 only, as if stopped
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 0
+    lines[2] = lines[2].replace("shot 1", "shot 1")  # S1 unchanged
+    lines[1] = lines[1].replace("shot 0", "changed")  # S0 now with other values
+    (src / "shots.csv").write_text("\n".join(lines) + "\n")
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
+    err = capsys.readouterr().err
+    assert err.count("wakeline: ") == 1 and "line 2 (shot S0): already in s.h5 with other" in err
+    lines[1] = lines[1].replace("changed", "shot 0")
+    (src / "shots.csv").write_text("\n".join(lines) + "\n")
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 0  # a plain re-run
+    assert "3 shot(s) already in s.h5" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("separator", [";", "\t"], ids=["semicolon", "tab"])
+def test_a_manifest_with_another_separator_says_so(tmp_path, separator):
+    src = write_shot_folder(tmp_path / "src", 1)
+    (src / "shots.csv").write_text(HEADER.replace(",", separator) + "\n"
+                                   + separator.join(["S0", "2e-05", "0.08", "71.6", "0", ""]))
+    with pytest.raises(WakelineError, match=r"separated by .*; shots\.csv must be comma-separated"):
+        import_folder(src, tmp_path / "s.h5")

@@ -431,7 +431,8 @@ def test_a_failed_journal_write_leaves_no_partial_line(session_path, monkeypatch
         raise OSError(28, "No space left on device")
 
     monkeypatch.setattr(os, "write", disk_full)
-    with pytest.raises(OSError, match="No space left"):
+    with pytest.raises(WakelineError,
+                       match=r"s\.h5: could not save the edit of shot S1 \(No space left"):
         s.set_pick("S1", status="accepted")
     monkeypatch.setattr(os, "write", real_write)
     assert s["S1"].pick.status == "to review"  # not applied either

@@ -8,7 +8,8 @@ import pytest
 from data.session_helpers import fake_result, write_shot_folder
 
 from app.cli import main
-from core.store import Session, import_folder, session_table_rows
+from core import WakelineError
+from core.store import Session, import_folder, session_table_rows, write_table_csv
 
 REQUIRED = ("shot", "upper_proposed_deg", "lower_proposed_deg", "upper_final_deg",
             "lower_final_deg", "review_status")
@@ -66,3 +67,30 @@ def test_table_can_be_written_while_the_session_is_open_for_writing(session_path
         writer.set_pick("S3", status="unusable", reason="no seeding")
         assert main(["table", str(session_path), "-o", str(tmp_path / "t.csv")]) == 0
     assert _read(tmp_path / "t.csv")["S3"]["review_status"] == "unusable"
+
+
+def test_cells_a_spreadsheet_would_run_as_formulas_are_quoted(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    (src / "shots.csv").write_text(
+        "shot,dt_s,scale_mm_per_px,ball_diameter_mm,seam_deg,notes,operator,offset\n"
+        'S0,2e-05,0.08,71.6,-10,"=HYPERLINK(""http://x"")",@ann,-3.5\n'
+        "S1,2e-05,0.08,71.6,5,+1 spare,-bo,+2\n", encoding="utf-8")
+    import_folder(src, tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        s.set_pick("S0", status="unusable", reason="-ball out")
+    out = tmp_path / "picks.csv"
+    assert main(["table", str(tmp_path / "s.h5"), "-o", str(out)]) == 0
+    rows = _read(out)
+    assert rows["S0"]["notes"] == "'=HYPERLINK(\"http://x\")" and rows["S0"]["operator"] == "'@ann"
+    assert rows["S0"]["unusable_reason"] == "'-ball out"
+    assert rows["S1"]["notes"] == "'+1 spare" and rows["S1"]["operator"] == "'-bo"
+    assert rows["S0"]["seam_deg"] == "-10" and rows["S0"]["offset"] == "-3.5"  # numbers stay
+    assert rows["S1"]["offset"] == "+2"
+
+
+def test_the_table_is_never_written_over_its_session(session_path):
+    before = session_path.read_bytes()
+    with Session.open(session_path, writable=False) as s, pytest.raises(
+            WakelineError, match=r"s\.h5: is the session s\.h5 itself"):
+        write_table_csv(s, session_path)  # as the window's export could
+    assert session_path.read_bytes() == before

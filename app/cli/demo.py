@@ -9,7 +9,7 @@ import sys
 from pathlib import Path
 
 from app.cli import display
-from app.cli.options import whole_count
+from app.cli.options import known_ball_types, whole_count
 from core import WakelineError
 
 SAMPLE_RUNS = Path(__file__).resolve().parents[2] / "sample_runs"
@@ -41,7 +41,8 @@ def _add_demo(subparsers) -> None:
     p.add_argument("--fresh", action="store_true",
                    help="start again from the bundled shots, discarding the demo session's edits")
     p.add_argument("--workers", type=whole_count, metavar="N",
-                   help="worker processes (default: all cores; 0 = in this process)")
+                   help="worker processes (default: one per core, as many as free "
+                   "memory holds; 0 = in this process)")
     p.set_defaults(func=run_demo)
 
 
@@ -95,7 +96,7 @@ def prepare_demo(folder: Path, fresh: bool = False) -> Path:
         if src.is_file():
             shutil.copyfile(src, frames / src.name)
     Session.create(session_path, name=DEMO_NAME).close()
-    report = import_folder(frames, session_path)
+    report = import_folder(frames, session_path, ball_types=known_ball_types())
     if report.problems:
         raise WakelineError(f"{frames}: demo import failed: {report.problems[0]}")
     print(f"{session_path}: imported {len(report.imported)} demo shot(s)")

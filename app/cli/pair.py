@@ -9,6 +9,7 @@ from pathlib import Path
 
 import numpy as np
 
+from app.cli.options import check_outputs, known_ball_types
 from app.review.text import shot_rows
 from core import WakelineError
 from core.store.files import atomic_write
@@ -27,7 +28,8 @@ def add_commands(subparsers) -> None:
     p.add_argument("--dt", type=float, metavar="S", help="time between the frames, seconds")
     p.add_argument("--scale", type=float, metavar="MM_PER_PX", help="image scale, mm per pixel")
     p.add_argument("--ball-diameter", type=float, metavar="MM", help="ball diameter, mm")
-    p.add_argument("--ball-type", choices=_ball_types(), help="use the rulebook nominal diameter")
+    p.add_argument("--ball-type", choices=known_ball_types(),
+                   help="use the rulebook nominal diameter")
     p.add_argument("--no-ball", action="store_true", help="no ball in the picture: PIV only")
     p.add_argument("--flight-deg", type=float, metavar="D",
                    help="flight direction override, deg (0 = +x, 90 = toward the top)")
@@ -37,12 +39,6 @@ def add_commands(subparsers) -> None:
     p.set_defaults(func=run_pair)
 
 
-def _ball_types() -> list[str]:
-    from core.ball import NOMINAL_BALL_DIAMETER_MM
-
-    return sorted(NOMINAL_BALL_DIAMETER_MM)
-
-
 def run_pair(args: argparse.Namespace) -> int:
     from core.images import read_frame_pair
     from core.shot import ShotSettings, measure_shot
@@ -50,6 +46,7 @@ def run_pair(args: argparse.Namespace) -> int:
     _check_positive(args.dt, "--dt")
     _check_positive(args.scale, "--scale")
     _check_positive(args.ball_diameter, "--ball-diameter")
+    check_outputs([args.json, args.vectors], inputs=[p for p in (args.frame_a, args.frame_b) if p])
     frame_a, frame_b = read_frame_pair(args.frame_a, args.frame_b)
     settings = ShotSettings(
         dt_s=args.dt,

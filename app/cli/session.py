@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import signal
 import sys
 from pathlib import Path
 
-from app.cli.options import whole_count
+from app.cli.options import check_outputs, known_ball_types, session_frame_files, whole_count
 from core import WakelineError
 
 
@@ -43,14 +44,16 @@ def _add_process(subparsers) -> None:
         "process",
         help="measure every shot of a session not yet processed with its settings",
         description="Measure the shots of a session in parallel worker processes, saving each "
-        "result as it arrives; an interrupted run (Ctrl-C) keeps what finished and the next "
-        "run goes on with the rest. Shots already processed with the same settings are "
-        "skipped unless --force. Exit code 1 when a shot failed or the run was stopped.",
+        "result as it arrives; a stopped run (Ctrl-C, SIGTERM or SIGHUP) finishes and keeps the "
+        "shots in hand and the next run goes on with the rest (a second Ctrl-C aborts them). "
+        "Shots already processed with the same settings are skipped unless --force. Exit "
+        "code 1 when a shot failed or the run was stopped.",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
     p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
     p.add_argument("--workers", type=whole_count, metavar="N",
-                   help="worker processes (default: all cores; 0 = in this process)")
+                   help="worker processes (default: one per core, as many as free memory "
+                   "holds; 0 = in this process)")
     p.add_argument("--scheduler", metavar="ADDRESS",
                    help="tcp://HOST:PORT of a dask scheduler: measure on that cluster "
                    "(its workers must see the session and frame files at the same paths)")
@@ -80,7 +83,8 @@ def run_import(args: argparse.Namespace) -> int:
 
     if not args.src_dir.is_dir():
         raise WakelineError(f"{args.src_dir}: folder not found")
-    report = import_folder(args.src_dir, args.session, embed=args.embed)
+    report = import_folder(args.src_dir, args.session, embed=args.embed,
+                           ball_types=known_ball_types())
     for problem in report.problems:
         print(f"wakeline: {problem}", file=sys.stderr)
     for note in report.notes:
@@ -90,8 +94,15 @@ def run_import(args: argparse.Namespace) -> int:
     return 1 if report.problems else 0
 
 
+#: Signals that stop a run cleanly: Ctrl-C, a polite kill (shutdown, scheduler), the terminal
+#: closing. Each is handled alike; a second one aborts.
+STOP_SIGNALS = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP")
+                     if hasattr(signal, name))
+
+
 class _StopFlag:
-    """First Ctrl-C asks the run to stop after the shots in hand; a second one aborts."""
+    """The first stop signal asks the run to stop after the shots in hand (they are saved); a
+    second one aborts (the shots in hand are dropped, everything saved so far is kept)."""
 
     def __init__(self):
         self.stop = False
@@ -99,11 +110,12 @@ class _StopFlag:
     def __call__(self) -> bool:
         return self.stop
 
-    def on_sigint(self, signum, frame) -> None:
+    def on_signal(self, signum, frame) -> None:
         if self.stop:
             raise KeyboardInterrupt
         self.stop = True
-        print("\nstopping: finished shots are kept (Ctrl-C again to abort)", file=sys.stderr)
+        with contextlib.suppress(OSError):  # the terminal may be gone (SIGHUP)
+            print("\nstopping: finished shots are kept (Ctrl-C again to abort)", file=sys.stderr)
 
 
 def run_process(args: argparse.Namespace) -> int:
@@ -117,7 +129,7 @@ def run_process(args: argparse.Namespace) -> int:
         if skipped:
             print(f"{len(skipped)} shot(s) already processed with these settings")
         flag = _StopFlag()
-        previous = signal.signal(signal.SIGINT, flag.on_sigint)
+        previous = {signum: signal.signal(signum, flag.on_signal) for signum in STOP_SIGNALS}
         bar = _progress_bar(len(todo), args.quiet)
         try:
             report = process_shots(session, todo, workers=args.workers, scheduler=args.scheduler,
@@ -125,8 +137,17 @@ def run_process(args: argparse.Namespace) -> int:
                                    should_stop=flag)
         finally:
             bar.close()
-            signal.signal(signal.SIGINT, previous)
-    return _process_summary(args.session, report)
+            for signum, handler in previous.items():
+                signal.signal(signum, handler)
+    code = _process_summary(args.session, report)
+    return 1 if _tell_problems(session) else code
+
+
+def _tell_problems(session) -> bool:
+    """Print what saving found damaged or lost, one line per shot part; True if anything."""
+    for problem in session.problems:
+        print(f"wakeline: {problem}", file=sys.stderr)
+    return bool(session.problems)
 
 
 def _read_settings(path: Path) -> dict:
@@ -174,6 +195,7 @@ def run_table(args: argparse.Namespace) -> int:
     from core.store import Session, write_table_csv
 
     with Session.open(args.session, writable=False) as session:
+        check_outputs([args.output], session.path, session_frame_files(session))
         count = write_table_csv(session, args.output)
     print(f"{args.output}: {count} shot(s)")
     return 0

@@ -5,6 +5,8 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from app.cli.options import check_outputs, session_frame_files
+
 
 def add_commands(subparsers) -> None:
     _add_sheet(subparsers)
@@ -56,6 +58,7 @@ def run_sheet(args: argparse.Namespace) -> int:
 
     statuses = parse_statuses(args.status)
     with Session.open(args.session, writable=False) as session:
+        check_outputs([args.output], session.path, session_frame_files(session))
         report = make_sheet(session, args.output, shot_ids=args.shots, per_page=args.per_page,
                             statuses=statuses, column=args.column,
                             vorticity_limit_1_s=args.vorticity_limit)

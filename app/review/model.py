@@ -26,10 +26,10 @@ from core.store import (
     Session,
     SessionLocked,
     ShotRecord,
-    import_folder,
     write_table_csv,
 )
-from core.store.session import companion_files
+from core.store import import_folder as store_import_folder
+from core.store.companions import companion_files
 
 __all__ = [
     "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
@@ -49,6 +49,14 @@ def is_companion_file(name: str) -> bool:
     ``S.h5.pending``, ``S.h5.lock``, ``S.h5.tmp``): not for the analyst to open or choose."""
     return any(name.endswith(end) and name[: -len(end)].lower().endswith(_SESSION_SUFFIXES)
                for end in _COMPANION_ENDINGS)
+
+
+def import_folder(src_dir, session_path, **options):
+    """``core.store.import_folder``, refusing ball types the measurement does not know."""
+    from core.ball import NOMINAL_BALL_DIAMETER_MM
+
+    return store_import_folder(src_dir, session_path, ball_types=NOMINAL_BALL_DIAMETER_MM,
+                               **options)
 
 
 def pick_values(pick: Pick) -> dict:
@@ -126,31 +134,39 @@ class SessionModel(QObject):
             When the file cannot be opened (``SessionLocked`` when another process holds it).
         """
         session = Session.open(path, writable=writable)
-        self._drop_session()
-        self._session = session
-        self._order = list(session)
-        self._records = dict(session.items())
-        self._current = ""
-        self.session_changed.emit()
-        self.current_changed.emit("")
-
-    def close(self) -> None:
-        had = self._session is not None
-        self._drop_session()
-        if had:
+        try:
+            self._drop_session()  # a failure to save the old one is raised once the new is in
+        finally:
+            self._session = session
+            self._order = list(session)
+            self._records = dict(session.items())
+            self._current = ""
             self.session_changed.emit()
             self.current_changed.emit("")
 
+    def close(self) -> None:
+        had = self._session is not None
+        try:
+            self._drop_session()
+        finally:
+            if had:
+                self.session_changed.emit()
+                self.current_changed.emit("")
+
     def _drop_session(self) -> None:
-        if self._session is not None:
+        """Forget the open session, then close it: a close that fails (a full disk: every
+        change stays in its journal) raises with the model already empty."""
+        session = self._session
+        if session is not None:
             self.closing.emit()
-            self._session.close()
         self._session = None
         self._records.clear()
         self._order = []
         self._current = ""
         self._results.clear()
         self._frames.clear()
+        if session is not None:
+            session.close()
 
     @property
     def read_only(self) -> bool:
@@ -219,14 +235,25 @@ class SessionModel(QObject):
 
         ``changes`` takes the keywords of ``Session.set_pick`` (status, upper_deg, lower_deg,
         reason, note); the edit is on disk when this returns.
+
+        Raises
+        ------
+        core.WakelineError
+            The store refused or could not save the edit (any ``OSError`` too, so the window's
+            one handler puts the marks back and says the edit was not saved).
         """
         return self.apply_picks({shot_id: changes})[shot_id]
 
     def apply_picks(self, edits: dict[str, dict]) -> dict[str, Pick]:
         """Several pick edits at once (``Session.set_picks``: all or none, one write), then
-        tell the views of each shot that changed."""
+        tell the views of each shot that changed. Raises as ``apply_pick``."""
         before = {shot_id: pick_values(self._records[shot_id].pick) for shot_id in edits}
-        picks = self._session.set_picks(edits)
+        try:
+            picks = self._session.set_picks(edits)
+        except OSError as exc:
+            what = f"shot {next(iter(edits))}" if len(edits) == 1 else f"{len(edits)} shots"
+            raise WakelineError(f"{self._session.path}: edit of {what} not saved "
+                                f"({exc.strerror or exc})") from None
         for shot_id, pick in picks.items():
             self._records[shot_id] = self._session[shot_id]
             if pick_values(pick) != before[shot_id]:

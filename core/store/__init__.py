@@ -1,14 +1,16 @@
 """The session store: shots, results and the analyst's picks of a session, kept safe on disk.
 
 Modules: ``session`` (``Session``), ``records`` (picks, shot records, statuses), ``snapshot``
-(the HDF5 file, its format version and loaders), ``journal``, ``lock``, ``files`` (the one
-``atomic_write``), ``frames`` (frame pairs for workers), ``manifest`` and ``importing`` (a
-folder of shots), ``table`` (the CSV of picks). No Qt and no part of the PIV stack.
+(the HDF5 file, its format version, loaders and checksums), ``journal`` and ``replay`` (the
+journal on disk and applied in memory), ``companions`` (the files beside the snapshot),
+``lock``, ``files`` (the one ``atomic_write``), ``frames`` (frame pairs for workers),
+``manifest`` and ``importing`` (a folder of shots), ``table`` (the CSV of picks). No Qt and no
+part of the PIV stack.
 """
 
 from core.store.frames import read_frames
 from core.store.importing import ImportReport, import_folder
-from core.store.lock import SessionLocked
+from core.store.lock import SessionLocked, SessionReadOnly
 from core.store.manifest import MANIFEST_NAME, read_manifest
 from core.store.records import Pick, ProcessState, ReviewStatus, ShotRecord
 from core.store.session import Session, UnknownShot
@@ -24,6 +26,7 @@ __all__ = [
     "ReviewStatus",
     "Session",
     "SessionLocked",
+    "SessionReadOnly",
     "ShotRecord",
     "UnknownShot",
     "import_folder",

@@ -2,10 +2,14 @@
 
 from __future__ import annotations
 
+import contextlib
+import errno
 import hashlib
 import json
 import math
 import os
+import shutil
+import stat
 from collections.abc import Iterator
 from contextlib import contextmanager
 from datetime import UTC, datetime
@@ -41,23 +45,94 @@ def fsync_file(path: Path) -> None:
         os.close(fd)
 
 
+def share_like(path: Path, model: Path) -> None:
+    """Give ``path`` the permissions and group of ``model`` (and its owner where allowed): a
+    session in a shared group folder stays one the group can edit after a save, and so do its
+    journal and pending files. A folder gets search permission where it can be read."""
+    info = model.stat()
+    mode = stat.S_IMODE(info.st_mode)
+    if path.is_dir():
+        mode |= (mode & 0o444) >> 2
+    with contextlib.suppress(OSError):
+        os.chmod(path, mode)
+    try:
+        os.chown(path, info.st_uid, info.st_gid)  # allowed to root only
+    except OSError:
+        with contextlib.suppress(OSError):  # a group the user belongs to
+            os.chown(path, -1, info.st_gid)
+
+
 @contextmanager
-def atomic_write(path, suffix: str = ".tmp") -> Iterator[Path]:
+def atomic_write(path, suffix: str = ".tmp", like: Path | None = None) -> Iterator[Path]:
     """Write a file whole or not at all: yields a temporary path beside ``path`` to write to;
     on leaving the block the file is fsynced and renamed over ``path`` and the rename made
-    durable. On an exception the temporary file is removed and ``path`` is left as it was.
+    durable. The new file keeps the mode and group of the one it replaces (or of ``like``).
+    On an exception the temporary file is removed and ``path`` is left as it was.
     """
     path = Path(path)
     tmp = path.with_name(path.name + suffix)
     tmp.unlink(missing_ok=True)
     try:
         yield tmp
+        model = path if path.exists() else like
+        if model is not None and model.exists():
+            share_like(tmp, model)
         fsync_file(tmp)
         os.replace(tmp, path)
     except BaseException:
         tmp.unlink(missing_ok=True)
         raise
     fsync_dir(path.parent)
+
+
+def same_place(path: Path, other: Path) -> bool:
+    """``path`` names ``other`` (through any link, relative path or hard link) or lies in it."""
+    real, real_other = Path(path).resolve(), Path(other).resolve()
+    if real == real_other or real.is_relative_to(real_other):
+        return True
+    try:
+        return os.path.samefile(path, other)
+    except OSError:
+        return False
+
+
+def write_all(fd: int, data: bytes) -> None:
+    """Write all of ``data`` to an open file descriptor (``os.write`` may write less)."""
+    view = memoryview(data)
+    while view:
+        view = view[os.write(fd, view):]
+
+
+def write_whole(path: Path, data: bytes) -> None:
+    """Write ``data`` as a new file ``path`` (through ``write_all``)."""
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o666)
+    try:
+        write_all(fd, data)
+    except OSError as exc:
+        raise OSError(exc.errno, exc.strerror, str(path)) from None
+    finally:
+        os.close(fd)
+
+
+def reserve_space(path: Path, size: int) -> None:
+    """Make room on disk for ``path`` to grow to ``size`` bytes before HDF5 writes into it.
+
+    HDF5 is left in a broken state when one of its writes fails (a full disk crashed the
+    process at exit), so the room is taken first with ``posix_fallocate``, where a full disk
+    is a plain ``OSError`` naming the file. Where the file system cannot reserve (or the
+    platform has no ``posix_fallocate``), the free space is checked instead.
+    """
+    fd = os.open(path, os.O_RDWR)
+    try:
+        os.posix_fallocate(fd, 0, size)
+    except (AttributeError, OSError) as exc:
+        if isinstance(exc, OSError) and exc.errno not in (errno.EOPNOTSUPP, errno.EINVAL):
+            raise OSError(exc.errno, exc.strerror, str(path)) from None
+        needed = size - os.fstat(fd).st_size
+        if shutil.disk_usage(path.parent).free < needed:
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(path)) from None
+    finally:
+        os.close(fd)
 
 
 def json_ready(value):

@@ -10,6 +10,8 @@ import numpy as np
 
 from core import WakelineError
 from core.store.files import sha256_of
+from core.store.records import damage_reason
+from core.store.snapshot import STORAGE_ERRORS
 
 
 def read_frames(shot_id: str, source: dict) -> tuple[np.ndarray, np.ndarray]:
@@ -22,9 +24,15 @@ def read_frames(shot_id: str, source: dict) -> tuple[np.ndarray, np.ndarray]:
     from core.images import read_frame_pair
 
     if source["storage"] == "embedded":
-        with h5py.File(source["file"], "r") as f:
-            g = f[source["group"]]
-            return g["a"][()].astype(np.float32), g["b"][()].astype(np.float32)
+        try:
+            with h5py.File(source["file"], "r") as f:
+                g = f[source["group"]]
+                return g["a"][()].astype(np.float32), g["b"][()].astype(np.float32)
+        except FileNotFoundError:
+            raise
+        except STORAGE_ERRORS as exc:
+            raise WakelineError(f"shot {shot_id}: frames stored in {source['file']} are damaged "
+                                f"({damage_reason(exc)})") from None
     problem = frame_file_problem(shot_id, source)
     if problem:
         raise WakelineError(problem)

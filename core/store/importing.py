@@ -6,6 +6,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from core import WakelineError
+from core.store.files import sha256_of
 from core.store.manifest import MANIFEST_NAME, read_manifest
 from core.store.session import Session
 
@@ -14,19 +15,23 @@ FRAME_SUFFIXES = (".tif", ".tiff", ".png")
 
 @dataclass
 class ImportReport:
-    """What ``import_folder`` did: imported shot ids, problems (one line each), notes."""
+    """What ``import_folder`` did: imported shot ids, problems (one line each), notes, and the
+    shots already in the session with the same frames and values (left as they are)."""
 
     imported: list[str] = field(default_factory=list)
     problems: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    already: list[str] = field(default_factory=list)
 
 
 def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
-                  should_stop=None) -> ImportReport:
+                  should_stop=None, ball_types=None) -> ImportReport:
     """Import a folder of frame pairs described by its ``shots.csv`` into a session.
 
     The session is created when it does not exist. Good rows are imported even when other rows
-    are bad; each bad row or missing file is reported with its line and shot.
+    are bad; each bad row or missing file is reported with its line and shot. A row whose shot
+    is already in the session with the same frames and values is left alone (a stopped import
+    run again goes on with the rest).
 
     Parameters
     ----------
@@ -40,6 +45,9 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     should_stop : callable() -> bool, optional
         Called before each row; True stops the import there (rows already imported stay, a
         note says how far it got).
+    ball_types : collection of str, optional
+        The ``ball_type`` words the measurement knows (lower case); a row naming another is
+        refused now rather than when it is processed. None: not checked.
 
     Raises
     ------
@@ -52,30 +60,88 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     session = Session.open(session_path) if session_path.exists() else Session.create(session_path)
     report = ImportReport()
     with session:
-        listing = _frame_listing(src_dir)
-        used: set[str] = set()
+        folder = _Folder(src_dir, session, embed, ball_types)
         for number, (line, metadata, problem) in enumerate(rows):
             if should_stop is not None and should_stop():
                 report.notes.append(f"import stopped after {number} of {len(rows)} rows of "
                                     f"{MANIFEST_NAME}; import the folder again for the rest")
-                return report
+                break
             shot_id = metadata.get("shot", "")
             where = f"{MANIFEST_NAME} line {line}" + (f" (shot {shot_id})" if shot_id else "")
-            if not problem:
-                problem = _import_row(session, src_dir, listing, metadata, embed, used)
-            if problem:
+            problem = problem or folder.import_row(metadata)
+            if problem is None:
+                report.already.append(shot_id)
+            elif problem:
                 report.problems.append(f"{where}: {problem}")
             else:
                 report.imported.append(shot_id)
             if on_shot is not None:
-                on_shot(shot_id, not problem, problem)
-        extra = sorted(set(listing) - used)
-        if extra:
-            report.notes.append(f"{len(extra)} image file(s) not named in {MANIFEST_NAME}: "
-                                + ", ".join(listing[k].name for k in extra[:5])
-                                + (" ..." if len(extra) > 5 else ""))
+                on_shot(shot_id, not problem, problem or "")
+        else:
+            report.notes += folder.unused_note()
+        if report.already:
+            report.notes.append(f"{len(report.already)} shot(s) already in {session.path.name} "
+                                "with the same frames and values were left as they are")
+    report.problems += session.problems  # what saving found damaged, if anything
     return report
 
+
+class _Folder:
+    """The image files of a folder being imported, and the rows imported so far."""
+
+    def __init__(self, src_dir: Path, session: Session, embed: bool, ball_types) -> None:
+        self.session, self.embed = session, embed
+        self.ball_types = None if ball_types is None else {t.lower() for t in ball_types}
+        self.listing = _frame_listing(src_dir)
+        self.used: set[str] = set()
+        self.ids = {shot_id.casefold(): shot_id for shot_id in session}  # frame names ignore case
+
+    def import_row(self, metadata: dict) -> str | None:
+        """Add one manifest row's shot: "" when added, None when the session holds it as the
+        row describes it, else the problem."""
+        shot_id = metadata["shot"]
+        ball_type = metadata.get("ball_type")
+        if ball_type and self.ball_types is not None and \
+                ball_type.strip().lower() not in self.ball_types:
+            return (f"ball_type {ball_type!r} is not one this wakeline knows "
+                    f"({', '.join(sorted(self.ball_types))})")
+        twin = self.ids.get(shot_id.casefold())
+        if twin is not None and twin != shot_id:
+            return (f"shot id differs from shot {twin} only in case (frame files are found "
+                    "whatever their case); give it another id")
+        paths, problem = _find_frames(shot_id, self.listing)
+        if problem:
+            return problem
+        self.used.update(p.name.lower() for p in paths)
+        meta = {k: v for k, v in metadata.items() if k != "shot"}
+        if shot_id in self.session:
+            if _same_shot(self.session[shot_id], paths, meta):
+                return None
+            return (f"already in {self.session.path.name} with other frames or values; give "
+                    "it another id")
+        try:
+            self.session.add_shot(shot_id, paths[0], paths[1] if len(paths) > 1 else None, meta,
+                                  self.embed)
+        except WakelineError as exc:
+            return str(exc).removeprefix(f"shot {shot_id}: ")
+        self.ids[shot_id.casefold()] = shot_id
+        return ""
+
+    def unused_note(self) -> list[str]:
+        extra = sorted(set(self.listing) - self.used)
+        if not extra:
+            return []
+        return [f"{len(extra)} image file(s) not named in {MANIFEST_NAME}: "
+                + ", ".join(self.listing[k].name for k in extra[:5])
+                + (" ..." if len(extra) > 5 else "")]
+
+
+def _same_shot(record, paths: list[Path], metadata: dict) -> bool:
+    """The stored shot is this row: the same values and frame files with the same contents."""
+    frames = record.frames
+    sums = [frames.get("sha256_a"), frames.get("sha256_b")]
+    return record.metadata == metadata and len(paths) == 2 - (sums[1] is None) and all(
+        sha256_of(path) == digest for path, digest in zip(paths, sums))
 
 
 def _frame_listing(src_dir: Path) -> dict[str, Path]:
@@ -97,18 +163,3 @@ def _find_frames(shot_id: str, listing: dict[str, Path]) -> tuple[list[Path], st
         which = "b" if pair[1] is None else "a"
         return [], f"frame {shot_id}_{which}.<tif|png> not found"
     return [], f"no frame files {shot_id}_a/_b.<tif|png> or {shot_id}.tif in the folder"
-
-
-def _import_row(session: Session, src_dir, listing, metadata: dict, embed: bool, used) -> str:
-    shot_id = metadata["shot"]
-    paths, problem = _find_frames(shot_id, listing)
-    if problem:
-        return problem
-    used.update(p.name.lower() for p in paths)
-    meta = {k: v for k, v in metadata.items() if k != "shot"}
-    try:
-        session.add_shot(shot_id, paths[0], paths[1] if len(paths) > 1 else None, meta, embed)
-    except WakelineError as exc:
-        return str(exc).removeprefix(f"shot {shot_id}: ")
-    return ""
-

@@ -9,23 +9,25 @@ import os
 from pathlib import Path
 
 from core import WakelineError
-from core.store.files import atomic_write, dumps, fsync_dir
+from core.store.files import atomic_write, dumps, fsync_dir, share_like, write_all
 
 
 class Journal:
     """Append-only JSON lines, one per change, each fsynced before ``append`` returns."""
 
-    def __init__(self, path: Path):
+    def __init__(self, path: Path, like: Path):
         self.path = path
+        self.like = like  # the session file, whose mode and group a new journal takes
         self._fd: int | None = None
 
-    def read(self) -> tuple[list[dict], int]:
-        """Entries of the good prefix and its length in bytes (a torn tail is left out)."""
+    def read(self) -> tuple[list[tuple[int, dict]], int]:
+        """``(line number, entry)`` of the good prefix and its length in bytes (a torn tail is
+        left out)."""
         try:
             data = self.path.read_bytes()
         except FileNotFoundError:
             return [], 0
-        entries: list[dict] = []
+        entries: list[tuple[int, dict]] = []
         good = 0
         bad_line = None
         for number, line in enumerate(data.split(b"\n")[:-1], start=1):
@@ -34,10 +36,15 @@ class Journal:
                 bad_line = bad_line or number
                 continue
             if bad_line is not None:
-                raise WakelineError(f"{self.path}: line {bad_line} is damaged (entries follow it)")
-            entries.append(entry)
+                raise self.damaged(bad_line, "not a whole entry, and entries follow it")
+            entries.append((number, entry))
             good += len(line) + 1
         return entries, good
+
+    def damaged(self, number: int, why: str) -> WakelineError:
+        """The one-line report of a damaged line (it cannot come from a kill)."""
+        return WakelineError(f"{self.path}: line {number} is damaged ({why}); nothing was "
+                             "changed: move the journal aside to open the session as last saved")
 
     def truncate(self, length: int) -> None:
         if self.path.exists() and self.path.stat().st_size != length:
@@ -53,17 +60,16 @@ class Journal:
             created = not self.path.exists()
             self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
             if created:
+                share_like(self.path, self.like)
                 fsync_dir(self.path.parent)
         start = os.lseek(self._fd, 0, os.SEEK_END)
         try:
-            view = memoryview(line)
-            while view:
-                view = view[os.write(self._fd, view):]
+            write_all(self._fd, line)
             os.fsync(self._fd)
-        except OSError:
+        except OSError as exc:
             # e.g. disk full: drop the partial line so the next append starts a clean line
             os.ftruncate(self._fd, start)
-            raise
+            raise OSError(exc.errno, exc.strerror, str(self.path)) from None
 
     def rewrite(self, entries: list[dict]) -> None:
         """Replace the journal by ``entries``, whole or not at all."""

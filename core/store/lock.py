@@ -14,11 +14,16 @@ import threading
 from pathlib import Path
 
 from core import WakelineError
-from core.store.files import now_utc
+from core.store.files import now_utc, write_all, write_whole
 
 
 class SessionLocked(WakelineError):
-    """The session is open for writing in another process."""
+    """The session cannot be opened for writing here: another process has it open for writing
+    (or, ``SessionReadOnly``, its file is read-only); it can be opened read-only."""
+
+
+class SessionReadOnly(SessionLocked):
+    """The session file is read-only: open it read-only."""
 
 
 
@@ -86,17 +91,22 @@ class Lock:
             try:
                 created = self._try_create(me)
             except PermissionError:
-                raise WakelineError(f"{self.session_path}: its folder is not writable; open the "
-                                    "session read-only") from None
+                raise SessionReadOnly(f"{self.session_path}: its folder is not writable; open "
+                                      "the session read-only") from None
+            except OSError as exc:  # e.g. a full disk
+                raise WakelineError(f"{self.path}: cannot write the session lock "
+                                    f"({exc.strerror or exc})") from None
             if created:
                 self.held = True
                 return
             holder = self._read()
             if holder is not None and not self._stale(holder):
+                elsewhere = holder.get("host") != socket.gethostname()
                 raise SessionLocked(
                     f"{self.session_path}: open for writing by {holder.get('user', '?')} "
                     f"(pid {holder.get('pid')} on {holder.get('host')} since "
                     f"{holder.get('since')}); open it read-only or close it there"
+                    + (f", or delete {self.path} if that machine is gone" if elsewhere else "")
                 )
             self._remove_stale(holder)
         raise SessionLocked(f"{self.path}: could not take the session lock")
@@ -121,22 +131,34 @@ class Lock:
 
     def _try_create(self, info: dict) -> bool:
         tmp = self.path.with_name(f"{self.path.name}.{os.getpid()}.{threading.get_ident()}")
-        tmp.write_text(json.dumps(info))
+        text = json.dumps(info).encode("utf-8")
+        try:
+            write_whole(tmp, text)  # a full disk fails here, before the lock exists
+        except OSError:
+            tmp.unlink(missing_ok=True)
+            raise
         try:
             os.link(tmp, self.path)
             return True
         except FileExistsError:
             return False
-        except OSError:  # file systems without hard links
-            try:
-                fd = os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL)
-            except FileExistsError:
-                return False
-            with os.fdopen(fd, "w") as fh:
-                fh.write(json.dumps(info))
-            return True
+        except OSError:
+            pass  # a file system without hard links
         finally:
             tmp.unlink(missing_ok=True)
+        # A file system without hard links: created exclusively, then written.
+        try:
+            fd = os.open(self.path, os.O_WRONLY | os.O_CREAT | os.O_EXCL)
+        except FileExistsError:
+            return False
+        try:
+            write_all(fd, text)
+        except OSError:
+            self.path.unlink(missing_ok=True)
+            raise
+        finally:
+            os.close(fd)
+        return True
 
     def _read(self) -> dict | None:
         try:

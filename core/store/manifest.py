@@ -32,10 +32,14 @@ def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
         raise WakelineError(f"{path}: not UTF-8 text") from None
     reader = csv.reader(io.StringIO(text, newline=""))
     header = [h.strip() for h in next(reader, [])]
+    for number, name in enumerate(header, start=1):
+        if name and name in header[:number - 1]:
+            raise WakelineError(f"{path}: column {name!r} appears twice (columns "
+                                f"{header.index(name) + 1} and {number}); keep one")
     missing = [c for c in REQUIRED_COLUMNS if c not in header]
     if missing:
         raise WakelineError(f"{path}: missing column{'s' if len(missing) > 1 else ''} "
-                            + ", ".join(repr(c) for c in missing))
+                            + ", ".join(repr(c) for c in missing) + _separator_hint(header))
     rows = []
     end_of_last = reader.line_num
     for cells in _csv_rows(reader, path):
@@ -50,6 +54,17 @@ def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
         metadata, problem = _row_metadata(values)
         rows.append((line, metadata, problem))
     return rows
+
+
+def _separator_hint(header: list[str]) -> str:
+    """Why the columns may be missing: a header of one cell holding another separator (a
+    spreadsheet saved with ';' where the decimal mark is a comma, or tabs)."""
+    if len(header) == 1:
+        for separator, name in ((";", "';'"), ("\t", "tabs")):
+            if separator in header[0]:
+                return (f" (the header is separated by {name}; {MANIFEST_NAME} must be "
+                        "comma-separated, with '.' as the decimal mark)")
+    return ""
 
 
 def _csv_rows(reader, path: Path):

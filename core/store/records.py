@@ -51,10 +51,17 @@ class Pick:
 
     @classmethod
     def from_dict(cls, data: dict) -> Pick:
+        """A stored pick; raises ValueError or TypeError when a value has the wrong kind."""
         known = {f.name for f in fields(cls)}
         values = {k: v for k, v in data.items() if k in known}
         if "status" in values:
             values["status"] = ReviewStatus(values["status"])
+        for key, value in values.items():
+            if key.endswith("_deg") and value is not None and (
+                    isinstance(value, bool) or not isinstance(value, (int, float))):
+                raise TypeError(f"pick {key} {value!r} is not a number")
+            if key in ("reason", "note", "who", "when") and not isinstance(value, str):
+                raise TypeError(f"pick {key} {value!r} is not text")
         return cls(**values)
 
 
@@ -108,10 +115,12 @@ def _checked_side(side: str) -> str:
     return side
 
 
-def check_shot_id(shot_id: str) -> None:
+def check_shot_id(shot_id: str, error=WakelineError) -> None:
+    """Refuse a shot id that is not non-empty text without surrounding spaces (``error``: the
+    exception to raise; a stored entry's bad id is damage, a ValueError)."""
     if not isinstance(shot_id, str) or not shot_id.strip() or shot_id != shot_id.strip():
-        raise WakelineError(f"shot {shot_id!r}: a shot id must be non-empty text without "
-                            "leading or trailing spaces")
+        raise error(f"shot {shot_id!r}: a shot id must be non-empty text without "
+                    "leading or trailing spaces")
 
 
 def checked_angle(shot_id: str, side: str, value) -> float | None:
@@ -140,3 +149,13 @@ def check_pick(shot_id: str, pick: Pick) -> None:
         raise WakelineError(f"shot {shot_id}: marking a shot unusable needs a reason")
     if pick.status == ReviewStatus.ADJUSTED and pick.upper_deg is None and pick.lower_deg is None:
         raise WakelineError(f"shot {shot_id}: an adjusted pick needs an upper or lower angle")
+
+
+def damage_reason(exc: Exception) -> str:
+    """A few words on why a hand-damaged entry could not be read (for a one-line report)."""
+    if isinstance(exc, KeyError):  # a missing key, or h5py's text for an unreadable object
+        if exc.args and isinstance(exc.args[0], str) and " " in exc.args[0]:
+            return exc.args[0]
+        return f"no {exc.args[0]!r}" if exc.args else "a key is missing"
+    text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+    return text

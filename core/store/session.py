@@ -36,7 +36,13 @@ import numpy as np
 
 from core import WakelineError, __version__
 from core.shot import ShotResult, ShotSettings
-from core.store.files import atomic_write, json_ready, now_utc, sha256_of
+from core.store.companions import (
+    check_replaceable,
+    companion_files,
+    remove_companions,
+    session_path,
+)
+from core.store.files import atomic_write, json_ready, now_utc, sha256_of, share_like, write_whole
 from core.store.frames import frame_file_problem, read_frames
 from core.store.journal import Journal
 from core.store.lock import Lock, user_name
@@ -49,17 +55,21 @@ from core.store.records import (
     check_shot_id,
     checked_angle,
     checked_status,
+    damage_reason,
 )
+from core.store.replay import JournalReplay
 from core.store.snapshot import (
+    STORAGE_ERRORS,
     Place,
     Snapshot,
     SnapshotWriting,
     check_signature,
     file_identity,
+    h5_image,
+    identity_of,
     read_snapshot,
     record_from_index,
     shot_key,
-    summary_from,
     write_frames_group,
     write_result_group,
 )
@@ -77,24 +87,15 @@ class UnknownShot(WakelineError, KeyError):
         return str(self.args[0]) if self.args else ""
 
 
-def companion_files(path: Path) -> dict[str, Path]:
-    """The files that belong to the session ``path`` besides the snapshot and its lock."""
-    return {
-        "journal": path.with_name(path.name + ".journal"),
-        "pending": path.with_name(path.name + ".pending"),
-        "snapshot_tmp": path.with_name(path.name + ".tmp"),
-    }
+def _change_words(entry: dict) -> str:
+    """A journal entry in words, for a message saying it was not saved."""
+    shot = entry.get("shot")
+    return {"add_shot": f"shot {shot}", "result": f"the result of shot {shot}",
+            "failure": f"the failure of shot {shot}", "pick": f"the edit of shot {shot}",
+            }.get(entry["op"], "the processing settings")
 
 
-def _remove_companions(path: Path) -> None:
-    """Remove the journal, the pending arrays and a half-written snapshot (not the lock)."""
-    files = companion_files(path)
-    for name in ("journal", "snapshot_tmp"):
-        files[name].unlink(missing_ok=True)
-    shutil.rmtree(files["pending"], ignore_errors=True)
-
-
-class Session(SnapshotWriting, Mapping):
+class Session(SnapshotWriting, JournalReplay, Mapping):
     """An open session. Use ``Session.create`` / ``Session.open``, or ``with Session.open(p):``.
 
     A read-only mapping of shot id -> ``ShotRecord`` (a copy; import order): ``shot_id in
@@ -114,7 +115,7 @@ class Session(SnapshotWriting, Mapping):
         self._lock = lock
         self._mutex = threading.RLock()
         files = companion_files(path)
-        self._journal = Journal(files["journal"])
+        self._journal = Journal(files["journal"], path)
         self._pending_dir = files["pending"]
         self._snapshot_seq = snapshot.last_seq
         self._seq = snapshot.last_seq
@@ -126,11 +127,21 @@ class Session(SnapshotWriting, Mapping):
         self._runs = 0  # batch runs in progress (``batch_run``); see compact()
         self._touched: set[str] = set()  # shots changed since the snapshot
         self._unused_bytes = snapshot.unused_bytes  # dead space left by replaced arrays
-        for entry in snapshot.shots:
-            self._records[entry["shot_id"]] = record_from_index(entry)
-            self._places[entry["shot_id"]] = Place(
+        self._checksummed = snapshot.checksummed
+        self._identity = None  # of the snapshot file read or last written (file_identity)
+        self._folder_given = path.parent  # the folder as the caller named it (see _relative)
+        #: One line per damaged or lost part of a shot found while saving (see compact).
+        self.problems: list[str] = []
+        for number, entry in enumerate(snapshot.shots, start=1):
+            try:
+                rec = record_from_index(entry)
+            except (KeyError, TypeError, ValueError, AttributeError) as exc:
+                raise WakelineError(f"{path}: damaged session index (entry {number}: "
+                                    f"{damage_reason(exc)})") from None
+            self._records[rec.shot_id] = rec
+            self._places[rec.shot_id] = Place(
                 result="snapshot" if entry.get("has_result") else None,
-                frames="snapshot" if entry.get("frames", {}).get("storage") == "embedded" else None,
+                frames="snapshot" if rec.frames.get("storage") == "embedded" else None,
             )
 
     # -- opening and closing -------------------------------------------------------------------
@@ -138,7 +149,7 @@ class Session(SnapshotWriting, Mapping):
     @classmethod
     def create(cls, path, name: str = "") -> Session:
         """Create a new empty session file and open it for writing."""
-        path = Path(path)
+        given, path = path, session_path(path)
         if path.exists():
             raise WakelineError(f"{path}: already exists")
         if not path.parent.is_dir():
@@ -146,13 +157,14 @@ class Session(SnapshotWriting, Mapping):
         lock = Lock(path)
         lock.acquire()
         try:
-            _remove_companions(path)
+            remove_companions(path)
             snapshot = Snapshot(name=name or path.stem, created_utc=now_utc())
             session = cls(path, snapshot, True, lock)
             session._write_snapshot()
         except BaseException:
             lock.release()
             raise
+        session._folder_given = Path(os.path.abspath(given)).parent
         return session
 
     @classmethod
@@ -166,17 +178,24 @@ class Session(SnapshotWriting, Mapping):
         WakelineError
             When the file is missing, truncated or not a wakeline session.
         """
-        path = Path(path)
+        given, path = path, session_path(path)
         lock = Lock(path) if writable else None
         if lock is not None:
             check_signature(path)
+            check_replaceable(path)
             lock.acquire()
         try:
             session = cls._load(path, writable, lock)
+        except OSError as exc:  # e.g. a full disk while tidying what a killed writer left
+            if lock is not None:
+                lock.release()
+            raise WakelineError(f"{exc.filename or path}: cannot open the session for writing "
+                                f"({exc.strerror or exc})") from None
         except BaseException:
             if lock is not None:
                 lock.release()
             raise
+        session._folder_given = Path(os.path.abspath(given)).parent
         return session
 
     @classmethod
@@ -188,6 +207,7 @@ class Session(SnapshotWriting, Mapping):
             session = cls(path, read_snapshot(path), writable, lock)
             session._replay_journal()
             if writable or file_identity(path) == before:
+                session._identity = before
                 return session
         raise WakelineError(f"{path}: keeps changing while being read; try again")
 
@@ -316,13 +336,20 @@ class Session(SnapshotWriting, Mapping):
                 return None
             file, group = self._array_location(place, shot_id, "result")
             try:
-                with h5py.File(file, "r") as f:
+                with self._arrays_file(file) as f:
                     g = f[group]
                     arrays = {name: g[name][()] for name in g}
-            except FileNotFoundError:  # only a reader: the writer has compacted since
+                return ShotResult.from_stored(rec.summary.to_dict(), arrays)
+            except FileNotFoundError:
+                if not self.read_only:
+                    raise WakelineError(f"shot {shot_id}: result arrays lost (pending file "
+                                        f"{place} missing); process the shot again") from None
+                # a reader: the writer has compacted since and removed the pending file
                 raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
                                     "reopen the session") from None
-            return ShotResult.from_stored(rec.summary.to_dict(), arrays)
+            except STORAGE_ERRORS as exc:
+                raise WakelineError(f"shot {shot_id}: result stored in {file} is damaged "
+                                    f"({damage_reason(exc)}); process the shot again") from None
 
     def history(self, shot_id: str) -> list[Pick]:
         """Every pick edit of a shot, oldest first."""
@@ -330,7 +357,11 @@ class Session(SnapshotWriting, Mapping):
             self._get(shot_id)
             place = self._places[shot_id]
             if place.snapshot_history is None:
-                place.snapshot_history = self._read_snapshot_history(shot_id)
+                try:
+                    place.snapshot_history = self._read_snapshot_history(shot_id)
+                except STORAGE_ERRORS as exc:
+                    raise WakelineError(f"shot {shot_id}: edit history stored in {self.path} is "
+                                        f"damaged ({damage_reason(exc)})") from None
             return [replace(p) for p in place.snapshot_history + place.history]
 
     # -- writing -------------------------------------------------------------------------------
@@ -348,8 +379,10 @@ class Session(SnapshotWriting, Mapping):
             check_shot_id(shot_id)
             if shot_id in self._records:
                 raise WakelineError(f"shot {shot_id}: already in {self.path.name}")
-            path_a = Path(frame_a_path).resolve()
-            path_b = None if frame_b_path is None else Path(frame_b_path).resolve()
+            # Kept by the path given, links and all (not resolved to where a link points):
+            # a linked folder stands for the frames where the lab keeps them.
+            path_a = Path(os.path.abspath(frame_a_path))
+            path_b = None if frame_b_path is None else Path(os.path.abspath(frame_b_path))
             frame_a, frame_b = read_frame_pair(path_a, path_b)
             frames = {
                 "storage": "embedded" if embed else "files",
@@ -362,7 +395,8 @@ class Session(SnapshotWriting, Mapping):
             seq = self._seq + 1
             pending = None
             if embed:
-                pending = self._write_pending(seq, lambda f: write_frames_group(f, frame_a, frame_b))
+                pending = self._write_pending(seq, f"shot {shot_id}",
+                                              lambda f: write_frames_group(f, frame_a, frame_b))
             entry = {"op": "add_shot", "shot": shot_id, "metadata": dict(metadata or {}),
                      "frames": frames, "pending": pending, "t": now_utc()}
             self._commit(entry)
@@ -388,7 +422,8 @@ class Session(SnapshotWriting, Mapping):
             seq = self._seq + 1
             summary = ShotSummary.from_dict(json_ready(result.summary()))
             arrays = result.arrays()
-            pending = self._write_pending(seq, lambda f: write_result_group(f, summary, arrays))
+            pending = self._write_pending(seq, f"the result of shot {shot_id}",
+                                          lambda f: write_result_group(f, summary, arrays))
             self._commit({
                 "op": "result", "shot": shot_id, "summary": summary.to_dict(),
                 "summary_version": summary.version, "pending": pending,
@@ -484,20 +519,29 @@ class Session(SnapshotWriting, Mapping):
         SessionLocked
             When another live process has the session open for writing.
         """
-        path = Path(path)
+        path = session_path(path)
         lock = Lock(path)
         lock.acquire()
         try:
             path.unlink(missing_ok=True)
-            _remove_companions(path)
+            remove_companions(path)
         finally:
             lock.release()
 
     def compact(self) -> None:
-        """Write a new snapshot holding everything, replace the old one, then drop the journal."""
+        """Write a new snapshot holding everything, replace the old one, then drop the journal.
+
+        Raises
+        ------
+        WakelineError
+            When the snapshot cannot be written (a full disk): every change stays in the
+            journal, and the next compaction (or opening the session) tries again.
+        """
         with self._mutex:
             self._check_writable()
-            self._write_snapshot()
+            with self._saving("the session file", f"every change is kept in "
+                              f"{self._journal.path.name}; free some space and save again"):
+                self._write_snapshot()
             self._journal.remove()
             if not self._runs:  # a running batch's workers may still read pending frames
                 shutil.rmtree(self._pending_dir, ignore_errors=True)
@@ -505,76 +549,55 @@ class Session(SnapshotWriting, Mapping):
 
     # -- internals: journal --------------------------------------------------------------------
 
+    @contextmanager
+    def _saving(self, what: str, advice: str = "free some space and try again") -> Iterator[None]:
+        """A write that fails (a full disk, no permission) becomes one line naming the session
+        and the file; what was confirmed before stays as it was, in memory and on disk."""
+        try:
+            yield
+        except OSError as exc:
+            reason = exc.strerror or str(exc).splitlines()[0]
+            if exc.filename:
+                reason += f", writing {Path(exc.filename).name}"
+            raise WakelineError(f"{self.path}: could not save {what} ({reason}); "
+                                f"{advice}") from None
+
     def _commit(self, *entries: dict) -> None:
-        """Append changes to the journal (durable on return), then apply them in memory."""
+        """Append changes to the journal (all durable on return, one write), then apply them
+        in memory."""
         entries = [{"seq": self._seq + n, **entry} for n, entry in enumerate(entries, start=1)]
-        self._journal.append(*entries)
+        what = _change_words(entries[0]) if len(entries) == 1 else f"{len(entries)} edits"
+        with self._saving(what):
+            self._journal.append(*entries)
         for entry in entries:
             self._seq = entry["seq"]
             self._apply(entry)
         self._dirty = True
 
-    def _replay_journal(self) -> None:
-        entries, good_length = self._journal.read()
-        live = [e for e in entries if e["seq"] > self._snapshot_seq]
-        for entry in live:
-            self._apply(entry)
-            self._seq = max(self._seq, entry["seq"])
-        self._dirty = bool(live)
-        if self.read_only:
-            return
-        if len(live) != len(entries):  # left from a compaction killed before it dropped them
-            self._journal.rewrite(live)
-        else:
-            self._journal.truncate(good_length)
-        self._remove_orphans({e.get("pending") for e in live} - {None})
-
-    def _remove_orphans(self, referenced: set[str]) -> None:
-        """Delete files a killed writer left behind: temporary snapshot, unreferenced arrays."""
-        companion_files(self.path)["snapshot_tmp"].unlink(missing_ok=True)
-        if self._pending_dir.is_dir():
-            for item in self._pending_dir.iterdir():
-                if item.name not in referenced:
-                    item.unlink(missing_ok=True)
-
-    def _apply(self, entry: dict) -> None:
-        op = entry["op"]
-        if op == "settings":
-            self._processing = dict(entry["settings"])
-            return
-        shot_id = entry["shot"]
-        self._touched.add(shot_id)
-        if op == "add_shot":
-            self._records[shot_id] = ShotRecord(shot_id, dict(entry["metadata"]),
-                                                frames=dict(entry["frames"]))
-            self._places[shot_id] = Place(frames=entry.get("pending"))
-            return
-        rec, place = self._records[shot_id], self._places[shot_id]
-        if op == "result":
-            rec.state, rec.failure = ProcessState.PROCESSED, ""
-            rec.summary = summary_from(entry["summary"], entry.get("summary_version"))
-            rec.fingerprint, rec.software_version = entry["fingerprint"], entry["version"]
-            rec.processed_utc = entry["t"]
-            place.result = entry["pending"]
-        elif op == "failure":
-            rec.state, rec.failure = ProcessState.FAILED, entry["reason"]
-            rec.fingerprint = entry["fingerprint"]
-            rec.software_version, rec.processed_utc = entry["version"], entry["t"]
-        elif op == "pick":
-            rec.pick = Pick.from_dict(entry["pick"])
-            place.history.append(replace(rec.pick))
-        else:
-            raise WakelineError(f"{self._journal.path}: unknown entry '{op}' (newer wakeline?)")
-
-    def _write_pending(self, seq: int, write) -> str:
+    def _write_pending(self, seq: int, what: str, write) -> str:
         """Write arrays to ``S.h5.pending/<seq>.h5`` whole (temporary name, fsync, rename)."""
-        self._pending_dir.mkdir(exist_ok=True)
+        with self._saving(what):
+            if not self._pending_dir.is_dir():
+                self._pending_dir.mkdir()
+                share_like(self._pending_dir, self.path)
         name = f"{seq:09d}.h5"
-        with atomic_write(self._pending_dir / name) as tmp, h5py.File(tmp, "w") as f:
-            write(f)
+        image = h5_image(write)
+        with self._saving(what), atomic_write(self._pending_dir / name, like=self.path) as tmp:
+            write_whole(tmp, image)
         return name
 
     # -- internals: misc -----------------------------------------------------------------------
+
+    @contextmanager
+    def _arrays_file(self, file: Path) -> Iterator[h5py.File]:
+        """Open the snapshot or a pending file to read arrays. The snapshot must be the one this
+        session read (a reader's writer may have replaced it since): its arrays would belong to
+        other summaries and histories than those in memory."""
+        with h5py.File(file, "r") as f:
+            if file == self.path and identity_of(os.fstat(f.id.get_vfd_handle())) != self._identity:
+                raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
+                                    "reopen the session")
+            yield f
 
     def _array_location(self, place: str, shot_id: str, kind: str) -> tuple[Path, str]:
         if place == "snapshot":
@@ -594,11 +617,16 @@ class Session(SnapshotWriting, Mapping):
             raise WakelineError(f"{self.path}: opened read-only")
 
     def _relative(self, path: Path) -> str:
+        """A frame's path relative to the session's folder, links kept: a frame under the
+        folder as the session was named (through a link, say) is relative to that."""
+        for folder in (self._folder_given, self.path.parent):
+            if path.is_relative_to(folder):
+                return path.relative_to(folder).as_posix()
         try:
-            return Path(os.path.relpath(path, self.path.resolve().parent)).as_posix()
+            return Path(os.path.relpath(path, self.path.parent)).as_posix()
         except ValueError:  # another drive
             return path.as_posix()
 
     def _resolve(self, stored: str) -> Path:
-        return (self.path.resolve().parent / stored).resolve()
+        return (self.path.parent / stored).resolve()
 

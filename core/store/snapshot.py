@@ -5,8 +5,13 @@ renamed into place (layout in docs/session_format.md).
 
 from __future__ import annotations
 
+import contextlib
+import hashlib
 import json
+import os
+import re
 import shutil
+import uuid
 from dataclasses import dataclass, field, fields
 from pathlib import Path
 from urllib.parse import quote
@@ -15,13 +20,18 @@ import h5py
 import numpy as np
 
 from core import WakelineError, __version__
-from core.store.files import atomic_write, dumps, now_utc
+from core.store.files import atomic_write, dumps, now_utc, reserve_space, write_whole
 from core.store.manifest import NUMBER_COLUMNS
-from core.store.records import Pick, ProcessState, ShotRecord
+from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id, damage_reason
 from core.summary import ShotSummary
 
 FORMAT_VERSION = 1
 _HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+#: HDF5 object layout of the files written: from 1.10 on, object headers (attributes, links,
+#: a dataset's layout and filters), the superblock and chunk indexes carry checksums.
+LIBVER = ("v110", "v110")
+#: What h5py raises on a damaged or missing object (checksum failures included).
+STORAGE_ERRORS = (OSError, KeyError, ValueError, RuntimeError)
 _MAX_UNUSED_FRACTION = 0.25  # rewrite the snapshot whole beyond this much dead space
 
 
@@ -36,6 +46,55 @@ class Snapshot:
     processing: dict = field(default_factory=dict)
     shots: list[dict] = field(default_factory=list)  # index entries, see _index_entry
     unused_bytes: int = 0
+    checksummed: bool = False  # written with checksums (Fletcher-32 arrays, SHA-256 texts)
+
+
+def h5_image(write=None) -> bytes:
+    """The bytes of an HDF5 file built in memory by ``write(f)`` (an empty file without).
+
+    Files are built in memory, or into room reserved beforehand (``reserve_space``), because
+    HDF5 cannot recover from a failed write (a full disk); Python writes the bytes instead.
+    """
+    name = f"wakeline-{uuid.uuid4().hex}.h5"  # core driver, nothing on disk
+    with h5py.File(name, "w", driver="core", backing_store=False, libver=LIBVER) as f:
+        if write is not None:
+            write(f)
+        f.flush()
+        return f.id.get_file_image()
+
+
+def text_sha256(items) -> str:
+    """SHA-256 of text items (str or UTF-8 bytes), each followed by a newline."""
+    digest = hashlib.sha256()
+    for item in items:
+        digest.update(item.encode("utf-8") if isinstance(item, str) else bytes(item))
+        digest.update(b"\n")
+    return digest.hexdigest()
+
+
+def _root_texts(attrs) -> list[str]:
+    """The root attributes a reader relies on that HDF5 keeps outside checksummed headers."""
+    return [str(attrs.get(key, "")) for key in ("name", "created_utc", "processing_settings")]
+
+
+def write_text(group: h5py.Group, name: str, data, extra=()) -> None:
+    """A UTF-8 text dataset (one string, or a list of lines) with the SHA-256 of its content
+    (and of ``extra`` texts) in its ``sha256`` attribute: HDF5 cannot filter variable-length
+    strings, so Fletcher-32 cannot guard them."""
+    ds = group.create_dataset(name, data=data, dtype=h5py.string_dtype())
+    items = [data] if isinstance(data, str) else list(data)
+    ds.attrs["sha256"] = text_sha256([*items, *extra])
+
+
+def read_text(ds: h5py.Dataset, extra=()):
+    """A text dataset's value (bytes, or an array of bytes), checked against its ``sha256``
+    (files written before checksums have none). Raises ValueError on a mismatch."""
+    value = ds[()]
+    expected = ds.attrs.get("sha256")
+    items = [value] if isinstance(value, bytes) else list(value)
+    if expected is not None and text_sha256([*items, *extra]) != as_text(expected):
+        raise ValueError(f"{ds.name.lstrip('/')} checksum differs")
+    return value
 
 
 def read_snapshot(path: Path) -> Snapshot:
@@ -62,10 +121,14 @@ def read_snapshot(path: Path) -> Snapshot:
 
 
 def file_identity(path: Path) -> tuple[int, int, int] | None:
+    """What tells one snapshot file from the next (it is only ever replaced, never modified)."""
     try:
-        info = path.stat()
+        return identity_of(path.stat())
     except OSError:
         return None
+
+
+def identity_of(info: os.stat_result) -> tuple[int, int, int]:
     return info.st_ino, info.st_size, info.st_mtime_ns
 
 
@@ -75,14 +138,14 @@ def check_signature(path: Path) -> None:
             head = fh.read(8)
     except FileNotFoundError:
         raise WakelineError(f"{path}: session file not found") from None
-    if len(head) < 8:
+    if len(head) < 8 and _HDF5_SIGNATURE.startswith(head):
         raise WakelineError(f"{path}: damaged or truncated session file ({len(head)} bytes)")
     if head != _HDF5_SIGNATURE:
         raise WakelineError(f"{path}: not a wakeline session (not an HDF5 file)")
 
 
 def _load_v1(f: h5py.File) -> Snapshot:
-    index = json.loads(as_text(f["index"][()]))
+    index = json.loads(as_text(read_text(f["index"], _root_texts(f.attrs))))
     return Snapshot(
         name=str(f.attrs.get("name", "")),
         created_utc=str(f.attrs.get("created_utc", "")),
@@ -90,6 +153,7 @@ def _load_v1(f: h5py.File) -> Snapshot:
         processing=json.loads(str(f.attrs.get("processing_settings", "{}"))),
         shots=list(index["shots"]),
         unused_bytes=int(f.attrs.get("unused_bytes", 0)),
+        checksummed="sha256" in f["index"].attrs,
     )
 
 
@@ -110,6 +174,16 @@ class Place:
 
 
 
+def pending_name(value, optional: bool = False) -> str | None:
+    """A pending file name from a journal line (``NNNNNNNNN.h5``), checked: a hand-edited line
+    must not point outside the pending folder."""
+    if value is None and optional:
+        return None
+    if not (isinstance(value, str) and re.fullmatch(r"\d+\.h5", value)):
+        raise ValueError(f"pending file {value!r} is not a pending file name")
+    return value
+
+
 def shot_key(shot_id: str) -> str:
     """HDF5 group name for a shot id (no '/' and no leading '.')."""
     return quote(shot_id, safe=" -_+=,()[]{}@#!~").replace(".", "%2E")
@@ -122,30 +196,51 @@ def _units_of(name: str) -> str:
     return "1"
 
 
-def write_array(group: h5py.Group, name: str, data: np.ndarray) -> None:
+def write_array(group: h5py.Group, name: str, data: np.ndarray, compress: bool | None = None,
+                units: str | None = None) -> None:
+    """An array with HDF5's Fletcher-32 checksum on each chunk (damage is found on reading).
+
+    Flags and counts shrink many times under gzip; measured noisy floats barely shrink (~15 %)
+    for five times the write time, so they are stored plain unless ``compress``.
+    """
     data = np.asarray(data)
-    # Flags and counts shrink many times under gzip; measured noisy floats barely shrink (~15 %)
-    # for five times the write time, so they are stored plain.
-    packable = data.dtype.kind in "biu" and data.size >= 256
-    options = {"compression": "gzip", "compression_opts": 1, "shuffle": True} if packable else {}
+    if compress is None:
+        compress = data.dtype.kind in "biu" and data.size >= 256
+    options = {"compression": "gzip", "compression_opts": 1, "shuffle": True} if compress else {}
+    if data.ndim and data.size:  # checksums live in chunks; a scalar or empty array has none
+        options["fletcher32"] = True
     ds = group.create_dataset(name, data=data, **options)
-    ds.attrs["units"] = _units_of(name)
+    ds.attrs["units"] = units or _units_of(name)
+
+
+def copy_array(src: h5py.Dataset, dst: h5py.Group, name: str) -> None:
+    """Copy a stored array into another file as it is stored; one written before checksums is
+    rewritten with one."""
+    if src.fletcher32 or not (src.ndim and src.size):
+        src.file.copy(src, dst, name=name)
+        return
+    write_array(dst, name, src[()], compress=src.compression is not None,
+                units=as_text(src.attrs.get("units", "1")))
 
 
 
-def stored_bytes(group: h5py.Group) -> int:
-    """Bytes of dataset storage under ``group``."""
+def stored_bytes(parent: h5py.Group, name: str) -> int | None:
+    """Bytes of dataset storage under ``parent[name]``; None when a damaged object hides them."""
     sizes = []
-    group.visititems(lambda _, obj: sizes.append(
-        obj.id.get_storage_size() if isinstance(obj, h5py.Dataset) else 0))
+    try:
+        parent[name].visititems(lambda _, obj: sizes.append(
+            obj.id.get_storage_size() if isinstance(obj, h5py.Dataset) else 0))
+    except STORAGE_ERRORS:
+        return None
     return sum(sizes)
 
 
 def history_in(f: h5py.File, shot_id: str) -> list[Pick]:
+    """A shot's stored edits; raises one of ``STORAGE_ERRORS`` when they are damaged."""
     key = f"shots/{shot_key(shot_id)}/history"
     if key not in f:
         return []
-    return [Pick.from_dict(json.loads(as_text(x))) for x in f[key][()]]
+    return [Pick.from_dict(json.loads(as_text(x))) for x in read_text(f[key])]
 
 
 def as_text(value) -> str:
@@ -171,8 +266,14 @@ def index_entry(rec: ShotRecord, place: Place) -> dict:
 
 
 def record_from_index(entry: dict) -> ShotRecord:
+    """A shot's record from its index entry; KeyError, TypeError, ValueError or AttributeError
+    when the entry is malformed."""
     known = {f.name for f in fields(ShotRecord)}
     data = {k: v for k, v in entry.items() if k in known}
+    check_shot_id(data["shot_id"], ValueError)
+    for key in ("metadata", "frames"):
+        if not isinstance(data.get(key, {}), dict):
+            raise TypeError(f"{key} is not a mapping")
     data["state"] = ProcessState(data.get("state", ProcessState.UNPROCESSED))
     data["pick"] = Pick.from_dict(entry.get("pick") or {})
     data["summary"] = summary_from(entry.get("summary"), entry.get("summary_version"))
@@ -202,9 +303,7 @@ def write_frames_group(f: h5py.File, frame_a: np.ndarray, frame_b: np.ndarray) -
         data = np.asarray(frame)
         if np.all(data == np.rint(data)) and data.min() >= 0 and data.max() <= 65535:
             data = data.astype(np.uint16)
-        ds = g.create_dataset(name, data=data, compression="gzip", compression_opts=1,
-                              shuffle=True, chunks=True)
-        ds.attrs["units"] = "counts"
+        write_array(g, name, data, compress=True, units="counts")
 
 
 # -- writing --------------------------------------------------------------------------------
@@ -218,16 +317,22 @@ class SnapshotWriting:
     def _write_snapshot(self) -> None:
         """Write the next snapshot aside, make it durable, then put it in place."""
         with atomic_write(self.path) as tmp:
-            if self._patchable():
+            patch = self._patchable()
+            if patch:
                 # A byte copy is many times faster than copying object by object; only the
                 # shots changed since the last snapshot are then rebuilt inside the copy.
                 shutil.copyfile(self.path, tmp)
-                with h5py.File(tmp, "a") as dst:
-                    self._patch_snapshot(dst)
             else:
-                with h5py.File(tmp, "w") as dst:
+                write_whole(tmp, h5_image())
+            reserve_space(tmp, self._snapshot_room())
+            with h5py.File(tmp, "r+", libver=LIBVER) as dst:
+                if patch:
+                    self._patch_snapshot(dst)
+                else:
                     self._fill_snapshot(dst)
         self._snapshot_seq = self._seq
+        self._checksummed = True
+        self._identity = file_identity(self.path)
         self._touched.clear()
         for place in self._places.values():
             place.result = "snapshot" if place.result else None
@@ -236,11 +341,36 @@ class SnapshotWriting:
                 place.snapshot_history = place.snapshot_history + place.history
             place.history = []
 
+    def _snapshot_room(self) -> int:
+        """Bytes the next snapshot may need at most: the last one, the new arrays of the shots
+        changed since, their histories and the index, with a margin for HDF5's own records."""
+        room = self.path.stat().st_size if self.path.exists() else 0
+        for shot_id in self._touched:
+            place = self._places[shot_id]
+            for name in (place.result, place.frames):
+                if name not in (None, "snapshot"):
+                    with contextlib.suppress(OSError):
+                        room += (self._pending_dir / name).stat().st_size
+        return room + 8192 * len(self._records) + 65536 * len(self._touched) + (1 << 20)
+
     def _patchable(self) -> bool:
-        """Patch a copy unless replaced results left too much dead space in the file."""
-        if not self.path.exists():
+        """Patch a copy unless replaced results left too much dead space in the file, or it was
+        written without checksums (by an older wakeline): a whole rewrite adds them."""
+        if not self._checksummed or not self.path.exists():
             return False
-        return self._unused_bytes <= _MAX_UNUSED_FRACTION * self.path.stat().st_size
+        if self._unused_bytes > _MAX_UNUSED_FRACTION * self.path.stat().st_size:
+            return False
+        return self._touched_readable()
+
+    def _touched_readable(self) -> bool:
+        """Whether every changed shot's group in the snapshot can be read whole. Patching frees
+        the old group, and freeing a damaged object leaves HDF5 in a broken state; a whole
+        rewrite only reads the old file and leaves out what it cannot read."""
+        with h5py.File(self.path, "r") as old:
+            shots = old.get("shots")
+            return shots is None or all(
+                stored_bytes(shots, key) is not None
+                for key in map(shot_key, self._touched) if key in shots)
 
     def _fill_snapshot(self, dst: h5py.File) -> None:
         self._unused_bytes = 0
@@ -263,7 +393,7 @@ class SnapshotWriting:
             fresh = key + "%new"  # never a key: quote() writes '%' only before two hex digits
             self._fill_shot(shots.create_group(fresh), rec, dst, True)
             if key in shots:
-                self._unused_bytes += stored_bytes(shots[key])  # what was not moved over
+                self._unused_bytes += stored_bytes(shots, key)  # what was not moved over
                 del shots[key]
             shots.move(fresh, key)
         self._write_root(dst)
@@ -282,29 +412,63 @@ class SnapshotWriting:
                            for rec in self._records.values()]}
         if "index" in dst:
             del dst["index"]
-        dst.create_dataset("index", data=dumps(index), dtype=h5py.string_dtype())
+        write_text(dst, "index", dumps(index), _root_texts(dst.attrs))
 
     def _fill_shot(self, g: h5py.Group, rec: ShotRecord, old: h5py.File | None,
                    move: bool) -> None:
         """Write one shot's group; arrays already in the snapshot are copied from ``old``, or
-        moved when ``old`` is the file being written (``move``)."""
+        moved when ``old`` is the file being written (``move``).
+
+        A part of the shot that cannot be read (damaged storage, a lost pending file) is left
+        out and said in ``self.problems``, so that one damaged shot never stops the others
+        from being saved: a lost result makes the shot failed (process it again).
+        """
         place = self._places[rec.shot_id]
-        g.attrs["shot_id"] = rec.shot_id
-        g.attrs["state"] = str(rec.state)
-        g.attrs["failure"] = rec.failure
         write_attrs(g.create_group("metadata"), rec.metadata)
         frames = g.create_group("frames")
         write_attrs(frames, {k: v for k, v in rec.frames.items() if k != "shape"})
-        if place.frames is not None:
-            self._copy_arrays(place.frames, rec.shot_id, "frames", old, frames, move)
+        if place.frames is not None:  # lost frames leave the group empty: reading says so
+            self._arrays_kept(place.frames, rec, "frames", old, frames, move)
         write_attrs(g.create_group("pick"), rec.pick.to_dict())
-        history = self._snapshot_history_from(old, rec.shot_id) + place.history
-        g.create_dataset("history", data=[dumps(p.to_dict()) for p in history],
-                         dtype=h5py.string_dtype())
+        try:
+            history = self._snapshot_history_from(old, rec.shot_id)
+        except STORAGE_ERRORS as exc:
+            history = []
+            self.problems.append(f"shot {rec.shot_id}: edit history before the last save was "
+                                 f"damaged ({damage_reason(exc)}) and is dropped; the current "
+                                 "pick and later edits are kept")
+        place.snapshot_history = history
+        write_text(g, "history", [dumps(p.to_dict()) for p in history + place.history])
         if place.result is not None and rec.summary is not None:
             result = g.create_group("result")
             write_summary(result, rec.summary)
-            self._copy_arrays(place.result, rec.shot_id, "result", old, result, move)
+            if not self._arrays_kept(place.result, rec, "result", old, result, move):
+                del g["result"]
+                place.result = None
+        g.attrs["shot_id"] = rec.shot_id
+        g.attrs["state"] = str(rec.state)
+        g.attrs["failure"] = rec.failure
+
+    def _arrays_kept(self, place, rec: ShotRecord, kind: str, old, dst: h5py.Group,
+                     move: bool) -> bool:
+        """Copy (or move) a shot's arrays; False, with the problem said, when they cannot be
+        read (the partial copy is removed)."""
+        try:
+            self._copy_arrays(place, rec.shot_id, kind, old, dst, move)
+            return True
+        except STORAGE_ERRORS as exc:
+            why = damage_reason(exc) if not isinstance(exc, FileNotFoundError) else \
+                f"pending file {place} missing"
+        for name in list(dst):
+            del dst[name]
+        if kind == "result":
+            rec.state = ProcessState.FAILED
+            rec.failure = f"stored result lost ({why}); process the shot again"
+            self.problems.append(f"shot {rec.shot_id}: {rec.failure}")
+        else:
+            self.problems.append(f"shot {rec.shot_id}: embedded frames lost ({why}); the shot "
+                                 "keeps its pick and result but cannot be processed again")
+        return False
 
     def _copy_arrays(self, place, shot_id, kind, old, dst: h5py.Group, move: bool) -> None:
         if place == "snapshot":
@@ -318,7 +482,7 @@ class SnapshotWriting:
                 if move and src_file is old:
                     old.move(src[name].name, f"{dst.name}/{name}")
                 else:
-                    src_file.copy(src[name], dst, name=name)
+                    copy_array(src[name], dst, name)
         finally:
             if src_file is not old:
                 src_file.close()
@@ -332,6 +496,6 @@ class SnapshotWriting:
         return history_in(old, shot_id)
 
     def _read_snapshot_history(self, shot_id: str) -> list[Pick]:
-        with h5py.File(self.path, "r") as f:
+        with self._arrays_file(self.path) as f:
             return history_in(f, shot_id)
 

@@ -5,10 +5,12 @@ from __future__ import annotations
 
 import csv
 import math
+from pathlib import Path
 
 from core.store.files import atomic_write
 from core.store.manifest import NUMBER_COLUMNS, TEXT_COLUMNS
 from core.store.records import ShotRecord
+from core.store.companions import refuse_session_file
 
 
 def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
@@ -69,19 +71,41 @@ def _angle(value: float | None) -> str | None:
     return "0" if text == "-0" else text
 
 
+#: First characters that make a spreadsheet run a cell as a formula (OWASP, "CSV injection").
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
 def _cell(value) -> str:
     if value is None:
         return ""
     if isinstance(value, float):
         return "" if not math.isfinite(value) else f"{value:.10g}"
-    return str(value)
+    return spreadsheet_safe(str(value))
+
+
+def spreadsheet_safe(text: str) -> str:
+    """Text a spreadsheet shows as text: a leading quote before one that would start a formula
+    (a note "=HYPERLINK(...)" or a reason "-ball out"); numbers such as "-3.5" stay as they are."""
+    if not text.startswith(FORMULA_STARTS):
+        return text
+    try:
+        float(text)
+    except ValueError:
+        return "'" + text
+    return text
 
 
 def write_table_csv(session, path) -> int:
     """Write the table of picks as UTF-8 CSV with a header row; returns the number of rows.
 
     The file is written whole or not at all (``atomic_write``): a reader never sees half a table.
+
+    Raises
+    ------
+    WakelineError
+        When ``path`` is the session or one of its companion files (the window's export too).
     """
+    refuse_session_file(Path(path), Path(session.path))
     header, rows = session_table_rows(session)
     with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
         writer = csv.writer(fh)

@@ -1,0 +1,63 @@
+"""The files of a session ``S.h5`` beside the snapshot, where a session really is (links
+resolved), and what wakeline refuses to write over or replace."""
+
+from __future__ import annotations
+
+import os
+import shutil
+import stat
+from pathlib import Path
+
+from core import WakelineError
+from core.store.files import same_place
+from core.store.lock import SessionReadOnly
+
+
+def companion_files(path: Path) -> dict[str, Path]:
+    """The files that belong to the session ``path`` besides the snapshot: its journal, the
+    folder of pending arrays, a half-written snapshot and the lock."""
+    return {
+        "journal": path.with_name(path.name + ".journal"),
+        "pending": path.with_name(path.name + ".pending"),
+        "snapshot_tmp": path.with_name(path.name + ".tmp"),
+        "lock": path.with_name(path.name + ".lock"),
+    }
+
+
+_COMPANION_WORDS = {"journal": "its journal", "pending": "its folder of pending arrays",
+                    "snapshot_tmp": "its half-written snapshot", "lock": "its lock"}
+
+
+def refuse_session_file(out: Path, path: Path) -> None:
+    """Refuse to write ``out`` when it is the session ``path`` or one of its companion files
+    (a table or sheet written with ``-o S.h5`` replaced the whole session)."""
+    named = [(path, f"the session {path.name} itself")] + [
+        (file, f"{_COMPANION_WORDS[kind]} (of the session {path.name})")
+        for kind, file in companion_files(path).items()]
+    for file, what in named:
+        if same_place(out, file):
+            raise WakelineError(f"{out}: is {what}; choose another output file")
+
+
+def session_path(path) -> Path:
+    """The session's real path, resolved once when it is opened: a session reached through a
+    symbolic link (or a linked folder) is the one file it points to, so its lock, journal and
+    temporary files sit beside it and replacing the snapshot keeps the link a link."""
+    return Path(path).resolve()
+
+
+def check_replaceable(path: Path) -> None:
+    """Refuse to edit a session whose file is read-only: saving replaces the file, which the
+    folder's permissions would allow, silently undoing the chmod."""
+    mode = stat.S_IMODE(path.stat().st_mode)
+    if not mode & 0o222 or not os.access(path, os.W_OK):
+        raise SessionReadOnly(f"{path}: the session file is read-only (mode {mode:o}); open it "
+                              "read-only, or make it writable to edit it")
+
+
+def remove_companions(path: Path) -> None:
+    """Remove the journal, the pending arrays and a half-written snapshot (not the lock)."""
+    files = companion_files(path)
+    for name in ("journal", "snapshot_tmp"):
+        files[name].unlink(missing_ok=True)
+    shutil.rmtree(files["pending"], ignore_errors=True)

@@ -1,0 +1,78 @@
+"""Output paths of the commands never overwrite what they read: the session, its companion files,
+its frames or the input frames of `pair`; a folder given as output is refused, leaving nothing."""
+
+from __future__ import annotations
+
+import pytest
+from data.session_helpers import write_shot_folder
+
+from app.cli import main
+from core.store import Session, import_folder
+
+
+@pytest.fixture
+def session_path(tmp_path):
+    import_folder(write_shot_folder(tmp_path / "src", 2), tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        s.set_pick("S0", status="unusable", reason="kept")
+    return tmp_path / "s.h5"
+
+
+def _files(folder) -> dict[str, bytes]:
+    return {str(p.relative_to(folder)): p.read_bytes() for p in folder.rglob("*") if p.is_file()}
+
+
+@pytest.mark.parametrize("command", ["table", "sheet"])
+@pytest.mark.parametrize("target", ["s.h5", "s.h5.journal", "s.h5.lock", "s.h5.tmp",
+                                    "s.h5.pending/000000001.h5", "src/S1_a.tif"])
+def test_table_and_sheet_refuse_to_overwrite_the_session_or_its_files(
+        session_path, command, target, capsys):
+    folder = session_path.parent
+    before = _files(folder)
+    assert main([command, str(session_path), "-o", str(folder / target)]) == 1
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and target.rsplit("/", 1)[-1] in err
+    assert "choose another" in err
+    assert _files(folder) == before
+    with Session.open(session_path, writable=False) as s:
+        assert s["S0"].pick.reason == "kept"
+
+
+def test_the_session_reached_by_another_name_is_refused(session_path, capsys):
+    link = session_path.parent / "link.h5"
+    link.symlink_to(session_path)
+    assert main(["table", str(session_path), "-o", str(link)]) == 1
+    assert "is the session" in capsys.readouterr().err
+    assert link.is_symlink()
+
+
+@pytest.mark.parametrize("option", ["--vectors", "--json"])
+def test_pair_refuses_to_overwrite_an_input_frame(session_path, option, capsys):
+    frame_b = session_path.parent / "src" / "S0_b.tif"
+    before = frame_b.read_bytes()
+    code = main(["pair", str(frame_b.with_name("S0_a.tif")), str(frame_b), "--no-ball",
+                 option, str(frame_b)])
+    assert code == 1
+    assert "frame" in capsys.readouterr().err
+    assert frame_b.read_bytes() == before
+
+
+def test_pair_refuses_one_file_for_two_outputs(session_path, tmp_path, capsys):
+    src = session_path.parent / "src"
+    out = tmp_path / "out.txt"
+    code = main(["pair", str(src / "S0_a.tif"), str(src / "S0_b.tif"), "--no-ball",
+                 "--json", str(out), "--vectors", str(out)])
+    assert code == 1 and "both" in capsys.readouterr().err
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("command", ["table", "sheet"])
+def test_an_output_that_is_a_folder_is_refused_and_leaves_nothing(session_path, tmp_path,
+                                                                  command, capsys):
+    out = tmp_path / "out"
+    out.mkdir()
+    before = sorted(p.name for p in tmp_path.iterdir())
+    assert main([command, str(session_path), "-o", str(out)]) == 1
+    assert "is a folder" in capsys.readouterr().err
+    assert sorted(p.name for p in tmp_path.iterdir()) == before
+    assert not any(out.iterdir())

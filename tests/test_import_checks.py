@@ -1,0 +1,100 @@
+"""What an import (and `pair`) must not accept silently: a manifest with a column twice, frames
+A and B of different bit depth or scaling, a TIFF of three pages, shot ids that differ only in
+case; and frames reached through a linked folder are kept by the path given."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import tifffile
+from data.session_helpers import HEADER, write_pair, write_shot_folder
+
+from app.cli import main
+from core import WakelineError
+from core.images import read_frame_pair
+from core.store import Session, import_folder
+
+
+def test_a_manifest_with_a_column_twice_is_refused(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 1)
+    (src / "shots.csv").write_text(f"{HEADER},dt_s\nS0,2e-05,0.08,71.6,0,,3e-05\n")
+    with pytest.raises(WakelineError, match=r"shots\.csv: column 'dt_s' appears twice"):
+        import_folder(src, tmp_path / "s.h5")
+    assert not (tmp_path / "s.h5").exists()
+
+
+def _frames(tmp_path, a: np.ndarray, b: np.ndarray):
+    tifffile.imwrite(tmp_path / "A.tif", a)
+    tifffile.imwrite(tmp_path / "B.tif", b)
+    return tmp_path / "A.tif", tmp_path / "B.tif"
+
+
+def _particles(seed: int = 1) -> np.ndarray:
+    rng = np.random.default_rng(seed)
+    return rng.integers(0, 4000, (64, 64))
+
+
+@pytest.mark.parametrize(("a", "b", "message"), [
+    (_particles().astype(np.uint16), (_particles() // 16).astype(np.uint8),
+     r"B\.tif: 8-bit frame but .*A\.tif is 16-bit"),
+    (_particles().astype(np.uint16), (_particles() * 16).astype(np.uint16),
+     r"B\.tif: brightness scale differs from .*A\.tif"),
+    (_particles().astype(np.float32), _particles().astype(np.uint16),
+     r"B\.tif: 16-bit frame but .*A\.tif is 32-bit float"),
+], ids=["bit-depth", "scaling", "float-and-counts"])
+def test_frames_of_different_depth_or_scaling_are_refused(tmp_path, a, b, message, capsys):
+    path_a, path_b = _frames(tmp_path, a, b)
+    with pytest.raises(WakelineError, match=message):
+        read_frame_pair(path_a, path_b)
+    assert main(["pair", str(path_a), str(path_b), "--no-ball"]) == 1
+    assert len(capsys.readouterr().err.strip().splitlines()) == 1
+
+
+def test_frames_alike_but_for_the_light_are_accepted(tmp_path):
+    a = _particles().astype(np.uint16)
+    frame_a, frame_b = read_frame_pair(*_frames(tmp_path, a, (a * 0.6).astype(np.uint16)))
+    assert frame_a.shape == frame_b.shape == (64, 64)
+
+
+def test_a_tiff_of_three_pages_is_refused(tmp_path):
+    page = _particles().astype(np.uint16)
+    for _ in range(3):
+        tifffile.imwrite(tmp_path / "T.tif", page, append=True)
+    with pytest.raises(WakelineError, match=r"T\.tif: has 3 pages; a frame pair is two"):
+        read_frame_pair(tmp_path / "T.tif")
+
+
+def test_shot_ids_that_differ_only_in_case_are_refused(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2, extra_rows=("s1,2e-05,0.08,71.6,0,",))
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == ["S0", "S1"]
+    assert len(report.problems) == 1 and "line 4 (shot s1)" in report.problems[0]
+    assert "differs from shot S1 only in case" in report.problems[0]
+    other = tmp_path / "other"
+    other.mkdir()
+    write_pair(other, "s0", (1.0, 0.0))
+    (other / "shots.csv").write_text(f"{HEADER}\ns0,2e-05,0.08,71.6,0,\n")
+    report = import_folder(other, tmp_path / "s.h5")  # against a shot already in the session
+    assert report.imported == [] and "differs from shot S0 only in case" in report.problems[0]
+
+
+def test_frames_in_a_linked_folder_are_kept_by_the_path_given(tmp_path):
+    real = write_shot_folder(tmp_path / "disk" / "2024" / "raw", 1)
+    (tmp_path / "shots").symlink_to(real)
+    report = import_folder(tmp_path / "shots", tmp_path / "s.h5")
+    assert report.imported == ["S0"]
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert s["S0"].frames["path_a"] == "shots/S0_a.tif"  # not disk/2024/raw/...
+        assert s.check_frames() == {}
+
+
+def test_an_unknown_ball_type_is_refused_at_import(tmp_path, capsys):
+    src = write_shot_folder(tmp_path / "src", 2)
+    (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diameter_mm,ball_type\n"
+                                   "S0,2e-05,0.08,,Cricket\nS1,2e-05,0.08,,cricketball\n")
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
+    err = capsys.readouterr().err
+    assert "line 3 (shot S1): ball_type 'cricketball' is not one this wakeline knows" in err
+    assert "baseball, cricket, softball" in err
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert list(s) == ["S0"]  # the rulebook word in any case is fine

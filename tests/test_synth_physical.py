@@ -1,0 +1,293 @@
+"""The second, physically built family of synthetic shots (core.synth_physical)."""
+
+import inspect
+import math
+
+import numpy as np
+import pytest
+
+from core.geometry import flight_unit, point_at_angle, side_normal
+from core.synth_physical import physical_cases, physical_flow, physical_shot
+from core.synth_physical.boundary_layer import (
+    falkner_skan_beta,
+    falkner_skan_table,
+    thwaites_mangler,
+    thwaites_momentum,
+)
+from core.synth_physical.shot import air_kinematic_viscosity
+
+SMALL = (384, 512)
+
+
+# --- boundary-layer numerics -------------------------------------------------------------------
+
+
+def test_thwaites_on_a_flat_plate_is_within_one_percent_of_blasius():
+    # Thwaites with Ue constant: theta = sqrt(0.45) x / sqrt(Re_x) = 0.671 x / sqrt(Re_x)
+    # (derived); Blasius: 0.664 (seen in standard texts, e.g. White, Viscous Fluid Flow)
+    x = np.linspace(0.0, 1.0, 101)
+    theta2_re = thwaites_momentum(x, np.ones_like(x))
+    coefficient = np.sqrt(theta2_re[1:] / x[1:])  # theta sqrt(Re_x) / x
+    assert coefficient == pytest.approx(0.671, abs=1e-3)
+    assert coefficient == pytest.approx(0.664, rel=0.012)
+
+
+def test_thwaites_mangler_at_the_sphere_stagnation_point():
+    # Ue ~ 1.5 U t: theta^2 Re_R = 0.45 / (8 * 1.5) and lambda = 0.45/8 (derived)
+    layer = thwaites_mangler(1.0)
+    assert layer.theta2_re[0] == pytest.approx(0.45 / 12.0, rel=1e-6)
+    assert layer.lam[0] == pytest.approx(0.45 / 8.0, rel=1e-6)
+    assert layer.lam[5] == pytest.approx(0.45 / 8.0, rel=1e-3)
+
+
+def test_falkner_skan_blasius_and_hartree_separation():
+    # Blasius f''(0) = 0.4696 and delta99 = 4.91 sqrt(nu x / U) = 3.47 in eta = y sqrt(U/(2 nu x))
+    # (seen in standard texts, e.g. White); Hartree (1937): separation at beta = -0.1988 with
+    # shape factor H = 4.03 (memory)
+    beta, states = falkner_skan_beta(np.array([0.4696, 0.0]))
+    assert beta[0] == pytest.approx(0.0, abs=2e-4)
+    assert beta[1] == pytest.approx(-0.1988, abs=3e-4)
+    eta = np.arange(states.shape[0]) * 0.02
+    assert np.interp(0.99, states[:, 1, 0], eta) == pytest.approx(4.91 / math.sqrt(2.0), abs=0.01)
+    table = falkner_skan_table()
+    assert table.wall_shear[0] == 0.0
+    assert table.delta_star[0] / table.theta[0] == pytest.approx(4.03, abs=0.01)
+    assert np.all(np.diff(table.shear_parameter) > 0)  # the matching by l is one-to-one (derived)
+
+
+def test_sphere_laminar_separation_on_measured_and_potential_surface_velocity():
+    # measured (Tomotika's fit to Fage's data): laminar separation at 80-82 deg from the front
+    # stagnation point (Achenbach 1972, J. Fluid Mech. 54:565; memory); potential flow
+    # 1.5 U sin t: about 104-105 deg (memory)
+    assert math.degrees(thwaites_mangler(1.0).t_sep) == pytest.approx(81.0, abs=1.5)
+    assert math.degrees(thwaites_mangler(0.0).t_sep) == pytest.approx(104.5, abs=1.5)
+    blends = [math.degrees(thwaites_mangler(w).t_sep) for w in (0.0, 0.25, 0.5, 0.75, 1.0)]
+    assert np.all(np.diff(blends) < 0)  # the blend moves separation monotonically (derived)
+
+
+def test_air_kinematic_viscosity_at_20_c():
+    # 1.51e-5 m^2/s for air at 20 deg C, 1 atm (White, Viscous Fluid Flow, air table; memory)
+    assert air_kinematic_viscosity(20.0) == pytest.approx(1.51e-5, rel=0.01)
+
+
+# --- the generated flow ------------------------------------------------------------------------
+
+
+def _wall_speed(flow, truth, side, angle_deg, distances_px):
+    """Velocity along the wall tangent (rearward positive) at wall distances, ball frame, /U."""
+    big_r = truth.radius_px
+    px, py = point_at_angle((0.0, 0.0), big_r, truth.flight_deg, side, angle_deg)
+    qx, qy = point_at_angle((0.0, 0.0), big_r, truth.flight_deg, side, angle_deg + 0.01)
+    tx, ty = qx - px, qy - py
+    norm = math.hypot(tx, ty)
+    d = np.asarray(distances_px, dtype=np.float64)
+    vx, vy = flow.velocity(px / big_r * (big_r + d), py / big_r * (big_r + d))
+    return (vx * tx + vy * ty) / norm / flow.speed_px
+
+
+@pytest.fixture(scope="module")
+def flow_and_truth():
+    return physical_flow(
+        (1024, 1280),
+        radius_px=200.0,
+        layer_px=3.0,
+        measured_share=(1.0, 0.4),
+        departure_deg=(8.0, 15.0),
+        seed=4,
+    )
+
+
+@pytest.mark.parametrize("side", ["upper", "lower"])
+def test_field_has_zero_wall_shear_at_the_truth_point_and_reverse_flow_behind(flow_and_truth, side):
+    # attached Falkner-Skan profiles have f''(0) > 0 and the separating one f''(0) = 0 (Hartree
+    # 1937; memory), so the wall shear vanishes at the truth point; behind it the recirculation
+    # reverses the flow next to the wall (derived from the construction)
+    flow, truth = flow_and_truth
+    angle = truth.upper_deg if side == "upper" else truth.lower_deg
+    ahead = _wall_speed(flow, truth, side, angle - 1.0, [0.01])[0] / 0.01
+    at = _wall_speed(flow, truth, side, angle, [0.01])[0] / 0.01
+    assert ahead > 0.1
+    assert 0.0 <= at < 0.05 * ahead
+    for behind in (4.0, 8.0, 20.0):
+        assert _wall_speed(flow, truth, side, angle + behind, [0.25])[0] < 0.0
+
+
+@pytest.mark.parametrize("side", ["upper", "lower"])
+def test_field_profile_at_separation_has_the_truth_thickness(flow_and_truth, side):
+    # momentum thickness theta = int u/Ue (1 - u/Ue) dy and the 99 % thickness of the field at
+    # the truth point equal the truth's (definitions; Thwaites' theta carried into the profile)
+    flow, truth = flow_and_truth
+    k = 0 if side == "upper" else 1
+    angle = truth.upper_deg if side == "upper" else truth.lower_deg
+    delta = truth.delta99_sep_px[k]
+    d = np.linspace(0.0, 2.5 * delta, 2001)
+    u = _wall_speed(flow, truth, side, angle, d)
+    # over a curved wall the inviscid speed falls off the wall (by d/R): divide by it, not by
+    # one edge value (the equivalent inviscid flow of curved-wall layers; common practice)
+    big_r, t = truth.radius_px, math.radians(angle + 90.0)
+    r = big_r + d
+    _, inviscid = flow.sides[side].outer(r, np.full_like(d, t))
+    ratio = u / (inviscid / flow.speed_px)
+    theta = np.trapezoid(ratio * (1.0 - ratio), d)
+    assert theta == pytest.approx(truth.theta_sep_px[k], rel=0.02)
+    assert np.interp(0.99, ratio, d) == pytest.approx(delta, rel=0.02)
+
+
+def test_free_layer_thickens_at_the_mixing_layer_rate():
+    # d(delta_w)/dx = c (U1 - U2)/(U1 + U2), c = 0.18 typical, 0.14-0.22 quoted (Brown & Roshko
+    # 1974, J. Fluid Mech. 64:775; memory); delta_w = (U1 - U2) / max du/dn (its definition)
+    flow, truth = physical_flow(
+        (1024, 1280),
+        radius_px=200.0,
+        layer_px=3.0,
+        rollup_fraction=0.0,
+        spreading_coefficient=0.16,
+        reverse_ratio=0.1,
+        seed=2,
+    )
+    assert truth.spreading_rate[0] == pytest.approx(0.16 * 1.1 / 0.9)
+    side = flow.sides["upper"]
+    ed = (-flight_unit(truth.flight_deg)[0], -flight_unit(truth.flight_deg)[1])
+    out = side_normal(truth.flight_deg, "upper")
+    arcs, widths = [], []
+    for s in (30.0, 60.0, 100.0, 140.0):
+        xi, q, phi = (
+            float(np.interp(s, side.path_s, v)) for v in (side.path_xi, side.path_q, side.path_phi)
+        )
+        # the layer's centre, its heading and its outward normal in image coordinates
+        x0, y0 = xi * ed[0] + q * out[0], xi * ed[1] + q * out[1]
+        hx = math.cos(phi) * ed[0] + math.sin(phi) * out[0]
+        hy = math.cos(phi) * ed[1] + math.sin(phi) * out[1]
+        nx = -math.sin(phi) * ed[0] + math.cos(phi) * out[0]
+        ny = -math.sin(phi) * ed[1] + math.cos(phi) * out[1]
+        expected = float(side.vorticity_thickness(s))
+        n = np.linspace(-3.0 * expected, 3.0 * expected, 1201)
+        vx, vy = flow.velocity(x0 + n * nx, y0 + n * ny)
+        u = vx * hx + vy * hy
+        width = (u.max() - u.min()) / np.max(np.gradient(u, n))
+        arcs.append(s)
+        widths.append(width)
+    rate = np.polyfit(arcs, widths, 1)[0]
+    assert rate == pytest.approx(truth.spreading_rate[0], rel=0.1)
+
+
+def test_lab_frame_far_air_is_at_rest_and_the_wake_travels_with_the_ball(flow_and_truth):
+    # potential flow past a sphere decays as (R/r)^3 (Batchelor 1967; memory): far away the lab
+    # air is still; behind the ball the recirculating air moves with the ball or faster
+    # (reverse flow in the ball frame)
+    flow, truth = flow_and_truth
+    big_r = truth.radius_px
+    fx, fy = flight_unit(truth.flight_deg)
+    nx, ny = side_normal(truth.flight_deg, "upper")
+    dx, dy = truth.displacement_px
+    shift = math.hypot(dx, dy)
+    far = np.array(
+        [
+            (8 * big_r * fx, 8 * big_r * fy),
+            (8 * big_r * nx, 8 * big_r * ny),
+            (-8 * big_r * nx, -8 * big_r * ny),
+        ]
+    )
+    vx, vy = flow.velocity(far[:, 0], far[:, 1])
+    assert np.all(np.hypot(vx + dx, vy + dy) < 0.02 * shift)
+    behind = np.array([1.3, 1.8, 2.5]) * big_r
+    vx, vy = flow.velocity(-behind * fx, -behind * fy)
+    along_flight = ((vx + dx) * fx + (vy + dy) * fy) / shift
+    assert np.all(along_flight > 1.0)
+    assert truth.closure_px > 2.0 * big_r
+
+
+def test_held_ball_sits_still_and_the_air_streams_past():
+    flow, truth = physical_flow(SMALL, radius_px=80.0, held=True, seed=1)
+    assert truth.displacement_px == (0.0, 0.0)
+    assert truth.center_a_px == truth.center_b_px
+    fx, fy = flight_unit(truth.flight_deg)
+    vx, vy = flow.velocity(np.array([10 * 80.0 * fx]), np.array([10 * 80.0 * fy]))
+    assert vx[0] * fx + vy[0] * fy == pytest.approx(-flow.speed_px, rel=0.01)
+
+
+def test_layer_px_sets_the_reynolds_number_through_the_speed():
+    # delta99 / R ~ Re^-1/2 for a laminar layer (Thwaites; derived); Re = U D / nu
+    _, truth = physical_flow(SMALL, radius_px=100.0, layer_px=5.0, measured_share=(0.2, 0.9))
+    assert np.mean(truth.delta99_sep_px) == pytest.approx(5.0, rel=1e-6)
+    re = truth.speed_m_s * truth.ball_diameter_mm * 1e-3 / truth.kinematic_viscosity_m2_s
+    assert truth.reynolds_number == pytest.approx(re, rel=1e-9)
+    assert truth.kinematic_viscosity_m2_s == pytest.approx(air_kinematic_viscosity(20.0))
+    _, fixed = physical_flow(SMALL, radius_px=100.0, layer_px=5.0, speed_m_s=30.0)
+    assert fixed.speed_m_s == 30.0 and np.mean(fixed.delta99_sep_px) == pytest.approx(5.0, rel=1e-6)
+
+
+# --- the images --------------------------------------------------------------------------------
+
+
+def _radius_map(shape, center):
+    yy, xx = np.mgrid[0 : shape[0], 0 : shape[1]]
+    return np.hypot(xx - center[0], yy - center[1]), xx, yy
+
+
+@pytest.mark.parametrize("bits", [8, 12])
+def test_frames_are_integer_counts_of_the_bit_depth_and_glints_saturate(bits):
+    a, b, truth = physical_shot(
+        SMALL, radius_px=90.0, glint=True, surface="bright", bit_depth=bits, seed=3
+    )
+    full = 2**bits - 1
+    for frame in (a, b):
+        assert frame.dtype == np.float32 and frame.shape == SMALL
+        assert np.all(frame == np.rint(frame)) and frame.min() >= 0 and frame.max() <= full
+        assert np.count_nonzero(frame == full) > 5
+    assert truth.bit_depth == bits
+    if bits == 12:
+        assert np.count_nonzero(a > 255) > 100
+
+
+def test_no_particle_image_inside_the_ball():
+    a, b, truth = physical_shot(SMALL, radius_px=90.0, surface="dark", lit_rim=False, seed=5)
+    full = 2**truth.bit_depth - 1
+    for frame, center in ((a, truth.center_a_px), (b, truth.center_b_px)):
+        r, _, _ = _radius_map(SMALL, center)
+        assert frame[r < truth.radius_px - 1.0].max() < 0.1 * full
+        assert frame[(r > truth.radius_px + 3) & (r < 1.5 * truth.radius_px)].max() > 0.3 * full
+
+
+def test_no_lit_particle_in_the_laser_shadow():
+    # light from the top of the picture: the ball's shadow falls below it, on the lower side
+    a, b, truth = physical_shot(
+        SMALL, radius_px=80.0, flight_deg=180.0, shadow=True, light_from_deg=90.0, seed=6
+    )
+    assert truth.shadow and truth.shadow_side == "lower"
+    full = 2**truth.bit_depth - 1
+    for frame, (cx, cy) in ((a, truth.center_a_px), (b, truth.center_b_px)):
+        r, xx, yy = _radius_map(SMALL, (cx, cy))
+        strip = (np.abs(xx - cx) < truth.radius_px - 4) & (r > truth.radius_px + 4)
+        assert frame[strip & (yy > cy)].max() < 0.12 * full
+        assert frame[strip & (yy < cy)].max() > 0.3 * full
+
+
+def test_same_seed_gives_the_same_shot():
+    a1, b1, t1 = physical_shot(SMALL, radius_px=80.0, seed=11)
+    a2, b2, t2 = physical_shot(SMALL, radius_px=80.0, seed=11)
+    a3, _, _ = physical_shot(SMALL, radius_px=80.0, seed=12)
+    np.testing.assert_array_equal(a1, a2)
+    np.testing.assert_array_equal(b1, b2)
+    assert t1 == t2
+    assert np.any(a1 != a3)
+
+
+def test_cases_are_reproducible_and_span_the_sweep():
+    cases = physical_cases(120, seed=1)
+    assert cases == physical_cases(120, seed=1)
+    assert cases != physical_cases(120, seed=2)
+    accepted = set(inspect.signature(physical_shot).parameters)
+    assert all(set(case) <= accepted for case in cases)
+    radii = [c["radius_px"] for c in cases]
+    layers = [c["layer_px"] for c in cases]
+    departures = np.ravel([c["departure_deg"] for c in cases])
+    assert 150 <= min(radii) < 165 and 245 < max(radii) <= 260
+    assert 1.5 <= min(layers) < 2.0 and 8.5 < max(layers) <= 9.0
+    assert departures.min() >= 0 and departures.max() <= 25
+    assert 0.7 < np.mean((departures >= 5) & (departures <= 20)) < 0.9
+    assert {c["surface"] for c in cases} == {"dark", "dim", "bright"}
+    assert {c["bit_depth"] for c in cases} == {8, 12}
+    assert 10 <= sum(c["shadow"] for c in cases) <= 32  # about 1 in 6
+    flights = np.array([c["flight_deg"] for c in cases])
+    assert np.all(np.minimum(np.abs((flights + 180) % 360 - 180), np.abs(flights - 180)) <= 4.0)
