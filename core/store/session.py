@@ -51,11 +51,9 @@ from core.store.records import (
     ProcessState,
     ReviewStatus,
     ShotRecord,
-    check_pick,
     check_shot_id,
-    checked_angle,
-    checked_status,
     damage_reason,
+    edited_pick,
 )
 from core.store.replay import JournalReplay
 from core.store.snapshot import (
@@ -448,9 +446,7 @@ class Session(SnapshotWriting, JournalReplay, Mapping):
     ) -> Pick:
         """Edit the analyst's pick. Arguments left out keep their value; ``upper_deg=None``
         clears it. The edit is on disk (journal, fsynced) when this returns. ``who`` (default:
-        this user) and the time are kept for the decision (status, angles, reason) when one of
-        those is given, and apart for the note when it changes: editing a note does not change
-        who made the decision.
+        this user) and the time go with the decision, and apart with the note (``edited_pick``).
 
         Raises
         ------
@@ -471,30 +467,11 @@ class Session(SnapshotWriting, JournalReplay, Mapping):
         with self._mutex:
             self._check_writable()
             by, now = (who if who is not None else user_name()), now_utc()
-            picks = {shot_id: self._edited_pick(shot_id, changes, by, now)
+            picks = {shot_id: edited_pick(shot_id, self._get(shot_id).pick, changes, by, now)
                      for shot_id, changes in edits.items()}
             self._commit(*({"op": "pick", "shot": s, "pick": p.to_dict()}
                            for s, p in picks.items()))
             return {shot_id: replace(pick) for shot_id, pick in picks.items()}
-
-    def _edited_pick(self, shot_id: str, changes: dict, by: str, now: str) -> Pick:
-        current = self._get(shot_id).pick
-        unknown = set(changes) - {"status", "upper_deg", "lower_deg", "reason", "note"}
-        if unknown:
-            raise WakelineError(f"shot {shot_id}: no pick field {', '.join(sorted(unknown))}")
-        changes = dict(changes)
-        if "status" in changes:
-            changes["status"] = checked_status(shot_id, changes["status"])
-        for side in ("upper_deg", "lower_deg"):
-            if side in changes:
-                changes[side] = checked_angle(shot_id, side, changes[side])
-        if set(changes) - {"note"}:
-            changes.update(who=by, when=now)
-        if changes.get("note", current.note) != current.note:
-            changes.update(note_who=by, note_when=now)
-        pick = replace(current, **changes)
-        check_pick(shot_id, pick)
-        return pick
 
     @contextmanager
     def batch_run(self) -> Iterator[None]:
