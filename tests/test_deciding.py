@@ -87,6 +87,7 @@ def test_several_selected_shots_are_decided_as_one_undo_step(main_window, make_s
     window.nudge("lower", -1.0)  # s04 adjusted by hand
     window.shot_list.select_ids(["s01", "s02", "s03"])
     assert window.decision_targets() == ["s01", "s02", "s03"]
+    assert "3 selected" in window.shot_list.count_label.text()
     _key(qtbot, window, Qt.Key.Key_A)
     assert _statuses(window) == ["accepted", "accepted", "accepted", "adjusted"]
     assert window.undo_stack.count() == 2 and window.undo_stack.undoText() == \

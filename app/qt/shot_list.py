@@ -285,6 +285,7 @@ class ShotListPanel(QWidget):
         self.text_filter.textChanged.connect(self._on_text_filter)
         self.text_filter.returnPressed.connect(self.view.setFocus)
         self.view.selectionModel().currentRowChanged.connect(self._on_current_row)
+        self.view.selectionModel().selectionChanged.connect(self._update_count)
         session_model.current_changed.connect(self._on_current_changed)
         session_model.session_changed.connect(self._update_count)
         self.table_model.modelReset.connect(self._apply_columns)
@@ -389,6 +390,9 @@ class ShotListPanel(QWidget):
         shown = self.proxy.rowCount()
         problem = self.proxy.problem
         text = f"{total} shots" if shown == total else f"{shown} of {total} shots shown"
+        selected = len(self.view.selectionModel().selectedRows())
+        if selected > 1:
+            text += f", {selected} selected (a decision key decides them all)"
         self.count_label.setText(f"{text}; filter: {problem}" if problem else text)
         self.count_label.setStyleSheet(
             f"color: {colours.STATUS_COLOURS[ReviewStatus.UNUSABLE]};" if problem else "")
