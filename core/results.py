@@ -117,6 +117,7 @@ class SideProposal:
     departure_deg: float | None = None  # fitted angle of the layer from the wall's tangent
     layer_px: float | None = None  # fitted vorticity thickness of the layer at separation
     budget: dict[str, float] | None = None  # standard uncertainties (deg) by source
+    layer: dict[str, float] | None = None  # the fitted layer model (core.separation.layer_curves)
 
 
 @dataclass

@@ -52,6 +52,8 @@ from core.results import SeparationResult, SideProposal, VectorField
 #: last one is ``BAND_DEPTH`` times the prior's upper thickness (twice its median), within
 #: ``BAND_LAST_GAP_PX``.
 BAND_FIRST_GAP_PX = 2.0
+#: Spacing of the band's samples along the outline (px); rows are 0.5 px apart near the wall.
+BAND_ARC_STEP_PX = 1.5
 BAND_LAST_GAP_PX = (16.0, 28.0)
 BAND_DEPTH = 4.0
 #: Angles (deg, separation convention) searched for the separation point.
@@ -91,7 +93,7 @@ EXTRAPOLATION_DEPTH = 0.15
 EXTRAPOLATION_MIN_DEG = 3.0
 #: Iterations (Jacobians) of the main refinement and of each refit from its result.
 REFINE_ITERATIONS = 25
-ALTERNATIVE_ITERATIONS = 8
+ALTERNATIVE_ITERATIONS = 5
 #: The angle's profile is taken this far either side of the best fit (deg); the fit's own
 #: standard uncertainty is capped at ``PROFILE_MAX_DEG``.
 PROFILE_STEP_DEG = 3.0
@@ -111,9 +113,11 @@ SAMPLES_PER_INDEPENDENT = 10.0
 COVERAGE = 0.95
 COVERAGE_K = 2.0
 #: A proposal needs the separating model to beat the attached-flow model by this fraction of
-#: the residual, and a separation point at least this far ahead of the band's rear end (deg).
+#: the residual, and a separation point no later than ``LATEST_DEG`` (135 deg from the front
+#: stagnation point; even supercritical spheres separate by about 110-120 deg: Achenbach 1972,
+#: memory; a fit that far back is an attached flow's).
 MIN_IMPROVEMENT = 0.02
-REAR_MARGIN_DEG = 18.0
+LATEST_DEG = 45.0
 #: Share of the band that must lie inside the image for a proposal.
 MIN_INSIDE_FRACTION = 0.9
 #: Particle images in the band beside the ball, relative to the free stream nearby, below which
@@ -350,6 +354,11 @@ class SideProblem:
     def data_cost(self, params, shape="erf", geom=None) -> float:
         return float(np.sum(self.band.residual(*self.flow(params, shape, geom)) ** 2))
 
+    def residuals(self, params, shape="erf", geom=None, log_delta_prior=None) -> np.ndarray:
+        """What the fit squares and sums: the band's residuals over ``sigma``, then the priors'."""
+        data = self.band.residual(*self.flow(params, shape, geom)) / self.sigma
+        return np.concatenate([data, self.prior_terms(params, log_delta_prior)])
+
     def score(self, params, data_cost: float | None = None) -> float:
         """Data cost over ``sigma^2`` plus the priors: what the fit minimises (twice its cost)."""
         if data_cost is None:
@@ -396,7 +405,8 @@ def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px
     last_gap = float(np.clip(BAND_FIRST_GAP_PX + BAND_DEPTH * 2.0 * delta_prior,
                              *BAND_LAST_GAP_PX))
     band = NearWallBand(frame_a, frame_b, ball.motion, side, phi_deg=BAND_DEG,
-                        gap_px=(BAND_FIRST_GAP_PX, last_gap), max_speed_px=2.0 * ball.stream)
+                        gap_px=(BAND_FIRST_GAP_PX, last_gap), max_speed_px=2.0 * ball.stream,
+                        arc_step_px=BAND_ARC_STEP_PX)
     if band.inside_fraction < MIN_INSIDE_FRACTION:
         return "the image edge cuts the band next to the ball on this side"
     return SideProblem(band, outer, final_deg, math.log(delta_prior))
@@ -439,7 +449,7 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
     scores = np.array([common.score(fit.params) for fit, _ in fits])
     best, near = fits[int(np.argmin(scores))]
     phi_s = float(best.params[0])
-    if phi_s > BAND_DEG[1] - REAR_MARGIN_DEG:
+    if phi_s > LATEST_DEG:
         return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "
                             "(attached flow?)")
     budget = _uncertainty_budget(near, best, ball)
@@ -452,10 +462,14 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
     remark = ""
     if departure > PRIOR_LEAVE_DEG[1]:
         remark = "the layer leaves unusually steeply: check the proposal"
+    layer = {name: round(float(v), 5) for name, v in zip(PARAM_NAMES, best.params, strict=True)}
+    layer.update(final_deg=round(final_deg, 3), band_first_gap_px=BAND_FIRST_GAP_PX,
+                 band_last_gap_px=float(problem.band.gap_grid[-1]),
+                 window_deg=[round(float(v), 3) for v in near.band.phi_grid[[0, -1]]])
     return SideProposal(round(phi_s, 2), round(uncertainty, 2), round(quality, 3), remark,
                         departure_deg=round(departure, 1),
                         layer_px=round(math.exp(best.params[3]), 2),
-                        budget={k: round(v, 3) for k, v in budget.items()})
+                        budget={k: round(float(v), 3) for k, v in budget.items()}, layer=layer)
 
 
 def _other_minima(angles, scores, chosen: float) -> float:
@@ -475,6 +489,16 @@ def _other_minima(angles, scores, chosen: float) -> float:
 class Fit:
     params: np.ndarray
     score: float  # data cost over sigma^2 plus the priors (SideProblem.score)
+    jac: np.ndarray | None = None  # residuals' Jacobian at params (all parameters free)
+    fun: np.ndarray | None = None  # residuals at params
+
+    def angle_shift(self, other_residuals: np.ndarray) -> float:
+        """How far (deg) the angle moves when the residuals at ``params`` become
+        ``other_residuals`` (another model form, prior or circle): one Gauss-Newton step from
+        the best fit, ``-(J^T J)^+ J^T r``. A step, not a refit: the alternatives move the
+        angle little, and a refit of each would cost as much as the fit itself."""
+        step = -np.linalg.pinv(self.jac.T @ self.jac) @ (self.jac.T @ other_residuals)
+        return float(step[0])
 
 
 def _coarse_search(problem: SideProblem):
@@ -528,8 +552,7 @@ def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_pr
     def residuals(q):
         p = start.copy()
         p[free] = q
-        r = problem.band.residual(*problem.flow(p, shape, geom)) / problem.sigma
-        return np.concatenate([r, problem.prior_terms(p, log_delta_prior)])
+        return problem.residuals(p, shape, geom, log_delta_prior)
 
     lower = np.array([start[0] - 10.0, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.0, 0.0, 0.7,
                       0.0])
@@ -542,7 +565,7 @@ def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_pr
     )
     params = start.copy()
     params[free] = sol.x
-    return Fit(params, float(2.0 * sol.cost))
+    return Fit(params, float(2.0 * sol.cost), sol.jac if free.all() else None, sol.fun)
 
 
 def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dict[str, float]:
@@ -552,8 +575,9 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dic
     with the angle held ``PROFILE_STEP_DEG`` either side; the flatter side's rise ``d`` gives
     ``step / sqrt(d)`` (a score rises by 1 at one standard deviation). It sees what the curvature
     at the minimum misses: a near-tangential layer whose start the data cannot place, a
-    parameter held at its bound. Each other source is a refit from the best parameters: the
-    circle's radius moved by its standard uncertainty both ways (half the spread), the other
+    parameter held at its bound. Each other source is how far the angle moves from the best fit
+    (:meth:`Fit.angle_shift`) under: the circle's radius moved by its standard uncertainty both
+    ways (half the spread; a centre error moves the outline by as much radially), the other
     layer profile, the thickness prior's median halved and doubled (the larger move).
     """
     phi = best.params[0]
@@ -565,21 +589,19 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dic
                      .score - best.score)
     rise = max(min(rises), PROFILE_STEP_DEG**2 / PROFILE_MAX_DEG**2)
     budget = {"fit": PROFILE_STEP_DEG / math.sqrt(rise)}
-    radius_sd = math.hypot(ball.radius_sigma_px, ball.center_sigma_px / math.sqrt(2.0))
+    radius_sd = math.hypot(ball.radius_sigma_px, ball.center_sigma_px)
     if radius_sd > 0:
         moved = []
         for sign in (-1.0, 1.0):
             geom = replace(problem.geom, radius_px=problem.geom.radius_px + sign * radius_sd,
                            gap_grid=problem.geom.gap_grid - sign * radius_sd)
-            moved.append(_refine(problem, best.params, geom=geom,
-                                 max_nfev=ALTERNATIVE_ITERATIONS).params[0])
+            moved.append(best.angle_shift(problem.residuals(best.params, geom=geom)))
         budget["circle"] = 0.5 * abs(moved[1] - moved[0])
     budget["flight"] = float(ball.flight_sigma_deg)
-    budget["model form"] = abs(_refine(problem, best.params, shape="quartic",
-                                       max_nfev=ALTERNATIVE_ITERATIONS).params[0] - phi)
+    budget["model form"] = abs(best.angle_shift(problem.residuals(best.params, "quartic")))
     budget["prior"] = max(
-        abs(_refine(problem, best.params, log_delta_prior=problem.log_delta_prior + shift,
-                    max_nfev=ALTERNATIVE_ITERATIONS).params[0] - phi)
+        abs(best.angle_shift(problem.residuals(
+            best.params, log_delta_prior=problem.log_delta_prior + shift)))
         for shift in (-math.log(2.0), math.log(2.0))
     )
     budget["extrapolation"] = extrapolation_deg(best.params, problem.geom.radius_px)
@@ -598,6 +620,45 @@ def extrapolation_deg(params, radius_px: float) -> float:
     slope = max(float(params[1]), math.tan(math.radians(EXTRAPOLATION_MIN_DEG)))
     depth = EXTRAPOLATION_DEPTH * math.exp(params[3])
     return math.degrees(depth / (radius_px * slope))
+
+
+def layer_curves(center_px, radius_px: float, flight_deg: float, side: str, layer: dict,
+                 *, reach_deg: float = 60.0, step_deg: float = 0.5) -> dict[str, np.ndarray]:
+    """Image polylines of a side's fitted layer (for drawing): ``(N, 2)`` arrays of (x, y) px.
+
+    ``dividing``: the dividing line from the separation point ``reach_deg`` rearward (where the
+    flow turns from forward to reverse); ``centre``: the layer's centre (its half-speed line)
+    over the same angles; ``band``: the closed outline of the part of the band that was fitted.
+
+    Parameters
+    ----------
+    center_px, radius_px, flight_deg : the ball at mid-exposure and its flight.
+    side : {"upper", "lower"}
+    layer : dict
+        ``SideProposal.layer``: the fitted parameters (``PARAM_NAMES``), ``final_deg``, the
+        band's gaps and the fit window.
+    """
+    from core.layer_model import centre_offset, dividing_line_px
+
+    phi_s = layer["phi_s"]
+    phi = np.arange(phi_s, phi_s + reach_deg + step_deg / 2, step_deg)
+    lift = dividing_line_px(radius_px, phi_s, layer["slope"], layer["relax"] * radius_px, phi,
+                            layer.get("final_deg", 0.0))
+    delta = math.exp(layer["log_delta"]) + layer["spread"] * np.radians(phi - phi_s) * radius_px
+    centre = lift + centre_offset(layer["reverse"]) * delta
+    lo, hi = layer["window_deg"]
+    band_phi = np.arange(lo, hi + step_deg / 2, step_deg)
+    inner = np.full(band_phi.shape, radius_px + layer["band_first_gap_px"])
+    outer = np.full(band_phi.shape, radius_px + layer["band_last_gap_px"])
+
+    def points(angles, rho):
+        (ex, ey), _ = side_axes(flight_deg, side, angles)
+        return np.column_stack([center_px[0] + rho * ex, center_px[1] + rho * ey])
+
+    band = np.vstack([points(band_phi, inner), points(band_phi[::-1], outer[::-1]),
+                      points(band_phi[:1], inner[:1])])
+    return {"dividing": points(phi, radius_px + lift), "centre": points(phi, radius_px + centre),
+            "band": band}
 
 
 # --- wake ------------------------------------------------------------------------------------

@@ -82,6 +82,7 @@ class ShotResult:
     warnings: list[str] = field(default_factory=list)
     valid_near_ball: int | None = None  # valid vectors within two grid spacings of the outline
     reynolds: float | None = None  # U D / nu with the air speed past the ball (core.air)
+    fine_field: VectorField | None = None  # fine correlation near the ball, ball frame, image px
     stage_seconds: dict[str, float] = field(default_factory=dict)  # wall time per stage (not stored)
 
     def summary(self) -> dict:
@@ -102,6 +103,7 @@ class ShotResult:
             "reynolds": _reynolds_summary(self.reynolds, self.settings.air_temp_c),
             "dt_s": finite_or_none(self.settings.dt_s),
             "vectors": {**_vector_counts(self.field), "valid_near_ball": self.valid_near_ball},
+            "fine_vectors": None if self.fine_field is None else _vector_counts(self.fine_field),
             "settings": self.settings.to_dict(),
             "warnings": list(self.warnings + self.field.warnings),
         }
@@ -112,6 +114,8 @@ class ShotResult:
             value = getattr(self, name)
             if value is not None:
                 out[name] = value
+        if self.fine_field is not None:
+            out.update({FINE_PREFIX + k: v for k, v in self.fine_field.arrays().items()})
         return out
 
     @classmethod
@@ -137,6 +141,7 @@ class ShotResult:
             warnings=list(summary.get("warnings", [])),
             valid_near_ball=summary["vectors"].get("valid_near_ball"),
             reynolds=(summary.get("reynolds") or {}).get("value"),
+            fine_field=_fine_from(summary, arrays),
         )
 
 
@@ -150,6 +155,22 @@ def _reynolds_summary(reynolds: float | None, air_temp_c: float | None) -> dict:
         "nu_m2_s": kinematic_viscosity_m2_s(temp),
         "regime": regime_note(reynolds),
     }
+
+
+#: Stored arrays of the fine ball-frame field carry this prefix (``fine_dx_px``, ...).
+FINE_PREFIX = "fine_"
+
+
+def _fine_from(summary: dict, arrays: dict) -> VectorField | None:
+    """The stored fine field, or None (shots processed before it was kept)."""
+    if FINE_PREFIX + "x_px" not in arrays:
+        return None
+    fine = summary.get("fine_vectors") or {}
+    return VectorField(
+        **{name: np.asarray(arrays[FINE_PREFIX + name]) for name in VectorField.ARRAY_NAMES},
+        window_px=fine.get("window_px", FINE_PASSES[-1].window_px),
+        spacing_px=fine.get("spacing_px", FINE_PASSES[-1].window_px * 0.5),
+    )
 
 
 def _vector_counts(vf: VectorField) -> dict:
@@ -527,6 +548,7 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
     air_m_s = stream * scale * 1e-3 / dt if scale and dt else None
     result.reynolds = reynolds_number(air_m_s, _ball_diameter_mm(settings), settings.air_temp_c)
     vf = correlate_pair(a, b, mask, mask, fine)
+    result.fine_field = replace(vf, x_px=vf.x_px + crop[1], y_px=vf.y_px + crop[0])
     clock.lap("fine piv")
     ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg, stream,
                      reynolds=result.reynolds, **_uncertainties(balls, flight))

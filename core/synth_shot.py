@@ -231,7 +231,9 @@ class BallWakeFlow:
             layer = _Layer.build(self.radius_px, angle, leave, final, bend)
             d = layer.outward_distance(xi, zeta)
             arc = layer.arc_length(xi)
-            half_width = self.layer_px + 0.5 * self.spread_rate * arc
+            # the layer spreads over its first radius of path (beyond it the far wake would
+            # swell over the whole picture)
+            half_width = self.layer_px + 0.5 * self.spread_rate * np.minimum(arc, self.radius_px)
             offset = self._centre_offset()
             weight *= 0.5 * (1.0 - np.tanh(d / half_width - offset))
             if offset > 0:
