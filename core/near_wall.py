@@ -18,6 +18,7 @@ flight, positive rearward) on the band's side, ``gap`` the distance outside the 
 from __future__ import annotations
 
 import copy
+import functools
 import math
 from dataclasses import dataclass
 
@@ -106,12 +107,42 @@ class NearWallBand:
         self._phi0 = phi_deg[0] - margin_phi
         phi_axis = np.arange(self._phi0, phi_deg[1] + margin_phi, self._dphi)
         dx, dy = ball.displacement_px
-        self.polar_a = _polar_picture(frame_a, ball, side, (-0.5 * dx, -0.5 * dy), rho_axis,
-                                      phi_axis)
-        self.polar_b = _polar_picture(frame_b, ball, side, (0.5 * dx, 0.5 * dy), rho_axis,
-                                      phi_axis)
+        self._sample_a = functools.partial(_polar_picture, ball=ball, side=side,
+                                           shift_px=(-0.5 * dx, -0.5 * dy), rho_axis=rho_axis,
+                                           phi_axis=phi_axis)
+        self._sample_b = functools.partial(_polar_picture, ball=ball, side=side,
+                                           shift_px=(0.5 * dx, 0.5 * dy), rho_axis=rho_axis,
+                                           phi_axis=phi_axis)
+        self.polar_a = self._sample_a(frame_a)
+        self.polar_b = self._sample_b(frame_b)
         self.scale = float(np.std(self.polar_a)) + 1e-9
         self._rad_per_deg = math.radians(1.0)
+        self._keep_picture = None  # (Nr, Nphi) 1 where a sample counts, 0 in glare
+        self.kept_fraction = 1.0
+
+    def leave_out(self, masks, reach_px: float) -> None:
+        """Leave the samples within ``reach_px`` of a masked pixel of either frame (``(H, W)``
+        bool, or None) out of every residual: they count as zero from now on."""
+        grow = int(math.ceil(reach_px))
+        keep = None
+        for mask, picture_of in zip(masks, (self._sample_a, self._sample_b), strict=True):
+            if mask is None or not mask.any():
+                continue
+            bad = ndimage.binary_dilation(mask, iterations=grow) if grow else mask
+            clear = picture_of(bad.astype(np.float64)) < 0.5
+            keep = clear if keep is None else keep & clear
+        if keep is None:
+            return
+        self._keep_picture = keep.astype(np.float64)
+        self._weight = self._weights()
+        self.kept_fraction = float(np.mean(self._weight))
+
+    def _weights(self) -> np.ndarray:
+        """1 for the samples that count, 0 for those left out (at the samples' own places)."""
+        if self._keep_picture is None:
+            return np.ones(self.phi.size)
+        return _bilinear(self._keep_picture, (self.rho - self._rho0) / POLAR_STEP_PX,
+                         (self.phi - self._phi0) / self._dphi) > 0.999
 
     def _set_samples(self, phi_grid: np.ndarray, gap_grid: np.ndarray) -> None:
         self.phi_grid, self.gap_grid = phi_grid, gap_grid
@@ -119,6 +150,7 @@ class NearWallBand:
         self.phi = grid_phi.ravel()
         self.gap = grid_gap.ravel()
         self.rho = self.ball.radius_px + self.gap
+        self._weight = None
 
     def view(self, phi_deg=None, *, every: int = 1) -> NearWallBand:
         """The same band (same resampled frames) with fewer samples: the angles within
@@ -128,6 +160,8 @@ class NearWallBand:
             phi = phi[(phi >= phi_deg[0]) & (phi <= phi_deg[1])]
         other = copy.copy(self)
         other._set_samples(phi[::every], self.gap_grid[::every])
+        if self._keep_picture is not None:
+            other._weight = other._weights()
         return other
 
     @property
@@ -146,10 +180,12 @@ class NearWallBand:
                       (self.phi - turn_deg - self._phi0) / self._dphi)
         b = _bilinear(self.polar_b, (self.rho + 0.5 * u_r - self._rho0) / POLAR_STEP_PX,
                       (self.phi + turn_deg - self._phi0) / self._dphi)
+        if self._weight is not None:
+            return (a - b) * self._weight / self.scale
         return (a - b) / self.scale
 
 
-def _polar_picture(frame, ball: BallMotion, side: str, shift_px, rho_axis, phi_axis):
+def _polar_picture(frame, *, ball: BallMotion, side: str, shift_px, rho_axis, phi_axis):
     """``frame`` resampled (cubic spline) at ``centre + shift + rho e(phi)``: ``(Nr, Nphi)``."""
     (ex, ey), _ = side_axes(ball.flight_deg, side, phi_axis)
     cx = ball.center_px[0] + shift_px[0]

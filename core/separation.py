@@ -89,7 +89,7 @@ FIT_WINDOW_DEG = (-25.0, 40.0)
 #: Depth (layer thicknesses) to which the dividing line's place below the layer is uncertain,
 #: and the shallowest departure (deg) used to turn it into an angle (calibrated:
 #: docs/separation_accuracy.md).
-EXTRAPOLATION_DEPTH = 0.15
+EXTRAPOLATION_DEPTH = 0.2
 EXTRAPOLATION_MIN_DEG = 3.0
 #: Iterations (Jacobians) of the main refinement and of each refit from its result.
 REFINE_ITERATIONS = 25
@@ -118,7 +118,11 @@ COVERAGE_K = 2.0
 #: memory; a fit that far back is an attached flow's).
 MIN_IMPROVEMENT = 0.02
 LATEST_DEG = 45.0
-#: Share of the band that must lie inside the image for a proposal.
+#: Band samples this close (px) to glare are left out of the fit; at least this share of the
+#: band must stay.
+GLARE_REACH_PX = 2.0
+MIN_CLEAR_FRACTION = 0.6
+#: Share of the band that must lie inside the image (and clear of glare) for a proposal.
 MIN_INSIDE_FRACTION = 0.9
 #: Particle images in the band beside the ball, relative to the free stream nearby, below which
 #: the side is refused (unlit: a laser shadow; or sparsely seeded).
@@ -170,6 +174,7 @@ def propose_separation(
     fine_origin_px: tuple[float, float],
     lab_field: VectorField,
     seeding: SeedingMap | None = None,
+    glare: tuple[np.ndarray | None, np.ndarray | None] = (None, None),
 ) -> SeparationResult:
     """Separation proposal on both sides, wake deflection and wake state of one shot.
 
@@ -189,6 +194,10 @@ def propose_separation(
         for the wake's direction.
     seeding : SeedingMap, optional
         Particle-image density around the ball; without it no side is refused for seeding.
+    glare : ((H, W) bool ndarray or None, same)
+        Saturated glare in frames A and B (core.conditioning): band samples in or next to it
+        are left out of the fit (a glint on the ball is bright and still in the ball frame,
+        and would pass for air at rest).
 
     Returns
     -------
@@ -200,7 +209,8 @@ def propose_separation(
     # each layer turns toward the wake's direction (on the lower side it points away from it)
     toward = 0.0 if deflection is None else deflection
     sides = {side: fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side,
-                            final_deg=toward if side == "upper" else -toward, seeding=seeding)
+                            final_deg=toward if side == "upper" else -toward, seeding=seeding,
+                            glare=glare)
              for side in ("upper", "lower")}
     if sides["upper"].angle_deg is None and sides["lower"].angle_deg is None:
         deflection = None
@@ -396,7 +406,7 @@ def _outside(value: float, lo: float, hi: float) -> float:
 
 
 def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str,
-                 final_deg: float) -> SideProblem | str:
+                 final_deg: float, glare=(None, None)) -> SideProblem | str:
     """The side's fitting problem, or the reason there is none."""
     outer = outer_stream(fine, origin_px, ball, side)
     if outer is None:
@@ -409,11 +419,15 @@ def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px
                         arc_step_px=BAND_ARC_STEP_PX)
     if band.inside_fraction < MIN_INSIDE_FRACTION:
         return "the image edge cuts the band next to the ball on this side"
+    band.leave_out(glare, GLARE_REACH_PX)
+    if band.kept_fraction < MIN_CLEAR_FRACTION:
+        return "glare covers too much of the band next to the ball on this side"
     return SideProblem(band, outer, final_deg, math.log(delta_prior))
 
 
 def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str, *,
-             final_deg: float = 0.0, seeding: SeedingMap | None = None) -> SideProposal:
+             final_deg: float = 0.0, seeding: SeedingMap | None = None,
+             glare=(None, None)) -> SideProposal:
     """Fit the flow next to one side; an empty proposal with the reason when there is none.
 
     ``final_deg`` is the direction the layer turns to (the wake's, from the rearward axis,
@@ -425,7 +439,7 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
             return SideProposal(None, None, 0.0, f"too few particle images beside the ball on "
                                 f"this side ({ratio:.0%} of the air around it): unlit (a laser "
                                 "shadow?) or sparsely seeded")
-    problem = side_problem(frame_a, frame_b, ball, fine, origin_px, side, final_deg)
+    problem = side_problem(frame_a, frame_b, ball, fine, origin_px, side, final_deg, glare)
     if isinstance(problem, str):
         return SideProposal(None, None, 0.0, problem)
     attached = problem.band.residual(problem.u_t, problem.u_r)

@@ -399,7 +399,7 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
             SideProposal(None, reason=reason), SideProposal(None, reason=reason)
         )
         return
-    result.separation = _separation(*conditioned, balls, flight, settings, clock, result)
+    result.separation = _separation(*conditioned, balls, flight, settings, clock, result, glare)
 
 
 def _ball_warnings(ball_a: BallFit, ball_b: BallFit, expected_r: float | None) -> list[str]:
@@ -521,7 +521,7 @@ def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
 
 
 def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings, clock,
-                result: ShotResult):
+                result: ShotResult, glare=(None, None)):
     """Fine correlation around the ball in the ball frame, then the layer fit on each side.
 
     Also sets ``result.reynolds`` from the air's speed past the ball.
@@ -554,7 +554,7 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
                      reynolds=result.reynolds, **_uncertainties(balls, flight))
     seeding = _seeding_map(frame_a, balls[0])
     proposal = propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]), lab_field,
-                                  seeding)
+                                  seeding, glare)
     clock.lap("separation")
     return proposal
 
