@@ -120,6 +120,28 @@ class SideProposal:
     layer: dict[str, float] | None = None  # the fitted layer model (core.separation.layer_curves)
 
 
+#: Wake state threshold (deg): sides differ when |upper - lower| exceeds the larger of this and
+#: the combined uncertainty.
+STATE_THRESHOLD_DEG = 5.0
+
+
+def wake_state(upper: SideProposal, lower: SideProposal) -> str:
+    """Our label for the shot: which side holds on longer, if the difference is clear.
+
+    "symmetric" when ``|upper - lower| <= max(STATE_THRESHOLD_DEG, combined uncertainty)``,
+    else "upper side holds on longer" / "lower side holds on longer" (the side with the larger,
+    i.e. later, separation angle); "undetermined" without both angles. The rule of the proposal
+    (core.separation) and of the analyst's final angles (``ShotRecord.wake_state``).
+    """
+    if upper.angle_deg is None or lower.angle_deg is None:
+        return "undetermined"
+    combined = math.hypot(upper.uncertainty_deg or 0.0, lower.uncertainty_deg or 0.0)
+    diff = upper.angle_deg - lower.angle_deg
+    if abs(diff) <= max(STATE_THRESHOLD_DEG, combined):
+        return "symmetric"
+    return "upper side holds on longer" if diff > 0 else "lower side holds on longer"
+
+
 @dataclass
 class SeparationResult:
     upper: SideProposal

@@ -46,7 +46,13 @@ from scipy.optimize import least_squares
 from core.geometry import flight_unit, side_normal
 from core.layer_model import PARAM_NAMES, SideGeometry, side_flow
 from core.near_wall import BallMotion, NearWallBand, polar_of, side_axes
-from core.results import SeparationResult, SideProposal, VectorField
+from core.results import (  # noqa: F401 - the wake-state rule lives with the records
+    STATE_THRESHOLD_DEG,
+    SeparationResult,
+    SideProposal,
+    VectorField,
+    wake_state,
+)
 
 #: Band along the outline where the layer is fitted: first gap (px) outside the outline; the
 #: last one is ``BAND_DEPTH`` times the prior's upper thickness (twice its median), within
@@ -127,9 +133,6 @@ MIN_INSIDE_FRACTION = 0.9
 #: Particle images in the band beside the ball, relative to the free stream nearby, below which
 #: the side is refused (unlit: a laser shadow; or sparsely seeded).
 MIN_SEEDING_RATIO = 0.35
-#: Wake state threshold (deg): sides differ when |upper - lower| exceeds the larger of this and
-#: the combined uncertainty.
-STATE_THRESHOLD_DEG = 5.0
 #: Typical step of each parameter (``PARAM_NAMES`` order) for the refinement's trust region.
 REFINE_SCALE = np.array([1.0, 0.05, 0.3, 0.2, 0.03, 0.05, 0.1, 0.1, 0.2, 0.02, 0.1])
 
@@ -714,19 +717,3 @@ def wake_deflection(
     mean_eta = np.sum(weight * eta) / weight.sum()
     slope = np.sum(weight * (xi - mean_xi) * (eta - mean_eta)) / np.sum(weight * (xi - mean_xi) ** 2)
     return round(math.degrees(math.atan(slope)), 2)
-
-
-def wake_state(upper: SideProposal, lower: SideProposal) -> str:
-    """Our label for the shot: which side holds on longer, if the difference is clear.
-
-    "symmetric" when ``|upper - lower| <= max(STATE_THRESHOLD_DEG, combined uncertainty)``,
-    else "upper side holds on longer" / "lower side holds on longer" (the side with the larger,
-    i.e. later, separation angle); "undetermined" without both proposals.
-    """
-    if upper.angle_deg is None or lower.angle_deg is None:
-        return "undetermined"
-    combined = math.hypot(upper.uncertainty_deg or 0.0, lower.uncertainty_deg or 0.0)
-    diff = upper.angle_deg - lower.angle_deg
-    if abs(diff) <= max(STATE_THRESHOLD_DEG, combined):
-        return "symmetric"
-    return "upper side holds on longer" if diff > 0 else "lower side holds on longer"

@@ -36,6 +36,9 @@ class ShotSettings:
     ball_type: str | None = None  # rulebook nominal diameter when ball_diameter_mm is None
     find_ball: bool = True
     flight_deg: float | None = None  # override of the flight direction
+    # the analyst's circles (cx, cy, r) px in frames A and B: taken instead of finding the ball
+    circle_a_px: tuple[float, float, float] | None = None
+    circle_b_px: tuple[float, float, float] | None = None
     air_temp_c: float | None = None  # for the air's viscosity (Reynolds number); None: 20 deg C
     # image conditioning before correlation (core.conditioning)
     mask_glare: bool = True  # saturated regions larger than a particle image left out
@@ -60,11 +63,31 @@ class ShotSettings:
     def fingerprint(self) -> str:
         """Stable text of the settings: a shot is reprocessed when this changes.
 
-        The PIV thread count is left out: it changes how fast, not what is measured.
+        The PIV thread count is left out: it changes how fast, not what is measured; so are
+        circles the analyst did not set (shots processed before they could be set keep their
+        fingerprint).
         """
         data = self.to_dict()
         data["piv"].pop("workers", None)
+        for name in CIRCLE_SETTINGS:
+            if data.get(name) is None:
+                data.pop(name, None)
+            else:
+                data[name] = [float(v) for v in data[name]]
         return json.dumps(data, sort_keys=True)
+
+    def measured_alike(self, other: ShotSettings) -> bool:
+        """True when ``other`` differs from these settings at most in the ball's circles and
+        the flight direction (what ``remeasure_ball`` redoes)."""
+        def rest(settings: ShotSettings) -> str:
+            return replace(settings, flight_deg=None, circle_a_px=None,
+                           circle_b_px=None).fingerprint()
+
+        return rest(self) == rest(other)
+
+
+#: Settings that are the analyst's circles of the ball (``ShotSettings``).
+CIRCLE_SETTINGS = ("circle_a_px", "circle_b_px")
 
 
 @dataclass
@@ -83,6 +106,8 @@ class ShotResult:
     valid_near_ball: int | None = None  # valid vectors within two grid spacings of the outline
     reynolds: float | None = None  # U D / nu with the air speed past the ball (core.air)
     fine_field: VectorField | None = None  # fine correlation near the ball, ball frame, image px
+    # its vorticity (1/s, or per frame pair without dt): derived, not stored (fine_vorticity)
+    fine_vorticity_1_s: np.ndarray | None = None
     stage_seconds: dict[str, float] = field(default_factory=dict)  # wall time per stage (not stored)
 
     def summary(self) -> dict:
@@ -102,11 +127,18 @@ class ShotResult:
             "scale_mm_per_px": finite_or_none(self.scale_mm_per_px),
             "reynolds": _reynolds_summary(self.reynolds, self.settings.air_temp_c),
             "dt_s": finite_or_none(self.settings.dt_s),
-            "vectors": {**_vector_counts(self.field), "valid_near_ball": self.valid_near_ball},
+            "vectors": {**_vector_counts(self.field), "valid_near_ball": self.valid_near_ball,
+                        "warnings": list(self.field.warnings)},
             "fine_vectors": None if self.fine_field is None else _vector_counts(self.fine_field),
             "settings": self.settings.to_dict(),
             "warnings": list(self.warnings + self.field.warnings),
         }
+
+    def fine_vorticity(self) -> np.ndarray | None:
+        """Vorticity of the fine field (as ``vorticity_1_s``), computed when first asked."""
+        if self.fine_vorticity_1_s is None and self.fine_field is not None:
+            self.fine_vorticity_1_s = _fine_vorticity(self.fine_field, self.settings.dt_s)
+        return self.fine_vorticity_1_s
 
     def arrays(self) -> dict[str, np.ndarray]:
         out = dict(self.field.arrays())
@@ -120,10 +152,12 @@ class ShotResult:
 
     @classmethod
     def from_stored(cls, summary: dict, arrays: dict[str, np.ndarray]) -> ShotResult:
+        piv_warnings = list(summary["vectors"].get("warnings") or [])
         vf = VectorField(
             **{name: np.asarray(arrays[name]) for name in VectorField.ARRAY_NAMES},
             window_px=summary["vectors"]["window_px"],
             spacing_px=summary["vectors"]["spacing_px"],
+            warnings=piv_warnings,
         )
         ball = summary.get("ball")
         sep = summary.get("separation")
@@ -138,7 +172,7 @@ class ShotResult:
             u_m_s=arrays.get("u_m_s"),
             v_m_s=arrays.get("v_m_s"),
             vorticity_1_s=arrays.get("vorticity_1_s"),
-            warnings=list(summary.get("warnings", [])),
+            warnings=[w for w in summary.get("warnings", []) if w not in piv_warnings],
             valid_near_ball=summary["vectors"].get("valid_near_ball"),
             reynolds=(summary.get("reynolds") or {}).get("value"),
             fine_field=_fine_from(summary, arrays),
@@ -171,6 +205,15 @@ def _fine_from(summary: dict, arrays: dict) -> VectorField | None:
         window_px=fine.get("window_px", FINE_PASSES[-1].window_px),
         spacing_px=fine.get("spacing_px", FINE_PASSES[-1].window_px * 0.5),
     )
+
+
+def _fine_vorticity(fine: VectorField | None, dt_s: float | None) -> np.ndarray | None:
+    """Vorticity of the fine field (the ball frame's uniform shift does not change it)."""
+    from core.fields import vorticity_1_s
+
+    if fine is None:
+        return None
+    return vorticity_1_s(fine, dt_s, usable=fine.valid | fine.replaced)
 
 
 def _vector_counts(vf: VectorField) -> dict:
@@ -272,20 +315,65 @@ def measure_shot(
     """
     from core.piv import correlate_pair
 
-    warnings: list[str] = []
     clock = _StageClock()
     glare = _glare(frame_a, frame_b, settings)
-    balls = _find_balls(frame_a, frame_b, settings) if settings.find_ball else None
+    balls = _balls(frame_a, frame_b, settings) if _wants_ball(settings) else None
     masks = glare if balls is None else _masks(frame_a.shape, balls, glare)
     clock.lap("ball")
     cond_a, cond_b = _conditioned(frame_a, frame_b, settings, background, glare)
     vf = correlate_pair(cond_a, cond_b, masks[0], masks[1], settings.piv, progress)
     clock.lap("piv")  # with the conditioning
+    return _after_piv(vf, (frame_a, frame_b), (cond_a, cond_b), balls, glare, settings, clock)
+
+
+def remeasure_ball(
+    frame_a: np.ndarray, frame_b: np.ndarray, stored: ShotResult, settings: ShotSettings,
+    background: np.ndarray | None = None,
+) -> ShotResult:
+    """Measure a shot again after the analyst set its circles or its flight direction.
+
+    Only what depends on them is redone: the scale (when derived from the ball), the flight,
+    the frame-order check, the fine correlation in the ball frame, the separation, the
+    Reynolds number and the fields in m/s; the ball is not searched for where the analyst set
+    its circle (``settings.circle_a_px``, ``circle_b_px``), and the main correlation is the
+    stored one (its masks were drawn with the circles as they were: only windows at the
+    outline differ). When ``settings`` differ from ``stored.settings`` in anything else (PIV
+    passes, scale, ...), or the shot has no ball, the whole shot is measured again.
+
+    Parameters
+    ----------
+    frame_a, frame_b : (H, W) ndarray
+    stored : ShotResult
+        The shot's last result (its main field is kept).
+    settings : ShotSettings
+        The settings to measure with, the analyst's circles and flight direction included.
+    background : (H, W) ndarray, optional
+        As for :func:`measure_shot`.
+
+    Raises
+    ------
+    core.WakelineError
+        As :func:`measure_shot`.
+    """
+    if not _wants_ball(settings) or not settings.measured_alike(stored.settings):
+        return measure_shot(frame_a, frame_b, settings, background=background)
+    clock = _StageClock()
+    glare = _glare(frame_a, frame_b, settings)
+    balls = _balls(frame_a, frame_b, settings)
+    cond_a, cond_b = _conditioned(frame_a, frame_b, settings, background, glare)
+    clock.lap("ball")
+    field = replace(stored.field, warnings=list(stored.field.warnings))
+    return _after_piv(field, (frame_a, frame_b), (cond_a, cond_b), balls, glare, settings, clock)
+
+
+def _after_piv(vf: VectorField, raw, conditioned, balls, glare, settings: ShotSettings,
+               clock) -> ShotResult:
+    """The stages after the main correlation: ball stages (when there is a ball), fields."""
+    warnings: list[str] = []
     result = ShotResult(field=vf, settings=settings, scale_mm_per_px=settings.scale_mm_per_px,
                         warnings=warnings, stage_seconds=clock.seconds)
     if balls is not None:
-        _ball_stages(result, (frame_a, frame_b), (cond_a, cond_b), balls, glare, warnings,
-                     clock)
+        _ball_stages(result, raw, conditioned, balls, glare, warnings, clock)
     _fill_fields(result, warnings)
     clock.lap("fields")
     return result
@@ -307,12 +395,37 @@ class _StageClock:
         self._last = now
 
 
-def _find_balls(frame_a, frame_b, settings: ShotSettings):
+#: Standard uncertainty (px) of a circle the analyst placed by hand (centre per axis and
+#: radius): about what a drag on screen places at the zoom an outline is judged at.
+HAND_CIRCLE_SIGMA_PX = 0.5
+#: ``BallFit.outline`` of a circle the analyst placed.
+BY_ANALYST = "set by the analyst"
+
+
+def _wants_ball(settings: ShotSettings) -> bool:
+    return bool(settings.find_ball or settings.circle_a_px or settings.circle_b_px)
+
+
+def _balls(frame_a, frame_b, settings: ShotSettings):
+    """The ball in both frames: the analyst's circles where set, else found (near the other)."""
     from core.ball import find_ball
 
     hint = _expected_radius_px(settings)
-    ball_a = find_ball(frame_a, radius_hint_px=hint, name="frame A")
-    return ball_a, find_ball(frame_b, radius_hint_px=hint, name="frame B", near=ball_a)
+    given = [None if c is None else hand_ball(c, frame_a.shape)
+             for c in (settings.circle_a_px, settings.circle_b_px)]
+    ball_a = given[0] or find_ball(frame_a, radius_hint_px=hint, name="frame A", near=given[1])
+    ball_b = given[1] or find_ball(frame_b, radius_hint_px=hint, name="frame B", near=ball_a)
+    return ball_a, ball_b
+
+
+def hand_ball(circle, shape) -> BallFit:
+    """A ``BallFit`` of a circle (cx, cy, r) px the analyst placed on a frame of ``shape``."""
+    cx, cy, r = (float(v) for v in circle)
+    height, width = shape
+    cut = cx - r < 0 or cy - r < 0 or cx + r > width - 1 or cy + r > height - 1
+    sigma = HAND_CIRCLE_SIGMA_PX
+    return BallFit((cx, cy), r, cut_by_edge=cut, center_sigma_px=(sigma, sigma),
+                   radius_sigma_px=sigma, outline=BY_ANALYST)
 
 
 def _expected_radius_px(settings: ShotSettings) -> float | None:
@@ -426,6 +539,8 @@ def _ball_warnings(ball_a: BallFit, ball_b: BallFit, expected_r: float | None) -
             "may be spoilt"
         )
     for name, ball in (("frame A", ball_a), ("frame B", ball_b)):
+        if ball.outline == BY_ANALYST:
+            continue
         worst = max(ball.center_sigma_px) if np.isfinite(ball.center_sigma_px).all() else 0.0
         if ball.arc_share < POOR_ARC_SHARE or worst > POOR_CENTRE_SIGMA_PX:
             out.append(
@@ -647,5 +762,6 @@ def _fill_fields(result: ShotResult, warnings: list[str]) -> None:
     else:
         warnings.append("no dt or scale: velocities not in m/s (displacements in px only)")
     result.vorticity_1_s = vorticity_1_s(vf, dt, usable=vf.valid | vf.replaced)
+    result.fine_vorticity_1_s = _fine_vorticity(result.fine_field, dt)
     if not dt:
         warnings.append("no dt: vorticity is per frame pair (px/px), not 1/s")

@@ -37,8 +37,8 @@ from app.review.text import (
     reynolds_text,
     speed_text,
     uncertainty_text,
+    reviewed_wake_text,
     vectors_text,
-    wake_text,
 )
 from core.geometry import SIDES
 from core.results import SideProposal
@@ -275,6 +275,8 @@ class ReadoutPanel(QWidget):
             diff = angle_deg - other_deg if side == "upper" else other_deg - angle_deg
             self.difference.setText(f"{angle_text(diff)} (moving)")
             self.difference.setStyleSheet(LIVE_STYLE)
+        self.wake.setText(reviewed_wake_text(record, moving={side: angle_deg}))
+        self.wake.setStyleSheet(LIVE_STYLE)
 
     def show_current(self) -> None:
         """Show the last record again (after a cancelled drag)."""
@@ -341,8 +343,8 @@ class ReadoutPanel(QWidget):
         return MISSING
 
     def _show_wake(self, record) -> None:
-        summary = record.summary
-        self.wake.setText(MISSING if summary is None else wake_text(summary.separation))
+        self.wake.setText(reviewed_wake_text(record))
+        self.wake.setStyleSheet("")
 
     def _show_flight(self, record) -> None:
         summary = record.summary

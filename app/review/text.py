@@ -11,6 +11,7 @@ from __future__ import annotations
 import math
 
 from core.results import Flight, SeparationResult, SideProposal
+from core.store import ShotRecord
 from core.summary import ShotSummary, VectorCounts
 
 MISSING = "—"
@@ -77,13 +78,28 @@ def flight_text(flight: Flight | None, decimals: int = 1) -> str:
     return f"{direction} at {speed_text(flight.speed_m_s)}"
 
 
-def wake_text(separation: SeparationResult, decimals: int = 1) -> str:
-    """The wake state, and its deflection from the flight axis when measured."""
-    state = separation.wake_state
+def wake_text(separation: SeparationResult, decimals: int = 1, state: str | None = None) -> str:
+    """The wake state (the proposal's, or ``state``), and its deflection from the flight axis
+    when measured."""
+    state = separation.wake_state if state is None else state
     if separation.wake_deflection_deg is None:
         return state
     deflection = angle_text(separation.wake_deflection_deg, decimals=decimals)
     return f"{state}, deflected {deflection} from the flight axis"
+
+
+def reviewed_wake_text(record: ShotRecord, decimals: int = 1, moving: dict | None = None) -> str:
+    """The wake of a shot as reviewed: the state of its angles as they stand (the analyst's
+    where set, ``moving`` while a mark is dragged; ``ShotRecord.wake_state``), naming the
+    proposals' state where it differs, and the measured deflection; the em dash for a shot
+    marked unusable or not measured."""
+    state = record.wake_state(moving)
+    if not state:
+        return MISSING
+    proposed = record.summary.separation.wake_state
+    if state != proposed:
+        state += f" (proposals: {proposed})"
+    return wake_text(record.summary.separation, decimals, state)
 
 
 def ball_text(summary: ShotSummary) -> str:

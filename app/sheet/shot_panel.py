@@ -17,8 +17,8 @@ from app.review.text import (
     SHEET_DECIMALS,
     flight_text,
     reynolds_text,
+    reviewed_wake_text,
     vectors_text,
-    wake_text,
 )
 from app.sheet.content import (
     final_text,
@@ -343,7 +343,7 @@ def _paint_numbers(p, info, record, with_metadata: bool = False) -> None:
     if record.pick.reason:
         row("reason", record.pick.reason)
     row("note", note_text(record))
-    row("wake", MISSING if summary is None else wake_text(summary.separation, SHEET_DECIMALS))
+    row("wake", reviewed_wake_text(record, SHEET_DECIMALS))
     row("flight", flight_text(None if summary is None else summary.flight, SHEET_DECIMALS))
     if summary is not None and summary.reynolds is not None:
         row("Reynolds", reynolds_text(summary))

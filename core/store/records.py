@@ -12,7 +12,11 @@ from enum import StrEnum
 
 from core import WakelineError
 from core.geometry import SIDES
+from core.results import SideProposal, wake_state
 from core.summary import ShotSummary
+
+#: The analyst's ball and flight of a shot, kept with the pick (None: as measured).
+GEOMETRY_FIELDS = ("circle_a_px", "circle_b_px", "flight_deg")
 
 
 class ReviewStatus(StrEnum):
@@ -45,9 +49,30 @@ class Pick:
     when: str = ""  # ISO 8601 UTC of the decision
     note_who: str = ""  # who wrote the note last ("" in files written before notes had theirs)
     note_when: str = ""  # ISO 8601 UTC of the note
+    # the analyst's circles (cx, cy, r) px in frames A and B and flight direction (deg) for
+    # this shot; processing takes them instead of finding the ball (None: as measured)
+    circle_a_px: tuple[float, float, float] | None = None
+    circle_b_px: tuple[float, float, float] | None = None
+    flight_deg: float | None = None
+
+    def __post_init__(self):
+        for name in ("circle_a_px", "circle_b_px"):
+            value = getattr(self, name)
+            if value is not None:
+                setattr(self, name, tuple(float(v) for v in value))
 
     def to_dict(self) -> dict:
-        return {**asdict(self), "status": str(self.status)}
+        out = {**asdict(self), "status": str(self.status)}
+        for name in ("circle_a_px", "circle_b_px"):
+            out[name] = None if out[name] is None else list(out[name])
+        return out
+
+    def geometry(self) -> dict:
+        """The analyst's ball and flight (``GEOMETRY_FIELDS``), None where measured."""
+        return {name: getattr(self, name) for name in GEOMETRY_FIELDS}
+
+    def has_geometry(self) -> bool:
+        return any(value is not None for value in self.geometry().values())
 
     @classmethod
     def from_dict(cls, data: dict) -> Pick:
@@ -62,6 +87,8 @@ class Pick:
                 raise TypeError(f"pick {key} {value!r} is not a number")
             if key in ("reason", "note", "who", "when") and not isinstance(value, str):
                 raise TypeError(f"pick {key} {value!r} is not text")
+            if key in ("circle_a_px", "circle_b_px") and value is not None:
+                _check_circle(key, value, TypeError)
         return cls(**values)
 
 
@@ -108,6 +135,16 @@ class ShotRecord:
         final = self.final_deg(side)
         return final if final is not None else self.proposed_deg(side)
 
+    def wake_state(self, moving: dict | None = None) -> str:
+        """The wake state of the angles as they stand: the analyst's where set, else the
+        proposals, each with its proposal's uncertainty (``core.results.wake_state``); "" for a
+        shot marked unusable or not measured. ``moving``: side -> angle of a mark being dragged.
+        """
+        if self.summary is None or self.pick.status == ReviewStatus.UNUSABLE:
+            return ""
+        angles = {s: self.shown_deg(s) for s in SIDES} | dict(moving or {})
+        return wake_state(*(SideProposal(angles[s], self.uncertainty_deg(s)) for s in SIDES))
+
 
 def _checked_side(side: str) -> str:
     if side not in SIDES:
@@ -144,6 +181,17 @@ def checked_status(shot_id: str, status) -> ReviewStatus:
                             f"{', '.join(ReviewStatus)}") from None
 
 
+def _check_circle(name: str, value, error) -> tuple[float, float, float]:
+    """``value`` as a circle (cx, cy, r) px of finite numbers with r > 0; else ``error``."""
+    try:
+        circle = tuple(float(v) for v in value)
+    except (TypeError, ValueError):
+        raise error(f"{name} {value!r} is not a circle (cx, cy, r)") from None
+    if len(circle) != 3 or not all(math.isfinite(v) for v in circle) or circle[2] <= 0:
+        raise error(f"{name} {value!r} is not a circle (cx, cy, r) with a radius above 0")
+    return circle
+
+
 def check_pick(shot_id: str, pick: Pick) -> None:
     if pick.status == ReviewStatus.UNUSABLE and not pick.reason.strip():
         raise WakelineError(f"shot {shot_id}: marking a shot unusable needs a reason")
@@ -163,7 +211,7 @@ def damage_reason(exc: Exception) -> str:
 
 def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -> Pick:
     """``current`` with ``changes`` (``status``, ``upper_deg``, ``lower_deg``, ``reason``,
-    ``note``), checked. ``by`` and ``now`` are the decision's author and time when a decision
+    ``note``, and the analyst's ball and flight ``GEOMETRY_FIELDS``), checked. ``by`` and ``now`` are the decision's author and time when a decision
     field is changed, and the note's own when the note changes: editing a note leaves who made
     the decision as it was.
 
@@ -172,15 +220,22 @@ def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -
     WakelineError
         An unknown field or status, "unusable" without a reason, or a non-finite angle.
     """
-    unknown = set(changes) - {"status", "upper_deg", "lower_deg", "reason", "note"}
+    unknown = set(changes) - {"status", "upper_deg", "lower_deg", "reason", "note",
+                              *GEOMETRY_FIELDS}
     if unknown:
         raise WakelineError(f"shot {shot_id}: no pick field {', '.join(sorted(unknown))}")
     changes = dict(changes)
     if "status" in changes:
         changes["status"] = checked_status(shot_id, changes["status"])
-    for side in ("upper_deg", "lower_deg"):
-        if side in changes:
-            changes[side] = checked_angle(shot_id, side, changes[side])
+    for name in ("upper_deg", "lower_deg", "flight_deg"):
+        if name in changes:
+            changes[name] = checked_angle(shot_id, name, changes[name])
+    for name in ("circle_a_px", "circle_b_px"):
+        if changes.get(name) is not None:
+            try:
+                changes[name] = _check_circle(name, changes[name], ValueError)
+            except ValueError as exc:
+                raise WakelineError(f"shot {shot_id}: {exc}") from None
     if set(changes) - {"note"}:
         changes.update(who=by, when=now)
     if changes.get("note", current.note) != current.note:

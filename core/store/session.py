@@ -261,8 +261,11 @@ class Session(SnapshotWriting, JournalReplay, Mapping):
 
     def settings_for(self, shot_id: str) -> ShotSettings:
         """The ShotSettings a shot is processed with: the session processing settings, with the
-        shot's own values (``dt_s``, scale, ball, ``flight_deg``) where its metadata has them."""
-        meta = self._get(shot_id).metadata
+        shot's own values (``dt_s``, scale, ball, ``flight_deg``) where its metadata has them,
+        and the analyst's circles and flight direction where the pick has them (processing
+        never replaces what the analyst set)."""
+        record = self._get(shot_id)
+        meta = record.metadata
         data = dict(self._processing)
         for key in PER_SHOT_SETTINGS:
             value = meta.get(key)
@@ -270,6 +273,7 @@ class Session(SnapshotWriting, JournalReplay, Mapping):
                 data[key] = value
             elif key != "flight_deg":  # a session-wide flight override applies when unset
                 data[key] = None
+        data.update({k: v for k, v in record.pick.geometry().items() if v is not None})
         return ShotSettings.from_dict(data)
 
     def needs_processing(self, shot_id: str) -> bool:

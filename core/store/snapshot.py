@@ -25,7 +25,7 @@ from core.store.manifest import NUMBER_COLUMNS
 from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id, damage_reason
 from core.summary import ShotSummary
 
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
 _HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
 #: HDF5 object layout of the files written: from 1.10 on, object headers (attributes, links,
 #: a dataset's layout and filters), the superblock and chunk indexes carry checksums.
@@ -157,9 +157,16 @@ def _load_v1(f: h5py.File) -> Snapshot:
     )
 
 
+def _load_v2(f: h5py.File) -> Snapshot:
+    """Version 2: a pick may hold the analyst's circles and flight direction (``Pick``'s
+    ``GEOMETRY_FIELDS``); the index is read as in version 1. The version changed so that a
+    wakeline reading only version 1 (which would drop them) refuses the file."""
+    return _load_v1(f)
+
+
 # A new format version adds its loader here; each loader returns the current in-memory model,
 # which is the migration: the next compaction writes the file in the current version.
-_LOADERS = {1: _load_v1}
+_LOADERS = {1: _load_v1, 2: _load_v2}
 
 
 

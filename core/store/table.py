@@ -14,7 +14,8 @@ from core.store.companions import refuse_session_file
 
 
 def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
-    """One row per shot: metadata, proposed and final angles, uncertainty, wake, review.
+    """One row per shot: metadata, proposed and final angles, uncertainty, wake, review. The wake
+    state is that of the final angles (``ShotRecord.wake_state``): empty for an unusable shot.
 
     Returns
     -------
@@ -58,7 +59,7 @@ def _result_cells(r: ShotRecord) -> list[str]:
                       r.proposed_deg("lower"), r.uncertainty_deg("lower"),
                       r.final_deg("upper"), r.final_deg("lower"),
                       None if separation is None else separation.wake_deflection_deg)),
-        None if separation is None else separation.wake_state,
+        r.wake_state(),  # from the final angles: follows the analyst's edits
         pick.status, pick.reason, pick.note, pick.who, pick.when,
         r.processed_utc, r.software_version, pick.note_who, pick.note_when,
     ]
