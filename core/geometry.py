@@ -68,3 +68,37 @@ def angle_of_point(
     nx, ny = side_normal(direction_deg, side)
     rx, ry = point_px[0] - center_px[0], point_px[1] - center_px[1]
     return math.degrees(math.atan2(-(rx * fx + ry * fy), rx * nx + ry * ny))
+
+
+def mid_circle(ball_a, ball_b=None) -> tuple[tuple[float, float], float] | None:
+    """The ball at mid-exposure: the mean of its circles in frames A and B (``center_px``,
+    ``radius_px`` of each; frame A alone without B), as ``((cx, cy), r)`` px; None without a
+    finite circle. The ball-frame measurements (fine field, fitted layers, separation angles)
+    are made about this circle."""
+    balls = [b for b in (ball_a, ball_b) if b is not None and math.isfinite(b.radius_px)
+             and b.radius_px > 0]
+    if ball_a is None or not balls:
+        return None
+    cx = sum(float(b.center_px[0]) for b in balls) / len(balls)
+    cy = sum(float(b.center_px[1]) for b in balls) / len(balls)
+    return (cx, cy), sum(float(b.radius_px) for b in balls) / len(balls)
+
+
+def ball_coordinates(
+    center_px: tuple[float, float], radius_px: float, direction_deg: float,
+    point_px: tuple[float, float],
+) -> tuple[float, float, str, float]:
+    """Where a point lies relative to the ball: ``(x/D, y/D, side, angle_deg)``.
+
+    ``x/D`` along the flight axis, positive downstream (behind the ball), ``y/D`` across it,
+    positive toward the upper side, both over the diameter from the centre; ``side`` the side
+    the point is on and ``angle_deg`` its separation angle there (``angle_of_point``).
+    """
+    fx, fy = flight_unit(direction_deg)
+    nx, ny = upper_normal(direction_deg)
+    rx, ry = point_px[0] - center_px[0], point_px[1] - center_px[1]
+    diameter = 2.0 * radius_px
+    across = (rx * nx + ry * ny) / diameter
+    side = "upper" if across >= 0 else "lower"
+    return (-(rx * fx + ry * fy) / diameter, across, side,
+            angle_of_point(center_px, direction_deg, side, point_px))

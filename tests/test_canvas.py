@@ -9,7 +9,7 @@ import pytest
 from conftest import analytic_result, synthetic_frames
 
 from app.qt.canvas import CanvasShot, ShotCanvas
-from app.qt.canvas_items import PROPOSAL_RADIUS, arrow_segments
+from app.qt.canvas_items import PROPOSAL_RADIUS, arrow_segments, mark_circle
 from app.qt.canvas_pictures import smooth_upsample, vorticity_image
 from app.review.colours import symmetric_limit
 from core.geometry import angle_of_point, flight_unit, point_at_angle
@@ -70,7 +70,7 @@ def test_vectors_are_one_item_per_kind_with_a_stride(canvas, shot_data):
 
 def test_marks_are_held_on_the_ball_outline(canvas, shot_data):
     result = shot_data[2]
-    centre, radius = result.ball_a.center_px, result.ball_a.radius_px
+    centre, radius = mark_circle(result)  # the ball at mid-exposure, where the angles are fitted
     flight = result.flight.direction_deg
     handle = canvas.handle("upper")
     x, y = handle.pos().x(), handle.pos().y()
@@ -88,15 +88,16 @@ def test_final_angle_wins_and_the_proposal_stays_visible(canvas, shot_data):
     assert canvas.mark_angle("upper") == 20.0
     proposals = canvas.overlay.proposals.data
     assert len(proposals) == 1  # only where the final angle differs from the proposal
-    expected = point_at_angle(result.ball_a.center_px, PROPOSAL_RADIUS * result.ball_a.radius_px,
-                              result.flight.direction_deg, "upper", 10.5)
+    centre, radius = mark_circle(result)
+    expected = point_at_angle(centre, PROPOSAL_RADIUS * radius, result.flight.direction_deg,
+                              "upper", 10.5)
     assert (proposals[0]["x"], proposals[0]["y"]) == pytest.approx(expected)
     assert canvas.overlay.labels["upper"].textItem.toPlainText() == "U +20.0°"
 
 
 def test_flight_arrow_and_plane_normal_through_the_centre(canvas, shot_data):
     result = shot_data[2]
-    (cx, cy), fx_fy = result.ball_a.center_px, flight_unit(result.flight.direction_deg)
+    (cx, cy), fx_fy = mark_circle(result)[0], flight_unit(result.flight.direction_deg)
     shaft = _points(canvas.overlay.flight)[:2]
     direction = (shaft[1] - shaft[0]) / np.linalg.norm(shaft[1] - shaft[0])
     assert direction == pytest.approx(fx_fy, abs=1e-9)

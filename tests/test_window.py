@@ -11,6 +11,7 @@ from PySide6.QtCore import QEvent, QMimeData, QPoint, QPointF, Qt, QUrl
 from PySide6.QtGui import QDropEvent, QMouseEvent
 from PySide6.QtWidgets import QApplication
 
+from app.qt.canvas_items import mark_circle
 from core.geometry import angle_of_point, point_at_angle
 from core.store import Session
 
@@ -117,7 +118,7 @@ def test_drag_upper_mark_follows_geometry_undo_redo_and_reopen(main_window, make
     canvas = window.canvas
     record = window.model.record("s01")
     result = window.model.result("s01")
-    centre, radius = result.ball_a.center_px, result.ball_a.radius_px
+    centre, radius = mark_circle(result)
     flight = result.flight.direction_deg
     proposal = record.proposed_deg("upper")
     handle = canvas.handle("upper")
@@ -546,8 +547,7 @@ def test_right_click_during_a_drag_puts_the_mark_back(main_window, make_session,
     proposal = window.model.record("s01").proposed_deg("upper")
     handle = canvas.handle("upper")
     start = _viewport_point(canvas, handle.pos().x(), handle.pos().y())
-    end = _viewport_point(canvas, *point_at_angle(result.ball_a.center_px,
-                                                  result.ball_a.radius_px,
+    end = _viewport_point(canvas, *point_at_angle(*mark_circle(result),
                                                   result.flight.direction_deg, "upper",
                                                   proposal + 20.0))
     viewport = canvas.graphics.viewport()

@@ -9,6 +9,7 @@ import os
 import pytest
 from test_window import _drag, _open, _viewport_point
 
+from app.qt.canvas_items import mark_circle
 from core.geometry import point_at_angle
 
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
@@ -25,8 +26,7 @@ def test_a_drag_the_store_refused_puts_the_mark_back(main_window, make_session, 
     proposal = window.model.record("s01").proposed_deg("upper")
     handle = canvas.handle("upper")
     start = _viewport_point(canvas, handle.pos().x(), handle.pos().y())
-    end = _viewport_point(canvas, *point_at_angle(result.ball_a.center_px,
-                                                  result.ball_a.radius_px,
+    end = _viewport_point(canvas, *point_at_angle(*mark_circle(result),
                                                   result.flight.direction_deg, "upper",
                                                   proposal + 20.0))
 

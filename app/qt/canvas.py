@@ -35,6 +35,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from app.qt.canvas_circles import CircleEditing
 from app.qt.canvas_controls import DEFAULT_LAYERS, LayerControls, PictureMode
 from app.qt.canvas_items import (
     BACKGROUND,
@@ -48,7 +49,7 @@ from app.qt.canvas_items import (
     pen,
 )
 from app.qt.canvas_pane import ShotPane
-from app.qt.canvas_pictures import field_values, picture_levels, vorticity_unit
+from app.qt.canvas_pictures import picture_levels, point_text, vorticity_unit
 from app.review import colours
 from app.review.scales import round_limit
 from core.geometry import SIDES, angle_of_point
@@ -58,7 +59,7 @@ pg.setConfigOptions(imageAxisOrder="row-major")
 
 
 FLICKER_MS = 350
-HOVER_HINT = "Point at the picture for flow values; drag a round mark along the ball outline."
+HOVER_HINT = "Point for flow values; drag a round mark along the ball outline."
 
 
 @dataclass
@@ -91,7 +92,7 @@ class _Showing:
     marks: dict  # side -> angle
 
 
-class ShotCanvas(LayerControls, QWidget):
+class ShotCanvas(LayerControls, CircleEditing, QWidget):
     """Centre panel: the shot's picture and fields with the analyst's marks.
 
     Signals
@@ -104,12 +105,15 @@ class ShotCanvas(LayerControls, QWidget):
         A right click ended the drag; the mark went back and nothing is recorded.
     hover_text(text)
         Position and field values under the cursor.
+    circle_moved(frame, cx, cy, r)
+        The analyst let go of a ball circle ("a" or "b") being corrected (image px).
     """
 
     mark_moved = Signal(str, float)
     mark_released = Signal(str, float)
     mark_cancelled = Signal(str)
     hover_text = Signal(str)
+    circle_moved = Signal(str, float, float, float)
     layers_changed = Signal()
 
     def __init__(self, parent: QWidget | None = None) -> None:
@@ -126,6 +130,7 @@ class ShotCanvas(LayerControls, QWidget):
         self.context_menu: QMenu | None = None
         self._build_controls()
         self._build_views()
+        self._build_circle_handles()
         self._build_layout()
         self._flicker = QTimer(self)
         self._flicker.setInterval(FLICKER_MS)
@@ -186,8 +191,8 @@ class ShotCanvas(LayerControls, QWidget):
         bar.setContentsMargins(4, 2, 4, 2)
         bar.setSpacing(8)
         bar.addWidget(self.picture_box)
-        for widget in (self.vectors_box, self.stride_box, self.vorticity_box, self.limit_box,
-                       self.fixed_box, self.overlay_button, self.side_box):
+        for widget in (self.frame_box, self.vectors_box, self.stride_box, self.vorticity_box,
+                       self.limit_box, self.fixed_box, self.overlay_button, self.side_box):
             bar.addWidget(widget)
         bar.addStretch(1)
         self.hover_label = QLabel(HOVER_HINT, self)
@@ -205,8 +210,11 @@ class ShotCanvas(LayerControls, QWidget):
         bottom.addWidget(self.hover_label, 1)
         self.legend = QLabel(legend_html(), self)
         self.legend.setToolTip("valid vectors, vectors the validation replaced, windows with no "
-                               "vector (mostly the ball), and the machine's proposal where the "
-                               "analyst moved a mark")
+                               "vector (mostly the ball), the machine's proposal where the "
+                               "analyst moved a mark, the interval about the proposal meant to "
+                               "hold the true angle in 95 % of shots, the fitted shear layer "
+                               "(solid: dividing line, dashed: half-speed line) and the band "
+                               "of the images it was fitted to")
         bottom.addWidget(self.legend, 0)
         box.addLayout(bottom)
 
@@ -341,13 +349,15 @@ class ShotCanvas(LayerControls, QWidget):
         for showing in showings:
             result = showing.shot.result if showing.shot is not None and showing.fields else None
             see_through = showing.picture and showing.pane.picture.isVisible()
+            fine = self.fine_box.isChecked()
             drawn = showing.pane.show_vorticity(
-                result if self.vorticity_box.isChecked() else None, limit, see_through)
+                result if self.vorticity_box.isChecked() else None, limit, see_through, fine)
             any_vorticity = any_vorticity or drawn
-            vf = getattr(result, "field", None) if self.vectors_box.isChecked() else None
             on_field = drawn and not see_through
-            showing.pane.show_vectors(vf, self.stride_box.value(),
-                                      VECTOR_ON_FIELD if on_field else VECTOR_ON_PICTURE)
+            showing.pane.show_vectors(result if self.vectors_box.isChecked() else None,
+                                      self.stride_box.value(),
+                                      VECTOR_ON_FIELD if on_field else VECTOR_ON_PICTURE,
+                                      self.ball_frame(), fine)
             if drawn:
                 self._show_unit(vorticity_unit(result))
         self.colour_bar.setVisible(any_vorticity)
@@ -379,8 +389,10 @@ class ShotCanvas(LayerControls, QWidget):
         for showing in self._showing():
             result = showing.shot.result if showing.shot is not None else None
             showing.pane.show_overlays(result, self.ball_box.isChecked(),
-                                       self.flight_box.isChecked())
+                                       self.flight_box.isChecked(), self.layers_box.isChecked(),
+                                       self.fine_box.isChecked())
             showing.pane.set_title(self._title(showing))
+        self._place_circles()
         self._draw_marks()
 
     def _title(self, showing: _Showing) -> str:
@@ -397,10 +409,13 @@ class ShotCanvas(LayerControls, QWidget):
             for showing in self._showing():
                 shot = showing.shot
                 result = shot.result if shot is not None else None
-                editable = bool(shot is not None and shot.editable and showing.pane is self.main)
-                showing.pane.overlay.set_marks(
-                    result, showing.marks, shot.proposed_deg if shot is not None else {},
-                    self.marks_box.isChecked(), editable)
+                editable = bool(shot is not None and shot.editable and showing.pane is self.main
+                                and not self._editing_circles)
+                proposals = shot.proposed_deg if shot is not None else {}
+                showing.pane.overlay.set_marks(result, showing.marks, proposals,
+                                               self.marks_box.isChecked(), editable)
+                showing.pane.evidence.show_uncertainty(result, proposals,
+                                                       self.marks_box.isChecked())
         finally:
             self._placing = False
 
@@ -452,19 +467,12 @@ class ShotCanvas(LayerControls, QWidget):
 
     def describe_point(self, x_px: float, y_px: float, shot: CanvasShot | None = None) -> str:
         """Text for the cursor at image position (x, y) of ``shot`` (default: the current one):
-        position and field values there."""
+        position (px, mm, and about the ball) and the flow there, in the frame shown."""
         shot = self._shot if shot is None else shot
         if shot is None:
             return " "
-        result = shot.result
-        scale = getattr(result, "scale_mm_per_px", None) if result is not None else None
-        parts = [f"x {x_px:7.1f} y {y_px:7.1f} px"]
-        if scale:
-            parts.append(f"({x_px * scale:6.2f}, {y_px * scale:6.2f} mm)")
-        parts.extend(field_values(result, x_px, y_px))
-        if shot is not self._shot:
-            parts.insert(0, f"shot {shot.shot_id}:")
-        return "  ".join(parts)
+        text = point_text(shot.result, x_px, y_px, self.ball_frame(), self.fine_box.isChecked())
+        return text if shot is self._shot else f"shot {shot.shot_id}:  {text}"
 
     # -- the picture out: clipboard, PNG, SVG ------------------------------------------------
     def _on_context_menu(self, pos) -> None:
@@ -543,9 +551,12 @@ def legend_html() -> str:
     def swatch(colour: str, glyph: str = "■") -> str:
         return f"<span style='color:{colour}'>{glyph}</span>"
 
+    layer = QColor(colours.UPPER_SIDE).lighter(175).name()
+    wedge = QColor(colours.UPPER_SIDE).lighter(150).name()
     return (f"{swatch(VECTOR_ON_PICTURE)} vector &nbsp;{swatch(REPLACED_VECTOR)} replaced "
             f"&nbsp;{swatch(MASKED_MARK)} masked &nbsp;{swatch(colours.PROPOSAL_MARK, '◆')} "
-            "proposal")
+            f"proposal &nbsp;{swatch(wedge)} ± 95 % &nbsp;{swatch(layer, '—')} layer "
+            f"&nbsp;{swatch(colours.MUTED_INK, '···')} band")
 
 
 def _same_extent(old: CanvasShot | None, new: CanvasShot) -> bool:

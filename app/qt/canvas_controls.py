@@ -26,6 +26,16 @@ class PictureMode(StrEnum):
 
 PICTURES = tuple(PictureMode)
 
+
+class FrameOfReference(StrEnum):
+    """Whose velocity the vectors and the cursor show (README: frames of reference)."""
+
+    LAB = "lab frame"
+    BALL = "ball frame"
+
+
+FRAMES = tuple(FrameOfReference)
+
 DEFAULT_LAYERS = {
     "picture": PictureMode.FRAME_A,
     "vectors": True,
@@ -36,6 +46,9 @@ DEFAULT_LAYERS = {
     "ball": True,
     "flight": True,
     "marks": True,
+    "fine": True,
+    "layers": True,
+    "frame": FrameOfReference.LAB,
     "side_by_side": False,
 }
 
@@ -68,24 +81,34 @@ class LayerControls:
         self.overlay_button = QToolButton(self)
         self.overlay_button.setText("Overlays")
         self.overlay_button.setToolTip("ball outlines, flight arrow with the normal plane, "
-                                       "separation marks")
+                                       "separation marks with their uncertainty, the fine "
+                                       "field near the ball, the fitted shear layers")
         self.overlay_button.setPopupMode(QToolButton.ToolButtonPopupMode.InstantPopup)
         overlay_menu = QMenu(self.overlay_button)
         self.ball_box = _check_action("Ball outline in frames A and B", overlay_menu)
         self.flight_box = _check_action("Flight arrow and normal plane", overlay_menu)
-        self.marks_box = _check_action("Separation marks", overlay_menu)
+        self.marks_box = _check_action("Separation marks and their uncertainty", overlay_menu)
+        overlay_menu.addSeparator()
+        self.fine_box = _check_action("Fine field near the ball", overlay_menu)
+        self.layers_box = _check_action("Fitted shear layers and bands", overlay_menu)
         self.overlay_button.setMenu(overlay_menu)
+        self.frame_box = QComboBox(self)
+        self.frame_box.addItems(FRAMES)
+        self.frame_box.setToolTip("vectors and cursor velocities in the lab frame (air at rest "
+                                  "far away) or the ball frame (ball velocity subtracted, as in "
+                                  "a wind tunnel); T switches")
         self.side_box = QCheckBox("Side by side", self)
         self.side_box.setToolTip("two views with zoom and pan linked: the frames and the fields "
                                  "of this shot, or this shot and the one kept for comparison (K)")
         self.picture_box.currentTextChanged.connect(self._on_picture)
         for box in (self.vectors_box, self.vorticity_box, self.ball_box, self.flight_box,
-                    self.marks_box):
+                    self.marks_box, self.fine_box, self.layers_box):
             box.toggled.connect(self._on_layer_toggled)
+        self.frame_box.currentTextChanged.connect(self._on_layer_toggled)
         self.stride_box.valueChanged.connect(self._on_layer_toggled)
         # clicking a layer switch must not take the keyboard from the shot list (Up/Down)
         for widget in (self.picture_box, self.vectors_box, self.vorticity_box, self.fixed_box,
-                       self.overlay_button, self.side_box):
+                       self.overlay_button, self.side_box, self.frame_box):
             widget.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         self.stride_box.setMaximumWidth(80)
         self.limit_box.setMaximumWidth(120)
@@ -105,6 +128,9 @@ class LayerControls:
             "ball": self.ball_box.isChecked(),
             "flight": self.flight_box.isChecked(),
             "marks": self.marks_box.isChecked(),
+            "fine": self.fine_box.isChecked(),
+            "layers": self.layers_box.isChecked(),
+            "frame": self.frame_box.currentText(),
             "side_by_side": self.side_box.isChecked(),
         }
 
@@ -123,6 +149,10 @@ class LayerControls:
             self.ball_box.setChecked(_as_bool(merged["ball"]))
             self.flight_box.setChecked(_as_bool(merged["flight"]))
             self.marks_box.setChecked(_as_bool(merged["marks"]))
+            self.fine_box.setChecked(_as_bool(merged["fine"]))
+            self.layers_box.setChecked(_as_bool(merged["layers"]))
+            frame = merged["frame"] if merged["frame"] in FRAMES else FrameOfReference.LAB
+            self.frame_box.setCurrentText(frame)
             self.side_box.setChecked(_as_bool(merged["side_by_side"]))
         finally:
             self._building = False
@@ -190,6 +220,13 @@ class LayerControls:
 
     def picture_mode(self) -> PictureMode:
         return PictureMode(self.picture_box.currentText())
+
+    def ball_frame(self) -> bool:
+        """True when the vectors show the ball frame."""
+        return self.frame_box.currentText() == FrameOfReference.BALL
+
+    def toggle_frame(self) -> None:
+        self.frame_box.setCurrentIndex(1 - self.frame_box.currentIndex())
 
     def cycle_picture(self) -> None:
         index = (self.picture_box.currentIndex() + 1) % len(PICTURES)

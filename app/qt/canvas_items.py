@@ -20,7 +20,7 @@ from PySide6.QtWidgets import (
 from app.review import colours
 from app.review.marks import moved_from_proposal
 from app.review.text import angle_text
-from core.geometry import SIDES, point_at_angle
+from core.geometry import SIDES, mid_circle, point_at_angle
 
 SIDE_COLOURS = {"upper": colours.UPPER_SIDE, "lower": colours.LOWER_SIDE}
 SIDE_LETTERS = {"upper": "U", "lower": "L"}
@@ -36,11 +36,9 @@ PLANE_LINE = "#c9c6bd"  # the plane normal to the flight: a quieter dashed light
 
 
 def mark_circle(result) -> tuple[tuple[float, float], float] | None:
-    """Circle the separation marks live on: the ball fitted in frame A (centre px, radius px)."""
-    ball = getattr(result, "ball_a", None)
-    if ball is None or not np.isfinite(ball.radius_px) or ball.radius_px <= 0:
-        return None
-    return (float(ball.center_px[0]), float(ball.center_px[1])), float(ball.radius_px)
+    """Circle the separation marks live on: the ball at mid-exposure (the mean of its circles
+    in frames A and B: where the separation was fitted), as (centre px, radius px)."""
+    return mid_circle(getattr(result, "ball_a", None), getattr(result, "ball_b", None))
 
 
 def arrow_segments(

@@ -27,7 +27,14 @@ from app.qt.canvas_items import (
     arrow_segments,
     pen,
 )
-from app.qt.canvas_pictures import smooth_upsample, vector_scale, vorticity_image
+from app.qt.canvas_evidence import EvidenceItems, ReferenceVector, fine_extent
+from app.qt.canvas_pictures import (
+    frame_displacement,
+    smooth_upsample,
+    speed_factor,
+    vector_scale,
+    vorticity_image,
+)
 from app.review.scales import round_length
 
 VORTICITY_UPSAMPLE = 4  # display only: bilinear between grid nodes instead of flat blocks
@@ -64,6 +71,39 @@ class LengthBar(pg.ScaleBar):
         super().updateBar()
 
 
+class _Sampled:
+    """Every ``stride``-th node of one field: positions, displacements in the frame shown
+    (px per pair), masked and replaced flags, as flat arrays."""
+
+    ARRAYS = ("x", "y", "dx", "dy", "masked", "replaced", "shown_masked")
+
+    def __init__(self, result, vf, stride: int, ball_frame: bool, fine: bool) -> None:
+        sl = (slice(None, None, stride), slice(None, None, stride))
+        dx, dy = frame_displacement(result, vf, ball_frame, fine)
+        self.x, self.y = vf.x_px[sl].ravel(), vf.y_px[sl].ravel()
+        self.dx, self.dy = dx[sl].ravel(), dy[sl].ravel()
+        self.masked = (vf.masked[sl].ravel() | ~np.isfinite(self.dx) | ~np.isfinite(self.dy))
+        self.replaced = vf.replaced[sl].ravel() & ~self.masked
+        self.shown_masked = self.masked & (not fine)  # the fine field's are the ball: not drawn
+        self.cell = float(vf.spacing_px) * stride
+
+    def outside(self, extent) -> _Sampled:
+        """These nodes without those inside ``extent`` (x0, x1, y0, y1)."""
+        x0, x1, y0, y1 = extent
+        keep = ~((self.x >= x0) & (self.x <= x1) & (self.y >= y0) & (self.y <= y1))
+        for name in _Sampled.ARRAYS:
+            setattr(self, name, getattr(self, name)[keep])
+        return self
+
+    @staticmethod
+    def joined(parts: list[_Sampled]) -> _Sampled:
+        out = parts[0]
+        for part in parts[1:]:
+            for name in _Sampled.ARRAYS:
+                setattr(out, name, np.concatenate([getattr(out, name), getattr(part, name)]))
+        return out
+
+
 class PaneTitle(pg.LabelItem):
     """The line over a view when there are two: it takes its height but never widens its
     column, so the two views stay the same size whatever their titles say."""
@@ -95,6 +135,9 @@ class ShotPane:
             item.setZValue(z)
             self.view.addItem(item)
         self.overlay = Overlay(self.view, draggable=draggable)
+        self.evidence = EvidenceItems(self.view)
+        self.reference = ReferenceVector()
+        self.reference.setParentItem(self.view)
         self.title = PaneTitle("", color=OVERLAY_LINE, size="9pt", justify="left")
         self.length_bar = LengthBar()
         self.length_bar.setParentItem(self.view)
@@ -109,12 +152,14 @@ class ShotPane:
             self.picture.setVisible(True)
 
     # -- fields ------------------------------------------------------------------------------
-    def show_vorticity(self, result, limit: float, see_through: bool) -> bool:
-        """Draw the vorticity (None: hide it); True when drawn."""
+    def show_vorticity(self, result, limit: float, see_through: bool, fine: bool = False) -> bool:
+        """Draw the vorticity (None: hide it), with ``fine`` the fine field's over the main
+        field's near the ball; True when drawn."""
         w = getattr(result, "vorticity_1_s", None)
         vf = getattr(result, "field", None)
         shown = w is not None and vf is not None
         self.vorticity.setVisible(shown)
+        self.evidence.show_fine_vorticity(result if shown and fine else None, limit, see_through)
         if not shown:
             return False
         x0, y0, sp = float(vf.x_px[0, 0]), float(vf.y_px[0, 0]), float(vf.spacing_px)
@@ -125,31 +170,58 @@ class ShotPane:
         self.vorticity.setRect(QRectF(x0 - sp / 2, y0 - sp / 2, cols * sp, rows * sp))
         return True
 
-    def show_vectors(self, vf, stride: int, colour: str) -> None:
-        """Every ``stride``-th vector of the field (None: none); valid, replaced and masked
-        drawn apart."""
+    def show_vectors(self, result, stride: int, colour: str, ball_frame: bool = False,
+                     fine: bool = False) -> None:
+        """Every ``stride``-th vector of the result's field (None: none), in the lab or the ball
+        frame, and with ``fine`` the fine field's near the ball instead of the main field's
+        there; valid, replaced and masked drawn apart, all at one scale, with a reference
+        vector of a round speed."""
+        vf = getattr(result, "field", None)
         if vf is None:
             for item in (self.vectors, self.replaced):
                 item.setData([], [])
             self.masked.setData(pos=np.empty((0, 2)))
+            self.reference.set_reference(None)
             return
-        sl = (slice(None, None, stride), slice(None, None, stride))
-        x, y = vf.x_px[sl], vf.y_px[sl]
-        dx, dy = vf.dx_px[sl], vf.dy_px[sl]
-        masked = vf.masked[sl] | ~np.isfinite(dx) | ~np.isfinite(dy)
-        replaced = vf.replaced[sl] & ~masked
-        good = ~masked & ~replaced
-        scale = vector_scale(dx[~masked], dy[~masked], vf.spacing_px * stride)
-        for item, sel in ((self.vectors, good), (self.replaced, replaced)):
-            xs, ys = arrow_segments(x[sel], y[sel], dx[sel] * scale, dy[sel] * scale)
+        parts = [_Sampled(result, vf, stride, ball_frame, False)]
+        fine_vf = getattr(result, "fine_field", None) if fine else None
+        if fine_vf is not None:
+            parts = [parts[0].outside(fine_extent(fine_vf)),
+                     _Sampled(result, fine_vf, stride, ball_frame, True)]
+        drawn = _Sampled.joined(parts)
+        usable = ~drawn.masked
+        scale = vector_scale(drawn.dx[usable], drawn.dy[usable], min(p.cell for p in parts))
+        good = usable & ~drawn.replaced
+        for item, sel in ((self.vectors, good), (self.replaced, drawn.replaced & usable)):
+            xs, ys = arrow_segments(drawn.x[sel], drawn.y[sel], drawn.dx[sel] * scale,
+                                    drawn.dy[sel] * scale)
             item.setData(xs, ys)
-        self.masked.setData(pos=np.column_stack([x[masked], y[masked]]))
+        hidden = drawn.shown_masked
+        self.masked.setData(pos=np.column_stack([drawn.x[hidden], drawn.y[hidden]]))
         self.vectors.setPen(pen(colour, 1.1))
+        self._show_reference(result, np.hypot(drawn.dx[usable], drawn.dy[usable]), scale)
+
+    def _show_reference(self, result, lengths_px: np.ndarray, scale: float) -> None:
+        """A reference vector of a round speed near the large ones, at the vectors' scale."""
+        factor = speed_factor(result) or 1.0
+        unit = "m/s" if speed_factor(result) else "px"
+        lengths_px = lengths_px[np.isfinite(lengths_px)]
+        big = float(np.percentile(lengths_px, 95)) * factor if lengths_px.size else 0.0
+        if big <= 0:
+            self.reference.set_reference(None)
+            return
+        speed = round_length(big)
+        self.reference.set_reference(speed / factor * scale, f"{speed:g} {unit}")
 
     # -- overlays ----------------------------------------------------------------------------
-    def show_overlays(self, result, ball: bool, flight: bool) -> None:
+    def show_overlays(self, result, ball: bool, flight: bool, layers: bool = False,
+                      fine: bool = False) -> None:
+        """Ball outlines, flight arrow, the fitted layers and bands (``layers``), the fine
+        field's outline (``fine``) and the scale bar."""
         self.overlay.set_ball(result, ball)
         self.overlay.set_flight(result, flight)
+        self.evidence.show_layers(result, layers)
+        self.evidence.show_fine_box(getattr(result, "fine_field", None) if fine else None)
         self.length_bar.set_scale(getattr(result, "scale_mm_per_px", None))
 
     def set_title(self, text: str) -> None:

@@ -1,5 +1,6 @@
 """The pictures and readings of a shot's fields on the canvas: vorticity colours, display
-upsampling, vector scale, picture levels and the values under the cursor (numpy only).
+upsampling, vector scale, frames of reference, picture levels and the cursor's reading (numpy
+only).
 """
 
 from __future__ import annotations
@@ -9,6 +10,7 @@ import math
 import numpy as np
 
 from app.review import colours
+from core.geometry import ball_coordinates, mid_circle
 
 
 def vorticity_image(vorticity_1_s: np.ndarray, limit_1_s: float, see_through: bool) -> np.ndarray:
@@ -82,46 +84,103 @@ def vector_scale(dx_px: np.ndarray, dy_px: np.ndarray, cell_px: float) -> float:
 
 
 
-def field_values(result, x_px: float, y_px: float) -> list[str]:
-    vf = getattr(result, "field", None)
-    if vf is None:
+def speed_factor(result) -> float | None:
+    """m/s per px of displacement between the frames (None without dt or a scale)."""
+    dt = getattr(getattr(result, "settings", None), "dt_s", None)
+    scale = getattr(result, "scale_mm_per_px", None)
+    return scale * 1e-3 / dt if dt and scale else None
+
+
+def frame_displacement(result, vf, ball_frame: bool, measured_in_ball_frame: bool = False):
+    """The field's displacements (px per frame pair) in the lab or the ball frame.
+
+    ``vf`` is the result's main field (lab frame) or its fine field (``measured_in_ball_frame``:
+    the ball's displacement already subtracted); the ball frame is the lab frame minus the
+    ball's displacement between the frames (``result.flight``).
+
+    Returns
+    -------
+    dx, dy : (M, N) ndarray
+    """
+    flight = getattr(result, "flight", None)
+    shift = (0.0, 0.0) if flight is None else flight.displacement_px
+    sign = (-1.0 if ball_frame else 0.0) + (1.0 if measured_in_ball_frame else 0.0)
+    return vf.dx_px + sign * shift[0], vf.dy_px + sign * shift[1]
+
+
+def point_text(result, x_px: float, y_px: float, ball_frame: bool = False,
+               fine: bool = False) -> str:
+    """The cursor's reading: image position (px, and mm with a scale), where it lies about the
+    ball (x/D downstream and y/D toward the upper side from the centre, and its separation
+    angle), and the flow there (``field_values``)."""
+    parts = [f"x {x_px:7.1f} y {y_px:7.1f} px"]
+    scale = getattr(result, "scale_mm_per_px", None) if result is not None else None
+    if scale:
+        parts.append(f"({x_px * scale:6.2f}, {y_px * scale:6.2f} mm)")
+    parts.extend(ball_position(result, x_px, y_px))
+    parts.extend(field_values(result, x_px, y_px, ball_frame, fine))
+    return "  ".join(parts)
+
+
+def ball_position(result, x_px: float, y_px: float) -> list[str]:
+    """``x/D +1.23 y/D -0.40 lower +12.3°`` about the ball at mid-exposure ([] without one)."""
+    circle = mid_circle(getattr(result, "ball_a", None), getattr(result, "ball_b", None))
+    flight = getattr(result, "flight", None)
+    if circle is None or flight is None:
         return []
-    sp = float(vf.spacing_px)
-    col = round((x_px - float(vf.x_px[0, 0])) / sp)
-    row = round((y_px - float(vf.y_px[0, 0])) / sp)
-    rows, cols = vf.x_px.shape
-    if not (0 <= row < rows and 0 <= col < cols):
+    along, across, side, angle = ball_coordinates(circle[0], circle[1], flight.direction_deg,
+                                                  (x_px, y_px))
+    return [f"x/D {along:+5.2f} y/D {across:+5.2f}  {side} {angle:+6.1f}°"]
+
+
+def field_values(result, x_px: float, y_px: float, ball_frame: bool = False,
+                 fine: bool = False) -> list[str]:
+    """The flow at image position (x, y): velocity (lab or ball frame, v upward), speed and
+    vorticity at the nearest vector of the fine field (``fine``: where it reaches) or of the
+    main field; "masked" where the window held no vector."""
+    found = _node_at(result, x_px, y_px, fine)
+    if found is None:
         return []
+    vf, row, col, is_fine = found
     if vf.masked[row, col]:
         return ["masked (no vector)"]
-    out = []
-    u, v = _velocity_at(result, vf, row, col)
-    out.append(f"u {u:+8.3f}  v {v:+8.3f}  |V| {math.hypot(u, v):7.3f} {_velocity_unit(result)}")
+    dx, dy = frame_displacement(result, vf, ball_frame, is_fine)
+    factor = speed_factor(result)
+    u, v = float(dx[row, col]), -float(dy[row, col])  # shown upward, like the flight angle
+    unit = "px"
+    if factor is not None:
+        u, v, unit = u * factor, v * factor, "m/s"
+    frame = "ball frame" if ball_frame else "lab frame"
+    out = [f"u {u:+8.3f}  v {v:+8.3f}  |V| {math.hypot(u, v):7.3f} {unit} ({frame}, v up)"]
     if vf.replaced[row, col]:
         out.append("(replaced)")
-    w = getattr(result, "vorticity_1_s", None)
+    w = result.fine_vorticity() if is_fine else getattr(result, "vorticity_1_s", None)
     if w is not None and np.isfinite(w[row, col]):
         out.append(f"ω {w[row, col]:+9.4g} {vorticity_unit(result)}")
+    if is_fine:
+        out.append("(fine field)")
     return out
+
+
+def _node_at(result, x_px: float, y_px: float, fine: bool):
+    """(field, row, col, is_fine) of the grid node nearest (x, y), or None outside the grid."""
+    fields = [(getattr(result, "fine_field", None), True)] if fine else []
+    fields.append((getattr(result, "field", None), False))
+    for vf, is_fine in fields:
+        if vf is None:
+            continue
+        sp = float(vf.spacing_px)
+        col = round((x_px - float(vf.x_px[0, 0])) / sp)
+        row = round((y_px - float(vf.y_px[0, 0])) / sp)
+        rows, cols = vf.x_px.shape
+        if 0 <= row < rows and 0 <= col < cols:
+            return vf, row, col, is_fine
+    return None
 
 
 def vorticity_unit(result) -> str:
     """1/s with dt and a scale; without them the pipeline gives vorticity per frame pair."""
     return "1/s" if getattr(result, "u_m_s", None) is not None else "per frame pair"
-
-
-def _velocity_at(result, vf, row: int, col: int) -> tuple[float, float]:
-    u = getattr(result, "u_m_s", None)
-    v = getattr(result, "v_m_s", None)
-    if u is not None and v is not None:
-        # stored v is image-y (downward); show it upward like the flight angle convention
-        return float(u[row, col]), -float(v[row, col])
-    return float(vf.dx_px[row, col]), -float(vf.dy_px[row, col])
-
-
-def _velocity_unit(result) -> str:
-    has_speed = getattr(result, "u_m_s", None) is not None
-    return "m/s (v up)" if has_speed else "px (v up)"
 
 
 def picture_levels(shot) -> tuple[float, float]:

@@ -113,3 +113,70 @@ class MarkMove(PickEdit):
         self.setText(other.text())
         return True
 
+
+
+class GeometryEdit(QUndoCommand):
+    """The analyst's circles or flight direction of one shot, and the result measured with
+    them: one undo step. Undo puts back the pick's geometry and the result stored before.
+
+    Parameters
+    ----------
+    model : SessionModel
+    shot_id : str
+    geometry : dict
+        New values for some of ``circle_a_px``, ``circle_b_px``, ``flight_deg`` (None: as
+        measured).
+    text : str
+        What the Edit menu shows.
+    remeasure : callable
+        ``remeasure(command)`` starts measuring the shot again after the geometry is saved; the
+        window calls ``measured(result)`` when it is done.
+    """
+
+    def __init__(self, model: SessionModel, shot_id: str, geometry: dict, text: str,
+                 remeasure) -> None:
+        super().__init__(text)
+        self._model = model
+        self.shot_id = shot_id
+        self.before = model.record(shot_id).pick.geometry()
+        self.after = {**self.before, **geometry}
+        self._results = {"before": model.result(shot_id), "after": None}
+        self._remeasure = remeasure
+        self._applied = False
+
+    def apply(self) -> None:
+        """Save the new geometry now (raises ``core.WakelineError`` when refused) and start
+        measuring the shot with it."""
+        self._model.apply_pick(self.shot_id, **self.after)
+        self._applied = True
+        self._remeasure(self)
+
+    def measured(self, result) -> bool:
+        """The shot measured with this command's geometry: kept when it is still the pick's."""
+        if not self._model.keep_result(self.shot_id, result):
+            return False
+        self._results["after"] = result
+        return True
+
+    def redo(self) -> None:
+        if self._applied:  # the push right after apply(): already done
+            self._applied = False
+            return
+        self._set("after")
+
+    def undo(self) -> None:
+        self._set("before")
+
+    def _set(self, which: str) -> None:
+        geometry, result = getattr(self, which), self._results[which]
+        try:
+            self._model.apply_pick(self.shot_id, **geometry)
+            if result is not None:
+                self._model.keep_result(self.shot_id, result, measured=False)
+        except WakelineError as exc:
+            self.setObsolete(True)
+            self._model.refresh(self.shot_id)
+            self._model.edit_refused.emit(str(exc))
+            return
+        if result is None:
+            self._remeasure(self)

@@ -33,11 +33,14 @@ from app.review.text import (
     angle_text,
     ball_text,
     direction_text,
+    geometry_text,
+    quality_meaning,
     quality_text,
     reynolds_text,
-    speed_text,
-    uncertainty_text,
     reviewed_wake_text,
+    speed_text,
+    uncertainty_meaning,
+    uncertainty_text,
     vectors_text,
 )
 from core.geometry import SIDES
@@ -49,6 +52,10 @@ PROBLEM_STYLE = (f"QLabel {{ background: #f6e3e6; color: {colours.STATUS_COLOURS
 NOTICE_STYLE = (f"QLabel {{ background: {colours.PAPER_TINT}; color: {colours.MUTED_INK};"
                 " border-radius: 4px; padding: 6px; }")
 LIVE_STYLE = f"color: {colours.STATUS_COLOURS['adjusted']}; font-weight: bold;"
+CHECK_STYLE = ("QLabel { background: #fbefd9; color: #7a4b06; border-radius: 4px; "
+               "padding: 6px; }")
+CHECK_HINT = ("Ball ▸ Correct the ball's circles (Ctrl+B) or Set the flight direction… "
+              "measures the shot again with yours.")
 
 
 def _metadata_text(value) -> str:
@@ -106,6 +113,13 @@ class ReadoutPanel(QWidget):
         self.problem.setWordWrap(True)
         self.problem.setStyleSheet(PROBLEM_STYLE)
         self.problem.hide()
+        self.checks = QLabel(self)
+        self.checks.setWordWrap(True)
+        self.checks.setStyleSheet(CHECK_STYLE)
+        self.checks.setToolTip("the measured ball or flight disagrees with what else is known "
+                               "of the shot: its manifest, the session's other shots, the "
+                               "other frame's circle, the wake")
+        self.checks.hide()
         head = QHBoxLayout()
         head.addWidget(self.title, 1)
         head.addWidget(self.status_icon)
@@ -116,6 +130,7 @@ class ReadoutPanel(QWidget):
         box.setContentsMargins(6, 6, 6, 6)
         box.addLayout(head)
         box.addWidget(self.problem)
+        box.addWidget(self.checks)
         box.addWidget(self._separation_group())
         box.addWidget(self._review_group())
         box.addWidget(self._flight_group())
@@ -141,7 +156,9 @@ class ReadoutPanel(QWidget):
                          "add 90°")
         grid = QGridLayout(group)
         grid.setHorizontalSpacing(14)
-        hint = QLabel("deg from the plane normal to the flight, + rearward", group)
+        hint = QLabel("deg from the plane normal to the flight, + rearward. ± holds the true "
+                      "angle in 95 % of proposals; quality falls as ± widens (hover for how).",
+                      group)
         hint.setWordWrap(True)
         hint.setStyleSheet(f"color: {colours.MUTED_INK};")
         grid.addWidget(hint, len(ROWS) + 3, 0, 1, 3)
@@ -177,14 +194,17 @@ class ReadoutPanel(QWidget):
         self.ball_size = QLabel("—", group)
         self.vectors = QLabel("—", group)
         self.reynolds = QLabel("—", group)
+        self.by_hand = QLabel("", group)
+        self.by_hand.setStyleSheet(f"color: {colours.STATUS_COLOURS['adjusted']};")
         for label in (self.flight_dir, self.flight_speed, self.ball_size, self.vectors,
-                      self.reynolds):
+                      self.reynolds, self.by_hand):
             label.setWordWrap(True)
         form.addRow("direction", self.flight_dir)
         form.addRow("speed", self.flight_speed)
         form.addRow("Reynolds", self.reynolds)
         form.addRow("ball", self.ball_size)
         form.addRow("vectors", self.vectors)
+        form.addRow("", self.by_hand)
         return group
 
     def _review_group(self) -> QGroupBox:
@@ -278,6 +298,12 @@ class ReadoutPanel(QWidget):
         self.wake.setText(reviewed_wake_text(record, moving={side: angle_deg}))
         self.wake.setStyleSheet(LIVE_STYLE)
 
+    def show_checks(self, lines: list[str]) -> None:
+        """Where the shot's ball and flight disagree with what else is known (none: hidden)."""
+        text = "Check the ball and flight:\n" + "\n".join(f"• {line}" for line in lines)
+        self.checks.setText(f"{text}\n{CHECK_HINT}" if lines else "")
+        self.checks.setVisible(bool(lines))
+
     def show_current(self) -> None:
         """Show the last record again (after a cancelled drag)."""
         self.show_record(self._record)
@@ -290,6 +316,7 @@ class ReadoutPanel(QWidget):
         self.status_icon.clear()
         self.status_label.clear()
         self.problem.hide()
+        self.checks.hide()
         for cell in self.cells.values():
             cell.setText("—")
             cell.setStyleSheet("")
@@ -329,6 +356,8 @@ class ReadoutPanel(QWidget):
                 self.cells[(name, side)].setText(text)
                 self.cells[(name, side)].setStyleSheet("")
             self.cells[("proposed", side)].setToolTip(detail.reason)
+            self.cells[("uncertainty", side)].setToolTip(uncertainty_meaning(detail))
+            self.cells[("quality", side)].setToolTip(quality_meaning(detail))
         self.difference.setText(self._difference_text(record))
         self.difference.setStyleSheet("")
 
@@ -354,6 +383,8 @@ class ReadoutPanel(QWidget):
         self.ball_size.setText(MISSING if summary is None else ball_text(summary))
         self.reynolds.setText(MISSING if summary is None else reynolds_text(summary))
         self.vectors.setText(MISSING if summary is None else vectors_text(summary.vectors))
+        self.by_hand.setText(geometry_text(record.pick))
+        self.by_hand.setVisible(bool(self.by_hand.text()))
 
     def _show_metadata(self, metadata: dict) -> None:
         while self.meta_form.rowCount():

@@ -44,6 +44,7 @@ from app.qt.icons import app_icon, status_icon
 from app.qt.platform_libs import platform_problem
 from app.qt.readout import ReadoutPanel
 from app.qt.shot_list import ShotListPanel
+from app.qt.window_ball import BallActions
 from app.qt.window_jobs import JobActions
 from app.qt.window_review import ReviewActions
 from app.qt.window_session import SessionActions
@@ -85,7 +86,7 @@ def app_settings() -> QSettings:
                      APPLICATION)
 
 
-class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
+class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWindow):
     """The review window.
 
     Parameters
@@ -208,6 +209,14 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.act_vectors = a("Toggle &vectors", self.canvas.vectors_box.toggle, "V")
         self.act_vorticity = a("Toggle v&orticity", self.canvas.vorticity_box.toggle, "W")
         self.act_marks = a("Toggle separation &marks", self.canvas.marks_box.toggle, "M")
+        self.act_fine = a("Toggle the fine field near the &ball", self.canvas.fine_box.toggle,
+                          "G", "the finer correlation the separation uses, beside the ball")
+        self.act_layers = a("Toggle the fitted shear &layers", self.canvas.layers_box.toggle,
+                            "L", "each side's fitted layer and the band of images it was "
+                            "fitted to")
+        self.act_frame = a("Lab frame / ball frame", self.canvas.toggle_frame, "T",
+                           "vectors and cursor velocities with the ball's velocity subtracted "
+                           "(as in a wind tunnel) or not")
         self.act_side = a("&Side by side", self.canvas.side_box.toggle, "S")
         self.act_keep = a("&Keep this shot for comparison", self.keep_for_comparison, "K",
                           "show this shot beside the others (side by side, same colour range, "
@@ -231,6 +240,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.act_keys = a("&Keyboard shortcuts", self.show_shortcuts,
                           QKeySequence.StandardKey.HelpContents)
         self.act_about = a("&About wakeline", self.show_about)
+        self._build_ball_actions()
 
     def _build_menus(self) -> None:
         menu = self.menuBar()
@@ -261,9 +271,10 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         review.addAction(self.act_advance)
         view = self.view_menu = menu.addMenu("&View")
         for action in (self.act_picture, self.act_vectors, self.act_vorticity,
-                       self.act_fixed_range, self.act_marks, self.act_side, self.act_keep,
-                       self.act_fit):
+                       self.act_fixed_range, self.act_marks, self.act_fine, self.act_layers,
+                       self.act_frame, self.act_side, self.act_keep, self.act_fit):
             view.addAction(action)
+        self._build_ball_menu()
         process = menu.addMenu("&Process")
         for action in (self.act_process, self.act_reprocess, self.act_cancel, self.act_check):
             process.addAction(action)
@@ -367,6 +378,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.act_settings.setEnabled(not busy)  # not while a job reads the settings
         self.act_import.setEnabled(not busy)
         self.export_menu.setEnabled(has_session and bool(self.export_menu.actions()))
+        self._update_ball_actions(writable and has_shot and record.state == "processed")
 
     def show_problem(self, title: str, text: str) -> None:
         """Tell the user about a problem without blocking (the session stays open)."""

@@ -111,6 +111,7 @@ class JobActions:
         for widget in (self.progress_label, self.progress, self.cancel_button):
             widget.hide()
         self._update_enabled()
+        self._start_queued()  # a shot waiting to be measured again with the analyst's ball
 
     def _on_shot_processed(self, outcome) -> None:
         if self.model.session is None:

@@ -84,6 +84,7 @@ class ReviewActions:
         else:
             self.canvas.update_marks(*mark_angles(record), editable=self._editable(record))
         self.readout.show_record(record)
+        self.readout.show_checks(self.model.checks(shot_id))
 
     def _canvas_shot(self, record) -> CanvasShot:
         messages = []

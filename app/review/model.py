@@ -16,6 +16,7 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtCore import QObject, Signal
 
+from app.review.checks import session_direction, shot_checks
 from core import WakelineError
 from core.batch import iter_process
 from core.store import (
@@ -64,6 +65,11 @@ def pick_values(pick: Pick) -> dict:
     return {name: getattr(pick, name) for name in PICK_FIELDS}
 
 
+def _compared(pick: Pick) -> dict:
+    """What the analyst set in a pick (decision, note, circles, flight): its change is news."""
+    return {**pick_values(pick), **pick.geometry()}
+
+
 @dataclass
 class _Lru:
     """A tiny least-recently-used cache keyed by shot id."""
@@ -110,6 +116,7 @@ class SessionModel(QObject):
         self._current = ""
         self._results = _Lru(cache_size)
         self._frames = _Lru(frame_cache_size)  # frame pairs are big (2 x 16 MB at 2048 px)
+        self._usual_direction: list = []  # [the session's usual flight direction], once known
 
     # -- session -----------------------------------------------------------------------------
     @property
@@ -165,6 +172,7 @@ class SessionModel(QObject):
         self._current = ""
         self._results.clear()
         self._frames.clear()
+        self._usual_direction.clear()
         if session is not None:
             session.close()
 
@@ -186,6 +194,7 @@ class SessionModel(QObject):
         """Re-read one shot's record from the store and tell the views."""
         self._records[shot_id] = self._session[shot_id]
         self._results.drop(shot_id)
+        self._usual_direction.clear()
         self.record_changed.emit(shot_id)
 
     # -- current shot ------------------------------------------------------------------------
@@ -247,7 +256,7 @@ class SessionModel(QObject):
     def apply_picks(self, edits: dict[str, dict]) -> dict[str, Pick]:
         """Several pick edits at once (``Session.set_picks``: all or none, one write), then
         tell the views of each shot that changed. Raises as ``apply_pick``."""
-        before = {shot_id: pick_values(self._records[shot_id].pick) for shot_id in edits}
+        before = {shot_id: _compared(self._records[shot_id].pick) for shot_id in edits}
         try:
             picks = self._session.set_picks(edits)
         except OSError as exc:
@@ -256,9 +265,54 @@ class SessionModel(QObject):
                                 f"({exc.strerror or exc})") from None
         for shot_id, pick in picks.items():
             self._records[shot_id] = self._session[shot_id]
-            if pick_values(pick) != before[shot_id]:
+            if _compared(pick) != before[shot_id]:
                 self.record_changed.emit(shot_id)
         return picks
+
+    # -- the analyst's ball and flight -------------------------------------------------------
+    def checks(self, shot_id: str) -> list[str]:
+        """Where the shot's ball and flight disagree with what else is known (manifest, the
+        session's usual direction, the two circles, the wake), one line each."""
+        if not self._usual_direction:
+            self._usual_direction.append(session_direction(self.records()))
+        return shot_checks(self._records[shot_id], self._usual_direction[0])
+
+    def remeasuring(self, shot_id: str):
+        """A callable that measures the shot again with its circles and flight as the pick has
+        them now (``core.shot.remeasure_ball``); it reads nothing from the session, so it may
+        run on a worker thread. Save what it returns with ``keep_result``.
+
+        Raises
+        ------
+        core.WakelineError
+            The shot has no result, or its frames or result cannot be read.
+        """
+        from core.shot import remeasure_ball
+
+        stored = self.result(shot_id)
+        if stored is None:
+            raise WakelineError(f"shot {shot_id}: not measured yet; process it first")
+        frame_a, frame_b = self.frames(shot_id)
+        settings = self._session.settings_for(shot_id)
+        return lambda: remeasure_ball(frame_a, frame_b, stored, settings)
+
+    def keep_result(self, shot_id: str, result, measured: bool = True) -> bool:
+        """Save a result of the shot and tell the views. A freshly ``measured`` one is kept
+        only when measured with the shot's settings as they are now (an undo may have come
+        between): False when it is dropped. Raises ``core.WakelineError`` when not saved."""
+        current = self._session.settings_for(shot_id).fingerprint()
+        if measured and result.settings.fingerprint() != current:
+            return False
+        try:
+            self._session.save_result(shot_id, result)
+        except OSError as exc:
+            raise WakelineError(f"{self._session.path}: result of shot {shot_id} not saved "
+                                f"({exc.strerror or exc})") from None
+        self._records[shot_id] = self._session[shot_id]
+        self._results.put(shot_id, result)  # before the views ask for it
+        self._usual_direction.clear()
+        self.record_changed.emit(shot_id)
+        return True
 
     def unprocessed_ids(self) -> list[str]:
         return [sid for sid in self._order

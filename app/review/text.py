@@ -53,6 +53,48 @@ def proposal_text(side: SideProposal, decimals: int = 1) -> str:
     return out
 
 
+def uncertainty_meaning(side: SideProposal) -> str:
+    """What a proposal's ± means, with the sources of its uncertainty largest first (a tip)."""
+    from core.separation import COVERAGE, COVERAGE_K
+
+    if side.uncertainty_deg is None:
+        return ""
+    lines = [f"± {side.uncertainty_deg:.1f}° is meant to hold the true angle in "
+             f"{COVERAGE:.0%} of proposals: {COVERAGE_K:g} × the root sum of squares of these "
+             "standard uncertainties:"]
+    for source, value in sorted((side.budget or {}).items(), key=lambda kv: -kv[1]):
+        lines.append(f"  {source} {value:.2f}°")
+    return "\n".join(lines)
+
+
+def quality_meaning(side: SideProposal) -> str:
+    """How a proposal's quality follows from its fit and its uncertainty (a tip): quality is
+    how clearly the separating layer beats attached flow times how narrow the interval is
+    (2° over the ±, at most 1), so a wide ± always means a low quality."""
+    if side.quality is None or side.uncertainty_deg is None:
+        return ""
+    narrow = min(1.0, 2.0 / max(side.uncertainty_deg, 1e-3))
+    clear = min(1.0, side.quality / narrow) if narrow > 0 else 0.0
+    why = ("the interval is wide" if narrow < clear else
+           "attached flow fits nearly as well" if clear < 1.0 else "")
+    text = (f"quality {quality_text(side.quality)} = how clearly the separated layer beats "
+            f"attached flow ({clear:.2f}) × how narrow the interval is "
+            f"(2° / ± {side.uncertainty_deg:.1f}° = {narrow:.2f}, at most 1)")
+    return text + (f": low because {why}" if why and side.quality < 0.5 else "")
+
+
+def geometry_text(pick) -> str:
+    """What the analyst set of a shot's ball and flight, or "" (measured)."""
+    parts = []
+    circles = [f for f in "ab" if getattr(pick, f"circle_{f}_px") is not None]
+    if circles:
+        parts.append("circle" + ("s" if len(circles) > 1 else "") + " in frame "
+                     + " and ".join(f.upper() for f in circles))
+    if pick.flight_deg is not None:
+        parts.append(f"flight {angle_text(pick.flight_deg, signed=False)}")
+    return ", ".join(parts) + " set by the analyst" if parts else ""
+
+
 def speed_text(speed_m_s: float | None) -> str:
     """``30.1 m/s``, or the em dash."""
     return MISSING if speed_m_s is None else f"{speed_m_s:.1f} m/s"

@@ -1,0 +1,212 @@
+"""What the separation pick rests on, drawn over a shot: the fine field near the ball (vectors
+and vorticity, in the ball frame as measured), each side's fitted shear layer (its dividing
+line from the separation point rearward and its half-speed line) with the band of the image it
+was fitted to, the uncertainty of each proposal as a wedge at the outline, and a reference
+vector with its speed. A part of each ``ShotPane`` (``app.qt.canvas_pane``).
+
+Everything ball-frame is drawn about the ball at mid-exposure (the mean of the circles in
+frames A and B), where the fine field and the fit were made.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+
+os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtCore import QPointF, QRectF, Qt
+from PySide6.QtGui import QBrush, QColor, QPainterPath, QPolygonF
+from PySide6.QtWidgets import QGraphicsPathItem, QGraphicsPolygonItem
+
+from app.qt.canvas_items import OVERLAY_LINE, SHADOW, SIDE_COLOURS, mark_circle, pen
+from app.qt.canvas_pictures import smooth_upsample, vorticity_image
+from core.geometry import SIDES, point_at_angle
+
+FINE_UPSAMPLE = 4  # display only, as the main field's vorticity
+WEDGE_RADII = (1.0, 1.14)  # the uncertainty wedge spans these multiples of the ball radius
+BAND_LINE = "#d8d4ca"  # the fitted band's outline: a quiet light grey, dotted
+FINE_BOX_LINE = "#8fd3c9"  # the fine field's extent: a pale teal, dotted
+
+
+class EvidenceItems:
+    """The evidence layers of one view (fine field, fitted layers and bands, uncertainty)."""
+
+    def __init__(self, view: pg.ViewBox) -> None:
+        self.view = view
+        self.fine_vorticity = pg.ImageItem()
+        self.fine_vorticity.setZValue(11)  # over the main field's vorticity (10)
+        self.fine_box = pg.PlotDataItem(pen=pen(FINE_BOX_LINE, 1.0, alpha=200))
+        self.fine_box.opts["pen"].setStyle(Qt.PenStyle.DotLine)
+        self.fine_box.setZValue(18)
+        for item in (self.fine_vorticity, self.fine_box):
+            view.addItem(item)
+        self.curves: dict[str, dict[str, pg.PlotDataItem]] = {}
+        self.wedges: dict[str, QGraphicsPathItem] = {}
+        for side in SIDES:
+            colour = SIDE_COLOURS[side]
+            light = QColor(colour).lighter(175).name()
+            items = {
+                "band": pg.PlotDataItem(pen=_dotted(BAND_LINE, 1.4)),
+                "halo": pg.PlotDataItem(pen=pen(SHADOW, 4.2, alpha=150)),
+                "dividing": pg.PlotDataItem(pen=pen(light, 2.2)),
+                "centre": pg.PlotDataItem(pen=pen(light, 1.2, dash=True)),
+            }
+            for z, item in enumerate(items.values()):
+                item.setZValue(32 + 0.1 * z)
+                view.addItem(item)
+            self.curves[side] = items
+            wedge = QGraphicsPathItem()
+            fill = QColor(colour).lighter(150)
+            fill.setAlpha(165)
+            wedge.setBrush(QBrush(fill))
+            wedge.setPen(pen(OVERLAY_LINE, 1.2, alpha=230))
+            wedge.setZValue(35)
+            view.addItem(wedge)
+            self.wedges[side] = wedge
+
+    # -- fine field --------------------------------------------------------------------------
+    def show_fine_vorticity(self, result, limit: float, see_through: bool) -> bool:
+        """The fine field's vorticity over the main field's (None: hidden); True when drawn."""
+        fine = getattr(result, "fine_field", None)
+        w = result.fine_vorticity() if fine is not None else None
+        shown = w is not None and bool(np.isfinite(w).any())
+        self.fine_vorticity.setVisible(shown)
+        if not shown:
+            return False
+        sp = float(fine.spacing_px)
+        rows, cols = w.shape
+        smooth = smooth_upsample(np.asarray(w, dtype=np.float32), FINE_UPSAMPLE)
+        self.fine_vorticity.setImage(vorticity_image(smooth, limit, see_through),
+                                     levels=(0, 255), autoLevels=False)
+        x0, y0 = float(fine.x_px[0, 0]), float(fine.y_px[0, 0])
+        self.fine_vorticity.setRect(QRectF(x0 - sp / 2, y0 - sp / 2, cols * sp, rows * sp))
+        return True
+
+    def show_fine_box(self, fine) -> None:
+        """A dotted outline of where the fine field was measured (None: none)."""
+        if fine is None:
+            self.fine_box.setData([], [])
+            return
+        x0, x1, y0, y1 = fine_extent(fine)
+        self.fine_box.setData([x0, x1, x1, x0, x0], [y0, y0, y1, y1, y0])
+
+    # -- fitted layers -----------------------------------------------------------------------
+    def show_layers(self, result, show: bool) -> None:
+        """Each side's fitted dividing line, half-speed line and band (None: hidden)."""
+        for side in SIDES:
+            curves = fitted_curves(result, side) if show else None
+            items = self.curves[side]
+            for name, item in items.items():
+                points = None if curves is None else curves["dividing" if name == "halo"
+                                                            else name]
+                if points is None:
+                    item.setData([], [])
+                else:
+                    item.setData(points[:, 0], points[:, 1])
+
+    # -- uncertainty -------------------------------------------------------------------------
+    def show_uncertainty(self, result, proposals: dict, show: bool) -> None:
+        """A wedge at the outline spanning each proposal's uncertainty (side -> angle)."""
+        circle = mark_circle(result) if result is not None else None
+        flight = getattr(result, "flight", None)
+        for side in SIDES:
+            wedge = self.wedges[side]
+            spread = _uncertainty(result, side)
+            angle = proposals.get(side)
+            if not show or circle is None or flight is None or angle is None or not spread:
+                wedge.setVisible(False)
+                continue
+            wedge.setPath(wedge_path(circle, flight.direction_deg, side, angle, spread))
+            wedge.setVisible(True)
+
+
+class ReferenceVector(pg.ScaleBar):
+    """An arrow of a round speed at the vectors' scale, bottom left of the view, labelled."""
+
+    def __init__(self) -> None:
+        super().__init__(size=1.0, width=2, brush=OVERLAY_LINE, pen=pen(SHADOW, 0.8),
+                         offset=(18, -18))
+        self.text.setColor(QColor(OVERLAY_LINE))
+        self.text.fill = pg.mkBrush(QColor(38, 42, 47, 170))
+        self.head = QGraphicsPolygonItem(self)
+        self.head.setBrush(QBrush(QColor(OVERLAY_LINE)))
+        self.head.setPen(pen(SHADOW, 0.8))
+        self.setVisible(False)
+
+    def set_reference(self, length_px: float | None, label: str = "") -> None:
+        """The arrow's length in image px and its label (None: hidden)."""
+        shown = bool(length_px) and math.isfinite(length_px) and length_px > 0
+        self.setVisible(shown)
+        if shown:
+            self.size = float(length_px)
+            self.text.setText(label)
+            self.updateBar()
+
+    def updateBar(self) -> None:
+        view = self.parentItem()
+        if view is None or not self.isVisible():
+            return
+        p1 = view.mapFromViewToItem(self, QPointF(0, 0))
+        p2 = view.mapFromViewToItem(self, QPointF(self.size, 0))
+        w = (p2 - p1).x()
+        self.bar.setRect(QRectF(0, 0, w, self._width))
+        self.head.setPolygon(QPolygonF([QPointF(w + 7, 1), QPointF(w - 1, -3.5),
+                                        QPointF(w - 1, 5.5)]))
+        self.text.setPos(w / 2.0, 0)
+
+
+def _dotted(colour: str, width: float):
+    line = pen(colour, width, alpha=235)
+    line.setStyle(Qt.PenStyle.DotLine)
+    return line
+
+
+def _uncertainty(result, side: str) -> float | None:
+    separation = getattr(result, "separation", None)
+    if separation is None:
+        return None
+    value = getattr(separation, side).uncertainty_deg
+    return value if value is not None and math.isfinite(value) and value > 0 else None
+
+
+def fine_extent(fine) -> tuple[float, float, float, float]:
+    """(x0, x1, y0, y1) image px covered by the fine field's windows."""
+    half = float(fine.spacing_px) / 2
+    return (float(np.nanmin(fine.x_px)) - half, float(np.nanmax(fine.x_px)) + half,
+            float(np.nanmin(fine.y_px)) - half, float(np.nanmax(fine.y_px)) + half)
+
+
+def fitted_curves(result, side: str) -> dict[str, np.ndarray] | None:
+    """``core.separation.layer_curves`` of a side's fitted layer about the mid-exposure circle
+    (None without a fitted layer)."""
+    from core.separation import layer_curves
+
+    separation = getattr(result, "separation", None)
+    layer = None if separation is None else getattr(separation, side).layer
+    circle = mark_circle(result)
+    flight = getattr(result, "flight", None)
+    if not layer or circle is None or flight is None:
+        return None
+    try:
+        return layer_curves(circle[0], circle[1], flight.direction_deg, side, layer)
+    except (KeyError, TypeError, ValueError):  # a layer record of another layout: not drawn
+        return None
+
+
+def wedge_path(circle, direction_deg: float, side: str, angle_deg: float,
+               spread_deg: float) -> QPainterPath:
+    """The annular sector from ``angle - spread`` to ``angle + spread`` at the outline."""
+    (cx, cy), r = circle
+    angles = np.linspace(angle_deg - spread_deg, angle_deg + spread_deg, 41)
+    inner = [point_at_angle((cx, cy), WEDGE_RADII[0] * r, direction_deg, side, a)
+             for a in angles]
+    outer = [point_at_angle((cx, cy), WEDGE_RADII[1] * r, direction_deg, side, a)
+             for a in angles[::-1]]
+    path = QPainterPath()
+    path.addPolygon(QPolygonF([QPointF(x, y) for x, y in inner + outer]))
+    path.closeSubpath()
+    return path
+
