@@ -29,6 +29,7 @@ FINE_UPSAMPLE = 4  # display only, as the main field's vorticity
 WEDGE_RADII = (1.0, 1.14)  # the uncertainty wedge spans these multiples of the ball radius
 BAND_LINE = "#d8d4ca"  # the fitted band's outline: a quiet light grey, dotted
 FINE_BOX_LINE = "#8fd3c9"  # the fine field's extent: a pale teal, dotted
+MIN_REACH_DEG = 5.0  # the fitted layer is drawn at least this far behind its separation point
 
 
 class EvidenceItems:
@@ -180,8 +181,8 @@ def fine_extent(fine) -> tuple[float, float, float, float]:
 
 
 def fitted_curves(result, side: str) -> dict[str, np.ndarray] | None:
-    """``core.separation.layer_curves`` of a side's fitted layer about the mid-exposure circle
-    (None without a fitted layer)."""
+    """``core.separation.layer_curves`` of a side's fitted layer about the mid-exposure circle,
+    as far rearward as the band it was fitted to (None without a fitted layer)."""
     from core.separation import layer_curves
 
     separation = getattr(result, "separation", None)
@@ -191,8 +192,11 @@ def fitted_curves(result, side: str) -> dict[str, np.ndarray] | None:
     if not layer or circle is None or flight is None:
         return None
     try:
-        return layer_curves(circle[0], circle[1], flight.direction_deg, side, layer)
-    except (KeyError, TypeError, ValueError):  # a layer record of another layout: not drawn
+        # drawn only as far as the fit saw the images (the band's end), not extrapolated
+        reach = max(MIN_REACH_DEG, float(layer["window_deg"][1]) - float(layer["phi_s"]))
+        return layer_curves(circle[0], circle[1], flight.direction_deg, side, layer,
+                            reach_deg=reach)
+    except (KeyError, TypeError, ValueError, IndexError):  # a record of another layout
         return None
 
 

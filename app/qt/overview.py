@@ -78,6 +78,11 @@ class SessionOverview(QtWidgets.QWidget):
         item.addItem(self.plane_line)
         self.link_lines = pg.PlotCurveItem(pen=pg.mkPen(colours.RULE, width=1), connect="pairs")
         item.addItem(self.link_lines)
+        # each proposal's uncertainty (95 %); none where the analyst moved the mark
+        self.error_bars = {side: pg.ErrorBarItem(pen=pg.mkPen(colours.MUTED_INK, width=1),
+                                                 beam=0.0) for side in ("upper", "lower")}
+        for bars in self.error_bars.values():
+            item.addItem(bars)
         self.upper_item = pg.ScatterPlotItem(symbol=UPPER_SYMBOL, size=POINT_SIZE, hoverable=True)
         self.lower_item = pg.ScatterPlotItem(symbol=LOWER_SYMBOL, size=POINT_SIZE, hoverable=True)
         self.current_item = pg.ScatterPlotItem(
@@ -174,6 +179,7 @@ class SessionOverview(QtWidgets.QWidget):
         for scatter, values in ((self.upper_item, pts.upper_deg), (self.lower_item, pts.lower_deg)):
             scatter.setData(spots=_spots(pts, values))
         self._draw_links(pts)
+        self._draw_error_bars(pts)
         self.note_label.setText(left_out_text(pts))
         self.note_label.setVisible(bool(pts.left_out))
         self._draw_current()
@@ -187,6 +193,14 @@ class SessionOverview(QtWidgets.QWidget):
         xs = np.repeat(pts.drawn_x()[both], 2)
         ys = np.column_stack([pts.upper_deg[both], pts.lower_deg[both]]).ravel()
         self.link_lines.setData(xs, ys)
+
+    def _draw_error_bars(self, pts: OverviewPoints) -> None:
+        xs = pts.drawn_x()
+        for side, bars in self.error_bars.items():
+            values, spreads = getattr(pts, f"{side}_deg"), getattr(pts, f"{side}_u_deg")
+            keep = np.isfinite(values) & np.isfinite(spreads)
+            bars.setData(x=xs[keep], y=values[keep], top=spreads[keep], bottom=spreads[keep],
+                         beam=_beam(xs))
 
     def _draw_current(self) -> None:
         pts = self._points
@@ -217,6 +231,12 @@ def _spots(pts: OverviewPoints, values: np.ndarray) -> list[dict]:
     return spots
 
 
+def _beam(xs: np.ndarray) -> float:
+    """Width of the bars' end caps: a little of the spread of the points along x."""
+    span = float(np.ptp(xs)) if xs.size > 1 else 1.0
+    return 0.008 * (span if span > 0 else 1.0)
+
+
 def _legend_label() -> QtWidgets.QLabel:
     swatches = " &nbsp; ".join(
         f"<span style='color:{colours.STATUS_COLOURS[s]}; font-size:14px'>&#9679;</span> {s}"
@@ -224,8 +244,8 @@ def _legend_label() -> QtWidgets.QLabel:
     )
     label = QtWidgets.QLabel(
         f"&#9650; upper &nbsp; &#9660; lower &nbsp; | &nbsp; {swatches}"
-        " &nbsp; | &nbsp; hollow: not yet reviewed &nbsp; | &nbsp; deg from the plane normal to"
-        " the flight, + rearward"
+        " &nbsp; | &nbsp; hollow: not yet reviewed &nbsp; | &nbsp; bars: ± 95 % of the proposal"
+        " &nbsp; | &nbsp; deg from the plane normal to the flight, + rearward"
     )
     label.setTextFormat(QtCore.Qt.TextFormat.RichText)
     return label

@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from app.review.columns import as_number
+from app.review.marks import moved_from_proposal
 from core.store import ReviewStatus, ShotRecord
 
 SHOT_ORDER = "shot order"  # pseudo-column: position of the shot in the session
@@ -27,6 +28,8 @@ class OverviewPoints:
 
     All arrays have one entry per plotted shot, in session order. ``upper_deg``/``lower_deg`` are
     NaN where a side has no angle; ``is_final`` is False where the value shown is the proposal.
+    ``upper_u_deg``/``lower_u_deg``: the uncertainty of the proposal where the value shown is the
+    proposal (reviewed or not), NaN where the analyst moved the mark or none is known.
     """
 
     column: str
@@ -37,6 +40,13 @@ class OverviewPoints:
     status: list[ReviewStatus]
     is_final: np.ndarray
     left_out: dict[str, int] = field(default_factory=dict)  # reason -> number of shots not drawn
+    upper_u_deg: np.ndarray | None = None
+    lower_u_deg: np.ndarray | None = None
+
+    def __post_init__(self) -> None:
+        for name in ("upper_u_deg", "lower_u_deg"):
+            if getattr(self, name) is None:
+                setattr(self, name, np.full(len(self.shot_ids), np.nan))
 
     def __len__(self) -> int:
         return len(self.shot_ids)
@@ -118,13 +128,21 @@ def _shown_angle(record, side: str) -> tuple[float, bool]:
     return (float(proposed) if proposed is not None else float("nan")), False
 
 
+def _shown_uncertainty(record, side: str, shown: float) -> float:
+    """The proposal's uncertainty when ``shown`` is the proposal, else NaN."""
+    proposed, spread = record.proposed_deg(side), record.uncertainty_deg(side)
+    if proposed is None or spread is None or moved_from_proposal(shown, proposed):
+        return float("nan")
+    return float(spread)
+
+
 def overview_points(records, column: str) -> OverviewPoints:
     """Collect one point pair per shot for ``column`` (see ``OverviewPoints``).
 
     Shots marked unusable, shots without a value in ``column`` and shots with no angle on
     either side are left out and counted in ``left_out``.
     """
-    ids, xs, ups, lows, statuses, finals = [], [], [], [], [], []
+    ids, xs, ups, lows, statuses, finals, spreads = [], [], [], [], [], [], []
     left_out: dict[str, int] = {}
 
     def skip(reason: str) -> None:
@@ -150,6 +168,8 @@ def overview_points(records, column: str) -> OverviewPoints:
         lows.append(lower)
         statuses.append(status)
         finals.append(upper_final or lower_final)
+        spreads.append((_shown_uncertainty(record, "upper", upper),
+                        _shown_uncertainty(record, "lower", lower)))
     return OverviewPoints(
         column=column,
         shot_ids=ids,
@@ -159,6 +179,8 @@ def overview_points(records, column: str) -> OverviewPoints:
         status=statuses,
         is_final=np.asarray(finals, dtype=bool),
         left_out=left_out,
+        upper_u_deg=np.asarray([u for u, _ in spreads], dtype=float),
+        lower_u_deg=np.asarray([u for _, u in spreads], dtype=float),
     )
 
 

@@ -108,7 +108,7 @@ def _paint_status_boxes(p, x: float, y: float, w: float, records) -> float:
 def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints) -> None:
     """The session overview as vector graphics: angles against ``pts.column``."""
     p.save()
-    plot = frame.adjusted(mm(16), mm(2), -mm(3), -mm(17))
+    plot = frame.adjusted(mm(16), mm(2), -mm(3), -mm(21))
     if not len(pts):
         p.fillRect(plot, qcolor(colours.PAPER_TINT))
         text(p, plot, "No shot with a separation angle to draw.", 9, italic=True,
@@ -116,7 +116,10 @@ def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints
         p.restore()
         return
     p.fillRect(plot, qcolor("#ffffff"))
-    ys = np.concatenate([pts.upper_deg, pts.lower_deg]) if len(pts) else np.array([])
+    ys = np.concatenate([pts.upper_deg + np.nan_to_num(pts.upper_u_deg),
+                         pts.upper_deg - np.nan_to_num(pts.upper_u_deg),
+                         pts.lower_deg + np.nan_to_num(pts.lower_u_deg),
+                         pts.lower_deg - np.nan_to_num(pts.lower_u_deg)])
     ys = ys[np.isfinite(ys)]
     ylo, yhi = (float(ys.min()), float(ys.max())) if ys.size else (-10.0, 30.0)
     ylo, yhi = min(ylo, 0.0), max(yhi, 0.0)
@@ -140,14 +143,30 @@ def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints
     for i in range(len(pts)):
         if np.isfinite(pts.upper_deg[i]) and np.isfinite(pts.lower_deg[i]):
             p.drawLine(to_page(xs[i], pts.upper_deg[i]), to_page(xs[i], pts.lower_deg[i]))
+    _paint_error_bars(p, pts, xs, to_page)
     for i in range(len(pts)):
         colour = colours.STATUS_COLOURS[pts.status[i]]
         for value, up in ((pts.upper_deg[i], True), (pts.lower_deg[i], False)):
             if np.isfinite(value):
                 triangle(p, to_page(xs[i], value), up, colour, bool(pts.is_final[i]))
     p.setClipping(False)
-    _paint_overview_legend(p, frame.left() + mm(16), frame.bottom() - mm(5.5))
+    _paint_overview_legend(p, frame.left() + mm(16), frame.bottom() - mm(9.5))
     p.restore()
+
+
+def _paint_error_bars(p, pts: OverviewPoints, xs: np.ndarray, to_page) -> None:
+    """Each proposal's uncertainty (95 %) as a bar with end caps; none where moved by hand."""
+    p.setPen(pen(colours.MUTED_INK, 0.25))
+    cap = mm(0.8)
+    for values, spreads in ((pts.upper_deg, pts.upper_u_deg), (pts.lower_deg, pts.lower_u_deg)):
+        for x, value, spread in zip(xs, values, spreads, strict=True):
+            if not (np.isfinite(value) and np.isfinite(spread)):
+                continue
+            top, bottom = to_page(x, value + spread), to_page(x, value - spread)
+            p.drawLine(top, bottom)
+            for end in (top, bottom):
+                p.drawLine(QtCore.QPointF(end.x() - cap, end.y()),
+                           QtCore.QPointF(end.x() + cap, end.y()))
 
 
 def _paint_axes(p, plot: QtCore.QRectF, xr, yr, to_page, column: str) -> None:
@@ -192,8 +211,13 @@ def _paint_overview_legend(p, x: float, y: float) -> None:
         text(p, QtCore.QRectF(cx + mm(4), y, mm(22), mm(4)), status, 7.5)
         cx += mm(22)
     triangle(p, QtCore.QPointF(cx + mm(1.5), y + mm(2)), True, colours.MUTED_INK, False)
-    text(p, QtCore.QRectF(cx + mm(4), y, mm(60), mm(4)), "hollow: proposal, not yet reviewed",
+    text(p, QtCore.QRectF(cx + mm(4), y, mm(48), mm(4)), "hollow: proposal, not yet reviewed",
          7.5)
+    y += mm(4.5)  # a second line: the bars
+    p.setPen(pen(colours.MUTED_INK, 0.25))
+    p.drawLine(QtCore.QPointF(x + mm(1.5), y + mm(0.3)), QtCore.QPointF(x + mm(1.5), y + mm(3.7)))
+    text(p, QtCore.QRectF(x + mm(4), y, mm(150), mm(4)), "bar: the proposal's ± (holds the "
+         "true angle in 95 % of proposals); none where the analyst moved the mark", 7.5)
 
 
 def _paint_summary_table(p, x: float, y: float, w: float, column: str,

@@ -17,6 +17,7 @@ from pathlib import Path
 
 from PySide6 import QtCore, QtGui
 
+from app.review.checks import session_direction, shot_checks
 from app.review.overview import default_column, numeric_columns
 from app.review.scales import shared_limit
 from app.sheet.content import (
@@ -113,7 +114,8 @@ def make_sheet(
             paint_cover(pages, session, all_records, records, column, rows,
                         selection_text(records, all_records, shot_ids, statuses, per_page,
                                        vorticity_limit_1_s))
-            _paint_shot_pages(pages, session, records, per_page, vorticity_limit_1_s, progress)
+            _paint_shot_pages(pages, session, records, per_page, vorticity_limit_1_s, progress,
+                              session_direction(all_records))
         finally:
             painter.end()
             del writer  # closes the file
@@ -147,7 +149,8 @@ def _vorticity_fields(session, records):
 
 
 def _paint_shot_pages(pages: Pages, session, records, per_page: int,
-                      vorticity_limit_1_s: float | None, progress) -> None:
+                      vorticity_limit_1_s: float | None, progress,
+                      usual_direction_deg: float | None = None) -> None:
     cells = None
     for index, record in enumerate(records):
         slot = index % per_page
@@ -158,6 +161,7 @@ def _paint_shot_pages(pages: Pages, session, records, per_page: int,
             cells = panel_cells(per_page, pages.body())
         processed = record.state == ProcessState.PROCESSED
         result = session.load_result(record.shot_id) if processed else None
-        paint_shot(pages.painter, cells[slot], record, result, vorticity_limit_1_s)
+        paint_shot(pages.painter, cells[slot], record, result, vorticity_limit_1_s,
+                   shot_checks(record, usual_direction_deg))
         if progress is not None:
             progress(index + 1, len(records))

@@ -31,7 +31,7 @@ from app.sheet.content import (
 )
 from app.review.scales import round_length
 from app.sheet.kit import PANEL_GAP_MM, draw_arrow, mm, pen, qcolor, rect_mm, text
-from core.geometry import flight_unit, point_at_angle, side_normal
+from core.geometry import flight_unit, mid_circle, point_at_angle, side_normal
 from core.store import ReviewStatus
 
 
@@ -45,9 +45,11 @@ def panel_cells(per_page: int, body) -> list[tuple[float, float, float, float]]:
     return [(x, y + i * (ch + PANEL_GAP_MM), w, ch) for i in range(per_page)]
 
 
-def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None) -> None:
+def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None,
+               checks=()) -> None:
     """One shot's panel in ``cell`` (mm); the vorticity colours run to ``vorticity_limit_1_s``
-    (None: the shot's own range)."""
+    (None: the shot's own range); ``checks``: where its ball and flight look wrong
+    (``app.review.checks``)."""
     x, y, w, h = cell
     colour = colours.STATUS_COLOURS.get(record.pick.status, colours.MUTED_INK)
     p.fillRect(rect_mm(x, y, w, 8), qcolor(colours.PAPER_TINT))
@@ -82,7 +84,7 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
              flags=QtCore.Qt.AlignmentFlag.AlignCenter)
     else:
         _paint_field(p, pic, record, result, vorticity_limit_1_s)
-    _paint_numbers(p, info, record, with_metadata=narrow)
+    _paint_numbers(p, info, record, with_metadata=narrow, checks=checks)
 
 
 
@@ -107,12 +109,11 @@ def _crop_box(result, aspect: float) -> tuple[float, float, float, float]:
     spacing = float(vf.spacing_px)
     fx0, fx1 = float(np.nanmin(vf.x_px)) - spacing / 2, float(np.nanmax(vf.x_px)) + spacing / 2
     fy0, fy1 = float(np.nanmin(vf.y_px)) - spacing / 2, float(np.nanmax(vf.y_px)) + spacing / 2
-    ball = result.ball_a
-    if ball is None or result.flight is None:
+    circle = mid_circle(result.ball_a, result.ball_b)
+    if circle is None or result.flight is None:
         bx0, by0, bx1, by1 = fx0, fy0, fx1, fy1
     else:
-        cx, cy = ball.center_px
-        r = ball.radius_px
+        (cx, cy), r = circle
         fx, fy = flight_unit(result.flight.direction_deg)
         nx, ny = side_normal(result.flight.direction_deg, "upper")
         corners = [(cx + r * (a * fx + b * nx), cy + r * (a * fy + b * ny))
@@ -202,31 +203,66 @@ def _paint_vectors(p, view: _View, result, box) -> tuple[float, float] | None:
 
 
 def _paint_ball(p, view: _View, record, result) -> None:
-    ball, flight = result.ball_a, result.flight
-    if ball is None:
+    """The ball at mid-exposure (where the angles were fitted), the plane normal to the flight,
+    the flight arrow, each side's fitted layer and proposal's uncertainty, and the marks."""
+    circle = mid_circle(result.ball_a, result.ball_b)
+    if circle is None:
         return
-    c = view(*ball.center_px)
-    r = ball.radius_px * view.scale
+    centre, rr = circle
     p.setPen(pen(colours.BALL_OUTLINE, 0.35))
     p.setBrush(qcolor("#d9d6cf"))
-    p.drawEllipse(c, r, r)
+    p.drawEllipse(view(*centre), rr * view.scale, rr * view.scale)
+    flight = result.flight
     if flight is None:
         return
     d = flight.direction_deg
     fx, fy = flight_unit(d)
     nx, ny = side_normal(d, "upper")
-    cx, cy = ball.center_px
-    rr = ball.radius_px
+    cx, cy = centre
     p.setPen(pen(colours.PLANE_LINE, 0.3, QtCore.Qt.PenStyle.DashLine))
     p.drawLine(view(cx - 1.5 * rr * nx, cy - 1.5 * rr * ny), view(cx + 1.5 * rr * nx, cy + 1.5 * rr * ny))
     p.setPen(pen(colours.FLIGHT_ARROW, 0.45))
     draw_arrow(p, view(cx + 0.15 * rr * fx, cy + 0.15 * rr * fy),
            view(cx + 0.85 * rr * fx, cy + 0.85 * rr * fy), head_mm=1.6)
     for side, colour in (("upper", colours.UPPER_SIDE), ("lower", colours.LOWER_SIDE)):
-        _paint_mark(p, view, ball, d, side, record, colour)
+        _paint_layer(p, view, circle, d, side, result, colour)
+        _paint_uncertainty(p, view, circle, d, side, record, colour)
+        _paint_mark(p, view, circle, d, side, record, colour)
 
 
-def _paint_mark(p, view: _View, ball, direction_deg: float, side: str, record, colour: str) -> None:
+def _paint_layer(p, view: _View, circle, direction_deg: float, side: str, result,
+                 colour: str) -> None:
+    """The side's fitted dividing line, as far as the band it was fitted to."""
+    from core.separation import layer_curves
+
+    layer = getattr(result.separation, side).layer if result.separation else None
+    if not layer:
+        return
+    try:
+        reach = max(5.0, float(layer["window_deg"][1]) - float(layer["phi_s"]))
+        line = layer_curves(*circle, direction_deg, side, layer, reach_deg=reach)["dividing"]
+    except (KeyError, TypeError, ValueError, IndexError):  # a record of another layout
+        return
+    p.setPen(pen(colour, 0.3))
+    p.drawPolyline(QtGui.QPolygonF([view(x, y) for x, y in line]))
+
+
+def _paint_uncertainty(p, view: _View, circle, direction_deg: float, side: str, record,
+                       colour: str) -> None:
+    """An arc just outside the outline over the proposal's uncertainty (95 %)."""
+    proposed, spread = record.proposed_deg(side), record.uncertainty_deg(side)
+    if proposed is None or not spread:
+        return
+    angles = np.linspace(proposed - spread, proposed + spread, 33)
+    centre, rr = circle
+    arc = [view(*point_at_angle(centre, rr * 1.07, direction_deg, side, a)) for a in angles]
+    p.setPen(pen(colour, 0.7))
+    p.setBrush(QtCore.Qt.BrushStyle.NoBrush)
+    p.drawPolyline(QtGui.QPolygonF(arc))
+
+
+def _paint_mark(p, view: _View, circle, direction_deg: float, side: str, record,
+                colour: str) -> None:
     """Final separation (filled, labelled) and the proposal where it differs (hollow, dashed).
 
     A shot not yet reviewed has no final angle: its proposal is drawn in the side's colour and
@@ -234,7 +270,7 @@ def _paint_mark(p, view: _View, ball, direction_deg: float, side: str, record, c
     """
     final = record.final_deg(side)
     proposed = record.proposed_deg(side)
-    centre, rr = ball.center_px, ball.radius_px
+    centre, rr = circle
     open_proposal = final is None and record.pick.status == ReviewStatus.TO_REVIEW
     if proposed is not None and (final is None or moved_from_proposal(final, proposed)):
         a = view(*point_at_angle(centre, rr * 1.0, direction_deg, side, proposed))
@@ -315,7 +351,7 @@ def _signed(value: float) -> str:
 
 
 
-def _paint_numbers(p, info, record, with_metadata: bool = False) -> None:
+def _paint_numbers(p, info, record, with_metadata: bool = False, checks=()) -> None:
     """The shot's numbers, most important first (rows that do not fit are left out)."""
     x, y, w, h = info
     summary = record.summary
@@ -353,6 +389,8 @@ def _paint_numbers(p, info, record, with_metadata: bool = False) -> None:
     row("timing", timing_text(record))
     if md.get("notes"):
         row("shot notes", str(md["notes"]))
+    if checks:
+        row("check", "; ".join(checks[:2]), colours.STATUS_COLOURS[ReviewStatus.ADJUSTED])
     warnings = () if summary is None else summary.warnings
     if warnings:
         row("warnings", "; ".join(warnings[:2]), colours.MUTED_INK)
