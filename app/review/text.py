@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 
-from core.results import Flight, SeparationResult, SideProposal
+from core.results import Flight, SeparationResult, SideProposal, wake_state
 from core.store import ShotRecord
 from core.summary import ShotSummary, VectorCounts
 
@@ -88,8 +88,8 @@ def geometry_text(pick) -> str:
     parts = []
     circles = [f for f in "ab" if getattr(pick, f"circle_{f}_px") is not None]
     if circles:
-        parts.append("circle" + ("s" if len(circles) > 1 else "") + " in frame "
-                     + " and ".join(f.upper() for f in circles))
+        parts.append("circles in frames A and B" if len(circles) > 1
+                     else f"circle in frame {circles[0].upper()}")
     if pick.flight_deg is not None:
         parts.append(f"flight {angle_text(pick.flight_deg, signed=False)}")
     return ", ".join(parts) + " set by the analyst" if parts else ""
@@ -138,7 +138,7 @@ def reviewed_wake_text(record: ShotRecord, decimals: int = 1, moving: dict | Non
     state = record.wake_state(moving)
     if not state:
         return MISSING
-    proposed = record.summary.separation.wake_state
+    proposed = wake_state(record.summary.side("upper"), record.summary.side("lower"))
     if state != proposed:
         state += f" (proposals: {proposed})"
     return wake_text(record.summary.separation, decimals, state)
