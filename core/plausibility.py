@@ -75,8 +75,8 @@ def _speed_check(speed: float | None, nominal: float | None) -> list[str]:
     if abs(off) <= SPEED_TOLERANCE:
         return []
     word = "above" if off > 0 else "below"
-    return [f"measured speed {speed:.1f} m/s is {100 * abs(off):.0f} % {word} the launcher's "
-            f"nominal {nominal:g} m/s: check the ball's circles and the scale"]
+    return [(f"measured speed {speed:.1f} m/s is {100 * abs(off):.0f} % {word} the launcher's "
+            f"nominal {nominal:g} m/s: check the ball's circles and the scale")]
 
 
 def _moved_check(flight, manifest_deg: float | None) -> list[str]:
@@ -88,8 +88,8 @@ def _moved_check(flight, manifest_deg: float | None) -> list[str]:
     gap = _turn(moved, manifest_deg)
     if abs(gap) <= DIRECTION_TOLERANCE_DEG:
         return []
-    return [f"the ball's circles moved toward {moved:.1f}°, {abs(gap):.0f}° from the manifest's "
-            f"flight direction {manifest_deg:g}°: check the circles in frames A and B"]
+    return [(f"the ball's circles moved toward {moved:.1f}°, {abs(gap):.0f}° from the manifest's "
+            f"flight direction {manifest_deg:g}°: check the circles in frames A and B")]
 
 
 def _usual_check(direction: float, usual: float | None) -> list[str]:
@@ -98,8 +98,8 @@ def _usual_check(direction: float, usual: float | None) -> list[str]:
     gap = _turn(direction, usual)
     if abs(gap) <= DIRECTION_TOLERANCE_DEG:
         return []
-    return [f"flight direction {direction:.1f}° is {abs(gap):.0f}° from the {usual:.1f}° most "
-            "shots of the session fly in"]
+    return [(f"flight direction {direction:.1f}° is {abs(gap):.0f}° from the {usual:.1f}° most "
+            "shots of the session fly in")]
 
 
 def _radius_check(summary: ShotSummary) -> list[str]:
@@ -110,8 +110,8 @@ def _radius_check(summary: ShotSummary) -> list[str]:
     mean = 0.5 * (a.radius_px + b.radius_px)
     if not mean > 0 or abs(a.radius_px - b.radius_px) <= RADIUS_TOLERANCE * mean:
         return []
-    return [f"the ball's circles in frames A and B differ in radius ({a.radius_px:.1f} vs "
-            f"{b.radius_px:.1f} px): one of them is off"]
+    return [(f"the ball's circles in frames A and B differ in radius ({a.radius_px:.1f} vs "
+            f"{b.radius_px:.1f} px): one of them is off")]
 
 
 def _wake_check(deflection: float | None) -> list[str]:

@@ -7,12 +7,12 @@ from __future__ import annotations
 import csv
 
 import pytest
+from conftest import answer_dialog
 from PySide6.QtCore import Qt
 from test_window import _drag, _key, _open, _viewport_point
 
 from app.qt.canvas_items import mark_circle
 from app.review.text import angle_text
-from conftest import answer_dialog
 from core.geometry import point_at_angle
 from core.shot import BY_ANALYST
 from core.store import Session

@@ -17,6 +17,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import QRectF, Qt
 from PySide6.QtGui import QColor
 
+from app.qt.canvas_evidence import EvidenceItems, ReferenceVector, fine_extent
 from app.qt.canvas_items import (
     MASKED_MARK,
     OVERLAY_LINE,
@@ -27,7 +28,6 @@ from app.qt.canvas_items import (
     arrow_segments,
     pen,
 )
-from app.qt.canvas_evidence import EvidenceItems, ReferenceVector, fine_extent
 from app.qt.canvas_pictures import (
     frame_displacement,
     smooth_upsample,

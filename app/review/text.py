@@ -59,9 +59,9 @@ def uncertainty_meaning(side: SideProposal) -> str:
 
     if side.uncertainty_deg is None:
         return ""
-    lines = [f"± {side.uncertainty_deg:.1f}° is meant to hold the true angle in "
+    lines = [(f"± {side.uncertainty_deg:.1f}° is meant to hold the true angle in "
              f"{COVERAGE:.0%} of proposals: {COVERAGE_K:g} × the root sum of squares of these "
-             "standard uncertainties:"]
+             "standard uncertainties:")]
     for source, value in sorted((side.budget or {}).items(), key=lambda kv: -kv[1]):
         lines.append(f"  {source} {value:.2f}°")
     return "\n".join(lines)
