@@ -173,3 +173,31 @@ def test_the_flight_direction_set_by_hand_and_back_to_the_measured_one(
     again = _measured(window, qtbot, after)
     assert again.flight.direction_deg == pytest.approx(before.flight.direction_deg, abs=0.01)
     assert not window.model.record("g1").pick.has_geometry()
+
+
+def test_the_overview_bars_the_proposals_uncertainty_but_not_a_moved_mark(qtbot):
+    import numpy as np
+
+    from app.qt.overview import SessionOverview
+    from app.review.overview import overview_points
+    from core.store import Pick, ShotRecord
+    from core.summary import ShotSummary
+
+    def record(shot_id, seam, pick):
+        summary = ShotSummary.from_dict({"separation": {
+            "upper": {"angle_deg": -9.0, "uncertainty_deg": 3.0},
+            "lower": {"angle_deg": 4.0, "uncertainty_deg": 6.0}}})
+        return ShotRecord(shot_id, {"seam_deg": seam}, state="processed", summary=summary,
+                          pick=pick)
+
+    records = [record("a", 0.0, Pick()), record("b", 10.0, Pick(status="accepted")),
+               record("c", 20.0, Pick(status="adjusted", upper_deg=-9.0, lower_deg=11.0))]
+    pts = overview_points(records, "seam_deg")
+    np.testing.assert_array_equal(pts.upper_u_deg, [3.0, 3.0, 3.0])  # c: upper left as proposed
+    np.testing.assert_array_equal(pts.lower_u_deg, [6.0, 6.0, np.nan])  # c: lower moved
+    panel = SessionOverview()
+    qtbot.addWidget(panel)
+    panel.set_records(records)
+    bars = panel.error_bars["lower"].opts
+    assert list(bars["y"]) == [4.0, 4.0] and list(bars["top"]) == [6.0, 6.0]
+    assert len(panel.error_bars["upper"].opts["x"]) == 3
