@@ -201,3 +201,17 @@ def test_the_overview_bars_the_proposals_uncertainty_but_not_a_moved_mark(qtbot)
     bars = panel.error_bars["lower"].opts
     assert list(bars["y"]) == [4.0, 4.0] and list(bars["top"]) == [6.0, 6.0]
     assert len(panel.error_bars["upper"].opts["x"]) == 3
+
+
+def test_the_readme_names_every_layer_the_window_offers(main_window):
+    from pathlib import Path
+
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    section = readme.split("What the picture can show", 1)[1].split("\n## ", 1)[0].lower()
+    canvas = main_window(workers=0).canvas
+    names = [a.text() for a in canvas.overlay_button.menu().actions() if a.text()]
+    names += [canvas.picture_box.itemText(i) for i in range(canvas.picture_box.count())]
+    names += [canvas.frame_box.itemText(i) for i in range(canvas.frame_box.count())]
+    names += [canvas.vectors_box.text(), canvas.vorticity_box.text()]
+    missing = [name for name in names if name.lower() not in section]
+    assert not missing, f"layers of the window not in the README's list: {missing}"
