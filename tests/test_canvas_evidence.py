@@ -73,6 +73,8 @@ def canvas(qtbot, evidence_shot):
 
 
 def _points(item) -> np.ndarray:
+    if hasattr(item, "points"):  # the evidence's polylines
+        return item.points
     x, y = item.getData()
     return np.zeros((0, 2)) if x is None else np.column_stack([x, y])
 

@@ -23,7 +23,7 @@ from PySide6.QtWidgets import QGraphicsPathItem, QGraphicsPolygonItem
 
 from app.qt.canvas_items import OVERLAY_LINE, SHADOW, SIDE_COLOURS, mark_circle, pen
 from app.qt.canvas_pictures import smooth_upsample, vorticity_image
-from core.geometry import SIDES, point_at_angle
+from core.geometry import SIDES, flight_unit, side_normal
 
 FINE_UPSAMPLE = 4  # display only, as the main field's vorticity
 WEDGE_RADII = (1.0, 1.14)  # the uncertainty wedge spans these multiples of the ball radius
@@ -39,21 +39,20 @@ class EvidenceItems:
         self.view = view
         self.fine_vorticity = pg.ImageItem()
         self.fine_vorticity.setZValue(11)  # over the main field's vorticity (10)
-        self.fine_box = pg.PlotDataItem(pen=pen(FINE_BOX_LINE, 1.0, alpha=200))
-        self.fine_box.opts["pen"].setStyle(Qt.PenStyle.DotLine)
+        self.fine_box = Polyline(_dotted(FINE_BOX_LINE, 1.0))
         self.fine_box.setZValue(18)
         for item in (self.fine_vorticity, self.fine_box):
             view.addItem(item)
-        self.curves: dict[str, dict[str, pg.PlotDataItem]] = {}
+        self.curves: dict[str, dict[str, Polyline]] = {}
         self.wedges: dict[str, QGraphicsPathItem] = {}
         for side in SIDES:
             colour = SIDE_COLOURS[side]
             light = QColor(colour).lighter(175).name()
             items = {
-                "band": pg.PlotDataItem(pen=_dotted(BAND_LINE, 1.4)),
-                "halo": pg.PlotDataItem(pen=pen(SHADOW, 4.2, alpha=150)),
-                "dividing": pg.PlotDataItem(pen=pen(light, 2.2)),
-                "centre": pg.PlotDataItem(pen=pen(light, 1.2, dash=True)),
+                "band": Polyline(_dotted(BAND_LINE, 1.4)),
+                "halo": Polyline(pen(SHADOW, 4.2, alpha=150)),
+                "dividing": Polyline(pen(light, 2.2)),
+                "centre": Polyline(pen(light, 1.2, dash=True)),
             }
             for z, item in enumerate(items.values()):
                 item.setZValue(32 + 0.1 * z)
@@ -89,24 +88,19 @@ class EvidenceItems:
     def show_fine_box(self, fine) -> None:
         """A dotted outline of where the fine field was measured (None: none)."""
         if fine is None:
-            self.fine_box.setData([], [])
+            self.fine_box.set_points(None)
             return
         x0, x1, y0, y1 = fine_extent(fine)
-        self.fine_box.setData([x0, x1, x1, x0, x0], [y0, y0, y1, y1, y0])
+        self.fine_box.set_points(np.array([[x0, y0], [x1, y0], [x1, y1], [x0, y1], [x0, y0]]))
 
     # -- fitted layers -----------------------------------------------------------------------
     def show_layers(self, result, show: bool) -> None:
         """Each side's fitted dividing line, half-speed line and band (None: hidden)."""
         for side in SIDES:
             curves = fitted_curves(result, side) if show else None
-            items = self.curves[side]
-            for name, item in items.items():
-                points = None if curves is None else curves["dividing" if name == "halo"
-                                                            else name]
-                if points is None:
-                    item.setData([], [])
-                else:
-                    item.setData(points[:, 0], points[:, 1])
+            for name, item in self.curves[side].items():
+                item.set_points(None if curves is None else
+                                curves["dividing" if name == "halo" else name])
 
     # -- uncertainty -------------------------------------------------------------------------
     def show_uncertainty(self, result, proposals: dict, show: bool) -> None:
@@ -122,6 +116,23 @@ class EvidenceItems:
                 continue
             wedge.setPath(wedge_path(circle, flight.direction_deg, side, angle, spread))
             wedge.setVisible(True)
+
+
+class Polyline(QGraphicsPathItem):
+    """A line through image points (lighter to update than a plot item: one path)."""
+
+    def __init__(self, line_pen) -> None:
+        super().__init__()
+        self.setPen(line_pen)
+        self.points = np.zeros((0, 2))
+
+    def set_points(self, points: np.ndarray | None) -> None:
+        """The line's points, ``(N, 2)`` image px (None: no line)."""
+        self.points = np.zeros((0, 2)) if points is None else np.asarray(points, dtype=float)
+        if len(self.points) < 2:
+            self.setPath(QPainterPath())
+            return
+        self.setPath(pg.arrayToQPath(self.points[:, 0], self.points[:, 1], connect="all"))
 
 
 class ReferenceVector(pg.ScaleBar):
@@ -205,12 +216,20 @@ def wedge_path(circle, direction_deg: float, side: str, angle_deg: float,
     """The annular sector from ``angle - spread`` to ``angle + spread`` at the outline."""
     (cx, cy), r = circle
     angles = np.linspace(angle_deg - spread_deg, angle_deg + spread_deg, 41)
-    inner = [point_at_angle((cx, cy), WEDGE_RADII[0] * r, direction_deg, side, a)
-             for a in angles]
-    outer = [point_at_angle((cx, cy), WEDGE_RADII[1] * r, direction_deg, side, a)
-             for a in angles[::-1]]
-    path = QPainterPath()
-    path.addPolygon(QPolygonF([QPointF(x, y) for x, y in inner + outer]))
+    ux, uy = outline_directions(direction_deg, side, angles)
+    inner, outer = WEDGE_RADII[0] * r, WEDGE_RADII[1] * r
+    xs = np.concatenate([cx + inner * ux, cx + outer * ux[::-1], [cx + inner * ux[0]]])
+    ys = np.concatenate([cy + inner * uy, cy + outer * uy[::-1], [cy + inner * uy[0]]])
+    path = pg.arrayToQPath(xs, ys, connect="all")
     path.closeSubpath()
     return path
+
+
+def outline_directions(direction_deg: float, side: str, angles_deg: np.ndarray):
+    """Unit vectors (x, y arrays) from the centre to the outline at separation angles on
+    ``side`` (``core.geometry.point_at_angle`` for many angles at once)."""
+    fx, fy = flight_unit(direction_deg)
+    nx, ny = side_normal(direction_deg, side)
+    a = np.radians(angles_deg)
+    return np.cos(a) * nx - np.sin(a) * fx, np.cos(a) * ny - np.sin(a) * fy
 
