@@ -160,7 +160,7 @@ def test_the_reference_vector_has_the_vectors_scale(canvas, evidence_shot):
     reference = canvas.main.reference
     assert reference.isVisible()
     speed, unit = reference.text.textItem.toPlainText().split()
-    assert unit == "m/s" and float(speed) > 0
+    assert unit == "m/s" and float(speed) == reference.speed > 0
     shaft = _points(canvas.vectors)[:2]
     vf = result.field
     first = tuple(np.argwhere(~vf.masked & ~vf.replaced)[0])
@@ -168,6 +168,12 @@ def test_the_reference_vector_has_the_vectors_scale(canvas, evidence_shot):
     real = math.hypot(vf.dx_px[first], vf.dy_px[first]) * speed_factor(result)
     # image px per m/s of a field arrow and of the reference arrow are the same
     assert reference.size / float(speed) == pytest.approx(drawn / real, rel=1e-6)
+    # zoomed in, a shorter round speed keeps the arrow on screen; the scale stays
+    (x0, x1), (y0, y1) = canvas.view.viewRange()
+    canvas.view.setRange(xRange=(x0, x0 + (x1 - x0) / 8), yRange=(y0, y0 + (y1 - y0) / 8),
+                         padding=0)
+    assert reference.speed < float(speed)
+    assert reference.size / reference.speed == pytest.approx(drawn / real, rel=1e-6)
     canvas.vectors_box.setChecked(False)
     assert not reference.isVisible()
 

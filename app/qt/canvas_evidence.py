@@ -23,12 +23,14 @@ from PySide6.QtWidgets import QGraphicsPathItem, QGraphicsPolygonItem
 
 from app.qt.canvas_items import OVERLAY_LINE, SHADOW, SIDE_COLOURS, mark_circle, pen
 from app.qt.canvas_pictures import smooth_upsample, vorticity_image
+from app.review.scales import round_length
 from core.geometry import SIDES, flight_unit, side_normal
 
 FINE_UPSAMPLE = 4  # display only, as the main field's vorticity
 WEDGE_RADII = (1.0, 1.14)  # the uncertainty wedge spans these multiples of the ball radius
 BAND_LINE = "#d8d4ca"  # the fitted band's outline: a quiet light grey, dotted
 FINE_BOX_LINE = "#8fd3c9"  # the fine field's extent: a pale teal, dotted
+REFERENCE_SCREEN_PX = 60.0  # the reference vector is at most this long on screen
 MIN_REACH_DEG = 5.0  # the fitted layer is drawn at least this far behind its separation point
 
 
@@ -136,7 +138,8 @@ class Polyline(QGraphicsPathItem):
 
 
 class ReferenceVector(pg.ScaleBar):
-    """An arrow of a round speed at the vectors' scale, bottom left of the view, labelled."""
+    """An arrow of a round speed at the vectors' scale, bottom left of the view, labelled; its
+    speed is chosen for the zoom (as the scale bar's length), so the arrow stays readable."""
 
     def __init__(self) -> None:
         super().__init__(size=1.0, width=2, brush=OVERLAY_LINE, pen=pen(SHADOW, 0.8),
@@ -146,27 +149,34 @@ class ReferenceVector(pg.ScaleBar):
         self.head = QGraphicsPolygonItem(self)
         self.head.setBrush(QBrush(QColor(OVERLAY_LINE)))
         self.head.setPen(pen(SHADOW, 0.8))
+        self.px_per_unit: float | None = None  # image px of arrow per m/s (or per px)
+        self.unit = "m/s"
+        self.speed: float | None = None
         self.setVisible(False)
 
-    def set_reference(self, length_px: float | None, label: str = "") -> None:
-        """The arrow's length in image px and its label (None: hidden)."""
-        shown = bool(length_px) and math.isfinite(length_px) and length_px > 0
+    def set_reference(self, px_per_unit: float | None, unit: str = "m/s") -> None:
+        """The vectors' scale, image px of arrow per ``unit`` of speed (None: hidden)."""
+        shown = bool(px_per_unit) and math.isfinite(px_per_unit) and px_per_unit > 0
+        self.px_per_unit, self.unit = (px_per_unit if shown else None), unit
         self.setVisible(shown)
-        if shown:
-            self.size = float(length_px)
-            self.text.setText(label)
-            self.updateBar()
+        self.updateBar()
 
     def updateBar(self) -> None:
         view = self.parentItem()
-        if view is None or not self.isVisible():
+        if view is None or not self.px_per_unit:
             return
         p1 = view.mapFromViewToItem(self, QPointF(0, 0))
-        p2 = view.mapFromViewToItem(self, QPointF(self.size, 0))
-        w = (p2 - p1).x()
+        p2 = view.mapFromViewToItem(self, QPointF(self.px_per_unit, 0))
+        per_unit = (p2 - p1).x()  # screen px per unit of speed
+        if not per_unit > 0:
+            return
+        self.speed = round_length(REFERENCE_SCREEN_PX / per_unit)
+        self.size = self.speed * self.px_per_unit
+        w = self.speed * per_unit
         self.bar.setRect(QRectF(0, 0, w, self._width))
         self.head.setPolygon(QPolygonF([QPointF(w + 7, 1), QPointF(w - 1, -3.5),
                                         QPointF(w - 1, 5.5)]))
+        self.text.setText(f"{self.speed:g} {self.unit}")
         self.text.setPos(w / 2.0, 0)
 
 

@@ -175,7 +175,7 @@ class ShotPane:
         """Every ``stride``-th vector of the result's field (None: none), in the lab or the ball
         frame, and with ``fine`` the fine field's near the ball instead of the main field's
         there; valid, replaced and masked drawn apart, all at one scale, with a reference
-        vector of a round speed."""
+        vector."""
         vf = getattr(result, "field", None)
         if vf is None:
             for item in (self.vectors, self.replaced):
@@ -199,19 +199,14 @@ class ShotPane:
         hidden = drawn.shown_masked
         self.masked.setData(pos=np.column_stack([drawn.x[hidden], drawn.y[hidden]]))
         self.vectors.setPen(pen(colour, 1.1))
-        self._show_reference(result, np.hypot(drawn.dx[usable], drawn.dy[usable]), scale)
+        self._show_reference(result, scale)
 
-    def _show_reference(self, result, lengths_px: np.ndarray, scale: float) -> None:
-        """A reference vector of a round speed near the large ones, at the vectors' scale."""
-        factor = speed_factor(result) or 1.0
-        unit = "m/s" if speed_factor(result) else "px"
-        lengths_px = lengths_px[np.isfinite(lengths_px)]
-        big = float(np.percentile(lengths_px, 95)) * factor if lengths_px.size else 0.0
-        if big <= 0:
-            self.reference.set_reference(None)
-            return
-        speed = round_length(big)
-        self.reference.set_reference(speed / factor * scale, f"{speed:g} {unit}")
+    def _show_reference(self, result, scale: float) -> None:
+        """The reference vector at the vectors' scale (``scale``: image px of arrow per px of
+        displacement), in m/s with dt and a scale, else in px."""
+        factor = speed_factor(result)
+        self.reference.set_reference(scale / factor if factor else scale,
+                                     "m/s" if factor else "px")
 
     # -- overlays ----------------------------------------------------------------------------
     def show_overlays(self, result, ball: bool, flight: bool, layers: bool = False,

@@ -350,7 +350,8 @@ class ReadoutPanel(QWidget):
                 "proposed": angle_text(detail.angle_deg),
                 "final": angle_text(final),
                 "uncertainty": uncertainty_text(detail.uncertainty_deg),
-                "quality": quality_text(detail.quality),
+                "quality": quality_text(detail.quality if detail.angle_deg is not None
+                                        else None),  # no proposal, no quality of it
             }
             for name, text in values.items():
                 self.cells[(name, side)].setText(text)

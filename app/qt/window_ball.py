@@ -41,6 +41,9 @@ class BallActions:
     def _update_ball_actions(self, editable: bool) -> None:
         """``editable``: a measured shot of a session open for writing is current."""
         record = self.model.record(self.model.current_id) if editable else None
+        if self.model.read_only and self.act_edit_circles.isChecked():  # nothing to save into
+            self.act_edit_circles.setChecked(False)
+            self.canvas.set_circle_editing(False)
         self.act_edit_circles.setEnabled(editable)
         self.act_set_flight.setEnabled(editable)
         self.act_measured_ball.setEnabled(record is not None and record.pick.has_geometry())
@@ -97,8 +100,14 @@ class BallActions:
             self._show_current(full=True)
             return
         shot_id = self.model.current_id
-        self._push(GeometryEdit(self.model, shot_id, geometry, f"{text} of shot {shot_id}",
-                                self._remeasure))
+        try:
+            command = GeometryEdit(self.model, shot_id, geometry, f"{text} of shot {shot_id}",
+                                   self._remeasure)
+        except WakelineError as exc:  # its stored result cannot be read
+            self.show_problem("Edit not saved", str(exc))
+            self._show_current(full=True)
+            return
+        self._push(command)
 
     # -- measuring again ---------------------------------------------------------------------
     def _remeasure(self, command: GeometryEdit) -> None:
