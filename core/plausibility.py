@@ -131,4 +131,3 @@ def _number(value) -> float | None:
     except (TypeError, ValueError):
         return None
     return value if math.isfinite(value) else None
-

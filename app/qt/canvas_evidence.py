@@ -23,6 +23,7 @@ from PySide6.QtWidgets import QGraphicsPathItem, QGraphicsPolygonItem
 
 from app.qt.canvas_items import OVERLAY_LINE, SHADOW, SIDE_COLOURS, mark_circle, pen
 from app.qt.canvas_pictures import smooth_upsample, vorticity_image
+from app.review.marks import fitted_layer_lines
 from app.review.scales import round_length
 from core.geometry import SIDES, flight_unit, side_normal
 
@@ -31,7 +32,6 @@ WEDGE_RADII = (1.0, 1.14)  # the uncertainty wedge spans these multiples of the 
 BAND_LINE = "#d8d4ca"  # the fitted band's outline: a quiet light grey, dotted
 FINE_BOX_LINE = "#8fd3c9"  # the fine field's extent: a pale teal, dotted
 REFERENCE_SCREEN_PX = 60.0  # the reference vector is at most this long on screen
-MIN_REACH_DEG = 5.0  # the fitted layer is drawn at least this far behind its separation point
 
 
 class EvidenceItems:
@@ -202,23 +202,13 @@ def fine_extent(fine) -> tuple[float, float, float, float]:
 
 
 def fitted_curves(result, side: str) -> dict[str, np.ndarray] | None:
-    """``core.separation.layer_curves`` of a side's fitted layer about the mid-exposure circle,
-    as far rearward as the band it was fitted to (None without a fitted layer)."""
-    from core.separation import layer_curves
-
+    """The lines of a side's fitted layer about the mid-exposure circle (None without one)."""
     separation = getattr(result, "separation", None)
-    layer = None if separation is None else getattr(separation, side).layer
-    circle = mark_circle(result)
     flight = getattr(result, "flight", None)
-    if not layer or circle is None or flight is None:
+    if separation is None or flight is None:
         return None
-    try:
-        # drawn only as far as the fit saw the images (the band's end), not extrapolated
-        reach = max(MIN_REACH_DEG, float(layer["window_deg"][1]) - float(layer["phi_s"]))
-        return layer_curves(circle[0], circle[1], flight.direction_deg, side, layer,
-                            reach_deg=reach)
-    except (KeyError, TypeError, ValueError, IndexError):  # a record of another layout
-        return None
+    return fitted_layer_lines(mark_circle(result), flight.direction_deg, side,
+                              getattr(separation, side).layer)
 
 
 def wedge_path(circle, direction_deg: float, side: str, angle_deg: float,

@@ -1,5 +1,6 @@
-"""The separation marks of a shot: which angle each side's mark shows, and when the analyst's
-mark stands apart from the machine's proposal (no Qt here)."""
+"""The separation marks of a shot: which angle each side's mark shows, when the analyst's mark
+stands apart from the machine's proposal, and the lines of each side's fitted layer (no Qt
+here)."""
 
 from __future__ import annotations
 
@@ -23,3 +24,22 @@ def mark_angles(record: ShotRecord) -> tuple[dict, dict]:
     proposed = {side: record.proposed_deg(side) for side in SIDES}
     final = {side: record.final_deg(side) for side in SIDES}
     return proposed, final
+
+
+#: A fitted layer is drawn at least this far (deg) behind its separation point.
+MIN_REACH_DEG = 5.0
+
+
+def fitted_layer_lines(circle, flight_deg: float, side: str, layer: dict | None):
+    """``core.separation.layer_curves`` of a side's fitted layer (``SideProposal.layer``) about
+    ``circle`` ((cx, cy), r: the ball at mid-exposure), drawn only as far rearward as the band
+    the fit saw, not extrapolated; None without a layer or for a record of another layout."""
+    from core.separation import layer_curves
+
+    if not layer or circle is None:
+        return None
+    try:
+        reach = max(MIN_REACH_DEG, float(layer["window_deg"][1]) - float(layer["phi_s"]))
+        return layer_curves(circle[0], circle[1], flight_deg, side, layer, reach_deg=reach)
+    except (KeyError, TypeError, ValueError, IndexError):
+        return None

@@ -11,7 +11,7 @@ import numpy as np
 from PySide6 import QtCore, QtGui
 
 from app.review import colours
-from app.review.marks import moved_from_proposal
+from app.review.marks import fitted_layer_lines, moved_from_proposal
 from app.review.text import (
     MISSING,
     SHEET_DECIMALS,
@@ -233,18 +233,12 @@ def _paint_ball(p, view: _View, record, result) -> None:
 def _paint_layer(p, view: _View, circle, direction_deg: float, side: str, result,
                  colour: str) -> None:
     """The side's fitted dividing line, as far as the band it was fitted to."""
-    from core.separation import layer_curves
-
     layer = getattr(result.separation, side).layer if result.separation else None
-    if not layer:
-        return
-    try:
-        reach = max(5.0, float(layer["window_deg"][1]) - float(layer["phi_s"]))
-        line = layer_curves(*circle, direction_deg, side, layer, reach_deg=reach)["dividing"]
-    except (KeyError, TypeError, ValueError, IndexError):  # a record of another layout
+    lines = fitted_layer_lines(circle, direction_deg, side, layer)
+    if lines is None:
         return
     p.setPen(pen(colour, 0.3))
-    p.drawPolyline(QtGui.QPolygonF([view(x, y) for x, y in line]))
+    p.drawPolyline(QtGui.QPolygonF([view(x, y) for x, y in lines["dividing"]]))
 
 
 def _paint_uncertainty(p, view: _View, circle, direction_deg: float, side: str, record,
