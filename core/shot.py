@@ -42,6 +42,9 @@ class ShotSettings:
     # min-max normalisation window in mean particle spacings (None: off; skipped on sparse
     # seeding, spacing above core.conditioning.SPARSE_SPACING_PX)
     normalise_spacings: float | None = 3.0
+    # per-pixel "min" or "median" of the session's frames at the shot's camera position
+    # subtracted before correlation (computed by core.batch), or None
+    background: str | None = None
     piv: PivSettings = field(default_factory=PivSettings)
 
     def to_dict(self) -> dict:
