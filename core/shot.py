@@ -123,27 +123,30 @@ class ShotResult:
 
     @classmethod
     def from_stored(cls, summary: dict, arrays: dict[str, np.ndarray]) -> ShotResult:
+        """The result from its stored summary (read by :class:`core.summary.ShotSummary`, the
+        one reader of stored summaries) and arrays."""
+        from core.summary import ShotSummary
+
+        typed = ShotSummary.from_dict(summary)
         vf = VectorField(
             **{name: np.asarray(arrays[name]) for name in VectorField.ARRAY_NAMES},
-            window_px=summary["vectors"]["window_px"],
-            spacing_px=summary["vectors"]["spacing_px"],
+            window_px=typed.vectors.window_px,
+            spacing_px=typed.vectors.spacing_px,
         )
-        ball = summary.get("ball")
-        sep = summary.get("separation")
         return cls(
             field=vf,
-            settings=ShotSettings.from_dict(summary["settings"]),
-            ball_a=_ball_from(ball and ball.get("frame_a")),
-            ball_b=_ball_from(ball and ball.get("frame_b")),
-            flight=None if summary.get("flight") is None else _flight_from(summary["flight"]),
-            separation=None if sep is None else _separation_from(sep),
-            scale_mm_per_px=summary.get("scale_mm_per_px"),
+            settings=ShotSettings.from_dict(typed.settings),
+            ball_a=typed.ball_a,
+            ball_b=typed.ball_b,
+            flight=typed.flight,
+            separation=None if summary.get("separation") is None else typed.separation,
+            scale_mm_per_px=typed.scale_mm_per_px,
             u_m_s=arrays.get("u_m_s"),
             v_m_s=arrays.get("v_m_s"),
             vorticity_1_s=arrays.get("vorticity_1_s"),
-            warnings=list(summary.get("warnings", [])),
-            valid_near_ball=summary["vectors"].get("valid_near_ball"),
-            reynolds=(summary.get("reynolds") or {}).get("value"),
+            warnings=list(typed.warnings),
+            valid_near_ball=typed.vectors.valid_near_ball,
+            reynolds=typed.reynolds,
             fine_field=_fine_from(summary, arrays),
         )
 
@@ -204,32 +207,6 @@ def _separation_summary(sep: SeparationResult | None) -> dict:
         "wake_deflection_deg": finite_or_none(sep.wake_deflection_deg),
         "wake_state": sep.wake_state,
     }
-
-
-def _ball_from(d: dict | None) -> BallFit | None:
-    if not d:
-        return None
-    known = {f.name for f in dc_fields(BallFit)}
-    return BallFit(**{k: v for k, v in d.items() if k in known})
-
-
-def _flight_from(d: dict) -> Flight:
-    known = {f.name for f in dc_fields(Flight)}
-    return Flight(**{k: v for k, v in d.items() if k in known})
-
-
-def _side_from(d: dict) -> SideProposal:
-    known = {f.name for f in dc_fields(SideProposal)}
-    return SideProposal(**{"angle_deg": None, **{k: v for k, v in d.items() if k in known}})
-
-
-def _separation_from(d: dict) -> SeparationResult:
-    return SeparationResult(
-        upper=_side_from(d["upper"]),
-        lower=_side_from(d["lower"]),
-        wake_deflection_deg=d.get("wake_deflection_deg"),
-        wake_state=d.get("wake_state", "undetermined"),
-    )
 
 
 #: Passes of the finer correlation around the ball (ball frame): it gives the stream beside the
