@@ -36,9 +36,9 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from core import WakelineError  # noqa: E402
-from core.separation import COVERAGE, COVERAGE_K  # noqa: E402
-from core.shot import ShotSettings, measure_shot  # noqa: E402
+from core import WakelineError
+from core.separation import COVERAGE, COVERAGE_K
+from core.shot import ShotSettings, measure_shot
 
 #: The issue's accuracy target applies to layers of 1.5-9 px, departures 5-20 deg, R >= 150 px.
 TARGET_DEPARTURE_DEG = (5.0, 20.0)
@@ -151,10 +151,10 @@ def conditions(rec: dict) -> list[str]:
 
 def tables(records: list[dict]) -> str:
     """The markdown tables of the benchmark."""
-    lines = [f"Stated coverage: {COVERAGE:.0%} (uncertainty = {COVERAGE_K:g} standard "
-             "uncertainties).", ""]
-    lines += ["| family | condition | sides | refused | median abs error (deg) | max (deg) "
-              "| coverage |", "|---|---|---|---|---|---|---|"]
+    lines = [(f"Stated coverage: {COVERAGE:.0%} (uncertainty = {COVERAGE_K:g} standard "
+             "uncertainties)."), ""]
+    lines += [("| family | condition | sides | refused | median abs error (deg) | max (deg) "
+              "| coverage |"), "|---|---|---|---|---|---|---|"]
     for family in ("kinematic", "physical"):
         fam = [r for r in records if r["family"] == family]
         rows: dict[str, list[dict]] = {}
@@ -165,8 +165,8 @@ def tables(records: list[dict]) -> str:
             s = summarise(recs, COVERAGE_K)
             lines.append(f"| {family} | {row} | {s['n']} | {s['refused']} | {s['median']:.2f} "
                          f"| {s['max']:.2f} | {s['coverage']:.0%} |")
-    lines += ["", "Calibration both ways: the factor that covers "
-              f"{COVERAGE:.0%} of one family's errors, and the coverage it gives on the other.",
+    lines += ["", ("Calibration both ways: the factor that covers "
+              f"{COVERAGE:.0%} of one family's errors, and the coverage it gives on the other."),
               "", "| tuned on | factor | coverage on the other family |", "|---|---|---|"]
     for tuned, other in (("kinematic", "physical"), ("physical", "kinematic")):
         k = coverage_factor([r for r in records if r["family"] == tuned])

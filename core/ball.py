@@ -225,7 +225,7 @@ def _coarse_circle(
 ) -> tuple[float, float, float, int]:
     """Centre and radius (px) of the best-supported round particle-free region, and the block
     size (px) they were found on (their error is about a block)."""
-    factor = 2 * max(2, int(round(min(image.shape) / 256)))
+    factor = 2 * max(2, round(min(image.shape) / 256))
     # variance of 2 x 2 pixel means: averaging quarters the camera noise's variance but keeps
     # most of a particle image's (it spans 2-3 px), so dim particles stand out better; summed
     # over 5 x 5 blocks, so that sparse seeding still puts a few particles in each sum
@@ -385,7 +385,7 @@ def _ransac_circle(points: np.ndarray, threshold: float, is_model_valid=None):
 def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[float, float, float]:
     """Quiet share of the disc within 0.85 r, textured share of the ring 1.15-1.6 r (both
     inside the picture), and the share of the circle inside the picture."""
-    reach = int(math.ceil(1.6 * r + 2))
+    reach = math.ceil(1.6 * r + 2)
     y0, y1 = max(0, int(j) - reach), min(quiet.shape[0], int(j) + reach + 1)
     x0, x1 = max(0, int(i) - reach), min(quiet.shape[1], int(i) + reach + 1)
     yy, xx = np.ogrid[y0:y1, x0:x1]
@@ -627,7 +627,7 @@ def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: flo
     found = crossed.any(axis=1) & clear
     nxt = np.argmax(crossed, axis=1)
     slope = np.diff(prof, axis=1)  # slope[k] between samples k and k+1
-    reach = int(round(2.0 / (radii[1] - radii[0])))
+    reach = round(2.0 / (radii[1] - radii[0]))
     near = np.abs(cols[:, :-1] - nxt[:, None]) <= reach
     k = np.argmin(np.where(near, slope, np.inf), axis=1)
     return np.where(found, _vertex(slope, k, radii), np.nan)

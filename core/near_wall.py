@@ -123,7 +123,7 @@ class NearWallBand:
     def leave_out(self, masks, reach_px: float) -> None:
         """Leave the samples within ``reach_px`` of a masked pixel of either frame (``(H, W)``
         bool, or None) out of every residual: they count as zero from now on."""
-        grow = int(math.ceil(reach_px))
+        grow = math.ceil(reach_px)
         keep = None
         for mask, picture_of in zip(masks, (self._sample_a, self._sample_b), strict=True):
             if mask is None or not mask.any():

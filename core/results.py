@@ -48,7 +48,7 @@ _NAN = float("nan")
 
 
 def _number(value) -> float:
-    return _NAN if value is None or value != value else float(value)
+    return _NAN if value is None or math.isnan(value) else float(value)
 
 
 @dataclass
@@ -136,18 +136,22 @@ def finite_or_none(value):
     return value if math.isfinite(value) else None
 
 
+def json_ready(value):
+    """Non-finite floats as None, tuples as lists, numpy scalars as Python ones: what a strict
+    ``json.dumps`` takes (the one such cleaner: the results and the session store use it)."""
+    if isinstance(value, dict):
+        return {str(k): json_ready(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_ready(v) for v in value]
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return finite_or_none(value)
+    return value
+
+
 def dataclass_dict(obj) -> dict:
-    """asdict with NaN replaced by None, tuples by lists (JSON ready)."""
-
-    def clean(v):
-        if isinstance(v, float):
-            return finite_or_none(v)
-        if isinstance(v, (list, tuple)):
-            return [clean(x) for x in v]
-        if isinstance(v, dict):
-            return {k: clean(x) for k, x in v.items()}
-        if isinstance(v, (np.floating, np.integer)):
-            return clean(float(v))
-        return v
-
-    return clean(asdict(obj))
+    """asdict, JSON ready (:func:`json_ready`)."""
+    return json_ready(asdict(obj))

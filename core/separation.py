@@ -594,7 +594,6 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dic
     ways (half the spread; a centre error moves the outline by as much radially), the other
     layer profile, the thickness prior's median halved and doubled (the larger move).
     """
-    phi = best.params[0]
     rises = []
     for sign in (-1.0, 1.0):
         moved = best.params.copy()

@@ -387,13 +387,13 @@ def ball_shot(
                              parts.peak_b, center_b, radius_px, light_from)
     looks = {}
     if (surface, rim, glint, bits) != ("dark", True, False, 12):
-        looks = dict(
-            surface_counts=_surface_counts(surface, frame_a, center_a, radius_px, light_from,
+        looks = {
+            "surface_counts": _surface_counts(surface, frame_a, center_a, radius_px, light_from,
                                            counts),
-            shading=0.15 if surface == "bright" else 0.0, rim=rim, glint=glint,
-            rim_counts=2600.0 * counts, dark_counts=55.0 * counts, noise_counts=20.0 * counts,
-            full_scale=float(2**bits - 1), background=background,
-        )
+            "shading": 0.15 if surface == "bright" else 0.0, "rim": rim, "glint": glint,
+            "rim_counts": 2600.0 * counts, "dark_counts": 55.0 * counts, "noise_counts": 20.0 * counts,
+            "full_scale": float(2**bits - 1), "background": background,
+        }
     rng = np.random.default_rng(seed + 7919)
     seam_a = seam_b = {}
     if seam_deg is not None:
