@@ -379,7 +379,8 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
             SideProposal(None, reason=reason), SideProposal(None, reason=reason)
         )
         return
-    result.separation = _separation(*conditioned, balls, flight, settings, clock, result, glare)
+    result.separation = _separation(*conditioned, balls, flight, settings, clock, result, glare,
+                                    raw[0])
 
 
 def _ball_warnings(ball_a: BallFit, ball_b: BallFit, expected_r: float | None) -> list[str]:
@@ -501,10 +502,12 @@ def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
 
 
 def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings, clock,
-                result: ShotResult, glare=(None, None)):
+                result: ShotResult, glare=(None, None), raw_a=None):
     """Fine correlation around the ball in the ball frame, then the layer fit on each side.
 
-    Also sets ``result.reynolds`` from the air's speed past the ball.
+    ``frame_a, frame_b`` are the conditioned frames; the particle images beside the ball are
+    counted on ``raw_a`` (frame A as recorded; local normalisation dims the particles next to
+    a bright ball). Also sets ``result.reynolds`` from the air's speed past the ball.
     """
     from core.air import reynolds_number
     from core.piv import correlate_pair
@@ -532,7 +535,7 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
     clock.lap("fine piv")
     ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg, stream,
                      reynolds=result.reynolds, **_uncertainties(balls, flight))
-    seeding = _seeding_map(frame_a, balls[0])
+    seeding = _seeding_map(frame_a if raw_a is None else raw_a, balls[0])
     proposal = propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]), lab_field,
                                   seeding, glare)
     clock.lap("separation")
