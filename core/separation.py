@@ -92,7 +92,7 @@ FIT_WINDOW_DEG = (-25.0, 40.0)
 EXTRAPOLATION_DEPTH = 0.2
 EXTRAPOLATION_MIN_DEG = 3.0
 #: Iterations (Jacobians) of the main refinement and of each refit from its result.
-REFINE_ITERATIONS = 25
+REFINE_ITERATIONS = 15
 ALTERNATIVE_ITERATIONS = 5
 #: The angle's profile is taken this far either side of the best fit (deg); the fit's own
 #: standard uncertainty is capped at ``PROFILE_MAX_DEG``.
@@ -101,7 +101,7 @@ PROFILE_MAX_DEG = 20.0
 #: Thicknesses (over the prior's median) tried by the coarse search, and how many of its first
 #: stage's best angles are searched further.
 COARSE_THICKNESS = (1.0, 3.0)
-COARSE_CANDIDATES = 3
+COARSE_CANDIDATES = 2
 #: Refinements run from this many starting points of the coarse search (the best wins): the
 #: image-matching cost has several shallow minima along the outline.
 REFINE_STARTS = 2
