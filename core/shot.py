@@ -562,8 +562,7 @@ def _uncertainties(balls, flight: Flight) -> dict:
 def _seeding_map(frame, ball: BallFit):
     """Particle-image density around the ball in frame A (2 radii around it)."""
     from core.ball import ball_mask
-    from core.near_wall import particle_image_density
-    from core.separation import SeedingMap
+    from core.near_wall import SeedingMap, particle_image_density
 
     height, width = frame.shape
     cx, cy = ball.center_px
