@@ -109,6 +109,8 @@ def iter_process(
         (or an exception such as KeyboardInterrupt) ends the workers at once.
     """
     todo, _ = plan_shots(session, shot_ids, force)
+    if not todo:
+        return
     tasks = [_task(session, shot_id) for shot_id in todo]
     backgrounds = _backgrounds(session, tasks)
     fingerprints = {task["shot_id"]: task["fingerprint"] for task in tasks}

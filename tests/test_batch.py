@@ -193,3 +193,12 @@ def test_a_session_background_is_taken_from_the_frames_and_subtracted(session_pa
         for i, shot_id in enumerate(sorted(s)):
             dx, dy = _median_shift(s.load_result(shot_id))
             assert (dx, dy) == pytest.approx(shift_of(i), abs=0.1)
+
+
+def test_a_session_with_nothing_to_process_runs_no_workers(session_path):
+    # every shot up to date: the run starts no pool (it used to fail with "max_workers must be
+    # greater than 0") and reports nothing to do
+    with Session.open(session_path) as s:
+        process_shots(s, workers=0)
+        report = process_shots(s, workers=2)
+    assert report.total == 0 and not report.failed and not report.interrupted
