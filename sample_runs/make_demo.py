@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import argparse
 import csv
+import functools
 import io
 import math
 import re
@@ -97,7 +98,7 @@ def separation_deg(share: float) -> float:
 def share_for(angle_deg: float) -> float:
     """The measured share whose layer separates at ``angle_deg`` (bisection; monotonic)."""
     low, high = 0.0, 1.0  # separation falls from +13.6 deg (0) to -8.9 deg (1)
-    for _ in range(40):
+    for _ in range(24):
         mid = 0.5 * (low + high)
         if separation_deg(mid) > angle_deg:
             low = mid
@@ -150,7 +151,8 @@ def _launch(rng, index: int, seam: float, ball: str, notes: str) -> DemoShot:
     return DemoShot(shot_id, seam, ball, notes, draw)
 
 
-def demo_shots() -> list[DemoShot]:
+@functools.cache
+def demo_shots() -> tuple[DemoShot, ...]:
     """The launches of the demo session, in order."""
     rng = np.random.default_rng(SEED)
     shots = []
@@ -170,7 +172,7 @@ def demo_shots() -> list[DemoShot]:
         index = len(shots) + 1
         notes = f"white ball for comparison, launch {repeat + 1} of {WHITE_BALL_REPEATS}"
         shots.append(_launch(rng, index, WHITE_BALL_SEAM_DEG, "white 1", notes))
-    return shots
+    return tuple(shots)
 
 
 def render(shot: DemoShot):

@@ -207,9 +207,10 @@ def process_demo(session_path: Path, workers: int | None = None) -> None:
 
 
 def replay_reviews(session, reviews_csv: Path) -> int:
-    """Replay the invented analyst's review on processed shots nobody has touched yet.
+    """Replay the invented analyst's review on shots nobody has touched yet.
 
-    Each row gives the analyst's marks (deg) or a reason the shot is unusable. A proposal within
+    Each row gives the analyst's marks (deg) or a reason the shot is unusable (applied whether
+    or not the shot could be processed; marks only to processed shots). A proposal within
     ``ACCEPT_TOLERANCE_DEG`` of the marks on both sides is accepted; otherwise the sides that are
     off are moved to the marks (adjusted). Returns the number of shots reviewed.
     """
@@ -224,12 +225,12 @@ def replay_reviews(session, reviews_csv: Path) -> int:
             if shot_id not in session or session.history(shot_id):
                 continue
             record = session[shot_id]
-            if record.state != ProcessState.PROCESSED:
-                continue
             note = row.get("note") or None
-            if row.get("unusable_reason"):
+            if row.get("unusable_reason"):  # the analyst's judgement of the pictures
                 session.set_pick(shot_id, status=ReviewStatus.UNUSABLE,
                                  reason=row["unusable_reason"], note=note, who=DEMO_REVIEWER)
+            elif record.state != ProcessState.PROCESSED:
+                continue
             else:
                 moved = _moved_sides(record, row)
                 status = ReviewStatus.ADJUSTED if moved else ReviewStatus.ACCEPTED
