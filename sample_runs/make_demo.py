@@ -67,7 +67,7 @@ MANIFEST_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball
                     "speed_nominal_m_s", "spin_rpm", "seam_deg", "air_temp_c", "ball", "notes")
 TRUTH_COLUMNS = ("shot", "upper_true_deg", "lower_true_deg", "wake_deflection_true_deg",
                  "speed_true_m_s", "flight_true_deg", "shift_px", "reynolds_number",
-                 "surface", "shadow_side")
+                 "surface", "glint", "shadow_side")
 README_START = "<!-- proposals against truth: written by make_demo.py --report -->"
 README_END = "<!-- end of the table -->"
 
@@ -234,7 +234,7 @@ def truth_text(shots: list[DemoShot]) -> str:
         rows.append([shot.shot_id, f"{t.upper_deg:.2f}", f"{t.lower_deg:.2f}",
                      f"{t.wake_deflection_deg:.2f}", f"{t.speed_m_s:.2f}", f"{t.flight_deg:.2f}",
                      f"{math.hypot(*t.displacement_px):.4f}", f"{t.reynolds_number:.4g}",
-                     shot.draw["surface"], shadow or ""])
+                     shot.draw["surface"], "yes" if shot.draw["glint"] else "", shadow])
     return _csv_text(TRUTH_COLUMNS, rows)
 
 
@@ -352,6 +352,8 @@ def report_rows(session_path: Path, truth_csv: Path) -> list[dict]:
 
 def _look(truth_row: dict) -> str:
     look = truth_row.get("surface", "")
+    if truth_row.get("glint"):
+        look += ", glint"
     if truth_row.get("shadow_side"):
         look += f", {truth_row['shadow_side']} side shadowed"
     return look
@@ -368,7 +370,7 @@ def report_markdown(rows: list[dict], how: str) -> str:
              "|---|---|---|---|---|---|---|"]
     sides = within = 0
     errors = []
-    failed = []
+    failed: dict[str, list[str]] = {}  # failure -> shots
     for row in rows:
         cells = [row["shot"], f"{float(row['seam_deg']):g}" if row["seam_deg"] is not None
                  else "", row["look"]]
@@ -381,14 +383,16 @@ def report_markdown(rows: list[dict], how: str) -> str:
                 errors.append(error)
                 within += error <= (row[f"{side}_uncertainty"] or 0.0)
         if row["failure"]:
-            failed.append(f"{row['shot']} ({row['failure']})")
+            failed.setdefault(row["failure"], []).append(row["shot"])
         lines.append("| " + " | ".join(cells) + " |")
     total = 2 * len(rows)
     lines += ["", f"Proposals on {sides} of {total} sides; {within} of them within their stated "
               "uncertainty of the truth" + (f"; median distance {np.median(errors):.1f} deg, "
                                             f"largest {max(errors):.1f} deg." if errors else ".")]
     if failed:
-        lines += ["", f"Not measured ({len(failed)} shots): " + "; ".join(failed) + "."]
+        count = sum(len(shots) for shots in failed.values())
+        lines += ["", f"Not measured ({count} shots):", ""]
+        lines += [f"- {', '.join(shots)}: {failure}" for failure, shots in failed.items()]
     lines += ["", README_END]
     return "\n".join(lines)
 
