@@ -19,7 +19,7 @@ DEMO_SESSION = "demo_session.h5"
 DEMO_SHEET = "demo_sheet.pdf"
 DEMO_TABLE = "demo_table.csv"
 DEMO_REVIEWER = "demo analyst (invented)"
-DEMO_NAME = "Seam-angle sweep, cricket ball at 30 m/s (invented demo)"
+DEMO_NAME = "Seam-angle sweep at 30 m/s (invented demo)"
 DEMO_INPUTS = ("shots.csv", "truth.csv", "reviews.csv", "README.md")
 RECIPE = "make_demo.py"  # draws the frames (too large to ship)
 
