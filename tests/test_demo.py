@@ -421,13 +421,9 @@ sys.exit(code)
 
 @pytest.fixture
 def virtual_display():
-    """A display number on a private Xvfb server (skips where Xvfb is not installed)."""
-    xvfb = shutil.which("Xvfb")
-    if xvfb is None:
-        pytest.skip("Xvfb is not installed: the real window is not tried (as root: "
-                    "bash scripts/setup.sh --test, or apt-get install xvfb xauth)")
+    """A display number on a private Xvfb server."""
     read_end, write_end = os.pipe()
-    server = subprocess.Popen([xvfb, "-displayfd", str(write_end), "-screen", "0", "1600x1000x24",
+    server = subprocess.Popen([shutil.which("Xvfb"), "-displayfd", str(write_end), "-screen", "0", "1600x1000x24",
                                "-nolisten", "tcp"], pass_fds=(write_end,),
                               stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     os.close(write_end)
@@ -442,6 +438,9 @@ def virtual_display():
         server.communicate(timeout=30)
 
 
+@pytest.mark.skipif(shutil.which("Xvfb") is None, reason="Xvfb is not installed: the real "
+                    "window is not tried (as root: bash scripts/setup.sh --test, or apt-get "
+                    "install xvfb xauth)")
 def test_demo_opens_the_real_window_under_xvfb(small_demo, small_recipe, virtual_display,
                                                tmp_path):
     """`wakeline demo` on X11 through Qt's xcb platform: the window opens on the demo session
