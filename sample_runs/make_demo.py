@@ -57,7 +57,7 @@ SEED = 20261130
 #   (seam straight up the flight) and beyond 40 deg (seam too far round to trip in time).
 # The synthetic family has no tripped layer: it reaches a later separation through a surface
 # velocity between the measured one (separation at -8.9 deg) and potential flow's (+13.6 deg),
-# which ``seam_side_share`` chooses so the layer separates at the model's angle.
+# which ``share_for`` chooses so that the layer separates at the model's angle.
 LAMINAR_DEG = -8.9
 SEAM_DELAY_MAX_DEG = 20.0
 SEAM_DELAY_PEAK_DEG = 27.0
@@ -160,7 +160,7 @@ def demo_shots() -> tuple[DemoShot, ...]:
         for repeat in range(REPEATS):
             index = len(shots) + 1
             ball = "red 1" if index < SECOND_BALL_FROM else "red 2"
-            notes = f"launch {repeat + 1} of 3"
+            notes = f"launch {repeat + 1} of {REPEATS}"
             if f"sw{index:02d}" == SPARSE_SHOT:
                 notes += "; fog ran low before this launch (topped up after)"
             if f"sw{index:02d}" == SHADOW_SHOT:
@@ -282,7 +282,7 @@ def _csv_text(header, rows) -> str:
 
 
 def write_inputs(out_dir: Path) -> list[Path]:
-    """Write ``shots.csv``, ``truth.csv`` and ``reviews.csv`` (the shipped files) into ``out_dir``."""
+    """Write the shipped files (``shots.csv``, ``truth.csv``, ``reviews.csv``) into ``out_dir``."""
     shots = demo_shots()
     truth = truth_text(shots)
     written = []
@@ -407,7 +407,7 @@ def _proposal_cell(row: dict, side: str) -> str:
 
 def write_report(readme: Path, table: str) -> None:
     text = readme.read_text(encoding="utf-8")
-    pattern = re.compile(re.escape(README_START) + ".*?" + re.escape(README_END), re.S)
+    pattern = re.compile(re.escape(README_START) + ".*?" + re.escape(README_END), re.DOTALL)
     if not pattern.search(text):
         raise SystemExit(f"{readme}: no table markers ({README_START} ... {README_END})")
     readme.write_text(pattern.sub(lambda _: table, text), encoding="utf-8")
@@ -420,7 +420,8 @@ def _code_version() -> str:
         commit = subprocess.run(["git", "-C", str(HERE), "log", "-1", "--format=%h %cs"],
                                 capture_output=True, text=True, check=True).stdout.strip()
         dirty = subprocess.run(["git", "-C", str(HERE.parent), "status", "--porcelain", "--",
-                                "core", "app"], capture_output=True, text=True).stdout.strip()
+                                "core", "app"], capture_output=True, text=True,
+                               check=True).stdout.strip()
     except (OSError, subprocess.CalledProcessError):
         return "an unknown version"
     return f"commit {commit}" + (" with local changes" if dirty else "")

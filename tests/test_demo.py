@@ -263,7 +263,7 @@ def test_report_table_measures_proposals_against_truth(small_demo, small_recipe,
     table = recipe.report_markdown(rows, "measured here")
     for shot_id in DEMO_SUBSET:
         assert f"\n| {shot_id} |" in table
-    assert "Proposals on" in table and "Not measured" in table  # sw08 and sw13 with main's ball finder
+    assert "Proposals on" in table
     readme = tmp_path / "README.md"
     readme.write_text(f"before\n{recipe.README_START}\nold\n{recipe.README_END}\nafter\n",
                       encoding="utf-8")
@@ -276,7 +276,7 @@ def test_demo_opens_the_window_when_there_is_a_display(tmp_path, monkeypatch):
 
     opened = []
     monkeypatch.setattr(display, "has_display", lambda: True)
-    monkeypatch.setattr(display, "missing_window_libraries", lambda: [])
+    monkeypatch.setattr(display, "missing_window_libraries", list)
     monkeypatch.setattr(demo, "prepare_demo",
                         lambda folder, fresh=False, workers=None: folder / demo.DEMO_SESSION)
     monkeypatch.setattr(demo, "process_demo", lambda path, workers=None: None)
@@ -423,8 +423,9 @@ sys.exit(code)
 def virtual_display():
     """A display number on a private Xvfb server."""
     read_end, write_end = os.pipe()
-    server = subprocess.Popen([shutil.which("Xvfb"), "-displayfd", str(write_end), "-screen", "0", "1600x1000x24",
-                               "-nolisten", "tcp"], pass_fds=(write_end,),
+    server = subprocess.Popen([shutil.which("Xvfb"), "-displayfd", str(write_end),
+                               "-screen", "0", "1600x1000x24", "-nolisten", "tcp"],
+                              pass_fds=(write_end,),
                               stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     os.close(write_end)
     with os.fdopen(read_end) as fh:
@@ -452,7 +453,8 @@ def test_demo_opens_the_real_window_under_xvfb(small_demo, small_recipe, virtual
            "PYTHONPATH": str(ROOT)}
     env.pop("WAYLAND_DISPLAY", None)
     run = subprocess.run([sys.executable, "-c", WINDOW_DRIVER, str(small_demo), str(small_recipe),
-                          str(screenshot)], env=env, capture_output=True, text=True, timeout=300)
+                          str(screenshot)], env=env, capture_output=True, text=True, timeout=300,
+                         check=False)
     assert run.returncode == 0, run.stderr[-2000:]
     seen = json.loads(run.stdout.strip().splitlines()[-1])
     assert seen["platform"] == "xcb"

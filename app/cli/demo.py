@@ -31,7 +31,7 @@ def add_commands(subparsers) -> None:
 def _add_demo(subparsers) -> None:
     p = subparsers.add_parser(
         "demo",
-        help="process the bundled demo session and open it",
+        help="draw and process the bundled demo session and open it",
         description="Draw the bundled demo shots (an invented seam-angle sweep of a cricket "
         "ball, see sample_runs/README.md) into a folder of yours (the first time only), import "
         "and process them, replay the invented analyst's review decisions, then open the review "
@@ -89,9 +89,9 @@ def load_recipe():
     name = "wakeline_demo_recipe"
     if name not in sys.modules:
         path = SAMPLE_RUNS / RECIPE
-        spec = importlib.util.spec_from_file_location(name, path)
-        if spec is None or not path.is_file():
+        if not path.is_file():
             raise WakelineError(f"{path}: the demo's recipe is missing")
+        spec = importlib.util.spec_from_file_location(name, path)
         module = importlib.util.module_from_spec(spec)
         sys.modules[name] = module  # dataclasses and worker processes look it up by name
         spec.loader.exec_module(module)
@@ -188,14 +188,15 @@ def _remove_demo_session(session_path: Path) -> None:
 def process_demo(session_path: Path, workers: int | None = None) -> None:
     """Process the shots not yet processed, then replay the invented reviews on untouched shots."""
     from app.cli.session import _progress_bar, _show
-    from core.batch import process_shots
+    from core.batch import plan_shots, process_shots
     from core.store import Session
 
     with Session.open(session_path) as session:
-        todo = sum(1 for shot_id in session if session[shot_id].state != "processed")
-        bar = _progress_bar(todo, quiet=False)
+        todo, _ = plan_shots(session)
+        bar = _progress_bar(len(todo), quiet=False)
         try:
-            report = process_shots(session, workers=workers, on_result=lambda o: _show(bar, o))
+            report = process_shots(session, todo, workers=workers,
+                                   on_result=lambda outcome: _show(bar, outcome))
         finally:
             bar.close()
         if report.interrupted:
