@@ -38,6 +38,14 @@ def bench(name: str, repeats: int) -> None:
     for stage in stages[0]:
         seconds = statistics.median(s[stage] for s in stages)
         print(f"  {stage:<11s} {seconds:6.3f} s  {100.0 * seconds / total:5.1f} %")
+    ball = statistics.median(s["ball"] for s in stages)
+    print(f"  ball stage {ball:.3f} s (both circles, image match, flight; target <= 0.3 s); "
+          f"conditioning is timed within piv")
+    fit, flight = result.ball_a, result.flight
+    print(f"  ball A: {fit.outline}, centre +- {max(fit.center_sigma_px):.3f} px, radius "
+          f"{fit.radius_px:.2f} +- {fit.radius_sigma_px:.3f} px (true {truth.radius_px:.2f}); "
+          f"flight {flight.direction_deg:.2f} +- {flight.direction_sigma_deg:.2f} deg "
+          f"(true {truth.flight_deg:.2f})")
     sep = result.separation
     print(f"  proposal: upper {sep.upper.angle_deg} (true {truth.upper_deg}), "
           f"lower {sep.lower.angle_deg} (true {truth.lower_deg})")

@@ -42,24 +42,68 @@ class VectorField:
         return {name: getattr(self, name) for name in self.ARRAY_NAMES}
 
 
+#: The one "not known" number of the records: read-back JSON (None) becomes this very object,
+#: so a record compares equal to itself after a round trip (NaN is not equal to another NaN).
+_NAN = float("nan")
+
+
+def _number(value) -> float:
+    return _NAN if value is None or value != value else float(value)
+
+
 @dataclass
 class BallFit:
-    """Circle fitted to the ball in one frame (image coordinates, px)."""
+    """Circle fitted to the ball in one frame (image coordinates, px).
+
+    Built from stored JSON too: None (NaN written as JSON) and lists are taken back to the
+    record's own values, so older sessions without the uncertainties still load.
+    """
 
     center_px: tuple[float, float]
     radius_px: float
-    residual_px: float = float("nan")  # RMS distance of edge points from the circle
+    residual_px: float = _NAN  # RMS distance of edge points from the circle
     cut_by_edge: bool = False
+    # standard uncertainties (px) of the centre's x and y and of the radius, and the covariance
+    # of (x, y, r) in px^2 (None: not known, e.g. a session stored before they were kept)
+    center_sigma_px: tuple[float, float] = (_NAN, _NAN)
+    radius_sigma_px: float = _NAN
+    covariance_px2: tuple[tuple[float, float, float], ...] | None = None
+    arc_share: float = _NAN  # share of the whole outline that carried the fit (0..1)
+    outline: str = ""  # what gave the outline: "lit rim", "surface edge" or "particle images"
+
+    def __post_init__(self):
+        self.center_px = tuple(self.center_px)
+        self.residual_px = _number(self.residual_px)
+        self.center_sigma_px = tuple(_number(v) for v in (self.center_sigma_px or (None, None)))
+        self.radius_sigma_px = _number(self.radius_sigma_px)
+        self.arc_share = _number(self.arc_share)
+        if self.covariance_px2 is not None:
+            self.covariance_px2 = tuple(tuple(_number(v) for v in row)
+                                        for row in self.covariance_px2)
+        self.outline = self.outline or ""
 
 
 @dataclass
 class Flight:
-    """Ball flight from its displacement between frames (or an override)."""
+    """Ball flight from its displacement between frames (or the free stream, or an override)."""
 
     direction_deg: float  # 0 = +x, 90 = toward the top of the picture
     speed_m_s: float | None  # None when dt or scale is unknown
     displacement_px: tuple[float, float]  # ball centre B - A, image coordinates
-    source: str = "ball displacement"  # or "override"
+    source: str = "ball displacement"  # or "override", or "free stream (held ball)"
+    # standard uncertainties (None: not known, e.g. a session stored before they were kept)
+    direction_sigma_deg: float | None = None
+    speed_sigma_m_s: float | None = None
+    displacement_cov_px2: tuple[tuple[float, float], tuple[float, float]] | None = None
+    # cross-check: the direction of the air moving with the ball (lab frame) or opposite to
+    # the free stream (held ball), and its uncertainty including the wake's possible deflection
+    air_direction_deg: float | None = None
+    air_direction_sigma_deg: float | None = None
+
+    def __post_init__(self):
+        self.displacement_px = tuple(self.displacement_px)
+        if self.displacement_cov_px2 is not None:
+            self.displacement_cov_px2 = tuple(tuple(row) for row in self.displacement_cov_px2)
 
 
 @dataclass

@@ -8,6 +8,7 @@ session store keeps, and ``ShotResult.from_stored`` rebuilds it from those two.
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import asdict, dataclass, field, replace
 from dataclasses import fields as dc_fields
 
@@ -35,6 +36,11 @@ class ShotSettings:
     ball_type: str | None = None  # rulebook nominal diameter when ball_diameter_mm is None
     find_ball: bool = True
     flight_deg: float | None = None  # override of the flight direction
+    # image conditioning before correlation (core.conditioning)
+    mask_glare: bool = True  # saturated regions larger than a particle image left out
+    # min-max normalisation window in mean particle spacings (None: off; skipped on sparse
+    # seeding, spacing above core.conditioning.SPARSE_SPACING_PX)
+    normalise_spacings: float | None = 3.0
     piv: PivSettings = field(default_factory=PivSettings)
 
     def to_dict(self) -> dict:
@@ -163,21 +169,13 @@ def _separation_summary(sep: SeparationResult | None) -> dict:
 def _ball_from(d: dict | None) -> BallFit | None:
     if not d:
         return None
-    return BallFit(
-        center_px=tuple(d["center_px"]),
-        radius_px=d["radius_px"],
-        residual_px=d.get("residual_px") if d.get("residual_px") is not None else float("nan"),
-        cut_by_edge=bool(d.get("cut_by_edge", False)),
-    )
+    known = {f.name for f in dc_fields(BallFit)}
+    return BallFit(**{k: v for k, v in d.items() if k in known})
 
 
 def _flight_from(d: dict) -> Flight:
-    return Flight(
-        direction_deg=d["direction_deg"],
-        speed_m_s=d.get("speed_m_s"),
-        displacement_px=tuple(d["displacement_px"]),
-        source=d.get("source", "ball displacement"),
-    )
+    known = {f.name for f in dc_fields(Flight)}
+    return Flight(**{k: v for k, v in d.items() if k in known})
 
 
 def _side_from(d: dict) -> SideProposal:
@@ -208,7 +206,8 @@ MIN_FLIGHT_PX = 1.0
 
 
 def measure_shot(
-    frame_a: np.ndarray, frame_b: np.ndarray, settings: ShotSettings, progress=None
+    frame_a: np.ndarray, frame_b: np.ndarray, settings: ShotSettings, progress=None,
+    background: np.ndarray | None = None,
 ) -> ShotResult:
     """Measure one shot: ball (unless ``settings.find_ball`` is False), PIV, fields, separation.
 
@@ -229,6 +228,9 @@ def measure_shot(
     settings : ShotSettings
     progress : callable, optional
         Passed to the correlation (``progress(done, total, message)``).
+    background : (H, W) ndarray, optional
+        Background image of the camera position (:func:`core.conditioning.background_image`),
+        subtracted from both frames before correlation.
 
     Raises
     ------
@@ -239,15 +241,18 @@ def measure_shot(
 
     warnings: list[str] = []
     clock = _StageClock()
+    glare = _glare(frame_a, frame_b, settings)
     balls = _find_balls(frame_a, frame_b, settings) if settings.find_ball else None
-    masks = (None, None) if balls is None else _masks(frame_a.shape, balls)
+    masks = glare if balls is None else _masks(frame_a.shape, balls, glare)
     clock.lap("ball")
-    vf = correlate_pair(frame_a, frame_b, masks[0], masks[1], settings.piv, progress)
-    clock.lap("piv")
+    cond_a, cond_b = _conditioned(frame_a, frame_b, settings, background, glare)
+    vf = correlate_pair(cond_a, cond_b, masks[0], masks[1], settings.piv, progress)
+    clock.lap("piv")  # with the conditioning
     result = ShotResult(field=vf, settings=settings, scale_mm_per_px=settings.scale_mm_per_px,
                         warnings=warnings, stage_seconds=clock.seconds)
     if balls is not None:
-        _ball_stages(result, frame_a, frame_b, balls, warnings, clock)
+        _ball_stages(result, (frame_a, frame_b), (cond_a, cond_b), balls, glare, warnings,
+                     clock)
     _fill_fields(result, warnings)
     clock.lap("fields")
     return result
@@ -272,14 +277,51 @@ class _StageClock:
 def _find_balls(frame_a, frame_b, settings: ShotSettings):
     from core.ball import find_ball
 
+    hint = _expected_radius_px(settings)
+    ball_a = find_ball(frame_a, radius_hint_px=hint, name="frame A")
+    return ball_a, find_ball(frame_b, radius_hint_px=hint, name="frame B", near=ball_a)
+
+
+def _expected_radius_px(settings: ShotSettings) -> float | None:
+    """Ball radius (px) from its diameter and a given scale, when both are known."""
     diameter = _ball_diameter_mm(settings)
-    hint = None
     if diameter and settings.scale_mm_per_px:
-        hint = 0.5 * diameter / settings.scale_mm_per_px
-    return (
-        find_ball(frame_a, radius_hint_px=hint, name="frame A"),
-        find_ball(frame_b, radius_hint_px=hint, name="frame B"),
+        return 0.5 * diameter / settings.scale_mm_per_px
+    return None
+
+
+def _glare(frame_a, frame_b, settings: ShotSettings):
+    """Glare masks of both frames (None each when glare is not masked or there is none)."""
+    from core.conditioning import glare_mask
+
+    if not settings.mask_glare:
+        return None, None
+    masks = [glare_mask(frame) for frame in (frame_a, frame_b)]
+    return tuple(m if m.any() else None for m in masks)
+
+
+def _conditioned(frame_a, frame_b, settings: ShotSettings, background, glare):
+    """The frames as correlated: background removed, glare darkened, locally normalised (not
+    on sparse seeding, where it raised the vectors' error on synthetic shots)."""
+    from core.conditioning import (
+        SPARSE_SPACING_PX,
+        normalise_local,
+        particle_spacing_px,
+        subtract_background,
     )
+
+    frames = [frame_a, frame_b]
+    if background is not None:
+        frames = [subtract_background(f, background, name)
+                  for f, name in zip(frames, ("frame A", "frame B"), strict=True)]
+    spacing = particle_spacing_px(frames[0]) if settings.normalise_spacings else math.inf
+    if spacing <= SPARSE_SPACING_PX:
+        window = settings.normalise_spacings * spacing
+        frames = [normalise_local(f, window, mask=m) for f, m in zip(frames, glare, strict=True)]
+    else:
+        frames = [f if m is None else np.where(m, 0, f).astype(np.float32)
+                  for f, m in zip(frames, glare, strict=True)]
+    return frames[0], frames[1]
 
 
 def _ball_diameter_mm(settings: ShotSettings) -> float | None:
@@ -292,15 +334,16 @@ def _ball_diameter_mm(settings: ShotSettings) -> float | None:
     return None
 
 
-def _masks(shape, balls):
+def _masks(shape, balls, glare=(None, None)):
     from core.ball import ball_mask
 
-    return ball_mask(shape, balls[0]), ball_mask(shape, balls[1])
+    masks = [ball_mask(shape, ball) for ball in balls]
+    return tuple(m if g is None else m | g for m, g in zip(masks, glare, strict=True))
 
 
-def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str], clock) -> None:
+def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: list[str],
+                 clock) -> None:
     """Scale, flight, frame-order check and separation (fills ``result`` in place)."""
-    from core.ball import flight_from_balls, refine_displacement, scale_from_ball
     from core.fields import valid_near_ball
 
     settings = result.settings
@@ -308,22 +351,10 @@ def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str
     result.ball_a, result.ball_b = ball_a, ball_b
     if ball_a.cut_by_edge or ball_b.cut_by_edge:
         warnings.append("the image edge cuts the ball: its circle is fitted to the visible outline")
-    if result.scale_mm_per_px is None and _ball_diameter_mm(settings):
-        mean_r = 0.5 * (ball_a.radius_px + ball_b.radius_px)
-        result.scale_mm_per_px = scale_from_ball(mean_r, _ball_diameter_mm(settings))
-    shift = refine_displacement(frame_a, frame_b, ball_a, ball_b)
-    flight = flight_from_balls(
-        ball_a, ball_b, displacement_px=shift, dt_s=settings.dt_s, scale_mm_per_px=result.scale_mm_per_px,
-        flight_deg=settings.flight_deg,
-    )
+    warnings.extend(_ball_warnings(ball_a, ball_b, _expected_radius_px(settings)))
+    flight = _flight(result, raw, balls, glare, warnings)
     result.flight = flight
     clock.lap("ball")
-    moved = float(np.hypot(*flight.displacement_px))
-    if moved < MIN_FLIGHT_PX and settings.flight_deg is None:
-        warnings.append(
-            f"the ball moved only {moved:.2f} px between frames: flight direction unreliable; "
-            "give the flight direction (override) for a held ball"
-        )
     result.valid_near_ball = valid_near_ball(result.field, ball_a, 2.0 * result.field.spacing_px)
     if _order_reversed(result.field, ball_a, flight):
         warnings.append(
@@ -335,7 +366,103 @@ def _ball_stages(result: ShotResult, frame_a, frame_b, balls, warnings: list[str
             SideProposal(None, reason=reason), SideProposal(None, reason=reason)
         )
         return
-    result.separation = _separation(frame_a, frame_b, balls, flight, settings, clock, result.field)
+    result.separation = _separation(*conditioned, balls, flight, settings, clock, result.field)
+
+
+def _ball_warnings(ball_a: BallFit, ball_b: BallFit, expected_r: float | None) -> list[str]:
+    """Radius against diameter / scale, the frames' radii against each other, poor fits."""
+    from core.ball import POOR_ARC_SHARE, POOR_CENTRE_SIGMA_PX
+
+    out = []
+    sa, sb = ball_a.radius_sigma_px, ball_b.radius_sigma_px
+    both = float(np.hypot(sa, sb)) if np.isfinite([sa, sb]).all() else 0.0
+    mean_r = 0.5 * (ball_a.radius_px + ball_b.radius_px)
+    if expected_r:
+        off = mean_r - expected_r
+        # 1 %: a ball's rulebook diameter range spans about 2 % (Laws of Cricket, Law 4)
+        if abs(off) > 0.01 * expected_r and abs(off) > 2.0 * 0.5 * both:
+            out.append(
+                f"the fitted ball radius ({mean_r:.1f} px) differs from diameter / scale "
+                f"({expected_r:.1f} px) by {100 * off / expected_r:+.1f} %: check the scale and "
+                "the ball diameter"
+            )
+    if both > 0 and abs(ball_a.radius_px - ball_b.radius_px) > 3.0 * both:
+        out.append(
+            f"the ball's radius differs between the frames ({ball_a.radius_px:.2f} vs "
+            f"{ball_b.radius_px:.2f} px, beyond their uncertainty {both:.2f} px): one outline "
+            "may be spoilt"
+        )
+    for name, ball in (("frame A", ball_a), ("frame B", ball_b)):
+        worst = max(ball.center_sigma_px) if np.isfinite(ball.center_sigma_px).all() else 0.0
+        if ball.arc_share < POOR_ARC_SHARE or worst > POOR_CENTRE_SIGMA_PX:
+            out.append(
+                f"{name}: the ball's circle is poorly fitted ({100 * ball.arc_share:.0f} % of "
+                f"its outline seen, from the {ball.outline or 'outline'}; centre uncertain by "
+                f"{worst:.2f} px)"
+            )
+    return out
+
+
+def _flight(result: ShotResult, raw, balls, glare, warnings: list[str]) -> Flight:
+    """Scale from the ball when not given, and the flight with its uncertainty, cross-checked
+    against the air moving with the ball; a held ball's flight from the free stream."""
+    from core.ball import (
+        air_direction,
+        ball_displacement,
+        flight_from_balls,
+        flight_from_stream,
+        match_ball_image,
+        scale_from_ball,
+    )
+
+    settings = result.settings
+    ball_a, ball_b = balls
+    scale_rel = 0.0
+    diameter = _ball_diameter_mm(settings)
+    if result.scale_mm_per_px is None and diameter:
+        mean_r = 0.5 * (ball_a.radius_px + ball_b.radius_px)
+        result.scale_mm_per_px = scale_from_ball(mean_r, diameter)
+        sigma_r = 0.5 * float(np.hypot(ball_a.radius_sigma_px, ball_b.radius_sigma_px))
+        scale_rel = sigma_r / mean_r if np.isfinite(sigma_r) else 0.0
+    match = match_ball_image(*raw, ball_a, ball_b, glare_a=glare[0], glare_b=glare[1])
+    shift, cov, note = ball_displacement(ball_a, ball_b, match)
+    if note:
+        warnings.append(note)
+    flight = flight_from_balls(
+        ball_a, ball_b, displacement_px=shift, displacement_cov_px2=cov, dt_s=settings.dt_s,
+        scale_mm_per_px=result.scale_mm_per_px, scale_sigma_rel=scale_rel,
+        flight_deg=settings.flight_deg,
+    )
+    moved = float(np.hypot(*shift))
+    if settings.flight_deg is not None:
+        return flight
+    if moved < MIN_FLIGHT_PX:
+        held = flight_from_stream(result.field, ball_a, dt_s=settings.dt_s,
+                                  scale_mm_per_px=result.scale_mm_per_px, displacement_px=shift)
+        if held is not None and float(np.hypot(*_stream_px(result.field, ball_a))) >= MIN_FLIGHT_PX:
+            warnings.append(
+                f"the ball moved only {moved:.2f} px between frames: taken as held (tunnel), its "
+                "flight direction is the opposite of the free stream; give the flight direction "
+                "(override) to set it"
+            )
+            return held
+        warnings.append(
+            f"the ball moved only {moved:.2f} px between frames: flight direction unreliable; "
+            "give the flight direction (override) for a held ball"
+        )
+        return flight
+    air = air_direction(result.field, ball_a, moved)
+    if air is not None:
+        flight.air_direction_deg, flight.air_direction_sigma_deg = air
+        gap = (air[0] - flight.direction_deg + 180.0) % 360.0 - 180.0
+        combined = float(np.hypot(flight.direction_sigma_deg or 0.0, air[1]))
+        if abs(gap) > 2.0 * combined:
+            warnings.append(
+                f"the flight direction from the ball ({flight.direction_deg:.1f} deg) and that of "
+                f"the air moving with it ({air[0]:.1f} deg) differ by {abs(gap):.1f} deg, beyond "
+                f"their uncertainties ({2.0 * combined:.1f} deg): check the ball's circles"
+            )
+    return flight
 
 
 def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
@@ -391,6 +518,15 @@ def _free_stream_px(vf: VectorField, ball: BallFit) -> float:
     far = np.hypot(vf.x_px - ball.center_px[0], vf.y_px - ball.center_px[1]) > 2.5 * ball.radius_px
     speed = np.hypot(vf.dx_px, vf.dy_px)[far & vf.valid]
     return float(np.median(speed)) if speed.size else float("nan")
+
+
+def _stream_px(vf: VectorField, ball: BallFit) -> tuple[float, float]:
+    """Median displacement (px per pair) of valid vectors more than 2.5 radii from the ball."""
+    far = np.hypot(vf.x_px - ball.center_px[0], vf.y_px - ball.center_px[1]) > 2.5 * ball.radius_px
+    far &= vf.valid
+    if not far.any():
+        return float("nan"), float("nan")
+    return float(np.median(vf.dx_px[far])), float(np.median(vf.dy_px[far]))
 
 
 def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):

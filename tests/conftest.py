@@ -163,3 +163,28 @@ def make_session(tmp_path):
         return str(path)
 
     return make
+
+
+def answer_dialog(fill) -> None:
+    """Answer the next modal dialog a test opens: ``fill(dialog)`` sets it and accepts or clicks
+    (a blocking ``exec()`` returns then, as when the analyst answers)."""
+    from PySide6.QtCore import QTimer
+    from PySide6.QtWidgets import QApplication
+
+    def act():
+        dialog = QApplication.activeModalWidget()
+        if dialog is None or not dialog.isVisible():  # not yet, or one being closed
+            QTimer.singleShot(10, act)
+            return
+        fill(dialog)
+
+    QTimer.singleShot(0, act)
+
+
+def click_button(text: str):
+    """A ``fill`` for ``answer_dialog`` that clicks the message box button showing ``text``."""
+    def fill(box):
+        [button] = [b for b in box.buttons() if b.text() == text]
+        button.click()
+
+    return fill

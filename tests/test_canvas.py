@@ -129,7 +129,7 @@ def test_vorticity_scale_is_symmetric_and_adjustable(canvas, shot_data):
     # the next 1-2-5 value above the 98th percentile of |w|
     assert symmetric_limit(w) <= high <= 2.5 * symmetric_limit(w)
     assert high / 10 ** math.floor(math.log10(high)) in (1.0, 2.0, 5.0)
-    canvas.auto_box.setChecked(False)
+    canvas.fixed_box.setChecked(True)
     canvas.limit_box.setValue(250.0)
     assert canvas.colour_bar.levels() == (-250.0, 250.0)
     # over the picture, still air is see-through and strong vorticity nearly opaque
@@ -140,19 +140,21 @@ def test_vorticity_scale_is_symmetric_and_adjustable(canvas, shot_data):
     assert solid[0, 0, 3] == 255 and solid[0, 1, 3] == 0
 
 
-def test_side_by_side_moves_fields_to_a_linked_view(canvas, qtbot):
+def test_side_by_side_shows_the_fields_in_a_linked_view(canvas, qtbot):
     with qtbot.waitExposed(canvas):
         canvas.show()
     canvas.side_box.setChecked(True)
     qtbot.wait(20)
-    assert canvas.vorticity.getViewBox() is canvas.field_view
-    assert canvas.vectors.getViewBox() is canvas.field_view
-    assert canvas.picture.getViewBox() is canvas.view
+    main, second = canvas.main, canvas.second
+    assert second.vorticity.isVisible() and len(_points(second.vectors)) > 0
+    assert not second.picture.isVisible()
+    assert main.picture.isVisible() and not main.vorticity.isVisible()
+    assert len(_points(main.vectors)) == 0
     canvas.view.setRange(xRange=(40, 120), yRange=(50, 110), padding=0)
     assert canvas.field_view.viewRange()[0] == pytest.approx(canvas.view.viewRange()[0])
     assert canvas.field_view.viewRange()[1] == pytest.approx(canvas.view.viewRange()[1])
     canvas.side_box.setChecked(False)
-    assert canvas.vorticity.getViewBox() is canvas.view
+    assert main.vorticity.isVisible() and canvas.field_view.scene() is None
 
 
 def test_flicker_alternates_the_frames(canvas, shot_data):

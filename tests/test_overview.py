@@ -74,7 +74,7 @@ def test_numeric_columns_prefer_seam_and_add_pseudo_columns(records):
 
 
 def test_panel_draws_and_switches_column(qtbot, records, tmp_path):
-    from app import colours
+    from app.review import colours
     from app.qt.overview import SessionOverview
     from app.review.overview import SHOT_ORDER
 
@@ -168,18 +168,18 @@ def test_clicking_an_overview_point_selects_the_shot(main_window, make_session, 
 def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, qtbot, tmp_path,
                                                      monkeypatch):
     from pypdf import PdfReader
-    from PySide6.QtWidgets import QFileDialog
 
     from app.qt.export import export_sheet
     from core.store import Session, write_table_csv
 
     window = _window(main_window, qtbot, make_session(4))
     texts = [a.text() for a in window.export_menu.actions()]
-    assert texts == ["Shot sheet (&PDF)…", "&Table (CSV)…"]
+    assert texts == ["Shot sheet (&PDF)…", "&Table (CSV)…", "", "Picture (P&NG)…",
+                     "Picture (S&VG)…"]
     assert window.export_menu.isEnabled()
 
     table = tmp_path / "from_window.csv"
-    monkeypatch.setattr(QFileDialog, "getSaveFileName", lambda *a, **k: (str(table), ""))
+    monkeypatch.setattr("app.qt.export.ask_path", lambda *a, **k: str(table))
     window.act_export_table.trigger()
     reference = tmp_path / "from_store.csv"
     with Session.open(window.model.session.path, writable=False) as session:
@@ -187,7 +187,7 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
     assert table.read_bytes() == reference.read_bytes()
 
     sheet = tmp_path / "from_window.pdf"
-    monkeypatch.setattr(QFileDialog, "getSaveFileName", lambda *a, **k: (str(sheet), ""))
+    monkeypatch.setattr("app.qt.export.ask_path", lambda *a, **k: str(sheet))
     window.act_export_sheet.trigger()
     assert len(PdfReader(str(sheet)).pages) == 1 + 2
     report = export_sheet(window, tmp_path / "one.pdf", per_page=1, shot_ids=["s04"])

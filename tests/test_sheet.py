@@ -52,8 +52,8 @@ def _table(session_path, out_csv) -> list[dict]:
 
 
 def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
-    from app.review.text import angle_text
     from app.sheet import make_sheet
+    from app.sheet.content import sheet_angle
     from core.store import Session
 
     out = tmp_path / "sheet.pdf"
@@ -69,9 +69,9 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
             cell = row[f"{side}_final_deg"]
             if cell:
                 finals += 1
-                assert angle_text(float(cell)) in text, (row["shot"], side, cell)
+                assert sheet_angle(float(cell)) in text, (row["shot"], side, cell)
     assert finals == 6  # s01 both (accepted), s02 both, s05 both (adjusted one side each)
-    assert "17.2" in text or "17.3" in text  # the analyst's value, not the proposal
+    assert "+17.25°" in text  # the analyst's value to 0.01 deg, not the proposal
     assert "ADJUSTED" in text and "ball cut by the frame edge" in text
     assert "moved to the shear-layer root" in text
     assert "page 1 of 4" in text and "page 4 of 4" in text
@@ -176,7 +176,7 @@ def test_sheet_command(reviewed_session, tmp_path, capsys):
 
 
 def test_vorticity_colours_are_symmetric_about_zero():
-    from app import colours
+    from app.review import colours
 
     w = np.array([[-2.0, -1.0, 0.0], [1.0, 2.0, np.nan]])
     rgba = colours.vorticity_rgb(w, limit_1_s=1.0)

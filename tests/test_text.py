@@ -69,7 +69,9 @@ def test_readout_and_sheet_use_the_same_words(qtbot):
     assert panel.flight_speed.text() == speed_text(30.06)
     assert panel.wake.text() == wake_text(SUMMARY.separation)
     assert panel.vectors.text() == vectors_text(SUMMARY.vectors)
-    assert side_detail(record, "upper").endswith(proposal_text(SUMMARY.side("upper")))
+    # the same words; the sheet gives angles to 0.01 deg
+    assert side_detail(record, "upper").endswith(proposal_text(SUMMARY.side("upper"), 2))
+    assert side_detail(record, "upper").endswith("+12.34° ± 1.50°, quality 0.80")
 
 
 @pytest.mark.parametrize("status", ["to review", "unusable"])

@@ -32,6 +32,15 @@ def _open(main_window, qtbot, path, show=False, **kwargs):
     return window
 
 
+def reactivate(qtbot, window) -> None:
+    """After a dialog the offscreen platform leaves the window inactive (a desktop's window
+    manager activates it again): shortcuts need an active window."""
+    window.activateWindow()
+    with qtbot.waitActive(window):
+        pass
+    window.shot_list.view.setFocus()
+
+
 def _key(qtbot, window, key, modifier=Qt.KeyboardModifier.NoModifier):
     """Press a key in the focused widget of the window (shortcuts fire as for a user)."""
     target = QApplication.focusWidget() or window.shot_list.view
@@ -154,15 +163,18 @@ def test_drag_upper_mark_follows_geometry_undo_redo_and_reopen(main_window, make
     assert [p.status for p in history] == ["adjusted", "to review", "adjusted"]
 
 
-def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot, monkeypatch):
+def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot):
+    from conftest import answer_dialog
+
     path = make_session(4)
-    monkeypatch.setattr("app.qt.window_review.QInputDialog.getText",
-                        lambda *a, **k: ("laser sheet misfired", True))
     window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(False)  # each shot is chosen by hand here
     window.shot_list.view.setFocus()
     _key(qtbot, window, Qt.Key.Key_A)  # s01 accepted
     _key(qtbot, window, Qt.Key.Key_Down)
+    answer_dialog(lambda d: (d.setTextValue("laser sheet misfired"), d.accept()))
     _key(qtbot, window, Qt.Key.Key_U)  # s02 unusable with the reason
+    reactivate(qtbot, window)
     _key(qtbot, window, Qt.Key.Key_Down)
     proposal = window.model.record("s03").proposed_deg("upper")
     lower = window.model.record("s03").proposed_deg("lower")
@@ -198,6 +210,7 @@ def test_a_note_being_typed_survives_a_status_key_and_a_shot_change(main_window,
                                                                      qtbot):
     path = make_session(3)
     window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(False)  # the decision must leave the shot where it is
     first = window.model.current_id
     window.readout.note.setFocus()
     qtbot.keyClicks(window.readout.note, "seeding thin on the lower side")
@@ -221,7 +234,7 @@ def test_a_refused_undo_is_reported_not_raised(main_window, make_session, qtbot,
     def refuse(*_args, **_kwargs):
         raise WakelineError("demo.h5: the disk is full")
 
-    monkeypatch.setattr(window.model.session, "set_pick", refuse)
+    monkeypatch.setattr(window.model.session, "set_picks", refuse)
     window.undo_stack.undo()
     assert "disk is full" in window.last_problem
     assert window.model.record(shot_id).pick.status == "accepted"  # the views show the truth

@@ -38,7 +38,7 @@ def test_a_drag_the_store_refused_puts_the_mark_back(main_window, make_session, 
         if where == "write":  # the store's journal cannot be written
             monkeypatch.setattr(os, "write", refuse_writes)
         else:  # any OSError out of the store (a path the store does not turn into one line)
-            monkeypatch.setattr(window.model.session, "set_pick", refuse_writes)
+            monkeypatch.setattr(window.model.session, "set_picks", refuse_writes)
 
     _drag(qtbot, canvas.graphics.viewport(), start, end, during=writes_fail_from_now)
     monkeypatch.undo()

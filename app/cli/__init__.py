@@ -1,5 +1,7 @@
 """The `wakeline` command: the review window by default, subcommands for headless work.
 
+``wakeline`` reopens the last session in the window, ``wakeline SESSION.h5`` opens that one; both
+skip building the parser, whose commands import the measurement (the window must come up fast).
 Exit codes: 0 success, 1 failure (one line on stderr), 2 bad usage (argparse's own code).
 """
 
@@ -10,6 +12,7 @@ import importlib
 import sys
 import traceback
 from datetime import UTC, datetime
+from pathlib import Path
 
 from core import WakelineError, __version__
 
@@ -20,8 +23,10 @@ COMMAND_MODULES = ("app.cli.pair", "app.cli.session", "app.cli.sheet", "app.cli.
 def build_parser() -> argparse.ArgumentParser:
     parser = argparse.ArgumentParser(
         prog="wakeline",
+        usage="wakeline [SESSION.h5] | wakeline COMMAND ...",
         description="PIV of seamed balls: velocity, vorticity and separation angles per shot. "
-        "With no command, opens the review window.",
+        "With no command, opens the review window on the last session; with a session file, "
+        "on that session.",
     )
     parser.add_argument("--version", action="version", version=f"wakeline {__version__}")
     subparsers = parser.add_subparsers(title="commands", metavar="COMMAND")
@@ -30,13 +35,31 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+SESSION_SUFFIXES = (".h5", ".hdf5")
+
+
+def window_request(argv: list[str]) -> tuple[bool, str | None]:
+    """``(True, session or None)`` when the arguments ask for the window: none at all, or one
+    session file (a name ending in .h5/.hdf5, or any existing file)."""
+    if not argv:
+        return True, None
+    arg = argv[0]
+    if len(argv) == 1 and not arg.startswith("-") and (
+            arg.lower().endswith(SESSION_SUFFIXES) or Path(arg).is_file()):
+        return True, arg
+    return False, None
+
+
 def main(argv: list[str] | None = None) -> int:
-    parser = build_parser()
-    args = parser.parse_args(argv)
-    func = getattr(args, "func", None)
+    argv = sys.argv[1:] if argv is None else list(argv)
+    window, session = window_request(argv)
+    func = None
+    if not window:
+        args = build_parser().parse_args(argv)
+        func = getattr(args, "func", None)
     try:
         if func is None:
-            return open_window()
+            return open_window(session)
         return int(func(args) or 0)
     except WakelineError as exc:
         print(f"wakeline: {exc}", file=sys.stderr)
@@ -55,10 +78,13 @@ def main(argv: list[str] | None = None) -> int:
         return 1
 
 
-def open_window() -> int:
-    """The review window, or a one-line refusal where Qt has no screen to show it on."""
+def open_window(session: str | None = None) -> int:
+    """The review window (on ``session``, else the last one), or a one-line refusal where Qt
+    has no screen to show it on."""
     from app.cli import display
 
+    if session is not None and not Path(session).is_file():
+        raise WakelineError(f"{session}: session file not found")
     if not display.has_display():
         raise WakelineError(
             "no display to open the window on (DISPLAY is not set); the headless commands "
@@ -69,7 +95,7 @@ def open_window() -> int:
         raise WakelineError(display.missing_libraries_message(missing))
     from app.qt.window import run_window
 
-    return run_window(None)
+    return run_window(session)
 
 
 def write_crash_log() -> str:

@@ -33,7 +33,23 @@ def _add_sheet(subparsers) -> None:
     p.add_argument("--column", metavar="NAME",
                    help="numeric metadata column for the overview and the summary table "
                    "(default: seam_deg when present)")
+    p.add_argument("--vorticity-limit", type=_vorticity_limit, metavar="W|session",
+                   help="the same vorticity colour range on every panel, so they compare: "
+                   "+-W 1/s, or 'session' for one range from the shots on the sheet "
+                   "(default: each panel its own)")
     p.set_defaults(func=run_sheet)
+
+
+def _vorticity_limit(text: str):
+    if text == "session":
+        return text
+    try:
+        value = float(text)
+    except ValueError:
+        value = -1.0
+    if not 0 < value < float("inf"):
+        raise argparse.ArgumentTypeError(f"a positive number or 'session', not {text!r}")
+    return value
 
 
 def run_sheet(args: argparse.Namespace) -> int:
@@ -44,6 +60,7 @@ def run_sheet(args: argparse.Namespace) -> int:
     with Session.open(args.session, writable=False) as session:
         check_outputs([args.output], session.path, session_frame_files(session))
         report = make_sheet(session, args.output, shot_ids=args.shots, per_page=args.per_page,
-                            statuses=statuses, column=args.column)
+                            statuses=statuses, column=args.column,
+                            vorticity_limit_1_s=args.vorticity_limit)
     print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
     return 0

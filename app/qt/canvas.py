@@ -2,9 +2,12 @@
 
 Layers the analyst toggles: the picture (frame A, frame B, or a flicker between them), vectors
 (valid, replaced and masked drawn differently, with a stride), vorticity (our diverging map,
-symmetric limits, a colour bar and an adjustable range), the fitted ball outline in both frames,
-the flight arrow with the plane normal to it through the ball centre, and the two separation
-marks. With "side by side" the field layers move to a second view linked to the first.
+symmetric limits, a colour bar, a range per shot or fixed for the session), the fitted ball
+outline in both frames, the flight arrow with the plane normal to it through the ball centre, a
+scale bar, and the two separation marks. Each view is a ``ShotPane``: the main one, and with
+"side by side" a second one linked to it (zoom and pan), which shows the same shot's fields, or
+another shot kept for comparison (``keep_for_comparison``) in the same colour range. The picture
+can be rendered at any size with its legend (``render_picture``: PNG, SVG, the clipboard).
 
 The views use image coordinates: x = column to the right, y = row downward (``invertY``), so
 the picture looks like the camera image. Separation marks are handles held on the ball outline;
@@ -20,11 +23,13 @@ os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QRectF, Qt, QTimer, Signal
-from PySide6.QtGui import QColor
+from PySide6.QtCore import QRectF, QSize, Qt, QTimer, Signal
+from PySide6.QtGui import QColor, QImage, QPainter, QTextDocument
 from PySide6.QtWidgets import (
+    QApplication,
     QHBoxLayout,
     QLabel,
+    QMenu,
     QSizePolicy,
     QVBoxLayout,
     QWidget,
@@ -34,24 +39,18 @@ from app.qt.canvas_controls import DEFAULT_LAYERS, LayerControls, PictureMode
 from app.qt.canvas_items import (
     BACKGROUND,
     MASKED_MARK,
+    OVERLAY_LINE,
     REPLACED_VECTOR,
     VECTOR_ON_FIELD,
     VECTOR_ON_PICTURE,
     MarkHandle,
-    Overlay,
-    arrow_segments,
     mark_circle,
     pen,
 )
-from app.qt.canvas_pictures import (
-    field_values,
-    picture_levels,
-    smooth_upsample,
-    vector_scale,
-    vorticity_image,
-    vorticity_unit,
-)
+from app.qt.canvas_pane import ShotPane
+from app.qt.canvas_pictures import field_values, picture_levels, vorticity_unit
 from app.review import colours
+from app.review.scales import round_limit
 from core.geometry import SIDES, angle_of_point
 
 # Arrays are (row, column) = (y, x) everywhere in wakeline; run_window sets this too.
@@ -59,7 +58,6 @@ pg.setConfigOptions(imageAxisOrder="row-major")
 
 
 FLICKER_MS = 350
-VORTICITY_UPSAMPLE = 4  # display only: bilinear between grid nodes instead of flat blocks
 HOVER_HINT = "Point at the picture for flow values; drag a round mark along the ball outline."
 
 
@@ -75,6 +73,22 @@ class CanvasShot:
     final_deg: dict = field(default_factory=lambda: {"upper": None, "lower": None})
     message: str = ""  # shown over the canvas: failed, not processed, frames missing
     editable: bool = True
+
+    def angles(self) -> dict:
+        """Side -> the angle its mark shows: the final value, else the proposal."""
+        return {side: self.final_deg.get(side) if self.final_deg.get(side) is not None
+                else self.proposed_deg.get(side) for side in SIDES}
+
+
+@dataclass
+class _Showing:
+    """What one pane shows: a shot, and whether its picture and its fields."""
+
+    pane: ShotPane
+    shot: CanvasShot | None
+    picture: bool
+    fields: bool
+    marks: dict  # side -> angle
 
 
 class ShotCanvas(LayerControls, QWidget):
@@ -101,11 +115,15 @@ class ShotCanvas(LayerControls, QWidget):
     def __init__(self, parent: QWidget | None = None) -> None:
         super().__init__(parent)
         self._shot: CanvasShot | None = None
+        self._reference: CanvasShot | None = None  # kept for comparison in the second pane
         self._angles = {"upper": None, "lower": None}
-        self._levels = (0.0, 1.0)
+        self._levels = {}  # shot id -> picture levels
         self._flicker_b = False
         self._building = False
+        self._placing = False
         self._vorticity_unit = "1/s"
+        self.context_actions: list = []  # right-click menu (the window's picture actions)
+        self.context_menu: QMenu | None = None
         self._build_controls()
         self._build_views()
         self._build_layout()
@@ -123,28 +141,19 @@ class ShotCanvas(LayerControls, QWidget):
         self.graphics.setBackground(BACKGROUND)
         self.graphics.setFocusPolicy(Qt.FocusPolicy.NoFocus)  # keys stay with the shot list
         self.graphics.ci.setContentsMargins(2, 2, 2, 2)
-        self.view = pg.ViewBox(lockAspect=True, invertY=True, enableMenu=False)
-        self.field_view = pg.ViewBox(lockAspect=True, invertY=True, enableMenu=False)
-        self.field_view.setXLink(self.view)
-        self.field_view.setYLink(self.view)
-        self.graphics.addItem(self.view, row=0, col=0)
-        self.picture = pg.ImageItem(autoDownsample=True)
-        self.picture.setZValue(0)
-        self.view.addItem(self.picture)
-        self.vorticity = pg.ImageItem()
-        self.vorticity.setZValue(10)
-        self.vectors = pg.PlotDataItem(connect="pairs", pen=pen(VECTOR_ON_PICTURE, 1.1))
-        self.replaced = pg.PlotDataItem(connect="pairs", pen=pen(REPLACED_VECTOR, 1.4))
-        masked_colour = QColor(MASKED_MARK)
-        masked_colour.setAlpha(140)
-        self.masked = pg.ScatterPlotItem(size=2.5, symbol="s", pen=None,
-                                         brush=pg.mkBrush(masked_colour))
-        for item, z in ((self.vectors, 20), (self.replaced, 21), (self.masked, 19)):
-            item.setZValue(z)
-        self._field_items = (self.vorticity, self.vectors, self.replaced, self.masked)
-        self._field_home = self.view
-        for item in self._field_items:
-            self.view.addItem(item)
+        self.graphics.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
+        self.graphics.customContextMenuRequested.connect(self._on_context_menu)
+        self.main = ShotPane(draggable=True)
+        self.second = ShotPane(draggable=False)
+        self.second.view.setXLink(self.main.view)
+        self.second.view.setYLink(self.main.view)
+        # the main pane's items under their old names (the window and the tests use them)
+        self.view, self.field_view = self.main.view, self.second.view
+        self.picture, self.vorticity = self.main.picture, self.main.vorticity
+        self.vectors, self.replaced, self.masked = (self.main.vectors, self.main.replaced,
+                                                    self.main.masked)
+        self.overlay, self.field_overlay = self.main.overlay, self.second.overlay
+        self.graphics.addItem(self.view, row=1, col=0)
         cmap = pg.ColorMap(
             [p for p, _ in colours.VORTICITY_STOPS], [c for _, c in colours.VORTICITY_STOPS]
         )
@@ -158,9 +167,7 @@ class ShotCanvas(LayerControls, QWidget):
         axis = self.colour_bar.getAxis("right")
         axis.setPen(pen("#c9c6bd", 1.0))
         axis.setTextPen(pen("#e6e2d8", 1.0))
-        self.graphics.addItem(self.colour_bar, row=0, col=2)
-        self.overlay = Overlay(self.view, draggable=True)
-        self.field_overlay = Overlay(self.field_view, draggable=False)
+        self.graphics.addItem(self.colour_bar, row=1, col=2)
         for handle in self.overlay.handles.values():
             handle.sigPositionChanged.connect(self._on_handle_moved)
             handle.sigPositionChangeFinished.connect(self._on_handle_released)
@@ -180,7 +187,7 @@ class ShotCanvas(LayerControls, QWidget):
         bar.setSpacing(8)
         bar.addWidget(self.picture_box)
         for widget in (self.vectors_box, self.stride_box, self.vorticity_box, self.limit_box,
-                       self.auto_box, self.overlay_button, self.side_box):
+                       self.fixed_box, self.overlay_button, self.side_box):
             bar.addWidget(widget)
         bar.addStretch(1)
         self.hover_label = QLabel(HOVER_HINT, self)
@@ -208,17 +215,41 @@ class ShotCanvas(LayerControls, QWidget):
     def shot(self) -> CanvasShot | None:
         return self._shot
 
+    @property
+    def reference(self) -> CanvasShot | None:
+        """The shot kept for comparison (None: none kept)."""
+        return self._reference
+
     def show_shot(self, shot: CanvasShot | None) -> None:
         """Draw a shot (None: empty canvas). Keeps the zoom when the frame size is unchanged."""
         old = self._shot
         self._shot = shot
-        self._angles = self._initial_angles(shot)
-        self._levels = picture_levels(shot)
-        if shot is not None and self.auto_box.isChecked():
-            self._set_auto_limit(shot.result)
+        self._angles = shot.angles() if shot is not None else {"upper": None, "lower": None}
+        kept = self._reference
+        self._levels = {kept.shot_id: self._levels[kept.shot_id]} if kept is not None else {}
+        if shot is not None:
+            self._levels[shot.shot_id] = picture_levels(shot)
+        if shot is not None and not self.fixed_box.isChecked():
+            self._set_auto_limit()
         self._redraw_all()
         if shot is not None and not _same_extent(old, shot):
             self.view.autoRange(padding=0.02)
+
+    def keep_for_comparison(self, shot: CanvasShot | None) -> None:
+        """Show ``shot`` in the second pane beside the current one (side by side turns on), in
+        the same colour range and with linked zoom; None lets it go."""
+        self._reference = shot
+        if shot is not None:
+            self._levels[shot.shot_id] = picture_levels(shot)
+            if not self.side_box.isChecked():
+                self._building = True  # one redraw below, not two
+                self.side_box.setChecked(True)
+                self._building = False
+                self._apply_side_by_side(True)
+                self.layers_changed.emit()
+        if self._shot is not None and not self.fixed_box.isChecked():
+            self._set_auto_limit()
+        self._redraw_all()
 
     def update_marks(self, proposed: dict, final: dict, editable: bool = True) -> None:
         """Move the marks after an edit without redrawing the picture or fields."""
@@ -227,8 +258,14 @@ class ShotCanvas(LayerControls, QWidget):
         self._shot.proposed_deg = dict(proposed)
         self._shot.final_deg = dict(final)
         self._shot.editable = editable
-        self._angles = self._initial_angles(self._shot)
+        self._angles = self._shot.angles()
         self._draw_marks()
+
+    def update_reference_marks(self, proposed: dict, final: dict) -> None:
+        """The kept shot's marks after an edit of that shot."""
+        if self._reference is not None:
+            self._reference.proposed_deg, self._reference.final_deg = dict(proposed), dict(final)
+            self._draw_marks()
 
     def mark_angle(self, side: str) -> float | None:
         """Angle (deg) the mark of ``side`` shows: final value, else the proposal."""
@@ -237,16 +274,18 @@ class ShotCanvas(LayerControls, QWidget):
     def handle(self, side: str) -> MarkHandle:
         return self.overlay.handles[side]
 
-    @staticmethod
-    def _initial_angles(shot: CanvasShot | None) -> dict:
-        if shot is None:
-            return {"upper": None, "lower": None}
-        return {
-            side: shot.final_deg.get(side)
-            if shot.final_deg.get(side) is not None
-            else shot.proposed_deg.get(side)
-            for side in SIDES
-        }
+    def _showing(self) -> list[_Showing]:
+        """What each pane shows now: alone, the picture and its fields split over two panes, or
+        the current shot beside the one kept for comparison."""
+        shot = self._shot
+        if not self.side_box.isChecked():
+            return [_Showing(self.main, shot, True, True, self._angles)]
+        reference = self._reference
+        if reference is None:
+            return [_Showing(self.main, shot, True, False, self._angles),
+                    _Showing(self.second, shot, False, True, self._angles)]
+        return [_Showing(self.main, shot, True, True, self._angles),
+                _Showing(self.second, reference, True, True, reference.angles())]
 
     def _redraw_all(self) -> None:
         if self._building:
@@ -275,18 +314,15 @@ class ShotCanvas(LayerControls, QWidget):
     # -- picture -----------------------------------------------------------------------------
     def _draw_picture(self) -> None:
         mode = self.picture_mode()
-        shot = self._shot
-        frame = None
-        if shot is not None and mode != PictureMode.NONE:
-            use_b = mode == PictureMode.FRAME_B or (mode == PictureMode.FLICKER and self._flicker_b)
-            frame = shot.frame_b if use_b else shot.frame_a
-        if frame is None:
-            self.picture.clear()
-            self.picture.setVisible(False)
-        else:
-            self.picture.setImage(frame, levels=self._levels, autoLevels=False)
-            self.picture.setVisible(True)
-        if mode == PictureMode.FLICKER and shot is not None:
+        use_b = mode == PictureMode.FRAME_B or (mode == PictureMode.FLICKER and self._flicker_b)
+        for showing in self._showing():
+            shot = showing.shot
+            frame = None
+            if shot is not None and showing.picture and mode != PictureMode.NONE:
+                frame = shot.frame_b if use_b else shot.frame_a
+            levels = self._levels.get(shot.shot_id, (0.0, 1.0)) if shot else (0.0, 1.0)
+            showing.pane.show_picture(frame, levels)
+        if mode == PictureMode.FLICKER and self._shot is not None:
             if not self._flicker.isActive():
                 self._flicker.start()
         else:
@@ -299,76 +335,72 @@ class ShotCanvas(LayerControls, QWidget):
 
     # -- fields ------------------------------------------------------------------------------
     def _draw_fields(self) -> None:
-        result = self._shot.result if self._shot is not None else None
-        vf = getattr(result, "field", None)
-        self._draw_vorticity(result, vf)
-        self._draw_vectors(vf)
+        showings = self._showing()
+        limit = self.limit_box.value()
+        any_vorticity = False
+        for showing in showings:
+            result = showing.shot.result if showing.shot is not None and showing.fields else None
+            see_through = showing.picture and showing.pane.picture.isVisible()
+            drawn = showing.pane.show_vorticity(
+                result if self.vorticity_box.isChecked() else None, limit, see_through)
+            any_vorticity = any_vorticity or drawn
+            vf = getattr(result, "field", None) if self.vectors_box.isChecked() else None
+            on_field = drawn and not see_through
+            showing.pane.show_vectors(vf, self.stride_box.value(),
+                                      VECTOR_ON_FIELD if on_field else VECTOR_ON_PICTURE)
+            if drawn:
+                self._show_unit(vorticity_unit(result))
+        self.colour_bar.setVisible(any_vorticity)
+        if any_vorticity and tuple(self.colour_bar.levels()) != (-limit, limit):
+            self.colour_bar.setLevels((-limit, limit))
 
-    def _draw_vorticity(self, result, vf) -> None:
-        w = getattr(result, "vorticity_1_s", None)
-        show = self.vorticity_box.isChecked() and w is not None and vf is not None
-        self.vorticity.setVisible(show)
-        self.colour_bar.setVisible(show)
-        if not show:
-            return
-        unit = vorticity_unit(result)
+    def _show_unit(self, unit: str) -> None:
         if unit != self._vorticity_unit:
             self._vorticity_unit = unit
             self.colour_bar.setTitle(f"ω {unit}", color="#e6e2d8", size="9pt")
             self.limit_box.setSuffix(f" {unit}")
-        x0, y0, sp = float(vf.x_px[0, 0]), float(vf.y_px[0, 0]), float(vf.spacing_px)
-        rows, cols = w.shape
-        limit = self.limit_box.value()
-        on_picture = self.picture.isVisible() and not self.side_box.isChecked()
-        smooth = smooth_upsample(np.asarray(w, dtype=np.float32), VORTICITY_UPSAMPLE)
-        self.vorticity.setImage(vorticity_image(smooth, limit, on_picture), levels=(0, 255),
-                                autoLevels=False)
-        self.vorticity.setRect(QRectF(x0 - sp / 2, y0 - sp / 2, cols * sp, rows * sp))
-        if tuple(self.colour_bar.levels()) != (-limit, limit):
-            self.colour_bar.setLevels((-limit, limit))
 
-    def _draw_vectors(self, vf) -> None:
-        show = self.vectors_box.isChecked() and vf is not None
-        if not show:
-            for item in (self.vectors, self.replaced):
-                item.setData([], [])
-            self.masked.setData(pos=np.empty((0, 2)))
+    def _set_auto_limit(self) -> None:
+        """The colour range from the shown shot(s): each one's 98th percentile of |ω|, the
+        larger when two are compared (so neither saturates), rounded up in the 1-2-5 series."""
+        fields = [getattr(s.result, "vorticity_1_s", None) for s in (self._shot, self._reference)
+                  if s is not None and s.result is not None]
+        fields = [w for w in fields if w is not None]
+        if not fields:
             return
-        stride = self.stride_box.value()
-        sl = (slice(None, None, stride), slice(None, None, stride))
-        x, y = vf.x_px[sl], vf.y_px[sl]
-        dx, dy = vf.dx_px[sl], vf.dy_px[sl]
-        masked = vf.masked[sl] | ~np.isfinite(dx) | ~np.isfinite(dy)
-        replaced = vf.replaced[sl] & ~masked
-        good = ~masked & ~replaced
-        scale = vector_scale(dx[~masked], dy[~masked], vf.spacing_px * stride)
-        for item, sel in ((self.vectors, good), (self.replaced, replaced)):
-            xs, ys = arrow_segments(x[sel], y[sel], dx[sel] * scale, dy[sel] * scale)
-            item.setData(xs, ys)
-        self.masked.setData(pos=np.column_stack([x[masked], y[masked]]))
-        field_only = not self.picture.isVisible() or self.side_box.isChecked()
-        colour = VECTOR_ON_FIELD if field_only and self.vorticity.isVisible() else \
-            VECTOR_ON_PICTURE
-        self.vectors.setPen(pen(colour, 1.1))
+        self._building = True
+        try:
+            self._set_limit(round_limit(max(colours.symmetric_limit(w) for w in fields)))
+        finally:
+            self._building = False
 
     # -- overlays ----------------------------------------------------------------------------
     def _draw_overlays(self) -> None:
-        result = self._shot.result if self._shot is not None else None
-        for overlay in (self.overlay, self.field_overlay):
-            overlay.set_ball(result, self.ball_box.isChecked())
-            overlay.set_flight(result, self.flight_box.isChecked())
+        for showing in self._showing():
+            result = showing.shot.result if showing.shot is not None else None
+            showing.pane.show_overlays(result, self.ball_box.isChecked(),
+                                       self.flight_box.isChecked())
+            showing.pane.set_title(self._title(showing))
         self._draw_marks()
 
+    def _title(self, showing: _Showing) -> str:
+        """The line over a view when there are two: which shot, kept or not, or its fields."""
+        if not self.side_box.isChecked() or showing.shot is None:
+            return ""
+        if showing.shot is self._reference and showing.pane is self.second:
+            return f"shot {showing.shot.shot_id} · kept"
+        return f"shot {showing.shot.shot_id}" + ("" if showing.picture else " · fields")
+
     def _draw_marks(self) -> None:
-        shot = self._shot
-        result = shot.result if shot is not None else None
-        proposals = shot.proposed_deg if shot is not None else {}
-        editable = bool(shot is not None and shot.editable)
         self._placing = True
         try:
-            for overlay in (self.overlay, self.field_overlay):
-                overlay.set_marks(result, self._angles, proposals, self.marks_box.isChecked(),
-                                  editable)
+            for showing in self._showing():
+                shot = showing.shot
+                result = shot.result if shot is not None else None
+                editable = bool(shot is not None and shot.editable and showing.pane is self.main)
+                showing.pane.overlay.set_marks(
+                    result, showing.marks, shot.proposed_deg if shot is not None else {},
+                    self.marks_box.isChecked(), editable)
         finally:
             self._placing = False
 
@@ -386,7 +418,7 @@ class ShotCanvas(LayerControls, QWidget):
         return angle_of_point(circle[0], flight.direction_deg, handle.side, (pos.x(), pos.y()))
 
     def _on_handle_moved(self, handle: MarkHandle) -> None:
-        if getattr(self, "_placing", False) or not handle.moving:
+        if self._placing or not handle.moving:
             return
         angle = self._handle_angle(handle)
         if angle is None:
@@ -396,7 +428,7 @@ class ShotCanvas(LayerControls, QWidget):
         self.mark_moved.emit(handle.side, angle)
 
     def _on_handle_cancelled(self, handle: MarkHandle) -> None:
-        self._angles = self._initial_angles(self._shot)
+        self._angles = self._shot.angles()
         self._draw_marks()
         self.mark_cancelled.emit(handle.side)
 
@@ -409,17 +441,19 @@ class ShotCanvas(LayerControls, QWidget):
     # -- hover -------------------------------------------------------------------------------
     def _on_mouse_moved(self, args) -> None:
         scene_pos = args[0]
-        for view in (self.view, self.field_view):
+        for showing in self._showing():
+            view = showing.pane.view
             if view.scene() is not None and view.sceneBoundingRect().contains(scene_pos):
                 point = view.mapSceneToView(scene_pos)
-                text = self.describe_point(point.x(), point.y())
+                text = self.describe_point(point.x(), point.y(), showing.shot)
                 self.hover_label.setText(text)
                 self.hover_text.emit(text)
                 return
 
-    def describe_point(self, x_px: float, y_px: float) -> str:
-        """Text for the cursor at image position (x, y): position and field values there."""
-        shot = self._shot
+    def describe_point(self, x_px: float, y_px: float, shot: CanvasShot | None = None) -> str:
+        """Text for the cursor at image position (x, y) of ``shot`` (default: the current one):
+        position and field values there."""
+        shot = self._shot if shot is None else shot
         if shot is None:
             return " "
         result = shot.result
@@ -428,7 +462,80 @@ class ShotCanvas(LayerControls, QWidget):
         if scale:
             parts.append(f"({x_px * scale:6.2f}, {y_px * scale:6.2f} mm)")
         parts.extend(field_values(result, x_px, y_px))
+        if shot is not self._shot:
+            parts.insert(0, f"shot {shot.shot_id}:")
         return "  ".join(parts)
+
+    # -- the picture out: clipboard, PNG, SVG ------------------------------------------------
+    def _on_context_menu(self, pos) -> None:
+        """Right-click: the picture actions (not while a mark is being dragged)."""
+        dragging = any(h.moving for h in self.overlay.handles.values())
+        if dragging or QApplication.mouseButtons() & Qt.MouseButton.LeftButton:
+            return
+        if self.context_menu is None:
+            self.context_menu = QMenu(self)
+            for action in self.context_actions:
+                self.context_menu.addAction(action)
+        self.context_menu.popup(self.graphics.mapToGlobal(pos))
+
+    def picture_size(self) -> QSize:
+        """The size of the picture on screen (views, colour bar), px."""
+        return self.graphics.size()
+
+    def legend_title(self) -> str:
+        """The shot(s) the picture shows: ``shot s07``, ``shot s07 | s03`` when comparing."""
+        shots = [s.shot_id for s in (self._shot, self._reference) if s is not None
+                 and (s is self._shot or self.side_box.isChecked())]
+        return "shot " + " | ".join(shots) if shots else ""
+
+    def legend_text(self) -> str:
+        """What the exported picture says under the views: shots, colour range, the marks."""
+        words = [self.legend_title()] if self._shot is not None else []
+        if self.vorticity_box.isChecked() and self.colour_bar.isVisible():
+            limit = self.limit_box.value()
+            words.append(f"ω ±{limit:g} {self._vorticity_unit}")
+        return "&nbsp;&nbsp;·&nbsp;&nbsp;".join([*words, legend_html()])
+
+    def render_picture(self, device, width: int, height: int) -> None:
+        """Paint the canvas's picture laid out at ``width`` x ``height`` px onto ``device`` (a
+        QImage, an SVG generator): the views as on screen (same layers, same region), the
+        colour bar, the scale bars, and a line of legend under them."""
+        legend = QTextDocument()
+        legend.setDefaultStyleSheet(f"body {{ color: {OVERLAY_LINE}; }}")
+        legend.setHtml(f"<body>{self.legend_text()}</body>")
+        legend.setTextWidth(width - 12)
+        strip = int(legend.size().height()) + 8
+        box = QRectF(0, 0, width, max(16, height - strip))
+        layout, scene = self.graphics.ci, self.graphics.scene()
+        geometry, ranges = layout.geometry(), self.view.viewRange()
+        painter = QPainter(device)
+        # pyqtgraph's export mode: symbols are drawn as shapes, not as cached little images
+        exporting = [item for item in scene.items() if hasattr(item, "setExportMode")]
+        try:
+            painter.setRenderHint(QPainter.RenderHint.Antialiasing)
+            painter.fillRect(QRectF(0, 0, width, height), QColor(BACKGROUND))
+            layout.setGeometry(box)  # laid out at the asked size for this one render
+            self.view.setRange(xRange=ranges[0], yRange=ranges[1], padding=0)
+            for item in exporting:
+                item.setExportMode(True, {"antialias": True, "background": QColor(BACKGROUND),
+                                          "painter": painter, "resolutionScale": 1.0})
+            scene.render(painter, box, box)
+            painter.translate(6, box.height() + 4)
+            legend.drawContents(painter)
+        finally:
+            painter.end()
+            for item in exporting:
+                item.setExportMode(False)
+            layout.setGeometry(geometry)
+            self.view.setRange(xRange=ranges[0], yRange=ranges[1], padding=0)
+
+    def picture_image(self, width: int | None = None, height: int | None = None) -> QImage:
+        """The picture as an image (default: the size on screen)."""
+        size = self.picture_size()
+        width, height = width or size.width(), height or size.height()
+        image = QImage(width, height, QImage.Format.Format_ARGB32)
+        self.render_picture(image, width, height)
+        return image
 
 
 def legend_html() -> str:

@@ -1,6 +1,7 @@
 """The canvas's layer controls: the picture (frame A, frame B, flicker, none), vectors and their
-stride, vorticity and its colour range, the overlays, side by side; and their state, which the
-window keeps in the user's settings. A part of ``ShotCanvas`` (``app.qt.canvas``).
+stride, vorticity and its colour range (per shot, or fixed for the session: the shot sheet uses
+it then too), the overlays, side by side; and their state, which the window keeps in the user's
+settings. A part of ``ShotCanvas`` (``app.qt.canvas``).
 """
 
 from __future__ import annotations
@@ -12,8 +13,6 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QCheckBox, QComboBox, QDoubleSpinBox, QMenu, QSpinBox, QToolButton
 
-from app.qt.canvas_pictures import round_limit
-from app.review import colours
 
 
 class PictureMode(StrEnum):
@@ -61,8 +60,10 @@ class LayerControls:
         self.limit_box.setPrefix("± ")
         self.limit_box.setSuffix(" 1/s")
         self.limit_box.setToolTip("vorticity at the ends of the colour map (symmetric about 0)")
-        self.auto_box = QCheckBox("auto", self)
-        self.auto_box.setToolTip("set the vorticity range from each shot (98th percentile)")
+        self.fixed_box = QCheckBox("fixed", self)
+        self.fixed_box.setToolTip(
+            "keep this colour range for every shot of the session, and on the shot sheet; "
+            "off: each shot gets its own (98th percentile of |ω|)")
         # the overlays sit in one drop-down so the bar fits a laptop screen
         self.overlay_button = QToolButton(self)
         self.overlay_button.setText("Overlays")
@@ -75,20 +76,21 @@ class LayerControls:
         self.marks_box = _check_action("Separation marks", overlay_menu)
         self.overlay_button.setMenu(overlay_menu)
         self.side_box = QCheckBox("Side by side", self)
-        self.side_box.setToolTip("frames on the left, fields on the right, zoom and pan linked")
+        self.side_box.setToolTip("two views with zoom and pan linked: the frames and the fields "
+                                 "of this shot, or this shot and the one kept for comparison (K)")
         self.picture_box.currentTextChanged.connect(self._on_picture)
         for box in (self.vectors_box, self.vorticity_box, self.ball_box, self.flight_box,
                     self.marks_box):
             box.toggled.connect(self._on_layer_toggled)
         self.stride_box.valueChanged.connect(self._on_layer_toggled)
         # clicking a layer switch must not take the keyboard from the shot list (Up/Down)
-        for widget in (self.picture_box, self.vectors_box, self.vorticity_box, self.auto_box,
+        for widget in (self.picture_box, self.vectors_box, self.vorticity_box, self.fixed_box,
                        self.overlay_button, self.side_box):
             widget.setFocusPolicy(Qt.FocusPolicy.NoFocus)
         self.stride_box.setMaximumWidth(80)
         self.limit_box.setMaximumWidth(120)
         self.limit_box.valueChanged.connect(self._on_limit)
-        self.auto_box.toggled.connect(self._on_auto)
+        self.fixed_box.toggled.connect(self._on_fixed)
         self.side_box.toggled.connect(self._on_side_by_side)
 
     # -- layer state (kept in QSettings by the window) ---------------------------------------
@@ -98,7 +100,7 @@ class LayerControls:
             "vectors": self.vectors_box.isChecked(),
             "stride": self.stride_box.value(),
             "vorticity": self.vorticity_box.isChecked(),
-            "vorticity_auto": self.auto_box.isChecked(),
+            "vorticity_auto": not self.fixed_box.isChecked(),
             "vorticity_limit_1_s": self.limit_box.value(),
             "ball": self.ball_box.isChecked(),
             "flight": self.flight_box.isChecked(),
@@ -116,7 +118,7 @@ class LayerControls:
             self.vectors_box.setChecked(_as_bool(merged["vectors"]))
             self.stride_box.setValue(int(merged["stride"]))
             self.vorticity_box.setChecked(_as_bool(merged["vorticity"]))
-            self.auto_box.setChecked(_as_bool(merged["vorticity_auto"]))
+            self.fixed_box.setChecked(not _as_bool(merged["vorticity_auto"]))
             self._set_limit(float(merged["vorticity_limit_1_s"]))
             self.ball_box.setChecked(_as_bool(merged["ball"]))
             self.flight_box.setChecked(_as_bool(merged["flight"]))
@@ -134,16 +136,9 @@ class LayerControls:
         self.limit_box.setSingleStep(10.0 ** math.floor(math.log10(limit)) if limit > 0 else 1.0)
         self.limit_box.setValue(limit)
 
-    def _set_auto_limit(self, result) -> None:
-        w = getattr(result, "vorticity_1_s", None)
-        if w is None:
-            return
-        limit = colours.symmetric_limit(w)
-        self._building = True
-        try:
-            self._set_limit(round_limit(limit))
-        finally:
-            self._building = False
+    def fixed_limit(self) -> float | None:
+        """The vorticity colour range fixed for the session (None: per shot)."""
+        return self.limit_box.value() if self.fixed_box.isChecked() else None
 
     # -- layer controls ----------------------------------------------------------------------
     def _on_picture(self, _text: str) -> None:
@@ -159,16 +154,16 @@ class LayerControls:
     def _on_limit(self, _value: float) -> None:
         if self._building:
             return
-        if self.auto_box.isChecked() and self.limit_box.hasFocus():
-            self.auto_box.setChecked(False)
+        if not self.fixed_box.isChecked() and self.limit_box.hasFocus():
+            self.fixed_box.setChecked(True)  # a range typed in is meant to stay
         self._draw_fields()
         self.layers_changed.emit()
 
-    def _on_auto(self, checked: bool) -> None:
+    def _on_fixed(self, checked: bool) -> None:
         if self._building:
             return
-        if checked and self._shot is not None:
-            self._set_auto_limit(self._shot.result)
+        if not checked and self._shot is not None:
+            self._set_auto_limit()
         self._draw_fields()
         self.layers_changed.emit()
 
@@ -180,19 +175,17 @@ class LayerControls:
         self.layers_changed.emit()
 
     def _apply_side_by_side(self, checked: bool) -> None:
-        target = self.field_view if checked else self.view
-        if target is not self._field_home:
-            for item in self._field_items:
-                self._field_home.removeItem(item)
-                target.addItem(item)
-            self._field_home = target
+        """Put the second view (and the titles over both) in the layout, or take them out."""
         in_layout = self.field_view.scene() is not None
         if checked and not in_layout:
             self.graphics.removeItem(self.colour_bar)
-            self.graphics.addItem(self.field_view, row=0, col=1)
-            self.graphics.addItem(self.colour_bar, row=0, col=2)
+            self.graphics.addItem(self.main.title, row=0, col=0)
+            self.graphics.addItem(self.second.title, row=0, col=1)
+            self.graphics.addItem(self.field_view, row=1, col=1)
+            self.graphics.addItem(self.colour_bar, row=1, col=2)
         elif not checked and in_layout:
-            self.graphics.removeItem(self.field_view)
+            for item in (self.field_view, self.main.title, self.second.title):
+                self.graphics.removeItem(item)
         self.field_view.setVisible(checked)
 
     def picture_mode(self) -> PictureMode:

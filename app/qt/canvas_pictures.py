@@ -34,7 +34,8 @@ def smooth_upsample(values: np.ndarray, factor: int) -> np.ndarray:
     """Bilinear upsampling of a grid with holes (NaN), for display only.
 
     The output covers the same extent as the input cells (each cell becomes ``factor`` x
-    ``factor`` pixels); holes stay holes where less than half the neighbouring weight is real.
+    ``factor`` pixels, the edge cells' outer halves hold their value); holes stay holes where
+    less than half the neighbouring weight is real. numpy only: the window needs no scipy.
 
     Parameters
     ----------
@@ -45,19 +46,29 @@ def smooth_upsample(values: np.ndarray, factor: int) -> np.ndarray:
     -------
     (M * factor, N * factor) ndarray of float32
     """
-    from scipy.ndimage import zoom
-
     if factor <= 1:
         return np.asarray(values, dtype=np.float32)
     finite = np.isfinite(values)
-    filled = np.where(finite, values, 0.0)
-    kw = {"zoom": factor, "order": 1, "mode": "nearest", "grid_mode": True}
-    weight = zoom(finite.astype(np.float32), **kw)
-    total = zoom(filled.astype(np.float32), **kw)
+    weight = _bilinear(finite.astype(np.float32), factor)
+    total = _bilinear(np.where(finite, values, 0.0).astype(np.float32), factor)
     with np.errstate(invalid="ignore", divide="ignore"):
         out = total / weight
     out[weight < 0.5] = np.nan
     return out.astype(np.float32)
+
+
+def _bilinear(values: np.ndarray, factor: int) -> np.ndarray:
+    """Linear interpolation between cell centres along both axes, edges held."""
+    for axis in (0, 1):
+        n = values.shape[axis]
+        at = np.clip((np.arange(n * factor) + 0.5) / factor - 0.5, 0, n - 1)
+        low = np.floor(at).astype(int)
+        high = np.minimum(low + 1, n - 1)
+        shape = [1, 1]
+        shape[axis] = -1
+        w = (at - low).astype(np.float32).reshape(shape)
+        values = np.take(values, low, axis=axis) * (1 - w) + np.take(values, high, axis=axis) * w
+    return values
 
 
 def vector_scale(dx_px: np.ndarray, dy_px: np.ndarray, cell_px: float) -> float:
@@ -123,16 +134,3 @@ def picture_levels(shot) -> tuple[float, float]:
     if high <= low:
         high = low + 1.0
     return float(low), float(high)
-
-
-def round_limit(value: float) -> float:
-    """The next value of the 1-2-5 series at or above ``value``: a tidy colour-bar end that stays
-    the same over shots of similar strength (so the scale is comparable and cheap to redraw)."""
-    if value <= 0 or not math.isfinite(value):
-        return 1.0
-    decade = 10.0 ** math.floor(math.log10(value))
-    for step in (1.0, 2.0, 5.0, 10.0):
-        if value <= step * decade * (1 + 1e-9):
-            return step * decade
-    return 10.0 * decade
-

@@ -1,4 +1,5 @@
-"""Undoable review edits: every change to a pick (angle, status, reason, note) is one command.
+"""Undoable review edits: every change to a pick (angle, status, reason, note) is one command,
+and a decision on several shots at once is one command too (``PicksEdit``).
 
 Each command keeps the pick's editable fields before and after the edit and writes them through
 ``SessionModel.apply_pick``, so undo and redo are saved edits too: the store's history records
@@ -15,35 +16,36 @@ from core import WakelineError
 NUDGE_MERGE_ID = 4101  # consecutive nudges of one mark on one shot merge into one undo step
 
 
-class PickEdit(QUndoCommand):
-    """Change some fields of one shot's pick.
+class PicksEdit(QUndoCommand):
+    """Change some fields of the picks of one or more shots: one undo step.
 
     Parameters
     ----------
     model : SessionModel
-    shot_id : str
-    changes : dict
-        New values for a subset of ``status, upper_deg, lower_deg, reason, note``.
+    edits : dict
+        Shot id -> new values for a subset of ``status, upper_deg, lower_deg, reason, note``.
     text : str
         What the Edit menu shows ("Undo <text>").
     """
 
-    def __init__(self, model: SessionModel, shot_id: str, changes: dict, text: str) -> None:
+    def __init__(self, model: SessionModel, edits: dict[str, dict], text: str) -> None:
         super().__init__(text)
         self._model = model
-        self.shot_id = shot_id
-        current = pick_values(model.record(shot_id).pick)
-        self.before = {name: current[name] for name in changes}
-        self.after = dict(changes)
+        self.after = {shot_id: dict(changes) for shot_id, changes in edits.items()}
+        self.before = {}
+        for shot_id, changes in edits.items():
+            current = pick_values(model.record(shot_id).pick)
+            self.before[shot_id] = {name: current[name] for name in changes}
         self._applied = False
 
     def apply(self) -> None:
         """Make the edit now, before the command goes on the undo stack.
 
         A refused edit (``core.WakelineError``) raises here, where the window can report it,
-        instead of inside ``QUndoStack.push`` (Qt cannot pass exceptions back from ``redo``).
+        instead of inside ``QUndoStack.push`` (Qt cannot pass exceptions back from ``redo``);
+        the store then keeps none of it.
         """
-        self._model.apply_pick(self.shot_id, **self.after)
+        self._model.apply_picks(self.after)
         self._applied = True
 
     def redo(self) -> None:
@@ -55,15 +57,24 @@ class PickEdit(QUndoCommand):
     def undo(self) -> None:
         self._apply_from_stack(self.before)
 
-    def _apply_from_stack(self, values: dict) -> None:
+    def _apply_from_stack(self, values: dict[str, dict]) -> None:
         """Qt cannot take an exception back from undo/redo: a refusal (e.g. the session became
         read-only) is reported by signal, the command retired, and the views shown the truth."""
         try:
-            self._model.apply_pick(self.shot_id, **values)
+            self._model.apply_picks(values)
         except WakelineError as exc:
             self.setObsolete(True)
-            self._model.refresh(self.shot_id)
+            for shot_id in values:
+                self._model.refresh(shot_id)
             self._model.edit_refused.emit(str(exc))
+
+
+class PickEdit(PicksEdit):
+    """Change some fields of one shot's pick (``changes``: see ``PicksEdit``)."""
+
+    def __init__(self, model: SessionModel, shot_id: str, changes: dict, text: str) -> None:
+        super().__init__(model, {shot_id: changes}, text)
+        self.shot_id = shot_id
 
 
 class MarkMove(PickEdit):
@@ -98,6 +109,7 @@ class MarkMove(PickEdit):
             return False
         if other.shot_id != self.shot_id or other.side != self.side:
             return False
-        self.after = dict(other.after)
+        self.after = {shot_id: dict(changes) for shot_id, changes in other.after.items()}
         self.setText(other.text())
         return True
+

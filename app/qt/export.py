@@ -3,18 +3,19 @@
 ``install_overview(window)`` docks the overview under the canvas and keeps it in step with the
 session model (clicking a point makes that shot current, which the shot list follows);
 ``install_export_actions(window)`` fills ``window.export_menu`` with the shot sheet (PDF) and
-the table (CSV), the same files ``wakeline sheet`` and ``wakeline table`` write.
+the table (CSV), the same files ``wakeline sheet`` and ``wakeline table`` write. The sheet uses
+the window's vorticity colour range when it is fixed for the session.
 """
 
 from __future__ import annotations
 
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QAction, QKeySequence
-from PySide6.QtWidgets import QApplication, QDockWidget, QFileDialog, QProgressDialog
+from PySide6.QtWidgets import QApplication, QDockWidget, QProgressDialog
 
+from app.qt.file_dialogs import ask_path
 from app.qt.overview import SessionOverview
 from app.review.overview import numeric_columns
-from app.sheet import SheetReport, make_sheet
 from core import WakelineError
 
 
@@ -77,19 +78,20 @@ def _export_dialog(window, title: str, suffix: str, file_filter: str, export) ->
     """Ask where to write, next to the session by default, then ``export(window, path)``."""
     if window.model.session is None:
         return
-    path, _ = QFileDialog.getSaveFileName(window, title, _default_path(window, suffix),
-                                          file_filter)
+    path = ask_path(window, title, _default_path(window, suffix), file_filter, mode="save")
     if path:
         export(window, path)
 
 
-def export_sheet(window, path, **options) -> SheetReport | None:
+def export_sheet(window, path, **options):
     """Write the open session's shot sheet to ``path`` with a cancellable progress dialog.
 
     ``options`` go to ``app.sheet.make_sheet`` (which reads the model's session whole); the
-    overview's column is used unless
-    ``column`` is given. Problems are shown by the window; returns None then or when cancelled.
+    overview's column and the canvas's fixed vorticity range are used unless given. Problems
+    are shown by the window; returns the ``SheetReport``, or None then or when cancelled.
     """
+    from app.sheet import make_sheet  # not needed until a sheet is written (start-up time)
+
     session = window.model.session
     if session is None:
         return None
@@ -97,6 +99,7 @@ def export_sheet(window, path, **options) -> SheetReport | None:
     if ("column" not in options and overview is not None
             and overview.column() in numeric_columns(window.model.records())):
         options["column"] = overview.column()
+    options.setdefault("vorticity_limit_1_s", window.canvas.fixed_limit())
     dialog = QProgressDialog("Writing the shot sheet…", "Cancel", 0, len(session), window)
     dialog.setWindowTitle("Shot sheet")
     dialog.setWindowModality(Qt.WindowModality.WindowModal)

@@ -7,6 +7,8 @@ point emits ``shot_clicked(shot_id)``.
 
 from __future__ import annotations
 
+from functools import cache
+
 import numpy as np
 import pyqtgraph as pg
 from PySide6 import QtCore, QtWidgets
@@ -196,22 +198,22 @@ class SessionOverview(QtWidgets.QWidget):
         self.current_item.setData([pts.drawn_x()[i]] * len(ys), ys)
 
 
+@cache
+def _spot_style(colour: str, filled: bool) -> tuple:
+    """One pen and brush per look: pyqtgraph keeps a symbol image per pen and brush *object*,
+    so new ones for every point would draw every symbol again on each redraw."""
+    return pg.mkPen(colour, width=1.6), pg.mkBrush(colour if filled else "#ffffff")
+
+
 def _spots(pts: OverviewPoints, values: np.ndarray) -> list[dict]:
     spots = []
     xs = pts.drawn_x()
     for i, shot_id in enumerate(pts.shot_ids):
         if not np.isfinite(values[i]):
             continue
-        colour = colours.STATUS_COLOURS[pts.status[i]]
-        filled = bool(pts.is_final[i])
-        spots.append(
-            {
-                "pos": (float(xs[i]), float(values[i])),
-                "data": shot_id,
-                "pen": pg.mkPen(colour, width=1.6),
-                "brush": pg.mkBrush(colour if filled else "#ffffff"),
-            }
-        )
+        pen, brush = _spot_style(colours.STATUS_COLOURS[pts.status[i]], bool(pts.is_final[i]))
+        spots.append({"pos": (float(xs[i]), float(values[i])), "data": shot_id, "pen": pen,
+                      "brush": brush})
     return spots
 
 

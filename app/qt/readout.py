@@ -26,6 +26,7 @@ from PySide6.QtWidgets import (
 
 from app.qt.icons import status_icon
 from app.review import colours
+from app.review.columns import status_text
 from app.review.model import ProcessState, ReviewStatus
 from app.review.text import (
     MISSING,
@@ -56,10 +57,11 @@ def _metadata_text(value) -> str:
 
 
 class NoteEdit(QPlainTextEdit):
-    """Notes field: commits on leaving the field, Ctrl+Return, or Escape (which also leaves it)."""
+    """Notes field: commits on leaving the field, Ctrl+Return or Escape; both keys also leave it,
+    so the next key is a review key again, not a letter of the note."""
 
     committed = Signal(str)
-    escaped = Signal()  # the window hands the keyboard back to the shot list
+    finished = Signal()  # Esc or Ctrl+Return: the window hands the keyboard back to the list
 
     def focusOutEvent(self, event) -> None:
         super().focusOutEvent(event)
@@ -67,11 +69,10 @@ class NoteEdit(QPlainTextEdit):
 
     def keyPressEvent(self, event) -> None:
         ctrl = bool(event.modifiers() & Qt.KeyboardModifier.ControlModifier)
-        if event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter) and ctrl:
+        if event.key() == Qt.Key.Key_Escape or (
+                ctrl and event.key() in (Qt.Key.Key_Return, Qt.Key.Key_Enter)):
             self.committed.emit(self.toPlainText())
-            return
-        if event.key() == Qt.Key.Key_Escape:
-            self.escaped.emit()  # moving the focus away commits (focusOutEvent)
+            self.finished.emit()
             if self.hasFocus():
                 self.clearFocus()
             return
@@ -199,8 +200,8 @@ class ReadoutPanel(QWidget):
         self.reason.setWordWrap(True)
         box.addWidget(self.reason)
         self.note = NoteEdit(group)
-        self.note.setPlaceholderText("Notes on this shot (saved when you leave the field, "
-                                     "Ctrl+Return, or Esc)")
+        self.note.setPlaceholderText("Notes on this shot (saved when you leave the field: "
+                                     "Ctrl+Return or Esc)")
         self.note.setFixedHeight(72)
         self.note.committed.connect(self._on_note_committed)
         box.addWidget(self.note)
@@ -241,8 +242,11 @@ class ReadoutPanel(QWidget):
             self._clear()
             return
         self.title.setText(f"Shot {record.shot_id}")
-        status = record.pick.status
-        self.status_icon.setPixmap(status_icon(status).pixmap(18, 18))
+        status = status_text(record)
+        if status == record.pick.status:
+            self.status_icon.setPixmap(status_icon(status).pixmap(18, 18))
+        else:  # not processed (or failed) yet: nothing decided, no status icon
+            self.status_icon.clear()
         self.status_label.setText(status)
         self._show_problem(record)
         self._show_angles(record)
@@ -363,7 +367,10 @@ class ReadoutPanel(QWidget):
             self.reason.clear()
         self.reason.setVisible(bool(self.reason.text()))
         self._set_note(pick.note)
-        self.last_edit.setText(f"last edit {pick.when} by {pick.who}" if pick.when else "")
+        lines = [f"{pick.status} {_stamp(pick.when)} by {pick.who}"] if pick.when else []
+        if pick.note and pick.note_when:  # the note has its own author and time
+            lines.append(f"note {_stamp(pick.note_when)} by {pick.note_who}")
+        self.last_edit.setText("\n".join(lines))
 
     def _unsaved_note(self) -> str | None:
         text = self.note.toPlainText()
@@ -378,6 +385,11 @@ class ReadoutPanel(QWidget):
         if self._shot_id and text != self._note_shown:
             self._note_shown = text
             self.note_committed.emit(text)
+
+
+def _stamp(when: str) -> str:
+    """``2026-12-02 05:03 UTC`` from the stored ISO time."""
+    return f"{when[:16].replace('T', ' ')} UTC" if when else ""
 
 
 def _side_colour(side: str) -> str:

@@ -1,13 +1,15 @@
-"""The shot list: every shot of the session with its review status, angles and processing state.
+"""The shot list: every shot of the session with its review status, angles, measured values and
+metadata, sortable on any column and filtered by status and by conditions on any value.
 
 A table model over the session's cheap per-shot records (no field data is read), a sort/filter
-proxy, and the panel that holds them. Updates after an edit or a finished shot touch one row, so
-a session of hundreds of shots stays responsive.
+proxy, and the panel that holds them. The columns and the filter's words are
+``app.review.columns``; which columns show is the analyst's choice (right-click the header).
+Updates after an edit or a finished shot touch one row, so a session of hundreds of shots stays
+responsive. Several rows can be selected (Shift/Ctrl) to decide them at once.
 """
 
 from __future__ import annotations
 
-import math
 import re
 
 from PySide6.QtCore import (
@@ -18,7 +20,7 @@ from PySide6.QtCore import (
     Qt,
     Signal,
 )
-from PySide6.QtGui import QBrush, QColor, QFont
+from PySide6.QtGui import QAction, QBrush, QColor, QFont
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QComboBox,
@@ -26,6 +28,7 @@ from PySide6.QtWidgets import (
     QHeaderView,
     QLabel,
     QLineEdit,
+    QMenu,
     QTableView,
     QVBoxLayout,
     QWidget,
@@ -33,17 +36,29 @@ from PySide6.QtWidgets import (
 
 from app.qt.icons import state_icon, status_icon
 from app.review import colours
+from app.review.columns import (
+    ALL_SHOTS,
+    MEASURED,
+    STATUS_FILTERS,
+    Column,
+    ShotQuery,
+    filter_help,
+    matches_status,
+    metadata_column,
+    metadata_keys,
+    parse_filter,
+    status_text,
+)
 from app.review.model import ProcessState, ReviewStatus, SessionModel
-from app.review.text import angle_text
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
-COLUMNS = ("", "Shot", "Status", "Upper", "Lower", "Seam °")
-COL_STATE, COL_SHOT, COL_STATUS, COL_UPPER, COL_LOWER, COL_SEAM = range(len(COLUMNS))
-
-ALL_SHOTS = "all shots"
-#: the filter's choices: every shot, a review status, or a processing state
-STATUS_FILTERS = (ALL_SHOTS, *ReviewStatus, ProcessState.FAILED, ProcessState.UNPROCESSED)
-_CONDITION = re.compile(r"^\s*([A-Za-z_][\w]*)\s*(<=|>=|=|<|>|:)\s*(\S+)\s*$")
+#: the columns every session has; measured values and metadata columns follow
+FIXED = (("", "state", "processing state: cracked outline = failed, dashed outline = not "
+          "processed yet"), ("Shot", "shot", "shot id"), ("Status", "status", "review status"))
+COL_STATE, COL_SHOT, COL_STATUS = range(len(FIXED))
+DEFAULT_COLUMNS = ("upper_deg", "lower_deg", "seam_deg")
+_WIDTHS = {COL_STATE: 22, COL_SHOT: 56, COL_STATUS: 92}
+_RIGHT = int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
 
 
 class ShotTableModel(QAbstractTableModel):
@@ -55,6 +70,7 @@ class ShotTableModel(QAbstractTableModel):
         self._ids: list[str] = []
         self._row_of: dict[str, int] = {}
         self._keys: dict[str, tuple] = {}
+        self._columns: list[Column] = list(MEASURED)
         self._italic = QFont()
         self._italic.setItalic(True)
         self._muted = QBrush(QColor(colours.MUTED_INK))
@@ -65,14 +81,16 @@ class ShotTableModel(QAbstractTableModel):
         self.beginResetModel()
         self._ids = self._model.shot_ids()
         self._row_of = {sid: row for row, sid in enumerate(self._ids)}
-        self._keys: dict[str, tuple] = {}
+        self._keys = {}
+        records = self._model.records()
+        self._columns = list(MEASURED) + [metadata_column(k) for k in metadata_keys(records)]
         self.endResetModel()
 
     def _on_record_changed(self, shot_id: str) -> None:
         row = self._row_of.get(shot_id)
         self._keys.pop(shot_id, None)
         if row is not None:
-            self.dataChanged.emit(self.index(row, 0), self.index(row, len(COLUMNS) - 1))
+            self.dataChanged.emit(self.index(row, 0), self.index(row, self.columnCount() - 1))
 
     def shot_id(self, row: int) -> str:
         return self._ids[row]
@@ -80,18 +98,33 @@ class ShotTableModel(QAbstractTableModel):
     def row_of(self, shot_id: str) -> int:
         return self._row_of.get(shot_id, -1)
 
+    def column_name(self, col: int) -> str:
+        """The filter's word for a column (``shot``, ``status``, ``upper_deg``, ``seam_deg``)."""
+        return FIXED[col][1] if col < len(FIXED) else self._columns[col - len(FIXED)].name
+
+    def column_of(self, name: str) -> int:
+        """The column named ``name``, or -1."""
+        names = [self.column_name(c) for c in range(self.columnCount())]
+        return names.index(name) if name in names else -1
+
+    def _column(self, col: int) -> Column | None:
+        return self._columns[col - len(FIXED)] if col >= len(FIXED) else None
+
     # -- QAbstractTableModel -----------------------------------------------------------------
     def rowCount(self, parent=QModelIndex()) -> int:  # noqa: B008 - Qt's signature
         return 0 if parent.isValid() else len(self._ids)
 
     def columnCount(self, parent=QModelIndex()) -> int:  # noqa: B008
-        return 0 if parent.isValid() else len(COLUMNS)
+        return 0 if parent.isValid() else len(FIXED) + len(self._columns)
 
     def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):
-        if orientation == Qt.Orientation.Horizontal and role == Qt.ItemDataRole.DisplayRole:
-            return COLUMNS[section]
-        if orientation == Qt.Orientation.Horizontal and role == Qt.ItemDataRole.ToolTipRole:
-            return _HEADER_TIPS[section]
+        if orientation != Qt.Orientation.Horizontal:
+            return None
+        column = self._column(section)
+        if role == Qt.ItemDataRole.DisplayRole:
+            return FIXED[section][0] if column is None else column.header
+        if role == Qt.ItemDataRole.ToolTipRole:
+            return FIXED[section][2] if column is None else f"{column.name}: {column.tip}"
         return None
 
     def data(self, index: QModelIndex, role=Qt.ItemDataRole.DisplayRole):
@@ -99,67 +132,57 @@ class ShotTableModel(QAbstractTableModel):
             return None
         rec = self._model.record(self._ids[index.row()])
         col = index.column()
+        column = self._column(col)
         if role == Qt.ItemDataRole.DisplayRole:
-            return self._display(rec, col)
+            return self._display(rec, col, column)
         if role == SORT_ROLE:
             keys = self._keys.get(rec.shot_id)
             if keys is None:  # sorting asks many times per row: keep the keys until it changes
                 keys = self._keys[rec.shot_id] = tuple(
-                    self._sort_key(rec, c) for c in range(len(COLUMNS)))
+                    self._sort_key(rec, c) for c in range(self.columnCount()))
             return keys[col]
         if role == Qt.ItemDataRole.DecorationRole:
             if col == COL_STATE:
                 return state_icon(rec.state)
-            if col == COL_STATUS:
+            if col == COL_STATUS and status_text(rec) == rec.pick.status:
                 return status_icon(rec.pick.status)
         if role == Qt.ItemDataRole.ToolTipRole:
             return self._tooltip(rec)
-        if (
-            role in (Qt.ItemDataRole.FontRole, Qt.ItemDataRole.ForegroundRole)
-            and col in (COL_UPPER, COL_LOWER)
-            and rec.final_deg(_side(col)) is None
-        ):
+        if role in (Qt.ItemDataRole.FontRole, Qt.ItemDataRole.ForegroundRole) and _proposal_only(
+                rec, column):
             return self._italic if role == Qt.ItemDataRole.FontRole else self._muted
-        if role == Qt.ItemDataRole.TextAlignmentRole and col in (COL_UPPER, COL_LOWER, COL_SEAM):
-            return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+        if role == Qt.ItemDataRole.TextAlignmentRole and column is not None and (
+                column.kind != "metadata" or column.value(rec) is not None):
+            return _RIGHT  # numbers line up on the right
         return None
 
     @staticmethod
-    def _angle(rec, side: str) -> float | None:
-        """Final angle when decided, else the proposal (shown in italics)."""
-        if rec.pick.status == ReviewStatus.UNUSABLE:
-            return None
-        return rec.shown_deg(side)
-
-    def _display(self, rec, col: int):
+    def _display(rec, col: int, column: Column | None):
         if col == COL_SHOT:
             return rec.shot_id
         if col == COL_STATUS:
-            return rec.pick.status
-        if col in (COL_UPPER, COL_LOWER):
-            return angle_text(self._angle(rec, _side(col)))
-        if col == COL_SEAM:
-            seam = _number(rec.metadata.get("seam_deg"))
-            return "" if seam is None else f"{seam:g}"
-        return None
+            return status_text(rec)
+        return None if column is None else column.text(rec)
 
     def _sort_key(self, rec, col: int):
+        """Numbers before text before nothing, so empty cells gather at one end."""
         if col == COL_STATE:
-            return (ProcessState.FAILED, ProcessState.UNPROCESSED, ProcessState.PROCESSED).index(
-                rec.state)
+            return (0, (ProcessState.FAILED, ProcessState.UNPROCESSED, ProcessState.PROCESSED)
+                    .index(rec.state))
         if col == COL_SHOT:
-            return _natural_key(rec.shot_id)
+            return (0, _natural_key(rec.shot_id))
         if col == COL_STATUS:
-            return rec.pick.status
-        if col in (COL_UPPER, COL_LOWER):
-            value = self._angle(rec, _side(col))
-            return math.inf if value is None else value
-        seam = _number(rec.metadata.get("seam_deg"))
-        return math.inf if seam is None else seam
+            return (1, status_text(rec))
+        column = self._column(col)
+        number = column.value(rec)
+        if number is not None:
+            return (0, number)
+        text = column.text(rec)
+        return (1, text) if text else (2, "")
 
     @staticmethod
     def _tooltip(rec) -> str:
-        lines = [f"shot {rec.shot_id}: {rec.state}, {rec.pick.status}"]
+        lines = [f"shot {rec.shot_id}: {status_text(rec)}"]
         if rec.state == ProcessState.FAILED and rec.failure:
             lines.append(f"failed: {rec.failure}")
         if rec.pick.status == ReviewStatus.UNUSABLE and rec.pick.reason:
@@ -169,26 +192,10 @@ class ShotTableModel(QAbstractTableModel):
         return "\n".join(lines)
 
 
-_HEADER_TIPS = (
-    "processing state: cracked outline = failed, dashed outline = not processed yet",
-    "shot id",
-    "review status",
-    "upper separation angle, deg from the plane normal to the flight (italic: proposal only)",
-    "lower separation angle, deg from the plane normal to the flight (italic: proposal only)",
-    "seam angle from the shot metadata, deg",
-)
-
-
-def _side(col: int) -> str:
-    return "upper" if col == COL_UPPER else "lower"
-
-
-def _number(value) -> float | None:
-    try:
-        out = float(value)
-    except (TypeError, ValueError):
-        return None
-    return out if math.isfinite(out) else None
+def _proposal_only(rec, column: Column | None) -> bool:
+    """An angle column showing the machine's proposal, not a decided angle (drawn in italics)."""
+    side = {"upper_deg": "upper", "lower_deg": "lower"}.get(getattr(column, "name", ""))
+    return side is not None and rec.final_deg(side) is None
 
 
 def _natural_key(text: str):
@@ -198,20 +205,22 @@ def _natural_key(text: str):
 
 
 class ShotFilter(QSortFilterProxyModel):
-    """Filters shots by status/state and by a condition on metadata or a piece of the shot id.
-
-    The text filter takes ``key<value``, ``key>value``, ``key<=value``, ``key>=value``,
-    ``key=value`` or ``key:low..high`` on any metadata column (e.g. ``seam_deg:10..30``);
-    anything else matches part of the shot id.
-    """
+    """Filters shots by status/state and by the words of ``app.review.columns.parse_filter``."""
 
     def __init__(self, session_model: SessionModel, parent=None) -> None:
         super().__init__(parent)
         self._model = session_model
         self._status = ALL_SHOTS
         self._text = ""
+        self.query = ShotQuery([], [])
         self.setSortRole(SORT_ROLE)
         self.setDynamicSortFilter(True)
+        session_model.session_changed.connect(self._reparse)
+
+    @property
+    def problem(self) -> str:
+        """Why the filter matches nothing ("" when it reads well)."""
+        return self.query.problem
 
     def set_status(self, status: str) -> None:
         if status not in STATUS_FILTERS:
@@ -226,55 +235,34 @@ class ShotFilter(QSortFilterProxyModel):
         if text != self._text:
             self.beginFilterChange()
             self._text = text
+            self.query = parse_filter(text, self._model.records())
             self.endFilterChange()
 
+    def _reparse(self) -> None:
+        """A new session has other metadata columns: read the words again."""
+        self.beginFilterChange()
+        self.query = parse_filter(self._text, self._model.records())
+        self.endFilterChange()
+
     def filterAcceptsRow(self, source_row: int, source_parent: QModelIndex) -> bool:
-        source = self.sourceModel()
-        rec = self._model.record(source.shot_id(source_row))
-        if self._status in (ProcessState.FAILED, ProcessState.UNPROCESSED):
-            if rec.state != self._status:
-                return False
-        elif self._status != ALL_SHOTS and rec.pick.status != self._status:
-            return False
-        return _text_matches(self._text, rec)
+        rec = self._model.record(self.sourceModel().shot_id(source_row))
+        return matches_status(rec, self._status) and self.query.matches(rec)
 
     def lessThan(self, left: QModelIndex, right: QModelIndex) -> bool:
-        a, b = left.data(SORT_ROLE), right.data(SORT_ROLE)
-        try:
-            return a < b
-        except TypeError:
-            return str(a) < str(b)
-
-
-def _text_matches(text: str, rec) -> bool:
-    if not text:
-        return True
-    match = _CONDITION.match(text)
-    if match is None:
-        return text.lower() in rec.shot_id.lower()
-    key, op, value = match.groups()
-    have = rec.metadata.get(key)
-    if op == ":":
-        low, _, high = value.partition("..")
-        number = _number(have)
-        lo, hi = _number(low), _number(high)
-        return number is not None and lo is not None and hi is not None and lo <= number <= hi
-    want, number = _number(value), _number(have)
-    if op == "=":
-        return str(have) == value if want is None or number is None else number == want
-    if want is None or number is None:
-        return False
-    return {"<": number < want, ">": number > want, "<=": number <= want, ">=": number >= want}[op]
+        return left.data(SORT_ROLE) < right.data(SORT_ROLE)
 
 
 class ShotListPanel(QWidget):
-    """Left panel: filter controls over the shot table. Emits ``shot_selected`` on a new row."""
+    """Left panel: filter controls over the shot table. Emits ``shot_selected`` on a new row and
+    ``columns_changed`` when the analyst shows or hides a column."""
 
     shot_selected = Signal(str)
+    columns_changed = Signal()
 
     def __init__(self, session_model: SessionModel, parent=None) -> None:
         super().__init__(parent)
         self._model = session_model
+        self._shown_columns = set(DEFAULT_COLUMNS)
         self.table_model = ShotTableModel(session_model, self)
         self.proxy = ShotFilter(session_model, self)
         self.proxy.setSourceModel(self.table_model)
@@ -285,10 +273,11 @@ class ShotListPanel(QWidget):
         self.status_filter.addItems(STATUS_FILTERS)
         self.status_filter.setToolTip("show only shots with this review status or state")
         self.text_filter = QLineEdit(self)
-        self.text_filter.setPlaceholderText("filter: shot id, or seam_deg:10..30, speed_m_s>30")
+        self.text_filter.setPlaceholderText("filter: speed_m_s>30 seam_deg:10..30 quality<0.5")
         self.text_filter.setClearButtonEnabled(True)
-        self.text_filter.setToolTip(_filter_help())
+        self.text_filter.setToolTip(filter_help())
         self.count_label = QLabel(self)
+        self.count_label.setWordWrap(True)
         self.setMinimumWidth(240)
         self.status_filter.setMaximumWidth(120)
         self._layout()
@@ -296,17 +285,18 @@ class ShotListPanel(QWidget):
         self.text_filter.textChanged.connect(self._on_text_filter)
         self.text_filter.returnPressed.connect(self.view.setFocus)
         self.view.selectionModel().currentRowChanged.connect(self._on_current_row)
+        self.view.selectionModel().selectionChanged.connect(self._update_count)
         session_model.current_changed.connect(self._on_current_changed)
         session_model.session_changed.connect(self._update_count)
-        self.proxy.rowsInserted.connect(self._update_count)
-        self.proxy.rowsRemoved.connect(self._update_count)
-        self.proxy.modelReset.connect(self._update_count)
-        self.proxy.layoutChanged.connect(self._update_count)
+        self.table_model.modelReset.connect(self._apply_columns)
+        for signal in (self.proxy.rowsInserted, self.proxy.rowsRemoved, self.proxy.modelReset,
+                       self.proxy.layoutChanged):
+            signal.connect(self._update_count)
 
     def _setup_view(self) -> None:
         view = self.view
         view.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
-        view.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
+        view.setSelectionMode(QAbstractItemView.SelectionMode.ExtendedSelection)
         view.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
         view.setSortingEnabled(True)
         view.sortByColumn(COL_SHOT, Qt.SortOrder.AscendingOrder)
@@ -319,8 +309,10 @@ class ShotListPanel(QWidget):
         header.setHighlightSections(False)
         header.setSectionResizeMode(QHeaderView.ResizeMode.Interactive)
         header.setStretchLastSection(True)
-        for col, width in zip(range(len(COLUMNS)), (22, 56, 92, 54, 54, 46)):
-            view.setColumnWidth(col, width)
+        header.setDefaultSectionSize(54)
+        header.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
+        header.customContextMenuRequested.connect(self._column_menu)
+        self._apply_columns()
 
     def _layout(self) -> None:
         top = QHBoxLayout()
@@ -332,6 +324,53 @@ class ShotListPanel(QWidget):
         box.addLayout(top)
         box.addWidget(self.view, 1)
         box.addWidget(self.count_label)
+
+    # -- columns -----------------------------------------------------------------------------
+    def shown_columns(self) -> list[str]:
+        """Names of the value columns shown (besides state, shot and status), in list order."""
+        model = self.table_model
+        return [model.column_name(c) for c in range(len(FIXED), model.columnCount())
+                if not self.view.isColumnHidden(c)]
+
+    def wanted_columns(self) -> list[str]:
+        """Every column the analyst asked to see, this session's or not (what the window keeps)."""
+        return sorted(self._shown_columns)
+
+    def show_columns(self, names) -> None:
+        """Show these value columns and hide the others (names a session lacks are kept for the
+        next session that has them)."""
+        self._shown_columns = set(names)
+        self._apply_columns()
+
+    def _apply_columns(self) -> None:
+        for col in range(self.table_model.columnCount()):
+            name = self.table_model.column_name(col)
+            self.view.setColumnHidden(col, col >= len(FIXED) and name not in self._shown_columns)
+            self.view.setColumnWidth(col, _WIDTHS.get(col, 54))
+
+    def _column_menu(self, pos) -> QMenu:
+        """The header's menu: every column, checked when shown (the list keeps the choice)."""
+        menu = QMenu(self)
+        model = self.table_model
+        for col in range(len(FIXED), model.columnCount()):
+            name = model.column_name(col)
+            action = QAction(f"{model.headerData(col, Qt.Orientation.Horizontal)}  ({name})",
+                             menu)
+            action.setCheckable(True)
+            action.setChecked(not self.view.isColumnHidden(col))
+            action.setToolTip(model.headerData(col, Qt.Orientation.Horizontal,
+                                               Qt.ItemDataRole.ToolTipRole))
+            action.toggled.connect(lambda on, n=name: self._toggle_column(n, on))
+            menu.addAction(action)
+        menu.setToolTipsVisible(True)
+        if pos is not None:
+            menu.popup(self.view.horizontalHeader().mapToGlobal(pos))
+        return menu
+
+    def _toggle_column(self, name: str, shown: bool) -> None:
+        (self._shown_columns.add if shown else self._shown_columns.discard)(name)
+        self._apply_columns()
+        self.columns_changed.emit()
 
     # -- slots -------------------------------------------------------------------------------
     def _on_status_filter(self, text: str) -> None:
@@ -349,9 +388,14 @@ class ShotListPanel(QWidget):
     def _update_count(self, *_args) -> None:
         total = len(self._model.shot_ids())
         shown = self.proxy.rowCount()
-        self.count_label.setText(
-            f"{total} shots" if shown == total else f"{shown} of {total} shots shown"
-        )
+        problem = self.proxy.problem
+        text = f"{total} shots" if shown == total else f"{shown} of {total} shots shown"
+        selected = len(self.view.selectionModel().selectedRows())
+        if selected > 1:
+            text += f", {selected} selected (a decision key decides them all)"
+        self.count_label.setText(f"{text}; filter: {problem}" if problem else text)
+        self.count_label.setStyleSheet(
+            f"color: {colours.STATUS_COLOURS[ReviewStatus.UNUSABLE]};" if problem else "")
 
     def _on_current_row(self, current: QModelIndex, _previous: QModelIndex) -> None:
         if current.isValid():
@@ -368,21 +412,44 @@ class ShotListPanel(QWidget):
         index = self.proxy.mapFromSource(self.table_model.index(row, COL_SHOT))
         if not index.isValid() or index == self.view.currentIndex():
             return
-        flags = (
-            QItemSelectionModel.SelectionFlag.ClearAndSelect
-            | QItemSelectionModel.SelectionFlag.Rows
-        )
+        self._make_current(index)
+
+    def _make_current(self, index: QModelIndex) -> None:
+        flags = (QItemSelectionModel.SelectionFlag.ClearAndSelect
+                 | QItemSelectionModel.SelectionFlag.Rows)
         self.view.selectionModel().setCurrentIndex(index, flags)
         self.view.scrollTo(index)
 
-    # -- stepping ----------------------------------------------------------------------------
+    # -- stepping and selection --------------------------------------------------------------
     def visible_ids(self) -> list[str]:
         """Shot ids in the order shown (after sorting and filtering)."""
-        out = []
+        return [self._id_at(row) for row in range(self.proxy.rowCount())]
+
+    def _id_at(self, proxy_row: int) -> str:
+        source = self.proxy.mapToSource(self.proxy.index(proxy_row, COL_SHOT))
+        return self.table_model.shot_id(source.row())
+
+    def selected_ids(self) -> list[str]:
+        """The selected shots in the order shown (the current one when none is selected)."""
+        rows = sorted(i.row() for i in self.view.selectionModel().selectedRows(COL_SHOT))
+        return [self._id_at(row) for row in rows]
+
+    def select_ids(self, shot_ids) -> None:
+        """Select these shots (shown ones only); the first becomes current."""
+        wanted = set(shot_ids)
+        selection = self.view.selectionModel()
+        selection.clearSelection()
+        flags = (QItemSelectionModel.SelectionFlag.Select
+                 | QItemSelectionModel.SelectionFlag.Rows)
+        first = None
         for row in range(self.proxy.rowCount()):
-            source = self.proxy.mapToSource(self.proxy.index(row, COL_SHOT))
-            out.append(self.table_model.shot_id(source.row()))
-        return out
+            if self._id_at(row) in wanted:
+                index = self.proxy.index(row, COL_SHOT)
+                first = first or index
+                selection.select(index, flags)
+        if first is not None:
+            selection.setCurrentIndex(first, QItemSelectionModel.SelectionFlag.NoUpdate)
+            self.shot_selected.emit(self._id_at(first.row()))
 
     def neighbour(self, shot_id: str, offset: int) -> str:
         """The shot ``offset`` rows from ``shot_id`` in the shown order ("" when none)."""
@@ -393,8 +460,7 @@ class ShotListPanel(QWidget):
         target = index.row() + offset
         if not index.isValid() or not 0 <= target < self.proxy.rowCount():
             return ""
-        source = self.proxy.mapToSource(self.proxy.index(target, COL_SHOT))
-        return self.table_model.shot_id(source.row())
+        return self._id_at(target)
 
     def step(self, offset: int) -> None:
         """Make the shot ``offset`` rows below (negative: above) the current one current."""
@@ -403,19 +469,4 @@ class ShotListPanel(QWidget):
             return
         current = self.view.currentIndex()
         row = current.row() + offset if current.isValid() else (0 if offset > 0 else rows - 1)
-        row = max(0, min(rows - 1, row))
-        flags = (
-            QItemSelectionModel.SelectionFlag.ClearAndSelect
-            | QItemSelectionModel.SelectionFlag.Rows
-        )
-        index = self.proxy.index(row, COL_SHOT)
-        self.view.selectionModel().setCurrentIndex(index, flags)
-        self.view.scrollTo(index)
-
-
-def _filter_help() -> str:
-    return (
-        "Type part of a shot id, or a condition on a metadata column:\n"
-        "  seam_deg:10..30   (range, inclusive)\n"
-        "  speed_m_s>30   seam_deg<=0   ball_type=cricket"
-    )
+        self._make_current(self.proxy.index(max(0, min(rows - 1, row)), COL_SHOT))

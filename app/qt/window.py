@@ -39,7 +39,9 @@ from PySide6.QtWidgets import (
 
 from app.qt.canvas import ShotCanvas
 from app.qt.export import install_export_actions, install_overview
+from app.qt.picture_export import install_picture_actions
 from app.qt.icons import app_icon, status_icon
+from app.qt.platform_libs import platform_problem
 from app.qt.readout import ReadoutPanel
 from app.qt.shot_list import ShotListPanel
 from app.qt.window_jobs import JobActions
@@ -47,6 +49,7 @@ from app.qt.window_review import ReviewActions
 from app.qt.window_session import SessionActions
 from app.qt.workers import BackgroundJob
 from app.review.model import MANIFEST_NAME, ReviewStatus, SessionModel
+from core import WakelineError
 from core.paths import user_data_dir
 
 log = logging.getLogger("wakeline.window")
@@ -54,6 +57,7 @@ log = logging.getLogger("wakeline.window")
 ORGANISATION = "wakeline"
 APPLICATION = "wakeline"
 NUDGE_DEG = 0.5
+PREFETCH_DELAY_MS = 60
 FINE_NUDGE_DEG = 0.1
 
 # (action key, menu text, shortcut, tip) of the review keys; shown in Help > Keyboard shortcuts
@@ -104,7 +108,8 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self._prefetch_id = ""
         self._prefetch_timer = QTimer(self)
         self._prefetch_timer.setSingleShot(True)
-        self._prefetch_timer.setInterval(0)
+        # read ahead once the analyst pauses on a shot: a held-down key pays no extra reads
+        self._prefetch_timer.setInterval(PREFETCH_DELAY_MS)
         self._prefetch_timer.timeout.connect(self._prefetch)
         self._message_boxes: list[QMessageBox] = []
         self.setWindowIcon(app_icon())
@@ -116,6 +121,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self._connect()
         install_overview(self)
         install_export_actions(self)
+        install_picture_actions(self)
         self._restore_settings()
         self._update_title()
         self._update_enabled()
@@ -194,12 +200,22 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.act_prev = a("&Previous shot", lambda: self.shot_list.step(-1), "P",
                           "previous shot in the list (also Up in the list)")
         self.act_next_open = a("Next shot &to review", self.next_to_review, "Shift+N")
+        self.act_advance = a("&Go on to the next shot to review after a decision",
+                             self._on_advance_toggled, checkable=True,
+                             tip="after A, D or U the next shot still to review becomes current")
         self.act_picture = a("Cycle &picture (A, B, flicker, none)", self.canvas.cycle_picture,
                              "F")
         self.act_vectors = a("Toggle &vectors", self.canvas.vectors_box.toggle, "V")
         self.act_vorticity = a("Toggle v&orticity", self.canvas.vorticity_box.toggle, "W")
         self.act_marks = a("Toggle separation &marks", self.canvas.marks_box.toggle, "M")
         self.act_side = a("&Side by side", self.canvas.side_box.toggle, "S")
+        self.act_keep = a("&Keep this shot for comparison", self.keep_for_comparison, "K",
+                          "show this shot beside the others (side by side, same colour range, "
+                          "zoom linked); K again on it lets it go")
+        self.act_fixed_range = a("Fi&xed vorticity range for the session",
+                                 self.canvas.fixed_box.toggle,
+                                 tip="the colour range stays as set for every shot and on the "
+                                 "shot sheet; off: each shot gets its own")
         self.act_fit = a("&Fit shot in view", lambda: self.canvas.view.autoRange(padding=0.02),
                          "Ctrl+0")
         self.act_process = a("&Process shots that need it", lambda: self.start_processing(),
@@ -229,7 +245,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         file_menu.addSeparator()
         file_menu.addAction(self.act_close)
         file_menu.addAction(self.act_quit)
-        edit = menu.addMenu("&Edit")
+        edit = self.edit_menu = menu.addMenu("&Edit")
         edit.addAction(self.act_undo)
         edit.addAction(self.act_redo)
         review = menu.addMenu("&Review")
@@ -241,9 +257,12 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         review.addSeparator()
         for action in (self.act_next, self.act_prev, self.act_next_open):
             review.addAction(action)
+        review.addSeparator()
+        review.addAction(self.act_advance)
         view = self.view_menu = menu.addMenu("&View")
-        for action in (self.act_picture, self.act_vectors, self.act_vorticity, self.act_marks,
-                       self.act_side, self.act_fit):
+        for action in (self.act_picture, self.act_vectors, self.act_vorticity,
+                       self.act_fixed_range, self.act_marks, self.act_side, self.act_keep,
+                       self.act_fit):
             view.addAction(action)
         process = menu.addMenu("&Process")
         for action in (self.act_process, self.act_reprocess, self.act_cancel, self.act_check):
@@ -268,7 +287,9 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.canvas.mark_cancelled.connect(lambda _side: self.readout.show_current())
         self.canvas.layers_changed.connect(self._save_layers)
         self.readout.note_committed.connect(self._on_note_committed)
-        self.readout.note.escaped.connect(self.shot_list.view.setFocus)
+        self.readout.note.finished.connect(self.shot_list.view.setFocus)
+        self.shot_list.columns_changed.connect(lambda: self.settings.setValue(
+            "shot_list/columns", self.shot_list.wanted_columns()))
         self.undo_stack.indexChanged.connect(lambda _i: self._update_enabled())
 
     # -- settings ----------------------------------------------------------------------------
@@ -288,15 +309,25 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
                 self.canvas.restore_layers(json.loads(layers))
             except (ValueError, TypeError):
                 log.warning("ignoring unreadable saved canvas layers")
-        auto = self.settings.value("processing/auto_on_open", True)
-        self.act_auto.setChecked(str(auto).lower() in ("true", "1"))
+        self.act_auto.setChecked(self._flag("processing/auto_on_open"))
+        self.act_advance.setChecked(self._flag("review/advance_after_decision"))
+        columns = self.settings.value("shot_list/columns")
+        if columns is not None:
+            self.shot_list.show_columns([columns] if isinstance(columns, str) else columns)
         self._rebuild_recent()
+
+    def _flag(self, key: str, default: bool = True) -> bool:
+        """A yes/no preference (QSettings' INI file gives text back)."""
+        return str(self.settings.value(key, default)).lower() in ("true", "1")
 
     def _save_layers(self) -> None:
         self.settings.setValue("canvas/layers", json.dumps(self.canvas.layer_state()))
 
     def _on_auto_toggled(self, checked: bool) -> None:
         self.settings.setValue("processing/auto_on_open", bool(checked))
+
+    def _on_advance_toggled(self, checked: bool) -> None:
+        self.settings.setValue("review/advance_after_decision", bool(checked))
 
     def _workers(self) -> int | None:
         if self._workers_override is not None:
@@ -386,6 +417,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, QMainWindow):
         self.settings.setValue("window/docks", self.saveState())
         self._save_layers()
         self.settings.sync()
+        self.hide()  # gone at once; folding the journal into the file may take a moment
         self.close_session()
         for box in list(self._message_boxes):
             box.close()
@@ -433,7 +465,17 @@ def install_excepthook(window: MainWindow) -> None:
 
 
 def run_window(session_path: str | None = None) -> int:
-    """Open the review window (optionally with a session) and run until it is closed."""
+    """Open the review window on a session (None: the last one) and run until it is closed.
+
+    Raises
+    ------
+    core.WakelineError
+        When Qt's platform plugin cannot load here (names the Debian packages to install).
+    """
+    if QApplication.instance() is None:
+        problem = platform_problem()
+        if problem:
+            raise WakelineError(problem)
     app = QApplication.instance() or QApplication(sys.argv)
     app.setOrganizationName(ORGANISATION)
     app.setApplicationName(APPLICATION)
@@ -444,8 +486,8 @@ def run_window(session_path: str | None = None) -> int:
     previous_hook = sys.excepthook
     install_excepthook(window)
     window.show()
-    if session_path:
-        QTimer.singleShot(0, lambda: window.open_session(session_path))
+    QTimer.singleShot(0, lambda: window.open_session(session_path) if session_path
+                      else window.reopen_last_session())
     try:
         return int(app.exec())
     finally:

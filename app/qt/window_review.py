@@ -1,18 +1,20 @@
 """The review window's review: showing the current shot on the canvas and the readout, and the
-analyst's edits (status keys, nudges, dragged marks, notes) as undoable commands. A part of
-``MainWindow`` (``app.qt.window``).
+analyst's edits (decisions on one or several shots, nudges, dragged marks, notes) as undoable
+commands. A part of ``MainWindow`` (``app.qt.window``).
 """
 
 from __future__ import annotations
 
 import logging
 
-from PySide6.QtWidgets import QInputDialog
+from PySide6.QtWidgets import QInputDialog, QMessageBox
 
 from app.qt.canvas import CanvasShot
-from app.qt.commands import MarkMove, PickEdit
-from app.review.marks import mark_angles
-from app.review.model import ProcessState, ReviewStatus
+from app.qt.commands import MarkMove, PickEdit, PicksEdit
+from app.review.columns import reviewable
+from app.review.marks import mark_angles, moved_from_proposal
+from app.review.model import ProcessState, ReviewStatus, pick_values
+from app.review.text import OTHER_REASON, UNUSABLE_REASONS, angle_text
 from core import WakelineError
 from core.geometry import SIDES
 
@@ -24,6 +26,7 @@ class ReviewActions:
 
     def _on_session_changed(self) -> None:
         self._shown_key = None
+        self.canvas.keep_for_comparison(None)
         self._update_title()
         self._update_enabled()
         if self.model.session is None:
@@ -35,6 +38,7 @@ class ReviewActions:
         self._previous_id = shot_id
         self._show_current(full=True)
         self._update_enabled()
+        self._remember_last_shot(shot_id)
         if shot_id:
             # read the next shot in the direction of travel while the analyst looks at this one
             back = bool(previous) and self.shot_list.neighbour(shot_id, 1) == previous
@@ -49,6 +53,20 @@ class ReviewActions:
         if shot_id == self.model.current_id:
             self._show_current(full=False)
             self._update_enabled()
+        reference = self.canvas.reference
+        if reference is not None and reference.shot_id == shot_id:
+            self.canvas.update_reference_marks(*mark_angles(self.model.record(shot_id)))
+
+    def keep_for_comparison(self) -> None:
+        """Keep the current shot beside the others for comparison; on the kept shot, let go."""
+        shot_id = self.model.current_id
+        reference = self.canvas.reference
+        if not shot_id or (reference is not None and reference.shot_id == shot_id):
+            self.canvas.keep_for_comparison(None)
+            return
+        self.canvas.keep_for_comparison(self._canvas_shot(self.model.record(shot_id)))
+        self.statusBar().showMessage(f"Shot {shot_id} kept on the right: step to another shot "
+                                     "to compare; K on it again lets it go.", 8000)
 
     def _show_current(self, full: bool) -> None:
         shot_id = self.model.current_id
@@ -103,44 +121,139 @@ class ReviewActions:
     def _can_edit(self) -> bool:
         return bool(self.model.current_id) and not self.model.read_only
 
-    def _push(self, command) -> None:
+    def _push(self, command) -> bool:
         """Apply an edit (saved at once) and put it on the undo stack; report a refusal."""
         try:
             command.apply()
         except WakelineError as exc:
             self.show_problem("Edit not saved", str(exc))
             self._show_current(full=False)
-            return
+            return False
         self.undo_stack.push(command)
+        return True
+
+    def decision_targets(self) -> list[str]:
+        """The shots a decision key applies to: the selected ones when several are selected
+        (the current one among them), else the current shot."""
+        selected = self.shot_list.selected_ids()
+        current = self.model.current_id
+        return selected if len(selected) > 1 and current in selected else [current]
 
     def set_status(self, status: ReviewStatus, reason: str | None = None) -> None:
-        """Review the current shot: accepted, adjusted, unusable (asks a reason) or to review."""
+        """Decide the current shot, or every selected shot as one undo step: accepted, adjusted,
+        unusable (asks a reason) or back to review. Then, when that setting is on, the next
+        shot still to review becomes current."""
         if not self._can_edit():
             return
-        shot_id = self.model.current_id
-        record = self.model.record(shot_id)
-        if status == ReviewStatus.UNUSABLE:
-            if reason is None:
-                reason = self._ask_reason(record.pick.reason)
+        order, current = self.shot_list.visible_ids(), self.model.current_id
+        targets = self.decision_targets()
+        records = [self.model.record(s) for s in targets]
+        if status in (ReviewStatus.ACCEPTED, ReviewStatus.ADJUSTED):
+            records = [r for r in records if r.summary is not None]  # nothing proposed yet
+        if status == ReviewStatus.ACCEPTED:
+            records = self._accepting(records)
+            if records is None:
+                self.statusBar().showMessage("Kept the marks you moved.", 5000)
+                return
+        if status == ReviewStatus.UNUSABLE and records:
+            reason = reason or self._ask_reason(records[0].pick.reason, len(records))
             if not reason:
                 return
-            changes = {"status": status, "reason": reason}
-        elif status == ReviewStatus.ADJUSTED:
-            changes = {"status": status, "reason": ""}
-            for side in SIDES:
-                changes[f"{side}_deg"] = self.canvas.mark_angle(side) if \
-                    self.canvas.shot is not None and self.canvas.shot.shot_id == shot_id else \
-                    record.shown_deg(side)
-        else:
-            changes = {"status": status, "reason": ""}
-        if status == record.pick.status and status != ReviewStatus.ADJUSTED:
-            return
-        self._push(PickEdit(self.model, shot_id, changes, f"Mark shot {shot_id} {status}"))
+        edits = {}
+        for record in records:
+            changes = self._decision(record, status, reason)
+            current = pick_values(record.pick)
+            if any(current[k] != v for k, v in changes.items()):
+                edits[record.shot_id] = changes
+        if edits:
+            text = (f"Mark {len(edits)} shots {status}" if len(edits) > 1
+                    else f"Mark shot {next(iter(edits))} {status}")
+            if not self._push(PicksEdit(self.model, edits, text)):
+                return
+        if len(targets) > 1:
+            self.statusBar().showMessage(
+                f"{len(edits)} of {len(targets)} selected shots marked {status}.", 6000)
+        if status != ReviewStatus.TO_REVIEW and self.act_advance.isChecked():
+            self._advance(order, current, set(targets))
 
-    def _ask_reason(self, previous: str) -> str:
-        text, ok = QInputDialog.getText(self, "Unusable shot", "Why can this shot not be used?",
-                                        text=previous)
-        return text.strip() if ok else ""
+    def _decision(self, record, status: ReviewStatus, reason: str | None) -> dict:
+        """The pick fields a decision sets on one shot."""
+        if status == ReviewStatus.UNUSABLE:
+            return {"status": status, "reason": reason}
+        changes = {"status": status, "reason": ""}
+        if status == ReviewStatus.ADJUSTED:
+            shown = self.canvas.shot is not None and self.canvas.shot.shot_id == record.shot_id
+            for side in SIDES:  # the marks where they are: dragged, nudged or proposed
+                changes[f"{side}_deg"] = (self.canvas.mark_angle(side) if shown
+                                          else record.shown_deg(side))
+        return changes
+
+    def _accepting(self, records: list) -> list | None:
+        """The shots to accept: a shot whose marks the analyst moved is accepted (its marks set
+        aside; Ctrl+Z brings them back) only when the analyst says so; None: none at all."""
+        moved = [r for r in records if r.pick.status == ReviewStatus.ADJUSTED and any(
+            moved_from_proposal(r.final_deg(s), r.proposed_deg(s)) for s in SIDES)]
+        if not moved:
+            return records
+        if len(records) == 1:
+            marks = ", ".join(f"{s} {angle_text(records[0].final_deg(s))}" for s in SIDES)
+            choice = self.ask("Accept the proposal?",
+                              f"You moved the marks of shot {records[0].shot_id} ({marks}). "
+                              "Accepting the proposal sets your marks aside (Ctrl+Z brings "
+                              "them back).", ("Accept the proposal", "Keep my marks"))
+            return records if choice == 0 else None
+        choice = self.ask("Accept the proposals?",
+                          f"You moved the marks of {len(moved)} of the {len(records)} selected "
+                          "shots. Accepting the proposal sets those marks aside (Ctrl+Z brings "
+                          "them back).", (f"Accept all {len(records)}",
+                                          f"Keep the {len(moved)} adjusted", "Cancel"))
+        if choice == 0:
+            return records
+        return [r for r in records if r not in moved] if choice == 1 else None
+
+    def ask(self, title: str, text: str, choices: tuple[str, ...]) -> int | None:
+        """Ask the analyst to choose; the index of the choice (the last one is Escape's)."""
+        box = QMessageBox(QMessageBox.Icon.Question, title, text, parent=self)
+        buttons = [box.addButton(choice, QMessageBox.ButtonRole.AcceptRole)
+                   for choice in choices]
+        box.setDefaultButton(buttons[0])
+        box.setEscapeButton(buttons[-1])
+        box.exec()
+        clicked = box.clickedButton()
+        return buttons.index(clicked) if clicked in buttons else None
+
+    def _ask_reason(self, previous: str, count: int = 1) -> str:
+        """Why the shot(s) cannot be used: one of the usual reasons, or the analyst's words."""
+        reasons = list(UNUSABLE_REASONS)
+        if previous and previous not in reasons:
+            reasons.insert(0, previous)
+        dialog = QInputDialog(self)
+        dialog.setWindowTitle("Unusable shot" if count == 1 else f"{count} unusable shots")
+        dialog.setLabelText(("Why can this shot not be used?" if count == 1 else
+                             f"Why can these {count} shots not be used?")
+                            + "\nChoose a reason or type your own:")
+        dialog.setComboBoxItems([*reasons, OTHER_REASON])
+        dialog.setComboBoxEditable(True)
+        dialog.setTextValue(previous or reasons[0])
+        if not dialog.exec():
+            return ""
+        reason = dialog.textValue().strip()
+        if reason == OTHER_REASON:
+            reason, ok = QInputDialog.getText(self, dialog.windowTitle(), "The reason:")
+            reason = reason.strip() if ok else ""
+        return reason
+
+    def _advance(self, order: list[str], after: str, decided: set[str]) -> None:
+        """On to the next shot still to review after ``after``, in the order the list showed
+        before the decision (a filter may have hidden the decided shots since)."""
+        shown = set(self.shot_list.visible_ids())
+        start = order.index(after) + 1 if after in order else 0
+        for shot_id in order[start:] + order[:start]:
+            if shot_id in shown and shot_id not in decided and reviewable(
+                    self.model.record(shot_id)):
+                self.model.set_current(shot_id)
+                return
+        self.statusBar().showMessage("No shot left to review.", 5000)
 
     def nudge(self, side: str, step_deg: float) -> None:
         if not self._can_edit() or self.canvas.shot is None:
@@ -167,12 +280,5 @@ class ReviewActions:
         self._push(PickEdit(self.model, shot_id, {"note": text}, f"Edit note of shot {shot_id}"))
 
     def next_to_review(self) -> None:
-        ids = self.shot_list.visible_ids()
-        if not ids:
-            return
-        start = ids.index(self.model.current_id) + 1 if self.model.current_id in ids else 0
-        for shot_id in ids[start:] + ids[:start]:
-            if self.model.record(shot_id).pick.status == ReviewStatus.TO_REVIEW:
-                self.model.set_current(shot_id)
-                return
-        self.statusBar().showMessage("No shot left to review.", 5000)
+        """The next shot still to review (measured, undecided) after the current one."""
+        self._advance(self.shot_list.visible_ids(), self.model.current_id, set())

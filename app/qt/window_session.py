@@ -1,20 +1,21 @@
-"""The review window's session handling: open (recent files, drag and drop), import a folder,
-save and close. A part of ``MainWindow`` (``app.qt.window``); the store is reached through the
-window's ``SessionModel`` only.
+"""The review window's session handling: open (recent files, the last session at the last shot,
+drag and drop), import a folder, save and close. A part of ``MainWindow`` (``app.qt.window``);
+the store is reached through the window's ``SessionModel`` only.
 """
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
-from PySide6.QtWidgets import QFileDialog, QMessageBox
+from PySide6.QtWidgets import QMessageBox
 
+from app.qt.file_dialogs import SESSION_FILTER, ask_path, new_session_path
 from app.qt.workers import BackgroundJob, JobOutcome, import_job
 from app.review.model import MANIFEST_NAME, SessionLocked
 from core import WakelineError
 
 MAX_RECENT = 8
-SESSION_FILTER = "wakeline sessions (*.h5 *.hdf5);;All files (*)"
 
 
 class SessionActions:
@@ -32,19 +33,55 @@ class SessionActions:
         self.settings.setValue("recent", items[:MAX_RECENT])
         self._rebuild_recent()
 
+    def _forget_recent(self, path: str) -> None:
+        """Drop a recent session whose file is gone, and say so."""
+        self.settings.setValue("recent", [p for p in self.recent_sessions() if p != path])
+        self._rebuild_recent()
+        self.statusBar().showMessage(f"{path} is gone: removed from the recent sessions.", 10000)
+
     def _rebuild_recent(self) -> None:
         self.recent_menu.clear()
         recent = self.recent_sessions()
         for index, path in enumerate(recent, start=1):
             action = self.recent_menu.addAction(f"&{index} {path}")
-            action.triggered.connect(lambda _=False, p=path: self.open_session(p))
+            action.triggered.connect(lambda _=False, p=path: self.open_recent(p))
         self.recent_menu.setEnabled(bool(recent))
+
+    def open_recent(self, path: str) -> bool:
+        """Open a recent session; one whose file is gone is dropped from the list with a note."""
+        if not Path(path).is_file():
+            self._forget_recent(path)
+            return False
+        return self.open_session(path)
+
+    def reopen_last_session(self) -> bool:
+        """Open the most recent session that still exists (at the shot last worked on)."""
+        for path in self.recent_sessions():
+            if Path(path).is_file():
+                return self.open_session(path)
+            self._forget_recent(path)
+        return False
+
+    def _last_shots(self) -> dict[str, str]:
+        """Session path -> the shot that was current when the analyst left it."""
+        try:
+            value = json.loads(str(self.settings.value("last_shots", "{}")))
+        except ValueError:
+            return {}
+        return value if isinstance(value, dict) else {}
+
+    def _remember_last_shot(self, shot_id: str) -> None:
+        if self.model.path is None or not shot_id:
+            return
+        recent = set(self.recent_sessions())
+        shots = {p: s for p, s in self._last_shots().items() if p in recent}
+        shots[str(self.model.path.resolve())] = shot_id
+        self.settings.setValue("last_shots", json.dumps(shots))
 
 
     # -- session -----------------------------------------------------------------------------
     def open_session_dialog(self) -> None:
-        path, _ = QFileDialog.getOpenFileName(self, "Open session", self._last_folder(),
-                                              SESSION_FILTER)
+        path = ask_path(self, "Open session", self._last_folder(), SESSION_FILTER)
         if path:
             self.open_session(path)
 
@@ -72,8 +109,9 @@ class SessionActions:
         self._remember_recent(path)
         self.settings.setValue("last_folder", str(path.parent))
         ids = self.shot_list.visible_ids()
+        last = self._last_shots().get(str(path.resolve()))
         if ids:
-            self.model.set_current(ids[0])
+            self.model.set_current(last if last in ids else ids[0])
         self.shot_list.view.setFocus()
         unprocessed = self.model.unprocessed_ids()
         if unprocessed and self.act_auto.isChecked() and not self.model.read_only:
@@ -112,13 +150,13 @@ class SessionActions:
 
     def import_folder_dialog(self, folder: str | None = None) -> None:
         if folder is None:
-            folder = QFileDialog.getExistingDirectory(self, "Import a folder of shots",
-                                                      self._last_folder())
+            folder = ask_path(self, "Import a folder of shots", self._last_folder(),
+                              mode="folder")
         if not folder:
             return
-        default = str(Path(folder).with_suffix(".h5"))
-        target, _ = QFileDialog.getSaveFileName(self, "Session file to create or add to",
-                                                default, SESSION_FILTER)
+        default = new_session_path(folder, (self._last_folder(), Path.home()))
+        target = ask_path(self, "Session file to create or add to", str(default),
+                          SESSION_FILTER, mode="save")
         if target:
             self.import_folder(folder, target)
 

@@ -29,13 +29,26 @@ from core.store import (
     write_table_csv,
 )
 from core.store import import_folder as store_import_folder
+from core.store.companions import companion_files
 
 __all__ = [
     "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
-    "import_folder", "pick_values",
+    "import_folder", "is_companion_file", "pick_values",
 ]
 
 PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
+_SESSION_SUFFIXES = (".h5", ".hdf5")
+#: what the store adds to a session's name for the files it keeps beside it (journal, pending
+#: arrays, a half-written snapshot) and for its lock
+_COMPANION_ENDINGS = (*(p.name[len("s.h5"):] for p in companion_files(Path("s.h5")).values()),
+                      ".lock")
+
+
+def is_companion_file(name: str) -> bool:
+    """A file or folder the store keeps beside a session ``S.h5`` (``S.h5.journal``,
+    ``S.h5.pending``, ``S.h5.lock``, ``S.h5.tmp``): not for the analyst to open or choose."""
+    return any(name.endswith(end) and name[: -len(end)].lower().endswith(_SESSION_SUFFIXES)
+               for end in _COMPANION_ENDINGS)
 
 
 def import_folder(src_dir, session_path, **options):
@@ -229,16 +242,23 @@ class SessionModel(QObject):
             The store refused or could not save the edit (any ``OSError`` too, so the window's
             one handler puts the marks back and says the edit was not saved).
         """
-        before = pick_values(self._records[shot_id].pick)
+        return self.apply_picks({shot_id: changes})[shot_id]
+
+    def apply_picks(self, edits: dict[str, dict]) -> dict[str, Pick]:
+        """Several pick edits at once (``Session.set_picks``: all or none, one write), then
+        tell the views of each shot that changed. Raises as ``apply_pick``."""
+        before = {shot_id: pick_values(self._records[shot_id].pick) for shot_id in edits}
         try:
-            pick = self._session.set_pick(shot_id, **changes)
+            picks = self._session.set_picks(edits)
         except OSError as exc:
-            raise WakelineError(f"{self._session.path}: edit of shot {shot_id} not saved "
+            what = f"shot {next(iter(edits))}" if len(edits) == 1 else f"{len(edits)} shots"
+            raise WakelineError(f"{self._session.path}: edit of {what} not saved "
                                 f"({exc.strerror or exc})") from None
-        self._records[shot_id] = self._session[shot_id]
-        if pick_values(pick) != before:
-            self.record_changed.emit(shot_id)
-        return pick
+        for shot_id, pick in picks.items():
+            self._records[shot_id] = self._session[shot_id]
+            if pick_values(pick) != before[shot_id]:
+                self.record_changed.emit(shot_id)
+        return picks
 
     def unprocessed_ids(self) -> list[str]:
         return [sid for sid in self._order

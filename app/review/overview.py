@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from app.review.columns import as_number
 from core.store import ReviewStatus, ShotRecord
 
 SHOT_ORDER = "shot order"  # pseudo-column: position of the shot in the session
@@ -69,19 +70,9 @@ def spread_ties(x: np.ndarray, fraction: float = 0.012) -> np.ndarray:
     return out
 
 
-def _as_number(value) -> float | None:
-    if value is None or isinstance(value, bool):
-        return None
-    try:
-        number = float(value)
-    except (TypeError, ValueError):
-        return None
-    return number if math.isfinite(number) else None
-
-
 def _measured_speed(record: ShotRecord) -> float | None:
     flight = None if record.summary is None else record.summary.flight
-    return None if flight is None else _as_number(flight.speed_m_s)
+    return None if flight is None else as_number(flight.speed_m_s)
 
 
 def column_value(record, column: str, position: int) -> float | None:
@@ -90,7 +81,7 @@ def column_value(record, column: str, position: int) -> float | None:
         return float(position + 1)
     if column == MEASURED_SPEED:
         return _measured_speed(record)
-    return _as_number((record.metadata or {}).get(column))
+    return as_number((record.metadata or {}).get(column))
 
 
 def numeric_columns(records) -> list[str]:
@@ -104,7 +95,7 @@ def numeric_columns(records) -> list[str]:
         for key, value in (record.metadata or {}).items():
             if value is None or (isinstance(value, str) and not value.strip()):
                 continue
-            seen[key] = seen.get(key, True) and _as_number(value) is not None
+            seen[key] = seen.get(key, True) and as_number(value) is not None
     numeric = [k for k, ok in seen.items() if ok]
     ordered = [k for k in PREFERRED_COLUMNS if k in numeric]
     ordered += sorted(k for k in numeric if k not in PREFERRED_COLUMNS)

@@ -1,8 +1,9 @@
 """A shot's numbers as text: the one formatter of angles, flight, wake, ball and vectors used by
 the review window's readout, the shot sheet and ``wakeline pair`` (no Qt here).
 
-Angles are in degrees with one decimal and their sign (positive rearward, see README), speeds
-in m/s with one decimal; a missing value is an em dash.
+Angles are in degrees with their sign (positive rearward, see README): one decimal on screen,
+two on the shot sheet (``SHEET_DECIMALS``; the session keeps them whole); speeds in m/s with one
+decimal; a missing value is an em dash.
 """
 
 from __future__ import annotations
@@ -14,18 +15,24 @@ from core.summary import ShotSummary, VectorCounts
 
 MISSING = "—"
 BALL_DISPLACEMENT = "ball displacement"  # the usual source of the flight direction
+#: the usual reasons a shot cannot be used, offered when it is marked unusable (free text too)
+UNUSABLE_REASONS = ("seeding too sparse", "ball out of the sheet", "laser misfire",
+                    "out of focus")
+OTHER_REASON = "other"
+SHEET_DECIMALS = 2  # angles on the shot sheet, rounded to 0.01 deg
 
 
-def angle_text(value_deg: float | None, signed: bool = True) -> str:
+def angle_text(value_deg: float | None, signed: bool = True, decimals: int = 1) -> str:
     """``+12.3°`` (or ``12.3°`` unsigned); the em dash when there is no finite value."""
     if value_deg is None or not math.isfinite(value_deg):
         return MISSING
-    return f"{value_deg:+.1f}°" if signed else f"{value_deg:.1f}°"
+    return f"{value_deg:+.{decimals}f}°" if signed else f"{value_deg:.{decimals}f}°"
 
 
-def uncertainty_text(value_deg: float | None) -> str:
+def uncertainty_text(value_deg: float | None, decimals: int = 1) -> str:
     """``± 1.5°``, or the em dash."""
-    return MISSING if value_deg is None else f"± {angle_text(value_deg, signed=False)}"
+    return MISSING if value_deg is None else \
+        f"± {angle_text(value_deg, signed=False, decimals=decimals)}"
 
 
 def quality_text(value: float | None) -> str:
@@ -33,13 +40,13 @@ def quality_text(value: float | None) -> str:
     return MISSING if value is None or not math.isfinite(value) else f"{value:.2f}"
 
 
-def proposal_text(side: SideProposal) -> str:
+def proposal_text(side: SideProposal, decimals: int = 1) -> str:
     """``+12.3° ± 1.5°, quality 0.80``, or ``none (reason)`` without a proposal."""
     if side.angle_deg is None:
         return "none" + (f" ({side.reason})" if side.reason else "")
-    out = angle_text(side.angle_deg)
+    out = angle_text(side.angle_deg, decimals=decimals)
     if side.uncertainty_deg is not None:
-        out += f" {uncertainty_text(side.uncertainty_deg)}"
+        out += f" {uncertainty_text(side.uncertainty_deg, decimals)}"
     if side.quality is not None:
         out += f", quality {quality_text(side.quality)}"
     return out
@@ -50,31 +57,33 @@ def speed_text(speed_m_s: float | None) -> str:
     return MISSING if speed_m_s is None else f"{speed_m_s:.1f} m/s"
 
 
-def direction_text(flight: Flight | None) -> str:
+def direction_text(flight: Flight | None, decimals: int = 1) -> str:
     """Flight direction, with its source when it is not the ball's own displacement."""
     if flight is None:
         return MISSING
-    out = angle_text(flight.direction_deg, signed=False)
+    out = angle_text(flight.direction_deg, signed=False, decimals=decimals)
     if flight.source and flight.source != BALL_DISPLACEMENT:
         out += f" ({flight.source})"
     return out
 
 
-def flight_text(flight: Flight | None) -> str:
+def flight_text(flight: Flight | None, decimals: int = 1) -> str:
     """``178.3° at 30.1 m/s``; says why the speed is unknown when it is."""
     if flight is None:
         return MISSING
+    direction = direction_text(flight, decimals)
     if flight.speed_m_s is None:
-        return f"{direction_text(flight)}, speed unknown (needs dt and a scale)"
-    return f"{direction_text(flight)} at {speed_text(flight.speed_m_s)}"
+        return f"{direction}, speed unknown (needs dt and a scale)"
+    return f"{direction} at {speed_text(flight.speed_m_s)}"
 
 
-def wake_text(separation: SeparationResult) -> str:
+def wake_text(separation: SeparationResult, decimals: int = 1) -> str:
     """The wake state, and its deflection from the flight axis when measured."""
     state = separation.wake_state
     if separation.wake_deflection_deg is None:
         return state
-    return f"{state}, deflected {angle_text(separation.wake_deflection_deg)} from the flight axis"
+    deflection = angle_text(separation.wake_deflection_deg, decimals=decimals)
+    return f"{state}, deflected {deflection} from the flight axis"
 
 
 def ball_text(summary: ShotSummary) -> str:

@@ -14,7 +14,7 @@ import numpy as np
 
 from app.review.marks import moved_from_proposal
 from app.review.overview import column_value
-from app.review.text import MISSING, angle_text, proposal_text
+from app.review.text import MISSING, SHEET_DECIMALS, angle_text, proposal_text
 from core import WakelineError
 from core.results import SideProposal
 from core.store import ReviewStatus, ShotRecord
@@ -179,7 +179,12 @@ def final_text(record: ShotRecord, side: str) -> str:
     if final is None:
         why = {ReviewStatus.UNUSABLE: " (unusable)", ReviewStatus.TO_REVIEW: " (not reviewed)"}
         return MISSING + why.get(record.pick.status, "")
-    return angle_text(final) + ("  ADJUSTED" if moved_by_analyst(record, side) else "")
+    return sheet_angle(final) + ("  ADJUSTED" if moved_by_analyst(record, side) else "")
+
+
+def sheet_angle(value_deg: float | None, signed: bool = True) -> str:
+    """An angle as the sheet prints it, to 0.01 deg."""
+    return angle_text(value_deg, signed, SHEET_DECIMALS)
 
 
 def moved_by_analyst(record: ShotRecord, side: str) -> bool:
@@ -194,9 +199,9 @@ def side_detail(record: ShotRecord, side: str) -> str:
     final = record.final_deg(side)
     parts = []
     if final is not None:
-        parts.append(f"{angle_text(final + 90.0, signed=False)} from front stagnation")
+        parts.append(f"{sheet_angle(final + 90.0, signed=False)} from front stagnation")
     proposal = SideProposal(None) if record.summary is None else record.summary.side(side)
-    parts.append("proposal " + proposal_text(proposal))
+    parts.append("proposal " + proposal_text(proposal, SHEET_DECIMALS))
     return "; ".join(parts)
 
 
@@ -216,22 +221,32 @@ def timing_text(record: ShotRecord) -> str:
 
 
 def review_text(record: ShotRecord) -> str:
+    """The decision, who made it and when (a note has its own author: ``note_text``)."""
     pick = record.pick
-    out = str(pick.status)
-    if pick.who:
-        out += f" by {pick.who}"
-    if pick.when:
-        out += f", {pick.when[:16].replace('T', ' ')}"
-    return out
+    return str(pick.status) + _by(pick.who, pick.when)
+
+
+def note_text(record: ShotRecord) -> str:
+    """The analyst's note, who wrote it and when; the em dash without one."""
+    pick = record.pick
+    return pick.note + _by(pick.note_who, pick.note_when) if pick.note else MISSING
+
+
+def _by(who: str, when: str) -> str:
+    out = f" by {who}" if who else ""
+    return out + (f", {when[:16].replace('T', ' ')}" if when else "")
 
 
 
-def selection_text(records, all_records, shot_ids, statuses, per_page) -> str:
+def selection_text(records, all_records, shot_ids, statuses, per_page,
+                   vorticity_limit_1_s: float | None = None) -> str:
     parts = [f"This sheet: {len(records)} of {len(all_records)} shots"]
     if statuses:
         parts.append("status " + " or ".join(statuses))
     if shot_ids:
         parts.append("chosen by id")
     parts.append(f"{per_page} per page")
+    parts.append("each panel its own vorticity colour range" if vorticity_limit_1_s is None
+                 else f"vorticity colours ±{vorticity_limit_1_s:g} 1/s on every panel")
     return ", ".join(parts) + "."
 

@@ -11,13 +11,13 @@ from PySide6 import QtCore, QtGui
 
 from app.review import colours
 from app.review.overview import PLOTTED_STATUSES, OverviewPoints, left_out_text, overview_points
-from app.review.text import angle_text
 from app.sheet.content import (
     SUMMARY_ROWS_ON_COVER,
     SUMMARY_ROWS_PER_PAGE,
     SummaryRow,
     process_counts,
     session_date,
+    sheet_angle,
     status_counts,
 )
 from app.sheet.kit import (
@@ -41,10 +41,8 @@ def paint_cover(pages: Pages, session, all_records, records, column: str,
     pages.new_page("cover")
     x, y, w, _h = pages.body()
     name = getattr(session, "name", "") or Path(session.path).stem
-    p.setFont(font(20, bold=True))
-    name = p.fontMetrics().elidedText(name, QtCore.Qt.TextElideMode.ElideRight,
-                                      int(mm(2 * w - 20)))  # at most two lines
-    used = text(p, rect_mm(x, y, w, 20), name, 20, bold=True, colour=colours.ACCENT)
+    size = _name_size(p, name, w)
+    used = text(p, rect_mm(x, y, w, 20), name, size, bold=True, colour=colours.ACCENT)
     y += used.height() / mm(1) + 1.5
     info = (f"Session file: {Path(session.path).name}    Date: {session_date(session, all_records)}"
             f"    Shots in session: {len(all_records)}")
@@ -75,6 +73,18 @@ def paint_cover(pages: Pages, session, all_records, records, column: str,
         text(p, rect_mm(x, y, w, 6), f"Final angles by {column} (continued)", 11, bold=True)
         _paint_summary_table(p, x, y + 8, w, column, rest[:SUMMARY_ROWS_PER_PAGE])
         rest = rest[SUMMARY_ROWS_PER_PAGE:]
+
+
+def _name_size(p, name: str, width_mm: float) -> float:
+    """The largest size (20 pt down to 11) at which the session's name fits in two lines."""
+    for size in (20.0, 17.0, 14.0, 12.0, 11.0):
+        p.setFont(font(size, bold=True))
+        metrics = p.fontMetrics()
+        box = metrics.boundingRect(QtCore.QRect(0, 0, int(mm(width_mm)), 10**6),
+                                   int(QtCore.Qt.TextFlag.TextWordWrap), name)
+        if box.height() <= 2.2 * metrics.lineSpacing():
+            return size
+    return 11.0
 
 
 def _paint_status_boxes(p, x: float, y: float, w: float, records) -> float:
@@ -207,10 +217,10 @@ def _paint_summary_table(p, x: float, y: float, w: float, column: str,
     for k, row in enumerate(rows):
         if k % 2:
             p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.PAPER_TINT))
-        cells = [tick_label(row.value), str(row.n), angle_text(row.upper_mean),
-                 angle_text(row.upper_sd, signed=False), angle_text(row.lower_mean),
-                 angle_text(row.lower_sd, signed=False),
-                 angle_text(row.lower_mean - row.upper_mean)]
+        cells = [tick_label(row.value), str(row.n), sheet_angle(row.upper_mean),
+                 sheet_angle(row.upper_sd, signed=False), sheet_angle(row.lower_mean),
+                 sheet_angle(row.lower_sd, signed=False),
+                 sheet_angle(row.lower_mean - row.upper_mean)]
         cx = x
         for cell, frac in zip(cells, widths):
             text(p, rect_mm(cx, y, frac * w - 2, row_h), cell, 8.5, flags=right)

@@ -11,12 +11,14 @@ What goes on the pages is chosen in ``content``; ``kit``, ``cover`` and ``shot_p
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 from pathlib import Path
 
 from PySide6 import QtCore, QtGui
 
 from app.review.overview import default_column, numeric_columns
+from app.review.scales import shared_limit
 from app.sheet.content import (
     PER_PAGE_CHOICES,
     SheetReport,
@@ -33,6 +35,8 @@ from core import WakelineError
 from core.store import ProcessState
 from core.store.files import atomic_write
 
+SESSION_RANGE = "session"  # one vorticity colour range for every panel, from the sheet's shots
+
 
 def make_sheet(
     session,
@@ -42,6 +46,7 @@ def make_sheet(
     per_page: int = 2,
     statuses: tuple[str, ...] | None = None,
     column: str | None = None,
+    vorticity_limit_1_s: float | str | None = None,
     progress: Callable[[int, int], None] | None = None,
 ) -> SheetReport:
     """Write the shot sheet of ``session`` as a PDF.
@@ -61,6 +66,10 @@ def make_sheet(
     column : str, optional
         Numeric metadata column for the overview and the summary table; default the seam
         orientation when present.
+    vorticity_limit_1_s : float or "session", optional
+        The vorticity colour range of every panel, 1/s (symmetric about zero), so panels can
+        be compared; "session": one range for all of them from the shots on the sheet
+        (``app.review.scales.shared_limit``); None (default): each panel its own range.
     progress : callable(done, total), optional
         Called after each shot panel; an exception it raises stops the sheet (no file is left).
 
@@ -83,6 +92,12 @@ def make_sheet(
             f"--column: {column!r} is not a numeric column of this session "
             f"(choose from {', '.join(numeric_columns(records))})"
         )
+    if vorticity_limit_1_s == SESSION_RANGE:
+        vorticity_limit_1_s = shared_limit(_vorticity_fields(session, records))
+    elif vorticity_limit_1_s is not None and not (
+            isinstance(vorticity_limit_1_s, (int, float)) and 0 < vorticity_limit_1_s < math.inf):
+        raise WakelineError(f"--vorticity-limit: a positive number or '{SESSION_RANGE}', not "
+                            f"{vorticity_limit_1_s!r}")
     rows = summary_rows(records, column)
     total = summary_page_count(len(rows)) + shot_page_count(len(records), per_page)
     out_path = Path(out_path)
@@ -96,8 +111,9 @@ def make_sheet(
         try:
             pages = Pages(painter, writer, name, total)
             paint_cover(pages, session, all_records, records, column, rows,
-                        selection_text(records, all_records, shot_ids, statuses, per_page))
-            _paint_shot_pages(pages, session, records, per_page, progress)
+                        selection_text(records, all_records, shot_ids, statuses, per_page,
+                                       vorticity_limit_1_s))
+            _paint_shot_pages(pages, session, records, per_page, vorticity_limit_1_s, progress)
         finally:
             painter.end()
             del writer  # closes the file
@@ -123,7 +139,15 @@ def _writer(path: Path, title: str) -> QtGui.QPdfWriter:
 
 
 
-def _paint_shot_pages(pages: Pages, session, records, per_page: int, progress) -> None:
+def _vorticity_fields(session, records):
+    for record in records:
+        if record.state == ProcessState.PROCESSED:
+            result = session.load_result(record.shot_id)
+            yield None if result is None else result.vorticity_1_s
+
+
+def _paint_shot_pages(pages: Pages, session, records, per_page: int,
+                      vorticity_limit_1_s: float | None, progress) -> None:
     cells = None
     for index, record in enumerate(records):
         slot = index % per_page
@@ -134,6 +158,6 @@ def _paint_shot_pages(pages: Pages, session, records, per_page: int, progress) -
             cells = panel_cells(per_page, pages.body())
         processed = record.state == ProcessState.PROCESSED
         result = session.load_result(record.shot_id) if processed else None
-        paint_shot(pages.painter, cells[slot], record, result)
+        paint_shot(pages.painter, cells[slot], record, result, vorticity_limit_1_s)
         if progress is not None:
             progress(index + 1, len(records))

@@ -20,6 +20,7 @@ HEADER_MM = 13.0
 FOOTER_MM = 15.0
 DPI = 300
 PANEL_GAP_MM = 6.0
+TITLE_SIZES_PT = (12.0, 11.0, 10.0, 9.0, 8.5)  # the page header's title, largest that fits
 
 _APP: QtCore.QCoreApplication | None = None
 
@@ -129,14 +130,6 @@ def draw_arrow(p, a: QtCore.QPointF, b: QtCore.QPointF, head_mm: float = 0.8) ->
 
 
 
-def round_length(value_mm: float) -> float:
-    if not value_mm or not math.isfinite(value_mm) or value_mm <= 0:
-        return 10.0
-    mag = 10 ** math.floor(math.log10(value_mm))
-    return max(m * mag for m in (1, 2, 5) if m * mag <= value_mm)
-
-
-
 class Pages:
     """Title block and footer on every page; page numbering."""
 
@@ -163,18 +156,31 @@ class Pages:
         p.fillRect(rect_mm(MARGIN_MM, MARGIN_MM, 3.0, HEADER_MM - 2), qcolor(colours.ACCENT))
         text(p, rect_mm(MARGIN_MM + 5, MARGIN_MM - 0.5, w - 60, 6), "wakeline shot sheet",
              7.5, colour=colours.MUTED_INK)
-        p.setFont(font(12, bold=True))
-        title = p.fontMetrics().elidedText(self.title, QtCore.Qt.TextElideMode.ElideRight,
-                                           int(mm(w - 62)))
-        text(p, rect_mm(MARGIN_MM + 5, MARGIN_MM + 3.6, w - 60, 7), title, 12, bold=True)
+        page = f"page {self.number} of {self.total}"
         right = QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignTop
         text(p, rect_mm(PAGE_W_MM - MARGIN_MM - 70, MARGIN_MM - 0.5, 70, 6), subtitle, 7.5,
              colour=colours.MUTED_INK, flags=right)
-        text(p, rect_mm(PAGE_W_MM - MARGIN_MM - 70, MARGIN_MM + 4.4, 70, 6),
-             f"page {self.number} of {self.total}", 9.5, bold=True, flags=right)
+        text(p, rect_mm(PAGE_W_MM - MARGIN_MM - 70, MARGIN_MM + 4.4, 70, 6), page, 9.5,
+             bold=True, flags=right)
+        p.setFont(font(9.5, bold=True))
+        used = p.fontMetrics().horizontalAdvance(page) / mm(1)
+        p.setFont(font(7.5))
+        used = max(used, p.fontMetrics().horizontalAdvance(subtitle) / mm(1))
+        self._title(MARGIN_MM + 5, MARGIN_MM + 3.6, w - 5 - used - 5)
         p.setPen(pen(colours.ACCENT, 0.5))
         y = mm(MARGIN_MM + HEADER_MM)
         p.drawLine(QtCore.QPointF(mm(MARGIN_MM), y), QtCore.QPointF(mm(PAGE_W_MM - MARGIN_MM), y))
+
+    def _title(self, left_mm: float, top_mm: float, width_mm: float) -> None:
+        """The session's name whole: in one line, shrunk as far as 8.5 pt to fit, else on two
+        lines at 8 pt (a name longer still loses its end)."""
+        p = self.painter
+        for size in TITLE_SIZES_PT:
+            p.setFont(font(size, bold=True))
+            if p.fontMetrics().horizontalAdvance(self.title) <= mm(width_mm):
+                text(p, rect_mm(left_mm, top_mm, width_mm, 7), self.title, size, bold=True)
+                return
+        text(p, rect_mm(left_mm, top_mm - 0.7, width_mm, 8.6), self.title, 8, bold=True)
 
     def _footer(self) -> None:
         p = self.painter

@@ -12,15 +12,18 @@ from PySide6 import QtCore, QtGui
 
 from app.review import colours
 from app.review.marks import moved_from_proposal
-from app.review.text import MISSING, angle_text, flight_text, vectors_text, wake_text
+from app.review.text import MISSING, SHEET_DECIMALS, flight_text, vectors_text, wake_text
 from app.sheet.content import (
     final_text,
     metadata_line,
+    note_text,
     review_text,
+    sheet_angle,
     side_detail,
     timing_text,
 )
-from app.sheet.kit import PANEL_GAP_MM, draw_arrow, mm, pen, qcolor, rect_mm, round_length, text
+from app.review.scales import round_length
+from app.sheet.kit import PANEL_GAP_MM, draw_arrow, mm, pen, qcolor, rect_mm, text
 from core.geometry import flight_unit, point_at_angle, side_normal
 from core.store import ReviewStatus
 
@@ -35,7 +38,9 @@ def panel_cells(per_page: int, body) -> list[tuple[float, float, float, float]]:
     return [(x, y + i * (ch + PANEL_GAP_MM), w, ch) for i in range(per_page)]
 
 
-def paint_shot(p, cell, record, result) -> None:
+def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None) -> None:
+    """One shot's panel in ``cell`` (mm); the vorticity colours run to ``vorticity_limit_1_s``
+    (None: the shot's own range)."""
     x, y, w, h = cell
     colour = colours.STATUS_COLOURS.get(record.pick.status, colours.MUTED_INK)
     p.fillRect(rect_mm(x, y, w, 8), qcolor(colours.PAPER_TINT))
@@ -69,7 +74,7 @@ def paint_shot(p, cell, record, result) -> None:
              f"No field: {reason}", 9, italic=True, colour=colours.MUTED_INK,
              flags=QtCore.Qt.AlignmentFlag.AlignCenter)
     else:
-        _paint_field(p, pic, record, result)
+        _paint_field(p, pic, record, result, vorticity_limit_1_s)
     _paint_numbers(p, info, record, with_metadata=narrow)
 
 
@@ -120,7 +125,7 @@ def _crop_box(result, aspect: float) -> tuple[float, float, float, float]:
     return x0, y0, bw, bh
 
 
-def _paint_field(p, pic, record, result) -> None:
+def _paint_field(p, pic, record, result, vorticity_limit_1_s: float | None) -> None:
     x, y, w, h = pic
     legend_h = 9.0
     frame = rect_mm(x, y, w, h - legend_h)
@@ -132,7 +137,7 @@ def _paint_field(p, pic, record, result) -> None:
     p.save()
     p.fillRect(shown, qcolor("#e4e1da"))
     p.setClipRect(shown)
-    limit = _paint_vorticity(p, view, result)
+    limit = _paint_vorticity(p, view, result, vorticity_limit_1_s)
     arrow = _paint_vectors(p, view, result, (x0, y0, bw, bh))
     _paint_ball(p, view, record, result)
     p.setClipping(False)
@@ -144,12 +149,12 @@ def _paint_field(p, pic, record, result) -> None:
                         result, arrow)
 
 
-def _paint_vorticity(p, view: _View, result) -> float:
+def _paint_vorticity(p, view: _View, result, limit: float | None) -> float:
     w = result.vorticity_1_s
     vf = result.field
     if w is None:
         return float("nan")
-    limit = colours.symmetric_limit(w)
+    limit = colours.symmetric_limit(w) if limit is None else limit
     rgba = np.ascontiguousarray(colours.vorticity_rgb(w, limit))
     rows, cols = rgba.shape[:2]
     image = QtGui.QImage(rgba.data, cols, rows, cols * 4, QtGui.QImage.Format.Format_RGBA8888)
@@ -234,7 +239,7 @@ def _paint_mark(p, view: _View, ball, direction_deg: float, side: str, record, c
         p.drawEllipse(a, mm(1.0), mm(1.0))
         if open_proposal:
             _mark_label(p, view(*point_at_angle(centre, rr * 1.75, direction_deg, side, proposed)),
-                        f"{side[0].upper()} {angle_text(proposed)} ?", colour)
+                        f"{side[0].upper()} {sheet_angle(proposed)} ?", colour)
     if final is None:
         return
     a = view(*point_at_angle(centre, rr * 0.92, direction_deg, side, final))
@@ -246,7 +251,7 @@ def _paint_mark(p, view: _View, ball, direction_deg: float, side: str, record, c
     p.setBrush(qcolor(colour))
     p.drawEllipse(view(*point_at_angle(centre, rr, direction_deg, side, final)), mm(1.0), mm(1.0))
     _mark_label(p, view(*point_at_angle(centre, rr * 1.75, direction_deg, side, final)),
-                f"{side[0].upper()} {angle_text(final)}", colour)
+                f"{side[0].upper()} {sheet_angle(final)}", colour)
 
 
 def _mark_label(p, at: QtCore.QPointF, tag: str, colour: str) -> None:
@@ -330,9 +335,9 @@ def _paint_numbers(p, info, record, with_metadata: bool = False) -> None:
         bold=True)
     if record.pick.reason:
         row("reason", record.pick.reason)
-    row("note", record.pick.note or MISSING)
-    row("wake", MISSING if summary is None else wake_text(summary.separation))
-    row("flight", flight_text(None if summary is None else summary.flight))
+    row("note", note_text(record))
+    row("wake", MISSING if summary is None else wake_text(summary.separation, SHEET_DECIMALS))
+    row("flight", flight_text(None if summary is None else summary.flight, SHEET_DECIMALS))
     if with_metadata:
         row("shot", metadata_line(record).replace("   ", ", ") or MISSING)
     row("vectors", MISSING if summary is None else vectors_text(summary.vectors))

@@ -53,8 +53,9 @@ class Journal:
                 fh.flush()
                 os.fsync(fh.fileno())
 
-    def append(self, entry: dict) -> None:
-        line = (dumps(entry) + "\n").encode("utf-8")
+    def append(self, *entries: dict) -> None:
+        """Add one line per entry, fsynced once: all of them are on disk when this returns."""
+        line = "".join(dumps(entry) + "\n" for entry in entries).encode("utf-8")
         if self._fd is None:
             created = not self.path.exists()
             self._fd = os.open(self.path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)

@@ -7,7 +7,7 @@ the table CSV and the window, and a member compares equal to its word.
 from __future__ import annotations
 
 import math
-from dataclasses import asdict, dataclass, field, fields
+from dataclasses import asdict, dataclass, field, fields, replace
 from enum import StrEnum
 
 from core import WakelineError
@@ -41,8 +41,10 @@ class Pick:
     lower_deg: float | None = None
     reason: str = ""  # why the shot is unusable
     note: str = ""
-    who: str = ""
-    when: str = ""  # ISO 8601 UTC
+    who: str = ""  # who made the decision (status, angles, reason)
+    when: str = ""  # ISO 8601 UTC of the decision
+    note_who: str = ""  # who wrote the note last ("" in files written before notes had theirs)
+    note_when: str = ""  # ISO 8601 UTC of the note
 
     def to_dict(self) -> dict:
         return {**asdict(self), "status": str(self.status)}
@@ -157,3 +159,32 @@ def damage_reason(exc: Exception) -> str:
         return f"no {exc.args[0]!r}" if exc.args else "a key is missing"
     text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
     return text
+
+
+def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -> Pick:
+    """``current`` with ``changes`` (``status``, ``upper_deg``, ``lower_deg``, ``reason``,
+    ``note``), checked. ``by`` and ``now`` are the decision's author and time when a decision
+    field is changed, and the note's own when the note changes: editing a note leaves who made
+    the decision as it was.
+
+    Raises
+    ------
+    WakelineError
+        An unknown field or status, "unusable" without a reason, or a non-finite angle.
+    """
+    unknown = set(changes) - {"status", "upper_deg", "lower_deg", "reason", "note"}
+    if unknown:
+        raise WakelineError(f"shot {shot_id}: no pick field {', '.join(sorted(unknown))}")
+    changes = dict(changes)
+    if "status" in changes:
+        changes["status"] = checked_status(shot_id, changes["status"])
+    for side in ("upper_deg", "lower_deg"):
+        if side in changes:
+            changes[side] = checked_angle(shot_id, side, changes[side])
+    if set(changes) - {"note"}:
+        changes.update(who=by, when=now)
+    if changes.get("note", current.note) != current.note:
+        changes.update(note_who=by, note_when=now)
+    pick = replace(current, **changes)
+    check_pick(shot_id, pick)
+    return pick

@@ -51,11 +51,9 @@ from core.store.records import (
     ProcessState,
     ReviewStatus,
     ShotRecord,
-    check_pick,
     check_shot_id,
-    checked_angle,
-    checked_status,
     damage_reason,
+    edited_pick,
 )
 from core.store.replay import JournalReplay
 from core.store.snapshot import (
@@ -447,27 +445,33 @@ class Session(SnapshotWriting, JournalReplay, Mapping):
         who: str | None = None,
     ) -> Pick:
         """Edit the analyst's pick. Arguments left out keep their value; ``upper_deg=None``
-        clears it. The edit is on disk (journal, fsynced) when this returns.
+        clears it. The edit is on disk (journal, fsynced) when this returns. ``who`` (default:
+        this user) and the time go with the decision, and apart with the note (``edited_pick``).
 
         Raises
         ------
         WakelineError
             Unknown status, "unusable" without a reason, or a non-finite angle.
         """
+        changes = {k: v for k, v in (("status", status), ("reason", reason), ("note", note))
+                   if v is not None}
+        changes.update({k: v for k, v in (("upper_deg", upper_deg), ("lower_deg", lower_deg))
+                        if v is not _UNSET})
+        return self.set_picks({shot_id: changes}, who=who)[shot_id]
+
+    def set_picks(self, edits: dict[str, dict], who: str | None = None) -> dict[str, Pick]:
+        """Several pick edits as one (a decision on many shots): ``{shot_id: changes}`` with the
+        keywords of ``set_pick`` (a key left out keeps its value). All are checked first, so
+        none is made when one is refused; then all are on disk (one fsync) when this returns.
+        """
         with self._mutex:
             self._check_writable()
-            current = self._get(shot_id).pick
-            changes = {k: v for k, v in (("reason", reason), ("note", note)) if v is not None}
-            if status is not None:
-                changes["status"] = checked_status(shot_id, status)
-            for side, value in (("upper_deg", upper_deg), ("lower_deg", lower_deg)):
-                if value is not _UNSET:
-                    changes[side] = checked_angle(shot_id, side, value)
-            pick = replace(current, **changes, who=who if who is not None else user_name(),
-                           when=now_utc())
-            check_pick(shot_id, pick)
-            self._commit({"op": "pick", "shot": shot_id, "pick": pick.to_dict()})
-            return replace(pick)
+            by, now = (who if who is not None else user_name()), now_utc()
+            picks = {shot_id: edited_pick(shot_id, self._get(shot_id).pick, changes, by, now)
+                     for shot_id, changes in edits.items()}
+            self._commit(*({"op": "pick", "shot": s, "pick": p.to_dict()}
+                           for s, p in picks.items()))
+            return {shot_id: replace(pick) for shot_id, pick in picks.items()}
 
     @contextmanager
     def batch_run(self) -> Iterator[None]:
@@ -535,13 +539,16 @@ class Session(SnapshotWriting, JournalReplay, Mapping):
             raise WakelineError(f"{self.path}: could not save {what} ({reason}); "
                                 f"{advice}") from None
 
-    def _commit(self, entry: dict) -> None:
-        """Append one change to the journal (durable on return), then apply it in memory."""
-        entry = {"seq": self._seq + 1, **entry}
-        with self._saving(_change_words(entry)):
-            self._journal.append(entry)
-        self._seq = entry["seq"]
-        self._apply(entry)
+    def _commit(self, *entries: dict) -> None:
+        """Append changes to the journal (all durable on return, one write), then apply them
+        in memory."""
+        entries = [{"seq": self._seq + n, **entry} for n, entry in enumerate(entries, start=1)]
+        what = _change_words(entries[0]) if len(entries) == 1 else f"{len(entries)} edits"
+        with self._saving(what):
+            self._journal.append(*entries)
+        for entry in entries:
+            self._seq = entry["seq"]
+            self._apply(entry)
         self._dirty = True
 
     def _write_pending(self, seq: int, what: str, write) -> str:

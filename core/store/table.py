@@ -1,4 +1,5 @@
-"""The table of picks: one row per shot, as text cells and as a CSV file."""
+"""The table of picks: one row per shot, as text cells and as a CSV file. Angles are rounded to
+0.01 deg (the session keeps them whole)."""
 
 from __future__ import annotations
 
@@ -37,8 +38,9 @@ _RESULT_COLUMNS = (
     "upper_proposed_deg", "upper_uncertainty_deg", "lower_proposed_deg", "lower_uncertainty_deg",
     "upper_final_deg", "lower_final_deg", "wake_deflection_deg", "wake_state",
     "review_status", "unusable_reason", "review_note", "reviewed_by", "reviewed_utc",
-    "processed_utc", "software_version",
+    "processed_utc", "software_version", "note_by", "note_utc",
 )
+ANGLE_DECIMALS = 2
 
 
 def _result_cells(r: ShotRecord) -> list[str]:
@@ -47,18 +49,26 @@ def _result_cells(r: ShotRecord) -> list[str]:
     separation = None if summary is None else summary.separation
     values = [
         r.state, r.failure,
-        None if flight is None else flight.direction_deg,
+        _angle(None if flight is None else flight.direction_deg),
         None if flight is None else flight.speed_m_s,
         None if summary is None else summary.scale_mm_per_px,
-        r.proposed_deg("upper"), r.uncertainty_deg("upper"),
-        r.proposed_deg("lower"), r.uncertainty_deg("lower"),
-        r.final_deg("upper"), r.final_deg("lower"),
-        None if separation is None else separation.wake_deflection_deg,
+        *map(_angle, (r.proposed_deg("upper"), r.uncertainty_deg("upper"),
+                      r.proposed_deg("lower"), r.uncertainty_deg("lower"),
+                      r.final_deg("upper"), r.final_deg("lower"),
+                      None if separation is None else separation.wake_deflection_deg)),
         None if separation is None else separation.wake_state,
         pick.status, pick.reason, pick.note, pick.who, pick.when,
-        r.processed_utc, r.software_version,
+        r.processed_utc, r.software_version, pick.note_who, pick.note_when,
     ]
     return [_cell(v) for v in values]
+
+
+def _angle(value: float | None) -> str | None:
+    """An angle rounded to ``ANGLE_DECIMALS`` without trailing zeros: 12.35, 7.5, -3."""
+    if value is None or not math.isfinite(value):
+        return None
+    text = f"{value:.{ANGLE_DECIMALS}f}".rstrip("0").rstrip(".")
+    return "0" if text == "-0" else text
 
 
 #: First characters that make a spreadsheet run a cell as a formula (OWASP, "CSV injection").
