@@ -11,36 +11,30 @@ DEBIAN_LIBS="libgl1 libegl1 libglib2.0-0 libdbus-1-3 libfontconfig1 libfreetype6
 WINDOW_LIBS="libx11-xcb1 libxcb1 libxcb-cursor0 libxcb-icccm4 libxcb-image0 libxcb-keysyms1 libxcb-randr0 libxcb-render0 libxcb-render-util0 libxcb-shape0 libxcb-shm0 libxcb-sync1 libxcb-util1 libxcb-xfixes0 libxcb-xkb1 libxkbcommon-x11-0"
 TEST_TOOLS="xvfb xauth"
 
-missing_of() {  # the Debian packages of "$@" that are not installed
+missing_of() {  # those of the Debian packages "$@" that are not installed
   command -v dpkg-query >/dev/null 2>&1 || return 0
   for pkg in "$@"; do
     dpkg-query -W -f='${Status}' "$pkg" 2>/dev/null | grep -q "install ok installed" || echo "$pkg"
   done
 }
-apt_install() {
-  echo "setup: installing Debian packages: $*"
-  apt-get update -qq
-  DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends "$@" >/dev/null
-}
-
 # shellcheck disable=SC2086  # the lists split into package names
 mapfile -t missing < <(missing_of $DEBIAN_LIBS $WINDOW_LIBS)
 tools=()
-if [ "${1:-}" = "--test" ]; then
-  # shellcheck disable=SC2086
-  mapfile -t tools < <(missing_of $TEST_TOOLS)
-fi
+# shellcheck disable=SC2086
+[ "${1:-}" != "--test" ] || mapfile -t tools < <(missing_of $TEST_TOOLS)
+
 if [ "$(id -u)" = 0 ]; then
-  [ ${#missing[@]} -eq 0 ] && [ ${#tools[@]} -eq 0 ] || apt_install "${missing[@]}" "${tools[@]}"
-else
-  if [ ${#missing[@]} -gt 0 ]; then
-    echo "setup: missing Debian libraries. Run as root, then run this command again:"
-    echo "  apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y --no-install-recommends ${missing[*]}"
-    exit 1
+  if [ $((${#missing[@]} + ${#tools[@]})) -gt 0 ]; then
+    echo "setup: installing Debian packages: ${missing[*]} ${tools[*]}"
+    apt-get update -qq
+    DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends "${missing[@]}" "${tools[@]}" >/dev/null
   fi
-  if [ ${#tools[@]} -gt 0 ]; then
-    echo "setup: the test of the real window will be skipped (no ${tools[*]}); as root: apt-get install ${tools[*]}"
-  fi
+elif [ ${#missing[@]} -gt 0 ]; then
+  echo "setup: missing Debian libraries. Run as root, then run this command again:"
+  echo "  apt-get update && DEBIAN_FRONTEND=noninteractive apt-get install -y --no-install-recommends ${missing[*]}"
+  exit 1
+elif [ ${#tools[@]} -gt 0 ]; then
+  echo "setup: no ${tools[*]}: the test of the real window will be skipped (as root: apt-get install ${tools[*]})"
 fi
 
 PYTHON=${PYTHON:-python3.11}
