@@ -339,13 +339,12 @@ def report_rows(session_path: Path, truth_csv: Path) -> list[dict]:
             record = session[shot_id]
             row = {"shot": shot_id, "seam_deg": record.metadata.get("seam_deg"),
                    "look": _look(truth.get(shot_id, {})),
-                   "failure": record.failure if record.state == ProcessState.FAILED else "",
-                   "state": str(record.state)}
+                   "failure": record.failure if record.state == ProcessState.FAILED else ""}
             for side in ("upper", "lower"):
                 row[f"{side}_true"] = float(truth[shot_id][f"{side}_true_deg"])
                 row[f"{side}_proposed"] = record.proposed_deg(side)
                 row[f"{side}_uncertainty"] = record.uncertainty_deg(side)
-                row[f"{side}_reason"] = _side_reason(record, side)
+                row[f"{side}_reason"] = record.summary.side(side).reason if record.summary else ""
             rows.append(row)
     return rows
 
@@ -357,10 +356,6 @@ def _look(truth_row: dict) -> str:
     if truth_row.get("shadow_side"):
         look += f", {truth_row['shadow_side']} side shadowed"
     return look
-
-
-def _side_reason(record, side: str) -> str:
-    return "" if record.summary is None else record.summary.side(side).reason
 
 
 def report_markdown(rows: list[dict], how: str) -> str:
@@ -451,12 +446,12 @@ def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--frames", type=Path, metavar="DIR", help="draw the frames into DIR")
     parser.add_argument("--shots", nargs="+", metavar="ID", help="only these shots' frames")
-    parser.add_argument("--report", nargs="?", type=Path, const=False, default=None,
+    parser.add_argument("--report", nargs="?", const="", default=None,
                         metavar="DEMO_DIR", help="process the demo (or read the one processed "
                         "in DEMO_DIR) and rewrite the table in README.md")
     args = parser.parse_args(argv)
     if args.report is not None:
-        return run_report(args.report or None)
+        return run_report(Path(args.report) if args.report else None)
     if args.frames is not None:
         written = write_frames(args.frames, args.shots)
     else:

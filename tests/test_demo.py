@@ -145,16 +145,15 @@ def _drawn_small(folder: Path):
     from app.cli import demo
 
     recipe = _recipe()
-    with pytest.MonkeyPatch.context() as patch:
-        patch.setattr(recipe, "FRAME_SHAPE", SMALL_SHAPE)
-        patch.setattr(recipe, "RADIUS_PX", SMALL_RADIUS_PX)
-        patch.setattr(demo, "SAMPLE_RUNS", folder)
-        recipe.demo_shots.cache_clear()
-        try:
-            yield folder
-        finally:
+    try:
+        with pytest.MonkeyPatch.context() as patch:
+            patch.setattr(recipe, "FRAME_SHAPE", SMALL_SHAPE)
+            patch.setattr(recipe, "RADIUS_PX", SMALL_RADIUS_PX)
+            patch.setattr(demo, "SAMPLE_RUNS", folder)
             recipe.demo_shots.cache_clear()
-    recipe.demo_shots.cache_clear()
+            yield folder
+    finally:
+        recipe.demo_shots.cache_clear()  # the launches as drawn at full size again
 
 
 @pytest.fixture(scope="module")
