@@ -185,12 +185,12 @@ def render(shot: DemoShot):
 
 def shot_truth(shot: DemoShot):
     """The truth of one launch without drawing its images (the same as :func:`render`'s)."""
+    import inspect
+
     from core.synth_physical import physical_flow
 
-    image_only = ("surface", "glint", "shadow", "light_from_deg", "sheet_unevenness",
-                  "bit_depth", "density_ppp", "out_of_plane", "spin_rpm")
-    _, truth = physical_flow(FRAME_SHAPE, **{k: v for k, v in shot.draw.items()
-                                            if k not in image_only})
+    flow_args = inspect.signature(physical_flow).parameters  # the draw's flow, not its images
+    _, truth = physical_flow(FRAME_SHAPE, **{k: v for k, v in shot.draw.items() if k in flow_args})
     return truth
 
 
