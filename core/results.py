@@ -111,9 +111,13 @@ class SideProposal:
     """Proposed separation on one side of the ball."""
 
     angle_deg: float | None  # None: no proposal (see reason)
-    uncertainty_deg: float | None = None
+    uncertainty_deg: float | None = None  # expanded uncertainty: see core.separation.COVERAGE
     quality: float | None = None  # 0..1, higher is better
     reason: str = ""  # why there is no proposal, or a remark on a weak one
+    departure_deg: float | None = None  # fitted angle of the layer from the wall's tangent
+    layer_px: float | None = None  # fitted vorticity thickness of the layer at separation
+    budget: dict[str, float] | None = None  # standard uncertainties (deg) by source
+    layer: dict[str, float] | None = None  # the fitted layer model (core.separation.layer_curves)
 
 
 @dataclass

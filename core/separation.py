@@ -1,32 +1,34 @@
-"""Proposed separation angles: fit each separated shear layer where it leaves the ball.
+"""Proposed separation angles: fit the flow next to each side of the ball where it separates.
 
-PIV cannot resolve the boundary layer (sub-mm), so separation is located the way the trade does
-it (common practice): find the separated shear layer and carry it back to the ball's outline.
-Near separation the layer runs within a few pixels of the outline, where correlation windows
-that touch the mask smear it away, and a ridge traced further out and extrapolated is biased by
-several degrees. So the layer is fitted to the particle images themselves, in the ball frame, in
-a thin band along the outline (gaps ``BAND_GAP_PX`` outside it):
+Separation is where the wall shear changes sign. PIV cannot resolve the boundary layer (sub-mm)
+and correlation windows that touch the ball's mask smear the layer away, so the flow next to the
+wall is fitted to the particle images themselves, in the ball frame, in a thin band along the
+outline (:mod:`core.near_wall`): the model of :mod:`core.layer_model` (an attached layer whose
+dividing line touches the wall at ``phi_s`` and then lifts off as a free shear layer that
+thickens downstream), with the stream outside it from the finer PIV vectors beside the ball.
 
-- the stream outside the layer comes from the fine PIV vectors clear of the wall (a smooth
-  polar fit, tangential and radial components, the radial one vanishing at the wall);
-- the layer leaves the outline at ``phi_s`` at the angle ``atan a`` from the tangent, and its
-  heading then turns toward the wake's direction (measured first, from the field behind the
-  ball), relaxing exponentially over an arc length ``L`` (``layer_gap_px``). A quadratic
-  ``g(t) = R (a t + b t^2)`` is only the start of that curve: it cannot follow a shallow layer
-  that turns back toward the axis, and made such layers come out several degrees late;
-- across the layer the ball-frame motion changes from the stream to the near-still wake with a
-  ``tanh`` profile of width ``w`` (the mixing-layer shape); upstream of ``phi_s`` the layer's
-  tangent continues into the wall, so the flow next to the wall slows smoothly ahead of
-  separation instead of switching off at ``phi_s``;
-- frame A sampled at ``p - D/2 - u(p)/2`` must match frame B at ``p + D/2 + u(p)/2`` (``D`` the
-  ball displacement, ``u`` the model's ball-frame displacement): a coarse search over
-  ``(phi_s, a, L)`` and a least-squares refinement of all parameters.
+The data alone can hardly tell a steeper departure from a later one, nor a thicker layer from a
+later one, so the model's shape parameters carry priors, all in physical units:
 
-Separated layers leave the wall at a shallow angle (about 5-15 deg, common practice) and are thin
-near separation (a few px), and the data alone can hardly tell a steeper departure from a later
-one, nor a wider layer from a later one. So ``a``, ``L`` and ``w`` carry priors: any departure
-angle within 5-15 deg alike (no pull toward the middle of the range, which made shallow layers
-come out late), ``ln(L / R) = 0 +- 0.7`` (a weak one) and ``ln(w / 1.5 px) = 0 +- 0.3``.
+- the layer's vorticity thickness at separation, ``ln(delta / delta_lam) = 0 +- 0.7``, with
+  ``delta_lam = 1.5 D / sqrt(Re)`` in px (the laminar layer scales as ``D / sqrt(Re)``;
+  Thwaites' separation criterion ``lambda = -0.09`` with an adverse edge-velocity gradient of
+  about ``-0.45 U / R`` gives ``theta = 0.32 D / sqrt(Re)``, and a separating profile's vorticity
+  thickness is about 4.9 ``theta``: derived, docs/references.md). The prior is wide (a factor of
+  two) because tripped, turbulent layers are thicker;
+- its spreading behind separation, ``d delta / ds = 0.18 (1 + r) / (1 - r) +- 0.04 (...)`` for a
+  mixing layer between the stream and the reverse flow ``-r U`` (Brown & Roshko 1974, memory:
+  0.14-0.22 quoted);
+- any departure angle within 0-25 deg alike (tangential included), any reverse flow within
+  2-30 % of the stream alike, a weak prior on the turning length.
+
+The uncertainty combines, as standard uncertainties: the fit's own standard error, the fitted
+circle's error (refit with the radius moved by its uncertainty), the flight direction's (one to
+one), the model form (refit with the alternative layer profile) and the priors' leverage (refit
+with the thickness prior's median halved and doubled). The reported ``uncertainty_deg`` is
+``COVERAGE_K`` times their root sum of squares: an interval meant to cover the truth in at
+least ``COVERAGE`` of cases, calibrated on one family of synthetic shots and checked on the
+other (docs/separation_accuracy.md).
 
 Angles follow the shot convention: from the plane through the ball centre normal to the flight,
 positive rearward; *upper* is the side toward the top of the picture (core.geometry).
@@ -34,79 +36,117 @@ positive rearward; *upper* is the side toward the top of the picture (core.geome
 
 from __future__ import annotations
 
+import itertools
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy import ndimage
 from scipy.optimize import least_squares
 
 from core.geometry import flight_unit, side_normal
+from core.layer_model import PARAM_NAMES, SideGeometry, side_flow
+from core.near_wall import BallMotion, NearWallBand, polar_of, side_axes
 from core.results import SeparationResult, SideProposal, VectorField
 
-#: Band along the outline where the layer is fitted: gaps (px) outside the outline.
-BAND_GAP_PX = (1.0, 12.0)
+#: Band along the outline where the layer is fitted: first gap (px) outside the outline; the
+#: last one is ``BAND_DEPTH`` times the prior's upper thickness (twice its median), within
+#: ``BAND_LAST_GAP_PX``.
+BAND_FIRST_GAP_PX = 2.0
+#: Spacing of the band's samples along the outline (px); rows are 0.5 px apart near the wall.
+BAND_ARC_STEP_PX = 1.5
+BAND_LAST_GAP_PX = (16.0, 28.0)
+BAND_DEPTH = 4.0
 #: Angles (deg, separation convention) searched for the separation point.
 SEARCH_DEG = (-40.0, 62.0)
 #: Band extent beyond the search range (deg): some attached flow ahead, some wake behind.
 BAND_DEG = (-50.0, 80.0)
-#: Prior on the layer's departure angle from the tangent (deg): any angle in this range is
-#: equally likely (separated layers leave at about 5-15 deg: common practice); outside it the
-#: penalty grows as (distance of ``a = tan angle`` from the range) / ``PRIOR_SLOPE_WALL``. A
-#: prior peaked inside the range (e.g. ``tan 10 deg +- 0.05``) pulls shallow layers steeper, and
-#: a steeper layer is fitted by a later separation point: 5-7 deg layers came out up to 2.8 deg
-#: late on synthetic sweeps.
-PRIOR_LEAVE_DEG = (5.0, 15.0)
-PRIOR_SLOPE_WALL = 0.02
-#: Prior on the layer's turning length over the radius, ``L / R``: median and standard deviation
-#: of ``ln(L / R)`` (a weak one).
+#: Laminar layer thickness at separation: ``delta = LAMINAR_DELTA_COEF D / sqrt(Re)`` (derived,
+#: see the module docstring), and the prior's spread of ``ln delta``.
+LAMINAR_DELTA_COEF = 1.5
+PRIOR_LOG_DELTA_SD = 0.7
+#: Reynolds number assumed for the thickness prior when the shot has none (no dt or scale).
+FALLBACK_REYNOLDS = 1.5e5
+#: Mixing-layer spreading rate of the vorticity thickness for a stream over still air and its
+#: spread (Brown & Roshko 1974, memory: 0.14-0.22 quoted).
+SPREADING_RATE = (0.18, 0.04)
+#: Departure angles (deg from the tangent) treated alike; beyond, the penalty grows as the
+#: distance of ``tan angle`` from the range over ``PRIOR_WALL``.
+PRIOR_LEAVE_DEG = (0.0, 25.0)
+#: Reverse flow under the layer (fraction of the stream) treated alike.
+PRIOR_REVERSE = (0.02, 0.30)
+#: Drop of the attached layer's centre toward the wall ahead of separation, and its thinning,
+#: treated alike within these ranges.
+PRIOR_DROP = (0.0, 1.0)
+PRIOR_THIN = (0.0, 0.7)
+PRIOR_WALL = 0.02
+#: Prior on the layer's turning length over the radius: median and sd of ``ln(L / R)``.
 PRIOR_RELAX = (1.0, 0.7)
-#: Prior on the half-width ``w`` of the layer's tanh profile: median (px) and standard deviation
-#: of ``ln w``. Near separation the layer is thin, a few px (common practice). Left free, the
-#: fitted width grows (the particle images' own size widens the apparent profile), and in the fit
-#: a wider layer trades against a later separation point: on synthetic sweeps (1.5 px layers) the
-#: free width averaged 1.7-1.8 px and the angles came out ~0.25 deg later than with the width
-#: held at the truth. A wider true layer still gains: with 3 px layers (6 shots) the mean error
-#: was +0.43 deg with this prior and +0.60 deg without it, and a 14-shot sweep of 2.5 px layers
-#: gave median 0.49 deg, max 1.14 deg. Layers thinner than the particle images are beyond the
-#: method with or without this prior: 1 px layers gave median 0.9 deg, max 3.8 deg on a sweep.
-#: The median is in px and equals the synthetic sweeps' layer; a prior in mm from the shot's
-#: scale would be the physical form.
-PRIOR_WIDTH = (1.5, 0.3)
+#: The coarse search uses every ``COARSE_EVERY``-th angle and gap row of the band at first,
+#: every other one around its best angles; the refinement the band's samples within
+#: ``FIT_WINDOW_DEG`` of its start.
+COARSE_EVERY = 3
+FIT_WINDOW_DEG = (-25.0, 40.0)
+#: Depth (layer thicknesses) to which the dividing line's place below the layer is uncertain,
+#: and the shallowest departure (deg) used to turn it into an angle (calibrated:
+#: docs/separation_accuracy.md).
+EXTRAPOLATION_DEPTH = 0.2
+EXTRAPOLATION_MIN_DEG = 3.0
+#: Iterations (Jacobians) of the main refinement and of each refit from its result.
+REFINE_ITERATIONS = 25
+ALTERNATIVE_ITERATIONS = 5
+#: The angle's profile is taken this far either side of the best fit (deg); the fit's own
+#: standard uncertainty is capped at ``PROFILE_MAX_DEG``.
+PROFILE_STEP_DEG = 3.0
+PROFILE_MAX_DEG = 20.0
+#: Thicknesses (over the prior's median) tried by the coarse search, and how many of its first
+#: stage's best angles are searched further.
+COARSE_THICKNESS = (1.0, 3.0)
+COARSE_CANDIDATES = 3
 #: Refinements run from this many starting points of the coarse search (the best wins): the
 #: image-matching cost has several shallow minima along the outline.
 REFINE_STARTS = 2
 #: Neighbouring image samples are correlated (particle images span several samples): the
 #: residual variance is scaled by this many samples per independent one.
 SAMPLES_PER_INDEPENDENT = 10.0
-#: Uncertainty floor, as an arc length along the outline (px): the scatter of the fitted
-#: separation point about the truth on synthetic shots (core.synth_shot sweeps) that the fit's own
-#: standard error does not capture (particle noise next to the wall, the layer's shape beyond the
-#: model, the fitted circle's own error). The fit resolves the separation point to a distance
-#: along the outline, so the floor in degrees shrinks as the ball grows in the picture.
-#: Calibrated on four 14-shot sweeps at radius 200 px (112 sides, seeds 7, 11, 13 and 17 of the
-#: test's recipe): 7 px (2.0 deg) covers 98 %, at least 96 % of each sweep.
-MODEL_FLOOR_ARC_PX = 7.0
-#: A proposal needs the layered model to beat the attached-flow model by this fraction of the
-#: residual, and a separation point at least this far ahead of the band's rear end (deg).
+#: The reported uncertainty is ``COVERAGE_K`` standard uncertainties, meant to cover the truth
+#: in at least ``COVERAGE`` of proposals (calibrated: docs/separation_accuracy.md).
+COVERAGE = 0.95
+COVERAGE_K = 2.0
+#: A proposal needs the separating model to beat the attached-flow model by this fraction of
+#: the residual, and a separation point no later than ``LATEST_DEG`` (135 deg from the front
+#: stagnation point; even supercritical spheres separate by about 110-120 deg: Achenbach 1972,
+#: memory; a fit that far back is an attached flow's).
 MIN_IMPROVEMENT = 0.02
-REAR_MARGIN_DEG = 18.0
-#: Share of the band that must lie inside the image for a proposal.
+LATEST_DEG = 45.0
+#: Band samples this close (px) to glare are left out of the fit; at least this share of the
+#: band must stay.
+GLARE_REACH_PX = 2.0
+MIN_CLEAR_FRACTION = 0.6
+#: Share of the band that must lie inside the image (and clear of glare) for a proposal.
 MIN_INSIDE_FRACTION = 0.9
+#: Particle images in the band beside the ball, relative to the free stream nearby, below which
+#: the side is refused (unlit: a laser shadow; or sparsely seeded).
+MIN_SEEDING_RATIO = 0.35
 #: Wake state threshold (deg): sides differ when |upper - lower| exceeds the larger of this and
 #: the combined uncertainty.
 STATE_THRESHOLD_DEG = 5.0
+#: Typical step of each parameter (``PARAM_NAMES`` order) for the refinement's trust region.
+REFINE_SCALE = np.array([1.0, 0.05, 0.3, 0.2, 0.03, 0.05, 0.1, 0.1, 0.2, 0.02, 0.1])
 
 
 @dataclass
 class BallFrame:
-    """The ball at mid-exposure and its motion (image coordinates, px)."""
+    """The ball at mid-exposure, its motion and what is known of the shot (image px)."""
 
     center_px: tuple[float, float]
     radius_px: float
     displacement_px: tuple[float, float]  # ball centre B - A
     flight_deg: float
     stream_px: float | None = None  # air speed past the ball, px per pair (None: |displacement|)
+    reynolds: float | None = None
+    radius_sigma_px: float = 0.0  # standard uncertainty of the circle (radius, centre)
+    center_sigma_px: float = 0.0
+    flight_sigma_deg: float = 0.0  # standard uncertainty of the flight direction
 
     @property
     def stream(self) -> float:
@@ -114,6 +154,16 @@ class BallFrame:
         if self.stream_px is not None:
             return float(self.stream_px)
         return math.hypot(*self.displacement_px)
+
+    @property
+    def motion(self) -> BallMotion:
+        return BallMotion(tuple(self.center_px), float(self.radius_px),
+                          tuple(self.displacement_px), float(self.flight_deg))
+
+    def laminar_delta_px(self) -> float:
+        """Prior median of the layer's vorticity thickness at separation (px)."""
+        re = self.reynolds if self.reynolds and self.reynolds > 0 else FALLBACK_REYNOLDS
+        return LAMINAR_DELTA_COEF * 2.0 * self.radius_px / math.sqrt(re)
 
 
 def propose_separation(
@@ -123,6 +173,8 @@ def propose_separation(
     fine: VectorField,
     fine_origin_px: tuple[float, float],
     lab_field: VectorField,
+    seeding: SeedingMap | None = None,
+    glare: tuple[np.ndarray | None, np.ndarray | None] = (None, None),
 ) -> SeparationResult:
     """Separation proposal on both sides, wake deflection and wake state of one shot.
 
@@ -131,15 +183,21 @@ def propose_separation(
     frame_a, frame_b : (H, W) ndarray
         The frame pair (lab frame, as recorded).
     ball : BallFrame
-        Ball circle at mid-exposure, its displacement and the flight direction.
+        Ball circle at mid-exposure, its displacement, the flight direction and uncertainties.
     fine : VectorField
         Fine correlation around the ball *in the ball frame* (the ball at rest), positions
         relative to ``fine_origin_px``.
     fine_origin_px : (float, float)
         Image position (x, y) of the fine field's origin.
-    lab_field : VectorField, optional
+    lab_field : VectorField
         The whole-frame field (lab frame, image coordinates): it reaches further behind the ball
-        for the wake's direction; without it the fine field is used.
+        for the wake's direction.
+    seeding : SeedingMap, optional
+        Particle-image density around the ball; without it no side is refused for seeding.
+    glare : ((H, W) bool ndarray or None, same)
+        Saturated glare in frames A and B (core.conditioning): band samples in or next to it
+        are left out of the fit (a glint on the ball is bright and still in the ball frame,
+        and would pass for air at rest).
 
     Returns
     -------
@@ -151,7 +209,8 @@ def propose_separation(
     # each layer turns toward the wake's direction (on the lower side it points away from it)
     toward = 0.0 if deflection is None else deflection
     sides = {side: fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side,
-                            final_deg=toward if side == "upper" else -toward)
+                            final_deg=toward if side == "upper" else -toward, seeding=seeding,
+                            glare=glare)
              for side in ("upper", "lower")}
     if sides["upper"].angle_deg is None and sides["lower"].angle_deg is None:
         deflection = None
@@ -159,26 +218,39 @@ def propose_separation(
     return SeparationResult(sides["upper"], sides["lower"], deflection, state)
 
 
-# --- geometry of one side ------------------------------------------------------------------------
+# --- seeding beside the ball ---------------------------------------------------------------
 
 
-def _side_axes(ball: BallFrame, side: str, phi_deg: np.ndarray):
-    """Outward radial and rearward tangential unit vectors (image coordinates) at angles phi."""
-    fx, fy = flight_unit(ball.flight_deg)
-    nx, ny = side_normal(ball.flight_deg, side)
-    t = np.radians(phi_deg)
-    ex, ey = np.cos(t) * nx - np.sin(t) * fx, np.cos(t) * ny - np.sin(t) * fy
-    tx, ty = -np.sin(t) * nx - np.cos(t) * fx, -np.sin(t) * ny - np.cos(t) * fy
-    return (ex, ey), (tx, ty)
+@dataclass
+class SeedingMap:
+    """Particle images per pixel around the ball (frame A), ``density[y - y0, x - x0]``."""
+
+    density: np.ndarray
+    origin_px: tuple[int, int]  # (y0, x0)
+
+    def at(self, x_px: np.ndarray, y_px: np.ndarray) -> np.ndarray:
+        rows = np.clip(np.rint(y_px - self.origin_px[0]).astype(int), 0, self.density.shape[0] - 1)
+        cols = np.clip(np.rint(x_px - self.origin_px[1]).astype(int), 0, self.density.shape[1] - 1)
+        return self.density[rows, cols]
 
 
-def _polar(ball: BallFrame, side: str, x_px: np.ndarray, y_px: np.ndarray):
-    """Separation-convention angle (deg) and gap outside the outline (px) of image points."""
-    fx, fy = flight_unit(ball.flight_deg)
-    nx, ny = side_normal(ball.flight_deg, side)
-    rx, ry = x_px - ball.center_px[0], y_px - ball.center_px[1]
-    phi = np.degrees(np.arctan2(-(rx * fx + ry * fy), rx * nx + ry * ny))
-    return phi, np.hypot(rx, ry) - ball.radius_px
+def seeding_ratio(seeding: SeedingMap, ball: BallFrame, side: str) -> float:
+    """Particle images in the band beside ``side`` over those in the air around the ball.
+
+    The band: 2-14 px outside the outline, -40..+40 deg; the air: the median over a ring
+    0.3-0.8 radii outside the whole outline (a laser shadow darkens one side only).
+    """
+    cx, cy = ball.center_px
+    r = ball.radius_px
+    phi = np.linspace(-40.0, 40.0, 81)
+    (ex, ey), _ = side_axes(ball.flight_deg, side, phi)
+    near = np.mean([seeding.at(cx + (r + g) * ex, cy + (r + g) * ey)
+                    for g in np.linspace(2.0, 14.0, 7)])
+    theta = np.linspace(0.0, 2.0 * np.pi, 240, endpoint=False)
+    ring = [seeding.at(cx + (r * k) * np.cos(theta), cy + (r * k) * np.sin(theta))
+            for k in np.linspace(1.3, 1.8, 6)]
+    far = float(np.median(np.concatenate(ring)))
+    return float(near) / far if far > 0 else 0.0
 
 
 # --- the stream outside the layer, from the fine PIV ------------------------------------------
@@ -191,6 +263,7 @@ class OuterStream:
     coef_t: np.ndarray
     coef_r: np.ndarray
     radius_px: float
+    phi_range: tuple[float, float] = (-90.0, 180.0)  # angles covered by vectors near the wall
 
     @staticmethod
     def _basis(phi_deg, gap_px, radius_px, with_constant):
@@ -203,11 +276,16 @@ class OuterStream:
         return np.stack(cols, axis=-1)
 
     def tangential(self, phi_deg, gap_px) -> np.ndarray:
-        return self._basis(phi_deg, gap_px, self.radius_px, True) @ self.coef_t
+        """Tangential component; beyond the angles the vectors cover near the wall it is held at
+        its last value (behind separation the stream outside the layer hardly changes, and a
+        polynomial carried on into the wake would run wild)."""
+        phi = np.clip(phi_deg, *self.phi_range)
+        return self._basis(phi, gap_px, self.radius_px, True) @ self.coef_t
 
     def radial(self, phi_deg, gap_px) -> np.ndarray:
         """Radial component, zero at the wall (no flow through it)."""
-        return self._basis(phi_deg, gap_px, self.radius_px, False) @ self.coef_r
+        phi = np.clip(phi_deg, *self.phi_range)
+        return self._basis(phi, gap_px, self.radius_px, False) @ self.coef_r
 
 
 def outer_stream(
@@ -219,8 +297,8 @@ def outer_stream(
     0.6 of the ball's speed relative to the air (the wake and the layer are left out). The fit is
     a low-order polar polynomial (cubic in angle, quadratic in gap), robust (Cauchy weights).
     """
-    phi, gap = _polar(ball, side, fine.x_px + origin_px[0], fine.y_px + origin_px[1])
-    (ex, ey), (tx, ty) = _side_axes(ball, side, phi)
+    phi, gap = polar_of(ball.motion, side, fine.x_px + origin_px[0], fine.y_px + origin_px[1])
+    (ex, ey), (tx, ty) = side_axes(ball.flight_deg, side, phi)
     u_t = fine.dx_px * tx + fine.dy_px * ty
     u_r = fine.dx_px * ex + fine.dy_px * ey
     speed = ball.stream
@@ -233,7 +311,14 @@ def outer_stream(
     r = ball.radius_px
     coef_t = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, True), u_t[ok])
     coef_r = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, False), u_r[ok])
-    return OuterStream(coef_t, coef_r, r)
+    near = ok & (gap <= NEAR_WALL_STREAM_PX)
+    covered = tuple(np.percentile(phi[near], [2.0, 98.0])) if near.sum() >= 10 else (
+        float(phi[ok].min()), float(phi[ok].max()))
+    return OuterStream(coef_t, coef_r, r, covered)
+
+
+#: Vectors within this gap (px) of the outline set the angles the stream fit is trusted over.
+NEAR_WALL_STREAM_PX = 25.0
 
 
 def _robust_lstsq(design: np.ndarray, values: np.ndarray) -> np.ndarray:
@@ -248,266 +333,346 @@ def _robust_lstsq(design: np.ndarray, values: np.ndarray) -> np.ndarray:
     return coef
 
 
-# --- the band of particle images next to the ball --------------------------------------------
+# --- the fit of one side ---------------------------------------------------------------------
 
 
-class NearWallBand:
-    """Samples of both frames on a polar grid along one side of the ball (ball frame).
+@dataclass
+class SideProblem:
+    """Everything one side's fit needs: the band, the outer stream at its samples, the priors."""
 
-    ``residual(u_t, u_r)`` compares frame A at ``p - D/2 - u/2`` with frame B at
-    ``p + D/2 + u/2`` for every sample ``p`` (cubic splines of the frames); the
-    tangential motion is applied as a rotation about the ball centre (flow along the outline).
-    """
+    band: NearWallBand
+    outer: OuterStream
+    final_deg: float  # the wake's direction on this side
+    log_delta_prior: float  # ln of the prior median thickness (px)
+    sigma: float = 1.0  # residual scale
 
-    def __init__(self, frame_a, frame_b, ball: BallFrame, side: str, *,
-                 phi_deg=BAND_DEG, gap_px=BAND_GAP_PX, arc_step_px=1.0, gap_step_px=0.5):
-        self.ball = ball
-        self.side = side
-        r = ball.radius_px
-        step_deg = math.degrees(arc_step_px / r)
-        phi = np.arange(phi_deg[0], phi_deg[1] + step_deg / 2, step_deg)
-        gap = np.arange(gap_px[0], gap_px[1] + gap_step_px / 2, gap_step_px)
-        grid_phi, grid_gap = np.meshgrid(phi, gap, indexing="ij")
-        self.phi_grid = phi
-        self.gap_count = gap.size
-        self.phi = grid_phi.ravel()
-        self.gap = grid_gap.ravel()
-        (ex, ey), (tx, ty) = _side_axes(ball, side, self.phi)
-        self._e = (ex, ey)
-        self._t = (tx, ty)
-        x, y = ball.center_px[0] + (r + self.gap) * ex, ball.center_px[1] + (r + self.gap) * ey
-        height, width = frame_a.shape
-        self.inside_fraction = float(np.mean((x >= 0) & (y >= 0) & (x <= width - 1)
-                                             & (y <= height - 1)))
-        # the model samples the frames half the air's displacement either side of the band: size
-        # the crop by the faster of the ball and the air (a held ball does not move at all)
-        reach = 3.0 * max(math.hypot(*ball.displacement_px), ball.stream) + 10.0
-        self.y0 = max(0, int(y.min() - reach))
-        self.x0 = max(0, int(x.min() - reach))
-        y1 = min(height, int(y.max() + reach) + 1)
-        x1 = min(width, int(x.max() + reach) + 1)
-        crop_a = np.asarray(frame_a[self.y0:y1, self.x0:x1], dtype=np.float64)
-        crop_b = np.asarray(frame_b[self.y0:y1, self.x0:x1], dtype=np.float64)
-        self.scale = float(np.std(crop_a)) + 1e-9
-        self.coeff_a = ndimage.spline_filter(crop_a, order=3)
-        self.coeff_b = ndimage.spline_filter(crop_b, order=3)
+    def __post_init__(self):
+        self.geom = SideGeometry(self.band.ball.radius_px, self.band.phi_grid,
+                                 self.band.gap_grid, self.final_deg)
+        self.u_t = self.outer.tangential(self.band.phi, self.band.gap)
+        self.u_r = self.outer.radial(self.band.phi, self.band.gap)
 
-    def _positions(self, turn_rad, rho):
-        """Image positions of the samples turned by ``turn_rad`` about the ball centre, at radius
-        ``rho``; the turn is small (half a frame pair's motion), so cos/sin are series."""
-        t2 = turn_rad * turn_rad
-        cos_t = 1.0 - t2 / 2.0 + t2 * t2 / 24.0
-        sin_t = turn_rad * (1.0 - t2 / 6.0 + t2 * t2 / 120.0)
-        (ex, ey), (tx, ty) = self._e, self._t
-        x = self.ball.center_px[0] + rho * (ex * cos_t + tx * sin_t)
-        y = self.ball.center_px[1] + rho * (ey * cos_t + ty * sin_t)
-        return x, y
+    def view(self, phi_deg=None, *, every: int = 1) -> SideProblem:
+        """The same problem on fewer samples (:meth:`NearWallBand.view`); the residual scale
+        follows the decimation so that the data weigh the same against the priors."""
+        return SideProblem(self.band.view(phi_deg, every=every), self.outer, self.final_deg,
+                           self.log_delta_prior, self.sigma / every)
 
-    def residual(self, u_t: np.ndarray, u_r: np.ndarray) -> np.ndarray:
-        """Normalised difference of the two frames under ball-frame motion ``(u_t, u_r)`` (px)."""
-        rho = self.ball.radius_px + self.gap
-        half_turn = 0.5 * u_t / rho
-        dx, dy = self.ball.displacement_px
-        xa, ya = self._positions(-half_turn, rho - 0.5 * u_r)
-        xb, yb = self._positions(half_turn, rho + 0.5 * u_r)
-        a = ndimage.map_coordinates(
-            self.coeff_a, [ya - 0.5 * dy - self.y0, xa - 0.5 * dx - self.x0], order=3,
-            prefilter=False, mode="nearest",
-        )
-        b = ndimage.map_coordinates(
-            self.coeff_b, [yb + 0.5 * dy - self.y0, xb + 0.5 * dx - self.x0], order=3,
-            prefilter=False, mode="nearest",
-        )
-        return (a - b) / self.scale
+    def flow(self, params, shape="erf", geom=None):
+        return side_flow(geom or self.geom, params, self.u_t, self.u_r, shape)
+
+    def data_cost(self, params, shape="erf", geom=None) -> float:
+        return float(np.sum(self.band.residual(*self.flow(params, shape, geom)) ** 2))
+
+    def residuals(self, params, shape="erf", geom=None, log_delta_prior=None) -> np.ndarray:
+        """What the fit squares and sums: the band's residuals over ``sigma``, then the priors'."""
+        data = self.band.residual(*self.flow(params, shape, geom)) / self.sigma
+        return np.concatenate([data, self.prior_terms(params, log_delta_prior)])
+
+    def score(self, params, data_cost: float | None = None) -> float:
+        """Data cost over ``sigma^2`` plus the priors: what the fit minimises (twice its cost)."""
+        if data_cost is None:
+            data_cost = self.data_cost(params)
+        return data_cost / self.sigma**2 + float(np.sum(self.prior_terms(params) ** 2))
+
+    def prior_terms(self, params, log_delta_prior=None) -> np.ndarray:
+        """Dimensionless prior residuals (their squares add to the cost), ``PARAM_NAMES`` order."""
+        _, slope, relax, log_delta, spread, reverse, drop, thin, follow, _, _ = params
+        centre = self.log_delta_prior if log_delta_prior is None else log_delta_prior
+        lo, hi = (math.tan(math.radians(v)) for v in PRIOR_LEAVE_DEG)
+        ratio = (1.0 + reverse) / max(1.0 - reverse, 1e-3)
+        return np.array([
+            _outside(slope, lo, hi),
+            math.log(relax / PRIOR_RELAX[0]) / PRIOR_RELAX[1],
+            (log_delta - centre) / PRIOR_LOG_DELTA_SD,
+            (spread - SPREADING_RATE[0] * ratio) / (SPREADING_RATE[1] * ratio),
+            _outside(reverse, *PRIOR_REVERSE),
+            _outside(drop, *PRIOR_DROP),
+            _outside(thin, *PRIOR_THIN),
+            _outside(follow, 0.0, 1.0),
+        ])
+
+    def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5):
+        """Parameters at the priors' medians but for those given."""
+        ratio = (1.0 + reverse) / (1.0 - reverse)
+        return np.array([phi_s, math.tan(math.radians(leave_deg)), PRIOR_RELAX[0],
+                         self.log_delta_prior + math.log(delta_factor),
+                         SPREADING_RATE[0] * ratio, reverse, 0.5, 0.35, follow, 1.0, 1.0])
 
 
-# --- the layer model and its fit -------------------------------------------------------------
+def _outside(value: float, lo: float, hi: float) -> float:
+    """Distance of ``value`` outside ``[lo, hi]`` over ``PRIOR_WALL`` (0 inside)."""
+    return (max(0.0, lo - value) + max(0.0, value - hi)) / PRIOR_WALL
 
 
-def layer_gap_px(radius_px: float, phi_s_deg: float, slope: float, relax_px: float, phi_deg,
-                 final_deg: float = 0.0):
-    """Distance (px) of the layer from the outline at angles ``phi_deg`` (separation convention).
-
-    The layer leaves the outline at ``phi_s_deg`` at ``atan(slope)`` from the tangent; its heading
-    then relaxes exponentially, over the arc length ``relax_px``, toward ``final_deg`` (the wake
-    direction on this side, from the rearward axis, positive away from the axis toward the side).
-    Upstream of ``phi_s_deg`` the layer's tangent continues into the wall (negative distance), so
-    the flow next to the wall slows smoothly as the separation point nears.
-
-    Parameters
-    ----------
-    radius_px, phi_s_deg, slope, relax_px, final_deg : float
-    phi_deg : (N,) ndarray
-        Angles (deg) where the distance is wanted.
-
-    Returns
-    -------
-    (N,) ndarray
-        Distance outside the outline (px).
-    """
-    phi = np.asarray(phi_deg, dtype=np.float64)
-    th = math.radians(phi_s_deg)
-    psi0 = -th + math.atan(slope)
-    psi_f = math.radians(final_deg)
-    s = np.linspace(0.0, 3.0 * radius_px, 241)
-    # heading integrated in closed form: psi(s) = psi_f + (psi0 - psi_f) exp(-s / L)
-    psi = psi_f + (psi0 - psi_f) * np.exp(-s / max(relax_px, 1e-6))
-    ds = s[1] - s[0]
-    step_xi, step_zeta = np.cos(psi), np.sin(psi)
-    xi = radius_px * math.sin(th) + np.concatenate(
-        [[0.0], np.cumsum(0.5 * (step_xi[1:] + step_xi[:-1]) * ds)])
-    zeta = radius_px * math.cos(th) + np.concatenate(
-        [[0.0], np.cumsum(0.5 * (step_zeta[1:] + step_zeta[:-1]) * ds)])
-    curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)))
-    curve_gap = np.hypot(xi, zeta) - radius_px
-    ahead = np.interp(phi, curve_phi, curve_gap)
-    back = radius_px * slope * np.radians(phi - phi_s_deg)
-    return np.where(phi >= phi_s_deg, ahead, back)
-
-
-def _model(band: NearWallBand, params, u_t, u_r, final_deg=0.0):
-    """Ball-frame motion of the layered model; ``params = (phi_s, a, L/R, w, u_wake, k_t, k_r)``."""
-    phi_s, slope, relax, width, u_wake, k_t, k_r = params
-    r = band.ball.radius_px
-    g_layer = layer_gap_px(r, phi_s, slope, relax * r, band.phi_grid, final_deg)
-    g_layer = np.repeat(g_layer, band.gap_count)
-    stream = 0.5 * (1.0 + np.tanh((band.gap - g_layer) / max(width, 0.3)))
-    return u_wake + (k_t * u_t - u_wake) * stream, k_r * u_r * stream
+def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str,
+                 final_deg: float, glare=(None, None)) -> SideProblem | str:
+    """The side's fitting problem, or the reason there is none."""
+    outer = outer_stream(fine, origin_px, ball, side)
+    if outer is None:
+        return "too few valid vectors beside the ball to model the stream there"
+    delta_prior = ball.laminar_delta_px()
+    last_gap = float(np.clip(BAND_FIRST_GAP_PX + BAND_DEPTH * 2.0 * delta_prior,
+                             *BAND_LAST_GAP_PX))
+    band = NearWallBand(frame_a, frame_b, ball.motion, side, phi_deg=BAND_DEG,
+                        gap_px=(BAND_FIRST_GAP_PX, last_gap), max_speed_px=2.0 * ball.stream,
+                        arc_step_px=BAND_ARC_STEP_PX)
+    if band.inside_fraction < MIN_INSIDE_FRACTION:
+        return "the image edge cuts the band next to the ball on this side"
+    band.leave_out(glare, GLARE_REACH_PX)
+    if band.kept_fraction < MIN_CLEAR_FRACTION:
+        return "glare covers too much of the band next to the ball on this side"
+    return SideProblem(band, outer, final_deg, math.log(delta_prior))
 
 
 def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str, *,
-             final_deg: float = 0.0) -> SideProposal:
-    """Fit the shear layer on one side; an empty proposal with the reason when there is none.
+             final_deg: float = 0.0, seeding: SeedingMap | None = None,
+             glare=(None, None)) -> SideProposal:
+    """Fit the flow next to one side; an empty proposal with the reason when there is none.
 
     ``final_deg`` is the direction the layer turns to (the wake's, from the rearward axis,
     positive toward this side).
     """
-    outer = outer_stream(fine, origin_px, ball, side)
-    if outer is None:
-        return SideProposal(None, None, 0.0, "too few valid vectors beside the ball to model the "
-                            "stream there")
-    band = NearWallBand(frame_a, frame_b, ball, side)
-    if band.inside_fraction < MIN_INSIDE_FRACTION:
-        return SideProposal(None, None, 0.0, "the image edge cuts the band next to the ball on "
-                            "this side")
-    u_t = outer.tangential(band.phi, band.gap)
-    u_r = outer.radial(band.phi, band.gap)
-    attached = band.residual(u_t, u_r)
+    if seeding is not None:
+        ratio = seeding_ratio(seeding, ball, side)
+        if ratio < MIN_SEEDING_RATIO:
+            return SideProposal(None, None, 0.0, f"too few particle images beside the ball on "
+                                f"this side ({ratio:.0%} of the air around it): unlit (a laser "
+                                "shadow?) or sparsely seeded")
+    problem = side_problem(frame_a, frame_b, ball, fine, origin_px, side, final_deg, glare)
+    if isinstance(problem, str):
+        return SideProposal(None, None, 0.0, problem)
+    attached = problem.band.residual(problem.u_t, problem.u_r)
     attached_cost = float(np.sum(attached**2))
     # residual scale: neighbouring samples are correlated, so one independent value per
     # SAMPLES_PER_INDEPENDENT samples
-    sigma2 = attached_cost / attached.size * SAMPLES_PER_INDEPENDENT + 1e-24
-    starts, start_cost = _coarse_search(band, u_t, u_r, final_deg, sigma2)
-    if not start_cost < (1.0 - MIN_IMPROVEMENT) * attached_cost:
+    problem.sigma = math.sqrt(attached_cost / attached.size * SAMPLES_PER_INDEPENDENT) + 1e-12
+    coarse = problem.view(every=2)
+    starts, start_cost = _coarse_search(problem)
+    coarse_attached = float(np.sum(coarse.band.residual(coarse.u_t, coarse.u_r) ** 2))
+    if not start_cost < (1.0 - MIN_IMPROVEMENT) * coarse_attached:
         return SideProposal(None, None, 0.0, "no separated shear layer next to the ball "
                             "(the attached-flow model fits as well: attached flow?)")
-    fits = [_refine(band, u_t, u_r, start, final_deg, math.sqrt(sigma2)) for start in starts]
-    params, spread, _ = min(fits, key=lambda fit: fit[2])
-    phi_s = float(params[0])
-    if phi_s > BAND_DEG[1] - REAR_MARGIN_DEG:
+    fits = []
+    for start in starts:
+        near = problem.view((start[0] + FIT_WINDOW_DEG[0], start[0] + FIT_WINDOW_DEG[1]))
+        fits.append((_refine(near, start, max_nfev=REFINE_ITERATIONS), near))
+    # the fits saw different windows: compare them on the samples all of them saw
+    angles = [fit.params[0] for fit, _ in fits]
+    common = problem.view((max(angles) + FIT_WINDOW_DEG[0], min(angles) + FIT_WINDOW_DEG[1]))
+    scores = np.array([common.score(fit.params) for fit, _ in fits])
+    best, near = fits[int(np.argmin(scores))]
+    phi_s = float(best.params[0])
+    if phi_s > LATEST_DEG:
         return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "
                             "(attached flow?)")
-    uncertainty = math.hypot(spread, model_floor_deg(ball.radius_px))
+    budget = _uncertainty_budget(near, best, ball)
+    budget["other minimum"] = _other_minima(angles, scores, phi_s)
+    standard = math.sqrt(sum(v * v for v in budget.values()))
+    uncertainty = COVERAGE_K * standard
     gain = 1.0 - start_cost / attached_cost
-    quality = float(np.clip(gain / 0.2, 0.0, 1.0) * np.clip(2.0 / max(spread, 1e-3), 0.0, 1.0))
+    quality = float(np.clip(gain / 0.2, 0.0, 1.0) * np.clip(2.0 / max(uncertainty, 1e-3), 0, 1))
+    departure = math.degrees(math.atan(best.params[1]))
     remark = ""
-    if math.degrees(math.atan(params[1])) > 25.0:
+    if departure > PRIOR_LEAVE_DEG[1]:
         remark = "the layer leaves unusually steeply: check the proposal"
-    return SideProposal(round(phi_s, 2), round(uncertainty, 2), round(quality, 3), remark)
+    layer = {name: round(float(v), 5) for name, v in zip(PARAM_NAMES, best.params, strict=True)}
+    layer.update(final_deg=round(final_deg, 3), band_first_gap_px=BAND_FIRST_GAP_PX,
+                 band_last_gap_px=float(problem.band.gap_grid[-1]),
+                 window_deg=[round(float(v), 3) for v in near.band.phi_grid[[0, -1]]])
+    return SideProposal(round(phi_s, 2), round(uncertainty, 2), round(quality, 3), remark,
+                        departure_deg=round(departure, 1),
+                        layer_px=round(math.exp(best.params[3]), 2),
+                        budget={k: round(float(v), 3) for k, v in budget.items()}, layer=layer)
 
 
-def model_floor_deg(radius_px: float) -> float:
-    """Uncertainty floor (deg) for a ball of ``radius_px``: ``MODEL_FLOOR_ARC_PX`` along the outline."""
-    return math.degrees(MODEL_FLOOR_ARC_PX / radius_px)
+def _other_minima(angles, scores, chosen: float) -> float:
+    """Standard uncertainty (deg) from other minima of the fit that the data hardly reject.
+
+    Each minimum is weighted by its likelihood, ``exp(-score / 2)`` (the scores are
+    chi-square-like: data cost over the residual scale plus the priors); the result is the
+    root of the weighted mean square distance of the minima from the chosen angle.
+    """
+    scores = np.asarray(scores, dtype=np.float64)
+    weights = np.exp(-0.5 * (scores - scores.min()))
+    weights /= weights.sum()
+    return float(math.sqrt(np.sum(weights * (np.asarray(angles) - chosen) ** 2)))
 
 
-def _prior_terms(params) -> np.ndarray:
-    """Prior residuals of the slope ``a``, ``L/R`` and the width ``w`` (squares add to the cost).
+@dataclass
+class Fit:
+    params: np.ndarray
+    score: float  # data cost over sigma^2 plus the priors (SideProblem.score)
+    jac: np.ndarray | None = None  # residuals' Jacobian at params (all parameters free)
+    fun: np.ndarray | None = None  # residuals at params
+
+    def angle_shift(self, other_residuals: np.ndarray) -> float:
+        """How far (deg) the angle moves when the residuals at ``params`` become
+        ``other_residuals`` (another model form, prior or circle): one Gauss-Newton step from
+        the best fit, ``-(J^T J)^+ J^T r``. A step, not a refit: the alternatives move the
+        angle little, and a refit of each would cost as much as the fit itself."""
+        step = -np.linalg.pinv(self.jac.T @ self.jac) @ (self.jac.T @ other_residuals)
+        return float(step[0])
+
+
+def _coarse_search(problem: SideProblem):
+    """Starting points for the refinement, best first, and the best data cost (on every other
+    sample of the band).
+
+    ``phi_s`` on a 2 deg grid at a few thicknesses with the other priors' medians; around the
+    best few (at least 6 deg apart), ``(phi_s, departure, thickness)`` on a 1 deg grid. Every
+    candidate is scored by its data cost over ``sigma^2`` plus the priors (a thick "attached"
+    layer can mimic a separated one far too early or late); the best of each ``phi_s`` cell
+    are kept, ``REFINE_STARTS`` of them at least 3 deg apart.
+    """
+    data_best = np.inf
+    first = []
+    sparse = problem.view(every=COARSE_EVERY)
+    problem = problem.view(every=2)
+    for factor, reverse, follow in itertools.product(COARSE_THICKNESS, (0.08, 0.25), (0.0, 1.0)):
+        for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 3.0):
+            params = sparse.start(phi_s, delta_factor=factor, reverse=reverse, follow=follow)
+            first.append((sparse.score(params), params, (factor, reverse, follow)))
+    scored = []
+    for _, centre, (factor, reverse, follow) in _distinct(first, 6.0, COARSE_CANDIDATES):
+        for phi_s in centre[0] + np.array([-3.0, -1.5, 0.0, 1.5, 3.0]):
+            for leave in (2.0, 7.0, 13.0, 19.0):
+                for f in (0.6 * factor, factor, 1.6 * factor):
+                    params = problem.start(phi_s, leave, f, reverse, follow)
+                    cost = problem.data_cost(params)
+                    data_best = min(data_best, cost)
+                    scored.append((problem.score(params, cost), params))
+    return [item[1] for item in _distinct(scored, 3.0, REFINE_STARTS)], data_best
+
+
+def _distinct(scored, apart_deg: float, count: int):
+    """The best ``count`` of ``(score, params, ...)`` whose angles lie ``apart_deg`` apart."""
+    kept = []
+    for item in sorted(scored, key=lambda item: item[0]):
+        if all(abs(item[1][0] - other[1][0]) >= apart_deg for other in kept):
+            kept.append(item)
+        if len(kept) == count:
+            break
+    return kept
+
+
+def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_prior=None,
+            max_nfev=60, hold=()) -> Fit:
+    """Least-squares refinement with the priors of all parameters but those named in ``hold``
+    (``PARAM_NAMES``), which keep their start values."""
+    start = np.asarray(start, dtype=np.float64)
+    free = np.array([name not in hold for name in PARAM_NAMES])
+
+    def residuals(q):
+        p = start.copy()
+        p[free] = q
+        return problem.residuals(p, shape, geom, log_delta_prior)
+
+    lower = np.array([start[0] - 10.0, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.0, 0.0, 0.7,
+                      0.0])
+    upper = np.array([start[0] + 10.0, 0.7, 6.0, math.log(40.0), 0.6, 0.45, 1.2, 0.9, 1.0, 1.3,
+                      2.0])
+    x0 = np.clip(start, lower + 1e-9, upper - 1e-9)[free]
+    sol = least_squares(
+        residuals, x0, bounds=(lower[free], upper[free]), diff_step=1e-3, max_nfev=max_nfev,
+        xtol=1e-4, ftol=1e-4, x_scale=REFINE_SCALE[free], tr_solver="lsmr",
+    )
+    params = start.copy()
+    params[free] = sol.x
+    return Fit(params, float(2.0 * sol.cost), sol.jac if free.all() else None, sol.fun)
+
+
+def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dict[str, float]:
+    """Standard uncertainties (deg) of the separation angle by source.
+
+    The fit's own: the profile of the score along the angle, refitting every other parameter
+    with the angle held ``PROFILE_STEP_DEG`` either side; the flatter side's rise ``d`` gives
+    ``step / sqrt(d)`` (a score rises by 1 at one standard deviation). It sees what the curvature
+    at the minimum misses: a near-tangential layer whose start the data cannot place, a
+    parameter held at its bound. Each other source is how far the angle moves from the best fit
+    (:meth:`Fit.angle_shift`) under: the circle's radius moved by its standard uncertainty both
+    ways (half the spread; a centre error moves the outline by as much radially), the other
+    layer profile, the thickness prior's median halved and doubled (the larger move).
+    """
+    phi = best.params[0]
+    rises = []
+    for sign in (-1.0, 1.0):
+        moved = best.params.copy()
+        moved[0] += sign * PROFILE_STEP_DEG
+        rises.append(_refine(problem, moved, hold=("phi_s",), max_nfev=ALTERNATIVE_ITERATIONS)
+                     .score - best.score)
+    rise = max(min(rises), PROFILE_STEP_DEG**2 / PROFILE_MAX_DEG**2)
+    budget = {"fit": PROFILE_STEP_DEG / math.sqrt(rise)}
+    radius_sd = math.hypot(ball.radius_sigma_px, ball.center_sigma_px)
+    if radius_sd > 0:
+        moved = []
+        for sign in (-1.0, 1.0):
+            geom = replace(problem.geom, radius_px=problem.geom.radius_px + sign * radius_sd,
+                           gap_grid=problem.geom.gap_grid - sign * radius_sd)
+            moved.append(best.angle_shift(problem.residuals(best.params, geom=geom)))
+        budget["circle"] = 0.5 * abs(moved[1] - moved[0])
+    budget["flight"] = float(ball.flight_sigma_deg)
+    budget["model form"] = abs(best.angle_shift(problem.residuals(best.params, "quartic")))
+    budget["prior"] = max(
+        abs(best.angle_shift(problem.residuals(
+            best.params, log_delta_prior=problem.log_delta_prior + shift)))
+        for shift in (-math.log(2.0), math.log(2.0))
+    )
+    budget["extrapolation"] = extrapolation_deg(best.params, problem.geom.radius_px)
+    return budget
+
+
+def extrapolation_deg(params, radius_px: float) -> float:
+    """Standard uncertainty (deg) of carrying the layer the data see down to the wall.
+
+    The data see the layer itself; where its dividing line meets the wall depends on how deep
+    that line lies below it, which the data hardly measure: about ``EXTRAPOLATION_DEPTH`` layer
+    thicknesses. A line rising at ``atan(slope)`` from the wall turns that depth into an arc
+    ``depth / slope`` along it (derived), without bound for a tangential layer, so the slope is
+    taken no shallower than ``EXTRAPOLATION_MIN_DEG``.
+    """
+    slope = max(float(params[1]), math.tan(math.radians(EXTRAPOLATION_MIN_DEG)))
+    depth = EXTRAPOLATION_DEPTH * math.exp(params[3])
+    return math.degrees(depth / (radius_px * slope))
+
+
+def layer_curves(center_px, radius_px: float, flight_deg: float, side: str, layer: dict,
+                 *, reach_deg: float = 60.0, step_deg: float = 0.5) -> dict[str, np.ndarray]:
+    """Image polylines of a side's fitted layer (for drawing): ``(N, 2)`` arrays of (x, y) px.
+
+    ``dividing``: the dividing line from the separation point ``reach_deg`` rearward (where the
+    flow turns from forward to reverse); ``centre``: the layer's centre (its half-speed line)
+    over the same angles; ``band``: the closed outline of the part of the band that was fitted.
 
     Parameters
     ----------
-    params : sequence of 7 float
-        ``(phi_s, a, L/R, w, u_wake, k_t, k_r)``.
-
-    Returns
-    -------
-    (3,) ndarray
-        Dimensionless residuals: zero for a slope inside ``PRIOR_LEAVE_DEG``.
+    center_px, radius_px, flight_deg : the ball at mid-exposure and its flight.
+    side : {"upper", "lower"}
+    layer : dict
+        ``SideProposal.layer``: the fitted parameters (``PARAM_NAMES``), ``final_deg``, the
+        band's gaps and the fit window.
     """
-    slope = params[1]
-    lo, hi = (math.tan(math.radians(v)) for v in PRIOR_LEAVE_DEG)
-    return np.array([
-        (max(0.0, lo - slope) + max(0.0, slope - hi)) / PRIOR_SLOPE_WALL,
-        math.log(params[2] / PRIOR_RELAX[0]) / PRIOR_RELAX[1],
-        math.log(params[3] / PRIOR_WIDTH[0]) / PRIOR_WIDTH[1],
-    ])
+    from core.layer_model import centre_offset, dividing_line_px
 
+    phi_s = layer["phi_s"]
+    phi = np.arange(phi_s, phi_s + reach_deg + step_deg / 2, step_deg)
+    lift = dividing_line_px(radius_px, phi_s, layer["slope"], layer["relax"] * radius_px, phi,
+                            layer.get("final_deg", 0.0))
+    delta = math.exp(layer["log_delta"]) + layer["spread"] * np.radians(phi - phi_s) * radius_px
+    centre = lift + centre_offset(layer["reverse"]) * delta
+    lo, hi = layer["window_deg"]
+    band_phi = np.arange(lo, hi + step_deg / 2, step_deg)
+    inner = np.full(band_phi.shape, radius_px + layer["band_first_gap_px"])
+    outer = np.full(band_phi.shape, radius_px + layer["band_last_gap_px"])
 
-def _prior_penalty(params) -> float:
-    """Sum of the squared prior terms (:func:`_prior_terms`)."""
-    return float(np.sum(_prior_terms(params) ** 2))
+    def points(angles, rho):
+        (ex, ey), _ = side_axes(flight_deg, side, angles)
+        return np.column_stack([center_px[0] + rho * ex, center_px[1] + rho * ey])
 
-
-def _coarse_search(band: NearWallBand, u_t, u_r, final_deg, sigma2: float):
-    """Starting points for the refinement, best first, and the best data cost.
-
-    ``phi_s`` on a 2 deg grid with the prior's layer; then ``(phi_s, a, L)`` on a 1 deg grid
-    around the best (5 slopes, 3 lengths), scored by data cost over ``sigma2`` plus the priors;
-    the best of each ``phi_s`` cell, keeping ``REFINE_STARTS`` starts at least 3 deg apart.
-    """
-    def cost(params):
-        return float(np.sum(band.residual(*_model(band, params, u_t, u_r, final_deg)) ** 2))
-
-    mid_slope = math.tan(math.radians(0.5 * (PRIOR_LEAVE_DEG[0] + PRIOR_LEAVE_DEG[1])))
-    best = (np.inf, None)
-    for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 2.0):
-        params = [phi_s, mid_slope, PRIOR_RELAX[0], PRIOR_WIDTH[0], 0.0, 1.0, 1.0]
-        c = cost(params)
-        if c < best[0]:
-            best = (c, params)
-    data_best = best[0]
-    scored = []
-    for phi_s in np.arange(best[1][0] - 4.0, best[1][0] + 4.5, 1.0):
-        for angle in (5.0, 7.5, 10.0, 12.5, 15.0):
-            for relax in (0.5, 1.0, 2.0):
-                params = [phi_s, math.tan(math.radians(angle)), relax, PRIOR_WIDTH[0], 0.0, 1.0,
-                          1.0]
-                c = cost(params)
-                data_best = min(data_best, c)
-                scored.append((c / sigma2 + _prior_penalty(params), params))
-    scored.sort(key=lambda item: item[0])
-    starts = []
-    for _, params in scored:
-        if all(abs(params[0] - other[0]) >= 3.0 for other in starts):
-            starts.append(params)
-        if len(starts) == REFINE_STARTS:
-            break
-    return starts, data_best
-
-
-#: Typical step of each parameter ``(phi_s deg, a, L/R, w px, u_wake px, k_t, k_r)`` for the
-#: refinement's trust region: a degree of angle is not comparable with a unit of slope.
-REFINE_SCALE = np.array([1.0, 0.05, 0.3, 0.5, 0.2, 0.02, 0.1])
-
-
-def _refine(band: NearWallBand, u_t, u_r, start, final_deg, sigma: float):
-    """Least-squares refinement with the priors (``sigma``: the residuals' scale).
-
-    Returns the parameters, the angle's standard deviation (deg) and the final cost.
-    """
-
-    def residuals(p):
-        r = band.residual(*_model(band, p, u_t, u_r, final_deg)) / sigma
-        return np.concatenate([r, _prior_terms(p)])
-
-    lower = [start[0] - 8.0, 0.0, 0.15, 0.3, -3.0, 0.7, 0.0]
-    upper = [start[0] + 8.0, 0.7, 6.0, 5.0, 3.0, 1.3, 2.0]
-    sol = least_squares(
-        residuals, start, bounds=(lower, upper), diff_step=1e-3, max_nfev=40, xtol=1e-4,
-        tr_solver="lsmr", ftol=1e-4, x_scale=REFINE_SCALE,
-    )
-    cov = np.linalg.pinv(sol.jac.T @ sol.jac)
-    return sol.x, float(math.sqrt(max(cov[0, 0], 0.0))), float(sol.cost)
+    band = np.vstack([points(band_phi, inner), points(band_phi[::-1], outer[::-1]),
+                      points(band_phi[:1], inner[:1])])
+    return {"dividing": points(phi, radius_px + lift), "centre": points(phi, radius_px + centre),
+            "band": band}
 
 
 # --- wake ------------------------------------------------------------------------------------

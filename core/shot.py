@@ -36,6 +36,7 @@ class ShotSettings:
     ball_type: str | None = None  # rulebook nominal diameter when ball_diameter_mm is None
     find_ball: bool = True
     flight_deg: float | None = None  # override of the flight direction
+    air_temp_c: float | None = None  # for the air's viscosity (Reynolds number); None: 20 deg C
     # image conditioning before correlation (core.conditioning)
     mask_glare: bool = True  # saturated regions larger than a particle image left out
     # min-max normalisation window in mean particle spacings (None: off; skipped on sparse
@@ -80,6 +81,8 @@ class ShotResult:
     vorticity_1_s: np.ndarray | None = None  # (M, N), counter-clockwise positive as seen on screen
     warnings: list[str] = field(default_factory=list)
     valid_near_ball: int | None = None  # valid vectors within two grid spacings of the outline
+    reynolds: float | None = None  # U D / nu with the air speed past the ball (core.air)
+    fine_field: VectorField | None = None  # fine correlation near the ball, ball frame, image px
     stage_seconds: dict[str, float] = field(default_factory=dict)  # wall time per stage (not stored)
 
     def summary(self) -> dict:
@@ -97,8 +100,10 @@ class ShotResult:
             "flight": None if self.flight is None else dataclass_dict(self.flight),
             "separation": _separation_summary(sep),
             "scale_mm_per_px": finite_or_none(self.scale_mm_per_px),
+            "reynolds": _reynolds_summary(self.reynolds, self.settings.air_temp_c),
             "dt_s": finite_or_none(self.settings.dt_s),
             "vectors": {**_vector_counts(self.field), "valid_near_ball": self.valid_near_ball},
+            "fine_vectors": None if self.fine_field is None else _vector_counts(self.fine_field),
             "settings": self.settings.to_dict(),
             "warnings": list(self.warnings + self.field.warnings),
         }
@@ -109,6 +114,8 @@ class ShotResult:
             value = getattr(self, name)
             if value is not None:
                 out[name] = value
+        if self.fine_field is not None:
+            out.update({FINE_PREFIX + k: v for k, v in self.fine_field.arrays().items()})
         return out
 
     @classmethod
@@ -133,7 +140,37 @@ class ShotResult:
             vorticity_1_s=arrays.get("vorticity_1_s"),
             warnings=list(summary.get("warnings", [])),
             valid_near_ball=summary["vectors"].get("valid_near_ball"),
+            reynolds=(summary.get("reynolds") or {}).get("value"),
+            fine_field=_fine_from(summary, arrays),
         )
+
+
+def _reynolds_summary(reynolds: float | None, air_temp_c: float | None) -> dict:
+    from core.air import DEFAULT_AIR_TEMP_C, kinematic_viscosity_m2_s, regime_note
+
+    temp = DEFAULT_AIR_TEMP_C if air_temp_c is None else float(air_temp_c)
+    return {
+        "value": finite_or_none(reynolds),
+        "air_temp_c": temp,
+        "nu_m2_s": kinematic_viscosity_m2_s(temp),
+        "regime": regime_note(reynolds),
+    }
+
+
+#: Stored arrays of the fine ball-frame field carry this prefix (``fine_dx_px``, ...).
+FINE_PREFIX = "fine_"
+
+
+def _fine_from(summary: dict, arrays: dict) -> VectorField | None:
+    """The stored fine field, or None (shots processed before it was kept)."""
+    if FINE_PREFIX + "x_px" not in arrays:
+        return None
+    fine = summary.get("fine_vectors") or {}
+    return VectorField(
+        **{name: np.asarray(arrays[FINE_PREFIX + name]) for name in VectorField.ARRAY_NAMES},
+        window_px=fine.get("window_px", FINE_PASSES[-1].window_px),
+        spacing_px=fine.get("spacing_px", FINE_PASSES[-1].window_px * 0.5),
+    )
 
 
 def _vector_counts(vf: VectorField) -> dict:
@@ -179,12 +216,8 @@ def _flight_from(d: dict) -> Flight:
 
 
 def _side_from(d: dict) -> SideProposal:
-    return SideProposal(
-        angle_deg=d.get("angle_deg"),
-        uncertainty_deg=d.get("uncertainty_deg"),
-        quality=d.get("quality"),
-        reason=d.get("reason", ""),
-    )
+    known = {f.name for f in dc_fields(SideProposal)}
+    return SideProposal(**{"angle_deg": None, **{k: v for k, v in d.items() if k in known}})
 
 
 def _separation_from(d: dict) -> SeparationResult:
@@ -366,7 +399,7 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
             SideProposal(None, reason=reason), SideProposal(None, reason=reason)
         )
         return
-    result.separation = _separation(*conditioned, balls, flight, settings, clock, result.field)
+    result.separation = _separation(*conditioned, balls, flight, settings, clock, result, glare)
 
 
 def _ball_warnings(ball_a: BallFit, ball_b: BallFit, expected_r: float | None) -> list[str]:
@@ -488,10 +521,16 @@ def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
 
 
 def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings, clock,
-                lab_field: VectorField):
-    """Fine correlation around the ball in the ball frame, then the layer fit on each side."""
+                result: ShotResult, glare=(None, None)):
+    """Fine correlation around the ball in the ball frame, then the layer fit on each side.
+
+    Also sets ``result.reynolds`` from the air's speed past the ball.
+    """
+    from core.air import reynolds_number
     from core.piv import correlate_pair
     from core.separation import BallFrame, propose_separation
+
+    lab_field = result.field
 
     crop, a, b, mask, centre, radius = _ball_frame_crop(frame_a, frame_b, balls, flight)
     if min(a.shape) < 2 * FINE_PASSES[0].window_px:
@@ -505,12 +544,52 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
             reason = "the air hardly moves relative to the ball: no wake to follow"
             return SeparationResult(SideProposal(None, reason=reason),
                                     SideProposal(None, reason=reason))
+    scale, dt = result.scale_mm_per_px, settings.dt_s
+    air_m_s = stream * scale * 1e-3 / dt if scale and dt else None
+    result.reynolds = reynolds_number(air_m_s, _ball_diameter_mm(settings), settings.air_temp_c)
     vf = correlate_pair(a, b, mask, mask, fine)
+    result.fine_field = replace(vf, x_px=vf.x_px + crop[1], y_px=vf.y_px + crop[0])
     clock.lap("fine piv")
-    ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg, stream)
-    proposal = propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]), lab_field)
+    ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg, stream,
+                     reynolds=result.reynolds, **_uncertainties(balls, flight))
+    seeding = _seeding_map(frame_a, balls[0])
+    proposal = propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]), lab_field,
+                                  seeding, glare)
     clock.lap("separation")
     return proposal
+
+
+def _uncertainties(balls, flight: Flight) -> dict:
+    """Standard uncertainties of the mid-exposure circle (the mean of the two frames': radius,
+    and the centre per axis as the root mean square of x and y) and of the flight direction;
+    zero where unknown."""
+
+    def known(value) -> float:
+        return float(value) if np.isfinite(value) else 0.0
+
+    radius = [known(b.radius_sigma_px) for b in balls]
+    centre = [known(np.sqrt(np.mean(np.square(b.center_sigma_px)))) for b in balls]
+    return {
+        "radius_sigma_px": float(np.hypot(*radius) / 2.0),
+        "center_sigma_px": float(np.hypot(*centre) / 2.0),
+        "flight_sigma_deg": known(flight.direction_sigma_deg or 0.0),
+    }
+
+
+def _seeding_map(frame, ball: BallFit):
+    """Particle-image density around the ball in frame A (2 radii around it)."""
+    from core.ball import ball_mask
+    from core.near_wall import particle_image_density
+    from core.separation import SeedingMap
+
+    height, width = frame.shape
+    cx, cy = ball.center_px
+    reach = 2.0 * ball.radius_px + 16
+    y0, y1 = max(0, int(cy - reach)), min(height, int(cy + reach) + 1)
+    x0, x1 = max(0, int(cx - reach)), min(width, int(cx + reach) + 1)
+    crop = np.asarray(frame[y0:y1, x0:x1], dtype=np.float64)
+    inside = ball_mask(crop.shape, BallFit((cx - x0, cy - y0), ball.radius_px), 1.0)
+    return SeedingMap(particle_image_density(crop, inside), (y0, x0))
 
 
 def _free_stream_px(vf: VectorField, ball: BallFit) -> float:

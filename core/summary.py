@@ -50,6 +50,8 @@ class ShotSummary:
     vectors: VectorCounts = field(default_factory=VectorCounts)
     warnings: tuple[str, ...] = ()
     settings: dict = field(default_factory=dict)  # ShotSettings.to_dict() of the run
+    reynolds: float | None = None  # U D / nu of the air past the ball (core.air)
+    regime: str = ""  # where that lies against the smooth sphere's drag crisis
     data: dict = field(default_factory=dict, repr=False, compare=False)  # the JSON as read
     version: int = field(default=SUMMARY_VERSION, compare=False)  # layout of ``data``
 
@@ -131,6 +133,12 @@ def _separation(data: dict | None) -> SeparationResult:
     )
 
 
+def _reynolds(data: dict) -> dict:
+    """The ``reynolds`` record (``value``, ``air_temp_c``, ``nu_m2_s``, ``regime``), or {}."""
+    value = data.get("reynolds")
+    return value if isinstance(value, dict) else {}
+
+
 def _load_v1(data: dict) -> ShotSummary:
     ball = data.get("ball") or {}
     return ShotSummary(
@@ -143,6 +151,8 @@ def _load_v1(data: dict) -> ShotSummary:
         vectors=VectorCounts(**_known(VectorCounts, data.get("vectors"))),
         warnings=tuple(data.get("warnings") or ()),
         settings=dict(data.get("settings") or {}),
+        reynolds=_reynolds(data).get("value"),
+        regime=_reynolds(data).get("regime") or "",
         data=data,
     )
 

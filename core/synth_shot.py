@@ -9,8 +9,20 @@ the lab frame (air at rest far away, the ball moving):
   ``leave_deg`` from the tangent, and bends (its heading relaxes exponentially with arc length)
   toward the wake direction; across it the speed drops with a ``tanh`` profile of half-width
   ``layer_px`` (a few px: thin, as real shear layers near separation are);
-- inside the wake (between the two layers, behind the ball) the air is nearly still in the ball
-  frame, i.e. it moves with the ball in the lab frame.
+- inside the wake (between the two layers, behind the ball) the ball-frame flow is the potential
+  flow reversed and weakened (``reverse_fraction``: the recirculation runs forward along the
+  wall under the layer), fading a few radii behind the ball, so in the lab frame the near wake
+  is carried along with the ball;
+- at the wall the flow is brought to rest over ``no_slip_px`` (a kinematic stand-in for the
+  attached boundary layer).
+
+Separation is where the wall shear changes sign (the onset of reverse flow at the wall), the
+same meaning as in the physically built family: with the layer's half-width ``w`` and the reverse
+fraction ``r`` it lies where the wake weight at the wall reaches ``1 / (1 + r)``, a little behind
+the point where the layer's centre line leaves the outline (``BallWakeFlow.separation_deg``).
+``ball_shot`` places the layer so that this point is the requested angle. With
+``reverse_fraction = 0`` (the older form of this family) there is no reverse flow and the
+layer's start is taken as the separation point.
 
 The ball is painted over the particle images in each frame at its own position: a dark disc
 (particles absent inside it) with a lit rim brightest on the side facing the light sheet's source.
@@ -57,6 +69,7 @@ class _Layer:
     heading_rad: np.ndarray  # (K,) angle from +xi toward +zeta
     start: tuple[float, float, float]  # xi0, zeta0, heading0
     radius_px: float
+    arc_px: np.ndarray  # (K,) arc length along the layer from its start
 
     @classmethod
     def build(cls, radius_px, angle_deg, leave_deg, final_deg, bend_px) -> _Layer:
@@ -68,7 +81,7 @@ class _Layer:
         ds = 0.25
         xi = radius_px * math.sin(th) + np.concatenate([[0.0], np.cumsum(np.cos(psi[:-1]) * ds)])
         zeta = radius_px * math.cos(th) + np.concatenate([[0.0], np.cumsum(np.sin(psi[:-1]) * ds)])
-        return cls(xi, zeta, psi, (xi[0], zeta[0], psi0), radius_px)
+        return cls(xi, zeta, psi, (xi[0], zeta[0], psi0), radius_px, s)
 
     def outward_distance(self, xi: np.ndarray, zeta: np.ndarray) -> np.ndarray:
         """Signed distance (px) from the layer, positive on the outer (free-stream) side."""
@@ -82,6 +95,10 @@ class _Layer:
         path = np.where(ahead < 0, back, path)
         heading = np.where(ahead < 0, psi0, heading)
         return (zeta - path) * np.cos(heading)
+
+    def arc_length(self, xi: np.ndarray) -> np.ndarray:
+        """Arc length (px) along the layer from its start to abscissa ``xi`` (0 upstream)."""
+        return np.interp(xi, self.xi_px, self.arc_px, left=0.0)
 
 
 @dataclass(frozen=True)
@@ -103,18 +120,74 @@ class BallWakeFlow:
     bend_px: float | None = None
     wake_speed_fraction: float = 0.0  # ball-frame wake drift along the free stream, fraction of U
     held: bool = False  # the ball is held still (tunnel): the air streams by at -displacement_px
+    reverse_fraction: float = 0.0  # reverse flow in the near wake, fraction of the potential flow
+    no_slip_px: float = 0.0  # e-folding length (px) of the no-slip damping at the wall (0: none)
+    spread_rate: float = 0.0  # growth of the layer's vorticity thickness per px along it
 
     def __call__(self, x_px, y_px):
         rx = np.asarray(x_px, dtype=np.float64) - self.center_px[0]
         ry = np.asarray(y_px, dtype=np.float64) - self.center_px[1]
         ux, uy = self._potential(rx, ry)
-        w = self.wake_weight(x_px, y_px)
+        w, follow = self._layers(rx, ry)
+        keep = 1.0 - w * (1.0 + self._reverse(rx, ry))
         fx, fy = -self.displacement_px[0], -self.displacement_px[1]
-        ux = (1.0 - w) * ux + w * self.wake_speed_fraction * fx
-        uy = (1.0 - w) * uy + w * self.wake_speed_fraction * fy
+        ux = keep * ux + w * self.wake_speed_fraction * fx
+        uy = keep * uy + w * self.wake_speed_fraction * fy
+        for (tx, ty), gain in follow:  # the flow in a lifted layer runs along it
+            along = (ux * tx + uy * ty) * gain
+            rho = np.maximum(np.hypot(rx, ry), 1e-9)
+            ux, uy = ux + along * rx / rho, uy + along * ry / rho
+        if self.no_slip_px > 0:
+            gap = np.clip(np.hypot(rx, ry) - self.radius_px, 0.0, None)
+            damp = -np.expm1(-gap / self.no_slip_px)
+            ux, uy = ux * damp, uy * damp
         if self.held:
             return ux, uy
         return ux + self.displacement_px[0], uy + self.displacement_px[1]
+
+    def _centre_offset(self) -> float:
+        """How far (half-widths) the layer's centre lies outside its path, the dividing line.
+
+        The flow reverses where the wake weight exceeds ``1 / (1 + r)``, i.e. ``atanh((1 - r) /
+        (1 + r))`` half-widths inside the centre (derived); without reverse flow the path is the
+        centre (the older form of this family).
+        """
+        r = self.reverse_fraction
+        return math.atanh((1.0 - r) / (1.0 + r)) if r > 0 else 0.0
+
+    def _reverse(self, rx, ry) -> np.ndarray:
+        """Reverse-flow fraction: ``reverse_fraction`` beside the ball, fading over 3 radii behind."""
+        if self.reverse_fraction == 0:
+            return np.zeros(np.shape(rx))
+        fx, fy = flight_unit(self.flight_deg)
+        behind = np.clip(-(rx * fx + ry * fy), 0.0, None)
+        return self.reverse_fraction * np.exp(-behind / (3.0 * self.radius_px))
+
+    def separation_deg(self, side: str) -> float | None:
+        """Where the wall shear on ``side`` changes sign (deg, separation convention).
+
+        Just outside the outline the flow is ``(1 - w (1 + r))`` times the potential flow, whose
+        tangential part runs rearward everywhere between the stagnation points: the wall shear
+        changes sign where the wake weight ``w`` reaches ``1 / (1 + r)`` (derived). Without
+        reverse flow the layer's start is returned (the older form of this family).
+        """
+        start = self.upper_deg if side == "upper" else self.lower_deg
+        if start is None or self.reverse_fraction == 0:
+            return start
+        phi = np.radians(np.arange(start - 5.0, start + 60.0, 0.005))
+        fx, fy = flight_unit(self.flight_deg)
+        nx, ny = side_normal(self.flight_deg, side)
+        rho = self.radius_px + 1e-6
+        rx = rho * (np.cos(phi) * nx - np.sin(phi) * fx)
+        ry = rho * (np.cos(phi) * ny - np.sin(phi) * fy)
+        w = self.wake_weight(rx + self.center_px[0], ry + self.center_px[1])
+        keep = 1.0 - w * (1.0 + self._reverse(rx, ry))
+        phi = np.degrees(phi)
+        crossing = np.flatnonzero((keep[:-1] > 0) & (keep[1:] <= 0))
+        if crossing.size == 0:
+            return None
+        i = crossing[0]
+        return float(phi[i] + (phi[i + 1] - phi[i]) * keep[i] / (keep[i] - keep[i + 1]))
 
     def _potential(self, rx: np.ndarray, ry: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Ball-frame potential flow past the sphere, free stream ``-D`` (zero inside)."""
@@ -132,10 +205,21 @@ class BallWakeFlow:
         """1 inside the wake, 0 in the free stream (smooth across each shear layer)."""
         rx = np.asarray(x_px, dtype=np.float64) - self.center_px[0]
         ry = np.asarray(y_px, dtype=np.float64) - self.center_px[1]
+        return self._layers(rx, ry)[0]
+
+    def _layers(self, rx, ry):
+        """Wake weight and, per side, how the flow turns to follow the lifted layer.
+
+        Returns the weight (1 inside the wake, 0 in the free stream) and a list of
+        ``((tx, ty), gain)``: the side's rearward tangent and ``tan`` of the layer's angle to it,
+        faded out away from the layer (zero ahead of its start and without reverse flow, the
+        older form of this family): the flow there gains a radial part ``gain * u_t``.
+        """
         if self.upper_deg is None or self.lower_deg is None:
-            return np.zeros(np.shape(rx))
+            return np.zeros(np.shape(rx)), []
         fx, fy = flight_unit(self.flight_deg)
         weight = np.ones(np.shape(rx))
+        follow = []
         bend = self.bend_px if self.bend_px is not None else 0.8 * self.radius_px
         for side, angle, leave, final in (
             ("upper", self.upper_deg, self.leave_deg[0], self.wake_deflection_deg),
@@ -146,8 +230,20 @@ class BallWakeFlow:
             zeta = rx * nx + ry * ny
             layer = _Layer.build(self.radius_px, angle, leave, final, bend)
             d = layer.outward_distance(xi, zeta)
-            weight *= 0.5 * (1.0 - np.tanh(d / self.layer_px))
-        return weight
+            arc = layer.arc_length(xi)
+            # the layer spreads over its first radius of path (beyond it the far wake would
+            # swell over the whole picture)
+            half_width = self.layer_px + 0.5 * self.spread_rate * np.minimum(arc, self.radius_px)
+            offset = self._centre_offset()
+            weight *= 0.5 * (1.0 - np.tanh(d / half_width - offset))
+            if offset > 0:
+                phi = np.arctan2(xi, zeta)
+                heading = np.interp(xi, layer.xi_px, layer.heading_rad)
+                near = 0.5 * (np.tanh(d / half_width + 2.0) - np.tanh(d / half_width - offset - 2.0))
+                gain = np.where(arc > 0, np.tan(heading + phi) * near, 0.0)
+                tangent = (-np.cos(phi) * fx - np.sin(phi) * nx, -np.cos(phi) * fy - np.sin(phi) * ny)
+                follow.append((tangent, gain))
+        return weight, follow
 
 
 def ball_shot(
@@ -162,6 +258,9 @@ def ball_shot(
     leave_deg: tuple[float, float] = (10.0, 10.0),
     wake_deflection_deg: float = 0.0,
     layer_px: float = 1.5,
+    reverse_fraction: float = 0.1,
+    no_slip_px: float | None = None,
+    spread_rate: float = 0.18,
     speed_m_s: float = 30.0,
     ball_diameter_mm: float = 71.6,
     density_ppp: float = 0.06,
@@ -201,7 +300,17 @@ def ball_shot(
     wake_deflection_deg : float
         Final direction of the wake relative to the rearward axis, positive toward the upper side.
     layer_px : float
-        Half-width of the shear layers' tanh velocity profile (px).
+        Half-width of the shear layers' tanh velocity profile (px); the layer's vorticity
+        thickness is twice this.
+    reverse_fraction : float
+        Reverse flow in the near wake (fraction of the potential flow); 0 gives the older form
+        of this family, whose separation point is the layer's start.
+    no_slip_px : float, optional
+        E-folding length of the no-slip damping at the wall (px); default ``layer_px`` (0 when
+        ``reverse_fraction`` is 0).
+    spread_rate : float
+        Growth of the layer's vorticity thickness per px along it behind its start (plane mixing
+        layers spread at about 0.14-0.22: Brown & Roshko 1974, memory).
     speed_m_s : float
         Ball speed; with the scale from ``ball_diameter_mm`` it sets ``dt_s``.
     ball_diameter_mm : float
@@ -251,10 +360,15 @@ def ball_shot(
     center_a = (center_px[0] - moved[0] / 2, center_px[1] - moved[1] / 2)
     center_b = (center_px[0] + moved[0] / 2, center_px[1] + moved[1] / 2)
     attached = upper_deg is None or lower_deg is None
+    if no_slip_px is None:
+        no_slip_px = layer_px if reverse_fraction > 0 else 0.0
     flow = BallWakeFlow(
         center_px, radius_px, disp, flight_deg, upper_deg, lower_deg, tuple(leave_deg),
         0.0 if attached else wake_deflection_deg, layer_px, held=held,
+        reverse_fraction=reverse_fraction, no_slip_px=no_slip_px, spread_rate=spread_rate,
     )
+    if not attached:
+        flow = _place_layers(flow, upper_deg, lower_deg)
     counts = (2**bits - 1) / 4095.0  # the painting's levels are set for a 12-bit camera
     background = BACKGROUND_COUNTS * counts
     frame_a, frame_b, parts = particle_pair(
@@ -296,6 +410,24 @@ def ball_shot(
         tuple(leave_deg),
     )
     return frame_a, frame_b, truth
+
+
+def _place_layers(flow: BallWakeFlow, upper_deg: float, lower_deg: float) -> BallWakeFlow:
+    """The flow with each layer's start moved so that its wall shear changes sign at the
+    requested angle (fixed-point iteration on the offset between the two, which is smooth)."""
+    from dataclasses import replace
+
+    starts = {"upper": upper_deg, "lower": lower_deg}
+    for _ in range(8):
+        found = {side: flow.separation_deg(side) for side in starts}
+        error = max(abs(found[s] - want) for s, want in (("upper", upper_deg),
+                                                           ("lower", lower_deg)))
+        if error < 1e-3:
+            break
+        starts = {"upper": starts["upper"] + upper_deg - found["upper"],
+                  "lower": starts["lower"] + lower_deg - found["lower"]}
+        flow = replace(flow, upper_deg=starts["upper"], lower_deg=starts["lower"])
+    return flow
 
 
 def _remove_inside(frame, x_px, y_px, diameter_px, peak, center_px, radius_px,

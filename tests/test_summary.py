@@ -38,12 +38,12 @@ def test_summary_reads_every_record_of_the_json(result):
 
 def test_unknown_keys_are_kept_and_do_not_stop_reading(result):
     data = json.loads(json.dumps(result.summary()))
-    data["reynolds"] = 1.7e5
+    data["drag_coefficient"] = 0.4
     data["flight"]["speed_uncertainty_m_s"] = 0.3
     data["separation"]["upper"]["layer_width_px"] = 1.5
     summary = ShotSummary.from_dict(data)
     assert summary.flight.speed_m_s == 30.0 and summary.proposed_deg("upper") == 6.5
-    assert summary.to_dict()["reynolds"] == 1.7e5
+    assert summary.to_dict()["drag_coefficient"] == 0.4
     assert summary.to_dict()["separation"]["upper"]["layer_width_px"] == 1.5
 
 

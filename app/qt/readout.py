@@ -34,6 +34,7 @@ from app.review.text import (
     ball_text,
     direction_text,
     quality_text,
+    reynolds_text,
     speed_text,
     uncertainty_text,
     vectors_text,
@@ -175,10 +176,13 @@ class ReadoutPanel(QWidget):
         self.flight_speed = QLabel("—", group)
         self.ball_size = QLabel("—", group)
         self.vectors = QLabel("—", group)
-        for label in (self.flight_dir, self.flight_speed, self.ball_size, self.vectors):
+        self.reynolds = QLabel("—", group)
+        for label in (self.flight_dir, self.flight_speed, self.ball_size, self.vectors,
+                      self.reynolds):
             label.setWordWrap(True)
         form.addRow("direction", self.flight_dir)
         form.addRow("speed", self.flight_speed)
+        form.addRow("Reynolds", self.reynolds)
         form.addRow("ball", self.ball_size)
         form.addRow("vectors", self.vectors)
         return group
@@ -346,6 +350,7 @@ class ReadoutPanel(QWidget):
         self.flight_dir.setText(direction_text(flight))
         self.flight_speed.setText(speed_text(None if flight is None else flight.speed_m_s))
         self.ball_size.setText(MISSING if summary is None else ball_text(summary))
+        self.reynolds.setText(MISSING if summary is None else reynolds_text(summary))
         self.vectors.setText(MISSING if summary is None else vectors_text(summary.vectors))
 
     def _show_metadata(self, metadata: dict) -> None:

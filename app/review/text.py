@@ -99,6 +99,17 @@ def ball_text(summary: ShotSummary) -> str:
     return out
 
 
+def reynolds_text(summary: ShotSummary) -> str:
+    """The Reynolds number, the air temperature it assumes and the regime it implies."""
+    if summary.reynolds is None:
+        return MISSING
+    temp = (summary.data.get("reynolds") or {}).get("air_temp_c")
+    out = f"{summary.reynolds:.3g}".replace("e+0", " × 10^").replace("e+", " × 10^")
+    if temp is not None:
+        out += f" (air at {temp:g} °C)"
+    return out + (f"; {summary.regime}" if summary.regime else "")
+
+
 def vectors_text(vectors: VectorCounts) -> str:
     """Valid, replaced and masked vectors of the last pass and its grid."""
     out = (f"{vectors.valid} valid, {vectors.replaced} replaced, {vectors.masked} masked "
@@ -118,6 +129,8 @@ def shot_rows(summary: ShotSummary) -> list[tuple[str, str]]:
         rows.append(("wake", wake_text(summary.separation)))
     if summary.flight is not None:
         rows.append(("flight", flight_text(summary.flight)))
+    if summary.reynolds is not None:
+        rows.append(("Reynolds number", reynolds_text(summary)))
     if summary.ball_a is not None:
         rows.append(("ball", ball_text(summary)))
     rows.append(("vectors", vectors_text(summary.vectors)))

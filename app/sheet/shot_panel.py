@@ -12,7 +12,14 @@ from PySide6 import QtCore, QtGui
 
 from app.review import colours
 from app.review.marks import moved_from_proposal
-from app.review.text import MISSING, SHEET_DECIMALS, flight_text, vectors_text, wake_text
+from app.review.text import (
+    MISSING,
+    SHEET_DECIMALS,
+    flight_text,
+    reynolds_text,
+    vectors_text,
+    wake_text,
+)
 from app.sheet.content import (
     final_text,
     metadata_line,
@@ -338,6 +345,8 @@ def _paint_numbers(p, info, record, with_metadata: bool = False) -> None:
     row("note", note_text(record))
     row("wake", MISSING if summary is None else wake_text(summary.separation, SHEET_DECIMALS))
     row("flight", flight_text(None if summary is None else summary.flight, SHEET_DECIMALS))
+    if summary is not None and summary.reynolds is not None:
+        row("Reynolds", reynolds_text(summary))
     if with_metadata:
         row("shot", metadata_line(record).replace("   ", ", ") or MISSING)
     row("vectors", MISSING if summary is None else vectors_text(summary.vectors))

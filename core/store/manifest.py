@@ -12,7 +12,7 @@ from core import WakelineError
 REQUIRED_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm")
 NUMBER_COLUMNS = (
     "dt_s", "scale_mm_per_px", "ball_diameter_mm", "speed_nominal_m_s", "spin_rpm",
-    "spin_axis_deg", "seam_deg", "flight_deg",
+    "spin_axis_deg", "seam_deg", "flight_deg", "air_temp_c",
 )
 TEXT_COLUMNS = ("ball_type", "notes")
 MANIFEST_NAME = "shots.csv"

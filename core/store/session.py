@@ -74,7 +74,8 @@ from core.store.snapshot import (
 from core.summary import ShotSummary
 
 #: Metadata columns that are also settings of a shot's processing.
-PER_SHOT_SETTINGS = ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball_type", "flight_deg")
+PER_SHOT_SETTINGS = ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball_type", "flight_deg",
+                     "air_temp_c")
 _UNSET = object()
 
 

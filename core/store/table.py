@@ -35,6 +35,7 @@ def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
 
 _RESULT_COLUMNS = (
     "state", "failure", "flight_direction_deg", "flight_speed_m_s", "scale_used_mm_per_px",
+    "reynolds_number",
     "upper_proposed_deg", "upper_uncertainty_deg", "lower_proposed_deg", "lower_uncertainty_deg",
     "upper_final_deg", "lower_final_deg", "wake_deflection_deg", "wake_state",
     "review_status", "unusable_reason", "review_note", "reviewed_by", "reviewed_utc",
@@ -52,6 +53,7 @@ def _result_cells(r: ShotRecord) -> list[str]:
         _angle(None if flight is None else flight.direction_deg),
         None if flight is None else flight.speed_m_s,
         None if summary is None else summary.scale_mm_per_px,
+        None if summary is None else summary.reynolds,
         *map(_angle, (r.proposed_deg("upper"), r.uncertainty_deg("upper"),
                       r.proposed_deg("lower"), r.uncertainty_deg("lower"),
                       r.final_deg("upper"), r.final_deg("lower"),

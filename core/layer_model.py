@@ -1,0 +1,172 @@
+"""The ball-frame flow next to one side of the ball: an attached layer that separates.
+
+Separation is where the wall shear changes sign. The model describes the flow in a thin band
+along the outline (angle ``phi``, deg in the separation convention; ``gap`` px outside the
+outline) with the stream outside it ``U(phi, gap)`` from the PIV vectors:
+
+- across the layer the speed goes from a weak reverse flow ``-r U`` on the wall side to ``U``
+  with an error-function profile of vorticity thickness ``delta``, centred at a height ``h``:
+  ``S = -r + (1 + r) Phi((gap - h) / delta)``; the wall brings it to rest over ``ell`` px
+  (``u = U S (1 - exp(-gap / ell))``), so the wall shear has the sign of ``S(0)``;
+- the line where ``S = 0`` (the dividing line) lies ``c delta`` below the layer's centre, with
+  ``c = -Phi^-1(r / (1 + r))``. Ahead of separation it lies inside the wall (the attached layer
+  moves forward at the wall) and rises toward it: with ``q = 1 - exp(-(phi_s - phi) /
+  UPSTREAM_DEG)`` the attached layer is thinner, ``delta_s (1 - b q)`` (a boundary layer grows
+  downstream), and its centre sits at ``c delta (1 - a q)`` (its profile fills out toward the
+  wall). At ``phi_s`` the dividing line touches the wall: zero wall shear. Behind it the dividing line leaves the wall at the departure angle
+  ``atan(slope)`` from the tangent and turns toward the wake's direction over the arc length
+  ``L``; the layer thickens linearly at the spreading rate ``k`` of a plane mixing layer;
+- the flow inside the layer may follow it: it gains the radial part ``f u dZ/ds`` of the
+  rising dividing line, with ``f`` between 0 (the flow keeps along the wall) and 1 (it runs
+  along the layer, as streamlines near the dividing streamline do).
+
+No part of this is in pixels except through the priors (:mod:`core.separation`), which are in
+physical units scaled by the shot's Reynolds number and image scale. The alternative profile
+(``shape="quartic"``) replaces the error function by a compact polynomial of the same vorticity
+thickness, for the model-form check.
+"""
+
+from __future__ import annotations
+
+import functools
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.special import erf, erfinv
+
+#: Parameter order of a side model.
+PARAM_NAMES = ("phi_s", "slope", "relax", "log_delta", "spread", "reverse", "drop", "thin",
+               "follow", "k_t", "k_r")
+#: Angular scale (deg) over which the attached layer's centre drops toward the wall ahead of
+#: separation.
+UPSTREAM_DEG = 15.0
+#: No-slip length over the layer's thickness at separation.
+WALL_FRACTION = 0.5
+
+
+@dataclass(frozen=True)
+class SideGeometry:
+    """What the model needs of the band: the outline's radius and the samples' coordinates."""
+
+    radius_px: float
+    phi_grid: np.ndarray  # (P,) deg
+    gap_grid: np.ndarray  # (G,) px: the samples are the grid's P x G points, phi-major
+    final_deg: float = 0.0  # the wake's direction on this side, from the rearward axis
+
+
+def profile(x: np.ndarray, shape: str = "erf") -> np.ndarray:
+    """Layer profile from 0 to 1 with unit largest slope (``x`` in vorticity thicknesses)."""
+    if shape == "erf":
+        return 0.5 * (1.0 + erf(math.sqrt(math.pi) * x))
+    # compact quartic: 0.5 + 15/16 y - 5/8 y^3 + 3/16 y^5 for |y| <= 1 with y = x 16 / 15,
+    # whose largest slope is 1 (derived)
+    y = np.clip(x * (16.0 / 15.0), -1.0, 1.0)
+    return 0.5 + (15.0 / 16.0) * y - 0.625 * y**3 + 0.1875 * y**5
+
+
+@functools.lru_cache(maxsize=256)
+def centre_offset(reverse: float, shape: str = "erf") -> float:
+    """``c``: the dividing line's depth below the layer's centre, in vorticity thicknesses."""
+    p = reverse / (1.0 + reverse)
+    if shape == "erf":
+        return float(-erfinv(2.0 * p - 1.0) / math.sqrt(math.pi))
+    lo, hi = -2.0, 0.0  # invert the quartic by bisection (monotonic)
+    for _ in range(40):
+        mid = 0.5 * (lo + hi)
+        if profile(np.array(mid), "quartic") < p:
+            lo = mid
+        else:
+            hi = mid
+    return -0.5 * (lo + hi)
+
+
+def dividing_line_px(radius_px: float, phi_s_deg: float, slope: float, relax_px: float,
+                     phi_deg: np.ndarray, final_deg: float = 0.0) -> np.ndarray:
+    """Height (px) of the dividing line above the outline behind separation (0 ahead of it).
+
+    It leaves the outline at ``phi_s_deg`` at ``atan(slope)`` from the tangent; its heading then
+    relaxes exponentially over the arc length ``relax_px`` toward ``final_deg`` (the wake's
+    direction on this side, from the rearward axis, positive away from it toward the side).
+
+    Returns
+    -------
+    (N,) ndarray
+        Height above the outline (px), 0 at and ahead of ``phi_s_deg``.
+    """
+    phi = np.asarray(phi_deg, dtype=np.float64)
+    th = math.radians(phi_s_deg)
+    psi0 = -th + math.atan(slope)
+    psi_f = math.radians(final_deg)
+    s = np.linspace(0.0, 3.0 * radius_px, 241)
+    psi = psi_f + (psi0 - psi_f) * np.exp(-s / max(relax_px, 1e-6))
+    ds = s[1] - s[0]
+    xi = radius_px * math.sin(th) + np.concatenate(
+        [[0.0], np.cumsum(0.5 * (np.cos(psi[1:]) + np.cos(psi[:-1])) * ds)])
+    zeta = radius_px * math.cos(th) + np.concatenate(
+        [[0.0], np.cumsum(0.5 * (np.sin(psi[1:]) + np.sin(psi[:-1])) * ds)])
+    curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)))
+    curve_gap = np.hypot(xi, zeta) - radius_px
+    return np.where(phi > phi_s_deg, np.interp(phi, curve_phi, curve_gap), 0.0)
+
+
+def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.ndarray,
+              shape: str = "erf") -> tuple[np.ndarray, np.ndarray]:
+    """Ball-frame motion ``(u_t, u_r)`` (px per pair) at the band's samples.
+
+    Parameters
+    ----------
+    geom : SideGeometry
+    params : sequence of float
+        In the order of ``PARAM_NAMES``: ``phi_s`` (deg), ``slope`` (tan of the departure
+        angle), ``relax`` (L / R), ``log_delta`` (ln of the vorticity thickness at separation,
+        px), ``spread`` (d delta / ds), ``reverse`` (r), ``drop`` (a), ``thin`` (b), ``follow``
+        (f), ``k_t``, ``k_r`` (scales of the outer stream's components).
+    u_t_outer, u_r_outer : (P * G,) ndarray
+        The stream outside the layer at the samples.
+    shape : {"erf", "quartic"}
+
+    Returns
+    -------
+    u_t, u_r : (P * G,) ndarray
+    """
+    phi_s, slope, relax, log_delta, spread, reverse, drop, thin, follow, k_t, k_r = params
+    r = geom.radius_px
+    phi = geom.phi_grid
+    delta_s = math.exp(log_delta)
+    behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r  # arc length past separation
+    lift, rise = _dividing_line(geom, phi_s, slope, relax)
+    c = centre_offset(reverse, shape)
+    ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / UPSTREAM_DEG)  # 0 at and behind phi_s
+    delta = delta_s * (1.0 - thin * ramp) + spread * behind
+    centre = (lift + c * delta * (1.0 - drop * ramp))[:, None]
+    wall_px = WALL_FRACTION * delta_s * (1.0 - thin * ramp)[:, None]
+    delta = delta[:, None]
+    gap = geom.gap_grid[None, :]
+    across = profile((gap - centre) / delta, shape)
+    s_prof = -reverse + (1.0 + reverse) * across
+    wall = -np.expm1(-gap / wall_px)
+    shape_pg = (phi.size, gap.size)
+    u_t = k_t * u_t_outer.reshape(shape_pg) * s_prof * wall
+    inside = 1.0 - profile((gap - centre - delta) / delta, shape)
+    u_r = k_r * u_r_outer.reshape(shape_pg) * across * wall + follow * u_t * rise[:, None] * inside
+    return u_t.ravel(), u_r.ravel()
+
+
+_LINE_CACHE: dict = {}
+
+
+def _dividing_line(geom: SideGeometry, phi_s: float, slope: float, relax: float):
+    """The dividing line's height over the angle grid and its rise ``dZ/ds``, kept for the last
+    few geometries (a fit's finite differences change the other parameters far more often)."""
+    phi = geom.phi_grid
+    key = (phi_s, slope, relax, geom.radius_px, geom.final_deg, phi.size, phi[0], phi[-1])
+    found = _LINE_CACHE.get(key)
+    if found is None:
+        r = geom.radius_px
+        lift = dividing_line_px(r, phi_s, slope, relax * r, phi, geom.final_deg)
+        found = (lift, np.gradient(lift, np.radians(phi) * r))
+        if len(_LINE_CACHE) > 64:
+            _LINE_CACHE.clear()
+        _LINE_CACHE[key] = found
+    return found
