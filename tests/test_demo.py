@@ -119,6 +119,16 @@ def test_frames_are_drawn_the_same_every_time(tmp_path):
     assert not list((tmp_path / "here").glob("*.part"))
 
 
+def test_drawing_workers_end_with_the_demo_command():
+    """A worker sees its demo command gone (killed, say) and ends instead of waiting for work."""
+    gone = subprocess.Popen([sys.executable, "-c", "pass"])
+    gone.wait()
+    code = f"from app.cli.demo import _end_with; _end_with({gone.pid}); import time; time.sleep(99)"
+    worker = subprocess.run([sys.executable, "-c", code], timeout=60, check=False,
+                            env={**os.environ, "PYTHONPATH": str(ROOT)})
+    assert worker.returncode == 1
+
+
 def test_replay_accepts_close_proposals_and_moves_the_others():
     from app.cli.demo import _moved_sides
     from core.store import ShotRecord

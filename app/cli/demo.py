@@ -152,9 +152,28 @@ def draw_frames(frames: Path, workers: int | None = None) -> None:
         # not fork: a forked child may inherit a lock held by another thread (tqdm's monitor)
         methods = multiprocessing.get_all_start_methods()
         context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
-        with ProcessPoolExecutor(workers, mp_context=context) as pool:
+        with ProcessPoolExecutor(workers, mp_context=context, initializer=_end_with,
+                                 initargs=(os.getpid(),)) as pool:
             for _ in pool.map(_write_pair, [frames] * len(shot_ids), shot_ids):
                 bar.update(1)
+
+
+def _end_with(parent_pid: int) -> None:
+    """In a worker process: end as soon as the demo command is gone, however it ended (a
+    killed parent leaves a pool's workers waiting for work that never comes)."""
+    import os
+    import threading
+    import time
+
+    def watch() -> None:
+        while True:
+            time.sleep(0.5)
+            try:
+                os.kill(parent_pid, 0)
+            except ProcessLookupError:
+                os._exit(1)
+
+    threading.Thread(target=watch, daemon=True).start()
 
 
 def _write_pair(frames: Path, shot_id: str) -> None:
