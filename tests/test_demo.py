@@ -260,6 +260,15 @@ def test_demo_command_without_window(small_demo, small_recipe, capsys):
         f"{s}_{ab}.tif" for s in DEMO_SUBSET for ab in "ab"]
 
 
+def test_demo_with_nothing_left_to_process_starts_no_worker(small_demo, monkeypatch, capsys):
+    import core.batch
+    from app.cli import main
+
+    monkeypatch.setattr(core.batch, "plan_shots", lambda session, *a: ([], list(session)))
+    assert main(["demo", "--out", str(small_demo), "--no-window", "--workers", "2"]) == 0
+    assert "every shot already processed" in capsys.readouterr().out
+
+
 def test_report_table_measures_proposals_against_truth(small_demo, small_recipe, tmp_path):
     from app.cli.demo import DEMO_SESSION
 

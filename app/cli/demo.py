@@ -212,17 +212,20 @@ def process_demo(session_path: Path, workers: int | None = None) -> None:
 
     with Session.open(session_path) as session:
         todo, _ = plan_shots(session)
-        bar = _progress_bar(len(todo), quiet=False)
-        try:
-            report = process_shots(session, todo, workers=workers,
-                                   on_result=lambda outcome: _show(bar, outcome))
-        finally:
-            bar.close()
-        if report.interrupted:
-            raise WakelineError(f"{session_path}: processing stopped; run the demo again")
+        done = "every shot already processed"
+        if todo:  # (given no shot, the batch would still start its workers, and fail)
+            bar = _progress_bar(len(todo), quiet=False)
+            try:
+                report = process_shots(session, todo, workers=workers,
+                                       on_result=lambda outcome: _show(bar, outcome))
+            finally:
+                bar.close()
+            if report.interrupted:
+                raise WakelineError(f"{session_path}: processing stopped; run the demo again")
+            done = f"processed {len(report.processed)} shot(s)" + (
+                f", {len(report.failed)} failed (see above)" if report.failed else "")
         applied = replay_reviews(session, session_path.parent / "frames" / "reviews.csv")
-    print(f"{session_path}: processed {len(report.processed)} shot(s)"
-          + (f", {len(report.failed)} failed (see above)" if report.failed else "")
+    print(f"{session_path}: {done}"
           + (f"; replayed {applied} review decision(s)" if applied else ""))
 
 
