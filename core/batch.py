@@ -25,6 +25,8 @@ from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 
+import numpy as np
+
 from core import WakelineError
 from core.shot import ShotSettings
 from core.store import Session, read_frames
@@ -107,11 +109,14 @@ def iter_process(
         (or an exception such as KeyboardInterrupt) ends the workers at once.
     """
     todo, _ = plan_shots(session, shot_ids, force)
+    if not todo:
+        return
     tasks = [_task(session, shot_id) for shot_id in todo]
+    backgrounds = _backgrounds(session, tasks)
     fingerprints = {task["shot_id"]: task["fingerprint"] for task in tasks}
     stop = should_stop or (lambda: False)
     runner = _runner(workers, scheduler)
-    with session.batch_run():
+    with session.batch_run(), backgrounds:
         for done, (shot_id, result, message) in enumerate(runner(tasks, stop), start=1):
             if result is not None:
                 session.save_result(shot_id, result)
@@ -186,10 +191,11 @@ def measure_task(task: dict, piv_threads: int | None = None):
     settings = ShotSettings.from_dict(task["settings"])
     try:
         frame_a, frame_b = read_frames(shot_id, task["source"])
+        background = np.load(task["background"]) if task.get("background") else None
         # The thread count changes speed, not the result; the stored settings stay the session's.
         run_settings = settings if piv_threads is None else replace(
             settings, piv=replace(settings.piv, workers=piv_threads))
-        result = measure_shot(frame_a, frame_b, run_settings)
+        result = measure_shot(frame_a, frame_b, run_settings, background=background)
         result.settings = settings
         return shot_id, result, ""
     except WakelineError as exc:
@@ -201,8 +207,40 @@ def measure_task(task: dict, piv_threads: int | None = None):
         return shot_id, None, f"{type(exc).__name__}: {text}".rstrip(": ")
 
 
-# ---------------------------------------------------------------------------------------------
-# Runners: each yields (shot_id, result or None, message) in completion order
+#: A camera position's background is the per-pixel minimum or median of the frames of at most
+#: this many of its shots (both frames of each): enough for particles and the ball to have
+#: moved off every pixel, few enough to read quickly.
+BACKGROUND_SHOTS = 24
+
+
+def _backgrounds(session: Session, tasks: list[dict]):
+    """Background images for the tasks whose settings ask for one, per camera position (the
+    manifest's ``camera`` column; one position when there is none), written to a temporary
+    folder that the returned context removes; each such task gets its file's path."""
+    import tempfile
+    from contextlib import ExitStack
+
+    from core.conditioning import background_image
+
+    stack = ExitStack()
+    wanted = [t for t in tasks if t["settings"].get("background")]
+    if not wanted:
+        return stack
+    folder = Path(stack.enter_context(tempfile.TemporaryDirectory(prefix="wakeline-bg-")))
+    groups: dict[tuple, list[dict]] = {}
+    for task in wanted:
+        camera = str(session[task["shot_id"]].metadata.get("camera") or "")
+        groups.setdefault((camera, task["settings"]["background"]), []).append(task)
+    for index, ((camera, method), members) in enumerate(groups.items()):
+        ids = [shot_id for shot_id in session
+               if str(session[shot_id].metadata.get("camera") or "") == camera][:BACKGROUND_SHOTS]
+        frames = [f for shot_id in ids
+                  for f in read_frames(shot_id, session.frame_source(shot_id))]
+        path = folder / f"background-{index}.npy"
+        np.save(path, background_image(frames, method))
+        for task in members:
+            task["background"] = str(path)
+    return stack
 
 
 def _runner(workers: int | None, scheduler):

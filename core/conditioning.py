@@ -190,7 +190,7 @@ def normalise_local(frame: np.ndarray, window_px: float, mask: np.ndarray | None
     (H, W) ndarray of float32, mostly in 0..1.
     """
     image = np.asarray(frame, dtype=np.float32)
-    block = max(2, int(round(window_px / 3.0)))
+    block = max(2, round(window_px / 3.0))
     source = image
     if mask is not None and mask.any():
         source = image.copy()

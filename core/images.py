@@ -74,6 +74,17 @@ def _depth(frame: np.ndarray) -> str:
     return f"{frame.dtype.itemsize * 8}-bit" + (f" {kind}" if kind else "")
 
 
+def read_frame(path: str | Path) -> np.ndarray:
+    """One single-page frame (e.g. a background image) as float32 counts, ``(H, W)``.
+
+    Raises
+    ------
+    core.WakelineError
+        When the file is missing, unreadable, in colour, or holds more than one page.
+    """
+    return _as_float(_single_page(Path(path)))
+
+
 def _as_float(frame: np.ndarray) -> np.ndarray:
     return frame.astype(np.float32, copy=False)
 

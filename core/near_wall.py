@@ -26,6 +26,7 @@ import numpy as np
 from scipy import ndimage
 
 from core.geometry import flight_unit, side_normal
+from core.results import VectorField
 
 #: Polar grid step of the resampled frames (px, radially and along the arc).
 POLAR_STEP_PX = 0.25
@@ -123,7 +124,7 @@ class NearWallBand:
     def leave_out(self, masks, reach_px: float) -> None:
         """Leave the samples within ``reach_px`` of a masked pixel of either frame (``(H, W)``
         bool, or None) out of every residual: they count as zero from now on."""
-        grow = int(math.ceil(reach_px))
+        grow = math.ceil(reach_px)
         keep = None
         for mask, picture_of in zip(masks, (self._sample_a, self._sample_b), strict=True):
             if mask is None or not mask.any():
@@ -233,3 +234,119 @@ def particle_image_density(frame: np.ndarray, mask: np.ndarray | None = None,
     if mask is not None:
         peaks &= ~mask
     return ndimage.uniform_filter(peaks.astype(np.float64), 16)
+
+
+# --- seeding beside the ball ---------------------------------------------------------------
+
+
+@dataclass
+class SeedingMap:
+    """Particle images per pixel around the ball (frame A), ``density[y - y0, x - x0]``."""
+
+    density: np.ndarray
+    origin_px: tuple[int, int]  # (y0, x0)
+
+    def at(self, x_px: np.ndarray, y_px: np.ndarray) -> np.ndarray:
+        rows = np.clip(np.rint(y_px - self.origin_px[0]).astype(int), 0, self.density.shape[0] - 1)
+        cols = np.clip(np.rint(x_px - self.origin_px[1]).astype(int), 0, self.density.shape[1] - 1)
+        return self.density[rows, cols]
+
+
+def seeding_ratio(seeding: SeedingMap, ball, side: str) -> float:
+    """Particle images in the band beside ``side`` over those in the air around the ball.
+
+    The band: 2-14 px outside the outline, -40..+40 deg; the air: the median over a ring
+    0.3-0.8 radii outside the whole outline (a laser shadow darkens one side only).
+    """
+    cx, cy = ball.center_px
+    r = ball.radius_px
+    phi = np.linspace(-40.0, 40.0, 81)
+    (ex, ey), _ = side_axes(ball.flight_deg, side, phi)
+    near = np.mean([seeding.at(cx + (r + g) * ex, cy + (r + g) * ey)
+                    for g in np.linspace(2.0, 14.0, 7)])
+    theta = np.linspace(0.0, 2.0 * np.pi, 240, endpoint=False)
+    ring = [seeding.at(cx + (r * k) * np.cos(theta), cy + (r * k) * np.sin(theta))
+            for k in np.linspace(1.3, 1.8, 6)]
+    far = float(np.median(np.concatenate(ring)))
+    return float(near) / far if far > 0 else 0.0
+
+
+# --- the stream outside the layer, from the fine PIV ------------------------------------------
+
+
+@dataclass
+class OuterStream:
+    """Smooth fit of the ball-frame stream next to one side: ``u_t``, ``u_r`` (px per pair)."""
+
+    coef_t: np.ndarray
+    coef_r: np.ndarray
+    radius_px: float
+    phi_range: tuple[float, float] = (-90.0, 180.0)  # angles covered by vectors near the wall
+
+    @staticmethod
+    def _basis(phi_deg, gap_px, radius_px, with_constant):
+        t = np.radians(np.asarray(phi_deg, dtype=np.float64))
+        g = np.asarray(gap_px, dtype=np.float64) / radius_px
+        powers = [t**k for k in range(4)]
+        cols = ([*powers] if with_constant else []) + [p * g for p in powers] + [
+            p * g * g for p in powers[:2]
+        ]
+        return np.stack(cols, axis=-1)
+
+    def tangential(self, phi_deg, gap_px) -> np.ndarray:
+        """Tangential component; beyond the angles the vectors cover near the wall it is held at
+        its last value (behind separation the stream outside the layer hardly changes, and a
+        polynomial carried on into the wake would run wild)."""
+        phi = np.clip(phi_deg, *self.phi_range)
+        return self._basis(phi, gap_px, self.radius_px, True) @ self.coef_t
+
+    def radial(self, phi_deg, gap_px) -> np.ndarray:
+        """Radial component, zero at the wall (no flow through it)."""
+        phi = np.clip(phi_deg, *self.phi_range)
+        return self._basis(phi, gap_px, self.radius_px, False) @ self.coef_r
+
+
+def outer_stream(
+    fine: VectorField, origin_px, ball, side: str, phi_deg, *, gap_px=(6.0, 40.0)
+) -> OuterStream | None:
+    """Fit the stream beside the ball from fine PIV vectors clear of the wall and of the wake.
+
+    ``ball`` is the separation's ``BallFrame`` (its ``motion``, ``stream`` and circle);
+    ``phi_deg`` the band's angles. Vectors count when valid, ``gap_px`` outside the outline, and moving rearward faster than
+    0.6 of the ball's speed relative to the air (the wake and the layer are left out). The fit is
+    a low-order polar polynomial (cubic in angle, quadratic in gap), robust (Cauchy weights).
+    """
+    phi, gap = polar_of(ball.motion, side, fine.x_px + origin_px[0], fine.y_px + origin_px[1])
+    (ex, ey), (tx, ty) = side_axes(ball.flight_deg, side, phi)
+    u_t = fine.dx_px * tx + fine.dy_px * ty
+    u_r = fine.dx_px * ex + fine.dy_px * ey
+    speed = ball.stream
+    ok = (
+        (fine.valid | fine.replaced) & np.isfinite(u_t) & (gap >= gap_px[0]) & (gap <= gap_px[1])
+        & (phi > phi_deg[0] - 10.0) & (phi < phi_deg[1] + 15.0) & (u_t > 0.6 * speed)
+    )
+    if ok.sum() < 30:
+        return None
+    r = ball.radius_px
+    coef_t = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, True), u_t[ok])
+    coef_r = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, False), u_r[ok])
+    near = ok & (gap <= NEAR_WALL_STREAM_PX)
+    covered = tuple(np.percentile(phi[near], [2.0, 98.0])) if near.sum() >= 10 else (
+        float(phi[ok].min()), float(phi[ok].max()))
+    return OuterStream(coef_t, coef_r, r, covered)
+
+
+#: Vectors within this gap (px) of the outline set the angles the stream fit is trusted over.
+NEAR_WALL_STREAM_PX = 25.0
+
+
+def _robust_lstsq(design: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Least squares with iterated Cauchy weights (scale from the median absolute residual)."""
+    weight = np.ones_like(values)
+    coef = np.zeros(design.shape[1])
+    for _ in range(6):
+        coef, *_ = np.linalg.lstsq(design * weight[:, None], values * weight, rcond=None)
+        resid = values - design @ coef
+        scale = 1.4826 * np.median(np.abs(resid)) + 1e-6
+        weight = 1.0 / np.sqrt(1.0 + (resid / (2.0 * scale)) ** 2)
+    return coef

@@ -48,7 +48,7 @@ _NAN = float("nan")
 
 
 def _number(value) -> float:
-    return _NAN if value is None or value != value else float(value)
+    return _NAN if value is None or math.isnan(value) else float(value)
 
 
 @dataclass
@@ -120,28 +120,6 @@ class SideProposal:
     layer: dict[str, float] | None = None  # the fitted layer model (core.separation.layer_curves)
 
 
-#: Wake state threshold (deg): sides differ when |upper - lower| exceeds the larger of this and
-#: the combined uncertainty.
-STATE_THRESHOLD_DEG = 5.0
-
-
-def wake_state(upper: SideProposal, lower: SideProposal) -> str:
-    """Our label for the shot: which side holds on longer, if the difference is clear.
-
-    "symmetric" when ``|upper - lower| <= max(STATE_THRESHOLD_DEG, combined uncertainty)``,
-    else "upper side holds on longer" / "lower side holds on longer" (the side with the larger,
-    i.e. later, separation angle); "undetermined" without both angles. The rule of the proposal
-    (core.separation) and of the analyst's final angles (``ShotRecord.wake_state``).
-    """
-    if upper.angle_deg is None or lower.angle_deg is None:
-        return "undetermined"
-    combined = math.hypot(upper.uncertainty_deg or 0.0, lower.uncertainty_deg or 0.0)
-    diff = upper.angle_deg - lower.angle_deg
-    if abs(diff) <= max(STATE_THRESHOLD_DEG, combined):
-        return "symmetric"
-    return "upper side holds on longer" if diff > 0 else "lower side holds on longer"
-
-
 @dataclass
 class SeparationResult:
     upper: SideProposal
@@ -158,18 +136,22 @@ def finite_or_none(value):
     return value if math.isfinite(value) else None
 
 
+def json_ready(value):
+    """Non-finite floats as None, tuples as lists, numpy scalars as Python ones: what a strict
+    ``json.dumps`` takes (the one such cleaner: the results and the session store use it)."""
+    if isinstance(value, dict):
+        return {str(k): json_ready(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [json_ready(v) for v in value]
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        return finite_or_none(value)
+    return value
+
+
 def dataclass_dict(obj) -> dict:
-    """asdict with NaN replaced by None, tuples by lists (JSON ready)."""
-
-    def clean(v):
-        if isinstance(v, float):
-            return finite_or_none(v)
-        if isinstance(v, (list, tuple)):
-            return [clean(x) for x in v]
-        if isinstance(v, dict):
-            return {k: clean(x) for k, x in v.items()}
-        if isinstance(v, (np.floating, np.integer)):
-            return clean(float(v))
-        return v
-
-    return clean(asdict(obj))
+    """asdict, JSON ready (:func:`json_ready`)."""
+    return json_ready(asdict(obj))

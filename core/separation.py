@@ -43,16 +43,18 @@ from dataclasses import dataclass, replace
 import numpy as np
 from scipy.optimize import least_squares
 
-from core.geometry import flight_unit, side_normal
 from core.layer_model import PARAM_NAMES, SideGeometry, side_flow
-from core.near_wall import BallMotion, NearWallBand, polar_of, side_axes
-from core.results import (  # noqa: F401 - the wake-state rule lives with the records
-    STATE_THRESHOLD_DEG,
-    SeparationResult,
-    SideProposal,
-    VectorField,
-    wake_state,
+from core.near_wall import (
+    BallMotion,
+    NearWallBand,
+    OuterStream,
+    SeedingMap,
+    outer_stream,
+    seeding_ratio,
+    side_axes,
 )
+from core.results import SeparationResult, SideProposal, VectorField
+from core.wake import wake_deflection, wake_state
 
 #: Band along the outline where the layer is fitted: first gap (px) outside the outline; the
 #: last one is ``BAND_DEPTH`` times the prior's upper thickness (twice its median), within
@@ -98,7 +100,7 @@ FIT_WINDOW_DEG = (-25.0, 40.0)
 EXTRAPOLATION_DEPTH = 0.2
 EXTRAPOLATION_MIN_DEG = 3.0
 #: Iterations (Jacobians) of the main refinement and of each refit from its result.
-REFINE_ITERATIONS = 25
+REFINE_ITERATIONS = 15
 ALTERNATIVE_ITERATIONS = 5
 #: The angle's profile is taken this far either side of the best fit (deg); the fit's own
 #: standard uncertainty is capped at ``PROFILE_MAX_DEG``.
@@ -107,7 +109,7 @@ PROFILE_MAX_DEG = 20.0
 #: Thicknesses (over the prior's median) tried by the coarse search, and how many of its first
 #: stage's best angles are searched further.
 COARSE_THICKNESS = (1.0, 3.0)
-COARSE_CANDIDATES = 3
+COARSE_CANDIDATES = 2
 #: Refinements run from this many starting points of the coarse search (the best wins): the
 #: image-matching cost has several shallow minima along the outline.
 REFINE_STARTS = 2
@@ -221,121 +223,6 @@ def propose_separation(
     return SeparationResult(sides["upper"], sides["lower"], deflection, state)
 
 
-# --- seeding beside the ball ---------------------------------------------------------------
-
-
-@dataclass
-class SeedingMap:
-    """Particle images per pixel around the ball (frame A), ``density[y - y0, x - x0]``."""
-
-    density: np.ndarray
-    origin_px: tuple[int, int]  # (y0, x0)
-
-    def at(self, x_px: np.ndarray, y_px: np.ndarray) -> np.ndarray:
-        rows = np.clip(np.rint(y_px - self.origin_px[0]).astype(int), 0, self.density.shape[0] - 1)
-        cols = np.clip(np.rint(x_px - self.origin_px[1]).astype(int), 0, self.density.shape[1] - 1)
-        return self.density[rows, cols]
-
-
-def seeding_ratio(seeding: SeedingMap, ball: BallFrame, side: str) -> float:
-    """Particle images in the band beside ``side`` over those in the air around the ball.
-
-    The band: 2-14 px outside the outline, -40..+40 deg; the air: the median over a ring
-    0.3-0.8 radii outside the whole outline (a laser shadow darkens one side only).
-    """
-    cx, cy = ball.center_px
-    r = ball.radius_px
-    phi = np.linspace(-40.0, 40.0, 81)
-    (ex, ey), _ = side_axes(ball.flight_deg, side, phi)
-    near = np.mean([seeding.at(cx + (r + g) * ex, cy + (r + g) * ey)
-                    for g in np.linspace(2.0, 14.0, 7)])
-    theta = np.linspace(0.0, 2.0 * np.pi, 240, endpoint=False)
-    ring = [seeding.at(cx + (r * k) * np.cos(theta), cy + (r * k) * np.sin(theta))
-            for k in np.linspace(1.3, 1.8, 6)]
-    far = float(np.median(np.concatenate(ring)))
-    return float(near) / far if far > 0 else 0.0
-
-
-# --- the stream outside the layer, from the fine PIV ------------------------------------------
-
-
-@dataclass
-class OuterStream:
-    """Smooth fit of the ball-frame stream next to one side: ``u_t``, ``u_r`` (px per pair)."""
-
-    coef_t: np.ndarray
-    coef_r: np.ndarray
-    radius_px: float
-    phi_range: tuple[float, float] = (-90.0, 180.0)  # angles covered by vectors near the wall
-
-    @staticmethod
-    def _basis(phi_deg, gap_px, radius_px, with_constant):
-        t = np.radians(np.asarray(phi_deg, dtype=np.float64))
-        g = np.asarray(gap_px, dtype=np.float64) / radius_px
-        powers = [t**k for k in range(4)]
-        cols = ([*powers] if with_constant else []) + [p * g for p in powers] + [
-            p * g * g for p in powers[:2]
-        ]
-        return np.stack(cols, axis=-1)
-
-    def tangential(self, phi_deg, gap_px) -> np.ndarray:
-        """Tangential component; beyond the angles the vectors cover near the wall it is held at
-        its last value (behind separation the stream outside the layer hardly changes, and a
-        polynomial carried on into the wake would run wild)."""
-        phi = np.clip(phi_deg, *self.phi_range)
-        return self._basis(phi, gap_px, self.radius_px, True) @ self.coef_t
-
-    def radial(self, phi_deg, gap_px) -> np.ndarray:
-        """Radial component, zero at the wall (no flow through it)."""
-        phi = np.clip(phi_deg, *self.phi_range)
-        return self._basis(phi, gap_px, self.radius_px, False) @ self.coef_r
-
-
-def outer_stream(
-    fine: VectorField, origin_px, ball: BallFrame, side: str, *, gap_px=(6.0, 40.0)
-) -> OuterStream | None:
-    """Fit the stream beside the ball from fine PIV vectors clear of the wall and of the wake.
-
-    Vectors count when valid, ``gap_px`` outside the outline, and moving rearward faster than
-    0.6 of the ball's speed relative to the air (the wake and the layer are left out). The fit is
-    a low-order polar polynomial (cubic in angle, quadratic in gap), robust (Cauchy weights).
-    """
-    phi, gap = polar_of(ball.motion, side, fine.x_px + origin_px[0], fine.y_px + origin_px[1])
-    (ex, ey), (tx, ty) = side_axes(ball.flight_deg, side, phi)
-    u_t = fine.dx_px * tx + fine.dy_px * ty
-    u_r = fine.dx_px * ex + fine.dy_px * ey
-    speed = ball.stream
-    ok = (
-        (fine.valid | fine.replaced) & np.isfinite(u_t) & (gap >= gap_px[0]) & (gap <= gap_px[1])
-        & (phi > BAND_DEG[0] - 10.0) & (phi < BAND_DEG[1] + 15.0) & (u_t > 0.6 * speed)
-    )
-    if ok.sum() < 30:
-        return None
-    r = ball.radius_px
-    coef_t = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, True), u_t[ok])
-    coef_r = _robust_lstsq(OuterStream._basis(phi[ok], gap[ok], r, False), u_r[ok])
-    near = ok & (gap <= NEAR_WALL_STREAM_PX)
-    covered = tuple(np.percentile(phi[near], [2.0, 98.0])) if near.sum() >= 10 else (
-        float(phi[ok].min()), float(phi[ok].max()))
-    return OuterStream(coef_t, coef_r, r, covered)
-
-
-#: Vectors within this gap (px) of the outline set the angles the stream fit is trusted over.
-NEAR_WALL_STREAM_PX = 25.0
-
-
-def _robust_lstsq(design: np.ndarray, values: np.ndarray) -> np.ndarray:
-    """Least squares with iterated Cauchy weights (scale from the median absolute residual)."""
-    weight = np.ones_like(values)
-    coef = np.zeros(design.shape[1])
-    for _ in range(6):
-        coef, *_ = np.linalg.lstsq(design * weight[:, None], values * weight, rcond=None)
-        resid = values - design @ coef
-        scale = 1.4826 * np.median(np.abs(resid)) + 1e-6
-        weight = 1.0 / np.sqrt(1.0 + (resid / (2.0 * scale)) ** 2)
-    return coef
-
-
 # --- the fit of one side ---------------------------------------------------------------------
 
 
@@ -411,7 +298,7 @@ def _outside(value: float, lo: float, hi: float) -> float:
 def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str,
                  final_deg: float, glare=(None, None)) -> SideProblem | str:
     """The side's fitting problem, or the reason there is none."""
-    outer = outer_stream(fine, origin_px, ball, side)
+    outer = outer_stream(fine, origin_px, ball, side, BAND_DEG)
     if outer is None:
         return "too few valid vectors beside the ball to model the stream there"
     delta_prior = ball.laminar_delta_px()
@@ -597,7 +484,6 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dic
     ways (half the spread; a centre error moves the outline by as much radially), the other
     layer profile, the thickness prior's median halved and doubled (the larger move).
     """
-    phi = best.params[0]
     rises = []
     for sign in (-1.0, 1.0):
         moved = best.params.copy()
@@ -676,44 +562,3 @@ def layer_curves(center_px, radius_px: float, flight_deg: float, side: str, laye
                       points(band_phi[:1], inner[:1])])
     return {"dividing": points(phi, radius_px + lift), "centre": points(phi, radius_px + centre),
             "band": band}
-
-
-# --- wake ------------------------------------------------------------------------------------
-
-
-def wake_deflection(
-    field: VectorField, origin_px, ball: BallFrame, *, lab_frame: bool = False,
-    reach=(1.2, 4.0),
-) -> float | None:
-    """Direction of the wake centreline relative to the rearward axis (deg, + toward upper).
-
-    Behind the ball (``reach`` radii from its centre along the axis, within 1.5 radii of it)
-    the wake is the air that keeps up with the ball: weight ``1 - |u|/U`` in the ball frame, or
-    the lab-frame motion along the flight over the ball's, ``u . D / |D|^2`` (clipped to 0..1).
-    The centreline is the straight line fitted to the vectors' positions with those weights
-    (weighted least squares of the cross-axis position on the along-axis one).
-    """
-    fx, fy = flight_unit(ball.flight_deg)
-    nx, ny = side_normal(ball.flight_deg, "upper")
-    rx = field.x_px + origin_px[0] - ball.center_px[0]
-    ry = field.y_px + origin_px[1] - ball.center_px[1]
-    xi = -(rx * fx + ry * fy)
-    eta = rx * nx + ry * ny
-    dx, dy = ball.displacement_px
-    speed2 = max(dx * dx + dy * dy, 1e-12)
-    stream = max(ball.stream, 1e-9)
-    r = ball.radius_px
-    usable = (field.valid | field.replaced) & np.isfinite(field.dx_px) & np.isfinite(field.dy_px)
-    region = usable & (xi >= reach[0] * r) & (xi <= reach[1] * r) & (np.abs(eta) < 1.5 * r)
-    u, v = np.where(region, field.dx_px, 0.0), np.where(region, field.dy_px, 0.0)
-    if lab_frame:
-        follow = (u * dx + v * dy) / speed2
-    else:
-        follow = 1.0 - np.hypot(u, v) / stream
-    weight = np.where(region, np.clip(follow, 0.0, 1.0), 0.0)
-    if weight.sum() < 5.0 or np.ptp(xi[weight > 0]) < 0.5 * r:
-        return None
-    mean_xi = np.sum(weight * xi) / weight.sum()
-    mean_eta = np.sum(weight * eta) / weight.sum()
-    slope = np.sum(weight * (xi - mean_xi) * (eta - mean_eta)) / np.sum(weight * (xi - mean_xi) ** 2)
-    return round(math.degrees(math.atan(slope)), 2)

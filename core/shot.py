@@ -45,6 +45,9 @@ class ShotSettings:
     # min-max normalisation window in mean particle spacings (None: off; skipped on sparse
     # seeding, spacing above core.conditioning.SPARSE_SPACING_PX)
     normalise_spacings: float | None = 3.0
+    # per-pixel "min" or "median" of the session's frames at the shot's camera position
+    # subtracted before correlation (computed by core.batch), or None
+    background: str | None = None
     piv: PivSettings = field(default_factory=PivSettings)
 
     def to_dict(self) -> dict:
@@ -152,29 +155,32 @@ class ShotResult:
 
     @classmethod
     def from_stored(cls, summary: dict, arrays: dict[str, np.ndarray]) -> ShotResult:
-        piv_warnings = list(summary["vectors"].get("warnings") or [])
+        """The result from its stored summary (read by :class:`core.summary.ShotSummary`, the
+        one reader of stored summaries) and arrays."""
+        from core.summary import ShotSummary
+
+        typed = ShotSummary.from_dict(summary)
+        piv_warnings = list((summary.get("vectors") or {}).get("warnings") or [])
         vf = VectorField(
             **{name: np.asarray(arrays[name]) for name in VectorField.ARRAY_NAMES},
-            window_px=summary["vectors"]["window_px"],
-            spacing_px=summary["vectors"]["spacing_px"],
+            window_px=typed.vectors.window_px,
+            spacing_px=typed.vectors.spacing_px,
             warnings=piv_warnings,
         )
-        ball = summary.get("ball")
-        sep = summary.get("separation")
         return cls(
             field=vf,
-            settings=ShotSettings.from_dict(summary["settings"]),
-            ball_a=_ball_from(ball and ball.get("frame_a")),
-            ball_b=_ball_from(ball and ball.get("frame_b")),
-            flight=None if summary.get("flight") is None else _flight_from(summary["flight"]),
-            separation=None if sep is None else _separation_from(sep),
-            scale_mm_per_px=summary.get("scale_mm_per_px"),
+            settings=ShotSettings.from_dict(typed.settings),
+            ball_a=typed.ball_a,
+            ball_b=typed.ball_b,
+            flight=typed.flight,
+            separation=None if summary.get("separation") is None else typed.separation,
+            scale_mm_per_px=typed.scale_mm_per_px,
             u_m_s=arrays.get("u_m_s"),
             v_m_s=arrays.get("v_m_s"),
             vorticity_1_s=arrays.get("vorticity_1_s"),
-            warnings=[w for w in summary.get("warnings", []) if w not in piv_warnings],
-            valid_near_ball=summary["vectors"].get("valid_near_ball"),
-            reynolds=(summary.get("reynolds") or {}).get("value"),
+            warnings=[w for w in typed.warnings if w not in piv_warnings],
+            valid_near_ball=typed.vectors.valid_near_ball,
+            reynolds=typed.reynolds,
             fine_field=_fine_from(summary, arrays),
         )
 
@@ -244,32 +250,6 @@ def _separation_summary(sep: SeparationResult | None) -> dict:
         "wake_deflection_deg": finite_or_none(sep.wake_deflection_deg),
         "wake_state": sep.wake_state,
     }
-
-
-def _ball_from(d: dict | None) -> BallFit | None:
-    if not d:
-        return None
-    known = {f.name for f in dc_fields(BallFit)}
-    return BallFit(**{k: v for k, v in d.items() if k in known})
-
-
-def _flight_from(d: dict) -> Flight:
-    known = {f.name for f in dc_fields(Flight)}
-    return Flight(**{k: v for k, v in d.items() if k in known})
-
-
-def _side_from(d: dict) -> SideProposal:
-    known = {f.name for f in dc_fields(SideProposal)}
-    return SideProposal(**{"angle_deg": None, **{k: v for k, v in d.items() if k in known}})
-
-
-def _separation_from(d: dict) -> SeparationResult:
-    return SeparationResult(
-        upper=_side_from(d["upper"]),
-        lower=_side_from(d["lower"]),
-        wake_deflection_deg=d.get("wake_deflection_deg"),
-        wake_state=d.get("wake_state", "undetermined"),
-    )
 
 
 #: Passes of the finer correlation around the ball (ball frame): it gives the stream beside the
@@ -512,7 +492,8 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
             SideProposal(None, reason=reason), SideProposal(None, reason=reason)
         )
         return
-    result.separation = _separation(*conditioned, balls, flight, settings, clock, result, glare)
+    result.separation = _separation(*conditioned, balls, flight, settings, clock, result, glare,
+                                    raw[0])
 
 
 def _ball_warnings(ball_a: BallFit, ball_b: BallFit, expected_r: float | None) -> list[str]:
@@ -636,10 +617,12 @@ def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
 
 
 def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings, clock,
-                result: ShotResult, glare=(None, None)):
+                result: ShotResult, glare=(None, None), raw_a=None):
     """Fine correlation around the ball in the ball frame, then the layer fit on each side.
 
-    Also sets ``result.reynolds`` from the air's speed past the ball.
+    ``frame_a, frame_b`` are the conditioned frames; the particle images beside the ball are
+    counted on ``raw_a`` (frame A as recorded; local normalisation dims the particles next to
+    a bright ball). Also sets ``result.reynolds`` from the air's speed past the ball.
     """
     from core.air import reynolds_number
     from core.piv import correlate_pair
@@ -667,7 +650,7 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
     clock.lap("fine piv")
     ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg, stream,
                      reynolds=result.reynolds, **_uncertainties(balls, flight))
-    seeding = _seeding_map(frame_a, balls[0])
+    seeding = _seeding_map(frame_a if raw_a is None else raw_a, balls[0])
     proposal = propose_separation(frame_a, frame_b, ball, vf, (crop[1], crop[0]), lab_field,
                                   seeding, glare)
     clock.lap("separation")
@@ -694,8 +677,7 @@ def _uncertainties(balls, flight: Flight) -> dict:
 def _seeding_map(frame, ball: BallFit):
     """Particle-image density around the ball in frame A (2 radii around it)."""
     from core.ball import ball_mask
-    from core.near_wall import particle_image_density
-    from core.separation import SeedingMap
+    from core.near_wall import SeedingMap, particle_image_density
 
     height, width = frame.shape
     cx, cy = ball.center_px

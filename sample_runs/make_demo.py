@@ -1,21 +1,26 @@
-"""Regenerate the demo session inputs in this folder: frames, shots.csv, truth.csv, reviews.csv.
+"""The demo session's recipe: its manifest, truth and review, its frames, and its report.
 
 The scenario is invented (see README.md): a cricket ball launched at about 30 m/s through a
-vertical light sheet, seam angle swept from 0 to 50 deg, two launches per angle. Every file is a
-pure function of the constants below and the seeds, so running this script again rewrites the
-same bytes (given the same numpy, tifffile and zlib):
+vertical light sheet, seam angle swept from 0 to 40 deg with three launches per angle, then a
+white ball at 20 deg. The frames come from the physically built synthetic family
+(``core.synth_physical``); they are too large to ship (about 3 MB a shot), so ``wakeline demo``
+draws them at its first run. Every file is a pure function of the constants below and the seeds:
+drawing them again gives the same bytes (given the same numpy, scipy, tifffile and zlib).
 
-    .venv/bin/python sample_runs/make_demo.py            # into sample_runs/
-    .venv/bin/python sample_runs/make_demo.py OUT_DIR    # somewhere else
-    .venv/bin/python sample_runs/make_demo.py OUT_DIR --shots sw01 sw07
+    .venv/bin/python sample_runs/make_demo.py                  # rewrite shots.csv, truth.csv,
+                                                               # reviews.csv here
+    .venv/bin/python sample_runs/make_demo.py --frames DIR [--shots sw01 sw07]   # draw frames
+    .venv/bin/python sample_runs/make_demo.py --report [DEMO_DIR]   # table of README.md
 """
 
 from __future__ import annotations
 
 import argparse
 import csv
+import functools
 import io
 import math
+import re
 import sys
 from dataclasses import dataclass
 from pathlib import Path
@@ -25,17 +30,21 @@ import numpy as np
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))  # run from a checkout without installing
 
-from core.synth_shot import ball_shot
-
-FRAME_SHAPE = (480, 640)  # (H, W) px
-RADIUS_PX = 56.0
+FRAME_SHAPE = (1024, 1280)  # (H, W) px: a 1.3-megapixel double-frame PIV camera
+BIT_DEPTH = 12
+RADIUS_PX = 170.0
 BALL_DIAMETER_MM = 71.6  # men's cricket ball: circumference 22.4-22.9 cm (Laws of Cricket, Law 4)
-DT_S = 170e-6  # fixed laser pulse separation: ~8 px ball shift at 30 m/s on this scale
+DT_S = 60e-6  # laser pulse separation: the ball moves about 8.5 px at 30 m/s
 SPEED_NOMINAL_M_S = 30.0
-SPIN_RPM = 600.0  # backspin about the seam axis, as set on the launcher
-SEAM_ANGLES_DEG = (0.0, 10.0, 20.0, 30.0, 40.0, 50.0)
-REPEATS = 2
-SPARSE_SHOT = "sw12"  # the fog ran low on the last launch
+SPIN_RPM = 1000.0  # backspin about the seam axis, as set on the launcher
+AIR_TEMP_C = 19.5  # read off the lab thermometer at the start of the session
+SEAM_ANGLES_DEG = (0.0, 10.0, 20.0, 30.0, 40.0)
+REPEATS = 3
+WHITE_BALL_SEAM_DEG = 20.0
+WHITE_BALL_REPEATS = 2
+SPARSE_SHOT = "sw08"  # the fog ran low
+SHADOW_SHOT = "sw11"  # the return mirror was knocked out of line
+SECOND_BALL_FROM = 13  # the first ball's seam split after sw12: a worn ball from then on
 SEED = 20261130
 
 # Separation model of the invented scenario (the seam is turned toward the lower side):
@@ -43,43 +52,59 @@ SEED = 20261130
 #   stagnation point, i.e. -9 deg from the plane normal to the flight (Achenbach 1972,
 #   J. Fluid Mech. 54:565, memory: 80-82 deg for a subcritical smooth sphere);
 # - on the seam side the seam trips the boundary layer, which then separates later (Mehta 1985,
-#   Annu. Rev. Fluid Mech. 17:151, memory); the delay is largest near 20-30 deg of seam angle,
-#   where the swing side force of a new ball peaks around 30 m/s (same source, memory), and small
-#   at 0 deg (seam straight up the flight) and 50 deg (seam too far round to trip in time);
-# - the wake leans toward the side that separates first (the upper side here).
-LAMINAR_DEG = -9.0
-SEAM_DELAY_MAX_DEG = 24.0
-SEAM_DELAY_PEAK_DEG = 25.0
-SEAM_DELAY_WIDTH_DEG = 17.0
-WAKE_LEAN = 0.3  # wake deflection per deg of separation asymmetry
+#   Annu. Rev. Fluid Mech. 17:151, memory); the delay is largest near 25-30 deg of seam angle,
+#   where the swing of a new ball peaks around 30 m/s (same source, memory), and small at 0 deg
+#   (seam straight up the flight) and beyond 40 deg (seam too far round to trip in time).
+# The synthetic family has no tripped layer: it reaches a later separation through a surface
+# velocity between the measured one (separation at -8.9 deg) and potential flow's (+13.6 deg),
+# which ``share_for`` chooses so that the layer separates at the model's angle.
+LAMINAR_DEG = -8.9
+SEAM_DELAY_MAX_DEG = 20.0
+SEAM_DELAY_PEAK_DEG = 27.0
+SEAM_DELAY_WIDTH_DEG = 14.0
 
 MANIFEST_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball_type",
-                    "speed_nominal_m_s", "spin_rpm", "seam_deg", "notes")
+                    "speed_nominal_m_s", "spin_rpm", "seam_deg", "air_temp_c", "ball", "notes")
 TRUTH_COLUMNS = ("shot", "upper_true_deg", "lower_true_deg", "wake_deflection_true_deg",
-                 "speed_true_m_s", "shift_px")
+                 "speed_true_m_s", "flight_true_deg", "shift_px", "reynolds_number",
+                 "surface", "glint", "shadow_side")
+README_START = "<!-- proposals against truth: written by make_demo.py --report -->"
+README_END = "<!-- end of the table -->"
 
 
 @dataclass(frozen=True)
 class DemoShot:
-    """One invented launch: its id, settings and the truth it is drawn with."""
+    """One invented launch: its id, what the log says about it, and what it is drawn with."""
 
     shot_id: str
     seam_deg: float
-    speed_m_s: float
-    upper_deg: float
-    lower_deg: float
-    wake_deflection_deg: float
-    density_ppp: float
-    seed: int
+    ball: str
     notes: str
+    draw: dict  # keyword arguments of core.synth_physical.physical_shot
 
     @property
     def scale_mm_per_px(self) -> float:
         return BALL_DIAMETER_MM / (2.0 * RADIUS_PX)
 
-    @property
-    def shift_px(self) -> float:
-        return self.speed_m_s * DT_S * 1e3 / self.scale_mm_per_px
+
+def separation_deg(share: float) -> float:
+    """Where the family's layer separates (deg from the plane, + rearward) at this share of the
+    measured surface velocity (1: measured, 0: potential flow)."""
+    from core.synth_physical.boundary_layer import thwaites_mangler
+
+    return math.degrees(thwaites_mangler(share).t_sep) - 90.0
+
+
+def share_for(angle_deg: float) -> float:
+    """The measured share whose layer separates at ``angle_deg`` (bisection; monotonic)."""
+    low, high = 0.0, 1.0  # separation falls from +13.6 deg (0) to -8.9 deg (1)
+    for _ in range(24):
+        mid = 0.5 * (low + high)
+        if separation_deg(mid) > angle_deg:
+            low = mid
+        else:
+            high = mid
+    return round(0.5 * (low + high), 4)
 
 
 def seam_side_deg(seam_deg: float) -> float:
@@ -89,43 +114,96 @@ def seam_side_deg(seam_deg: float) -> float:
     return LAMINAR_DEG + delay
 
 
-def demo_shots() -> list[DemoShot]:
+def _launch(rng, index: int, seam: float, ball: str, notes: str) -> DemoShot:
+    """One launch: the model's separation plus launch-to-launch scatter, drawn reproducibly."""
+    shot_id = f"sw{index:02d}"
+    upper = LAMINAR_DEG + abs(rng.normal(0.0, 0.8))
+    lower = float(np.clip(seam_side_deg(seam) + rng.normal(0.0, 1.2), LAMINAR_DEG, 13.0))
+    height, width = FRAME_SHAPE
+    look = {"red 1": ("dark", bool(rng.random() < 0.5)), "red 2": ("dim", False),
+            "white 1": ("bright", True)}[ball]
+    draw = {
+        "radius_px": RADIUS_PX,
+        "ball_diameter_mm": BALL_DIAMETER_MM,
+        "dt_s": DT_S,
+        "air_temp_c": AIR_TEMP_C,
+        "speed_m_s": round(SPEED_NOMINAL_M_S + rng.normal(0.0, 0.5), 2),
+        "flight_deg": round(180.0 + rng.normal(0.0, 0.8), 2),
+        "center_px": (round(0.28 * width + rng.normal(0.0, 10.0), 1),
+                      round(0.5 * (height - 1) + rng.normal(0.0, 18.0), 1)),
+        "measured_share": (share_for(upper), share_for(lower)),
+        "departure_deg": (round(rng.uniform(8.0, 14.0), 1), round(rng.uniform(8.0, 14.0), 1)),
+        "turning_radii": (round(rng.uniform(0.8, 1.3), 2), round(rng.uniform(0.8, 1.3), 2)),
+        "spreading_coefficient": round(rng.uniform(0.16, 0.20), 3),
+        "closure_diameters": round(rng.uniform(1.3, 1.8), 2),
+        "rollup_fraction": round(rng.uniform(0.3, 0.5), 2),
+        "surface": look[0],
+        "glint": look[1],
+        "shadow": shot_id == SHADOW_SHOT,
+        "light_from_deg": round(90.0 + rng.normal(0.0, 2.0), 1),  # the sheet comes from above
+        "sheet_unevenness": 0.4,
+        "bit_depth": BIT_DEPTH,
+        "density_ppp": 0.012 if shot_id == SPARSE_SHOT else round(rng.uniform(0.045, 0.06), 3),
+        "out_of_plane": round(rng.uniform(0.08, 0.15), 3),
+        "spin_rpm": SPIN_RPM,
+        "seed": SEED + index,
+    }
+    return DemoShot(shot_id, seam, ball, notes, draw)
+
+
+@functools.cache
+def demo_shots() -> tuple[DemoShot, ...]:
     """The launches of the demo session, in order."""
     rng = np.random.default_rng(SEED)
     shots = []
-    for repeat in range(REPEATS):
-        for seam in SEAM_ANGLES_DEG:
+    for seam in SEAM_ANGLES_DEG:
+        for repeat in range(REPEATS):
             index = len(shots) + 1
-            shot_id = f"sw{index:02d}"
-            upper = LAMINAR_DEG + rng.normal(0.0, 1.2)
-            lower = seam_side_deg(seam) + rng.normal(0.0, 1.5)
-            speed = SPEED_NOMINAL_M_S + rng.normal(0.0, 0.6)
-            lean = WAKE_LEAN * (lower - upper) + rng.normal(0.0, 0.8)
-            sparse = shot_id == SPARSE_SHOT
-            notes = "new ball, seam toward the lower side" + ("; second launch" if repeat else "")
-            if sparse:
-                notes = "fog ran low before this launch"
-            shots.append(DemoShot(
-                shot_id, seam, round(speed, 2), round(upper, 1), round(lower, 1), round(lean, 1),
-                0.02 if sparse else 0.06, SEED + index, notes,
-            ))
-    return shots
+            ball = "red 1" if index < SECOND_BALL_FROM else "red 2"
+            notes = f"launch {repeat + 1} of {REPEATS}"
+            if f"sw{index:02d}" == SPARSE_SHOT:
+                notes += "; fog ran low before this launch (topped up after)"
+            if f"sw{index:02d}" == SHADOW_SHOT:
+                notes += "; return mirror knocked out of line: no light below the ball"
+            if index == SECOND_BALL_FROM:
+                notes += "; red 1 split its seam after sw12: red 2 (worn, duller) from here"
+            shots.append(_launch(rng, index, seam, ball, notes))
+    for repeat in range(WHITE_BALL_REPEATS):
+        index = len(shots) + 1
+        notes = f"white ball for comparison, launch {repeat + 1} of {WHITE_BALL_REPEATS}"
+        shots.append(_launch(rng, index, WHITE_BALL_SEAM_DEG, "white 1", notes))
+    return tuple(shots)
 
 
-def render(shot: DemoShot) -> tuple[np.ndarray, np.ndarray]:
-    """The frame pair of one launch as 12-bit counts in ``(H, W)`` uint16 arrays."""
-    frame_a, frame_b, _ = ball_shot(
-        FRAME_SHAPE, radius_px=RADIUS_PX, flight_deg=180.0, shift_px=shot.shift_px,
-        upper_deg=shot.upper_deg, lower_deg=shot.lower_deg,
-        wake_deflection_deg=shot.wake_deflection_deg, speed_m_s=shot.speed_m_s,
-        ball_diameter_mm=BALL_DIAMETER_MM, density_ppp=shot.density_ppp, seed=shot.seed,
-        reverse_fraction=0.0, spread_rate=0.0,
-    )
-    return _counts(frame_a), _counts(frame_b)
+def render(shot: DemoShot):
+    """The frame pair of one launch (12-bit counts in ``(H, W)`` uint16 arrays) and its truth."""
+    from core.synth_physical import physical_shot
+
+    frame_a, frame_b, truth = physical_shot(FRAME_SHAPE, **shot.draw)
+    return frame_a.astype(np.uint16), frame_b.astype(np.uint16), truth
 
 
-def _counts(frame: np.ndarray) -> np.ndarray:
-    return np.clip(np.rint(frame), 0, 4095).astype(np.uint16)
+def shot_truth(shot: DemoShot):
+    """The truth of one launch without drawing its images (the same as :func:`render`'s)."""
+    import inspect
+
+    from core.synth_physical import physical_flow
+
+    flow_args = inspect.signature(physical_flow).parameters  # the draw's flow, not its images
+    _, truth = physical_flow(FRAME_SHAPE, **{k: v for k, v in shot.draw.items() if k in flow_args})
+    return truth
+
+
+def shadowed_side(shot: DemoShot) -> str:
+    """The side whose separation lies in the ball's shadow (as ``physical_shot`` decides it)."""
+    from core.geometry import flight_unit, side_normal
+
+    lx, ly = flight_unit(shot.draw["light_from_deg"])  # toward the light; it travels the other way
+    for side in ("upper", "lower"):
+        nx, ny = side_normal(shot.draw["flight_deg"], side)
+        if -(nx * lx + ny * ly) > 0.5:
+            return side
+    return ""
 
 
 def tiff_bytes(frame: np.ndarray) -> bytes:
@@ -144,14 +222,19 @@ def _number(value: float) -> str:
 def manifest_text(shots: list[DemoShot]) -> str:
     rows = [[s.shot_id, _number(DT_S), _number(s.scale_mm_per_px), _number(BALL_DIAMETER_MM),
              "cricket", _number(SPEED_NOMINAL_M_S), _number(SPIN_RPM), _number(s.seam_deg),
-             s.notes] for s in shots]
+             _number(AIR_TEMP_C), s.ball, s.notes] for s in shots]
     return _csv_text(MANIFEST_COLUMNS, rows)
 
 
 def truth_text(shots: list[DemoShot]) -> str:
-    rows = [[s.shot_id, _number(s.upper_deg), _number(s.lower_deg),
-             _number(s.wake_deflection_deg), _number(s.speed_m_s), f"{s.shift_px:.4f}"]
-            for s in shots]
+    rows = []
+    for shot in shots:
+        t = shot_truth(shot)
+        shadow = shadowed_side(shot) if shot.draw["shadow"] else ""
+        rows.append([shot.shot_id, f"{t.upper_deg:.2f}", f"{t.lower_deg:.2f}",
+                     f"{t.wake_deflection_deg:.2f}", f"{t.speed_m_s:.2f}", f"{t.flight_deg:.2f}",
+                     f"{math.hypot(*t.displacement_px):.4f}", f"{t.reynolds_number:.4g}",
+                     shot.draw["surface"], "yes" if shot.draw["glint"] else "", shadow])
     return _csv_text(TRUTH_COLUMNS, rows)
 
 
@@ -160,11 +243,14 @@ def truth_text(shots: list[DemoShot]) -> str:
 # flow leaves the ball (the drawn truth, to the analyst's half-degree); on replay a proposal within
 # the tolerance on both sides is accepted, otherwise the marks are moved there (adjusted). Shots
 # not listed are left to review.
-REVIEWED = ("sw01", "sw02", "sw03", "sw04", "sw05", "sw07", "sw08", "sw10")
-UNUSABLE = {SPARSE_SHOT: "too few particles behind the ball to follow the shear layers"}
+REVIEWED = ("sw01", "sw02", "sw03", "sw04", "sw05", "sw06", "sw07", "sw09", "sw10", "sw12")
+UNUSABLE = {
+    SPARSE_SHOT: "too few particles behind the ball to follow the shear layers",
+    SHADOW_SHOT: "lower side in the ball's laser shadow (return mirror out of line)",
+}
 NOTES = {
-    "sw03": "shear layers clear on both sides; seam side leaves well behind the plane",
-    "sw05": "wake leans upward as expected",
+    "sw07": "shear layers clear on both sides; seam side leaves well behind the plane",
+    "sw10": "wake leans upward as expected",
 }
 REVIEW_COLUMNS = ("shot", "upper_deg", "lower_deg", "unusable_reason", "note")
 
@@ -173,14 +259,17 @@ def _half_degree(value_deg: float) -> str:
     return _number(round(value_deg * 2.0) / 2.0)
 
 
-def reviews_text(shots: list[DemoShot]) -> str:
+def reviews_text(shots: list[DemoShot], truth_csv: str) -> str:
+    truth = {row["shot"]: row for row in csv.DictReader(io.StringIO(truth_csv))}
     rows = []
     for shot in shots:
         if shot.shot_id in UNUSABLE:
             rows.append([shot.shot_id, "", "", UNUSABLE[shot.shot_id], ""])
         elif shot.shot_id in REVIEWED:
-            rows.append([shot.shot_id, _half_degree(shot.upper_deg), _half_degree(shot.lower_deg),
-                         "", NOTES.get(shot.shot_id, "")])
+            t = truth[shot.shot_id]
+            rows.append([shot.shot_id, _half_degree(float(t["upper_true_deg"])),
+                         _half_degree(float(t["lower_true_deg"])), "",
+                         NOTES.get(shot.shot_id, "")])
     return _csv_text(REVIEW_COLUMNS, rows)
 
 
@@ -192,33 +281,183 @@ def _csv_text(header, rows) -> str:
     return buf.getvalue()
 
 
-def write_demo(out_dir: Path, shot_ids: list[str] | None = None) -> list[Path]:
-    """Write the demo inputs (all shots, or only ``shot_ids``) into ``out_dir``; return the paths."""
-    out_dir.mkdir(parents=True, exist_ok=True)
+def write_inputs(out_dir: Path) -> list[Path]:
+    """Write the shipped files (``shots.csv``, ``truth.csv``, ``reviews.csv``) into ``out_dir``."""
     shots = demo_shots()
-    chosen = [s for s in shots if shot_ids is None or s.shot_id in shot_ids]
+    truth = truth_text(shots)
     written = []
-    for name, content in (("shots.csv", manifest_text(chosen)), ("truth.csv", truth_text(chosen)),
-                          ("reviews.csv", reviews_text(chosen))):
+    for name, content in (("shots.csv", manifest_text(shots)), ("truth.csv", truth),
+                          ("reviews.csv", reviews_text(shots, truth))):
         path = out_dir / name
         path.write_text(content, encoding="utf-8", newline="")
         written.append(path)
-    for shot in chosen:
-        for suffix, frame in zip(("a", "b"), render(shot)):
-            path = out_dir / f"{shot.shot_id}_{suffix}.tif"
-            path.write_bytes(tiff_bytes(frame))
-            written.append(path)
     return written
+
+
+def frame_names(shot_id: str) -> tuple[str, str]:
+    return f"{shot_id}_a.tif", f"{shot_id}_b.tif"
+
+
+def write_pair(out_dir: Path, shot_id: str) -> list[Path]:
+    """Draw one shot's frames into ``out_dir``; return their paths.
+
+    Each file is written under a temporary name and renamed, so a stopped run never leaves a
+    partial frame.
+    """
+    shot = next(s for s in demo_shots() if s.shot_id == shot_id)
+    frame_a, frame_b, _ = render(shot)
+    written = []
+    for name, frame in zip(frame_names(shot_id), (frame_a, frame_b)):
+        path = Path(out_dir) / name
+        part = path.with_name(path.name + ".part")
+        part.write_bytes(tiff_bytes(frame))
+        part.replace(path)
+        written.append(path)
+    return written
+
+
+def write_frames(out_dir: Path, shot_ids=None) -> list[Path]:
+    """Draw the frames of all shots (or ``shot_ids``) into ``out_dir``, one after the other
+    (``wakeline demo`` draws them on all cores); return their paths."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    return [path for shot in demo_shots() if shot_ids is None or shot.shot_id in shot_ids
+            for path in write_pair(out_dir, shot.shot_id)]
+
+
+# --- the report: proposals against truth, in README.md --------------------------------------------
+
+
+def report_rows(session_path: Path, truth_csv: Path) -> list[dict]:
+    """Per shot of the processed demo session: truth, proposal, stated uncertainty, failure."""
+    from core.store import ProcessState, Session
+
+    with open(truth_csv, encoding="utf-8", newline="") as fh:
+        truth = {row["shot"]: row for row in csv.DictReader(fh)}
+    rows = []
+    with Session.open(session_path, writable=False) as session:
+        for shot_id in session:
+            record = session[shot_id]
+            row = {"shot": shot_id, "seam_deg": record.metadata.get("seam_deg"),
+                   "look": _look(truth.get(shot_id, {})),
+                   "failure": record.failure if record.state == ProcessState.FAILED else ""}
+            for side in ("upper", "lower"):
+                row[f"{side}_true"] = float(truth[shot_id][f"{side}_true_deg"])
+                row[f"{side}_proposed"] = record.proposed_deg(side)
+                row[f"{side}_uncertainty"] = record.uncertainty_deg(side)
+                row[f"{side}_reason"] = record.summary.side(side).reason if record.summary else ""
+            rows.append(row)
+    return rows
+
+
+def _look(truth_row: dict) -> str:
+    look = truth_row.get("surface", "")
+    if truth_row.get("glint"):
+        look += ", glint"
+    if truth_row.get("shadow_side"):
+        look += f", {truth_row['shadow_side']} side shadowed"
+    return look
+
+
+def report_markdown(rows: list[dict], how: str) -> str:
+    """The proposals-against-truth table and its tally, as Markdown."""
+    lines = [README_START, "", how, "",
+             "| shot | seam | ball look | upper: truth | proposed | lower: truth | proposed |",
+             "|---|---|---|---|---|---|---|"]
+    sides = within = 0
+    errors = []
+    failed: dict[str, list[str]] = {}  # failure -> shots
+    for row in rows:
+        cells = [row["shot"], f"{float(row['seam_deg']):g}" if row["seam_deg"] is not None
+                 else "", row["look"]]
+        for side in ("upper", "lower"):
+            cells.append(f"{row[f'{side}_true']:+.1f}")
+            cells.append(_proposal_cell(row, side))
+            if row[f"{side}_proposed"] is not None:
+                sides += 1
+                error = abs(row[f"{side}_proposed"] - row[f"{side}_true"])
+                errors.append(error)
+                within += error <= (row[f"{side}_uncertainty"] or 0.0)
+        if row["failure"]:
+            failed.setdefault(row["failure"], []).append(row["shot"])
+        lines.append("| " + " | ".join(cells) + " |")
+    total = 2 * len(rows)
+    lines += ["", f"Proposals on {sides} of {total} sides; {within} of them within their stated "
+              "uncertainty of the truth" + (f"; median distance {np.median(errors):.1f} deg, "
+                                            f"largest {max(errors):.1f} deg." if errors else ".")]
+    if failed:
+        count = sum(len(shots) for shots in failed.values())
+        lines += ["", f"Not measured ({count} shots):", ""]
+        lines += [f"- {', '.join(shots)}: {failure}" for failure, shots in failed.items()]
+    lines += ["", README_END]
+    return "\n".join(lines)
+
+
+def _proposal_cell(row: dict, side: str) -> str:
+    proposed = row[f"{side}_proposed"]
+    if proposed is None:
+        return "failed" if row["failure"] else f"none ({row[f'{side}_reason'] or 'no reason'})"
+    mark = "" if abs(proposed - row[f"{side}_true"]) <= (row[f"{side}_uncertainty"] or 0) else " *"
+    return f"{proposed:+.1f} ± {row[f'{side}_uncertainty'] or 0:.1f}{mark}"
+
+
+def write_report(readme: Path, table: str) -> None:
+    text = readme.read_text(encoding="utf-8")
+    pattern = re.compile(re.escape(README_START) + ".*?" + re.escape(README_END), re.DOTALL)
+    if not pattern.search(text):
+        raise SystemExit(f"{readme}: no table markers ({README_START} ... {README_END})")
+    readme.write_text(pattern.sub(lambda _: table, text), encoding="utf-8")
+
+
+def _code_version() -> str:
+    import subprocess
+
+    try:
+        commit = subprocess.run(["git", "-C", str(HERE), "log", "-1", "--format=%h %cs"],
+                                capture_output=True, text=True, check=True).stdout.strip()
+        dirty = subprocess.run(["git", "-C", str(HERE.parent), "status", "--porcelain", "--",
+                                "core", "app"], capture_output=True, text=True,
+                               check=True).stdout.strip()
+    except (OSError, subprocess.CalledProcessError):
+        return "an unknown version"
+    return f"commit {commit}" + (" with local changes" if dirty else "")
+
+
+def run_report(demo_dir: Path | None) -> int:
+    """Process the demo (or read an already processed one) and rewrite README.md's table."""
+    import tempfile
+
+    from app.cli import main as wakeline
+    from app.cli.demo import DEMO_SESSION
+
+    with tempfile.TemporaryDirectory(prefix="wakeline-demo-report-") as tmp:
+        folder = Path(demo_dir) if demo_dir is not None else Path(tmp)
+        if demo_dir is None and wakeline(["demo", "--out", str(folder), "--no-window"]) != 0:
+            return 1
+        rows = report_rows(folder / DEMO_SESSION, HERE / "truth.csv")
+    how = (f"Measured by `make_demo.py --report` with the code of {_code_version()}: each "
+           "proposal (deg, + rearward) with its stated uncertainty; * marks one farther from "
+           "the truth than that.")
+    write_report(HERE / "README.md", report_markdown(rows, how))
+    print(f"{HERE / 'README.md'}: table of {len(rows)} shots written")
+    return 0
 
 
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("out_dir", nargs="?", type=Path, default=HERE)
-    parser.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
+    parser.add_argument("--frames", type=Path, metavar="DIR", help="draw the frames into DIR")
+    parser.add_argument("--shots", nargs="+", metavar="ID", help="only these shots' frames")
+    parser.add_argument("--report", nargs="?", const="", default=None,
+                        metavar="DEMO_DIR", help="process the demo (or read the one processed "
+                        "in DEMO_DIR) and rewrite the table in README.md")
     args = parser.parse_args(argv)
-    written = write_demo(args.out_dir, args.shots)
+    if args.report is not None:
+        return run_report(Path(args.report) if args.report else None)
+    if args.frames is not None:
+        written = write_frames(args.frames, args.shots)
+    else:
+        written = write_inputs(HERE)
     total = sum(p.stat().st_size for p in written)
-    print(f"{args.out_dir}: wrote {len(written)} files, {total / 1e6:.1f} MB")
+    print(f"wrote {len(written)} files, {total / 1e6:.1f} MB")
     return 0
 
 

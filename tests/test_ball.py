@@ -312,11 +312,13 @@ def test_warnings_for_radius_scale_frames_and_poor_fits():
 
 
 def test_stored_records_without_uncertainties_still_load():
-    from core.shot import _ball_from, _flight_from
+    from core.summary import ShotSummary
 
-    old = _ball_from({"center_px": [1.0, 2.0], "radius_px": 3.0, "residual_px": 0.1,
-                      "cut_by_edge": False})
+    stored = ShotSummary.from_dict({
+        "ball": {"frame_a": {"center_px": [1.0, 2.0], "radius_px": 3.0, "residual_px": 0.1,
+                             "cut_by_edge": False}},
+        "flight": {"direction_deg": 180.0, "speed_m_s": 30.0, "displacement_px": [-8.0, 0.0]},
+    })
+    old, flight = stored.ball_a, stored.flight
     assert math.isnan(old.radius_sigma_px) and old.covariance_px2 is None
-    flight = _flight_from({"direction_deg": 180.0, "speed_m_s": 30.0,
-                           "displacement_px": [-8.0, 0.0]})
     assert flight.direction_sigma_deg is None and flight.source == "ball displacement"

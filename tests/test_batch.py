@@ -165,3 +165,40 @@ def test_ctrl_c_stops_the_command_and_keeps_finished_shots(tmp_path):
         done = [r.shot_id for r in s.values() if r.state == "processed"]
         assert 0 < len(done) < 40 and not s.check_frames()
     assert not journal.exists()  # the stopped run closed the session cleanly
+
+
+def test_a_session_background_is_taken_from_the_frames_and_subtracted(session_path, monkeypatch):
+    # a fixed reflection (a constant offset here) is in every frame of the camera position:
+    # the per-pixel minimum over the shots keeps it and nothing of the particles (common
+    # practice: background removal), and the shifts are measured as before (uniform flow)
+    import core.shot
+
+    seen = []
+    measure = core.shot.measure_shot
+
+    def spy(frame_a, frame_b, settings, progress=None, background=None):
+        seen.append(None if background is None else float(np.median(background)))
+        return measure(frame_a, frame_b, settings, progress, background=background)
+
+    monkeypatch.setattr(core.shot, "measure_shot", spy)
+    with Session.open(session_path) as s:
+        settings = fast_settings()
+        settings["background"] = "min"
+        s.set_processing_settings(settings)
+        report = process_shots(s, workers=0)
+        assert len(report.processed) == 4
+        frames = [f for shot_id in s for f in read_frames(shot_id, s.frame_source(shot_id))]
+        floor = float(np.median(np.min(frames, axis=0)))
+        assert seen == [pytest.approx(floor)] * 4
+        for i, shot_id in enumerate(sorted(s)):
+            dx, dy = _median_shift(s.load_result(shot_id))
+            assert (dx, dy) == pytest.approx(shift_of(i), abs=0.1)
+
+
+def test_a_session_with_nothing_to_process_runs_no_workers(session_path):
+    # every shot up to date: the run starts no pool (it used to fail with "max_workers must be
+    # greater than 0") and reports nothing to do
+    with Session.open(session_path) as s:
+        process_shots(s, workers=0)
+        report = process_shots(s, workers=2)
+    assert report.total == 0 and not report.failed and not report.interrupted

@@ -43,7 +43,7 @@ def test_a_shot_that_kills_its_worker_twice_fails_naming_memory(tmp_path):
                                                    work=pool_work.killed_always)}
     assert sorted(outcomes) == ["S0", "S1", "S2", "S3"]
     assert all(outcomes[s][1] is not None for s in ("S0", "S2", "S3"))
-    shot, result, message = outcomes["S1"]
+    _shot, result, message = outcomes["S1"]
     assert result is None and "out of memory" in message and "4096 x 4096" in message
     assert "\n" not in message
 

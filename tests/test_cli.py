@@ -80,6 +80,30 @@ def test_pair_no_ball_writes_vectors_and_json(tmp_path):
     assert record["separation"]["upper_deg"] is None and record["ball"] is None
 
 
+def test_pair_conditioning_options(tmp_path):
+    """A background image subtracted, glare mask and normalisation off: the same uniform shift
+    (closed form: uniform flow); a background of another size is one line, exit 1."""
+    from core.images import write_frame
+    from core.synth import particle_pair, uniform
+
+    a, b = particle_pair((128, 128), uniform(2.0, 1.0), seed=4)
+    write_frame(tmp_path / "a.tif", a)
+    write_frame(tmp_path / "b.tif", b)
+    write_frame(tmp_path / "bg.tif", np.full((128, 128), 20.0))
+    done = wakeline("pair", tmp_path / "a.tif", tmp_path / "b.tif", "--no-ball",
+                    "--background", tmp_path / "bg.tif", "--no-glare-mask", "--normalise", "0",
+                    "--air-temp", "5", "--json", tmp_path / "r.json")
+    assert done.returncode == 0, done.stderr
+    record = json.loads((tmp_path / "r.json").read_text())
+    assert record["settings"]["mask_glare"] is False
+    assert record["settings"]["normalise_spacings"] is None
+    assert record["settings"]["air_temp_c"] == 5.0
+    write_frame(tmp_path / "small.tif", np.zeros((64, 64)))
+    done = wakeline("pair", tmp_path / "a.tif", tmp_path / "b.tif", "--no-ball",
+                    "--background", tmp_path / "small.tif")
+    assert done.returncode == 1 and "small.tif" in done.stderr and "background" in done.stderr
+
+
 def test_window_without_display_is_one_line_exit_1():
     env = {k: v for k, v in os.environ.items() if k not in ("DISPLAY", "WAYLAND_DISPLAY")}
     env.update(QT_QPA_PLATFORM="offscreen", WAKELINE_HOME=tempfile.mkdtemp())

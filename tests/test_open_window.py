@@ -39,8 +39,8 @@ def test_a_missing_session_file_is_one_line_exit_1(tmp_path):
     done = _run_cli(f"import sys; from app.cli import main; "
                     f"sys.exit(main([{str(tmp_path / 'gone.h5')!r}]))")
     assert done.returncode == 1, done.stderr
-    assert done.stderr.strip().splitlines() == [f"wakeline: {tmp_path / 'gone.h5'}: session "
-                                                "file not found"]
+    assert done.stderr.strip().splitlines() == [(f"wakeline: {tmp_path / 'gone.h5'}: session "
+                                                "file not found")]
 
 
 def test_missing_qt_platform_libraries_name_the_debian_packages(tmp_path):

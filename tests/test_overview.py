@@ -74,8 +74,8 @@ def test_numeric_columns_prefer_seam_and_add_pseudo_columns(records):
 
 
 def test_panel_draws_and_switches_column(qtbot, records, tmp_path):
-    from app.review import colours
     from app.qt.overview import SessionOverview
+    from app.review import colours
     from app.review.overview import SHOT_ORDER
 
     panel = SessionOverview()

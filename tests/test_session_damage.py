@@ -129,7 +129,7 @@ def test_stored_arrays_and_texts_carry_checksums(session_path, tmp_path):
     for path in (session_path, tmp_path / "e.h5", old):
         with h5py.File(path, "r") as f:
             datasets = []
-            f.visititems(lambda name, obj: datasets.append(obj)
+            f.visititems(lambda name, obj, found=datasets: found.append(obj)
                          if isinstance(obj, h5py.Dataset) else None)
             arrays = [d for d in datasets if d.dtype.kind != "O"]
             texts = [d for d in datasets if d.dtype.kind == "O"]
@@ -316,8 +316,9 @@ def test_damaged_embedded_frames_are_left_out_and_the_rest_saved(tmp_path):
 
 
 def test_the_process_command_names_the_damaged_shot_and_what_to_do(session_path, capsys):
-    from app.cli import main
     from data.session_helpers import fast_settings
+
+    from app.cli import main
 
     with Session.open(session_path) as s:
         s.set_processing_settings(fast_settings())

@@ -90,6 +90,9 @@ def open_window(session: str | None = None) -> int:
             "no display to open the window on (DISPLAY is not set); the headless commands "
             "are listed by 'wakeline --help'"
         )
+    missing = display.missing_window_libraries()
+    if missing:
+        raise WakelineError(display.missing_libraries_message(missing))
     from app.qt.window import run_window
 
     return run_window(session)

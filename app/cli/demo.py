@@ -1,9 +1,11 @@
-"""`wakeline demo`: the bundled demo session, processed and reviewed, in the window or on paper."""
+"""`wakeline demo`: the bundled demo session, drawn, processed and reviewed, in the window or on
+paper."""
 
 from __future__ import annotations
 
 import argparse
 import csv
+import importlib.util
 import shutil
 import sys
 from pathlib import Path
@@ -17,8 +19,10 @@ DEMO_SESSION = "demo_session.h5"
 DEMO_SHEET = "demo_sheet.pdf"
 DEMO_TABLE = "demo_table.csv"
 DEMO_REVIEWER = "demo analyst (invented)"
-DEMO_NAME = "Seam-angle sweep, new cricket ball at 30 m/s (invented demo)"
+DEMO_NAME = "Seam-angle sweep at 30 m/s (invented demo)"
 DEMO_INPUTS = ("shots.csv", "truth.csv", "reviews.csv", "README.md")
+RECIPE = "make_demo.py"  # draws the frames (too large to ship)
+DRAW_PEAK_BYTES = 0.3e9  # memory to draw one shot (235 MB peak measured for a 1280 x 1024 pair)
 
 
 def add_commands(subparsers) -> None:
@@ -28,11 +32,12 @@ def add_commands(subparsers) -> None:
 def _add_demo(subparsers) -> None:
     p = subparsers.add_parser(
         "demo",
-        help="process the bundled demo session and open it",
-        description="Copy the bundled demo shots (an invented seam-angle sweep of a cricket "
-        "ball, see sample_runs/README.md) to a folder of yours, import and process them, replay "
-        "the invented analyst's review decisions, then open the review window. With no display "
-        "(or --no-window) write the shot sheet PDF and the CSV table next to the session instead.",
+        help="draw and process the bundled demo session and open it",
+        description="Draw the bundled demo shots (an invented seam-angle sweep of a cricket "
+        "ball, see sample_runs/README.md) into a folder of yours (the first time only), import "
+        "and process them, replay the invented analyst's review decisions, then open the review "
+        "window. With no display (or --no-window) write the shot sheet PDF and the CSV table "
+        "next to the session instead.",
     )
     p.add_argument("--out", type=Path, metavar="DIR",
                    help="where the demo session goes (default: ~/.local/share/wakeline/demo)")
@@ -41,8 +46,8 @@ def _add_demo(subparsers) -> None:
     p.add_argument("--fresh", action="store_true",
                    help="start again from the bundled shots, discarding the demo session's edits")
     p.add_argument("--workers", type=whole_count, metavar="N",
-                   help="worker processes (default: one per core, as many as free "
-                   "memory holds; 0 = in this process)")
+                   help="worker processes for drawing and processing (default: one per core, "
+                   "as many as free memory holds; 0 = in this process)")
     p.set_defaults(func=run_demo)
 
 
@@ -62,20 +67,40 @@ def demo_dir(out: Path | None) -> Path:
 
 def run_demo(args: argparse.Namespace) -> int:
     folder = demo_dir(args.out)
-    session_path = prepare_demo(folder, fresh=args.fresh)
+    session_path = prepare_demo(folder, fresh=args.fresh, workers=args.workers)
     process_demo(session_path, workers=args.workers)
-    if args.no_window or not display.has_display():
-        if not args.no_window:
-            print("no display found: writing the shot sheet and the table instead of opening "
-                  "the window")
+    if args.no_window:
+        return write_demo_outputs(session_path)
+    if not display.has_display():
+        print("no display found: writing the shot sheet and the table instead of opening "
+              "the window")
+        return write_demo_outputs(session_path)
+    missing = display.missing_window_libraries()
+    if missing:
+        print(f"wakeline: {display.missing_libraries_message(missing)}; writing the shot sheet "
+              "and the table instead of opening the window", file=sys.stderr)
         return write_demo_outputs(session_path)
     from app.qt.window import run_window
 
     return run_window(session_path)
 
 
-def prepare_demo(folder: Path, fresh: bool = False) -> Path:
-    """Copy the bundled shots into ``folder/frames`` and import them (unless already there).
+def load_recipe():
+    """The demo's recipe, ``sample_runs/make_demo.py``, as a module."""
+    name = "wakeline_demo_recipe"
+    if name not in sys.modules:
+        path = SAMPLE_RUNS / RECIPE
+        if not path.is_file():
+            raise WakelineError(f"{path}: the demo's recipe is missing")
+        spec = importlib.util.spec_from_file_location(name, path)
+        module = importlib.util.module_from_spec(spec)
+        sys.modules[name] = module  # dataclasses and worker processes look it up by name
+        spec.loader.exec_module(module)
+    return sys.modules[name]
+
+
+def prepare_demo(folder: Path, fresh: bool = False, workers: int | None = None) -> Path:
+    """Draw the demo's frames into ``folder/frames`` and import them (unless already done).
 
     Returns the session path. With ``fresh`` an earlier demo session in ``folder`` is removed
     first (only the files this command makes).
@@ -89,18 +114,93 @@ def prepare_demo(folder: Path, fresh: bool = False) -> Path:
         _remove_demo_session(session_path)
     if session_path.exists():
         print(f"{session_path}: using the existing demo session (--fresh starts again)")
+        _tell_if_outdated(session_path)
         return session_path
     frames = folder / "frames"
     frames.mkdir(parents=True, exist_ok=True)
-    for src in [SAMPLE_RUNS / n for n in DEMO_INPUTS] + sorted(SAMPLE_RUNS.glob("*.tif")):
-        if src.is_file():
-            shutil.copyfile(src, frames / src.name)
+    for name in DEMO_INPUTS:
+        if (SAMPLE_RUNS / name).is_file():
+            shutil.copyfile(SAMPLE_RUNS / name, frames / name)
+    draw_frames(frames, workers)
     Session.create(session_path, name=DEMO_NAME).close()
     report = import_folder(frames, session_path, ball_types=known_ball_types())
     if report.problems:
         raise WakelineError(f"{frames}: demo import failed: {report.problems[0]}")
     print(f"{session_path}: imported {len(report.imported)} demo shot(s)")
     return session_path
+
+
+def draw_frames(frames: Path, workers: int | None = None) -> None:
+    """Draw the frames of the shots in ``frames/shots.csv`` (the same bytes every time), on
+    ``workers`` processes (None: one per core; 0: in this process)."""
+    import multiprocessing
+    import os
+    from concurrent.futures import ProcessPoolExecutor
+
+    from tqdm import tqdm
+
+    with open(frames / "shots.csv", encoding="utf-8", newline="") as fh:
+        shot_ids = [row["shot"] for row in csv.DictReader(fh)]
+    recipe = load_recipe()
+    if workers is None:  # one per core, as many as free memory holds
+        from core.batch import available_memory_bytes
+
+        free = available_memory_bytes()
+        room = len(shot_ids) if free is None else int(free // DRAW_PEAK_BYTES)
+        workers = max(1, min(len(shot_ids), os.cpu_count() or 1, room))
+    with tqdm(total=len(shot_ids), unit="shot", desc="drawing the demo frames", file=sys.stderr,
+              dynamic_ncols=True) as bar:
+        if workers <= 1:
+            for shot_id in shot_ids:
+                recipe.write_pair(frames, shot_id)
+                bar.update(1)
+            return
+        # not fork: a forked child may inherit a lock held by another thread (tqdm's monitor)
+        methods = multiprocessing.get_all_start_methods()
+        context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+        with ProcessPoolExecutor(workers, mp_context=context, initializer=_end_with,
+                                 initargs=(os.getpid(),)) as pool:
+            for _ in pool.map(_write_pair, [frames] * len(shot_ids), shot_ids):
+                bar.update(1)
+
+
+def _end_with(parent_pid: int) -> None:
+    """In a worker process: end as soon as the demo command is gone, however it ended (a
+    killed parent leaves a pool's workers waiting for work that never comes)."""
+    import os
+    import threading
+    import time
+
+    if os.name != "posix":  # (signal 0 is a test on POSIX only)
+        return
+
+    def watch() -> None:
+        while True:
+            time.sleep(0.5)
+            try:
+                os.kill(parent_pid, 0)
+            except ProcessLookupError:
+                os._exit(1)
+
+    threading.Thread(target=watch, daemon=True).start()
+
+
+def _write_pair(frames: Path, shot_id: str) -> None:
+    """In a worker process: draw one shot's frames."""
+    load_recipe().write_pair(frames, shot_id)
+
+
+def _tell_if_outdated(session_path: Path) -> None:
+    """Say so when the session holds another set of shots than the bundled demo (an older one)."""
+    from core.store import Session
+
+    with open(SAMPLE_RUNS / "shots.csv", encoding="utf-8", newline="") as fh:
+        bundled = {row["shot"] for row in csv.DictReader(fh)}
+    with Session.open(session_path, writable=False) as session:
+        held = set(session)
+    if held != bundled:
+        print(f"{session_path}: this demo session is not the bundled demo's (an older one?); "
+              "--fresh replaces it")
 
 
 def _remove_demo_session(session_path: Path) -> None:
@@ -115,28 +215,34 @@ def _remove_demo_session(session_path: Path) -> None:
 
 def process_demo(session_path: Path, workers: int | None = None) -> None:
     """Process the shots not yet processed, then replay the invented reviews on untouched shots."""
-    from core.batch import process_shots
+    from app.cli.session import _progress_bar, _show
+    from core.batch import plan_shots, process_shots
     from core.store import Session
 
     with Session.open(session_path) as session:
-
-        def show(outcome) -> None:
-            state = "ok" if outcome.ok else f"failed: {outcome.message}"
-            print(f"  {outcome.shot_id} {state} ({outcome.done}/{outcome.total})", file=sys.stderr)
-
-        report = process_shots(session, workers=workers, on_result=show)
-        if report.interrupted:
-            raise WakelineError(f"{session_path}: processing stopped; run the demo again")
+        todo, _ = plan_shots(session)
+        done = "every shot already processed"
+        if todo:  # (given no shot, the batch would still start its workers, and fail)
+            bar = _progress_bar(len(todo), quiet=False)
+            try:
+                report = process_shots(session, todo, workers=workers,
+                                       on_result=lambda outcome: _show(bar, outcome))
+            finally:
+                bar.close()
+            if report.interrupted:
+                raise WakelineError(f"{session_path}: processing stopped; run the demo again")
+            done = f"processed {len(report.processed)} shot(s)" + (
+                f", {len(report.failed)} failed (see above)" if report.failed else "")
         applied = replay_reviews(session, session_path.parent / "frames" / "reviews.csv")
-    print(f"{session_path}: processed {len(report.processed)} shot(s)"
-          + (f", {len(report.failed)} failed" if report.failed else "")
+    print(f"{session_path}: {done}"
           + (f"; replayed {applied} review decision(s)" if applied else ""))
 
 
 def replay_reviews(session, reviews_csv: Path) -> int:
-    """Replay the invented analyst's review on processed shots nobody has touched yet.
+    """Replay the invented analyst's review on shots nobody has touched yet.
 
-    Each row gives the analyst's marks (deg) or a reason the shot is unusable. A proposal within
+    Each row gives the analyst's marks (deg) or a reason the shot is unusable (applied whether
+    or not the shot could be processed; marks only to processed shots). A proposal within
     ``ACCEPT_TOLERANCE_DEG`` of the marks on both sides is accepted; otherwise the sides that are
     off are moved to the marks (adjusted). Returns the number of shots reviewed.
     """
@@ -151,12 +257,12 @@ def replay_reviews(session, reviews_csv: Path) -> int:
             if shot_id not in session or session.history(shot_id):
                 continue
             record = session[shot_id]
-            if record.state != ProcessState.PROCESSED:
-                continue
             note = row.get("note") or None
-            if row.get("unusable_reason"):
+            if row.get("unusable_reason"):  # the analyst's judgement of the pictures
                 session.set_pick(shot_id, status=ReviewStatus.UNUSABLE,
                                  reason=row["unusable_reason"], note=note, who=DEMO_REVIEWER)
+            elif record.state != ProcessState.PROCESSED:
+                continue
             else:
                 moved = _moved_sides(record, row)
                 status = ReviewStatus.ADJUSTED if moved else ReviewStatus.ACCEPTED

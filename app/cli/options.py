@@ -38,8 +38,8 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
     WakelineError
         "OUT: is ...; choose another output file", or "OUT: is a folder; ...".
     """
-    from core.store.files import same_place
     from core.store.companions import refuse_session_file
+    from core.store.files import same_place
 
     seen: list[Path] = []
     for out in (Path(o) for o in outputs if o is not None):

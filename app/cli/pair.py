@@ -33,6 +33,16 @@ def add_commands(subparsers) -> None:
     p.add_argument("--no-ball", action="store_true", help="no ball in the picture: PIV only")
     p.add_argument("--flight-deg", type=float, metavar="D",
                    help="flight direction override, deg (0 = +x, 90 = toward the top)")
+    p.add_argument("--air-temp", type=float, metavar="C",
+                   help="air temperature for the Reynolds number, deg C (default 20)")
+    p.add_argument("--no-glare-mask", action="store_true",
+                   help="correlate saturated glare too (by default it is left out)")
+    p.add_argument("--normalise", type=float, metavar="SPACINGS", default=3.0,
+                   help="local intensity normalisation window in particle spacings (0: off; "
+                        "default 3)")
+    p.add_argument("--background", type=Path, metavar="FRAME",
+                   help="background image of this camera position to subtract (e.g. a "
+                        "session's per-pixel minimum)")
     p.add_argument("--json", type=Path, metavar="OUT", help="write the result record as JSON")
     p.add_argument("--vectors", type=Path, metavar="OUT.csv",
                    help="write vectors as CSV: x_px,y_px,dx_px,dy_px,valid")
@@ -40,14 +50,24 @@ def add_commands(subparsers) -> None:
 
 
 def run_pair(args: argparse.Namespace) -> int:
-    from core.images import read_frame_pair
+    from core.images import read_frame, read_frame_pair
     from core.shot import ShotSettings, measure_shot
 
     _check_positive(args.dt, "--dt")
     _check_positive(args.scale, "--scale")
     _check_positive(args.ball_diameter, "--ball-diameter")
-    check_outputs([args.json, args.vectors], inputs=[p for p in (args.frame_a, args.frame_b) if p])
+    if args.normalise < 0:
+        raise WakelineError(f"--normalise: must be 0 (off) or positive, got {args.normalise}")
+    inputs = [p for p in (args.frame_a, args.frame_b, args.background) if p]
+    check_outputs([args.json, args.vectors], inputs=inputs)
     frame_a, frame_b = read_frame_pair(args.frame_a, args.frame_b)
+    background = None
+    if args.background:
+        background = read_frame(args.background)
+        if background.shape != frame_a.shape:
+            raise WakelineError(f"{args.background}: background is {background.shape[1]} x "
+                                f"{background.shape[0]} px, the frames "
+                                f"{frame_a.shape[1]} x {frame_a.shape[0]} px")
     settings = ShotSettings(
         dt_s=args.dt,
         scale_mm_per_px=args.scale,
@@ -55,8 +75,11 @@ def run_pair(args: argparse.Namespace) -> int:
         ball_type=args.ball_type,
         find_ball=not args.no_ball,
         flight_deg=args.flight_deg,
+        air_temp_c=args.air_temp,
+        mask_glare=not args.no_glare_mask,
+        normalise_spacings=args.normalise or None,
     )
-    result = measure_shot(frame_a, frame_b, settings)
+    result = measure_shot(frame_a, frame_b, settings, background=background)
     summary = result.summary()
     if args.json:
         _write_text(args.json, json.dumps(summary, indent=2) + "\n")

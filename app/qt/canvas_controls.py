@@ -14,7 +14,6 @@ from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QCheckBox, QComboBox, QDoubleSpinBox, QMenu, QSpinBox, QToolButton
 
 
-
 class PictureMode(StrEnum):
     """What lies under the overlays; the values are the menu's words (kept in the settings)."""
 

@@ -12,6 +12,7 @@ import os
 
 from PySide6.QtWidgets import (
     QCheckBox,
+    QComboBox,
     QDialog,
     QDialogButtonBox,
     QDoubleSpinBox,
@@ -61,6 +62,11 @@ def parse_passes(text: str, overlap: float) -> tuple[PivPass, ...]:
     return tuple(passes)
 
 
+#: Background choices: the words shown and the stored setting.
+BACKGROUNDS = (("none", None), ("per-pixel minimum of the session's frames", "min"),
+               ("per-pixel median of the session's frames", "median"))
+
+
 class ProcessingDialog(QDialog):
     """Edit ``settings`` (a session's processing settings dict) and ``workers`` (None: all
     cores). ``locked``: why the session's settings cannot change (no session, read-only), or
@@ -94,6 +100,20 @@ class ProcessingDialog(QDialog):
                                "across the window are deformed pixel by pixel; 0: all of them")
         self.find_ball = QCheckBox("find the ball in each frame and mask it", self)
         self.find_ball.setChecked(current.find_ball)
+        self.glare = QCheckBox("leave saturated glare out of the correlation", self)
+        self.glare.setChecked(current.mask_glare)
+        self.normalise = self._number(current.normalise_spacings or 0.0, 0.0, 20.0, 1, 0.5,
+                                      " spacings")
+        self.normalise.setSpecialValueText("off")
+        self.background = QComboBox(self)
+        for text, value in BACKGROUNDS:
+            self.background.addItem(text, value)
+        self.background.setCurrentIndex(
+            max(0, self.background.findData(current.background)))
+        self.background.setToolTip("subtract a background taken from the session's frames at "
+                                   "the same camera position (the manifest's camera column)")
+        self.normalise.setToolTip("local intensity normalisation window, in mean particle "
+                                  "spacings (skipped on sparse seeding); off: none")
         self.flight = QLineEdit("" if current.flight_deg is None else f"{current.flight_deg:g}",
                                 self)
         self.flight.setPlaceholderText("from the ball's displacement")
@@ -112,6 +132,9 @@ class ProcessingDialog(QDialog):
         form.addRow("Largest masked share of a window", self.masked)
         form.addRow("Deform pixel by pixel above", self.deform)
         form.addRow("Ball", self.find_ball)
+        form.addRow("Glare", self.glare)
+        form.addRow("Local normalisation", self.normalise)
+        form.addRow("Background", self.background)
         form.addRow("Flight direction (deg)", self.flight)
         form.addRow("Processes on this computer", self.workers)
         self.problem = QLabel("", self)
@@ -131,7 +154,8 @@ class ProcessingDialog(QDialog):
         layout.addWidget(buttons)
         if locked:
             for widget in (self.passes, self.overlap, self.threshold, self.eps, self.masked,
-                           self.deform, self.find_ball, self.flight):
+                           self.deform, self.find_ball, self.glare, self.normalise,
+                           self.background, self.flight):
                 widget.setEnabled(False)
             note.setText(f"{locked}: only the number of processes can change.")
 
@@ -170,7 +194,10 @@ class ProcessingDialog(QDialog):
             raise WakelineError(f"flight direction: '{flight}' is not a number of degrees") \
                 from None
         result = dict(self._base)
-        result.update(piv=piv.to_dict(), find_ball=self.find_ball.isChecked())
+        result.update(piv=piv.to_dict(), find_ball=self.find_ball.isChecked(),
+                      mask_glare=self.glare.isChecked(),
+                      normalise_spacings=self.normalise.value() or None,
+                      background=self.background.currentData())
         if flight_deg is None:
             result.pop("flight_deg", None)
         else:

@@ -53,8 +53,8 @@ from app.review.model import ProcessState, ReviewStatus, SessionModel
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
 #: the columns every session has; measured values and metadata columns follow
-FIXED = (("", "state", "processing state: cracked outline = failed, dashed outline = not "
-          "processed yet"), ("Shot", "shot", "shot id"), ("Status", "status", "review status"))
+FIXED = (("", "state", ("processing state: cracked outline = failed, dashed outline = not "
+          "processed yet")), ("Shot", "shot", "shot id"), ("Status", "status", "review status"))
 COL_STATE, COL_SHOT, COL_STATUS = range(len(FIXED))
 DEFAULT_COLUMNS = ("upper_deg", "lower_deg", "seam_deg")
 _WIDTHS = {COL_STATE: 22, COL_SHOT: 56, COL_STATUS: 92}

@@ -39,8 +39,8 @@ from PySide6.QtWidgets import (
 
 from app.qt.canvas import ShotCanvas
 from app.qt.export import install_export_actions, install_overview
-from app.qt.picture_export import install_picture_actions
 from app.qt.icons import app_icon, status_icon
+from app.qt.picture_export import install_picture_actions
 from app.qt.platform_libs import platform_problem
 from app.qt.readout import ReadoutPanel
 from app.qt.shot_list import ShotListPanel

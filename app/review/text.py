@@ -10,9 +10,10 @@ from __future__ import annotations
 
 import math
 
-from core.results import Flight, SeparationResult, SideProposal, wake_state
+from core.results import Flight, SeparationResult, SideProposal
 from core.store import ShotRecord
 from core.summary import ShotSummary, VectorCounts
+from core.wake import wake_state
 
 MISSING = "—"
 BALL_DISPLACEMENT = "ball displacement"  # the usual source of the flight direction

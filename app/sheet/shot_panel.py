@@ -12,12 +12,13 @@ from PySide6 import QtCore, QtGui
 
 from app.review import colours
 from app.review.marks import fitted_layer_lines, moved_from_proposal
+from app.review.scales import round_length
 from app.review.text import (
     MISSING,
     SHEET_DECIMALS,
     flight_text,
-    reynolds_text,
     reviewed_wake_text,
+    reynolds_text,
     vectors_text,
 )
 from app.sheet.content import (
@@ -29,7 +30,6 @@ from app.sheet.content import (
     side_detail,
     timing_text,
 )
-from app.review.scales import round_length
 from app.sheet.kit import PANEL_GAP_MM, draw_arrow, mm, pen, qcolor, rect_mm, text
 from core.geometry import flight_unit, mid_circle, point_at_angle, side_normal
 from core.store import ReviewStatus

@@ -6,7 +6,6 @@ import contextlib
 import errno
 import hashlib
 import json
-import math
 import os
 import shutil
 import stat
@@ -15,7 +14,7 @@ from contextlib import contextmanager
 from datetime import UTC, datetime
 from pathlib import Path
 
-import numpy as np
+from core.results import json_ready
 
 
 def now_utc() -> str:
@@ -133,21 +132,6 @@ def reserve_space(path: Path, size: int) -> None:
             raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(path)) from None
     finally:
         os.close(fd)
-
-
-def json_ready(value):
-    """Replace non-finite floats by None and tuples by lists so ``json.dumps`` is strict."""
-    if isinstance(value, dict):
-        return {str(k): json_ready(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [json_ready(v) for v in value]
-    if isinstance(value, (bool, np.bool_)):
-        return bool(value)
-    if isinstance(value, (int, np.integer)):
-        return int(value)
-    if isinstance(value, (float, np.floating)):
-        return float(value) if math.isfinite(value) else None
-    return value
 
 
 def dumps(value) -> str:

@@ -12,8 +12,9 @@ from enum import StrEnum
 
 from core import WakelineError
 from core.geometry import SIDES
-from core.results import SideProposal, wake_state
+from core.results import SideProposal
 from core.summary import ShotSummary
+from core.wake import wake_state
 
 #: The analyst's ball and flight of a shot, kept with the pick (None: as measured).
 GEOMETRY_FIELDS = ("circle_a_px", "circle_b_px", "flight_deg")
@@ -137,7 +138,7 @@ class ShotRecord:
 
     def wake_state(self, moving: dict | None = None) -> str:
         """The wake state of the angles as they stand: the analyst's where set, else the
-        proposals, each with its proposal's uncertainty (``core.results.wake_state``); "" for a
+        proposals, each with its proposal's uncertainty (``core.wake.wake_state``); "" for a
         shot marked unusable or not measured. ``moving``: side -> angle of a mark being dragged.
         """
         if self.summary is None or self.pick.status == ReviewStatus.UNUSABLE:

@@ -7,10 +7,10 @@ import csv
 import math
 from pathlib import Path
 
+from core.store.companions import refuse_session_file
 from core.store.files import atomic_write
 from core.store.manifest import NUMBER_COLUMNS, TEXT_COLUMNS
 from core.store.records import ShotRecord
-from core.store.companions import refuse_session_file
 
 
 def session_table_rows(session) -> tuple[list[str], list[list[str]]]:

@@ -1,0 +1,68 @@
+"""The ball finder's and the flight's constants: rulebook sizes, bands, floors, limits."""
+
+from __future__ import annotations
+
+import math
+
+# Rulebook sizes: circumference range (mm); the nominal diameter is mid-range circumference / pi.
+BALL_CIRCUMFERENCE_MM = {
+    # Laws of Cricket, Law 4 (the ball), men's: circumference 22.4-22.9 cm.
+    "cricket": (224.0, 229.0),
+    # Official Baseball Rules 3.01: circumference 9-9.25 in.
+    "baseball": (9.0 * 25.4, 9.25 * 25.4),
+    # 12 in softball: circumference 11 7/8 - 12 1/8 in.
+    "softball": (11.875 * 25.4, 12.125 * 25.4),
+}
+
+#: Nominal diameters (mm): mid-range rulebook circumference / pi.
+NOMINAL_BALL_DIAMETER_MM = {
+    name: 0.5 * (lo + hi) / math.pi for name, (lo, hi) in BALL_CIRCUMFERENCE_MM.items()
+}
+
+#: Extra ring (px) around the fitted circle excluded from correlation: rim glare, reflections
+#: and the sub-pixel fit error.
+DEFAULT_MASK_MARGIN_PX = 3.0
+#: Share of the outline's rays with a lit rim (or a clear surface step) from which that cue
+#: alone gives the outline.
+MIN_RIM_SHARE = 0.2
+#: A surface step counts where it exceeds this many times the surface's noise.
+STEP_SNR = 6.0
+#: Lift of the air beside the outline (share of the surface's step) that marks a glaring arc.
+GLARE_LIFT = 0.2
+#: Share of the particle images around the outline that the particle-free disc may hold (false
+#: detections: stitches, noise); the fit is corrected for the share's own outward offset.
+HOLE_SHARE = 0.02
+#: Particle images (about) used to fit the particle-free disc; the band outside is widened on
+#: sparse seeding to hold them.
+HOLE_POINTS = 250
+#: Refits on random halves of the particle images behind the particle-free disc's covariance.
+HOLE_BOOTSTRAP = 10
+#: Half-widths (px) of the fine search bands after the particle-free disc.
+FINE_BANDS_PX = (5.0, 3.0)
+#: Depth (px) of the lit rim inside the outline: it moves with the centre but does not turn.
+RIM_DEPTH_PX = 5.0
+#: How far (px) particle images centred outside the outline reach into it (the e^-2 radius
+#: of a 4 px image, and the circle's error).
+SPILL_PX = 2.5
+#: Prior standard deviation of the ball's in-plane turn between the frames (rad).
+TURN_PRIOR_RAD = math.radians(2.0)
+#: Standard uncertainty (px) added to each axis of the image match's displacement: the
+#: outline's own light (rim, spilling particle images) is not quite rigid. Without a lit rim
+#: the match rests on the surface's pattern, whose motion mixes the ball's with its spin:
+#: on the physically built synthetic family such matches erred by up to 0.3-0.5 px, hence
+#: the larger floor (the circles then weigh about as much).
+MATCH_FLOOR_PX = 0.04
+PATTERN_FLOOR_PX = 0.25
+#: Correlation of the ball's pixels between the frames below which they hold no pattern.
+MIN_MATCH_NCC = 0.1
+#: Scale (px) of the surface's shading, taken away before the image match.
+SHADING_PX = 3.0
+#: Ball pixels matched between the frames at most (those with the steepest gradients).
+MATCH_PIXELS = 8000
+#: Systematic standard uncertainty (px) of the centre (each axis) and the radius per cue.
+OUTLINE_FLOOR_PX = {
+    "lit rim": (0.1, 0.15), "surface edge": (0.1, 0.25), "particle images": (0.1, 0.35),
+}
+#: Fit-quality limits behind the "poor fit" warning.
+POOR_ARC_SHARE = 0.35
+POOR_CENTRE_SIGMA_PX = 0.5

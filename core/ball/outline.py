@@ -1,0 +1,514 @@
+"""The ball's outline circle in one frame, from the best cue the frame offers."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import ndimage, sparse
+from scipy.optimize import least_squares, linprog
+from skimage.measure import CircleModel
+
+from core import WakelineError
+from core.ball.coarse import coarse_circle, ransac_circle
+from core.ball.constants import (
+    FINE_BANDS_PX,
+    GLARE_LIFT,
+    HOLE_BOOTSTRAP,
+    HOLE_POINTS,
+    HOLE_SHARE,
+    MIN_RIM_SHARE,
+    OUTLINE_FLOOR_PX,
+    POOR_ARC_SHARE,
+    STEP_SNR,
+)
+from core.conditioning import glare_mask
+from core.results import BallFit
+
+
+def find_ball(
+    frame: np.ndarray,
+    *,
+    radius_hint_px: float | None = None,
+    name: str = "frame",
+    saturation: float | None = None,
+    near: BallFit | None = None,
+) -> BallFit:
+    """Fit the ball's outline circle in one frame.
+
+    Parameters
+    ----------
+    frame : (H, W) ndarray
+        One PIV frame (counts), as recorded (not normalised).
+    radius_hint_px : float, optional
+        Expected radius (from the ball diameter and a known scale); only circles within 25 %
+        of it are considered.
+    name : str
+        Frame name used in error messages.
+    saturation : float, optional
+        The camera's saturation level (counts); default the frame's maximum. Glare (saturated
+        regions larger than a particle image) is left out of the outline.
+    near : BallFit, optional
+        The ball in the other frame of the pair: the search starts from it (and falls back on
+        the whole frame when the ball is not found within the first band around it).
+
+    Returns
+    -------
+    BallFit
+        Centre (x, y) and radius in px with their standard uncertainties and covariance, the
+        RMS edge residual, the share of the outline that carried the fit, which cue gave the
+        outline, and whether the image edge cuts the ball.
+
+    Raises
+    ------
+    core.WakelineError
+        When no round particle-free region of plausible size exists ("no ball found"), or too
+        little of its outline is visible.
+    """
+    image = np.asarray(frame, dtype=np.float32)
+    if image.ndim != 2 or min(image.shape) < 16:
+        raise WakelineError(f"{name}: not a 2-D frame large enough to hold a ball")
+    level = float(image.max()) if saturation is None else float(saturation)
+    if near is not None:
+        # the other frame's circle: the ball moved a few pixels, well within the first band;
+        # a fit that misses (a faster ball) falls back on the search
+        try:
+            fit = _fine_circle(image, *near.center_px, near.radius_px, 4, level, name)
+            moved = math.hypot(fit.center_px[0] - near.center_px[0],
+                               fit.center_px[1] - near.center_px[1])
+            if (moved < _first_band(near.radius_px, 4) and fit.arc_share >= POOR_ARC_SHARE
+                    and abs(fit.radius_px - near.radius_px) < 0.03 * near.radius_px):
+                return fit
+        except WakelineError:
+            pass
+    cx, cy, r, block = coarse_circle(image, radius_hint_px, name)
+    if radius_hint_px is not None:
+        r = radius_hint_px if abs(r - radius_hint_px) > 0.25 * radius_hint_px else r
+    return _fine_circle(image, cx, cy, r, block, level, name)
+
+
+# --- fine: the outline from the best cue the frame offers ----------------------------------
+
+
+@dataclass
+class _Rays:
+    """Samples along rays from a centre: raw (cubic) and smoothed (linear) intensity."""
+
+    theta: np.ndarray  # (K,)
+    radii: np.ndarray  # (S,) px from the centre
+    raw: np.ndarray  # (K, S)
+    smooth: np.ndarray  # (K, S)
+    usable: np.ndarray  # (K,) bool: inside the picture, clear of glare
+
+
+def _sample_rays(crop, coeff, glare, cx, cy, r, half_width) -> _Rays:
+    """Rays of the crop around the ball: ``coeff`` its cubic B-spline coefficients (a cubic
+    spline keeps the rim's flank sharper than bilinear interpolation, whose slope is constant
+    between pixel centres); the smoothed samples are the raw ones smoothed by a 1 px Gaussian
+    along and across the rays (as a 1 px Gaussian of the picture would, for a fraction of its
+    cost). A wide first band (more than 6 px each side) only has to bring the circle within a
+    pixel or two: it is sampled twice as coarsely, bilinearly."""
+    wide = half_width > 6.0
+    spacing, step = (3.0, 0.5) if wide else (1.5, 0.25)
+    n_rays = int(np.clip(2.0 * math.pi * r / spacing, 90, 1080))
+    theta = np.linspace(0.0, 2.0 * math.pi, n_rays, endpoint=False)
+    radii = np.arange(r - half_width - 6.0, r + half_width + 8.0 + step / 2, step)
+    xs = cx + np.cos(theta)[:, None] * radii
+    ys = cy + np.sin(theta)[:, None] * radii
+    height, width = crop.shape
+    inside = (xs >= 0) & (ys >= 0) & (xs <= width - 1) & (ys <= height - 1)
+    # rays whose band (or the 3 neighbours each side) leaves the picture or touches glare
+    usable = inside.all(axis=1)
+    if glare.any():
+        hit = ndimage.map_coordinates(glare.astype(np.float32), [ys, xs], order=0, mode="nearest")
+        usable &= ~(hit > 0).any(axis=1)
+    usable = ndimage.minimum_filter1d(usable.astype(np.uint8), 7, mode="wrap") > 0
+    if wide:
+        raw = ndimage.map_coordinates(crop, [ys, xs], order=1, mode="nearest")
+    else:
+        raw = ndimage.map_coordinates(coeff, [ys, xs], order=3, mode="nearest", prefilter=False)
+    smoothed = ndimage.gaussian_filter1d(raw, 1.0 / step, axis=1, mode="nearest")
+    smoothed = ndimage.gaussian_filter1d(smoothed, 1.0 / (r * (theta[1] - theta[0])), axis=0,
+                                         mode="wrap")
+    return _Rays(theta, radii, raw, smoothed, usable)
+
+
+def _first_band(r: float, block: int) -> float:
+    """Half-width (px) of the first fine band: the coarse circle's error is up to ~3 blocks."""
+    return max(10.0, 0.15 * r, 3.0 * block)
+
+
+def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
+    """Particle-free disc, then the rim or surface step on narrower bands (see module doc)."""
+    height, width = image.shape
+    first = _first_band(r, block)
+    reach = r + first + 48.0
+    x0, y0 = max(0, int(cx - reach)), max(0, int(cy - reach))
+    x1, y1 = min(width, int(cx + reach) + 2), min(height, int(cy + reach) + 2)
+    if x1 - x0 < 8 or y1 - y0 < 8:
+        raise WakelineError(f"{name}: no ball found (the circle lies outside the picture)")
+    crop = np.asarray(image[y0:y1, x0:x1], dtype=np.float32)
+    glare = glare_mask(crop, level=level)
+    cx, cy = cx - x0, cy - y0
+    coeff = ndimage.spline_filter(crop, 3, output=np.float32, mode="nearest")
+    # 2. the outline on narrowing bands from the best cue: the lit rim, the surface's step, or
+    # the particle-free disc (chosen again once the circle is close)
+    cue = None
+    for index, half_width in enumerate((first, *FINE_BANDS_PX)):
+        rays = _sample_rays(crop, coeff, glare, cx, cy, r, half_width)
+        if index < 2:
+            cue = _choose_cue(rays, r, half_width)
+        if cue == "particle images":
+            last = index == len(FINE_BANDS_PX)
+            fit = _hole_circle(crop, glare, cx, cy, r, half_width + (index > 0), name, last)
+        else:
+            edges = _rim_crossings(rays.raw, rays.radii, r, half_width)
+            if cue == "surface edge":  # the rim's flank where it is lit, else the step
+                lit = _coherent(edges)
+                step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
+                edges = np.where(lit, edges, step)
+            fit = _edge_circle(rays, edges, cx, cy, r, half_width, name)
+        cx, cy, r = fit.center[0], fit.center[1], fit.radius
+    cx, cy = cx + x0, cy + y0
+    cut = cx - r < -0.5 or cy - r < -0.5 or cx + r > width - 0.5 or cy + r > height - 0.5
+    cov = fit.covariance + np.diag(_floor(cue)) ** 2
+    return BallFit(
+        center_px=(float(cx), float(cy)), radius_px=float(r), residual_px=fit.residual,
+        cut_by_edge=bool(cut),
+        center_sigma_px=(float(math.sqrt(cov[0, 0])), float(math.sqrt(cov[1, 1]))),
+        radius_sigma_px=float(math.sqrt(cov[2, 2])),
+        covariance_px2=tuple(tuple(float(v) for v in row) for row in cov),
+        arc_share=float(fit.arc_share), outline=cue,
+    )
+
+
+def _floor(cue: str) -> tuple[float, float, float]:
+    """Systematic standard uncertainty (px) of x, y and r for an outline cue, added to the fit's
+    own: where the outline lies on a blurred rim or step (a surface shaded toward its limb, a
+    rim brighter on one side), or how particle images straddling it are imaged (their light
+    added to the ball's, or cut by its silhouette), moves the fitted circle by a fraction of the
+    blur. Set from the spread of these effects between the two synthetic families."""
+    centre, radius = OUTLINE_FLOOR_PX[cue]
+    return centre, centre, radius
+
+
+def _edge_circle(rays: _Rays, edges: np.ndarray, cx: float, cy: float, r: float,
+                 half_width: float, name: str) -> _Circle:
+    """Robust circle through the outline points found on the usable rays."""
+    ok = np.isfinite(edges) & rays.usable
+    th = rays.theta[ok]
+    points = np.column_stack([cx + edges[ok] * np.cos(th), cy + edges[ok] * np.sin(th)])
+    if len(points) < 12:
+        raise WakelineError(f"{name}: no ball found (too little of an outline is visible)")
+    seen = np.count_nonzero(rays.usable) / rays.theta.size
+    return _robust_circle(points, th, seen, name, (cx, cy, r), half_width + 2.0)
+
+
+def _share(found: np.ndarray, usable: np.ndarray) -> float:
+    return np.count_nonzero(found & usable) / max(1, np.count_nonzero(usable))
+
+
+def _choose_cue(rays: _Rays, r: float, half_width: float) -> str:
+    """A surface standing clear of the background (its step, with the rim's flank where the rim
+    is lit), else the lit rim alone, else the particle images."""
+    step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
+    if _share(_coherent(step), rays.usable) >= MIN_RIM_SHARE:
+        return "surface edge"
+    rim = _coherent(_rim_crossings(rays.raw, rays.radii, r, half_width))
+    if _share(rim, rays.usable) >= MIN_RIM_SHARE:
+        return "lit rim"
+    return "particle images"
+
+
+def _coherent(edges: np.ndarray) -> np.ndarray:
+    """Rays whose edge is found on most of their 9 neighbours and lies within a pixel of those
+    neighbours' median: a lit rim or a surface step runs smoothly along the outline, while
+    particle images touching it span a ray or two, each at its own distance."""
+    found = np.isfinite(edges)
+    most = ndimage.uniform_filter1d(found.astype(np.float64), 9, mode="wrap") > 0.5
+    if not found.any():
+        return most
+    window = np.lib.stride_tricks.sliding_window_view(np.concatenate([edges[-4:], edges,
+                                                                      edges[:4]]), 9)
+    with np.errstate(all="ignore"):
+        import warnings
+
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN windows: not coherent
+            middle = np.nanmedian(window, axis=1)
+    return most & found & (np.abs(edges - middle) < 1.0)
+
+
+def _rim_crossings(prof: np.ndarray, radii: np.ndarray, r: float, half_width: float) -> np.ndarray:
+    """Steepest point of a bright lit rim's outer flank on each ray (NaN where it is not lit).
+
+    Where the sheet lights the rim it is far brighter than the seeded air (mean over the outer
+    part of the ray), and its outer flank is the ball's outline: a blurred step keeps its
+    steepest point where the step is, whatever the rim's height.
+    """
+    outer = radii >= r + half_width + 1.0
+    air = prof[:, outer].mean(axis=1)
+    inner = (radii >= r - half_width - 6.0) & (radii <= r - half_width - 2.0)
+    surface = np.median(prof[:, inner], axis=1)
+    # the lit rim lies inside the outline: a bright peak well outside the current circle is a
+    # particle image beside the ball, not the rim (it would push the outline outward)
+    band = (radii >= r - half_width - 1.0) & (radii <= r + 0.25 * half_width)
+    peak_idx = np.argmax(np.where(band, prof, -np.inf), axis=1)
+    rows = np.arange(len(prof))
+    peak = prof[rows, peak_idx]
+    level = 0.5 * (peak + air)
+    cols = np.arange(len(radii))[None, :]
+    crossed = (prof <= level[:, None]) & (cols > peak_idx[:, None])
+    nxt = np.argmax(crossed, axis=1)
+    lit = crossed.any(axis=1) & (peak > 3.0 * np.maximum(air, 1e-9)) & (peak > 1.5 * surface)
+    slope = np.diff(prof, axis=1)  # slope[k] between samples k and k+1
+    near = (cols[:, :-1] >= peak_idx[:, None]) & (np.abs(cols[:, :-1] - nxt[:, None]) <= 6)
+    k = np.argmin(np.where(near, slope, np.inf), axis=1)
+    return np.where(lit, _vertex(slope, k, radii), np.nan)
+
+
+def _vertex(slope: np.ndarray, k: np.ndarray, radii: np.ndarray) -> np.ndarray:
+    """Radius of the parabolic vertex of ``slope`` around column ``k`` of each row."""
+    rows = np.arange(len(slope))
+    k = np.clip(k, 1, slope.shape[1] - 2)
+    s0, s1, s2 = slope[rows, k - 1], slope[rows, k], slope[rows, k + 1]
+    denom = s0 - 2.0 * s1 + s2
+    offset = np.clip(np.where(denom != 0, 0.5 * (s0 - s2) / np.where(denom != 0, denom, 1.0), 0.0),
+                     -0.5, 0.5)
+    step = radii[1] - radii[0]
+    return radii[k] + (0.5 + offset) * step
+
+
+def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: float,
+                    half_width: float) -> np.ndarray:
+    """Steepest point of the step from the ball's surface down to the background between the
+    particles on each ray of the smoothed samples ``prof`` (NaN where that step is not clear).
+
+    The step is clear where the surface (the median just inside the band) stands above the
+    background (a low percentile of the air just outside the band, between particle images,
+    pooled over neighbouring rays) by ``STEP_SNR`` times the noise of the smoothed surface (the
+    raw samples' noise over ``2 sqrt(pi)`` for the 1 px Gaussian: derived for white noise).
+    Walking outward, the profile first falls below half-way between the two; the edge is the
+    steepest point within 2 px of that crossing: a blurred step keeps its steepest point where
+    the step is, whatever the surface's grain or a partly lit rim. Where glare lifts the air
+    beside the outline by ``GLARE_LIFT`` of the step above the background around the rest of
+    the ball, the ray is left out. A particle image touching the outline delays the crossing
+    (the robust fit drops such rays).
+    """
+    inner = (radii >= r - half_width - 5.0) & (radii <= r - half_width)
+    outer = radii >= r + half_width + 1.0
+    surface = np.median(prof[:, inner], axis=1)
+    background = ndimage.median_filter(np.percentile(prof[:, outer], 10, axis=1), 9, mode="wrap")
+    spread = raw[:, inner] - np.median(raw[:, inner], axis=1)[:, None]
+    noise = 1.4826 * float(np.median(np.abs(spread))) / (2.0 * math.sqrt(math.pi))
+    clear = surface - background > STEP_SNR * max(noise, 1e-6)
+    # glare: light spilling over the outline lifts the air beside it well above the background
+    # elsewhere around the ball; that arc is left out
+    typical = np.median(background)
+    clear &= background - typical < GLARE_LIFT * np.median(surface - typical)
+    level = 0.5 * (surface + background)
+    cols = np.arange(len(radii))[None, :]
+    start = np.argmax(radii >= r - half_width)
+    crossed = (prof <= level[:, None]) & (cols >= start)
+    crossed &= (radii <= r + half_width + 1.0)[None, :]
+    found = crossed.any(axis=1) & clear
+    nxt = np.argmax(crossed, axis=1)
+    slope = np.diff(prof, axis=1)  # slope[k] between samples k and k+1
+    reach = round(2.0 / (radii[1] - radii[0]))
+    near = np.abs(cols[:, :-1] - nxt[:, None]) <= reach
+    k = np.argmin(np.where(near, slope, np.inf), axis=1)
+    return np.where(found, _vertex(slope, k, radii), np.nan)
+
+
+@dataclass
+class _Circle:
+    center: tuple[float, float]
+    radius: float
+    covariance: np.ndarray  # (3, 3): x, y, r (px^2)
+    residual: float
+    arc_share: float
+
+
+def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str,
+                   start: tuple[float, float, float], reach: float) -> _Circle:
+    """RANSAC circle through outline points, then a Cauchy-loss fit, with its covariance.
+
+    ``theta`` are the points' ray angles (for the residuals' correlation along the outline),
+    ``seen`` the share of rays that could give a point (inside the picture, clear of glare).
+    Only circles within ``reach`` px of ``start`` (x, y, r) are considered: the points were
+    searched there, and a seam's arc inside the ball must not pass for the outline.
+    """
+    def near_start(model, *_):
+        return (abs(model.radius - start[2]) <= reach
+                and math.hypot(model.center[0] - start[0], model.center[1] - start[1]) <= reach)
+
+    model, inliers = ransac_circle(points, 0.5, near_start)
+    if model is None or inliers.sum() < 12:
+        raise WakelineError(f"{name}: no ball found (the outline points do not form a circle)")
+    final = CircleModel.from_estimate(points[inliers])
+    if not final:
+        raise WakelineError(f"{name}: no ball found (circle fit failed)")
+    # the edge-point errors are skewed (a particle touching the outline pushes a point outward),
+    # so the last step is a Cauchy-loss fit on the points near that circle: it follows the
+    # densest points
+    guess = np.array([final.center[0], final.center[1], final.radius])
+    near = np.abs(np.hypot(points[:, 0] - guess[0], points[:, 1] - guess[1]) - guess[2]) < 3.0
+    points, theta = points[near], theta[near]
+    px, py = points[:, 0], points[:, 1]
+    fit = least_squares(
+        lambda p: np.hypot(px - p[0], py - p[1]) - p[2], guess, loss="cauchy", f_scale=0.3
+    )
+    cx, cy, r = (float(v) for v in fit.x)
+    dist = np.hypot(px - cx, py - cy) - r
+    near = np.abs(dist) < 1.0
+    residual = float(np.sqrt(np.mean(dist[near] ** 2))) if near.any() else float("nan")
+    keep = np.abs(dist) < max(3.0 * 1.4826 * float(np.median(np.abs(dist))), 0.3)
+    cov = _circle_covariance(px[keep], py[keep], cx, cy, dist[keep], theta[keep])
+    arc = _arc_share(theta[keep], seen)
+    return _Circle((cx, cy), r, cov, residual, arc)
+
+
+def _arc_share(theta: np.ndarray, seen: float) -> float:
+    """Share of the whole outline covered by points (5 deg sectors holding one), at most
+    ``seen``."""
+    sectors = np.unique(np.floor(np.mod(theta, 2 * math.pi) / math.radians(5.0)).astype(int))
+    return float(min(seen, sectors.size / 72.0))
+
+
+def _circle_covariance(px, py, cx, cy, dist, theta) -> np.ndarray:
+    """Covariance (px^2) of (x, y, r) from the kept points' residuals.
+
+    Neighbouring rays see overlapping pixels, so their errors are correlated: the variance is
+    scaled by ``1 + 2 sum rho_k`` over the residuals' positive autocorrelations along the
+    outline (the number of points per independent one).
+    """
+    rho = np.hypot(px - cx, py - cy)
+    jac = np.column_stack([(cx - px) / rho, (cy - py) / rho, -np.ones_like(rho)])
+    dof = max(1, len(dist) - 3)
+    s2 = float(np.sum(dist * dist)) / dof
+    order = np.argsort(theta)
+    e = dist[order] - dist.mean()
+    denom = float(np.dot(e, e))
+    inflation = 1.0
+    if denom > 0:
+        for lag in range(1, min(20, len(e) // 4)):
+            c = float(np.dot(e[:-lag], e[lag:])) / denom
+            if c <= 0:
+                break
+            inflation += 2.0 * c
+    try:
+        return s2 * inflation * np.linalg.inv(jac.T @ jac)
+    except np.linalg.LinAlgError:
+        return np.full((3, 3), np.inf)
+
+
+# --- the particle-free disc ------------------------------------------------------------------
+
+
+def _particle_centres(crop: np.ndarray, quiet: np.ndarray, glare: np.ndarray):
+    """Sub-pixel centres (x, y) of particle images: local maxima standing clear above their
+    surroundings on all sides but one (an edge or a rim line does not), by more than six times
+    the smoothed noise inside the ball (``quiet``: pixels known to hold no particle; its median
+    absolute deviation, which a seam or a shaded surface hardly moves)."""
+    smooth = ndimage.gaussian_filter(crop, 0.6)
+    quiet = quiet & ~glare
+    sample = smooth[quiet] if np.count_nonzero(quiet) > 50 else smooth.ravel()
+    noise = 1.4826 * float(np.median(np.abs(sample - np.median(sample))))
+    peak = smooth == ndimage.maximum_filter(smooth, 3)
+    peak[:3] = peak[-3:] = False
+    peak[:, :3] = peak[:, -3:] = False
+    peak &= ~glare
+    ys, xs = np.nonzero(peak)
+    offsets = ((3, 0), (-3, 0), (0, 3), (0, -3), (2, 2), (2, -2), (-2, 2), (-2, -2))
+    ring = np.stack([smooth[ys + dy, xs + dx] for dy, dx in offsets], axis=1)
+    ring.sort(axis=1)
+    keep = smooth[ys, xs] - ring[:, -2] > 6.0 * max(noise, 1e-6)
+    ys, xs = ys[keep], xs[keep]
+    c = smooth[ys, xs]
+    ox = _parabola(smooth[ys, xs - 1], c, smooth[ys, xs + 1])
+    oy = _parabola(smooth[ys - 1, xs], c, smooth[ys + 1, xs])
+    return xs + ox, ys + oy
+
+
+def _parabola(left, centre, right):
+    denom = left + right - 2.0 * centre
+    offset = np.where(denom < 0, 0.5 * (left - right) / np.where(denom < 0, denom, -1.0), 0.0)
+    return np.clip(offset, -0.5, 0.5)
+
+
+def _quantile_circle(ux, uy, rho, tau):
+    """``(dx, dy, q)`` minimising the quantile loss of ``rho_i - (q + ux_i dx + uy_i dy)``
+    (a linear programme), or None when it fails."""
+    n = rho.size
+    eye = sparse.identity(n, format="csr")
+    a_eq = sparse.hstack([sparse.csr_matrix(np.column_stack([ux, uy, np.ones(n)])), eye, -eye])
+    cost = np.concatenate([[0.0, 0.0, 0.0], np.full(n, tau), np.full(n, 1.0 - tau)])
+    bounds = [(None, None)] * 3 + [(0, None)] * (2 * n)
+    res = linprog(cost, A_eq=a_eq, b_eq=rho, bounds=bounds, method="highs")
+    return tuple(float(v) for v in res.x[:3]) if res.success else None
+
+
+def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Circle:
+    """The circle holding ``HOLE_SHARE`` of the particle images near it (quantile regression).
+
+    Particle centres are spread evenly outside the ball and absent inside, so around the true
+    circle their distance from the centre has its ``HOLE_SHARE`` quantile ``q`` at
+    ``R + HOLE_SHARE (R_out - R)`` over a band reaching ``R_out`` (derived): the fit solves for
+    that quantile (a linear programme) and steps back by the offset.
+    """
+    yy, xx = np.ogrid[0 : crop.shape[0], 0 : crop.shape[1]]
+    quiet = (xx - cx) ** 2 + (yy - cy) ** 2 < max(r - inner_px - 3.0, 0.3 * r) ** 2
+    px, py = _particle_centres(crop, quiet, glare)
+    rho = np.hypot(px - cx, py - cy)
+    # the band outside holds about HOLE_POINTS particle images (wider on sparse seeding)
+    probe = (rho > r + inner_px) & (rho < r + inner_px + 12.0)
+    density = probe.sum() / (2.0 * math.pi * (r + inner_px + 6.0) * 12.0)
+    outer = float(np.clip(HOLE_POINTS / max(density * 2.0 * math.pi * r, 1e-9), 6.0, 40.0))
+    sel = (rho > r - inner_px) & (rho < r + inner_px + outer)
+    if sel.sum() < 20:
+        raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
+    px, py = px[sel], py[sel]
+    if px.size > 2 * HOLE_POINTS:  # an even thinning leaves the quantile where it is
+        pick = np.random.default_rng(12345).choice(px.size, 2 * HOLE_POINTS, replace=False)
+        px, py = px[pick], py[pick]
+    rho = np.hypot(px - cx, py - cy)
+    ux, uy = (px - cx) / rho, (py - cy) / rho
+    tau = HOLE_SHARE
+    reach = r + inner_px + outer
+    fit = _quantile_circle(ux, uy, rho, tau)
+    if fit is None:
+        raise WakelineError(f"{name}: no ball found (the particle-free disc could not be fitted)")
+    dx, dy, q = fit
+    radius = (q - tau * reach) / (1.0 - tau)
+    # covariance of a quantile regression: tau (1 - tau) / f^2 (X'X)^-1, f = 1 / (band beyond
+    # the circle) the density of the even spread at the quantile (asymptotic; doubled for the
+    # extreme quantile's skew); the intercept q carries to r scaled by 1 / (1 - tau)
+    design = np.column_stack([ux, uy, np.ones(rho.size)])
+    f = 1.0 / max(reach - radius, 1.0)
+    try:
+        cov = 2.0 * tau * (1.0 - tau) / (f * f) * np.linalg.inv(design.T @ design)
+    except np.linalg.LinAlgError:
+        cov = np.full((3, 3), np.inf)
+    cov[2, :] /= 1.0 - tau
+    cov[:, 2] /= 1.0 - tau
+    if bootstrap:
+        # a few particle images decide an extreme quantile, and with part of the outline
+        # unseen (a shadow) the solution can jump: the spread of refits on random halves of
+        # the particle images (halved, as the variance of a fit to half the data is about
+        # twice the whole's) says how far, where the asymptotic formula does not
+        rng = np.random.default_rng(12345)
+        refits = []
+        for _ in range(HOLE_BOOTSTRAP):
+            pick = rng.choice(rho.size, rho.size // 2, replace=False)
+            again = _quantile_circle(ux[pick], uy[pick], rho[pick], tau)
+            if again is not None:
+                refits.append((again[0], again[1], (again[2] - tau * reach) / (1.0 - tau)))
+        if len(refits) >= HOLE_BOOTSTRAP // 2:
+            spread = 0.5 * np.cov(np.array(refits).T)
+            if np.trace(spread) > np.trace(cov):
+                cov = spread
+    theta = np.arctan2(py - cy, px - cx)
+    near = np.abs(rho - ux * dx - uy * dy - radius) < 3.0
+    return _Circle((cx + dx, cy + dy), float(radius), cov, float("nan"),
+                   _arc_share(theta[near], 1.0))
