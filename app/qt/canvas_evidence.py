@@ -38,7 +38,6 @@ class EvidenceItems:
     """The evidence layers of one view (fine field, fitted layers and bands, uncertainty)."""
 
     def __init__(self, view: pg.ViewBox) -> None:
-        self.view = view
         self.fine_vorticity = pg.ImageItem()
         self.fine_vorticity.setZValue(11)  # over the main field's vorticity (10)
         self.fine_box = Polyline(_dotted(FINE_BOX_LINE, 1.0))
