@@ -30,7 +30,10 @@ USUAL_MIN_SHARE = 0.5
 
 def flight_checks(summary: ShotSummary, metadata: dict | None = None,
                   usual_direction_deg: float | None = None) -> list[str]:
-    """Disagreements of a shot's ball and flight with what else is known, one line each.
+    """Disagreements of a shot's ball and flight with what else is known, one line each: what
+    the ball and flight stages warned of (``ShotSummary.ball_warnings``: the two frames' radii
+    beyond their uncertainties, a poorly fitted circle, the flight against the air moving with
+    the ball, ...), then the checks here.
 
     Parameters
     ----------
@@ -41,7 +44,7 @@ def flight_checks(summary: ShotSummary, metadata: dict | None = None,
         The direction most shots of the session fly in (``usual_direction``).
     """
     metadata = metadata or {}
-    checks = []
+    checks = list(summary.ball_warnings)
     flight = summary.flight
     if flight is not None:
         checks += _speed_check(flight.speed_m_s, _number(metadata.get("speed_nominal_m_s")))

@@ -109,6 +109,7 @@ class ShotResult:
     valid_near_ball: int | None = None  # valid vectors within two grid spacings of the outline
     reynolds: float | None = None  # U D / nu with the air speed past the ball (core.air)
     fine_field: VectorField | None = None  # fine correlation near the ball, ball frame, image px
+    ball_warnings: list[str] = field(default_factory=list)  # those of ``warnings`` on the ball
     # its vorticity (1/s, or per frame pair without dt): derived, not stored (fine_vorticity)
     fine_vorticity_1_s: np.ndarray | None = None
     stage_seconds: dict[str, float] = field(default_factory=dict)  # wall time per stage (not stored)
@@ -124,6 +125,7 @@ class ShotResult:
                 "radius_px": finite_or_none(self.ball_a.radius_px),
                 "frame_a": dataclass_dict(self.ball_a),
                 "frame_b": None if self.ball_b is None else dataclass_dict(self.ball_b),
+                "warnings": list(self.ball_warnings),
             },
             "flight": None if self.flight is None else dataclass_dict(self.flight),
             "separation": _separation_summary(sep),
@@ -182,6 +184,7 @@ class ShotResult:
             valid_near_ball=typed.vectors.valid_near_ball,
             reynolds=typed.reynolds,
             fine_field=_fine_from(summary, arrays),
+            ball_warnings=list(typed.ball_warnings),
         )
 
 
@@ -475,11 +478,13 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
     settings = result.settings
     ball_a, ball_b = balls
     result.ball_a, result.ball_b = ball_a, ball_b
+    first = len(warnings)
     if ball_a.cut_by_edge or ball_b.cut_by_edge:
         warnings.append("the image edge cuts the ball: its circle is fitted to the visible outline")
     warnings.extend(_ball_warnings(ball_a, ball_b, _expected_radius_px(settings)))
     flight = _flight(result, raw, balls, glare, warnings)
     result.flight = flight
+    result.ball_warnings = list(warnings[first:])  # what the ball and flight stages said
     clock.lap("ball")
     result.valid_near_ball = valid_near_ball(result.field, ball_a, 2.0 * result.field.spacing_px)
     if _order_reversed(result.field, ball_a, flight):

@@ -52,6 +52,7 @@ class ShotSummary:
     settings: dict = field(default_factory=dict)  # ShotSettings.to_dict() of the run
     reynolds: float | None = None  # U D / nu of the air past the ball (core.air)
     regime: str = ""  # where that lies against the smooth sphere's drag crisis
+    ball_warnings: tuple[str, ...] = ()  # those of ``warnings`` the ball and flight stages gave
     data: dict = field(default_factory=dict, repr=False, compare=False)  # the JSON as read
     version: int = field(default=SUMMARY_VERSION, compare=False)  # layout of ``data``
 
@@ -150,6 +151,7 @@ def _load_v1(data: dict) -> ShotSummary:
         dt_s=data.get("dt_s"),
         vectors=VectorCounts(**_known(VectorCounts, data.get("vectors"))),
         warnings=tuple(data.get("warnings") or ()),
+        ball_warnings=tuple(ball.get("warnings") or ()),
         settings=dict(data.get("settings") or {}),
         reynolds=_reynolds(data).get("value"),
         regime=_reynolds(data).get("regime") or "",

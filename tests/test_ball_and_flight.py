@@ -142,6 +142,28 @@ def test_an_implausible_ball_or_flight_is_flagged():
     assert flight_checks(_summary(radii=(56.0, 60.0), warnings=[said])) == []
 
 
+def test_what_the_ball_finder_warned_of_leads_the_checks():
+    # a circle poorly fitted in frame A gives the two frames' radii apart: the ball finder's
+    # own words (with uncertainties) come first, the measurement's other notes stay apart
+    from conftest import synthetic_frames
+
+    from core.shot import measure_shot
+
+    frame_a, frame_b, truth = synthetic_frames(0)
+    settings = ShotSettings(dt_s=truth.dt_s, scale_mm_per_px=truth.scale_mm_per_px,
+                            ball_diameter_mm=truth.ball_diameter_mm,
+                            circle_a_px=(*truth.center_a_px, truth.radius_px * 1.06))
+    settings.piv = replace(settings.piv, workers=1)
+    result = measure_shot(frame_a, frame_b, settings)
+    summary = ShotSummary.from_dict(result.summary())
+    assert summary.ball_warnings and set(summary.ball_warnings) <= set(summary.warnings)
+    checks = flight_checks(summary)
+    assert checks[: len(summary.ball_warnings)] == list(summary.ball_warnings)
+    assert any("the ball's radius differs between the frames" in w for w in checks)
+    again = type(result).from_stored(result.summary(), result.arrays())
+    assert again.ball_warnings == result.ball_warnings
+
+
 def test_the_usual_direction_needs_a_majority():
     assert usual_direction([179.0, 181.0, 180.0, 110.0]) == pytest.approx(180.0)
     assert usual_direction([359.0, 1.0, 0.5]) == pytest.approx(0.1667, abs=1e-3)

@@ -120,6 +120,10 @@ class ReadoutPanel(QWidget):
                                "of the shot: its manifest, the session's other shots, the "
                                "other frame's circle, the wake")
         self.checks.hide()
+        self.notes = QLabel(self)  # what the measurement itself warned of
+        self.notes.setWordWrap(True)
+        self.notes.setStyleSheet(NOTICE_STYLE)
+        self.notes.hide()
         head = QHBoxLayout()
         head.addWidget(self.title, 1)
         head.addWidget(self.status_icon)
@@ -131,6 +135,7 @@ class ReadoutPanel(QWidget):
         box.addLayout(head)
         box.addWidget(self.problem)
         box.addWidget(self.checks)
+        box.addWidget(self.notes)
         box.addWidget(self._separation_group())
         box.addWidget(self._review_group())
         box.addWidget(self._flight_group())
@@ -273,6 +278,7 @@ class ReadoutPanel(QWidget):
             self.status_icon.clear()
         self.status_label.setText(status)
         self._show_problem(record)
+        self._show_notes(record)
         self._show_angles(record)
         self._show_wake(record)
         self._show_flight(record)
@@ -317,6 +323,7 @@ class ReadoutPanel(QWidget):
         self.status_label.clear()
         self.problem.hide()
         self.checks.hide()
+        self.notes.hide()
         for cell in self.cells.values():
             cell.setText("—")
             cell.setStyleSheet("")
@@ -341,6 +348,14 @@ class ReadoutPanel(QWidget):
             text = ""
         self.problem.setText(text)
         self.problem.setVisible(bool(text))
+
+    def _show_notes(self, record) -> None:
+        summary = record.summary
+        warnings = () if summary is None else [w for w in summary.warnings
+                                               if w not in summary.ball_warnings]
+        text = "From the measurement:\n" + "\n".join(f"• {w}" for w in warnings)
+        self.notes.setText(text if warnings else "")
+        self.notes.setVisible(bool(warnings))
 
     def _show_angles(self, record) -> None:
         for side in SIDES:

@@ -385,7 +385,8 @@ def _paint_numbers(p, info, record, with_metadata: bool = False, checks=()) -> N
         row("shot notes", str(md["notes"]))
     if checks:
         row("check", "; ".join(checks[:2]), colours.STATUS_COLOURS[ReviewStatus.ADJUSTED])
-    warnings = () if summary is None else summary.warnings
+    warnings = () if summary is None else [w for w in summary.warnings
+                                           if w not in summary.ball_warnings]  # with checks
     if warnings:
         row("warnings", "; ".join(warnings[:2]), colours.MUTED_INK)
 
