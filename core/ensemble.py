@@ -65,7 +65,7 @@ FIELD_MARGIN_PX = 3.0
 #: Near-wall windows (px of the common frame): size, spacing, the ring next to the outline left
 #: out (the ball's lit rim reaches this far after resampling), and how far out their centroids
 #: may lie.
-NEAR_WALL_WINDOW_PX = 12
+NEAR_WALL_WINDOW_PX = 16
 NEAR_WALL_STEP_PX = 2
 NEAR_WALL_MARGIN_PX = 1.5
 NEAR_WALL_REACH_PX = 8.0
@@ -77,6 +77,11 @@ SEARCH_DEG = (-45.0, 75.0)
 #: common practice, docs/references.md): the middle carries the shares to the wall, the ends
 #: give the model's part of the uncertainty.
 DEPARTURE_DEG = (5.0, 15.0)
+#: Each kind of air counts within this radius of its expected displacement: a fraction of the
+#: stream plus a few px (the stream beside a separated layer is slower than potential flow, the
+#: air under it may flow back).
+CATCH_STREAM = 0.35
+CATCH_PX = 2.0
 #: Correlation peaks count toward a share above the plane's median plus this many robust
 #: standard deviations of its noise.
 PEAK_NOISE_SIGMAS = 3.0
@@ -219,55 +224,50 @@ class NearWallPlanes:
     """Summable correlation planes of the windows next to one side of the ball, shot by shot.
 
     Window ``k`` of frame A (``NEAR_WALL_WINDOW_PX`` square) is correlated against a region of
-    frame B larger by ``reach_px`` on every side and centred half the stream along the wall
-    ahead of it, so displacements within ``reach_px`` of that point keep all their pairs
-    (a linear correlation, ``scipy.signal.fftconvolve``), whatever their direction.
+    frame B around it (a linear correlation, ``scipy.signal.fftconvolve``), so that two kinds of
+    air keep all their particle-image pairs: the stream beside the wall, near the potential
+    flow's displacement ``stream_px`` there, and the still or slowly reversed air under a
+    separated layer, near zero (ball frame).
     """
 
     phi_deg: np.ndarray  # (K,) separation-convention angle of the window's kept centroid
     gap_px: np.ndarray  # (K,) its distance outside the outline
-    tangent: np.ndarray  # (K, 2) rearward tangent (x, y) at the window
-    centre_px: np.ndarray  # (K, 2) the displacement the region is centred on (x, y), px
-    shift_px: np.ndarray  # (K, 2) int: where plane index (0, 0) lies, as a displacement (x, y)
+    stream_px: np.ndarray  # (K, 2) the stream's expected displacement there (x, y)
+    shift_px: np.ndarray  # (K, 2) int: the displacement (x, y) of plane index (0, 0)
+    catch_px: float  # radius around each expected displacement that counts for it
     planes: np.ndarray  # (N, K, P, P) float32, one stack per shot
-    reach_px: int
     radius_px: float
 
     def shares(self, weights=None) -> np.ndarray:
         """Share of each window's particle-image pairs that moves with the stream, ``(K,)``,
         for the shots weighted by ``weights`` (``(N,)``, default all once).
 
-        The plane (summed over the shots) is split by the line across the tangent through the
-        region's centre, half the stream along the wall: beyond it lies the stream, before it
-        the still or reversed air. Each half counts its values above the plane's noise
-        (median + ``PEAK_NOISE_SIGMAS`` robust standard deviations) within ``reach_px`` of the
-        centre; the two halves have (to half a pixel) the same area, so the noise weighs on
-        both alike.
+        The plane summed over the shots counts, within ``catch_px`` of the stream's expected
+        displacement and of zero, its values above its noise (median + ``PEAK_NOISE_SIGMAS``
+        robust standard deviations); the two discs have the same area, so noise weighs on both
+        alike and a window holding as many pairs of each kind gives one half.
         """
         total = (self.planes.sum(axis=0) if weights is None
                  else np.tensordot(np.asarray(weights, dtype=np.float32), self.planes, axes=1))
-        disc, along = self._halves()
-        values = total.reshape(len(total), -1)[:, disc]
+        values = total.reshape(len(total), -1)
         median = np.median(values, axis=1, keepdims=True)
         noise = 1.4826 * np.median(np.abs(values - median), axis=1, keepdims=True)
         above = np.maximum(values - (median + PEAK_NOISE_SIGMAS * noise), 0.0)
-        fast = np.where(along > 0, above, 0.0).sum(axis=1)
-        both = above.sum(axis=1)
+        fast_disc, slow_disc = self._discs()
+        fast = np.where(fast_disc, above, 0.0).sum(axis=1)
+        both = fast + np.where(slow_disc, above, 0.0).sum(axis=1)
         return np.where(both > 0, fast / np.where(both > 0, both, 1.0), np.nan)
 
-    def _halves(self) -> tuple[np.ndarray, np.ndarray]:
-        """Flat plane indices within ``reach_px`` of the region's (whole-pixel) centre, the same
-        for every window, and their displacement along each window's tangent from its exact
-        centre, ``(K, n)``."""
+    def _discs(self) -> tuple[np.ndarray, np.ndarray]:
+        """``(K, P * P)`` bool each: plane samples within ``catch_px`` of the stream's expected
+        displacement, and of zero."""
         size = self.planes.shape[-1]
         iy, ix = np.divmod(np.arange(size * size), size)
-        offset_x, offset_y = ix - self.reach_px, iy - self.reach_px
-        disc = np.flatnonzero(offset_x**2 + offset_y**2 <= self.reach_px**2)
-        rounded = self.shift_px + self.reach_px - self.centre_px  # whole-pixel minus exact centre
-        sx = offset_x[disc][None, :] + rounded[:, 0, None]
-        sy = offset_y[disc][None, :] + rounded[:, 1, None]
-        along = sx * self.tangent[:, 0, None] + sy * self.tangent[:, 1, None]
-        return disc, along
+        sx = ix[None, :] + self.shift_px[:, 0, None]
+        sy = iy[None, :] + self.shift_px[:, 1, None]
+        reach = self.catch_px**2
+        fast = (sx - self.stream_px[:, 0, None]) ** 2 + (sy - self.stream_px[:, 1, None]) ** 2
+        return fast <= reach, sx**2 + sy**2 <= reach
 
     def wall_angles(self, departure_deg: float) -> np.ndarray:
         """Each window's angle carried to the wall along a layer leaving it at ``departure_deg``
@@ -292,7 +292,6 @@ def near_wall_planes(pairs, common: CommonFrame, side: str) -> NearWallPlanes:
     """
     d = NEAR_WALL_WINDOW_PX
     stream = common.stream_px
-    reach = int(math.ceil(1.3 * stream + 3.0))  # the stream beside the wall is up to 1.5 U
     kept_ball = common.outside_ball(NEAR_WALL_MARGIN_PX)
     starts_y = np.arange(0, common.shape[0] - d + 1, NEAR_WALL_STEP_PX)
     starts_x = np.arange(0, common.shape[1] - d + 1, NEAR_WALL_STEP_PX)
@@ -310,13 +309,13 @@ def near_wall_planes(pairs, common: CommonFrame, side: str) -> NearWallPlanes:
     use = ((count >= NEAR_WALL_MIN_KEPT * d * d) & (gap <= NEAR_WALL_REACH_PX)
            & (phi >= SEARCH_DEG[0]) & (phi <= SEARCH_DEG[1]))
     y0, x0, keep, phi, gap = y0[use], x0[use], keep[use], phi[use], gap[use]
-    tangent = _rearward_tangent(common, side, phi)
-    centre = 0.5 * stream * tangent
-    shift = np.rint(centre).astype(int) - reach
+    flow = _potential_stream(common, side, phi, gap)
+    catch = CATCH_STREAM * stream + CATCH_PX
+    reach = int(math.ceil(0.5 * float(np.hypot(*flow.T).max()) + catch)) + 1
+    shift = np.rint(0.5 * flow).astype(int) - reach
     planes = [_window_planes(a, b, unseen | ~kept_ball, keep, y0, x0, shift, reach)
               for a, b, unseen in pairs]
-    return NearWallPlanes(phi, gap, tangent, centre, shift, np.stack(planes), reach,
-                          common.radius_px)
+    return NearWallPlanes(phi, gap, flow, shift, catch, np.stack(planes), common.radius_px)
 
 
 def _window_planes(a, b, masked, keep, y0, x0, shift, reach) -> np.ndarray:
@@ -357,11 +356,20 @@ def _polar(common: CommonFrame, side: str, x_px, y_px) -> tuple[np.ndarray, np.n
     return phi, np.hypot(rx, ry) - common.radius_px
 
 
-def _rearward_tangent(common: CommonFrame, side: str, phi_deg: np.ndarray) -> np.ndarray:
+def _potential_stream(common: CommonFrame, side: str, phi_deg, gap_px) -> np.ndarray:
+    """Ball-frame displacement (x, y; px per pair) of potential flow past a sphere at points
+    beside it (Batchelor 1967, memory): rearward ``U cos(phi) (1 + R^3 / (2 r^3))`` along the
+    outline and ``-U sin(phi) (1 - R^3 / r^3)`` outward, ``(K, 2)``."""
     fx, fy = flight_unit(common.flight_deg)
     nx, ny = side_normal(common.flight_deg, side)
     t = np.radians(phi_deg)
-    return np.column_stack([-np.sin(t) * nx - np.cos(t) * fx, -np.sin(t) * ny - np.cos(t) * fy])
+    cube = (common.radius_px / (common.radius_px + np.maximum(gap_px, 0.0))) ** 3
+    along = common.stream_px * np.cos(t) * (1.0 + 0.5 * cube)
+    out = -common.stream_px * np.sin(t) * (1.0 - cube)
+    tangent = (-np.sin(t) * nx - np.cos(t) * fx, -np.sin(t) * ny - np.cos(t) * fy)
+    radial = (np.cos(t) * nx - np.sin(t) * fx, np.cos(t) * ny - np.sin(t) * fy)
+    return np.column_stack([along * tangent[0] + out * radial[0],
+                            along * tangent[1] + out * radial[1]])
 
 
 def step_angle(angles: np.ndarray, shares: np.ndarray) -> float | None:
@@ -411,16 +419,17 @@ def condition_separation(planes: NearWallPlanes) -> SideProposal:
     model = abs(ends[1] - ends[0]) / math.sqrt(12.0) if None not in ends else 0.0
     count = planes.planes.shape[0]
     spread = 0.0
-    if count > 1:
+    if count >= 2:
         rng = np.random.default_rng(BOOTSTRAP_SEED)
         draws = rng.multinomial(count, np.full(count, 1.0 / count), size=BOOTSTRAP_REPLICATES)
         found = [side_separation(planes, w) for w in draws]
         found = np.array([f for f in found if f is not None])
         if found.size > 1:
             spread = float(np.std(found, ddof=1))
-    standard = math.hypot(spread, model)
-    remark = "" if count > 1 else "one shot: no spread between launches in the uncertainty"
-    return SideProposal(angle, COVERAGE_K * standard, None, remark)
+    if count < 2:
+        return SideProposal(angle, None, None, "one shot only: no spread between launches to "
+                            "give an uncertainty")
+    return SideProposal(angle, COVERAGE_K * math.hypot(spread, model), None, "")
 
 
 # --- the whole view -------------------------------------------------------------------------------
@@ -515,3 +524,34 @@ def _tell(progress, done: int, total: int, message: str):
 
         raise Cancelled(message)
     return None
+
+
+def session_ensemble(session, shot_ids, settings: PivSettings | None = None,
+                     progress: Progress | None = None) -> EnsembleView:
+    """The ensemble view of some shots of an open session (``core.store.Session``, or any
+    mapping of shot id -> record with ``load_frames``): those not marked unusable whose last
+    measurement found the ball and its flight; the others are named in ``left_out``.
+
+    Raises
+    ------
+    core.WakelineError
+        When none of the shots can take part (the reasons are in the message), or a frame
+        file cannot be read.
+    """
+    chosen, left_out = [], {}
+    for shot_id in shot_ids:
+        record = session[shot_id]
+        pose = ShotPose.from_summary(shot_id, record.summary)
+        if record.pick.status == "unusable":
+            left_out[shot_id] = "marked unusable"
+        elif pose is None:
+            left_out[shot_id] = "no measured ball and flight"
+        else:
+            chosen.append(pose)
+    if not chosen:
+        why = "; ".join(f"{s}: {r}" for s, r in left_out.items()) or "no shots given"
+        raise WakelineError(f"ensemble: no shot to align ({why})")
+    shots = [(pose, *session.load_frames(pose.shot_id)) for pose in chosen]
+    view = ensemble_view(shots, settings, progress)
+    view.left_out = left_out
+    return view
