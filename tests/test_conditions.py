@@ -86,7 +86,8 @@ def test_table_by_writes_one_row_per_condition_and_conditions_keeps_the_grouping
         session_path, tmp_path, capsys):
     out = tmp_path / "by.csv"
     assert main(["table", str(session_path), "--by", "seam_deg", "-o", str(out)]) == 0
-    rows = list(csv.DictReader(out.open(encoding="utf-8")))
+    with out.open(encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
     assert [r["seam_deg"] for r in rows] == ["0", "10", ""]
     assert rows[0]["usable_shots"] == "2" and rows[0]["shot_ids"] == "S0 S1 S2"
     assert float(rows[0]["upper_ci_high_deg"]) > 4.0 > float(rows[0]["upper_ci_low_deg"])
