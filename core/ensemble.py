@@ -85,8 +85,9 @@ CATCH_PX = 2.0
 #: Correlation peaks count toward a share above the plane's median plus this many robust
 #: standard deviations of its noise.
 PEAK_NOISE_SIGMAS = 3.0
-#: Bootstrap replicates over the shots; the generator's seed keeps a result reproducible.
-BOOTSTRAP_REPLICATES = 100
+#: Bootstrap replicates over the shots (their standard deviation to about 10 %); the generator's
+#: seed keeps a result reproducible.
+BOOTSTRAP_REPLICATES = 60
 BOOTSTRAP_SEED = 20000
 #: Expansion of the standard uncertainty into the reported interval (about 95 %).
 COVERAGE_K = 2.0
