@@ -157,7 +157,8 @@ def condition_lines(condition, ensemble=None) -> list[str]:
 
 
 def ensemble_text(view) -> str:
-    from app.review.text import angle_text
+    """The ensemble's proposal per side in one line, with the shots it used."""
+    from app.review.text import angle_text, uncertainty_text
 
     if isinstance(view, str):
         return view
@@ -168,7 +169,7 @@ def ensemble_text(view) -> str:
             parts.append(f"{side} none ({proposal.reason})")
         else:
             parts.append(f"{side} {angle_text(proposal.angle_deg)} "
-                         f"± {proposal.uncertainty_deg:.1f}°")
+                         f"{uncertainty_text(proposal.uncertainty_deg)}")
     used = f"{len(view.shot_ids)} shot(s) aligned"
     if view.left_out:
         used += ", left out " + ", ".join(f"{s} ({r})" for s, r in view.left_out.items())

@@ -1,7 +1,10 @@
 """The shot sheet: a vector PDF handing over a session, drawn with Qt's own PDF writer.
 
 Page 1 (the cover) names the session, counts shots by review status, shows the session overview
-and a summary table (mean and spread of each side's final angle per value of one column). Then
+and a summary table (mean and spread of each side's final angle per value of one column). A
+summary page of the conditions follows (``conditions_page``: separation against the condition
+with error bars, the table of conditions, ensemble proposals when given, the agreement with an
+imported second review). Then
 one panel per shot: vorticity map with vectors, ball outline, flight arrow, the plane normal to
 the flight, both separation marks (final and, when adjusted, the proposal), the numbers, the
 metadata and the analyst's review. Every page has a title block, a footer with the units and
@@ -26,6 +29,7 @@ from app.sheet.content import (
     summary_page_count,
     summary_rows,
 )
+from app.sheet.conditions_page import conditions_page_count, paint_conditions_page
 from app.sheet.cover import paint_cover
 from app.sheet.kit import DPI, Pages, ensure_gui_application
 from app.sheet.shot_panel import paint_shot, panel_cells
@@ -43,6 +47,7 @@ def make_sheet(
     statuses: tuple[str, ...] | None = None,
     column: str | None = None,
     progress: Callable[[int, int], None] | None = None,
+    ensembles: dict | None = None,
 ) -> SheetReport:
     """Write the shot sheet of ``session`` as a PDF.
 
@@ -63,6 +68,9 @@ def make_sheet(
         orientation when present.
     progress : callable(done, total), optional
         Called after each shot panel; an exception it raises stops the sheet (no file is left).
+    ensembles : dict, optional
+        Condition label -> ``core.ensemble.EnsembleView``: drawn on the summary page of the
+        conditions (grouped by the session's columns) beside the shots' means.
 
     Raises
     ------
@@ -84,7 +92,9 @@ def make_sheet(
             f"(choose from {', '.join(numeric_columns(records))})"
         )
     rows = summary_rows(records, column)
-    total = summary_page_count(len(rows)) + shot_page_count(len(records), per_page)
+    by, conditions = sheet_conditions(session, records)
+    total = (summary_page_count(len(rows)) + conditions_page_count(conditions)
+             + shot_page_count(len(records), per_page))
     out_path = Path(out_path)
     name = getattr(session, "name", "") or Path(session.path).stem
     _make_folder(out_path.parent)
@@ -97,11 +107,23 @@ def make_sheet(
             pages = Pages(painter, writer, name, total)
             paint_cover(pages, session, all_records, records, column, rows,
                         selection_text(records, all_records, shot_ids, statuses, per_page))
+            if conditions:
+                paint_conditions_page(pages, session, records, conditions, by, ensembles)
             _paint_shot_pages(pages, session, records, per_page, progress)
         finally:
             painter.end()
             del writer  # closes the file
     return SheetReport(out_path, pages.number, [r.shot_id for r in records])
+
+
+def sheet_conditions(session, records) -> tuple[list[str], list]:
+    """The grouping columns and conditions of the summary page: the session's columns (the
+    default ones until chosen); none when nothing groups the shots."""
+    from core.conditions import default_columns, group_conditions
+
+    stored = session.conditions_by() if hasattr(session, "conditions_by") else None
+    by = stored if stored is not None else default_columns(records)
+    return by, (group_conditions(records, by) if by else [])
 
 
 def _make_folder(folder: Path) -> None:
