@@ -155,7 +155,8 @@ def test_demo_command_without_window(demo_out, small_sample_runs, capsys):
     sheet, table = demo_out / "demo_sheet.pdf", demo_out / "demo_table.csv"
     assert f"shot sheet: {sheet}" in out and f"table:      {table}" in out
     shots = list(DEMO_SUBSET)
-    assert len(PdfReader(str(sheet)).pages) == 1 + math.ceil(len(shots) / 2)
+    # cover, the conditions page, two shots a page
+    assert len(PdfReader(str(sheet)).pages) == 1 + 1 + math.ceil(len(shots) / 2)
     with open(table, encoding="utf-8", newline="") as fh:
         rows = list(csv.DictReader(fh))
     assert [r["shot"] for r in rows] == shots
