@@ -24,9 +24,9 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 sys.path[:0] = [str(ROOT), str(ROOT / "tests")]
 
-from data.repeat_shots import repeat_launches  # noqa: E402
+from data.repeat_shots import repeat_launches
 
-from core.ensemble import (  # noqa: E402
+from core.ensemble import (
     SIDES,
     common_frame,
     condition_separation,

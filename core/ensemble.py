@@ -46,7 +46,7 @@ from scipy.signal import fftconvolve
 
 from core import WakelineError
 from core.geometry import SIDES, flight_unit, side_normal
-from core.results import BallFit, Flight, SeparationResult, SideProposal, VectorField
+from core.results import BallFit, Flight, SeparationResult, SideProposal
 from core.settings import PivPass, PivSettings
 
 #: Extent of the common frame around the ball, in radii: ahead of it, behind it (the wake) and
@@ -176,8 +176,8 @@ def common_frame(poses: list[ShotPose]) -> CommonFrame:
     radius = float(np.median([p.radius_px for p in poses]))
     leftward = sum(math.cos(math.radians(p.flight_deg)) < 0 for p in poses)
     flight = 180.0 if 2 * leftward >= len(poses) else 0.0
-    width = int(math.ceil((AHEAD_RADII + BEHIND_RADII) * radius))
-    height = int(math.ceil(2 * ACROSS_RADII * radius))
+    width = math.ceil((AHEAD_RADII + BEHIND_RADII) * radius)
+    height = math.ceil(2 * ACROSS_RADII * radius)
     behind = BEHIND_RADII * radius
     cx = behind if flight == 0.0 else width - 1 - behind
     stream = float(np.median([math.hypot(*p.displacement_px) * radius / p.radius_px
@@ -312,7 +312,7 @@ def near_wall_planes(pairs, common: CommonFrame, side: str) -> NearWallPlanes:
     y0, x0, keep, phi, gap = y0[use], x0[use], keep[use], phi[use], gap[use]
     flow = _potential_stream(common, side, phi, gap)
     catch = CATCH_STREAM * stream + CATCH_PX
-    reach = int(math.ceil(0.5 * float(np.hypot(*flow.T).max()) + catch)) + 1
+    reach = math.ceil(0.5 * float(np.hypot(*flow.T).max()) + catch) + 1
     shift = np.rint(0.5 * flow).astype(int) - reach
     planes = [_window_planes(a, b, unseen | ~kept_ball, keep, y0, x0, shift, reach)
               for a, b, unseen in pairs]
@@ -524,7 +524,6 @@ def _tell(progress, done: int, total: int, message: str):
         from core.piv import Cancelled
 
         raise Cancelled(message)
-    return None
 
 
 def session_ensemble(session, shot_ids, settings: PivSettings | None = None,

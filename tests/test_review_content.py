@@ -108,8 +108,8 @@ def test_a_newer_journal_record_is_named_and_nothing_is_changed(session_path):
     (["S0,adjusted,abc,2,,,,x"], r"upper_final_deg 'abc' is not a number"),
     (["S0,unusable,,,,,,x"], r"unusable without a reason"),
     (["S0,accepted,1,2,,,,x", "S0,accepted,1,2,,,,x"], r"line 3 \(shot S0\): given twice"),
-    (["S0,maybe,1,2,,,,x", "S9,accepted,,,,,,"], r"\(and 1 more bad row\(s\)\); nothing was "
-                                                 "imported"),
+    (["S0,maybe,1,2,,,,x", "S9,accepted,,,,,,"],
+     r"\(and 1 more bad row\(s\)\); nothing was imported"),
 ])
 def test_a_bad_review_table_is_refused_whole_in_one_line(tmp_path, rows, problem):
     path = _review(tmp_path, rows)

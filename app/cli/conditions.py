@@ -141,8 +141,8 @@ def condition_lines(condition, ensemble=None) -> list[str]:
     """A condition's statistics as text lines."""
     from app.review.text import spread_text
 
-    lines = [f"{condition.label}: {len(condition.usable_ids)} of {len(condition.shot_ids)} "
-             f"shot(s) usable"]
+    usable = f"{len(condition.usable_ids)} of {len(condition.shot_ids)} shot(s) usable"
+    lines = [f"{condition.label}: {usable}"]
     for name, spread in (("upper", condition.sides["upper"]),
                          ("lower", condition.sides["lower"]),
                          ("upper - lower", condition.difference),

@@ -55,11 +55,14 @@ class StatisticsPanel(QWidget):
         The condition (``core.conditions.Condition``) whose ensemble view was asked for.
     review_asked()
         "Import review…" was pressed.
+    problem(str)
+        A change the store refused, in one line.
     """
 
     shots_chosen = Signal(list)
     ensemble_asked = Signal(object)
     review_asked = Signal()
+    problem = Signal(str)
 
     def __init__(self, model, parent: QWidget | None = None) -> None:
         super().__init__(parent)
@@ -118,9 +121,8 @@ class StatisticsPanel(QWidget):
 
     def refresh(self) -> None:
         """Rebuild the grouping menu, the table and the agreement from the model."""
-        chosen = self.model.conditions_by()
-        self._fill_group_menu(chosen)
         self.conditions = self.model.conditions() if self.model.session is not None else []
+        self._fill_group_menu(self.model.conditions_by())
         selected = self.selected_condition()
         blocker = self.table.blockSignals(True)
         self.table.setRowCount(len(self.conditions))
@@ -149,7 +151,7 @@ class StatisticsPanel(QWidget):
             action.toggled.connect(lambda on, c=column: self._toggle_column(c, on))
             self.group_menu.addAction(action)
         self.group_button.setText(", ".join(chosen) or "nothing (all shots together)")
-        same = common_text(self.model.conditions()) if self.model.session is not None else ""
+        same = common_text(self.conditions)
         self.group_button.setToolTip(f"every condition: {same}" if same else
                                      "manifest columns whose values make a condition (kept "
                                      "in the session)")
@@ -162,7 +164,7 @@ class StatisticsPanel(QWidget):
         try:
             self.model.set_conditions_by(columns)
         except WakelineError as exc:
-            self.agreement_label.setText(str(exc))
+            self.problem.emit(str(exc))
 
     def _ensemble_cell(self, condition) -> str:
         return compact_ensemble_text(self.ensembles.get(condition.label))
@@ -248,6 +250,7 @@ def install_statistics(window) -> StatisticsPanel:
     panel.shots_chosen.connect(lambda ids: select_shots(window, ids))
     panel.ensemble_asked.connect(lambda condition: start_ensemble(window, condition))
     panel.review_asked.connect(lambda: import_review_dialog(window))
+    panel.problem.connect(lambda text: window.show_problem("Grouping not saved", text))
     window.statistics, window.statistics_dock = panel, dock
     window.show_ensemble = lambda condition, view: show_ensemble(window, condition, view)
     return panel

@@ -40,8 +40,8 @@ class EnsembleDialog(QDialog):
             result=view.result, proposed_deg=proposed, final_deg=final, editable=False))
         self.numbers.setText("\n".join([
             *ensemble_lines(condition, view),
-            "Ball frame (the ball at rest), common to the shots; round mark: the ensemble's "
-            "proposal, diamond: the mean of the shots' final angles."]))
+            ("Ball frame (the ball at rest), common to the shots; round mark: the ensemble's "
+             "proposal, diamond: the mean of the shots' final angles.")]))
 
 
 def show_ensemble(window, condition, view) -> EnsembleDialog:

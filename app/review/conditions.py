@@ -106,7 +106,6 @@ class PlotPoint:
     """One condition on the separation-vs-condition plot (angles in deg)."""
 
     x: float
-    label: str
     side: str
     mean: float
     low: float | None  # the confidence interval (None with one shot)
@@ -125,18 +124,16 @@ def plot_points(conditions, ensembles=None) -> tuple[str, list[PlotPoint]]:
         if column and x is None:
             continue  # no value in the plotted column
         x = float(index + 1) if x is None else x
-        others = {k: v for k, v in condition.values.items() if k != column}
-        label = ", ".join(f"{v}" for v in others.values() if v) or condition.label
         for side, spread in condition.sides.items():
             if spread.mean is not None:
-                points.append(PlotPoint(x, label, side, spread.mean, spread.low, spread.high))
+                points.append(PlotPoint(x, side, spread.mean, spread.low, spread.high))
         view = (ensembles or {}).get(condition.label)
         if view is not None and not isinstance(view, str):
             for side in ("upper", "lower"):
                 p = getattr(view.separation, side)
                 if p.angle_deg is not None:
                     u = p.uncertainty_deg
-                    points.append(PlotPoint(x, label, side, p.angle_deg,
+                    points.append(PlotPoint(x, side, p.angle_deg,
                                             None if u is None else p.angle_deg - u,
                                             None if u is None else p.angle_deg + u, "ensemble"))
     return (column or "condition"), points

@@ -20,6 +20,7 @@ from pathlib import Path
 from PySide6 import QtCore, QtGui
 
 from app.review.overview import default_column, numeric_columns
+from app.sheet.conditions_page import conditions_page_count, paint_conditions_page
 from app.sheet.content import (
     PER_PAGE_CHOICES,
     SheetReport,
@@ -29,7 +30,6 @@ from app.sheet.content import (
     summary_page_count,
     summary_rows,
 )
-from app.sheet.conditions_page import conditions_page_count, paint_conditions_page
 from app.sheet.cover import paint_cover
 from app.sheet.kit import DPI, Pages, ensure_gui_application
 from app.sheet.shot_panel import paint_shot, panel_cells

@@ -8,8 +8,8 @@ import shutil
 from dataclasses import replace
 
 from core.store.companions import companion_files
-from core.store.reviews import CONTENT_OPS
 from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id, damage_reason
+from core.store.reviews import CONTENT_OPS
 from core.store.snapshot import Place, pending_name, summary_from
 
 
