@@ -333,8 +333,8 @@ class SessionModel(QObject):
 
     def ensemble(self, shot_ids, should_stop=None, report=None):
         """The ensemble view of some shots (``core.ensemble.session_ensemble``); runs on a
-        worker thread. ``report(done, total, message)``; ``should_stop()`` ends it early
-        (``core.piv.Cancelled``)."""
+        worker thread. ``report((done, total, message))`` tells the progress; ``should_stop()``
+        ends it early (``core.piv.Cancelled``)."""
         from core.ensemble import session_ensemble
 
         def progress(done, total, message):
