@@ -102,16 +102,16 @@ def grouping_of(session, by: list[str] | None) -> list[str]:
     return by
 
 
-def condition_ensembles(session, conditions, quiet: bool = False) -> dict:
-    """The ensemble view of each condition, by label (the reason as text where there is none)."""
+def condition_ensembles(session, conditions) -> dict:
+    """The ensemble view of each condition, by label (the reason as text where there is none);
+    a line on stderr as each one starts."""
     import sys
 
     from core.ensemble import session_ensemble
 
     out = {}
     for number, condition in enumerate(conditions, start=1):
-        if not quiet:
-            print(f"ensemble {number}/{len(conditions)}: {condition.label}", file=sys.stderr)
+        print(f"ensemble {number}/{len(conditions)}: {condition.label}", file=sys.stderr)
         try:
             out[condition.label] = session_ensemble(session, condition.usable_ids)
         except WakelineError as exc:
