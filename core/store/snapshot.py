@@ -25,7 +25,7 @@ from core.store.manifest import NUMBER_COLUMNS
 from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id, damage_reason
 from core.summary import ShotSummary
 
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
 _HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
 #: HDF5 object layout of the files written: from 1.10 on, object headers (attributes, links,
 #: a dataset's layout and filters), the superblock and chunk indexes carry checksums.
@@ -47,6 +47,8 @@ class Snapshot:
     shots: list[dict] = field(default_factory=list)  # index entries, see _index_entry
     unused_bytes: int = 0
     checksummed: bool = False  # written with checksums (Fletcher-32 arrays, SHA-256 texts)
+    conditions_by: list[str] | None = None  # grouping columns (version 2)
+    review_layers: list[dict] = field(default_factory=list)  # other analysts' reviews (2)
 
 
 def h5_image(write=None) -> bytes:
@@ -145,6 +147,19 @@ def check_signature(path: Path) -> None:
 
 
 def _load_v1(f: h5py.File) -> Snapshot:
+    return _load_index(f)[0]
+
+
+def _load_v2(f: h5py.File) -> Snapshot:
+    """Version 2 adds the grouping columns and the review layers to the index
+    (``core.store.reviews``)."""
+    snapshot, index = _load_index(f)
+    snapshot.conditions_by = index.get("conditions_by")
+    snapshot.review_layers = list(index.get("review_layers") or [])
+    return snapshot
+
+
+def _load_index(f: h5py.File) -> tuple[Snapshot, dict]:
     index = json.loads(as_text(read_text(f["index"], _root_texts(f.attrs))))
     return Snapshot(
         name=str(f.attrs.get("name", "")),
@@ -154,12 +169,12 @@ def _load_v1(f: h5py.File) -> Snapshot:
         shots=list(index["shots"]),
         unused_bytes=int(f.attrs.get("unused_bytes", 0)),
         checksummed="sha256" in f["index"].attrs,
-    )
+    ), index
 
 
 # A new format version adds its loader here; each loader returns the current in-memory model,
 # which is the migration: the next compaction writes the file in the current version.
-_LOADERS = {1: _load_v1}
+_LOADERS = {1: _load_v1, 2: _load_v2}
 
 
 
@@ -409,7 +424,9 @@ class SnapshotWriting:
         dst.attrs["processing_settings"] = dumps(self._processing)
         dst.attrs["unused_bytes"] = int(self._unused_bytes)
         index = {"shots": [index_entry(rec, self._places[rec.shot_id])
-                           for rec in self._records.values()]}
+                           for rec in self._records.values()],
+                 "conditions_by": self._conditions_by,
+                 "review_layers": [layer.to_dict() for layer in self._layers.values()]}
         if "index" in dst:
             del dst["index"]
         write_text(dst, "index", dumps(index), _root_texts(dst.attrs))
