@@ -54,8 +54,8 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
             "Student t on the shot-to-shot spread.")
     if ensembles:
         note += (" Hollow diamonds: the condition's ensemble proposal (shots aligned on the "
-                 "ball and correlated as one) with its interval (bootstrap over the shots and "
-                 "the layer's departure angle).")
+                 "ball, one layer fitted to all of them) with its interval (the fit's and the "
+                 "launches' spread).")
     used = text(p, rect_mm(x, y, w, 12), note, 7.5, colour=colours.MUTED_INK)
     y += used.height() / mm(1) + 2
     axis, points = plot_points(conditions, ensembles)
