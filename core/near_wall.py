@@ -186,6 +186,26 @@ class NearWallBand:
         return (a - b) / self.scale
 
 
+class JointBand:
+    """Several shots' bands on the same samples (their frames in one ball frame), as one band:
+    a model's residuals are those of every shot, one after the other."""
+
+    def __init__(self, bands: list[NearWallBand]):
+        self.bands = bands
+        first = bands[0]
+        self.ball, self.side = first.ball, first.side
+        self.phi_grid, self.gap_grid = first.phi_grid, first.gap_grid
+        self.phi, self.gap, self.rho = first.phi, first.gap, first.rho
+        self.inside_fraction = min(b.inside_fraction for b in bands)
+        self.kept_fraction = min(b.kept_fraction for b in bands)
+
+    def view(self, phi_deg=None, *, every: int = 1) -> JointBand:
+        return JointBand([b.view(phi_deg, every=every) for b in self.bands])
+
+    def residual(self, u_t: np.ndarray, u_r: np.ndarray) -> np.ndarray:
+        return np.concatenate([b.residual(u_t, u_r) for b in self.bands])
+
+
 def _polar_picture(frame, *, ball: BallMotion, side: str, shift_px, rho_axis, phi_axis):
     """``frame`` resampled (cubic spline) at ``centre + shift + rho e(phi)``: ``(Nr, Nphi)``."""
     (ex, ey), _ = side_axes(ball.flight_deg, side, phi_axis)

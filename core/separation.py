@@ -46,6 +46,7 @@ from scipy.optimize import least_squares
 from core.layer_model import PARAM_NAMES, SideGeometry, side_flow
 from core.near_wall import (
     BallMotion,
+    JointBand,
     NearWallBand,
     OuterStream,
     SeedingMap,
@@ -332,6 +333,39 @@ def fit_side(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, si
     problem = side_problem(frame_a, frame_b, ball, fine, origin_px, side, final_deg, glare)
     if isinstance(problem, str):
         return SideProposal(None, None, 0.0, problem)
+    return fit_problem(problem, ball, final_deg)
+
+
+def fit_shots_side(pairs, ball: BallFrame, fine: VectorField, origin_px, side: str, *,
+                   final_deg: float = 0.0) -> SideProposal:
+    """One layer fitted to the particle images of several shots at once (a condition's repeat
+    launches), each frame pair already resampled into one ball frame where the ball sits still
+    at ``ball``'s circle (``ball.displacement_px`` (0, 0), ``ball.stream_px`` the air's speed).
+
+    Parameters
+    ----------
+    pairs : list of ((H, W) ndarray, (H, W) ndarray)
+        Frames A and B of each shot in the common ball frame.
+    ball, fine, origin_px, side, final_deg
+        As for :func:`fit_side`; ``fine`` is the shots' common field (e.g. their ensemble
+        correlation) in the ball frame.
+    """
+    outer = outer_stream(fine, origin_px, ball, side, BAND_DEG)
+    if outer is None:
+        return SideProposal(None, None, 0.0, "too few valid vectors beside the ball to model "
+                            "the stream there")
+    delta_prior = ball.laminar_delta_px()
+    last_gap = float(np.clip(BAND_FIRST_GAP_PX + BAND_DEPTH * 2.0 * delta_prior,
+                             *BAND_LAST_GAP_PX))
+    bands = [NearWallBand(a, b, ball.motion, side, phi_deg=BAND_DEG,
+                          gap_px=(BAND_FIRST_GAP_PX, last_gap), max_speed_px=2.0 * ball.stream,
+                          arc_step_px=BAND_ARC_STEP_PX) for a, b in pairs]
+    problem = SideProblem(JointBand(bands), outer, final_deg, math.log(delta_prior))
+    return fit_problem(problem, ball, final_deg)
+
+
+def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> SideProposal:
+    """The fit of one side's problem: coarse search, refinements, the uncertainty budget."""
     attached = problem.band.residual(problem.u_t, problem.u_r)
     attached_cost = float(np.sum(attached**2))
     # residual scale: neighbouring samples are correlated, so one independent value per

@@ -228,7 +228,8 @@ def test_demo_command_without_window(small_demo, small_recipe, capsys):
     from core.store import Session
 
     sheet, table = small_demo / "demo_sheet.pdf", small_demo / "demo_table.csv"
-    assert len(PdfReader(str(sheet)).pages) == 1 + math.ceil(len(DEMO_SUBSET) / 2)
+    # cover, the conditions page, two shots a page
+    assert len(PdfReader(str(sheet)).pages) == 1 + 1 + math.ceil(len(DEMO_SUBSET) / 2)
     by_shot = _rows(table)
     assert list(by_shot) == list(DEMO_SUBSET)
     reviews = _rows(small_recipe / "reviews.csv")

@@ -189,8 +189,8 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
     sheet = tmp_path / "from_window.pdf"
     monkeypatch.setattr("app.qt.export.ask_path", lambda *a, **k: str(sheet))
     window.act_export_sheet.trigger()
-    assert len(PdfReader(str(sheet)).pages) == 1 + 2
+    assert len(PdfReader(str(sheet)).pages) == 1 + 1 + 2  # cover, conditions, shots
     report = export_sheet(window, tmp_path / "one.pdf", per_page=1, shot_ids=["s04"])
-    assert report.pages == 2 and report.shot_ids == ["s04"]
+    assert report.pages == 3 and report.shot_ids == ["s04"]
     assert export_sheet(window, tmp_path / "none.pdf", shot_ids=["nope"]) is None
     assert "no shot 'nope'" in window.last_problem

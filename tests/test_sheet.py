@@ -60,7 +60,7 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
     with Session.open(reviewed_session, writable=False) as session:
         report = make_sheet(session, out, per_page=2)
     n_pages, text = _pdf_text(out)
-    assert n_pages == report.pages == 1 + math.ceil(5 / 2)
+    assert n_pages == report.pages == 1 + 1 + math.ceil(5 / 2)  # cover, conditions, shots
     rows = _table(reviewed_session, tmp_path / "table.csv")
     finals = 0
     for row in rows:
@@ -74,9 +74,11 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
     assert "+17.25°" in text  # the analyst's value to 0.01 deg, not the proposal
     assert "ADJUSTED" in text and "ball cut by the frame edge" in text
     assert "moved to the shear-layer root" in text
-    assert "page 1 of 4" in text and "page 4 of 4" in text
+    assert "page 1 of 5" in text and "page 5 of 5" in text
     # cover: counts by status and the summary table's column
     assert "Final angles by seam_deg" in text
+    # the conditions page: grouped by the seam angle, one row per seam angle
+    assert "Separation by condition" in text and "Shots grouped by seam_deg" in text
 
 
 def test_sheet_page_renders_with_content(reviewed_session, tmp_path):
@@ -88,7 +90,7 @@ def test_sheet_page_renders_with_content(reviewed_session, tmp_path):
     out = tmp_path / "sheet.pdf"
     with Session.open(reviewed_session, writable=False) as session:
         make_sheet(session, out, per_page=1, shot_ids=["s02"])
-    subprocess.run(["pdftoppm", "-r", "40", "-png", "-f", "2", "-l", "2", str(out),
+    subprocess.run(["pdftoppm", "-r", "40", "-png", "-f", "3", "-l", "3", str(out),
                     str(tmp_path / "page")], check=True)
     from skimage import io
 
@@ -108,7 +110,7 @@ def test_sheet_selection_and_layout(reviewed_session, tmp_path):
         report = make_sheet(session, tmp_path / "a.pdf", statuses=("accepted", "adjusted"),
                             per_page=4)
         assert report.shot_ids == ["s01", "s02", "s05"]
-        assert report.pages == 1 + 1
+        assert report.pages == 1 + 1 + 1
         report = make_sheet(session, tmp_path / "b.pdf", shot_ids=["s04", "s01"], per_page=3)
         assert report.shot_ids == ["s01", "s04"]
         _, text = _pdf_text(tmp_path / "b.pdf")
@@ -166,7 +168,7 @@ def test_sheet_command(reviewed_session, tmp_path, capsys):
     assert main(["sheet", reviewed_session, "-o", str(out), "--status", "accepted,adjusted",
                  "--per-page", "1", "--column", "seam_deg"]) == 0
     assert out.stat().st_size > 0
-    assert f"{out}: 4 page(s), 3 shot(s)" in capsys.readouterr().out
+    assert f"{out}: 5 page(s), 3 shot(s)" in capsys.readouterr().out  # with the conditions
     assert main(["sheet", reviewed_session, "-o", str(out), "--status", "finished"]) == 1
     err = capsys.readouterr().err.strip()
     assert err.startswith("wakeline: --status: unknown review status") and "\n" not in err

@@ -17,7 +17,8 @@ from pathlib import Path
 from core import WakelineError, __version__
 
 # Each module adds its subcommands with add_commands(subparsers); each subcommand sets func.
-COMMAND_MODULES = ("app.cli.pair", "app.cli.session", "app.cli.sheet", "app.cli.demo")
+COMMAND_MODULES = ("app.cli.pair", "app.cli.session", "app.cli.conditions", "app.cli.sheet",
+                   "app.cli.demo")
 
 
 def build_parser() -> argparse.ArgumentParser:

@@ -9,6 +9,7 @@ import signal
 import sys
 from pathlib import Path
 
+from app.cli.conditions import column_list
 from app.cli.options import check_outputs, known_ball_types, session_frame_files, whole_count
 from core import WakelineError
 
@@ -71,10 +72,17 @@ def _add_table(subparsers) -> None:
         help="write the table of picks as CSV",
         description="One row per shot: metadata, proposed and final separation angles on both "
         "sides, uncertainty, wake deflection and state, review status, who and when. "
-        "UTF-8 CSV with a header row; units are in the column names; empty cell = no value.",
+        "UTF-8 CSV with a header row; units are in the column names; empty cell = no value. "
+        "With --by: one row per condition instead (see 'wakeline conditions').",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
     p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.csv")
+    p.add_argument("--by", nargs="?", const=[], type=column_list, metavar="COLUMNS",
+                   help="one row per condition of these comma-separated manifest columns "
+                   "(alone: the session's grouping): shots, mean, sd and 95 %% interval of "
+                   "each side, upper - lower, wake deflection, Reynolds number range")
+    p.add_argument("--ensemble", action="store_true",
+                   help="with --by: add each condition's ensemble separation (slower)")
     p.set_defaults(func=run_table)
 
 
@@ -194,8 +202,25 @@ def _process_summary(path: Path, report) -> int:
 def run_table(args: argparse.Namespace) -> int:
     from core.store import Session, write_table_csv
 
+    if args.ensemble and args.by is None:
+        raise WakelineError("--ensemble: goes with --by (one row per condition)")
     with Session.open(args.session, writable=False) as session:
         check_outputs([args.output], session.path, session_frame_files(session))
+        if args.by is not None:
+            return _condition_table(session, args)
         count = write_table_csv(session, args.output)
     print(f"{args.output}: {count} shot(s)")
+    return 0
+
+
+def _condition_table(session, args: argparse.Namespace) -> int:
+    from app.cli.conditions import condition_ensembles, grouping_of
+    from core.conditions import group_conditions, write_condition_csv
+
+    by = grouping_of(session, args.by or None)
+    ensembles = None
+    if args.ensemble:
+        ensembles = condition_ensembles(session, group_conditions(session.values(), by))
+    count = write_condition_csv(session, args.output, by, ensembles)
+    print(f"{args.output}: {count} condition(s) by {', '.join(by) or 'nothing'}")
     return 0

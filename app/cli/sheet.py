@@ -17,8 +17,11 @@ def _add_sheet(subparsers) -> None:
         "sheet",
         help="write the shot sheet of a session as PDF",
         description="Write a vector PDF handing over a session: a cover page (counts by review "
-        "status, the overview plot of separation angles, a summary table of the final angles) "
-        "and a panel per shot (vorticity and vectors, ball, flight, separation marks, numbers, "
+        "status, the overview plot of separation angles, a summary table of the final angles), "
+        "a page of the conditions (separation against the condition with error bars, their "
+        "statistics, with --ensemble their ensemble proposals; the agreement with an imported "
+        "second review) and a panel per shot (vorticity and vectors, ball, flight, separation "
+        "marks, numbers, "
         "metadata, review). Needs no display.",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
@@ -37,6 +40,9 @@ def _add_sheet(subparsers) -> None:
                    help="the same vorticity colour range on every panel, so they compare: "
                    "+-W 1/s, or 'session' for one range from the shots on the sheet "
                    "(default: each panel its own)")
+    p.add_argument("--ensemble", action="store_true",
+                   help="add each condition's ensemble proposal to the conditions page "
+                   "(slower: correlates every condition's shots as one)")
     p.set_defaults(func=run_sheet)
 
 
@@ -59,8 +65,15 @@ def run_sheet(args: argparse.Namespace) -> int:
     statuses = parse_statuses(args.status)
     with Session.open(args.session, writable=False) as session:
         check_outputs([args.output], session.path, session_frame_files(session))
+        ensembles = None
+        if args.ensemble:
+            from app.cli.conditions import condition_ensembles
+            from app.sheet.document import sheet_conditions
+
+            records = list(session.values())
+            ensembles = condition_ensembles(session, sheet_conditions(session, records)[1])
         report = make_sheet(session, args.output, shot_ids=args.shots, per_page=args.per_page,
                             statuses=statuses, column=args.column,
-                            vorticity_limit_1_s=args.vorticity_limit)
+                            vorticity_limit_1_s=args.vorticity_limit, ensembles=ensembles)
     print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
     return 0

@@ -111,6 +111,9 @@ def export_sheet(window, path, **options):
         if dialog.wasCanceled():
             raise _Cancelled
 
+    statistics = getattr(window, "statistics", None)  # ensembles computed in this window
+    if statistics is not None and statistics.ensembles:
+        options.setdefault("ensembles", dict(statistics.ensembles))
     QApplication.setOverrideCursor(Qt.CursorShape.WaitCursor)
     try:
         report = make_sheet(session, path, progress=progress, **options)

@@ -37,7 +37,9 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from app.qt.analyst_marks import install_analyst_marks
 from app.qt.canvas import ShotCanvas
+from app.qt.conditions_panel import install_statistics
 from app.qt.export import install_export_actions, install_overview
 from app.qt.icons import app_icon, status_icon
 from app.qt.picture_export import install_picture_actions
@@ -121,6 +123,8 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         self._build_menus()
         self._connect()
         install_overview(self)
+        install_statistics(self)
+        install_analyst_marks(self)
         install_export_actions(self)
         install_picture_actions(self)
         self._restore_settings()

@@ -106,6 +106,7 @@ class SessionModel(QObject):
     current_changed = Signal(str)  # the current shot id ("" for none)
     record_changed = Signal(str)  # one shot's pick, result or processing state changed
     edit_refused = Signal(str)  # an undo or redo the store refused: its one-line reason
+    conditions_changed = Signal()  # the grouping columns or the imported reviews changed
 
     def __init__(self, parent: QObject | None = None, cache_size: int = 6,
                  frame_cache_size: int = 3) -> None:
@@ -114,6 +115,7 @@ class SessionModel(QObject):
         self._records: dict[str, ShotRecord] = {}
         self._order: list[str] = []
         self._current = ""
+        self._grouping: list[str] | None = None  # a read-only session's grouping, this window
         self._results = _Lru(cache_size)
         self._frames = _Lru(frame_cache_size)  # frame pairs are big (2 x 16 MB at 2048 px)
         self._usual_direction: list = []  # [the session's usual flight direction], once known
@@ -167,6 +169,7 @@ class SessionModel(QObject):
         if session is not None:
             self.closing.emit()
         self._session = None
+        self._grouping = None
         self._records.clear()
         self._order = []
         self._current = ""
@@ -354,3 +357,63 @@ class SessionModel(QObject):
     def write_table(self, path) -> int:
         """The table of picks as CSV (as ``wakeline table``); returns the row count."""
         return write_table_csv(self._session, path)
+
+    # -- conditions and other analysts' reviews (core.conditions, core.store.reviews) ---------
+    def conditions_by(self) -> list[str]:
+        """The session's grouping columns, or the default ones until the analyst chose."""
+        from core.conditions import default_columns
+
+        if self._session is None:
+            return []
+        if self.read_only and self._grouping is not None:
+            return list(self._grouping)
+        stored = self._session.conditions_by()
+        return stored if stored is not None else default_columns(self.records())
+
+    def set_conditions_by(self, columns) -> None:
+        """Keep new grouping columns in the session (read-only: for this window only)."""
+        columns = list(columns)
+        if columns == self.conditions_by():
+            return
+        if self.read_only:
+            self._grouping = columns
+        else:
+            self._session.set_conditions_by(columns)
+        self.conditions_changed.emit()
+
+    def conditions(self):
+        """The session's conditions with their statistics (``core.conditions.Condition``)."""
+        from core.conditions import group_conditions
+
+        return group_conditions(self.records(), self.conditions_by())
+
+    def review_layers(self) -> dict:
+        return {} if self._session is None else self._session.review_layers()
+
+    def import_review(self, path, name: str | None = None):
+        """Read another analyst's table into a layer of the session (``core.store.reviews``).
+
+        Raises
+        ------
+        core.WakelineError
+            A bad table (one line), or a read-only session.
+        """
+        from core.store.reviews import read_review_csv
+
+        layer = read_review_csv(path, self._order, name)
+        self._session.add_review_layer(layer)
+        self.conditions_changed.emit()
+        return layer
+
+    def ensemble(self, shot_ids, should_stop=None, report=None):
+        """The ensemble view of some shots (``core.ensemble.session_ensemble``); runs on a
+        worker thread. ``report((done, total, message))`` tells the progress; ``should_stop()``
+        ends it early (``core.piv.Cancelled``)."""
+        from core.ensemble import session_ensemble
+
+        def progress(done, total, message):
+            if report is not None:
+                report((done, total, message))
+            return bool(should_stop is not None and should_stop())
+
+        return session_ensemble(self._session, shot_ids, progress=progress)

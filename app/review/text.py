@@ -194,3 +194,14 @@ def shot_rows(summary: ShotSummary) -> list[tuple[str, str]]:
         rows.append(("ball", ball_text(summary)))
     rows.append(("vectors", vectors_text(summary.vectors)))
     return rows
+
+
+def spread_text(spread) -> str:
+    """A condition's values (``core.conditions.Spread``): ``+12.3° ± 1.5° (sd 1.2°, n 4)`` with
+    the half-width of the 95 % interval; the one value, or the em dash, with fewer shots."""
+    if spread.n == 0:
+        return MISSING
+    if spread.n == 1:
+        return f"{angle_text(spread.mean)} (one shot)"
+    return (f"{angle_text(spread.mean)} {uncertainty_text(spread.half_width)} "
+            f"(sd {angle_text(spread.sd, signed=False)}, n {spread.n})")

@@ -135,7 +135,7 @@ def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints
         py = plot.bottom() - (yv - ylo) / (yhi - ylo) * plot.height()
         return QtCore.QPointF(px, py)
 
-    _paint_axes(p, plot, (xlo, xhi), (ylo, yhi), to_page, pts.column)
+    paint_axes(p, plot, (xlo, xhi), (ylo, yhi), to_page, pts.column)
     p.setClipRect(plot)
     p.setPen(pen(colours.PLANE_LINE, 0.3, QtCore.Qt.PenStyle.DashLine))
     p.drawLine(to_page(xlo, 0.0), to_page(xhi, 0.0))
@@ -169,7 +169,7 @@ def _paint_error_bars(p, pts: OverviewPoints, xs: np.ndarray, to_page) -> None:
                            QtCore.QPointF(end.x() + cap, end.y()))
 
 
-def _paint_axes(p, plot: QtCore.QRectF, xr, yr, to_page, column: str) -> None:
+def paint_axes(p, plot: QtCore.QRectF, xr, yr, to_page, column: str) -> None:
     grid = pen(colours.RULE, 0.15)
     p.setPen(grid)
     for xv in nice_ticks(*xr, 8):

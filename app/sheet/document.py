@@ -1,7 +1,10 @@
 """The shot sheet: a vector PDF handing over a session, drawn with Qt's own PDF writer.
 
 Page 1 (the cover) names the session, counts shots by review status, shows the session overview
-and a summary table (mean and spread of each side's final angle per value of one column). Then
+and a summary table (mean and spread of each side's final angle per value of one column). A
+summary page of the conditions follows (``conditions_page``: separation against the condition
+with error bars, the table of conditions, ensemble proposals when given, the agreement with an
+imported second review). Then
 one panel per shot: vorticity map with vectors, ball outline, flight arrow, the plane normal to
 the flight, both separation marks (final and, when adjusted, the proposal), the numbers, the
 metadata and the analyst's review. Every page has a title block, a footer with the units and
@@ -20,6 +23,7 @@ from PySide6 import QtCore, QtGui
 from app.review.checks import session_direction, shot_checks
 from app.review.overview import default_column, numeric_columns
 from app.review.scales import shared_limit
+from app.sheet.conditions_page import conditions_page_count, paint_conditions_page
 from app.sheet.content import (
     PER_PAGE_CHOICES,
     SheetReport,
@@ -49,6 +53,7 @@ def make_sheet(
     column: str | None = None,
     vorticity_limit_1_s: float | str | None = None,
     progress: Callable[[int, int], None] | None = None,
+    ensembles: dict | None = None,
 ) -> SheetReport:
     """Write the shot sheet of ``session`` as a PDF.
 
@@ -73,6 +78,9 @@ def make_sheet(
         (``app.review.scales.shared_limit``); None (default): each panel its own range.
     progress : callable(done, total), optional
         Called after each shot panel; an exception it raises stops the sheet (no file is left).
+    ensembles : dict, optional
+        Condition label -> ``core.ensemble.EnsembleView``: drawn on the summary page of the
+        conditions (grouped by the session's columns) beside the shots' means.
 
     Raises
     ------
@@ -100,7 +108,9 @@ def make_sheet(
         raise WakelineError(f"--vorticity-limit: a positive number or '{SESSION_RANGE}', not "
                             f"{vorticity_limit_1_s!r}")
     rows = summary_rows(records, column)
-    total = summary_page_count(len(rows)) + shot_page_count(len(records), per_page)
+    by, conditions = sheet_conditions(session, records)
+    total = (summary_page_count(len(rows)) + conditions_page_count(conditions)
+             + shot_page_count(len(records), per_page))
     out_path = Path(out_path)
     name = getattr(session, "name", "") or Path(session.path).stem
     _make_folder(out_path.parent)
@@ -114,12 +124,24 @@ def make_sheet(
             paint_cover(pages, session, all_records, records, column, rows,
                         selection_text(records, all_records, shot_ids, statuses, per_page,
                                        vorticity_limit_1_s))
+            if conditions:
+                paint_conditions_page(pages, session, records, conditions, by, ensembles)
             _paint_shot_pages(pages, session, records, per_page, vorticity_limit_1_s, progress,
                               session_direction(all_records))
         finally:
             painter.end()
             del writer  # closes the file
     return SheetReport(out_path, pages.number, [r.shot_id for r in records])
+
+
+def sheet_conditions(session, records) -> tuple[list[str], list]:
+    """The grouping columns and conditions of the summary page: the session's columns (the
+    default ones until chosen); none when nothing groups the shots."""
+    from core.conditions import default_columns, group_conditions
+
+    stored = session.conditions_by() if hasattr(session, "conditions_by") else None
+    by = stored if stored is not None else default_columns(records)
+    return by, (group_conditions(records, by) if by else [])
 
 
 def _make_folder(folder: Path) -> None:

@@ -24,6 +24,10 @@ Method (each step a published one, named where it is used):
    by the overlap weight ``1 - |s|/D`` of a circular correlation of ``D``-wide windows (the
    bias of un-normalised FFT correlation, Westerweel 1997).
 
+Ensembles: ``correlate_ensemble`` runs the same passes over several pairs of one flow (repeat
+shots resampled into a common frame), summing their correlation planes window by window before
+each peak search (Meinhart, Wereley & Santiago 2000); ``correlate_pair`` is its ensemble of one.
+
 Masks: masked pixels are set to the window mean (they add nothing to the correlation). After
 deformation a pixel excluded in either frame, or sampled from beyond the image, is excluded in
 both. A partly masked window measures the flow at the centroid of its unmasked pixels; its
@@ -43,7 +47,7 @@ Modules: ``correlate`` (the passes and the vector field), ``peaks`` (sub-pixel p
 are in ``core.settings`` (plain data the session store keeps without this package).
 """
 
-from core.piv.correlate import BAND_WINDOWS, Cancelled, correlate_pair
+from core.piv.correlate import BAND_WINDOWS, Cancelled, correlate_ensemble, correlate_pair
 from core.piv.peaks import gaussian_peak_offset, parabolic_peak_offset
 from core.settings import PivPass, PivSettings
 
@@ -52,6 +56,7 @@ __all__ = [
     "Cancelled",
     "PivPass",
     "PivSettings",
+    "correlate_ensemble",
     "correlate_pair",
     "gaussian_peak_offset",
     "parabolic_peak_offset",

@@ -6,6 +6,7 @@ from __future__ import annotations
 import math
 import os
 from collections.abc import Callable
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -35,7 +36,18 @@ class _PassResult:
     dx: np.ndarray  # (M, N) residual displacement, px (NaN: no correlation)
     dy: np.ndarray
     peak_ratio: np.ndarray
-    masked: np.ndarray  # (M, N) bool
+    masked: np.ndarray  # (M, N) bool: no pair took part in the window
+
+
+@dataclass
+class _PassInput:
+    """One pair's frames of a pass (deformed after the first), their masks, the masked pixels
+    per window and the windows this pair leaves out (mostly masked, or centre masked)."""
+
+    pair: tuple[np.ndarray, np.ndarray]
+    masks: tuple[np.ndarray | None, np.ndarray | None]
+    counts: list[np.ndarray | None]
+    excluded: np.ndarray  # (M, N) bool
 
 
 def _window_spectra(source, mask, counts, grid: Grid, rows: slice):
@@ -79,44 +91,64 @@ def _window_spectra(source, mask, counts, grid: Grid, rows: slice):
 BAND_WINDOWS = 2048
 
 
-def _correlate(pair, masks, counts, grid: Grid, settings, frames, owned) -> _PassResult:
-    """Circular cross-correlation ``c[s] = sum_x a[x] b[x + s]`` of every window pair and its
-    peaks, in bands of grid rows on the worker threads (each band one batched FFT per frame).
-    ``pair``, ``masks``, ``counts``: frames, masks and masked pixels per window of A and B;
-    ``owned``: the frames are scratch arrays that may be overwritten."""
-    sources = []
-    for image, mask in zip(pair, masks, strict=True):
-        if mask is not None:
-            image = image if owned else image.copy()
-            image[mask] = 0
-        sources.append(image)
+def _pair_planes(sources, item: _PassInput, grid: Grid, rows: slice, settings):
+    """Correlation planes of one pair's windows in grid rows ``rows``, ``(K, D, D)``, zero in
+    the windows the pair leaves out, and which windows it took part in, ``(K,)``."""
+    windows = slice(rows.start * grid.cols, rows.stop * grid.cols)
+    spec, frac_a = _window_spectra(
+        sources[0], item.masks[0], _band(item.counts[0], windows), grid, rows
+    )
+    spec_b, frac_b = _window_spectra(
+        sources[1], item.masks[1], _band(item.counts[1], windows), grid, rows
+    )
+    np.conjugate(spec, out=spec)
+    spec *= spec_b
+    del spec_b
+    planes = scipy.fft.irfft2(spec, s=(grid.window, grid.window), overwrite_x=True)
+    del spec
+    used = ~(item.excluded[rows].ravel() | (np.maximum(frac_a, frac_b)
+                                            > settings.max_masked_fraction))
+    planes[~used] = 0.0
+    return planes, used
+
+
+def _correlate(inputs: list[_PassInput], grid: Grid, settings, ensemble, owned) -> _PassResult:
+    """Circular cross-correlation ``c[s] = sum_x a[x] b[x + s]`` of every window pair, summed
+    over the pairs of an ensemble window by window (one pair: its own planes), and the peaks of
+    the sums, in bands of grid rows on the worker threads (each band one batched FFT per frame
+    and pair). ``owned``: the frames are scratch arrays that may be overwritten."""
+    all_sources = []
+    for item in inputs:
+        sources = []
+        for image, mask in zip(item.pair, item.masks, strict=True):
+            if mask is not None:
+                image = image if owned else image.copy()
+                image[mask] = 0
+            sources.append(image)
+        all_sources.append(sources)
     # a flat window (no texture) gives a plane of round-off only
-    floor = 1e-4 * grid.window**2 * frames.power
+    floor = 1e-4 * grid.window**2 * sum(frames.power for frames in ensemble)
+    first = ensemble[0]
     # bands of at most BAND_WINDOWS windows, and at least one per worker
-    per_band = max(1, min(BAND_WINDOWS // grid.cols, math.ceil(grid.rows / frames.workers)))
+    per_band = max(1, min(BAND_WINDOWS // grid.cols, math.ceil(grid.rows / first.workers)))
     bands = [slice(r, min(r + per_band, grid.rows)) for r in range(0, grid.rows, per_band)]
 
     def band_peaks(rows: slice):
-        windows = slice(rows.start * grid.cols, rows.stop * grid.cols)
-        spec, frac_a = _window_spectra(
-            sources[0], masks[0], _band(counts[0], windows), grid, rows
-        )
-        spec_b, frac_b = _window_spectra(
-            sources[1], masks[1], _band(counts[1], windows), grid, rows
-        )
-        np.conjugate(spec, out=spec)
-        spec *= spec_b
-        del spec_b
-        planes = scipy.fft.irfft2(spec, s=(grid.window, grid.window), overwrite_x=True)
-        del spec
-        return (*correlation_peaks(planes, floor), np.maximum(frac_a, frac_b))
+        total, taking = None, None
+        for sources, item in zip(all_sources, inputs, strict=True):
+            planes, used = _pair_planes(sources, item, grid, rows, settings)
+            if total is None:
+                total, taking = planes, used
+            else:
+                total += planes
+                taking |= used
+        return (*correlation_peaks(total, floor), taking)
 
-    results = frames.run(band_peaks, bands)
-    dx, dy, ratio, fraction = (np.concatenate(parts) for parts in zip(*results, strict=True))
-    masked = fraction > settings.max_masked_fraction
+    results = first.run(band_peaks, bands)
+    dx, dy, ratio, taking = (np.concatenate(parts) for parts in zip(*results, strict=True))
     shape = (grid.rows, grid.cols)
     return _PassResult(
-        dx.reshape(shape), dy.reshape(shape), ratio.reshape(shape), masked.reshape(shape)
+        dx.reshape(shape), dy.reshape(shape), ratio.reshape(shape), ~taking.reshape(shape)
     )
 
 
@@ -170,19 +202,69 @@ def correlate_pair(
     settings = settings or PivSettings()
     frames = _checked_frames(frame_a, frame_b, mask_a, mask_b, settings)
     try:
-        return _all_passes(frames, settings, progress)
+        return _all_passes([frames], settings, progress)
     finally:
         frames.close()
 
 
-def _all_passes(frames: Frames, settings: PivSettings, progress) -> VectorField:
+def correlate_ensemble(
+    pairs,
+    settings: PivSettings | None = None,
+    progress: Progress | None = None,
+) -> VectorField:
+    """Mean displacement field of several frame pairs of one flow by ensemble correlation.
+
+    Every pass sums the correlation planes of all pairs window by window before the peak is
+    sought (ensemble correlation: Meinhart, Wereley & Santiago 2000), so a window that holds
+    too few particle images in one pair for a clear peak has a clear one in the sum; later
+    passes deform every pair by the ensemble's own predictor. The pairs must show the same flow
+    in the same place (e.g. repeat shots resampled into a common frame). One pair gives what
+    :func:`correlate_pair` gives.
+
+    Parameters
+    ----------
+    pairs : sequence of (frame_a, frame_b, mask_a, mask_b)
+        Same-shaped frames; masks as in :func:`correlate_pair` (None: nothing masked). A pair
+        takes no part in a window it masks beyond ``max_masked_fraction`` or at its centre.
+    settings, progress
+        As in :func:`correlate_pair`; the flat-window floor adds up over the pairs.
+
+    Returns
+    -------
+    VectorField
+        As from :func:`correlate_pair`; ``masked`` where no pair took part.
+
+    Raises
+    ------
+    core.WakelineError
+        No pairs, frames of different shapes, or as in :func:`correlate_pair`.
+    """
+    settings = settings or PivSettings()
+    if not pairs:
+        raise WakelineError("ensemble correlation: no frame pairs")
+    ensemble = [_checked_frames(*pair, settings) for pair in pairs]
+    shapes = {frames.a.shape for frames in ensemble}
+    if len(shapes) > 1:
+        raise WakelineError(f"ensemble correlation: frames of different shapes {sorted(shapes)}")
+    if ensemble[0].workers > 1:  # one set of worker threads for all pairs
+        pool = ThreadPoolExecutor(ensemble[0].workers)
+        for frames in ensemble:
+            frames.pool = pool
+    try:
+        return _all_passes(ensemble, settings, progress)
+    finally:
+        for frames in ensemble:
+            frames.close()
+
+
+def _all_passes(ensemble: list[Frames], settings: PivSettings, progress) -> VectorField:
     total = len(settings.passes)
     _report(progress, 0, total, "correlating")
     warnings: list[str] = []
     predictor: Predictor | None = None
     for number, p in enumerate(settings.passes, start=1):
-        grid = grid_for(frames.a.shape, p)
-        dx, dy, ratio, masked = _run_pass(frames, grid, predictor, settings)
+        grid = grid_for(ensemble[0].a.shape, p)
+        dx, dy, ratio, masked = _run_pass(ensemble, grid, predictor, settings)
         outliers = _outliers(dx, dy, masked, settings)
         if number == 1:
             warnings += _quarter_rule(dx, dy, outliers, masked, p.window_px)
@@ -195,21 +277,27 @@ def _all_passes(frames: Frames, settings: PivSettings, progress) -> VectorField:
     raise AssertionError("unreachable: the last pass returns")
 
 
-def _run_pass(frames: Frames, grid: Grid, predictor: Predictor | None, settings):
+def _run_pass(ensemble: list[Frames], grid: Grid, predictor: Predictor | None, settings):
     """Correlate one pass; returns total displacement, peak ratio and masked cells."""
-    if predictor is None:
-        pair, masks = (frames.a, frames.b), (frames.mask_a, frames.mask_b)
-    else:
-        a, b, mask = frames.deformed(predictor, grid, settings.deform_min_change_px)
-        pair, masks = (a, b), (mask, mask)
-    counts = [_counts_or_none(masks[0], grid)]
-    counts.append(counts[0] if masks[1] is masks[0] else _counts_or_none(masks[1], grid))
-    res = _correlate(pair, masks, counts, grid, settings, frames, owned=predictor is not None)
+    inputs = []
+    for frames in ensemble:
+        if predictor is None:
+            pair, masks = (frames.a, frames.b), (frames.mask_a, frames.mask_b)
+        else:
+            a, b, mask = frames.deformed(predictor, grid, settings.deform_min_change_px)
+            pair, masks = (a, b), (mask, mask)
+        counts = [_counts_or_none(masks[0], grid)]
+        counts.append(counts[0] if masks[1] is masks[0] else _counts_or_none(masks[1], grid))
+        inputs.append(_PassInput(pair, masks, counts, _centre_masked(frames, grid)))
+    res = _correlate(inputs, grid, settings, ensemble, predictor is not None)
     if predictor is None:
         px = py = 0.0
     else:
-        px, py = _predictor_at_windows(predictor, grid, masks[0], counts[0])
-    masked = res.masked | _centre_masked(frames, grid)
+        # the pairs of an ensemble share their mask (the ball in a common frame): the first
+        # one's centroids stand for all
+        first = inputs[0]
+        px, py = _predictor_at_windows(predictor, grid, first.masks[0], first.counts[0])
+    masked = res.masked
     dx = np.where(masked, np.nan, px + res.dx)
     dy = np.where(masked, np.nan, py + res.dy)
     ratio = np.where(masked, np.nan, res.peak_ratio)
@@ -255,7 +343,8 @@ def _outliers(dx, dy, masked, settings: PivSettings) -> np.ndarray:
 
 
 def _centre_masked(frames: Frames, grid: Grid) -> np.ndarray:
-    """Windows whose centre lies on a masked pixel in either frame (the central 1 or 2x2 px)."""
+    """Windows whose centre lies on a masked pixel in either frame of a pair (the central 1 or
+    2x2 px)."""
     out = np.zeros((grid.rows, grid.cols), bool)
     lo = (grid.window - 1) // 2
     hi = grid.window // 2

@@ -9,6 +9,7 @@ from dataclasses import replace
 
 from core.store.companions import companion_files
 from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id, damage_reason
+from core.store.reviews import CONTENT_OPS
 from core.store.snapshot import Place, pending_name, summary_from
 
 
@@ -50,6 +51,9 @@ class JournalReplay:
         op = entry["op"]
         if op == "settings":
             self._processing = dict(entry["settings"])
+            return
+        if op in CONTENT_OPS:
+            self._apply_content(entry)
             return
         if op not in ("add_shot", "result", "failure", "pick"):
             raise ValueError(f"unknown entry {op!r}: written by a newer wakeline?")

@@ -56,6 +56,7 @@ from core.store.records import (
     edited_pick,
 )
 from core.store.replay import JournalReplay
+from core.store.reviews import ReviewContent, review_content
 from core.store.snapshot import (
     STORAGE_ERRORS,
     Place,
@@ -91,10 +92,11 @@ def _change_words(entry: dict) -> str:
     shot = entry.get("shot")
     return {"add_shot": f"shot {shot}", "result": f"the result of shot {shot}",
             "failure": f"the failure of shot {shot}", "pick": f"the edit of shot {shot}",
-            }.get(entry["op"], "the processing settings")
+            "conditions": "the grouping of shots into conditions",
+            "review_layer": "the imported review"}.get(entry["op"], "the processing settings")
 
 
-class Session(SnapshotWriting, JournalReplay, Mapping):
+class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
     """An open session. Use ``Session.create`` / ``Session.open``, or ``with Session.open(p):``.
 
     A read-only mapping of shot id -> ``ShotRecord`` (a copy; import order): ``shot_id in
@@ -142,6 +144,7 @@ class Session(SnapshotWriting, JournalReplay, Mapping):
                 result="snapshot" if entry.get("has_result") else None,
                 frames="snapshot" if rec.frames.get("storage") == "embedded" else None,
             )
+        self._conditions_by, self._layers = review_content(snapshot, path)
 
     # -- opening and closing -------------------------------------------------------------------
 

@@ -47,6 +47,8 @@ class Snapshot:
     shots: list[dict] = field(default_factory=list)  # index entries, see _index_entry
     unused_bytes: int = 0
     checksummed: bool = False  # written with checksums (Fletcher-32 arrays, SHA-256 texts)
+    conditions_by: list[str] | None = None  # grouping columns (version 2)
+    review_layers: list[dict] = field(default_factory=list)  # other analysts' reviews (2)
 
 
 def h5_image(write=None) -> bytes:
@@ -145,6 +147,20 @@ def check_signature(path: Path) -> None:
 
 
 def _load_v1(f: h5py.File) -> Snapshot:
+    return _load_index(f)[0]
+
+
+def _load_v2(f: h5py.File) -> Snapshot:
+    """Version 2 adds the grouping columns and the review layers to the index
+    (``core.store.reviews``), and a pick may hold the analyst's circles and flight direction
+    (``Pick``'s ``GEOMETRY_FIELDS``), which a reader of version 1 only would drop."""
+    snapshot, index = _load_index(f)
+    snapshot.conditions_by = index.get("conditions_by")
+    snapshot.review_layers = list(index.get("review_layers") or [])
+    return snapshot
+
+
+def _load_index(f: h5py.File) -> tuple[Snapshot, dict]:
     index = json.loads(as_text(read_text(f["index"], _root_texts(f.attrs))))
     return Snapshot(
         name=str(f.attrs.get("name", "")),
@@ -154,14 +170,7 @@ def _load_v1(f: h5py.File) -> Snapshot:
         shots=list(index["shots"]),
         unused_bytes=int(f.attrs.get("unused_bytes", 0)),
         checksummed="sha256" in f["index"].attrs,
-    )
-
-
-def _load_v2(f: h5py.File) -> Snapshot:
-    """Version 2: a pick may hold the analyst's circles and flight direction (``Pick``'s
-    ``GEOMETRY_FIELDS``); the index is read as in version 1. The version changed so that a
-    wakeline reading only version 1 (which would drop them) refuses the file."""
-    return _load_v1(f)
+    ), index
 
 
 # A new format version adds its loader here; each loader returns the current in-memory model,
@@ -416,7 +425,9 @@ class SnapshotWriting:
         dst.attrs["processing_settings"] = dumps(self._processing)
         dst.attrs["unused_bytes"] = int(self._unused_bytes)
         index = {"shots": [index_entry(rec, self._places[rec.shot_id])
-                           for rec in self._records.values()]}
+                           for rec in self._records.values()],
+                 "conditions_by": self._conditions_by,
+                 "review_layers": [layer.to_dict() for layer in self._layers.values()]}
         if "index" in dst:
             del dst["index"]
         write_text(dst, "index", dumps(index), _root_texts(dst.attrs))

@@ -29,7 +29,7 @@ def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
                    - set(NUMBER_COLUMNS) - set(TEXT_COLUMNS) - {"shot"})
     meta_cols = list(NUMBER_COLUMNS) + list(TEXT_COLUMNS) + extra
     header = ["shot", *meta_cols, *_RESULT_COLUMNS]
-    rows = [[r.shot_id, *(_cell(r.metadata.get(c)) for c in meta_cols), *_result_cells(r)]
+    rows = [[r.shot_id, *(cell_text(r.metadata.get(c)) for c in meta_cols), *_result_cells(r)]
             for r in records]
     return header, rows
 
@@ -63,7 +63,7 @@ def _result_cells(r: ShotRecord) -> list[str]:
         pick.status, pick.reason, pick.note, pick.who, pick.when,
         r.processed_utc, r.software_version, pick.note_who, pick.note_when,
     ]
-    return [_cell(v) for v in values]
+    return [cell_text(v) for v in values]
 
 
 def _angle(value: float | None) -> str | None:
@@ -78,7 +78,8 @@ def _angle(value: float | None) -> str | None:
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 
 
-def _cell(value) -> str:
+def cell_text(value) -> str:
+    """A value as a CSV cell: "" for none, floats to 10 significant digits, text made safe."""
     if value is None:
         return ""
     if isinstance(value, float):

@@ -1,0 +1,59 @@
+"""The ensemble view of a condition in a window of its own, drawn like a shot: the first shot's
+frames in the common ball-centred frame, the condition's mean flow (vectors, vorticity), the
+ball and flight axis, and two marks per side: the ensemble's proposal (round) and the mean of
+the single-shot picks (diamond), with their numbers beside.
+"""
+
+from __future__ import annotations
+
+from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QDialog, QLabel, QVBoxLayout
+
+from app.qt.canvas import CanvasShot, ShotCanvas
+from app.review.conditions import ensemble_lines
+
+#: Distance (px of the picture) between the vectors drawn.
+VECTOR_SPACING_PX = 16.0
+
+
+class EnsembleDialog(QDialog):
+    """A canvas (not editable) and the condition's numbers; one per window, reused."""
+
+    def __init__(self, parent=None) -> None:
+        super().__init__(parent)
+        self.setWindowTitle("Ensemble view")
+        self.canvas = ShotCanvas(self)
+        self.numbers = QLabel(self)
+        self.numbers.setWordWrap(True)
+        self.numbers.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
+        box = QVBoxLayout(self)
+        box.addWidget(self.canvas, 1)
+        box.addWidget(self.numbers)
+        self.resize(980, 760)
+
+    def show_view(self, condition, view) -> None:
+        self.setWindowTitle(f"Ensemble view: {condition.label}")
+        proposed = {side: condition.sides[side].mean for side in ("upper", "lower")}
+        final = {side: getattr(view.separation, side).angle_deg for side in ("upper", "lower")}
+        self.canvas.show_shot(CanvasShot(
+            shot_id=condition.label, frame_a=view.frame_a, frame_b=view.frame_b,
+            result=view.result, proposed_deg=proposed, final_deg=final, editable=False))
+        self.numbers.setText("\n".join([
+            *ensemble_lines(condition, view),
+            ("Ball frame (the ball at rest), common to the shots; round mark: the ensemble's "
+             "proposal, diamond: the mean of the shots' final angles.")]))
+
+
+def show_ensemble(window, condition, view) -> EnsembleDialog:
+    dialog = getattr(window, "ensemble_dialog", None)
+    if dialog is None:
+        dialog = window.ensemble_dialog = EnsembleDialog(window)
+        dialog.canvas.restore_layers(window.canvas.layer_state())
+    # the ensemble's grid is finer than a shot's: draw about as many vectors as on a shot
+    dialog.canvas.stride_box.setValue(max(1, round(VECTOR_SPACING_PX
+                                                   / view.result.field.spacing_px)))
+    dialog.show_view(condition, view)
+    dialog.show()
+    dialog.raise_()
+    dialog.canvas.view.autoRange(padding=0.02)  # now that the dialog has its size
+    return dialog

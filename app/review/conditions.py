@@ -1,0 +1,157 @@
+"""The numbers and words of the conditions view (no Qt): the statistics panel's table, the
+separation-vs-condition plot of the panel and the sheet, and the ensemble's lines.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from app.review.text import MISSING, angle_text, spread_text, uncertainty_text
+
+#: Header of the statistics table (the panel and the sheet's summary page).
+TABLE_HEADER = ("condition", "usable", "upper", "lower", "upper - lower", "wake", "Re")
+
+
+def condition_cells(condition, conditions=(), compact: bool = False) -> list[str]:
+    """A condition (``core.conditions.Condition``) as the cells of ``TABLE_HEADER``, named by
+    what tells it from the other ``conditions``; ``compact`` leaves out the standard deviation
+    and the count (a printed table)."""
+    name = short_label(condition, conditions) if conditions else condition.label
+    show = compact_spread_text if compact else spread_text
+    return [name, f"{len(condition.usable_ids)} of {len(condition.shot_ids)}",
+            *(show(s) for s in (condition.sides["upper"], condition.sides["lower"],
+                                condition.difference, condition.wake_deflection)),
+            reynolds_text(condition.reynolds)]
+
+
+def compact_spread_text(spread) -> str:
+    """``+12.3° ± 1.5°`` (the interval's half-width), ``+12.3° (1 shot)`` or the em dash."""
+    if spread.n == 0:
+        return MISSING
+    if spread.n == 1:
+        return f"{angle_text(spread.mean)} (1 shot)"
+    return f"{angle_text(spread.mean)} {uncertainty_text(spread.half_width)}"
+
+
+def compact_ensemble_text(view) -> str:
+    """``U -15.6° ± 10.9°, L +13.8° ± 12.4°`` (the reason where there is no ensemble)."""
+    if view is None or isinstance(view, str):
+        return "" if view is None else "none"
+    parts = []
+    for side in ("upper", "lower"):
+        p = getattr(view.separation, side)
+        value = MISSING if p.angle_deg is None else angle_text(p.angle_deg)
+        if p.uncertainty_deg is not None:
+            value += f" {uncertainty_text(p.uncertainty_deg)}"
+        parts.append(f"{side[0].upper()} {value}")
+    return ", ".join(parts)
+
+
+def varying_columns(conditions) -> list[str]:
+    """The grouping columns whose values differ between the conditions."""
+    if not conditions:
+        return []
+    columns = list(conditions[0].values)
+    return [c for c in columns if len({cond.values[c] for cond in conditions}) > 1]
+
+
+def short_label(condition, conditions) -> str:
+    """A condition named by the columns that tell it from the others (all of them when none
+    do)."""
+    varying = varying_columns(conditions)
+    if not varying:
+        return condition.label
+    return ", ".join(f"{c} {condition.values[c] or '(none)'}" for c in varying)
+
+
+def common_text(conditions) -> str:
+    """What every condition shares, e.g. ``ball_type cricket, spin_rpm 600``."""
+    if not conditions:
+        return ""
+    varying = set(varying_columns(conditions))
+    same = [(c, v) for c, v in conditions[0].values.items() if c not in varying and v]
+    return ", ".join(f"{c} {v}" for c, v in same)
+
+
+def reynolds_text(span) -> str:
+    if not span:
+        return MISSING
+    low, high = span
+    return f"{low:.3g}" if math.isclose(low, high, rel_tol=1e-3) else f"{low:.3g} - {high:.3g}"
+
+
+def plot_column(conditions) -> str | None:
+    """The grouping column to put on the plot's horizontal axis: the first whose values are all
+    numbers (None: the conditions are placed one after another)."""
+    if not conditions:
+        return None
+    for column in conditions[0].values:
+        values = [c.values[column] for c in conditions]
+        if all(_number(v) is not None for v in values if v) and any(values):
+            return column
+    return None
+
+
+def _number(text: str) -> float | None:
+    try:
+        value = float(text)
+    except ValueError:
+        return None
+    return value if math.isfinite(value) else None
+
+
+@dataclass(frozen=True)
+class PlotPoint:
+    """One condition on the separation-vs-condition plot (angles in deg)."""
+
+    x: float
+    side: str
+    mean: float
+    low: float | None  # the confidence interval (None with one shot)
+    high: float | None
+    kind: str = "shots"  # "shots": mean of the single-shot picks; "ensemble": the ensemble's
+
+
+def plot_points(conditions, ensembles=None) -> tuple[str, list[PlotPoint]]:
+    """The plot's axis title and points: per condition and side the mean of the shots' final
+    angles with its interval, and where given (``ensembles``: label -> ``EnsembleView``) the
+    ensemble's proposal with its interval, set a little to the right."""
+    column = plot_column(conditions)
+    points = []
+    for index, condition in enumerate(conditions):
+        x = _number(condition.values[column]) if column else None
+        if column and x is None:
+            continue  # no value in the plotted column
+        x = float(index + 1) if x is None else x
+        for side, spread in condition.sides.items():
+            if spread.mean is not None:
+                points.append(PlotPoint(x, side, spread.mean, spread.low, spread.high))
+        view = (ensembles or {}).get(condition.label)
+        if view is not None and not isinstance(view, str):
+            for side in ("upper", "lower"):
+                p = getattr(view.separation, side)
+                if p.angle_deg is not None:
+                    u = p.uncertainty_deg
+                    points.append(PlotPoint(x, side, p.angle_deg,
+                                            None if u is None else p.angle_deg - u,
+                                            None if u is None else p.angle_deg + u, "ensemble"))
+    return (column or "condition"), points
+
+
+def ensemble_lines(condition, view) -> list[str]:
+    """The ensemble's proposal beside the mean of the single-shot picks, per side."""
+    lines = []
+    for side in ("upper", "lower"):
+        p = getattr(view.separation, side)
+        if p.angle_deg is None:
+            mine = f"none ({p.reason})"
+        else:
+            mine = f"{angle_text(p.angle_deg)} {uncertainty_text(p.uncertainty_deg)}"
+            if p.reason:
+                mine += f" ({p.reason})"
+        lines.append(f"{side}: ensemble {mine}; shots {spread_text(condition.sides[side])}")
+    used = f"{len(view.shot_ids)} shot(s) aligned on the ball: {', '.join(view.shot_ids)}"
+    if view.left_out:
+        used += "; left out " + ", ".join(f"{s} ({r})" for s, r in view.left_out.items())
+    return [*lines, used]

@@ -1,0 +1,178 @@
+"""The summary page of the shot sheet: separation against the condition with error bars, the
+table of conditions (``core.conditions``), each condition's ensemble proposal when it was
+computed, and how an imported second review agrees (``core.agreement``).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from PySide6 import QtCore, QtGui
+
+from app.review import colours
+from app.review.conditions import (
+    TABLE_HEADER,
+    common_text,
+    compact_ensemble_text,
+    condition_cells,
+    plot_points,
+)
+from app.sheet.cover import paint_axes
+from app.sheet.kit import Pages, mm, pen, qcolor, rect_mm, text, triangle
+from core.agreement import agreement_lines, compare_reviews, latest_layer
+from core.conditions import CONFIDENCE
+
+ROWS_FIRST_PAGE = 14
+ROWS_PER_PAGE = 40
+SIDE_COLOURS = {"upper": colours.UPPER_SIDE, "lower": colours.LOWER_SIDE}
+_RIGHT = QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignVCenter
+_LEFT = QtCore.Qt.AlignmentFlag.AlignLeft | QtCore.Qt.AlignmentFlag.AlignVCenter
+
+
+def conditions_page_count(conditions) -> int:
+    """Pages the summary needs (none without conditions)."""
+    if not conditions:
+        return 0
+    extra = max(0, len(conditions) - ROWS_FIRST_PAGE)
+    return 1 + math.ceil(extra / ROWS_PER_PAGE)
+
+
+def paint_conditions_page(pages: Pages, session, records, conditions, by,
+                          ensembles=None) -> None:
+    """The summary page (and continuation pages for a long table)."""
+    p = pages.painter
+    pages.new_page("conditions")
+    x, y, w, _h = pages.body()
+    text(p, rect_mm(x, y, w, 7), "Separation by condition", 13, bold=True,
+         colour=colours.ACCENT)
+    y += 7.5
+    same = common_text(conditions)
+    note = (f"Shots grouped by {', '.join(by)}" + (f"; every condition: {same}" if same else "")
+            + ". Per condition: the shots' final angles (the analyst's, else the proposal; "
+            f"unusable shots left out), mean ± half-width of the {CONFIDENCE:.0%} interval of "
+            "Student t on the shot-to-shot spread.")
+    if ensembles:
+        note += (" Hollow diamonds: the condition's ensemble proposal (shots aligned on the "
+                 "ball, one layer fitted to all of them) with its interval (the fit's and the "
+                 "launches' spread).")
+    used = text(p, rect_mm(x, y, w, 12), note, 7.5, colour=colours.MUTED_INK)
+    y += used.height() / mm(1) + 2
+    axis, points = plot_points(conditions, ensembles)
+    _paint_plot(p, rect_mm(x, y, w, 82), axis, points)
+    y += 86
+    cells = [condition_cells(c, conditions, compact=True) for c in conditions]
+    if ensembles:
+        for row, condition in zip(cells, conditions, strict=True):
+            row.append(compact_ensemble_text(ensembles.get(condition.label)))
+    y = _paint_table(p, x, y, w, cells[:ROWS_FIRST_PAGE], bool(ensembles))
+    layer = latest_layer(session.review_layers()) if hasattr(session, "review_layers") else None
+    if layer is not None and len(cells) <= ROWS_FIRST_PAGE:
+        lines = agreement_lines(compare_reviews(records, layer))
+        text(p, rect_mm(x, y + 3, w, 30), "\n".join(lines), 7.5)
+    rest = cells[ROWS_FIRST_PAGE:]
+    while rest:
+        pages.new_page("conditions, continued")
+        x, y, w, _h = pages.body()
+        _paint_table(p, x, y, w, rest[:ROWS_PER_PAGE], bool(ensembles))
+        rest = rest[ROWS_PER_PAGE:]
+
+
+def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> None:
+    p.save()
+    plot = frame.adjusted(mm(16), mm(2), -mm(3), -mm(17))
+    p.fillRect(plot, qcolor("#ffffff"))
+    if not points:
+        text(p, plot, "No condition with a separation angle to draw.", 9, italic=True,
+             colour=colours.MUTED_INK, flags=QtCore.Qt.AlignmentFlag.AlignCenter)
+        p.restore()
+        return
+    values = [v for pt in points for v in (pt.mean, pt.low, pt.high) if v is not None]
+    ylo, yhi = min(min(values), 0.0), max(max(values), 0.0)
+    pad = max(2.0, 0.08 * (yhi - ylo))
+    ylo, yhi = ylo - pad, yhi + pad
+    xs = np.array([pt.x for pt in points])
+    span = float(xs.max() - xs.min()) or 1.0
+    xlo, xhi = float(xs.min()) - 0.08 * span, float(xs.max()) + 0.08 * span
+    shift = 0.015 * (xhi - xlo)  # the ensemble beside the shots' mean
+
+    def to_page(xv: float, yv: float) -> QtCore.QPointF:
+        return QtCore.QPointF(plot.left() + (xv - xlo) / (xhi - xlo) * plot.width(),
+                              plot.bottom() - (yv - ylo) / (yhi - ylo) * plot.height())
+
+    paint_axes(p, plot, (xlo, xhi), (ylo, yhi), to_page, axis)
+    p.setClipRect(plot)
+    p.setPen(pen(colours.PLANE_LINE, 0.3, QtCore.Qt.PenStyle.DashLine))
+    p.drawLine(to_page(xlo, 0.0), to_page(xhi, 0.0))
+    for pt in points:
+        x = pt.x + (shift if pt.kind == "ensemble" else 0.0)
+        colour = SIDE_COLOURS[pt.side]
+        if pt.low is not None:
+            _error_bar(p, to_page(x, pt.low), to_page(x, pt.high), colour)
+        centre = to_page(x, pt.mean)
+        if pt.kind == "ensemble":
+            _diamond(p, centre, colour)
+        else:
+            triangle(p, centre, pt.side == "upper", colour, True)
+    p.setClipping(False)
+    _legend(p, frame.left() + mm(16), frame.bottom() - mm(5.5))
+    p.restore()
+
+
+def _error_bar(p, low: QtCore.QPointF, high: QtCore.QPointF, colour: str) -> None:
+    p.setPen(pen(colour, 0.3))
+    p.drawLine(low, high)
+    cap = mm(0.9)
+    for end in (low, high):
+        p.drawLine(QtCore.QPointF(end.x() - cap, end.y()), QtCore.QPointF(end.x() + cap, end.y()))
+
+
+def _diamond(p, centre: QtCore.QPointF, colour: str, size_mm: float = 2.8) -> None:
+    s = mm(size_mm) / 2
+    poly = QtGui.QPolygonF([QtCore.QPointF(centre.x(), centre.y() - s),
+                            QtCore.QPointF(centre.x() + s, centre.y()),
+                            QtCore.QPointF(centre.x(), centre.y() + s),
+                            QtCore.QPointF(centre.x() - s, centre.y())])
+    p.setPen(pen(colour, 0.35))
+    p.setBrush(qcolor("#ffffff"))
+    p.drawPolygon(poly)
+
+
+def _legend(p, x: float, y: float) -> None:
+    cx = x
+    for label, side in (("upper side: mean of the shots", "upper"),
+                        ("lower side", "lower")):
+        triangle(p, QtCore.QPointF(cx + mm(1.5), y + mm(2)), side == "upper",
+                 SIDE_COLOURS[side], True)
+        text(p, QtCore.QRectF(cx + mm(4), y, mm(50), mm(4)), label, 7.5)
+        cx += mm(52) if side == "upper" else mm(24)
+    _diamond(p, QtCore.QPointF(cx + mm(1.5), y + mm(2)), colours.INK)
+    text(p, QtCore.QRectF(cx + mm(4), y, mm(60), mm(4)), "ensemble proposal; bars: intervals",
+         7.5)
+
+
+def _paint_table(p, x: float, y: float, w: float, rows, with_ensemble: bool) -> float:
+    heads = [*TABLE_HEADER, *(["ensemble"] if with_ensemble else [])]
+    widths = [0.2, 0.08, 0.15, 0.15, 0.15, 0.15, 0.12]
+    if with_ensemble:
+        widths = [0.14, 0.07, 0.12, 0.12, 0.12, 0.11, 0.07, 0.25]
+    row_h = 5.0
+    p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.ACCENT))
+    cx = x
+    for k, (head, frac) in enumerate(zip(heads, widths, strict=True)):
+        text(p, rect_mm(cx + 1, y, frac * w - 2, row_h), head, 7.5, bold=True, colour="#ffffff",
+             flags=_LEFT if k == 0 else _RIGHT)
+        cx += frac * w
+    y += row_h
+    for k, row in enumerate(rows):
+        if k % 2:
+            p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.PAPER_TINT))
+        cx = x
+        for col, (cell, frac) in enumerate(zip(row, widths, strict=True)):
+            text(p, rect_mm(cx + 1, y, frac * w - 2, row_h), cell, 6.8,
+                 flags=_LEFT if col == 0 else _RIGHT)
+            cx += frac * w
+        y += row_h
+    p.setPen(pen(colours.RULE, 0.3))
+    p.drawLine(QtCore.QPointF(mm(x), mm(y)), QtCore.QPointF(mm(x + w), mm(y)))
+    return y

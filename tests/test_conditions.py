@@ -1,0 +1,111 @@
+"""Conditions: shots grouped by manifest columns, their statistics, the table by condition."""
+
+import csv
+import math
+from dataclasses import replace
+
+import pytest
+from data.session_helpers import fake_result, write_shot_folder
+
+from app.cli import main
+from core.conditions import (
+    Spread,
+    default_columns,
+    group_conditions,
+    grouping_columns,
+    reynolds_number,
+    value_text,
+)
+from core.store import Session, import_folder
+from core.summary import ShotSummary
+
+
+def test_spread_is_the_student_t_interval_of_the_shot_to_shot_values():
+    # values 1, 2, 3: mean 2, sd 1, t(0.975, 2) = 4.3027 (Student's t table), half-width
+    # 4.3027 / sqrt(3) = 2.4841 (derived)
+    spread = Spread.of([1.0, 2.0, 3.0, None])
+    assert (spread.n, spread.mean, spread.sd) == (3, 2.0, 1.0)
+    assert spread.half_width == pytest.approx(4.3027 / math.sqrt(3), abs=1e-4)
+    assert Spread.of([4.0]) == Spread(1, 4.0) and Spread.of([]) == Spread()
+
+
+def test_value_text_makes_one_condition_of_equal_numbers():
+    assert value_text(30) == value_text(30.0) == value_text("30.0") == "30"
+    assert value_text(" cricket ") == "cricket"
+    assert value_text(None) == value_text(float("nan")) == value_text("") == ""
+
+
+@pytest.fixture
+def session_path(tmp_path):
+    """Six processed shots: seam 0, 0, 0, 10, 10 and one without a seam angle."""
+    rows = ["S3,2e-05,0.08,71.6,10,b", "S4,2e-05,0.08,71.6,10,b", "S5,2e-05,0.08,71.6,,c"]
+    folder = write_shot_folder(tmp_path / "shots", count=3, extra_rows=())
+    text = (folder / "shots.csv").read_text().replace(",10,", ",0,").replace(",20,", ",0,")
+    (folder / "shots.csv").write_text(text + "\n".join(rows) + "\n")
+    for shot in ("S3", "S4", "S5"):
+        for ab in "ab":
+            (folder / f"{shot}_{ab}.tif").write_bytes((folder / f"S0_{ab}.tif").read_bytes())
+    path = tmp_path / "s.h5"
+    import_folder(folder, path)
+    angles = {"S0": (4.0, -2.0), "S1": (5.0, -3.0), "S2": (6.0, -4.0), "S3": (10.0, 0.0),
+              "S4": (12.0, None), "S5": (1.0, 1.0)}
+    with Session.open(path) as s:
+        for shot, (upper, lower) in angles.items():
+            s.save_result(shot, fake_result(s.settings_for(shot), upper, lower))
+        s.set_pick("S0", status="adjusted", upper_deg=3.0)  # the analyst's angle counts
+        s.set_pick("S2", status="unusable", reason="fog")  # left out
+    return path
+
+
+def test_conditions_take_the_final_angle_else_the_proposal_and_skip_unusable(session_path):
+    with Session.open(session_path, writable=False) as s:
+        records = list(s.values())
+    assert grouping_columns(records)[:1] == ["seam_deg"] and default_columns(records) == [
+        "seam_deg"]
+    seam0, seam10, unset = group_conditions(records, ["seam_deg"])
+    assert (seam0.values, seam0.shot_ids, seam0.usable_ids) == (
+        {"seam_deg": "0"}, ["S0", "S1", "S2"], ["S0", "S1"])
+    assert seam0.sides["upper"].mean == pytest.approx(4.0)  # adjusted 3.0 and proposed 5.0
+    assert seam0.difference.mean == pytest.approx(((3 + 2) + (5 + 3)) / 2)
+    assert seam10.sides["lower"].n == 1 and seam10.difference.n == 1
+    assert seam0.wake_deflection.mean == pytest.approx(4.0)  # fake_result's deflection
+    assert unset.label == "seam_deg (none)" and seam0.reynolds is None
+
+
+def test_the_reynolds_range_comes_from_the_summary_when_it_has_one(session_path):
+    with Session.open(session_path, writable=False) as s:
+        record = s["S1"]
+    data = {**record.summary.to_dict(), "reynolds": {"value": 1.7e5, "air_temp_c": 20.0}}
+    with_re = replace(record, summary=ShotSummary.from_dict(data))
+    assert reynolds_number(with_re) == 1.7e5 and reynolds_number(record) is None
+    condition = group_conditions([with_re, replace(with_re, shot_id="X")], [])[0]
+    assert condition.reynolds == (1.7e5, 1.7e5) and condition.label == "all shots"
+
+
+def test_table_by_writes_one_row_per_condition_and_conditions_keeps_the_grouping(
+        session_path, tmp_path, capsys):
+    out = tmp_path / "by.csv"
+    assert main(["table", str(session_path), "--by", "seam_deg", "-o", str(out)]) == 0
+    with out.open(encoding="utf-8") as fh:
+        rows = list(csv.DictReader(fh))
+    assert [r["seam_deg"] for r in rows] == ["0", "10", ""]
+    assert rows[0]["usable_shots"] == "2" and rows[0]["shot_ids"] == "S0 S1 S2"
+    assert float(rows[0]["upper_ci_high_deg"]) > 4.0 > float(rows[0]["upper_ci_low_deg"])
+    assert main(["conditions", str(session_path), "--by", "seam_deg,notes"]) == 1
+    assert "no column 'notes'" in capsys.readouterr().err  # notes describe one shot
+    assert main(["conditions", str(session_path), "--by", "seam_deg"]) == 0
+    with Session.open(session_path, writable=False) as s:
+        assert s.conditions_by() == ["seam_deg"]
+    assert main(["table", str(session_path), "--by", "-o", str(out)]) == 0
+    assert "3 condition(s) by seam_deg" in capsys.readouterr().out
+
+
+def test_bad_grouping_is_one_line_and_exit_codes_follow_the_other_commands(
+        session_path, tmp_path, capsys):
+    out = tmp_path / "by.csv"
+    assert main(["table", str(session_path), "--by", "colour", "-o", str(out)]) == 1
+    assert "--by: no column 'colour' with values in s.h5" in capsys.readouterr().err
+    assert main(["table", str(session_path), "--ensemble", "-o", str(out)]) == 1
+    with pytest.raises(SystemExit) as usage:
+        main(["table", str(session_path), "--by", ",", "-o", str(out)])
+    assert usage.value.code == 2
