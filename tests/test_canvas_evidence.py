@@ -154,7 +154,7 @@ def test_the_wedge_spans_the_proposals_uncertainty(canvas, evidence_shot):
     assert not canvas.main.evidence.wedges["upper"].isVisible()
 
 
-def test_the_reference_vector_has_the_vectors_scale(canvas, evidence_shot):
+def test_the_reference_vector_has_the_vectors_scale(qtbot, canvas, evidence_shot):
     result = evidence_shot[2]
     canvas.fine_box.setChecked(False)
     reference = canvas.main.reference
@@ -168,9 +168,16 @@ def test_the_reference_vector_has_the_vectors_scale(canvas, evidence_shot):
     real = math.hypot(vf.dx_px[first], vf.dy_px[first]) * speed_factor(result)
     # image px per m/s of a field arrow and of the reference arrow are the same
     assert reference.size / float(speed) == pytest.approx(drawn / real, rel=1e-6)
-    # zoomed in, a shorter round speed keeps the arrow on screen; the scale stays
+    # its speed is the round (1-2-5) one at or below the field's large vectors, so the arrow
+    # looks like them
+    usable = ~vf.masked
+    large = np.percentile(np.hypot(vf.dx_px[usable], vf.dy_px[usable]), 95) * speed_factor(result)
+    assert large / 2.5 < float(speed) <= large
+    # zoomed in far, a shorter round speed keeps the arrow on screen; the scale stays
+    canvas.show()
+    qtbot.waitExposed(canvas)
     (x0, x1), (y0, y1) = canvas.view.viewRange()
-    canvas.view.setRange(xRange=(x0, x0 + (x1 - x0) / 8), yRange=(y0, y0 + (y1 - y0) / 8),
+    canvas.view.setRange(xRange=(x0, x0 + (x1 - x0) / 20), yRange=(y0, y0 + (y1 - y0) / 20),
                          padding=0)
     assert reference.speed < float(speed)
     assert reference.size / reference.speed == pytest.approx(drawn / real, rel=1e-6)

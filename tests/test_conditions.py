@@ -109,3 +109,10 @@ def test_bad_grouping_is_one_line_and_exit_codes_follow_the_other_commands(
     with pytest.raises(SystemExit) as usage:
         main(["table", str(session_path), "--by", ",", "-o", str(out)])
     assert usage.value.code == 2
+
+
+def test_the_reynolds_range_is_written_with_one_power_of_ten():
+    from app.review.conditions import reynolds_text
+
+    assert reynolds_text((1.39e5, 1.44e5)) == "1.39-1.44 × 10^5"
+    assert reynolds_text((1.7e5, 1.7e5)) == "1.70 × 10^5"

@@ -139,6 +139,7 @@ def run_conditions(args: argparse.Namespace) -> int:
 
 def condition_lines(condition, ensemble=None) -> list[str]:
     """A condition's statistics as text lines."""
+    from app.review.conditions import reynolds_text
     from app.review.text import spread_text
 
     usable = f"{len(condition.usable_ids)} of {len(condition.shot_ids)} shot(s) usable"
@@ -149,8 +150,7 @@ def condition_lines(condition, ensemble=None) -> list[str]:
                          ("wake deflection", condition.wake_deflection)):
         lines.append(f"  {name}: {spread_text(spread)}")
     if condition.reynolds:
-        low, high = condition.reynolds
-        lines.append(f"  Reynolds number {low:.3g} - {high:.3g}")
+        lines.append(f"  Reynolds number {reynolds_text(condition.reynolds)}")
     if ensemble is not None:
         lines.append("  ensemble: " + ensemble_text(ensemble))
     return lines

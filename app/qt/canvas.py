@@ -59,7 +59,7 @@ pg.setConfigOptions(imageAxisOrder="row-major")
 
 
 FLICKER_MS = 350
-HOVER_HINT = "Point for flow values; drag a round mark along the ball outline."
+HOVER_HINT = "Point for flow values; drag a mark along the outline."
 
 
 @dataclass

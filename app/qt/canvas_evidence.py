@@ -138,7 +138,8 @@ class Polyline(QGraphicsPathItem):
 
 class ReferenceVector(pg.ScaleBar):
     """An arrow of a round speed at the vectors' scale, bottom left of the view, labelled; its
-    speed is chosen for the zoom (as the scale bar's length), so the arrow stays readable."""
+    speed is a round one (1-2-5) at or below the field's large vectors, so the arrow looks like
+    them, and shorter when zoomed in so far that it would not fit (as the scale bar's length)."""
 
     def __init__(self) -> None:
         super().__init__(size=1.0, width=2, brush=OVERLAY_LINE, pen=pen(SHADOW, 0.8),
@@ -150,13 +151,17 @@ class ReferenceVector(pg.ScaleBar):
         self.head.setPen(pen(SHADOW, 0.8))
         self.px_per_unit: float | None = None  # image px of arrow per m/s (or per px)
         self.unit = "m/s"
+        self.typical: float | None = None  # a large (95th percentile) drawn speed, in ``unit``
         self.speed: float | None = None
         self.setVisible(False)
 
-    def set_reference(self, px_per_unit: float | None, unit: str = "m/s") -> None:
-        """The vectors' scale, image px of arrow per ``unit`` of speed (None: hidden)."""
+    def set_reference(self, px_per_unit: float | None, unit: str = "m/s",
+                      typical: float | None = None) -> None:
+        """The vectors' scale, image px of arrow per ``unit`` of speed (None: hidden), and a
+        large speed of the drawn field (``typical``, in ``unit``; None: the zoom decides)."""
         shown = bool(px_per_unit) and math.isfinite(px_per_unit) and px_per_unit > 0
         self.px_per_unit, self.unit = (px_per_unit if shown else None), unit
+        self.typical = typical if typical and math.isfinite(typical) and typical > 0 else None
         self.setVisible(shown)
         self.updateBar()
 
@@ -169,7 +174,8 @@ class ReferenceVector(pg.ScaleBar):
         per_unit = (p2 - p1).x()  # screen px per unit of speed
         if not per_unit > 0:
             return
-        self.speed = round_length(REFERENCE_SCREEN_PX / per_unit)
+        fits = REFERENCE_SCREEN_PX / per_unit
+        self.speed = round_length(min(fits, self.typical) if self.typical else fits)
         self.size = self.speed * self.px_per_unit
         w = self.speed * per_unit
         self.bar.setRect(QRectF(0, 0, w, self._width))

@@ -32,6 +32,7 @@ from app.qt.canvas_pictures import (
     frame_displacement,
     smooth_upsample,
     speed_factor,
+    typical_length,
     vector_scale,
     vorticity_image,
 )
@@ -199,14 +200,16 @@ class ShotPane:
         hidden = drawn.shown_masked
         self.masked.setData(pos=np.column_stack([drawn.x[hidden], drawn.y[hidden]]))
         self.vectors.setPen(pen(colour, 1.1))
-        self._show_reference(result, scale)
+        self._show_reference(result, scale, typical_length(drawn.dx[usable], drawn.dy[usable]))
 
-    def _show_reference(self, result, scale: float) -> None:
+    def _show_reference(self, result, scale: float, typical_px: float) -> None:
         """The reference vector at the vectors' scale (``scale``: image px of arrow per px of
-        displacement), in m/s with dt and a scale, else in px."""
+        displacement) and about as long as the large ones (``typical_px``), in m/s with dt and
+        a scale, else in px."""
         factor = speed_factor(result)
         self.reference.set_reference(scale / factor if factor else scale,
-                                     "m/s" if factor else "px")
+                                     "m/s" if factor else "px",
+                                     typical_px * factor if factor else typical_px)
 
     # -- overlays ----------------------------------------------------------------------------
     def show_overlays(self, result, ball: bool, flight: bool, layers: bool = False,

@@ -73,13 +73,16 @@ def _bilinear(values: np.ndarray, factor: int) -> np.ndarray:
     return values
 
 
-def vector_scale(dx_px: np.ndarray, dy_px: np.ndarray, cell_px: float) -> float:
-    """Display factor so that a large (95th percentile) vector spans ~0.9 of one drawn cell."""
+def typical_length(dx_px: np.ndarray, dy_px: np.ndarray) -> float:
+    """A large (95th percentile) vector's length, px (0 without vectors)."""
     mag = np.hypot(dx_px, dy_px)
     mag = mag[np.isfinite(mag)]
-    if mag.size == 0:
-        return 1.0
-    big = float(np.percentile(mag, 95))
+    return float(np.percentile(mag, 95)) if mag.size else 0.0
+
+
+def vector_scale(dx_px: np.ndarray, dy_px: np.ndarray, cell_px: float) -> float:
+    """Display factor so that a large (95th percentile) vector spans ~0.9 of one drawn cell."""
+    big = typical_length(dx_px, dy_px)
     return 0.9 * cell_px / big if big > 0 else 1.0
 
 

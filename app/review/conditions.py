@@ -75,10 +75,15 @@ def common_text(conditions) -> str:
 
 
 def reynolds_text(span) -> str:
+    """The condition's Reynolds numbers as "1.39-1.44 × 10^5" (one power of ten, as the
+    readout writes a shot's)."""
     if not span:
         return MISSING
     low, high = span
-    return f"{low:.3g}" if math.isclose(low, high, rel_tol=1e-3) else f"{low:.3g} - {high:.3g}"
+    power = math.floor(math.log10(high)) if high > 0 else 0
+    a, b = f"{low / 10**power:.2f}", f"{high / 10**power:.2f}"
+    digits = a if a == b else f"{a}-{b}"
+    return digits if power == 0 else f"{digits} × 10^{power}"
 
 
 def plot_column(conditions) -> str | None:
