@@ -32,7 +32,7 @@ import tifffile
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from core.shot import ShotResult
+from core.shot_result import ShotResult
 from core.store import Session
 
 GRID = (127, 127)  # vectors of a 2048 x 2048 pair, 32 px windows, 50 % overlap

@@ -28,7 +28,7 @@ from pathlib import Path
 import numpy as np
 
 from core import WakelineError
-from core.shot import ShotSettings
+from core.shot_result import ShotSettings
 from core.store import Session, read_frames
 
 _POLL_S = 0.2  # how often a waiting run looks at should_stop

@@ -1,16 +1,13 @@
 """One shot from frame pair to proposal: ball, masks, PIV, fields, separation.
 
-This is the function the CLI, the batch workers and the window all call. ``ShotResult`` is the
-record they exchange: ``summary()`` is the JSON ``pair --json`` writes, ``arrays()`` the fields the
-session store keeps, and ``ShotResult.from_stored`` rebuilds it from those two.
+This is the function the CLI, the batch workers and the window all call; the records they
+exchange, ``ShotSettings`` and ``ShotResult``, are in ``core.shot_result`` (imported here too).
 """
 
 from __future__ import annotations
 
-import json
 import math
-from dataclasses import asdict, dataclass, field, replace
-from dataclasses import fields as dc_fields
+from dataclasses import replace
 
 import numpy as np
 
@@ -20,246 +17,12 @@ from core.results import (
     SeparationResult,
     SideProposal,
     VectorField,
-    dataclass_dict,
-    finite_or_none,
 )
-from core.settings import PivPass, PivSettings
+from core.shot_result import FINE_PASSES, ShotResult, ShotSettings, fine_vorticity
+
+__all__ = ["ShotResult", "ShotSettings", "measure_shot", "remeasure_ball"]
 
 
-@dataclass
-class ShotSettings:
-    """Everything besides the frames that decides a shot's result."""
-
-    dt_s: float | None = None
-    scale_mm_per_px: float | None = None  # None: derived from the fitted ball and its diameter
-    ball_diameter_mm: float | None = None
-    ball_type: str | None = None  # rulebook nominal diameter when ball_diameter_mm is None
-    find_ball: bool = True
-    flight_deg: float | None = None  # override of the flight direction
-    # the analyst's circles (cx, cy, r) px in frames A and B: taken instead of finding the ball
-    circle_a_px: tuple[float, float, float] | None = None
-    circle_b_px: tuple[float, float, float] | None = None
-    air_temp_c: float | None = None  # for the air's viscosity (Reynolds number); None: 20 deg C
-    # image conditioning before correlation (core.conditioning)
-    mask_glare: bool = True  # saturated regions larger than a particle image left out
-    # min-max normalisation window in mean particle spacings (None: off; skipped on sparse
-    # seeding, spacing above core.conditioning.SPARSE_SPACING_PX)
-    normalise_spacings: float | None = 3.0
-    # per-pixel "min" or "median" of the session's frames at the shot's camera position
-    # subtracted before correlation (computed by core.batch), or None
-    background: str | None = None
-    piv: PivSettings = field(default_factory=PivSettings)
-
-    def to_dict(self) -> dict:
-        return asdict(self)
-
-    @classmethod
-    def from_dict(cls, data: dict) -> ShotSettings:
-        data = dict(data)
-        piv = data.pop("piv", None)
-        known = {f.name for f in dc_fields(cls)}
-        settings = cls(**{k: v for k, v in data.items() if k in known})
-        if piv is not None:
-            settings.piv = PivSettings.from_dict(piv)
-        return settings
-
-    def fingerprint(self) -> str:
-        """Stable text of the settings: a shot is reprocessed when this changes.
-
-        The PIV thread count is left out: it changes how fast, not what is measured; so are
-        circles the analyst did not set (shots processed before they could be set keep their
-        fingerprint).
-        """
-        data = self.to_dict()
-        data["piv"].pop("workers", None)
-        for name in CIRCLE_SETTINGS:
-            if data.get(name) is None:
-                data.pop(name, None)
-            else:
-                data[name] = [float(v) for v in data[name]]
-        return json.dumps(data, sort_keys=True)
-
-    def measured_alike(self, other: ShotSettings) -> bool:
-        """True when ``other`` differs from these settings at most in the ball's circles and
-        the flight direction (what ``remeasure_ball`` redoes)."""
-        def rest(settings: ShotSettings) -> str:
-            return replace(settings, flight_deg=None, circle_a_px=None,
-                           circle_b_px=None).fingerprint()
-
-        return rest(self) == rest(other)
-
-
-#: Settings that are the analyst's circles of the ball (``ShotSettings``).
-CIRCLE_SETTINGS = ("circle_a_px", "circle_b_px")
-
-
-@dataclass
-class ShotResult:
-    field: VectorField
-    settings: ShotSettings
-    ball_a: BallFit | None = None
-    ball_b: BallFit | None = None
-    flight: Flight | None = None
-    separation: SeparationResult | None = None
-    scale_mm_per_px: float | None = None  # as used (given or derived)
-    u_m_s: np.ndarray | None = None  # (M, N) lab frame, x component (image x)
-    v_m_s: np.ndarray | None = None  # (M, N) lab frame, y component (image y, downward)
-    vorticity_1_s: np.ndarray | None = None  # (M, N), counter-clockwise positive as seen on screen
-    warnings: list[str] = field(default_factory=list)
-    valid_near_ball: int | None = None  # valid vectors within two grid spacings of the outline
-    reynolds: float | None = None  # U D / nu with the air speed past the ball (core.air)
-    fine_field: VectorField | None = None  # fine correlation near the ball, ball frame, image px
-    ball_warnings: list[str] = field(default_factory=list)  # those of ``warnings`` on the ball
-    # its vorticity (1/s, or per frame pair without dt): derived, not stored (fine_vorticity)
-    fine_vorticity_1_s: np.ndarray | None = None
-    stage_seconds: dict[str, float] = field(default_factory=dict)  # wall time per stage (not stored)
-
-    def summary(self) -> dict:
-        """JSON-ready record (the ``wakeline pair --json`` contract)."""
-        sep = self.separation
-        return {
-            "ball": None
-            if self.ball_a is None
-            else {
-                "center_px": [finite_or_none(c) for c in self.ball_a.center_px],
-                "radius_px": finite_or_none(self.ball_a.radius_px),
-                "frame_a": dataclass_dict(self.ball_a),
-                "frame_b": None if self.ball_b is None else dataclass_dict(self.ball_b),
-                "warnings": list(self.ball_warnings),
-            },
-            "flight": None if self.flight is None else dataclass_dict(self.flight),
-            "separation": _separation_summary(sep),
-            "scale_mm_per_px": finite_or_none(self.scale_mm_per_px),
-            "reynolds": _reynolds_summary(self.reynolds, self.settings.air_temp_c),
-            "dt_s": finite_or_none(self.settings.dt_s),
-            "vectors": {**_vector_counts(self.field), "valid_near_ball": self.valid_near_ball,
-                        "warnings": list(self.field.warnings)},
-            "fine_vectors": None if self.fine_field is None else _vector_counts(self.fine_field),
-            "settings": self.settings.to_dict(),
-            "warnings": list(self.warnings + self.field.warnings),
-        }
-
-    def fine_vorticity(self) -> np.ndarray | None:
-        """Vorticity of the fine field (as ``vorticity_1_s``), computed when first asked."""
-        if self.fine_vorticity_1_s is None and self.fine_field is not None:
-            self.fine_vorticity_1_s = _fine_vorticity(self.fine_field, self.settings.dt_s)
-        return self.fine_vorticity_1_s
-
-    def arrays(self) -> dict[str, np.ndarray]:
-        out = dict(self.field.arrays())
-        for name in ("u_m_s", "v_m_s", "vorticity_1_s"):
-            value = getattr(self, name)
-            if value is not None:
-                out[name] = value
-        if self.fine_field is not None:
-            out.update({FINE_PREFIX + k: v for k, v in self.fine_field.arrays().items()})
-        return out
-
-    @classmethod
-    def from_stored(cls, summary: dict, arrays: dict[str, np.ndarray]) -> ShotResult:
-        """The result from its stored summary (read by :class:`core.summary.ShotSummary`, the
-        one reader of stored summaries) and arrays."""
-        from core.summary import ShotSummary
-
-        typed = ShotSummary.from_dict(summary)
-        piv_warnings = list((summary.get("vectors") or {}).get("warnings") or [])
-        vf = VectorField(
-            **{name: np.asarray(arrays[name]) for name in VectorField.ARRAY_NAMES},
-            window_px=typed.vectors.window_px,
-            spacing_px=typed.vectors.spacing_px,
-            warnings=piv_warnings,
-        )
-        return cls(
-            field=vf,
-            settings=ShotSettings.from_dict(typed.settings),
-            ball_a=typed.ball_a,
-            ball_b=typed.ball_b,
-            flight=typed.flight,
-            separation=None if summary.get("separation") is None else typed.separation,
-            scale_mm_per_px=typed.scale_mm_per_px,
-            u_m_s=arrays.get("u_m_s"),
-            v_m_s=arrays.get("v_m_s"),
-            vorticity_1_s=arrays.get("vorticity_1_s"),
-            warnings=[w for w in typed.warnings if w not in piv_warnings],
-            valid_near_ball=typed.vectors.valid_near_ball,
-            reynolds=typed.reynolds,
-            fine_field=_fine_from(summary, arrays),
-            ball_warnings=list(typed.ball_warnings),
-        )
-
-
-def _reynolds_summary(reynolds: float | None, air_temp_c: float | None) -> dict:
-    from core.air import DEFAULT_AIR_TEMP_C, kinematic_viscosity_m2_s, regime_note
-
-    temp = DEFAULT_AIR_TEMP_C if air_temp_c is None else float(air_temp_c)
-    return {
-        "value": finite_or_none(reynolds),
-        "air_temp_c": temp,
-        "nu_m2_s": kinematic_viscosity_m2_s(temp),
-        "regime": regime_note(reynolds),
-    }
-
-
-#: Stored arrays of the fine ball-frame field carry this prefix (``fine_dx_px``, ...).
-FINE_PREFIX = "fine_"
-
-
-def _fine_from(summary: dict, arrays: dict) -> VectorField | None:
-    """The stored fine field, or None (shots processed before it was kept)."""
-    if FINE_PREFIX + "x_px" not in arrays:
-        return None
-    fine = summary.get("fine_vectors") or {}
-    return VectorField(
-        **{name: np.asarray(arrays[FINE_PREFIX + name]) for name in VectorField.ARRAY_NAMES},
-        window_px=fine.get("window_px", FINE_PASSES[-1].window_px),
-        spacing_px=fine.get("spacing_px", FINE_PASSES[-1].window_px * 0.5),
-    )
-
-
-def _fine_vorticity(fine: VectorField | None, dt_s: float | None) -> np.ndarray | None:
-    """Vorticity of the fine field (the ball frame's uniform shift does not change it)."""
-    from core.fields import vorticity_1_s
-
-    if fine is None:
-        return None
-    return vorticity_1_s(fine, dt_s, usable=fine.valid | fine.replaced)
-
-
-def _vector_counts(vf: VectorField) -> dict:
-    return {
-        "count": int(vf.valid.size),
-        "valid": int(np.count_nonzero(vf.valid)),
-        "replaced": int(np.count_nonzero(vf.replaced)),
-        "masked": int(np.count_nonzero(vf.masked)),
-        "window_px": int(vf.window_px),
-        "spacing_px": float(vf.spacing_px),
-    }
-
-
-def _separation_summary(sep: SeparationResult | None) -> dict:
-    if sep is None:
-        empty = dataclass_dict(SideProposal(None, reason="no ball"))
-        return {
-            "upper_deg": None, "lower_deg": None, "upper": empty, "lower": empty,
-            "wake_deflection_deg": None, "wake_state": "undetermined",
-        }
-    return {
-        "upper_deg": finite_or_none(sep.upper.angle_deg),
-        "lower_deg": finite_or_none(sep.lower.angle_deg),
-        "upper_uncertainty_deg": finite_or_none(sep.upper.uncertainty_deg),
-        "lower_uncertainty_deg": finite_or_none(sep.lower.uncertainty_deg),
-        "upper": dataclass_dict(sep.upper),
-        "lower": dataclass_dict(sep.lower),
-        "wake_deflection_deg": finite_or_none(sep.wake_deflection_deg),
-        "wake_state": sep.wake_state,
-    }
-
-
-#: Passes of the finer correlation around the ball (ball frame): it gives the stream beside the
-#: layer and the wake; the layer itself is fitted to the particle images (core.separation).
-FINE_PASSES = (
-    PivPass(64, 0.5), PivPass(32, 0.5), PivPass(24, 0.5), PivPass(16, 0.5),
-)
 #: Ball displacement (px) below which its direction is not trusted without an override.
 MIN_FLIGHT_PX = 1.0
 
@@ -749,6 +512,6 @@ def _fill_fields(result: ShotResult, warnings: list[str]) -> None:
     else:
         warnings.append("no dt or scale: velocities not in m/s (displacements in px only)")
     result.vorticity_1_s = vorticity_1_s(vf, dt, usable=vf.valid | vf.replaced)
-    result.fine_vorticity_1_s = _fine_vorticity(result.fine_field, dt)
+    result.fine_vorticity_1_s = fine_vorticity(result.fine_field, dt)
     if not dt:
         warnings.append("no dt: vorticity is per frame pair (px/px), not 1/s")

@@ -13,7 +13,7 @@ from app.qt.canvas_items import PROPOSAL_RADIUS, arrow_segments, mark_circle
 from app.qt.canvas_pictures import smooth_upsample, vorticity_image
 from app.review.colours import symmetric_limit
 from core.geometry import angle_of_point, flight_unit, point_at_angle
-from core.shot import ShotSettings
+from core.shot_result import ShotSettings
 
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
 

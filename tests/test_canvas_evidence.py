@@ -17,7 +17,7 @@ from app.qt.canvas_items import mark_circle
 from app.qt.canvas_pictures import speed_factor
 from core.geometry import angle_of_point, point_at_angle
 from core.results import SeparationResult, SideProposal, VectorField
-from core.shot import ShotSettings
+from core.shot_result import ShotSettings
 
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
 

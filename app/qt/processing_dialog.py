@@ -26,7 +26,7 @@ from PySide6.QtWidgets import (
 
 from core import WakelineError
 from core.settings import PivPass, PivSettings
-from core.shot import ShotSettings
+from core.shot_result import ShotSettings
 
 
 def passes_text(passes: tuple[PivPass, ...], overlap: float) -> str:

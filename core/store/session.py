@@ -35,7 +35,7 @@ import h5py
 import numpy as np
 
 from core import WakelineError, __version__
-from core.shot import ShotResult, ShotSettings
+from core.shot_result import ShotResult, ShotSettings
 from core.store.companions import (
     check_replaceable,
     companion_files,

@@ -9,7 +9,7 @@ import tifffile
 
 from core.results import Flight, SeparationResult, SideProposal, VectorField
 from core.settings import PivPass, PivSettings
-from core.shot import ShotResult, ShotSettings
+from core.shot_result import ShotResult, ShotSettings
 from core.synth import particle_pair
 
 FAST_PIV = PivSettings(passes=(PivPass(32, 0.5),), workers=1)
