@@ -48,3 +48,22 @@ def test_a_drag_the_store_refused_puts_the_mark_back(main_window, make_session, 
     assert window.last_problem.startswith("Edit not saved: ")
     assert os.strerror(code) in window.last_problem and "every edit" not in window.last_problem
     window.close()
+
+
+def test_a_save_that_finds_a_lost_result_says_which_shot_and_what_to_do(main_window,
+                                                                       make_session, qtbot):
+    from conftest import analytic_result, synthetic_frames
+
+    window = _open(main_window, qtbot, make_session(2))
+    session = window.model.session
+    truth = synthetic_frames(0)[2]
+    session.save_result("s01", analytic_result(truth, session.settings_for("s01")))
+    for file in session.path.with_name(session.path.name + ".pending").iterdir():
+        file.unlink()  # the new result's arrays are lost (as a disk error would lose them)
+    window.save_session()
+    assert window.last_problem.startswith("Save: The session was saved without these")
+    assert "shot s01: stored result lost" in window.last_problem
+    assert "process the shot again" in window.last_problem
+    assert window.model.record("s01").state == "failed"
+    assert window.model.record("s02").state == "processed"
+    window.close()

@@ -125,9 +125,17 @@ class SessionActions:
 
     def close_session(self) -> None:
         try:
-            self.model.close()  # its closing signal stops the job and clears the undo stack
+            found = self.model.close()  # its closing signal stops the job and clears undo
         except WakelineError as exc:
             self.show_problem("Closing the session", str(exc))
+            return
+        self._tell_damage("Closing the session", found)
+
+    def _tell_damage(self, title: str, found: list[str]) -> None:
+        """What a save found damaged or lost in the file, one line per shot part."""
+        if found:
+            self.show_problem(title, "The session was saved without these damaged parts:\n"
+                              + "\n".join(found[:15]))
 
     def _on_session_closing(self) -> None:
         if self.job is not None:
@@ -139,9 +147,12 @@ class SessionActions:
             self.statusBar().showMessage("Nothing to save.", 4000)
             return
         try:
-            self.model.compact()
+            found = self.model.compact()
         except WakelineError as exc:
             self.show_problem("Save", str(exc))
+            return
+        if found:
+            self._tell_damage("Save", found)
             return
         self.statusBar().showMessage(
             "Every edit was already saved when you made it; the session file is now compacted.",

@@ -153,16 +153,18 @@ class SessionModel(QObject):
             self.session_changed.emit()
             self.current_changed.emit("")
 
-    def close(self) -> None:
+    def close(self) -> list[str]:
+        """Close the open session; returns what its last save found damaged or lost (one line
+        per shot part, ``Session.problems``)."""
         had = self._session is not None
         try:
-            self._drop_session()
+            return self._drop_session()
         finally:
             if had:
                 self.session_changed.emit()
                 self.current_changed.emit("")
 
-    def _drop_session(self) -> None:
+    def _drop_session(self) -> list[str]:
         """Forget the open session, then close it: a close that fails (a full disk: every
         change stays in its journal) raises with the model already empty."""
         session = self._session
@@ -176,8 +178,11 @@ class SessionModel(QObject):
         self._results.clear()
         self._frames.clear()
         self._usual_direction.clear()
-        if session is not None:
-            session.close()
+        if session is None:
+            return []
+        seen = len(session.problems)
+        session.close()
+        return session.problems[seen:]
 
     @property
     def read_only(self) -> bool:
@@ -350,9 +355,17 @@ class SessionModel(QObject):
     def check_frames(self, should_stop=None) -> dict[str, str]:
         return self._session.check_frames(should_stop)
 
-    def compact(self) -> None:
-        """Fold the journal into the session file (every edit is already on disk)."""
+    def compact(self) -> list[str]:
+        """Fold the journal into the session file (every edit is already on disk); returns what
+        it found damaged or lost, one line per shot part (such a shot's result is dropped and
+        the shot is failed: processing it again heals it)."""
+        seen = len(self._session.problems)
         self._session.compact()
+        found = self._session.problems[seen:]
+        for shot_id in self._order:
+            if any(line.startswith(f"shot {shot_id}:") for line in found):
+                self.refresh(shot_id)
+        return found
 
     def write_table(self, path) -> int:
         """The table of picks as CSV (as ``wakeline table``); returns the row count."""
