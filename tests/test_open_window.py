@@ -121,3 +121,33 @@ def test_a_recent_session_whose_file_is_gone_is_dropped_with_a_note(main_window,
     window.open_recent(gone)  # from File > Open recent
     assert gone not in window.recent_sessions()
     assert [a.text() for a in window.recent_menu.actions()] == [f"&1 {path}"]
+
+
+@pytest.mark.parametrize("signum", ["SIGTERM", "SIGHUP"])
+def test_a_signal_closes_the_window_like_its_close_button(make_session, tmp_path, signum):
+    """A logout, ``kill`` or a closed terminal: the session is folded and unlocked, not left
+    locked by a dead process (the journal would have kept every edit either way)."""
+    import signal
+    import time
+    from pathlib import Path
+
+    session = Path(make_session(2))
+    lock = session.with_name(session.name + ".lock")
+    environ = {**os.environ, "WAKELINE_HOME": str(tmp_path / "home"),
+               "XDG_CONFIG_HOME": str(tmp_path / "config"), "QT_QPA_PLATFORM": "offscreen"}
+    window = subprocess.Popen([sys.executable, "-c", "import sys; from app.qt.window import "
+                               f"run_window; sys.exit(run_window({str(session)!r}))"],
+                              env=environ, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                              text=True)
+    try:
+        deadline = time.monotonic() + 60
+        while not lock.exists() and window.poll() is None and time.monotonic() < deadline:
+            time.sleep(0.1)
+        assert lock.exists(), window.stderr.read() if window.poll() is not None else "no lock"
+        window.send_signal(getattr(signal, signum))
+        _, stderr = window.communicate(timeout=30)
+    finally:
+        window.kill()
+    assert window.returncode == 0, stderr
+    assert not lock.exists() and "Traceback" not in stderr
+    assert not session.with_name(session.name + ".journal").exists()

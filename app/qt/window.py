@@ -12,6 +12,7 @@ from __future__ import annotations
 import json
 import logging
 import os
+import signal
 import sys
 import traceback
 import weakref
@@ -504,7 +505,34 @@ def run_window(session_path: str | None = None) -> int:
     window.show()
     QTimer.singleShot(0, lambda: window.open_session(session_path) if session_path
                       else window.reopen_last_session())
+    restore = _close_on_signals(window)
     try:
         return int(app.exec())
     finally:
+        restore()
         sys.excepthook = previous_hook
+
+
+#: Signals that close the window as its close button does (the session folded and unlocked):
+#: a logout or ``kill`` (SIGTERM), a closed terminal (SIGHUP), Ctrl+C in it (SIGINT).
+CLOSING_SIGNALS = tuple(getattr(signal, name) for name in ("SIGTERM", "SIGHUP", "SIGINT")
+                        if hasattr(signal, name))
+
+
+def _close_on_signals(window: MainWindow):
+    """Close ``window`` on ``CLOSING_SIGNALS``; returns what puts the old handlers back.
+
+    Python runs a signal handler only when the interpreter next gets control, which Qt's event
+    loop does not give it while idle: a timer hands it control a few times a second."""
+    previous = {signum: signal.signal(signum, lambda *_: QTimer.singleShot(0, window.close))
+                for signum in CLOSING_SIGNALS}
+    wake = QTimer(window)
+    wake.timeout.connect(lambda: None)
+    wake.start(250)
+
+    def restore() -> None:
+        wake.stop()
+        for signum, handler in previous.items():
+            signal.signal(signum, handler)
+
+    return restore
