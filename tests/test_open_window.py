@@ -135,7 +135,8 @@ def test_a_signal_closes_the_window_like_its_close_button(make_session, tmp_path
     lock = session.with_name(session.name + ".lock")
     environ = {**os.environ, "WAKELINE_HOME": str(tmp_path / "home"),
                "XDG_CONFIG_HOME": str(tmp_path / "config"), "QT_QPA_PLATFORM": "offscreen"}
-    code = f"import sys; from app.qt.window import run_window; sys.exit(run_window({str(session)!r}))"
+    code = ("import sys; from app.qt.window import run_window; "
+            f"sys.exit(run_window({str(session)!r}))")
     window = subprocess.Popen([sys.executable, "-c", code],
                               env=environ, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                               text=True)
