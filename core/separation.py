@@ -107,6 +107,10 @@ ALTERNATIVE_ITERATIONS = 5
 #: standard uncertainty is capped at ``PROFILE_MAX_DEG``.
 PROFILE_STEP_DEG = 3.0
 PROFILE_MAX_DEG = 20.0
+#: A profile point that scores better than the best fit is where the refinement should have
+#: gone (it stops after ``REFINE_ITERATIONS`` in a rough landscape): the fit moves there and is
+#: refined again, at most this many times.
+PROFILE_MOVES = 3
 #: Thicknesses (over the prior's median) tried by the coarse search, and how many of its first
 #: stage's best angles are searched further.
 COARSE_THICKNESS = (1.0, 3.0)
@@ -385,12 +389,15 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
     angles = [fit.params[0] for fit, _ in fits]
     common = problem.view((max(angles) + FIT_WINDOW_DEG[0], min(angles) + FIT_WINDOW_DEG[1]))
     scores = np.array([common.score(fit.params) for fit, _ in fits])
-    best, near = fits[int(np.argmin(scores))]
+    chosen = int(np.argmin(scores))
+    best, near = fits[chosen]
+    best, rises = _settled(near, best)
     phi_s = float(best.params[0])
+    angles[chosen], scores[chosen] = phi_s, min(scores[chosen], common.score(best.params))
     if phi_s > LATEST_DEG:
         return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "
                             "(attached flow?)")
-    budget = _uncertainty_budget(near, best, ball)
+    budget = _uncertainty_budget(near, best, ball, rises)
     budget["other minimum"] = _other_minima(angles, scores, phi_s)
     standard = math.sqrt(sum(v * v for v in budget.values()))
     uncertainty = COVERAGE_K * standard
@@ -506,24 +513,45 @@ def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_pr
     return Fit(params, float(2.0 * sol.cost), sol.jac if free.all() else None, sol.fun)
 
 
-def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame) -> dict[str, float]:
-    """Standard uncertainties (deg) of the separation angle by source.
-
-    The fit's own: the profile of the score along the angle, refitting every other parameter
-    with the angle held ``PROFILE_STEP_DEG`` either side; the flatter side's rise ``d`` gives
-    ``step / sqrt(d)`` (a score rises by 1 at one standard deviation). It sees what the curvature
-    at the minimum misses: a near-tangential layer whose start the data cannot place, a
-    parameter held at its bound. Each other source is how far the angle moves from the best fit
-    (:meth:`Fit.angle_shift`) under: the circle's radius moved by its standard uncertainty both
-    ways (half the spread; a centre error moves the outline by as much radially), the other
-    layer profile, the thickness prior's median halved and doubled (the larger move).
-    """
-    rises = []
+def _profile(problem: SideProblem, best: Fit) -> list[Fit]:
+    """The fits with the angle held ``PROFILE_STEP_DEG`` before and after the best fit's, every
+    other parameter refitted from the best fit's values."""
+    held = []
     for sign in (-1.0, 1.0):
         moved = best.params.copy()
         moved[0] += sign * PROFILE_STEP_DEG
-        rises.append(_refine(problem, moved, hold=("phi_s",), max_nfev=ALTERNATIVE_ITERATIONS)
-                     .score - best.score)
+        held.append(_refine(problem, moved, hold=("phi_s",), max_nfev=ALTERNATIVE_ITERATIONS))
+    return held
+
+
+def _settled(problem: SideProblem, best: Fit) -> tuple[Fit, list[float]]:
+    """The best fit once its profile finds nothing better, and the profile's rises of the score
+    (before, after). A profile point scoring lower than the best fit is a better fit the
+    refinement stopped short of: refine again from it (``PROFILE_MOVES`` times at most)."""
+    profile = _profile(problem, best)
+    for _ in range(PROFILE_MOVES):
+        better = min(profile, key=lambda fit: fit.score)
+        if not better.score < best.score:
+            break
+        best = _refine(problem, better.params, max_nfev=REFINE_ITERATIONS)
+        profile = _profile(problem, best)
+    return best, [fit.score - best.score for fit in profile]
+
+
+def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame,
+                        rises: list[float]) -> dict[str, float]:
+    """Standard uncertainties (deg) of the separation angle by source.
+
+    The fit's own: the profile of the score along the angle (``rises``: how much the score
+    rises with the angle held ``PROFILE_STEP_DEG`` before and after it, every other parameter
+    refitted, :func:`_settled`); the flatter side's rise ``d`` gives ``step / sqrt(d)`` (a score
+    rises by 1 at one standard deviation). It sees what the curvature at the minimum misses: a
+    near-tangential layer whose start the data cannot place, a parameter held at its bound.
+    Each other source is how far the angle moves from the best fit (:meth:`Fit.angle_shift`)
+    under: the circle's radius moved by its standard uncertainty both ways (half the spread; a
+    centre error moves the outline by as much radially), the other layer profile, the thickness
+    prior's median halved and doubled (the larger move).
+    """
     rise = max(min(rises), PROFILE_STEP_DEG**2 / PROFILE_MAX_DEG**2)
     budget = {"fit": PROFILE_STEP_DEG / math.sqrt(rise)}
     radius_sd = math.hypot(ball.radius_sigma_px, ball.center_sigma_px)
