@@ -78,6 +78,21 @@ def test_kinematic_family_pick_within_its_uncertainty():
     assert result.separation.wake_state == "upper side holds on longer"
 
 
+def test_a_fit_that_stopped_short_moves_to_the_better_profile_point():
+    # a thin layer leaving at 15 deg whose refinement stops about 3 deg early: its profile
+    # finds a better fit at the truth; it used to be read as a flat profile (40 deg uncertainty).
+    # Truth: where the first family's wall shear changes sign (derived in core.synth_shot)
+    result, truth = _measure(ball_shot(
+        (768, 1024), radius_px=170.07689541612194, flight_deg=178.4574787375564,
+        upper_deg=6.1008673540118075, lower_deg=25.77604525030023,
+        leave_deg=(15.460416331044467, 10.08980991113668), layer_px=0.8740300776653576,
+        wake_deflection_deg=-7.7299645584400345, reverse_fraction=0.07397355411574716,
+        spread_rate=0.2992871751079341, seed=304))
+    upper = result.separation.upper
+    assert abs(upper.angle_deg - truth.upper_deg) <= 1.0, upper.budget
+    assert upper.uncertainty_deg < 5.0, upper.budget
+
+
 @pytest.mark.parametrize("flight_deg", [180.0, 3.0])
 def test_attached_flow_proposes_nothing(flight_deg):
     # potential flow past a sphere: no wake, no vorticity (Batchelor 1967, memory)
