@@ -166,7 +166,7 @@ def test_add_review_and_agreement_commands(session_path, tmp_path, capsys):
     assert main(["agreement", str(session_path), "--layer", "Nobody"]) == 1
     assert "--layer: no review 'Nobody'" in capsys.readouterr().err
     assert main(["add-review", str(session_path), str(tmp_path / "missing.csv")]) == 1
-    assert capsys.readouterr().err.strip().endswith("missing.csv: file not found")
+    assert capsys.readouterr().err.strip().endswith("missing.csv: review table not found")
 
 
 def test_a_layer_naming_an_unknown_shot_is_refused(session_path):

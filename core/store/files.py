@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import contextlib
+import csv
 import errno
 import hashlib
+import io
 import json
 import os
 import shutil
@@ -14,6 +16,7 @@ from contextlib import contextmanager
 from datetime import UTC, datetime
 from pathlib import Path
 
+from core import WakelineError
 from core.results import json_ready
 
 
@@ -146,3 +149,19 @@ def sha256_of(path: Path) -> str:
         for block in iter(lambda: fh.read(1 << 20), b""):
             digest.update(block)
     return digest.hexdigest()
+
+
+def read_csv_table(path: Path, what: str) -> tuple[list[str], Iterator[list[str]]]:
+    """The header (names stripped) and the row reader of a UTF-8 CSV file (a byte-order mark
+    allowed); one line naming the file when it is missing, a folder or not UTF-8 text.
+    ``what`` names the kind of file in those lines ("manifest", "review table")."""
+    try:
+        text = path.read_text(encoding="utf-8-sig")
+    except FileNotFoundError:
+        raise WakelineError(f"{path}: {what} not found") from None
+    except IsADirectoryError:
+        raise WakelineError(f"{path}: is a folder, not a {what}") from None
+    except UnicodeDecodeError:
+        raise WakelineError(f"{path}: not UTF-8 text") from None
+    reader = csv.reader(io.StringIO(text, newline=""))
+    return [h.strip() for h in next(reader, [])], reader

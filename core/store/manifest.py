@@ -3,11 +3,11 @@
 from __future__ import annotations
 
 import csv
-import io
 import math
 from pathlib import Path
 
 from core import WakelineError
+from core.store.files import read_csv_table
 
 REQUIRED_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm")
 NUMBER_COLUMNS = (
@@ -24,14 +24,7 @@ def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
     Numbers become floats (None when empty); ``ball_type`` and ``notes`` and unknown columns
     stay text.
     """
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise WakelineError(f"{path}: manifest not found") from None
-    except UnicodeDecodeError:
-        raise WakelineError(f"{path}: not UTF-8 text") from None
-    reader = csv.reader(io.StringIO(text, newline=""))
-    header = [h.strip() for h in next(reader, [])]
+    header, reader = read_csv_table(path, "manifest")
     for number, name in enumerate(header, start=1):
         if name and name in header[:number - 1]:
             raise WakelineError(f"{path}: column {name!r} appears twice (columns "

@@ -10,15 +10,13 @@ CSV with its column names.
 
 from __future__ import annotations
 
-import csv
-import io
 import math
 from dataclasses import asdict, dataclass, field
 from pathlib import Path
 
 from core import WakelineError
 from core.geometry import SIDES
-from core.store.files import json_ready, now_utc
+from core.store.files import json_ready, now_utc, read_csv_table
 from core.store.records import ReviewStatus, damage_reason
 from core.store.table import FORMULA_STARTS
 
@@ -130,16 +128,7 @@ def read_review_csv(path: Path, shot_ids, name: str | None = None) -> ReviewLaye
         more there are): nothing is imported from a file with a bad row.
     """
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8-sig")
-    except FileNotFoundError:
-        raise WakelineError(f"{path}: file not found") from None
-    except IsADirectoryError:
-        raise WakelineError(f"{path}: is a folder, not a review table") from None
-    except UnicodeDecodeError:
-        raise WakelineError(f"{path}: not UTF-8 text") from None
-    reader = csv.reader(io.StringIO(text, newline=""))
-    header = [h.strip() for h in next(reader, [])]
+    header, reader = read_csv_table(path, "review table")
     missing = [c for c in ("shot", REVIEW_COLUMNS["status"]) if c not in header]
     if missing:
         raise WakelineError(f"{path}: not a review table (no column "
