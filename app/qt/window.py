@@ -526,7 +526,7 @@ def _close_on_signals(window: MainWindow):
     loop does not give it while idle: a timer hands it control a few times a second."""
     previous = {signum: signal.signal(signum, lambda *_: QTimer.singleShot(0, window.close))
                 for signum in CLOSING_SIGNALS}
-    wake = QTimer(window)
+    wake = QTimer()  # no parent: it outlives the window, which may be deleted on closing
     wake.timeout.connect(lambda: None)
     wake.start(250)
 
