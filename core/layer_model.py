@@ -117,43 +117,64 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
     Parameters
     ----------
     geom : SideGeometry
-    params : sequence of float
+    params : (11,) or (K, 11) array_like
         In the order of ``PARAM_NAMES``: ``phi_s`` (deg), ``slope`` (tan of the departure
         angle), ``relax`` (L / R), ``log_delta`` (ln of the vorticity thickness at separation,
         px), ``spread`` (d delta / ds), ``reverse`` (r), ``drop`` (a), ``thin`` (b), ``follow``
-        (f), ``k_t``, ``k_r`` (scales of the outer stream's components).
+        (f), ``k_t``, ``k_r`` (scales of the outer stream's components). With ``K`` rows, ``K``
+        models at once (a fit's finite differences, a search's candidates).
     u_t_outer, u_r_outer : (P * G,) ndarray
         The stream outside the layer at the samples.
     shape : {"erf", "quartic"}
 
     Returns
     -------
-    u_t, u_r : (P * G,) ndarray
+    u_t, u_r : (P * G,) ndarray, or (K, P * G) for ``K`` models
     """
-    phi_s, slope, relax, log_delta, spread, reverse, drop, thin, follow, k_t, k_r = params
+    table = np.asarray(params, dtype=np.float64)
+    u_t, u_r = _models_flow(geom, np.atleast_2d(table), u_t_outer, u_r_outer, shape)
+    if table.ndim == 1:
+        return u_t[0], u_r[0]
+    return u_t, u_r
+
+
+def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, shape: str):
+    """:func:`side_flow` of ``K`` models, ``(K, 11)``: each parameter a ``(K, 1)`` column
+    broadcast over the ``(K, P, G)`` samples."""
+    phi_s, _, _, log_delta, spread, reverse, drop, thin, follow, k_t, k_r = (
+        table[:, i:i + 1] for i in range(len(PARAM_NAMES)))  # slope, relax: in the line
     r = geom.radius_px
     phi = geom.phi_grid
-    delta_s = math.exp(log_delta)
+    delta_s = np.array([[math.exp(v)] for v in log_delta[:, 0]])  # as one model's math.exp
     behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r  # arc length past separation
-    lift, rise = _dividing_line(geom, phi_s, slope, relax)
-    c = centre_offset(reverse, shape)
+    lift, rise = _dividing_lines(geom, table[:, :3])
+    c = np.array([[centre_offset(float(v), shape)] for v in reverse[:, 0]])
     ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / UPSTREAM_DEG)  # 0 at and behind phi_s
     delta = delta_s * (1.0 - thin * ramp) + spread * behind
-    centre = (lift + c * delta * (1.0 - drop * ramp))[:, None]
-    wall_px = WALL_FRACTION * delta_s * (1.0 - thin * ramp)[:, None]
-    delta = delta[:, None]
-    gap = geom.gap_grid[None, :]
+    centre = (lift + c * delta * (1.0 - drop * ramp))[:, :, None]
+    wall_px = (WALL_FRACTION * delta_s * (1.0 - thin * ramp))[:, :, None]
+    delta = delta[:, :, None]
+    gap = geom.gap_grid[None, None, :]
     across = profile((gap - centre) / delta, shape)
-    s_prof = -reverse + (1.0 + reverse) * across
+    s_prof = -reverse[:, :, None] + (1.0 + reverse[:, :, None]) * across
     wall = -np.expm1(-gap / wall_px)
-    shape_pg = (phi.size, gap.size)
-    u_t = k_t * u_t_outer.reshape(shape_pg) * s_prof * wall
+    shape_pg = (1, phi.size, gap.size)
+    u_t = k_t[:, :, None] * u_t_outer.reshape(shape_pg) * s_prof * wall
     inside = 1.0 - profile((gap - centre - delta) / delta, shape)
-    u_r = k_r * u_r_outer.reshape(shape_pg) * across * wall + follow * u_t * rise[:, None] * inside
-    return u_t.ravel(), u_r.ravel()
+    u_r = (k_r[:, :, None] * u_r_outer.reshape(shape_pg) * across * wall
+           + follow[:, :, None] * u_t * rise[:, :, None] * inside)
+    models = table.shape[0]
+    return u_t.reshape(models, -1), u_r.reshape(models, -1)
 
 
 _LINE_CACHE: dict = {}
+
+
+def _dividing_lines(geom: SideGeometry, lines: np.ndarray):
+    """:func:`_dividing_line` of each row ``(phi_s, slope, relax)`` of ``lines``, stacked
+    ``(K, P)``."""
+    found = [_dividing_line(geom, *(float(v) for v in row)) for row in lines]
+    return np.stack([lift for lift, _ in found]), np.stack([rise for _, rise in found])
 
 
 def _dividing_line(geom: SideGeometry, phi_s: float, slope: float, relax: float):

@@ -174,7 +174,7 @@ class NearWallBand:
         """Normalised difference of the two frames under ball-frame motion ``(u_t, u_r)`` (px).
 
         ``u_t`` is along the outline (rearward positive), ``u_r`` outward; both ``(S,)`` for the
-        band's samples.
+        band's samples, or ``(K, S)`` for ``K`` models at once (then ``(K, S)`` residuals).
         """
         turn_deg = (0.5 * u_t / self.rho) / self._rad_per_deg
         a = _bilinear(self.polar_a, (self.rho - 0.5 * u_r - self._rho0) / POLAR_STEP_PX,
@@ -203,7 +203,7 @@ class JointBand:
         return JointBand([b.view(phi_deg, every=every) for b in self.bands])
 
     def residual(self, u_t: np.ndarray, u_r: np.ndarray) -> np.ndarray:
-        return np.concatenate([b.residual(u_t, u_r) for b in self.bands])
+        return np.concatenate([b.residual(u_t, u_r) for b in self.bands], axis=-1)
 
 
 def _polar_picture(frame, *, ball: BallMotion, side: str, shift_px, rho_axis, phi_axis):
