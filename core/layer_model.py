@@ -94,20 +94,38 @@ def dividing_line_px(radius_px: float, phi_s_deg: float, slope: float, relax_px:
     (N,) ndarray
         Height above the outline (px), 0 at and ahead of ``phi_s_deg``.
     """
+    return dividing_lines_px(radius_px, [(phi_s_deg, slope, relax_px)], phi_deg, final_deg)[0]
+
+
+#: Arc-length steps along which a dividing line is traced.
+_LINE_STEPS = 240
+
+
+def dividing_lines_px(radius_px: float, lines, phi_deg: np.ndarray,
+                      final_deg: float = 0.0) -> np.ndarray:
+    """:func:`dividing_line_px` of several lines ``(phi_s_deg, slope, relax_px)`` at once,
+    ``(K, N)``: the lines are traced together, row by row as one would be."""
     phi = np.asarray(phi_deg, dtype=np.float64)
-    th = math.radians(phi_s_deg)
-    psi0 = -th + math.atan(slope)
+    lines = [tuple(float(v) for v in line) for line in lines]
+    th = np.array([[math.radians(phi_s)] for phi_s, _, _ in lines])
+    psi0 = np.array([[-math.radians(phi_s) + math.atan(slope)] for phi_s, slope, _ in lines])
+    decay = np.array([[max(relax_px, 1e-6)] for _, _, relax_px in lines])
     psi_f = math.radians(final_deg)
-    s = np.linspace(0.0, 3.0 * radius_px, 241)
-    psi = psi_f + (psi0 - psi_f) * np.exp(-s / max(relax_px, 1e-6))
+    s = np.linspace(0.0, 3.0 * radius_px, _LINE_STEPS + 1)
+    psi = psi_f + (psi0 - psi_f) * np.exp(-s / decay)
     ds = s[1] - s[0]
-    xi = radius_px * math.sin(th) + np.concatenate(
-        [[0.0], np.cumsum(0.5 * (np.cos(psi[1:]) + np.cos(psi[:-1])) * ds)])
-    zeta = radius_px * math.cos(th) + np.concatenate(
-        [[0.0], np.cumsum(0.5 * (np.sin(psi[1:]) + np.sin(psi[:-1])) * ds)])
-    curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)))
+    start = np.zeros((len(lines), 1))
+    xi = np.array([[radius_px * math.sin(v)] for v in th[:, 0]]) + np.concatenate(
+        [start, np.cumsum(0.5 * (np.cos(psi[:, 1:]) + np.cos(psi[:, :-1])) * ds, axis=1)],
+        axis=1)
+    zeta = np.array([[radius_px * math.cos(v)] for v in th[:, 0]]) + np.concatenate(
+        [start, np.cumsum(0.5 * (np.sin(psi[:, 1:]) + np.sin(psi[:, :-1])) * ds, axis=1)],
+        axis=1)
+    curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)), axis=1)
     curve_gap = np.hypot(xi, zeta) - radius_px
-    return np.where(phi > phi_s_deg, np.interp(phi, curve_phi, curve_gap), 0.0)
+    return np.array([
+        np.where(phi > phi_s, np.interp(phi, along, gap), 0.0)
+        for (phi_s, _, _), along, gap in zip(lines, curve_phi, curve_gap, strict=True)])
 
 
 def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.ndarray,
@@ -171,23 +189,24 @@ _LINE_CACHE: dict = {}
 
 
 def _dividing_lines(geom: SideGeometry, lines: np.ndarray):
-    """:func:`_dividing_line` of each row ``(phi_s, slope, relax)`` of ``lines``, stacked
-    ``(K, P)``."""
-    found = [_dividing_line(geom, *(float(v) for v in row)) for row in lines]
-    return np.stack([lift for lift, _ in found]), np.stack([rise for _, rise in found])
-
-
-def _dividing_line(geom: SideGeometry, phi_s: float, slope: float, relax: float):
-    """The dividing line's height over the angle grid and its rise ``dZ/ds``, kept for the last
-    few geometries (a fit's finite differences change the other parameters far more often)."""
+    """The dividing lines' heights over the angle grid and their rise ``dZ/ds``, ``(K, P)``
+    each, for the rows ``(phi_s, slope, relax)`` of ``lines``: the last few lines are kept (a
+    fit's finite differences change the other parameters far more often), the new ones traced
+    together."""
     phi = geom.phi_grid
-    key = (phi_s, slope, relax, geom.radius_px, geom.final_deg, phi.size, phi[0], phi[-1])
-    found = _LINE_CACHE.get(key)
-    if found is None:
+    keys = [(float(phi_s), float(slope), float(relax), geom.radius_px, geom.final_deg, phi.size,
+             phi[0], phi[-1]) for phi_s, slope, relax in lines]
+    known = {key: _LINE_CACHE[key] for key in keys if key in _LINE_CACHE}
+    new = list(dict.fromkeys(key for key in keys if key not in known))
+    if new:
         r = geom.radius_px
-        lift = dividing_line_px(r, phi_s, slope, relax * r, phi, geom.final_deg)
-        found = (lift, np.gradient(lift, np.radians(phi) * r))
-        if len(_LINE_CACHE) > 64:
+        lifts = dividing_lines_px(r, [(phi_s, slope, relax * r) for phi_s, slope, relax, *_ in new],
+                                  phi, geom.final_deg)
+        rises = np.gradient(lifts, np.radians(phi) * r, axis=1)
+        traced = dict(zip(new, zip(lifts, rises, strict=True), strict=True))
+        if len(_LINE_CACHE) + len(new) > 64:
             _LINE_CACHE.clear()
-        _LINE_CACHE[key] = found
-    return found
+        _LINE_CACHE.update(traced)
+        known.update(traced)
+    found = [known[key] for key in keys]
+    return np.stack([lift for lift, _ in found]), np.stack([rise for _, rise in found])

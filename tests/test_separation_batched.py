@@ -7,10 +7,11 @@ ones, bit for bit, so that batching cannot move a proposal.
 
 import numpy as np
 import pytest
+from scipy import ndimage
 from scipy.optimize import least_squares
 
-from core.layer_model import PARAM_NAMES, side_flow
-from core.near_wall import BallMotion, JointBand, NearWallBand, OuterStream
+from core.layer_model import PARAM_NAMES, dividing_line_px, dividing_lines_px, side_flow
+from core.near_wall import BallMotion, JointBand, NearWallBand, OuterStream, _bilinear
 from core.separation import SideProblem, all_at_once
 from core.synth_shot import ball_shot
 
@@ -113,3 +114,22 @@ def test_least_squares_with_batched_jacobian_equals_one_model_at_a_time(problem)
                             **options)
     np.testing.assert_array_equal(batched.jac, one_by_one.jac)
     np.testing.assert_array_equal(batched.x, one_by_one.x)
+
+
+def test_dividing_lines_traced_together_equal_one_at_a_time():
+    phi = np.linspace(-30.0, 60.0, 121)
+    lines = [(5.0, 0.1, 80.0), (12.0, 0.3, 150.0), (-3.0, 0.0, 40.0)]
+    together = dividing_lines_px(110.0, lines, phi, final_deg=3.0)
+    for line, row in zip(lines, together, strict=True):
+        np.testing.assert_array_equal(row, dividing_line_px(110.0, *line, phi, final_deg=3.0))
+
+
+def test_bilinear_lookup_is_the_bilinear_interpolation():
+    # the band's hand-written lookup against scipy's order-1 spline, edges clamped
+    rng = np.random.default_rng(3)
+    picture = rng.normal(size=(40, 70))
+    row = rng.uniform(-2.0, 42.0, 500)
+    col = rng.uniform(-2.0, 72.0, 500)
+    expected = ndimage.map_coordinates(picture, [np.clip(row, 0, 39), np.clip(col, 0, 69)],
+                                       order=1, mode="nearest")
+    np.testing.assert_allclose(_bilinear(picture, row, col), expected, atol=1e-5)
