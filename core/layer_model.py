@@ -173,16 +173,48 @@ def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, sh
     wall_px = (WALL_FRACTION * delta_s * (1.0 - thin * ramp))[:, :, None]
     delta = delta[:, :, None]
     gap = geom.gap_grid[None, None, :]
-    across = profile((gap - centre) / delta, shape)
+    # the error functions and exponentials are most of the cost: each is computed once for the
+    # models that share what it depends on (a Jacobian's columns for follow, k_t and k_r share
+    # the whole layer; most share the wall's no-slip length)
+    same_layer = _alike(table, LAYER_COLUMNS)
+    across = _once_each(lambda c, d: profile((gap - c) / d, shape), same_layer, centre, delta)
     s_prof = -reverse[:, :, None] + (1.0 + reverse[:, :, None]) * across
-    wall = -np.expm1(-gap / wall_px)
+    wall = _once_each(lambda w: -np.expm1(-gap / w), _alike(table, WALL_COLUMNS), wall_px)
     shape_pg = (1, phi.size, gap.size)
     u_t = k_t[:, :, None] * u_t_outer.reshape(shape_pg) * s_prof * wall
-    inside = 1.0 - profile((gap - centre - delta) / delta, shape)
+    inside = _once_each(lambda c, d: 1.0 - profile((gap - c - d) / d, shape), same_layer,
+                        centre, delta)
     u_r = (k_r[:, :, None] * u_r_outer.reshape(shape_pg) * across * wall
            + follow[:, :, None] * u_t * rise[:, :, None] * inside)
     models = table.shape[0]
     return u_t.reshape(models, -1), u_r.reshape(models, -1)
+
+
+#: Parameters (columns) that shape the layer's profile (all but ``follow``, ``k_t``, ``k_r``),
+#: and those that set the no-slip length at the wall.
+LAYER_COLUMNS = slice(0, PARAM_NAMES.index("follow"))
+WALL_COLUMNS = [PARAM_NAMES.index(name) for name in ("phi_s", "log_delta", "thin")]
+
+
+def _alike(table: np.ndarray, columns):
+    """Models (rows of ``table``) with the same values in ``columns``: the first of each kind
+    and each model's kind, or None when every model differs."""
+    if len(table) < 2:
+        return None
+    _, first, kind = np.unique(table[:, columns], axis=0, return_index=True,
+                               return_inverse=True)
+    if len(first) == len(table):
+        return None
+    return first, kind.ravel()
+
+
+def _once_each(function, alike, *per_model):
+    """``function`` of the ``(K, ...)`` arrays ``per_model``, computed once for each kind of
+    model (:func:`_alike`) and handed to every model of that kind."""
+    if alike is None:
+        return function(*per_model)
+    first, kind = alike
+    return function(*(values[first] for values in per_model))[kind]
 
 
 _LINE_CACHE: dict = {}
