@@ -284,22 +284,23 @@ class SideProblem:
 
     def prior_terms(self, params, log_delta_prior=None) -> np.ndarray:
         """Dimensionless prior residuals (their squares add to the cost), ``PARAM_NAMES`` order."""
-        if np.ndim(params) == 2:
-            return np.array([self.prior_terms(row, log_delta_prior) for row in params])
-        _, slope, relax, log_delta, spread, reverse, drop, thin, follow, _, _ = params
+        table = np.asarray(params, dtype=np.float64)
+        _, slope, relax, log_delta, spread, reverse, drop, thin, follow, _, _ = (
+            np.atleast_2d(table).T)
         centre = self.log_delta_prior if log_delta_prior is None else log_delta_prior
         lo, hi = (math.tan(math.radians(v)) for v in PRIOR_LEAVE_DEG)
-        ratio = (1.0 + reverse) / max(1.0 - reverse, 1e-3)
-        return np.array([
+        ratio = (1.0 + reverse) / np.maximum(1.0 - reverse, 1e-3)
+        terms = np.stack([
             _outside(slope, lo, hi),
-            math.log(relax / PRIOR_RELAX[0]) / PRIOR_RELAX[1],
+            np.array([math.log(v / PRIOR_RELAX[0]) for v in relax]) / PRIOR_RELAX[1],
             (log_delta - centre) / PRIOR_LOG_DELTA_SD,
             (spread - SPREADING_RATE[0] * ratio) / (SPREADING_RATE[1] * ratio),
             _outside(reverse, *PRIOR_REVERSE),
             _outside(drop, *PRIOR_DROP),
             _outside(thin, *PRIOR_THIN),
             _outside(follow, 0.0, 1.0),
-        ])
+        ], axis=-1)
+        return terms if table.ndim == 2 else terms[0]
 
     def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5):
         """Parameters at the priors' medians but for those given."""
@@ -309,9 +310,9 @@ class SideProblem:
                          SPREADING_RATE[0] * ratio, reverse, 0.5, 0.35, follow, 1.0, 1.0])
 
 
-def _outside(value: float, lo: float, hi: float) -> float:
+def _outside(value: np.ndarray, lo: float, hi: float) -> np.ndarray:
     """Distance of ``value`` outside ``[lo, hi]`` over ``PRIOR_WALL`` (0 inside)."""
-    return (max(0.0, lo - value) + max(0.0, value - hi)) / PRIOR_WALL
+    return (np.maximum(0.0, lo - value) + np.maximum(0.0, value - hi)) / PRIOR_WALL
 
 
 def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str,
