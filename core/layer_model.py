@@ -182,10 +182,15 @@ def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, sh
     wall = _once_each(lambda w: -np.expm1(-gap / w), _alike(table, WALL_COLUMNS), wall_px)
     shape_pg = (1, phi.size, gap.size)
     u_t = k_t[:, :, None] * u_t_outer.reshape(shape_pg) * s_prof * wall
-    inside = _once_each(lambda c, d: 1.0 - profile((gap - c - d) / d, shape), same_layer,
-                        centre, delta)
-    u_r = (k_r[:, :, None] * u_r_outer.reshape(shape_pg) * across * wall
-           + follow[:, :, None] * u_t * rise[:, :, None] * inside)
+    u_r = k_r[:, :, None] * u_r_outer.reshape(shape_pg) * across * wall
+    # the flow follows the dividing line only where it rises: from the first angle where any
+    # model's line does (elsewhere the term is zero)
+    rising = np.flatnonzero(rise.any(axis=0))
+    if rising.size:
+        rear = slice(rising[0], None)
+        inside = _once_each(lambda c, d: 1.0 - profile((gap - c - d) / d, shape), same_layer,
+                            centre[:, rear], delta[:, rear])
+        u_r[:, rear] += follow[:, :, None] * u_t[:, rear] * rise[:, rear, None] * inside
     models = table.shape[0]
     return u_t.reshape(models, -1), u_r.reshape(models, -1)
 
