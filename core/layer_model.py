@@ -58,7 +58,10 @@ class SideGeometry:
 def profile(x: np.ndarray, shape: str = "erf") -> np.ndarray:
     """Layer profile from 0 to 1 with unit largest slope (``x`` in vorticity thicknesses)."""
     if shape == "erf":
-        return 0.5 * (1.0 + erf(math.sqrt(math.pi) * x))
+        y = erf(math.sqrt(math.pi) * x)
+        y += 1.0
+        y *= 0.5
+        return y
     # compact quartic: 0.5 + 15/16 y - 5/8 y^3 + 3/16 y^5 for |y| <= 1 with y = x 16 / 15,
     # whose largest slope is 1 (derived)
     y = np.clip(x * (16.0 / 15.0), -1.0, 1.0)
@@ -173,26 +176,57 @@ def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, sh
     wall_px = (WALL_FRACTION * delta_s * (1.0 - thin * ramp))[:, :, None]
     delta = delta[:, :, None]
     gap = geom.gap_grid[None, None, :]
+    # the flow follows the dividing line only where it rises: from the first angle where any
+    # model's line does (elsewhere that part is zero)
+    rising = np.flatnonzero(rise.any(axis=0))
+    rear = slice(rising[0], None) if rising.size else None
     # the error functions and exponentials are most of the cost: each is computed once for the
     # models that share what it depends on (a Jacobian's columns for follow, k_t and k_r share
     # the whole layer; most share the wall's no-slip length)
-    same_layer = _alike(table, LAYER_COLUMNS)
-    across = _once_each(lambda c, d: profile((gap - c) / d, shape), same_layer, centre, delta)
-    s_prof = -reverse[:, :, None] + (1.0 + reverse[:, :, None]) * across
-    wall = _once_each(lambda w: -np.expm1(-gap / w), _alike(table, WALL_COLUMNS), wall_px)
+    layer = _alike(table, LAYER_COLUMNS)
+    across, inside = (_to_models(v, layer) for v in _layer_profiles(
+        gap, _of_kinds(centre, layer), _of_kinds(delta, layer), rear, shape))
+    no_slip = _alike(table, WALL_COLUMNS)
+    wall = _to_models(_wall_factor(gap, _of_kinds(wall_px, no_slip)), no_slip)
+    s_prof = (1.0 + reverse[:, :, None]) * across
+    s_prof += -reverse[:, :, None]
     shape_pg = (1, phi.size, gap.size)
-    u_t = k_t[:, :, None] * u_t_outer.reshape(shape_pg) * s_prof * wall
-    u_r = k_r[:, :, None] * u_r_outer.reshape(shape_pg) * across * wall
-    # the flow follows the dividing line only where it rises: from the first angle where any
-    # model's line does (elsewhere the term is zero)
-    rising = np.flatnonzero(rise.any(axis=0))
-    if rising.size:
-        rear = slice(rising[0], None)
-        inside = _once_each(lambda c, d: 1.0 - profile((gap - c - d) / d, shape), same_layer,
-                            centre[:, rear], delta[:, rear])
-        u_r[:, rear] += follow[:, :, None] * u_t[:, rear] * rise[:, rear, None] * inside
+    u_t = k_t[:, :, None] * u_t_outer.reshape(shape_pg)
+    u_t *= s_prof
+    u_t *= wall
+    u_r = k_r[:, :, None] * u_r_outer.reshape(shape_pg)
+    u_r *= across
+    u_r *= wall
+    if rear is not None:
+        along = follow[:, :, None] * u_t[:, rear]
+        along *= rise[:, rear, None]
+        along *= inside
+        u_r[:, rear] += along
     models = table.shape[0]
     return u_t.reshape(models, -1), u_r.reshape(models, -1)
+
+
+def _layer_profiles(gap, centre, delta, rear, shape: str):
+    """The profile across the layer at every sample, ``(K, P, G)``, and from the angle ``rear``
+    on (None: nowhere) the share of the flow under the layer's upper edge, one thickness above
+    its centre."""
+    height = gap - centre
+    across = profile(height / delta, shape)
+    if rear is None:
+        return across, None
+    up = height[:, rear] - delta[:, rear]
+    up /= delta[:, rear]
+    inside = profile(up, shape)
+    np.subtract(1.0, inside, out=inside)
+    return across, inside
+
+
+def _wall_factor(gap, wall_px):
+    """The wall's no-slip factor ``1 - exp(-gap / wall_px)``."""
+    factor = -gap / wall_px
+    np.expm1(factor, out=factor)
+    np.negative(factor, out=factor)
+    return factor
 
 
 #: Parameters (columns) that shape the layer's profile (all but ``follow``, ``k_t``, ``k_r``),
@@ -206,20 +240,26 @@ def _alike(table: np.ndarray, columns):
     and each model's kind, or None when every model differs."""
     if len(table) < 2:
         return None
-    _, first, kind = np.unique(table[:, columns], axis=0, return_index=True,
-                               return_inverse=True)
+    first, kind, seen = [], [], {}
+    for k, row in enumerate(table[:, columns]):
+        key = row.tobytes()  # bit for bit: such models give the same numbers
+        if key not in seen:
+            seen[key] = len(first)
+            first.append(k)
+        kind.append(seen[key])
     if len(first) == len(table):
         return None
-    return first, kind.ravel()
+    return np.array(first), np.array(kind)
 
 
-def _once_each(function, alike, *per_model):
-    """``function`` of the ``(K, ...)`` arrays ``per_model``, computed once for each kind of
-    model (:func:`_alike`) and handed to every model of that kind."""
-    if alike is None:
-        return function(*per_model)
-    first, kind = alike
-    return function(*(values[first] for values in per_model))[kind]
+def _of_kinds(per_model: np.ndarray, alike) -> np.ndarray:
+    """The rows of ``per_model`` for the first model of each kind (:func:`_alike`)."""
+    return per_model if alike is None else per_model[alike[0]]
+
+
+def _to_models(per_kind, alike):
+    """Rows for each kind of model (:func:`_alike`) handed to every model of that kind."""
+    return per_kind if alike is None or per_kind is None else per_kind[alike[1]]
 
 
 _LINE_CACHE: dict = {}
