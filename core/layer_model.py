@@ -114,21 +114,33 @@ def dividing_lines_px(radius_px: float, lines, phi_deg: np.ndarray,
     psi0 = np.array([[-math.radians(phi_s) + math.atan(slope)] for phi_s, slope, _ in lines])
     decay = np.array([[max(relax_px, 1e-6)] for _, _, relax_px in lines])
     psi_f = math.radians(final_deg)
-    s = np.linspace(0.0, 3.0 * radius_px, _LINE_STEPS + 1)
+    s = _arc_steps(radius_px)
     psi = psi_f + (psi0 - psi_f) * np.exp(-s / decay)
     ds = s[1] - s[0]
-    start = np.zeros((len(lines), 1))
-    xi = np.array([[radius_px * math.sin(v)] for v in th[:, 0]]) + np.concatenate(
-        [start, np.cumsum(0.5 * (np.cos(psi[:, 1:]) + np.cos(psi[:, :-1])) * ds, axis=1)],
-        axis=1)
-    zeta = np.array([[radius_px * math.cos(v)] for v in th[:, 0]]) + np.concatenate(
-        [start, np.cumsum(0.5 * (np.sin(psi[:, 1:]) + np.sin(psi[:, :-1])) * ds, axis=1)],
-        axis=1)
+    xi = _trapezoid_sums(np.cos(psi), ds)
+    xi += np.array([[radius_px * math.sin(v)] for v in th[:, 0]])
+    zeta = _trapezoid_sums(np.sin(psi), ds)
+    zeta += np.array([[radius_px * math.cos(v)] for v in th[:, 0]])
     curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)), axis=1)
     curve_gap = np.hypot(xi, zeta) - radius_px
     return np.array([
         np.where(phi > phi_s, np.interp(phi, along, gap), 0.0)
         for (phi_s, _, _), along, gap in zip(lines, curve_phi, curve_gap, strict=True)])
+
+
+@functools.lru_cache(maxsize=16)
+def _arc_steps(radius_px: float) -> np.ndarray:
+    """Arc lengths (px) along which a dividing line is traced, from its start."""
+    s = np.linspace(0.0, 3.0 * radius_px, _LINE_STEPS + 1)
+    s.flags.writeable = False
+    return s
+
+
+def _trapezoid_sums(values: np.ndarray, step: float) -> np.ndarray:
+    """Running trapezoidal integrals of the rows of ``values`` (0 at the first column)."""
+    sums = np.zeros_like(values)
+    np.cumsum(0.5 * (values[:, 1:] + values[:, :-1]) * step, axis=1, out=sums[:, 1:])
+    return sums
 
 
 def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.ndarray,
@@ -271,19 +283,59 @@ def _dividing_lines(geom: SideGeometry, lines: np.ndarray):
     fit's finite differences change the other parameters far more often), the new ones traced
     together."""
     phi = geom.phi_grid
-    keys = [(float(phi_s), float(slope), float(relax), geom.radius_px, geom.final_deg, phi.size,
-             phi[0], phi[-1]) for phi_s, slope, relax in lines]
+    alike = _alike(lines, slice(None))
+    grid = (geom.radius_px, geom.final_deg, phi.size, float(phi[0]), float(phi[-1]))
+    keys = [(*line, *grid) for line in _of_kinds(lines, alike).tolist()]
     known = {key: _LINE_CACHE[key] for key in keys if key in _LINE_CACHE}
-    new = list(dict.fromkeys(key for key in keys if key not in known))
+    new = [key for key in keys if key not in known]
     if new:
         r = geom.radius_px
         lifts = dividing_lines_px(r, [(phi_s, slope, relax * r) for phi_s, slope, relax, *_ in new],
                                   phi, geom.final_deg)
-        rises = np.gradient(lifts, np.radians(phi) * r, axis=1)
+        rises = _gradient(lifts, _spacing(r, phi))
         traced = dict(zip(new, zip(lifts, rises, strict=True), strict=True))
         if len(_LINE_CACHE) + len(new) > 64:
             _LINE_CACHE.clear()
         _LINE_CACHE.update(traced)
         known.update(traced)
     found = [known[key] for key in keys]
-    return np.stack([lift for lift, _ in found]), np.stack([rise for _, rise in found])
+    lift = np.stack([lift for lift, _ in found])
+    rise = np.stack([rise for _, rise in found])
+    return _to_models(lift, alike), _to_models(rise, alike)
+
+
+_SPACINGS: dict = {}
+
+
+def _spacing(radius_px: float, phi: np.ndarray):
+    """Arc-length spacing of the angle grid as ``np.gradient`` takes it: one step when even, the
+    steps otherwise (kept per grid)."""
+    key = (radius_px, phi.tobytes())
+    found = _SPACINGS.get(key)
+    if found is None:
+        steps = np.diff(np.radians(phi) * radius_px)
+        found = steps[0] if (steps == steps[0]).all() else steps
+        if len(_SPACINGS) > 16:
+            _SPACINGS.clear()
+        _SPACINGS[key] = found
+    return found
+
+
+def _gradient(rows: np.ndarray, spacing) -> np.ndarray:
+    """``np.gradient(rows, x, axis=1)`` with the spacing of ``x`` from :func:`_spacing`, same
+    formulas (second order inside, first order at the ends): written out because np.gradient's
+    set-up for a coordinate array costs more than the arithmetic on a few lines."""
+    out = np.empty_like(rows)
+    if np.ndim(spacing) == 0:
+        out[:, 1:-1] = (rows[:, 2:] - rows[:, :-2]) / (2.0 * spacing)
+        first = last = spacing
+    else:
+        dx1, dx2 = spacing[:-1], spacing[1:]
+        a = -(dx2) / (dx1 * (dx1 + dx2))
+        b = (dx2 - dx1) / (dx1 * dx2)
+        c = dx1 / (dx2 * (dx1 + dx2))
+        out[:, 1:-1] = a * rows[:, :-2] + b * rows[:, 1:-1] + c * rows[:, 2:]
+        first, last = spacing[0], spacing[-1]
+    out[:, 0] = (rows[:, 1] - rows[:, 0]) / first
+    out[:, -1] = (rows[:, -1] - rows[:, -2]) / last
+    return out

@@ -10,7 +10,14 @@ import pytest
 from scipy import ndimage
 from scipy.optimize import least_squares
 
-from core.layer_model import PARAM_NAMES, dividing_line_px, dividing_lines_px, side_flow
+from core.layer_model import (
+    PARAM_NAMES,
+    _gradient,
+    _spacing,
+    dividing_line_px,
+    dividing_lines_px,
+    side_flow,
+)
 from core.near_wall import BallMotion, JointBand, NearWallBand, OuterStream, _bilinear
 from core.separation import SideProblem, all_at_once
 from core.synth_shot import ball_shot
@@ -141,3 +148,13 @@ def test_bilinear_lookup_is_the_bilinear_interpolation():
     expected = ndimage.map_coordinates(picture, [np.clip(row, 0, 39), np.clip(col, 0, 69)],
                                        order=1, mode="nearest")
     np.testing.assert_allclose(_bilinear(picture, row, col), expected, atol=1e-5)
+
+
+@pytest.mark.parametrize("phi", [np.linspace(-20.0, 50.0, 90), np.geomspace(1.0, 60.0, 90)])
+def test_rise_of_the_dividing_lines_is_numpys_gradient(phi):
+    # written out for speed; it must stay numpy's formulas, evenly spaced angles or not
+    rows = np.random.default_rng(5).normal(size=(3, phi.size))
+    x = np.radians(phi) * 110.0
+    np.testing.assert_array_equal(_gradient(rows, _spacing(110.0, phi)),
+                                  np.gradient(rows, x, axis=1))
+    np.testing.assert_array_equal(_gradient(rows, 0.25), np.gradient(rows, 0.25, axis=1))
