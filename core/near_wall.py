@@ -178,15 +178,31 @@ class NearWallBand:
         ``u_t`` is along the outline (rearward positive), ``u_r`` outward; both ``(S,)`` for the
         band's samples, or ``(K, S)`` for ``K`` models at once (then ``(K, S)`` residuals).
         """
-        turn_deg = (0.5 * u_t / self.rho) / self._rad_per_deg
+        turn_deg = 0.5 * u_t
+        turn_deg /= self.rho
+        turn_deg /= self._rad_per_deg
         half_r = 0.5 * u_r
-        a = _bilinear(self.polar_a, (self.rho - half_r - self._rho0) / POLAR_STEP_PX,
-                      (self.phi - turn_deg - self._phi0) / self._dphi, self._steps_a)
-        b = _bilinear(self.polar_b, (self.rho + half_r - self._rho0) / POLAR_STEP_PX,
-                      (self.phi + turn_deg - self._phi0) / self._dphi, self._steps_b)
+        a = _bilinear(self.polar_a, self._polar_row(self.rho - half_r),
+                      self._polar_col(self.phi - turn_deg), self._steps_a)
+        b = _bilinear(self.polar_b, self._polar_row(self.rho + half_r),
+                      self._polar_col(self.phi + turn_deg), self._steps_b)
+        a -= b
         if self._weight is not None:
-            return (a - b) * self._weight / self.scale
-        return (a - b) / self.scale
+            a *= self._weight
+        a /= self.scale
+        return a
+
+    def _polar_row(self, rho: np.ndarray) -> np.ndarray:
+        """Fractional row of the polar pictures at radii ``rho`` (overwritten)."""
+        rho -= self._rho0
+        rho /= POLAR_STEP_PX
+        return rho
+
+    def _polar_col(self, phi: np.ndarray) -> np.ndarray:
+        """Fractional column of the polar pictures at angles ``phi`` (overwritten)."""
+        phi -= self._phi0
+        phi /= self._dphi
+        return phi
 
 
 class JointBand:
@@ -246,10 +262,12 @@ def _bilinear(picture: np.ndarray, row: np.ndarray, col: np.ndarray,
     col = np.clip(col, 0.0, cols - 1.000001)
     r0 = row.astype(np.intp)
     c0 = col.astype(np.intp)
-    fr = row - r0
-    fc = col - c0
+    fr = np.subtract(row, r0, out=row)
+    fc = np.subtract(col, c0, out=col)
     flat, flat_steps = picture.ravel(), steps.ravel()
-    i = r0 * cols + c0
+    i = r0
+    i *= cols
+    i += c0
     top = np.take(flat, i)
     top += fc * np.take(flat_steps, i)
     i += cols
