@@ -58,7 +58,10 @@ class SideGeometry:
 def profile(x: np.ndarray, shape: str = "erf") -> np.ndarray:
     """Layer profile from 0 to 1 with unit largest slope (``x`` in vorticity thicknesses)."""
     if shape == "erf":
-        return 0.5 * (1.0 + erf(math.sqrt(math.pi) * x))
+        y = erf(math.sqrt(math.pi) * x)
+        y += 1.0
+        y *= 0.5
+        return y
     # compact quartic: 0.5 + 15/16 y - 5/8 y^3 + 3/16 y^5 for |y| <= 1 with y = x 16 / 15,
     # whose largest slope is 1 (derived)
     y = np.clip(x * (16.0 / 15.0), -1.0, 1.0)
@@ -94,20 +97,50 @@ def dividing_line_px(radius_px: float, phi_s_deg: float, slope: float, relax_px:
     (N,) ndarray
         Height above the outline (px), 0 at and ahead of ``phi_s_deg``.
     """
+    return dividing_lines_px(radius_px, [(phi_s_deg, slope, relax_px)], phi_deg, final_deg)[0]
+
+
+#: Arc-length steps along which a dividing line is traced.
+_LINE_STEPS = 240
+
+
+def dividing_lines_px(radius_px: float, lines, phi_deg: np.ndarray,
+                      final_deg: float = 0.0) -> np.ndarray:
+    """:func:`dividing_line_px` of several lines ``(phi_s_deg, slope, relax_px)`` at once,
+    ``(K, N)``: the lines are traced together, row by row as one would be."""
     phi = np.asarray(phi_deg, dtype=np.float64)
-    th = math.radians(phi_s_deg)
-    psi0 = -th + math.atan(slope)
+    lines = [tuple(float(v) for v in line) for line in lines]
+    th = np.array([[math.radians(phi_s)] for phi_s, _, _ in lines])
+    psi0 = np.array([[-math.radians(phi_s) + math.atan(slope)] for phi_s, slope, _ in lines])
+    decay = np.array([[max(relax_px, 1e-6)] for _, _, relax_px in lines])
     psi_f = math.radians(final_deg)
-    s = np.linspace(0.0, 3.0 * radius_px, 241)
-    psi = psi_f + (psi0 - psi_f) * np.exp(-s / max(relax_px, 1e-6))
+    s = _arc_steps(radius_px)
+    psi = psi_f + (psi0 - psi_f) * np.exp(-s / decay)
     ds = s[1] - s[0]
-    xi = radius_px * math.sin(th) + np.concatenate(
-        [[0.0], np.cumsum(0.5 * (np.cos(psi[1:]) + np.cos(psi[:-1])) * ds)])
-    zeta = radius_px * math.cos(th) + np.concatenate(
-        [[0.0], np.cumsum(0.5 * (np.sin(psi[1:]) + np.sin(psi[:-1])) * ds)])
-    curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)))
+    xi = _trapezoid_sums(np.cos(psi), ds)
+    xi += np.array([[radius_px * math.sin(v)] for v in th[:, 0]])
+    zeta = _trapezoid_sums(np.sin(psi), ds)
+    zeta += np.array([[radius_px * math.cos(v)] for v in th[:, 0]])
+    curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)), axis=1)
     curve_gap = np.hypot(xi, zeta) - radius_px
-    return np.where(phi > phi_s_deg, np.interp(phi, curve_phi, curve_gap), 0.0)
+    return np.array([
+        np.where(phi > phi_s, np.interp(phi, along, gap), 0.0)
+        for (phi_s, _, _), along, gap in zip(lines, curve_phi, curve_gap, strict=True)])
+
+
+@functools.lru_cache(maxsize=16)
+def _arc_steps(radius_px: float) -> np.ndarray:
+    """Arc lengths (px) along which a dividing line is traced, from its start."""
+    s = np.linspace(0.0, 3.0 * radius_px, _LINE_STEPS + 1)
+    s.flags.writeable = False
+    return s
+
+
+def _trapezoid_sums(values: np.ndarray, step: float) -> np.ndarray:
+    """Running trapezoidal integrals of the rows of ``values`` (0 at the first column)."""
+    sums = np.zeros_like(values)
+    np.cumsum(0.5 * (values[:, 1:] + values[:, :-1]) * step, axis=1, out=sums[:, 1:])
+    return sums
 
 
 def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.ndarray,
@@ -117,56 +150,192 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
     Parameters
     ----------
     geom : SideGeometry
-    params : sequence of float
+    params : (11,) or (K, 11) array_like
         In the order of ``PARAM_NAMES``: ``phi_s`` (deg), ``slope`` (tan of the departure
         angle), ``relax`` (L / R), ``log_delta`` (ln of the vorticity thickness at separation,
         px), ``spread`` (d delta / ds), ``reverse`` (r), ``drop`` (a), ``thin`` (b), ``follow``
-        (f), ``k_t``, ``k_r`` (scales of the outer stream's components).
+        (f), ``k_t``, ``k_r`` (scales of the outer stream's components). With ``K`` rows, ``K``
+        models at once (a fit's finite differences, a search's candidates).
     u_t_outer, u_r_outer : (P * G,) ndarray
         The stream outside the layer at the samples.
     shape : {"erf", "quartic"}
 
     Returns
     -------
-    u_t, u_r : (P * G,) ndarray
+    u_t, u_r : (P * G,) ndarray, or (K, P * G) for ``K`` models
     """
-    phi_s, slope, relax, log_delta, spread, reverse, drop, thin, follow, k_t, k_r = params
+    table = np.asarray(params, dtype=np.float64)
+    u_t, u_r = _models_flow(geom, np.atleast_2d(table), u_t_outer, u_r_outer, shape)
+    if table.ndim == 1:
+        return u_t[0], u_r[0]
+    return u_t, u_r
+
+
+def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, shape: str):
+    """:func:`side_flow` of ``K`` models, ``(K, 11)``: each parameter a ``(K, 1)`` column
+    broadcast over the ``(K, P, G)`` samples."""
+    phi_s, _, _, log_delta, spread, reverse, drop, thin, follow, k_t, k_r = (
+        table[:, i:i + 1] for i in range(len(PARAM_NAMES)))  # slope, relax: in the line
     r = geom.radius_px
     phi = geom.phi_grid
-    delta_s = math.exp(log_delta)
+    delta_s = np.array([[math.exp(v)] for v in log_delta[:, 0]])  # as one model's math.exp
     behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r  # arc length past separation
-    lift, rise = _dividing_line(geom, phi_s, slope, relax)
-    c = centre_offset(reverse, shape)
+    lift, rise = _dividing_lines(geom, table[:, :3])
+    c = np.array([[centre_offset(float(v), shape)] for v in reverse[:, 0]])
     ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / UPSTREAM_DEG)  # 0 at and behind phi_s
     delta = delta_s * (1.0 - thin * ramp) + spread * behind
-    centre = (lift + c * delta * (1.0 - drop * ramp))[:, None]
-    wall_px = WALL_FRACTION * delta_s * (1.0 - thin * ramp)[:, None]
-    delta = delta[:, None]
-    gap = geom.gap_grid[None, :]
-    across = profile((gap - centre) / delta, shape)
-    s_prof = -reverse + (1.0 + reverse) * across
-    wall = -np.expm1(-gap / wall_px)
-    shape_pg = (phi.size, gap.size)
-    u_t = k_t * u_t_outer.reshape(shape_pg) * s_prof * wall
-    inside = 1.0 - profile((gap - centre - delta) / delta, shape)
-    u_r = k_r * u_r_outer.reshape(shape_pg) * across * wall + follow * u_t * rise[:, None] * inside
-    return u_t.ravel(), u_r.ravel()
+    centre = (lift + c * delta * (1.0 - drop * ramp))[:, :, None]
+    wall_px = (WALL_FRACTION * delta_s * (1.0 - thin * ramp))[:, :, None]
+    delta = delta[:, :, None]
+    gap = geom.gap_grid[None, None, :]
+    # the flow follows the dividing line only where it rises: from the first angle where any
+    # model's line does (elsewhere that part is zero)
+    rising = np.flatnonzero(rise.any(axis=0))
+    rear = slice(rising[0], None) if rising.size else None
+    # the error functions and exponentials are most of the cost: each is computed once for the
+    # models that share what it depends on (a Jacobian's columns for follow, k_t and k_r share
+    # the whole layer; most share the wall's no-slip length)
+    layer = _alike(table, LAYER_COLUMNS)
+    across, inside = (_to_models(v, layer) for v in _layer_profiles(
+        gap, _of_kinds(centre, layer), _of_kinds(delta, layer), rear, shape))
+    no_slip = _alike(table, WALL_COLUMNS)
+    wall = _to_models(_wall_factor(gap, _of_kinds(wall_px, no_slip)), no_slip)
+    s_prof = (1.0 + reverse[:, :, None]) * across
+    s_prof += -reverse[:, :, None]
+    shape_pg = (1, phi.size, gap.size)
+    u_t = k_t[:, :, None] * u_t_outer.reshape(shape_pg)
+    u_t *= s_prof
+    u_t *= wall
+    u_r = k_r[:, :, None] * u_r_outer.reshape(shape_pg)
+    u_r *= across
+    u_r *= wall
+    if rear is not None:
+        along = follow[:, :, None] * u_t[:, rear]
+        along *= rise[:, rear, None]
+        along *= inside
+        u_r[:, rear] += along
+    models = table.shape[0]
+    return u_t.reshape(models, -1), u_r.reshape(models, -1)
+
+
+def _layer_profiles(gap, centre, delta, rear, shape: str):
+    """The profile across the layer at every sample, ``(K, P, G)``, and from the angle ``rear``
+    on (None: nowhere) the share of the flow under the layer's upper edge, one thickness above
+    its centre."""
+    height = gap - centre
+    across = profile(height / delta, shape)
+    if rear is None:
+        return across, None
+    up = height[:, rear] - delta[:, rear]
+    up /= delta[:, rear]
+    inside = profile(up, shape)
+    np.subtract(1.0, inside, out=inside)
+    return across, inside
+
+
+def _wall_factor(gap, wall_px):
+    """The wall's no-slip factor ``1 - exp(-gap / wall_px)``."""
+    factor = -gap / wall_px
+    np.expm1(factor, out=factor)
+    np.negative(factor, out=factor)
+    return factor
+
+
+#: Parameters (columns) that shape the layer's profile (all but ``follow``, ``k_t``, ``k_r``),
+#: and those that set the no-slip length at the wall.
+LAYER_COLUMNS = slice(0, PARAM_NAMES.index("follow"))
+WALL_COLUMNS = [PARAM_NAMES.index(name) for name in ("phi_s", "log_delta", "thin")]
+
+
+def _alike(table: np.ndarray, columns):
+    """Models (rows of ``table``) with the same values in ``columns``: the first of each kind
+    and each model's kind, or None when every model differs."""
+    if len(table) < 2:
+        return None
+    first, kind, seen = [], [], {}
+    for k, row in enumerate(table[:, columns]):
+        key = row.tobytes()  # bit for bit: such models give the same numbers
+        if key not in seen:
+            seen[key] = len(first)
+            first.append(k)
+        kind.append(seen[key])
+    if len(first) == len(table):
+        return None
+    return np.array(first), np.array(kind)
+
+
+def _of_kinds(per_model: np.ndarray, alike) -> np.ndarray:
+    """The rows of ``per_model`` for the first model of each kind (:func:`_alike`)."""
+    return per_model if alike is None else per_model[alike[0]]
+
+
+def _to_models(per_kind, alike):
+    """Rows for each kind of model (:func:`_alike`) handed to every model of that kind."""
+    return per_kind if alike is None or per_kind is None else per_kind[alike[1]]
 
 
 _LINE_CACHE: dict = {}
 
 
-def _dividing_line(geom: SideGeometry, phi_s: float, slope: float, relax: float):
-    """The dividing line's height over the angle grid and its rise ``dZ/ds``, kept for the last
-    few geometries (a fit's finite differences change the other parameters far more often)."""
+def _dividing_lines(geom: SideGeometry, lines: np.ndarray):
+    """The dividing lines' heights over the angle grid and their rise ``dZ/ds``, ``(K, P)``
+    each, for the rows ``(phi_s, slope, relax)`` of ``lines``: the last few lines are kept (a
+    fit's finite differences change the other parameters far more often), the new ones traced
+    together."""
     phi = geom.phi_grid
-    key = (phi_s, slope, relax, geom.radius_px, geom.final_deg, phi.size, phi[0], phi[-1])
-    found = _LINE_CACHE.get(key)
-    if found is None:
+    alike = _alike(lines, slice(None))
+    grid = (geom.radius_px, geom.final_deg, phi.size, float(phi[0]), float(phi[-1]))
+    keys = [(*line, *grid) for line in _of_kinds(lines, alike).tolist()]
+    known = {key: _LINE_CACHE[key] for key in keys if key in _LINE_CACHE}
+    new = [key for key in keys if key not in known]
+    if new:
         r = geom.radius_px
-        lift = dividing_line_px(r, phi_s, slope, relax * r, phi, geom.final_deg)
-        found = (lift, np.gradient(lift, np.radians(phi) * r))
-        if len(_LINE_CACHE) > 64:
+        lifts = dividing_lines_px(r, [(phi_s, slope, relax * r) for phi_s, slope, relax, *_ in new],
+                                  phi, geom.final_deg)
+        rises = _gradient(lifts, _spacing(r, phi))
+        traced = dict(zip(new, zip(lifts, rises, strict=True), strict=True))
+        if len(_LINE_CACHE) + len(new) > 64:
             _LINE_CACHE.clear()
-        _LINE_CACHE[key] = found
+        _LINE_CACHE.update(traced)
+        known.update(traced)
+    found = [known[key] for key in keys]
+    lift = np.stack([lift for lift, _ in found])
+    rise = np.stack([rise for _, rise in found])
+    return _to_models(lift, alike), _to_models(rise, alike)
+
+
+_SPACINGS: dict = {}
+
+
+def _spacing(radius_px: float, phi: np.ndarray):
+    """Arc-length spacing of the angle grid as ``np.gradient`` takes it: one step when even, the
+    steps otherwise (kept per grid)."""
+    key = (radius_px, phi.tobytes())
+    found = _SPACINGS.get(key)
+    if found is None:
+        steps = np.diff(np.radians(phi) * radius_px)
+        found = steps[0] if (steps == steps[0]).all() else steps
+        if len(_SPACINGS) > 16:
+            _SPACINGS.clear()
+        _SPACINGS[key] = found
     return found
+
+
+def _gradient(rows: np.ndarray, spacing) -> np.ndarray:
+    """``np.gradient(rows, x, axis=1)`` with the spacing of ``x`` from :func:`_spacing`, same
+    formulas (second order inside, first order at the ends): written out because np.gradient's
+    set-up for a coordinate array costs more than the arithmetic on a few lines."""
+    out = np.empty_like(rows)
+    if np.ndim(spacing) == 0:
+        out[:, 1:-1] = (rows[:, 2:] - rows[:, :-2]) / (2.0 * spacing)
+        first = last = spacing
+    else:
+        dx1, dx2 = spacing[:-1], spacing[1:]
+        a = -(dx2) / (dx1 * (dx1 + dx2))
+        b = (dx2 - dx1) / (dx1 * dx2)
+        c = dx1 / (dx2 * (dx1 + dx2))
+        out[:, 1:-1] = a * rows[:, :-2] + b * rows[:, 1:-1] + c * rows[:, 2:]
+        first, last = spacing[0], spacing[-1]
+    out[:, 0] = (rows[:, 1] - rows[:, 0]) / first
+    out[:, -1] = (rows[:, -1] - rows[:, -2]) / last
+    return out

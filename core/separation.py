@@ -142,6 +142,8 @@ MIN_INSIDE_FRACTION = 0.9
 MIN_SEEDING_RATIO = 0.35
 #: Typical step of each parameter (``PARAM_NAMES`` order) for the refinement's trust region.
 REFINE_SCALE = np.array([1.0, 0.05, 0.3, 0.2, 0.03, 0.05, 0.1, 0.1, 0.2, 0.02, 0.1])
+#: Band samples times models evaluated in one go by the coarse search (memory, not the answer).
+BATCH_SAMPLES = 200_000
 
 
 @dataclass
@@ -253,39 +255,56 @@ class SideProblem:
         return SideProblem(self.band.view(phi_deg, every=every), self.outer, self.final_deg,
                            self.log_delta_prior, self.sigma / every)
 
+    # Every method below takes one model's parameters, (11,), or K models' as rows, (K, 11),
+    # and then answers row by row (a fit's finite differences, a search's candidates).
+
     def flow(self, params, shape="erf", geom=None):
         return side_flow(geom or self.geom, params, self.u_t, self.u_r, shape)
 
-    def data_cost(self, params, shape="erf", geom=None) -> float:
-        return float(np.sum(self.band.residual(*self.flow(params, shape, geom)) ** 2))
+    def data_cost(self, params, shape="erf", geom=None):
+        """Sum of the squared residuals of the band (no ``sigma``): a float, or ``(K,)``."""
+        table = np.asarray(params, dtype=np.float64)
+        if table.ndim == 1:
+            return float(np.sum(self.band.residual(*self.flow(table, shape, geom)) ** 2))
+        # a few models at a time keep the (K, S) temporaries small
+        rows = max(1, BATCH_SAMPLES // self.band.phi.size)
+        return np.concatenate([
+            np.sum(self.band.residual(*self.flow(table[i:i + rows], shape, geom)) ** 2, axis=-1)
+            for i in range(0, len(table), rows)])
 
     def residuals(self, params, shape="erf", geom=None, log_delta_prior=None) -> np.ndarray:
         """What the fit squares and sums: the band's residuals over ``sigma``, then the priors'."""
         data = self.band.residual(*self.flow(params, shape, geom)) / self.sigma
-        return np.concatenate([data, self.prior_terms(params, log_delta_prior)])
+        return np.concatenate([data, self.prior_terms(params, log_delta_prior)], axis=-1)
 
-    def score(self, params, data_cost: float | None = None) -> float:
+    def score(self, params, data_cost=None):
         """Data cost over ``sigma^2`` plus the priors: what the fit minimises (twice its cost)."""
         if data_cost is None:
             data_cost = self.data_cost(params)
-        return data_cost / self.sigma**2 + float(np.sum(self.prior_terms(params) ** 2))
+        priors = np.sum(self.prior_terms(params) ** 2, axis=-1)
+        if np.ndim(priors) == 0:
+            return data_cost / self.sigma**2 + float(priors)
+        return data_cost / self.sigma**2 + priors
 
     def prior_terms(self, params, log_delta_prior=None) -> np.ndarray:
         """Dimensionless prior residuals (their squares add to the cost), ``PARAM_NAMES`` order."""
-        _, slope, relax, log_delta, spread, reverse, drop, thin, follow, _, _ = params
+        table = np.asarray(params, dtype=np.float64)
+        _, slope, relax, log_delta, spread, reverse, drop, thin, follow, _, _ = (
+            np.atleast_2d(table).T)
         centre = self.log_delta_prior if log_delta_prior is None else log_delta_prior
         lo, hi = (math.tan(math.radians(v)) for v in PRIOR_LEAVE_DEG)
-        ratio = (1.0 + reverse) / max(1.0 - reverse, 1e-3)
-        return np.array([
+        ratio = (1.0 + reverse) / np.maximum(1.0 - reverse, 1e-3)
+        terms = np.stack([
             _outside(slope, lo, hi),
-            math.log(relax / PRIOR_RELAX[0]) / PRIOR_RELAX[1],
+            np.array([math.log(v / PRIOR_RELAX[0]) for v in relax]) / PRIOR_RELAX[1],
             (log_delta - centre) / PRIOR_LOG_DELTA_SD,
             (spread - SPREADING_RATE[0] * ratio) / (SPREADING_RATE[1] * ratio),
             _outside(reverse, *PRIOR_REVERSE),
             _outside(drop, *PRIOR_DROP),
             _outside(thin, *PRIOR_THIN),
             _outside(follow, 0.0, 1.0),
-        ])
+        ], axis=-1)
+        return terms if table.ndim == 2 else terms[0]
 
     def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5):
         """Parameters at the priors' medians but for those given."""
@@ -295,9 +314,9 @@ class SideProblem:
                          SPREADING_RATE[0] * ratio, reverse, 0.5, 0.35, follow, 1.0, 1.0])
 
 
-def _outside(value: float, lo: float, hi: float) -> float:
+def _outside(value: np.ndarray, lo: float, hi: float) -> np.ndarray:
     """Distance of ``value`` outside ``[lo, hi]`` over ``PRIOR_WALL`` (0 inside)."""
-    return (max(0.0, lo - value) + max(0.0, value - hi)) / PRIOR_WALL
+    return (np.maximum(0.0, lo - value) + np.maximum(0.0, value - hi)) / PRIOR_WALL
 
 
 def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str,
@@ -456,24 +475,24 @@ def _coarse_search(problem: SideProblem):
     layer can mimic a separated one far too early or late); the best of each ``phi_s`` cell
     are kept, ``REFINE_STARTS`` of them at least 3 deg apart.
     """
-    data_best = np.inf
-    first = []
     sparse = problem.view(every=COARSE_EVERY)
     problem = problem.view(every=2)
+    tags, candidates = [], []
     for factor, reverse, follow in itertools.product(COARSE_THICKNESS, (0.08, 0.25), (0.0, 1.0)):
         for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 3.0):
-            params = sparse.start(phi_s, delta_factor=factor, reverse=reverse, follow=follow)
-            first.append((sparse.score(params), params, (factor, reverse, follow)))
-    scored = []
+            tags.append((factor, reverse, follow))
+            candidates.append(sparse.start(phi_s, delta_factor=factor, reverse=reverse,
+                                           follow=follow))
+    first = list(zip(sparse.score(np.array(candidates)), candidates, tags, strict=True))
+    candidates = []
     for _, centre, (factor, reverse, follow) in _distinct(first, 6.0, COARSE_CANDIDATES):
         for phi_s in centre[0] + np.array([-3.0, -1.5, 0.0, 1.5, 3.0]):
             for leave in (2.0, 7.0, 13.0, 19.0):
                 for f in (0.6 * factor, factor, 1.6 * factor):
-                    params = problem.start(phi_s, leave, f, reverse, follow)
-                    cost = problem.data_cost(params)
-                    data_best = min(data_best, cost)
-                    scored.append((problem.score(params, cost), params))
-    return [item[1] for item in _distinct(scored, 3.0, REFINE_STARTS)], data_best
+                    candidates.append(problem.start(phi_s, leave, f, reverse, follow))
+    costs = problem.data_cost(np.array(candidates))
+    scored = list(zip(problem.score(np.array(candidates), costs), candidates, strict=True))
+    return [item[1] for item in _distinct(scored, 3.0, REFINE_STARTS)], float(np.min(costs))
 
 
 def _distinct(scored, apart_deg: float, count: int):
@@ -494,9 +513,9 @@ def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_pr
     start = np.asarray(start, dtype=np.float64)
     free = np.array([name not in hold for name in PARAM_NAMES])
 
-    def residuals(q):
-        p = start.copy()
-        p[free] = q
+    def residuals(q):  # (n,) free parameters, or (K, n)
+        p = np.tile(start, np.shape(q)[:-1] + (1,))
+        p[..., free] = q
         return problem.residuals(p, shape, geom, log_delta_prior)
 
     lower = np.array([start[0] - 10.0, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.0, 0.0, 0.7,
@@ -507,10 +526,22 @@ def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_pr
     sol = least_squares(
         residuals, x0, bounds=(lower[free], upper[free]), diff_step=1e-3, max_nfev=max_nfev,
         xtol=1e-4, ftol=1e-4, x_scale=REFINE_SCALE[free], tr_solver="lsmr",
+        workers=all_at_once(residuals),
     )
     params = start.copy()
     params[free] = sol.x
     return Fit(params, float(2.0 * sol.cost), sol.jac if free.all() else None, sol.fun)
+
+
+def all_at_once(residuals):
+    """A map (``workers``) for least_squares' finite-difference Jacobian that evaluates its
+    perturbed parameter sets, stepped and kept in bounds by scipy itself, as one batch of models
+    (``residuals`` takes ``(K, n)`` rows) rather than one model at a time."""
+
+    def evaluate(_one_by_one, points):
+        return residuals(np.array(list(points)))
+
+    return evaluate
 
 
 def _profile(problem: SideProblem, best: Fit) -> list[Fit]:

@@ -1,0 +1,160 @@
+"""Many models at once give, row by row, exactly what one model at a time gives.
+
+The separation fit evaluates its models in batches (a Jacobian's perturbed parameter sets, the
+coarse search's candidates) for speed; these checks hold the batched paths to the one-at-a-time
+ones, bit for bit, so that batching cannot move a proposal.
+"""
+
+import numpy as np
+import pytest
+from scipy import ndimage
+from scipy.optimize import least_squares
+
+from core.layer_model import (
+    PARAM_NAMES,
+    _gradient,
+    _spacing,
+    dividing_line_px,
+    dividing_lines_px,
+    side_flow,
+)
+from core.near_wall import BallMotion, JointBand, NearWallBand, OuterStream, _bilinear
+from core.separation import SideProblem, all_at_once
+from core.synth_shot import ball_shot
+
+RADIUS_PX = 60.0
+
+
+@pytest.fixture(scope="module")
+def problem():
+    frame_a, frame_b, truth = ball_shot((260, 360), radius_px=RADIUS_PX, seed=4)
+    centre = tuple(0.5 * (a + b) for a, b in zip(truth.center_a_px, truth.center_b_px,
+                                                 strict=True))
+    shift = float(np.hypot(*truth.displacement_px))
+    ball = BallMotion(centre, RADIUS_PX, truth.displacement_px, truth.flight_deg)
+    band = NearWallBand(frame_a, frame_b, ball, "upper", phi_deg=(-30.0, 50.0),
+                        gap_px=(2.0, 14.0), max_speed_px=2.0 * shift, arc_step_px=1.5)
+    coef_t = np.zeros(10)
+    coef_t[0], coef_t[4] = 0.9 * shift, 0.5
+    coef_r = np.zeros(6)
+    coef_r[1] = 0.3
+    outer = OuterStream(coef_t, coef_r, RADIUS_PX, (-30.0, 30.0))
+    side = SideProblem(band, outer, final_deg=4.0, log_delta_prior=np.log(1.5))
+    side.sigma = 0.7
+    return side
+
+
+def _models(problem, count=7, seed=0):
+    """Models that differ from each other in every parameter (and two that share a line)."""
+    rng = np.random.default_rng(seed)
+    base = problem.start(8.0, leave_deg=10.0)
+    spread = np.array([6.0, 0.08, 0.4, 0.3, 0.03, 0.05, 0.2, 0.2, 0.3, 0.1, 0.2])
+    table = base + spread * rng.uniform(-1.0, 1.0, (count, len(PARAM_NAMES)))
+    table[1, :3] = table[0, :3]  # same dividing line, other layer
+    return table
+
+
+def _jacobian_like(problem):
+    """A model and one copy per parameter with that parameter moved: most share their layer's
+    profile or their no-slip length, which the batch computes once for them."""
+    base = problem.start(8.0, leave_deg=10.0)
+    return np.vstack([base, base + np.diag(1e-3 * np.maximum(1.0, np.abs(base)))])
+
+
+@pytest.mark.parametrize("shape", ["erf", "quartic"])
+@pytest.mark.parametrize("models", [_models, _jacobian_like])
+def test_side_flow_of_many_models_equals_one_at_a_time(problem, shape, models):
+    table = models(problem)
+    u_t, u_r = side_flow(problem.geom, table, problem.u_t, problem.u_r, shape)
+    assert u_t.shape == u_r.shape == (len(table), problem.u_t.size)
+    for row, (t_row, r_row) in zip(table, zip(u_t, u_r, strict=True), strict=True):
+        one_t, one_r = side_flow(problem.geom, row, problem.u_t, problem.u_r, shape)
+        np.testing.assert_array_equal(t_row, one_t)
+        np.testing.assert_array_equal(r_row, one_r)
+
+
+def test_band_residual_of_many_models_equals_one_at_a_time(problem):
+    u_t, u_r = problem.flow(_models(problem))
+    band = problem.band
+    joint = JointBand([band, band.view()])
+    many, many_joint = band.residual(u_t, u_r), joint.residual(u_t, u_r)
+    assert many_joint.shape == (len(u_t), 2 * band.phi.size)
+    for k in range(len(u_t)):
+        np.testing.assert_array_equal(many[k], band.residual(u_t[k], u_r[k]))
+        np.testing.assert_array_equal(many_joint[k], joint.residual(u_t[k], u_r[k]))
+
+
+def test_band_residual_of_many_models_leaves_the_same_samples_out(problem):
+    mask = np.zeros((260, 360), dtype=bool)
+    cx, cy = (int(v) for v in problem.band.ball.center_px)
+    mask[cy - 75:cy - 55, cx - 10:cx + 10] = True  # a glint over part of the upper band
+    band = problem.band.view()
+    band.leave_out((mask, None), 2.0)
+    assert 0.0 < band.kept_fraction < 1.0
+    u_t, u_r = problem.flow(_models(problem))
+    many = band.residual(u_t, u_r)
+    for k in range(len(u_t)):
+        np.testing.assert_array_equal(many[k], band.residual(u_t[k], u_r[k]))
+
+
+def test_costs_and_scores_of_many_models_equal_one_at_a_time(problem):
+    table = _models(problem)
+    residuals = problem.residuals(table)
+    costs = problem.data_cost(table)
+    scores = problem.score(table)
+    for k, row in enumerate(table):
+        np.testing.assert_array_equal(residuals[k], problem.residuals(row))
+        assert costs[k] == problem.data_cost(row)
+        assert scores[k] == problem.score(row)
+
+
+def test_costs_of_many_models_in_several_batches_equal_one_batch(problem, monkeypatch):
+    table = _models(problem, count=9)
+    whole = problem.data_cost(table)
+    monkeypatch.setattr("core.separation.BATCH_SAMPLES", 2 * problem.band.phi.size)
+    np.testing.assert_array_equal(problem.data_cost(table), whole)
+
+
+def test_least_squares_with_batched_jacobian_equals_one_model_at_a_time(problem):
+    # scipy chooses the finite-difference steps (diff_step relative, turned back where a bound
+    # is nearer than the step); the batch only evaluates them: the Jacobians, and so the whole
+    # refinement, must be the same to the last bit
+    x0 = problem.start(8.0, leave_deg=10.0)
+    lower, upper = x0 - 1.0, x0 + 1.0
+    upper[4] = x0[4] + 1e-5  # a bound nearer than the step: scipy steps the other way
+    lower[9] = x0[9] - 1e-5
+    options = {"bounds": (lower, upper), "diff_step": 1e-3, "max_nfev": 4, "tr_solver": "lsmr"}
+    one_by_one = least_squares(problem.residuals, x0, **options)
+    batched = least_squares(problem.residuals, x0, workers=all_at_once(problem.residuals),
+                            **options)
+    np.testing.assert_array_equal(batched.jac, one_by_one.jac)
+    np.testing.assert_array_equal(batched.x, one_by_one.x)
+
+
+def test_dividing_lines_traced_together_equal_one_at_a_time():
+    phi = np.linspace(-30.0, 60.0, 121)
+    lines = [(5.0, 0.1, 80.0), (12.0, 0.3, 150.0), (-3.0, 0.0, 40.0)]
+    together = dividing_lines_px(110.0, lines, phi, final_deg=3.0)
+    for line, row in zip(lines, together, strict=True):
+        np.testing.assert_array_equal(row, dividing_line_px(110.0, *line, phi, final_deg=3.0))
+
+
+def test_bilinear_lookup_is_the_bilinear_interpolation():
+    # the band's hand-written lookup against scipy's order-1 spline, edges clamped
+    rng = np.random.default_rng(3)
+    picture = rng.normal(size=(40, 70))
+    row = rng.uniform(-2.0, 42.0, 500)
+    col = rng.uniform(-2.0, 72.0, 500)
+    expected = ndimage.map_coordinates(picture, [np.clip(row, 0, 39), np.clip(col, 0, 69)],
+                                       order=1, mode="nearest")
+    np.testing.assert_allclose(_bilinear(picture, row, col), expected, atol=1e-5)
+
+
+@pytest.mark.parametrize("phi", [np.linspace(-20.0, 50.0, 90), np.geomspace(1.0, 60.0, 90)])
+def test_rise_of_the_dividing_lines_is_numpys_gradient(phi):
+    # written out for speed; it must stay numpy's formulas, evenly spaced angles or not
+    rows = np.random.default_rng(5).normal(size=(3, phi.size))
+    x = np.radians(phi) * 110.0
+    np.testing.assert_array_equal(_gradient(rows, _spacing(110.0, phi)),
+                                  np.gradient(rows, x, axis=1))
+    np.testing.assert_array_equal(_gradient(rows, 0.25), np.gradient(rows, 0.25, axis=1))
