@@ -151,6 +151,16 @@ def test_mask_covers_the_ball_and_margin():
     assert mask[50, 50] and mask[50, 72] and not mask[50, 74]
 
 
+@pytest.mark.parametrize("circle", [(50.3, 40.7, 20.2), (-5.5, 97.0, 30.0), (180.0, 50.0, 10.0),
+                                    (60.0, 45.0, 200.0)])
+def test_mask_window_matches_the_whole_frame_test(circle):
+    # the mask tests only the disc's bounding box: the same pixels as testing every pixel
+    cx, cy, r = circle
+    yy, xx = np.ogrid[:100, :120]
+    whole = (xx - cx) ** 2 + (yy - cy) ** 2 <= (r + 3.0) ** 2
+    assert np.array_equal(ball_mask((100, 120), BallFit((cx, cy), r), margin_px=3.0), whole)
+
+
 def test_rulebook_diameters():
     # Laws of Cricket, Law 4: circumference 22.4-22.9 cm (seen in quoted rule text)
     assert nominal_diameter_mm("cricket") == pytest.approx(226.5 / math.pi)
