@@ -74,7 +74,7 @@ def match_ball_image(
     spread_b = np.subtract(*np.percentile(crop_b[region_b], [99, 50])) if region_b.any() else 0.0
     gain = float(np.clip(spread_b / spread_a, 0.5, 2.0)) if spread_a > 0 and spread_b > 0 else 1.0
     crop_b = crop_b / gain
-    ys, xs = np.nonzero(region)
+    ys, xs = np.divmod(np.flatnonzero(region), region.shape[1])  # np.nonzero is slow in 2-D
     if ys.size > MATCH_PIXELS:
         # a large ball: the pixels with the steepest gradients carry the match (the
         # Gauss-Newton information grows with the gradient squared); the rest is mostly noise
@@ -143,7 +143,10 @@ def match_ball_image(
         except np.linalg.LinAlgError:
             return None
         p += step
-        if math.hypot(step[0], step[1]) + r * float(np.abs(step[2:5]).sum()) < 2e-3:
+        # converged when the last step moved the ball by a thousandth of a pixel and the turns
+        # its surface by a fiftieth at most (r times the turn): the turns, which mostly the
+        # prior holds, creep for ten more steps that change the displacement by less than that
+        if math.hypot(step[0], step[1]) < 1e-3 and r * float(np.abs(step[2:5]).sum()) < 2e-2:
             break
     else:
         return None
