@@ -332,3 +332,46 @@ def test_stored_records_without_uncertainties_still_load():
     old, flight = stored.ball_a, stored.flight
     assert math.isnan(old.radius_sigma_px) and old.covariance_px2 is None
     assert flight.direction_sigma_deg is None and flight.source == "ball displacement"
+
+
+def test_ransac_circle_keeps_the_inliers_skimage_ransac_keeps():
+    # the fine search's RANSAC solves all trials at once; on an outline with a third of its
+    # points spoilt (particle images pushing them 1-8 px out) it keeps the same inliers as
+    # skimage's ransac with CircleModel, which it replaces
+    import warnings
+
+    from skimage.measure import CircleModel, ransac
+
+    from core.ball.coarse import ransac_circle
+
+    rng = np.random.default_rng(3)
+    theta = rng.uniform(0, 2 * math.pi, 600)
+    rho = 80.0 + rng.normal(0, 0.08, theta.size)
+    spoilt = rng.random(theta.size) < 0.33
+    rho[spoilt] += rng.uniform(1.0, 8.0, spoilt.sum())
+    points = np.column_stack([40.0 + rho * np.cos(theta), 30.0 + rho * np.sin(theta)])
+    ours = ransac_circle(points, 0.5, (41.0, 29.5, 79.0), 5.0)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        _, theirs = ransac(points, CircleModel, min_samples=3, residual_threshold=0.5,
+                           max_trials=100, rng=np.random.default_rng(1))
+    assert np.array_equal(ours, theirs) and np.array_equal(ours, ~spoilt)
+    # no circle within reach of the start: none
+    assert ransac_circle(points, 0.5, (140.0, 30.0, 79.0), 5.0) is None
+
+
+def test_row_medians_of_finite_values_match_numpys_nanmedian():
+    # the outline's coherence test takes the median of each ray's neighbours without NaNs by
+    # sorting; np.nanmedian is what it replaces
+    import warnings
+
+    from core.ball.outline import _nan_median_rows
+
+    rng = np.random.default_rng(4)
+    rows = rng.normal(size=(2000, 9))
+    rows[rng.random(rows.shape) < 0.4] = np.nan
+    rows[:5] = np.nan
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        expected = np.nanmedian(rows, axis=1)
+    np.testing.assert_array_equal(_nan_median_rows(rows), expected)

@@ -7,7 +7,7 @@ import math
 import numpy as np
 from scipy import ndimage
 from skimage.filters import threshold_otsu
-from skimage.measure import CircleModel, ransac
+from skimage.measure import CircleModel
 
 from core import WakelineError
 
@@ -178,22 +178,44 @@ def _refined(ex, ey, nx, ny, i, j, r):
     return float(ci), float(cj), float(cr), sectors.size / 64.0
 
 
-def ransac_circle(points: np.ndarray, threshold: float, is_model_valid=None):
-    """RANSAC circle (skimage) with a fixed seed: the same frame always gives the same fit.
-    Returns ``(model, inliers)`` or ``(None, None)``."""
-    import warnings
+#: Random triples of points tried by :func:`ransac_circle`.
+RANSAC_TRIALS = 100
 
-    with warnings.catch_warnings():
-        # skimage warns when no sample passes ``is_model_valid``; that is a plain "no circle"
-        warnings.simplefilter("ignore", UserWarning)
-        model, inliers = ransac(
-            points, CircleModel, min_samples=3, residual_threshold=threshold, max_trials=100,
-            stop_probability=0.999, rng=np.random.default_rng(12345),
-            is_model_valid=is_model_valid,
-        )
-    if model is None or inliers is None:
-        return None, None
-    return model, inliers
+
+def ransac_circle(points: np.ndarray, threshold: float, start: tuple[float, float, float],
+                  reach: float) -> np.ndarray | None:
+    """Inliers (within ``threshold`` px) of the circle through three of ``points`` that most
+    points support (RANSAC), among circles within ``reach`` px of ``start`` (x, y, r); ties go
+    to the smaller sum of squared residuals. None when no triple gives such a circle.
+
+    All ``RANSAC_TRIALS`` triples' circles are solved and scored at once (skimage's ``ransac``
+    fits each trial through a :class:`skimage.measure.CircleModel` whose per-call cost took
+    most of the fine search on a large ball). The seed is fixed: the same frame always gives the
+    same fit.
+    """
+    count = len(points)
+    if count < 3:
+        return None
+    triples = np.random.default_rng(12345).integers(0, count, size=(RANSAC_TRIALS, 3))
+    a, b, c = (points[triples[:, k]] for k in range(3))
+    # circumcentre of each triple, relative to its first point
+    bx, by = (b - a).T
+    qx, qy = (c - a).T
+    det = 2.0 * (bx * qy - by * qx)
+    ok = np.abs(det) > 1e-9  # repeated or collinear points give no circle
+    det = np.where(ok, det, 1.0)
+    b2, q2 = bx * bx + by * by, qx * qx + qy * qy
+    ux, uy = (qy * b2 - by * q2) / det, (bx * q2 - qx * b2) / det
+    cx, cy, r = a[:, 0] + ux, a[:, 1] + uy, np.hypot(ux, uy)
+    ok &= (np.abs(r - start[2]) <= reach) & (np.hypot(cx - start[0], cy - start[1]) <= reach)
+    if not ok.any():
+        return None
+    cx, cy, r = cx[ok], cy[ok], r[ok]
+    residual = np.abs(np.hypot(points[None, :, 0] - cx[:, None], points[None, :, 1] - cy[:, None])
+                      - r[:, None])
+    inliers = residual < threshold
+    best = np.lexsort((np.einsum("ij,ij->i", residual, residual), -inliers.sum(axis=1)))[0]
+    return inliers[best]
 
 
 def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[float, float, float]:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 from scipy import ndimage, sparse
@@ -157,17 +158,16 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
     cue = None
     for index, half_width in enumerate((first, *FINE_BANDS_PX)):
         rays = _sample_rays(crop, coeff, glare, cx, cy, r, half_width)
+        crossings = _Crossings(rays, r, half_width)
         if index < 2:
-            cue = _choose_cue(rays, r, half_width)
+            cue = _choose_cue(crossings)
         if cue == "particle images":
             last = index == len(FINE_BANDS_PX)
             fit = _hole_circle(crop, glare, cx, cy, r, half_width + (index > 0), name, last)
         else:
-            edges = _rim_crossings(rays.raw, rays.radii, r, half_width)
+            edges = crossings.rim
             if cue == "surface edge":  # the rim's flank where it is lit, else the step
-                lit = _coherent(edges)
-                step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
-                edges = np.where(lit, edges, step)
+                edges = np.where(crossings.coherent_rim, edges, crossings.step)
             fit = _edge_circle(rays, edges, cx, cy, r, half_width, name)
         cx, cy, r = fit.center[0], fit.center[1], fit.radius
     cx, cy = cx + x0, cy + y0
@@ -209,14 +209,38 @@ def _share(found: np.ndarray, usable: np.ndarray) -> float:
     return np.count_nonzero(found & usable) / max(1, np.count_nonzero(usable))
 
 
-def _choose_cue(rays: _Rays, r: float, half_width: float) -> str:
+class _Crossings:
+    """The outline's crossings on one band's rays, each found once when first asked for (the
+    cue is chosen from the same crossings that then give the outline)."""
+
+    def __init__(self, rays: _Rays, r: float, half_width: float):
+        self.rays, self.r, self.half_width = rays, r, half_width
+
+    @cached_property
+    def step(self) -> np.ndarray:
+        rays = self.rays
+        return _step_crossings(rays.smooth, rays.raw, rays.radii, self.r, self.half_width)
+
+    @cached_property
+    def rim(self) -> np.ndarray:
+        return _rim_crossings(self.rays.raw, self.rays.radii, self.r, self.half_width)
+
+    @cached_property
+    def coherent_step(self) -> np.ndarray:
+        return _coherent(self.step)
+
+    @cached_property
+    def coherent_rim(self) -> np.ndarray:
+        return _coherent(self.rim)
+
+
+def _choose_cue(crossings: _Crossings) -> str:
     """A surface standing clear of the background (its step, with the rim's flank where the rim
     is lit), else the lit rim alone, else the particle images."""
-    step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
-    if _share(_coherent(step), rays.usable) >= MIN_RIM_SHARE:
+    usable = crossings.rays.usable
+    if _share(crossings.coherent_step, usable) >= MIN_RIM_SHARE:
         return "surface edge"
-    rim = _coherent(_rim_crossings(rays.raw, rays.radii, r, half_width))
-    if _share(rim, rays.usable) >= MIN_RIM_SHARE:
+    if _share(crossings.coherent_rim, usable) >= MIN_RIM_SHARE:
         return "lit rim"
     return "particle images"
 
@@ -231,13 +255,19 @@ def _coherent(edges: np.ndarray) -> np.ndarray:
         return most
     window = np.lib.stride_tricks.sliding_window_view(np.concatenate([edges[-4:], edges,
                                                                       edges[:4]]), 9)
-    with np.errstate(all="ignore"):
-        import warnings
+    return most & found & (np.abs(edges - _nan_median_rows(window)) < 1.0)
 
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN windows: not coherent
-            middle = np.nanmedian(window, axis=1)
-    return most & found & (np.abs(edges - middle) < 1.0)
+
+def _nan_median_rows(rows: np.ndarray) -> np.ndarray:
+    """Median of each row's finite values (NaN where there is none): sorting puts the NaNs
+    last, and the middle of the finite ones is read off (``np.nanmedian`` takes a slow path
+    through masked arrays, several ms per band)."""
+    ordered = np.sort(rows, axis=1)
+    count = np.isfinite(ordered).sum(axis=1)
+    index = np.arange(len(rows))
+    low = ordered[index, np.maximum(count - 1, 0) // 2]
+    high = ordered[index, count // 2 - (count == 0)]
+    return np.where(count > 0, 0.5 * (low + high), np.nan)
 
 
 def _rim_crossings(prof: np.ndarray, radii: np.ndarray, r: float, half_width: float) -> np.ndarray:
@@ -339,12 +369,8 @@ def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str
     Only circles within ``reach`` px of ``start`` (x, y, r) are considered: the points were
     searched there, and a seam's arc inside the ball must not pass for the outline.
     """
-    def near_start(model, *_):
-        return (abs(model.radius - start[2]) <= reach
-                and math.hypot(model.center[0] - start[0], model.center[1] - start[1]) <= reach)
-
-    model, inliers = ransac_circle(points, 0.5, near_start)
-    if model is None or inliers.sum() < 12:
+    inliers = ransac_circle(points, 0.5, start, reach)
+    if inliers is None or inliers.sum() < 12:
         raise WakelineError(f"{name}: no ball found (the outline points do not form a circle)")
     final = CircleModel.from_estimate(points[inliers])
     if not final:
@@ -356,9 +382,13 @@ def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str
     near = np.abs(np.hypot(points[:, 0] - guess[0], points[:, 1] - guess[1]) - guess[2]) < 3.0
     points, theta = points[near], theta[near]
     px, py = points[:, 0], points[:, 1]
-    fit = least_squares(
-        lambda p: np.hypot(px - p[0], py - p[1]) - p[2], guess, loss="cauchy", f_scale=0.3
-    )
+
+    def jacobian(p):  # of the distances to the circle: the finite-difference one costs 4 calls
+        rho = np.maximum(np.hypot(px - p[0], py - p[1]), 1e-12)
+        return np.column_stack([(p[0] - px) / rho, (p[1] - py) / rho, -np.ones_like(rho)])
+
+    fit = least_squares(lambda p: np.hypot(px - p[0], py - p[1]) - p[2], guess, jac=jacobian,
+                        loss="cauchy", f_scale=0.3)
     cx, cy, r = (float(v) for v in fit.x)
     dist = np.hypot(px - cx, py - cy) - r
     near = np.abs(dist) < 1.0
