@@ -178,8 +178,16 @@ def _refined(ex, ey, nx, ny, i, j, r):
     return float(ci), float(cj), float(cr), sectors.size / 64.0
 
 
-#: Random triples of points tried by :func:`ransac_circle`.
-RANSAC_TRIALS = 100
+#: Random triples of points tried by :func:`ransac_circle`: in batches, at least
+#: ``RANSAC_MIN_TRIALS`` and until a triple of inliers has been drawn with probability
+#: ``RANSAC_CONFIDENCE`` at the best inlier share found, at most ``RANSAC_MAX_TRIALS`` (a noisy
+#: wide band may hold under a third of inliers, which takes about 300 triples; and a circle
+#: through three inliers is itself off by up to the threshold, so more than the first such
+#: triple is drawn).
+RANSAC_BATCH = 50
+RANSAC_MIN_TRIALS = 200
+RANSAC_MAX_TRIALS = 400
+RANSAC_CONFIDENCE = 0.999
 
 
 def ransac_circle(points: np.ndarray, threshold: float, start: tuple[float, float, float],
@@ -188,15 +196,49 @@ def ransac_circle(points: np.ndarray, threshold: float, start: tuple[float, floa
     points support (RANSAC), among circles within ``reach`` px of ``start`` (x, y, r); ties go
     to the smaller sum of squared residuals. None when no triple gives such a circle.
 
-    All ``RANSAC_TRIALS`` triples' circles are solved and scored at once (skimage's ``ransac``
-    fits each trial through a :class:`skimage.measure.CircleModel` whose per-call cost took
-    most of the fine search on a large ball). The seed is fixed: the same frame always gives the
-    same fit.
+    Each batch of triples is solved and scored at once (skimage's ``ransac`` fits each trial
+    through a :class:`skimage.measure.CircleModel`, whose per-call cost took most of the fine
+    search on a large ball). The seed is fixed: the same frame always gives the same fit.
     """
     count = len(points)
     if count < 3:
         return None
-    triples = np.random.default_rng(12345).integers(0, count, size=(RANSAC_TRIALS, 3))
+    rng = np.random.default_rng(12345)
+    best, best_key, tried, needed = None, (0, 0.0), 0, RANSAC_MAX_TRIALS
+    while tried < min(max(needed, RANSAC_MIN_TRIALS), RANSAC_MAX_TRIALS):
+        triples = rng.integers(0, count, size=(RANSAC_BATCH, 3))
+        tried += RANSAC_BATCH
+        inliers, key = _best_of_triples(points, triples, threshold, start, reach)
+        if inliers is not None and (key[0] > best_key[0]
+                                    or (key[0] == best_key[0] and key[1] < best_key[1])):
+            best, best_key = inliers, key
+            share = key[0] / count
+            # triples needed to draw one of inliers only with the confidence asked for
+            miss = 1.0 - share**3
+            needed = (0 if miss <= 0 else
+                      math.ceil(math.log(1.0 - RANSAC_CONFIDENCE) / math.log(miss)))
+    return best if best is None else _polished(points, best, threshold)
+
+
+def _polished(points: np.ndarray, inliers: np.ndarray, threshold: float) -> np.ndarray:
+    """The inliers after refitting the circle to them while that gains support (a few
+    rounds): the best triple's circle is off by up to the threshold, and the circle through
+    all its inliers gathers the rest of the outline's points."""
+    for _ in range(5):
+        model = CircleModel.from_estimate(points[inliers])
+        if not model:
+            break
+        again = np.abs(np.hypot(points[:, 0] - model.center[0], points[:, 1] - model.center[1])
+                       - model.radius) < threshold
+        if again.sum() <= inliers.sum():
+            break
+        inliers = again
+    return inliers
+
+
+def _best_of_triples(points, triples, threshold, start, reach):
+    """Inliers of the best-supported circle through a batch of triples of points and its
+    (inlier count, sum of squared residuals); (None, None) when no circle is within reach."""
     a, b, c = (points[triples[:, k]] for k in range(3))
     # circumcentre of each triple, relative to its first point
     bx, by = (b - a).T
@@ -209,13 +251,15 @@ def ransac_circle(points: np.ndarray, threshold: float, start: tuple[float, floa
     cx, cy, r = a[:, 0] + ux, a[:, 1] + uy, np.hypot(ux, uy)
     ok &= (np.abs(r - start[2]) <= reach) & (np.hypot(cx - start[0], cy - start[1]) <= reach)
     if not ok.any():
-        return None
+        return None, None
     cx, cy, r = cx[ok], cy[ok], r[ok]
     residual = np.abs(np.hypot(points[None, :, 0] - cx[:, None], points[None, :, 1] - cy[:, None])
                       - r[:, None])
     inliers = residual < threshold
-    best = np.lexsort((np.einsum("ij,ij->i", residual, residual), -inliers.sum(axis=1)))[0]
-    return inliers[best]
+    support = inliers.sum(axis=1)
+    squares = np.einsum("ij,ij->i", residual, residual)
+    best = np.lexsort((squares, -support))[0]
+    return inliers[best], (int(support[best]), float(squares[best]))
 
 
 def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[float, float, float]:
