@@ -375,3 +375,12 @@ def test_row_medians_of_finite_values_match_numpys_nanmedian():
         warnings.simplefilter("ignore", RuntimeWarning)
         expected = np.nanmedian(rows, axis=1)
     np.testing.assert_array_equal(_nan_median_rows(rows), expected)
+
+
+def test_the_balls_brightness_spread_is_numpys_percentiles():
+    # the image match's gain sorts the ball's pixels before taking their percentiles (faster);
+    # the same spread as np.percentile of the unsorted pixels
+    from core.ball.flight import _spread
+
+    values = np.random.default_rng(5).standard_t(3, 100001).astype(np.float32) * 40.0
+    assert _spread(values) == float(np.subtract(*np.percentile(values, [99, 50])))
