@@ -384,3 +384,34 @@ def test_the_balls_brightness_spread_is_numpys_percentiles():
 
     values = np.random.default_rng(5).standard_t(3, 100001).astype(np.float32) * 40.0
     assert _spread(values) == float(np.subtract(*np.percentile(values, [99, 50])))
+
+
+def test_a_shadowed_half_is_left_out_of_the_particle_free_disc():
+    # particle images evenly spread around a ball of radius 60, none in a strip 120 wide from
+    # its far side (its laser shadow, toward +y): only the lit half (-y) is kept, from 5 deg
+    # into it; without the strip, all are kept
+    from core.ball.outline import _lit_side
+
+    rng = np.random.default_rng(6)
+    x, y = rng.uniform(-100, 100, (2, 6000))
+    around = np.hypot(x, y) > 60.0
+    lit = ~((np.abs(x) < 60.0) & (y > 0))
+    kept = _lit_side(x[around & lit], y[around & lit], 64.0)
+    assert np.all(y[around & lit][kept] < -math.sin(math.radians(5.0)) * 60.0)
+    assert kept.sum() > 0.9 * np.count_nonzero(around & lit & (y < -0.1 * 100))
+    assert _lit_side(x[around], y[around], 64.0).all()
+
+
+@pytest.mark.parametrize("seed", [21, 22, 23])
+def test_a_dark_ball_without_rim_beside_its_shadow(seed):
+    # the particle-free disc fitted to the lit half only: before, the shadow's missing particle
+    # images drew it up to 3.8 px toward the shadow, its stated uncertainty a fifth of that;
+    # now within 2 px and within three of its own standard uncertainties (truth: generator)
+    frame_a, frame_b, truth = ball_shot(flight_deg=183.0, seed=seed, shadow=True, rim=False)
+    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
+        fit = find_ball(frame)
+        dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
+        dr = fit.radius_px - truth.radius_px
+        assert math.hypot(dx, dy) < 2.0 and abs(dr) < 2.0
+        assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
+        assert abs(dr) <= 3 * fit.radius_sigma_px

@@ -22,6 +22,8 @@ from core.ball.constants import (
     MIN_RIM_SHARE,
     OUTLINE_FLOOR_PX,
     POOR_ARC_SHARE,
+    SHADOW_MARGIN_DEG,
+    SHADOW_SHARE,
     STEP_SNR,
 )
 from core.conditioning import glare_mask
@@ -508,6 +510,33 @@ def _quantile_circle(ux, uy, rho, tau):
     return tuple(float(v) for v in res.x[:3]) if res.success else None
 
 
+def _lit_side(dx: np.ndarray, dy: np.ndarray, outside_px: float) -> np.ndarray:
+    """Particle images (at ``dx, dy`` from the centre) on the side of the ball where the air
+    beside the outline is lit: all of them, unless the particle images beyond ``outside_px``
+    in the darkest 60 deg of directions number under ``SHADOW_SHARE`` of their median count
+    over the circle: then the ball's laser shadow (or the picture's edge, or glare) lies that
+    way, and only the directions more than ``SHADOW_MARGIN_DEG`` into the other half are kept.
+
+    The shadow is a strip as wide as the ball from its far side: along any direction into that
+    half the first lit particle images lie beyond the strip's edge, beyond the outline by up to
+    the ball's radius where they are seen at all, while the particle-free disc's quantile
+    assumes them spread evenly from the outline out; a dark ball without a lit rim was fitted
+    up to 4 px toward its shadow and too large.
+    """
+    rho = np.hypot(dx, dy)
+    ux, uy = dx / np.maximum(rho, 1e-9), dy / np.maximum(rho, 1e-9)
+    outside = rho > outside_px
+    sector = np.floor(np.degrees(np.arctan2(uy[outside], ux[outside])) % 360.0 / 10.0)
+    counts = np.bincount(sector.astype(np.int64), minlength=36)[:36].astype(np.float64)
+    running = np.concatenate([[0.0], np.cumsum(np.concatenate([counts, counts[:5]]))])
+    window = running[6:42] - running[:36]  # from each sector 60 deg on
+    darkest = int(np.argmin(window))
+    if not window[darkest] < SHADOW_SHARE * 6.0 * float(np.median(counts)):
+        return np.ones(dx.shape, dtype=bool)
+    axis = math.radians(10.0 * darkest + 30.0)  # the middle of the darkest 60 deg
+    return ux * math.cos(axis) + uy * math.sin(axis) < -math.sin(math.radians(SHADOW_MARGIN_DEG))
+
+
 def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Circle:
     """The circle holding ``HOLE_SHARE`` of the particle images near it (quantile regression).
 
@@ -528,6 +557,10 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Ci
     if sel.sum() < 20:
         raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
     px, py = px[sel], py[sel]
+    lit = _lit_side(px - cx, py - cy, r + inner_px)
+    if lit.sum() < 20:
+        raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
+    px, py = px[lit], py[lit]
     if px.size > 2 * HOLE_POINTS:  # an even thinning leaves the quantile where it is
         pick = np.random.default_rng(12345).choice(px.size, 2 * HOLE_POINTS, replace=False)
         px, py = px[pick], py[pick]
