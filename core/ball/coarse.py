@@ -257,13 +257,18 @@ def _best_of_triples(points, triples, threshold, start, reach):
     if not ok.any():
         return None, None
     cx, cy, r = cx[ok], cy[ok], r[ok]
-    residual = np.abs(np.hypot(points[None, :, 0] - cx[:, None], points[None, :, 1] - cy[:, None])
-                      - r[:, None])
-    inliers = residual < threshold
+    # inliers by squared distances (r - t)^2 < d^2 < (r + t)^2: no square root over the batch
+    dx, dy = points[None, :, 0] - cx[:, None], points[None, :, 1] - cy[:, None]
+    d2 = dx * dx + dy * dy
+    low = np.maximum(r - threshold, 0.0)
+    inliers = (d2 > (low * low)[:, None]) & (d2 < ((r + threshold) ** 2)[:, None])
+    inliers |= (r < threshold)[:, None] & (d2 == 0.0)
     support = inliers.sum(axis=1)
-    squares = np.einsum("ij,ij->i", residual, residual)
-    best = np.lexsort((squares, -support))[0]
-    return inliers[best], (int(support[best]), float(squares[best]))
+    # ties on support go to the smaller sum of squared residuals (over all points)
+    tied = np.flatnonzero(support == support.max())
+    squares = np.sum((np.sqrt(d2[tied]) - r[tied, None]) ** 2, axis=1)
+    best = tied[int(np.argmin(squares))]
+    return inliers[best], (int(support[best]), float(squares.min()))
 
 
 def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[float, float, float]:
