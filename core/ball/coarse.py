@@ -7,7 +7,7 @@ import math
 import numpy as np
 from scipy import ndimage
 from skimage.filters import threshold_otsu
-from skimage.measure import CircleModel, ransac
+from skimage.measure import CircleModel
 
 from core import WakelineError
 
@@ -20,9 +20,13 @@ _DISC2 = np.hypot(*np.mgrid[-2:3, -2:3]) <= 2.0
 def _bin2(image: np.ndarray) -> np.ndarray:
     """Means of 2 x 2 pixels, ``(H // 2, W // 2)``."""
     h, w = (s // 2 * 2 for s in image.shape)
-    # strided sums: several times faster than a mean over the axes of a 4-D view
-    return 0.25 * (image[0:h:2, 0:w:2] + image[1:h:2, 0:w:2] + image[0:h:2, 1:w:2]
-                   + image[1:h:2, 1:w:2])
+    # strided sums: several times faster than a mean over the axes of a 4-D view (in place:
+    # no temporary per term)
+    total = image[0:h:2, 0:w:2] + image[1:h:2, 0:w:2]
+    total += image[0:h:2, 1:w:2]
+    total += image[1:h:2, 1:w:2]
+    total *= 0.25
+    return total
 
 
 def _block_variance(image: np.ndarray, factor: int) -> np.ndarray:
@@ -178,22 +182,93 @@ def _refined(ex, ey, nx, ny, i, j, r):
     return float(ci), float(cj), float(cr), sectors.size / 64.0
 
 
-def ransac_circle(points: np.ndarray, threshold: float, is_model_valid=None):
-    """RANSAC circle (skimage) with a fixed seed: the same frame always gives the same fit.
-    Returns ``(model, inliers)`` or ``(None, None)``."""
-    import warnings
+#: Random triples of points tried by :func:`ransac_circle`: in batches, at least
+#: ``RANSAC_MIN_TRIALS`` and until a triple of inliers has been drawn with probability
+#: ``RANSAC_CONFIDENCE`` at the best inlier share found, at most ``RANSAC_MAX_TRIALS`` (a noisy
+#: wide band may hold under a third of inliers, which takes about 300 triples; and a circle
+#: through three inliers is itself off by up to the threshold, so more than the first such
+#: triple is drawn).
+RANSAC_BATCH = 50
+RANSAC_MIN_TRIALS = 200
+RANSAC_MAX_TRIALS = 400
+RANSAC_CONFIDENCE = 0.999
 
-    with warnings.catch_warnings():
-        # skimage warns when no sample passes ``is_model_valid``; that is a plain "no circle"
-        warnings.simplefilter("ignore", UserWarning)
-        model, inliers = ransac(
-            points, CircleModel, min_samples=3, residual_threshold=threshold, max_trials=100,
-            stop_probability=0.999, rng=np.random.default_rng(12345),
-            is_model_valid=is_model_valid,
-        )
-    if model is None or inliers is None:
+
+def ransac_circle(points: np.ndarray, threshold: float, start: tuple[float, float, float],
+                  reach: float) -> np.ndarray | None:
+    """Inliers (within ``threshold`` px) of the circle through three of ``points`` that most
+    points support (RANSAC), among circles within ``reach`` px of ``start`` (x, y, r); ties go
+    to the smaller sum of squared residuals. None when no triple gives such a circle.
+
+    Each batch of triples is solved and scored at once (skimage's ``ransac`` fits each trial
+    through a :class:`skimage.measure.CircleModel`, whose per-call cost took most of the fine
+    search on a large ball). The seed is fixed: the same frame always gives the same fit.
+    """
+    count = len(points)
+    if count < 3:
+        return None
+    rng = np.random.default_rng(12345)
+    best, best_key, tried, needed = None, (0, 0.0), 0, RANSAC_MAX_TRIALS
+    while tried < min(max(needed, RANSAC_MIN_TRIALS), RANSAC_MAX_TRIALS):
+        triples = rng.integers(0, count, size=(RANSAC_BATCH, 3))
+        tried += RANSAC_BATCH
+        inliers, key = _best_of_triples(points, triples, threshold, start, reach)
+        if inliers is not None and (key[0] > best_key[0]
+                                    or (key[0] == best_key[0] and key[1] < best_key[1])):
+            best, best_key = inliers, key
+            share = key[0] / count
+            # triples needed to draw one of inliers only with the confidence asked for
+            miss = 1.0 - share**3
+            needed = (0 if miss <= 0 else
+                      math.ceil(math.log(1.0 - RANSAC_CONFIDENCE) / math.log(miss)))
+    return best if best is None else _polished(points, best, threshold)
+
+
+def _polished(points: np.ndarray, inliers: np.ndarray, threshold: float) -> np.ndarray:
+    """The inliers after refitting the circle to them while that gains support (a few
+    rounds): the best triple's circle is off by up to the threshold, and the circle through
+    all its inliers gathers the rest of the outline's points."""
+    for _ in range(5):
+        model = CircleModel.from_estimate(points[inliers])
+        if not model:
+            break
+        again = np.abs(np.hypot(points[:, 0] - model.center[0], points[:, 1] - model.center[1])
+                       - model.radius) < threshold
+        if again.sum() <= inliers.sum():
+            break
+        inliers = again
+    return inliers
+
+
+def _best_of_triples(points, triples, threshold, start, reach):
+    """Inliers of the best-supported circle through a batch of triples of points and its
+    (inlier count, sum of squared residuals); (None, None) when no circle is within reach."""
+    a, b, c = (points[triples[:, k]] for k in range(3))
+    # circumcentre of each triple, relative to its first point
+    bx, by = (b - a).T
+    qx, qy = (c - a).T
+    det = 2.0 * (bx * qy - by * qx)
+    ok = np.abs(det) > 1e-9  # repeated or collinear points give no circle
+    det = np.where(ok, det, 1.0)
+    b2, q2 = bx * bx + by * by, qx * qx + qy * qy
+    ux, uy = (qy * b2 - by * q2) / det, (bx * q2 - qx * b2) / det
+    cx, cy, r = a[:, 0] + ux, a[:, 1] + uy, np.hypot(ux, uy)
+    ok &= (np.abs(r - start[2]) <= reach) & (np.hypot(cx - start[0], cy - start[1]) <= reach)
+    if not ok.any():
         return None, None
-    return model, inliers
+    cx, cy, r = cx[ok], cy[ok], r[ok]
+    # inliers by squared distances (r - t)^2 < d^2 < (r + t)^2: no square root over the batch
+    dx, dy = points[None, :, 0] - cx[:, None], points[None, :, 1] - cy[:, None]
+    d2 = dx * dx + dy * dy
+    low = np.maximum(r - threshold, 0.0)
+    inliers = (d2 > (low * low)[:, None]) & (d2 < ((r + threshold) ** 2)[:, None])
+    inliers |= (r < threshold)[:, None] & (d2 == 0.0)
+    support = inliers.sum(axis=1)
+    # ties on support go to the smaller sum of squared residuals (over all points)
+    tied = np.flatnonzero(support == support.max())
+    squares = np.sum((np.sqrt(d2[tied]) - r[tied, None]) ** 2, axis=1)
+    best = tied[int(np.argmin(squares))]
+    return inliers[best], (int(support[best]), float(squares.min()))
 
 
 def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[float, float, float]:

@@ -32,6 +32,14 @@ GLARE_LIFT = 0.2
 #: Share of the particle images around the outline that the particle-free disc may hold (false
 #: detections: stitches, noise); the fit is corrected for the share's own outward offset.
 HOLE_SHARE = 0.02
+#: Air around the ball whose darkest 60 deg of directions hold under this share of the
+#: particle images 60 deg hold elsewhere (median) is shadowed that way (the ball's laser
+#: shadow, the picture's edge): the particle-free disc is fitted to the particle images of
+#: the other half only, from this angle (deg) into it (chosen on the first synthetic family
+#: among 0, 5, 15 and 25 deg: dark balls without a rim beside their shadow, the second family
+#: not consulted).
+SHADOW_SHARE = 0.3
+SHADOW_MARGIN_DEG = 5.0
 #: Particle images (about) used to fit the particle-free disc; the band outside is widened on
 #: sparse seeding to hold them.
 HOLE_POINTS = 250

@@ -70,11 +70,11 @@ def match_ball_image(
     if region.sum() < 50 or min(crop_b.shape) < 8:
         return None
     region_b = _disc(crop_b.shape, ball_b.center_px[0] - bx0, ball_b.center_px[1] - by0, r - inset)
-    spread_a = np.subtract(*np.percentile(crop_a[region], [99, 50]))
-    spread_b = np.subtract(*np.percentile(crop_b[region_b], [99, 50])) if region_b.any() else 0.0
+    spread_a = _spread(crop_a[region])
+    spread_b = _spread(crop_b[region_b]) if region_b.any() else 0.0
     gain = float(np.clip(spread_b / spread_a, 0.5, 2.0)) if spread_a > 0 and spread_b > 0 else 1.0
     crop_b = crop_b / gain
-    ys, xs = np.nonzero(region)
+    ys, xs = np.divmod(np.flatnonzero(region), region.shape[1])  # np.nonzero is slow in 2-D
     if ys.size > MATCH_PIXELS:
         # a large ball: the pixels with the steepest gradients carry the match (the
         # Gauss-Newton information grows with the gradient squared); the rest is mostly noise
@@ -143,7 +143,11 @@ def match_ball_image(
         except np.linalg.LinAlgError:
             return None
         p += step
-        if math.hypot(step[0], step[1]) + r * float(np.abs(step[2:5]).sum()) < 2e-3:
+        # converged when the last step moved the ball by a thousandth of a pixel and the turns
+        # its surface by a twentieth at most (r times the turn): the turns, which mostly the
+        # prior holds, creep on for ten more steps that change the displacement by less than a
+        # thousandth of a pixel (on the 2560 x 2160 benchmark shot)
+        if math.hypot(step[0], step[1]) < 1e-3 and r * float(np.abs(step[2:5]).sum()) < 5e-2:
             break
     else:
         return None
@@ -169,6 +173,13 @@ def match_ball_image(
     floor = MATCH_FLOOR_PX if rim_lit else PATTERN_FLOOR_PX
     cov = (inverse @ (sums.T @ sums) @ inverse)[:2, :2] + floor**2 * np.eye(2)
     return BallMatch((float(p[0]), float(p[1])), cov, math.degrees(p[2]), int(resid.size))
+
+
+def _spread(values: np.ndarray) -> float:
+    """99th - 50th percentile of the ball's pixels. Sorted first: numpy's vectorised sort and
+    the percentiles of a sorted array cost less than the percentiles' selection (the same
+    values)."""
+    return float(np.subtract(*np.percentile(np.sort(values), [99, 50])))
 
 
 def _box2(image: np.ndarray) -> np.ndarray:

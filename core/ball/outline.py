@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 from scipy import ndimage, sparse
@@ -21,6 +22,8 @@ from core.ball.constants import (
     MIN_RIM_SHARE,
     OUTLINE_FLOOR_PX,
     POOR_ARC_SHARE,
+    SHADOW_MARGIN_DEG,
+    SHADOW_SHARE,
     STEP_SNR,
 )
 from core.conditioning import glare_mask
@@ -103,14 +106,15 @@ class _Rays:
 
 
 def _sample_rays(crop, coeff, glare, cx, cy, r, half_width) -> _Rays:
-    """Rays of the crop around the ball: ``coeff`` its cubic B-spline coefficients (a cubic
-    spline keeps the rim's flank sharper than bilinear interpolation, whose slope is constant
+    """Rays of the crop around the ball: ``coeff`` the cubic B-spline coefficients around it
+    (:func:`_spline_around`; unused by the wide first band), as a cubic spline keeps the rim's flank sharper than bilinear interpolation, whose slope is constant
     between pixel centres); the smoothed samples are the raw ones smoothed by a 1 px Gaussian
     along and across the rays (as a 1 px Gaussian of the picture would, for a fraction of its
     cost). A wide first band (more than 6 px each side) only has to bring the circle within a
-    pixel or two: it is sampled twice as coarsely, bilinearly."""
+    pixel or two: it is sampled bilinearly, on rays twice as far apart and at 1 px along them
+    (four times as coarsely: its samples took a third of the fit on a large ball)."""
     wide = half_width > 6.0
-    spacing, step = (3.0, 0.5) if wide else (1.5, 0.25)
+    spacing, step = (3.0, 1.0) if wide else (1.5, 0.25)
     n_rays = int(np.clip(2.0 * math.pi * r / spacing, 90, 1080))
     theta = np.linspace(0.0, 2.0 * math.pi, n_rays, endpoint=False)
     radii = np.arange(r - half_width - 6.0, r + half_width + 8.0 + step / 2, step)
@@ -127,11 +131,37 @@ def _sample_rays(crop, coeff, glare, cx, cy, r, half_width) -> _Rays:
     if wide:
         raw = ndimage.map_coordinates(crop, [ys, xs], order=1, mode="nearest")
     else:
-        raw = ndimage.map_coordinates(coeff, [ys, xs], order=3, mode="nearest", prefilter=False)
+        x0, y0 = coeff.origin
+        raw = ndimage.map_coordinates(coeff.coeff, [ys - y0, xs - x0], order=3, mode="nearest",
+                                      prefilter=False)
     smoothed = ndimage.gaussian_filter1d(raw, 1.0 / step, axis=1, mode="nearest")
     smoothed = ndimage.gaussian_filter1d(smoothed, 1.0 / (r * (theta[1] - theta[0])), axis=0,
                                          mode="wrap")
     return _Rays(theta, radii, raw, smoothed, usable)
+
+
+@dataclass
+class _Spline:
+    """Cubic B-spline coefficients of a window of the crop, and the window's origin (x, y)."""
+
+    coeff: np.ndarray
+    origin: tuple[int, int]
+
+
+def _spline_around(crop: np.ndarray, cx: float, cy: float, r: float) -> _Spline:
+    """Spline coefficients of the part of the crop the narrow bands sample, once the first band
+    has put the circle (cx, cy, r) within a few pixels: the second band may move its centre and
+    radius by its half-width and 2 px each, the last band samples 8 px beyond its own
+    half-width around that, and the window reaches 12 px further, where a cubic spline's
+    prefilter has forgotten the window's edge (its pole's 0.27^12 ~ 1e-7). The whole crop
+    (48 px beyond the first band) cost a third more on a large ball."""
+    near, last = FINE_BANDS_PX
+    reach = r + 2.0 * (near + 2.0) + last + 8.0 + 12.0
+    x0, y0 = max(0, int(cx - reach)), max(0, int(cy - reach))
+    x1 = min(crop.shape[1], int(cx + reach) + 2)
+    y1 = min(crop.shape[0], int(cy + reach) + 2)
+    window = crop[y0:y1, x0:x1]
+    return _Spline(ndimage.spline_filter(window, 3, output=np.float32, mode="nearest"), (x0, y0))
 
 
 def _first_band(r: float, block: int) -> float:
@@ -151,23 +181,24 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
     crop = np.asarray(image[y0:y1, x0:x1], dtype=np.float32)
     glare = glare_mask(crop, level=level)
     cx, cy = cx - x0, cy - y0
-    coeff = ndimage.spline_filter(crop, 3, output=np.float32, mode="nearest")
+    coeff = None
     # 2. the outline on narrowing bands from the best cue: the lit rim, the surface's step, or
     # the particle-free disc (chosen again once the circle is close)
     cue = None
     for index, half_width in enumerate((first, *FINE_BANDS_PX)):
+        if index == 1:
+            coeff = _spline_around(crop, cx, cy, r)
         rays = _sample_rays(crop, coeff, glare, cx, cy, r, half_width)
+        crossings = _Crossings(rays, r, half_width)
         if index < 2:
-            cue = _choose_cue(rays, r, half_width)
+            cue = _choose_cue(crossings)
         if cue == "particle images":
             last = index == len(FINE_BANDS_PX)
             fit = _hole_circle(crop, glare, cx, cy, r, half_width + (index > 0), name, last)
         else:
-            edges = _rim_crossings(rays.raw, rays.radii, r, half_width)
+            edges = crossings.rim
             if cue == "surface edge":  # the rim's flank where it is lit, else the step
-                lit = _coherent(edges)
-                step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
-                edges = np.where(lit, edges, step)
+                edges = np.where(crossings.coherent_rim, edges, crossings.step)
             fit = _edge_circle(rays, edges, cx, cy, r, half_width, name)
         cx, cy, r = fit.center[0], fit.center[1], fit.radius
     cx, cy = cx + x0, cy + y0
@@ -209,14 +240,38 @@ def _share(found: np.ndarray, usable: np.ndarray) -> float:
     return np.count_nonzero(found & usable) / max(1, np.count_nonzero(usable))
 
 
-def _choose_cue(rays: _Rays, r: float, half_width: float) -> str:
+class _Crossings:
+    """The outline's crossings on one band's rays, each found once when first asked for (the
+    cue is chosen from the same crossings that then give the outline)."""
+
+    def __init__(self, rays: _Rays, r: float, half_width: float):
+        self.rays, self.r, self.half_width = rays, r, half_width
+
+    @cached_property
+    def step(self) -> np.ndarray:
+        rays = self.rays
+        return _step_crossings(rays.smooth, rays.raw, rays.radii, self.r, self.half_width)
+
+    @cached_property
+    def rim(self) -> np.ndarray:
+        return _rim_crossings(self.rays.raw, self.rays.radii, self.r, self.half_width)
+
+    @cached_property
+    def coherent_step(self) -> np.ndarray:
+        return _coherent(self.step)
+
+    @cached_property
+    def coherent_rim(self) -> np.ndarray:
+        return _coherent(self.rim)
+
+
+def _choose_cue(crossings: _Crossings) -> str:
     """A surface standing clear of the background (its step, with the rim's flank where the rim
     is lit), else the lit rim alone, else the particle images."""
-    step = _step_crossings(rays.smooth, rays.raw, rays.radii, r, half_width)
-    if _share(_coherent(step), rays.usable) >= MIN_RIM_SHARE:
+    usable = crossings.rays.usable
+    if _share(crossings.coherent_step, usable) >= MIN_RIM_SHARE:
         return "surface edge"
-    rim = _coherent(_rim_crossings(rays.raw, rays.radii, r, half_width))
-    if _share(rim, rays.usable) >= MIN_RIM_SHARE:
+    if _share(crossings.coherent_rim, usable) >= MIN_RIM_SHARE:
         return "lit rim"
     return "particle images"
 
@@ -231,13 +286,19 @@ def _coherent(edges: np.ndarray) -> np.ndarray:
         return most
     window = np.lib.stride_tricks.sliding_window_view(np.concatenate([edges[-4:], edges,
                                                                       edges[:4]]), 9)
-    with np.errstate(all="ignore"):
-        import warnings
+    return most & found & (np.abs(edges - _nan_median_rows(window)) < 1.0)
 
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN windows: not coherent
-            middle = np.nanmedian(window, axis=1)
-    return most & found & (np.abs(edges - middle) < 1.0)
+
+def _nan_median_rows(rows: np.ndarray) -> np.ndarray:
+    """Median of each row's finite values (NaN where there is none): sorting puts the NaNs
+    last, and the middle of the finite ones is read off (``np.nanmedian`` takes a slow path
+    through masked arrays, several ms per band)."""
+    ordered = np.sort(rows, axis=1)
+    count = np.isfinite(ordered).sum(axis=1)
+    index = np.arange(len(rows))
+    low = ordered[index, np.maximum(count - 1, 0) // 2]
+    high = ordered[index, count // 2 - (count == 0)]
+    return np.where(count > 0, 0.5 * (low + high), np.nan)
 
 
 def _rim_crossings(prof: np.ndarray, radii: np.ndarray, r: float, half_width: float) -> np.ndarray:
@@ -339,12 +400,8 @@ def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str
     Only circles within ``reach`` px of ``start`` (x, y, r) are considered: the points were
     searched there, and a seam's arc inside the ball must not pass for the outline.
     """
-    def near_start(model, *_):
-        return (abs(model.radius - start[2]) <= reach
-                and math.hypot(model.center[0] - start[0], model.center[1] - start[1]) <= reach)
-
-    model, inliers = ransac_circle(points, 0.5, near_start)
-    if model is None or inliers.sum() < 12:
+    inliers = ransac_circle(points, 0.5, start, reach)
+    if inliers is None or inliers.sum() < 12:
         raise WakelineError(f"{name}: no ball found (the outline points do not form a circle)")
     final = CircleModel.from_estimate(points[inliers])
     if not final:
@@ -356,9 +413,13 @@ def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str
     near = np.abs(np.hypot(points[:, 0] - guess[0], points[:, 1] - guess[1]) - guess[2]) < 3.0
     points, theta = points[near], theta[near]
     px, py = points[:, 0], points[:, 1]
-    fit = least_squares(
-        lambda p: np.hypot(px - p[0], py - p[1]) - p[2], guess, loss="cauchy", f_scale=0.3
-    )
+
+    def jacobian(p):  # of the distances to the circle: the finite-difference one costs 4 calls
+        rho = np.maximum(np.hypot(px - p[0], py - p[1]), 1e-12)
+        return np.column_stack([(p[0] - px) / rho, (p[1] - py) / rho, -np.ones_like(rho)])
+
+    fit = least_squares(lambda p: np.hypot(px - p[0], py - p[1]) - p[2], guess, jac=jacobian,
+                        loss="cauchy", f_scale=0.3)
     cx, cy, r = (float(v) for v in fit.x)
     dist = np.hypot(px - cx, py - cy) - r
     near = np.abs(dist) < 1.0
@@ -449,6 +510,33 @@ def _quantile_circle(ux, uy, rho, tau):
     return tuple(float(v) for v in res.x[:3]) if res.success else None
 
 
+def _lit_side(dx: np.ndarray, dy: np.ndarray, outside_px: float) -> np.ndarray:
+    """Particle images (at ``dx, dy`` from the centre) on the side of the ball where the air
+    beside the outline is lit: all of them, unless the particle images beyond ``outside_px``
+    in the darkest 60 deg of directions number under ``SHADOW_SHARE`` of their median count
+    over the circle: then the ball's laser shadow (or the picture's edge, or glare) lies that
+    way, and only the directions more than ``SHADOW_MARGIN_DEG`` into the other half are kept.
+
+    The shadow is a strip as wide as the ball from its far side: along any direction into that
+    half the first lit particle images lie beyond the strip's edge, beyond the outline by up to
+    the ball's radius where they are seen at all, while the particle-free disc's quantile
+    assumes them spread evenly from the outline out; a dark ball without a lit rim was fitted
+    up to 4 px toward its shadow and too large.
+    """
+    rho = np.hypot(dx, dy)
+    ux, uy = dx / np.maximum(rho, 1e-9), dy / np.maximum(rho, 1e-9)
+    outside = rho > outside_px
+    sector = np.floor(np.degrees(np.arctan2(uy[outside], ux[outside])) % 360.0 / 10.0)
+    counts = np.bincount(sector.astype(np.int64), minlength=36)[:36].astype(np.float64)
+    running = np.concatenate([[0.0], np.cumsum(np.concatenate([counts, counts[:5]]))])
+    window = running[6:42] - running[:36]  # from each sector 60 deg on
+    darkest = int(np.argmin(window))
+    if not window[darkest] < SHADOW_SHARE * 6.0 * float(np.median(counts)):
+        return np.ones(dx.shape, dtype=bool)
+    axis = math.radians(10.0 * darkest + 30.0)  # the middle of the darkest 60 deg
+    return ux * math.cos(axis) + uy * math.sin(axis) < -math.sin(math.radians(SHADOW_MARGIN_DEG))
+
+
 def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Circle:
     """The circle holding ``HOLE_SHARE`` of the particle images near it (quantile regression).
 
@@ -469,6 +557,10 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Ci
     if sel.sum() < 20:
         raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
     px, py = px[sel], py[sel]
+    lit = _lit_side(px - cx, py - cy, r + inner_px)
+    if lit.sum() < 20:
+        raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
+    px, py = px[lit], py[lit]
     if px.size > 2 * HOLE_POINTS:  # an even thinning leaves the quantile where it is
         pick = np.random.default_rng(12345).choice(px.size, 2 * HOLE_POINTS, replace=False)
         px, py = px[pick], py[pick]

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 
 from core import WakelineError
@@ -44,7 +46,16 @@ def ball_mask(
     shape: tuple[int, int], ball: BallFit, margin_px: float = DEFAULT_MASK_MARGIN_PX
 ) -> np.ndarray:
     """Pixels covered by the ball plus a margin, ``(H, W)`` bool (True = excluded)."""
-    yy, xx = np.ogrid[: shape[0], : shape[1]]
+    mask = np.zeros(shape, dtype=bool)
     cx, cy = ball.center_px
     reach = ball.radius_px + margin_px
-    return (xx - cx) ** 2 + (yy - cy) ** 2 <= reach * reach
+    if not all(math.isfinite(v) for v in (cx, cy, reach)):
+        return mask
+    # only the disc's bounding box is tested: the whole frame costs tens of ms on a large one
+    y0, y1 = max(0, math.floor(cy - reach)), min(shape[0], math.ceil(cy + reach) + 1)
+    x0, x1 = max(0, math.floor(cx - reach)), min(shape[1], math.ceil(cx + reach) + 1)
+    if y0 >= y1 or x0 >= x1:
+        return mask
+    yy, xx = np.ogrid[y0:y1, x0:x1]
+    mask[y0:y1, x0:x1] = (xx - cx) ** 2 + (yy - cy) ** 2 <= reach * reach
+    return mask
