@@ -378,8 +378,13 @@ def _pool_round(todo, stop, workers, work, context, pipes, keep_alive):
     # One worker process is one core's worth of work: the PIV inside it runs single-threaded.
     pool = ProcessPoolExecutor(min(workers, len(todo)), mp_context=context,
                                initializer=_worker_start, initargs=(lifeline, announce))
-    futures = {pool.submit(_in_worker, work, task, 1): task for task in todo}
-    pending, begun, lost = set(futures), set(), ([], [])
+    futures, lost = {}, ([], [])
+    for task in todo:
+        try:
+            futures[pool.submit(_in_worker, work, task, 1)] = task
+        except BrokenProcessPool:  # a worker died while the shots were handed out
+            lost[1].append(task)
+    pending, begun = set(futures), set()
     ended = False
     try:
         while pending:

@@ -169,3 +169,23 @@ def test_sigterm_and_sighup_stop_a_run_cleanly(tmp_path, signum):
     with Session.open(session_path, writable=False) as s:
         done = [r.shot_id for r in s.values() if r.state == "processed"]
         assert 0 < len(done) < 40
+
+
+def test_a_pool_that_breaks_while_shots_are_handed_out_loses_none(monkeypatch):
+    # a worker can die before every shot is handed to the pool: submit then raises
+    # BrokenProcessPool (concurrent.futures), and the shots not handed out wait for a new pool
+    real = batch.ProcessPoolExecutor
+    broken = []
+
+    class BreaksOnce(real):
+        def submit(self, *args, **kwargs):
+            if not broken and len(getattr(self, "_handed", [])) == 2:
+                broken.append(True)
+                raise batch.BrokenProcessPool("a child process terminated abruptly")
+            self._handed = [*getattr(self, "_handed", []), 1]
+            return super().submit(*args, **kwargs)
+
+    monkeypatch.setattr(batch, "ProcessPoolExecutor", BreaksOnce)
+    outcomes = list(batch._run_pool(_tasks(5), lambda: False, 2, work=pool_work.quick))
+    assert broken and sorted(o[0] for o in outcomes) == ["S0", "S1", "S2", "S3", "S4"]
+    assert all(o[1] is not None for o in outcomes)
