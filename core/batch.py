@@ -373,32 +373,41 @@ def _run_pool(tasks: list[dict], stop, count: int, work=None) -> Iterator[tuple]
 
 def _pool_round(todo, stop, workers, work, context, pipes, keep_alive):
     """One pool over ``todo``, yielding outcomes; returns the tasks lost with a dead worker:
-    (those being measured, those waiting)."""
+    (those being measured, those waiting).
+
+    Shots are handed to the pool one per idle worker, not all at once: the pool queues what it
+    is given ahead of its workers, and a queued shot can no longer be cancelled, so a stop would
+    still start it."""
     lifeline, announce, started = pipes
     # One worker process is one core's worth of work: the PIV inside it runs single-threaded.
-    pool = ProcessPoolExecutor(min(workers, len(todo)), mp_context=context,
-                               initializer=_worker_start, initargs=(lifeline, announce))
-    futures, lost = {}, ([], [])
-    for task in todo:
-        try:
-            futures[pool.submit(_in_worker, work, task, 1)] = task
-        except BrokenProcessPool:  # a worker died while the shots were handed out
-            lost[1].append(task)
-    pending, begun = set(futures), set()
-    ended = False
+    size = min(workers, len(todo))
+    pool = ProcessPoolExecutor(size, mp_context=context, initializer=_worker_start,
+                               initargs=(lifeline, announce))
+    queue, futures, lost = list(todo), {}, ([], [])
+    pending, begun = set(), set()
+    broken = ended = False
     try:
-        while pending:
-            if stop():
-                for future in pending:
-                    future.cancel()  # only those not started: the shots in hand finish
+        while True:
+            stopping = stop()  # asked once per look: a stop hands out nothing more
+            while queue and len(pending) < size and not broken and not stopping:
+                task = queue.pop(0)
+                try:
+                    future = pool.submit(_in_worker, work, task, 1)
+                except BrokenProcessPool:  # a worker died: the shot waits for the next pool
+                    broken = True
+                    queue.insert(0, task)
+                    break
+                futures[future] = task
+                pending.add(future)
+            if not pending:
+                break
             done, pending = wait(pending, timeout=_POLL_S, return_when=FIRST_COMPLETED)
             while started.poll():
                 begun.add(started.recv_bytes().decode("utf-8"))
             for future in done:
                 task = futures[future]
-                if future.cancelled():
-                    continue
                 if isinstance(future.exception(), BrokenProcessPool):
+                    broken = True
                     lost[0 if task["shot_id"] in begun else 1].append(task)
                     continue
                 yield _pool_outcome(future, task["shot_id"])
@@ -407,6 +416,8 @@ def _pool_round(todo, stop, workers, work, context, pipes, keep_alive):
         if not ended:
             keep_alive.close()  # an abort: the workers end now instead of finishing their shots
         pool.shutdown(wait=True, cancel_futures=True)
+    if broken:
+        lost[1].extend(queue)
     return lost
 
 
