@@ -412,6 +412,8 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
     best, near = fits[chosen]
     best, rises = _settled(near, best)
     phi_s = float(best.params[0])
+    # the settled fit stands where the chosen one stood (it scores at least as well on its
+    # own window; on the shared samples it keeps the chosen one's standing if that was better)
     angles[chosen], scores[chosen] = phi_s, min(scores[chosen], common.score(best.params))
     if phi_s > LATEST_DEG:
         return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "

@@ -53,6 +53,20 @@ def _viewport_point(canvas, x_px, y_px) -> QPoint:
     return canvas.graphics.mapFromScene(scene)
 
 
+def _upper_mark_drag(window, shot_id: str, by_deg: float) -> tuple[float, QPoint, QPoint]:
+    """The upper proposal (deg) and a drag of its mark by ``by_deg`` along the outline: the
+    viewport points where it starts and ends."""
+    canvas = window.canvas
+    result = window.model.result(shot_id)
+    proposal = window.model.record(shot_id).proposed_deg("upper")
+    handle = canvas.handle("upper")
+    start = _viewport_point(canvas, handle.pos().x(), handle.pos().y())
+    end = _viewport_point(canvas, *point_at_angle(*mark_circle(result),
+                                                  result.flight.direction_deg, "upper",
+                                                  proposal + by_deg))
+    return proposal, start, end
+
+
 def _view_point(canvas, point: QPoint) -> tuple[float, float]:
     view = canvas.view.mapSceneToView(canvas.graphics.mapToScene(point))
     return view.x(), view.y()
@@ -543,13 +557,7 @@ def test_right_click_during_a_drag_puts_the_mark_back(main_window, make_session,
     path = make_session(2)
     window = _open(main_window, qtbot, path, show=True)
     canvas = window.canvas
-    result = window.model.result("s01")
-    proposal = window.model.record("s01").proposed_deg("upper")
-    handle = canvas.handle("upper")
-    start = _viewport_point(canvas, handle.pos().x(), handle.pos().y())
-    end = _viewport_point(canvas, *point_at_angle(*mark_circle(result),
-                                                  result.flight.direction_deg, "upper",
-                                                  proposal + 20.0))
+    proposal, start, end = _upper_mark_drag(window, "s01", 20.0)
     viewport = canvas.graphics.viewport()
     left, right = Qt.MouseButton.LeftButton, Qt.MouseButton.RightButton
 

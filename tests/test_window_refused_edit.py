@@ -7,10 +7,7 @@ import errno
 import os
 
 import pytest
-from test_window import _drag, _open, _viewport_point
-
-from app.qt.canvas_items import mark_circle
-from core.geometry import point_at_angle
+from test_window import _drag, _open, _upper_mark_drag
 
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
 
@@ -22,13 +19,7 @@ def test_a_drag_the_store_refused_puts_the_mark_back(main_window, make_session, 
                                                      monkeypatch, code, where):
     window = _open(main_window, qtbot, make_session(2), show=True)
     canvas = window.canvas
-    result = window.model.result("s01")
-    proposal = window.model.record("s01").proposed_deg("upper")
-    handle = canvas.handle("upper")
-    start = _viewport_point(canvas, handle.pos().x(), handle.pos().y())
-    end = _viewport_point(canvas, *point_at_angle(*mark_circle(result),
-                                                  result.flight.direction_deg, "upper",
-                                                  proposal + 20.0))
+    proposal, start, end = _upper_mark_drag(window, "s01", 20.0)
 
     def refuse_writes(*_args, **_kwargs):
         raise OSError(code, os.strerror(code))

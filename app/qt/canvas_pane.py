@@ -191,7 +191,8 @@ class ShotPane:
                      _Sampled(result, fine_vf, stride, ball_frame, True)]
         drawn = _Sampled.joined(parts)
         usable = ~drawn.masked
-        scale = vector_scale(drawn.dx[usable], drawn.dy[usable], min(p.cell for p in parts))
+        big = typical_length(drawn.dx[usable], drawn.dy[usable])
+        scale = vector_scale(big, min(p.cell for p in parts))
         good = usable & ~drawn.replaced
         for item, sel in ((self.vectors, good), (self.replaced, drawn.replaced & usable)):
             xs, ys = arrow_segments(drawn.x[sel], drawn.y[sel], drawn.dx[sel] * scale,
@@ -200,7 +201,7 @@ class ShotPane:
         hidden = drawn.shown_masked
         self.masked.setData(pos=np.column_stack([drawn.x[hidden], drawn.y[hidden]]))
         self.vectors.setPen(pen(colour, 1.1))
-        self._show_reference(result, scale, typical_length(drawn.dx[usable], drawn.dy[usable]))
+        self._show_reference(result, scale, big)
 
     def _show_reference(self, result, scale: float, typical_px: float) -> None:
         """The reference vector at the vectors' scale (``scale``: image px of arrow per px of

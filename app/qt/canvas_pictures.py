@@ -80,10 +80,9 @@ def typical_length(dx_px: np.ndarray, dy_px: np.ndarray) -> float:
     return float(np.percentile(mag, 95)) if mag.size else 0.0
 
 
-def vector_scale(dx_px: np.ndarray, dy_px: np.ndarray, cell_px: float) -> float:
-    """Display factor so that a large (95th percentile) vector spans ~0.9 of one drawn cell."""
-    big = typical_length(dx_px, dy_px)
-    return 0.9 * cell_px / big if big > 0 else 1.0
+def vector_scale(big_px: float, cell_px: float) -> float:
+    """Display factor so that a large vector (``typical_length``) spans ~0.9 of one drawn cell."""
+    return 0.9 * cell_px / big_px if big_px > 0 else 1.0
 
 
 
