@@ -27,7 +27,7 @@ from core.settings import PivPass, PivSettings
 #: Passes of the finer correlation around the ball (ball frame): it gives the stream beside the
 #: layer and the wake; the layer itself is fitted to the particle images (core.separation).
 FINE_PASSES = (
-    PivPass(64, 0.5), PivPass(32, 0.5), PivPass(24, 0.5), PivPass(16, 0.5),
+    PivPass(64, 0.5), PivPass(32, 0.5), PivPass(16, 0.5),
 )
 
 
