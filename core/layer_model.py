@@ -53,6 +53,9 @@ class SideGeometry:
     phi_grid: np.ndarray  # (P,) deg
     gap_grid: np.ndarray  # (G,) px: the samples are the grid's P x G points, phi-major
     final_deg: float = 0.0  # the wake's direction on this side, from the rearward axis
+    # the near-wall model's form (the model-form check refits with them halved and doubled)
+    upstream_deg: float = UPSTREAM_DEG
+    wall_fraction: float = WALL_FRACTION
 
 
 def profile(x: np.ndarray, shape: str = "erf") -> np.ndarray:
@@ -182,10 +185,10 @@ def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, sh
     behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r  # arc length past separation
     lift, rise = _dividing_lines(geom, table[:, :3])
     c = np.array([[centre_offset(float(v), shape)] for v in reverse[:, 0]])
-    ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / UPSTREAM_DEG)  # 0 at and behind phi_s
+    ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / geom.upstream_deg)  # 0 at/behind phi_s
     delta = delta_s * (1.0 - thin * ramp) + spread * behind
     centre = (lift + c * delta * (1.0 - drop * ramp))[:, :, None]
-    wall_px = (WALL_FRACTION * delta_s * (1.0 - thin * ramp))[:, :, None]
+    wall_px = (geom.wall_fraction * delta_s * (1.0 - thin * ramp))[:, :, None]
     delta = delta[:, :, None]
     gap = geom.gap_grid[None, None, :]
     # the flow follows the dividing line only where it rises: from the first angle where any

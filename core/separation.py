@@ -24,8 +24,9 @@ later one, so the model's shape parameters carry priors, all in physical units:
 
 The uncertainty combines, as standard uncertainties: the fit's own standard error, the fitted
 circle's error (refit with the radius moved by its uncertainty), the flight direction's (one to
-one), the model form (refit with the alternative layer profile) and the priors' leverage (refit
-with the thickness prior's median halved and doubled). The reported ``uncertainty_deg`` is
+one), the model form (refit with the alternative layer profile, and with the near-wall model's
+form constants halved and doubled) and the priors' leverage (refit with the thickness prior's
+median halved and doubled). The reported ``uncertainty_deg`` is
 ``COVERAGE_K`` times their root sum of squares: an interval meant to cover the truth in at
 least ``COVERAGE`` of cases, calibrated on one family of synthetic shots and checked on the
 other (docs/separation_accuracy.md).
@@ -596,7 +597,7 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame,
             moved.append(best.angle_shift(problem.residuals(best.params, geom=geom)))
         budget["circle"] = 0.5 * abs(moved[1] - moved[0])
     budget["flight"] = float(ball.flight_sigma_deg)
-    budget["model form"] = abs(best.angle_shift(problem.residuals(best.params, "quartic")))
+    budget["model form"] = model_form_shift(problem, best)
     budget["prior"] = max(
         abs(best.angle_shift(problem.residuals(
             best.params, log_delta_prior=problem.log_delta_prior + shift)))
@@ -604,6 +605,22 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame,
     )
     budget["extrapolation"] = extrapolation_deg(best.params, problem.geom.radius_px)
     return budget
+
+
+def model_form_shift(problem: SideProblem, best: Fit) -> float:
+    """Standard uncertainty (deg) from the model's form: how far the angle moves with the other
+    layer profile (a compact polynomial instead of the error function), and with each of the
+    near-wall model's two form constants halved and doubled (the larger move of each): the arc
+    over which the attached layer settles onto the wall ahead of separation, and the no-slip
+    length. Root sum of squares of the three."""
+    moves = [best.angle_shift(problem.residuals(best.params, "quartic"))]
+    geom = problem.geom
+    for name in ("upstream_deg", "wall_fraction"):
+        moves.append(max(
+            (best.angle_shift(problem.residuals(
+                best.params, geom=replace(geom, **{name: factor * getattr(geom, name)})))
+             for factor in (0.5, 2.0)), key=abs))
+    return math.sqrt(sum(m * m for m in moves))
 
 
 def extrapolation_deg(params, radius_px: float) -> float:

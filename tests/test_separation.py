@@ -10,7 +10,9 @@ import math
 import numpy as np
 import pytest
 
-from core.layer_model import centre_offset, dividing_line_px, profile
+from dataclasses import replace
+
+from core.layer_model import SideGeometry, centre_offset, dividing_line_px, profile, side_flow
 from core.results import SideProposal
 from core.separation import COVERAGE_K, layer_curves, wake_state
 from core.shot import ShotSettings, measure_shot
@@ -132,6 +134,27 @@ def test_the_budget_adds_up_to_the_uncertainty():
     total = COVERAGE_K * math.sqrt(sum(v * v for v in side.budget.values()))
     assert side.uncertainty_deg == pytest.approx(total, abs=0.01)
     assert {"fit", "circle", "flight", "model form", "prior"} <= set(side.budget)
+
+
+def test_the_near_wall_form_constants_shape_only_the_attached_layer():
+    # the model-form check refits with the settling arc and the no-slip length halved and
+    # doubled; by the model's definition (core/layer_model.py) the settling arc acts ahead of
+    # separation only, and the no-slip length everywhere at the wall
+    phi = np.arange(-30.0, 40.0, 0.5)
+    gaps = np.arange(2.0, 16.0, 0.5)
+    geom = SideGeometry(150.0, phi, gaps)
+    params = [5.0, math.tan(math.radians(10.0)), 1.0, math.log(3.0), 0.2, 0.1, 0.5, 0.35, 0.5,
+              1.0, 1.0]
+    outer = np.ones(phi.size * gaps.size), np.zeros(phi.size * gaps.size)
+    base = side_flow(geom, params, *outer)[0].reshape(phi.size, gaps.size)
+    arc = side_flow(replace(geom, upstream_deg=0.5 * geom.upstream_deg), params,
+                    *outer)[0].reshape(phi.size, gaps.size)
+    wall = side_flow(replace(geom, wall_fraction=2.0 * geom.wall_fraction), params,
+                     *outer)[0].reshape(phi.size, gaps.size)
+    ahead = phi < 4.0
+    assert np.abs(arc - base)[ahead].max() > 0.01
+    assert np.array_equal(arc[phi >= 5.0], base[phi >= 5.0])
+    assert np.abs(wall - base)[~ahead].max() > 0.01
 
 
 def test_wake_state_threshold():
