@@ -47,7 +47,9 @@ TARGET_DEPARTURE_DEG = (5.0, 20.0)
 def kinematic_cases(count: int, seed: int) -> list[dict]:
     """Sweep of the first family: R 150-250 px, vorticity thickness 1-9 px, departures 0-25 deg
     (80 % of them in 5-20, as the physical family's), separation -15..+30 deg, flight left or
-    right within 5 deg, reverse flow 5-20 %, spreading 0.1-0.3."""
+    right within 5 deg, reverse flow 5-20 %, spreading 0.1-0.3; dark, dim and bright balls in
+    turn, a lit rim in 70 %, a glint on a quarter of the bright ones, an uneven sheet, 8- and
+    12-bit cameras (the looks of ``core.synth_look``)."""
     rng = np.random.default_rng(seed)
     cases = []
     for i in range(count):
@@ -59,7 +61,10 @@ def kinematic_cases(count: int, seed: int) -> list[dict]:
             "leave_deg": (_departure(rng), _departure(rng)), "layer_px": delta / 2,
             "wake_deflection_deg": rng.uniform(-8, 8), "reverse_fraction": rng.uniform(0.05, 0.2),
             "spread_rate": rng.uniform(0.1, 0.3), "seed": 300 + i,
+            "surface": ("dark", "dim", "bright")[i % 3], "rim": bool(rng.random() < 0.7),
+            "uneven_sheet": float(rng.uniform(0.0, 0.6)), "bits": int(rng.choice([8, 12])),
         })
+        cases[-1]["glint"] = cases[-1]["surface"] == "bright" and bool(rng.random() < 0.25)
     return cases
 
 
@@ -78,7 +83,8 @@ def measure_case(family: str, kwargs: dict) -> list[dict]:
 
         frame_a, frame_b, truth = ball_shot(**kwargs)
         thickness = (2.0 * kwargs["layer_px"],) * 2
-        look = {"surface": "dark", "shadow_side": None}
+        look = {"surface": kwargs.get("surface", "dark"), "shadow_side": None,
+                "glint": kwargs.get("glint", False)}
     else:
         from core.synth_physical import physical_shot
 
