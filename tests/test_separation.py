@@ -6,11 +6,10 @@ the calibration checked both ways) are a benchmark, not part of the test run:
 """
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
-
-from dataclasses import replace
 
 from core.layer_model import SideGeometry, centre_offset, dividing_line_px, profile, side_flow
 from core.results import SideProposal
