@@ -386,20 +386,31 @@ def test_the_balls_brightness_spread_is_numpys_percentiles():
     assert _spread(values) == float(np.subtract(*np.percentile(values, [99, 50])))
 
 
-def test_a_shadowed_half_is_left_out_of_the_particle_free_disc():
-    # particle images evenly spread around a ball of radius 60, none in a strip 120 wide from
-    # its far side (its laser shadow, toward +y): only the lit half (-y) is kept, from 5 deg
-    # into it; without the strip, all are kept
-    from core.ball.outline import _lit_side
+def test_beside_a_shadow_the_disc_is_fitted_to_the_lit_half_and_the_shadows_edges():
+    # particle images evenly spread around a ball of radius 60 at the origin, none in a strip
+    # 120 wide from its far side (its laser shadow, toward +y; the light comes from -y): the
+    # lit half's images face the circle, those beside the strip behind the ball face the
+    # strip's edges (normals +-x), the strip's own air is not used; without the strip, all of
+    # them face the circle (geometry of the construction)
+    from core.ball.outline import _around_outline
 
     rng = np.random.default_rng(6)
-    x, y = rng.uniform(-100, 100, (2, 6000))
+    x, y = rng.uniform(-150, 150, (2, 20000))
     around = np.hypot(x, y) > 60.0
     lit = ~((np.abs(x) < 60.0) & (y > 0))
-    kept = _lit_side(x[around & lit], y[around & lit], 64.0)
-    assert np.all(y[around & lit][kept] < -math.sin(math.radians(5.0)) * 60.0)
-    assert kept.sum() > 0.9 * np.count_nonzero(around & lit & (y < -0.1 * 100))
-    assert _lit_side(x[around], y[around], 64.0).all()
+    points = _around_outline(x[around & lit], y[around & lit], 0.0, 0.0, 60.0, 4.0, 84.0)
+    edge = points.along.any(axis=1)
+    assert np.all(points.py[~edge] <= 0.0)
+    assert np.allclose(np.hypot(points.px[~edge], points.py[~edge]),
+                       points.px[~edge] * points.normal_x[~edge]
+                       + points.py[~edge] * points.normal_y[~edge])
+    assert np.all((points.py[edge] > 0) & (points.py[edge] < 60.0))
+    assert np.allclose(np.abs(points.normal_x[edge]), 1.0)
+    assert np.all(np.sign(points.px[edge]) == np.sign(points.normal_x[edge]))
+    assert np.all((np.abs(points.px[edge]) > 56.0) & (np.abs(points.px[edge]) < 84.0))
+    whole = _around_outline(x[around], y[around], 0.0, 0.0, 60.0, 4.0, 84.0)
+    assert not whole.along.any()
+    assert whole.px.size == np.count_nonzero(around & (np.hypot(x, y) < 84.0))
 
 
 @pytest.mark.parametrize("seed", [21, 22, 23])
