@@ -419,7 +419,7 @@ def test_a_dark_ball_without_rim_beside_its_shadow(seed):
     # from the generator): fitted to all particle images, the shadow's missing ones drew it up to
     # 3.8 px toward the shadow; to the lit half only, up to 2.9 px off with the radius 2.9 px
     # too large (its arc fixes them only together; 57 frames of seeds 0-29); with the edges,
-    # which hold the ball's width, within 1.7 px and 1.4 px there, and within three of its own
+    # which hold the ball's width, within 1.7 px and 1.5 px there, and within three of its own
     # standard uncertainties. Not yet the 1 px target: the lit arc's sparse particle images
     # alone place the centre along the light (R = 64 px, 0.06 particles per px)
     frame_a, frame_b, truth = ball_shot(flight_deg=183.0, seed=seed, shadow=True, rim=False)

@@ -555,6 +555,7 @@ class _Outline:
     normal_x: np.ndarray
     normal_y: np.ndarray
     along: np.ndarray  # (N, 2): distance behind the ball along each shadow edge (0 elsewhere)
+    axis: float | None = None  # direction toward the light (rad, image axes) beside a shadow
 
     def design(self, cx, cy):
         """The distances from ``(cx, cy)`` along the normals, and the quantile fit's design:
@@ -566,10 +567,10 @@ class _Outline:
 
     def subset(self, pick):
         return _Outline(self.px[pick], self.py[pick], self.normal_x[pick], self.normal_y[pick],
-                        self.along[pick])
+                        self.along[pick], self.axis)
 
 
-def _around_outline(px, py, cx, cy, r, inner_px, reach) -> _Outline:
+def _around_outline(px, py, cx, cy, r, inner_px, reach, axis=None) -> _Outline:
     """The particle images within ``inner_px`` inside and ``reach`` from the centre of the
     particle-free region's outline: the ball's circle, and beside a laser shadow the shadow's
     two edges.
@@ -591,7 +592,8 @@ def _around_outline(px, py, cx, cy, r, inner_px, reach) -> _Outline:
     """
     dx, dy = px - cx, py - cy
     rho = np.maximum(np.hypot(dx, dy), 1e-9)
-    axis = _shadow_axis(dx, dy, r + inner_px)
+    if axis is None:
+        axis = _shadow_axis(dx, dy, r + inner_px)
     if axis is None:
         near = (rho > r - inner_px) & (rho < reach)
         return _Outline(px[near], py[near], (dx / rho)[near], (dy / rho)[near],
@@ -617,7 +619,25 @@ def _around_outline(px, py, cx, cy, r, inner_px, reach) -> _Outline:
     along[:, 0] = np.where(edge & (side > 0), -toward, 0.0)
     along[:, 1] = np.where(edge & (side < 0), -toward, 0.0)
     keep = disc | edge
-    return _Outline(px[keep], py[keep], nx[keep], ny[keep], along[keep])
+    return _Outline(px[keep], py[keep], nx[keep], ny[keep], along[keep], axis)
+
+
+def _outline_fit(px, py, cx, cy, r, inner_px, reach, axis, name):
+    """The particle images around the outline (:func:`_around_outline`), evenly thinned to
+    ``2 HOLE_POINTS`` (which leaves the quantile where it is), their distances along the
+    outline's normals, the design, and the quantile fit."""
+    points = _around_outline(px, py, cx, cy, r, inner_px, reach, axis)
+    if points.px.size < 20:
+        raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
+    if points.px.size > 2 * HOLE_POINTS:
+        pick = np.random.default_rng(12345).choice(points.px.size, 2 * HOLE_POINTS,
+                                                   replace=False)
+        points = points.subset(pick)
+    distance, design = points.design(cx, cy)
+    fit = _quantile_fit(design, distance, HOLE_SHARE)
+    if fit is None:
+        raise WakelineError(f"{name}: no ball found (the particle-free disc could not be fitted)")
+    return points, distance, design, fit
 
 
 def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Circle:
@@ -638,18 +658,16 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Ci
     density = probe.sum() / (2.0 * math.pi * (r + inner_px + 6.0) * 12.0)
     outer = float(np.clip(HOLE_POINTS / max(density * 2.0 * math.pi * r, 1e-9), 6.0, 40.0))
     reach = r + inner_px + outer
-    points = _around_outline(px, py, cx, cy, r, inner_px, reach)
-    if points.px.size < 20:
-        raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
-    if points.px.size > 2 * HOLE_POINTS:  # an even thinning leaves the quantile where it is
-        pick = np.random.default_rng(12345).choice(points.px.size, 2 * HOLE_POINTS,
-                                                   replace=False)
-        points = points.subset(pick)
     tau = HOLE_SHARE
-    distance, design = points.design(cx, cy)
-    fit = _quantile_fit(design, distance, tau)
-    if fit is None:
-        raise WakelineError(f"{name}: no ball found (the particle-free disc could not be fitted)")
+    points, distance, design, fit = _outline_fit(px, py, cx, cy, r, inner_px, reach, None, name)
+    if design.shape[1] == 5:
+        # the shadow's direction was known to a 10 deg sector: where it is off, the lit half and
+        # the edges split at the wrong place (a point 10 deg past the split lies 1 px off the
+        # outline it is given, on a ball of 64 px). The edges' turns say by how much: a shadow
+        # turned by d turns the edge on the light's left by +d and the other by -d
+        axis = points.axis + 0.5 * (fit[4] - fit[3])
+        points, distance, design, fit = _outline_fit(px, py, cx, cy, r, inner_px, reach, axis,
+                                                     name)
     dx, dy, q = fit[:3]
     radius = (q - tau * reach) / (1.0 - tau)
     # covariance of a quantile regression: tau (1 - tau) / f^2 (X'X)^-1, f = 1 / (band beyond
