@@ -386,32 +386,68 @@ def test_the_balls_brightness_spread_is_numpys_percentiles():
     assert _spread(values) == float(np.subtract(*np.percentile(values, [99, 50])))
 
 
-def test_a_shadowed_half_is_left_out_of_the_particle_free_disc():
-    # particle images evenly spread around a ball of radius 60, none in a strip 120 wide from
-    # its far side (its laser shadow, toward +y): only the lit half (-y) is kept, from 5 deg
-    # into it; without the strip, all are kept
-    from core.ball.outline import _lit_side
+def test_beside_a_shadow_the_disc_is_fitted_to_the_lit_half_and_the_shadows_edges():
+    # particle images evenly spread around a ball of radius 60 at the origin, none in a strip
+    # 120 wide from its far side (its laser shadow, toward +y; the light comes from -y): the
+    # lit half's images face the circle, those beside the strip behind the ball face the
+    # strip's edges (normals +-x), the strip's own air is not used; without the strip, all of
+    # them face the circle (geometry of the construction)
+    from core.ball.outline import _around_outline
 
     rng = np.random.default_rng(6)
-    x, y = rng.uniform(-100, 100, (2, 6000))
+    x, y = rng.uniform(-150, 150, (2, 20000))
     around = np.hypot(x, y) > 60.0
     lit = ~((np.abs(x) < 60.0) & (y > 0))
-    kept = _lit_side(x[around & lit], y[around & lit], 64.0)
-    assert np.all(y[around & lit][kept] < -math.sin(math.radians(5.0)) * 60.0)
-    assert kept.sum() > 0.9 * np.count_nonzero(around & lit & (y < -0.1 * 100))
-    assert _lit_side(x[around], y[around], 64.0).all()
+    points = _around_outline(x[around & lit], y[around & lit], 0.0, 0.0, 60.0, 4.0, 84.0)
+    edge = points.along.any(axis=1)
+    assert np.all(points.py[~edge] <= 0.0)
+    assert np.allclose(np.hypot(points.px[~edge], points.py[~edge]),
+                       points.px[~edge] * points.normal_x[~edge]
+                       + points.py[~edge] * points.normal_y[~edge])
+    assert np.all((points.py[edge] > 0) & (points.py[edge] < 60.0))
+    assert np.allclose(np.abs(points.normal_x[edge]), 1.0)
+    assert np.all(np.sign(points.px[edge]) == np.sign(points.normal_x[edge]))
+    assert np.all((np.abs(points.px[edge]) > 56.0) & (np.abs(points.px[edge]) < 84.0))
+    whole = _around_outline(x[around], y[around], 0.0, 0.0, 60.0, 4.0, 84.0)
+    assert not whole.along.any()
+    assert whole.px.size == np.count_nonzero(around & (np.hypot(x, y) < 84.0))
 
 
 @pytest.mark.parametrize("seed", [21, 22, 23])
 def test_a_dark_ball_without_rim_beside_its_shadow(seed):
-    # the particle-free disc fitted to the lit half only: before, the shadow's missing particle
-    # images drew it up to 3.8 px toward the shadow, its stated uncertainty a fifth of that;
-    # now within 2 px and within three of its own standard uncertainties (truth: generator)
+    # the particle-free disc fitted to the lit half and the shadow's edges behind the ball (truth
+    # from the generator): fitted to all particle images, the shadow's missing ones drew it up to
+    # 3.8 px toward the shadow; to the lit half only, up to 2.9 px off with the radius 2.9 px
+    # too large (its arc fixes them only together; 57 frames of seeds 0-29); with the edges,
+    # which hold the ball's width, within 1.7 px and 1.5 px there, and within three of its own
+    # standard uncertainties. Not yet the 1 px target: the lit arc's sparse particle images
+    # alone place the centre along the light (R = 64 px, 0.06 particles per px)
     frame_a, frame_b, truth = ball_shot(flight_deg=183.0, seed=seed, shadow=True, rim=False)
     for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
         fit = find_ball(frame)
         dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
         dr = fit.radius_px - truth.radius_px
-        assert math.hypot(dx, dy) < 2.0 and abs(dr) < 2.0
+        assert math.hypot(dx, dy) < 1.8 and abs(dr) < 1.5
+        assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
+        assert abs(dr) <= 3 * fit.radius_sigma_px
+
+
+@pytest.mark.parametrize(("surface", "radius", "seed"), [("dark", 90.0, 1), ("dim", 150.0, 2)])
+def test_a_rimless_ball_beside_its_shadow_on_the_physical_family(surface, radius, seed):
+    # the second synthetic family (truth from the generator), sheet from below, shadow upward:
+    # the dark ball's disc was 1.3 px off from its lit half alone (both frames; now with the
+    # shadow's edges); the large dim ball was fitted 26 px off from its shaded limb fading to
+    # the shadow's level in the wide first band (now the disc brings the circle close first)
+    from core.synth_physical import physical_shot
+
+    frame_a, frame_b, truth = physical_shot(
+        (700, 900), radius_px=radius, surface=surface, lit_rim=False, shadow=True,
+        light_from_deg=270.0, seed=seed,
+    )
+    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
+        fit = find_ball(frame)
+        dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
+        dr = fit.radius_px - truth.radius_px
+        assert math.hypot(dx, dy) < 1.0 and abs(dr) < 1.0
         assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
         assert abs(dr) <= 3 * fit.radius_sigma_px

@@ -35,9 +35,11 @@ HOLE_SHARE = 0.02
 #: Air around the ball whose darkest 60 deg of directions hold under this share of the
 #: particle images 60 deg hold elsewhere (median) is shadowed that way (the ball's laser
 #: shadow, the picture's edge): the particle-free disc is fitted to the particle images of
-#: the other half only, from this angle (deg) into it (chosen on the first synthetic family
-#: among 0, 5, 15 and 25 deg: dark balls without a rim beside their shadow, the second family
-#: not consulted).
+#: the other half and, where a strip as wide as the ball behind it holds under this share of
+#: the density beside it (a laser shadow), to those along the strip's edges; otherwise to the
+#: other half only, from this angle (deg) into it (chosen on the first synthetic family among
+#: 0, 5, 15 and 25 deg: dark balls without a rim beside their shadow, the second family not
+#: consulted).
 SHADOW_SHARE = 0.3
 SHADOW_MARGIN_DEG = 5.0
 #: Particle images (about) used to fit the particle-free disc; the band outside is widened on

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 from functools import cached_property
 
 import numpy as np
-from scipy import ndimage, sparse
+from scipy import ndimage
 from scipy.optimize import least_squares, linprog
 from skimage.measure import CircleModel
 
@@ -192,6 +192,8 @@ def _fine_circle(image, cx, cy, r, block, level, name) -> BallFit:
         crossings = _Crossings(rays, r, half_width)
         if index < 2:
             cue = _choose_cue(crossings)
+        if index == 0 and cue == "surface edge" and _partial_step(crossings):
+            cue = "particle images"
         if cue == "particle images":
             last = index == len(FINE_BANDS_PX)
             fit = _hole_circle(crop, glare, cx, cy, r, half_width + (index > 0), name, last)
@@ -274,6 +276,20 @@ def _choose_cue(crossings: _Crossings) -> str:
     if _share(crossings.coherent_rim, usable) >= MIN_RIM_SHARE:
         return "lit rim"
     return "particle images"
+
+
+def _partial_step(crossings: _Crossings) -> bool:
+    """The first, wide band's surface step is seen on under half of the usable outline: it
+    may then be a step against the ball's laser shadow alone, where the band's surface sample
+    (far inside the outline) says nothing of the limb: a shaded limb fades to the shadow's
+    level inside the outline (a dim ball's limb was darker than the shadow beside it), and
+    a dark seam near the limb crosses half-way to the shadow's level too; a large dim ball
+    was fitted from such a step up to 26 px too small. The particle-free disc then brings the
+    circle close instead, and the narrow bands choose their cue again around it, where the
+    surface is sampled at the limb. (Not using the step at all then cost a dim ball seen
+    against lit air on under half its outline 1.6 px on the first synthetic family, where the
+    choice was made.)"""
+    return _share(crossings.coherent_step, crossings.rays.usable) < 0.5
 
 
 def _coherent(edges: np.ndarray) -> np.ndarray:
@@ -498,43 +514,130 @@ def _parabola(left, centre, right):
     return np.clip(offset, -0.5, 0.5)
 
 
-def _quantile_circle(ux, uy, rho, tau):
-    """``(dx, dy, q)`` minimising the quantile loss of ``rho_i - (q + ux_i dx + uy_i dy)``
-    (a linear programme), or None when it fails."""
-    n = rho.size
-    eye = sparse.identity(n, format="csr")
-    a_eq = sparse.hstack([sparse.csr_matrix(np.column_stack([ux, uy, np.ones(n)])), eye, -eye])
-    cost = np.concatenate([[0.0, 0.0, 0.0], np.full(n, tau), np.full(n, 1.0 - tau)])
-    bounds = [(None, None)] * 3 + [(0, None)] * (2 * n)
-    res = linprog(cost, A_eq=a_eq, b_eq=rho, bounds=bounds, method="highs")
-    return tuple(float(v) for v in res.x[:3]) if res.success else None
+def _quantile_fit(design, distance, tau):
+    """Coefficients minimising the quantile loss of ``distance - design @ b``, or None when the
+    linear programme fails.
 
-
-def _lit_side(dx: np.ndarray, dy: np.ndarray, outside_px: float) -> np.ndarray:
-    """Particle images (at ``dx, dy`` from the centre) on the side of the ball where the air
-    beside the outline is lit: all of them, unless the particle images beyond ``outside_px``
-    in the darkest 60 deg of directions number under ``SHADOW_SHARE`` of their median count
-    over the circle: then the ball's laser shadow (or the picture's edge, or glare) lies that
-    way, and only the directions more than ``SHADOW_MARGIN_DEG`` into the other half are kept.
-
-    The shadow is a strip as wide as the ball from its far side: along any direction into that
-    half the first lit particle images lie beyond the strip's edge, beyond the outline by up to
-    the ball's radius where they are seen at all, while the particle-free disc's quantile
-    assumes them spread evenly from the outline out; a dark ball without a lit rim was fitted
-    up to 4 px toward its shadow and too large.
+    Solved as its dual, ``max distance' a`` subject to ``design' a = (1 - tau) design' 1`` and
+    ``0 <= a <= 1``, whose equality constraints' multipliers are the coefficients: a few
+    constraints on bounded variables instead of one constraint per particle image (the same
+    solution, a third of the time).
     """
+    res = linprog(-distance, A_eq=design.T, b_eq=(1.0 - tau) * design.sum(axis=0),
+                  bounds=(0.0, 1.0), method="highs")
+    return -np.asarray(res.eqlin.marginals, dtype=np.float64) if res.success else None
+
+
+def _shadow_axis(dx: np.ndarray, dy: np.ndarray, outside_px: float) -> float | None:
+    """Direction (rad, image axes) toward the light when the particle images (at ``dx, dy`` from
+    the centre) beyond ``outside_px`` in the darkest 60 deg of directions number under
+    ``SHADOW_SHARE`` of their median count over the circle: the ball's laser shadow (or the
+    picture's edge, or glare) then lies the other way. None when no direction is that dark."""
     rho = np.hypot(dx, dy)
-    ux, uy = dx / np.maximum(rho, 1e-9), dy / np.maximum(rho, 1e-9)
     outside = rho > outside_px
-    sector = np.floor(np.degrees(np.arctan2(uy[outside], ux[outside])) % 360.0 / 10.0)
+    sector = np.floor(np.degrees(np.arctan2(dy[outside], dx[outside])) % 360.0 / 10.0)
     counts = np.bincount(sector.astype(np.int64), minlength=36)[:36].astype(np.float64)
     running = np.concatenate([[0.0], np.cumsum(np.concatenate([counts, counts[:5]]))])
     window = running[6:42] - running[:36]  # from each sector 60 deg on
     darkest = int(np.argmin(window))
     if not window[darkest] < SHADOW_SHARE * 6.0 * float(np.median(counts)):
-        return np.ones(dx.shape, dtype=bool)
-    axis = math.radians(10.0 * darkest + 30.0)  # the middle of the darkest 60 deg
-    return ux * math.cos(axis) + uy * math.sin(axis) < -math.sin(math.radians(SHADOW_MARGIN_DEG))
+        return None
+    return math.radians(10.0 * darkest + 30.0) + math.pi  # opposite the darkest 60 deg
+
+
+@dataclass
+class _Outline:
+    """Particle images near the particle-free region's outline, each with the outward normal of
+    the piece of outline it lies beside: the ball's circle, or an edge of its laser shadow."""
+
+    px: np.ndarray
+    py: np.ndarray
+    normal_x: np.ndarray
+    normal_y: np.ndarray
+    along: np.ndarray  # (N, 2): distance behind the ball along each shadow edge (0 elsewhere)
+    axis: float | None = None  # direction toward the light (rad, image axes) beside a shadow
+
+    def design(self, cx, cy):
+        """The distances from ``(cx, cy)`` along the normals, and the quantile fit's design:
+        a shift of the centre, the offset, and (beside a shadow) each edge's turn."""
+        distance = (self.px - cx) * self.normal_x + (self.py - cy) * self.normal_y
+        columns = [self.normal_x, self.normal_y, np.ones(self.px.size)]
+        columns += [self.along[:, k] for k in range(2) if np.count_nonzero(self.along[:, k]) >= 5]
+        return distance, np.column_stack(columns)
+
+    def subset(self, pick):
+        return _Outline(self.px[pick], self.py[pick], self.normal_x[pick], self.normal_y[pick],
+                        self.along[pick], self.axis)
+
+
+def _around_outline(px, py, cx, cy, r, inner_px, reach, axis=None) -> _Outline:
+    """The particle images within ``inner_px`` inside and ``reach`` from the centre of the
+    particle-free region's outline: the ball's circle, and beside a laser shadow the shadow's
+    two edges.
+
+    A sheet the ball blocks leaves a strip without lit particles behind it, bounded by the rays
+    that graze the ball: straight lines tangent to its outline, a ball's width apart. Along the
+    lit half the particle images outline the circle; behind it they outline those two tangents
+    (along a direction from the centre into that half the first lit particle images lie beyond
+    the strip's edge, not beyond the circle: a dark ball without a lit rim, fitted to all of
+    them as to a circle, came out up to 4 px toward its shadow). The tangents hold the circle's
+    width across the shadow: the lit half alone fixes the radius and the centre's distance from
+    the light only together (a shift toward the light with a smaller radius keeps the lit arc
+    nearly in place), and sparse seeding left both up to 2 px out. Each edge may turn a little
+    (a sheet diverging from its lens; the shadow's direction known to a 10 deg sector); the
+    edges are used for a ball's radius behind the centre, where they stay close to the
+    tangents, and only where the strip between them is as dark as a shadow: a dark sector
+    without such a strip (the picture's edge, glare) leaves the lit half alone, from
+    ``SHADOW_MARGIN_DEG`` into it.
+    """
+    dx, dy = px - cx, py - cy
+    rho = np.maximum(np.hypot(dx, dy), 1e-9)
+    if axis is None:
+        axis = _shadow_axis(dx, dy, r + inner_px)
+    if axis is None:
+        near = (rho > r - inner_px) & (rho < reach)
+        return _Outline(px[near], py[near], (dx / rho)[near], (dy / rho)[near],
+                        np.zeros((np.count_nonzero(near), 2)))
+    lx, ly = math.cos(axis), math.sin(axis)
+    toward = dx * lx + dy * ly
+    across = -dx * ly + dy * lx
+    disc = (toward >= 0) & (rho > r - inner_px) & (rho < reach)
+    behind = (toward < 0) & (toward > -r)
+    edge = behind & (np.abs(across) > r - inner_px) & (np.abs(across) < reach)
+    strip = behind & (np.abs(across) < r - inner_px)
+    band = max(reach - r + inner_px, 1.0)
+    lit_density = np.count_nonzero(edge) / (2.0 * r * band)
+    dark_density = np.count_nonzero(strip) / (2.0 * r * max(r - inner_px, 1.0))
+    if not dark_density < SHADOW_SHARE * lit_density:  # no shadow strip: the lit half only
+        keep = (toward / rho > math.sin(math.radians(SHADOW_MARGIN_DEG))) & disc
+        return _Outline(px[keep], py[keep], (dx / rho)[keep], (dy / rho)[keep],
+                        np.zeros((np.count_nonzero(keep), 2)))
+    side = np.sign(across)
+    nx = np.where(disc, dx / rho, -side * ly)
+    ny = np.where(disc, dy / rho, side * lx)
+    along = np.zeros((px.size, 2))
+    along[:, 0] = np.where(edge & (side > 0), -toward, 0.0)
+    along[:, 1] = np.where(edge & (side < 0), -toward, 0.0)
+    keep = disc | edge
+    return _Outline(px[keep], py[keep], nx[keep], ny[keep], along[keep], axis)
+
+
+def _outline_fit(px, py, cx, cy, r, inner_px, reach, axis, name):
+    """The particle images around the outline (:func:`_around_outline`), evenly thinned to
+    ``2 HOLE_POINTS`` (which leaves the quantile where it is), their distances along the
+    outline's normals, the design, and the quantile fit."""
+    points = _around_outline(px, py, cx, cy, r, inner_px, reach, axis)
+    if points.px.size < 20:
+        raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
+    if points.px.size > 2 * HOLE_POINTS:
+        pick = np.random.default_rng(12345).choice(points.px.size, 2 * HOLE_POINTS,
+                                                   replace=False)
+        points = points.subset(pick)
+    distance, design = points.design(cx, cy)
+    fit = _quantile_fit(design, distance, HOLE_SHARE)
+    if fit is None:
+        raise WakelineError(f"{name}: no ball found (the particle-free disc could not be fitted)")
+    return points, distance, design, fit
 
 
 def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Circle:
@@ -543,7 +646,8 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Ci
     Particle centres are spread evenly outside the ball and absent inside, so around the true
     circle their distance from the centre has its ``HOLE_SHARE`` quantile ``q`` at
     ``R + HOLE_SHARE (R_out - R)`` over a band reaching ``R_out`` (derived): the fit solves for
-    that quantile (a linear programme) and steps back by the offset.
+    that quantile (a linear programme) and steps back by the offset. Beside a laser shadow the
+    band follows the shadow's edges behind the ball (:func:`_around_outline`).
     """
     yy, xx = np.ogrid[0 : crop.shape[0], 0 : crop.shape[1]]
     quiet = (xx - cx) ** 2 + (yy - cy) ** 2 < max(r - inner_px - 3.0, 0.3 * r) ** 2
@@ -553,33 +657,25 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Ci
     probe = (rho > r + inner_px) & (rho < r + inner_px + 12.0)
     density = probe.sum() / (2.0 * math.pi * (r + inner_px + 6.0) * 12.0)
     outer = float(np.clip(HOLE_POINTS / max(density * 2.0 * math.pi * r, 1e-9), 6.0, 40.0))
-    sel = (rho > r - inner_px) & (rho < r + inner_px + outer)
-    if sel.sum() < 20:
-        raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
-    px, py = px[sel], py[sel]
-    lit = _lit_side(px - cx, py - cy, r + inner_px)
-    if lit.sum() < 20:
-        raise WakelineError(f"{name}: no ball found (too few particle images around the ball)")
-    px, py = px[lit], py[lit]
-    if px.size > 2 * HOLE_POINTS:  # an even thinning leaves the quantile where it is
-        pick = np.random.default_rng(12345).choice(px.size, 2 * HOLE_POINTS, replace=False)
-        px, py = px[pick], py[pick]
-    rho = np.hypot(px - cx, py - cy)
-    ux, uy = (px - cx) / rho, (py - cy) / rho
-    tau = HOLE_SHARE
     reach = r + inner_px + outer
-    fit = _quantile_circle(ux, uy, rho, tau)
-    if fit is None:
-        raise WakelineError(f"{name}: no ball found (the particle-free disc could not be fitted)")
-    dx, dy, q = fit
+    tau = HOLE_SHARE
+    points, distance, design, fit = _outline_fit(px, py, cx, cy, r, inner_px, reach, None, name)
+    if design.shape[1] == 5:
+        # the shadow's direction was known to a 10 deg sector: where it is off, the lit half and
+        # the edges split at the wrong place (a point 10 deg past the split lies 1 px off the
+        # outline it is given, on a ball of 64 px). The edges' turns say by how much: a shadow
+        # turned by d turns the edge on the light's left by +d and the other by -d
+        axis = points.axis + 0.5 * (fit[4] - fit[3])
+        points, distance, design, fit = _outline_fit(px, py, cx, cy, r, inner_px, reach, axis,
+                                                     name)
+    dx, dy, q = fit[:3]
     radius = (q - tau * reach) / (1.0 - tau)
     # covariance of a quantile regression: tau (1 - tau) / f^2 (X'X)^-1, f = 1 / (band beyond
     # the circle) the density of the even spread at the quantile (asymptotic; doubled for the
     # extreme quantile's skew); the intercept q carries to r scaled by 1 / (1 - tau)
-    design = np.column_stack([ux, uy, np.ones(rho.size)])
     f = 1.0 / max(reach - radius, 1.0)
     try:
-        cov = 2.0 * tau * (1.0 - tau) / (f * f) * np.linalg.inv(design.T @ design)
+        cov = 2.0 * tau * (1.0 - tau) / (f * f) * np.linalg.inv(design.T @ design)[:3, :3]
     except np.linalg.LinAlgError:
         cov = np.full((3, 3), np.inf)
     cov[2, :] /= 1.0 - tau
@@ -592,15 +688,16 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Ci
         rng = np.random.default_rng(12345)
         refits = []
         for _ in range(HOLE_BOOTSTRAP):
-            pick = rng.choice(rho.size, rho.size // 2, replace=False)
-            again = _quantile_circle(ux[pick], uy[pick], rho[pick], tau)
+            pick = rng.choice(distance.size, distance.size // 2, replace=False)
+            again = _quantile_fit(design[pick], distance[pick], tau)
             if again is not None:
                 refits.append((again[0], again[1], (again[2] - tau * reach) / (1.0 - tau)))
         if len(refits) >= HOLE_BOOTSTRAP // 2:
             spread = 0.5 * np.cov(np.array(refits).T)
             if np.trace(spread) > np.trace(cov):
                 cov = spread
-    theta = np.arctan2(py - cy, px - cx)
-    near = np.abs(rho - ux * dx - uy * dy - radius) < 3.0
+    residual = distance - design @ fit
+    near = np.abs(residual) < 3.0
+    theta = np.arctan2(points.py - cy, points.px - cx)
     return _Circle((cx + dx, cy + dy), float(radius), cov, float("nan"),
                    _arc_share(theta[near], 1.0))
