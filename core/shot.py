@@ -401,7 +401,8 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
     origin, a, b, mask, centre, radius, left = _ball_frame_crop(frame_a, frame_b, balls, flight)
     if min(a.shape) < 2 * FINE_PASSES[0].window_px:
         reason = "too little of the image around the ball for the fine correlation"
-        return SeparationResult(SideProposal(None, reason=reason), SideProposal(None, reason=reason))
+        return SeparationResult(SideProposal(None, reason=reason),
+                                SideProposal(None, reason=reason))
     fine = replace(settings.piv, passes=FINE_PASSES)
     stream = float(np.hypot(*flight.displacement_px))
     if stream < MIN_FLIGHT_PX:  # a held ball: the air streams past it
