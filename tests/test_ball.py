@@ -275,6 +275,24 @@ def test_the_shadow_strips_straight_edges_are_not_the_ball():
     assert abs(fit.radius_px - truth.radius_px) < 1.0
 
 
+@pytest.mark.parametrize("seed", [7, 9])
+def test_a_large_ball_beside_its_shadow_strip_in_a_tight_frame(seed):
+    # a ball 300 px across in a 640 x 800 frame, its shadow a strip as wide as the ball up to
+    # the top of the picture: half the outline seen, the rest runs into the strip. Many small
+    # quiet patches between particles outvoted it (49 of 60 frames found no ball, seeds 0-29,
+    # and 8 of the rest were off by 2-360 px); the centres are now ranked per octave of radius,
+    # the air around a candidate is judged on its lit half and a circle that strays from its
+    # votes gets one more look (all 60 found, 58 within 1 px, the worst 1.3 px). Truth from
+    # the generator; 1 px: the target without a lit rim
+    frame_a, frame_b, truth = ball_shot((640, 800), radius_px=150.0, flight_deg=183.0,
+                                        seed=seed, shadow=True, rim=False)
+    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
+        fit = find_ball(frame)
+        dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
+        assert math.hypot(dx, dy) < 1.0 and abs(fit.radius_px - truth.radius_px) < 1.0
+        assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
+
+
 def test_a_glare_arc_is_left_out_of_the_outline():
     # a saturated glint where the sheet hits the ball, its glare over the outline: the rays
     # through it are dropped, so part of the outline is not used and the circle stays true

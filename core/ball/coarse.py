@@ -117,19 +117,8 @@ def _hough_best(ex, ey, nx, ny, radii, quiet):
     radius. Written with ``np.bincount`` rather than :func:`skimage.transform.hough_circle`,
     which ignores the normals and costs a full circle of votes per point and radius.
     """
-    shape = quiet.shape
-    cx = np.rint(ex[None, :] - radii[:, None] * nx[None, :]).astype(np.int64)
-    cy = np.rint(ey[None, :] - radii[:, None] * ny[None, :]).astype(np.int64)
-    weight = np.broadcast_to(1.0 / (2.0 * math.pi * radii[:, None]), cx.shape)
-    inside = (cx >= 0) & (cy >= 0) & (cx < shape[1]) & (cy < shape[0])
-    votes = np.bincount(cy[inside] * shape[1] + cx[inside], weights=weight[inside],
-                        minlength=shape[0] * shape[1]).reshape(shape)
-    # the normals of a block map scatter by some degrees: sum the votes over a few blocks
-    votes = ndimage.gaussian_filter(votes, 1.5) * (2.0 * math.pi * 1.5 * 1.5)
-    peaks = (votes == ndimage.maximum_filter(votes, 5)) & (votes > 0.15)
-    order = np.argsort(votes[peaks])[::-1][:8]
     best, best_score = None, 0.0
-    for j, i in zip(*(a[order] for a in np.nonzero(peaks)), strict=True):
+    for j, i in _centre_candidates(ex, ey, nx, ny, radii, quiet.shape):
         rx, ry = ex - i, ey - j
         rho = np.hypot(rx, ry)
         facing = (rx * nx + ry * ny) > 0.8 * rho
@@ -139,7 +128,7 @@ def _hough_best(ex, ey, nx, ny, radii, quiet):
         inside = (span >= radii[0]) & (span <= radii[-1])
         r = float(np.argmax(np.where(inside, hist / np.maximum(span, 1.0), 0.0)))
         circle = _refined(ex, ey, nx, ny, float(i), float(j), r)
-        if circle is None:
+        if circle is None or not radii[0] - 3.0 <= circle[2] <= radii[-1] + 3.0:
             continue
         support = circle[3]
         fill, air, seen = _disc_and_ring(quiet, *circle[:3])
@@ -155,11 +144,44 @@ def _hough_best(ex, ey, nx, ny, radii, quiet):
     return best
 
 
-def _refined(ex, ey, nx, ny, i, j, r):
+#: Centres tried per octave of radius (:func:`_centre_candidates`).
+CENTRES_PER_OCTAVE = 6
+
+
+def _centre_candidates(ex, ey, nx, ny, radii, shape) -> list[tuple[int, int]]:
+    """The strongest centres (blocks, as (row, col)) of the edge points' votes, octave of radius
+    by octave: a large ball seen on half its outline (the rest in its laser shadow, whose strip
+    runs off the picture) collects about half a vote, less than many small quiet patches
+    between sparse particles, each a whole small circle; ranked per octave, it stays among the
+    candidates of its own size."""
+    candidates = []
+    low = radii[0]
+    while low <= radii[-1]:
+        octave = radii[(radii >= low) & (radii < 2.0 * low)]
+        low *= 2.0
+        cx = np.rint(ex[None, :] - octave[:, None] * nx[None, :]).astype(np.int64)
+        cy = np.rint(ey[None, :] - octave[:, None] * ny[None, :]).astype(np.int64)
+        weight = np.broadcast_to(1.0 / (2.0 * math.pi * octave[:, None]), cx.shape)
+        inside = (cx >= 0) & (cy >= 0) & (cx < shape[1]) & (cy < shape[0])
+        votes = np.bincount(cy[inside] * shape[1] + cx[inside], weights=weight[inside],
+                            minlength=shape[0] * shape[1]).reshape(shape)
+        # the normals of a block map scatter by some degrees: sum the votes over a few blocks
+        votes = ndimage.gaussian_filter(votes, 1.5) * (2.0 * math.pi * 1.5 * 1.5)
+        peaks = (votes == ndimage.maximum_filter(votes, 5)) & (votes > 0.15)
+        order = np.argsort(votes[peaks])[::-1][:CENTRES_PER_OCTAVE]
+        rows, cols = (a[order] for a in np.nonzero(peaks))
+        candidates += [(j, i) for j, i in zip(rows, cols, strict=True)
+                       if (j, i) not in candidates]
+    return candidates
+
+
+def _refined(ex, ey, nx, ny, i, j, r, again=True):
     """Circle (blocks) through the edge points near ``(i, j, r)`` whose normals point away
     from its centre (least squares, then again on the points within a block), with the share
-    of its outline they cover
-    (64 sectors); None with fewer than 8 such points."""
+    of its outline they cover (64 sectors); None with fewer than 8 such points, or when the
+    circle lies more than 3 blocks from ``(i, j, r)`` even after one more look from where it
+    went (a centre voted for by half an outline, the rest in a laser shadow, lies a few blocks
+    off: the normals of a block map scatter by some degrees)."""
     rx, ry = ex - i, ey - j
     rho = np.hypot(rx, ry)
     near = (np.abs(rho - r) < 3.0) & ((rx * nx + ry * ny) > 0.6 * rho)
@@ -175,8 +197,10 @@ def _refined(ex, ey, nx, ny, i, j, r):
     if not model:
         return None
     (ci, cj), cr = model.center, model.radius
-    if abs(cr - r) > 3.0 or math.hypot(ci - i, cj - j) > 3.0 or cr <= 0:
+    if cr <= 0:
         return None
+    if abs(cr - r) > 3.0 or math.hypot(ci - i, cj - j) > 3.0:
+        return _refined(ex, ey, nx, ny, ci, cj, cr, again=False) if again else None
     theta = np.arctan2(points[inliers, 1] - cj, points[inliers, 0] - ci)
     sectors = np.unique(np.floor((theta + math.pi) / (2 * math.pi) * 64).astype(int) % 64)
     return float(ci), float(cj), float(cr), sectors.size / 64.0
@@ -272,8 +296,13 @@ def _best_of_triples(points, triples, threshold, start, reach):
 
 
 def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[float, float, float]:
-    """Quiet share of the disc within 0.85 r, textured share of the ring 1.15-1.6 r (both
-    inside the picture), and the share of the circle inside the picture."""
+    """Quiet share of the disc within 0.85 r, textured share of the ring 1.15-1.6 r on its more
+    textured half (both inside the picture), and the share of the circle inside the picture.
+
+    Half the ring: a ball's laser shadow leaves the air on its far side unlit, up to half of
+    the ring (the strip behind the ball is as wide as the ball), while the lit side is
+    textured all round; a whole-ring share let a larger circle, mostly beyond the picture's
+    edge, that takes in the shadow strip outscore the ball itself."""
     reach = math.ceil(1.6 * r + 2)
     y0, y1 = max(0, int(j) - reach), min(quiet.shape[0], int(j) + reach + 1)
     x0, x1 = max(0, int(i) - reach), min(quiet.shape[1], int(i) + reach + 1)
@@ -286,4 +315,16 @@ def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[flo
     theta = np.linspace(0, 2 * math.pi, 64, endpoint=False)
     px, py = i + r * np.cos(theta), j + r * np.sin(theta)
     seen = np.mean((px >= 0) & (py >= 0) & (px <= quiet.shape[1] - 1) & (py <= quiet.shape[0] - 1))
-    return float(window[disc].mean()), float(1.0 - window[ring].mean()), float(seen)
+    return float(window[disc].mean()), _textured_half(window, ring, xx - i, yy - j), float(seen)
+
+
+def _textured_half(window, ring, dx, dy) -> float:
+    """Textured share of the ring's pixels on the half of it (16 sectors, 8 in a row) where
+    it is largest; sectors without pixels in the picture are left out."""
+    sector = (np.floor((np.arctan2(dy, dx) + math.pi) / (2 * math.pi) * 16).astype(int) % 16)
+    sector = np.broadcast_to(sector, ring.shape)[ring]
+    textured = np.bincount(sector, weights=~window[ring], minlength=16)
+    counts = np.bincount(sector, minlength=16).astype(np.float64)
+    halves = [np.roll(np.arange(16), -k)[:8] for k in range(16)]
+    shares = [textured[h].sum() / counts[h].sum() for h in halves if counts[h].sum() > 0]
+    return float(max(shares))
