@@ -481,11 +481,22 @@ def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):
     both frames.
 
     The frames are moved by whole pixels: resampling them (a cubic spline shift) cost a third
-    of a second on a 2560 x 2160 shot and smooths the particle images. What the whole pixels
-    leave of the ball's motion between the two crops (at most a pixel per axis) is returned as
-    ``left_px`` (x, y), to be taken off the displacements measured on them; the crop's origin
-    (x, y) is where the image's pixels lie relative to the ball at mid-exposure (the crops'
-    ball halfway between its positions in the two).
+    of a second on a 2560 x 2160 shot and smooths the particle images.
+
+    Returns
+    -------
+    origin : (float, float)
+        Image position (x, y) of the crops' pixel (0, 0), taking the crops' ball as the ball
+        at mid-exposure (it lies halfway between its places in the two crops).
+    a, b : (h, w) float32 ndarray
+        Frames A and B, moved.
+    mask : (h, w) bool ndarray
+        The ball in the crops (plus the mask margin).
+    centre, radius
+        The ball at mid-exposure (image px).
+    left : (float, float)
+        The ball's motion (x, y) from crop a to crop b that the whole pixels leave (at most a
+        pixel per axis): to be taken off the displacements measured on the crops.
     """
     from core.ball import ball_mask
 

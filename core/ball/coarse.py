@@ -318,13 +318,15 @@ def _disc_and_ring(quiet: np.ndarray, i: float, j: float, r: float) -> tuple[flo
     return float(window[disc].mean()), _textured_half(window, ring, xx - i, yy - j), float(seen)
 
 
+#: The ring's halves for :func:`_textured_half`: every run of 8 of its 16 sectors.
+_HALVES = np.array([np.roll(np.arange(16), -k)[:8] for k in range(16)])
+
+
 def _textured_half(window, ring, dx, dy) -> float:
-    """Textured share of the ring's pixels on the half of it (16 sectors, 8 in a row) where
+    """Textured share of the ring's pixels on the half of it (8 sectors of 16 in a row) where
     it is largest; sectors without pixels in the picture are left out."""
-    sector = (np.floor((np.arctan2(dy, dx) + math.pi) / (2 * math.pi) * 16).astype(int) % 16)
+    sector = np.floor((np.arctan2(dy, dx) + math.pi) / (2 * math.pi) * 16).astype(int) % 16
     sector = np.broadcast_to(sector, ring.shape)[ring]
-    textured = np.bincount(sector, weights=~window[ring], minlength=16)
-    counts = np.bincount(sector, minlength=16).astype(np.float64)
-    halves = [np.roll(np.arange(16), -k)[:8] for k in range(16)]
-    shares = [textured[h].sum() / counts[h].sum() for h in halves if counts[h].sum() > 0]
-    return float(max(shares))
+    textured = np.bincount(sector, weights=~window[ring], minlength=16)[_HALVES].sum(axis=1)
+    counts = np.bincount(sector, minlength=16)[_HALVES].sum(axis=1)
+    return float(np.max(textured[counts > 0] / counts[counts > 0]))
