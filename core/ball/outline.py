@@ -107,10 +107,10 @@ class _Rays:
 
 def _sample_rays(crop, coeff, glare, cx, cy, r, half_width) -> _Rays:
     """Rays of the crop around the ball: ``coeff`` the cubic B-spline coefficients around it
-    (:func:`_spline_around`; unused by the wide first band), as a cubic spline keeps the rim's
-    flank sharper than bilinear interpolation, whose slope is constant between pixel centres); the smoothed samples are the raw ones smoothed by a 1 px Gaussian
-    along and across the rays (as a 1 px Gaussian of the picture would, for a fraction of its
-    cost). A wide first band (more than 6 px each side) only has to bring the circle within a
+    (:func:`_spline_around`; unused by the wide first band: a cubic spline keeps the rim's
+    flank sharper than bilinear interpolation, whose slope is constant between pixel centres);
+    the smoothed samples are the raw ones smoothed by a 1 px Gaussian along and across the
+    rays (as a 1 px Gaussian of the picture would, for a fraction of its cost). A wide first band (more than 6 px each side) only has to bring the circle within a
     pixel or two: it is sampled bilinearly, on rays twice as far apart and at 1 px along them
     (four times as coarsely: its samples took a third of the fit on a large ball)."""
     wide = half_width > 6.0
