@@ -110,9 +110,10 @@ def _sample_rays(crop, coeff, glare, cx, cy, r, half_width) -> _Rays:
     (:func:`_spline_around`; unused by the wide first band: a cubic spline keeps the rim's
     flank sharper than bilinear interpolation, whose slope is constant between pixel centres);
     the smoothed samples are the raw ones smoothed by a 1 px Gaussian along and across the
-    rays (as a 1 px Gaussian of the picture would, for a fraction of its cost). A wide first band (more than 6 px each side) only has to bring the circle within a
-    pixel or two: it is sampled bilinearly, on rays twice as far apart and at 1 px along them
-    (four times as coarsely: its samples took a third of the fit on a large ball)."""
+    rays (as a 1 px Gaussian of the picture would, for a fraction of its cost). A wide first
+    band (more than 6 px each side) only has to bring the circle within a pixel or two: it is
+    sampled bilinearly, on rays twice as far apart and at 1 px along them (four times as
+    coarsely: its samples took a third of the fit on a large ball)."""
     wide = half_width > 6.0
     spacing, step = (3.0, 1.0) if wide else (1.5, 0.25)
     n_rays = int(np.clip(2.0 * math.pi * r / spacing, 90, 1080))
