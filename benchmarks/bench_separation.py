@@ -16,7 +16,7 @@ its reported uncertainty and the uncertainty's budget are written to a JSON-line
 tables can be remade without measuring again (``--from FILE``). The markdown tables go to stdout
 and, with ``--write``, to ``docs/separation_accuracy.md``.
 
-Run (about 10-20 minutes on 2 cores for the default 24 + 24 shots):
+Run (about 5-10 minutes on 2 cores for the default 48 + 48 shots):
 
     .venv/bin/python benchmarks/bench_separation.py --write
     .venv/bin/python benchmarks/bench_separation.py --from results.jsonl --write
@@ -204,7 +204,7 @@ def tables(records: list[dict]) -> str:
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--shots", type=int, default=24, help="shots per family")
+    parser.add_argument("--shots", type=int, default=48, help="shots per family")
     parser.add_argument("--seed", type=int, default=11)
     parser.add_argument("--out", type=Path, default=Path("separation_results.jsonl"))
     parser.add_argument("--from", dest="source", type=Path, help="tables from stored results")
