@@ -431,6 +431,26 @@ def test_beside_a_shadow_the_disc_is_fitted_to_the_lit_half_and_the_shadows_edge
     assert whole.px.size == np.count_nonzero(around & (np.hypot(x, y) < 84.0))
 
 
+def test_a_dark_sector_without_a_shadow_strip_keeps_the_lit_half_only():
+    # the same evenly spread particle images without a strip: a dark direction forced on the
+    # fit (as glare or the picture's edge would make one) finds the air behind the ball as
+    # seeded as beside it, so no shadow edges are fitted; with the picture ending just behind
+    # the ball, neither (geometry of the construction)
+    from core.ball.outline import _around_outline
+
+    rng = np.random.default_rng(6)
+    x, y = rng.uniform(-150, 150, (2, 20000))
+    around = np.hypot(x, y) > 60.0
+    forced = _around_outline(x[around], y[around], 0.0, 0.0, 60.0, 4.0, 84.0,
+                             axis=-math.pi / 2)
+    assert not forced.along.any()
+    assert np.all(forced.py < 0.0)
+    cut = around & (y < 62.0)
+    edge_of_picture = _around_outline(x[cut], y[cut], 0.0, 0.0, 60.0, 4.0, 84.0,
+                                      axis=-math.pi / 2)
+    assert not edge_of_picture.along.any()
+
+
 @pytest.mark.parametrize("seed", [21, 22, 23])
 def test_a_dark_ball_without_rim_beside_its_shadow(seed):
     # the particle-free disc fitted to the lit half and the shadow's edges behind the ball (truth

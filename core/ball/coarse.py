@@ -324,9 +324,14 @@ _HALVES = np.array([np.roll(np.arange(16), -k)[:8] for k in range(16)])
 
 def _textured_half(window, ring, dx, dy) -> float:
     """Textured share of the ring's pixels on the half of it (8 sectors of 16 in a row) where
-    it is largest; sectors without pixels in the picture are left out."""
+    it is largest, among the halves with at least 6 of their sectors in the picture (a half
+    seen on a sector or two says little); the whole ring's share when no half is."""
     sector = np.floor((np.arctan2(dy, dx) + math.pi) / (2 * math.pi) * 16).astype(int) % 16
     sector = np.broadcast_to(sector, ring.shape)[ring]
-    textured = np.bincount(sector, weights=~window[ring], minlength=16)[_HALVES].sum(axis=1)
-    counts = np.bincount(sector, minlength=16)[_HALVES].sum(axis=1)
-    return float(np.max(textured[counts > 0] / counts[counts > 0]))
+    textured = np.bincount(sector, weights=~window[ring], minlength=16)
+    counts = np.bincount(sector, minlength=16)
+    seen = (counts[_HALVES] > 0).sum(axis=1) >= 6
+    if not seen.any():
+        return float(textured.sum() / counts.sum())
+    shares = textured[_HALVES].sum(axis=1)[seen] / counts[_HALVES].sum(axis=1)[seen]
+    return float(np.max(shares))

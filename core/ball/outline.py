@@ -107,13 +107,13 @@ class _Rays:
 
 def _sample_rays(crop, coeff, glare, cx, cy, r, half_width) -> _Rays:
     """Rays of the crop around the ball: ``coeff`` the cubic B-spline coefficients around it
-    (:func:`_spline_around`; unused by the wide first band: a cubic spline keeps the rim's
-    flank sharper than bilinear interpolation, whose slope is constant between pixel centres);
-    the smoothed samples are the raw ones smoothed by a 1 px Gaussian along and across the
-    rays (as a 1 px Gaussian of the picture would, for a fraction of its cost). A wide first
-    band (more than 6 px each side) only has to bring the circle within a pixel or two: it is
-    sampled bilinearly, on rays twice as far apart and at 1 px along them (four times as
-    coarsely: its samples took a third of the fit on a large ball)."""
+    (:func:`_spline_around`), as a cubic spline keeps the rim's flank sharper than bilinear
+    interpolation (whose slope is constant between pixel centres); the wide first band does
+    not use them. The smoothed samples are the raw ones smoothed by a 1 px Gaussian along and
+    across the rays (as a 1 px Gaussian of the picture would, for a fraction of its cost). A
+    wide first band (more than 6 px each side) only has to bring the circle within a pixel or
+    two: it is sampled bilinearly, on rays twice as far apart and at 1 px along them (four
+    times as coarsely: its samples took a third of the fit on a large ball)."""
     wide = half_width > 6.0
     spacing, step = (3.0, 1.0) if wide else (1.5, 0.25)
     n_rays = int(np.clip(2.0 * math.pi * r / spacing, 90, 1080))
@@ -605,11 +605,8 @@ def _around_outline(px, py, cx, cy, r, inner_px, reach, axis=None) -> _Outline:
     disc = (toward >= 0) & (rho > r - inner_px) & (rho < reach)
     behind = (toward < 0) & (toward > -r)
     edge = behind & (np.abs(across) > r - inner_px) & (np.abs(across) < reach)
-    strip = behind & (np.abs(across) < r - inner_px)
-    band = max(reach - r + inner_px, 1.0)
-    lit_density = np.count_nonzero(edge) / (2.0 * r * band)
-    dark_density = np.count_nonzero(strip) / (2.0 * r * max(r - inner_px, 1.0))
-    if not dark_density < SHADOW_SHARE * lit_density:  # no shadow strip: the lit half only
+    if not _strip_is_dark(dx, dy, toward, across, r, inner_px, reach, axis):
+        # no shadow strip behind the ball: the lit half only
         keep = (toward / rho > math.sin(math.radians(SHADOW_MARGIN_DEG))) & disc
         return _Outline(px[keep], py[keep], (dx / rho)[keep], (dy / rho)[keep],
                         np.zeros((np.count_nonzero(keep), 2)))
@@ -621,6 +618,34 @@ def _around_outline(px, py, cx, cy, r, inner_px, reach, axis=None) -> _Outline:
     along[:, 1] = np.where(edge & (side < 0), -toward, 0.0)
     keep = disc | edge
     return _Outline(px[keep], py[keep], nx[keep], ny[keep], along[keep], axis)
+
+
+#: Largest correction (rad) of the shadow's direction from its edges' turns: it is known to a
+#: 10 deg sector (:func:`_shadow_axis`), so it is off by 5 deg at most; twice that allowed.
+SECTOR_TURN_RAD = math.radians(10.0)
+
+
+def _strip_is_dark(dx, dy, toward, across, r, inner_px, reach, axis) -> bool:
+    """Whether the strip as wide as the ball just behind it (from ``inner_px`` past the outline
+    to ``reach`` from the centre along the shadow's direction) holds under ``SHADOW_SHARE`` of
+    the particle images per pixel that the air beside the ball's rear half holds (from
+    ``inner_px`` outside the strip's edges to ``reach``): a laser shadow. Both regions are
+    measured within the extent of the particle images given (the picture around the ball): a
+    dark sector that is the picture's edge or glare has no dark strip in the picture."""
+    inner, outer = r + inner_px, reach
+    dark = (toward < -inner) & (toward > -outer) & (np.abs(across) < r - inner_px)
+    lit = (toward < 0) & (toward > -r) & (np.abs(across) > inner) & (np.abs(across) < outer)
+    # the two regions' areas inside the particle images' extent, on a 2 px grid
+    gx, gy = np.meshgrid(np.arange(dx.min(), dx.max(), 2.0), np.arange(dy.min(), dy.max(), 2.0))
+    lx, ly = math.cos(axis), math.sin(axis)
+    g_toward, g_across = gx * lx + gy * ly, -gx * ly + gy * lx
+    dark_area = np.count_nonzero((g_toward < -inner) & (g_toward > -outer)
+                                 & (np.abs(g_across) < r - inner_px))
+    lit_area = np.count_nonzero((g_toward < 0) & (g_toward > -r) & (np.abs(g_across) > inner)
+                                & (np.abs(g_across) < outer))
+    if dark_area < (outer - inner) * (r - inner_px) / 4.0 or lit_area == 0:
+        return False  # under half the strip (its grid points 4 px^2 each) lies in the picture
+    return np.count_nonzero(dark) / dark_area < SHADOW_SHARE * np.count_nonzero(lit) / lit_area
 
 
 def _outline_fit(px, py, cx, cy, r, inner_px, reach, axis, name):
@@ -661,12 +686,13 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Ci
     reach = r + inner_px + outer
     tau = HOLE_SHARE
     points, distance, design, fit = _outline_fit(px, py, cx, cy, r, inner_px, reach, None, name)
-    if design.shape[1] == 5:
+    if design.shape[1] == 5:  # the offset, the centre's shift and both edges' turns
         # the shadow's direction was known to a 10 deg sector: where it is off, the lit half and
         # the edges split at the wrong place (a point 10 deg past the split lies 1 px off the
         # outline it is given, on a ball of 64 px). The edges' turns say by how much: a shadow
         # turned by d turns the edge on the light's left by +d and the other by -d
-        axis = points.axis + 0.5 * (fit[4] - fit[3])
+        turn = float(np.clip(0.5 * (fit[4] - fit[3]), -SECTOR_TURN_RAD, SECTOR_TURN_RAD))
+        axis = points.axis + turn
         points, distance, design, fit = _outline_fit(px, py, cx, cy, r, inner_px, reach, axis,
                                                      name)
     dx, dy, q = fit[:3]
@@ -698,7 +724,7 @@ def _hole_circle(crop, glare, cx, cy, r, inner_px, name, bootstrap=False) -> _Ci
             if np.trace(spread) > np.trace(cov):
                 cov = spread
     residual = distance - design @ fit
-    near = np.abs(residual) < 3.0
+    near = (np.abs(residual) < 3.0) & ~points.along.any(axis=1)  # on the circle, not an edge
     theta = np.arctan2(points.py - cy, points.px - cx)
     return _Circle((cx + dx, cy + dy), float(radius), cov, float("nan"),
                    _arc_share(theta[near], 1.0))
