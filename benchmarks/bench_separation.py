@@ -192,6 +192,8 @@ def tables(records: list[dict]) -> str:
             s = summarise(rows[row], COVERAGE_K)
             lines.append(f"| {family} | {row} | {s['n']} | {s['refused']} | {_num(s['median'])} "
                          f"| {_num(s['max'])} | {_num(s['coverage'], '{:.0%}')} |")
+    if not all(any(r["family"] == f for r in records) for f in ("kinematic", "physical")):
+        return "\n".join(lines)  # one family: no calibration across families
     lines += ["", ("Calibration both ways: the factor that covers "
               f"{COVERAGE:.0%} of one family's errors, and the coverage it gives on the other."),
               "", "| tuned on | factor | coverage on the other family |", "|---|---|---|"]
@@ -233,6 +235,8 @@ def main() -> None:
     text = tables(records)
     print(text)
     if args.write:
+        if not all(any(r["family"] == f for r in records) for f in ("kinematic", "physical")):
+            sys.exit("bench_separation: --write needs both families measured")
         doc = ROOT / "docs" / "separation_accuracy.md"
         head = doc.read_text().split("<!-- tables -->")[0] if doc.exists() else ""
         doc.write_text(head + "<!-- tables -->\n\n" + text + "\n")

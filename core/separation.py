@@ -583,8 +583,9 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame,
     near-tangential layer whose start the data cannot place, a parameter held at its bound.
     Each other source is how far the angle moves from the best fit (:meth:`Fit.angle_shift`)
     under: the circle's radius moved by its standard uncertainty both ways (half the spread; a
-    centre error moves the outline by as much radially), the other layer profile, the thickness
-    prior's median halved and doubled (the larger move).
+    centre error moves the outline by as much radially), the model's form
+    (:func:`_model_form_shift`), the thickness prior's median halved and doubled (the larger
+    move).
     """
     rise = max(min(rises), PROFILE_STEP_DEG**2 / PROFILE_MAX_DEG**2)
     budget = {"fit": PROFILE_STEP_DEG / math.sqrt(rise)}
@@ -597,7 +598,7 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame,
             moved.append(best.angle_shift(problem.residuals(best.params, geom=geom)))
         budget["circle"] = 0.5 * abs(moved[1] - moved[0])
     budget["flight"] = float(ball.flight_sigma_deg)
-    budget["model form"] = model_form_shift(problem, best)
+    budget["model form"] = _model_form_shift(problem, best)
     budget["prior"] = max(
         abs(best.angle_shift(problem.residuals(
             best.params, log_delta_prior=problem.log_delta_prior + shift)))
@@ -607,7 +608,7 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame,
     return budget
 
 
-def model_form_shift(problem: SideProblem, best: Fit) -> float:
+def _model_form_shift(problem: SideProblem, best: Fit) -> float:
     """Standard uncertainty (deg) from the model's form: how far the angle moves with the other
     layer profile (a compact polynomial instead of the error function), and with each of the
     near-wall model's two form constants halved and doubled (the larger move of each): the arc

@@ -486,8 +486,8 @@ def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):
     Returns
     -------
     origin : (float, float)
-        Image position (x, y) of the crops' pixel (0, 0), taking the crops' ball as the ball
-        at mid-exposure (it lies halfway between its places in the two crops).
+        Image position (x, y) of the crops' pixel (0, 0) (the ball at mid-exposure lies halfway
+        between its places in the two crops, as in the frames).
     a, b : (h, w) float32 ndarray
         Frames A and B, moved.
     mask : (h, w) bool ndarray
@@ -505,17 +505,15 @@ def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):
     cy = 0.5 * (ball_a.center_px[1] + ball_b.center_px[1])
     r = 0.5 * (ball_a.radius_px + ball_b.radius_px)
     half = 0.5 * np.asarray(flight.displacement_px, dtype=np.float64)  # (x, y)
-    move_a, move_b = np.round(half).astype(int), np.round(-half).astype(int)
-    left = 2.0 * half + move_b - move_a  # the ball's motion from crop a to crop b
-    offset = 0.5 * (move_a + move_b)  # the crops' ball lies this far from (cx, cy)
+    move = np.round(half).astype(int)  # frame A moved by +move, frame B by -move
+    left = 2.0 * (half - move)  # the ball's motion from crop a to crop b
     height, width = frame_a.shape
     y0, y1 = max(0, int(cy - 1.9 * r)), min(height, int(cy + 1.9 * r) + 1)
     x0, x1 = max(0, int(cx - 2.3 * r)), min(width, int(cx + 2.3 * r) + 1)
-    a = _moved_crop(frame_a, (y0, y1, x0, x1), move_a)
-    b = _moved_crop(frame_b, (y0, y1, x0, x1), move_b)
-    mask = ball_mask(a.shape, BallFit((cx + offset[0] - x0, cy + offset[1] - y0), r))
-    origin = (x0 - float(offset[0]), y0 - float(offset[1]))
-    return origin, a, b, mask, (cx, cy), r, (float(left[0]), float(left[1]))
+    a = _moved_crop(frame_a, (y0, y1, x0, x1), move)
+    b = _moved_crop(frame_b, (y0, y1, x0, x1), -move)
+    mask = ball_mask(a.shape, BallFit((cx - x0, cy - y0), r))
+    return (float(x0), float(y0)), a, b, mask, (cx, cy), r, (float(left[0]), float(left[1]))
 
 
 def _moved_crop(frame, box, move) -> np.ndarray:

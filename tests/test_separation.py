@@ -135,7 +135,7 @@ def test_the_budget_adds_up_to_the_uncertainty():
     assert {"fit", "circle", "flight", "model form", "prior"} <= set(side.budget)
 
 
-def test_the_near_wall_form_constants_shape_only_the_attached_layer():
+def test_the_settling_arc_shapes_the_attached_layer_and_the_no_slip_length_the_wall():
     # the model-form check refits with the settling arc and the no-slip length halved and
     # doubled; by the model's definition (core/layer_model.py) the settling arc acts ahead of
     # separation only, and the no-slip length everywhere at the wall

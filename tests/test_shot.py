@@ -137,3 +137,45 @@ def test_thread_count_does_not_change_the_settings_fingerprint():
     threaded = replace(base, piv=replace(base.piv, workers=1))
     assert base.fingerprint() == threaded.fingerprint()
     assert base.fingerprint() != replace(base, dt_s=2e-5).fingerprint()
+
+
+@pytest.mark.parametrize("ball_shift", [(7.3, -2.6), (-8.5, 0.5), (1.0, 9.9)])
+def test_the_ball_frame_crop_measures_motion_relative_to_the_ball(ball_shift):
+    # frames A and B moved by whole pixels toward the ball's mid-exposure place: a particle
+    # image's motion between the crops, less what the whole pixels leave of the ball's, is its
+    # motion relative to the ball (lab motion minus the ball's displacement), and the ball at
+    # mid-exposure lies at the same place in the crops' coordinates (construction: Gaussian
+    # particle images at known places)
+    from types import SimpleNamespace
+
+    from core.results import BallFit
+    from core.shot import _ball_frame_crop
+
+    def picture(points):
+        yy, xx = np.mgrid[0:300, 0:400]
+        return sum(np.exp(-((xx - x) ** 2 + (yy - y) ** 2) / 2.0) for x, y in points)
+
+    mid, radius, lab = (200.0, 150.0), 30.0, (3.2, -1.7)
+    particle = (160.4, 121.8)
+    dx, dy = ball_shift
+    balls = (BallFit((mid[0] - dx / 2, mid[1] - dy / 2), radius),
+             BallFit((mid[0] + dx / 2, mid[1] + dy / 2), radius))
+    frame_a = picture([particle])
+    frame_b = picture([(particle[0] + lab[0], particle[1] + lab[1])])
+    flight = SimpleNamespace(displacement_px=ball_shift)
+    origin, a, b, mask, centre, _, left = _ball_frame_crop(frame_a, frame_b, balls, flight)
+
+    def centroid(image):
+        yy, xx = np.mgrid[0 : image.shape[0], 0 : image.shape[1]]
+        return (xx * image).sum() / image.sum(), (yy * image).sum() / image.sum()
+
+    (xa, ya), (xb, yb) = centroid(a), centroid(b)
+    assert xb - xa - left[0] == pytest.approx(lab[0] - dx, abs=0.01)
+    assert yb - ya - left[1] == pytest.approx(lab[1] - dy, abs=0.01)
+    # the particle's place relative to the ball, halfway between the crops, is as in the frames
+    half_a = (particle[0] - balls[0].center_px[0], particle[1] - balls[0].center_px[1])
+    assert 0.5 * (xa + xb) + origin[0] - centre[0] == pytest.approx(
+        half_a[0] + 0.5 * (lab[0] - dx), abs=0.01)
+    assert 0.5 * (ya + yb) + origin[1] - centre[1] == pytest.approx(
+        half_a[1] + 0.5 * (lab[1] - dy), abs=0.01)
+    assert mask[round(centre[1] - origin[1]), round(centre[0] - origin[0])]
