@@ -153,11 +153,12 @@ def _centre_candidates(ex, ey, nx, ny, radii, shape) -> list[tuple[int, int]]:
     by octave: a large ball seen on half its outline (the rest in its laser shadow, whose strip
     runs off the picture) collects about half a vote, less than many small quiet patches
     between sparse particles, each a whole small circle; ranked per octave, it stays among the
-    candidates of its own size."""
+    candidates of its own size. Neighbouring octaves share two radii either side, so a ball
+    whose radius lies at their boundary keeps its votes together in one of them."""
     candidates = []
     low = radii[0]
     while low <= radii[-1]:
-        octave = radii[(radii >= low) & (radii < 2.0 * low)]
+        octave = radii[(radii >= low - 2.0) & (radii < 2.0 * low + 2.0)]
         low *= 2.0
         cx = np.rint(ex[None, :] - octave[:, None] * nx[None, :]).astype(np.int64)
         cy = np.rint(ey[None, :] - octave[:, None] * ny[None, :]).astype(np.int64)
