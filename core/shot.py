@@ -491,7 +491,8 @@ def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):
     a, b : (h, w) float32 ndarray
         Frames A and B, moved.
     mask : (h, w) bool ndarray
-        The ball in the crops (plus the mask margin).
+        The ball in the crops (plus the mask margin), and what either crop took from beyond
+        its frame's edge.
     centre, radius
         The ball at mid-exposure (image px).
     left : (float, float)
@@ -510,20 +511,24 @@ def _ball_frame_crop(frame_a, frame_b, balls, flight: Flight):
     height, width = frame_a.shape
     y0, y1 = max(0, int(cy - 1.9 * r)), min(height, int(cy + 1.9 * r) + 1)
     x0, x1 = max(0, int(cx - 2.3 * r)), min(width, int(cx + 2.3 * r) + 1)
-    a = _moved_crop(frame_a, (y0, y1, x0, x1), move)
-    b = _moved_crop(frame_b, (y0, y1, x0, x1), -move)
-    mask = ball_mask(a.shape, BallFit((cx - x0, cy - y0), r))
+    a, beyond_a = _moved_crop(frame_a, (y0, y1, x0, x1), move)
+    b, beyond_b = _moved_crop(frame_b, (y0, y1, x0, x1), -move)
+    mask = ball_mask(a.shape, BallFit((cx - x0, cy - y0), r)) | beyond_a | beyond_b
     return (float(x0), float(y0)), a, b, mask, (cx, cy), r, (float(left[0]), float(left[1]))
 
 
-def _moved_crop(frame, box, move) -> np.ndarray:
-    """``frame[y0:y1, x0:x1]`` with the picture moved by whole pixels ``move`` (x, y); beyond
-    the frame's edge, its edge pixels repeated."""
+def _moved_crop(frame, box, move) -> tuple[np.ndarray, np.ndarray]:
+    """``frame[y0:y1, x0:x1]`` with the picture moved by whole pixels ``move`` (x, y), and the
+    pixels that came from beyond the frame's edge (its edge pixels repeated: masked, as their
+    texture stands still)."""
     y0, y1, x0, x1 = box
     height, width = frame.shape
-    rows = np.clip(np.arange(y0, y1) - move[1], 0, height - 1)
-    cols = np.clip(np.arange(x0, x1) - move[0], 0, width - 1)
-    return np.asarray(frame[rows[:, None], cols[None, :]], dtype=np.float32)
+    rows = np.arange(y0, y1) - move[1]
+    cols = np.arange(x0, x1) - move[0]
+    beyond = (((rows < 0) | (rows >= height))[:, None]
+              | ((cols < 0) | (cols >= width))[None, :])
+    rows, cols = np.clip(rows, 0, height - 1), np.clip(cols, 0, width - 1)
+    return np.asarray(frame[rows[:, None], cols[None, :]], dtype=np.float32), beyond
 
 
 def _fill_fields(result: ShotResult, warnings: list[str]) -> None:

@@ -179,3 +179,24 @@ def test_the_ball_frame_crop_measures_motion_relative_to_the_ball(ball_shift):
     assert 0.5 * (ya + yb) + origin[1] - centre[1] == pytest.approx(
         half_a[1] + 0.5 * (lab[1] - dy), abs=0.01)
     assert mask[round(centre[1] - origin[1]), round(centre[0] - origin[0])]
+
+
+def test_what_the_ball_frame_crop_takes_from_beyond_the_frame_is_masked():
+    # a ball near the top edge moving 9 px up: frame B is moved down by 4-5 px, so its top rows
+    # repeat the frame's edge row (construction); they hold no motion and are masked
+    from types import SimpleNamespace
+
+    from core.results import BallFit
+    from core.shot import _ball_frame_crop
+
+    frame = np.random.default_rng(1).random((200, 300))
+    balls = (BallFit((150.0, 44.5), 20.0), BallFit((150.0, 35.5), 20.0))
+    origin, _, b, mask, _, _, _ = _ball_frame_crop(frame, frame, balls,
+                                                   SimpleNamespace(displacement_px=(0.0, -9.0)))
+    x0 = int(origin[0])
+    edge_row = frame[0, x0 : x0 + b.shape[1]].astype(np.float32)
+    copies = 0  # leading rows of crop B that are the frame's top row: the last is the row itself
+    while np.array_equal(b[copies], edge_row):
+        copies += 1
+    assert copies >= 2
+    assert mask[: copies - 1].all() and not mask[copies - 1 :, :5].any()
