@@ -13,10 +13,11 @@ outline) with the stream outside it ``U(phi, gap)`` from the PIV vectors:
   moves forward at the wall) and rises toward it: with ``q = 1 - exp(-(phi_s - phi) / phi_u)``
   (``phi_u`` the settling arc, ``UPSTREAM_DEG`` by default) the attached layer is thinner,
   ``delta_s (1 - b q)`` (a boundary layer grows downstream), and its centre sits at
-  ``c delta (1 - a q)`` (its profile fills out toward the wall). At ``phi_s`` the dividing line touches the
-  wall: zero wall shear. Behind it the dividing line leaves the wall at the departure angle
-  ``atan(slope)`` from the tangent and turns toward the wake's direction over the arc length
-  ``L``; the layer thickens linearly at the spreading rate ``k`` of a plane mixing layer;
+  ``c delta (1 - a q)`` (its profile fills out toward the wall). At ``phi_s`` the dividing
+  line touches the wall: zero wall shear. Behind it the dividing line leaves the wall at the
+  departure angle ``atan(slope)`` from the tangent and turns toward the wake's direction over
+  the arc length ``L``; the layer thickens linearly at the spreading rate ``k`` of a plane
+  mixing layer;
 - the flow inside the layer may follow it: it gains the radial part ``f u dZ/ds`` of the
   rising dividing line, with ``f`` between 0 (the flow keeps along the wall) and 1 (it runs
   along the layer, as streamlines near the dividing streamline do).

@@ -18,10 +18,11 @@ brightness, and each frame is fitted on its own (the ball moves several pixels b
    particle images, a quantile regression), which needs no contrast at all; beside a laser
    shadow it is fitted to the lit half and to the shadow's two edges behind the ball (tangent
    to the outline: they hold the ball's width), beside the picture's edge to the lit half
-   only. A rim or step counts only where it runs smoothly along the outline. Rays through glare and glaring arcs
-   are left out; a robust circle fit (RANSAC with :class:`skimage.measure.CircleModel`, then a
-   Cauchy-loss least squares) drops rays spoilt by particles, the seam or a shadow, and its
-   residuals, with a floor per cue, give the circle's covariance.
+   only. A rim or step counts only where it runs smoothly along the outline. Rays through
+   glare and glaring arcs are left out; a robust circle fit (RANSAC with
+   :class:`skimage.measure.CircleModel`, then a Cauchy-loss least squares) drops rays spoilt
+   by particles, the seam or a shadow, and its residuals, with a floor per cue, give the
+   circle's covariance.
 
 The flight comes from the ball's displacement between the frames: the difference of the two
 circles, combined with a match of the ball's visible image (rim, seam, grain; the ball may
