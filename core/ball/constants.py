@@ -25,6 +25,9 @@ DEFAULT_MASK_MARGIN_PX = 3.0
 #: Share of the outline's rays with a lit rim (or a clear surface step) from which that cue
 #: alone gives the outline.
 MIN_RIM_SHARE = 0.2
+#: Share of the outline's rays below which a surface step seen in the wide first band may be
+#: a step against the ball's laser shadow alone (set beforehand at half the outline, not tuned).
+PARTIAL_STEP_SHARE = 0.5
 #: A surface step counts where it exceeds this many times the surface's noise.
 STEP_SNR = 6.0
 #: Lift of the air beside the outline (share of the surface's step) that marks a glaring arc.

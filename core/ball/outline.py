@@ -21,6 +21,7 @@ from core.ball.constants import (
     HOLE_SHARE,
     MIN_RIM_SHARE,
     OUTLINE_FLOOR_PX,
+    PARTIAL_STEP_SHARE,
     POOR_ARC_SHARE,
     SHADOW_MARGIN_DEG,
     SHADOW_SHARE,
@@ -290,7 +291,7 @@ def _partial_step(crossings: _Crossings) -> bool:
     surface is sampled at the limb. (Not using the step at all then cost a dim ball seen
     against lit air on under half its outline 1.6 px on the first synthetic family, where the
     choice was made.)"""
-    return _share(crossings.coherent_step, crossings.rays.usable) < 0.5
+    return _share(crossings.coherent_step, crossings.rays.usable) < PARTIAL_STEP_SHARE
 
 
 def _coherent(edges: np.ndarray) -> np.ndarray:
