@@ -410,7 +410,7 @@ def test_beside_a_shadow_the_disc_is_fitted_to_the_lit_half_and_the_shadows_edge
     # lit half's images face the circle, those beside the strip behind the ball face the
     # strip's edges (normals +-x), the strip's own air is not used; without the strip, all of
     # them face the circle (geometry of the construction)
-    from core.ball.outline import _around_outline
+    from core.ball.disc import _around_outline
 
     rng = np.random.default_rng(6)
     x, y = rng.uniform(-150, 150, (2, 20000))
@@ -436,7 +436,7 @@ def test_a_dark_sector_without_a_shadow_strip_keeps_the_lit_half_only():
     # fit (as glare or the picture's edge would make one) finds the air behind the ball as
     # seeded as beside it, so no shadow edges are fitted; with the picture ending just behind
     # the ball, neither (geometry of the construction)
-    from core.ball.outline import _around_outline
+    from core.ball.disc import _around_outline
 
     rng = np.random.default_rng(6)
     x, y = rng.uniform(-150, 150, (2, 20000))
