@@ -176,6 +176,10 @@ def _num(value: float, form: str = "{:.2f}") -> str:
     return "-" if not math.isfinite(value) else form.format(value)
 
 
+def _both_families(records: list[dict]) -> bool:
+    return all(any(r["family"] == f for r in records) for f in ("kinematic", "physical"))
+
+
 def tables(records: list[dict]) -> str:
     """The markdown tables of the benchmark."""
     lines = [(f"Stated coverage: {COVERAGE:.0%} (uncertainty = {COVERAGE_K:g} standard "
@@ -192,7 +196,7 @@ def tables(records: list[dict]) -> str:
             s = summarise(rows[row], COVERAGE_K)
             lines.append(f"| {family} | {row} | {s['n']} | {s['refused']} | {_num(s['median'])} "
                          f"| {_num(s['max'])} | {_num(s['coverage'], '{:.0%}')} |")
-    if not all(any(r["family"] == f for r in records) for f in ("kinematic", "physical")):
+    if not _both_families(records):
         return "\n".join(lines)  # one family: no calibration across families
     lines += ["", ("Calibration both ways: the factor that covers "
               f"{COVERAGE:.0%} of one family's errors, and the coverage it gives on the other."),
@@ -235,7 +239,7 @@ def main() -> None:
     text = tables(records)
     print(text)
     if args.write:
-        if not all(any(r["family"] == f for r in records) for f in ("kinematic", "physical")):
+        if not _both_families(records):
             sys.exit("bench_separation: --write needs both families measured")
         doc = ROOT / "docs" / "separation_accuracy.md"
         head = doc.read_text().split("<!-- tables -->")[0] if doc.exists() else ""

@@ -194,19 +194,20 @@ def _strip_is_dark(dx, dy, toward, across, r, inner_px, reach, axis) -> bool:
     measured within the extent of the particle images given (the picture around the ball): a
     dark sector that is the picture's edge or glare has no dark strip in the picture."""
     inner, outer = r + inner_px, reach
-    dark = (toward < -inner) & (toward > -outer) & (np.abs(across) < r - inner_px)
-    lit = (toward < 0) & (toward > -r) & (np.abs(across) > inner) & (np.abs(across) < outer)
+
+    def regions(t, a):  # (strip behind the ball, air beside its rear half)
+        return ((t < -inner) & (t > -outer) & (np.abs(a) < r - inner_px),
+                (t < 0) & (t > -r) & (np.abs(a) > inner) & (np.abs(a) < outer))
+
+    dark, lit = (np.count_nonzero(m) for m in regions(toward, across))
     # the two regions' areas inside the particle images' extent, on a 2 px grid
     gx, gy = np.meshgrid(np.arange(dx.min(), dx.max(), 2.0), np.arange(dy.min(), dy.max(), 2.0))
     lx, ly = math.cos(axis), math.sin(axis)
-    g_toward, g_across = gx * lx + gy * ly, -gx * ly + gy * lx
-    dark_area = np.count_nonzero((g_toward < -inner) & (g_toward > -outer)
-                                 & (np.abs(g_across) < r - inner_px))
-    lit_area = np.count_nonzero((g_toward < 0) & (g_toward > -r) & (np.abs(g_across) > inner)
-                                & (np.abs(g_across) < outer))
+    dark_area, lit_area = (np.count_nonzero(m)
+                           for m in regions(gx * lx + gy * ly, -gx * ly + gy * lx))
     if dark_area < (outer - inner) * (r - inner_px) / 4.0 or lit_area == 0:
         return False  # under half the strip (its grid points 4 px^2 each) lies in the picture
-    return np.count_nonzero(dark) / dark_area < SHADOW_SHARE * np.count_nonzero(lit) / lit_area
+    return dark / dark_area < SHADOW_SHARE * lit / lit_area
 
 
 def _outline_fit(px, py, cx, cy, r, inner_px, reach, axis, name):
