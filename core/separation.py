@@ -101,6 +101,8 @@ FIT_WINDOW_DEG = (-25.0, 40.0)
 #: docs/separation_accuracy.md).
 EXTRAPOLATION_DEPTH = 0.2
 EXTRAPOLATION_MIN_DEG = 3.0
+#: A refinement moves the angle at most this far (deg) from its start.
+REFINE_REACH_DEG = 10.0
 #: Iterations (Jacobians) of the main refinement and of each refit from its result.
 REFINE_ITERATIONS = 15
 ALTERNATIVE_ITERATIONS = 5
@@ -521,9 +523,9 @@ def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_pr
         p[..., free] = q
         return problem.residuals(p, shape, geom, log_delta_prior)
 
-    lower = np.array([start[0] - 10.0, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.0, 0.0, 0.7,
+    lower = np.array([start[0] - REFINE_REACH_DEG, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.0, 0.0, 0.7,
                       0.0])
-    upper = np.array([start[0] + 10.0, 0.7, 6.0, math.log(40.0), 0.6, 0.45, 1.2, 0.9, 1.0, 1.3,
+    upper = np.array([start[0] + REFINE_REACH_DEG, 0.7, 6.0, math.log(40.0), 0.6, 0.45, 1.2, 0.9, 1.0, 1.3,
                       2.0])
     x0 = np.clip(start, lower + 1e-9, upper - 1e-9)[free]
     sol = least_squares(
