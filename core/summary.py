@@ -16,6 +16,7 @@ from dataclasses import dataclass, field, fields, replace
 from core import WakelineError
 from core.geometry import SIDES
 from core.results import BallFit, Flight, SeparationResult, SideProposal
+from core.wake import NO_CLEAR_DIFFERENCE
 
 #: Version of the summary layout written now; ``from_dict`` reads this and every older one.
 SUMMARY_VERSION = 1
@@ -130,8 +131,16 @@ def _separation(data: dict | None) -> SeparationResult:
         upper=_side(data, "upper"),
         lower=_side(data, "lower"),
         wake_deflection_deg=data.get("wake_deflection_deg"),
-        wake_state=data.get("wake_state") or UNDETERMINED,
+        wake_state=_wake_state(data.get("wake_state")),
     )
+
+
+def _wake_state(stored: str | None) -> str:
+    """The stored wake state in today's words (older sessions wrote "symmetric" for
+    ``NO_CLEAR_DIFFERENCE``)."""
+    if stored == "symmetric":
+        return NO_CLEAR_DIFFERENCE
+    return stored or UNDETERMINED
 
 
 def _reynolds(data: dict) -> dict:

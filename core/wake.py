@@ -12,6 +12,10 @@ from core.results import SideProposal, VectorField
 #: Wake state threshold (deg): sides differ when |upper - lower| exceeds the larger of this and
 #: the combined uncertainty.
 STATE_THRESHOLD_DEG = 5.0
+#: The state when the sides are not shown to differ. Not "symmetric": the two angles may well
+#: differ by less than their uncertainties can tell (sessions written before this label say
+#: "symmetric"; core.summary reads that as this).
+NO_CLEAR_DIFFERENCE = "no clear difference"
 
 
 def wake_deflection(
@@ -55,7 +59,8 @@ def wake_deflection(
 def wake_state(upper: SideProposal, lower: SideProposal) -> str:
     """Our label for the shot: which side holds on longer, if the difference is clear.
 
-    "symmetric" when ``|upper - lower| <= max(STATE_THRESHOLD_DEG, combined uncertainty)``,
+    ``NO_CLEAR_DIFFERENCE`` when ``|upper - lower| <= max(STATE_THRESHOLD_DEG, combined
+    uncertainty)`` (the sides are not shown to differ, which is not that they are alike),
     else "upper side holds on longer" / "lower side holds on longer" (the side with the larger,
     i.e. later, separation angle); "undetermined" without both proposals.
     """
@@ -64,5 +69,5 @@ def wake_state(upper: SideProposal, lower: SideProposal) -> str:
     combined = math.hypot(upper.uncertainty_deg or 0.0, lower.uncertainty_deg or 0.0)
     diff = upper.angle_deg - lower.angle_deg
     if abs(diff) <= max(STATE_THRESHOLD_DEG, combined):
-        return "symmetric"
+        return NO_CLEAR_DIFFERENCE
     return "upper side holds on longer" if diff > 0 else "lower side holds on longer"

@@ -52,7 +52,7 @@ def test_laminar_sphere_separates_near_81_deg_from_stagnation(laminar_sphere):
         assert proposal.angle_deg is not None, proposal.reason
         assert abs(proposal.angle_deg - true) <= proposal.uncertainty_deg
         assert abs(proposal.angle_deg - (-9.0)) <= 4.0
-    assert result.separation.wake_state == "symmetric"
+    assert result.separation.wake_state == "no clear difference"
 
 
 def test_reynolds_number_of_the_shot(laminar_sphere):
@@ -160,9 +160,9 @@ def test_wake_state_threshold():
     def side(angle, unc=1.0):
         return SideProposal(angle, unc)
 
-    assert wake_state(side(10.0), side(6.0)) == "symmetric"  # 4 deg < 5 deg
+    assert wake_state(side(10.0), side(6.0)) == "no clear difference"  # 4 deg < 5 deg
     assert wake_state(side(10.0), side(2.0)) == "upper side holds on longer"
-    assert wake_state(side(0.0, 9.0), side(10.0, 9.0)) == "symmetric"  # within hypot(9, 9)
+    assert wake_state(side(0.0, 9.0), side(10.0, 9.0)) == "no clear difference"  # within hypot(9, 9)
     assert wake_state(side(None), side(3.0)) == "undetermined"
 
 

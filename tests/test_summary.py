@@ -36,6 +36,12 @@ def test_summary_reads_every_record_of_the_json(result):
     assert summary.to_dict() == json.loads(json.dumps(result.summary()))
 
 
+def test_a_stored_symmetric_wake_state_reads_as_no_clear_difference(result):
+    data = json.loads(json.dumps(result.summary()))
+    data["separation"]["wake_state"] = "symmetric"  # as sessions of earlier versions wrote it
+    assert ShotSummary.from_dict(data).separation.wake_state == "no clear difference"
+
+
 def test_unknown_keys_are_kept_and_do_not_stop_reading(result):
     data = json.loads(json.dumps(result.summary()))
     data["drag_coefficient"] = 0.4
