@@ -88,6 +88,23 @@ def test_reprocessing_updates_the_proposal_and_keeps_the_pick(session_path):
         assert s.load_result("S2").separation.upper.angle_deg == 7.0  # last good result kept
 
 
+def test_corrected_values_keep_the_pick_and_mark_the_shot_for_processing(session_path):
+    with Session.open(session_path) as s:
+        s.save_result("S1", fake_result(s.settings_for("S1"), 4.0, -1.0))
+        s.set_pick("S1", status="adjusted", upper_deg=5.5)
+        assert not s.needs_processing("S1")
+        values = {**s["S1"].metadata, "dt_s": 2.5e-5}
+        s.set_shot_values("S1", values)
+        assert s.needs_processing("S1") and s.settings_for("S1").dt_s == 2.5e-5
+    for _ in range(2):  # from the journal, then from the snapshot a writer's close compacts
+        with Session.open(session_path) as s:
+            rec = s["S1"]
+            assert rec.metadata["dt_s"] == 2.5e-5 and s.needs_processing("S1")
+            assert rec.pick.status == "adjusted" and rec.pick.upper_deg == 5.5
+            assert rec.proposed_deg("upper") == 4.0  # the last result stays until processed
+            s.compact()
+
+
 def test_result_arrays_round_trip_with_units(session_path):
     with Session.open(session_path) as s:
         original = fake_result(s.settings_for("S0"))

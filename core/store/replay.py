@@ -55,7 +55,7 @@ class JournalReplay:
         if op in CONTENT_OPS:
             self._apply_content(entry)
             return
-        if op not in ("add_shot", "result", "failure", "pick"):
+        if op not in ("add_shot", "result", "failure", "pick", "shot_values"):
             raise ValueError(f"unknown entry {op!r}: written by a newer wakeline?")
         shot_id = entry["shot"]
         if op == "add_shot":
@@ -75,6 +75,8 @@ class JournalReplay:
             rec.fingerprint, rec.software_version = entry["fingerprint"], entry["version"]
             rec.processed_utc = entry["t"]
             place.result = pending_name(entry["pending"])
+        elif op == "shot_values":
+            rec.metadata = dict(entry["metadata"])
         elif op == "failure":
             rec.state, rec.failure = ProcessState.FAILED, entry["reason"]
             rec.fingerprint = entry["fingerprint"]

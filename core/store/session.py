@@ -92,6 +92,7 @@ def _change_words(entry: dict) -> str:
     shot = entry.get("shot")
     return {"add_shot": f"shot {shot}", "result": f"the result of shot {shot}",
             "failure": f"the failure of shot {shot}", "pick": f"the edit of shot {shot}",
+            "shot_values": f"the corrected values of shot {shot}",
             "conditions": "the grouping of shots into conditions",
             "review_layer": "the imported review"}.get(entry["op"], "the processing settings")
 
@@ -406,6 +407,17 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             entry = {"op": "add_shot", "shot": shot_id, "metadata": dict(metadata or {}),
                      "frames": frames, "pending": pending, "t": now_utc()}
             self._commit(entry)
+
+    def set_shot_values(self, shot_id: str, metadata: dict) -> None:
+        """Replace a shot's values from the manifest (a wrong ``dt_s``, scale or ball diameter
+        corrected after import). The frames, the last result and the analyst's pick stay (the
+        picks are angles on the picture, which the values do not move); a shot whose settings
+        the new values change counts as not processed (:meth:`needs_processing`)."""
+        with self._mutex:
+            self._check_writable()
+            self._get(shot_id)
+            self._commit({"op": "shot_values", "shot": shot_id,
+                          "metadata": json_ready(dict(metadata)), "t": now_utc()})
 
     def set_processing_settings(self, settings: dict) -> None:
         """Replace the session-wide processing settings (``{"piv": {...}, "find_ball": ...}``);
