@@ -211,7 +211,7 @@ def timing_text(record: ShotRecord) -> str:
     parts = []
     dt = md.get("dt_s") if summary is None else summary.dt_s
     if dt not in (None, ""):
-        parts.append(f"dt {float(dt) * 1e6:.1f} us")
+        parts.append(f"dt {float(dt) * 1e6:.1f} µs")
     scale = md.get("scale_mm_per_px") if summary is None else summary.scale_mm_per_px
     if scale not in (None, ""):
         parts.append(f"{float(scale):.4g} mm/px")
