@@ -149,6 +149,32 @@ def test_summary_statistics():
     assert rows[0].lower_mean == pytest.approx(6.0)
     assert rows[0].lower_sd == pytest.approx(2.0)
     assert rows[1].n == 1 and math.isnan(rows[1].lower_mean)
+    # upper - lower, shot by shot (the conditions' and the table's sign): -13, -15, -14
+    assert rows[0].difference_mean == pytest.approx(-14.0)
+    assert math.isnan(rows[1].difference_mean)  # no shot with both angles
+
+
+def test_cover_gives_upper_minus_lower_as_the_rest_of_the_sheet(reviewed_session, tmp_path):
+    """The cover's difference column is upper − lower (as the conditions page, the window and
+    the table), with the values of that sign."""
+    from pypdf import PdfReader
+
+    from app.sheet import make_sheet
+    from app.sheet.content import sheet_angle
+    from core.store import Session
+
+    out = tmp_path / "sheet.pdf"
+    with Session.open(reviewed_session, writable=False) as session:
+        make_sheet(session, out, per_page=2)
+    reader = PdfReader(str(out))
+    cover, conditions = (re.sub(r"\s+", " ", reader.pages[k].extract_text()) for k in (0, 1))
+    assert "upper − lower" in cover and "lower - upper" not in cover
+    assert "upper − lower" in conditions
+    rows = {r["shot"]: r for r in _table(reviewed_session, tmp_path / "table.csv")}
+    s01 = rows["s01"]  # alone at its seam angle: the mean is its own difference
+    difference = float(s01["upper_final_deg"]) - float(s01["lower_final_deg"])
+    assert abs(difference) > 0.01
+    assert sheet_angle(difference) in cover and sheet_angle(-difference) not in cover
 
 
 def test_parse_statuses():

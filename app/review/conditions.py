@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from app.review.text import MISSING, angle_text, spread_text, times_ten_text, uncertainty_text
 
 #: Header of the statistics table (the panel and the sheet's summary page).
-TABLE_HEADER = ("condition", "usable", "upper", "lower", "upper - lower", "wake", "Re")
+TABLE_HEADER = ("condition", "usable", "upper", "lower", "upper − lower", "wake", "Re")
 
 
 def condition_cells(condition, conditions=(), compact: bool = False) -> list[str]:
