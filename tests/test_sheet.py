@@ -223,7 +223,7 @@ class _Recorder:
     def __init__(self, painter):
         self._painter, self.texts = painter, []
 
-    def drawText(self, rect, flags, value):  # noqa: N802 (Qt's name)
+    def drawText(self, rect, flags, value):  # Qt's name
         used = self._painter.drawText(rect, flags, value)
         self.texts.append((rect, used, value))
         return used
