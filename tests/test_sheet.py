@@ -73,6 +73,10 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
     assert finals == 6  # s01 both (accepted), s02 both, s05 both (adjusted one side each)
     assert "+17.25°" in text  # the analyst's value to 0.01 deg, not the proposal
     assert "ADJUSTED" in text and "ball cut by the frame edge" in text
+    # the unusable shot s03: no wake on the sheet, none in the table
+    assert [r["wake_deflection_deg"] for r in rows if r["shot"] == "s03"] == [""]
+    s03 = text[text.index("Shot s03"):text.index("Shot s04")]
+    assert "wake —" in s03 and "deflected" not in s03
     assert "moved to the shear-layer root" in text
     assert "page 1 of 5" in text and "page 5 of 5" in text
     # cover: counts by status and the summary table's column
