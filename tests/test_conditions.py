@@ -114,5 +114,6 @@ def test_bad_grouping_is_one_line_and_exit_codes_follow_the_other_commands(
 def test_the_reynolds_range_is_written_with_one_power_of_ten():
     from app.review.conditions import reynolds_text
 
-    assert reynolds_text((1.39e5, 1.44e5)) == "1.39-1.44 × 10^5"
-    assert reynolds_text((1.7e5, 1.7e5)) == "1.70 × 10^5"
+    assert reynolds_text((1.39e5, 1.44e5)) == "1.39-1.44 × 10⁵"  # superscript, no caret
+    assert reynolds_text((1.7e5, 1.7e5)) == "1.70 × 10⁵"
+    assert reynolds_text((1.2e6, 1.3e6)) == "1.20-1.30 × 10⁶"

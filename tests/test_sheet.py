@@ -73,6 +73,10 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
     assert finals == 6  # s01 both (accepted), s02 both, s05 both (adjusted one side each)
     assert "+17.25°" in text  # the analyst's value to 0.01 deg, not the proposal
     assert "ADJUSTED" in text and "ball cut by the frame edge" in text
+    # the unusable shot s03: no wake on the sheet, none in the table
+    assert [r["wake_deflection_deg"] for r in rows if r["shot"] == "s03"] == [""]
+    s03 = text[text.index("Shot s03"):text.index("Shot s04")]
+    assert "wake —" in s03 and "deflected" not in s03
     assert "moved to the shear-layer root" in text
     assert "page 1 of 5" in text and "page 5 of 5" in text
     # cover: counts by status and the summary table's column
@@ -149,6 +153,32 @@ def test_summary_statistics():
     assert rows[0].lower_mean == pytest.approx(6.0)
     assert rows[0].lower_sd == pytest.approx(2.0)
     assert rows[1].n == 1 and math.isnan(rows[1].lower_mean)
+    # upper - lower, shot by shot (the conditions' and the table's sign): -13, -15, -14
+    assert rows[0].difference_mean == pytest.approx(-14.0)
+    assert math.isnan(rows[1].difference_mean)  # no shot with both angles
+
+
+def test_cover_gives_upper_minus_lower_as_the_rest_of_the_sheet(reviewed_session, tmp_path):
+    """The cover's difference column is upper − lower (as the conditions page, the window and
+    the table), with the values of that sign."""
+    from pypdf import PdfReader
+
+    from app.sheet import make_sheet
+    from app.sheet.content import sheet_angle
+    from core.store import Session
+
+    out = tmp_path / "sheet.pdf"
+    with Session.open(reviewed_session, writable=False) as session:
+        make_sheet(session, out, per_page=2)
+    reader = PdfReader(str(out))
+    cover, conditions = (re.sub(r"\s+", " ", reader.pages[k].extract_text()) for k in (0, 1))
+    assert "upper − lower" in cover and "lower - upper" not in cover
+    assert "upper − lower" in conditions
+    rows = {r["shot"]: r for r in _table(reviewed_session, tmp_path / "table.csv")}
+    s01 = rows["s01"]  # alone at its seam angle: the mean is its own difference
+    difference = float(s01["upper_final_deg"]) - float(s01["lower_final_deg"])
+    assert abs(difference) > 0.01
+    assert sheet_angle(difference) in cover and sheet_angle(-difference) not in cover
 
 
 def test_parse_statuses():
@@ -189,3 +219,107 @@ def test_vorticity_colours_are_symmetric_about_zero():
     np.testing.assert_array_equal(rgba[1, 1], rgba[1, 0])
     assert rgba[1, 2, 3] == 0 and rgba[0, 0, 3] == 255  # NaN is transparent
     assert colours.symmetric_limit(np.array([np.nan, 0.0])) == 1.0
+
+
+class _Recorder:
+    """A painter that notes every text drawn: (the box asked for, the box used, the text)."""
+
+    def __init__(self, painter):
+        self._painter, self.texts = painter, []
+
+    def drawText(self, rect, flags, value):  # Qt's name
+        used = self._painter.drawText(rect, flags, value)
+        self.texts.append((rect, used, value))
+        return used
+
+    def __getattr__(self, name):
+        return getattr(self._painter, name)
+
+
+def _painted_panels(session_path, tmp_path, shot_id: str, metadata: dict):
+    """A panel of ``shot_id`` (with ``metadata`` added) at each per-page count, painted on a
+    PDF page: (per page, cell in mm, the recorder, the record, the rows the panel lists)."""
+    from dataclasses import replace
+
+    from PySide6 import QtGui
+
+    from app.sheet.content import PER_PAGE_CHOICES
+    from app.sheet.document import _writer
+    from app.sheet.kit import Pages, ensure_gui_application
+    from app.sheet.shot_panel import number_rows, paint_shot, panel_cells
+    from core.store import Session
+
+    ensure_gui_application()
+    with Session.open(session_path, writable=False) as session:
+        record = session[shot_id]
+        record = replace(record, metadata={**record.metadata, **metadata})
+        result = session.load_result(shot_id)
+    writer = _writer(tmp_path / f"{shot_id}.pdf", "t")
+    painter = QtGui.QPainter()
+    assert painter.begin(writer)
+    out = []
+    try:
+        pages = Pages(painter, writer, "t", len(PER_PAGE_CHOICES))
+        for per_page in PER_PAGE_CHOICES:
+            pages.new_page("panel")
+            cell = panel_cells(per_page, pages.body())[-1]  # 4 per page: the right column
+            recorder = _Recorder(painter)
+            paint_shot(recorder, cell, record, result)
+            out.append((per_page, cell, recorder, record, number_rows(record, cell[2] < 120)))
+    finally:
+        painter.end()
+    return out
+
+
+LONG_METADATA = {"ball_type": "cricket", "speed_nominal_m_s": 30.0, "spin_rpm": 1000.0,
+                 "notes": "launch 2 of 3; return mirror knocked out of line: no light below "
+                          "the ball", "seam_deg": 10.0}
+
+
+def test_every_panel_shows_all_its_lines_inside_it(reviewed_session, tmp_path):
+    """At every per-page count a panel (an unusable shot with a reason, long notes and the
+    metadata) lists every row of its numbers, and every text it draws, the reference vector's
+    speed included, stays inside the panel; the header's metadata is one line in its band."""
+    from app.sheet.content import metadata_line
+    from app.sheet.kit import mm
+
+    for per_page, cell, recorder, record, rows in _painted_panels(reviewed_session, tmp_path,
+                                                                  "s03", LONG_METADATA):
+        x, y, w, h = (mm(v) for v in cell)
+        drawn = [value for _rect, _used, value in recorder.texts]
+        assert not any(v.startswith("…") for v in drawn), (per_page, drawn)
+        for row in rows:
+            assert row.label == "" or row.label in drawn, (per_page, row.label)
+            assert row.value in drawn, (per_page, row.value)
+        assert any(v.endswith(" m/s") for v in drawn), per_page  # the reference vector
+        for _rect, used, value in recorder.texts:
+            if not value:
+                continue
+            assert (used.left() >= x - 1 and used.right() <= x + w + 1 and used.top() >= y - 1
+                    and used.bottom() <= y + h + 1), (per_page, value)
+        header = [used for _r, used, v in recorder.texts if v == metadata_line(record)]
+        if w >= mm(120):  # wide panels carry it in the header; narrow ones with the numbers
+            assert header and header[0].bottom() <= y + mm(8), per_page
+
+
+def test_numbers_that_cannot_fit_say_so():
+    """A box too small for the rows shows as many as fit and a line with "…" naming the
+    rows left out (never a silent cut)."""
+    from PySide6 import QtGui
+
+    from app.sheet.kit import ensure_gui_application
+    from app.sheet.shot_panel import NumberRow, _paint_numbers
+
+    ensure_gui_application()
+    image = QtGui.QImage(2000, 2000, QtGui.QImage.Format.Format_RGB32)
+    image.setDotsPerMeterX(round(300 / 0.0254))
+    image.setDotsPerMeterY(round(300 / 0.0254))
+    painter = QtGui.QPainter(image)
+    recorder = _Recorder(painter)
+    rows = [NumberRow(f"row{k}", f"value {k}") for k in range(12)]
+    _paint_numbers(recorder, (0.0, 0.0, 80.0, 20.0), rows)
+    painter.end()
+    drawn = [value for _rect, _used, value in recorder.texts]
+    assert "value 0" in drawn and "value 11" not in drawn
+    mark = [v for v in drawn if v.startswith("…")]
+    assert len(mark) == 1 and "row11" in mark[0] and "row0" not in mark[0]

@@ -54,6 +54,22 @@ def test_table_command_writes_one_row_per_shot(session_path, tmp_path, capsys):
     assert s0["seam_deg"] == "0" and s0["dt_s"] == "2e-05" and s0["notes"] == "shot 0"
 
 
+def test_an_unusable_shot_reports_no_wake(session_path, tmp_path, capsys):
+    """The analyst marked the shot unusable: its wake deflection is measured (4 deg) but not a
+    result, so the table leaves it empty as the sheet shows "wake —" and the final angles are
+    empty; marked back for review, it is reported again."""
+    out = tmp_path / "picks.csv"
+    assert main(["table", str(session_path), "-o", str(out)]) == 0
+    s2 = _read(out)["S2"]
+    assert (s2["wake_deflection_deg"], s2["wake_state"], s2["review_status"]) == (
+        "", "", "unusable")
+    with Session.open(session_path) as s:
+        assert s["S2"].summary.separation.wake_deflection_deg == 4.0  # kept in the session
+        s.set_pick("S2", status="to review", who="ann")
+    assert main(["table", str(session_path), "-o", str(out)]) == 0
+    assert _read(out)["S2"]["wake_deflection_deg"] == "4"
+
+
 def test_units_are_in_the_column_names(session_path):
     with Session.open(session_path, writable=False) as s:
         header, rows = session_table_rows(s)

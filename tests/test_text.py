@@ -81,3 +81,19 @@ def test_no_final_angle_says_why_on_the_sheet(status):
     record = ShotRecord("t1", {}, summary=SUMMARY, pick=Pick(status=status, reason="x"))
     assert final_text(record, "upper") == {"to review": "— (not reviewed)",
                                           "unusable": "— (unusable)"}[status]
+
+
+def test_powers_of_ten_and_microseconds_are_written_as_printed():
+    """Reynolds numbers as ``1.43 × 10⁵`` (superscript figures, never a caret) in the readout,
+    the sheet and ``wakeline pair``; the time between frames in µs on the sheet."""
+    from app.review.text import reynolds_text, scientific_text, times_ten_text
+    from app.sheet.content import timing_text
+
+    summary = ShotSummary.from_dict({"reynolds": {"value": 143_210.0, "air_temp_c": 19.5}})
+    assert reynolds_text(summary).startswith("1.43 × 10⁵ (air at 19.5 °C)")
+    assert "^" not in reynolds_text(summary)
+    assert scientific_text(2.5e-7) == "2.5 × 10⁻⁷" and scientific_text(512.0) == "512"
+    assert times_ten_text("1.39-1.44", 12) == "1.39-1.44 × 10¹²"
+    record = ShotRecord("t1", {"ball_diameter_mm": 71.6}, state="processed", summary=SUMMARY,
+                        pick=Pick())
+    assert timing_text(record) == "dt 20.0 µs, 0.078 mm/px, ball 71.6 mm"

@@ -7,10 +7,10 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-from app.review.text import MISSING, angle_text, spread_text, uncertainty_text
+from app.review.text import MISSING, angle_text, spread_text, times_ten_text, uncertainty_text
 
 #: Header of the statistics table (the panel and the sheet's summary page).
-TABLE_HEADER = ("condition", "usable", "upper", "lower", "upper - lower", "wake", "Re")
+TABLE_HEADER = ("condition", "usable", "upper", "lower", "upper − lower", "wake", "Re")
 
 
 def condition_cells(condition, conditions=(), compact: bool = False) -> list[str]:
@@ -75,7 +75,7 @@ def common_text(conditions) -> str:
 
 
 def reynolds_text(span) -> str:
-    """The condition's Reynolds numbers as "1.39-1.44 × 10^5" (one power of ten, as the
+    """The condition's Reynolds numbers as "1.39-1.44 × 10⁵" (one power of ten, as the
     readout writes a shot's)."""
     if not span:
         return MISSING
@@ -83,7 +83,7 @@ def reynolds_text(span) -> str:
     power = math.floor(math.log10(high)) if high > 0 else 0
     a, b = f"{low / 10**power:.2f}", f"{high / 10**power:.2f}"
     digits = a if a == b else f"{a}-{b}"
-    return digits if power == 0 else f"{digits} × 10^{power}"
+    return times_ten_text(digits, power)
 
 
 def plot_column(conditions) -> str | None:

@@ -22,6 +22,20 @@ UNUSABLE_REASONS = ("seeding too sparse", "ball out of the sheet", "laser misfir
                     "out of focus")
 OTHER_REASON = "other"
 SHEET_DECIMALS = 2  # angles on the shot sheet, rounded to 0.01 deg
+_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+def times_ten_text(digits: str, power: int) -> str:
+    """``1.43 × 10⁵``: ``digits`` times a power of ten written with superscript figures;
+    ``digits`` alone for the power zero."""
+    return digits if power == 0 else f"{digits} × 10{str(power).translate(_SUPERSCRIPT)}"
+
+
+def scientific_text(value: float, figures: int = 3) -> str:
+    """``143000`` -> ``1.43 × 10⁵`` with ``figures`` significant figures (small numbers as they
+    are: ``512``)."""
+    mantissa, _, exponent = f"{value:.{figures}g}".partition("e")
+    return times_ten_text(mantissa, int(exponent)) if exponent else mantissa
 
 
 def angle_text(value_deg: float | None, signed: bool = True, decimals: int = 1) -> str:
@@ -163,7 +177,7 @@ def reynolds_text(summary: ShotSummary) -> str:
     if summary.reynolds is None:
         return MISSING
     temp = (summary.data.get("reynolds") or {}).get("air_temp_c")
-    out = f"{summary.reynolds:.3g}".replace("e+0", " × 10^").replace("e+", " × 10^")
+    out = scientific_text(summary.reynolds)
     if temp is not None:
         out += f" (air at {temp:g} °C)"
     return out + (f"; {summary.regime}" if summary.regime else "")

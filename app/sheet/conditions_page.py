@@ -153,7 +153,7 @@ def _legend(p, x: float, y: float) -> None:
 
 def _paint_table(p, x: float, y: float, w: float, rows, with_ensemble: bool) -> float:
     heads = [*TABLE_HEADER, *(["ensemble"] if with_ensemble else [])]
-    widths = [0.16, 0.07, 0.14, 0.14, 0.14, 0.14, 0.21]  # Re: "1.39-1.44 × 10^5" on one line
+    widths = [0.16, 0.07, 0.14, 0.14, 0.14, 0.14, 0.21]  # Re: "1.39-1.44 × 10⁵" on one line
     if with_ensemble:
         widths = [0.11, 0.06, 0.11, 0.11, 0.11, 0.10, 0.17, 0.23]
     row_h = 5.0

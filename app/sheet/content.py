@@ -93,29 +93,35 @@ class SummaryRow:
     upper_sd: float
     lower_mean: float
     lower_sd: float
+    difference_mean: float = float("nan")  # upper - lower, shot by shot
 
 
 def summary_rows(records, column: str) -> list[SummaryRow]:
-    """Mean and sample standard deviation of each side's final angle for each value of ``column``.
+    """Mean and sample standard deviation of each side's final angle for each value of
+    ``column``, and the mean of upper - lower over the shots with both (as the conditions and
+    the table give it).
 
     Only shots with a final angle (accepted or adjusted) count; SD is NaN for fewer than two.
     """
-    groups: dict[float, tuple[list[float], list[float], set]] = {}
+    groups: dict[float, tuple[list[float], list[float], list[float], set]] = {}
     for position, record in enumerate(records):
         x = column_value(record, column, position)
         if x is None:
             continue
-        ups, lows, ids = groups.setdefault(round(x, 6), ([], [], set()))
+        ups, lows, diffs, ids = groups.setdefault(round(x, 6), ([], [], [], set()))
+        finals = {side: record.final_deg(side) for side in ("upper", "lower")}
         for side, bucket in (("upper", ups), ("lower", lows)):
-            value = record.final_deg(side)
-            if value is not None:
-                bucket.append(float(value))
+            if finals[side] is not None:
+                bucket.append(float(finals[side]))
                 ids.add(record.shot_id)
+        if None not in finals.values():
+            diffs.append(float(finals["upper"]) - float(finals["lower"]))
     rows = []
     for x in sorted(groups):
-        ups, lows, ids = groups[x]
+        ups, lows, diffs, ids = groups[x]
         if ids:
-            rows.append(SummaryRow(x, len(ids), *_mean_sd(ups), *_mean_sd(lows)))
+            rows.append(SummaryRow(x, len(ids), *_mean_sd(ups), *_mean_sd(lows),
+                                   _mean_sd(diffs)[0]))
     return rows
 
 
@@ -211,7 +217,7 @@ def timing_text(record: ShotRecord) -> str:
     parts = []
     dt = md.get("dt_s") if summary is None else summary.dt_s
     if dt not in (None, ""):
-        parts.append(f"dt {float(dt) * 1e6:.1f} us")
+        parts.append(f"dt {float(dt) * 1e6:.1f} µs")
     scale = md.get("scale_mm_per_px") if summary is None else summary.scale_mm_per_px
     if scale not in (None, ""):
         parts.append(f"{float(scale):.4g} mm/px")

@@ -62,7 +62,8 @@ def paint_cover(pages: Pages, session, all_records, records, column: str,
     text(p, rect_mm(x, y, w, 6), f"Final angles by {column}", 11, bold=True)
     y += 6.5
     text(p, rect_mm(x, y, w, 5),
-         "Accepted and adjusted shots only; mean and sample standard deviation (SD) in deg.",
+         "Accepted and adjusted shots only; mean and sample standard deviation (SD) in deg; "
+         "upper − lower shot by shot.",
          7.5, colour=colours.MUTED_INK)
     y += 5.5
     _paint_summary_table(p, x, y, w, column, rows[:SUMMARY_ROWS_ON_COVER])
@@ -223,7 +224,7 @@ def _paint_overview_legend(p, x: float, y: float) -> None:
 def _paint_summary_table(p, x: float, y: float, w: float, column: str,
                          rows: list[SummaryRow]) -> float:
     heads = [column, "shots", "upper mean", "upper SD", "lower mean", "lower SD",
-             "lower - upper"]
+             "upper − lower"]
     widths = [0.2, 0.1, 0.14, 0.12, 0.14, 0.12, 0.18]
     row_h = 5.2
     right = QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignVCenter
@@ -244,7 +245,7 @@ def _paint_summary_table(p, x: float, y: float, w: float, column: str,
         cells = [tick_label(row.value), str(row.n), sheet_angle(row.upper_mean),
                  sheet_angle(row.upper_sd, signed=False), sheet_angle(row.lower_mean),
                  sheet_angle(row.lower_sd, signed=False),
-                 sheet_angle(row.lower_mean - row.upper_mean)]
+                 sheet_angle(row.difference_mean)]
         cx = x
         for cell, frac in zip(cells, widths):
             text(p, rect_mm(cx, y, frac * w - 2, row_h), cell, 8.5, flags=right)

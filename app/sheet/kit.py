@@ -84,6 +84,24 @@ def text(painter, rect: QtCore.QRectF, value: str, size_pt: float = 8.5, *, bold
     return painter.drawText(rect, int(align) | int(QtCore.Qt.TextFlag.TextWordWrap), str(value))
 
 
+def one_line(painter, rect: QtCore.QRectF, value: str, sizes_pt: tuple[float, ...], *,
+             bold=False, colour=colours.INK, flags=None) -> tuple[str, float]:
+    """Draw ``value`` on one line in ``rect`` at the largest of ``sizes_pt`` at which it fits;
+    at the smallest its end gives way to "…". Returns the text drawn and its size (pt)."""
+    for size in sizes_pt:
+        painter.setFont(font(size, bold))
+        metrics = painter.fontMetrics()
+        if metrics.horizontalAdvance(value) <= rect.width() or size == sizes_pt[-1]:
+            shown = metrics.elidedText(value, QtCore.Qt.TextElideMode.ElideRight,
+                                       int(rect.width()))
+            break
+    painter.setPen(qcolor(colour))
+    align = flags if flags is not None else QtCore.Qt.AlignmentFlag.AlignLeft
+    painter.drawText(rect, int(align) | int(QtCore.Qt.AlignmentFlag.AlignVCenter)
+                     | int(QtCore.Qt.TextFlag.TextSingleLine), shown)
+    return shown, size
+
+
 def nice_ticks(lo: float, hi: float, n: int = 6) -> np.ndarray:
     """Round tick positions covering [lo, hi], about ``n`` of them."""
     if not (math.isfinite(lo) and math.isfinite(hi)) or hi <= lo:

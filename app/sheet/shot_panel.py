@@ -30,9 +30,25 @@ from app.sheet.content import (
     side_detail,
     timing_text,
 )
-from app.sheet.kit import PANEL_GAP_MM, draw_arrow, mm, pen, qcolor, rect_mm, text
+from app.sheet.kit import (
+    PANEL_GAP_MM,
+    draw_arrow,
+    font,
+    mm,
+    one_line,
+    pen,
+    qcolor,
+    rect_mm,
+    text,
+)
 from core.geometry import flight_unit, mid_circle, point_at_angle, side_normal
 from core.store import ReviewStatus
+
+HEADER_METADATA_PT = (7.5, 7.0, 6.5)  # the panel header's metadata, largest that fits
+NUMBER_SIZES_PT = (8.2, 7.4, 6.8, 6.2, 5.8)  # the panel's numbers, largest at which all fit
+PICTURE_MIN_SHARE = 0.4  # of a stacked panel's height, kept for the picture
+LEGEND_MM = 9.0  # the colour bar, scale bar and reference vector under the picture
+LEGEND_MIN_MM = 100.0  # the width the legend needs in one line
 
 
 def panel_cells(per_page: int, body) -> list[tuple[float, float, float, float]]:
@@ -54,7 +70,11 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
     colour = colours.STATUS_COLOURS.get(record.pick.status, colours.MUTED_INK)
     p.fillRect(rect_mm(x, y, w, 8), qcolor(colours.PAPER_TINT))
     p.fillRect(rect_mm(x, y, 1.6, 8), qcolor(colour))
-    text(p, rect_mm(x + 3.5, y + 0.9, w * 0.55, 7), f"Shot {record.shot_id}", 12.5, bold=True)
+    title = f"Shot {record.shot_id}"
+    shown, size = one_line(p, rect_mm(x + 3.5, y, w - 37, 8), title, (12.5, 11.0, 9.5),
+                           bold=True)
+    p.setFont(font(size, bold=True))
+    title_w = p.fontMetrics().horizontalAdvance(shown) / mm(1)
     pill = record.pick.status.upper()
     p.setBrush(qcolor(colour))
     p.setPen(QtCore.Qt.PenStyle.NoPen)
@@ -62,20 +82,13 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
     text(p, rect_mm(x + w - 30, y + 1.5, 28, 5), pill, 8, bold=True, colour="#ffffff",
          flags=QtCore.Qt.AlignmentFlag.AlignCenter)
     narrow = w < 120  # two panels across: the metadata goes with the numbers instead
-    if not narrow:
-        text(p, rect_mm(x + w * 0.42, y + 2.2, w * 0.58 - 33, 5), metadata_line(record), 7.5,
-             colour=colours.MUTED_INK, flags=QtCore.Qt.AlignmentFlag.AlignRight)
-    y += 10
-    h -= 10
-    side_by_side = w > 1.25 * h
-    if side_by_side:
-        text_w = min(72.0, w * 0.42)
-        pic = (x, y, w - text_w - 4, h)
-        info = (x + w - text_w, y, text_w, h)
-    else:
-        pic_h = h * (0.5 if narrow else 0.56)
-        pic = (x, y, w, pic_h)
-        info = (x, y + pic_h + 3, w, h - pic_h - 3)
+    if not narrow:  # one line between the title and the status, shrunk or cut short with "…"
+        left = x + 3.5 + title_w + 4
+        one_line(p, rect_mm(left, y, x + w - 33 - left, 8), metadata_line(record),
+                 HEADER_METADATA_PT, colour=colours.MUTED_INK,
+                 flags=QtCore.Qt.AlignmentFlag.AlignRight)
+    rows = number_rows(record, with_metadata=narrow, checks=checks)
+    pic, info = _split(p, (x, y + 10, w, h - 10), rows, result, narrow)
     if result is None:
         reason = record.failure or "not processed yet"
         p.fillRect(rect_mm(*pic), qcolor(colours.PAPER_TINT))
@@ -84,7 +97,26 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
              flags=QtCore.Qt.AlignmentFlag.AlignCenter)
     else:
         _paint_field(p, pic, record, result, vorticity_limit_1_s)
-    _paint_numbers(p, info, record, with_metadata=narrow, checks=checks)
+    _paint_numbers(p, info, rows)
+
+
+def _split(p, area, rows, result, narrow: bool):
+    """The panel below its title bar, ``area`` (mm), split into the field picture and the
+    numbers: side by side on a wide panel (the numbers get the width the picture leaves
+    unused), else stacked (the picture gives up height, to ``PICTURE_MIN_SHARE``, where the
+    numbers need it)."""
+    x, y, w, h = area
+    if w > 1.25 * h:
+        text_w = min(72.0, w * 0.42)
+        if result is not None:
+            _x0, _y0, bw, bh = _crop_box(result, (w - text_w - 4) / (h - LEGEND_MM))
+            used = (h - LEGEND_MM) * bw / bh
+            text_w = min(max(text_w, w - 4 - max(used, LEGEND_MIN_MM)), w * 0.5)
+        return (x, y, w - text_w - 4, h), (x + w - text_w, y, text_w, h)
+    pic_h = h * (0.5 if narrow else 0.56)
+    need = _rows_height(p, rows, w, NUMBER_SIZES_PT[-2])
+    pic_h = max(PICTURE_MIN_SHARE * h, min(pic_h, h - 3 - need))
+    return (x, y, w, pic_h), (x, y + pic_h + 3, w, h - pic_h - 3)
 
 
 
@@ -135,8 +167,7 @@ def _crop_box(result, aspect: float) -> tuple[float, float, float, float]:
 
 def _paint_field(p, pic, record, result, vorticity_limit_1_s: float | None) -> None:
     x, y, w, h = pic
-    legend_h = 9.0
-    frame = rect_mm(x, y, w, h - legend_h)
+    frame = rect_mm(x, y, w, h - LEGEND_MM)
     x0, y0, bw, bh = _crop_box(result, frame.width() / frame.height())
     scale = min(frame.width() / bw, frame.height() / bh)
     view = _View(x0, y0, scale, frame.left() + (frame.width() - bw * scale) / 2,
@@ -153,8 +184,8 @@ def _paint_field(p, pic, record, result, vorticity_limit_1_s: float | None) -> N
     p.setBrush(QtCore.Qt.BrushStyle.NoBrush)
     p.drawRect(shown)
     p.restore()
-    _paint_field_legend(p, shown.left() / mm(1), shown.bottom() / mm(1) + 1.2, limit, view,
-                        result, arrow)
+    _paint_field_legend(p, (x, x + w), shown.left() / mm(1), shown.bottom() / mm(1) + 1.2,
+                        limit, view, result, arrow)
 
 
 def _paint_vorticity(p, view: _View, result, limit: float | None) -> float:
@@ -299,13 +330,27 @@ def _mark_label(p, at: QtCore.QPointF, tag: str, colour: str) -> None:
     text(p, box, tag, 7.5, bold=True, colour=colour, flags=QtCore.Qt.AlignmentFlag.AlignCenter)
 
 
-def _paint_field_legend(p, x: float, y: float, limit: float, view: _View, result,
-                        arrow: tuple[float, float] | None) -> None:
-    """Colour bar, scale bar and reference vector under the field picture (mm, top-left x, y)."""
+def _paint_field_legend(p, span: tuple[float, float], x: float, y: float, limit: float,
+                        view: _View, result, arrow: tuple[float, float] | None) -> None:
+    """Colour bar, scale bar and reference vector in one line under the field picture, from
+    its left edge ``x`` (mm) at ``y``, drawn further left and with a shorter colour bar where
+    the panel's width ``span`` (left, right in mm) needs it: nothing reaches beyond it."""
     small = 6.8
+    reference = None
+    if arrow is not None:
+        speed, length = arrow
+        unit = "m/s" if result.u_m_s is not None else "px"
+        label = f"{speed:.3g} {unit}"
+        p.setFont(font(small))
+        reference = (label, length, max(length, p.fontMetrics().horizontalAdvance(label)) / mm(1))
+    ref_w = 0.0 if reference is None else reference[2]
+    room = span[1] - span[0]
+    bar_w = min(30.0, max(14.0, room - 46.0 - ref_w))
+    needed = bar_w + 46.0 + ref_w
+    x = max(span[0], min(x, span[1] - needed))
     if math.isfinite(limit):
         text(p, rect_mm(x, y + 0.4, 20, 4), "vorticity", small, colour=colours.MUTED_INK)
-        bar = rect_mm(x + 12.5, y + 1, 30, 2.4)
+        bar = rect_mm(x + 12.5, y + 1, bar_w, 2.4)
         lut = colours.vorticity_lut(64)
         step = bar.width() / len(lut)
         for i, (r, g, b) in enumerate(lut):
@@ -314,26 +359,25 @@ def _paint_field_legend(p, x: float, y: float, limit: float, view: _View, result
         centre = QtCore.Qt.AlignmentFlag.AlignHCenter
         for value, at in ((-limit, 0.0), (0.0, 0.5), (limit, 1.0)):
             label = _signed(value) if value else "0"
-            text(p, rect_mm(x + 12.5 + 30 * at - 8, y + 3.6, 16, 4), label, small - 0.4,
+            text(p, rect_mm(x + 12.5 + bar_w * at - 8, y + 3.6, 16, 4), label, small - 0.4,
                  colour=colours.MUTED_INK, flags=centre)
-        text(p, rect_mm(x + 44, y + 0.4, 10, 4), "1/s", small, colour=colours.MUTED_INK)
+        text(p, rect_mm(x + 14 + bar_w, y + 0.4, 10, 4), "1/s", small, colour=colours.MUTED_INK)
     scale_mm_px = result.scale_mm_per_px
     if scale_mm_px:
         # the longest round object length that stays under 20 mm on the page
         bar_mm = round_length(mm(20) / view.scale * scale_mm_px)
         length = bar_mm / scale_mm_px * view.scale
-        left = mm(x + 55)
+        left = mm(x + bar_w + 23)
         p.setPen(pen(colours.INK, 0.45))
         p.drawLine(QtCore.QPointF(left, mm(y + 2.2)), QtCore.QPointF(left + length, mm(y + 2.2)))
         text(p, QtCore.QRectF(left, mm(y + 3.6), mm(20), mm(4)), f"{bar_mm:g} mm", small,
              colour=colours.MUTED_INK)
-    if arrow is not None:
-        speed, length = arrow
-        left = mm(x + 78)
+    if reference is not None:
+        label, length, width = reference
+        left = mm(x + needed - width)
         p.setPen(pen("#111111", 0.25))
         draw_arrow(p, QtCore.QPointF(left, mm(y + 2.2)), QtCore.QPointF(left + length, mm(y + 2.2)))
-        unit = "m/s" if result.u_m_s is not None else "px"
-        text(p, QtCore.QRectF(left, mm(y + 3.6), mm(30), mm(4)), f"{speed:.3g} {unit}", small,
+        text(p, QtCore.QRectF(left, mm(y + 3.6), mm(width), mm(4)), label, small,
              colour=colours.MUTED_INK)
 
 
@@ -345,48 +389,95 @@ def _signed(value: float) -> str:
 
 
 
-def _paint_numbers(p, info, record, with_metadata: bool = False, checks=()) -> None:
-    """The shot's numbers, most important first (rows that do not fit are left out)."""
-    x, y, w, h = info
+@dataclass
+class NumberRow:
+    """One row of a panel's numbers: a label and its text, sizes relative to the panel's."""
+
+    label: str
+    value: str
+    colour: str = colours.INK
+    larger_pt: float = 0.0
+    bold: bool = False
+    gap_mm: float = 1.1
+
+
+def number_rows(record, with_metadata: bool = False, checks=()) -> list[NumberRow]:
+    """The shot's numbers as the panel lists them, most important first."""
     summary = record.summary
     md = record.metadata or {}
-    compact = h < 60
-    label_w = 17.0
-    size = 7.4 if compact else 8.2
-    cy, bottom = y, y + h
-
-    def row(label: str, value: str, colour: str = colours.INK, value_size: float = size,
-            bold: bool = False, gap: float = 1.1) -> None:
-        nonlocal cy
-        if cy > bottom - 4:
-            return
-        text(p, rect_mm(x, cy + 0.3, label_w, 4.5), label, size - 0.6, colour=colours.MUTED_INK)
-        used = text(p, rect_mm(x + label_w, cy, w - label_w, bottom - cy), value, value_size,
-                    bold=bold, colour=colour)
-        cy += max(used.height() / mm(1), 3.4) + gap
-
+    rows = []
     for side, colour in (("upper", colours.UPPER_SIDE), ("lower", colours.LOWER_SIDE)):
-        row(side, final_text(record, side), colour, size + 2.2, bold=True, gap=0.2)
-        row("", side_detail(record, side), colours.MUTED_INK, size - 0.6, gap=1.6)
-    row("review", review_text(record), colours.STATUS_COLOURS.get(record.pick.status, colours.INK),
-        bold=True)
+        rows.append(NumberRow(side, final_text(record, side), colour, 2.2, True, 0.2))
+        rows.append(NumberRow("", side_detail(record, side), colours.MUTED_INK, -0.6,
+                              gap_mm=1.6))
+    rows.append(NumberRow("review", review_text(record),
+                          colours.STATUS_COLOURS.get(record.pick.status, colours.INK),
+                          bold=True))
     if record.pick.reason:
-        row("reason", record.pick.reason)
-    row("note", note_text(record))
-    row("wake", reviewed_wake_text(record, SHEET_DECIMALS))
-    row("flight", flight_text(None if summary is None else summary.flight, SHEET_DECIMALS))
+        rows.append(NumberRow("reason", record.pick.reason))
+    rows.append(NumberRow("note", note_text(record)))
+    rows.append(NumberRow("wake", reviewed_wake_text(record, SHEET_DECIMALS)))
+    rows.append(NumberRow("flight", flight_text(None if summary is None else summary.flight,
+                                                SHEET_DECIMALS)))
     if summary is not None and summary.reynolds is not None:
-        row("Reynolds", reynolds_text(summary))
+        rows.append(NumberRow("Reynolds", reynolds_text(summary)))
     if with_metadata:
-        row("shot", metadata_line(record).replace("   ", ", ") or MISSING)
-    row("vectors", MISSING if summary is None else vectors_text(summary.vectors))
-    row("timing", timing_text(record))
+        rows.append(NumberRow("shot", metadata_line(record).replace("   ", ", ") or MISSING))
+    rows.append(NumberRow("vectors",
+                          MISSING if summary is None else vectors_text(summary.vectors)))
+    rows.append(NumberRow("timing", timing_text(record)))
     if md.get("notes"):
-        row("shot notes", str(md["notes"]))
+        rows.append(NumberRow("shot notes", str(md["notes"])))
     if checks:
-        row("check", "; ".join(checks[:2]), colours.STATUS_COLOURS[ReviewStatus.ADJUSTED])
+        rows.append(NumberRow("check", "; ".join(checks[:2]),
+                              colours.STATUS_COLOURS[ReviewStatus.ADJUSTED]))
     warnings = () if summary is None else [w for w in summary.warnings
                                            if w not in summary.ball_warnings]  # with checks
     if warnings:
-        row("warnings", "; ".join(warnings[:2]), colours.MUTED_INK)
+        rows.append(NumberRow("warnings", "; ".join(warnings[:2]), colours.MUTED_INK))
+    return rows
 
+
+def _label_width(size_pt: float) -> float:
+    return 17.0 * size_pt / NUMBER_SIZES_PT[0]
+
+
+def _row_height(p, row: NumberRow, w: float, size_pt: float) -> float:
+    """The height (mm) ``row`` takes in a column ``w`` mm wide at text size ``size_pt``."""
+    p.setFont(font(size_pt + row.larger_pt, row.bold))
+    width = int(mm(w - _label_width(size_pt)))
+    box = p.fontMetrics().boundingRect(QtCore.QRect(0, 0, width, 10**7),
+                                       int(QtCore.Qt.TextFlag.TextWordWrap), row.value)
+    scale = size_pt / NUMBER_SIZES_PT[0]
+    return max(box.height() / mm(1), 3.4 * scale) + row.gap_mm * scale
+
+
+def _rows_height(p, rows, w: float, size_pt: float) -> float:
+    return sum(_row_height(p, row, w, size_pt) for row in rows)
+
+
+def _paint_numbers(p, info, rows: list[NumberRow]) -> None:
+    """The rows in ``info`` (mm) at the largest of ``NUMBER_SIZES_PT`` at which they all fit;
+    where even the smallest cannot hold them, the last rows give way to a line saying "…" and
+    which are left out."""
+    x, y, w, h = info
+    sizes = NUMBER_SIZES_PT if h >= 60 else NUMBER_SIZES_PT[1:]
+    size = next((s for s in sizes if _rows_height(p, rows, w, s) <= h), sizes[-1])
+    shown = list(rows)
+    if _rows_height(p, rows, w, size) > h:
+        mark = NumberRow("", "")
+        while shown:
+            shown.pop()
+            left_out = [r.label for r in rows[len(shown):] if r.label]
+            mark = NumberRow("", "… not shown: " + ", ".join(left_out), colours.MUTED_INK)
+            if _rows_height(p, [*shown, mark], w, size) <= h:
+                break
+        shown.append(mark)
+    label_w = _label_width(size)
+    cy = y
+    for row in shown:
+        text(p, rect_mm(x, cy + 0.3, label_w, 4.5), row.label, size - 0.6,
+             colour=colours.MUTED_INK)
+        text(p, rect_mm(x + label_w, cy, w - label_w, y + h - cy), row.value,
+             size + row.larger_pt, bold=row.bold, colour=row.colour)
+        cy += _row_height(p, row, w, size)

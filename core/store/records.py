@@ -146,6 +146,13 @@ class ShotRecord:
         angles = {s: self.shown_deg(s) for s in SIDES} | dict(moving or {})
         return wake_state(*(SideProposal(angles[s], self.uncertainty_deg(s)) for s in SIDES))
 
+    def wake_deflection_deg(self) -> float | None:
+        """The measured wake deflection as a result to report: None for a shot marked
+        unusable (its numbers are not results) or not measured."""
+        if self.summary is None or self.pick.status == ReviewStatus.UNUSABLE:
+            return None
+        return self.summary.separation.wake_deflection_deg
+
 
 def _checked_side(side: str) -> str:
     if side not in SIDES:

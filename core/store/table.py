@@ -15,7 +15,8 @@ from core.store.records import ShotRecord
 
 def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
     """One row per shot: metadata, proposed and final angles, uncertainty, wake, review. The wake
-    state is that of the final angles (``ShotRecord.wake_state``): empty for an unusable shot.
+    state is that of the final angles (``ShotRecord.wake_state``); it and the wake deflection
+    are empty for an unusable shot, as its final angles are.
 
     Returns
     -------
@@ -48,7 +49,6 @@ ANGLE_DECIMALS = 2
 def _result_cells(r: ShotRecord) -> list[str]:
     summary, pick = r.summary, r.pick
     flight = None if summary is None else summary.flight
-    separation = None if summary is None else summary.separation
     values = [
         r.state, r.failure,
         _angle(None if flight is None else flight.direction_deg),
@@ -57,8 +57,7 @@ def _result_cells(r: ShotRecord) -> list[str]:
         None if summary is None else summary.reynolds,
         *map(_angle, (r.proposed_deg("upper"), r.uncertainty_deg("upper"),
                       r.proposed_deg("lower"), r.uncertainty_deg("lower"),
-                      r.final_deg("upper"), r.final_deg("lower"),
-                      None if separation is None else separation.wake_deflection_deg)),
+                      r.final_deg("upper"), r.final_deg("lower"), r.wake_deflection_deg())),
         r.wake_state(),  # from the final angles: follows the analyst's edits
         pick.status, pick.reason, pick.note, pick.who, pick.when,
         r.processed_utc, r.software_version, pick.note_who, pick.note_when,
