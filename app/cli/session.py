@@ -59,9 +59,11 @@ def _add_process(subparsers) -> None:
                    help="tcp://HOST:PORT of a dask scheduler: measure on that cluster "
                    "(its workers must see the session and frame files at the same paths)")
     p.add_argument("--force", action="store_true", help="measure again even if up to date")
-    p.add_argument("--settings", type=Path, metavar="JSON",
-                   help="new processing settings for the session, e.g. "
-                   '{"piv": {"passes": [{"window_px": 64, "overlap": 0.5}]}, "find_ball": true}')
+    p.add_argument("--settings", type=settings_source, metavar="JSON",
+                   help="new processing settings for the session: a JSON file, or the JSON "
+                   "itself in quotes (text starting with '{'), e.g. --settings "
+                   """'{"piv": {"passes": [{"window_px": 64, "overlap": 0.5}]}, """
+                   """"find_ball": true}' or --settings my_settings.json""")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=run_process)
 
@@ -158,11 +160,39 @@ def _tell_problems(session) -> bool:
     return bool(session.problems)
 
 
-def _read_settings(path: Path) -> dict:
+def settings_source(text: str) -> Path | dict:
+    """``--settings``: inline JSON (text starting with ``{``) read now, else a file's path.
+
+    Raises
+    ------
+    argparse.ArgumentTypeError
+        Inline text that is not a JSON object (bad usage, exit 2).
+    """
+    if not text.lstrip().startswith("{"):
+        return Path(text)
+    try:
+        data = json.loads(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(f"not valid JSON ({exc})") from None
+    if not isinstance(data, dict):
+        raise argparse.ArgumentTypeError("expected a JSON object of settings")
+    return data
+
+
+def _read_settings(source: Path | dict) -> dict:
+    """The settings of ``--settings``: given inline, or read from the JSON file named."""
+    if isinstance(source, dict):
+        return source
+    path = source
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
-        raise WakelineError(f"{path}: file not found") from None
+        raise WakelineError(f"{path}: settings file not found (give a JSON file, or the "
+                            "JSON itself starting with '{')") from None
+    except IsADirectoryError:
+        raise WakelineError(f"{path}: is a folder, not a settings file") from None
+    except UnicodeDecodeError:
+        raise WakelineError(f"{path}: not UTF-8 text") from None
     except ValueError as exc:
         raise WakelineError(f"{path}: not valid JSON ({exc})") from None
     if not isinstance(data, dict):
