@@ -49,7 +49,7 @@ def test_settings_from_a_file_still_work(session_path, tmp_path, capsys):
 
 def test_bad_inline_settings_are_one_line_bad_usage(session_path, capsys):
     line = usage_error(["process", str(session_path), "--settings", '{"piv": '], capsys)
-    assert "process: error: argument --settings: not valid JSON" in line
+    assert line.startswith("wakeline process: error: argument --settings: not valid JSON")
 
 
 def help_text(command: str, capsys) -> str:
@@ -63,3 +63,20 @@ def help_text(command: str, capsys) -> str:
 def test_the_help_of_settings_says_both_ways(capsys):
     text = help_text("process", capsys)
     assert "a JSON file, or the JSON itself" in text and "--settings '{\"piv\"" in text
+
+
+# bad option values are bad usage (exit 2), like argparse's own refusals
+
+@pytest.mark.parametrize(("argv", "said"), [
+    (["pair", "a.tif", "b.tif", "--scale", "0"], "argument --scale: must be positive, got 0"),
+    (["pair", "a.tif", "b.tif", "--ball-diameter", "nan"], "'nan' is not a finite number"),
+    (["pair", "a.tif", "b.tif", "--normalise", "-1"], "--normalise: must be 0 (off) or positive"),
+    (["sheet", "{s}", "-o", "x.pdf", "--status", "acepted"],
+     "argument --status: unknown review status 'acepted'"),
+    (["conditions", "{s}", "--by", "nosuchcol"], "argument --by: no column 'nosuchcol'"),
+    (["table", "{s}", "-o", "x.csv", "--ensemble"], "argument --ensemble: goes with --by"),
+], ids=["scale", "diameter", "normalise", "status", "by", "ensemble"])
+def test_bad_option_values_exit_2(session_path, argv, said, capsys):
+    argv = [a.replace("{s}", str(session_path)) for a in argv]
+    line = usage_error(argv, capsys)
+    assert said in line and "Traceback" not in line

@@ -14,6 +14,7 @@ import traceback
 from datetime import UTC, datetime
 from pathlib import Path
 
+from app.cli.options import UsageError
 from core import WakelineError, __version__
 
 # Each module adds its subcommands with add_commands(subparsers); each subcommand sets func.
@@ -30,9 +31,11 @@ def build_parser() -> argparse.ArgumentParser:
         "on that session.",
     )
     parser.add_argument("--version", action="version", version=f"wakeline {__version__}")
-    subparsers = parser.add_subparsers(title="commands", metavar="COMMAND")
+    subparsers = parser.add_subparsers(title="commands", metavar="COMMAND", prog="wakeline")
     for name in COMMAND_MODULES:
         importlib.import_module(name).add_commands(subparsers)
+    for command in subparsers.choices.values():  # a bad value found late is told by its command
+        command.set_defaults(command_parser=command)
     return parser
 
 
@@ -62,6 +65,8 @@ def main(argv: list[str] | None = None) -> int:
         if func is None:
             return open_window(session)
         return int(func(args) or 0)
+    except UsageError as exc:
+        args.command_parser.error(str(exc))  # exits 2, as argparse does for a bad value
     except WakelineError as exc:
         print(f"wakeline: {exc}", file=sys.stderr)
         return 1

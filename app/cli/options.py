@@ -3,9 +3,15 @@
 from __future__ import annotations
 
 import argparse
+import math
 from pathlib import Path
 
 from core import WakelineError
+
+
+class UsageError(WakelineError):
+    """A bad option value found only once the command has looked at its files (a column the
+    session lacks): bad usage, exit 2, told like argparse's own errors."""
 
 
 def known_ball_types() -> list[str]:
@@ -23,6 +29,33 @@ def whole_count(text: str) -> int:
         raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
     if value < 0:
         raise argparse.ArgumentTypeError(f"{value} (use 0 or more)")
+    return value
+
+
+def positive_number(text: str) -> float:
+    """A finite number above 0 (``--dt``, ``--scale``, ``--ball-diameter``)."""
+    value = finite_number(text)
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"must be positive, got {text}")
+    return value
+
+
+def zero_or_positive(text: str) -> float:
+    """A finite number of 0 or more (``--normalise``, where 0 is off)."""
+    value = finite_number(text)
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"must be 0 (off) or positive, got {text}")
+    return value
+
+
+def finite_number(text: str) -> float:
+    """A number that is not infinite or NaN (``--flight-deg``, ``--air-temp``)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
     return value
 
 

@@ -10,7 +10,13 @@ import sys
 from pathlib import Path
 
 from app.cli.conditions import column_list
-from app.cli.options import check_outputs, known_ball_types, session_frame_files, whole_count
+from app.cli.options import (
+    UsageError,
+    check_outputs,
+    known_ball_types,
+    session_frame_files,
+    whole_count,
+)
 from core import WakelineError
 
 
@@ -233,7 +239,7 @@ def run_table(args: argparse.Namespace) -> int:
     from core.store import Session, write_table_csv
 
     if args.ensemble and args.by is None:
-        raise WakelineError("--ensemble: goes with --by (one row per condition)")
+        raise UsageError("argument --ensemble: goes with --by (one row per condition)")
     with Session.open(args.session, writable=False) as session:
         check_outputs([args.output], session.path, session_frame_files(session))
         if args.by is not None:

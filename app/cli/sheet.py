@@ -6,6 +6,7 @@ import argparse
 from pathlib import Path
 
 from app.cli.options import check_outputs, session_frame_files
+from core import WakelineError
 
 
 def add_commands(subparsers) -> None:
@@ -30,7 +31,7 @@ def _add_sheet(subparsers) -> None:
     p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
     p.add_argument("--per-page", type=int, default=2, choices=(1, 2, 3, 4), metavar="N",
                    help="shot panels per page: 1, 2 (default), 3 or 4")
-    p.add_argument("--status", metavar="LIST",
+    p.add_argument("--status", type=_statuses, metavar="LIST",
                    help="only shots with these review statuses, comma-separated, e.g. "
                    "accepted,adjusted (statuses: to review, accepted, adjusted, unusable)")
     p.add_argument("--column", metavar="NAME",
@@ -58,11 +59,19 @@ def _vorticity_limit(text: str):
     return value
 
 
+def _statuses(text: str):
+    from app.sheet import parse_statuses
+
+    try:
+        return parse_statuses(text)
+    except WakelineError as exc:
+        raise argparse.ArgumentTypeError(str(exc).removeprefix("--status: ")) from None
+
+
 def run_sheet(args: argparse.Namespace) -> int:
-    from app.sheet import make_sheet, parse_statuses
+    from app.sheet import make_sheet
     from core.store import Session
 
-    statuses = parse_statuses(args.status)
     with Session.open(args.session, writable=False) as session:
         check_outputs([args.output], session.path, session_frame_files(session))
         ensembles = None
@@ -73,7 +82,7 @@ def run_sheet(args: argparse.Namespace) -> int:
             records = list(session.values())
             ensembles = condition_ensembles(session, sheet_conditions(session, records)[1])
         report = make_sheet(session, args.output, shot_ids=args.shots, per_page=args.per_page,
-                            statuses=statuses, column=args.column,
+                            statuses=args.status, column=args.column,
                             vorticity_limit_1_s=args.vorticity_limit, ensembles=ensembles)
     print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
     return 0
