@@ -80,3 +80,34 @@ def test_bad_option_values_exit_2(session_path, argv, said, capsys):
     argv = [a.replace("{s}", str(session_path)) for a in argv]
     line = usage_error(argv, capsys)
     assert said in line and "Traceback" not in line
+
+
+# help and usage text
+
+def test_a_command_error_names_the_command_not_the_whole_top_level_usage(capsys):
+    with pytest.raises(SystemExit):
+        main(["pair"])
+    err = capsys.readouterr().err
+    assert err.startswith("usage: wakeline pair [-h]") and "COMMAND" not in err
+    assert err.strip().splitlines()[-1].startswith("wakeline pair: error: ")
+
+
+def test_help_texts_say_what_the_readme_says(capsys):
+    assert "95 % interval" in help_text("conditions", capsys)
+    assert "%%" not in help_text("conditions", capsys)
+    assert "air_temp_c, camera" in help_text("import", capsys)
+    assert "$WAKELINE_HOME" in help_text("demo", capsys)
+
+
+@pytest.mark.parametrize("value", ["-6e-5", "-1", "-.5", "-inf"])
+def test_a_negative_value_reaches_the_options_own_check(value, capsys):
+    line = usage_error(["pair", "a.tif", "b.tif", "--dt", value], capsys)
+    assert "argument --dt: must be positive" in line or "not a finite number" in line
+
+
+def test_a_negative_flight_direction_in_exponent_form_is_taken():
+    from app.cli import build_parser, negative_values_attached
+
+    argv = negative_values_attached(["pair", "a.tif", "--flight-deg", "-1.5e1", "--", "-1e3"])
+    assert argv[-1] == "-1e3"  # after '--' every word is left as it is
+    assert build_parser().parse_args(argv[:-2]).flight_deg == -15.0

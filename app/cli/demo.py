@@ -40,7 +40,9 @@ def _add_demo(subparsers) -> None:
         "next to the session instead.",
     )
     p.add_argument("--out", type=Path, metavar="DIR",
-                   help="where the demo session goes (default: ~/.local/share/wakeline/demo)")
+                   help="where the demo session goes (default: the folder demo in "
+                   "$WAKELINE_HOME when set, else in $XDG_DATA_HOME/wakeline, else in "
+                   "~/.local/share/wakeline)")
     p.add_argument("--no-window", action="store_true",
                    help="do not open the window; write the shot sheet and the table")
     p.add_argument("--fresh", action="store_true",

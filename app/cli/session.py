@@ -32,8 +32,11 @@ def _add_import(subparsers) -> None:
         help="import a folder of shots into a session",
         description="Import the shots listed in SRC_DIR/shots.csv (columns shot, dt_s, "
         "scale_mm_per_px, ball_diameter_mm, and optional ball_type, speed_nominal_m_s, "
-        "spin_rpm, spin_axis_deg, seam_deg, flight_deg, notes; other columns are kept as "
-        "metadata). "
+        "spin_rpm, spin_axis_deg, seam_deg, flight_deg, air_temp_c, camera, notes; other "
+        "columns are kept as metadata). An empty scale_mm_per_px: the scale from the fitted "
+        "ball and its diameter; air_temp_c sets the air's viscosity for the Reynolds number "
+        "(20 deg C when empty); shots with the same camera share a background image when the "
+        "processing settings ask for one. "
         "Frames are <shot>_a.<tif|png> and <shot>_b.<tif|png>, or one two-page <shot>.tif. "
         "The session is created if it does not exist. Bad rows are reported by line and "
         "shot; the good ones are imported and the exit code is 1.",
