@@ -111,3 +111,24 @@ def test_a_negative_flight_direction_in_exponent_form_is_taken():
     argv = negative_values_attached(["pair", "a.tif", "--flight-deg", "-1.5e1", "--", "-1e3"])
     assert argv[-1] == "-1e3"  # after '--' every word is left as it is
     assert build_parser().parse_args(argv[:-2]).flight_deg == -15.0
+
+
+# -o - : the table to standard output
+
+@pytest.mark.parametrize("by", [[], ["--by", "seam_deg"]], ids=["shots", "conditions"])
+def test_table_to_standard_output_is_the_file_table(session_path, tmp_path, by, capsys,
+                                                    monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert main(["table", str(session_path), *by, "-o", "-"]) == 0
+    printed = capsys.readouterr().out
+    assert not (tmp_path / "-").exists()
+    assert main(["table", str(session_path), *by, "-o", "t.csv"]) == 0
+    written = (tmp_path / "t.csv").read_text(encoding="utf-8")
+    assert printed.splitlines() == written.splitlines() and printed.startswith("s")
+
+
+def test_the_sheet_refuses_standard_output(session_path, tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    line = usage_error(["sheet", str(session_path), "-o", "-"], capsys)
+    assert line.startswith("wakeline sheet: error: argument -o/--output: the shot sheet is a PDF")
+    assert not (tmp_path / "-").exists()

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import csv
 import json
 import signal
 import sys
@@ -87,7 +88,8 @@ def _add_table(subparsers) -> None:
         "With --by: one row per condition instead (see 'wakeline conditions').",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
-    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.csv")
+    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.csv",
+                   help="the CSV file to write; - writes the table to standard output")
     p.add_argument("--by", nargs="?", const=[], type=column_list, metavar="COLUMNS",
                    help="one row per condition of these comma-separated manifest columns "
                    "(alone: the session's grouping): shots, mean, sd and 95 %% interval of "
@@ -240,26 +242,48 @@ def _process_summary(path: Path, report) -> int:
 
 def run_table(args: argparse.Namespace) -> int:
     from core.store import Session, write_table_csv
+    from core.store.table import session_table_rows
 
     if args.ensemble and args.by is None:
         raise UsageError("argument --ensemble: goes with --by (one row per condition)")
+    to_stdout = str(args.output) == STDOUT
     with Session.open(args.session, writable=False) as session:
-        check_outputs([args.output], session.path, session_frame_files(session))
+        if not to_stdout:
+            check_outputs([args.output], session.path, session_frame_files(session))
         if args.by is not None:
-            return _condition_table(session, args)
+            return _condition_table(session, args, to_stdout)
+        if to_stdout:
+            _print_csv(*session_table_rows(session))
+            return 0
         count = write_table_csv(session, args.output)
     print(f"{args.output}: {count} shot(s)")
     return 0
 
 
-def _condition_table(session, args: argparse.Namespace) -> int:
+#: ``-o -``: the table goes to standard output.
+STDOUT = "-"
+
+
+def _print_csv(header: list[str], rows: list[list]) -> None:
+    """A table as CSV on standard output, cells as the table files have them."""
+    from core.store.table import cell_text
+
+    writer = csv.writer(sys.stdout)
+    writer.writerow(header)
+    writer.writerows([cell_text(v) for v in row] for row in rows)
+
+
+def _condition_table(session, args: argparse.Namespace, to_stdout: bool = False) -> int:
     from app.cli.conditions import condition_ensembles, grouping_of
-    from core.conditions import group_conditions, write_condition_csv
+    from core.conditions import condition_table, group_conditions, write_condition_csv
 
     by = grouping_of(session, args.by or None)
     ensembles = None
     if args.ensemble:
         ensembles = condition_ensembles(session, group_conditions(session.values(), by))
+    if to_stdout:
+        _print_csv(*condition_table(group_conditions(session.values(), by), by, ensembles))
+        return 0
     count = write_condition_csv(session, args.output, by, ensembles)
     print(f"{args.output}: {count} condition(s) by {', '.join(by) or 'nothing'}")
     return 0

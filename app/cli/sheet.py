@@ -26,8 +26,8 @@ def _add_sheet(subparsers) -> None:
         "metadata, review). Needs no display.",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
-    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.pdf",
-                   help="the PDF to write")
+    p.add_argument("-o", "--output", type=_pdf_file, required=True, metavar="OUT.pdf",
+                   help="the PDF file to write")
     p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
     p.add_argument("--per-page", type=int, default=2, choices=(1, 2, 3, 4), metavar="N",
                    help="shot panels per page: 1, 2 (default), 3 or 4")
@@ -57,6 +57,13 @@ def _vorticity_limit(text: str):
     if not 0 < value < float("inf"):
         raise argparse.ArgumentTypeError(f"a positive number or 'session', not {text!r}")
     return value
+
+
+def _pdf_file(text: str) -> Path:
+    if text == "-":
+        raise argparse.ArgumentTypeError("the shot sheet is a PDF file: give its file name "
+                                         "('-', standard output, is for 'wakeline table')")
+    return Path(text)
 
 
 def _statuses(text: str):
