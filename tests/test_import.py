@@ -97,7 +97,7 @@ def test_unreadable_frame_and_duplicate_row_are_reported(tmp_path):
     report = import_folder(src, tmp_path / "s.h5")
     assert report.imported == ["S0"]
     assert any("line 3 (shot S1)" in p and "colour image" in p for p in report.problems)
-    assert any("line 4 (shot S0)" in p and "already in s.h5" in p for p in report.problems)
+    assert "shots.csv line 4: shot id S0 is given twice (also line 2)" in report.problems
 
 
 def test_second_import_adds_to_an_existing_session(tmp_path):

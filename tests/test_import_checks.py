@@ -118,3 +118,14 @@ def test_the_frame_left_of_a_half_pair_is_not_called_unnamed(tmp_path):
     (src / "S1_b.tif").unlink()
     report = import_folder(src, tmp_path / "s.h5")
     assert "frame S1_b.<tif|png> not found" in report.problems[0] and report.notes == []
+
+
+@pytest.mark.parametrize("repeat", ["S1,2e-05,0.08,71.6,10,shot 1", "S1,3e-05,0.08,71.6,10,"],
+                         ids=["identical", "differing"])
+def test_a_shot_id_given_twice_is_named_as_such(tmp_path, repeat, capsys):
+    src = write_shot_folder(tmp_path / "src", 2, extra_rows=(repeat,))
+    assert main(["import", str(src), str(tmp_path / "s8.h5")]) == 1
+    err = capsys.readouterr().err
+    assert err == "wakeline: shots.csv line 4: shot id S1 is given twice (also line 3)\n"
+    with Session.open(tmp_path / "s8.h5", writable=False) as s:
+        assert list(s) == ["S0", "S1"] and s["S1"].metadata["dt_s"] == 2e-5

@@ -29,7 +29,8 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     """Import a folder of frame pairs described by its ``shots.csv`` into a session.
 
     The session is created when it does not exist. Good rows are imported even when other rows
-    are bad; each bad row or missing file is reported with its line and shot. A row whose shot
+    are bad; each bad row or missing file is reported with its line and shot. A shot id given
+    again is refused on every line after its first. A row whose shot
     is already in the session with the same frames and values is left alone (a stopped import
     run again goes on with the rest).
 
@@ -61,6 +62,7 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     report = ImportReport()
     with session:
         folder = _Folder(src_dir, session, embed, ball_types)
+        first_lines: dict[str, int] = {}  # shot id -> the line that gives it first
         for number, (line, metadata, problem) in enumerate(rows):
             if should_stop is not None and should_stop():
                 report.notes.append(f"import stopped after {number} of {len(rows)} rows of "
@@ -69,6 +71,10 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
             shot_id = metadata.get("shot", "")
             folder.name_files(shot_id)  # named, even when its row is refused
             where = f"{MANIFEST_NAME} line {line}" + (f" (shot {shot_id})" if shot_id else "")
+            first = first_lines.setdefault(shot_id, line) if shot_id else line
+            if first != line:
+                where = f"{MANIFEST_NAME} line {line}"
+                problem = f"shot id {shot_id} is given twice (also line {first})"
             problem = problem or folder.import_row(metadata)
             if problem is None:
                 report.already.append(shot_id)
