@@ -132,3 +132,72 @@ def test_the_sheet_refuses_standard_output(session_path, tmp_path, capsys, monke
     line = usage_error(["sheet", str(session_path), "-o", "-"], capsys)
     assert line.startswith("wakeline sheet: error: argument -o/--output: the shot sheet is a PDF")
     assert not (tmp_path / "-").exists()
+
+
+# a read-only file system: the user's own file and the real cause
+
+def _read_only_file_system(monkeypatch, folder):
+    """Writes into ``folder`` fail as on a file system mounted read-only."""
+    import errno
+    import os
+
+    real_replace, real_statvfs = os.replace, os.statvfs
+
+    def replace(src, dst, *args, **kwargs):
+        if str(src).startswith(str(folder)):
+            raise OSError(errno.EROFS, os.strerror(errno.EROFS), str(src))
+        return real_replace(src, dst, *args, **kwargs)
+
+    class ReadOnly:
+        f_flag = os.ST_RDONLY
+
+    monkeypatch.setattr(os, "replace", replace)
+    monkeypatch.setattr(os, "statvfs", lambda path: ReadOnly() if str(path).startswith(
+        str(folder)) else real_statvfs(path))
+    monkeypatch.setattr(os, "access", lambda path, mode, **kw: False)
+
+
+@pytest.mark.parametrize(("command", "name"), [("table", "out.csv"), ("sheet", "out.pdf")])
+def test_an_output_on_a_read_only_file_system_names_the_file_and_the_cause(
+        session_path, tmp_path, monkeypatch, command, name, capsys):
+    out = tmp_path / "rodir" / name
+    out.parent.mkdir()
+    _read_only_file_system(monkeypatch, out.parent)
+    assert main([command, str(session_path), "-o", str(out)]) == 1
+    assert capsys.readouterr().err == f"wakeline: {out}: cannot write here (read-only file " \
+                                      "system)\n"
+    assert list(out.parent.iterdir()) == []
+
+
+def test_pair_outputs_on_a_read_only_file_system(session_path, tmp_path, monkeypatch, capsys):
+    src = session_path.parent / "src"
+    out = tmp_path / "rodir" / "r.json"
+    out.parent.mkdir()
+    _read_only_file_system(monkeypatch, out.parent)
+    assert main(["pair", str(src / "S0_a.tif"), str(src / "S0_b.tif"), "--no-ball", "--json",
+                 str(out)]) == 1
+    assert capsys.readouterr().err == f"wakeline: {out}: cannot write here (read-only file " \
+                                      "system)\n"
+
+
+def test_a_session_on_a_read_only_file_system_is_not_called_a_read_only_file(
+        session_path, monkeypatch, capsys):
+    _read_only_file_system(monkeypatch, session_path.parent)
+    assert main(["process", str(session_path), "--workers", "0"]) == 1
+    err = capsys.readouterr().err
+    assert "cannot edit the session here (read-only file system)" in err and "mode" not in err
+
+
+def test_a_new_session_in_a_read_only_folder_says_so(tmp_path, monkeypatch, capsys):
+    import errno
+
+    from core.store.lock import Lock
+
+    def refuse(self, me):
+        raise OSError(errno.EROFS, "Read-only file system", str(self.path))
+
+    monkeypatch.setattr(Lock, "_try_create", refuse)
+    src = write_shot_folder(tmp_path / "src", 1)
+    assert main(["import", str(src), str(tmp_path / "new.h5")]) == 1
+    err = capsys.readouterr().err
+    assert err.endswith("new.h5: cannot write in its folder (read-only file system)\n")

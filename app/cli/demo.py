@@ -11,7 +11,7 @@ import sys
 from pathlib import Path
 
 from app.cli import display
-from app.cli.options import known_ball_types, whole_count
+from app.cli.options import failure_cause, known_ball_types, whole_count
 from core import WakelineError
 
 SAMPLE_RUNS = Path(__file__).resolve().parents[2] / "sample_runs"
@@ -63,7 +63,8 @@ def demo_dir(out: Path | None) -> Path:
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise WakelineError(f"{folder}: cannot create the demo folder ({exc.strerror})") from None
+        raise WakelineError(f"{folder}: cannot create the demo folder "
+                            f"({failure_cause(exc)})") from None
     return folder
 
 

@@ -12,6 +12,7 @@ from app.cli.options import (
     finite_number,
     known_ball_types,
     positive_number,
+    writing,
     zero_or_positive,
 )
 from app.review.text import shot_rows
@@ -92,26 +93,21 @@ def run_pair(args: argparse.Namespace) -> int:
 
 
 def _write_text(path: Path, text: str) -> None:
-    try:
-        with atomic_write(path) as tmp:
-            tmp.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise WakelineError(f"{path}: cannot write ({exc.strerror})") from None
+    with writing(path), atomic_write(path) as tmp:
+        tmp.write_text(text, encoding="utf-8")
 
 
 def write_vectors_csv(path: Path, field) -> None:
     """CSV of every grid vector (masked ones as NaN with valid 0), image coordinates, px."""
-    try:
-        with atomic_write(path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
-            writer = csv.writer(fh)
-            writer.writerow(["x_px", "y_px", "dx_px", "dy_px", "valid"])
-            for x, y, dx, dy, ok in zip(
-                field.x_px.ravel(), field.y_px.ravel(), field.dx_px.ravel(),
-                field.dy_px.ravel(), field.valid.ravel(),
-            ):
-                writer.writerow([f"{x:.2f}", f"{y:.2f}", f"{dx:.4f}", f"{dy:.4f}", int(bool(ok))])
-    except OSError as exc:
-        raise WakelineError(f"{path}: cannot write ({exc.strerror})") from None
+    with writing(path), atomic_write(path) as tmp, \
+            open(tmp, "w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(["x_px", "y_px", "dx_px", "dy_px", "valid"])
+        for x, y, dx, dy, ok in zip(
+            field.x_px.ravel(), field.y_px.ravel(), field.dx_px.ravel(),
+            field.dy_px.ravel(), field.valid.ravel(),
+        ):
+            writer.writerow([f"{x:.2f}", f"{y:.2f}", f"{dx:.4f}", f"{dy:.4f}", int(bool(ok))])
 
 
 def describe(summary: ShotSummary) -> str:

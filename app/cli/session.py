@@ -17,6 +17,7 @@ from app.cli.options import (
     known_ball_types,
     session_frame_files,
     whole_count,
+    writing,
 )
 from core import WakelineError
 
@@ -255,7 +256,8 @@ def run_table(args: argparse.Namespace) -> int:
         if to_stdout:
             _print_csv(*session_table_rows(session))
             return 0
-        count = write_table_csv(session, args.output)
+        with writing(args.output):
+            count = write_table_csv(session, args.output)
     print(f"{args.output}: {count} shot(s)")
     return 0
 
@@ -284,6 +286,7 @@ def _condition_table(session, args: argparse.Namespace, to_stdout: bool = False)
     if to_stdout:
         _print_csv(*condition_table(group_conditions(session.values(), by), by, ensembles))
         return 0
-    count = write_condition_csv(session, args.output, by, ensembles)
+    with writing(args.output):
+        count = write_condition_csv(session, args.output, by, ensembles)
     print(f"{args.output}: {count} condition(s) by {', '.join(by) or 'nothing'}")
     return 0

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from app.cli.options import check_outputs, session_frame_files
+from app.cli.options import check_outputs, session_frame_files, writing
 from core import WakelineError
 
 
@@ -88,8 +88,10 @@ def run_sheet(args: argparse.Namespace) -> int:
 
             records = list(session.values())
             ensembles = condition_ensembles(session, sheet_conditions(session, records)[1])
-        report = make_sheet(session, args.output, shot_ids=args.shots, per_page=args.per_page,
-                            statuses=args.status, column=args.column,
-                            vorticity_limit_1_s=args.vorticity_limit, ensembles=ensembles)
+        with writing(args.output):
+            report = make_sheet(session, args.output, shot_ids=args.shots,
+                                per_page=args.per_page, statuses=args.status,
+                                column=args.column, vorticity_limit_1_s=args.vorticity_limit,
+                                ensembles=ensembles)
     print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
     return 0
