@@ -20,7 +20,10 @@ DEMO_SHEET = "demo_sheet.pdf"
 DEMO_TABLE = "demo_table.csv"
 DEMO_REVIEWER = "demo analyst (invented)"
 DEMO_NAME = "Seam-angle sweep at 30 m/s (invented demo)"
-DEMO_INPUTS = ("shots.csv", "truth.csv", "reviews.csv", "README.md")
+#: The invented analyst's marks and unusable shots, replayed after processing (not a table for
+#: 'wakeline add-review': the demo's review is decided against the proposals as measured).
+DEMO_MARKS = "analyst_marks.csv"
+DEMO_INPUTS = ("shots.csv", "truth.csv", DEMO_MARKS, "README.md")
 RECIPE = "make_demo.py"  # draws the frames (too large to ship)
 DRAW_PEAK_BYTES = 0.3e9  # memory to draw one shot (235 MB peak measured for a 1280 x 1024 pair)
 
@@ -236,12 +239,12 @@ def process_demo(session_path: Path, workers: int | None = None) -> None:
                 raise WakelineError(f"{session_path}: processing stopped; run the demo again")
             done = f"processed {len(report.processed)} shot(s)" + (
                 f", {len(report.failed)} failed (see above)" if report.failed else "")
-        applied = replay_reviews(session, session_path.parent / "frames" / "reviews.csv")
+        applied = replay_reviews(session, session_path.parent / "frames" / DEMO_MARKS)
     print(f"{session_path}: {done}"
           + (f"; replayed {applied} review decision(s)" if applied else ""))
 
 
-def replay_reviews(session, reviews_csv: Path) -> int:
+def replay_reviews(session, marks_csv: Path) -> int:
     """Replay the invented analyst's review on shots nobody has touched yet.
 
     Each row gives the analyst's marks (deg) or a reason the shot is unusable (applied whether
@@ -251,10 +254,10 @@ def replay_reviews(session, reviews_csv: Path) -> int:
     """
     from core.store import ProcessState, ReviewStatus
 
-    if not reviews_csv.is_file():
+    if not marks_csv.is_file():
         return 0
     applied = 0
-    with open(reviews_csv, encoding="utf-8", newline="") as fh:
+    with open(marks_csv, encoding="utf-8", newline="") as fh:
         for row in csv.DictReader(fh):
             shot_id = row["shot"]
             if shot_id not in session or session.history(shot_id):
