@@ -8,7 +8,7 @@ draws them at its first run. Every file is a pure function of the constants belo
 drawing them again gives the same bytes (given the same numpy, scipy, tifffile and zlib).
 
     .venv/bin/python sample_runs/make_demo.py                  # rewrite shots.csv, truth.csv,
-                                                               # reviews.csv here
+                                                               # analyst_marks.csv here
     .venv/bin/python sample_runs/make_demo.py --frames DIR [--shots sw01 sw07]   # draw frames
     .venv/bin/python sample_runs/make_demo.py --report [DEMO_DIR]   # table of README.md
 """
@@ -282,12 +282,12 @@ def _csv_text(header, rows) -> str:
 
 
 def write_inputs(out_dir: Path) -> list[Path]:
-    """Write the shipped files (``shots.csv``, ``truth.csv``, ``reviews.csv``) into ``out_dir``."""
+    """Write the shipped files (``shots.csv``, ``truth.csv``, ``analyst_marks.csv``) into ``out_dir``."""
     shots = demo_shots()
     truth = truth_text(shots)
     written = []
     for name, content in (("shots.csv", manifest_text(shots)), ("truth.csv", truth),
-                          ("reviews.csv", reviews_text(shots, truth))):
+                          ("analyst_marks.csv", reviews_text(shots, truth))):
         path = out_dir / name
         path.write_text(content, encoding="utf-8", newline="")
         written.append(path)

@@ -52,10 +52,12 @@ def test_mismatched_shapes_exit_1(tmp_path):
     assert done.returncode == 1 and "b.tif" in done.stderr and "differs" in done.stderr
 
 
-def test_negative_dt_exit_1(tmp_path):
+def test_negative_dt_is_bad_usage(tmp_path):
     tifffile.imwrite(tmp_path / "a.tif", np.zeros((64, 64), np.uint16))
     done = wakeline("pair", tmp_path / "a.tif", tmp_path / "a.tif", "--no-ball", "--dt", "-1")
-    assert done.returncode == 1 and "--dt" in done.stderr
+    assert done.returncode == 2
+    assert done.stderr.strip().splitlines()[-1].endswith(
+        "error: argument --dt: must be positive, got -1")
 
 
 def test_pair_no_ball_writes_vectors_and_json(tmp_path):

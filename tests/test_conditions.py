@@ -91,7 +91,9 @@ def test_table_by_writes_one_row_per_condition_and_conditions_keeps_the_grouping
     assert [r["seam_deg"] for r in rows] == ["0", "10", ""]
     assert rows[0]["usable_shots"] == "2" and rows[0]["shot_ids"] == "S0 S1 S2"
     assert float(rows[0]["upper_ci_high_deg"]) > 4.0 > float(rows[0]["upper_ci_low_deg"])
-    assert main(["conditions", str(session_path), "--by", "seam_deg,notes"]) == 1
+    with pytest.raises(SystemExit) as usage:  # bad usage: exit 2
+        main(["conditions", str(session_path), "--by", "seam_deg,notes"])
+    assert usage.value.code == 2
     assert "no column 'notes'" in capsys.readouterr().err  # notes describe one shot
     assert main(["conditions", str(session_path), "--by", "seam_deg"]) == 0
     with Session.open(session_path, writable=False) as s:
@@ -103,12 +105,15 @@ def test_table_by_writes_one_row_per_condition_and_conditions_keeps_the_grouping
 def test_bad_grouping_is_one_line_and_exit_codes_follow_the_other_commands(
         session_path, tmp_path, capsys):
     out = tmp_path / "by.csv"
-    assert main(["table", str(session_path), "--by", "colour", "-o", str(out)]) == 1
-    assert "--by: no column 'colour' with values in s.h5" in capsys.readouterr().err
-    assert main(["table", str(session_path), "--ensemble", "-o", str(out)]) == 1
-    with pytest.raises(SystemExit) as usage:
-        main(["table", str(session_path), "--by", ",", "-o", str(out)])
-    assert usage.value.code == 2
+    for argv in (["--by", "colour"], ["--ensemble"], ["--by", ","]):
+        with pytest.raises(SystemExit) as usage:  # bad usage: exit 2
+            main(["table", str(session_path), *argv, "-o", str(out)])
+        assert usage.value.code == 2
+        err = capsys.readouterr().err.strip().splitlines()[-1]
+        assert err.startswith("wakeline table: error: argument --")
+        if "colour" in argv:
+            assert "--by: no column 'colour' with values in s.h5" in err
+    assert not out.exists()
 
 
 def test_the_reynolds_range_is_written_with_one_power_of_ten():

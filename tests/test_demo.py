@@ -35,6 +35,20 @@ def _rows(path: Path) -> dict[str, dict]:
         return {row["shot"]: row for row in csv.DictReader(fh)}
 
 
+def test_no_demo_file_passes_for_a_review_table_it_is_not(tmp_path):
+    """The demo copies its files beside the frames; one named like a review table must be one
+    `wakeline add-review` reads (the invented analyst's marks are named for what they are)."""
+    from app.cli.demo import DEMO_INPUTS
+    from core.store.reviews import read_review_csv
+
+    shots = list(_rows(SAMPLE_RUNS / "shots.csv"))
+    for name in DEMO_INPUTS:
+        if "review" in name and name.endswith(".csv"):
+            read_review_csv(SAMPLE_RUNS / name, shots, None)
+    marks = next(iter(_rows(SAMPLE_RUNS / "analyst_marks.csv").values()))
+    assert {"upper_deg", "lower_deg", "unusable_reason"} <= set(marks)
+
+
 def test_shipped_demo_is_small_and_complete():
     manifest = _rows(SAMPLE_RUNS / "shots.csv")
     assert 12 <= len(manifest) <= 18
@@ -42,7 +56,7 @@ def test_shipped_demo_is_small_and_complete():
                    "speed_nominal_m_s", "spin_rpm", "seam_deg", "notes"):
         assert column in next(iter(manifest.values()))
     assert set(_rows(SAMPLE_RUNS / "truth.csv")) == set(manifest)
-    assert set(_rows(SAMPLE_RUNS / "reviews.csv")) <= set(manifest)
+    assert set(_rows(SAMPLE_RUNS / "analyst_marks.csv")) <= set(manifest)
     assert not list(SAMPLE_RUNS.glob("*.tif"))  # drawn at the first run, not shipped
     total = sum(p.stat().st_size for p in SAMPLE_RUNS.iterdir() if p.is_file())
     assert total < 100e3
@@ -54,10 +68,10 @@ def test_shipped_demo_is_small_and_complete():
 
 
 def test_shipped_files_are_what_the_recipe_writes(tmp_path):
-    """shots.csv, truth.csv (the synthetic family's own truth) and reviews.csv are rewritten byte
+    """shots.csv, truth.csv (the synthetic family's own truth) and analyst_marks.csv are rewritten byte
     for byte: a change of the recipe or of the family shows here."""
     _recipe().write_inputs(tmp_path)
-    for name in ("shots.csv", "truth.csv", "reviews.csv"):
+    for name in ("shots.csv", "truth.csv", "analyst_marks.csv"):
         assert (tmp_path / name).read_bytes() == (SAMPLE_RUNS / name).read_bytes(), name
 
 
@@ -172,7 +186,7 @@ def _small_bundle(tmp_path_factory):
     folder = tmp_path_factory.mktemp("sample_runs")
     with _drawn_small(folder):
         _recipe().write_inputs(folder)
-    for name in ("shots.csv", "truth.csv", "reviews.csv"):
+    for name in ("shots.csv", "truth.csv", "analyst_marks.csv"):
         rows = list(csv.reader(io.StringIO((folder / name).read_text(encoding="utf-8"))))
         buf = io.StringIO()
         csv.writer(buf, lineterminator="\n").writerows(
@@ -232,7 +246,7 @@ def test_demo_command_without_window(small_demo, small_recipe, capsys):
     assert len(PdfReader(str(sheet)).pages) == 1 + 1 + math.ceil(len(DEMO_SUBSET) / 2)
     by_shot = _rows(table)
     assert list(by_shot) == list(DEMO_SUBSET)
-    reviews = _rows(small_recipe / "reviews.csv")
+    reviews = _rows(small_recipe / "analyst_marks.csv")
     for shot_id, row in by_shot.items():
         review = reviews.get(shot_id)
         if review is not None and review["unusable_reason"]:  # even where processing failed
@@ -256,7 +270,7 @@ def test_demo_command_without_window(small_demo, small_recipe, capsys):
         assert session["sw07"].pick.status == "unusable"
     # the bundled folder is never written to; the frames are drawn beside the session
     assert sorted(p.name for p in small_recipe.iterdir()) == [
-        "reviews.csv", "shots.csv", "truth.csv"]
+        "analyst_marks.csv", "shots.csv", "truth.csv"]
     assert sorted(p.name for p in (small_demo / "frames").glob("*.tif")) == [
         f"{s}_{ab}.tif" for s in DEMO_SUBSET for ab in "ab"]
 

@@ -98,3 +98,34 @@ def test_an_unknown_ball_type_is_refused_at_import(tmp_path, capsys):
     assert "baseball, cricket, softball" in err
     with Session.open(tmp_path / "s.h5", writable=False) as s:
         assert list(s) == ["S0"]  # the rulebook word in any case is fine
+
+
+@pytest.mark.parametrize("row", ["S1,6e-O5,0.08,71.6,10,", "S1,2e-05,-0.08,71.6,10,",
+                                 "S1,2e-05,0.08,71.6,10,,extra cell"],
+                         ids=["bad-number", "negative-scale", "too-many-cells"])
+def test_frames_of_a_refused_row_are_not_called_unnamed(tmp_path, row):
+    src = write_shot_folder(tmp_path / "src", 2)
+    write_pair(src, "S9", (1.0, 0.0))  # named by no row
+    lines = (src / "shots.csv").read_text().splitlines()
+    (src / "shots.csv").write_text("\n".join([*lines[:2], row]) + "\n")
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == ["S0"] and "line 3 (shot S1)" in report.problems[0]
+    assert report.notes == ["2 image file(s) not named in shots.csv: S9_a.tif, S9_b.tif"]
+
+
+def test_the_frame_left_of_a_half_pair_is_not_called_unnamed(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    (src / "S1_b.tif").unlink()
+    report = import_folder(src, tmp_path / "s.h5")
+    assert "frame S1_b.<tif|png> not found" in report.problems[0] and report.notes == []
+
+
+@pytest.mark.parametrize("repeat", ["S1,2e-05,0.08,71.6,10,shot 1", "S1,3e-05,0.08,71.6,10,"],
+                         ids=["identical", "differing"])
+def test_a_shot_id_given_twice_is_named_as_such(tmp_path, repeat, capsys):
+    src = write_shot_folder(tmp_path / "src", 2, extra_rows=(repeat,))
+    assert main(["import", str(src), str(tmp_path / "s8.h5")]) == 1
+    err = capsys.readouterr().err
+    assert err == "wakeline: shots.csv line 4: shot id S1 is given twice (also line 3)\n"
+    with Session.open(tmp_path / "s8.h5", writable=False) as s:
+        assert list(s) == ["S0", "S1"] and s["S1"].metadata["dt_s"] == 2e-5

@@ -163,7 +163,9 @@ def test_add_review_and_agreement_commands(session_path, tmp_path, capsys):
     assert "review 'Bea' of 1 shot(s)" in out and "lower: 1 shot(s) in both" in out
     assert main(["agreement", str(session_path)]) == 0
     assert "mean difference -2.00 deg" in capsys.readouterr().out
-    assert main(["agreement", str(session_path), "--layer", "Nobody"]) == 1
+    with pytest.raises(SystemExit) as usage:  # bad usage: exit 2
+        main(["agreement", str(session_path), "--layer", "Nobody"])
+    assert usage.value.code == 2
     assert "--layer: no review 'Nobody'" in capsys.readouterr().err
     assert main(["add-review", str(session_path), str(tmp_path / "missing.csv")]) == 1
     assert capsys.readouterr().err.strip().endswith("missing.csv: review table not found")

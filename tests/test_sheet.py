@@ -199,9 +199,11 @@ def test_sheet_command(reviewed_session, tmp_path, capsys):
                  "--per-page", "1", "--column", "seam_deg"]) == 0
     assert out.stat().st_size > 0
     assert f"{out}: 5 page(s), 3 shot(s)" in capsys.readouterr().out  # with the conditions
-    assert main(["sheet", reviewed_session, "-o", str(out), "--status", "finished"]) == 1
-    err = capsys.readouterr().err.strip()
-    assert err.startswith("wakeline: --status: unknown review status") and "\n" not in err
+    with pytest.raises(SystemExit) as exc:
+        main(["sheet", reviewed_session, "-o", str(out), "--status", "finished"])
+    assert exc.value.code == 2
+    err = capsys.readouterr().err.strip().splitlines()[-1]
+    assert err.startswith("wakeline sheet: error: argument --status: unknown review status")
     with pytest.raises(SystemExit) as exc:
         main(["sheet", reviewed_session, "-o", str(out), "--per-page", "5"])
     assert exc.value.code == 2

@@ -14,6 +14,7 @@ import traceback
 from datetime import UTC, datetime
 from pathlib import Path
 
+from app.cli.options import UsageError
 from core import WakelineError, __version__
 
 # Each module adds its subcommands with add_commands(subparsers); each subcommand sets func.
@@ -30,9 +31,11 @@ def build_parser() -> argparse.ArgumentParser:
         "on that session.",
     )
     parser.add_argument("--version", action="version", version=f"wakeline {__version__}")
-    subparsers = parser.add_subparsers(title="commands", metavar="COMMAND")
+    subparsers = parser.add_subparsers(title="commands", metavar="COMMAND", prog="wakeline")
     for name in COMMAND_MODULES:
         importlib.import_module(name).add_commands(subparsers)
+    for command in subparsers.choices.values():  # a bad value found late is told by its command
+        command.set_defaults(command_parser=command)
     return parser
 
 
@@ -51,17 +54,41 @@ def window_request(argv: list[str]) -> tuple[bool, str | None]:
     return False, None
 
 
+def negative_values_attached(argv: list[str]) -> list[str]:
+    """``--dt -6e-5`` as ``--dt=-6e-5``: argparse takes a word starting with '-' for an option
+    unless it is a plain negative number ("-1", "-0.5"), so a negative value in exponent form
+    was refused as a missing value before the option's own check could say what is wrong."""
+    out: list[str] = []
+    for word in argv:
+        option = out[-1] if out and "--" not in out else ""
+        if option.startswith("--") and "=" not in option and _is_negative_number(word):
+            out[-1] = f"{option}={word}"
+        else:
+            out.append(word)
+    return out
+
+
+def _is_negative_number(word: str) -> bool:
+    try:
+        float(word)
+    except ValueError:
+        return False
+    return word.startswith("-")
+
+
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else list(argv)
     window, session = window_request(argv)
     func = None
     if not window:
-        args = build_parser().parse_args(argv)
+        args = build_parser().parse_args(negative_values_attached(argv))
         func = getattr(args, "func", None)
     try:
         if func is None:
             return open_window(session)
         return int(func(args) or 0)
+    except UsageError as exc:
+        args.command_parser.error(str(exc))  # exits 2, as argparse does for a bad value
     except WakelineError as exc:
         print(f"wakeline: {exc}", file=sys.stderr)
         return 1

@@ -6,6 +6,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from app.cli.options import UsageError
 from core import WakelineError
 
 
@@ -21,7 +22,7 @@ def _add_conditions(subparsers) -> None:
         help="group the shots into conditions and print their statistics",
         description="Group a session's shots by manifest columns (repeat launches of one "
         "condition) and print, per condition, the usable shots and the mean, standard "
-        "deviation and 95 %% interval (Student t on the shot-to-shot spread) of each side's "
+        "deviation and 95 % interval (Student t on the shot-to-shot spread) of each side's "
         "final angle (the analyst's, else the proposal), of upper - lower and of the wake "
         "deflection, and the Reynolds number range. --by keeps the grouping in the session "
         "(the window and 'wakeline table --by' use it). --ensemble also correlates each "
@@ -85,7 +86,7 @@ def grouping_of(session, by: list[str] | None) -> list[str]:
 
     Raises
     ------
-    core.WakelineError
+    app.cli.options.UsageError
         A column no shot of the session has.
     """
     from core.conditions import default_columns, grouping_columns
@@ -97,7 +98,7 @@ def grouping_of(session, by: list[str] | None) -> list[str]:
     available = grouping_columns(records)
     unknown = [c for c in by if c not in available]
     if unknown:
-        raise WakelineError(f"--by: no column {unknown[0]!r} with values in {session.path.name} "
+        raise UsageError(f"argument --by: no column {unknown[0]!r} with values in {session.path.name} "
                             f"(columns: {', '.join(available) or 'none'})")
     return by
 
@@ -203,7 +204,7 @@ def run_agreement(args: argparse.Namespace) -> int:
                                 "one with 'wakeline add-review')")
         name = args.layer or latest_layer(layers).name
         if name not in layers:
-            raise WakelineError(f"--layer: no review {name!r} in {args.session} (reviews: "
+            raise UsageError(f"argument --layer: no review {name!r} in {args.session} (reviews: "
                                 f"{', '.join(layers)})")
         agreement = compare_reviews(session.values(), layers[name])
     for line in agreement_lines(agreement):

@@ -11,7 +11,7 @@ import sys
 from pathlib import Path
 
 from app.cli import display
-from app.cli.options import known_ball_types, whole_count
+from app.cli.options import failure_cause, known_ball_types, whole_count
 from core import WakelineError
 
 SAMPLE_RUNS = Path(__file__).resolve().parents[2] / "sample_runs"
@@ -20,7 +20,10 @@ DEMO_SHEET = "demo_sheet.pdf"
 DEMO_TABLE = "demo_table.csv"
 DEMO_REVIEWER = "demo analyst (invented)"
 DEMO_NAME = "Seam-angle sweep at 30 m/s (invented demo)"
-DEMO_INPUTS = ("shots.csv", "truth.csv", "reviews.csv", "README.md")
+#: The invented analyst's marks and unusable shots, replayed after processing (not a table for
+#: 'wakeline add-review': the demo's review is decided against the proposals as measured).
+DEMO_MARKS = "analyst_marks.csv"
+DEMO_INPUTS = ("shots.csv", "truth.csv", DEMO_MARKS, "README.md")
 RECIPE = "make_demo.py"  # draws the frames (too large to ship)
 DRAW_PEAK_BYTES = 0.3e9  # memory to draw one shot (235 MB peak measured for a 1280 x 1024 pair)
 
@@ -40,7 +43,9 @@ def _add_demo(subparsers) -> None:
         "next to the session instead.",
     )
     p.add_argument("--out", type=Path, metavar="DIR",
-                   help="where the demo session goes (default: ~/.local/share/wakeline/demo)")
+                   help="where the demo session goes (default: the folder demo in "
+                   "$WAKELINE_HOME when set, else in $XDG_DATA_HOME/wakeline, else in "
+                   "~/.local/share/wakeline)")
     p.add_argument("--no-window", action="store_true",
                    help="do not open the window; write the shot sheet and the table")
     p.add_argument("--fresh", action="store_true",
@@ -61,7 +66,8 @@ def demo_dir(out: Path | None) -> Path:
     try:
         folder.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise WakelineError(f"{folder}: cannot create the demo folder ({exc.strerror})") from None
+        raise WakelineError(f"{folder}: cannot create the demo folder "
+                            f"({failure_cause(exc)})") from None
     return folder
 
 
@@ -233,12 +239,12 @@ def process_demo(session_path: Path, workers: int | None = None) -> None:
                 raise WakelineError(f"{session_path}: processing stopped; run the demo again")
             done = f"processed {len(report.processed)} shot(s)" + (
                 f", {len(report.failed)} failed (see above)" if report.failed else "")
-        applied = replay_reviews(session, session_path.parent / "frames" / "reviews.csv")
+        applied = replay_reviews(session, session_path.parent / "frames" / DEMO_MARKS)
     print(f"{session_path}: {done}"
           + (f"; replayed {applied} review decision(s)" if applied else ""))
 
 
-def replay_reviews(session, reviews_csv: Path) -> int:
+def replay_reviews(session, marks_csv: Path) -> int:
     """Replay the invented analyst's review on shots nobody has touched yet.
 
     Each row gives the analyst's marks (deg) or a reason the shot is unusable (applied whether
@@ -248,10 +254,10 @@ def replay_reviews(session, reviews_csv: Path) -> int:
     """
     from core.store import ProcessState, ReviewStatus
 
-    if not reviews_csv.is_file():
+    if not marks_csv.is_file():
         return 0
     applied = 0
-    with open(reviews_csv, encoding="utf-8", newline="") as fh:
+    with open(marks_csv, encoding="utf-8", newline="") as fh:
         for row in csv.DictReader(fh):
             shot_id = row["shot"]
             if shot_id not in session or session.history(shot_id):

@@ -3,9 +3,18 @@
 from __future__ import annotations
 
 import argparse
+import errno
+import math
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 from core import WakelineError
+
+
+class UsageError(WakelineError):
+    """A bad option value found only once the command has looked at its files (a column the
+    session lacks): bad usage, exit 2, told like argparse's own errors."""
 
 
 def known_ball_types() -> list[str]:
@@ -23,6 +32,33 @@ def whole_count(text: str) -> int:
         raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
     if value < 0:
         raise argparse.ArgumentTypeError(f"{value} (use 0 or more)")
+    return value
+
+
+def positive_number(text: str) -> float:
+    """A finite number above 0 (``--dt``, ``--scale``, ``--ball-diameter``)."""
+    value = finite_number(text)
+    if not value > 0:
+        raise argparse.ArgumentTypeError(f"must be positive, got {text}")
+    return value
+
+
+def zero_or_positive(text: str) -> float:
+    """A finite number of 0 or more (``--normalise``, where 0 is off)."""
+    value = finite_number(text)
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"must be 0 (off) or positive, got {text}")
+    return value
+
+
+def finite_number(text: str) -> float:
+    """A number that is not infinite or NaN (``--flight-deg``, ``--air-temp``)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+    if not math.isfinite(value):
+        raise argparse.ArgumentTypeError(f"{text!r} is not a finite number")
     return value
 
 
@@ -54,6 +90,39 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
         if any(same_place(out, other) for other in seen):
             raise WakelineError(f"{out}: given for both outputs; choose another output file")
         seen.append(out)
+
+
+#: Why a file cannot be written, in plain words, by error number.
+WRITE_FAILURES = {
+    errno.EROFS: "read-only file system",
+    errno.EACCES: "no permission to write in this folder",
+    errno.EPERM: "no permission to write in this folder",
+    errno.ENOSPC: "the disk is full",
+    errno.EDQUOT: "over the disk quota",
+    errno.ENOENT: "the folder does not exist",
+}
+
+
+@contextmanager
+def writing(out: Path) -> Iterator[None]:
+    """Tell a failure to write the output file ``out`` (or the temporary file beside it the
+    write goes through) as "OUT: cannot write here (cause)"; other failures pass unchanged."""
+    try:
+        yield
+    except OSError as exc:
+        if exc.filename is None or not _is_output(Path(exc.filename), Path(out)):
+            raise
+        raise WakelineError(f"{out}: cannot write here ({failure_cause(exc)})") from None
+
+
+def failure_cause(exc: OSError) -> str:
+    """Why a write failed, in plain words ("read-only file system")."""
+    return WRITE_FAILURES.get(exc.errno) or exc.strerror or str(exc)
+
+
+def _is_output(path: Path, out: Path) -> bool:
+    """``path`` is ``out`` or a temporary sibling of it (``out.csv.tmp``, ``out.pdf.part``)."""
+    return path.parent == out.parent and path.name.startswith(out.name)
 
 
 def session_frame_files(session) -> list[Path]:

@@ -7,9 +7,14 @@ import csv
 import json
 from pathlib import Path
 
-import numpy as np
-
-from app.cli.options import check_outputs, known_ball_types
+from app.cli.options import (
+    check_outputs,
+    finite_number,
+    known_ball_types,
+    positive_number,
+    writing,
+    zero_or_positive,
+)
 from app.review.text import shot_rows
 from core import WakelineError
 from core.store.files import atomic_write
@@ -25,19 +30,22 @@ def add_commands(subparsers) -> None:
     )
     p.add_argument("frame_a", help="frame A (TIFF or PNG), or a two-page TIFF holding both frames")
     p.add_argument("frame_b", nargs="?", help="frame B (omit when frame_a is a two-page TIFF)")
-    p.add_argument("--dt", type=float, metavar="S", help="time between the frames, seconds")
-    p.add_argument("--scale", type=float, metavar="MM_PER_PX", help="image scale, mm per pixel")
-    p.add_argument("--ball-diameter", type=float, metavar="MM", help="ball diameter, mm")
+    p.add_argument("--dt", type=positive_number, metavar="S",
+                   help="time between the frames, seconds")
+    p.add_argument("--scale", type=positive_number, metavar="MM_PER_PX",
+                   help="image scale, mm per pixel")
+    p.add_argument("--ball-diameter", type=positive_number, metavar="MM",
+                   help="ball diameter, mm")
     p.add_argument("--ball-type", choices=known_ball_types(),
                    help="use the rulebook nominal diameter")
     p.add_argument("--no-ball", action="store_true", help="no ball in the picture: PIV only")
-    p.add_argument("--flight-deg", type=float, metavar="D",
+    p.add_argument("--flight-deg", type=finite_number, metavar="D",
                    help="flight direction override, deg (0 = +x, 90 = toward the top)")
-    p.add_argument("--air-temp", type=float, metavar="C",
+    p.add_argument("--air-temp", type=finite_number, metavar="C",
                    help="air temperature for the Reynolds number, deg C (default 20)")
     p.add_argument("--no-glare-mask", action="store_true",
                    help="correlate saturated glare too (by default it is left out)")
-    p.add_argument("--normalise", type=float, metavar="SPACINGS", default=3.0,
+    p.add_argument("--normalise", type=zero_or_positive, metavar="SPACINGS", default=3.0,
                    help="local intensity normalisation window in particle spacings (0: off; "
                         "default 3)")
     p.add_argument("--background", type=Path, metavar="FRAME",
@@ -53,11 +61,6 @@ def run_pair(args: argparse.Namespace) -> int:
     from core.images import read_frame, read_frame_pair
     from core.shot import ShotSettings, measure_shot
 
-    _check_positive(args.dt, "--dt")
-    _check_positive(args.scale, "--scale")
-    _check_positive(args.ball_diameter, "--ball-diameter")
-    if args.normalise < 0:
-        raise WakelineError(f"--normalise: must be 0 (off) or positive, got {args.normalise}")
     inputs = [p for p in (args.frame_a, args.frame_b, args.background) if p]
     check_outputs([args.json, args.vectors], inputs=inputs)
     frame_a, frame_b = read_frame_pair(args.frame_a, args.frame_b)
@@ -89,32 +92,22 @@ def run_pair(args: argparse.Namespace) -> int:
     return 0
 
 
-def _check_positive(value: float | None, option: str) -> None:
-    if value is not None and not (np.isfinite(value) and value > 0):
-        raise WakelineError(f"{option}: must be a positive number, got {value}")
-
-
 def _write_text(path: Path, text: str) -> None:
-    try:
-        with atomic_write(path) as tmp:
-            tmp.write_text(text, encoding="utf-8")
-    except OSError as exc:
-        raise WakelineError(f"{path}: cannot write ({exc.strerror})") from None
+    with writing(path), atomic_write(path) as tmp:
+        tmp.write_text(text, encoding="utf-8")
 
 
 def write_vectors_csv(path: Path, field) -> None:
     """CSV of every grid vector (masked ones as NaN with valid 0), image coordinates, px."""
-    try:
-        with atomic_write(path) as tmp, open(tmp, "w", newline="", encoding="utf-8") as fh:
-            writer = csv.writer(fh)
-            writer.writerow(["x_px", "y_px", "dx_px", "dy_px", "valid"])
-            for x, y, dx, dy, ok in zip(
-                field.x_px.ravel(), field.y_px.ravel(), field.dx_px.ravel(),
-                field.dy_px.ravel(), field.valid.ravel(),
-            ):
-                writer.writerow([f"{x:.2f}", f"{y:.2f}", f"{dx:.4f}", f"{dy:.4f}", int(bool(ok))])
-    except OSError as exc:
-        raise WakelineError(f"{path}: cannot write ({exc.strerror})") from None
+    with writing(path), atomic_write(path) as tmp, \
+            open(tmp, "w", newline="", encoding="utf-8") as fh:
+        writer = csv.writer(fh)
+        writer.writerow(["x_px", "y_px", "dx_px", "dy_px", "valid"])
+        for x, y, dx, dy, ok in zip(
+            field.x_px.ravel(), field.y_px.ravel(), field.dx_px.ravel(),
+            field.dy_px.ravel(), field.valid.ravel(),
+        ):
+            writer.writerow([f"{x:.2f}", f"{y:.2f}", f"{dx:.4f}", f"{dy:.4f}", int(bool(ok))])
 
 
 def describe(summary: ShotSummary) -> str:

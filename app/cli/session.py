@@ -4,13 +4,21 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import csv
 import json
 import signal
 import sys
 from pathlib import Path
 
 from app.cli.conditions import column_list
-from app.cli.options import check_outputs, known_ball_types, session_frame_files, whole_count
+from app.cli.options import (
+    UsageError,
+    check_outputs,
+    known_ball_types,
+    session_frame_files,
+    whole_count,
+    writing,
+)
 from core import WakelineError
 
 
@@ -26,8 +34,11 @@ def _add_import(subparsers) -> None:
         help="import a folder of shots into a session",
         description="Import the shots listed in SRC_DIR/shots.csv (columns shot, dt_s, "
         "scale_mm_per_px, ball_diameter_mm, and optional ball_type, speed_nominal_m_s, "
-        "spin_rpm, spin_axis_deg, seam_deg, flight_deg, notes; other columns are kept as "
-        "metadata). "
+        "spin_rpm, spin_axis_deg, seam_deg, flight_deg, air_temp_c, camera, notes; other "
+        "columns are kept as metadata). An empty scale_mm_per_px: the scale from the fitted "
+        "ball and its diameter; air_temp_c sets the air's viscosity for the Reynolds number "
+        "(20 deg C when empty); shots with the same camera share a background image when the "
+        "processing settings ask for one. "
         "Frames are <shot>_a.<tif|png> and <shot>_b.<tif|png>, or one two-page <shot>.tif. "
         "The session is created if it does not exist. Bad rows are reported by line and "
         "shot; the good ones are imported and the exit code is 1.",
@@ -59,9 +70,11 @@ def _add_process(subparsers) -> None:
                    help="tcp://HOST:PORT of a dask scheduler: measure on that cluster "
                    "(its workers must see the session and frame files at the same paths)")
     p.add_argument("--force", action="store_true", help="measure again even if up to date")
-    p.add_argument("--settings", type=Path, metavar="JSON",
-                   help="new processing settings for the session, e.g. "
-                   '{"piv": {"passes": [{"window_px": 64, "overlap": 0.5}]}, "find_ball": true}')
+    p.add_argument("--settings", type=settings_source, metavar="JSON",
+                   help="new processing settings for the session: a JSON file, or the JSON "
+                   "itself in quotes (text starting with '{'), e.g. --settings "
+                   """'{"piv": {"passes": [{"window_px": 64, "overlap": 0.5}]}, """
+                   """"find_ball": true}' or --settings my_settings.json""")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=run_process)
 
@@ -76,7 +89,8 @@ def _add_table(subparsers) -> None:
         "With --by: one row per condition instead (see 'wakeline conditions').",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
-    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.csv")
+    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.csv",
+                   help="the CSV file to write; - writes the table to standard output")
     p.add_argument("--by", nargs="?", const=[], type=column_list, metavar="COLUMNS",
                    help="one row per condition of these comma-separated manifest columns "
                    "(alone: the session's grouping): shots, mean, sd and 95 %% interval of "
@@ -158,11 +172,39 @@ def _tell_problems(session) -> bool:
     return bool(session.problems)
 
 
-def _read_settings(path: Path) -> dict:
+def settings_source(text: str) -> Path | dict:
+    """``--settings``: inline JSON (text starting with ``{``) read now, else a file's path.
+
+    Raises
+    ------
+    argparse.ArgumentTypeError
+        Inline text that is not a JSON object (bad usage, exit 2).
+    """
+    if not text.lstrip().startswith("{"):
+        return Path(text)
+    try:
+        data = json.loads(text)
+    except ValueError as exc:
+        raise argparse.ArgumentTypeError(f"not valid JSON ({exc})") from None
+    if not isinstance(data, dict):
+        raise argparse.ArgumentTypeError("expected a JSON object of settings")
+    return data
+
+
+def _read_settings(source: Path | dict) -> dict:
+    """The settings of ``--settings``: given inline, or read from the JSON file named."""
+    if isinstance(source, dict):
+        return source
+    path = source
     try:
         data = json.loads(path.read_text(encoding="utf-8"))
     except FileNotFoundError:
-        raise WakelineError(f"{path}: file not found") from None
+        raise WakelineError(f"{path}: settings file not found (give a JSON file, or the "
+                            "JSON itself starting with '{')") from None
+    except IsADirectoryError:
+        raise WakelineError(f"{path}: is a folder, not a settings file") from None
+    except UnicodeDecodeError:
+        raise WakelineError(f"{path}: not UTF-8 text") from None
     except ValueError as exc:
         raise WakelineError(f"{path}: not valid JSON ({exc})") from None
     if not isinstance(data, dict):
@@ -201,26 +243,50 @@ def _process_summary(path: Path, report) -> int:
 
 def run_table(args: argparse.Namespace) -> int:
     from core.store import Session, write_table_csv
+    from core.store.table import session_table_rows
 
     if args.ensemble and args.by is None:
-        raise WakelineError("--ensemble: goes with --by (one row per condition)")
+        raise UsageError("argument --ensemble: goes with --by (one row per condition)")
+    to_stdout = str(args.output) == STDOUT
     with Session.open(args.session, writable=False) as session:
-        check_outputs([args.output], session.path, session_frame_files(session))
+        if not to_stdout:
+            check_outputs([args.output], session.path, session_frame_files(session))
         if args.by is not None:
-            return _condition_table(session, args)
-        count = write_table_csv(session, args.output)
+            return _condition_table(session, args, to_stdout)
+        if to_stdout:
+            _print_csv(*session_table_rows(session))
+            return 0
+        with writing(args.output):
+            count = write_table_csv(session, args.output)
     print(f"{args.output}: {count} shot(s)")
     return 0
 
 
-def _condition_table(session, args: argparse.Namespace) -> int:
+#: ``-o -``: the table goes to standard output.
+STDOUT = "-"
+
+
+def _print_csv(header: list[str], rows: list[list]) -> None:
+    """A table as CSV on standard output, cells as the table files have them."""
+    from core.store.table import cell_text
+
+    writer = csv.writer(sys.stdout)
+    writer.writerow(header)
+    writer.writerows([cell_text(v) for v in row] for row in rows)
+
+
+def _condition_table(session, args: argparse.Namespace, to_stdout: bool = False) -> int:
     from app.cli.conditions import condition_ensembles, grouping_of
-    from core.conditions import group_conditions, write_condition_csv
+    from core.conditions import condition_table, group_conditions, write_condition_csv
 
     by = grouping_of(session, args.by or None)
     ensembles = None
     if args.ensemble:
         ensembles = condition_ensembles(session, group_conditions(session.values(), by))
-    count = write_condition_csv(session, args.output, by, ensembles)
+    if to_stdout:
+        _print_csv(*condition_table(group_conditions(session.values(), by), by, ensembles))
+        return 0
+    with writing(args.output):
+        count = write_condition_csv(session, args.output, by, ensembles)
     print(f"{args.output}: {count} condition(s) by {', '.join(by) or 'nothing'}")
     return 0

@@ -5,7 +5,8 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from app.cli.options import check_outputs, session_frame_files
+from app.cli.options import check_outputs, session_frame_files, writing
+from core import WakelineError
 
 
 def add_commands(subparsers) -> None:
@@ -25,12 +26,12 @@ def _add_sheet(subparsers) -> None:
         "metadata, review). Needs no display.",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
-    p.add_argument("-o", "--output", type=Path, required=True, metavar="OUT.pdf",
-                   help="the PDF to write")
+    p.add_argument("-o", "--output", type=_pdf_file, required=True, metavar="OUT.pdf",
+                   help="the PDF file to write")
     p.add_argument("--shots", nargs="+", metavar="ID", help="only these shots")
     p.add_argument("--per-page", type=int, default=2, choices=(1, 2, 3, 4), metavar="N",
                    help="shot panels per page: 1, 2 (default), 3 or 4")
-    p.add_argument("--status", metavar="LIST",
+    p.add_argument("--status", type=_statuses, metavar="LIST",
                    help="only shots with these review statuses, comma-separated, e.g. "
                    "accepted,adjusted (statuses: to review, accepted, adjusted, unusable)")
     p.add_argument("--column", metavar="NAME",
@@ -58,11 +59,26 @@ def _vorticity_limit(text: str):
     return value
 
 
+def _pdf_file(text: str) -> Path:
+    if text == "-":
+        raise argparse.ArgumentTypeError("the shot sheet is a PDF file: give its file name "
+                                         "('-', standard output, is for 'wakeline table')")
+    return Path(text)
+
+
+def _statuses(text: str):
+    from app.sheet import parse_statuses
+
+    try:
+        return parse_statuses(text)
+    except WakelineError as exc:
+        raise argparse.ArgumentTypeError(str(exc).removeprefix("--status: ")) from None
+
+
 def run_sheet(args: argparse.Namespace) -> int:
-    from app.sheet import make_sheet, parse_statuses
+    from app.sheet import make_sheet
     from core.store import Session
 
-    statuses = parse_statuses(args.status)
     with Session.open(args.session, writable=False) as session:
         check_outputs([args.output], session.path, session_frame_files(session))
         ensembles = None
@@ -72,8 +88,10 @@ def run_sheet(args: argparse.Namespace) -> int:
 
             records = list(session.values())
             ensembles = condition_ensembles(session, sheet_conditions(session, records)[1])
-        report = make_sheet(session, args.output, shot_ids=args.shots, per_page=args.per_page,
-                            statuses=statuses, column=args.column,
-                            vorticity_limit_1_s=args.vorticity_limit, ensembles=ensembles)
+        with writing(args.output):
+            report = make_sheet(session, args.output, shot_ids=args.shots,
+                                per_page=args.per_page, statuses=args.status,
+                                column=args.column, vorticity_limit_1_s=args.vorticity_limit,
+                                ensembles=ensembles)
     print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
     return 0

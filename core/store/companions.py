@@ -9,7 +9,7 @@ import stat
 from pathlib import Path
 
 from core import WakelineError
-from core.store.files import same_place
+from core.store.files import on_read_only_file_system, same_place
 from core.store.lock import SessionReadOnly
 
 
@@ -49,6 +49,9 @@ def session_path(path) -> Path:
 def check_replaceable(path: Path) -> None:
     """Refuse to edit a session whose file is read-only: saving replaces the file, which the
     folder's permissions would allow, silently undoing the chmod."""
+    if on_read_only_file_system(path):
+        raise SessionReadOnly(f"{path}: cannot edit the session here (read-only file system); "
+                              "open it read-only, or copy it to a writable folder to edit it")
     mode = stat.S_IMODE(path.stat().st_mode)
     if not mode & 0o222 or not os.access(path, os.W_OK):
         raise SessionReadOnly(f"{path}: the session file is read-only (mode {mode:o}); open it "

@@ -87,6 +87,15 @@ def atomic_write(path, suffix: str = ".tmp", like: Path | None = None) -> Iterat
     fsync_dir(path.parent)
 
 
+def on_read_only_file_system(path: Path) -> bool:
+    """``path`` (a file or folder) lies on a file system mounted read-only (False where it
+    cannot be told)."""
+    try:
+        return bool(os.statvfs(path).f_flag & os.ST_RDONLY)
+    except (AttributeError, OSError):
+        return False
+
+
 def same_place(path: Path, other: Path) -> bool:
     """``path`` names ``other`` (through any link, relative path or hard link) or lies in it."""
     real, real_other = Path(path).resolve(), Path(other).resolve()

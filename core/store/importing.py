@@ -29,7 +29,8 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     """Import a folder of frame pairs described by its ``shots.csv`` into a session.
 
     The session is created when it does not exist. Good rows are imported even when other rows
-    are bad; each bad row or missing file is reported with its line and shot. A row whose shot
+    are bad; each bad row or missing file is reported with its line and shot. A shot id given
+    again is refused on every line after its first. A row whose shot
     is already in the session with the same frames and values is left alone (a stopped import
     run again goes on with the rest).
 
@@ -61,13 +62,19 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     report = ImportReport()
     with session:
         folder = _Folder(src_dir, session, embed, ball_types)
+        first_lines: dict[str, int] = {}  # shot id -> the line that gives it first
         for number, (line, metadata, problem) in enumerate(rows):
             if should_stop is not None and should_stop():
                 report.notes.append(f"import stopped after {number} of {len(rows)} rows of "
                                     f"{MANIFEST_NAME}; import the folder again for the rest")
                 break
             shot_id = metadata.get("shot", "")
+            folder.name_files(shot_id)  # named, even when its row is refused
             where = f"{MANIFEST_NAME} line {line}" + (f" (shot {shot_id})" if shot_id else "")
+            first = first_lines.setdefault(shot_id, line) if shot_id else line
+            if first != line:
+                where = f"{MANIFEST_NAME} line {line}"
+                problem = f"shot id {shot_id} is given twice (also line {first})"
             problem = problem or folder.import_row(metadata)
             if problem is None:
                 report.already.append(shot_id)
@@ -112,7 +119,6 @@ class _Folder:
         paths, problem = _find_frames(shot_id, self.listing)
         if problem:
             return problem
-        self.used.update(p.name.lower() for p in paths)
         meta = {k: v for k, v in metadata.items() if k != "shot"}
         if shot_id in self.session:
             if _same_shot(self.session[shot_id], paths, meta):
@@ -126,6 +132,12 @@ class _Folder:
             return str(exc).removeprefix(f"shot {shot_id}: ")
         self.ids[shot_id.casefold()] = shot_id
         return ""
+
+    def name_files(self, shot_id: str) -> None:
+        """Count the image files a row of ``shot_id`` names as used, whether or not the row is
+        imported: the note of unused files lists only those no row names."""
+        stem = shot_id.lower()
+        self.used.update(n for n in _frame_names(stem) if n in self.listing)
 
     def unused_note(self) -> list[str]:
         extra = sorted(set(self.listing) - self.used)
@@ -148,6 +160,12 @@ def _frame_listing(src_dir: Path) -> dict[str, Path]:
     """Image files of the folder by lower-case name."""
     return {p.name.lower(): p for p in src_dir.iterdir()
             if p.is_file() and p.suffix.lower() in FRAME_SUFFIXES}
+
+
+def _frame_names(stem: str) -> list[str]:
+    """Every lower-case file name a shot's frames may have: a pair, or one two-page TIFF."""
+    return [f"{stem}_{ab}{s}" for ab in ("a", "b") for s in FRAME_SUFFIXES] + [
+        f"{stem}.tif", f"{stem}.tiff"]
 
 
 def _find_frames(shot_id: str, listing: dict[str, Path]) -> tuple[list[Path], str]:

@@ -6,6 +6,7 @@ this host is taken over, one of another host is respected.
 
 from __future__ import annotations
 
+import errno
 import getpass
 import json
 import os
@@ -94,6 +95,9 @@ class Lock:
                 raise SessionReadOnly(f"{self.session_path}: its folder is not writable; open "
                                       "the session read-only") from None
             except OSError as exc:  # e.g. a full disk
+                if exc.errno == errno.EROFS:
+                    raise SessionReadOnly(f"{self.session_path}: cannot write in its folder "
+                                          "(read-only file system)") from None
                 raise WakelineError(f"{self.path}: cannot write the session lock "
                                     f"({exc.strerror or exc})") from None
             if created:

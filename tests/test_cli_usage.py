@@ -1,0 +1,203 @@
+"""Options of the `wakeline` commands as a new user meets them: what --help promises works, a
+bad value is bad usage (exit 2, the command's own name on the error line), outputs to standard
+output, and errors that name the user's own file and the real cause."""
+
+from __future__ import annotations
+
+import json
+
+import pytest
+from data.session_helpers import FAST_PIV, write_shot_folder
+
+from app.cli import main
+from core.store import Session, import_folder
+
+
+@pytest.fixture
+def session_path(tmp_path):
+    import_folder(write_shot_folder(tmp_path / "src", 2), tmp_path / "s.h5")
+    return tmp_path / "s.h5"
+
+
+def usage_error(argv, capsys) -> str:
+    """The error line of a command refused as bad usage (exit 2)."""
+    with pytest.raises(SystemExit) as stop:
+        main(argv)
+    assert stop.value.code == 2
+    return capsys.readouterr().err.strip().splitlines()[-1]
+
+
+# --settings: a JSON file or the JSON itself
+
+def test_settings_given_inline_as_the_help_shows(session_path, capsys):
+    settings = {"piv": FAST_PIV.to_dict(), "find_ball": False}
+    code = main(["process", str(session_path), "--settings", json.dumps(settings),
+                 "--workers", "0", "--quiet"])
+    assert code == 0, capsys.readouterr().err
+    with Session.open(session_path, writable=False) as s:
+        assert s.processing_settings()["piv"]["passes"][0]["window_px"] == 32
+
+
+def test_settings_from_a_file_still_work(session_path, tmp_path, capsys):
+    file = tmp_path / "settings.json"
+    file.write_text(json.dumps({"piv": FAST_PIV.to_dict(), "find_ball": False}))
+    assert main(["process", str(session_path), "--settings", str(file), "--workers", "0",
+                 "--quiet"]) == 0
+    with Session.open(session_path, writable=False) as s:
+        assert s.processing_settings()["find_ball"] is False
+
+
+def test_bad_inline_settings_are_one_line_bad_usage(session_path, capsys):
+    line = usage_error(["process", str(session_path), "--settings", '{"piv": '], capsys)
+    assert line.startswith("wakeline process: error: argument --settings: not valid JSON")
+
+
+def help_text(command: str, capsys) -> str:
+    """``wakeline COMMAND --help`` as printed, lines joined."""
+    with pytest.raises(SystemExit) as stop:
+        main([command, "--help"])
+    assert stop.value.code == 0
+    return " ".join(capsys.readouterr().out.split())
+
+
+def test_the_help_of_settings_says_both_ways(capsys):
+    text = help_text("process", capsys)
+    assert "a JSON file, or the JSON itself" in text and "--settings '{\"piv\"" in text
+
+
+# bad option values are bad usage (exit 2), like argparse's own refusals
+
+@pytest.mark.parametrize(("argv", "said"), [
+    (["pair", "a.tif", "b.tif", "--scale", "0"], "argument --scale: must be positive, got 0"),
+    (["pair", "a.tif", "b.tif", "--ball-diameter", "nan"], "'nan' is not a finite number"),
+    (["pair", "a.tif", "b.tif", "--normalise", "-1"], "--normalise: must be 0 (off) or positive"),
+    (["sheet", "{s}", "-o", "x.pdf", "--status", "acepted"],
+     "argument --status: unknown review status 'acepted'"),
+    (["conditions", "{s}", "--by", "nosuchcol"], "argument --by: no column 'nosuchcol'"),
+    (["table", "{s}", "-o", "x.csv", "--ensemble"], "argument --ensemble: goes with --by"),
+], ids=["scale", "diameter", "normalise", "status", "by", "ensemble"])
+def test_bad_option_values_exit_2(session_path, argv, said, capsys):
+    argv = [a.replace("{s}", str(session_path)) for a in argv]
+    line = usage_error(argv, capsys)
+    assert said in line and "Traceback" not in line
+
+
+# help and usage text
+
+def test_a_command_error_names_the_command_not_the_whole_top_level_usage(capsys):
+    with pytest.raises(SystemExit):
+        main(["pair"])
+    err = capsys.readouterr().err
+    assert err.startswith("usage: wakeline pair [-h]") and "COMMAND" not in err
+    assert err.strip().splitlines()[-1].startswith("wakeline pair: error: ")
+
+
+def test_help_texts_say_what_the_readme_says(capsys):
+    assert "95 % interval" in help_text("conditions", capsys)
+    assert "%%" not in help_text("conditions", capsys)
+    assert "air_temp_c, camera" in help_text("import", capsys)
+    assert "$WAKELINE_HOME" in help_text("demo", capsys)
+
+
+@pytest.mark.parametrize("value", ["-6e-5", "-1", "-.5", "-inf"])
+def test_a_negative_value_reaches_the_options_own_check(value, capsys):
+    line = usage_error(["pair", "a.tif", "b.tif", "--dt", value], capsys)
+    assert "argument --dt: must be positive" in line or "not a finite number" in line
+
+
+def test_a_negative_flight_direction_in_exponent_form_is_taken():
+    from app.cli import build_parser, negative_values_attached
+
+    argv = negative_values_attached(["pair", "a.tif", "--flight-deg", "-1.5e1", "--", "-1e3"])
+    assert argv[-1] == "-1e3"  # after '--' every word is left as it is
+    assert build_parser().parse_args(argv[:-2]).flight_deg == -15.0
+
+
+# -o - : the table to standard output
+
+@pytest.mark.parametrize("by", [[], ["--by", "seam_deg"]], ids=["shots", "conditions"])
+def test_table_to_standard_output_is_the_file_table(session_path, tmp_path, by, capsys,
+                                                    monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    assert main(["table", str(session_path), *by, "-o", "-"]) == 0
+    printed = capsys.readouterr().out
+    assert not (tmp_path / "-").exists()
+    assert main(["table", str(session_path), *by, "-o", "t.csv"]) == 0
+    written = (tmp_path / "t.csv").read_text(encoding="utf-8")
+    assert printed.splitlines() == written.splitlines() and printed.startswith("s")
+
+
+def test_the_sheet_refuses_standard_output(session_path, tmp_path, capsys, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    line = usage_error(["sheet", str(session_path), "-o", "-"], capsys)
+    assert line.startswith("wakeline sheet: error: argument -o/--output: the shot sheet is a PDF")
+    assert not (tmp_path / "-").exists()
+
+
+# a read-only file system: the user's own file and the real cause
+
+def _read_only_file_system(monkeypatch, folder):
+    """Writes into ``folder`` fail as on a file system mounted read-only."""
+    import errno
+    import os
+
+    real_replace, real_statvfs = os.replace, os.statvfs
+
+    def replace(src, dst, *args, **kwargs):
+        if str(src).startswith(str(folder)):
+            raise OSError(errno.EROFS, os.strerror(errno.EROFS), str(src))
+        return real_replace(src, dst, *args, **kwargs)
+
+    class ReadOnly:
+        f_flag = os.ST_RDONLY
+
+    monkeypatch.setattr(os, "replace", replace)
+    monkeypatch.setattr(os, "statvfs", lambda path: ReadOnly() if str(path).startswith(
+        str(folder)) else real_statvfs(path))
+    monkeypatch.setattr(os, "access", lambda path, mode, **kw: False)
+
+
+@pytest.mark.parametrize(("command", "name"), [("table", "out.csv"), ("sheet", "out.pdf")])
+def test_an_output_on_a_read_only_file_system_names_the_file_and_the_cause(
+        session_path, tmp_path, monkeypatch, command, name, capsys):
+    out = tmp_path / "rodir" / name
+    out.parent.mkdir()
+    _read_only_file_system(monkeypatch, out.parent)
+    assert main([command, str(session_path), "-o", str(out)]) == 1
+    assert capsys.readouterr().err == f"wakeline: {out}: cannot write here (read-only file " \
+                                      "system)\n"
+    assert list(out.parent.iterdir()) == []
+
+
+def test_pair_outputs_on_a_read_only_file_system(session_path, tmp_path, monkeypatch, capsys):
+    src = session_path.parent / "src"
+    out = tmp_path / "rodir" / "r.json"
+    out.parent.mkdir()
+    _read_only_file_system(monkeypatch, out.parent)
+    assert main(["pair", str(src / "S0_a.tif"), str(src / "S0_b.tif"), "--no-ball", "--json",
+                 str(out)]) == 1
+    assert capsys.readouterr().err == f"wakeline: {out}: cannot write here (read-only file " \
+                                      "system)\n"
+
+
+def test_a_session_on_a_read_only_file_system_is_not_called_a_read_only_file(
+        session_path, monkeypatch, capsys):
+    _read_only_file_system(monkeypatch, session_path.parent)
+    assert main(["process", str(session_path), "--workers", "0"]) == 1
+    err = capsys.readouterr().err
+    assert "cannot edit the session here (read-only file system)" in err and "mode" not in err
+
+
+def test_a_new_session_in_a_read_only_folder_says_so(tmp_path, monkeypatch, capsys):
+    import errno
+
+    from core.store.lock import Lock
+
+    def refuse(self, me):
+        raise OSError(errno.EROFS, "Read-only file system", str(self.path))
+
+    monkeypatch.setattr(Lock, "_try_create", refuse)
+    src = write_shot_folder(tmp_path / "src", 1)
+    assert main(["import", str(src), str(tmp_path / "new.h5")]) == 1
+    err = capsys.readouterr().err
+    assert err.endswith("new.h5: cannot write in its folder (read-only file system)\n")
