@@ -199,6 +199,41 @@ def test_importing_a_folder_again_goes_on_and_refuses_only_what_differs(tmp_path
     assert "3 shot(s) already in s.h5" in capsys.readouterr().err
 
 
+def test_a_wrong_value_found_after_import_is_corrected_and_the_picks_stay(tmp_path, capsys):
+    src = write_shot_folder(tmp_path / "src", 2)
+    session = tmp_path / "s.h5"
+    assert main(["import", str(src), str(session)]) == 0
+    with Session.open(session) as s:
+        s.set_pick("S1", status="adjusted", upper_deg=4.5)
+    manifest = src / "shots.csv"
+    manifest.write_text(manifest.read_text().replace("S1,2e-05", "S1,2.5e-05"))
+    capsys.readouterr()
+    assert main(["import", str(src), str(session)]) == 1  # without the option: said, not done
+    err = capsys.readouterr().err
+    assert "line 3 (shot S1): already in s.h5 with other values (dt_s 2e-05 -> 2.5e-05)" in err
+    assert "--correct-values" in err
+    with Session.open(session, writable=False) as s:
+        assert s["S1"].metadata["dt_s"] == 2e-05
+    assert main(["import", str(src), str(session), "--correct-values"]) == 0
+    out, err = capsys.readouterr()
+    assert "corrected the values of 1" in out
+    assert "1 shot(s) took the corrected values of shots.csv (S1): their picks stay" in err
+    with Session.open(session, writable=False) as s:
+        assert s["S1"].metadata["dt_s"] == 2.5e-05 and s.settings_for("S1").dt_s == 2.5e-05
+        assert s["S1"].pick.status == "adjusted" and s["S1"].pick.upper_deg == 4.5
+        assert s["S0"].metadata["dt_s"] == 2e-05
+
+
+def test_other_frames_under_an_id_are_never_taken_as_a_correction(tmp_path, capsys):
+    src = write_shot_folder(tmp_path / "src", 2)
+    session = tmp_path / "s.h5"
+    assert main(["import", str(src), str(session)]) == 0
+    write_pair(src, "S1", (3.0, 1.0), seed=9)  # new frames under the same id
+    assert main(["import", str(src), str(session), "--correct-values"]) == 1
+    assert "(shot S1): already in s.h5 with other frames; give it another id" in (
+        capsys.readouterr().err)
+
+
 @pytest.mark.parametrize("separator", [";", "\t"], ids=["semicolon", "tab"])
 def test_a_manifest_with_another_separator_says_so(tmp_path, separator):
     src = write_shot_folder(tmp_path / "src", 1)

@@ -48,6 +48,10 @@ def _add_import(subparsers) -> None:
     p.add_argument("--embed", action="store_true",
                    help="store the frames compressed inside the session instead of "
                    "referencing them by path")
+    p.add_argument("--correct-values", action="store_true",
+                   help="a shot already in the session with the same frames but other values "
+                   "in shots.csv (a wrong dt_s or scale) takes the new values; its picks stay "
+                   "and it is processed again by the next 'wakeline process'")
     p.set_defaults(func=run_import)
 
 
@@ -106,12 +110,13 @@ def run_import(args: argparse.Namespace) -> int:
     if not args.src_dir.is_dir():
         raise WakelineError(f"{args.src_dir}: folder not found")
     report = import_folder(args.src_dir, args.session, embed=args.embed,
-                           ball_types=known_ball_types())
+                           ball_types=known_ball_types(), correct_values=args.correct_values)
     for problem in report.problems:
         print(f"wakeline: {problem}", file=sys.stderr)
     for note in report.notes:
         print(f"note: {note}", file=sys.stderr)
     print(f"{args.session}: imported {len(report.imported)} shot(s)"
+          + (f", corrected the values of {len(report.corrected)}" if report.corrected else "")
           + (f", {len(report.problems)} problem(s)" if report.problems else ""))
     return 1 if report.problems else 0
 

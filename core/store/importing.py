@@ -15,17 +15,23 @@ FRAME_SUFFIXES = (".tif", ".tiff", ".png")
 
 @dataclass
 class ImportReport:
-    """What ``import_folder`` did: imported shot ids, problems (one line each), notes, and the
-    shots already in the session with the same frames and values (left as they are)."""
+    """What ``import_folder`` did: imported shot ids, problems (one line each), notes, the
+    shots already in the session with the same frames and values (left as they are), and those
+    whose values were corrected (``correct_values``)."""
 
     imported: list[str] = field(default_factory=list)
     problems: list[str] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
     already: list[str] = field(default_factory=list)
+    corrected: list[str] = field(default_factory=list)  # shots whose values were replaced
+
+
+#: What importing one row did (besides a problem, which is its message).
+ADDED, SAME, CORRECTED = "added", "same", "corrected"
 
 
 def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
-                  should_stop=None, ball_types=None) -> ImportReport:
+                  should_stop=None, ball_types=None, correct_values: bool = False) -> ImportReport:
     """Import a folder of frame pairs described by its ``shots.csv`` into a session.
 
     The session is created when it does not exist. Good rows are imported even when other rows
@@ -49,6 +55,11 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     ball_types : collection of str, optional
         The ``ball_type`` words the measurement knows (lower case); a row naming another is
         refused now rather than when it is processed. None: not checked.
+    correct_values : bool
+        A shot already in the session with the same frames but other values (a wrong ``dt_s``
+        or scale, found after import) takes the row's values
+        (:meth:`Session.set_shot_values`: its picks stay, it is to be processed again).
+        Without it such a row is a problem that says which values differ.
 
     Raises
     ------
@@ -75,20 +86,24 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
             if first != line:
                 where = f"{MANIFEST_NAME} line {line}"
                 problem = f"shot id {shot_id} is given twice (also line {first})"
-            problem = problem or folder.import_row(metadata)
-            if problem is None:
-                report.already.append(shot_id)
-            elif problem:
-                report.problems.append(f"{where}: {problem}")
+            outcome = problem or folder.import_row(metadata, correct_values)
+            kept = {ADDED: report.imported, SAME: report.already, CORRECTED: report.corrected}
+            if outcome in kept:
+                kept[outcome].append(shot_id)
             else:
-                report.imported.append(shot_id)
+                report.problems.append(f"{where}: {outcome}")
             if on_shot is not None:
-                on_shot(shot_id, not problem, problem or "")
+                on_shot(shot_id, outcome in kept, "" if outcome in kept else outcome)
         else:
             report.notes += folder.unused_note()
         if report.already:
             report.notes.append(f"{len(report.already)} shot(s) already in {session.path.name} "
                                 "with the same frames and values were left as they are")
+        if report.corrected:
+            report.notes.append(
+                f"{len(report.corrected)} shot(s) took the corrected values of {MANIFEST_NAME} "
+                f"({', '.join(report.corrected[:5])}{' ...' if len(report.corrected) > 5 else ''})"
+                ": their picks stay; process them again")
     report.problems += session.problems  # what saving found damaged, if anything
     return report
 
@@ -103,9 +118,10 @@ class _Folder:
         self.used: set[str] = set()
         self.ids = {shot_id.casefold(): shot_id for shot_id in session}  # frame names ignore case
 
-    def import_row(self, metadata: dict) -> str | None:
-        """Add one manifest row's shot: "" when added, None when the session holds it as the
-        row describes it, else the problem."""
+    def import_row(self, metadata: dict, correct_values: bool = False) -> str:
+        """Add one manifest row's shot: ``ADDED``; ``SAME`` when the session holds it as the
+        row describes it; ``CORRECTED`` when it held the same frames with other values and
+        ``correct_values`` replaced them; else the problem."""
         shot_id = metadata["shot"]
         ball_type = metadata.get("ball_type")
         if ball_type and self.ball_types is not None and \
@@ -121,17 +137,25 @@ class _Folder:
             return problem
         meta = {k: v for k, v in metadata.items() if k != "shot"}
         if shot_id in self.session:
-            if _same_shot(self.session[shot_id], paths, meta):
-                return None
-            return (f"already in {self.session.path.name} with other frames or values; give "
-                    "it another id")
+            record = self.session[shot_id]
+            if not _same_frames(record, paths):
+                return (f"already in {self.session.path.name} with other frames; give it "
+                        "another id")
+            if record.metadata == meta:
+                return SAME
+            if correct_values:
+                self.session.set_shot_values(shot_id, meta)
+                return CORRECTED
+            return (f"already in {self.session.path.name} with other values "
+                    f"({_differences(record.metadata, meta)}); import with --correct-values "
+                    "to replace them (the picks stay), or give it another id")
         try:
             self.session.add_shot(shot_id, paths[0], paths[1] if len(paths) > 1 else None, meta,
                                   self.embed)
         except WakelineError as exc:
             return str(exc).removeprefix(f"shot {shot_id}: ")
         self.ids[shot_id.casefold()] = shot_id
-        return ""
+        return ADDED
 
     def name_files(self, shot_id: str) -> None:
         """Count the image files a row of ``shot_id`` names as used, whether or not the row is
@@ -148,12 +172,23 @@ class _Folder:
                 + (" ..." if len(extra) > 5 else "")]
 
 
-def _same_shot(record, paths: list[Path], metadata: dict) -> bool:
-    """The stored shot is this row: the same values and frame files with the same contents."""
+def _same_frames(record, paths: list[Path]) -> bool:
+    """The stored shot has these frame files, with the same contents."""
     frames = record.frames
     sums = [frames.get("sha256_a"), frames.get("sha256_b")]
-    return record.metadata == metadata and len(paths) == 2 - (sums[1] is None) and all(
+    return len(paths) == 2 - (sums[1] is None) and all(
         sha256_of(path) == digest for path, digest in zip(paths, sums))
+
+
+def _differences(stored: dict, given: dict, shown: int = 3) -> str:
+    """The values that differ, in words: ``dt_s 6e-05 -> 6.2e-05, ...``."""
+    keys = sorted(k for k in set(stored) | set(given) if stored.get(k) != given.get(k))
+    words = [f"{k} {_value(stored.get(k))} -> {_value(given.get(k))}" for k in keys[:shown]]
+    return ", ".join(words) + (" ..." if len(keys) > shown else "")
+
+
+def _value(value) -> str:
+    return "(none)" if value is None or value == "" else str(value)
 
 
 def _frame_listing(src_dir: Path) -> dict[str, Path]:
