@@ -211,7 +211,7 @@ def test_a_wrong_value_found_after_import_is_corrected_and_the_picks_stay(tmp_pa
     assert main(["import", str(src), str(session)]) == 1  # without the option: said, not done
     err = capsys.readouterr().err
     assert "line 3 (shot S1): already in s.h5 with other values (dt_s 2e-05 -> 2.5e-05)" in err
-    assert "--correct-values" in err
+    assert "note: to take the new values of S1 as corrections, import again with --correct-values" in err
     with Session.open(session, writable=False) as s:
         assert s["S1"].metadata["dt_s"] == 2e-05
     assert main(["import", str(src), str(session), "--correct-values"]) == 0

@@ -115,6 +115,10 @@ def run_import(args: argparse.Namespace) -> int:
         print(f"wakeline: {problem}", file=sys.stderr)
     for note in report.notes:
         print(f"note: {note}", file=sys.stderr)
+    if report.differing:
+        print(f"note: to take the new values of {', '.join(report.differing[:5])}"
+              f"{' ...' if len(report.differing) > 5 else ''} as corrections, import again "
+              "with --correct-values", file=sys.stderr)
     print(f"{args.session}: imported {len(report.imported)} shot(s)"
           + (f", corrected the values of {len(report.corrected)}" if report.corrected else "")
           + (f", {len(report.problems)} problem(s)" if report.problems else ""))

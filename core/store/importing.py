@@ -24,6 +24,7 @@ class ImportReport:
     notes: list[str] = field(default_factory=list)
     already: list[str] = field(default_factory=list)
     corrected: list[str] = field(default_factory=list)  # shots whose values were replaced
+    differing: list[str] = field(default_factory=list)  # refused: same frames, other values
 
 
 #: What importing one row did (besides a problem, which is its message).
@@ -96,6 +97,7 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
                 on_shot(shot_id, outcome in kept, "" if outcome in kept else outcome)
         else:
             report.notes += folder.unused_note()
+        report.differing = folder.differing
         if report.already:
             report.notes.append(f"{len(report.already)} shot(s) already in {session.path.name} "
                                 "with the same frames and values were left as they are")
@@ -116,6 +118,7 @@ class _Folder:
         self.ball_types = None if ball_types is None else {t.lower() for t in ball_types}
         self.listing = _frame_listing(src_dir)
         self.used: set[str] = set()
+        self.differing: list[str] = []
         self.ids = {shot_id.casefold(): shot_id for shot_id in session}  # frame names ignore case
 
     def import_row(self, metadata: dict, correct_values: bool = False) -> str:
@@ -146,9 +149,10 @@ class _Folder:
             if correct_values:
                 self.session.set_shot_values(shot_id, meta)
                 return CORRECTED
+            self.differing.append(shot_id)
             return (f"already in {self.session.path.name} with other values "
-                    f"({_differences(record.metadata, meta)}); import with --correct-values "
-                    "to replace them (the picks stay), or give it another id")
+                    f"({_differences(record.metadata, meta)}); take them as corrections (the "
+                    "picks stay) or give the row another id")
         try:
             self.session.add_shot(shot_id, paths[0], paths[1] if len(paths) > 1 else None, meta,
                                   self.embed)
