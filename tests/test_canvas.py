@@ -12,6 +12,7 @@ from app.qt.canvas import CanvasShot, ShotCanvas
 from app.qt.canvas_items import PROPOSAL_RADIUS, arrow_segments, mark_circle
 from app.qt.canvas_pictures import smooth_upsample, vorticity_image
 from app.review.colours import symmetric_limit
+from app.review.scales import shot_limit
 from core.geometry import angle_of_point, flight_unit, point_at_angle
 from core.shot_result import ShotSettings
 
@@ -127,9 +128,11 @@ def test_vorticity_scale_is_symmetric_and_adjustable(canvas, shot_data):
     w = shot_data[2].vorticity_1_s
     low, high = canvas.colour_bar.levels()
     assert low == -high
-    # the next 1-2-5 value above the 98th percentile of |w|
-    assert symmetric_limit(w) <= high <= 2.5 * symmetric_limit(w)
-    assert high / 10 ** math.floor(math.log10(high)) in (1.0, 2.0, 5.0)
+    # the 98th percentile of |w| rounded up to two significant figures (as the sheet's panel)
+    assert symmetric_limit(w) <= high <= 1.1 * symmetric_limit(w)
+    assert high == shot_limit(w)
+    assert high / 10 ** (math.floor(math.log10(high)) - 1) == pytest.approx(
+        round(high / 10 ** (math.floor(math.log10(high)) - 1)))
     canvas.fixed_box.setChecked(True)
     canvas.limit_box.setValue(250.0)
     assert canvas.colour_bar.levels() == (-250.0, 250.0)

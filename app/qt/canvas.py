@@ -51,7 +51,7 @@ from app.qt.canvas_items import (
 from app.qt.canvas_pane import ShotPane
 from app.qt.canvas_pictures import picture_levels, point_text, vorticity_unit
 from app.review import colours
-from app.review.scales import round_limit
+from app.review.scales import shot_limit
 from core.geometry import SIDES, angle_of_point
 
 # Arrays are (row, column) = (y, x) everywhere in wakeline; run_window sets this too.
@@ -372,7 +372,8 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
 
     def _set_auto_limit(self) -> None:
         """The colour range from the shown shot(s): each one's 98th percentile of |ω|, the
-        larger when two are compared (so neither saturates), rounded up in the 1-2-5 series."""
+        larger when two are compared (so neither saturates), rounded up to two significant
+        figures as the shot sheet's panels are (``app.review.scales``)."""
         fields = [getattr(s.result, "vorticity_1_s", None) for s in (self._shot, self._reference)
                   if s is not None and s.result is not None]
         fields = [w for w in fields if w is not None]
@@ -380,7 +381,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
             return
         self._building = True
         try:
-            self._set_limit(round_limit(max(colours.symmetric_limit(w) for w in fields)))
+            self._set_limit(max(shot_limit(w) for w in fields))
         finally:
             self._building = False
 
