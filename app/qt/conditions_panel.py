@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from app.qt.docks import dock_action
 from app.qt.workers import BackgroundJob, JobOutcome
 from app.review import colours
 from app.review.conditions import (
@@ -236,10 +237,8 @@ def install_statistics(window) -> StatisticsPanel:
     if overview_dock is not None:
         window.tabifyDockWidget(overview_dock, dock)
         overview_dock.raise_()
-    toggle = dock.toggleViewAction()
-    toggle.setText("&Conditions and agreement")
-    toggle.setStatusTip("statistics per condition, the ensemble view, a second review")
-    window.addAction(toggle)
+    toggle = dock_action(window, dock, "&Conditions and agreement",
+                         "statistics per condition, the ensemble view, a second review")
     view_menu = getattr(window, "view_menu", None)
     if view_menu is not None:
         view_menu.addAction(toggle)
