@@ -161,6 +161,22 @@ def test_side_by_side_shows_the_fields_in_a_linked_view(canvas, qtbot):
     assert main.vorticity.isVisible() and canvas.field_view.scene() is None
 
 
+def test_leaving_side_by_side_brings_the_single_view_back(canvas, qtbot):
+    """The half-width view of side by side is zoomed out; leaving it shows the shot as before."""
+    with qtbot.waitExposed(canvas):
+        canvas.show()
+    qtbot.wait(20)
+    single = canvas.view.viewRange()
+    canvas.side_box.setChecked(True)
+    qtbot.wait(20)
+    wide = canvas.view.viewRange()
+    assert wide[1][1] - wide[1][0] > 1.2 * (single[1][1] - single[1][0])
+    canvas.side_box.setChecked(False)
+    qtbot.wait(20)
+    for back, before in zip(canvas.view.viewRange(), single):
+        assert back == pytest.approx(before, abs=1.0)
+
+
 def test_flicker_alternates_the_frames(canvas, shot_data):
     frame_a, frame_b, _ = shot_data
     canvas.picture_box.setCurrentText("flicker A/B")

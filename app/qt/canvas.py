@@ -126,6 +126,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self._building = False
         self._placing = False
         self._vorticity_unit = "1/s"
+        self._single_range = None  # the single view's range while side by side
         self.context_actions: list = []  # right-click menu (the window's picture actions)
         self.context_menu: QMenu | None = None
         self._build_controls()

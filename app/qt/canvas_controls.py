@@ -204,9 +204,11 @@ class LayerControls:
         self.layers_changed.emit()
 
     def _apply_side_by_side(self, checked: bool) -> None:
-        """Put the second view (and the titles over both) in the layout, or take them out."""
+        """Put the second view (and the titles over both) in the layout, or take them out; the
+        single view's range comes back on leaving (the shot fitted when there is none kept)."""
         in_layout = self.field_view.scene() is not None
         if checked and not in_layout:
+            self._single_range = self.view.viewRange()
             self.graphics.removeItem(self.colour_bar)
             self.graphics.addItem(self.main.title, row=0, col=0)
             self.graphics.addItem(self.second.title, row=0, col=1)
@@ -215,7 +217,15 @@ class LayerControls:
         elif not checked and in_layout:
             for item in (self.field_view, self.main.title, self.second.title):
                 self.graphics.removeItem(item)
+            self._restore_single_range()
         self.field_view.setVisible(checked)
+
+    def _restore_single_range(self) -> None:
+        single, self._single_range = self._single_range, None
+        if single is None:
+            self.view.autoRange(padding=0.02)
+        else:
+            self.view.setRange(xRange=single[0], yRange=single[1], padding=0)
 
     def picture_mode(self) -> PictureMode:
         return PictureMode(self.picture_box.currentText())
