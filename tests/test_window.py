@@ -419,6 +419,23 @@ def test_shortcut_list_names_the_review_keys(main_window):
     assert window.export_menu.title() == "&Export"
 
 
+def test_the_key_list_names_every_key_and_quit_has_one(main_window):
+    """F1 lists the list's, the note field's and every action's keys (README's table)."""
+    from PySide6.QtGui import QKeySequence
+
+    window = main_window(workers=0)
+    quit_keys = window.act_quit.shortcut()
+    assert not quit_keys.isEmpty()
+    rows = dict(window.shortcut_rows())
+    assert rows[quit_keys.toString(QKeySequence.SequenceFormat.NativeText)] == "Quit"
+    html = window.shortcut_table_html()
+    for keys in ("Shift+Up / Shift+Down, Ctrl+A", "Ctrl+Return / Esc", "Ctrl+Shift+Z, Ctrl+Y"):
+        assert keys in html
+    for action in window.actions():
+        for key in action.shortcuts():
+            assert key.toString(QKeySequence.SequenceFormat.NativeText) in html
+
+
 def test_import_folder_from_the_window_opens_the_new_session(main_window, qtbot, tmp_path):
     from conftest import synthetic_frames
 

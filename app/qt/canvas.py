@@ -60,6 +60,8 @@ pg.setConfigOptions(imageAxisOrder="row-major")
 
 FLICKER_MS = 350
 HOVER_HINT = "Point for flow values; drag a mark along the outline."
+# the picture's mouse work, for the F1 key list
+MOUSE_KEYS = (("drag a round mark", "move a separation mark along the ball outline"),)
 
 
 @dataclass
