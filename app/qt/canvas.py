@@ -16,6 +16,7 @@ their angles follow core.geometry.
 
 from __future__ import annotations
 
+import math
 import os
 from dataclasses import dataclass, field
 
@@ -36,7 +37,12 @@ from PySide6.QtWidgets import (
 )
 
 from app.qt.canvas_circles import CircleEditing
-from app.qt.canvas_controls import DEFAULT_LAYERS, LayerControls, PictureMode
+from app.qt.canvas_controls import (
+    DEFAULT_LAYERS,
+    VECTOR_GAP_PX,
+    LayerControls,
+    PictureMode,
+)
 from app.qt.canvas_items import (
     BACKGROUND,
     MASKED_MARK,
@@ -48,7 +54,7 @@ from app.qt.canvas_items import (
     mark_circle,
     pen,
 )
-from app.qt.canvas_pane import ShotPane
+from app.qt.canvas_pane import ShotPane, field_steps
 from app.qt.canvas_pictures import picture_levels, point_text, vorticity_unit
 from app.review import colours
 from app.review.scales import shot_limit
@@ -129,6 +135,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self._placing = False
         self._vorticity_unit = "1/s"
         self._single_range = None  # the single view's range while side by side
+        self._drawn_steps = ()  # the vector steps drawn (fitted to the zoom)
         self.context_actions: list = []  # right-click menu (the window's picture actions)
         self.context_menu: QMenu | None = None
         self._build_controls()
@@ -155,6 +162,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self.second = ShotPane(draggable=False)
         self.second.view.setXLink(self.main.view)
         self.second.view.setYLink(self.main.view)
+        self.main.view.sigRangeChanged.connect(self._on_zoom)
         # the main pane's items under their old names (the window and the tests use them)
         self.view, self.field_view = self.main.view, self.second.view
         self.picture, self.vorticity = self.main.picture, self.main.vorticity
@@ -360,12 +368,36 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
             showing.pane.show_vectors(result if self.vectors_box.isChecked() else None,
                                       self.stride_box.value(),
                                       VECTOR_ON_FIELD if on_field else VECTOR_ON_PICTURE,
-                                      self.ball_frame(), fine)
+                                      self.ball_frame(), fine, self._arrow_gap())
             if drawn:
                 self._show_unit(vorticity_unit(result))
+        self._drawn_steps = self._vector_steps()
         self.colour_bar.setVisible(any_vorticity)
         if any_vorticity and tuple(self.colour_bar.levels()) != (-limit, limit):
             self.colour_bar.setLevels((-limit, limit))
+
+    def _arrow_gap(self) -> float:
+        """Image px between arrows ``VECTOR_GAP_PX`` screen px apart at the zoom shown (0, every
+        vector, while the canvas is not on screen: its views have no size yet)."""
+        if not self.graphics.isVisible():
+            return 0.0
+        width, height = self.view.viewPixelSize()
+        size = max(width, height)
+        return VECTOR_GAP_PX * size if math.isfinite(size) and size > 0 else 0.0
+
+    def _vector_steps(self) -> tuple:
+        """The steps the vectors are drawn at now (they change with the zoom when fitted)."""
+        if self.stride_box.value() > 0 or not self.vectors_box.isChecked():
+            return ()
+        gap, fine = self._arrow_gap(), self.fine_box.isChecked()
+        return tuple(field_steps(s.shot.result, 0, gap, fine) for s in self._showing()
+                     if s.shot is not None and s.shot.result is not None and s.fields)
+
+    def _on_zoom(self, *_args) -> None:
+        """Fitted vector steps follow the zoom: redrawn when a step changes, not on every pan."""
+        steps = self._vector_steps()
+        if steps and steps != self._drawn_steps:
+            self._draw_fields()
 
     def _show_unit(self, unit: str) -> None:
         if unit != self._vorticity_unit:
