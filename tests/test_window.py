@@ -625,3 +625,24 @@ def test_processing_settings_are_saved_in_the_session_and_mark_shots_stale(main_
     assert all(window.model.session.needs_processing(s) for s in ("s01", "s02"))
     assert "2 shots need processing" in window.statusBar().currentMessage()
     assert int(window.settings.value("processing/workers")) == 1  # kept for this computer
+
+
+def test_the_window_fits_a_laptop_screen(main_window, make_session, qtbot):
+    """With a session open the window goes down to 1280 x 720 and narrower (a 1366 or 1280 px
+    wide laptop screen): long legends wrap, the control bar takes a second row."""
+    window = _open(main_window, qtbot, make_session(5), show=True)
+    window.model.set_current("s02")
+    window.statistics.refresh()
+    window.statistics_dock.raise_()
+    qtbot.wait(20)
+    assert window.minimumSizeHint().width() <= 1200
+    window.resize(1280, 720)
+    qtbot.waitUntil(lambda: window.width() == 1280)
+    assert window.shot_list.text_filter.width() >= window.shot_list.text_filter.sizeHint().width()
+    canvas = window.canvas
+    label = canvas.hover_label  # the hint whole, within the label's lines
+    room = label.contentsRect()
+    needed = label.fontMetrics().boundingRect(room, int(Qt.TextFlag.TextWordWrap), label.text())
+    assert needed.height() <= room.height() and needed.width() <= room.width()
+    header = window.shot_list.view.horizontalHeader()
+    assert header.length() <= window.shot_list.view.viewport().width()  # every column whole

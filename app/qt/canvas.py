@@ -56,6 +56,7 @@ from app.qt.canvas_items import (
 )
 from app.qt.canvas_pane import ShotPane, field_steps
 from app.qt.canvas_pictures import picture_levels, point_text, vorticity_unit
+from app.qt.flow_layout import FlowLayout
 from app.review import colours
 from app.review.scales import shot_limit
 from core.geometry import SIDES, angle_of_point
@@ -66,6 +67,7 @@ pg.setConfigOptions(imageAxisOrder="row-major")
 
 FLICKER_MS = 350
 HOVER_HINT = "Point for flow values; drag a mark along the outline."
+LEGEND_MIN_WIDTH = 260  # px: the layer legend wraps rather than widening the window
 # the picture's mouse work, for the F1 key list
 MOUSE_KEYS = (("drag a round mark", "move a separation mark along the ball outline"),)
 
@@ -198,19 +200,20 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self.message.hide()
 
     def _build_layout(self) -> None:
-        bar = QHBoxLayout()
+        bar = FlowLayout(spacing=8)  # a second row in a narrow window, not a wider window
         bar.setContentsMargins(4, 2, 4, 2)
-        bar.setSpacing(8)
-        bar.addWidget(self.picture_box)
-        for widget in (self.frame_box, self.vectors_box, self.stride_box, self.vorticity_box,
-                       self.limit_box, self.fixed_box, self.overlay_button, self.side_box):
+        for widget in (self.picture_box, self.frame_box, self.vectors_box, self.stride_box,
+                       self.vorticity_box, self.limit_box, self.fixed_box, self.overlay_button,
+                       self.side_box):
             bar.addWidget(widget)
-        bar.addStretch(1)
         self.hover_label = QLabel(HOVER_HINT, self)
         self.hover_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.hover_label.setStyleSheet("QLabel { font-family: monospace; padding: 2px 6px; }")
-        # long readings must never widen the panel (the view would re-range under the cursor)
+        # long readings must never widen the panel nor change its height (the view would
+        # re-range under the cursor): they wrap within two lines
+        self.hover_label.setWordWrap(True)
         self.hover_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
+        self.hover_label.setFixedHeight(2 * self.hover_label.fontMetrics().lineSpacing() + 6)
         box = QVBoxLayout(self)
         box.setContentsMargins(0, 0, 0, 0)
         box.setSpacing(2)
@@ -226,6 +229,8 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
                                "hold the true angle in 95 % of shots, the fitted shear layer "
                                "(solid: dividing line, dashed: half-speed line) and the band "
                                "of the images it was fitted to")
+        self.legend.setWordWrap(True)  # two lines in a narrow window
+        self.legend.setMinimumWidth(LEGEND_MIN_WIDTH)
         bottom.addWidget(self.legend, 0)
         box.addLayout(bottom)
 
@@ -589,10 +594,12 @@ def legend_html() -> str:
 
     layer = QColor(colours.UPPER_SIDE).lighter(175).name()
     wedge = QColor(colours.UPPER_SIDE).lighter(150).name()
-    return (f"{swatch(VECTOR_ON_PICTURE)} vector &nbsp;{swatch(REPLACED_VECTOR)} replaced "
-            f"&nbsp;{swatch(MASKED_MARK)} masked &nbsp;{swatch(colours.PROPOSAL_MARK, '◆')} "
-            f"proposal &nbsp;{swatch(wedge)} ± 95 % &nbsp;{swatch(layer, '—')} layer "
-            f"&nbsp;{swatch(colours.MUTED_INK, '···')} band")
+    # each swatch kept with its word when the line wraps
+    return (f"{swatch(VECTOR_ON_PICTURE)}&nbsp;vector &nbsp;{swatch(REPLACED_VECTOR)}&nbsp;"
+            f"replaced &nbsp;{swatch(MASKED_MARK)}&nbsp;masked &nbsp;"
+            f"{swatch(colours.PROPOSAL_MARK, '◆')}&nbsp;proposal &nbsp;{swatch(wedge)}&nbsp;"
+            f"±&nbsp;95&nbsp;% &nbsp;{swatch(layer, '—')}&nbsp;layer "
+            f"&nbsp;{swatch(colours.MUTED_INK, '···')}&nbsp;band")
 
 
 def _same_extent(old: CanvasShot | None, new: CanvasShot) -> bool:

@@ -141,7 +141,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         for widget, stretch in ((self.shot_list, 0), (self.canvas, 1), (self.readout, 0)):
             self.splitter.addWidget(widget)
             self.splitter.setStretchFactor(self.splitter.count() - 1, stretch)
-        self.splitter.setSizes([345, 905, 350])
+        self.splitter.setSizes([365, 885, 350])  # the list's default columns whole
         self.splitter.setChildrenCollapsible(False)
         self.setCentralWidget(self.splitter)
         self.resize(1600, 900)
