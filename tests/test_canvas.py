@@ -9,9 +9,11 @@ import pytest
 from conftest import analytic_result, synthetic_frames
 
 from app.qt.canvas import CanvasShot, ShotCanvas
+from app.qt.canvas_controls import VECTOR_GAP_PX
 from app.qt.canvas_items import PROPOSAL_RADIUS, arrow_segments, mark_circle
 from app.qt.canvas_pictures import smooth_upsample, vorticity_image
 from app.review.colours import symmetric_limit
+from app.review.scales import shot_limit
 from core.geometry import angle_of_point, flight_unit, point_at_angle
 from core.shot_result import ShotSettings
 
@@ -66,6 +68,38 @@ def test_vectors_are_one_item_per_kind_with_a_stride(canvas, shot_data):
     assert len(_points(canvas.vectors)) == 6 * good[::2, ::2].sum()
     canvas.vectors_box.setChecked(False)
     assert len(_points(canvas.vectors)) == 0 and len(_points(canvas.replaced)) == 0
+
+
+def _arrow_gap_on_screen(canvas) -> float:
+    """The smallest distance (screen px) between the tails of neighbouring arrows in a row."""
+    tails = _points(canvas.vectors)[0::6]
+    xs = np.unique(np.round(tails[:, 0], 3))
+    return float(np.diff(xs).min()) / canvas.view.viewPixelSize()[0]
+
+
+def test_vectors_are_thinned_to_fit_the_zoom_until_a_step_is_chosen(canvas, qtbot):
+    """At open the step keeps arrows apart on screen; zooming in draws more; a chosen step stays."""
+    canvas.resize(420, 330)
+    with qtbot.waitExposed(canvas):
+        canvas.show()
+    canvas.view.autoRange(padding=0.02)
+    qtbot.wait(20)
+    assert canvas.stride_box.value() == 0 and canvas.stride_box.text() == "auto"
+    assert _arrow_gap_on_screen(canvas) >= VECTOR_GAP_PX
+    shown = len(_points(canvas.vectors))
+    (x0, x1), (y0, y1) = canvas.view.viewRange()
+    canvas.view.setRange(xRange=(x0, x0 + (x1 - x0) / 4), yRange=(y0, y0 + (y1 - y0) / 4),
+                         padding=0)
+    qtbot.wait(20)
+    spacing = canvas.shot.result.field.spacing_px
+    assert _arrow_gap_on_screen(canvas) == pytest.approx(spacing / canvas.view.viewPixelSize()[0])
+    assert len(_points(canvas.vectors)) > shown  # every vector now, far enough apart
+    canvas.stride_box.setValue(3)
+    canvas.view.autoRange(padding=0.02)
+    qtbot.wait(20)
+    assert canvas.layer_state()["vector_stride"] == 3
+    assert _arrow_gap_on_screen(canvas) == pytest.approx(
+        3 * spacing / canvas.view.viewPixelSize()[0])
 
 
 def test_marks_are_held_on_the_ball_outline(canvas, shot_data):
@@ -127,9 +161,11 @@ def test_vorticity_scale_is_symmetric_and_adjustable(canvas, shot_data):
     w = shot_data[2].vorticity_1_s
     low, high = canvas.colour_bar.levels()
     assert low == -high
-    # the next 1-2-5 value above the 98th percentile of |w|
-    assert symmetric_limit(w) <= high <= 2.5 * symmetric_limit(w)
-    assert high / 10 ** math.floor(math.log10(high)) in (1.0, 2.0, 5.0)
+    # the 98th percentile of |w| rounded up to two significant figures (as the sheet's panel)
+    assert symmetric_limit(w) <= high <= 1.1 * symmetric_limit(w)
+    assert high == shot_limit(w)
+    assert high / 10 ** (math.floor(math.log10(high)) - 1) == pytest.approx(
+        round(high / 10 ** (math.floor(math.log10(high)) - 1)))
     canvas.fixed_box.setChecked(True)
     canvas.limit_box.setValue(250.0)
     assert canvas.colour_bar.levels() == (-250.0, 250.0)
@@ -158,6 +194,22 @@ def test_side_by_side_shows_the_fields_in_a_linked_view(canvas, qtbot):
     assert main.vorticity.isVisible() and canvas.field_view.scene() is None
 
 
+def test_leaving_side_by_side_brings_the_single_view_back(canvas, qtbot):
+    """The half-width view of side by side is zoomed out; leaving it shows the shot as before."""
+    with qtbot.waitExposed(canvas):
+        canvas.show()
+    qtbot.wait(20)
+    single = canvas.view.viewRange()
+    canvas.side_box.setChecked(True)
+    qtbot.wait(20)
+    wide = canvas.view.viewRange()
+    assert wide[1][1] - wide[1][0] > 1.2 * (single[1][1] - single[1][0])
+    canvas.side_box.setChecked(False)
+    qtbot.wait(20)
+    for back, before in zip(canvas.view.viewRange(), single):
+        assert back == pytest.approx(before, abs=1.0)
+
+
 def test_flicker_alternates_the_frames(canvas, shot_data):
     frame_a, frame_b, _ = shot_data
     canvas.picture_box.setCurrentText("flicker A/B")
@@ -177,7 +229,8 @@ def test_layer_state_round_trips_and_ignores_stale_keys(qtbot):
     canvas = ShotCanvas()
     qtbot.addWidget(canvas)
     state = canvas.layer_state()
-    state.update({"vectors": False, "stride": 4, "picture": "frame B", "side_by_side": True})
+    state.update({"vectors": False, "vector_stride": 4, "picture": "frame B",
+                  "side_by_side": True})
     other = ShotCanvas()
     qtbot.addWidget(other)
     other.restore_layers({**state, "an old key": 1, "marks": "false"})

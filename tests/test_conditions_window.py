@@ -86,3 +86,29 @@ def test_the_ensemble_view_of_a_condition(main_window, make_session, qtbot):
     assert "2 shot(s) aligned on the ball: s01, s06" in dialog.numbers.text()
     assert panel.table.item(0, panel.table.columnCount() - 1).text().startswith("U ")
     dialog.close()
+
+
+def _front_tab(window) -> str:
+    from PySide6.QtWidgets import QTabBar
+
+    [bar] = [b for b in window.findChildren(QTabBar) if b.parent() is window and b.count() > 1]
+    return bar.tabText(bar.currentIndex())
+
+
+def test_the_view_menu_brings_the_conditions_tab_to_the_front(main_window, make_session,
+                                                              qtbot):
+    """The dock opens tabbed behind the overview: its menu item shows it, it does not close it."""
+    window = _open(main_window, make_session)
+    with qtbot.waitExposed(window):
+        window.show()
+    dock = window.statistics_dock
+    [item] = [a for a in window.view_menu.actions() if a.text() == "&Conditions and agreement"]
+    assert _front_tab(window) == "Session overview" and not item.isChecked()
+    item.trigger()
+    assert not dock.isHidden() and _front_tab(window) == "Conditions" and item.isChecked()
+    item.trigger()  # in front: the item puts it away
+    assert dock.isHidden() and not item.isChecked()
+    item.trigger()
+    assert not dock.isHidden() and _front_tab(window) == "Conditions"
+    window.overview_dock.raise_()  # the analyst clicks the overview's tab
+    qtbot.waitUntil(lambda: not item.isChecked())

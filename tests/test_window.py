@@ -419,6 +419,23 @@ def test_shortcut_list_names_the_review_keys(main_window):
     assert window.export_menu.title() == "&Export"
 
 
+def test_the_key_list_names_every_key_and_quit_has_one(main_window):
+    """F1 lists the list's, the note field's and every action's keys (README's table)."""
+    from PySide6.QtGui import QKeySequence
+
+    window = main_window(workers=0)
+    quit_keys = window.act_quit.shortcut()
+    assert not quit_keys.isEmpty()
+    rows = dict(window.shortcut_rows())
+    assert rows[quit_keys.toString(QKeySequence.SequenceFormat.NativeText)] == "Quit"
+    html = window.shortcut_table_html()
+    for keys in ("Shift+Up / Shift+Down, Ctrl+A", "Ctrl+Return / Esc", "Ctrl+Shift+Z, Ctrl+Y"):
+        assert keys in html
+    for action in window.actions():
+        for key in action.shortcuts():
+            assert key.toString(QKeySequence.SequenceFormat.NativeText) in html
+
+
 def test_import_folder_from_the_window_opens_the_new_session(main_window, qtbot, tmp_path):
     from conftest import synthetic_frames
 
@@ -608,3 +625,24 @@ def test_processing_settings_are_saved_in_the_session_and_mark_shots_stale(main_
     assert all(window.model.session.needs_processing(s) for s in ("s01", "s02"))
     assert "2 shots need processing" in window.statusBar().currentMessage()
     assert int(window.settings.value("processing/workers")) == 1  # kept for this computer
+
+
+def test_the_window_fits_a_laptop_screen(main_window, make_session, qtbot):
+    """With a session open the window goes down to 1280 x 720 and narrower (a 1366 or 1280 px
+    wide laptop screen): long legends wrap, the control bar takes a second row."""
+    window = _open(main_window, qtbot, make_session(5), show=True)
+    window.model.set_current("s02")
+    window.statistics.refresh()
+    window.statistics_dock.raise_()
+    qtbot.wait(20)
+    assert window.minimumSizeHint().width() <= 1200
+    window.resize(1280, 720)
+    qtbot.waitUntil(lambda: window.width() == 1280)
+    assert window.shot_list.text_filter.width() >= window.shot_list.text_filter.sizeHint().width()
+    canvas = window.canvas
+    label = canvas.hover_label  # the hint whole, within the label's lines
+    room = label.contentsRect()
+    needed = label.fontMetrics().boundingRect(room, int(Qt.TextFlag.TextWordWrap), label.text())
+    assert needed.height() <= room.height() and needed.width() <= room.width()
+    header = window.shot_list.view.horizontalHeader()
+    assert header.length() <= window.shot_list.view.viewport().width()  # every column whole

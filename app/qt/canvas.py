@@ -16,6 +16,7 @@ their angles follow core.geometry.
 
 from __future__ import annotations
 
+import math
 import os
 from dataclasses import dataclass, field
 
@@ -36,7 +37,12 @@ from PySide6.QtWidgets import (
 )
 
 from app.qt.canvas_circles import CircleEditing
-from app.qt.canvas_controls import DEFAULT_LAYERS, LayerControls, PictureMode
+from app.qt.canvas_controls import (
+    DEFAULT_LAYERS,
+    VECTOR_GAP_PX,
+    LayerControls,
+    PictureMode,
+)
 from app.qt.canvas_items import (
     BACKGROUND,
     MASKED_MARK,
@@ -48,10 +54,11 @@ from app.qt.canvas_items import (
     mark_circle,
     pen,
 )
-from app.qt.canvas_pane import ShotPane
+from app.qt.canvas_pane import ShotPane, field_steps
 from app.qt.canvas_pictures import picture_levels, point_text, vorticity_unit
+from app.qt.flow_layout import FlowLayout
 from app.review import colours
-from app.review.scales import round_limit
+from app.review.scales import shot_limit
 from core.geometry import SIDES, angle_of_point
 
 # Arrays are (row, column) = (y, x) everywhere in wakeline; run_window sets this too.
@@ -60,6 +67,9 @@ pg.setConfigOptions(imageAxisOrder="row-major")
 
 FLICKER_MS = 350
 HOVER_HINT = "Point for flow values; drag a mark along the outline."
+LEGEND_MIN_WIDTH = 260  # px: the layer legend wraps rather than widening the window
+# the picture's mouse work, for the F1 key list
+MOUSE_KEYS = (("drag a round mark", "move a separation mark along the ball outline"),)
 
 
 @dataclass
@@ -126,6 +136,8 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self._building = False
         self._placing = False
         self._vorticity_unit = "1/s"
+        self._single_range = None  # the single view's range while side by side
+        self._drawn_steps = ()  # the vector steps drawn (fitted to the zoom)
         self.context_actions: list = []  # right-click menu (the window's picture actions)
         self.context_menu: QMenu | None = None
         self._build_controls()
@@ -152,6 +164,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self.second = ShotPane(draggable=False)
         self.second.view.setXLink(self.main.view)
         self.second.view.setYLink(self.main.view)
+        self.main.view.sigRangeChanged.connect(self._on_zoom)
         # the main pane's items under their old names (the window and the tests use them)
         self.view, self.field_view = self.main.view, self.second.view
         self.picture, self.vorticity = self.main.picture, self.main.vorticity
@@ -187,19 +200,20 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self.message.hide()
 
     def _build_layout(self) -> None:
-        bar = QHBoxLayout()
+        bar = FlowLayout(spacing=8)  # a second row in a narrow window, not a wider window
         bar.setContentsMargins(4, 2, 4, 2)
-        bar.setSpacing(8)
-        bar.addWidget(self.picture_box)
-        for widget in (self.frame_box, self.vectors_box, self.stride_box, self.vorticity_box,
-                       self.limit_box, self.fixed_box, self.overlay_button, self.side_box):
+        for widget in (self.picture_box, self.frame_box, self.vectors_box, self.stride_box,
+                       self.vorticity_box, self.limit_box, self.fixed_box, self.overlay_button,
+                       self.side_box):
             bar.addWidget(widget)
-        bar.addStretch(1)
         self.hover_label = QLabel(HOVER_HINT, self)
         self.hover_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.hover_label.setStyleSheet("QLabel { font-family: monospace; padding: 2px 6px; }")
-        # long readings must never widen the panel (the view would re-range under the cursor)
+        # long readings must never widen the panel nor change its height (the view would
+        # re-range under the cursor): they wrap within two lines
+        self.hover_label.setWordWrap(True)
         self.hover_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
+        self.hover_label.setFixedHeight(2 * self.hover_label.fontMetrics().lineSpacing() + 6)
         box = QVBoxLayout(self)
         box.setContentsMargins(0, 0, 0, 0)
         box.setSpacing(2)
@@ -215,6 +229,8 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
                                "hold the true angle in 95 % of shots, the fitted shear layer "
                                "(solid: dividing line, dashed: half-speed line) and the band "
                                "of the images it was fitted to")
+        self.legend.setWordWrap(True)  # two lines in a narrow window
+        self.legend.setMinimumWidth(LEGEND_MIN_WIDTH)
         bottom.addWidget(self.legend, 0)
         box.addLayout(bottom)
 
@@ -357,12 +373,36 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
             showing.pane.show_vectors(result if self.vectors_box.isChecked() else None,
                                       self.stride_box.value(),
                                       VECTOR_ON_FIELD if on_field else VECTOR_ON_PICTURE,
-                                      self.ball_frame(), fine)
+                                      self.ball_frame(), fine, self._arrow_gap())
             if drawn:
                 self._show_unit(vorticity_unit(result))
+        self._drawn_steps = self._vector_steps()
         self.colour_bar.setVisible(any_vorticity)
         if any_vorticity and tuple(self.colour_bar.levels()) != (-limit, limit):
             self.colour_bar.setLevels((-limit, limit))
+
+    def _arrow_gap(self) -> float:
+        """Image px between arrows ``VECTOR_GAP_PX`` screen px apart at the zoom shown (0, every
+        vector, while the canvas is not on screen: its views have no size yet)."""
+        if not self.graphics.isVisible():
+            return 0.0
+        width, height = self.view.viewPixelSize()
+        size = max(width, height)
+        return VECTOR_GAP_PX * size if math.isfinite(size) and size > 0 else 0.0
+
+    def _vector_steps(self) -> tuple:
+        """The steps the vectors are drawn at now (they change with the zoom when fitted)."""
+        if self.stride_box.value() > 0 or not self.vectors_box.isChecked():
+            return ()
+        gap, fine = self._arrow_gap(), self.fine_box.isChecked()
+        return tuple(field_steps(s.shot.result, 0, gap, fine) for s in self._showing()
+                     if s.shot is not None and s.shot.result is not None and s.fields)
+
+    def _on_zoom(self, *_args) -> None:
+        """Fitted vector steps follow the zoom: redrawn when a step changes, not on every pan."""
+        steps = self._vector_steps()
+        if steps and steps != self._drawn_steps:
+            self._draw_fields()
 
     def _show_unit(self, unit: str) -> None:
         if unit != self._vorticity_unit:
@@ -372,7 +412,8 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
 
     def _set_auto_limit(self) -> None:
         """The colour range from the shown shot(s): each one's 98th percentile of |ω|, the
-        larger when two are compared (so neither saturates), rounded up in the 1-2-5 series."""
+        larger when two are compared (so neither saturates), rounded up to two significant
+        figures as the shot sheet's panels are (``app.review.scales``)."""
         fields = [getattr(s.result, "vorticity_1_s", None) for s in (self._shot, self._reference)
                   if s is not None and s.result is not None]
         fields = [w for w in fields if w is not None]
@@ -380,7 +421,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
             return
         self._building = True
         try:
-            self._set_limit(round_limit(max(colours.symmetric_limit(w) for w in fields)))
+            self._set_limit(max(shot_limit(w) for w in fields))
         finally:
             self._building = False
 
@@ -553,10 +594,12 @@ def legend_html() -> str:
 
     layer = QColor(colours.UPPER_SIDE).lighter(175).name()
     wedge = QColor(colours.UPPER_SIDE).lighter(150).name()
-    return (f"{swatch(VECTOR_ON_PICTURE)} vector &nbsp;{swatch(REPLACED_VECTOR)} replaced "
-            f"&nbsp;{swatch(MASKED_MARK)} masked &nbsp;{swatch(colours.PROPOSAL_MARK, '◆')} "
-            f"proposal &nbsp;{swatch(wedge)} ± 95 % &nbsp;{swatch(layer, '—')} layer "
-            f"&nbsp;{swatch(colours.MUTED_INK, '···')} band")
+    # each swatch kept with its word when the line wraps
+    return (f"{swatch(VECTOR_ON_PICTURE)}&nbsp;vector &nbsp;{swatch(REPLACED_VECTOR)}&nbsp;"
+            f"replaced &nbsp;{swatch(MASKED_MARK)}&nbsp;masked &nbsp;"
+            f"{swatch(colours.PROPOSAL_MARK, '◆')}&nbsp;proposal &nbsp;{swatch(wedge)}&nbsp;"
+            f"±&nbsp;95&nbsp;% &nbsp;{swatch(layer, '—')}&nbsp;layer "
+            f"&nbsp;{swatch(colours.MUTED_INK, '···')}&nbsp;band")
 
 
 def _same_extent(old: CanvasShot | None, new: CanvasShot) -> bool:

@@ -35,10 +35,12 @@ class FrameOfReference(StrEnum):
 
 FRAMES = tuple(FrameOfReference)
 
+VECTOR_GAP_PX = 14  # screen px between arrows when the step follows the zoom
+FITTED_STRIDE_TEXT = "auto"
 DEFAULT_LAYERS = {
     "picture": PictureMode.FRAME_A,
     "vectors": True,
-    "stride": 1,
+    "vector_stride": 0,  # every n-th vector; 0: as many as fit the zoom (VECTOR_GAP_PX)
     "vorticity": True,
     "vorticity_auto": True,
     "vorticity_limit_1_s": 1000.0,
@@ -61,9 +63,12 @@ class LayerControls:
         self.picture_box.setToolTip("picture under the overlays (F cycles)")
         self.vectors_box = QCheckBox("Vectors", self)
         self.stride_box = QSpinBox(self)
-        self.stride_box.setRange(1, 16)
+        self.stride_box.setRange(0, 16)
         self.stride_box.setPrefix("every ")
-        self.stride_box.setToolTip("draw every n-th vector in each direction")
+        self.stride_box.setSpecialValueText(FITTED_STRIDE_TEXT)  # 0: fitted to the zoom
+        self.stride_box.setToolTip(
+            f"draw every n-th vector in each direction; {FITTED_STRIDE_TEXT}: arrows about "
+            f"{VECTOR_GAP_PX} screen px apart at the zoom shown")
         self.vorticity_box = QCheckBox("Vorticity", self)
         self.limit_box = QDoubleSpinBox(self)
         self.limit_box.setDecimals(6)  # before the range, so small limits are not rounded away
@@ -120,7 +125,7 @@ class LayerControls:
         return {
             "picture": self.picture_box.currentText(),
             "vectors": self.vectors_box.isChecked(),
-            "stride": self.stride_box.value(),
+            "vector_stride": self.stride_box.value(),
             "vorticity": self.vorticity_box.isChecked(),
             "vorticity_auto": not self.fixed_box.isChecked(),
             "vorticity_limit_1_s": self.limit_box.value(),
@@ -141,7 +146,7 @@ class LayerControls:
             picture = merged["picture"] if merged["picture"] in PICTURES else PictureMode.FRAME_A
             self.picture_box.setCurrentText(picture)
             self.vectors_box.setChecked(_as_bool(merged["vectors"]))
-            self.stride_box.setValue(int(merged["stride"]))
+            self.stride_box.setValue(int(merged["vector_stride"]))
             self.vorticity_box.setChecked(_as_bool(merged["vorticity"]))
             self.fixed_box.setChecked(not _as_bool(merged["vorticity_auto"]))
             self._set_limit(float(merged["vorticity_limit_1_s"]))
@@ -204,9 +209,11 @@ class LayerControls:
         self.layers_changed.emit()
 
     def _apply_side_by_side(self, checked: bool) -> None:
-        """Put the second view (and the titles over both) in the layout, or take them out."""
+        """Put the second view (and the titles over both) in the layout, or take them out; the
+        single view's range comes back on leaving (the shot fitted when there is none kept)."""
         in_layout = self.field_view.scene() is not None
         if checked and not in_layout:
+            self._single_range = self.view.viewRange()
             self.graphics.removeItem(self.colour_bar)
             self.graphics.addItem(self.main.title, row=0, col=0)
             self.graphics.addItem(self.second.title, row=0, col=1)
@@ -215,7 +222,15 @@ class LayerControls:
         elif not checked and in_layout:
             for item in (self.field_view, self.main.title, self.second.title):
                 self.graphics.removeItem(item)
+            self._restore_single_range()
         self.field_view.setVisible(checked)
+
+    def _restore_single_range(self) -> None:
+        single, self._single_range = self._single_range, None
+        if single is None:
+            self.view.autoRange(padding=0.02)
+        else:
+            self.view.setRange(xRange=single[0], yRange=single[1], padding=0)
 
     def picture_mode(self) -> PictureMode:
         return PictureMode(self.picture_box.currentText())

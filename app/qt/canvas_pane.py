@@ -8,6 +8,7 @@ choice (``app.qt.canvas``).
 
 from __future__ import annotations
 
+import math
 import os
 
 os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
@@ -70,6 +71,17 @@ class LengthBar(pg.ScaleBar):
         self.size = length / self.mm_per_px
         self.text.setText(f"{length:g} mm")
         super().updateBar()
+
+
+def field_steps(result, stride: int, gap_px: float, fine: bool) -> tuple[int, ...]:
+    """The step of the main field (and of the fine one near the ball, with ``fine``): ``stride``
+    when the analyst chose one, else (``stride`` 0) the smallest that puts arrows ``gap_px``
+    image px apart or more."""
+    fields = [getattr(result, "field", None)]
+    if fine:
+        fields.append(getattr(result, "fine_field", None))
+    return tuple(stride if stride > 0 else max(1, math.ceil(gap_px / float(vf.spacing_px)))
+                 for vf in fields if vf is not None)
 
 
 class _Sampled:
@@ -172,11 +184,11 @@ class ShotPane:
         return True
 
     def show_vectors(self, result, stride: int, colour: str, ball_frame: bool = False,
-                     fine: bool = False) -> None:
-        """Every ``stride``-th vector of the result's field (None: none), in the lab or the ball
-        frame, and with ``fine`` the fine field's near the ball instead of the main field's
-        there; valid, replaced and masked drawn apart, all at one scale, with a reference
-        vector."""
+                     fine: bool = False, gap_px: float = 0.0) -> None:
+        """Every ``stride``-th vector of the result's field (None: none; ``stride`` 0: each
+        field's step that keeps arrows ``gap_px`` image px apart), in the lab or the ball frame,
+        and with ``fine`` the fine field's near the ball instead of the main field's there;
+        valid, replaced and masked drawn apart, all at one scale, with a reference vector."""
         vf = getattr(result, "field", None)
         if vf is None:
             for item in (self.vectors, self.replaced):
@@ -184,11 +196,12 @@ class ShotPane:
             self.masked.setData(pos=np.empty((0, 2)))
             self.reference.set_reference(None)
             return
-        parts = [_Sampled(result, vf, stride, ball_frame, False)]
+        steps = field_steps(result, stride, gap_px, fine)
+        parts = [_Sampled(result, vf, steps[0], ball_frame, False)]
         fine_vf = getattr(result, "fine_field", None) if fine else None
         if fine_vf is not None:
             parts = [parts[0].outside(fine_extent(fine_vf)),
-                     _Sampled(result, fine_vf, stride, ball_frame, True)]
+                     _Sampled(result, fine_vf, steps[1], ball_frame, True)]
         drawn = _Sampled.joined(parts)
         usable = ~drawn.masked
         big = typical_length(drawn.dx[usable], drawn.dy[usable])

@@ -29,6 +29,7 @@ from PySide6.QtWidgets import (
     QWidget,
 )
 
+from app.qt.docks import dock_action
 from app.qt.workers import BackgroundJob, JobOutcome
 from app.review import colours
 from app.review.conditions import (
@@ -42,6 +43,7 @@ from core.agreement import agreement_lines, compare_reviews, latest_layer
 from core.conditions import CONFIDENCE, grouping_columns
 
 ENSEMBLE_HEADER = "ensemble"
+GROUPING_WIDTH_PX = 200  # the grouping button's text at most
 
 
 class StatisticsPanel(QWidget):
@@ -82,6 +84,7 @@ class StatisticsPanel(QWidget):
             "shot-to-shot spread); final angle, else the proposal; unusable shots left out",
             self)
         self.method_label.setStyleSheet(f"color: {colours.MUTED_INK};")
+        self.method_label.setWordWrap(True)  # more lines in a narrow window, not a wider one
         self.table = QTableWidget(0, len(TABLE_HEADER) + 1, self)
         self.table.setHorizontalHeaderLabels([*TABLE_HEADER, ENSEMBLE_HEADER])
         self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
@@ -150,11 +153,14 @@ class StatisticsPanel(QWidget):
             action.setChecked(column in chosen)
             action.toggled.connect(lambda on, c=column: self._toggle_column(c, on))
             self.group_menu.addAction(action)
-        self.group_button.setText(", ".join(chosen) or "nothing (all shots together)")
+        grouping = ", ".join(chosen) or "nothing (all shots together)"
+        # a long grouping is shortened on the button (whole in its tip), not widening the window
+        self.group_button.setText(self.group_button.fontMetrics().elidedText(
+            grouping, Qt.TextElideMode.ElideRight, GROUPING_WIDTH_PX))
         same = common_text(self.conditions)
-        self.group_button.setToolTip(f"every condition: {same}" if same else
-                                     "manifest columns whose values make a condition (kept "
-                                     "in the session)")
+        self.group_button.setToolTip(f"grouped by {grouping}; " + (
+            f"every condition: {same}" if same else
+            "manifest columns whose values make a condition (kept in the session)"))
 
     def _toggle_column(self, column: str, on: bool) -> None:
         columns = [c for c in self.model.conditions_by() if c != column]
@@ -236,10 +242,8 @@ def install_statistics(window) -> StatisticsPanel:
     if overview_dock is not None:
         window.tabifyDockWidget(overview_dock, dock)
         overview_dock.raise_()
-    toggle = dock.toggleViewAction()
-    toggle.setText("&Conditions and agreement")
-    toggle.setStatusTip("statistics per condition, the ensemble view, a second review")
-    window.addAction(toggle)
+    toggle = dock_action(window, dock, "&Conditions and agreement",
+                         "statistics per condition, the ensemble view, a second review")
     view_menu = getattr(window, "view_menu", None)
     if view_menu is not None:
         view_menu.addAction(toggle)

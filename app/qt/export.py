@@ -10,9 +10,10 @@ the window's vorticity colour range when it is fixed for the session.
 from __future__ import annotations
 
 from PySide6.QtCore import Qt
-from PySide6.QtGui import QAction, QKeySequence
+from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QApplication, QDockWidget, QProgressDialog
 
+from app.qt.docks import dock_action
 from app.qt.file_dialogs import ask_path
 from app.qt.overview import SessionOverview
 from app.review.overview import numeric_columns
@@ -34,11 +35,8 @@ def install_overview(window) -> SessionOverview:
                      | QDockWidget.DockWidgetFeature.DockWidgetFloatable)
     window.addDockWidget(Qt.DockWidgetArea.BottomDockWidgetArea, dock)
     window.resizeDocks([dock], [250], Qt.Orientation.Vertical)
-    toggle = dock.toggleViewAction()
-    toggle.setText("Session &overview")
-    toggle.setShortcut(QKeySequence("O"))
-    toggle.setStatusTip("separation angles of every shot against the seam angle or another column")
-    window.addAction(toggle)
+    toggle = dock_action(window, dock, "Session &overview", "separation angles of every shot "
+                         "against the seam angle or another column", shortcut="O")
     view_menu = getattr(window, "view_menu", None)
     if view_menu is not None:
         view_menu.addSeparator()

@@ -248,5 +248,6 @@ def _legend_label() -> QtWidgets.QLabel:
         " &nbsp; | &nbsp; deg from the plane normal to the flight, + rearward"
     )
     label.setTextFormat(QtCore.Qt.TextFormat.RichText)
+    label.setWordWrap(True)  # more lines in a narrow window, not a wider window
     return label
 

@@ -46,6 +46,9 @@ from app.review.text import (
 from core.geometry import SIDES
 from core.results import SideProposal
 
+# the notes field's own keys (NoteEdit.keyPressEvent), for the F1 key list
+NOTE_KEYS = (("Ctrl+Return / Esc", ("in the note field: save the note and hand the keys "
+                                    "back to the list")),)
 ROWS = ("proposed", "final", "uncertainty", "quality")
 PROBLEM_STYLE = (f"QLabel {{ background: #f6e3e6; color: {colours.STATUS_COLOURS['unusable']};"
                  " border-radius: 4px; padding: 6px; }")

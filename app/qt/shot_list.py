@@ -56,6 +56,12 @@ SORT_ROLE = Qt.ItemDataRole.UserRole + 1
 FIXED = (("", "state", ("processing state: cracked outline = failed, dashed outline = not "
           "processed yet")), ("Shot", "shot", "shot id"), ("Status", "status", "review status"))
 COL_STATE, COL_SHOT, COL_STATUS = range(len(FIXED))
+# the list's own keys (the view's stepping and extended selection), for the F1 key list
+LIST_KEYS = (
+    ("Up / Down, PageUp / PageDown, Ctrl+Home / Ctrl+End", "step through shots in the list"),
+    ("Shift+Up / Shift+Down, Ctrl+A", ("select several shots (Shift- or Ctrl-click too): a "
+                                       "decision key decides them all, one undo step")),
+)
 DEFAULT_COLUMNS = ("upper_deg", "lower_deg", "seam_deg")
 _WIDTHS = {COL_STATE: 22, COL_SHOT: 56, COL_STATUS: 92}
 _RIGHT = int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
@@ -273,7 +279,7 @@ class ShotListPanel(QWidget):
         self.status_filter.addItems(STATUS_FILTERS)
         self.status_filter.setToolTip("show only shots with this review status or state")
         self.text_filter = QLineEdit(self)
-        self.text_filter.setPlaceholderText("filter: speed_m_s>30 seam_deg:10..30 quality<0.5")
+        self.text_filter.setPlaceholderText("filter: seam_deg:10..30")  # more in the tip
         self.text_filter.setClearButtonEnabled(True)
         self.text_filter.setToolTip(filter_help())
         self.count_label = QLabel(self)

@@ -39,14 +39,14 @@ from PySide6.QtWidgets import (
 )
 
 from app.qt.analyst_marks import install_analyst_marks
-from app.qt.canvas import ShotCanvas
+from app.qt.canvas import MOUSE_KEYS, ShotCanvas
 from app.qt.conditions_panel import install_statistics
 from app.qt.export import install_export_actions, install_overview
 from app.qt.icons import app_icon, status_icon
 from app.qt.picture_export import install_picture_actions
 from app.qt.platform_libs import platform_problem
-from app.qt.readout import ReadoutPanel
-from app.qt.shot_list import ShotListPanel
+from app.qt.readout import NOTE_KEYS, ReadoutPanel
+from app.qt.shot_list import LIST_KEYS, ShotListPanel
 from app.qt.window_ball import BallActions
 from app.qt.window_jobs import JobActions
 from app.qt.window_review import ReviewActions
@@ -141,7 +141,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         for widget, stretch in ((self.shot_list, 0), (self.canvas, 1), (self.readout, 0)):
             self.splitter.addWidget(widget)
             self.splitter.setStretchFactor(self.splitter.count() - 1, stretch)
-        self.splitter.setSizes([345, 905, 350])
+        self.splitter.setSizes([365, 885, 350])  # the list's default columns whole
         self.splitter.setChildrenCollapsible(False)
         self.setCentralWidget(self.splitter)
         self.resize(1600, 900)
@@ -181,7 +181,10 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         self.act_save = a("&Save", self.save_session, QKeySequence.StandardKey.Save,
                           "edits are saved as you make them; this also compacts the file")
         self.act_close = a("&Close session", self.close_session, QKeySequence.StandardKey.Close)
-        self.act_quit = a("&Quit", self.close, QKeySequence.StandardKey.Quit)
+        self.act_quit = a("&Quit", self.close)
+        # the desktop's Quit key; Ctrl+Q where the desktop names none
+        self.act_quit.setShortcuts(QKeySequence.keyBindings(QKeySequence.StandardKey.Quit)
+                                   or [QKeySequence("Ctrl+Q")])
         self.act_undo = self.undo_stack.createUndoAction(self, "&Undo")
         self.act_undo.setShortcut(QKeySequence.StandardKey.Undo)
         self.act_redo = self.undo_stack.createRedoAction(self, "&Redo")
@@ -409,14 +412,19 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         dialog.resize(520, 600)
         dialog.open()
 
-    def shortcut_table_html(self) -> str:
-        rows = [("Up / Down, PageUp / PageDown, Ctrl+Home / Ctrl+End",
-                 "step through shots in the list")]
+    def shortcut_rows(self) -> list[tuple[str, str]]:
+        """(keys, what they do) of every key: the list's and the note field's own keys, every
+        action with a shortcut (read from the actions, so the list cannot drift), the mouse."""
+        rows = list(LIST_KEYS)
         for action in self.actions():
-            keys = action.shortcut().toString(QKeySequence.SequenceFormat.NativeText)
+            keys = ", ".join(key.toString(QKeySequence.SequenceFormat.NativeText)
+                             for key in action.shortcuts())
             if keys and action.text():
                 rows.append((keys, action.text().replace("&", "").rstrip("…")))
-        rows.append(("drag a round mark", "move a separation mark along the ball outline"))
+        return [*rows, *NOTE_KEYS, *MOUSE_KEYS]
+
+    def shortcut_table_html(self) -> str:
+        rows = self.shortcut_rows()
         body = "".join(f"<tr><td><b>{k}</b></td><td>{t}</td></tr>" for k, t in rows)
         return f"<table cellspacing='6'>{body}</table>"
 

@@ -9,17 +9,24 @@ import numpy as np
 
 from app.review import colours
 
+LIMIT_FIGURES = 2  # significant figures of a colour-bar end
+
 
 def round_limit(value: float) -> float:
-    """The next value of the 1-2-5 series at or above ``value``: a tidy colour-bar end that stays
-    the same over shots of similar strength (so the scale is comparable and cheap to redraw)."""
+    """``value`` rounded up to two significant figures (2050 -> 2100, 0.0123 -> 0.013): a tidy
+    colour-bar end at most a tenth above the field's own, so a shot looks the same whichever
+    way it is drawn (the window, the sheet) and shear layers are not washed out."""
     if value <= 0 or not math.isfinite(value):
         return 1.0
-    decade = 10.0 ** math.floor(math.log10(value))
-    for step in (1.0, 2.0, 5.0, 10.0):
-        if value <= step * decade * (1 + 1e-9):
-            return step * decade
-    return 10.0 * decade
+    exponent = math.floor(math.log10(value)) - (LIMIT_FIGURES - 1)
+    steps = math.ceil(value / 10.0 ** exponent * (1 - 1e-9))
+    return round(steps * 10.0 ** exponent, -exponent)
+
+
+def shot_limit(vorticity_1_s) -> float:
+    """One shot's colour-bar end: the 98th percentile of its |vorticity|, rounded up to two
+    significant figures (``round_limit``); 1 when it has no finite value."""
+    return round_limit(colours.symmetric_limit(vorticity_1_s))
 
 
 def round_length(value: float) -> float:
@@ -33,7 +40,7 @@ def round_length(value: float) -> float:
 
 def shared_limit(vorticity_fields) -> float:
     """One colour-bar end for several shots: the median of their own ends (98th percentile of
-    |vorticity| each), rounded up in the 1-2-5 series. Most shots then look as they do alone;
-    the strongest saturate in their cores rather than washing the others out."""
+    |vorticity| each), rounded up to two significant figures. Most shots then look as they do
+    alone; the strongest saturate in their cores rather than washing the others out."""
     limits = [colours.symmetric_limit(w) for w in vorticity_fields if w is not None]
     return round_limit(float(np.median(limits))) if limits else 1.0
