@@ -325,3 +325,20 @@ def test_numbers_that_cannot_fit_say_so():
     assert "value 0" in drawn and "value 11" not in drawn
     mark = [v for v in drawn if v.startswith("…")]
     assert len(mark) == 1 and "row11" in mark[0] and "row0" not in mark[0]
+
+
+def test_a_shot_has_the_same_vorticity_colours_on_the_sheet_as_in_the_window(
+        reviewed_session, tmp_path, monkeypatch):
+    from app.review import colours
+    from app.review.scales import shot_limit
+    from app.sheet import make_sheet
+    from core.store import Session
+
+    used = []
+    draw = colours.vorticity_rgb
+    monkeypatch.setattr(colours, "vorticity_rgb",
+                        lambda w, limit, *a, **k: used.append(limit) or draw(w, limit, *a, **k))
+    with Session.open(reviewed_session, writable=False) as session:
+        make_sheet(session, tmp_path / "one.pdf", per_page=1, shot_ids=["s02"])
+        expected = shot_limit(session.load_result("s02").vorticity_1_s)  # the canvas's range
+    assert used == [expected]

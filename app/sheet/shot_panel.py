@@ -12,7 +12,7 @@ from PySide6 import QtCore, QtGui
 
 from app.review import colours
 from app.review.marks import fitted_layer_lines, moved_from_proposal
-from app.review.scales import round_length
+from app.review.scales import round_length, shot_limit
 from app.review.text import (
     MISSING,
     SHEET_DECIMALS,
@@ -193,7 +193,7 @@ def _paint_vorticity(p, view: _View, result, limit: float | None) -> float:
     vf = result.field
     if w is None:
         return float("nan")
-    limit = colours.symmetric_limit(w) if limit is None else limit
+    limit = shot_limit(w) if limit is None else limit  # as the window draws the shot
     rgba = np.ascontiguousarray(colours.vorticity_rgb(w, limit))
     rows, cols = rgba.shape[:2]
     image = QtGui.QImage(rgba.data, cols, rows, cols * 4, QtGui.QImage.Format.Format_RGBA8888)
