@@ -46,7 +46,7 @@ def test_measured_values_metadata_and_summary_paths_filter_together(records):
     assert _found("speed_m_s>30 seam_deg:0..20", records) == (["a2"], "")
     assert _found("quality<0.5", records) == (["a2"], "")  # the weaker side of the two
     assert _found("upper_minus_lower_deg>=15", records) == (["a1", "a2"], "")
-    assert _found("wake_deflection_deg>8", records) == (["a2", "b3"], "")
+    assert _found("wake_deflection_deg>8", records) == (["a2"], "")  # b3 unusable: none
     assert _found("upper_uncertainty_deg=1.5 a", records) == (["a1", "a2"], "")
     assert _found("reynolds>1.5e5", records) == (["a2", "b3"], "")
     assert _found("reynolds.air_temp_c=20 speed_m_s<30", records) == (["a1"], "")
@@ -69,6 +69,12 @@ def test_a_new_measured_value_is_one_line(records):
     column = MEASURED_BY_NAME["reynolds"]
     assert [column.value(r) for r in records] == [1.2e5, 1.6e5, 1.8e5, None]
     assert column.text(records[1]) == "1.60e5"
+
+
+def test_an_unusable_shot_has_no_wake_in_the_list_as_in_the_table(records):
+    column = MEASURED_BY_NAME["wake_deflection_deg"]
+    assert [column.value(r) for r in records] == [5.0, 22.0, None, None]
+    assert _found("wake_deflection_deg>0", records) == (["a1", "a2"], "")
 
 
 def test_status_words(records):

@@ -156,8 +156,9 @@ MEASURED = (
            "measured ball speed, m/s"),
     Column("reynolds", "Re", summary_number("reynolds", "value"),
            "Reynolds number of the ball in the air stream"),
-    Column("wake_deflection_deg", "Wake", summary_number("separation", "wake_deflection_deg"),
-           "wake deflection from the flight axis, deg, + toward the upper side", "angle"),
+    Column("wake_deflection_deg", "Wake", ShotRecord.wake_deflection_deg,
+           "wake deflection from the flight axis, deg, + toward the upper side (none for an "
+           "unusable shot, as in the table)", "angle"),
 )
 MEASURED_BY_NAME = {column.name: column for column in MEASURED}
 
