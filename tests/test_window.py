@@ -462,6 +462,39 @@ def test_import_folder_from_the_window_opens_the_new_session(main_window, qtbot,
     assert "Not processed yet" in window.canvas.message.text()
 
 
+@pytest.mark.parametrize("take", [True, False], ids=["taken", "declined"])
+def test_corrected_values_found_on_import_are_offered_and_keep_the_picks(
+        main_window, qtbot, tmp_path, take):
+    from data.session_helpers import write_shot_folder
+
+    from core.store import Session
+
+    folder = write_shot_folder(tmp_path / "launches", 2)
+    session_path = tmp_path / "launches.h5"
+    window = main_window(workers=0)
+    window.act_auto.setChecked(False)
+    with qtbot.waitSignal(window.import_folder(folder, session_path).finished, timeout=60_000):
+        pass
+    window.close_session()
+    with Session.open(session_path) as session:
+        session.set_pick("S1", status="adjusted", upper_deg=4.5)
+    manifest = folder / "shots.csv"
+    manifest.write_text(manifest.read_text().replace("S1,2e-05", "S1,2.5e-05"))
+    asked = []
+    window._ask_take_corrections = lambda shots: asked.append(shots) or take
+    with qtbot.waitSignal(window.import_folder(folder, session_path).finished, timeout=60_000):
+        pass
+    if take:  # the second import, taking the values, runs and opens the session
+        qtbot.waitUntil(lambda: window.job is None and window.model.session is not None,
+                        timeout=60_000)
+    assert asked == [["S1"]]
+    record = window.model.record("S1")
+    assert record.metadata["dt_s"] == (2.5e-05 if take else 2e-05)
+    assert record.pick.status == "adjusted" and record.pick.upper_deg == 4.5
+    if not take:
+        assert "with other values (dt_s 2e-05 -> 2.5e-05)" in window.last_problem
+
+
 def test_an_import_can_be_cancelled_and_opens_what_came_in(main_window, qtbot, tmp_path):
     from data.session_helpers import write_shot_folder
 

@@ -171,17 +171,21 @@ class SessionActions:
         if target:
             self.import_folder(folder, target)
 
-    def import_folder(self, folder, session_path) -> BackgroundJob | None:
-        """Import ``folder`` into ``session_path`` in the background, then open the session."""
+    def import_folder(self, folder, session_path,
+                      correct_values: bool = False) -> BackgroundJob | None:
+        """Import ``folder`` into ``session_path`` in the background, then open the session.
+        Shots already there with the same frames but other values in ``shots.csv`` are
+        offered as corrections (:meth:`_ask_take_corrections`); ``correct_values`` takes them."""
         if self.job is not None:
             self.show_problem("Busy", "Wait for the running job to finish or cancel it.")
             return None
         open_path = None if self.model.path is None else self.model.path.resolve()
         if open_path == Path(session_path).resolve():
             self.close_session()
-        job = import_job(folder, session_path, self)
+        job = import_job(folder, session_path, self, correct_values)
         job.item_done.connect(self._on_import_item)
-        job.finished.connect(lambda outcome: self._on_import_finished(outcome, session_path))
+        job.finished.connect(
+            lambda outcome: self._on_import_finished(outcome, session_path, folder))
         self._start_job(job, "Importing", 0)
         return job
 
@@ -189,7 +193,7 @@ class SessionActions:
         shot_id, _ok, _message = item
         self.progress_label.setText(f"Importing {shot_id}")
 
-    def _on_import_finished(self, outcome: JobOutcome, session_path) -> None:
+    def _on_import_finished(self, outcome: JobOutcome, session_path, folder=None) -> None:
         self._end_job()
         if outcome.error:
             self.show_problem("Import", outcome.error)
@@ -197,12 +201,30 @@ class SessionActions:
         report = outcome.value
         if report is None:  # stopped while the window closed
             return
+        if report.differing and folder is not None and not outcome.cancelled and \
+                self._ask_take_corrections(report.differing):
+            self.import_folder(folder, session_path, correct_values=True)
+            return
         if report.problems:
             self.show_problem("Import: some rows were not imported",
                               "\n".join(report.problems[:15] + report.notes))
         word = "Import stopped" if outcome.cancelled else "Imported"
-        self.statusBar().showMessage(f"{word}: {len(report.imported)} shots imported.", 6000)
+        corrected = (f"; the values of {len(report.corrected)} corrected (to be measured "
+                     "again, the picks stay)" if report.corrected else "")
+        self.statusBar().showMessage(
+            f"{word}: {len(report.imported)} shots imported{corrected}.", 6000)
         self.open_session(session_path)
+
+    def _ask_take_corrections(self, shots: list[str]) -> bool:
+        """Whether the new values of these shots (same frames, other values in shots.csv)
+        replace those in the session: a dt or scale corrected after import."""
+        named = ", ".join(shots[:6]) + (" ..." if len(shots) > 6 else "")
+        answer = QMessageBox.question(
+            self, "Corrected values?",
+            f"{len(shots)} shot(s) already in the session have other values in "
+            f"{MANIFEST_NAME} than when they were imported ({named}).\n\nTake the new values? "
+            "Their picks stay; they are measured again with them.")
+        return answer == QMessageBox.StandardButton.Yes
 
     def _last_folder(self) -> str:
         return str(self.settings.value("last_folder", str(Path.home())))

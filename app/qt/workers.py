@@ -159,13 +159,15 @@ def process_job(model, shot_ids=None, workers: int | None = None, force: bool = 
     return BackgroundJob(run, parent)
 
 
-def import_job(src_dir, session_path, parent: QObject | None = None) -> BackgroundJob:
+def import_job(src_dir, session_path, parent: QObject | None = None,
+               correct_values: bool = False) -> BackgroundJob:
     """A job importing a folder (``shots.csv`` + frames) into a session file; items are
-    ``(shot_id, ok, message)``; the value is the store's ``ImportReport``."""
+    ``(shot_id, ok, message)``; the value is the store's ``ImportReport``. ``correct_values``:
+    shots already in the session with the same frames take the manifest's new values."""
 
     def run(report, should_stop):
         return import_folder(src_dir, session_path,
                              on_shot=lambda sid, ok, msg: report((sid, ok, msg)),
-                             should_stop=should_stop)
+                             should_stop=should_stop, correct_values=correct_values)
 
     return BackgroundJob(run, parent)
