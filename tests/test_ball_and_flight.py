@@ -175,7 +175,7 @@ def test_the_usual_direction_needs_a_majority():
     # the proposals, -9 and +2 deg +- 4: 11 deg apart, beyond max(5, 5.7): README, Wake
     (Pick(), "lower side holds on longer"),
     (Pick(status="accepted"), "lower side holds on longer"),
-    (Pick(status="adjusted", lower_deg=-8.0), "symmetric"),
+    (Pick(status="adjusted", lower_deg=-8.0), "no clear difference"),
     (Pick(status="adjusted", upper_deg=8.0), "upper side holds on longer"),
     (Pick(status="unusable", reason="x"), ""),
 ])
@@ -183,5 +183,5 @@ def test_the_wake_state_is_that_of_the_final_angles(pick, state):
     record = ShotRecord("t", {}, state="processed", summary=_summary(), pick=pick)
     assert record.wake_state() == state
     if state:
-        assert record.wake_state({"upper": -3.0}) == "symmetric"  # a mark being dragged
+        assert record.wake_state({"upper": -3.0}) == "no clear difference"  # a mark being dragged
     assert ShotRecord("t", {}).wake_state() == ""  # not measured

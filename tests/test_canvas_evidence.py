@@ -56,7 +56,7 @@ def evidence_shot():
     result.fine_field = _fine_field(result, truth)
     upper = replace(result.separation.upper, layer=dict(LAYER, phi_s=result.separation.upper
                                                         .angle_deg))
-    result.separation = SeparationResult(upper, result.separation.lower, 0.0, "symmetric")
+    result.separation = SeparationResult(upper, result.separation.lower, 0.0, "no clear difference")
     return frame_a, frame_b, result
 
 
