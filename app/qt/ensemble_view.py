@@ -12,10 +12,6 @@ from PySide6.QtWidgets import QDialog, QLabel, QVBoxLayout
 from app.qt.canvas import CanvasShot, ShotCanvas
 from app.review.conditions import ensemble_lines
 
-#: Distance (px of the picture) between the vectors drawn.
-VECTOR_SPACING_PX = 16.0
-
-
 class EnsembleDialog(QDialog):
     """A canvas (not editable) and the condition's numbers; one per window, reused."""
 
@@ -49,9 +45,8 @@ def show_ensemble(window, condition, view) -> EnsembleDialog:
     if dialog is None:
         dialog = window.ensemble_dialog = EnsembleDialog(window)
         dialog.canvas.restore_layers(window.canvas.layer_state())
-    # the ensemble's grid is finer than a shot's: draw about as many vectors as on a shot
-    dialog.canvas.stride_box.setValue(max(1, round(VECTOR_SPACING_PX
-                                                   / view.result.field.spacing_px)))
+    # the ensemble's grid is finer than a shot's: as many vectors as fit the zoom
+    dialog.canvas.stride_box.setValue(0)
     dialog.show_view(condition, view)
     dialog.show()
     dialog.raise_()
