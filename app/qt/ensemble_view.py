@@ -12,6 +12,7 @@ from PySide6.QtWidgets import QDialog, QLabel, QVBoxLayout
 from app.qt.canvas import CanvasShot, ShotCanvas
 from app.review.conditions import ensemble_lines
 
+
 class EnsembleDialog(QDialog):
     """A canvas (not editable) and the condition's numbers; one per window, reused."""
 
