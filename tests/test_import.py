@@ -10,7 +10,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import tifffile
-from data.session_helpers import HEADER, write_pair, write_shot_folder
+from data.session_helpers import HEADER, fake_result, write_pair, write_shot_folder
 
 from app.cli import main
 from core import WakelineError
@@ -217,11 +217,45 @@ def test_a_wrong_value_found_after_import_is_corrected_and_the_picks_stay(tmp_pa
     assert main(["import", str(src), str(session), "--correct-values"]) == 0
     out, err = capsys.readouterr()
     assert "corrected the values of 1" in out
-    assert "1 shot(s) took the corrected values of shots.csv (S1): their picks stay" in err
+    assert "1 shot(s) took the corrected values of shots.csv (S1); their picks stay" in err
+    assert "measured with other values now, to be processed again: S1" in err
     with Session.open(session, writable=False) as s:
         assert s["S1"].metadata["dt_s"] == 2.5e-05 and s.settings_for("S1").dt_s == 2.5e-05
         assert s["S1"].pick.status == "adjusted" and s["S1"].pick.upper_deg == 4.5
         assert s["S0"].metadata["dt_s"] == 2e-05
+
+
+def test_a_corrected_note_is_kept_without_measuring_again(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    session_path = tmp_path / "s.h5"
+    import_folder(src, session_path)
+    with Session.open(session_path) as s:
+        s.save_result("S1", fake_result(s.settings_for("S1")))
+    manifest = src / "shots.csv"
+    manifest.write_text(manifest.read_text().replace("shot 1", "shot 1 fog low"))
+    report = import_folder(src, session_path, correct_values=True)
+    assert report.corrected == ["S1"] and report.outdated == []
+    assert not any("processed again" in note for note in report.notes)
+    with Session.open(session_path, writable=False) as s:
+        assert s["S1"].metadata["notes"] == "shot 1 fog low" and not s.needs_processing("S1")
+
+
+def test_the_values_that_differ_name_what_is_measured_with_first(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 1)
+    import_folder(src, tmp_path / "s.h5")
+    manifest = src / "shots.csv"
+    text = manifest.read_text().replace("S0,2e-05", "S0,3e-05").replace("shot 0", "zzz")
+    manifest.write_text(text.replace(",0,zzz", ",5,zzz"))  # seam_deg, notes and dt_s differ
+    [problem] = import_folder(src, tmp_path / "s.h5").problems
+    assert "with other values (dt_s 2e-05 -> 3e-05, notes shot 0 -> zzz, seam_deg 0" in problem
+
+
+def test_a_stray_frame_beside_a_shots_pair_is_named_as_unused(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 1)
+    shutil.copy(src / "S0_a.tif", src / "S0.tif")  # a two-page name beside the pair
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == ["S0"]
+    assert "1 image file(s) not named in shots.csv: S0.tif" in report.notes
 
 
 def test_other_frames_under_an_id_are_never_taken_as_a_correction(tmp_path, capsys):

@@ -50,8 +50,9 @@ def _add_import(subparsers) -> None:
                    "referencing them by path")
     p.add_argument("--correct-values", action="store_true",
                    help="a shot already in the session with the same frames but other values "
-                   "in shots.csv (a wrong dt_s or scale) takes the new values; its picks stay "
-                   "and it is processed again by the next 'wakeline process'")
+                   "in shots.csv (a wrong dt_s or scale) takes the new values; its picks stay, "
+                   "and when the values change how it is measured (dt_s, scale, ball, "
+                   "flight_deg, air_temp_c) the next 'wakeline process' measures it again")
     p.set_defaults(func=run_import)
 
 

@@ -223,7 +223,8 @@ class SessionActions:
             self, "Corrected values?",
             f"{len(shots)} shot(s) already in the session have other values in "
             f"{MANIFEST_NAME} than when they were imported ({named}).\n\nTake the new values? "
-            "Their picks stay; they are measured again with them.")
+            "Their picks stay; those the new values measure differently are to be processed "
+            "again.")
         return answer == QMessageBox.StandardButton.Yes
 
     def _last_folder(self) -> str:

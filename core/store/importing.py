@@ -8,7 +8,7 @@ from pathlib import Path
 from core import WakelineError
 from core.store.files import sha256_of
 from core.store.manifest import MANIFEST_NAME, read_manifest
-from core.store.session import Session
+from core.store.session import PER_SHOT_SETTINGS, Session
 
 FRAME_SUFFIXES = (".tif", ".tiff", ".png")
 
@@ -25,6 +25,7 @@ class ImportReport:
     already: list[str] = field(default_factory=list)
     corrected: list[str] = field(default_factory=list)  # shots whose values were replaced
     differing: list[str] = field(default_factory=list)  # refused: same frames, other values
+    outdated: list[str] = field(default_factory=list)  # corrected shots now to be measured again
 
 
 #: What importing one row did (besides a problem, which is its message).
@@ -97,15 +98,11 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
                 on_shot(shot_id, outcome in kept, "" if outcome in kept else outcome)
         else:
             report.notes += folder.unused_note()
-        report.differing = folder.differing
+        report.differing, report.outdated = folder.differing, folder.outdated
         if report.already:
             report.notes.append(f"{len(report.already)} shot(s) already in {session.path.name} "
                                 "with the same frames and values were left as they are")
-        if report.corrected:
-            report.notes.append(
-                f"{len(report.corrected)} shot(s) took the corrected values of {MANIFEST_NAME} "
-                f"({', '.join(report.corrected[:5])}{' ...' if len(report.corrected) > 5 else ''})"
-                ": their picks stay; process them again")
+        report.notes += _correction_notes(report, folder.camera_moved)
     report.problems += session.problems  # what saving found damaged, if anything
     return report
 
@@ -119,6 +116,8 @@ class _Folder:
         self.listing = _frame_listing(src_dir)
         self.used: set[str] = set()
         self.differing: list[str] = []
+        self.outdated: list[str] = []  # corrected, with settings that changed
+        self.camera_moved: list[str] = []  # corrected camera while a background is subtracted
         self.ids = {shot_id.casefold(): shot_id for shot_id in session}  # frame names ignore case
 
     def import_row(self, metadata: dict, correct_values: bool = False) -> str:
@@ -147,7 +146,7 @@ class _Folder:
             if record.metadata == meta:
                 return SAME
             if correct_values:
-                self.session.set_shot_values(shot_id, meta)
+                self._correct(shot_id, record.metadata, meta)
                 return CORRECTED
             self.differing.append(shot_id)
             return (f"already in {self.session.path.name} with other values "
@@ -161,11 +160,26 @@ class _Folder:
         self.ids[shot_id.casefold()] = shot_id
         return ADDED
 
+    def _correct(self, shot_id: str, old: dict, new: dict) -> None:
+        """Give the shot its corrected values, and note whether it is to be measured again:
+        when its settings change, or when its camera changes while the session subtracts a
+        background (the camera picks the frames the background is made of)."""
+        before = self.session.settings_for(shot_id).fingerprint()
+        self.session.set_shot_values(shot_id, new)
+        if self.session.settings_for(shot_id).fingerprint() != before:
+            self.outdated.append(shot_id)
+        elif (old.get("camera") or "") != (new.get("camera") or "") and \
+                self.session.processing_settings().get("background"):
+            self.camera_moved.append(shot_id)
+
     def name_files(self, shot_id: str) -> None:
-        """Count the image files a row of ``shot_id`` names as used, whether or not the row is
-        imported: the note of unused files lists only those no row names."""
-        stem = shot_id.lower()
-        self.used.update(n for n in _frame_names(stem) if n in self.listing)
+        """Count the image files a row of ``shot_id`` takes as used, whether or not the row is
+        imported (the half of a pair that is there, too): the note of unused files lists only
+        those no row takes (a stray file beside a shot's frames among them)."""
+        paths, _ = _find_frames(shot_id, self.listing)
+        if not paths:
+            paths = [p for p in _pair_halves(shot_id.lower(), self.listing) if p is not None]
+        self.used.update(p.name.lower() for p in paths)
 
     def unused_note(self) -> list[str]:
         extra = sorted(set(self.listing) - self.used)
@@ -174,6 +188,26 @@ class _Folder:
         return [f"{len(extra)} image file(s) not named in {MANIFEST_NAME}: "
                 + ", ".join(self.listing[k].name for k in extra[:5])
                 + (" ..." if len(extra) > 5 else "")]
+
+
+def _correction_notes(report: ImportReport, camera_moved: list[str]) -> list[str]:
+    """What the corrections did, and what is to be measured again."""
+    if not report.corrected:
+        return []
+    notes = [(f"{len(report.corrected)} shot(s) took the corrected values of {MANIFEST_NAME} "
+              f"({_ids(report.corrected)}); their picks stay")]
+    if report.outdated:
+        notes.append(f"measured with other values now, to be processed again: "
+                     f"{_ids(report.outdated)}")
+    if camera_moved:
+        notes.append(f"camera position corrected while a background image is subtracted: "
+                     f"{_ids(camera_moved)} and the shots at its old and new camera positions "
+                     "are to be measured again, forced (their settings did not change)")
+    return notes
+
+
+def _ids(shots: list[str], shown: int = 5) -> str:
+    return ", ".join(shots[:shown]) + (" ..." if len(shots) > shown else "")
 
 
 def _same_frames(record, paths: list[Path]) -> bool:
@@ -186,7 +220,8 @@ def _same_frames(record, paths: list[Path]) -> bool:
 
 def _differences(stored: dict, given: dict, shown: int = 3) -> str:
     """The values that differ, in words: ``dt_s 6e-05 -> 6.2e-05, ...``."""
-    keys = sorted(k for k in set(stored) | set(given) if stored.get(k) != given.get(k))
+    keys = sorted((k for k in set(stored) | set(given) if stored.get(k) != given.get(k)),
+                  key=lambda k: (k not in PER_SHOT_SETTINGS, k))  # what is measured with first
     words = [f"{k} {_value(stored.get(k))} -> {_value(given.get(k))}" for k in keys[:shown]]
     return ", ".join(words) + (" ..." if len(keys) > shown else "")
 
@@ -201,16 +236,15 @@ def _frame_listing(src_dir: Path) -> dict[str, Path]:
             if p.is_file() and p.suffix.lower() in FRAME_SUFFIXES}
 
 
-def _frame_names(stem: str) -> list[str]:
-    """Every lower-case file name a shot's frames may have: a pair, or one two-page TIFF."""
-    return [f"{stem}_{ab}{s}" for ab in ("a", "b") for s in FRAME_SUFFIXES] + [
-        f"{stem}.tif", f"{stem}.tiff"]
+def _pair_halves(stem: str, listing: dict[str, Path]) -> list[Path | None]:
+    """Frames A and B of a pair (the first suffix found of each), None where missing."""
+    return [next((listing[n] for n in (f"{stem}_{ab}{s}" for s in FRAME_SUFFIXES) if n in listing),
+                 None) for ab in ("a", "b")]
 
 
 def _find_frames(shot_id: str, listing: dict[str, Path]) -> tuple[list[Path], str]:
     stem = shot_id.lower()
-    pair = [next((listing[n] for n in (f"{stem}_{ab}{s}" for s in FRAME_SUFFIXES) if n in listing),
-                 None) for ab in ("a", "b")]
+    pair = _pair_halves(stem, listing)
     if pair[0] is not None and pair[1] is not None:
         return pair, ""
     single = next((listing[n] for n in (f"{stem}.tif", f"{stem}.tiff") if n in listing), None)

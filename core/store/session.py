@@ -412,7 +412,8 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         """Replace a shot's values from the manifest (a wrong ``dt_s``, scale or ball diameter
         corrected after import). The frames, the last result and the analyst's pick stay (the
         picks are angles on the picture, which the values do not move); a shot whose settings
-        the new values change counts as not processed (:meth:`needs_processing`)."""
+        the new values change counts as not processed (:meth:`needs_processing`), others (a
+        note, a seam angle) stay processed."""
         with self._mutex:
             self._check_writable()
             self._get(shot_id)
