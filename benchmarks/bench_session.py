@@ -56,7 +56,7 @@ def _stand_in_result(settings, rng: np.random.Generator) -> ShotResult:
         peak_ratio=rng.uniform(1.2, 6.0, GRID), window_px=32, spacing_px=16.0,
     )
     sep = SeparationResult(SideProposal(float(rng.normal(10, 3)), 2.0, 0.8),
-                           SideProposal(float(rng.normal(10, 3)), 2.0, 0.8), 1.0, "symmetric")
+                           SideProposal(float(rng.normal(10, 3)), 2.0, 0.8), 1.0, "no clear difference")
     return ShotResult(
         field=field, settings=settings, flight=Flight(180.0, 30.0, (-8.0, 0.0)), separation=sep,
         scale_mm_per_px=0.078, u_m_s=rng.normal(30, 1, GRID), v_m_s=rng.normal(0, 1, GRID),

@@ -69,13 +69,18 @@ def proposal_text(side: SideProposal, decimals: int = 1) -> str:
 
 
 def uncertainty_meaning(side: SideProposal) -> str:
-    """What a proposal's ± means, with the sources of its uncertainty largest first (a tip)."""
+    """What a proposal's ± means, with the sources of its uncertainty largest first (a tip).
+
+    The factor is read off the proposal's own numbers (its ± over the root sum of squares of
+    its budget): results measured before the factor was calibrated (2) keep theirs."""
     from core.separation import COVERAGE, COVERAGE_K
 
     if side.uncertainty_deg is None:
         return ""
+    rss = math.sqrt(sum(v * v for v in (side.budget or {}).values()))
+    factor = round(side.uncertainty_deg / rss, 1) if rss > 0 else COVERAGE_K
     lines = [(f"± {side.uncertainty_deg:.1f}° is meant to hold the true angle in "
-             f"{COVERAGE:.0%} of proposals: {COVERAGE_K:g} × the root sum of squares of these "
+             f"{COVERAGE:.0%} of proposals: {factor:g} × the root sum of squares of these "
              "standard uncertainties:")]
     for source, value in sorted((side.budget or {}).items(), key=lambda kv: -kv[1]):
         lines.append(f"  {source} {value:.2f}°")
