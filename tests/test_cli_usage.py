@@ -5,6 +5,7 @@ output, and errors that name the user's own file and the real cause."""
 from __future__ import annotations
 
 import json
+import sys
 
 import pytest
 from data.session_helpers import FAST_PIV, write_shot_folder
@@ -125,6 +126,17 @@ def test_table_to_standard_output_is_the_file_table(session_path, tmp_path, by, 
     assert main(["table", str(session_path), *by, "-o", "t.csv"]) == 0
     written = (tmp_path / "t.csv").read_text(encoding="utf-8")
     assert printed.splitlines() == written.splitlines() and printed.startswith("s")
+
+
+def test_a_reader_that_stops_early_ends_the_table_quietly(session_path, monkeypatch):
+    import os
+
+    read_end, write_end = os.pipe()
+    os.close(read_end)  # as `| head` does once it has its lines
+    out = open(write_end, "w", encoding="utf-8")  # noqa: SIM115 - closed below
+    monkeypatch.setattr(sys, "stdout", out)
+    assert main(["table", str(session_path), "-o", "-"]) == 0
+    out.close()  # what was left unwritten goes nowhere: no error at exit either
 
 
 def test_the_sheet_refuses_standard_output(session_path, tmp_path, capsys, monkeypatch):

@@ -6,6 +6,7 @@ import argparse
 import contextlib
 import csv
 import json
+import os
 import signal
 import sys
 from pathlib import Path
@@ -277,12 +278,18 @@ STDOUT = "-"
 
 
 def _print_csv(header: list[str], rows: list[list]) -> None:
-    """A table as CSV on standard output, cells as the table files have them."""
+    """A table as CSV on standard output, cells as the table files have them. A reader that
+    stops early (``| head``) ends the output quietly, as other shell tools do."""
     from core.store.table import cell_text
 
     writer = csv.writer(sys.stdout)
-    writer.writerow(header)
-    writer.writerows([cell_text(v) for v in row] for row in rows)
+    try:
+        writer.writerow(header)
+        writer.writerows([cell_text(v) for v in row] for row in rows)
+        sys.stdout.flush()
+    except BrokenPipeError:
+        # what is left unwritten goes nowhere, so that closing stdout at exit raises nothing
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
 
 
 def _condition_table(session, args: argparse.Namespace, to_stdout: bool = False) -> int:
