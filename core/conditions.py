@@ -138,8 +138,7 @@ def _condition(values: dict[str, str], members: list[ShotRecord]) -> Condition:
     kept = [r for r in members if usable(r)]
     sides = {side: Spread.of(r.shown_deg(side) for r in kept) for side in SIDES}
     difference = Spread.of(_difference(r) for r in kept)
-    wake = Spread.of(r.summary.separation.wake_deflection_deg for r in kept
-                     if r.summary is not None)
+    wake = Spread.of(r.wake_deflection_deg() for r in kept)
     reynolds = [v for v in (reynolds_number(r) for r in kept) if v is not None]
     return Condition(values, [r.shot_id for r in members], [r.shot_id for r in kept], sides,
                      difference, wake, (min(reynolds), max(reynolds)) if reynolds else None)

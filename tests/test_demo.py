@@ -41,12 +41,23 @@ def test_no_demo_file_passes_for_a_review_table_it_is_not(tmp_path):
     from app.cli.demo import DEMO_INPUTS
     from core.store.reviews import read_review_csv
 
+    from core import WakelineError
+
     shots = list(_rows(SAMPLE_RUNS / "shots.csv"))
-    for name in DEMO_INPUTS:
-        if "review" in name and name.endswith(".csv"):
-            read_review_csv(SAMPLE_RUNS / name, shots, None)
+    assert not [name for name in DEMO_INPUTS if "review" in name]
+    with pytest.raises(WakelineError):  # the marks are not a review table, and not named so
+        read_review_csv(SAMPLE_RUNS / "analyst_marks.csv", shots, None)
     marks = next(iter(_rows(SAMPLE_RUNS / "analyst_marks.csv").values()))
     assert {"upper_deg", "lower_deg", "unusable_reason"} <= set(marks)
+
+
+def test_an_older_demo_folder_still_has_its_marks_replayed(tmp_path):
+    from app.cli.demo import marks_file
+
+    (tmp_path / "reviews.csv").write_text("shot\n")  # the marks' name in older demo folders
+    assert marks_file(tmp_path) == tmp_path / "reviews.csv"
+    (tmp_path / "analyst_marks.csv").write_text("shot\n")
+    assert marks_file(tmp_path) == tmp_path / "analyst_marks.csv"
 
 
 def test_shipped_demo_is_small_and_complete():

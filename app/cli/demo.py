@@ -239,9 +239,17 @@ def process_demo(session_path: Path, workers: int | None = None) -> None:
                 raise WakelineError(f"{session_path}: processing stopped; run the demo again")
             done = f"processed {len(report.processed)} shot(s)" + (
                 f", {len(report.failed)} failed (see above)" if report.failed else "")
-        applied = replay_reviews(session, session_path.parent / "frames" / DEMO_MARKS)
+        applied = replay_reviews(session, marks_file(session_path.parent / "frames"))
     print(f"{session_path}: {done}"
           + (f"; replayed {applied} review decision(s)" if applied else ""))
+
+
+def marks_file(frames: Path) -> Path:
+    """The invented analyst's marks beside the demo frames; in a demo folder drawn before the
+    file had its present name, its older name."""
+    marks = frames / DEMO_MARKS
+    return marks if marks.is_file() or not (frames / "reviews.csv").is_file() else (
+        frames / "reviews.csv")
 
 
 def replay_reviews(session, marks_csv: Path) -> int:
