@@ -39,9 +39,8 @@ def test_no_demo_file_passes_for_a_review_table_it_is_not(tmp_path):
     """The demo copies its files beside the frames; one named like a review table must be one
     `wakeline add-review` reads (the invented analyst's marks are named for what they are)."""
     from app.cli.demo import DEMO_INPUTS
-    from core.store.reviews import read_review_csv
-
     from core import WakelineError
+    from core.store.reviews import read_review_csv
 
     shots = list(_rows(SAMPLE_RUNS / "shots.csv"))
     assert not [name for name in DEMO_INPUTS if "review" in name]

@@ -491,7 +491,10 @@ def test_corrected_values_found_on_import_are_offered_and_keep_the_picks(
     record = window.model.record("S1")
     assert record.metadata["dt_s"] == (2.5e-05 if take else 2e-05)
     assert record.pick.status == "adjusted" and record.pick.upper_deg == 4.5
-    if not take:
+    if take:
+        assert "the values of 1 corrected, the picks kept, 1 to be processed again" in (
+            window.statusBar().currentMessage())
+    else:
         assert "with other values (dt_s 2e-05 -> 2.5e-05)" in window.last_problem
 
 

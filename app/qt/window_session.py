@@ -171,11 +171,12 @@ class SessionActions:
         if target:
             self.import_folder(folder, target)
 
-    def import_folder(self, folder, session_path,
-                      correct_values: bool = False) -> BackgroundJob | None:
+    def import_folder(self, folder, session_path, correct_values: bool = False,
+                      imported_before: int = 0) -> BackgroundJob | None:
         """Import ``folder`` into ``session_path`` in the background, then open the session.
         Shots already there with the same frames but other values in ``shots.csv`` are
-        offered as corrections (:meth:`_ask_take_corrections`); ``correct_values`` takes them."""
+        offered as corrections (:meth:`_ask_take_corrections`); ``correct_values`` takes them
+        (a second run, after ``imported_before`` shots came in with the first)."""
         if self.job is not None:
             self.show_problem("Busy", "Wait for the running job to finish or cancel it.")
             return None
@@ -185,7 +186,8 @@ class SessionActions:
         job = import_job(folder, session_path, self, correct_values)
         job.item_done.connect(self._on_import_item)
         job.finished.connect(
-            lambda outcome: self._on_import_finished(outcome, session_path, folder))
+            lambda outcome: self._on_import_finished(outcome, session_path, folder,
+                                                     imported_before))
         self._start_job(job, "Importing", 0)
         return job
 
@@ -193,7 +195,8 @@ class SessionActions:
         shot_id, _ok, _message = item
         self.progress_label.setText(f"Importing {shot_id}")
 
-    def _on_import_finished(self, outcome: JobOutcome, session_path, folder=None) -> None:
+    def _on_import_finished(self, outcome: JobOutcome, session_path, folder=None,
+                            imported_before: int = 0) -> None:
         self._end_job()
         if outcome.error:
             self.show_problem("Import", outcome.error)
@@ -203,16 +206,17 @@ class SessionActions:
             return
         if report.differing and folder is not None and not outcome.cancelled and \
                 self._ask_take_corrections(report.differing):
-            self.import_folder(folder, session_path, correct_values=True)
+            self.import_folder(folder, session_path, correct_values=True,
+                               imported_before=len(report.imported))
             return
         if report.problems:
             self.show_problem("Import: some rows were not imported",
                               "\n".join(report.problems[:15] + report.notes))
         word = "Import stopped" if outcome.cancelled else "Imported"
-        corrected = (f"; the values of {len(report.corrected)} corrected (to be measured "
-                     "again, the picks stay)" if report.corrected else "")
+        corrected = (f"; the values of {len(report.corrected)} corrected, the picks kept, "
+                     f"{len(report.outdated)} to be processed again" if report.corrected else "")
         self.statusBar().showMessage(
-            f"{word}: {len(report.imported)} shots imported{corrected}.", 6000)
+            f"{word}: {imported_before + len(report.imported)} shots imported{corrected}.", 6000)
         self.open_session(session_path)
 
     def _ask_take_corrections(self, shots: list[str]) -> bool:
