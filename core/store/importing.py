@@ -59,9 +59,9 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
         refused now rather than when it is processed. None: not checked.
     correct_values : bool
         A shot already in the session with the same frames but other values (a wrong ``dt_s``
-        or scale, found after import) takes the row's values
-        (:meth:`Session.set_shot_values`: its picks stay, it is to be processed again).
-        Without it such a row is a problem that says which values differ.
+        or scale, found after import) takes the row's values (:meth:`Session.set_shot_values`:
+        its picks stay; ``ImportReport.outdated`` names those whose settings changed, to be
+        processed again). Without it such a row is a problem that says which values differ.
 
     Raises
     ------
@@ -76,6 +76,7 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     with session:
         folder = _Folder(src_dir, session, embed, ball_types)
         first_lines: dict[str, int] = {}  # shot id -> the line that gives it first
+        kept = {ADDED: report.imported, SAME: report.already, CORRECTED: report.corrected}
         for number, (line, metadata, problem) in enumerate(rows):
             if should_stop is not None and should_stop():
                 report.notes.append(f"import stopped after {number} of {len(rows)} rows of "
@@ -89,7 +90,6 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
                 where = f"{MANIFEST_NAME} line {line}"
                 problem = f"shot id {shot_id} is given twice (also line {first})"
             outcome = problem or folder.import_row(metadata, correct_values)
-            kept = {ADDED: report.imported, SAME: report.already, CORRECTED: report.corrected}
             if outcome in kept:
                 kept[outcome].append(shot_id)
             else:
