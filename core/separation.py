@@ -529,8 +529,8 @@ def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_pr
 
     lower = np.array([start[0] - REFINE_REACH_DEG, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.0, 0.0, 0.7,
                       0.0])
-    upper = np.array([start[0] + REFINE_REACH_DEG, 0.7, 6.0, math.log(40.0), 0.6, 0.45, 1.2, 0.9, 1.0, 1.3,
-                      2.0])
+    upper = np.array([start[0] + REFINE_REACH_DEG, 0.7, 6.0, math.log(40.0), 0.6, 0.45,
+                      PRIOR_DROP[1] + 0.2, 0.9, 1.0, 1.3, 2.0])
     x0 = np.clip(start, lower + 1e-9, upper - 1e-9)[free]
     sol = least_squares(
         residuals, x0, bounds=(lower[free], upper[free]), diff_step=1e-3, max_nfev=max_nfev,
