@@ -225,6 +225,22 @@ def test_a_wrong_value_found_after_import_is_corrected_and_the_picks_stay(tmp_pa
         assert s["S0"].metadata["dt_s"] == 2e-05
 
 
+def test_corrections_an_import_found_are_taken_without_reading_the_folder_again(tmp_path):
+    from core.store import take_corrections
+
+    src = write_shot_folder(tmp_path / "src", 2)
+    import_folder(src, tmp_path / "s.h5")
+    manifest = src / "shots.csv"
+    manifest.write_text(manifest.read_text().replace("S1,2e-05", "S1,2.5e-05"))
+    found = import_folder(src, tmp_path / "s.h5")
+    assert list(found.differing) == ["S1"] and found.differing["S1"]["dt_s"] == 2.5e-05
+    shutil.rmtree(src)  # the folder is not needed to take them
+    taken = take_corrections(tmp_path / "s.h5", found.differing)
+    assert taken.corrected == ["S1"] and taken.outdated == ["S1"] and taken.problems == []
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert s["S1"].metadata["dt_s"] == 2.5e-05
+
+
 def test_a_corrected_note_is_kept_without_measuring_again(tmp_path):
     src = write_shot_folder(tmp_path / "src", 2)
     session_path = tmp_path / "s.h5"

@@ -464,7 +464,7 @@ def test_import_folder_from_the_window_opens_the_new_session(main_window, qtbot,
 
 @pytest.mark.parametrize("take", [True, False], ids=["taken", "declined"])
 def test_corrected_values_found_on_import_are_offered_and_keep_the_picks(
-        main_window, qtbot, tmp_path, take):
+        main_window, qtbot, tmp_path, take, monkeypatch):
     from data.session_helpers import write_shot_folder
 
     from core.store import Session
@@ -480,14 +480,19 @@ def test_corrected_values_found_on_import_are_offered_and_keep_the_picks(
         session.set_pick("S1", status="adjusted", upper_deg=4.5)
     manifest = folder / "shots.csv"
     manifest.write_text(manifest.read_text().replace("S1,2e-05", "S1,2.5e-05"))
-    asked = []
+    asked, imports = [], []
     window._ask_take_corrections = lambda shots: asked.append(shots) or take
+    from app.qt import window_session
+
+    import_job = window_session.import_job
+    monkeypatch.setattr(window_session, "import_job",
+                        lambda *a, **k: imports.append(a[0]) or import_job(*a, **k))
     with qtbot.waitSignal(window.import_folder(folder, session_path).finished, timeout=60_000):
         pass
     if take:  # the second import, taking the values, runs and opens the session
         qtbot.waitUntil(lambda: window.job is None and window.model.session is not None,
                         timeout=60_000)
-    assert asked == [["S1"]]
+    assert asked == [["S1"]] and len(imports) == 1  # the folder is not read a second time
     record = window.model.record("S1")
     assert record.metadata["dt_s"] == (2.5e-05 if take else 2e-05)
     assert record.pick.status == "adjusted" and record.pick.upper_deg == 4.5

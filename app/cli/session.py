@@ -118,8 +118,9 @@ def run_import(args: argparse.Namespace) -> int:
     for note in report.notes:
         print(f"note: {note}", file=sys.stderr)
     if report.differing:
-        print(f"note: to take the new values of {', '.join(report.differing[:5])}"
-              f"{' ...' if len(report.differing) > 5 else ''} as corrections, import again "
+        shots = list(report.differing)
+        print(f"note: to take the new values of {', '.join(shots[:5])}"
+              f"{' ...' if len(shots) > 5 else ''} as corrections, import again "
               "with --correct-values", file=sys.stderr)
     print(f"{args.session}: imported {len(report.imported)} shot(s)"
           + (f", corrected the values of {len(report.corrected)}" if report.corrected else "")

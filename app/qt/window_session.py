@@ -11,7 +11,7 @@ from pathlib import Path
 from PySide6.QtWidgets import QMessageBox
 
 from app.qt.file_dialogs import SESSION_FILTER, ask_path, new_session_path
-from app.qt.workers import BackgroundJob, JobOutcome, import_job
+from app.qt.workers import BackgroundJob, JobOutcome, corrections_job, import_job
 from app.review.model import MANIFEST_NAME, SessionLocked
 from core import WakelineError
 
@@ -171,23 +171,19 @@ class SessionActions:
         if target:
             self.import_folder(folder, target)
 
-    def import_folder(self, folder, session_path, correct_values: bool = False,
-                      imported_before: int = 0) -> BackgroundJob | None:
+    def import_folder(self, folder, session_path) -> BackgroundJob | None:
         """Import ``folder`` into ``session_path`` in the background, then open the session.
         Shots already there with the same frames but other values in ``shots.csv`` are
-        offered as corrections (:meth:`_ask_take_corrections`); ``correct_values`` takes them
-        (a second run, after ``imported_before`` shots came in with the first)."""
+        offered as corrections (:meth:`_ask_take_corrections`)."""
         if self.job is not None:
             self.show_problem("Busy", "Wait for the running job to finish or cancel it.")
             return None
         open_path = None if self.model.path is None else self.model.path.resolve()
         if open_path == Path(session_path).resolve():
             self.close_session()
-        job = import_job(folder, session_path, self, correct_values)
+        job = import_job(folder, session_path, self)
         job.item_done.connect(self._on_import_item)
-        job.finished.connect(
-            lambda outcome: self._on_import_finished(outcome, session_path, folder,
-                                                     imported_before))
+        job.finished.connect(lambda outcome: self._on_import_finished(outcome, session_path))
         self._start_job(job, "Importing", 0)
         return job
 
@@ -195,8 +191,9 @@ class SessionActions:
         shot_id, _ok, _message = item
         self.progress_label.setText(f"Importing {shot_id}")
 
-    def _on_import_finished(self, outcome: JobOutcome, session_path, folder=None,
-                            imported_before: int = 0) -> None:
+    def _on_import_finished(self, outcome: JobOutcome, session_path, imported=None) -> None:
+        """After an import, or (``imported``: that import's report) after the corrections it
+        found were taken."""
         self._end_job()
         if outcome.error:
             self.show_problem("Import", outcome.error)
@@ -204,19 +201,25 @@ class SessionActions:
         report = outcome.value
         if report is None:  # stopped while the window closed
             return
-        if report.differing and folder is not None and not outcome.cancelled and \
-                self._ask_take_corrections(report.differing):
-            self.import_folder(folder, session_path, correct_values=True,
-                               imported_before=len(report.imported))
+        if imported is None and report.differing and not outcome.cancelled and \
+                self._ask_take_corrections(list(report.differing)):
+            job = corrections_job(session_path, report.differing, self)
+            job.finished.connect(
+                lambda done: self._on_import_finished(done, session_path, report))
+            self._start_job(job, "Taking the corrected values", 0)
             return
-        if report.problems:
+        first = imported or report
+        taken = set(report.corrected)  # their rows' refusals no longer hold
+        problems = [p for p in first.problems
+                    if not any(f"(shot {shot}):" in p for shot in taken)]
+        if problems:
             self.show_problem("Import: some rows were not imported",
-                              "\n".join(report.problems[:15] + report.notes))
+                              "\n".join(problems[:15] + first.notes))
         word = "Import stopped" if outcome.cancelled else "Imported"
         corrected = (f"; the values of {len(report.corrected)} corrected, the picks kept, "
                      f"{len(report.outdated)} to be processed again" if report.corrected else "")
         self.statusBar().showMessage(
-            f"{word}: {imported_before + len(report.imported)} shots imported{corrected}.", 6000)
+            f"{word}: {len(first.imported)} shots imported{corrected}.", 6000)
         self.open_session(session_path)
 
     def _ask_take_corrections(self, shots: list[str]) -> bool:

@@ -19,6 +19,7 @@ from PySide6.QtCore import QObject, QThread, Signal, Slot
 
 from app.review.model import import_folder
 from core import WakelineError
+from core.store import take_corrections
 
 log = logging.getLogger("wakeline.window")
 
@@ -159,15 +160,24 @@ def process_job(model, shot_ids=None, workers: int | None = None, force: bool = 
     return BackgroundJob(run, parent)
 
 
-def import_job(src_dir, session_path, parent: QObject | None = None,
-               correct_values: bool = False) -> BackgroundJob:
+def import_job(src_dir, session_path, parent: QObject | None = None) -> BackgroundJob:
     """A job importing a folder (``shots.csv`` + frames) into a session file; items are
-    ``(shot_id, ok, message)``; the value is the store's ``ImportReport``. ``correct_values``:
-    shots already in the session with the same frames take the manifest's new values."""
+    ``(shot_id, ok, message)``; the value is the store's ``ImportReport``."""
 
     def run(report, should_stop):
         return import_folder(src_dir, session_path,
                              on_shot=lambda sid, ok, msg: report((sid, ok, msg)),
-                             should_stop=should_stop, correct_values=correct_values)
+                             should_stop=should_stop)
+
+    return BackgroundJob(run, parent)
+
+
+def corrections_job(session_path, corrections: dict[str, dict],
+                    parent: QObject | None = None) -> BackgroundJob:
+    """A job giving shots the corrected values an import found (``ImportReport.differing``);
+    the value is the store's ``ImportReport`` of what it did."""
+
+    def run(_report, _should_stop):
+        return take_corrections(session_path, corrections)
 
     return BackgroundJob(run, parent)

@@ -9,7 +9,7 @@ part of the PIV stack.
 """
 
 from core.store.frames import read_frames
-from core.store.importing import ImportReport, import_folder
+from core.store.importing import ImportReport, import_folder, take_corrections
 from core.store.lock import SessionLocked, SessionReadOnly
 from core.store.manifest import MANIFEST_NAME, read_manifest
 from core.store.records import Pick, ProcessState, ReviewStatus, ShotRecord
@@ -33,5 +33,6 @@ __all__ = [
     "read_frames",
     "read_manifest",
     "session_table_rows",
+    "take_corrections",
     "write_table_csv",
 ]

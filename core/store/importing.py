@@ -24,7 +24,8 @@ class ImportReport:
     notes: list[str] = field(default_factory=list)
     already: list[str] = field(default_factory=list)
     corrected: list[str] = field(default_factory=list)  # shots whose values were replaced
-    differing: list[str] = field(default_factory=list)  # refused: same frames, other values
+    # refused rows of shots held with the same frames and other values: their new values
+    differing: dict[str, dict] = field(default_factory=dict)
     outdated: list[str] = field(default_factory=list)  # corrected shots now to be measured again
 
 
@@ -115,7 +116,7 @@ class _Folder:
         self.ball_types = None if ball_types is None else {t.lower() for t in ball_types}
         self.listing = _frame_listing(src_dir)
         self.used: set[str] = set()
-        self.differing: list[str] = []
+        self.differing: dict[str, dict] = {}
         self.outdated: list[str] = []  # corrected, with settings that changed
         self.camera_moved: list[str] = []  # corrected camera while a background is subtracted
         self.ids = {shot_id.casefold(): shot_id for shot_id in session}  # frame names ignore case
@@ -146,9 +147,11 @@ class _Folder:
             if record.metadata == meta:
                 return SAME
             if correct_values:
-                self._correct(shot_id, record.metadata, meta)
+                outdated, camera_moved = _take_values(self.session, shot_id, meta)
+                self.outdated += [shot_id] * outdated
+                self.camera_moved += [shot_id] * camera_moved
                 return CORRECTED
-            self.differing.append(shot_id)
+            self.differing[shot_id] = meta
             return (f"already in {self.session.path.name} with other values "
                     f"({_differences(record.metadata, meta)}); take them as corrections (the "
                     "picks stay) or give the row another id")
@@ -159,18 +162,6 @@ class _Folder:
             return str(exc).removeprefix(f"shot {shot_id}: ")
         self.ids[shot_id.casefold()] = shot_id
         return ADDED
-
-    def _correct(self, shot_id: str, old: dict, new: dict) -> None:
-        """Give the shot its corrected values, and note whether it is to be measured again:
-        when its settings change, or when its camera changes while the session subtracts a
-        background (the camera picks the frames the background is made of)."""
-        before = self.session.settings_for(shot_id).fingerprint()
-        self.session.set_shot_values(shot_id, new)
-        if self.session.settings_for(shot_id).fingerprint() != before:
-            self.outdated.append(shot_id)
-        elif (old.get("camera") or "") != (new.get("camera") or "") and \
-                self.session.processing_settings().get("background"):
-            self.camera_moved.append(shot_id)
 
     def name_files(self, shot_id: str) -> None:
         """Count the image files a row of ``shot_id`` takes as used, whether or not the row is
@@ -188,6 +179,36 @@ class _Folder:
         return [f"{len(extra)} image file(s) not named in {MANIFEST_NAME}: "
                 + ", ".join(self.listing[k].name for k in extra[:5])
                 + (" ..." if len(extra) > 5 else "")]
+
+
+def take_corrections(session_path, corrections: dict[str, dict]) -> ImportReport:
+    """Give shots of a session the corrected values an import found (``ImportReport.differing``)
+    without importing the folder again; the report's ``corrected``, ``outdated`` and notes say
+    what it did (as ``import_folder(..., correct_values=True)`` would)."""
+    report = ImportReport()
+    camera_moved = []
+    with Session.open(session_path) as session:
+        for shot_id, values in corrections.items():
+            outdated, moved = _take_values(session, shot_id, values)
+            report.corrected.append(shot_id)
+            report.outdated += [shot_id] * outdated
+            camera_moved += [shot_id] * moved
+    report.notes = _correction_notes(report, camera_moved)
+    report.problems += session.problems
+    return report
+
+
+def _take_values(session: Session, shot_id: str, values: dict) -> tuple[bool, bool]:
+    """Give the shot its corrected values; whether it is now to be measured again because its
+    settings changed, and whether only its camera changed while the session subtracts a
+    background (the camera picks the frames the background is made of: a forced run)."""
+    old = session[shot_id].metadata
+    before = session.settings_for(shot_id).fingerprint()
+    session.set_shot_values(shot_id, values)
+    if session.settings_for(shot_id).fingerprint() != before:
+        return True, False
+    moved = (old.get("camera") or "") != (values.get("camera") or "")
+    return False, bool(moved and session.processing_settings().get("background"))
 
 
 def _correction_notes(report: ImportReport, camera_moved: list[str]) -> list[str]:
