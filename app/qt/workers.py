@@ -17,9 +17,8 @@ from dataclasses import dataclass
 
 from PySide6.QtCore import QObject, QThread, Signal, Slot
 
-from app.review.model import import_folder
+from app.review.model import import_folder, take_corrections
 from core import WakelineError
-from core.store import take_corrections
 
 log = logging.getLogger("wakeline.window")
 

@@ -27,6 +27,7 @@ from core.store import (
     Session,
     SessionLocked,
     ShotRecord,
+    take_corrections,
     write_table_csv,
 )
 from core.store import import_folder as store_import_folder
@@ -34,7 +35,7 @@ from core.store.companions import companion_files
 
 __all__ = [
     "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
-    "import_folder", "is_companion_file", "pick_values",
+    "import_folder", "is_companion_file", "pick_values", "take_corrections",
 ]
 
 PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
