@@ -241,6 +241,22 @@ def test_corrections_an_import_found_are_taken_without_reading_the_folder_again(
         assert s["S1"].metadata["dt_s"] == 2.5e-05
 
 
+def test_a_corrected_camera_with_a_background_is_named_for_a_forced_run(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    manifest = src / "shots.csv"
+    lines = manifest.read_text().splitlines()
+    manifest.write_text("\n".join([lines[0] + ",camera"] + [f"{row},left" for row in lines[1:]]))
+    import_folder(src, tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        s.set_processing_settings({"background": "min"})
+    manifest.write_text(manifest.read_text().replace("shot 1,left", "shot 1,right"))
+    report = import_folder(src, tmp_path / "s.h5", correct_values=True)
+    assert report.corrected == ["S1"] and report.outdated == []  # its own settings: the same
+    assert any(note.startswith("camera position corrected while a background image is "
+                               "subtracted: S1 and the shots at its old and new camera")
+               for note in report.notes)
+
+
 def test_a_corrected_note_is_kept_without_measuring_again(tmp_path):
     src = write_shot_folder(tmp_path / "src", 2)
     session_path = tmp_path / "s.h5"

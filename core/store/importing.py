@@ -148,8 +148,10 @@ class _Folder:
                 return SAME
             if correct_values:
                 outdated, camera_moved = _take_values(self.session, shot_id, meta)
-                self.outdated += [shot_id] * outdated
-                self.camera_moved += [shot_id] * camera_moved
+                if outdated:
+                    self.outdated.append(shot_id)
+                if camera_moved:
+                    self.camera_moved.append(shot_id)
                 return CORRECTED
             self.differing[shot_id] = meta
             return (f"already in {self.session.path.name} with other values "
@@ -191,8 +193,10 @@ def take_corrections(session_path, corrections: dict[str, dict]) -> ImportReport
         for shot_id, values in corrections.items():
             outdated, moved = _take_values(session, shot_id, values)
             report.corrected.append(shot_id)
-            report.outdated += [shot_id] * outdated
-            camera_moved += [shot_id] * moved
+            if outdated:
+                report.outdated.append(shot_id)
+            if moved:
+                camera_moved.append(shot_id)
     report.notes = _correction_notes(report, camera_moved)
     report.problems += session.problems
     return report
