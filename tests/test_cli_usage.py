@@ -213,3 +213,16 @@ def test_a_new_session_in_a_read_only_folder_says_so(tmp_path, monkeypatch, caps
     assert main(["import", str(src), str(tmp_path / "new.h5")]) == 1
     err = capsys.readouterr().err
     assert err.endswith("new.h5: cannot write in its folder (read-only file system)\n")
+
+
+def test_a_terminal_without_the_degree_sign_gets_a_stand_in_not_an_error(monkeypatch):
+    import io
+
+    from app.cli import _printable_anywhere
+
+    raw = io.BytesIO()
+    monkeypatch.setattr(sys, "stdout", io.TextIOWrapper(raw, encoding="ascii"))
+    _printable_anywhere()
+    print("upper: -9.6° ± 1.8°, Re 1.43 × 10⁵")
+    sys.stdout.flush()
+    assert raw.getvalue() == b"upper: -9.6? ? 1.8?, Re 1.43 ? 10?\n"

@@ -78,6 +78,7 @@ def _is_negative_number(word: str) -> bool:
 
 def main(argv: list[str] | None = None) -> int:
     argv = sys.argv[1:] if argv is None else list(argv)
+    _printable_anywhere()
     window, session = window_request(argv)
     func = None
     if not window:
@@ -104,6 +105,15 @@ def main(argv: list[str] | None = None) -> int:
         print(f"wakeline: internal error: {type(exc).__name__}: {exc} (details in {log})",
               file=sys.stderr)
         return 1
+
+
+def _printable_anywhere() -> None:
+    """A terminal whose encoding lacks "°", "±", "−" or "⁵" (an ASCII or Latin-1 locale) shows a
+    stand-in for them rather than failing the command."""
+    for stream in (sys.stdout, sys.stderr):
+        reconfigure = getattr(stream, "reconfigure", None)
+        if reconfigure is not None:
+            reconfigure(errors="replace")
 
 
 def open_window(session: str | None = None) -> int:
