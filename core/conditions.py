@@ -206,17 +206,13 @@ def _ensemble_cells(view) -> list:
 def write_condition_csv(session, path, by, ensembles=None) -> int:
     """Write the table of conditions (UTF-8 CSV, header row), whole or not at all; returns the
     number of conditions. Refuses to write over the session or its companion files."""
-    import csv
-
     from core.store.companions import refuse_session_file
     from core.store.files import atomic_write
-    from core.store.table import cell_text
+    from core.store.table import write_csv_rows
 
     refuse_session_file(Path(path), Path(session.path))
     conditions = group_conditions(session.values(), by)
     header, rows = condition_table(conditions, by, ensembles)
     with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
-        writer = csv.writer(fh)
-        writer.writerow(header)
-        writer.writerows([cell_text(v) for v in row] for row in rows)
+        write_csv_rows(fh, header, rows)
     return len(rows)

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import contextlib
-import csv
 import json
 import os
 import signal
@@ -281,12 +280,10 @@ STDOUT = "-"
 def _print_csv(header: list[str], rows: list[list]) -> None:
     """A table as CSV on standard output, cells as the table files have them. A reader that
     stops early (``| head``) ends the output quietly, as other shell tools do."""
-    from core.store.table import cell_text
+    from core.store.table import write_csv_rows
 
-    writer = csv.writer(sys.stdout)
     try:
-        writer.writerow(header)
-        writer.writerows([cell_text(v) for v in row] for row in rows)
+        write_csv_rows(sys.stdout, header, rows)
         sys.stdout.flush()
     except BrokenPipeError:
         # what is left unwritten goes nowhere, so that closing stdout at exit raises nothing
@@ -298,11 +295,10 @@ def _condition_table(session, args: argparse.Namespace, to_stdout: bool = False)
     from core.conditions import condition_table, group_conditions, write_condition_csv
 
     by = grouping_of(session, args.by or None)
-    ensembles = None
-    if args.ensemble:
-        ensembles = condition_ensembles(session, group_conditions(session.values(), by))
+    conditions = group_conditions(session.values(), by)
+    ensembles = condition_ensembles(session, conditions) if args.ensemble else None
     if to_stdout:
-        _print_csv(*condition_table(group_conditions(session.values(), by), by, ensembles))
+        _print_csv(*condition_table(conditions, by, ensembles))
         return 0
     with writing(args.output):
         count = write_condition_csv(session, args.output, by, ensembles)

@@ -111,7 +111,13 @@ def write_table_csv(session, path) -> int:
     refuse_session_file(Path(path), Path(session.path))
     header, rows = session_table_rows(session)
     with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
-        writer = csv.writer(fh)
-        writer.writerow(header)
-        writer.writerows(rows)
+        write_csv_rows(fh, header, rows)
     return len(rows)
+
+
+def write_csv_rows(fh, header: list[str], rows) -> None:
+    """A header and rows as CSV on an open text file (a table file, or standard output), each
+    cell as :func:`cell_text` makes it (text cells pass unchanged)."""
+    writer = csv.writer(fh)
+    writer.writerow(header)
+    writer.writerows([cell_text(v) for v in row] for row in rows)
