@@ -381,7 +381,19 @@ def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: flo
     # glare: light spilling over the outline lifts the air beside it well above the background
     # elsewhere around the ball; that arc is left out
     typical = np.median(background)
-    clear &= background - typical < GLARE_LIFT * np.median(surface - typical)
+    lift = GLARE_LIFT * np.median(surface - typical)
+    clear &= background - typical < lift
+    if half_width <= FINE_BANDS_PX[0]:
+        # once the circle is within a pixel or so, the air right beside the outline too
+        # (clear of the step's own blur) against the band's far end: a halo fading over a few
+        # pixels (a bright ball's scattered light) has faded there, yet it moves the step's
+        # steepest point out into its tail (the uneven sheet differs little over those pixels)
+        beside = _pooled_low(prof[:, (radii >= r + 2.5) & (radii <= r + 5.0)])
+        far = _pooled_low(prof[:, radii >= radii[-1] - 2.5])
+        lifted = beside - far
+        halo = (lifted > GLARE_LIFT * (surface - far)) & (lifted > STEP_SNR * noise)
+        # a halo lifts a long arc; a few particle images crowding one spot lift single rays
+        clear &= ndimage.uniform_filter1d(halo.astype(np.float64), 25, mode="wrap") <= 0.5
     level = 0.5 * (surface + background)
     cols = np.arange(len(radii))[None, :]
     start = np.argmax(radii >= r - half_width)
@@ -394,6 +406,15 @@ def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: flo
     near = np.abs(cols[:, :-1] - nxt[:, None]) <= reach
     k = np.argmin(np.where(near, slope, np.inf), axis=1)
     return np.where(found, _vertex(slope, k, radii), np.nan)
+
+
+def _pooled_low(samples: np.ndarray, rays: int = 25) -> np.ndarray:
+    """10th percentile of each ray's samples pooled with its neighbours' (``rays`` in all):
+    the air between the particle images, where a single ray's few samples may all lie on one."""
+    half = rays // 2
+    wrapped = np.concatenate([samples[-half:], samples, samples[:half]])
+    window = np.lib.stride_tricks.sliding_window_view(wrapped, rays, axis=0)
+    return np.percentile(window.reshape(len(samples), -1), 10, axis=1)
 
 
 def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str,
