@@ -94,8 +94,9 @@ def limit_px(name: str) -> float:
 
 
 def table(records: list[dict]) -> str:
-    lines = ["| family | R (px) | appearance | found | largest centre / radius error (px) "
-             "| within the limit | within 3 sigma |", "|---|---|---|---|---|---|---|"]
+    head = ("| family | R (px) | appearance | found | largest centre / radius error (px) "
+            "| within the limit | within 3 sigma |")
+    lines = [head, "|---|---|---|---|---|---|---|"]
     keys = sorted({(r["family"], r["radius"], r["look"]) for r in records},
                   key=lambda k: (FAMILIES.index(k[0]), k[1], list(APPEARANCES).index(k[2])))
     for family, radius, name in keys:

@@ -368,8 +368,9 @@ def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: flo
     steepest point within 2 px of that crossing: a blurred step keeps its steepest point where
     the step is, whatever the surface's grain or a partly lit rim. Where glare lifts the air
     beside the outline by ``GLARE_LIFT`` of the step above the background around the rest of
-    the ball, the ray is left out. A particle image touching the outline delays the crossing
-    (the robust fit drops such rays).
+    the ball, the ray is left out, and so are rays with a halo or a faded limb once the circle
+    is close (:func:`_step_at_outline`). A particle image touching the outline delays the
+    crossing (the robust fit drops such rays).
     """
     inner = (radii >= r - half_width - 5.0) & (radii <= r - half_width)
     outer = radii >= r + half_width + 1.0
@@ -384,16 +385,7 @@ def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: flo
     lift = GLARE_LIFT * np.median(surface - typical)
     clear &= background - typical < lift
     if half_width <= FINE_BANDS_PX[0]:
-        # once the circle is within a pixel or so, the air right beside the outline too
-        # (clear of the step's own blur) against the band's far end: a halo fading over a few
-        # pixels (a bright ball's scattered light) has faded there, yet it moves the step's
-        # steepest point out into its tail (the uneven sheet differs little over those pixels)
-        beside = _pooled_low(prof[:, (radii >= r + 2.5) & (radii <= r + 5.0)])
-        far = _pooled_low(prof[:, radii >= radii[-1] - 2.5])
-        lifted = beside - far
-        halo = (lifted > GLARE_LIFT * (surface - far)) & (lifted > STEP_SNR * noise)
-        # a halo lifts a long arc; a few particle images crowding one spot lift single rays
-        clear &= ndimage.uniform_filter1d(halo.astype(np.float64), 25, mode="wrap") <= 0.5
+        clear &= _step_at_outline(prof, radii, r, surface, background, noise)
     level = 0.5 * (surface + background)
     cols = np.arange(len(radii))[None, :]
     start = np.argmax(radii >= r - half_width)
@@ -406,6 +398,29 @@ def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: flo
     near = np.abs(cols[:, :-1] - nxt[:, None]) <= reach
     k = np.argmin(np.where(near, slope, np.inf), axis=1)
     return np.where(found, _vertex(slope, k, radii), np.nan)
+
+
+def _step_at_outline(prof, radii, r, surface, background, noise) -> np.ndarray:
+    """Rays whose step lies at the outline, once the circle is within a pixel or so (the
+    narrow bands): not where
+
+    - a halo (a bright ball's scattered light, fading over a few pixels) lifts the air right
+      beside the outline (clear of the step's own blur) above the air at the band's far end
+      by ``GLARE_LIFT`` of the step and by more than the noise, over most of 25 neighbouring
+      rays (a few particle images crowding one spot lift single rays): it has faded by the
+      band's end, yet moves the step's steepest point out into its tail. An uneven sheet
+      differs little over those few pixels;
+    - a shaded limb fades to the air's level over several pixels: the surface 2-3 px inside
+      the outline (as deep as the circle may still be off) is already below half-way, so
+      there is no step at the outline, only a slope well inside it.
+    """
+    beside = _pooled_low(prof[:, (radii >= r + 2.5) & (radii <= r + 5.0)])
+    far = _pooled_low(prof[:, radii >= radii[-1] - 2.5])
+    lifted = beside - far
+    halo = (lifted > GLARE_LIFT * (surface - far)) & (lifted > STEP_SNR * noise)
+    no_halo = ndimage.uniform_filter1d(halo.astype(np.float64), 25, mode="wrap") <= 0.5
+    limb = np.median(prof[:, (radii >= r - 3.0) & (radii <= r - 2.0)], axis=1)
+    return no_halo & (limb > 0.5 * (surface + background))
 
 
 def _pooled_low(samples: np.ndarray, rays: int = 25) -> np.ndarray:
