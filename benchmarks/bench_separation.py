@@ -110,6 +110,8 @@ def measure_case(family: str, kwargs: dict) -> list[dict]:
             "angle_deg": None if proposal is None else proposal.angle_deg,
             "uncertainty_deg": None if proposal is None else proposal.uncertainty_deg,
             "budget": None if proposal is None else proposal.budget,
+            "departure_deg": None if proposal is None else proposal.departure_deg,
+            "layer_px": None if proposal is None else proposal.layer_px,
             "reason": failure if proposal is None else proposal.reason,
             "departure_true_deg": truth.leave_deg[k], "thickness_px": thickness[k],
             "radius_px": truth.radius_px, "seconds": seconds, **look,
