@@ -72,7 +72,7 @@ def uncertainty_meaning(side: SideProposal) -> str:
     """What a proposal's ± means, with the sources of its uncertainty largest first (a tip).
 
     The factor is read off the proposal's own numbers (its ± over the root sum of squares of
-    its budget): results measured before the factor was calibrated (2) keep theirs."""
+    its budget): results measured with an earlier factor (2 in 0.1, 1.6 in 0.2) keep theirs."""
     from core.separation import COVERAGE, COVERAGE_K
 
     if side.uncertainty_deg is None:
