@@ -103,7 +103,7 @@ def test_the_meaning_of_the_uncertainty_gives_the_factor_it_was_made_with():
     from app.review.text import uncertainty_meaning
 
     budget = {"fit": 0.6, "extrapolation": 0.8}  # root sum of squares 1.0
-    now = uncertainty_meaning(SideProposal(5.0, 1.6, budget=budget))
+    now = uncertainty_meaning(SideProposal(5.0, 1.5, budget=budget))
     before = uncertainty_meaning(SideProposal(5.0, 2.0, budget=budget))  # an older result
-    assert "1.6 × the root sum of squares" in now and "2 × the root sum of squares" in before
+    assert "1.5 × the root sum of squares" in now and "2 × the root sum of squares" in before
     assert now.splitlines()[1:] == ["  extrapolation 0.80°", "  fit 0.60°"]
