@@ -382,8 +382,7 @@ def _step_crossings(prof: np.ndarray, raw: np.ndarray, radii: np.ndarray, r: flo
     # glare: light spilling over the outline lifts the air beside it well above the background
     # elsewhere around the ball; that arc is left out
     typical = np.median(background)
-    lift = GLARE_LIFT * np.median(surface - typical)
-    clear &= background - typical < lift
+    clear &= background - typical < GLARE_LIFT * np.median(surface - typical)
     if half_width <= FINE_BANDS_PX[0]:
         clear &= _step_at_outline(prof, radii, r, surface, background, noise)
     level = 0.5 * (surface + background)
