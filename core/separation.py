@@ -101,7 +101,8 @@ FIT_WINDOW_DEG = (-25.0, 40.0)
 EXTRAPOLATION_DEPTH = 0.2
 #: A refinement moves the angle at most this far (deg) from its start.
 REFINE_REACH_DEG = 10.0
-#: Iterations (Jacobians) of the main refinement and of each refit from its result.
+#: Evaluations of the model (``max_nfev``: each step's, besides its Jacobian) of the main
+#: refinement and of each refit from its result.
 REFINE_ITERATIONS = 15
 ALTERNATIVE_ITERATIONS = 5
 #: The angle's profile is taken this far either side of the best fit (deg); the fit's own

@@ -101,9 +101,11 @@ def test_powers_of_ten_and_microseconds_are_written_as_printed():
 
 def test_the_meaning_of_the_uncertainty_gives_the_factor_it_was_made_with():
     from app.review.text import uncertainty_meaning
+    from core.separation import COVERAGE_K
 
     budget = {"fit": 0.6, "extrapolation": 0.8}  # root sum of squares 1.0
-    now = uncertainty_meaning(SideProposal(5.0, 1.5, budget=budget))
-    before = uncertainty_meaning(SideProposal(5.0, 2.0, budget=budget))  # an older result
-    assert "1.5 × the root sum of squares" in now and "2 × the root sum of squares" in before
+    now = uncertainty_meaning(SideProposal(5.0, COVERAGE_K, budget=budget))
+    before = uncertainty_meaning(SideProposal(5.0, 2.0, budget=budget))  # made by 0.1
+    assert f"{COVERAGE_K:g} × the root sum of squares" in now
+    assert "2 × the root sum of squares" in before
     assert now.splitlines()[1:] == ["  extrapolation 0.80°", "  fit 0.60°"]

@@ -412,6 +412,10 @@ def _step_at_outline(prof, radii, r, surface, background, noise) -> np.ndarray:
     - a shaded limb fades to the air's level over several pixels: the surface 2-3 px inside
       the outline (as deep as the circle may still be off) is already below half-way, so
       there is no step at the outline, only a slope well inside it.
+
+    The first narrow band chooses its cue again from what is left (:func:`_choose_cue`): a
+    ball whose step is left out on most of its outline falls back on the lit rim or the
+    particle images.
     """
     beside = _pooled_low(prof[:, (radii >= r + 2.5) & (radii <= r + 5.0)])
     far = _pooled_low(prof[:, radii >= radii[-1] - 2.5])
@@ -423,12 +427,14 @@ def _step_at_outline(prof, radii, r, surface, background, noise) -> np.ndarray:
 
 
 def _pooled_low(samples: np.ndarray, rays: int = 25) -> np.ndarray:
-    """10th percentile of each ray's samples pooled with its neighbours' (``rays`` in all):
-    the air between the particle images, where a single ray's few samples may all lie on one."""
-    half = rays // 2
-    wrapped = np.concatenate([samples[-half:], samples, samples[:half]])
-    window = np.lib.stride_tricks.sliding_window_view(wrapped, rays, axis=0)
-    return np.percentile(window.reshape(len(samples), -1), 10, axis=1)
+    """10th percentile of each ray's samples pooled with its neighbours' (``rays`` in all, the
+    outline wrapping round; at most every ray): the air between the particle images, where a
+    single ray's few samples may all lie on one."""
+    count = len(samples)
+    half = min(rays, count) // 2
+    wrapped = np.take(samples, np.arange(-half, count + half), axis=0, mode="wrap")
+    window = np.lib.stride_tricks.sliding_window_view(wrapped, 2 * half + 1, axis=0)
+    return np.percentile(window.reshape(count, -1), 10, axis=1)
 
 
 def _robust_circle(points: np.ndarray, theta: np.ndarray, seen: float, name: str,
