@@ -583,8 +583,8 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame,
     larger move). Refits, not linear steps: one Gauss-Newton step from the best fit tracked
     the refits' moves poorly on both synthetic families (correlation 0.3 and under; it moved
     the angle by about 0.1 deg even with nothing changed, the Jacobian being nearly singular
-    along the poorly determined parameters), while refits of ``ALTERNATIVE_ITERATIONS`` steps
-    agree with full ones (correlation 0.7-1.0).
+    along the poorly determined parameters), while refits of ``ALTERNATIVE_ITERATIONS``
+    evaluations agree with full ones (correlation 0.7-1.0).
     """
     rise = max(min(rises), PROFILE_STEP_DEG**2 / PROFILE_MAX_DEG**2)
     budget = {"fit": PROFILE_STEP_DEG / math.sqrt(rise)}
@@ -623,7 +623,7 @@ def _model_form_shift(problem: SideProblem, best: Fit) -> float:
 def _refit_shift(problem: SideProblem, best: Fit, **alternative) -> float:
     """How far (deg) the angle moves when the fit is redone under an alternative (another
     profile ``shape``, ``geom`` or ``log_delta_prior``; :func:`_refine`'s options) from the best
-    fit's parameters, ``ALTERNATIVE_ITERATIONS`` steps at most."""
+    fit's parameters, ``ALTERNATIVE_ITERATIONS`` evaluations of the model at most."""
     moved = _refine(problem, best.params, max_nfev=ALTERNATIVE_ITERATIONS, **alternative)
     return float(moved.params[0] - best.params[0])
 
@@ -636,9 +636,9 @@ def extrapolation_deg(params, radius_px: float) -> float:
     thicknesses, ``h``. A line leaving the outline (radius ``R``) straight at ``beta`` from the
     tangent is ``h`` above it after ``s = -R sin(beta) + sqrt(R^2 sin^2(beta) + 2 R h + h^2)``
     along it (derived: its distance from the centre is ``sqrt(R^2 + 2 R s sin(beta) + s^2)``),
-    an arc of ``atan2(s cos(beta), R + s sin(beta))`` on the wall: ``h / tan(beta)`` for a
-    steep layer, and bounded by the wall's own curving away, ``sqrt(2 R h)``, for a tangential
-    one, whose start the data place worst.
+    an arc of ``atan2(s cos(beta), R + s sin(beta))`` on the wall: ``s`` is about
+    ``h / tan(beta)`` for a steep layer, and for a tangential one, whose start the data place
+    worst, the wall's own curving away bounds it at ``sqrt(2 R h)``.
     """
     beta = math.atan(max(float(params[1]), 0.0))
     depth = EXTRAPOLATION_DEPTH * math.exp(params[3])
