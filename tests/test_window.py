@@ -687,3 +687,17 @@ def test_the_window_fits_a_laptop_screen(main_window, make_session, qtbot):
     assert needed.height() <= room.height() and needed.width() <= room.width()
     header = window.shot_list.view.horizontalHeader()
     assert header.length() <= window.shot_list.view.viewport().width()  # every column whole
+
+
+def test_the_readout_names_a_result_whose_uncertainty_is_from_an_earlier_version(
+        main_window, make_session, qtbot):
+    from dataclasses import replace
+
+    window = _open(main_window, qtbot, make_session(2))
+    shot_id = window.model.current_id
+    current = window.model.record(shot_id)
+    window.readout.show_record(current)
+    assert "earlier way" not in window.readout.notes.text()
+    window.readout.show_record(replace(current, software_version="0.2.0"))
+    assert "wakeline 0.2.0" in window.readout.notes.text()
+    assert not window.readout.notes.isHidden()

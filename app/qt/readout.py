@@ -34,6 +34,7 @@ from app.review.text import (
     ball_text,
     direction_text,
     geometry_text,
+    outdated_uncertainty_note,
     quality_meaning,
     quality_text,
     reviewed_wake_text,
@@ -354,8 +355,11 @@ class ReadoutPanel(QWidget):
 
     def _show_notes(self, record) -> None:
         summary = record.summary
-        warnings = () if summary is None else [w for w in summary.warnings
+        warnings = [] if summary is None else [w for w in summary.warnings
                                                if w not in summary.ball_warnings]
+        outdated = outdated_uncertainty_note(record)
+        if outdated:
+            warnings.append(outdated)
         text = "From the measurement:\n" + "\n".join(f"• {w}" for w in warnings)
         self.notes.setText(text if warnings else "")
         self.notes.setVisible(bool(warnings))

@@ -87,6 +87,17 @@ def uncertainty_meaning(side: SideProposal) -> str:
     return "\n".join(lines)
 
 
+def outdated_uncertainty_note(record) -> str:
+    """A note for a shot whose proposals' ± was made by an earlier wakeline, in another way
+    (empty when current or not known)."""
+    from core.separation import uncertainty_outdated
+
+    if record.summary is None or not uncertainty_outdated(record.software_version):
+        return ""
+    return (f"the ± was made by wakeline {record.software_version} in an earlier way; "
+            "Process ▸ Reprocess this shot gives the current one")
+
+
 def quality_meaning(side: SideProposal) -> str:
     """How a proposal's quality follows from its fit and its uncertainty (a tip): quality is
     how clearly the separating layer beats attached flow times how narrow the interval is
