@@ -226,6 +226,19 @@ def test_a_ball_filling_most_of_the_frame_fits_too():
         assert abs(fit.radius_px - truth.radius_px) < 0.5
 
 
+def _found_within(frame_a, frame_b, truth, centre_px, radius_px=None):
+    """Both frames' circles within ``centre_px`` of the true centre and ``radius_px`` (default
+    the same) of the true radius, and within three of the fit's own standard uncertainties."""
+    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
+        fit = find_ball(frame)
+        dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
+        dr = fit.radius_px - truth.radius_px
+        assert math.hypot(dx, dy) < centre_px
+        assert abs(dr) < (centre_px if radius_px is None else radius_px)
+        assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
+        assert abs(dr) <= 3 * fit.radius_sigma_px
+
+
 # --- the ball by what it is in a PIV frame: a round region without particle images ----------
 
 APPEARANCES = {
@@ -254,13 +267,7 @@ def test_found_in_every_appearance_within_the_issue_limits(name):
     looks = APPEARANCES[name]
     frame_a, frame_b, truth = ball_shot(flight_deg=183.0, seed=21, **looks)
     limit = 0.3 if looks.get("rim", True) else 1.0
-    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
-        fit = find_ball(frame)
-        dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
-        dr = fit.radius_px - truth.radius_px
-        assert math.hypot(dx, dy) < limit and abs(dr) < limit
-        assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
-        assert abs(dr) <= 3 * fit.radius_sigma_px
+    _found_within(frame_a, frame_b, truth, limit)
 
 
 def test_the_shadow_strips_straight_edges_are_not_the_ball():
@@ -461,13 +468,7 @@ def test_a_dark_ball_without_rim_beside_its_shadow(seed):
     # standard uncertainties. Not yet the 1 px target: the lit arc's sparse particle images
     # alone place the centre along the light (R = 64 px, 0.06 particles per px)
     frame_a, frame_b, truth = ball_shot(flight_deg=183.0, seed=seed, shadow=True, rim=False)
-    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
-        fit = find_ball(frame)
-        dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
-        dr = fit.radius_px - truth.radius_px
-        assert math.hypot(dx, dy) < 1.8 and abs(dr) < 1.5
-        assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
-        assert abs(dr) <= 3 * fit.radius_sigma_px
+    _found_within(frame_a, frame_b, truth, 1.8, 1.5)
 
 
 @pytest.mark.parametrize(("surface", "radius", "seed"), [("dark", 90.0, 1), ("dim", 150.0, 2)])
@@ -482,13 +483,7 @@ def test_a_rimless_ball_beside_its_shadow_on_the_physical_family(surface, radius
         (700, 900), radius_px=radius, surface=surface, lit_rim=False, shadow=True,
         light_from_deg=270.0, seed=seed,
     )
-    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
-        fit = find_ball(frame)
-        dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
-        dr = fit.radius_px - truth.radius_px
-        assert math.hypot(dx, dy) < 1.0 and abs(dr) < 1.0
-        assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
-        assert abs(dr) <= 3 * fit.radius_sigma_px
+    _found_within(frame_a, frame_b, truth, 1.0)
 
 
 def test_a_bright_balls_halo_is_left_out_of_the_outline():
@@ -504,13 +499,7 @@ def test_a_bright_balls_halo_is_left_out_of_the_outline():
         (384, 512), radius_px=64.0, flight_deg=183.0, surface="bright", lit_rim=False,
         sheet_unevenness=0.0, seed=43,
     )
-    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
-        fit = find_ball(frame)
-        dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
-        dr = fit.radius_px - truth.radius_px
-        assert math.hypot(dx, dy) < 1.0 and abs(dr) < 1.0
-        assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
-        assert abs(dr) <= 3 * fit.radius_sigma_px
+    _found_within(frame_a, frame_b, truth, 1.0)
 
 
 def test_a_dim_balls_faded_limb_is_left_out_of_the_outline():
@@ -526,10 +515,4 @@ def test_a_dim_balls_faded_limb_is_left_out_of_the_outline():
         (384, 512), radius_px=64.0, flight_deg=183.0, surface="dim", lit_rim=False,
         shadow=True, sheet_unevenness=0.0, seed=40,
     )
-    for frame, centre in ((frame_a, truth.center_a_px), (frame_b, truth.center_b_px)):
-        fit = find_ball(frame)
-        dx, dy = fit.center_px[0] - centre[0], fit.center_px[1] - centre[1]
-        dr = fit.radius_px - truth.radius_px
-        assert math.hypot(dx, dy) < 1.0 and abs(dr) < 1.0
-        assert abs(dx) <= 3 * fit.center_sigma_px[0] and abs(dy) <= 3 * fit.center_sigma_px[1]
-        assert abs(dr) <= 3 * fit.radius_sigma_px
+    _found_within(frame_a, frame_b, truth, 1.0)
