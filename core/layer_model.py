@@ -34,12 +34,14 @@ import functools
 import math
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 from scipy.special import erf, erfinv
 
 #: Parameter order of a side model.
 PARAM_NAMES = ("phi_s", "slope", "relax", "log_delta", "spread", "reverse", "drop", "thin",
                "follow", "k_t", "k_r")
+_SQRT_PI = math.sqrt(math.pi)
 #: Angular scale (deg) over which the attached layer's centre drops toward the wall ahead of
 #: separation.
 UPSTREAM_DEG = 15.0
@@ -177,8 +179,8 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
 
 
 def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, shape: str):
-    """:func:`side_flow` of ``K`` models, ``(K, 11)``: each parameter a ``(K, 1)`` column
-    broadcast over the ``(K, P, G)`` samples."""
+    """:func:`side_flow` of ``K`` models, ``(K, 11)``: what varies along the outline is worked
+    out per model and angle, ``(K, P)``, the rest sample by sample in :func:`_flow_at_samples`."""
     phi_s, _, _, log_delta, spread, reverse, drop, thin, follow, k_t, k_r = (
         table[:, i:i + 1] for i in range(len(PARAM_NAMES)))  # slope, relax: in the line
     r = geom.radius_px
@@ -189,67 +191,94 @@ def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, sh
     c = np.array([[centre_offset(float(v), shape)] for v in reverse[:, 0]])
     ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / geom.upstream_deg)  # 0 at/behind phi_s
     delta = delta_s * (1.0 - thin * ramp) + spread * behind
-    centre = (lift + c * delta * (1.0 - drop * ramp))[:, :, None]
-    wall_px = (geom.wall_fraction * delta_s * (1.0 - thin * ramp))[:, :, None]
-    delta = delta[:, :, None]
-    gap = geom.gap_grid[None, None, :]
-    # the flow follows the dividing line only where it rises: from the first angle where any
-    # model's line does (elsewhere that part is zero)
-    rising = np.flatnonzero(rise.any(axis=0))
-    rear = slice(rising[0], None) if rising.size else None
+    centre = lift + c * delta * (1.0 - drop * ramp)
+    wall_px = geom.wall_fraction * delta_s * (1.0 - thin * ramp)
     # the error functions and exponentials are most of the cost: each is computed once for the
     # models that share what it depends on (a Jacobian's columns for follow, k_t and k_r share
     # the whole layer; most share the wall's no-slip length)
-    layer = _alike(table, LAYER_COLUMNS)
-    across, inside = (_to_models(v, layer) for v in _layer_profiles(
-        gap, _of_kinds(centre, layer), _of_kinds(delta, layer), rear, shape))
-    no_slip = _alike(table, WALL_COLUMNS)
-    wall = _to_models(_wall_factor(gap, _of_kinds(wall_px, no_slip)), no_slip)
-    s_prof = (1.0 + reverse[:, :, None]) * across
-    s_prof += -reverse[:, :, None]
-    shape_pg = (1, phi.size, gap.size)
-    u_t = k_t[:, :, None] * u_t_outer.reshape(shape_pg)
-    u_t *= s_prof
-    u_t *= wall
-    u_r = k_r[:, :, None] * u_r_outer.reshape(shape_pg)
-    u_r *= across
-    u_r *= wall
-    if rear is not None:
-        along = follow[:, :, None] * u_t[:, rear]
-        along *= rise[:, rear, None]
-        along *= inside
-        u_r[:, rear] += along
-    models = table.shape[0]
-    return u_t.reshape(models, -1), u_r.reshape(models, -1)
-
-
-def _layer_profiles(gap, centre, delta, rear, shape: str):
-    """The profile across the layer at every sample, ``(K, P, G)``, and from the angle ``rear``
-    on (None: nowhere) the share of the flow under the layer's upper edge, one thickness above
-    its centre."""
-    height = gap - centre
-    across = profile(height / delta, shape)
-    if rear is None:
-        return across, None
-    up = height[:, rear] - delta[:, rear]
-    up /= delta[:, rear]
-    inside = profile(up, shape)
-    np.subtract(1.0, inside, out=inside)
-    return across, inside
-
-
-def _wall_factor(gap, wall_px):
-    """The wall's no-slip factor ``1 - exp(-gap / wall_px)``."""
-    factor = -gap / wall_px
-    np.expm1(factor, out=factor)
-    np.negative(factor, out=factor)
-    return factor
+    return _flow_at_samples(centre, delta, wall_px, rise, reverse[:, 0], follow[:, 0],
+                            k_t[:, 0], k_r[:, 0], _first_alike(table, LAYER_COLUMNS),
+                            _first_alike(table, WALL_COLUMNS), geom.gap_grid,
+                            u_t_outer.reshape(phi.size, -1), u_r_outer.reshape(phi.size, -1),
+                            shape == "quartic")
 
 
 #: Parameters (columns) that shape the layer's profile (all but ``follow``, ``k_t``, ``k_r``),
 #: and those that set the no-slip length at the wall.
 LAYER_COLUMNS = slice(0, PARAM_NAMES.index("follow"))
 WALL_COLUMNS = [PARAM_NAMES.index(name) for name in ("phi_s", "log_delta", "thin")]
+
+
+def _first_alike(table: np.ndarray, columns) -> np.ndarray:
+    """For each model (row of ``table``) the first model with the same values in ``columns``."""
+    alike = _alike(table, columns)
+    if alike is None:
+        return np.arange(len(table))
+    first, kind = alike
+    return first[kind]
+
+
+# The sample-by-sample part is compiled (numba) rather than written with numpy: as whole-array
+# operations it made some twenty (K, P, G) temporaries per evaluation, and the fit evaluates
+# thousands of models per side. Compiled, it also runs without the GIL, so both sides of a ball
+# are fitted at once on two threads (core.separation).
+@numba.njit(cache=True, nogil=True)
+def _flow_at_samples(centre, delta, wall_px, rise, reverse, follow, k_t, k_r, same_layer,
+                     same_wall, gap, u_t_outer, u_r_outer, quartic):
+    """Ball-frame motion ``(u_t, u_r)``, ``(K, P * G)``, of ``K`` models at the band's samples.
+
+    ``centre``, ``delta``, ``wall_px``: the layer's centre height, its vorticity thickness and
+    the wall's no-slip length (px), ``(K, P)``; ``rise``: the dividing line's ``dZ/ds``,
+    ``(K, P)``; ``reverse``, ``follow``, ``k_t``, ``k_r``: ``(K,)``; ``same_layer``,
+    ``same_wall``: for each model the first with the same layer, the same no-slip length
+    (their profiles are taken from it); ``gap``: ``(G,)``; ``u_t_outer``, ``u_r_outer``: the
+    outer stream, ``(P, G)``.
+    """
+    models, angles = centre.shape
+    gaps = gap.size
+    u_t = np.empty((models, angles * gaps))
+    u_r = np.empty((models, angles * gaps))
+    across = np.empty((models, angles * gaps))  # the layer's profile
+    inside = np.empty((models, angles * gaps))  # the share under its upper edge
+    wall = np.empty((models, angles * gaps))  # the wall's no-slip factor
+    for k in range(models):
+        r = reverse[k]
+        own_layer, own_wall = same_layer[k] == k, same_wall[k] == k
+        for p in range(angles):
+            d = delta[k, p]
+            rising = rise[k, p] != 0.0
+            for g in range(gaps):
+                i = p * gaps + g
+                if own_layer:
+                    height = gap[g] - centre[k, p]
+                    across[k, i] = _profile_value(height / d, quartic)
+                    if rising:
+                        inside[k, i] = 1.0 - _profile_value((height - d) / d, quartic)
+                else:
+                    across[k, i] = across[same_layer[k], i]
+                    inside[k, i] = inside[same_layer[k], i]
+                if own_wall:
+                    wall[k, i] = -math.expm1(-gap[g] / wall_px[k, p])
+                else:
+                    wall[k, i] = wall[same_wall[k], i]
+                t = k_t[k] * u_t_outer[p, g] * ((1.0 + r) * across[k, i] - r) * wall[k, i]
+                radial = k_r[k] * u_r_outer[p, g] * across[k, i] * wall[k, i]
+                if rising:
+                    # the flow under the layer's upper edge follows the rising dividing line
+                    radial += follow[k] * t * rise[k, p] * inside[k, i]
+                u_t[k, i] = t
+                u_r[k, i] = radial
+    return u_t, u_r
+
+
+@numba.njit(cache=True, nogil=True)
+def _profile_value(x, quartic):
+    """:func:`profile` of one value."""
+    if not quartic:
+        return 0.5 * (math.erf(_SQRT_PI * x) + 1.0)
+    y = min(max(x * (16.0 / 15.0), -1.0), 1.0)
+    return 0.5 + (15.0 / 16.0) * y - 0.625 * y**3 + 0.1875 * y**5
+
 
 
 def _alike(table: np.ndarray, columns):
@@ -291,7 +320,11 @@ def _dividing_lines(geom: SideGeometry, lines: np.ndarray):
     alike = _alike(lines, slice(None))
     grid = (geom.radius_px, geom.final_deg, phi.size, float(phi[0]), float(phi[-1]))
     keys = [(*line, *grid) for line in _of_kinds(lines, alike).tolist()]
-    known = {key: _LINE_CACHE[key] for key in keys if key in _LINE_CACHE}
+    known = {}
+    for key in keys:  # one lookup a key: another thread (the other side) may clear the cache
+        line = _LINE_CACHE.get(key)
+        if line is not None:
+            known[key] = line
     new = [key for key in keys if key not in known]
     if new:
         r = geom.radius_px

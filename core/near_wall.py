@@ -6,10 +6,10 @@ every sample ``p`` of the band (``D`` the ball displacement A->B, ``u`` the mode
 displacement). Near the wall the motion is almost along the outline, a turn about the ball
 centre, so each frame is resampled once on a fine polar grid about its own ball centre
 (cubic splines, 0.25 px steps in radius and along the arc); a model's residual is then a
-bilinear lookup in those two polar pictures. We write this lookup ourselves because the fit
-evaluates thousands of models per side: ``scipy.ndimage.map_coordinates`` on the frames costs
-about ten times more per evaluation, and the 0.25 px grid keeps the bilinear error near 2 % of a
-particle image's peak (below the camera noise).
+bilinear lookup in those two polar pictures. We write this lookup ourselves (compiled with
+numba) because the fit evaluates thousands of models per side: ``scipy.ndimage.map_coordinates``
+on the frames costs about ten times more per evaluation, and the 0.25 px grid keeps the bilinear
+error near 2 % of a particle image's peak (below the camera noise).
 
 Coordinates: ``phi`` is the separation-convention angle (deg, 0 on the plane normal to the
 flight, positive rearward) on the band's side, ``gap`` the distance outside the outline (px).
@@ -22,6 +22,7 @@ import functools
 import math
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 from scipy import ndimage
 
@@ -116,11 +117,10 @@ class NearWallBand:
                                            phi_axis=phi_axis)
         self.polar_a = self._sample_a(frame_a)
         self.polar_b = self._sample_b(frame_b)
-        self._steps_a = _column_steps(self.polar_a)
-        self._steps_b = _column_steps(self.polar_b)
+        self._steps_a = _row_steps(self.polar_a)
+        self._steps_b = _row_steps(self.polar_b)
         self.scale = float(np.std(self.polar_a)) + 1e-9
-        self._rad_per_deg = math.radians(1.0)
-        self._keep_picture = None  # (Nr, Nphi) 1 where a sample counts, 0 in glare
+        self._keep_picture = None  # (Nphi, Nr) 1 where a sample counts, 0 in glare
         self.kept_fraction = 1.0
 
     def leave_out(self, masks, reach_px: float) -> None:
@@ -144,8 +144,8 @@ class NearWallBand:
         """1 for the samples that count, 0 for those left out (at the samples' own places)."""
         if self._keep_picture is None:
             return np.ones(self.phi.size)
-        return _bilinear(self._keep_picture, (self.rho - self._rho0) / POLAR_STEP_PX,
-                         (self.phi - self._phi0) / self._dphi) > 0.999
+        return _bilinear(self._keep_picture, (self.phi - self._phi0) / self._dphi,
+                         (self.rho - self._rho0) / POLAR_STEP_PX) > 0.999
 
     def _set_samples(self, phi_grid: np.ndarray, gap_grid: np.ndarray) -> None:
         self.phi_grid, self.gap_grid = phi_grid, gap_grid
@@ -178,31 +178,11 @@ class NearWallBand:
         ``u_t`` is along the outline (rearward positive), ``u_r`` outward; both ``(S,)`` for the
         band's samples, or ``(K, S)`` for ``K`` models at once (then ``(K, S)`` residuals).
         """
-        turn_deg = 0.5 * u_t
-        turn_deg /= self.rho
-        turn_deg /= self._rad_per_deg
-        half_r = 0.5 * u_r
-        a = _bilinear(self.polar_a, self._polar_row(self.rho - half_r),
-                      self._polar_col(self.phi - turn_deg), self._steps_a)
-        b = _bilinear(self.polar_b, self._polar_row(self.rho + half_r),
-                      self._polar_col(self.phi + turn_deg), self._steps_b)
-        a -= b
-        if self._weight is not None:
-            a *= self._weight
-        a /= self.scale
-        return a
-
-    def _polar_row(self, rho: np.ndarray) -> np.ndarray:
-        """Fractional row of the polar pictures at radii ``rho`` (overwritten)."""
-        rho -= self._rho0
-        rho /= POLAR_STEP_PX
-        return rho
-
-    def _polar_col(self, phi: np.ndarray) -> np.ndarray:
-        """Fractional column of the polar pictures at angles ``phi`` (overwritten)."""
-        phi -= self._phi0
-        phi /= self._dphi
-        return phi
+        weight = self._weight if self._weight is not None else np.ones(0)
+        out = _frames_differ(self.polar_a, self._steps_a, self.polar_b, self._steps_b,
+                             self.rho, self.phi, np.atleast_2d(u_t), np.atleast_2d(u_r),
+                             weight, self._rho0, self._phi0, self._dphi, self.scale)
+        return out if np.ndim(u_t) == 2 else out[0]
 
 
 class JointBand:
@@ -226,12 +206,13 @@ class JointBand:
 
 
 def _polar_picture(frame, *, ball: BallMotion, side: str, shift_px, rho_axis, phi_axis):
-    """``frame`` resampled (cubic spline) at ``centre + shift + rho e(phi)``: ``(Nr, Nphi)``."""
+    """``frame`` resampled (cubic spline) at ``centre + shift + rho e(phi)``: ``(Nphi, Nr)``
+    (along the arc, then outward: a band's samples read it row by row)."""
     (ex, ey), _ = side_axes(ball.flight_deg, side, phi_axis)
     cx = ball.center_px[0] + shift_px[0]
     cy = ball.center_px[1] + shift_px[1]
-    xs = cx + rho_axis[:, None] * ex[None, :]
-    ys = cy + rho_axis[:, None] * ey[None, :]
+    xs = cx + ex[:, None] * rho_axis[None, :]
+    ys = cy + ey[:, None] * rho_axis[None, :]
     height, width = frame.shape
     x0 = int(np.clip(np.floor(xs.min()) - 4, 0, width - 1))
     x1 = int(np.clip(np.ceil(xs.max()) + 5, x0 + 1, width))
@@ -241,42 +222,68 @@ def _polar_picture(frame, *, ball: BallMotion, side: str, shift_px, rho_axis, ph
     return ndimage.map_coordinates(crop, [ys - y0, xs - x0], order=3, mode="nearest")
 
 
-def _column_steps(picture: np.ndarray) -> np.ndarray:
-    """Each sample's step to the next column (0 in the last), for :func:`_bilinear`."""
+def _row_steps(picture: np.ndarray) -> np.ndarray:
+    """Each sample's step to the next row (0 in the last), for :func:`_lookup`."""
     steps = np.zeros_like(picture)
-    steps[:, :-1] = np.diff(picture, axis=1)
+    steps[:-1] = np.diff(picture, axis=0)
     return steps
 
 
-def _bilinear(picture: np.ndarray, row: np.ndarray, col: np.ndarray,
-              steps: np.ndarray | None = None) -> np.ndarray:
-    """Bilinear samples of ``picture`` at fractional ``(row, col)``, clamped to its edge.
+def _bilinear(picture: np.ndarray, row: np.ndarray, col: np.ndarray) -> np.ndarray:
+    """Bilinear samples of ``picture`` at fractional ``(row, col)``, clamped to its edge."""
+    row, col = np.broadcast_arrays(np.asarray(row, np.float64), np.asarray(col, np.float64))
+    values = np.empty(row.size)
+    _lookup_many(np.ascontiguousarray(picture, np.float64), _row_steps(picture),
+                 row.ravel(), col.ravel(), values)
+    return values.reshape(row.shape)
 
-    ``steps`` (:func:`_column_steps` of the picture) saves two lookups and two differences per
-    sample when the same picture is sampled again and again; the arithmetic is the same.
-    """
+
+_RAD_PER_DEG = math.radians(1.0)
+
+
+# The lookups are compiled (numba): written with numpy they made a dozen (K, S) temporaries per
+# evaluation of K models, and the fit evaluates thousands of models per side.
+@numba.njit(cache=True, nogil=True)
+def _frames_differ(polar_a, steps_a, polar_b, steps_b, rho, phi, u_t, u_r, weight, rho0, phi0,
+                   dphi, scale):
+    """:meth:`NearWallBand.residual` of ``K`` models, ``(K, S)``; ``weight`` empty when every
+    sample counts."""
+    models, samples = u_t.shape
+    out = np.empty((models, samples))
+    for k in range(models):
+        for s in range(samples):
+            turn_deg = 0.5 * u_t[k, s] / rho[s] / _RAD_PER_DEG
+            half_r = 0.5 * u_r[k, s]
+            a = _lookup(polar_a, steps_a, (phi[s] - turn_deg - phi0) / dphi,
+                        (rho[s] - half_r - rho0) / POLAR_STEP_PX)
+            b = _lookup(polar_b, steps_b, (phi[s] + turn_deg - phi0) / dphi,
+                        (rho[s] + half_r - rho0) / POLAR_STEP_PX)
+            value = a - b
+            if weight.size:
+                value *= weight[s]
+            out[k, s] = value / scale
+    return out
+
+
+@numba.njit(cache=True, nogil=True)
+def _lookup_many(picture, steps, row, col, out):
+    for i in range(row.size):
+        out[i] = _lookup(picture, steps, row[i], col[i])
+
+
+@numba.njit(cache=True, nogil=True)
+def _lookup(picture, steps, row, col):
+    """Bilinear sample of ``picture`` at fractional ``(row, col)``, clamped to its edge (and to
+    its first sample for NaN); ``steps`` is :func:`_row_steps` of the picture (it saves two
+    lookups and two differences per sample of a picture sampled again and again)."""
     rows, cols = picture.shape
-    if steps is None:
-        steps = _column_steps(picture)
-    row = np.clip(row, 0.0, rows - 1.000001)
-    col = np.clip(col, 0.0, cols - 1.000001)
-    r0 = row.astype(np.intp)
-    c0 = col.astype(np.intp)
-    fr = np.subtract(row, r0, out=row)
-    fc = np.subtract(col, c0, out=col)
-    flat, flat_steps = picture.ravel(), steps.ravel()
-    i = r0
-    i *= cols
-    i += c0
-    top = np.take(flat, i)
-    top += fc * np.take(flat_steps, i)
-    i += cols
-    bottom = np.take(flat, i)
-    bottom += fc * np.take(flat_steps, i)
-    bottom -= top
-    bottom *= fr
-    bottom += top
-    return bottom
+    row = min(max(0.0, row), rows - 1.000001)  # max(0.0, NaN) is 0.0 here
+    col = min(max(0.0, col), cols - 1.000001)
+    r0, c0 = int(row), int(col)
+    fr, fc = row - r0, col - c0
+    left = picture[r0, c0] + fr * steps[r0, c0]
+    right = picture[r0, c0 + 1] + fr * steps[r0, c0 + 1]
+    return left + fc * (right - left)
 
 
 def particle_image_density(frame: np.ndarray, mask: np.ndarray | None = None,

@@ -39,6 +39,8 @@ from __future__ import annotations
 
 import itertools
 import math
+import os
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -196,6 +198,7 @@ def propose_separation(
     lab_field: VectorField,
     seeding: SeedingMap | None = None,
     glare: tuple[np.ndarray | None, np.ndarray | None] = (None, None),
+    workers: int | None = None,
 ) -> SeparationResult:
     """Separation proposal on both sides, wake deflection and wake state of one shot.
 
@@ -219,6 +222,9 @@ def propose_separation(
         Saturated glare in frames A and B (core.conditioning): band samples in or next to it
         are left out of the fit (a glint on the ball is bright and still in the ball frame,
         and would pass for air at rest).
+    workers : int or None
+        Threads the shot may use (None: one per core): with two or more, the two sides are
+        fitted at once.
 
     Returns
     -------
@@ -229,10 +235,17 @@ def propose_separation(
     deflection = wake_deflection(lab_field, (0.0, 0.0), ball, lab_frame=moving)
     # each layer turns toward the wake's direction (on the lower side it points away from it)
     toward = 0.0 if deflection is None else deflection
-    sides = {side: fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side,
-                            final_deg=toward if side == "upper" else -toward, seeding=seeding,
-                            glare=glare)
-             for side in ("upper", "lower")}
+    def fit(side):
+        return fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side,
+                        final_deg=toward if side == "upper" else -toward, seeding=seeding,
+                        glare=glare)
+
+    names = ("upper", "lower")
+    if (workers or os.cpu_count() or 1) > 1:  # the model's compiled parts run without the GIL
+        with ThreadPoolExecutor(2) as pool:
+            sides = dict(zip(names, pool.map(fit, names), strict=True))
+    else:
+        sides = {side: fit(side) for side in names}
     if sides["upper"].angle_deg is None and sides["lower"].angle_deg is None:
         deflection = None
     state = wake_state(sides["upper"], sides["lower"])

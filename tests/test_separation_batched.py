@@ -14,8 +14,10 @@ from core.layer_model import (
     PARAM_NAMES,
     _gradient,
     _spacing,
+    centre_offset,
     dividing_line_px,
     dividing_lines_px,
+    profile,
     side_flow,
 )
 from core.near_wall import BallMotion, JointBand, NearWallBand, OuterStream, _bilinear
@@ -71,6 +73,35 @@ def test_side_flow_of_many_models_equals_one_at_a_time(problem, shape, models):
         one_t, one_r = side_flow(problem.geom, row, problem.u_t, problem.u_r, shape)
         np.testing.assert_array_equal(t_row, one_t)
         np.testing.assert_array_equal(r_row, one_r)
+
+
+@pytest.mark.parametrize("shape", ["erf", "quartic"])
+def test_compiled_flow_is_the_models_formulas(problem, shape):
+    # the per-sample loop is compiled; here the model of core/layer_model.py's docstring is
+    # written out with numpy, one model at a time, on the same dividing lines
+    geom = problem.geom
+    phi, gap = geom.phi_grid[:, None], geom.gap_grid[None, :]
+    u_t_out = problem.u_t.reshape(phi.size, -1)
+    u_r_out = problem.u_r.reshape(phi.size, -1)
+    table = _models(problem)
+    u_t, u_r = side_flow(geom, table, problem.u_t, problem.u_r, shape)
+    for k, row in enumerate(table):
+        phi_s, slope, relax, log_delta, spread, r, drop, thin, follow, k_t, k_r = row
+        q = 1.0 - np.exp(-np.clip(phi_s - phi, 0.0, None) / geom.upstream_deg)
+        delta_s = np.exp(log_delta)
+        delta = delta_s * (1.0 - thin * q) + spread * np.clip(np.radians(phi - phi_s), 0, None) \
+            * geom.radius_px
+        lift = dividing_line_px(geom.radius_px, phi_s, slope, relax * geom.radius_px,
+                                geom.phi_grid, geom.final_deg)[:, None]
+        rise = np.gradient(lift[:, 0], np.radians(geom.phi_grid) * geom.radius_px)[:, None]
+        centre = lift + centre_offset(r, shape) * delta * (1.0 - drop * q)
+        wall = 1.0 - np.exp(-gap / (geom.wall_fraction * delta_s * (1.0 - thin * q)))
+        across = profile((gap - centre) / delta, shape)
+        along = k_t * u_t_out * (-r + (1.0 + r) * across) * wall
+        under = 1.0 - profile((gap - centre - delta) / delta, shape)
+        radial = k_r * u_r_out * across * wall + follow * along * rise * under
+        np.testing.assert_allclose(u_t[k], along.ravel(), rtol=1e-10, atol=1e-12)
+        np.testing.assert_allclose(u_r[k], radial.ravel(), rtol=1e-10, atol=1e-12)
 
 
 def test_band_residual_of_many_models_equals_one_at_a_time(problem):
