@@ -273,12 +273,40 @@ def _flow_at_samples(centre, delta, wall_px, rise, reverse, follow, k_t, k_r, sa
 
 @numba.njit(cache=True, nogil=True)
 def _profile_value(x, quartic):
-    """:func:`profile` of one value."""
-    if not quartic:
-        return 0.5 * (math.erf(_SQRT_PI * x) + 1.0)
-    y = min(max(x * (16.0 / 15.0), -1.0), 1.0)
-    return 0.5 + (15.0 / 16.0) * y - 0.625 * y**3 + 0.1875 * y**5
+    """:func:`profile` of one value; the error function's from :data:`_ERF_TABLE`."""
+    if quartic:
+        y = min(max(x * (16.0 / 15.0), -1.0), 1.0)
+        return 0.5 + (15.0 / 16.0) * y - 0.625 * y**3 + 0.1875 * y**5
+    if x <= -_TABLE_REACH:
+        return 0.0
+    if x >= _TABLE_REACH:
+        return 1.0
+    # cubic Hermite interpolation between the table's values and slopes (the slopes stored
+    # times the step): continuous with its first derivative, as the fit's finite differences
+    # want
+    u = (x + _TABLE_REACH) / _TABLE_STEP
+    i = int(u)
+    t = u - i
+    p0, p1 = _ERF_TABLE[i, 0], _ERF_TABLE[i + 1, 0]
+    m0, m1 = _ERF_TABLE[i, 1], _ERF_TABLE[i + 1, 1]
+    return p0 + t * (m0 + t * (3.0 * (p1 - p0) - 2.0 * m0 - m1
+                               + t * (2.0 * (p0 - p1) + m0 + m1)))
 
+
+def _erf_table(step: float, reach: float) -> np.ndarray:
+    """The error-function profile (:func:`profile`) and its slope times ``step`` on
+    ``[-reach, reach]``, ``(N, 2)``."""
+    x = np.arange(-reach, reach + 0.5 * step, step)
+    return np.stack([profile(x), np.exp(-math.pi * x * x) * step], axis=1)
+
+
+# The compiled loop interpolates the error function in a table instead of calling libm's erf:
+# the layer's profile is most of a model evaluation's cost, and the table's lookup is several
+# times cheaper. At 1/256 per step it is within 2e-11 of scipy.special.erf, its slope within
+# 1e-8 (tests/test_separation_batched.py); beyond 4 the profile is 0 or 1 to 1e-23.
+_TABLE_STEP = 1.0 / 256.0
+_TABLE_REACH = 4.0
+_ERF_TABLE = _erf_table(_TABLE_STEP, _TABLE_REACH)
 
 
 def _alike(table: np.ndarray, columns):
