@@ -41,7 +41,6 @@ from scipy.special import erf, erfinv
 #: Parameter order of a side model.
 PARAM_NAMES = ("phi_s", "slope", "relax", "log_delta", "spread", "reverse", "drop", "thin",
                "follow", "k_t", "k_r")
-_SQRT_PI = math.sqrt(math.pi)
 #: Angular scale (deg) over which the attached layer's centre drops toward the wall ahead of
 #: separation.
 UPSTREAM_DEG = 15.0

@@ -139,6 +139,19 @@ def test_thread_count_does_not_change_the_settings_fingerprint():
     assert base.fingerprint() != replace(base, dt_s=2e-5).fingerprint()
 
 
+def test_one_thread_or_two_give_the_same_result(shot):
+    # with two threads the two sides are fitted at once (core.separation.propose_separation)
+    from dataclasses import replace
+
+    result, truth = shot
+    frame_a, frame_b, _ = ball_shot(flight_deg=183.0, seed=11)
+    one = measure_shot(frame_a, frame_b, replace(result.settings,
+                                                 piv=replace(result.settings.piv, workers=1)))
+    assert result.settings.piv.workers != 1
+    assert one.separation == result.separation
+    assert one.separation.upper.angle_deg is not None
+
+
 @pytest.mark.parametrize("ball_shift", [(7.3, -2.6), (-8.5, 0.5), (1.0, 9.9)])
 def test_the_ball_frame_crop_measures_motion_relative_to_the_ball(ball_shift):
     # frames A and B moved by whole pixels toward the ball's mid-exposure place: a particle
