@@ -143,7 +143,7 @@ def test_one_thread_or_two_give_the_same_result(shot):
     # with two threads the two sides are fitted at once (core.separation.propose_separation)
     from dataclasses import replace
 
-    result, truth = shot
+    result, _ = shot
     frame_a, frame_b, _ = ball_shot(flight_deg=183.0, seed=11)
     one = measure_shot(frame_a, frame_b, replace(result.settings,
                                                  piv=replace(result.settings.piv, workers=1)))
