@@ -106,6 +106,22 @@ class Flight:
             self.displacement_cov_px2 = tuple(tuple(row) for row in self.displacement_cov_px2)
 
 
+#: The version since which separation uncertainties are made as now (the budget's refits, the
+#: extrapolation arc, ``core.separation.COVERAGE_K``); results made before keep theirs until
+#: processed again, and count as not up to date (``Session.needs_processing``).
+UNCERTAINTY_SINCE = (0, 3)
+
+
+def uncertainty_outdated(software_version: str) -> bool:
+    """Whether a result made by ``software_version`` ("0.2.0") has its uncertainty from an
+    earlier method than this version's (``UNCERTAINTY_SINCE``); False when not known."""
+    try:
+        made = tuple(int(part) for part in software_version.split(".")[:2])
+    except ValueError:
+        return False
+    return len(made) == 2 and made < UNCERTAINTY_SINCE
+
+
 @dataclass
 class SideProposal:
     """Proposed separation on one side of the ball."""

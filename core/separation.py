@@ -133,9 +133,6 @@ SAMPLES_PER_INDEPENDENT = 10.0
 #: (docs/separation_accuracy.md).
 COVERAGE = 0.95
 COVERAGE_K = 1.5
-#: The version since which uncertainties are made as now (the budget's refits, the extrapolation
-#: arc, ``COVERAGE_K``); results made before keep theirs until processed again.
-UNCERTAINTY_SINCE = (0, 3)
 #: A proposal needs the separating model to beat the attached-flow model by this fraction of
 #: the residual, and a separation point no later than ``LATEST_DEG`` (135 deg from the front
 #: stagnation point; even supercritical spheres separate by about 110-120 deg: Achenbach 1972,
@@ -642,16 +639,6 @@ def _refit_shift(problem: SideProblem, best: Fit, **alternative) -> float:
     fit's parameters, ``ALTERNATIVE_ITERATIONS`` evaluations of the model at most."""
     moved = _refine(problem, best.params, max_nfev=ALTERNATIVE_ITERATIONS, **alternative)
     return float(moved.params[0] - best.params[0])
-
-
-def uncertainty_outdated(software_version: str) -> bool:
-    """Whether a result made by ``software_version`` ("0.2.0") has its uncertainty from an
-    earlier method than this version's (``UNCERTAINTY_SINCE``); False when not known."""
-    try:
-        made = tuple(int(part) for part in software_version.split(".")[:2])
-    except ValueError:
-        return False
-    return len(made) == 2 and made < UNCERTAINTY_SINCE
 
 
 def extrapolation_deg(params, radius_px: float) -> float:

@@ -88,6 +88,21 @@ def test_reprocessing_updates_the_proposal_and_keeps_the_pick(session_path):
         assert s.load_result("S2").separation.upper.angle_deg == 7.0  # last good result kept
 
 
+def test_a_result_whose_uncertainty_an_earlier_version_made_is_not_up_to_date(
+        session_path, monkeypatch):
+    # 0.3 changed how the proposals' ± is made (core.results.UNCERTAINTY_SINCE): `process`
+    # measures such shots again, keeping the analyst's pick
+    monkeypatch.setattr("core.store.session.__version__", "0.2.0")
+    with Session.open(session_path) as s:
+        s.save_result("S1", fake_result(s.settings_for("S1"), 4.0, -1.0))
+        s.set_pick("S1", status="adjusted", upper_deg=5.5)
+    monkeypatch.undo()
+    with Session.open(session_path) as s:
+        assert s["S1"].software_version == "0.2.0" and s.needs_processing("S1")
+        s.save_result("S1", fake_result(s.settings_for("S1"), 4.2, -1.0))
+        assert not s.needs_processing("S1") and s["S1"].pick.upper_deg == 5.5
+
+
 def test_corrected_values_keep_the_pick_and_mark_the_shot_for_processing(session_path):
     with Session.open(session_path) as s:
         s.save_result("S1", fake_result(s.settings_for("S1"), 4.0, -1.0))

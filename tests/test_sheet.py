@@ -238,9 +238,10 @@ class _Recorder:
         return getattr(self._painter, name)
 
 
-def _painted_panels(session_path, tmp_path, shot_id: str, metadata: dict):
-    """A panel of ``shot_id`` (with ``metadata`` added) at each per-page count, painted on a
-    PDF page: (per page, cell in mm, the recorder, the record, the rows the panel lists)."""
+def _painted_panels(session_path, tmp_path, shot_id: str, metadata: dict, **changes):
+    """A panel of ``shot_id`` (with ``metadata`` added, and the record's fields ``changes``) at
+    each per-page count, painted on a PDF page: (per page, cell in mm, the recorder, the
+    record, the rows the panel lists)."""
     from dataclasses import replace
 
     from PySide6 import QtGui
@@ -254,7 +255,7 @@ def _painted_panels(session_path, tmp_path, shot_id: str, metadata: dict):
     ensure_gui_application()
     with Session.open(session_path, writable=False) as session:
         record = session[shot_id]
-        record = replace(record, metadata={**record.metadata, **metadata})
+        record = replace(record, metadata={**record.metadata, **metadata}, **changes)
         result = session.load_result(shot_id)
     writer = _writer(tmp_path / f"{shot_id}.pdf", "t")
     painter = QtGui.QPainter()
@@ -278,15 +279,18 @@ LONG_METADATA = {"ball_type": "cricket", "speed_nominal_m_s": 30.0, "spin_rpm": 
                           "the ball", "seam_deg": 10.0}
 
 
-def test_every_panel_shows_all_its_lines_inside_it(reviewed_session, tmp_path):
+@pytest.mark.parametrize("version", ["", "0.2.0"])
+def test_every_panel_shows_all_its_lines_inside_it(reviewed_session, tmp_path, version):
     """At every per-page count a panel (an unusable shot with a reason, long notes and the
-    metadata) lists every row of its numbers, and every text it draws, the reference vector's
-    speed included, stays inside the panel; the header's metadata is one line in its band."""
+    metadata; measured by this wakeline, or by one whose ± is outdated) lists every row of its
+    numbers, and every text it draws, the reference vector's speed included, stays inside the
+    panel; the header's metadata is one line in its band."""
     from app.sheet.content import metadata_line
     from app.sheet.kit import mm
 
-    for per_page, cell, recorder, record, rows in _painted_panels(reviewed_session, tmp_path,
-                                                                  "s03", LONG_METADATA):
+    for per_page, cell, recorder, record, rows in _painted_panels(
+            reviewed_session, tmp_path, "s03", LONG_METADATA, software_version=version):
+        assert any("0.2.0" in row.value for row in rows) == (version == "0.2.0")
         x, y, w, h = (mm(v) for v in cell)
         drawn = [value for _rect, _used, value in recorder.texts]
         assert not any(v.startswith("…") for v in drawn), (per_page, drawn)

@@ -117,8 +117,7 @@ def test_a_result_made_by_an_earlier_uncertainty_method_is_named():
     from dataclasses import replace as with_
 
     from app.review.text import outdated_uncertainty_note
-    from core.results import SeparationResult
-    from core.separation import uncertainty_outdated
+    from core.results import SeparationResult, uncertainty_outdated
     from core.store.records import ShotRecord
     from core.summary import ShotSummary
 

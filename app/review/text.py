@@ -87,15 +87,15 @@ def uncertainty_meaning(side: SideProposal) -> str:
     return "\n".join(lines)
 
 
-def outdated_uncertainty_note(record) -> str:
+def outdated_uncertainty_note(record, remedy: str = "Process ▸ Reprocess this shot") -> str:
     """A note for a shot whose proposals' ± was made by an earlier wakeline, in another way
-    (empty when current or not known)."""
-    from core.separation import uncertainty_outdated
+    (empty when current or not known); ``remedy`` is how to get the current one."""
+    from core.results import uncertainty_outdated
 
     if record.summary is None or not uncertainty_outdated(record.software_version):
         return ""
     return (f"the ± was made by wakeline {record.software_version} in an earlier way; "
-            "Process ▸ Reprocess this shot gives the current one")
+            f"{remedy} gives the current one")
 
 
 def quality_meaning(side: SideProposal) -> str:

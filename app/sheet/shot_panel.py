@@ -17,6 +17,7 @@ from app.review.text import (
     MISSING,
     SHEET_DECIMALS,
     flight_text,
+    outdated_uncertainty_note,
     reviewed_wake_text,
     reynolds_text,
     vectors_text,
@@ -430,6 +431,10 @@ def number_rows(record, with_metadata: bool = False, checks=()) -> list[NumberRo
         rows.append(NumberRow("shot notes", str(md["notes"])))
     if checks:
         rows.append(NumberRow("check", "; ".join(checks[:2]),
+                              colours.STATUS_COLOURS[ReviewStatus.ADJUSTED]))
+    outdated = outdated_uncertainty_note(record, "processing it again (wakeline process)")
+    if outdated:
+        rows.append(NumberRow("uncertainty", outdated,
                               colours.STATUS_COLOURS[ReviewStatus.ADJUSTED]))
     warnings = () if summary is None else [w for w in summary.warnings
                                            if w not in summary.ball_warnings]  # with checks

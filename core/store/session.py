@@ -35,6 +35,7 @@ import h5py
 import numpy as np
 
 from core import WakelineError, __version__
+from core.results import uncertainty_outdated
 from core.shot_result import ShotResult, ShotSettings
 from core.store.companions import (
     check_replaceable,
@@ -281,10 +282,12 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         return ShotSettings.from_dict(data)
 
     def needs_processing(self, shot_id: str) -> bool:
-        """True unless the shot was processed successfully with its current settings."""
+        """True unless the shot was processed successfully with its current settings, by a
+        wakeline that makes the proposals' uncertainties as this one does."""
         rec = self._get(shot_id)
         current = self.settings_for(shot_id).fingerprint()
-        return rec.state != ProcessState.PROCESSED or rec.fingerprint != current
+        return (rec.state != ProcessState.PROCESSED or rec.fingerprint != current
+                or uncertainty_outdated(rec.software_version))
 
     def frame_source(self, shot_id: str) -> dict:
         """Where a worker finds the frames: absolute paths and checksums, or an HDF5 location.
