@@ -22,10 +22,10 @@ import functools
 import math
 from dataclasses import dataclass
 
-import numba
 import numpy as np
 from scipy import ndimage
 
+from core.compiled import compiled
 from core.geometry import flight_unit, side_normal
 from core.results import VectorField
 
@@ -178,11 +178,15 @@ class NearWallBand:
         ``u_t`` is along the outline (rearward positive), ``u_r`` outward; both ``(S,)`` for the
         band's samples, or ``(K, S)`` for ``K`` models at once (then ``(K, S)`` residuals).
         """
+        u_t, u_r = np.broadcast_arrays(np.asarray(u_t, np.float64), np.asarray(u_r, np.float64))
+        if u_t.shape[-1] != self.rho.size or u_t.ndim > 2:
+            raise ValueError(f"motion of shape {u_t.shape} for a band of {self.rho.size} samples")
         weight = self._weight if self._weight is not None else np.ones(0)
         out = _frames_differ(self.polar_a, self._steps_a, self.polar_b, self._steps_b,
                              self.rho, self.phi, np.atleast_2d(u_t), np.atleast_2d(u_r),
-                             weight, self._rho0, self._phi0, self._dphi, self.scale)
-        return out if np.ndim(u_t) == 2 else out[0]
+                             weight, self._rho0, self._phi0, self._dphi, POLAR_STEP_PX,
+                             self.scale)
+        return out if u_t.ndim == 2 else out[0]
 
 
 class JointBand:
@@ -232,9 +236,10 @@ def _row_steps(picture: np.ndarray) -> np.ndarray:
 def _bilinear(picture: np.ndarray, row: np.ndarray, col: np.ndarray) -> np.ndarray:
     """Bilinear samples of ``picture`` at fractional ``(row, col)``, clamped to its edge."""
     row, col = np.broadcast_arrays(np.asarray(row, np.float64), np.asarray(col, np.float64))
+    picture = np.ascontiguousarray(picture, np.float64)
     values = np.empty(row.size)
-    _lookup_many(np.ascontiguousarray(picture, np.float64), _row_steps(picture),
-                 row.ravel(), col.ravel(), values)
+    _lookup_many(picture, _row_steps(picture), np.ascontiguousarray(row.ravel()),
+                 np.ascontiguousarray(col.ravel()), values)
     return values.reshape(row.shape)
 
 
@@ -243,9 +248,9 @@ _RAD_PER_DEG = math.radians(1.0)
 
 # The lookups are compiled (numba): written with numpy they made a dozen (K, S) temporaries per
 # evaluation of K models, and the fit evaluates thousands of models per side.
-@numba.njit(cache=True, nogil=True)
+@compiled
 def _frames_differ(polar_a, steps_a, polar_b, steps_b, rho, phi, u_t, u_r, weight, rho0, phi0,
-                   dphi, scale):
+                   dphi, drho, scale):
     """:meth:`NearWallBand.residual` of ``K`` models, ``(K, S)``; ``weight`` empty when every
     sample counts."""
     models, samples = u_t.shape
@@ -255,9 +260,9 @@ def _frames_differ(polar_a, steps_a, polar_b, steps_b, rho, phi, u_t, u_r, weigh
             turn_deg = 0.5 * u_t[k, s] / rho[s] / _RAD_PER_DEG
             half_r = 0.5 * u_r[k, s]
             a = _lookup(polar_a, steps_a, (phi[s] - turn_deg - phi0) / dphi,
-                        (rho[s] - half_r - rho0) / POLAR_STEP_PX)
+                        (rho[s] - half_r - rho0) / drho)
             b = _lookup(polar_b, steps_b, (phi[s] + turn_deg - phi0) / dphi,
-                        (rho[s] + half_r - rho0) / POLAR_STEP_PX)
+                        (rho[s] + half_r - rho0) / drho)
             value = a - b
             if weight.size:
                 value *= weight[s]
@@ -265,19 +270,21 @@ def _frames_differ(polar_a, steps_a, polar_b, steps_b, rho, phi, u_t, u_r, weigh
     return out
 
 
-@numba.njit(cache=True, nogil=True)
+@compiled
 def _lookup_many(picture, steps, row, col, out):
     for i in range(row.size):
         out[i] = _lookup(picture, steps, row[i], col[i])
 
 
-@numba.njit(cache=True, nogil=True)
+@compiled
 def _lookup(picture, steps, row, col):
-    """Bilinear sample of ``picture`` at fractional ``(row, col)``, clamped to its edge (and to
-    its first sample for NaN); ``steps`` is :func:`_row_steps` of the picture (it saves two
-    lookups and two differences per sample of a picture sampled again and again)."""
+    """Bilinear sample of ``picture`` at fractional ``(row, col)``, clamped to its edge (NaN
+    where either is NaN); ``steps`` is :func:`_row_steps` of the picture (it saves two lookups
+    and two differences per sample of a picture sampled again and again)."""
+    if math.isnan(row) or math.isnan(col):
+        return np.nan
     rows, cols = picture.shape
-    row = min(max(0.0, row), rows - 1.000001)  # max(0.0, NaN) is 0.0 here
+    row = min(max(0.0, row), rows - 1.000001)
     col = min(max(0.0, col), cols - 1.000001)
     r0, c0 = int(row), int(col)
     fr, fc = row - r0, col - c0

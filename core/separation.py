@@ -39,7 +39,6 @@ from __future__ import annotations
 
 import itertools
 import math
-import os
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 
@@ -195,7 +194,7 @@ def propose_separation(
     lab_field: VectorField,
     seeding: SeedingMap | None = None,
     glare: tuple[np.ndarray | None, np.ndarray | None] = (None, None),
-    workers: int | None = None,
+    threads: int = 1,
 ) -> SeparationResult:
     """Separation proposal on both sides, wake deflection and wake state of one shot.
 
@@ -219,9 +218,8 @@ def propose_separation(
         Saturated glare in frames A and B (core.conditioning): band samples in or next to it
         are left out of the fit (a glint on the ball is bright and still in the ball frame,
         and would pass for air at rest).
-    workers : int or None
-        Threads the shot may use (None: one per core): with two or more, the two sides are
-        fitted at once.
+    threads : int
+        Threads the shot may use: with two or more, the two sides are fitted at once.
 
     Returns
     -------
@@ -232,13 +230,14 @@ def propose_separation(
     deflection = wake_deflection(lab_field, (0.0, 0.0), ball, lab_frame=moving)
     # each layer turns toward the wake's direction (on the lower side it points away from it)
     toward = 0.0 if deflection is None else deflection
+
     def fit(side):
         return fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side,
                         final_deg=toward if side == "upper" else -toward, seeding=seeding,
                         glare=glare)
 
     names = ("upper", "lower")
-    if (workers or os.cpu_count() or 1) > 1:  # the model's compiled parts run without the GIL
+    if threads > 1:  # the model's compiled parts run without the GIL
         with ThreadPoolExecutor(2) as pool:
             sides = dict(zip(names, pool.map(fit, names), strict=True))
     else:

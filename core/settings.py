@@ -6,6 +6,7 @@ from them, and the correlation engine (``core.piv``) reads them.
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 
 from core import WakelineError
@@ -45,6 +46,10 @@ class PivSettings:
         passes = tuple(p if isinstance(p, PivPass) else PivPass(**dict(p)) for p in self.passes)
         object.__setattr__(self, "passes", passes)
         _check_settings(self)
+
+    def threads(self) -> int:
+        """The threads a shot may use: ``workers``, or one per core."""
+        return self.workers or os.cpu_count() or 1
 
     def to_dict(self) -> dict:
         return {

@@ -422,7 +422,7 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
                      reynolds=result.reynolds, **_uncertainties(balls, flight))
     seeding = _seeding_map(frame_a if raw_a is None else raw_a, balls[0])
     proposal = propose_separation(frame_a, frame_b, ball, vf, origin, lab_field,
-                                  seeding, glare, workers=settings.piv.workers)
+                                  seeding, glare, threads=settings.piv.threads())
     clock.lap("separation")
     return proposal
 

@@ -22,7 +22,14 @@ from core.layer_model import (
     profile,
     side_flow,
 )
-from core.near_wall import BallMotion, JointBand, NearWallBand, OuterStream, _bilinear
+from core.near_wall import (
+    BallMotion,
+    JointBand,
+    NearWallBand,
+    OuterStream,
+    _bilinear,
+    side_axes,
+)
 from core.separation import SideProblem, all_at_once
 from core.synth_shot import ball_shot
 
@@ -78,14 +85,15 @@ def test_side_flow_of_many_models_equals_one_at_a_time(problem, shape, models):
 
 
 @pytest.mark.parametrize("shape", ["erf", "quartic"])
-def test_compiled_flow_is_the_models_formulas(problem, shape):
+@pytest.mark.parametrize("models", [_models, _jacobian_like])
+def test_compiled_flow_is_the_models_formulas(problem, shape, models):
     # the per-sample loop is compiled; here the model of core/layer_model.py's docstring is
     # written out with numpy, one model at a time, on the same dividing lines
     geom = problem.geom
     phi, gap = geom.phi_grid[:, None], geom.gap_grid[None, :]
     u_t_out = problem.u_t.reshape(phi.size, -1)
     u_r_out = problem.u_r.reshape(phi.size, -1)
-    table = _models(problem)
+    table = models(problem)  # the Jacobian-like rows share layers and no-slip lengths
     u_t, u_r = side_flow(geom, table, problem.u_t, problem.u_r, shape)
     for k, row in enumerate(table):
         phi_s, slope, relax, log_delta, spread, r, drop, thin, follow, k_t, k_r = row
@@ -115,7 +123,10 @@ def test_compiled_error_function_profile_is_scipys_to_within_its_table():
     np.testing.assert_allclose(values, profile(x), rtol=0, atol=2e-11)
     slope = np.diff(values) / np.diff(x)
     middle = 0.5 * (x[1:] + x[:-1])
-    np.testing.assert_allclose(slope, np.exp(-np.pi * middle**2), rtol=0, atol=1e-7)
+    np.testing.assert_allclose(slope, np.exp(-np.pi * middle**2), rtol=0, atol=2e-8)
+    assert _profiles_compiled(np.array([np.nextafter(4.0, 0.0), -4.0, np.nan]))[:2].tolist() \
+        == [1.0, 0.0]  # the table's last point, its edge
+    assert np.isnan(_profiles_compiled(np.array([np.nan]))[0])
 
 
 @numba.njit
@@ -124,6 +135,26 @@ def _profiles_compiled(x):
     for i in range(x.size):
         out[i] = _profile_value(x[i], False)
     return out
+
+
+def test_compiled_loops_work_where_no_cache_folder_can_be_written(monkeypatch):
+    # numba refuses cache=True when neither __pycache__ nor a user cache folder is writable
+    # (a read-only install and home): core.compiled then compiles without a cache
+    import core.compiled
+
+    real = numba.njit
+
+    def refusing(*args, cache=False, **options):
+        if cache:
+            raise RuntimeError("cannot cache function 'f': no locator available for file")
+        return real(*args, **options)
+
+    monkeypatch.setattr(core.compiled.numba, "njit", refusing)
+
+    def twice(x):
+        return 2.0 * x
+
+    assert core.compiled.compiled(twice)(1.5) == 3.0
 
 
 def test_band_residual_of_many_models_equals_one_at_a_time(problem):
@@ -148,6 +179,26 @@ def test_band_residual_of_many_models_leaves_the_same_samples_out(problem):
     many = band.residual(u_t, u_r)
     for k in range(len(u_t)):
         np.testing.assert_array_equal(many[k], band.residual(u_t[k], u_r[k]))
+
+
+def test_samples_left_out_for_glare_are_those_near_it_and_count_zero(problem):
+    # a glint masked in frame A: the band's samples within reach of it (2 px, plus the lookup's
+    # own pixel) drop out of every residual, and none farther away does
+    mask = np.zeros((260, 360), dtype=bool)
+    cx, cy = (int(v) for v in problem.band.ball.center_px)
+    mask[cy - 75:cy - 55, cx - 10:cx + 10] = True
+    band = problem.band.view()
+    band.leave_out((mask, None), 2.0)
+    residual = band.residual(*problem.flow(problem.start(8.0)))
+    dropped = residual == 0.0
+    ball = band.ball
+    (ex, ey), _ = side_axes(ball.flight_deg, band.side, band.phi)
+    x = ball.center_px[0] - 0.5 * ball.displacement_px[0] + band.rho * ex  # frame A's samples
+    y = ball.center_px[1] - 0.5 * ball.displacement_px[1] + band.rho * ey
+    distance = ndimage.map_coordinates(ndimage.distance_transform_edt(~mask), [y, x], order=1)
+    assert 0 < dropped.sum() < dropped.size
+    assert distance[dropped].max() <= 2.0 + 1.5
+    assert not dropped[distance > 2.0 + 1.5].any()
 
 
 def test_costs_and_scores_of_many_models_equal_one_at_a_time(problem):

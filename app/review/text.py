@@ -10,7 +10,7 @@ from __future__ import annotations
 
 import math
 
-from core.results import Flight, SeparationResult, SideProposal
+from core.results import Flight, SeparationResult, SideProposal, uncertainty_outdated
 from core.store import ShotRecord
 from core.summary import ShotSummary, VectorCounts
 from core.wake import wake_state
@@ -90,8 +90,6 @@ def uncertainty_meaning(side: SideProposal) -> str:
 def outdated_uncertainty_note(record, remedy: str = "Process ▸ Reprocess this shot") -> str:
     """A note for a shot whose proposals' ± was made by an earlier wakeline, in another way
     (empty when current or not known); ``remedy`` is how to get the current one."""
-    from core.results import uncertainty_outdated
-
     if record.summary is None or not uncertainty_outdated(record.software_version):
         return ""
     return (f"the ± was made by wakeline {record.software_version} in an earlier way; "

@@ -4,7 +4,6 @@ ones, and the validated vector field of the last pass."""
 from __future__ import annotations
 
 import math
-import os
 from collections.abc import Callable
 from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
@@ -425,7 +424,7 @@ def _checked_frames(frame_a, frame_b, mask_a, mask_b, settings: PivSettings) -> 
     if not (np.isfinite(a).all() and np.isfinite(b).all()):
         raise WakelineError("frame pair: frames contain NaN or infinite values")
     masks = [_checked_mask(m, a.shape, name) for m, name in ((mask_a, "A"), (mask_b, "B"))]
-    workers = settings.workers or os.cpu_count() or 1
+    workers = settings.threads()
     # mean square (= mean^2 + variance); a float32 dot is plenty for a noise floor
     power = math.sqrt(float(np.vdot(a, a)) / a.size * float(np.vdot(b, b)) / b.size)
     return Frames(a, b, masks[0], masks[1], workers, power)
