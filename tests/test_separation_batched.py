@@ -235,6 +235,32 @@ def test_least_squares_with_batched_jacobian_equals_one_model_at_a_time(problem)
     np.testing.assert_array_equal(batched.x, one_by_one.x)
 
 
+@pytest.mark.parametrize("max_nfev", [3, 5, 15])
+def test_a_refinement_is_the_same_without_the_jacobian_after_its_last_evaluation(
+        problem, max_nfev, monkeypatch):
+    # core.separation._refine leaves out the Jacobian the solver asks for after its last
+    # allowed evaluation (it stops without using it): the fit must be the one with it
+    from core.separation import _Evaluations, _refine
+
+    start = problem.start(8.0, leave_deg=10.0)
+    batches = []
+    spy = _Evaluations.jacobian_models
+
+    def counted(self, one_by_one, points):
+        out = spy(self, one_by_one, points)
+        batches.append(bool(np.any(out)))
+        return out
+
+    monkeypatch.setattr(_Evaluations, "jacobian_models", counted)
+    fit = _refine(problem, start, max_nfev=max_nfev)
+    assert batches[-1] is False and all(batches[:-1])  # the last one was left out
+    monkeypatch.setattr(_Evaluations, "jacobian_models",
+                        lambda self, one_by_one, points: self.batch(one_by_one, points))
+    full = _refine(problem, start, max_nfev=max_nfev)
+    np.testing.assert_array_equal(fit.params, full.params)
+    assert fit.score == full.score
+
+
 def test_dividing_lines_traced_together_equal_one_at_a_time():
     phi = np.linspace(-30.0, 60.0, 121)
     lines = [(5.0, 0.1, 80.0), (12.0, 0.3, 150.0), (-3.0, 0.0, 40.0)]
