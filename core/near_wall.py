@@ -144,8 +144,9 @@ class NearWallBand:
         """1 for the samples that count, 0 for those left out (at the samples' own places)."""
         if self._keep_picture is None:
             return np.ones(self.phi.size)
-        return _bilinear(self._keep_picture, (self.phi - self._phi0) / self._dphi,
+        kept = _bilinear(self._keep_picture, (self.phi - self._phi0) / self._dphi,
                          (self.rho - self._rho0) / POLAR_STEP_PX) > 0.999
+        return kept.astype(np.float64)
 
     def _set_samples(self, phi_grid: np.ndarray, gap_grid: np.ndarray) -> None:
         self.phi_grid, self.gap_grid = phi_grid, gap_grid
@@ -181,7 +182,7 @@ class NearWallBand:
         u_t, u_r = np.broadcast_arrays(np.asarray(u_t, np.float64), np.asarray(u_r, np.float64))
         if u_t.shape[-1] != self.rho.size or u_t.ndim > 2:
             raise ValueError(f"motion of shape {u_t.shape} for a band of {self.rho.size} samples")
-        weight = self._weight if self._weight is not None else np.ones(0)
+        weight = self._weight if self._weight is not None else _EVERY_SAMPLE
         out = _frames_differ(self.polar_a, self._steps_a, self.polar_b, self._steps_b,
                              self.rho, self.phi, np.atleast_2d(u_t), np.atleast_2d(u_r),
                              weight, self._rho0, self._phi0, self._dphi, POLAR_STEP_PX,
@@ -244,6 +245,7 @@ def _bilinear(picture: np.ndarray, row: np.ndarray, col: np.ndarray) -> np.ndarr
 
 
 _RAD_PER_DEG = math.radians(1.0)
+_EVERY_SAMPLE = np.ones(0)  # no weights: every sample counts
 
 
 # The lookups are compiled (numba): written with numpy they made a dozen (K, S) temporaries per
@@ -272,6 +274,7 @@ def _frames_differ(polar_a, steps_a, polar_b, steps_b, rho, phi, u_t, u_r, weigh
 
 @compiled
 def _lookup_many(picture, steps, row, col, out):
+    """:func:`_lookup` at each ``(row[i], col[i])`` into ``out[i]``."""
     for i in range(row.size):
         out[i] = _lookup(picture, steps, row[i], col[i])
 

@@ -549,8 +549,9 @@ class _Evaluations:
     (counted), ``jacobian_models`` as its ``workers`` map (:func:`all_at_once`), except for the
     Jacobian the solver asks for after its last allowed evaluation (``max_nfev``): scipy's trf
     computes one after every accepted step, but with no evaluation left it stops without using
-    it, so zeros stand in (a fifth of a five-evaluation refit's cost; the fit's parameters and
-    cost are the same to the last bit, only the result's unused gradient and status differ)."""
+    it, so zeros stand in (11 of a five-evaluation refit's 60 model evaluations; the fit's
+    parameters and cost are the same to the last bit, only the result's unused gradient and
+    status differ)."""
 
     def __init__(self, residuals, max_nfev: int):
         self.residuals, self.max_nfev = residuals, max_nfev
