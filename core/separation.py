@@ -44,6 +44,7 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 from scipy.optimize import least_squares
+from threadpoolctl import threadpool_limits
 
 from core.layer_model import PARAM_NAMES, SideGeometry, side_flow
 from core.near_wall import (
@@ -237,11 +238,14 @@ def propose_separation(
                         glare=glare)
 
     names = ("upper", "lower")
-    if threads > 1:  # the model's compiled parts run without the GIL
-        with ThreadPoolExecutor(2) as pool:
-            sides = dict(zip(names, pool.map(fit, names), strict=True))
-    else:
-        sides = {side: fit(side) for side in names}
+    # the solver's linear algebra (an SVD of a few thousand by eleven a step) is quicker on
+    # one BLAS thread than on several, and the sides may already take the cores
+    with threadpool_limits(limits=1, user_api="blas"):
+        if threads > 1:  # the model's compiled parts run without the GIL
+            with ThreadPoolExecutor(2) as pool:
+                sides = dict(zip(names, pool.map(fit, names), strict=True))
+        else:
+            sides = {side: fit(side) for side in names}
     if sides["upper"].angle_deg is None and sides["lower"].angle_deg is None:
         deflection = None
     state = wake_state(sides["upper"], sides["lower"])
@@ -536,7 +540,7 @@ def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_pr
     solver = _Evaluations(residuals, max_nfev)
     sol = least_squares(
         solver.step, x0, bounds=(lower[free], upper[free]), diff_step=1e-3, max_nfev=max_nfev,
-        xtol=1e-4, ftol=1e-4, x_scale=REFINE_SCALE[free], tr_solver="lsmr",
+        xtol=1e-4, ftol=1e-4, x_scale=REFINE_SCALE[free], tr_solver="exact",
         workers=solver.jacobian_models,
     )
     params = start.copy()
