@@ -7,20 +7,8 @@ outline (:mod:`core.near_wall`): the model of :mod:`core.layer_model` (an attach
 dividing line touches the wall at ``phi_s`` and then lifts off as a free shear layer that
 thickens downstream), with the stream outside it from the finer PIV vectors beside the ball.
 
-The data alone can hardly tell a steeper departure from a later one, nor a thicker layer from a
-later one, so the model's shape parameters carry priors, all in physical units:
-
-- the layer's vorticity thickness at separation, ``ln(delta / delta_lam) = 0 +- 0.7``, with
-  ``delta_lam = 1.5 D / sqrt(Re)`` in px (the laminar layer scales as ``D / sqrt(Re)``;
-  Thwaites' separation criterion ``lambda = -0.09`` with an adverse edge-velocity gradient of
-  about ``-0.45 U / R`` gives ``theta = 0.32 D / sqrt(Re)``, and a separating profile's vorticity
-  thickness is about 4.9 ``theta``: derived, docs/references.md). The prior is wide (a factor of
-  two) because tripped, turbulent layers are thicker;
-- its spreading behind separation, ``d delta / ds = 0.18 (1 + r) / (1 - r) +- 0.04 (...)`` for a
-  mixing layer between the stream and the reverse flow ``-r U`` (Brown & Roshko 1974, memory:
-  0.14-0.22 quoted);
-- any departure angle within 0-25 deg alike (tangential included), any reverse flow within
-  2-30 % of the stream alike, a weak prior on the turning length.
+The model's priors, all in physical units, and the least-squares refinement are in
+:mod:`core.side_fit`.
 
 The uncertainty combines, as standard uncertainties: the fit's own standard error, the fitted
 circle's error (refit with the radius moved by its uncertainty), the flight direction's (one to
@@ -43,21 +31,20 @@ from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy.optimize import least_squares
 from threadpoolctl import threadpool_limits
 
-from core.layer_model import PARAM_NAMES, SideGeometry, side_flow
+from core.layer_model import PARAM_NAMES
 from core.near_wall import (
     BallMotion,
     JointBand,
     NearWallBand,
-    OuterStream,
     SeedingMap,
     outer_stream,
     seeding_ratio,
     side_axes,
 )
 from core.results import SeparationResult, SideProposal, VectorField
+from core.side_fit import PRIOR_LEAVE_DEG, Fit, SideProblem, refine
 from core.wake import wake_deflection, wake_state
 
 #: Band along the outline where the layer is fitted: first gap (px) outside the outline; the
@@ -73,26 +60,10 @@ SEARCH_DEG = (-40.0, 62.0)
 #: Band extent beyond the search range (deg): some attached flow ahead, some wake behind.
 BAND_DEG = (-50.0, 80.0)
 #: Laminar layer thickness at separation: ``delta = LAMINAR_DELTA_COEF D / sqrt(Re)`` (derived,
-#: see the module docstring), and the prior's spread of ``ln delta``.
+#: see core.side_fit's docstring).
 LAMINAR_DELTA_COEF = 1.5
-PRIOR_LOG_DELTA_SD = 0.7
 #: Reynolds number assumed for the thickness prior when the shot has none (no dt or scale).
 FALLBACK_REYNOLDS = 1.5e5
-#: Mixing-layer spreading rate of the vorticity thickness for a stream over still air and its
-#: spread (Brown & Roshko 1974, memory: 0.14-0.22 quoted).
-SPREADING_RATE = (0.18, 0.04)
-#: Departure angles (deg from the tangent) treated alike; beyond, the penalty grows as the
-#: distance of ``tan angle`` from the range over ``PRIOR_WALL``.
-PRIOR_LEAVE_DEG = (0.0, 25.0)
-#: Reverse flow under the layer (fraction of the stream) treated alike.
-PRIOR_REVERSE = (0.02, 0.30)
-#: Drop of the attached layer's centre toward the wall ahead of separation, and its thinning,
-#: treated alike within these ranges.
-PRIOR_DROP = (0.0, 1.0)
-PRIOR_THIN = (0.0, 0.7)
-PRIOR_WALL = 0.02
-#: Prior on the layer's turning length over the radius: median and sd of ``ln(L / R)``.
-PRIOR_RELAX = (1.0, 0.7)
 #: The coarse search uses every ``COARSE_EVERY``-th angle and gap row of the band at first,
 #: every other one around its best angles; the refinement the band's samples within
 #: ``FIT_WINDOW_DEG`` of its start.
@@ -101,8 +72,6 @@ FIT_WINDOW_DEG = (-25.0, 40.0)
 #: Depth (layer thicknesses) to which the dividing line's place below the layer is uncertain
 #: (calibrated: docs/separation_accuracy.md).
 EXTRAPOLATION_DEPTH = 0.2
-#: A refinement moves the angle at most this far (deg) from its start.
-REFINE_REACH_DEG = 10.0
 #: Evaluations of the model (``max_nfev``: each step's, besides its Jacobian) of the main
 #: refinement and of each refit from its result.
 REFINE_ITERATIONS = 15
@@ -148,10 +117,6 @@ MIN_INSIDE_FRACTION = 0.9
 #: Particle images in the band beside the ball, relative to the free stream nearby, below which
 #: the side is refused (unlit: a laser shadow; or sparsely seeded).
 MIN_SEEDING_RATIO = 0.35
-#: Typical step of each parameter (``PARAM_NAMES`` order) for the refinement's trust region.
-REFINE_SCALE = np.array([1.0, 0.05, 0.3, 0.2, 0.03, 0.05, 0.1, 0.1, 0.2, 0.02, 0.1])
-#: Band samples times models evaluated in one go by the coarse search (memory, not the answer).
-BATCH_SAMPLES = 200_000
 
 
 @dataclass
@@ -255,92 +220,6 @@ def propose_separation(
 # --- the fit of one side ---------------------------------------------------------------------
 
 
-@dataclass
-class SideProblem:
-    """Everything one side's fit needs: the band, the outer stream at its samples, the priors."""
-
-    band: NearWallBand
-    outer: OuterStream
-    final_deg: float  # the wake's direction on this side
-    log_delta_prior: float  # ln of the prior median thickness (px)
-    sigma: float = 1.0  # residual scale
-
-    def __post_init__(self):
-        self.geom = SideGeometry(self.band.ball.radius_px, self.band.phi_grid,
-                                 self.band.gap_grid, self.final_deg)
-        self.u_t = self.outer.tangential(self.band.phi, self.band.gap)
-        self.u_r = self.outer.radial(self.band.phi, self.band.gap)
-
-    def view(self, phi_deg=None, *, every: int = 1) -> SideProblem:
-        """The same problem on fewer samples (:meth:`NearWallBand.view`); the residual scale
-        follows the decimation so that the data weigh the same against the priors."""
-        return SideProblem(self.band.view(phi_deg, every=every), self.outer, self.final_deg,
-                           self.log_delta_prior, self.sigma / every)
-
-    # Every method below takes one model's parameters, (11,), or K models' as rows, (K, 11),
-    # and then answers row by row (a fit's finite differences, a search's candidates).
-
-    def flow(self, params, shape="erf", geom=None):
-        return side_flow(geom or self.geom, params, self.u_t, self.u_r, shape)
-
-    def data_cost(self, params, shape="erf", geom=None):
-        """Sum of the squared residuals of the band (no ``sigma``): a float, or ``(K,)``."""
-        table = np.asarray(params, dtype=np.float64)
-        if table.ndim == 1:
-            return float(np.sum(self.band.residual(*self.flow(table, shape, geom)) ** 2))
-        # a few models at a time keep the (K, S) temporaries small
-        rows = max(1, BATCH_SAMPLES // self.band.phi.size)
-        return np.concatenate([
-            np.sum(self.band.residual(*self.flow(table[i:i + rows], shape, geom)) ** 2, axis=-1)
-            for i in range(0, len(table), rows)])
-
-    def residuals(self, params, shape="erf", geom=None, log_delta_prior=None) -> np.ndarray:
-        """What the fit squares and sums: the band's residuals over ``sigma``, then the priors'."""
-        data = self.band.residual(*self.flow(params, shape, geom)) / self.sigma
-        return np.concatenate([data, self.prior_terms(params, log_delta_prior)], axis=-1)
-
-    def score(self, params, data_cost=None):
-        """Data cost over ``sigma^2`` plus the priors: what the fit minimises (twice its cost)."""
-        if data_cost is None:
-            data_cost = self.data_cost(params)
-        priors = np.sum(self.prior_terms(params) ** 2, axis=-1)
-        if np.ndim(priors) == 0:
-            return data_cost / self.sigma**2 + float(priors)
-        return data_cost / self.sigma**2 + priors
-
-    def prior_terms(self, params, log_delta_prior=None) -> np.ndarray:
-        """Dimensionless prior residuals (their squares add to the cost), ``PARAM_NAMES`` order."""
-        table = np.asarray(params, dtype=np.float64)
-        _, slope, relax, log_delta, spread, reverse, drop, thin, follow, _, _ = (
-            np.atleast_2d(table).T)
-        centre = self.log_delta_prior if log_delta_prior is None else log_delta_prior
-        lo, hi = (math.tan(math.radians(v)) for v in PRIOR_LEAVE_DEG)
-        ratio = (1.0 + reverse) / np.maximum(1.0 - reverse, 1e-3)
-        terms = np.stack([
-            _outside(slope, lo, hi),
-            np.array([math.log(v / PRIOR_RELAX[0]) for v in relax]) / PRIOR_RELAX[1],
-            (log_delta - centre) / PRIOR_LOG_DELTA_SD,
-            (spread - SPREADING_RATE[0] * ratio) / (SPREADING_RATE[1] * ratio),
-            _outside(reverse, *PRIOR_REVERSE),
-            _outside(drop, *PRIOR_DROP),
-            _outside(thin, *PRIOR_THIN),
-            _outside(follow, 0.0, 1.0),
-        ], axis=-1)
-        return terms if table.ndim == 2 else terms[0]
-
-    def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5):
-        """Parameters at the priors' medians but for those given."""
-        ratio = (1.0 + reverse) / (1.0 - reverse)
-        return np.array([phi_s, math.tan(math.radians(leave_deg)), PRIOR_RELAX[0],
-                         self.log_delta_prior + math.log(delta_factor),
-                         SPREADING_RATE[0] * ratio, reverse, 0.5, 0.35, follow, 1.0, 1.0])
-
-
-def _outside(value: np.ndarray, lo: float, hi: float) -> np.ndarray:
-    """Distance of ``value`` outside ``[lo, hi]`` over ``PRIOR_WALL`` (0 inside)."""
-    return (np.maximum(0.0, lo - value) + np.maximum(0.0, value - hi)) / PRIOR_WALL
-
-
 def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str,
                  final_deg: float, glare=(None, None)) -> SideProblem | str:
     """The side's fitting problem, or the reason there is none."""
@@ -425,7 +304,7 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
     fits = []
     for start in starts:
         near = problem.view((start[0] + FIT_WINDOW_DEG[0], start[0] + FIT_WINDOW_DEG[1]))
-        fits.append((_refine(near, start, max_nfev=REFINE_ITERATIONS), near))
+        fits.append((refine(near, start, max_nfev=REFINE_ITERATIONS), near))
     # the fits saw different windows: compare them on the samples all of them saw
     angles = [fit.params[0] for fit, _ in fits]
     common = problem.view((max(angles) + FIT_WINDOW_DEG[0], min(angles) + FIT_WINDOW_DEG[1]))
@@ -473,12 +352,6 @@ def _other_minima(angles, scores, chosen: float) -> float:
     return float(math.sqrt(np.sum(weights * (np.asarray(angles) - chosen) ** 2)))
 
 
-@dataclass
-class Fit:
-    params: np.ndarray
-    score: float  # data cost over sigma^2 plus the priors (SideProblem.score)
-
-
 def _coarse_search(problem: SideProblem):
     """Starting points for the refinement, best first, and the best data cost (on every other
     sample of the band).
@@ -520,71 +393,6 @@ def _distinct(scored, apart_deg: float, count: int):
     return kept
 
 
-def _refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_prior=None,
-            max_nfev=60, hold=()) -> Fit:
-    """Least-squares refinement with the priors of all parameters but those named in ``hold``
-    (``PARAM_NAMES``), which keep their start values."""
-    start = np.asarray(start, dtype=np.float64)
-    free = np.array([name not in hold for name in PARAM_NAMES])
-
-    def residuals(q):  # (n,) free parameters, or (K, n)
-        p = np.tile(start, np.shape(q)[:-1] + (1,))
-        p[..., free] = q
-        return problem.residuals(p, shape, geom, log_delta_prior)
-
-    lower = np.array([start[0] - REFINE_REACH_DEG, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.0, 0.0, 0.7,
-                      0.0])
-    upper = np.array([start[0] + REFINE_REACH_DEG, 0.7, 6.0, math.log(40.0), 0.6, 0.45,
-                      PRIOR_DROP[1] + 0.2, 0.9, 1.0, 1.3, 2.0])
-    x0 = np.clip(start, lower + 1e-9, upper - 1e-9)[free]
-    solver = _Evaluations(residuals, max_nfev)
-    sol = least_squares(
-        solver.step, x0, bounds=(lower[free], upper[free]), diff_step=1e-3, max_nfev=max_nfev,
-        xtol=1e-4, ftol=1e-4, x_scale=REFINE_SCALE[free], tr_solver="exact",
-        workers=solver.jacobian_models,
-    )
-    params = start.copy()
-    params[free] = sol.x
-    return Fit(params, float(2.0 * sol.cost))
-
-
-class _Evaluations:
-    """``residuals`` as least_squares evaluates them: ``step`` for the solver's own evaluations
-    (counted), ``jacobian_models`` as its ``workers`` map (:func:`all_at_once`), except for the
-    Jacobian the solver asks for after its last allowed evaluation (``max_nfev``): scipy's trf
-    computes one after every accepted step, but with no evaluation left it stops without using
-    it, so zeros stand in (11 of a five-evaluation refit's 60 model evaluations; the fit's
-    parameters and cost are the same to the last bit, only the result's unused gradient and
-    status differ)."""
-
-    def __init__(self, residuals, max_nfev: int):
-        self.residuals, self.max_nfev = residuals, max_nfev
-        self.batch = all_at_once(residuals)
-        self.count, self.size = 0, 0
-
-    def step(self, q):
-        self.count += 1
-        values = self.residuals(q)
-        self.size = values.shape[-1]
-        return values
-
-    def jacobian_models(self, one_by_one, points):
-        if self.count >= self.max_nfev:
-            return np.zeros((len(list(points)), self.size))
-        return self.batch(one_by_one, points)
-
-
-def all_at_once(residuals):
-    """A map (``workers``) for least_squares' finite-difference Jacobian that evaluates its
-    perturbed parameter sets, stepped and kept in bounds by scipy itself, as one batch of models
-    (``residuals`` takes ``(K, n)`` rows) rather than one model at a time."""
-
-    def evaluate(_one_by_one, points):
-        return residuals(np.array(list(points)))
-
-    return evaluate
-
-
 def _profile(problem: SideProblem, best: Fit) -> list[Fit]:
     """The fits with the angle held ``PROFILE_STEP_DEG`` before and after the best fit's, every
     other parameter refitted from the best fit's values."""
@@ -592,7 +400,7 @@ def _profile(problem: SideProblem, best: Fit) -> list[Fit]:
     for sign in (-1.0, 1.0):
         moved = best.params.copy()
         moved[0] += sign * PROFILE_STEP_DEG
-        held.append(_refine(problem, moved, hold=("phi_s",), max_nfev=ALTERNATIVE_ITERATIONS))
+        held.append(refine(problem, moved, hold=("phi_s",), max_nfev=ALTERNATIVE_ITERATIONS))
     return held
 
 
@@ -605,7 +413,7 @@ def _settled(problem: SideProblem, best: Fit) -> tuple[Fit, list[float]]:
         better = min(profile, key=lambda fit: fit.score)
         if not better.score < best.score:
             break
-        best = _refine(problem, better.params, max_nfev=REFINE_ITERATIONS)
+        best = refine(problem, better.params, max_nfev=REFINE_ITERATIONS)
         profile = _profile(problem, best)
     return best, [fit.score - best.score for fit in profile]
 
@@ -665,9 +473,9 @@ def _model_form_shift(problem: SideProblem, best: Fit) -> float:
 
 def _refit_shift(problem: SideProblem, best: Fit, **alternative) -> float:
     """How far (deg) the angle moves when the fit is redone under an alternative (another
-    profile ``shape``, ``geom`` or ``log_delta_prior``; :func:`_refine`'s options) from the best
+    profile ``shape``, ``geom`` or ``log_delta_prior``; :func:`~core.side_fit.refine`'s options) from the best
     fit's parameters, ``ALTERNATIVE_ITERATIONS`` evaluations of the model at most."""
-    moved = _refine(problem, best.params, max_nfev=ALTERNATIVE_ITERATIONS, **alternative)
+    moved = refine(problem, best.params, max_nfev=ALTERNATIVE_ITERATIONS, **alternative)
     return float(moved.params[0] - best.params[0])
 
 

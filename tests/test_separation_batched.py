@@ -30,7 +30,7 @@ from core.near_wall import (
     _bilinear,
     side_axes,
 )
-from core.separation import SideProblem, all_at_once
+from core.side_fit import SideProblem, all_at_once
 from core.synth_shot import ball_shot
 
 RADIUS_PX = 60.0
@@ -215,7 +215,7 @@ def test_costs_and_scores_of_many_models_equal_one_at_a_time(problem):
 def test_costs_of_many_models_in_several_batches_equal_one_batch(problem, monkeypatch):
     table = _models(problem, count=9)
     whole = problem.data_cost(table)
-    monkeypatch.setattr("core.separation.BATCH_SAMPLES", 2 * problem.band.phi.size)
+    monkeypatch.setattr("core.side_fit.BATCH_SAMPLES", 2 * problem.band.phi.size)
     np.testing.assert_array_equal(problem.data_cost(table), whole)
 
 
@@ -238,9 +238,9 @@ def test_least_squares_with_batched_jacobian_equals_one_model_at_a_time(problem)
 @pytest.mark.parametrize("max_nfev", [3, 5, 15])
 def test_a_refinement_is_the_same_without_the_jacobian_after_its_last_evaluation(
         problem, max_nfev, monkeypatch):
-    # core.separation._refine leaves out the Jacobian the solver asks for after its last
+    # core.side_fit.refine leaves out the Jacobian the solver asks for after its last
     # allowed evaluation (it stops without using it): the fit must be the one with it
-    from core.separation import _Evaluations, _refine
+    from core.side_fit import _Evaluations, refine
 
     start = problem.start(8.0, leave_deg=10.0)
     batches = []
@@ -252,11 +252,11 @@ def test_a_refinement_is_the_same_without_the_jacobian_after_its_last_evaluation
         return out
 
     monkeypatch.setattr(_Evaluations, "jacobian_models", counted)
-    fit = _refine(problem, start, max_nfev=max_nfev)
+    fit = refine(problem, start, max_nfev=max_nfev)
     assert batches[-1] is False and all(batches[:-1])  # the last one was left out
     monkeypatch.setattr(_Evaluations, "jacobian_models",
                         lambda self, one_by_one, points: self.batch(one_by_one, points))
-    full = _refine(problem, start, max_nfev=max_nfev)
+    full = refine(problem, start, max_nfev=max_nfev)
     np.testing.assert_array_equal(fit.params, full.params)
     assert fit.score == full.score
 
