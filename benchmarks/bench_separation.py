@@ -39,6 +39,7 @@ sys.path.insert(0, str(ROOT))
 from core import WakelineError
 from core.separation import COVERAGE, COVERAGE_K
 from core.shot import ShotSettings, measure_shot
+from core.wake import WAKE_COVERAGE_K
 
 #: The issue's accuracy target applies to layers of 1.5-9 px, departures 5-20 deg, R >= 150 px.
 TARGET_DEPARTURE_DEG = (5.0, 20.0)
@@ -115,6 +116,11 @@ def measure_case(family: str, kwargs: dict) -> list[dict]:
             "reason": failure if proposal is None else proposal.reason,
             "departure_true_deg": truth.leave_deg[k], "thickness_px": thickness[k],
             "radius_px": truth.radius_px, "seconds": seconds, **look,
+            "wake_true_deg": truth.wake_deflection_deg,
+            "wake_deg": None if result is None or result.separation is None
+            else result.separation.wake_deflection_deg,
+            "wake_uncertainty_deg": None if result is None or result.separation is None
+            else result.separation.wake_deflection_uncertainty_deg,
         })
     return records
 
@@ -207,7 +213,44 @@ def tables(records: list[dict]) -> str:
         k = coverage_factor([r for r in records if r["family"] == tuned])
         s = summarise([r for r in records if r["family"] == other], k)
         lines.append(f"| {tuned} | {k:.2f} | {s['coverage']:.0%} |")
-    return "\n".join(lines)
+    return "\n".join(lines + wake_tables(records))
+
+
+def wake_ratios(records: list[dict], family: str) -> np.ndarray:
+    """|error| over the standard uncertainty of the wake deflection, one per shot."""
+    return np.array([abs(r["wake_deg"] - r["wake_true_deg"])
+                     / (r["wake_uncertainty_deg"] / WAKE_COVERAGE_K)
+                     for r in records if r["family"] == family and r["side"] == "upper"
+                     and r.get("wake_deg") is not None and r["wake_uncertainty_deg"] > 0])
+
+
+def wake_tables(records: list[dict]) -> list[str]:
+    """The wake deflection's error and coverage per family, and its calibration both ways
+    (records of versions before 0.3.2 have no wake: nothing)."""
+    shots = [r for r in records if r["side"] == "upper" and "wake_true_deg" in r]
+    if not shots:
+        return []
+    lines = ["", (f"Wake deflection (one per shot; stated coverage {COVERAGE:.0%}, uncertainty = "
+                  f"{WAKE_COVERAGE_K:g} standard uncertainties):"), "",
+             ("| family | shots | measured | median abs error (deg) | max (deg) | median "
+              "uncertainty (deg) | coverage |"), "|---|---|---|---|---|---|---|"]
+    for family in ("kinematic", "physical"):
+        fam = [r for r in shots if r["family"] == family]
+        got = [r for r in fam if r["wake_deg"] is not None]
+        if not got:
+            continue
+        errors = np.abs([r["wake_deg"] - r["wake_true_deg"] for r in got])
+        covered = np.mean(errors <= [r["wake_uncertainty_deg"] for r in got])
+        lines.append(f"| {family} | {len(fam)} | {len(got)} | {np.median(errors):.2f} | "
+                     f"{errors.max():.2f} | "
+                     f"{np.median([r['wake_uncertainty_deg'] for r in got]):.2f} | {covered:.0%} |")
+    if not _both_families(shots):
+        return lines
+    lines += ["", "| tuned on | factor | coverage on the other family |", "|---|---|---|"]
+    for tuned, other in (("kinematic", "physical"), ("physical", "kinematic")):
+        k = float(np.quantile(wake_ratios(shots, tuned), COVERAGE, method="higher"))
+        lines.append(f"| {tuned} | {k:.2f} | {np.mean(wake_ratios(shots, other) <= k):.0%} |")
+    return lines
 
 
 def main() -> None:

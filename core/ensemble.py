@@ -195,11 +195,12 @@ def condition_sides(pairs, common: CommonFrame, field, singles=None) -> dict[str
         of their number joins the uncertainty (as a standard uncertainty, "launches").
     """
     from core.separation import COVERAGE_K, BallFrame, fit_shots_side
-    from core.wake import wake_deflection
+    from core.wake import wake_direction
 
     ball = BallFrame(common.center_px, common.radius_px, (0.0, 0.0), common.flight_deg,
                      common.stream_px)
-    deflection = wake_deflection(field, (0.0, 0.0), ball) or 0.0
+    wake = wake_direction(field, (0.0, 0.0), ball)
+    deflection = 0.0 if wake is None else wake.deflection_deg
     frames = [(a, b) for a, b, _unseen in pairs]
     sides = {}
     for side in SIDES:

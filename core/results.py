@@ -142,6 +142,8 @@ class SeparationResult:
     lower: SideProposal
     wake_deflection_deg: float | None = None  # wake centreline relative to the flight axis
     wake_state: str = "undetermined"
+    # the deflection's expanded uncertainty (deg; core.wake.WAKE_COVERAGE_K standard ones)
+    wake_deflection_uncertainty_deg: float | None = None
 
 
 def finite_or_none(value):

@@ -45,7 +45,7 @@ from core.near_wall import (
 )
 from core.results import SeparationResult, SideProposal, VectorField
 from core.side_fit import PRIOR_LEAVE_DEG, Fit, SideProblem, refine
-from core.wake import wake_deflection, wake_state
+from core.wake import wake_direction, wake_state
 
 #: Band along the outline where the layer is fitted: first gap (px) outside the outline; the
 #: last one is ``BAND_DEPTH`` times the prior's upper thickness (twice its median), within
@@ -193,9 +193,9 @@ def propose_separation(
     """
     # a held ball (tunnel): the lab frame is the ball frame
     moving = math.hypot(*ball.displacement_px) >= 0.5 * ball.stream
-    deflection = wake_deflection(lab_field, (0.0, 0.0), ball, lab_frame=moving)
+    wake = wake_direction(lab_field, (0.0, 0.0), ball, lab_frame=moving)
     # each layer turns toward the wake's direction (on the lower side it points away from it)
-    toward = 0.0 if deflection is None else deflection
+    toward = 0.0 if wake is None else wake.deflection_deg
 
     def fit(side):
         return fit_side(frame_a, frame_b, ball, fine, fine_origin_px, side,
@@ -212,9 +212,11 @@ def propose_separation(
         else:
             sides = {side: fit(side) for side in names}
     if sides["upper"].angle_deg is None and sides["lower"].angle_deg is None:
-        deflection = None
+        wake = None
     state = wake_state(sides["upper"], sides["lower"])
-    return SeparationResult(sides["upper"], sides["lower"], deflection, state)
+    return SeparationResult(
+        sides["upper"], sides["lower"], None if wake is None else wake.deflection_deg, state,
+        wake_deflection_uncertainty_deg=None if wake is None else wake.uncertainty_deg)
 
 
 # --- the fit of one side ---------------------------------------------------------------------

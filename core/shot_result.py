@@ -246,7 +246,8 @@ def _separation_summary(sep: SeparationResult | None) -> dict:
         empty = dataclass_dict(SideProposal(None, reason="no ball"))
         return {
             "upper_deg": None, "lower_deg": None, "upper": empty, "lower": empty,
-            "wake_deflection_deg": None, "wake_state": "undetermined",
+            "wake_deflection_deg": None, "wake_deflection_uncertainty_deg": None,
+            "wake_state": "undetermined",
         }
     return {
         "upper_deg": finite_or_none(sep.upper.angle_deg),
@@ -256,5 +257,6 @@ def _separation_summary(sep: SeparationResult | None) -> dict:
         "upper": dataclass_dict(sep.upper),
         "lower": dataclass_dict(sep.lower),
         "wake_deflection_deg": finite_or_none(sep.wake_deflection_deg),
+        "wake_deflection_uncertainty_deg": finite_or_none(sep.wake_deflection_uncertainty_deg),
         "wake_state": sep.wake_state,
     }

@@ -132,6 +132,7 @@ def _separation(data: dict | None) -> SeparationResult:
         lower=_side(data, "lower"),
         wake_deflection_deg=data.get("wake_deflection_deg"),
         wake_state=_wake_state(data.get("wake_state")),
+        wake_deflection_uncertainty_deg=data.get("wake_deflection_uncertainty_deg"),
     )
 
 

@@ -51,6 +51,7 @@ def test_table_command_writes_one_row_per_shot(session_path, tmp_path, capsys):
     assert s3["state"] == "unprocessed" and s3["upper_proposed_deg"] == ""
     assert s3["review_status"] == "to review" and s3["wake_state"] == ""
     assert s0["upper_uncertainty_deg"] == "1.5" and s0["wake_deflection_deg"] == "4"
+    assert s0["wake_deflection_uncertainty_deg"] == "1.2"
     assert s0["seam_deg"] == "0" and s0["dt_s"] == "2e-05" and s0["notes"] == "shot 0"
 
 
@@ -61,8 +62,8 @@ def test_an_unusable_shot_reports_no_wake(session_path, tmp_path, capsys):
     out = tmp_path / "picks.csv"
     assert main(["table", str(session_path), "-o", str(out)]) == 0
     s2 = _read(out)["S2"]
-    assert (s2["wake_deflection_deg"], s2["wake_state"], s2["review_status"]) == (
-        "", "", "unusable")
+    assert (s2["wake_deflection_deg"], s2["wake_deflection_uncertainty_deg"], s2["wake_state"],
+            s2["review_status"]) == ("", "", "", "unusable")
     with Session.open(session_path) as s:
         assert s["S2"].summary.separation.wake_deflection_deg == 4.0  # kept in the session
         s.set_pick("S2", status="to review", who="ann")

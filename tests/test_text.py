@@ -43,6 +43,9 @@ def test_the_words_and_number_formats():
     assert flight_text(Flight(90.0, None, (0.0, -1.0), "override")) == (
         "90.0° (override), speed unknown (needs dt and a scale)")
     assert wake_text(SUMMARY.separation) == "undetermined, deflected -3.0° from the flight axis"
+    with_uncertainty = SeparationResult(SideProposal(None), SideProposal(None), -3.04,
+                                        wake_deflection_uncertainty_deg=1.26)
+    assert wake_text(with_uncertainty) == "undetermined, deflected -3.0° ± 1.3° from the flight axis"
     assert wake_text(SeparationResult(SideProposal(None), SideProposal(None))) == "undetermined"
     assert vectors_text(SUMMARY.vectors) == (
         "90 valid, 6 replaced, 4 masked of 100 (32 px windows, 16 px apart)")

@@ -159,6 +159,8 @@ MEASURED = (
     Column("wake_deflection_deg", "Wake", ShotRecord.wake_deflection_deg,
            "wake deflection from the flight axis, deg, + toward the upper side (none for an "
            "unusable shot, as in the table)", "angle"),
+    Column("wake_deflection_uncertainty_deg", "± W", ShotRecord.wake_deflection_uncertainty_deg,
+           "uncertainty of the wake deflection, deg (95 %, as the angles')", "angle"),
 )
 MEASURED_BY_NAME = {column.name: column for column in MEASURED}
 

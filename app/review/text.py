@@ -156,6 +156,8 @@ def wake_text(separation: SeparationResult, decimals: int = 1, state: str | None
     if separation.wake_deflection_deg is None:
         return state
     deflection = angle_text(separation.wake_deflection_deg, decimals=decimals)
+    if separation.wake_deflection_uncertainty_deg is not None:
+        deflection += " " + uncertainty_text(separation.wake_deflection_uncertainty_deg, decimals)
     return f"{state}, deflected {deflection} from the flight axis"
 
 

@@ -149,9 +149,17 @@ class ShotRecord:
     def wake_deflection_deg(self) -> float | None:
         """The measured wake deflection as a result to report: None for a shot marked
         unusable (its numbers are not results) or not measured."""
+        return self._wake("wake_deflection_deg")
+
+    def wake_deflection_uncertainty_deg(self) -> float | None:
+        """The wake deflection's expanded uncertainty, as :meth:`wake_deflection_deg`; None
+        also for results of versions that did not give one (before 0.3.2)."""
+        return self._wake("wake_deflection_uncertainty_deg")
+
+    def _wake(self, name: str) -> float | None:
         if self.summary is None or self.pick.status == ReviewStatus.UNUSABLE:
             return None
-        return self.summary.separation.wake_deflection_deg
+        return getattr(self.summary.separation, name)
 
 
 def _checked_side(side: str) -> str:

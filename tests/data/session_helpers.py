@@ -61,7 +61,7 @@ def fake_result(settings: ShotSettings, upper_deg: float | None = 5.0,
     separation = SeparationResult(
         upper=SideProposal(upper_deg, 1.5, 0.8, "" if upper_deg is not None else "no layer"),
         lower=SideProposal(lower_deg, 2.0, 0.7, "" if lower_deg is not None else "no layer"),
-        wake_deflection_deg=4.0, wake_state="deflected down",
+        wake_deflection_deg=4.0, wake_state="deflected down", wake_deflection_uncertainty_deg=1.2,
     )
     u_m_s = np.full(shape, 8.0)
     return ShotResult(
