@@ -15,7 +15,7 @@ import pytest
 from core.geometry import flight_unit, side_normal
 from core.results import VectorField
 from core.separation import BallFrame
-from core.wake import WAKE_COVERAGE_K, wake_direction
+from core.wake import wake_direction
 
 RADIUS = 60.0
 CENTRE = (400.0, 300.0)
@@ -97,7 +97,6 @@ def test_slope_moves_as_its_first_order_influence():
         change[7] * line.along[7] * line.residual[7] / line.spread, rel=1e-3)
     assert line.moved_by(change, everywhere) == pytest.approx(abs(refit.slope - line.slope),
                                                               rel=1e-3)
-    assert WAKE_COVERAGE_K == pytest.approx(2.0)  # the normal distribution's 95 %
 
 
 def test_no_wake_without_enough_slow_air():
