@@ -345,6 +345,10 @@ def report_rows(session_path: Path, truth_csv: Path) -> list[dict]:
                 row[f"{side}_proposed"] = record.proposed_deg(side)
                 row[f"{side}_uncertainty"] = record.uncertainty_deg(side)
                 row[f"{side}_reason"] = record.summary.side(side).reason if record.summary else ""
+            row["wake_true"] = float(truth[shot_id]["wake_deflection_true_deg"])
+            separation = record.summary.separation if record.summary else None  # as measured
+            row["wake"] = separation and separation.wake_deflection_deg
+            row["wake_uncertainty"] = separation and separation.wake_deflection_uncertainty_deg
             rows.append(row)
     return rows
 
@@ -361,9 +365,9 @@ def _look(truth_row: dict) -> str:
 def report_markdown(rows: list[dict], how: str) -> str:
     """The proposals-against-truth table and its tally, as Markdown."""
     lines = [README_START, "", how, "",
-             "| shot | seam | ball look | upper: truth | proposed | lower: truth | proposed |",
-             "|---|---|---|---|---|---|---|"]
-    sides = within = 0
+             ("| shot | seam | ball look | upper: truth | proposed | lower: truth | proposed "
+              "| wake: truth | measured |"), "|---|---|---|---|---|---|---|---|---|"]
+    sides = within = wakes = wakes_within = 0
     errors = []
     failed: dict[str, list[str]] = {}  # failure -> shots
     for row in rows:
@@ -377,13 +381,19 @@ def report_markdown(rows: list[dict], how: str) -> str:
                 error = abs(row[f"{side}_proposed"] - row[f"{side}_true"])
                 errors.append(error)
                 within += error <= (row[f"{side}_uncertainty"] or 0.0)
+        cells += [f"{row['wake_true']:+.1f}", _wake_cell(row)]
+        if row["wake"] is not None and row["wake_uncertainty"] is not None:
+            wakes += 1
+            wakes_within += abs(row["wake"] - row["wake_true"]) <= row["wake_uncertainty"]
         if row["failure"]:
             failed.setdefault(row["failure"], []).append(row["shot"])
         lines.append("| " + " | ".join(cells) + " |")
     total = 2 * len(rows)
     lines += ["", f"Proposals on {sides} of {total} sides; {within} of them within their stated "
               "uncertainty of the truth" + (f"; median distance {np.median(errors):.1f} deg, "
-                                            f"largest {max(errors):.1f} deg." if errors else ".")]
+                                            f"largest {max(errors):.1f} deg." if errors else "."),
+              "", f"Wake deflection (deg, + toward the upper side) measured on {wakes} shots, "
+              f"{wakes_within} of them within their stated uncertainty of the truth."]
     if failed:
         count = sum(len(shots) for shots in failed.values())
         lines += ["", f"Not measured ({count} shots):", ""]
@@ -398,6 +408,15 @@ def _proposal_cell(row: dict, side: str) -> str:
         return "failed" if row["failure"] else f"none ({row[f'{side}_reason'] or 'no reason'})"
     mark = "" if abs(proposed - row[f"{side}_true"]) <= (row[f"{side}_uncertainty"] or 0) else " *"
     return f"{proposed:+.1f} ± {row[f'{side}_uncertainty'] or 0:.1f}{mark}"
+
+
+def _wake_cell(row: dict) -> str:
+    if row["wake"] is None:
+        return "—"
+    if row["wake_uncertainty"] is None:
+        return f"{row['wake']:+.1f}"
+    mark = "" if abs(row["wake"] - row["wake_true"]) <= row["wake_uncertainty"] else " *"
+    return f"{row['wake']:+.1f} ± {row['wake_uncertainty']:.1f}{mark}"
 
 
 def write_report(readme: Path, table: str) -> None:

@@ -306,7 +306,9 @@ def test_report_table_measures_proposals_against_truth(small_demo, small_recipe,
     table = recipe.report_markdown(rows, "measured here")
     for shot_id in DEMO_SUBSET:
         assert f"\n| {shot_id} |" in table
-    assert "Proposals on" in table
+    assert "Proposals on" in table and "Wake deflection (deg" in table
+    assert all(row["wake_true"] == float(truth[row["shot"]]["wake_deflection_true_deg"])
+               for row in rows)
     readme = tmp_path / "README.md"
     readme.write_text(f"before\n{recipe.README_START}\nold\n{recipe.README_END}\nafter\n",
                       encoding="utf-8")
