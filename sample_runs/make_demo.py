@@ -392,8 +392,8 @@ def report_markdown(rows: list[dict], how: str) -> str:
     lines += ["", f"Proposals on {sides} of {total} sides; {within} of them within their stated "
               "uncertainty of the truth" + (f"; median distance {np.median(errors):.1f} deg, "
                                             f"largest {max(errors):.1f} deg." if errors else "."),
-              "", f"Wake deflection (deg, + toward the upper side) measured on {wakes} shots, "
-              f"{wakes_within} of them within their stated uncertainty of the truth."]
+              "", (f"Wake deflection (deg, + toward the upper side) measured on {wakes} shots, "
+                   f"{wakes_within} of them within their stated uncertainty of the truth.")]
     if failed:
         count = sum(len(shots) for shots in failed.values())
         lines += ["", f"Not measured ({count} shots):", ""]
