@@ -218,10 +218,11 @@ def tables(records: list[dict]) -> str:
 
 def wake_ratios(records: list[dict], family: str) -> np.ndarray:
     """|error| over the standard uncertainty of the wake deflection, one per shot."""
+    # an uncertainty of 0 (a perfectly symmetric wake) covers nothing: its ratio is huge
     return np.array([abs(r["wake_deg"] - r["wake_true_deg"])
-                     / (r["wake_uncertainty_deg"] / WAKE_COVERAGE_K)
+                     / max(r["wake_uncertainty_deg"] / WAKE_COVERAGE_K, 1e-9)
                      for r in records if r["family"] == family and r["side"] == "upper"
-                     and r.get("wake_deg") is not None and r["wake_uncertainty_deg"] > 0])
+                     and r.get("wake_deg") is not None])
 
 
 def wake_tables(records: list[dict]) -> list[str]:

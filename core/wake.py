@@ -76,8 +76,8 @@ def wake_direction(
     mirrored = _value_at(keeps_up, field, cx - m_along * fx + m_across * nx,
                          cy - m_along * fy + m_across * ny)
     asymmetric = 0.5 * (keeps_up[wake] - mirrored) * fade[wake]  # the fade is ours, not the wake's
-    spacing = _grid_step(field)
-    per_independent = (r / spacing) ** 2 if spacing else 1.0
+    steps = [abs(step) for step in _grid_steps(field) if step]
+    per_independent = (r / np.mean(steps)) ** 2 if steps else 1.0
     slope_sd = math.sqrt(per_independent) * line.moved_by(asymmetric, np.isfinite(asymmetric))
     sigma_deg = math.degrees(slope_sd / (1.0 + line.slope**2))  # d atan(s) = ds / (1 + s^2)
     return WakeDirection(round(math.degrees(math.atan(line.slope)), 2),
@@ -128,12 +128,11 @@ class _Centreline:
         return float(math.sqrt(np.sum(moves * moves)) / self.spread)
 
 
-def _grid_step(field: VectorField) -> float | None:
-    """The vectors' spacing (px), from the grid's first row and column."""
-    steps = [abs(float(field.x_px[0, 1] - field.x_px[0, 0])) if field.x_px.shape[1] > 1 else 0,
-             abs(float(field.y_px[1, 0] - field.y_px[0, 0])) if field.y_px.shape[0] > 1 else 0]
-    steps = [s for s in steps if s > 0]
-    return float(np.mean(steps)) if steps else None
+def _grid_steps(field: VectorField) -> tuple[float, float]:
+    """The grid's steps along x and y (px), from its first row and column (0 for one vector)."""
+    step_x = float(field.x_px[0, 1] - field.x_px[0, 0]) if field.x_px.shape[1] > 1 else 0.0
+    step_y = float(field.y_px[1, 0] - field.y_px[0, 0]) if field.y_px.shape[0] > 1 else 0.0
+    return step_x, step_y
 
 
 def _value_at(values: np.ndarray, field: VectorField, x: np.ndarray, y: np.ndarray):
@@ -142,8 +141,7 @@ def _value_at(values: np.ndarray, field: VectorField, x: np.ndarray, y: np.ndarr
     from scipy.ndimage import map_coordinates
 
     x0, y0 = float(field.x_px[0, 0]), float(field.y_px[0, 0])
-    step_x = float(field.x_px[0, 1] - x0) if values.shape[1] > 1 else 1.0
-    step_y = float(field.y_px[1, 0] - y0) if values.shape[0] > 1 else 1.0
+    step_x, step_y = (step or 1.0 for step in _grid_steps(field))
     return map_coordinates(values, [(y - y0) / step_y, (x - x0) / step_x], order=1,
                            mode="constant", cval=np.nan)
 
