@@ -33,6 +33,12 @@ from core.results import VectorField
 POLAR_STEP_PX = 0.25
 #: Gap (px) up to which the band's rows are finest; beyond it they are twice as far apart.
 FINE_GAP_PX = 8.0
+#: Share of a band's samples at one angle left out (glare) from which the band counts as
+#: hidden there: the glare then reaches across its depth and the fit sees nothing of the layer.
+#: Where it covers only the first rows, the layer further out still places the separation (on
+#: the physical family, bright balls with the wall's first 7-12 px masked over long arcs were
+#: picked within 2.3 deg).
+HIDDEN_SHARE = 0.9
 
 
 @dataclass(frozen=True)
@@ -140,6 +146,12 @@ class NearWallBand:
         self._weight = self._weights()
         self.kept_fraction = float(np.mean(self._weight))
 
+    def wall_hidden(self) -> np.ndarray:
+        """``(Nphi,)`` bool: at which of the band's angles glare reaches across its depth (at
+        least ``HIDDEN_SHARE`` of the samples at that angle are left out)."""
+        weight = self._weight if self._weight is not None else self._weights()
+        return weight.reshape(self.shape).mean(axis=1) <= 1.0 - HIDDEN_SHARE
+
     def _weights(self) -> np.ndarray:
         """1 for the samples that count, 0 for those left out (at the samples' own places)."""
         if self._keep_picture is None:
@@ -205,6 +217,10 @@ class JointBand:
 
     def view(self, phi_deg=None, *, every: int = 1) -> JointBand:
         return JointBand([b.view(phi_deg, every=every) for b in self.bands])
+
+    def wall_hidden(self) -> np.ndarray:
+        """Hidden in every shot: one shot's glare does not hide what the others show."""
+        return np.logical_and.reduce([b.wall_hidden() for b in self.bands])
 
     def residual(self, u_t: np.ndarray, u_r: np.ndarray) -> np.ndarray:
         return np.concatenate([b.residual(u_t, u_r) for b in self.bands], axis=-1)

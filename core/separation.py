@@ -31,6 +31,7 @@ from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, replace
 
 import numpy as np
+from scipy import ndimage
 from threadpoolctl import threadpool_limits
 
 from core.layer_model import PARAM_NAMES
@@ -325,12 +326,23 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
     budget["other minimum"] = _other_minima(angles, scores, phi_s)
     standard = math.sqrt(sum(v * v for v in budget.values()))
     uncertainty = COVERAGE_K * standard
+    remarks = []
+    hidden = _hidden_wall_reach(problem, phi_s, uncertainty)
+    if hidden is not None:
+        reach, (first, last) = hidden
+        if reach > uncertainty:
+            # the expanded uncertainty reaches across the hidden stretch: its share of the
+            # budget is what the other sources leave of that reach
+            budget["hidden wall"] = math.sqrt((reach / COVERAGE_K) ** 2 - standard**2)
+            uncertainty = reach
+        remarks.append(f"glare hides the wall from {first:.0f}° to {last:.0f}°: the layer may "
+                       "leave it anywhere there")
     gain = 1.0 - start_cost / attached_cost
     quality = float(np.clip(gain / 0.2, 0.0, 1.0) * np.clip(2.0 / max(uncertainty, 1e-3), 0, 1))
     departure = math.degrees(math.atan(best.params[1]))
-    remark = ""
     if departure > PRIOR_LEAVE_DEG[1]:
-        remark = "the layer leaves unusually steeply: check the proposal"
+        remarks.append("the layer leaves unusually steeply: check the proposal")
+    remark = "; ".join(remarks)
     layer = {name: round(float(v), 5) for name, v in zip(PARAM_NAMES, best.params, strict=True)}
     layer.update(final_deg=round(final_deg, 3), band_first_gap_px=BAND_FIRST_GAP_PX,
                  band_last_gap_px=float(problem.band.gap_grid[-1]),
@@ -339,6 +351,32 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
                         departure_deg=round(departure, 1),
                         layer_px=round(math.exp(best.params[3]), 2),
                         budget={k: round(float(v), 3) for k, v in budget.items()}, layer=layer)
+
+
+def _hidden_wall_reach(problem: SideProblem, phi_s: float, uncertainty: float):
+    """Where glare hides the band next to the proposal across its depth
+    (:meth:`NearWallBand.wall_hidden`), the layer may leave the wall anywhere under the glare
+    and the data cannot say where: the expanded uncertainty (deg) that reaches across every
+    hidden stretch within the proposal's reach (growing the reach as stretches join; at least
+    ``uncertainty``), with the first and last hidden angle; None when no hidden stretch lies
+    within ``uncertainty`` of ``phi_s``."""
+    phi = problem.band.phi_grid
+    hidden = problem.band.wall_hidden()
+    if not hidden.any():
+        return None
+    labels, count = ndimage.label(hidden)
+    stretches = [(float(phi[labels == k].min()), float(phi[labels == k].max()))
+                 for k in range(1, count + 1)]
+    reach = uncertainty
+    while True:
+        near = [s for s in stretches if s[1] >= phi_s - reach and s[0] <= phi_s + reach]
+        wider = max([reach] + [max(phi_s - s[0], s[1] - phi_s) for s in near])
+        if wider == reach:
+            break
+        reach = wider
+    if not near:
+        return None
+    return reach, (min(s[0] for s in near), max(s[1] for s in near))
 
 
 def _other_minima(angles, scores, chosen: float) -> float:

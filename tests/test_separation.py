@@ -11,6 +11,8 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
+from core.conditioning import glare_mask
+from core.geometry import angle_of_point
 from core.layer_model import SideGeometry, centre_offset, dividing_line_px, profile, side_flow
 from core.results import SideProposal
 from core.separation import (
@@ -130,6 +132,30 @@ def test_a_near_tangential_layer_reports_a_wide_uncertainty():
     shallow, steep = result.separation.upper, result.separation.lower
     assert shallow.uncertainty_deg > 2.0 * steep.uncertainty_deg
     assert abs(shallow.angle_deg - truth.upper_deg) <= shallow.uncertainty_deg
+
+
+def test_glare_over_the_separation_point_widens_the_uncertainty_across_it():
+    # a glint where the sheet meets a white ball, right where the lower layer leaves the wall:
+    # the saturated pixels hide the wall there (common practice: glare is masked, not read),
+    # so the pick may be anywhere under them and its uncertainty must reach across them
+    frames = ball_shot((600, 800), radius_px=150.0, flight_deg=180.0, upper_deg=10.0,
+                       lower_deg=0.0, leave_deg=(12.0, 12.0), layer_px=2.5, surface="bright",
+                       glint=True, bits=8, seed=1)
+    result, truth = _measure(frames)
+    lower = result.separation.lower
+    assert "glare hides the wall" in lower.reason
+    assert abs(lower.angle_deg - truth.lower_deg) <= lower.uncertainty_deg
+    # the arc the glint hides deep into the air (14 px from the outline), from the masked
+    # pixels
+    glare = glare_mask(frames[0])
+    ys, xs = np.nonzero(glare)
+    centre = truth.center_a_px
+    outside = np.abs(np.hypot(xs - centre[0], ys - centre[1]) - 150.0 - 14.0) <= 1.0
+    arc = [angle_of_point(centre, truth.flight_deg, "lower", (x, y))
+           for x, y in zip(xs[outside], ys[outside], strict=True)]
+    assert lower.angle_deg - lower.uncertainty_deg <= min(arc) < max(arc) \
+        <= lower.angle_deg + lower.uncertainty_deg
+    assert result.separation.upper.reason == ""
 
 
 def test_the_budget_adds_up_to_the_uncertainty():
