@@ -154,11 +154,14 @@ def _wants_ball(settings: ShotSettings) -> bool:
 
 def _balls(frame_a, frame_b, settings: ShotSettings):
     """The ball in both frames: the analyst's circles where set, else found (near the other)."""
-    from core.ball import find_ball
+    from core.ball import find_ball, find_balls
 
     hint = _expected_radius_px(settings)
     given = [None if c is None else hand_ball(c, frame_a.shape)
              for c in (settings.circle_a_px, settings.circle_b_px)]
+    if given == [None, None]:
+        return find_balls(frame_a, frame_b, radius_hint_px=hint,
+                          threads=min(2, settings.piv.threads()))
     ball_a = given[0] or find_ball(frame_a, radius_hint_px=hint, name="frame A", near=given[1])
     ball_b = given[1] or find_ball(frame_b, radius_hint_px=hint, name="frame B", near=ball_a)
     return ball_a, ball_b

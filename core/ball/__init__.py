@@ -48,7 +48,7 @@ from core.ball.flight import (
     flight_from_stream,
     match_ball_image,
 )
-from core.ball.outline import find_ball
+from core.ball.outline import find_ball, find_balls
 from core.ball.sizes import ball_mask, nominal_diameter_mm, scale_from_ball
 
 __all__ = [
@@ -62,6 +62,7 @@ __all__ = [
     "ball_displacement",
     "ball_mask",
     "find_ball",
+    "find_balls",
     "flight_from_balls",
     "flight_from_stream",
     "match_ball_image",

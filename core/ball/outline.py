@@ -66,26 +66,79 @@ def find_ball(
         When no round particle-free region of plausible size exists ("no ball found"), or too
         little of its outline is visible.
     """
-    image = np.asarray(frame, dtype=np.float32)
-    if image.ndim != 2 or min(image.shape) < 16:
-        raise WakelineError(f"{name}: not a 2-D frame large enough to hold a ball")
-    level = float(image.max()) if saturation is None else float(saturation)
+    image, level = _frame(frame, name, saturation)
     if near is not None:
         # the other frame's circle: the ball moved a few pixels, well within the first band;
         # a fit that misses (a faster ball) falls back on the search
         try:
             fit = _fine_circle(image, *near.center_px, near.radius_px, 4, level, name)
-            moved = math.hypot(fit.center_px[0] - near.center_px[0],
-                               fit.center_px[1] - near.center_px[1])
-            if (moved < _first_band(near.radius_px, 4) and fit.arc_share >= POOR_ARC_SHARE
-                    and abs(fit.radius_px - near.radius_px) < 0.03 * near.radius_px):
+            if _same_ball(fit, near, 4):
                 return fit
         except WakelineError:
             pass
+    return _fine_circle(image, *_coarse_start(image, radius_hint_px, name), level, name)
+
+
+def find_balls(frame_a: np.ndarray, frame_b: np.ndarray, *, radius_hint_px: float | None = None,
+               threads: int = 1) -> tuple[BallFit, BallFit]:
+    """The ball in both frames of a pair (:func:`find_ball`; errors name "frame A" / "frame B").
+
+    Both outlines are fitted from frame A's coarse circle (the ball moves a few pixels between
+    the frames, well within the first band), with two threads at once (the fits' interpolation
+    and filters release the GIL, so the pair then takes little more than one frame's fit on a
+    large frame); the circles are the same whichever the thread count. Frame B's fit is held
+    to frame A's as ``near`` holds it (:func:`find_ball`), and fitted again from frame A's
+    circle when it misses (a fast ball).
+    """
+    image_a, level_a = _frame(frame_a, "frame A")
+    image_b, level_b = _frame(frame_b, "frame B")
+    start = _coarse_start(image_a, radius_hint_px, "frame A")
+
+    def fit_b():
+        try:
+            return _fine_circle(image_b, *start, level_b, "frame B")
+        except WakelineError:
+            return None
+
+    if threads >= 2:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(1) as pool:
+            future = pool.submit(fit_b)
+            ball_a = _fine_circle(image_a, *start, level_a, "frame A")
+            ball_b = future.result()
+    else:
+        ball_a = _fine_circle(image_a, *start, level_a, "frame A")
+        ball_b = fit_b()
+    if ball_b is None or not _same_ball(ball_b, ball_a, start[3]):
+        ball_b = find_ball(frame_b, radius_hint_px=radius_hint_px, name="frame B", near=ball_a)
+    return ball_a, ball_b
+
+
+def _frame(frame, name: str, saturation: float | None = None) -> tuple[np.ndarray, float]:
+    """The frame as float32 and its saturation level (default its maximum)."""
+    image = np.asarray(frame, dtype=np.float32)
+    if image.ndim != 2 or min(image.shape) < 16:
+        raise WakelineError(f"{name}: not a 2-D frame large enough to hold a ball")
+    return image, float(image.max()) if saturation is None else float(saturation)
+
+
+def _coarse_start(image: np.ndarray, radius_hint_px: float | None, name: str):
+    """The fine fit's start: the coarse circle (its radius replaced by the hint when more than
+    25 % off it) and its block size."""
     cx, cy, r, block = coarse_circle(image, radius_hint_px, name)
     if radius_hint_px is not None:
         r = radius_hint_px if abs(r - radius_hint_px) > 0.25 * radius_hint_px else r
-    return _fine_circle(image, cx, cy, r, block, level, name)
+    return cx, cy, r, block
+
+
+def _same_ball(fit: BallFit, other: BallFit, block: int) -> bool:
+    """``fit`` is the ball of ``other``'s frame moved by less than the first band, with enough
+    of its outline seen and its radius within 3 %."""
+    moved = math.hypot(fit.center_px[0] - other.center_px[0],
+                       fit.center_px[1] - other.center_px[1])
+    return (moved < _first_band(other.radius_px, block) and fit.arc_share >= POOR_ARC_SHARE
+            and abs(fit.radius_px - other.radius_px) < 0.03 * other.radius_px)
 
 
 # --- fine: the outline from the best cue the frame offers ----------------------------------
