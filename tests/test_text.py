@@ -133,3 +133,28 @@ def test_a_result_made_by_an_earlier_uncertainty_method_is_named():
     assert "Reprocess this shot" in outdated_uncertainty_note(record)
     assert outdated_uncertainty_note(with_(record, software_version="0.3.0")) == ""
     assert outdated_uncertainty_note(with_(record, summary=None)) == ""
+
+
+def test_a_remark_on_a_proposal_made_is_shown_not_only_hovered(qtbot):
+    # glare hiding the wall widens a proposal's uncertainty; the window's notes and the sheet's
+    # warnings say why, beside the measurement's own warnings
+    from app.qt.readout import ReadoutPanel
+    from app.review.text import proposal_remarks
+    from app.sheet.shot_panel import number_rows
+
+    remark = "glare hides the wall from -19° to 19°: the layer may leave it anywhere there"
+    summary = ShotSummary(SeparationResult(SideProposal(5.0, 30.0, 0.1, remark),
+                                           SideProposal(None, reason="no separated layer")),
+                          warnings=["first warning"])
+    assert proposal_remarks(summary) == [f"upper side: {remark}"]
+    assert proposal_remarks(None) == []
+    record = ShotRecord("t1", {}, state="processed", summary=summary,
+                        pick=Pick(status="to review"))
+    panel = ReadoutPanel()
+    qtbot.addWidget(panel)
+    panel.show_record(record)
+    assert f"upper side: {remark}" in panel.notes.text()
+    assert "first warning" in panel.notes.text()
+    assert "no separated layer" not in panel.notes.text()  # said where the angle would be
+    rows = {row.label: row.value for row in number_rows(record)}
+    assert rows["warnings"] == f"upper side: {remark}; first warning"

@@ -35,6 +35,7 @@ from app.review.text import (
     direction_text,
     geometry_text,
     outdated_uncertainty_note,
+    proposal_remarks,
     quality_meaning,
     quality_text,
     reviewed_wake_text,
@@ -355,8 +356,8 @@ class ReadoutPanel(QWidget):
 
     def _show_notes(self, record) -> None:
         summary = record.summary
-        warnings = [] if summary is None else [w for w in summary.warnings
-                                               if w not in summary.ball_warnings]
+        warnings = proposal_remarks(summary) + ([] if summary is None else [
+            w for w in summary.warnings if w not in summary.ball_warnings])
         outdated = outdated_uncertainty_note(record)
         if outdated:
             warnings.append(outdated)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import math
 
+from core.geometry import SIDES
 from core.results import Flight, SeparationResult, SideProposal, uncertainty_outdated
 from core.store import ShotRecord
 from core.summary import ShotSummary, VectorCounts
@@ -66,6 +67,15 @@ def proposal_text(side: SideProposal, decimals: int = 1) -> str:
     if side.quality is not None:
         out += f", quality {quality_text(side.quality)}"
     return out
+
+
+def proposal_remarks(summary: ShotSummary | None) -> list[str]:
+    """What the machine said of proposals it made (glare hiding the wall, a steep departure),
+    ``upper side: ...``, one per side that has one."""
+    if summary is None:
+        return []
+    return [f"{side} side: {p.reason}" for side in SIDES
+            if (p := summary.side(side)).angle_deg is not None and p.reason]
 
 
 def uncertainty_meaning(side: SideProposal) -> str:

@@ -18,6 +18,7 @@ from app.review.text import (
     SHEET_DECIMALS,
     flight_text,
     outdated_uncertainty_note,
+    proposal_remarks,
     reviewed_wake_text,
     reynolds_text,
     vectors_text,
@@ -436,8 +437,8 @@ def number_rows(record, with_metadata: bool = False, checks=()) -> list[NumberRo
     if outdated:
         rows.append(NumberRow("uncertainty", outdated,
                               colours.STATUS_COLOURS[ReviewStatus.ADJUSTED]))
-    warnings = () if summary is None else [w for w in summary.warnings
-                                           if w not in summary.ball_warnings]  # with checks
+    warnings = proposal_remarks(summary) + ([] if summary is None else [
+        w for w in summary.warnings if w not in summary.ball_warnings])  # ball's: with checks
     if warnings:
         rows.append(NumberRow("warnings", "; ".join(warnings[:2]), colours.MUTED_INK))
     return rows
