@@ -150,7 +150,7 @@ class NearWallBand:
         """``(Nphi,)`` bool: at which of the band's angles glare reaches across its depth (at
         least ``HIDDEN_SHARE`` of the samples at that angle are left out)."""
         weight = self._weight if self._weight is not None else self._weights()
-        return weight.reshape(self.shape).mean(axis=1) <= 1.0 - HIDDEN_SHARE
+        return np.mean(weight.reshape(self.shape) == 0.0, axis=1) >= HIDDEN_SHARE
 
     def _weights(self) -> np.ndarray:
         """1 for the samples that count, 0 for those left out (at the samples' own places)."""
@@ -219,7 +219,8 @@ class JointBand:
         return JointBand([b.view(phi_deg, every=every) for b in self.bands])
 
     def wall_hidden(self) -> np.ndarray:
-        """Hidden in every shot: one shot's glare does not hide what the others show."""
+        """Hidden in every shot: one shot's glare does not hide what the others show. (The
+        ensemble's bands leave no glare out today, so none is hidden.)"""
         return np.logical_and.reduce([b.wall_hidden() for b in self.bands])
 
     def residual(self, u_t: np.ndarray, u_r: np.ndarray) -> np.ndarray:

@@ -329,14 +329,13 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
     remarks = []
     hidden = _hidden_wall_reach(problem, phi_s, uncertainty)
     if hidden is not None:
-        reach, (first, last) = hidden
+        reach, remark = hidden
         if reach > uncertainty:
             # the expanded uncertainty reaches across the hidden stretch: its share of the
             # budget is what the other sources leave of that reach
             budget["hidden wall"] = math.sqrt((reach / COVERAGE_K) ** 2 - standard**2)
             uncertainty = reach
-        remarks.append(f"glare hides the wall from {first:.0f}° to {last:.0f}°: the layer may "
-                       "leave it anywhere there")
+        remarks.append(remark)
     gain = 1.0 - start_cost / attached_cost
     quality = float(np.clip(gain / 0.2, 0.0, 1.0) * np.clip(2.0 / max(uncertainty, 1e-3), 0, 1))
     departure = math.degrees(math.atan(best.params[1]))
@@ -358,25 +357,37 @@ def _hidden_wall_reach(problem: SideProblem, phi_s: float, uncertainty: float):
     (:meth:`NearWallBand.wall_hidden`), the layer may leave the wall anywhere under the glare
     and the data cannot say where: the expanded uncertainty (deg) that reaches across every
     hidden stretch within the proposal's reach (growing the reach as stretches join; at least
-    ``uncertainty``), with the first and last hidden angle; None when no hidden stretch lies
-    within ``uncertainty`` of ``phi_s``."""
+    ``uncertainty``), and the remark naming the stretches; None when no hidden stretch lies
+    within ``uncertainty`` of ``phi_s`` (or ``uncertainty`` is not a number).
+
+    A stretch runs to the next angle the band sees on either side (one step of the band's
+    angles past its last hidden one), where the layer may already have left the wall.
+    """
+    if not math.isfinite(uncertainty):
+        return None
     phi = problem.band.phi_grid
     hidden = problem.band.wall_hidden()
     if not hidden.any():
         return None
+    step = float(phi[1] - phi[0]) if phi.size > 1 else 0.0
     labels, count = ndimage.label(hidden)
-    stretches = [(float(phi[labels == k].min()), float(phi[labels == k].max()))
-                 for k in range(1, count + 1)]
+    stretches = []
+    for k in range(1, count + 1):
+        inside = phi[labels == k]
+        stretches.append((float(inside[0]) - step, float(inside[-1]) + step))
     reach = uncertainty
     while True:
         near = [s for s in stretches if s[1] >= phi_s - reach and s[0] <= phi_s + reach]
         wider = max([reach] + [max(phi_s - s[0], s[1] - phi_s) for s in near])
-        if wider == reach:
+        if not wider > reach:
             break
         reach = wider
     if not near:
         return None
-    return reach, (min(s[0] for s in near), max(s[1] for s in near))
+    first, last = min(s[0] for s in near), max(s[1] for s in near)
+    at_end = " (to the band's end)" if first < phi[0] or last > phi[-1] else ""
+    return reach, (f"glare hides the wall from {round(first)}° to {round(last)}°{at_end}: the "
+                   "layer may leave it anywhere there")
 
 
 def _other_minima(angles, scores, chosen: float) -> float:

@@ -135,27 +135,75 @@ def test_a_near_tangential_layer_reports_a_wide_uncertainty():
 
 
 def test_glare_over_the_separation_point_widens_the_uncertainty_across_it():
-    # a glint where the sheet meets a white ball, right where the lower layer leaves the wall:
-    # the saturated pixels hide the wall there (common practice: glare is masked, not read),
-    # so the pick may be anywhere under them and its uncertainty must reach across them
-    frames = ball_shot((600, 800), radius_px=150.0, flight_deg=180.0, upper_deg=10.0,
-                       lower_deg=0.0, leave_deg=(12.0, 12.0), layer_px=2.5, surface="bright",
-                       glint=True, bits=8, seed=1)
+    # a glint where the sheet meets a white ball, right where the lower layer leaves the wall
+    # (a thick layer; 8-bit camera): the saturated pixels hide the wall there (common practice:
+    # glare is masked, not read), so the pick may be anywhere under them. This side was picked
+    # 19.8 deg early with 16.9 deg stated before the hidden wall was a budget entry
+    # (benchmarks/bench_separation.py's kinematic shot 44 of seed 11, to the digit: the pick
+    # there is chaotic, rounded values land it elsewhere)
+    frames = ball_shot((768, 1024), radius_px=187.3177385686872, flight_deg=183.70807652241191,
+                       upper_deg=24.316397437631814, lower_deg=-5.18552233053296,
+                       leave_deg=(15.440600964751743, 19.32944489867276),
+                       layer_px=4.387943858513065, wake_deflection_deg=-2.158683765195871,
+                       reverse_fraction=0.15953037021105765, spread_rate=0.24145850569808616,
+                       seed=344, surface="bright", rim=True, uneven_sheet=0.5195883154870913,
+                       bits=8, glint=True)
     result, truth = _measure(frames)
     lower = result.separation.lower
     assert "glare hides the wall" in lower.reason
+    assert lower.budget["hidden wall"] > 0.0
+    total = COVERAGE_K * math.sqrt(sum(v * v for v in lower.budget.values()))
+    assert lower.uncertainty_deg == pytest.approx(total, abs=0.01)
     assert abs(lower.angle_deg - truth.lower_deg) <= lower.uncertainty_deg
     # the arc the glint hides deep into the air (14 px from the outline), from the masked
-    # pixels
+    # pixels: the stated interval reaches across it
     glare = glare_mask(frames[0])
     ys, xs = np.nonzero(glare)
     centre = truth.center_a_px
-    outside = np.abs(np.hypot(xs - centre[0], ys - centre[1]) - 150.0 - 14.0) <= 1.0
+    outside = np.abs(np.hypot(xs - centre[0], ys - centre[1]) - truth.radius_px - 14.0) <= 1.0
     arc = [angle_of_point(centre, truth.flight_deg, "lower", (x, y))
            for x, y in zip(xs[outside], ys[outside], strict=True)]
     assert lower.angle_deg - lower.uncertainty_deg <= min(arc) < max(arc) \
         <= lower.angle_deg + lower.uncertainty_deg
-    assert result.separation.upper.reason == ""
+    assert "glare" not in result.separation.upper.reason
+
+
+class _Band:
+    """The parts of a band :func:`_hidden_wall_reach` reads: its angles and the hidden ones."""
+
+    def __init__(self, hidden_deg):
+        self.phi_grid = np.arange(-50.0, 80.5, 1.0)
+        self.hidden = np.zeros(self.phi_grid.size, dtype=bool)
+        for lo, hi in hidden_deg:
+            self.hidden |= (self.phi_grid >= lo) & (self.phi_grid <= hi)
+
+    def wall_hidden(self):
+        return self.hidden
+
+
+@pytest.mark.parametrize(("hidden_deg", "phi_s", "uncertainty", "reach", "remark"), [
+    ([], 0.0, 5.0, None, None),  # nothing hidden
+    ([(20.0, 30.0)], 0.0, 5.0, None, None),  # out of reach
+    ([(3.0, 9.0)], 0.0, 5.0, 10.0, "from 2° to 10°"),  # touched: widened to its far end
+    ([(3.0, 11.0), (13.0, 20.0)], 0.0, 5.0, 21.0, "from 2° to 21°"),  # joined one by one
+    ([(-2.0, 1.0)], 0.0, 5.0, 5.0, "from -3° to 2°"),  # inside the reach: named only
+    ([(-50.0, -40.0)], -35.0, 4.0, 16.0, "to the band's end"),  # its end is not seen
+    ([(3.0, 9.0)], 0.0, math.nan, None, None),  # no number, no loop
+])
+def test_the_reach_across_hidden_wall(hidden_deg, phi_s, uncertainty, reach, remark):
+    # the layer may leave the wall anywhere under the glare, up to the next angle seen (1 deg
+    # apart here)
+    from types import SimpleNamespace
+
+    from core.separation import _hidden_wall_reach
+
+    problem = SimpleNamespace(band=_Band(hidden_deg))
+    got = _hidden_wall_reach(problem, phi_s, uncertainty)
+    if reach is None:
+        assert got is None
+    else:
+        assert got[0] == pytest.approx(reach)
+        assert remark in got[1]
 
 
 def test_the_budget_adds_up_to_the_uncertainty():

@@ -136,8 +136,8 @@ def test_a_result_made_by_an_earlier_uncertainty_method_is_named():
 
 
 def test_a_remark_on_a_proposal_made_is_shown_not_only_hovered(qtbot):
-    # glare hiding the wall widens a proposal's uncertainty; the window's notes and the sheet's
-    # warnings say why, beside the measurement's own warnings
+    # glare hiding the wall widens a proposal's uncertainty; the window's notes and the sheet
+    # say why, beside the measurement's own warnings
     from app.qt.readout import ReadoutPanel
     from app.review.text import proposal_remarks
     from app.sheet.shot_panel import number_rows
@@ -157,4 +157,5 @@ def test_a_remark_on_a_proposal_made_is_shown_not_only_hovered(qtbot):
     assert "first warning" in panel.notes.text()
     assert "no separated layer" not in panel.notes.text()  # said where the angle would be
     rows = {row.label: row.value for row in number_rows(record)}
-    assert rows["warnings"] == f"upper side: {remark}; first warning"
+    assert rows["proposals"] == f"upper side: {remark}"
+    assert rows["warnings"] == "first warning"

@@ -437,8 +437,12 @@ def number_rows(record, with_metadata: bool = False, checks=()) -> list[NumberRo
     if outdated:
         rows.append(NumberRow("uncertainty", outdated,
                               colours.STATUS_COLOURS[ReviewStatus.ADJUSTED]))
-    warnings = proposal_remarks(summary) + ([] if summary is None else [
-        w for w in summary.warnings if w not in summary.ball_warnings])  # ball's: with checks
+    remarks = proposal_remarks(summary)
+    if remarks:
+        rows.append(NumberRow("proposals", "; ".join(remarks),
+                              colours.STATUS_COLOURS[ReviewStatus.ADJUSTED]))
+    warnings = () if summary is None else [w for w in summary.warnings
+                                           if w not in summary.ball_warnings]  # with checks
     if warnings:
         rows.append(NumberRow("warnings", "; ".join(warnings[:2]), colours.MUTED_INK))
     return rows

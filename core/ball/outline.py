@@ -72,7 +72,7 @@ def find_ball(
         # a fit that misses (a faster ball) falls back on the search
         try:
             fit = _fine_circle(image, *near.center_px, near.radius_px, 4, level, name)
-            if _same_ball(fit, near, 4):
+            if _kept(fit, near.center_px, near.radius_px, 4, near.radius_px):
                 return fit
         except WakelineError:
             pass
@@ -86,9 +86,10 @@ def find_balls(frame_a: np.ndarray, frame_b: np.ndarray, *, radius_hint_px: floa
     Both outlines are fitted from frame A's coarse circle (the ball moves a few pixels between
     the frames, well within the first band), with two threads at once (the fits' interpolation
     and filters release the GIL, so the pair then takes little more than one frame's fit on a
-    large frame); the circles are the same whichever the thread count. Frame B's fit is held
-    to frame A's as ``near`` holds it (:func:`find_ball`), and fitted again from frame A's
-    circle when it misses (a fast ball).
+    large frame); the circles are the same whichever the thread count. Frame B's fit must stay
+    within the first band around that start, see enough of its outline and keep frame A's
+    radius within 3 %; else (a fast ball) it is fitted again from frame A's circle, as
+    :func:`find_ball` with ``near`` does, at the cost of one fit more.
     """
     image_a, level_a = _frame(frame_a, "frame A")
     image_b, level_b = _frame(frame_b, "frame B")
@@ -110,8 +111,9 @@ def find_balls(frame_a: np.ndarray, frame_b: np.ndarray, *, radius_hint_px: floa
     else:
         ball_a = _fine_circle(image_a, *start, level_a, "frame A")
         ball_b = fit_b()
-    if ball_b is None or not _same_ball(ball_b, ball_a, start[3]):
-        ball_b = find_ball(frame_b, radius_hint_px=radius_hint_px, name="frame B", near=ball_a)
+    if ball_b is None or not _kept(ball_b, start[:2], start[2], start[3], ball_a.radius_px):
+        ball_b = find_ball(image_b, radius_hint_px=radius_hint_px, name="frame B", near=ball_a,
+                           saturation=level_b)
     return ball_a, ball_b
 
 
@@ -132,13 +134,13 @@ def _coarse_start(image: np.ndarray, radius_hint_px: float | None, name: str):
     return cx, cy, r, block
 
 
-def _same_ball(fit: BallFit, other: BallFit, block: int) -> bool:
-    """``fit`` is the ball of ``other``'s frame moved by less than the first band, with enough
-    of its outline seen and its radius within 3 %."""
-    moved = math.hypot(fit.center_px[0] - other.center_px[0],
-                       fit.center_px[1] - other.center_px[1])
-    return (moved < _first_band(other.radius_px, block) and fit.arc_share >= POOR_ARC_SHARE
-            and abs(fit.radius_px - other.radius_px) < 0.03 * other.radius_px)
+def _kept(fit: BallFit, center_px, radius_px: float, block: int, other_radius_px: float) -> bool:
+    """``fit``, started from the circle ``(center_px, radius_px)`` on a first band for
+    ``block``, stayed within that band, saw enough of its outline and kept the other frame's
+    radius ``other_radius_px`` within 3 %."""
+    moved = math.hypot(fit.center_px[0] - center_px[0], fit.center_px[1] - center_px[1])
+    return (moved < _first_band(radius_px, block) and fit.arc_share >= POOR_ARC_SHARE
+            and abs(fit.radius_px - other_radius_px) < 0.03 * other_radius_px)
 
 
 # --- fine: the outline from the best cue the frame offers ----------------------------------
