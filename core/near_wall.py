@@ -36,9 +36,9 @@ FINE_GAP_PX = 8.0
 #: Share of a band's samples at one angle left out (glare) from which the band counts as
 #: hidden there: the glare then reaches across its depth and the fit sees nothing of the layer.
 #: Where it covers only the first rows, the layer further out still places the separation (on
-#: the physical family, 15 of 16 sides of bright or glinting balls with the wall's first
-#: 7-12 px masked over long arcs were picked within 2.3 deg, the other 5.7 deg off within its
-#: 9.5 deg).
+#: the physical family, 15 of 16 sides of bright or glinting balls with the wall's first rows
+#: masked (up to 7-12 px out) over long arcs were picked within 2.3 deg, the other 5.7 deg off
+#: within its 9.5 deg).
 HIDDEN_SHARE = 0.9
 
 
