@@ -159,3 +159,9 @@ def test_a_remark_on_a_proposal_made_is_shown_not_only_hovered(qtbot):
     rows = {row.label: row.value for row in number_rows(record)}
     assert rows["proposals"] == f"upper side: {remark}"
     assert rows["warnings"] == "first warning"
+    # and `wakeline pair` prints the same row (its rows need a ball to show the proposals)
+    from dataclasses import replace as with_
+
+    with_ball = with_(SUMMARY, separation=summary.separation)
+    assert ("proposals", f"upper side: {remark}") in shot_rows(with_ball)
+    assert "proposals" not in dict(shot_rows(SUMMARY))

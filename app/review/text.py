@@ -225,6 +225,9 @@ def shot_rows(summary: ShotSummary) -> list[tuple[str, str]]:
     if summary.ball_a is not None:
         rows += [(f"{side} separation", proposal_text(summary.side(side)))
                  for side in ("upper", "lower")]
+        remarks = proposal_remarks(summary)
+        if remarks:
+            rows.append(("proposals", "; ".join(remarks)))
         rows.append(("wake", wake_text(summary.separation)))
     if summary.flight is not None:
         rows.append(("flight", flight_text(summary.flight)))
