@@ -194,3 +194,23 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
     assert report.pages == 3 and report.shot_ids == ["s04"]
     assert export_sheet(window, tmp_path / "none.pdf", shot_ids=["nope"]) is None
     assert "no shot 'nope'" in window.last_problem
+
+
+def test_one_value_on_the_axis_gets_a_readable_range(qtbot):
+    # one shot (or a column alike on every shot): the range is 5 % of the value either side,
+    # not the few thousandths an automatic range gives a single point
+    from app.qt.overview import SessionOverview
+
+    panel = SessionOverview()
+    qtbot.addWidget(panel)
+    panel.show()
+    qtbot.waitExposed(panel)
+    view = panel.plot.getPlotItem().getViewBox()
+    panel.set_records([_record("b1", 40.0, up=-9.0, low=2.0)])
+    qtbot.wait(50)
+    low, high = view.viewRange()[0]
+    assert low == pytest.approx(38.0) and high == pytest.approx(42.0)
+    panel.set_records([_record("b1", 40.0, up=-9.0, low=2.0), _record("b2", 0.0, up=-9.0)])
+    qtbot.wait(50)
+    low, high = view.viewRange()[0]
+    assert low < 0.0 and high > 40.0 and high - low < 60.0  # two values: the automatic range

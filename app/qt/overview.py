@@ -187,6 +187,17 @@ class SessionOverview(QtWidgets.QWidget):
             # fit the view to a new column or shot count only, so an edit keeps the analyst's zoom
             self._ranged_for = (column, len(pts.shot_ids))
             self.plot.getPlotItem().enableAutoRange()
+            self._widen_single_value(pts)
+
+    def _widen_single_value(self, pts: OverviewPoints) -> None:
+        """One value on the horizontal axis (one shot, or a column alike on every shot): the
+        automatic range would zoom to a few thousandths around it; show 5 % of it (at least 1)
+        either side instead."""
+        xs = pts.drawn_x()
+        xs = xs[np.isfinite(xs)]
+        if xs.size and np.ptp(pts.x[np.isfinite(pts.x)]) == 0:
+            pad = max(1.0, 0.05 * abs(float(xs.mean())))
+            self.plot.getPlotItem().setXRange(xs.min() - pad, xs.max() + pad, padding=0)
 
     def _draw_links(self, pts: OverviewPoints) -> None:
         both = np.isfinite(pts.upper_deg) & np.isfinite(pts.lower_deg)
