@@ -20,6 +20,9 @@ Run (about 5-10 minutes on 2 cores for the default 48 + 48 shots):
 
     .venv/bin/python benchmarks/bench_separation.py --write
     .venv/bin/python benchmarks/bench_separation.py --from results.jsonl --write
+
+``--displacement PX`` measures the same shots with the ball moving ``PX`` between the frames
+(the families draw 8-10 px); ``--from`` takes several files, and such runs get their own table.
 """
 
 from __future__ import annotations
@@ -116,6 +119,8 @@ def measure_case(family: str, kwargs: dict) -> list[dict]:
             "reason": failure if proposal is None else proposal.reason,
             "departure_true_deg": truth.leave_deg[k], "thickness_px": thickness[k],
             "radius_px": truth.radius_px, "seconds": seconds, **look,
+            "stream_px": round(truth.speed_m_s * truth.dt_s / (truth.scale_mm_per_px * 1e-3), 2),
+            "displacement_set": kwargs.get("shift_px"),
             "wake_true_deg": truth.wake_deflection_deg,
             "wake_deg": None if result is None or result.separation is None
             else result.separation.wake_deflection_deg,
@@ -189,7 +194,34 @@ def _both_families(records: list[dict]) -> bool:
 
 
 def tables(records: list[dict]) -> str:
-    """The markdown tables of the benchmark."""
+    """The markdown tables of the benchmark: the families as drawn, then the runs at a ball
+    displacement set apart (``--displacement``), each in its own rows."""
+    drawn = [r for r in records if r.get("displacement_set") is None]
+    lines = _family_tables(drawn) if drawn else []
+    moved = [r for r in records if r.get("displacement_set") is not None]
+    if moved:
+        lines += ["", ("The same shots with the ball's displacement between the frames set "
+                       "(the families draw 8-10 px; `--displacement`):"), "",
+                  ("| family | displacement (px) | condition | sides | refused | median abs "
+                   "error (deg) | max (deg) | coverage |"), "|---|---|---|---|---|---|---|---|"]
+        for family in ("kinematic", "physical"):
+            for shift in sorted({r["displacement_set"] for r in moved}):
+                runs = [r for r in moved if r["family"] == family
+                        and r["displacement_set"] == shift]
+                for row in ("all", "target range"):
+                    chosen = [r for r in runs if row in conditions(r)]
+                    if not chosen:
+                        continue
+                    s = summarise(chosen, COVERAGE_K)
+                    lines.append(f"| {family} | {shift:g} | {row} | {s['n']} | {s['refused']} "
+                                 f"| {_num(s['median'])} | {_num(s['max'])} "
+                                 f"| {_num(s['coverage'], '{:.0%}')} |")
+    return "\n".join(lines)
+
+
+def _family_tables(records: list[dict]) -> list[str]:
+    """Error and coverage per family and condition, the calibration across the families, the
+    wake's."""
     lines = [(f"Stated coverage: {COVERAGE:.0%} (uncertainty = {COVERAGE_K:g} standard "
              "uncertainties)."), ""]
     lines += [("| family | condition | sides | refused | median abs error (deg) | max (deg) "
@@ -205,7 +237,7 @@ def tables(records: list[dict]) -> str:
             lines.append(f"| {family} | {row} | {s['n']} | {s['refused']} | {_num(s['median'])} "
                          f"| {_num(s['max'])} | {_num(s['coverage'], '{:.0%}')} |")
     if not _both_families(records):
-        return "\n".join(lines)  # one family: no calibration across families
+        return lines  # one family: no calibration across families
     lines += ["", ("Calibration both ways: the factor that covers "
               f"{COVERAGE:.0%} of one family's errors, and the coverage it gives on the other."),
               "", "| tuned on | factor | coverage on the other family |", "|---|---|---|"]
@@ -213,7 +245,7 @@ def tables(records: list[dict]) -> str:
         k = coverage_factor([r for r in records if r["family"] == tuned])
         s = summarise([r for r in records if r["family"] == other], k)
         lines.append(f"| {tuned} | {k:.2f} | {s['coverage']:.0%} |")
-    return "\n".join(lines + wake_tables(records))
+    return lines + wake_tables(records)
 
 
 def wake_ratios(records: list[dict], family: str) -> np.ndarray:
@@ -259,13 +291,17 @@ def main() -> None:
     parser.add_argument("--shots", type=int, default=48, help="shots per family")
     parser.add_argument("--seed", type=int, default=11)
     parser.add_argument("--out", type=Path, default=Path("separation_results.jsonl"))
-    parser.add_argument("--from", dest="source", type=Path, help="tables from stored results")
+    parser.add_argument("--from", dest="sources", type=Path, nargs="+",
+                        help="tables from stored results (one or more files)")
+    parser.add_argument("--displacement", type=float,
+                        help="the ball's displacement between the frames (px) for every shot")
     parser.add_argument("--write", action="store_true", help="write docs/separation_accuracy.md")
     parser.add_argument("--family", choices=("both", "kinematic", "physical"), default="both",
                         help="measure one family only (the tables then show that one)")
     args = parser.parse_args()
-    if args.source:
-        records = [json.loads(line) for line in args.source.read_text().splitlines()]
+    if args.sources:
+        records = [json.loads(line) for source in args.sources
+                   for line in source.read_text().splitlines()]
     else:
         from core.synth_physical import physical_cases
 
@@ -275,6 +311,8 @@ def main() -> None:
             cases += [("kinematic", kw) for kw in kinematic_cases(args.shots, args.seed)]
         if args.family in ("both", "physical"):
             cases += [("physical", kw) for kw in physical_cases(args.shots, args.seed)]
+        if args.displacement is not None:
+            cases = [(family, {**kw, "shift_px": args.displacement}) for family, kw in cases]
         with args.out.open("w") as out:
             for i, (family, kwargs) in enumerate(cases):
                 for rec in measure_case(family, kwargs):
@@ -285,8 +323,8 @@ def main() -> None:
     text = tables(records)
     print(text)
     if args.write:
-        if not _both_families(records):
-            sys.exit("bench_separation: --write needs both families measured")
+        if not _both_families([r for r in records if r.get("displacement_set") is None]):
+            sys.exit("bench_separation: --write needs both families measured as drawn")
         doc = ROOT / "docs" / "separation_accuracy.md"
         head = doc.read_text().split("<!-- tables -->")[0] if doc.exists() else ""
         doc.write_text(head + "<!-- tables -->\n\n" + text + "\n")

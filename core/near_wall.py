@@ -181,6 +181,26 @@ class NearWallBand:
             other._weight = other._weights()
         return other
 
+    def blurred(self, sigma_px: float) -> NearWallBand:
+        """The same band (same samples, same ones left out) on both frames smoothed by a
+        Gaussian of ``sigma_px`` (px; none when 0).
+
+        A coarse-to-fine step, as image registration does it: on the sharp frames a model's
+        cost only falls once its motion is within about a particle image of the truth
+        everywhere, so with large displacements the cost against the separation angle breaks
+        into narrow pits; smoothed frames keep the cost falling toward the truth from further
+        away. (The polar pictures' samples are ``POLAR_STEP_PX`` apart both ways.)
+        """
+        if not sigma_px > 0:
+            return self
+        other = copy.copy(self)
+        other.polar_a = ndimage.gaussian_filter(self.polar_a, sigma_px / POLAR_STEP_PX)
+        other.polar_b = ndimage.gaussian_filter(self.polar_b, sigma_px / POLAR_STEP_PX)
+        other._steps_a = _row_steps(other.polar_a)
+        other._steps_b = _row_steps(other.polar_b)
+        other.scale = float(np.std(other.polar_a)) + 1e-9
+        return other
+
     @property
     def shape(self) -> tuple[int, int]:
         """``(angles, gaps)`` of the band's samples."""
@@ -218,6 +238,9 @@ class JointBand:
 
     def view(self, phi_deg=None, *, every: int = 1) -> JointBand:
         return JointBand([b.view(phi_deg, every=every) for b in self.bands])
+
+    def blurred(self, sigma_px: float) -> JointBand:
+        return JointBand([b.blurred(sigma_px) for b in self.bands])
 
     def wall_hidden(self) -> np.ndarray:
         """Hidden in every shot: one shot's glare does not hide what the others show. (The

@@ -92,9 +92,9 @@ COARSE_CANDIDATES = 2
 #: Refinements run from this many starting points of the coarse search (the best wins): the
 #: image-matching cost has several shallow minima along the outline.
 REFINE_STARTS = 2
-#: Neighbouring image samples are correlated (particle images span several samples): the
-#: residual variance is scaled by this many samples per independent one.
-SAMPLES_PER_INDEPENDENT = 10.0
+#: The search for starting points sees the frames smoothed by a Gaussian of this fraction of
+#: the ball's speed relative to the air (px per pair; :meth:`NearWallBand.blurred`).
+COARSE_BLUR = 0.0625
 #: The reported uncertainty is ``COVERAGE_K`` standard uncertainties, meant to cover the truth
 #: in at least ``COVERAGE`` of proposals. The sources' standard uncertainties are on the safe
 #: side (bounds and factor-of-two spans, not spreads), so the factor is calibrated rather than
@@ -293,13 +293,11 @@ def fit_shots_side(pairs, ball: BallFrame, fine: VectorField, origin_px, side: s
 
 def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> SideProposal:
     """The fit of one side's problem: coarse search, refinements, the uncertainty budget."""
-    attached = problem.band.residual(problem.u_t, problem.u_r)
-    attached_cost = float(np.sum(attached**2))
-    # residual scale: neighbouring samples are correlated, so one independent value per
-    # SAMPLES_PER_INDEPENDENT samples
-    problem.sigma = math.sqrt(attached_cost / attached.size * SAMPLES_PER_INDEPENDENT) + 1e-12
-    coarse = problem.view(every=2)
-    starts, start_cost = _coarse_search(problem)
+    problem.sigma = problem.attached_scale()
+    # the search for starting points looks at smoothed frames (coarse to fine)
+    searched = problem.blurred(COARSE_BLUR * ball.stream)
+    starts, start_cost = _coarse_search(searched)
+    coarse = searched.view(every=2)  # where the search's costs were taken
     coarse_attached = float(np.sum(coarse.band.residual(coarse.u_t, coarse.u_r) ** 2))
     if not start_cost < (1.0 - MIN_IMPROVEMENT) * coarse_attached:
         return SideProposal(None, None, 0.0, "no separated shear layer next to the ball "
@@ -336,7 +334,9 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
             budget["hidden wall"] = math.sqrt((reach / COVERAGE_K) ** 2 - standard**2)
             uncertainty = reach
         remarks.append(remark)
-    gain = 1.0 - start_cost / attached_cost
+    # how much of the attached flow's misfit the layer takes away, in the fit's own window
+    gain = 1.0 - near.data_cost(best.params) / float(
+        np.sum(near.band.residual(near.u_t, near.u_r) ** 2))
     quality = float(np.clip(gain / 0.2, 0.0, 1.0) * np.clip(2.0 / max(uncertainty, 1e-3), 0, 1))
     departure = math.degrees(math.atan(best.params[1]))
     if departure > PRIOR_LEAVE_DEG[1]:
@@ -405,7 +405,8 @@ def _other_minima(angles, scores, chosen: float) -> float:
 
 def _coarse_search(problem: SideProblem):
     """Starting points for the refinement, best first, and the best data cost (on every other
-    sample of the band).
+    sample of the band). ``problem`` is the one the search looks at (the fit passes the one
+    on smoothed frames: :meth:`SideProblem.blurred`).
 
     ``phi_s`` on a 2 deg grid at a few thicknesses with the other priors' medians; around the
     best few (at least 6 deg apart), ``(phi_s, departure, thickness)`` on a 1 deg grid. Every

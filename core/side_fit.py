@@ -58,6 +58,9 @@ REFINE_REACH_DEG = 10.0
 REFINE_SCALE = np.array([1.0, 0.05, 0.3, 0.2, 0.03, 0.05, 0.1, 0.1, 0.2, 0.02, 0.1])
 #: Band samples times models evaluated in one go by the coarse search (memory, not the answer).
 BATCH_SAMPLES = 200_000
+#: Neighbouring image samples are correlated (particle images span several samples): the
+#: residual variance is scaled by this many samples per independent one.
+SAMPLES_PER_INDEPENDENT = 10.0
 
 
 @dataclass
@@ -81,6 +84,20 @@ class SideProblem:
         follows the decimation so that the data weigh the same against the priors."""
         return SideProblem(self.band.view(phi_deg, every=every), self.outer, self.final_deg,
                            self.log_delta_prior, self.sigma / every)
+
+    def blurred(self, sigma_px: float) -> SideProblem:
+        """The same problem on smoothed frames (:meth:`NearWallBand.blurred`), its residual
+        scale from its own attached flow (:meth:`attached_scale`)."""
+        other = SideProblem(self.band.blurred(sigma_px), self.outer, self.final_deg,
+                            self.log_delta_prior)
+        other.sigma = other.attached_scale()
+        return other
+
+    def attached_scale(self) -> float:
+        """Residual scale from the attached flow's residuals (the outer stream down to the
+        wall, no layer): their root mean square times ``sqrt(SAMPLES_PER_INDEPENDENT)``."""
+        attached = self.band.residual(self.u_t, self.u_r)
+        return math.sqrt(np.sum(attached**2) / attached.size * SAMPLES_PER_INDEPENDENT) + 1e-12
 
     # Every method below takes one model's parameters, (11,), or K models' as rows, (K, 11),
     # and then answers row by row (a fit's finite differences, a search's candidates).

@@ -343,3 +343,38 @@ def test_first_family_separates_where_its_wall_shear_changes_sign():
         return float((ux[0] + 8.0) * (x1 - x0) + uy[0] * (y1 - y0))  # ball frame, rearward
 
     assert tangential(sep - 1.0) > 0 > tangential(sep + 1.0)
+
+
+def test_smoothed_frames_keep_the_cost_rising_with_the_motion_error_further_out():
+    # Gaussian scale space (Witkin 1983; Lindeberg 1994; memory): smoothing commutes with a
+    # translation, so a pair that is one image moved as a whole still matches exactly at the
+    # true motion, and the matching cost of a motion e px wrong follows 1 - R(e), R the
+    # autocorrelation of the particle images, whose width grows with the smoothing. On the
+    # sharp frames the cost has saturated a few px out; smoothed by 2 px it still rises.
+    from scipy import ndimage
+
+    from core.near_wall import BallMotion, NearWallBand
+
+    frame_a, _, truth = ball_shot((260, 360), radius_px=60.0, seed=4, density_ppp=0.05)
+    shift = 12.0
+    frame_b = ndimage.shift(frame_a, (0.0, shift), order=3, mode="nearest")
+    centre = (truth.center_a_px[0] + 0.5 * shift, truth.center_a_px[1])
+    ball = BallMotion(centre, 60.0, (shift, 0.0), 0.0)  # the ball flies toward +x
+    band = NearWallBand(frame_a, frame_b, ball, "upper", phi_deg=(-40.0, 40.0),
+                        gap_px=(2.0, 14.0), max_speed_px=2.0 * shift, arc_step_px=1.5)
+    assert band.blurred(0.0) is band
+
+    def costs(b, errors):
+        zero = np.zeros(b.phi.size)
+        return np.array([np.mean(b.residual(zero + e, zero) ** 2) for e in errors])
+
+    errors = np.arange(0.0, 9.0, 1.0)
+    sharp, smooth = costs(band, errors), costs(band.blurred(2.0), errors)
+    # at the true motion both match (to the cubic resampling's error)
+    assert sharp[0] < 0.02 * sharp[-1] and smooth[0] < 0.02 * smooth[-1]
+    # sharp: nearly saturated 3 px out; smoothed: still well short of its far level
+    assert sharp[3] > 0.8 * sharp[-1]
+    assert smooth[3] < 0.6 * smooth[-1]
+    assert np.all(np.diff(smooth) > 0)
+    # the same samples, the same ones left out
+    np.testing.assert_array_equal(band.blurred(2.0).phi, band.phi)

@@ -217,6 +217,20 @@ def test_layer_px_sets_the_reynolds_number_through_the_speed():
     assert fixed.speed_m_s == 30.0 and np.mean(fixed.delta99_sep_px) == pytest.approx(5.0, rel=1e-6)
 
 
+def test_a_set_shift_changes_the_time_between_frames_only():
+    # the ball's displacement is its speed times dt over the scale (kinematics)
+    _, drawn = physical_flow(SMALL, radius_px=100.0, layer_px=3.0, seed=2)
+    _, moved = physical_flow(SMALL, radius_px=100.0, layer_px=3.0, seed=2, shift_px=15.0)
+    assert math.hypot(*moved.displacement_px) == pytest.approx(15.0, rel=1e-9)
+    shift = moved.speed_m_s * moved.dt_s / (moved.scale_mm_per_px * 1e-3)
+    assert shift == pytest.approx(15.0, rel=1e-9)
+    assert 8.0 <= math.hypot(*drawn.displacement_px) <= 10.0
+    assert (moved.upper_deg, moved.lower_deg, moved.speed_m_s, moved.reynolds_number) == (
+        drawn.upper_deg, drawn.lower_deg, drawn.speed_m_s, drawn.reynolds_number)
+    with pytest.raises(ValueError, match="not both"):
+        physical_flow(SMALL, radius_px=100.0, dt_s=1e-4, shift_px=15.0)
+
+
 # --- the images --------------------------------------------------------------------------------
 
 

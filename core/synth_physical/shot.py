@@ -93,6 +93,7 @@ def physical_flow(
     speed_m_s: float | None = None,
     ball_diameter_mm: float = 72.0,
     dt_s: float | None = None,
+    shift_px: float | None = None,
     center_px: tuple[float, float] | None = None,
     layer_px: float | None = None,
     air_temp_c: float = 20.0,
@@ -137,7 +138,10 @@ def physical_flow(
     speed_m_s = 30.0 if speed_m_s is None else float(speed_m_s)
     reynolds_radius = speed_m_s * radius_m / nu
     if dt_s is None:
-        dt_s = rng.uniform(8.0, 10.0) * scale * 1e-3 / speed_m_s
+        drawn = rng.uniform(8.0, 10.0)  # drawn either way: a given shift changes nothing else
+        dt_s = (drawn if shift_px is None else shift_px) * scale * 1e-3 / speed_m_s
+    elif shift_px is not None:
+        raise ValueError("give dt_s or shift_px, not both")
     shift_px = speed_m_s * dt_s / (scale * 1e-3)
     fx, fy = flight_unit(flight_deg)
     if center_px is None:
@@ -210,6 +214,7 @@ def physical_shot(
     speed_m_s: float | None = None,
     ball_diameter_mm: float = 72.0,
     dt_s: float | None = None,
+    shift_px: float | None = None,
     center_px: tuple[float, float] | None = None,
     layer_px: float | None = None,
     air_temp_c: float = 20.0,
@@ -257,6 +262,9 @@ def physical_shot(
         Ball speed (or air speed past a held ball). Default 30 m/s, or from ``layer_px``.
     dt_s : float, optional
         Time between the frames; by default the ball moves 8-10 px.
+    shift_px : float, optional
+        The ball's displacement between the frames (px; the air's past a held ball), setting
+        ``dt_s`` instead; the rest of the shot is the one the same seed gives without it.
     center_px : (float, float), optional
         Ball centre at mid-exposure; by default ahead of the frame centre so the wake fits.
     layer_px : float, optional
@@ -320,6 +328,7 @@ def physical_shot(
         speed_m_s=speed_m_s,
         ball_diameter_mm=ball_diameter_mm,
         dt_s=dt_s,
+        shift_px=shift_px,
         center_px=center_px,
         layer_px=layer_px,
         air_temp_c=air_temp_c,
