@@ -30,7 +30,8 @@ from core.ball import find_ball
 
 #: Radius (px) -> frame shape (rows, columns).
 FRAMES = {64.0: (384, 512), 150.0: (700, 900)}
-#: Appearance -> (surface, lit rim, glint, shadow, uneven sheet, bits).
+#: Appearance -> (surface, lit rim, glint, shadow, uneven sheet, bits[, particle image
+#: diameters (px), else the family's own]).
 APPEARANCES = {
     "dark, rim": ("dark", True, False, False, False, 12),
     "dark, no rim": ("dark", False, False, False, False, 12),
@@ -44,26 +45,29 @@ APPEARANCES = {
     "shadow, dim, no rim": ("dim", False, False, True, False, 12),
     "uneven sheet, no rim": ("dim", False, False, False, True, 12),
     "8 bit, dim, no rim": ("dim", False, False, False, False, 8),
+    "8 bit, bright, uneven, particle images 1-1.8 px": ("bright", True, False, False, True, 8,
+                                                       (1.0, 1.8)),
 }
 FAMILIES = ("kinematic", "physical")
 
 
 def shot(family: str, radius: float, look: tuple, seed: int):
     """Frames A and B and the true centres and radius."""
-    surface, rim, glint, shadow, uneven, bits = look
+    surface, rim, glint, shadow, uneven, bits = look[:6]
+    particles = {"diameter_px": look[6]} if len(look) > 6 else {}
     if family == "kinematic":
         from core.synth_shot import ball_shot
 
         fa, fb, truth = ball_shot(FRAMES[radius], radius_px=radius, flight_deg=183.0, seed=seed,
                                   surface=surface, rim=rim, glint=glint, shadow=shadow,
-                                  uneven_sheet=0.8 if uneven else 0.0, bits=bits)
+                                  uneven_sheet=0.8 if uneven else 0.0, bits=bits, **particles)
     else:
         from core.synth_physical import physical_shot
 
         fa, fb, truth = physical_shot(FRAMES[radius], radius_px=radius, flight_deg=183.0,
                                       seed=seed, surface=surface, lit_rim=rim, glint=glint,
                                       shadow=shadow, sheet_unevenness=0.8 if uneven else 0.0,
-                                      bit_depth=bits)
+                                      bit_depth=bits, **particles)
     return fa, fb, (truth.center_a_px, truth.center_b_px), truth.radius_px
 
 

@@ -21,8 +21,9 @@ Run (about 5-10 minutes on 2 cores for the default 48 + 48 shots):
     .venv/bin/python benchmarks/bench_separation.py --write
     .venv/bin/python benchmarks/bench_separation.py --from results.jsonl --write
 
-``--displacement PX`` measures the same shots with the ball moving ``PX`` between the frames
-(the families draw 8-10 px); ``--from`` takes several files, and such runs get their own table.
+``--displacement PX``, ``--seeding PPP`` and ``--particles LO HI`` measure the same shots with
+that condition set for every shot instead of the family's own draw; ``--from`` takes several
+files, and such runs get their own table.
 """
 
 from __future__ import annotations
@@ -80,8 +81,9 @@ def _departure(rng) -> float:
     return float(rng.uniform(0.0, 5.0) if rng.random() < 0.5 else rng.uniform(20.0, 25.0))
 
 
-def measure_case(family: str, kwargs: dict) -> list[dict]:
-    """Both sides' records of one synthetic shot."""
+def measure_case(family: str, kwargs: dict, setting: str | None = None) -> list[dict]:
+    """Both sides' records of one synthetic shot (``setting`` names what was set apart from
+    the family's own draw, if anything)."""
     if family == "kinematic":
         from core.synth_shot import ball_shot
 
@@ -120,7 +122,7 @@ def measure_case(family: str, kwargs: dict) -> list[dict]:
             "departure_true_deg": truth.leave_deg[k], "thickness_px": thickness[k],
             "radius_px": truth.radius_px, "seconds": seconds, **look,
             "stream_px": round(truth.speed_m_s * truth.dt_s / (truth.scale_mm_per_px * 1e-3), 2),
-            "displacement_set": kwargs.get("shift_px"),
+            "setting": setting,
             "wake_true_deg": truth.wake_deflection_deg,
             "wake_deg": None if result is None or result.separation is None
             else result.separation.wake_deflection_deg,
@@ -196,24 +198,25 @@ def _both_families(records: list[dict]) -> bool:
 def tables(records: list[dict]) -> str:
     """The markdown tables of the benchmark: the families as drawn, then the runs at a ball
     displacement set apart (``--displacement``), each in its own rows."""
-    drawn = [r for r in records if r.get("displacement_set") is None]
+    drawn = [r for r in records if r.get("setting") is None]
     lines = _family_tables(drawn) if drawn else []
-    moved = [r for r in records if r.get("displacement_set") is not None]
+    moved = [r for r in records if r.get("setting") is not None]
     if moved:
-        lines += ["", ("The same shots with the ball's displacement between the frames set "
-                       "(the families draw 8-10 px; `--displacement`):"), "",
-                  ("| family | displacement (px) | condition | sides | refused | median abs "
-                   "error (deg) | max (deg) | coverage |"), "|---|---|---|---|---|---|---|---|"]
+        lines += ["", ("The same shots with one condition set apart from the families' own draw "
+                       "(ball displacement 8-10 px, seeding 0.03-0.07 ppp (physical) or 0.06 "
+                       "(kinematic), particle images 1.5-4 px (physical) or 2-3.2 px "
+                       "(kinematic); `--displacement`, `--seeding`, `--particles`):"), "",
+                  ("| family | set | condition | sides | refused | median abs error (deg) | "
+                   "max (deg) | coverage |"), "|---|---|---|---|---|---|---|---|"]
         for family in ("kinematic", "physical"):
-            for shift in sorted({r["displacement_set"] for r in moved}):
-                runs = [r for r in moved if r["family"] == family
-                        and r["displacement_set"] == shift]
+            for setting in sorted({r["setting"] for r in moved}):
+                runs = [r for r in moved if r["family"] == family and r["setting"] == setting]
                 for row in ("all", "target range"):
                     chosen = [r for r in runs if row in conditions(r)]
                     if not chosen:
                         continue
                     s = summarise(chosen, COVERAGE_K)
-                    lines.append(f"| {family} | {shift:g} | {row} | {s['n']} | {s['refused']} "
+                    lines.append(f"| {family} | {setting} | {row} | {s['n']} | {s['refused']} "
                                  f"| {_num(s['median'])} | {_num(s['max'])} "
                                  f"| {_num(s['coverage'], '{:.0%}')} |")
     return "\n".join(lines)
@@ -286,6 +289,22 @@ def wake_tables(records: list[dict]) -> list[str]:
     return lines
 
 
+def _set_apart(args) -> tuple[str | None, dict]:
+    """The conditions set for every shot, as a label and as the generators' keywords."""
+    labels, kwargs = [], {}
+    if args.displacement is not None:
+        labels.append(f"displacement {args.displacement:g} px")
+        kwargs["shift_px"] = args.displacement
+    if args.seeding is not None:
+        labels.append(f"seeding {args.seeding:g} ppp")
+        kwargs["density_ppp"] = args.seeding
+    if args.particles is not None:
+        lo, hi = args.particles
+        labels.append(f"particle images {lo:g}-{hi:g} px")
+        kwargs["diameter_px"] = (lo, hi)
+    return (", ".join(labels) or None), kwargs
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--shots", type=int, default=48, help="shots per family")
@@ -295,6 +314,9 @@ def main() -> None:
                         help="tables from stored results (one or more files)")
     parser.add_argument("--displacement", type=float,
                         help="the ball's displacement between the frames (px) for every shot")
+    parser.add_argument("--seeding", type=float, help="particles per pixel for every shot")
+    parser.add_argument("--particles", type=float, nargs=2, metavar=("LO", "HI"),
+                        help="range of the particle images' diameters (px) for every shot")
     parser.add_argument("--write", action="store_true", help="write docs/separation_accuracy.md")
     parser.add_argument("--family", choices=("both", "kinematic", "physical"), default="both",
                         help="measure one family only (the tables then show that one)")
@@ -311,11 +333,11 @@ def main() -> None:
             cases += [("kinematic", kw) for kw in kinematic_cases(args.shots, args.seed)]
         if args.family in ("both", "physical"):
             cases += [("physical", kw) for kw in physical_cases(args.shots, args.seed)]
-        if args.displacement is not None:
-            cases = [(family, {**kw, "shift_px": args.displacement}) for family, kw in cases]
+        setting, kwargs_set = _set_apart(args)
+        cases = [(family, {**kw, **kwargs_set}) for family, kw in cases]
         with args.out.open("w") as out:
             for i, (family, kwargs) in enumerate(cases):
-                for rec in measure_case(family, kwargs):
+                for rec in measure_case(family, kwargs, setting):
                     records.append(rec)
                     out.write(json.dumps(rec) + "\n")
                 print(f"{i + 1}/{len(cases)} {family}: {records[-1]['seconds']:.1f} s",
@@ -323,7 +345,7 @@ def main() -> None:
     text = tables(records)
     print(text)
     if args.write:
-        if not _both_families([r for r in records if r.get("displacement_set") is None]):
+        if not _both_families([r for r in records if r.get("setting") is None]):
             sys.exit("bench_separation: --write needs both families measured as drawn")
         doc = ROOT / "docs" / "separation_accuracy.md"
         head = doc.read_text().split("<!-- tables -->")[0] if doc.exists() else ""

@@ -275,6 +275,7 @@ def ball_shot(
     shadow: bool = False,
     uneven_sheet: float = 0.0,
     bits: int = 12,
+    diameter_px: tuple[float, float] = (2.0, 3.2),
 ) -> tuple[np.ndarray, np.ndarray, ShotTruth]:
     """A synthetic shot: a ball moving ``shift_px`` along ``flight_deg`` between the frames.
 
@@ -344,6 +345,8 @@ def ball_shot(
         sheet's Gaussian profile across it and decay along it).
     bits : int
         Camera bit depth (full scale ``2**bits - 1``; background, rim and surface scale with it).
+    diameter_px : (float, float)
+        Range of the particle images' diameters (px).
 
     Returns
     -------
@@ -371,7 +374,7 @@ def ball_shot(
     counts = (2**bits - 1) / 4095.0  # the painting's levels are set for a 12-bit camera
     background = BACKGROUND_COUNTS * counts
     frame_a, frame_b, parts = particle_pair(
-        shape, flow, density_ppp=density_ppp, diameter_px=(2.0, 3.2), noise=noise, seed=seed,
+        shape, flow, density_ppp=density_ppp, diameter_px=diameter_px, noise=noise, seed=seed,
         background=background, return_particles=True, bits=bits,
     )
     light_from = None if not shadow else light_from_deg

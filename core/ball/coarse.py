@@ -56,7 +56,10 @@ def coarse_circle(
     # that window, as it is
     window = max(5, int(0.6 * min(texture.shape)))
     reference = ndimage.gaussian_filter(ndimage.maximum_filter(texture, window), window / 4)
-    radii, edges = None, None
+    # Both are searched and the better supported circle kept: next to a bright ball the
+    # outline's step is the most "textured" thing in the window, so relative to it the air
+    # nearby looks quiet, most of all with small or faint particle images.
+    found = []
     for level in (texture - reference, texture):
         quiet = level < threshold_otsu(level)
         # single quiet blocks between sparse particles are no ball; a seam's textured band
@@ -71,13 +74,13 @@ def coarse_circle(
             raise WakelineError(f"{name}: no ball found (the hinted radius does not fit the frame)")
         best = _hough_best(*edges, radii, quiet)
         if best is not None:
-            break
-    else:
+            found.append(best)
+    if not found:
         hint = "" if radius_hint_px is None else f" near radius {radius_hint_px:.0f} px"
         raise WakelineError(
             f"{name}: no ball found (no round region without particle images{hint})"
         )
-    xc, yc, rc = best
+    xc, yc, rc = max(found, key=lambda item: item[1])[0]
     # the variance summed over 5 x 5 blocks is high wherever the sum reaches the air, so the
     # quiet region's edge lies about two blocks inside the outline (2.4 blocks measured on
     # synthetic balls of 30-300 px)
@@ -108,7 +111,8 @@ def _radius_range(shape, radius_hint_px, factor) -> np.ndarray:
 
 
 def _hough_best(ex, ey, nx, ny, radii, quiet):
-    """Circle (blocks) best supported by quiet-region edge points voting along their normals.
+    """Circle (blocks) best supported by quiet-region edge points voting along their normals,
+    and its score; None when no circle qualifies.
 
     Two stages (a gradient Hough transform): every edge point votes, weighted by one over the
     circumference, for the centres one radius inward along its normal (the direction from
@@ -141,7 +145,7 @@ def _hough_best(ex, ey, nx, ny, radii, quiet):
         score = support * fill * fill * air * air * math.sqrt(circle[2])
         if score > best_score:
             best, best_score = circle[:3], score
-    return best
+    return None if best is None else (best, best_score)
 
 
 #: Centres tried per octave of radius (:func:`_centre_candidates`).
