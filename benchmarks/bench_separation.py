@@ -196,16 +196,19 @@ def _both_families(records: list[dict]) -> bool:
 
 
 def tables(records: list[dict]) -> str:
-    """The markdown tables of the benchmark: the families as drawn, then the runs at a ball
-    displacement set apart (``--displacement``), each in its own rows."""
+    """The markdown tables of the benchmark: the families as drawn, then the runs with
+    conditions set apart (``--displacement``, ``--seeding``, ``--particles``), each setting in
+    its own rows."""
     drawn = [r for r in records if r.get("setting") is None]
     lines = _family_tables(drawn) if drawn else []
     moved = [r for r in records if r.get("setting") is not None]
     if moved:
-        lines += ["", ("The same shots with one condition set apart from the families' own draw "
-                       "(ball displacement 8-10 px, seeding 0.03-0.07 ppp (physical) or 0.06 "
-                       "(kinematic), particle images 1.5-4 px (physical) or 2-3.2 px "
-                       "(kinematic); `--displacement`, `--seeding`, `--particles`):"), "",
+        lines += ["" if lines else None,
+                  ("The same shots with conditions set apart from the families' own draw "
+                   "(ball displacement 8 px (kinematic) or 8-10 px (physical), seeding 0.06 "
+                   "(kinematic) or 0.03-0.07 ppp (physical), particle images 2-3.2 px "
+                   "(kinematic) or 1.5-4 px (physical); `--displacement`, `--seeding`, "
+                   "`--particles`):"), "",
                   ("| family | set | condition | sides | refused | median abs error (deg) | "
                    "max (deg) | coverage |"), "|---|---|---|---|---|---|---|---|"]
         for family in ("kinematic", "physical"):
@@ -219,7 +222,7 @@ def tables(records: list[dict]) -> str:
                     lines.append(f"| {family} | {setting} | {row} | {s['n']} | {s['refused']} "
                                  f"| {_num(s['median'])} | {_num(s['max'])} "
                                  f"| {_num(s['coverage'], '{:.0%}')} |")
-    return "\n".join(lines)
+    return "\n".join(line for line in lines if line is not None)
 
 
 def _family_tables(records: list[dict]) -> list[str]:
@@ -309,7 +312,9 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--shots", type=int, default=48, help="shots per family")
     parser.add_argument("--seed", type=int, default=11)
-    parser.add_argument("--out", type=Path, default=Path("separation_results.jsonl"))
+    parser.add_argument("--out", type=Path,
+                        help="results file (default separation_results.jsonl, or "
+                             "separation_results_<setting>.jsonl for a run with one set)")
     parser.add_argument("--from", dest="sources", type=Path, nargs="+",
                         help="tables from stored results (one or more files)")
     parser.add_argument("--displacement", type=float,
@@ -321,6 +326,13 @@ def main() -> None:
     parser.add_argument("--family", choices=("both", "kinematic", "physical"), default="both",
                         help="measure one family only (the tables then show that one)")
     args = parser.parse_args()
+    setting, kwargs_set = _set_apart(args)
+    if args.sources and setting:
+        parser.error("--displacement, --seeding and --particles measure anew: not with --from")
+    if args.out is None:
+        tag = "" if setting is None else "_" + "".join(
+            c if c.isalnum() or c in ".-" else "_" for c in setting)
+        args.out = Path(f"separation_results{tag}.jsonl")
     if args.sources:
         records = [json.loads(line) for source in args.sources
                    for line in source.read_text().splitlines()]
@@ -333,7 +345,6 @@ def main() -> None:
             cases += [("kinematic", kw) for kw in kinematic_cases(args.shots, args.seed)]
         if args.family in ("both", "physical"):
             cases += [("physical", kw) for kw in physical_cases(args.shots, args.seed)]
-        setting, kwargs_set = _set_apart(args)
         cases = [(family, {**kw, **kwargs_set}) for family, kw in cases]
         with args.out.open("w") as out:
             for i, (family, kwargs) in enumerate(cases):

@@ -189,16 +189,23 @@ class NearWallBand:
         cost only falls once its motion is within about a particle image of the truth
         everywhere, so with large displacements the cost against the separation angle breaks
         into narrow pits; smoothed frames keep the cost falling toward the truth from further
-        away. (The polar pictures' samples are ``POLAR_STEP_PX`` apart both ways.)
+        away. (The polar pictures' samples are ``POLAR_STEP_PX`` apart both ways.) Samples
+        left out for glare are left out three ``sigma_px`` further: the smoothing spreads the
+        glare's light that far.
         """
         if not sigma_px > 0:
             return self
+        steps = sigma_px / POLAR_STEP_PX
         other = copy.copy(self)
-        other.polar_a = ndimage.gaussian_filter(self.polar_a, sigma_px / POLAR_STEP_PX)
-        other.polar_b = ndimage.gaussian_filter(self.polar_b, sigma_px / POLAR_STEP_PX)
+        other.polar_a = ndimage.gaussian_filter(self.polar_a, steps)
+        other.polar_b = ndimage.gaussian_filter(self.polar_b, steps)
         other._steps_a = _row_steps(other.polar_a)
         other._steps_b = _row_steps(other.polar_b)
         other.scale = float(np.std(other.polar_a)) + 1e-9
+        if self._keep_picture is not None:
+            reach = 2 * math.ceil(3.0 * steps) + 1
+            other._keep_picture = ndimage.minimum_filter(self._keep_picture, reach)
+            other._weight = other._weights()
         return other
 
     @property

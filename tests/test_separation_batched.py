@@ -5,6 +5,8 @@ coarse search's candidates) for speed; these checks hold the batched paths to th
 ones, bit for bit, so that batching cannot move a proposal.
 """
 
+import math
+
 import numba
 import numpy as np
 import pytest
@@ -199,6 +201,27 @@ def test_samples_left_out_for_glare_are_those_near_it_and_count_zero(problem):
     assert 0 < dropped.sum() < dropped.size
     assert distance[dropped].max() <= 2.0 + 1.5
     assert not dropped[distance > 2.0 + 1.5].any()
+
+
+def test_smoothed_band_leaves_out_the_glare_three_sigma_further(problem):
+    # a Gaussian spreads light over about three sigma (common practice: 99.7 % within it)
+    mask = np.zeros((260, 360), dtype=bool)
+    cx, cy = (int(v) for v in problem.band.ball.center_px)
+    mask[cy - 75:cy - 55, cx - 10:cx + 10] = True
+    band = problem.band.view()
+    band.leave_out((mask, None), 2.0)
+    smooth = band.blurred(1.0)
+    flow = problem.flow(problem.start(8.0))
+    sharp_out = band.residual(*flow) == 0.0
+    smooth_out = smooth.residual(*flow) == 0.0
+    assert np.all(smooth_out[sharp_out]) and smooth_out.sum() > sharp_out.sum()
+    # within reach of the sharp band's left-out samples (the square window's corner, 3 sqrt 2
+    # px, and half a px for the samples' spacing)
+    left = np.column_stack([band.phi[sharp_out], band.rho[sharp_out]])
+    arc = np.radians(1.0) * band.rho
+    for k in np.nonzero(smooth_out & ~sharp_out)[0]:
+        distance = np.min(np.hypot((left[:, 0] - band.phi[k]) * arc[k], left[:, 1] - band.rho[k]))
+        assert distance <= 3.0 * math.sqrt(2.0) + 0.5
 
 
 def test_costs_and_scores_of_many_models_equal_one_at_a_time(problem):
