@@ -298,7 +298,7 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
     searched = problem.blurred(COARSE_BLUR * ball.stream)
     starts, start_cost = _coarse_search(searched)
     coarse = searched.view(every=2)  # where the search's costs were taken
-    coarse_attached = float(np.sum(coarse.band.residual(coarse.u_t, coarse.u_r) ** 2))
+    coarse_attached = coarse.attached_cost()
     if not start_cost < (1.0 - MIN_IMPROVEMENT) * coarse_attached:
         return SideProposal(None, None, 0.0, "no separated shear layer next to the ball "
                             "(the attached-flow model fits as well: attached flow?)")
@@ -335,8 +335,7 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
             uncertainty = reach
         remarks.append(remark)
     # how much of the attached flow's misfit the layer takes away, in the fit's own window
-    gain = 1.0 - near.data_cost(best.params) / float(
-        np.sum(near.band.residual(near.u_t, near.u_r) ** 2))
+    gain = 1.0 - near.data_cost(best.params) / near.attached_cost()
     quality = float(np.clip(gain / 0.2, 0.0, 1.0) * np.clip(2.0 / max(uncertainty, 1e-3), 0, 1))
     departure = math.degrees(math.atan(best.params[1]))
     if departure > PRIOR_LEAVE_DEG[1]:

@@ -93,9 +93,13 @@ class SideProblem:
         other.sigma = other.attached_scale()
         return other
 
+    def attached_cost(self) -> float:
+        """Data cost of attached flow: the outer stream down to the wall, no layer."""
+        return float(np.sum(self.band.residual(self.u_t, self.u_r) ** 2))
+
     def attached_scale(self) -> float:
-        """Residual scale from the attached flow's residuals (the outer stream down to the
-        wall, no layer): their root mean square times ``sqrt(SAMPLES_PER_INDEPENDENT)``."""
+        """Residual scale from the attached flow's residuals: their root mean square times
+        ``sqrt(SAMPLES_PER_INDEPENDENT)``."""
         attached = self.band.residual(self.u_t, self.u_r)
         return math.sqrt(np.sum(attached**2) / attached.size * SAMPLES_PER_INDEPENDENT) + 1e-12
 

@@ -183,14 +183,21 @@ def test_band_residual_of_many_models_leaves_the_same_samples_out(problem):
         np.testing.assert_array_equal(many[k], band.residual(u_t[k], u_r[k]))
 
 
-def test_samples_left_out_for_glare_are_those_near_it_and_count_zero(problem):
-    # a glint masked in frame A: the band's samples within reach of it (2 px, plus the lookup's
-    # own pixel) drop out of every residual, and none farther away does
+def _band_beside_a_glint(problem):
+    """A glint masked in frame A above the ball, and the band with the samples near it left
+    out (2 px reach)."""
     mask = np.zeros((260, 360), dtype=bool)
     cx, cy = (int(v) for v in problem.band.ball.center_px)
     mask[cy - 75:cy - 55, cx - 10:cx + 10] = True
     band = problem.band.view()
     band.leave_out((mask, None), 2.0)
+    return mask, band
+
+
+def test_samples_left_out_for_glare_are_those_near_it_and_count_zero(problem):
+    # a glint masked in frame A: the band's samples within reach of it (2 px, plus the lookup's
+    # own pixel) drop out of every residual, and none farther away does
+    mask, band = _band_beside_a_glint(problem)
     residual = band.residual(*problem.flow(problem.start(8.0)))
     dropped = residual == 0.0
     ball = band.ball
@@ -205,11 +212,7 @@ def test_samples_left_out_for_glare_are_those_near_it_and_count_zero(problem):
 
 def test_smoothed_band_leaves_out_the_glare_three_sigma_further(problem):
     # a Gaussian spreads light over about three sigma (common practice: 99.7 % within it)
-    mask = np.zeros((260, 360), dtype=bool)
-    cx, cy = (int(v) for v in problem.band.ball.center_px)
-    mask[cy - 75:cy - 55, cx - 10:cx + 10] = True
-    band = problem.band.view()
-    band.leave_out((mask, None), 2.0)
+    _, band = _band_beside_a_glint(problem)
     smooth = band.blurred(1.0)
     flow = problem.flow(problem.start(8.0))
     sharp_out = band.residual(*flow) == 0.0
