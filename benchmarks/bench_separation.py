@@ -21,14 +21,16 @@ Run (about 5-10 minutes on 2 cores for the default 48 + 48 shots):
     .venv/bin/python benchmarks/bench_separation.py --write
     .venv/bin/python benchmarks/bench_separation.py --from results.jsonl --write
 
-``--displacement PX``, ``--seeding PPP`` and ``--particles LO HI`` measure the same shots with
-that condition set for every shot instead of the family's own draw; ``--from`` takes several
+``--displacement PX``, ``--seeding PPP``, ``--particles LO HI`` and ``--magnify F`` (ball and
+frame F times larger in px) measure the same shots with that condition set for every shot
+instead of the family's own draw; ``--from`` takes several
 files, and such runs get their own table.
 """
 
 from __future__ import annotations
 
 import argparse
+import inspect
 import json
 import math
 import sys
@@ -197,8 +199,8 @@ def _both_families(records: list[dict]) -> bool:
 
 def tables(records: list[dict]) -> str:
     """The markdown tables of the benchmark: the families as drawn, then the runs with
-    conditions set apart (``--displacement``, ``--seeding``, ``--particles``), each setting in
-    its own rows."""
+    conditions set apart (``--displacement``, ``--seeding``, ``--particles``, ``--magnify``),
+    each setting in its own rows."""
     drawn = [r for r in records if r.get("setting") is None]
     lines = _family_tables(drawn) if drawn else []
     moved = [r for r in records if r.get("setting") is not None]
@@ -305,7 +307,23 @@ def _set_apart(args) -> tuple[str | None, dict]:
         lo, hi = args.particles
         labels.append(f"particle images {lo:g}-{hi:g} px")
         kwargs["diameter_px"] = (lo, hi)
+    if args.magnify is not None:
+        labels.append(f"ball and frame x{args.magnify:g}")
     return (", ".join(labels) or None), kwargs
+
+
+def magnified(family: str, kwargs: dict, factor: float) -> dict:
+    """A case with the ball's radius and the frame (rounded to 16 px) ``factor`` times larger in
+    pixels, all else as drawn: a larger ball in the picture. Both families draw the layer's
+    thickness, the displacement and the particle images in pixels, and those stay (the
+    physical family reaches its layer through the speed, so its Reynolds number grows)."""
+    if family == "kinematic":
+        from core.synth_shot import ball_shot as generator
+    else:
+        from core.synth_physical import physical_shot as generator
+    shape = kwargs.get("shape") or inspect.signature(generator).parameters["shape"].default
+    return {**kwargs, "radius_px": factor * kwargs["radius_px"],
+            "shape": tuple(16 * round(factor * n / 16) for n in shape)}
 
 
 def main() -> None:
@@ -322,13 +340,16 @@ def main() -> None:
     parser.add_argument("--seeding", type=float, help="particles per pixel for every shot")
     parser.add_argument("--particles", type=float, nargs=2, metavar=("LO", "HI"),
                         help="range of the particle images' diameters (px) for every shot")
+    parser.add_argument("--magnify", type=float,
+                        help="ball radius and frame this many times larger in px for every shot")
     parser.add_argument("--write", action="store_true", help="write docs/separation_accuracy.md")
     parser.add_argument("--family", choices=("both", "kinematic", "physical"), default="both",
                         help="measure one family only (the tables then show that one)")
     args = parser.parse_args()
     setting, kwargs_set = _set_apart(args)
     if args.sources and setting:
-        parser.error("--displacement, --seeding and --particles measure anew: not with --from")
+        parser.error("--displacement, --seeding, --particles and --magnify measure anew: not "
+                     "with --from")
     if args.out is None:
         tag = "" if setting is None else "_" + "".join(
             c if c.isalnum() or c in ".-" else "_" for c in setting)
@@ -346,6 +367,8 @@ def main() -> None:
         if args.family in ("both", "physical"):
             cases += [("physical", kw) for kw in physical_cases(args.shots, args.seed)]
         cases = [(family, {**kw, **kwargs_set}) for family, kw in cases]
+        if args.magnify is not None:
+            cases = [(family, magnified(family, kw, args.magnify)) for family, kw in cases]
         with args.out.open("w") as out:
             for i, (family, kwargs) in enumerate(cases):
                 for rec in measure_case(family, kwargs, setting):
