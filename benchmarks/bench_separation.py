@@ -209,8 +209,9 @@ def tables(records: list[dict]) -> str:
                   ("The same shots with conditions set apart from the families' own draw "
                    "(ball displacement 8 px (kinematic) or 8-10 px (physical), seeding 0.06 "
                    "(kinematic) or 0.03-0.07 ppp (physical), particle images 2-3.2 px "
-                   "(kinematic) or 1.5-4 px (physical); `--displacement`, `--seeding`, "
-                   "`--particles`):"), "",
+                   "(kinematic) or 1.5-4 px (physical), ball radius 150-250 px in 1024 x 768 "
+                   "frames (kinematic) or 150-260 px in 1280 x 1024 (physical); "
+                   "`--displacement`, `--seeding`, `--particles`, `--magnify`):"), "",
                   ("| family | set | condition | sides | refused | median abs error (deg) | "
                    "max (deg) | coverage |"), "|---|---|---|---|---|---|---|---|"]
         for family in ("kinematic", "physical"):

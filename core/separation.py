@@ -73,9 +73,6 @@ FIT_WINDOW_DEG = (-25.0, 40.0)
 #: Depth (layer thicknesses) to which the dividing line's place below the layer is uncertain
 #: (calibrated: docs/separation_accuracy.md).
 EXTRAPOLATION_DEPTH = 0.2
-#: A fitted slope (tan of the departure) under this lies at the fit's tangential bound (0):
-#: :func:`extrapolation_deg`.
-TANGENTIAL_SLOPE = 1e-3
 #: Evaluations of the model (``max_nfev``: each step's, besides its Jacobian) of the main
 #: refinement and of each refit from its result.
 REFINE_ITERATIONS = 15
@@ -545,17 +542,9 @@ def extrapolation_deg(params, radius_px: float) -> float:
     an arc of ``atan2(s cos(beta), R + s sin(beta))`` on the wall: ``s`` is about
     ``h / tan(beta)`` for a steep layer, and for a tangential one, whose start the data place
     worst, the wall's own curving away bounds it at ``sqrt(2 R h)``.
-
-    A layer fitted lying along the wall, its departure held at the fit's tangential bound (a
-    slope under ``TANGENTIAL_SLOPE``), would have been fitted flatter still: its slope is the
-    bound's, not the data's, and nothing the data see places its dividing line above the band's
-    first row. ``h`` is then at least ``BAND_FIRST_GAP_PX``.
     """
-    slope = max(float(params[1]), 0.0)
-    beta = math.atan(slope)
+    beta = math.atan(max(float(params[1]), 0.0))
     depth = EXTRAPOLATION_DEPTH * math.exp(params[3])
-    if slope < TANGENTIAL_SLOPE:
-        depth = max(depth, BAND_FIRST_GAP_PX)
     rise = radius_px * math.sin(beta)
     along = -rise + math.sqrt(rise * rise + 2.0 * radius_px * depth + depth * depth)
     return math.degrees(math.atan2(along * math.cos(beta), radius_px + along * math.sin(beta)))

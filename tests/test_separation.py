@@ -16,10 +16,8 @@ from core.geometry import angle_of_point
 from core.layer_model import SideGeometry, centre_offset, dividing_line_px, profile, side_flow
 from core.results import SideProposal
 from core.separation import (
-    BAND_FIRST_GAP_PX,
     COVERAGE_K,
     EXTRAPOLATION_DEPTH,
-    TANGENTIAL_SLOPE,
     extrapolation_deg,
     layer_curves,
     wake_state,
@@ -136,20 +134,6 @@ def test_a_near_tangential_layer_reports_a_wide_uncertainty():
     assert abs(shallow.angle_deg - truth.upper_deg) <= shallow.uncertainty_deg
 
 
-def test_a_layer_fitted_along_the_wall_is_not_placed_more_surely_than_the_band_sees():
-    # the physical family's first shot of seed 11 moved 15 px between the frames: its lower
-    # layer leaves Thwaites' separation point at 0.8 deg, the fit lays it along the wall (the
-    # slope at its bound) and picks it 7.2 deg late. With the dividing line's depth only the
-    # layer's own (0.4 px) that side stated 5.0 deg; the band's first row (2 px) hides more
-    from core.synth_physical import physical_cases
-
-    result, truth = _measure(physical_shot(**physical_cases(1, 11)[0], shift_px=15.0))
-    lower = result.separation.lower
-    assert lower.departure_deg == 0.0
-    assert abs(lower.angle_deg - truth.lower_deg) > 5.0
-    assert abs(lower.angle_deg - truth.lower_deg) <= lower.uncertainty_deg
-
-
 def test_glare_over_the_separation_point_widens_the_uncertainty_across_it():
     # a glint where the sheet meets a white ball, right where the lower layer leaves the wall
     # (a thick layer; 8-bit camera): the saturated pixels hide the wall there (common practice:
@@ -239,8 +223,6 @@ def test_extrapolation_is_the_arc_over_which_a_straight_line_rises_through_the_d
     # centre is R + h; the arc on the circle up to that point is the extrapolation entry
     radius, layer = 200.0, 5.0
     depth = EXTRAPOLATION_DEPTH * layer
-    if departure_deg == 0.0:  # at the fit's tangential bound: at least the band's first gap
-        depth = max(depth, BAND_FIRST_GAP_PX)
     beta = math.radians(departure_deg)
     s = np.linspace(0.0, 200.0, 2_000_001)
     x, y = s * math.cos(beta), radius + s * math.sin(beta)  # from (0, R), tangent along +x
@@ -251,22 +233,6 @@ def test_extrapolation_is_the_arc_over_which_a_straight_line_rises_through_the_d
     if departure_deg >= 10.0:  # a steep line: depth over slope
         assert extrapolation_deg(params, radius) == pytest.approx(
             math.degrees(depth / (radius * math.tan(beta))), rel=0.1)
-
-
-def test_a_layer_held_at_the_tangential_bound_may_hide_under_the_band_first_row():
-    # a fitted slope at the bound (0) is the bound's, not the data's: the dividing line may lie
-    # anywhere under the band's first row, so the depth is at least that gap; a layer that
-    # leaves the wall, however shallowly, keeps its own depth (geometry as in the test above)
-    radius, layer = 200.0, 2.0  # 0.2 x 2 px = 0.4 px, under the first gap
-    at_bound = extrapolation_deg([0.0, 1e-10, 1.0, math.log(layer)], radius)
-    assert at_bound == pytest.approx(
-        math.degrees(math.atan2(math.sqrt(2 * radius * BAND_FIRST_GAP_PX + BAND_FIRST_GAP_PX**2),
-                                radius)), abs=1e-6)
-    leaving = extrapolation_deg([0.0, math.tan(math.radians(1.0)), 1.0, math.log(layer)], radius)
-    assert leaving < 0.5 * at_bound
-    thick = 20.0  # 0.2 x 20 px = 4 px, beyond the first gap: its own depth either way
-    assert extrapolation_deg([0.0, 0.0, 1.0, math.log(thick)], radius) == pytest.approx(
-        extrapolation_deg([0.0, TANGENTIAL_SLOPE, 1.0, math.log(thick)], radius), rel=0.05)
 
 
 def test_an_alternative_that_changes_nothing_moves_the_angle_by_nothing(monkeypatch):
