@@ -21,10 +21,10 @@ Run (about 5-10 minutes on 2 cores for the default 48 + 48 shots):
     .venv/bin/python benchmarks/bench_separation.py --write
     .venv/bin/python benchmarks/bench_separation.py --from results.jsonl --write
 
-``--displacement PX``, ``--seeding PPP``, ``--particles LO HI`` and ``--magnify F`` (ball and
-frame F times larger in px) measure the same shots with that condition set for every shot
-instead of the family's own draw; ``--from`` takes several
-files, and such runs get their own table.
+``--displacement PX``, ``--seeding PPP``, ``--particles LO HI``, ``--magnify F`` (ball and
+frame F times larger in px) and ``--tilt DEG`` (flight direction turned) measure the same shots
+with that condition set for every shot instead of the family's own draw; ``--from`` takes
+several files, and such runs get their own table.
 """
 
 from __future__ import annotations
@@ -199,8 +199,8 @@ def _both_families(records: list[dict]) -> bool:
 
 def tables(records: list[dict]) -> str:
     """The markdown tables of the benchmark: the families as drawn, then the runs with
-    conditions set apart (``--displacement``, ``--seeding``, ``--particles``, ``--magnify``),
-    each setting in its own rows."""
+    conditions set apart (``--displacement``, ``--seeding``, ``--particles``, ``--magnify``,
+    ``--tilt``), each setting in its own rows."""
     drawn = [r for r in records if r.get("setting") is None]
     lines = _family_tables(drawn) if drawn else []
     moved = [r for r in records if r.get("setting") is not None]
@@ -211,7 +211,8 @@ def tables(records: list[dict]) -> str:
                    "(kinematic) or 0.03-0.07 ppp (physical), particle images 2-3.2 px "
                    "(kinematic) or 1.5-4 px (physical), ball radius 150-250 px in 1024 x 768 "
                    "frames (kinematic) or 150-260 px in 1280 x 1024 (physical); "
-                   "`--displacement`, `--seeding`, `--particles`, `--magnify`):"), "",
+                   "flight within 5 deg of the picture's rows; `--displacement`, `--seeding`, "
+                   "`--particles`, `--magnify`, `--tilt`):"), "",
                   ("| family | set | condition | sides | refused | median abs error (deg) | "
                    "max (deg) | coverage |"), "|---|---|---|---|---|---|---|---|"]
         for family in ("kinematic", "physical"):
@@ -310,6 +311,8 @@ def _set_apart(args) -> tuple[str | None, dict]:
         kwargs["diameter_px"] = (lo, hi)
     if args.magnify is not None:
         labels.append(f"ball and frame x{args.magnify:g}")
+    if args.tilt is not None:
+        labels.append(f"flight tilted {args.tilt:g} deg")
     return (", ".join(labels) or None), kwargs
 
 
@@ -343,14 +346,16 @@ def main() -> None:
                         help="range of the particle images' diameters (px) for every shot")
     parser.add_argument("--magnify", type=float,
                         help="ball radius and frame this many times larger in px for every shot")
+    parser.add_argument("--tilt", type=float,
+                        help="flight direction turned by this many degrees for every shot")
     parser.add_argument("--write", action="store_true", help="write docs/separation_accuracy.md")
     parser.add_argument("--family", choices=("both", "kinematic", "physical"), default="both",
                         help="measure one family only (the tables then show that one)")
     args = parser.parse_args()
     setting, kwargs_set = _set_apart(args)
     if args.sources and setting:
-        parser.error("--displacement, --seeding, --particles and --magnify measure anew: not "
-                     "with --from")
+        parser.error("--displacement, --seeding, --particles, --magnify and --tilt measure "
+                     "anew: not with --from")
     if args.out is None:
         tag = "" if setting is None else "_" + "".join(
             c if c.isalnum() or c in ".-" else "_" for c in setting)
@@ -370,6 +375,9 @@ def main() -> None:
         cases = [(family, {**kw, **kwargs_set}) for family, kw in cases]
         if args.magnify is not None:
             cases = [(family, magnified(family, kw, args.magnify)) for family, kw in cases]
+        if args.tilt is not None:  # counter-clockwise on screen
+            cases = [(family, {**kw, "flight_deg": (kw["flight_deg"] + args.tilt) % 360.0})
+                     for family, kw in cases]
         with args.out.open("w") as out:
             for i, (family, kwargs) in enumerate(cases):
                 for rec in measure_case(family, kwargs, setting):
