@@ -47,6 +47,8 @@ from core.separation import COVERAGE, COVERAGE_K
 from core.shot import ShotSettings, measure_shot
 from core.wake import WAKE_COVERAGE_K
 
+#: The seed of the shots the tables as drawn are of.
+TABLE_SEED = 11
 #: The issue's accuracy target applies to layers of 1.5-9 px, departures 5-20 deg, R >= 150 px.
 TARGET_DEPARTURE_DEG = (5.0, 20.0)
 
@@ -212,7 +214,9 @@ def tables(records: list[dict]) -> str:
                    "(kinematic) or 1.5-4 px (physical), ball radius 150-250 px in 1024 x 768 "
                    "frames (kinematic) or 150-260 px in 1280 x 1024 (physical); "
                    "flight within 5 deg of the picture's rows; `--displacement`, `--seeding`, "
-                   "`--particles`, `--magnify`, `--tilt`):"), "",
+                   "`--particles`, `--magnify`, `--tilt`), and other shots of the same draw "
+                   "(`--seed`; the tables above are of seed 11, measured again and again while "
+                   "the method was developed):"), "",
                   ("| family | set | condition | sides | refused | median abs error (deg) | "
                    "max (deg) | coverage |"), "|---|---|---|---|---|---|---|---|"]
         for family in ("kinematic", "physical"):
@@ -313,6 +317,10 @@ def _set_apart(args) -> tuple[str | None, dict]:
         labels.append(f"ball and frame x{args.magnify:g}")
     if args.tilt is not None:
         labels.append(f"flight tilted {args.tilt:g} deg")
+    if args.seed != TABLE_SEED:
+        # shots the method was never looked at on: the tables' own seed was measured again and
+        # again while it was developed
+        labels.append(f"other shots (seed {args.seed})")
     return (", ".join(labels) or None), kwargs
 
 
@@ -333,7 +341,8 @@ def magnified(family: str, kwargs: dict, factor: float) -> dict:
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--shots", type=int, default=48, help="shots per family")
-    parser.add_argument("--seed", type=int, default=11)
+    parser.add_argument("--seed", type=int, default=TABLE_SEED,
+                        help=f"seed of the families' draw (another than {TABLE_SEED} is set apart)")
     parser.add_argument("--out", type=Path,
                         help="results file (default separation_results.jsonl, or "
                              "separation_results_<setting>.jsonl for a run with one set)")
