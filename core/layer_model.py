@@ -17,7 +17,11 @@ outline) with the stream outside it ``U(phi, gap)`` from the PIV vectors:
   line touches the wall: zero wall shear. Behind it the dividing line leaves the wall at the
   departure angle ``atan(slope)`` from the tangent and turns toward the wake's direction over
   the arc length ``L``; the layer thickens linearly at the spreading rate ``k`` of a plane
-  mixing layer;
+  mixing layer. Which of its lines keeps to that path is not known (a mixing layer grows into
+  both streams): with ``outward_growth`` 1 the dividing line does, the layer growing outward
+  and its centre rising by ``c`` times the growth; with 0 the centre does, the layer growing
+  evenly about it and the dividing line sinking toward the wall by as much (into it, the
+  reverse flow hidden, where the path is shallow);
 - the flow inside the layer may follow it: it gains the radial part ``f u dZ/ds`` of the
   rising dividing line, with ``f`` between 0 (the flow keeps along the wall) and 1 (it runs
   along the layer, as streamlines near the dividing streamline do).
@@ -60,6 +64,8 @@ class SideGeometry:
     # the near-wall model's form (the model-form check refits with them halved and doubled)
     upstream_deg: float = UPSTREAM_DEG
     wall_fraction: float = WALL_FRACTION
+    outward_growth: float = 1.0  # share of the layer's growth behind separation that lifts its
+    # centre off the dividing line (1: the dividing line keeps to the path; 0: the centre does)
 
 
 def profile(x: np.ndarray, shape: str = "erf") -> np.ndarray:
@@ -191,7 +197,7 @@ def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, sh
     c = np.array([[centre_offset(float(v), shape)] for v in reverse[:, 0]])
     ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / geom.upstream_deg)  # 0 at/behind phi_s
     delta = delta_s * (1.0 - thin * ramp) + spread * behind
-    centre = lift + c * delta * (1.0 - drop * ramp)
+    centre = lift + c * (delta - (1.0 - geom.outward_growth) * spread * behind) * (1.0 - drop * ramp)
     wall_px = geom.wall_fraction * delta_s * (1.0 - thin * ramp)
     # the error functions and exponentials are most of the cost: each is computed once for the
     # models that share what it depends on (a Jacobian's columns for follow, k_t and k_r share

@@ -6,6 +6,8 @@ wall is fitted to the particle images themselves, in the ball frame, in a thin b
 outline (:mod:`core.near_wall`): the model of :mod:`core.layer_model` (an attached layer whose
 dividing line touches the wall at ``phi_s`` and then lifts off as a free shear layer that
 thickens downstream), with the stream outside it from the finer PIV vectors beside the ball.
+The layer is fitted in both of its forms (``LAYER_FORMS``: whether its dividing line or its
+centre keeps to the departure path) and the better-scoring fit kept.
 
 The model's priors, all in physical units, and the least-squares refinement are in
 :mod:`core.side_fit`.
@@ -92,6 +94,10 @@ COARSE_CANDIDATES = 2
 #: Refinements run from this many starting points of the coarse search (the best wins): the
 #: image-matching cost has several shallow minima along the outline.
 REFINE_STARTS = 2
+#: The layer's forms fitted (``SideGeometry.outward_growth``): its growth behind separation
+#: all outward of the dividing line, which keeps to the departure path, or evenly about its
+#: centre, which keeps to it; the better-scoring fit's form is kept.
+LAYER_FORMS = (1.0, 0.0)
 #: The search for starting points sees the frames smoothed by a Gaussian of this fraction of
 #: the ball's speed relative to the air (px per pair; :meth:`NearWallBand.blurred`).
 COARSE_BLUR = 0.0625
@@ -294,28 +300,33 @@ def fit_shots_side(pairs, ball: BallFrame, fine: VectorField, origin_px, side: s
 def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> SideProposal:
     """The fit of one side's problem: coarse search, refinements, the uncertainty budget."""
     problem.sigma = problem.attached_scale()
-    # the search for starting points looks at smoothed frames (coarse to fine)
-    searched = problem.blurred(COARSE_BLUR * ball.stream)
-    starts, start_cost = _coarse_search(searched)
-    coarse = searched.view(every=2)  # where the search's costs were taken
-    coarse_attached = coarse.attached_cost()
+    starts, start_cost = [], math.inf
+    for form in (problem.with_growth(growth) for growth in LAYER_FORMS):
+        # the search for starting points looks at smoothed frames (coarse to fine)
+        searched = form.blurred(COARSE_BLUR * ball.stream)
+        found, cost = _coarse_search(searched)
+        starts += [(form, start) for start in found]
+        start_cost = min(start_cost, cost)
+    coarse_attached = searched.view(every=2).attached_cost()  # where the search's costs were taken
     if not start_cost < (1.0 - MIN_IMPROVEMENT) * coarse_attached:
         return SideProposal(None, None, 0.0, "no separated shear layer next to the ball "
                             "(the attached-flow model fits as well: attached flow?)")
     fits = []
-    for start in starts:
-        near = problem.view((start[0] + FIT_WINDOW_DEG[0], start[0] + FIT_WINDOW_DEG[1]))
+    for form, start in starts:
+        near = form.view((start[0] + FIT_WINDOW_DEG[0], start[0] + FIT_WINDOW_DEG[1]))
         fits.append((refine(near, start, max_nfev=REFINE_ITERATIONS), near))
     # the fits saw different windows: compare them on the samples all of them saw
     angles = [fit.params[0] for fit, _ in fits]
-    common = problem.view((max(angles) + FIT_WINDOW_DEG[0], min(angles) + FIT_WINDOW_DEG[1]))
-    scores = np.array([common.score(fit.params) for fit, _ in fits])
+    shared = (max(angles) + FIT_WINDOW_DEG[0], min(angles) + FIT_WINDOW_DEG[1])
+    scores = np.array([problem.with_growth(near.outward_growth).view(shared).score(fit.params)
+                       for fit, near in fits])
     chosen = int(np.argmin(scores))
     best, near = fits[chosen]
     best, rises = _settled(near, best)
     phi_s = float(best.params[0])
     # the settled fit stands where the chosen one stood (it scores at least as well on its
     # own window; on the shared samples it keeps the chosen one's standing if that was better)
+    common = problem.with_growth(near.outward_growth).view(shared)
     angles[chosen], scores[chosen] = phi_s, min(scores[chosen], common.score(best.params))
     if phi_s > LATEST_DEG:
         return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "
@@ -342,7 +353,8 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
         remarks.append("the layer leaves unusually steeply: check the proposal")
     remark = "; ".join(remarks)
     layer = {name: round(float(v), 5) for name, v in zip(PARAM_NAMES, best.params, strict=True)}
-    layer.update(final_deg=round(final_deg, 3), band_first_gap_px=BAND_FIRST_GAP_PX,
+    layer.update(final_deg=round(final_deg, 3), outward_growth=near.outward_growth,
+                 band_first_gap_px=BAND_FIRST_GAP_PX,
                  band_last_gap_px=float(problem.band.gap_grid[-1]),
                  window_deg=[round(float(v), 3) for v in near.band.phi_grid[[0, -1]]])
     return SideProposal(round(phi_s, 2), round(uncertainty, 2), round(quality, 3), remark,
@@ -572,8 +584,11 @@ def layer_curves(center_px, radius_px: float, flight_deg: float, side: str, laye
     phi = np.arange(phi_s, phi_s + reach_deg + step_deg / 2, step_deg)
     lift = dividing_line_px(radius_px, phi_s, layer["slope"], layer["relax"] * radius_px, phi,
                             layer.get("final_deg", 0.0))
-    delta = math.exp(layer["log_delta"]) + layer["spread"] * np.radians(phi - phi_s) * radius_px
-    centre = lift + centre_offset(layer["reverse"]) * delta
+    # the centre lies the profile's offset above the dividing line, times the thickness at
+    # separation and the share of the growth since that lifts it (SideGeometry.outward_growth)
+    grown = layer["spread"] * np.radians(phi - phi_s) * radius_px
+    lifted = math.exp(layer["log_delta"]) + layer.get("outward_growth", 1.0) * grown
+    centre = lift + centre_offset(layer["reverse"]) * lifted
     lo, hi = layer["window_deg"]
     band_phi = np.arange(lo, hi + step_deg / 2, step_deg)
     inner = np.full(band_phi.shape, radius_px + layer["band_first_gap_px"])

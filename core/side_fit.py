@@ -72,10 +72,12 @@ class SideProblem:
     final_deg: float  # the wake's direction on this side
     log_delta_prior: float  # ln of the prior median thickness (px)
     sigma: float = 1.0  # residual scale
+    outward_growth: float = 1.0  # the layer's form: :class:`~core.layer_model.SideGeometry`
 
     def __post_init__(self):
         self.geom = SideGeometry(self.band.ball.radius_px, self.band.phi_grid,
-                                 self.band.gap_grid, self.final_deg)
+                                 self.band.gap_grid, self.final_deg,
+                                 outward_growth=self.outward_growth)
         self.u_t = self.outer.tangential(self.band.phi, self.band.gap)
         self.u_r = self.outer.radial(self.band.phi, self.band.gap)
 
@@ -83,15 +85,20 @@ class SideProblem:
         """The same problem on fewer samples (:meth:`NearWallBand.view`); the residual scale
         follows the decimation so that the data weigh the same against the priors."""
         return SideProblem(self.band.view(phi_deg, every=every), self.outer, self.final_deg,
-                           self.log_delta_prior, self.sigma / every)
+                           self.log_delta_prior, self.sigma / every, self.outward_growth)
 
     def blurred(self, sigma_px: float) -> SideProblem:
         """The same problem on smoothed frames (:meth:`NearWallBand.blurred`), its residual
         scale from its own attached flow (:meth:`attached_scale`)."""
         other = SideProblem(self.band.blurred(sigma_px), self.outer, self.final_deg,
-                            self.log_delta_prior)
+                            self.log_delta_prior, outward_growth=self.outward_growth)
         other.sigma = other.attached_scale()
         return other
+
+    def with_growth(self, outward_growth: float) -> SideProblem:
+        """The same problem under the other form of the layer (``outward_growth``)."""
+        return SideProblem(self.band, self.outer, self.final_deg, self.log_delta_prior,
+                           self.sigma, outward_growth)
 
     def attached_cost(self) -> float:
         """Data cost of attached flow: the outer stream down to the wall, no layer."""
