@@ -333,6 +333,12 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
                             "(attached flow?)")
     budget = _uncertainty_budget(near, best, ball, rises)
     budget["other minimum"] = _other_minima(angles, scores, phi_s)
+    # which of the layer's lines keeps to its path is not known: how far the angle moves to the
+    # other form's best fit is a model-form uncertainty like the refits' (unweighted)
+    other = [k for k, (_, fit_near) in enumerate(fits)
+             if fit_near.outward_growth != near.outward_growth]
+    if other:
+        budget["layer form"] = abs(angles[min(other, key=lambda k: scores[k])] - phi_s)
     standard = math.sqrt(sum(v * v for v in budget.values()))
     uncertainty = COVERAGE_K * standard
     remarks = []
