@@ -210,8 +210,8 @@ def tables(records: list[dict]) -> str:
     lines = _family_tables(drawn) if drawn else []
     moved = [r for r in records if r.get("setting") is not None]
     if moved:
-        lines += ["" if lines else None,
-                  ("The first shots of each family's draw (half the sides counted) with conditions "
+        lines += [""] if lines else []
+        lines += [("The first shots of each family's draw (half the sides counted) with conditions "
                    "set apart from its own draw "
                    "(ball displacement 8 px (kinematic) or 8-10 px (physical), seeding 0.06 "
                    "(kinematic) or 0.03-0.07 ppp (physical), particle images 2-3.2 px "
@@ -234,7 +234,7 @@ def tables(records: list[dict]) -> str:
                     lines.append(f"| {family} | {setting} | {row} | {s['n']} | {s['refused']} "
                                  f"| {_num(s['median'])} | {_num(s['max'])} "
                                  f"| {_num(s['coverage'], '{:.0%}')} |")
-    return "\n".join(line for line in lines if line is not None)
+    return "\n".join(lines)
 
 
 def _family_tables(records: list[dict]) -> list[str]:

@@ -318,16 +318,16 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
     # the fits saw different windows: compare them on the samples all of them saw
     angles = [fit.params[0] for fit, _ in fits]
     shared = (max(angles) + FIT_WINDOW_DEG[0], min(angles) + FIT_WINDOW_DEG[1])
-    scores = np.array([problem.with_growth(near.outward_growth).view(shared).score(fit.params)
-                       for fit, near in fits])
+    common = {growth: problem.with_growth(growth).view(shared) for growth in LAYER_FORMS}
+    scores = np.array([common[near.outward_growth].score(fit.params) for fit, near in fits])
     chosen = int(np.argmin(scores))
     best, near = fits[chosen]
     best, rises = _settled(near, best)
     phi_s = float(best.params[0])
     # the settled fit stands where the chosen one stood (it scores at least as well on its
     # own window; on the shared samples it keeps the chosen one's standing if that was better)
-    common = problem.with_growth(near.outward_growth).view(shared)
-    angles[chosen], scores[chosen] = phi_s, min(scores[chosen], common.score(best.params))
+    angles[chosen], scores[chosen] = phi_s, min(scores[chosen],
+                                                common[near.outward_growth].score(best.params))
     if phi_s > LATEST_DEG:
         return SideProposal(None, None, 0.0, "no separation ahead of the rear of the ball "
                             "(attached flow?)")
