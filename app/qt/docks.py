@@ -3,6 +3,7 @@ tab behind another panel included); only a panel already in front is put away by
 
 from __future__ import annotations
 
+import shiboken6
 from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import QDockWidget, QMainWindow, QTabBar
 
@@ -40,7 +41,9 @@ def dock_action(window: QMainWindow, dock: QDockWidget, text: str, tip: str = ""
         action.setToolTip(tip)
 
     def follow(*_args) -> None:
-        action.setChecked(in_front(window, dock))
+        # a panel hidden while the window is being destroyed (Python's exit) says so too late
+        if shiboken6.isValid(window) and shiboken6.isValid(action):
+            action.setChecked(in_front(window, dock))
 
     def choose(_checked: bool = False) -> None:
         # the action's tick flipped already; whether the panel was in front decides
