@@ -16,7 +16,7 @@ The uncertainty combines, as standard uncertainties: the fit's own standard erro
 circle's error (refit with the radius moved by its uncertainty), the flight direction's (one to
 one), the model form (refit with the alternative layer profile, and with the near-wall model's
 form constants halved and doubled) and the priors' leverage (refit with the thickness prior's
-median halved and doubled). The reported ``uncertainty_deg`` is
+laminar thickness, where its range starts, halved and doubled). The reported ``uncertainty_deg`` is
 ``COVERAGE_K`` times their root sum of squares: an interval meant to cover the truth in at
 least ``COVERAGE`` of cases, calibrated on one family of synthetic shots and checked on the
 other (docs/separation_accuracy.md).
@@ -51,7 +51,7 @@ from core.side_fit import PRIOR_LEAVE_DEG, Fit, SideProblem, refine
 from core.wake import wake_direction, wake_state
 
 #: Band along the outline where the layer is fitted: first gap (px) outside the outline; the
-#: last one is ``BAND_DEPTH`` times the prior's upper thickness (twice its median), within
+#: last one is ``BAND_DEPTH`` times twice the laminar thickness (where the thickness prior starts), within
 #: ``BAND_LAST_GAP_PX``.
 BAND_FIRST_GAP_PX = 2.0
 #: Spacing of the band's samples along the outline (px); rows are 0.5 px apart near the wall.
@@ -87,7 +87,7 @@ PROFILE_MAX_DEG = 20.0
 #: gone (it stops after ``REFINE_ITERATIONS`` in a rough landscape): the fit moves there and is
 #: refined again, at most this many times.
 PROFILE_MOVES = 3
-#: Thicknesses (over the prior's median) tried by the coarse search, and how many of its first
+#: Thicknesses (over the laminar one) tried by the coarse search, and how many of its first
 #: stage's best angles are searched further.
 COARSE_THICKNESS = (1.0, 3.0)
 COARSE_CANDIDATES = 2
@@ -153,7 +153,8 @@ class BallFrame:
                           tuple(self.displacement_px), float(self.flight_deg))
 
     def laminar_delta_px(self) -> float:
-        """Prior median of the layer's vorticity thickness at separation (px)."""
+        """The laminar layer's vorticity thickness at separation (px): where the thickness
+        prior's range starts (:data:`core.side_fit.PRIOR_THICKER`)."""
         re = self.reynolds if self.reynolds and self.reynolds > 0 else FALLBACK_REYNOLDS
         return LAMINAR_DELTA_COEF * 2.0 * self.radius_px / math.sqrt(re)
 
@@ -500,8 +501,8 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame,
     Each other source is how far the angle moves when the fit is redone from the best fit
     (:func:`_refit_shift`) under: the circle's radius moved by its standard uncertainty both
     ways (half the spread; a centre error moves the outline by as much radially), the model's
-    form (:func:`_model_form_shift`), the thickness prior's median halved and doubled (the
-    larger move). Refits, not linear steps: one Gauss-Newton step from the best fit tracked
+    form (:func:`_model_form_shift`), the laminar thickness where the thickness prior's range
+    starts halved and doubled (the larger move). Refits, not linear steps: one Gauss-Newton step from the best fit tracked
     the refits' moves poorly on both synthetic families (correlation 0.3 and under; it moved
     the angle by about 0.1 deg even with nothing changed, the Jacobian being nearly singular
     along the poorly determined parameters), while refits of ``ALTERNATIVE_ITERATIONS``

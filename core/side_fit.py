@@ -6,12 +6,15 @@ the ball (:mod:`core.near_wall`), the stream outside the layer, and the priors o
 departure from a later one, nor a thicker layer from a later one, so the model's shape
 parameters carry them:
 
-- the layer's vorticity thickness at separation, ``ln(delta / delta_lam) = 0 +- 0.7``, with
-  ``delta_lam = 1.5 D / sqrt(Re)`` in px (the laminar layer scales as ``D / sqrt(Re)``;
-  Thwaites' separation criterion ``lambda = -0.09`` with an adverse edge-velocity gradient of
-  about ``-0.45 U / R`` gives ``theta = 0.32 D / sqrt(Re)``, and a separating profile's vorticity
-  thickness is about 4.9 ``theta``: derived, docs/references.md). The prior is wide (a factor of
-  two) because tripped, turbulent layers are thicker;
+- the layer's vorticity thickness at separation: any from the laminar layer's ``delta_lam``
+  to ``PRIOR_THICKER`` times it alike, thinner ones falling off as ``ln(delta / delta_lam)``
+  over 0.7, thicker ones as its excess over ``ln PRIOR_THICKER`` over 0.7; ``delta_lam = 1.5 D /
+  sqrt(Re)`` in px (the laminar layer scales as ``D / sqrt(Re)``; Thwaites' separation
+  criterion ``lambda = -0.09`` with an adverse edge-velocity gradient of about ``-0.45 U / R``
+  gives ``theta = 0.32 D / sqrt(Re)``, and a separating profile's vorticity thickness is about
+  4.9 ``theta``: derived, docs/references.md). Thicker layers are as likely as the laminar
+  one: a turbulent layer is 2-3 times thicker at these Reynolds numbers, and the particle
+  images smear a thin layer in the pictures;
 - its spreading behind separation, ``d delta / ds = 0.18 (1 + r) / (1 - r) +- 0.04 (...)`` for a
   mixing layer between the stream and the reverse flow ``-r U`` (Brown & Roshko 1974, memory:
   0.14-0.22 quoted);
@@ -34,9 +37,15 @@ from scipy.optimize import least_squares
 from core.layer_model import PARAM_NAMES, SideGeometry, side_flow
 from core.near_wall import NearWallBand, OuterStream
 
-#: The prior's spread of ``ln delta`` (the thickness at separation; its median: the ball's
-#: laminar thickness, ``core.separation.BallFrame.laminar_delta_px``).
+#: The prior's spread of ``ln delta`` (the thickness at separation) outside the range it treats
+#: alike: from the ball's laminar thickness (``core.separation.BallFrame.laminar_delta_px``) to
+#: ``PRIOR_THICKER`` times it. A turbulent flat-plate layer is 2-3 times a laminar one's
+#: thickness at ``Re_x`` of 1e5-3e5 (``0.37 x Re_x^-0.2`` against ``5 x Re_x^-0.5``, textbook
+#: formulas, memory), and particle images of 2-3 px smear a layer of 1-2 px to about their size.
+#: With the laminar thickness as the median (0.3.5 and before) the first family's layers of
+#: 5-9 px were fitted at 0.7 of their thickness and picked a median 1.2 deg early.
 PRIOR_LOG_DELTA_SD = 0.7
+PRIOR_THICKER = 4.0
 #: Mixing-layer spreading rate of the vorticity thickness for a stream over still air and its
 #: spread (Brown & Roshko 1974, memory: 0.14-0.22 quoted).
 SPREADING_RATE = (0.18, 0.04)
@@ -70,7 +79,7 @@ class SideProblem:
     band: NearWallBand
     outer: OuterStream
     final_deg: float  # the wake's direction on this side
-    log_delta_prior: float  # ln of the prior median thickness (px)
+    log_delta_prior: float  # ln of the laminar thickness (px): where the thickness prior starts
     sigma: float = 1.0  # residual scale
     outward_growth: float = 1.0  # the layer's form: :class:`~core.layer_model.SideGeometry`
 
@@ -152,7 +161,7 @@ class SideProblem:
         terms = np.stack([
             _outside(slope, lo, hi),
             np.array([math.log(v / PRIOR_RELAX[0]) for v in relax]) / PRIOR_RELAX[1],
-            (log_delta - centre) / PRIOR_LOG_DELTA_SD,
+            _thickness_term(log_delta - centre),
             (spread - SPREADING_RATE[0] * ratio) / (SPREADING_RATE[1] * ratio),
             _outside(reverse, *PRIOR_REVERSE),
             _outside(drop, *PRIOR_DROP),
@@ -167,6 +176,13 @@ class SideProblem:
         return np.array([phi_s, math.tan(math.radians(leave_deg)), PRIOR_RELAX[0],
                          self.log_delta_prior + math.log(delta_factor),
                          SPREADING_RATE[0] * ratio, reverse, 0.5, 0.35, follow, 1.0, 1.0])
+
+
+def _thickness_term(excess: np.ndarray) -> np.ndarray:
+    """The thickness prior's residual for ``ln(delta / delta_lam)``: 0 from the laminar
+    thickness to ``PRIOR_THICKER`` times it, growing by one per ``PRIOR_LOG_DELTA_SD`` beyond."""
+    return (np.minimum(excess, 0.0)
+            + np.maximum(excess - math.log(PRIOR_THICKER), 0.0)) / PRIOR_LOG_DELTA_SD
 
 
 def _outside(value: np.ndarray, lo: float, hi: float) -> np.ndarray:

@@ -87,6 +87,44 @@ def test_kinematic_family_pick_within_its_uncertainty():
     assert result.separation.wake_state == "upper side holds on longer"
 
 
+def test_a_thick_layer_is_not_picked_early():
+    # layers of about 9 px vorticity thickness (layer_px is half of it) on a ball whose laminar
+    # layer would be about 1 px: with the laminar thickness as the prior's median they were
+    # fitted at two thirds of their thickness and picked 1.5-1.7 deg early. Truth: where the
+    # first family's wall shear changes sign (derived in core.synth_shot)
+    result, truth = _measure(ball_shot(
+        (768, 1024), radius_px=170.0, upper_deg=10.0, lower_deg=-2.0, leave_deg=(8.0, 14.0),
+        layer_px=4.5, seed=41))
+    for side in ("upper", "lower"):
+        proposal = getattr(result.separation, side)
+        error = proposal.angle_deg - getattr(truth, f"{side}_deg")
+        assert abs(error) <= min(1.2, proposal.uncertainty_deg), (side, error, proposal.budget)
+
+
+def test_the_thickness_prior_spans_turbulent_layers():
+    # a turbulent flat-plate layer, 0.37 x Re_x^-1/5, against a laminar one, 5 x Re_x^-1/2
+    # (textbook formulas, memory), at Re_x of 1e5-3e5 (a ball's layer near separation): 2.3-3.3
+    # times thicker. The prior treats those alike with the laminar thickness, and only layers
+    # well outside that range pay for it
+    from core.side_fit import SideProblem
+
+    problem = SideProblem.__new__(SideProblem)  # prior_terms reads only the prior's centre
+    problem.log_delta_prior = math.log(1.2)
+    start = np.array([0.0, 0.2, 1.0, 0.0, 0.2, 0.1, 0.5, 0.35, 0.5, 1.0, 1.0])
+
+    def thickness_term(ratio):
+        params = start.copy()
+        params[3] = math.log(1.2 * ratio)
+        return problem.prior_terms(params)[2]
+
+    for re_x in (1e5, 3e5):
+        ratio = (0.37 * re_x**-0.2) / (5.0 * re_x**-0.5)
+        assert 2.0 < ratio < 3.5
+        assert thickness_term(ratio) == 0.0
+    assert thickness_term(1.0) == 0.0
+    assert thickness_term(0.5) < -0.9 and thickness_term(8.0) > 0.9
+
+
 def test_a_fit_that_stopped_short_moves_to_the_better_profile_point():
     # a thin layer leaving at 15 deg whose refinement stops about 3 deg early: its profile
     # finds a better fit at the truth; it used to be read as a flat profile (40 deg uncertainty).
