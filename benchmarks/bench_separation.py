@@ -368,6 +368,11 @@ def main() -> None:
     parser.add_argument("--family", choices=("both", "kinematic", "physical"), default="both",
                         help="measure one family only (the tables then show that one)")
     args = parser.parse_args()
+    # a factor of one and a turn of none leave the shots as drawn: not set apart
+    if args.magnify == 1.0:
+        args.magnify = None
+    if args.tilt is not None and args.tilt % 360.0 == 0.0:
+        args.tilt = None
     setting, kwargs_set = _set_apart(args)
     if args.sources and setting:
         parser.error("--displacement, --seeding, --particles, --magnify, --tilt and a --seed "
