@@ -448,13 +448,15 @@ def _uncertainties(balls, flight: Flight) -> dict:
 
 
 def _seeding_map(frame, ball: BallFit):
-    """Particle-image density around the ball in frame A (2 radii around it)."""
+    """Particle-image density around the ball in frame A, as far out as
+    :func:`core.near_wall.seeding_ratio` reads it (1.8 radii from the centre) and the count's
+    box and the band-pass filter reach."""
     from core.ball import ball_mask
     from core.near_wall import SeedingMap, particle_image_density
 
     height, width = frame.shape
     cx, cy = ball.center_px
-    reach = 2.0 * ball.radius_px + 16
+    reach = 1.8 * ball.radius_px + 24
     y0, y1 = max(0, int(cy - reach)), min(height, int(cy + reach) + 1)
     x0, x1 = max(0, int(cx - reach)), min(width, int(cx + reach) + 1)
     crop = np.asarray(frame[y0:y1, x0:x1], dtype=np.float64)
