@@ -276,15 +276,18 @@ def _polar_picture(frame, *, ball: BallMotion, side: str, shift_px, rho_axis, ph
 
 
 def cubic_resampled(picture: np.ndarray, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
-    """``scipy.ndimage.map_coordinates(picture, [rows, cols], order=3, mode="nearest")``, the
-    same numbers (within 1e-12), compiled where every point lies within the picture."""
+    """``scipy.ndimage.map_coordinates(picture, [rows, cols], order=3, mode="nearest")`` in
+    double precision (``rows``, ``cols``: 1-D or 2-D, not empty): the same numbers to rounding,
+    compiled where every point lies within the picture."""
+    picture = np.asarray(picture, dtype=np.float64)
+    rows, cols = np.asarray(rows, dtype=np.float64), np.asarray(cols, dtype=np.float64)
     if not (rows.min() >= 0.0 and cols.min() >= 0.0 and rows.max() <= picture.shape[0] - 1
             and cols.max() <= picture.shape[1] - 1):  # e.g. the frame's edge cuts the crop
         return ndimage.map_coordinates(picture, [rows, cols], order=3, mode="nearest")
     # the coefficients as map_coordinates makes them for mode "nearest": the picture padded by
-    # repeating its edge, then filtered as mirrored
+    # repeating its edge, then filtered
     coefficients = ndimage.spline_filter(np.pad(picture, _SPLINE_PAD, mode="edge"), order=3,
-                                         mode="mirror")
+                                         mode="nearest")
     out = np.empty(np.shape(rows))
     _cubic_samples(coefficients, np.atleast_2d(rows + _SPLINE_PAD),
                    np.atleast_2d(cols + _SPLINE_PAD), out.reshape(np.atleast_2d(rows).shape))
@@ -297,7 +300,8 @@ _SPLINE_PAD = 12  # scipy's own padding before the spline filter
 # scipy's map_coordinates took a fifth of a second for a large shot's four polar pictures (half a
 # million points each); with every point's 4 x 4 taps inside the padded picture, the cubic
 # B-spline's weights are worked out here once per point and axis: the same sums (equal to
-# map_coordinates' within 1e-12, tests/test_separation_batched.py), compiled, a few times quicker.
+# map_coordinates' to rounding, a few 1e-12 on values of thousands,
+# tests/test_separation_batched.py), compiled, a few times quicker.
 @compiled
 def _cubic_samples(coefficients, rows, cols, out):
     """Cubic B-spline interpolation of ``coefficients`` (:func:`scipy.ndimage.spline_filter`'s)

@@ -15,11 +15,11 @@ The model's priors, all in physical units, and the least-squares refinement are 
 The uncertainty combines, as standard uncertainties: the fit's own standard error, the fitted
 circle's error (refit with the radius moved by its uncertainty), the flight direction's (one to
 one), the model form (refit with the alternative layer profile, and with the near-wall model's
-form constants halved and doubled) and the priors' leverage (refit with the thickness prior's
-laminar thickness, where its range starts, halved and doubled). The reported ``uncertainty_deg`` is
-``COVERAGE_K`` times their root sum of squares: an interval meant to cover the truth in at
-least ``COVERAGE`` of cases, calibrated on one family of synthetic shots and checked on the
-other (docs/separation_accuracy.md).
+form constants halved and doubled) and the priors' leverage (refit with the thickness
+prior's laminar thickness, where its range starts, halved and doubled). The reported
+``uncertainty_deg`` is ``COVERAGE_K`` times their root sum of squares: an interval meant to
+cover the truth in at least ``COVERAGE`` of cases, calibrated on one family of synthetic shots
+and checked on the other (docs/separation_accuracy.md).
 
 Angles follow the shot convention: from the plane through the ball centre normal to the flight,
 positive rearward; *upper* is the side toward the top of the picture (core.geometry).
@@ -50,9 +50,10 @@ from core.results import SeparationResult, SideProposal, VectorField
 from core.side_fit import PRIOR_LEAVE_DEG, Fit, SideProblem, refine
 from core.wake import wake_direction, wake_state
 
-#: Band along the outline where the layer is fitted: first gap (px) outside the outline; the
-#: last one is ``BAND_DEPTH`` times twice the laminar thickness (where the thickness prior starts), within
-#: ``BAND_LAST_GAP_PX``.
+#: Band along the outline where the layer is fitted: the first gap (px) outside the outline;
+#: the last, ``BAND_DEPTH`` times twice the laminar thickness, kept within ``BAND_LAST_GAP_PX``
+#: (on balls of R 150-250 px at Re about 1.4e5: 16-18 px, two to three times a layer at the
+#: top of the thickness prior's flat range).
 BAND_FIRST_GAP_PX = 2.0
 #: Spacing of the band's samples along the outline (px); rows are 0.5 px apart near the wall.
 BAND_ARC_STEP_PX = 1.5
@@ -502,11 +503,11 @@ def _uncertainty_budget(problem: SideProblem, best: Fit, ball: BallFrame,
     (:func:`_refit_shift`) under: the circle's radius moved by its standard uncertainty both
     ways (half the spread; a centre error moves the outline by as much radially), the model's
     form (:func:`_model_form_shift`), the laminar thickness where the thickness prior's range
-    starts halved and doubled (the larger move). Refits, not linear steps: one Gauss-Newton step from the best fit tracked
-    the refits' moves poorly on both synthetic families (correlation 0.3 and under; it moved
-    the angle by about 0.1 deg even with nothing changed, the Jacobian being nearly singular
-    along the poorly determined parameters), while refits of ``ALTERNATIVE_ITERATIONS``
-    evaluations agree with full ones (correlation 0.7-1.0).
+    starts halved and doubled (the larger move). Refits, not linear steps: one Gauss-Newton
+    step from the best fit tracked the refits' moves poorly on both synthetic families
+    (correlation 0.3 and under; it moved the angle by about 0.1 deg even with nothing changed,
+    the Jacobian being nearly singular along the poorly determined parameters), while refits
+    of ``ALTERNATIVE_ITERATIONS`` evaluations agree with full ones (correlation 0.7-1.0).
     """
     rise = max(min(rises), PROFILE_STEP_DEG**2 / PROFILE_MAX_DEG**2)
     budget = {"fit": PROFILE_STEP_DEG / math.sqrt(rise)}

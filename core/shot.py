@@ -423,7 +423,7 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
     clock.lap("fine piv")
     ball = BallFrame(centre, radius, tuple(flight.displacement_px), flight.direction_deg, stream,
                      reynolds=result.reynolds, **_uncertainties(balls, flight))
-    seeding = _seeding_map(frame_a if raw_a is None else raw_a, balls[0])
+    seeding = _seeding_map(frame_a if raw_a is None else raw_a, *balls)
     proposal = propose_separation(frame_a, frame_b, ball, vf, origin, lab_field,
                                   seeding, glare, threads=settings.piv.threads())
     clock.lap("separation")
@@ -447,19 +447,21 @@ def _uncertainties(balls, flight: Flight) -> dict:
     }
 
 
-def _seeding_map(frame, ball: BallFit):
+def _seeding_map(frame, ball: BallFit, other: BallFit):
     """Particle-image density around the ball in frame A, as far out as
-    :func:`core.near_wall.seeding_ratio` reads it (1.8 radii from the centre) and the count's
-    box and the band-pass filter reach."""
+    :func:`core.near_wall.seeding_ratio` reads it (1.8 radii from the mid-exposure centre,
+    half the ball's displacement from frame A's) and the count's box (8 px) and the band-pass
+    filter (12 px) reach."""
     from core.ball import ball_mask
     from core.near_wall import SeedingMap, particle_image_density
 
     height, width = frame.shape
     cx, cy = ball.center_px
-    reach = 1.8 * ball.radius_px + 24
+    half_shift = 0.5 * math.hypot(other.center_px[0] - cx, other.center_px[1] - cy)
+    reach = 1.8 * ball.radius_px + 24 + half_shift
     y0, y1 = max(0, int(cy - reach)), min(height, int(cy + reach) + 1)
     x0, x1 = max(0, int(cx - reach)), min(width, int(cx + reach) + 1)
-    crop = np.asarray(frame[y0:y1, x0:x1], dtype=np.float64)
+    crop = np.asarray(frame[y0:y1, x0:x1], dtype=np.float32)
     inside = ball_mask(crop.shape, BallFit((cx - x0, cy - y0), ball.radius_px), 1.0)
     return SeedingMap(particle_image_density(crop, inside), (y0, x0))
 

@@ -171,7 +171,8 @@ class SideProblem:
         return terms if table.ndim == 2 else terms[0]
 
     def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5):
-        """Parameters at the priors' medians but for those given."""
+        """Parameters at the priors' medians but for those given (the thickness: the laminar
+        one, where the prior's range starts, times ``delta_factor``)."""
         ratio = (1.0 + reverse) / (1.0 - reverse)
         return np.array([phi_s, math.tan(math.radians(leave_deg)), PRIOR_RELAX[0],
                          self.log_delta_prior + math.log(delta_factor),

@@ -455,7 +455,7 @@ def run_report(demo_dir: Path | None) -> int:
         rows = report_rows(folder / DEMO_SESSION, HERE / "truth.csv")
     how = (f"Measured by `make_demo.py --report` with the code of {_code_version()}: each "
            "proposal (deg, + rearward) with its stated uncertainty; * marks one farther from "
-           "the truth than that.")
+           "the truth than that (judged, like the distances below, on the unrounded values).")
     write_report(HERE / "README.md", report_markdown(rows, how))
     print(f"{HERE / 'README.md'}: table of {len(rows)} shots written")
     return 0

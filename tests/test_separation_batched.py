@@ -132,24 +132,24 @@ def test_compiled_error_function_profile_is_scipys_to_within_its_table():
     assert np.isnan(_profiles_compiled(np.array([np.nan]))[0])
 
 
-@pytest.mark.parametrize("reach", [(0.0, 1.0), (-3.0, 1.2)])
-def test_cubic_resampling_is_scipys(reach):
+@pytest.mark.parametrize("beyond", [0.0, 0.5])
+def test_cubic_resampling_is_scipys(beyond):
     # the band's pictures are resampled by a compiled cubic B-spline where every point lies in
-    # the crop, by scipy's map_coordinates otherwise (the second case: points beyond the
-    # picture's edges): both against map_coordinates (order 3, edge repeated), the reference
-    # library's own resampling, on a picture of white noise (the spline's tails at their
-    # largest)
+    # the picture (its first and last samples included), by scipy's map_coordinates otherwise
+    # (the second case: one point half a sample past the last column): against scipy's
+    # map_coordinates (order 3, edge repeated) on a picture of white noise (the spline's tails
+    # at their largest)
     rng = np.random.default_rng(5)
     picture = rng.uniform(0.0, 4000.0, (40, 70))
-    lo, hi = reach
-    rows = rng.uniform(lo * 40, hi * 39, (300, 50))
-    cols = rng.uniform(lo * 70, hi * 69, (300, 50))
-    rows[0, 0], cols[0, 0] = 39.0, 69.0  # the last sample itself
+    rows = rng.uniform(0.0, 39.0, (300, 50))
+    cols = rng.uniform(0.0, 69.0, (300, 50))
+    rows[0, :4], cols[0, :4] = [0.0, 39.0, 0.0, 39.0], [0.0, 0.0, 69.0, 69.0 + beyond]
     expected = ndimage.map_coordinates(picture, [rows, cols], order=3, mode="nearest")
+    tolerance = 1e-14 * np.abs(picture).max()  # rounding
     np.testing.assert_allclose(cubic_resampled(picture, rows, cols), expected, rtol=0,
-                               atol=1e-9)
-    np.testing.assert_allclose(cubic_resampled(picture, rows[0], cols[0]), expected[0],
-                               rtol=0, atol=1e-9)
+                               atol=tolerance)
+    np.testing.assert_allclose(cubic_resampled(picture, rows[1], cols[1]), expected[1],
+                               rtol=0, atol=tolerance)
 
 
 @numba.njit
