@@ -106,20 +106,25 @@ class Flight:
             self.displacement_cov_px2 = tuple(tuple(row) for row in self.displacement_cov_px2)
 
 
-#: The version since which separation uncertainties are made as now (the budget's refits, the
-#: extrapolation arc, ``core.separation.COVERAGE_K``); results made before keep theirs until
-#: processed again, and count as not up to date (``Session.needs_processing``).
-UNCERTAINTY_SINCE = (0, 3)
+#: The version since which separation uncertainties are made as now (0.3: the budget's refits,
+#: the extrapolation arc, ``core.separation.COVERAGE_K``; 0.3.5: the "layer form" entry, whose
+#: absence left a fifth of the picks uncovered in one run set apart); results made before keep
+#: theirs until processed again, and count as not up to date (``Session.needs_processing``).
+UNCERTAINTY_SINCE = (0, 3, 5)
 
 
 def uncertainty_outdated(software_version: str) -> bool:
     """Whether a result made by ``software_version`` ("0.2.0") has its uncertainty from an
-    earlier method than this version's (``UNCERTAINTY_SINCE``); False when not known."""
+    earlier method than this version's (``UNCERTAINTY_SINCE``; a missing part counts as 0);
+    False when not known."""
+    parts = software_version.split(".")[:3]
     try:
-        made = tuple(int(part) for part in software_version.split(".")[:2])
+        made = tuple(int(part) for part in parts)
     except ValueError:
         return False
-    return len(made) == 2 and made < UNCERTAINTY_SINCE
+    if len(made) < 2:
+        return False
+    return made + (0,) * (3 - len(made)) < UNCERTAINTY_SINCE
 
 
 @dataclass

@@ -115,8 +115,9 @@ def test_the_meaning_of_the_uncertainty_gives_the_factor_it_was_made_with():
 
 
 def test_a_result_made_by_an_earlier_uncertainty_method_is_named():
-    # 0.3 changed how the ± is made (refits, the extrapolation arc, the factor): results made
-    # before keep theirs until processed again, and the readout says so
+    # 0.3 changed how the ± is made (refits, the extrapolation arc, the factor), 0.3.5 added
+    # the layer form's entry: results made before keep theirs until processed again, and the
+    # readout says so
     from dataclasses import replace as with_
 
     from app.review.text import outdated_uncertainty_note
@@ -125,13 +126,16 @@ def test_a_result_made_by_an_earlier_uncertainty_method_is_named():
     from core.summary import ShotSummary
 
     assert uncertainty_outdated("0.1.0") and uncertainty_outdated("0.2.0")
-    assert not uncertainty_outdated("0.3.0") and not uncertainty_outdated("1.0")
+    assert uncertainty_outdated("0.3.0") and uncertainty_outdated("0.3.4")
+    assert uncertainty_outdated("0.3")  # a missing part counts as 0
+    assert not uncertainty_outdated("0.3.5") and not uncertainty_outdated("0.3.6")
+    assert not uncertainty_outdated("0.4") and not uncertainty_outdated("1.0")
     assert not uncertainty_outdated("") and not uncertainty_outdated("dev")
     summary = ShotSummary(SeparationResult(SideProposal(5.0, 3.0), SideProposal(None)))
     record = ShotRecord("s1", {}, summary=summary, software_version="0.2.0")
     assert "0.2.0" in outdated_uncertainty_note(record)
     assert "Reprocess this shot" in outdated_uncertainty_note(record)
-    assert outdated_uncertainty_note(with_(record, software_version="0.3.0")) == ""
+    assert outdated_uncertainty_note(with_(record, software_version="0.3.5")) == ""
     assert outdated_uncertainty_note(with_(record, summary=None)) == ""
 
 
