@@ -27,6 +27,7 @@ from scipy import ndimage
 
 from core.compiled import compiled
 from core.geometry import flight_unit, side_normal
+from core.resample import cubic_resampled
 from core.results import VectorField
 
 #: Polar grid step of the resampled frames (px, radially and along the arc).
@@ -273,61 +274,6 @@ def _polar_picture(frame, *, ball: BallMotion, side: str, shift_px, rho_axis, ph
     y1 = int(np.clip(np.ceil(ys.max()) + 5, y0 + 1, height))
     crop = np.asarray(frame[y0:y1, x0:x1], dtype=np.float64)
     return cubic_resampled(crop, ys - y0, xs - x0)
-
-
-def cubic_resampled(picture: np.ndarray, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
-    """``scipy.ndimage.map_coordinates(picture, [rows, cols], order=3, mode="nearest")`` in
-    double precision (``rows``, ``cols``: 1-D or 2-D, not empty): the same numbers to rounding,
-    compiled where every point lies within the picture."""
-    picture = np.asarray(picture, dtype=np.float64)
-    rows, cols = np.asarray(rows, dtype=np.float64), np.asarray(cols, dtype=np.float64)
-    if not (rows.min() >= 0.0 and cols.min() >= 0.0 and rows.max() <= picture.shape[0] - 1
-            and cols.max() <= picture.shape[1] - 1):  # e.g. the frame's edge cuts the crop
-        return ndimage.map_coordinates(picture, [rows, cols], order=3, mode="nearest")
-    # the coefficients as map_coordinates makes them for mode "nearest": the picture padded by
-    # repeating its edge, then filtered
-    coefficients = ndimage.spline_filter(np.pad(picture, _SPLINE_PAD, mode="edge"), order=3,
-                                         mode="nearest")
-    out = np.empty(np.shape(rows))
-    _cubic_samples(coefficients, np.atleast_2d(rows + _SPLINE_PAD),
-                   np.atleast_2d(cols + _SPLINE_PAD), out.reshape(np.atleast_2d(rows).shape))
-    return out
-
-
-_SPLINE_PAD = 12  # scipy's own padding before the spline filter
-
-
-# scipy's map_coordinates took a fifth of a second for a large shot's four polar pictures (half a
-# million points each); with every point's 4 x 4 taps inside the padded picture, the cubic
-# B-spline's weights are worked out here once per point and axis: the same sums (equal to
-# map_coordinates' to rounding, a few 1e-12 on values of thousands,
-# tests/test_separation_batched.py), compiled, a few times quicker.
-@compiled
-def _cubic_samples(coefficients, rows, cols, out):
-    """Cubic B-spline interpolation of ``coefficients`` (:func:`scipy.ndimage.spline_filter`'s)
-    at ``(rows, cols)``, 2-D, each point at least one sample inside the first and two inside
-    the last row and column, into ``out``."""
-    for i in range(rows.shape[0]):
-        for j in range(rows.shape[1]):
-            r, c = rows[i, j], cols[i, j]
-            r0, c0 = math.floor(r), math.floor(c)
-            wr = _cubic_weights(r - r0)
-            wc = _cubic_weights(c - c0)
-            total = 0.0
-            for a in range(4):
-                line = 0.0
-                for b in range(4):
-                    line += wc[b] * coefficients[r0 - 1 + a, c0 - 1 + b]
-                total += wr[a] * line
-            out[i, j] = total
-
-
-@compiled
-def _cubic_weights(t):
-    """The cubic B-spline's weights of the four taps around a point ``t`` past the second."""
-    s = 1.0 - t
-    return (s * s * s / 6.0, (3.0 * t * t * t - 6.0 * t * t + 4.0) / 6.0,
-            (-3.0 * t * t * t + 3.0 * t * t + 3.0 * t + 1.0) / 6.0, t * t * t / 6.0)
 
 
 def _row_steps(picture: np.ndarray) -> np.ndarray:

@@ -30,9 +30,9 @@ from core.near_wall import (
     NearWallBand,
     OuterStream,
     _bilinear,
-    cubic_resampled,
     side_axes,
 )
+from core.resample import cubic_resampled, spline_values
 from core.side_fit import SideProblem, all_at_once
 from core.synth_shot import ball_shot
 
@@ -150,6 +150,15 @@ def test_cubic_resampling_is_scipys(beyond):
                                atol=tolerance)
     np.testing.assert_allclose(cubic_resampled(picture, rows[1], cols[1]), expected[1],
                                rtol=0, atol=tolerance)
+    # from coefficients, in their single precision, as the ball finder samples its rays:
+    # scipy's sums rounded to single precision alike
+    coefficients = ndimage.spline_filter(picture, 3, output=np.float32, mode="nearest")
+    inner_rows, inner_cols = 1.0 + rows * (36.0 / 39.0), 1.0 + cols * (66.0 / 69.0)
+    values = spline_values(coefficients, inner_rows, inner_cols)
+    assert values.dtype == np.float32
+    np.testing.assert_allclose(values, ndimage.map_coordinates(
+        coefficients, [inner_rows, inner_cols], order=3, mode="nearest", prefilter=False),
+        rtol=1e-6, atol=1e-6 * np.abs(picture).max())
 
 
 @numba.njit

@@ -24,6 +24,7 @@ from core.ball.constants import (
 )
 from core.ball.disc import FittedCircle, arc_share, particle_free_disc
 from core.conditioning import glare_mask
+from core.resample import spline_values
 from core.results import BallFit
 
 
@@ -185,8 +186,7 @@ def _sample_rays(crop, coeff, glare, cx, cy, r, half_width) -> _Rays:
         raw = ndimage.map_coordinates(crop, [ys, xs], order=1, mode="nearest")
     else:
         x0, y0 = coeff.origin
-        raw = ndimage.map_coordinates(coeff.coeff, [ys - y0, xs - x0], order=3, mode="nearest",
-                                      prefilter=False)
+        raw = spline_values(coeff.coeff, ys - y0, xs - x0)
     smoothed = ndimage.gaussian_filter1d(raw, 1.0 / step, axis=1, mode="nearest")
     smoothed = ndimage.gaussian_filter1d(smoothed, 1.0 / (r * (theta[1] - theta[0])), axis=0,
                                          mode="wrap")
