@@ -382,6 +382,11 @@ class SeedingMap:
         return self.density[rows, cols]
 
 
+#: The ring of air :func:`seeding_ratio` compares the band with: radii from the ball's centre
+#: over its radius.
+SEEDING_RING = (1.3, 1.8)
+
+
 def seeding_ratio(seeding: SeedingMap, ball, side: str) -> float:
     """Particle images in the band beside ``side`` over those in the air around the ball.
 
@@ -396,7 +401,7 @@ def seeding_ratio(seeding: SeedingMap, ball, side: str) -> float:
                     for g in np.linspace(2.0, 14.0, 7)])
     theta = np.linspace(0.0, 2.0 * np.pi, 240, endpoint=False)
     ring = [seeding.at(cx + (r * k) * np.cos(theta), cy + (r * k) * np.sin(theta))
-            for k in np.linspace(1.3, 1.8, 6)]
+            for k in np.linspace(*SEEDING_RING, 6)]
     far = float(np.median(np.concatenate(ring)))
     return float(near) / far if far > 0 else 0.0
 

@@ -309,7 +309,8 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
         found, cost = _coarse_search(searched)
         starts += [(form, start) for start in found]
         start_cost = min(start_cost, cost)
-    coarse_attached = searched.view(every=2).attached_cost()  # where the search's costs were taken
+    # where the search's costs were taken (attached flow has no layer: alike in both forms)
+    coarse_attached = searched.view(every=2).attached_cost()
     if not start_cost < (1.0 - MIN_IMPROVEMENT) * coarse_attached:
         return SideProposal(None, None, 0.0, "no separated shear layer next to the ball "
                             "(the attached-flow model fits as well: attached flow?)")

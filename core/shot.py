@@ -449,16 +449,16 @@ def _uncertainties(balls, flight: Flight) -> dict:
 
 def _seeding_map(frame, ball: BallFit, other: BallFit):
     """Particle-image density around the ball in frame A, as far out as
-    :func:`core.near_wall.seeding_ratio` reads it (1.8 radii from the mid-exposure centre,
+    :func:`core.near_wall.seeding_ratio` reads it (``SEEDING_RING`` from the mid-exposure centre,
     half the ball's displacement from frame A's) and the count's box (8 px) and the band-pass
     filter (12 px) reach."""
     from core.ball import ball_mask
-    from core.near_wall import SeedingMap, particle_image_density
+    from core.near_wall import SEEDING_RING, SeedingMap, particle_image_density
 
     height, width = frame.shape
     cx, cy = ball.center_px
     half_shift = 0.5 * math.hypot(other.center_px[0] - cx, other.center_px[1] - cy)
-    reach = 1.8 * ball.radius_px + 24 + half_shift
+    reach = SEEDING_RING[1] * ball.radius_px + 24 + half_shift
     y0, y1 = max(0, int(cy - reach)), min(height, int(cy + reach) + 1)
     x0, x1 = max(0, int(cx - reach)), min(width, int(cx + reach) + 1)
     crop = np.asarray(frame[y0:y1, x0:x1], dtype=np.float32)

@@ -161,7 +161,8 @@ class SideProblem:
         terms = np.stack([
             _outside(slope, lo, hi),
             np.array([math.log(v / PRIOR_RELAX[0]) for v in relax]) / PRIOR_RELAX[1],
-            _thickness_term(log_delta - centre),
+            # from the laminar thickness to PRIOR_THICKER times it alike
+            _outside(log_delta - centre, 0.0, math.log(PRIOR_THICKER), PRIOR_LOG_DELTA_SD),
             (spread - SPREADING_RATE[0] * ratio) / (SPREADING_RATE[1] * ratio),
             _outside(reverse, *PRIOR_REVERSE),
             _outside(drop, *PRIOR_DROP),
@@ -179,16 +180,9 @@ class SideProblem:
                          SPREADING_RATE[0] * ratio, reverse, 0.5, 0.35, follow, 1.0, 1.0])
 
 
-def _thickness_term(excess: np.ndarray) -> np.ndarray:
-    """The thickness prior's residual for ``ln(delta / delta_lam)``: 0 from the laminar
-    thickness to ``PRIOR_THICKER`` times it, growing by one per ``PRIOR_LOG_DELTA_SD`` beyond."""
-    return (np.minimum(excess, 0.0)
-            + np.maximum(excess - math.log(PRIOR_THICKER), 0.0)) / PRIOR_LOG_DELTA_SD
-
-
-def _outside(value: np.ndarray, lo: float, hi: float) -> np.ndarray:
-    """Distance of ``value`` outside ``[lo, hi]`` over ``PRIOR_WALL`` (0 inside)."""
-    return (np.maximum(0.0, lo - value) + np.maximum(0.0, value - hi)) / PRIOR_WALL
+def _outside(value: np.ndarray, lo: float, hi: float, scale: float = PRIOR_WALL) -> np.ndarray:
+    """Distance of ``value`` outside ``[lo, hi]`` over ``scale`` (0 inside)."""
+    return (np.maximum(0.0, lo - value) + np.maximum(0.0, value - hi)) / scale
 
 
 @dataclass
