@@ -165,7 +165,9 @@ def test_a_near_tangential_layer_is_covered_by_its_uncertainty():
     # a layer that leaves the wall almost tangentially (1 deg; the other side at 12 deg):
     # until both forms of the layer were fitted (LAYER_FORMS), the data could not tell its
     # start from its departure and only a wide uncertainty covered it; now it is placed within
-    # half a degree here. Either way the stated uncertainty must hold the truth
+    # half a degree here. Either way the stated uncertainty must hold the truth: where the
+    # physically built family's layer separates, by Thwaites' method with Mangler's
+    # transformation on Fage's measured surface velocity (memory; core.synth_physical)
     result, truth = _measure(physical_shot(
         (640, 800), radius_px=150.0, departure_deg=(1.0, 12.0), layer_px=5.0, seed=7))
     for _, proposal, error in _picks(result, truth):
