@@ -231,15 +231,21 @@ def propose_separation(
 # --- the fit of one side ---------------------------------------------------------------------
 
 
+def band_last_gap_px(laminar_delta_px: float) -> float:
+    """The band's outer edge (px outside the outline): ``BAND_DEPTH`` times twice the laminar
+    thickness, within ``BAND_LAST_GAP_PX``."""
+    return float(np.clip(BAND_FIRST_GAP_PX + BAND_DEPTH * 2.0 * laminar_delta_px,
+                         *BAND_LAST_GAP_PX))
+
+
 def side_problem(frame_a, frame_b, ball: BallFrame, fine: VectorField, origin_px, side: str,
                  final_deg: float, glare=(None, None)) -> SideProblem | str:
     """The side's fitting problem, or the reason there is none."""
+    delta_prior = ball.laminar_delta_px()
+    last_gap = band_last_gap_px(delta_prior)
     outer = outer_stream(fine, origin_px, ball, side, BAND_DEG)
     if outer is None:
         return "too few valid vectors beside the ball to model the stream there"
-    delta_prior = ball.laminar_delta_px()
-    last_gap = float(np.clip(BAND_FIRST_GAP_PX + BAND_DEPTH * 2.0 * delta_prior,
-                             *BAND_LAST_GAP_PX))
     band = NearWallBand(frame_a, frame_b, ball.motion, side, phi_deg=BAND_DEG,
                         gap_px=(BAND_FIRST_GAP_PX, last_gap), max_speed_px=2.0 * ball.stream,
                         arc_step_px=BAND_ARC_STEP_PX)
@@ -285,13 +291,12 @@ def fit_shots_side(pairs, ball: BallFrame, fine: VectorField, origin_px, side: s
         As for :func:`fit_side`; ``fine`` is the shots' common field (e.g. their ensemble
         correlation) in the ball frame.
     """
+    delta_prior = ball.laminar_delta_px()
+    last_gap = band_last_gap_px(delta_prior)
     outer = outer_stream(fine, origin_px, ball, side, BAND_DEG)
     if outer is None:
         return SideProposal(None, None, 0.0, "too few valid vectors beside the ball to model "
                             "the stream there")
-    delta_prior = ball.laminar_delta_px()
-    last_gap = float(np.clip(BAND_FIRST_GAP_PX + BAND_DEPTH * 2.0 * delta_prior,
-                             *BAND_LAST_GAP_PX))
     bands = [NearWallBand(a, b, ball.motion, side, phi_deg=BAND_DEG,
                           gap_px=(BAND_FIRST_GAP_PX, last_gap), max_speed_px=2.0 * ball.stream,
                           arc_step_px=BAND_ARC_STEP_PX) for a, b in pairs]
