@@ -28,9 +28,13 @@ DEFAULT_AIR_TEMP_C = 20.0
 CRISIS_RE = (2.0e5, 4.0e5)
 
 
+#: Absolute zero (deg C): no air temperature lies at or below it.
+ABSOLUTE_ZERO_C = -273.15
+
+
 def air_viscosity_pa_s(temp_c: float = DEFAULT_AIR_TEMP_C) -> float:
     """Dynamic viscosity of air (Pa s) at ``temp_c`` by Sutherland's law."""
-    t = temp_c + 273.15
+    t = temp_c - ABSOLUTE_ZERO_C
     if t <= 0:
         raise ValueError(f"air temperature {temp_c} deg C is below absolute zero")
     return (SUTHERLAND_MU0_PA_S * (t / SUTHERLAND_T0_K) ** 1.5
@@ -40,7 +44,7 @@ def air_viscosity_pa_s(temp_c: float = DEFAULT_AIR_TEMP_C) -> float:
 def air_density_kg_m3(temp_c: float = DEFAULT_AIR_TEMP_C,
                       pressure_pa: float = STANDARD_PRESSURE_PA) -> float:
     """Density of dry air (kg/m^3) by the ideal gas law."""
-    return pressure_pa / (GAS_CONSTANT_AIR * (temp_c + 273.15))
+    return pressure_pa / (GAS_CONSTANT_AIR * (temp_c - ABSOLUTE_ZERO_C))
 
 
 def kinematic_viscosity_m2_s(temp_c: float = DEFAULT_AIR_TEMP_C,

@@ -6,6 +6,8 @@ from them, and the correlation engine (``core.piv``) reads them.
 
 from __future__ import annotations
 
+import json
+import math
 import os
 from dataclasses import dataclass
 
@@ -68,17 +70,41 @@ class PivSettings:
             "deform_min_change_px", "workers",
         }
         values = {k: v for k, v in dict(data).items() if k in known}
+        for name in known - {"passes", "workers"}:
+            if name in values and not _is_number(values[name]):
+                raise WakelineError(f"PIV settings: {name} must be a number, not "
+                                    f"{json.dumps(values[name])}")
+        workers = values.get("workers")
+        if workers is not None and not (_is_number(workers) and int(workers) == workers):
+            raise WakelineError(f"PIV settings: workers must be a whole number or null, not "
+                                f"{json.dumps(workers)}")
         if "passes" in values:
-            values["passes"] = tuple(_pass_from(p) for p in values["passes"])
+            passes = values["passes"]
+            if not isinstance(passes, (list, tuple)):
+                raise WakelineError(f"PIV settings: passes must be a list of passes, not "
+                                    f"{json.dumps(passes)}")
+            values["passes"] = tuple(_pass_from(p) for p in passes)
         return cls(**values)
 
 
+def _is_number(value) -> bool:
+    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+
+
 def _pass_from(p) -> PivPass:
+    """A pass from ``{"window_px": 32, "overlap": 0.5}`` or ``[32, 0.5]``."""
     if isinstance(p, PivPass):
         return p
-    if isinstance(p, dict):
-        return PivPass(int(p["window_px"]), float(p.get("overlap", 0.5)))
-    window, overlap = p
+    if isinstance(p, dict) and "window_px" in p:
+        window, overlap = p["window_px"], p.get("overlap", 0.5)
+    elif isinstance(p, (list, tuple)) and len(p) == 2:
+        window, overlap = p
+    else:
+        raise WakelineError(f"PIV settings: a pass must be {{\"window_px\": W, \"overlap\": O}} "
+                            f"or [W, O], not {json.dumps(p)}")
+    if not (_is_number(window) and _is_number(overlap)):
+        raise WakelineError(f"PIV settings: a pass's window and overlap must be numbers, not "
+                            f"{json.dumps(p)}")
     return PivPass(int(window), float(overlap))
 
 

@@ -254,11 +254,22 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
     clock.lap("ball")
     result.valid_near_ball = valid_near_ball(result.field, ball_a, 2.0 * result.field.spacing_px)
     if _order_reversed(result.field, ball_a, flight):
-        warnings.append(
-            "frames look swapped: the air ahead of the ball moves with it and the air behind "
-            "does not; swap frame A and frame B (no separation proposed)"
-        )
-        reason = "frames look swapped (see warnings)"
+        if settings.flight_deg is not None:
+            # with the direction given, the likelier mistake is the direction, not the order
+            warnings.append(
+                f"the flight direction given ({settings.flight_deg:g} deg) looks the wrong way "
+                "round: the air ahead of the ball (as given) moves with it and the air behind "
+                "does not; check the flight direction, or swap frame A and frame B (no "
+                "separation proposed)"
+            )
+            reason = (f"the flight direction given ({settings.flight_deg:g} deg) looks the "
+                      "wrong way round, or the frames are swapped (see warnings)")
+        else:
+            warnings.append(
+                "frames look swapped: the air ahead of the ball moves with it and the air "
+                "behind does not; swap frame A and frame B (no separation proposed)"
+            )
+            reason = "frames look swapped (see warnings)"
         result.separation = SeparationResult(
             SideProposal(None, reason=reason), SideProposal(None, reason=reason)
         )

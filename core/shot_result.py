@@ -8,11 +8,14 @@ store keeps, and ``ShotResult.from_stored`` rebuilds a result from those two.
 from __future__ import annotations
 
 import json
+import math
 from dataclasses import asdict, dataclass, field, replace
 from dataclasses import fields as dc_fields
 
 import numpy as np
 
+from core import WakelineError
+from core.air import ABSOLUTE_ZERO_C
 from core.results import (
     BallFit,
     Flight,
@@ -60,11 +63,25 @@ class ShotSettings:
 
     @classmethod
     def from_dict(cls, data: dict) -> ShotSettings:
+        """Settings from their JSON form; a value of the wrong kind (``"false"`` for a switch,
+        a number for the PIV's settings) is refused rather than taken at Python's word.
+
+        Raises
+        ------
+        WakelineError
+            "settings: <name> ..." naming the value and what it should be.
+        """
         data = dict(data)
         piv = data.pop("piv", None)
         known = {f.name for f in dc_fields(cls)}
-        settings = cls(**{k: v for k, v in data.items() if k in known})
+        values = {k: v for k, v in data.items() if k in known}
+        for name, value in values.items():
+            _check_setting(name, value)
+        settings = cls(**values)
         if piv is not None:
+            if not isinstance(piv, dict):
+                raise WakelineError(f"settings: piv must be an object of PIV settings, not "
+                                    f"{json.dumps(piv)}")
             settings.piv = PivSettings.from_dict(piv)
         return settings
 
@@ -96,6 +113,39 @@ class ShotSettings:
 
 #: Settings that are the analyst's circles of the ball (``ShotSettings``).
 CIRCLE_SETTINGS = ("circle_a_px", "circle_b_px")
+#: The kinds of value each setting takes (besides None, which every one but the switches and
+#: the PIV's takes): numbers, words, switches (true/false) and circles (three numbers).
+_NUMBER_SETTINGS = ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "flight_deg", "air_temp_c",
+                    "normalise_spacings")
+_WORD_SETTINGS = ("ball_type", "background")
+_SWITCH_SETTINGS = ("find_ball", "mask_glare")
+
+
+def _check_setting(name: str, value) -> None:
+    """Refuse a setting's value of the wrong kind, or a temperature below absolute zero."""
+    def refuse(kind: str):
+        raise WakelineError(f"settings: {name} must be {kind}, not {json.dumps(value)}")
+
+    def is_number(v) -> bool:
+        return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+
+    if name in _SWITCH_SETTINGS:
+        if not isinstance(value, bool):
+            refuse("true or false")
+    elif value is None:
+        return
+    elif name in _NUMBER_SETTINGS:
+        if not is_number(value):
+            refuse("a finite number or null")
+        if name == "air_temp_c" and value <= ABSOLUTE_ZERO_C:
+            raise WakelineError(f"settings: air_temp_c {value:g} deg C is below absolute zero")
+    elif name in _WORD_SETTINGS:
+        if not isinstance(value, str):
+            refuse("a word or null")
+    elif name in CIRCLE_SETTINGS:
+        if not (isinstance(value, (list, tuple)) and len(value) == 3
+                and all(is_number(v) for v in value)):
+            refuse("three numbers (centre x, y and radius, px) or null")
 
 
 @dataclass

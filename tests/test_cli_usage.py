@@ -53,6 +53,22 @@ def test_bad_inline_settings_are_one_line_bad_usage(session_path, capsys):
     assert line.startswith("wakeline process: error: argument --settings: not valid JSON")
 
 
+@pytest.mark.parametrize(("settings", "said"), [
+    ('{"piv": 3}', "settings: piv must be an object of PIV settings, not 3"),
+    ('{"piv": {"passes": "x"}}', 'PIV settings: passes must be a list of passes, not "x"'),
+    ('{"find_ball": "false"}', 'settings: find_ball must be true or false, not "false"'),
+    ('{"normalise_spacings": "3"}',
+     'settings: normalise_spacings must be a finite number or null, not "3"'),
+], ids=["piv a number", "passes a word", "switch a word", "number a word"])
+def test_settings_of_the_wrong_kind_are_refused_in_one_line(session_path, settings, said,
+                                                            capsys):
+    # values of the wrong kind were once taken at Python's word ("false" switched a step on)
+    # or ended in an internal error
+    code = main(["process", str(session_path), "--settings", settings, "--quiet"])
+    err = capsys.readouterr().err.strip()
+    assert code == 1 and err == f"wakeline: {said}"
+
+
 def help_text(command: str, capsys) -> str:
     """``wakeline COMMAND --help`` as printed, lines joined."""
     with pytest.raises(SystemExit) as stop:
@@ -76,7 +92,8 @@ def test_the_help_of_settings_says_both_ways(capsys):
      "argument --status: unknown review status 'acepted'"),
     (["conditions", "{s}", "--by", "nosuchcol"], "argument --by: no column 'nosuchcol'"),
     (["table", "{s}", "-o", "x.csv", "--ensemble"], "argument --ensemble: goes with --by"),
-], ids=["scale", "diameter", "normalise", "status", "by", "ensemble"])
+    (["pair", "a.tif", "b.tif", "--air-temp", "-300"], "-300 deg C is below absolute zero"),
+], ids=["scale", "diameter", "normalise", "status", "by", "ensemble", "air temperature"])
 def test_bad_option_values_exit_2(session_path, argv, said, capsys):
     argv = [a.replace("{s}", str(session_path)) for a in argv]
     line = usage_error(argv, capsys)

@@ -100,6 +100,18 @@ def test_an_unknown_ball_type_is_refused_at_import(tmp_path, capsys):
         assert list(s) == ["S0"]  # the rulebook word in any case is fine
 
 
+def test_an_air_temperature_below_absolute_zero_is_refused_at_import(tmp_path, capsys):
+    # it once went in and failed the shot at processing
+    src = write_shot_folder(tmp_path / "src", 2)
+    (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diameter_mm,air_temp_c\n"
+                                   "S0,2e-05,0.08,71.6,18.5\nS1,2e-05,0.08,71.6,-400\n")
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
+    assert "line 3 (shot S1): air_temp_c -400 deg C is below absolute zero" in (
+        capsys.readouterr().err)
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert list(s) == ["S0"]
+
+
 @pytest.mark.parametrize("row", ["S1,6e-O5,0.08,71.6,10,", "S1,2e-05,-0.08,71.6,10,",
                                  "S1,2e-05,0.08,71.6,10,,extra cell"],
                          ids=["bad-number", "negative-scale", "too-many-cells"])

@@ -212,3 +212,12 @@ def test_what_the_ball_frame_crop_takes_from_beyond_the_frame_is_masked():
         copies += 1
     assert copies >= 2
     assert mask[: copies - 1].all() and not mask[copies - 1 :, :5].any()
+
+
+def test_a_flight_direction_given_the_wrong_way_round_is_named_as_such():
+    frame_a, frame_b, truth = ball_shot(seed=13)
+    wrong = (truth.flight_deg + 180.0) % 360.0
+    result = measure_shot(frame_a, frame_b, ShotSettings(dt_s=truth.dt_s, flight_deg=wrong))
+    assert any(f"flight direction given ({wrong:g} deg)" in w for w in result.warnings)
+    assert result.separation.upper.angle_deg is None
+    assert "flight direction given" in result.separation.upper.reason

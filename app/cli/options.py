@@ -51,8 +51,18 @@ def zero_or_positive(text: str) -> float:
     return value
 
 
+def air_temperature(text: str) -> float:
+    """A temperature in deg C above absolute zero (``--air-temp``)."""
+    from core.air import ABSOLUTE_ZERO_C
+
+    value = finite_number(text)
+    if not value > ABSOLUTE_ZERO_C:
+        raise argparse.ArgumentTypeError(f"{text} deg C is below absolute zero")
+    return value
+
+
 def finite_number(text: str) -> float:
-    """A number that is not infinite or NaN (``--flight-deg``, ``--air-temp``)."""
+    """A number that is not infinite or NaN (``--flight-deg``)."""
     try:
         value = float(text)
     except ValueError:

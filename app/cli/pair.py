@@ -8,6 +8,7 @@ import json
 from pathlib import Path
 
 from app.cli.options import (
+    air_temperature,
     check_outputs,
     finite_number,
     known_ball_types,
@@ -41,7 +42,7 @@ def add_commands(subparsers) -> None:
     p.add_argument("--no-ball", action="store_true", help="no ball in the picture: PIV only")
     p.add_argument("--flight-deg", type=finite_number, metavar="D",
                    help="flight direction override, deg (0 = +x, 90 = toward the top)")
-    p.add_argument("--air-temp", type=finite_number, metavar="C",
+    p.add_argument("--air-temp", type=air_temperature, metavar="C",
                    help="air temperature for the Reynolds number, deg C (default 20)")
     p.add_argument("--no-glare-mask", action="store_true",
                    help="correlate saturated glare too (by default it is left out)")
