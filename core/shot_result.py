@@ -142,10 +142,9 @@ def _check_setting(name: str, value) -> None:
     elif name in _WORD_SETTINGS:
         if not isinstance(value, str):
             refuse("a word or null")
-    elif name in CIRCLE_SETTINGS:
-        if not (isinstance(value, (list, tuple)) and len(value) == 3
-                and all(is_number(v) for v in value)):
-            refuse("three numbers (centre x, y and radius, px) or null")
+    elif name in CIRCLE_SETTINGS and not (isinstance(value, (list, tuple)) and len(value) == 3
+                                          and all(is_number(v) for v in value)):
+        refuse("three numbers (centre x, y and radius, px) or null")
 
 
 @dataclass
