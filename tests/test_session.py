@@ -323,6 +323,17 @@ def test_changed_and_missing_frame_files_are_reported_per_shot(session_path):
         assert s.load_frames("S0")[0].shape == (192, 256)
 
 
+def test_a_session_copied_away_from_its_frames_says_where_it_looks_for_them(session_path,
+                                                                            tmp_path):
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    shutil.copyfile(session_path, elsewhere / "copy.h5")
+    with Session.open(elsewhere / "copy.h5", writable=False) as s:
+        with pytest.raises(WakelineError, match="not found .the session keeps its frames' "
+                           "places relative to its own folder, .*elsewhere: move the frames"):
+            s.load_frames("S0")
+
+
 def test_embedded_frames_do_not_need_the_source_folder(tmp_path):
     src = write_shot_folder(tmp_path / "src", 2)
     import_folder(src, tmp_path / "e.h5", embed=True)

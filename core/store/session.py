@@ -306,6 +306,9 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             "path_b": None if frames.get("path_b") is None else str(self._resolve(frames["path_b"])),
             "sha256_a": frames.get("sha256_a"),
             "sha256_b": frames.get("sha256_b"),
+            # frames kept by a relative path are looked for from the session file's folder
+            "beside_session": None if Path(frames["path_a"]).is_absolute() else str(
+                self.path.parent),
         }
 
     def load_frames(self, shot_id: str) -> tuple[np.ndarray, np.ndarray]:
