@@ -328,10 +328,11 @@ def test_a_session_copied_away_from_its_frames_says_where_it_looks_for_them(sess
     elsewhere = tmp_path / "elsewhere"
     elsewhere.mkdir()
     shutil.copyfile(session_path, elsewhere / "copy.h5")
-    with Session.open(elsewhere / "copy.h5", writable=False) as s:
-        with pytest.raises(WakelineError, match="not found .the session keeps its frames' "
-                           "places relative to its own folder, .*elsewhere: move the frames"):
-            s.load_frames("S0")
+    said = ("not found .the session keeps its frames' places relative to its own folder, "
+            ".*elsewhere: move the frames")
+    with (Session.open(elsewhere / "copy.h5", writable=False) as s,
+          pytest.raises(WakelineError, match=said)):
+        s.load_frames("S0")
 
 
 def test_embedded_frames_do_not_need_the_source_folder(tmp_path):

@@ -28,6 +28,7 @@ from PySide6.QtCore import QRectF, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QImage, QPainter, QTextDocument
 from PySide6.QtWidgets import (
     QApplication,
+    QBoxLayout,
     QHBoxLayout,
     QLabel,
     QMenu,
@@ -68,6 +69,7 @@ pg.setConfigOptions(imageAxisOrder="row-major")
 FLICKER_MS = 350
 HOVER_HINT = "Point for flow values; drag a mark along the outline."
 LEGEND_MIN_WIDTH = 260  # px: the layer legend wraps rather than widening the window
+HINT_MIN_WIDTH = 320  # px: narrower, the hint's line goes above the legend instead of beside it
 # the picture's mouse work, for the F1 key list
 MOUSE_KEYS = (("drag a round mark", "move a separation mark along the ball outline"),)
 
@@ -219,7 +221,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         box.setSpacing(2)
         box.addLayout(bar)
         box.addWidget(self.graphics, 1)
-        bottom = QHBoxLayout()
+        bottom = self._bottom_row = QHBoxLayout()
         bottom.setContentsMargins(0, 0, 4, 0)
         bottom.addWidget(self.hover_label, 1)
         self.legend = QLabel(legend_html(), self)
@@ -334,6 +336,13 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
     def resizeEvent(self, event) -> None:
         super().resizeEvent(event)
         self._place_message()
+        # a narrow canvas (a small screen, wide side panels) puts the legend under the hint
+        # rather than squeezing the hint to a few letters beside it
+        direction = (QBoxLayout.Direction.TopToBottom
+                     if self.width() < LEGEND_MIN_WIDTH + HINT_MIN_WIDTH
+                     else QBoxLayout.Direction.LeftToRight)
+        if self._bottom_row.direction() != direction:
+            self._bottom_row.setDirection(direction)
 
     # -- picture -----------------------------------------------------------------------------
     def _draw_picture(self) -> None:

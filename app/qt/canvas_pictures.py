@@ -10,6 +10,7 @@ import math
 import numpy as np
 
 from app.review import colours
+from app.review.scales import ARROW_CELL_SHARE
 from core.geometry import ball_coordinates, mid_circle
 
 
@@ -81,8 +82,9 @@ def typical_length(dx_px: np.ndarray, dy_px: np.ndarray) -> float:
 
 
 def vector_scale(big_px: float, cell_px: float) -> float:
-    """Display factor so that a large vector (``typical_length``) spans ~0.9 of one drawn cell."""
-    return 0.9 * cell_px / big_px if big_px > 0 else 1.0
+    """Display factor so that a large vector (``typical_length``) spans ``ARROW_CELL_SHARE``
+    of one drawn cell, leaving a gap between neighbouring arrows."""
+    return ARROW_CELL_SHARE * cell_px / big_px if big_px > 0 else 1.0
 
 
 

@@ -70,6 +70,9 @@ class SessionOverview(QtWidgets.QWidget):
         item = self.plot.getPlotItem()
         item.showGrid(x=True, y=True, alpha=0.15)
         item.setLabel("left", "separation (deg)")
+        # room under the bottom axis's label (without it the label's lower half, descenders
+        # and all, fell off the widget's edge)
+        item.layout.setContentsMargins(0, 0, 0, 6)
         item.setMenuEnabled(False)
         for axis in ("left", "bottom"):
             item.getAxis(axis).setPen(pg.mkPen(colours.MUTED_INK))

@@ -63,6 +63,8 @@ APPLICATION = "wakeline"
 NUDGE_DEG = 0.5
 PREFETCH_DELAY_MS = 60
 FINE_NUDGE_DEG = 0.1
+#: Width (px) the picture takes from the side panels on a narrow window (MainWindow.resizeEvent).
+CANVAS_ROOM_PX = 520
 
 # (action key, menu text, shortcut, tip) of the review keys; shown in Help > Keyboard shortcuts
 REVIEW_KEYS = (
@@ -434,6 +436,30 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         QMessageBox.about(self, "About wakeline",
                           f"wakeline {__version__}\nPIV of seamed balls in flight: velocity, "
                           "vorticity and separation angles per shot, with review.")
+
+    # -- a small screen ----------------------------------------------------------------------
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        QTimer.singleShot(0, self._make_room_for_canvas)  # once the splitter has its new width
+
+    def _make_room_for_canvas(self) -> None:
+        """On a narrow window the picture takes room from the shot list and the readout, down
+        to their least widths, until it is ``CANVAS_ROOM_PX`` wide (the splitter otherwise keeps
+        the side panels whole and squeezes the picture alone)."""
+        sizes = self.splitter.sizes()
+        if len(sizes) != 3 or not all(sizes) or sizes[1] >= CANVAS_ROOM_PX:
+            return
+        sides = (0, 2)
+        spare = {i: max(0, sizes[i] - self.splitter.widget(i).minimumWidth()) for i in sides}
+        total = sum(spare.values())
+        if total == 0:
+            return
+        take = min(CANVAS_ROOM_PX - sizes[1], total)
+        for i in sides:
+            given = round(take * spare[i] / total)
+            sizes[i] -= given
+            sizes[1] += given
+        self.splitter.setSizes(sizes)
 
     # -- closing -----------------------------------------------------------------------------
     def closeEvent(self, event) -> None:

@@ -12,7 +12,7 @@ from PySide6 import QtCore, QtGui
 
 from app.review import colours
 from app.review.marks import fitted_layer_lines, moved_from_proposal
-from app.review.scales import round_length, shot_limit
+from app.review.scales import ARROW_CELL_SHARE, round_length, shot_limit
 from app.review.text import (
     MISSING,
     SHEET_DECIMALS,
@@ -227,7 +227,7 @@ def _paint_vectors(p, view: _View, result, box) -> tuple[float, float] | None:
     if speed.size == 0:
         return None
     ref = round_length(float(np.percentile(speed, 95))) if np.percentile(speed, 95) > 0 else 1.0
-    length_px = 0.9 * stride * float(vf.spacing_px)  # image px for the reference speed
+    length_px = ARROW_CELL_SHARE * stride * float(vf.spacing_px)  # image px for the reference speed
     p.setPen(pen("#111111", 0.18))
     for xv, yv, uv, vv in zip(xs[inside], ys[inside], us[inside], vs[inside]):
         draw_arrow(p, view(xv, yv), view(xv + uv / ref * length_px, yv + vv / ref * length_px))
