@@ -105,6 +105,7 @@ def _read_pages(path: Path) -> list[np.ndarray]:
     if path.stat().st_size == 0:
         raise WakelineError(f"{path}: file is empty")
     suffix = path.suffix.lower()
+    _check_signature(path, suffix)
     try:
         if suffix in TIFF_SUFFIXES:
             raw = _read_tiff_pages(path)
@@ -118,6 +119,26 @@ def _read_pages(path: Path) -> list[np.ndarray]:
         reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         raise WakelineError(f"{path}: not a readable image ({reason})") from None
     return [_checked_frame(path, page) for page in raw]
+
+
+#: The first bytes of each kind of image file (the TIFF and PNG specifications).
+_SIGNATURES = {"TIFF": (b"II*\0", b"MM\0*", b"II+\0", b"MM\0+"), "PNG": (b"\x89PNG\r\n\x1a\n",)}
+
+
+def _check_signature(path: Path, suffix: str) -> None:
+    """Refuse a file whose first bytes are not those of the image kind its name says, in the
+    analyst's words rather than the decoder's (a text file named ``.png``)."""
+    kind = "TIFF" if suffix in TIFF_SUFFIXES else "PNG" if suffix in PNG_SUFFIXES else None
+    if kind is None:
+        return
+    try:
+        with open(path, "rb") as fh:
+            head = fh.read(8)
+    except OSError as exc:
+        raise WakelineError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    if not head.startswith(_SIGNATURES[kind]):
+        raise WakelineError(f"{path}: not a {kind} image (the file does not begin as one; "
+                            "named for one by mistake?)")
 
 
 def _read_tiff_pages(path: Path) -> list[np.ndarray]:

@@ -49,10 +49,12 @@ def test_write_frame_roundtrip(tmp_path):
     "make, expected",
     [
         (lambda p: p.write_bytes(b""), "empty"),
-        (lambda p: p.write_text("this is not an image\n"), "not a readable image"),
+        (lambda p: p.write_text("this is not an image\n"), "not a TIFF image (the file does "
+         "not begin as one; named for one by mistake?)"),
         (lambda p: p.write_bytes(_truncated_tiff()), "not a readable image"),
+        (lambda p: p.write_bytes(b"II*\0" + bytes(8)), "TIFF has no pages"),
     ],
-    ids=["empty", "text-renamed", "truncated"],
+    ids=["empty", "text-renamed", "truncated", "header-only"],
 )
 def test_bad_file_messages(tmp_path, make, expected):
     good = tmp_path / "good.tif"
@@ -63,6 +65,16 @@ def test_bad_file_messages(tmp_path, make, expected):
         read_frame_pair(good, bad)
     message = str(err.value)
     assert str(bad) in message and expected in message and "\n" not in message
+    # the decoder's own words (a byte string, a backend's name) stay out of it
+    assert "b'" not in message and "backend" not in message
+
+
+def test_a_text_file_named_png_is_told_in_plain_words(tmp_path):
+    bad = tmp_path / "notes.png"
+    bad.write_text("hello\n")
+    with pytest.raises(WakelineError, match=r"notes.png: not a PNG image \(the file does not "
+                       "begin as one"):
+        read_frame_pair(bad, bad)
 
 
 def _truncated_tiff() -> bytes:
