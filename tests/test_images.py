@@ -49,8 +49,7 @@ def test_write_frame_roundtrip(tmp_path):
     "make, expected",
     [
         (lambda p: p.write_bytes(b""), "empty"),
-        (lambda p: p.write_text("this is not an image\n"), "not a TIFF image (the file does "
-         "not begin as one; named for one by mistake?)"),
+        (lambda p: p.write_text("this is not an image\n"), "not a TIFF image"),
         (lambda p: p.write_bytes(_truncated_tiff()), "not a readable image"),
         (lambda p: p.write_bytes(b"II*\0" + bytes(8)), "TIFF has no pages"),
     ],
