@@ -243,3 +243,44 @@ def test_a_terminal_without_the_degree_sign_gets_a_stand_in_not_an_error(monkeyp
     print("upper: -9.6° ± 1.8°, Re 1.43 × 10⁵")
     sys.stdout.flush()
     assert raw.getvalue() == b"upper: -9.6? ? 1.8?, Re 1.43 ? 10?\n"
+
+
+def test_an_internal_error_says_where_its_details_went(monkeypatch, tmp_path, capsys):
+    from app.cli import pair
+
+    def broken(_args):
+        raise RuntimeError("a bug of ours")
+
+    monkeypatch.setattr(pair, "run_pair", broken)
+    monkeypatch.setenv("WAKELINE_HOME", str(tmp_path / "home"))
+    assert main(["pair", "a.tif", "b.tif"]) == 1
+    err = capsys.readouterr().err.strip()
+    log = tmp_path / "home" / "wakeline-errors.log"
+    assert err == f"wakeline: internal error: RuntimeError: a bug of ours (details in {log})"
+    assert "RuntimeError: a bug of ours" in log.read_text()
+    # where no log can be written (the home under a file), the line says so plainly
+    (tmp_path / "a file").write_text("")
+    monkeypatch.setenv("WAKELINE_HOME", str(tmp_path / "a file" / "home"))
+    assert main(["pair", "a.tif", "b.tif"]) == 1
+    err = capsys.readouterr().err.strip()
+    assert err.startswith("wakeline: internal error: RuntimeError: a bug of ours (no details "
+                          "logged: ")
+
+
+def test_a_sheet_that_cannot_be_written_says_why_in_one_line(session_path, tmp_path,
+                                                            monkeypatch, capsys):
+    from pathlib import Path
+
+    real_open = Path.open
+
+    def refuse_part(self, *args, **kwargs):
+        if self.name.endswith(".part"):
+            raise PermissionError(13, "Permission denied", str(self))
+        return real_open(self, *args, **kwargs)
+
+    monkeypatch.setattr(Path, "open", refuse_part)
+    out = tmp_path / "out.pdf"
+    assert main(["sheet", str(session_path), "-o", str(out)]) == 1
+    # the system's reason, and nothing of Qt's own ("QPainter::begin(): Returned false")
+    assert capsys.readouterr().err == (f"wakeline: {out}: cannot write the PDF here "
+                                       "(Permission denied)\n")

@@ -141,3 +141,11 @@ def test_a_shot_id_given_twice_is_named_as_such(tmp_path, repeat, capsys):
     assert err == "wakeline: shots.csv line 4: shot id S1 is given twice (also line 3)\n"
     with Session.open(tmp_path / "s8.h5", writable=False) as s:
         assert list(s) == ["S0", "S1"] and s["S1"].metadata["dt_s"] == 2e-5
+
+
+def test_a_manifest_of_only_its_header_is_refused_and_makes_no_session(tmp_path, capsys):
+    src = write_shot_folder(tmp_path / "src", 1)
+    (src / "shots.csv").write_text(f"{HEADER}\n")
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
+    assert "shots.csv: no shots (a header and no rows)" in capsys.readouterr().err
+    assert not (tmp_path / "s.h5").exists()

@@ -134,3 +134,20 @@ def test_a_short_file_is_named_for_what_it_is(session_path, content, message):
     session_path.write_bytes(content)
     with pytest.raises(WakelineError, match=message):
         Session.open(session_path, writable=False)
+
+
+@pytest.mark.parametrize("exists", [True, False], ids=["existing session", "new session"])
+def test_a_folder_not_writable_gets_advice_that_fits(tmp_path, monkeypatch, exists):
+    from core.store.lock import Lock, SessionReadOnly
+
+    session = tmp_path / "s.h5"
+    if exists:
+        session.write_bytes(b"")
+
+    def refused(self, me):
+        raise PermissionError(13, "Permission denied")
+
+    monkeypatch.setattr(Lock, "_try_create", refused)
+    advice = "open the session read-only" if exists else "choose a folder you may write in"
+    with pytest.raises(SessionReadOnly, match=f"its folder is not writable; {advice}$"):
+        Lock(session).acquire()

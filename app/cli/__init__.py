@@ -102,8 +102,7 @@ def main(argv: list[str] | None = None) -> int:
         return 1
     except Exception as exc:  # noqa: BLE001 - a bug of ours: traceback to the log, not the screen
         log = write_crash_log()
-        print(f"wakeline: internal error: {type(exc).__name__}: {exc} (details in {log})",
-              file=sys.stderr)
+        print(f"wakeline: internal error: {type(exc).__name__}: {exc} ({log})", file=sys.stderr)
         return 1
 
 
@@ -137,7 +136,8 @@ def open_window(session: str | None = None) -> int:
 
 
 def write_crash_log() -> str:
-    """Append the current exception's traceback to the user's wakeline log; return its path."""
+    """Append the current exception's traceback to the user's wakeline log; say where it went
+    ("details in PATH", or why no log was written)."""
     from core.paths import user_data_dir
 
     try:
@@ -146,6 +146,6 @@ def write_crash_log() -> str:
             fh.write(f"--- {datetime.now(UTC).isoformat()} wakeline {__version__}\n")
             fh.write(traceback.format_exc())
     except OSError as exc:
-        return f"no log written: {exc.strerror}"
-    return str(path)
+        return f"no details logged: {exc.strerror or exc}"
+    return f"details in {path}"
 

@@ -115,6 +115,11 @@ def make_sheet(
     name = getattr(session, "name", "") or Path(session.path).stem
     _make_folder(out_path.parent)
     with atomic_write(out_path, suffix=".part") as tmp:
+        try:  # the system's reason, where Qt would only print a warning of its own
+            tmp.open("wb").close()
+        except OSError as exc:
+            raise WakelineError(f"{out_path}: cannot write the PDF here "
+                                f"({exc.strerror or exc})") from None
         writer = _writer(tmp, name)
         painter = QtGui.QPainter()
         if not painter.begin(writer):

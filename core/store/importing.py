@@ -67,10 +67,13 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     Raises
     ------
     WakelineError
-        When the manifest is missing or lacks a required column (nothing is imported).
+        When the manifest is missing, lacks a required column or has no rows (nothing is
+        imported, no session created).
     """
     src_dir = Path(src_dir)
     rows = read_manifest(src_dir / MANIFEST_NAME)
+    if not rows:
+        raise WakelineError(f"{src_dir / MANIFEST_NAME}: no shots (a header and no rows)")
     session_path = Path(session_path)
     session = Session.open(session_path) if session_path.exists() else Session.create(session_path)
     report = ImportReport()

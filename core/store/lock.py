@@ -92,8 +92,10 @@ class Lock:
             try:
                 created = self._try_create(me)
             except PermissionError:
-                raise SessionReadOnly(f"{self.session_path}: its folder is not writable; open "
-                                      "the session read-only") from None
+                advice = ("open the session read-only" if self.session_path.exists()
+                          else "choose a folder you may write in")
+                raise SessionReadOnly(f"{self.session_path}: its folder is not writable; "
+                                      f"{advice}") from None
             except OSError as exc:  # e.g. a full disk
                 if exc.errno == errno.EROFS:
                     raise SessionReadOnly(f"{self.session_path}: cannot write in its folder "
