@@ -22,8 +22,10 @@ from scipy import stats
 from core.geometry import SIDES
 from core.store.records import ReviewStatus, ShotRecord
 
-#: Columns a new session groups by, those its shots have values in.
-DEFAULT_COLUMNS = ("ball_type", "seam_deg", "speed_nominal_m_s", "spin_rpm", "spin_axis_deg")
+#: Columns a new session groups by, those its shots have values in (``surface``: the ball's
+#: finish, e.g. red or white lacquer, worn; a manifest's own word).
+DEFAULT_COLUMNS = ("ball_type", "surface", "seam_deg", "speed_nominal_m_s", "spin_rpm",
+                   "spin_axis_deg")
 #: Manifest columns that describe one shot rather than a condition.
 NOT_GROUPING = ("notes", "dt_s", "scale_mm_per_px", "flight_deg")
 CONFIDENCE = 0.95

@@ -64,7 +64,8 @@ SEAM_DELAY_PEAK_DEG = 27.0
 SEAM_DELAY_WIDTH_DEG = 14.0
 
 MANIFEST_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball_type",
-                    "speed_nominal_m_s", "spin_rpm", "seam_deg", "air_temp_c", "ball", "notes")
+                    "surface", "speed_nominal_m_s", "spin_rpm", "seam_deg", "air_temp_c", "ball",
+                    "notes")
 TRUTH_COLUMNS = ("shot", "upper_true_deg", "lower_true_deg", "wake_deflection_true_deg",
                  "speed_true_m_s", "flight_true_deg", "shift_px", "reynolds_number",
                  "surface", "glint", "shadow_side")
@@ -220,9 +221,11 @@ def _number(value: float) -> str:
 
 
 def manifest_text(shots: list[DemoShot]) -> str:
+    # the surface is part of the condition (the white ball's shots are not pooled with the red
+    # ones'); which ball of that surface, not
     rows = [[s.shot_id, _number(DT_S), _number(s.scale_mm_per_px), _number(BALL_DIAMETER_MM),
-             "cricket", _number(SPEED_NOMINAL_M_S), _number(SPIN_RPM), _number(s.seam_deg),
-             _number(AIR_TEMP_C), s.ball, s.notes] for s in shots]
+             "cricket", s.ball.split()[0], _number(SPEED_NOMINAL_M_S), _number(SPIN_RPM),
+             _number(s.seam_deg), _number(AIR_TEMP_C), s.ball, s.notes] for s in shots]
     return _csv_text(MANIFEST_COLUMNS, rows)
 
 

@@ -72,6 +72,22 @@ def test_conditions_take_the_final_angle_else_the_proposal_and_skip_unusable(ses
     assert unset.label == "seam_deg (none)" and seam0.reynolds is None
 
 
+def test_balls_of_another_surface_are_another_condition_by_default():
+    # a white ball's shots were once pooled with a red ball's at the same seam angle
+    from core.store.records import ShotRecord
+
+    def record(shot, surface, ball):
+        return ShotRecord(shot, {"ball_type": "cricket", "surface": surface, "seam_deg": 20.0,
+                                 "ball": ball})
+
+    records = [record("a", "red", "red 1"), record("b", "red", "red 2"),
+               record("c", "white", "white 1")]
+    assert default_columns(records) == ["ball_type", "surface", "seam_deg"]
+    assert "ball" in grouping_columns(records)  # offered, not chosen: repeats may use two balls
+    red, white = group_conditions(records, default_columns(records))
+    assert red.shot_ids == ["a", "b"] and white.shot_ids == ["c"]
+
+
 def test_the_reynolds_range_comes_from_the_summary_when_it_has_one(session_path):
     with Session.open(session_path, writable=False) as s:
         record = s["S1"]

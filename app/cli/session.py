@@ -33,7 +33,7 @@ def _add_import(subparsers) -> None:
         "import",
         help="import a folder of shots into a session",
         description="Import the shots listed in SRC_DIR/shots.csv (columns shot, dt_s, "
-        "scale_mm_per_px, ball_diameter_mm, and optional ball_type, speed_nominal_m_s, "
+        "scale_mm_per_px, ball_diameter_mm, and optional ball_type, surface, speed_nominal_m_s, "
         "spin_rpm, spin_axis_deg, seam_deg, flight_deg, air_temp_c, camera, notes; other "
         "columns are kept as metadata). An empty scale_mm_per_px: the scale from the fitted "
         "ball and its diameter; air_temp_c sets the air's viscosity for the Reynolds number "

@@ -163,7 +163,8 @@ def session_date(session, records) -> str:
 def metadata_line(record) -> str:
     md = record.metadata or {}
     parts = []
-    for key, label, unit in (("ball_type", "", ""), ("seam_deg", "seam ", " deg"),
+    for key, label, unit in (("ball_type", "", ""), ("surface", "", ""),
+                             ("seam_deg", "seam ", " deg"),
                              ("speed_nominal_m_s", "", " m/s nominal"),
                              ("spin_rpm", "spin ", " rpm")):
         value = md.get(key)
