@@ -71,9 +71,10 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
         imported, no session created).
     """
     src_dir = Path(src_dir)
-    rows = read_manifest(src_dir / MANIFEST_NAME)
+    manifest = src_dir / MANIFEST_NAME
+    rows = read_manifest(manifest)
     if not rows:
-        raise WakelineError(f"{src_dir / MANIFEST_NAME}: no shots (a header and no rows)")
+        raise WakelineError(f"{manifest}: no shots (a header and no rows)")
     session_path = Path(session_path)
     session = Session.open(session_path) if session_path.exists() else Session.create(session_path)
     report = ImportReport()
