@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+from dataclasses import replace
 
 import pytest
 from data.session_helpers import fake_result, write_shot_folder
@@ -111,3 +112,16 @@ def test_the_table_is_never_written_over_its_session(session_path):
             WakelineError, match=r"s\.h5: is the session s\.h5 itself"):
         write_table_csv(s, session_path)  # as the window's export could
     assert session_path.read_bytes() == before
+
+
+def test_the_table_says_why_a_side_has_no_proposal(tmp_path):
+    # a shot processed with no proposal on either side once gave no reason anywhere in the table
+    import_folder(write_shot_folder(tmp_path / "src", 1), tmp_path / "s.h5")
+    reason = "too few particle images beside the ball on this side (12% of the air around it)"
+    with Session.open(tmp_path / "s.h5") as s:
+        result = fake_result(s.settings_for("S0"), None, 4.0)
+        result.separation = replace(result.separation,
+                                    upper=replace(result.separation.upper, reason=reason))
+        s.save_result("S0", result)
+    assert main(["table", str(tmp_path / "s.h5"), "-o", str(tmp_path / "t.csv")]) == 0
+    assert _read(tmp_path / "t.csv")["S0"]["proposal_notes"] == f"upper: {reason}"

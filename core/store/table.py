@@ -7,6 +7,7 @@ import csv
 import math
 from pathlib import Path
 
+from core.geometry import SIDES
 from core.store.companions import refuse_session_file
 from core.store.files import atomic_write
 from core.store.manifest import NUMBER_COLUMNS, TEXT_COLUMNS
@@ -39,6 +40,7 @@ _RESULT_COLUMNS = (
     "state", "failure", "flight_direction_deg", "flight_speed_m_s", "scale_used_mm_per_px",
     "reynolds_number",
     "upper_proposed_deg", "upper_uncertainty_deg", "lower_proposed_deg", "lower_uncertainty_deg",
+    "proposal_notes",
     "upper_final_deg", "lower_final_deg", "wake_deflection_deg",
     "wake_deflection_uncertainty_deg", "wake_state",
     "review_status", "unusable_reason", "review_note", "reviewed_by", "reviewed_utc",
@@ -57,14 +59,24 @@ def _result_cells(r: ShotRecord) -> list[str]:
         None if summary is None else summary.scale_mm_per_px,
         None if summary is None else summary.reynolds,
         *map(_angle, (r.proposed_deg("upper"), r.uncertainty_deg("upper"),
-                      r.proposed_deg("lower"), r.uncertainty_deg("lower"),
-                      r.final_deg("upper"), r.final_deg("lower"), r.wake_deflection_deg(),
+                      r.proposed_deg("lower"), r.uncertainty_deg("lower"))),
+        _proposal_notes(summary),
+        *map(_angle, (r.final_deg("upper"), r.final_deg("lower"), r.wake_deflection_deg(),
                       r.wake_deflection_uncertainty_deg())),
         r.wake_state(),  # from the final angles: follows the analyst's edits
         pick.status, pick.reason, pick.note, pick.who, pick.when,
         r.processed_utc, r.software_version, pick.note_who, pick.note_when,
     ]
     return [cell_text(v) for v in values]
+
+
+def _proposal_notes(summary) -> str | None:
+    """Why a side has no proposal, or what to check in the one it has, side by side:
+    ``upper: ...; lower: ...``."""
+    if summary is None:
+        return None
+    notes = [f"{side}: {reason}" for side in SIDES if (reason := summary.side(side).reason)]
+    return "; ".join(notes) or None
 
 
 def _angle(value: float | None) -> str | None:
