@@ -105,14 +105,11 @@ def _read_pages(path: Path) -> list[np.ndarray]:
     if path.stat().st_size == 0:
         raise WakelineError(f"{path}: file is empty")
     suffix = path.suffix.lower()
-    _check_signature(path, suffix)
+    if suffix not in TIFF_SUFFIXES | PNG_SUFFIXES:
+        raise WakelineError(f"{path}: unsupported image type '{suffix}' (use TIFF or PNG)")
+    kind = _kind_of(path, suffix)
     try:
-        if suffix in TIFF_SUFFIXES:
-            raw = _read_tiff_pages(path)
-        elif suffix in PNG_SUFFIXES:
-            raw = [_read_png(path)]
-        else:
-            raise WakelineError(f"{path}: unsupported image type '{suffix}' (use TIFF or PNG)")
+        raw = _read_tiff_pages(path) if kind == "TIFF" else [_read_png(path)]
     except WakelineError:
         raise
     except Exception as exc:  # noqa: BLE001 - any decoder failure is the file's fault, not ours
@@ -125,20 +122,21 @@ def _read_pages(path: Path) -> list[np.ndarray]:
 _SIGNATURES = {"TIFF": (b"II*\0", b"MM\0*", b"II+\0", b"MM\0+"), "PNG": (b"\x89PNG\r\n\x1a\n",)}
 
 
-def _check_signature(path: Path, suffix: str) -> None:
-    """Refuse a file whose first bytes are not those of the image kind its name says, in the
-    analyst's words rather than the decoder's (a text file named ``.png``)."""
-    kind = "TIFF" if suffix in TIFF_SUFFIXES else "PNG" if suffix in PNG_SUFFIXES else None
-    if kind is None:
-        return
+def _kind_of(path: Path, suffix: str) -> str:
+    """"TIFF" or "PNG" by the file's first bytes (a TIFF named ``.png`` is read as the TIFF it
+    is); a file that begins as neither is refused in the analyst's words rather than the
+    decoder's (a text file named ``.png``)."""
     try:
         with open(path, "rb") as fh:
             head = fh.read(8)
     except OSError as exc:
         raise WakelineError(f"{path}: cannot be read ({exc.strerror or exc})") from None
-    if not head.startswith(_SIGNATURES[kind]):
-        raise WakelineError(f"{path}: not a {kind} image (the file does not begin as one; "
-                            "named for one by mistake?)")
+    for kind, starts in _SIGNATURES.items():
+        if head.startswith(starts):
+            return kind
+    named = "TIFF" if suffix in TIFF_SUFFIXES else "PNG"
+    raise WakelineError(f"{path}: not a {named} image (the file does not begin as one; "
+                        "named for one by mistake?)")
 
 
 def _read_tiff_pages(path: Path) -> list[np.ndarray]:
@@ -151,9 +149,10 @@ def _read_tiff_pages(path: Path) -> list[np.ndarray]:
 
 
 def _read_png(path: Path) -> np.ndarray:
-    from skimage import io
+    import imageio.v3 as iio
 
-    return io.imread(path)
+    # decoded as the PNG its first bytes say it is, whatever its name (_kind_of)
+    return iio.imread(path, extension=".png")
 
 
 def _checked_frame(path: Path, page: np.ndarray) -> np.ndarray:

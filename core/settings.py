@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import json
 import math
+import numbers
 import os
 from dataclasses import dataclass
 
@@ -64,47 +65,76 @@ class PivSettings:
         }
 
     @classmethod
-    def from_dict(cls, data: dict) -> PivSettings:
+    def from_dict(cls, data: dict, *, strict: bool = False) -> PivSettings:
+        """Settings from their JSON form; ``strict`` refuses values of the wrong kind (settings
+        coming in), else they are converted as they always were (settings read back)."""
         known = {
             "passes", "median_threshold", "median_eps_px", "max_masked_fraction",
             "deform_min_change_px", "workers",
         }
         values = {k: v for k, v in dict(data).items() if k in known}
-        for name in known - {"passes", "workers"}:
-            if name in values and not _is_number(values[name]):
-                raise WakelineError(f"PIV settings: {name} must be a number, not "
-                                    f"{json.dumps(values[name])}")
-        workers = values.get("workers")
-        if workers is not None and not (_is_number(workers) and int(workers) == workers):
-            raise WakelineError(f"PIV settings: workers must be a whole number or null, not "
-                                f"{json.dumps(workers)}")
+        if strict:
+            _check_kinds(values, known)
         if "passes" in values:
-            passes = values["passes"]
-            if not isinstance(passes, (list, tuple)):
-                raise WakelineError(f"PIV settings: passes must be a list of passes, not "
-                                    f"{json.dumps(passes)}")
-            values["passes"] = tuple(_pass_from(p) for p in passes)
+            values["passes"] = tuple(_pass_from(p, strict) for p in values["passes"])
         return cls(**values)
 
 
-def _is_number(value) -> bool:
-    return isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value)
+def _check_kinds(values: dict, known: set) -> None:
+    """Refuse PIV settings of the wrong kind (a word for a number, a number for the passes)."""
+    for name in known - {"passes", "workers"}:
+        if name in values and not is_number(values[name]):
+            raise WakelineError(f"PIV settings: {name} must be a number, not "
+                                f"{shown(values[name])}")
+    workers = values.get("workers")
+    if workers is not None:
+        if not (is_number(workers) and float(workers).is_integer()):
+            raise WakelineError(f"PIV settings: workers must be a whole number or null, not "
+                                f"{shown(workers)}")
+        values["workers"] = int(workers)
+    passes = values.get("passes")
+    if passes is not None and not isinstance(passes, (list, tuple)):
+        raise WakelineError(f"PIV settings: passes must be a list of passes, not "
+                            f"{shown(passes)}")
 
 
-def _pass_from(p) -> PivPass:
+def is_number(value) -> bool:
+    """A real, finite number (not a switch: ``True`` is not 1 here), numpy's included."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        return False
+    try:
+        return math.isfinite(float(value))
+    except OverflowError:  # an integer too large for a float
+        return False
+
+
+def shown(value) -> str:
+    """A value as the analyst wrote it (JSON), or as Python shows it where JSON cannot."""
+    try:
+        return json.dumps(value)
+    except (TypeError, ValueError):
+        return repr(value)
+
+
+def _pass_from(p, strict: bool = False) -> PivPass:
     """A pass from ``{"window_px": 32, "overlap": 0.5}`` or ``[32, 0.5]``."""
     if isinstance(p, PivPass):
         return p
+    if not strict:  # as read back: converted as it always was
+        if isinstance(p, dict):
+            return PivPass(int(p["window_px"]), float(p.get("overlap", 0.5)))
+        window, overlap = p
+        return PivPass(int(window), float(overlap))
     if isinstance(p, dict) and "window_px" in p:
         window, overlap = p["window_px"], p.get("overlap", 0.5)
     elif isinstance(p, (list, tuple)) and len(p) == 2:
         window, overlap = p
     else:
         raise WakelineError(f"PIV settings: a pass must be {{\"window_px\": W, \"overlap\": O}} "
-                            f"or [W, O], not {json.dumps(p)}")
-    if not (_is_number(window) and _is_number(overlap)):
+                            f"or [W, O], not {shown(p)}")
+    if not (is_number(window) and is_number(overlap)):
         raise WakelineError(f"PIV settings: a pass's window and overlap must be numbers, not "
-                            f"{json.dumps(p)}")
+                            f"{shown(p)}")
     return PivPass(int(window), float(overlap))
 
 

@@ -8,7 +8,6 @@ store keeps, and ``ShotResult.from_stored`` rebuilds a result from those two.
 from __future__ import annotations
 
 import json
-import math
 from dataclasses import asdict, dataclass, field, replace
 from dataclasses import fields as dc_fields
 
@@ -25,7 +24,7 @@ from core.results import (
     dataclass_dict,
     finite_or_none,
 )
-from core.settings import PivPass, PivSettings
+from core.settings import PivPass, PivSettings, is_number, shown
 
 #: Passes of the finer correlation around the ball (ball frame): it gives the stream beside the
 #: layer and the wake; the layer itself is fitted to the particle images (core.separation).
@@ -62,27 +61,33 @@ class ShotSettings:
         return asdict(self)
 
     @classmethod
-    def from_dict(cls, data: dict) -> ShotSettings:
-        """Settings from their JSON form; a value of the wrong kind (``"false"`` for a switch,
-        a number for the PIV's settings) is refused rather than taken at Python's word.
+    def from_dict(cls, data: dict, *, strict: bool = False) -> ShotSettings:
+        """Settings from their JSON form.
+
+        ``strict`` (settings coming in: ``--settings``, the session's processing settings being
+        set) refuses a value of the wrong kind (``"false"`` for a switch, a number for the
+        PIV's settings) rather than taking it at Python's word. Settings read back from a
+        session are taken as they were stored, as the version that stored them took them: a
+        result stays readable and its fingerprint stays the same.
 
         Raises
         ------
         WakelineError
-            "settings: <name> ..." naming the value and what it should be.
+            With ``strict``: "settings: <name> ..." naming the value and what it should be.
         """
         data = dict(data)
         piv = data.pop("piv", None)
         known = {f.name for f in dc_fields(cls)}
         values = {k: v for k, v in data.items() if k in known}
-        for name, value in values.items():
-            _check_setting(name, value)
+        if strict:
+            for name, value in values.items():
+                _check_setting(name, value)
+            if piv is not None and not isinstance(piv, dict):
+                raise WakelineError(f"settings: piv must be an object of PIV settings, not "
+                                    f"{shown(piv)}")
         settings = cls(**values)
         if piv is not None:
-            if not isinstance(piv, dict):
-                raise WakelineError(f"settings: piv must be an object of PIV settings, not "
-                                    f"{json.dumps(piv)}")
-            settings.piv = PivSettings.from_dict(piv)
+            settings.piv = PivSettings.from_dict(piv, strict=strict)
         return settings
 
     def fingerprint(self) -> str:
@@ -122,12 +127,9 @@ _SWITCH_SETTINGS = ("find_ball", "mask_glare")
 
 
 def _check_setting(name: str, value) -> None:
-    """Refuse a setting's value of the wrong kind, or a temperature below absolute zero."""
+    """Refuse a setting's value of the wrong kind, or a temperature at or below absolute zero."""
     def refuse(kind: str):
-        raise WakelineError(f"settings: {name} must be {kind}, not {json.dumps(value)}")
-
-    def is_number(v) -> bool:
-        return isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+        raise WakelineError(f"settings: {name} must be {kind}, not {shown(value)}")
 
     if name in _SWITCH_SETTINGS:
         if not isinstance(value, bool):
@@ -137,8 +139,9 @@ def _check_setting(name: str, value) -> None:
     elif name in _NUMBER_SETTINGS:
         if not is_number(value):
             refuse("a finite number or null")
-        if name == "air_temp_c" and value <= ABSOLUTE_ZERO_C:
-            raise WakelineError(f"settings: air_temp_c {value:g} deg C is below absolute zero")
+        if name == "air_temp_c" and not float(value) > ABSOLUTE_ZERO_C:
+            raise WakelineError(f"settings: air_temp_c {float(value):g} deg C is at or below "
+                                "absolute zero")
     elif name in _WORD_SETTINGS:
         if not isinstance(value, str):
             refuse("a word or null")

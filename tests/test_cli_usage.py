@@ -11,6 +11,7 @@ import pytest
 from data.session_helpers import FAST_PIV, write_shot_folder
 
 from app.cli import main
+from core import WakelineError
 from core.store import Session, import_folder
 
 
@@ -92,7 +93,7 @@ def test_the_help_of_settings_says_both_ways(capsys):
      "argument --status: unknown review status 'acepted'"),
     (["conditions", "{s}", "--by", "nosuchcol"], "argument --by: no column 'nosuchcol'"),
     (["table", "{s}", "-o", "x.csv", "--ensemble"], "argument --ensemble: goes with --by"),
-    (["pair", "a.tif", "b.tif", "--air-temp", "-300"], "-300 deg C is below absolute zero"),
+    (["pair", "a.tif", "b.tif", "--air-temp", "-300"], "-300 deg C is at or below absolute zero"),
 ], ids=["scale", "diameter", "normalise", "status", "by", "ensemble", "air temperature"])
 def test_bad_option_values_exit_2(session_path, argv, said, capsys):
     argv = [a.replace("{s}", str(session_path)) for a in argv]
@@ -284,3 +285,22 @@ def test_a_sheet_that_cannot_be_written_says_why_in_one_line(session_path, tmp_p
     # the system's reason, and nothing of Qt's own ("QPainter::begin(): Returned false")
     assert capsys.readouterr().err == (f"wakeline: {out}: cannot write the PDF here "
                                        "(Permission denied)\n")
+
+
+def test_settings_read_back_from_a_session_are_taken_as_they_were_stored():
+    # an older wakeline kept settings of any kind; its sessions must still open and their
+    # results stay readable (only settings coming in are checked)
+    import numpy as np
+
+    from core.shot_result import ShotSettings
+
+    stored = {"find_ball": 0, "mask_glare": "false", "flight_deg": "180",
+              "piv": {"workers": True, "passes": [{"window_px": "32", "overlap": "0.5"}]}}
+    settings = ShotSettings.from_dict(stored)
+    assert settings.find_ball == 0 and settings.piv.passes[0].window_px == 32
+    assert settings.fingerprint() == ShotSettings.from_dict(stored).fingerprint()
+    # coming in, numpy's numbers are numbers, and a number too large is refused in words
+    assert ShotSettings.from_dict({"dt_s": np.float32(2e-5)}, strict=True).dt_s > 0
+    with pytest.raises(WakelineError, match=r"normalise_spacings must be a finite number or "
+                       r"null, not 1{400}"):
+        ShotSettings.from_dict({"normalise_spacings": int("1" * 400)}, strict=True)

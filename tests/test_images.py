@@ -122,3 +122,11 @@ def test_two_page_tiff_where_one_frame_is_expected(tmp_path):
     tifffile.imwrite(tmp_path / "b.tif", _frame(2))
     with pytest.raises(WakelineError, match="pair.tif: holds 2 pages"):
         read_frame_pair(tmp_path / "pair.tif", tmp_path / "b.tif")
+
+
+def test_a_tiff_named_png_is_read_as_the_tiff_it_is(tmp_path):
+    # the decoder once sniffed the content; the file's kind is told by its first bytes
+    tifffile.imwrite(tmp_path / "a.png", _frame())
+    tifffile.imwrite(tmp_path / "b.tif", _frame())
+    frame_a, frame_b = read_frame_pair(tmp_path / "a.png", tmp_path / "b.tif")
+    np.testing.assert_array_equal(frame_a, frame_b)

@@ -106,7 +106,7 @@ def test_an_air_temperature_below_absolute_zero_is_refused_at_import(tmp_path, c
     (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diameter_mm,air_temp_c\n"
                                    "S0,2e-05,0.08,71.6,18.5\nS1,2e-05,0.08,71.6,-400\n")
     assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
-    assert "line 3 (shot S1): air_temp_c -400 deg C is below absolute zero" in (
+    assert "line 3 (shot S1): air_temp_c -400 deg C is at or below absolute zero" in (
         capsys.readouterr().err)
     with Session.open(tmp_path / "s.h5", writable=False) as s:
         assert list(s) == ["S0"]

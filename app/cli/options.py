@@ -57,7 +57,7 @@ def air_temperature(text: str) -> float:
 
     value = finite_number(text)
     if not value > ABSOLUTE_ZERO_C:
-        raise argparse.ArgumentTypeError(f"{text} deg C is below absolute zero")
+        raise argparse.ArgumentTypeError(f"{text} deg C is at or below absolute zero")
     return value
 
 

@@ -104,7 +104,7 @@ def _row_problem(meta: dict) -> str:
         if meta.get(key) is not None and meta[key] <= 0:
             return f"{key} must be positive, got {meta[key]:g}"
     if meta.get("air_temp_c") is not None and not meta["air_temp_c"] > ABSOLUTE_ZERO_C:
-        return f"air_temp_c {meta['air_temp_c']:g} deg C is below absolute zero"
+        return f"air_temp_c {meta['air_temp_c']:g} deg C is at or below absolute zero"
     if meta.get("ball_diameter_mm") is None and not meta.get("ball_type"):
         return "ball_diameter_mm is empty and no ball_type gives a nominal diameter"
     return ""

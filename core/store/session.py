@@ -436,7 +436,8 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             unknown = sorted(set(settings) - known)
             if unknown:
                 raise WakelineError(f"processing settings: unknown key(s) {', '.join(unknown)}")
-            ShotSettings.from_dict(settings)  # refuses bad PIV settings before they are kept
+            # refuses values of the wrong kind before they are kept
+            ShotSettings.from_dict(settings, strict=True)
             self._commit({"op": "settings", "settings": json_ready(settings), "t": now_utc()})
 
     def save_result(self, shot_id: str, result: ShotResult) -> None:
