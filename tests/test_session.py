@@ -329,7 +329,7 @@ def test_a_session_copied_away_from_its_frames_says_where_it_looks_for_them(sess
     elsewhere.mkdir()
     shutil.copyfile(session_path, elsewhere / "copy.h5")
     said = ("not found .the session keeps its frames' places relative to its own folder, "
-            ".*elsewhere: move the frames")
+            ".*elsewhere: if the session file was moved or copied, move its frames with it")
     with (Session.open(elsewhere / "copy.h5", writable=False) as s,
           pytest.raises(WakelineError, match=said)):
         s.load_frames("S0")

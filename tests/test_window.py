@@ -313,6 +313,39 @@ def test_screenshot_of_a_processed_shot_is_not_blank(main_window, make_session, 
     assert np.any(np.all(np.abs(pixels.astype(int) - [0x2b, 0x4c, 0x9a]) < 12, axis=-1))
 
 
+def test_a_small_window_gives_the_picture_room_unless_the_panels_were_set_by_hand(
+        main_window, make_session, qtbot):
+    from app.qt.canvas import HINT_MIN_WIDTH, LEGEND_MIN_WIDTH
+    from app.qt.window import CANVAS_ROOM_PX
+
+    window = _open(main_window, qtbot, make_session(2), show=True)
+    window.resize(1600, 900)
+    qtbot.wait(50)
+    window.resize(1024, 700)
+
+    def roomy() -> bool:  # the picture as wide as asked, or the side panels at their least
+        sizes = window.splitter.sizes()
+        least = [max(window.splitter.widget(i).minimumWidth(),
+                     window.splitter.widget(i).minimumSizeHint().width()) for i in (0, 2)]
+        return sizes[1] >= CANVAS_ROOM_PX - 2 or [sizes[0], sizes[2]] == least
+
+    qtbot.waitUntil(roomy, timeout=3000)
+    assert window.splitter.sizes()[1] > 450  # it was squeezed to about 200 px
+    # narrow as it is, the hint has its own line above the legend instead of a few letters
+    assert window.canvas.width() < LEGEND_MIN_WIDTH + HINT_MIN_WIDTH
+    assert window.canvas.legend.y() > window.canvas.hover_label.y()
+    # the analyst's own widths stay
+    window.resize(1600, 900)
+    qtbot.wait(50)
+    wide = window.splitter.sizes()
+    window.splitter.moveSplitter(wide[0] + 300, 2)  # as a drag would: the picture 300 px
+    set_by_hand = window.splitter.sizes()
+    window.resize(1599, 900)
+    qtbot.wait(50)
+    assert window.splitter.sizes()[1] < CANVAS_ROOM_PX
+    assert abs(window.splitter.sizes()[1] - set_by_hand[1]) <= 2
+
+
 def test_failed_shot_shows_its_reason(main_window, make_session, qtbot):
     path = make_session(2)
     with Session.open(path) as session:

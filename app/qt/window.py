@@ -21,7 +21,7 @@ from pathlib import Path
 os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
 
 import pyqtgraph as pg
-from PySide6.QtCore import QSettings, Qt, QTimer
+from PySide6.QtCore import QEvent, QSettings, Qt, QTimer
 from PySide6.QtGui import QAction, QKeySequence, QUndoStack
 from PySide6.QtWidgets import (
     QApplication,
@@ -145,6 +145,9 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
             self.splitter.setStretchFactor(self.splitter.count() - 1, stretch)
         self.splitter.setSizes([365, 885, 350])  # the list's default columns whole
         self.splitter.setChildrenCollapsible(False)
+        self._panels_set_by_hand = False
+        self.splitter.splitterMoved.connect(lambda *_: setattr(self, "_panels_set_by_hand", True))
+        self.splitter.installEventFilter(self)
         self.setCentralWidget(self.splitter)
         self.resize(1600, 900)
 
@@ -438,19 +441,26 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
                           "vorticity and separation angles per shot, with review.")
 
     # -- a small screen ----------------------------------------------------------------------
-    def resizeEvent(self, event) -> None:
-        super().resizeEvent(event)
-        QTimer.singleShot(0, self._make_room_for_canvas)  # once the splitter has its new width
+    def eventFilter(self, watched, event) -> bool:
+        if watched is self.splitter and event.type() == QEvent.Type.Resize:
+            # once the splitter has shared its new width out (a smaller window, a dock moved
+            # beside it)
+            QTimer.singleShot(0, self._make_room_for_canvas)
+        return super().eventFilter(watched, event)
 
     def _make_room_for_canvas(self) -> None:
         """On a narrow window the picture takes room from the shot list and the readout, down
         to their least widths, until it is ``CANVAS_ROOM_PX`` wide (the splitter otherwise keeps
-        the side panels whole and squeezes the picture alone)."""
+        the side panels whole and squeezes the picture alone). Not once the analyst has set
+        the panels' widths by hand in this window."""
         sizes = self.splitter.sizes()
-        if len(sizes) != 3 or not all(sizes) or sizes[1] >= CANVAS_ROOM_PX:
+        if (self._panels_set_by_hand or len(sizes) != 3 or not all(sizes)
+                or sizes[1] >= CANVAS_ROOM_PX):
             return
         sides = (0, 2)
-        spare = {i: max(0, sizes[i] - self.splitter.widget(i).minimumWidth()) for i in sides}
+        least = {i: max(self.splitter.widget(i).minimumWidth(),
+                        self.splitter.widget(i).minimumSizeHint().width()) for i in sides}
+        spare = {i: max(0, sizes[i] - least[i]) for i in sides}
         total = sum(spare.values())
         if total == 0:
             return

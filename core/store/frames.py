@@ -45,9 +45,10 @@ def frame_file_problem(shot_id: str, source: dict) -> str:
         if path is None:
             continue
         if not Path(path).is_file():
-            where = source.get("beside_session")
+            where = source.get("session_folder")
             hint = (f" (the session keeps its frames' places relative to its own folder, "
-                    f"{where}: move the frames with the session file)") if where else ""
+                    f"{where}: if the session file was moved or copied, move its frames with "
+                    "it)") if where else ""
             return f"shot {shot_id}: frame file {path} not found{hint}"
         if source.get(sum_key) and sha256_of(Path(path)) != source[sum_key]:
             return f"shot {shot_id}: frame file {path} changed since import (SHA-256 differs)"

@@ -292,7 +292,8 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
     def frame_source(self, shot_id: str) -> dict:
         """Where a worker finds the frames: absolute paths and checksums, or an HDF5 location.
 
-        Returns ``{"storage": "files", "path_a", "path_b" (or None), "sha256_a", "sha256_b"}`` or
+        Returns ``{"storage": "files", "path_a", "path_b" (or None), "sha256_a", "sha256_b",
+        "session_folder"}`` (the folder relative paths start from; None for absolute ones) or
         ``{"storage": "embedded", "file", "group"}``.
         """
         rec = self._get(shot_id)
@@ -307,7 +308,7 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             "sha256_a": frames.get("sha256_a"),
             "sha256_b": frames.get("sha256_b"),
             # frames kept by a relative path are looked for from the session file's folder
-            "beside_session": None if Path(frames["path_a"]).is_absolute() else str(
+            "session_folder": None if Path(frames["path_a"]).is_absolute() else str(
                 self.path.parent),
         }
 

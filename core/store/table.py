@@ -40,11 +40,10 @@ _RESULT_COLUMNS = (
     "state", "failure", "flight_direction_deg", "flight_speed_m_s", "scale_used_mm_per_px",
     "reynolds_number",
     "upper_proposed_deg", "upper_uncertainty_deg", "lower_proposed_deg", "lower_uncertainty_deg",
-    "proposal_notes",
     "upper_final_deg", "lower_final_deg", "wake_deflection_deg",
     "wake_deflection_uncertainty_deg", "wake_state",
     "review_status", "unusable_reason", "review_note", "reviewed_by", "reviewed_utc",
-    "processed_utc", "software_version", "note_by", "note_utc",
+    "processed_utc", "software_version", "note_by", "note_utc", "proposal_notes",
 )
 ANGLE_DECIMALS = 2
 
@@ -60,12 +59,12 @@ def _result_cells(r: ShotRecord) -> list[str]:
         None if summary is None else summary.reynolds,
         *map(_angle, (r.proposed_deg("upper"), r.uncertainty_deg("upper"),
                       r.proposed_deg("lower"), r.uncertainty_deg("lower"))),
-        _proposal_notes(summary),
         *map(_angle, (r.final_deg("upper"), r.final_deg("lower"), r.wake_deflection_deg(),
                       r.wake_deflection_uncertainty_deg())),
         r.wake_state(),  # from the final angles: follows the analyst's edits
         pick.status, pick.reason, pick.note, pick.who, pick.when,
         r.processed_utc, r.software_version, pick.note_who, pick.note_when,
+        _proposal_notes(summary),  # last: the columns before it keep their places
     ]
     return [cell_text(v) for v in values]
 
