@@ -415,10 +415,24 @@ def _pool_round(todo, stop, workers, work, context, pipes, keep_alive):
     finally:
         if not ended:
             keep_alive.close()  # an abort: the workers end now instead of finishing their shots
+        if broken:
+            _end_workers(pool)
         pool.shutdown(wait=True, cancel_futures=True)
     if broken:
         lost[1].extend(queue)
     return lost
+
+
+def _end_workers(pool: ProcessPoolExecutor) -> None:
+    """End a broken pool's remaining workers at once. ``concurrent.futures`` stops them with
+    SIGTERM, which they ignore (signals belong to the writer: :func:`_worker_start`), and then
+    waits for them: once in several runs of the test suite a worker that did not leave on its
+    own held the pool's shutdown, and the run, for good. Their shots are lost with the pool
+    either way (retried, :func:`_run_pool`). The processes are the pool's own record (no public
+    one exists)."""
+    for process in list((getattr(pool, "_processes", None) or {}).values()):
+        with contextlib.suppress(Exception):
+            process.kill()
 
 
 def _lost_twice(task: dict) -> str:
