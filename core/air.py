@@ -32,11 +32,18 @@ CRISIS_RE = (2.0e5, 4.0e5)
 ABSOLUTE_ZERO_C = -273.15
 
 
+def temperature_problem(temp_c: float) -> str:
+    """What is wrong with an air temperature (deg C): "" when nothing, else the words that
+    say so (for the option, the manifest row and the settings that refuse it)."""
+    return "" if temp_c > ABSOLUTE_ZERO_C else f"{temp_c:g} deg C is at or below absolute zero"
+
+
 def air_viscosity_pa_s(temp_c: float = DEFAULT_AIR_TEMP_C) -> float:
     """Dynamic viscosity of air (Pa s) at ``temp_c`` by Sutherland's law."""
+    problem = temperature_problem(temp_c)
+    if problem:
+        raise ValueError(f"air temperature {problem}")
     t = temp_c - ABSOLUTE_ZERO_C
-    if t <= 0:
-        raise ValueError(f"air temperature {temp_c} deg C is below absolute zero")
     return (SUTHERLAND_MU0_PA_S * (t / SUTHERLAND_T0_K) ** 1.5
             * (SUTHERLAND_T0_K + SUTHERLAND_S_K) / (t + SUTHERLAND_S_K))
 

@@ -14,7 +14,7 @@ from dataclasses import fields as dc_fields
 import numpy as np
 
 from core import WakelineError
-from core.air import ABSOLUTE_ZERO_C
+from core.air import temperature_problem
 from core.results import (
     BallFit,
     Flight,
@@ -139,9 +139,8 @@ def _check_setting(name: str, value) -> None:
     elif name in _NUMBER_SETTINGS:
         if not is_number(value):
             refuse("a finite number or null")
-        if name == "air_temp_c" and not float(value) > ABSOLUTE_ZERO_C:
-            raise WakelineError(f"settings: air_temp_c {float(value):g} deg C is at or below "
-                                "absolute zero")
+        if name == "air_temp_c" and (problem := temperature_problem(float(value))):
+            raise WakelineError(f"settings: air_temp_c {problem}")
     elif name in _WORD_SETTINGS:
         if not isinstance(value, str):
             refuse("a word or null")

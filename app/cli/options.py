@@ -53,11 +53,12 @@ def zero_or_positive(text: str) -> float:
 
 def air_temperature(text: str) -> float:
     """A temperature in deg C above absolute zero (``--air-temp``)."""
-    from core.air import ABSOLUTE_ZERO_C
+    from core.air import temperature_problem
 
     value = finite_number(text)
-    if not value > ABSOLUTE_ZERO_C:
-        raise argparse.ArgumentTypeError(f"{text} deg C is at or below absolute zero")
+    problem = temperature_problem(value)
+    if problem:
+        raise argparse.ArgumentTypeError(problem)
     return value
 
 

@@ -63,7 +63,8 @@ APPLICATION = "wakeline"
 NUDGE_DEG = 0.5
 PREFETCH_DELAY_MS = 60
 FINE_NUDGE_DEG = 0.1
-#: Width (px) the picture takes from the side panels on a narrow window (MainWindow.resizeEvent).
+#: Width (px) the picture takes from the side panels on a narrow window
+#: (MainWindow._make_room_for_canvas).
 CANVAS_ROOM_PX = 520
 
 # (action key, menu text, shortcut, tip) of the review keys; shown in Help > Keyboard shortcuts

@@ -7,7 +7,7 @@ import math
 from pathlib import Path
 
 from core import WakelineError
-from core.air import ABSOLUTE_ZERO_C
+from core.air import temperature_problem
 from core.store.files import read_csv_table
 
 REQUIRED_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm")
@@ -103,8 +103,8 @@ def _row_problem(meta: dict) -> str:
     for key in ("dt_s", "scale_mm_per_px", "ball_diameter_mm"):
         if meta.get(key) is not None and meta[key] <= 0:
             return f"{key} must be positive, got {meta[key]:g}"
-    if meta.get("air_temp_c") is not None and not meta["air_temp_c"] > ABSOLUTE_ZERO_C:
-        return f"air_temp_c {meta['air_temp_c']:g} deg C is at or below absolute zero"
+    if meta.get("air_temp_c") is not None and (problem := temperature_problem(meta["air_temp_c"])):
+        return f"air_temp_c {problem}"
     if meta.get("ball_diameter_mm") is None and not meta.get("ball_type"):
         return "ball_diameter_mm is empty and no ball_type gives a nominal diameter"
     return ""

@@ -58,8 +58,8 @@ def _result_cells(r: ShotRecord) -> list[str]:
         None if summary is None else summary.scale_mm_per_px,
         None if summary is None else summary.reynolds,
         *map(_angle, (r.proposed_deg("upper"), r.uncertainty_deg("upper"),
-                      r.proposed_deg("lower"), r.uncertainty_deg("lower"))),
-        *map(_angle, (r.final_deg("upper"), r.final_deg("lower"), r.wake_deflection_deg(),
+                      r.proposed_deg("lower"), r.uncertainty_deg("lower"),
+                      r.final_deg("upper"), r.final_deg("lower"), r.wake_deflection_deg(),
                       r.wake_deflection_uncertainty_deg())),
         r.wake_state(),  # from the final angles: follows the analyst's edits
         pick.status, pick.reason, pick.note, pick.who, pick.when,
