@@ -138,3 +138,20 @@ def test_the_reynolds_range_is_written_with_one_power_of_ten():
     assert reynolds_text((1.39e5, 1.44e5)) == "1.39-1.44 × 10⁵"  # superscript, no caret
     assert reynolds_text((1.7e5, 1.7e5)) == "1.70 × 10⁵"
     assert reynolds_text((1.2e6, 1.3e6)) == "1.20-1.30 × 10⁶"
+
+
+def test_conditions_at_the_same_seam_angle_are_drawn_side_by_side_and_named():
+    # a red and a white ball at seam 20 once sat on one spot of the sheet's plot
+    from app.review.conditions import plot_points
+    from core.conditions import Condition
+
+    def condition(surface, seam, upper):
+        return Condition({"surface": surface, "seam_deg": seam}, ["x"], ["x"],
+                         sides={"upper": Spread.of([upper, upper + 1.0]), "lower": Spread()})
+
+    conditions = [condition("red", "10", -8.0), condition("red", "20", -7.0),
+                  condition("white", "20", -6.0)]
+    axis, points = plot_points(conditions)
+    assert axis == "seam_deg" and [p.x for p in points] == [10.0, 20.0, 20.0]
+    assert [(p.place, p.tag) for p in points] == [((0, 1), ""), ((0, 2), "red"),
+                                                  ((1, 2), "white")]

@@ -116,22 +116,34 @@ class PlotPoint:
     low: float | None  # the confidence interval (None with one shot)
     high: float | None
     kind: str = "shots"  # "shots": mean of the single-shot picks; "ensemble": the ensemble's
+    #: where conditions share ``x``: this one's place among them and their number (drawn side
+    #: by side), and what tells it from them (the values of the other columns that differ)
+    place: tuple[int, int] = (0, 1)
+    tag: str = ""
 
 
 def plot_points(conditions, ensembles=None) -> tuple[str, list[PlotPoint]]:
     """The plot's axis title and points: per condition and side the mean of the shots' final
     angles with its interval, and where given (``ensembles``: label -> ``EnsembleView``) the
-    ensemble's proposal with its interval, set a little to the right."""
+    ensemble's proposal with its interval, set a little to the right. Conditions at the same
+    value of the plotted column (a seam angle with red and white balls) get their place among
+    each other and a tag naming what tells them apart."""
     column = plot_column(conditions)
-    points = []
+    placed = []
     for index, condition in enumerate(conditions):
         x = _number(condition.values[column]) if column else None
         if column and x is None:
             continue  # no value in the plotted column
-        x = float(index + 1) if x is None else x
+        placed.append((float(index + 1) if x is None else x, condition))
+    points = []
+    for x, condition in placed:
+        shared = [c for other_x, c in placed if other_x == x]
+        place = (shared.index(condition), len(shared))
+        tag = _tag(condition, shared, column) if len(shared) > 1 else ""
         for side, spread in condition.sides.items():
             if spread.mean is not None:
-                points.append(PlotPoint(x, side, spread.mean, spread.low, spread.high))
+                points.append(PlotPoint(x, side, spread.mean, spread.low, spread.high,
+                                        place=place, tag=tag))
         view = (ensembles or {}).get(condition.label)
         if view is not None and not isinstance(view, str):
             for side in ("upper", "lower"):
@@ -140,8 +152,16 @@ def plot_points(conditions, ensembles=None) -> tuple[str, list[PlotPoint]]:
                     u = p.uncertainty_deg
                     points.append(PlotPoint(x, side, p.angle_deg,
                                             None if u is None else p.angle_deg - u,
-                                            None if u is None else p.angle_deg + u, "ensemble"))
+                                            None if u is None else p.angle_deg + u, "ensemble",
+                                            place=place, tag=tag))
     return (column or "condition"), points
+
+
+def _tag(condition, shared, column: str | None) -> str:
+    """What tells ``condition`` from the others ``shared`` at its place on the plot: the values
+    of the columns (not the plotted one) that differ among them, e.g. ``white``."""
+    differ = [c for c in varying_columns(shared) if c != column]
+    return ", ".join(condition.values[c] or "(none)" for c in differ)
 
 
 def ensemble_lines(condition, view) -> list[str]:

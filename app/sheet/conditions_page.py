@@ -19,7 +19,7 @@ from app.review.conditions import (
     plot_points,
 )
 from app.sheet.cover import paint_axes
-from app.sheet.kit import Pages, mm, pen, qcolor, rect_mm, text, triangle
+from app.sheet.kit import Pages, mm, one_line, pen, qcolor, rect_mm, text, triangle
 from core.agreement import agreement_lines, compare_reviews, latest_layer
 from core.conditions import CONFIDENCE
 
@@ -56,9 +56,12 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
         note += (" Hollow diamonds: the condition's ensemble proposal (shots aligned on the "
                  "ball, one layer fitted to all of them) with its interval (the fit's and the "
                  "launches' spread).")
+    axis, points = plot_points(conditions, ensembles)
+    if any(pt.tag for pt in points):
+        note += (f" Conditions at the same {axis} stand side by side, named above the axis by "
+                 "what tells them apart.")
     used = text(p, rect_mm(x, y, w, 12), note, 7.5, colour=colours.MUTED_INK)
     y += used.height() / mm(1) + 2
-    axis, points = plot_points(conditions, ensembles)
     _paint_plot(p, rect_mm(x, y, w, 82), axis, points)
     y += 86
     cells = [condition_cells(c, conditions, compact=True) for c in conditions]
@@ -91,10 +94,13 @@ def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> N
     ylo, yhi = min(min(values), 0.0), max(max(values), 0.0)
     pad = max(2.0, 0.08 * (yhi - ylo))
     ylo, yhi = ylo - pad, yhi + pad
+    if any(pt.tag for pt in points):
+        ylo -= 0.14 * (yhi - ylo)  # room for the tags under the lowest bar
     xs = np.array([pt.x for pt in points])
     span = float(xs.max() - xs.min()) or 1.0
     xlo, xhi = float(xs.min()) - 0.08 * span, float(xs.max()) + 0.08 * span
     shift = 0.015 * (xhi - xlo)  # the ensemble beside the shots' mean
+    apart = 0.045 * (xhi - xlo)  # conditions at the same x, side by side
 
     def to_page(xv: float, yv: float) -> QtCore.QPointF:
         return QtCore.QPointF(plot.left() + (xv - xlo) / (xhi - xlo) * plot.width(),
@@ -104,8 +110,12 @@ def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> N
     p.setClipRect(plot)
     p.setPen(pen(colours.PLANE_LINE, 0.3, QtCore.Qt.PenStyle.DashLine))
     p.drawLine(to_page(xlo, 0.0), to_page(xhi, 0.0))
+    tags = {}
     for pt in points:
-        x = pt.x + (shift if pt.kind == "ensemble" else 0.0)
+        x = pt.x + (pt.place[0] - 0.5 * (pt.place[1] - 1)) * apart
+        if pt.tag:
+            tags[x] = pt.tag
+        x += shift if pt.kind == "ensemble" else 0.0
         colour = SIDE_COLOURS[pt.side]
         if pt.low is not None:
             _error_bar(p, to_page(x, pt.low), to_page(x, pt.high), colour)
@@ -114,6 +124,13 @@ def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> N
             _diamond(p, centre, colour)
         else:
             triangle(p, centre, pt.side == "upper", colour, True)
+    for k, (x, tag) in enumerate(sorted(tags.items())):
+        # staggered in two rows above the axis, so that neighbours' names do not run together
+        under = to_page(x, ylo)
+        box = QtCore.QRectF(under.x() - mm(12), under.y() - mm(3.6 if k % 2 else 7.0), mm(24),
+                            mm(3.2))
+        one_line(p, box, tag, (6.5, 5.5), colour=colours.MUTED_INK,
+                 flags=QtCore.Qt.AlignmentFlag.AlignHCenter)
     p.setClipping(False)
     _legend(p, frame.left() + mm(16), frame.bottom() - mm(5.5))
     p.restore()
@@ -153,7 +170,7 @@ def _legend(p, x: float, y: float) -> None:
 
 def _paint_table(p, x: float, y: float, w: float, rows, with_ensemble: bool) -> float:
     heads = [*TABLE_HEADER, *(["ensemble"] if with_ensemble else [])]
-    widths = [0.16, 0.07, 0.14, 0.14, 0.14, 0.14, 0.21]  # Re: "1.39-1.44 × 10⁵" on one line
+    widths = [0.22, 0.07, 0.13, 0.13, 0.13, 0.12, 0.20]  # Re: "1.39-1.44 × 10⁵" on one line
     if with_ensemble:
         widths = [0.11, 0.06, 0.11, 0.11, 0.11, 0.10, 0.17, 0.23]
     row_h = 5.0
