@@ -165,3 +165,29 @@ def test_a_decision_on_many_shots_is_one_write_all_or_nothing(make_session):
         assert journal.read_text().count("\n") == lines + 2
     with Session.open(path, writable=False) as session:
         assert [session[s].pick.who for s in ("s01", "s02", "s03")] == ["ann", "ann", ""]
+
+
+def test_undo_puts_back_who_decided_and_when_and_redo_keeps_the_edit_s(main_window, make_session,
+                                                                       qtbot):
+    path = make_session(2)
+    with Session.open(path) as session:
+        session.set_pick("s01", status="adjusted", upper_deg=3.0, who="another analyst")
+        before = session["s01"].pick
+    window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(False)
+    answer_dialog(click_button("Accept the proposal"))
+    window.set_status("accepted")
+    accepted = window.model.record("s01").pick
+    assert accepted.status == "accepted" and accepted.who != "another analyst"
+    window.undo_stack.undo()
+    undone = window.model.record("s01").pick
+    assert (undone.status, undone.upper_deg, undone.who, undone.when) == (
+        "adjusted", 3.0, "another analyst", before.when)
+    window.undo_stack.redo()
+    redone = window.model.record("s01").pick
+    assert (redone.status, redone.who, redone.when) == ("accepted", accepted.who, accepted.when)
+    window.close()
+    with Session.open(path, writable=False) as session:  # as saved, with every step in the history
+        assert (session["s01"].pick.who, session["s01"].pick.when) == (accepted.who, accepted.when)
+        assert [p.status for p in session.history("s01")] == [
+            "adjusted", "accepted", "adjusted", "accepted"]

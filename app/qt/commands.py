@@ -12,8 +12,14 @@ from PySide6.QtGui import QUndoCommand
 
 from app.review.model import ReviewStatus, SessionModel, pick_values
 from core import WakelineError
+from core.store.records import AUTHORSHIP_FIELDS
 
 NUDGE_MERGE_ID = 4101  # consecutive nudges of one mark on one shot merge into one undo step
+
+
+def authorship(pick) -> dict:
+    """Who made a pick's decision and note, and when (``AUTHORSHIP_FIELDS``)."""
+    return {name: getattr(pick, name) for name in AUTHORSHIP_FIELDS}
 
 
 class PicksEdit(QUndoCommand):
@@ -34,8 +40,11 @@ class PicksEdit(QUndoCommand):
         self.after = {shot_id: dict(changes) for shot_id, changes in edits.items()}
         self.before = {}
         for shot_id, changes in edits.items():
-            current = pick_values(model.record(shot_id).pick)
-            self.before[shot_id] = {name: current[name] for name in changes}
+            pick = model.record(shot_id).pick
+            current = pick_values(pick)
+            # undo puts back who made the decision and when, not who undid it
+            self.before[shot_id] = {**{name: current[name] for name in changes},
+                                    **authorship(pick)}
         self._applied = False
 
     def apply(self) -> None:
@@ -45,7 +54,9 @@ class PicksEdit(QUndoCommand):
         instead of inside ``QUndoStack.push`` (Qt cannot pass exceptions back from ``redo``);
         the store then keeps none of it.
         """
-        self._model.apply_picks(self.after)
+        picks = self._model.apply_picks(self.after)
+        for shot_id, pick in picks.items():  # redo keeps this edit's author and time
+            self.after[shot_id].update(authorship(pick))
         self._applied = True
 
     def redo(self) -> None:

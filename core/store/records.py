@@ -18,6 +18,9 @@ from core.wake import wake_state
 
 #: The analyst's ball and flight of a shot, kept with the pick (None: as measured).
 GEOMETRY_FIELDS = ("circle_a_px", "circle_b_px", "flight_deg")
+#: Who made a pick's decision and its note, and when: set by every edit, except one that puts
+#: back an earlier pick (undo, redo), which gives them.
+AUTHORSHIP_FIELDS = ("who", "when", "note_who", "note_when")
 
 
 class ReviewStatus(StrEnum):
@@ -227,9 +230,10 @@ def damage_reason(exc: Exception) -> str:
 
 def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -> Pick:
     """``current`` with ``changes`` (``status``, ``upper_deg``, ``lower_deg``, ``reason``,
-    ``note``, and the analyst's ball and flight ``GEOMETRY_FIELDS``), checked. ``by`` and ``now`` are the decision's author and time when a decision
-    field is changed, and the note's own when the note changes: editing a note leaves who made
-    the decision as it was.
+    ``note``, and the analyst's ball and flight ``GEOMETRY_FIELDS``), checked. ``by`` and
+    ``now`` are the decision's author and time when a decision field is changed, and the note's
+    own when the note changes: editing a note leaves who made the decision as it was. An edit
+    that puts back an earlier pick gives its ``AUTHORSHIP_FIELDS`` instead.
 
     Raises
     ------
@@ -237,10 +241,14 @@ def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -
         An unknown field or status, "unusable" without a reason, or a non-finite angle.
     """
     unknown = set(changes) - {"status", "upper_deg", "lower_deg", "reason", "note",
-                              *GEOMETRY_FIELDS}
+                              *GEOMETRY_FIELDS, *AUTHORSHIP_FIELDS}
     if unknown:
         raise WakelineError(f"shot {shot_id}: no pick field {', '.join(sorted(unknown))}")
     changes = dict(changes)
+    # an edit put back (undo, redo) keeps the author and time it had
+    kept = {name: changes.pop(name) for name in AUTHORSHIP_FIELDS if name in changes}
+    if not all(isinstance(value, str) for value in kept.values()):
+        raise WakelineError(f"shot {shot_id}: a pick's author and time are text")
     if "status" in changes:
         changes["status"] = checked_status(shot_id, changes["status"])
     for name in ("upper_deg", "lower_deg", "flight_deg"):
@@ -256,6 +264,7 @@ def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -
         changes.update(who=by, when=now)
     if changes.get("note", current.note) != current.note:
         changes.update(note_who=by, note_when=now)
+    changes.update(kept)
     pick = replace(current, **changes)
     check_pick(shot_id, pick)
     return pick
