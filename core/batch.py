@@ -30,19 +30,22 @@ import numpy as np
 from core import WakelineError
 from core.shot_result import ShotSettings
 from core.store import Session, read_frames
+from core.store.records import BACK_TO_REVIEW
 
 _POLL_S = 0.2  # how often a waiting run looks at should_stop
 
 
 @dataclass
 class ShotOutcome:
-    """One shot finished and saved: ``ok`` or failed with ``message``; ``done`` of ``total``."""
+    """One shot finished and saved: ``ok`` or failed with ``message``; ``done`` of ``total``;
+    ``decision``: what became of the analyst's decision on it (its proposal moved), or ""."""
 
     shot_id: str
     ok: bool
     message: str
     done: int
     total: int
+    decision: str = ""  # what became of the analyst's decision (Session.save_result), if anything
 
 
 @dataclass
@@ -53,6 +56,7 @@ class BatchReport:
     processed: list[str] = field(default_factory=list)
     failed: dict[str, str] = field(default_factory=dict)
     skipped: list[str] = field(default_factory=list)  # already done with the same settings
+    reopened: list[str] = field(default_factory=list)  # accepted picks back to review
     interrupted: bool = False
     elapsed_s: float = 0.0
 
@@ -118,11 +122,12 @@ def iter_process(
     runner = _runner(workers, scheduler)
     with session.batch_run(), backgrounds:
         for done, (shot_id, result, message) in enumerate(runner(tasks, stop), start=1):
+            decision = ""
             if result is not None:
-                session.save_result(shot_id, result)
+                decision = session.save_result(shot_id, result)
             else:
                 session.save_failure(shot_id, message, fingerprints[shot_id])
-            yield ShotOutcome(shot_id, result is not None, message, done, len(tasks))
+            yield ShotOutcome(shot_id, result is not None, message, done, len(tasks), decision)
 
 
 def process_shots(
@@ -149,6 +154,8 @@ def process_shots(
         for outcome in outcomes:
             if outcome.ok:
                 report.processed.append(outcome.shot_id)
+                if outcome.decision.endswith(BACK_TO_REVIEW):
+                    report.reopened.append(outcome.shot_id)
             else:
                 report.failed[outcome.shot_id] = outcome.message
             if on_result is not None:

@@ -202,3 +202,17 @@ def test_a_session_with_nothing_to_process_runs_no_workers(session_path):
         process_shots(s, workers=0)
         report = process_shots(s, workers=2)
     assert report.total == 0 and not report.failed and not report.interrupted
+
+
+def test_the_command_says_which_accepted_shots_went_back_to_review(session_path, capsys,
+                                                                    monkeypatch):
+    # the rule itself: tests/test_session.py; here what the run and the command say of it
+    said = "the proposal accepted before moved (upper +5.00° → +6.00°): back to review"
+    keep = Session.save_result
+    monkeypatch.setattr(Session, "save_result",
+                        lambda s, shot, result: keep(s, shot, result) or (said if shot == "S2"
+                                                                           else ""))
+    assert main(["process", str(session_path), "--workers", "0", "--quiet"]) == 0
+    out, err = capsys.readouterr()
+    assert f"wakeline: shot S2: {said}" in err
+    assert "processed 4 shot(s); 1 accepted shot(s) back to review (their proposal moved)" in out

@@ -218,3 +218,30 @@ def test_the_readme_names_every_layer_the_window_offers(main_window):
     names += [canvas.vectors_box.text(), canvas.vorticity_box.text()]
     missing = [name for name in names if name.lower() not in section]
     assert not missing, f"layers of the window not in the README's list: {missing}"
+
+
+def test_an_accepted_shot_measured_again_goes_back_to_review_and_undo_accepts_it_again(
+        main_window, measured_session, qtbot):
+    window = _open(main_window, qtbot, measured_session, show=True)
+    window.model.apply_pick("g1", status="accepted")
+    accepted = window.model.record("g1").pick
+    before = window.model.result("g1")
+
+    def answer(dialog):
+        dialog.setDoubleValue(170.0)  # another flight: other proposals
+        dialog.accept()
+
+    answer_dialog(answer)
+    window.act_set_flight.trigger()
+    _measured(window, qtbot, before)
+    pick = window.model.record("g1").pick
+    assert (pick.status, pick.who) == ("to review", "wakeline")
+    assert "back to review" in window.statusBar().currentMessage()
+    assert window.undo_stack.undoText() == "Set the flight direction to 170.0° of shot g1"
+    window.undo_stack.undo()
+    undone = window.model.record("g1").pick
+    assert (undone.status, undone.who, undone.when, undone.flight_deg) == (
+        "accepted", accepted.who, accepted.when, None)
+    window.undo_stack.redo()
+    assert window.model.record("g1").pick.status == "to review"
+    window.close()

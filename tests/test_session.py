@@ -217,8 +217,8 @@ def test_torn_last_journal_line_is_ignored_and_appending_goes_on(session_path):
 def test_compaction_killed_before_dropping_the_journal_replays_nothing_twice(session_path):
     journal = session_path.with_name("s.h5.journal")
     s = Session.open(session_path)
-    s.set_pick("S1", status="accepted")
     s.save_result("S1", fake_result(s.settings_for("S1")))
+    s.set_pick("S1", status="accepted")
     kept = journal.read_bytes()
     s.close()  # snapshot replaced, journal dropped; now put the journal back as if killed
     journal.write_bytes(kept)
@@ -486,3 +486,29 @@ def test_a_failed_journal_write_leaves_no_partial_line(session_path, monkeypatch
     with Session.open(session_path, writable=False) as again:
         assert [again[x].pick.status for x in ("S0", "S1", "S2")] == [
             "accepted", "to review", "accepted"]
+
+
+def test_a_new_result_never_changes_a_decided_angle_silently(session_path):
+    with Session.open(session_path) as s:
+        for shot in ("S0", "S1", "S2"):
+            assert s.save_result(shot, fake_result(s.settings_for(shot), 5.0, -3.0)) == ""
+        s.set_pick("S0", status="accepted", who="ana")
+        s.set_pick("S1", status="adjusted", upper_deg=6.0, who="ana")  # lower left at -3.0
+        s.set_pick("S2", status="accepted", who="ana")
+        # measured again: the same proposals leave the decision alone
+        assert s.save_result("S2", fake_result(s.settings_for("S2"), 5.0, -3.0)) == ""
+        assert s["S2"].pick.status == "accepted" and len(s.history("S2")) == 1
+        # the accepted proposal moved: the number accepted is gone, back to review
+        said = s.save_result("S0", fake_result(s.settings_for("S0"), 5.0, -3.4))
+        assert said == ("the proposal accepted before moved (lower -3.00° → -3.40°): "
+                        "back to review")
+        assert (s["S0"].pick.status, s["S0"].pick.who) == ("to review", "wakeline")
+        assert s["S0"].final_deg("lower") is None
+        # the adjusted pick keeps the lower angle it stood behind
+        said = s.save_result("S1", fake_result(s.settings_for("S1"), 5.5, -3.4))
+        assert said == "the adjusted pick keeps lower -3.00° (the proposal there moved)"
+        assert [s["S1"].final_deg(side) for side in ("upper", "lower")] == [6.0, -3.0]
+        assert s["S1"].pick.who == "ana"
+    with Session.open(session_path, writable=False) as s:  # saved with the result
+        assert [p.status for p in s.history("S0")] == ["accepted", "to review"]
+        assert s["S1"].pick.lower_deg == -3.0

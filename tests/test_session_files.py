@@ -60,7 +60,9 @@ def test_a_reader_never_pairs_its_snapshot_with_a_newer_one(session_path):
     reader.close()
     with Session.open(session_path, writable=False) as again:
         assert again.load_result("S0").field.dx_px.shape == (20, 30)
-        assert len(again.history("S0")) == 2
+        # the proposal accepted moved (5 -> 9 deg): back to review, by wakeline, then adjusted
+        assert [(p.status, p.who == "wakeline") for p in again.history("S0")] == [
+            ("accepted", False), ("to review", True), ("adjusted", False)]
 
 
 # -- a shared group folder and read-only files ---------------------------------------------------

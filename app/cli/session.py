@@ -233,6 +233,8 @@ def _progress_bar(total: int, quiet: bool):
 def _show(bar, outcome) -> None:
     if not outcome.ok:
         bar.write(f"wakeline: {_with_shot(outcome.shot_id, outcome.message)}", file=sys.stderr)
+    elif outcome.decision:
+        bar.write(f"wakeline: shot {outcome.shot_id}: {outcome.decision}", file=sys.stderr)
     bar.update(1)
 
 
@@ -246,6 +248,9 @@ def _process_summary(path: Path, report) -> int:
         line += f", {len(report.failed)} failed"
     if report.skipped:
         line += f", {len(report.skipped)} already up to date"
+    if report.reopened:
+        line += (f"; {len(report.reopened)} accepted shot(s) back to review (their proposal "
+                 "moved)")
     if report.interrupted:
         line += f"; stopped with {report.not_run} shot(s) left for the next run"
     print(f"{line} ({report.elapsed_s:.1f} s)")

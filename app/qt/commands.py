@@ -10,16 +10,10 @@ from __future__ import annotations
 
 from PySide6.QtGui import QUndoCommand
 
-from app.review.model import ReviewStatus, SessionModel, pick_values
+from app.review.model import ReviewStatus, SessionModel, authorship, pick_values
 from core import WakelineError
-from core.store.records import AUTHORSHIP_FIELDS
 
 NUDGE_MERGE_ID = 4101  # consecutive nudges of one mark on one shot merge into one undo step
-
-
-def authorship(pick) -> dict:
-    """Who made a pick's decision and note, and when (``AUTHORSHIP_FIELDS``)."""
-    return {name: getattr(pick, name) for name in AUTHORSHIP_FIELDS}
 
 
 class PicksEdit(QUndoCommand):
@@ -149,8 +143,11 @@ class GeometryEdit(QUndoCommand):
         super().__init__(text)
         self._model = model
         self.shot_id = shot_id
-        self.before = model.record(shot_id).pick.geometry()
+        pick = model.record(shot_id).pick
+        self.before = pick.geometry()
         self.after = {**self.before, **geometry}
+        # the decision as it was: the new result may send an accepted pick back to review
+        self._decision = {**pick_values(pick), **authorship(pick)}
         self._results = {"before": model.result(shot_id), "after": None}
         self._remeasure = remeasure
         self._applied = False
@@ -162,12 +159,13 @@ class GeometryEdit(QUndoCommand):
         self._applied = True
         self._remeasure(self)
 
-    def measured(self, result) -> bool:
-        """The shot measured with this command's geometry: kept when it is still the pick's."""
-        if not self._model.keep_result(self.shot_id, result):
-            return False
-        self._results["after"] = result
-        return True
+    def measured(self, result) -> str | None:
+        """The shot measured with this command's geometry: kept when it is still the pick's
+        (None when not); returns what became of the decision (``SessionModel.keep_result``)."""
+        decision = self._model.keep_result(self.shot_id, result)
+        if decision is not None:
+            self._results["after"] = result
+        return decision
 
     def redo(self) -> None:
         if self._applied:  # the push right after apply(): already done
@@ -181,9 +179,16 @@ class GeometryEdit(QUndoCommand):
     def _set(self, which: str) -> None:
         geometry, result = getattr(self, which), self._results[which]
         try:
-            self._model.apply_pick(self.shot_id, **geometry)
-            if result is not None:
-                self._model.keep_result(self.shot_id, result, measured=False)
+            if which == "before":
+                # the result before, then the geometry and the decision before in one edit (the
+                # new result may have sent an accepted pick back to review)
+                if result is not None:
+                    self._model.keep_result(self.shot_id, result, measured=False)
+                self._model.apply_pick(self.shot_id, **geometry, **self._decision)
+            else:
+                self._model.apply_pick(self.shot_id, **geometry)
+                if result is not None:
+                    self._model.keep_result(self.shot_id, result, measured=False)
         except WakelineError as exc:
             self.setObsolete(True)
             self._model.refresh(self.shot_id)

@@ -145,9 +145,10 @@ class BallActions:
                                          "Ctrl+P measures it later.", 8000)
         else:
             try:
-                kept = command.measured(outcome.value)
+                decision = command.measured(outcome.value)
             except WakelineError as exc:
                 self.show_problem("Result not saved", str(exc))
             else:
-                word = "measured again" if kept else "measured again, then undone"
-                self.statusBar().showMessage(f"Shot {command.shot_id} {word}.", 6000)
+                word = "measured again" if decision is not None else "measured again, then undone"
+                said = f": {decision}" if decision else ""
+                self.statusBar().showMessage(f"Shot {command.shot_id} {word}{said}.", 8000)

@@ -129,6 +129,8 @@ class JobActions:
             return
         summary = outcome.value
         done = "" if summary is None else (
-            f"{summary.processed} processed, {summary.failed} failed")
+            f"{summary.processed} processed, {summary.failed} failed"
+            + (f"; {summary.reopened} accepted shot(s) back to review (their proposal moved)"
+               if summary.reopened else ""))
         word = "Processing cancelled" if outcome.cancelled else "Processing finished"
         self.statusBar().showMessage(f"{word}: {done}" if done else word, 8000)

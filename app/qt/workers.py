@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 from PySide6.QtCore import QObject, QThread, Signal, Slot
 
-from app.review.model import import_folder, take_corrections
+from app.review.model import BACK_TO_REVIEW, import_folder, take_corrections
 from core import WakelineError
 
 log = logging.getLogger("wakeline.window")
@@ -127,6 +127,7 @@ class ProcessSummary:
     processed: int = 0
     failed: int = 0
     total: int = 0
+    reopened: int = 0  # accepted shots back to review: their proposal moved
 
 
 def process_job(model, shot_ids=None, workers: int | None = None, force: bool = False,
@@ -151,6 +152,7 @@ def process_job(model, shot_ids=None, workers: int | None = None, force: bool = 
             summary.total = outcome.total
             if outcome.ok:
                 summary.processed += 1
+                summary.reopened += outcome.decision.endswith(BACK_TO_REVIEW)
             else:
                 summary.failed += 1
             report(outcome)

@@ -32,10 +32,11 @@ from core.store import (
 )
 from core.store import import_folder as store_import_folder
 from core.store.companions import companion_files
+from core.store.records import AUTHORSHIP_FIELDS, BACK_TO_REVIEW
 
 __all__ = [
-    "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
-    "import_folder", "is_companion_file", "pick_values", "take_corrections",
+    "BACK_TO_REVIEW", "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
+    "authorship", "import_folder", "is_companion_file", "pick_values", "take_corrections",
 ]
 
 PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
@@ -64,6 +65,11 @@ def import_folder(src_dir, session_path, **options):
 def pick_values(pick: Pick) -> dict:
     """The editable fields of a pick as a plain dict (what undo commands store)."""
     return {name: getattr(pick, name) for name in PICK_FIELDS}
+
+
+def authorship(pick: Pick) -> dict:
+    """Who made a pick's decision and note, and when (what undo puts back with the fields)."""
+    return {name: getattr(pick, name) for name in AUTHORSHIP_FIELDS}
 
 
 def _compared(pick: Pick) -> dict:
@@ -305,15 +311,16 @@ class SessionModel(QObject):
         settings = self._session.settings_for(shot_id)
         return lambda: remeasure_ball(frame_a, frame_b, stored, settings)
 
-    def keep_result(self, shot_id: str, result, measured: bool = True) -> bool:
-        """Save a result of the shot and tell the views. A freshly ``measured`` one is kept
-        only when measured with the shot's settings as they are now (an undo may have come
-        between): False when it is dropped. Raises ``core.WakelineError`` when not saved."""
+    def keep_result(self, shot_id: str, result, measured: bool = True) -> str | None:
+        """Save a result of the shot and tell the views; returns what became of the analyst's
+        decision on it (``Session.save_result``: "" when it stands). A freshly ``measured`` one
+        is kept only when measured with the shot's settings as they are now (an undo may have
+        come between): None when it is dropped. Raises ``core.WakelineError`` when not saved."""
         current = self._session.settings_for(shot_id).fingerprint()
         if measured and result.settings.fingerprint() != current:
-            return False
+            return None
         try:
-            self._session.save_result(shot_id, result)
+            decision = self._session.save_result(shot_id, result)
         except OSError as exc:
             raise WakelineError(f"{self._session.path}: result of shot {shot_id} not saved "
                                 f"({exc.strerror or exc})") from None
@@ -321,7 +328,7 @@ class SessionModel(QObject):
         self._results.put(shot_id, result)  # before the views ask for it
         self._usual_direction.clear()
         self.record_changed.emit(shot_id)
-        return True
+        return decision
 
     def unprocessed_ids(self) -> list[str]:
         return [sid for sid in self._order

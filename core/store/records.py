@@ -268,3 +268,48 @@ def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -
     pick = replace(current, **changes)
     check_pick(shot_id, pick)
     return pick
+
+
+#: How ``decision_on_new_proposals`` ends the line of a decision it reopened.
+BACK_TO_REVIEW = "back to review"
+#: A proposal that moves by less than this (deg) on reprocessing is the same one (the table
+#: gives angles to 0.01 deg).
+SAME_PROPOSAL_DEG = 0.005
+
+
+def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str):
+    """What becomes of the analyst's decision when a shot's proposals change to ``proposals``
+    (side -> deg or None): a decision resting on a proposal never silently takes the new one.
+
+    An accepted pick whose proposal moved goes back to review (the number accepted is gone);
+    an adjusted pick's side left at the proposal keeps the angle it had (the analyst stood
+    behind both angles, as a moved mark in the window records them). Returns the new pick and
+    a line saying what was done, or ``(None, "")`` when the decision stands as it is.
+    """
+    pick = record.pick
+    moved = [side for side in SIDES
+             if not _same_angle(record.proposed_deg(side), proposals.get(side))]
+    if pick.status == ReviewStatus.ACCEPTED and moved:
+        changes = ", ".join(f"{side} {_deg(record.proposed_deg(side))} → "
+                            f"{_deg(proposals.get(side))}" for side in moved)
+        return (replace(pick, status=ReviewStatus.TO_REVIEW, who="wakeline", when=now),
+                f"the proposal accepted before moved ({changes}): {BACK_TO_REVIEW}")
+    if pick.status == ReviewStatus.ADJUSTED:
+        kept = {f"{side}_deg": record.proposed_deg(side) for side in moved
+                if getattr(pick, f"{side}_deg") is None and record.proposed_deg(side) is not None}
+        if kept:
+            sides = ", ".join(f"{name[:-4]} {_deg(value)}" for name, value in kept.items())
+            return (replace(pick, **kept),
+                    f"the adjusted pick keeps {sides} (the proposal there moved)")
+    return None, ""
+
+
+def _same_angle(a: float | None, b: float | None) -> bool:
+    if a is None or b is None:
+        return a is None and b is None
+    return abs(a - b) < SAME_PROPOSAL_DEG
+
+
+def _deg(value: float | None) -> str:
+    return "none" if value is None else f"{value:+.2f}°"
+

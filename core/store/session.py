@@ -35,6 +35,7 @@ import h5py
 import numpy as np
 
 from core import WakelineError, __version__
+from core.geometry import SIDES
 from core.results import uncertainty_outdated
 from core.shot_result import ShotResult, ShotSettings
 from core.store.companions import (
@@ -54,6 +55,7 @@ from core.store.records import (
     ShotRecord,
     check_shot_id,
     damage_reason,
+    decision_on_new_proposals,
     edited_pick,
 )
 from core.store.replay import JournalReplay
@@ -441,22 +443,31 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             ShotSettings.from_dict(settings, strict=True)
             self._commit({"op": "settings", "settings": json_ready(settings), "t": now_utc()})
 
-    def save_result(self, shot_id: str, result: ShotResult) -> None:
-        """Keep a new result (the proposal) of a shot; never touches the analyst's pick."""
+    def save_result(self, shot_id: str, result: ShotResult) -> str:
+        """Keep a new result (the proposal) of a shot. A decision resting on the old proposal
+        does not silently take the new one (``decision_on_new_proposals``: an accepted pick
+        whose proposal moved goes back to review, an adjusted pick keeps its angles), saved
+        with the result as one edit. Returns what became of the decision ("" when it stands).
+        """
         with self._mutex:
             self._check_writable()
-            self._get(shot_id)
+            record = self._get(shot_id)
             seq = self._seq + 1
             summary = ShotSummary.from_dict(json_ready(result.summary()))
             arrays = result.arrays()
             pending = self._write_pending(seq, f"the result of shot {shot_id}",
                                           lambda f: write_result_group(f, summary, arrays))
+            now = now_utc()
+            pick, said = decision_on_new_proposals(
+                record, {side: summary.proposed_deg(side) for side in SIDES}, now)
             self._commit({
                 "op": "result", "shot": shot_id, "summary": summary.to_dict(),
                 "summary_version": summary.version, "pending": pending,
                 "fingerprint": result.settings.fingerprint(), "version": __version__,
-                "t": now_utc(),
-            })
+                "t": now,
+            }, *([] if pick is None else [{"op": "pick", "shot": shot_id,
+                                           "pick": pick.to_dict()}]))
+            return said
 
     def save_failure(self, shot_id: str, reason: str, fingerprint: str | None = None) -> None:
         """Record that processing a shot failed; its previous result and pick stay."""
