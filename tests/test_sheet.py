@@ -346,3 +346,17 @@ def test_a_shot_has_the_same_vorticity_colours_on_the_sheet_as_in_the_window(
         make_sheet(session, tmp_path / "one.pdf", per_page=1, shot_ids=["s02"])
         expected = shot_limit(session.load_result("s02").vorticity_1_s)  # the canvas's range
     assert used == [expected]
+
+
+def test_a_failed_shot_shows_its_last_good_field_and_says_so(reviewed_session, tmp_path):
+    from app.sheet import make_sheet
+    from core.store import Session
+
+    with Session.open(reviewed_session) as session:
+        session.save_failure("s02", "shot s02: frame file gone")
+    out = tmp_path / "sheet.pdf"
+    with Session.open(reviewed_session, writable=False) as session:
+        make_sheet(session, out, shot_ids=["s02"])
+    _pages, text = _pdf_text(out)
+    assert "Shown: the run before the last, which failed: shot s02: frame" in text
+    assert "No field" not in text

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import math
 import sys
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -359,6 +360,23 @@ def test_failed_shot_shows_its_reason(main_window, make_session, qtbot):
     index = window.shot_list.table_model.index(row, 0)
     assert "no ball found" in index.data(Qt.ItemDataRole.ToolTipRole)
     assert index.data(Qt.ItemDataRole.DecorationRole) is not None
+    # its last run that succeeded is still shown, and said to be
+    assert window.canvas._shot.result is not None
+    assert "Shown: the last run that succeeded." in window.canvas.message.text()
+
+
+def test_reprocessing_a_shot_whose_frame_is_gone_is_refused_and_keeps_its_result(
+        main_window, make_session, qtbot):
+    path = make_session(2)
+    window = _open(main_window, qtbot, path)
+    window.model.set_current("s02")
+    Path(path).with_name("review_frames").joinpath("s02_a.tif").rename(
+        Path(path).with_name("s02_a.tif"))
+    window.reprocess_current()
+    assert window.job is None
+    assert "frame file" in window.last_problem and "last result is kept" in window.last_problem
+    record = window.model.record("s02")
+    assert record.state == "processed" and window.model.result("s02") is not None
 
 
 def test_settings_layers_and_recent_sessions_are_kept(main_window, make_session, qtbot):

@@ -59,8 +59,14 @@ class JobActions:
 
     def reprocess_current(self) -> None:
         shot_id = self.model.current_id
-        if shot_id:
-            self.start_processing([shot_id], force=True)
+        if not shot_id:
+            return
+        # a frame gone or changed would only fail the run: say so now, the result stays
+        problem = self.model.check_frames(shot_ids=[shot_id]).get(shot_id)
+        if problem:
+            self.show_problem("Reprocess", f"{problem}; the shot's last result is kept")
+            return
+        self.start_processing([shot_id], force=True)
 
     def edit_processing_settings(self) -> ProcessingDialog:
         """Open the processing settings; the session's are saved in it on OK."""

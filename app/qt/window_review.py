@@ -89,7 +89,9 @@ class ReviewActions:
     def _canvas_shot(self, record) -> CanvasShot:
         messages = []
         result = None
-        if record.state == ProcessState.PROCESSED:
+        if record.state == ProcessState.FAILED:
+            messages.append(f"Processing failed: {record.failure or 'no reason given'}")
+        if record.state != ProcessState.UNPROCESSED:  # a failed shot: its last good run's
             try:
                 result = self.model.result(record.shot_id)
             except (WakelineError, OSError, KeyError) as exc:  # a damaged stored result
@@ -97,8 +99,8 @@ class ReviewActions:
                 log.warning("shot %s: stored result unreadable: %s", record.shot_id, str(exc))
                 messages.append(f"shot {record.shot_id}: stored result cannot be read ({exc}); "
                                 "reprocess it (Ctrl+Shift+P)")
-        elif record.state == ProcessState.FAILED:
-            messages.append(f"Processing failed: {record.failure or 'no reason given'}")
+            if record.state == ProcessState.FAILED and result is not None:
+                messages.append("Shown: the last run that succeeded.")
         else:
             messages.append("Not processed yet" + (
                 " — processing is running." if self.job is not None else
@@ -107,7 +109,8 @@ class ReviewActions:
         try:
             frame_a, frame_b = self.model.frames(record.shot_id)
         except (WakelineError, OSError) as exc:
-            messages.append(str(exc))
+            if str(exc) not in record.failure:  # the failure may be this very problem
+                messages.append(str(exc))
         proposed, final = mark_angles(record)
         return CanvasShot(
             shot_id=record.shot_id, frame_a=frame_a, frame_b=frame_b, result=result,

@@ -57,11 +57,11 @@ def varying_columns(conditions) -> list[str]:
 
 
 def short_label(condition, conditions) -> str:
-    """A condition named by the columns that tell it from the others (all of them when none
-    do)."""
+    """A condition named by the columns that tell it from the others; "all shots" when there
+    are no others (what they share: ``common_text``)."""
     varying = varying_columns(conditions)
     if not varying:
-        return condition.label
+        return "all shots"
     return ", ".join(f"{c} {condition.values[c] or '(none)'}" for c in varying)
 
 

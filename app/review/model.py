@@ -226,9 +226,10 @@ class SessionModel(QObject):
 
     # -- data of one shot --------------------------------------------------------------------
     def result(self, shot_id: str):
-        """The shot's stored ``ShotResult`` (None when unprocessed or failed), cached."""
+        """The shot's stored ``ShotResult`` (None when not processed; a failed shot's is its
+        last run that succeeded, if any), cached."""
         cached = self._results.get(shot_id)
-        if cached is None and self._records[shot_id].state == ProcessState.PROCESSED:
+        if cached is None and self._records[shot_id].state != ProcessState.UNPROCESSED:
             cached = self._session.load_result(shot_id)
             if cached is not None:
                 self._results.put(shot_id, cached)
@@ -360,8 +361,8 @@ class SessionModel(QObject):
         return iter_process(self._session, shot_ids, workers=workers, force=force,
                             should_stop=should_stop)
 
-    def check_frames(self, should_stop=None) -> dict[str, str]:
-        return self._session.check_frames(should_stop)
+    def check_frames(self, should_stop=None, shot_ids=None) -> dict[str, str]:
+        return self._session.check_frames(should_stop, shot_ids)
 
     def compact(self) -> list[str]:
         """Fold the journal into the session file (every edit is already on disk); returns what

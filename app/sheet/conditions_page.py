@@ -97,8 +97,12 @@ def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> N
     if any(pt.tag for pt in points):
         ylo -= 0.14 * (yhi - ylo)  # room for the tags under the lowest bar
     xs = np.array([pt.x for pt in points])
-    span = float(xs.max() - xs.min()) or 1.0
-    xlo, xhi = float(xs.min()) - 0.08 * span, float(xs.max()) + 0.08 * span
+    span = float(xs.max() - xs.min())
+    if span > 0:
+        xlo, xhi = float(xs.min()) - 0.08 * span, float(xs.max()) + 0.08 * span
+    else:  # one value: a span of its order of magnitude about it (seam 10 deg: 5 to 15)
+        half = 0.5 * (10.0 ** math.floor(math.log10(abs(xs[0]))) if xs[0] else 1.0)
+        xlo, xhi = float(xs[0]) - half, float(xs[0]) + half
     shift = 0.015 * (xhi - xlo)  # the ensemble beside the shots' mean
     apart = 0.045 * (xhi - xlo)  # conditions at the same x, side by side
 

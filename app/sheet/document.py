@@ -170,7 +170,7 @@ def _writer(path: Path, title: str) -> QtGui.QPdfWriter:
 
 def _vorticity_fields(session, records):
     for record in records:
-        if record.state == ProcessState.PROCESSED:
+        if record.state != ProcessState.UNPROCESSED:
             result = session.load_result(record.shot_id)
             yield None if result is None else result.vorticity_1_s
 
@@ -186,8 +186,9 @@ def _paint_shot_pages(pages: Pages, session, records, per_page: int,
             last = records[min(index + per_page, len(records)) - 1].shot_id
             pages.new_page(f"shots {first} - {last}" if first != last else f"shot {first}")
             cells = panel_cells(per_page, pages.body())
-        processed = record.state == ProcessState.PROCESSED
-        result = session.load_result(record.shot_id) if processed else None
+        # a failed shot shows its last run that succeeded, if any (the panel says so)
+        measured = record.state != ProcessState.UNPROCESSED
+        result = session.load_result(record.shot_id) if measured else None
         paint_shot(pages.painter, cells[slot], record, result, vorticity_limit_1_s,
                    shot_checks(record, usual_direction_deg))
         if progress is not None:

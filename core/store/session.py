@@ -325,14 +325,15 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         with self._mutex:
             return read_frames(shot_id, self.frame_source(shot_id))
 
-    def check_frames(self, should_stop=None) -> dict[str, str]:
-        """``shot_id -> problem`` for every shot whose frame files are missing or changed.
+    def check_frames(self, should_stop=None, shot_ids=None) -> dict[str, str]:
+        """``shot_id -> problem`` for every shot (of ``shot_ids``, default all) whose frame
+        files are missing or changed.
 
         ``should_stop``: called before each shot; when it returns True the shots checked so
         far are reported.
         """
         problems = {}
-        for shot_id in list(self._records):
+        for shot_id in list(self._records) if shot_ids is None else list(shot_ids):
             if should_stop is not None and should_stop():
                 break
             source = self.frame_source(shot_id)
