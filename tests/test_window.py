@@ -322,6 +322,7 @@ def test_a_small_window_gives_the_picture_room_unless_the_panels_were_set_by_han
     window = _open(main_window, qtbot, make_session(2), show=True)
     window.resize(1600, 900)
     qtbot.wait(50)
+    before = window.splitter.sizes()
     window.resize(1024, 700)
 
     def roomy() -> bool:  # the picture as wide as asked, or the side panels at their least
@@ -335,9 +336,21 @@ def test_a_small_window_gives_the_picture_room_unless_the_panels_were_set_by_han
     # narrow as it is, the hint has its own line above the legend instead of a few letters
     assert window.canvas.width() < LEGEND_MIN_WIDTH + HINT_MIN_WIDTH
     assert window.canvas.legend.y() > window.canvas.hover_label.y()
-    # the analyst's own widths stay
+    # and the cursor readout is tall enough for the longest reading at its width
+    from app.qt.canvas import HOVER_LONGEST
+
+    label = window.canvas.hover_label
+
+    def readable() -> bool:
+        room = label.contentsRect().adjusted(6, 2, -6, -2)
+        need = label.fontMetrics().boundingRect(room, int(Qt.TextFlag.TextWordWrap),
+                                                HOVER_LONGEST)
+        return need.height() <= room.height() + 4  # the padding's rounding
+    qtbot.waitUntil(readable, timeout=3000)
+    # wide again, the side panels have their room back (the shot list's columns whole)
     window.resize(1600, 900)
-    qtbot.wait(50)
+    qtbot.waitUntil(lambda: window.splitter.sizes() == before, timeout=3000)
+    # the analyst's own widths stay
     wide = window.splitter.sizes()
     window.splitter.moveSplitter(wide[0] + 300, 2)  # as a drag would: the picture 300 px
     set_by_hand = window.splitter.sizes()

@@ -68,6 +68,11 @@ pg.setConfigOptions(imageAxisOrder="row-major")
 
 FLICKER_MS = 350
 HOVER_HINT = "Point for flow values; drag a mark along the outline."
+#: A reading of the cursor as long as they come (``describe_point``): the readout is made tall
+#: enough for it at the width it has.
+HOVER_LONGEST = ("x  1044.1 y   776.1 px  (219.88, 163.45 mm)  x/D +2.01 y/D -0.72  upper  +75.1°"
+                 "  u  -38.843  v   +1.116  |V|  38.859 m/s (lab frame, v up)  ω    +13.12 1/s"
+                 "  (fine field)")
 LEGEND_MIN_WIDTH = 260  # px: the layer legend wraps rather than widening the window
 HINT_MIN_WIDTH = 320  # px: narrower, the hint's line goes above the legend instead of beside it
 # the picture's mouse work, for the F1 key list
@@ -211,8 +216,9 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self.hover_label = QLabel(HOVER_HINT, self)
         self.hover_label.setTextInteractionFlags(Qt.TextInteractionFlag.TextSelectableByMouse)
         self.hover_label.setStyleSheet("QLabel { font-family: monospace; padding: 2px 6px; }")
-        # long readings must never widen the panel nor change its height (the view would
-        # re-range under the cursor): they wrap within two lines
+        # long readings must never widen the panel nor change its height as the cursor moves
+        # (the view would re-range under it): they wrap within the lines the longest reading
+        # takes at the label's width (set as the window is resized, _fit_hover_height)
         self.hover_label.setWordWrap(True)
         self.hover_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
         self.hover_label.setFixedHeight(2 * self.hover_label.fontMetrics().lineSpacing() + 6)
@@ -343,6 +349,19 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
                      else QBoxLayout.Direction.LeftToRight)
         if self._bottom_row.direction() != direction:
             self._bottom_row.setDirection(direction)
+        QTimer.singleShot(0, self._fit_hover_height)  # once the row has given the label its width
+
+    def _fit_hover_height(self) -> None:
+        """The cursor readout as tall as the longest reading needs at its width (2-4 lines)."""
+        label = self.hover_label
+        metrics = label.fontMetrics()
+        room = label.contentsRect().adjusted(6, 2, -6, -2)  # the style sheet's padding
+        lines = math.ceil(metrics.boundingRect(0, 0, max(room.width(), 1), 10_000,
+                                               int(Qt.TextFlag.TextWordWrap),
+                                               HOVER_LONGEST).height() / metrics.lineSpacing())
+        height = min(max(lines, 2), 4) * metrics.lineSpacing() + 6
+        if label.height() != height:
+            label.setFixedHeight(height)
 
     # -- picture -----------------------------------------------------------------------------
     def _draw_picture(self) -> None:

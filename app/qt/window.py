@@ -147,7 +147,8 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         self.splitter.setSizes([365, 885, 350])  # the list's default columns whole
         self.splitter.setChildrenCollapsible(False)
         self._panels_set_by_hand = False
-        self.splitter.splitterMoved.connect(lambda *_: setattr(self, "_panels_set_by_hand", True))
+        self._side_widths = None  # the side panels' widths before the picture took room
+        self.splitter.splitterMoved.connect(self._on_panels_set_by_hand)
         self.splitter.installEventFilter(self)
         self.setCentralWidget(self.splitter)
         self.resize(1600, 900)
@@ -449,16 +450,25 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
             QTimer.singleShot(0, self._make_room_for_canvas)
         return super().eventFilter(watched, event)
 
+    def _on_panels_set_by_hand(self, *_args) -> None:
+        self._panels_set_by_hand = True
+        self._side_widths = None
+
     def _make_room_for_canvas(self) -> None:
         """On a narrow window the picture takes room from the shot list and the readout, down
         to their least widths, until it is ``CANVAS_ROOM_PX`` wide (the splitter otherwise keeps
-        the side panels whole and squeezes the picture alone). Not once the analyst has set
-        the panels' widths by hand in this window."""
+        the side panels whole and squeezes the picture alone); on a wider one again they get
+        it back, up to the widths they had. Not once the analyst has set the panels' widths by
+        hand in this window."""
         sizes = self.splitter.sizes()
-        if (self._panels_set_by_hand or len(sizes) != 3 or not all(sizes)
-                or sizes[1] >= CANVAS_ROOM_PX):
+        if self._panels_set_by_hand or len(sizes) != 3 or not all(sizes):
             return
         sides = (0, 2)
+        if sizes[1] > CANVAS_ROOM_PX and self._side_widths is not None:
+            self._give_back_room(sizes)
+            return
+        if sizes[1] >= CANVAS_ROOM_PX:
+            return
         least = {i: max(self.splitter.widget(i).minimumWidth(),
                         self.splitter.widget(i).minimumSizeHint().width()) for i in sides}
         spare = {i: max(0, sizes[i] - least[i]) for i in sides}
@@ -466,15 +476,42 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         if total == 0:
             return
         take = min(CANVAS_ROOM_PX - sizes[1], total)
+        if self._side_widths is None:
+            self._side_widths = {i: sizes[i] for i in sides}
         for i in sides:
             given = round(take * spare[i] / total)
             sizes[i] -= given
             sizes[1] += given
         self.splitter.setSizes(sizes)
 
+    def _give_back_room(self, sizes: list[int]) -> None:
+        """The side panels take back the room the picture took (``_make_room_for_canvas``), as
+        far as the picture stays ``CANVAS_ROOM_PX`` wide."""
+        owed = {i: max(0, width - sizes[i]) for i, width in self._side_widths.items()}
+        spare = sizes[1] - CANVAS_ROOM_PX
+        total = sum(owed.values())
+        if total <= spare:
+            self._side_widths = None  # all of it given back
+        for i, debt in owed.items():
+            given = debt if total <= spare else int(spare * debt / total)
+            sizes[i] += given
+            sizes[1] -= given
+        self.splitter.setSizes(sizes)
+
+    def _panel_sizes_to_keep(self) -> list[int]:
+        """The splitter's sizes as the next window should start with them: the side panels at
+        the widths they had before the picture took room."""
+        sizes = self.splitter.sizes()
+        for i, width in (self._side_widths or {}).items():
+            sizes[1] -= width - sizes[i]
+            sizes[i] = width
+        return sizes
+
     # -- closing -----------------------------------------------------------------------------
     def closeEvent(self, event) -> None:
         self.settings.setValue("window/geometry", self.saveGeometry())
+        if self._side_widths is not None:  # the next, maybe larger, window starts as before
+            self.splitter.setSizes(self._panel_sizes_to_keep())
         self.settings.setValue("window/splitter", self.splitter.saveState())
         self.settings.setValue("window/docks", self.saveState())
         self._save_layers()
