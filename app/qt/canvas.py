@@ -201,9 +201,11 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self.message.setAlignment(Qt.AlignmentFlag.AlignCenter)
         self.message.setWordWrap(True)
         self.message.setStyleSheet(
-            "QLabel { background: rgba(246, 242, 232, 230); color: #1d1d1f; border-radius: 6px;"
-            " padding: 10px 14px; font-size: 13px; }"
+            "QLabel { background: rgba(246, 242, 232, 215); color: #1d1d1f; border-radius: 6px;"
+            " padding: 8px 12px; font-size: 13px; }"
         )
+        # a mark under the message can still be dragged
+        self.message.setAttribute(Qt.WidgetAttribute.WA_TransparentForMouseEvents)
         self.message.hide()
 
     def _build_layout(self) -> None:
@@ -336,8 +338,10 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
     def _place_message(self) -> None:
         width = min(520, max(200, self.graphics.width() - 40))
         self.message.setFixedWidth(width)
-        self.message.adjustSize()
-        self.message.move((self.graphics.width() - width) // 2, 24)
+        # the wrapped text's own height (adjustSize may leave a line out)
+        self.message.setFixedHeight(self.message.heightForWidth(width))
+        top = 24 if self.graphics.height() > 400 else 6  # a low picture: up to its edge
+        self.message.move((self.graphics.width() - width) // 2, top)
 
     def resizeEvent(self, event) -> None:
         super().resizeEvent(event)
