@@ -185,6 +185,10 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
     with Session.open(window.model.session.path, writable=False) as session:
         write_table_csv(session, reference)
     assert table.read_bytes() == reference.read_bytes()
+    gone = tmp_path / "no such folder" / "t.csv"  # told as the command tells it
+    monkeypatch.setattr("app.qt.export.ask_path", lambda *a, **k: str(gone))
+    window.act_export_table.trigger()
+    assert window.last_problem == f"Table: {gone}: cannot write here (the folder does not exist)"
 
     sheet = tmp_path / "from_window.pdf"
     monkeypatch.setattr("app.qt.export.ask_path", lambda *a, **k: str(sheet))

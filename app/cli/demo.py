@@ -11,8 +11,9 @@ import sys
 from pathlib import Path
 
 from app.cli import display
-from app.cli.options import failure_cause, known_ball_types, whole_count
+from app.cli.options import known_ball_types, whole_count
 from core import WakelineError
+from core.store.files import failure_cause
 
 SAMPLE_RUNS = Path(__file__).resolve().parents[2] / "sample_runs"
 DEMO_SESSION = "demo_session.h5"

@@ -13,12 +13,11 @@ from app.cli.options import (
     finite_number,
     known_ball_types,
     positive_number,
-    writing,
     zero_or_positive,
 )
 from app.review.text import shot_rows
 from core import WakelineError
-from core.store.files import atomic_write
+from core.store.files import atomic_write, writing
 from core.summary import ShotSummary
 
 

@@ -17,9 +17,9 @@ from app.cli.options import (
     known_ball_types,
     session_frame_files,
     whole_count,
-    writing,
 )
 from core import WakelineError
+from core.store.files import writing
 
 
 def add_commands(subparsers) -> None:

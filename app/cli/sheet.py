@@ -5,8 +5,9 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from app.cli.options import check_outputs, session_frame_files, writing
+from app.cli.options import check_outputs, session_frame_files
 from core import WakelineError
+from core.store.files import writing
 
 
 def add_commands(subparsers) -> None:

@@ -32,6 +32,7 @@ from core.store import (
 )
 from core.store import import_folder as store_import_folder
 from core.store.companions import companion_files
+from core.store.files import writing
 from core.store.records import AUTHORSHIP_FIELDS, BACK_TO_REVIEW
 
 __all__ = [
@@ -377,8 +378,10 @@ class SessionModel(QObject):
         return found
 
     def write_table(self, path) -> int:
-        """The table of picks as CSV (as ``wakeline table``); returns the row count."""
-        return write_table_csv(self._session, path)
+        """The table of picks as CSV (as ``wakeline table``); returns the row count. A file
+        that cannot be written raises ``core.WakelineError`` naming it and why."""
+        with writing(Path(path)):
+            return write_table_csv(self._session, path)
 
     # -- conditions and other analysts' reviews (core.conditions, core.store.reviews) ---------
     def conditions_by(self) -> list[str]:

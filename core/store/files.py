@@ -174,3 +174,36 @@ def read_csv_table(path: Path, what: str) -> tuple[list[str], Iterator[list[str]
         raise WakelineError(f"{path}: not UTF-8 text") from None
     reader = csv.reader(io.StringIO(text, newline=""))
     return [h.strip() for h in next(reader, [])], reader
+
+
+#: Why a file cannot be written, in plain words, by error number.
+WRITE_FAILURES = {
+    errno.EROFS: "read-only file system",
+    errno.EACCES: "no permission to write in this folder",
+    errno.EPERM: "no permission to write in this folder",
+    errno.ENOSPC: "the disk is full",
+    errno.EDQUOT: "over the disk quota",
+    errno.ENOENT: "the folder does not exist",
+}
+
+
+@contextmanager
+def writing(out: Path) -> Iterator[None]:
+    """Tell a failure to write the output file ``out`` (or the temporary file beside it the
+    write goes through) as "OUT: cannot write here (cause)"; other failures pass unchanged."""
+    try:
+        yield
+    except OSError as exc:
+        if exc.filename is None or not _is_output(Path(exc.filename), Path(out)):
+            raise
+        raise WakelineError(f"{out}: cannot write here ({failure_cause(exc)})") from None
+
+
+def failure_cause(exc: OSError) -> str:
+    """Why a write failed, in plain words ("read-only file system")."""
+    return WRITE_FAILURES.get(exc.errno) or exc.strerror or str(exc)
+
+
+def _is_output(path: Path, out: Path) -> bool:
+    """``path`` is ``out`` or a temporary sibling of it (``out.csv.tmp``, ``out.pdf.part``)."""
+    return path.parent == out.parent and path.name.startswith(out.name)
