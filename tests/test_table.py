@@ -125,3 +125,25 @@ def test_the_table_says_why_a_side_has_no_proposal(tmp_path):
         s.save_result("S0", result)
     assert main(["table", str(tmp_path / "s.h5"), "-o", str(tmp_path / "t.csv")]) == 0
     assert _read(tmp_path / "t.csv")["S0"]["proposal_notes"] == f"upper: {reason}"
+
+
+def test_the_table_and_the_sheet_say_which_shots_need_processing_again(tmp_path):
+    # shots measured with settings since changed once read "processed" like the others
+    from app.sheet import make_sheet
+
+    import_folder(write_shot_folder(tmp_path / "src", 3), tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        for shot in ("S0", "S1"):
+            s.save_result(shot, fake_result(s.settings_for(shot)))
+        s.set_processing_settings({"piv": {"passes": [{"window_px": 48, "overlap": 0.5}]}})
+        s.save_result("S1", fake_result(s.settings_for("S1")))  # S1 measured again
+    assert main(["table", str(tmp_path / "s.h5"), "-o", str(tmp_path / "t.csv")]) == 0
+    rows = _read(tmp_path / "t.csv")
+    assert [rows[s]["needs_processing"] for s in ("S0", "S1", "S2")] == ["yes", "no", "yes"]
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        make_sheet(s, tmp_path / "s.pdf")
+    from pypdf import PdfReader
+
+    cover = " ".join(PdfReader(str(tmp_path / "s.pdf")).pages[0].extract_text().split())
+    assert ("2 processed (1 with other settings than the session's now or by an older "
+            "wakeline: process again), 1 unprocessed") in cover

@@ -32,7 +32,7 @@ from app.sheet.kit import (
     tick_label,
     triangle,
 )
-from core.store import ReviewStatus
+from core.store import ProcessState, ReviewStatus
 
 
 def paint_cover(pages: Pages, session, all_records, records, column: str,
@@ -50,7 +50,9 @@ def paint_cover(pages: Pages, session, all_records, records, column: str,
     y += 5
     text(p, rect_mm(x, y, w, 5), selection_text, 8.5, colour=colours.MUTED_INK)
     y += 8
-    y = _paint_status_boxes(p, x, y, w, all_records)
+    stale = sum(r.state == ProcessState.PROCESSED and session.needs_processing(r.shot_id)
+                for r in all_records) if hasattr(session, "needs_processing") else 0
+    y = _paint_status_boxes(p, x, y, w, all_records, stale)
     y += 5
     text(p, rect_mm(x, y, w, 6), "Session overview", 11, bold=True)
     y += 6.5
@@ -88,7 +90,9 @@ def _name_size(p, name: str, width_mm: float) -> float:
     return 11.0
 
 
-def _paint_status_boxes(p, x: float, y: float, w: float, records) -> float:
+def _paint_status_boxes(p, x: float, y: float, w: float, records, stale: int = 0) -> float:
+    """The count of each review status, then of each processing state (``stale``: shots
+    processed with other settings than the session's now)."""
     counts = status_counts(records)
     processing = process_counts(records)
     box_w = (w - 3 * 3) / 4
@@ -101,8 +105,12 @@ def _paint_status_boxes(p, x: float, y: float, w: float, records) -> float:
              colour=colour)
         text(p, rect_mm(bx + 4, y + 9.2, box_w - 5, 5), status, 8.5, colour=colours.INK)
     y += 17
-    parts = [f"{n} {state}" for state, n in sorted(processing.items())]
-    text(p, rect_mm(x, y, w, 5), "Processing: " + ", ".join(parts), 8, colour=colours.MUTED_INK)
+    parts = [f"{n} {state}" + (f" ({stale} with other settings than the session's now or by "
+                               "an older wakeline: process again)"
+                               if stale and state == ProcessState.PROCESSED else "")
+             for state, n in sorted(processing.items())]
+    text(p, rect_mm(x, y, w, 5), "Processing: " + ", ".join(parts), 8,
+         colour=colours.DISAGREEMENT if stale else colours.MUTED_INK)
     return y + 5
 
 

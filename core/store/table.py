@@ -31,7 +31,8 @@ def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
                    - set(NUMBER_COLUMNS) - set(TEXT_COLUMNS) - {"shot"})
     meta_cols = list(NUMBER_COLUMNS) + list(TEXT_COLUMNS) + extra
     header = ["shot", *meta_cols, *_RESULT_COLUMNS]
-    rows = [[r.shot_id, *(cell_text(r.metadata.get(c)) for c in meta_cols), *_result_cells(r)]
+    rows = [[r.shot_id, *(cell_text(r.metadata.get(c)) for c in meta_cols), *_result_cells(r),
+             "yes" if session.needs_processing(r.shot_id) else "no"]
             for r in records]
     return header, rows
 
@@ -44,6 +45,7 @@ _RESULT_COLUMNS = (
     "wake_deflection_uncertainty_deg", "wake_state",
     "review_status", "unusable_reason", "review_note", "reviewed_by", "reviewed_utc",
     "processed_utc", "software_version", "note_by", "note_utc", "proposal_notes",
+    "needs_processing",
 )
 ANGLE_DECIMALS = 2
 
@@ -64,7 +66,7 @@ def _result_cells(r: ShotRecord) -> list[str]:
         r.wake_state(),  # from the final angles: follows the analyst's edits
         pick.status, pick.reason, pick.note, pick.who, pick.when,
         r.processed_utc, r.software_version, pick.note_who, pick.note_when,
-        _proposal_notes(summary),  # last: the columns before it keep their places
+        _proposal_notes(summary),  # the columns before it keep their places
     ]
     return [cell_text(v) for v in values]
 
