@@ -94,7 +94,10 @@ def test_the_help_of_settings_says_both_ways(capsys):
     (["conditions", "{s}", "--by", "nosuchcol"], "argument --by: no column 'nosuchcol'"),
     (["table", "{s}", "-o", "x.csv", "--ensemble"], "argument --ensemble: goes with --by"),
     (["pair", "a.tif", "b.tif", "--air-temp", "-300"], "-300 deg C is at or below absolute zero"),
-], ids=["scale", "diameter", "normalise", "status", "by", "ensemble", "air temperature"])
+    (["sheet", "{s}", "-o", "x.pdf", "--column", "operator"],
+     "argument --column: 'operator' is not a numeric column of this session"),
+], ids=["scale", "diameter", "normalise", "status", "by", "ensemble", "air temperature",
+        "column"])
 def test_bad_option_values_exit_2(session_path, argv, said, capsys):
     argv = [a.replace("{s}", str(session_path)) for a in argv]
     line = usage_error(argv, capsys)
@@ -304,3 +307,21 @@ def test_settings_read_back_from_a_session_are_taken_as_they_were_stored():
     with pytest.raises(WakelineError, match=r"normalise_spacings must be a finite number or "
                        r"null, not 1{400}"):
         ShotSettings.from_dict({"normalise_spacings": int("1" * 400)}, strict=True)
+
+
+def test_a_folder_or_a_damaged_header_given_as_a_session_is_named_as_such(tmp_path, capsys):
+    assert main(["table", str(tmp_path), "-o", str(tmp_path / "t.csv")]) == 1
+    assert capsys.readouterr().err.strip() == (
+        f"wakeline: {tmp_path}: is a folder, not a session file (give its .h5 file)")
+    # a session whose header is damaged: not called another program's file
+    from core.store import Session
+
+    path = tmp_path / "s.h5"
+    Session.create(path).close()
+    data = bytearray(path.read_bytes())
+    data[512:1024] = bytes(512)  # the root group's attributes (found by trying, h5py 3.16)
+    path.write_bytes(bytes(data))
+    assert main(["table", str(path), "-o", str(tmp_path / "t.csv")]) == 1
+    err = capsys.readouterr().err
+    assert f"{path}: session file damaged (its header cannot be read: " in err
+    assert err.rstrip().endswith("; restore it from a backup")

@@ -192,6 +192,9 @@ def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot):
     answer_dialog(lambda d: (d.setTextValue("laser sheet misfired"), d.accept()))
     _key(qtbot, window, Qt.Key.Key_U)  # s02 unusable with the reason
     reactivate(qtbot, window)
+    _key(qtbot, window, Qt.Key.Key_E)  # its marks stay, and the window says why
+    assert window.model.record("s02").pick.status == "unusable"
+    assert "marked unusable: R puts it back" in window.statusBar().currentMessage()
     _key(qtbot, window, Qt.Key.Key_Down)
     proposal = window.model.record("s03").proposed_deg("upper")
     lower = window.model.record("s03").proposed_deg("lower")

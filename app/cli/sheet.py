@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from app.cli.options import check_outputs, session_frame_files
+from app.cli.options import UsageError, check_outputs, session_frame_files
 from core import WakelineError
 from core.store.files import writing
 
@@ -90,9 +90,14 @@ def run_sheet(args: argparse.Namespace) -> int:
             records = list(session.values())
             ensembles = condition_ensembles(session, sheet_conditions(session, records)[1])
         with writing(args.output):
-            report = make_sheet(session, args.output, shot_ids=args.shots,
-                                per_page=args.per_page, statuses=args.status,
-                                column=args.column, vorticity_limit_1_s=args.vorticity_limit,
-                                ensembles=ensembles)
+            try:
+                report = make_sheet(session, args.output, shot_ids=args.shots,
+                                    per_page=args.per_page, statuses=args.status,
+                                    column=args.column, vorticity_limit_1_s=args.vorticity_limit,
+                                    ensembles=ensembles)
+            except WakelineError as exc:
+                if str(exc).startswith("--column:"):  # a column the session lacks: bad usage
+                    raise UsageError(f"argument {exc}") from None
+                raise
     print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
     return 0

@@ -263,7 +263,15 @@ class ReviewActions:
         if not self._can_edit() or self.canvas.shot is None:
             return
         record = self.model.record(self.model.current_id)
-        if record.pick.status == ReviewStatus.UNUSABLE or record.state != ProcessState.PROCESSED:
+        if record.pick.status == ReviewStatus.UNUSABLE:
+            self.statusBar().showMessage(f"Shot {record.shot_id} is marked unusable: R puts it "
+                                         "back to review, then its marks move.", 6000)
+            return
+        if record.state != ProcessState.PROCESSED:
+            why = ("its last processing failed" if record.state == ProcessState.FAILED
+                   else "it is not processed yet")
+            self.statusBar().showMessage(f"Shot {record.shot_id}: {why}; process it "
+                                         "(Ctrl+Shift+P) before moving its marks.", 6000)
             return
         current = self.canvas.mark_angle(side)
         angle = round((0.0 if current is None else current) + step_deg, 6)

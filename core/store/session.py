@@ -185,6 +185,8 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             When the file is missing, truncated or not a wakeline session.
         """
         given, path = path, session_path(path)
+        if path.is_dir():
+            raise WakelineError(f"{path}: is a folder, not a session file (give its .h5 file)")
         lock = Lock(path) if writable else None
         if lock is not None:
             check_signature(path)
@@ -195,7 +197,8 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         except OSError as exc:  # e.g. a full disk while tidying what a killed writer left
             if lock is not None:
                 lock.release()
-            raise WakelineError(f"{exc.filename or path}: cannot open the session for writing "
+            what = "for writing " if writable else ""
+            raise WakelineError(f"{exc.filename or path}: cannot open the session {what}"
                                 f"({exc.strerror or exc})") from None
         except BaseException:
             if lock is not None:

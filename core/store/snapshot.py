@@ -104,6 +104,11 @@ def read_snapshot(path: Path) -> Snapshot:
     check_signature(path)
     try:
         with h5py.File(path, "r") as f:
+            try:
+                set(f.attrs)  # attrs.get would take a damaged header for a missing one
+            except (RuntimeError, OSError, KeyError) as exc:
+                raise WakelineError(f"{path}: session file damaged (its header cannot be read: "
+                                    f"{damage_reason(exc)}); restore it from a backup") from None
             version = f.attrs.get("format_version")
             if version is None or f.attrs.get("application") != "wakeline":
                 raise WakelineError(f"{path}: not a wakeline session (HDF5 file of another program)")
