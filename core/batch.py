@@ -47,6 +47,11 @@ class ShotOutcome:
     total: int
     decision: str = ""  # what became of the analyst's decision (Session.save_result), if anything
 
+    @property
+    def reopened(self) -> bool:
+        """An accepted pick went back to review (its proposal moved)."""
+        return self.decision.endswith(BACK_TO_REVIEW)
+
 
 @dataclass
 class BatchReport:
@@ -154,7 +159,7 @@ def process_shots(
         for outcome in outcomes:
             if outcome.ok:
                 report.processed.append(outcome.shot_id)
-                if outcome.decision.endswith(BACK_TO_REVIEW):
+                if outcome.reopened:
                     report.reopened.append(outcome.shot_id)
             else:
                 report.failed[outcome.shot_id] = outcome.message

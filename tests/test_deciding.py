@@ -191,3 +191,24 @@ def test_undo_puts_back_who_decided_and_when_and_redo_keeps_the_edit_s(main_wind
         assert (session["s01"].pick.who, session["s01"].pick.when) == (accepted.who, accepted.when)
         assert [p.status for p in session.history("s01")] == [
             "adjusted", "accepted", "adjusted", "accepted"]
+
+
+def test_an_edit_made_before_the_shot_was_measured_again_is_not_undone_nor_redone(
+        main_window, make_session, qtbot):
+    from dataclasses import replace
+
+    path = make_session(2)
+    window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(False)
+    window.set_status("accepted")
+    assert window.model.record("s01").pick.status == "accepted"
+    # the shot is measured again (a processing run) and its proposal moves: back to review
+    result = window.model.result("s01")
+    upper = replace(result.separation.upper, angle_deg=result.separation.upper.angle_deg + 2.0)
+    moved = replace(result, separation=replace(result.separation, upper=upper))
+    assert "back to review" in window.model.keep_result("s01", moved, measured=False)
+    window.undo_stack.undo()  # would put back "to review" on numbers nobody looked at...
+    window.undo_stack.redo()  # ...and redo would accept them: both refused, with the reason
+    pick = window.model.record("s01").pick
+    assert (pick.status, pick.who) == ("to review", "wakeline")
+    assert "s01 was measured again since this edit" in window.statusBar().currentMessage()

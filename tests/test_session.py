@@ -498,8 +498,12 @@ def test_a_new_result_never_changes_a_decided_angle_silently(session_path):
         # measured again: the same proposals leave the decision alone
         assert s.save_result("S2", fake_result(s.settings_for("S2"), 5.0, -3.0)) == ""
         assert s["S2"].pick.status == "accepted" and len(s.history("S2")) == 1
-        # the accepted proposal moved: the number accepted is gone, back to review
+        # the accepted proposal moved: the number accepted is gone, back to review, in the same
+        # journal line as the result (a crash keeps both or neither)
+        journal = session_path.with_name("s.h5.journal")
+        lines = len(journal.read_bytes().splitlines())
         said = s.save_result("S0", fake_result(s.settings_for("S0"), 5.0, -3.4))
+        assert len(journal.read_bytes().splitlines()) == lines + 1
         assert said == ("the proposal accepted before moved (lower -3.00° → -3.40°): "
                         "back to review")
         assert (s["S0"].pick.status, s["S0"].pick.who) == ("to review", "wakeline")
@@ -509,6 +513,12 @@ def test_a_new_result_never_changes_a_decided_angle_silently(session_path):
         assert said == "the adjusted pick keeps lower -3.00° (the proposal there moved)"
         assert [s["S1"].final_deg(side) for side in ("upper", "lower")] == [6.0, -3.0]
         assert s["S1"].pick.who == "ana"
+        # a side with no proposal before has no angle to keep: the new one stands, named
+        s.save_result("S2", fake_result(s.settings_for("S2"), 5.0, None))
+        s.set_pick("S2", status="adjusted", upper_deg=4.0, who="ana")
+        said = s.save_result("S2", fake_result(s.settings_for("S2"), 5.0, -2.0))
+        assert said == "the adjusted pick takes the new proposal on lower (-2.00°): check it"
+        assert s["S2"].final_deg("lower") == -2.0
     with Session.open(session_path, writable=False) as s:  # saved with the result
         assert [p.status for p in s.history("S0")] == ["accepted", "to review"]
         assert s["S1"].pick.lower_deg == -3.0

@@ -358,5 +358,5 @@ def test_a_failed_shot_shows_its_last_good_field_and_says_so(reviewed_session, t
     with Session.open(reviewed_session, writable=False) as session:
         make_sheet(session, out, shot_ids=["s02"])
     _pages, text = _pdf_text(out)
-    assert "Shown: the run before the last, which failed: shot s02: frame" in text
+    assert "Shown: the last run that succeeded; the latest failed: shot s02: frame" in text
     assert "No field" not in text

@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from PySide6.QtGui import QUndoCommand
 
-from app.review.model import ReviewStatus, SessionModel, authorship, pick_values
+from app.review.model import ReviewStatus, SessionModel, authorship, pick_values, proposals
 from core import WakelineError
 
 NUDGE_MERGE_ID = 4101  # consecutive nudges of one mark on one shot merge into one undo step
@@ -39,6 +39,9 @@ class PicksEdit(QUndoCommand):
             # undo puts back who made the decision and when, not who undid it
             self.before[shot_id] = {**{name: current[name] for name in changes},
                                     **authorship(pick)}
+        # the proposals the edit was made on: undone or redone on others, it would decide on
+        # numbers nobody looked at
+        self._proposals = {shot_id: proposals(model.record(shot_id)) for shot_id in edits}
         self._applied = False
 
     def apply(self) -> None:
@@ -57,15 +60,21 @@ class PicksEdit(QUndoCommand):
         if self._applied:  # the push right after apply(): already done
             self._applied = False
             return
-        self._apply_from_stack(self.after)
+        self._apply_from_stack(self.after, "redone")
 
     def undo(self) -> None:
-        self._apply_from_stack(self.before)
+        self._apply_from_stack(self.before, "undone")
 
-    def _apply_from_stack(self, values: dict[str, dict]) -> None:
+    def _apply_from_stack(self, values: dict[str, dict], done: str) -> None:
         """Qt cannot take an exception back from undo/redo: a refusal (e.g. the session became
-        read-only) is reported by signal, the command retired, and the views shown the truth."""
+        read-only, or a shot was measured again since the edit) is reported by signal, the
+        command retired, and the views shown the truth."""
         try:
+            moved = [shot_id for shot_id, seen in self._proposals.items()
+                     if proposals(self._model.record(shot_id)) != seen]
+            if moved:
+                raise WakelineError(f"shot {moved[0]} was measured again since this edit (its "
+                                    f"proposals moved): the edit is not {done}")
             self._model.apply_picks(values)
         except WakelineError as exc:
             self.setObsolete(True)

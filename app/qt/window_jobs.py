@@ -64,7 +64,8 @@ class JobActions:
         # a frame gone or changed would only fail the run: say so now, the result stays
         problem = self.model.check_frames(shot_ids=[shot_id]).get(shot_id)
         if problem:
-            self.show_problem("Reprocess", f"{problem}; the shot's last result is kept")
+            kept = "; the shot's last result is kept" if self.model.record(shot_id).summary else ""
+            self.show_problem("Reprocess", problem + kept)
             return
         self.start_processing([shot_id], force=True)
 

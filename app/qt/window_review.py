@@ -267,11 +267,9 @@ class ReviewActions:
             self.statusBar().showMessage(f"Shot {record.shot_id} is marked unusable: R puts it "
                                          "back to review, then its marks move.", 6000)
             return
-        if record.state != ProcessState.PROCESSED:
-            why = ("its last processing failed" if record.state == ProcessState.FAILED
-                   else "it is not processed yet")
-            self.statusBar().showMessage(f"Shot {record.shot_id}: {why}; process it "
-                                         "(Ctrl+Shift+P) before moving its marks.", 6000)
+        if record.summary is None:  # a failed shot's last good run has marks, as a drag finds
+            self.statusBar().showMessage(f"Shot {record.shot_id} has no measured marks yet; "
+                                         "process it (Ctrl+Shift+P) first.", 6000)
             return
         current = self.canvas.mark_angle(side)
         angle = round((0.0 if current is None else current) + step_deg, 6)

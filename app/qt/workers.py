@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 from PySide6.QtCore import QObject, QThread, Signal, Slot
 
-from app.review.model import BACK_TO_REVIEW, import_folder, take_corrections
+from app.review.model import import_folder, take_corrections
 from core import WakelineError
 
 log = logging.getLogger("wakeline.window")
@@ -152,7 +152,7 @@ def process_job(model, shot_ids=None, workers: int | None = None, force: bool = 
             summary.total = outcome.total
             if outcome.ok:
                 summary.processed += 1
-                summary.reopened += outcome.decision.endswith(BACK_TO_REVIEW)
+                summary.reopened += outcome.reopened
             else:
                 summary.failed += 1
             report(outcome)

@@ -33,11 +33,12 @@ from core.store import (
 from core.store import import_folder as store_import_folder
 from core.store.companions import companion_files
 from core.store.files import writing
-from core.store.records import AUTHORSHIP_FIELDS, BACK_TO_REVIEW
+from core.store.records import AUTHORSHIP_FIELDS
 
 __all__ = [
-    "BACK_TO_REVIEW", "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus", "SessionLocked", "SessionModel",
-    "authorship", "import_folder", "is_companion_file", "pick_values", "take_corrections",
+    "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus",
+    "SessionLocked", "SessionModel", "authorship", "import_folder", "is_companion_file",
+    "pick_values", "proposals", "take_corrections",
 ]
 
 PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")
@@ -66,6 +67,11 @@ def import_folder(src_dir, session_path, **options):
 def pick_values(pick: Pick) -> dict:
     """The editable fields of a pick as a plain dict (what undo commands store)."""
     return {name: getattr(pick, name) for name in PICK_FIELDS}
+
+
+def proposals(record) -> tuple:
+    """A shot's proposed angles (upper, lower; None where none): what a decision was made on."""
+    return tuple(record.proposed_deg(side) for side in ("upper", "lower"))
 
 
 def authorship(pick: Pick) -> dict:

@@ -102,7 +102,7 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
         if record.failure:
             p.fillRect(rect_mm(pic[0], pic[1], pic[2], 4.6), qcolor(colours.PAPER_TINT))
             one_line(p, rect_mm(pic[0] + 1, pic[1], pic[2] - 2, 4.6),
-                     f"Shown: the run before the last, which failed: {record.failure}",
+                     f"Shown: the last run that succeeded; the latest failed: {record.failure}",
                      (7.5, 6.5), colour=colours.DISAGREEMENT)
     _paint_numbers(p, info, rows)
 

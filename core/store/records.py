@@ -295,12 +295,18 @@ def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str):
         return (replace(pick, status=ReviewStatus.TO_REVIEW, who="wakeline", when=now),
                 f"the proposal accepted before moved ({changes}): {BACK_TO_REVIEW}")
     if pick.status == ReviewStatus.ADJUSTED:
-        kept = {f"{side}_deg": record.proposed_deg(side) for side in moved
-                if getattr(pick, f"{side}_deg") is None and record.proposed_deg(side) is not None}
+        following = [side for side in moved if getattr(pick, f"{side}_deg") is None]
+        kept = {f"{side}_deg": record.proposed_deg(side) for side in following
+                if record.proposed_deg(side) is not None}
+        new = [side for side in following if record.proposed_deg(side) is None]
+        said = []
         if kept:
             sides = ", ".join(f"{name[:-4]} {_deg(value)}" for name, value in kept.items())
-            return (replace(pick, **kept),
-                    f"the adjusted pick keeps {sides} (the proposal there moved)")
+            said.append(f"the adjusted pick keeps {sides} (the proposal there moved)")
+        if new:  # no angle to keep: the new proposal stands, and is named for a look
+            said.append("the adjusted pick takes the new proposal on " + ", ".join(
+                f"{side} ({_deg(proposals.get(side))}): check it" for side in new))
+        return (replace(pick, **kept) if kept else None), "; ".join(said)
     return None, ""
 
 
@@ -312,4 +318,3 @@ def _same_angle(a: float | None, b: float | None) -> bool:
 
 def _deg(value: float | None) -> str:
     return "none" if value is None else f"{value:+.2f}°"
-

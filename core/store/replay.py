@@ -75,6 +75,9 @@ class JournalReplay:
             rec.fingerprint, rec.software_version = entry["fingerprint"], entry["version"]
             rec.processed_utc = entry["t"]
             place.result = pending_name(entry["pending"])
+            if entry.get("pick") is not None:  # the decision the new result changed, with it
+                rec.pick = Pick.from_dict(entry["pick"])
+                place.history.append(replace(rec.pick))
         elif op == "shot_values":
             rec.metadata = dict(entry["metadata"])
         elif op == "failure":

@@ -464,13 +464,14 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             now = now_utc()
             pick, said = decision_on_new_proposals(
                 record, {side: summary.proposed_deg(side) for side in SIDES}, now)
+            # the decision changes in the same journal line as the result: a crash keeps both
+            # or neither
             self._commit({
                 "op": "result", "shot": shot_id, "summary": summary.to_dict(),
                 "summary_version": summary.version, "pending": pending,
                 "fingerprint": result.settings.fingerprint(), "version": __version__,
-                "t": now,
-            }, *([] if pick is None else [{"op": "pick", "shot": shot_id,
-                                           "pick": pick.to_dict()}]))
+                "t": now, **({} if pick is None else {"pick": pick.to_dict()}),
+            })
             return said
 
     def save_failure(self, shot_id: str, reason: str, fingerprint: str | None = None) -> None:
