@@ -95,7 +95,9 @@ def test_powers_of_ten_and_microseconds_are_written_as_printed():
     summary = ShotSummary.from_dict({"reynolds": {"value": 143_210.0, "air_temp_c": 19.5}})
     assert reynolds_text(summary).startswith("1.43 × 10⁵ (air at 19.5 °C)")
     assert "^" not in reynolds_text(summary)
-    assert scientific_text(2.5e-7) == "2.5 × 10⁻⁷" and scientific_text(512.0) == "512"
+    assert scientific_text(2.5e-7) == "2.50 × 10⁻⁷" and scientific_text(512.0) == "512"
+    # three figures always, as the conditions' ranges write them ("1.4 × 10⁵" beside "1.40")
+    assert scientific_text(1.4e5) == "1.40 × 10⁵"
     assert times_ten_text("1.39-1.44", 12) == "1.39-1.44 × 10¹²"
     record = ShotRecord("t1", {"ball_diameter_mm": 71.6}, state="processed", summary=SUMMARY,
                         pick=Pick())

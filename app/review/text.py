@@ -33,10 +33,13 @@ def times_ten_text(digits: str, power: int) -> str:
 
 
 def scientific_text(value: float, figures: int = 3) -> str:
-    """``143000`` -> ``1.43 × 10⁵`` with ``figures`` significant figures (small numbers as they
-    are: ``512``)."""
-    mantissa, _, exponent = f"{value:.{figures}g}".partition("e")
-    return times_ten_text(mantissa, int(exponent)) if exponent else mantissa
+    """``143000`` -> ``1.43 × 10⁵`` with ``figures`` significant figures, trailing zeros kept
+    (``1.40 × 10⁵``, as the conditions' ranges write it); small numbers as they are: ``512``."""
+    short = f"{value:.{figures}g}"
+    if "e" not in short:
+        return short
+    mantissa, _, exponent = f"{value:.{figures - 1}e}".partition("e")
+    return times_ten_text(mantissa, int(exponent))
 
 
 def angle_text(value_deg: float | None, signed: bool = True, decimals: int = 1) -> str:
