@@ -164,7 +164,8 @@ class GeometryEdit(QUndoCommand):
     def apply(self) -> None:
         """Save the new geometry now (raises ``core.WakelineError`` when refused) and start
         measuring the shot with it."""
-        self._model.apply_pick(self.shot_id, **self.after)
+        pick = self._model.apply_pick(self.shot_id, **self.after)
+        self.after.update(authorship(pick))  # redo keeps this edit's author and time
         self._applied = True
         self._remeasure(self)
 
