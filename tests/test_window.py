@@ -336,6 +336,13 @@ def test_a_small_window_gives_the_picture_room_unless_the_panels_were_set_by_han
 
     qtbot.waitUntil(roomy, timeout=3000)
     assert window.splitter.sizes()[1] > 450  # it was squeezed to about 200 px
+    # and the overview docked below gives up height: the picture was about 230 px high
+    from app.qt.window import CANVAS_HEIGHT_PX
+
+    dock = window.overview_dock
+    qtbot.waitUntil(lambda: window.splitter.height() >= CANVAS_HEIGHT_PX - 2
+                    or dock.height() <= dock.minimumSizeHint().height(), timeout=3000)
+    assert dock.isVisible() and dock.height() < 230 and window.splitter.height() > 400
     # narrow as it is, the hint has its own line above the legend instead of a few letters
     assert window.canvas.width() < LEGEND_MIN_WIDTH + HINT_MIN_WIDTH
     assert window.canvas.legend.y() > window.canvas.hover_label.y()

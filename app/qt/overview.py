@@ -31,6 +31,10 @@ LOWER_SYMBOL = "t"  # triangle pointing down
 POINT_SIZE = 11
 
 
+#: The angle axis's title, and the one of a plot too low to hold it (px).
+Y_TITLE, Y_TITLE_SHORT, Y_TITLE_MIN_PX = "separation (deg)", "deg", 170
+
+
 class SessionOverview(QtWidgets.QWidget):
     """Scatter of separation angles against a chosen column, one point pair per shot.
 
@@ -66,13 +70,14 @@ class SessionOverview(QtWidgets.QWidget):
         self.note_label.setStyleSheet(f"color: {colours.MUTED_INK};")
 
         self.plot = pg.PlotWidget(background="w")
-        self.plot.setMinimumSize(280, 200)
+        self.plot.setMinimumSize(280, 130)  # a low window: the dock gives up height (window.py)
         item = self.plot.getPlotItem()
         item.showGrid(x=True, y=True, alpha=0.15)
-        item.setLabel("left", "separation (deg)")
+        item.setLabel("left", Y_TITLE)
+        self.plot.installEventFilter(self)  # a short plot takes a short title (eventFilter)
         # room under the bottom axis's label (without it the label's lower half, descenders
         # and all, fell off the widget's edge)
-        item.layout.setContentsMargins(0, 0, 0, 6)
+        item.layout.setContentsMargins(0, 0, 0, 14)
         item.setMenuEnabled(False)
         for axis in ("left", "bottom"):
             item.getAxis(axis).setPen(pg.mkPen(colours.MUTED_INK))
@@ -100,15 +105,26 @@ class SessionOverview(QtWidgets.QWidget):
         top = QtWidgets.QHBoxLayout()
         top.addWidget(QtWidgets.QLabel("Against:"))
         top.addWidget(self.column_box)
-        top.addSpacing(12)
-        top.addWidget(_legend_label(), 1)
+        top.addStretch(1)
         top.addWidget(self.note_label)
         layout = QtWidgets.QVBoxLayout(self)
         layout.setContentsMargins(4, 4, 4, 4)
+        layout.setSpacing(2)
         layout.addLayout(top)
+        # the legend on a line of its own, the panel's whole width: squeezed beside the chooser
+        # in a narrow panel it wrapped to many lines and took the plot's height
+        layout.addWidget(_legend_label())
         layout.addWidget(self.plot, 1)
 
     # public ---------------------------------------------------------------------------------
+
+    def eventFilter(self, watched, event) -> bool:
+        if watched is self.plot and event.type() == QtCore.QEvent.Type.Resize:
+            title = Y_TITLE if event.size().height() >= Y_TITLE_MIN_PX else Y_TITLE_SHORT
+            axis = self.plot.getPlotItem().getAxis("left")
+            if axis.labelText != title:
+                axis.setLabel(title)
+        return super().eventFilter(watched, event)
     def set_records(self, records) -> None:
         """Show these shot records (``core.store.ShotRecord``), keeping the chosen column."""
         self._records = list(records)

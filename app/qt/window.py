@@ -66,6 +66,10 @@ FINE_NUDGE_DEG = 0.1
 #: Width (px) the picture takes from the side panels on a narrow window
 #: (MainWindow._make_room_for_canvas).
 CANVAS_ROOM_PX = 520
+#: Height (px) the panels above the session overview keep when the window gets lower: the
+#: overview docked below gives up its height for them, down to its least
+#: (MainWindow._make_height_for_canvas).
+CANVAS_HEIGHT_PX = 470
 
 # (action key, menu text, shortcut, tip) of the review keys; shown in Help > Keyboard shortcuts
 REVIEW_KEYS = (
@@ -449,6 +453,26 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
             # beside it)
             QTimer.singleShot(0, self._make_room_for_canvas)
         return super().eventFilter(watched, event)
+
+    def resizeEvent(self, event) -> None:
+        super().resizeEvent(event)
+        if event.oldSize().isValid() and event.size().height() < event.oldSize().height():
+            QTimer.singleShot(0, self._make_height_for_canvas)  # once the layout has settled
+
+    def _make_height_for_canvas(self) -> None:
+        """When the window gets lower, the session overview docked below the panels gives up
+        height until they are ``CANVAS_HEIGHT_PX`` high (down to its least height); the
+        analyst's own dock height stays as long as the window keeps its size."""
+        dock = getattr(self, "overview_dock", None)
+        if (dock is None or dock.isFloating() or not dock.isVisible()
+                or self.dockWidgetArea(dock) != Qt.DockWidgetArea.BottomDockWidgetArea):
+            return
+        short = CANVAS_HEIGHT_PX - self.splitter.height()
+        if short <= 0:
+            return
+        height = max(dock.minimumSizeHint().height(), dock.height() - short)
+        if height < dock.height():
+            self.resizeDocks([dock], [height], Qt.Orientation.Vertical)
 
     def _on_panels_set_by_hand(self, *_args) -> None:
         self._panels_set_by_hand = True
