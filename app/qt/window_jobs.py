@@ -61,8 +61,9 @@ class JobActions:
         shot_id = self.model.current_id
         if not shot_id:
             return
-        # a frame gone or changed would only fail the run: say so now, the result stays
-        problem = self.model.check_frames(shot_ids=[shot_id]).get(shot_id)
+        # a frame gone would only fail the run: say so now, the result stays (a changed one the
+        # run itself finds: reading the frames again here would hold the window)
+        problem = self.model.check_frames(shot_ids=[shot_id], checksums=False).get(shot_id)
         if problem:
             kept = "; the shot's last result is kept" if self.model.record(shot_id).summary else ""
             self.show_problem("Reprocess", problem + kept)

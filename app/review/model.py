@@ -368,8 +368,9 @@ class SessionModel(QObject):
         return iter_process(self._session, shot_ids, workers=workers, force=force,
                             should_stop=should_stop)
 
-    def check_frames(self, should_stop=None, shot_ids=None) -> dict[str, str]:
-        return self._session.check_frames(should_stop, shot_ids)
+    def check_frames(self, should_stop=None, shot_ids=None,
+                     checksums: bool = True) -> dict[str, str]:
+        return self._session.check_frames(should_stop, shot_ids, checksums)
 
     def compact(self) -> list[str]:
         """Fold the journal into the session file (every edit is already on disk); returns what

@@ -39,7 +39,7 @@ def read_frames(shot_id: str, source: dict) -> tuple[np.ndarray, np.ndarray]:
     return read_frame_pair(source["path_a"], source["path_b"])
 
 
-def frame_file_problem(shot_id: str, source: dict) -> str:
+def frame_file_problem(shot_id: str, source: dict, checksums: bool = True) -> str:
     for path_key, sum_key in (("path_a", "sha256_a"), ("path_b", "sha256_b")):
         path = source.get(path_key)
         if path is None:
@@ -50,7 +50,7 @@ def frame_file_problem(shot_id: str, source: dict) -> str:
                     f"{where}: if the session file was moved or copied, move its frames with "
                     "it)") if where else ""
             return f"shot {shot_id}: frame file {path} not found{hint}"
-        if source.get(sum_key) and sha256_of(Path(path)) != source[sum_key]:
+        if checksums and source.get(sum_key) and sha256_of(Path(path)) != source[sum_key]:
             return f"shot {shot_id}: frame file {path} changed since import (SHA-256 differs)"
     return ""
 

@@ -328,9 +328,10 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         with self._mutex:
             return read_frames(shot_id, self.frame_source(shot_id))
 
-    def check_frames(self, should_stop=None, shot_ids=None) -> dict[str, str]:
+    def check_frames(self, should_stop=None, shot_ids=None,
+                     checksums: bool = True) -> dict[str, str]:
         """``shot_id -> problem`` for every shot (of ``shot_ids``, default all) whose frame
-        files are missing or changed.
+        files are missing or (``checksums``: their SHA-256 read again) changed.
 
         ``should_stop``: called before each shot; when it returns True the shots checked so
         far are reported.
@@ -342,7 +343,7 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             source = self.frame_source(shot_id)
             if source["storage"] != "files":
                 continue
-            problem = frame_file_problem(shot_id, source)
+            problem = frame_file_problem(shot_id, source, checksums)
             if problem:
                 problems[shot_id] = problem
         return problems
