@@ -30,12 +30,22 @@ CRISIS_RE = (2.0e5, 4.0e5)
 
 #: Absolute zero (deg C): no air temperature lies at or below it.
 ABSOLUTE_ZERO_C = -273.15
+#: The air of a lab, a tunnel or an outdoor launcher range (deg C; common practice, a bound on
+#: typing slips: 293 is a temperature in kelvin, not a lab's air).
+LAB_AIR_C = (-40.0, 60.0)
 
 
 def temperature_problem(temp_c: float) -> str:
     """What is wrong with an air temperature (deg C): "" when nothing, else the words that
     say so (for the option, the manifest row and the settings that refuse it)."""
-    return "" if temp_c > ABSOLUTE_ZERO_C else f"{temp_c:g} deg C is at or below absolute zero"
+    if not temp_c > ABSOLUTE_ZERO_C:
+        return f"{temp_c:g} deg C is at or below absolute zero"
+    low, high = LAB_AIR_C
+    if not low <= temp_c <= high:
+        kelvin = " (in kelvin? give deg C)" if temp_c > 200.0 else ""
+        return (f"{temp_c:g} deg C is outside {low:g} to {high:g} deg C, the air of a lab or a "
+                f"range{kelvin}")
+    return ""
 
 
 def air_viscosity_pa_s(temp_c: float = DEFAULT_AIR_TEMP_C) -> float:

@@ -94,10 +94,13 @@ def test_the_help_of_settings_says_both_ways(capsys):
     (["conditions", "{s}", "--by", "nosuchcol"], "argument --by: no column 'nosuchcol'"),
     (["table", "{s}", "-o", "x.csv", "--ensemble"], "argument --ensemble: goes with --by"),
     (["pair", "a.tif", "b.tif", "--air-temp", "-300"], "-300 deg C is at or below absolute zero"),
+    # a lab's air (common practice): 293 is kelvin typed where deg C belong
+    (["pair", "a.tif", "b.tif", "--air-temp", "293"],
+     "293 deg C is outside -40 to 60 deg C, the air of a lab or a range (in kelvin? give deg C)"),
     (["sheet", "{s}", "-o", "x.pdf", "--column", "operator"],
      "argument --column: 'operator' is not a numeric column of this session"),
 ], ids=["scale", "diameter", "normalise", "status", "by", "ensemble", "air temperature",
-        "column"])
+        "kelvin", "column"])
 def test_bad_option_values_exit_2(session_path, argv, said, capsys):
     argv = [a.replace("{s}", str(session_path)) for a in argv]
     line = usage_error(argv, capsys)

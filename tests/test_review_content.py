@@ -174,3 +174,15 @@ def test_add_review_and_agreement_commands(session_path, tmp_path, capsys):
 def test_a_layer_naming_an_unknown_shot_is_refused(session_path):
     with Session.open(session_path) as s, pytest.raises(WakelineError, match="shot S7 is not"):
         s.add_review_layer(ReviewLayer("x", picks={"S7": LayerPick()}))
+
+
+def test_a_review_is_named_after_its_one_reviewer_though_some_shots_are_still_to_review(
+        tmp_path):
+    # a table written by `wakeline table` has no reviewer on the shots still to review: the
+    # layer was once named after the file
+    rows = ["S0,accepted,5.5,-3,,,,bea", "S1,to review,,,,,,", "S2,adjusted,4.0,-2,,,,bea"]
+    layer = read_review_csv(_review(tmp_path, rows, "self.csv"), ["S0", "S1", "S2"])
+    assert layer.name == "bea"
+    two = read_review_csv(_review(tmp_path, [*rows[:2], "S2,adjusted,4.0,-2,,,,cid"], "x.csv"),
+                          ["S0", "S1", "S2"])
+    assert two.name == "x"  # two reviewers: the file's name

@@ -119,7 +119,8 @@ def read_review_csv(path: Path, shot_ids, name: str | None = None) -> ReviewLaye
     shot_ids : collection of str
         The session's shots; a row naming another shot is refused.
     name : str, optional
-        The layer's name; default the one ``reviewed_by`` of every row, else the file's name.
+        The layer's name; default the one ``reviewed_by`` of every row that has one (a shot
+        still to review has none), else the file's name.
 
     Raises
     ------
@@ -157,8 +158,9 @@ def read_review_csv(path: Path, shot_ids, name: str | None = None) -> ReviewLaye
     if not picks:
         raise WakelineError(f"{path}: no reviewed shot in the table")
     if not name:
-        names = {p.who for p in picks.values()}
-        name = names.pop() if len(names) == 1 and "" not in names else path.stem
+        # the shots still to review have no reviewer: the one name of the others
+        names = {p.who for p in picks.values() if p.who}
+        name = names.pop() if len(names) == 1 else path.stem
     return ReviewLayer(name.strip(), path.name, now_utc(), picks)
 
 
