@@ -84,6 +84,11 @@ def test_the_ensemble_view_of_a_condition(main_window, make_session, qtbot):
     dialog = window.ensemble_dialog
     assert dialog.canvas.shot.result is not None and not dialog.canvas.shot.editable
     assert "2 shot(s) aligned on the ball: s01, s06" in dialog.numbers.text()
+    # its field is in the ball frame, and said so (it once read "lab frame")
+    assert dialog.canvas.ball_frame() and not dialog.canvas.frame_box.isEnabled()
+    result = dialog.canvas.shot.result
+    (cx, cy), r = result.ball_a.center_px, result.ball_a.radius_px
+    assert "(ball frame" in dialog.canvas.describe_point(cx + 2.5 * r, cy, dialog.canvas.shot)
     assert panel.table.item(0, panel.table.columnCount() - 1).text().startswith("U ")
     dialog.close()
 

@@ -10,6 +10,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog, QLabel, QVBoxLayout
 
 from app.qt.canvas import CanvasShot, ShotCanvas
+from app.qt.canvas_controls import FrameOfReference
 from app.review.conditions import ensemble_lines
 
 
@@ -46,6 +47,14 @@ def show_ensemble(window, condition, view) -> EnsembleDialog:
     if dialog is None:
         dialog = window.ensemble_dialog = EnsembleDialog(window)
         dialog.canvas.restore_layers(window.canvas.layer_state())
+        # the shots are aligned on the ball: its field is in the ball frame, and only there
+        # (it has no flight to add back); nothing in it is dragged
+        frame = dialog.canvas.frame_box
+        frame.setCurrentText(FrameOfReference.BALL)
+        frame.setEnabled(False)
+        frame.setToolTip("The ensemble's shots are aligned on the ball: its velocities are in "
+                         "the ball frame")
+        dialog.canvas.hover_label.setText("Point for flow values (ball frame).")
     # the ensemble's grid is finer than a shot's: as many vectors as fit the zoom
     dialog.canvas.stride_box.setValue(0)
     dialog.show_view(condition, view)
