@@ -149,3 +149,15 @@ def test_a_manifest_of_only_its_header_is_refused_and_makes_no_session(tmp_path,
     assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
     assert "shots.csv: no shots (a header and no rows)" in capsys.readouterr().err
     assert not (tmp_path / "s.h5").exists()
+
+
+def test_a_column_that_nearly_spells_a_known_one_is_named_at_import(tmp_path, capsys):
+    # seam_angle_deg went in as text: the seam angles were pooled into one condition unnoticed
+    src = write_shot_folder(tmp_path / "src", 1)
+    (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diameter_mm,seam_angle_deg,"
+                                   "operator\nS0,2e-05,0.08,71.6,10,ann\n")
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 0
+    err = capsys.readouterr().err
+    assert ("column 'seam_angle_deg' is not one wakeline reads (kept as text); did you mean "
+            "'seam_deg'?") in err
+    assert "operator" not in err  # a column of the lab's own is no slip

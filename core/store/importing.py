@@ -7,7 +7,7 @@ from pathlib import Path
 
 from core import WakelineError
 from core.store.files import sha256_of
-from core.store.manifest import MANIFEST_NAME, read_manifest
+from core.store.manifest import MANIFEST_NAME, column_notes, read_manifest
 from core.store.session import PER_SHOT_SETTINGS, Session
 
 FRAME_SUFFIXES = (".tif", ".tiff", ".png")
@@ -77,7 +77,7 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
         raise WakelineError(f"{manifest}: no shots (a header and no rows)")
     session_path = Path(session_path)
     session = Session.open(session_path) if session_path.exists() else Session.create(session_path)
-    report = ImportReport()
+    report = ImportReport(notes=[f"{manifest}: {note}" for note in column_notes(manifest)])
     with session:
         folder = _Folder(src_dir, session, embed, ball_types)
         first_lines: dict[str, int] = {}  # shot id -> the line that gives it first

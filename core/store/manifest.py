@@ -16,7 +16,28 @@ NUMBER_COLUMNS = (
     "spin_axis_deg", "seam_deg", "flight_deg", "air_temp_c",
 )
 TEXT_COLUMNS = ("ball_type", "notes")
+#: Every column wakeline reads by name (the others are kept as text metadata).
+KNOWN_COLUMNS = (*REQUIRED_COLUMNS, *NUMBER_COLUMNS, *TEXT_COLUMNS, "surface", "camera")
 MANIFEST_NAME = "shots.csv"
+
+
+def column_notes(path: Path) -> list[str]:
+    """A note for each column of the manifest's header that is not one wakeline reads but
+    nearly spells one (``seam_angle_deg`` for ``seam_deg``): kept as text, it would leave the
+    column it was meant for empty (two seam angles pooled into one condition)."""
+    import difflib
+
+    header, _rows = read_csv_table(path, "manifest")
+    notes = []
+    for name in header:
+        if name in KNOWN_COLUMNS:
+            continue
+        close = difflib.get_close_matches(name, [c for c in KNOWN_COLUMNS if c not in header],
+                                          n=1, cutoff=0.7)
+        if close:
+            notes.append(f"column {name!r} is not one wakeline reads (kept as text); did you "
+                         f"mean {close[0]!r}?")
+    return notes
 
 
 def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
