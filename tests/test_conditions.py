@@ -155,3 +155,26 @@ def test_conditions_at_the_same_seam_angle_are_drawn_side_by_side_and_named():
     assert axis == "seam_deg" and [p.x for p in points] == [10.0, 20.0, 20.0]
     assert [(p.place, p.tag) for p in points] == [((0, 1), ""), ((0, 2), "red"),
                                                   ((1, 2), "white")]
+
+
+def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
+    # the ensemble once stood at -12.4 +- 3.6 deg beside shots at -8.2 +- 0.6 deg unremarked
+    from types import SimpleNamespace
+
+    from app.cli.conditions import condition_lines
+    from app.review.conditions import ensemble_disagreement, ensemble_lines
+    from core.conditions import Condition
+    from core.results import SeparationResult, SideProposal
+
+    condition = Condition({"seam_deg": "10"}, ["a", "b", "c"], ["a", "b", "c"],
+                          sides={"upper": Spread.of([-8.0, -8.2, -8.4]),
+                                 "lower": Spread.of([5.0, 6.0, 7.0])})
+    view = SimpleNamespace(separation=SeparationResult(SideProposal(-12.4, 3.6, 0.5),
+                                                       SideProposal(7.0, 3.0, 0.5)),
+                           shot_ids=["a", "b", "c"], left_out={})
+    # upper: 4.2 deg apart, sqrt(3.6^2 + 0.50^2) = 3.63 allowed (derived); lower: 1 deg apart
+    said = ensemble_disagreement(condition, view)
+    assert said == ["upper: the ensemble (-12.4°) and the shots' mean (-8.2°) differ by more "
+                    "than their intervals allow: look at both"]
+    assert said[0] in ensemble_lines(condition, view)
+    assert f"  check {said[0]}" in condition_lines(condition, view)

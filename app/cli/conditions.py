@@ -153,7 +153,10 @@ def condition_lines(condition, ensemble=None) -> list[str]:
     if condition.reynolds:
         lines.append(f"  Reynolds number {reynolds_text(condition.reynolds)}")
     if ensemble is not None:
+        from app.review.conditions import ensemble_disagreement
+
         lines.append("  ensemble: " + ensemble_text(ensemble))
+        lines += [f"  check {line}" for line in ensemble_disagreement(condition, ensemble)]
     return lines
 
 

@@ -164,6 +164,25 @@ def _tag(condition, shared, column: str | None) -> str:
     return ", ".join(condition.values[c] or "(none)" for c in differ)
 
 
+def ensemble_disagreement(condition, view) -> list[str]:
+    """The sides on which the ensemble's proposal and the mean of the shots' final angles lie
+    further apart than their intervals together allow (root sum of squares of the ensemble's
+    uncertainty and the shots' half-width): one line each, to look at both; [] when none."""
+    out = []
+    if view is None or isinstance(view, str):
+        return out
+    for side in ("upper", "lower"):
+        mine, shots = getattr(view.separation, side), condition.sides[side]
+        if mine.angle_deg is None or mine.uncertainty_deg is None or shots.mean is None:
+            continue
+        allowed = math.hypot(mine.uncertainty_deg, shots.half_width or 0.0)
+        if abs(mine.angle_deg - shots.mean) > allowed:
+            out.append(f"{side}: the ensemble ({angle_text(mine.angle_deg)}) and the shots' "
+                       f"mean ({angle_text(shots.mean)}) differ by more than their intervals "
+                       "allow: look at both")
+    return out
+
+
 def ensemble_lines(condition, view) -> list[str]:
     """The ensemble's proposal beside the mean of the single-shot picks, per side."""
     lines = []
@@ -179,4 +198,4 @@ def ensemble_lines(condition, view) -> list[str]:
     used = f"{len(view.shot_ids)} shot(s) aligned on the ball: {', '.join(view.shot_ids)}"
     if view.left_out:
         used += "; left out " + ", ".join(f"{s} ({r})" for s, r in view.left_out.items())
-    return [*lines, used]
+    return [*lines, *ensemble_disagreement(condition, view), used]
