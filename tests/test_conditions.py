@@ -174,7 +174,7 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
                            shot_ids=["a", "b", "c"], left_out={})
     # upper: 4.2 deg apart, sqrt(3.6^2 + 0.50^2) = 3.63 allowed (derived); lower: 1 deg apart
     said = ensemble_disagreement(condition, view)
-    assert said == ["upper: the ensemble (-12.4°) and the shots' mean (-8.2°) differ by more "
-                    "than their intervals allow: look at both"]
+    assert said == [("upper: the ensemble (-12.4°) and the shots' mean (-8.2°) differ by more "
+                     "than their intervals allow: look at both")]
     assert said[0] in ensemble_lines(condition, view)
     assert f"  check {said[0]}" in condition_lines(condition, view)
