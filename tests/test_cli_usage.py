@@ -152,15 +152,19 @@ def test_table_to_standard_output_is_the_file_table(session_path, tmp_path, by, 
     assert printed.splitlines() == written.splitlines() and printed.startswith("s")
 
 
-def test_a_reader_that_stops_early_ends_the_table_quietly(session_path, monkeypatch):
+@pytest.mark.parametrize("argv", [["table", "{s}", "-o", "-"], ["conditions", "{s}"]],
+                         ids=["table", "conditions"])
+def test_a_reader_that_stops_early_ends_the_output_quietly(session_path, argv, monkeypatch,
+                                                           capsys):
     import os
 
     read_end, write_end = os.pipe()
     os.close(read_end)  # as `| head` does once it has its lines
     out = open(write_end, "w", encoding="utf-8")  # noqa: SIM115 - closed below
     monkeypatch.setattr(sys, "stdout", out)
-    assert main(["table", str(session_path), "-o", "-"]) == 0
+    assert main([a.replace("{s}", str(session_path)) for a in argv]) == 0
     out.close()  # what was left unwritten goes nowhere: no error at exit either
+    assert "Broken pipe" not in capsys.readouterr().err
 
 
 def test_the_sheet_refuses_standard_output(session_path, tmp_path, capsys, monkeypatch):

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 import traceback
 from datetime import UTC, datetime
@@ -87,7 +88,9 @@ def main(argv: list[str] | None = None) -> int:
     try:
         if func is None:
             return open_window(session)
-        return int(func(args) or 0)
+        code = int(func(args) or 0)
+        sys.stdout.flush()  # here, where a reader that stopped early is told apart
+        return code
     except UsageError as exc:
         args.command_parser.error(str(exc))  # exits 2, as argparse does for a bad value
     except WakelineError as exc:
@@ -96,6 +99,11 @@ def main(argv: list[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("wakeline: stopped", file=sys.stderr)
         return 1
+    except BrokenPipeError:
+        # a reader that stopped early (`| head`): the rest goes nowhere, quietly, as other
+        # shell tools do (and closing stdout at exit raises nothing)
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except OSError as exc:
         where = f"{exc.filename}: " if getattr(exc, "filename", None) else ""
         print(f"wakeline: {where}{exc.strerror or exc}", file=sys.stderr)
