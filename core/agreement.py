@@ -135,5 +135,7 @@ def agreement_lines(agreement: Agreement) -> list[str]:
         lines.append("  status differs: " + ", ".join(
             f"{shot} ({ours} / {theirs})" for shot, ours, theirs in agreement.status_differs))
     if agreement.not_in_layer:
-        lines.append(f"  not in the other review: {len(agreement.not_in_layer)} shot(s)")
+        missing = list(agreement.not_in_layer)
+        named = ", ".join(missing[:8]) + (" ..." if len(missing) > 8 else "")
+        lines.append(f"  not in the other review: {len(missing)} shot(s): {named}")
     return lines

@@ -186,3 +186,13 @@ def test_a_review_is_named_after_its_one_reviewer_though_some_shots_are_still_to
     two = read_review_csv(_review(tmp_path, [*rows[:2], "S2,adjusted,4.0,-2,,,,cid"], "x.csv"),
                           ["S0", "S1", "S2"])
     assert two.name == "x"  # two reviewers: the file's name
+
+
+def test_the_agreement_names_the_shots_the_other_review_left_out(session_path, tmp_path):
+    from core.agreement import agreement_lines
+
+    path = _review(tmp_path, ["S0,accepted,5.0,-3.0,,,,bea"])
+    with Session.open(session_path) as s:
+        s.add_review_layer(read_review_csv(path, list(s)))
+        agreement = compare_reviews(s.values(), latest_layer(s.review_layers()))
+    assert "  not in the other review: 2 shot(s): S1, S2" in agreement_lines(agreement)
