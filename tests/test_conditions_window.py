@@ -67,6 +67,12 @@ def test_an_imported_review_shows_its_marks_and_the_agreement(main_window, make_
     assert len(marks.items[0].data) == 2
     assert "Bea" in window.canvas.legend.text()
     qtbot.waitUntil(lambda: "review compared with Bea" in window.statistics.agreement_label.text())
+    # beside the table, not under it (a long agreement once left the table two rows)
+    panel = window.statistics
+    from PySide6.QtCore import QPoint
+
+    assert panel.agreement_label.mapTo(panel, QPoint(0, 0)).x() >= (
+        panel.table.mapTo(panel, QPoint(0, 0)).x() + panel.table.width())
     bad = tmp_path / "bad.csv"
     bad.write_text("shot,review_status\nnope,accepted\n", encoding="utf-8")
     import_review_dialog(window, str(bad))

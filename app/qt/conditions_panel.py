@@ -17,11 +17,14 @@ from PySide6.QtWidgets import (
     QAbstractItemView,
     QDockWidget,
     QFileDialog,
+    QFrame,
     QHBoxLayout,
     QHeaderView,
     QLabel,
     QMenu,
     QPushButton,
+    QScrollArea,
+    QSplitter,
     QTableWidget,
     QTableWidgetItem,
     QToolButton,
@@ -112,11 +115,24 @@ class StatisticsPanel(QWidget):
         top.addWidget(self.method_label, 1)
         top.addWidget(self.ensemble_button)
         top.addWidget(self.review_button)
+        self.agreement_label.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
+        # the agreement beside the table, scrolled when long: below it, a long one left the
+        # table two rows in a dock of ordinary height
+        agreement = QScrollArea(self)
+        agreement.setWidget(self.agreement_label)
+        agreement.setWidgetResizable(True)
+        agreement.setFrameShape(QFrame.Shape.NoFrame)
+        beside = QSplitter(Qt.Orientation.Horizontal, self)
+        beside.addWidget(self.table)
+        beside.addWidget(agreement)
+        beside.setStretchFactor(0, 3)
+        beside.setStretchFactor(1, 2)
+        beside.setSizes([600, 400])  # the table's whole width would leave the text a sliver
+        beside.setChildrenCollapsible(False)
         box = QVBoxLayout(self)
         box.setContentsMargins(4, 4, 4, 4)
         box.addLayout(top)
-        box.addWidget(self.table, 1)
-        box.addWidget(self.agreement_label)
+        box.addWidget(beside, 1)
 
     # -- showing -------------------------------------------------------------------------------
     def refresh_soon(self, *_args) -> None:
