@@ -558,7 +558,9 @@ def _fill_fields(result: ShotResult, warnings: list[str]) -> None:
     if dt and scale:
         result.u_m_s, result.v_m_s = velocity_m_s(vf.dx_px, vf.dy_px, dt, scale)
     else:
-        warnings.append("no dt or scale: velocities not in m/s (displacements in px only)")
+        missing = " and no ".join(name for name, value in (("dt", dt), ("scale", scale))
+                                  if not value)
+        warnings.append(f"no {missing}: velocities not in m/s (displacements in px only)")
     result.vorticity_1_s = vorticity_1_s(vf, dt, usable=vf.valid | vf.replaced)
     result.fine_vorticity_1_s = fine_vorticity(result.fine_field, dt)
     if not dt:

@@ -76,3 +76,16 @@ def test_an_output_that_is_a_folder_is_refused_and_leaves_nothing(session_path, 
     assert "is a folder" in capsys.readouterr().err
     assert sorted(p.name for p in tmp_path.iterdir()) == before
     assert not any(out.iterdir())
+
+
+def test_pair_says_why_it_gives_no_reynolds_number():
+    # it once left the number out without a word when the ball's diameter was not given
+    from data.session_helpers import fake_result
+
+    from app.cli.pair import describe
+    from core.shot_result import ShotSettings
+    from core.summary import ShotSummary
+
+    text = describe(ShotSummary.from_dict(fake_result(ShotSettings(dt_s=2e-5)).summary()))
+    assert text.endswith("note: no Reynolds number: it needs the ball's diameter "
+                         "(--ball-diameter or --ball-type)")

@@ -114,4 +114,9 @@ def describe(summary: ShotSummary) -> str:
     """A few human lines about a shot's result (the words of ``app.review.text``)."""
     lines = [f"{label}: {text}" for label, text in shot_rows(summary)]
     lines += [f"warning: {warning}" for warning in summary.warnings]
+    if summary.reynolds is None and summary.flight is not None:
+        # said here: the other lines would leave it out without a word
+        lines.append("note: no Reynolds number: " + (
+            "it needs the ball's diameter (--ball-diameter or --ball-type)"
+            if summary.flight.speed_m_s is not None else "it needs dt and the scale"))
     return "\n".join(lines)
