@@ -55,8 +55,12 @@ def test_pair_prints_the_rows_of_the_formatter():
     from app.cli.pair import describe
 
     lines = describe(SUMMARY).splitlines()
-    assert lines[:-1] == [f"{label}: {text}" for label, text in shot_rows(SUMMARY)]
-    assert "flight: 178.2° at 30.1 m/s" in lines and lines[-1] == "warning: first warning"
+    rows = [f"{label}: {text}" for label, text in shot_rows(SUMMARY)]
+    assert lines[:len(rows)] == rows and "flight: 178.2° at 30.1 m/s" in lines
+    # then the warnings, and why there is no Reynolds number (no ball diameter given)
+    note = ("note: no Reynolds number: it needs the ball's diameter (--ball-diameter or "
+            "--ball-type)")
+    assert lines[len(rows):] == ["warning: first warning", note]
 
 
 def test_readout_and_sheet_use_the_same_words(qtbot):
