@@ -30,7 +30,7 @@ import numpy as np
 from core import WakelineError
 from core.shot_result import ShotSettings
 from core.store import Session, read_frames
-from core.store.records import BACK_TO_REVIEW
+from core.store.records import ReviewStatus
 
 _POLL_S = 0.2  # how often a waiting run looks at should_stop
 
@@ -46,11 +46,7 @@ class ShotOutcome:
     done: int
     total: int
     decision: str = ""  # what became of the analyst's decision (Session.save_result), if anything
-
-    @property
-    def reopened(self) -> bool:
-        """An accepted pick went back to review (its proposal moved)."""
-        return self.decision.endswith(BACK_TO_REVIEW)
+    reopened: bool = False  # an accepted pick went back to review (its proposal moved)
 
 
 @dataclass
@@ -127,12 +123,15 @@ def iter_process(
     runner = _runner(workers, scheduler)
     with session.batch_run(), backgrounds:
         for done, (shot_id, result, message) in enumerate(runner(tasks, stop), start=1):
-            decision = ""
+            decision, reopened = "", False
             if result is not None:
+                accepted = session[shot_id].pick.status == ReviewStatus.ACCEPTED
                 decision = session.save_result(shot_id, result)
+                reopened = accepted and session[shot_id].pick.status != ReviewStatus.ACCEPTED
             else:
                 session.save_failure(shot_id, message, fingerprints[shot_id])
-            yield ShotOutcome(shot_id, result is not None, message, done, len(tasks), decision)
+            yield ShotOutcome(shot_id, result is not None, message, done, len(tasks), decision,
+                              reopened)
 
 
 def process_shots(

@@ -209,9 +209,17 @@ def test_the_command_says_which_accepted_shots_went_back_to_review(session_path,
     # the rule itself: tests/test_session.py; here what the run and the command say of it
     said = "the proposal accepted before moved (upper +5.00° → +6.00°): back to review"
     keep = Session.save_result
-    monkeypatch.setattr(Session, "save_result",
-                        lambda s, shot, result: keep(s, shot, result) or (said if shot == "S2"
-                                                                           else ""))
+    with Session.open(session_path) as s:
+        s.set_pick("S2", status="accepted")
+
+    def save_result(s, shot, result):  # as a moved proposal would for S2 (these have none)
+        keep(s, shot, result)
+        if shot != "S2":
+            return ""
+        s.set_pick("S2", status="to review", who="wakeline")
+        return said
+
+    monkeypatch.setattr(Session, "save_result", save_result)
     assert main(["process", str(session_path), "--workers", "0", "--quiet"]) == 0
     out, err = capsys.readouterr()
     assert f"wakeline: shot S2: {said}" in err

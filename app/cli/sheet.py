@@ -78,6 +78,7 @@ def _statuses(text: str):
 
 def run_sheet(args: argparse.Namespace) -> int:
     from app.sheet import make_sheet
+    from app.sheet.document import ColumnError
     from core.store import Session
 
     with Session.open(args.session, writable=False) as session:
@@ -95,9 +96,7 @@ def run_sheet(args: argparse.Namespace) -> int:
                                     per_page=args.per_page, statuses=args.status,
                                     column=args.column, vorticity_limit_1_s=args.vorticity_limit,
                                     ensembles=ensembles)
-            except WakelineError as exc:
-                if str(exc).startswith("--column:"):  # a column the session lacks: bad usage
-                    raise UsageError(f"argument {exc}") from None
-                raise
+            except ColumnError as exc:  # a column the session lacks: bad usage
+                raise UsageError(f"argument {exc}") from None
     print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
     return 0

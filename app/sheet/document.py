@@ -43,6 +43,11 @@ from core.store.files import atomic_write
 SESSION_RANGE = "session"  # one vorticity colour range for every panel, from the sheet's shots
 
 
+class ColumnError(WakelineError):
+    """The column asked for the overview's axis is not a numeric column of the shots printed
+    (the command tells it as bad usage)."""
+
+
 def make_sheet(
     session,
     out_path: str | Path,
@@ -97,7 +102,7 @@ def make_sheet(
     if column is None:
         column = default_column(records)
     elif column not in numeric_columns(records):
-        raise WakelineError(
+        raise ColumnError(
             f"--column: {column!r} is not a numeric column of this session "
             f"(choose from {', '.join(numeric_columns(records))})"
         )

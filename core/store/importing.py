@@ -72,12 +72,12 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     """
     src_dir = Path(src_dir)
     manifest = src_dir / MANIFEST_NAME
-    rows = read_manifest(manifest)
+    header, rows = read_manifest(manifest)
     if not rows:
         raise WakelineError(f"{manifest}: no shots (a header and no rows)")
     session_path = Path(session_path)
     session = Session.open(session_path) if session_path.exists() else Session.create(session_path)
-    report = ImportReport(notes=[f"{manifest}: {note}" for note in column_notes(manifest)])
+    report = ImportReport(notes=[f"{manifest}: {note}" for note in column_notes(header)])
     with session:
         folder = _Folder(src_dir, session, embed, ball_types)
         first_lines: dict[str, int] = {}  # shot id -> the line that gives it first

@@ -21,13 +21,12 @@ KNOWN_COLUMNS = (*REQUIRED_COLUMNS, *NUMBER_COLUMNS, *TEXT_COLUMNS, "surface", "
 MANIFEST_NAME = "shots.csv"
 
 
-def column_notes(path: Path) -> list[str]:
+def column_notes(header: list[str]) -> list[str]:
     """A note for each column of the manifest's header that is not one wakeline reads but
     nearly spells one (``seam_angle_deg`` for ``seam_deg``): kept as text, it would leave the
     column it was meant for empty (two seam angles pooled into one condition)."""
     import difflib
 
-    header, _rows = read_csv_table(path, "manifest")
     notes = []
     for name in header:
         if name in KNOWN_COLUMNS:
@@ -40,8 +39,9 @@ def column_notes(path: Path) -> list[str]:
     return notes
 
 
-def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
-    """Parse ``shots.csv``: ``(line, metadata, problem)`` per data row (problem "" when good).
+def read_manifest(path: Path) -> tuple[list[str], list[tuple[int, dict, str]]]:
+    """Parse ``shots.csv``: its header, and ``(line, metadata, problem)`` per data row (problem
+    "" when good).
 
     Numbers become floats (None when empty); ``ball_type`` and ``notes`` and unknown columns
     stay text.
@@ -68,7 +68,7 @@ def read_manifest(path: Path) -> list[tuple[int, dict, str]]:
         values = dict(zip(header, (c.strip() for c in cells)))
         metadata, problem = _row_metadata(values)
         rows.append((line, metadata, problem))
-    return rows
+    return header, rows
 
 
 def _separator_hint(header: list[str]) -> str:

@@ -270,8 +270,6 @@ def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -
     return pick
 
 
-#: How ``decision_on_new_proposals`` ends the line of a decision it reopened.
-BACK_TO_REVIEW = "back to review"
 #: A proposal that moves by less than this (deg) on reprocessing is the same one (the table
 #: gives angles to 0.01 deg).
 SAME_PROPOSAL_DEG = 0.005
@@ -293,7 +291,7 @@ def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str):
         changes = ", ".join(f"{side} {_deg(record.proposed_deg(side))} → "
                             f"{_deg(proposals.get(side))}" for side in moved)
         return (replace(pick, status=ReviewStatus.TO_REVIEW, who="wakeline", when=now),
-                f"the proposal accepted before moved ({changes}): {BACK_TO_REVIEW}")
+                f"the proposal accepted before moved ({changes}): back to review")
     if pick.status == ReviewStatus.ADJUSTED:
         following = [side for side in moved if getattr(pick, f"{side}_deg") is None]
         kept = {f"{side}_deg": record.proposed_deg(side) for side in following
