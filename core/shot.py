@@ -115,7 +115,9 @@ def remeasure_ball(
 def _after_piv(vf: VectorField, raw, conditioned, balls, glare, settings: ShotSettings,
                clock) -> ShotResult:
     """The stages after the main correlation: ball stages (when there is a ball), fields."""
-    warnings: list[str] = []
+    from core.ball import ball_size_problem
+
+    warnings = [p for p in [ball_size_problem(settings.ball_type, settings.ball_diameter_mm)] if p]
     result = ShotResult(field=vf, settings=settings, scale_mm_per_px=settings.scale_mm_per_px,
                         warnings=warnings, stage_seconds=clock.seconds)
     if balls is not None:

@@ -20,6 +20,7 @@ from core.ball import (
     flight_from_balls,
     flight_from_stream,
     match_ball_image,
+    ball_size_problem,
     nominal_diameter_mm,
     scale_from_ball,
 )
@@ -208,6 +209,20 @@ def test_rulebook_diameters():
     assert nominal_diameter_mm("softball") == pytest.approx(12.0 * 25.4 / math.pi)
     with pytest.raises(WakelineError):
         nominal_diameter_mm("golf")
+
+
+def test_a_diameter_is_checked_against_every_grade_of_its_ball_type():
+    # Laws of Cricket, Law 4 (memory): men's 22.4-22.9 cm round, women's 21.0-22.5, junior
+    # 20.5-22.0; Official Baseball Rules 3.01: 9-9.25 in; softballs of 11 and 12 in (memory)
+    for ball_type, diameter in (("cricket", 72.0), ("cricket", 205.0 / math.pi),
+                                ("baseball", 73.5), ("softball", 11.0 * 25.4 / math.pi),
+                                ("Softball", 97.0), ("golf", 42.7), (None, 97.0),
+                                ("cricket", None)):
+        assert ball_size_problem(ball_type, diameter) == "", (ball_type, diameter)
+    assert ball_size_problem("cricket", 229.0 / math.pi * 1.009) == ""  # within 1 %
+    assert "fit a cricket ball (rulebook 65.3-72.9 mm)" in ball_size_problem("cricket", 74.0)
+    assert "fit a baseball (rulebook 72.8-74.8 mm)" in ball_size_problem("baseball", 97.0)
+    assert "fit a softball" in ball_size_problem("softball", 72.0)
 
 
 def test_scale_from_fitted_radius():

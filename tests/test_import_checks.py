@@ -161,3 +161,17 @@ def test_a_column_that_nearly_spells_a_known_one_is_named_at_import(tmp_path, ca
     assert ("column 'seam_angle_deg' is not one wakeline reads (kept as text); did you mean "
             "'seam_deg'?") in err
     assert "operator" not in err  # a column of the lab's own is no slip
+
+
+def test_a_diameter_that_cannot_be_the_ball_type_is_noted_at_import(tmp_path):
+    # Laws of Cricket, Law 4: no grade's cricket ball exceeds 22.9 cm round (72.9 mm across);
+    # 97 mm is a 12 in softball's (12 in / pi = 97.0 mm). The shot goes in, the note says so.
+    src = write_shot_folder(tmp_path / "src", 3)
+    (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diameter_mm,ball_type\n"
+                                   "S0,2e-05,0.08,97,cricket\nS1,2e-05,0.08,72,cricket\n"
+                                   "S2,2e-05,0.08,97,Cricket\n")
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == ["S0", "S1", "S2"]
+    assert report.notes == ["shot(s) S0, S2: ball_diameter_mm 97 does not fit a cricket ball "
+                            "(rulebook 65.3-72.9 mm): check ball_type and ball_diameter_mm; the "
+                            "diameter given is used"]

@@ -74,6 +74,15 @@ def test_without_ball_search_no_separation():
     assert result.u_m_s is None and any("no dt" in w for w in result.warnings)
 
 
+def test_a_diameter_that_cannot_be_the_ball_type_is_a_warning_of_the_shot():
+    # 97 mm is a 12 in softball (12 in / pi), no cricket ball (Laws of Cricket, Law 4)
+    frame_a, frame_b, _ = ball_shot(shape=(256, 384), radius_px=40.0, seed=12)
+    result = measure_shot(frame_a, frame_b, ShotSettings(
+        find_ball=False, ball_type="cricket", ball_diameter_mm=97.0))
+    assert any(w.startswith("ball_diameter_mm 97 does not fit a cricket ball")
+               for w in result.warnings)
+
+
 def test_no_ball_is_a_one_line_error():
     rng = np.random.default_rng(3)
     frame = rng.poisson(150.0, (256, 256)).astype(np.float32)

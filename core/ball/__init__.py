@@ -49,7 +49,7 @@ from core.ball.flight import (
     match_ball_image,
 )
 from core.ball.outline import find_ball, find_balls
-from core.ball.sizes import ball_mask, nominal_diameter_mm, scale_from_ball
+from core.ball.sizes import ball_mask, ball_size_problem, nominal_diameter_mm, scale_from_ball
 
 __all__ = [
     "BALL_CIRCUMFERENCE_MM",
@@ -61,6 +61,7 @@ __all__ = [
     "air_direction",
     "ball_displacement",
     "ball_mask",
+    "ball_size_problem",
     "find_ball",
     "find_balls",
     "flight_from_balls",

@@ -70,6 +70,8 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
         When the manifest is missing, lacks a required column or has no rows (nothing is
         imported, no session created).
     """
+    from core.ball.sizes import ball_size_problem  # the ball finder's package: only when needed
+
     src_dir = Path(src_dir)
     manifest = src_dir / MANIFEST_NAME
     header, rows = read_manifest(manifest)
@@ -82,6 +84,7 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
         folder = _Folder(src_dir, session, embed, ball_types)
         first_lines: dict[str, int] = {}  # shot id -> the line that gives it first
         kept = {ADDED: report.imported, SAME: report.already, CORRECTED: report.corrected}
+        odd_sizes: dict[str, list[str]] = {}  # a ball type's size problem -> its shots
         for number, (line, metadata, problem) in enumerate(rows):
             if should_stop is not None and should_stop():
                 report.notes.append(f"import stopped after {number} of {len(rows)} rows of "
@@ -97,12 +100,16 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
             outcome = problem or folder.import_row(metadata, correct_values)
             if outcome in kept:
                 kept[outcome].append(shot_id)
+                if size := ball_size_problem(metadata.get("ball_type"),
+                                             metadata.get("ball_diameter_mm")):
+                    odd_sizes.setdefault(size, []).append(shot_id)
             else:
                 report.problems.append(f"{where}: {outcome}")
             if on_shot is not None:
                 on_shot(shot_id, outcome in kept, "" if outcome in kept else outcome)
         else:
             report.notes += folder.unused_note()
+        report.notes += [f"shot(s) {', '.join(ids)}: {size}" for size, ids in odd_sizes.items()]
         report.differing, report.outdated = folder.differing, folder.outdated
         if report.already:
             report.notes.append(f"{len(report.already)} shot(s) already in {session.path.name} "
