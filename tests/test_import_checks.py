@@ -106,8 +106,11 @@ def test_an_air_temperature_below_absolute_zero_is_refused_at_import(tmp_path, c
     (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diameter_mm,air_temp_c\n"
                                    "S0,2e-05,0.08,71.6,18.5\nS1,2e-05,0.08,71.6,-400\n")
     assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
-    assert "line 3 (shot S1): air_temp_c -400 deg C is at or below absolute zero" in (
-        capsys.readouterr().err)
+    err = capsys.readouterr().err
+    assert "line 3 (shot S1): air_temp_c -400 deg C is at or below absolute zero" in err
+    # and what to do about it, naming the manifest in its folder
+    assert (f"note: correct the rows named in {src / 'shots.csv'} (or the files they name) and "
+            "import the folder again: the shots imported now are left as they are") in err
     with Session.open(tmp_path / "s.h5", writable=False) as s:
         assert list(s) == ["S0"]
 
@@ -138,7 +141,9 @@ def test_a_shot_id_given_twice_is_named_as_such(tmp_path, repeat, capsys):
     src = write_shot_folder(tmp_path / "src", 2, extra_rows=(repeat,))
     assert main(["import", str(src), str(tmp_path / "s8.h5")]) == 1
     err = capsys.readouterr().err
-    assert err == "wakeline: shots.csv line 4: shot id S1 is given twice (also line 3)\n"
+    first, remedy = err.splitlines()
+    assert first == "wakeline: shots.csv line 4: shot id S1 is given twice (also line 3)"
+    assert remedy.startswith("note: correct the rows named in ")
     with Session.open(tmp_path / "s8.h5", writable=False) as s:
         assert list(s) == ["S0", "S1"] and s["S1"].metadata["dt_s"] == 2e-5
 

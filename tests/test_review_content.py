@@ -122,7 +122,9 @@ def test_a_file_that_is_not_a_review_table_is_named(tmp_path):
     path = tmp_path / "shots.csv"
     path.write_text("shot,dt_s\nS0,1\n", encoding="utf-8")
     with pytest.raises(WakelineError, match=r"shots.csv: not a review table \(no column "
-                                            r"'review_status'\)"):
+                                            r"'review_status'; it needs shot and "
+                                            r"review_status, .* as `wakeline table` writes "
+                                            r"them\)$"):
         read_review_csv(path, ["S0"])
 
 

@@ -107,6 +107,7 @@ def _add_table(subparsers) -> None:
 
 def run_import(args: argparse.Namespace) -> int:
     from core.store import import_folder
+    from core.store.manifest import MANIFEST_NAME
 
     if not args.src_dir.is_dir():
         raise WakelineError(f"{args.src_dir}: folder not found")
@@ -116,6 +117,11 @@ def run_import(args: argparse.Namespace) -> int:
         print(f"wakeline: {problem}", file=sys.stderr)
     for note in report.notes:
         print(f"note: {note}", file=sys.stderr)
+    bad_rows = [p for p in report.problems if p.startswith(f"{MANIFEST_NAME} line")]
+    if len(bad_rows) > len(report.differing):  # the differing ones have their own remedy
+        print(f"note: correct the rows named in {args.src_dir / MANIFEST_NAME} (or the files "
+              "they name) and import the folder again: the shots imported now are left as "
+              "they are", file=sys.stderr)
     if report.differing:
         shots = list(report.differing)
         print(f"note: to take the new values of {', '.join(shots[:5])}"

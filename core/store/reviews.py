@@ -132,8 +132,10 @@ def read_review_csv(path: Path, shot_ids, name: str | None = None) -> ReviewLaye
     header, reader = read_csv_table(path, "review table")
     missing = [c for c in ("shot", REVIEW_COLUMNS["status"]) if c not in header]
     if missing:
-        raise WakelineError(f"{path}: not a review table (no column "
-                            + " or ".join(repr(c) for c in missing) + ")")
+        raise WakelineError(
+            f"{path}: not a review table (no column " + " or ".join(repr(c) for c in missing)
+            + "; it needs shot and review_status, and takes the final angles, their "
+            "uncertainties and the reviewer's columns as `wakeline table` writes them)")
     known = set(shot_ids)
     picks: dict[str, LayerPick] = {}
     problems: list[str] = []
