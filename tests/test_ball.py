@@ -15,12 +15,12 @@ from core import WakelineError
 from core.ball import (
     ball_displacement,
     ball_mask,
+    ball_size_problem,
     find_ball,
     find_balls,
     flight_from_balls,
     flight_from_stream,
     match_ball_image,
-    ball_size_problem,
     nominal_diameter_mm,
     scale_from_ball,
 )
