@@ -149,6 +149,37 @@ def subtract_background(
     return np.clip(frame - background, 0.0, None)
 
 
+#: A background whose particle images match a frame's this closely (correlation of their fine
+#: texture) is that frame: a median of two frames (their mean) reaches 0.7, of three or more
+#: less, a minimum far less; a frame of another shot about 0.
+SAME_FRAME_CORRELATION = 0.8
+
+
+def background_problem(background: np.ndarray, frames) -> str:
+    """Why ``background`` is no background for ``frames`` (name, image pairs), or "": its
+    particle images are one frame's (the correlation of what a 2 px Gaussian smooths away, on a
+    central crop, reaches ``SAME_FRAME_CORRELATION``): subtracted, it would take that frame's
+    particle images away with it."""
+    its = _fine_texture(background)
+    for name, frame in frames:
+        own = _fine_texture(frame)
+        spread = float(np.linalg.norm(its) * np.linalg.norm(own))
+        if spread > 0 and float(np.sum(its * own)) / spread >= SAME_FRAME_CORRELATION:
+            return (f"its particle images are those of {name}: a background is the per-pixel "
+                    "minimum or median of frames of several shots at this camera position")
+    return ""
+
+
+def _fine_texture(image: np.ndarray) -> np.ndarray:
+    """What a 2 px Gaussian smooths away on a central crop of at most 512 x 512 px, its mean
+    taken off: the particle images."""
+    h, w = image.shape
+    y0, x0 = max(0, h // 2 - 256), max(0, w // 2 - 256)
+    crop = np.asarray(image[y0 : y0 + 512, x0 : x0 + 512], dtype=np.float32)
+    fine = crop - ndimage.gaussian_filter(crop, 2.0)
+    return fine - fine.mean()
+
+
 def particle_spacing_px(frame: np.ndarray) -> float:
     """Mean distance (px) between particle images, ``1 / sqrt(density)``: a rough figure for
     window sizes. The density counts local maxima standing 3 noise deviations above their

@@ -104,6 +104,13 @@ def test_pair_conditioning_options(tmp_path):
     done = wakeline("pair", tmp_path / "a.tif", tmp_path / "b.tif", "--no-ball",
                     "--background", tmp_path / "small.tif")
     assert done.returncode == 1 and "small.tif" in done.stderr and "background" in done.stderr
+    # frame A given as the background would take the particle images away with it
+    done = wakeline("pair", tmp_path / "a.tif", tmp_path / "b.tif", "--no-ball",
+                    "--background", tmp_path / "a.tif")
+    assert done.returncode == 1 and done.stderr.startswith(
+        f"wakeline: {tmp_path / 'a.tif'}: not a background image: its particle images are those "
+        "of frame A")
+    assert len(done.stderr.splitlines()) == 1
 
 
 def test_window_without_display_is_one_line_exit_1():

@@ -9,6 +9,7 @@ from core import WakelineError
 from core.conditioning import (
     MIN_GLARE_AREA_PX,
     background_image,
+    background_problem,
     glare_mask,
     normalise_local,
     particle_spacing_px,
@@ -60,6 +61,21 @@ def test_background_of_a_camera_position_keeps_the_fixed_reflection():
         assert np.median(np.abs(background - reflection)) < tol
     cleaned = subtract_background(frames[0], background_image(frames, "min"))
     assert cleaned.min() >= 0 and np.median(cleaned) < 5.0
+
+
+def test_a_frame_of_the_shot_is_no_background():
+    # a minimum over shots keeps none of a frame's particle images, a median some (of two
+    # frames, their mean: correlation 1/sqrt(2) with each, closed form); frame B itself, even
+    # rescaled (another export), keeps them all; a frame of another shot shares none
+    shape = (128, 128)
+    frames = [30.0 + _particles(shape, 800, 1000.0, seed=s) for s in range(5)]
+    pair = (("frame A", frames[0]), ("frame B", frames[1]))
+    for method in ("min", "median"):
+        for count in (2, 3, 5):
+            assert background_problem(background_image(frames[:count], method), pair) == ""
+    assert background_problem(frames[4], pair) == ""
+    assert background_problem(0.5 * frames[1] + 7.0, pair).startswith(
+        "its particle images are those of frame B: a background is")
 
 
 def test_background_errors_are_one_line():

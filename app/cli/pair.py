@@ -58,6 +58,7 @@ def add_commands(subparsers) -> None:
 
 
 def run_pair(args: argparse.Namespace) -> int:
+    from core.conditioning import background_problem
     from core.images import read_frame, read_frame_pair
     from core.shot import ShotSettings, measure_shot
 
@@ -71,6 +72,9 @@ def run_pair(args: argparse.Namespace) -> int:
             raise WakelineError(f"{args.background}: background is {background.shape[1]} x "
                                 f"{background.shape[0]} px, the frames "
                                 f"{frame_a.shape[1]} x {frame_a.shape[0]} px")
+        if problem := background_problem(background, (("frame A", frame_a),
+                                                      ("frame B", frame_b))):
+            raise WakelineError(f"{args.background}: not a background image: {problem}")
     settings = ShotSettings(
         dt_s=args.dt,
         scale_mm_per_px=args.scale,
