@@ -49,7 +49,8 @@ from core.ball.flight import (
     match_ball_image,
 )
 from core.ball.outline import find_ball, find_balls
-from core.ball.sizes import ball_mask, ball_size_problem, nominal_diameter_mm, scale_from_ball
+from core.ball.sizes import ball_mask, nominal_diameter_mm, scale_from_ball
+from core.rulebook import ball_size_problem
 
 __all__ = [
     "BALL_CIRCUMFERENCE_MM",

@@ -4,27 +4,7 @@ from __future__ import annotations
 
 import math
 
-# Rulebook sizes: circumference range (mm); the nominal diameter is mid-range circumference / pi.
-BALL_CIRCUMFERENCE_MM = {
-    # Laws of Cricket, Law 4 (the ball), men's: circumference 22.4-22.9 cm.
-    "cricket": (224.0, 229.0),
-    # Official Baseball Rules 3.01: circumference 9-9.25 in.
-    "baseball": (9.0 * 25.4, 9.25 * 25.4),
-    # 12 in softball: circumference 11 7/8 - 12 1/8 in.
-    "softball": (11.875 * 25.4, 12.125 * 25.4),
-}
-
-#: Every grade's circumference range (mm) of each ball type, for the check that a given diameter
-#: can be that type's (from memory): Laws of Cricket, Law 4: women's 21.0-22.5 cm, junior
-#: 20.5-22.0 cm beside the men's; softball: the 11 in ball, 10 7/8 - 11 1/8 in, beside the 12 in.
-ANY_GRADE_CIRCUMFERENCE_MM = {
-    "cricket": (205.0, 229.0),
-    "baseball": BALL_CIRCUMFERENCE_MM["baseball"],
-    "softball": (10.875 * 25.4, BALL_CIRCUMFERENCE_MM["softball"][1]),
-}
-#: How far (share) a given diameter may lie outside its type's range before it is questioned:
-#: a worn or wet ball, a diameter measured with a caliper across the seam (common practice).
-BALL_SIZE_SLACK = 0.01
+from core.rulebook import BALL_CIRCUMFERENCE_MM
 
 #: Nominal diameters (mm): mid-range rulebook circumference / pi.
 NOMINAL_BALL_DIAMETER_MM = {

@@ -8,9 +8,7 @@ import numpy as np
 
 from core import WakelineError
 from core.ball.constants import (
-    ANY_GRADE_CIRCUMFERENCE_MM,
     BALL_CIRCUMFERENCE_MM,
-    BALL_SIZE_SLACK,
     DEFAULT_MASK_MARGIN_PX,
     NOMINAL_BALL_DIAMETER_MM,
 )
@@ -35,23 +33,6 @@ def nominal_diameter_mm(ball_type: str) -> float:
         known = ", ".join(sorted(BALL_CIRCUMFERENCE_MM))
         raise WakelineError(f"ball type {ball_type!r}: unknown (known: {known})")
     return NOMINAL_BALL_DIAMETER_MM[key]
-
-
-def ball_size_problem(ball_type: str | None, diameter_mm: float | None) -> str:
-    """Why a given diameter cannot be a ball of the given type, or "": the diameter lies more
-    than ``BALL_SIZE_SLACK`` outside every grade's rulebook range of that type
-    (``ANY_GRADE_CIRCUMFERENCE_MM``). The measurement uses the diameter given; the type or the
-    diameter is then probably a slip (a softball's diameter under "cricket")."""
-    key = (ball_type or "").strip().lower()
-    if key not in ANY_GRADE_CIRCUMFERENCE_MM or not diameter_mm:
-        return ""
-    lo, hi = (c / math.pi for c in ANY_GRADE_CIRCUMFERENCE_MM[key])
-    if (1.0 - BALL_SIZE_SLACK) * lo <= diameter_mm <= (1.0 + BALL_SIZE_SLACK) * hi:
-        return ""
-    name = key if key.endswith("ball") else f"{key} ball"
-    return (f"ball_diameter_mm {diameter_mm:g} does not fit a {name} (rulebook "
-            f"{lo:.1f}-{hi:.1f} mm): check ball_type and ball_diameter_mm; the diameter given is "
-            "used")
 
 
 def scale_from_ball(radius_px: float, diameter_mm: float) -> float:

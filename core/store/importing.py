@@ -6,6 +6,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from core import WakelineError
+from core.rulebook import ball_size_problem
 from core.store.files import sha256_of
 from core.store.manifest import MANIFEST_NAME, column_notes, read_manifest
 from core.store.session import PER_SHOT_SETTINGS, Session
@@ -70,8 +71,6 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
         When the manifest is missing, lacks a required column or has no rows (nothing is
         imported, no session created).
     """
-    from core.ball.sizes import ball_size_problem  # the ball finder's package: only when needed
-
     src_dir = Path(src_dir)
     manifest = src_dir / MANIFEST_NAME
     header, rows = read_manifest(manifest)
