@@ -4,6 +4,7 @@ say the same thing the same way."""
 from __future__ import annotations
 
 import math
+from pathlib import Path
 
 import pytest
 
@@ -117,7 +118,19 @@ def test_the_meaning_of_the_uncertainty_gives_the_factor_it_was_made_with():
     before = uncertainty_meaning(SideProposal(5.0, 2.0, budget=budget))  # made by 0.1
     assert f"{COVERAGE_K:g} × the root sum of squares" in now
     assert "2 × the root sum of squares" in before
-    assert now.splitlines()[1:] == ["  extrapolation 0.80°", "  fit 0.60°"]
+    assert now.splitlines()[1:] == [
+        "  extrapolation 0.80°: where a shallow layer meets the wall, below what the images see",
+        "  fit 0.60°: what the particle images alone allow"]
+
+
+def test_every_source_of_the_uncertainty_has_a_gloss():
+    # the names the separation's budget uses (core.separation, docs/separation_accuracy.md)
+    from app.review.text import BUDGET_GLOSS
+
+    doc = (Path(__file__).parents[1] / "docs" / "separation_accuracy.md").read_text()
+    table = doc.split("| budget entry | what it is |")[1].split("\n\n")[0]
+    names = {line.split("|")[1].strip() for line in table.splitlines()[2:] if line.startswith("|")}
+    assert names == set(BUDGET_GLOSS)
 
 
 def test_a_result_made_by_an_earlier_uncertainty_method_is_named():

@@ -96,8 +96,24 @@ def uncertainty_meaning(side: SideProposal) -> str:
              f"{COVERAGE:.0%} of proposals: {factor:g} × the root sum of squares of these "
              "standard uncertainties:")]
     for source, value in sorted((side.budget or {}).items(), key=lambda kv: -kv[1]):
-        lines.append(f"  {source} {value:.2f}°")
+        gloss = BUDGET_GLOSS.get(source)
+        lines.append(f"  {source} {value:.2f}°" + (f": {gloss}" if gloss else ""))
     return "\n".join(lines)
+
+
+#: What each source of a proposal's uncertainty stands for, in a few words (its budget's names:
+#: core.separation; docs/separation_accuracy.md says how each is measured).
+BUDGET_GLOSS = {
+    "fit": "what the particle images alone allow",
+    "circle": "the ball's circle moved within its own uncertainty",
+    "flight": "the flight direction within its own uncertainty",
+    "model form": "the near-wall model's form (profile shape, settling arc, no-slip length)",
+    "prior": "the layer-thickness prior halved and doubled",
+    "extrapolation": "where a shallow layer meets the wall, below what the images see",
+    "other minimum": "other starts the images hardly reject",
+    "layer form": "which line of the spreading layer keeps to its path",
+    "hidden wall": "glare hides the wall where the layer may leave it",
+}
 
 
 def outdated_uncertainty_note(record, remedy: str = "Process ▸ Reprocess this shot") -> str:
