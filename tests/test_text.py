@@ -11,6 +11,7 @@ import pytest
 from app.review.text import (
     angle_text,
     flight_text,
+    layer_text,
     proposal_text,
     shot_rows,
     speed_text,
@@ -25,7 +26,8 @@ SUMMARY = ShotSummary.from_dict({
     "ball": {"frame_a": {"center_px": [120.0, 80.5], "radius_px": 30.0}},
     "flight": {"direction_deg": 178.25, "speed_m_s": 30.06, "displacement_px": [-6.0, 0.2],
                "source": "ball displacement"},
-    "separation": {"upper": {"angle_deg": 12.34, "uncertainty_deg": 1.5, "quality": 0.8},
+    "separation": {"upper": {"angle_deg": 12.34, "uncertainty_deg": 1.5, "quality": 0.8,
+                             "departure_deg": 8.4, "layer_px": 2.46},
                    "lower": {"angle_deg": None, "reason": "the image edge cuts the band"},
                    "wake_deflection_deg": -3.0, "wake_state": "undetermined"},
     "scale_mm_per_px": 0.078, "dt_s": 2e-5,
@@ -78,8 +80,10 @@ def test_readout_and_sheet_use_the_same_words(qtbot):
     assert panel.wake.text() == wake_text(SUMMARY.separation)
     assert panel.vectors.text() == vectors_text(SUMMARY.vectors)
     # the same words; the sheet gives angles to 0.01 deg
-    assert side_detail(record, "upper").endswith(proposal_text(SUMMARY.side("upper"), 2))
-    assert side_detail(record, "upper").endswith("+12.34° ± 1.50°, quality 0.80")
+    assert panel.cells[("layer", "upper")].text() == layer_text(SUMMARY.side("upper"))
+    assert side_detail(record, "upper").endswith(
+        f"{proposal_text(SUMMARY.side('upper'), 2)}; layer {layer_text(SUMMARY.side('upper'))}")
+    assert side_detail(record, "upper").endswith("+12.34° ± 1.50°, quality 0.80; layer 8°, 2.5 px")
 
 
 @pytest.mark.parametrize("status", ["to review", "unusable"])
@@ -188,3 +192,22 @@ def test_a_remark_on_a_proposal_made_is_shown_not_only_hovered(qtbot):
     with_ball = with_(SUMMARY, separation=summary.separation)
     assert ("proposals", f"upper side: {remark}") in shot_rows(with_ball)
     assert "proposals" not in dict(shot_rows(SUMMARY))
+
+
+def test_the_fitted_layer_is_told_and_a_start_hard_to_place_is_named():
+    # near-tangential layers and layers thinner than the particle images: the data cannot
+    # tell where they start (docs/separation_accuracy.md, Known limits)
+    from app.review.text import layer_meaning
+
+    steep = SideProposal(10.0, 2.0, departure_deg=12.3, layer_px=3.24)
+    assert layer_text(steep) == "12°, 3.2 px"
+    assert layer_meaning(steep, 0.2) == ("the fitted shear layer leaves the wall at 12.3° to its "
+                                         "tangent; its vorticity thickness at separation is "
+                                         "3.2 px (0.65 mm)")
+    flat_thin = SideProposal(10.0, 6.0, departure_deg=0.0, layer_px=1.2)
+    assert layer_meaning(flat_thin).endswith(
+        "is 1.2 px. It leaves nearly along the wall and it is thinner than the particle images: "
+        "the images hardly show where it starts; read the proposal as a range (the ± says how "
+        "wide)")
+    assert layer_text(SideProposal(None, reason="refused")) == "—"
+    assert layer_meaning(SideProposal(None)) == ""

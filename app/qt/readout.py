@@ -34,6 +34,8 @@ from app.review.text import (
     ball_text,
     direction_text,
     geometry_text,
+    layer_meaning,
+    layer_text,
     outdated_uncertainty_note,
     proposal_remarks,
     quality_meaning,
@@ -51,7 +53,9 @@ from core.results import SideProposal
 # the notes field's own keys (NoteEdit.keyPressEvent), for the F1 key list
 NOTE_KEYS = (("Ctrl+Return / Esc", ("in the note field: save the note and hand the keys "
                                     "back to the list")),)
-ROWS = ("proposed", "final", "uncertainty", "quality")
+ROWS = ("proposed", "final", "uncertainty", "quality", "layer")
+ROW_TIPS = {"layer": "the fitted shear layer: its departure from the wall's tangent and its "
+                     "vorticity thickness at separation (hover a value for more)"}
 PROBLEM_STYLE = (f"QLabel {{ background: #f6e3e6; color: {colours.STATUS_COLOURS['unusable']};"
                  " border-radius: 4px; padding: 6px; }")
 NOTICE_STYLE = (f"QLabel {{ background: {colours.PAPER_TINT}; color: {colours.MUTED_INK};"
@@ -179,7 +183,9 @@ class ReadoutPanel(QWidget):
             head.setAlignment(Qt.AlignmentFlag.AlignRight)
             grid.addWidget(head, 0, col)
         for row, name in enumerate(ROWS, start=1):
-            grid.addWidget(QLabel(name, group), row, 0)
+            label = QLabel(name, group)
+            label.setToolTip(ROW_TIPS.get(name, ""))
+            grid.addWidget(label, row, 0)
             for col, side in enumerate(SIDES, start=1):
                 cell = QLabel("—", group)
                 cell.setAlignment(Qt.AlignmentFlag.AlignRight)
@@ -375,6 +381,7 @@ class ReadoutPanel(QWidget):
                 "uncertainty": uncertainty_text(detail.uncertainty_deg),
                 "quality": quality_text(detail.quality if detail.angle_deg is not None
                                         else None),  # no proposal, no quality of it
+                "layer": layer_text(detail),
             }
             for name, text in values.items():
                 self.cells[(name, side)].setText(text)
@@ -382,6 +389,8 @@ class ReadoutPanel(QWidget):
             self.cells[("proposed", side)].setToolTip(detail.reason)
             self.cells[("uncertainty", side)].setToolTip(uncertainty_meaning(detail))
             self.cells[("quality", side)].setToolTip(quality_meaning(detail))
+            self.cells[("layer", side)].setToolTip(layer_meaning(
+                detail, None if record.summary is None else record.summary.scale_mm_per_px))
         self.difference.setText(self._difference_text(record))
         self.difference.setStyleSheet("")
 

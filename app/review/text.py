@@ -125,6 +125,40 @@ def outdated_uncertainty_note(record, remedy: str = "Process ▸ Reprocess this 
             f"{remedy} gives the current one")
 
 
+#: Below these the images hardly show where a layer starts (docs/separation_accuracy.md,
+#: Known limits): a departure (deg from the wall) and a vorticity thickness (px).
+SHALLOW_DEPARTURE_DEG = 5.0
+THIN_LAYER_PX = 1.5
+
+
+def layer_text(side: SideProposal) -> str:
+    """The fitted layer in brief: ``8°, 2.9 px`` (its departure from the wall's tangent and
+    its vorticity thickness at separation), or the em dash."""
+    if side.angle_deg is None or side.departure_deg is None or side.layer_px is None:
+        return MISSING
+    return f"{side.departure_deg:.0f}°, {side.layer_px:.1f} px"
+
+
+def layer_meaning(side: SideProposal, scale_mm_per_px: float | None = None) -> str:
+    """What the fitted layer's two numbers are (a tip), and when they mean that its start is
+    hard to place."""
+    if layer_text(side) == MISSING:
+        return ""
+    size = f"{side.layer_px:.1f} px" + (
+        f" ({side.layer_px * scale_mm_per_px:.2f} mm)" if scale_mm_per_px else "")
+    text = (f"the fitted shear layer leaves the wall at {side.departure_deg:.1f}° to its "
+            f"tangent; its vorticity thickness at separation is {size}")
+    why = []
+    if side.departure_deg < SHALLOW_DEPARTURE_DEG:
+        why.append("it leaves nearly along the wall")
+    if side.layer_px < THIN_LAYER_PX:
+        why.append("it is thinner than the particle images")
+    if why:
+        text += (f". {' and '.join(why).capitalize()}: the images hardly show where it "
+                 "starts; read the proposal as a range (the ± says how wide)")
+    return text
+
+
 def quality_meaning(side: SideProposal) -> str:
     """How a proposal's quality follows from its fit and its uncertainty (a tip): quality is
     how clearly the separating layer beats attached flow times how narrow the interval is

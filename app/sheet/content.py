@@ -14,7 +14,7 @@ import numpy as np
 
 from app.review.marks import moved_from_proposal
 from app.review.overview import column_value
-from app.review.text import MISSING, SHEET_DECIMALS, angle_text, proposal_text
+from app.review.text import MISSING, SHEET_DECIMALS, angle_text, layer_text, proposal_text
 from core import WakelineError
 from core.results import SideProposal
 from core.store import ReviewStatus, ShotRecord
@@ -25,7 +25,9 @@ SUMMARY_ROWS_PER_PAGE = 40
 CONVENTIONS = (
     "Separation angle: deg from the plane through the ball centre normal to the flight, "
     "+ rearward (add 90 for the angle from the front stagnation point). Upper = side toward the "
-    "top of the picture. Flight direction: 0 deg = toward +x (right), 90 deg = toward the top. "
+    "top of the picture. Layer: the fitted shear layer's departure from the wall and its "
+    "vorticity thickness at separation. Flight direction: 0 deg = toward +x (right), 90 deg = "
+    "toward the top. "
     "Vorticity in 1/s, counter-clockwise on the page positive. Velocity in m/s, lab frame. "
     "Pictures: dashed line = plane normal to the flight; arrow = flight; filled dot = final "
     "separation; hollow dot = proposal (grey where the analyst moved the mark; ? = not reviewed)."
@@ -209,6 +211,8 @@ def side_detail(record: ShotRecord, side: str) -> str:
         parts.append(f"{sheet_angle(final + 90.0, signed=False)} from front stagnation")
     proposal = SideProposal(None) if record.summary is None else record.summary.side(side)
     parts.append("proposal " + proposal_text(proposal, SHEET_DECIMALS))
+    if (layer := layer_text(proposal)) != MISSING:
+        parts.append(f"layer {layer}")
     return "; ".join(parts)
 
 
