@@ -248,7 +248,9 @@ def _backgrounds(session: Session, tasks: list[dict]):
         frames = [f for shot_id in ids
                   for f in read_frames(shot_id, session.frame_source(shot_id))]
         path = folder / f"background-{index}.npy"
-        np.save(path, background_image(frames, method))
+        # one shot's two frames: their median is their mean, which holds half of each frame's
+        # particle images; their minimum keeps only the light both share
+        np.save(path, background_image(frames, method if len(ids) > 1 else "min"))
         for task in members:
             task["background"] = str(path)
     return stack

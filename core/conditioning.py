@@ -149,25 +149,38 @@ def subtract_background(
     return np.clip(frame - background, 0.0, None)
 
 
-#: A background whose particle images match a frame's this closely (correlation of their fine
-#: texture) is that frame: a median of two frames (their mean) reaches 0.7, of three or more
-#: less, a minimum far less; a frame of another shot about 0.
-SAME_FRAME_CORRELATION = 0.8
+#: A background is taken for one of the frames when that frame's particle images explain its
+#: fine texture: regressed on frames A's and B's, one of the two takes at least this share of
+#: the weight and the two explain at least this share of the texture. A background shares the
+#: fixed light with both frames alike (a minimum or median of their shot's frames included:
+#: measured shares under 0.02), a frame its own particle images (a share of 1).
+SAME_FRAME_SHARE = 0.5
 
 
 def background_problem(background: np.ndarray, frames) -> str:
-    """Why ``background`` is no background for ``frames`` (name, image pairs), or "": its
-    particle images are one frame's (the correlation of what a 2 px Gaussian smooths away, on a
-    central crop, reaches ``SAME_FRAME_CORRELATION``): subtracted, it would take that frame's
-    particle images away with it."""
-    its = _fine_texture(background)
-    for name, frame in frames:
-        own = _fine_texture(frame)
-        spread = float(np.linalg.norm(its) * np.linalg.norm(own))
-        if spread > 0 and float(np.sum(its * own)) / spread >= SAME_FRAME_CORRELATION:
-            return (f"its particle images are those of {name}: a background is the per-pixel "
-                    "minimum or median of frames of several shots at this camera position")
-    return ""
+    """Why ``background`` is no background for the frame pair ``frames`` (two (name, image)
+    pairs), or "": its fine texture (what a 2 px Gaussian smooths away, on a central crop) is
+    one frame's, at any gain: subtracted, it would take that frame's particle images away.
+
+    Fixed light (reflections, a lit wall, the camera's pattern) is in both frames alike and
+    in any background, so the test is the asymmetry of ``background ~ alpha A + beta B``:
+    ``|alpha - beta| / (|alpha| + |beta|)`` at least ``SAME_FRAME_SHARE``, the fit explaining at
+    least that share of the background's texture."""
+    (name_a, frame_a), (name_b, frame_b) = frames
+    g, a, b = (_fine_texture(image).ravel() for image in (background, frame_a, frame_b))
+    normal = np.array([[a @ a, a @ b], [a @ b, b @ b]], dtype=np.float64)
+    try:
+        alpha, beta = np.linalg.solve(normal, np.array([a @ g, b @ g], dtype=np.float64))
+    except np.linalg.LinAlgError:  # a flat frame, or the two frames the same
+        return ""
+    weight = abs(alpha) + abs(beta)
+    explained = 1.0 - float(np.sum((g - alpha * a - beta * b) ** 2)) / max(float(g @ g), 1e-30)
+    if not (weight > 0 and abs(alpha - beta) / weight >= SAME_FRAME_SHARE
+            and explained >= SAME_FRAME_SHARE):
+        return ""
+    return (f"its particle images are those of {name_a if abs(alpha) > abs(beta) else name_b}: "
+            "a background is the per-pixel minimum or median of frames of several shots at "
+            "this camera position")
 
 
 def _fine_texture(image: np.ndarray) -> np.ndarray:

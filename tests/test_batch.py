@@ -195,6 +195,27 @@ def test_a_session_background_is_taken_from_the_frames_and_subtracted(session_pa
             assert (dx, dy) == pytest.approx(shift_of(i), abs=0.1)
 
 
+def test_a_camera_position_of_one_shot_takes_the_minimum_of_its_two_frames(tmp_path):
+    # the median of two frames is their mean, which holds half of each frame's particle images
+    from core.batch import _backgrounds
+
+    src = write_shot_folder(tmp_path / "src", 3)
+    lines = (src / "shots.csv").read_text().splitlines()
+    rows = [lines[0] + ",camera"] + [f"{row},{'left' if i == 0 else 'right'}"
+                                      for i, row in enumerate(lines[1:])]
+    (src / "shots.csv").write_text("\n".join(rows) + "\n")
+    import_folder(src, tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        tasks = [{"shot_id": shot_id, "settings": {"background": "median"}} for shot_id in s]
+        with _backgrounds(s, tasks):
+            alone, shared = (np.load(t["background"]) for t in tasks[:2])
+            first = read_frames("S0", s.frame_source("S0"))
+            assert np.array_equal(alone, np.minimum(*first))
+            two = [f for shot_id in ("S1", "S2") for f in read_frames(shot_id,
+                                                                   s.frame_source(shot_id))]
+            assert np.allclose(shared, np.median(two, axis=0))
+
+
 def test_a_session_with_nothing_to_process_runs_no_workers(session_path):
     # every shot up to date: the run starts no pool (it used to fail with "max_workers must be
     # greater than 0") and reports nothing to do

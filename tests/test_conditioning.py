@@ -64,18 +64,24 @@ def test_background_of_a_camera_position_keeps_the_fixed_reflection():
 
 
 def test_a_frame_of_the_shot_is_no_background():
-    # a minimum over shots keeps none of a frame's particle images, a median some (of two
-    # frames, their mean: correlation 1/sqrt(2) with each, closed form); frame B itself, even
-    # rescaled (another export), keeps them all; a frame of another shot shares none
+    # fixed light (sharp rings and a fixed noise pattern, as strong as the particle images) is
+    # in both frames and in every background alike; a minimum or median over shots, even of
+    # this shot's own two frames, shares it with A and B evenly, while frame B itself, at any
+    # gain (another export), carries B's particle images only
     shape = (128, 128)
-    frames = [30.0 + _particles(shape, 800, 1000.0, seed=s) for s in range(5)]
+    rng = np.random.default_rng(7)
+    yy, xx = np.mgrid[0:128, 0:128]
+    fixed = 400.0 * ((np.hypot(xx - 64, yy - 64) % 20) < 2) + rng.normal(0.0, 80.0, shape)
+    frames = [30.0 + fixed + _particles(shape, 800, 300.0, seed=s) for s in range(5)]
     pair = (("frame A", frames[0]), ("frame B", frames[1]))
     for method in ("min", "median"):
         for count in (2, 3, 5):
             assert background_problem(background_image(frames[:count], method), pair) == ""
-    assert background_problem(frames[4], pair) == ""
-    assert background_problem(0.5 * frames[1] + 7.0, pair).startswith(
-        "its particle images are those of frame B: a background is")
+    for other in (frames[4], 30.0 + fixed, np.zeros(shape), rng.normal(0.0, 1.0, shape)):
+        assert background_problem(other, pair) == ""
+    for gain in (1.0, 1.0 / 16.0):
+        assert background_problem(gain * frames[1] + 7.0, pair).startswith(
+            "its particle images are those of frame B: a background is")
 
 
 def test_background_errors_are_one_line():
