@@ -19,30 +19,32 @@ BALL_CIRCUMFERENCE_MM = {
 }
 
 #: Every grade's circumference range (mm) of each ball type, for the check that a given diameter
-#: can be that type's (from memory): Laws of Cricket, Law 4: women's 21.0-22.5 cm, junior
-#: 20.5-22.0 cm beside the men's; softball: the 11 in ball, 10 7/8 - 11 1/8 in, beside the 12 in.
-ANY_GRADE_CIRCUMFERENCE_MM = {
-    "cricket": (205.0, 229.0),
-    "baseball": BALL_CIRCUMFERENCE_MM["baseball"],
-    "softball": (10.875 * 25.4, BALL_CIRCUMFERENCE_MM["softball"][1]),
+#: can be that type's (from memory): Laws of Cricket, Law 4: women's 21.0-22.5 cm and junior
+#: 20.5-22.0 cm beside the men's (ranges that join); softball: the 11 in ball, 10 7/8 - 11 1/8
+#: in, beside the 12 in (a gap between them).
+GRADE_CIRCUMFERENCES_MM = {
+    "cricket": ((205.0, 229.0),),
+    "baseball": (BALL_CIRCUMFERENCE_MM["baseball"],),
+    "softball": ((10.875 * 25.4, 11.125 * 25.4), BALL_CIRCUMFERENCE_MM["softball"]),
 }
-#: How far (share) a given diameter may lie outside its type's range before it is questioned:
+#: How far (share) a given diameter may lie outside a grade's range before it is questioned:
 #: a worn or wet ball, a diameter measured with a caliper across the seam (common practice).
 BALL_SIZE_SLACK = 0.01
 
 
 def ball_size_problem(ball_type: str | None, diameter_mm: float | None) -> str:
     """Why a given diameter cannot be a ball of the given type, or "": the diameter lies more
-    than ``BALL_SIZE_SLACK`` outside every grade's rulebook range of that type
-    (``ANY_GRADE_CIRCUMFERENCE_MM``). The measurement uses the diameter given; the type or the
+    than ``BALL_SIZE_SLACK`` outside each grade's rulebook range of that type
+    (``GRADE_CIRCUMFERENCES_MM``). The measurement uses the diameter given; the type or the
     diameter is then probably a slip (a softball's diameter under "cricket")."""
     key = (ball_type or "").strip().lower()
-    if key not in ANY_GRADE_CIRCUMFERENCE_MM or not diameter_mm:
+    if key not in GRADE_CIRCUMFERENCES_MM or not diameter_mm:
         return ""
-    lo, hi = (c / math.pi for c in ANY_GRADE_CIRCUMFERENCE_MM[key])
-    if (1.0 - BALL_SIZE_SLACK) * lo <= diameter_mm <= (1.0 + BALL_SIZE_SLACK) * hi:
+    grades = [(lo / math.pi, hi / math.pi) for lo, hi in GRADE_CIRCUMFERENCES_MM[key]]
+    if any((1.0 - BALL_SIZE_SLACK) * lo <= diameter_mm <= (1.0 + BALL_SIZE_SLACK) * hi
+           for lo, hi in grades):
         return ""
     name = key if key.endswith("ball") else f"{key} ball"
-    return (f"ball_diameter_mm {diameter_mm:g} does not fit a {name} (rulebook "
-            f"{lo:.1f}-{hi:.1f} mm): check ball_type and ball_diameter_mm; the diameter given is "
-            "used")
+    ranges = " or ".join(f"{lo:.1f}-{hi:.1f}" for lo, hi in grades)
+    return (f"a ball diameter of {diameter_mm:g} mm does not fit a {name} (rulebook {ranges} "
+            "mm): check the ball type and the diameter; the diameter given is used")

@@ -222,7 +222,10 @@ def test_a_diameter_is_checked_against_every_grade_of_its_ball_type():
     assert ball_size_problem("cricket", 229.0 / math.pi * 1.009) == ""  # within 1 %
     assert "fit a cricket ball (rulebook 65.3-72.9 mm)" in ball_size_problem("cricket", 74.0)
     assert "fit a baseball (rulebook 72.8-74.8 mm)" in ball_size_problem("baseball", 97.0)
-    assert "fit a softball" in ball_size_problem("softball", 72.0)
+    # between the 11 in softball (87.9-89.9 mm) and the 12 in one (96.0-98.0 mm): neither
+    assert ball_size_problem("softball", 93.0) == (
+        "a ball diameter of 93 mm does not fit a softball (rulebook 87.9-89.9 or 96.0-98.0 mm): "
+        "check the ball type and the diameter; the diameter given is used")
 
 
 def test_scale_from_fitted_radius():

@@ -177,6 +177,6 @@ def test_a_diameter_that_cannot_be_the_ball_type_is_noted_at_import(tmp_path):
                                    "S2,2e-05,0.08,97,Cricket\n")
     report = import_folder(src, tmp_path / "s.h5")
     assert report.imported == ["S0", "S1", "S2"]
-    assert report.notes == [("shot(s) S0, S2: ball_diameter_mm 97 does not fit a cricket ball "
-                             "(rulebook 65.3-72.9 mm): check ball_type and ball_diameter_mm; "
-                             "the diameter given is used")]
+    assert report.notes == [("shot(s) S0, S2: a ball diameter of 97 mm does not fit a cricket "
+                             "ball (rulebook 65.3-72.9 mm): check the ball type and the "
+                             "diameter; the diameter given is used")]

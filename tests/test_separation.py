@@ -192,6 +192,10 @@ def test_glare_over_the_separation_point_widens_the_uncertainty_across_it():
     lower = result.separation.lower
     assert "glare hides the wall" in lower.reason
     assert lower.budget["hidden wall"] > 0.0
+    # every source the budget names has its few words in the readout's tip
+    from app.review.text import BUDGET_GLOSS
+
+    assert set(lower.budget) | set(result.separation.upper.budget) <= set(BUDGET_GLOSS)
     total = COVERAGE_K * math.sqrt(sum(v * v for v in lower.budget.values()))
     assert lower.uncertainty_deg == pytest.approx(total, abs=0.01)
     assert abs(lower.angle_deg - truth.lower_deg) <= lower.uncertainty_deg

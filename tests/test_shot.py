@@ -79,7 +79,7 @@ def test_a_diameter_that_cannot_be_the_ball_type_is_a_warning_of_the_shot():
     frame_a, frame_b, _ = ball_shot(shape=(256, 384), radius_px=40.0, seed=12)
     result = measure_shot(frame_a, frame_b, ShotSettings(
         find_ball=False, ball_type="cricket", ball_diameter_mm=97.0))
-    assert any(w.startswith("ball_diameter_mm 97 does not fit a cricket ball")
+    assert any(w.startswith("a ball diameter of 97 mm does not fit a cricket ball")
                for w in result.warnings)
 
 

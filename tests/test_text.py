@@ -206,8 +206,13 @@ def test_the_fitted_layer_is_told_and_a_start_hard_to_place_is_named():
                                          "3.2 px (0.65 mm)")
     flat_thin = SideProposal(10.0, 6.0, departure_deg=0.0, layer_px=1.2)
     assert layer_meaning(flat_thin).endswith(
-        "is 1.2 px. It leaves nearly along the wall and it is thinner than the particle images: "
-        "the images hardly show where it starts; read the proposal as a range (the ± says how "
-        "wide)")
+        "is 1.2 px. It leaves nearly along the wall: the images hardly show where it starts, and "
+        "its ± widens with that. It is thinner than the particle images: where it starts leans "
+        "on the thickness prior, and its ± may fall short; read the proposal as a range")
+    # judged on the numbers as shown: "5°, 1.5 px" is neither shallow nor thin
+    shown = SideProposal(10.0, 2.0, departure_deg=4.6, layer_px=1.46)
+    assert layer_text(shown) == "5°, 1.5 px" and layer_meaning(shown).endswith("is 1.5 px")
+    shallow = SideProposal(10.0, 2.0, departure_deg=2.0, layer_px=3.0)
+    assert layer_meaning(shallow).endswith("its ± widens with that; read the proposal as a range")
     assert layer_text(SideProposal(None, reason="refused")) == "—"
     assert layer_meaning(SideProposal(None)) == ""

@@ -60,6 +60,25 @@ def test_import_folder_from_the_window_opens_the_new_session(main_window, qtbot,
     assert "Not processed yet" in window.canvas.message.text()
 
 
+def test_notes_of_a_clean_import_are_shown(main_window, qtbot, tmp_path):
+    # every row goes in, but a diameter no cricket ball has (Laws of Cricket, Law 4) is noted
+    from data.session_helpers import write_shot_folder
+
+    folder = write_shot_folder(tmp_path / "launches", 2)
+    lines = (folder / "shots.csv").read_text().splitlines()
+    rows = [lines[0] + ",ball_type"] + [row.replace(",71.6,", ",97,") + ",cricket"
+                                        for row in lines[1:]]
+    (folder / "shots.csv").write_text("\n".join(rows) + "\n")
+    window = main_window(workers=0)
+    window.act_auto.setChecked(False)
+    with qtbot.waitSignal(window.import_folder(folder, tmp_path / "l.h5").finished,
+                          timeout=60_000):
+        pass
+    assert window.model.shot_ids() == ["S0", "S1"]
+    assert window.last_problem.startswith("Import: notes to check: shot(s) S0, S1: a ball "
+                                          "diameter of 97 mm does not fit a cricket ball")
+
+
 @pytest.mark.parametrize("take", [True, False], ids=["taken", "declined"])
 def test_corrected_values_found_on_import_are_offered_and_keep_the_picks(
         main_window, qtbot, tmp_path, take, monkeypatch):

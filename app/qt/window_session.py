@@ -215,6 +215,8 @@ class SessionActions:
         if problems:
             self.show_problem("Import: some rows were not imported",
                               "\n".join(problems[:15] + first.notes))
+        elif first.notes:  # every row went in, with something to check
+            self.show_problem("Import: notes to check", "\n".join(first.notes[:15]))
         word = "Import stopped" if outcome.cancelled else "Imported"
         corrected = (f"; the values of {len(report.corrected)} corrected, the picks kept, "
                      f"{len(report.outdated)} to be processed again" if report.corrected else "")

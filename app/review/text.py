@@ -141,21 +141,22 @@ def layer_text(side: SideProposal) -> str:
 
 def layer_meaning(side: SideProposal, scale_mm_per_px: float | None = None) -> str:
     """What the fitted layer's two numbers are (a tip), and when they mean that its start is
-    hard to place."""
+    hard to place (judged on the numbers as shown)."""
     if layer_text(side) == MISSING:
         return ""
     size = f"{side.layer_px:.1f} px" + (
         f" ({side.layer_px * scale_mm_per_px:.2f} mm)" if scale_mm_per_px else "")
     text = (f"the fitted shear layer leaves the wall at {side.departure_deg:.1f}° to its "
             f"tangent; its vorticity thickness at separation is {size}")
-    why = []
-    if side.departure_deg < SHALLOW_DEPARTURE_DEG:
-        why.append("it leaves nearly along the wall")
-    if side.layer_px < THIN_LAYER_PX:
-        why.append("it is thinner than the particle images")
-    if why:
-        text += (f". {' and '.join(why).capitalize()}: the images hardly show where it "
-                 "starts; read the proposal as a range (the ± says how wide)")
+    hard = []
+    if round(side.departure_deg) < SHALLOW_DEPARTURE_DEG:
+        hard.append("It leaves nearly along the wall: the images hardly show where it starts, "
+                    "and its ± widens with that")
+    if round(side.layer_px, 1) < THIN_LAYER_PX:
+        hard.append("It is thinner than the particle images: where it starts leans on the "
+                    "thickness prior, and its ± may fall short")
+    if hard:
+        text += ". " + ". ".join(hard) + "; read the proposal as a range"
     return text
 
 
