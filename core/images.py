@@ -102,6 +102,8 @@ def _single_page(path: Path) -> np.ndarray:
 def _read_pages(path: Path) -> list[np.ndarray]:
     if not path.exists():
         raise WakelineError(f"{path}: file not found")
+    if path.is_dir():
+        raise WakelineError(f"{path}: is a folder, not a frame file")
     if path.stat().st_size == 0:
         raise WakelineError(f"{path}: file is empty")
     suffix = path.suffix.lower()

@@ -332,3 +332,15 @@ def test_a_folder_or_a_damaged_header_given_as_a_session_is_named_as_such(tmp_pa
     err = capsys.readouterr().err
     assert f"{path}: session file damaged (its header cannot be read: " in err
     assert err.rstrip().endswith("; restore it from a backup")
+
+
+def test_a_folder_that_takes_no_new_files_is_not_called_missing(tmp_path):
+    # a system folder (/proc) refuses new files with "no such file": the folder is there
+    import errno
+
+    from core.store.files import failure_cause
+
+    refused = OSError(errno.ENOENT, "No such file or directory", str(tmp_path / "out.json"))
+    assert failure_cause(refused) == "this folder takes no new files"
+    gone = OSError(errno.ENOENT, "No such file or directory", str(tmp_path / "no" / "out.json"))
+    assert failure_cause(gone) == "the folder does not exist"

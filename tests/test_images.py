@@ -130,3 +130,10 @@ def test_a_tiff_named_png_is_read_as_the_tiff_it_is(tmp_path):
     tifffile.imwrite(tmp_path / "b.tif", _frame())
     frame_a, frame_b = read_frame_pair(tmp_path / "a.png", tmp_path / "b.tif")
     np.testing.assert_array_equal(frame_a, frame_b)
+
+
+def test_a_folder_given_as_a_frame_is_named_as_such(tmp_path):
+    write_frame(tmp_path / "a.tif", np.ones((32, 32)))
+    (tmp_path / "frames").mkdir()
+    with pytest.raises(WakelineError, match=r"frames: is a folder, not a frame file$"):
+        read_frame_pair(tmp_path / "frames", tmp_path / "a.tif")

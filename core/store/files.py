@@ -201,6 +201,8 @@ def writing(out: Path) -> Iterator[None]:
 
 def failure_cause(exc: OSError) -> str:
     """Why a write failed, in plain words ("read-only file system")."""
+    if exc.errno == errno.ENOENT and exc.filename and Path(exc.filename).parent.is_dir():
+        return "this folder takes no new files"  # a system folder such as /proc
     return WRITE_FAILURES.get(exc.errno) or exc.strerror or str(exc)
 
 
