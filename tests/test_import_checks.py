@@ -180,3 +180,17 @@ def test_a_diameter_that_cannot_be_the_ball_type_is_noted_at_import(tmp_path):
     assert report.notes == [("shot(s) S0, S2: a ball diameter of 97 mm does not fit a cricket "
                              "ball (rulebook 65.3-72.9 mm): check the ball type and the "
                              "diameter; the diameter given is used")]
+
+
+def test_a_spreadsheet_s_manifest_is_read_whatever_the_case_of_its_column_names(tmp_path):
+    # saved by a spreadsheet: a byte-order mark, CRLF line ends, "Shot" and "DT_S" headers
+    src = write_shot_folder(tmp_path / "src", 2)
+    lines = (src / "shots.csv").read_text().splitlines()
+    lines[0] = lines[0].replace("shot,dt_s,", " Shot ,DT_S,") + ",Operator"
+    lines[1:] = [row + ",someone" for row in lines[1:]]
+    (src / "shots.csv").write_bytes(("\ufeff" + "\r\n".join(lines) + "\r\n").encode())
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == ["S0", "S1"] and not report.problems
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert s["S1"].metadata["dt_s"] == 2e-05
+        assert s["S1"].metadata["Operator"] == "someone"  # other columns keep their names

@@ -47,6 +47,8 @@ def read_manifest(path: Path) -> tuple[list[str], list[tuple[int, dict, str]]]:
     stay text.
     """
     header, reader = read_csv_table(path, "manifest")
+    # a spreadsheet's "Shot" or "DT_S" is the column wakeline reads
+    header = [name.lower() if name.lower() in KNOWN_COLUMNS else name for name in header]
     for number, name in enumerate(header, start=1):
         if name and name in header[:number - 1]:
             raise WakelineError(f"{path}: column {name!r} appears twice (columns "
