@@ -128,6 +128,20 @@ def test_a_file_that_is_not_a_review_table_is_named(tmp_path):
         read_review_csv(path, ["S0"])
 
 
+def test_a_table_without_a_side_s_final_angles_is_refused_whole(tmp_path):
+    # a colleague's decided shots without one side's final angles would lose that side's picks
+    path = tmp_path / "theirs.csv"
+    path.write_text("shot,review_status,upper_final,lower_final_deg\n"
+                    "S0,adjusted,12.5,8.0\nS1,to review,,\n", encoding="utf-8")
+    with pytest.raises(WakelineError, match=r"theirs.csv: no column 'upper_final_deg' \(is "
+                                            r"'upper_final' meant\?\): the decided shots' final "
+                                            r"angles would be lost; nothing was imported$"):
+        read_review_csv(path, ["S0", "S1"])
+    # with no decided shot there is nothing to lose
+    path.write_text("shot,review_status\nS1,to review\n", encoding="utf-8")
+    assert read_review_csv(path, ["S0", "S1"]).picks["S1"].status == "to review"
+
+
 def test_our_own_table_is_a_review_table_and_its_quoted_cells_come_back(session_path, tmp_path):
     table = tmp_path / "mine.csv"
     with Session.open(session_path) as s:

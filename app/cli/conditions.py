@@ -48,7 +48,7 @@ def _add_review(subparsers) -> None:
         "lower_uncertainty_deg, unusable_reason, review_note, reviewed_by, reviewed_utc) and "
         "keep it in the session beside the session's own picks, which it never changes; a "
         "layer of the same name is replaced. Then print how the two reviews agree. A file "
-        "with a bad row is refused whole.",
+        "with a bad row, or with decided shots and no final-angle column, is refused whole.",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
     p.add_argument("review", type=Path, metavar="REVIEW.csv", help="the other analyst's table")
