@@ -168,6 +168,21 @@ def test_a_column_that_nearly_spells_a_known_one_is_named_at_import(tmp_path, ca
     assert "operator" not in err  # a column of the lab's own is no slip
 
 
+def test_a_missing_column_points_at_a_near_miss_and_a_shorter_slip_is_named(tmp_path):
+    # difflib's ratio: seam_angle / seam_deg 0.67, ball_diamter_mm / ball_diameter_mm 0.97
+    src = write_shot_folder(tmp_path / "src", 1)
+    (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diamter_mm\n"
+                                   "S0,2e-05,0.08,71.6\n")
+    with pytest.raises(WakelineError, match=r"shots.csv: missing column 'ball_diameter_mm' \(is "
+                                            r"'ball_diamter_mm' meant\?\)$"):
+        import_folder(src, tmp_path / "s.h5")
+    (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diameter_mm,seam_angle\n"
+                                   "S0,2e-05,0.08,71.6,10\n")
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.notes == [(f"{src / 'shots.csv'}: column 'seam_angle' is not one wakeline "
+                            "reads (kept as text); did you mean 'seam_deg'?")]
+
+
 def test_a_diameter_that_cannot_be_the_ball_type_is_noted_at_import(tmp_path):
     # Laws of Cricket, Law 4: no grade's cricket ball exceeds 22.9 cm round (72.9 mm across);
     # 97 mm is a 12 in softball's (12 in / pi = 97.0 mm). The shot goes in, the note says so.
