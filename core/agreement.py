@@ -123,6 +123,10 @@ def agreement_lines(agreement: Agreement) -> list[str]:
             lines.append(f"  {side}: no shot with a final angle in both reviews")
             continue
         largest = a.largest
+        if round(largest.difference_deg, 2) == 0:  # shown to 0.01 deg
+            lines.append(f"  {side}: {a.compared} shot(s) in both; the same final angles "
+                         "(to 0.01 deg)")
+            continue
         lines.append(
             f"  {side}: {a.compared} shot(s) in both; mean difference "
             f"{a.mean_difference_deg:+.2f} deg (ours - theirs), largest "

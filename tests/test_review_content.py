@@ -211,4 +211,7 @@ def test_the_agreement_names_the_shots_the_other_review_left_out(session_path, t
     with Session.open(session_path) as s:
         s.add_review_layer(read_review_csv(path, list(s)))
         agreement = compare_reviews(s.values(), latest_layer(s.review_layers()))
-    assert "  not in the other review: 2 shot(s): S1, S2" in agreement_lines(agreement)
+    lines = agreement_lines(agreement)
+    assert "  not in the other review: 2 shot(s): S1, S2" in lines
+    # S0 alike on both sides (+5.0, -3.0): no "largest difference" of +0.00 deg
+    assert "  upper: 1 shot(s) in both; the same final angles (to 0.01 deg)" in lines

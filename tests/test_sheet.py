@@ -119,12 +119,19 @@ def test_sheet_selection_and_layout(reviewed_session, tmp_path):
         assert report.shot_ids == ["s01", "s04"]
         _, text = _pdf_text(tmp_path / "b.pdf")
         assert "Shot s01" in text and "Shot s04" in text and "Shot s02" not in text
+        # the cover's counts are the session's, and say so on a sheet of some of its shots
+        assert f"The whole session ({len(session)} shots):" in text
+        make_sheet(session, tmp_path / "all.pdf", per_page=4)
+        assert "The whole session" not in _pdf_text(tmp_path / "all.pdf")[1]
         with pytest.raises(WakelineError, match="no shot 'nope'"):
             make_sheet(session, tmp_path / "c.pdf", shot_ids=["nope"])
         with pytest.raises(WakelineError, match="nothing to print"):
             make_sheet(session, tmp_path / "c.pdf", shot_ids=["s03"], statuses=("accepted",))
         with pytest.raises(WakelineError, match="not a numeric column"):
             make_sheet(session, tmp_path / "c.pdf", column="notes")
+        # the window's name of the pseudo-column (its filter's speed_m_s) is taken too
+        make_sheet(session, tmp_path / "d.pdf", shot_ids=["s01"], column="shot_order")
+        assert "Final angles by shot order" in _pdf_text(tmp_path / "d.pdf")[1]
         rows = summary_rows(list(session.values()), "seam_deg")
     assert not (tmp_path / "c.pdf").exists()
     # one row per seam angle with a final value: s01 (-10), s02 (0), s05 (45)

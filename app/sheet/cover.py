@@ -52,6 +52,10 @@ def paint_cover(pages: Pages, session, all_records, records, column: str,
     y += 8
     stale = sum(r.state == ProcessState.PROCESSED and session.needs_processing(r.shot_id)
                 for r in all_records) if hasattr(session, "needs_processing") else 0
+    if len(records) < len(all_records):  # the counts below are the session's, not the sheet's
+        text(p, rect_mm(x, y - 2, w, 5), f"The whole session ({len(all_records)} shots):", 8.5,
+             bold=True, colour=colours.INK)
+        y += 4
     y = _paint_status_boxes(p, x, y, w, all_records, stale)
     y += 5
     text(p, rect_mm(x, y, w, 6), "Session overview", 11, bold=True)

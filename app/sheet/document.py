@@ -21,7 +21,7 @@ from pathlib import Path
 from PySide6 import QtCore, QtGui
 
 from app.review.checks import session_direction, shot_checks
-from app.review.overview import default_column, numeric_columns
+from app.review.overview import MEASURED_SPEED, SHOT_ORDER, default_column, numeric_columns
 from app.review.scales import shared_limit
 from app.sheet.conditions_page import conditions_page_count, paint_conditions_page
 from app.sheet.content import (
@@ -102,6 +102,9 @@ def make_sheet(
     if column is None:
         column = default_column(records)
     elif column not in numeric_columns(records):
+        # the window's names for the pseudo-columns: speed_m_s (its filter), shot_order
+        column = {"speed_m_s": MEASURED_SPEED, "shot_order": SHOT_ORDER}.get(column, column)
+    if column not in numeric_columns(records):
         raise ColumnError(
             f"--column: {column!r} is not a numeric column of this session "
             f"(choose from {', '.join(numeric_columns(records))})"
