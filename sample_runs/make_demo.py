@@ -458,7 +458,9 @@ def run_report(demo_dir: Path | None) -> int:
         rows = report_rows(folder / DEMO_SESSION, HERE / "truth.csv")
     how = (f"Measured by `make_demo.py --report` with the code of {_code_version()}: each "
            "proposal (deg, + rearward) with its stated uncertainty; * marks one farther from "
-           "the truth than that (judged, like the distances below, on the unrounded values).")
+           "the truth than that (judged, like the distances below, on the unrounded values). "
+           "Another machine may give single values a few tenths of a degree apart: rounding in "
+           "the compiled fit, which its search and refits amplify.")
     write_report(HERE / "README.md", report_markdown(rows, how))
     print(f"{HERE / 'README.md'}: table of {len(rows)} shots written")
     return 0
