@@ -53,6 +53,10 @@ def test_an_imported_review_shows_its_marks_and_the_agreement(main_window, make_
     window = _open(main_window, make_session)
     from app.qt.conditions_panel import import_review_dialog
 
+    # no second review yet: the table has the dock's width
+    window.statistics.refresh_soon()
+    qtbot.waitUntil(lambda: window.statistics.agreement_pane.isHidden())
+
     review = tmp_path / "theirs.csv"
     review.write_text("shot,review_status,upper_final_deg,lower_final_deg,reviewed_by\n"
                       "s01,adjusted,8.0,-30.0,Bea\ns02,accepted,9.0,-2.0,Bea\n",
@@ -67,6 +71,7 @@ def test_an_imported_review_shows_its_marks_and_the_agreement(main_window, make_
     assert len(marks.items[0].data) == 2
     assert "Bea" in window.canvas.legend.text()
     qtbot.waitUntil(lambda: "review compared with Bea" in window.statistics.agreement_label.text())
+    assert not window.statistics.agreement_pane.isHidden()
     # beside the table, not under it (a long agreement once left the table two rows)
     panel = window.statistics
     from PySide6.QtCore import QPoint

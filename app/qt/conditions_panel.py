@@ -118,7 +118,7 @@ class StatisticsPanel(QWidget):
         self.agreement_label.setAlignment(Qt.AlignmentFlag.AlignTop | Qt.AlignmentFlag.AlignLeft)
         # the agreement beside the table, scrolled when long: below it, a long one left the
         # table two rows in a dock of ordinary height
-        agreement = QScrollArea(self)
+        self.agreement_pane = agreement = QScrollArea(self)
         agreement.setWidget(self.agreement_label)
         agreement.setWidgetResizable(True)
         agreement.setFrameShape(QFrame.Shape.NoFrame)
@@ -193,6 +193,8 @@ class StatisticsPanel(QWidget):
 
     def _show_agreement(self) -> None:
         layer = latest_layer(self.model.review_layers())
+        # without a second review the table takes the dock's width (Import review… is beside)
+        self.agreement_pane.setVisible(layer is not None)
         if layer is None:
             self.agreement_label.setText("No second review imported.")
             return
