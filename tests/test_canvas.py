@@ -177,6 +177,26 @@ def test_vorticity_scale_is_symmetric_and_adjustable(canvas, shot_data):
     assert solid[0, 0, 3] == 255 and solid[0, 1, 3] == 0
 
 
+def test_angle_labels_reach_outward_and_never_cover_the_ball(canvas, shot_data, qtbot):
+    # a label is a fixed size on screen: zoomed far out (a side-by-side view of a small
+    # window) one centred beside the outline covered the ball and its marks
+    result = shot_data[2]
+    (cx, cy), radius = mark_circle(result)
+    with qtbot.waitExposed(canvas):
+        canvas.show()
+    for span in (12.0, 40.0):  # the view spans this many ball radii
+        canvas.view.setRange(xRange=(cx - span * radius / 2, cx + span * radius / 2),
+                             yRange=(cy - span * radius / 2, cy + span * radius / 2),
+                             padding=0)
+        qtbot.wait(10)
+        for side in ("upper", "lower"):
+            label = canvas.overlay.labels[side]
+            box = label.mapRectToView(label.boundingRect())
+            nearest_x = min(max(cx, box.left()), box.right())
+            nearest_y = min(max(cy, box.top()), box.bottom())
+            assert math.hypot(nearest_x - cx, nearest_y - cy) >= 1.2 * radius, (span, side)
+
+
 def test_side_by_side_shows_the_fields_in_a_linked_view(canvas, qtbot):
     with qtbot.waitExposed(canvas):
         canvas.show()

@@ -143,7 +143,9 @@ class MarkHandle(pg.TargetItem):
 
 
 PROPOSAL_RADIUS = 1.16  # proposal marks sit at this multiple of the ball radius
-LABEL_RADIUS = 1.55  # angle labels further out, clear of the proposal mark
+#: Angle labels start this far out (radii), clear of the proposal mark, and reach outward from
+#: there: a label of fixed size on screen never covers a ball drawn small (side by side)
+LABEL_RADIUS = 1.3
 
 
 class Overlay:
@@ -251,6 +253,8 @@ class Overlay:
             tick_x += [cx + 0.82 * r * ux, cx + 1.12 * r * ux]
             tick_y += [cy + 0.82 * r * uy, cy + 1.12 * r * uy]
             label.setText(f"{SIDE_LETTERS[side]} {angle_text(angle)}")
+            # the corner or edge nearest the ball at the anchor point (y is down on screen)
+            label.setAnchor((0.5 - 0.5 * ux, 0.5 - 0.5 * uy))
             label.setPos(cx + LABEL_RADIUS * r * ux, cy + LABEL_RADIUS * r * uy)
             label.setVisible(True)
             if handle is not None:
