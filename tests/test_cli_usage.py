@@ -293,8 +293,15 @@ def test_a_sheet_that_cannot_be_written_says_why_in_one_line(session_path, tmp_p
     out = tmp_path / "out.pdf"
     assert main(["sheet", str(session_path), "-o", str(out)]) == 1
     # the system's reason, and nothing of Qt's own ("QPainter::begin(): Returned false")
-    assert capsys.readouterr().err == (f"wakeline: {out}: cannot write the PDF here "
-                                       "(Permission denied)\n")
+    assert capsys.readouterr().err == (f"wakeline: {out}: cannot write here (no permission to "
+                                       "write in this folder)\n")
+    # a folder that is not there is named, as for the table, not made
+    monkeypatch.undo()
+    gone = tmp_path / "no" / "such" / "out.pdf"
+    assert main(["sheet", str(session_path), "-o", str(gone)]) == 1
+    assert capsys.readouterr().err == (f"wakeline: {gone}: cannot write here (the folder does "
+                                       "not exist)\n")
+    assert not (tmp_path / "no").exists()
 
 
 def test_settings_read_back_from_a_session_are_taken_as_they_were_stored():

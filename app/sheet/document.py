@@ -38,7 +38,7 @@ from app.sheet.kit import DPI, Pages, ensure_gui_application
 from app.sheet.shot_panel import paint_shot, panel_cells
 from core import WakelineError
 from core.store import ProcessState
-from core.store.files import atomic_write
+from core.store.files import atomic_write, failure_cause
 
 SESSION_RANGE = "session"  # one vorticity colour range for every panel, from the sheet's shots
 
@@ -121,13 +121,11 @@ def make_sheet(
              + shot_page_count(len(records), per_page))
     out_path = Path(out_path)
     name = getattr(session, "name", "") or Path(session.path).stem
-    _make_folder(out_path.parent)
     with atomic_write(out_path, suffix=".part") as tmp:
         try:  # the system's reason, where Qt would only print a warning of its own
             tmp.open("wb").close()
-        except OSError as exc:
-            raise WakelineError(f"{out_path}: cannot write the PDF here "
-                                f"({exc.strerror or exc})") from None
+        except OSError as exc:  # worded as the table's and the pair's outputs are
+            raise WakelineError(f"{out_path}: cannot write here ({failure_cause(exc)})") from None
         writer = _writer(tmp, name)
         painter = QtGui.QPainter()
         if not painter.begin(writer):
@@ -155,13 +153,6 @@ def sheet_conditions(session, records) -> tuple[list[str], list]:
     stored = session.conditions_by() if hasattr(session, "conditions_by") else None
     by = stored if stored is not None else default_columns(records)
     return by, (group_conditions(records, by) if by else [])
-
-
-def _make_folder(folder: Path) -> None:
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise WakelineError(f"{folder}: cannot create folder ({exc.strerror})") from None
 
 
 def _writer(path: Path, title: str) -> QtGui.QPdfWriter:
