@@ -115,7 +115,7 @@ def remeasure_ball(
 def _after_piv(vf: VectorField, raw, conditioned, balls, glare, settings: ShotSettings,
                clock) -> ShotResult:
     """The stages after the main correlation: ball stages (when there is a ball), fields."""
-    from core.ball import ball_size_problem
+    from core.rulebook import ball_size_problem
 
     warnings = [p for p in [ball_size_problem(settings.ball_type, settings.ball_diameter_mm)] if p]
     result = ShotResult(field=vf, settings=settings, scale_mm_per_px=settings.scale_mm_per_px,

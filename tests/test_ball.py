@@ -15,7 +15,6 @@ from core import WakelineError
 from core.ball import (
     ball_displacement,
     ball_mask,
-    ball_size_problem,
     find_ball,
     find_balls,
     flight_from_balls,
@@ -25,6 +24,7 @@ from core.ball import (
     scale_from_ball,
 )
 from core.results import BallFit, VectorField
+from core.rulebook import ball_size_problem
 from core.synth_shot import ball_shot
 
 

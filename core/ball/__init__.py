@@ -50,7 +50,6 @@ from core.ball.flight import (
 )
 from core.ball.outline import find_ball, find_balls
 from core.ball.sizes import ball_mask, nominal_diameter_mm, scale_from_ball
-from core.rulebook import ball_size_problem
 
 __all__ = [
     "BALL_CIRCUMFERENCE_MM",
@@ -62,7 +61,6 @@ __all__ = [
     "air_direction",
     "ball_displacement",
     "ball_mask",
-    "ball_size_problem",
     "find_ball",
     "find_balls",
     "flight_from_balls",
