@@ -8,7 +8,7 @@ generator's circle. Printed per row: frames found, the largest centre and radius
 share within the issue's limits (0.3 px with a lit rim, 1 px without one) and the share whose
 errors lie within three of the fit's own standard uncertainties (centre per axis, radius).
 
-Run (about a minute on 2 cores):
+Run (about five minutes on 2 cores):
 
     .venv/bin/python benchmarks/bench_ball.py            # table to stdout
     .venv/bin/python benchmarks/bench_ball.py --write    # and into docs/ball_accuracy.md
@@ -131,7 +131,7 @@ def summary(records: list[dict]) -> str:
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
-    parser.add_argument("--seeds", type=int, default=5, help="shots per row (default 5)")
+    parser.add_argument("--seeds", type=int, default=20, help="shots per row (default 20)")
     parser.add_argument("--workers", type=int, default=2)
     parser.add_argument("--write", action="store_true", help="write docs/ball_accuracy.md")
     args = parser.parse_args()
