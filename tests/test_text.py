@@ -104,6 +104,13 @@ def test_powers_of_ten_and_microseconds_are_written_as_printed():
     summary = ShotSummary.from_dict({"reynolds": {"value": 143_210.0, "air_temp_c": 19.5}})
     assert reynolds_text(summary).startswith("1.43 × 10⁵ (air at 19.5 °C)")
     assert "^" not in reynolds_text(summary)
+    # no temperature given: the 20 deg C the number assumes is named as assumed
+    assumed = ShotSummary.from_dict({"reynolds": {"value": 143_210.0, "air_temp_c": 20.0},
+                                     "settings": {"air_temp_c": None}})
+    assert reynolds_text(assumed).startswith("1.43 × 10⁵ (air at 20 °C, assumed)")
+    given = ShotSummary.from_dict({"reynolds": {"value": 143_210.0, "air_temp_c": 20.0},
+                                   "settings": {"air_temp_c": 20.0}})
+    assert reynolds_text(given).startswith("1.43 × 10⁵ (air at 20 °C)")
     assert scientific_text(2.5e-7) == "2.50 × 10⁻⁷" and scientific_text(512.0) == "512"
     # three figures always, as the conditions' ranges write them ("1.4 × 10⁵" beside "1.40")
     assert scientific_text(1.4e5) == "1.40 × 10⁵"

@@ -257,9 +257,11 @@ def reynolds_text(summary: ShotSummary) -> str:
     if summary.reynolds is None:
         return MISSING
     temp = (summary.data.get("reynolds") or {}).get("air_temp_c")
+    settings = summary.data.get("settings")
+    assumed = isinstance(settings, dict) and settings.get("air_temp_c") is None
     out = scientific_text(summary.reynolds)
-    if temp is not None:
-        out += f" (air at {temp:g} °C)"
+    if temp is not None:  # the default when no temperature was given: say so
+        out += f" (air at {temp:g} °C{', assumed' if assumed else ''})"
     return out + (f"; {summary.regime}" if summary.regime else "")
 
 
