@@ -117,7 +117,8 @@ def _after_piv(vf: VectorField, raw, conditioned, balls, glare, settings: ShotSe
     """The stages after the main correlation: ball stages (when there is a ball), fields."""
     from core.rulebook import ball_size_problem
 
-    warnings = [p for p in [ball_size_problem(settings.ball_type, settings.ball_diameter_mm)] if p]
+    size = ball_size_problem(settings.ball_type, settings.ball_diameter_mm)
+    warnings = [size] if size else []
     result = ShotResult(field=vf, settings=settings, scale_mm_per_px=settings.scale_mm_per_px,
                         warnings=warnings, stage_seconds=clock.seconds)
     if balls is not None:

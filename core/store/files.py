@@ -176,6 +176,21 @@ def read_csv_table(path: Path, what: str) -> tuple[list[str], Iterator[list[str]
     return [h.strip() for h in next(reader, [])], reader
 
 
+#: How alike (difflib's ratio) a CSV column's name must be to one wakeline reads to be pointed
+#: out as a likely misspelling of it (``seam_angle`` for ``seam_deg`` is 0.67).
+NEAR_MISS = 0.6
+
+
+def near_miss_hint(wanted: list[str], names: list[str]) -> str:
+    """`` (is 'ball_diamter_mm' meant?)`` for those of ``names`` that nearly spell a wanted
+    column, or ""."""
+    import difflib
+
+    close = [name for column in wanted
+             for name in difflib.get_close_matches(column, names, n=1, cutoff=NEAR_MISS)]
+    return f" (is {' or '.join(repr(c) for c in close)} meant?)" if close else ""
+
+
 #: Why a file cannot be written, in plain words, by error number.
 WRITE_FAILURES = {
     errno.EROFS: "read-only file system",

@@ -8,7 +8,7 @@ from pathlib import Path
 
 from core import WakelineError
 from core.air import temperature_problem
-from core.store.files import read_csv_table
+from core.store.files import NEAR_MISS, near_miss_hint, read_csv_table
 
 REQUIRED_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm")
 NUMBER_COLUMNS = (
@@ -19,9 +19,6 @@ TEXT_COLUMNS = ("ball_type", "notes")
 #: Every column wakeline reads by name (the others are kept as text metadata).
 KNOWN_COLUMNS = (*REQUIRED_COLUMNS, *NUMBER_COLUMNS, *TEXT_COLUMNS, "surface", "camera")
 MANIFEST_NAME = "shots.csv"
-#: How alike (difflib's ratio) a column name must be to one wakeline reads to be pointed out as
-#: a likely misspelling of it (``seam_angle`` for ``seam_deg`` is 0.67).
-NEAR_MISS = 0.6
 
 
 def column_notes(header: list[str]) -> list[str]:
@@ -60,7 +57,8 @@ def read_manifest(path: Path) -> tuple[list[str], list[tuple[int, dict, str]]]:
     if missing:
         raise WakelineError(f"{path}: missing column{'s' if len(missing) > 1 else ''} "
                             + ", ".join(repr(c) for c in missing)
-                            + (_separator_hint(header) or _near_miss_hint(missing, header)))
+                            + (_separator_hint(header) or near_miss_hint(
+                                missing, [n for n in header if n not in KNOWN_COLUMNS])))
     rows = []
     end_of_last = reader.line_num
     for cells in _csv_rows(reader, path):
@@ -86,16 +84,6 @@ def _separator_hint(header: list[str]) -> str:
                 return (f" (the header is separated by {name}; {MANIFEST_NAME} must be "
                         "comma-separated, with '.' as the decimal mark)")
     return ""
-
-
-def _near_miss_hint(missing: list[str], header: list[str]) -> str:
-    """`` (is 'ball_diamter_mm' meant?)`` for header names that nearly spell a missing column."""
-    import difflib
-
-    unknown = [name for name in header if name not in KNOWN_COLUMNS]
-    close = [name for column in missing
-             for name in difflib.get_close_matches(column, unknown, n=1, cutoff=NEAR_MISS)]
-    return f" (is {' or '.join(repr(c) for c in close)} meant?)" if close else ""
 
 
 def _csv_rows(reader, path: Path):

@@ -16,7 +16,7 @@ from pathlib import Path
 
 from core import WakelineError
 from core.geometry import SIDES
-from core.store.files import json_ready, now_utc, read_csv_table
+from core.store.files import json_ready, near_miss_hint, now_utc, read_csv_table
 from core.store.records import ReviewStatus, damage_reason
 from core.store.table import FORMULA_STARTS
 
@@ -165,22 +165,13 @@ def read_review_csv(path: Path, shot_ids, name: str | None = None) -> ReviewLaye
                        for p in picks.values()):
         raise WakelineError(
             f"{path}: no column " + " or ".join(repr(c) for c in lacking)
-            + _near_miss(lacking, header) + ": the decided shots' final angles would be lost; "
+            + near_miss_hint(lacking, header) + ": the decided shots' final angles would be lost; "
             "nothing was imported")
     if not name:
         # the shots still to review have no reviewer: the one name of the others
         names = {p.who for p in picks.values() if p.who}
         name = names.pop() if len(names) == 1 else path.stem
     return ReviewLayer(name.strip(), path.name, now_utc(), picks)
-
-
-def _near_miss(wanted: list[str], header: list[str]) -> str:
-    """`` (is 'upper_final' meant?)`` for header names that nearly spell a wanted column."""
-    import difflib
-
-    close = [name for column in wanted
-             for name in difflib.get_close_matches(column, header, n=1, cutoff=0.6)]
-    return f" (is {' or '.join(repr(c) for c in close)} meant?)" if close else ""
 
 
 def _unescaped(text: str) -> str:
