@@ -1,23 +1,28 @@
-"""The ensemble's gain over single shots on synthetic repeat launches (``tests/data/
-repeat_shots.py``: a known mean layer, scatter between launches).
+"""The ensemble's gain over single shots, and how often its uncertainty covers the truth, on
+synthetic repeat launches (``tests/data/repeat_shots.py``: a known mean layer, scatter between
+launches) of either family.
 
-For each condition (a seed), the condition's separation (one layer fitted to all its launches
-aligned on the ball, ``core.ensemble.condition_sides``) is compared with the truth (the mean of
-the launches' prescribed angles), and each launch's own proposal (``core.shot.measure_shot``)
-with that launch's truth. Prints per condition and side the errors, the interval and whether
-it covers the truth, then the medians, the gain (median single-shot error over median ensemble
+For each condition (a seed) every launch is measured as a shot (``core.shot.measure_shot``),
+the launches are aligned on their *measured* balls and flights as a session's are
+(``core.ensemble.ensemble_view``; ``--true-poses``: on the generator's), and the condition's
+separation (one layer fitted to all its launches) is compared with the truth (the mean of the
+launches' angles); each launch's own proposal with that launch's truth, and the launches' mean
+with the condition's. Prints per condition and side the errors, the interval and whether it
+covers the truth, then the medians, the gain (median single-shot error over median ensemble
 error) and the coverage. ``--radius`` sets the ball's size in the picture: the ensemble helps
-where single shots see too few particle images beside the wall.
+where single shots see too few particle images beside the wall. ``--out`` writes one JSON line
+per condition and side (the proposals, their budgets and the truths).
 
-    .venv/bin/python benchmarks/bench_ensemble.py [--conditions 6] [--shots 6] [--radius 48]
+    .venv/bin/python benchmarks/bench_ensemble.py [--family kinematic|physical]
+        [--conditions 6] [--shots 6] [--radius 48] [--true-poses] [--out records.jsonl]
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import sys
 import time
-from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -25,68 +30,98 @@ import numpy as np
 ROOT = Path(__file__).resolve().parent.parent
 sys.path[:0] = [str(ROOT), str(ROOT / "tests")]
 
-from data.repeat_shots import repeat_launches
+from data.repeat_shots import physical_repeat_launches, repeat_launches
 
-from core.ensemble import (
-    ENSEMBLE_PASSES,
-    FIELD_MARGIN_PX,
-    SIDES,
-    common_frame,
-    condition_sides,
-    to_common_frame,
-)
-from core.piv import correlate_ensemble
+from core.conditions import Spread
+from core.ensemble import SIDES, ShotPose, ensemble_view
 from core.separation import COVERAGE_K
-from core.settings import PivSettings
 from core.shot import ShotSettings, measure_shot
+from core.summary import ShotSummary
+
+
+def launches_of(family: str, shots: int, seed: int, radius: float):
+    if family == "physical":
+        shape = (768, 1024) if radius <= 160 else (round(5.2 * radius), round(7.0 * radius))
+        return physical_repeat_launches(shots, seed=seed, radius_px=radius, shape=shape)
+    shape = (288, 416) if radius <= 48 else (round(6 * radius), round(8.5 * radius))
+    return repeat_launches(shots, seed=seed, radius_px=radius, shape=shape)
 
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--family", choices=("kinematic", "physical"), default="kinematic")
     parser.add_argument("--conditions", type=int, default=6)
     parser.add_argument("--shots", type=int, default=6)
     parser.add_argument("--first-seed", type=int, default=0)
     parser.add_argument("--radius", type=float, default=48.0, help="ball radius, px")
+    parser.add_argument("--true-poses", action="store_true",
+                        help="align on the generator's balls and flights, not the measured ones")
+    parser.add_argument("--out", type=Path, help="JSON lines, one per condition and side")
     args = parser.parse_args()
-    shape = (288, 416) if args.radius <= 48 else (round(6 * args.radius), round(8.5 * args.radius))
     ens_err, single_err, covered, widths = [], [], [], []
+    mean_err, mean_covered = [], []
+    out = args.out.open("w") if args.out else None
     started = time.perf_counter()
     for seed in range(args.first_seed, args.first_seed + args.conditions):
-        launches = repeat_launches(args.shots, seed=seed, radius_px=args.radius, shape=shape)
-        common = common_frame([x.pose for x in launches])
-        pairs = [to_common_frame(x.frame_a, x.frame_b, x.pose, common) for x in launches]
-        mask = ~common.outside_ball(FIELD_MARGIN_PX)
-        field = correlate_ensemble([(a, b, u | mask, u | mask) for a, b, u in pairs],
-                                   replace(PivSettings(), passes=ENSEMBLE_PASSES))
-        results = [measure_shot(x.frame_a, x.frame_b, ShotSettings(
-            dt_s=x.pose.dt_s, ball_diameter_mm=71.6)) for x in launches]
-        singles = {side: [getattr(r.separation, side).angle_deg for r in results]
-                   for side in SIDES}
-        sides = condition_sides(pairs, common, field, singles)
-        line = [f"seed {seed:3d}"]
+        launches = launches_of(args.family, args.shots, seed, args.radius)
+        shots, summaries = [], []
+        for launch in launches:
+            result = measure_shot(launch.frame_a, launch.frame_b, ShotSettings(
+                dt_s=launch.pose.dt_s, ball_diameter_mm=71.6))
+            summary = ShotSummary.from_dict(result.summary())
+            pose = ShotPose.from_summary(launch.pose.shot_id, summary)
+            if pose is not None and args.true_poses:
+                pose = launch.pose
+            if pose is not None:  # as a session leaves out a shot without ball and flight
+                shots.append((pose, launch.frame_a, launch.frame_b))
+                summaries.append((launch, summary))
+        singles = {side: [s.side(side) for _, s in summaries] for side in SIDES}
+        view = ensemble_view(shots, singles=singles)
+        line = [f"seed {seed:3d} ({len(shots)} aligned)"]
         for side in SIDES:
-            truth = float(np.mean([x.true_deg(side) for x in launches]))
-            proposal = sides[side]
+            truth = float(np.mean([x.true_deg(side) for x, _ in summaries]))
+            proposal = getattr(view.separation, side)
             error = proposal.angle_deg - truth if proposal.angle_deg is not None else np.nan
-            alone = [np.nan if a is None else a - x.true_deg(side)
-                     for a, x in zip(singles[side], launches, strict=True)]
+            alone = [np.nan if s.proposed_deg(side) is None
+                     else s.proposed_deg(side) - x.true_deg(side) for x, s in summaries]
             ens_err.append(abs(error))
             single_err += [abs(s) for s in alone]
+            mean = Spread.of([s.proposed_deg(side) for _, s in summaries],  # the conditions table's
+                             [s.uncertainty_deg(side) for _, s in summaries])
+            if mean.low is not None:
+                mean_err.append(abs(mean.mean - truth))
+                mean_covered.append(bool(mean.low <= truth <= mean.high))
             covered.append(bool(abs(error) <= (proposal.uncertainty_deg or 0.0)))
             widths.append(proposal.uncertainty_deg or np.nan)
             line.append(f"{side} ensemble {error:+5.2f} ± {proposal.uncertainty_deg or 0:4.1f} "
                         f"{'covers' if covered[-1] else 'MISSES'}, single shots median "
-                        f"|error| {np.nanmedian(np.abs(alone)):4.1f}")
+                        f"|error| {np.nanmedian(np.abs(alone)):4.1f}, their mean "
+                        f"{'-' if mean.mean is None else f'{mean.mean - truth:+5.2f}'}")
+            if out:
+                out.write(json.dumps({
+                    "family": args.family, "seed": seed, "side": side, "radius_px": args.radius,
+                    "true_poses": args.true_poses,
+                    "truth_deg": truth, "angle_deg": proposal.angle_deg,
+                    "uncertainty_deg": proposal.uncertainty_deg, "budget": proposal.budget,
+                    "singles": [{"truth_deg": x.true_deg(side), "angle_deg": s.proposed_deg(side),
+                                 "uncertainty_deg": s.uncertainty_deg(side),
+                                 "budget": s.side(side).budget} for x, s in summaries],
+                }) + "\n")
+                out.flush()
         print(" | ".join(line), flush=True)
     ens, single = np.nanmedian(ens_err), np.nanmedian(single_err)
-    print(f"\n{args.conditions} conditions x {args.shots} launches, radius {args.radius:g} px, "
-          f"both sides ({time.perf_counter() - started:.0f} s)")
+    print(f"\n{args.family} family: {args.conditions} conditions x {args.shots} launches, "
+          f"radius {args.radius:g} px, both sides ({time.perf_counter() - started:.0f} s)")
     print(f"median |error|: ensemble {ens:.2f} deg, single-shot proposals {single:.2f} deg"
           f"  -> gain x{single / ens:.1f}")
     print(f"largest ensemble |error| {np.nanmax(ens_err):.2f} deg; interval (k = {COVERAGE_K:g}) "
-          "median "
-          f"half-width {np.nanmedian(widths):.1f} deg covers the truth on "
+          f"median half-width {np.nanmedian(widths):.1f} deg covers the truth on "
           f"{sum(covered)} of {len(covered)} sides")
+    if mean_err:
+        print(f"the launches' mean (as the conditions table gives it): median |error| "
+              f"{np.median(mean_err):.2f} deg, largest {max(mean_err):.2f} deg; its 95 % interval "
+              f"(Student t on the launches' spread) covers the truth on {sum(mean_covered)} of "
+              f"{len(mean_covered)} sides")
 
 
 if __name__ == "__main__":

@@ -6,8 +6,9 @@ each side the mean, sample standard deviation and confidence interval of the fin
 analyst's where there is one, else the proposal: ``ShotRecord.shown_deg``), the same for the
 per-shot difference upper - lower and for the wake deflection, and the range of the shots'
 Reynolds numbers. The interval is Student's t on the shot-to-shot spread,
-``mean +- t(0.975, n - 1) sd / sqrt(n)`` (``scipy.stats.t``): it treats the launches as
-independent draws of one condition and needs at least two.
+``mean +- t(0.975, n - 1) sd / sqrt(n)`` (``scipy.stats.t``), which treats the launches as
+independent draws of one condition, or the shots' own mean uncertainty over ``sqrt(n)``
+(the proposals'), whichever is wider (:class:`Spread`).
 """
 
 from __future__ import annotations
@@ -36,25 +37,43 @@ NO_VALUE = "(none)"
 class Spread:
     """Mean, sample standard deviation and ``CONFIDENCE`` interval of some values (deg).
 
-    ``sd`` needs two values, the interval two as well; None where there are too few."""
+    The interval's half-width is the larger of Student's t on the values' spread and the
+    values' own mean uncertainty over the square root of their number (``by_shots`` says the
+    latter set it): the spread alone misses an error the shots share, which the repeats cannot
+    show (on small balls in the picture the launches agreed with each other and missed the
+    condition together; docs/separation_accuracy.md, "The ensemble"). ``sd`` needs two values;
+    one value has an interval only from its own uncertainty; None where there is none."""
 
     n: int = 0
     mean: float | None = None
     sd: float | None = None
     low: float | None = None
     high: float | None = None
+    by_shots: bool = False
 
     @classmethod
-    def of(cls, values) -> Spread:
-        values = np.asarray([v for v in values if v is not None and math.isfinite(v)], float)
-        n = int(values.size)
+    def of(cls, values, own=None) -> Spread:
+        """``own``: the values' own expanded uncertainties, in the same order (None where not
+        known); without them the interval is the spread's alone."""
+        values = list(values)
+        own = [None] * len(values) if own is None else list(own)
+        pairs = [(v, u) for v, u in zip(values, own, strict=True)
+                 if v is not None and math.isfinite(v)]
+        n = len(pairs)
         if n == 0:
             return cls()
-        mean = float(values.mean())
+        data = np.array([v for v, _ in pairs], float)
+        known = [u for _, u in pairs if u is not None and math.isfinite(u) and u > 0]
+        mean = float(data.mean())
+        by_shots = float(np.mean(known)) / math.sqrt(n) if known else 0.0
         if n == 1:
-            return cls(1, mean)
-        sd = float(values.std(ddof=1))
+            if not known:
+                return cls(1, mean)
+            return cls(1, mean, None, mean - by_shots, mean + by_shots, True)
+        sd = float(data.std(ddof=1))
         half = float(stats.t.ppf(0.5 + CONFIDENCE / 2.0, n - 1)) * sd / math.sqrt(n)
+        if by_shots > half:
+            return cls(n, mean, sd, mean - by_shots, mean + by_shots, True)
         return cls(n, mean, sd, mean - half, mean + half)
 
     @property
@@ -138,9 +157,11 @@ def usable(record: ShotRecord) -> bool:
 
 def _condition(values: dict[str, str], members: list[ShotRecord]) -> Condition:
     kept = [r for r in members if usable(r)]
-    sides = {side: Spread.of(r.shown_deg(side) for r in kept) for side in SIDES}
-    difference = Spread.of(_difference(r) for r in kept)
-    wake = Spread.of(r.wake_deflection_deg() for r in kept)
+    sides = {side: Spread.of([r.shown_deg(side) for r in kept],
+                             [r.uncertainty_deg(side) for r in kept]) for side in SIDES}
+    difference = Spread.of([_difference(r) for r in kept], [_both(r) for r in kept])
+    wake = Spread.of([r.wake_deflection_deg() for r in kept],
+                     [r.wake_deflection_uncertainty_deg() for r in kept])
     reynolds = [v for v in (reynolds_number(r) for r in kept) if v is not None]
     return Condition(values, [r.shot_id for r in members], [r.shot_id for r in kept], sides,
                      difference, wake, (min(reynolds), max(reynolds)) if reynolds else None)
@@ -149,6 +170,12 @@ def _condition(values: dict[str, str], members: list[ShotRecord]) -> Condition:
 def _difference(record: ShotRecord) -> float | None:
     upper, lower = record.shown_deg("upper"), record.shown_deg("lower")
     return None if upper is None or lower is None else upper - lower
+
+
+def _both(record: ShotRecord) -> float | None:
+    """The uncertainty of upper - lower from the two sides' (root sum of squares)."""
+    upper, lower = record.uncertainty_deg("upper"), record.uncertainty_deg("lower")
+    return None if upper is None or lower is None else math.hypot(upper, lower)
 
 
 def reynolds_number(record: ShotRecord) -> float | None:

@@ -15,8 +15,9 @@ position, size in the picture, flight direction and particles. This module
 3. **proposes the condition's separation**: one layer model (``core.layer_model``) fitted to
    the particle images of all the shots at once (``core.separation.fit_shots_side``), with the
    stream outside the layer from the ensemble's mean flow. The uncertainty is the fit's own
-   budget, as for one shot, and the spread of the launches' own proposals over the square root
-   of their number when they are known (the condition's mean, not one launch).
+   budget, as for one shot, with the launches' own proposals when they are known: their spread,
+   how far their mean lies from the condition's pick, and their circles' and flights' entries
+   (:func:`launch_entries`).
 
 Where single shots hold too few particle images beside the wall to place a layer (small balls in
 the picture, sparse seeding), the shots together can: on synthetic repeats of a 48 px ball the
@@ -191,8 +192,8 @@ def condition_sides(pairs, common: CommonFrame, field, singles=None) -> dict[str
     field : VectorField
         The ensemble's mean flow in the common frame (ball frame, px per pair).
     singles : dict, optional
-        ``side -> list of the launches' own proposals (deg)``: their spread over the square root
-        of their number joins the uncertainty (as a standard uncertainty, "launches").
+        ``side -> list of the launches' own proposals`` (``SideProposal``, in the order of
+        ``pairs``): they join the uncertainty (:func:`launch_entries`).
     """
     from core.separation import COVERAGE_K, BallFrame, fit_shots_side
     from core.wake import wake_direction
@@ -206,15 +207,45 @@ def condition_sides(pairs, common: CommonFrame, field, singles=None) -> dict[str
     for side in SIDES:
         proposal = fit_shots_side(frames, ball, field, (0.0, 0.0), side,
                                   final_deg=deflection if side == "upper" else -deflection)
-        angles = [a for a in (singles or {}).get(side, []) if a is not None]
-        if proposal.angle_deg is not None and len(angles) >= 2:
-            budget = dict(proposal.budget or {})
-            budget["launches"] = float(np.std(angles, ddof=1) / math.sqrt(len(angles)))
+        launches = [p for p in (singles or {}).get(side, []) if p.angle_deg is not None]
+        if proposal.angle_deg is not None and len(launches) >= 2:
+            budget = {**(proposal.budget or {}), **launch_entries(proposal.angle_deg, launches)}
             standard = math.sqrt(sum(v * v for v in budget.values()))
             proposal = replace(proposal, uncertainty_deg=round(COVERAGE_K * standard, 2),
                                budget={k: round(v, 3) for k, v in budget.items()})
         sides[side] = proposal
     return sides
+
+
+def launch_entries(angle_deg: float, launches: list[SideProposal]) -> dict[str, float]:
+    """The budget entries the launches' own proposals give the condition's (standard
+    uncertainties, deg):
+
+    - ``launches``: the launches' spread over the square root of their number (the condition's
+      mean, not one launch).
+    - ``launches' mean``: how far the condition's angle lies from the launches' mean, less what
+      their spread explains (``sqrt(max(0, d^2 - sd^2 / n))``). The two are estimates of one
+      angle from the same images, by one layer fitted to all and by one to each; like the
+      model-form entries, the move from one to the other counts. The fit's own entries treat
+      the shots' images as one data set and miss that every launch pulls the one layer its own
+      way.
+    - ``circle`` and ``flight``: the shots are aligned on their own measured circles and
+      flights, whose errors are independent from shot to shot: the root mean square of the
+      launches' own entries over the square root of their number.
+
+    The form was chosen on the physical family's repeat launches and checked on the kinematic
+    family's (docs/separation_accuracy.md, "The ensemble").
+    """
+    count = len(launches)
+    angles = np.array([p.angle_deg for p in launches], float)
+    spread = float(np.std(angles, ddof=1)) / math.sqrt(count)
+    apart = float(np.mean(angles)) - angle_deg
+    entries = {"launches": spread,
+               "launches' mean": math.sqrt(max(0.0, apart * apart - spread * spread))}
+    for name in ("circle", "flight"):
+        moves = np.array([(p.budget or {}).get(name, 0.0) for p in launches], float)
+        entries[name] = float(np.sqrt(np.mean(moves**2) / count))
+    return entries
 
 
 # --- the whole view -------------------------------------------------------------------------------
@@ -252,7 +283,7 @@ def ensemble_view(shots, settings: PivSettings | None = None,
     progress : callable, optional
         ``progress(done, total, message)``; returning True stops (``core.piv.Cancelled``).
     singles : dict, optional
-        ``side -> the launches' own proposals (deg)`` (see :func:`condition_sides`).
+        ``side -> the launches' own proposals`` (see :func:`condition_sides`).
 
     Raises
     ------
@@ -337,7 +368,7 @@ def session_ensemble(session, shot_ids, settings: PivSettings | None = None,
         why = "; ".join(f"{s}: {r}" for s, r in left_out.items()) or "no shots given"
         raise WakelineError(f"ensemble: no shot to align ({why})")
     shots = [(pose, *session.load_frames(pose.shot_id)) for pose in chosen]
-    singles = {side: [session[pose.shot_id].summary.proposed_deg(side) for pose in chosen]
+    singles = {side: [session[pose.shot_id].summary.side(side) for pose in chosen]
                for side in SIDES}
     view = ensemble_view(shots, settings, progress, singles)
     view.left_out = left_out

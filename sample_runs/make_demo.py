@@ -57,7 +57,7 @@ SEED = 20261130
 #   (seam straight up the flight) and beyond 40 deg (seam too far round to trip in time).
 # The synthetic family has no tripped layer: it reaches a later separation through a surface
 # velocity between the measured one (separation at -8.9 deg) and potential flow's (+13.6 deg),
-# which ``share_for`` chooses so that the layer separates at the model's angle.
+# which ``weight_for_separation`` chooses so that the layer separates at the model's angle.
 LAMINAR_DEG = -8.9
 SEAM_DELAY_MAX_DEG = 20.0
 SEAM_DELAY_PEAK_DEG = 27.0
@@ -88,26 +88,6 @@ class DemoShot:
         return BALL_DIAMETER_MM / (2.0 * RADIUS_PX)
 
 
-def separation_deg(share: float) -> float:
-    """Where the family's layer separates (deg from the plane, + rearward) at this share of the
-    measured surface velocity (1: measured, 0: potential flow)."""
-    from core.synth_physical.boundary_layer import thwaites_mangler
-
-    return math.degrees(thwaites_mangler(share).t_sep) - 90.0
-
-
-def share_for(angle_deg: float) -> float:
-    """The measured share whose layer separates at ``angle_deg`` (bisection; monotonic)."""
-    low, high = 0.0, 1.0  # separation falls from +13.6 deg (0) to -8.9 deg (1)
-    for _ in range(24):
-        mid = 0.5 * (low + high)
-        if separation_deg(mid) > angle_deg:
-            low = mid
-        else:
-            high = mid
-    return round(0.5 * (low + high), 4)
-
-
 def seam_side_deg(seam_deg: float) -> float:
     """Separation angle (deg from the plane, + rearward) on the seam side of the model."""
     delay = SEAM_DELAY_MAX_DEG * math.exp(-(((seam_deg - SEAM_DELAY_PEAK_DEG)
@@ -117,6 +97,8 @@ def seam_side_deg(seam_deg: float) -> float:
 
 def _launch(rng, index: int, seam: float, ball: str, notes: str) -> DemoShot:
     """One launch: the model's separation plus launch-to-launch scatter, drawn reproducibly."""
+    from core.synth_physical.boundary_layer import weight_for_separation
+
     shot_id = f"sw{index:02d}"
     upper = LAMINAR_DEG + abs(rng.normal(0.0, 0.8))
     lower = float(np.clip(seam_side_deg(seam) + rng.normal(0.0, 1.2), LAMINAR_DEG, 13.0))
@@ -132,7 +114,7 @@ def _launch(rng, index: int, seam: float, ball: str, notes: str) -> DemoShot:
         "flight_deg": round(180.0 + rng.normal(0.0, 0.8), 2),
         "center_px": (round(0.28 * width + rng.normal(0.0, 10.0), 1),
                       round(0.5 * (height - 1) + rng.normal(0.0, 18.0), 1)),
-        "measured_share": (share_for(upper), share_for(lower)),
+        "measured_share": (weight_for_separation(upper), weight_for_separation(lower)),
         "departure_deg": (round(rng.uniform(8.0, 14.0), 1), round(rng.uniform(8.0, 14.0), 1)),
         "turning_radii": (round(rng.uniform(0.8, 1.3), 2), round(rng.uniform(0.8, 1.3), 2)),
         "spreading_coefficient": round(rng.uniform(0.16, 0.20), 3),

@@ -29,6 +29,22 @@ def test_spread_is_the_student_t_interval_of_the_shot_to_shot_values():
     assert Spread.of([4.0]) == Spread(1, 4.0) and Spread.of([]) == Spread()
 
 
+def test_repeats_that_agree_keep_the_shots_own_uncertainty():
+    # three shots within 0.2 deg of each other, each proposal uncertain by 6 deg: the spread's
+    # interval (t(0.975, 2) 0.2 / sqrt(3) = 0.50, Student's t table) would claim the mean to
+    # half a degree; the shots' own mean uncertainty over sqrt(3) (3.46) is wider and sets it.
+    # A shared error that the repeats cannot show (docs/separation_accuracy.md, "The ensemble")
+    agree = Spread.of([10.0, 10.2, 10.4], [6.0, 6.0, 6.0])
+    assert agree.by_shots and agree.half_width == pytest.approx(6.0 / math.sqrt(3))
+    # the spread wider than the shots' own: the t interval, as without them
+    scatter = Spread.of([1.0, 2.0, 3.0], [0.5, None, 0.7])
+    assert not scatter.by_shots and scatter.half_width == pytest.approx(4.3027 / math.sqrt(3),
+                                                                       abs=1e-4)
+    # one shot: its own interval; a missing value drops its uncertainty with it
+    one = Spread.of([4.0, None], [1.5, 9.0])
+    assert (one.n, one.low, one.high, one.by_shots) == (1, 2.5, 5.5, True)
+
+
 def test_value_text_makes_one_condition_of_equal_numbers():
     assert value_text(30) == value_text(30.0) == value_text("30.0") == "30"
     assert value_text(" cricket ") == "cricket"

@@ -16,11 +16,12 @@ from core.ensemble import (
     SIDES,
     common_frame,
     condition_sides,
+    launch_entries,
     session_ensemble,
     to_common_frame,
 )
 from core.piv import correlate_ensemble, correlate_pair
-from core.results import BallFit, Flight
+from core.results import BallFit, Flight, SideProposal
 from core.settings import PivPass, PivSettings
 from core.store import Session
 from core.synth import particle_pair
@@ -92,17 +93,32 @@ def test_the_ensemble_pick_beats_the_single_shots_and_its_interval_covers_the_tr
     results = [measure_shot(x.frame_a, x.frame_b, ShotSettings(dt_s=x.pose.dt_s,
                                                                ball_diameter_mm=71.6))
                for x in launches]
-    singles = {side: [getattr(r.separation, side).angle_deg for r in results] for side in SIDES}
+    singles = {side: [getattr(r.separation, side) for r in results] for side in SIDES}
     sides = condition_sides(pairs, common, field, singles)
     for side in SIDES:
         truth = np.mean([x.true_deg(side) for x in launches])
         proposal = sides[side]
         error = abs(proposal.angle_deg - truth)
         alone = [np.inf if a is None else abs(a - x.true_deg(side))
-                 for a, x in zip(singles[side], launches, strict=True)]
+                 for a, x in zip([p.angle_deg for p in singles[side]], launches, strict=True)]
         assert error < np.median(alone), (side, error, alone)
         assert error <= proposal.uncertainty_deg, (side, error, proposal)
         assert "launches" in proposal.budget
+
+
+def test_the_launches_own_proposals_widen_the_condition_s_uncertainty():
+    # launches at 1, 2 and 3 deg (sd 1, derived), the condition's pick at 5 deg: their spread
+    # over sqrt(3) is 0.577; their mean lies 3 deg off, 2.944 of it beyond what the spread
+    # explains (sqrt(9 - 1/3)); circle entries 0.3, 0.4, 0 -> rms 0.289 over sqrt(3) = 0.167
+    launches = [SideProposal(a, 2.0, budget={"circle": c, "flight": 0.6})
+                for a, c in ((1.0, 0.3), (2.0, 0.4), (3.0, 0.0))]
+    entries = launch_entries(5.0, launches)
+    assert entries["launches"] == pytest.approx(1 / np.sqrt(3))
+    assert entries["launches' mean"] == pytest.approx(np.sqrt(9 - 1 / 3))
+    assert entries["circle"] == pytest.approx(np.sqrt(0.25 / 3 / 3))
+    assert entries["flight"] == pytest.approx(0.6 / np.sqrt(3))
+    # the pick at the launches' mean: nothing beyond their spread
+    assert launch_entries(2.0, launches)["launches' mean"] == 0.0
 
 
 def test_a_session_condition_seen_as_one(tmp_path, launches):

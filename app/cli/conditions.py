@@ -22,7 +22,8 @@ def _add_conditions(subparsers) -> None:
         help="group the shots into conditions and print their statistics",
         description="Group a session's shots by manifest columns (repeat launches of one "
         "condition) and print, per condition, the usable shots and the mean, standard "
-        "deviation and 95 % interval (Student t on the shot-to-shot spread) of each side's "
+        "deviation and 95 % interval (Student t on the shot-to-shot spread, or the shots' own "
+        "mean uncertainty over sqrt(n) where wider) of each side's "
         "final angle (the analyst's, else the proposal), of upper - lower and of the wake "
         "deflection, and the Reynolds number range. --by keeps the grouping in the session "
         "(the window and 'wakeline table --by' use it). --ensemble also correlates each "

@@ -113,6 +113,8 @@ BUDGET_GLOSS = {
     "other minimum": "other starts the images hardly reject",
     "layer form": "which line of the spreading layer keeps to its path",
     "hidden wall": "glare hides the wall where the layer may leave it",
+    "launches": "the launches' own proposals: their spread over √n",
+    "launches' mean": "how far the launches' mean lies, less their spread",
 }
 
 
@@ -297,10 +299,14 @@ def shot_rows(summary: ShotSummary) -> list[tuple[str, str]]:
 
 def spread_text(spread) -> str:
     """A condition's values (``core.conditions.Spread``): ``+12.3° ± 1.5° (sd 1.2°, n 4)`` with
-    the half-width of the 95 % interval; the one value, or the em dash, with fewer shots."""
+    the half-width of the 95 % interval, ``shots' ±`` where the shots' own uncertainty set it;
+    one shot's value with its own ±; the em dash without any."""
     if spread.n == 0:
         return MISSING
     if spread.n == 1:
-        return f"{angle_text(spread.mean)} (one shot)"
+        if spread.half_width is None:
+            return f"{angle_text(spread.mean)} (one shot)"
+        return f"{angle_text(spread.mean)} {uncertainty_text(spread.half_width)} (one shot)"
+    how = ", shots' ±" if spread.by_shots else ""
     return (f"{angle_text(spread.mean)} {uncertainty_text(spread.half_width)} "
-            f"(sd {angle_text(spread.sd, signed=False)}, n {spread.n})")
+            f"(sd {angle_text(spread.sd, signed=False)}, n {spread.n}{how})")

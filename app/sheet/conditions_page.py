@@ -50,12 +50,13 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
     same = common_text(conditions)
     note = (f"Shots grouped by {', '.join(by)}" + (f"; every condition: {same}" if same else "")
             + ". Per condition: the shots' final angles (the analyst's, else the proposal; "
-            f"unusable shots left out), mean ± half-width of the {CONFIDENCE:.0%} interval of "
-            "Student t on the shot-to-shot spread.")
+            f"unusable shots left out), mean ± half-width of the {CONFIDENCE:.0%} interval: "
+            "Student t on the shot-to-shot spread, or the shots' own mean ± over √n where "
+            "wider (marked \"shots' ±\").")
     if ensembles:
         note += (" Hollow diamonds: the condition's ensemble proposal (shots aligned on the "
-                 "ball, one layer fitted to all of them) with its interval (the fit's and the "
-                 "launches' spread).")
+                 "ball, one layer fitted to all of them) with its interval (the fit's, the launches' spread "
+                 "and how far their mean lies).")
     axis, points = plot_points(conditions, ensembles)
     if any(pt.tag for pt in points):
         note += (f" Conditions at the same {axis} stand side by side, named above the axis by "

@@ -174,6 +174,26 @@ def thwaites_mangler(measured_weight: float, points: int = 3001) -> ThwaitesLaye
     )
 
 
+def separation_angle_deg(measured_weight: float) -> float:
+    """Where the layer separates (deg from the plane through the centre normal to the flight,
+    positive rearward) on the blend of surface velocities with this measured weight (1:
+    measured, 0: potential flow)."""
+    return math.degrees(thwaites_mangler(measured_weight).t_sep) - 90.0
+
+
+def weight_for_separation(angle_deg: float) -> float:
+    """The measured weight whose layer separates at ``angle_deg`` (bisection: separation moves
+    monotonically from +13.6 deg at weight 0 to -8.9 deg at weight 1), to 4 decimals."""
+    low, high = 0.0, 1.0
+    for _ in range(24):
+        mid = 0.5 * (low + high)
+        if separation_angle_deg(mid) > angle_deg:
+            low = mid
+        else:
+            high = mid
+    return round(0.5 * (low + high), 4)
+
+
 # --- Falkner-Skan similarity profiles ------------------------------------------------------
 
 #: Wall shear ``f''(0)`` and ``beta`` of solved Falkner-Skan profiles, used as first guesses:
