@@ -120,8 +120,8 @@ def main() -> None:
     if mean_err:
         print(f"the launches' mean (as the conditions table gives it): median |error| "
               f"{np.median(mean_err):.2f} deg, largest {max(mean_err):.2f} deg; its 95 % interval "
-              f"(Student t on the launches' spread) covers the truth on {sum(mean_covered)} of "
-              f"{len(mean_covered)} sides")
+              f"(the wider of Student t and the shots' own) covers the truth on "
+              f"{sum(mean_covered)} of {len(mean_covered)} sides")
 
 
 if __name__ == "__main__":

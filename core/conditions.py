@@ -41,7 +41,9 @@ class Spread:
     values' own mean uncertainty over the square root of their number (``by_shots`` says the
     latter set it): the spread alone misses an error the shots share, which the repeats cannot
     show (on small balls in the picture the launches agreed with each other and missed the
-    condition together; docs/separation_accuracy.md, "The ensemble"). ``sd`` needs two values;
+    condition together; docs/separation_accuracy.md, "The ensemble and a condition's
+    interval"). The larger, not the root sum of squares: the shots' own uncertainty holds the
+    random part that the spread shows too. ``sd`` needs two values;
     one value has an interval only from its own uncertainty; None where there is none."""
 
     n: int = 0

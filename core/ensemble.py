@@ -19,11 +19,14 @@ position, size in the picture, flight direction and particles. This module
    how far their mean lies from the condition's pick, and their circles' and flights' entries
    (:func:`launch_entries`).
 
-Where single shots hold too few particle images beside the wall to place a layer (small balls in
-the picture, sparse seeding), the shots together can: on synthetic repeats of a 48 px ball the
-condition's pick erred by about 2 deg where the launches' own proposals erred by 8-9 deg
-(``benchmarks/bench_ensemble.py``). Where single shots are good already, the condition's pick is
-no better than their mean: the launches' layers differ, and one model fits them all.
+How good the condition's pick is depends on the family of shots (``benchmarks/
+bench_ensemble.py``; docs/separation_accuracy.md, "The ensemble and a condition's
+interval"):
+on the kinematic family's 48 px balls it erred by a median 1.4 deg where the launches' mean
+erred by 3.1 deg, but on the physical family the launches' mean was better at 150 px (0.8
+against 1.2 deg) and far better at 60 px (1.6 against 4.4 deg): the launches' layers differ,
+and one model fits them all. The mean flow it gives is a picture of the condition; its pick is
+a cross-check of the launches' mean.
 """
 
 from __future__ import annotations
@@ -234,7 +237,8 @@ def launch_entries(angle_deg: float, launches: list[SideProposal]) -> dict[str, 
       launches' own entries over the square root of their number.
 
     The form was chosen on the physical family's repeat launches and checked on the kinematic
-    family's (docs/separation_accuracy.md, "The ensemble").
+    family's (docs/separation_accuracy.md, "The ensemble and a condition's
+    interval").
     """
     count = len(launches)
     angles = np.array([p.angle_deg for p in launches], float)

@@ -33,7 +33,8 @@ def test_repeats_that_agree_keep_the_shots_own_uncertainty():
     # three shots within 0.2 deg of each other, each proposal uncertain by 6 deg: the spread's
     # interval (t(0.975, 2) 0.2 / sqrt(3) = 0.50, Student's t table) would claim the mean to
     # half a degree; the shots' own mean uncertainty over sqrt(3) (3.46) is wider and sets it.
-    # A shared error that the repeats cannot show (docs/separation_accuracy.md, "The ensemble")
+    # A shared error that the repeats cannot show (docs/separation_accuracy.md, "The ensemble
+    # and a condition's interval")
     agree = Spread.of([10.0, 10.2, 10.4], [6.0, 6.0, 6.0])
     assert agree.by_shots and agree.half_width == pytest.approx(6.0 / math.sqrt(3))
     # the spread wider than the shots' own: the t interval, as without them

@@ -52,11 +52,11 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
             + ". Per condition: the shots' final angles (the analyst's, else the proposal; "
             f"unusable shots left out), mean ± half-width of the {CONFIDENCE:.0%} interval: "
             "Student t on the shot-to-shot spread, or the shots' own mean ± over √n where "
-            "wider (marked \"shots' ±\").")
+            "wider.")
     if ensembles:
         note += (" Hollow diamonds: the condition's ensemble proposal (shots aligned on the "
-                 "ball, one layer fitted to all of them) with its interval (the fit's, the launches' spread "
-                 "and how far their mean lies).")
+                 "ball, one layer fitted to all of them) with its interval (the fit's, the "
+                 "launches' spread and how far their mean lies).")
     axis, points = plot_points(conditions, ensembles)
     if any(pt.tag for pt in points):
         note += (f" Conditions at the same {axis} stand side by side, named above the axis by "

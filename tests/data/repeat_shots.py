@@ -86,10 +86,12 @@ def physical_repeat_launches(count: int = 4, *, seed: int = 0, radius_px: float 
         centre = (0.3 * width + rng.uniform(-10, 10), height / 2 + rng.uniform(-10, 10))
         a, b, truth = physical_shot(
             shape, radius_px=radius_px * (1.0 + rng.uniform(-0.03, 0.03)),
-            flight_deg=180.0 + rng.uniform(-1.5, 1.5), speed_m_s=30.0 * (1.0 + rng.uniform(-0.03, 0.03)),
+            flight_deg=180.0 + rng.uniform(-1.5, 1.5),
+            speed_m_s=30.0 * (1.0 + rng.uniform(-0.03, 0.03)),
             center_px=centre, ball_diameter_mm=71.6,
             measured_share=tuple(weight_for_separation(float(x)) for x in angles),
-            departure_deg=tuple(float(np.clip(d + rng.uniform(-3, 3), 0.0, 25.0)) for d in departure),
+            departure_deg=tuple(float(np.clip(d + rng.uniform(-3, 3), 0.0, 25.0))
+                                for d in departure),
             surface=surface, glint=bool(rng.random() < 0.3), shadow=False,
             density_ppp=density, bit_depth=bit_depth, seed=100 * seed + number)
         mid = tuple(0.5 * (p + q) for p, q in zip(truth.center_a_px, truth.center_b_px,
