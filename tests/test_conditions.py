@@ -189,9 +189,11 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
     view = SimpleNamespace(separation=SeparationResult(SideProposal(-12.4, 3.6, 0.5),
                                                        SideProposal(7.0, 3.0, 0.5)),
                            shot_ids=["a", "b", "c"], left_out={})
-    # upper: 4.2 deg apart, sqrt(3.6^2 + 0.50^2) = 3.63 allowed (derived); lower: 1 deg apart
+    # upper: 4.2 deg from the shots' mean, whose interval is t(0.975, 2) 0.2 / sqrt(3) = 0.50
+    # (Student's t table); lower: 1 deg from a mean known to 2.48 deg
     said = ensemble_disagreement(condition, view)
-    assert said == [("upper: the ensemble (-12.4°) and the shots' mean (-8.2°) differ by more "
-                     "than their intervals allow: look at both")]
+    assert said == [("upper: the ensemble (-12.4°) lies outside the shots' interval (-8.2° "
+                     "± 0.5°): look at both; the shots' mean was the better estimate on most "
+                     "test shots")]
     assert said[0] in ensemble_lines(condition, view)
     assert f"  check {said[0]}" in condition_lines(condition, view)
