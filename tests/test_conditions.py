@@ -186,7 +186,8 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
     condition = Condition({"seam_deg": "10"}, ["a", "b", "c"], ["a", "b", "c"],
                           sides={"upper": Spread.of([-8.0, -8.2, -8.4]),
                                  "lower": Spread.of([5.0, 6.0, 7.0])})
-    view = SimpleNamespace(separation=SeparationResult(SideProposal(-12.4, 3.6, 0.5),
+    view = SimpleNamespace(separation=SeparationResult(SideProposal(
+        -12.4, 3.6, 0.5, budget={"fit": 0.9, "launches' mean": 2.1, "launches": 0.3}),
                                                        SideProposal(7.0, 3.0, 0.5)),
                            shot_ids=["a", "b", "c"], left_out={})
     # upper: 4.2 deg from the shots' mean, whose interval is t(0.975, 2) 0.2 / sqrt(3) = 0.50
@@ -195,5 +196,7 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
     assert said == [("upper: the ensemble (-12.4°) lies outside the shots' interval (-8.2° "
                      "± 0.5°): look at both; the shots' mean was the better estimate on most "
                      "test shots")]
-    assert said[0] in ensemble_lines(condition, view)
+    lines = ensemble_lines(condition, view)
+    assert said[0] in lines
+    assert lines[0].startswith("upper: ensemble -12.4° ± 3.6° (largest part: launches' mean);")
     assert f"  check {said[0]}" in condition_lines(condition, view)

@@ -196,6 +196,8 @@ def ensemble_lines(condition, view) -> list[str]:
             mine = f"none ({p.reason})"
         else:
             mine = f"{angle_text(p.angle_deg)} {uncertainty_text(p.uncertainty_deg)}"
+            if p.budget:
+                mine += f" (largest part: {max(p.budget, key=p.budget.get)})"
             if p.reason:
                 mine += f" ({p.reason})"
         lines.append(f"{side}: ensemble {mine}; shots {spread_text(condition.sides[side])}")
