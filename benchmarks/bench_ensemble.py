@@ -9,9 +9,11 @@ separation (one layer fitted to all its launches) is compared with the truth (th
 launches' angles); each launch's own proposal with that launch's truth, and the launches' mean
 with the condition's. Prints per condition and side the errors, the interval and whether it
 covers the truth, then the medians, the gain (median single-shot error over median ensemble
-error) and the coverage. ``--radius`` sets the ball's size in the picture: the ensemble helps
-where single shots see too few particle images beside the wall. ``--out`` writes one JSON line
-per condition and side (the proposals, their budgets and the truths).
+error) and the coverage. ``--radius`` sets the ball's size in the picture (default 48 px for
+the kinematic family, 150 px for the physical one): small balls leave single shots few particle
+images beside the wall. ``--out`` writes one JSON line per condition and side (the proposals,
+their budgets and the truths). A condition none of whose launches gives a ball and a flight is
+skipped and counted.
 
     .venv/bin/python benchmarks/bench_ensemble.py [--family kinematic|physical]
         [--conditions 6] [--shots 6] [--radius 48] [--true-poses] [--out records.jsonl]
@@ -53,11 +55,15 @@ def main() -> None:
     parser.add_argument("--conditions", type=int, default=6)
     parser.add_argument("--shots", type=int, default=6)
     parser.add_argument("--first-seed", type=int, default=0)
-    parser.add_argument("--radius", type=float, default=48.0, help="ball radius, px")
+    parser.add_argument("--radius", type=float, help="ball radius, px (default: 48 kinematic, "
+                        "150 physical)")
     parser.add_argument("--true-poses", action="store_true",
                         help="align on the generator's balls and flights, not the measured ones")
     parser.add_argument("--out", type=Path, help="JSON lines, one per condition and side")
     args = parser.parse_args()
+    if args.radius is None:
+        args.radius = 150.0 if args.family == "physical" else 48.0
+    skipped = 0
     ens_err, single_err, covered, widths = [], [], [], []
     mean_err, mean_covered = [], []
     out = args.out.open("w") if args.out else None
@@ -75,6 +81,10 @@ def main() -> None:
             if pose is not None:  # as a session leaves out a shot without ball and flight
                 shots.append((pose, launch.frame_a, launch.frame_b))
                 summaries.append((launch, summary))
+        if not shots:
+            skipped += 1
+            print(f"seed {seed:3d}: no launch gave a ball and a flight: skipped", flush=True)
+            continue
         singles = {side: [s.side(side) for _, s in summaries] for side in SIDES}
         view = ensemble_view(shots, singles=singles)
         line = [f"seed {seed:3d} ({len(shots)} aligned)"]
@@ -111,7 +121,8 @@ def main() -> None:
         print(" | ".join(line), flush=True)
     ens, single = np.nanmedian(ens_err), np.nanmedian(single_err)
     print(f"\n{args.family} family: {args.conditions} conditions x {args.shots} launches, "
-          f"radius {args.radius:g} px, both sides ({time.perf_counter() - started:.0f} s)")
+          f"radius {args.radius:g} px, both sides ({time.perf_counter() - started:.0f} s)"
+          + (f"; {skipped} condition(s) skipped" if skipped else ""))
     print(f"median |error|: ensemble {ens:.2f} deg, single-shot proposals {single:.2f} deg"
           f"  -> gain x{single / ens:.1f}")
     print(f"largest ensemble |error| {np.nanmax(ens_err):.2f} deg; interval (k = {COVERAGE_K:g}) "

@@ -124,6 +124,9 @@ def test_table_by_writes_one_row_per_condition_and_conditions_keeps_the_grouping
     assert [r["seam_deg"] for r in rows] == ["0", "10", ""]
     assert rows[0]["usable_shots"] == "2" and rows[0]["shot_ids"] == "S0 S1 S2"
     assert float(rows[0]["upper_ci_high_deg"]) > 4.0 > float(rows[0]["upper_ci_low_deg"])
+    assert rows[0]["upper_ci_by_shots"] in ("0", "1")
+    # one shot: its own uncertainty is the interval
+    assert (rows[2]["upper_n"], rows[2]["upper_ci_by_shots"]) == ("1", "1")
     with pytest.raises(SystemExit) as usage:  # bad usage: exit 2
         main(["conditions", str(session_path), "--by", "seam_deg,notes"])
     assert usage.value.code == 2
@@ -194,8 +197,8 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
     # (Student's t table); lower: 1 deg from a mean known to 2.48 deg
     said = ensemble_disagreement(condition, view)
     assert said == [("upper: the ensemble (-12.4°) lies outside the shots' interval (-8.2° "
-                     "± 0.5°): look at both; the shots' mean was the better estimate on most "
-                     "test shots")]
+                     "± 0.5°): look at both; the shots' mean was the better estimate in three "
+                     "of four synthetic settings")]
     lines = ensemble_lines(condition, view)
     assert said[0] in lines
     assert lines[0].startswith("upper: ensemble -12.4° ± 3.6° (largest part: launches' mean);")

@@ -28,8 +28,8 @@ def _add_conditions(subparsers) -> None:
         "deflection, and the Reynolds number range. --by keeps the grouping in the session "
         "(the window and 'wakeline table --by' use it). --ensemble also correlates each "
         "condition's shots as one (aligned on the ball) and proposes its separation, a "
-        "cross-check of the shots' mean (the better estimate on most test shots: "
-        "docs/separation_accuracy.md).",
+        "cross-check of the shots' mean (the better estimate in three of four synthetic "
+        "settings: docs/separation_accuracy.md).",
     )
     p.add_argument("session", type=Path, help="session file (.h5)")
     p.add_argument("--by", type=column_list, metavar="COLUMNS",

@@ -84,8 +84,8 @@ class StatisticsPanel(QWidget):
         self.group_button.setMenu(self.group_menu)
         self.method_label = QLabel(
             f"mean ± half-width of the {CONFIDENCE:.0%} interval (Student t on the "
-            "shot-to-shot spread, or the shots' own mean ± over √n where wider: \"shots' ±\"); "
-            "final angle, else the proposal; unusable shots left out",
+            "shot-to-shot spread, or the shots' own mean ± over √n where wider: \"shots' ±\"; "
+            "one shot: its own ±); final angle, else the proposal; unusable shots left out",
             self)
         self.method_label.setStyleSheet(f"color: {colours.MUTED_INK};")
         self.method_label.setWordWrap(True)  # more lines in a narrow window, not a wider one

@@ -12,6 +12,7 @@ from PySide6.QtWidgets import QDialog, QLabel, QVBoxLayout
 from app.qt.canvas import CanvasShot, ShotCanvas
 from app.qt.canvas_controls import FrameOfReference
 from app.review.conditions import ensemble_lines
+from app.review.text import uncertainty_meaning
 
 
 class EnsembleDialog(QDialog):
@@ -40,6 +41,10 @@ class EnsembleDialog(QDialog):
             *ensemble_lines(condition, view),
             ("Ball frame (the ball at rest), common to the shots; round mark: the ensemble's "
              "proposal, diamond: the mean of the shots' final angles.")]))
+        # what the ensemble's ± is made of, largest first (the same tip as a shot's ±)
+        self.numbers.setToolTip("\n\n".join(
+            f"{side}: {uncertainty_meaning(getattr(view.separation, side))}"
+            for side in ("upper", "lower") if getattr(view.separation, side).uncertainty_deg))
 
 
 def show_ensemble(window, condition, view) -> EnsembleDialog:

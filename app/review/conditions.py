@@ -170,7 +170,8 @@ def ensemble_disagreement(condition, view) -> list[str]:
     """The sides on which the ensemble's proposal lies outside the interval of the shots' mean
     (their final angles): one line each, to look at both; [] when none. The ensemble's own ±
     holds that distance (``core.ensemble.launch_entries``), so it is the shots' interval that
-    tells; their mean was the better estimate on most test shots (docs/separation_accuracy.md,
+    tells; their mean was the better estimate in three of four synthetic settings
+    (docs/separation_accuracy.md,
     "The ensemble and a condition's interval")."""
     out = []
     if view is None or isinstance(view, str):
@@ -183,7 +184,7 @@ def ensemble_disagreement(condition, view) -> list[str]:
             out.append(f"{side}: the ensemble ({angle_text(mine.angle_deg)}) lies outside the "
                        f"shots' interval ({angle_text(shots.mean)} "
                        f"{uncertainty_text(shots.half_width)}): look at both; the shots' mean "
-                       "was the better estimate on most test shots")
+                       "was the better estimate in three of four synthetic settings")
     return out
 
 

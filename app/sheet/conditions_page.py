@@ -52,7 +52,7 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
             + ". Per condition: the shots' final angles (the analyst's, else the proposal; "
             f"unusable shots left out), mean ± half-width of the {CONFIDENCE:.0%} interval: "
             "Student t on the shot-to-shot spread, or the shots' own mean ± over √n where "
-            "wider.")
+            "wider; one shot: its own ±.")
     if ensembles:
         note += (" Hollow diamonds: the condition's ensemble proposal (shots aligned on the "
                  "ball, one layer fitted to all of them) with its interval (the fit's, the "
