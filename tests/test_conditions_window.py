@@ -95,6 +95,9 @@ def test_the_ensemble_view_of_a_condition(main_window, make_session, qtbot):
     dialog = window.ensemble_dialog
     assert dialog.canvas.shot.result is not None and not dialog.canvas.shot.editable
     assert "2 shot(s) aligned on the ball: s01, s06" in dialog.numbers.text()
+    # what its ± is made of, as a shot's ± tip says it
+    assert dialog.canvas.shot.result.separation.upper.uncertainty_deg
+    assert dialog.numbers.toolTip().startswith("upper: ± ")
     # its field is in the ball frame, and said so (it once read "lab frame")
     assert dialog.canvas.ball_frame() and not dialog.canvas.frame_box.isEnabled()
     result = dialog.canvas.shot.result
