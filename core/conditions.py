@@ -88,6 +88,13 @@ class Spread:
     def half_width(self) -> float | None:
         return None if self.low is None else 0.5 * (self.high - self.low)
 
+    @property
+    def interval_from(self) -> str | None:
+        """What set the interval: "spread" (Student t) or "shots" (their own ±); None without."""
+        if self.low is None:
+            return None
+        return "shots" if self.by_shots else "spread"
+
 
 @dataclass
 class Condition:
@@ -96,10 +103,16 @@ class Condition:
     values: dict[str, str]  # grouping column -> value as text ("" where the shot has none)
     shot_ids: list[str]
     usable_ids: list[str] = field(default_factory=list)
+    decided_ids: list[str] = field(default_factory=list)  # usable and accepted or adjusted
     sides: dict[str, Spread] = field(default_factory=dict)  # "upper", "lower"
     difference: Spread = field(default_factory=Spread)  # upper - lower, shot by shot
     wake_deflection: Spread = field(default_factory=Spread)
     reynolds: tuple[float, float] | None = None  # smallest and largest of the usable shots
+
+    @property
+    def left_out_ids(self) -> list[str]:
+        """The shots not counted: marked unusable, or with no angle on either side."""
+        return [s for s in self.shot_ids if s not in self.usable_ids]
 
     @property
     def label(self) -> str:
@@ -171,8 +184,12 @@ def _condition(values: dict[str, str], members: list[ShotRecord]) -> Condition:
     wake = Spread.of([r.wake_deflection_deg() for r in kept],
                      [r.wake_deflection_uncertainty_deg() for r in kept])
     reynolds = [v for v in (reynolds_number(r) for r in kept) if v is not None]
-    return Condition(values, [r.shot_id for r in members], [r.shot_id for r in kept], sides,
-                     difference, wake, (min(reynolds), max(reynolds)) if reynolds else None)
+    decided = [r.shot_id for r in kept
+               if r.pick.status in (ReviewStatus.ACCEPTED, ReviewStatus.ADJUSTED)]
+    return Condition(values, [r.shot_id for r in members], [r.shot_id for r in kept],
+                     decided_ids=decided, sides=sides, difference=difference,
+                     wake_deflection=wake,
+                     reynolds=(min(reynolds), max(reynolds)) if reynolds else None)
 
 
 def _difference(record: ShotRecord) -> float | None:
@@ -201,7 +218,7 @@ def reynolds_number(record: ShotRecord) -> float | None:
 
 # --- the table of conditions --------------------------------------------------------------------
 
-SPREAD_COLUMNS = ("n", "mean_deg", "sd_deg", "ci_low_deg", "ci_high_deg", "ci_by_shots")
+SPREAD_COLUMNS = ("n", "mean_deg", "sd_deg", "ci_low_deg", "ci_high_deg", "ci_from")
 ENSEMBLE_COLUMNS = ("ensemble_shots", "ensemble_upper_deg", "ensemble_upper_uncertainty_deg",
                     "ensemble_lower_deg", "ensemble_lower_uncertainty_deg")
 
@@ -212,7 +229,7 @@ def condition_table(conditions, by, ensembles=None) -> tuple[list[str], list[lis
     ``ensembles``: condition label -> ``core.ensemble.EnsembleView`` (or a reason why there is
     none, as text): adds the ensemble's proposals and the shots it used.
     """
-    header = [*by, "shots", "usable_shots", "shot_ids"]
+    header = [*by, "shots", "usable_shots", "decided_shots", "shot_ids", "left_out"]
     for prefix in ("upper", "lower", "upper_minus_lower", "wake_deflection"):
         header += [f"{prefix}_{c}" if c != "n" else f"{prefix}_n" for c in SPREAD_COLUMNS]
     header += ["reynolds_min", "reynolds_max"]
@@ -221,10 +238,10 @@ def condition_table(conditions, by, ensembles=None) -> tuple[list[str], list[lis
     rows = []
     for c in conditions:
         row = [*(c.values[col] for col in by), len(c.shot_ids), len(c.usable_ids),
-               " ".join(c.shot_ids)]
+               len(c.decided_ids), " ".join(c.shot_ids), " ".join(c.left_out_ids)]
         for spread in (c.sides["upper"], c.sides["lower"], c.difference, c.wake_deflection):
             row += [spread.n, spread.mean, spread.sd, spread.low, spread.high,
-                    None if spread.low is None else int(spread.by_shots)]
+                    spread.interval_from]
         row += list(c.reynolds) if c.reynolds else [None, None]
         if ensembles is not None:
             row += _ensemble_cells(ensembles.get(c.label))

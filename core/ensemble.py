@@ -226,8 +226,8 @@ def launch_entries(angle_deg: float, launches: list[SideProposal]) -> dict[str, 
 
     - ``launches``: the launches' spread over the square root of their number (the condition's
       mean, not one launch).
-    - ``launches' mean``: how far the condition's angle lies from the launches' mean, less what
-      their spread explains (``sqrt(max(0, d^2 - sd^2 / n))``). The two are estimates of one
+    - ``distance to the launches' mean``: how far the condition's angle lies from the launches'
+      mean, less what their spread explains (``sqrt(max(0, d^2 - sd^2 / n))``). The two are estimates of one
       angle from the same images, by one layer fitted to all and by one to each; like the
       model-form entries, the move from one to the other counts. The fit's own entries treat
       the shots' images as one data set and miss that every launch pulls the one layer its own
@@ -245,7 +245,7 @@ def launch_entries(angle_deg: float, launches: list[SideProposal]) -> dict[str, 
     spread = float(np.std(angles, ddof=1)) / math.sqrt(count)
     apart = float(np.mean(angles)) - angle_deg
     entries = {"launches": spread,
-               "launches' mean": math.sqrt(max(0.0, apart * apart - spread * spread))}
+               "distance to the launches' mean": math.sqrt(max(0.0, apart * apart - spread * spread))}
     for name in ("circle", "flight"):
         moves = np.array([(p.budget or {}).get(name, 0.0) for p in launches], float)
         entries[name] = float(np.sqrt(np.mean(moves**2) / count))

@@ -124,9 +124,9 @@ def test_table_by_writes_one_row_per_condition_and_conditions_keeps_the_grouping
     assert [r["seam_deg"] for r in rows] == ["0", "10", ""]
     assert rows[0]["usable_shots"] == "2" and rows[0]["shot_ids"] == "S0 S1 S2"
     assert float(rows[0]["upper_ci_high_deg"]) > 4.0 > float(rows[0]["upper_ci_low_deg"])
-    assert rows[0]["upper_ci_by_shots"] in ("0", "1")
+    assert rows[0]["upper_ci_from"] in ("spread", "shots")
     # one shot: its own uncertainty is the interval
-    assert (rows[2]["upper_n"], rows[2]["upper_ci_by_shots"]) == ("1", "1")
+    assert (rows[2]["upper_n"], rows[2]["upper_ci_from"]) == ("1", "shots")
     with pytest.raises(SystemExit) as usage:  # bad usage: exit 2
         main(["conditions", str(session_path), "--by", "seam_deg,notes"])
     assert usage.value.code == 2
@@ -190,16 +190,15 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
                           sides={"upper": Spread.of([-8.0, -8.2, -8.4]),
                                  "lower": Spread.of([5.0, 6.0, 7.0])})
     view = SimpleNamespace(separation=SeparationResult(SideProposal(
-        -12.4, 3.6, 0.5, budget={"fit": 0.9, "launches' mean": 2.1, "launches": 0.3}),
+        -12.4, 3.6, 0.5, budget={"fit": 0.9, "distance to the launches' mean": 2.1, "launches": 0.3}),
                                                        SideProposal(7.0, 3.0, 0.5)),
                            shot_ids=["a", "b", "c"], left_out={})
     # upper: 4.2 deg from the shots' mean, whose interval is t(0.975, 2) 0.2 / sqrt(3) = 0.50
     # (Student's t table); lower: 1 deg from a mean known to 2.48 deg
     said = ensemble_disagreement(condition, view)
     assert said == [("upper: the ensemble (-12.4°) lies outside the shots' interval (-8.2° "
-                     "± 0.5°): look at both; the shots' mean was the better estimate in three "
-                     "of four synthetic settings")]
+                     "± 0.5°): look at both")]
     lines = ensemble_lines(condition, view)
     assert said[0] in lines
-    assert lines[0].startswith("upper: ensemble -12.4° ± 3.6° (largest part: launches' mean);")
+    assert lines[0].startswith("upper: ensemble -12.4° ± 3.6° (largest term: distance to the launches' mean);")
     assert f"  check {said[0]}" in condition_lines(condition, view)

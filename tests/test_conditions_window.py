@@ -34,7 +34,7 @@ def test_clicking_a_condition_selects_its_shots(main_window, make_session):
     ids = {window.shot_list.table_model.shot_id(window.shot_list.proxy.mapToSource(i).row())
            for i in selected}
     assert ids == {"s01", "s06"}
-    assert panel.table.item(0, 1).text() == "2 of 2"
+    assert panel.table.item(0, 1).text() == "2 of 2, 0 decided"
 
 
 def test_the_grouping_is_kept_in_the_session(main_window, make_session, qtbot):

@@ -114,11 +114,11 @@ def test_the_launches_own_proposals_widen_the_condition_s_uncertainty():
                 for a, c in ((1.0, 0.3), (2.0, 0.4), (3.0, 0.0))]
     entries = launch_entries(5.0, launches)
     assert entries["launches"] == pytest.approx(1 / np.sqrt(3))
-    assert entries["launches' mean"] == pytest.approx(np.sqrt(9 - 1 / 3))
+    assert entries["distance to the launches' mean"] == pytest.approx(np.sqrt(9 - 1 / 3))
     assert entries["circle"] == pytest.approx(np.sqrt(0.25 / 3 / 3))
     assert entries["flight"] == pytest.approx(0.6 / np.sqrt(3))
     # the pick at the launches' mean: nothing beyond their spread
-    assert launch_entries(2.0, launches)["launches' mean"] == 0.0
+    assert launch_entries(2.0, launches)["distance to the launches' mean"] == 0.0
 
 
 def test_a_session_condition_seen_as_one(tmp_path, launches):

@@ -124,7 +124,7 @@ def condition_ensembles(session, conditions) -> dict:
 
 
 def run_conditions(args: argparse.Namespace) -> int:
-    from core.conditions import group_conditions
+    from core.conditions import CONFIDENCE, group_conditions
     from core.store import Session
 
     with Session.open(args.session, writable=args.by is not None) as session:
@@ -135,6 +135,9 @@ def run_conditions(args: argparse.Namespace) -> int:
         ensembles = condition_ensembles(session, conditions) if args.ensemble else {}
     print(f"{args.session}: {len(conditions)} condition(s) by "
           f"{', '.join(by) or 'nothing (all shots together)'}")
+    print(f"  ±: the {CONFIDENCE:.0%} interval of the mean, Student t on the shot-to-shot spread, "
+          "or the shots' own ± over √n where wider (\"shots' ±\"); a side's angle is the "
+          "final one, else the proposal (\"decided\": accepted or adjusted)")
     for condition in conditions:
         for line in condition_lines(condition, ensembles.get(condition.label)):
             print(line)
@@ -146,7 +149,10 @@ def condition_lines(condition, ensemble=None) -> list[str]:
     from app.review.conditions import reynolds_text
     from app.review.text import spread_text
 
-    usable = f"{len(condition.usable_ids)} of {len(condition.shot_ids)} shot(s) usable"
+    usable = (f"{len(condition.usable_ids)} of {len(condition.shot_ids)} shot(s) usable, "
+              f"{len(condition.decided_ids)} decided")
+    if condition.left_out_ids:
+        usable += f"; left out {', '.join(condition.left_out_ids)}"
     lines = [f"{condition.label}: {usable}"]
     for name, spread in (("upper", condition.sides["upper"]),
                          ("lower", condition.sides["lower"]),

@@ -49,6 +49,14 @@ ENSEMBLE_HEADER = "ensemble"
 GROUPING_WIDTH_PX = 200  # the grouping button's text at most
 
 
+
+def _shots_tip(condition) -> str:
+    """``shots s01, s02, s03; left out s02 (unusable or no angle)``."""
+    tip = f"shots {', '.join(condition.shot_ids)}"
+    if condition.left_out_ids:
+        tip += f"; left out {', '.join(condition.left_out_ids)} (unusable or no angle)"
+    return tip
+
 class StatisticsPanel(QWidget):
     """Conditions table, grouping chooser, ensemble and review buttons, agreement lines.
 
@@ -101,7 +109,7 @@ class StatisticsPanel(QWidget):
         self.ensemble_button = QPushButton("Ensemble view", self)
         self.ensemble_button.setToolTip(
             "align the condition's shots on the ball, correlate them as one and propose the "
-            "condition's separation from the mean near-wall flow")
+            "condition's separation from the mean near-wall flow (select a condition first)")
         self.ensemble_button.clicked.connect(self._ask_ensemble)
         self.review_button = QPushButton("Import review…", self)
         self.review_button.setToolTip("another analyst's table of the same shots, kept as a "
@@ -151,7 +159,7 @@ class StatisticsPanel(QWidget):
                      self._ensemble_cell(condition)]
             for col, text in enumerate(cells):
                 item = QTableWidgetItem(text)
-                item.setToolTip(f"shots {', '.join(condition.shot_ids)}" if col == 0 else text)
+                item.setToolTip(_shots_tip(condition) if col == 0 else text)
                 self.table.setItem(row, col, item)
             if selected is not None and condition.label == selected.label:
                 self.table.selectRow(row)

@@ -13,13 +13,21 @@ from app.review.text import MISSING, angle_text, spread_text, times_ten_text, un
 TABLE_HEADER = ("condition", "usable", "upper", "lower", "upper − lower", "wake", "Re")
 
 
+def usable_text(condition, compact: bool = False) -> str:
+    """``3 of 3, 1 decided`` (``3 of 3`` compact): the shots counted, of all the condition's,
+    and how many of them the analyst accepted or adjusted (the others count with their
+    proposals)."""
+    text = f"{len(condition.usable_ids)} of {len(condition.shot_ids)}"
+    return text if compact else f"{text}, {len(condition.decided_ids)} decided"
+
+
 def condition_cells(condition, conditions=(), compact: bool = False) -> list[str]:
     """A condition (``core.conditions.Condition``) as the cells of ``TABLE_HEADER``, named by
     what tells it from the other ``conditions``; ``compact`` leaves out the standard deviation
     and the count (a printed table)."""
     name = short_label(condition, conditions) if conditions else condition.label
     show = compact_spread_text if compact else spread_text
-    return [name, f"{len(condition.usable_ids)} of {len(condition.shot_ids)}",
+    return [name, usable_text(condition, compact),
             *(show(s) for s in (condition.sides["upper"], condition.sides["lower"],
                                 condition.difference, condition.wake_deflection)),
             reynolds_text(condition.reynolds)]
@@ -170,9 +178,7 @@ def ensemble_disagreement(condition, view) -> list[str]:
     """The sides on which the ensemble's proposal lies outside the interval of the shots' mean
     (their final angles): one line each, to look at both; [] when none. The ensemble's own ±
     holds that distance (``core.ensemble.launch_entries``), so it is the shots' interval that
-    tells; their mean was the better estimate in three of four synthetic settings
-    (docs/separation_accuracy.md,
-    "The ensemble and a condition's interval")."""
+    tells (docs/separation_accuracy.md, "The ensemble and a condition's interval")."""
     out = []
     if view is None or isinstance(view, str):
         return out
@@ -183,8 +189,7 @@ def ensemble_disagreement(condition, view) -> list[str]:
         if abs(mine.angle_deg - shots.mean) > shots.half_width:
             out.append(f"{side}: the ensemble ({angle_text(mine.angle_deg)}) lies outside the "
                        f"shots' interval ({angle_text(shots.mean)} "
-                       f"{uncertainty_text(shots.half_width)}): look at both; the shots' mean "
-                       "was the better estimate in three of four synthetic settings")
+                       f"{uncertainty_text(shots.half_width)}): look at both")
     return out
 
 
@@ -198,7 +203,7 @@ def ensemble_lines(condition, view) -> list[str]:
         else:
             mine = f"{angle_text(p.angle_deg)} {uncertainty_text(p.uncertainty_deg)}"
             if p.budget:
-                mine += f" (largest part: {max(p.budget, key=p.budget.get)})"
+                mine += f" (largest term: {max(p.budget, key=p.budget.get)})"
             if p.reason:
                 mine += f" ({p.reason})"
         lines.append(f"{side}: ensemble {mine}; shots {spread_text(condition.sides[side])}")

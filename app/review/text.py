@@ -114,7 +114,7 @@ BUDGET_GLOSS = {
     "layer form": "which line of the spreading layer keeps to its path",
     "hidden wall": "glare hides the wall where the layer may leave it",
     "launches": "the launches' own proposals: their spread over √n",
-    "launches' mean": "how far the launches' mean lies, less their spread",
+    "distance to the launches' mean": "beyond what their spread explains",
 }
 
 

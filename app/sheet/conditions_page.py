@@ -104,8 +104,9 @@ def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> N
     else:  # one value: a span of its order of magnitude about it (seam 10 deg: 5 to 15)
         half = 0.5 * (10.0 ** math.floor(math.log10(abs(xs[0]))) if xs[0] else 1.0)
         xlo, xhi = float(xs[0]) - half, float(xs[0]) + half
-    shift = 0.015 * (xhi - xlo)  # the ensemble beside the shots' mean
-    apart = 0.045 * (xhi - xlo)  # conditions at the same x, side by side
+    # upper left of lower, each ensemble further out beside its shots' mean, so that no bar runs
+    # through another's marker; conditions at the same x side by side
+    side, shift, apart = (f * (xhi - xlo) for f in (0.008, 0.014, 0.045))
 
     def to_page(xv: float, yv: float) -> QtCore.QPointF:
         return QtCore.QPointF(plot.left() + (xv - xlo) / (xhi - xlo) * plot.width(),
@@ -120,7 +121,8 @@ def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> N
         x = pt.x + (pt.place[0] - 0.5 * (pt.place[1] - 1)) * apart
         if pt.tag:
             tags[x] = pt.tag
-        x += shift if pt.kind == "ensemble" else 0.0
+        outward = -1.0 if pt.side == "upper" else 1.0
+        x += outward * (side + (shift if pt.kind == "ensemble" else 0.0))
         colour = SIDE_COLOURS[pt.side]
         if pt.low is not None:
             _error_bar(p, to_page(x, pt.low), to_page(x, pt.high), colour)
@@ -137,7 +139,8 @@ def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> N
         one_line(p, box, tag, (6.5, 5.5), colour=colours.MUTED_INK,
                  flags=QtCore.Qt.AlignmentFlag.AlignHCenter)
     p.setClipping(False)
-    _legend(p, frame.left() + mm(16), frame.bottom() - mm(5.5))
+    _legend(p, frame.left() + mm(16), frame.bottom() - mm(5.5),
+            any(pt.kind == "ensemble" for pt in points))
     p.restore()
 
 
@@ -160,7 +163,7 @@ def _diamond(p, centre: QtCore.QPointF, colour: str, size_mm: float = 2.8) -> No
     p.drawPolygon(poly)
 
 
-def _legend(p, x: float, y: float) -> None:
+def _legend(p, x: float, y: float, ensemble: bool) -> None:
     cx = x
     for label, side in (("upper side: mean of the shots", "upper"),
                         ("lower side", "lower")):
@@ -168,9 +171,11 @@ def _legend(p, x: float, y: float) -> None:
                  SIDE_COLOURS[side], True)
         text(p, QtCore.QRectF(cx + mm(4), y, mm(50), mm(4)), label, 7.5)
         cx += mm(52) if side == "upper" else mm(24)
-    _diamond(p, QtCore.QPointF(cx + mm(1.5), y + mm(2)), colours.INK)
-    text(p, QtCore.QRectF(cx + mm(4), y, mm(60), mm(4)), "ensemble proposal; bars: intervals",
-         7.5)
+    if ensemble:
+        _diamond(p, QtCore.QPointF(cx + mm(1.5), y + mm(2)), colours.INK)
+        cx += mm(4)
+    text(p, QtCore.QRectF(cx, y, mm(70), mm(4)),
+         ("ensemble proposal; " if ensemble else "") + "bars: 95 % intervals", 7.5)
 
 
 def _paint_table(p, x: float, y: float, w: float, rows, with_ensemble: bool) -> float:
