@@ -49,8 +49,8 @@ class Spread:
     some values have an uncertainty (a positive, finite one), their mean stands for all; the
     upper - lower interval takes each shot's two sides as independent (a flight error moves
     them apart, a circle error together); on the benchmark's repeats it covered 107 of 108
-    conditions. ``sd`` needs two values;
-    one value has an interval only from its own uncertainty; None where there is none."""
+    conditions. ``sd`` needs two values; one value has an interval only from its own
+    uncertainty; None where there is none."""
 
     n: int = 0
     mean: float | None = None

@@ -19,11 +19,10 @@ position, size in the picture, flight direction and particles. This module
    how far their mean lies from the condition's pick, and their circles' and flights' entries
    (:func:`launch_entries`).
 
-How good the condition's pick is depends on the family of shots (``benchmarks/
-bench_ensemble.py``; docs/separation_accuracy.md, "The ensemble and a condition's
-interval"):
-on the kinematic family's 48 px balls it erred by a median 1.4 deg where the launches' mean
-erred by 3.1 deg, but on the physical family the launches' mean was better at 150 px (0.8
+How good the condition's pick is depends on the family of shots
+(``benchmarks/bench_ensemble.py``; docs/separation_accuracy.md, "The ensemble and a
+condition's interval"): on the kinematic family's 48 px balls it erred by a median 1.4 deg
+where the launches' mean erred by 3.1 deg, but on the physical family the launches' mean was better at 150 px (0.8
 against 1.2 deg) and far better at 60 px (1.6 against 4.4 deg): the launches' layers differ,
 and one model fits them all. The mean flow it gives is a picture of the condition; its pick is
 a cross-check of the launches' mean.
@@ -227,9 +226,9 @@ def launch_entries(angle_deg: float, launches: list[SideProposal]) -> dict[str, 
     - ``launches``: the launches' spread over the square root of their number (the condition's
       mean, not one launch).
     - ``distance to the launches' mean``: how far the condition's angle lies from the launches'
-      mean, less what their spread explains (``sqrt(max(0, d^2 - sd^2 / n))``). The two are estimates of one
-      angle from the same images, by one layer fitted to all and by one to each; like the
-      model-form entries, the move from one to the other counts. The fit's own entries treat
+      mean, less what their spread explains (``sqrt(max(0, d^2 - sd^2 / n))``). The two are
+      estimates of one angle from the same images, by one layer fitted to all and by one to
+      each; like the model-form entries, the move from one to the other counts. The fit's own entries treat
       the shots' images as one data set and miss that every launch pulls the one layer its own
       way.
     - ``circle`` and ``flight``: the shots are aligned on their own measured circles and
@@ -244,8 +243,8 @@ def launch_entries(angle_deg: float, launches: list[SideProposal]) -> dict[str, 
     angles = np.array([p.angle_deg for p in launches], float)
     spread = float(np.std(angles, ddof=1)) / math.sqrt(count)
     apart = float(np.mean(angles)) - angle_deg
-    entries = {"launches": spread,
-               "distance to the launches' mean": math.sqrt(max(0.0, apart * apart - spread * spread))}
+    beyond = math.sqrt(max(0.0, apart * apart - spread * spread))
+    entries = {"launches": spread, "distance to the launches' mean": beyond}
     for name in ("circle", "flight"):
         moves = np.array([(p.budget or {}).get(name, 0.0) for p in launches], float)
         entries[name] = float(np.sqrt(np.mean(moves**2) / count))

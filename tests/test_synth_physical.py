@@ -11,8 +11,10 @@ from core.synth_physical import physical_cases, physical_flow, physical_shot
 from core.synth_physical.boundary_layer import (
     falkner_skan_beta,
     falkner_skan_table,
+    separation_angle_deg,
     thwaites_mangler,
     thwaites_momentum,
+    weight_for_separation,
 )
 from core.synth_physical.shot import air_kinematic_viscosity
 
@@ -63,6 +65,13 @@ def test_sphere_laminar_separation_on_measured_and_potential_surface_velocity():
     assert math.degrees(thwaites_mangler(0.0).t_sep) == pytest.approx(104.5, abs=1.5)
     blends = [math.degrees(thwaites_mangler(w).t_sep) for w in (0.0, 0.25, 0.5, 0.75, 1.0)]
     assert np.all(np.diff(blends) < 0)  # the blend moves separation monotonically (derived)
+    # the weight that puts separation at an angle (the demo's and the repeats' draws), found
+    # back to its 4 decimals; angles from the plane normal to the flight (t_sep - 90 deg)
+    for weight in (0.2, 0.55, 0.9):
+        assert weight_for_separation(separation_angle_deg(weight)) == pytest.approx(weight,
+                                                                                   abs=1e-4)
+    assert separation_angle_deg(1.0) == pytest.approx(math.degrees(thwaites_mangler(1.0).t_sep)
+                                                      - 90.0)
 
 
 def test_air_kinematic_viscosity_at_20_c():

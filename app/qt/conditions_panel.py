@@ -49,13 +49,13 @@ ENSEMBLE_HEADER = "ensemble"
 GROUPING_WIDTH_PX = 200  # the grouping button's text at most
 
 
-
 def _shots_tip(condition) -> str:
     """``shots s01, s02, s03; left out s02 (unusable or no angle)``."""
     tip = f"shots {', '.join(condition.shot_ids)}"
     if condition.left_out_ids:
         tip += f"; left out {', '.join(condition.left_out_ids)} (unusable or no angle)"
     return tip
+
 
 class StatisticsPanel(QWidget):
     """Conditions table, grouping chooser, ensemble and review buttons, agreement lines.
