@@ -136,8 +136,9 @@ def run_conditions(args: argparse.Namespace) -> int:
     print(f"{args.session}: {len(conditions)} condition(s) by "
           f"{', '.join(by) or 'nothing (all shots together)'}")
     print(f"  ±: the {CONFIDENCE:.0%} interval of the mean, Student t on the shot-to-shot spread, "
-          "or the shots' own ± over √n where wider (\"shots' ±\"); a side's angle is the "
-          "final one, else the proposal (\"decided\": accepted or adjusted)")
+          "or the shots' own ± over √n where wider (\"shots' ±\"; with 2 shots t is 12.7, "
+          "so the interval is wide); a side's angle is the final one, else the proposal "
+          "(\"decided\": accepted or adjusted)")
     for condition in conditions:
         for line in condition_lines(condition, ensembles.get(condition.label)):
             print(line)
