@@ -38,8 +38,8 @@ from app.review import colours
 from app.review.conditions import (
     TABLE_HEADER,
     common_text,
-    compact_ensemble_text,
     condition_cells,
+    ensemble_cell_text,
 )
 from core import WakelineError
 from core.agreement import agreement_lines, compare_reviews, latest_layer
@@ -198,7 +198,7 @@ class StatisticsPanel(QWidget):
             self.problem.emit(str(exc))
 
     def _ensemble_cell(self, condition) -> str:
-        return compact_ensemble_text(self.ensembles.get(condition.label))
+        return ensemble_cell_text(condition, self.ensembles.get(condition.label))
 
     def _show_agreement(self) -> None:
         layer = latest_layer(self.model.review_layers())

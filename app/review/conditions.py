@@ -58,6 +58,14 @@ def compact_ensemble_text(view) -> str:
     return ", ".join(parts)
 
 
+def ensemble_cell_text(condition, view) -> str:
+    """:func:`compact_ensemble_text` with the sides whose ensemble lies outside the shots'
+    interval (:func:`ensemble_disagreement`), for a table cell."""
+    text = compact_ensemble_text(view)
+    outside = [line.split(":")[0][0].upper() for line in ensemble_disagreement(condition, view)]
+    return text + (f" (outside the shots' interval: {', '.join(outside)})" if outside else "")
+
+
 def varying_columns(conditions) -> list[str]:
     """The grouping columns whose values differ between the conditions."""
     if not conditions:
