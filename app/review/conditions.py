@@ -44,8 +44,9 @@ def compact_spread_text(spread) -> str:
     return text + (" (1 shot)" if spread.n == 1 else "")
 
 
-def compact_ensemble_text(view) -> str:
-    """``U -15.6° ± 10.9°, L +13.8° ± 12.4°`` (the reason where there is no ensemble)."""
+def compact_ensemble_text(view, marked=()) -> str:
+    """``U -15.6° ± 10.9°, L +13.8° ± 12.4°`` (the reason where there is no ensemble); the
+    sides in ``marked`` get a dagger (a printed table's footnote)."""
     if view is None or isinstance(view, str):
         return "" if view is None else "none"
     parts = []
@@ -54,16 +55,21 @@ def compact_ensemble_text(view) -> str:
         value = MISSING if p.angle_deg is None else angle_text(p.angle_deg)
         if p.uncertainty_deg is not None:
             value += f" {uncertainty_text(p.uncertainty_deg)}"
-        parts.append(f"{side[0].upper()} {value}")
+        parts.append(f"{side[0].upper()} {value}" + ("†" if side in marked else ""))
     return ", ".join(parts)
+
+
+def sides_outside(condition, view) -> list[str]:
+    """The sides whose ensemble lies outside the shots' interval (:func:`ensemble_disagreement`)."""
+    return [line.split(":")[0] for line in ensemble_disagreement(condition, view)]
 
 
 def ensemble_cell_text(condition, view) -> str:
     """:func:`compact_ensemble_text` with the sides whose ensemble lies outside the shots'
     interval (:func:`ensemble_disagreement`), for a table cell."""
-    text = compact_ensemble_text(view)
-    outside = [line.split(":")[0][0].upper() for line in ensemble_disagreement(condition, view)]
-    return text + (f" (outside the shots' interval: {', '.join(outside)})" if outside else "")
+    outside = [side[0].upper() for side in sides_outside(condition, view)]
+    return compact_ensemble_text(view) + (
+        f" (outside the shots' interval: {', '.join(outside)})" if outside else "")
 
 
 def varying_columns(conditions) -> list[str]:

@@ -17,6 +17,7 @@ from app.review.conditions import (
     compact_ensemble_text,
     condition_cells,
     plot_points,
+    sides_outside,
 )
 from app.sheet.cover import paint_axes
 from app.sheet.kit import Pages, mm, one_line, pen, qcolor, rect_mm, text, triangle
@@ -56,19 +57,21 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
     if ensembles:
         note += (" Hollow diamonds: the condition's ensemble proposal (shots aligned on the "
                  "ball, one layer fitted to all of them) with its interval (the fit's, the "
-                 "launches' spread and how far their mean lies).")
+                 "launches' spread and how far their mean lies); † in the table: the ensemble "
+                 "lies outside the shots' interval.")
     axis, points = plot_points(conditions, ensembles)
     if any(pt.tag for pt in points):
         note += (f" Conditions at the same {axis} stand side by side, named above the axis by "
                  "what tells them apart.")
-    used = text(p, rect_mm(x, y, w, 12), note, 7.5, colour=colours.MUTED_INK)
+    used = text(p, rect_mm(x, y, w, 20), note, 7.5, colour=colours.MUTED_INK)
     y += used.height() / mm(1) + 2
     _paint_plot(p, rect_mm(x, y, w, 82), axis, points)
     y += 86
     cells = [condition_cells(c, conditions, compact=True) for c in conditions]
     if ensembles:
         for row, condition in zip(cells, conditions, strict=True):
-            row.append(compact_ensemble_text(ensembles.get(condition.label)))
+            view = ensembles.get(condition.label)
+            row.append(compact_ensemble_text(view, sides_outside(condition, view)))
     y = _paint_table(p, x, y, w, cells[:ROWS_FIRST_PAGE], bool(ensembles))
     layer = latest_layer(session.review_layers()) if hasattr(session, "review_layers") else None
     if layer is not None and len(cells) <= ROWS_FIRST_PAGE:
@@ -182,7 +185,7 @@ def _paint_table(p, x: float, y: float, w: float, rows, with_ensemble: bool) -> 
     heads = [*TABLE_HEADER, *(["ensemble"] if with_ensemble else [])]
     widths = [0.22, 0.07, 0.13, 0.13, 0.13, 0.12, 0.20]  # Re: "1.39-1.44 × 10⁵" on one line
     if with_ensemble:
-        widths = [0.11, 0.06, 0.11, 0.11, 0.11, 0.10, 0.17, 0.23]
+        widths = [0.20, 0.065, 0.10, 0.10, 0.10, 0.09, 0.105, 0.24]
     row_h = 5.0
     p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.ACCENT))
     cx = x
@@ -196,8 +199,9 @@ def _paint_table(p, x: float, y: float, w: float, rows, with_ensemble: bool) -> 
             p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.PAPER_TINT))
         cx = x
         for col, (cell, frac) in enumerate(zip(row, widths, strict=True)):
-            text(p, rect_mm(cx + 1, y, frac * w - 2, row_h), cell, 6.8,
-                 flags=_LEFT if col == 0 else _RIGHT)
+            # on one line, smaller where it must (a long condition name, the ensemble's cell)
+            one_line(p, rect_mm(cx + 1, y, frac * w - 2, row_h), cell, (6.8, 6.2, 5.6),
+                     flags=_LEFT if col == 0 else _RIGHT)
             cx += frac * w
         y += row_h
     p.setPen(pen(colours.RULE, 0.3))
