@@ -182,7 +182,13 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
     from types import SimpleNamespace
 
     from app.cli.conditions import condition_lines
-    from app.review.conditions import ensemble_cell_text, ensemble_disagreement, ensemble_lines
+    from app.review.conditions import (
+        compact_ensemble_text,
+        ensemble_cell_text,
+        ensemble_disagreement,
+        ensemble_lines,
+        sides_outside,
+    )
     from core.conditions import Condition
     from core.results import SeparationResult, SideProposal
 
@@ -200,6 +206,9 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
                      "± 0.5°): look at both")]
     assert ensemble_cell_text(condition, view) == (
         "U -12.4° ± 3.6°, L +7.0° ± 3.0° (outside the shots' interval: U)")
+    # the printed table marks it with a dagger (its note says what the dagger means)
+    assert compact_ensemble_text(view, sides_outside(condition, view)) == (
+        "U -12.4° ± 3.6°†, L +7.0° ± 3.0°")
     lines = ensemble_lines(condition, view)
     assert said[0] in lines
     assert lines[0].startswith("upper: ensemble -12.4° ± 3.6° (largest term: distance to the launches' mean);")
