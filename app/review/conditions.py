@@ -34,14 +34,13 @@ def condition_cells(condition, conditions=(), compact: bool = False) -> list[str
 
 
 def compact_spread_text(spread) -> str:
-    """``+12.3° ± 1.5°`` (the interval's half-width), ``+12.3° ± 2.0° (1 shot)`` or the em
-    dash."""
+    """``+12.3° ± 1.5°`` (the interval's half-width; one shot's own ±, the count being in
+    the usable column), ``+12.3° (1 shot)`` without a ±, or the em dash."""
     if spread.n == 0:
         return MISSING
-    text = angle_text(spread.mean)
-    if spread.half_width is not None:
-        text += f" {uncertainty_text(spread.half_width)}"
-    return text + (" (1 shot)" if spread.n == 1 else "")
+    if spread.half_width is None:
+        return f"{angle_text(spread.mean)} (1 shot)"
+    return f"{angle_text(spread.mean)} {uncertainty_text(spread.half_width)}"
 
 
 def compact_ensemble_text(view, marked=()) -> str:
