@@ -244,18 +244,35 @@ def condition_table(conditions, by, ensembles=None) -> tuple[list[str], list[lis
                     spread.interval_from]
         row += list(c.reynolds) if c.reynolds else [None, None]
         if ensembles is not None:
-            row += _ensemble_cells(ensembles.get(c.label))
+            row += _ensemble_cells(c, ensembles.get(c.label))
         rows.append(row)
     return header, rows
 
 
-def _ensemble_cells(view) -> list:
+def ensemble_outside(condition: Condition, view) -> list[str]:
+    """The sides ("upper", "lower") on which the ensemble's proposal (``view``: a
+    ``core.ensemble.EnsembleView``) lies outside the interval of the shots' mean. Its own ±
+    holds that distance (``core.ensemble.launch_entries``), so it is the shots' interval that
+    tells (docs/separation_accuracy.md, "The ensemble and a condition's interval")."""
+    if view is None or isinstance(view, str):
+        return []
+    out = []
+    for side in SIDES:
+        mine, shots = getattr(view.separation, side), condition.sides[side]
+        if (mine.angle_deg is not None and shots.half_width is not None
+                and abs(mine.angle_deg - shots.mean) > shots.half_width):
+            out.append(side)
+    return out
+
+
+def _ensemble_cells(condition: Condition, view) -> list:
     if view is None or isinstance(view, str):
         return [None] * len(ENSEMBLE_COLUMNS) + [view or ""]
     sep = view.separation
+    notes = [r for r in (sep.upper.reason, sep.lower.reason) if r]
+    notes += [f"{side}: outside the shots' interval" for side in ensemble_outside(condition, view)]
     return [len(view.shot_ids), sep.upper.angle_deg, sep.upper.uncertainty_deg,
-            sep.lower.angle_deg, sep.lower.uncertainty_deg,
-            "; ".join(r for r in (sep.upper.reason, sep.lower.reason) if r)]
+            sep.lower.angle_deg, sep.lower.uncertainty_deg, "; ".join(notes)]
 
 
 def write_condition_csv(session, path, by, ensembles=None) -> int:

@@ -11,6 +11,7 @@ from app.cli import main
 from core.conditions import (
     Spread,
     default_columns,
+    ensemble_outside,
     group_conditions,
     grouping_columns,
     reynolds_number,
@@ -187,7 +188,6 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
         ensemble_cell_text,
         ensemble_disagreement,
         ensemble_lines,
-        sides_outside,
     )
     from core.conditions import Condition
     from core.results import SeparationResult, SideProposal
@@ -207,8 +207,13 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
     assert ensemble_cell_text(condition, view) == (
         "U -12.4° ± 3.6°, L +7.0° ± 3.0° (outside the shots' interval: U)")
     # the printed table marks it with a dagger (its note says what the dagger means)
-    assert compact_ensemble_text(view, sides_outside(condition, view)) == (
+    assert compact_ensemble_text(view, ensemble_outside(condition, view)) == (
         "U -12.4° ± 3.6°†, L +7.0° ± 3.0°")
+    # and the table's CSV says it in its ensemble note
+    from core.conditions import condition_table
+
+    header, [row] = condition_table([condition], ["seam_deg"], {condition.label: view})
+    assert row[header.index("ensemble_note")] == "upper: outside the shots' interval"
     lines = ensemble_lines(condition, view)
     assert said[0] in lines
     assert lines[0].startswith("upper: ensemble -12.4° ± 3.6° (largest term: distance to the launches' mean);")

@@ -8,6 +8,7 @@ import math
 from dataclasses import dataclass
 
 from app.review.text import MISSING, angle_text, spread_text, times_ten_text, uncertainty_text
+from core.conditions import ensemble_outside
 
 #: Header of the statistics table (the panel and the sheet's summary page).
 TABLE_HEADER = ("condition", "usable", "upper", "lower", "upper − lower", "wake", "Re")
@@ -58,15 +59,10 @@ def compact_ensemble_text(view, marked=()) -> str:
     return ", ".join(parts)
 
 
-def sides_outside(condition, view) -> list[str]:
-    """The sides whose ensemble lies outside the shots' interval (:func:`ensemble_disagreement`)."""
-    return [line.split(":")[0] for line in ensemble_disagreement(condition, view)]
-
-
 def ensemble_cell_text(condition, view) -> str:
     """:func:`compact_ensemble_text` with the sides whose ensemble lies outside the shots'
     interval (:func:`ensemble_disagreement`), for a table cell."""
-    outside = [side[0].upper() for side in sides_outside(condition, view)]
+    outside = [side[0].upper() for side in ensemble_outside(condition, view)]
     return compact_ensemble_text(view) + (
         f" (outside the shots' interval: {', '.join(outside)})" if outside else "")
 
@@ -188,21 +184,14 @@ def _tag(condition, shared, column: str | None) -> str:
 
 
 def ensemble_disagreement(condition, view) -> list[str]:
-    """The sides on which the ensemble's proposal lies outside the interval of the shots' mean
-    (their final angles): one line each, to look at both; [] when none. The ensemble's own ±
-    holds that distance (``core.ensemble.launch_entries``), so it is the shots' interval that
-    tells (docs/separation_accuracy.md, "The ensemble and a condition's interval")."""
+    """One line per side whose ensemble proposal lies outside the interval of the shots' mean
+    (``core.conditions.ensemble_outside``), to look at both; [] when none."""
     out = []
-    if view is None or isinstance(view, str):
-        return out
-    for side in ("upper", "lower"):
+    for side in ensemble_outside(condition, view):
         mine, shots = getattr(view.separation, side), condition.sides[side]
-        if mine.angle_deg is None or shots.half_width is None:
-            continue
-        if abs(mine.angle_deg - shots.mean) > shots.half_width:
-            out.append(f"{side}: the ensemble ({angle_text(mine.angle_deg)}) lies outside the "
-                       f"shots' interval ({angle_text(shots.mean)} "
-                       f"{uncertainty_text(shots.half_width)}): look at both")
+        out.append(f"{side}: the ensemble ({angle_text(mine.angle_deg)}) lies outside the "
+                   f"shots' interval ({angle_text(shots.mean)} "
+                   f"{uncertainty_text(shots.half_width)}): look at both")
     return out
 
 

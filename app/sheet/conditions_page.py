@@ -17,12 +17,11 @@ from app.review.conditions import (
     compact_ensemble_text,
     condition_cells,
     plot_points,
-    sides_outside,
 )
 from app.sheet.cover import paint_axes
 from app.sheet.kit import Pages, mm, one_line, pen, qcolor, rect_mm, text, triangle
 from core.agreement import agreement_lines, compare_reviews, latest_layer
-from core.conditions import CONFIDENCE
+from core.conditions import CONFIDENCE, ensemble_outside
 
 ROWS_FIRST_PAGE = 14
 ROWS_PER_PAGE = 40
@@ -71,7 +70,7 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
     if ensembles:
         for row, condition in zip(cells, conditions, strict=True):
             view = ensembles.get(condition.label)
-            row.append(compact_ensemble_text(view, sides_outside(condition, view)))
+            row.append(compact_ensemble_text(view, ensemble_outside(condition, view)))
     y = _paint_table(p, x, y, w, cells[:ROWS_FIRST_PAGE], bool(ensembles))
     layer = latest_layer(session.review_layers()) if hasattr(session, "review_layers") else None
     if layer is not None and len(cells) <= ROWS_FIRST_PAGE:
