@@ -48,7 +48,7 @@ class Spread:
     the shots' own uncertainty holds the random part that the spread shows too. Where only
     some values have an uncertainty (a positive, finite one), their mean stands for all; the
     upper - lower interval takes each shot's two sides as independent (a flight error moves
-    them apart, a circle error together); on the benchmark's repeats it covered 107 of 108
+    them apart, a circle error together); on the benchmark's repeats it covered 95 of 96
     conditions. ``sd`` needs two values; one value has an interval only from its own
     uncertainty; None where there is none."""
 
