@@ -30,6 +30,14 @@ class Launch:
         return self.upper_deg if side == "upper" else self.lower_deg
 
 
+def true_pose(shot_id: str, truth) -> ShotPose:
+    """The pose a launch's generator truth (``core.synth_shot.ShotTruth``) gives: ball centre
+    at mid-exposure, its radius, displacement and flight."""
+    (ax, ay), (bx, by) = truth.center_a_px, truth.center_b_px
+    return ShotPose(shot_id, (0.5 * (ax + bx), 0.5 * (ay + by)), truth.radius_px,
+                    (bx - ax, by - ay), truth.flight_deg, truth.scale_mm_per_px, truth.dt_s)
+
+
 def repeat_launches(count: int = 6, *, seed: int = 0, radius_px: float = 48.0,
                     shape: tuple[int, int] = (288, 416), upper_deg: float = -5.0,
                     lower_deg: float = 10.0, scatter_deg: float = 1.5,
@@ -51,13 +59,7 @@ def repeat_launches(count: int = 6, *, seed: int = 0, radius_px: float = 48.0,
             upper_deg=upper, lower_deg=lower,
             wake_deflection_deg=0.3 * (lower - upper) / 2 + rng.uniform(-3.0, 3.0),
             seed=1000 * seed + number)
-        mid = tuple(0.5 * (p + q) for p, q in zip(truth.center_a_px, truth.center_b_px,
-                                                   strict=True))
-        moved = (truth.center_b_px[0] - truth.center_a_px[0],
-                 truth.center_b_px[1] - truth.center_a_px[1])
-        pose = ShotPose(f"R{number + 1}", mid, truth.radius_px, moved, truth.flight_deg,
-                        truth.scale_mm_per_px, truth.dt_s)
-        launches.append(Launch(pose, a, b, upper, lower))
+        launches.append(Launch(true_pose(f"R{number + 1}", truth), a, b, upper, lower))
     return launches
 
 
@@ -94,11 +96,6 @@ def physical_repeat_launches(count: int = 4, *, seed: int = 0, radius_px: float 
                                 for d in departure),
             surface=surface, glint=bool(rng.random() < 0.3), shadow=False,
             density_ppp=density, bit_depth=bit_depth, seed=100 * seed + number)
-        mid = tuple(0.5 * (p + q) for p, q in zip(truth.center_a_px, truth.center_b_px,
-                                                   strict=True))
-        moved = (truth.center_b_px[0] - truth.center_a_px[0],
-                 truth.center_b_px[1] - truth.center_a_px[1])
-        pose = ShotPose(f"P{number + 1}", mid, truth.radius_px, moved, truth.flight_deg,
-                        truth.scale_mm_per_px, truth.dt_s)
-        launches.append(Launch(pose, a, b, truth.upper_deg, truth.lower_deg))
+        launches.append(Launch(true_pose(f"P{number + 1}", truth), a, b, truth.upper_deg,
+                               truth.lower_deg))
     return launches
