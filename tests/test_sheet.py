@@ -83,6 +83,16 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
     assert "Final angles by seam_deg" in text
     # the conditions page: grouped by the seam angle, one row per seam angle
     assert "Separation by condition" in text and "Shots grouped by seam_deg" in text
+    # each printed row gives under its values what the interval leaves out: here (one shot
+    # per seam angle) that the value is one shot's, and how many were decided
+    from app.sheet.document import sheet_conditions
+
+    with Session.open(reviewed_session, writable=False) as session:
+        _by, conditions = sheet_conditions(session, list(session.values()))
+    assert all(len(c.usable_ids) <= 1 for c in conditions)
+    ones = sum(c.sides[side].n == 1 for c in conditions for side in ("upper", "lower"))
+    assert ones >= 3 and text.count("one shot") >= ones + 1  # the page's note says it once
+    assert all(f"{len(c.decided_ids)} decided" in text for c in conditions)
 
 
 def test_sheet_page_renders_with_content(reviewed_session, tmp_path):
@@ -163,6 +173,27 @@ def test_summary_statistics():
     # upper - lower, shot by shot (the conditions' and the table's sign): -13, -15, -14
     assert rows[0].difference_mean == pytest.approx(-14.0)
     assert math.isnan(rows[1].difference_mean)  # no shot with both angles
+
+
+def test_a_printed_condition_row_gives_the_shots_sd_under_its_values():
+    """The small print under a printed condition's values: the sample standard deviation
+    (ddof 1: sqrt(((-1)^2 + 1^2 + 0) / 2) = 1 for -9, -7, -8), and "one shot" alone."""
+    from app.review.conditions import condition_cell_notes
+    from core.conditions import group_conditions
+    from core.store.records import Pick, ShotRecord, ShotSummary
+
+    def rec(shot_id, seam, up, low, status="accepted"):
+        summary = ShotSummary.from_dict({"separation": {"upper_deg": up, "lower_deg": low}})
+        return ShotRecord(shot_id, {"seam_deg": seam}, state="processed", summary=summary,
+                          pick=Pick(status=status))
+
+    records = [rec("a", 10, -9.0, 4.0), rec("b", 10, -7.0, 8.0, "to review"),
+               rec("c", 10, -8.0, 6.0), rec("d", 20, -9.0, None)]
+    three, one = group_conditions(records, ["seam_deg"])
+    notes = condition_cell_notes(three)
+    assert notes[:4] == ["", "2 decided", "sd 1.0°", "sd 2.0°"]
+    assert notes[4] == "sd 1.0°"  # upper - lower: -13, -15, -14
+    assert condition_cell_notes(one)[1:4] == ["1 decided", "one shot", ""]
 
 
 def test_cover_gives_upper_minus_lower_as_the_rest_of_the_sheet(reviewed_session, tmp_path):

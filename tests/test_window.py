@@ -203,6 +203,12 @@ def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot):
     _key(qtbot, window, Qt.Key.Key_E, Qt.KeyboardModifier.ShiftModifier)  # +0.1
     _key(qtbot, window, Qt.Key.Key_Z)  # lower -0.5
     _key(qtbot, window, Qt.Key.Key_Down)
+    _key(qtbot, window, Qt.Key.Key_Q)  # s04 upper -0.5, then back: nothing decided
+    assert window.model.record("s04").pick.status == "adjusted"
+    _key(qtbot, window, Qt.Key.Key_E)
+    assert window.model.record("s04").pick.status == "to review"
+    assert window.canvas.mark_angle("upper") == pytest.approx(
+        window.model.record("s04").proposed_deg("upper"))
     _key(qtbot, window, Qt.Key.Key_D)  # s04 adjusted as proposed
     window.readout.note.setFocus()
     qtbot.keyClicks(window.readout.note, "wake hits the frame edge")

@@ -98,10 +98,16 @@ class MarkMove(PickEdit):
     always carries both angles the analyst stands behind.
     """
 
+    #: Marks closer than this (deg) to where they stood count as back there (nudges round
+    #: their angles to 1e-6 deg)
+    BACK_TOLERANCE_DEG = 1e-4
+
     def __init__(
         self, model: SessionModel, shot_id: str, side: str, angle_deg: float, nudge: bool = False
     ) -> None:
         record = model.record(shot_id)
+        # where both marks stood before this move (a run of merged nudges: before the first)
+        self._shown_before = {s: record.shown_deg(s) for s in ("upper", "lower")}
         other = "lower" if side == "upper" else "upper"
         other_deg = record.shown_deg(other)
         changes = {
@@ -125,7 +131,22 @@ class MarkMove(PickEdit):
             return False
         self.after = {shot_id: dict(changes) for shot_id, changes in other.after.items()}
         self.setText(other.text())
+        if self._back_where_it_stood():
+            # nudged there and back (Q then E): nothing was decided, so the shot gets back
+            # what it had before the first nudge (its status too) and the step leaves the stack
+            try:
+                self._model.apply_picks(self.before)
+            except WakelineError as exc:  # not saved: the shot keeps the nudges' net state
+                self._model.edit_refused.emit(str(exc))
+            else:
+                self.setObsolete(True)
         return True
+
+    def _back_where_it_stood(self) -> bool:
+        after = self.after[self.shot_id]
+        return all(self._shown_before[s] is not None and after[f"{s}_deg"] is not None
+                   and abs(after[f"{s}_deg"] - self._shown_before[s]) < self.BACK_TOLERANCE_DEG
+                   for s in ("upper", "lower"))
 
 
 

@@ -34,6 +34,25 @@ def condition_cells(condition, conditions=(), compact: bool = False) -> list[str
             reynolds_text(condition.reynolds)]
 
 
+def condition_cell_notes(condition) -> list[str]:
+    """What a printed row of ``condition_cells(compact=True)`` leaves out, one small line under
+    each cell: the decided count under "usable", and under each value the shots' standard
+    deviation (with "shots' ±" where the shots' own ± set the interval, "one shot" for one)."""
+    return ["", f"{len(condition.decided_ids)} decided",
+            *(spread_note(s) for s in (condition.sides["upper"], condition.sides["lower"],
+                                       condition.difference, condition.wake_deflection)),
+            ""]
+
+
+def spread_note(spread) -> str:
+    """``sd 1.2°``, ``sd 0.3°, shots' ±``, ``one shot`` or nothing (no values)."""
+    if spread.n == 0:
+        return ""
+    if spread.n == 1 or spread.sd is None:
+        return "one shot" if spread.n == 1 else ""
+    return f"sd {angle_text(spread.sd, signed=False)}" + (", shots' ±" if spread.by_shots else "")
+
+
 def compact_spread_text(spread) -> str:
     """``+12.3° ± 1.5°`` (the interval's half-width; one shot's own ±, the count being in
     the usable column), ``+12.3° (1 shot)`` without a ±, or the em dash."""

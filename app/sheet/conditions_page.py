@@ -15,6 +15,7 @@ from app.review.conditions import (
     TABLE_HEADER,
     common_text,
     compact_ensemble_text,
+    condition_cell_notes,
     condition_cells,
     plot_points,
 )
@@ -23,8 +24,9 @@ from app.sheet.kit import Pages, mm, one_line, pen, qcolor, rect_mm, text, trian
 from core.agreement import agreement_lines, compare_reviews, latest_layer
 from core.conditions import CONFIDENCE, ensemble_outside
 
-ROWS_FIRST_PAGE = 14
-ROWS_PER_PAGE = 40
+ROWS_FIRST_PAGE = 9  # leaves room below the table for an imported review's agreement
+ROWS_PER_PAGE = 28
+ROW_MM = 7.6  # a table row: the values, and under them the spread and counts in small print
 SIDE_COLOURS = {"upper": colours.UPPER_SIDE, "lower": colours.LOWER_SIDE}
 _RIGHT = QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignVCenter
 _LEFT = QtCore.Qt.AlignmentFlag.AlignLeft | QtCore.Qt.AlignmentFlag.AlignVCenter
@@ -52,7 +54,8 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
             + ". Per condition: the shots' final angles (the analyst's, else the proposal; "
             f"unusable shots left out), mean ± half-width of the {CONFIDENCE:.0%} interval: "
             "Student t on the shot-to-shot spread, or the shots' own mean ± over √n where "
-            "wider; one shot: its own ±.")
+            "wider; one shot: its own ±. Small print under each value: the shots' standard "
+            "deviation (sd), \"shots' ±\" where their own ± set the interval.")
     if ensembles:
         note += (" Hollow diamonds: the condition's ensemble proposal (shots aligned on the "
                  "ball, one layer fitted to all of them) with its interval (the fit's, the "
@@ -62,15 +65,17 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
     if any(pt.tag for pt in points):
         note += (f" Conditions at the same {axis} stand side by side, named above the axis by "
                  "what tells them apart.")
-    used = text(p, rect_mm(x, y, w, 20), note, 7.5, colour=colours.MUTED_INK)
+    used = text(p, rect_mm(x, y, w, 30), note, 7.5, colour=colours.MUTED_INK)
     y += used.height() / mm(1) + 2
     _paint_plot(p, rect_mm(x, y, w, 82), axis, points)
     y += 86
-    cells = [condition_cells(c, conditions, compact=True) for c in conditions]
+    cells = [(condition_cells(c, conditions, compact=True), condition_cell_notes(c))
+             for c in conditions]
     if ensembles:
-        for row, condition in zip(cells, conditions, strict=True):
+        for (row, notes), condition in zip(cells, conditions, strict=True):
             view = ensembles.get(condition.label)
             row.append(compact_ensemble_text(view, ensemble_outside(condition, view)))
+            notes.append("")
     y = _paint_table(p, x, y, w, cells[:ROWS_FIRST_PAGE], bool(ensembles))
     layer = latest_layer(session.review_layers()) if hasattr(session, "review_layers") else None
     if layer is not None and len(cells) <= ROWS_FIRST_PAGE:
@@ -181,6 +186,8 @@ def _legend(p, x: float, y: float, ensemble: bool) -> None:
 
 
 def _paint_table(p, x: float, y: float, w: float, rows, with_ensemble: bool) -> float:
+    """The conditions' table from ``y`` (mm); ``rows``: (cells, small notes under them) of
+    each condition. Returns where it ends."""
     heads = [*TABLE_HEADER, *(["ensemble"] if with_ensemble else [])]
     widths = [0.22, 0.07, 0.13, 0.13, 0.13, 0.12, 0.20]  # Re: "1.39-1.44 × 10⁵" on one line
     if with_ensemble:
@@ -193,16 +200,20 @@ def _paint_table(p, x: float, y: float, w: float, rows, with_ensemble: bool) -> 
              flags=_LEFT if k == 0 else _RIGHT)
         cx += frac * w
     y += row_h
-    for k, row in enumerate(rows):
+    for k, (row, notes) in enumerate(rows):
         if k % 2:
-            p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.PAPER_TINT))
+            p.fillRect(rect_mm(x, y, w, ROW_MM), qcolor(colours.PAPER_TINT))
         cx = x
-        for col, (cell, frac) in enumerate(zip(row, widths, strict=True)):
+        for col, (cell, note, frac) in enumerate(zip(row, notes, widths, strict=True)):
             # on one line, smaller where it must (a long condition name, the ensemble's cell)
-            one_line(p, rect_mm(cx + 1, y, frac * w - 2, row_h), cell, (6.8, 6.2, 5.6),
-                     flags=_LEFT if col == 0 else _RIGHT)
+            flags = _LEFT if col == 0 else _RIGHT
+            one_line(p, rect_mm(cx + 1, y + 0.4, frac * w - 2, 4.4), cell, (6.8, 6.2, 5.6),
+                     flags=flags)
+            if note:
+                one_line(p, rect_mm(cx + 1, y + 4.2, frac * w - 2, 3.0), note, (5.6, 5.0, 4.6),
+                         colour=colours.MUTED_INK, flags=flags)
             cx += frac * w
-        y += row_h
+        y += ROW_MM
     p.setPen(pen(colours.RULE, 0.3))
     p.drawLine(QtCore.QPointF(mm(x), mm(y)), QtCore.QPointF(mm(x + w), mm(y)))
     return y
