@@ -49,6 +49,8 @@ def test_a_dragged_mark_sets_the_wake_state_in_the_window_the_table_and_the_shee
     window = _open(main_window, qtbot, path, show=True)
     canvas = window.canvas
     assert window.readout.wake.text().startswith("upper side holds on longer")
+    # the regime stands with the angles it belongs to, in view on a low window
+    assert window.readout.reynolds.parent() is window.readout.wake.parent()
     assert _table_row(window, tmp_path / "t0.csv", "s01")["wake_state"] == (
         "upper side holds on longer")
     result = window.model.result("s01")

@@ -175,7 +175,7 @@ class ReadoutPanel(QWidget):
                       group)
         hint.setWordWrap(True)
         hint.setStyleSheet(f"color: {colours.MUTED_INK};")
-        grid.addWidget(hint, len(ROWS) + 3, 0, 1, 3)
+        grid.addWidget(hint, len(ROWS) + 4, 0, 1, 3)
         self.cells: dict[tuple[str, str], QLabel] = {}
         for col, side in enumerate(SIDES, start=1):
             head = QLabel(side, group)
@@ -199,6 +199,13 @@ class ReadoutPanel(QWidget):
         grid.addWidget(self.difference, len(ROWS) + 1, 1, 1, 2, Qt.AlignmentFlag.AlignRight)
         grid.addWidget(QLabel("wake", group), len(ROWS) + 2, 0)
         grid.addWidget(self.wake, len(ROWS) + 2, 1, 1, 2, Qt.AlignmentFlag.AlignRight)
+        # the regime the angles belong to (laminar or turbulent separation), in view with them
+        # rather than below the fold of a low window
+        self.reynolds = QLabel("—", group)
+        self.reynolds.setWordWrap(True)
+        self.reynolds.setAlignment(Qt.AlignmentFlag.AlignRight)
+        grid.addWidget(QLabel("Reynolds", group), len(ROWS) + 3, 0)
+        grid.addWidget(self.reynolds, len(ROWS) + 3, 1, 1, 2, Qt.AlignmentFlag.AlignRight)
         grid.setColumnStretch(0, 1)
         return group
 
@@ -209,15 +216,13 @@ class ReadoutPanel(QWidget):
         self.flight_speed = QLabel("—", group)
         self.ball_size = QLabel("—", group)
         self.vectors = QLabel("—", group)
-        self.reynolds = QLabel("—", group)
         self.by_hand = QLabel("", group)
         self.by_hand.setStyleSheet(f"color: {colours.STATUS_COLOURS['adjusted']};")
         for label in (self.flight_dir, self.flight_speed, self.ball_size, self.vectors,
-                      self.reynolds, self.by_hand):
+                      self.by_hand):
             label.setWordWrap(True)
         form.addRow("direction", self.flight_dir)
         form.addRow("speed", self.flight_speed)
-        form.addRow("Reynolds", self.reynolds)
         form.addRow("ball", self.ball_size)
         form.addRow("vectors", self.vectors)
         form.addRow("", self.by_hand)
