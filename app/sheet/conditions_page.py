@@ -191,13 +191,13 @@ def _paint_table(p, x: float, y: float, w: float, rows, with_ensemble: bool) -> 
     heads = [*TABLE_HEADER, *(["ensemble"] if with_ensemble else [])]
     widths = [0.22, 0.07, 0.13, 0.13, 0.13, 0.12, 0.20]  # Re: "1.39-1.44 × 10⁵" on one line
     if with_ensemble:
-        widths = [0.20, 0.065, 0.10, 0.10, 0.10, 0.09, 0.105, 0.24]
+        widths = [0.19, 0.065, 0.10, 0.10, 0.115, 0.09, 0.105, 0.235]
     row_h = 5.0
     p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.ACCENT))
     cx = x
     for k, (head, frac) in enumerate(zip(heads, widths, strict=True)):
-        text(p, rect_mm(cx + 1, y, frac * w - 2, row_h), head, 7.5, bold=True, colour="#ffffff",
-             flags=_LEFT if k == 0 else _RIGHT)
+        one_line(p, rect_mm(cx + 1, y, frac * w - 2, row_h), head, (7.5, 6.8, 6.2, 5.8), bold=True,
+                 colour="#ffffff", flags=_LEFT if k == 0 else _RIGHT)
         cx += frac * w
     y += row_h
     for k, (row, notes) in enumerate(rows):

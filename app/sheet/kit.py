@@ -91,10 +91,12 @@ def one_line(painter, rect: QtCore.QRectF, value: str, sizes_pt: tuple[float, ..
     for size in sizes_pt:
         painter.setFont(font(size, bold))
         metrics = painter.fontMetrics()
-        if metrics.horizontalAdvance(value) <= rect.width() or size == sizes_pt[-1]:
+        if metrics.horizontalAdvance(value) <= rect.width():
+            shown = value  # (Qt's eliding can cut a text that fits, by rounding: not asked)
+            break
+        if size == sizes_pt[-1]:
             shown = metrics.elidedText(value, QtCore.Qt.TextElideMode.ElideRight,
                                        int(rect.width()))
-            break
     painter.setPen(qcolor(colour))
     align = flags if flags is not None else QtCore.Qt.AlignmentFlag.AlignLeft
     painter.drawText(rect, int(align) | int(QtCore.Qt.AlignmentFlag.AlignVCenter)
