@@ -165,6 +165,10 @@ def _checked_frame(path: Path, page: np.ndarray) -> np.ndarray:
         )
     if page.ndim != 2:
         raise WakelineError(f"{path}: expected a 2-D greyscale frame, got shape {page.shape}")
+    if page.dtype.kind not in "uif":  # 1-bit (bool), complex, ...: not a camera's grey levels
+        what = "a 1-bit (black and white)" if page.dtype.kind == "b" else f"a {page.dtype}"
+        raise WakelineError(f"{path}: {what} image; export the camera's greyscale frames "
+                            "(8 to 16 bits, or floating point)")
     if page.size == 0 or min(page.shape) < 16:
         raise WakelineError(f"{path}: frame of {page.shape[1]}x{page.shape[0]} px is too small")
     if page.dtype.kind == "f" and not np.all(np.isfinite(page)):

@@ -17,6 +17,9 @@ from core import WakelineError
 #: Change of the predictor across a window (px, centre to corner) up to which the blocks of
 #: the window are moved as a whole instead of deformed pixel by pixel (``core.piv.deform``).
 DEFORM_MIN_CHANGE_PX = 0.1
+#: Interrogation windows a pass may ask for (px): 8 is about the least that holds enough
+#: particle images; 4096 is far beyond any frame's use and keeps a typo from being kept.
+MIN_WINDOW_PX, MAX_WINDOW_PX = 8, 4096
 
 
 @dataclass(frozen=True)
@@ -74,6 +77,10 @@ class PivSettings:
         }
         values = {k: v for k, v in dict(data).items() if k in known}
         if strict:
+            unknown = sorted(set(dict(data)) - known)
+            if unknown:  # a misspelt name would silently leave its default in force
+                raise WakelineError(f"PIV settings: unknown key(s) {', '.join(unknown)} (known: "
+                                    f"{', '.join(sorted(known))})")
             _check_kinds(values, known)
         if "passes" in values:
             values["passes"] = tuple(_pass_from(p, strict) for p in values["passes"])
@@ -126,6 +133,10 @@ def _pass_from(p, strict: bool = False) -> PivPass:
         window, overlap = p
         return PivPass(int(window), float(overlap))
     if isinstance(p, dict) and "window_px" in p:
+        unknown = sorted(set(p) - {"window_px", "overlap"})
+        if unknown:
+            raise WakelineError(f"PIV settings: a pass has unknown key(s) {', '.join(unknown)} "
+                                "(known: overlap, window_px)")
         window, overlap = p["window_px"], p.get("overlap", 0.5)
     elif isinstance(p, (list, tuple)) and len(p) == 2:
         window, overlap = p
@@ -135,6 +146,9 @@ def _pass_from(p, strict: bool = False) -> PivPass:
     if not (is_number(window) and is_number(overlap)):
         raise WakelineError(f"PIV settings: a pass's window and overlap must be numbers, not "
                             f"{shown(p)}")
+    if not float(window).is_integer() or not MIN_WINDOW_PX <= window <= MAX_WINDOW_PX:
+        raise WakelineError(f"PIV settings: window {shown(window)} px (use a whole number from "
+                            f"{MIN_WINDOW_PX} to {MAX_WINDOW_PX})")
     return PivPass(int(window), float(overlap))
 
 
@@ -142,8 +156,9 @@ def _check_settings(s: PivSettings) -> None:
     if not s.passes:
         raise WakelineError("PIV settings: at least one pass is needed")
     for p in s.passes:
-        if int(p.window_px) != p.window_px or p.window_px < 8:
-            raise WakelineError(f"PIV settings: window {p.window_px} px (use a whole number >= 8)")
+        if int(p.window_px) != p.window_px or p.window_px < MIN_WINDOW_PX:
+            raise WakelineError(f"PIV settings: window {p.window_px} px (use a whole number >= "
+                                f"{MIN_WINDOW_PX})")
         if not 0.0 <= p.overlap < 1.0:
             raise WakelineError(f"PIV settings: overlap {p.overlap} (use 0 <= overlap < 1)")
     if s.median_threshold <= 0 or s.median_eps_px < 0:

@@ -24,7 +24,7 @@ def _files(folder) -> dict[str, bytes]:
 
 @pytest.mark.parametrize("command", ["table", "sheet"])
 @pytest.mark.parametrize("target", ["s.h5", "s.h5.journal", "s.h5.lock", "s.h5.tmp",
-                                    "s.h5.pending/000000001.h5", "src/S1_a.tif"])
+                                    "s.h5.pending/000000001.h5", "src/S1_a.tif", "src/shots.csv"])
 def test_table_and_sheet_refuse_to_overwrite_the_session_or_its_files(
         session_path, command, target, capsys):
     folder = session_path.parent

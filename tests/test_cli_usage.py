@@ -167,6 +167,22 @@ def test_a_reader_that_stops_early_ends_the_output_quietly(session_path, argv, m
     assert "Broken pipe" not in capsys.readouterr().err
 
 
+@pytest.mark.parametrize("address", ["garbage", "localhost:abc", "tcp://localhost", "",
+                                     "tcp://host:70000"])
+def test_a_scheduler_address_without_host_and_port_is_bad_usage(session_path, address, capsys):
+    # it once waited 20 s for a client and printed dask's traceback
+    line = usage_error(["process", str(session_path), "--scheduler", address], capsys)
+    assert line.endswith(f"{address!r} is not an address like tcp://HOST:PORT")
+
+
+def test_scheduler_addresses_as_dask_takes_them():
+    from app.cli.options import scheduler_address
+
+    assert scheduler_address("10.0.0.5:8786") == "tcp://10.0.0.5:8786"
+    assert scheduler_address("tls://node-3.lab:8786") == "tls://node-3.lab:8786"
+    assert scheduler_address("tcp://[::1]:8786") == "tcp://[::1]:8786"
+
+
 def test_the_sheet_refuses_standard_output(session_path, tmp_path, capsys, monkeypatch):
     monkeypatch.chdir(tmp_path)
     line = usage_error(["sheet", str(session_path), "-o", "-"], capsys)

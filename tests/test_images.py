@@ -104,6 +104,14 @@ def test_colour_refused(tmp_path):
         read_frame_pair(tmp_path / "c.png", tmp_path / "c.png")
 
 
+@pytest.mark.parametrize(("stored", "named"), [(np.bool_, "1-bit"), (np.complex64, "complex64")])
+def test_frames_that_are_not_grey_levels_are_refused_by_name(tmp_path, stored, named):
+    # they once stopped a whole import with an internal error naming no file
+    tifffile.imwrite(tmp_path / "x.tif", (_frame() > 100).astype(stored))
+    with pytest.raises(WakelineError, match=f"x.tif: a {named}.*greyscale"):
+        read_frame_pair(tmp_path / "x.tif", tmp_path / "x.tif")
+
+
 def test_non_finite_refused(tmp_path):
     f = np.ones((64, 80), np.float32)
     f[3, 4] = np.nan

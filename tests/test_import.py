@@ -100,6 +100,15 @@ def test_unreadable_frame_and_duplicate_row_are_reported(tmp_path):
     assert "shots.csv line 4: shot id S0 is given twice (also line 2)" in report.problems
 
 
+def test_a_1_bit_frame_is_one_row_s_problem_and_the_rows_after_it_are_imported(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 3)
+    tifffile.imwrite(src / "S1_a.tif", np.zeros((192, 256), bool))
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == ["S0", "S2"]
+    assert len(report.problems) == 1 and "line 3 (shot S1)" in report.problems[0]
+    assert "1-bit" in report.problems[0]
+
+
 def test_second_import_adds_to_an_existing_session(tmp_path):
     write_shot_folder(tmp_path / "one", 1)
     two = tmp_path / "two"
@@ -161,6 +170,19 @@ def test_quoted_notes_with_commas_and_line_breaks(tmp_path):
     assert import_folder(src, tmp_path / "t.h5").problems[0].startswith("shots.csv line 2 ")
     with Session.open(tmp_path / "s.h5", writable=False) as s:
         assert s["S0"].metadata["notes"] == "seam up, new ball\nsecond line"
+
+
+def test_a_quote_never_closed_is_refused_not_read_as_one_long_note(tmp_path):
+    # with csv's lenient reading the open quote swallowed every row after it into S0's notes,
+    # and the import said it had imported one shot
+    from core import WakelineError
+
+    src = write_shot_folder(tmp_path / "src", 2)
+    (src / "shots.csv").write_text(
+        f'{HEADER}\nS0,2e-05,0.08,71.6,5,"12 in ball\nS1,2e-05,0.08,71.6,5,ok\n')
+    with pytest.raises(WakelineError, match=r"shots.csv line 2: a quote opened there is never"):
+        import_folder(src, tmp_path / "s.h5")
+    assert not (tmp_path / "s.h5").exists()
 
 
 def test_an_import_stopped_part_way_keeps_what_it_imported(tmp_path):

@@ -404,6 +404,13 @@ def test_settings_change_marks_shots_for_processing(session_path):
         assert s.settings_for("S0").dt_s == 2e-5
         with pytest.raises(WakelineError, match="unknown key"):
             s.set_processing_settings({"windows": 3})
+        # inside the PIV block too: a misspelt name or a cut-off window once kept the default
+        for piv, said in (({"pases": []}, "unknown key.*pases"),
+                          ({"passes": [{"window_px": 64, "overlapp": 0.7}]}, "overlapp"),
+                          ({"passes": [{"window_px": 64.5, "overlap": 0.5}]}, "64.5 px"),
+                          ({"passes": [[1e308, 0.5]]}, "from 8 to 4096")):
+            with pytest.raises(WakelineError, match=said):
+                s.set_processing_settings({"piv": piv})
     with Session.open(session_path, writable=False) as s:
         assert s.processing_settings()["piv"]["passes"][0]["window_px"] == 48
 

@@ -32,6 +32,23 @@ def whole_count(text: str) -> int:
     return value
 
 
+#: The transports a dask scheduler's address may name (``distributed``'s comm schemes)
+SCHEDULER_SCHEMES = ("tcp", "tls", "ucx", "ws", "wss")
+
+
+def scheduler_address(text: str) -> str:
+    """``tcp://HOST:PORT`` (or ``HOST:PORT``, or another of dask's transports) of a scheduler,
+    checked before a client waits on it (``--scheduler``)."""
+    scheme, sep, rest = text.strip().partition("://")
+    if not sep:
+        scheme, rest = "tcp", scheme
+    host, colon, port = rest.rpartition(":")
+    if scheme not in SCHEDULER_SCHEMES or not colon or not host or not port.isdigit() or not (
+            0 < int(port) < 65536):
+        raise argparse.ArgumentTypeError(f"{text!r} is not an address like tcp://HOST:PORT")
+    return f"{scheme}://{host}:{int(port)}"
+
+
 def positive_number(text: str) -> float:
     """A finite number above 0 (``--dt``, ``--scale``, ``--ball-diameter``)."""
     value = finite_number(text)
@@ -75,16 +92,19 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
 
     ``outputs``: the files the command is about to write (None entries are skipped);
     ``session``: the session it reads (the snapshot and every companion file are refused);
-    ``inputs``: frame files it reads.
+    ``inputs``: frame files it reads (the ``shots.csv`` beside them, the import's manifest, is
+    refused too: the analyst's list of shots).
 
     Raises
     ------
     WakelineError
         "OUT: is ...; choose another output file", or "OUT: is a folder; ...".
     """
+    from core.store import MANIFEST_NAME
     from core.store.companions import refuse_session_file
     from core.store.files import same_place
 
+    manifests = {Path(frame).parent / MANIFEST_NAME for frame in inputs}
     seen: list[Path] = []
     for out in (Path(o) for o in outputs if o is not None):
         if out.is_dir():
@@ -95,6 +115,10 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
             if same_place(out, frame):
                 raise WakelineError(f"{out}: is the frame file {frame.name}; choose another "
                                     "output file")
+        for manifest in manifests:
+            if same_place(out, manifest):
+                raise WakelineError(f"{out}: is the {MANIFEST_NAME} the session's frames were "
+                                    "imported with; choose another output file")
         if any(same_place(out, other) for other in seen):
             raise WakelineError(f"{out}: given for both outputs; choose another output file")
         seen.append(out)

@@ -15,6 +15,7 @@ from app.cli.options import (
     UsageError,
     check_outputs,
     known_ball_types,
+    scheduler_address,
     session_frame_files,
     whole_count,
 )
@@ -71,7 +72,7 @@ def _add_process(subparsers) -> None:
     p.add_argument("--workers", type=whole_count, metavar="N",
                    help="worker processes (default: one per core, as many as free memory "
                    "holds; 0 = in this process)")
-    p.add_argument("--scheduler", metavar="ADDRESS",
+    p.add_argument("--scheduler", type=scheduler_address, metavar="ADDRESS",
                    help="tcp://HOST:PORT of a dask scheduler: measure on that cluster "
                    "(its workers must see the session and frame files at the same paths)")
     p.add_argument("--force", action="store_true", help="measure again even if up to date")

@@ -172,8 +172,34 @@ def read_csv_table(path: Path, what: str) -> tuple[list[str], Iterator[list[str]
         raise WakelineError(f"{path}: is a folder, not a {what}") from None
     except UnicodeDecodeError:
         raise WakelineError(f"{path}: not UTF-8 text") from None
-    reader = csv.reader(io.StringIO(text, newline=""))
-    return [h.strip() for h in next(reader, [])], reader
+    reader = CsvRows(path, text)
+    return [h.strip() for h in next(iter(reader), [])], reader
+
+
+class CsvRows:
+    """A CSV file's rows (``csv.reader``, strict: a quote opened and never closed is an error,
+    not a cell that swallows every row after it), with ``line_num`` as the reader has it; a
+    malformed row raises one line naming the file and where the row starts."""
+
+    def __init__(self, path: Path, text: str):
+        self.path = path
+        self._reader = csv.reader(io.StringIO(text, newline=""), strict=True)
+
+    @property
+    def line_num(self) -> int:
+        return self._reader.line_num
+
+    def __iter__(self) -> Iterator[list[str]]:
+        return self
+
+    def __next__(self) -> list[str]:
+        start = self._reader.line_num + 1
+        try:
+            return next(self._reader)
+        except csv.Error as exc:
+            why = ("a quote opened there is never closed" if "end of data" in str(exc)
+                   else str(exc))
+            raise WakelineError(f"{self.path} line {start}: {why}") from None
 
 
 #: How alike (difflib's ratio) a CSV column's name must be to one wakeline reads to be pointed

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import csv
 import math
 from pathlib import Path
 
@@ -61,7 +60,7 @@ def read_manifest(path: Path) -> tuple[list[str], list[tuple[int, dict, str]]]:
                                 missing, [n for n in header if n not in KNOWN_COLUMNS])))
     rows = []
     end_of_last = reader.line_num
-    for cells in _csv_rows(reader, path):
+    for cells in reader:
         line, end_of_last = end_of_last + 1, reader.line_num  # where the row starts
         if not any(c.strip() for c in cells):
             continue
@@ -84,13 +83,6 @@ def _separator_hint(header: list[str]) -> str:
                 return (f" (the header is separated by {name}; {MANIFEST_NAME} must be "
                         "comma-separated, with '.' as the decimal mark)")
     return ""
-
-
-def _csv_rows(reader, path: Path):
-    try:
-        yield from reader
-    except csv.Error as exc:
-        raise WakelineError(f"{path} line {reader.line_num}: {exc}") from None
 
 
 def _row_metadata(values: dict) -> tuple[dict, str]:
