@@ -76,6 +76,29 @@ def test_hand_damaged_journal_lines_are_named_in_one_line(session_path, line):
     assert not session_path.with_name("s.h5.lock").exists()
 
 
+@pytest.mark.parametrize("last", [b"\xff not json at all\n", b"garbage without an end"],
+                         ids=["whole-line", "tail"])
+def test_a_damaged_last_journal_line_is_named_not_dropped(session_path, last):
+    # a kill leaves only an entry's first bytes without a line break; anything else on the last
+    # line was once dropped without a word (and the next writer folded the rest in)
+    journal = session_path.with_name("s.h5.journal")
+    good = {"seq": _last_seq(session_path) + 1, "op": "pick", "shot": "S2", "pick": PICK}
+    data = (dumps(good) + "\n").encode() + last
+    journal.write_bytes(data)
+    for writable in (True, False):
+        assert "line 2 is damaged" in _one_line_error(session_path, writable)
+    assert journal.read_bytes() == data
+
+
+@pytest.mark.parametrize("tail", [b'{"seq": 9, "op": "pi', b"\0" * 40], ids=["torn", "zeros"])
+def test_what_a_kill_or_a_power_cut_leaves_at_the_end_is_left_out(session_path, tail):
+    journal = session_path.with_name("s.h5.journal")
+    good = {"seq": _last_seq(session_path) + 1, "op": "pick", "shot": "S2", "pick": PICK}
+    journal.write_bytes((dumps(good) + "\n").encode() + tail)
+    with Session.open(session_path, writable=False) as s:
+        assert s["S2"].pick.status == "accepted"
+
+
 @pytest.mark.parametrize("damage", [
     lambda index: index["shots"].append("S9"),
     lambda index: index["shots"][0].pop("shot_id"),

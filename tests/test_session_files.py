@@ -150,6 +150,30 @@ def test_a_folder_not_writable_gets_advice_that_fits(tmp_path, monkeypatch, exis
         raise PermissionError(13, "Permission denied")
 
     monkeypatch.setattr(Lock, "_try_create", refused)
-    advice = "open the session read-only" if exists else "choose a folder you may write in"
+    advice = ("copy the session to a folder you may write in, or open it read-only" if exists
+              else "choose a folder you may write in")
     with pytest.raises(SessionReadOnly, match=f"its folder is not writable; {advice}$"):
         Lock(session).acquire()
+
+
+@pytest.mark.parametrize("content", ["[1, 2]", '"text"', "", "not json"])
+def test_a_lock_file_naming_no_holder_is_taken_over(tmp_path, content):
+    # a JSON list once gave an internal error naming no file
+    from core.store.lock import Lock
+
+    session = tmp_path / "s.h5"
+    (tmp_path / "s.h5.lock").write_text(content)
+    lock = Lock(session)
+    lock.acquire()
+    assert lock.held and '"pid"' in (tmp_path / "s.h5.lock").read_text()
+    lock.release()
+
+
+def test_a_folder_where_the_lock_goes_is_named_and_left_alone(tmp_path):
+    from core import WakelineError
+    from core.store.lock import Lock
+
+    (tmp_path / "s.h5.lock").mkdir()
+    with pytest.raises(WakelineError, match=r"s.h5.lock: a folder stands where"):
+        Lock(tmp_path / "s.h5").acquire()
+    assert (tmp_path / "s.h5.lock").is_dir()

@@ -29,16 +29,19 @@ class Journal:
             return [], 0
         entries: list[tuple[int, dict]] = []
         good = 0
-        bad_line = None
-        for number, line in enumerate(data.split(b"\n")[:-1], start=1):
+        *lines, tail = data.split(b"\n")
+        for number, line in enumerate(lines, start=1):
             entry = _parse_line(line)
             if entry is None:
-                bad_line = bad_line or number
-                continue
-            if bad_line is not None:
-                raise self.damaged(bad_line, "not a whole entry, and entries follow it")
+                # a kill leaves only a line without its line break (append writes the break
+                # last): a whole line that cannot be read was damaged since
+                raise self.damaged(number, "not a whole entry, though its line is ended")
             entries.append((number, entry))
             good += len(line) + 1
+        if tail.strip(b"\0") and not tail.startswith(b"{"):
+            # nor does a kill start a line with anything but an entry's first bytes (a power
+            # cut may leave zeros where the last line was being written)
+            raise self.damaged(len(lines) + 1, "not the beginning of an entry")
         return entries, good
 
     def damaged(self, number: int, why: str) -> WakelineError:

@@ -88,11 +88,15 @@ class Lock:
             "host": socket.gethostname(), "pid": os.getpid(), "user": user_name(),
             "since": now_utc(), "start": _process_start(os.getpid()),
         }
+        if self.path.is_dir():  # nothing wakeline makes: not for it to remove
+            raise WakelineError(f"{self.path}: a folder stands where the session's lock file "
+                                "goes; move it away")
         for _ in range(5):
             try:
                 created = self._try_create(me)
             except PermissionError:
-                advice = ("open the session read-only" if self.session_path.exists()
+                advice = ("copy the session to a folder you may write in, or open it "
+                          "read-only" if self.session_path.exists()
                           else "choose a folder you may write in")
                 raise SessionReadOnly(f"{self.session_path}: its folder is not writable; "
                                       f"{advice}") from None
@@ -124,10 +128,7 @@ class Lock:
             os.replace(self.path, aside)
         except FileNotFoundError:
             return
-        try:
-            moved = json.loads(aside.read_text())
-        except (OSError, ValueError):
-            moved = None
+        moved = _holder_in(aside)
         if moved != holder and moved is not None:
             try:
                 os.link(aside, self.path)
@@ -167,10 +168,7 @@ class Lock:
         return True
 
     def _read(self) -> dict | None:
-        try:
-            return json.loads(self.path.read_text())
-        except (OSError, ValueError):
-            return None
+        return _holder_in(self.path)
 
     @staticmethod
     def _stale(holder: dict) -> bool:
@@ -187,6 +185,15 @@ class Lock:
             if holder and holder.get("pid") == os.getpid() and holder.get("host") == socket.gethostname():
                 self.path.unlink(missing_ok=True)
             self.held = False
+
+
+def _holder_in(path: Path) -> dict | None:
+    """The holder a lock file names; None when it names none (damaged: taken as stale)."""
+    try:
+        holder = json.loads(path.read_text())
+    except (OSError, ValueError):
+        return None
+    return holder if isinstance(holder, dict) else None
 
 
 def user_name() -> str:
