@@ -213,6 +213,9 @@ def measure_task(task: dict, piv_threads: int | None = None):
         return shot_id, None, str(exc)
     except MemoryError:
         return shot_id, None, "out of memory while measuring"
+    except OSError as exc:  # a frame file gone unreadable since import: the file and why
+        where = f"{exc.filename}: " if exc.filename else ""
+        return shot_id, None, f"{where}cannot be read ({exc.strerror or exc})"
     except Exception as exc:  # noqa: BLE001 - one bad shot must not stop the batch; keep its reason
         text = str(exc).splitlines()[0] if str(exc) else ""
         return shot_id, None, f"{type(exc).__name__}: {text}".rstrip(": ")

@@ -245,3 +245,20 @@ def test_the_command_says_which_accepted_shots_went_back_to_review(session_path,
     out, err = capsys.readouterr()
     assert f"wakeline: shot S2: {said}" in err
     assert "processed 4 shot(s); 1 accepted shot(s) back to review (their proposal moved)" in out
+
+
+def test_a_frame_the_worker_may_not_read_is_named_in_the_analyst_s_words(session_path,
+                                                                          monkeypatch):
+    # it once read "PermissionError: [Errno 13] ..." (the Python class of the failure)
+    import core.batch
+    from core.batch import _task, measure_task
+
+    def refused(shot_id, source):
+        raise PermissionError(13, "Permission denied", source["path_a"])
+
+    with Session.open(session_path, writable=False) as s:
+        task = _task(s, "S0")
+    monkeypatch.setattr(core.batch, "read_frames", refused)
+    shot_id, result, why = measure_task(task)
+    assert result is None
+    assert why == f"{task['source']['path_a']}: cannot be read (Permission denied)"

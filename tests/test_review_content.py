@@ -106,6 +106,8 @@ def test_a_newer_journal_record_is_named_and_nothing_is_changed(session_path):
     (["S9,accepted,1,2,,,,x"], r"line 2 \(shot S9\): not in the session"),
     (["S0,maybe,1,2,,,,x"], r"line 2 \(shot S0\): review status 'maybe' is not one of"),
     (["S0,adjusted,abc,2,,,,x"], r"upper_final_deg 'abc' is not a number"),
+    (["S0,adjusted,1,720,,,,x"], r"lower_final_deg 720 lies outside -180 to 180 deg"),
+    (['S0,adjusted,1,2,,,,"x'], r"line 2: a quote opened there is never closed"),
     (["S0,unusable,,,,,,x"], r"unusable without a reason"),
     (["S0,accepted,1,2,,,,x", "S0,accepted,1,2,,,,x"], r"line 3 \(shot S0\): given twice"),
     (["S0,maybe,1,2,,,,x", "S9,accepted,,,,,,"],

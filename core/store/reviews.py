@@ -209,6 +209,8 @@ def _angle(column: str, text: str) -> float | None:
         raise ValueError(f"{column} {text!r} is not a number") from None
     if not math.isfinite(value):
         raise ValueError(f"{column} must be a finite angle in degrees")
+    if not -180.0 < value <= 180.0:  # the range of an outline point's angle on its side
+        raise ValueError(f"{column} {text} lies outside -180 to 180 deg")
     return value
 
 
