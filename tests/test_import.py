@@ -69,6 +69,16 @@ def test_missing_column_refuses_the_manifest_and_creates_nothing(tmp_path, capsy
     assert not (tmp_path / "s.h5").exists()
 
 
+def test_an_empty_manifest_and_a_file_for_a_folder_are_named_as_such(tmp_path, capsys):
+    src = write_shot_folder(tmp_path / "src", 1)
+    (src / "shots.csv").write_text("\n")
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
+    assert capsys.readouterr().err.strip() == f"wakeline: {src / 'shots.csv'}: manifest is empty"
+    assert main(["import", str(src / "shots.csv"), str(tmp_path / "s.h5")]) == 1
+    assert "shots.csv: is a file; give the folder that holds it" in capsys.readouterr().err
+    assert not (tmp_path / "s.h5").exists()
+
+
 @pytest.mark.parametrize(
     ("row", "message"),
     [

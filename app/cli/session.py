@@ -111,7 +111,9 @@ def run_import(args: argparse.Namespace) -> int:
     from core.store.manifest import MANIFEST_NAME
 
     if not args.src_dir.is_dir():
-        raise WakelineError(f"{args.src_dir}: folder not found")
+        raise WakelineError(f"{args.src_dir}: " + (
+            f"is a file; give the folder that holds it and its {MANIFEST_NAME}"
+            if args.src_dir.exists() else "folder not found"))
     report = import_folder(args.src_dir, args.session, embed=args.embed,
                            ball_types=known_ball_types(), correct_values=args.correct_values)
     for problem in report.problems:

@@ -172,6 +172,8 @@ def read_csv_table(path: Path, what: str) -> tuple[list[str], Iterator[list[str]
         raise WakelineError(f"{path}: is a folder, not a {what}") from None
     except UnicodeDecodeError:
         raise WakelineError(f"{path}: not UTF-8 text") from None
+    if not text.strip():
+        raise WakelineError(f"{path}: {what} is empty")
     reader = CsvRows(path, text)
     return [h.strip() for h in next(iter(reader), [])], reader
 

@@ -123,8 +123,18 @@ def read_snapshot(path: Path) -> Snapshot:
     except WakelineError:
         raise
     except (OSError, KeyError, ValueError) as exc:
-        reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
-        raise WakelineError(f"{path}: damaged or truncated session file ({reason})") from None
+        raise WakelineError(f"{path}: damaged or truncated session file "
+                            f"({_hdf5_reason(exc)})") from None
+
+
+def _hdf5_reason(exc: Exception) -> str:
+    """HDF5's reason in a few words: a truncated file's sizes rather than the library's fields
+    (``truncated file: eof = 5000, sblock->base_addr = 0, stored_eof = 22653``)."""
+    reason = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+    sizes = re.search(r"truncated file: eof = (\d+).*stored_eof = (\d+)", reason)
+    if sizes:
+        return f"{int(sizes[1])} of its {int(sizes[2])} bytes are there"
+    return reason
 
 
 def file_identity(path: Path) -> tuple[int, int, int] | None:
