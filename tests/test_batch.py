@@ -259,6 +259,6 @@ def test_a_frame_the_worker_may_not_read_is_named_in_the_analyst_s_words(session
     with Session.open(session_path, writable=False) as s:
         task = _task(s, "S0")
     monkeypatch.setattr(core.batch, "read_frames", refused)
-    shot_id, result, why = measure_task(task)
+    _shot_id, result, why = measure_task(task)
     assert result is None
     assert why == f"{task['source']['path_a']}: cannot be read (Permission denied)"
