@@ -120,3 +120,17 @@ def test_window_without_display_is_one_line_exit_1():
                           text=True, env=env, timeout=60)
     assert done.returncode == 1
     assert "no display" in done.stderr and "Traceback" not in done.stderr
+
+
+def test_pair_names_the_file_where_no_ball_was_found(tmp_path, capsys):
+    from app.cli import main
+    from core.images import write_frame
+    from core.synth import particle_pair, uniform
+
+    a, b = particle_pair((128, 160), uniform(2.0, 1.0), seed=4)  # air only
+    write_frame(tmp_path / "a.tif", a)
+    write_frame(tmp_path / "b.tif", b)
+    assert main(["pair", str(tmp_path / "a.tif"), str(tmp_path / "b.tif"), "--dt", "1e-4"]) == 1
+    err = capsys.readouterr().err.strip()
+    assert err.startswith(f"wakeline: frame A ({tmp_path / 'a.tif'}): no ball found")
+    assert "\n" not in err

@@ -86,6 +86,7 @@ def test_an_empty_manifest_and_a_file_for_a_folder_are_named_as_such(tmp_path, c
         ("S0,-2e-05,0.08,71.6,,", "dt_s must be positive"),
         ("S0,2e-05,0.08,,,", "ball_diameter_mm is empty"),
         ("S0,2e-05,nan,71.6,,", "not a finite number"),
+        ("S0,2e-05,0.08,71_6,,", "ball_diameter_mm '71_6' is not a number"),
         (",2e-05,0.08,71.6,,", "empty shot id"),
         ("S0,2e-05,0.08,71.6,,,,extra", "header has 6 columns"),
     ],

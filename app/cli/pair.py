@@ -86,7 +86,15 @@ def run_pair(args: argparse.Namespace) -> int:
         mask_glare=not args.no_glare_mask,
         normalise_spacings=args.normalise or None,
     )
-    result = measure_shot(frame_a, frame_b, settings, background=background)
+    try:
+        result = measure_shot(frame_a, frame_b, settings, background=background)
+    except WakelineError as exc:  # "frame B: no ball found": which file that is
+        names = {"frame A": f"frame A ({args.frame_a})",
+                 "frame B": f"frame B ({args.frame_b or f'{args.frame_a}, page 2'})"}
+        said = str(exc)
+        for name, named in names.items():
+            said = said.replace(name, named, 1) if said.startswith(name) else said
+        raise WakelineError(said) from None
     summary = result.summary()
     if args.json:
         _write_text(args.json, json.dumps(summary, indent=2) + "\n")

@@ -106,6 +106,8 @@ def _number(key: str, text: str) -> tuple[float | None, str]:
     if text == "":
         return None, ""
     try:
+        if "_" in text:  # Python reads 1_000 as 1000; a spreadsheet's cell does not
+            raise ValueError(text)
         value = float(text)
     except ValueError:
         return None, f"{key} {text!r} is not a number"

@@ -204,6 +204,8 @@ def _angle(column: str, text: str) -> float | None:
     if not text:
         return None
     try:
+        if "_" in text:  # Python reads 1_000 as 1000; a spreadsheet's cell does not
+            raise ValueError(text)
         value = float(text)
     except ValueError:
         raise ValueError(f"{column} {text!r} is not a number") from None
