@@ -89,3 +89,14 @@ def test_pair_says_why_it_gives_no_reynolds_number():
     text = describe(ShotSummary.from_dict(fake_result(ShotSettings(dt_s=2e-5)).summary()))
     assert text.endswith("note: no Reynolds number: it needs the ball's diameter "
                          "(--ball-diameter or --ball-type)")
+
+
+def test_an_output_reached_by_a_link_is_written_where_the_link_points(session_path, tmp_path):
+    # the link was once replaced by a file of its own, the file it named left as it was
+    target = tmp_path / "runs" / "table-2026.csv"
+    target.parent.mkdir()
+    target.write_text("old\n")
+    link = tmp_path / "latest.csv"
+    link.symlink_to(target)
+    assert main(["table", str(session_path), "-o", str(link)]) == 0
+    assert link.is_symlink() and target.read_text().startswith("shot,")

@@ -69,9 +69,12 @@ def atomic_write(path, suffix: str = ".tmp", like: Path | None = None) -> Iterat
     """Write a file whole or not at all: yields a temporary path beside ``path`` to write to;
     on leaving the block the file is fsynced and renamed over ``path`` and the rename made
     durable. The new file keeps the mode and group of the one it replaces (or of ``like``).
-    On an exception the temporary file is removed and ``path`` is left as it was.
+    On an exception the temporary file is removed and ``path`` is left as it was. A link is
+    followed: the file it names is replaced, and the link stays.
     """
     path = Path(path)
+    if path.is_symlink():
+        path = path.resolve()
     tmp = path.with_name(path.name + suffix)
     tmp.unlink(missing_ok=True)
     try:
