@@ -159,6 +159,8 @@ def _read_png(path: Path) -> np.ndarray:
 
 def _checked_frame(path: Path, page: np.ndarray) -> np.ndarray:
     page = np.asarray(page)
+    if page.ndim == 3 and page.shape[-1] in (3, 4) and _grey_in_colour(page):
+        page = page[..., 0]  # grey levels stored as colour (a palette PNG, an RGB export)
     if page.ndim == 3 and page.shape[-1] in (3, 4):
         raise WakelineError(
             f"{path}: colour image ({page.shape[-1]} channels); export the camera's single-channel frames"
@@ -174,6 +176,14 @@ def _checked_frame(path: Path, page: np.ndarray) -> np.ndarray:
     if page.dtype.kind == "f" and not np.all(np.isfinite(page)):
         raise WakelineError(f"{path}: frame contains non-finite values (NaN or inf)")
     return page  # as stored: its bit depth is compared with the other frame's
+
+
+def _grey_in_colour(page: np.ndarray) -> bool:
+    """Three equal colour channels (and, with a fourth, no transparency): a grey frame."""
+    red = page[..., 0]
+    opaque = page.shape[-1] == 3 or (
+        page.dtype.kind in "ui" and np.all(page[..., 3] == np.iinfo(page.dtype).max))
+    return bool(opaque and np.array_equal(red, page[..., 1]) and np.array_equal(red, page[..., 2]))
 
 
 def write_frame(path: str | Path, frame: np.ndarray, bits: int = 16) -> None:

@@ -99,9 +99,21 @@ def test_single_page_where_two_needed(tmp_path):
 
 def test_colour_refused(tmp_path):
     rgb = np.zeros((64, 80, 3), np.uint8)
+    rgb[..., 0] = 200  # red: not a grey level
     skio.imsave(tmp_path / "c.png", rgb, check_contrast=False)
     with pytest.raises(WakelineError, match="colour image"):
         read_frame_pair(tmp_path / "c.png", tmp_path / "c.png")
+
+
+def test_grey_levels_stored_as_colour_are_read_as_the_grey_frame(tmp_path):
+    # a palette PNG or an RGB export of a camera frame was once refused as a colour image
+    from PIL import Image
+
+    grey = (_frame() // 16).astype(np.uint8)
+    Image.fromarray(grey).convert("P").save(tmp_path / "p.png")
+    skio.imsave(tmp_path / "rgb.png", np.stack([grey] * 3, axis=-1), check_contrast=False)
+    frame_a, frame_b = read_frame_pair(tmp_path / "p.png", tmp_path / "rgb.png")
+    assert np.array_equal(frame_a, grey) and np.array_equal(frame_b, grey)
 
 
 @pytest.mark.parametrize(("stored", "named"), [(np.bool_, "1-bit"), (np.complex64, "complex64")])

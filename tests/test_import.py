@@ -104,7 +104,7 @@ def test_each_bad_value_has_its_own_message(tmp_path, row, message):
 
 def test_unreadable_frame_and_duplicate_row_are_reported(tmp_path):
     src = write_shot_folder(tmp_path / "src", 2, extra_rows=("S0,2e-05,0.08,71.6,0,again",))
-    tifffile.imwrite(src / "S1_b.tif", np.zeros((192, 256, 3), np.uint8))
+    tifffile.imwrite(src / "S1_b.tif", np.tile(np.uint8([200, 0, 0]), (192, 256, 1)))
     report = import_folder(src, tmp_path / "s.h5")
     assert report.imported == ["S0"]
     assert any("line 3 (shot S1)" in p and "colour image" in p for p in report.problems)
