@@ -93,7 +93,8 @@ def run_pair(args: argparse.Namespace) -> int:
                  "frame B": f"frame B ({args.frame_b or f'{args.frame_a}, page 2'})"}
         said = str(exc)
         for name, named in names.items():
-            said = said.replace(name, named, 1) if said.startswith(name) else said
+            if said.startswith(name):
+                said = named + said.removeprefix(name)
         raise WakelineError(said) from None
     summary = result.summary()
     if args.json:
