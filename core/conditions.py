@@ -277,12 +277,13 @@ def _ensemble_cells(condition: Condition, view) -> list:
 
 def write_condition_csv(session, path, by, ensembles=None) -> int:
     """Write the table of conditions (UTF-8 CSV, header row), whole or not at all; returns the
-    number of conditions. Refuses to write over the session or its companion files."""
-    from core.store.companions import refuse_session_file
+    number of conditions. Refuses to write over the session, its companion files, its frames
+    and their shots.csv."""
+    from core.store.companions import refuse_session_output
     from core.store.files import atomic_write
     from core.store.table import write_csv_rows
 
-    refuse_session_file(Path(path), Path(session.path))
+    refuse_session_output(Path(path), session)
     conditions = group_conditions(session.values(), by)
     header, rows = condition_table(conditions, by, ensembles)
     with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:

@@ -6,6 +6,8 @@ import os
 
 os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 
@@ -198,6 +200,20 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
     assert report.pages == 3 and report.shot_ids == ["s04"]
     assert export_sheet(window, tmp_path / "none.pdf", shot_ids=["nope"]) is None
     assert "no shot 'nope'" in window.last_problem
+    # what the session is made of and reads is refused, as the command refuses it (the window
+    # once wrote a sheet over the session file itself, and over frames and shots.csv)
+    session_file = Path(window.model.session.path)
+    frame = Path(window.model.session.frame_source("s01")["path_a"])
+    manifest = frame.with_name("shots.csv")
+    manifest.write_text("shot,dt_s\n")  # the session was made without one; a folder has one
+    kept = {p: p.read_bytes() for p in (session_file, frame, manifest)}
+    for target in kept:
+        assert export_sheet(window, target) is None
+        assert window.last_problem.startswith(f"Shot sheet: {target}: is the")
+        monkeypatch.setattr("app.qt.export.ask_path", lambda *a, t=target, **k: str(t))
+        window.act_export_table.trigger()
+        assert window.last_problem.startswith(f"Table: {target}: is the")
+    assert all(p.read_bytes() == data for p, data in kept.items())
 
 
 def test_one_value_on_the_axis_gets_a_readable_range(qtbot):

@@ -100,35 +100,16 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
     WakelineError
         "OUT: is ...; choose another output file", or "OUT: is a folder; ...".
     """
-    from core.store import MANIFEST_NAME
-    from core.store.companions import refuse_session_file
+    from core.store.companions import refuse_input_file, refuse_session_file
     from core.store.files import same_place
 
-    manifests = {Path(frame).parent / MANIFEST_NAME for frame in inputs}
     seen: list[Path] = []
     for out in (Path(o) for o in outputs if o is not None):
         if out.is_dir():
             raise WakelineError(f"{out}: is a folder; give the name of the file to write in it")
         if session is not None:
             refuse_session_file(out, Path(session))
-        for frame in map(Path, inputs):
-            if same_place(out, frame):
-                raise WakelineError(f"{out}: is the frame file {frame.name}; choose another "
-                                    "output file")
-        for manifest in manifests:
-            if same_place(out, manifest):
-                raise WakelineError(f"{out}: is the {MANIFEST_NAME} the session's frames were "
-                                    "imported with; choose another output file")
+        refuse_input_file(out, inputs)
         if any(same_place(out, other) for other in seen):
             raise WakelineError(f"{out}: given for both outputs; choose another output file")
         seen.append(out)
-
-
-def session_frame_files(session) -> list[Path]:
-    """The frame files an open session refers to (embedded frames are not files)."""
-    files = []
-    for shot_id in session:
-        source = session.frame_source(shot_id)
-        if source["storage"] == "files":
-            files += [Path(source[k]) for k in ("path_a", "path_b") if source[k]]
-    return files

@@ -16,10 +16,10 @@ from app.cli.options import (
     check_outputs,
     known_ball_types,
     scheduler_address,
-    session_frame_files,
     whole_count,
 )
 from core import WakelineError
+from core.store.companions import session_frame_files
 from core.store.files import writing
 
 

@@ -5,8 +5,9 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from app.cli.options import UsageError, check_outputs, session_frame_files
+from app.cli.options import UsageError, check_outputs
 from core import WakelineError
+from core.store.companions import session_frame_files
 from core.store.files import writing
 
 

@@ -38,6 +38,7 @@ from app.sheet.kit import DPI, Pages, ensure_gui_application
 from app.sheet.shot_panel import paint_shot, panel_cells
 from core import WakelineError
 from core.store import ProcessState
+from core.store.companions import refuse_session_output
 from core.store.files import atomic_write, failure_cause
 
 SESSION_RANGE = "session"  # one vorticity colour range for every panel, from the sheet's shots
@@ -94,6 +95,7 @@ def make_sheet(
     """
     if per_page not in PER_PAGE_CHOICES:
         raise WakelineError(f"--per-page: must be one of {PER_PAGE_CHOICES}, not {per_page}")
+    refuse_session_output(Path(out_path), session)  # the window's export as the command's
     ensure_gui_application()
     all_records = list(session.values())
     records = select_records(session, shot_ids, statuses)

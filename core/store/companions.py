@@ -39,6 +39,39 @@ def refuse_session_file(out: Path, path: Path) -> None:
             raise WakelineError(f"{out}: is {what}; choose another output file")
 
 
+def refuse_input_file(out: Path, inputs) -> None:
+    """Refuse to write ``out`` over one of the frame files ``inputs`` or the ``shots.csv``
+    beside them (the manifest they were imported with: the analyst's list of shots)."""
+    from core.store.manifest import MANIFEST_NAME
+
+    inputs = [Path(f) for f in inputs]
+    for frame in inputs:
+        if same_place(out, frame):
+            raise WakelineError(f"{out}: is the frame file {frame.name}; choose another "
+                                "output file")
+    for manifest in {frame.parent / MANIFEST_NAME for frame in inputs}:
+        if same_place(out, manifest):
+            raise WakelineError(f"{out}: is the {MANIFEST_NAME} the session's frames were "
+                                "imported with; choose another output file")
+
+
+def session_frame_files(session) -> list[Path]:
+    """The frame files an open session refers to (embedded frames are not files)."""
+    files = []
+    for shot_id in session:
+        source = session.frame_source(shot_id)
+        if source["storage"] == "files":
+            files += [Path(source[k]) for k in ("path_a", "path_b") if source[k]]
+    return files
+
+
+def refuse_session_output(out: Path, session) -> None:
+    """Refuse to write ``out`` (a table, a sheet) over what the open ``session`` is made of or
+    reads: the snapshot and its companions, its frame files and their ``shots.csv``."""
+    refuse_session_file(Path(out), Path(session.path))
+    refuse_input_file(Path(out), session_frame_files(session))
+
+
 def session_path(path) -> Path:
     """The session's real path, resolved once when it is opened: a session reached through a
     symbolic link (or a linked folder) is the one file it points to, so its lock, journal and

@@ -8,7 +8,7 @@ import math
 from pathlib import Path
 
 from core.geometry import SIDES
-from core.store.companions import refuse_session_file
+from core.store.companions import refuse_session_output
 from core.store.files import atomic_write
 from core.store.manifest import NUMBER_COLUMNS, TEXT_COLUMNS
 from core.store.records import ShotRecord
@@ -123,7 +123,7 @@ def write_table_csv(session, path) -> int:
     WakelineError
         When ``path`` is the session or one of its companion files (the window's export too).
     """
-    refuse_session_file(Path(path), Path(session.path))
+    refuse_session_output(Path(path), session)
     header, rows = session_table_rows(session)
     with atomic_write(path) as tmp, open(tmp, "w", encoding="utf-8", newline="") as fh:
         write_csv_rows(fh, header, rows)
