@@ -86,3 +86,24 @@ def test_injected_disk_full_gives_one_line_and_loses_nothing(session_path, monke
         assert again["S0"].pick.status == "accepted" and again["S1"].state == "unprocessed"
         assert again.load_result("S0").separation.upper.angle_deg == 1.0
     assert not session_path.with_name("s.h5.journal").exists()
+
+
+def test_a_table_on_a_full_disk_names_its_file_and_keeps_the_earlier_one(session_path,
+                                                                         tmp_path, monkeypatch):
+    # the window once said only "[Errno 28] No space left on device"
+    from core.store import write_table_csv
+    from core.store.files import writing
+
+    out = tmp_path / "t.csv"
+    out.write_text("the earlier table\n")
+
+    def full(fh, *args):  # a write to the open file, which names no file
+        fh.write("shot,")
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC))
+
+    monkeypatch.setattr("core.store.table.write_csv_rows", full)
+    with Session.open(session_path, writable=False) as s, pytest.raises(
+            WakelineError) as info, writing(out):
+        write_table_csv(s, out)
+    assert str(info.value) == f"{out}: cannot write here (the disk is full)"
+    assert out.read_text() == "the earlier table\n"

@@ -398,3 +398,24 @@ def test_a_failed_shot_shows_its_last_good_field_and_says_so(reviewed_session, t
     _pages, text = _pdf_text(out)
     assert "Shown: the last run that succeeded; the latest failed: shot s02: frame" in text
     assert "No field" not in text
+
+
+def test_a_sheet_qt_could_not_write_whole_is_an_error_and_the_earlier_one_stays(
+        reviewed_session, tmp_path, monkeypatch):
+    # on a full disk Qt's PDF writer only warned, and the window said the sheet was written
+    # over an earlier one that was now empty
+    import app.sheet.document as document
+    from app.sheet import make_sheet
+    from core import WakelineError
+    from core.store import Session
+
+    out = tmp_path / "sheet.pdf"
+    out.write_bytes(b"%PDF-1.4 the earlier sheet %%EOF")
+    real = document._writer
+    monkeypatch.setattr(document, "_writer",  # its bytes go nowhere, as to a full disk
+                        lambda path, title: real(tmp_path / "lost.pdf", title))
+    with Session.open(reviewed_session, writable=False) as session, pytest.raises(
+            WakelineError, match=r"sheet.pdf: cannot write here \(the PDF came out incomplete"):
+        make_sheet(session, out, per_page=2)
+    assert out.read_bytes() == b"%PDF-1.4 the earlier sheet %%EOF"
+    assert not out.with_name("sheet.pdf.part").exists()

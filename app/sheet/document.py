@@ -15,6 +15,7 @@ What goes on the pages is chosen in ``content``; ``kit``, ``cover`` and ``shot_p
 from __future__ import annotations
 
 import math
+import shutil
 from collections.abc import Callable
 from pathlib import Path
 
@@ -144,7 +145,24 @@ def make_sheet(
         finally:
             painter.end()
             del writer  # closes the file
+        _check_whole_pdf(tmp, out_path)  # before it replaces an earlier sheet
     return SheetReport(out_path, pages.number, [r.shot_id for r in records])
+
+
+def _check_whole_pdf(tmp: Path, out_path: Path) -> None:
+    """Qt's PDF writer fails without a word when the disk fills (a warning on the terminal, an
+    empty or cut file): a written PDF ends with its end-of-file mark."""
+    try:
+        with open(tmp, "rb") as fh:
+            fh.seek(max(0, tmp.stat().st_size - 64))
+            whole = b"%%EOF" in fh.read()
+    except OSError as exc:
+        raise WakelineError(f"{out_path}: cannot write here ({failure_cause(exc)})") from None
+    if not whole:
+        full = shutil.disk_usage(tmp.parent).free < 16 << 20
+        raise WakelineError(f"{out_path}: cannot write here ("
+                            + ("the disk is full" if full else "the PDF came out incomplete")
+                            + ")")
 
 
 def sheet_conditions(session, records) -> tuple[list[str], list]:

@@ -240,7 +240,10 @@ def writing(out: Path) -> Iterator[None]:
     try:
         yield
     except OSError as exc:
-        if exc.filename is None or not _is_output(Path(exc.filename), Path(out)):
+        # a write to an open file names none: a full disk there is the output's
+        unnamed_full = exc.filename is None and exc.errno in (errno.ENOSPC, errno.EDQUOT)
+        if not unnamed_full and (exc.filename is None
+                                 or not _is_output(Path(exc.filename), Path(out))):
             raise
         raise WakelineError(f"{out}: cannot write here ({failure_cause(exc)})") from None
 
