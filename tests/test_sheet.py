@@ -404,8 +404,7 @@ def test_a_sheet_qt_could_not_write_whole_is_an_error_and_the_earlier_one_stays(
         reviewed_session, tmp_path, monkeypatch):
     # on a full disk Qt's PDF writer only warned, and the window said the sheet was written
     # over an earlier one that was now empty
-    import app.sheet.document as document
-    from app.sheet import make_sheet
+    from app.sheet import document, make_sheet
     from core import WakelineError
     from core.store import Session
 
