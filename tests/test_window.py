@@ -250,6 +250,57 @@ def test_a_note_being_typed_survives_a_status_key_and_a_shot_change(main_window,
     window.close()
 
 
+@pytest.mark.parametrize("leave", ["close the session", "open another"])
+def test_a_note_being_typed_is_saved_when_its_session_closes_or_gives_way(
+        main_window, make_session, qtbot, tmp_path, leave):
+    # Ctrl+F4 or a session dropped on the window does not leave the field first: the note
+    # was lost without a word
+    path = make_session(2)
+    window = _open(main_window, qtbot, path, show=True)
+    shot_id = window.model.current_id
+    window.readout.note.setFocus()
+    qtbot.keyClicks(window.readout.note, "laser sheet clipped the lower side")
+    if leave == "close the session":
+        window.close_session()
+    else:
+        assert window.open_session(make_session(2, name="other"))
+    window.close()
+    with Session.open(path, writable=False) as session:
+        assert session[shot_id].pick.note == "laser sheet clipped the lower side"
+
+
+def test_a_note_whose_save_is_refused_stays_in_the_field(main_window, make_session, qtbot,
+                                                         monkeypatch):
+    from core import WakelineError
+
+    window = _open(main_window, qtbot, make_session(2), show=True)
+    shot_id = window.model.current_id
+
+    def refuse(*_args, **_kwargs):
+        raise WakelineError("demo.h5: could not save the edit (the disk is full)")
+
+    monkeypatch.setattr(window.model.session, "set_picks", refuse)
+    window.readout.note.setFocus()
+    qtbot.keyClicks(window.readout.note, "fog too thin")
+    qtbot.keyClick(window.readout.note, Qt.Key.Key_Escape)
+    assert "disk is full" in window.last_problem
+    assert window.readout.note.toPlainText() == "fog too thin"  # to try again
+    monkeypatch.undo()
+    window.readout.note.setFocus()
+    qtbot.keyClick(window.readout.note, Qt.Key.Key_Escape)  # space freed: leaving saves it
+    assert window.model.record(shot_id).pick.note == "fog too thin"
+    window.close()
+
+
+def test_a_read_only_session_s_note_field_takes_no_typing(main_window, make_session, qtbot):
+    window = main_window()
+    qtbot.addWidget(window)
+    assert window.open_session(make_session(2), writable=False)
+    assert window.readout.note.isReadOnly()
+    assert "read-only" in window.readout.note.placeholderText()
+    window.close()
+
+
 def test_a_refused_undo_is_reported_not_raised(main_window, make_session, qtbot, monkeypatch):
     from core import WakelineError
 

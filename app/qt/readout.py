@@ -73,6 +73,9 @@ def _metadata_text(value) -> str:
     return MISSING if value in (None, "") else str(value)
 
 
+NOTE_PLACEHOLDER = "Notes on this shot (saved when you leave the field: Ctrl+Return or Esc)"
+
+
 class NoteEdit(QPlainTextEdit):
     """Notes field: commits on leaving the field, Ctrl+Return or Escape; both keys also leave it,
     so the next key is a review key again, not a letter of the note."""
@@ -245,8 +248,7 @@ class ReadoutPanel(QWidget):
         self.reason.setWordWrap(True)
         box.addWidget(self.reason)
         self.note = NoteEdit(group)
-        self.note.setPlaceholderText("Notes on this shot (saved when you leave the field: "
-                                     "Ctrl+Return or Esc)")
+        self.note.setPlaceholderText(NOTE_PLACEHOLDER)
         self.note.setFixedHeight(72)
         self.note.committed.connect(self._on_note_committed)
         box.addWidget(self.note)
@@ -461,6 +463,26 @@ class ReadoutPanel(QWidget):
         if self._shot_id and text != self._note_shown:
             self._note_shown = text
             self.note_committed.emit(text)
+
+    def save_typed_note(self) -> None:
+        """Save a note being typed now (the session is about to close or be replaced: the
+        field would not be left first)."""
+        typed = self._unsaved_note()
+        if typed is not None:
+            self._on_note_committed(typed)
+
+    def keep_unsaved_note(self, shot_id: str, text: str) -> None:
+        """A note whose save was refused stays in the field, still unsaved, to be saved when
+        the field is next left (the refusal showed the stored note)."""
+        if shot_id == self._shot_id and self._record is not None:
+            self._note_shown = self._record.pick.note
+            self.note.setPlainText(text)
+
+    def set_read_only(self, read_only: bool) -> None:
+        """A read-only session's notes can be read, not typed (they could not be saved)."""
+        self.note.setReadOnly(read_only)
+        self.note.setPlaceholderText("No notes (read-only session)" if read_only
+                                     else NOTE_PLACEHOLDER)
 
 
 def _stamp(when: str) -> str:

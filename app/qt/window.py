@@ -389,6 +389,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         for action in self.nudge_actions:
             action.setEnabled(writable and has_proposal)
         self.act_save.setEnabled(writable)
+        self.readout.set_read_only(has_session and not writable)
         self.act_close.setEnabled(has_session)
         self.act_process.setEnabled(writable and not busy)
         self.act_reprocess.setEnabled(writable and has_shot and not busy)

@@ -287,7 +287,9 @@ class ReviewActions:
             return
         if self.model.record(shot_id).pick.note == text:
             return
-        self._push(PickEdit(self.model, shot_id, {"note": text}, f"Edit note of shot {shot_id}"))
+        if not self._push(PickEdit(self.model, shot_id, {"note": text},
+                                   f"Edit note of shot {shot_id}")):
+            self.readout.keep_unsaved_note(shot_id, text)  # not wiped: to try again
 
     def next_to_review(self) -> None:
         """The next shot still to review (measured, undecided) after the current one."""

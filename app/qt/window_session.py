@@ -93,6 +93,7 @@ class SessionActions:
             if writable != self.model.read_only:
                 return True  # already open as asked
             self.close_session()  # reopening the same file: our own lock must go first
+        self.readout.save_typed_note()  # for the session it was typed in, before any other
         try:
             self.model.open(path, writable=writable)  # the open session stays if this fails
         except SessionLocked as exc:
@@ -124,6 +125,7 @@ class SessionActions:
         return answer == QMessageBox.StandardButton.Yes
 
     def close_session(self) -> None:
+        self.readout.save_typed_note()  # the field is not left first (Ctrl+F4)
         try:
             found = self.model.close()  # its closing signal stops the job and clears undo
         except WakelineError as exc:
