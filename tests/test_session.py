@@ -323,6 +323,29 @@ def test_changed_and_missing_frame_files_are_reported_per_shot(session_path):
         assert s.load_frames("S0")[0].shape == (192, 256)
 
 
+def test_frame_files_gone_unreadable_or_turned_folders_are_named(session_path, monkeypatch):
+    # an unreadable frame once reached the window as a PermissionError traceback
+    from core.store import frames
+
+    src = session_path.parent / "src"
+    (src / "S2_a.tif").unlink()
+    (src / "S2_a.tif").mkdir()
+    real = frames.sha256_of
+
+    def refused(path):
+        if path.name == "S1_a.tif":
+            raise PermissionError(13, "Permission denied", str(path))
+        return real(path)
+
+    monkeypatch.setattr(frames, "sha256_of", refused)
+    with Session.open(session_path, writable=False) as s:
+        problems = s.check_frames()
+        assert problems["S1"].endswith("S1_a.tif cannot be read (Permission denied)")
+        assert problems["S2"].endswith("S2_a.tif is a folder")
+        with pytest.raises(WakelineError, match="S1_a.tif cannot be read"):
+            s.load_frames("S1")
+
+
 def test_a_session_copied_away_from_its_frames_says_where_it_looks_for_them(session_path,
                                                                             tmp_path):
     elsewhere = tmp_path / "elsewhere"

@@ -128,7 +128,7 @@ class BallActions:
         command = self._remeasure_queue.pop(0)
         try:
             measure = self.model.remeasuring(command.shot_id)
-        except WakelineError as exc:
+        except (WakelineError, OSError) as exc:  # OSError: a frame's read failing on its share
             self.show_problem("Measuring the shot again", str(exc))
             return
         job = BackgroundJob(lambda _report, _stop: measure(), self)

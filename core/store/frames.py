@@ -44,13 +44,21 @@ def frame_file_problem(shot_id: str, source: dict, checksums: bool = True) -> st
         path = source.get(path_key)
         if path is None:
             continue
+        if Path(path).is_dir():
+            return f"shot {shot_id}: frame file {path} is a folder"
         if not Path(path).is_file():
             where = source.get("session_folder")
             hint = (f" (the session keeps its frames' places relative to its own folder, "
                     f"{where}: if the session file was moved or copied, move its frames with "
                     "it)") if where else ""
             return f"shot {shot_id}: frame file {path} not found{hint}"
-        if checksums and source.get(sum_key) and sha256_of(Path(path)) != source[sum_key]:
+        if not checksums or not source.get(sum_key):
+            continue
+        try:
+            changed = sha256_of(Path(path)) != source[sum_key]
+        except OSError as exc:  # e.g. no permission to read it (any more)
+            return f"shot {shot_id}: frame file {path} cannot be read ({exc.strerror or exc})"
+        if changed:
             return f"shot {shot_id}: frame file {path} changed since import (SHA-256 differs)"
     return ""
 
