@@ -177,3 +177,60 @@ def test_a_folder_where_the_lock_goes_is_named_and_left_alone(tmp_path):
     with pytest.raises(WakelineError, match=r"s.h5.lock: a folder stands where"):
         Lock(tmp_path / "s.h5").acquire()
     assert (tmp_path / "s.h5.lock").is_dir()
+
+
+def test_a_session_file_gone_while_open_is_said_and_its_edits_stay_in_the_journal(
+        session_path, tmp_path):
+    # saving then raised a TypeError (no old file to copy the results from)
+    s = Session.open(session_path)
+    s.set_pick("S0", status="accepted")
+    away = tmp_path / "moved.h5"
+    session_path.rename(away)
+    with pytest.raises(WakelineError, match=r"s.h5: the session file is gone .* kept in "
+                                            r"s.h5.journal: put the file back"):
+        s.compact()
+    with pytest.raises(WakelineError, match="the session file is gone"):
+        s.close()
+    away.rename(session_path)
+    with Session.open(session_path, writable=False) as again:
+        assert again["S0"].pick.status == "accepted"
+
+
+def test_a_save_refused_for_want_of_permission_does_not_say_free_some_space(session_path,
+                                                                          monkeypatch):
+    s = Session.open(session_path)
+
+    def refused(*args, **kwargs):
+        raise PermissionError(errno.EACCES, "Permission denied", str(session_path) + ".journal")
+
+    monkeypatch.setattr(os, "write", refused)
+    with pytest.raises(WakelineError) as info:
+        s.set_pick("S0", status="accepted")
+    monkeypatch.undo()
+    assert "free some space" not in str(info.value)
+    assert str(info.value).endswith("make its folder writable again (or copy the session "
+                                    "elsewhere) and try again")
+    s.close()
+
+
+def test_a_lock_that_cannot_be_removed_at_close_is_left_for_the_next_opener(session_path,
+                                                                            monkeypatch):
+    from pathlib import Path
+
+    s = Session.open(session_path)
+    real = Path.unlink
+
+    def refused(self, missing_ok=False):
+        if self.name.endswith(".lock"):
+            raise PermissionError(13, "Permission denied", str(self))
+        return real(self, missing_ok=missing_ok)
+
+    monkeypatch.setattr(Path, "unlink", refused)
+    s.close()  # no traceback at close
+    monkeypatch.undo()
+    lock = session_path.with_name("s.h5.lock")
+    holder = json.loads(lock.read_text())
+    assert holder["pid"] == os.getpid()
+    lock.write_text(json.dumps({**holder, "pid": 2**31 - 2}))  # as once this process is gone
+    with Session.open(session_path) as again:  # taken over as stale
+        assert list(again)

@@ -6,6 +6,7 @@ this host is taken over, one of another host is respected.
 
 from __future__ import annotations
 
+import contextlib
 import errno
 import getpass
 import json
@@ -183,7 +184,10 @@ class Lock:
         if self.held:
             holder = self._read()
             if holder and holder.get("pid") == os.getpid() and holder.get("host") == socket.gethostname():
-                self.path.unlink(missing_ok=True)
+                # a folder made read-only meanwhile keeps the lock: it names this process,
+                # so the next opener finds it stale and takes it over
+                with contextlib.suppress(OSError):
+                    self.path.unlink(missing_ok=True)
             self.held = False
 
 

@@ -22,6 +22,7 @@ imports nothing heavier) and never measures.
 
 from __future__ import annotations
 
+import errno
 import json
 import os
 import shutil
@@ -81,6 +82,13 @@ from core.summary import ShotSummary
 PER_SHOT_SETTINGS = ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball_type", "flight_deg",
                      "air_temp_c")
 _UNSET = object()
+#: What to do, in place of freeing space, when a save fails for another reason
+_NOT_SPACE = {
+    errno.EACCES: "make its folder writable again (or copy the session elsewhere) and",
+    errno.EPERM: "make its folder writable again (or copy the session elsewhere) and",
+    errno.EROFS: "copy the session to a writable disk and",
+    errno.ENOENT: "put the session's folder back and",
+}
 
 
 class UnknownShot(WakelineError, KeyError):
@@ -562,6 +570,11 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         """
         with self._mutex:
             self._check_writable()
+            if not self.path.exists():  # moved or deleted while open: its arrays went with it
+                raise WakelineError(f"{self.path}: the session file is gone (moved or deleted "
+                                    f"while open); every change since it was saved is kept in "
+                                    f"{self._journal.path.name}: put the file back beside it "
+                                    "and open it again")
             with self._saving("the session file", f"every change is kept in "
                               f"{self._journal.path.name}; free some space and save again"):
                 self._write_snapshot()
@@ -582,6 +595,8 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             reason = exc.strerror or str(exc).splitlines()[0]
             if exc.filename:
                 reason += f", writing {Path(exc.filename).name}"
+            if exc.errno in _NOT_SPACE:  # "free some space" would not help
+                advice = advice.replace("free some space and", _NOT_SPACE[exc.errno])
             raise WakelineError(f"{self.path}: could not save {what} ({reason}); "
                                 f"{advice}") from None
 
