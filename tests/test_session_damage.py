@@ -90,6 +90,25 @@ def test_a_damaged_last_journal_line_is_named_not_dropped(session_path, last):
     assert journal.read_bytes() == data
 
 
+@pytest.mark.parametrize("bad", [b"\xff not json at all\n",
+                                 b'{"seq": 999999, "op": "bogus"}\n'], ids=["unreadable", "unknown-op"])
+def test_a_session_with_a_damaged_line_opens_read_only_as_saved_before_it(session_path, bad):
+    # "move the journal aside" was the only way in, and it threw away the good edits before
+    journal = session_path.with_name("s.h5.journal")
+    seq = _last_seq(session_path)
+    good = [{"seq": seq + 1, "op": "pick", "shot": "S2", "pick": PICK},
+            {"seq": seq + 2, "op": "pick", "shot": "S1", "pick": {**PICK, "note": "fog thin"}}]
+    data = "".join(dumps(e) + "\n" for e in good).encode() + bad
+    journal.write_bytes(data)
+    with pytest.raises(ValueError):
+        Session.open(session_path, writable=True, up_to_damage=True)
+    with Session.open(session_path, writable=False, up_to_damage=True) as s:
+        assert s["S2"].pick.status == "accepted" and s["S1"].pick.note == "fog thin"
+        assert "line 3 is damaged" in s.damage_note
+        assert s.damage_note.endswith("shown read-only as saved up to line 2: nothing was changed")
+    assert journal.read_bytes() == data
+
+
 @pytest.mark.parametrize("tail", [b'{"seq": 9, "op": "pi', b"\0" * 40], ids=["torn", "zeros"])
 def test_what_a_kill_or_a_power_cut_leaves_at_the_end_is_left_out(session_path, tail):
     journal = session_path.with_name("s.h5.journal")

@@ -154,6 +154,29 @@ def test_a_session_held_elsewhere_is_reported_or_opened_read_only(main_window, m
         assert window.model.record("s01").pick.status == "to review"
 
 
+def test_a_damaged_journal_line_is_offered_read_only_as_saved_before_it(main_window,
+                                                                        make_session, qtbot):
+    from pathlib import Path
+
+    path = make_session(2)
+    with Session.open(path) as s:
+        s.set_pick("s01", status="unusable", reason="fog too thin")
+        s._journal.close()  # as a killed window leaves it: the edit in the journal only
+        journal = Path(path + ".journal").read_bytes()
+        s._dirty = False
+    Path(path + ".journal").write_bytes(journal + b'{"seq": 999999, "op": "bogus"}\n')
+    window = main_window(workers=0)
+    asked = []
+    window.ask = lambda title, text, choices: asked.append(choices) or 1  # Cancel
+    assert not window.open_session(path) and window.model.session is None
+    assert asked == [("Open read-only up to line 1", "Cancel")]
+    window.ask = lambda title, text, choices: 0
+    assert window.open_session(path)
+    assert window.model.read_only and window.model.record("s01").pick.reason == "fog too thin"
+    assert window.last_problem.startswith("Session opened read-only: ")
+    assert "line 2 is damaged" in window.last_problem
+
+
 def test_frame_check_reports_a_changed_file(main_window, make_session, qtbot, tmp_path):
     path = make_session(2)
     frame = tmp_path / "review_frames" / "s02_b.tif"

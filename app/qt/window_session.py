@@ -12,7 +12,7 @@ from PySide6.QtWidgets import QMessageBox
 
 from app.qt.file_dialogs import SESSION_FILTER, ask_path, new_session_path
 from app.qt.workers import BackgroundJob, JobOutcome, corrections_job, import_job
-from app.review.model import MANIFEST_NAME, SessionLocked
+from app.review.model import MANIFEST_NAME, JournalDamaged, SessionLocked
 from core import WakelineError
 
 MAX_RECENT = 8
@@ -85,8 +85,9 @@ class SessionActions:
         if path:
             self.open_session(path)
 
-    def open_session(self, path, writable: bool = True) -> bool:
-        """Open a session file; problems are shown to the user, never raised. True on success."""
+    def open_session(self, path, writable: bool = True, up_to_damage: bool = False) -> bool:
+        """Open a session file; problems are shown to the user, never raised. True on success.
+        A damaged journal line: offered read-only as saved up to it (``up_to_damage``)."""
         path = Path(path)
         current = self.model.path
         if current is not None and current.resolve() == path.resolve():
@@ -95,11 +96,18 @@ class SessionActions:
             self.close_session()  # reopening the same file: our own lock must go first
         self.readout.save_typed_note()  # for the session it was typed in, before any other
         try:
-            self.model.open(path, writable=writable)  # the open session stays if this fails
+            # the open session stays if this fails
+            self.model.open(path, writable=writable, up_to_damage=up_to_damage)
         except SessionLocked as exc:
             if writable and self._ask_read_only(str(exc)):
                 return self.open_session(path, writable=False)
             self.show_problem("Session in use", str(exc))
+            return False
+        except JournalDamaged as exc:
+            choice = self.ask("Session journal damaged", str(exc),
+                              (f"Open read-only up to line {exc.number - 1}", "Cancel"))
+            if choice == 0:
+                return self.open_session(path, writable=False, up_to_damage=True)
             return False
         except WakelineError as exc:
             self.show_problem("Cannot open session", str(exc))
@@ -107,6 +115,8 @@ class SessionActions:
         except OSError as exc:
             self.show_problem("Cannot open session", f"{path}: {exc.strerror or exc}")
             return False
+        if self.model.session.damage_note:
+            self.show_problem("Session opened read-only", self.model.session.damage_note)
         self._remember_recent(path)
         self.settings.setValue("last_folder", str(path.parent))
         ids = self.shot_list.visible_ids()

@@ -21,6 +21,7 @@ from core import WakelineError
 from core.batch import iter_process
 from core.store import (
     MANIFEST_NAME,
+    JournalDamaged,
     Pick,
     ProcessState,
     ReviewStatus,
@@ -36,7 +37,7 @@ from core.store.files import writing
 from core.store.records import AUTHORSHIP_FIELDS
 
 __all__ = [
-    "MANIFEST_NAME", "PICK_FIELDS", "ProcessState", "ReviewStatus",
+    "MANIFEST_NAME", "PICK_FIELDS", "JournalDamaged", "ProcessState", "ReviewStatus",
     "SessionLocked", "SessionModel", "authorship", "import_folder", "is_companion_file",
     "pick_values", "proposals", "take_corrections",
 ]
@@ -148,15 +149,16 @@ class SessionModel(QObject):
     def name(self) -> str:
         return "" if self._session is None else self._session.name
 
-    def open(self, path, writable: bool = True) -> None:
-        """Open the session file at ``path``; the open one is closed only once it succeeded.
+    def open(self, path, writable: bool = True, up_to_damage: bool = False) -> None:
+        """Open the session file at ``path``; the open one is closed only once it succeeded
+        (``up_to_damage``: ``Session.open``'s).
 
         Raises
         ------
         core.WakelineError
             When the file cannot be opened (``SessionLocked`` when another process holds it).
         """
-        session = Session.open(path, writable=writable)
+        session = Session.open(path, writable=writable, up_to_damage=up_to_damage)
         try:
             self._drop_session()  # a failure to save the old one is raised once the new is in
         finally:

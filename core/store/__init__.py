@@ -10,6 +10,7 @@ part of the PIV stack.
 
 from core.store.frames import read_frames
 from core.store.importing import ImportReport, import_folder, take_corrections
+from core.store.journal import JournalDamaged
 from core.store.lock import SessionLocked, SessionReadOnly
 from core.store.manifest import MANIFEST_NAME, read_manifest
 from core.store.records import Pick, ProcessState, ReviewStatus, ShotRecord
@@ -21,6 +22,7 @@ __all__ = [
     "FORMAT_VERSION",
     "MANIFEST_NAME",
     "ImportReport",
+    "JournalDamaged",
     "Pick",
     "ProcessState",
     "ReviewStatus",

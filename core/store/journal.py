@@ -12,6 +12,11 @@ from core import WakelineError
 from core.store.files import atomic_write, dumps, fsync_dir, share_like, write_all
 
 
+class JournalDamaged(WakelineError):
+    """A journal line that cannot come from a kill: the session is not opened as it stands
+    (``Session.open(..., up_to_damage=True)`` shows it read-only as saved up to that line)."""
+
+
 class Journal:
     """Append-only JSON lines, one per change, each fsynced before ``append`` returns."""
 
@@ -20,9 +25,18 @@ class Journal:
         self.like = like  # the session file, whose mode and group a new journal takes
         self._fd: int | None = None
 
-    def read(self) -> tuple[list[tuple[int, dict]], int]:
+    def read(self, up_to_damage: bool = False) -> tuple[list[tuple[int, dict]], int]:
         """``(line number, entry)`` of the good prefix and its length in bytes (a torn tail is
-        left out)."""
+        left out). A damaged line raises :class:`JournalDamaged`, or with ``up_to_damage``
+        ends the entries there (the caller then sees :meth:`damaged` lines itself)."""
+        try:
+            return self._read()
+        except JournalDamaged as exc:
+            if not up_to_damage:
+                raise
+            return exc.entries, exc.good
+
+    def _read(self) -> tuple[list[tuple[int, dict]], int]:
         try:
             data = self.path.read_bytes()
         except FileNotFoundError:
@@ -35,19 +49,24 @@ class Journal:
             if entry is None:
                 # a kill leaves only a line without its line break (append writes the break
                 # last): a whole line that cannot be read was damaged since
-                raise self.damaged(number, "not a whole entry, though its line is ended")
+                raise self.damaged(number, "not a whole entry, though its line is ended",
+                                   entries, good)
             entries.append((number, entry))
             good += len(line) + 1
         if tail.strip(b"\0") and not tail.startswith(b"{"):
             # nor does a kill start a line with anything but an entry's first bytes (a power
             # cut may leave zeros where the last line was being written)
-            raise self.damaged(len(lines) + 1, "not the beginning of an entry")
+            raise self.damaged(len(lines) + 1, "not the beginning of an entry", entries, good)
         return entries, good
 
-    def damaged(self, number: int, why: str) -> WakelineError:
-        """The one-line report of a damaged line (it cannot come from a kill)."""
-        return WakelineError(f"{self.path}: line {number} is damaged ({why}); nothing was "
-                             "changed: move the journal aside to open the session as last saved")
+    def damaged(self, number: int, why: str, entries=(), good: int = 0) -> JournalDamaged:
+        """The one-line report of a damaged line (it cannot come from a kill), carrying the
+        entries before it."""
+        exc = JournalDamaged(f"{self.path}: line {number} is damaged ({why}); nothing was "
+                             "changed: move the journal aside to open the session as last "
+                             f"saved, or open it read-only as saved up to line {number - 1}")
+        exc.number, exc.entries, exc.good = number, list(entries), good
+        return exc
 
     def truncate(self, length: int) -> None:
         if self.path.exists() and self.path.stat().st_size != length:

@@ -8,6 +8,7 @@ import shutil
 from dataclasses import replace
 
 from core.store.companions import companion_files
+from core.store.journal import JournalDamaged
 from core.store.records import Pick, ProcessState, ShotRecord, check_shot_id, damage_reason
 from core.store.reviews import CONTENT_OPS
 from core.store.snapshot import Place, pending_name, summary_from
@@ -16,15 +17,32 @@ from core.store.snapshot import Place, pending_name, summary_from
 class JournalReplay:
     """Uses the session's journal, records, places, sequence numbers and pending folder."""
 
-    def _replay_journal(self) -> None:
-        numbered, good_length = self._journal.read()
+    def _replay_journal(self, up_to_damage: bool = False) -> None:
+        """Replay the journal; ``up_to_damage`` (read-only) stops at a damaged line instead of
+        refusing the session, and says so in ``damage_note``."""
+        try:
+            numbered, good_length = self._journal.read()
+        except JournalDamaged as exc:
+            if not up_to_damage:
+                raise
+            numbered, good_length, damage = exc.entries, exc.good, exc
+        else:
+            damage = None
         live = [(n, e) for n, e in numbered if e["seq"] > self._snapshot_seq]
-        for number, entry in live:
+        for index, (number, entry) in enumerate(live):
             try:
                 self._apply(entry)
             except (KeyError, TypeError, ValueError, AttributeError) as exc:
-                raise self._journal.damaged(number, damage_reason(exc)) from None
+                damage = self._journal.damaged(number, damage_reason(exc))
+                if not up_to_damage:
+                    raise damage from None
+                live = live[:index]  # what was applied: the session as saved up to here
+                break
             self._seq = max(self._seq, entry["seq"])
+        if damage is not None:
+            why = str(damage).split("; nothing was changed")[0]
+            self.damage_note = (f"{why}; shown read-only as saved up to line "
+                                f"{damage.number - 1}: nothing was changed")
         self._dirty = bool(live)
         live = [entry for _, entry in live]
         if self.read_only:

@@ -145,6 +145,8 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         self._folder_given = path.parent  # the folder as the caller named it (see _relative)
         #: One line per damaged or lost part of a shot found while saving (see compact).
         self.problems: list[str] = []
+        #: Opened ``up_to_damage``: the damaged journal line the session stops before, or "".
+        self.damage_note = ""
         for number, entry in enumerate(snapshot.shots, start=1):
             try:
                 rec = record_from_index(entry)
@@ -182,8 +184,11 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         return session
 
     @classmethod
-    def open(cls, path, writable: bool = True) -> Session:
+    def open(cls, path, writable: bool = True, up_to_damage: bool = False) -> Session:
         """Open a session lazily: the shot index and the journal, no field data.
+
+        ``up_to_damage`` (read-only only): a damaged journal line ends the replay instead of
+        refusing the session, which then shows what was saved before it (``damage_note``).
 
         Raises
         ------
@@ -192,6 +197,8 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         WakelineError
             When the file is missing, truncated or not a wakeline session.
         """
+        if up_to_damage and writable:
+            raise ValueError("up_to_damage: read-only sessions only")
         given, path = path, session_path(path)
         if path.is_dir():
             raise WakelineError(f"{path}: is a folder, not a session file (give its .h5 file)")
@@ -201,7 +208,7 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             check_replaceable(path)
             lock.acquire()
         try:
-            session = cls._load(path, writable, lock)
+            session = cls._load(path, writable, lock, up_to_damage)
         except OSError as exc:  # e.g. a full disk while tidying what a killed writer left
             if lock is not None:
                 lock.release()
@@ -216,13 +223,14 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         return session
 
     @classmethod
-    def _load(cls, path: Path, writable: bool, lock: Lock | None) -> Session:
+    def _load(cls, path: Path, writable: bool, lock: Lock | None,
+              up_to_damage: bool = False) -> Session:
         """Snapshot plus journal. A reader retries when a writer replaced the snapshot
         meanwhile, so it never pairs an old snapshot with a newer journal."""
         for _ in range(10):
             before = file_identity(path)
             session = cls(path, read_snapshot(path), writable, lock)
-            session._replay_journal()
+            session._replay_journal(up_to_damage)
             if writable or file_identity(path) == before:
                 session._identity = before
                 return session
