@@ -14,6 +14,7 @@ from app.qt.file_dialogs import SESSION_FILTER, ask_path, new_session_path
 from app.qt.workers import BackgroundJob, JobOutcome, corrections_job, import_job
 from app.review.model import MANIFEST_NAME, JournalDamaged, SessionLocked
 from core import WakelineError
+from core.store import SessionReadOnly
 
 MAX_RECENT = 8
 
@@ -101,7 +102,8 @@ class SessionActions:
         except SessionLocked as exc:
             if writable and self._ask_read_only(str(exc)):
                 return self.open_session(path, writable=False)
-            self.show_problem("Session in use", str(exc))
+            self.show_problem("Session read-only" if isinstance(exc, SessionReadOnly)
+                              else "Session in use", str(exc))
             return False
         except JournalDamaged as exc:
             choice = self.ask("Session journal damaged", str(exc),
@@ -130,7 +132,7 @@ class SessionActions:
         return True
 
     def _ask_read_only(self, text: str) -> bool:
-        answer = QMessageBox.question(self, "Session in use",
+        answer = QMessageBox.question(self, "Open read-only?",
                                       f"{text}\n\nOpen it read-only to look at it?")
         return answer == QMessageBox.StandardButton.Yes
 
