@@ -109,6 +109,7 @@ def test_a_newer_journal_record_is_named_and_nothing_is_changed(session_path):
     (["S0,adjusted,1,720,,,,x"], r"lower_final_deg 720 lies outside -180 to 180 deg"),
     (['S0,adjusted,1,2,,,,"x'], r"line 2: a quote opened there is never closed"),
     (["S0,unusable,,,,,,x"], r"unusable without a reason"),
+    (["S0,accepted"], r"line 2 \(shot S0\): 2 cells but the header has 8 columns"),
     (["S0,accepted,1,2,,,,x", "S0,accepted,1,2,,,,x"], r"line 3 \(shot S0\): given twice"),
     (["S0,maybe,1,2,,,,x", "S9,accepted,,,,,,"],
      r"\(and 1 more bad row\(s\)\); nothing was imported"),
@@ -217,3 +218,11 @@ def test_the_agreement_names_the_shots_the_other_review_left_out(session_path, t
     assert "  not in the other review: 2 shot(s): S1, S2" in lines
     # S0 alike on both sides (+5.0, -3.0): no "largest difference" of +0.00 deg
     assert "  upper: 1 shot(s) in both; the same final angles (to 0.01 deg)" in lines
+
+
+def test_a_reviewer_s_name_keeps_only_printable_characters(tmp_path):
+    # a NUL byte once reached the layer's name (and the window's and the sheet's text)
+    layer = read_review_csv(_review(tmp_path, ["S0,accepted,5.5,-3,,,,Bo\x00b\t"]), ["S0"])
+    assert layer.name == "Bob"
+    layer = read_review_csv(_review(tmp_path, ["S0,accepted,5.5,-3,,,,\x00"]), ["S0"])
+    assert layer.name == "theirs"  # nothing printable left: the file's name

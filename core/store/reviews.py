@@ -147,6 +147,8 @@ def read_review_csv(path: Path, shot_ids, name: str | None = None) -> ReviewLaye
         values = dict(zip(header, (_unescaped(c.strip()) for c in cells)))
         shot = values.get("shot", "")
         try:
+            if len(cells) != len(header):  # a cell short or over: the columns would slip
+                raise ValueError(f"{len(cells)} cells but the header has {len(header)} columns")
             if shot not in known:
                 raise ValueError("not in the session" if shot else "no shot id")
             if shot in picks:
@@ -171,7 +173,8 @@ def read_review_csv(path: Path, shot_ids, name: str | None = None) -> ReviewLaye
         # the shots still to review have no reviewer: the one name of the others
         names = {p.who for p in picks.values() if p.who}
         name = names.pop() if len(names) == 1 else path.stem
-    return ReviewLayer(name.strip(), path.name, now_utc(), picks)
+    name = "".join(c for c in name if c.isprintable()).strip()  # no NUL, no line breaks
+    return ReviewLayer(name or path.stem, path.name, now_utc(), picks)
 
 
 def _unescaped(text: str) -> str:
