@@ -82,6 +82,18 @@ def test_an_imported_review_shows_its_marks_and_the_agreement(main_window, make_
     bad.write_text("shot,review_status\nnope,accepted\n", encoding="utf-8")
     import_review_dialog(window, str(bad))
     assert "bad.csv line 2 (shot nope): not in the session" in window.last_problem
+    # a second table by the same reviewer replaces the first only when the analyst says so
+    again = tmp_path / "theirs_v2.csv"
+    again.write_text("shot,review_status,upper_final_deg,lower_final_deg,reviewed_by\n"
+                     "s01,accepted,8.0,-30.0,Bea\n", encoding="utf-8")
+    asked = []
+    window.ask = lambda title, text, choices: asked.append(text) or 1  # keep the earlier
+    import_review_dialog(window, str(again))
+    assert "already holds a review by 'Bea' (2 shots, from theirs.csv)" in asked[0]
+    assert len(window.model.review_layers()["Bea"].picks) == 2
+    window.ask = lambda title, text, choices: 0
+    import_review_dialog(window, str(again))
+    assert window.model.review_layers()["Bea"].source == "theirs_v2.csv"
 
 
 def test_the_ensemble_view_of_a_condition(main_window, make_session, qtbot):

@@ -340,7 +340,16 @@ def import_review_dialog(window, path: str | None = None) -> None:
     if not path:
         return
     try:
-        layer = window.model.import_review(path)
+        layer = window.model.read_review(path)
+        earlier = window.model.review_layers().get(layer.name)
+        if earlier is not None and window.ask(
+                "Replace a review?",
+                f"The session already holds a review by {layer.name!r} ({len(earlier.picks)} "
+                f"shots, from {earlier.source}). Replace it with this one "
+                f"({len(layer.picks)} shots, from {layer.source})?",
+                ("Replace it", "Keep the earlier one")) != 0:
+            return
+        window.model.keep_review(layer)
     except (WakelineError, OSError) as exc:
         window.show_problem("Import review", str(exc))
         return

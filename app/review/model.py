@@ -424,19 +424,24 @@ class SessionModel(QObject):
     def review_layers(self) -> dict:
         return {} if self._session is None else self._session.review_layers()
 
-    def import_review(self, path, name: str | None = None):
-        """Read another analyst's table into a layer of the session (``core.store.reviews``).
-
-        Raises
-        ------
-        core.WakelineError
-            A bad table (one line), or a read-only session.
-        """
+    def read_review(self, path, name: str | None = None):
+        """Another analyst's table as a layer of this session's shots, not kept yet
+        (``core.store.reviews.read_review_csv``; raises its one-line ``WakelineError``)."""
         from core.store.reviews import read_review_csv
 
-        layer = read_review_csv(path, self._order, name)
+        return read_review_csv(path, self._order, name)
+
+    def keep_review(self, layer) -> None:
+        """Keep a layer in the session (one of the same name is replaced). Raises
+        ``core.WakelineError`` for a read-only session or a failed save."""
         self._session.add_review_layer(layer)
         self.conditions_changed.emit()
+
+    def import_review(self, path, name: str | None = None):
+        """Read another analyst's table into a layer of the session, replacing one of the
+        same name (:meth:`read_review`, :meth:`keep_review`)."""
+        layer = self.read_review(path, name)
+        self.keep_review(layer)
         return layer
 
     def ensemble(self, shot_ids, should_stop=None, report=None):
