@@ -18,7 +18,6 @@ from app.qt.file_dialogs import ask_path
 from app.qt.overview import SessionOverview
 from app.review.overview import numeric_columns
 from core import WakelineError
-from core.store.files import failure_cause
 
 
 class _Cancelled(Exception):
@@ -119,11 +118,8 @@ def export_sheet(window, path, **options):
     except _Cancelled:
         window.statusBar().showMessage("Shot sheet cancelled; nothing written.", 6000)
         return None
-    except WakelineError as exc:
+    except (WakelineError, OSError) as exc:  # make_sheet names its file in plain words
         window.show_problem("Shot sheet", str(exc))
-        return None
-    except OSError as exc:  # named as the command names it, not by the temporary file
-        window.show_problem("Shot sheet", f"{path}: cannot write here ({failure_cause(exc)})")
         return None
     finally:
         QApplication.restoreOverrideCursor()
@@ -141,11 +137,8 @@ def export_table(window, path) -> int | None:
         return None
     try:
         count = window.model.write_table(path)
-    except WakelineError as exc:
+    except (WakelineError, OSError) as exc:
         window.show_problem("Table", str(exc))
-        return None
-    except OSError as exc:
-        window.show_problem("Table", f"{path}: cannot write here ({failure_cause(exc)})")
         return None
     window.statusBar().showMessage(f"Table written: {path} ({count} shots)", 8000)
     return count

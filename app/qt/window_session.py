@@ -12,9 +12,8 @@ from PySide6.QtWidgets import QMessageBox
 
 from app.qt.file_dialogs import SESSION_FILTER, ask_path, new_session_path
 from app.qt.workers import BackgroundJob, JobOutcome, corrections_job, import_job
-from app.review.model import MANIFEST_NAME, JournalDamaged, SessionLocked
+from app.review.model import MANIFEST_NAME, JournalDamaged, SessionLocked, SessionReadOnly
 from core import WakelineError
-from core.store import SessionReadOnly
 
 MAX_RECENT = 8
 

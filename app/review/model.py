@@ -27,6 +27,7 @@ from core.store import (
     ReviewStatus,
     Session,
     SessionLocked,
+    SessionReadOnly,
     ShotRecord,
     take_corrections,
     write_table_csv,
@@ -38,7 +39,7 @@ from core.store.records import AUTHORSHIP_FIELDS
 
 __all__ = [
     "MANIFEST_NAME", "PICK_FIELDS", "JournalDamaged", "ProcessState", "ReviewStatus",
-    "SessionLocked", "SessionModel", "authorship", "import_folder", "is_companion_file",
+    "SessionLocked", "SessionModel", "SessionReadOnly", "authorship", "import_folder", "is_companion_file",
     "pick_values", "proposals", "take_corrections",
 ]
 

@@ -40,7 +40,7 @@ from app.sheet.shot_panel import paint_shot, panel_cells
 from core import WakelineError
 from core.store import ProcessState
 from core.store.companions import refuse_session_output
-from core.store.files import atomic_write, failure_cause
+from core.store.files import atomic_write, failure_cause, writing
 
 SESSION_RANGE = "session"  # one vorticity colour range for every panel, from the sheet's shots
 
@@ -124,7 +124,8 @@ def make_sheet(
              + shot_page_count(len(records), per_page))
     out_path = Path(out_path)
     name = getattr(session, "name", "") or Path(session.path).stem
-    with atomic_write(out_path, suffix=".part") as tmp:
+    # a failed write of the sheet or its temporary file, in plain words naming the sheet
+    with writing(out_path), atomic_write(out_path, suffix=".part") as tmp:
         try:  # the system's reason, where Qt would only print a warning of its own
             tmp.open("wb").close()
         except OSError as exc:  # worded as the table's and the pair's outputs are
