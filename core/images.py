@@ -35,7 +35,7 @@ def read_frame_pair(path_a: str | Path, path_b: str | Path | None = None) -> tup
             raise WakelineError(f"{path_a}: has {len(pages)} page{'s' * (len(pages) > 1)}; a "
                                 "frame pair is two (one two-page TIFF, or two files)")
         frame_a, frame_b = pages[0], pages[1]
-        name_a = name_b = str(path_a)
+        name_a, name_b = f"{path_a} page 1", f"{path_a} page 2"
     else:
         frame_a = _single_page(Path(path_a))
         frame_b = _single_page(Path(path_b))

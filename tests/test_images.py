@@ -89,6 +89,12 @@ def test_mismatched_shapes(tmp_path):
     tifffile.imwrite(tmp_path / "b.tif", _frame(shape=(64, 96)))
     with pytest.raises(WakelineError, match="b.tif: frame shape 96x64 differs"):
         read_frame_pair(tmp_path / "a.tif", tmp_path / "b.tif")
+    with tifffile.TiffWriter(tmp_path / "pair.tif") as tif:  # the pages of one file, named
+        tif.write(_frame(shape=(64, 80)))
+        tif.write(_frame(shape=(64, 96)))
+    with pytest.raises(WakelineError, match=r"pair.tif page 2: frame shape 96x64 differs from "
+                                            r".*pair.tif page 1 \(80x64\)"):
+        read_frame_pair(tmp_path / "pair.tif")
 
 
 def test_single_page_where_two_needed(tmp_path):
