@@ -314,6 +314,9 @@ def test_a_refused_undo_is_reported_not_raised(main_window, make_session, qtbot,
     monkeypatch.setattr(window.model.session, "set_picks", refuse)
     window.undo_stack.undo()
     assert "disk is full" in window.last_problem
+    assert window.last_problem.endswith("(not undone: the step leaves the undo list; make the "
+                                        "change by hand once it can be saved)")
+    assert window.undo_stack.count() == 0
     assert window.model.record(shot_id).pick.status == "accepted"  # the views show the truth
     monkeypatch.undo()
     window.close()

@@ -69,18 +69,22 @@ class PicksEdit(QUndoCommand):
         """Qt cannot take an exception back from undo/redo: a refusal (e.g. the session became
         read-only, or a shot was measured again since the edit) is reported by signal, the
         command retired, and the views shown the truth."""
-        try:
-            moved = [shot_id for shot_id, seen in self._proposals.items()
-                     if proposals(self._model.record(shot_id)) != seen]
-            if moved:
-                raise WakelineError(f"shot {moved[0]} was measured again since this edit (its "
-                                    f"proposals moved): the edit is not {done}")
-            self._model.apply_picks(values)
-        except WakelineError as exc:
-            self.setObsolete(True)
-            for shot_id in values:
-                self._model.refresh(shot_id)
-            self._model.edit_refused.emit(str(exc))
+        moved = [shot_id for shot_id, seen in self._proposals.items()
+                 if proposals(self._model.record(shot_id)) != seen]
+        if moved:
+            said = (f"shot {moved[0]} was measured again since this edit (its proposals "
+                    f"moved): the edit is not {done}")
+        else:
+            try:
+                self._model.apply_picks(values)
+                return
+            except WakelineError as exc:  # the step leaves the list: "try again" cannot mean it
+                said = (f"{exc} (not {done}: the step leaves the undo list; make the change "
+                        "by hand once it can be saved)")
+        self.setObsolete(True)
+        for shot_id in values:
+            self._model.refresh(shot_id)
+        self._model.edit_refused.emit(said)
 
 
 class PickEdit(PicksEdit):
