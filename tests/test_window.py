@@ -691,3 +691,24 @@ def test_the_readout_names_a_result_whose_uncertainty_is_from_an_earlier_version
     window.readout.show_record(replace(current, software_version="0.2.0"))
     assert "wakeline 0.2.0" in window.readout.notes.text()
     assert not window.readout.notes.isHidden()
+
+
+def test_a_last_save_that_fails_at_close_is_told_not_closed_with_the_window(
+        main_window, make_session, qtbot, monkeypatch, capsys):
+    # its box was opened and closed again by the closing window: only the log had it
+    from core import WakelineError
+
+    window = _open(main_window, qtbot, make_session(2), show=True)
+    window.set_status("accepted")
+
+    def full():
+        raise WakelineError("review.h5: could not save the session file (No space left on "
+                            "device); every change is kept in review.h5.journal")
+
+    monkeypatch.setattr(window.model.session, "compact", full)
+    told = []
+    window.tell_at_exit = lambda title, text: told.append((title, text))
+    window.close()
+    assert told and told[0][0] == "Closing the session" and "review.h5.journal" in told[0][1]
+    type(window).tell_at_exit(window, *told[0])  # no screen here: standard error, no box
+    assert capsys.readouterr().err.startswith("wakeline: Closing the session: review.h5: could")

@@ -542,10 +542,21 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         self._save_layers()
         self.settings.sync()
         self.hide()  # gone at once; folding the journal into the file may take a moment
+        shown = len(self._message_boxes)
         self.close_session()
+        late = [(box.windowTitle(), box.text()) for box in self._message_boxes[shown:]]
         for box in list(self._message_boxes):
             box.close()
+        for title, text in late:  # a failed last save: told, not closed with the window
+            self.tell_at_exit(title, text)
         super().closeEvent(event)
+
+    def tell_at_exit(self, title: str, text: str) -> None:
+        """A problem of the window's last moments (its last save): on standard error, and in a
+        box the analyst closes where there is a screen to show it on."""
+        print(f"wakeline: {title}: {text}", file=sys.stderr)
+        if QApplication.platformName() not in ("offscreen", "minimal"):
+            QMessageBox.warning(None, title, text)
 
 
 # -- the entry point --------------------------------------------------------------------------
