@@ -17,8 +17,18 @@ missing_of() {  # those of the Debian packages "$@" that are not installed
     dpkg-query -W -f='${Status}' "$pkg" 2>/dev/null | grep -q "install ok installed" || echo "$pkg"
   done
 }
+PYTHON=${PYTHON:-python3.11}
+command -v "$PYTHON" >/dev/null 2>&1 || PYTHON=python3
+"$PYTHON" -c 'import sys; sys.exit(sys.version_info < (3, 11))' || {
+  echo "setup: Python 3.11 or newer is needed (found $("$PYTHON" --version 2>&1))"; exit 1; }
+# Debian's own Python makes virtual environments only with its venv package
+VENV_PKG=""
+if [ ! -x .venv/bin/python ] && ! "$PYTHON" -c 'import ensurepip, venv' >/dev/null 2>&1; then
+  VENV_PKG="python3-venv"
+fi
+
 # shellcheck disable=SC2086  # the lists split into package names
-mapfile -t missing < <(missing_of $DEBIAN_LIBS $WINDOW_LIBS)
+mapfile -t missing < <(missing_of $DEBIAN_LIBS $WINDOW_LIBS $VENV_PKG)
 tools=()
 # shellcheck disable=SC2086
 [ "${1:-}" != "--test" ] || mapfile -t tools < <(missing_of $TEST_TOOLS)
@@ -36,11 +46,6 @@ elif [ ${#missing[@]} -gt 0 ]; then
 elif [ ${#tools[@]} -gt 0 ]; then
   echo "setup: no ${tools[*]}: the test of the real window will be skipped (as root: apt-get install ${tools[*]})"
 fi
-
-PYTHON=${PYTHON:-python3.11}
-command -v "$PYTHON" >/dev/null 2>&1 || PYTHON=python3
-"$PYTHON" -c 'import sys; sys.exit(sys.version_info < (3, 11))' || {
-  echo "setup: Python 3.11 or newer is needed (found $("$PYTHON" --version 2>&1))"; exit 1; }
 
 if [ ! -x .venv/bin/python ]; then
   echo "setup: creating .venv"

@@ -169,7 +169,7 @@ def test_a_damaged_journal_line_is_offered_read_only_as_saved_before_it(main_win
     asked = []
     window.ask = lambda title, text, choices: asked.append(choices) or 1  # Cancel
     assert not window.open_session(path) and window.model.session is None
-    assert asked == [("Open read-only up to line 1", "Cancel")]
+    assert asked == [("Open read-only without line 2 on", "Cancel")]
     window.ask = lambda title, text, choices: 0
     assert window.open_session(path)
     assert window.model.read_only and window.model.record("s01").pick.reason == "fog too thin"

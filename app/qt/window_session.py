@@ -106,7 +106,7 @@ class SessionActions:
             return False
         except JournalDamaged as exc:
             choice = self.ask("Session journal damaged", str(exc),
-                              (f"Open read-only up to line {exc.number - 1}", "Cancel"))
+                              (f"Open read-only without line {exc.number} on", "Cancel"))
             if choice == 0:
                 return self.open_session(path, writable=False, up_to_damage=True)
             return False

@@ -64,7 +64,8 @@ class Journal:
         entries before it."""
         exc = JournalDamaged(f"{self.path}: line {number} is damaged ({why}); nothing was "
                              "changed: move the journal aside to open the session as last "
-                             f"saved, or open it read-only as saved up to line {number - 1}")
+                             f"saved, or open it read-only without line {number} and those "
+                             "after it")
         exc.number, exc.entries, exc.good = number, list(entries), good
         return exc
 

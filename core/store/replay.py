@@ -41,8 +41,8 @@ class JournalReplay:
             self._seq = max(self._seq, entry["seq"])
         if damage is not None:
             why = str(damage).split("; nothing was changed")[0]
-            self.damage_note = (f"{why}; shown read-only as saved up to line "
-                                f"{damage.number - 1}: nothing was changed")
+            self.damage_note = (f"{why}; shown read-only without line {damage.number} and "
+                                "those after it: nothing was changed")
         self._dirty = bool(live)
         live = [entry for _, entry in live]
         if self.read_only:
