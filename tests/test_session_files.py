@@ -234,3 +234,22 @@ def test_a_lock_that_cannot_be_removed_at_close_is_left_for_the_next_opener(sess
     lock.write_text(json.dumps({**holder, "pid": 2**31 - 2}))  # as once this process is gone
     with Session.open(session_path) as again:  # taken over as stale
         assert list(again)
+
+
+def test_a_file_where_the_pending_results_go_is_named_and_no_result_is_lost(session_path):
+    # its results were taken for lost at the next save ("stored result lost ... errno 20")
+    s = Session.open(session_path)
+    s.save_result("S0", fake_result(s.settings_for("S0"), 1.0))
+    pending = session_path.with_name("s.h5.pending")
+    aside = session_path.with_name("aside")
+    pending.rename(aside)
+    pending.write_text("not a folder")
+    with pytest.raises(WakelineError, match=r"s.h5.pending: a file stands where the session "
+                                            r"keeps its new results"):
+        s.compact()
+    pending.unlink()
+    aside.rename(pending)
+    s.close()
+    with Session.open(session_path, writable=False) as again:
+        assert again["S0"].state == "processed"
+        assert again.load_result("S0").separation.upper.angle_deg == 1.0

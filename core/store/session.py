@@ -578,6 +578,11 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         """
         with self._mutex:
             self._check_writable()
+            if self._pending_dir.exists() and not self._pending_dir.is_dir():
+                # its results would be taken for lost: not for wakeline to remove
+                raise WakelineError(f"{self._pending_dir}: a file stands where the session "
+                                    "keeps its new results; move it away and save again "
+                                    "(nothing was changed)")
             if not self.path.exists():  # moved or deleted while open: its arrays went with it
                 raise WakelineError(f"{self.path}: the session file is gone (moved or deleted "
                                     f"while open); every change since it was saved is kept in "
