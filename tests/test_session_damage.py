@@ -105,7 +105,7 @@ def test_a_session_with_a_damaged_line_opens_read_only_as_saved_before_it(sessio
     with Session.open(session_path, writable=False, up_to_damage=True) as s:
         assert s["S2"].pick.status == "accepted" and s["S1"].pick.note == "fog thin"
         assert "line 3 is damaged" in s.damage_note
-        assert s.damage_note.endswith("shown read-only without line 3 and those after it: "
+        assert s.damage_note.endswith("shown read-only without it and the lines after it: "
                                       "nothing was changed")
     assert journal.read_bytes() == data
 

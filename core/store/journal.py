@@ -14,7 +14,9 @@ from core.store.files import atomic_write, dumps, fsync_dir, share_like, write_a
 
 class JournalDamaged(WakelineError):
     """A journal line that cannot come from a kill: the session is not opened as it stands
-    (``Session.open(..., up_to_damage=True)`` shows it read-only as saved up to that line)."""
+    (``Session.open(..., up_to_damage=True)`` shows it read-only without that line and those
+    after it). ``number``, ``why``: the line and what is wrong with it; ``entries``, ``good``:
+    the entries before it and their length in bytes."""
 
 
 class Journal:
@@ -25,18 +27,10 @@ class Journal:
         self.like = like  # the session file, whose mode and group a new journal takes
         self._fd: int | None = None
 
-    def read(self, up_to_damage: bool = False) -> tuple[list[tuple[int, dict]], int]:
+    def read(self) -> tuple[list[tuple[int, dict]], int]:
         """``(line number, entry)`` of the good prefix and its length in bytes (a torn tail is
-        left out). A damaged line raises :class:`JournalDamaged`, or with ``up_to_damage``
-        ends the entries there (the caller then sees :meth:`damaged` lines itself)."""
-        try:
-            return self._read()
-        except JournalDamaged as exc:
-            if not up_to_damage:
-                raise
-            return exc.entries, exc.good
-
-    def _read(self) -> tuple[list[tuple[int, dict]], int]:
+        left out). A damaged line raises :class:`JournalDamaged`, which carries the entries
+        before it."""
         try:
             data = self.path.read_bytes()
         except FileNotFoundError:
@@ -66,7 +60,7 @@ class Journal:
                              "changed: move the journal aside to open the session as last "
                              f"saved, or open it read-only without line {number} and those "
                              "after it")
-        exc.number, exc.entries, exc.good = number, list(entries), good
+        exc.number, exc.why, exc.entries, exc.good = number, why, list(entries), good
         return exc
 
     def truncate(self, length: int) -> None:

@@ -40,9 +40,9 @@ class JournalReplay:
                 break
             self._seq = max(self._seq, entry["seq"])
         if damage is not None:
-            why = str(damage).split("; nothing was changed")[0]
-            self.damage_note = (f"{why}; shown read-only without line {damage.number} and "
-                                "those after it: nothing was changed")
+            self.damage_note = (f"{self._journal.path}: line {damage.number} is damaged "
+                                f"({damage.why}); shown read-only without it and the lines "
+                                "after it: nothing was changed")
         self._dirty = bool(live)
         live = [entry for _, entry in live]
         if self.read_only:
