@@ -370,7 +370,14 @@ def session_ensemble(session, shot_ids, settings: PivSettings | None = None,
     if not chosen:
         why = "; ".join(f"{s}: {r}" for s, r in left_out.items()) or "no shots given"
         raise WakelineError(f"ensemble: no shot to align ({why})")
-    shots = [(pose, *session.load_frames(pose.shot_id)) for pose in chosen]
+    shots, unreadable = [], []
+    for pose in chosen:  # every shot whose frames cannot be read is named, not the first only
+        try:
+            shots.append((pose, *session.load_frames(pose.shot_id)))
+        except WakelineError as exc:
+            unreadable.append(str(exc))
+    if unreadable:
+        raise WakelineError("; ".join(unreadable))
     singles = {side: [session[pose.shot_id].summary.side(side) for pose in chosen]
                for side in SIDES}
     view = ensemble_view(shots, settings, progress, singles)

@@ -3,7 +3,6 @@
 import csv
 import math
 from dataclasses import replace
-from pathlib import Path
 
 import pytest
 from data.session_helpers import fake_result, write_shot_folder
@@ -220,16 +219,3 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
     assert lines[0].startswith("upper: ensemble -12.4° ± 3.6° (largest term: distance to the launches' mean);")
     assert f"  check {said[0]}" in condition_lines(condition, view)
 
-
-def test_an_ensemble_without_frames_names_every_shot_that_lacks_them(session_path, capsys):
-    # only the first shot the ensemble met was named
-    from app.cli.conditions import condition_ensembles
-
-    with Session.open(session_path, writable=False) as s:
-        first = group_conditions(s.values(), ["seam_deg"])[0]
-        assert len(first.usable_ids) >= 2
-        for shot_id in first.usable_ids:
-            Path(s.frame_source(shot_id)["path_a"]).unlink()
-        said = condition_ensembles(s, [first])[first.label]
-    assert all(f"shot {shot_id}: frame file" in said for shot_id in first.usable_ids)
-    assert "\n" not in said

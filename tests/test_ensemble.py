@@ -143,6 +143,11 @@ def test_a_session_condition_seen_as_one(tmp_path, launches):
         view = session_ensemble(s, ["R1", "R2", "R3"])
         with pytest.raises(WakelineError, match="no shot to align .*R3: marked unusable"):
             session_ensemble(s, ["R3"])
+        for shot in ("R1", "R2"):  # every shot without its frames is named, not the first only
+            (tmp_path / f"{shot}_a.tif").unlink()
+        with pytest.raises(WakelineError) as gone:
+            session_ensemble(s, ["R1", "R2"])
+        assert all(f"shot {shot}: frame file" in str(gone.value) for shot in ("R1", "R2"))
     assert view.shot_ids == ["R1", "R2"] and view.left_out == {"R3": "marked unusable"}
     field = view.result.field
     assert field.dx_px.shape == field.valid.shape and field.valid.sum() > 0.5 * field.valid.size

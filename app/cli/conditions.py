@@ -112,17 +112,10 @@ def condition_ensembles(session, conditions) -> dict:
     import sys
 
     from core.ensemble import session_ensemble
-    from core.store.frames import frame_file_problem
 
     out = {}
     for number, condition in enumerate(conditions, start=1):
         print(f"ensemble {number}/{len(conditions)}: {condition.label}", file=sys.stderr)
-        # every shot whose frames cannot be read, not only the first the ensemble meets
-        missing = [problem for shot_id in condition.usable_ids
-                   if (problem := frame_file_problem(shot_id, session.frame_source(shot_id)))]
-        if missing:
-            out[condition.label] = "; ".join(missing)
-            continue
         try:
             out[condition.label] = session_ensemble(session, condition.usable_ids)
         except WakelineError as exc:
