@@ -377,6 +377,30 @@ def test_screenshot_of_a_processed_shot_is_not_blank(main_window, make_session, 
     assert np.any(np.all(np.abs(pixels.astype(int) - [0x2b, 0x4c, 0x9a]) < 12, axis=-1))
 
 
+def test_a_narrow_shot_list_keeps_the_angles_in_sight_and_the_status_icons(
+        main_window, make_session, qtbot):
+    # at 1100 px the list once scrolled sideways, the lower angle out of sight
+    from PySide6.QtCore import Qt as QtNs
+
+    from app.qt.shot_list import _WIDTHS, COL_STATUS, STATUS_ICON_PX
+
+    window = _open(main_window, qtbot, make_session(2), show=True)
+    panel, view = window.shot_list, window.shot_list.view
+    header = lambda: panel.table_model.headerData(COL_STATUS, QtNs.Orientation.Horizontal)
+    window.resize(1100, 760)
+    qtbot.waitUntil(lambda: view.columnWidth(COL_STATUS) < _WIDTHS[COL_STATUS], timeout=3000)
+    shown = sum(view.columnWidth(c) for c in range(panel.table_model.columnCount())
+                if not view.isColumnHidden(c) and c != panel.table_model.columnCount() - 1)
+    assert shown <= view.viewport().width() or view.columnWidth(COL_STATUS) == STATUS_ICON_PX
+    assert header() == ""
+    window.resize(1600, 900)
+    sizes = window.splitter.sizes()
+    window.splitter.setSizes([480, sizes[1] - (480 - sizes[0]), sizes[2]])  # the list widened
+    qtbot.waitUntil(lambda: view.columnWidth(COL_STATUS) == _WIDTHS[COL_STATUS], timeout=3000)
+    assert header() == "Status"
+    window.close()
+
+
 def test_a_small_window_gives_the_picture_room_unless_the_panels_were_set_by_hand(
         main_window, make_session, qtbot):
     from app.qt.canvas import HINT_MIN_WIDTH, LEGEND_MIN_WIDTH

@@ -14,6 +14,7 @@ import re
 
 from PySide6.QtCore import (
     QAbstractTableModel,
+    QEvent,
     QItemSelectionModel,
     QModelIndex,
     QSortFilterProxyModel,
@@ -64,6 +65,7 @@ LIST_KEYS = (
 )
 DEFAULT_COLUMNS = ("upper_deg", "lower_deg", "seam_deg")
 _WIDTHS = {COL_STATE: 22, COL_SHOT: 56, COL_STATUS: 92}
+STATUS_ICON_PX = 28  # the status column at its narrowest: its icon alone
 _RIGHT = int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
 
 
@@ -77,6 +79,7 @@ class ShotTableModel(QAbstractTableModel):
         self._row_of: dict[str, int] = {}
         self._keys: dict[str, tuple] = {}
         self._columns: list[Column] = list(MEASURED)
+        self.status_icons_only = False  # a narrow list: the status column shows its icon alone
         self._italic = QFont()
         self._italic.setItalic(True)
         self._muted = QBrush(QColor(colours.MUTED_INK))
@@ -128,6 +131,8 @@ class ShotTableModel(QAbstractTableModel):
             return None
         column = self._column(section)
         if role == Qt.ItemDataRole.DisplayRole:
+            if section == COL_STATUS and self.status_icons_only:
+                return ""  # its word would be cut to a few letters; the tip still names it
             return FIXED[section][0] if column is None else column.header
         if role == Qt.ItemDataRole.ToolTipRole:
             return FIXED[section][2] if column is None else f"{column.name}: {column.tip}"
@@ -318,6 +323,7 @@ class ShotListPanel(QWidget):
         header.setDefaultSectionSize(54)
         header.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
         header.customContextMenuRequested.connect(self._column_menu)
+        view.viewport().installEventFilter(self)  # its width sets the status column's
         self._apply_columns()
 
     def _layout(self) -> None:
@@ -353,6 +359,27 @@ class ShotListPanel(QWidget):
             name = self.table_model.column_name(col)
             self.view.setColumnHidden(col, col >= len(FIXED) and name not in self._shown_columns)
             self.view.setColumnWidth(col, _WIDTHS.get(col, 54))
+        self._fit_status_column()
+
+    def eventFilter(self, watched, event) -> bool:
+        if watched is self.view.viewport() and event.type() == QEvent.Type.Resize:
+            self._fit_status_column()  # the list's own width, once its layout has set it
+        return super().eventFilter(watched, event)
+
+    def _fit_status_column(self) -> None:
+        """In a narrow list the status column gives up its words before the angles scroll out
+        of sight: down to its icon (the row's tip still says it), never below."""
+        view = self.view
+        others = sum(view.columnWidth(c) for c in range(self.table_model.columnCount())
+                     if c != COL_STATUS and not view.isColumnHidden(c))
+        room = view.viewport().width() - others
+        width = int(min(_WIDTHS[COL_STATUS], max(STATUS_ICON_PX, room)))
+        view.setColumnWidth(COL_STATUS, width)
+        icons_only = width < _WIDTHS[COL_STATUS] // 2
+        if icons_only != self.table_model.status_icons_only:
+            self.table_model.status_icons_only = icons_only
+            self.table_model.headerDataChanged.emit(Qt.Orientation.Horizontal, COL_STATUS,
+                                                    COL_STATUS)
 
     def _column_menu(self, pos) -> QMenu:
         """The header's menu: every column, checked when shown (the list keeps the choice)."""
