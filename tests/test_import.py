@@ -194,6 +194,9 @@ def test_a_quote_never_closed_is_refused_not_read_as_one_long_note(tmp_path):
     with pytest.raises(WakelineError, match=r"shots.csv line 2: a quote opened there is never"):
         import_folder(src, tmp_path / "s.h5")
     assert not (tmp_path / "s.h5").exists()
+    (src / "shots.csv").write_text(f'{HEADER}\nS0,2e-05,0.08,71.6,5,"new ball" ,\n')
+    with pytest.raises(WakelineError, match=r"line 2: a quoted cell goes on after its closing"):
+        import_folder(src, tmp_path / "s.h5")
 
 
 def test_an_import_stopped_part_way_keeps_what_it_imported(tmp_path):

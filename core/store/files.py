@@ -203,7 +203,8 @@ class CsvRows:
             return next(self._reader)
         except csv.Error as exc:
             why = ("a quote opened there is never closed" if "end of data" in str(exc)
-                   else str(exc))
+                   else "a quoted cell goes on after its closing quote (a comma belongs "
+                   "there)" if "expected after" in str(exc) else str(exc))
             raise WakelineError(f"{self.path} line {start}: {why}") from None
 
 
