@@ -736,3 +736,18 @@ def test_a_last_save_that_fails_at_close_is_told_not_closed_with_the_window(
     assert told and told[0][0] == "Closing the session" and "review.h5.journal" in told[0][1]
     type(window).tell_at_exit(window, *told[0])  # no screen here: standard error, no box
     assert capsys.readouterr().err.startswith("wakeline: Closing the session: review.h5: could")
+
+
+def test_a_background_job_s_unexpected_failure_is_told_in_the_system_s_words(qtbot):
+    # worker processes that could not start once read "BrokenPipeError: [Errno 32] Broken pipe"
+    import errno
+
+    from app.qt.workers import BackgroundJob
+
+    def fails(_report, _should_stop):
+        raise BrokenPipeError(errno.EPIPE, "Broken pipe")
+
+    job = BackgroundJob(fails)
+    with qtbot.waitSignal(job.finished, timeout=10_000) as blocker:
+        job.start()
+    assert blocker.args[0].error == "broken pipe (details in the log)"

@@ -51,9 +51,18 @@ class _Worker(QObject):
         except Exception as exc:  # noqa: BLE001 - report any failure, never end silently
             # text, not exc_info: a kept traceback would hold the session and the window
             log.error("background job failed\n%s", traceback.format_exc())
-            outcome.error = f"{type(exc).__name__}: {exc}"
+            outcome.error = _failure_words(exc)
         outcome.cancelled = self._stop.is_set()
         self.done.emit(outcome)
+
+
+def _failure_words(exc: Exception) -> str:
+    """An unexpected failure in a line: the system's own words for a failed file or process
+    operation (the file it names first), else Python's name for it; the log has the rest."""
+    if isinstance(exc, OSError) and exc.strerror:
+        where = f"{exc.filename}: " if exc.filename else ""
+        return f"{where}{exc.strerror.lower()} (details in the log)"
+    return f"{type(exc).__name__}: {exc} (details in the log)"
 
 
 class BackgroundJob(QObject):
