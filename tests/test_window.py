@@ -1,5 +1,6 @@
 """The review window driven headless with pytest-qt: stepping, dragging, review keys, processing
-(its files: test_window_files.py)."""
+(its files: test_window_files.py; its sizes: test_window_layout.py; keeping what the analyst
+did when saving fails: test_window_saving.py)."""
 
 from __future__ import annotations
 
@@ -232,96 +233,6 @@ def test_review_keys_nudges_and_notes_persist(main_window, make_session, qtbot):
     assert s04.pick.note == "wake hits the frame edge"
 
 
-def test_a_note_being_typed_survives_a_status_key_and_a_shot_change(main_window, make_session,
-                                                                     qtbot):
-    path = make_session(3)
-    window = _open(main_window, qtbot, path, show=True)
-    window.act_advance.setChecked(False)  # the decision must leave the shot where it is
-    first = window.model.current_id
-    window.readout.note.setFocus()
-    qtbot.keyClicks(window.readout.note, "seeding thin on the lower side")
-    window.set_status("accepted")  # an edit refreshes the shot while the note is typed
-    assert window.readout.note.toPlainText() == "seeding thin on the lower side"
-    second = window.shot_list.visible_ids()[1]
-    window.model.set_current(second)  # moving on saves the note for the shot it was typed on
-    assert window.model.record(first).pick.note == "seeding thin on the lower side"
-    assert window.model.record(first).pick.status == "accepted"
-    assert window.readout.note.toPlainText() == window.model.record(second).pick.note
-    window.close()
-
-
-@pytest.mark.parametrize("leave", ["close the session", "open another"])
-def test_a_note_being_typed_is_saved_when_its_session_closes_or_gives_way(
-        main_window, make_session, qtbot, tmp_path, leave):
-    # Ctrl+F4 or a session dropped on the window does not leave the field first: the note
-    # was lost without a word
-    path = make_session(2)
-    window = _open(main_window, qtbot, path, show=True)
-    shot_id = window.model.current_id
-    window.readout.note.setFocus()
-    qtbot.keyClicks(window.readout.note, "laser sheet clipped the lower side")
-    if leave == "close the session":
-        window.close_session()
-    else:
-        assert window.open_session(make_session(2, name="other"))
-    window.close()
-    with Session.open(path, writable=False) as session:
-        assert session[shot_id].pick.note == "laser sheet clipped the lower side"
-
-
-def test_a_note_whose_save_is_refused_stays_in_the_field(main_window, make_session, qtbot,
-                                                         monkeypatch):
-    from core import WakelineError
-
-    window = _open(main_window, qtbot, make_session(2), show=True)
-    shot_id = window.model.current_id
-
-    def refuse(*_args, **_kwargs):
-        raise WakelineError("demo.h5: could not save the edit (the disk is full)")
-
-    monkeypatch.setattr(window.model.session, "set_picks", refuse)
-    window.readout.note.setFocus()
-    qtbot.keyClicks(window.readout.note, "fog too thin")
-    qtbot.keyClick(window.readout.note, Qt.Key.Key_Escape)
-    assert "disk is full" in window.last_problem
-    assert window.readout.note.toPlainText() == "fog too thin"  # to try again
-    monkeypatch.undo()
-    window.readout.note.setFocus()
-    qtbot.keyClick(window.readout.note, Qt.Key.Key_Escape)  # space freed: leaving saves it
-    assert window.model.record(shot_id).pick.note == "fog too thin"
-    window.close()
-
-
-def test_a_read_only_session_s_note_field_takes_no_typing(main_window, make_session, qtbot):
-    window = main_window()
-    qtbot.addWidget(window)
-    assert window.open_session(make_session(2), writable=False)
-    assert window.readout.note.isReadOnly()
-    assert "read-only" in window.readout.note.placeholderText()
-    window.close()
-
-
-def test_a_refused_undo_is_reported_not_raised(main_window, make_session, qtbot, monkeypatch):
-    from core import WakelineError
-
-    window = _open(main_window, qtbot, make_session(2), show=True)
-    shot_id = window.model.current_id
-    window.set_status("accepted")
-
-    def refuse(*_args, **_kwargs):
-        raise WakelineError("demo.h5: the disk is full")
-
-    monkeypatch.setattr(window.model.session, "set_picks", refuse)
-    window.undo_stack.undo()
-    assert "disk is full" in window.last_problem
-    assert window.last_problem.endswith("(not undone: the step leaves the undo list; make the "
-                                        "change by hand once it can be saved)")
-    assert window.undo_stack.count() == 0
-    assert window.model.record(shot_id).pick.status == "accepted"  # the views show the truth
-    monkeypatch.undo()
-    window.close()
-
-
 def test_processing_started_from_window_completes(main_window, make_session, qtbot):
     path = make_session(3, processed=False)
     window = _open(main_window, qtbot, path)  # unprocessed shots start processing on open
@@ -375,83 +286,6 @@ def test_screenshot_of_a_processed_shot_is_not_blank(main_window, make_session, 
     assert len(colours) > 200  # particles, vorticity map, vectors, marks: far from blank
     # the upper mark's own colour is in the picture
     assert np.any(np.all(np.abs(pixels.astype(int) - [0x2b, 0x4c, 0x9a]) < 12, axis=-1))
-
-
-def test_a_narrow_shot_list_keeps_the_angles_in_sight_and_the_status_icons(
-        main_window, make_session, qtbot):
-    # at 1100 px the list once scrolled sideways, the lower angle out of sight
-    from PySide6.QtCore import Qt as QtNs
-
-    from app.qt.shot_list import _WIDTHS, COL_STATUS, STATUS_ICON_PX
-
-    window = _open(main_window, qtbot, make_session(2), show=True)
-    panel, view = window.shot_list, window.shot_list.view
-    header = lambda: panel.table_model.headerData(COL_STATUS, QtNs.Orientation.Horizontal)
-    window.resize(1100, 760)
-    qtbot.waitUntil(lambda: view.columnWidth(COL_STATUS) < _WIDTHS[COL_STATUS], timeout=3000)
-    shown = sum(view.columnWidth(c) for c in range(panel.table_model.columnCount())
-                if not view.isColumnHidden(c) and c != panel.table_model.columnCount() - 1)
-    assert shown <= view.viewport().width() or view.columnWidth(COL_STATUS) == STATUS_ICON_PX
-    assert header() == ""
-    window.resize(1600, 900)
-    sizes = window.splitter.sizes()
-    window.splitter.setSizes([480, sizes[1] - (480 - sizes[0]), sizes[2]])  # the list widened
-    qtbot.waitUntil(lambda: view.columnWidth(COL_STATUS) == _WIDTHS[COL_STATUS], timeout=3000)
-    assert header() == "Status"
-    window.close()
-
-
-def test_a_small_window_gives_the_picture_room_unless_the_panels_were_set_by_hand(
-        main_window, make_session, qtbot):
-    from app.qt.canvas import HINT_MIN_WIDTH, LEGEND_MIN_WIDTH
-    from app.qt.window import CANVAS_ROOM_PX
-
-    window = _open(main_window, qtbot, make_session(2), show=True)
-    window.resize(1600, 900)
-    qtbot.wait(50)
-    before = window.splitter.sizes()
-    window.resize(1024, 700)
-
-    def roomy() -> bool:  # the picture as wide as asked, or the side panels at their least
-        sizes = window.splitter.sizes()
-        least = [max(window.splitter.widget(i).minimumWidth(),
-                     window.splitter.widget(i).minimumSizeHint().width()) for i in (0, 2)]
-        return sizes[1] >= CANVAS_ROOM_PX - 2 or [sizes[0], sizes[2]] == least
-
-    qtbot.waitUntil(roomy, timeout=3000)
-    assert window.splitter.sizes()[1] > 450  # it was squeezed to about 200 px
-    # and the overview docked below gives up height: the picture was about 230 px high
-    from app.qt.window import CANVAS_HEIGHT_PX
-
-    dock = window.overview_dock
-    qtbot.waitUntil(lambda: window.splitter.height() >= CANVAS_HEIGHT_PX - 2
-                    or dock.height() <= dock.minimumSizeHint().height(), timeout=3000)
-    assert dock.isVisible() and dock.height() < 230 and window.splitter.height() > 400
-    # narrow as it is, the hint has its own line above the legend instead of a few letters
-    assert window.canvas.width() < LEGEND_MIN_WIDTH + HINT_MIN_WIDTH
-    assert window.canvas.legend.y() > window.canvas.hover_label.y()
-    # and the cursor readout is tall enough for the longest reading at its width
-    from app.qt.canvas import HOVER_LONGEST
-
-    label = window.canvas.hover_label
-
-    def readable() -> bool:
-        room = label.contentsRect().adjusted(6, 2, -6, -2)
-        need = label.fontMetrics().boundingRect(room, int(Qt.TextFlag.TextWordWrap),
-                                                HOVER_LONGEST)
-        return need.height() <= room.height() + 4  # the padding's rounding
-    qtbot.waitUntil(readable, timeout=3000)
-    # wide again, the side panels have their room back (the shot list's columns whole)
-    window.resize(1600, 900)
-    qtbot.waitUntil(lambda: window.splitter.sizes() == before, timeout=3000)
-    # the analyst's own widths stay
-    wide = window.splitter.sizes()
-    window.splitter.moveSplitter(wide[0] + 300, 2)  # as a drag would: the picture 300 px
-    set_by_hand = window.splitter.sizes()
-    window.resize(1599, 900)
-    qtbot.wait(50)
-    assert window.splitter.sizes()[1] < CANVAS_ROOM_PX
-    assert abs(window.splitter.sizes()[1] - set_by_hand[1]) <= 2
 
 
 def test_failed_shot_shows_its_reason(main_window, make_session, qtbot):
@@ -682,27 +516,6 @@ def test_processing_settings_are_saved_in_the_session_and_mark_shots_stale(main_
     assert int(window.settings.value("processing/workers")) == 1  # kept for this computer
 
 
-def test_the_window_fits_a_laptop_screen(main_window, make_session, qtbot):
-    """With a session open the window goes down to 1280 x 720 and narrower (a 1366 or 1280 px
-    wide laptop screen): long legends wrap, the control bar takes a second row."""
-    window = _open(main_window, qtbot, make_session(5), show=True)
-    window.model.set_current("s02")
-    window.statistics.refresh()
-    window.statistics_dock.raise_()
-    qtbot.wait(20)
-    assert window.minimumSizeHint().width() <= 1200
-    window.resize(1280, 720)
-    qtbot.waitUntil(lambda: window.width() == 1280)
-    assert window.shot_list.text_filter.width() >= window.shot_list.text_filter.sizeHint().width()
-    canvas = window.canvas
-    label = canvas.hover_label  # the hint whole, within the label's lines
-    room = label.contentsRect()
-    needed = label.fontMetrics().boundingRect(room, int(Qt.TextFlag.TextWordWrap), label.text())
-    assert needed.height() <= room.height() and needed.width() <= room.width()
-    header = window.shot_list.view.horizontalHeader()
-    assert header.length() <= window.shot_list.view.viewport().width()  # every column whole
-
-
 def test_the_readout_names_a_result_whose_uncertainty_is_from_an_earlier_version(
         main_window, make_session, qtbot):
     from dataclasses import replace
@@ -717,37 +530,3 @@ def test_the_readout_names_a_result_whose_uncertainty_is_from_an_earlier_version
     assert not window.readout.notes.isHidden()
 
 
-def test_a_last_save_that_fails_at_close_is_told_not_closed_with_the_window(
-        main_window, make_session, qtbot, monkeypatch, capsys):
-    # its box was opened and closed again by the closing window: only the log had it
-    from core import WakelineError
-
-    window = _open(main_window, qtbot, make_session(2), show=True)
-    window.set_status("accepted")
-
-    def full():
-        raise WakelineError("review.h5: could not save the session file (No space left on "
-                            "device); every change is kept in review.h5.journal")
-
-    monkeypatch.setattr(window.model.session, "compact", full)
-    told = []
-    window.tell_at_exit = lambda title, text: told.append((title, text))
-    window.close()
-    assert told and told[0][0] == "Closing the session" and "review.h5.journal" in told[0][1]
-    type(window).tell_at_exit(window, *told[0])  # no screen here: standard error, no box
-    assert capsys.readouterr().err.startswith("wakeline: Closing the session: review.h5: could")
-
-
-def test_a_background_job_s_unexpected_failure_is_told_in_the_system_s_words(qtbot):
-    # worker processes that could not start once read "BrokenPipeError: [Errno 32] Broken pipe"
-    import errno
-
-    from app.qt.workers import BackgroundJob
-
-    def fails(_report, _should_stop):
-        raise BrokenPipeError(errno.EPIPE, "Broken pipe")
-
-    job = BackgroundJob(fails)
-    with qtbot.waitSignal(job.finished, timeout=10_000) as blocker:
-        job.start()
-    assert blocker.args[0].error == "broken pipe (details in the log)"

@@ -438,13 +438,6 @@ class SessionModel(QObject):
         self._session.add_review_layer(layer)
         self.conditions_changed.emit()
 
-    def import_review(self, path, name: str | None = None):
-        """Read another analyst's table into a layer of the session, replacing one of the
-        same name (:meth:`read_review`, :meth:`keep_review`)."""
-        layer = self.read_review(path, name)
-        self.keep_review(layer)
-        return layer
-
     def ensemble(self, shot_ids, should_stop=None, report=None):
         """The ensemble view of some shots (``core.ensemble.session_ensemble``); runs on a
         worker thread. ``report((done, total, message))`` tells the progress; ``should_stop()``
