@@ -9,10 +9,10 @@ parameters carry them:
 - the layer's vorticity thickness at separation: any from the laminar layer's ``delta_lam``
   to ``PRIOR_THICKER`` times it alike, thinner ones falling off as ``ln(delta / delta_lam)``
   over 0.7, thicker ones as its excess over ``ln PRIOR_THICKER`` over 0.7; ``delta_lam = 1.5 D /
-  sqrt(Re)`` in px (the laminar layer scales as ``D / sqrt(Re)``; Thwaites' separation
-  criterion ``lambda = -0.09`` with an adverse edge-velocity gradient of about ``-0.45 U / R``
-  gives ``theta = 0.32 D / sqrt(Re)``, and a separating profile's vorticity thickness is about
-  4.9 ``theta``: derived, docs/references.md). Thicker layers are as likely as the laminar
+  sqrt(Re)`` in px (the laminar layer scales as ``D / sqrt(Re)``; Thwaites' method with
+  Mangler's transformation on the measured sphere distribution gives ``theta = 0.29 D /
+  sqrt(Re)`` at separation, and Hartree's separating profile has a vorticity thickness of 4.73
+  ``theta``: 1.37 derived, 1.5 in use, 9 % apart, see docs/references.md). Thicker layers are as likely as the laminar
   one: a turbulent layer is 2-3 times thicker at these Reynolds numbers, and the particle
   images smear a thin layer in the pictures;
 - its spreading behind separation, ``d delta / ds = 0.18 (1 + r) / (1 - r) +- 0.04 (...)`` for a

@@ -41,6 +41,45 @@ def test_centre_and_radius_within_half_a_pixel(flight_deg, radius_px, seed):
         assert not fit.cut_by_edge
 
 
+def test_the_painted_disc_covers_pi_r_squared_about_its_centre():
+    # the generators' truth convention (core.synth_look.paint_ball): pixel (i, j) is the unit
+    # square centred on x = j, y = i, and the disc covers each by its area share, so the shares
+    # sum to pi R^2 with their centroid at the centre (closed form)
+    from core.synth_look import paint_ball
+
+    centre, radius = (171.3, 118.6), 60.4
+    air = np.full((300, 400), 1000.0)
+    painted = paint_ball(air.copy(), centre, radius, 90.0, np.random.default_rng(0), rim=False,
+                         noise_counts=0.0, dark_counts=0.0, surface_counts=0.0, background=1000.0)
+    share = (air - painted) / air
+    y, x = np.mgrid[0:300, 0:400]
+    assert share.sum() == pytest.approx(math.pi * radius**2, rel=1e-4)
+    assert (share * x).sum() / share.sum() == pytest.approx(centre[0], abs=0.005)
+    assert (share * y).sum() / share.sum() == pytest.approx(centre[1], abs=0.005)
+
+
+@pytest.mark.parametrize("surface", ["black", "half the air's mean"])
+def test_a_disc_drawn_here_is_found_where_it_was_drawn(surface):
+    # a ball drawn by this test, not by a generator: particle images (core.synth) with a disc
+    # laid over them, each pixel's share of the disc from 8 x 8 sub-samples (closed form of the
+    # area to 1/64); no lit rim, so the circle rests on the particle-free disc or the step
+    from core import synth
+
+    centre, radius = (171.3, 118.6), 60.4
+    frame, _ = synth.particle_pair((300, 400), synth.uniform(3.0, 0.0), density_ppp=0.05,
+                                   diameter_px=(2.0, 3.5), noise=0.02, seed=5)
+    y, x = np.mgrid[0:300, 0:400]
+    sub = (np.arange(8) + 0.5) / 8 - 0.5
+    share = np.mean([(x + dx - centre[0]) ** 2 + (y + dy - centre[1]) ** 2 < radius**2
+                     for dy in sub for dx in sub], axis=0)
+    level = 0.0 if surface == "black" else 0.5 * frame.mean()
+    fit = find_ball(frame * (1.0 - share) + level * share)
+    for got, true, sigma in ((fit.center_px[0], centre[0], fit.center_sigma_px[0]),
+                             (fit.center_px[1], centre[1], fit.center_sigma_px[1]),
+                             (fit.radius_px, radius, fit.radius_sigma_px)):
+        assert abs(got - true) < min(0.5, 3.0 * sigma)
+
+
 def test_a_bright_ball_among_small_faint_particle_images_is_found():
     # truth from the generator; a lit rim: the issue's 0.3 px limit. A white ball in an 8-bit
     # frame whose particle images are 1-1.8 px across (faint once binned) and whose sheet is

@@ -290,7 +290,7 @@ def test_pointing_at_the_picture_fills_the_cursor_line(canvas, shot_data, qtbot)
     x, y = float(vf.x_px[3, 25]), float(vf.y_px[3, 25])
     point = canvas.graphics.mapFromScene(canvas.view.mapViewToScene(QPointF(x, y)))
     viewport = canvas.graphics.viewport()
-    with qtbot.waitSignal(canvas.hover_text, timeout=2000) as blocker:
+    with qtbot.waitSignal(canvas.hover_text, timeout=30_000) as blocker:
         event = QMouseEvent(QEvent.Type.MouseMove, QPointF(point), viewport.mapToGlobal(point),
                             Qt.MouseButton.NoButton, Qt.MouseButton.NoButton,
                             Qt.KeyboardModifier.NoModifier)

@@ -40,7 +40,7 @@ def test_clicking_a_condition_selects_its_shots(main_window, make_session):
 def test_the_grouping_is_kept_in_the_session(main_window, make_session, qtbot):
     window = _open(main_window, make_session)
     window.model.set_conditions_by([])
-    qtbot.waitUntil(lambda: window.statistics.table.rowCount() == 1)
+    qtbot.waitUntil(lambda: window.statistics.table.rowCount() == 1, timeout=30_000)
     assert window.statistics.conditions[0].label == "all shots"
     path = window.model.path
     window.close_session()
@@ -55,7 +55,7 @@ def test_an_imported_review_shows_its_marks_and_the_agreement(main_window, make_
 
     # no second review yet: the table has the dock's width
     window.statistics.refresh_soon()
-    qtbot.waitUntil(lambda: window.statistics.agreement_pane.isHidden())
+    qtbot.waitUntil(lambda: window.statistics.agreement_pane.isHidden(), timeout=30_000)
 
     review = tmp_path / "theirs.csv"
     review.write_text("shot,review_status,upper_final_deg,lower_final_deg,reviewed_by\n"
@@ -63,14 +63,14 @@ def test_an_imported_review_shows_its_marks_and_the_agreement(main_window, make_
                       encoding="utf-8")
     import_review_dialog(window, str(review))
     window.model.set_current("s01")
-    qtbot.waitUntil(lambda: bool(window.analyst_marks.text))
+    qtbot.waitUntil(lambda: bool(window.analyst_marks.text), timeout=30_000)
     marks = window.analyst_marks
     assert marks.layer_name == "Bea" and "upper +8.0°" in marks.text
     # the proposal of s01 is -6.0 ± 2.5 on the lower side (analytic_result): ours is the
     # proposal until reviewed, so the two are not compared yet
     assert len(marks.items[0].data) == 2
     assert "Bea" in window.canvas.legend.text()
-    qtbot.waitUntil(lambda: "review compared with Bea" in window.statistics.agreement_label.text())
+    qtbot.waitUntil(lambda: "review compared with Bea" in window.statistics.agreement_label.text(), timeout=30_000)
     assert not window.statistics.agreement_pane.isHidden()
     # beside the table, not under it (a long agreement once left the table two rows)
     panel = window.statistics
@@ -142,4 +142,4 @@ def test_the_view_menu_brings_the_conditions_tab_to_the_front(main_window, make_
     item.trigger()
     assert not dock.isHidden() and _front_tab(window) == "Conditions"
     window.overview_dock.raise_()  # the analyst clicks the overview's tab
-    qtbot.waitUntil(lambda: not item.isChecked())
+    qtbot.waitUntil(lambda: not item.isChecked(), timeout=30_000)

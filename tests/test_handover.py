@@ -118,7 +118,7 @@ def test_file_dialogs_hide_the_files_a_session_keeps_beside_it(qtbot, tmp_path):
         root = proxy.mapFromSource(files.index(str(tmp_path)))
         return sorted(proxy.index(r, 0, root).data() for r in range(proxy.rowCount(root)))
 
-    qtbot.waitUntil(lambda: "notes.txt" in names(), timeout=5000)
+    qtbot.waitUntil(lambda: "notes.txt" in names(), timeout=30_000)
     assert names() == ["day.h5", "frames", "notes.txt"]
 
 

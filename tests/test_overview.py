@@ -124,7 +124,7 @@ def test_clicking_a_point_emits_its_shot(qtbot, records):
     for shot_id, side in (("a2", "lower"), ("a3", "upper")):
         scene_pos = panel.point_scene_pos(shot_id, side)
         pos = view.mapFromScene(scene_pos)
-        with qtbot.waitSignal(panel.shot_clicked, timeout=2000) as blocker:
+        with qtbot.waitSignal(panel.shot_clicked, timeout=30_000) as blocker:
             qtbot.mouseClick(view.viewport(), Qt.MouseButton.LeftButton, pos=QPoint(pos.x(),
                                                                                     pos.y()))
         assert blocker.args == [shot_id]
@@ -142,7 +142,7 @@ def _window(main_window, qtbot, path):
     with qtbot.waitExposed(window):
         window.show()
     assert window.open_session(path)
-    qtbot.waitUntil(lambda: len(window.overview.points() or []) == 4, timeout=2000)
+    qtbot.waitUntil(lambda: len(window.overview.points() or []) == 4, timeout=30_000)
     QApplication.processEvents()  # let the dock's plot take its size before mapping positions
     return window
 
@@ -157,14 +157,14 @@ def test_clicking_an_overview_point_selects_the_shot(main_window, make_session, 
     for shot_id in ("s03", "s02"):
         pos = view.mapFromScene(window.overview.point_scene_pos(shot_id, "lower"))
         qtbot.mouseClick(view.viewport(), Qt.MouseButton.LeftButton, pos=QPoint(pos.x(), pos.y()))
-        qtbot.waitUntil(lambda s=shot_id: window.model.current_id == s, timeout=2000)
+        qtbot.waitUntil(lambda s=shot_id: window.model.current_id == s, timeout=30_000)
         panel = window.shot_list
         row = panel.proxy.mapToSource(panel.view.currentIndex()).row()
         assert panel.table_model.shot_id(row) == shot_id
         assert len(panel.view.selectionModel().selectedRows()) == 1
     # a review edit in the window shows in the overview: the accepted point fills in
     window.model.apply_pick("s02", status="accepted")
-    qtbot.waitUntil(lambda: window.overview.points().is_final[1], timeout=2000)
+    qtbot.waitUntil(lambda: window.overview.points().is_final[1], timeout=30_000)
 
 
 def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, qtbot, tmp_path,

@@ -59,7 +59,10 @@ def test_laminar_sphere_separates_near_81_deg_from_stagnation(laminar_sphere):
     # laminar separation on a sphere below the drag crisis: 80-82 deg from the front stagnation
     # point (Achenbach 1972, J. Fluid Mech. 54:565, memory), i.e. -8 to -10 deg from the plane
     # normal to the flight; the generator's own truth (Thwaites 1949 with Mangler's
-    # transformation on Fage's measured surface velocity, memory) lies there too
+    # transformation on Fage's measured surface velocity, memory) lies there too. Achenbach
+    # measured at about Re 1.6e5 and this shot is at about 3e4: the check rests on laminar
+    # separation being set by the pressure distribution, which changes little across the
+    # subcritical range (common practice), as Thwaites' method on one distribution has it
     result, truth = laminar_sphere
     assert -10.5 <= truth.upper_deg <= -7.5
     for _, proposal, error in _picks(result, truth):
@@ -75,7 +78,9 @@ def test_reynolds_number_of_the_shot(laminar_sphere):
     assert result.reynolds == pytest.approx(truth.reynolds_number, rel=0.03)
     summary = result.summary()["reynolds"]
     assert summary["value"] == pytest.approx(result.reynolds)
-    assert "drag crisis" in summary["regime"]
+    # about 3e4 here: far below the smooth sphere's crisis at about 2e5 (Achenbach 1972, memory)
+    assert summary["value"] < 1.0e5
+    assert summary["regime"].startswith("below the drag crisis")
 
 
 def test_kinematic_family_pick_within_its_uncertainty():
@@ -170,8 +175,9 @@ def test_a_near_tangential_layer_is_covered_by_its_uncertainty():
     # transformation on Fage's measured surface velocity (memory; core.synth_physical)
     result, truth = _measure(physical_shot(
         (640, 800), radius_px=150.0, departure_deg=(1.0, 12.0), layer_px=5.0, seed=7))
-    for _, proposal, error in _picks(result, truth):
+    for side, proposal, error in _picks(result, truth):
         assert abs(error) <= proposal.uncertainty_deg
+        assert abs(error) <= (1.0 if side == "upper" else 2.5), (side, error)
 
 
 def test_glare_over_the_separation_point_widens_the_uncertainty_across_it():

@@ -98,21 +98,24 @@ def test_swapped_frames_warn_and_propose_nothing():
     assert "swapped" in result.separation.upper.reason
 
 
-def test_ball_cut_by_the_edge_gives_a_result():
+@pytest.mark.parametrize("centre_x", [25.0, 45.0])
+def test_ball_cut_by_the_edge_gives_a_result(centre_x):
+    # a 60 px ball flying left whose front the image's left edge cuts: by 35 px the bands beside
+    # the ball are cut too and each side says so; by 15 px they are whole and each side is
+    # picked (truth from the generator, 10 deg; at 60 px of radius, under the 150 px the
+    # separation targets are set for, within 4 deg and its own uncertainty)
     frame_a, frame_b, truth = ball_shot(
-        shape=(256, 384), radius_px=60.0, center_px=(25.0, 128.0), flight_deg=180.0, seed=14
+        shape=(256, 384), radius_px=60.0, center_px=(centre_x, 128.0), flight_deg=180.0, seed=14
     )
     result = measure_shot(frame_a, frame_b, ShotSettings(dt_s=truth.dt_s))
     assert result.ball_a.cut_by_edge
     assert any("edge cuts the ball" in w for w in result.warnings)
     sep = result.separation
     for side, true_deg in ((sep.upper, truth.upper_deg), (sep.lower, truth.lower_deg)):
-        # either an honest proposal (truth from the generator, within its own uncertainty) or
-        # none, saying why
-        if side.angle_deg is None:
-            assert "image edge" in side.reason
+        if centre_x < 30.0:
+            assert side.angle_deg is None and "image edge" in side.reason
         else:
-            assert abs(side.angle_deg - true_deg) <= side.uncertainty_deg
+            assert abs(side.angle_deg - true_deg) <= min(4.0, side.uncertainty_deg)
 
 
 def test_attached_flow_proposes_no_separation():
@@ -136,7 +139,10 @@ def test_held_ball_warns_without_override_and_measures_with_it():
     assert held.flight.source == "override" and held.flight.direction_deg == 180.0
     for side, true in ((held.separation.upper, truth.upper_deg),
                        (held.separation.lower, truth.lower_deg)):
-        assert abs(side.angle_deg - true) <= side.uncertainty_deg
+        # truth from the generator; the target (2.5 deg) holds on a held ball too, and
+        # the free stream's direction, taken for the flight, keeps the uncertainty ordinary
+        assert abs(side.angle_deg - true) <= min(2.5, side.uncertainty_deg)
+        assert side.uncertainty_deg < 10.0
 
 
 def test_thread_count_does_not_change_the_settings_fingerprint():
