@@ -90,6 +90,7 @@ class CanvasShot:
     proposed_deg: dict = field(default_factory=lambda: {"upper": None, "lower": None})
     final_deg: dict = field(default_factory=lambda: {"upper": None, "lower": None})
     message: str = ""  # shown over the canvas: failed, not processed, frames missing
+    decision_note: str = ""  # shown under the message: what the review decided (unusable)
     editable: bool = True
 
     def angles(self) -> dict:
@@ -285,7 +286,8 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
             self._set_auto_limit()
         self._redraw_all()
 
-    def update_marks(self, proposed: dict, final: dict, editable: bool = True) -> None:
+    def update_marks(self, proposed: dict, final: dict, editable: bool = True,
+                     decision_note: str = "") -> None:
         """Move the marks after an edit without redrawing the picture or fields."""
         if self._shot is None:
             return
@@ -294,6 +296,9 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self._shot.editable = editable
         self._angles = self._shot.angles()
         self._draw_marks()
+        if decision_note != self._shot.decision_note:
+            self._shot.decision_note = decision_note
+            self._show_message()
 
     def update_reference_marks(self, proposed: dict, final: dict) -> None:
         """The kept shot's marks after an edit of that shot."""
@@ -330,7 +335,9 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self._show_message()
 
     def _show_message(self) -> None:
-        text = self._shot.message if self._shot is not None else "Open a session to review shots."
+        shot = self._shot
+        text = ("\n".join(t for t in (shot.message, shot.decision_note) if t) if shot is not None
+                else "Open a session to review shots.")
         self.message.setText(text)
         self.message.setVisible(bool(text))
         self._place_message()
@@ -503,7 +510,10 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         if circle is None:
             return None
         pos = handle.pos()
-        return angle_of_point(circle[0], flight.direction_deg, handle.side, (pos.x(), pos.y()))
+        angle = angle_of_point(circle[0], flight.direction_deg, handle.side, (pos.x(), pos.y()))
+        # a mark stays on its own side: dragged round the front or the back of the ball it
+        # stops at the stagnation point there instead of becoming the other side's angle
+        return min(max(angle, -90.0), 90.0)
 
     def _on_handle_moved(self, handle: MarkHandle) -> None:
         if self._placing or not handle.moving:

@@ -77,6 +77,7 @@ class PicksEdit(QUndoCommand):
         else:
             try:
                 self._model.apply_picks(values)
+                self._model.edit_replayed.emit(list(values), f"{done.capitalize()}: {self.text()}")
                 return
             except WakelineError as exc:  # the step leaves the list: "try again" cannot mean it
                 said = (f"{exc} (not {done}: the step leaves the undo list; make the change "
@@ -229,5 +230,7 @@ class GeometryEdit(QUndoCommand):
             self._model.refresh(self.shot_id)
             self._model.edit_refused.emit(str(exc))
             return
+        done = "Undone" if which == "before" else "Redone"
+        self._model.edit_replayed.emit([self.shot_id], f"{done}: {self.text()}")
         if result is None:
             self._remeasure(self)

@@ -310,6 +310,7 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         self.model.current_changed.connect(self._on_current_changed)
         self.model.record_changed.connect(self._on_record_changed)
         self.model.edit_refused.connect(lambda text: self.show_problem("Edit not saved", text))
+        self.model.edit_replayed.connect(self._on_edit_replayed)
         self.model.session_changed.connect(self._on_session_changed)
         self.model.closing.connect(self._on_session_closing)
         self.canvas.mark_moved.connect(self.readout.show_live)

@@ -21,6 +21,14 @@ from core.geometry import SIDES
 log = logging.getLogger("wakeline.window")
 
 
+def decision_note(record) -> str:
+    """What the canvas says of the review's decision: an unusable shot's marks look like any
+    other shot's, so its reason is shown over the picture."""
+    if record.pick.status != ReviewStatus.UNUSABLE:
+        return ""
+    return f"Unusable: {record.pick.reason or 'no reason given'} — R puts it back to review."
+
+
 class ReviewActions:
     """Showing and reviewing the current shot (mixed into ``MainWindow``)."""
 
@@ -57,6 +65,17 @@ class ReviewActions:
         if reference is not None and reference.shot_id == shot_id:
             self.canvas.update_reference_marks(*mark_angles(self.model.record(shot_id)))
 
+    def _on_edit_replayed(self, shot_ids: list, said: str) -> None:
+        """An undo or redo changed these shots: the first becomes current when the one shown
+        is not among them, so the analyst sees what changed (or is told the filter hides it)."""
+        if self.model.current_id not in shot_ids:
+            shown = set(self.shot_list.visible_ids())
+            if any(shot_id in shown for shot_id in shot_ids):
+                self.shot_list.select_ids(shot_ids)
+            else:
+                said += " (the shot list's filter hides it)"
+        self.statusBar().showMessage(said, 6000)
+
     def keep_for_comparison(self) -> None:
         """Keep the current shot beside the others for comparison; on the kept shot, let go."""
         shot_id = self.model.current_id
@@ -82,7 +101,8 @@ class ReviewActions:
             self.canvas.show_shot(shot)
             self._shown_key = key
         else:
-            self.canvas.update_marks(*mark_angles(record), editable=self._editable(record))
+            self.canvas.update_marks(*mark_angles(record), editable=self._editable(record),
+                                     decision_note=decision_note(record))
         self.readout.show_record(record)
         self.readout.show_checks(self.model.checks(shot_id))
 
@@ -115,7 +135,7 @@ class ReviewActions:
         return CanvasShot(
             shot_id=record.shot_id, frame_a=frame_a, frame_b=frame_b, result=result,
             proposed_deg=proposed, final_deg=final, message="\n".join(messages),
-            editable=self._editable(record),
+            decision_note=decision_note(record), editable=self._editable(record),
         )
 
     def _editable(self, record) -> bool:
@@ -273,13 +293,22 @@ class ReviewActions:
             return
         current = self.canvas.mark_angle(side)
         angle = round((0.0 if current is None else current) + step_deg, 6)
-        self._push(MarkMove(self.model, record.shot_id, side, angle, nudge=True))
+        self._move_mark(MarkMove(self.model, record.shot_id, side, angle, nudge=True))
 
     def _on_mark_released(self, side: str, angle_deg: float) -> None:
         if not self._can_edit():
             return
         shot_id = self.model.current_id
-        self._push(MarkMove(self.model, shot_id, side, angle_deg))
+        self._move_mark(MarkMove(self.model, shot_id, side, angle_deg))
+
+    def _move_mark(self, command: MarkMove) -> None:
+        """Push a mark's move; one that turns an accepted shot into an adjusted one says so (a
+        nudge key sits beside the accept key)."""
+        was = self.model.record(command.shot_id).pick.status
+        if self._push(command) and was == ReviewStatus.ACCEPTED:
+            self.statusBar().showMessage(
+                f"Shot {command.shot_id} was accepted; moving its {command.side} mark made it "
+                "adjusted (Ctrl+Z undoes the move).", 8000)
 
     def _on_note_committed(self, text: str) -> None:
         shot_id = self.readout.shot_id

@@ -122,6 +122,7 @@ class SessionModel(QObject):
     current_changed = Signal(str)  # the current shot id ("" for none)
     record_changed = Signal(str)  # one shot's pick, result or processing state changed
     edit_refused = Signal(str)  # an undo or redo the store refused: its one-line reason
+    edit_replayed = Signal(list, str)  # an undo or redo made: the shots it changed, what it did
     conditions_changed = Signal()  # the grouping columns or the imported reviews changed
 
     def __init__(self, parent: QObject | None = None, cache_size: int = 6,

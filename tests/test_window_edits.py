@@ -1,0 +1,93 @@
+"""What an edit shows the analyst: an undo brings its shot into view, a mark cannot be dragged
+onto the other side, a mark moved on a decided shot says what became of the decision."""
+
+from __future__ import annotations
+
+import pytest
+from PySide6.QtCore import Qt
+from test_window import _drag, _key, _open, _upper_mark_drag, _viewport_point
+
+from app.qt.canvas_items import mark_circle
+from core.geometry import point_at_angle
+
+# The offscreen platform warns that it cannot propagate size hints; harmless (DEVELOPERS.md).
+pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
+
+
+def test_undo_and_redo_bring_the_shot_they_change_into_view(main_window, make_session, qtbot):
+    path = make_session(3)
+    window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(True)
+    window.shot_list.view.setFocus()
+    _key(qtbot, window, Qt.Key.Key_A)  # s01 accepted; the window moves on to s02
+    assert window.model.current_id == "s02"
+    _key(qtbot, window, Qt.Key.Key_Z, Qt.KeyboardModifier.ControlModifier)
+    assert window.model.record("s01").pick.status == "to review"
+    assert window.model.current_id == "s01"
+    assert window.statusBar().currentMessage().startswith("Undone: ")
+    window.model.set_current("s03")
+    _key(qtbot, window, Qt.Key.Key_Y, Qt.KeyboardModifier.ControlModifier)
+    assert window.model.record("s01").pick.status == "accepted"
+    assert window.model.current_id == "s01"
+    assert window.statusBar().currentMessage().startswith("Redone: ")
+
+
+def test_an_undo_on_a_shot_the_filter_hides_says_so(main_window, make_session, qtbot):
+    path = make_session(3)
+    window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(False)
+    window.shot_list.view.setFocus()
+    _key(qtbot, window, Qt.Key.Key_A)  # s01 accepted
+    window.shot_list.proxy.set_text("s02")
+    window.model.set_current("s02")
+    window.undo_stack.undo()
+    assert window.model.record("s01").pick.status == "to review"
+    assert window.model.current_id == "s02"
+    assert "the shot list's filter hides it" in window.statusBar().currentMessage()
+
+
+def test_a_mark_dragged_round_the_back_stops_at_the_rear_stagnation_point(main_window,
+                                                                         make_session, qtbot):
+    path = make_session(2)
+    window = _open(main_window, qtbot, path, show=True)
+    canvas = window.canvas
+    result = window.model.result("s01")
+    _, start, _ = _upper_mark_drag(window, "s01", 0.0)
+    # 140 deg on the upper side lies on the lower half, behind the ball
+    beyond = point_at_angle(*mark_circle(result), result.flight.direction_deg, "upper", 140.0)
+    _drag(qtbot, canvas.graphics.viewport(), start, _viewport_point(canvas, *beyond))
+    adjusted = window.model.record("s01")
+    assert adjusted.pick.status == "adjusted"
+    assert adjusted.final_deg("upper") == pytest.approx(90.0)
+
+
+def test_moving_a_mark_on_an_accepted_shot_says_it_is_now_adjusted(main_window, make_session,
+                                                                   qtbot):
+    path = make_session(2)
+    window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(False)
+    window.shot_list.view.setFocus()
+    _key(qtbot, window, Qt.Key.Key_A)
+    _key(qtbot, window, Qt.Key.Key_E)
+    assert window.model.record("s01").pick.status == "adjusted"
+    said = window.statusBar().currentMessage()
+    assert "was accepted" in said and "Ctrl+Z" in said
+
+
+def test_an_unusable_shot_says_so_over_its_picture(main_window, make_session, qtbot):
+    from conftest import answer_dialog
+    from test_window import reactivate
+
+    path = make_session(2)
+    window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(False)
+    window.shot_list.view.setFocus()
+    answer_dialog(lambda d: (d.setTextValue("laser sheet misfired"), d.accept()))
+    _key(qtbot, window, Qt.Key.Key_U)
+    reactivate(qtbot, window)
+    assert window.model.record("s01").pick.status == "unusable"
+    assert window.canvas.message.isVisibleTo(window)
+    assert "Unusable: laser sheet misfired" in window.canvas.message.text()
+    _key(qtbot, window, Qt.Key.Key_R)  # back to review: the note goes
+    assert window.model.record("s01").pick.status == "to review"
+    assert not window.canvas.message.isVisibleTo(window)
