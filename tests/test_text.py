@@ -111,6 +111,13 @@ def test_powers_of_ten_and_microseconds_are_written_as_printed():
     given = ShotSummary.from_dict({"reynolds": {"value": 143_210.0, "air_temp_c": 20.0},
                                    "settings": {"air_temp_c": 20.0}})
     assert reynolds_text(given).startswith("1.43 × 10⁵ (air at 20 °C)")
+    # the readout's narrow cell: the number and the regime's head (the rest on hovering)
+    from app.review.text import reynolds_short_text
+
+    regime = ShotSummary.from_dict({"reynolds": {"value": 143_210.0, "regime": (
+        "below the drag crisis: a smooth ball's layer separates laminar")}})
+    assert reynolds_short_text(regime) == "1.43 × 10⁵, below the drag crisis"
+    assert reynolds_short_text(ShotSummary.from_dict({})) == "—"
     assert scientific_text(2.5e-7) == "2.50 × 10⁻⁷" and scientific_text(512.0) == "512"
     # three figures always, as the conditions' ranges write them ("1.4 × 10⁵" beside "1.40")
     assert scientific_text(1.4e5) == "1.40 × 10⁵"

@@ -107,3 +107,24 @@ def test_the_window_fits_a_laptop_screen(main_window, make_session, qtbot):
     assert needed.height() <= room.height() and needed.width() <= room.width()
     header = window.shot_list.view.horizontalHeader()
     assert header.length() <= window.shot_list.view.viewport().width()  # every column whole
+
+
+def test_a_window_that_opens_low_keeps_the_decision_and_the_picture_in_sight(
+        main_window, make_session, qtbot):
+    """Opened at 1100 x 700 with the conditions in front below: the review buttons and the note
+    stay below the scrolled readout, and the panel below gives up height for the picture."""
+    from app.qt.window import CANVAS_HEIGHT_PX
+
+    window = _open(main_window, qtbot, make_session(3), show=True)
+    window.statistics_dock.raise_()
+    window.resize(1100, 700)
+    dock = window.statistics_dock
+    # docks sharing the place keep the largest of their least heights
+    least = max(d.minimumSizeHint().height() for d in (dock, window.overview_dock))
+    qtbot.waitUntil(lambda: window.splitter.height() >= CANVAS_HEIGHT_PX - 2
+                    or dock.height() <= least, timeout=30_000)
+    assert window.splitter.height() > 420
+    readout = window.readout
+    for widget in (*readout.buttons.values(), readout.note):
+        corner = widget.mapTo(readout, widget.rect().bottomRight())
+        assert widget.isVisible() and readout.rect().contains(corner)

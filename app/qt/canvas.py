@@ -58,6 +58,7 @@ from app.qt.canvas_items import (
 from app.qt.canvas_pane import ShotPane, field_steps
 from app.qt.canvas_pictures import picture_levels, point_text, vorticity_unit
 from app.qt.flow_layout import FlowLayout
+from app.qt.workers import later
 from app.review import colours
 from app.review.scales import shot_limit
 from core.geometry import SIDES, angle_of_point
@@ -155,6 +156,9 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self._flicker = QTimer(self)
         self._flicker.setInterval(FLICKER_MS)
         self._flicker.timeout.connect(self._on_flicker)
+        # once the bottom row has given the cursor readout its width; a timer the canvas owns
+        # (a single-shot call would keep the canvas alive if the window closed first)
+        self._hover_fit = later(self, self._fit_hover_height)
         self._hover_proxy = pg.SignalProxy(
             self.graphics.scene().sigMouseMoved, rateLimit=60, slot=self._on_mouse_moved
         )
@@ -360,7 +364,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
                      else QBoxLayout.Direction.LeftToRight)
         if self._bottom_row.direction() != direction:
             self._bottom_row.setDirection(direction)
-        QTimer.singleShot(0, self._fit_hover_height)  # once the row has given the label its width
+        self._hover_fit.start()
 
     def _fit_hover_height(self) -> None:
         """The cursor readout as tall as the longest reading needs at its width (2-4 lines)."""

@@ -41,6 +41,7 @@ from app.review.text import (
     quality_meaning,
     quality_text,
     reviewed_wake_text,
+    reynolds_short_text,
     reynolds_text,
     speed_text,
     uncertainty_meaning,
@@ -149,7 +150,6 @@ class ReadoutPanel(QWidget):
         box.addWidget(self.checks)
         box.addWidget(self.notes)
         box.addWidget(self._separation_group())
-        box.addWidget(self._review_group())
         box.addWidget(self._flight_group())
         self.meta_group = QGroupBox("Shot", content)
         self.meta_form = QFormLayout(self.meta_group)
@@ -162,24 +162,28 @@ class ReadoutPanel(QWidget):
         scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
         scroll.setWidget(content)
         outer = QVBoxLayout(self)
-        outer.setContentsMargins(0, 0, 0, 0)
-        outer.addWidget(scroll)
+        outer.setContentsMargins(0, 0, 6, 4)
+        outer.addWidget(scroll, 1)
+        # the decision and the note stay in sight below the scrolled readout, however low the
+        # window
+        review = self._review_group()
+        outer.addWidget(review)
         self.setMinimumWidth(280)
 
     def _separation_group(self) -> QGroupBox:
+        # the convention in the title, the rest on hovering: a low window keeps its room for
+        # the angles and the review buttons
         group = QGroupBox("Separation angle")
         group.setToolTip("degrees from the plane through the ball centre normal to the flight; "
                          "positive = rearward (downstream); from the front stagnation point "
-                         "add 90°")
+                         "add 90°. ± holds the true angle in 95 % of proposals; quality falls "
+                         "as ± widens (hover over a row for how)")
         grid = QGridLayout(group)
         grid.setHorizontalSpacing(14)
-        hint = QLabel("deg from the plane normal to the flight, + rearward. ± holds the true "
-                      "angle in 95 % of proposals; quality falls as ± widens (hover for how).",
-                      group)
-        hint.setWordWrap(True)
-        hint.setStyleSheet(f"color: {colours.MUTED_INK};")
-        grid.addWidget(hint, len(ROWS) + 4, 0, 1, 3)
         self.cells: dict[tuple[str, str], QLabel] = {}
+        convention = QLabel("deg, + rearward", group)
+        convention.setStyleSheet(f"color: {colours.MUTED_INK};")
+        grid.addWidget(convention, 0, 0)
         for col, side in enumerate(SIDES, start=1):
             head = QLabel(side, group)
             head.setStyleSheet(f"color: {_side_colour(side)}; font-weight: bold;")
@@ -421,7 +425,8 @@ class ReadoutPanel(QWidget):
         self.flight_dir.setText(direction_text(flight))
         self.flight_speed.setText(speed_text(None if flight is None else flight.speed_m_s))
         self.ball_size.setText(MISSING if summary is None else ball_text(summary))
-        self.reynolds.setText(MISSING if summary is None else reynolds_text(summary))
+        self.reynolds.setText(MISSING if summary is None else reynolds_short_text(summary))
+        self.reynolds.setToolTip("" if summary is None else reynolds_text(summary))
         self.vectors.setText(MISSING if summary is None else vectors_text(summary.vectors))
         self.by_hand.setText(geometry_text(record.pick))
         self.by_hand.setVisible(bool(self.by_hand.text()))

@@ -26,6 +26,7 @@ from PySide6.QtGui import QAction, QKeySequence, QUndoStack
 from PySide6.QtWidgets import (
     QApplication,
     QDialog,
+    QDockWidget,
     QLabel,
     QMainWindow,
     QMenu,
@@ -41,6 +42,7 @@ from PySide6.QtWidgets import (
 from app.qt.analyst_marks import install_analyst_marks
 from app.qt.canvas import MOUSE_KEYS, ShotCanvas
 from app.qt.conditions_panel import install_statistics
+from app.qt.docks import in_front
 from app.qt.export import install_export_actions, install_overview
 from app.qt.icons import app_icon, status_icon
 from app.qt.picture_export import install_picture_actions
@@ -51,7 +53,7 @@ from app.qt.window_ball import BallActions
 from app.qt.window_jobs import JobActions
 from app.qt.window_review import ReviewActions
 from app.qt.window_session import SessionActions
-from app.qt.workers import BackgroundJob
+from app.qt.workers import BackgroundJob, later
 from app.review.model import MANIFEST_NAME, ReviewStatus, SessionModel
 from core import WakelineError
 from core.paths import user_data_dir
@@ -112,6 +114,9 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         self._workers_override = workers
         self.model = SessionModel(self)
         self.undo_stack = QUndoStack(self)
+        # the panels' sizes once a resize has settled
+        self._room_later = later(self, self._make_room_for_canvas)
+        self._height_later = later(self, self._make_height_for_canvas)
         self.job: BackgroundJob | None = None
         self.last_problem = ""
         self._shown_key = None
@@ -453,25 +458,29 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
         if watched is self.splitter and event.type() == QEvent.Type.Resize:
             # once the splitter has shared its new width out (a smaller window, a dock moved
             # beside it)
-            QTimer.singleShot(0, self._make_room_for_canvas)
+            self._room_later.start()
         return super().eventFilter(watched, event)
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        self._height_later.start()  # a window that opens low
 
     def resizeEvent(self, event) -> None:
         super().resizeEvent(event)
         if event.oldSize().isValid() and event.size().height() < event.oldSize().height():
-            QTimer.singleShot(0, self._make_height_for_canvas)  # once the layout has settled
+            self._height_later.start()  # once the layout has settled
 
     def _make_height_for_canvas(self) -> None:
-        """When the window gets lower, the session overview docked below the panels gives up
-        height until they are ``CANVAS_HEIGHT_PX`` high (down to its least height); the
+        """When the window is or gets low, the panel docked below the others (the session
+        overview, the conditions) gives up height until they are ``CANVAS_HEIGHT_PX`` high (down to its least height); the
         analyst's own dock height stays as long as the window keeps its size."""
-        dock = getattr(self, "overview_dock", None)
-        if (dock is None or dock.isFloating() or not dock.isVisible()
-                or self.dockWidgetArea(dock) != Qt.DockWidgetArea.BottomDockWidgetArea):
-            return
+        below = [dock for dock in self.findChildren(QDockWidget)
+                 if not dock.isFloating() and in_front(self, dock)
+                 and self.dockWidgetArea(dock) == Qt.DockWidgetArea.BottomDockWidgetArea]
         short = CANVAS_HEIGHT_PX - self.splitter.height()
-        if short <= 0:
+        if not below or short <= 0:
             return
+        dock = below[0]
         height = max(dock.minimumSizeHint().height(), dock.height() - short)
         if height < dock.height():
             self.resizeDocks([dock], [height], Qt.Orientation.Vertical)

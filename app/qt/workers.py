@@ -15,7 +15,7 @@ import threading
 import traceback
 from dataclasses import dataclass
 
-from PySide6.QtCore import QObject, QThread, Signal, Slot
+from PySide6.QtCore import QObject, QThread, QTimer, Signal, Slot
 
 from app.review.model import import_folder, take_corrections
 from core import WakelineError
@@ -191,3 +191,15 @@ def corrections_job(session_path, corrections: dict[str, dict],
         return take_corrections(session_path, corrections)
 
     return BackgroundJob(run, parent)
+
+
+def later(owner: QObject, slot) -> QTimer:
+    """A single-shot timer of 0 ms that calls ``slot`` once the event loop is back (a layout
+    settled, a resize shared out), owned by ``owner``: ``start()`` it. Unlike
+    ``QTimer.singleShot(0, slot)`` with a bound method, a call still pending when ``owner`` is
+    deleted goes with it instead of keeping ``owner`` alive."""
+    timer = QTimer(owner)
+    timer.setSingleShot(True)
+    timer.setInterval(0)
+    timer.timeout.connect(slot)
+    return timer

@@ -267,6 +267,15 @@ def reynolds_text(summary: ShotSummary) -> str:
     return out + (f"; {summary.regime}" if summary.regime else "")
 
 
+def reynolds_short_text(summary: ShotSummary) -> str:
+    """The Reynolds number and the regime's head ("below the drag crisis"), for a narrow cell;
+    :func:`reynolds_text` says the rest."""
+    if summary.reynolds is None:
+        return MISSING
+    head = summary.regime.split(":")[0] if summary.regime else ""
+    return scientific_text(summary.reynolds) + (f", {head}" if head else "")
+
+
 def vectors_text(vectors: VectorCounts) -> str:
     """Valid, replaced and masked vectors of the last pass and its grid."""
     out = (f"{vectors.valid} valid, {vectors.replaced} replaced, {vectors.masked} masked "
