@@ -79,8 +79,10 @@ def test_sheet_pages_text_match_table(reviewed_session, tmp_path):
     assert "wake —" in s03 and "deflected" not in s03
     assert "moved to the shear-layer root" in text
     assert "page 1 of 5" in text and "page 5 of 5" in text
-    # cover: counts by status and the summary table's column
-    assert "Final angles by seam_deg" in text
+    # cover: counts by status, and the statistics per condition on the next page only (one
+    # form of them in one handover)
+    assert "Each condition's mean angles with their 95 % intervals: the next page" in text
+    assert "Final angles by" not in text
     # the conditions page: grouped by the seam angle, one row per seam angle
     assert "Separation by condition" in text and "Shots grouped by seam_deg" in text
     # each printed row gives under its values what the interval leaves out: here (one shot
@@ -116,7 +118,7 @@ def test_sheet_page_renders_with_content(reviewed_session, tmp_path):
 
 
 def test_sheet_selection_and_layout(reviewed_session, tmp_path):
-    from app.sheet import make_sheet, summary_rows
+    from app.sheet import make_sheet
     from core import WakelineError
     from core.store import Session
 
@@ -141,38 +143,8 @@ def test_sheet_selection_and_layout(reviewed_session, tmp_path):
             make_sheet(session, tmp_path / "c.pdf", column="notes")
         # the window's name of the pseudo-column (its filter's speed_m_s) is taken too
         make_sheet(session, tmp_path / "d.pdf", shot_ids=["s01"], column="shot_order")
-        assert "Final angles by shot order" in _pdf_text(tmp_path / "d.pdf")[1]
-        rows = summary_rows(list(session.values()), "seam_deg")
+        assert "shot order" in _pdf_text(tmp_path / "d.pdf")[1]  # the overview's axis
     assert not (tmp_path / "c.pdf").exists()
-    # one row per seam angle with a final value: s01 (-10), s02 (0), s05 (45)
-    assert [r.value for r in rows] == [-10.0, 0.0, 45.0]
-    assert all(r.n == 1 and math.isnan(r.upper_sd) for r in rows)
-
-
-def test_summary_statistics():
-    """Mean and sample SD (n-1) per group (derived: closed forms of the listed values)."""
-    from app.sheet import summary_rows
-    from core.store import Pick, ShotRecord
-    from core.summary import ShotSummary
-
-    def rec(shot_id, seam, up, low):
-        summary = ShotSummary.from_dict({"separation": {"upper_deg": up, "lower_deg": low}})
-        return ShotRecord(shot_id, {"seam_deg": seam}, state="processed", summary=summary,
-                          pick=Pick(status="accepted"))
-
-    records = [rec("a", 10, -9.0, 4.0), rec("b", 10, -7.0, 8.0), rec("c", 10, -8.0, 6.0),
-               rec("d", 20, -9.0, None)]
-    rows = summary_rows(records, "seam_deg")
-    assert [r.value for r in rows] == [10.0, 20.0]
-    assert rows[0].n == 3
-    assert rows[0].upper_mean == pytest.approx(-8.0)
-    assert rows[0].upper_sd == pytest.approx(1.0)  # sqrt(((-1)^2 + 1^2 + 0) / 2)
-    assert rows[0].lower_mean == pytest.approx(6.0)
-    assert rows[0].lower_sd == pytest.approx(2.0)
-    assert rows[1].n == 1 and math.isnan(rows[1].lower_mean)
-    # upper - lower, shot by shot (the conditions' and the table's sign): -13, -15, -14
-    assert rows[0].difference_mean == pytest.approx(-14.0)
-    assert math.isnan(rows[1].difference_mean)  # no shot with both angles
 
 
 def test_a_printed_condition_row_gives_the_shots_sd_under_its_values():
@@ -196,27 +168,26 @@ def test_a_printed_condition_row_gives_the_shots_sd_under_its_values():
     assert condition_cell_notes(one)[1:4] == ["1 decided", "one shot", ""]
 
 
-def test_cover_gives_upper_minus_lower_as_the_rest_of_the_sheet(reviewed_session, tmp_path):
-    """The cover's difference column is upper − lower (as the conditions page, the window and
-    the table), with the values of that sign."""
+def test_the_conditions_page_gives_upper_minus_lower_as_the_rest_of_the_sheet(reviewed_session,
+                                                                             tmp_path):
+    """The difference column is upper − lower (as the window and the table), with the values of
+    that sign."""
     from pypdf import PdfReader
 
+    from app.review.text import angle_text
     from app.sheet import make_sheet
-    from app.sheet.content import sheet_angle
     from core.store import Session
 
     out = tmp_path / "sheet.pdf"
     with Session.open(reviewed_session, writable=False) as session:
         make_sheet(session, out, per_page=2)
-    reader = PdfReader(str(out))
-    cover, conditions = (re.sub(r"\s+", " ", reader.pages[k].extract_text()) for k in (0, 1))
-    assert "upper − lower" in cover and "lower - upper" not in cover
-    assert "upper − lower" in conditions
+    conditions = re.sub(r"\s+", " ", PdfReader(str(out)).pages[1].extract_text())
+    assert "upper − lower" in conditions and "lower - upper" not in conditions
     rows = {r["shot"]: r for r in _table(reviewed_session, tmp_path / "table.csv")}
-    s01 = rows["s01"]  # alone at its seam angle: the mean is its own difference
+    s01 = rows["s01"]  # alone at its seam angle: the condition's difference is its own
     difference = float(s01["upper_final_deg"]) - float(s01["lower_final_deg"])
-    assert abs(difference) > 0.01
-    assert sheet_angle(difference) in cover and sheet_angle(-difference) not in cover
+    assert abs(difference) > 0.1
+    assert angle_text(difference) in conditions and angle_text(-difference) not in conditions
 
 
 def test_parse_statuses():

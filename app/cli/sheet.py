@@ -20,7 +20,7 @@ def _add_sheet(subparsers) -> None:
         "sheet",
         help="write the shot sheet of a session as PDF",
         description="Write a vector PDF handing over a session: a cover page (counts by review "
-        "status, the overview plot of separation angles, a summary table of the final angles), "
+        "status, the overview plot of separation angles), "
         "a page of the conditions (separation against the condition with error bars, their "
         "statistics, with --ensemble their ensemble proposals; the agreement with an imported "
         "second review) and a panel per shot (vorticity and vectors, ball, flight, separation "
@@ -37,7 +37,7 @@ def _add_sheet(subparsers) -> None:
                    help="only shots with these review statuses, comma-separated, e.g. "
                    "accepted,adjusted (statuses: to review, accepted, adjusted, unusable)")
     p.add_argument("--column", metavar="NAME",
-                   help="numeric metadata column for the overview and the summary table "
+                   help="numeric metadata column for the cover's overview plot "
                    "(default: seam_deg when present)")
     p.add_argument("--vorticity-limit", type=_vorticity_limit, metavar="W|session",
                    help="the same vorticity colour range on every panel, so they compare: "

@@ -1,5 +1,5 @@
-"""What goes on the shot sheet, without painting it (no Qt): which shots, how many pages, the
-summary statistics of the cover, and the texts of a shot panel (in the words and number formats
+"""What goes on the shot sheet, without painting it (no Qt): which shots, how many pages, and
+the texts of the cover and of a shot panel (in the words and number formats
 of ``app.review.text``).
 """
 
@@ -10,18 +10,13 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
-import numpy as np
-
 from app.review.marks import moved_from_proposal
-from app.review.overview import column_value
 from app.review.text import MISSING, SHEET_DECIMALS, angle_text, layer_text, proposal_text
 from core import WakelineError
 from core.results import SideProposal
 from core.store import ReviewStatus, ShotRecord
 
 PER_PAGE_CHOICES = (1, 2, 3, 4)
-SUMMARY_ROWS_ON_COVER = 10
-SUMMARY_ROWS_PER_PAGE = 40
 CONVENTIONS = (
     "Separation angle: deg from the plane through the ball centre normal to the flight, "
     "+ rearward (add 90 for the angle from the front stagnation point). Upper = side toward the "
@@ -76,64 +71,6 @@ def select_records(session, shot_ids=None, statuses=None) -> list:
 
 def shot_page_count(n_shots: int, per_page: int) -> int:
     return max(1, math.ceil(n_shots / per_page)) if n_shots else 0
-
-
-def summary_page_count(n_rows: int) -> int:
-    """Pages the cover needs: the cover itself plus continuation pages for a long table."""
-    extra = max(0, n_rows - SUMMARY_ROWS_ON_COVER)
-    return 1 + math.ceil(extra / SUMMARY_ROWS_PER_PAGE)
-
-
-# --- summary table ------------------------------------------------------------------------------
-
-
-@dataclass
-class SummaryRow:
-    value: float
-    n: int
-    upper_mean: float
-    upper_sd: float
-    lower_mean: float
-    lower_sd: float
-    difference_mean: float = float("nan")  # upper - lower, shot by shot
-
-
-def summary_rows(records, column: str) -> list[SummaryRow]:
-    """Mean and sample standard deviation of each side's final angle for each value of
-    ``column``, and the mean of upper - lower over the shots with both (as the conditions and
-    the table give it).
-
-    Only shots with a final angle (accepted or adjusted) count; SD is NaN for fewer than two.
-    """
-    groups: dict[float, tuple[list[float], list[float], list[float], set]] = {}
-    for position, record in enumerate(records):
-        x = column_value(record, column, position)
-        if x is None:
-            continue
-        ups, lows, diffs, ids = groups.setdefault(round(x, 6), ([], [], [], set()))
-        finals = {side: record.final_deg(side) for side in ("upper", "lower")}
-        for side, bucket in (("upper", ups), ("lower", lows)):
-            if finals[side] is not None:
-                bucket.append(float(finals[side]))
-                ids.add(record.shot_id)
-        if None not in finals.values():
-            diffs.append(float(finals["upper"]) - float(finals["lower"]))
-    rows = []
-    for x in sorted(groups):
-        ups, lows, diffs, ids = groups[x]
-        if ids:
-            rows.append(SummaryRow(x, len(ids), *_mean_sd(ups), *_mean_sd(lows),
-                                   _mean_sd(diffs)[0]))
-    return rows
-
-
-def _mean_sd(values: list[float]) -> tuple[float, float]:
-    if not values:
-        return float("nan"), float("nan")
-    arr = np.asarray(values)
-    sd = float(np.std(arr, ddof=1)) if arr.size > 1 else float("nan")
-    return float(arr.mean()), sd
-
 
 
 def status_counts(records) -> dict[str, int]:

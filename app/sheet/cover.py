@@ -1,5 +1,5 @@
 """The cover of the shot sheet: the session's name, counts by review status and processing
-state, the session overview plot and the table of final angles by one column.
+state, the session overview plot and where the statistics per condition are.
 """
 
 from __future__ import annotations
@@ -12,12 +12,8 @@ from PySide6 import QtCore, QtGui
 from app.review import colours
 from app.review.overview import PLOTTED_STATUSES, OverviewPoints, left_out_text, overview_points
 from app.sheet.content import (
-    SUMMARY_ROWS_ON_COVER,
-    SUMMARY_ROWS_PER_PAGE,
-    SummaryRow,
     process_counts,
     session_date,
-    sheet_angle,
     status_counts,
 )
 from app.sheet.kit import (
@@ -36,7 +32,7 @@ from core.store import ProcessState, ReviewStatus
 
 
 def paint_cover(pages: Pages, session, all_records, records, column: str,
-                 rows: list[SummaryRow], selection_text: str) -> None:
+                has_conditions: bool, selection_text: str) -> None:
     p = pages.painter
     pages.new_page("cover")
     x, y, w, _h = pages.body()
@@ -65,21 +61,9 @@ def paint_cover(pages: Pages, session, all_records, records, column: str,
     y += 90
     text(p, rect_mm(x, y, w, 5), left_out_text(pts) or " ", 7.5, colour=colours.MUTED_INK)
     y += 6
-    text(p, rect_mm(x, y, w, 6), f"Final angles by {column}", 11, bold=True)
-    y += 6.5
-    text(p, rect_mm(x, y, w, 5),
-         "Accepted and adjusted shots only; mean and sample standard deviation (SD) in deg; "
-         "upper − lower shot by shot.",
-         7.5, colour=colours.MUTED_INK)
-    y += 5.5
-    _paint_summary_table(p, x, y, w, column, rows[:SUMMARY_ROWS_ON_COVER])
-    rest = rows[SUMMARY_ROWS_ON_COVER:]
-    while rest:
-        pages.new_page("cover, continued")
-        x, y, w, _h = pages.body()
-        text(p, rect_mm(x, y, w, 6), f"Final angles by {column} (continued)", 11, bold=True)
-        _paint_summary_table(p, x, y + 8, w, column, rest[:SUMMARY_ROWS_PER_PAGE])
-        rest = rest[SUMMARY_ROWS_PER_PAGE:]
+    # the statistics per condition are the next page's, in the form the window's Conditions
+    # dock and the conditions table give them: one form for one handover
+    text(p, rect_mm(x, y, w, 5), conditions_pointer(has_conditions), 8.5, colour=colours.INK)
 
 
 def _name_size(p, name: str, width_mm: float) -> float:
@@ -233,37 +217,10 @@ def _paint_overview_legend(p, x: float, y: float) -> None:
          "true angle in 95 % of proposals); none where the analyst moved the mark", 7.5)
 
 
-def _paint_summary_table(p, x: float, y: float, w: float, column: str,
-                         rows: list[SummaryRow]) -> float:
-    heads = [column, "shots", "upper mean", "upper SD", "lower mean", "lower SD",
-             "upper − lower"]
-    widths = [0.2, 0.1, 0.14, 0.12, 0.14, 0.12, 0.18]
-    row_h = 5.2
-    right = QtCore.Qt.AlignmentFlag.AlignRight | QtCore.Qt.AlignmentFlag.AlignVCenter
-    p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.ACCENT))
-    cx = x
-    for head, frac in zip(heads, widths):
-        text(p, rect_mm(cx, y, frac * w - 2, row_h), head, 8, bold=True, colour="#ffffff",
-             flags=right)
-        cx += frac * w
-    y += row_h
-    if not rows:
-        text(p, rect_mm(x, y + 1, w, row_h), "No accepted or adjusted shots yet.", 8.5,
-             italic=True, colour=colours.MUTED_INK)
-        return y + row_h
-    for k, row in enumerate(rows):
-        if k % 2:
-            p.fillRect(rect_mm(x, y, w, row_h), qcolor(colours.PAPER_TINT))
-        cells = [tick_label(row.value), str(row.n), sheet_angle(row.upper_mean),
-                 sheet_angle(row.upper_sd, signed=False), sheet_angle(row.lower_mean),
-                 sheet_angle(row.lower_sd, signed=False),
-                 sheet_angle(row.difference_mean)]
-        cx = x
-        for cell, frac in zip(cells, widths):
-            text(p, rect_mm(cx, y, frac * w - 2, row_h), cell, 8.5, flags=right)
-            cx += frac * w
-        y += row_h
-    p.setPen(pen(colours.RULE, 0.3))
-    p.drawLine(QtCore.QPointF(mm(x), mm(y)), QtCore.QPointF(mm(x + w), mm(y)))
-    return y
-
+def conditions_pointer(has_conditions: bool) -> str:
+    """Where the sheet's statistics are: the conditions page, or why there is none."""
+    if has_conditions:
+        return ("Each condition's mean angles with their 95 % intervals: the next page "
+                "(Separation by condition).")
+    return ("No manifest column groups these shots into conditions: each shot's angles are on "
+            "its panel, and all of them in the table (wakeline table).")

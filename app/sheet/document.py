@@ -31,8 +31,6 @@ from app.sheet.content import (
     select_records,
     selection_text,
     shot_page_count,
-    summary_page_count,
-    summary_rows,
 )
 from app.sheet.cover import paint_cover
 from app.sheet.kit import DPI, Pages, ensure_gui_application
@@ -118,9 +116,8 @@ def make_sheet(
             isinstance(vorticity_limit_1_s, (int, float)) and 0 < vorticity_limit_1_s < math.inf):
         raise WakelineError(f"--vorticity-limit: a positive number or '{SESSION_RANGE}', not "
                             f"{vorticity_limit_1_s!r}")
-    rows = summary_rows(records, column)
     by, conditions = sheet_conditions(session, records)
-    total = (summary_page_count(len(rows)) + conditions_page_count(conditions)
+    total = (1 + conditions_page_count(conditions)
              + shot_page_count(len(records), per_page))
     out_path = Path(out_path)
     name = getattr(session, "name", "") or Path(session.path).stem
@@ -136,7 +133,7 @@ def make_sheet(
             raise WakelineError(f"{out_path}: cannot write the PDF here")
         try:
             pages = Pages(painter, writer, name, total)
-            paint_cover(pages, session, all_records, records, column, rows,
+            paint_cover(pages, session, all_records, records, column, bool(conditions),
                         selection_text(records, all_records, shot_ids, statuses, per_page,
                                        vorticity_limit_1_s))
             if conditions:
