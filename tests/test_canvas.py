@@ -11,7 +11,7 @@ from conftest import analytic_result, synthetic_frames
 from app.qt.canvas import CanvasShot, ShotCanvas
 from app.qt.canvas_controls import VECTOR_GAP_PX
 from app.qt.canvas_items import PROPOSAL_RADIUS, arrow_segments, mark_circle
-from app.qt.canvas_pictures import smooth_upsample, vorticity_image
+from app.qt.canvas_pictures import plain_reading, smooth_upsample, vorticity_image
 from app.review.colours import symmetric_limit
 from app.review.scales import shot_limit
 from core.geometry import angle_of_point, flight_unit, point_at_angle
@@ -146,6 +146,7 @@ def test_cursor_readout_gives_position_velocity_and_vorticity(canvas, shot_data)
     row, col = 3, 25
     assert not vf.masked[row, col]
     text = canvas.describe_point(float(vf.x_px[row, col]) + 1.0, float(vf.y_px[row, col]) - 1.0)
+    text = plain_reading(text)  # readings keep their own spaces from breaking
     u, v_up = result.u_m_s[row, col], -result.v_m_s[row, col]
     assert f"u {u:+8.3f}" in text and f"v {v_up:+8.3f}" in text
     assert f"|V| {math.hypot(u, v_up):7.3f}" in text

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import pytest
 
+from app.qt.canvas_pictures import plain_reading
 from core.store import Session
 
 # the offscreen platform cannot propagate size hints nor raise a window: harmless
@@ -114,7 +115,8 @@ def test_the_ensemble_view_of_a_condition(main_window, make_session, qtbot):
     assert dialog.canvas.ball_frame() and not dialog.canvas.frame_box.isEnabled()
     result = dialog.canvas.shot.result
     (cx, cy), r = result.ball_a.center_px, result.ball_a.radius_px
-    assert "(ball frame" in dialog.canvas.describe_point(cx + 2.5 * r, cy, dialog.canvas.shot)
+    reading = dialog.canvas.describe_point(cx + 2.5 * r, cy, dialog.canvas.shot)
+    assert "(ball frame" in plain_reading(reading)
     assert panel.table.item(0, panel.table.columnCount() - 1).text().startswith("U ")
     dialog.close()
 

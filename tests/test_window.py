@@ -407,6 +407,10 @@ def test_the_key_list_names_every_key_and_quit_has_one(main_window):
     for action in window.actions():
         for key in action.shortcuts():
             assert key.toString(QKeySequence.SequenceFormat.NativeText) in html
+    # undo names the key's job, not the step it would take now
+    window.act_undo.setText("Undo Nudge upper mark to -9.6°")  # as the undo stack sets it
+    assert "to -9.6°" not in window.shortcut_table_html()
+    assert "Undo the last edit" in window.shortcut_table_html()
 
 
 def test_closing_during_processing_stops_the_worker(main_window, make_session, qtbot):

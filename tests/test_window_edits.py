@@ -91,3 +91,33 @@ def test_an_unusable_shot_says_so_over_its_picture(main_window, make_session, qt
     _key(qtbot, window, Qt.Key.Key_R)  # back to review: the note goes
     assert window.model.record("s01").pick.status == "to review"
     assert not window.canvas.message.isVisibleTo(window)
+
+
+def test_the_unusable_question_has_no_reason_chosen_beforehand(main_window, make_session,
+                                                               qtbot):
+    from conftest import answer_dialog
+    from test_window import reactivate
+
+    path = make_session(2)
+    window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(False)
+    window.shot_list.view.setFocus()
+    shown = {}
+    answer_dialog(lambda d: (shown.update(text=d.textValue()), d.accept()))  # Enter at once
+    _key(qtbot, window, Qt.Key.Key_U)
+    reactivate(qtbot, window)
+    assert shown["text"] == ""
+    assert window.model.record("s01").pick.status == "to review"
+    assert "No reason given" in window.statusBar().currentMessage()
+
+
+def test_escape_in_the_filter_gives_the_keys_back_to_the_list(main_window, make_session, qtbot):
+    from PySide6.QtWidgets import QApplication
+
+    window = _open(main_window, qtbot, make_session(2), show=True)
+    field = window.shot_list.text_filter
+    field.setFocus()
+    qtbot.keyClicks(field, "s0")
+    qtbot.keyClick(field, Qt.Key.Key_Escape)
+    assert QApplication.focusWidget() is window.shot_list.view
+    assert field.text() == "s0"  # the filter stays

@@ -24,7 +24,7 @@ os.environ.setdefault("PYQTGRAPH_QT_LIB", "PySide6")
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtCore import QRectF, QSize, Qt, QTimer, Signal
+from PySide6.QtCore import QEvent, QRectF, QSize, Qt, QTimer, Signal
 from PySide6.QtGui import QColor, QImage, QPainter, QTextDocument
 from PySide6.QtWidgets import (
     QApplication,
@@ -56,7 +56,7 @@ from app.qt.canvas_items import (
     pen,
 )
 from app.qt.canvas_pane import ShotPane, field_steps
-from app.qt.canvas_pictures import picture_levels, point_text, vorticity_unit
+from app.qt.canvas_pictures import picture_levels, point_text, reading_text, vorticity_unit
 from app.qt.flow_layout import FlowLayout
 from app.qt.workers import later
 from app.review import colours
@@ -71,9 +71,10 @@ FLICKER_MS = 350
 HOVER_HINT = "Point for flow values; drag a mark along the outline."
 #: A reading of the cursor as long as they come (``describe_point``): the readout is made tall
 #: enough for it at the width it has.
-HOVER_LONGEST = ("x  1044.1 y   776.1 px  (219.88, 163.45 mm)  x/D +2.01 y/D -0.72  upper  +75.1°"
-                 "  u  -38.843  v   +1.116  |V|  38.859 m/s (lab frame, v up)  ω    +13.12 1/s"
-                 "  (fine field)")
+HOVER_LONGEST = reading_text(
+    ["x  1044.1 y   776.1 px", "(219.88, 163.45 mm)", "x/D +2.01 y/D -0.72  upper  +75.1°"],
+    ["u  -38.843  v   +1.116  |V|  38.859 m/s (lab frame, v up)", "ω    +13.12 1/s",
+     "(fine field)"])
 LEGEND_MIN_WIDTH = 260  # px: the layer legend wraps rather than widening the window
 HINT_MIN_WIDTH = 320  # px: narrower, the hint's line goes above the legend instead of beside it
 # the picture's mouse work, for the F1 key list
@@ -229,6 +230,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self.hover_label.setWordWrap(True)
         self.hover_label.setSizePolicy(QSizePolicy.Policy.Ignored, QSizePolicy.Policy.Fixed)
         self.hover_label.setFixedHeight(2 * self.hover_label.fontMetrics().lineSpacing() + 6)
+        self.hover_label.installEventFilter(self)  # its width settles after the canvas's
         box = QVBoxLayout(self)
         box.setContentsMargins(0, 0, 0, 0)
         box.setSpacing(2)
@@ -366,15 +368,23 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
             self._bottom_row.setDirection(direction)
         self._hover_fit.start()
 
+    def eventFilter(self, watched, event) -> bool:
+        if (watched is self.hover_label and event.type() == QEvent.Type.Resize
+                and event.size().width() != event.oldSize().width()):
+            self._hover_fit.start()
+        return super().eventFilter(watched, event)
+
     def _fit_hover_height(self) -> None:
-        """The cursor readout as tall as the longest reading needs at its width (2-4 lines)."""
+        """The cursor readout as tall as the longest reading needs at its width (asked of the
+        label itself: its style sheet's font and padding are what it draws with), from two
+        lines to five."""
         label = self.hover_label
-        metrics = label.fontMetrics()
-        room = label.contentsRect().adjusted(6, 2, -6, -2)  # the style sheet's padding
-        lines = math.ceil(metrics.boundingRect(0, 0, max(room.width(), 1), 10_000,
-                                               int(Qt.TextFlag.TextWordWrap),
-                                               HOVER_LONGEST).height() / metrics.lineSpacing())
-        height = min(max(lines, 2), 4) * metrics.lineSpacing() + 6
+        shown = label.text()
+        label.setText(HOVER_LONGEST)
+        need = label.heightForWidth(max(label.width(), 1))
+        label.setText(shown)
+        spacing = label.fontMetrics().lineSpacing()
+        height = min(max(need, 2 * spacing + 6), 5 * spacing + 8)
         if label.height() != height:
             label.setFixedHeight(height)
 

@@ -122,8 +122,21 @@ def point_text(result, x_px: float, y_px: float, ball_frame: bool = False,
     if scale:
         parts.append(f"({x_px * scale:6.2f}, {y_px * scale:6.2f} mm)")
     parts.extend(ball_position(result, x_px, y_px))
-    parts.extend(field_values(result, x_px, y_px, ball_frame, fine))
-    return "  ".join(parts)
+    return reading_text(parts, field_values(result, x_px, y_px, ball_frame, fine))
+
+
+def reading_text(where: list[str], flow: list[str]) -> str:
+    """The cursor's readings: where on one line, the flow on the next; a narrow label wraps
+    between readings, never inside one (their own spaces do not break)."""
+    def unbroken(part: str) -> str:  # no break at its spaces, nor after its slashes ("x/D")
+        return part.replace(" ", "\u00a0").replace("/", "/\u2060")
+
+    return "\n".join("  ".join(unbroken(part) for part in line) for line in (where, flow) if line)
+
+
+def plain_reading(text: str) -> str:
+    """:func:`reading_text` with plain spaces and without its joiners (to read or compare)."""
+    return text.replace("\u00a0", " ").replace("\u2060", "")
 
 
 def ball_position(result, x_px: float, y_px: float) -> list[str]:

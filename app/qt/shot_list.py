@@ -21,7 +21,7 @@ from PySide6.QtCore import (
     Qt,
     Signal,
 )
-from PySide6.QtGui import QAction, QBrush, QColor, QFont
+from PySide6.QtGui import QAction, QBrush, QColor, QFont, QKeySequence, QShortcut
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QComboBox,
@@ -295,6 +295,10 @@ class ShotListPanel(QWidget):
         self.status_filter.currentTextChanged.connect(self._on_status_filter)
         self.text_filter.textChanged.connect(self._on_text_filter)
         self.text_filter.returnPressed.connect(self.view.setFocus)
+        # Escape gives the keys back to the list too (the filter stays), as it does in the notes
+        escape = QShortcut(QKeySequence(Qt.Key.Key_Escape), self.text_filter,
+                           context=Qt.ShortcutContext.WidgetShortcut)
+        escape.activated.connect(self.view.setFocus)
         self.view.selectionModel().currentRowChanged.connect(self._on_current_row)
         self.view.selectionModel().selectionChanged.connect(self._update_count)
         session_model.current_changed.connect(self._on_current_changed)

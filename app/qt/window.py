@@ -438,7 +438,10 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
             keys = ", ".join(key.toString(QKeySequence.SequenceFormat.NativeText)
                              for key in action.shortcuts())
             if keys and action.text():
-                rows.append((keys, action.text().replace("&", "").rstrip("…")))
+                # undo and redo name the step they would take: the list names the key's job
+                text = {self.act_undo: "Undo the last edit",
+                        self.act_redo: "Redo the edit undone"}.get(action, action.text())
+                rows.append((keys, text.replace("&", "").rstrip("…")))
         return [*rows, *NOTE_KEYS, *MOUSE_KEYS]
 
     def shortcut_table_html(self) -> str:

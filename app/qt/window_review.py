@@ -258,10 +258,13 @@ class ReviewActions:
                             + "\nChoose a reason or type your own:")
         dialog.setComboBoxItems([*reasons, OTHER_REASON])
         dialog.setComboBoxEditable(True)
-        dialog.setTextValue(previous or reasons[0])
+        # no reason chosen for the analyst: Enter alone must not record the first of the list
+        dialog.setTextValue(previous)
         if not dialog.exec():
             return ""
         reason = dialog.textValue().strip()
+        if not reason:
+            self.statusBar().showMessage("No reason given: nothing was marked unusable.", 6000)
         if reason == OTHER_REASON:
             reason, ok = QInputDialog.getText(self, dialog.windowTitle(), "The reason:")
             reason = reason.strip() if ok else ""
