@@ -78,3 +78,47 @@ def test_velocity_and_ball_frame():
     assert u[0] == pytest.approx(40.0) and v[0] == pytest.approx(-10.0)
     bx, by = ball_frame(np.array([8.0]), np.array([1.0]), (8.0, 0.0))
     assert bx[0] == 0.0 and by[0] == 1.0
+
+
+def _grid_field(dx, dy, valid=None, step=8.0, n=41):
+    """A vector field on an n x n grid ``step`` px apart about (160, 160)."""
+    from core.results import VectorField
+
+    y, x = np.mgrid[0:n, 0:n].astype(float) * step
+    shape = x.shape
+    ok = np.ones(shape, bool) if valid is None else valid
+    return VectorField(x, y, np.broadcast_to(dx, shape).astype(float),
+                       np.broadcast_to(dy, shape).astype(float), ok, np.zeros(shape, bool),
+                       np.zeros(shape, bool), np.ones(shape))
+
+
+def test_valid_vectors_near_the_ball_are_counted_outside_its_outline_within_the_reach():
+    # counted by hand: the ring 20 < r <= 28 px about a grid node holds, in steps of 8 px, the
+    # nodes at (+-3, 0) and (0, +-3) (r 24), (+-2, +-2) (r 22.6) and (+-3, +-1), (+-1, +-3)
+    # (r 25.3): 16, less one made invalid
+    from core.fields import valid_near_ball
+    from core.results import BallFit
+
+    valid = np.ones((41, 41), bool)
+    valid[20, 23] = False  # (184, 160): r = 24
+    vf = _grid_field(1.0, 0.0, valid)
+    assert valid_near_ball(vf, BallFit((160.0, 160.0), 20.0), 8.0) == 15
+
+
+@pytest.mark.parametrize("flight_deg", [0.0, 30.0, 200.0])
+def test_the_air_near_the_ball_moves_along_its_flight(flight_deg):
+    # lab frame: the air the ball drags moves with it (flight convention: 90 deg toward the
+    # top, image y down, derived); a uniform drift at 5 px along the flight gives the flight
+    # itself with only the floor of the uncertainty left
+    from core.ball.flight import AIR_DIRECTION_FLOOR_DEG, air_direction
+    from core.results import BallFit
+
+    a = math.radians(flight_deg)
+    vf = _grid_field(5.0 * math.cos(a), -5.0 * math.sin(a))
+    found = air_direction(vf, BallFit((160.0, 160.0), 30.0), ball_shift_px=9.0)
+    assert found is not None
+    direction, sigma = found
+    assert (direction - flight_deg + 180.0) % 360.0 - 180.0 == pytest.approx(0.0, abs=1e-9)
+    assert sigma == pytest.approx(AIR_DIRECTION_FLOOR_DEG)
+    # air slower than a third of the ball's shift does not count: nothing to go by
+    assert air_direction(vf, BallFit((160.0, 160.0), 30.0), ball_shift_px=16.0) is None

@@ -59,3 +59,29 @@ def test_sides_are_opposite():
     assert (ux + lx, uy + ly) == pytest.approx((0.0, 0.0))
     with pytest.raises(ValueError):
         side_normal(0.0, "left")
+
+
+def test_ball_coordinates_of_a_point_behind_and_above():
+    # flight to the right: a point one diameter behind the centre and half a diameter above it
+    # lies at x/D = +1 downstream, y/D = +0.5 on the upper side, at atan2(2, 1) = 63.43 deg
+    # rearward of the normal plane (derived)
+    from core.geometry import ball_coordinates
+
+    along, across, side, angle = ball_coordinates((100.0, 80.0), 20.0, 0.0, (60.0, 60.0))
+    assert (along, across, side) == (pytest.approx(1.0), pytest.approx(0.5), "upper")
+    assert angle == pytest.approx(math.degrees(math.atan2(2.0, 1.0)))
+    # flying left, the same point is ahead of the ball: upstream, still above
+    along, across, side, angle = ball_coordinates((100.0, 80.0), 20.0, 180.0, (60.0, 60.0))
+    assert (along, across, side) == (pytest.approx(-1.0), pytest.approx(0.5), "upper")
+    assert angle == pytest.approx(-math.degrees(math.atan2(2.0, 1.0)))
+
+
+def test_the_ball_at_mid_exposure_is_the_mean_of_its_two_circles():
+    from core.geometry import mid_circle
+    from core.results import BallFit
+
+    a, b = BallFit((100.0, 50.0), 30.0), BallFit((90.0, 54.0), 31.0)
+    assert mid_circle(a, b) == ((95.0, 52.0), 30.5)
+    assert mid_circle(a) == ((100.0, 50.0), 30.0)
+    assert mid_circle(a, BallFit((0.0, 0.0), float("nan"))) == ((100.0, 50.0), 30.0)
+    assert mid_circle(None, b) is None
