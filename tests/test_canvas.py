@@ -312,3 +312,15 @@ def test_small_vorticity_limits_keep_their_digits(canvas):
     assert canvas.limit_box.decimals() >= 3
     canvas._set_limit(2000.0)
     assert canvas.limit_box.value() == 2000.0 and canvas.limit_box.decimals() == 0
+
+
+def test_the_legend_shows_the_vectors_in_the_colour_they_are_drawn(canvas):
+    from app.qt.canvas_items import VECTOR_ON_FIELD, VECTOR_ON_PICTURE
+
+    canvas.vorticity_box.setChecked(True)
+    canvas.vectors_box.setChecked(True)
+    canvas.picture_box.setCurrentText("frame A")  # the field drawn over the frame: light
+    assert f"color:{VECTOR_ON_PICTURE}" in canvas.legend.text()
+    canvas.picture_box.setCurrentText("no picture")  # on the vorticity map alone: dark
+    assert f"color:{VECTOR_ON_FIELD}" in canvas.legend.text()
+    assert f"color:{VECTOR_ON_FIELD}" in canvas.legend_text()

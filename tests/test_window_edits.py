@@ -121,3 +121,15 @@ def test_escape_in_the_filter_gives_the_keys_back_to_the_list(main_window, make_
     qtbot.keyClick(field, Qt.Key.Key_Escape)
     assert QApplication.focusWidget() is window.shot_list.view
     assert field.text() == "s0"  # the filter stays
+
+
+def test_stepping_past_the_end_of_the_list_says_so(main_window, make_session, qtbot):
+    window = _open(main_window, qtbot, make_session(2), show=True)
+    window.model.set_current("s02")
+    window.act_next.trigger()
+    assert window.model.current_id == "s02"
+    assert window.statusBar().currentMessage() == "Last shot of the list."
+    window.act_prev.trigger()
+    assert window.model.current_id == "s01"
+    window.act_prev.trigger()
+    assert window.statusBar().currentMessage() == "First shot of the list."

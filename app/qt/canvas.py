@@ -143,6 +143,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self._angles = {"upper": None, "lower": None}
         self._levels = {}  # shot id -> picture levels
         self._flicker_b = False
+        self._vector_colour = VECTOR_ON_PICTURE
         self._building = False
         self._placing = False
         self._vorticity_unit = "1/s"
@@ -423,10 +424,13 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
                 result if self.vorticity_box.isChecked() else None, limit, see_through, fine)
             any_vorticity = any_vorticity or drawn
             on_field = drawn and not see_through
+            vector_colour = VECTOR_ON_FIELD if on_field else VECTOR_ON_PICTURE
             showing.pane.show_vectors(result if self.vectors_box.isChecked() else None,
-                                      self.stride_box.value(),
-                                      VECTOR_ON_FIELD if on_field else VECTOR_ON_PICTURE,
+                                      self.stride_box.value(), vector_colour,
                                       self.ball_frame(), fine, self._arrow_gap())
+            if showing.pane is self.main and vector_colour != self._vector_colour:
+                self._vector_colour = vector_colour  # the legend's swatch as the vectors are
+                self.legend.setText(legend_html(vector_colour))
             if drawn:
                 self._show_unit(vorticity_unit(result))
         self._drawn_steps = self._vector_steps()
@@ -599,7 +603,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         if self.vorticity_box.isChecked() and self.colour_bar.isVisible():
             limit = self.limit_box.value()
             words.append(f"ω ±{limit:g} {self._vorticity_unit}")
-        return "&nbsp;&nbsp;·&nbsp;&nbsp;".join([*words, legend_html()])
+        return "&nbsp;&nbsp;·&nbsp;&nbsp;".join([*words, legend_html(self._vector_colour)])
 
     def render_picture(self, device, width: int, height: int) -> None:
         """Paint the canvas's picture laid out at ``width`` x ``height`` px onto ``device`` (a
@@ -643,15 +647,16 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         return image
 
 
-def legend_html() -> str:
-    """One line naming the marks whose meaning is not obvious from the picture."""
+def legend_html(vector_colour: str = VECTOR_ON_PICTURE) -> str:
+    """One line naming the marks whose meaning is not obvious from the picture (the vectors in
+    the colour they are drawn in: light on frames, dark on the vorticity map)."""
     def swatch(colour: str, glyph: str = "■") -> str:
         return f"<span style='color:{colour}'>{glyph}</span>"
 
     layer = QColor(colours.UPPER_SIDE).lighter(175).name()
     wedge = QColor(colours.UPPER_SIDE).lighter(150).name()
     # each swatch kept with its word when the line wraps
-    return (f"{swatch(VECTOR_ON_PICTURE)}&nbsp;vector &nbsp;{swatch(REPLACED_VECTOR)}&nbsp;"
+    return (f"{swatch(vector_colour)}&nbsp;vector &nbsp;{swatch(REPLACED_VECTOR)}&nbsp;"
             f"replaced &nbsp;{swatch(MASKED_MARK)}&nbsp;masked &nbsp;"
             f"{swatch(colours.PROPOSAL_MARK, '◆')}&nbsp;proposal &nbsp;{swatch(wedge)}&nbsp;"
             f"±&nbsp;95&nbsp;% &nbsp;{swatch(layer, '—')}&nbsp;layer "

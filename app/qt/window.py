@@ -220,9 +220,9 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
             self.nudge_actions.append(
                 a(text, lambda _=False, s=side, d=step: self.nudge(s, d), shortcut)
             )
-        self.act_next = a("&Next shot", lambda: self.shot_list.step(1), "N",
+        self.act_next = a("&Next shot", lambda: self.step_shot(1), "N",
                           "next shot in the list (also Down in the list)")
-        self.act_prev = a("&Previous shot", lambda: self.shot_list.step(-1), "P",
+        self.act_prev = a("&Previous shot", lambda: self.step_shot(-1), "P",
                           "previous shot in the list (also Up in the list)")
         self.act_next_open = a("Next shot &to review", self.next_to_review, "Shift+N")
         self.act_advance = a("&Go on to the next shot to review after a decision",

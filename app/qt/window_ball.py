@@ -55,6 +55,8 @@ class BallActions:
             self.statusBar().showMessage(
                 "Drag the ball's circle to move it, its handle to resize it; F shows the other "
                 "frame's circle. Ctrl+B again ends.", 8000)
+        else:
+            self.statusBar().clearMessage()  # its how-to no longer applies
 
     def _on_circle_moved(self, frame: str, cx: float, cy: float, r: float) -> None:
         result = self.model.result(self.model.current_id) if self._ball_editable() else None

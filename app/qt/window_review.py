@@ -323,6 +323,14 @@ class ReviewActions:
                                    f"Edit note of shot {shot_id}")):
             self.readout.keep_unsaved_note(shot_id, text)  # not wiped: to try again
 
+    def step_shot(self, offset: int) -> None:
+        """The next (or previous) shot in the list; at its end the window says so."""
+        before = self.model.current_id
+        self.shot_list.step(offset)
+        if before and self.model.current_id == before:
+            self.statusBar().showMessage(
+                "Last shot of the list." if offset > 0 else "First shot of the list.", 4000)
+
     def next_to_review(self) -> None:
         """The next shot still to review (measured, undecided) after the current one."""
         self._advance(self.shot_list.visible_ids(), self.model.current_id, set())
