@@ -432,7 +432,7 @@ def number_rows(record, with_metadata: bool = False, checks=()) -> list[NumberRo
         rows.append(NumberRow("shot", metadata_line(record).replace("   ", ", ") or MISSING))
     rows.append(NumberRow("vectors",
                           MISSING if summary is None else vectors_text(summary.vectors)))
-    rows.append(NumberRow("timing", timing_text(record)))
+    rows.append(NumberRow("dt and scale", timing_text(record)))
     if md.get("notes"):
         rows.append(NumberRow("shot notes", str(md["notes"])))
     if checks:
