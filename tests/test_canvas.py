@@ -216,15 +216,18 @@ def test_side_by_side_shows_the_fields_in_a_linked_view(canvas, qtbot):
 
 
 def test_leaving_side_by_side_brings_the_single_view_back(canvas, qtbot):
-    """The half-width view of side by side is zoomed out; leaving it shows the shot as before."""
+    """Side by side fits the shot to each half (the single view's range would leave it small
+    between wide margins); leaving it shows the shot as before."""
     with qtbot.waitExposed(canvas):
         canvas.show()
     qtbot.wait(20)
     single = canvas.view.viewRange()
     canvas.side_box.setChecked(True)
     qtbot.wait(20)
-    wide = canvas.view.viewRange()
-    assert wide[1][1] - wide[1][0] > 1.2 * (single[1][1] - single[1][0])
+    halves = canvas.view.viewRange()
+    width = canvas.shot.frame_a.shape[1]
+    assert halves[0][1] - halves[0][0] <= 1.1 * width  # the frame across the half's width
+    assert abs((halves[1][1] - halves[1][0]) - (single[1][1] - single[1][0])) > 1.0
     canvas.side_box.setChecked(False)
     qtbot.wait(20)
     for back, before in zip(canvas.view.viewRange(), single):

@@ -161,6 +161,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         # once the bottom row has given the cursor readout its width; a timer the canvas owns
         # (a single-shot call would keep the canvas alive if the window closed first)
         self._hover_fit = later(self, self._fit_hover_height)
+        self._fit_halves_later = later(self, lambda: self.view.autoRange(padding=0.02))
         self._hover_proxy = pg.SignalProxy(
             self.graphics.scene().sigMouseMoved, rateLimit=60, slot=self._on_mouse_moved
         )

@@ -219,6 +219,10 @@ class LayerControls:
             self.graphics.addItem(self.second.title, row=0, col=1)
             self.graphics.addItem(self.field_view, row=1, col=1)
             self.graphics.addItem(self.colour_bar, row=1, col=2)
+            # the single view's range, kept, was shaped for a view twice as wide: each half
+            # would show the shot small between wide margins; fitted once the halves have
+            # their sizes (the range comes back on leaving)
+            self._fit_halves_later.start()
         elif not checked and in_layout:
             for item in (self.field_view, self.main.title, self.second.title):
                 self.graphics.removeItem(item)
