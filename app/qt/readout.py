@@ -166,13 +166,12 @@ class ReadoutPanel(QWidget):
         outer.addWidget(scroll, 1)
         # the decision and the note stay in sight below the scrolled readout, however low the
         # window
-        review = self._review_group()
-        outer.addWidget(review)
+        outer.addWidget(self._review_group())
         self.setMinimumWidth(280)
 
     def _separation_group(self) -> QGroupBox:
-        # the convention in the title, the rest on hovering: a low window keeps its room for
-        # the angles and the review buttons
+        # the convention in the header row, the rest on hovering: a low window keeps its room
+        # for the angles and the review buttons
         group = QGroupBox("Separation angle")
         group.setToolTip("degrees from the plane through the ball centre normal to the flight; "
                          "positive = rearward (downstream); from the front stagnation point "
