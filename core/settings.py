@@ -20,6 +20,23 @@ DEFORM_MIN_CHANGE_PX = 0.1
 #: Interrogation windows a pass may ask for (px): 8 is about the least that holds enough
 #: particle images; 4096 is far beyond any frame's use and keeps a typo from being kept.
 MIN_WINDOW_PX, MAX_WINDOW_PX = 8, 4096
+#: Times between the two frames (s) a shot may have: double-pulse lasers fire their pulses from
+#: about 0.1 us to some ms apart, and a ball at 10-50 m/s is shot with tens to hundreds of us
+#: (common practice). Outside, the number is a slip of units (us typed as s), not a shot.
+DT_RANGE_S = (1e-7, 1e-2)
+
+
+def dt_problem(dt_s: float) -> str:
+    """What is wrong with a time between frames (s): "" when nothing, else the words that say
+    so (for the manifest's rows and the settings alike)."""
+    low, high = DT_RANGE_S
+    if low <= dt_s <= high:
+        return ""
+    hint = ""
+    if dt_s > high:
+        hint = f"; in microseconds? {dt_s:g} us is {dt_s * 1e-6:g} s"
+    return (f"{dt_s:g} s is outside {low:g} to {high:g} s, the time between a double-pulse "
+            f"laser's two pulses{hint}")
 
 
 @dataclass(frozen=True)

@@ -24,7 +24,7 @@ from core.results import (
     dataclass_dict,
     finite_or_none,
 )
-from core.settings import PivPass, PivSettings, is_number, shown
+from core.settings import PivPass, PivSettings, dt_problem, is_number, shown
 
 #: Passes of the finer correlation around the ball (ball frame): it gives the stream beside the
 #: layer and the wake; the layer itself is fitted to the particle images (core.separation).
@@ -141,6 +141,8 @@ def _check_setting(name: str, value) -> None:
             refuse("a finite number or null")
         if name == "air_temp_c" and (problem := temperature_problem(float(value))):
             raise WakelineError(f"settings: air_temp_c {problem}")
+        if name == "dt_s" and float(value) > 0 and (problem := dt_problem(float(value))):
+            raise WakelineError(f"settings: dt_s {problem}")
     elif name in _WORD_SETTINGS:
         if not isinstance(value, str):
             refuse("a word or null")

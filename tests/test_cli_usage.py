@@ -94,12 +94,16 @@ def test_the_help_of_settings_says_both_ways(capsys):
     (["conditions", "{s}", "--by", "nosuchcol"], "argument --by: no column 'nosuchcol'"),
     (["table", "{s}", "-o", "x.csv", "--ensemble"], "argument --ensemble: goes with --by"),
     (["pair", "a.tif", "b.tif", "--air-temp", "-300"], "-300 deg C is at or below absolute zero"),
+    # a double-pulse laser's pulse separations (common practice): 50 is microseconds typed as s
+    (["pair", "a.tif", "b.tif", "--dt", "50"],
+     ("argument --dt: 50 s is outside 1e-07 to 0.01 s, the time between a double-pulse laser's "
+     "two pulses; in microseconds? 50 us is 5e-05 s")),
     # a lab's air (common practice): 293 is kelvin typed where deg C belong
     (["pair", "a.tif", "b.tif", "--air-temp", "293"],
      "293 deg C is outside -40 to 60 deg C, the air of a lab or a range (in kelvin? give deg C)"),
     (["sheet", "{s}", "-o", "x.pdf", "--column", "operator"],
      "argument --column: 'operator' is not a numeric column of this session"),
-], ids=["scale", "diameter", "normalise", "status", "by", "ensemble", "air temperature",
+], ids=["scale", "diameter", "normalise", "status", "by", "ensemble", "air temperature", "dt",
         "kelvin", "column"])
 def test_bad_option_values_exit_2(session_path, argv, said, capsys):
     argv = [a.replace("{s}", str(session_path)) for a in argv]

@@ -109,8 +109,21 @@ def test_an_air_temperature_below_absolute_zero_is_refused_at_import(tmp_path, c
     err = capsys.readouterr().err
     assert "line 3 (shot S1): air_temp_c -400 deg C is at or below absolute zero" in err
     # and what to do about it, naming the manifest in its folder
-    assert (f"note: correct the rows named in {src / 'shots.csv'} (or the files they name) and "
-            "import the folder again: the shots imported now are left as they are") in err
+    assert (f"note: correct the rows named in {src / 'shots.csv'} (or those shots' frame files) "
+            "and import the folder again: the shots imported now are left as they are") in err
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert list(s) == ["S0"]
+
+
+def test_a_time_between_frames_in_microseconds_is_refused_at_import(tmp_path, capsys):
+    # it went in and measured speeds of micrometres a second, with no separation proposed
+    src = write_shot_folder(tmp_path / "src", 2)
+    (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diameter_mm\n"
+                                   "S0,2e-05,0.08,71.6\nS1,287.7,0.08,71.6\n")
+    assert main(["import", str(src), str(tmp_path / "s.h5")]) == 1
+    err = capsys.readouterr().err
+    assert ("line 3 (shot S1): dt_s 287.7 s is outside 1e-07 to 0.01 s, the time between a "
+            "double-pulse laser's two pulses; in microseconds? 287.7 us is 0.0002877 s") in err
     with Session.open(tmp_path / "s.h5", writable=False) as s:
         assert list(s) == ["S0"]
 

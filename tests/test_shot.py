@@ -250,3 +250,20 @@ def test_a_flight_direction_given_the_wrong_way_round_is_named_as_such():
     assert any(f"flight direction given ({wrong:g} deg)" in w for w in result.warnings)
     assert result.separation.upper.angle_deg is None
     assert "flight direction given" in result.separation.upper.reason
+
+
+def test_a_global_gain_leaves_the_measurement_as_it_was():
+    # PIV correlation is normalised and every threshold is taken relative to the frame (noise,
+    # saturation at the frame's maximum): a camera's gain, or 12-bit data shifted into 16 bits,
+    # scales the counts and nothing else (derived; a floor in absolute counts would show here)
+    frame_a, frame_b, truth = ball_shot((480, 640), radius_px=100.0, upper_deg=8.0,
+                                        lower_deg=-3.0, seed=21)
+    settings = ShotSettings(dt_s=truth.dt_s, ball_diameter_mm=truth.ball_diameter_mm)
+    base = measure_shot(frame_a, frame_b, settings)
+    for gain in (16.0, 1.0 / 8.0):
+        scaled = measure_shot(frame_a * gain, frame_b * gain, settings)
+        assert scaled.ball_a.center_px == pytest.approx(base.ball_a.center_px, abs=1e-6)
+        for side in ("upper", "lower"):
+            got, want = (getattr(r.separation, side) for r in (scaled, base))
+            assert got.angle_deg == pytest.approx(want.angle_deg, abs=0.05)
+            assert got.uncertainty_deg == pytest.approx(want.uncertainty_deg, rel=0.1)

@@ -57,6 +57,16 @@ def positive_number(text: str) -> float:
     return value
 
 
+def time_between_frames(text: str) -> float:
+    """``--dt``: seconds, within what a double-pulse laser gives (``core.settings.dt_problem``)."""
+    from core.settings import dt_problem
+
+    value = positive_number(text)
+    if problem := dt_problem(value):
+        raise argparse.ArgumentTypeError(problem)
+    return value
+
+
 def zero_or_positive(text: str) -> float:
     """A finite number of 0 or more (``--normalise``, where 0 is off)."""
     value = finite_number(text)

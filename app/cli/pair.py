@@ -13,6 +13,7 @@ from app.cli.options import (
     finite_number,
     known_ball_types,
     positive_number,
+    time_between_frames,
     zero_or_positive,
 )
 from app.review.text import shot_rows
@@ -30,7 +31,7 @@ def add_commands(subparsers) -> None:
     )
     p.add_argument("frame_a", help="frame A (TIFF or PNG), or a two-page TIFF holding both frames")
     p.add_argument("frame_b", nargs="?", help="frame B (omit when frame_a is a two-page TIFF)")
-    p.add_argument("--dt", type=positive_number, metavar="S",
+    p.add_argument("--dt", type=time_between_frames, metavar="S",
                    help="time between the frames, seconds")
     p.add_argument("--scale", type=positive_number, metavar="MM_PER_PX",
                    help="image scale, mm per pixel")

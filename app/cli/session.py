@@ -122,8 +122,8 @@ def run_import(args: argparse.Namespace) -> int:
         print(f"note: {note}", file=sys.stderr)
     bad_rows = [p for p in report.problems if p.startswith(f"{MANIFEST_NAME} line")]
     if len(bad_rows) > len(report.differing):  # the differing ones have their own remedy
-        print(f"note: correct the rows named in {args.src_dir / MANIFEST_NAME} (or the files "
-              "they name) and import the folder again: the shots imported now are left as "
+        print(f"note: correct the rows named in {args.src_dir / MANIFEST_NAME} (or those shots' "
+              "frame files) and import the folder again: the shots imported now are left as "
               "they are", file=sys.stderr)
     if report.differing:
         shots = list(report.differing)

@@ -7,6 +7,7 @@ from pathlib import Path
 
 from core import WakelineError
 from core.air import temperature_problem
+from core.settings import dt_problem
 from core.store.files import NEAR_MISS, near_miss_hint, read_csv_table
 
 REQUIRED_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm")
@@ -122,6 +123,8 @@ def _row_problem(meta: dict) -> str:
     for key in ("dt_s", "scale_mm_per_px", "ball_diameter_mm"):
         if meta.get(key) is not None and meta[key] <= 0:
             return f"{key} must be positive, got {meta[key]:g}"
+    if problem := dt_problem(meta["dt_s"]):
+        return f"dt_s {problem}"
     if meta.get("air_temp_c") is not None and (problem := temperature_problem(meta["air_temp_c"])):
         return f"air_temp_c {problem}"
     if meta.get("ball_diameter_mm") is None and not meta.get("ball_type"):
