@@ -1,6 +1,6 @@
 """wakeline core: the headless measurement of seamed-ball PIV shots (no Qt here)."""
 
-__version__ = "0.3.11"
+__version__ = "0.3.12"
 
 
 class WakelineError(Exception):

@@ -147,3 +147,25 @@ def test_the_table_and_the_sheet_say_which_shots_need_processing_again(tmp_path)
     cover = " ".join(PdfReader(str(tmp_path / "s.pdf")).pages[0].extract_text().split())
     assert ("2 processed (1 with other settings than the session's now or by an older "
             "wakeline: process again), 1 unprocessed") in cover
+
+
+def test_warnings_and_checks_are_in_the_last_column(tmp_path):
+    """What the window's readout and the sheet show beside a shot's numbers reaches the table:
+    the measurement's warnings and the checks of its ball and flight against the manifest."""
+    src = write_shot_folder(tmp_path / "src", 2)
+    (src / "shots.csv").write_text(
+        "shot,dt_s,scale_mm_per_px,ball_diameter_mm,speed_nominal_m_s\n"
+        "S0,2e-05,0.08,71.6,30\nS1,2e-05,0.08,71.6,50\n", encoding="utf-8")
+    import_folder(src, tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        for shot_id in ("S0", "S1"):
+            result = fake_result(s.settings_for(shot_id))  # flies at 30 m/s
+            if shot_id == "S0":
+                result.warnings = ["frames look swapped (the ball moves against the air)"]
+            s.save_result(shot_id, result)
+        header, rows = session_table_rows(s)
+    assert header[-1] == "warnings" and header[-2] == "needs_processing"
+    cells = {row[0]: row[-1] for row in rows}
+    assert cells["S0"] == "frames look swapped (the ball moves against the air)"
+    # 30 m/s measured against 50 nominal (core.plausibility's speed check)
+    assert "nominal" in cells["S1"] and "frames look swapped" not in cells["S1"]

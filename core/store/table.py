@@ -8,6 +8,7 @@ import math
 from pathlib import Path
 
 from core.geometry import SIDES
+from core.plausibility import flight_checks, usual_direction
 from core.store.companions import refuse_session_output
 from core.store.files import atomic_write
 from core.store.manifest import NUMBER_COLUMNS, TEXT_COLUMNS
@@ -31,10 +32,23 @@ def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
                    - set(NUMBER_COLUMNS) - set(TEXT_COLUMNS) - {"shot"})
     meta_cols = list(NUMBER_COLUMNS) + list(TEXT_COLUMNS) + extra
     header = ["shot", *meta_cols, *_RESULT_COLUMNS]
+    usual = usual_direction([r.summary.flight.direction_deg for r in records
+                             if r.summary is not None and r.summary.flight is not None])
     rows = [[r.shot_id, *(cell_text(r.metadata.get(c)) for c in meta_cols), *_result_cells(r),
-             "yes" if session.needs_processing(r.shot_id) else "no"]
+             "yes" if session.needs_processing(r.shot_id) else "no",
+             cell_text(_warnings(r, usual))]
             for r in records]
     return header, rows
+
+
+def _warnings(r: ShotRecord, usual_direction_deg: float | None) -> str | None:
+    """What the measurement warned of and where the ball and flight disagree with what else is
+    known (``core.plausibility``: the window's and the sheet's checks), each once, ``; ``
+    between them."""
+    if r.summary is None:
+        return None
+    lines = [*r.summary.warnings, *flight_checks(r.summary, r.metadata, usual_direction_deg)]
+    return "; ".join(dict.fromkeys(lines)) or None
 
 
 _RESULT_COLUMNS = (
@@ -45,7 +59,7 @@ _RESULT_COLUMNS = (
     "wake_deflection_uncertainty_deg", "wake_state",
     "review_status", "unusable_reason", "review_note", "reviewed_by", "reviewed_utc",
     "processed_utc", "software_version", "note_by", "note_utc", "proposal_notes",
-    "needs_processing",
+    "needs_processing", "warnings",
 )
 ANGLE_DECIMALS = 2
 
