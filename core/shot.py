@@ -61,6 +61,7 @@ def measure_shot(
     """
     from core.piv import correlate_pair
 
+    frame_a, frame_b = exposure_order(frame_a, frame_b, settings)
     clock = _StageClock()
     glare = _glare(frame_a, frame_b, settings)
     balls = _balls(frame_a, frame_b, settings) if _wants_ball(settings) else None
@@ -70,6 +71,12 @@ def measure_shot(
     vf = correlate_pair(cond_a, cond_b, masks[0], masks[1], settings.piv, progress)
     clock.lap("piv")  # with the conditioning
     return _after_piv(vf, (frame_a, frame_b), (cond_a, cond_b), balls, glare, settings, clock)
+
+
+def exposure_order(frame_a: np.ndarray, frame_b: np.ndarray, settings: ShotSettings):
+    """The frames in the order they were exposed: the files' own, or the other way round where
+    the manifest says ``frames_swapped`` (a camera that wrote the later exposure first)."""
+    return (frame_b, frame_a) if settings.frames_swapped else (frame_a, frame_b)
 
 
 def remeasure_ball(
@@ -103,6 +110,7 @@ def remeasure_ball(
     """
     if not _wants_ball(settings) or not settings.measured_alike(stored.settings):
         return measure_shot(frame_a, frame_b, settings, background=background)
+    frame_a, frame_b = exposure_order(frame_a, frame_b, settings)
     clock = _StageClock()
     glare = _glare(frame_a, frame_b, settings)
     balls = _balls(frame_a, frame_b, settings)
@@ -262,15 +270,20 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
             warnings.append(
                 f"the flight direction given ({settings.flight_deg:g} deg) looks the wrong way "
                 "round: the air ahead of the ball (as given) moves with it and the air behind "
-                "does not; check the flight direction, or swap frame A and frame B (no "
-                "separation proposed)"
+                "does not; check the flight direction, or the shot's frames_swapped in "
+                "shots.csv (no separation proposed)"
             )
             reason = (f"the flight direction given ({settings.flight_deg:g} deg) looks the "
                       "wrong way round, or the frames are swapped (see warnings)")
         else:
             warnings.append(
                 "frames look swapped: the air ahead of the ball moves with it and the air "
-                "behind does not; swap frame A and frame B (no separation proposed)"
+                "behind does not; if the camera wrote them so, say frames_swapped yes for the "
+                "shot in shots.csv and import again with --correct-values (no separation "
+                "proposed)" if not settings.frames_swapped else
+                "frames look swapped, though frames_swapped says they were: the air ahead of "
+                "the ball moves with it and the air behind does not; check the shot's "
+                "frames_swapped in shots.csv (no separation proposed)"
             )
             reason = "frames look swapped (see warnings)"
         result.separation = SeparationResult(

@@ -47,6 +47,8 @@ class ShotSettings:
     circle_a_px: tuple[float, float, float] | None = None
     circle_b_px: tuple[float, float, float] | None = None
     air_temp_c: float | None = None  # for the air's viscosity (Reynolds number); None: 20 deg C
+    # the camera wrote the later exposure as frame A: the frames are taken the other way round
+    frames_swapped: bool = False
     # image conditioning before correlation (core.conditioning)
     mask_glare: bool = True  # saturated regions larger than a particle image left out
     # min-max normalisation window in mean particle spacings (None: off; skipped on sparse
@@ -94,11 +96,13 @@ class ShotSettings:
         """Stable text of the settings: a shot is reprocessed when this changes.
 
         The PIV thread count is left out: it changes how fast, not what is measured; so are
-        circles the analyst did not set (shots processed before they could be set keep their
-        fingerprint).
+        circles the analyst did not set and frames not swapped (shots processed before they
+        could be set keep their fingerprint).
         """
         data = self.to_dict()
         data["piv"].pop("workers", None)
+        if not data.get("frames_swapped"):  # shots measured before it could be set keep theirs
+            data.pop("frames_swapped", None)
         for name in CIRCLE_SETTINGS:
             if data.get(name) is None:
                 data.pop(name, None)
@@ -123,7 +127,7 @@ CIRCLE_SETTINGS = ("circle_a_px", "circle_b_px")
 _NUMBER_SETTINGS = ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "flight_deg", "air_temp_c",
                     "normalise_spacings")
 _WORD_SETTINGS = ("ball_type", "background")
-_SWITCH_SETTINGS = ("find_ball", "mask_glare")
+_SWITCH_SETTINGS = ("find_ball", "mask_glare", "frames_swapped")
 
 
 def _check_setting(name: str, value) -> None:

@@ -343,3 +343,29 @@ def test_a_manifest_with_another_separator_says_so(tmp_path, separator):
                                    + separator.join(["S0", "2e-05", "0.08", "71.6", "0", ""]))
     with pytest.raises(WakelineError, match=r"separated by .*; shots\.csv must be comma-separated"):
         import_folder(src, tmp_path / "s.h5")
+
+
+def test_frames_the_camera_wrote_the_other_way_round_are_said_so_in_the_manifest(tmp_path):
+    # a shot found swapped after import: frames_swapped yes, imported again as a correction,
+    # is measured again with its files the other way round (the shot keeps its id and frames)
+    src = write_shot_folder(tmp_path / "src", 2)
+    manifest = src / "shots.csv"
+    lines = manifest.read_text().splitlines()
+    session_path = tmp_path / "s.h5"
+    import_folder(src, session_path)
+    with Session.open(session_path) as s:
+        before = s.settings_for("S1").fingerprint()
+        s.save_result("S1", fake_result(s.settings_for("S1")))
+        assert not s.needs_processing("S1") and "frames_swapped" not in before
+    manifest.write_text("\n".join([lines[0] + ",frames_swapped", lines[1] + ",",
+                                   lines[2] + ",Yes"]) + "\n")
+    report = import_folder(src, session_path, correct_values=True)
+    assert report.corrected == ["S1"] and report.outdated == ["S1"]
+    with Session.open(session_path) as s:
+        assert s["S1"].metadata["frames_swapped"] == "yes"
+        assert s.settings_for("S1").frames_swapped and not s.settings_for("S0").frames_swapped
+        assert s.needs_processing("S1")
+    manifest.write_text(manifest.read_text().replace(",Yes", ",maybe"))
+    report = import_folder(src, tmp_path / "t.h5")
+    assert report.imported == ["S0"]
+    assert any("frames_swapped 'maybe' is not yes or no" in p for p in report.problems)

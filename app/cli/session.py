@@ -53,7 +53,8 @@ def _add_import(subparsers) -> None:
                    help="a shot already in the session with the same frames but other values "
                    "in shots.csv (a wrong dt_s or scale) takes the new values; its picks stay, "
                    "and when the values change how it is measured (dt_s, scale, ball, "
-                   "flight_deg, air_temp_c) the next 'wakeline process' measures it again")
+                   "flight_deg, air_temp_c, frames_swapped) the next 'wakeline process' measures it "
+                   "again")
     p.set_defaults(func=run_import)
 
 

@@ -154,7 +154,7 @@ class _Folder:
             if not _same_frames(record, paths):
                 return (f"already in {self.session.path.name} with other frames; give it "
                         "another id")
-            if record.metadata == meta:
+            if _given(record.metadata) == _given(meta):  # a column added empty changes nothing
                 return SAME
             if correct_values:
                 outdated, camera_moved = _take_values(self.session, shot_id, meta)
@@ -251,6 +251,11 @@ def _same_frames(record, paths: list[Path]) -> bool:
     sums = [frames.get("sha256_a"), frames.get("sha256_b")]
     return len(paths) == 2 - (sums[1] is None) and all(
         sha256_of(path) == digest for path, digest in zip(paths, sums))
+
+
+def _given(metadata: dict) -> dict:
+    """The values a row gives: empty cells left out."""
+    return {k: v for k, v in metadata.items() if v is not None and v != ""}
 
 
 def _differences(stored: dict, given: dict, shown: int = 3) -> str:

@@ -16,8 +16,14 @@ NUMBER_COLUMNS = (
     "spin_axis_deg", "seam_deg", "flight_deg", "air_temp_c",
 )
 TEXT_COLUMNS = ("ball_type", "notes")
+#: Yes-or-no columns, kept as "yes" or "no": ``frames_swapped`` says the camera wrote the later
+#: exposure as frame A (the measurement then takes the files the other way round).
+FLAG_COLUMNS = ("frames_swapped",)
+_FLAG_WORDS = {"yes": "yes", "y": "yes", "true": "yes", "1": "yes",
+               "no": "no", "n": "no", "false": "no", "0": "no"}
 #: Every column wakeline reads by name (the others are kept as text metadata).
-KNOWN_COLUMNS = (*REQUIRED_COLUMNS, *NUMBER_COLUMNS, *TEXT_COLUMNS, "surface", "camera")
+KNOWN_COLUMNS = (*REQUIRED_COLUMNS, *NUMBER_COLUMNS, *TEXT_COLUMNS, *FLAG_COLUMNS, "surface",
+                 "camera")
 MANIFEST_NAME = "shots.csv"
 
 
@@ -98,6 +104,10 @@ def _row_metadata(values: dict) -> tuple[dict, str]:
             if problem:
                 return metadata, problem
             metadata[key] = number
+        elif key in FLAG_COLUMNS:
+            if text and text.lower() not in _FLAG_WORDS:
+                return metadata, f"{key} {text!r} is not yes or no"
+            metadata[key] = _FLAG_WORDS.get(text.lower()) if text else None
         else:
             metadata[key] = text
     return metadata, _row_problem(metadata)

@@ -80,7 +80,7 @@ from core.summary import ShotSummary
 
 #: Metadata columns that are also settings of a shot's processing.
 PER_SHOT_SETTINGS = ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball_type", "flight_deg",
-                     "air_temp_c")
+                     "air_temp_c", "frames_swapped")
 _UNSET = object()
 #: What to do, in place of freeing space, when a save fails for another reason
 _NOT_SPACE = {
@@ -295,7 +295,9 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         data = dict(self._processing)
         for key in PER_SHOT_SETTINGS:
             value = meta.get(key)
-            if value is not None and value != "":
+            if key == "frames_swapped":  # the manifest's yes or no
+                data[key] = value == "yes"
+            elif value is not None and value != "":
                 data[key] = value
             elif key != "flight_deg":  # a session-wide flight override applies when unset
                 data[key] = None
