@@ -11,6 +11,7 @@ from dataclasses import replace
 
 import numpy as np
 
+from core import WakelineError
 from core.results import (
     BallFit,
     Flight,
@@ -170,12 +171,31 @@ def _balls(frame_a, frame_b, settings: ShotSettings):
     hint = _expected_radius_px(settings)
     given = [None if c is None else hand_ball(c, frame_a.shape)
              for c in (settings.circle_a_px, settings.circle_b_px)]
-    if given == [None, None]:
-        return find_balls(frame_a, frame_b, radius_hint_px=hint,
-                          threads=min(2, settings.piv.threads()))
-    ball_a = given[0] or find_ball(frame_a, radius_hint_px=hint, name="frame A", near=given[1])
-    ball_b = given[1] or find_ball(frame_b, radius_hint_px=hint, name="frame B", near=ball_a)
+    try:
+        if given == [None, None]:
+            return find_balls(frame_a, frame_b, radius_hint_px=hint,
+                              threads=min(2, settings.piv.threads()))
+        ball_a = given[0] or find_ball(frame_a, radius_hint_px=hint, name="frame A",
+                                       near=given[1])
+        ball_b = given[1] or find_ball(frame_b, radius_hint_px=hint, name="frame B",
+                                       near=ball_a)
+    except WakelineError as exc:
+        if hint is None:
+            raise
+        raise WakelineError(f"{exc}; {_scale_note(settings, hint, frame_a.shape)}") from None
     return ball_a, ball_b
+
+
+def _scale_note(settings: ShotSettings, radius_px: float, shape) -> str:
+    """How big the given scale makes the ball, and the inverse scale where that size cannot be
+    the ball's (a scale given in px per mm)."""
+    scale, diameter = settings.scale_mm_per_px, _ball_diameter_mm(settings)
+    note = (f"the scale given, {scale:g} mm/px, makes the {diameter:g} mm ball "
+            f"{2.0 * radius_px:.1f} px across")
+    if not 8.0 <= radius_px <= 0.5 * min(shape):
+        note += (f"; in px per mm? {scale:g} px/mm is {1.0 / scale:.4g} mm/px, a ball "
+                 f"{diameter * scale:.0f} px across")
+    return note
 
 
 def hand_ball(circle, shape) -> BallFit:

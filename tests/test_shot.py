@@ -278,3 +278,15 @@ def test_a_global_gain_leaves_the_measurement_as_it_was():
             got, want = (getattr(r.separation, side) for r in (scaled, base))
             assert got.angle_deg == pytest.approx(want.angle_deg, abs=0.05)
             assert got.uncertainty_deg == pytest.approx(want.uncertainty_deg, rel=0.1)
+
+
+def test_a_scale_that_leaves_no_room_for_the_ball_says_how_big_it_makes_it():
+    # 8 typed for 8 px per mm: the 71.6 mm ball would be 9 px across, which no ball here is
+    frame_a, frame_b, truth = ball_shot(seed=13)
+    settings = ShotSettings(dt_s=truth.dt_s, ball_diameter_mm=71.6, scale_mm_per_px=8.0)
+    with pytest.raises(WakelineError) as caught:
+        measure_shot(frame_a, frame_b, settings)
+    said = str(caught.value)
+    assert said.startswith("frame A: no ball found")
+    assert ("the scale given, 8 mm/px, makes the 71.6 mm ball 8.9 px across; in px per mm? "
+            "8 px/mm is 0.125 mm/px, a ball 573 px across") in said
