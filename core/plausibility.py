@@ -91,6 +91,11 @@ def _moved_check(flight, manifest_deg: float | None) -> list[str]:
     gap = _turn(moved, manifest_deg)
     if abs(gap) <= DIRECTION_TOLERANCE_DEG:
         return []
+    if abs(gap) >= 180.0 - DIRECTION_TOLERANCE_DEG:  # both circles fitted, the other way
+        return [(f"the ball's circles moved toward {moved:.1f}°, against the manifest's flight "
+                 f"direction {manifest_deg:g}°: the manifest's flight_deg is the wrong way "
+                 "round, or the frames are swapped (frames_swapped); correct shots.csv and "
+                 "import it again with --correct-values")]
     return [(f"the ball's circles moved toward {moved:.1f}°, {abs(gap):.0f}° from the manifest's "
             f"flight direction {manifest_deg:g}°: check the circles in frames A and B")]
 

@@ -135,6 +135,12 @@ def test_an_implausible_ball_or_flight_is_flagged():
     assert any("the wake leaves -70° off the flight axis" in line for line in wrong)
     moved = flight_checks(_summary(displacement=(2.7, -7.5)), {"flight_deg": 180.0})
     assert moved and "moved toward 70.2°, 110° from the manifest's flight direction" in moved[0]
+    # moving left (180 deg) against a manifest's 0: the manifest or the frames' order is wrong
+    against = flight_checks(_summary(), {"flight_deg": 0.0})
+    assert against == [("the ball's circles moved toward 180.0°, against the manifest's flight "
+                        "direction 0°: the manifest's flight_deg is the wrong way round, or the "
+                        "frames are swapped (frames_swapped); correct shots.csv and import it "
+                        "again with --correct-values")]
     radii = flight_checks(_summary(radii=(56.0, 60.0)))
     assert radii == [("the ball's circles in frames A and B differ in radius (56.0 vs 60.0 px): "
                      "one of them is off")]
