@@ -138,7 +138,7 @@ def make_session(tmp_path):
     from core.images import write_frame
     from core.store import Session
 
-    def make(n: int = 4, processed: bool = True, name: str = "review") -> str:
+    def make(n: int = 4, processed: bool = True, name: str = "review", prefix: str = "s") -> str:
         folder = tmp_path / f"{name}_frames"
         folder.mkdir()
         path = tmp_path / f"{name}.h5"
@@ -148,7 +148,7 @@ def make_session(tmp_path):
         )
         for index in range(n):
             frame_a, frame_b, truth = synthetic_frames(index)
-            shot_id = f"s{index + 1:02d}"
+            shot_id = f"{prefix}{index + 1:02d}"
             path_a, path_b = folder / f"{shot_id}_a.tif", folder / f"{shot_id}_b.tif"
             write_frame(path_a, frame_a)
             write_frame(path_b, frame_b)

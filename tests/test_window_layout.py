@@ -128,3 +128,15 @@ def test_a_window_that_opens_low_keeps_the_decision_and_the_picture_in_sight(
     for widget in (*readout.buttons.values(), readout.note):
         corner = widget.mapTo(readout, widget.rect().bottomRight())
         assert widget.isVisible() and readout.rect().contains(corner)
+
+
+def test_shot_ids_that_begin_alike_are_shown_whole(main_window, make_session, qtbot):
+    """Lab names (``run_0417_shot_01``...) begin alike: the ids' column widens for the longest
+    (up to its limit) instead of showing every row as ``run_…``."""
+    from app.qt.shot_list import COL_SHOT
+
+    window = _open(main_window, qtbot, make_session(3, prefix="run_0417_shot_"), show=True)
+    view = window.shot_list.view
+    wanted = view.fontMetrics().horizontalAdvance("run_0417_shot_03")
+    assert view.columnWidth(COL_SHOT) >= wanted
+    assert view.textElideMode() == Qt.TextElideMode.ElideMiddle  # beyond it: the end stays

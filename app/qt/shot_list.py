@@ -65,6 +65,7 @@ LIST_KEYS = (
 )
 DEFAULT_COLUMNS = ("upper_deg", "lower_deg", "seam_deg")
 _WIDTHS = {COL_STATE: 22, COL_SHOT: 56, COL_STATUS: 92}
+SHOT_COLUMN_MAX_PX = 150  # px: the shot ids' column at its widest
 STATUS_ICON_PX = 28  # the status column at its narrowest: its icon alone
 _RIGHT = int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
 
@@ -103,6 +104,9 @@ class ShotTableModel(QAbstractTableModel):
 
     def shot_id(self, row: int) -> str:
         return self._ids[row]
+
+    def shot_ids(self) -> list[str]:
+        return list(self._ids)
 
     def row_of(self, shot_id: str) -> int:
         return self._row_of.get(shot_id, -1)
@@ -328,6 +332,8 @@ class ShotListPanel(QWidget):
         header.setContextMenuPolicy(Qt.ContextMenuPolicy.CustomContextMenu)
         header.customContextMenuRequested.connect(self._column_menu)
         view.viewport().installEventFilter(self)  # its width sets the status column's
+        view.setTextElideMode(Qt.TextElideMode.ElideMiddle)  # ids that begin alike stay apart
+        self.table_model.modelReset.connect(self._fit_shot_column)  # a session opened
         self._apply_columns()
 
     def _layout(self) -> None:
@@ -363,6 +369,17 @@ class ShotListPanel(QWidget):
             name = self.table_model.column_name(col)
             self.view.setColumnHidden(col, col >= len(FIXED) and name not in self._shown_columns)
             self.view.setColumnWidth(col, _WIDTHS.get(col, 54))
+        self._fit_shot_column()
+
+    def _fit_shot_column(self) -> None:
+        """The shot ids' column wide enough for the session's longest id (lab names such as
+        ``shot_017`` all begin alike), up to ``SHOT_COLUMN_MAX_PX`` (a longer one loses its
+        middle, not its end); the status column then fits what is left."""
+        metrics = self.view.fontMetrics()
+        longest = max((metrics.horizontalAdvance(shot_id)
+                       for shot_id in self.table_model.shot_ids()), default=0)
+        width = min(SHOT_COLUMN_MAX_PX, max(_WIDTHS[COL_SHOT], longest + 14))
+        self.view.setColumnWidth(COL_SHOT, int(width))
         self._fit_status_column()
 
     def eventFilter(self, watched, event) -> bool:
