@@ -219,3 +219,22 @@ def test_an_ensemble_far_from_its_shots_mean_is_said_to_be():
     assert lines[0].startswith("upper: ensemble -12.4° ± 3.6° (largest term: distance to the launches' mean);")
     assert f"  check {said[0]}" in condition_lines(condition, view)
 
+
+
+def test_a_grouping_that_leaves_every_condition_one_shot_is_noted():
+    # a nominal speed typed per launch (30.2, 29.8, ...) splits every repeat into its own row
+    from types import SimpleNamespace
+
+    from app.cli.conditions import split_note
+
+    def conditions(*sizes):
+        return [SimpleNamespace(shot_ids=[f"s{i}{k}" for k in range(n)])
+                for i, n in enumerate(sizes)]
+
+    by = ["seam_deg", "speed_nominal_m_s"]
+    assert split_note(conditions(1, 1, 1, 1, 2), by) == (
+        "note: 4 of 5 conditions hold one shot: grouped by seam_deg, speed_nominal_m_s, the "
+        "repeats fall apart; group by fewer columns with --by (e.g. --by seam_deg)")
+    assert split_note(conditions(1, 1, 2, 2), by) == ""  # repeats kept together mostly
+    assert split_note(conditions(1, 1), by) == ""  # two conditions: too few to say
+    assert split_note(conditions(1, 1, 1), ["seam_deg"]) == ""  # one column: nothing fewer

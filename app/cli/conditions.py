@@ -142,7 +142,21 @@ def run_conditions(args: argparse.Namespace) -> int:
     for condition in conditions:
         for line in condition_lines(condition, ensembles.get(condition.label)):
             print(line)
+    if note := split_note(conditions, by):
+        print(note)
     return 0
+
+
+def split_note(conditions, by: list[str]) -> str:
+    """A note when the grouping leaves (nearly) every condition one shot: its columns split the
+    repeat launches apart (a nominal speed or spin that differs from launch to launch)."""
+    singles = sum(len(c.shot_ids) == 1 for c in conditions)
+    if len(conditions) < 3 or singles < 0.8 * len(conditions) or len(by) < 2:
+        return ""
+    example = "seam_deg" if "seam_deg" in by else by[0]
+    return (f"note: {singles} of {len(conditions)} conditions hold one shot: grouped by "
+            f"{', '.join(by)}, the repeats fall apart; group by fewer columns with --by "
+            f"(e.g. --by {example})")
 
 
 def condition_lines(condition, ensemble=None) -> list[str]:
