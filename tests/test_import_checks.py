@@ -145,7 +145,8 @@ def test_the_frame_left_of_a_half_pair_is_not_called_unnamed(tmp_path):
     src = write_shot_folder(tmp_path / "src", 2)
     (src / "S1_b.tif").unlink()
     report = import_folder(src, tmp_path / "s.h5")
-    assert "frame S1_b.<tif|png> not found" in report.problems[0] and report.notes == []
+    assert report.problems[0].endswith("S1_a.tif is there but not its frame B (S1_b.<tif|png>, "
+                                       "in any case)") and report.notes == []
 
 
 @pytest.mark.parametrize("repeat", ["S1,2e-05,0.08,71.6,10,shot 1", "S1,3e-05,0.08,71.6,10,"],

@@ -291,6 +291,8 @@ def _find_frames(shot_id: str, listing: dict[str, Path]) -> tuple[list[Path], st
     if single is not None:
         return [single], ""
     if pair[0] is not None or pair[1] is not None:
-        which = "b" if pair[1] is None else "a"
-        return [], f"frame {shot_id}_{which}.<tif|png> not found"
+        found = pair[0] or pair[1]
+        which = "B" if pair[1] is None else "A"
+        return [], (f"{found.name} is there but not its frame {which} "
+                    f"({shot_id}_{which.lower()}.<tif|png>, in any case)")
     return [], f"no frame files {shot_id}_a/_b.<tif|png> or {shot_id}.tif in the folder"
