@@ -120,6 +120,7 @@ def test_window_without_display_is_one_line_exit_1():
                           text=True, env=env, timeout=60)
     assert done.returncode == 1
     assert "no display" in done.stderr and "Traceback" not in done.stderr
+    assert "(QT_QPA_PLATFORM is offscreen, which draws nothing on a screen)" in done.stderr
 
 
 def test_pair_names_the_file_where_no_ball_was_found(tmp_path, capsys):

@@ -132,8 +132,8 @@ def open_window(session: str | None = None) -> int:
         raise WakelineError(f"{session}: session file not found")
     if not display.has_display():
         raise WakelineError(
-            "no display to open the window on (DISPLAY is not set); the headless commands "
-            "are listed by 'wakeline --help'"
+            f"no display to open the window on ({display.why_no_display()}); the headless "
+            "commands are listed by 'wakeline --help'"
         )
     missing = display.missing_window_libraries()
     if missing:

@@ -39,6 +39,14 @@ def has_display() -> bool:
     return bool(os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
 
 
+def why_no_display() -> str:
+    """Why :func:`has_display` says no, in the words of the variable that decides it."""
+    platform = os.environ.get("QT_QPA_PLATFORM", "")
+    if platform:
+        return f"QT_QPA_PLATFORM is {platform}, which draws nothing on a screen"
+    return "DISPLAY is not set"
+
+
 def _uses_xcb() -> bool:
     """Whether Qt will show the window through X11 (xcb) here."""
     platform = os.environ.get("QT_QPA_PLATFORM", "")
