@@ -262,3 +262,19 @@ def test_a_frame_the_worker_may_not_read_is_named_in_the_analyst_s_words(session
     _shot_id, result, why = measure_task(task)
     assert result is None
     assert why == f"{task['source']['path_a']}: cannot be read (Permission denied)"
+
+
+def test_process_names_the_shots_measured_with_warnings(tmp_path, capsys):
+    # S1 without a scale and no ball asked for: its velocities cannot be in m/s, and it says so
+    src = write_shot_folder(tmp_path / "src", 3)
+    manifest = src / "shots.csv"
+    manifest.write_text(manifest.read_text().replace("S1,2e-05,0.08,", "S1,2e-05,,"))
+    import_folder(src, tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        s.set_processing_settings(fast_settings())
+    assert main(["process", str(tmp_path / "s.h5"), "--workers", "0", "--quiet"]) == 0
+    err = capsys.readouterr().err
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        assert s["S1"].summary.warnings and not s["S0"].summary.warnings
+    assert ("note: 1 shot(s) measured with warnings or checks to look at (S1): the table's "
+            "warnings column, the window's readout and the sheet say what") in err

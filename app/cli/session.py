@@ -164,6 +164,7 @@ class _StopFlag:
 def run_process(args: argparse.Namespace) -> int:
     from core.batch import plan_shots, process_shots
     from core.store import Session
+    from core.store.table import shot_warnings
 
     with Session.open(args.session) as session:
         if args.settings is not None:
@@ -182,7 +183,12 @@ def run_process(args: argparse.Namespace) -> int:
             bar.close()
             for signum, handler in previous.items():
                 signal.signal(signum, handler)
+        warned = shot_warnings(session.values())
     code = _process_summary(args.session, report)
+    if ids := [shot_id for shot_id in report.processed if shot_id in warned]:
+        print(f"note: {len(ids)} shot(s) measured with warnings or checks to look at "
+              f"({', '.join(ids[:6])}{', ...' if len(ids) > 6 else ''}): the table's warnings "
+              "column, the window's readout and the sheet say what", file=sys.stderr)
     return 1 if _tell_problems(session) else code
 
 

@@ -32,23 +32,28 @@ def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
                    - set(NUMBER_COLUMNS) - set(TEXT_COLUMNS) - {"shot"})
     meta_cols = list(NUMBER_COLUMNS) + list(TEXT_COLUMNS) + extra
     header = ["shot", *meta_cols, *_RESULT_COLUMNS]
-    usual = usual_direction([r.summary.flight.direction_deg for r in records
-                             if r.summary is not None and r.summary.flight is not None])
+    warned = shot_warnings(records)
     rows = [[r.shot_id, *(cell_text(r.metadata.get(c)) for c in meta_cols), *_result_cells(r),
              "yes" if session.needs_processing(r.shot_id) else "no",
-             cell_text(_warnings(r, usual))]
+             "; ".join(warned.get(r.shot_id, ()))]
             for r in records]
     return header, rows
 
 
-def _warnings(r: ShotRecord, usual_direction_deg: float | None) -> str | None:
-    """What the measurement warned of and where the ball and flight disagree with what else is
-    known (``core.plausibility``: the window's and the sheet's checks), each once, ``; ``
-    between them."""
-    if r.summary is None:
-        return None
-    lines = [*r.summary.warnings, *flight_checks(r.summary, r.metadata, usual_direction_deg)]
-    return "; ".join(dict.fromkeys(lines)) or None
+def shot_warnings(records) -> dict[str, list[str]]:
+    """Per measured shot with any: what the measurement warned of and where its ball and flight
+    disagree with what else is known (``core.plausibility``: the window's and the sheet's
+    checks, against the manifest and the direction most of ``records`` fly in), each once."""
+    records = list(records)
+    usual = usual_direction([r.summary.flight.direction_deg for r in records
+                             if r.summary is not None and r.summary.flight is not None])
+    warned = {}
+    for r in records:
+        if r.summary is not None:
+            lines = [*r.summary.warnings, *flight_checks(r.summary, r.metadata, usual)]
+            if lines:
+                warned[r.shot_id] = list(dict.fromkeys(lines))
+    return warned
 
 
 _RESULT_COLUMNS = (
