@@ -223,3 +223,14 @@ def test_a_spreadsheet_s_manifest_is_read_whatever_the_case_of_its_column_names(
     with Session.open(tmp_path / "s.h5", writable=False) as s:
         assert s["S1"].metadata["dt_s"] == 2e-05
         assert s["S1"].metadata["Operator"] == "someone"  # other columns keep their names
+
+
+def test_an_id_that_ends_the_files_shot_part_is_pointed_at_it(tmp_path):
+    # frames shot_001_A.tif / _B.tif listed as 001: the folder's own spelling is offered
+    src = write_shot_folder(tmp_path / "src", 1)
+    for ab in ("a", "b"):
+        (src / f"S0_{ab}.tif").rename(src / f"run_S0_{ab.upper()}.tif")
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.problems[0].endswith(
+        "no frame files S0_a/_b.<tif|png> or S0.tif in the folder (is 'run_S0' meant? the shot "
+        "column must name the files' shot part)")

@@ -295,4 +295,18 @@ def _find_frames(shot_id: str, listing: dict[str, Path]) -> tuple[list[Path], st
         which = "B" if pair[1] is None else "A"
         return [], (f"{found.name} is there but not its frame {which} "
                     f"({shot_id}_{which.lower()}.<tif|png>, in any case)")
-    return [], f"no frame files {shot_id}_a/_b.<tif|png> or {shot_id}.tif in the folder"
+    hint = _longer_names(stem, listing)
+    return [], (f"no frame files {shot_id}_a/_b.<tif|png> or {shot_id}.tif in the folder"
+                + (f" (is {hint} meant? the shot column must name the files' shot part)"
+                   if hint else ""))
+
+
+def _longer_names(stem: str, listing: dict[str, Path]) -> str:
+    """A frame A in the folder whose shot part ends with ``stem`` (``shot_001_a.tif`` for the
+    id ``001``): the shot part as the file spells it, or ""."""
+    for name, path in sorted(listing.items()):
+        for suffix in FRAME_SUFFIXES:
+            end = f"{stem}_a{suffix}"
+            if name.endswith(end) and len(name) > len(end):
+                return repr(path.name[: len(path.name) - len(end) + len(stem)])
+    return ""
