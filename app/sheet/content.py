@@ -162,7 +162,8 @@ def timing_text(record: ShotRecord) -> str:
         parts.append(f"dt {float(dt) * 1e6:.1f} µs")
     scale = md.get("scale_mm_per_px") if summary is None else summary.scale_mm_per_px
     if scale not in (None, ""):
-        parts.append(f"{float(scale):.4g} mm/px")
+        derived = md.get("scale_mm_per_px") in (None, "")  # none given: the ball's
+        parts.append(f"{float(scale):.4g} mm/px" + (" from the ball" if derived else ""))
     if md.get("ball_diameter_mm") not in (None, ""):
         parts.append(f"ball {float(md['ball_diameter_mm']):g} mm")
     return ", ".join(parts) or MISSING
