@@ -234,3 +234,13 @@ def test_an_id_that_ends_the_files_shot_part_is_pointed_at_it(tmp_path):
     assert report.problems[0].endswith(
         "no frame files S0_a/_b.<tif|png> or S0.tif in the folder (is 'run_S0' meant? the shot "
         "column must name the files' shot part)")
+
+
+def test_an_import_whose_every_row_is_refused_leaves_no_session(tmp_path):
+    src = write_shot_folder(tmp_path / "src", 2)
+    manifest = src / "shots.csv"
+    manifest.write_text(manifest.read_text().replace("2e-05", "20"))  # microseconds, both rows
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == [] and len(report.problems) == 2
+    assert f"no shot imported: {tmp_path / 's.h5'} not made" in report.notes
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["src"]

@@ -235,7 +235,8 @@ class SessionActions:
                      f"{len(report.outdated)} to be processed again" if report.corrected else "")
         self.statusBar().showMessage(
             f"{word}: {len(first.imported)} shots imported{corrected}.", 6000)
-        self.open_session(session_path)
+        if Path(session_path).exists():  # every row refused into a new session: none was made
+            self.open_session(session_path)
 
     def _ask_take_corrections(self, shots: list[str]) -> bool:
         """Whether the new values of these shots (same frames, other values in shots.csv)

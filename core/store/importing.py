@@ -7,6 +7,7 @@ from pathlib import Path
 
 from core import WakelineError
 from core.rulebook import ball_size_problem
+from core.store.companions import remove_companions
 from core.store.files import sha256_of
 from core.store.manifest import MANIFEST_NAME, column_notes, read_manifest
 from core.store.session import PER_SHOT_SETTINGS, Session
@@ -77,17 +78,20 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
     if not rows:
         raise WakelineError(f"{manifest}: no shots (a header and no rows)")
     session_path = Path(session_path)
-    session = Session.open(session_path) if session_path.exists() else Session.create(session_path)
+    created = not session_path.exists()
+    session = Session.open(session_path) if not created else Session.create(session_path)
     report = ImportReport(notes=[f"{manifest}: {note}" for note in column_notes(header)])
     with session:
         folder = _Folder(src_dir, session, embed, ball_types)
         first_lines: dict[str, int] = {}  # shot id -> the line that gives it first
         kept = {ADDED: report.imported, SAME: report.already, CORRECTED: report.corrected}
         odd_sizes: dict[str, list[str]] = {}  # a ball type's size problem -> its shots
+        stopped = False
         for number, (line, metadata, problem) in enumerate(rows):
             if should_stop is not None and should_stop():
                 report.notes.append(f"import stopped after {number} of {len(rows)} rows of "
                                     f"{MANIFEST_NAME}; import the folder again for the rest")
+                stopped = True
                 break
             shot_id = metadata.get("shot", "")
             folder.name_files(shot_id)  # named, even when its row is refused
@@ -115,6 +119,10 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
                                 "with the same frames and values were left as they are")
         report.notes += _correction_notes(report, folder.camera_moved)
     report.problems += session.problems  # what saving found damaged, if anything
+    if created and not report.imported and not stopped:  # every row refused: none left empty
+        session_path.unlink(missing_ok=True)
+        remove_companions(session_path)
+        report.notes.append(f"no shot imported: {session_path} not made")
     return report
 
 
