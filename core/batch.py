@@ -29,7 +29,7 @@ import numpy as np
 
 from core import WakelineError
 from core.shot_result import ShotSettings
-from core.store import Session, read_frames
+from core.store import Session, in_exposure_order, read_frames
 from core.store.records import ReviewStatus
 
 _POLL_S = 0.2  # how often a waiting run looks at should_stop
@@ -201,7 +201,8 @@ def measure_task(task: dict, piv_threads: int | None = None):
     shot_id = task["shot_id"]
     settings = ShotSettings.from_dict(task["settings"])
     try:
-        frame_a, frame_b = read_frames(shot_id, task["source"])
+        frame_a, frame_b = in_exposure_order(*read_frames(shot_id, task["source"]),
+                                             settings.frames_swapped)
         background = np.load(task["background"]) if task.get("background") else None
         # The thread count changes speed, not the result; the stored settings stay the session's.
         run_settings = settings if piv_threads is None else replace(

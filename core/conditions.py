@@ -28,7 +28,7 @@ from core.store.records import ReviewStatus, ShotRecord
 DEFAULT_COLUMNS = ("ball_type", "surface", "seam_deg", "speed_nominal_m_s", "spin_rpm",
                    "spin_axis_deg")
 #: Manifest columns that describe one shot rather than a condition.
-NOT_GROUPING = ("notes", "dt_s", "scale_mm_per_px", "flight_deg")
+NOT_GROUPING = ("notes", "dt_s", "scale_mm_per_px", "flight_deg", "frames_swapped")
 CONFIDENCE = 0.95
 NO_VALUE = "(none)"
 

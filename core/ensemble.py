@@ -372,14 +372,10 @@ def session_ensemble(session, shot_ids, settings: PivSettings | None = None,
         raise WakelineError(f"ensemble: no shot to align ({why})")
     shots, unreadable = [], []
     for pose in chosen:  # every shot whose frames cannot be read is named, not the first only
-        try:
-            frame_a, frame_b = session.load_frames(pose.shot_id)
+        try:  # in the order they were exposed, as they were measured
+            shots.append((pose, *session.load_frames(pose.shot_id)))
         except WakelineError as exc:
             unreadable.append(str(exc))
-            continue
-        if session[pose.shot_id].metadata.get("frames_swapped") == "yes":  # as measured
-            frame_a, frame_b = frame_b, frame_a
-        shots.append((pose, frame_a, frame_b))
     if unreadable:
         raise WakelineError("; ".join(unreadable))
     singles = {side: [session[pose.shot_id].summary.side(side) for pose in chosen]

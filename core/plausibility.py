@@ -55,6 +55,20 @@ def flight_checks(summary: ShotSummary, metadata: dict | None = None,
     return checks
 
 
+def session_direction(records) -> float | None:
+    """The flight direction most measured shots of a session (its records) share, or None."""
+    return usual_direction([r.summary.flight.direction_deg for r in records
+                            if r.summary is not None and r.summary.flight is not None])
+
+
+def shot_checks(record, usual_direction_deg: float | None = None) -> list[str]:
+    """:func:`flight_checks` of one shot's record (its summary and manifest values), none
+    while it is unmeasured. The readout, the sheet and the table show them."""
+    if record.summary is None:
+        return []
+    return flight_checks(record.summary, record.metadata, usual_direction_deg)
+
+
 def usual_direction(directions_deg) -> float | None:
     """The flight direction most of a session's shots share (mean of the largest group within
     ``DIRECTION_TOLERANCE_DEG`` of one of them), or None without a clear majority."""

@@ -33,7 +33,7 @@ def dt_problem(dt_s: float) -> str:
     if low <= dt_s <= high:
         return ""
     hint = ""
-    if dt_s > high:
+    if low <= dt_s * 1e-6 <= high:
         hint = f"; in microseconds? {dt_s:g} us is {dt_s * 1e-6:g} s"
     return (f"{dt_s:g} s is outside {low:g} to {high:g} s, the time between a double-pulse "
             f"laser's two pulses{hint}")

@@ -47,7 +47,8 @@ def measure_shot(
     Parameters
     ----------
     frame_a, frame_b : (H, W) ndarray
-        The frame pair, same shape.
+        The frame pair, same shape, in the order they were exposed (a session's loaders put
+        them so where the manifest says ``frames_swapped``: ``core.store.in_exposure_order``).
     settings : ShotSettings
     progress : callable, optional
         Passed to the correlation (``progress(done, total, message)``).
@@ -62,7 +63,6 @@ def measure_shot(
     """
     from core.piv import correlate_pair
 
-    frame_a, frame_b = exposure_order(frame_a, frame_b, settings)
     clock = _StageClock()
     glare = _glare(frame_a, frame_b, settings)
     balls = _balls(frame_a, frame_b, settings) if _wants_ball(settings) else None
@@ -72,12 +72,6 @@ def measure_shot(
     vf = correlate_pair(cond_a, cond_b, masks[0], masks[1], settings.piv, progress)
     clock.lap("piv")  # with the conditioning
     return _after_piv(vf, (frame_a, frame_b), (cond_a, cond_b), balls, glare, settings, clock)
-
-
-def exposure_order(frame_a: np.ndarray, frame_b: np.ndarray, settings: ShotSettings):
-    """The frames in the order they were exposed: the files' own, or the other way round where
-    the manifest says ``frames_swapped`` (a camera that wrote the later exposure first)."""
-    return (frame_b, frame_a) if settings.frames_swapped else (frame_a, frame_b)
 
 
 def remeasure_ball(
@@ -111,7 +105,6 @@ def remeasure_ball(
     """
     if not _wants_ball(settings) or not settings.measured_alike(stored.settings):
         return measure_shot(frame_a, frame_b, settings, background=background)
-    frame_a, frame_b = exposure_order(frame_a, frame_b, settings)
     clock = _StageClock()
     glare = _glare(frame_a, frame_b, settings)
     balls = _balls(frame_a, frame_b, settings)

@@ -278,3 +278,32 @@ def test_process_names_the_shots_measured_with_warnings(tmp_path, capsys):
         assert s["S1"].summary.warnings and not s["S0"].summary.warnings
     assert ("note: 1 shot(s) measured with warnings or checks to look at (S1): the table's "
             "warnings column, the window's readout and the sheet say what") in err
+
+
+def test_a_shot_the_camera_wrote_the_other_way_round_is_measured_and_shown_as_exposed(
+        tmp_path, main_window):
+    # S1's files hold its exposures the other way round (B first): told so by frames_swapped,
+    # the run measures the shift it was drawn with (core.synth, derived truth) and the window
+    # shows the first exposure as frame A, the one its circle A was measured in
+    src = write_shot_folder(tmp_path / "src", 2)
+    for ab, other in (("a", "x"), ("b", "a"), ("x", "b")):
+        (src / f"S1_{ab}.tif").rename(src / f"S1_{other}.tif")
+    manifest = src / "shots.csv"
+    lines = manifest.read_text().splitlines()
+    manifest.write_text("\n".join([lines[0] + ",frames_swapped", lines[1] + ",no",
+                                   lines[2] + ",yes"]) + "\n")
+    import_folder(src, tmp_path / "s.h5")
+    with Session.open(tmp_path / "s.h5") as s:
+        s.set_processing_settings(fast_settings())
+        assert not process_shots(s, workers=0).failed
+        for i, shot_id in enumerate(("S0", "S1")):
+            assert _median_shift(s.load_result(shot_id)) == pytest.approx(shift_of(i), abs=0.1)
+        first, _ = s.load_frames("S1")
+    window = main_window(workers=0)
+    assert window.open_session(tmp_path / "s.h5", writable=False)
+    shown_a, _ = window.model.frames("S1")
+    np.testing.assert_array_equal(shown_a, first)
+    from core.store import read_frames
+    with Session.open(tmp_path / "s.h5", writable=False) as s:
+        _, file_b = read_frames("S1", s.frame_source("S1"))
+    np.testing.assert_array_equal(shown_a, file_b)  # the file named B, exposed first

@@ -232,6 +232,12 @@ def test_leaving_side_by_side_brings_the_single_view_back(canvas, qtbot):
     qtbot.wait(20)
     for back, before in zip(canvas.view.viewRange(), single):
         assert back == pytest.approx(before, abs=1.0)
+    # on and off at once: the halves' fit, still to come, does not take the range back
+    canvas.side_box.setChecked(True)
+    canvas.side_box.setChecked(False)
+    qtbot.wait(20)
+    for back, before in zip(canvas.view.viewRange(), single):
+        assert back == pytest.approx(before, abs=1.0)
 
 
 def test_flicker_alternates_the_frames(canvas, shot_data):

@@ -111,6 +111,13 @@ def test_bad_option_values_exit_2(session_path, argv, said, capsys):
     assert said in line and "Traceback" not in line
 
 
+def test_a_dt_of_milliseconds_gets_no_microseconds_hint_that_would_be_out_of_range(capsys):
+    # 0.05 s read as us would be 5e-08 s, itself outside the range: no such hint
+    line = usage_error(["pair", "a.tif", "b.tif", "--dt", "0.05"], capsys)
+    assert line.endswith("argument --dt: 0.05 s is outside 1e-07 to 0.01 s, the time between a "
+                         "double-pulse laser's two pulses")
+
+
 # help and usage text
 
 def test_a_command_error_names_the_command_not_the_whole_top_level_usage(capsys):

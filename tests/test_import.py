@@ -357,12 +357,13 @@ def test_frames_the_camera_wrote_the_other_way_round_are_said_so_in_the_manifest
         before = s.settings_for("S1").fingerprint()
         s.save_result("S1", fake_result(s.settings_for("S1")))
         assert not s.needs_processing("S1") and "frames_swapped" not in before
-    manifest.write_text("\n".join([lines[0] + ",frames_swapped", lines[1] + ",",
+    manifest.write_text("\n".join([lines[0] + ",frames_swapped", lines[1] + ",no",
                                    lines[2] + ",Yes"]) + "\n")
     report = import_folder(src, session_path, correct_values=True)
     assert report.corrected == ["S1"] and report.outdated == ["S1"]
     with Session.open(session_path) as s:
         assert s["S1"].metadata["frames_swapped"] == "yes"
+        assert "frames_swapped" not in s["S0"].metadata  # a no is not a correction
         assert s.settings_for("S1").frames_swapped and not s.settings_for("S0").frames_swapped
         assert s.needs_processing("S1")
     manifest.write_text(manifest.read_text().replace(",Yes", ",maybe"))

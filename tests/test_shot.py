@@ -90,20 +90,16 @@ def test_no_ball_is_a_one_line_error():
         measure_shot(frame, frame, ShotSettings())
 
 
-def test_swapped_frames_warn_and_propose_nothing_until_said_so():
+def test_swapped_frames_warn_and_propose_nothing():
     frame_a, frame_b, truth = ball_shot(seed=13)
     result = measure_shot(frame_b, frame_a, ShotSettings(dt_s=truth.dt_s))
     assert any("frames_swapped yes" in w and "--correct-values" in w for w in result.warnings)
     assert result.separation.upper.angle_deg is None
     assert "swapped" in result.separation.upper.reason
-    # the manifest's frames_swapped: the files taken the other way round, as exposed
+    # a session's loaders hand the frames over in the order exposed where the manifest says
+    # frames_swapped (tests/test_batch.py); still swapped then, the warning points at that
     said = measure_shot(frame_b, frame_a, ShotSettings(dt_s=truth.dt_s, frames_swapped=True))
-    straight = measure_shot(frame_a, frame_b, ShotSettings(dt_s=truth.dt_s))
-    assert not any("swap" in w for w in said.warnings)
-    for side in ("upper", "lower"):
-        assert (getattr(said.separation, side).angle_deg
-                == getattr(straight.separation, side).angle_deg is not None)
-    assert said.flight.direction_deg == straight.flight.direction_deg
+    assert any("though frames_swapped says they were" in w for w in said.warnings)
     # frames not swapped keep the fingerprint they had before the setting existed
     assert "frames_swapped" not in ShotSettings(dt_s=truth.dt_s).fingerprint()
     assert "frames_swapped" in said.settings.fingerprint()

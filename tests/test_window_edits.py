@@ -133,3 +133,11 @@ def test_stepping_past_the_end_of_the_list_says_so(main_window, make_session, qt
     assert window.model.current_id == "s01"
     window.act_prev.trigger()
     assert window.statusBar().currentMessage() == "First shot of the list."
+
+
+def test_a_nudged_mark_stops_at_the_stagnation_point_too(main_window, make_session, qtbot):
+    window = _open(main_window, qtbot, make_session(2), show=True)
+    window.act_advance.setChecked(False)
+    for _ in range(250):  # 0.5 deg a press, far past +90
+        window.nudge("upper", 0.5)
+    assert window.model.record("s01").final_deg("upper") == pytest.approx(90.0)

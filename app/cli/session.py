@@ -35,13 +35,16 @@ def _add_import(subparsers) -> None:
         help="import a folder of shots into a session",
         description="Import the shots listed in SRC_DIR/shots.csv (columns shot, dt_s, "
         "scale_mm_per_px, ball_diameter_mm, and optional ball_type, surface, speed_nominal_m_s, "
-        "spin_rpm, spin_axis_deg, seam_deg, flight_deg, air_temp_c, camera, notes; other "
-        "columns are kept as metadata). An empty scale_mm_per_px: the scale from the fitted "
+        "spin_rpm, spin_axis_deg, seam_deg, flight_deg, air_temp_c, camera, frames_swapped, "
+        "notes; other columns are kept as metadata). dt_s is in seconds, 1e-7 to 0.01. An "
+        "empty scale_mm_per_px: the scale from the fitted "
         "ball and its diameter; air_temp_c sets the air's viscosity for the Reynolds number "
         "(20 deg C when empty); shots with the same camera share a background image when the "
-        "processing settings ask for one. "
-        "Frames are <shot>_a.<tif|png> and <shot>_b.<tif|png>, or one two-page <shot>.tif. "
-        "The session is created if it does not exist. Bad rows are reported by line and "
+        "processing settings ask for one; frames_swapped yes: the camera wrote the later "
+        "exposure as frame A. "
+        "Frames are <shot>_a.<tif|png> and <shot>_b.<tif|png> (any case), or one two-page "
+        "<shot>.tif. The session is created if it does not exist (not when no row can be "
+        "imported). Bad rows are reported by line and "
         "shot; the good ones are imported and the exit code is 1.",
     )
     p.add_argument("src_dir", type=Path, help="folder with shots.csv and the frame files")
@@ -123,9 +126,10 @@ def run_import(args: argparse.Namespace) -> int:
         print(f"note: {note}", file=sys.stderr)
     bad_rows = [p for p in report.problems if p.startswith(f"{MANIFEST_NAME} line")]
     if len(bad_rows) > len(report.differing):  # the differing ones have their own remedy
+        kept = (": the shots imported now are left as they are" if args.session.exists()
+                else "")
         print(f"note: correct the rows named in {args.src_dir / MANIFEST_NAME} (or those shots' "
-              "frame files) and import the folder again: the shots imported now are left as "
-              "they are", file=sys.stderr)
+              f"frame files) and import the folder again{kept}", file=sys.stderr)
     if report.differing:
         shots = list(report.differing)
         print(f"note: to take the new values of {', '.join(shots[:5])}"

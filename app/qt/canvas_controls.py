@@ -224,6 +224,7 @@ class LayerControls:
             # their sizes (the range comes back on leaving)
             self._fit_halves_later.start()
         elif not checked and in_layout:
+            self._fit_halves_later.stop()  # left before the halves were fitted
             for item in (self.field_view, self.main.title, self.second.title):
                 self.graphics.removeItem(item)
             self._restore_single_range()

@@ -466,7 +466,8 @@ class MainWindow(SessionActions, JobActions, ReviewActions, BallActions, QMainWi
 
     def showEvent(self, event) -> None:
         super().showEvent(event)
-        self._height_later.start()  # a window that opens low
+        if not event.spontaneous():  # a window that opens low (not one brought back)
+            self._height_later.start()
 
     def resizeEvent(self, event) -> None:
         super().resizeEvent(event)

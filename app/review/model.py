@@ -16,9 +16,9 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtCore import QObject, Signal
 
-from app.review.checks import session_direction, shot_checks
 from core import WakelineError
 from core.batch import iter_process
+from core.plausibility import session_direction, shot_checks
 from core.store import (
     MANIFEST_NAME,
     JournalDamaged,

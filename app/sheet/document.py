@@ -21,7 +21,6 @@ from pathlib import Path
 
 from PySide6 import QtCore, QtGui
 
-from app.review.checks import session_direction, shot_checks
 from app.review.overview import MEASURED_SPEED, SHOT_ORDER, default_column, numeric_columns
 from app.review.scales import shared_limit
 from app.sheet.conditions_page import conditions_page_count, paint_conditions_page
@@ -36,6 +35,7 @@ from app.sheet.cover import paint_cover
 from app.sheet.kit import DPI, Pages, ensure_gui_application
 from app.sheet.shot_panel import paint_shot, panel_cells
 from core import WakelineError
+from core.plausibility import session_direction, shot_checks
 from core.store import ProcessState
 from core.store.companions import refuse_session_output
 from core.store.files import atomic_write, failure_cause, writing

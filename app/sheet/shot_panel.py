@@ -67,7 +67,7 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
                checks=()) -> None:
     """One shot's panel in ``cell`` (mm); the vorticity colours run to ``vorticity_limit_1_s``
     (None: the shot's own range); ``checks``: where its ball and flight look wrong
-    (``app.review.checks``)."""
+    (``core.plausibility.shot_checks``)."""
     x, y, w, h = cell
     colour = colours.STATUS_COLOURS.get(record.pick.status, colours.MUTED_INK)
     p.fillRect(rect_mm(x, y, w, 8), qcolor(colours.PAPER_TINT))

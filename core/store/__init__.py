@@ -8,7 +8,7 @@ journal on disk and applied in memory), ``companions`` (the files beside the sna
 part of the PIV stack.
 """
 
-from core.store.frames import read_frames
+from core.store.frames import in_exposure_order, read_frames
 from core.store.importing import ImportReport, import_folder, take_corrections
 from core.store.journal import JournalDamaged
 from core.store.lock import SessionLocked, SessionReadOnly
@@ -32,6 +32,7 @@ __all__ = [
     "ShotRecord",
     "UnknownShot",
     "import_folder",
+    "in_exposure_order",
     "read_frames",
     "read_manifest",
     "session_table_rows",

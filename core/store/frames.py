@@ -62,3 +62,9 @@ def frame_file_problem(shot_id: str, source: dict, checksums: bool = True) -> st
             return f"shot {shot_id}: frame file {path} changed since import (SHA-256 differs)"
     return ""
 
+
+def in_exposure_order(frame_a, frame_b, swapped: bool):
+    """A shot's frames in the order they were exposed: the files' own, or the other way round
+    where the manifest says ``frames_swapped`` (a camera that wrote the later exposure first).
+    Every reader of a session's frames for measuring or showing them goes through here."""
+    return (frame_b, frame_a) if swapped else (frame_a, frame_b)

@@ -16,8 +16,9 @@ NUMBER_COLUMNS = (
     "spin_axis_deg", "seam_deg", "flight_deg", "air_temp_c",
 )
 TEXT_COLUMNS = ("ball_type", "notes")
-#: Yes-or-no columns, kept as "yes" or "no": ``frames_swapped`` says the camera wrote the later
-#: exposure as frame A (the measurement then takes the files the other way round).
+#: Yes-or-no columns, kept as "yes" where yes and left out where no or empty (so that a column
+#: of "no" added later changes no shot): ``frames_swapped`` says the camera wrote the later
+#: exposure as frame A (the shot's frames are then read the other way round).
 FLAG_COLUMNS = ("frames_swapped",)
 _FLAG_WORDS = {"yes": "yes", "y": "yes", "true": "yes", "1": "yes",
                "no": "no", "n": "no", "false": "no", "0": "no"}
@@ -107,7 +108,8 @@ def _row_metadata(values: dict) -> tuple[dict, str]:
         elif key in FLAG_COLUMNS:
             if text and text.lower() not in _FLAG_WORDS:
                 return metadata, f"{key} {text!r} is not yes or no"
-            metadata[key] = _FLAG_WORDS.get(text.lower()) if text else None
+            if text and _FLAG_WORDS[text.lower()] == "yes":
+                metadata[key] = "yes"
         else:
             metadata[key] = text
     return metadata, _row_problem(metadata)

@@ -46,7 +46,7 @@ from core.store.companions import (
     session_path,
 )
 from core.store.files import atomic_write, json_ready, now_utc, sha256_of, share_like, write_whole
-from core.store.frames import frame_file_problem, read_frames
+from core.store.frames import frame_file_problem, in_exposure_order, read_frames
 from core.store.journal import Journal
 from core.store.lock import Lock, user_name
 from core.store.records import (
@@ -336,7 +336,8 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
         }
 
     def load_frames(self, shot_id: str) -> tuple[np.ndarray, np.ndarray]:
-        """Frames A and B as float32 ``(H, W)``; checks file checksums first.
+        """Frames A and B as float32 ``(H, W)``, in the order they were exposed (the manifest's
+        ``frames_swapped``); checks file checksums first.
 
         Raises
         ------
@@ -344,7 +345,9 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             "shot <id>: frame file <path> changed since import" or "... not found".
         """
         with self._mutex:
-            return read_frames(shot_id, self.frame_source(shot_id))
+            frames = read_frames(shot_id, self.frame_source(shot_id))
+            swapped = self._get(shot_id).metadata.get("frames_swapped") == "yes"
+        return in_exposure_order(*frames, swapped)
 
     def check_frames(self, should_stop=None, shot_ids=None,
                      checksums: bool = True) -> dict[str, str]:

@@ -8,7 +8,7 @@ import math
 from pathlib import Path
 
 from core.geometry import SIDES
-from core.plausibility import flight_checks, usual_direction
+from core.plausibility import session_direction, shot_checks
 from core.store.companions import refuse_session_output
 from core.store.files import atomic_write
 from core.store.manifest import NUMBER_COLUMNS, TEXT_COLUMNS
@@ -35,7 +35,7 @@ def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
     warned = shot_warnings(records)
     rows = [[r.shot_id, *(cell_text(r.metadata.get(c)) for c in meta_cols), *_result_cells(r),
              "yes" if session.needs_processing(r.shot_id) else "no",
-             "; ".join(warned.get(r.shot_id, ()))]
+             cell_text("; ".join(warned.get(r.shot_id, ())))]
             for r in records]
     return header, rows
 
@@ -45,12 +45,11 @@ def shot_warnings(records) -> dict[str, list[str]]:
     disagree with what else is known (``core.plausibility``: the window's and the sheet's
     checks, against the manifest and the direction most of ``records`` fly in), each once."""
     records = list(records)
-    usual = usual_direction([r.summary.flight.direction_deg for r in records
-                             if r.summary is not None and r.summary.flight is not None])
+    usual = session_direction(records)
     warned = {}
     for r in records:
         if r.summary is not None:
-            lines = [*r.summary.warnings, *flight_checks(r.summary, r.metadata, usual)]
+            lines = [*r.summary.warnings, *shot_checks(r, usual)]
             if lines:
                 warned[r.shot_id] = list(dict.fromkeys(lines))
     return warned
