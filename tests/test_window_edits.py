@@ -141,3 +141,13 @@ def test_a_nudged_mark_stops_at_the_stagnation_point_too(main_window, make_sessi
     for _ in range(250):  # 0.5 deg a press, far past +90
         window.nudge("upper", 0.5)
     assert window.model.record("s01").final_deg("upper") == pytest.approx(90.0)
+
+
+def test_the_unusable_note_offers_no_key_a_read_only_session_cannot_take():
+    from app.qt.window_review import decision_note
+    from core.store import Pick, ShotRecord
+
+    record = ShotRecord("s1", {}, pick=Pick(status="unusable", reason="fog"))
+    assert decision_note(record) == "Unusable: fog — R puts it back to review."
+    assert decision_note(record, read_only=True) == "Unusable: fog."
+    assert decision_note(ShotRecord("s2", {}, pick=Pick())) == ""

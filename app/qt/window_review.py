@@ -21,12 +21,14 @@ from core.geometry import SIDES
 log = logging.getLogger("wakeline.window")
 
 
-def decision_note(record) -> str:
+def decision_note(record, read_only: bool = False) -> str:
     """What the canvas says of the review's decision: an unusable shot's marks look like any
-    other shot's, so its reason is shown over the picture."""
+    other shot's, so its reason is shown over the picture (with the key that undoes it where
+    the session can be written)."""
     if record.pick.status != ReviewStatus.UNUSABLE:
         return ""
-    return f"Unusable: {record.pick.reason or 'no reason given'} — R puts it back to review."
+    undo = "" if read_only else " — R puts it back to review"
+    return f"Unusable: {record.pick.reason or 'no reason given'}{undo}."
 
 
 class ReviewActions:
@@ -102,7 +104,7 @@ class ReviewActions:
             self._shown_key = key
         else:
             self.canvas.update_marks(*mark_angles(record), editable=self._editable(record),
-                                     decision_note=decision_note(record))
+                                     decision_note=decision_note(record, self.model.read_only))
         self.readout.show_record(record)
         self.readout.show_checks(self.model.checks(shot_id))
 
@@ -135,7 +137,8 @@ class ReviewActions:
         return CanvasShot(
             shot_id=record.shot_id, frame_a=frame_a, frame_b=frame_b, result=result,
             proposed_deg=proposed, final_deg=final, message="\n".join(messages),
-            decision_note=decision_note(record), editable=self._editable(record),
+            decision_note=decision_note(record, self.model.read_only),
+            editable=self._editable(record),
         )
 
     def _editable(self, record) -> bool:
