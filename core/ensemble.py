@@ -345,6 +345,13 @@ def _tell(progress, done: int, total: int, message: str):
         raise Cancelled(message)
 
 
+def _measured_otherwise(session, shot_id: str, record) -> bool:
+    """Whether the shot's result was measured with other values or settings than it has now
+    (a session without ``settings_for`` cannot tell: no)."""
+    settings_for = getattr(session, "settings_for", None)
+    return settings_for is not None and record.fingerprint != settings_for(shot_id).fingerprint()
+
+
 def session_ensemble(session, shot_ids, settings: PivSettings | None = None,
                      progress: Progress | None = None) -> EnsembleView:
     """The ensemble view of some shots of an open session (``core.store.Session``, or any
@@ -365,6 +372,10 @@ def session_ensemble(session, shot_ids, settings: PivSettings | None = None,
             left_out[shot_id] = "marked unusable"
         elif pose is None:
             left_out[shot_id] = "no measured ball and flight"
+        elif _measured_otherwise(session, shot_id, record):
+            # its pose is from values or settings it no longer has (a corrected frames_swapped
+            # or scale): aligned on it, its frames would be misplaced
+            left_out[shot_id] = "to be processed again (its values or settings changed)"
         else:
             chosen.append(pose)
     if not chosen:

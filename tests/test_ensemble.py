@@ -162,3 +162,18 @@ def test_a_session_condition_seen_as_one(tmp_path, launches):
     error = np.hypot(field.dx_px[ahead] - ux, field.dy_px[ahead] - uy)
     assert np.count_nonzero(ahead) > 20 and np.median(error) < 0.2
     assert view.result.summary()["separation"]["upper_deg"] is not None
+
+
+def test_a_shot_measured_with_other_values_than_it_has_now_is_left_out():
+    # a corrected scale or frames_swapped not yet measured again: its pose is of the old values
+    from types import SimpleNamespace
+
+    from core.ensemble import _measured_otherwise
+    from core.shot_result import ShotSettings
+
+    now = ShotSettings(dt_s=2e-5, frames_swapped=True)
+    session = SimpleNamespace(settings_for=lambda shot_id: now)
+    measured = SimpleNamespace(fingerprint=ShotSettings(dt_s=2e-5).fingerprint())
+    assert _measured_otherwise(session, "s1", measured)
+    assert not _measured_otherwise(session, "s1", SimpleNamespace(fingerprint=now.fingerprint()))
+    assert not _measured_otherwise({}, "s1", measured)  # a plain mapping cannot tell
