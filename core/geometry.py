@@ -70,6 +70,12 @@ def angle_of_point(
     return math.degrees(math.atan2(-(rx * fx + ry * fy), rx * nx + ry * ny))
 
 
+def on_own_side(angle_deg: float) -> float:
+    """A separation angle kept on its side of the ball: from the front stagnation point (-90)
+    to the rear one (+90); beyond them an angle would be the other side's."""
+    return min(max(float(angle_deg), -90.0), 90.0)
+
+
 def mid_circle(ball_a, ball_b=None) -> tuple[tuple[float, float], float] | None:
     """The ball at mid-exposure: the mean of its circles in frames A and B (``center_px``,
     ``radius_px`` of each; frame A alone without B), as ``((cx, cy), r)`` px; None without a

@@ -85,3 +85,11 @@ def test_the_ball_at_mid_exposure_is_the_mean_of_its_two_circles():
     assert mid_circle(a) == ((100.0, 50.0), 30.0)
     assert mid_circle(a, BallFit((0.0, 0.0), float("nan"))) == ((100.0, 50.0), 30.0)
     assert mid_circle(None, b) is None
+
+
+def test_an_angle_stays_on_its_side_between_the_stagnation_points():
+    # -90 deg is the front stagnation point, +90 the rear one (README convention)
+    from core.geometry import on_own_side
+
+    assert on_own_side(142.3) == 90.0 and on_own_side(-120.0) == -90.0
+    assert on_own_side(12.5) == 12.5

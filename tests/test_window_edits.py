@@ -14,11 +14,18 @@ from core.geometry import point_at_angle
 pytestmark = pytest.mark.qt_log_ignore("This plugin does not support propagateSizeHints")
 
 
+def _reviewing(main_window, qtbot, path, advance: bool = False):
+    """The window on ``path``, shown, the list holding the keys; after a decision it moves on
+    to the next shot to review only with ``advance``."""
+    window = _open(main_window, qtbot, path, show=True)
+    window.act_advance.setChecked(advance)
+    window.shot_list.view.setFocus()
+    return window
+
+
 def test_undo_and_redo_bring_the_shot_they_change_into_view(main_window, make_session, qtbot):
     path = make_session(3)
-    window = _open(main_window, qtbot, path, show=True)
-    window.act_advance.setChecked(True)
-    window.shot_list.view.setFocus()
+    window = _reviewing(main_window, qtbot, path, advance=True)
     _key(qtbot, window, Qt.Key.Key_A)  # s01 accepted; the window moves on to s02
     assert window.model.current_id == "s02"
     _key(qtbot, window, Qt.Key.Key_Z, Qt.KeyboardModifier.ControlModifier)
@@ -34,9 +41,7 @@ def test_undo_and_redo_bring_the_shot_they_change_into_view(main_window, make_se
 
 def test_an_undo_on_a_shot_the_filter_hides_says_so(main_window, make_session, qtbot):
     path = make_session(3)
-    window = _open(main_window, qtbot, path, show=True)
-    window.act_advance.setChecked(False)
-    window.shot_list.view.setFocus()
+    window = _reviewing(main_window, qtbot, path)
     _key(qtbot, window, Qt.Key.Key_A)  # s01 accepted
     window.shot_list.proxy.set_text("s02")
     window.model.set_current("s02")
@@ -64,9 +69,7 @@ def test_a_mark_dragged_round_the_back_stops_at_the_rear_stagnation_point(main_w
 def test_moving_a_mark_on_an_accepted_shot_says_it_is_now_adjusted(main_window, make_session,
                                                                    qtbot):
     path = make_session(2)
-    window = _open(main_window, qtbot, path, show=True)
-    window.act_advance.setChecked(False)
-    window.shot_list.view.setFocus()
+    window = _reviewing(main_window, qtbot, path)
     _key(qtbot, window, Qt.Key.Key_A)
     _key(qtbot, window, Qt.Key.Key_E)
     assert window.model.record("s01").pick.status == "adjusted"
@@ -79,9 +82,7 @@ def test_an_unusable_shot_says_so_over_its_picture(main_window, make_session, qt
     from test_window import reactivate
 
     path = make_session(2)
-    window = _open(main_window, qtbot, path, show=True)
-    window.act_advance.setChecked(False)
-    window.shot_list.view.setFocus()
+    window = _reviewing(main_window, qtbot, path)
     answer_dialog(lambda d: (d.setTextValue("laser sheet misfired"), d.accept()))
     _key(qtbot, window, Qt.Key.Key_U)
     reactivate(qtbot, window)
@@ -99,9 +100,7 @@ def test_the_unusable_question_has_no_reason_chosen_beforehand(main_window, make
     from test_window import reactivate
 
     path = make_session(2)
-    window = _open(main_window, qtbot, path, show=True)
-    window.act_advance.setChecked(False)
-    window.shot_list.view.setFocus()
+    window = _reviewing(main_window, qtbot, path)
     shown = {}
     answer_dialog(lambda d: (shown.update(text=d.textValue()), d.accept()))  # Enter at once
     _key(qtbot, window, Qt.Key.Key_U)
@@ -136,8 +135,7 @@ def test_stepping_past_the_end_of_the_list_says_so(main_window, make_session, qt
 
 
 def test_a_nudged_mark_stops_at_the_stagnation_point_too(main_window, make_session, qtbot):
-    window = _open(main_window, qtbot, make_session(2), show=True)
-    window.act_advance.setChecked(False)
+    window = _reviewing(main_window, qtbot, make_session(2))
     for _ in range(250):  # 0.5 deg a press, far past +90
         window.nudge("upper", 0.5)
     assert window.model.record("s01").final_deg("upper") == pytest.approx(90.0)

@@ -61,7 +61,7 @@ from app.qt.flow_layout import FlowLayout
 from app.qt.workers import later
 from app.review import colours
 from app.review.scales import shot_limit
-from core.geometry import SIDES, angle_of_point
+from core.geometry import SIDES, angle_of_point, on_own_side
 
 # Arrays are (row, column) = (y, x) everywhere in wakeline; run_window sets this too.
 pg.setConfigOptions(imageAxisOrder="row-major")
@@ -529,10 +529,9 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         if circle is None:
             return None
         pos = handle.pos()
-        angle = angle_of_point(circle[0], flight.direction_deg, handle.side, (pos.x(), pos.y()))
-        # a mark stays on its own side: dragged round the front or the back of the ball it
-        # stops at the stagnation point there instead of becoming the other side's angle
-        return min(max(angle, -90.0), 90.0)
+        # dragged round the front or the back of the ball, a mark stops at the stagnation point
+        return on_own_side(angle_of_point(circle[0], flight.direction_deg, handle.side,
+                                          (pos.x(), pos.y())))
 
     def _on_handle_moved(self, handle: MarkHandle) -> None:
         if self._placing or not handle.moving:

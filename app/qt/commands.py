@@ -12,6 +12,7 @@ from PySide6.QtGui import QUndoCommand
 
 from app.review.model import ReviewStatus, SessionModel, authorship, pick_values, proposals
 from core import WakelineError
+from core.geometry import on_own_side
 
 NUDGE_MERGE_ID = 4101  # consecutive nudges of one mark on one shot merge into one undo step
 
@@ -110,6 +111,7 @@ class MarkMove(PickEdit):
     def __init__(
         self, model: SessionModel, shot_id: str, side: str, angle_deg: float, nudge: bool = False
     ) -> None:
+        angle_deg = on_own_side(angle_deg)  # nudged or dragged past a stagnation point: there
         record = model.record(shot_id)
         # where both marks stood before this move (a run of merged nudges: before the first)
         self._shown_before = {s: record.shown_deg(s) for s in ("upper", "lower")}

@@ -298,8 +298,7 @@ class ReviewActions:
                                          "process it (Ctrl+Shift+P) first.", 6000)
             return
         current = self.canvas.mark_angle(side)
-        # a mark stays on its side, as a drag keeps it (the stagnation points bound it)
-        angle = min(max(round((0.0 if current is None else current) + step_deg, 6), -90.0), 90.0)
+        angle = round((0.0 if current is None else current) + step_deg, 6)
         self._move_mark(MarkMove(self.model, record.shot_id, side, angle, nudge=True))
 
     def _on_mark_released(self, side: str, angle_deg: float) -> None:
