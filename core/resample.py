@@ -3,8 +3,9 @@
 :func:`scipy.ndimage.map_coordinates` (order 3) is general: any mode, any dimension. Where every
 point's 4 x 4 taps lie inside the coefficients, the B-spline's weights can be worked out once
 per point and axis and the sums compiled, a few times quicker: a large shot's band pictures
-(half a million points each, :mod:`core.near_wall`) and the ball finder's rays
-(:mod:`core.ball.outline`) are resampled that way. Elsewhere scipy's own function is called.
+(half a million points each, :mod:`core.near_wall`), the ball finder's rays
+(:mod:`core.ball.outline`) and the PIV's deformed windows (:mod:`core.piv.deform`) are
+resampled that way. Elsewhere scipy's own function is called.
 The results equal scipy's to rounding (tests/test_separation_batched.py).
 """
 
@@ -63,22 +64,26 @@ def _samples(coefficients: np.ndarray, rows: np.ndarray, cols: np.ndarray) -> np
 
 @compiled
 def _cubic_samples(coefficients, rows, cols, out):
-    """Cubic B-spline interpolation of ``coefficients`` at ``(rows, cols)``, 2-D, each point
-    at least one sample inside the first and two inside the last row and column, into
-    ``out``."""
+    """:func:`cubic_spline_at` at each ``(rows[i, j], cols[i, j])`` (2-D) into ``out``."""
     for i in range(rows.shape[0]):
         for j in range(rows.shape[1]):
-            r, c = rows[i, j], cols[i, j]
-            r0, c0 = math.floor(r), math.floor(c)
-            wr = _cubic_weights(r - r0)
-            wc = _cubic_weights(c - c0)
-            total = 0.0
-            for a in range(4):
-                line = 0.0
-                for b in range(4):
-                    line += wc[b] * coefficients[r0 - 1 + a, c0 - 1 + b]
-                total += wr[a] * line
-            out[i, j] = total
+            out[i, j] = cubic_spline_at(coefficients, rows[i, j], cols[i, j])
+
+
+@compiled
+def cubic_spline_at(coefficients, r, c):
+    """Cubic B-spline interpolation of ``coefficients`` at ``(r, c)``, at least one sample
+    inside the first and two inside the last row and column, summed in double precision."""
+    r0, c0 = math.floor(r), math.floor(c)
+    wr = _cubic_weights(r - r0)
+    wc = _cubic_weights(c - c0)
+    total = 0.0
+    for a in range(4):
+        line = 0.0
+        for b in range(4):
+            line += wc[b] * coefficients[r0 - 1 + a, c0 - 1 + b]
+        total += wr[a] * line
+    return total
 
 
 @compiled

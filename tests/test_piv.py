@@ -408,6 +408,32 @@ def test_pixel_by_pixel_deformation_matches_map_coordinates_on_the_whole_frame()
         assert np.percentile(np.abs(deformed - expected)[:176, :176], 99) < 0.05 * 100
 
 
+def test_compiled_window_resampling_equals_map_coordinates_inside_and_past_the_padding():
+    # The deformed pixels are the cubic spline's values at x +- h(x) as scipy's map_coordinates
+    # gives them (reference library), to the last bit, whether the compiled loop samples them
+    # (taps inside the padded coefficients) or scipy does (a shift reaching past the padding).
+    from scipy import ndimage
+
+    from core.piv.deform import _Box, _warp_region
+
+    rng = np.random.default_rng(8)
+    coeff = ndimage.spline_filter(rng.random((40, 50)).astype(np.float32) * 100, order=3,
+                                  output=np.float32, mode="mirror")
+    box = _Box(4, 20, 6, 30)
+    pick = rng.random((16, 24)) < 0.6
+    for pad, reach in ((6, 3.5), (6, 12.0)):  # inside the padding, then well past it
+        half_x, half_y = (rng.uniform(-reach, reach, (16, 24)) for _ in range(2))
+        padded = np.pad(coeff, pad, mode="reflect")
+        out = np.full((40, 50), -1.0, np.float32)
+        _warp_region(padded, pad, out, box, pick, half_x, half_y, -1.0)
+        y, x = np.mgrid[box.r0:box.r1, box.c0:box.c1].astype(float) + pad
+        expected = ndimage.map_coordinates(padded, [y - half_y, x - half_x], order=3,
+                                           prefilter=False, output=np.float32)
+        inside = out[box.slices]
+        np.testing.assert_array_equal(inside[pick], expected[pick])
+        assert (inside[~pick] == -1.0).all() and (np.delete(out, np.s_[4:20], 0) == -1).all()
+
+
 def test_both_deformations_exclude_the_same_pixels_around_a_masked_sphere():
     # Masks move with the frames in both kinds of deformation: block by block (default) and
     # pixel by pixel (threshold 0) must exclude the same windows, and the vectors must agree

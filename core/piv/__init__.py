@@ -19,7 +19,8 @@ Method (each step a published one, named where it is used):
    frame its way): a constant
    shift of the spline is a separable 4-tap filter, several times cheaper than resampling
    pixel by pixel, and a window of whole blocks sees the same mean shift. Only the windows
-   with real gradients are resampled pixel by pixel (``ndimage.map_coordinates``).
+   with real gradients are resampled pixel by pixel (scipy's ``map_coordinates`` numbers,
+   compiled: ``core.resample``).
 3. The peak is refined by a three-point Gaussian fit per axis, after dividing the three samples
    by the overlap weight ``1 - |s|/D`` of a circular correlation of ``D``-wide windows (the
    bias of un-normalised FFT correlation, Westerweel 1997).

@@ -13,8 +13,10 @@ import numpy as np
 from numpy.lib.stride_tricks import sliding_window_view
 from scipy import ndimage
 
+from core.compiled import compiled
 from core.piv.grid import Grid, interpolate_grid
 from core.piv.predictor import Predictor
+from core.resample import cubic_spline_at
 
 
 @dataclass
@@ -275,22 +277,42 @@ def _covered(rows, cols, size: int, shape) -> np.ndarray:
 
 def _warp_region(padded, pad: int, out, box: _Box, pick, half_x, half_y, sign) -> None:
     """The picked pixels of ``box`` in ``out``: the cubic spline with coefficients ``padded``
-    (by ``pad`` px) sampled at ``x + sign * h(x)`` (``ndimage.map_coordinates``)."""
+    (by ``pad`` px) sampled at ``x + sign * h(x)``, the numbers of scipy's
+    ``map_coordinates`` (order 3, no prefilter), which stands in should a point's taps reach
+    beyond the padding."""
+    target = out[box.slices]
+    if _warped_samples(padded, box.r0 + pad, box.c0 + pad, half_x, half_y, sign, pick, target):
+        return
     y = np.arange(box.r0 + pad, box.r1 + pad, dtype=np.float64)
     x = np.arange(box.c0 + pad, box.c1 + pad, dtype=np.float64)
-    target = out[box.slices]
-    if pick.all():
-        coords = np.empty((2,) + pick.shape)
-        np.add(y[:, None], sign * half_y, out=coords[0])
-        np.add(x[None, :], sign * half_x, out=coords[1])
-        values = target
-    else:
-        r, c = np.nonzero(pick)
-        coords = np.stack([y[r] + sign * half_y[r, c], x[c] + sign * half_x[r, c]])
-        values = np.empty(r.size, np.float32)
-    ndimage.map_coordinates(padded, coords, output=values, order=3, prefilter=False)
-    if not pick.all():
-        target[r, c] = values
+    r, c = np.nonzero(pick)
+    coords = np.stack([y[r] + sign * half_y[r, c], x[c] + sign * half_x[r, c]])
+    target[r, c] = ndimage.map_coordinates(padded, coords, order=3, prefilter=False,
+                                           output=np.float32)
+
+
+# Compiled (numba) rather than map_coordinates on coordinate arrays: working the coordinates
+# out with numpy cost as much as the sampling, and a large shot's fine correlation resamples
+# a million pixels or more per frame and pass.
+@compiled
+def _warped_samples(padded, row0, col0, half_x, half_y, sign, pick, out) -> bool:
+    """``out[i, j] = spline(row0 + i + sign * half_y[i, j], col0 + j + sign * half_x[i, j])``
+    where ``pick``, or False (nothing written) when a point's taps reach beyond ``padded``."""
+    rows, cols = pick.shape
+    for i in range(rows):
+        for j in range(cols):
+            if pick[i, j]:
+                r = (row0 + i) + sign * half_y[i, j]
+                c = (col0 + j) + sign * half_x[i, j]
+                if not (1.0 <= r <= padded.shape[0] - 3.0 and 1.0 <= c <= padded.shape[1] - 3.0):
+                    return False
+    for i in range(rows):
+        for j in range(cols):
+            if pick[i, j]:
+                r = (row0 + i) + sign * half_y[i, j]
+                c = (col0 + j) + sign * half_x[i, j]
+                out[i, j] = cubic_spline_at(padded, r, c)
+    return True
 
 
 @dataclass(frozen=True)
