@@ -41,15 +41,19 @@ def flight_checks(summary: ShotSummary, metadata: dict | None = None,
     metadata : dict, optional
         The shot's manifest values (``speed_nominal_m_s``, ``flight_deg``).
     usual_direction_deg : float, optional
-        The direction most shots of the session fly in (``usual_direction``).
+        The direction most shots of the session fly in (``usual_direction``): checked only
+        where the manifest gives no ``flight_deg``, so that a session launched both ways on
+        purpose, each shot's direction in its manifest, is not flagged.
     """
     metadata = metadata or {}
     checks = list(summary.ball_warnings)
     flight = summary.flight
     if flight is not None:
         checks += _speed_check(flight.speed_m_s, _number(metadata.get("speed_nominal_m_s")))
-        checks += _moved_check(flight, _number(metadata.get("flight_deg")))
-        checks += _usual_check(flight.direction_deg, usual_direction_deg)
+        manifest_deg = _number(metadata.get("flight_deg"))
+        checks += _moved_check(flight, manifest_deg)
+        if manifest_deg is None:  # a direction the manifest states is the one to check against
+            checks += _usual_check(flight.direction_deg, usual_direction_deg)
     checks += _radius_check(summary)
     checks += _wake_check(summary.separation.wake_deflection_deg)
     return checks
@@ -120,8 +124,12 @@ def _usual_check(direction: float, usual: float | None) -> list[str]:
     gap = _turn(direction, usual)
     if abs(gap) <= DIRECTION_TOLERANCE_DEG:
         return []
-    return [(f"flight direction {direction:.1f}° is {abs(gap):.0f}° from the {usual:.1f}° most "
-            "shots of the session fly in")]
+    line = (f"flight direction {direction:.1f}° is {abs(gap):.0f}° from the {usual:.1f}° most "
+            "shots of the session fly in")
+    if abs(gap) >= 180.0 - DIRECTION_TOLERANCE_DEG:
+        line += (": frames A and B swapped (frames_swapped), or launched the other way on "
+                 "purpose (then give its flight_deg in shots.csv)")
+    return [line]
 
 
 def _radius_check(summary: ShotSummary) -> list[str]:

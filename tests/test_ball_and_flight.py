@@ -141,6 +141,13 @@ def test_an_implausible_ball_or_flight_is_flagged():
                         "direction 0°: the manifest's flight_deg is the wrong way round, or the "
                         "frames are swapped (frames_swapped); correct shots.csv and import it "
                         "again with --correct-values")]
+    # flying the other way from most shots: swapped frames, or meant (stated in the manifest)
+    back = flight_checks(_summary(direction=0.0, displacement=(8.0, 0.0)), {}, 180.0)
+    assert back == [("flight direction 0.0° is 180° from the 180.0° most shots of the session "
+                     "fly in: frames A and B swapped (frames_swapped), or launched the other "
+                     "way on purpose (then give its flight_deg in shots.csv)")]
+    assert flight_checks(_summary(direction=0.0, displacement=(8.0, 0.0)), {"flight_deg": 0.0},
+                         180.0) == []
     radii = flight_checks(_summary(radii=(56.0, 60.0)))
     assert radii == [("the ball's circles in frames A and B differ in radius (56.0 vs 60.0 px): "
                      "one of them is off")]
