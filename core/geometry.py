@@ -10,6 +10,10 @@ import math
 
 SIDES = ("upper", "lower")
 VERTICAL_TIE_DEG = 1.0  # flights this close to vertical use the left/right tie-break
+#: Flight directions (deg) where :func:`upper_normal` turns from one side of the ball to the
+#: other: the end of the tie-break past each vertical (upper is the left side from the
+#: horizontal up to them, the right side beyond).
+SIDES_SWAP_DEG = (90.0 + VERTICAL_TIE_DEG, 270.0 + VERTICAL_TIE_DEG)
 
 
 def flight_unit(direction_deg: float) -> tuple[float, float]:

@@ -23,6 +23,10 @@ RADIUS_TOLERANCE = 0.03
 #: The wake may leave this far (deg) from the flight axis; spin and seams turn wakes by some
 #: degrees, not tens.
 WAKE_TOLERANCE_DEG = 20.0
+#: A flight this close (deg, or three of its standard uncertainties if more) to where the
+#: names of the sides change places (``core.geometry.SIDES_SWAP_DEG``) is flagged: a launcher's
+#: shots scatter by a few degrees, and those on the far side name the sides the other way.
+SIDES_SWAP_MARGIN_DEG = 5.0
 #: Shots needed for the session's usual direction, and the share of them that must agree.
 USUAL_MIN_SHOTS = 3
 USUAL_MIN_SHARE = 0.5
@@ -52,6 +56,7 @@ def flight_checks(summary: ShotSummary, metadata: dict | None = None,
         checks += _speed_check(flight.speed_m_s, _number(metadata.get("speed_nominal_m_s")))
         manifest_deg = _number(metadata.get("flight_deg"))
         checks += _moved_check(flight, manifest_deg)
+        checks += _sides_swap_check(flight.direction_deg, flight.direction_sigma_deg)
         if manifest_deg is None:  # a direction the manifest states is the one to check against
             checks += _usual_check(flight.direction_deg, usual_direction_deg)
     checks += _radius_check(summary)
@@ -130,6 +135,21 @@ def _usual_check(direction: float, usual: float | None) -> list[str]:
         line += (": frames A and B swapped (frames_swapped), or launched the other way on "
                  "purpose (then give its flight_deg in shots.csv)")
     return [line]
+
+
+def _sides_swap_check(direction: float, sigma: float | None) -> list[str]:
+    """A flight near vertical, where upper and lower change places (README, Conventions)."""
+    from core.geometry import SIDES_SWAP_DEG
+
+    margin = max(SIDES_SWAP_MARGIN_DEG, 3.0 * sigma if sigma and math.isfinite(sigma) else 0.0)
+    for swap in SIDES_SWAP_DEG:
+        gap = _turn(direction, swap)
+        if abs(gap) <= margin:
+            return [(f"flight direction {direction:.1f}° is {abs(gap):.1f}° from {swap:g}°, "
+                     "where upper and lower change places (upper: toward the top of the "
+                     "picture, toward its left within 1° of vertical): a shot flying on the "
+                     "other side of it names the two sides the other way round")]
+    return []
 
 
 def _radius_check(summary: ShotSummary) -> list[str]:

@@ -148,6 +148,14 @@ def test_an_implausible_ball_or_flight_is_flagged():
                      "way on purpose (then give its flight_deg in shots.csv)")]
     assert flight_checks(_summary(direction=0.0, displacement=(8.0, 0.0)), {"flight_deg": 0.0},
                          180.0) == []
+    # near vertical, where the sides change names (README, Conventions): flagged within 5 deg
+    up = flight_checks(_summary(direction=88.0, displacement=(0.3, -8.0)))
+    assert up == [("flight direction 88.0° is 3.0° from 91°, where upper and lower change "
+                   "places (upper: toward the top of the picture, toward its left within 1° of "
+                   "vertical): a shot flying on the other side of it names the two sides the "
+                   "other way round")]
+    assert flight_checks(_summary(direction=84.0, displacement=(0.8, -8.0))) == []
+    assert "from 271°" in flight_checks(_summary(direction=275.0, displacement=(0.7, 8.0)))[0]
     radii = flight_checks(_summary(radii=(56.0, 60.0)))
     assert radii == [("the ball's circles in frames A and B differ in radius (56.0 vs 60.0 px): "
                      "one of them is off")]

@@ -4,7 +4,7 @@ import math
 
 import pytest
 
-from core.geometry import angle_of_point, point_at_angle, side_normal, upper_normal
+from core.geometry import SIDES_SWAP_DEG, angle_of_point, point_at_angle, side_normal, upper_normal
 
 
 @pytest.mark.parametrize("direction_deg", [0.0, 180.0, 5.0, -5.0, 175.0, 185.0, 30.0, 150.0])
@@ -18,6 +18,22 @@ def test_upper_side_is_toward_top_of_picture(direction_deg):
 def test_vertical_flight_tie_break_is_left_of_picture(direction_deg):
     nx, _ = upper_normal(direction_deg)
     assert nx < 0
+
+
+@pytest.mark.parametrize("swap", SIDES_SWAP_DEG)
+def test_the_sides_change_places_only_where_the_plausibility_check_says(swap):
+    # Going round the flight directions in steps of 0.05 deg, the upper normal turns with the
+    # flight (by the step) everywhere but at the end of each tie-break, where it jumps to the
+    # other side of the ball (README, Conventions; derived): there the plausibility check warns.
+    jumps = []
+    for i in range(7200):
+        d0, d1 = i * 0.05, (i + 1) * 0.05
+        (ax, ay), (bx, by) = upper_normal(d0), upper_normal(d1)
+        if ax * bx + ay * by < 0:
+            jumps.append(round(d1, 2))
+    assert jumps == [pytest.approx(s, abs=0.051) for s in SIDES_SWAP_DEG]
+    (ax, ay), (bx, by) = upper_normal(swap - 0.1), upper_normal(swap + 0.1)
+    assert ax < 0 < bx  # from the picture's left to its right
 
 
 def test_zero_angle_lies_on_plane_normal_to_flight():
