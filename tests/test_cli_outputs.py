@@ -100,3 +100,19 @@ def test_an_output_reached_by_a_link_is_written_where_the_link_points(session_pa
     link.symlink_to(target)
     assert main(["table", str(session_path), "-o", str(link)]) == 0
     assert link.is_symlink() and target.read_text().startswith("shot,")
+
+
+@pytest.mark.parametrize("command", ["table", "sheet"])
+def test_an_output_that_is_a_pipe_is_refused_and_left_a_pipe(session_path, tmp_path, command,
+                                                             capsys):
+    # outputs are written beside and renamed over: a pipe (or a device) would be replaced by an
+    # ordinary file while its reader got nothing
+    import os
+    import stat
+
+    out = tmp_path / "out.pipe"
+    os.mkfifo(out)
+    assert main([command, str(session_path), "-o", str(out)]) == 1
+    assert capsys.readouterr().err == (f"wakeline: {out}: is not an ordinary file (a pipe or a "
+                                       "device); give the name of a file to write\n")
+    assert stat.S_ISFIFO(out.stat().st_mode)

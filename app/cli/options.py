@@ -108,7 +108,9 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
     Raises
     ------
     WakelineError
-        "OUT: is ...; choose another output file", or "OUT: is a folder; ...".
+        "OUT: is ...; choose another output file", "OUT: is a folder; ..." or "OUT: is not
+        an ordinary file ..." (outputs are written beside and renamed over: a pipe or a device
+        would be replaced by a file).
     """
     from core.store.companions import refuse_input_file, refuse_session_file
     from core.store.files import same_place
@@ -117,6 +119,9 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
     for out in (Path(o) for o in outputs if o is not None):
         if out.is_dir():
             raise WakelineError(f"{out}: is a folder; give the name of the file to write in it")
+        if out.exists() and not out.is_file():  # a pipe or a device is replaced, not written
+            raise WakelineError(f"{out}: is not an ordinary file (a pipe or a device); give "
+                                "the name of a file to write")
         if session is not None:
             refuse_session_file(out, Path(session))
         refuse_input_file(out, inputs)
