@@ -102,6 +102,10 @@ def _grow_glare(saturated: np.ndarray, mask: np.ndarray, origin, min_area_px: in
         mask[y0:y1, x0:x1] |= ndimage.distance_transform_edt(~blob) <= grow
 
 
+#: How a camera position's background is made (``ShotSettings.background``).
+BACKGROUND_METHODS = ("min", "median")
+
+
 def background_image(frames: Sequence[np.ndarray] | np.ndarray, method: str = "min") -> np.ndarray:
     """Background of a camera position: the per-pixel minimum or median over several frames.
 
@@ -132,7 +136,7 @@ def background_image(frames: Sequence[np.ndarray] | np.ndarray, method: str = "m
         return out
     if method == "median":
         return np.median(np.stack(stack), axis=0).astype(np.float32)
-    raise WakelineError(f"background: unknown method {method!r} (use min or median)")
+    raise WakelineError(f"background: unknown method {method!r} (use {' or '.join(BACKGROUND_METHODS)})")
 
 
 def subtract_background(

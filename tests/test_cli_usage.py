@@ -12,6 +12,7 @@ from data.session_helpers import FAST_PIV, write_shot_folder
 
 from app.cli import main
 from core import WakelineError
+from core.shot_result import ShotSettings
 from core.store import Session, import_folder
 
 
@@ -60,14 +61,35 @@ def test_bad_inline_settings_are_one_line_bad_usage(session_path, capsys):
     ('{"find_ball": "false"}', 'settings: find_ball must be true or false, not "false"'),
     ('{"normalise_spacings": "3"}',
      'settings: normalise_spacings must be a finite number or null, not "3"'),
-], ids=["piv a number", "passes a word", "switch a word", "number a word"])
+    ('{"background": "mean"}', 'settings: background must be min or median or null, not "mean"'),
+    ('{"normalise_spacings": -3}',
+     "settings: normalise_spacings must be 0 or more (0 or null: no normalisation), not -3"),
+], ids=["piv a number", "passes a word", "switch a word", "number a word", "no such background",
+        "negative spacings"])
 def test_settings_of_the_wrong_kind_are_refused_in_one_line(session_path, settings, said,
                                                             capsys):
     # values of the wrong kind were once taken at Python's word ("false" switched a step on)
-    # or ended in an internal error
+    # or ended in an internal error; values out of range were kept in the session and then
+    # refused by every later run
+    with Session.open(session_path, writable=False) as s:
+        before = s.processing_settings()
     code = main(["process", str(session_path), "--settings", settings, "--quiet"])
     err = capsys.readouterr().err.strip()
     assert code == 1 and err == f"wakeline: {said}"
+    with Session.open(session_path, writable=False) as s:
+        assert s.processing_settings() == before
+
+
+@pytest.mark.parametrize(("settings", "said"), [
+    ({"scale_mm_per_px": 0}, "settings: scale_mm_per_px must be above 0 or null, not 0"),
+    ({"ball_diameter_mm": -72}, "settings: ball_diameter_mm must be above 0 or null, not -72"),
+    ({"ball_type": "tennis"},
+     "settings: ball type 'tennis': unknown (known: baseball, cricket, softball)"),
+])
+def test_a_shots_own_settings_out_of_range_are_refused(settings, said):
+    with pytest.raises(WakelineError) as refused:
+        ShotSettings.from_dict(settings, strict=True)
+    assert str(refused.value) == said
 
 
 def help_text(command: str, capsys) -> str:
