@@ -203,7 +203,7 @@ def measure_task(task: dict, piv_threads: int | None = None):
     try:
         frame_a, frame_b = in_exposure_order(*read_frames(shot_id, task["source"]),
                                              settings.frames_swapped)
-        background = np.load(task["background"]) if task.get("background") else None
+        background = _background_for(task, frame_a)
         # The thread count changes speed, not the result; the stored settings stay the session's.
         run_settings = settings if piv_threads is None else replace(
             settings, piv=replace(settings.piv, workers=piv_threads))
@@ -230,8 +230,10 @@ BACKGROUND_SHOTS = 24
 
 def _backgrounds(session: Session, tasks: list[dict]):
     """Background images for the tasks whose settings ask for one, per camera position (the
-    manifest's ``camera`` column; one position when there is none), written to a temporary
-    folder that the returned context removes; each such task gets its file's path."""
+    manifest's ``camera`` column; one position when there is none) and frame size, written to
+    a temporary folder that the returned context removes; each such task gets the paths by
+    frame size (:func:`_background_for` picks its own). A shot whose frames cannot be read or
+    differ in size is left out of the background (it fails on its own if it is measured)."""
     import tempfile
     from contextlib import ExitStack
 
@@ -247,17 +249,64 @@ def _backgrounds(session: Session, tasks: list[dict]):
         camera = str(session[task["shot_id"]].metadata.get("camera") or "")
         groups.setdefault((camera, task["settings"]["background"]), []).append(task)
     for index, ((camera, method), members) in enumerate(groups.items()):
-        ids = [shot_id for shot_id in session
-               if str(session[shot_id].metadata.get("camera") or "") == camera][:BACKGROUND_SHOTS]
-        frames = [f for shot_id in ids
-                  for f in read_frames(shot_id, session.frame_source(shot_id))]
-        path = folder / f"background-{index}.npy"
-        # one shot's two frames: their median is their mean, which holds half of each frame's
-        # particle images; their minimum keeps only the light both share
-        np.save(path, background_image(frames, method if len(ids) > 1 else "min"))
+        paths = {}
+        for size, pairs in _frames_by_size(session, camera).items():
+            path = folder / f"background-{index}-{size}.npy"
+            # one shot's two frames: their median is their mean, which holds half of each
+            # frame's particle images; their minimum keeps only the light both share
+            frames = [f for pair in pairs for f in pair]
+            np.save(path, background_image(frames, method if len(pairs) > 1 else "min"))
+            paths[size] = str(path)
         for task in members:
-            task["background"] = str(path)
+            task["background"] = {"camera": camera, "paths": paths}
     return stack
+
+
+def _frames_by_size(session: Session, camera: str) -> dict[str, list]:
+    """Frame pairs of the first ``BACKGROUND_SHOTS`` readable shots at a camera position, by
+    frame size (``"WxH"``)."""
+    by_size: dict[str, list] = {}
+    taken = 0
+    for shot_id in session:
+        if str(session[shot_id].metadata.get("camera") or "") != camera:
+            continue
+        try:
+            a, b = read_frames(shot_id, session.frame_source(shot_id))
+        except (WakelineError, OSError):
+            continue
+        if a.shape != b.shape:
+            continue
+        by_size.setdefault(_size(a), []).append((a, b))
+        taken += 1
+        if taken == BACKGROUND_SHOTS:
+            break
+    return by_size
+
+
+def _size(frame) -> str:
+    return f"{frame.shape[1]}x{frame.shape[0]}"
+
+
+def _background_for(task: dict, frame) -> np.ndarray | None:
+    """The background of a task's camera position and frame size, None when it asks for none.
+
+    Raises
+    ------
+    WakelineError
+        When none of the position's first shots has frames of its size.
+    """
+    given = task.get("background")
+    if not given:
+        return None
+    path = given["paths"].get(_size(frame))
+    if path is None:
+        where = f"camera {given['camera']!r}" if given["camera"] else "the camera position"
+        sizes = ", ".join(given["paths"]) or "none readable"
+        raise WakelineError(
+            f"background: no shot of {where} among its first {BACKGROUND_SHOTS} has frames of "
+            f"{_size(frame)} px ({sizes}); give shots of another size their own camera in "
+            "shots.csv")
+    return np.load(path)
 
 
 def _runner(workers: int | None, scheduler):

@@ -197,7 +197,7 @@ def test_a_session_background_is_taken_from_the_frames_and_subtracted(session_pa
 
 def test_a_camera_position_of_one_shot_takes_the_minimum_of_its_two_frames(tmp_path):
     # the median of two frames is their mean, which holds half of each frame's particle images
-    from core.batch import _backgrounds
+    from core.batch import _background_for, _backgrounds
 
     src = write_shot_folder(tmp_path / "src", 3)
     lines = (src / "shots.csv").read_text().splitlines()
@@ -208,12 +208,50 @@ def test_a_camera_position_of_one_shot_takes_the_minimum_of_its_two_frames(tmp_p
     with Session.open(tmp_path / "s.h5") as s:
         tasks = [{"shot_id": shot_id, "settings": {"background": "median"}} for shot_id in s]
         with _backgrounds(s, tasks):
-            alone, shared = (np.load(t["background"]) for t in tasks[:2])
+            alone, shared = (_background_for(t, first) for t, first in zip(
+                tasks[:2], (read_frames(i, s.frame_source(i))[0] for i in ("S0", "S1")),
+                strict=True))
             first = read_frames("S0", s.frame_source("S0"))
             assert np.array_equal(alone, np.minimum(*first))
             two = [f for shot_id in ("S1", "S2") for f in read_frames(shot_id,
                                                                    s.frame_source(shot_id))]
             assert np.allclose(shared, np.median(two, axis=0))
+
+
+def test_a_background_is_made_per_frame_size_and_an_unreadable_shot_stops_only_itself(
+        tmp_path, monkeypatch):
+    # one camera position whose shots were cropped two ways, one of them since damaged: each
+    # size gets the per-pixel minimum of its own shots' frames, the damaged shot fails alone (a
+    # run once stopped at "the frames differ in shape" with nothing processed)
+    import tifffile
+
+    import core.shot
+
+    seen = {}
+    measure = core.shot.measure_shot
+
+    def spy(frame_a, frame_b, settings, progress=None, background=None):
+        seen[frame_a.shape] = background
+        return measure(frame_a, frame_b, settings, progress, background=background)
+
+    monkeypatch.setattr(core.shot, "measure_shot", spy)
+    src = write_shot_folder(tmp_path / "src", 5)
+    for shot_id in ("S3", "S4"):
+        for frame in ("a", "b"):
+            path = src / f"{shot_id}_{frame}.tif"
+            tifffile.imwrite(path, tifffile.imread(path)[:, :-16])
+    import_folder(src, tmp_path / "s.h5")
+    (src / "S2_b.tif").write_bytes(b"not a picture")
+    with Session.open(tmp_path / "s.h5") as s:
+        settings = fast_settings()
+        settings["background"] = "min"
+        s.set_processing_settings(settings)
+        report = process_shots(s, workers=0)
+        assert sorted(report.processed) == ["S0", "S1", "S3", "S4"]
+        assert list(report.failed) == ["S2"] and "S2_b.tif" in report.failed["S2"]
+        for group in (("S0", "S1"), ("S3", "S4")):
+            frames = [f for i in group for f in read_frames(i, s.frame_source(i))]
+            assert np.array_equal(seen[frames[0].shape], np.min(frames, axis=0))
 
 
 def test_a_session_with_nothing_to_process_runs_no_workers(session_path):
@@ -307,3 +345,15 @@ def test_a_shot_the_camera_wrote_the_other_way_round_is_measured_and_shown_as_ex
     with Session.open(tmp_path / "s.h5", writable=False) as s:
         _, file_b = read_frames("S1", s.frame_source("S1"))
     np.testing.assert_array_equal(shown_a, file_b)  # the file named B, exposed first
+
+
+def test_a_frame_size_without_a_background_is_named_with_the_camera():
+    from core.batch import BACKGROUND_SHOTS, _background_for
+
+    task = {"background": {"camera": "left", "paths": {"256x192": "unused.npy"}}}
+    with pytest.raises(WakelineError) as refused:
+        _background_for(task, np.zeros((100, 120)))
+    assert str(refused.value) == (
+        f"background: no shot of camera 'left' among its first {BACKGROUND_SHOTS} has frames "
+        "of 120x100 px (256x192); give shots of another size their own camera in shots.csv")
+    assert _background_for({"shot_id": "S0"}, np.zeros((100, 120))) is None
