@@ -234,3 +234,29 @@ def test_one_value_on_the_axis_gets_a_readable_range(qtbot):
     qtbot.wait(50)
     low, high = view.viewRange()[0]
     assert low < 0.0 and high > 40.0 and high - low < 60.0  # two values: the automatic range
+    axis = panel.plot.getPlotItem().getAxis("bottom")
+    assert axis._tickLevels is None  # evenly spread ticks
+    # five shots alike (one seam): shown side by side about 20, the axis labelled 20 alone
+    # (ticks at 19.98, 19.99, ... read as a seam sweep)
+    panel.set_records([_record(f"s{i}", 20.0, up=-9.0, low=2.0) for i in range(5)])
+    qtbot.wait(50)
+    low, high = view.viewRange()[0]
+    assert low == pytest.approx(19.0) and high == pytest.approx(21.0)
+    assert axis._tickLevels == [[(20.0, "20")]]
+
+
+def test_one_value_alike_on_every_shot_is_drawn_at_its_own_scale():
+    # a column such as dt_s (6e-05 s on every shot) was spread by hundredths of its unit, and
+    # the sheet's axis ran from -0.1 to 0.1
+    from app.review.overview import OverviewPoints
+
+    n = 4
+    points = OverviewPoints("dt_s", [f"s{i}" for i in range(n)], np.full(n, 6e-5),
+                            np.full(n, -9.0), np.full(n, 2.0), ["to review"] * n,
+                            np.zeros(n, bool))
+    assert points.single_x() == 6e-5
+    low, high = points.single_x_range()
+    assert low == pytest.approx(5.7e-5) and high == pytest.approx(6.3e-5)
+    assert np.all(np.abs(points.drawn_x() - 6e-5) <= 0.5 * (high - 6e-5))
+    points.x[0] = 7e-5
+    assert points.single_x() is None and points.single_x_range() is None

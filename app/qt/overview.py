@@ -210,13 +210,15 @@ class SessionOverview(QtWidgets.QWidget):
 
     def _widen_single_value(self, pts: OverviewPoints) -> None:
         """One value on the horizontal axis (one shot, or a column alike on every shot): the
-        automatic range would zoom to a few thousandths around it; show 5 % of it (at least 1)
-        either side instead."""
-        xs = pts.drawn_x()
-        xs = xs[np.isfinite(xs)]
-        if xs.size and np.ptp(pts.x[np.isfinite(pts.x)]) == 0:
-            pad = max(1.0, 0.05 * abs(float(xs.mean())))
-            self.plot.getPlotItem().setXRange(xs.min() - pad, xs.max() + pad, padding=0)
+        automatic range would zoom to the side-by-side spread around it, with ticks between
+        the shots that read as a sweep; show it alone, its one tick labelled."""
+        axis = self.plot.getPlotItem().getAxis("bottom")
+        single = pts.single_x_range()
+        if single is None:
+            axis.setTicks(None)
+            return
+        axis.setTicks([[(pts.single_x(), f"{pts.single_x():g}")]])
+        self.plot.getPlotItem().setXRange(*single, padding=0)
 
     def _draw_links(self, pts: OverviewPoints) -> None:
         both = np.isfinite(pts.upper_deg) & np.isfinite(pts.lower_deg)

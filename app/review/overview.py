@@ -55,9 +55,27 @@ class OverviewPoints:
         """``x`` with shots that share a value set side by side, so repeats stay visible."""
         return spread_ties(self.x)
 
+    def single_x(self) -> float | None:
+        """The one value every drawn shot has (one shot, or a column alike on all), else None:
+        the axis then shows that value alone, not ticks between the side-by-side shots."""
+        finite = self.x[np.isfinite(self.x)]
+        return float(finite[0]) if finite.size and np.ptp(finite) == 0 else None
+
+    def single_x_range(self) -> tuple[float, float] | None:
+        """The horizontal range about :meth:`single_x` (5 % of it, at least twice the
+        side-by-side spread), or None."""
+        value = self.single_x()
+        if value is None:
+            return None
+        xs = self.drawn_x()
+        spread = float(np.nanmax(np.abs(xs - value)))
+        pad = max(0.05 * (abs(value) or 1.0), 2.0 * spread)
+        return value - pad, value + pad
+
 
 def spread_ties(x: np.ndarray, fraction: float = 0.012) -> np.ndarray:
-    """Offset equal values symmetrically by ``fraction`` of the data range (or of 1) each.
+    """Offset equal values symmetrically by ``fraction`` of the data range each (of the value
+    itself, or of 1 at 0, where every value is the same).
 
     Parameters
     ----------
@@ -73,7 +91,7 @@ def spread_ties(x: np.ndarray, fraction: float = 0.012) -> np.ndarray:
     if x.size < 2:
         return out
     span = float(x.max() - x.min())
-    step = fraction * (span if span > 0 else 1.0)
+    step = fraction * (span if span > 0 else (abs(float(x[0])) or 1.0))
     for value in np.unique(x):
         where = np.flatnonzero(x == value)
         out[where] = value + (np.arange(where.size) - (where.size - 1) / 2) * step

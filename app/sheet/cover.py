@@ -123,16 +123,20 @@ def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints
     pad = max(2.0, 0.08 * (yhi - ylo))
     ylo, yhi = ylo - pad, yhi + pad
     xs = pts.drawn_x()
-    xlo, xhi = (float(xs.min()), float(xs.max())) if len(pts) else (0.0, 1.0)
-    xpad = 0.06 * (xhi - xlo) if xhi > xlo else 1.0
-    xlo, xhi = xlo - xpad, xhi + xpad
+    single = pts.single_x_range()
+    if single is not None:
+        xlo, xhi = single
+    else:
+        xlo, xhi = float(xs.min()), float(xs.max())
+        xlo, xhi = xlo - 0.06 * (xhi - xlo), xhi + 0.06 * (xhi - xlo)
 
     def to_page(xv: float, yv: float) -> QtCore.QPointF:
         px = plot.left() + (xv - xlo) / (xhi - xlo) * plot.width()
         py = plot.bottom() - (yv - ylo) / (yhi - ylo) * plot.height()
         return QtCore.QPointF(px, py)
 
-    paint_axes(p, plot, (xlo, xhi), (ylo, yhi), to_page, pts.column)
+    paint_axes(p, plot, (xlo, xhi), (ylo, yhi), to_page, pts.column,
+               x_ticks=None if single is None else [pts.single_x()])
     p.setClipRect(plot)
     p.setPen(pen(colours.PLANE_LINE, 0.3, QtCore.Qt.PenStyle.DashLine))
     p.drawLine(to_page(xlo, 0.0), to_page(xhi, 0.0))
@@ -166,10 +170,11 @@ def _paint_error_bars(p, pts: OverviewPoints, xs: np.ndarray, to_page) -> None:
                            QtCore.QPointF(end.x() + cap, end.y()))
 
 
-def paint_axes(p, plot: QtCore.QRectF, xr, yr, to_page, column: str) -> None:
+def paint_axes(p, plot: QtCore.QRectF, xr, yr, to_page, column: str, x_ticks=None) -> None:
+    """Grid, tick labels, frame and axis titles; ``x_ticks`` in place of evenly spread ones."""
     grid = pen(colours.RULE, 0.15)
     p.setPen(grid)
-    for xv in nice_ticks(*xr, 8):
+    for xv in nice_ticks(*xr, 8) if x_ticks is None else x_ticks:
         a = to_page(xv, yr[0])
         p.setPen(grid)
         p.drawLine(a, QtCore.QPointF(a.x(), plot.top()))
