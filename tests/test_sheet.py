@@ -190,6 +190,31 @@ def test_the_conditions_page_gives_upper_minus_lower_as_the_rest_of_the_sheet(re
     assert angle_text(difference) in conditions and angle_text(-difference) not in conditions
 
 
+def test_the_conditions_page_is_the_sessions_whichever_shots_are_printed(reviewed_session,
+                                                                           tmp_path):
+    """A sheet of chosen shots still summarises each condition over all its shots (as
+    ``wakeline conditions`` and ``table --by`` do), and says so: a summary of the chosen few
+    (say the adjusted ones) would read as the condition's."""
+    from pypdf import PdfReader
+
+    from app.sheet import make_sheet
+    from core.store import Session
+
+    pages = {}
+    with Session.open(reviewed_session, writable=False) as session:
+        count = len(session)
+        for name, shots in (("all", None), ("one", ["s01"])):
+            make_sheet(session, tmp_path / f"{name}.pdf", shot_ids=shots, per_page=2)
+            text = PdfReader(str(tmp_path / f"{name}.pdf")).pages[1].extract_text()
+            # the page from its title on (the header counts the sheet's pages)
+            pages[name] = re.sub(r"\s+", " ", text).split("Separation by condition", 1)[1]
+    said = f" (all {count} of the session's shots, not only the 1 this sheet prints)"
+    assert said not in pages["all"] and said in pages["one"]
+    # the plot and the table alike (after the note, whose lines break otherwise)
+    plots = [pages[name].split("seam_deg separation angle", 1)[1] for name in ("one", "all")]
+    assert plots[0] == plots[1] and "-10 1 of 1" in plots[0]
+
+
 def test_parse_statuses():
     from app.sheet import parse_statuses
     from core import WakelineError

@@ -41,8 +41,9 @@ def conditions_page_count(conditions) -> int:
 
 
 def paint_conditions_page(pages: Pages, session, records, conditions, by,
-                          ensembles=None) -> None:
-    """The summary page (and continuation pages for a long table)."""
+                          ensembles=None, printed: int | None = None) -> None:
+    """The summary page (and continuation pages for a long table) of the session's
+    ``records``; ``printed``: how many of them the sheet prints, when not all."""
     p = pages.painter
     pages.new_page("conditions")
     x, y, w, _h = pages.body()
@@ -50,7 +51,11 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
          colour=colours.ACCENT)
     y += 7.5
     same = common_text(conditions)
-    note = (f"Shots grouped by {', '.join(by)}" + (f"; every condition: {same}" if same else "")
+    whole = ("" if printed is None or printed >= len(records) else
+             f" (all {len(records)} of the session's shots, not only the {printed} this sheet "
+             "prints)")
+    note = (f"Shots grouped by {', '.join(by)}{whole}"
+            + (f"; every condition: {same}" if same else "")
             + ". Per condition: the shots' final angles (the analyst's, else the proposal; "
             f"unusable shots left out), mean ± half-width of the {CONFIDENCE:.0%} interval: "
             "Student t on the shot-to-shot spread, or the shots' own mean ± over √n where "

@@ -116,7 +116,9 @@ def make_sheet(
             isinstance(vorticity_limit_1_s, (int, float)) and 0 < vorticity_limit_1_s < math.inf):
         raise WakelineError(f"--vorticity-limit: a positive number or '{SESSION_RANGE}', not "
                             f"{vorticity_limit_1_s!r}")
-    by, conditions = sheet_conditions(session, records)
+    # a condition is the session's, whichever of its shots the sheet prints (a summary of a
+    # chosen few, say the adjusted ones, would read as the condition's)
+    by, conditions = sheet_conditions(session, all_records)
     total = (1 + conditions_page_count(conditions)
              + shot_page_count(len(records), per_page))
     out_path = Path(out_path)
@@ -137,7 +139,8 @@ def make_sheet(
                         selection_text(records, all_records, shot_ids, statuses, per_page,
                                        vorticity_limit_1_s))
             if conditions:
-                paint_conditions_page(pages, session, records, conditions, by, ensembles)
+                paint_conditions_page(pages, session, all_records, conditions, by, ensembles,
+                                      printed=len(records))
             _paint_shot_pages(pages, session, records, per_page, vorticity_limit_1_s, progress,
                               session_direction(all_records))
         finally:
