@@ -27,6 +27,7 @@ import numpy as np
 from scipy import ndimage
 
 from core import WakelineError
+from core.settings import BACKGROUND_METHODS
 
 #: Saturated regions smaller than this (px) are particle images touching saturation, not glare:
 #: a particle image of e^-2 diameter 5 px four times brighter than full scale saturates over
@@ -100,10 +101,6 @@ def _grow_glare(saturated: np.ndarray, mask: np.ndarray, origin, min_area_px: in
         ly, lx = np.nonzero(labels[region] == index)
         blob[ly + origin[0] + region[0].start - y0, lx + origin[1] + region[1].start - x0] = True
         mask[y0:y1, x0:x1] |= ndimage.distance_transform_edt(~blob) <= grow
-
-
-#: How a camera position's background is made (``ShotSettings.background``).
-BACKGROUND_METHODS = ("min", "median")
 
 
 def background_image(frames: Sequence[np.ndarray] | np.ndarray, method: str = "min") -> np.ndarray:

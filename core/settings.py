@@ -24,6 +24,9 @@ MIN_WINDOW_PX, MAX_WINDOW_PX = 8, 4096
 #: about 0.1 us to some ms apart, and a ball at 10-50 m/s is shot with tens to hundreds of us
 #: (common practice). Outside, the number is a slip of units (us typed as s), not a shot.
 DT_RANGE_S = (1e-7, 1e-2)
+#: How a camera position's background is made (``ShotSettings.background``;
+#: ``core.conditioning.background_image``).
+BACKGROUND_METHODS = ("min", "median")
 
 
 def dt_problem(dt_s: float) -> str:

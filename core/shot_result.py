@@ -15,7 +15,6 @@ import numpy as np
 
 from core import WakelineError
 from core.air import temperature_problem
-from core.conditioning import BACKGROUND_METHODS
 from core.results import (
     BallFit,
     Flight,
@@ -25,7 +24,7 @@ from core.results import (
     dataclass_dict,
     finite_or_none,
 )
-from core.settings import PivPass, PivSettings, dt_problem, is_number, shown
+from core.settings import BACKGROUND_METHODS, PivPass, PivSettings, dt_problem, is_number, shown
 
 #: Passes of the finer correlation around the ball (ball frame): it gives the stream beside the
 #: layer and the wake; the layer itself is fitted to the particle images (core.separation).

@@ -552,3 +552,59 @@ def test_a_new_result_never_changes_a_decided_angle_silently(session_path):
     with Session.open(session_path, writable=False) as s:  # saved with the result
         assert [p.status for p in s.history("S0")] == ["accepted", "to review"]
         assert s["S1"].pick.lower_deg == -3.0
+
+
+def _flown(result, direction_deg: float, centre=(100.0, 80.0)):
+    """``result`` with a ball (radius 30 px at ``centre`` in both frames) flying
+    ``direction_deg``."""
+    from dataclasses import replace
+
+    from core.geometry import flight_unit
+    from core.results import BallFit
+
+    fx, fy = flight_unit(direction_deg)
+    result.ball_a = BallFit((centre[0] - 4 * fx, centre[1] - 4 * fy), 30.0)
+    result.ball_b = BallFit((centre[0] + 4 * fx, centre[1] + 4 * fy), 30.0)
+    result.flight = replace(result.flight, direction_deg=direction_deg,
+                            displacement_px=(8 * fx, 8 * fy))
+    return result
+
+
+def test_an_adjusted_pick_keeps_its_marks_places_when_the_flight_is_corrected(session_path):
+    # frames found swapped (or a flight direction corrected) turn the flight: the analyst's
+    # angles were read against the old one, so the marks keep their places on the ball and
+    # their angles follow (closed form: a flight turned by 180 deg keeps the upper side on top
+    # and turns rearward to forward, theta -> -theta: core.geometry)
+    with Session.open(session_path) as s:
+        s.save_result("S0", _flown(fake_result(s.settings_for("S0"), None, None), 0.0))
+        s.set_pick("S0", status="adjusted", upper_deg=-12.0, lower_deg=-10.0, who="ana")
+        said = s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 8.0, 6.0), 180.0))
+        assert said == ("the flight turned by 180.0° (0.0° → 180.0°): the adjusted marks keep "
+                        "their places on the ball (upper -12.00° → +12.00°, lower -10.00° → "
+                        "+10.00°)")
+        assert (s["S0"].final_deg("upper"), s["S0"].final_deg("lower")) == pytest.approx(
+            (12.0, 10.0))
+        assert (s["S0"].pick.status, s["S0"].pick.who) == ("adjusted", "ana")
+        # a side left at the proposal is carried too; the ball moved (a corrected circle) and
+        # the flight turned 10 deg: the mark keeps its place relative to the ball
+        s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 5.0, -3.0), 180.0))
+        s.set_pick("S1", status="adjusted", upper_deg=7.0, who="ana")
+        said = s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 2.0, 1.0), 190.0,
+                                          centre=(103.0, 79.0)))
+        # the flight frame turned 10 deg counter-clockwise on screen: a fixed place lies 10 deg
+        # further rearward on the upper side (measured clockwise there) and 10 deg further
+        # forward on the lower (derived)
+        assert s["S1"].final_deg("upper") == pytest.approx(17.0)
+        assert s["S1"].final_deg("lower") == pytest.approx(-13.0)
+        assert said.startswith("the flight turned by 10.0° (180.0° → 190.0°)")
+        # turned toward vertical, past where the sides change names: back to review
+        s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.0, -3.0), 60.0))
+        s.set_pick("S2", status="adjusted", upper_deg=40.0, lower_deg=-3.0, who="ana")
+        said = s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.0, -3.0), 120.0))
+        assert said == ("the flight turned by 60.0° (60.0° → 120.0°): the adjusted marks would "
+                        "lie on the other side of the ball: back to review")
+        assert (s["S2"].pick.status, s["S2"].pick.who) == ("to review", "wakeline")
+        # measured again, the flight moving by a degree: the angles stand as the analyst set them
+        s.set_pick("S2", status="adjusted", upper_deg=6.0, lower_deg=-2.0, who="ana")
+        said = s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.5, -3.5), 121.0))
+        assert (s["S2"].final_deg("upper"), s["S2"].final_deg("lower")) == (6.0, -2.0)

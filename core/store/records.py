@@ -275,14 +275,19 @@ def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -
 SAME_PROPOSAL_DEG = 0.005
 
 
-def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str):
+def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str,
+                              summary: ShotSummary | None = None):
     """What becomes of the analyst's decision when a shot's proposals change to ``proposals``
-    (side -> deg or None): a decision resting on a proposal never silently takes the new one.
+    (side -> deg or None), measured anew as ``summary``: a decision resting on a proposal never
+    silently takes the new one.
 
     An accepted pick whose proposal moved goes back to review (the number accepted is gone);
     an adjusted pick's side left at the proposal keeps the angle it had (the analyst stood
-    behind both angles, as a moved mark in the window records them). Returns the new pick and
-    a line saying what was done, or ``(None, "")`` when the decision stands as it is.
+    behind both angles, as a moved mark in the window records them). Where the flight turned
+    (swapped frames, a corrected direction: :func:`_flight_turn`), an adjusted pick's angles,
+    read against the old flight, are carried to the new one keeping their places on the ball;
+    a mark that would land on the other side goes back to review. Returns the new pick and a
+    line saying what was done, or ``(None, "")`` when the decision stands as it is.
     """
     pick = record.pick
     moved = [side for side in SIDES
@@ -292,20 +297,68 @@ def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str):
                             f"{_deg(proposals.get(side))}" for side in moved)
         return (replace(pick, status=ReviewStatus.TO_REVIEW, who="wakeline", when=now),
                 f"the proposal accepted before moved ({changes}): back to review")
-    if pick.status == ReviewStatus.ADJUSTED:
-        following = [side for side in moved if getattr(pick, f"{side}_deg") is None]
-        kept = {f"{side}_deg": record.proposed_deg(side) for side in following
-                if record.proposed_deg(side) is not None}
-        new = [side for side in following if record.proposed_deg(side) is None]
-        said = []
-        if kept:
-            sides = ", ".join(f"{name[:-4]} {_deg(value)}" for name, value in kept.items())
-            said.append(f"the adjusted pick keeps {sides} (the proposal there moved)")
-        if new:  # no angle to keep: the new proposal stands, and is named for a look
-            said.append("the adjusted pick takes the new proposal on " + ", ".join(
-                f"{side} ({_deg(proposals.get(side))}): check it" for side in new))
-        return (replace(pick, **kept) if kept else None), "; ".join(said)
-    return None, ""
+    if pick.status != ReviewStatus.ADJUSTED:
+        return None, ""
+    following = [side for side in moved if getattr(pick, f"{side}_deg") is None]
+    kept = {f"{side}_deg": record.proposed_deg(side) for side in following
+            if record.proposed_deg(side) is not None}
+    new = [side for side in following if record.proposed_deg(side) is None]
+    said = []
+    turn = _flight_turn(record.summary, summary)
+    if turn is not None:
+        held = {side: kept.get(f"{side}_deg", getattr(pick, f"{side}_deg")) for side in SIDES}
+        carried = {side: _carried_angle(record.summary, summary, side, angle)
+                   for side, angle in held.items() if angle is not None}
+        turned = (f"the flight turned by {turn:.1f}° ({record.summary.flight.direction_deg:.1f}° "
+                  f"→ {summary.flight.direction_deg:.1f}°)")
+        if any(angle is None for angle in carried.values()):
+            return (replace(pick, status=ReviewStatus.TO_REVIEW, who="wakeline", when=now),
+                    (f"{turned}: the adjusted marks would lie on the other side of the "
+                     "ball: back to review"))
+        kept = {f"{side}_deg": angle for side, angle in carried.items()}
+        said.append(f"{turned}: the adjusted marks keep their places on the ball (" + ", ".join(
+            f"{side} {_deg(held[side])} → {_deg(angle)}" for side, angle in carried.items())
+            + ")")
+    elif kept:
+        sides = ", ".join(f"{name[:-4]} {_deg(value)}" for name, value in kept.items())
+        said.append(f"the adjusted pick keeps {sides} (the proposal there moved)")
+    if new:  # no angle to keep: the new proposal stands, and is named for a look
+        said.append("the adjusted pick takes the new proposal on " + ", ".join(
+            f"{side} ({_deg(proposals.get(side))}): check it" for side in new))
+    return (replace(pick, **kept) if kept else None), "; ".join(said)
+
+
+#: A flight that turns by more than this (deg) between two measurements of a shot was
+#: corrected (swapped frames, a direction given), not measured again: the analyst's marks, read
+#: against the old flight, are carried to the new one. Measured again with other settings, a
+#: flight moves by hundredths to tenths of a degree.
+FLIGHT_TURN_DEG = 2.0
+
+
+def _flight_turn(old: ShotSummary | None, new: ShotSummary | None) -> float | None:
+    """How far (deg) the flight turned from ``old`` to ``new``, when beyond ``FLIGHT_TURN_DEG``
+    and both have a flight and a circle; else None."""
+    from core.geometry import mid_circle
+
+    if old is None or new is None or old.flight is None or new.flight is None:
+        return None
+    if mid_circle(old.ball_a, old.ball_b) is None or mid_circle(new.ball_a, new.ball_b) is None:
+        return None
+    turn = abs((new.flight.direction_deg - old.flight.direction_deg + 180.0) % 360.0 - 180.0)
+    return turn if turn > FLIGHT_TURN_DEG else None
+
+
+def _carried_angle(old: ShotSummary, new: ShotSummary, side: str, angle: float) -> float | None:
+    """The angle on ``side`` under ``new``'s circle and flight of the outline point at
+    ``angle`` under ``old``'s, or None when that point lies on the other side now."""
+    from core.geometry import angle_of_point, mid_circle, point_at_angle
+
+    (centre, radius), (new_centre, _) = (mid_circle(old.ball_a, old.ball_b),
+                                         mid_circle(new.ball_a, new.ball_b))
+    point = point_at_angle(centre, radius, old.flight.direction_deg, side, angle)
+    offset = (point[0] - centre[0] + new_centre[0], point[1] - centre[1] + new_centre[1])
+    carried = angle_of_point(new_centre, new.flight.direction_deg, side, offset)
+    return carried if -90.0 <= carried <= 90.0 else None
 
 
 def _same_angle(a: float | None, b: float | None) -> bool:

@@ -485,7 +485,7 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
                                           lambda f: write_result_group(f, summary, arrays))
             now = now_utc()
             pick, said = decision_on_new_proposals(
-                record, {side: summary.proposed_deg(side) for side in SIDES}, now)
+                record, {side: summary.proposed_deg(side) for side in SIDES}, now, summary)
             # the decision changes in the same journal line as the result: a crash keeps both
             # or neither
             self._commit({
