@@ -5,6 +5,7 @@ flight, separation marks, legend) and its numbers.
 from __future__ import annotations
 
 import math
+import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -102,9 +103,23 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
         if record.failure:
             p.fillRect(rect_mm(pic[0], pic[1], pic[2], 4.6), qcolor(colours.PAPER_TINT))
             one_line(p, rect_mm(pic[0] + 1, pic[1], pic[2] - 2, 4.6),
-                     f"Shown: the last run that succeeded; the latest failed: {record.failure}",
-                     (7.5, 6.5), colour=colours.DISAGREEMENT)
+                     "Shown: the last run that succeeded; the latest failed: "
+                     + failure_words(record.failure, record.shot_id),
+                     (7.5, 6.5), colour=colours.DISAGREEMENT,
+                     elide=QtCore.Qt.TextElideMode.ElideMiddle)
     _paint_numbers(p, info, rows)
+
+
+def failure_words(failure: str, shot_id: str) -> str:
+    """A failed run's reason as a panel of its shot shows it: without the shot's name, which
+    the panel's title gives, and with files by their names (the table keeps the whole line)."""
+    words = failure.removeprefix(f"shot {shot_id}: ")
+    return _FILE_PATH.sub(r"\1", words)
+
+
+#: An absolute path to a file the measurement reads (folders may hold spaces), its name kept.
+_FILE_PATH = re.compile(r"(?<![\w.])/[^\n]*?/([^/\n]+?\.(?:tiff?|png|h5|csv|npy))\b",
+                        re.IGNORECASE)
 
 
 def _split(p, area, rows, result, narrow: bool):
