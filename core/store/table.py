@@ -66,6 +66,10 @@ _RESULT_COLUMNS = (
     "needs_processing", "warnings",
 )
 ANGLE_DECIMALS = 2
+#: Significant digits of the measured speed, the scale used and the Reynolds number: beyond
+#: their uncertainty (a tenth of a per cent at best, the scale from a fitted ball; half a per
+#: cent and more, the speed and Re) a longer number only looks more certain.
+SPEED_DIGITS, SCALE_DIGITS, REYNOLDS_DIGITS = 4, 5, 4
 
 
 def _result_cells(r: ShotRecord) -> list[str]:
@@ -74,9 +78,9 @@ def _result_cells(r: ShotRecord) -> list[str]:
     values = [
         r.state, r.failure,
         _angle(None if flight is None else flight.direction_deg),
-        None if flight is None else flight.speed_m_s,
-        None if summary is None else summary.scale_mm_per_px,
-        None if summary is None else summary.reynolds,
+        _significant(None if flight is None else flight.speed_m_s, SPEED_DIGITS),
+        _significant(None if summary is None else summary.scale_mm_per_px, SCALE_DIGITS),
+        _significant(None if summary is None else summary.reynolds, REYNOLDS_DIGITS),
         *map(_angle, (r.proposed_deg("upper"), r.uncertainty_deg("upper"),
                       r.proposed_deg("lower"), r.uncertainty_deg("lower"),
                       r.final_deg("upper"), r.final_deg("lower"), r.wake_deflection_deg(),
@@ -104,6 +108,13 @@ def _angle(value: float | None) -> str | None:
         return None
     text = f"{value:.{ANGLE_DECIMALS}f}".rstrip("0").rstrip(".")
     return "0" if text == "-0" else text
+
+
+def _significant(value: float | None, digits: int) -> float | None:
+    """``value`` rounded to ``digits`` significant digits (whole numbers stay whole)."""
+    if value is None or not math.isfinite(value) or value == 0:
+        return value
+    return float(f"{value:.{digits}g}")
 
 
 #: First characters that make a spreadsheet run a cell as a formula (OWASP, "CSV injection").
