@@ -159,7 +159,7 @@ def test_ctrl_c_stops_the_command_and_keeps_finished_shots(tmp_path):
     child.send_signal(signal.SIGINT)
     out, err = child.communicate(timeout=120)
     assert child.returncode == 1, err
-    assert "stopping: finished shots are kept" in err
+    assert "stopping: finished shots are kept (Ctrl-C again to abort)" in err
     assert "left for the next run" in out
     with Session.open(session_path, writable=False) as s:
         done = [r.shot_id for r in s.values() if r.state == "processed"]

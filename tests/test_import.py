@@ -102,6 +102,18 @@ def test_each_bad_value_has_its_own_message(tmp_path, row, message):
     assert message in report.problems[0]
 
 
+def test_a_launchers_nominal_speed_of_zero_or_less_is_refused(tmp_path):
+    # it would quietly turn the measured speed's check off (core.plausibility)
+    src = tmp_path / "src"
+    write_shot_folder(src, 0)
+    write_pair(src, "S0", (2.0, 0.0))
+    (src / "shots.csv").write_text("shot,dt_s,scale_mm_per_px,ball_diameter_mm,"
+                                   "speed_nominal_m_s\nS0,2e-05,0.08,71.6,-30\n")
+    report = import_folder(src, tmp_path / "s.h5")
+    assert report.imported == []
+    assert report.problems[0].endswith("speed_nominal_m_s must be positive, got -30")
+
+
 def test_unreadable_frame_and_duplicate_row_are_reported(tmp_path):
     src = write_shot_folder(tmp_path / "src", 2, extra_rows=("S0,2e-05,0.08,71.6,0,again",))
     tifffile.imwrite(src / "S1_b.tif", np.tile(np.uint8([200, 0, 0]), (192, 256, 1)))

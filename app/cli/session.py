@@ -162,7 +162,9 @@ class _StopFlag:
             raise KeyboardInterrupt
         self.stop = True
         with contextlib.suppress(OSError):  # the terminal may be gone (SIGHUP)
-            print("\nstopping: finished shots are kept (Ctrl-C again to abort)", file=sys.stderr)
+            again = "Ctrl-C" if signum == signal.SIGINT else "the same signal"
+            print(f"\nstopping: finished shots are kept ({again} again to abort)",
+                  file=sys.stderr)
 
 
 def run_process(args: argparse.Namespace) -> int:

@@ -132,7 +132,8 @@ def _number(key: str, text: str) -> tuple[float | None, str]:
 def _row_problem(meta: dict) -> str:
     if meta.get("dt_s") is None:
         return "dt_s is empty (time between frames, s)"
-    for key in ("dt_s", "scale_mm_per_px", "ball_diameter_mm"):
+    # (a launcher's nominal speed of 0 or less would quietly turn its check off)
+    for key in ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "speed_nominal_m_s"):
         if meta.get(key) is not None and meta[key] <= 0:
             return f"{key} must be positive, got {meta[key]:g}"
     if problem := dt_problem(meta["dt_s"]):
