@@ -140,6 +140,10 @@ def test_a_table_without_a_side_s_final_angles_is_refused_whole(tmp_path):
                                             r"'upper_final' meant\?\): the decided shots' final "
                                             r"angles would be lost; nothing was imported$"):
         read_review_csv(path, ["S0", "S1"])
+    # the other side's column, there, is not taken for a misspelling of the missing one
+    path.write_text("shot,review_status,upper_final_deg\nS0,adjusted,12.5\n", encoding="utf-8")
+    with pytest.raises(WakelineError, match=r"theirs.csv: no column 'lower_final_deg': the "):
+        read_review_csv(path, ["S0"])
     # with no decided shot there is nothing to lose
     path.write_text("shot,review_status\nS1,to review\n", encoding="utf-8")
     assert read_review_csv(path, ["S0", "S1"]).picks["S1"].status == "to review"

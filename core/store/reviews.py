@@ -167,7 +167,8 @@ def read_review_csv(path: Path, shot_ids, name: str | None = None) -> ReviewLaye
                        for p in picks.values()):
         raise WakelineError(
             f"{path}: no column " + " or ".join(repr(c) for c in lacking)
-            + near_miss_hint(lacking, header) + ": the decided shots' final angles would be lost; "
+            + near_miss_hint(lacking, [n for n in header if n not in REVIEW_COLUMNS.values()])
+            + ": the decided shots' final angles would be lost; "
             "nothing was imported")
     if not name:
         # the shots still to review have no reviewer: the one name of the others
