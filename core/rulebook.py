@@ -27,6 +27,11 @@ GRADE_CIRCUMFERENCES_MM = {
     "baseball": (BALL_CIRCUMFERENCE_MM["baseball"],),
     "softball": ((10.875 * 25.4, 11.125 * 25.4), BALL_CIRCUMFERENCE_MM["softball"]),
 }
+#: The diameters (mm) every grade of every ball type above spans, smallest to largest.
+RULEBOOK_DIAMETERS_MM = (min(lo for grades in GRADE_CIRCUMFERENCES_MM.values() for lo, _ in grades)
+                         / math.pi,
+                         max(hi for grades in GRADE_CIRCUMFERENCES_MM.values() for _, hi in grades)
+                         / math.pi)
 #: How far (share) a given diameter may lie outside a grade's range before it is questioned:
 #: a worn or wet ball, a diameter measured with a caliper across the seam (common practice).
 BALL_SIZE_SLACK = 0.01

@@ -19,6 +19,7 @@ from core.results import (
     SideProposal,
     VectorField,
 )
+from core.rulebook import RULEBOOK_DIAMETERS_MM
 from core.shot_result import FINE_PASSES, ShotResult, ShotSettings, fine_vorticity
 
 __all__ = ["ShotResult", "ShotSettings", "measure_shot", "remeasure_ball"]
@@ -185,10 +186,14 @@ def _scale_note(settings: ShotSettings, radius_px: float, shape) -> str:
     scale, diameter = settings.scale_mm_per_px, _ball_diameter_mm(settings)
     note = (f"the scale given, {scale:g} mm/px, makes the {diameter:g} mm ball "
             f"{2.0 * radius_px:.1f} px across")
-    if not 8.0 <= radius_px <= 0.5 * min(shape):
-        note += (f"; in px per mm? {scale:g} px/mm is {1.0 / scale:.4g} mm/px, a ball "
-                 f"{diameter * scale:.0f} px across")
-    return note
+    if 8.0 <= radius_px <= 0.5 * min(shape):
+        return note
+    low, high = RULEBOOK_DIAMETERS_MM
+    if not 0.5 * low <= diameter <= 2.0 * high:  # the diameter is the slip, not the scale
+        return note + (f"; a ball of {diameter:g} mm? (the rulebooks' balls are "
+                       f"{low:.0f}-{high:.0f} mm): check ball_diameter_mm")
+    return note + (f"; in px per mm? {scale:g} px/mm is {1.0 / scale:.4g} mm/px, a ball "
+                   f"{diameter * scale:.0f} px across")
 
 
 def hand_ball(circle, shape) -> BallFit:

@@ -286,3 +286,11 @@ def test_a_scale_that_leaves_no_room_for_the_ball_says_how_big_it_makes_it():
     assert said.startswith("frame A: no ball found")
     assert ("the scale given, 8 mm/px, makes the 71.6 mm ball 8.9 px across; in px per mm? "
             "8 px/mm is 0.125 mm/px, a ball 573 px across") in said
+    # 7160 typed for 71.60 mm: the diameter is the slip, whatever the inverse scale would make
+    # of it (rulebooks: Laws of Cricket, Law 4; 12 in softball; core.rulebook)
+    settings = ShotSettings(dt_s=truth.dt_s, ball_diameter_mm=7160.0, scale_mm_per_px=0.08)
+    with pytest.raises(WakelineError) as caught:
+        measure_shot(frame_a, frame_b, settings)
+    assert str(caught.value).endswith(
+        "the scale given, 0.08 mm/px, makes the 7160 mm ball 89500.0 px across; a ball of "
+        "7160 mm? (the rulebooks' balls are 65-98 mm): check ball_diameter_mm")
