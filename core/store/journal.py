@@ -58,8 +58,8 @@ class Journal:
         entries before it."""
         exc = JournalDamaged(f"{self.path}: line {number} is damaged ({why}); nothing was "
                              "changed: move the journal aside to open the session as last "
-                             f"saved, or open it read-only without line {number} and those "
-                             "after it")
+                             "saved, or open it in the window, which offers to show it "
+                             f"read-only without line {number} and those after it")
         exc.number, exc.why, exc.entries, exc.good = number, why, list(entries), good
         return exc
 
