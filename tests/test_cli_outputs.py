@@ -66,6 +66,16 @@ def test_pair_refuses_one_file_for_two_outputs(session_path, tmp_path, capsys):
     assert not out.exists()
 
 
+def test_pair_refuses_a_balls_description_with_no_ball(session_path, tmp_path, capsys):
+    # taken without a word and used for nothing, they would read as part of the measurement
+    src = session_path.parent / "src"
+    code = main(["pair", str(src / "S0_a.tif"), str(src / "S0_b.tif"), "--no-ball",
+                 "--ball-type", "cricket", "--flight-deg", "180"])
+    assert code == 1 and capsys.readouterr().err == (
+        "wakeline: --no-ball: --ball-type and --flight-deg describe the ball, and with --no-ball "
+        "there is none to measure; leave one or the other out\n")
+
+
 @pytest.mark.parametrize("command", ["table", "sheet"])
 def test_an_output_that_is_a_folder_is_refused_and_leaves_nothing(session_path, tmp_path,
                                                                   command, capsys):

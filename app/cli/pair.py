@@ -63,6 +63,12 @@ def run_pair(args: argparse.Namespace) -> int:
     from core.images import read_frame, read_frame_pair
     from core.shot import ShotSettings, measure_shot
 
+    given = [name for name, value in (("--ball-type", args.ball_type),
+                                      ("--ball-diameter", args.ball_diameter),
+                                      ("--flight-deg", args.flight_deg)) if value is not None]
+    if args.no_ball and given:  # they would be taken without a word and used for nothing
+        raise WakelineError(f"--no-ball: {' and '.join(given)} describe the ball, and with "
+                            "--no-ball there is none to measure; leave one or the other out")
     inputs = [p for p in (args.frame_a, args.frame_b, args.background) if p]
     check_outputs([args.json, args.vectors], inputs=inputs)
     frame_a, frame_b = read_frame_pair(args.frame_a, args.frame_b)
