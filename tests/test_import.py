@@ -89,6 +89,7 @@ def test_an_empty_manifest_and_a_file_for_a_folder_are_named_as_such(tmp_path, c
         ("S0,2e-05,0.08,71_6,,", "ball_diameter_mm '71_6' is not a number"),
         (",2e-05,0.08,71.6,,", "empty shot id"),
         ("S0,2e-05,0.08,71.6,,,,extra", "header has 6 columns"),
+        ("S0,2e-05,0.08,71.6,720,", "seam_deg 720 lies outside -360 to 360 deg"),
     ],
 )
 def test_each_bad_value_has_its_own_message(tmp_path, row, message):

@@ -129,6 +129,10 @@ def _number(key: str, text: str) -> tuple[float | None, str]:
     return value, ""
 
 
+#: Manifest columns that are angles (deg).
+ANGLE_COLUMNS = ("seam_deg", "spin_axis_deg", "flight_deg")
+
+
 def _row_problem(meta: dict) -> str:
     if meta.get("dt_s") is None:
         return "dt_s is empty (time between frames, s)"
@@ -136,6 +140,9 @@ def _row_problem(meta: dict) -> str:
     for key in ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "speed_nominal_m_s"):
         if meta.get(key) is not None and meta[key] <= 0:
             return f"{key} must be positive, got {meta[key]:g}"
+    for key in ANGLE_COLUMNS:  # an angle beyond a whole turn either way is a slip
+        if meta.get(key) is not None and not -360.0 <= meta[key] <= 360.0:
+            return f"{key} {meta[key]:g} lies outside -360 to 360 deg"
     if problem := dt_problem(meta["dt_s"]):
         return f"dt_s {problem}"
     if meta.get("air_temp_c") is not None and (problem := temperature_problem(meta["air_temp_c"])):
