@@ -32,6 +32,9 @@ from core.shot_result import ShotSettings
 from core.store import Session, in_exposure_order, read_frames
 from core.store.records import ReviewStatus
 
+#: Decisions that rest on the proposals: a new result may send them back to review.
+DECIDED = (ReviewStatus.ACCEPTED, ReviewStatus.ADJUSTED)
+
 _POLL_S = 0.2  # how often a waiting run looks at should_stop
 
 
@@ -46,7 +49,7 @@ class ShotOutcome:
     done: int
     total: int
     decision: str = ""  # what became of the analyst's decision (Session.save_result), if anything
-    reopened: bool = False  # an accepted pick went back to review (its proposal moved)
+    reopened: bool = False  # a decided pick (accepted, adjusted) went back to review
 
 
 @dataclass
@@ -57,7 +60,8 @@ class BatchReport:
     processed: list[str] = field(default_factory=list)
     failed: dict[str, str] = field(default_factory=dict)
     skipped: list[str] = field(default_factory=list)  # already done with the same settings
-    reopened: list[str] = field(default_factory=list)  # accepted picks back to review
+    reopened: list[str] = field(default_factory=list)  # decided picks back to review
+    changed: list[str] = field(default_factory=list)  # adjusted picks whose angles changed
     interrupted: bool = False
     elapsed_s: float = 0.0
 
@@ -125,9 +129,9 @@ def iter_process(
         for done, (shot_id, result, message) in enumerate(runner(tasks, stop), start=1):
             decision, reopened = "", False
             if result is not None:
-                accepted = session[shot_id].pick.status == ReviewStatus.ACCEPTED
+                decided = session[shot_id].pick.status in DECIDED
                 decision = session.save_result(shot_id, result)
-                reopened = accepted and session[shot_id].pick.status != ReviewStatus.ACCEPTED
+                reopened = decided and session[shot_id].pick.status == ReviewStatus.TO_REVIEW
             else:
                 session.save_failure(shot_id, message, fingerprints[shot_id])
             yield ShotOutcome(shot_id, result is not None, message, done, len(tasks), decision,
@@ -160,6 +164,8 @@ def process_shots(
                 report.processed.append(outcome.shot_id)
                 if outcome.reopened:
                     report.reopened.append(outcome.shot_id)
+                elif outcome.decision:
+                    report.changed.append(outcome.shot_id)
             else:
                 report.failed[outcome.shot_id] = outcome.message
             if on_result is not None:

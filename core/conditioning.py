@@ -133,7 +133,8 @@ def background_image(frames: Sequence[np.ndarray] | np.ndarray, method: str = "m
         return out
     if method == "median":
         return np.median(np.stack(stack), axis=0).astype(np.float32)
-    raise WakelineError(f"background: unknown method {method!r} (use {' or '.join(BACKGROUND_METHODS)})")
+    known = " or ".join(BACKGROUND_METHODS)
+    raise WakelineError(f"background: unknown method {method!r} (use {known})")
 
 
 def subtract_background(

@@ -22,6 +22,7 @@ from scipy import stats
 
 from core.geometry import SIDES
 from core.store.records import ReviewStatus, ShotRecord
+from core.store.table import REYNOLDS_DIGITS, significant
 
 #: Columns a new session groups by, those its shots have values in (``surface``: the ball's
 #: finish, e.g. red or white lacquer, worn; a manifest's own word).
@@ -242,7 +243,8 @@ def condition_table(conditions, by, ensembles=None) -> tuple[list[str], list[lis
         for spread in (c.sides["upper"], c.sides["lower"], c.difference, c.wake_deflection):
             row += [spread.n, spread.mean, spread.sd, spread.low, spread.high,
                     spread.interval_from]
-        row += list(c.reynolds) if c.reynolds else [None, None]
+        row += ([significant(v, REYNOLDS_DIGITS) for v in c.reynolds] if c.reynolds
+                else [None, None])
         if ensembles is not None:
             row += _ensemble_cells(c, ensembles.get(c.label))
         rows.append(row)

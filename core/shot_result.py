@@ -126,7 +126,6 @@ CIRCLE_SETTINGS = ("circle_a_px", "circle_b_px")
 #: the PIV's takes): numbers, words, switches (true/false) and circles (three numbers).
 _NUMBER_SETTINGS = ("dt_s", "scale_mm_per_px", "ball_diameter_mm", "flight_deg", "air_temp_c",
                     "normalise_spacings")
-_POSITIVE_SETTINGS = ("scale_mm_per_px", "ball_diameter_mm")
 _WORD_SETTINGS = ("ball_type", "background")
 _SWITCH_SETTINGS = ("find_ball", "mask_glare", "frames_swapped")
 
@@ -148,8 +147,6 @@ def _check_setting(name: str, value) -> None:
             raise WakelineError(f"settings: air_temp_c {problem}")
         if name == "dt_s" and float(value) > 0 and (problem := dt_problem(float(value))):
             raise WakelineError(f"settings: dt_s {problem}")
-        if name in _POSITIVE_SETTINGS and not float(value) > 0:
-            refuse("above 0 or null")
         if name == "normalise_spacings" and float(value) < 0:
             refuse("0 or more (0 or null: no normalisation)")
     elif name in _WORD_SETTINGS:
@@ -157,13 +154,6 @@ def _check_setting(name: str, value) -> None:
             refuse("a word or null")
         if name == "background" and value not in BACKGROUND_METHODS:
             refuse(" or ".join(BACKGROUND_METHODS) + " or null")
-        if name == "ball_type":
-            from core.ball import nominal_diameter_mm
-
-            try:
-                nominal_diameter_mm(value)
-            except WakelineError as error:
-                raise WakelineError(f"settings: {error}") from None
     elif name in CIRCLE_SETTINGS and not (isinstance(value, (list, tuple)) and len(value) == 3
                                           and all(is_number(v) for v in value)):
         refuse("three numbers (centre x, y and radius, px) or null")

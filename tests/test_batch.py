@@ -263,26 +263,30 @@ def test_a_session_with_nothing_to_process_runs_no_workers(session_path):
     assert report.total == 0 and not report.failed and not report.interrupted
 
 
-def test_the_command_says_which_accepted_shots_went_back_to_review(session_path, capsys,
+def test_the_command_says_which_decided_shots_went_back_to_review(session_path, capsys,
                                                                     monkeypatch):
     # the rule itself: tests/test_session.py; here what the run and the command say of it
     said = "the proposal accepted before moved (upper +5.00° → +6.00°): back to review"
     keep = Session.save_result
+    carried = "the flight turned by 180.0° (0.0° → 180.0°): the adjusted marks keep ..."
     with Session.open(session_path) as s:
         s.set_pick("S2", status="accepted")
+        s.set_pick("S1", status="adjusted", upper_deg=3.0)
+        s.set_pick("S0", status="adjusted", upper_deg=3.0)
 
-    def save_result(s, shot, result):  # as a moved proposal would for S2 (these have none)
+    def save_result(s, shot, result):  # as a moved proposal or flight would (these have none)
         keep(s, shot, result)
-        if shot != "S2":
-            return ""
-        s.set_pick("S2", status="to review", who="wakeline")
-        return said
+        if shot in ("S2", "S1"):  # an adjusted pick goes back when a mark changes sides
+            s.set_pick(shot, status="to review", who="wakeline")
+            return said
+        return carried if shot == "S0" else ""
 
     monkeypatch.setattr(Session, "save_result", save_result)
     assert main(["process", str(session_path), "--workers", "0", "--quiet"]) == 0
     out, err = capsys.readouterr()
-    assert f"wakeline: shot S2: {said}" in err
-    assert "processed 4 shot(s); 1 accepted shot(s) back to review (their proposal moved)" in out
+    assert f"wakeline: shot S2: {said}" in err and f"wakeline: shot S0: {carried}" in err
+    assert ("processed 4 shot(s); 2 decided shot(s) back to review; 1 adjusted shot(s) whose "
+            "angles were kept or carried (named above)") in out
 
 
 def test_a_frame_the_worker_may_not_read_is_named_in_the_analyst_s_words(session_path,

@@ -243,6 +243,17 @@ def test_one_value_on_the_axis_gets_a_readable_range(qtbot):
     low, high = view.viewRange()[0]
     assert low == pytest.approx(19.0) and high == pytest.approx(21.0)
     assert axis._tickLevels == [[(20.0, "20")]]
+    # one shot's seam corrected: two values, evenly spread ticks again, with the same count
+    panel.set_records([_record(f"s{i}", 30.0 if i == 0 else 20.0, up=-9.0, low=2.0)
+                       for i in range(5)])
+    qtbot.wait(50)
+    assert axis._tickLevels is None
+    # every shot's: the one value is the new one
+    panel.set_records([_record(f"s{i}", 30.0, up=-9.0, low=2.0) for i in range(5)])
+    qtbot.wait(50)
+    assert axis._tickLevels == [[(30.0, "30")]]
+    low, high = view.viewRange()[0]
+    assert low == pytest.approx(28.5) and high == pytest.approx(31.5)
 
 
 def test_one_value_alike_on_every_shot_is_drawn_at_its_own_scale():

@@ -608,3 +608,17 @@ def test_an_adjusted_pick_keeps_its_marks_places_when_the_flight_is_corrected(se
         s.set_pick("S2", status="adjusted", upper_deg=6.0, lower_deg=-2.0, who="ana")
         said = s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.5, -3.5), 121.0))
         assert (s["S2"].final_deg("upper"), s["S2"].final_deg("lower")) == (6.0, -2.0)
+        # by one degree, but across 91 deg where the sides change names (README, Conventions):
+        # the marks would lie on the other side
+        s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 90.5))
+        s.set_pick("S0", status="adjusted", upper_deg=20.0, who="ana")
+        said = s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 91.5))
+        assert said.startswith("the flight turned by 1.0° (90.5° → 91.5°): the adjusted marks "
+                               "would lie on the other side of the ball")
+        # a mark held at the rear stagnation point, the flight reversed: at the front one now
+        s.set_pick("S0", status="adjusted", upper_deg=90.0, lower_deg=10.0, who="ana")
+        s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 0.0))
+        s.set_pick("S0", status="adjusted", upper_deg=90.0, lower_deg=10.0, who="ana")
+        s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 180.0))
+        assert (s["S0"].pick.status, s["S0"].final_deg("upper"),
+                s["S0"].final_deg("lower")) == ("adjusted", -90.0, pytest.approx(-10.0))

@@ -253,6 +253,25 @@ def test_processing_started_from_window_completes(main_window, make_session, qtb
         assert window.canvas.shot.result is not None
 
 
+def test_the_end_of_processing_says_what_became_of_the_analysts_decisions(main_window,
+                                                                            make_session, qtbot):
+    # decided shots sent back to review and adjusted ones whose angles were kept or carried:
+    # counted, and the first named with what was done (the outcomes' words were dropped)
+    from app.qt.workers import JobOutcome, ProcessSummary
+
+    window = _open(main_window, qtbot, make_session(2))
+    summary = ProcessSummary(processed=2, total=2, reopened=1, decisions=[
+        ("s01", ("the flight turned by 180.0° (0.0° → 180.0°): the adjusted marks would lie "
+                 "on the other side of the ball: back to review")),
+        ("s02", "the adjusted pick keeps lower -3.00° (the proposal there moved)")])
+    window._on_processing_finished(JobOutcome(summary))
+    assert window.statusBar().currentMessage() == (
+        "Processing finished: 2 processed, 0 failed; 1 decided shot(s) back to review; 1 "
+        "adjusted shot(s) whose angles were kept or carried: shot s01: the flight turned by "
+        "180.0° (0.0° → 180.0°): the adjusted marks would lie on the other side of the ball: "
+        "back to review (and 1 more)")
+
+
 def test_cancel_stops_processing(main_window, make_session, qtbot, _private_user_files):
     path = make_session(5, processed=False)
     window = main_window(workers=0)

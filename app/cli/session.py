@@ -18,6 +18,7 @@ from app.cli.options import (
     scheduler_address,
     whole_count,
 )
+from app.review.text import decisions_text
 from core import WakelineError
 from core.store.companions import session_frame_files
 from core.store.files import writing
@@ -270,9 +271,7 @@ def _process_summary(path: Path, report) -> int:
         line += f", {len(report.failed)} failed"
     if report.skipped:
         line += f", {len(report.skipped)} already up to date"
-    if report.reopened:
-        line += (f"; {len(report.reopened)} accepted shot(s) back to review (their proposal "
-                 "moved)")
+    line += decisions_text(len(report.reopened), len(report.changed))
     if report.interrupted:
         line += f"; stopped with {report.not_run} shot(s) left for the next run"
     print(f"{line} ({report.elapsed_s:.1f} s)")

@@ -216,6 +216,7 @@ class GeometryEdit(QUndoCommand):
 
     def _set(self, which: str) -> None:
         geometry, result = getattr(self, which), self._results[which]
+        decision = ""
         try:
             if which == "before":
                 # the result before, then the geometry and the decision before in one edit (the
@@ -225,14 +226,15 @@ class GeometryEdit(QUndoCommand):
                 self._model.apply_pick(self.shot_id, **geometry, **self._decision)
             else:
                 self._model.apply_pick(self.shot_id, **geometry)
-                if result is not None:
-                    self._model.keep_result(self.shot_id, result, measured=False)
+                if result is not None:  # what it does to the decision, as the first time
+                    decision = self._model.keep_result(self.shot_id, result, measured=False)
         except WakelineError as exc:
             self.setObsolete(True)
             self._model.refresh(self.shot_id)
             self._model.edit_refused.emit(str(exc))
             return
         done = "Undone" if which == "before" else "Redone"
-        self._model.edit_replayed.emit([self.shot_id], f"{done}: {self.text()}")
+        said = f" ({decision})" if decision else ""
+        self._model.edit_replayed.emit([self.shot_id], f"{done}: {self.text()}{said}")
         if result is None:
             self._remeasure(self)

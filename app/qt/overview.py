@@ -51,7 +51,7 @@ class SessionOverview(QtWidgets.QWidget):
         self._records: list = []
         self._points: OverviewPoints | None = None
         self._current: str | None = None
-        self._ranged_for: tuple | None = None  # (column, shot count) the view was fitted to
+        self._ranged_for: tuple | None = None  # (column, shot count, single value range)
         self._source = None
         # many record changes in a row (a batch run, a quick review) redraw once
         self._refresh_timer = QtCore.QTimer(self)
@@ -202,23 +202,18 @@ class SessionOverview(QtWidgets.QWidget):
         self.note_label.setText(left_out_text(pts))
         self.note_label.setVisible(bool(pts.left_out))
         self._draw_current()
-        if (column, len(pts.shot_ids)) != self._ranged_for:
-            # fit the view to a new column or shot count only, so an edit keeps the analyst's zoom
-            self._ranged_for = (column, len(pts.shot_ids))
-            self.plot.getPlotItem().enableAutoRange()
-            self._widen_single_value(pts)
-
-    def _widen_single_value(self, pts: OverviewPoints) -> None:
-        """One value on the horizontal axis (one shot, or a column alike on every shot): the
-        automatic range would zoom to the side-by-side spread around it, with ticks between
-        the shots that read as a sweep; show it alone, its one tick labelled."""
-        axis = self.plot.getPlotItem().getAxis("bottom")
         single = pts.single_x_range()
-        if single is None:
-            axis.setTicks(None)
-            return
-        axis.setTicks([[(pts.single_x(), f"{pts.single_x():g}")]])
-        self.plot.getPlotItem().setXRange(*single, padding=0)
+        axis = self.plot.getPlotItem().getAxis("bottom")
+        # one value on the axis (one shot, or a column alike on every shot): labelled alone,
+        # not with ticks between the side-by-side shots that read as a sweep
+        axis.setTicks(None if single is None else [[(pts.single_x(), f"{pts.single_x():g}")]])
+        if (column, len(pts.shot_ids), single) != self._ranged_for:
+            # fit the view to a new column, shot count or single value only, so an edit keeps
+            # the analyst's zoom
+            self._ranged_for = (column, len(pts.shot_ids), single)
+            self.plot.getPlotItem().enableAutoRange()
+            if single is not None:  # the automatic range would zoom to the shots' spread
+                self.plot.getPlotItem().setXRange(*single, padding=0)
 
     def _draw_links(self, pts: OverviewPoints) -> None:
         both = np.isfinite(pts.upper_deg) & np.isfinite(pts.lower_deg)

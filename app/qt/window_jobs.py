@@ -8,6 +8,7 @@ from PySide6.QtCore import Qt
 
 from app.qt.processing_dialog import ProcessingDialog
 from app.qt.workers import BackgroundJob, JobOutcome, process_job
+from app.review.text import decisions_text
 from core import WakelineError
 
 
@@ -138,7 +139,11 @@ class JobActions:
         summary = outcome.value
         done = "" if summary is None else (
             f"{summary.processed} processed, {summary.failed} failed"
-            + (f"; {summary.reopened} accepted shot(s) back to review (their proposal moved)"
-               if summary.reopened else ""))
+            + decisions_text(summary.reopened, len(summary.decisions) - summary.reopened))
+        if summary is not None and summary.decisions:  # what became of each decision
+            shot_id, decision = summary.decisions[0]
+            more = len(summary.decisions) - 1
+            done = (f"{done.removesuffix(' (named above)')}: shot {shot_id}: {decision}"
+                    + (f" (and {more} more)" if more else ""))
         word = "Processing cancelled" if outcome.cancelled else "Processing finished"
-        self.statusBar().showMessage(f"{word}: {done}" if done else word, 8000)
+        self.statusBar().showMessage(f"{word}: {done}" if done else word, 15000)

@@ -13,7 +13,7 @@ from __future__ import annotations
 import logging
 import threading
 import traceback
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from PySide6.QtCore import QObject, QThread, QTimer, Signal, Slot
 
@@ -136,7 +136,8 @@ class ProcessSummary:
     processed: int = 0
     failed: int = 0
     total: int = 0
-    reopened: int = 0  # accepted shots back to review: their proposal moved
+    reopened: int = 0  # decided shots back to review
+    decisions: list = field(default_factory=list)  # (shot, what became of its decision)
 
 
 def process_job(model, shot_ids=None, workers: int | None = None, force: bool = False,
@@ -162,6 +163,8 @@ def process_job(model, shot_ids=None, workers: int | None = None, force: bool = 
             if outcome.ok:
                 summary.processed += 1
                 summary.reopened += outcome.reopened
+                if outcome.decision:
+                    summary.decisions.append((outcome.shot_id, outcome.decision))
             else:
                 summary.failed += 1
             report(outcome)

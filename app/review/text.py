@@ -319,3 +319,13 @@ def spread_text(spread) -> str:
     how = ", shots' ±" if spread.by_shots else ""
     return (f"{angle_text(spread.mean)} {uncertainty_text(spread.half_width)} "
             f"(sd {angle_text(spread.sd, signed=False)}, n {spread.n}{how})")
+
+
+def decisions_text(reopened: int, changed: int) -> str:
+    """What a run did to the analyst's decisions, for its closing line ("" when nothing)."""
+    text = ""
+    if reopened:
+        text += f"; {reopened} decided shot(s) back to review"
+    if changed:
+        text += f"; {changed} adjusted shot(s) whose angles were kept or carried"
+    return text + (" (named above)" if text else "")

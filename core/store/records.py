@@ -337,28 +337,38 @@ FLIGHT_TURN_DEG = 2.0
 
 def _flight_turn(old: ShotSummary | None, new: ShotSummary | None) -> float | None:
     """How far (deg) the flight turned from ``old`` to ``new``, when beyond ``FLIGHT_TURN_DEG``
-    and both have a flight and a circle; else None."""
-    from core.geometry import mid_circle
+    or across a direction where upper and lower change places (``core.geometry``), both with a
+    flight and a circle; else None."""
+    from core.geometry import mid_circle, upper_normal
 
     if old is None or new is None or old.flight is None or new.flight is None:
         return None
     if mid_circle(old.ball_a, old.ball_b) is None or mid_circle(new.ball_a, new.ball_b) is None:
         return None
-    turn = abs((new.flight.direction_deg - old.flight.direction_deg + 180.0) % 360.0 - 180.0)
-    return turn if turn > FLIGHT_TURN_DEG else None
+    before, after = old.flight.direction_deg, new.flight.direction_deg
+    turn = abs((after - before + 180.0) % 360.0 - 180.0)
+    (ax, ay), (bx, by) = upper_normal(before), upper_normal(after)
+    return turn if turn > FLIGHT_TURN_DEG or ax * bx + ay * by < 0 else None
 
 
 def _carried_angle(old: ShotSummary, new: ShotSummary, side: str, angle: float) -> float | None:
     """The angle on ``side`` under ``new``'s circle and flight of the outline point at
     ``angle`` under ``old``'s, or None when that point lies on the other side now."""
-    from core.geometry import angle_of_point, mid_circle, point_at_angle
+    from core.geometry import angle_of_point, mid_circle, on_own_side, point_at_angle
 
     (centre, radius), (new_centre, _) = (mid_circle(old.ball_a, old.ball_b),
                                          mid_circle(new.ball_a, new.ball_b))
     point = point_at_angle(centre, radius, old.flight.direction_deg, side, angle)
     offset = (point[0] - centre[0] + new_centre[0], point[1] - centre[1] + new_centre[1])
     carried = angle_of_point(new_centre, new.flight.direction_deg, side, offset)
-    return carried if -90.0 <= carried <= 90.0 else None
+    # a mark held at a stagnation point (+-90) comes back a rounding beyond it
+    if abs(carried) <= 90.0 + ON_SIDE_SLACK_DEG:
+        return on_own_side(carried)
+    return None
+
+
+#: How far (deg) past a stagnation point a carried mark may come out by rounding.
+ON_SIDE_SLACK_DEG = 1e-6
 
 
 def _same_angle(a: float | None, b: float | None) -> bool:

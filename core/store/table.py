@@ -78,9 +78,9 @@ def _result_cells(r: ShotRecord) -> list[str]:
     values = [
         r.state, r.failure,
         _angle(None if flight is None else flight.direction_deg),
-        _significant(None if flight is None else flight.speed_m_s, SPEED_DIGITS),
-        _significant(None if summary is None else summary.scale_mm_per_px, SCALE_DIGITS),
-        _significant(None if summary is None else summary.reynolds, REYNOLDS_DIGITS),
+        significant(None if flight is None else flight.speed_m_s, SPEED_DIGITS),
+        significant(None if summary is None else summary.scale_mm_per_px, SCALE_DIGITS),
+        significant(None if summary is None else summary.reynolds, REYNOLDS_DIGITS),
         *map(_angle, (r.proposed_deg("upper"), r.uncertainty_deg("upper"),
                       r.proposed_deg("lower"), r.uncertainty_deg("lower"),
                       r.final_deg("upper"), r.final_deg("lower"), r.wake_deflection_deg(),
@@ -110,7 +110,7 @@ def _angle(value: float | None) -> str | None:
     return "0" if text == "-0" else text
 
 
-def _significant(value: float | None, digits: int) -> float | None:
+def significant(value: float | None, digits: int) -> float | None:
     """``value`` rounded to ``digits`` significant digits (whole numbers stay whole)."""
     if value is None or not math.isfinite(value) or value == 0:
         return value
