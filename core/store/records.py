@@ -11,7 +11,14 @@ from dataclasses import asdict, dataclass, field, fields, replace
 from enum import StrEnum
 
 from core import WakelineError
-from core.geometry import SIDES
+from core.geometry import (
+    SIDES,
+    angle_of_point,
+    mid_circle,
+    on_own_side,
+    point_at_angle,
+    upper_normal,
+)
 from core.results import SideProposal
 from core.summary import ShotSummary
 from core.wake import wake_state
@@ -339,8 +346,6 @@ def _flight_turn(old: ShotSummary | None, new: ShotSummary | None) -> float | No
     """How far (deg) the flight turned from ``old`` to ``new``, when beyond ``FLIGHT_TURN_DEG``
     or across a direction where upper and lower change places (``core.geometry``), both with a
     flight and a circle; else None."""
-    from core.geometry import mid_circle, upper_normal
-
     if old is None or new is None or old.flight is None or new.flight is None:
         return None
     if mid_circle(old.ball_a, old.ball_b) is None or mid_circle(new.ball_a, new.ball_b) is None:
@@ -354,8 +359,6 @@ def _flight_turn(old: ShotSummary | None, new: ShotSummary | None) -> float | No
 def _carried_angle(old: ShotSummary, new: ShotSummary, side: str, angle: float) -> float | None:
     """The angle on ``side`` under ``new``'s circle and flight of the outline point at
     ``angle`` under ``old``'s, or None when that point lies on the other side now."""
-    from core.geometry import angle_of_point, mid_circle, on_own_side, point_at_angle
-
     (centre, radius), (new_centre, _) = (mid_circle(old.ball_a, old.ball_b),
                                          mid_circle(new.ball_a, new.ball_b))
     point = point_at_angle(centre, radius, old.flight.direction_deg, side, angle)
