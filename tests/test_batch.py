@@ -286,7 +286,7 @@ def test_the_command_says_which_decided_shots_went_back_to_review(session_path, 
     out, err = capsys.readouterr()
     assert f"wakeline: shot S2: {said}" in err and f"wakeline: shot S0: {carried}" in err
     assert ("processed 4 shot(s); 2 decided shot(s) back to review; 1 adjusted shot(s) whose "
-            "angles were kept or carried (named above)") in out
+            "angles were kept, carried or renewed (named above)") in out
 
 
 def test_a_frame_the_worker_may_not_read_is_named_in_the_analyst_s_words(session_path,

@@ -267,7 +267,7 @@ def test_the_end_of_processing_says_what_became_of_the_analysts_decisions(main_w
     window._on_processing_finished(JobOutcome(summary))
     assert window.statusBar().currentMessage() == (
         "Processing finished: 2 processed, 0 failed; 1 decided shot(s) back to review; 1 "
-        "adjusted shot(s) whose angles were kept or carried: shot s01: the flight turned by "
+        "adjusted shot(s) whose angles were kept, carried or renewed: shot s01: the flight turned by "
         "180.0° (0.0° → 180.0°): the adjusted marks would lie on the other side of the ball: "
         "back to review (and 1 more)")
 
