@@ -271,7 +271,8 @@ def _process_summary(path: Path, report) -> int:
         line += f", {len(report.failed)} failed"
     if report.skipped:
         line += f", {len(report.skipped)} already up to date"
-    line += decisions_text(len(report.reopened), len(report.changed))
+    if decisions := decisions_text(len(report.reopened), len(report.changed)):
+        line += f"{decisions} (named above)"
     if report.interrupted:
         line += f"; stopped with {report.not_run} shot(s) left for the next run"
     print(f"{line} ({report.elapsed_s:.1f} s)")

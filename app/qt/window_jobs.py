@@ -143,7 +143,7 @@ class JobActions:
         if summary is not None and summary.decisions:  # what became of each decision
             shot_id, decision = summary.decisions[0]
             more = len(summary.decisions) - 1
-            done = (f"{done.removesuffix(' (named above)')}: shot {shot_id}: {decision}"
+            done = (f"{done}: shot {shot_id}: {decision}"
                     + (f" (and {more} more)" if more else ""))
         word = "Processing cancelled" if outcome.cancelled else "Processing finished"
         self.statusBar().showMessage(f"{word}: {done}" if done else word, 15000)

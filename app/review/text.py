@@ -328,4 +328,4 @@ def decisions_text(reopened: int, changed: int) -> str:
         text += f"; {reopened} decided shot(s) back to review"
     if changed:
         text += f"; {changed} adjusted shot(s) whose angles were kept, carried or renewed"
-    return text + (" (named above)" if text else "")
+    return text
