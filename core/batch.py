@@ -256,7 +256,7 @@ def _backgrounds(session: Session, tasks: list[dict]):
         groups.setdefault((camera, task["settings"]["background"]), []).append(task)
     for index, ((camera, method), members) in enumerate(groups.items()):
         paths = {}
-        for size, pairs in _frames_by_size(session, camera).items():
+        for size, pairs in _frames_by_size(session, camera, members).items():
             path = folder / f"background-{index}-{size}.npy"
             # one shot's two frames: their median is their mean, which holds half of each
             # frame's particle images; their minimum keeps only the light both share
@@ -268,29 +268,31 @@ def _backgrounds(session: Session, tasks: list[dict]):
     return stack
 
 
-def _frames_by_size(session: Session, camera: str) -> dict[str, list]:
-    """Frame pairs of the first ``BACKGROUND_SHOTS`` readable shots at a camera position, by
-    frame size (``"WxH"``)."""
+def _frames_by_size(session: Session, camera: str, tasks: list[dict]) -> dict[str, list]:
+    """Frame pairs of the first ``BACKGROUND_SHOTS`` readable shots at a camera position of
+    each frame size (``"WxH"``, from the files' headers) that one of ``tasks`` has."""
+    from core.store.frames import frames_size
+
+    sizes = {shot_id: frames_size(session.frame_source(shot_id)) for shot_id in session
+             if str(session[shot_id].metadata.get("camera") or "") == camera}
+    wanted = {sizes.get(task["shot_id"]) for task in tasks} - {None}
     by_size: dict[str, list] = {}
-    taken = 0
-    for shot_id in session:
-        if str(session[shot_id].metadata.get("camera") or "") != camera:
+    for shot_id, shape in sizes.items():
+        if shape not in wanted or len(by_size.get(_size(shape), ())) >= BACKGROUND_SHOTS:
             continue
         try:
             a, b = read_frames(shot_id, session.frame_source(shot_id))
         except (WakelineError, OSError):
             continue
-        if a.shape != b.shape:
-            continue
-        by_size.setdefault(_size(a), []).append((a, b))
-        taken += 1
-        if taken == BACKGROUND_SHOTS:
-            break
+        if a.shape == b.shape == shape:
+            by_size.setdefault(_size(shape), []).append((a, b))
     return by_size
 
 
-def _size(frame) -> str:
-    return f"{frame.shape[1]}x{frame.shape[0]}"
+def _size(frame_or_shape) -> str:
+    """``"WxH"`` of a frame or an ``(H, W)`` shape."""
+    height, width = getattr(frame_or_shape, "shape", frame_or_shape)
+    return f"{width}x{height}"
 
 
 def _background_for(task: dict, frame) -> np.ndarray | None:
@@ -299,7 +301,8 @@ def _background_for(task: dict, frame) -> np.ndarray | None:
     Raises
     ------
     WakelineError
-        When none of the position's first shots has frames of its size.
+        When no readable shot of the position has frames of its size (its own file's
+        header could not be read, say).
     """
     given = task.get("background")
     if not given:
@@ -309,9 +312,8 @@ def _background_for(task: dict, frame) -> np.ndarray | None:
         where = f"camera {given['camera']!r}" if given["camera"] else "the camera position"
         sizes = ", ".join(given["paths"]) or "none readable"
         raise WakelineError(
-            f"background: no shot of {where} among its first {BACKGROUND_SHOTS} has frames of "
-            f"{_size(frame)} px ({sizes}); give shots of another size their own camera in "
-            "shots.csv")
+            f"background: no readable shot of {where} has frames of {_size(frame)} px "
+            f"(backgrounds made: {sizes})")
     return np.load(path)
 
 

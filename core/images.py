@@ -49,6 +49,25 @@ def read_frame_pair(path_a: str | Path, path_b: str | Path | None = None) -> tup
     return _as_float(frame_a), _as_float(frame_b)
 
 
+def frame_size(path: str | Path) -> tuple[int, int] | None:
+    """``(H, W)`` of a frame file's first page from its header alone (no pixels decoded), or
+    None where the header cannot be read (the file's own reading then says why)."""
+    try:
+        path = Path(path)
+        if _kind_of(path, path.suffix.lower()) == "TIFF":
+            import tifffile
+
+            with tifffile.TiffFile(path) as tif:
+                shape = tif.pages[0].shape
+        else:
+            import imageio.v3 as iio
+
+            shape = iio.improps(path, extension=".png").shape
+        return int(shape[0]), int(shape[1])
+    except Exception:  # noqa: BLE001 - any header the decoder cannot read: no size known
+        return None
+
+
 #: Brightest counts (99.9th percentile) of frames A and B further apart than this factor mean
 #: differently scaled exports (a 12-bit frame against one shifted to 16 bits is 16x); the two
 #: laser pulses of one pair differ far less.

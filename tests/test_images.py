@@ -163,3 +163,20 @@ def test_a_folder_given_as_a_frame_is_named_as_such(tmp_path):
     (tmp_path / "frames").mkdir()
     with pytest.raises(WakelineError, match=r"frames: is a folder, not a frame file$"):
         read_frame_pair(tmp_path / "frames", tmp_path / "a.tif")
+
+
+def test_a_frames_size_is_read_from_its_header(tmp_path):
+    # the background's frame sizes are told without decoding every shot's pixels
+    import imageio.v3 as iio
+
+    from core.images import frame_size
+
+    tifffile.imwrite(tmp_path / "a.tif", np.zeros((30, 40), np.uint16))
+    tifffile.imwrite(tmp_path / "pair.tif", np.zeros((2, 30, 40), np.uint16))
+    iio.imwrite(tmp_path / "a.png", np.zeros((20, 50), np.uint8))
+    (tmp_path / "bad.tif").write_bytes(b"not a picture")
+    assert frame_size(tmp_path / "a.tif") == (30, 40)
+    assert frame_size(tmp_path / "pair.tif") == (30, 40)
+    assert frame_size(tmp_path / "a.png") == (20, 50)
+    assert frame_size(tmp_path / "bad.tif") is None
+    assert frame_size(tmp_path / "gone.tif") is None

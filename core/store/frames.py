@@ -39,6 +39,21 @@ def read_frames(shot_id: str, source: dict) -> tuple[np.ndarray, np.ndarray]:
     return read_frame_pair(source["path_a"], source["path_b"])
 
 
+def frames_size(source: dict) -> tuple[int, int] | None:
+    """``(H, W)`` of a shot's frames (``Session.frame_source`` output) from the files' headers or
+    the stored arrays' shape, without reading the pixels; None where it cannot be told."""
+    from core.images import frame_size
+
+    if source["storage"] == "embedded":
+        try:
+            with h5py.File(source["file"], "r") as f:
+                shape = f[source["group"]]["a"].shape
+            return int(shape[0]), int(shape[1])
+        except STORAGE_ERRORS:
+            return None
+    return frame_size(source["path_a"])
+
+
 def frame_file_problem(shot_id: str, source: dict, checksums: bool = True) -> str:
     for path_key, sum_key in (("path_a", "sha256_a"), ("path_b", "sha256_b")):
         path = source.get(path_key)
