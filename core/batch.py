@@ -237,7 +237,7 @@ BACKGROUND_SHOTS = 24
 def _backgrounds(session: Session, tasks: list[dict]):
     """Background images for the tasks whose settings ask for one, per camera position (the
     manifest's ``camera`` column; one position when there is none) and frame size, written to
-    a temporary folder that the returned context removes; each such task gets the paths by
+    a temporary folder beside the session that the returned context removes; each such task gets the paths by
     frame size (:func:`_background_for` picks its own). A shot whose frames cannot be read or
     differ in size is left out of the background (it fails on its own if it is measured)."""
     import tempfile
@@ -249,7 +249,10 @@ def _backgrounds(session: Session, tasks: list[dict]):
     wanted = [t for t in tasks if t["settings"].get("background")]
     if not wanted:
         return stack
-    folder = Path(stack.enter_context(tempfile.TemporaryDirectory(prefix="wakeline-bg-")))
+    # beside the session, which a cluster's workers see at the same path (``iter_process``);
+    # the client's own temporary folder they may not
+    folder = Path(stack.enter_context(tempfile.TemporaryDirectory(
+        prefix=".wakeline-backgrounds-", dir=Path(session.path).parent)))
     groups: dict[tuple, list[dict]] = {}
     for task in wanted:
         camera = str(session[task["shot_id"]].metadata.get("camera") or "")

@@ -237,6 +237,16 @@ def test_a_background_is_made_per_frame_size_and_an_unreadable_shot_stops_only_i
     monkeypatch.setattr(core.shot, "measure_shot", spy)
     # two shots a size at most: the cropped ones come after two of the other size and a third
     monkeypatch.setattr("core.batch.BACKGROUND_SHOTS", 2)
+    import core.batch
+
+    folders = set()
+    pick = core.batch._background_for
+
+    def where(task, frame):  # the files lie beside the session, which a cluster's workers see
+        folders.update(Path(p).parent.parent for p in task["background"]["paths"].values())
+        return pick(task, frame)
+
+    monkeypatch.setattr(core.batch, "_background_for", where)
     src = write_shot_folder(tmp_path / "src", 5)
     for shot_id in ("S3", "S4"):
         for frame in ("a", "b"):
@@ -254,6 +264,8 @@ def test_a_background_is_made_per_frame_size_and_an_unreadable_shot_stops_only_i
         for group in (("S0", "S1"), ("S3", "S4")):
             frames = [f for i in group for f in read_frames(i, s.frame_source(i))]
             assert np.array_equal(seen[frames[0].shape], np.min(frames, axis=0))
+    assert folders == {tmp_path}
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["s.h5", "src"]  # and gone after
 
 
 def test_a_session_with_nothing_to_process_runs_no_workers(session_path):
