@@ -51,6 +51,12 @@ def _number(value) -> float:
     return _NAN if value is None or math.isnan(value) else float(value)
 
 
+#: ``BallFit.outline`` of a circle the analyst placed.
+BY_ANALYST = "set by the analyst"
+#: ``Flight.source`` of a direction given (the analyst's, or the manifest's ``flight_deg``).
+GIVEN_FLIGHT = "override"
+
+
 @dataclass
 class BallFit:
     """Circle fitted to the ball in one frame (image coordinates, px).

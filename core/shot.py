@@ -13,6 +13,7 @@ import numpy as np
 
 from core import WakelineError
 from core.results import (
+    BY_ANALYST,
     BallFit,
     Flight,
     SeparationResult,
@@ -150,8 +151,6 @@ class _StageClock:
 #: Standard uncertainty (px) of a circle the analyst placed by hand (centre per axis and
 #: radius): about what a drag on screen places at the zoom an outline is judged at.
 HAND_CIRCLE_SIGMA_PX = 0.5
-#: ``BallFit.outline`` of a circle the analyst placed.
-BY_ANALYST = "set by the analyst"
 
 
 def _wants_ball(settings: ShotSettings) -> bool:

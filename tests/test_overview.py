@@ -254,6 +254,12 @@ def test_one_value_on_the_axis_gets_a_readable_range(qtbot):
     assert axis._tickLevels == [[(30.0, "30")]]
     low, high = view.viewRange()[0]
     assert low == pytest.approx(28.5) and high == pytest.approx(31.5)
+    # a small value's one label is the value itself: no "(x1e-06)" beside the axis title
+    for record in (records := [_record(f"s{i}", 30.0, up=-9.0, low=2.0) for i in range(3)]):
+        record.metadata["seam_deg"] = 6e-05
+    panel.set_records(records)
+    qtbot.wait(50)
+    assert axis._tickLevels == [[(6e-05, "6e-05")]] and axis.autoSIPrefixScale == 1.0
 
 
 def test_one_value_alike_on_every_shot_is_drawn_at_its_own_scale():

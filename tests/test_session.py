@@ -554,9 +554,9 @@ def test_a_new_result_never_changes_a_decided_angle_silently(session_path):
         assert s["S1"].pick.lower_deg == -3.0
 
 
-def _flown(result, direction_deg: float, centre=(100.0, 80.0)):
+def _flown(result, direction_deg: float, centre=(100.0, 80.0), source="ball displacement"):
     """``result`` with a ball (radius 30 px at ``centre`` in both frames) flying
-    ``direction_deg``."""
+    ``direction_deg`` (``source``: how the flight was found)."""
     from dataclasses import replace
 
     from core.geometry import flight_unit
@@ -566,7 +566,7 @@ def _flown(result, direction_deg: float, centre=(100.0, 80.0)):
     result.ball_a = BallFit((centre[0] - 4 * fx, centre[1] - 4 * fy), 30.0)
     result.ball_b = BallFit((centre[0] + 4 * fx, centre[1] + 4 * fy), 30.0)
     result.flight = replace(result.flight, direction_deg=direction_deg,
-                            displacement_px=(8 * fx, 8 * fy))
+                            displacement_px=(8 * fx, 8 * fy), source=source)
     return result
 
 
@@ -597,24 +597,53 @@ def test_an_adjusted_pick_keeps_its_marks_places_when_the_flight_is_corrected(se
         assert s["S1"].final_deg("upper") == pytest.approx(17.0)
         assert s["S1"].final_deg("lower") == pytest.approx(-13.0)
         assert said.startswith("the flight turned by 10.0° (180.0° → 190.0°)")
-        # turned toward vertical, past where the sides change names: back to review
+        # turned past vertical, where the sides change names: each mark keeps its place under
+        # the other name (flight 60 -> 120 deg: the point 190 deg round from +x lies 20 deg
+        # ahead of the new lower normal, 333 deg 57 deg behind the new upper one; derived)
         s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.0, -3.0), 60.0))
         s.set_pick("S2", status="adjusted", upper_deg=40.0, lower_deg=-3.0, who="ana")
         said = s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.0, -3.0), 120.0))
-        assert said == ("the flight turned by 60.0° (60.0° → 120.0°): the adjusted marks would "
-                        "lie on the other side of the ball: back to review")
-        assert (s["S2"].pick.status, s["S2"].pick.who) == ("to review", "wakeline")
+        assert said == ("the flight turned by 60.0° (60.0° → 120.0°): the adjusted marks keep "
+                        "their places on the ball (upper +40.00° → lower -20.00°, lower -3.00° "
+                        "→ upper +57.00°)")
+        assert (s["S2"].final_deg("upper"), s["S2"].final_deg("lower")) == pytest.approx(
+            (57.0, -20.0))
+        # a mark pushed past the rear stagnation point onto the other's side: back to review
+        s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 5.0, -3.0), 0.0))
+        s.set_pick("S1", status="adjusted", upper_deg=85.0, lower_deg=80.0, who="ana")
+        said = s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 5.0, -3.0), 350.0))
+        assert said == ("the flight turned by 10.0° (0.0° → 350.0°): both marks would lie on the "
+                        "lower side: back to review")
+        assert (s["S1"].pick.status, s["S1"].pick.who) == ("to review", "wakeline")
         # measured again, the flight moving by a degree: the angles stand as the analyst set them
         s.set_pick("S2", status="adjusted", upper_deg=6.0, lower_deg=-2.0, who="ana")
         said = s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.5, -3.5), 121.0))
         assert (s["S2"].final_deg("upper"), s["S2"].final_deg("lower")) == (6.0, -2.0)
+        # the same degree given by hand (or the manifest): a correction, the marks carried
+        said = s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.5, -3.5), 122.0,
+                                          source="override"))
+        assert said.startswith("the flight turned by 1.0° (121.0° → 122.0°): the adjusted marks "
+                               "keep their places")
+        assert (s["S2"].final_deg("upper"), s["S2"].final_deg("lower")) == pytest.approx(
+            (7.0, -3.0))
         # by one degree, but across 91 deg where the sides change names (README, Conventions):
-        # the marks would lie on the other side
+        # each mark keeps its place under the other name (upper on the left of the picture
+        # before, on its right after: 200.5 deg round from +x is 19 deg behind the new lower
+        # normal at 181.5; derived)
         s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 90.5))
-        s.set_pick("S0", status="adjusted", upper_deg=20.0, who="ana")
+        s.set_pick("S0", status="adjusted", upper_deg=20.0, lower_deg=10.0, who="ana")
         said = s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 91.5))
-        assert said.startswith("the flight turned by 1.0° (90.5° → 91.5°): the adjusted marks "
-                               "would lie on the other side of the ball")
+        assert said == ("the flight turned by 1.0° (90.5° → 91.5°): the adjusted marks keep their "
+                        "places on the ball (upper +20.00° → lower +19.00°, lower +10.00° → "
+                        "upper +11.00°)")
+        assert (s["S0"].final_deg("upper"), s["S0"].final_deg("lower")) == pytest.approx(
+            (11.0, 19.0))
+        # one mark set, the other following its proposal: the set one keeps its place under
+        # the other name, and the side it left follows its new proposal
+        s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 5.0, -3.0), 90.5))
+        s.set_pick("S1", status="adjusted", upper_deg=20.0, lower_deg=None, who="ana")
+        s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 5.0, -3.0), 91.5))
+        assert (s["S1"].pick.upper_deg, s["S1"].pick.lower_deg) == (None, pytest.approx(19.0))
         # a mark held at the rear stagnation point, the flight reversed: at the front one now
         s.set_pick("S0", status="adjusted", upper_deg=90.0, lower_deg=10.0, who="ana")
         s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 0.0))

@@ -207,6 +207,7 @@ class SessionOverview(QtWidgets.QWidget):
         # one value on the axis (one shot, or a column alike on every shot): labelled alone,
         # not with ticks between the side-by-side shots that read as a sweep
         axis.setTicks(None if single is None else [[(pts.single_x(), f"{pts.single_x():g}")]])
+        axis.enableAutoSIPrefix(single is None)  # its label is the value itself, unscaled
         if (column, len(pts.shot_ids), single) != self._ranged_for:
             # fit the view to a new column, shot count or single value only, so an edit keeps
             # the analyst's zoom

@@ -18,7 +18,7 @@ from core.ball.constants import (
     SPILL_PX,
     TURN_PRIOR_RAD,
 )
-from core.results import BallFit, Flight, VectorField
+from core.results import GIVEN_FLIGHT, BallFit, Flight, VectorField
 
 
 @dataclass
@@ -301,7 +301,7 @@ def flight_from_balls(
     if np.all(np.isfinite(cov)):
         cov_out = tuple(tuple(float(v) for v in row) for row in cov)
     if flight_deg is not None:
-        return Flight(float(flight_deg) % 360.0, speed, (dx, dy), source="override",
+        return Flight(float(flight_deg) % 360.0, speed, (dx, dy), source=GIVEN_FLIGHT,
                       speed_sigma_m_s=speed_sigma, displacement_cov_px2=cov_out)
     direction = math.degrees(math.atan2(-dy, dx)) % 360.0
     sigma_deg = None

@@ -19,7 +19,7 @@ from core.geometry import (
     point_at_angle,
     upper_normal,
 )
-from core.results import SideProposal
+from core.results import BY_ANALYST, GIVEN_FLIGHT, SideProposal
 from core.summary import ShotSummary
 from core.wake import wake_state
 
@@ -314,18 +314,20 @@ def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str,
     turn = _flight_turn(record.summary, summary)
     if turn is not None:
         held = {side: kept.get(f"{side}_deg", getattr(pick, f"{side}_deg")) for side in SIDES}
-        carried = {side: _carried_angle(record.summary, summary, side, angle)
+        carried = {side: _carried_mark(record.summary, summary, side, angle)
                    for side, angle in held.items() if angle is not None}
         turned = (f"the flight turned by {turn:.1f}° ({record.summary.flight.direction_deg:.1f}° "
                   f"→ {summary.flight.direction_deg:.1f}°)")
-        if any(angle is None for angle in carried.values()):
+        landed = [new_side for new_side, _ in carried.values()]
+        if len(set(landed)) < len(landed):  # a mark passed a stagnation point
             return (replace(pick, status=ReviewStatus.TO_REVIEW, who="wakeline", when=now),
-                    (f"{turned}: the adjusted marks would lie on the other side of the "
-                     "ball: back to review"))
-        kept = {f"{side}_deg": angle for side, angle in carried.items()}
+                    f"{turned}: both marks would lie on the {landed[0]} side: back to review")
+        kept = {f"{new_side}_deg": angle for new_side, angle in carried.values()}
+        for side in SIDES:  # a side whose mark went to the other now follows its proposal
+            kept.setdefault(f"{side}_deg", None)
         said.append(f"{turned}: the adjusted marks keep their places on the ball (" + ", ".join(
-            f"{side} {_deg(held[side])} → {_deg(angle)}" for side, angle in carried.items())
-            + ")")
+            f"{side} {_deg(held[side])} → " + ("" if new_side == side else f"{new_side} ")
+            + _deg(angle) for side, (new_side, angle) in carried.items()) + ")")
     elif kept:
         sides = ", ".join(f"{name[:-4]} {_deg(value)}" for name, value in kept.items())
         said.append(f"the adjusted pick keeps {sides} (the proposal there moved)")
@@ -340,6 +342,8 @@ def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str,
 #: against the old flight, are carried to the new one. Measured again with other settings, a
 #: flight moves by hundredths to tenths of a degree.
 FLIGHT_TURN_DEG = 2.0
+#: The same for a flight given or circles set by hand: any turn but rounding's.
+HAND_TURN_DEG = 1e-6
 
 
 def _flight_turn(old: ShotSummary | None, new: ShotSummary | None) -> float | None:
@@ -353,21 +357,29 @@ def _flight_turn(old: ShotSummary | None, new: ShotSummary | None) -> float | No
     before, after = old.flight.direction_deg, new.flight.direction_deg
     turn = abs((after - before + 180.0) % 360.0 - 180.0)
     (ax, ay), (bx, by) = upper_normal(before), upper_normal(after)
-    return turn if turn > FLIGHT_TURN_DEG or ax * bx + ay * by < 0 else None
+    # a direction or circle set by hand is a correction, however small
+    by_hand = new.flight.source == GIVEN_FLIGHT or BY_ANALYST in (
+        getattr(new.ball_a, "outline", ""), getattr(new.ball_b, "outline", ""))
+    least = HAND_TURN_DEG if by_hand else FLIGHT_TURN_DEG
+    return turn if turn > least or ax * bx + ay * by < 0 else None
 
 
-def _carried_angle(old: ShotSummary, new: ShotSummary, side: str, angle: float) -> float | None:
-    """The angle on ``side`` under ``new``'s circle and flight of the outline point at
-    ``angle`` under ``old``'s, or None when that point lies on the other side now."""
+def _carried_mark(old: ShotSummary, new: ShotSummary, side: str,
+                  angle: float) -> tuple[str, float]:
+    """Where the outline point at ``angle`` on ``side`` under ``old``'s circle and flight lies
+    under ``new``'s: its side there and its angle. The point changes sides where it passes a
+    stagnation point, or where the names swap (across 91 and 271 deg)."""
     (centre, radius), (new_centre, _) = (mid_circle(old.ball_a, old.ball_b),
                                          mid_circle(new.ball_a, new.ball_b))
     point = point_at_angle(centre, radius, old.flight.direction_deg, side, angle)
     offset = (point[0] - centre[0] + new_centre[0], point[1] - centre[1] + new_centre[1])
-    carried = angle_of_point(new_centre, new.flight.direction_deg, side, offset)
-    # a mark held at a stagnation point (+-90) comes back a rounding beyond it
-    if abs(carried) <= 90.0 + ON_SIDE_SLACK_DEG:
-        return on_own_side(carried)
-    return None
+    other = next(s for s in SIDES if s != side)
+    for new_side in (side, other):
+        carried = angle_of_point(new_centre, new.flight.direction_deg, new_side, offset)
+        # a mark held at a stagnation point (+-90) comes back a rounding beyond it
+        if abs(carried) <= 90.0 + ON_SIDE_SLACK_DEG:
+            return new_side, on_own_side(carried)
+    return side, on_own_side(carried)  # (not reached: every point lies on one side)
 
 
 #: How far (deg) past a stagnation point a carried mark may come out by rounding.
