@@ -276,15 +276,16 @@ def _frames_by_size(session: Session, camera: str, tasks: list[dict]) -> dict[st
     each frame size (``"WxH"``, from the files' headers) that one of ``tasks`` has."""
     from core.store.frames import frames_size
 
-    sizes = {shot_id: frames_size(session.frame_source(shot_id)) for shot_id in session
-             if str(session[shot_id].metadata.get("camera") or "") == camera}
+    sources = {shot_id: session.frame_source(shot_id) for shot_id in session
+               if str(session[shot_id].metadata.get("camera") or "") == camera}
+    sizes = {shot_id: frames_size(source) for shot_id, source in sources.items()}
     wanted = {sizes.get(task["shot_id"]) for task in tasks} - {None}
     by_size: dict[str, list] = {}
     for shot_id, shape in sizes.items():
         if shape not in wanted or len(by_size.get(_size(shape), ())) >= BACKGROUND_SHOTS:
             continue
         try:
-            a, b = read_frames(shot_id, session.frame_source(shot_id))
+            a, b = read_frames(shot_id, sources[shot_id])
         except (WakelineError, OSError):
             continue
         if a.shape == b.shape == shape:

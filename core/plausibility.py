@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import math
 
+from core.geometry import SIDES_SWAP_DEG
 from core.summary import ShotSummary
 
 #: The measured speed may differ from the launcher's nominal speed by this fraction (a wheel
@@ -139,8 +140,6 @@ def _usual_check(direction: float, usual: float | None) -> list[str]:
 
 def _sides_swap_check(direction: float, sigma: float | None) -> list[str]:
     """A flight near vertical, where upper and lower change places (README, Conventions)."""
-    from core.geometry import SIDES_SWAP_DEG
-
     margin = max(SIDES_SWAP_MARGIN_DEG, 3.0 * sigma if sigma and math.isfinite(sigma) else 0.0)
     for swap in SIDES_SWAP_DEG:
         gap = _turn(direction, swap)

@@ -570,6 +570,14 @@ def _flown(result, direction_deg: float, centre=(100.0, 80.0), source="ball disp
     return result
 
 
+def _turned(s, shot: str, before: float, after: float, **pick) -> str:
+    """Measure ``shot`` flying ``before``, adjust it to ``pick``, measure it again flying
+    ``after``: what became of the decision."""
+    s.save_result(shot, _flown(fake_result(s.settings_for(shot), 5.0, -3.0), before))
+    s.set_pick(shot, status="adjusted", who="ana", **pick)
+    return s.save_result(shot, _flown(fake_result(s.settings_for(shot), 5.0, -3.0), after))
+
+
 def test_an_adjusted_pick_keeps_its_marks_places_when_the_flight_is_corrected(session_path):
     # frames found swapped (or a flight direction corrected) turn the flight: the analyst's
     # angles were read against the old one, so the marks keep their places on the ball and
@@ -600,24 +608,20 @@ def test_an_adjusted_pick_keeps_its_marks_places_when_the_flight_is_corrected(se
         # turned past vertical, where the sides change names: each mark keeps its place under
         # the other name (flight 60 -> 120 deg: the point 190 deg round from +x lies 20 deg
         # ahead of the new lower normal, 333 deg 57 deg behind the new upper one; derived)
-        s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.0, -3.0), 60.0))
-        s.set_pick("S2", status="adjusted", upper_deg=40.0, lower_deg=-3.0, who="ana")
-        said = s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.0, -3.0), 120.0))
+        said = _turned(s, "S2", 60.0, 120.0, upper_deg=40.0, lower_deg=-3.0)
         assert said == ("the flight turned by 60.0° (60.0° → 120.0°): the adjusted marks keep "
                         "their places on the ball (upper +40.00° → lower -20.00°, lower -3.00° "
                         "→ upper +57.00°)")
         assert (s["S2"].final_deg("upper"), s["S2"].final_deg("lower")) == pytest.approx(
             (57.0, -20.0))
         # a mark pushed past the rear stagnation point onto the other's side: back to review
-        s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 5.0, -3.0), 0.0))
-        s.set_pick("S1", status="adjusted", upper_deg=85.0, lower_deg=80.0, who="ana")
-        said = s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 5.0, -3.0), 350.0))
+        said = _turned(s, "S1", 0.0, 350.0, upper_deg=85.0, lower_deg=80.0)
         assert said == ("the flight turned by 10.0° (0.0° → 350.0°): both marks would lie on the "
                         "lower side: back to review")
         assert (s["S1"].pick.status, s["S1"].pick.who) == ("to review", "wakeline")
         # measured again, the flight moving by a degree: the angles stand as the analyst set them
         s.set_pick("S2", status="adjusted", upper_deg=6.0, lower_deg=-2.0, who="ana")
-        said = s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.5, -3.5), 121.0))
+        s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.5, -3.5), 121.0))
         assert (s["S2"].final_deg("upper"), s["S2"].final_deg("lower")) == (6.0, -2.0)
         # the same degree given by hand (or the manifest): a correction, the marks carried
         said = s.save_result("S2", _flown(fake_result(s.settings_for("S2"), 5.5, -3.5), 122.0,
@@ -630,9 +634,7 @@ def test_an_adjusted_pick_keeps_its_marks_places_when_the_flight_is_corrected(se
         # each mark keeps its place under the other name (upper on the left of the picture
         # before, on its right after: 200.5 deg round from +x is 19 deg behind the new lower
         # normal at 181.5; derived)
-        s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 90.5))
-        s.set_pick("S0", status="adjusted", upper_deg=20.0, lower_deg=10.0, who="ana")
-        said = s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 91.5))
+        said = _turned(s, "S0", 90.5, 91.5, upper_deg=20.0, lower_deg=10.0)
         assert said == ("the flight turned by 1.0° (90.5° → 91.5°): the adjusted marks keep their "
                         "places on the ball (upper +20.00° → lower +19.00°, lower +10.00° → "
                         "upper +11.00°)")
@@ -640,14 +642,9 @@ def test_an_adjusted_pick_keeps_its_marks_places_when_the_flight_is_corrected(se
             (11.0, 19.0))
         # one mark set, the other following its proposal: the set one keeps its place under
         # the other name, and the side it left follows its new proposal
-        s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 5.0, -3.0), 90.5))
-        s.set_pick("S1", status="adjusted", upper_deg=20.0, lower_deg=None, who="ana")
-        s.save_result("S1", _flown(fake_result(s.settings_for("S1"), 5.0, -3.0), 91.5))
+        _turned(s, "S1", 90.5, 91.5, upper_deg=20.0, lower_deg=None)
         assert (s["S1"].pick.upper_deg, s["S1"].pick.lower_deg) == (None, pytest.approx(19.0))
         # a mark held at the rear stagnation point, the flight reversed: at the front one now
-        s.set_pick("S0", status="adjusted", upper_deg=90.0, lower_deg=10.0, who="ana")
-        s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 0.0))
-        s.set_pick("S0", status="adjusted", upper_deg=90.0, lower_deg=10.0, who="ana")
-        s.save_result("S0", _flown(fake_result(s.settings_for("S0"), 5.0, -3.0), 180.0))
+        _turned(s, "S0", 0.0, 180.0, upper_deg=90.0, lower_deg=10.0)
         assert (s["S0"].pick.status, s["S0"].final_deg("upper"),
                 s["S0"].final_deg("lower")) == ("adjusted", -90.0, pytest.approx(-10.0))

@@ -202,11 +202,11 @@ class SessionOverview(QtWidgets.QWidget):
         self.note_label.setText(left_out_text(pts))
         self.note_label.setVisible(bool(pts.left_out))
         self._draw_current()
-        single = pts.single_x_range()
+        value, single = pts.single_x(), pts.single_x_range()
         axis = self.plot.getPlotItem().getAxis("bottom")
         # one value on the axis (one shot, or a column alike on every shot): labelled alone,
         # not with ticks between the side-by-side shots that read as a sweep
-        axis.setTicks(None if single is None else [[(pts.single_x(), f"{pts.single_x():g}")]])
+        axis.setTicks(None if value is None else [[(value, f"{value:g}")]])
         axis.enableAutoSIPrefix(single is None)  # its label is the value itself, unscaled
         if (column, len(pts.shot_ids), single) != self._ranged_for:
             # fit the view to a new column, shot count or single value only, so an edit keeps

@@ -373,13 +373,12 @@ def _carried_mark(old: ShotSummary, new: ShotSummary, side: str,
                                          mid_circle(new.ball_a, new.ball_b))
     point = point_at_angle(centre, radius, old.flight.direction_deg, side, angle)
     offset = (point[0] - centre[0] + new_centre[0], point[1] - centre[1] + new_centre[1])
-    other = next(s for s in SIDES if s != side)
-    for new_side in (side, other):
-        carried = angle_of_point(new_centre, new.flight.direction_deg, new_side, offset)
-        # a mark held at a stagnation point (+-90) comes back a rounding beyond it
-        if abs(carried) <= 90.0 + ON_SIDE_SLACK_DEG:
-            return new_side, on_own_side(carried)
-    return side, on_own_side(carried)  # (not reached: every point lies on one side)
+    carried = angle_of_point(new_centre, new.flight.direction_deg, side, offset)
+    # a mark held at a stagnation point (+-90) comes back a rounding beyond it
+    if abs(carried) > 90.0 + ON_SIDE_SLACK_DEG:  # every point lies on one side or the other
+        side = next(other for other in SIDES if other != side)
+        carried = angle_of_point(new_centre, new.flight.direction_deg, side, offset)
+    return side, on_own_side(carried)
 
 
 #: How far (deg) past a stagnation point a carried mark may come out by rounding.
