@@ -247,3 +247,36 @@ def test_an_accepted_shot_measured_again_goes_back_to_review_and_undo_accepts_it
     window.undo_stack.redo()
     assert window.model.record("g1").pick.status == "to review"
     window.close()
+
+
+def test_the_marks_and_decision_wait_while_the_shot_is_measured_again(
+        main_window, measured_session, qtbot):
+    """A mark moved on proposals about to be replaced would lose its undo step when they are
+    (the edit "was made on other proposals"): the shot's marks and decisions wait instead."""
+    window = _open(main_window, qtbot, measured_session, show=True)
+    before = window.model.result("g1")
+    pick = window.model.record("g1").pick
+
+    def answer(dialog):
+        dialog.setDoubleValue(175.0)
+        dialog.accept()
+
+    answer_dialog(answer)
+    window.act_set_flight.trigger()
+    assert window.measuring_again("g1")  # the job runs; its result is not taken in yet
+    assert not window.canvas.handle("upper").movable
+    window.nudge("upper", 2.0)
+    window.set_status("accepted")
+    assert "being measured again" in window.statusBar().currentMessage()
+    now = window.model.record("g1").pick
+    assert (now.status, now.upper_deg) == (pick.status, pick.upper_deg)
+    assert window.undo_stack.count() == 1  # the flight alone
+
+    _measured(window, qtbot, before)
+    assert not window.measuring_again("g1") and window.canvas.handle("upper").movable
+    proposed = window.model.record("g1").proposed_deg("upper")
+    window.nudge("upper", 2.0)
+    assert window.model.record("g1").pick.upper_deg == pytest.approx(proposed + 2.0, abs=1e-6)
+    window.undo_stack.undo()  # the nudge comes back off: its proposals are still the same
+    assert window.model.record("g1").pick.upper_deg is None
+    window.close()

@@ -113,13 +113,22 @@ class BallActions:
 
     # -- measuring again ---------------------------------------------------------------------
     def _remeasure(self, command: GeometryEdit) -> None:
-        """Measure the command's shot again now, or after the running job."""
+        """Measure the command's shot again now, or after the running job; its marks stay put
+        meanwhile (:meth:`measuring_again`)."""
         self._remeasure_queue.append(command)
         if self.job is None:
             self._start_queued()
+        self._show_current(full=False)
 
     def _remeasuring(self) -> bool:
         return getattr(self.job, "remeasuring", None) is not None
+
+    def measuring_again(self, shot_id: str) -> bool:
+        """The shot is being measured again (or waits to be) after a correction of its ball.
+        Its marks and decisions wait for the result: an edit made meanwhile would be made on
+        proposals about to be replaced, and its undo step refused once they are."""
+        running = self.job.remeasuring.shot_id if self._remeasuring() else None
+        return shot_id == running or any(c.shot_id == shot_id for c in self._remeasure_queue)
 
     def _start_queued(self) -> None:
         """Start the next waiting measurement (called when a job ends)."""
@@ -154,3 +163,5 @@ class BallActions:
                 word = "measured again" if decision is not None else "measured again, then undone"
                 said = f": {decision}" if decision else ""
                 self.statusBar().showMessage(f"Shot {command.shot_id} {word}{said}.", 8000)
+        if self.model.session is not None:
+            self._show_current(full=False)  # its marks move again

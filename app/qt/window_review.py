@@ -142,7 +142,18 @@ class ReviewActions:
         )
 
     def _editable(self, record) -> bool:
-        return not self.model.read_only and record.pick.status != ReviewStatus.UNUSABLE
+        return (not self.model.read_only and record.pick.status != ReviewStatus.UNUSABLE
+                and not self.measuring_again(record.shot_id))
+
+    def _waiting_for_measurement(self, shot_ids: list[str]) -> list[str]:
+        """Those of ``shot_ids`` being measured again after a correction of their ball, said
+        in the status bar: their marks and decisions wait for the new proposals."""
+        waiting = [s for s in shot_ids if self.measuring_again(s)]
+        if waiting:
+            self.statusBar().showMessage(
+                f"Shot {waiting[0]} is being measured again with its corrected ball: its marks "
+                "and decision wait for the new proposals.", 6000)
+        return waiting
 
     # -- review edits ------------------------------------------------------------------------
     def _can_edit(self) -> bool:
@@ -174,7 +185,10 @@ class ReviewActions:
             return
         order, current = self.shot_list.visible_ids(), self.model.current_id
         targets = self.decision_targets()
-        records = [self.model.record(s) for s in targets]
+        waiting = self._waiting_for_measurement(targets)
+        records = [self.model.record(s) for s in targets if s not in waiting]
+        if not records:
+            return
         if status in (ReviewStatus.ACCEPTED, ReviewStatus.ADJUSTED):
             records = [r for r in records if r.summary is not None]  # nothing proposed yet
         if status == ReviewStatus.ACCEPTED:
@@ -199,7 +213,9 @@ class ReviewActions:
                 return
         if len(targets) > 1:
             self.statusBar().showMessage(
-                f"{len(edits)} of {len(targets)} selected shots marked {status}.", 6000)
+                f"{len(edits)} of {len(targets)} selected shots marked {status}"
+                + (f" ({len(waiting)} being measured again left as they are)." if waiting
+                   else "."), 6000)
         if status != ReviewStatus.TO_REVIEW and self.act_advance.isChecked():
             self._advance(order, current, set(targets))
 
@@ -288,6 +304,8 @@ class ReviewActions:
     def nudge(self, side: str, step_deg: float) -> None:
         if not self._can_edit() or self.canvas.shot is None:
             return
+        if self._waiting_for_measurement([self.model.current_id]):
+            return
         record = self.model.record(self.model.current_id)
         if record.pick.status == ReviewStatus.UNUSABLE:
             self.statusBar().showMessage(f"Shot {record.shot_id} is marked unusable: R puts it "
@@ -305,6 +323,9 @@ class ReviewActions:
         if not self._can_edit():
             return
         shot_id = self.model.current_id
+        if self._waiting_for_measurement([shot_id]):  # dragged as the measurement began
+            self._show_current(full=False)
+            return
         self._move_mark(MarkMove(self.model, shot_id, side, angle_deg))
 
     def _move_mark(self, command: MarkMove) -> None:
