@@ -12,6 +12,7 @@ from PySide6.QtCore import Qt
 from test_window import _drag, _key, _open, _viewport_point
 
 from app.qt.canvas_items import mark_circle
+from app.qt.shot_list import COL_STATUS
 from app.review.text import angle_text
 from core.geometry import point_at_angle
 from core.shot import BY_ANALYST
@@ -239,11 +240,15 @@ def test_an_accepted_shot_measured_again_goes_back_to_review_and_undo_accepts_it
     pick = window.model.record("g1").pick
     assert (pick.status, pick.who) == ("to review", "wakeline")
     assert "back to review" in window.statusBar().currentMessage()
+    # told apart from a shot nobody decided yet, in the list and the readout
+    assert window.shot_list.proxy.index(0, COL_STATUS).data() == "back to review"
+    assert window.readout.status_label.text() == "back to review"
     assert window.undo_stack.undoText() == "Set the flight direction to 170.0° of shot g1"
     window.undo_stack.undo()
     undone = window.model.record("g1").pick
     assert (undone.status, undone.who, undone.when, undone.flight_deg) == (
         "accepted", accepted.who, accepted.when, None)
+    assert window.shot_list.proxy.index(0, COL_STATUS).data() == "accepted"
     window.undo_stack.redo()
     assert window.model.record("g1").pick.status == "to review"
     window.close()

@@ -6,7 +6,7 @@ from __future__ import annotations
 import pytest
 from PySide6.QtCore import Qt
 
-from app.review.columns import MEASURED_BY_NAME, parse_filter, status_text
+from app.review.columns import MEASURED_BY_NAME, matches_status, parse_filter, status_text
 from core.store import Pick, ProcessState, ShotRecord
 from core.summary import ShotSummary
 
@@ -82,6 +82,27 @@ def test_status_words(records):
                                                  "not processed"]
     failed = ShotRecord("f", {}, state=ProcessState.FAILED, failure="no ball")
     assert status_text(failed) == "failed"
+
+
+def test_a_decision_the_measurement_sent_back_reads_back_to_review(records):
+    """An accepted shot whose proposal moved when it was measured again goes back to review
+    under the measurement's name: the list tells it from a shot nobody decided yet, and the
+    "to review" filter still takes it."""
+    from dataclasses import replace
+
+    from core.store.records import MEASUREMENT_AUTHOR, decision_on_new_proposals
+
+    accepted = _record("c1", 30.0, 12.0, 3.0, 0.9, status="accepted")
+    pick, said = decision_on_new_proposals(accepted, {"upper": 13.0, "lower": 3.0},
+                                           "2026-12-05T10:00:00Z")
+    assert pick.who == MEASUREMENT_AUTHOR and "back to review" in said
+    reopened = replace(accepted, pick=pick)
+    assert status_text(reopened) == "back to review"
+    assert matches_status(reopened, "to review") and matches_status(reopened, "back to review")
+    assert not matches_status(records[0], "back to review")
+    # the analyst's own "back to review" (R) is theirs: plain "to review"
+    mine = replace(accepted, pick=replace(pick, who="analyst"))
+    assert status_text(mine) == "to review"
 
 
 def test_the_list_sorts_and_filters_on_measured_columns(main_window, make_session, qtbot):

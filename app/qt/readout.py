@@ -26,7 +26,7 @@ from PySide6.QtWidgets import (
 
 from app.qt.icons import status_icon
 from app.review import colours
-from app.review.columns import status_text
+from app.review.columns import decided_status, status_text
 from app.review.model import ProcessState, ReviewStatus
 from app.review.text import (
     MISSING,
@@ -293,8 +293,8 @@ class ReadoutPanel(QWidget):
             return
         self.title.setText(f"Shot {record.shot_id}")
         status = status_text(record)
-        if status == record.pick.status:
-            self.status_icon.setPixmap(status_icon(status).pixmap(18, 18))
+        if decided_status(record) is not None:
+            self.status_icon.setPixmap(status_icon(record.pick.status).pixmap(18, 18))
         else:  # not processed (or failed) yet: nothing decided, no status icon
             self.status_icon.clear()
         self.status_label.setText(status)

@@ -43,6 +43,7 @@ from app.review.columns import (
     STATUS_FILTERS,
     Column,
     ShotQuery,
+    decided_status,
     filter_help,
     matches_status,
     metadata_column,
@@ -159,7 +160,7 @@ class ShotTableModel(QAbstractTableModel):
         if role == Qt.ItemDataRole.DecorationRole:
             if col == COL_STATE:
                 return state_icon(rec.state)
-            if col == COL_STATUS and status_text(rec) == rec.pick.status:
+            if col == COL_STATUS and decided_status(rec) is not None:
                 return status_icon(rec.pick.status)
         if role == Qt.ItemDataRole.ToolTipRole:
             return self._tooltip(rec)

@@ -21,30 +21,46 @@ from dataclasses import dataclass
 from app.review.text import angle_text, quality_text
 from core.geometry import SIDES
 from core.store import ProcessState, ReviewStatus, ShotRecord
+from core.store.records import MEASUREMENT_AUTHOR
 
 NOT_PROCESSED = "not processed"
 FAILED = "failed"
 ALL_SHOTS = "all shots"
+#: A decision the measurement sent back to review (its proposal moved, a mark would have
+#: crossed to the other side): "to review" too, told apart from never-decided shots.
+BACK_TO_REVIEW = "back to review"
 #: the status filter's choices: every shot, a review status, or a processing state
-STATUS_FILTERS = (ALL_SHOTS, *ReviewStatus, FAILED, NOT_PROCESSED)
+STATUS_FILTERS = (ALL_SHOTS, *ReviewStatus, BACK_TO_REVIEW, FAILED, NOT_PROCESSED)
 
 
 def status_text(record: ShotRecord) -> str:
     """The review status in words; a shot never measured is "not processed" (or "failed"),
-    not "to review": there is nothing to review yet."""
-    if record.pick.status == ReviewStatus.TO_REVIEW and record.summary is None:
-        return FAILED if record.state == ProcessState.FAILED else NOT_PROCESSED
+    not "to review": there is nothing to review yet. A decision the measurement sent back is
+    "back to review"."""
+    if record.pick.status == ReviewStatus.TO_REVIEW:
+        if record.summary is None:
+            return FAILED if record.state == ProcessState.FAILED else NOT_PROCESSED
+        if record.pick.who == MEASUREMENT_AUTHOR:
+            return BACK_TO_REVIEW
     return str(record.pick.status)
 
 
+def decided_status(record: ShotRecord) -> ReviewStatus | None:
+    """The review status its icon shows; None for a shot with nothing to review yet."""
+    return None if status_text(record) in (FAILED, NOT_PROCESSED) else record.pick.status
+
+
 def matches_status(record: ShotRecord, choice: str) -> bool:
-    """Whether a shot belongs under one of ``STATUS_FILTERS``."""
+    """Whether a shot belongs under one of ``STATUS_FILTERS`` ("to review" takes the shots
+    sent back to review too)."""
     if choice == ALL_SHOTS:
         return True
     if choice == FAILED:
         return record.state == ProcessState.FAILED
     if choice == NOT_PROCESSED:
         return record.state == ProcessState.UNPROCESSED
+    if choice == ReviewStatus.TO_REVIEW:
+        return reviewable(record)
     return status_text(record) == choice
 
 

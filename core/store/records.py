@@ -282,6 +282,11 @@ def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -
 SAME_PROPOSAL_DEG = 0.005
 
 
+#: Who a pick names when the measurement, not the analyst, changed it (a decision sent back to
+#: review because its proposal moved).
+MEASUREMENT_AUTHOR = "wakeline"
+
+
 def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str,
                               summary: ShotSummary | None = None):
     """What becomes of the analyst's decision when a shot's proposals change to ``proposals``
@@ -302,7 +307,7 @@ def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str,
     if pick.status == ReviewStatus.ACCEPTED and moved:
         changes = ", ".join(f"{side} {_deg(record.proposed_deg(side))} → "
                             f"{_deg(proposals.get(side))}" for side in moved)
-        return (replace(pick, status=ReviewStatus.TO_REVIEW, who="wakeline", when=now),
+        return (replace(pick, status=ReviewStatus.TO_REVIEW, who=MEASUREMENT_AUTHOR, when=now),
                 f"the proposal accepted before moved ({changes}): back to review")
     if pick.status != ReviewStatus.ADJUSTED:
         return None, ""
@@ -320,7 +325,7 @@ def decision_on_new_proposals(record: ShotRecord, proposals: dict, now: str,
                   f"→ {summary.flight.direction_deg:.1f}°)")
         landed = [new_side for new_side, _ in carried.values()]
         if len(set(landed)) < len(landed):  # a mark passed a stagnation point
-            return (replace(pick, status=ReviewStatus.TO_REVIEW, who="wakeline", when=now),
+            return (replace(pick, status=ReviewStatus.TO_REVIEW, who=MEASUREMENT_AUTHOR, when=now),
                     f"{turned}: both marks would lie on the {landed[0]} side: back to review")
         kept = {f"{new_side}_deg": angle for new_side, angle in carried.values()}
         for side in SIDES:  # a side whose mark went to the other now follows its proposal
