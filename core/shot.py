@@ -379,6 +379,8 @@ def _flight(result: ShotResult, raw, balls, glare, warnings: list[str]) -> Fligh
     )
     moved = float(np.hypot(*shift))
     if settings.flight_deg is not None:
+        if moved < MIN_FLIGHT_PX:  # a held ball: the direction given against the free stream's
+            warnings.extend(_given_against_stream(result.field, ball_a, settings.flight_deg))
         return flight
     if moved < MIN_FLIGHT_PX:
         held = flight_from_stream(result.field, ball_a, dt_s=settings.dt_s,
@@ -429,6 +431,25 @@ def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
     if ahead.sum() < 3 or behind.sum() < 3:
         return False
     return float(np.median(follow[ahead])) > float(np.median(follow[behind])) + 0.2 * moved
+
+
+def _given_against_stream(field, ball, flight_deg: float) -> list[str]:
+    """A held ball's flight direction given (manifest or analyst) that the free stream does not
+    bear out: the air streams past a held ball against its flight."""
+    from core.ball import flight_from_stream
+    from core.plausibility import DIRECTION_TOLERANCE_DEG
+
+    stream = flight_from_stream(field, ball)
+    if stream is None or float(np.hypot(*_stream_px(field, ball))) < MIN_FLIGHT_PX:
+        return []
+    gap = abs((flight_deg - stream.direction_deg + 180.0) % 360.0 - 180.0)
+    if gap <= DIRECTION_TOLERANCE_DEG:
+        return []
+    return [f"the flight direction given ({flight_deg:g} deg) is {gap:.0f} deg from the "
+            f"{stream.direction_deg:.1f} deg the free stream gives a held ball (against the "
+            "stream): check the flight direction"
+            + ("; it looks the wrong way round" if gap >= 180.0 - DIRECTION_TOLERANCE_DEG
+               else "")]
 
 
 def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings, clock,

@@ -144,6 +144,11 @@ def test_held_ball_warns_without_override_and_measures_with_it():
     assert any("override" in w for w in result.warnings)
     held = measure_shot(frame_a, frame_b, ShotSettings(flight_deg=180.0))
     assert held.flight.source == "override" and held.flight.direction_deg == 180.0
+    assert not any("free stream" in w for w in held.warnings)  # the stream bears it out
+    # a direction given the wrong way round: the air streams past a held ball against its
+    # flight, so the free stream says so
+    wrong = measure_shot(frame_a, frame_b, ShotSettings(flight_deg=0.0))
+    assert any("free stream" in w and "wrong way round" in w for w in wrong.warnings)
     for side, true in ((held.separation.upper, truth.upper_deg),
                        (held.separation.lower, truth.lower_deg)):
         # truth from the generator; the target (2.5 deg) holds on a held ball too, and
