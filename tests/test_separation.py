@@ -463,3 +463,20 @@ def test_smoothed_frames_keep_the_cost_rising_with_the_motion_error_further_out(
     assert np.all(np.diff(smooth) > 0)
     # the same samples, the same ones left out
     np.testing.assert_array_equal(band.blurred(2.0).phi, band.phi)
+
+
+def test_starts_further_apart_than_a_fit_window_are_compared_on_the_whole_band(monkeypatch):
+    # the refinements' starts are compared on the samples every refinement saw; starts more
+    # than a window's width apart (frames A and B of different shots gave -38 and +40 deg)
+    # share none, and the comparison then takes the whole band instead of failing
+    from core import separation
+
+    def far_apart(problem):
+        return [problem.start(-38.0), problem.start(40.0)], 1.0  # any cost: the gain is checked
+
+    monkeypatch.setattr(separation, "_coarse_search", far_apart)
+    result, _ = _measure(ball_shot((600, 800), radius_px=150.0, upper_deg=12.0,
+                                   lower_deg=4.0, seed=8))
+    for side in ("upper", "lower"):
+        proposal = getattr(result.separation, side)
+        assert proposal.angle_deg is not None or proposal.reason, side
