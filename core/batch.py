@@ -411,7 +411,34 @@ def _pool_context():
     # Workers fork from a server that has imported the measurement once: quick pool start-up.
     context.set_forkserver_preload(
         ["core.batch", "core.piv", "core.ball", "core.fields", "core.separation"])
+    _start_forkserver_deaf()
     return context
+
+
+#: Signals a terminal sends the whole process group (Ctrl-C, a closed terminal) or a job
+#: runner may; they are the writer's (``_worker_start``).
+STOP_SIGNALS = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP")
+                     if hasattr(signal, name))
+
+
+def _start_forkserver_deaf() -> None:
+    """Start the fork server with the stop signals blocked, which it keeps across its exec.
+
+    Python's fork server ignores Ctrl-C only once it has imported its preloaded modules; a
+    Ctrl-C to the process group in the seconds before (scipy's imports) ended it, and the
+    writer then failed on its closed pipe instead of stopping cleanly. A signal that arrives
+    while this thread blocks them waits, and is the writer's once they are unblocked.
+    """
+    from multiprocessing import forkserver, resource_tracker
+
+    # the fork server starts the resource tracker first, which unblocks SIGINT and SIGTERM
+    # (not restoring the mask it found) as it starts: started before, it is left running
+    resource_tracker.ensure_running()
+    blocked = signal.pthread_sigmask(signal.SIG_BLOCK, STOP_SIGNALS)
+    try:
+        forkserver.ensure_running()
+    finally:
+        signal.pthread_sigmask(signal.SIG_SETMASK, blocked)
 
 
 def _run_pool(tasks: list[dict], stop, count: int, work=None) -> Iterator[tuple]:

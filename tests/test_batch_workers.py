@@ -172,6 +172,45 @@ def test_sigterm_and_sighup_stop_a_run_cleanly(tmp_path, signum):
         assert 0 < len(done) < 40
 
 
+@pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="reads /proc")
+def test_ctrl_c_to_the_process_group_while_the_fork_server_starts_stops_cleanly(tmp_path):
+    # a terminal's Ctrl-C reaches every process of the group: the fork server, importing the
+    # measurement before it ignores Ctrl-C itself (Python's multiprocessing), died of it and
+    # the run ended on "internal error: EOFError"
+    folder = tmp_path / "run"
+    session_path = folder / "s.h5"
+    import_folder(write_shot_folder(folder / "src", 6), session_path)
+    with Session.open(session_path) as s:
+        s.set_processing_settings(fast_settings())
+    with open(tmp_path / "out.txt", "w") as out, open(tmp_path / "err.txt", "w") as err:
+        child = subprocess.Popen(
+            [sys.executable, "-m", "app.cli", "process", str(session_path), "--workers", "2"],
+            cwd=ROOT, stdout=out, stderr=err, env=dict(os.environ, PYTHONPATH=str(ROOT)),
+            start_new_session=True)
+    give_up = time.monotonic() + 120  # a guard against a hung run, not a timing check
+    while not any(b"forkserver" in _cmdline(pid) for pid in _descendants(child.pid)):
+        assert child.poll() is None and time.monotonic() < give_up, _output(tmp_path)
+        time.sleep(0.002)
+    helpers = _descendants(child.pid)
+    os.killpg(child.pid, signal.SIGINT)  # as Ctrl-C does: the whole group
+    child.wait(timeout=120)
+    left = _wait_gone(helpers)
+    for pid in left:  # do not leave them to the other tests
+        os.kill(pid, signal.SIGKILL)
+    out, err = _output(tmp_path)
+    assert "Traceback" not in err and "internal error" not in err, err
+    assert "stopping: finished shots are kept (Ctrl-C again to abort)" in err
+    assert child.returncode == 1 and "left for the next run" in out, (out, err)
+    assert left == []
+
+
+def _cmdline(pid: int) -> bytes:
+    try:
+        return (Path("/proc") / str(pid) / "cmdline").read_bytes()
+    except OSError:
+        return b""
+
+
 def test_a_pool_that_breaks_while_shots_are_handed_out_loses_none(monkeypatch):
     # a worker can die before every shot is handed to the pool: submit then raises
     # BrokenProcessPool (concurrent.futures), and the shots not handed out wait for a new pool
