@@ -281,6 +281,8 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
     result.ball_warnings = list(warnings[first:])  # what the ball and flight stages said
     clock.lap("ball")
     result.valid_near_ball = valid_near_ball(result.field, ball_a, 2.0 * result.field.spacing_px)
+    stream = _air_stream_px(result.field, ball_a, flight)
+    result.reynolds = _reynolds(result, stream)
     if _order_reversed(result.field, ball_a, flight):
         if settings.flight_deg is not None:
             # with the direction given, the likelier mistake is the direction, not the order
@@ -307,8 +309,33 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
             SideProposal(None, reason=reason), SideProposal(None, reason=reason)
         )
         return
-    result.separation = _separation(*conditioned, balls, flight, settings, clock, result, glare,
-                                    raw[0])
+    if stream is None:
+        reason = "the air hardly moves relative to the ball: no wake to follow"
+        result.separation = SeparationResult(SideProposal(None, reason=reason),
+                                             SideProposal(None, reason=reason))
+        return
+    result.separation = _separation(*conditioned, balls, flight, stream, settings, clock,
+                                    result, glare, raw[0])
+
+
+def _air_stream_px(lab_field: VectorField, ball: BallFit, flight: Flight) -> float | None:
+    """The air's speed past the ball (px between frames): the ball's own, or a held ball's free
+    stream; None when the air hardly moves relative to the ball."""
+    stream = float(np.hypot(*flight.displacement_px))
+    if stream < MIN_FLIGHT_PX:  # a held ball: the air streams past it
+        stream = _free_stream_px(lab_field, ball)
+    return stream if stream >= MIN_FLIGHT_PX else None
+
+
+def _reynolds(result: ShotResult, stream_px: float | None):
+    """The shot's Reynolds number from the air's speed past the ball, when dt, the scale and
+    the ball's diameter are known."""
+    from core.air import reynolds_number
+
+    settings = result.settings
+    scale, dt = result.scale_mm_per_px, settings.dt_s
+    air_m_s = stream_px * scale * 1e-3 / dt if stream_px and scale and dt else None
+    return reynolds_number(air_m_s, _ball_diameter_mm(settings), settings.air_temp_c)
 
 
 def _ball_warnings(ball_a: BallFit, ball_b: BallFit, expected_r: float | None) -> list[str]:
@@ -452,15 +479,15 @@ def _given_against_stream(field, ball, flight_deg: float) -> list[str]:
                else "")]
 
 
-def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings, clock,
-                result: ShotResult, glare=(None, None), raw_a=None):
+def _separation(frame_a, frame_b, balls, flight: Flight, stream: float,
+                settings: ShotSettings, clock, result: ShotResult, glare=(None, None),
+                raw_a=None):
     """Fine correlation around the ball in the ball frame, then the layer fit on each side.
 
-    ``frame_a, frame_b`` are the conditioned frames; the particle images beside the ball are
-    counted on ``raw_a`` (frame A as recorded; local normalisation dims the particles next to
-    a bright ball). Also sets ``result.reynolds`` from the air's speed past the ball.
+    ``frame_a, frame_b`` are the conditioned frames; ``stream`` the air's speed past the ball
+    (px, :func:`_air_stream_px`); the particle images beside the ball are counted on ``raw_a``
+    (frame A as recorded; local normalisation dims the particles next to a bright ball).
     """
-    from core.air import reynolds_number
     from core.piv import correlate_pair
     from core.separation import BallFrame, propose_separation
 
@@ -472,16 +499,6 @@ def _separation(frame_a, frame_b, balls, flight: Flight, settings: ShotSettings,
         return SeparationResult(SideProposal(None, reason=reason),
                                 SideProposal(None, reason=reason))
     fine = replace(settings.piv, passes=FINE_PASSES)
-    stream = float(np.hypot(*flight.displacement_px))
-    if stream < MIN_FLIGHT_PX:  # a held ball: the air streams past it
-        stream = _free_stream_px(lab_field, balls[0])
-        if not stream >= MIN_FLIGHT_PX:
-            reason = "the air hardly moves relative to the ball: no wake to follow"
-            return SeparationResult(SideProposal(None, reason=reason),
-                                    SideProposal(None, reason=reason))
-    scale, dt = result.scale_mm_per_px, settings.dt_s
-    air_m_s = stream * scale * 1e-3 / dt if scale and dt else None
-    result.reynolds = reynolds_number(air_m_s, _ball_diameter_mm(settings), settings.air_temp_c)
     vf = correlate_pair(a, b, mask, mask, fine)
     vf = replace(vf, dx_px=vf.dx_px - left[0], dy_px=vf.dy_px - left[1])
     result.fine_field = replace(vf, x_px=vf.x_px + origin[0], y_px=vf.y_px + origin[1])

@@ -91,11 +91,20 @@ def test_no_ball_is_a_one_line_error():
 
 
 def test_swapped_frames_warn_and_propose_nothing():
+    from core.air import kinematic_viscosity_m2_s
+
     frame_a, frame_b, truth = ball_shot(seed=13)
-    result = measure_shot(frame_b, frame_a, ShotSettings(dt_s=truth.dt_s))
+    result = measure_shot(frame_b, frame_a, ShotSettings(
+        dt_s=truth.dt_s, ball_diameter_mm=truth.ball_diameter_mm, air_temp_c=5.0))
     assert any("frames_swapped yes" in w and "--correct-values" in w for w in result.warnings)
     assert result.separation.upper.angle_deg is None
     assert "swapped" in result.separation.upper.reason
+    # the Reynolds number needs the speed, not the separation: Re = U D / nu at the shot's air
+    # temperature (definition; nu from Sutherland's law, held against White's table in
+    # tests/test_air.py); it was left out when the separation was
+    assert result.reynolds == pytest.approx(
+        result.flight.speed_m_s * truth.ball_diameter_mm * 1e-3 / kinematic_viscosity_m2_s(5.0),
+        rel=1e-9)
     # a session's loaders hand the frames over in the order exposed where the manifest says
     # frames_swapped (tests/test_batch.py); still swapped then, the warning points at that
     said = measure_shot(frame_b, frame_a, ShotSettings(dt_s=truth.dt_s, frames_swapped=True))
