@@ -95,7 +95,8 @@ def regime_note(reynolds: float | None) -> str:
         return ""
     lo, hi = CRISIS_RE
     if reynolds < lo:
-        return "below the drag crisis: a smooth ball's layer separates laminar"
+        return ("below the drag crisis: laminar separation, unless a seam or roughness trips "
+                "the layer on its side")
     if reynolds <= hi:
         return "in the drag crisis: the layer may turn turbulent before separating"
     return "above the drag crisis: turbulent separation expected"

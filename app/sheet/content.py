@@ -159,13 +159,13 @@ def timing_text(record: ShotRecord) -> str:
     parts = []
     dt = md.get("dt_s") if summary is None else summary.dt_s
     if dt not in (None, ""):
-        parts.append(f"dt {float(dt) * 1e6:.1f} µs")
+        parts.append(f"dt {float(dt) * 1e6:.1f}\u00a0µs")  # a value keeps its unit on its line
     scale = md.get("scale_mm_per_px") if summary is None else summary.scale_mm_per_px
     if scale not in (None, ""):
         derived = md.get("scale_mm_per_px") in (None, "")  # none given: the ball's
-        parts.append(f"{float(scale):.4g} mm/px" + (" from the ball" if derived else ""))
+        parts.append(f"{float(scale):.4g}\u00a0mm/px" + (" from the ball" if derived else ""))
     if md.get("ball_diameter_mm") not in (None, ""):
-        parts.append(f"ball {float(md['ball_diameter_mm']):g} mm")
+        parts.append(f"ball {float(md['ball_diameter_mm']):g}\u00a0mm")
     return ", ".join(parts) or MISSING
 
 
@@ -176,9 +176,13 @@ def review_text(record: ShotRecord) -> str:
 
 
 def note_text(record: ShotRecord) -> str:
-    """The analyst's note, who wrote it and when; the em dash without one."""
+    """The analyst's note, then who wrote it and when, set apart by a dash; the em dash
+    without one."""
     pick = record.pick
-    return pick.note + _by(pick.note_who, pick.note_when) if pick.note else MISSING
+    if not pick.note:
+        return MISSING
+    author = _by(pick.note_who, pick.note_when).removeprefix(" by ").removeprefix(", ")
+    return pick.note + (f" \u2014 {author}" if author else "")
 
 
 def _by(who: str, when: str) -> str:

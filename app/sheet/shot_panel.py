@@ -103,10 +103,10 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
         if record.failure:
             p.fillRect(rect_mm(pic[0], pic[1], pic[2], 4.6), qcolor(colours.PAPER_TINT))
             one_line(p, rect_mm(pic[0] + 1, pic[1], pic[2] - 2, 4.6),
-                     "Shown: the last run that succeeded; the latest failed: "
+                     # what failed leads, its explanation may give way (the table keeps it)
+                     "Last good run shown; the latest failed: "
                      + failure_words(record.failure, record.shot_id),
-                     (7.5, 6.5), colour=colours.DISAGREEMENT,
-                     elide=QtCore.Qt.TextElideMode.ElideMiddle)
+                     (7.5, 6.5), colour=colours.DISAGREEMENT)
     _paint_numbers(p, info, rows)
 
 
@@ -447,7 +447,7 @@ def number_rows(record, with_metadata: bool = False, checks=()) -> list[NumberRo
         rows.append(NumberRow("shot", metadata_line(record).replace("   ", ", ") or MISSING))
     rows.append(NumberRow("vectors",
                           MISSING if summary is None else vectors_text(summary.vectors)))
-    rows.append(NumberRow("dt and scale", timing_text(record)))
+    rows.append(NumberRow("dt, scale", timing_text(record)))
     if md.get("notes"):
         rows.append(NumberRow("shot notes", str(md["notes"])))
     if checks:
