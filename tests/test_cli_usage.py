@@ -265,6 +265,17 @@ def test_a_session_on_a_read_only_file_system_is_not_called_a_read_only_file(
     assert "cannot edit the session here (read-only file system)" in err and "mode" not in err
 
 
+def test_conditions_by_on_a_session_it_cannot_write_gives_the_statistics_anyway(
+        session_path, monkeypatch, capsys):
+    # the grouping is kept in the session when it can be; the statistics only read it
+    _read_only_file_system(monkeypatch, session_path.parent)
+    assert main(["conditions", str(session_path), "--by", "seam_deg"]) == 0
+    out, err = capsys.readouterr()
+    assert "condition(s) by seam_deg" in out
+    assert err == f"note: {session_path} is not writable here: the grouping is used, not " \
+                  "kept in it\n"
+
+
 def test_a_new_session_in_a_read_only_folder_says_so(tmp_path, monkeypatch, capsys):
     import errno
 

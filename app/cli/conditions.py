@@ -4,6 +4,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
 
 from app.cli.options import UsageError
@@ -125,11 +126,20 @@ def condition_ensembles(session, conditions) -> dict:
 
 def run_conditions(args: argparse.Namespace) -> int:
     from core.conditions import CONFIDENCE, group_conditions
-    from core.store import Session
+    from core.store import Session, SessionLocked, SessionReadOnly
 
-    with Session.open(args.session, writable=args.by is not None) as session:
+    try:
+        opened = Session.open(args.session, writable=args.by is not None)
+    except SessionLocked as exc:  # or its kind SessionReadOnly
+        # the statistics only read: a grouping that cannot be kept is still used, and said so
+        opened = Session.open(args.session, writable=False)
+        why = ("not writable here" if isinstance(exc, SessionReadOnly)
+               else "open for writing elsewhere")
+        print(f"note: {args.session} is {why}: the grouping is used, not kept in it",
+              file=sys.stderr)
+    with opened as session:
         by = grouping_of(session, args.by)
-        if args.by is not None and by != session.conditions_by():
+        if not session.read_only and by != session.conditions_by():
             session.set_conditions_by(by)
         conditions = group_conditions(session.values(), by)
         ensembles = condition_ensembles(session, conditions) if args.ensemble else {}

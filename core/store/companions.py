@@ -84,11 +84,13 @@ def check_replaceable(path: Path) -> None:
     folder's permissions would allow, silently undoing the chmod."""
     if on_read_only_file_system(path):
         raise SessionReadOnly(f"{path}: cannot edit the session here (read-only file system); "
-                              "open it read-only, or copy it to a writable folder to edit it")
+                              "the window opens it read-only, and table, sheet and conditions "
+                              "only read it; copy it to a writable folder to edit it")
     mode = stat.S_IMODE(path.stat().st_mode)
     if not mode & 0o222 or not os.access(path, os.W_OK):
-        raise SessionReadOnly(f"{path}: the session file is read-only (mode {mode:o}); open it "
-                              "read-only, or make it writable to edit it")
+        raise SessionReadOnly(f"{path}: the session file is read-only (mode {mode:o}); the window "
+                              "opens it read-only, and table, sheet and conditions only read "
+                              "it; make it writable to edit it")
 
 
 def remove_companions(path: Path) -> None:

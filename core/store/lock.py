@@ -117,7 +117,7 @@ class Lock:
                     f"{self.session_path}: open for writing by {holder.get('user', '?')} "
                     f"(pid {holder.get('pid')} on {holder.get('host')} since "
                     f"{holder.get('since')}); close it there first, or open it read-only "
-                    "(the window offers to; table, sheet and conditions without --by only read it)"
+                    "(the window offers to; table, sheet and conditions only read it)"
                     + (f", or delete {self.path} if that machine is gone" if elsewhere else "")
                 )
             self._remove_stale(holder)
