@@ -374,3 +374,18 @@ def test_a_frame_size_without_a_background_is_named_with_the_camera():
     assert str(refused.value) == ("background: no readable shot of camera 'left' has frames "
                                   "of 120x100 px (backgrounds made: 256x192)")
     assert _background_for({"shot_id": "S0"}, np.zeros((100, 120))) is None
+
+
+def test_a_stopped_forced_run_does_not_promise_the_next_plain_run(capsys):
+    # shots forced again were up to date: a plain run skips them, so the line says how to
+    # measure them again rather than "left for the next run"
+    from app.cli.session import _process_summary
+    from core.batch import BatchReport
+
+    report = BatchReport(total=5, processed=["a", "b"], interrupted=True, elapsed_s=1.0)
+    assert _process_summary(Path("s.h5"), report, forced=True) == 1
+    line = capsys.readouterr().out
+    assert "stopped with 3 shot(s) not measured again (--force again" in line
+    assert "next run" not in line
+    _process_summary(Path("s.h5"), report)
+    assert "stopped with 3 shot(s) left for the next run" in capsys.readouterr().out

@@ -191,7 +191,7 @@ def run_process(args: argparse.Namespace) -> int:
             for signum, handler in previous.items():
                 signal.signal(signum, handler)
         warned = shot_warnings(session.values())
-    code = _process_summary(args.session, report)
+    code = _process_summary(args.session, report, args.force)
     if ids := [shot_id for shot_id in report.processed if shot_id in warned]:
         print(f"note: {len(ids)} shot(s) measured with warnings or checks to look at "
               f"({', '.join(ids[:6])}{', ...' if len(ids) > 6 else ''}): the table's warnings "
@@ -265,7 +265,7 @@ def _with_shot(shot_id: str, message: str) -> str:
     return message if message.startswith(f"shot {shot_id}:") else f"shot {shot_id}: {message}"
 
 
-def _process_summary(path: Path, report) -> int:
+def _process_summary(path: Path, report, forced: bool = False) -> int:
     line = f"{path}: processed {len(report.processed)} shot(s)"
     if report.failed:
         line += f", {len(report.failed)} failed"
@@ -273,7 +273,10 @@ def _process_summary(path: Path, report) -> int:
         line += f", {len(report.skipped)} already up to date"
     if decisions := decisions_text(len(report.reopened), len(report.changed)):
         line += f"{decisions} (named above)"
-    if report.interrupted:
+    if report.interrupted and forced:  # up to date before: a plain run would skip them
+        line += (f"; stopped with {report.not_run} shot(s) not measured again (--force again "
+                 "measures them; a plain run, only those not up to date)")
+    elif report.interrupted:
         line += f"; stopped with {report.not_run} shot(s) left for the next run"
     print(f"{line} ({report.elapsed_s:.1f} s)")
     return 1 if report.failed or report.interrupted else 0
