@@ -223,6 +223,31 @@ def test_parse_statuses():
     assert parse_statuses("") is None
     with pytest.raises(WakelineError, match="unknown review status 'done'"):
         parse_statuses("accepted,done")
+    # as the shot list's filter offers it: decisions a new measurement sent back
+    assert parse_statuses("back to review") == ("back to review",)
+
+
+def test_the_sheet_can_hold_the_decisions_sent_back_to_review_alone():
+    from dataclasses import replace
+
+    from app.sheet.content import parse_statuses, select_records
+    from core.store import Pick, ShotRecord
+    from core.store.records import MEASUREMENT_AUTHOR
+    from core.summary import ShotSummary
+
+    summary = ShotSummary.from_dict({})
+    sent_back = ShotRecord("a", {}, state="processed", summary=summary,
+                           pick=Pick(who=MEASUREMENT_AUTHOR, when="2026-12-05T10:00:00Z"))
+    never = replace(sent_back, shot_id="b", pick=Pick())
+
+    class Shots:  # what select_records reads of a session
+        def values(self):
+            return [sent_back, never]
+
+    assert [r.shot_id for r in select_records(Shots(), None, parse_statuses(
+        "back to review"))] == ["a"]
+    assert [r.shot_id for r in select_records(Shots(), None, parse_statuses(
+        "to review"))] == ["a", "b"]
 
 
 def test_sheet_command(reviewed_session, tmp_path, capsys):

@@ -35,7 +35,8 @@ def _add_sheet(subparsers) -> None:
                    help="shot panels per page: 1, 2 (default), 3 or 4")
     p.add_argument("--status", type=_statuses, metavar="LIST",
                    help="only shots with these review statuses, comma-separated, e.g. "
-                   "accepted,adjusted (statuses: to review, accepted, adjusted, unusable)")
+                   "accepted,adjusted (statuses: to review, accepted, adjusted, unusable; back to "
+                   "review, the decisions a new measurement sent back, a part of to review)")
     p.add_argument("--column", metavar="NAME",
                    help="numeric metadata column for the cover's overview plot "
                    "(default: seam_deg when present)")

@@ -10,6 +10,7 @@ from dataclasses import dataclass
 from datetime import UTC, datetime
 from pathlib import Path
 
+from app.review.columns import BACK_TO_REVIEW, status_text
 from app.review.marks import moved_from_proposal
 from app.review.text import MISSING, SHEET_DECIMALS, angle_text, layer_text, proposal_text
 from core import WakelineError
@@ -40,18 +41,20 @@ class SheetReport:
     shot_ids: list[str]
 
 
-def parse_statuses(text: str | None) -> tuple[ReviewStatus, ...] | None:
-    """``"accepted,adjusted"`` -> ``(ACCEPTED, ADJUSTED)``; None or "" -> None (all)."""
+def parse_statuses(text: str | None) -> tuple[str, ...] | None:
+    """``"accepted,adjusted"`` -> ``(ACCEPTED, ADJUSTED)``; None or "" -> None (all). Besides
+    the review statuses, "back to review" (a decision the measurement sent back, as the shot
+    list says: a part of "to review")."""
     if not text:
         return None
     wanted = tuple(s.strip() for s in text.split(",") if s.strip())
-    words = [str(s) for s in ReviewStatus]
+    words = [str(s) for s in ReviewStatus] + [BACK_TO_REVIEW]
     unknown = [s for s in wanted if s not in words]
     if unknown:
         raise WakelineError(
             f"--status: unknown review status {unknown[0]!r} (use {', '.join(words)})"
         )
-    return tuple(ReviewStatus(s) for s in wanted)
+    return tuple(s if s == BACK_TO_REVIEW else ReviewStatus(s) for s in wanted)
 
 
 def select_records(session, shot_ids=None, statuses=None) -> list:
@@ -65,7 +68,8 @@ def select_records(session, shot_ids=None, statuses=None) -> list:
         chosen = set(shot_ids)
         records = [r for r in records if r.shot_id in chosen]
     if statuses:
-        records = [r for r in records if r.pick.status in statuses]
+        records = [r for r in records if r.pick.status in statuses
+                   or (BACK_TO_REVIEW in statuses and status_text(r) == BACK_TO_REVIEW)]
     return records
 
 
