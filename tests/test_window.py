@@ -553,3 +553,15 @@ def test_the_readout_names_a_result_whose_uncertainty_is_from_an_earlier_version
     assert not window.readout.notes.isHidden()
 
 
+
+
+def test_the_window_keeps_its_preferences_in_wakeline_home(tmp_path, monkeypatch):
+    # one folder for every per-user file of wakeline when WAKELINE_HOME is set (core.paths)
+    from app.qt.window import app_settings
+
+    monkeypatch.setenv("WAKELINE_HOME", str(tmp_path / "home"))
+    settings = app_settings()
+    settings.setValue("view/probe", 1)
+    settings.sync()
+    assert settings.fileName() == str(tmp_path / "home" / "wakeline.ini")
+    assert (tmp_path / "home" / "wakeline.ini").exists()

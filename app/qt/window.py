@@ -93,7 +93,13 @@ NUDGE_KEYS = (
 
 
 def app_settings() -> QSettings:
-    """The user's wakeline preferences (INI file; tests point QSettings' path at a temp dir)."""
+    """The user's wakeline preferences: an INI file in ``$WAKELINE_HOME`` when that is set (all
+    of wakeline's per-user files in one folder: ``core.paths``), else in Qt's place for the
+    user's settings (tests point QSettings' path at a temp dir)."""
+    home = os.environ.get("WAKELINE_HOME")
+    if home:
+        return QSettings(str(user_data_dir() / f"{APPLICATION}.ini"),
+                         QSettings.Format.IniFormat)
     return QSettings(QSettings.Format.IniFormat, QSettings.Scope.UserScope, ORGANISATION,
                      APPLICATION)
 
