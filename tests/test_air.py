@@ -13,7 +13,8 @@ from core.air import (
 
 def test_sutherland_law_at_the_reference_and_room_temperature():
     # Sutherland's law returns mu0 at T0 (derived) and about 1.81e-5 Pa s at 20 deg C (White,
-    # Viscous Fluid Flow, memory); with the ideal gas, nu is about 1.51e-5 m^2/s (derived)
+    # Viscous Fluid Flow, memory); the ideal gas at 101.325 kPa gives 1.204 kg/m^3 (derived:
+    # 101325 / (287.05 x 293.15)), and nu about 1.51e-5 m^2/s (derived)
     assert air_viscosity_pa_s(0.0) == pytest.approx(1.716e-5, rel=1e-12)
     assert air_viscosity_pa_s(20.0) == pytest.approx(1.81e-5, rel=0.01)
     assert air_density_kg_m3(20.0) == pytest.approx(1.204, rel=0.002)
