@@ -64,17 +64,24 @@ def test_tilted_gaussian_wake_is_found_with_a_small_uncertainty(flight_deg, lab_
 
 def test_uncertainty_grows_with_scatter_and_covers_the_truth():
     """Noisy vectors (a quarter of the stream, an unusually bad field) scatter the weights: the
-    uncertainty grows and still covers the truth in most fields."""
+    uncertainty grows and covers the truth as stated (95 %: 19 or more of 20 fields).
+
+    It grows far more than the error does (median 28 deg against errors of sd 2.4 deg, at most
+    7.3, on 60 such fields): uncorrelated noise is counted as if it were the wake's own
+    asymmetry, correlated over a radius (docs/separation_accuracy.md, Known limits). The
+    bounds below hold that where it stands: a noise-aware ± would move them."""
     field, ball = gaussian_wake(180.0, 5.0, lab_frame=False)
     clean = wake_direction(field, (0.0, 0.0), ball)
-    covered, widths = [], []
+    covered, widths, errors = [], [], []
     for seed in range(20):
         field, ball = gaussian_wake(180.0, 5.0, lab_frame=False, noise=0.25 * STREAM, seed=seed)
         wake = wake_direction(field, (0.0, 0.0), ball)
-        covered.append(abs(wake.deflection_deg - 5.0) <= wake.uncertainty_deg)
+        errors.append(abs(wake.deflection_deg - 5.0))
+        covered.append(errors[-1] <= wake.uncertainty_deg)
         widths.append(wake.uncertainty_deg)
     assert np.median(widths) > 2.0 * clean.uncertainty_deg
-    assert np.mean(covered) >= 0.8
+    assert np.mean(covered) >= 0.95
+    assert max(errors) < 10.0 and np.median(widths) < 40.0
 
 
 def test_slope_moves_as_its_first_order_influence():
