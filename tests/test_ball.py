@@ -155,6 +155,12 @@ def test_a_bare_ball_gives_no_image_match_and_the_circles_carry_the_flight():
     flight = flight_from_balls(ball_a, ball_b, displacement_px=shift, displacement_cov_px2=cov)
     error = abs((flight.direction_deg - truth.flight_deg + 180) % 360 - 180)
     assert error <= 3.0 * flight.direction_sigma_deg
+    # and no wider than the circles make it: the two centres' uncertainties across the flight
+    # (image rows here) over the 9 px shift (derived, first order), each centre within the
+    # issue's 1 px for a ball without a lit rim
+    across = math.hypot(ball_a.center_sigma_px[1], ball_b.center_sigma_px[1])
+    assert max(*ball_a.center_sigma_px, *ball_b.center_sigma_px) <= 1.0
+    assert flight.direction_sigma_deg == pytest.approx(math.degrees(across / 9.0), rel=0.1)
 
 
 def test_the_match_follows_the_seam_as_the_ball_spins():

@@ -473,12 +473,12 @@ def test_run_window_opens_the_session_and_returns_when_closed(make_session, qtbo
 def test_the_next_shot_is_read_ahead_in_the_direction_of_travel(main_window, make_session, qtbot):
     path = make_session(4)
     window = _open(main_window, qtbot, path)
-    qtbot.waitUntil(lambda: window.model._results.get("s02") is not None, timeout=5000)
+    qtbot.waitUntil(lambda: window.model._results.get("s02") is not None, timeout=30_000)
     window.model.set_current("s04")
     window.model.set_current("s03")  # moving up: s02 is next
     window.model._results.clear()
     window.model.set_current("s02")
-    qtbot.waitUntil(lambda: window.model._results.get("s01") is not None, timeout=5000)
+    qtbot.waitUntil(lambda: window.model._results.get("s01") is not None, timeout=30_000)
     assert window.model._results.get("s03") is None
 
 

@@ -22,7 +22,7 @@ def test_a_narrow_shot_list_keeps_the_angles_in_sight_and_the_status_icons(
     panel, view = window.shot_list, window.shot_list.view
     header = lambda: panel.table_model.headerData(COL_STATUS, QtNs.Orientation.Horizontal)
     window.resize(1100, 760)
-    qtbot.waitUntil(lambda: view.columnWidth(COL_STATUS) < _WIDTHS[COL_STATUS], timeout=3000)
+    qtbot.waitUntil(lambda: view.columnWidth(COL_STATUS) < _WIDTHS[COL_STATUS], timeout=30_000)
     shown = sum(view.columnWidth(c) for c in range(panel.table_model.columnCount())
                 if not view.isColumnHidden(c) and c != panel.table_model.columnCount() - 1)
     assert shown <= view.viewport().width() or view.columnWidth(COL_STATUS) == STATUS_ICON_PX
@@ -30,7 +30,7 @@ def test_a_narrow_shot_list_keeps_the_angles_in_sight_and_the_status_icons(
     window.resize(1600, 900)
     sizes = window.splitter.sizes()
     window.splitter.setSizes([480, sizes[1] - (480 - sizes[0]), sizes[2]])  # the list widened
-    qtbot.waitUntil(lambda: view.columnWidth(COL_STATUS) == _WIDTHS[COL_STATUS], timeout=3000)
+    qtbot.waitUntil(lambda: view.columnWidth(COL_STATUS) == _WIDTHS[COL_STATUS], timeout=30_000)
     assert header() == "Status"
     window.close()
 
@@ -52,14 +52,14 @@ def test_a_small_window_gives_the_picture_room_unless_the_panels_were_set_by_han
                      window.splitter.widget(i).minimumSizeHint().width()) for i in (0, 2)]
         return sizes[1] >= CANVAS_ROOM_PX - 2 or [sizes[0], sizes[2]] == least
 
-    qtbot.waitUntil(roomy, timeout=3000)
+    qtbot.waitUntil(roomy, timeout=30_000)
     assert window.splitter.sizes()[1] > 450  # it was squeezed to about 200 px
     # and the overview docked below gives up height: the picture was about 230 px high
     from app.qt.window import CANVAS_HEIGHT_PX
 
     dock = window.overview_dock
     qtbot.waitUntil(lambda: window.splitter.height() >= CANVAS_HEIGHT_PX - 2
-                    or dock.height() <= dock.minimumSizeHint().height(), timeout=3000)
+                    or dock.height() <= dock.minimumSizeHint().height(), timeout=30_000)
     assert dock.isVisible() and dock.height() < 230 and window.splitter.height() > 400
     # narrow as it is, the hint has its own line above the legend instead of a few letters
     assert window.canvas.width() < LEGEND_MIN_WIDTH + HINT_MIN_WIDTH
@@ -74,10 +74,10 @@ def test_a_small_window_gives_the_picture_room_unless_the_panels_were_set_by_han
         need = label.fontMetrics().boundingRect(room, int(Qt.TextFlag.TextWordWrap),
                                                 HOVER_LONGEST)
         return need.height() <= room.height() + 4  # the padding's rounding
-    qtbot.waitUntil(readable, timeout=3000)
+    qtbot.waitUntil(readable, timeout=30_000)
     # wide again, the side panels have their room back (the shot list's columns whole)
     window.resize(1600, 900)
-    qtbot.waitUntil(lambda: window.splitter.sizes() == before, timeout=3000)
+    qtbot.waitUntil(lambda: window.splitter.sizes() == before, timeout=30_000)
     # the analyst's own widths stay
     wide = window.splitter.sizes()
     window.splitter.moveSplitter(wide[0] + 300, 2)  # as a drag would: the picture 300 px
