@@ -172,14 +172,22 @@ class ShotPane:
         vf = getattr(result, "field", None)
         shown = w is not None and vf is not None
         self.vorticity.setVisible(shown)
-        self.evidence.show_fine_vorticity(result if shown and fine else None, limit, see_through)
+        fine_drawn = self.evidence.show_fine_vorticity(result if shown and fine else None, limit,
+                                                       see_through)
         if not shown:
             return False
         x0, y0, sp = float(vf.x_px[0, 0]), float(vf.y_px[0, 0]), float(vf.spacing_px)
         rows, cols = w.shape
         smooth = smooth_upsample(np.asarray(w, dtype=np.float32), VORTICITY_UPSAMPLE)
-        self.vorticity.setImage(vorticity_image(smooth, limit, see_through), levels=(0, 255),
-                                autoLevels=False)
+        image = vorticity_image(smooth, limit, see_through)
+        if fine_drawn:  # one field at a time: both see-through, they would add up to a paler box
+            step = sp / VORTICITY_UPSAMPLE
+            xs = x0 - sp / 2 + (np.arange(image.shape[1]) + 0.5) * step
+            ys = y0 - sp / 2 + (np.arange(image.shape[0]) + 0.5) * step
+            fx0, fx1, fy0, fy1 = fine_extent(result.fine_field)
+            inside = ((ys >= fy0) & (ys <= fy1))[:, None] & ((xs >= fx0) & (xs <= fx1))[None, :]
+            image[inside, 3] = 0
+        self.vorticity.setImage(image, levels=(0, 255), autoLevels=False)
         self.vorticity.setRect(QRectF(x0 - sp / 2, y0 - sp / 2, cols * sp, rows * sp))
         return True
 
