@@ -90,6 +90,17 @@ def test_the_fine_field_replaces_the_main_one_near_the_ball(canvas, evidence_sho
     assert pane.evidence.fine_vorticity.isVisible()
     box = _points(pane.evidence.fine_box)
     assert (*box[0], *box[2]) == pytest.approx((x0, y0, x1, y1))
+
+    def main_alpha_at(x, y):  # the main vorticity picture's opacity at an image point
+        rect, image = pane.vorticity.mapRectToParent(pane.vorticity.boundingRect()), \
+            pane.vorticity.image
+        col = int((x - rect.left()) / rect.width() * image.shape[1])
+        row = int((y - rect.top()) / rect.height() * image.shape[0])
+        return int(image[row, col, 3])
+
+    # one field at a time under the fine one's box: see-through both, they would add up
+    inside = main_alpha_at(0.5 * (x0 + x1), y0 + 2.0)
+    assert inside == 0
     canvas.fine_box.setChecked(False)
     assert len(_points(pane.vectors)) == 6 * (~vf.masked & ~vf.replaced).sum()
     assert not pane.evidence.fine_vorticity.isVisible()
