@@ -183,13 +183,16 @@ def _scale_note(settings: ShotSettings, radius_px: float, shape) -> str:
     """How big the given scale makes the ball, and the inverse scale where that size cannot be
     the ball's (a scale given in px per mm)."""
     scale, diameter = settings.scale_mm_per_px, _ball_diameter_mm(settings)
-    note = (f"the scale given, {scale:g} mm/px, makes the {diameter:g} mm ball "
+    kind = (settings.ball_type or "").strip().lower()  # the ball its nominal diameter is of
+    ball = ("ball" if settings.ball_diameter_mm or not kind
+            else kind if kind.endswith("ball") else f"{kind} ball")
+    note = (f"the scale given, {scale:g} mm/px, makes the {diameter:.4g} mm {ball} "
             f"{2.0 * radius_px:.1f} px across")
     if 8.0 <= radius_px <= 0.5 * min(shape):
         return note
     low, high = RULEBOOK_DIAMETERS_MM
     if not 0.5 * low <= diameter <= 2.0 * high:  # the diameter is the slip, not the scale
-        return note + (f"; a ball of {diameter:g} mm? (the rulebooks' balls are "
+        return note + (f"; a ball of {diameter:.4g} mm? (the rulebooks' balls are "
                        f"{low:.0f}-{high:.0f} mm): check ball_diameter_mm")
     return note + (f"; in px per mm? {scale:g} px/mm is {1.0 / scale:.4g} mm/px, a ball "
                    f"{diameter * scale:.0f} px across")

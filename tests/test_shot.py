@@ -308,3 +308,9 @@ def test_a_scale_that_leaves_no_room_for_the_ball_says_how_big_it_makes_it():
     assert str(caught.value).endswith(
         "the scale given, 0.08 mm/px, makes the 7160 mm ball 89500.0 px across; a ball of "
         "7160 mm? (the rulebooks' balls are 65-98 mm): check ball_diameter_mm")
+    # a ball type alone: its nominal diameter, named as that ball's, to four figures (a 12 in
+    # softball: 11 7/8 - 12 1/8 in round, 97.02 mm across, derived)
+    settings = ShotSettings(dt_s=truth.dt_s, ball_type="softball", scale_mm_per_px=8.0)
+    with pytest.raises(WakelineError) as caught:
+        measure_shot(frame_a, frame_b, settings)
+    assert "makes the 97.02 mm softball 12.1 px across" in str(caught.value)
