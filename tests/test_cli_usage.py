@@ -209,6 +209,10 @@ def test_the_sheet_refuses_standard_output(session_path, tmp_path, capsys, monke
     line = usage_error(["sheet", str(session_path), "-o", "-"], capsys)
     assert line.startswith("wakeline sheet: error: argument -o/--output: the shot sheet is a PDF")
     assert not (tmp_path / "-").exists()
+    # nor is it written under another kind's name (a table's, say)
+    line = usage_error(["sheet", str(session_path), "-o", "picks.csv"], capsys)
+    assert line.endswith("the shot sheet is a PDF: name it .pdf (not picks.csv)")
+    assert not (tmp_path / "picks.csv").exists()
 
 
 # a read-only file system: the user's own file and the real cause

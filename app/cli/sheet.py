@@ -85,6 +85,9 @@ def run_sheet(args: argparse.Namespace) -> int:
 
     with Session.open(args.session, writable=False) as session:
         check_outputs([args.output], session.path, session_frame_files(session))
+        if args.output.suffix.lower() != ".pdf":  # not a PDF under another kind's name
+            raise UsageError(f"argument -o/--output: the shot sheet is a PDF: name it .pdf "
+                             f"(not {args.output.name})")
         ensembles = None
         if args.ensemble:
             from app.cli.conditions import condition_ensembles
