@@ -1,6 +1,6 @@
 """wakeline core: the headless measurement of seamed-ball PIV shots (no Qt here)."""
 
-__version__ = "0.3.13"
+__version__ = "0.3.14"
 
 
 class WakelineError(Exception):
