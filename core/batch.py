@@ -377,6 +377,12 @@ def default_workers(tasks: list[dict]) -> int:
     return max(1, min(cores, int(free // max(peak_memory_bytes(s) for s in shapes))))
 
 
+#: Signals a terminal sends the whole process group (Ctrl-C, a closed terminal) or a job
+#: runner may; they are the writer's (``_worker_start``).
+STOP_SIGNALS = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP")
+                     if hasattr(signal, name))
+
+
 _announce = None  # in a worker: where it says which shot it starts (see _run_pool)
 
 
@@ -385,9 +391,8 @@ def _worker_start(lifeline, announce) -> None:
     workers finish their shots; and a worker ends as soon as the writer does, however it ended
     (killed, out of memory): its lifeline then reads end-of-file."""
     global _announce
-    for name in ("SIGINT", "SIGTERM", "SIGHUP"):
-        if hasattr(signal, name):
-            signal.signal(getattr(signal, name), signal.SIG_IGN)
+    for signum in STOP_SIGNALS:
+        signal.signal(signum, signal.SIG_IGN)
     _announce = announce
     threading.Thread(target=_end_with_writer, args=(lifeline,), daemon=True).start()
 
@@ -403,8 +408,10 @@ def _in_worker(work, task: dict, threads: int):
     return work(task, threads)
 
 
-def _pool_context():
-    # Not fork: the parent may run Qt or other threads, which fork does not copy safely.
+def pool_context():
+    """The start method of wakeline's worker processes (the batch's, the demo's drawing).
+
+    Not fork: the parent may run Qt or other threads, which fork does not copy safely."""
     if "forkserver" not in multiprocessing.get_all_start_methods():
         return multiprocessing.get_context("spawn")
     context = multiprocessing.get_context("forkserver")
@@ -415,14 +422,10 @@ def _pool_context():
     return context
 
 
-#: Signals a terminal sends the whole process group (Ctrl-C, a closed terminal) or a job
-#: runner may; they are the writer's (``_worker_start``).
-STOP_SIGNALS = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP")
-                     if hasattr(signal, name))
-
-
 def _start_forkserver_deaf() -> None:
-    """Start the fork server with the stop signals blocked, which it keeps across its exec.
+    """Start the fork server with the stop signals blocked, which it keeps across its exec
+    for its whole life, as the workers it forks do (they ignore them anyway: the writer's;
+    they end with the writer or by SIGKILL, never by these).
 
     Python's fork server ignores Ctrl-C only once it has imported its preloaded modules; a
     Ctrl-C to the process group in the seconds before (scipy's imports) ended it, and the
@@ -452,7 +455,7 @@ def _run_pool(tasks: list[dict], stop, count: int, work=None) -> Iterator[tuple]
     abort (an exception, or the generator closed) ends the workers at once. ``work`` stands in
     for ``measure_task`` in tests.
     """
-    context = _pool_context()
+    context = pool_context()
     lifeline, keep_alive = context.Pipe(duplex=False)  # workers end when keep_alive closes
     started, announce = context.Pipe(duplex=False)
     rounds = [(list(tasks), count)]

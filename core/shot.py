@@ -12,6 +12,7 @@ from dataclasses import replace
 import numpy as np
 
 from core import WakelineError
+from core.plausibility import DIRECTION_TOLERANCE_DEG
 from core.results import (
     BY_ANALYST,
     BallFit,
@@ -186,13 +187,15 @@ def _scale_note(settings: ShotSettings, radius_px: float, shape) -> str:
     kind = (settings.ball_type or "").strip().lower()  # the ball its nominal diameter is of
     ball = ("ball" if settings.ball_diameter_mm or not kind
             else kind if kind.endswith("ball") else f"{kind} ball")
-    note = (f"the scale given, {scale:g} mm/px, makes the {diameter:.4g} mm {ball} "
+    # a diameter given as typed; a ball type's nominal one to four figures
+    typed = f"{diameter:g}" if settings.ball_diameter_mm else f"{diameter:.4g}"
+    note = (f"the scale given, {scale:g} mm/px, makes the {typed} mm {ball} "
             f"{2.0 * radius_px:.1f} px across")
     if 8.0 <= radius_px <= 0.5 * min(shape):
         return note
     low, high = RULEBOOK_DIAMETERS_MM
     if not 0.5 * low <= diameter <= 2.0 * high:  # the diameter is the slip, not the scale
-        return note + (f"; a ball of {diameter:.4g} mm? (the rulebooks' balls are "
+        return note + (f"; a ball of {typed} mm? (the rulebooks' balls are "
                        f"{low:.0f}-{high:.0f} mm): check ball_diameter_mm")
     return note + (f"; in px per mm? {scale:g} px/mm is {1.0 / scale:.4g} mm/px, a ball "
                    f"{diameter * scale:.0f} px across")
@@ -286,6 +289,20 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
     result.valid_near_ball = valid_near_ball(result.field, ball_a, 2.0 * result.field.spacing_px)
     stream = _air_stream_px(result.field, ball_a, flight)
     result.reynolds = _reynolds(result, stream)
+    against = (None if settings.flight_deg is None
+               else _held_flight_from_stream(result.field, ball_a, flight))
+    if against is not None and (_gap_deg(settings.flight_deg, against)
+                                >= 180.0 - DIRECTION_TOLERANCE_DEG):
+        warnings.append(
+            f"the flight direction given ({settings.flight_deg:g} deg) looks the wrong way "
+            f"round: the free stream past the held ball gives {against:.1f} deg (against the "
+            "stream); check the flight direction, or the shot's frames_swapped in shots.csv "
+            "(no separation proposed)")
+        reason = (f"the flight direction given ({settings.flight_deg:g} deg) looks the wrong "
+                  "way round, or the frames are swapped (see warnings)")
+        result.separation = SeparationResult(SideProposal(None, reason=reason),
+                                             SideProposal(None, reason=reason))
+        return
     if _order_reversed(result.field, ball_a, flight):
         if settings.flight_deg is not None:
             # with the direction given, the likelier mistake is the direction, not the order
@@ -409,8 +426,14 @@ def _flight(result: ShotResult, raw, balls, glare, warnings: list[str]) -> Fligh
     )
     moved = float(np.hypot(*shift))
     if settings.flight_deg is not None:
-        if moved < MIN_FLIGHT_PX:  # a held ball: the direction given against the free stream's
-            warnings.extend(_given_against_stream(result.field, ball_a, settings.flight_deg))
+        against = _held_flight_from_stream(result.field, ball_a, flight)
+        gap = None if against is None else _gap_deg(settings.flight_deg, against)
+        # (the wrong way round altogether is said where the separation is skipped)
+        if gap is not None and DIRECTION_TOLERANCE_DEG < gap < 180.0 - DIRECTION_TOLERANCE_DEG:
+            warnings.append(
+                f"the flight direction given ({settings.flight_deg:g} deg) is {gap:.0f} deg "
+                f"from the {against:.1f} deg the free stream gives the held ball (against the "
+                "stream): check the flight direction")
         return flight
     if moved < MIN_FLIGHT_PX:
         held = flight_from_stream(result.field, ball_a, dt_s=settings.dt_s,
@@ -463,23 +486,22 @@ def _order_reversed(vf: VectorField, ball: BallFit, flight: Flight) -> bool:
     return float(np.median(follow[ahead])) > float(np.median(follow[behind])) + 0.2 * moved
 
 
-def _given_against_stream(field, ball, flight_deg: float) -> list[str]:
-    """A held ball's flight direction given (manifest or analyst) that the free stream does not
-    bear out: the air streams past a held ball against its flight."""
+def _held_flight_from_stream(field, ball, flight: Flight) -> float | None:
+    """A held ball's flight direction (deg) by its free stream (against it), or None: the ball
+    moved, or the air hardly moves past it."""
     from core.ball import flight_from_stream
-    from core.plausibility import DIRECTION_TOLERANCE_DEG
 
+    if float(np.hypot(*flight.displacement_px)) >= MIN_FLIGHT_PX:
+        return None
     stream = flight_from_stream(field, ball)
     if stream is None or float(np.hypot(*_stream_px(field, ball))) < MIN_FLIGHT_PX:
-        return []
-    gap = abs((flight_deg - stream.direction_deg + 180.0) % 360.0 - 180.0)
-    if gap <= DIRECTION_TOLERANCE_DEG:
-        return []
-    return [f"the flight direction given ({flight_deg:g} deg) is {gap:.0f} deg from the "
-            f"{stream.direction_deg:.1f} deg the free stream gives a held ball (against the "
-            "stream): check the flight direction"
-            + ("; it looks the wrong way round" if gap >= 180.0 - DIRECTION_TOLERANCE_DEG
-               else "")]
+        return None
+    return round(stream.direction_deg, 1) % 360.0
+
+
+def _gap_deg(a_deg: float, b_deg: float) -> float:
+    """How far apart two directions are (deg, 0-180)."""
+    return abs((a_deg - b_deg + 180.0) % 360.0 - 180.0)
 
 
 def _separation(frame_a, frame_b, balls, flight: Flight, stream: float,

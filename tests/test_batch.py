@@ -383,9 +383,10 @@ def test_a_stopped_forced_run_does_not_promise_the_next_plain_run(capsys):
     from core.batch import BatchReport
 
     report = BatchReport(total=5, processed=["a", "b"], interrupted=True, elapsed_s=1.0)
-    assert _process_summary(Path("s.h5"), report, forced=True) == 1
+    assert _process_summary(Path("s.h5"), report, True, ["a", "b", "c", "d", "e"]) == 1
     line = capsys.readouterr().out
-    assert "stopped with 3 shot(s) not measured again (--force again" in line
+    assert "stopped with 3 shot(s) not measured again (--force --shots c d e measures them)" \
+        in line
     assert "next run" not in line
     _process_summary(Path("s.h5"), report)
     assert "stopped with 3 shot(s) left for the next run" in capsys.readouterr().out

@@ -157,7 +157,12 @@ def test_held_ball_warns_without_override_and_measures_with_it():
     # a direction given the wrong way round: the air streams past a held ball against its
     # flight, so the free stream says so
     wrong = measure_shot(frame_a, frame_b, ShotSettings(flight_deg=0.0))
-    assert any("free stream" in w and "wrong way round" in w for w in wrong.warnings)
+    assert any("free stream" in w and "wrong way round" in w and "frames_swapped" in w
+               for w in wrong.warnings)
+    assert "wrong way round" in wrong.separation.upper.reason  # and no fit on a reversed flow
+    askew = measure_shot(frame_a, frame_b, ShotSettings(flight_deg=140.0))
+    assert any("is 40 deg from the 180.0 deg the free stream gives" in w
+               for w in askew.warnings)
     for side, true in ((held.separation.upper, truth.upper_deg),
                        (held.separation.lower, truth.lower_deg)):
         # truth from the generator; the target (2.5 deg) holds on a held ball too, and

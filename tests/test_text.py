@@ -64,6 +64,12 @@ def test_pair_prints_the_rows_of_the_formatter():
     note = ("note: no Reynolds number: it needs the ball's diameter (--ball-diameter or "
             "--ball-type)")
     assert lines[len(rows):] == ["warning: first warning", note]
+    # with the diameter given, the number is missing for another reason
+    from dataclasses import replace
+
+    given = replace(SUMMARY, settings={**SUMMARY.settings, "ball_diameter_mm": 71.6})
+    assert describe(given).splitlines()[-1] == (
+        "note: no Reynolds number: the air hardly moves past the ball")
 
 
 def test_readout_and_sheet_use_the_same_words(qtbot):

@@ -140,7 +140,6 @@ def prepare_demo(folder: Path, fresh: bool = False, workers: int | None = None) 
 def draw_frames(frames: Path, workers: int | None = None) -> None:
     """Draw the frames of the shots in ``frames/shots.csv`` (the same bytes every time), on
     ``workers`` processes (None: one per core; 0: in this process)."""
-    import multiprocessing
     import os
     from concurrent.futures import ProcessPoolExecutor
 
@@ -162,9 +161,11 @@ def draw_frames(frames: Path, workers: int | None = None) -> None:
                 recipe.write_pair(frames, shot_id)
                 bar.update(1)
             return
-        # not fork: a forked child may inherit a lock held by another thread (tqdm's monitor)
-        methods = multiprocessing.get_all_start_methods()
-        context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+        # not fork (a forked child may inherit a lock held by another thread, tqdm's monitor):
+        # the batch's own workers' start, whose server the processing then uses too
+        from core.batch import pool_context
+
+        context = pool_context()
         with ProcessPoolExecutor(workers, mp_context=context, initializer=_end_with,
                                  initargs=(os.getpid(),)) as pool:
             for _ in pool.map(_write_pair, [frames] * len(shot_ids), shot_ids):

@@ -136,7 +136,12 @@ def describe(summary: ShotSummary) -> str:
     lines += [f"warning: {warning}" for warning in summary.warnings]
     if summary.reynolds is None and summary.flight is not None:
         # said here: the other lines would leave it out without a word
-        lines.append("note: no Reynolds number: " + (
-            "it needs the ball's diameter (--ball-diameter or --ball-type)"
-            if summary.flight.speed_m_s is not None else "it needs dt and the scale"))
+        given = summary.settings
+        if summary.flight.speed_m_s is None:
+            why = "it needs dt and the scale"
+        elif not (given.get("ball_diameter_mm") or given.get("ball_type")):
+            why = "it needs the ball's diameter (--ball-diameter or --ball-type)"
+        else:
+            why = "the air hardly moves past the ball"
+        lines.append(f"note: no Reynolds number: {why}")
     return "\n".join(lines)

@@ -68,7 +68,8 @@ def _add_process(subparsers) -> None:
         help="measure every shot of a session not yet processed with its settings",
         description="Measure the shots of a session in parallel worker processes, saving each "
         "result as it arrives; a stopped run (Ctrl-C, SIGTERM or SIGHUP) finishes and keeps the "
-        "shots in hand and the next run goes on with the rest (a second Ctrl-C aborts them). "
+        "shots in hand and the next run goes on with the rest (a second Ctrl-C aborts them; "
+        "after --force the rest were up to date: the stop names them). "
         "Shots already processed with the same settings are skipped unless --force. Exit "
         "code 1 when a shot failed or the run was stopped.",
     )
@@ -191,7 +192,7 @@ def run_process(args: argparse.Namespace) -> int:
             for signum, handler in previous.items():
                 signal.signal(signum, handler)
         warned = shot_warnings(session.values())
-    code = _process_summary(args.session, report, args.force)
+    code = _process_summary(args.session, report, args.force, todo)
     if ids := [shot_id for shot_id in report.processed if shot_id in warned]:
         print(f"note: {len(ids)} shot(s) measured with warnings or checks to look at "
               f"({', '.join(ids[:6])}{', ...' if len(ids) > 6 else ''}): the table's warnings "
@@ -265,7 +266,7 @@ def _with_shot(shot_id: str, message: str) -> str:
     return message if message.startswith(f"shot {shot_id}:") else f"shot {shot_id}: {message}"
 
 
-def _process_summary(path: Path, report, forced: bool = False) -> int:
+def _process_summary(path: Path, report, forced: bool = False, todo=()) -> int:
     line = f"{path}: processed {len(report.processed)} shot(s)"
     if report.failed:
         line += f", {len(report.failed)} failed"
@@ -274,8 +275,11 @@ def _process_summary(path: Path, report, forced: bool = False) -> int:
     if decisions := decisions_text(len(report.reopened), len(report.changed)):
         line += f"{decisions} (named above)"
     if report.interrupted and forced:  # up to date before: a plain run would skip them
-        line += (f"; stopped with {report.not_run} shot(s) not measured again (--force again "
-                 "measures them; a plain run, only those not up to date)")
+        done = {*report.processed, *report.failed}
+        rest = [shot_id for shot_id in todo if shot_id not in done]
+        line += (f"; stopped with {report.not_run} shot(s) not measured again"
+                 + (f" (--force --shots {' '.join(rest)} measures them)" if 0 < len(rest) <= 12
+                    else " (--force with --shots and their ids measures them)"))
     elif report.interrupted:
         line += f"; stopped with {report.not_run} shot(s) left for the next run"
     print(f"{line} ({report.elapsed_s:.1f} s)")

@@ -84,6 +84,20 @@ def field_steps(result, stride: int, gap_px: float, fine: bool) -> tuple[int, ..
                  for vf in fields if vf is not None)
 
 
+def _under_fine(result, xs: np.ndarray, ys: np.ndarray) -> np.ndarray:
+    """``(len(ys), len(xs))`` bool: the image points ``xs`` by ``ys`` where the fine field's
+    vorticity is drawn (its nearest node has a value)."""
+    fine = result.fine_field
+    w = result.fine_vorticity()
+    sp = float(fine.spacing_px)
+    cols = np.rint((xs - float(fine.x_px[0, 0])) / sp).astype(int)
+    rows = np.rint((ys - float(fine.y_px[0, 0])) / sp).astype(int)
+    col_in = (cols >= 0) & (cols < w.shape[1])
+    row_in = (rows >= 0) & (rows < w.shape[0])
+    known = np.isfinite(w)[np.clip(rows, 0, w.shape[0] - 1)][:, np.clip(cols, 0, w.shape[1] - 1)]
+    return known & row_in[:, None] & col_in[None, :]
+
+
 class _Sampled:
     """Every ``stride``-th node of one field: positions, displacements in the frame shown
     (px per pair), masked and replaced flags, as flat arrays."""
@@ -180,13 +194,11 @@ class ShotPane:
         rows, cols = w.shape
         smooth = smooth_upsample(np.asarray(w, dtype=np.float32), VORTICITY_UPSAMPLE)
         image = vorticity_image(smooth, limit, see_through)
-        if fine_drawn:  # one field at a time: both see-through, they would add up to a paler box
+        if fine_drawn and see_through:  # both see-through, they would add up to a paler box
             step = sp / VORTICITY_UPSAMPLE
             xs = x0 - sp / 2 + (np.arange(image.shape[1]) + 0.5) * step
             ys = y0 - sp / 2 + (np.arange(image.shape[0]) + 0.5) * step
-            fx0, fx1, fy0, fy1 = fine_extent(result.fine_field)
-            inside = ((ys >= fy0) & (ys <= fy1))[:, None] & ((xs >= fx0) & (xs <= fx1))[None, :]
-            image[inside, 3] = 0
+            image[_under_fine(result, xs, ys), 3] = 0
         self.vorticity.setImage(image, levels=(0, 255), autoLevels=False)
         self.vorticity.setRect(QRectF(x0 - sp / 2, y0 - sp / 2, cols * sp, rows * sp))
         return True
