@@ -326,12 +326,12 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
     # the fits saw different windows: compare them on the samples all of them saw
     angles = [fit.params[0] for fit, _ in fits]
     shared = (max(angles) + FIT_WINDOW_DEG[0], min(angles) + FIT_WINDOW_DEG[1])
-    common = {growth: problem.with_growth(growth).view(shared) for growth in LAYER_FORMS}
-    if problem.band.phi_grid[(problem.band.phi_grid >= shared[0])
-                             & (problem.band.phi_grid <= shared[1])].size < 2:
+    phi = problem.band.phi_grid
+    if phi[(phi >= shared[0]) & (phi <= shared[1])].size < 2:
         # starts further apart than a window's width (frames of different shots, say): no
         # sample saw them all, so they are compared on the whole band
-        common = {growth: problem.with_growth(growth) for growth in LAYER_FORMS}
+        shared = None
+    common = {growth: problem.with_growth(growth).view(shared) for growth in LAYER_FORMS}
     scores = np.array([common[near.outward_growth].score(fit.params) for fit, near in fits])
     chosen = int(np.argmin(scores))
     best, near = fits[chosen]

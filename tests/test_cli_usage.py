@@ -278,6 +278,9 @@ def test_conditions_by_on_a_session_it_cannot_write_gives_the_statistics_anyway(
     assert "condition(s) by seam_deg" in out
     assert err == f"note: {session_path} is not writable here: the grouping is used, not " \
                   "kept in it\n"
+    # the grouping it already keeps needs no note
+    assert main(["conditions", str(session_path)]) == 0
+    assert capsys.readouterr().err == ""
 
 
 def test_a_new_session_in_a_read_only_folder_says_so(tmp_path, monkeypatch, capsys):

@@ -475,11 +475,12 @@ def test_starts_further_apart_than_a_fit_window_are_compared_on_the_whole_band(m
         return [problem.start(-38.0), problem.start(40.0)], 1.0  # any cost: the gain is checked
 
     monkeypatch.setattr(separation, "_coarse_search", far_apart)
-    result, _ = _measure(ball_shot((600, 800), radius_px=150.0, upper_deg=12.0,
-                                   lower_deg=4.0, seed=8))
-    for side in ("upper", "lower"):
-        proposal = getattr(result.separation, side)
-        assert proposal.angle_deg is not None or proposal.reason, side
+    result, truth = _measure(ball_shot((600, 800), radius_px=150.0, upper_deg=12.0,
+                                       lower_deg=4.0, seed=8))
+    for side, proposal, error in _picks(result, truth):
+        # started far from the truth (12 and 4 deg, the generator's), the fits land far from
+        # it too, and their uncertainty says so
+        assert abs(error) <= proposal.uncertainty_deg, (side, error, proposal.budget)
 
 
 def test_the_uncertainty_covers_the_other_family_without_being_inflated():

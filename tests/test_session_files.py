@@ -150,7 +150,8 @@ def test_a_folder_not_writable_gets_advice_that_fits(tmp_path, monkeypatch, exis
         raise PermissionError(13, "Permission denied")
 
     monkeypatch.setattr(Lock, "_try_create", refused)
-    advice = ("copy the session to a folder you may write in, or open it read-only" if exists
+    advice = ("copy the session to a folder you may write in to edit it; the window opens it "
+              "read-only, and table, sheet and conditions only read it" if exists
               else "choose a folder you may write in")
     with pytest.raises(SessionReadOnly, match=f"its folder is not writable; {advice}$"):
         Lock(session).acquire()

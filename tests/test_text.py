@@ -133,10 +133,10 @@ def test_powers_of_ten_and_microseconds_are_written_as_printed():
     # no scale in the manifest: the one used came from the ball, and the sheet says so
     # a value and its unit are kept on one line (no-break spaces)
     assert timing_text(record) == ("dt 20.0\u00a0µs, 0.078\u00a0mm/px from the ball, "
-                                   "ball 71.6\u00a0mm")
+                                   "ball\u00a071.6\u00a0mm")
     given = ShotRecord("t1", {"ball_diameter_mm": 71.6, "scale_mm_per_px": 0.078},
                        state="processed", summary=SUMMARY, pick=Pick())
-    assert timing_text(given) == "dt 20.0\u00a0µs, 0.078\u00a0mm/px, ball 71.6\u00a0mm"
+    assert timing_text(given) == "dt 20.0\u00a0µs, 0.078\u00a0mm/px, ball\u00a071.6\u00a0mm"
 
 
 def test_the_meaning_of_the_uncertainty_gives_the_factor_it_was_made_with():

@@ -68,7 +68,7 @@ def test_uncertainty_grows_with_scatter_and_covers_the_truth():
 
     It grows far more than the error does (median 28 deg against errors of sd 2.4 deg, at most
     7.3, on 60 such fields): uncorrelated noise is counted as if it were the wake's own
-    asymmetry, correlated over a radius (docs/separation_accuracy.md, Known limits). The
+    asymmetry, correlated over a radius (docs/separation_accuracy.md, The wake's direction). The
     bounds below hold that where it stands: a noise-aware ± would move them."""
     field, ball = gaussian_wake(180.0, 5.0, lab_frame=False)
     clean = wake_direction(field, (0.0, 0.0), ball)

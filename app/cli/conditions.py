@@ -27,7 +27,7 @@ def _add_conditions(subparsers) -> None:
         "mean uncertainty over sqrt(n) where wider) of each side's "
         "final angle (the analyst's, else the proposal), of upper - lower and of the wake "
         "deflection, and the Reynolds number range. --by keeps the grouping in the session "
-        "(the window and 'wakeline table --by' use it). --ensemble also correlates each "
+        "where it can write it (the window and 'wakeline table --by' use it). --ensemble also correlates each "
         "condition's shots as one (aligned on the ball) and proposes its separation, a "
         "cross-check of the shots' mean (the better estimate in three of four synthetic "
         "settings: docs/separation_accuracy.md).",
@@ -128,19 +128,22 @@ def run_conditions(args: argparse.Namespace) -> int:
     from core.conditions import CONFIDENCE, group_conditions
     from core.store import Session, SessionLocked, SessionReadOnly
 
+    unwritable = ""
     try:
         opened = Session.open(args.session, writable=args.by is not None)
     except SessionLocked as exc:  # or its kind SessionReadOnly
         # the statistics only read: a grouping that cannot be kept is still used, and said so
         opened = Session.open(args.session, writable=False)
-        why = ("not writable here" if isinstance(exc, SessionReadOnly)
-               else "open for writing elsewhere")
-        print(f"note: {args.session} is {why}: the grouping is used, not kept in it",
-              file=sys.stderr)
+        unwritable = ("not writable here" if isinstance(exc, SessionReadOnly)
+                      else "open for writing elsewhere")
     with opened as session:
         by = grouping_of(session, args.by)
-        if not session.read_only and by != session.conditions_by():
-            session.set_conditions_by(by)
+        if args.by is not None and by != session.conditions_by():
+            if unwritable:
+                print(f"note: {args.session} is {unwritable}: the grouping is used, not kept "
+                      "in it", file=sys.stderr)
+            else:
+                session.set_conditions_by(by)
         conditions = group_conditions(session.values(), by)
         ensembles = condition_ensembles(session, conditions) if args.ensemble else {}
     print(f"{args.session}: {len(conditions)} condition(s) by "

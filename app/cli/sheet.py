@@ -85,7 +85,7 @@ def run_sheet(args: argparse.Namespace) -> int:
 
     with Session.open(args.session, writable=False) as session:
         check_outputs([args.output], session.path, session_frame_files(session))
-        if args.output.suffix.lower() != ".pdf":  # not a PDF under another kind's name
+        if not str(args.output).lower().endswith(".pdf"):  # not a PDF under another's name
             raise UsageError(f"argument -o/--output: the shot sheet is a PDF: name it .pdf "
                              f"(not {args.output.name})")
         ensembles = None

@@ -293,8 +293,8 @@ class ReadoutPanel(QWidget):
             return
         self.title.setText(f"Shot {record.shot_id}")
         status = status_text(record)
-        if decided_status(record) is not None:
-            self.status_icon.setPixmap(status_icon(record.pick.status).pixmap(18, 18))
+        if (decided := decided_status(record)) is not None:
+            self.status_icon.setPixmap(status_icon(decided).pixmap(18, 18))
         else:  # not processed (or failed) yet: nothing decided, no status icon
             self.status_icon.clear()
         self.status_label.setText(status)

@@ -160,8 +160,8 @@ class ShotTableModel(QAbstractTableModel):
         if role == Qt.ItemDataRole.DecorationRole:
             if col == COL_STATE:
                 return state_icon(rec.state)
-            if col == COL_STATUS and decided_status(rec) is not None:
-                return status_icon(rec.pick.status)
+            if col == COL_STATUS and (decided := decided_status(rec)) is not None:
+                return status_icon(decided)
         if role == Qt.ItemDataRole.ToolTipRole:
             return self._tooltip(rec)
         if role in (Qt.ItemDataRole.FontRole, Qt.ItemDataRole.ForegroundRole) and _proposal_only(

@@ -169,7 +169,7 @@ def timing_text(record: ShotRecord) -> str:
         derived = md.get("scale_mm_per_px") in (None, "")  # none given: the ball's
         parts.append(f"{float(scale):.4g}\u00a0mm/px" + (" from the ball" if derived else ""))
     if md.get("ball_diameter_mm") not in (None, ""):
-        parts.append(f"ball {float(md['ball_diameter_mm']):g}\u00a0mm")
+        parts.append(f"ball\u00a0{float(md['ball_diameter_mm']):g}\u00a0mm")
     return ", ".join(parts) or MISSING
 
 

@@ -10,6 +10,7 @@ import numpy as np
 from PySide6 import QtCore, QtGui
 
 from app.review import colours
+from app.review.columns import BACK_TO_REVIEW, status_text
 from app.review.overview import PLOTTED_STATUSES, OverviewPoints, left_out_text, overview_points
 from app.sheet.content import (
     process_counts,
@@ -91,7 +92,10 @@ def _paint_status_boxes(p, x: float, y: float, w: float, records, stale: int = 0
         p.fillRect(rect_mm(bx, y, 1.6, 15), qcolor(colour))
         text(p, rect_mm(bx + 4, y + 1.2, box_w - 5, 8), str(counts.get(status, 0)), 16, bold=True,
              colour=colour)
-        text(p, rect_mm(bx + 4, y + 9.2, box_w - 5, 5), status, 8.5, colour=colours.INK)
+        sent_back = sum(status_text(r) == BACK_TO_REVIEW for r in records)
+        label = (f"{status}, {sent_back} sent back" if status == ReviewStatus.TO_REVIEW
+                 and sent_back else str(status))
+        text(p, rect_mm(bx + 4, y + 9.2, box_w - 5, 5), label, 8.5, colour=colours.INK)
     y += 17
     parts = [f"{n} {state}" + (f" ({stale} with other settings than the session's now or by "
                                "an older wakeline: process again)"

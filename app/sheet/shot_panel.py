@@ -12,6 +12,7 @@ import numpy as np
 from PySide6 import QtCore, QtGui
 
 from app.review import colours
+from app.review.columns import BACK_TO_REVIEW, status_text
 from app.review.marks import fitted_layer_lines, moved_from_proposal
 from app.review.scales import ARROW_CELL_SHARE, round_length, shot_limit
 from app.review.text import (
@@ -78,12 +79,14 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
                            bold=True)
     p.setFont(font(size, bold=True))
     title_w = p.fontMetrics().horizontalAdvance(shown) / mm(1)
-    pill = record.pick.status.upper()
+    # as the shot list says it: "back to review" where the measurement sent a decision back
+    pill = (BACK_TO_REVIEW if status_text(record) == BACK_TO_REVIEW
+            else str(record.pick.status)).upper()
     p.setBrush(qcolor(colour))
     p.setPen(QtCore.Qt.PenStyle.NoPen)
     p.drawRoundedRect(rect_mm(x + w - 30, y + 1.5, 28, 5), mm(2.4), mm(2.4))
-    text(p, rect_mm(x + w - 30, y + 1.5, 28, 5), pill, 8, bold=True, colour="#ffffff",
-         flags=QtCore.Qt.AlignmentFlag.AlignCenter)
+    one_line(p, rect_mm(x + w - 29, y + 1.5, 26, 5), pill, (8, 7, 6), bold=True,
+             colour="#ffffff", flags=QtCore.Qt.AlignmentFlag.AlignCenter)
     narrow = w < 120  # two panels across: the metadata goes with the numbers instead
     if not narrow:  # one line between the title and the status, shrunk or cut short with "…"
         left = x + 3.5 + title_w + 4

@@ -96,8 +96,9 @@ class Lock:
             try:
                 created = self._try_create(me)
             except PermissionError:
-                advice = ("copy the session to a folder you may write in, or open it "
-                          "read-only" if self.session_path.exists()
+                advice = ("copy the session to a folder you may write in to edit it; the "
+                          "window opens it read-only, and table, sheet and conditions only "
+                          "read it" if self.session_path.exists()
                           else "choose a folder you may write in")
                 raise SessionReadOnly(f"{self.session_path}: its folder is not writable; "
                                       f"{advice}") from None
