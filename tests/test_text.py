@@ -139,6 +139,21 @@ def test_powers_of_ten_and_microseconds_are_written_as_printed():
     assert timing_text(given) == "dt 20.0\u00a0µs, 0.078\u00a0mm/px, ball\u00a071.6\u00a0mm"
 
 
+def test_a_note_and_its_author_are_set_apart_on_the_sheet():
+    from app.sheet.content import note_text
+    from app.sheet.shot_panel import failure_words
+
+    pick = Pick(note="seam side leaves late", note_who="ana", note_when="2026-12-05T10:20:30Z")
+    record = ShotRecord("t1", {}, state="processed", summary=SUMMARY, pick=pick)
+    assert note_text(record) == "seam side leaves late \u2014 ana, 2026-12-05 10:20"
+    anonymous = ShotRecord("t1", {}, state="processed", summary=SUMMARY,
+                           pick=Pick(note="older file"))
+    assert note_text(anonymous) == "older file"
+    # a failure on a panel: without the shot's name (the title says it), files by their names
+    assert failure_words("shot t1: frame file /data/run 3/t1_a.tif not found", "t1") == (
+        "frame file t1_a.tif not found")
+
+
 def test_the_meaning_of_the_uncertainty_gives_the_factor_it_was_made_with():
     from app.review.text import uncertainty_meaning
     from core.separation import COVERAGE_K
