@@ -565,3 +565,14 @@ def test_the_window_keeps_its_preferences_in_wakeline_home(tmp_path, monkeypatch
     settings.sync()
     assert settings.fileName() == str(tmp_path / "home" / "wakeline.ini")
     assert (tmp_path / "home" / "wakeline.ini").exists()
+
+
+def test_without_wakeline_home_the_preferences_are_in_qts_place_for_them(monkeypatch,
+                                                                          _private_user_files):
+    # the user's settings folder (~/.config on Linux), which the tests point at a temp folder
+    from app.qt.window import app_settings
+
+    monkeypatch.delenv("WAKELINE_HOME")
+    name = app_settings().fileName()
+    assert name.startswith(str(_private_user_files / "settings")) and name.endswith(
+        "wakeline.ini")
