@@ -309,6 +309,13 @@ def test_report_table_measures_proposals_against_truth(small_demo, small_recipe,
     for shot_id in DEMO_SUBSET:
         assert f"\n| {shot_id} |" in table
     assert "Proposals on" in table and "Wake deflection (deg" in table
+    # the tally, counted here from the rows: the sides proposed and those whose stated
+    # uncertainty reaches the truth
+    proposed = [(r[f"{side}_proposed"], r[f"{side}_true"], r[f"{side}_uncertainty"])
+                for r in rows for side in ("upper", "lower") if r[f"{side}_proposed"] is not None]
+    within = sum(abs(p - t) <= (u or 0.0) for p, t, u in proposed)
+    assert (f"Proposals on {len(proposed)} of {2 * len(rows)} sides; {within} of them within "
+            "their stated uncertainty of the truth") in table
     assert all(row["wake_true"] == float(truth[row["shot"]]["wake_deflection_true_deg"])
                for row in rows)
     readme = tmp_path / "README.md"
