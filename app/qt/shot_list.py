@@ -30,6 +30,7 @@ from PySide6.QtWidgets import (
     QLabel,
     QLineEdit,
     QMenu,
+    QStyledItemDelegate,
     QTableView,
     QVBoxLayout,
     QWidget,
@@ -208,6 +209,14 @@ class ShotTableModel(QAbstractTableModel):
         return "\n".join(lines)
 
 
+class _StartKept(QStyledItemDelegate):
+    """Cells cut short at their end ("back to re…"), not in their middle."""
+
+    def initStyleOption(self, option, index) -> None:
+        super().initStyleOption(option, index)
+        option.textElideMode = Qt.TextElideMode.ElideRight
+
+
 def _proposal_only(rec, column: Column | None) -> bool:
     """An angle column showing the machine's proposal, not a decided angle (drawn in italics)."""
     side = {"upper_deg": "upper", "lower_deg": "lower"}.get(getattr(column, "name", ""))
@@ -334,6 +343,8 @@ class ShotListPanel(QWidget):
         header.customContextMenuRequested.connect(self._column_menu)
         view.viewport().installEventFilter(self)  # its width sets the status column's
         view.setTextElideMode(Qt.TextElideMode.ElideMiddle)  # ids that begin alike stay apart
+        self._status_words = _StartKept(view)  # a status' words read from their start
+        view.setItemDelegateForColumn(COL_STATUS, self._status_words)
         self.table_model.modelReset.connect(self._fit_shot_column)  # a session opened
         self._apply_columns()
 
