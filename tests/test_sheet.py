@@ -443,3 +443,22 @@ def test_a_sheet_qt_could_not_write_whole_is_an_error_and_the_earlier_one_stays(
         make_sheet(session, out, per_page=2)
     assert out.read_bytes() == b"%PDF-1.4 the earlier sheet %%EOF"
     assert not out.with_name("sheet.pdf.part").exists()
+
+
+def test_one_ball_gets_one_scale_bar_whatever_its_pictures_crop():
+    # the demo's identical shots sw01 and sw02 got 50 and 100 mm: each picture's crop follows
+    # its fitted circle, and 20 mm of page was 99.4 mm of one and 102.5 mm of the other
+    from types import SimpleNamespace
+
+    from app.sheet.kit import mm
+    from app.sheet.shot_panel import scale_bar_mm
+
+    shot = SimpleNamespace(scale_mm_per_px=0.2106,
+                           settings=SimpleNamespace(ball_diameter_mm=71.6, ball_type=None))
+    at = [mm(20) / (length / 0.2106) for length in (99.4, 102.5)]  # device units per px
+    assert [scale_bar_mm(shot, scale) for scale in at] == [50.0, 50.0]
+    # a picture where the ball's length would be lost or too long: the page's own round length
+    assert scale_bar_mm(shot, mm(4) / (50 / 0.2106)) == 200.0
+    typed = SimpleNamespace(scale_mm_per_px=0.2106,
+                            settings=SimpleNamespace(ball_diameter_mm=None, ball_type="softball"))
+    assert scale_bar_mm(typed, at[0]) == 50.0  # a 12 in softball: 97 mm across

@@ -160,6 +160,30 @@ class _View:
                               self.top + (y_px - self.y0_px) * self.scale)
 
 
+def scale_bar_mm(result, scale: float) -> float:
+    """The scale bar's length (mm of the object) under a picture of ``scale`` device units per
+    image px: a round length of about the ball's size, so that every panel of a ball shows one
+    bar (following each picture's crop, identical shots got 50 and 100 mm); where that would
+    be under 6 or over 22 mm on the page, the longest round length under 20 mm there."""
+    scale_mm_px = result.scale_mm_per_px
+    diameter = _stated_diameter_mm(result)
+    bar_mm = round_length(0.7 * diameter) if diameter else 0.0
+    if not mm(6) <= bar_mm / scale_mm_px * scale <= mm(22):
+        bar_mm = round_length(mm(20) / scale * scale_mm_px)
+    return bar_mm
+
+
+def _stated_diameter_mm(result) -> float | None:
+    """The ball's diameter the shot was measured with (given, or its type's nominal one)."""
+    settings = getattr(result, "settings", None)
+    diameter = getattr(settings, "ball_diameter_mm", None)
+    if not diameter and getattr(settings, "ball_type", None):
+        from core.ball.sizes import nominal_diameter_mm
+
+        diameter = nominal_diameter_mm(settings.ball_type)
+    return diameter or None
+
+
 def _crop_box(result, aspect: float) -> tuple[float, float, float, float]:
     """Image-px box (x0, y0, w, h) around the ball and its wake, with the given w/h aspect."""
     vf = result.field
@@ -389,8 +413,7 @@ def _paint_field_legend(p, span: tuple[float, float], x: float, y: float, limit:
         text(p, rect_mm(x + 14 + bar_w, y + 0.4, 10, 4), "1/s", small, colour=colours.MUTED_INK)
     scale_mm_px = result.scale_mm_per_px
     if scale_mm_px:
-        # the longest round object length that stays under 20 mm on the page
-        bar_mm = round_length(mm(20) / view.scale * scale_mm_px)
+        bar_mm = scale_bar_mm(result, view.scale)
         length = bar_mm / scale_mm_px * view.scale
         left = mm(x + bar_w + 23)
         p.setPen(pen(colours.INK, 0.45))
