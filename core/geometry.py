@@ -74,6 +74,12 @@ def angle_of_point(
     return math.degrees(math.atan2(-(rx * fx + ry * fy), rx * nx + ry * ny))
 
 
+def turn_deg(angle_deg: float, reference_deg: float) -> float:
+    """How far a direction lies from another: ``angle - reference`` wrapped to [-180, 180)
+    deg."""
+    return (angle_deg - reference_deg + 180.0) % 360.0 - 180.0
+
+
 def on_own_side(angle_deg: float) -> float:
     """A separation angle kept on its side of the ball: from the front stagnation point (-90)
     to the rear one (+90); beyond them an angle would be the other side's."""

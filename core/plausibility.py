@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 
-from core.geometry import SIDES_SWAP_DEG
+from core.geometry import SIDES_SWAP_DEG, turn_deg
 from core.summary import ShotSummary
 
 #: The measured speed may differ from the launcher's nominal speed by this fraction (a wheel
@@ -85,7 +85,7 @@ def usual_direction(directions_deg) -> float | None:
     values = [float(d) for d in directions_deg if d is not None and math.isfinite(d)]
     if len(values) < USUAL_MIN_SHOTS:
         return None
-    groups = [[v for v in values if abs(_turn(v, centre)) <= DIRECTION_TOLERANCE_DEG]
+    groups = [[v for v in values if abs(turn_deg(v, centre)) <= DIRECTION_TOLERANCE_DEG]
               for centre in values]
     best = max(groups, key=len)
     if len(best) < USUAL_MIN_SHARE * len(values):
@@ -112,7 +112,7 @@ def _moved_check(flight, manifest_deg: float | None) -> list[str]:
     if manifest_deg is None or math.hypot(dx, dy) < 1.0:
         return []
     moved = math.degrees(math.atan2(-dy, dx)) % 360.0
-    gap = _turn(moved, manifest_deg)
+    gap = turn_deg(moved, manifest_deg)
     if abs(gap) <= DIRECTION_TOLERANCE_DEG:
         return []
     if abs(gap) >= 180.0 - DIRECTION_TOLERANCE_DEG:  # both circles fitted, the other way
@@ -127,7 +127,7 @@ def _moved_check(flight, manifest_deg: float | None) -> list[str]:
 def _usual_check(direction: float, usual: float | None) -> list[str]:
     if usual is None:
         return []
-    gap = _turn(direction, usual)
+    gap = turn_deg(direction, usual)
     if abs(gap) <= DIRECTION_TOLERANCE_DEG:
         return []
     line = (f"flight direction {direction:.1f}° is {abs(gap):.0f}° from the {usual:.1f}° most "
@@ -142,7 +142,7 @@ def _sides_swap_check(direction: float, sigma: float | None) -> list[str]:
     """A flight near vertical, where upper and lower change places (README, Conventions)."""
     margin = max(SIDES_SWAP_MARGIN_DEG, 3.0 * sigma if sigma and math.isfinite(sigma) else 0.0)
     for swap in SIDES_SWAP_DEG:
-        gap = _turn(direction, swap)
+        gap = turn_deg(direction, swap)
         if abs(gap) <= margin:
             return [(f"flight direction {direction:.1f}° is {abs(gap):.1f}° from {swap:g}°, "
                      "where upper and lower change places (upper: toward the top of the "
@@ -167,11 +167,6 @@ def _wake_check(deflection: float | None) -> list[str]:
     if deflection is None or abs(deflection) <= WAKE_TOLERANCE_DEG:
         return []
     return [f"the wake leaves {deflection:+.0f}° off the flight axis: check the flight direction"]
-
-
-def _turn(angle_deg: float, reference_deg: float) -> float:
-    """``angle - reference`` wrapped to (-180, 180] deg."""
-    return (angle_deg - reference_deg + 180.0) % 360.0 - 180.0
 
 
 def _number(value) -> float | None:

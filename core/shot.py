@@ -12,6 +12,7 @@ from dataclasses import replace
 import numpy as np
 
 from core import WakelineError
+from core.geometry import turn_deg
 from core.plausibility import DIRECTION_TOLERANCE_DEG
 from core.results import (
     BY_ANALYST,
@@ -183,7 +184,7 @@ def _balls(frame_a, frame_b, settings: ShotSettings):
 def _scale_note(settings: ShotSettings, radius_px: float, shape) -> str:
     """How big the given scale makes the ball, and the inverse scale where that size cannot be
     the ball's (a scale given in px per mm)."""
-    scale, diameter = settings.scale_mm_per_px, _ball_diameter_mm(settings)
+    scale, diameter = settings.scale_mm_per_px, stated_ball_diameter_mm(settings)
     kind = (settings.ball_type or "").strip().lower()  # the ball its nominal diameter is of
     ball = ("ball" if settings.ball_diameter_mm or not kind
             else kind if kind.endswith("ball") else f"{kind} ball")
@@ -213,7 +214,7 @@ def hand_ball(circle, shape) -> BallFit:
 
 def _expected_radius_px(settings: ShotSettings) -> float | None:
     """Ball radius (px) from its diameter and a given scale, when both are known."""
-    diameter = _ball_diameter_mm(settings)
+    diameter = stated_ball_diameter_mm(settings)
     if diameter and settings.scale_mm_per_px:
         return 0.5 * diameter / settings.scale_mm_per_px
     return None
@@ -253,7 +254,8 @@ def _conditioned(frame_a, frame_b, settings: ShotSettings, background, glare):
     return frames[0], frames[1]
 
 
-def _ball_diameter_mm(settings: ShotSettings) -> float | None:
+def stated_ball_diameter_mm(settings: ShotSettings) -> float | None:
+    """The ball's diameter a shot is measured with: given, or its type's nominal one."""
     from core.ball import nominal_diameter_mm
 
     if settings.ball_diameter_mm:
@@ -284,15 +286,21 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
     warnings.extend(_ball_warnings(ball_a, ball_b, _expected_radius_px(settings)))
     flight = _flight(result, raw, balls, glare, warnings)
     result.flight = flight
+    # a held ball's direction given: the free stream past it flows against its flight
+    against = (None if settings.flight_deg is None
+               else _held_flight_from_stream(result.field, ball_a, flight))
+    gap = None if against is None else abs(turn_deg(settings.flight_deg, against))
+    if gap is not None and DIRECTION_TOLERANCE_DEG < gap < 180.0 - DIRECTION_TOLERANCE_DEG:
+        warnings.append(  # (the wrong way round altogether: below, where no separation is fitted)
+            f"the flight direction given ({settings.flight_deg:g} deg) is {gap:.0f} deg from the "
+            f"{against:.1f} deg the free stream gives the held ball (against the stream): check "
+            "the flight direction")
     result.ball_warnings = list(warnings[first:])  # what the ball and flight stages said
     clock.lap("ball")
     result.valid_near_ball = valid_near_ball(result.field, ball_a, 2.0 * result.field.spacing_px)
     stream = _air_stream_px(result.field, ball_a, flight)
     result.reynolds = _reynolds(result, stream)
-    against = (None if settings.flight_deg is None
-               else _held_flight_from_stream(result.field, ball_a, flight))
-    if against is not None and (_gap_deg(settings.flight_deg, against)
-                                >= 180.0 - DIRECTION_TOLERANCE_DEG):
+    if gap is not None and gap >= 180.0 - DIRECTION_TOLERANCE_DEG:
         warnings.append(
             f"the flight direction given ({settings.flight_deg:g} deg) looks the wrong way "
             f"round: the free stream past the held ball gives {against:.1f} deg (against the "
@@ -355,7 +363,7 @@ def _reynolds(result: ShotResult, stream_px: float | None):
     settings = result.settings
     scale, dt = result.scale_mm_per_px, settings.dt_s
     air_m_s = stream_px * scale * 1e-3 / dt if stream_px and scale and dt else None
-    return reynolds_number(air_m_s, _ball_diameter_mm(settings), settings.air_temp_c)
+    return reynolds_number(air_m_s, stated_ball_diameter_mm(settings), settings.air_temp_c)
 
 
 def _ball_warnings(ball_a: BallFit, ball_b: BallFit, expected_r: float | None) -> list[str]:
@@ -409,7 +417,7 @@ def _flight(result: ShotResult, raw, balls, glare, warnings: list[str]) -> Fligh
     settings = result.settings
     ball_a, ball_b = balls
     scale_rel = 0.0
-    diameter = _ball_diameter_mm(settings)
+    diameter = stated_ball_diameter_mm(settings)
     if result.scale_mm_per_px is None and diameter:
         mean_r = 0.5 * (ball_a.radius_px + ball_b.radius_px)
         result.scale_mm_per_px = scale_from_ball(mean_r, diameter)
@@ -426,14 +434,6 @@ def _flight(result: ShotResult, raw, balls, glare, warnings: list[str]) -> Fligh
     )
     moved = float(np.hypot(*shift))
     if settings.flight_deg is not None:
-        against = _held_flight_from_stream(result.field, ball_a, flight)
-        gap = None if against is None else _gap_deg(settings.flight_deg, against)
-        # (the wrong way round altogether is said where the separation is skipped)
-        if gap is not None and DIRECTION_TOLERANCE_DEG < gap < 180.0 - DIRECTION_TOLERANCE_DEG:
-            warnings.append(
-                f"the flight direction given ({settings.flight_deg:g} deg) is {gap:.0f} deg "
-                f"from the {against:.1f} deg the free stream gives the held ball (against the "
-                "stream): check the flight direction")
         return flight
     if moved < MIN_FLIGHT_PX:
         held = flight_from_stream(result.field, ball_a, dt_s=settings.dt_s,
@@ -453,7 +453,7 @@ def _flight(result: ShotResult, raw, balls, glare, warnings: list[str]) -> Fligh
     air = air_direction(result.field, ball_a, moved)
     if air is not None:
         flight.air_direction_deg, flight.air_direction_sigma_deg = air
-        gap = (air[0] - flight.direction_deg + 180.0) % 360.0 - 180.0
+        gap = turn_deg(air[0], flight.direction_deg)
         combined = float(np.hypot(flight.direction_sigma_deg or 0.0, air[1]))
         if abs(gap) > 2.0 * combined:
             warnings.append(
@@ -497,11 +497,6 @@ def _held_flight_from_stream(field, ball, flight: Flight) -> float | None:
     if stream is None or float(np.hypot(*_stream_px(field, ball))) < MIN_FLIGHT_PX:
         return None
     return round(stream.direction_deg, 1) % 360.0
-
-
-def _gap_deg(a_deg: float, b_deg: float) -> float:
-    """How far apart two directions are (deg, 0-180)."""
-    return abs((a_deg - b_deg + 180.0) % 360.0 - 180.0)
 
 
 def _separation(frame_a, frame_b, balls, flight: Flight, stream: float,

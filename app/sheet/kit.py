@@ -85,11 +85,9 @@ def text(painter, rect: QtCore.QRectF, value: str, size_pt: float = 8.5, *, bold
 
 
 def one_line(painter, rect: QtCore.QRectF, value: str, sizes_pt: tuple[float, ...], *,
-             bold=False, colour=colours.INK, flags=None,
-             elide=QtCore.Qt.TextElideMode.ElideRight) -> tuple[str, float]:
+             bold=False, colour=colours.INK, flags=None) -> tuple[str, float]:
     """Draw ``value`` on one line in ``rect`` at the largest of ``sizes_pt`` at which it fits;
-    at the smallest its end (or where ``elide`` says) gives way to "…". Returns the text drawn
-    and its size (pt)."""
+    at the smallest its end gives way to "…". Returns the text drawn and its size (pt)."""
     for size in sizes_pt:
         painter.setFont(font(size, bold))
         metrics = painter.fontMetrics()
@@ -97,7 +95,8 @@ def one_line(painter, rect: QtCore.QRectF, value: str, sizes_pt: tuple[float, ..
             shown = value  # (Qt's eliding can cut a text that fits, by rounding: not asked)
             break
         if size == sizes_pt[-1]:
-            shown = metrics.elidedText(value, elide, int(rect.width()))
+            shown = metrics.elidedText(value, QtCore.Qt.TextElideMode.ElideRight,
+                                       int(rect.width()))
     painter.setPen(qcolor(colour))
     align = flags if flags is not None else QtCore.Qt.AlignmentFlag.AlignLeft
     painter.drawText(rect, int(align) | int(QtCore.Qt.AlignmentFlag.AlignVCenter)

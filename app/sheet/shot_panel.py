@@ -165,23 +165,14 @@ def scale_bar_mm(result, scale: float) -> float:
     image px: a round length of about the ball's size, so that every panel of a ball shows one
     bar (following each picture's crop, identical shots got 50 and 100 mm); where that would
     be under 6 or over 22 mm on the page, the longest round length under 20 mm there."""
+    from core.shot import stated_ball_diameter_mm
+
     scale_mm_px = result.scale_mm_per_px
-    diameter = _stated_diameter_mm(result)
+    diameter = stated_ball_diameter_mm(result.settings)
     bar_mm = round_length(0.7 * diameter) if diameter else 0.0
     if not mm(6) <= bar_mm / scale_mm_px * scale <= mm(22):
         bar_mm = round_length(mm(20) / scale * scale_mm_px)
     return bar_mm
-
-
-def _stated_diameter_mm(result) -> float | None:
-    """The ball's diameter the shot was measured with (given, or its type's nominal one)."""
-    settings = getattr(result, "settings", None)
-    diameter = getattr(settings, "ball_diameter_mm", None)
-    if not diameter and getattr(settings, "ball_type", None):
-        from core.ball.sizes import nominal_diameter_mm
-
-        diameter = nominal_diameter_mm(settings.ball_type)
-    return diameter or None
 
 
 def _crop_box(result, aspect: float) -> tuple[float, float, float, float]:

@@ -17,6 +17,7 @@ from core.geometry import (
     mid_circle,
     on_own_side,
     point_at_angle,
+    turn_deg,
     upper_normal,
 )
 from core.results import BY_ANALYST, GIVEN_FLIGHT, SideProposal
@@ -360,7 +361,7 @@ def _flight_turn(old: ShotSummary | None, new: ShotSummary | None) -> float | No
     if mid_circle(old.ball_a, old.ball_b) is None or mid_circle(new.ball_a, new.ball_b) is None:
         return None
     before, after = old.flight.direction_deg, new.flight.direction_deg
-    turn = abs((after - before + 180.0) % 360.0 - 180.0)
+    turn = abs(turn_deg(after, before))
     (ax, ay), (bx, by) = upper_normal(before), upper_normal(after)
     # a direction or circle set by hand is a correction, however small
     by_hand = new.flight.source == GIVEN_FLIGHT or BY_ANALYST in (
