@@ -1,6 +1,6 @@
 """wakeline core: the headless measurement of seamed-ball PIV shots (no Qt here)."""
 
-__version__ = "0.3.14"
+__version__ = "0.3.15"
 
 
 class WakelineError(Exception):

@@ -122,23 +122,47 @@ def dividing_lines_px(radius_px: float, lines, phi_deg: np.ndarray,
     """:func:`dividing_line_px` of several lines ``(phi_s_deg, slope, relax_px)`` at once,
     ``(K, N)``: the lines are traced together, row by row as one would be."""
     phi = np.asarray(phi_deg, dtype=np.float64)
-    lines = [tuple(float(v) for v in line) for line in lines]
-    th = np.array([[math.radians(phi_s)] for phi_s, _, _ in lines])
-    psi0 = np.array([[-math.radians(phi_s) + math.atan(slope)] for phi_s, slope, _ in lines])
-    decay = np.array([[max(relax_px, 1e-6)] for _, _, relax_px in lines])
-    psi_f = math.radians(final_deg)
-    s = _arc_steps(radius_px)
-    psi = psi_f + (psi0 - psi_f) * np.exp(-s / decay)
+    lines = np.array([[float(v) for v in line] for line in lines], dtype=np.float64)
+    return _traced_lines(radius_px, lines, math.radians(final_deg), _arc_steps(radius_px), phi)
+
+
+# The tracing is compiled (numba): a fit traces a new line for nearly every model it evaluates
+# (and three more for each Jacobian), and as whole-array numpy operations on a few hundred
+# points each line cost some twenty calls' overhead, more than the arithmetic.
+@compiled
+def _traced_lines(radius_px, lines, psi_f, s, phi):
+    """:func:`dividing_lines_px` of the rows ``(phi_s_deg, slope, relax_px)`` of ``lines``: the
+    heading relaxes as ``psi_f + (psi0 - psi_f) exp(-s / relax)`` along the arc lengths ``s``,
+    the path is its running trapezoidal integral from the separation point, then read at the
+    angles ``phi`` (its angle kept non-decreasing)."""
+    steps = s.size
     ds = s[1] - s[0]
-    xi = _trapezoid_sums(np.cos(psi), ds)
-    xi += np.array([[radius_px * math.sin(v)] for v in th[:, 0]])
-    zeta = _trapezoid_sums(np.sin(psi), ds)
-    zeta += np.array([[radius_px * math.cos(v)] for v in th[:, 0]])
-    curve_phi = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)), axis=1)
-    curve_gap = np.hypot(xi, zeta) - radius_px
-    return np.array([
-        np.where(phi > phi_s, np.interp(phi, along, gap), 0.0)
-        for (phi_s, _, _), along, gap in zip(lines, curve_phi, curve_gap, strict=True)])
+    out = np.zeros((lines.shape[0], phi.size))
+    curve_phi = np.empty(steps)
+    curve_gap = np.empty(steps)
+    for k in range(lines.shape[0]):
+        phi_s, slope, relax = lines[k, 0], lines[k, 1], lines[k, 2]
+        th = math.radians(phi_s)
+        psi0 = -th + math.atan(slope)
+        decay = max(relax, 1e-6)
+        xi, zeta = radius_px * math.sin(th), radius_px * math.cos(th)
+        last_cos = last_sin = 0.0
+        highest = -np.inf
+        for j in range(steps):
+            psi = psi_f + (psi0 - psi_f) * math.exp(-s[j] / decay)
+            cos_psi, sin_psi = math.cos(psi), math.sin(psi)
+            if j > 0:
+                xi += 0.5 * (cos_psi + last_cos) * ds
+                zeta += 0.5 * (sin_psi + last_sin) * ds
+            last_cos, last_sin = cos_psi, sin_psi
+            highest = max(highest, math.degrees(math.atan2(xi, zeta)))
+            curve_phi[j] = highest
+            curve_gap[j] = math.hypot(xi, zeta) - radius_px
+        heights = np.interp(phi, curve_phi, curve_gap)
+        for i in range(phi.size):
+            if phi[i] > phi_s:
+                out[k, i] = heights[i]
+    return out
 
 
 @functools.lru_cache(maxsize=16)
@@ -147,13 +171,6 @@ def _arc_steps(radius_px: float) -> np.ndarray:
     s = np.linspace(0.0, 3.0 * radius_px, _LINE_STEPS + 1)
     s.flags.writeable = False
     return s
-
-
-def _trapezoid_sums(values: np.ndarray, step: float) -> np.ndarray:
-    """Running trapezoidal integrals of the rows of ``values`` (0 at the first column)."""
-    sums = np.zeros_like(values)
-    np.cumsum(0.5 * (values[:, 1:] + values[:, :-1]) * step, axis=1, out=sums[:, 1:])
-    return sums
 
 
 def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.ndarray,
@@ -168,7 +185,7 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
         angle), ``relax`` (L / R), ``log_delta`` (ln of the vorticity thickness at separation,
         px), ``spread`` (d delta / ds), ``reverse`` (r), ``drop`` (a), ``thin`` (b), ``follow``
         (f), ``k_t``, ``k_r`` (scales of the outer stream's components). With ``K`` rows, ``K``
-        models at once (a fit's finite differences, a search's candidates).
+        models at once (a search's candidates).
     u_t_outer, u_r_outer : (P * G,) ndarray
         The stream outside the layer at the samples.
     shape : {"erf", "quartic"}
@@ -200,8 +217,8 @@ def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, sh
     centre = lift + c * (delta - (1.0 - geom.outward_growth) * spread * behind) * (1.0 - drop * ramp)
     wall_px = geom.wall_fraction * delta_s * (1.0 - thin * ramp)
     # the error functions and exponentials are most of the cost: each is computed once for the
-    # models that share what it depends on (a Jacobian's columns for follow, k_t and k_r share
-    # the whole layer; most share the wall's no-slip length)
+    # models that share what it depends on (the coarse search's candidates that differ only
+    # in follow share the whole layer; many share the wall's no-slip length)
     per_model = (np.ascontiguousarray(column[:, 0]) for column in (reverse, follow, k_t, k_r))
     return _flow_at_samples(centre, delta, wall_px, rise, *per_model,
                             _first_alike(table, LAYER_COLUMNS),
@@ -209,6 +226,91 @@ def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, sh
                             np.ascontiguousarray(geom.gap_grid, dtype=np.float64),
                             u_t_outer.reshape(phi.size, geom.gap_grid.size),
                             u_r_outer.reshape(phi.size, geom.gap_grid.size), shape == "quartic")
+
+
+def side_flow_slopes(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.ndarray,
+                     shape: str = "erf"):
+    """:func:`side_flow` of one model, ``(S,)`` each, and its derivatives by the 11 parameters,
+    ``(S, 11)`` each: the least-squares fit's Jacobian (:meth:`core.side_fit.SideProblem.
+    jacobian`).
+
+    Worked out by the chain rule through what varies along the outline (the layer's centre
+    height, its thickness, the no-slip length and the dividing line's rise, :func:`_along`),
+    except for the dividing line's dependence on ``(phi_s, slope, relax)``, which is traced:
+    there a forward difference (three more lines of a few hundred points each) stands in. One
+    pass over the samples instead of a finite difference's eleven more models.
+    """
+    table = np.asarray(params, dtype=np.float64)
+    along = _along(geom, table, shape)
+    return _flow_slopes_at_samples(
+        *along, *(float(table[PARAM_NAMES.index(name)])
+                  for name in ("reverse", "follow", "k_t", "k_r")),
+        np.ascontiguousarray(geom.gap_grid, dtype=np.float64),
+        u_t_outer.reshape(geom.phi_grid.size, geom.gap_grid.size),
+        u_r_outer.reshape(geom.phi_grid.size, geom.gap_grid.size), shape == "quartic")
+
+
+#: Forward-difference steps of the dividing line's parameters, relative (as scipy's default).
+_LINE_STEP = 1e-3
+
+
+def _along(geom: SideGeometry, params: np.ndarray, shape: str):
+    """One model's centre height, vorticity thickness, no-slip length and dividing-line rise
+    along the outline, ``(P,)`` each, and their derivatives by the parameters, ``(P, 11)``
+    each (the same formulas as :func:`_models_flow`, differentiated)."""
+    phi_s, _, _, log_delta, spread, reverse, drop, thin, _, _, _ = params
+    r = geom.radius_px
+    phi = geom.phi_grid
+    n = len(PARAM_NAMES)
+    delta_s = math.exp(log_delta)
+    behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r
+    d_behind = np.where(phi > phi_s, -math.radians(1.0) * r, 0.0)  # by phi_s
+    ahead = np.clip(phi_s - phi, 0.0, None)
+    ramp = -np.expm1(-ahead / geom.upstream_deg)
+    d_ramp = np.where(phi < phi_s, np.exp(-ahead / geom.upstream_deg) / geom.upstream_deg, 0.0)
+    # the dividing line: traced at the model's (phi_s, slope, relax) and one step along each
+    line = params[:3]
+    steps = _LINE_STEP * np.maximum(1.0, np.abs(line)) * np.where(line < 0.0, -1.0, 1.0)
+    lines = np.vstack([line, line + np.diag(steps)])
+    lifts, rises = _dividing_lines(geom, lines)
+    lift, rise = lifts[0], rises[0]
+    c = centre_offset(float(reverse), shape)
+    c_by_reverse = -1.0 / (_slope_of(-c, shape) * (1.0 + reverse) ** 2)
+    thin_part = 1.0 - thin * ramp
+    delta = delta_s * thin_part + spread * behind
+    lifted = delta - (1.0 - geom.outward_growth) * spread * behind  # what c multiplies
+    settle = 1.0 - drop * ramp
+    centre = lift + c * lifted * settle
+    wall_px = geom.wall_fraction * delta_s * thin_part
+    i = {name: k for k, name in enumerate(PARAM_NAMES)}
+    d_delta = np.zeros((phi.size, n))
+    d_delta[:, i["phi_s"]] = -delta_s * thin * d_ramp + spread * d_behind
+    d_delta[:, i["log_delta"]] = delta_s * thin_part
+    d_delta[:, i["spread"]] = behind
+    d_delta[:, i["thin"]] = -delta_s * ramp
+    d_lifted = d_delta.copy()
+    d_lifted[:, i["phi_s"]] -= (1.0 - geom.outward_growth) * spread * d_behind
+    d_lifted[:, i["spread"]] -= (1.0 - geom.outward_growth) * behind
+    d_settle = np.zeros((phi.size, n))
+    d_settle[:, i["phi_s"]] = -drop * d_ramp
+    d_settle[:, i["drop"]] = -ramp
+    d_centre = c * (d_lifted * settle[:, None] + lifted[:, None] * d_settle)
+    d_centre[:, :3] += ((lifts[1:] - lift) / steps[:, None]).T
+    d_centre[:, i["reverse"]] += c_by_reverse * lifted * settle
+    d_wall = geom.wall_fraction * d_delta
+    d_wall[:, i["spread"]] = 0.0  # the no-slip length is the thickness at separation's share
+    d_wall[:, i["phi_s"]] = -geom.wall_fraction * delta_s * thin * d_ramp
+    d_rise = np.zeros((phi.size, n))
+    d_rise[:, :3] = ((rises[1:] - rise) / steps[:, None]).T
+    return centre, delta, wall_px, rise, d_centre, d_delta, d_wall, d_rise
+
+
+def _slope_of(x: float, shape: str) -> float:
+    """Slope of :func:`profile` at ``x``."""
+    if shape == "erf":
+        return math.exp(-math.pi * x * x)
+    y = x * (16.0 / 15.0)
+    return 1.0 - 2.0 * y * y + y**4 if abs(y) < 1.0 else 0.0
 
 
 #: Parameters (columns) that shape the layer's profile (all but ``follow``, ``k_t``, ``k_r``),
@@ -279,6 +381,79 @@ def _flow_at_samples(centre, delta, wall_px, rise, reverse, follow, k_t, k_r, sa
     return u_t, u_r
 
 
+_REVERSE, _FOLLOW, _K_T, _K_R = (PARAM_NAMES.index(name)
+                                 for name in ("reverse", "follow", "k_t", "k_r"))
+
+
+@compiled
+def _flow_slopes_at_samples(centre, delta, wall_px, rise, d_centre, d_delta, d_wall, d_rise,
+                            reverse, follow, k_t, k_r, gap, u_t_outer, u_r_outer, quartic):
+    """:func:`_flow_at_samples` of one model, ``(S,)`` each, with its derivatives by the
+    parameters, ``(S, 11)`` each, from those of the quantities along the outline
+    (:func:`_along`)."""
+    angles, gaps = centre.size, gap.size
+    n = d_centre.shape[1]
+    u_t = np.empty(angles * gaps)
+    u_r = np.empty(angles * gaps)
+    j_t = np.empty((angles * gaps, n))
+    j_r = np.empty((angles * gaps, n))
+    r = reverse
+    for p in range(angles):
+        d, w, z = delta[p], wall_px[p], rise[p]
+        for g in range(gaps):
+            i = p * gaps + g
+            x = (gap[g] - centre[p]) / d
+            across = _profile_value(x, quartic)
+            across_x = _profile_slope(x, quartic)
+            inside = 1.0 - _profile_value(x - 1.0, quartic)
+            inside_x = -_profile_slope(x - 1.0, quartic)
+            wall = -math.expm1(-gap[g] / w)
+            wall_w = -math.exp(-gap[g] / w) * gap[g] / (w * w)
+            outer_t, outer_r = u_t_outer[p, g], u_r_outer[p, g]
+            form = (1.0 + r) * across - r
+            t = k_t * outer_t * form * wall
+            u_t[i] = t
+            u_r[i] = k_r * outer_r * across * wall + follow * t * z * inside
+            # partial derivatives by x (the height in thicknesses), the no-slip length, the rise
+            t_x = k_t * outer_t * (1.0 + r) * across_x * wall
+            t_w = k_t * outer_t * form * wall_w
+            radial_x = k_r * outer_r * across_x * wall + follow * z * (t_x * inside + t * inside_x)
+            radial_w = k_r * outer_r * across * wall_w + follow * z * t_w * inside
+            radial_z = follow * t * inside
+            for j in range(n):
+                dx = -(d_centre[p, j] + x * d_delta[p, j]) / d
+                j_t[i, j] = t_x * dx + t_w * d_wall[p, j]
+                j_r[i, j] = radial_x * dx + radial_w * d_wall[p, j] + radial_z * d_rise[p, j]
+            t_r = k_t * outer_t * (across - 1.0) * wall
+            j_t[i, _REVERSE] += t_r
+            j_r[i, _REVERSE] += follow * z * t_r * inside
+            j_r[i, _FOLLOW] += t * z * inside
+            t_k = outer_t * form * wall
+            j_t[i, _K_T] += t_k
+            j_r[i, _K_T] += follow * z * t_k * inside
+            j_r[i, _K_R] += outer_r * across * wall
+    return u_t, u_r, j_t, j_r
+
+
+@compiled
+def _profile_slope(x, quartic):
+    """Derivative of :func:`_profile_value` (of its interpolation, for the error function)."""
+    if quartic:
+        y = x * (16.0 / 15.0)
+        if not -1.0 < y < 1.0:
+            return 0.0
+        return 1.0 - 2.0 * y * y + y**4
+    if not -_TABLE_REACH < x < _TABLE_REACH:
+        return 0.0 if not math.isnan(x) else x
+    u = (x + _TABLE_REACH) / _TABLE_STEP
+    i = min(int(u), _ERF_TABLE.shape[0] - 2)
+    t = u - i
+    p0, p1 = _ERF_TABLE[i, 0], _ERF_TABLE[i + 1, 0]
+    m0, m1 = _ERF_TABLE[i, 1], _ERF_TABLE[i + 1, 1]
+    return (m0 + t * (2.0 * (3.0 * (p1 - p0) - 2.0 * m0 - m1)
+                      + 3.0 * t * (2.0 * (p0 - p1) + m0 + m1))) / _TABLE_STEP
+
+
 @compiled
 def _profile_value(x, quartic):
     """:func:`profile` of one value; the error function's from :data:`_ERF_TABLE`."""
@@ -290,8 +465,8 @@ def _profile_value(x, quartic):
             return x  # NaN stays NaN
         return 0.0 if x < 0.0 else 1.0
     # cubic Hermite interpolation between the table's values and slopes (the slopes stored
-    # times the step): continuous with its first derivative, as the fit's finite differences
-    # want; just below the reach, x + reach may round up to the table's last point
+    # times the step): continuous with its first derivative, as the fit's Jacobian
+    # (:func:`_profile_slope`) wants; just below the reach, x + reach may round up to the table's last point
     u = (x + _TABLE_REACH) / _TABLE_STEP
     i = min(int(u), _ERF_TABLE.shape[0] - 2)
     t = u - i
@@ -349,9 +524,9 @@ _LINE_CACHE: dict = {}
 
 def _dividing_lines(geom: SideGeometry, lines: np.ndarray):
     """The dividing lines' heights over the angle grid and their rise ``dZ/ds``, ``(K, P)``
-    each, for the rows ``(phi_s, slope, relax)`` of ``lines``: the last few lines are kept (a
-    fit's finite differences change the other parameters far more often), the new ones traced
-    together."""
+    each, for the rows ``(phi_s, slope, relax)`` of ``lines``: the last few lines are kept (the
+    fit asks for the Jacobian where it has just evaluated the model, and a search's candidates
+    share their lines), the new ones traced together."""
     phi = geom.phi_grid
     alike = _alike(lines, slice(None))
     grid = (geom.radius_px, geom.final_deg, phi.size, float(phi[0]), float(phi[-1]))

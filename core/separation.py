@@ -308,11 +308,13 @@ def fit_problem(problem: SideProblem, ball: BallFrame, final_deg: float) -> Side
     """The fit of one side's problem: coarse search, refinements, the uncertainty budget."""
     problem.sigma = problem.attached_scale()
     starts, start_cost = [], math.inf
-    for form in (problem.with_growth(growth) for growth in LAYER_FORMS):
-        # the search for starting points looks at smoothed frames (coarse to fine)
-        searched = form.blurred(COARSE_BLUR * ball.stream)
+    # the search for starting points looks at smoothed frames (coarse to fine), the same for
+    # both forms of the layer
+    smoothed = problem.blurred(COARSE_BLUR * ball.stream)
+    for growth in LAYER_FORMS:
+        searched = smoothed.with_growth(growth)
         found, cost = _coarse_search(searched)
-        starts += [(form, start) for start in found]
+        starts += [(problem.with_growth(growth), start) for start in found]
         start_cost = min(start_cost, cost)
     # where the search's costs were taken (attached flow has no layer: alike in both forms)
     coarse_attached = searched.view(every=2).attached_cost()

@@ -22,7 +22,7 @@ parameters carry them:
   2-30 % of the stream alike, a weak prior on the turning length.
 
 :func:`refine` is the least-squares refinement of a model from a start (scipy's trust-region
-solver, its finite-difference Jacobian's models evaluated as one batch). How the refinements
+solver, with the model's own Jacobian). How the refinements
 are combined into a proposal and its uncertainty: :mod:`core.separation`.
 """
 
@@ -34,7 +34,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import least_squares
 
-from core.layer_model import PARAM_NAMES, SideGeometry, side_flow
+from core.layer_model import PARAM_NAMES, SideGeometry, side_flow, side_flow_slopes
 from core.near_wall import NearWallBand, OuterStream
 
 #: The prior's spread of ``ln delta`` (the thickness at separation) outside the range it treats
@@ -119,8 +119,9 @@ class SideProblem:
         attached = self.band.residual(self.u_t, self.u_r)
         return math.sqrt(np.sum(attached**2) / attached.size * SAMPLES_PER_INDEPENDENT) + 1e-12
 
-    # Every method below takes one model's parameters, (11,), or K models' as rows, (K, 11),
-    # and then answers row by row (a fit's finite differences, a search's candidates).
+    # The methods below take one model's parameters, (11,), or K models' as rows, (K, 11) (a
+    # search's candidates), and then answer row by row; the slopes (jacobian, prior_slopes)
+    # take one model's only.
 
     def flow(self, params, shape="erf", geom=None):
         return side_flow(geom or self.geom, params, self.u_t, self.u_r, shape)
@@ -140,6 +141,20 @@ class SideProblem:
         """What the fit squares and sums: the band's residuals over ``sigma``, then the priors'."""
         data = self.band.residual(*self.flow(params, shape, geom)) / self.sigma
         return np.concatenate([data, self.prior_terms(params, log_delta_prior)], axis=-1)
+
+    def jacobian(self, params, shape="erf", geom=None, log_delta_prior=None) -> np.ndarray:
+        """Derivatives of :meth:`residuals` by the 11 parameters of one model, ``(S + 8, 11)``:
+        the motion's (:func:`~core.layer_model.side_flow_slopes`) through the frames'
+        lookups' (:meth:`~core.near_wall.NearWallBand.residual_slopes`), then the priors'."""
+        params = np.asarray(params, dtype=np.float64)
+        u_t, u_r, by_t, by_r = side_flow_slopes(geom or self.geom, params, self.u_t, self.u_r,
+                                                shape)
+        _, data_t, data_r = self.band.residual_slopes(u_t, u_r)
+        shots = data_t.size // u_t.size  # a joint band's shots share the model's motion
+        if shots > 1:
+            by_t, by_r = np.tile(by_t, (shots, 1)), np.tile(by_r, (shots, 1))
+        data = (data_t[:, None] * by_t + data_r[:, None] * by_r) / self.sigma
+        return np.vstack([data, self.prior_slopes(params, log_delta_prior)])
 
     def score(self, params, data_cost=None):
         """Data cost over ``sigma^2`` plus the priors: what the fit minimises (twice its cost)."""
@@ -171,6 +186,29 @@ class SideProblem:
         ], axis=-1)
         return terms if table.ndim == 2 else terms[0]
 
+    def prior_slopes(self, params, log_delta_prior=None) -> np.ndarray:
+        """Derivatives of one model's :meth:`prior_terms` by its parameters, ``(8, 11)``
+        (where a term is flat inside its range, 0 at the range's ends)."""
+        _, slope, relax, log_delta, spread, reverse, *_ = params
+        i = {name: k for k, name in enumerate(PARAM_NAMES)}
+        lo, hi = (math.tan(math.radians(v)) for v in PRIOR_LEAVE_DEG)
+        out = np.zeros((8, len(PARAM_NAMES)))
+        out[0, i["slope"]] = _outside_slope(slope, lo, hi)
+        out[1, i["relax"]] = 1.0 / (relax * PRIOR_RELAX[1])
+        centre = self.log_delta_prior if log_delta_prior is None else log_delta_prior
+        out[2, i["log_delta"]] = _outside_slope(log_delta - centre, 0.0,
+                                                math.log(PRIOR_THICKER), PRIOR_LOG_DELTA_SD)
+        ratio = (1.0 + reverse) / max(1.0 - reverse, 1e-3)
+        out[3, i["spread"]] = 1.0 / (SPREADING_RATE[1] * ratio)
+        if 1.0 - reverse > 1e-3:  # d ratio / d reverse = 2 / (1 - reverse)^2
+            out[3, i["reverse"]] = (-spread / (SPREADING_RATE[1] * ratio**2)
+                                    * 2.0 / (1.0 - reverse) ** 2)
+        for row, (name, (low, high)) in enumerate(
+                (("reverse", PRIOR_REVERSE), ("drop", PRIOR_DROP), ("thin", PRIOR_THIN),
+                 ("follow", (0.0, 1.0))), start=4):
+            out[row, i[name]] = _outside_slope(params[i[name]], low, high)
+        return out
+
     def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5):
         """Parameters at the priors' medians but for those given (the thickness: the laminar
         one, where the prior's range starts, times ``delta_factor``)."""
@@ -185,6 +223,11 @@ def _outside(value: np.ndarray, lo: float, hi: float, scale: float = PRIOR_WALL)
     return (np.maximum(0.0, lo - value) + np.maximum(0.0, value - hi)) / scale
 
 
+def _outside_slope(value: float, lo: float, hi: float, scale: float = PRIOR_WALL) -> float:
+    """Derivative of :func:`_outside` by ``value``."""
+    return (-1.0 if value < lo else 1.0 if value > hi else 0.0) / scale
+
+
 @dataclass
 class Fit:
     params: np.ndarray
@@ -192,45 +235,44 @@ class Fit:
 
 
 def refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_prior=None,
-            max_nfev=60, hold=()) -> Fit:
+           max_nfev=60, hold=()) -> Fit:
     """Least-squares refinement with the priors of all parameters but those named in ``hold``
-    (``PARAM_NAMES``), which keep their start values."""
+    (``PARAM_NAMES``), which keep their start values. The Jacobian is the model's own
+    (:meth:`SideProblem.jacobian`)."""
     start = np.asarray(start, dtype=np.float64)
     free = np.array([name not in hold for name in PARAM_NAMES])
 
-    def residuals(q):  # (n,) free parameters, or (K, n)
-        p = np.tile(start, np.shape(q)[:-1] + (1,))
-        p[..., free] = q
-        return problem.residuals(p, shape, geom, log_delta_prior)
+    def full(q):
+        p = start.copy()
+        p[free] = q
+        return p
+
+    def residuals(q):
+        return problem.residuals(full(q), shape, geom, log_delta_prior)
+
+    def jacobian(q):
+        return problem.jacobian(full(q), shape, geom, log_delta_prior)[:, free]
 
     lower = np.array([start[0] - REFINE_REACH_DEG, 0.0, 0.15, math.log(0.3), 0.02, 0.01, 0.0, 0.0, 0.0, 0.7,
                       0.0])
     upper = np.array([start[0] + REFINE_REACH_DEG, 0.7, 6.0, math.log(40.0), 0.6, 0.45,
                       PRIOR_DROP[1] + 0.2, 0.9, 1.0, 1.3, 2.0])
     x0 = np.clip(start, lower + 1e-9, upper - 1e-9)[free]
-    solver = _Evaluations(residuals, max_nfev)
+    solver = _Evaluations(residuals, jacobian, max_nfev)
     sol = least_squares(
-        solver.step, x0, bounds=(lower[free], upper[free]), diff_step=1e-3, max_nfev=max_nfev,
-        xtol=1e-4, ftol=1e-4, x_scale=REFINE_SCALE[free], tr_solver="exact",
-        workers=solver.jacobian_models,
+        solver.step, x0, jac=solver.jacobian, bounds=(lower[free], upper[free]),
+        max_nfev=max_nfev, xtol=1e-4, ftol=1e-4, x_scale=REFINE_SCALE[free], tr_solver="exact",
     )
-    params = start.copy()
-    params[free] = sol.x
-    return Fit(params, float(2.0 * sol.cost))
+    return Fit(full(sol.x), float(2.0 * sol.cost))
 
 
 class _Evaluations:
-    """``residuals`` as least_squares evaluates them: ``step`` for the solver's own evaluations
-    (counted), ``jacobian_models`` as its ``workers`` map (:func:`all_at_once`), except for the
-    Jacobian the solver asks for after its last allowed evaluation (``max_nfev``): scipy's trf
-    computes one after every accepted step, but with no evaluation left it stops without using
-    it, so zeros stand in (11 of a five-evaluation refit's 60 model evaluations; the fit's
-    parameters and cost are the same to the last bit, only the result's unused gradient and
-    status differ)."""
+    """``residuals`` and ``jacobian`` as least_squares evaluates them, the evaluations counted:
+    scipy's trf asks for a Jacobian after every accepted step, but after its last allowed
+    evaluation (``max_nfev``) it stops without using it, so zeros stand in."""
 
-    def __init__(self, residuals, max_nfev: int):
-        self.residuals, self.max_nfev = residuals, max_nfev
-        self.batch = all_at_once(residuals)
+    def __init__(self, residuals, jacobian, max_nfev: int):
+        self.residuals, self.slopes, self.max_nfev = residuals, jacobian, max_nfev
         self.count, self.size = 0, 0
 
     def step(self, q):
@@ -239,18 +281,7 @@ class _Evaluations:
         self.size = values.shape[-1]
         return values
 
-    def jacobian_models(self, one_by_one, points):
+    def jacobian(self, q):
         if self.count >= self.max_nfev:
-            return np.zeros((len(list(points)), self.size))
-        return self.batch(one_by_one, points)
-
-
-def all_at_once(residuals):
-    """A map (``workers``) for least_squares' finite-difference Jacobian that evaluates its
-    perturbed parameter sets, stepped and kept in bounds by scipy itself, as one batch of models
-    (``residuals`` takes ``(K, n)`` rows) rather than one model at a time."""
-
-    def evaluate(_one_by_one, points):
-        return residuals(np.array(list(points)))
-
-    return evaluate
+            return np.zeros((self.size, q.size))
+        return self.slopes(q)

@@ -214,6 +214,12 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
         window.act_export_table.trigger()
         assert window.last_problem.startswith(f"Table: {target}: is the")
     assert all(p.read_bytes() == data for p, data in kept.items())
+    # a PDF under another kind of file's name is refused (the window once wrote one)
+    named = tmp_path / "picks.csv"
+    assert export_sheet(window, named) is None
+    assert window.last_problem == (f"Shot sheet: {named}: the shot sheet is a PDF: name it "
+                                   ".pdf; nothing written")
+    assert not named.exists()
 
 
 def test_one_value_on_the_axis_gets_a_readable_range(qtbot):

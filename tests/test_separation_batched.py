@@ -1,8 +1,9 @@
 """Many models at once give, row by row, exactly what one model at a time gives.
 
-The separation fit evaluates its models in batches (a Jacobian's perturbed parameter sets, the
-coarse search's candidates) for speed; these checks hold the batched paths to the one-at-a-time
-ones, bit for bit, so that batching cannot move a proposal.
+The separation fit evaluates its models in batches (the coarse search's candidates) for speed;
+these checks hold the batched paths to the one-at-a-time ones, bit for bit, so that batching
+cannot move a proposal. The fit's Jacobian is held to numerical differentiation, and the
+compiled loops to the numpy formulas they replace.
 """
 
 import math
@@ -11,7 +12,6 @@ import numba
 import numpy as np
 import pytest
 from scipy import ndimage
-from scipy.optimize import least_squares
 
 from core.layer_model import (
     PARAM_NAMES,
@@ -33,7 +33,7 @@ from core.near_wall import (
     side_axes,
 )
 from core.resample import cubic_resampled, spline_values
-from core.side_fit import SideProblem, all_at_once
+from core.side_fit import SideProblem
 from core.synth_shot import ball_shot
 
 RADIUS_PX = 60.0
@@ -275,20 +275,53 @@ def test_costs_of_many_models_in_several_batches_equal_one_batch(problem, monkey
     np.testing.assert_array_equal(problem.data_cost(table), whole)
 
 
-def test_least_squares_with_batched_jacobian_equals_one_model_at_a_time(problem):
-    # scipy chooses the finite-difference steps (diff_step relative, turned back where a bound
-    # is nearer than the step); the batch only evaluates them: the Jacobians, and so the whole
-    # refinement, must be the same to the last bit
-    x0 = problem.start(8.0, leave_deg=10.0)
-    lower, upper = x0 - 1.0, x0 + 1.0
-    upper[4] = x0[4] + 1e-5  # a bound nearer than the step: scipy steps the other way
-    lower[9] = x0[9] - 1e-5
-    options = {"bounds": (lower, upper), "diff_step": 1e-3, "max_nfev": 4, "tr_solver": "lsmr"}
-    one_by_one = least_squares(problem.residuals, x0, **options)
-    batched = least_squares(problem.residuals, x0, workers=all_at_once(problem.residuals),
-                            **options)
-    np.testing.assert_array_equal(batched.jac, one_by_one.jac)
-    np.testing.assert_array_equal(batched.x, one_by_one.x)
+def _inside_the_priors(problem, phi_s=8.0):
+    """A model away from the priors' range ends (where their slopes jump)."""
+    return problem.start(phi_s, leave_deg=10.0, delta_factor=1.6)
+
+
+def _differenced(residuals, params, step=1e-8):
+    """Central differences of ``residuals`` by each parameter."""
+    columns = []
+    for j in range(params.size):
+        h = step * max(1.0, abs(params[j]))
+        up, down = params.copy(), params.copy()
+        up[j] += h
+        down[j] -= h
+        columns.append((residuals(up) - residuals(down)) / (2.0 * h))
+    return np.stack(columns, axis=1)
+
+
+@pytest.mark.parametrize("shape", ["erf", "quartic"])
+@pytest.mark.parametrize("growth", [1.0, 0.0])
+@pytest.mark.parametrize("phi_s", [-4.0, 8.0, 30.0])
+def test_the_models_jacobian_is_the_residuals_derivative(problem, shape, growth, phi_s):
+    # the fit's Jacobian is worked out by the chain rule (core.layer_model.side_flow_slopes,
+    # the lookups' slopes); numerical differentiation of the residuals is the outside check.
+    # The dividing line's own derivatives are forward differences of 1e-3 (relative) inside
+    # the Jacobian, so its three columns agree less closely
+    form = problem.with_growth(growth)
+    params = _inside_the_priors(form, phi_s)
+    jacobian = form.jacobian(params, shape)
+    numeric = _differenced(lambda p: form.residuals(p, shape), params)
+    assert jacobian.shape == numeric.shape == (problem.band.phi.size + 8, len(PARAM_NAMES))
+    error = np.linalg.norm(jacobian - numeric, axis=0) / np.linalg.norm(numeric, axis=0)
+    line = [PARAM_NAMES.index(name) for name in ("phi_s", "slope", "relax")]
+    rest = [j for j in range(len(PARAM_NAMES)) if j not in line]
+    assert np.all(np.linalg.norm(numeric, axis=0) > 0)  # every parameter moves the residuals
+    assert np.max(error[line]) < 2e-2, error
+    assert np.max(error[rest]) < 1e-4, error
+
+
+def test_a_joint_bands_jacobian_is_its_shots_jacobians_one_after_the_other(problem):
+    joint = SideProblem(JointBand([problem.band, problem.band.view(every=1)]), problem.outer,
+                        problem.final_deg, problem.log_delta_prior, problem.sigma)
+    params = _inside_the_priors(problem)
+    one, both = problem.jacobian(params), joint.jacobian(params)
+    data = problem.band.phi.size
+    np.testing.assert_array_equal(both[:data], one[:data])
+    np.testing.assert_array_equal(both[data:2 * data], one[:data])
+    np.testing.assert_array_equal(both[2 * data:], one[data:])
 
 
 @pytest.mark.parametrize("max_nfev", [3, 5, 15])
@@ -299,22 +332,45 @@ def test_a_refinement_is_the_same_without_the_jacobian_after_its_last_evaluation
     from core.side_fit import _Evaluations, refine
 
     start = problem.start(8.0, leave_deg=10.0)
-    batches = []
-    spy = _Evaluations.jacobian_models
+    asked = []
+    spy = _Evaluations.jacobian
 
-    def counted(self, one_by_one, points):
-        out = spy(self, one_by_one, points)
-        batches.append(bool(np.any(out)))
+    def counted(self, q):
+        out = spy(self, q)
+        asked.append(bool(np.any(out)))
         return out
 
-    monkeypatch.setattr(_Evaluations, "jacobian_models", counted)
+    monkeypatch.setattr(_Evaluations, "jacobian", counted)
     fit = refine(problem, start, max_nfev=max_nfev)
-    assert batches[-1] is False and all(batches[:-1])  # the last one was left out
-    monkeypatch.setattr(_Evaluations, "jacobian_models",
-                        lambda self, one_by_one, points: self.batch(one_by_one, points))
+    assert asked[-1] is False and all(asked[:-1])  # the last one was left out
+    monkeypatch.setattr(_Evaluations, "jacobian", lambda self, q: self.slopes(q))
     full = refine(problem, start, max_nfev=max_nfev)
     np.testing.assert_array_equal(fit.params, full.params)
     assert fit.score == full.score
+
+
+def _traced_with_numpy(radius_px, phi_s, slope, relax_px, phi, final_deg):
+    """The dividing line's formulas (core.layer_model) as whole-array numpy operations."""
+    s = np.linspace(0.0, 3.0 * radius_px, 241)
+    psi0 = -math.radians(phi_s) + math.atan(slope)
+    psi_f = math.radians(final_deg)
+    psi = psi_f + (psi0 - psi_f) * np.exp(-s / relax_px)
+    xi = radius_px * math.sin(math.radians(phi_s)) + np.concatenate(
+        [[0.0], np.cumsum(0.5 * (np.cos(psi[1:]) + np.cos(psi[:-1])) * (s[1] - s[0]))])
+    zeta = radius_px * math.cos(math.radians(phi_s)) + np.concatenate(
+        [[0.0], np.cumsum(0.5 * (np.sin(psi[1:]) + np.sin(psi[:-1])) * (s[1] - s[0]))])
+    along = np.maximum.accumulate(np.degrees(np.arctan2(xi, zeta)))
+    gap = np.hypot(xi, zeta) - radius_px
+    return np.where(phi > phi_s, np.interp(phi, along, gap), 0.0)
+
+
+def test_compiled_dividing_line_is_its_numpy_formulas():
+    phi = np.linspace(-30.0, 80.0, 200)
+    for line in [(5.0, 0.1, 80.0), (12.0, 0.6, 400.0), (-3.0, 0.0, 40.0), (40.0, 0.3, 20.0)]:
+        for final in (0.0, 12.0, -20.0):
+            np.testing.assert_allclose(dividing_line_px(110.0, *line, phi, final_deg=final),
+                                       _traced_with_numpy(110.0, *line, phi, final),
+                                       rtol=1e-12, atol=1e-11)
 
 
 def test_dividing_lines_traced_together_equal_one_at_a_time():
