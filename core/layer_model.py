@@ -250,8 +250,10 @@ def side_flow_slopes(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_oute
         u_r_outer.reshape(geom.phi_grid.size, geom.gap_grid.size), shape == "quartic")
 
 
-#: Forward-difference steps of the dividing line's parameters, relative (as scipy's default).
-_LINE_STEP = 1e-3
+#: Forward-difference step of the dividing line's parameters (relative, at least absolute):
+#: small enough to stay between the traced curve's points and short of its end (with 1e-3, the
+#: fit's former difference step, a line ending inside the band made its columns up to 40 % off).
+_LINE_STEP = 1e-6
 
 
 def _along(geom: SideGeometry, params: np.ndarray, shape: str):
@@ -466,7 +468,8 @@ def _profile_value(x, quartic):
         return 0.0 if x < 0.0 else 1.0
     # cubic Hermite interpolation between the table's values and slopes (the slopes stored
     # times the step): continuous with its first derivative, as the fit's Jacobian
-    # (:func:`_profile_slope`) wants; just below the reach, x + reach may round up to the table's last point
+    # (:func:`_profile_slope`) wants; just below the reach, x + reach may round up to the
+    # table's last point
     u = (x + _TABLE_REACH) / _TABLE_STEP
     i = min(int(u), _ERF_TABLE.shape[0] - 2)
     t = u - i

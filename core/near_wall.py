@@ -231,9 +231,10 @@ class NearWallBand:
         return out if u_t.ndim == 2 else out[0]
 
     def residual_slopes(self, u_t: np.ndarray, u_r: np.ndarray):
-        """:meth:`residual` of one model's motion ``(S,)`` and its derivatives by ``u_t`` and
-        ``u_r`` at each sample, ``(S,)`` each: the bilinear lookups' slopes within their cells
-        (what a finite difference small enough to stay in the cell gives)."""
+        """Derivatives of :meth:`residual` by ``u_t`` and by ``u_r`` at each sample for one
+        model's motion ``(S,)``: ``(S,)`` each, the bilinear lookups' slopes within their cells
+        (what a finite difference small enough to stay in the cell gives; 0 where a lookup is
+        clamped to the picture's edge or the sample is left out)."""
         weight = self._weight if self._weight is not None else _EVERY_SAMPLE
         return _frames_differ_slopes(
             self.polar_a, self._steps_a, self.polar_b, self._steps_b, self.rho, self.phi,
@@ -338,33 +339,31 @@ def _frames_differ(polar_a, steps_a, polar_b, steps_b, rho, phi, u_t, u_r, weigh
 @compiled
 def _frames_differ_slopes(polar_a, steps_a, polar_b, steps_b, rho, phi, u_t, u_r, weight, rho0,
                           phi0, dphi, drho, scale):
-    """:func:`_frames_differ` of one model, ``(S,)``, with its derivatives by ``u_t`` and
-    ``u_r``, ``(S,)`` each."""
+    """Derivatives of :func:`_frames_differ` of one model by ``u_t`` and ``u_r``, ``(S,)``
+    each."""
     samples = u_t.size
-    out = np.empty(samples)
     by_t = np.empty(samples)
     by_r = np.empty(samples)
     for s in range(samples):
         turn_deg = 0.5 * u_t[s] / rho[s] / _RAD_PER_DEG
         half_r = 0.5 * u_r[s]
-        a, a_row, a_col = _lookup_slopes(polar_a, steps_a, (phi[s] - turn_deg - phi0) / dphi,
-                                         (rho[s] - half_r - rho0) / drho)
-        b, b_row, b_col = _lookup_slopes(polar_b, steps_b, (phi[s] + turn_deg - phi0) / dphi,
-                                         (rho[s] + half_r - rho0) / drho)
+        a_row, a_col = _lookup_slopes(polar_a, steps_a, (phi[s] - turn_deg - phi0) / dphi,
+                                      (rho[s] - half_r - rho0) / drho)
+        b_row, b_col = _lookup_slopes(polar_b, steps_b, (phi[s] + turn_deg - phi0) / dphi,
+                                      (rho[s] + half_r - rho0) / drho)
         factor = (weight[s] if weight.size else 1.0) / scale
         # d row / d u_t = -+ 0.5 / (rho rad dphi); d col / d u_r = -+ 0.5 / drho
         row_step = 0.5 / rho[s] / _RAD_PER_DEG / dphi
-        out[s] = (a - b) * factor
         by_t[s] = -(a_row + b_row) * row_step * factor
         by_r[s] = -(a_col + b_col) * (0.5 / drho) * factor
-    return out, by_t, by_r
+    return by_t, by_r
 
 
 @compiled
 def _lookup_slopes(picture, steps, row, col):
-    """:func:`_lookup` and its derivatives by ``row`` and ``col`` (0 where clamped)."""
+    """Derivatives of :func:`_lookup` by ``row`` and ``col`` (0 where clamped)."""
     if math.isnan(row) or math.isnan(col):
-        return np.nan, np.nan, np.nan
+        return np.nan, np.nan
     rows, cols = picture.shape
     row_in = 0.0 <= row <= rows - 1.000001
     col_in = 0.0 <= col <= cols - 1.000001
@@ -372,11 +371,10 @@ def _lookup_slopes(picture, steps, row, col):
     col = min(max(0.0, col), cols - 1.000001)
     r0, c0 = int(row), int(col)
     fr, fc = row - r0, col - c0
-    left = picture[r0, c0] + fr * steps[r0, c0]
-    right = picture[r0, c0 + 1] + fr * steps[r0, c0 + 1]
     by_row = steps[r0, c0] + fc * (steps[r0, c0 + 1] - steps[r0, c0]) if row_in else 0.0
-    by_col = right - left if col_in else 0.0
-    return left + fc * (right - left), by_row, by_col
+    # the step from the left to the right column, at the row's fraction
+    by_col = picture[r0, c0 + 1] - picture[r0, c0] + fr * (steps[r0, c0 + 1] - steps[r0, c0])
+    return by_row, (by_col if col_in else 0.0)
 
 
 @compiled

@@ -143,13 +143,14 @@ class SideProblem:
         return np.concatenate([data, self.prior_terms(params, log_delta_prior)], axis=-1)
 
     def jacobian(self, params, shape="erf", geom=None, log_delta_prior=None) -> np.ndarray:
-        """Derivatives of :meth:`residuals` by the 11 parameters of one model, ``(S + 8, 11)``:
+        """Derivatives of :meth:`residuals` by the 11 parameters of one model, ``(S + 8, 11)``
+        (a joint band's shots' ``S`` rows each, one shot after the other, then the priors'):
         the motion's (:func:`~core.layer_model.side_flow_slopes`) through the frames'
-        lookups' (:meth:`~core.near_wall.NearWallBand.residual_slopes`), then the priors'."""
+        lookups' (:meth:`~core.near_wall.NearWallBand.residual_slopes`)."""
         params = np.asarray(params, dtype=np.float64)
         u_t, u_r, by_t, by_r = side_flow_slopes(geom or self.geom, params, self.u_t, self.u_r,
                                                 shape)
-        _, data_t, data_r = self.band.residual_slopes(u_t, u_r)
+        data_t, data_r = self.band.residual_slopes(u_t, u_r)
         shots = data_t.size // u_t.size  # a joint band's shots share the model's motion
         if shots > 1:
             by_t, by_r = np.tile(by_t, (shots, 1)), np.tile(by_r, (shots, 1))
@@ -269,7 +270,9 @@ def refine(problem: SideProblem, start, *, shape="erf", geom=None, log_delta_pri
 class _Evaluations:
     """``residuals`` and ``jacobian`` as least_squares evaluates them, the evaluations counted:
     scipy's trf asks for a Jacobian after every accepted step, but after its last allowed
-    evaluation (``max_nfev``) it stops without using it, so zeros stand in."""
+    evaluation (``max_nfev``) it stops without using it, so zeros stand in (a Jacobian costs
+    about one and a half evaluations; the fit's parameters and cost are the same to the last
+    bit, only the result's unused gradient and status differ)."""
 
     def __init__(self, residuals, jacobian, max_nfev: int):
         self.residuals, self.slopes, self.max_nfev = residuals, jacobian, max_nfev
