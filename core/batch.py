@@ -27,7 +27,7 @@ from pathlib import Path
 
 import numpy as np
 
-from core import WakelineError
+from core import STOP_SIGNALS, WakelineError
 from core.shot_result import ShotSettings
 from core.store import Session, in_exposure_order, read_frames
 from core.store.records import ReviewStatus
@@ -375,12 +375,6 @@ def default_workers(tasks: list[dict]) -> int:
     if free is None or not shapes:
         return cores
     return max(1, min(cores, int(free // max(peak_memory_bytes(s) for s in shapes))))
-
-
-#: Signals a terminal sends the whole process group (Ctrl-C, a closed terminal) or a job
-#: runner may; they are the writer's (``_worker_start``).
-STOP_SIGNALS = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP")
-                     if hasattr(signal, name))
 
 
 _announce = None  # in a worker: where it says which shot it starts (see _run_pool)

@@ -19,7 +19,7 @@ from app.cli.options import (
     whole_count,
 )
 from app.review.text import decisions_text
-from core import WakelineError
+from core import STOP_SIGNALS, WakelineError
 from core.store.companions import session_frame_files
 from core.store.files import writing
 
@@ -143,10 +143,6 @@ def run_import(args: argparse.Namespace) -> int:
     return 1 if report.problems else 0
 
 
-#: Signals that stop a run cleanly: Ctrl-C, a polite kill (shutdown, scheduler), the terminal
-#: closing. Each is handled alike; a second one aborts.
-STOP_SIGNALS = tuple(getattr(signal, name) for name in ("SIGINT", "SIGTERM", "SIGHUP")
-                     if hasattr(signal, name))
 
 
 class _StopFlag:
