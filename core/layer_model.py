@@ -123,6 +123,8 @@ def dividing_lines_px(radius_px: float, lines, phi_deg: np.ndarray,
     ``(K, N)``: the lines are traced together, row by row as one would be."""
     phi = np.asarray(phi_deg, dtype=np.float64)
     lines = np.array([[float(v) for v in line] for line in lines], dtype=np.float64)
+    if lines.size == 0:
+        return np.zeros((0, phi.size))
     return _traced_lines(radius_px, lines, math.radians(final_deg), _arc_steps(radius_px), phi)
 
 

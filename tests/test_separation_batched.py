@@ -457,6 +457,10 @@ def _traced_with_numpy(radius_px, phi_s, slope, relax_px, phi, final_deg):
     return np.where(phi > phi_s, np.interp(phi, along, gap), 0.0)
 
 
+def test_no_dividing_lines_trace_to_no_rows():
+    assert dividing_lines_px(110.0, [], np.linspace(0.0, 40.0, 9)).shape == (0, 9)
+
+
 def test_compiled_dividing_line_is_its_numpy_formulas():
     phi = np.linspace(-30.0, 80.0, 200)
     for line in [(5.0, 0.1, 80.0), (12.0, 0.6, 400.0), (-3.0, 0.0, 40.0), (40.0, 0.3, 20.0)]:
