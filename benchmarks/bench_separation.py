@@ -16,7 +16,7 @@ its reported uncertainty and the uncertainty's budget are written to a JSON-line
 tables can be remade without measuring again (``--from FILE``). The markdown tables go to stdout
 and, with ``--write``, to ``docs/separation_accuracy.md``.
 
-Run (about 5-10 minutes on 2 cores for the default 48 + 48 shots):
+Run (about 3-6 minutes on 2 cores for the default 48 + 48 shots):
 
     .venv/bin/python benchmarks/bench_separation.py --write
     .venv/bin/python benchmarks/bench_separation.py --from results.jsonl --write
