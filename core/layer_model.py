@@ -205,19 +205,13 @@ def side_flow(geom: SideGeometry, params, u_t_outer: np.ndarray, u_r_outer: np.n
 
 def _models_flow(geom: SideGeometry, table: np.ndarray, u_t_outer, u_r_outer, shape: str):
     """:func:`side_flow` of ``K`` models, ``(K, 11)``: what varies along the outline is worked
-    out per model and angle, ``(K, P)``, the rest sample by sample in :func:`_flow_at_samples`."""
-    phi_s, _, _, log_delta, spread, reverse, drop, thin, follow, k_t, k_r = (
-        table[:, i:i + 1] for i in range(len(PARAM_NAMES)))  # slope, relax: in the line
-    r = geom.radius_px
+    out per model and angle, ``(K, P)`` (:func:`_outline`), the rest sample by sample in
+    :func:`_flow_at_samples`."""
+    _, _, _, _, _, reverse, _, _, follow, k_t, k_r = (
+        table[:, i:i + 1] for i in range(len(PARAM_NAMES)))
     phi = geom.phi_grid
-    delta_s = np.array([[math.exp(v)] for v in log_delta[:, 0]])  # as one model's math.exp
-    behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r  # arc length past separation
-    lift, rise = _dividing_lines(geom, table[:, :3])
-    c = np.array([[centre_offset(float(v), shape)] for v in reverse[:, 0]])
-    ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / geom.upstream_deg)  # 0 at/behind phi_s
-    delta = delta_s * (1.0 - thin * ramp) + spread * behind
-    centre = lift + c * (delta - (1.0 - geom.outward_growth) * spread * behind) * (1.0 - drop * ramp)
-    wall_px = geom.wall_fraction * delta_s * (1.0 - thin * ramp)
+    along = _outline(geom, table, shape)
+    centre, delta, wall_px, rise = along.centre, along.delta, along.wall_px, along.rise
     # the error functions and exponentials are most of the cost: each is computed once for the
     # models that share what it depends on (the coarse search's candidates that differ only
     # in follow share the whole layer; many share the wall's no-slip length)
@@ -261,31 +255,21 @@ _LINE_STEP = 1e-6
 def _along(geom: SideGeometry, params: np.ndarray, shape: str):
     """One model's centre height, vorticity thickness, no-slip length and dividing-line rise
     along the outline, ``(P,)`` each, and their derivatives by the parameters, ``(P, 11)``
-    each (the same formulas as :func:`_models_flow`, differentiated)."""
-    phi_s, _, _, log_delta, spread, reverse, drop, thin, _, _, _ = params
-    r = geom.radius_px
+    each (the terms of :func:`_outline`, differentiated)."""
+    phi_s, _, _, _, spread, reverse, drop, thin, _, _, _ = params
     phi = geom.phi_grid
     n = len(PARAM_NAMES)
-    delta_s = math.exp(log_delta)
-    behind = np.clip(np.radians(phi - phi_s), 0.0, None) * r
-    d_behind = np.where(phi > phi_s, -math.radians(1.0) * r, 0.0)  # by phi_s
+    at = _outline(geom, params[None, :], shape)
+    delta_s, behind, ramp, c = float(at.delta_s[0, 0]), at.behind[0], at.ramp[0], at.c[0, 0]
+    thin_part, lifted, settle = at.thin_part[0], at.lifted[0], at.settle[0]
+    d_behind = np.where(phi > phi_s, -math.radians(1.0) * geom.radius_px, 0.0)  # by phi_s
     ahead = np.clip(phi_s - phi, 0.0, None)
-    ramp = -np.expm1(-ahead / geom.upstream_deg)
     d_ramp = np.where(phi < phi_s, np.exp(-ahead / geom.upstream_deg) / geom.upstream_deg, 0.0)
-    # the dividing line: traced at the model's (phi_s, slope, relax) and one step along each
+    # the dividing line: one step along each of (phi_s, slope, relax) from the model's
     line = params[:3]
     steps = _LINE_STEP * np.maximum(1.0, np.abs(line)) * np.where(line < 0.0, -1.0, 1.0)
-    lines = np.vstack([line, line + np.diag(steps)])
-    lifts, rises = _dividing_lines(geom, lines)
-    lift, rise = lifts[0], rises[0]
-    c = centre_offset(float(reverse), shape)
+    lifts, rises = _dividing_lines(geom, line + np.diag(steps))
     c_by_reverse = -1.0 / (_slope_of(-c, shape) * (1.0 + reverse) ** 2)
-    thin_part = 1.0 - thin * ramp
-    delta = delta_s * thin_part + spread * behind
-    lifted = delta - (1.0 - geom.outward_growth) * spread * behind  # what c multiplies
-    settle = 1.0 - drop * ramp
-    centre = lift + c * lifted * settle
-    wall_px = geom.wall_fraction * delta_s * thin_part
     i = {name: k for k, name in enumerate(PARAM_NAMES)}
     d_delta = np.zeros((phi.size, n))
     d_delta[:, i["phi_s"]] = -delta_s * thin * d_ramp + spread * d_behind
@@ -299,14 +283,15 @@ def _along(geom: SideGeometry, params: np.ndarray, shape: str):
     d_settle[:, i["phi_s"]] = -drop * d_ramp
     d_settle[:, i["drop"]] = -ramp
     d_centre = c * (d_lifted * settle[:, None] + lifted[:, None] * d_settle)
-    d_centre[:, :3] += ((lifts[1:] - lift) / steps[:, None]).T
+    d_centre[:, :3] += ((lifts - at.lift[0]) / steps[:, None]).T
     d_centre[:, i["reverse"]] += c_by_reverse * lifted * settle
     d_wall = geom.wall_fraction * d_delta
     d_wall[:, i["spread"]] = 0.0  # the no-slip length is the thickness at separation's share
     d_wall[:, i["phi_s"]] = -geom.wall_fraction * delta_s * thin * d_ramp
     d_rise = np.zeros((phi.size, n))
-    d_rise[:, :3] = ((rises[1:] - rise) / steps[:, None]).T
-    return centre, delta, wall_px, rise, d_centre, d_delta, d_wall, d_rise
+    d_rise[:, :3] = ((rises - at.rise[0]) / steps[:, None]).T
+    return (at.centre[0], at.delta[0], at.wall_px[0], at.rise[0], d_centre, d_delta, d_wall,
+            d_rise)
 
 
 def _slope_of(x: float, shape: str) -> float:
@@ -315,6 +300,43 @@ def _slope_of(x: float, shape: str) -> float:
         return math.exp(-math.pi * x * x)
     y = x * (16.0 / 15.0)
     return 1.0 - 2.0 * y * y + y**4 if abs(y) < 1.0 else 0.0
+
+
+@dataclass(frozen=True)
+class _Outline:
+    """What varies along the outline for ``K`` models, ``(K, P)`` each (``c`` ``(K, 1)``)."""
+
+    delta_s: np.ndarray  # vorticity thickness at separation
+    behind: np.ndarray  # arc length past separation (px)
+    ramp: np.ndarray  # the attached layer's settling, 0 at and behind separation
+    c: np.ndarray  # the dividing line's depth below the centre, in thicknesses
+    lift: np.ndarray  # the dividing line's height
+    rise: np.ndarray  # its dZ/ds
+    thin_part: np.ndarray  # the attached layer's thickness over delta_s
+    lifted: np.ndarray  # what c multiplies
+    settle: np.ndarray  # the centre's share kept toward the wall
+    delta: np.ndarray
+    centre: np.ndarray
+    wall_px: np.ndarray
+
+
+def _outline(geom: SideGeometry, table: np.ndarray, shape: str) -> _Outline:
+    """The layer's centre height, thickness, no-slip length and the dividing line along the
+    outline for the ``K`` models of ``table``, ``(K, 11)``, with the terms they are made of."""
+    phi_s, _, _, log_delta, spread, reverse, drop, thin = (
+        table[:, i:i + 1] for i in range(PARAM_NAMES.index("follow")))  # slope, relax: the line
+    phi = geom.phi_grid
+    delta_s = np.array([[math.exp(v)] for v in log_delta[:, 0]])  # as one model's math.exp
+    behind = np.clip(np.radians(phi - phi_s), 0.0, None) * geom.radius_px
+    lift, rise = _dividing_lines(geom, table[:, :3])
+    c = np.array([[centre_offset(float(v), shape)] for v in reverse[:, 0]])
+    ramp = -np.expm1(-np.clip(phi_s - phi, 0.0, None) / geom.upstream_deg)
+    thin_part = 1.0 - thin * ramp
+    delta = delta_s * thin_part + spread * behind
+    lifted = delta - (1.0 - geom.outward_growth) * spread * behind
+    settle = 1.0 - drop * ramp
+    return _Outline(delta_s, behind, ramp, c, lift, rise, thin_part, lifted, settle, delta,
+                    lift + c * lifted * settle, geom.wall_fraction * delta_s * thin_part)
 
 
 #: Parameters (columns) that shape the layer's profile (all but ``follow``, ``k_t``, ``k_r``),

@@ -218,7 +218,7 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
     named = tmp_path / "picks.csv"
     assert export_sheet(window, named) is None
     assert window.last_problem == (f"Shot sheet: {named}: the shot sheet is a PDF: name it "
-                                   ".pdf; nothing written")
+                                   ".pdf (not picks.csv); nothing written")
     assert not named.exists()
 
 

@@ -143,8 +143,6 @@ def run_import(args: argparse.Namespace) -> int:
     return 1 if report.problems else 0
 
 
-
-
 class _StopFlag:
     """The first stop signal asks the run to stop after the shots in hand (they are saved); a
     second one aborts (the shots in hand are dropped, everything saved so far is kept)."""

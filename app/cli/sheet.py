@@ -80,14 +80,14 @@ def _statuses(text: str):
 
 def run_sheet(args: argparse.Namespace) -> int:
     from app.sheet import make_sheet
+    from app.sheet.content import sheet_name_problem
     from app.sheet.document import ColumnError
     from core.store import Session
 
     with Session.open(args.session, writable=False) as session:
         check_outputs([args.output], session.path, session_frame_files(session))
-        if not str(args.output).lower().endswith(".pdf"):  # not a PDF under another's name
-            raise UsageError(f"argument -o/--output: the shot sheet is a PDF: name it .pdf "
-                             f"(not {args.output.name})")
+        if problem := sheet_name_problem(args.output):
+            raise UsageError(f"argument -o/--output: {problem}")
         ensembles = None
         if args.ensemble:
             from app.cli.conditions import condition_ensembles

@@ -57,6 +57,15 @@ def parse_statuses(text: str | None) -> tuple[str, ...] | None:
     return tuple(s if s == BACK_TO_REVIEW else ReviewStatus(s) for s in wanted)
 
 
+def sheet_name_problem(path) -> str | None:
+    """Why the shot sheet cannot be written under ``path``'s name (a PDF named as another kind
+    of file, a table's say), or None."""
+    name = Path(path).name
+    if name.lower().endswith(".pdf"):
+        return None
+    return f"the shot sheet is a PDF: name it .pdf (not {name})"
+
+
 def select_records(session, shot_ids=None, statuses=None) -> list:
     """Records of the shots on the sheet, in session order."""
     records = list(session.values())

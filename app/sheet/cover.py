@@ -84,6 +84,7 @@ def _paint_status_boxes(p, x: float, y: float, w: float, records, stale: int = 0
     processed with other settings than the session's now)."""
     counts = status_counts(records)
     processing = process_counts(records)
+    sent_back = sum(status_text(r) == BACK_TO_REVIEW for r in records)
     box_w = (w - 3 * 3) / 4
     for i, status in enumerate(ReviewStatus):
         bx = x + i * (box_w + 3)
@@ -92,7 +93,6 @@ def _paint_status_boxes(p, x: float, y: float, w: float, records, stale: int = 0
         p.fillRect(rect_mm(bx, y, 1.6, 15), qcolor(colour))
         text(p, rect_mm(bx + 4, y + 1.2, box_w - 5, 8), str(counts.get(status, 0)), 16, bold=True,
              colour=colour)
-        sent_back = sum(status_text(r) == BACK_TO_REVIEW for r in records)
         label = (f"{status}, {sent_back} sent back" if status == ReviewStatus.TO_REVIEW
                  and sent_back else str(status))
         text(p, rect_mm(bx + 4, y + 9.2, box_w - 5, 5), label, 8.5, colour=colours.INK)

@@ -29,6 +29,7 @@ from app.sheet.content import (
     SheetReport,
     select_records,
     selection_text,
+    sheet_name_problem,
     shot_page_count,
 )
 from app.sheet.cover import paint_cover
@@ -95,8 +96,8 @@ def make_sheet(
     if per_page not in PER_PAGE_CHOICES:
         raise WakelineError(f"--per-page: must be one of {PER_PAGE_CHOICES}, not {per_page}")
     refuse_session_output(Path(out_path), session)  # the window's export as the command's
-    if Path(out_path).suffix.lower() != ".pdf":  # not a PDF under another file's name
-        raise WakelineError(f"{out_path}: the shot sheet is a PDF: name it .pdf; nothing written")
+    if problem := sheet_name_problem(out_path):
+        raise WakelineError(f"{out_path}: {problem}; nothing written")
     ensure_gui_application()
     all_records = list(session.values())
     records = select_records(session, shot_ids, statuses)
