@@ -103,6 +103,9 @@ def test_the_ensemble_view_of_a_condition(main_window, make_session, qtbot):
 
     panel = window.statistics
     condition = panel.conditions[_row_of(panel, "seam_deg -10")]
+    # computed on request only: until then the cell is empty and says how to get it
+    before = panel.table.item(0, panel.table.columnCount() - 1)
+    assert before.text() == "" and "press Ensemble view" in before.toolTip()
     assert start_ensemble(window, condition) is not None
     qtbot.waitUntil(lambda: window.job is None, timeout=120_000)
     dialog = window.ensemble_dialog

@@ -46,6 +46,10 @@ from core.agreement import agreement_lines, compare_reviews, latest_layer
 from core.conditions import CONFIDENCE, grouping_columns
 
 ENSEMBLE_HEADER = "ensemble"
+#: What an ensemble cell without a result says (it is computed on request only: it correlates
+#: every shot of the condition again).
+ENSEMBLE_NOT_YET = ("not computed for this session yet: select the condition and press "
+                    "Ensemble view")
 GROUPING_WIDTH_PX = 200  # the grouping button's text at most
 
 
@@ -99,6 +103,9 @@ class StatisticsPanel(QWidget):
         self.method_label.setWordWrap(True)  # more lines in a narrow window, not a wider one
         self.table = QTableWidget(0, len(TABLE_HEADER) + 1, self)
         self.table.setHorizontalHeaderLabels([*TABLE_HEADER, ENSEMBLE_HEADER])
+        self.table.horizontalHeaderItem(len(TABLE_HEADER)).setToolTip(
+            "the ensemble's pick (one layer fitted to all the condition's launches), computed "
+            "on request: select a condition and press Ensemble view")
         self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
@@ -159,7 +166,7 @@ class StatisticsPanel(QWidget):
                      self._ensemble_cell(condition)]
             for col, text in enumerate(cells):
                 item = QTableWidgetItem(text)
-                item.setToolTip(_shots_tip(condition) if col == 0 else text)
+                item.setToolTip(_shots_tip(condition) if col == 0 else text or ENSEMBLE_NOT_YET)
                 self.table.setItem(row, col, item)
             if selected is not None and condition.label == selected.label:
                 self.table.selectRow(row)
