@@ -50,7 +50,7 @@ def launches_of(family: str, shots: int, seed: int, radius: float):
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--family", choices=("kinematic", "physical"), default="kinematic")
     parser.add_argument("--conditions", type=int, default=6)
     parser.add_argument("--shots", type=int, default=6)

@@ -343,7 +343,7 @@ def magnified(family: str, kwargs: dict, factor: float) -> dict:
 
 
 def main() -> None:
-    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--shots", type=int, default=48, help="shots per family")
     parser.add_argument("--seed", type=int, default=TABLE_SEED,
                         help=f"seed of the families' draw (any other than {TABLE_SEED}, the "
