@@ -100,6 +100,10 @@ class NoteEdit(QPlainTextEdit):
         super().keyPressEvent(event)
 
 
+#: The panel's least width (px); wider where its numbers need it (``_keep_readable``).
+MIN_WIDTH_PX = 280
+
+
 class ReadoutPanel(QWidget):
     """Right panel. Review buttons run the window's actions (same shortcuts as the menu)."""
 
@@ -142,7 +146,7 @@ class ReadoutPanel(QWidget):
         head.addWidget(self.status_icon)
         head.addWidget(self.status_label)
 
-        content = QWidget(self)
+        content = self._content = QWidget(self)
         box = QVBoxLayout(content)
         box.setContentsMargins(6, 6, 6, 6)
         box.addLayout(head)
@@ -156,7 +160,7 @@ class ReadoutPanel(QWidget):
         self.meta_form.setLabelAlignment(Qt.AlignmentFlag.AlignLeft)
         box.addWidget(self.meta_group)
         box.addStretch(1)
-        scroll = QScrollArea(self)
+        scroll = self._scroll = QScrollArea(self)
         scroll.setWidgetResizable(True)
         scroll.setFrameShape(QFrame.Shape.NoFrame)
         scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
@@ -167,7 +171,16 @@ class ReadoutPanel(QWidget):
         # the decision and the note stay in sight below the scrolled readout, however low the
         # window
         outer.addWidget(self._review_group())
-        self.setMinimumWidth(280)
+        self.setMinimumWidth(MIN_WIDTH_PX)
+
+    def _keep_readable(self) -> None:
+        """However narrow the window, the panel keeps the width its numbers need (the angles'
+        two columns, the title and status): a low window scrolls the readout, but nothing is
+        cut off at its side (the picture gives up the room instead)."""
+        need = (self._content.minimumSizeHint().width()
+                + self._scroll.verticalScrollBar().sizeHint().width()
+                + sum(self.layout().getContentsMargins()[::2]))
+        self.setMinimumWidth(max(MIN_WIDTH_PX, need))
 
     def _separation_group(self) -> QGroupBox:
         # the convention in the header row, the rest on hovering: a low window keeps its room
@@ -305,6 +318,7 @@ class ReadoutPanel(QWidget):
         self._show_flight(record)
         self._show_metadata(record.metadata)
         self._show_review(record)
+        self._keep_readable()
 
     def show_live(self, side: str, angle_deg: float) -> None:
         """While a mark is dragged: the final cell and the difference follow the live angle."""
@@ -355,6 +369,7 @@ class ReadoutPanel(QWidget):
         self.reason.clear()
         self._set_note("")
         self.last_edit.clear()
+        self._keep_readable()
 
     def _show_problem(self, record) -> None:
         if record.state == ProcessState.FAILED:
