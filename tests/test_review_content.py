@@ -144,6 +144,11 @@ def test_a_table_without_a_side_s_final_angles_is_refused_whole(tmp_path):
     path.write_text("shot,review_status,upper_final_deg\nS0,adjusted,12.5\n", encoding="utf-8")
     with pytest.raises(WakelineError, match=r"theirs.csv: no column 'lower_final_deg': the "):
         read_review_csv(path, ["S0"])
+    # nor is a column of wakeline's own table: its proposals are not a colleague's final angles
+    path.write_text("shot,review_status,upper_proposed_deg,lower_final_deg\nS0,accepted,12.5,"
+                    "8.0\n", encoding="utf-8")
+    with pytest.raises(WakelineError, match=r"theirs.csv: no column 'upper_final_deg': the "):
+        read_review_csv(path, ["S0"])
     # with no decided shot there is nothing to lose
     path.write_text("shot,review_status\nS1,to review\n", encoding="utf-8")
     assert read_review_csv(path, ["S0", "S1"]).picks["S1"].status == "to review"

@@ -18,7 +18,7 @@ from core import WakelineError
 from core.geometry import SIDES
 from core.store.files import json_ready, near_miss_hint, now_utc, read_csv_table
 from core.store.records import ReviewStatus, damage_reason
-from core.store.table import FORMULA_STARTS
+from core.store.table import FORMULA_STARTS, RESULT_COLUMNS
 
 #: Layout version of the journal records (and index keys) written here; a reader refuses newer.
 LAYOUT = 1
@@ -167,7 +167,10 @@ def read_review_csv(path: Path, shot_ids, name: str | None = None) -> ReviewLaye
                        for p in picks.values()):
         raise WakelineError(
             f"{path}: no column " + " or ".join(repr(c) for c in lacking)
-            + near_miss_hint(lacking, [n for n in header if n not in REVIEW_COLUMNS.values()])
+            # a column of wakeline's own table (its proposals, say) is no misspelling: taking
+            # the proposals for a colleague's final angles would import the wrong numbers
+            + near_miss_hint(lacking, [n for n in header if n not in REVIEW_COLUMNS.values()
+                                       and n not in RESULT_COLUMNS])
             + ": the decided shots' final angles would be lost; "
             "nothing was imported")
     if not name:

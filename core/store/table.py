@@ -31,7 +31,7 @@ def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
     extra = sorted({k for r in records for k in r.metadata}
                    - set(NUMBER_COLUMNS) - set(TEXT_COLUMNS) - {"shot"})
     meta_cols = list(NUMBER_COLUMNS) + list(TEXT_COLUMNS) + extra
-    header = ["shot", *meta_cols, *_RESULT_COLUMNS]
+    header = ["shot", *meta_cols, *RESULT_COLUMNS]
     warned = shot_warnings(records)
     rows = [[r.shot_id, *(cell_text(r.metadata.get(c)) for c in meta_cols), *_result_cells(r),
              "yes" if session.needs_processing(r.shot_id) else "no",
@@ -55,7 +55,7 @@ def shot_warnings(records) -> dict[str, list[str]]:
     return warned
 
 
-_RESULT_COLUMNS = (
+RESULT_COLUMNS = (
     "state", "failure", "flight_direction_deg", "flight_speed_m_s", "scale_used_mm_per_px",
     "reynolds_number",
     "upper_proposed_deg", "upper_uncertainty_deg", "lower_proposed_deg", "lower_uncertainty_deg",
