@@ -383,3 +383,11 @@ def test_frames_the_camera_wrote_the_other_way_round_are_said_so_in_the_manifest
     report = import_folder(src, tmp_path / "t.h5")
     assert report.imported == ["S0"]
     assert any("frames_swapped 'maybe' is not yes or no" in p for p in report.problems)
+
+
+def test_the_values_that_differ_leave_out_a_column_added_empty():
+    from core.store.importing import _differences
+
+    # a column the manifest gained with no value in it is no change to report
+    assert _differences({"dt_s": 6e-05, "ball_type": None},
+                        {"dt_s": 5e-05, "ball_type": "", "air_temp_c": ""}) == "dt_s 6e-05 -> 5e-05"

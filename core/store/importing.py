@@ -267,7 +267,9 @@ def _given(metadata: dict) -> dict:
 
 
 def _differences(stored: dict, given: dict, shown: int = 3) -> str:
-    """The values that differ, in words: ``dt_s 6e-05 -> 6.2e-05, ...``."""
+    """The values that differ, in words: ``dt_s 6e-05 -> 6.2e-05, ...`` (an empty cell and a
+    missing column are alike)."""
+    stored, given = _given(stored), _given(given)
     keys = sorted((k for k in set(stored) | set(given) if stored.get(k) != given.get(k)),
                   key=lambda k: (k not in PER_SHOT_SETTINGS, k))  # what is measured with first
     words = [f"{k} {_value(stored.get(k))} -> {_value(given.get(k))}" for k in keys[:shown]]
