@@ -62,6 +62,13 @@ def test_a_filter_word_it_cannot_read_says_so_and_matches_nothing(records):
     assert found == [] and "no column 'sped_m_s'" in problem
     found, problem = _found("seam_deg:10", records)
     assert found == [] and "seam_deg:low..high" in problem
+    # a comparison with a word that is not a number
+    found, problem = _found("seam_deg>abc", records)
+    assert found == [] and problem == "seam_deg>abc: 'abc' is not a number"
+    found, problem = _found("seam_deg:0..x", records)
+    assert found == [] and problem == "seam_deg:0..x: a range's ends are numbers"
+    # = and != compare words too
+    assert _found("ball_type=cricket", records)[1] == ""
 
 
 def test_a_new_measured_value_is_one_line(records):

@@ -294,6 +294,10 @@ def parse_filter(text: str, records) -> ShotQuery:
         name, op, value = match.groups()
         if op == ":" and ".." not in value:
             query.problem = query.problem or f"{word}: a range is written {name}:low..high"
+        elif op == ":" and None in map(as_number, value.split("..", 1)):
+            query.problem = query.problem or f"{word}: a range's ends are numbers"
+        elif op in ("<", ">", "<=", ">=") and as_number(value) is None:
+            query.problem = query.problem or f"{word}: '{value}' is not a number"
         elif name not in known and not ("." in name and _in_some_summary(name, records)):
             query.problem = query.problem or (
                 f"no column '{name}' (try {', '.join(c.name for c in MEASURED[:3])}, "
