@@ -39,6 +39,9 @@ def read_frame_pair(path_a: str | Path, path_b: str | Path | None = None) -> tup
     else:
         frame_a = _single_page(Path(path_a))
         frame_b = _single_page(Path(path_b))
+        if Path(path_a).samefile(path_b):  # both read: both exist
+            raise WakelineError(f"{path_b}: the same file as frame A ({path_a}); a frame pair "
+                                "is two exposures")
         name_a, name_b = str(path_a), str(path_b)
     if frame_a.shape != frame_b.shape:
         raise WakelineError(

@@ -107,8 +107,17 @@ def test_colour_refused(tmp_path):
     rgb = np.zeros((64, 80, 3), np.uint8)
     rgb[..., 0] = 200  # red: not a grey level
     skio.imsave(tmp_path / "c.png", rgb, check_contrast=False)
+    skio.imsave(tmp_path / "d.png", rgb, check_contrast=False)
     with pytest.raises(WakelineError, match="colour image"):
-        read_frame_pair(tmp_path / "c.png", tmp_path / "c.png")
+        read_frame_pair(tmp_path / "c.png", tmp_path / "d.png")
+
+
+def test_one_file_given_as_both_frames_is_refused(tmp_path):
+    # a slip of the shell's history or completion: the pair would show no motion at all
+    tifffile.imwrite(tmp_path / "a.tif", _frame())
+    with pytest.raises(WakelineError, match=r"a.tif: the same file as frame A \(.*a.tif\); a "
+                                            r"frame pair is two exposures$"):
+        read_frame_pair(tmp_path / "a.tif", tmp_path / "." / "a.tif")
 
 
 def test_grey_levels_stored_as_colour_are_read_as_the_grey_frame(tmp_path):

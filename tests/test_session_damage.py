@@ -189,6 +189,8 @@ def test_a_damaged_result_is_reported_for_its_shot_and_reprocessing_heals_it(ses
         text = str(info.value)
         assert text.startswith("shot S0: ") and "damaged" in text and "process" in text
         assert "\n" not in text
+        # it still counts as processed, so the message says how a run takes it anyway
+        assert "--force --shots S0" in text and not s.needs_processing("S0")
         assert s.load_result("S1").field.dx_px.shape == (20, 30)  # the rest is usable
         s.set_pick("S0", status="unusable", reason="seen damaged")  # and can be saved
         s.set_pick("S2", status="accepted")

@@ -119,7 +119,9 @@ class ReviewActions:
             except (WakelineError, OSError, KeyError) as exc:  # a damaged stored result
                 # log text only: a kept exception would hold this window through its traceback
                 log.warning("shot %s: stored result unreadable: %s", record.shot_id, str(exc))
-                messages.append(f"shot {record.shot_id}: stored result cannot be read ({exc}); "
+                # the store's own words name the shot and say how to measure it again
+                messages.append(str(exc) if isinstance(exc, WakelineError) else
+                                f"shot {record.shot_id}: stored result cannot be read ({exc}); "
                                 "reprocess it (Ctrl+Shift+P)")
             if record.state == ProcessState.FAILED and result is not None:
                 messages.append("Shown: the last run that succeeded.")

@@ -108,6 +108,13 @@ def _change_words(entry: dict) -> str:
             "review_layer": "the imported review"}.get(entry["op"], "the processing settings")
 
 
+
+def _again_by_force(shot_id: str) -> str:
+    """How to measure a shot again whose stored result cannot be read: it still counts as
+    processed, so only a forced run takes it."""
+    return (f"process the shot again by force (wakeline process SESSION --force --shots "
+            f"{shot_id}; in the window: Process > Reprocess this shot)")
+
 class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
     """An open session. Use ``Session.create`` / ``Session.open``, or ``with Session.open(p):``.
 
@@ -385,13 +392,13 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
             except FileNotFoundError:
                 if not self.read_only:
                     raise WakelineError(f"shot {shot_id}: result arrays lost (pending file "
-                                        f"{place} missing); process the shot again") from None
+                                        f"{place} missing); {_again_by_force(shot_id)}") from None
                 # a reader: the writer has compacted since and removed the pending file
                 raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
                                     "reopen the session") from None
             except STORAGE_ERRORS as exc:
                 raise WakelineError(f"shot {shot_id}: result stored in {file} is damaged "
-                                    f"({damage_reason(exc)}); process the shot again") from None
+                                    f"({damage_reason(exc)}); {_again_by_force(shot_id)}") from None
 
     def history(self, shot_id: str) -> list[Pick]:
         """Every pick edit of a shot, oldest first."""
