@@ -112,9 +112,15 @@ def test_the_help_of_settings_says_both_ways(capsys):
     (["pair", "a.tif", "b.tif", "--air-temp", "293"],
      "293 deg C is outside -40 to 60 deg C, the air of a lab or a range (in kelvin? give deg C)"),
     (["sheet", "{s}", "-o", "x.pdf", "--column", "operator"],
-     "argument --column: 'operator' is not a numeric column of this session"),
+     "argument --column: 'operator' is not a numeric column of this session (choose"),
+    # a misspelt column: the likely one is named, as import names a manifest's
+    (["conditions", "{s}", "--by", "seam_dg"],
+     "argument --by: no column 'seam_dg' with values in s.h5 (is 'seam_deg' meant?)"),
+    (["sheet", "{s}", "-o", "x.pdf", "--column", "seam_dg"],
+     ("argument --column: 'seam_dg' is not a numeric column of this session (is 'seam_deg' "
+      "meant?)")),
 ], ids=["scale", "diameter", "normalise", "status", "by", "ensemble", "air temperature", "dt",
-        "kelvin", "column"])
+        "kelvin", "column", "by misspelt", "column misspelt"])
 def test_bad_option_values_exit_2(session_path, argv, said, capsys):
     argv = [a.replace("{s}", str(session_path)) for a in argv]
     line = usage_error(argv, capsys)

@@ -102,8 +102,11 @@ def grouping_of(session, by: list[str] | None) -> list[str]:
     available = grouping_columns(records)
     unknown = [c for c in by if c not in available]
     if unknown:
-        raise UsageError(f"argument --by: no column {unknown[0]!r} with values in {session.path.name} "
-                            f"(columns: {', '.join(available) or 'none'})")
+        from core.store.files import near_miss_hint
+
+        raise UsageError(f"argument --by: no column {unknown[0]!r} with values in "
+                         f"{session.path.name}{near_miss_hint(unknown[:1], available)} "
+                         f"(columns: {', '.join(available) or 'none'})")
     return by
 
 

@@ -109,9 +109,12 @@ def make_sheet(
         # the window's names for the pseudo-columns: speed_m_s (its filter), shot_order
         column = {"speed_m_s": MEASURED_SPEED, "shot_order": SHOT_ORDER}.get(column, column)
     if column not in numeric_columns(records):
+        from core.store.files import near_miss_hint
+
+        choices = numeric_columns(records)
         raise ColumnError(
-            f"--column: {column!r} is not a numeric column of this session "
-            f"(choose from {', '.join(numeric_columns(records))})"
+            f"--column: {column!r} is not a numeric column of this session"
+            f"{near_miss_hint([column], choices)} (choose from {', '.join(choices)})"
         )
     if vorticity_limit_1_s == SESSION_RANGE:
         vorticity_limit_1_s = shared_limit(_vorticity_fields(session, records))
