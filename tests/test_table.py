@@ -54,6 +54,9 @@ def test_table_command_writes_one_row_per_shot(session_path, tmp_path, capsys):
     assert s0["upper_uncertainty_deg"] == "1.5" and s0["wake_deflection_deg"] == "4"
     assert s0["wake_deflection_uncertainty_deg"] == "1.2"
     assert s0["seam_deg"] == "0" and s0["dt_s"] == "2e-05" and s0["notes"] == "shot 0"
+    # each side's quality, as the window's list and the sheet give it; none without a proposal
+    assert (s0["upper_quality"], s0["lower_quality"]) == ("0.8", "0.7")
+    assert (s2["upper_quality"], s3["upper_quality"]) == ("", "")
 
 
 def test_an_unusable_shot_reports_no_wake(session_path, tmp_path, capsys):
@@ -76,7 +79,8 @@ def test_units_are_in_the_column_names(session_path):
     with Session.open(session_path, writable=False) as s:
         header, rows = session_table_rows(s)
     assert len(rows) == 4 and all(len(r) == len(header) for r in rows)
-    numeric = [h for h in header if h.startswith(("upper_", "lower_", "flight_"))]
+    numeric = [h for h in header if h.startswith(("upper_", "lower_", "flight_"))
+               and not h.endswith("_quality")]  # 0-1, no unit
     assert all(h.endswith(("_deg", "_m_s")) for h in numeric)
 
 
@@ -149,7 +153,7 @@ def test_the_table_and_the_sheet_say_which_shots_need_processing_again(tmp_path)
             "wakeline: process again), 1 unprocessed") in cover
 
 
-def test_warnings_and_checks_are_in_the_last_column(tmp_path):
+def test_warnings_and_checks_have_a_column_of_their_own(tmp_path):
     """What the window's readout and the sheet show beside a shot's numbers reaches the table:
     the measurement's warnings and the checks of its ball and flight against the manifest."""
     src = write_shot_folder(tmp_path / "src", 2)
@@ -164,8 +168,9 @@ def test_warnings_and_checks_are_in_the_last_column(tmp_path):
                 result.warnings = ["frames look swapped (the ball moves against the air)"]
             s.save_result(shot_id, result)
         header, rows = session_table_rows(s)
-    assert header[-1] == "warnings" and header[-2] == "needs_processing"
-    cells = {row[0]: row[-1] for row in rows}
+    assert header[-3:] == ["warnings", "upper_quality", "lower_quality"]
+    assert header[-4] == "needs_processing"
+    cells = {row[0]: row[-3] for row in rows}
     assert cells["S0"] == "frames look swapped (the ball moves against the air)"
     # 30 m/s measured against 50 nominal (core.plausibility's speed check)
     assert "nominal" in cells["S1"] and "frames look swapped" not in cells["S1"]

@@ -35,7 +35,7 @@ def session_table_rows(session) -> tuple[list[str], list[list[str]]]:
     warned = shot_warnings(records)
     rows = [[r.shot_id, *(cell_text(r.metadata.get(c)) for c in meta_cols), *_result_cells(r),
              "yes" if session.needs_processing(r.shot_id) else "no",
-             cell_text("; ".join(warned.get(r.shot_id, ())))]
+             cell_text("; ".join(warned.get(r.shot_id, ()))), *_qualities(r)]
             for r in records]
     return header, rows
 
@@ -63,7 +63,7 @@ RESULT_COLUMNS = (
     "wake_deflection_uncertainty_deg", "wake_state",
     "review_status", "unusable_reason", "review_note", "reviewed_by", "reviewed_utc",
     "processed_utc", "software_version", "note_by", "note_utc", "proposal_notes",
-    "needs_processing", "warnings",
+    "needs_processing", "warnings", "upper_quality", "lower_quality",
 )
 ANGLE_DECIMALS = 2
 #: Significant digits of the measured speed, the scale used and the Reynolds number: beyond
@@ -91,6 +91,15 @@ def _result_cells(r: ShotRecord) -> list[str]:
         _proposal_notes(summary),  # the columns before it keep their places
     ]
     return [cell_text(v) for v in values]
+
+
+def _qualities(r: ShotRecord) -> list[str]:
+    """Each side's proposal quality (0-1, two decimals; empty without a proposal)."""
+    if r.summary is None:
+        return ["", ""]
+    values = [r.summary.side(side).quality if r.summary.side(side).angle_deg is not None
+              else None for side in SIDES]
+    return [cell_text(None if v is None else round(float(v), 2)) for v in values]
 
 
 def _proposal_notes(summary) -> str | None:
