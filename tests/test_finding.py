@@ -153,3 +153,15 @@ def test_unprocessed_shots_read_not_processed(main_window, make_session, qtbot):
     assert panel.visible_ids() == []
     panel.status_filter.setCurrentText("not processed")
     assert panel.visible_ids() == ["s01", "s02"]
+
+
+def test_a_manifest_column_s_header_gives_its_unit():
+    from app.review.columns import metadata_column
+
+    headers = {key: metadata_column(key).header for key in (
+        "seam_deg", "dt_s", "air_temp_c", "scale_mm_per_px", "ball_diameter_mm",
+        "speed_nominal_m_s", "spin_rpm", "ball_type")}
+    assert headers == {"seam_deg": "seam °", "dt_s": "dt s", "air_temp_c": "air temp °C",
+                       "scale_mm_per_px": "scale mm/px", "ball_diameter_mm": "ball diameter mm",
+                       "speed_nominal_m_s": "speed nominal m/s", "spin_rpm": "spin rpm",
+                       "ball_type": "ball type"}

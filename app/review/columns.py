@@ -189,8 +189,8 @@ def number_text(value: float) -> str:
     return f"{value:.4g}" if abs(value) < 1e3 else f"{value:.0f}"
 
 
-UNIT_SUFFIXES = (("_deg", " °"), ("_m_s", " m/s"), ("_mm", " mm"), ("_rpm", " rpm"),
-                 ("_s", " s"))
+UNIT_SUFFIXES = (("_deg", " °"), ("_m_s", " m/s"), ("_mm_per_px", " mm/px"), ("_mm", " mm"),
+                 ("_rpm", " rpm"), ("_temp_c", " temp °C"), ("_s", " s"))
 
 
 def metadata_column(key: str) -> Column:
