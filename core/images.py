@@ -188,7 +188,9 @@ def _checked_frame(path: Path, page: np.ndarray) -> np.ndarray:
             f"{path}: colour image ({page.shape[-1]} channels); export the camera's single-channel frames"
         )
     if page.ndim != 2:
-        raise WakelineError(f"{path}: expected a 2-D greyscale frame, got shape {page.shape}")
+        raise WakelineError(f"{path}: an image of {' x '.join(map(str, page.shape))} values, "
+                            "not one greyscale frame (several planes in one page?); give a pair "
+                            "as two files or a two-page TIFF")
     if page.dtype.kind not in "uif":  # 1-bit (bool), complex, ...: not a camera's grey levels
         what = "a 1-bit (black and white)" if page.dtype.kind == "b" else f"a {page.dtype}"
         raise WakelineError(f"{path}: {what} image; export the camera's greyscale frames "

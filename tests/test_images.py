@@ -112,6 +112,15 @@ def test_colour_refused(tmp_path):
         read_frame_pair(tmp_path / "c.png", tmp_path / "d.png")
 
 
+def test_several_planes_in_one_page_are_named_in_plain_words(tmp_path):
+    # a stack of frames saved as one multi-sample page (tifffile's planar storage)
+    tifffile.imwrite(tmp_path / "stack.tif", np.stack([_frame()] * 3),
+                     photometric="minisblack", planarconfig="separate")
+    with pytest.raises(WakelineError, match=r"stack.tif: an image of 3 x \d+ x \d+ values, not "
+                                            r"one greyscale frame"):
+        read_frame_pair(tmp_path / "stack.tif")
+
+
 def test_one_file_given_as_both_frames_is_refused(tmp_path):
     # a slip of the shell's history or completion: the pair would show no motion at all
     tifffile.imwrite(tmp_path / "a.tif", _frame())
