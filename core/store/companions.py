@@ -88,7 +88,10 @@ def check_replaceable(path: Path) -> None:
                               "only read it; copy it to a writable folder to edit it")
     mode = stat.S_IMODE(path.stat().st_mode)
     if not mode & 0o222 or not os.access(path, os.W_OK):
-        raise SessionReadOnly(f"{path}: the session file is read-only (mode {mode:o}); the window "
+        # the mode says why only where it lacks write permission (an immutable file, a share
+        # mounted read-only for this user, an access list can refuse a writable mode)
+        why = f"mode {mode:o}" if not mode & 0o222 else "this user may not write it"
+        raise SessionReadOnly(f"{path}: the session file is read-only ({why}); the window "
                               "opens it read-only, and table, sheet and conditions only read "
                               "it; make it writable to edit it")
 
