@@ -99,7 +99,7 @@ def test_each_bad_value_has_its_own_message(tmp_path, row, message):
     (src / "shots.csv").write_text(f"{HEADER}\n{row}\n")
     report = import_folder(src, tmp_path / "s.h5")
     assert report.imported == [] and len(report.problems) == 1
-    assert report.problems[0].startswith("shots.csv line 2")
+    assert report.problems[0].startswith(f"{src / 'shots.csv'} line 2")
     assert message in report.problems[0]
 
 
@@ -121,7 +121,7 @@ def test_unreadable_frame_and_duplicate_row_are_reported(tmp_path):
     report = import_folder(src, tmp_path / "s.h5")
     assert report.imported == ["S0"]
     assert any("line 3 (shot S1)" in p and "colour image" in p for p in report.problems)
-    assert "shots.csv line 4: shot id S0 is given twice (also line 2)" in report.problems
+    assert f"{src / 'shots.csv'} line 4: shot id S0 is given twice (also line 2)" in report.problems
 
 
 def test_a_1_bit_frame_is_one_row_s_problem_and_the_rows_after_it_are_imported(tmp_path):
@@ -189,9 +189,10 @@ def test_quoted_notes_with_commas_and_line_breaks(tmp_path):
         f'{HEADER}\nS0,2e-05,0.08,71.6,5,"seam up, new ball\nsecond line"\nS1,x,0.08,71.6,5,\n')
     report = import_folder(src, tmp_path / "s.h5")
     assert report.imported == ["S0"]
-    assert report.problems[0].startswith("shots.csv line 4 (shot S1)")  # physical line
+    assert report.problems[0].startswith(f"{src / 'shots.csv'} line 4 (shot S1)")  # physical line
     (src / "shots.csv").write_text(f'{HEADER}\nS0,x,0.08,71.6,5,"two\nlines"\n')
-    assert import_folder(src, tmp_path / "t.h5").problems[0].startswith("shots.csv line 2 ")
+    assert import_folder(src, tmp_path / "t.h5").problems[0].startswith(
+        f"{src / 'shots.csv'} line 2 ")
     with Session.open(tmp_path / "s.h5", writable=False) as s:
         assert s["S0"].metadata["notes"] == "seam up, new ball\nsecond line"
 

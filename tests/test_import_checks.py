@@ -156,7 +156,7 @@ def test_a_shot_id_given_twice_is_named_as_such(tmp_path, repeat, capsys):
     assert main(["import", str(src), str(tmp_path / "s8.h5")]) == 1
     err = capsys.readouterr().err
     first, remedy = err.splitlines()
-    assert first == "wakeline: shots.csv line 4: shot id S1 is given twice (also line 3)"
+    assert first == f"wakeline: {src / 'shots.csv'} line 4: shot id S1 is given twice (also line 3)"
     assert remedy.startswith("note: correct the rows named in ")
     with Session.open(tmp_path / "s8.h5", writable=False) as s:
         assert list(s) == ["S0", "S1"] and s["S1"].metadata["dt_s"] == 2e-5

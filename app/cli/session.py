@@ -126,7 +126,8 @@ def run_import(args: argparse.Namespace) -> int:
         print(f"wakeline: {problem}", file=sys.stderr)
     for note in report.notes:
         print(f"note: {note}", file=sys.stderr)
-    bad_rows = [p for p in report.problems if p.startswith(f"{MANIFEST_NAME} line")]
+    bad_rows = [p for p in report.problems
+                if p.startswith(f"{args.src_dir / MANIFEST_NAME} line")]
     if len(bad_rows) > len(report.differing):  # the differing ones have their own remedy
         kept = (": the shots imported now are left as they are" if args.session.exists()
                 else "")

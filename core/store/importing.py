@@ -95,10 +95,11 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
                 break
             shot_id = metadata.get("shot", "")
             folder.name_files(shot_id)  # named, even when its row is refused
-            where = f"{MANIFEST_NAME} line {line}" + (f" (shot {shot_id})" if shot_id else "")
+            # the manifest's folder named: several folders may go into one session
+            where = f"{manifest} line {line}" + (f" (shot {shot_id})" if shot_id else "")
             first = first_lines.setdefault(shot_id, line) if shot_id else line
             if first != line:
-                where = f"{MANIFEST_NAME} line {line}"
+                where = f"{manifest} line {line}"
                 problem = f"shot id {shot_id} is given twice (also line {first})"
             outcome = problem or folder.import_row(metadata, correct_values)
             if outcome in kept:
