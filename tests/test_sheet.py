@@ -462,3 +462,19 @@ def test_one_ball_gets_one_scale_bar_whatever_its_pictures_crop():
     typed = SimpleNamespace(scale_mm_per_px=0.2106,
                             settings=SimpleNamespace(ball_diameter_mm=None, ball_type="softball"))
     assert scale_bar_mm(typed, at[0]) == 50.0  # a 12 in softball: 97 mm across
+
+
+def test_a_sheet_stopped_inside_a_saved_painter_state_ends_its_painter_cleanly(qtlog):
+    # Ctrl+C can arrive anywhere in the painting: Qt warned of a painter ended with saved states
+    from PySide6 import QtGui
+
+    from app.sheet.kit import saved
+
+    image = QtGui.QImage(16, 16, QtGui.QImage.Format.Format_RGB32)
+    painter = QtGui.QPainter(image)
+    with pytest.raises(KeyboardInterrupt), saved(painter):
+        painter.translate(3, 3)
+        raise KeyboardInterrupt
+    assert painter.transform().isIdentity()
+    painter.end()
+    assert not [r for r in qtlog.records if "saved states" in r.message]

@@ -20,7 +20,7 @@ from app.review.conditions import (
     plot_points,
 )
 from app.sheet.cover import paint_axes
-from app.sheet.kit import Pages, mm, one_line, pen, qcolor, rect_mm, text, triangle
+from app.sheet.kit import Pages, mm, one_line, pen, qcolor, rect_mm, saved, text, triangle
 from core.agreement import agreement_lines, compare_reviews, latest_layer
 from core.conditions import CONFIDENCE, ensemble_outside
 
@@ -95,13 +95,16 @@ def paint_conditions_page(pages: Pages, session, records, conditions, by,
 
 
 def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> None:
-    p.save()
+    with saved(p):
+        _paint_plot_inside(p, frame, axis, points)
+
+
+def _paint_plot_inside(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> None:
     plot = frame.adjusted(mm(16), mm(2), -mm(3), -mm(17))
     p.fillRect(plot, qcolor("#ffffff"))
     if not points:
         text(p, plot, "No condition with a separation angle to draw.", 9, italic=True,
              colour=colours.MUTED_INK, flags=QtCore.Qt.AlignmentFlag.AlignCenter)
-        p.restore()
         return
     values = [v for pt in points for v in (pt.mean, pt.low, pt.high) if v is not None]
     ylo, yhi = min(min(values), 0.0), max(max(values), 0.0)
@@ -153,7 +156,6 @@ def _paint_plot(p: QtGui.QPainter, frame: QtCore.QRectF, axis: str, points) -> N
     p.setClipping(False)
     _legend(p, frame.left() + mm(16), frame.bottom() - mm(5.5),
             any(pt.kind == "ensemble" for pt in points))
-    p.restore()
 
 
 def _error_bar(p, low: QtCore.QPointF, high: QtCore.QPointF, colour: str) -> None:

@@ -25,6 +25,7 @@ from app.sheet.kit import (
     pen,
     qcolor,
     rect_mm,
+    saved,
     text,
     tick_label,
     triangle,
@@ -108,13 +109,17 @@ def _paint_status_boxes(p, x: float, y: float, w: float, records, stale: int = 0
 
 def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints) -> None:
     """The session overview as vector graphics: angles against ``pts.column``."""
-    p.save()
+    with saved(p):
+        _paint_overview_inside(p, frame, pts)
+
+
+def _paint_overview_inside(p: QtGui.QPainter, frame: QtCore.QRectF,
+                           pts: OverviewPoints) -> None:
     plot = frame.adjusted(mm(16), mm(2), -mm(3), -mm(21))
     if not len(pts):
         p.fillRect(plot, qcolor(colours.PAPER_TINT))
         text(p, plot, "No shot with a separation angle to draw.", 9, italic=True,
              colour=colours.MUTED_INK, flags=QtCore.Qt.AlignmentFlag.AlignCenter)
-        p.restore()
         return
     p.fillRect(plot, qcolor("#ffffff"))
     ys = np.concatenate([pts.upper_deg + np.nan_to_num(pts.upper_u_deg),
@@ -156,7 +161,6 @@ def _paint_overview(p: QtGui.QPainter, frame: QtCore.QRectF, pts: OverviewPoints
                 triangle(p, to_page(xs[i], value), up, colour, bool(pts.is_final[i]))
     p.setClipping(False)
     _paint_overview_legend(p, frame.left() + mm(16), frame.bottom() - mm(9.5))
-    p.restore()
 
 
 def _paint_error_bars(p, pts: OverviewPoints, xs: np.ndarray, to_page) -> None:
@@ -196,12 +200,11 @@ def paint_axes(p, plot: QtCore.QRectF, xr, yr, to_page, column: str, x_ticks=Non
     p.drawRect(plot)
     text(p, QtCore.QRectF(plot.left(), plot.bottom() + mm(5), plot.width(), mm(5)), column, 8.5,
          bold=True, flags=QtCore.Qt.AlignmentFlag.AlignHCenter)
-    p.save()
-    p.translate(plot.left() - mm(15), plot.center().y())
-    p.rotate(-90)
-    text(p, QtCore.QRectF(-mm(40), 0, mm(80), mm(4.5)), "separation angle (deg, + rearward)",
-         8, bold=True, flags=QtCore.Qt.AlignmentFlag.AlignHCenter)
-    p.restore()
+    with saved(p):
+        p.translate(plot.left() - mm(15), plot.center().y())
+        p.rotate(-90)
+        text(p, QtCore.QRectF(-mm(40), 0, mm(80), mm(4.5)), "separation angle (deg, + rearward)",
+             8, bold=True, flags=QtCore.Qt.AlignmentFlag.AlignHCenter)
 
 
 

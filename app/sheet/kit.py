@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import math
 import os
+from contextlib import contextmanager
 from datetime import UTC, datetime
 
 import numpy as np
@@ -40,6 +41,17 @@ def ensure_gui_application() -> QtCore.QCoreApplication:
     _APP = QApplication(["wakeline"])
     return _APP
 
+
+
+@contextmanager
+def saved(painter):
+    """The painter's state saved for the block and restored after it, also when the sheet is
+    stopped inside it (Ctrl+C: Qt would warn of a painter ended with saved states)."""
+    painter.save()
+    try:
+        yield painter
+    finally:
+        painter.restore()
 
 
 def mm(value_mm: float) -> float:

@@ -43,6 +43,7 @@ from app.sheet.kit import (
     pen,
     qcolor,
     rect_mm,
+    saved,
     text,
 )
 from core.geometry import flight_unit, mid_circle, point_at_angle, side_normal
@@ -213,17 +214,16 @@ def _paint_field(p, pic, record, result, vorticity_limit_1_s: float | None) -> N
     view = _View(x0, y0, scale, frame.left() + (frame.width() - bw * scale) / 2,
                  frame.top() + (frame.height() - bh * scale) / 2)
     shown = QtCore.QRectF(view(x0, y0), view(x0 + bw, y0 + bh))
-    p.save()
-    p.fillRect(shown, qcolor("#e4e1da"))
-    p.setClipRect(shown)
-    limit = _paint_vorticity(p, view, result, vorticity_limit_1_s)
-    arrow = _paint_vectors(p, view, result, (x0, y0, bw, bh))
-    _paint_ball(p, view, record, result)
-    p.setClipping(False)
-    p.setPen(pen(colours.MUTED_INK, 0.25))
-    p.setBrush(QtCore.Qt.BrushStyle.NoBrush)
-    p.drawRect(shown)
-    p.restore()
+    with saved(p):
+        p.fillRect(shown, qcolor("#e4e1da"))
+        p.setClipRect(shown)
+        limit = _paint_vorticity(p, view, result, vorticity_limit_1_s)
+        arrow = _paint_vectors(p, view, result, (x0, y0, bw, bh))
+        _paint_ball(p, view, record, result)
+        p.setClipping(False)
+        p.setPen(pen(colours.MUTED_INK, 0.25))
+        p.setBrush(QtCore.Qt.BrushStyle.NoBrush)
+        p.drawRect(shown)
     _paint_field_legend(p, (x, x + w), shown.left() / mm(1), shown.bottom() / mm(1) + 1.2,
                         limit, view, result, arrow)
 
