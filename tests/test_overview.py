@@ -176,8 +176,8 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
 
     window = _window(main_window, qtbot, make_session(4))
     texts = [a.text() for a in window.export_menu.actions()]
-    assert texts == ["Shot sheet (&PDF)…", "&Table (CSV)…", "", "Picture (P&NG)…",
-                     "Picture (S&VG)…"]
+    assert texts == ["Shot sheet (&PDF)…", "Shot sheet of the &listed shots (PDF)…",
+                     "&Table (CSV)…", "", "Picture (P&NG)…", "Picture (S&VG)…"]
     assert window.export_menu.isEnabled()
 
     table = tmp_path / "from_window.csv"
@@ -200,6 +200,16 @@ def test_export_menu_writes_the_sheet_and_the_table(main_window, make_session, q
     assert report.pages == 3 and report.shot_ids == ["s04"]
     assert export_sheet(window, tmp_path / "none.pdf", shot_ids=["nope"]) is None
     assert "no shot 'nope'" in window.last_problem
+    # the listed shots: those the list's filter leaves
+    listed = tmp_path / "listed.pdf"
+    window.shot_list.text_filter.setText("s04")
+    monkeypatch.setattr("app.qt.export.ask_path", lambda *a, **k: str(listed))
+    window.act_export_listed_sheet.trigger()
+    assert len(PdfReader(str(listed)).pages) == 1 + 1 + 1  # cover, conditions, one shot
+    window.shot_list.text_filter.setText("nothing like it")
+    window.act_export_listed_sheet.trigger()
+    assert window.last_problem.startswith("Shot sheet: the list shows no shot")
+    window.shot_list.text_filter.setText("")
     # what the session is made of and reads is refused, as the command refuses it (the window
     # once wrote a sheet over the session file itself, and over frames and shots.csv)
     session_file = Path(window.model.session.path)

@@ -57,14 +57,24 @@ def install_export_actions(window) -> dict[str, QAction]:
     sheet.setStatusTip("a printable sheet: cover with overview and summary, one panel per shot")
     sheet.triggered.connect(lambda: _export_dialog(
         window, "Write the shot sheet", "_sheet.pdf", "PDF files (*.pdf)", export_sheet))
+    # the shot list's filter and status choice say which shots (as the command's --shots and
+    # --status do): the adjusted ones, a condition, a seam-angle range...
+    listed = QAction("Shot sheet of the &listed shots (PDF)…", window)
+    listed.setStatusTip("the sheet with a panel for each shot the list shows now (its filter "
+                        "and status choice); the cover still summarises the whole session")
+    listed.triggered.connect(lambda: _export_dialog(
+        window, "Write the shot sheet of the listed shots", "_listed_sheet.pdf",
+        "PDF files (*.pdf)", export_listed_sheet))
     table = QAction("&Table (CSV)…", window)
     table.setStatusTip("one row per shot: metadata, proposed and final angles, review")
     table.triggered.connect(lambda: _export_dialog(
         window, "Write the table", "_table.csv", "CSV files (*.csv)", export_table))
     window.export_menu.addAction(sheet)
+    window.export_menu.addAction(listed)
     window.export_menu.addAction(table)
     window.act_export_sheet, window.act_export_table = sheet, table
-    return {"sheet": sheet, "table": table}
+    window.act_export_listed_sheet = listed
+    return {"sheet": sheet, "listed sheet": listed, "table": table}
 
 
 def _default_path(window, suffix: str) -> str:
@@ -129,6 +139,16 @@ def export_sheet(window, path, **options):
         f"Shot sheet written: {report.path} ({report.pages} pages, {len(report.shot_ids)} shots)",
         8000)
     return report
+
+
+def export_listed_sheet(window, path):
+    """:func:`export_sheet` of the shots the list shows now; None when it shows none."""
+    shown = window.shot_list.visible_ids()
+    if not shown:
+        window.show_problem("Shot sheet", "the list shows no shot (its filter or status "
+                            "choice leaves none); nothing written")
+        return None
+    return export_sheet(window, path, shot_ids=shown)
 
 
 def export_table(window, path) -> int | None:
