@@ -114,9 +114,11 @@ class Flight:
 
 #: The version since which separation uncertainties are made as now (0.3: the budget's refits,
 #: the extrapolation arc, ``core.separation.COVERAGE_K``; 0.3.5: the "layer form" entry, whose
-#: absence left a fifth of the picks uncovered in one run set apart); results made before keep
-#: theirs until processed again, and count as not up to date (``Session.needs_processing``).
-UNCERTAINTY_SINCE = (0, 3, 5)
+#: absence left a fifth of the picks uncovered in one run set apart; 0.3.16: free layers that
+#: spread slowly, still laminar behind separation, within the prior, whose picks were late
+#: beyond their uncertainty on a third of such sides); results made before keep theirs until
+#: processed again, and count as not up to date (``Session.needs_processing``).
+UNCERTAINTY_SINCE = (0, 3, 16)
 
 
 def uncertainty_outdated(software_version: str) -> bool:

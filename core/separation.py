@@ -91,6 +91,9 @@ PROFILE_MOVES = 3
 #: Thicknesses (over the laminar one) tried by the coarse search, and how many of its first
 #: stage's best angles are searched further.
 COARSE_THICKNESS = (1.0, 3.0)
+#: Spreading rates of the free layer (times the stream's ratio) the coarse search tries: a
+#: layer still laminar over the band, and a turbulent mixing layer's (``core.side_fit``).
+COARSE_SPREADING = (0.02, 0.18)
 COARSE_CANDIDATES = 2
 #: Refinements run from this many starting points of the coarse search (the best wins): the
 #: image-matching cost has several shallow minima along the outline.
@@ -450,18 +453,21 @@ def _coarse_search(problem: SideProblem):
     sparse = problem.view(every=COARSE_EVERY)
     problem = problem.view(every=2)
     tags, candidates = [], []
-    for factor, reverse, follow in itertools.product(COARSE_THICKNESS, (0.08, 0.25), (0.0, 1.0)):
+    for factor, reverse, follow, spreading in itertools.product(
+            COARSE_THICKNESS, (0.08, 0.25), (0.0, 1.0), COARSE_SPREADING):
         for phi_s in np.arange(SEARCH_DEG[0], SEARCH_DEG[1] + 1.0, 3.0):
-            tags.append((factor, reverse, follow))
+            tags.append((factor, reverse, follow, spreading))
             candidates.append(sparse.start(phi_s, delta_factor=factor, reverse=reverse,
-                                           follow=follow))
+                                           follow=follow, spreading=spreading))
     first = list(zip(sparse.score(np.array(candidates)), candidates, tags, strict=True))
     candidates = []
-    for _, centre, (factor, reverse, follow) in _distinct(first, 6.0, COARSE_CANDIDATES):
+    for _, centre, (factor, reverse, follow, spreading) in _distinct(first, 6.0,
+                                                                      COARSE_CANDIDATES):
         for phi_s in centre[0] + np.array([-3.0, -1.5, 0.0, 1.5, 3.0]):
             for leave in (2.0, 7.0, 13.0, 19.0):
                 for f in (0.6 * factor, factor, 1.6 * factor):
-                    candidates.append(problem.start(phi_s, leave, f, reverse, follow))
+                    candidates.append(problem.start(phi_s, leave, f, reverse, follow,
+                                                    spreading))
     costs = problem.data_cost(np.array(candidates))
     scored = list(zip(problem.score(np.array(candidates), costs), candidates, strict=True))
     return [item[1] for item in _distinct(scored, 3.0, REFINE_STARTS)], float(np.min(costs))

@@ -15,9 +15,12 @@ parameters carry them:
   ``theta``: 1.37 derived, 1.5 in use, 9 % apart, see docs/references.md). Thicker layers are as likely as the laminar
   one: a turbulent layer is 2-3 times thicker at these Reynolds numbers, and the particle
   images smear a thin layer in the pictures;
-- its spreading behind separation, ``d delta / ds = 0.18 (1 + r) / (1 - r) +- 0.04 (...)`` for a
-  mixing layer between the stream and the reverse flow ``-r U`` (Brown & Roshko 1974, memory:
-  0.14-0.22 quoted);
+- its spreading behind separation: any rate ``d delta / ds`` from none to ``0.22 (1 + r) / (1 -
+  r)`` alike, faster ones falling off over ``0.04 (...)``: from a free layer still laminar over
+  the band (it thickens as the square root of the distance) to a turbulent mixing layer between
+  the stream and the reverse flow ``-r U`` (Brown & Roshko 1974, memory: 0.14-0.22 quoted). A
+  prior centred on the turbulent rate (until 0.3.15) picked slowly spreading layers late
+  beyond their uncertainty (docs/separation_accuracy.md);
 - any departure angle within 0-25 deg alike (tangential included), any reverse flow within
   2-30 % of the stream alike, a weak prior on the turning length.
 
@@ -47,8 +50,15 @@ from core.near_wall import NearWallBand, OuterStream
 PRIOR_LOG_DELTA_SD = 0.7
 PRIOR_THICKER = 4.0
 #: Mixing-layer spreading rate of the vorticity thickness for a stream over still air and its
-#: spread (Brown & Roshko 1974, memory: 0.14-0.22 quoted).
+#: spread (Brown & Roshko 1974, memory: 0.14-0.22 quoted): a turbulent free shear layer's.
 SPREADING_RATE = (0.18, 0.04)
+#: Spreading rates (times the stream's ratio ``(1 + r) / (1 - r)``) treated alike: from a
+#: laminar free layer's, which hardly spreads over the band (its thickness grows as the square
+#: root of the distance: a rate of ``O(Re_x^-1/2)``, about 0.01 here), to the top of the
+#: turbulent range; beyond, the penalty grows over ``SPREADING_RATE[1]``. A layer that leaves a
+#: ball laminar turns turbulent somewhere behind separation, so over the band it may spread at
+#: any rate between the two.
+PRIOR_SPREAD = (0.0, 0.22)
 #: Departure angles (deg from the tangent) treated alike; beyond, the penalty grows as the
 #: distance of ``tan angle`` from the range over ``PRIOR_WALL``.
 PRIOR_LEAVE_DEG = (0.0, 25.0)
@@ -179,7 +189,8 @@ class SideProblem:
             np.array([math.log(v / PRIOR_RELAX[0]) for v in relax]) / PRIOR_RELAX[1],
             # from the laminar thickness to PRIOR_THICKER times it alike
             _outside(log_delta - centre, 0.0, math.log(PRIOR_THICKER), PRIOR_LOG_DELTA_SD),
-            (spread - SPREADING_RATE[0] * ratio) / (SPREADING_RATE[1] * ratio),
+            _outside(spread, PRIOR_SPREAD[0] * ratio, PRIOR_SPREAD[1] * ratio,
+                     SPREADING_RATE[1] * ratio),
             _outside(reverse, *PRIOR_REVERSE),
             _outside(drop, *PRIOR_DROP),
             _outside(thin, *PRIOR_THIN),
@@ -200,8 +211,9 @@ class SideProblem:
         out[2, i["log_delta"]] = _outside_slope(log_delta - centre, 0.0,
                                                 math.log(PRIOR_THICKER), PRIOR_LOG_DELTA_SD)
         ratio = (1.0 + reverse) / max(1.0 - reverse, 1e-3)
-        out[3, i["spread"]] = 1.0 / (SPREADING_RATE[1] * ratio)
-        if 1.0 - reverse > 1e-3:  # d ratio / d reverse = 2 / (1 - reverse)^2
+        above = spread > PRIOR_SPREAD[1] * ratio  # the term is flat below (from the rate 0)
+        out[3, i["spread"]] = above / (SPREADING_RATE[1] * ratio)
+        if above and 1.0 - reverse > 1e-3:  # d ratio / d reverse = 2 / (1 - reverse)^2
             out[3, i["reverse"]] = (-spread / (SPREADING_RATE[1] * ratio**2)
                                     * 2.0 / (1.0 - reverse) ** 2)
         for row, (name, (low, high)) in enumerate(
@@ -210,13 +222,15 @@ class SideProblem:
             out[row, i[name]] = _outside_slope(params[i[name]], low, high)
         return out
 
-    def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5):
+    def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5,
+              spreading=SPREADING_RATE[0]):
         """Parameters at the priors' medians but for those given (the thickness: the laminar
-        one, where the prior's range starts, times ``delta_factor``)."""
+        one, where the prior's range starts, times ``delta_factor``; the spreading rate times
+        the stream's ratio, a turbulent mixing layer's by default)."""
         ratio = (1.0 + reverse) / (1.0 - reverse)
         return np.array([phi_s, math.tan(math.radians(leave_deg)), PRIOR_RELAX[0],
                          self.log_delta_prior + math.log(delta_factor),
-                         SPREADING_RATE[0] * ratio, reverse, 0.5, 0.35, follow, 1.0, 1.0])
+                         spreading * ratio, reverse, 0.5, 0.35, follow, 1.0, 1.0])
 
 
 def _outside(value: np.ndarray, lo: float, hi: float, scale: float = PRIOR_WALL) -> np.ndarray:

@@ -349,6 +349,19 @@ def test_the_jacobian_follows_the_alternatives_the_budget_refits_under(problem):
         assert not np.allclose(jacobian, problem.jacobian(params))  # they do differ
 
 
+@pytest.mark.parametrize("rate", [0.05, 0.3])
+def test_the_jacobian_of_the_spreading_prior_flat_below_its_top_and_sloped_above(problem, rate):
+    # the prior treats spreading rates from none to 0.22 alike (laminar to turbulent free
+    # layers); a rate of 0.3 pays, through the stream's ratio too
+    params = _inside_the_priors(problem)
+    reverse = params[PARAM_NAMES.index("reverse")]
+    params[PARAM_NAMES.index("spread")] = rate * (1.0 + reverse) / (1.0 - reverse)
+    jacobian = problem.jacobian(params)
+    numeric = _differenced(problem.residuals, params)
+    assert np.max(_column_errors(jacobian, numeric)) < JACOBIAN_TOLERANCE
+    assert np.any(jacobian[-8 + 3] != 0.0) == (rate > 0.22)
+
+
 def test_the_jacobian_of_samples_left_out_and_of_several_shots(problem):
     # glare's samples count zero, slopes too; a joint band's shots (here the band and the same
     # band on smoothed frames, so that their slopes differ) one after the other

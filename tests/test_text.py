@@ -52,6 +52,10 @@ def test_the_words_and_number_formats():
     assert wake_text(SeparationResult(SideProposal(None), SideProposal(None))) == "undetermined"
     assert vectors_text(SUMMARY.vectors) == (
         "90 valid, 6 replaced, 4 masked of 100 (32 px windows, 16 px apart)")
+    # blank frames: no window has a correlation peak, none can be replaced; the counts add up
+    from core.summary import VectorCounts
+
+    assert vectors_text(VectorCounts(961)) == "0 valid, 0 replaced, 0 masked, 961 without a vector of 961"
 
 
 def test_pair_prints_the_rows_of_the_formatter():
@@ -192,14 +196,15 @@ def test_a_result_made_by_an_earlier_uncertainty_method_is_named():
     assert uncertainty_outdated("0.1.0") and uncertainty_outdated("0.2.0")
     assert uncertainty_outdated("0.3.0") and uncertainty_outdated("0.3.4")
     assert uncertainty_outdated("0.3")  # a missing part counts as 0
-    assert not uncertainty_outdated("0.3.5") and not uncertainty_outdated("0.3.6")
+    assert uncertainty_outdated("0.3.5") and uncertainty_outdated("0.3.15")  # 0.3.16: laminar
+    assert not uncertainty_outdated("0.3.16") and not uncertainty_outdated("0.3.17")
     assert not uncertainty_outdated("0.4") and not uncertainty_outdated("1.0")
     assert not uncertainty_outdated("") and not uncertainty_outdated("dev")
     summary = ShotSummary(SeparationResult(SideProposal(5.0, 3.0), SideProposal(None)))
     record = ShotRecord("s1", {}, summary=summary, software_version="0.2.0")
     assert "0.2.0" in outdated_uncertainty_note(record)
     assert "Reprocess this shot" in outdated_uncertainty_note(record)
-    assert outdated_uncertainty_note(with_(record, software_version="0.3.5")) == ""
+    assert outdated_uncertainty_note(with_(record, software_version="0.3.16")) == ""
     assert outdated_uncertainty_note(with_(record, summary=None)) == ""
 
 
