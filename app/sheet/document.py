@@ -39,7 +39,7 @@ from core import WakelineError
 from core.plausibility import session_direction, shot_checks
 from core.store import ProcessState
 from core.store.companions import refuse_session_output
-from core.store.files import atomic_write, failure_cause, writing
+from core.store.files import atomic_write, failure_cause, near_miss_hint, writing
 
 SESSION_RANGE = "session"  # one vorticity colour range for every panel, from the sheet's shots
 
@@ -109,8 +109,6 @@ def make_sheet(
         # the window's names for the pseudo-columns: speed_m_s (its filter), shot_order
         column = {"speed_m_s": MEASURED_SPEED, "shot_order": SHOT_ORDER}.get(column, column)
     if column not in numeric_columns(records):
-        from core.store.files import near_miss_hint
-
         choices = numeric_columns(records)
         raise ColumnError(
             f"--column: {column!r} is not a numeric column of this session"
