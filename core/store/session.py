@@ -109,10 +109,10 @@ def _change_words(entry: dict) -> str:
 
 
 
-def _again_by_force(shot_id: str) -> str:
+def _again_by_force(path, shot_id: str) -> str:
     """How to measure a shot again whose stored result cannot be read: it still counts as
     processed, so only a forced run takes it."""
-    return (f"process the shot again by force (wakeline process SESSION --force --shots "
+    return (f"process the shot again by force (wakeline process {path} --force --shots "
             f"{shot_id}; in the window: Process > Reprocess this shot)")
 
 class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
@@ -391,14 +391,16 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
                 return ShotResult.from_stored(rec.summary.to_dict(), arrays)
             except FileNotFoundError:
                 if not self.read_only:
+                    again = _again_by_force(self.path, shot_id)
                     raise WakelineError(f"shot {shot_id}: result arrays lost (pending file "
-                                        f"{place} missing); {_again_by_force(shot_id)}") from None
+                                        f"{place} missing); {again}") from None
                 # a reader: the writer has compacted since and removed the pending file
                 raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
                                     "reopen the session") from None
             except STORAGE_ERRORS as exc:
+                again = _again_by_force(self.path, shot_id)
                 raise WakelineError(f"shot {shot_id}: result stored in {file} is damaged "
-                                    f"({damage_reason(exc)}); {_again_by_force(shot_id)}") from None
+                                    f"({damage_reason(exc)}); {again}") from None
 
     def history(self, shot_id: str) -> list[Pick]:
         """Every pick edit of a shot, oldest first."""
