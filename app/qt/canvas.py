@@ -208,10 +208,7 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self.message = QLabel(self.graphics)
         self.message.setAlignment(Qt.AlignmentFlag.AlignCenter)
         self.message.setWordWrap(True)
-        self.message.setStyleSheet(
-            "QLabel { background: rgba(246, 242, 232, 215); color: #1d1d1f; border-radius: 6px;"
-            " padding: 8px 12px; font-size: 13px; }"
-        )
+        self._message_compact = None  # set by _place_message for the picture's size
         # a mark under the message can still be dragged
         self.message.setAttribute(Qt.WidgetAttribute.WA_TransparentForMouseEvents)
         self.message.hide()
@@ -351,6 +348,16 @@ class ShotCanvas(LayerControls, CircleEditing, QWidget):
         self._place_message()
 
     def _place_message(self) -> None:
+        # on a small picture (a narrow or low window) the message takes a smaller font and
+        # less padding: it would cover most of the ball and its marks' labels
+        compact = self.graphics.width() < 560 or self.graphics.height() < 400
+        if compact != self._message_compact:
+            self._message_compact = compact
+            self.message.setStyleSheet(
+                "QLabel { background: rgba(246, 242, 232, 215); color: #1d1d1f; "
+                "border-radius: 6px; "
+                + ("padding: 3px 8px; font-size: 11px; }" if compact
+                   else "padding: 8px 12px; font-size: 13px; }"))
         width = min(520, max(200, self.graphics.width() - 40))
         self.message.setFixedWidth(width)
         # the wrapped text's own height (adjustSize may leave a line out)
