@@ -163,7 +163,9 @@ class ReadoutPanel(QWidget):
         scroll = self._scroll = QScrollArea(self)
         scroll.setWidgetResizable(True)
         scroll.setFrameShape(QFrame.Shape.NoFrame)
-        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAlwaysOff)
+        # squeezed below its numbers' width (a window too narrow for every panel's least width):
+        # a scroll bar rather than cut-off numbers
+        scroll.setHorizontalScrollBarPolicy(Qt.ScrollBarPolicy.ScrollBarAsNeeded)
         scroll.setWidget(content)
         outer = QVBoxLayout(self)
         outer.setContentsMargins(0, 0, 6, 4)
