@@ -579,3 +579,19 @@ def test_without_wakeline_home_the_preferences_are_in_qts_place_for_them(monkeyp
     name = app_settings().fileName()
     assert name.startswith(str(_private_user_files / "settings")) and name.endswith(
         "wakeline.ini")
+
+
+def test_the_readout_keeps_the_width_its_angles_need_for_the_shot_shown(
+        main_window, make_session, qtbot):
+    # measured once the new texts are laid out (it once took the previous shot's width), from
+    # the angles alone: a long shot id wraps instead of widening the panel
+    from dataclasses import replace
+
+    window = _open(main_window, qtbot, make_session(2))
+    readout = window.readout
+    current = window.model.record(window.model.current_id)
+    readout.show_record(None)
+    readout.show_record(current)
+    assert readout.minimumWidth() >= readout._angles.minimumSizeHint().width()
+    readout.show_record(replace(current, shot_id="a_shot_id_of_fifty_characters_from_a_big_camera"))
+    assert readout.minimumWidth() < 400

@@ -124,6 +124,7 @@ class ReadoutPanel(QWidget):
         font.setPointSizeF(font.pointSizeF() * 1.35)
         font.setBold(True)
         self.title.setFont(font)
+        self.title.setWordWrap(True)  # a long shot id wraps rather than widening the panel
         self.status_icon = QLabel(self)
         self.status_label = QLabel(self)
         self.problem = QLabel(self)
@@ -153,11 +154,13 @@ class ReadoutPanel(QWidget):
         box.addWidget(self.problem)
         box.addWidget(self.checks)
         box.addWidget(self.notes)
-        box.addWidget(self._separation_group())
+        self._angles = self._separation_group()
+        box.addWidget(self._angles)
         box.addWidget(self._flight_group())
         self.meta_group = QGroupBox("Shot", content)
         self.meta_form = QFormLayout(self.meta_group)
         self.meta_form.setLabelAlignment(Qt.AlignmentFlag.AlignLeft)
+        self.meta_form.setRowWrapPolicy(QFormLayout.RowWrapPolicy.WrapLongRows)
         box.addWidget(self.meta_group)
         box.addStretch(1)
         scroll = self._scroll = QScrollArea(self)
@@ -176,10 +179,13 @@ class ReadoutPanel(QWidget):
         self.setMinimumWidth(MIN_WIDTH_PX)
 
     def _keep_readable(self) -> None:
-        """However narrow the window, the panel keeps the width its numbers need (the angles'
-        two columns, the title and status): a low window scrolls the readout, but nothing is
-        cut off at its side (the picture gives up the room instead)."""
-        need = (self._content.minimumSizeHint().width()
+        """However narrow the window, the panel keeps the width the angles' two columns need:
+        a low window scrolls the readout, but no number is cut off at its side (the picture
+        gives up the room instead). Only the angles count: a long shot id or manifest column
+        wraps rather than widening the panel."""
+        self._content.layout().activate()  # the new texts' sizes, not the last shot's
+        margins = self._content.layout().contentsMargins()
+        need = (self._angles.minimumSizeHint().width() + margins.left() + margins.right()
                 + self._scroll.verticalScrollBar().sizeHint().width()
                 + sum(self.layout().getContentsMargins()[::2]))
         self.setMinimumWidth(max(MIN_WIDTH_PX, need))
