@@ -395,8 +395,10 @@ def main() -> None:
         args.tilt = None
     setting, kwargs_set = _set_apart(args)
     if args.sources and setting:
-        parser.error("--displacement, --seeding, --particles, --magnify, --tilt, --spreading and a --seed "
-                     f"other than {TABLE_SEED} measure anew: not with --from")
+        parser.error("--displacement, --seeding, --particles, --magnify, --tilt, --spreading and "
+                     f"a --seed other than {TABLE_SEED} measure anew: not with --from")
+    if args.spreading is not None and not args.spreading >= 0:
+        parser.error("--spreading takes a rate of 0 or more")
     if args.magnify is not None and not args.magnify > 0:
         parser.error("--magnify takes a factor above 0")
     if args.out is None:

@@ -16,8 +16,9 @@ outline) with the stream outside it ``U(phi, gap)`` from the PIV vectors:
   ``c delta (1 - a q)`` (its profile fills out toward the wall). At ``phi_s`` the dividing
   line touches the wall: zero wall shear. Behind it the dividing line leaves the wall at the
   departure angle ``atan(slope)`` from the tangent and turns toward the wake's direction over
-  the arc length ``L``; the layer thickens linearly at the spreading rate ``k`` of a plane
-  mixing layer. Which of its lines keeps to that path is not known (a mixing layer grows into
+  the arc length ``L``; the layer thickens linearly at the spreading rate ``k`` (a plane
+  turbulent mixing layer's at most; a free layer still laminar hardly spreads: the prior is
+  :mod:`core.side_fit`'s). Which of its lines keeps to that path is not known (a mixing layer grows into
   both streams): with ``outward_growth`` 1 the dividing line does, the layer growing outward
   and its centre rising by ``c`` times the growth; with 0 the centre does, the layer growing
   evenly about it and the dividing line sinking toward the wall by as much (into it, the

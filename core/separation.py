@@ -443,9 +443,10 @@ def _coarse_search(problem: SideProblem):
     sample of the band). ``problem`` is the one the search looks at (the fit passes the one
     on smoothed frames: :meth:`SideProblem.blurred`).
 
-    ``phi_s`` on a 3 deg grid at a few thicknesses with the other priors' medians; around the
-    best few (at least 6 deg apart), ``(phi_s, departure, thickness)`` with ``phi_s`` on a
-    1.5 deg grid and four departures, three thicknesses. Every
+    ``phi_s`` on a 3 deg grid at a few thicknesses and both of ``COARSE_SPREADING``'s rates,
+    the other priors at their medians; around the best few (at least 6 deg apart), ``(phi_s,
+    departure, thickness)`` with ``phi_s`` on a 1.5 deg grid and four departures, three
+    thicknesses, at the spreading rate found there. Every
     candidate is scored by its data cost over ``sigma^2`` plus the priors (a thick "attached"
     layer can mimic a separated one far too early or late); the best of each ``phi_s`` cell
     are kept, ``REFINE_STARTS`` of them at least 3 deg apart.

@@ -15,8 +15,8 @@ parameters carry them:
   ``theta``: 1.37 derived, 1.5 in use, 9 % apart, see docs/references.md). Thicker layers are as likely as the laminar
   one: a turbulent layer is 2-3 times thicker at these Reynolds numbers, and the particle
   images smear a thin layer in the pictures;
-- its spreading behind separation: any rate ``d delta / ds`` from none to ``0.22 (1 + r) / (1 -
-  r)`` alike, faster ones falling off over ``0.04 (...)``: from a free layer still laminar over
+- its spreading behind separation: any rate ``d delta / ds`` from none (the refinement keeps it
+  at 0.02 or more) to ``0.22 (1 + r) / (1 - r)`` alike, faster ones falling off over ``0.04 (...)``: from a free layer still laminar over
   the band (it thickens as the square root of the distance) to a turbulent mixing layer between
   the stream and the reverse flow ``-r U`` (Brown & Roshko 1974, memory: 0.14-0.22 quoted). A
   prior centred on the turbulent rate (until 0.3.15) picked slowly spreading layers late
@@ -57,7 +57,7 @@ SPREADING_RATE = (0.18, 0.04)
 #: root of the distance: a rate of ``O(Re_x^-1/2)``, about 0.01 here), to the top of the
 #: turbulent range; beyond, the penalty grows over ``SPREADING_RATE[1]``. A layer that leaves a
 #: ball laminar turns turbulent somewhere behind separation, so over the band it may spread at
-#: any rate between the two.
+#: any rate between the two. (The refinement's bounds keep the rate at 0.02 or more.)
 PRIOR_SPREAD = (0.0, 0.22)
 #: Departure angles (deg from the tangent) treated alike; beyond, the penalty grows as the
 #: distance of ``tan angle`` from the range over ``PRIOR_WALL``.
@@ -211,10 +211,11 @@ class SideProblem:
         out[2, i["log_delta"]] = _outside_slope(log_delta - centre, 0.0,
                                                 math.log(PRIOR_THICKER), PRIOR_LOG_DELTA_SD)
         ratio = (1.0 + reverse) / max(1.0 - reverse, 1e-3)
-        above = spread > PRIOR_SPREAD[1] * ratio  # the term is flat below (from the rate 0)
-        out[3, i["spread"]] = above / (SPREADING_RATE[1] * ratio)
-        if above and 1.0 - reverse > 1e-3:  # d ratio / d reverse = 2 / (1 - reverse)^2
-            out[3, i["reverse"]] = (-spread / (SPREADING_RATE[1] * ratio**2)
+        # +1 above the range, -1 below it, 0 inside (the term: the distance outside it)
+        side = int(spread > PRIOR_SPREAD[1] * ratio) - int(spread < PRIOR_SPREAD[0] * ratio)
+        out[3, i["spread"]] = side / (SPREADING_RATE[1] * ratio)
+        if side and 1.0 - reverse > 1e-3:  # d ratio / d reverse = 2 / (1 - reverse)^2
+            out[3, i["reverse"]] = (-side * spread / (SPREADING_RATE[1] * ratio**2)
                                     * 2.0 / (1.0 - reverse) ** 2)
         for row, (name, (low, high)) in enumerate(
                 (("reverse", PRIOR_REVERSE), ("drop", PRIOR_DROP), ("thin", PRIOR_THIN),
@@ -224,9 +225,10 @@ class SideProblem:
 
     def start(self, phi_s, leave_deg=8.0, delta_factor=1.0, reverse=0.1, follow=0.5,
               spreading=SPREADING_RATE[0]):
-        """Parameters at the priors' medians but for those given (the thickness: the laminar
-        one, where the prior's range starts, times ``delta_factor``; the spreading rate times
-        the stream's ratio, a turbulent mixing layer's by default)."""
+        """Parameters within the priors' ranges (at their medians where they have them) but for
+        those given: the thickness is the laminar one, where the prior's range starts, times
+        ``delta_factor``; ``spreading`` the rate (times the stream's ratio), a turbulent mixing
+        layer's by default."""
         ratio = (1.0 + reverse) / (1.0 - reverse)
         return np.array([phi_s, math.tan(math.radians(leave_deg)), PRIOR_RELAX[0],
                          self.log_delta_prior + math.log(delta_factor),

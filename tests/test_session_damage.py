@@ -191,6 +191,7 @@ def test_a_damaged_result_is_reported_for_its_shot_and_reprocessing_heals_it(ses
         assert "\n" not in text
         # it still counts as processed, so the message says how a run takes it anyway
         assert "--force --shots S0" in text and not s.needs_processing("S0")
+        assert f"wakeline process {session_path} --force" in text  # pasted as it stands
         assert s.load_result("S1").field.dx_px.shape == (20, 30)  # the rest is usable
         s.set_pick("S0", status="unusable", reason="seen damaged")  # and can be saved
         s.set_pick("S2", status="accepted")

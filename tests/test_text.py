@@ -55,7 +55,7 @@ def test_the_words_and_number_formats():
     # blank frames: no window has a correlation peak, none can be replaced; the counts add up
     from core.summary import VectorCounts
 
-    assert vectors_text(VectorCounts(961)) == "0 valid, 0 replaced, 0 masked, 961 without a vector of 961"
+    assert vectors_text(VectorCounts(961)) == "0 valid, 0 replaced, 0 masked of 961; 961 gave none"
 
 
 def test_pair_prints_the_rows_of_the_formatter():

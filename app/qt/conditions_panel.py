@@ -166,7 +166,9 @@ class StatisticsPanel(QWidget):
                      self._ensemble_cell(condition)]
             for col, text in enumerate(cells):
                 item = QTableWidgetItem(text)
-                item.setToolTip(_shots_tip(condition) if col == 0 else text or ENSEMBLE_NOT_YET)
+                ensemble_col = col == len(cells) - 1
+                item.setToolTip(_shots_tip(condition) if col == 0 else
+                                ENSEMBLE_NOT_YET if ensemble_col and not text else text)
                 self.table.setItem(row, col, item)
             if selected is not None and condition.label == selected.label:
                 self.table.selectRow(row)

@@ -62,9 +62,7 @@ def install_export_actions(window) -> dict[str, QAction]:
     listed = QAction("Shot sheet of the &listed shots (PDF)…", window)
     listed.setStatusTip("the sheet with a panel for each shot the list shows now (its filter "
                         "and status choice); the cover still summarises the whole session")
-    listed.triggered.connect(lambda: _export_dialog(
-        window, "Write the shot sheet of the listed shots", "_listed_sheet.pdf",
-        "PDF files (*.pdf)", export_listed_sheet))
+    listed.triggered.connect(lambda: _listed_sheet_dialog(window))
     table = QAction("&Table (CSV)…", window)
     table.setStatusTip("one row per shot: metadata, proposed and final angles, review")
     table.triggered.connect(lambda: _export_dialog(
@@ -141,12 +139,24 @@ def export_sheet(window, path, **options):
     return report
 
 
+def _listed_sheet_dialog(window) -> None:
+    """Ask where to write the listed shots' sheet, once the list is known to show some."""
+    if window.model.session is not None and not window.shot_list.visible_ids():
+        window.show_problem("Shot sheet", LISTS_NOTHING)
+        return
+    _export_dialog(window, "Write the shot sheet of the listed shots", "_listed_sheet.pdf",
+                   "PDF files (*.pdf)", export_listed_sheet)
+
+
+LISTS_NOTHING = ("the list shows no shot (its filter or status choice leaves none); nothing "
+                 "written")
+
+
 def export_listed_sheet(window, path):
     """:func:`export_sheet` of the shots the list shows now; None when it shows none."""
     shown = window.shot_list.visible_ids()
     if not shown:
-        window.show_problem("Shot sheet", "the list shows no shot (its filter or status "
-                            "choice leaves none); nothing written")
+        window.show_problem("Shot sheet", LISTS_NOTHING)
         return None
     return export_sheet(window, path, shot_ids=shown)
 

@@ -17,6 +17,7 @@ from app.review.model import ProcessState, ReviewStatus, pick_values
 from app.review.text import OTHER_REASON, UNUSABLE_REASONS, angle_text
 from core import WakelineError
 from core.geometry import SIDES
+from core.store.session import AGAIN_BY_FORCE
 
 log = logging.getLogger("wakeline.window")
 
@@ -119,10 +120,12 @@ class ReviewActions:
             except (WakelineError, OSError, KeyError) as exc:  # a damaged stored result
                 # log text only: a kept exception would hold this window through its traceback
                 log.warning("shot %s: stored result unreadable: %s", record.shot_id, str(exc))
-                # the store's own words name the shot and say how to measure it again
-                messages.append(str(exc) if isinstance(exc, WakelineError) else
-                                f"shot {record.shot_id}: stored result cannot be read ({exc}); "
-                                "reprocess it (Ctrl+Shift+P)")
+                # the store's own words name the shot and the damage; the fix in the window's
+                messages.append(
+                    str(exc).split(f"; {AGAIN_BY_FORCE}")[0] + "; reprocess it (Ctrl+Shift+P)"
+                    if isinstance(exc, WakelineError) else
+                    f"shot {record.shot_id}: stored result cannot be read ({exc}); "
+                    "reprocess it (Ctrl+Shift+P)")
             if record.state == ProcessState.FAILED and result is not None:
                 messages.append("Shown: the last run that succeeded.")
         else:

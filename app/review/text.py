@@ -280,11 +280,11 @@ def vectors_text(vectors: VectorCounts) -> str:
     """Valid, replaced and masked vectors of the last pass and its grid; the windows that gave
     none of those (no correlation peak, nothing near to replace them from), when there are
     any."""
-    out = f"{vectors.valid} valid, {vectors.replaced} replaced, {vectors.masked} masked"
+    out = (f"{vectors.valid} valid, {vectors.replaced} replaced, {vectors.masked} masked "
+           f"of {vectors.count}")
     missing = vectors.count - vectors.valid - vectors.replaced - vectors.masked
     if missing > 0:
-        out += f", {missing} without a vector"
-    out += f" of {vectors.count}"
+        out += f"; {missing} gave none"
     if vectors.window_px is not None:
         out += f" ({vectors.window_px} px windows, {vectors.spacing_px:g} px apart)"
     return out

@@ -90,7 +90,7 @@ def import_folder(src_dir, session_path, embed: bool = False, on_shot=None,
         for number, (line, metadata, problem) in enumerate(rows):
             if should_stop is not None and should_stop():
                 report.notes.append(f"import stopped after {number} of {len(rows)} rows of "
-                                    f"{MANIFEST_NAME}; import the folder again for the rest")
+                                    f"{manifest}; import the folder again for the rest")
                 stopped = True
                 break
             shot_id = metadata.get("shot", "")

@@ -108,12 +108,19 @@ def _change_words(entry: dict) -> str:
             "review_layer": "the imported review"}.get(entry["op"], "the processing settings")
 
 
+#: How a message on a stored result that cannot be read goes on: the fix (the window puts its
+#: own words in place of the rest, ``app.qt.window_review``).
+AGAIN_BY_FORCE = "process the shot again by force"
+
 
 def _again_by_force(path, shot_id: str) -> str:
     """How to measure a shot again whose stored result cannot be read: it still counts as
     processed, so only a forced run takes it."""
-    return (f"process the shot again by force (wakeline process {path} --force --shots "
-            f"{shot_id}; in the window: Process > Reprocess this shot)")
+    import shlex
+
+    return (f"{AGAIN_BY_FORCE} (wakeline process {shlex.quote(str(path))} --force --shots "
+            f"{shlex.quote(shot_id)}; in the window: Process ▸ Reprocess this shot)")
+
 
 class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
     """An open session. Use ``Session.create`` / ``Session.open``, or ``with Session.open(p):``.
