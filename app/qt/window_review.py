@@ -13,11 +13,10 @@ from app.qt.canvas import CanvasShot
 from app.qt.commands import MarkMove, PickEdit, PicksEdit
 from app.review.columns import reviewable
 from app.review.marks import mark_angles, moved_from_proposal
-from app.review.model import ProcessState, ReviewStatus, pick_values
+from app.review.model import AGAIN_BY_FORCE, ProcessState, ReviewStatus, pick_values
 from app.review.text import OTHER_REASON, UNUSABLE_REASONS, angle_text
 from core import WakelineError
 from core.geometry import SIDES
-from core.store.session import AGAIN_BY_FORCE
 
 log = logging.getLogger("wakeline.window")
 

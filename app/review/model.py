@@ -36,9 +36,10 @@ from core.store import import_folder as store_import_folder
 from core.store.companions import companion_files
 from core.store.files import writing
 from core.store.records import AUTHORSHIP_FIELDS
+from core.store.session import AGAIN_BY_FORCE
 
 __all__ = [
-    "MANIFEST_NAME", "PICK_FIELDS", "JournalDamaged", "ProcessState", "ReviewStatus",
+    "AGAIN_BY_FORCE", "MANIFEST_NAME", "PICK_FIELDS", "JournalDamaged", "ProcessState", "ReviewStatus",
     "SessionLocked", "SessionModel", "SessionReadOnly", "authorship", "import_folder", "is_companion_file",
     "pick_values", "proposals", "take_corrections",
 ]
