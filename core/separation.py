@@ -96,7 +96,8 @@ COARSE_THICKNESS = (1.0, 3.0)
 COARSE_SPREADING = (0.02, 0.18)
 COARSE_CANDIDATES = 2
 #: Refinements run from this many starting points of the coarse search (the best wins): the
-#: image-matching cost has several shallow minima along the outline.
+#: image-matching cost has several shallow minima along the outline. One more where they share
+#: a spreading rate (``COARSE_SPREADING``): the other rate's best.
 REFINE_STARTS = 2
 #: The layer's forms fitted (``SideGeometry.outward_growth``): its growth behind separation
 #: all outward of the dividing line, which keeps to the departure path, or evenly about its
@@ -449,7 +450,8 @@ def _coarse_search(problem: SideProblem):
     thicknesses, at the spreading rate found there. Every
     candidate is scored by its data cost over ``sigma^2`` plus the priors (a thick "attached"
     layer can mimic a separated one far too early or late); the best of each ``phi_s`` cell
-    are kept, ``REFINE_STARTS`` of them at least 3 deg apart.
+    are kept, ``REFINE_STARTS`` of them at least 3 deg apart, and in both stages the best of a
+    spreading rate they lack (:func:`_each_rate`).
     """
     sparse = problem.view(every=COARSE_EVERY)
     problem = problem.view(every=2)
@@ -462,8 +464,8 @@ def _coarse_search(problem: SideProblem):
                                            follow=follow, spreading=spreading))
     first = list(zip(sparse.score(np.array(candidates)), candidates, tags, strict=True))
     candidates = []
-    for _, centre, (factor, reverse, follow, spreading) in _distinct(first, 6.0,
-                                                                      COARSE_CANDIDATES):
+    for _, centre, (factor, reverse, follow, spreading) in _each_rate(
+            _distinct(first, 6.0, COARSE_CANDIDATES), first):
         for phi_s in centre[0] + np.array([-3.0, -1.5, 0.0, 1.5, 3.0]):
             for leave in (2.0, 7.0, 13.0, 19.0):
                 for f in (0.6 * factor, factor, 1.6 * factor):
@@ -471,7 +473,30 @@ def _coarse_search(problem: SideProblem):
                                                     spreading))
     costs = problem.data_cost(np.array(candidates))
     scored = list(zip(problem.score(np.array(candidates), costs), candidates, strict=True))
-    return [item[1] for item in _distinct(scored, 3.0, REFINE_STARTS)], float(np.min(costs))
+    starts = _each_rate(_distinct(scored, 3.0, REFINE_STARTS), scored)
+    return [item[1] for item in starts], float(np.min(costs))
+
+
+def _each_rate(kept, scored):
+    """``kept`` (the best of ``scored``, ``(score, params, ...)``) and, for each of
+    ``COARSE_SPREADING``'s rates none of them has, the best of ``scored`` at that rate: one
+    rate's candidates can crowd the other's out (slowly spreading layers far behind the truth
+    once took both starts of a side, and the turbulent layer near it, which fits far better
+    once refined, was never refined)."""
+    spread = PARAM_NAMES.index("spread")
+    reverse = PARAM_NAMES.index("reverse")
+
+    def rate(item):
+        params = item[1]
+        return round(params[spread] * (1.0 - params[reverse]) / (1.0 + params[reverse]), 6)
+
+    kept = list(kept)
+    for wanted in COARSE_SPREADING:
+        if all(rate(item) != round(wanted, 6) for item in kept):
+            at_rate = [item for item in scored if rate(item) == round(wanted, 6)]
+            if at_rate:
+                kept.append(min(at_rate, key=lambda item: item[0]))
+    return kept
 
 
 def _distinct(scored, apart_deg: float, count: int):

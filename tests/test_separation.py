@@ -349,8 +349,8 @@ def test_an_alternative_that_changes_nothing_moves_the_angle_by_nothing(monkeypa
     # the budget's circle, model-form and prior entries are refits from the best fit under the
     # alternative: redone under the model itself, the fit stays about where it was (a
     # linearised step from the best fit moved it by about 0.1 deg, up to several, on both
-    # synthetic families; a refit moves it by what the best fit had left to converge: 0.12 deg
-    # here on the side fitted with its centre keeping to the path, under 0.05 before)
+    # synthetic families; a refit moves it by what the best fit had left to converge: 0.26 deg
+    # here since 0.3.16 (another start wins on one side), 0.12 before, under 0.05 before that)
     from core import separation
 
     seen = []
@@ -364,7 +364,7 @@ def test_an_alternative_that_changes_nothing_moves_the_angle_by_nothing(monkeypa
     _measure(ball_shot((600, 800), radius_px=150.0, seed=8))
     assert len(seen) == 2
     for problem, best in seen:
-        assert abs(separation._refit_shift(problem, best)) < 0.2
+        assert abs(separation._refit_shift(problem, best)) < 0.3
         doubled = replace(problem.geom, wall_fraction=2.0 * problem.geom.wall_fraction)
         assert separation._refit_shift(problem, best, geom=doubled) != 0.0
 
@@ -566,3 +566,21 @@ def test_the_uncertainty_covers_the_other_family_without_being_inflated():
             ratios.append(error / proposal.uncertainty_deg)
     assert sum(r <= 1.0 for r in ratios) >= 10, ratios
     assert np.median(ratios) >= 0.13, ratios
+
+
+def test_each_spreading_rate_keeps_a_refinement_start():
+    # slowly spreading layers far behind the truth once took both starts of a side (the physical
+    # family with sparse seeding: picked 19.3 deg late, 5.7 stated); the turbulent layer near
+    # the truth, which fits far better once refined, was never refined
+    from core.separation import COARSE_SPREADING, _each_rate
+    from core.side_fit import SideProblem
+
+    problem = SideProblem.__new__(SideProblem)  # start() reads only the thickness prior
+    problem.log_delta_prior = 0.0
+    slow, fast = COARSE_SPREADING
+    scored = [(1.0, problem.start(18.5, spreading=slow)), (2.0, problem.start(15.5, spreading=slow)),
+              (5.0, problem.start(-2.0, spreading=fast)), (6.0, problem.start(-5.0, spreading=fast))]
+    kept = _each_rate(scored[:2], scored)
+    assert [item[1][0] for item in kept] == [18.5, 15.5, -2.0]
+    # nothing added where both rates are kept already
+    assert _each_rate([scored[0], scored[2]], scored) == [scored[0], scored[2]]
