@@ -13,7 +13,7 @@ from app.qt.canvas import CanvasShot
 from app.qt.commands import MarkMove, PickEdit, PicksEdit
 from app.review.columns import reviewable
 from app.review.marks import mark_angles, moved_from_proposal
-from app.review.model import AGAIN_BY_FORCE, ProcessState, ReviewStatus, pick_values
+from app.review.model import ProcessState, ResultUnreadable, ReviewStatus, pick_values
 from app.review.text import OTHER_REASON, UNUSABLE_REASONS, angle_text
 from core import WakelineError
 from core.geometry import SIDES
@@ -121,8 +121,8 @@ class ReviewActions:
                 log.warning("shot %s: stored result unreadable: %s", record.shot_id, str(exc))
                 # the store's own words name the shot and the damage; the fix in the window's
                 messages.append(
-                    str(exc).split(f"; {AGAIN_BY_FORCE}")[0] + "; reprocess it (Ctrl+Shift+P)"
-                    if isinstance(exc, WakelineError) else
+                    f"{exc.damage}; reprocess it (Ctrl+Shift+P)"
+                    if isinstance(exc, ResultUnreadable) else
                     f"shot {record.shot_id}: stored result cannot be read ({exc}); "
                     "reprocess it (Ctrl+Shift+P)")
             if record.state == ProcessState.FAILED and result is not None:

@@ -35,13 +35,24 @@ from core.store import (
 from core.store import import_folder as store_import_folder
 from core.store.companions import companion_files
 from core.store.files import writing
-from core.store.records import AUTHORSHIP_FIELDS
-from core.store.session import AGAIN_BY_FORCE
+from core.store.records import AUTHORSHIP_FIELDS, ResultUnreadable
 
 __all__ = [
-    "AGAIN_BY_FORCE", "MANIFEST_NAME", "PICK_FIELDS", "JournalDamaged", "ProcessState", "ReviewStatus",
-    "SessionLocked", "SessionModel", "SessionReadOnly", "authorship", "import_folder", "is_companion_file",
-    "pick_values", "proposals", "take_corrections",
+    "MANIFEST_NAME",
+    "PICK_FIELDS",
+    "JournalDamaged",
+    "ProcessState",
+    "ResultUnreadable",
+    "ReviewStatus",
+    "SessionLocked",
+    "SessionModel",
+    "SessionReadOnly",
+    "authorship",
+    "import_folder",
+    "is_companion_file",
+    "pick_values",
+    "proposals",
+    "take_corrections",
 ]
 
 PICK_FIELDS = ("status", "upper_deg", "lower_deg", "reason", "note")

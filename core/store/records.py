@@ -7,6 +7,7 @@ the table CSV and the window, and a member compares equal to its word.
 from __future__ import annotations
 
 import math
+import shlex
 from dataclasses import asdict, dataclass, field, fields, replace
 from enum import StrEnum
 
@@ -234,6 +235,21 @@ def damage_reason(exc: Exception) -> str:
         return f"no {exc.args[0]!r}" if exc.args else "a key is missing"
     text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
     return text
+
+
+class ResultUnreadable(WakelineError):
+    """A shot's stored result cannot be read: ``damage`` says what is wrong (the shot, the
+    file, why), the message adds how to measure the shot again. It still counts as
+    processed, so only a forced run takes it; the window gives its own remedy."""
+
+    def __init__(self, damage: str, path, shot_id: str) -> None:
+        super().__init__(damage, path, shot_id)  # as given: it pickles (a worker's error)
+        self.damage, self.path, self.shot_id = damage, path, shot_id
+
+    def __str__(self) -> str:
+        return (f"{self.damage}; process the shot again by force (wakeline process "
+                f"{shlex.quote(str(self.path))} --force --shots {shlex.quote(self.shot_id)}; "
+                "in the window: Process ▸ Reprocess this shot)")
 
 
 def edited_pick(shot_id: str, current: Pick, changes: dict, by: str, now: str) -> Pick:

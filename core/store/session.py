@@ -52,6 +52,7 @@ from core.store.lock import Lock, user_name
 from core.store.records import (
     Pick,
     ProcessState,
+    ResultUnreadable,
     ReviewStatus,
     ShotRecord,
     check_shot_id,
@@ -106,20 +107,6 @@ def _change_words(entry: dict) -> str:
             "shot_values": f"the corrected values of shot {shot}",
             "conditions": "the grouping of shots into conditions",
             "review_layer": "the imported review"}.get(entry["op"], "the processing settings")
-
-
-#: How a message on a stored result that cannot be read goes on: the fix (the window puts its
-#: own words in place of the rest, ``app.qt.window_review``).
-AGAIN_BY_FORCE = "process the shot again by force"
-
-
-def _again_by_force(path, shot_id: str) -> str:
-    """How to measure a shot again whose stored result cannot be read: it still counts as
-    processed, so only a forced run takes it."""
-    import shlex
-
-    return (f"{AGAIN_BY_FORCE} (wakeline process {shlex.quote(str(path))} --force --shots "
-            f"{shlex.quote(shot_id)}; in the window: Process ▸ Reprocess this shot)")
 
 
 class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
@@ -398,16 +385,14 @@ class Session(SnapshotWriting, JournalReplay, ReviewContent, Mapping):
                 return ShotResult.from_stored(rec.summary.to_dict(), arrays)
             except FileNotFoundError:
                 if not self.read_only:
-                    again = _again_by_force(self.path, shot_id)
-                    raise WakelineError(f"shot {shot_id}: result arrays lost (pending file "
-                                        f"{place} missing); {again}") from None
+                    raise ResultUnreadable(f"shot {shot_id}: result arrays lost (pending file "
+                                           f"{place} missing)", self.path, shot_id) from None
                 # a reader: the writer has compacted since and removed the pending file
                 raise WakelineError(f"{self.path}: changed on disk by the process writing it; "
                                     "reopen the session") from None
             except STORAGE_ERRORS as exc:
-                again = _again_by_force(self.path, shot_id)
-                raise WakelineError(f"shot {shot_id}: result stored in {file} is damaged "
-                                    f"({damage_reason(exc)}); {again}") from None
+                raise ResultUnreadable(f"shot {shot_id}: result stored in {file} is damaged "
+                                       f"({damage_reason(exc)})", self.path, shot_id) from None
 
     def history(self, shot_id: str) -> list[Pick]:
         """Every pick edit of a shot, oldest first."""
