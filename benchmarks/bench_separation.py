@@ -25,6 +25,9 @@ Run (about 3-6 minutes on 2 cores for the default 48 + 48 shots):
 frame F times larger in px), ``--tilt DEG`` (flight direction turned) and ``--spreading RATE``
 (the free shear layer's growth per unit length: a slow one, still laminar) measure the first
 ``--shots`` shots with that condition set for every shot instead of the family's own draw;
+``--tripped`` (physical family only) trips one side of every shot turbulent at a seam 20-60 deg
+from the front stagnation point, as a seam does on a swinging ball, Head's method carrying the
+layer to a later separation from a thicker layer;
 ``--seed`` other than the tables' 11 measures other draws of the families. ``--from`` takes
 several files, and such runs get their own table.
 """
@@ -128,6 +131,7 @@ def measure_case(family: str, kwargs: dict, setting: str | None = None) -> list[
             "layer_px": None if proposal is None else proposal.layer_px,
             "reason": failure if proposal is None else proposal.reason,
             "departure_true_deg": truth.leave_deg[k], "thickness_px": thickness[k],
+            "tripped": None if family == "kinematic" else truth.trip_deg[k] is not None,
             "radius_px": truth.radius_px, "seconds": seconds, **look,
             "stream_px": round(truth.speed_m_s * truth.dt_s / (truth.scale_mm_per_px * 1e-3), 2),
             "setting": setting,
@@ -183,12 +187,17 @@ def conditions(rec: dict) -> list[str]:
     rows.append(f"{rec['surface']} ball")
     if rec.get("shadow_side"):
         rows.append("shadowed side" if rec["shadow_side"] == rec["side"] else "lit side, shadow")
+    if rec.get("tripped") is not None and rec.get("setting") and "tripped" in rec["setting"]:
+        rows.append("tripped side" if rec["tripped"] else "laminar side")
     return rows
 
 
 ROW_ORDER = ("all", "target range", "layer < 3 px", "layer 3-6 px", "layer >= 6 px",
              "departure < 5 deg", "departure 5-20 deg", "departure > 20 deg", "dark ball",
-             "dim ball", "bright ball", "shadowed side", "lit side, shadow")
+             "dim ball", "bright ball", "shadowed side", "lit side, shadow", "tripped side",
+             "laminar side")
+#: The rows the runs set apart are shown in.
+SET_APART_ROWS = ("all", "target range", "tripped side", "laminar side")
 
 
 def _row_order(row: str) -> int:
@@ -229,7 +238,7 @@ def tables(records: list[dict]) -> str:
         for family in ("kinematic", "physical"):
             for setting in sorted({r["setting"] for r in moved}):
                 runs = [r for r in moved if r["family"] == family and r["setting"] == setting]
-                for row in ("all", "target range"):
+                for row in SET_APART_ROWS:
                     chosen = [r for r in runs if row in conditions(r)]
                     if not chosen:
                         continue
@@ -326,6 +335,8 @@ def _set_apart(args) -> tuple[str | None, dict]:
         labels.append(f"flight tilted {args.tilt:g} deg")
     if args.spreading is not None:
         labels.append(f"free layer spreading {args.spreading:g}")
+    if args.tripped:
+        labels.append("one side tripped")
     if args.seed != TABLE_SEED:
         # shots the method was never looked at on: the tables' own seed was measured again and
         # again while it was developed
@@ -358,6 +369,26 @@ def spreading(family: str, kwargs: dict, rate: float) -> dict:
     return {**kwargs, "spreading_coefficient": rate * (1.0 - r) / (1.0 + r)}
 
 
+#: Where the seam trips a side (deg from the front stagnation point), and the tripped side's
+#: surface-velocity blend: Head's method then separates it 106-120 deg from the front stagnation
+#: point (+16 to +30 deg), about where a sphere's turbulent layer leaves beyond the drag crisis
+#: (Achenbach 1972; memory).
+TRIP_DEG = (20.0, 60.0)
+TRIPPED_SHARE = (0.05, 0.2)
+
+
+def tripped(kwargs: dict) -> dict:
+    """A physical case with one side (drawn from its seed) tripped turbulent by the seam, all
+    else as drawn; the drawn layer thickness stays the laminar side's."""
+    rng = np.random.default_rng([kwargs["seed"], 7])
+    k = int(rng.integers(0, 2))
+    trip = [None, None]
+    trip[k] = float(rng.uniform(*TRIP_DEG))
+    share = list(kwargs["measured_share"])
+    share[k] = float(rng.uniform(*TRIPPED_SHARE))
+    return {**kwargs, "trip_deg": tuple(trip), "measured_share": tuple(share)}
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--shots", type=int, default=48, help="shots per family")
@@ -384,6 +415,9 @@ def main() -> None:
                         help="the free shear layer's spreading rate (vorticity thickness per "
                              "unit length of path) for every shot; the families draw 0.1-0.3 "
                              "(kinematic) and 0.15-0.3 (physical), a turbulent mixing layer's")
+    parser.add_argument("--tripped", action="store_true",
+                        help="trip one side of every physical shot turbulent at the seam "
+                             "(physical family only)")
     parser.add_argument("--write", action="store_true", help="write docs/separation_accuracy.md")
     parser.add_argument("--family", choices=("both", "kinematic", "physical"), default="both",
                         help="measure one family only (the tables then show that one)")
@@ -395,8 +429,14 @@ def main() -> None:
         args.tilt = None
     setting, kwargs_set = _set_apart(args)
     if args.sources and setting:
-        parser.error("--displacement, --seeding, --particles, --magnify, --tilt, --spreading and "
+        parser.error("--displacement, --seeding, --particles, --magnify, --tilt, --spreading, "
+                     "--tripped and "
                      f"a --seed other than {TABLE_SEED} measure anew: not with --from")
+    if args.tripped:
+        if args.family == "kinematic":
+            parser.error("--tripped trips the physical family's boundary layers: the kinematic "
+                         "family has none")
+        args.family = "physical"
     if args.spreading is not None and not args.spreading >= 0:
         parser.error("--spreading takes a rate of 0 or more")
     if args.magnify is not None and not args.magnify > 0:
@@ -422,6 +462,8 @@ def main() -> None:
             cases = [(family, magnified(family, kw, args.magnify)) for family, kw in cases]
         if args.spreading is not None:
             cases = [(family, spreading(family, kw, args.spreading)) for family, kw in cases]
+        if args.tripped:
+            cases = [(family, tripped(kw)) for family, kw in cases]
         if args.tilt is not None:  # counter-clockwise on screen
             cases = [(family, {**kw, "flight_deg": (kw["flight_deg"] + args.tilt) % 360.0})
                      for family, kw in cases]

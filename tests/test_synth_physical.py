@@ -9,8 +9,13 @@ import pytest
 from core.geometry import flight_unit, point_at_angle, side_normal
 from core.synth_physical import physical_cases, physical_flow, physical_shot
 from core.synth_physical.boundary_layer import (
+    HEAD_SEPARATION_H,
     falkner_skan_beta,
     falkner_skan_table,
+    head_h1,
+    head_h_from_h1,
+    head_march,
+    head_tripped_layer,
     separation_angle_deg,
     thwaites_mangler,
     thwaites_momentum,
@@ -72,6 +77,44 @@ def test_sphere_laminar_separation_on_measured_and_potential_surface_velocity():
                                                                                    abs=1e-4)
     assert separation_angle_deg(1.0) == pytest.approx(math.degrees(thwaites_mangler(1.0).t_sep)
                                                       - 90.0)
+
+
+def test_head_method_on_a_flat_plate_follows_the_one_seventh_law():
+    # Head's entrainment method with Ludwieg-Tillmann's skin friction, started from a laminar
+    # momentum thickness, against the one-seventh power law's theta = 0.036 x Re_x^-0.2 (Prandtl;
+    # White, Viscous Fluid Flow; memory) and its shape factor 9/7, measured 1.3-1.4 (memory)
+    reynolds = 1e7
+    x0 = 0.01
+    theta0 = 0.664 * x0 / math.sqrt(x0 * reynolds)  # Blasius (standard texts)
+    solution, separation, shape = head_march(
+        lambda x: (1.0, 0.0), lambda x: (1.0, 0.0), x0, 1.0, theta0, reynolds
+    )
+    assert separation is None  # no pressure gradient: no separation
+    for x, tolerance in ((0.3, 0.08), (1.0, 0.03)):
+        theta = solution.sol(x)[0]
+        assert theta == pytest.approx(0.036 * x * (x * reynolds) ** -0.2, rel=tolerance)
+    assert 1.3 <= shape(1.0, solution.sol(1.0)) <= 1.4
+    # H1(H) is inverted exactly on both branches (derived)
+    h = np.array([1.3, 1.5, 1.6, 1.8, 2.4, 2.8])
+    assert head_h_from_h1(head_h1(h)) == pytest.approx(h, abs=1e-9)
+
+
+def test_a_tripped_layer_separates_later_from_a_thicker_layer():
+    # a turbulent layer stays attached further than the laminar one on the same surface velocity;
+    # on the sweep's blends (0.05-0.2) it leaves 106-120 deg from the front stagnation point,
+    # where Achenbach (1972, J. Fluid Mech. 54:565) found a sphere's turbulent separation beyond
+    # the drag crisis, about 115-120 deg (memory)
+    for weight in (0.05, 0.2):
+        tripped = head_tripped_layer(weight, math.radians(40.0), 1e5)
+        assert tripped.t_sep > thwaites_mangler(weight).t_sep + math.radians(10.0)
+        assert 105.0 <= math.degrees(tripped.t_sep) <= 121.0
+        assert tripped.shape_factor[-1] == HEAD_SEPARATION_H
+        assert tripped.shape_factor[0] == pytest.approx(1.4, abs=1e-6)
+    # where the seam trips it hardly matters (the turbulent layer forgets its start; derived)
+    early, late = (head_tripped_layer(0.1, math.radians(a), 1e5).t_sep for a in (25.0, 60.0))
+    assert math.degrees(abs(early - late)) < 1.0
+    with pytest.raises(ValueError, match="laminar separation"):
+        head_tripped_layer(0.1, math.radians(110.0), 1e5)
 
 
 def test_the_laminar_thickness_prior_starts_near_thwaites_separating_layer():
@@ -168,26 +211,49 @@ def flow_and_truth():
     )
 
 
-@pytest.mark.parametrize("side", ["upper", "lower"])
-def test_field_has_zero_wall_shear_at_the_truth_point_and_reverse_flow_behind(flow_and_truth, side):
+@pytest.fixture(scope="module")
+def tripped_flow_and_truth():
+    # the upper side tripped by the seam 40 deg from the front stagnation point
+    return physical_flow(
+        (1024, 1280),
+        radius_px=200.0,
+        layer_px=3.0,
+        measured_share=(0.1, 0.4),
+        departure_deg=(8.0, 15.0),
+        trip_deg=(40.0, None),
+        seed=4,
+    )
+
+
+@pytest.fixture(params=["upper", "lower", "tripped upper"])
+def side_flow(request, flow_and_truth, tripped_flow_and_truth):
+    if request.param == "tripped upper":
+        return (*tripped_flow_and_truth, "upper")
+    return (*flow_and_truth, request.param)
+
+
+def test_field_has_zero_wall_shear_at_the_truth_point_and_reverse_flow_behind(side_flow):
     # attached Falkner-Skan profiles have f''(0) > 0 and the separating one f''(0) = 0 (Hartree
-    # 1937; memory), so the wall shear vanishes at the truth point; behind it the recirculation
-    # reverses the flow next to the wall (derived from the construction)
-    flow, truth = flow_and_truth
+    # 1937; memory), so the wall shear vanishes at the truth point; a tripped side's turbulent
+    # profile keeps moving next to the wall up to separation, its zero in the sublayer
+    # (Stratford 1959; memory), and is lifted off the wall right behind it; behind the truth
+    # point the recirculation reverses the flow next to the wall (derived from the construction)
+    flow, truth, side = side_flow
+    tripped = truth.trip_deg != (None, None)
     angle = truth.upper_deg if side == "upper" else truth.lower_deg
     ahead = _wall_speed(flow, truth, side, angle - 1.0, [0.01])[0] / 0.01
-    at = _wall_speed(flow, truth, side, angle, [0.01])[0] / 0.01
+    at = _wall_speed(flow, truth, side, angle + (0.25 if tripped else 0.0), [0.01])[0] / 0.01
     assert ahead > 0.1
     assert 0.0 <= at < 0.05 * ahead
     for behind in (4.0, 8.0, 20.0):
         assert _wall_speed(flow, truth, side, angle + behind, [0.25])[0] < 0.0
 
 
-@pytest.mark.parametrize("side", ["upper", "lower"])
-def test_field_profile_at_separation_has_the_truth_thickness(flow_and_truth, side):
+def test_field_profile_at_separation_has_the_truth_thickness(side_flow):
     # momentum thickness theta = int u/Ue (1 - u/Ue) dy and the 99 % thickness of the field at
-    # the truth point equal the truth's (definitions; Thwaites' theta carried into the profile)
-    flow, truth = flow_and_truth
+    # the truth point equal the truth's (definitions; Thwaites' or Head's theta carried into the
+    # profile)
+    flow, truth, side = side_flow
     k = 0 if side == "upper" else 1
     angle = truth.upper_deg if side == "upper" else truth.lower_deg
     delta = truth.delta99_sep_px[k]
@@ -275,6 +341,18 @@ def test_held_ball_sits_still_and_the_air_streams_past():
     fx, fy = flight_unit(truth.flight_deg)
     vx, vy = flow.velocity(np.array([10 * 80.0 * fx]), np.array([10 * 80.0 * fy]))
     assert vx[0] * fx + vy[0] * fy == pytest.approx(-flow.speed_px, rel=0.01)
+
+
+def test_a_tripped_side_separates_later_from_a_thicker_layer_in_the_field(tripped_flow_and_truth):
+    # a turbulent layer at separation is several times the laminar one's thickness at the same
+    # Reynolds number (flat plate: 0.37 x Re^-0.2 against 4.91 x Re^-0.5; standard texts)
+    _, truth = tripped_flow_and_truth
+    assert truth.trip_deg == (40.0, None)
+    assert truth.upper_deg > truth.lower_deg + 15.0
+    assert truth.delta99_sep_px[0] > 2.5 * truth.delta99_sep_px[1]
+    assert truth.delta99_sep_px[1] == pytest.approx(3.0, rel=1e-6)  # layer_px: untripped sides
+    with pytest.raises(ValueError, match="no trip"):
+        physical_flow(SMALL, radius_px=100.0, layer_px=3.0, trip_deg=(40.0, 40.0))
 
 
 def test_layer_px_sets_the_reynolds_number_through_the_speed():

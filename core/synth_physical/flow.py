@@ -39,8 +39,10 @@ from core.synth_physical.boundary_layer import (
     FalknerSkanTable,
     blended_surface_velocity,
     falkner_skan_table,
+    head_tripped_layer,
     thwaites_mangler,
     thwaites_shear,
+    turbulent_profiles,
 )
 
 SQRT_PI = math.sqrt(math.pi)
@@ -51,6 +53,24 @@ HANDOVER_DELTA99 = 4.0
 REVERSE_ONSET_RAD = 0.25
 #: Arc (rad) over which the outer slip's slope at separation dies out behind it.
 SLIP_SETTLE_RAD = 0.1
+#: Arc (rad) behind a trip over which the laminar profile turns into the turbulent one (own: a
+#: transition region, short against the turbulent run to separation).
+TRANSITION_RAD = math.radians(5.0)
+#: Behind a tripped side's separation the separating profile, frozen for the handover, is lifted
+#: off the wall: its near-wall air stops below a height that grows at this share of the arc
+#: behind separation (own), so the wall shear turns where Head's method separates the layer.
+TRIPPED_LIFT = 0.5
+#: Vorticity thickness of an ``erf`` free layer (from rest to the edge speed) over its momentum
+#: thickness: ``sqrt(2) pi`` (derived: ``int (1 - erf^2) = 2 sqrt(2/pi)``). A tripped side's free
+#: layer starts with its separating profile's momentum thickness (the profile's own largest
+#: slope is at the wall).
+ERF_VORTICITY_OVER_THETA = math.sqrt(2.0) * math.pi
+#: Behind a tripped side's separation, the reverse flow's no-slip layer is this share of the
+#: laminar construction's (in units of the 99 % thickness): the backflow under a detached
+#: turbulent layer is thin against the layer, its largest speed within about a fifth of it
+#: (Simpson's measurements; memory, order only). With the thick layer's whole no-slip length
+#: the wall shear would turn about 10 deg behind Head's separation, with it about 5 (tested).
+TRIPPED_WALL_SHARE = 0.25
 
 
 class UniformTable:
@@ -93,11 +113,25 @@ class SideSpec:
         Angle between the free layer's centreline and the wall tangent at separation (>= 0).
     turning_radii : float
         Arc length (ball radii) over which the free layer turns to the wake direction.
+    trip_deg : float or None
+        Angle from the front stagnation point where the layer is tripped turbulent (by the
+        seam): laminar (Thwaites) up to it, turbulent (Head's method) behind it. None: laminar
+        to separation.
     """
 
     measured_weight: float = 1.0
     departure_deg: float = 10.0
     turning_radii: float = 1.0
+    trip_deg: float | None = None
+
+
+def side_separation_rad(spec: SideSpec, reynolds_radius: float) -> float:
+    """Where a side's layer separates, rad from the front stagnation point."""
+    if spec.trip_deg is None:
+        return thwaites_mangler(spec.measured_weight).t_sep
+    return head_tripped_layer(
+        spec.measured_weight, math.radians(spec.trip_deg), reynolds_radius
+    ).t_sep
 
 
 @dataclass(frozen=True)
@@ -149,7 +183,7 @@ class SideFlow:
     """One side's attached layer, free shear layer path and outer-flow slip, in px.
 
     Built from Thwaites' method on the side's surface velocity at the Reynolds number
-    ``reynolds_radius = U R / nu``; ``sign`` is +1 for the upper side and -1 for the lower one.
+    ``reynolds_radius = U R / nu`` (and Head's behind a trip); ``sign`` is +1 for the upper side and -1 for the lower one.
     """
 
     def __init__(
@@ -164,34 +198,89 @@ class SideFlow:
         table: FalknerSkanTable,
     ):
         self.spec, self.sign, self.radius_px, self.speed_px = spec, sign, radius_px, speed_px
-        layer = thwaites_mangler(spec.measured_weight)
-        self.t_sep = layer.t_sep
-        self.ue_sep_px = float(layer.ue[-1]) * speed_px
-        # attached layer along t: momentum thickness, matched profile and its length scale
-        theta_px = radius_px * layer.theta_over_r(reynolds_radius)
-        shear = thwaites_shear(layer.lam)
-        self.profile_index = np.interp(
-            shear, table.shear_parameter, np.arange(table.wall_shear.size)
-        )
-        theta_eta = np.interp(self.profile_index, np.arange(table.wall_shear.size), table.theta)
-        self.length_px = theta_px / theta_eta  # y = length * eta
-        self.attached_table = _resample(layer.t, [self.length_px, self.profile_index], 2048)
-        self.attached_reach_px = float(self.length_px.max()) * float(table.eta[-1])
-        sep_len = float(self.length_px[-1])
-        self.theta_sep_px = float(theta_px[-1])
-        self.delta99_sep_px = sep_len * float(table.delta99[0])
-        self.vorticity_thickness_sep_px = sep_len / float(table.max_slope[0])
-        # free layer: starts where the separating profile is at half the edge speed
-        half_eta = float(np.interp(0.5, table.df[0], table.eta))
-        self.start_height_px = half_eta * sep_len
+        self.table = table
+        self._laminar_layer(thwaites_mangler(spec.measured_weight), reynolds_radius)
+        if spec.trip_deg is not None:
+            self._tripped_layer(reynolds_radius)
         u1 = self.ue_sep_px
         u2 = -wake.reverse_ratio * u1
         self.spreading_rate = wake.spreading_coefficient * (u1 - u2) / (u1 + u2)
-        self.wall_layer_px = self.delta99_sep_px
+        # under a tripped side's thick layer the reverse flow hugs the wall (TRIPPED_WALL_SHARE)
+        share = 1.0 if spec.trip_deg is None else TRIPPED_WALL_SHARE
+        self.wall_layer_px = share * self.delta99_sep_px
         self.xi_sep_px = -radius_px * math.cos(self.t_sep)
         self.handover_px = HANDOVER_DELTA99 * self.delta99_sep_px * max(math.sin(self.t_sep), 0.5)
         self._outer_slip()
         self._free_layer_path(wake, reach_px)
+
+    # --- attached layer -----------------------------------------------------------------------
+    def _laminar_layer(self, layer, reynolds_radius: float) -> None:
+        """The laminar layer to separation: Falkner-Skan profiles matched to Thwaites' states."""
+        table, radius_px = self.table, self.radius_px
+        self.t_sep = layer.t_sep
+        self.t_trip = math.inf
+        self.ue_sep_px = float(layer.ue[-1]) * self.speed_px
+        # attached layer along t: momentum thickness, matched profile and its length scale
+        theta_px = radius_px * layer.theta_over_r(reynolds_radius)
+        shear = thwaites_shear(layer.lam)
+        profile_index = np.interp(shear, table.shear_parameter, np.arange(table.wall_shear.size))
+        theta_eta = np.interp(profile_index, np.arange(table.wall_shear.size), table.theta)
+        length_px = theta_px / theta_eta  # y = length * eta
+        self.attached_table = _resample(layer.t, [length_px, profile_index], 2048)
+        self.attached_reach_px = float(length_px.max()) * float(table.eta[-1])
+        sep_len = float(length_px[-1])
+        self.theta_sep_px = float(theta_px[-1])
+        self.delta99_sep_px = sep_len * float(table.delta99[0])
+        self.vorticity_thickness_sep_px = sep_len / float(table.max_slope[0])
+        # the free layer starts where the separating profile is at half the edge speed
+        self.start_height_px = float(np.interp(0.5, table.df[0], table.eta)) * sep_len
+
+    def _tripped_layer(self, reynolds_radius: float) -> None:
+        """Behind the trip: one-seventh-law and wake profiles matched to Head's states."""
+        layer = head_tripped_layer(
+            self.spec.measured_weight, math.radians(self.spec.trip_deg), reynolds_radius
+        )
+        profiles = turbulent_profiles()
+        self.t_trip, self.t_sep = layer.t_trip, layer.t_sep
+        self.ue_sep_px = float(layer.ue[-1]) * self.speed_px
+        theta_px = self.radius_px * layer.theta_over_r
+        row = profiles.row(layer.shape_factor)
+        delta_px = theta_px / np.interp(row, np.arange(profiles.theta.size), profiles.theta)
+        self.tripped_table = _resample(layer.t, [delta_px, row], 2048)
+        self.attached_reach_px = max(
+            self.attached_reach_px, float(delta_px.max()) * profiles.ETA_MAX
+        )
+        separating = profiles.df[-1]
+        sep_delta = float(delta_px[-1])
+        self.theta_sep_px = float(theta_px[-1])
+        self.delta99_sep_px = float(np.interp(0.99, separating, profiles.eta)) * sep_delta
+        self.vorticity_thickness_sep_px = ERF_VORTICITY_OVER_THETA * self.theta_sep_px
+        self.start_height_px = float(np.interp(0.5, separating, profiles.eta)) * sep_delta
+
+    def attached_profile(self, t, d):
+        """``u/Ue`` of the attached layer at angle ``t`` and wall distance ``d``.
+
+        Beyond separation the separating profile is kept (frozen) for the handover, on a
+        tripped side lifted off the wall (``TRIPPED_LIFT``); behind a trip the laminar profile
+        turns into the turbulent one over ``TRANSITION_RAD``.
+        """
+        table = self.table
+        length, index = self.attached_table(np.minimum(t, min(self.t_sep, self.t_trip)))
+        step = table.eta[1] - table.eta[0]
+        eta_index = np.minimum(d / length / step, table.eta.size - 1.0)
+        laminar = map_coordinates(table.df, [index, eta_index], order=1, mode="nearest")
+        if not math.isfinite(self.t_trip):
+            return laminar
+        profiles = turbulent_profiles()
+        delta, row = self.tripped_table(np.clip(t, self.t_trip, self.t_sep))
+        step = profiles.eta[1] - profiles.eta[0]
+        eta_index = np.minimum(d / delta / step, profiles.eta.size - 1.0)
+        turbulent = map_coordinates(profiles.df, [row, eta_index], order=1, mode="nearest")
+        lift = TRIPPED_LIFT * self.radius_px * np.maximum(t - self.t_sep, 0.0)
+        with np.errstate(divide="ignore"):
+            turbulent *= -np.expm1(-((d / lift) ** 2))
+        w = np.clip((t - self.t_trip) / TRANSITION_RAD, 0.0, 1.0)
+        return laminar + (turbulent - laminar) * (w * w * (3.0 - 2.0 * w))
 
     # --- outer flow ---------------------------------------------------------------------------
     def _outer_slip(self) -> None:
@@ -239,17 +328,6 @@ class SideFlow:
         ur = -u * np.cos(t) * (1.0 - k3) - big_r * g / r**2 * slip_k
         ut = u * np.sin(t) * (1.0 + 0.5 * k3) + big_r / r * dg * slip
         return ur, ut
-
-    # --- attached layer -----------------------------------------------------------------------
-    def attached_profile(self, t, d, table: FalknerSkanTable):
-        """``u/Ue`` of the attached layer at angle ``t`` and wall distance ``d``.
-
-        Beyond separation the separating profile is kept (frozen) for the handover.
-        """
-        length, index = self.attached_table(np.minimum(t, self.t_sep))
-        step = table.eta[1] - table.eta[0]
-        eta_index = np.minimum(d / length / step, table.eta.size - 1.0)
-        return map_coordinates(table.df, [index, eta_index], order=1, mode="nearest")
 
     # --- free shear layer ---------------------------------------------------------------------
     def _free_layer_path(self, wake: WakeSpec, reach_px: float) -> None:
@@ -476,7 +554,7 @@ class BallWake:
         # attached layer (frozen separating profile beyond t_sep)
         bl_r, bl_t = ur, ut.copy()
         near = np.nonzero(d < side.attached_reach_px)
-        bl_t[near] *= side.attached_profile(t[near], d[near], self.table)
+        bl_t[near] *= side.attached_profile(t[near], d[near])
         xi = -p
         w = np.clip((xi - side.xi_sep_px) / side.handover_px, 0.0, 1.0)
         w = w * w * (3.0 - 2.0 * w)

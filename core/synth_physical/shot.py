@@ -20,7 +20,7 @@ from core.synth_physical.camera import (
     paint_ball,
     surface_level,
 )
-from core.synth_physical.flow import BallWake, SideSpec, WakeSpec
+from core.synth_physical.flow import BallWake, SideSpec, WakeSpec, side_separation_rad
 from core.synth_shot import ShotTruth
 
 #: Reynolds number U D / nu of a smooth sphere's drag crisis (Achenbach 1972; memory): beyond it a
@@ -36,8 +36,9 @@ class PhysicalShotTruth(ShotTruth):
     """Truth of a physically built shot: the first family's fields and what made the flow.
 
     Per-side pairs are ``(upper, lower)``; lengths in px unless named otherwise. ``upper_deg`` /
-    ``lower_deg`` are where the attached layer's wall shear vanishes (Thwaites' separation), in
-    the README's convention (angle from the front stagnation point - 90 deg).
+    ``lower_deg`` are where the attached layer's wall shear vanishes (Thwaites' separation), or
+    on a tripped side where Head's method separates the turbulent layer, in the README's
+    convention (angle from the front stagnation point - 90 deg).
     """
 
     reynolds_number: float = 0.0  # U D / nu
@@ -50,6 +51,7 @@ class PhysicalShotTruth(ShotTruth):
     spreading_coefficient: float = 0.18  # c in d(delta_w)/dx = c (U1 - U2)/(U1 + U2)
     spreading_rate: tuple[float, float] = (0.0, 0.0)  # d(delta_w)/dx of each free layer
     measured_share: tuple[float, float] = (1.0, 1.0)
+    trip_deg: tuple[float | None, float | None] = (None, None)  # from the front stagnation point
     turning_px: tuple[float, float] = (0.0, 0.0)
     closure_px: float = 0.0  # ball centre to the end of the recirculation, along the wake
     surface: str = "dark"
@@ -100,6 +102,7 @@ def physical_flow(
     measured_share: tuple[float, float] = (1.0, 0.6),
     departure_deg: tuple[float, float] = (10.0, 12.0),
     turning_radii: tuple[float, float] = (1.0, 1.0),
+    trip_deg: tuple[float | None, float | None] = (None, None),
     wake_deflection_deg: float | None = None,
     spreading_coefficient: float = 0.18,
     reverse_ratio: float = 0.1,
@@ -125,11 +128,11 @@ def physical_flow(
     scale = ball_diameter_mm / (2.0 * radius_px)
     radius_m = 0.5e-3 * ball_diameter_mm
     nu = air_kinematic_viscosity(air_temp_c)
+    laminar = [share for share, trip in zip(measured_share, trip_deg) if trip is None]
     if layer_px is not None:
-        factor = 0.5 * (
-            separation_thickness_factor(measured_share[0])
-            + separation_thickness_factor(measured_share[1])
-        )
+        if not laminar:
+            raise ValueError("layer_px sets the laminar sides' thickness: give a side no trip")
+        factor = float(np.mean([separation_thickness_factor(share) for share in laminar]))
         reynolds_radius = (factor * radius_px / layer_px) ** 2
         if speed_m_s is None:
             speed_m_s = reynolds_radius * nu / radius_m
@@ -151,8 +154,14 @@ def physical_flow(
             float(np.clip(0.5 * (height - 1) + 0.22 * height * fy, margin, height - 1 - margin)),
         )
     reach = math.hypot(width, height) + 2.0 * radius_px
+    specs = [
+        SideSpec(share, departure, turning, trip)
+        for share, departure, turning, trip in zip(
+            measured_share, departure_deg, turning_radii, trip_deg
+        )
+    ]
     if wake_deflection_deg is None:
-        t_up, t_lo = (thwaites_mangler(share).t_sep for share in measured_share)
+        t_up, t_lo = (side_separation_rad(spec, reynolds_radius) for spec in specs)
         wake_deflection_deg = float(np.clip(-0.4 * math.degrees(t_up - t_lo), -10.0, 10.0))
     wake = WakeSpec(
         wake_deflection_deg,
@@ -167,8 +176,8 @@ def physical_flow(
         shift_px,
         flight_deg,
         reynolds_radius,
-        SideSpec(measured_share[0], departure_deg[0], turning_radii[0]),
-        SideSpec(measured_share[1], departure_deg[1], turning_radii[1]),
+        specs[0],
+        specs[1],
         wake,
         reach,
         rng,
@@ -199,6 +208,7 @@ def physical_flow(
         spreading_coefficient=spreading_coefficient,
         spreading_rate=(up.spreading_rate, lo.spreading_rate),
         measured_share=(float(measured_share[0]), float(measured_share[1])),
+        trip_deg=tuple(None if trip is None else float(trip) for trip in trip_deg),
         turning_px=(up.turning_px, lo.turning_px),
         closure_px=flow.closure_xi_px,
         held=held,
@@ -221,6 +231,7 @@ def physical_shot(
     measured_share: tuple[float, float] = (1.0, 0.6),
     departure_deg: tuple[float, float] = (10.0, 12.0),
     turning_radii: tuple[float, float] = (1.0, 1.0),
+    trip_deg: tuple[float | None, float | None] = (None, None),
     wake_deflection_deg: float | None = None,
     spreading_coefficient: float = 0.18,
     reverse_ratio: float = 0.1,
@@ -268,7 +279,7 @@ def physical_shot(
     center_px : (float, float), optional
         Ball centre at mid-exposure; by default ahead of the frame centre so the wake fits.
     layer_px : float, optional
-        Mean of the two sides' 99 % layer thickness at separation, px. It sets the Reynolds
+        Mean of the untripped sides' 99 % layer thickness at separation, px. It sets the Reynolds
         number (``delta99 / R ~ 1/sqrt(Re)``): through the speed when ``speed_m_s`` is None,
         else through the kinematic viscosity (a fluid other than air at ``air_temp_c``; the truth
         records it). Layers thinner than ``0.008-0.010 R`` need a Reynolds number beyond a
@@ -282,6 +293,11 @@ def physical_shot(
         Per side, angle of the free layer's centreline from the wall tangent, 0-25 deg.
     turning_radii : (float, float)
         Per side, arc length (radii) over which the free layer turns to the wake direction.
+    trip_deg : (float or None, float or None)
+        Per side, where the seam trips the layer turbulent (deg from the front stagnation point,
+        before laminar separation): Head's entrainment method carries it from there to a
+        turbulent separation, later and from a thicker layer (at ``measured_share`` 0.05-0.2,
+        +18 to +30 deg); its thickness follows from the Reynolds number ``layer_px`` sets.
     wake_deflection_deg : float, optional
         Wake direction behind the ball, positive toward the upper side; by default the wake
         turns toward the side that separates first, 0.4 deg per deg of difference.
@@ -335,6 +351,7 @@ def physical_shot(
         measured_share=measured_share,
         departure_deg=departure_deg,
         turning_radii=turning_radii,
+        trip_deg=trip_deg,
         wake_deflection_deg=wake_deflection_deg,
         spreading_coefficient=spreading_coefficient,
         reverse_ratio=reverse_ratio,
