@@ -215,7 +215,8 @@ def _both_families(records: list[dict]) -> bool:
 def tables(records: list[dict]) -> str:
     """The markdown tables of the benchmark: the families as drawn, then the runs with
     conditions set apart (``--displacement``, ``--seeding``, ``--particles``, ``--magnify``,
-    ``--tilt``, ``--spreading``, another ``--seed``), each setting in its own rows."""
+    ``--tilt``, ``--spreading``, ``--tripped``, another ``--seed``), each setting in its own
+    rows."""
     drawn = [r for r in records if r.get("setting") is None]
     lines = _family_tables(drawn) if drawn else []
     moved = [r for r in records if r.get("setting") is not None]
@@ -228,9 +229,12 @@ def tables(records: list[dict]) -> str:
                    "(kinematic) or 1.5-4 px (physical), ball radius 150-250 px in 1024 x 768 "
                    "frames (kinematic) or 150-260 px in 1280 x 1024 (physical); "
                    "flight within 5 deg of the picture's rows, free layers spreading at a "
-                   "turbulent mixing layer's rate, 0.1-0.3 (kinematic) or 0.15-0.3 (physical); "
+                   "turbulent mixing layer's rate, 0.1-0.3 (kinematic) or 0.15-0.3 (physical), "
+                   "laminar layers on both sides (physical); "
                    "`--displacement`, `--seeding`, `--particles`, `--magnify`, `--tilt`, "
-                   "`--spreading`), and other draws of the same families "
+                   "`--spreading`, `--tripped`: one side of each physical shot tripped "
+                   "turbulent by the seam, its rows split into the tripped and the laminar "
+                   "sides), and other draws of the same families "
                    "(`--seed`; the tables above are of seed 11, measured again and again while "
                    "the method was developed):"), "",
                   ("| family | set | condition | sides | refused | median abs error (deg) | "
