@@ -27,7 +27,7 @@ frame F times larger in px), ``--tilt DEG`` (flight direction turned) and ``--sp
 ``--shots`` shots with that condition set for every shot instead of the family's own draw;
 ``--tripped`` (physical family only) trips one side of every shot turbulent at a seam 20-60 deg
 from the front stagnation point, as a seam does on a swinging ball, Head's method carrying the
-layer to a later separation from a thicker layer;
+layer to a later separation (+6 to +30 deg) from a thicker layer;
 ``--seed`` other than the tables' 11 measures other draws of the families. ``--from`` takes
 several files, and such runs get their own table.
 """
@@ -374,11 +374,11 @@ def spreading(family: str, kwargs: dict, rate: float) -> dict:
 
 
 #: Where the seam trips a side (deg from the front stagnation point), and the tripped side's
-#: surface-velocity blend: Head's method then separates it 106-120 deg from the front stagnation
-#: point (+16 to +30 deg), about where a sphere's turbulent layer leaves beyond the drag crisis
-#: (Achenbach 1972; memory).
+#: surface-velocity blend: Head's method then separates it about 96-120 deg from the front
+#: stagnation point (+6 to +30 deg): from a subcritical ball's seam side to where a sphere's
+#: turbulent layer leaves beyond the drag crisis (about 115-120 deg, Achenbach 1972; memory).
 TRIP_DEG = (20.0, 60.0)
-TRIPPED_SHARE = (0.05, 0.2)
+TRIPPED_SHARE = (0.05, 0.65)
 
 
 def tripped(kwargs: dict) -> dict:

@@ -55,20 +55,26 @@ SEED = 20261130
 #   Annu. Rev. Fluid Mech. 17:151, memory); the delay is largest near 25-30 deg of seam angle,
 #   where the swing of a new ball peaks around 30 m/s (same source, memory), and small at 0 deg
 #   (seam straight up the flight) and beyond 40 deg (seam too far round to trip in time).
-# The synthetic family has no tripped layer: it reaches a later separation through a surface
-# velocity between the measured one (separation at -8.9 deg) and potential flow's (+13.6 deg),
-# which ``weight_for_separation`` chooses so that the layer separates at the model's angle.
+# The synthetic family reaches these angles through the surface velocity: between the measured
+# one (a laminar layer separates at -8.9 deg on it) and potential flow's (+13.6 deg), chosen by
+# ``weight_for_separation``; where the seam side leaves later than a tripped layer can on the
+# measured surface velocity (TRIPPED_FROM_DEG), its layer is tripped at the seam (Head's method
+# carrying it turbulent to separation, ``tripped_weight_for_separation`` choosing the surface
+# velocity), else it stays laminar.
 LAMINAR_DEG = -8.9
 SEAM_DELAY_MAX_DEG = 20.0
 SEAM_DELAY_PEAK_DEG = 27.0
 SEAM_DELAY_WIDTH_DEG = 14.0
+#: A layer tripped on the measured surface velocity separates at +2.4 deg at the demo's Reynolds
+#: number; seam-side angles from here on are drawn with a tripped layer.
+TRIPPED_FROM_DEG = 3.0
 
 MANIFEST_COLUMNS = ("shot", "dt_s", "scale_mm_per_px", "ball_diameter_mm", "ball_type",
                     "surface", "speed_nominal_m_s", "spin_rpm", "seam_deg", "air_temp_c", "ball",
                     "notes")
 TRUTH_COLUMNS = ("shot", "upper_true_deg", "lower_true_deg", "wake_deflection_true_deg",
                  "speed_true_m_s", "flight_true_deg", "shift_px", "reynolds_number",
-                 "surface", "glint", "shadow_side")
+                 "surface", "glint", "shadow_side", "lower_layer")
 README_START = "<!-- proposals against truth: written by make_demo.py --report -->"
 README_END = "<!-- end of the table -->"
 
@@ -95,6 +101,20 @@ def seam_side_deg(seam_deg: float) -> float:
     return LAMINAR_DEG + delay
 
 
+def _seam_side(lower_deg: float, seam_deg: float, speed_m_s: float) -> tuple[float, float | None]:
+    """The seam side's surface-velocity weight and trip (None: laminar) for its angle."""
+    from core.synth_physical.boundary_layer import (
+        tripped_weight_for_separation,
+        weight_for_separation,
+    )
+    from core.synth_physical.shot import air_kinematic_viscosity
+
+    if lower_deg < TRIPPED_FROM_DEG:
+        return weight_for_separation(lower_deg), None
+    reynolds_radius = speed_m_s * 0.5e-3 * BALL_DIAMETER_MM / air_kinematic_viscosity(AIR_TEMP_C)
+    return tripped_weight_for_separation(lower_deg, seam_deg, reynolds_radius), seam_deg
+
+
 def _launch(rng, index: int, seam: float, ball: str, notes: str) -> DemoShot:
     """One launch: the model's separation plus launch-to-launch scatter, drawn reproducibly."""
     from core.synth_physical.boundary_layer import weight_for_separation
@@ -105,16 +125,19 @@ def _launch(rng, index: int, seam: float, ball: str, notes: str) -> DemoShot:
     height, width = FRAME_SHAPE
     look = {"red 1": ("dark", bool(rng.random() < 0.5)), "red 2": ("dim", False),
             "white 1": ("bright", True)}[ball]
+    speed = round(SPEED_NOMINAL_M_S + rng.normal(0.0, 0.5), 2)
+    lower_share, trip = _seam_side(lower, seam, speed)
     draw = {
         "radius_px": RADIUS_PX,
         "ball_diameter_mm": BALL_DIAMETER_MM,
         "dt_s": DT_S,
         "air_temp_c": AIR_TEMP_C,
-        "speed_m_s": round(SPEED_NOMINAL_M_S + rng.normal(0.0, 0.5), 2),
+        "speed_m_s": speed,
         "flight_deg": round(180.0 + rng.normal(0.0, 0.8), 2),
         "center_px": (round(0.28 * width + rng.normal(0.0, 10.0), 1),
                       round(0.5 * (height - 1) + rng.normal(0.0, 18.0), 1)),
-        "measured_share": (weight_for_separation(upper), weight_for_separation(lower)),
+        "measured_share": (weight_for_separation(upper), lower_share),
+        "trip_deg": (None, trip),
         "departure_deg": (round(rng.uniform(8.0, 14.0), 1), round(rng.uniform(8.0, 14.0), 1)),
         "turning_radii": (round(rng.uniform(0.8, 1.3), 2), round(rng.uniform(0.8, 1.3), 2)),
         "spreading_coefficient": round(rng.uniform(0.16, 0.20), 3),
@@ -219,7 +242,8 @@ def truth_text(shots: list[DemoShot]) -> str:
         rows.append([shot.shot_id, f"{t.upper_deg:.2f}", f"{t.lower_deg:.2f}",
                      f"{t.wake_deflection_deg:.2f}", f"{t.speed_m_s:.2f}", f"{t.flight_deg:.2f}",
                      f"{math.hypot(*t.displacement_px):.4f}", f"{t.reynolds_number:.4g}",
-                     shot.draw["surface"], "yes" if shot.draw["glint"] else "", shadow])
+                     shot.draw["surface"], "yes" if shot.draw["glint"] else "", shadow,
+                     "laminar" if shot.draw["trip_deg"][1] is None else "tripped"])
     return _csv_text(TRUTH_COLUMNS, rows)
 
 

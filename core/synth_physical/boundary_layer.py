@@ -502,6 +502,30 @@ def head_tripped_layer(
     return TrippedLayer(t, states[0], h, ue, float(trip_rad), t_sep)
 
 
+def tripped_weight_for_separation(angle_deg: float, trip_deg: float,
+                                  reynolds_radius: float) -> float:
+    """The measured weight on which a layer tripped at ``trip_deg`` (from the front stagnation
+    point) separates at ``angle_deg`` (from the plane normal to the flight, + rearward), to 4
+    decimals: bisection, separation moving monotonically rearward as the weight falls (at
+    ``Re_R`` 7e4 from +2.4 deg at weight 1 to +42 deg at 0)."""
+
+    def angle(weight):
+        layer = head_tripped_layer(weight, math.radians(trip_deg), reynolds_radius)
+        return math.degrees(layer.t_sep) - 90.0
+
+    if not angle(1.0) <= angle_deg <= angle(0.0):
+        raise ValueError(f"a layer tripped at {trip_deg:g} deg separates between "
+                         f"{angle(1.0):.1f} and {angle(0.0):.1f} deg at this Reynolds number")
+    low, high = 0.0, 1.0
+    for _ in range(20):
+        mid = 0.5 * (low + high)
+        if angle(mid) > angle_deg:
+            low = mid
+        else:
+            high = mid
+    return round(0.5 * (low + high), 4)
+
+
 # --- turbulent velocity profiles ---------------------------------------------------------------
 
 #: Exponent of the attached turbulent profile's power law (the one-seventh law; common practice).
