@@ -17,6 +17,7 @@ from core.synth_physical.boundary_layer import (
     head_march,
     head_tripped_layer,
     separation_angle_deg,
+    tripped_weight_for_separation,
     thwaites_mangler,
     thwaites_momentum,
     weight_for_separation,
@@ -115,6 +116,13 @@ def test_a_tripped_layer_separates_later_from_a_thicker_layer():
     assert math.degrees(abs(early - late)) < 1.0
     with pytest.raises(ValueError, match="laminar separation"):
         head_tripped_layer(0.1, math.radians(110.0), 1e5)
+    # the weight that puts a tripped layer's separation at an angle, found back (the demo's seam
+    # side); angles from the plane normal to the flight
+    for weight in (0.15, 0.55):
+        angle = math.degrees(head_tripped_layer(weight, math.radians(25.0), 7e4).t_sep) - 90.0
+        assert tripped_weight_for_separation(angle, 25.0, 7e4) == pytest.approx(weight, abs=2e-4)
+    with pytest.raises(ValueError, match="separates between"):
+        tripped_weight_for_separation(-5.0, 25.0, 7e4)
 
 
 def test_the_laminar_thickness_prior_starts_near_thwaites_separating_layer():
