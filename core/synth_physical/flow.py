@@ -68,8 +68,9 @@ ERF_VORTICITY_OVER_THETA = math.sqrt(2.0) * math.pi
 #: Behind a tripped side's separation, the reverse flow's no-slip layer is this share of the
 #: laminar construction's (in units of the 99 % thickness): the backflow under a detached
 #: turbulent layer is thin against the layer, its largest speed within about a fifth of it
-#: (Simpson's measurements; memory, order only). With the thick layer's whole no-slip length
-#: the wall shear would turn about 10 deg behind Head's separation, with it about 5 (tested).
+#: (Simpson's measurements; memory, order only). Where the flow next to the wall turns is set by
+#: ``TRIPPED_LIFT`` (within 4 deg behind Head's separation, tested); this share makes the reverse
+#: flow a quarter pixel out three to four times what the whole no-slip length gives.
 TRIPPED_WALL_SHARE = 0.25
 
 
@@ -183,7 +184,8 @@ class SideFlow:
     """One side's attached layer, free shear layer path and outer-flow slip, in px.
 
     Built from Thwaites' method on the side's surface velocity at the Reynolds number
-    ``reynolds_radius = U R / nu`` (and Head's behind a trip); ``sign`` is +1 for the upper side and -1 for the lower one.
+    ``reynolds_radius = U R / nu`` (and Head's behind a trip); ``sign`` is +1 for the upper side
+    and -1 for the lower one.
     """
 
     def __init__(
