@@ -497,13 +497,12 @@ class OuterStream:
         return self._basis(phi, gap_px, self.radius_px, False) @ self.coef_r
 
 
-#: Vectors from this far outside the outline (px) set the stream beside the ball. Until 0.3.16
-#: from 6 px: vectors inside a thick layer's outer part (moving at 0.6-1 of the stream) then
-#: pulled the stream down next to the wall, the layer model was left the rest, a thinner layer
-#: leaving earlier (layers of 6 px and more: fitted at 0.7 of their thickness, picked a median
-#: 1 deg early). Chosen on the kinematic family, reported on the physical one
-#: (docs/separation_accuracy.md, "What was tuned where").
-OUTER_STREAM_GAP_PX = (14.0, 48.0)
+#: Vectors from this far outside the outline (px) set the stream beside the ball. From 14 px
+#: (to 48), clear of a thick layer's outer part, the kinematic family's thick layers were picked
+#: closer to the truth, but with sparse seeding or small particle images a few sides fell 30-35
+#: deg off with a 3-9 deg uncertainty: not used (docs/separation_accuracy.md, "What was tuned
+#: where").
+OUTER_STREAM_GAP_PX = (6.0, 40.0)
 
 
 def outer_stream(
