@@ -17,9 +17,9 @@ from core.synth_physical.boundary_layer import (
     head_march,
     head_tripped_layer,
     separation_angle_deg,
-    tripped_weight_for_separation,
     thwaites_mangler,
     thwaites_momentum,
+    tripped_weight_for_separation,
     weight_for_separation,
 )
 from core.synth_physical.shot import air_kinematic_viscosity
