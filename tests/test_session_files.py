@@ -107,6 +107,23 @@ def test_a_read_only_session_file_is_not_replaced(session_path):
     assert stat.S_IMODE(session_path.stat().st_mode) == 0o444
 
 
+def test_a_file_this_user_may_not_write_despite_its_mode_is_named_so(session_path, monkeypatch):
+    # a writable mode on a file the user still may not write (an immutable file, a share
+    # mounted read-only for this user, an access list): the message must not quote the mode
+    real_access = os.access
+
+    def no_write(path, mode, *args, **kwargs):
+        if mode & os.W_OK and os.fspath(path) == os.fspath(session_path):
+            return False
+        return real_access(path, mode, *args, **kwargs)
+
+    monkeypatch.setattr(os, "access", no_write)
+    with pytest.raises(SessionLocked, match=r"read-only \(this user may not write it\)") as err:
+        Session.open(session_path)
+    assert "mode" not in str(err.value)
+    assert not session_path.with_name("s.h5.lock").exists()
+
+
 # -- clearer errors at open -----------------------------------------------------------------------
 
 
