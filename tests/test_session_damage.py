@@ -380,3 +380,28 @@ def test_the_process_command_names_the_damaged_shot_and_what_to_do(session_path,
     assert not session_path.with_name("s.h5.journal").exists()
     with Session.open(session_path, writable=False) as s:
         assert s["S2"].state == "processed" and s["S1"].pick.reason == "seen damaged"
+
+
+def test_the_sheet_shows_a_damaged_result_in_its_panel_and_makes_the_rest(session_path,
+                                                                           tmp_path):
+    # one shot's stored arrays damaged: the sheet is made, that panel names the damage and the
+    # way to measure the shot again, the other processed shot keeps its field
+    import os
+
+    os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+    import re
+
+    from pypdf import PdfReader
+
+    from app.sheet import make_sheet
+
+    _flip(session_path, _chunk_offset(session_path, "shots/S0/result/dx_px") + 40)
+    out = tmp_path / "sheet.pdf"
+    with Session.open(session_path, writable=False) as s:
+        make_sheet(s, out, per_page=1)
+    pages = [re.sub(r"\s+", " ", page.extract_text()).replace("\ufb01", "fi")  # ligature
+             for page in PdfReader(str(out)).pages]
+    s0 = next(page for page in pages if "Shot S0" in page)
+    s1 = next(page for page in pages if "Shot S1" in page)
+    assert "No field: shot S0: " in s0 and "damaged" in s0 and "process it again by force" in s0
+    assert "No field" not in s1

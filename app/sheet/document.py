@@ -40,6 +40,7 @@ from core.plausibility import session_direction, shot_checks
 from core.store import ProcessState
 from core.store.companions import refuse_session_output
 from core.store.files import atomic_write, failure_cause, near_miss_hint, writing
+from core.store.records import ResultUnreadable
 
 SESSION_RANGE = "session"  # one vorticity colour range for every panel, from the sheet's shots
 
@@ -192,11 +193,21 @@ def _writer(path: Path, title: str) -> QtGui.QPdfWriter:
 
 
 
+def _stored_result(session, record):
+    """A shot's stored result (None before its first run) and, where it cannot be read, why:
+    its panel says so and the rest of the sheet is made."""
+    if record.state == ProcessState.UNPROCESSED:
+        return None, None
+    try:
+        return session.load_result(record.shot_id), None
+    except ResultUnreadable as exc:
+        return None, f"{exc.damage}; process it again by force"
+
+
 def _vorticity_fields(session, records):
     for record in records:
-        if record.state != ProcessState.UNPROCESSED:
-            result = session.load_result(record.shot_id)
-            yield None if result is None else result.vorticity_1_s
+        result, _ = _stored_result(session, record)
+        yield None if result is None else result.vorticity_1_s
 
 
 def _paint_shot_pages(pages: Pages, session, records, per_page: int,
@@ -211,9 +222,8 @@ def _paint_shot_pages(pages: Pages, session, records, per_page: int,
             pages.new_page(f"shots {first} - {last}" if first != last else f"shot {first}")
             cells = panel_cells(per_page, pages.body())
         # a failed shot shows its last run that succeeded, if any (the panel says so)
-        measured = record.state != ProcessState.UNPROCESSED
-        result = session.load_result(record.shot_id) if measured else None
+        result, unreadable = _stored_result(session, record)
         paint_shot(pages.painter, cells[slot], record, result, vorticity_limit_1_s,
-                   shot_checks(record, usual_direction_deg))
+                   shot_checks(record, usual_direction_deg), unreadable=unreadable)
         if progress is not None:
             progress(index + 1, len(records))

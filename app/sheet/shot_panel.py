@@ -67,10 +67,11 @@ def panel_cells(per_page: int, body) -> list[tuple[float, float, float, float]]:
 
 
 def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None,
-               checks=()) -> None:
+               checks=(), unreadable: str | None = None) -> None:
     """One shot's panel in ``cell`` (mm); the vorticity colours run to ``vorticity_limit_1_s``
     (None: the shot's own range); ``checks``: where its ball and flight look wrong
-    (``core.plausibility.shot_checks``)."""
+    (``core.plausibility.shot_checks``); ``unreadable``: why its stored result could not be
+    read (the panel shows it in place of the field)."""
     x, y, w, h = cell
     colour = colours.STATUS_COLOURS.get(record.pick.status, colours.MUTED_INK)
     p.fillRect(rect_mm(x, y, w, 8), qcolor(colours.PAPER_TINT))
@@ -97,9 +98,9 @@ def paint_shot(p, cell, record, result, vorticity_limit_1_s: float | None = None
     rows = number_rows(record, with_metadata=narrow, checks=checks)
     pic, info = _split(p, (x, y + 10, w, h - 10), rows, result, narrow)
     if result is None:
-        reason = record.failure or "not processed yet"
+        reason = unreadable or record.failure or "not processed yet"
         p.fillRect(rect_mm(*pic), qcolor(colours.PAPER_TINT))
-        text(p, rect_mm(pic[0] + 4, pic[1] + pic[3] / 2 - 4, pic[2] - 8, 10),
+        text(p, rect_mm(pic[0] + 4, pic[1] + pic[3] / 2 - 15, pic[2] - 8, 30),
              f"No field: {reason}", 9, italic=True, colour=colours.MUTED_INK,
              flags=QtCore.Qt.AlignmentFlag.AlignCenter)
     else:
