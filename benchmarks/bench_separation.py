@@ -27,7 +27,7 @@ frame F times larger in px), ``--tilt DEG`` (flight direction turned) and ``--sp
 ``--shots`` shots with that condition set for every shot instead of the family's own draw;
 ``--tripped`` (physical family only) trips one side of every shot turbulent at a seam 20-60 deg
 from the front stagnation point, as a seam does on a swinging ball, Head's method carrying the
-layer to a later separation (+6 to +30 deg) from a thicker layer;
+layer to a later separation (+7 to +28 deg) from a thicker layer, at swing speeds (28-40 m/s);
 ``--seed`` other than the tables' 11 measures other draws of the families. ``--from`` takes
 several files, and such runs get their own table.
 """
@@ -132,6 +132,7 @@ def measure_case(family: str, kwargs: dict, setting: str | None = None) -> list[
             "reason": failure if proposal is None else proposal.reason,
             "departure_true_deg": truth.leave_deg[k], "thickness_px": thickness[k],
             "tripped": None if family == "kinematic" else truth.trip_deg[k] is not None,
+            "trips": family != "kinematic" and truth.trip_deg != (None, None),
             "radius_px": truth.radius_px, "seconds": seconds, **look,
             "stream_px": round(truth.speed_m_s * truth.dt_s / (truth.scale_mm_per_px * 1e-3), 2),
             "setting": setting,
@@ -187,8 +188,10 @@ def conditions(rec: dict) -> list[str]:
     rows.append(f"{rec['surface']} ball")
     if rec.get("shadow_side"):
         rows.append("shadowed side" if rec["shadow_side"] == rec["side"] else "lit side, shadow")
-    if rec.get("tripped") is not None and rec.get("setting") and "tripped" in rec["setting"]:
-        rows.append("tripped side" if rec["tripped"] else "laminar side")
+    if rec.get("tripped"):
+        rows.append("tripped side")
+    elif rec.get("tripped") is False and rec.get("trips"):
+        rows.append("laminar side")
     return rows
 
 
@@ -374,23 +377,28 @@ def spreading(family: str, kwargs: dict, rate: float) -> dict:
 
 
 #: Where the seam trips a side (deg from the front stagnation point), and the tripped side's
-#: surface-velocity blend: Head's method then separates it about 96-120 deg from the front
-#: stagnation point (+6 to +30 deg): from a subcritical ball's seam side to where a sphere's
+#: surface-velocity blend: Head's method then separates it about 97-118 deg from the front
+#: stagnation point (+7 to +28 deg): from a subcritical ball's seam side to where a sphere's
 #: turbulent layer leaves beyond the drag crisis (about 115-120 deg, Achenbach 1972; memory).
 TRIP_DEG = (20.0, 60.0)
 TRIPPED_SHARE = (0.05, 0.65)
+#: A tripped shot's speed (m/s), which sets its Reynolds number (1.3e5-2.7e5 on the sweep's
+#: balls): a seam trips the layer of a ball launched at swing speeds; the family's own draw
+#: reaches thick layers through Reynolds numbers down to 1e4, where no turbulent layer lasts.
+TRIPPED_SPEED_M_S = (28.0, 40.0)
 
 
 def tripped(kwargs: dict) -> dict:
-    """A physical case with one side (drawn from its seed) tripped turbulent by the seam, all
-    else as drawn; the drawn layer thickness stays the laminar side's."""
+    """A physical case with one side (drawn from its seed) tripped turbulent by the seam and a
+    swing speed, all else as drawn (the laminar side's thickness then follows the speed)."""
     rng = np.random.default_rng([kwargs["seed"], 7])
     k = int(rng.integers(0, 2))
     trip = [None, None]
     trip[k] = float(rng.uniform(*TRIP_DEG))
     share = list(kwargs["measured_share"])
     share[k] = float(rng.uniform(*TRIPPED_SHARE))
-    return {**kwargs, "trip_deg": tuple(trip), "measured_share": tuple(share)}
+    return {**kwargs, "trip_deg": tuple(trip), "measured_share": tuple(share),
+            "layer_px": None, "speed_m_s": float(rng.uniform(*TRIPPED_SPEED_M_S))}
 
 
 def main() -> None:

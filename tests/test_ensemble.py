@@ -85,7 +85,7 @@ def test_the_ensemble_pick_is_near_the_truth_and_its_interval_covers_it(launches
     # benchmarks/bench_ensemble.py (x1.4 in the median here); on one condition its fit may land
     # on either of two that score nearly alike (this one's upper side lands 2.6 deg off, where
     # the median single shot is 1.3: it passed the median once, on another machine's rounding),
-    # so here it need only beat the worst single shot
+    # so here it may lie up to 1.5 deg beyond the median single shot (1 px of arc is 1.2 deg)
     from dataclasses import replace
 
     from core.shot import ShotSettings, measure_shot
@@ -106,7 +106,7 @@ def test_the_ensemble_pick_is_near_the_truth_and_its_interval_covers_it(launches
         error = abs(proposal.angle_deg - truth)
         alone = [np.inf if a is None else abs(a - x.true_deg(side))
                  for a, x in zip([p.angle_deg for p in singles[side]], launches, strict=True)]
-        assert error < max(alone), (side, error, alone)
+        assert error < np.median(alone) + 1.5, (side, error, alone)
         assert error <= 4.0, (side, error)  # 48 px of radius: 1 px of arc is 1.2 deg
         assert error <= proposal.uncertainty_deg, (side, error, proposal)
         assert "launches" in proposal.budget

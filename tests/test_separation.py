@@ -228,13 +228,13 @@ def test_a_seam_tripped_side_separates_later_and_is_covered_by_its_uncertainty()
     # separation_accuracy.md, Known limits), here by 4-5.5 deg, inside the stated uncertainty
     result, truth = _measure(physical_shot(
         (640, 800), radius_px=150.0, measured_share=(0.1, 1.0), trip_deg=(40.0, None),
-        departure_deg=(10.0, 12.0), layer_px=3.0, seed=3))
+        departure_deg=(10.0, 12.0), speed_m_s=32.0, seed=3))
     picks = {side: (proposal, error) for side, proposal, error in _picks(result, truth)}
     for proposal, error in picks.values():
         assert abs(error) <= proposal.uncertainty_deg, (proposal.angle_deg, error)
     assert truth.upper_deg - truth.lower_deg > 30.0
     upper, lower = picks["upper"][0], picks["lower"][0]
-    assert upper.angle_deg - lower.angle_deg > 20.0  # the asymmetry swing comes from
+    assert upper.angle_deg - lower.angle_deg > 20.0  # the asymmetry a swinging ball shows
     assert abs(picks["lower"][1]) <= 1.5
     assert -7.0 <= picks["upper"][1] <= 1.0
 

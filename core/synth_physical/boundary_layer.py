@@ -343,6 +343,10 @@ TRIPPED_SHAPE_FACTOR = 1.4
 #: value commonly taken with the method, e.g. in White, Viscous Fluid Flow; memory; 1.8-2.4 is
 #: quoted as the range where it separates).
 HEAD_SEPARATION_H = 2.4
+#: Below about this momentum-thickness Reynolds number no turbulent layer sustains itself
+#: (Preston 1958; memory), and Ludwieg-Tillmann's friction law was fitted well above it: a
+#: tripped layer that reaches separation under it is refused.
+MIN_TURBULENT_RE_THETA = 300.0
 
 
 def head_h1(h: np.ndarray | float) -> np.ndarray:
@@ -407,9 +411,9 @@ def head_march(edge, radius, x0: float, x1: float, theta0: float, reynolds: floa
                h0: float = TRIPPED_SHAPE_FACTOR):
     """Head's entrainment method from ``x0`` until the layer separates or ``x1`` is reached.
 
-    Axisymmetric momentum and entrainment equations (Mangler's form with the body's local
-    radius ``r0``; planar with ``r0`` constant; Head 1958, White, Viscous Fluid Flow; memory), in
-    a reference length and speed::
+    The axisymmetric momentum-integral and entrainment equations (with the body's local radius
+    ``r0``; planar with ``r0`` constant; Head 1958, White, Viscous Fluid Flow; memory), in a
+    reference length and speed::
 
         d theta/dx = cf/2 - (H + 2) theta Ue'/Ue - theta r0'/r0
         d(r0 Ue theta H1)/dx = r0 Ue F(H1)
@@ -430,8 +434,11 @@ def head_march(edge, radius, x0: float, x1: float, theta0: float, reynolds: floa
 
     Returns
     -------
-    solution : scipy OdeSolution-like result of ``solve_ivp`` (``y = (theta, r0 Ue theta H1)``,
-        ``sol`` dense), and the separation point (None if the layer reaches ``x1`` attached).
+    solution : scipy's ``solve_ivp`` result (``y = (theta, r0 Ue theta H1)``, ``sol`` dense)
+    separation : float or None
+        Where ``H`` reaches :data:`HEAD_SEPARATION_H` (None: attached up to ``x1``).
+    shape : callable
+        ``(x, y) -> H`` of a state.
     """
     from scipy.integrate import solve_ivp
 
@@ -497,8 +504,11 @@ def head_tripped_layer(
     t = np.linspace(trip_rad, t_sep, points)
     states = solution.sol(t)
     h = np.array([shape(x, y) for x, y in zip(t, states.T)])
-    h[-1] = HEAD_SEPARATION_H
     ue, _ = blended_surface_velocity(t, measured_weight)
+    re_theta = float(ue[-1] * states[0, -1] * reynolds_radius)
+    if re_theta < MIN_TURBULENT_RE_THETA:
+        raise ValueError(f"too low a Reynolds number for a turbulent layer: Re_theta "
+                         f"{re_theta:.0f} at separation, under {MIN_TURBULENT_RE_THETA:.0f}")
     return TrippedLayer(t, states[0], h, ue, float(trip_rad), t_sep)
 
 
@@ -507,7 +517,7 @@ def tripped_weight_for_separation(angle_deg: float, trip_deg: float,
     """The measured weight on which a layer tripped at ``trip_deg`` (from the front stagnation
     point) separates at ``angle_deg`` (from the plane normal to the flight, + rearward), to 4
     decimals: bisection, separation moving monotonically rearward as the weight falls (at
-    ``Re_R`` 7e4 from +2.4 deg at weight 1 to +42 deg at 0)."""
+    ``Re_R`` 7e4 from +2.4 deg at weight 1 to +41 deg at 0)."""
 
     def angle(weight):
         layer = head_tripped_layer(weight, math.radians(trip_deg), reynolds_radius)
@@ -540,9 +550,10 @@ class TurbulentProfiles:
     one-seventh law (common practice) blended with Coles' wake function (Coles 1956; memory),
     ``a`` chosen for the shape factor ``H`` (own form; ``H`` runs from 1.29 at ``a = 0`` to 4 at
     ``a = 1``). At Head's separation (``H = 2.4``) the air still moves next to the wall at a
-    fifth of the edge speed a fiftieth of ``delta`` out, as in Stratford's separating layer,
-    whose velocity grows as the square root of the wall distance (Stratford 1959; memory): the
-    wall shear's zero lies in the viscous sublayer, under a pixel, which the profile leaves out.
+    fifth of the edge speed a fiftieth of ``delta`` out: of the order of Stratford's separating
+    layer, whose velocity grows as the square root of the wall distance (0.14 there; Stratford
+    1959; memory), though this profile grows as its one-seventh power; the wall shear's zero
+    lies in the viscous sublayer, under a pixel, which the profile leaves out.
 
     Attributes
     ----------

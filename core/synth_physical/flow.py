@@ -58,7 +58,8 @@ SLIP_SETTLE_RAD = 0.1
 TRANSITION_RAD = math.radians(5.0)
 #: Behind a tripped side's separation the separating profile, frozen for the handover, is lifted
 #: off the wall: its near-wall air stops below a height that grows at this share of the arc
-#: behind separation (own), so the wall shear turns where Head's method separates the layer.
+#: behind separation, up to half the layer's thickness (own), so the wall shear turns where
+#: Head's method separates the layer.
 TRIPPED_LIFT = 0.5
 #: Vorticity thickness of an ``erf`` free layer (from rest to the edge speed) over its momentum
 #: thickness: ``sqrt(2) pi`` (derived: ``int (1 - erf^2) = 2 sqrt(2/pi)``). A tripped side's free
@@ -253,7 +254,7 @@ class SideFlow:
             self.attached_reach_px, float(delta_px.max()) * profiles.ETA_MAX
         )
         separating = profiles.df[-1]
-        sep_delta = float(delta_px[-1])
+        sep_delta = self.sep_delta_px = float(delta_px[-1])
         self.theta_sep_px = float(theta_px[-1])
         self.delta99_sep_px = float(np.interp(0.99, separating, profiles.eta)) * sep_delta
         self.vorticity_thickness_sep_px = ERF_VORTICITY_OVER_THETA * self.theta_sep_px
@@ -278,9 +279,12 @@ class SideFlow:
         step = profiles.eta[1] - profiles.eta[0]
         eta_index = np.minimum(d / delta / step, profiles.eta.size - 1.0)
         turbulent = map_coordinates(profiles.df, [row, eta_index], order=1, mode="nearest")
-        lift = TRIPPED_LIFT * self.radius_px * np.maximum(t - self.t_sep, 0.0)
-        with np.errstate(divide="ignore"):
-            turbulent *= -np.expm1(-((d / lift) ** 2))
+        # capped at half the separating layer's thickness, so the lifted profile is whole
+        # where the attached layer's reach ends (at 1.5 thicknesses or more)
+        lift = np.minimum(TRIPPED_LIFT * self.radius_px * np.maximum(t - self.t_sep, 0.0),
+                          0.5 * self.sep_delta_px)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            turbulent *= np.where(lift > 0.0, -np.expm1(-((d / lift) ** 2)), 1.0)
         w = np.clip((t - self.t_trip) / TRANSITION_RAD, 0.0, 1.0)
         return laminar + (turbulent - laminar) * (w * w * (3.0 - 2.0 * w))
 
