@@ -100,6 +100,20 @@ def test_head_method_on_a_flat_plate_follows_the_one_seventh_law():
     assert head_h_from_h1(head_h1(h)) == pytest.approx(h, abs=1e-9)
 
 
+def test_head_method_on_a_cone_is_thinner_than_on_a_plate_as_the_power_law_says():
+    # the axisymmetric term: on a cone (r0 = x) at constant speed, with cf/2 ~ theta^-m the
+    # momentum equation gives theta = A x^p, p = 1/(1 + m), on the plate and on the cone, their
+    # ratio (p / (1 + p))^p: 0.524 with Ludwieg-Tillmann's m = 0.268 (derived; H nearly
+    # constant)
+    reynolds, x0 = 1e7, 0.001
+    theta0 = 0.664 * x0 / math.sqrt(x0 * reynolds)
+    plate, _, _ = head_march(lambda x: (1.0, 0.0), lambda x: (1.0, 0.0), x0, 1.0, theta0, reynolds)
+    cone, _, _ = head_march(lambda x: (1.0, 0.0), lambda x: (x, 1.0), x0, 1.0, theta0, reynolds)
+    p = 1.0 / 1.268
+    for x in (0.3, 1.0):
+        assert cone.sol(x)[0] / plate.sol(x)[0] == pytest.approx((p / (1.0 + p)) ** p, rel=0.01)
+
+
 def test_a_tripped_layer_separates_later_from_a_thicker_layer():
     # a turbulent layer stays attached further than the laminar one on the same surface velocity
     # and is thicker there; on nearly potential surface velocities (0.05-0.2 of the measured
