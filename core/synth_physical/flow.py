@@ -203,8 +203,9 @@ class SideFlow:
         self.spec, self.sign, self.radius_px, self.speed_px = spec, sign, radius_px, speed_px
         self.table = table
         self._laminar_layer(thwaites_mangler(spec.measured_weight), reynolds_radius)
-        if spec.trip_deg is not None:  # the laminar layer stays ahead of the trip; the
-            self._tripped_layer(reynolds_radius)  # turbulent one's separation replaces its
+        # behind a trip the turbulent layer and its separation replace the laminar one's
+        if spec.trip_deg is not None:
+            self._tripped_layer(reynolds_radius)
         u1 = self.ue_sep_px
         u2 = -wake.reverse_ratio * u1
         self.spreading_rate = wake.spreading_coefficient * (u1 - u2) / (u1 + u2)
