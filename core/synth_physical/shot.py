@@ -297,7 +297,9 @@ def physical_shot(
         Per side, where the seam trips the layer turbulent (deg from the front stagnation point,
         before laminar separation): Head's entrainment method carries it from there to a
         turbulent separation, later and from a thicker layer (at ``measured_share`` 0.05-0.2,
-        +18 to +30 deg); its thickness follows from the Reynolds number ``layer_px`` sets.
+        +16 to +30 deg); its thickness follows from the Reynolds number (``speed_m_s`` or
+        ``layer_px``). Refused (ValueError) where the layer reaches separation under a
+        momentum-thickness Reynolds number of 300: give swing speeds (``Re_R`` 5e4 and more).
     wake_deflection_deg : float, optional
         Wake direction behind the ball, positive toward the upper side; by default the wake
         turns toward the side that separates first, 0.4 deg per deg of difference.
