@@ -126,7 +126,7 @@ def test_a_tripped_layer_separates_later_from_a_thicker_layer():
         laminar = thwaites_mangler(weight)
         assert tripped.t_sep > laminar.t_sep + math.radians(10.0)
         assert 105.0 <= math.degrees(tripped.t_sep) <= 121.0
-        assert tripped.theta_over_r[-1] > 3.0 * laminar.theta_over_r(re_r)[-1]
+        assert tripped.theta_r[-1] > 3.0 * laminar.theta_over_r(re_r)[-1]
         # the solution itself reaches Head's criterion there (not only the event's label)
         assert tripped.shape_factor[-1] == pytest.approx(HEAD_SEPARATION_H, abs=1e-3)
         assert tripped.shape_factor[0] == pytest.approx(1.4, abs=1e-6)

@@ -392,7 +392,7 @@ class TrippedLayer:
     ----------
     t : (N,) ndarray
         Angle from the front stagnation point, rad, from the trip to separation included.
-    theta_over_r : (N,) ndarray
+    theta_r : (N,) ndarray
         Momentum thickness over the radius.
     shape_factor : (N,) ndarray
         ``H = delta*/theta``.
@@ -403,7 +403,7 @@ class TrippedLayer:
     """
 
     t: np.ndarray
-    theta_over_r: np.ndarray
+    theta_r: np.ndarray
     shape_factor: np.ndarray
     ue: np.ndarray
     t_trip: float

@@ -247,7 +247,7 @@ class SideFlow:
         profiles = turbulent_profiles()
         self.t_trip, self.t_sep = layer.t_trip, layer.t_sep
         self.ue_sep_px = float(layer.ue[-1]) * self.speed_px
-        theta_px = self.radius_px * layer.theta_over_r
+        theta_px = self.radius_px * layer.theta_r
         row = profiles.row(layer.shape_factor)
         delta_px = theta_px / np.interp(row, np.arange(profiles.theta.size), profiles.theta)
         self.tripped_table = _resample(layer.t, [delta_px, row], 2048)
