@@ -184,10 +184,15 @@ def separation_angle_deg(measured_weight: float) -> float:
 def weight_for_separation(angle_deg: float) -> float:
     """The measured weight whose layer separates at ``angle_deg`` (bisection: separation moves
     monotonically from +13.6 deg at weight 0 to -8.9 deg at weight 1), to 4 decimals."""
+    return _weight_for_angle(separation_angle_deg, angle_deg, 24)
+
+
+def _weight_for_angle(angle_of_weight, angle_deg: float, steps: int) -> float:
+    """Bisection on the measured weight, separation moving rearward as the weight falls."""
     low, high = 0.0, 1.0
-    for _ in range(24):
+    for _ in range(steps):
         mid = 0.5 * (low + high)
-        if separation_angle_deg(mid) > angle_deg:
+        if angle_of_weight(mid) > angle_deg:
             low = mid
         else:
             high = mid
@@ -531,14 +536,7 @@ def tripped_weight_for_separation(angle_deg: float, trip_deg: float,
     if not earliest <= angle_deg <= latest:
         raise ValueError(f"a layer tripped at {trip_deg:g} deg separates between "
                          f"{earliest:.1f} and {latest:.1f} deg at this Reynolds number")
-    low, high = 0.0, 1.0
-    for _ in range(20):
-        mid = 0.5 * (low + high)
-        if angle(mid) > angle_deg:
-            low = mid
-        else:
-            high = mid
-    return round(0.5 * (low + high), 4)
+    return _weight_for_angle(angle, angle_deg, 20)
 
 
 # --- turbulent velocity profiles ---------------------------------------------------------------
