@@ -481,6 +481,7 @@ def head_march(edge, radius, x0: float, x1: float, theta0: float, reynolds: floa
     return solution, (float(events[0]) if events.size else None), shape
 
 
+@functools.lru_cache(maxsize=32)
 def head_tripped_layer(
     measured_weight: float, trip_rad: float, reynolds_radius: float, points: int = 601
 ) -> TrippedLayer:
@@ -488,7 +489,8 @@ def head_tripped_layer(
 
     On the sphere in units of ``R`` and ``U`` (``r0 = sin t``). The trip keeps the momentum
     thickness and sets ``H`` to :data:`TRIPPED_SHAPE_FACTOR`. Unlike the laminar layer's, the
-    separation angle depends (weakly) on the Reynolds number.
+    separation angle depends (weakly) on the Reynolds number. Kept for reuse (a shot asks for
+    its sides' separation before it builds their flow): treat the arrays as read-only.
     """
     laminar = thwaites_mangler(measured_weight)
     if not 0.0 < trip_rad < laminar.t_sep:
