@@ -48,7 +48,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from core import WakelineError
-from core.separation import COVERAGE, COVERAGE_K
+from core.separation import COVERAGE, COVERAGE_K, laminar_delta_px
 from core.shot import ShotSettings, measure_shot
 from core.wake import WAKE_COVERAGE_K
 
@@ -134,6 +134,10 @@ def measure_case(family: str, kwargs: dict, setting: str | None = None) -> list[
             "tripped": None if family == "kinematic" else truth.trip_deg[k] is not None,
             "trips": family != "kinematic" and truth.trip_deg != (None, None),
             "radius_px": truth.radius_px, "seconds": seconds, **look,
+            # the laminar layer's thickness the fit's prior starts from, on the measured ball
+            "laminar_px": None if result is None or result.ball_a is None else round(
+                laminar_delta_px(0.5 * (result.ball_a.radius_px + result.ball_b.radius_px),
+                                 result.reynolds), 3),
             "stream_px": round(truth.speed_m_s * truth.dt_s / (truth.scale_mm_per_px * 1e-3), 2),
             "setting": setting,
             "wake_true_deg": truth.wake_deflection_deg,

@@ -160,8 +160,14 @@ class BallFrame:
     def laminar_delta_px(self) -> float:
         """The laminar layer's vorticity thickness at separation (px): where the thickness
         prior's range starts (:data:`core.side_fit.PRIOR_THICKER`)."""
-        re = self.reynolds if self.reynolds and self.reynolds > 0 else FALLBACK_REYNOLDS
-        return LAMINAR_DELTA_COEF * 2.0 * self.radius_px / math.sqrt(re)
+        return laminar_delta_px(self.radius_px, self.reynolds)
+
+
+def laminar_delta_px(radius_px: float, reynolds: float | None) -> float:
+    """A laminar layer's vorticity thickness at separation (px) on a ball of ``radius_px`` at
+    ``reynolds`` (``FALLBACK_REYNOLDS`` when not known)."""
+    re = reynolds if reynolds and reynolds > 0 else FALLBACK_REYNOLDS
+    return LAMINAR_DELTA_COEF * 2.0 * radius_px / math.sqrt(re)
 
 
 def propose_separation(
