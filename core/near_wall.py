@@ -500,8 +500,8 @@ class OuterStream:
 #: Vectors from this far outside the outline (px) set the stream beside the ball. From 14 px
 #: (to 48), clear of a thick layer's outer part, the kinematic family's thick layers were picked
 #: closer to the truth, but with sparse seeding or small particle images a few sides fell 30-35
-#: deg off with a 3-9 deg uncertainty: not used (docs/separation_accuracy.md, "What was tuned
-#: where").
+#: deg off with a 3-9 deg uncertainty: not used (docs/separation_accuracy.md, "The tables, and
+#: what was tried against their errors").
 OUTER_STREAM_GAP_PX = (6.0, 40.0)
 
 
