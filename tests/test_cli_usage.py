@@ -411,3 +411,21 @@ def test_a_folder_that_takes_no_new_files_is_not_called_missing(tmp_path):
     assert failure_cause(refused) == "this folder takes no new files"
     gone = OSError(errno.ENOENT, "No such file or directory", str(tmp_path / "no" / "out.json"))
     assert failure_cause(gone) == "the folder does not exist"
+
+
+def test_a_ctrl_c_inside_compiled_code_stops_like_any_ctrl_c(monkeypatch, tmp_path, capsys):
+    # numba hands a KeyboardInterrupt that reaches compiled code on as a SystemError (seen on
+    # `timeout -s INT` over `wakeline process`): it was reported as an internal error
+    from app.cli import pair
+
+    def interrupted(_args):
+        try:
+            raise KeyboardInterrupt
+        except KeyboardInterrupt as exc:
+            raise SystemError("CPUDispatcher(...) returned a result with an exception set") from exc
+
+    monkeypatch.setattr(pair, "run_pair", interrupted)
+    monkeypatch.setenv("WAKELINE_HOME", str(tmp_path / "home"))
+    assert main(["pair", "a.tif", "b.tif"]) == 1
+    assert capsys.readouterr().err.strip() == "wakeline: stopped"
+    assert not (tmp_path / "home" / "wakeline-errors.log").exists()

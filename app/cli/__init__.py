@@ -109,9 +109,24 @@ def main(argv: list[str] | None = None) -> int:
         print(f"wakeline: {where}{exc.strerror or exc}", file=sys.stderr)
         return 1
     except Exception as exc:  # noqa: BLE001 - a bug of ours: traceback to the log, not the screen
+        if _interrupted(exc):
+            print("wakeline: stopped", file=sys.stderr)
+            return 1
         log = write_crash_log()
         print(f"wakeline: internal error: {type(exc).__name__}: {exc} ({log})", file=sys.stderr)
         return 1
+
+
+def _interrupted(exc: BaseException) -> bool:
+    """Whether ``exc`` was raised by a Ctrl-C: compiled code (numba) that a KeyboardInterrupt
+    reaches hands it on wrapped in a SystemError, its cause or context."""
+    seen = set()
+    while exc is not None and id(exc) not in seen:
+        if isinstance(exc, KeyboardInterrupt):
+            return True
+        seen.add(id(exc))
+        exc = exc.__cause__ or exc.__context__
+    return False
 
 
 def _printable_anywhere() -> None:
