@@ -1,5 +1,6 @@
 """Output paths of the commands never overwrite what they read: the session, its companion files,
-its frames or the input frames of `pair`; a folder given as output is refused, leaving nothing."""
+its frames or the input frames of `pair`, nor another session (any HDF5 file) or its companion
+files; a folder given as output is refused, leaving nothing."""
 
 from __future__ import annotations
 
@@ -44,6 +45,41 @@ def test_the_session_reached_by_another_name_is_refused(session_path, capsys):
     assert main(["table", str(session_path), "-o", str(link)]) == 1
     assert "is the session" in capsys.readouterr().err
     assert link.is_symlink()
+
+
+@pytest.mark.parametrize("target", ["other.h5", "other.h5.journal", "other.h5.lock"])
+def test_table_refuses_to_overwrite_another_session_or_its_files(session_path, target, capsys):
+    # `table s.h5 -o other.h5` once replaced the other session by a CSV, even while a process
+    # held it open (which then could not save it)
+    import shutil
+
+    folder = session_path.parent
+    shutil.copy(session_path, folder / "other.h5")
+    for companion in ("other.h5.journal", "other.h5.lock"):
+        (folder / companion).write_bytes(b"kept")
+    before = _files(folder)
+    assert main(["table", str(session_path), "-o", str(folder / target)]) == 1
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and target in err and "choose another" in err
+    assert ("HDF5" in err) == (target == "other.h5")
+    assert _files(folder) == before
+
+
+@pytest.mark.parametrize("option", ["--vectors", "--json"])
+def test_pair_refuses_to_overwrite_a_session(session_path, option, capsys):
+    src = session_path.parent / "src"
+    before = session_path.read_bytes()
+    code = main(["pair", str(src / "S0_a.tif"), str(src / "S0_b.tif"), "--no-ball",
+                 option, str(session_path)])
+    assert code == 1 and "is an HDF5 file (a session?)" in capsys.readouterr().err
+    assert session_path.read_bytes() == before
+
+
+def test_a_csv_is_written_over_an_old_csv_as_before(session_path, capsys):
+    old = session_path.parent / "old.csv"
+    old.write_text("shot\n")
+    assert main(["table", str(session_path), "-o", str(old)]) == 0
+    assert old.read_text().startswith("shot,")
 
 
 @pytest.mark.parametrize("option", ["--vectors", "--json"])

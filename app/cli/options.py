@@ -108,11 +108,12 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
     Raises
     ------
     WakelineError
-        "OUT: is ...; choose another output file", "OUT: is a folder; ..." or "OUT: is not
-        an ordinary file ..." (outputs are written beside and renamed over: a pipe or a device
-        would be replaced by a file).
+        "OUT: is ...; choose another output file" (the session, its companions, its frames
+        or their manifest, another HDF5 file or its companions), "OUT: is a folder; ..." or
+        "OUT: is not an ordinary file ..." (outputs are written beside and renamed over: a
+        pipe or a device would be replaced by a file).
     """
-    from core.store.companions import refuse_input_file, refuse_session_file
+    from core.store.companions import refuse_input_file, refuse_other_session, refuse_session_file
     from core.store.files import same_place
 
     seen: list[Path] = []
@@ -125,6 +126,7 @@ def check_outputs(outputs, session: Path | None = None, inputs=()) -> None:
         if session is not None:
             refuse_session_file(out, Path(session))
         refuse_input_file(out, inputs)
+        refuse_other_session(out)
         if any(same_place(out, other) for other in seen):
             raise WakelineError(f"{out}: given for both outputs; choose another output file")
         seen.append(out)

@@ -55,6 +55,33 @@ def refuse_input_file(out: Path, inputs) -> None:
                                 "imported with; choose another output file")
 
 
+#: The first bytes of every HDF5 file (the HDF5 format specification's signature).
+HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+
+
+def _is_hdf5(path: Path) -> bool:
+    try:
+        with path.open("rb") as file:
+            return file.read(len(HDF5_SIGNATURE)) == HDF5_SIGNATURE
+    except OSError:
+        return False
+
+
+def refuse_other_session(out: Path) -> None:
+    """Refuse to write a table or a picture over an HDF5 file (another session, perhaps one a
+    process has open) or a companion file of one: ``-o other.h5`` replaced a whole session,
+    and a running process then lost its file."""
+    out = Path(out)
+    if out.is_file() and _is_hdf5(out):
+        raise WakelineError(f"{out}: is an HDF5 file (a session?); choose another output file")
+    for kind, word in _COMPANION_WORDS.items():
+        suffix = companion_files(Path("S.h5"))[kind].name[len("S.h5"):]
+        owner = out.with_name(out.name[: -len(suffix)]) if out.name.endswith(suffix) else None
+        if owner is not None and owner.is_file() and _is_hdf5(owner):
+            raise WakelineError(f"{out}: is {word} (of the session {owner.name}); choose "
+                                "another output file")
+
+
 def session_frame_files(session) -> list[Path]:
     """The frame files an open session refers to (embedded frames are not files)."""
     files = []
@@ -70,6 +97,7 @@ def refuse_session_output(out: Path, session) -> None:
     reads: the snapshot and its companions, its frame files and their ``shots.csv``."""
     refuse_session_file(Path(out), Path(session.path))
     refuse_input_file(Path(out), session_frame_files(session))
+    refuse_other_session(Path(out))
 
 
 def session_path(path) -> Path:
