@@ -87,6 +87,11 @@ def run_demo(args: argparse.Namespace) -> int:
         print(f"wakeline: {display.missing_libraries_message(missing)}; writing the shot sheet "
               "and the table instead of opening the window", file=sys.stderr)
         return write_demo_outputs(session_path)
+    unreachable = display.unreachable_display()
+    if unreachable:
+        print(f"wakeline: {unreachable}; writing the shot sheet and the table instead of "
+              "opening the window", file=sys.stderr)
+        return write_demo_outputs(session_path)
     from app.qt.window import run_window
 
     return run_window(session_path)
