@@ -405,3 +405,21 @@ def test_the_sheet_shows_a_damaged_result_in_its_panel_and_makes_the_rest(sessio
     s1 = next(page for page in pages if "Shot S1" in page)
     assert "No field: shot S0: " in s0 and "damaged" in s0 and "process it again by force" in s0
     assert "No field" not in s1
+
+
+def test_the_sheet_command_names_the_damaged_shots_on_stderr(session_path, tmp_path, capsys):
+    # the sheet was made and the command said only "N page(s), M shot(s)": a damaged result
+    # was seen only by whoever read that panel
+    import os
+
+    os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+    from app.cli import main
+
+    _flip(session_path, _chunk_offset(session_path, "shots/S0/result/dx_px") + 40)
+    out = tmp_path / "sheet.pdf"
+    assert main(["sheet", str(session_path), "-o", str(out)]) == 0
+    captured = capsys.readouterr()
+    assert out.exists() and "page(s)" in captured.out
+    assert captured.err == (
+        f"wakeline: stored result damaged, its panel says so: S0; measure again with "
+        f"'wakeline process {session_path} --force --shots S0'\n")

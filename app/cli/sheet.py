@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
 
 from app.cli.options import UsageError, check_outputs
@@ -104,4 +105,13 @@ def run_sheet(args: argparse.Namespace) -> int:
             except ColumnError as exc:  # a column the session lacks: bad usage
                 raise UsageError(f"argument {exc}") from None
     print(f"{report.path}: {report.pages} page(s), {len(report.shot_ids)} shot(s)")
+    if report.damaged:
+        print(f"wakeline: {damaged_note(report.damaged, args.session)}", file=sys.stderr)
     return 0
+
+
+def damaged_note(shot_ids: list[str], session) -> str:
+    """One line on shots whose stored result could not be read (their panels say so)."""
+    names = " ".join(shot_ids)
+    return (f"stored result damaged, its panel says so: {names}; measure again with "
+            f"'wakeline process {session} --force --shots {names}'")

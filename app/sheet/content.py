@@ -6,7 +6,7 @@ of ``app.review.text``).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
 
@@ -39,6 +39,7 @@ class SheetReport:
     path: Path
     pages: int
     shot_ids: list[str]
+    damaged: list[str] = field(default_factory=list)  # shots whose stored result is unreadable
 
 
 def parse_statuses(text: str | None) -> tuple[str, ...] | None:

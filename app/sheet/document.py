@@ -146,13 +146,14 @@ def make_sheet(
             if conditions:
                 paint_conditions_page(pages, session, all_records, conditions, by, ensembles,
                                       printed=len(records))
-            _paint_shot_pages(pages, session, records, per_page, vorticity_limit_1_s, progress,
-                              session_direction(all_records))
+            damaged = _paint_shot_pages(pages, session, records, per_page,
+                                        vorticity_limit_1_s, progress,
+                                        session_direction(all_records))
         finally:
             painter.end()
             del writer  # closes the file
         _check_whole_pdf(tmp, out_path)  # before it replaces an earlier sheet
-    return SheetReport(out_path, pages.number, [r.shot_id for r in records])
+    return SheetReport(out_path, pages.number, [r.shot_id for r in records], damaged)
 
 
 def _check_whole_pdf(tmp: Path, out_path: Path) -> None:
@@ -212,8 +213,9 @@ def _vorticity_fields(session, records):
 
 def _paint_shot_pages(pages: Pages, session, records, per_page: int,
                       vorticity_limit_1_s: float | None, progress,
-                      usual_direction_deg: float | None = None) -> None:
-    cells = None
+                      usual_direction_deg: float | None = None) -> list[str]:
+    """The shots' panels; returns the shots whose stored result could not be read."""
+    cells, damaged = None, []
     for index, record in enumerate(records):
         slot = index % per_page
         if slot == 0:
@@ -223,7 +225,10 @@ def _paint_shot_pages(pages: Pages, session, records, per_page: int,
             cells = panel_cells(per_page, pages.body())
         # a failed shot shows its last run that succeeded, if any (the panel says so)
         result, unreadable = _stored_result(session, record)
+        if unreadable:
+            damaged.append(record.shot_id)
         paint_shot(pages.painter, cells[slot], record, result, vorticity_limit_1_s,
                    shot_checks(record, usual_direction_deg), unreadable=unreadable)
         if progress is not None:
             progress(index + 1, len(records))
+    return damaged
