@@ -153,10 +153,6 @@ def open_window(session: str | None = None) -> int:
     missing = display.missing_window_libraries()
     if missing:
         raise WakelineError(display.missing_libraries_message(missing))
-    unreachable = display.unreachable_display()
-    if unreachable:
-        raise WakelineError(f"no display to open the window on ({unreachable}); the headless "
-                            "commands are listed by 'wakeline --help'")
     from app.qt.window import run_window
 
     return run_window(session)

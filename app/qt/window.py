@@ -625,12 +625,19 @@ def run_window(session_path: str | None = None) -> int:
     Raises
     ------
     core.WakelineError
-        When Qt's platform plugin cannot load here (names the Debian packages to install).
+        When Qt's platform plugin cannot load here (names the Debian packages to install), or
+        the X display set cannot be reached.
     """
     if QApplication.instance() is None:
         problem = platform_problem()
         if problem:
             raise WakelineError(problem)
+        from app.cli.display import unreachable_display  # no Qt: asked of libX11
+
+        unreachable = unreachable_display()  # Qt's xcb plugin would abort the program
+        if unreachable:
+            raise WakelineError(f"no display to open the window on ({unreachable}); the "
+                                "headless commands are listed by 'wakeline --help'")
     app = QApplication.instance() or QApplication(sys.argv)
     app.setOrganizationName(ORGANISATION)
     app.setApplicationName(APPLICATION)
