@@ -2,7 +2,7 @@
 
 import signal as _signal
 
-__version__ = "0.3.16"
+__version__ = "0.3.18"
 
 #: Signals that stop a run cleanly: Ctrl-C, a polite kill (shutdown, scheduler), the terminal
 #: closing (a terminal sends the first and last to the whole process group). Here rather than in

@@ -116,9 +116,11 @@ class Flight:
 #: the extrapolation arc, ``core.separation.COVERAGE_K``; 0.3.5: the "layer form" entry, whose
 #: absence left a fifth of the picks uncovered in one run set apart; 0.3.16: free layers that
 #: spread slowly, still laminar behind separation, within the prior, whose picks were late
-#: beyond their uncertainty on a third of such sides); results made before keep theirs until
-#: processed again, and count as not up to date (``Session.needs_processing``).
-UNCERTAINTY_SINCE = (0, 3, 16)
+#: beyond their uncertainty on a third of such sides; 0.3.18: the angle's profile refitted to
+#: convergence, whose truncated refits made the fit's entry jump with inputs that hardly
+#: differ); results made before keep theirs until processed again, and count as not up to date
+#: (``Session.needs_processing``).
+UNCERTAINTY_SINCE = (0, 3, 18)
 
 
 def uncertainty_outdated(software_version: str) -> bool:

@@ -197,14 +197,16 @@ def test_a_result_made_by_an_earlier_uncertainty_method_is_named():
     assert uncertainty_outdated("0.3.0") and uncertainty_outdated("0.3.4")
     assert uncertainty_outdated("0.3")  # a missing part counts as 0
     assert uncertainty_outdated("0.3.5") and uncertainty_outdated("0.3.15")  # 0.3.16: laminar
-    assert not uncertainty_outdated("0.3.16") and not uncertainty_outdated("0.3.17")
+    # 0.3.18: the profile converged (0.3.17's outer stream was taken back)
+    assert uncertainty_outdated("0.3.16") and uncertainty_outdated("0.3.17")
+    assert not uncertainty_outdated("0.3.18") and not uncertainty_outdated("0.3.19")
     assert not uncertainty_outdated("0.4") and not uncertainty_outdated("1.0")
     assert not uncertainty_outdated("") and not uncertainty_outdated("dev")
     summary = ShotSummary(SeparationResult(SideProposal(5.0, 3.0), SideProposal(None)))
     record = ShotRecord("s1", {}, summary=summary, software_version="0.2.0")
     assert "0.2.0" in outdated_uncertainty_note(record)
     assert "Reprocess this shot" in outdated_uncertainty_note(record)
-    assert outdated_uncertainty_note(with_(record, software_version="0.3.16")) == ""
+    assert outdated_uncertainty_note(with_(record, software_version="0.3.18")) == ""
     assert outdated_uncertainty_note(with_(record, summary=None)) == ""
 
 
