@@ -419,27 +419,6 @@ def test_has_display_rules(monkeypatch):
     assert has_display()
 
 
-def test_an_x_display_that_does_not_answer_is_refused_in_one_line(monkeypatch, capsys):
-    # a stale DISPLAY (ssh) made Qt abort the program with six lines about xcb-cursor, after
-    # the demo's processing and before its sheet and table were written
-    from app.cli import main
-    from app.cli.display import missing_window_libraries, unreachable_display
-
-    monkeypatch.delenv("QT_QPA_PLATFORM", raising=False)
-    monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
-    monkeypatch.setattr(sys, "platform", "linux")
-    monkeypatch.setenv("DISPLAY", ":987")  # no X server answers there
-    if missing_window_libraries():
-        pytest.skip("the window's libraries are missing here: that refusal comes first")
-    assert unreachable_display() == "cannot connect to the X display DISPLAY=:987"
-    assert main([]) == 1
-    assert capsys.readouterr().err == (
-        "wakeline: no display to open the window on (cannot connect to the X display "
-        "DISPLAY=:987); the headless commands are listed by 'wakeline --help'\n")
-    monkeypatch.setenv("QT_QPA_PLATFORM", "offscreen")  # not through X11: nothing to ask
-    assert unreachable_display() is None
-
-
 def test_fresh_demo_starts_again_but_not_under_an_open_window(small_recipe, tmp_path, capsys):
     from app.cli import main
     from app.cli.demo import prepare_demo

@@ -56,6 +56,29 @@ def test_missing_qt_platform_libraries_name_the_debian_packages(tmp_path):
     assert "'xcb' platform plugin" in lines[0]
 
 
+def test_an_x_display_that_does_not_answer_is_refused_in_one_line():
+    # a stale DISPLAY (ssh) made Qt abort the program with six lines about xcb-cursor (and the
+    # demo with it, after its processing and before its sheet and table were written)
+    from app.cli.display import missing_window_libraries
+
+    env = {"DISPLAY": ":987", "QT_QPA_PLATFORM": "", "WAYLAND_DISPLAY": ""}  # no X server there
+    with pytest.MonkeyPatch.context() as patch:
+        for name, value in env.items():
+            patch.setenv(name, value)
+        if missing_window_libraries():
+            pytest.skip("the window's libraries are missing here: that refusal comes first")
+    done = _run_cli("import sys; from app.cli import main; sys.exit(main([]))", **env)
+    assert done.returncode == 1, done.stderr
+    assert done.stderr == (
+        "wakeline: no display to open the window on (cannot connect to the X display "
+        "DISPLAY=:987); the headless commands are listed by 'wakeline --help'\n")
+    with pytest.MonkeyPatch.context() as patch:  # not through X11: nothing to ask
+        patch.setenv("QT_QPA_PLATFORM", "offscreen")
+        from app.qt.platform_libs import unreachable_display
+
+        assert unreachable_display() is None
+
+
 @pytest.mark.parametrize(("library", "package"), [
     ("libxcb-icccm.so.4", "libxcb-icccm4"),
     ("libxcb-render-util.so.0", "libxcb-render-util0"),

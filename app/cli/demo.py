@@ -87,7 +87,9 @@ def run_demo(args: argparse.Namespace) -> int:
         print(f"wakeline: {display.missing_libraries_message(missing)}; writing the shot sheet "
               "and the table instead of opening the window", file=sys.stderr)
         return write_demo_outputs(session_path)
-    unreachable = display.unreachable_display()
+    from app.qt.platform_libs import unreachable_display
+
+    unreachable = unreachable_display()
     if unreachable:
         print(f"wakeline: {unreachable}; writing the shot sheet and the table instead of "
               "opening the window", file=sys.stderr)

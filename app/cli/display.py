@@ -58,27 +58,6 @@ def _uses_xcb() -> bool:
     return bool(os.environ.get("DISPLAY")) and not wayland
 
 
-def unreachable_display() -> str | None:
-    """Why the X display set in ``DISPLAY`` cannot be used (a stale ``DISPLAY`` over ssh, an X
-    server that is gone), or None when it answers or the window does not go through X11. Asked
-    of libX11 itself (``XOpenDisplay``): Qt's xcb plugin aborts the whole program when it
-    cannot connect, after the analyst's work is done (the demo then wrote nothing)."""
-    if not _uses_xcb():
-        return None
-    try:
-        xlib = ctypes.CDLL("libX11.so.6")
-    except OSError:
-        return None  # then missing_window_libraries names what to install
-    xlib.XOpenDisplay.restype = ctypes.c_void_p
-    xlib.XOpenDisplay.argtypes = [ctypes.c_char_p]
-    xlib.XCloseDisplay.argtypes = [ctypes.c_void_p]
-    connection = xlib.XOpenDisplay(None)
-    if connection:
-        xlib.XCloseDisplay(connection)
-        return None
-    return f"cannot connect to the X display DISPLAY={os.environ.get('DISPLAY', '')}"
-
-
 def missing_window_libraries() -> list[str]:
     """The Debian packages the window needs here and lacks (empty off X11 or when all load)."""
     if not _uses_xcb():

@@ -7,6 +7,7 @@ Only ``PySide6``'s location is needed (no Qt module is imported, no application 
 
 from __future__ import annotations
 
+import ctypes
 import os
 import re
 import shutil
@@ -32,6 +33,28 @@ def platform_plugins() -> list[str]:
         return []
     plugins = ["wayland"] if os.environ.get("WAYLAND_DISPLAY") else []
     return plugins + (["xcb"] if os.environ.get("DISPLAY") else [])
+
+
+def unreachable_display() -> str | None:
+    """Why the X display set in ``DISPLAY`` cannot be used (a stale ``DISPLAY`` over ssh, an X
+    server that is gone), or None when it answers or Qt will not go through X11 first. Asked of
+    libX11 itself (``XOpenDisplay``): Qt's xcb plugin aborts the whole program when it cannot
+    connect, after the analyst's work is done (the demo then wrote nothing)."""
+    plugins = platform_plugins()
+    if not plugins or plugins[0] != "xcb":
+        return None
+    try:
+        xlib = ctypes.CDLL("libX11.so.6")
+    except OSError:
+        return None  # then the plugin's libraries name what to install
+    xlib.XOpenDisplay.restype = ctypes.c_void_p
+    xlib.XOpenDisplay.argtypes = [ctypes.c_char_p]
+    xlib.XCloseDisplay.argtypes = [ctypes.c_void_p]
+    connection = xlib.XOpenDisplay(None)
+    if connection:
+        xlib.XCloseDisplay(connection)
+        return None
+    return f"cannot connect to the X display DISPLAY={os.environ.get('DISPLAY', '')}"
 
 
 def plugin_file(name: str) -> Path | None:

@@ -46,7 +46,7 @@ from app.qt.docks import in_front
 from app.qt.export import install_export_actions, install_overview
 from app.qt.icons import app_icon, status_icon
 from app.qt.picture_export import install_picture_actions
-from app.qt.platform_libs import platform_problem
+from app.qt.platform_libs import platform_problem, unreachable_display
 from app.qt.readout import NOTE_KEYS, ReadoutPanel
 from app.qt.shot_list import LIST_KEYS, ShotListPanel
 from app.qt.window_ball import BallActions
@@ -632,8 +632,6 @@ def run_window(session_path: str | None = None) -> int:
         problem = platform_problem()
         if problem:
             raise WakelineError(problem)
-        from app.cli.display import unreachable_display  # no Qt: asked of libX11
-
         unreachable = unreachable_display()  # Qt's xcb plugin would abort the program
         if unreachable:
             raise WakelineError(f"no display to open the window on ({unreachable}); the "
