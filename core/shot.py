@@ -31,6 +31,11 @@ __all__ = ["ShotResult", "ShotSettings", "measure_shot", "remeasure_ball"]
 #: Ball displacement (px) below which its direction is not trusted without an override.
 MIN_FLIGHT_PX = 1.0
 
+#: What a session's analyst does about frames that look swapped (``wakeline pair`` words it for
+#: its own two files).
+SWAPPED_REMEDY = ("say frames_swapped yes for the shot in shots.csv and import again with "
+                  "--correct-values")
+
 
 def measure_shot(
     frame_a: np.ndarray, frame_b: np.ndarray, settings: ShotSettings, progress=None,
@@ -325,8 +330,7 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
         else:
             warnings.append(
                 "frames look swapped: the air ahead of the ball moves with it and the air "
-                "behind does not; if the camera wrote them so, say frames_swapped yes for the "
-                "shot in shots.csv and import again with --correct-values (no separation "
+                f"behind does not; if the camera wrote them so, {SWAPPED_REMEDY} (no separation "
                 "proposed)" if not settings.frames_swapped else
                 "frames look swapped, though frames_swapped says they were: the air ahead of "
                 "the ball moves with it and the air behind does not; check the shot's "
