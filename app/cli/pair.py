@@ -132,9 +132,9 @@ def write_vectors_csv(path: Path, field) -> None:
 
 def describe(summary: ShotSummary) -> str:
     """A few human lines about a shot's result (the words of ``app.review.text``)."""
-    lines = [f"{label}: {text}" for label, text in shot_rows(summary)]
     from core.shot import SWAPPED_REMEDY
 
+    lines = [f"{label}: {text}" for label, text in shot_rows(summary)]
     # frames that look swapped: here the remedy is the order of the two files given
     lines += [f"warning: {w.replace(SWAPPED_REMEDY, 'give the two frames the other way round')}"
               for w in summary.warnings]
