@@ -429,3 +429,22 @@ def test_a_ctrl_c_inside_compiled_code_stops_like_any_ctrl_c(monkeypatch, tmp_pa
     assert main(["pair", "a.tif", "b.tif"]) == 1
     assert capsys.readouterr().err.strip() == "wakeline: stopped"
     assert not (tmp_path / "home" / "wakeline-errors.log").exists()
+
+
+def test_a_session_named_after_the_shots_ids_is_the_session(session_path, tmp_path, capsys):
+    # `--shots` takes every word up to the next option: `sheet -o x.pdf --shots S0 S1 s.h5`
+    # was refused for want of a session
+    import os
+
+    os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+    out = tmp_path / "x.pdf"
+    assert main(["sheet", "-o", str(out), "--shots", "S0", "S1", str(session_path)]) == 0
+    assert out.exists() and "2 shot(s)" in capsys.readouterr().out
+    # a session given before --shots, or a shot id ending in .h5 alone, is left as written
+    from app.cli import session_after_shots
+
+    assert session_after_shots(["process", "s.h5", "--shots", "a", "b.h5"]) == [
+        "process", "s.h5", "--shots", "a", "b.h5"]
+    assert session_after_shots(["process", "--shots", "a.h5"]) == ["process", "--shots", "a.h5"]
+    assert session_after_shots(["process", "--workers", "2", "--shots", "a", "s.h5", "--force"]) == [
+        "process", "s.h5", "--workers", "2", "--shots", "a", "--force"]

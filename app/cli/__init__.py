@@ -69,6 +69,30 @@ def negative_values_attached(argv: list[str]) -> list[str]:
     return out
 
 
+#: Commands whose one positional argument is the session and that take ``--shots ID...``.
+SHOTS_COMMANDS = ("process", "sheet")
+
+
+def session_after_shots(argv: list[str]) -> list[str]:
+    """``process --shots a b S.h5`` as ``process S.h5 --shots a b``: ``--shots`` takes every
+    word up to the next option, so a session named after the ids was taken for one and the
+    command refused for want of a session. Moved only where the last of those words names a
+    session file and no session came before ``--shots``."""
+    if len(argv) < 2 or argv[0] not in SHOTS_COMMANDS or "--shots" not in argv:
+        return argv
+    start = argv.index("--shots")
+    if "--" in argv[:start] or any(not w.startswith("-") and w.lower().endswith(SESSION_SUFFIXES)
+                                   for w in argv[1:start]):
+        return argv
+    end = start + 1
+    while end < len(argv) and not argv[end].startswith("-"):
+        end += 1
+    last = argv[end - 1]
+    if end - start > 2 and last.lower().endswith(SESSION_SUFFIXES):
+        return [argv[0], last, *argv[1:end - 1], *argv[end:]]
+    return argv
+
+
 def _is_negative_number(word: str) -> bool:
     try:
         float(word)
@@ -83,7 +107,7 @@ def main(argv: list[str] | None = None) -> int:
     window, session = window_request(argv)
     func = None
     if not window:
-        args = build_parser().parse_args(negative_values_attached(argv))
+        args = build_parser().parse_args(session_after_shots(negative_values_attached(argv)))
         func = getattr(args, "func", None)
     try:
         if func is None:
