@@ -448,3 +448,14 @@ def test_a_session_named_after_the_shots_ids_is_the_session(session_path, tmp_pa
     assert session_after_shots(["process", "--shots", "a.h5"]) == ["process", "--shots", "a.h5"]
     assert session_after_shots(["process", "--workers", "2", "--shots", "a", "s.h5", "--force"]) == [
         "process", "s.h5", "--workers", "2", "--shots", "a", "--force"]
+
+
+def test_an_unknown_option_is_told_by_its_command_with_its_usage(session_path, capsys):
+    # it was told by wakeline itself, whose usage line lists no command's options
+    with pytest.raises(SystemExit) as stop:
+        main(["table", str(session_path), "-o", "x.csv", "--frob"])
+    assert stop.value.code == 2
+    err = capsys.readouterr().err
+    assert err.startswith("usage: wakeline table ")
+    assert err.strip().splitlines()[-1] == "wakeline table: error: unrecognized arguments: --frob"
+    assert usage_error(["--frob"], capsys) == "wakeline: error: unrecognized arguments: --frob"

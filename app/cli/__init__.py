@@ -107,7 +107,12 @@ def main(argv: list[str] | None = None) -> int:
     window, session = window_request(argv)
     func = None
     if not window:
-        args = build_parser().parse_args(session_after_shots(negative_values_attached(argv)))
+        parser = build_parser()
+        args, unknown = parser.parse_known_args(
+            session_after_shots(negative_values_attached(argv)))
+        if unknown:  # told by the command they were given to, with its usage (not wakeline's)
+            getattr(args, "command_parser", parser).error(
+                f"unrecognized arguments: {' '.join(unknown)}")
         func = getattr(args, "func", None)
     try:
         if func is None:
