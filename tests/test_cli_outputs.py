@@ -162,3 +162,30 @@ def test_an_output_that_is_a_pipe_is_refused_and_left_a_pipe(session_path, tmp_p
     assert capsys.readouterr().err == (f"wakeline: {out}: is not an ordinary file (a pipe or a "
                                        "device); give the name of a file to write\n")
     assert stat.S_ISFIFO(out.stat().st_mode)
+
+
+def test_other_sessions_files_are_refused_through_links_folders_and_user_blocks(
+        session_path, capsys):
+    import os
+
+    import h5py
+
+    folder = session_path.parent
+    (folder / "other.h5").write_bytes(session_path.read_bytes())
+    (folder / "other.h5.journal").write_bytes(b"kept")
+    (folder / "other.h5.pending").mkdir()
+    os.symlink(folder / "other.h5.journal", folder / "j.csv")  # the link's target is replaced
+    with h5py.File(folder / "data.mat", "w", userblock_size=512) as f:  # HDF5 after 512 bytes
+        f["x"] = [1.0]
+    before = _files(folder)
+    for target, said in (("j.csv", "its journal (of the session other.h5)"),
+                         ("other.h5.pending/t.csv", "lies in its folder of pending arrays"),
+                         ("data.mat", "is an HDF5 file")):
+        assert main(["table", str(session_path), "-o", str(folder / target)]) == 1
+        err = capsys.readouterr().err
+        assert said in err and len(err.strip().splitlines()) == 1, err
+    assert _files(folder) == before
+    # names that only look like a companion's suffix are written as before (they crashed)
+    for name in (".lock", ".journal"):
+        assert main(["table", str(session_path), "-o", str(folder / name)]) == 0
+        assert (folder / name).read_text().startswith("shot,")

@@ -72,11 +72,15 @@ def test_an_x_display_that_does_not_answer_is_refused_in_one_line():
     assert done.stderr == (
         "wakeline: no display to open the window on (cannot connect to the X display "
         "DISPLAY=:987); the headless commands are listed by 'wakeline --help'\n")
-    with pytest.MonkeyPatch.context() as patch:  # not through X11: nothing to ask
-        patch.setenv("QT_QPA_PLATFORM", "offscreen")
-        from app.qt.platform_libs import unreachable_display
+    from app.qt.platform_libs import unreachable_display
 
-        assert unreachable_display() is None
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setenv("DISPLAY", ":987")
+        for platform in ("offscreen", "xcb;offscreen"):  # not X11, or one to fall back on
+            patch.setenv("QT_QPA_PLATFORM", platform)
+            assert unreachable_display() is None
+        patch.setenv("QT_QPA_PLATFORM", "xcb")
+        assert unreachable_display() == "cannot connect to the X display DISPLAY=:987"
 
 
 @pytest.mark.parametrize(("library", "package"), [

@@ -422,4 +422,4 @@ def test_the_sheet_command_names_the_damaged_shots_on_stderr(session_path, tmp_p
     assert out.exists() and "page(s)" in captured.out
     assert captured.err == (
         f"wakeline: stored result damaged, its panel says so: S0; measure again with "
-        f"'wakeline process {session_path} --force --shots S0'\n")
+        f"wakeline process {session_path} --force --shots S0\n")

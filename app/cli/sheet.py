@@ -112,6 +112,9 @@ def run_sheet(args: argparse.Namespace) -> int:
 
 def damaged_note(shot_ids: list[str], session) -> str:
     """One line on shots whose stored result could not be read (their panels say so)."""
+    import shlex
+
     names = " ".join(shot_ids)
+    command = shlex.join(["wakeline", "process", str(session), "--force", "--shots", *shot_ids])
     return (f"stored result damaged, its panel says so: {names}; measure again with "
-            f"'wakeline process {session} --force --shots {names}'")
+            f"{command}")

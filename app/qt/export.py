@@ -133,8 +133,8 @@ def export_sheet(window, path, **options):
         QApplication.restoreOverrideCursor()
         dialog.reset()
         dialog.deleteLater()
-    damaged = (f"; stored result damaged (its panel says so): {' '.join(report.damaged)}, "
-               "process again by force" if report.damaged else "")
+    damaged = (f"; stored result damaged (its panel says so): {' '.join(report.damaged)}: "
+               "Process ▸ Reprocess this shot" if report.damaged else "")
     window.statusBar().showMessage(
         f"Shot sheet written: {report.path} ({report.pages} pages, {len(report.shot_ids)} shots"
         f"){damaged}", 8000 if not damaged else 0)

@@ -37,11 +37,11 @@ def platform_plugins() -> list[str]:
 
 def unreachable_display() -> str | None:
     """Why the X display set in ``DISPLAY`` cannot be used (a stale ``DISPLAY`` over ssh, an X
-    server that is gone), or None when it answers or Qt will not go through X11 first. Asked of
+    server that is gone), or None when it answers or Qt has another plugin to try. Asked of
     libX11 itself (``XOpenDisplay``): Qt's xcb plugin aborts the whole program when it cannot
     connect, after the analyst's work is done (the demo then wrote nothing)."""
     plugins = platform_plugins()
-    if not plugins or plugins[0] != "xcb":
+    if plugins != ["xcb"]:  # another first, or one to fall back on ("xcb;offscreen")
         return None
     try:
         xlib = ctypes.CDLL("libX11.so.6")

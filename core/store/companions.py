@@ -55,31 +55,39 @@ def refuse_input_file(out: Path, inputs) -> None:
                                 "imported with; choose another output file")
 
 
-#: The first bytes of every HDF5 file (the HDF5 format specification's signature).
-HDF5_SIGNATURE = b"\x89HDF\r\n\x1a\n"
+def _may_be_hdf5(path: Path) -> bool:
+    """Whether ``path`` is an HDF5 file (h5py's test: the signature at offset 0, 512, 1024...,
+    after a user block) or one that cannot be read to tell."""
+    import h5py
 
-
-def _is_hdf5(path: Path) -> bool:
     try:
-        with path.open("rb") as file:
-            return file.read(len(HDF5_SIGNATURE)) == HDF5_SIGNATURE
+        with path.open("rb"):
+            pass
     except OSError:
-        return False
+        return True
+    return bool(h5py.is_hdf5(str(path)))
 
 
 def refuse_other_session(out: Path) -> None:
     """Refuse to write a table or a picture over an HDF5 file (another session, perhaps one a
-    process has open) or a companion file of one: ``-o other.h5`` replaced a whole session,
-    and a running process then lost its file."""
-    out = Path(out)
-    if out.is_file() and _is_hdf5(out):
-        raise WakelineError(f"{out}: is an HDF5 file (a session?); choose another output file")
-    for kind, word in _COMPANION_WORDS.items():
-        suffix = companion_files(Path("S.h5"))[kind].name[len("S.h5"):]
-        owner = out.with_name(out.name[: -len(suffix)]) if out.name.endswith(suffix) else None
-        if owner is not None and owner.is_file() and _is_hdf5(owner):
-            raise WakelineError(f"{out}: is {word} (of the session {owner.name}); choose "
-                                "another output file")
+    process has open), over one that cannot be read to tell, or over or into a companion of
+    one (its journal, lock, half-written snapshot, folder of pending arrays): ``-o other.h5``
+    replaced a whole session, and a running process then lost its file. Judged on the name as
+    given and on where a link leads (the file that would be replaced)."""
+    for path in dict.fromkeys((Path(out), Path(out).resolve())):
+        if path.is_file() and _may_be_hdf5(path):
+            raise WakelineError(f"{out}: is an HDF5 file (a session?) or cannot be read to "
+                                "tell; choose another output file")
+        for place in (path, *path.parents):
+            for kind, word in _COMPANION_WORDS.items():
+                suffix = companion_files(Path("S.h5"))[kind].name[len("S.h5"):]
+                if len(place.name) <= len(suffix) or not place.name.endswith(suffix):
+                    continue
+                owner = place.with_name(place.name[: -len(suffix)])
+                if owner.is_file() and _may_be_hdf5(owner):
+                    where = "is" if place == path else "lies in"
+                    raise WakelineError(f"{out}: {where} {word} (of the session {owner.name}); "
+                                        "choose another output file")
 
 
 def session_frame_files(session) -> list[Path]:
