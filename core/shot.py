@@ -31,10 +31,12 @@ __all__ = ["ShotResult", "ShotSettings", "measure_shot", "remeasure_ball"]
 #: Ball displacement (px) below which its direction is not trusted without an override.
 MIN_FLIGHT_PX = 1.0
 
-#: What a session's analyst does about frames that look swapped (``wakeline pair`` words it for
-#: its own two files).
+#: What a session's analyst does about frames that look swapped (``wakeline pair`` words it,
+#: and the check below, for its own two files).
 SWAPPED_REMEDY = ("say frames_swapped yes for the shot in shots.csv and import again with "
                   "--correct-values")
+#: What a session's analyst checks when the flight given and the frames' order disagree.
+SWAPPED_CHECK = "the shot's frames_swapped in shots.csv"
 
 
 def measure_shot(
@@ -309,8 +311,8 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
         warnings.append(
             f"the flight direction given ({settings.flight_deg:g} deg) looks the wrong way "
             f"round: the free stream past the held ball gives {against:.1f} deg (against the "
-            "stream); check the flight direction, or the shot's frames_swapped in shots.csv "
-            "(no separation proposed)")
+            f"stream); check the flight direction, or {SWAPPED_CHECK} (no separation "
+            "proposed)")
         reason = (f"the flight direction given ({settings.flight_deg:g} deg) looks the wrong "
                   "way round, or the frames are swapped (see warnings)")
         result.separation = SeparationResult(SideProposal(None, reason=reason),
@@ -322,8 +324,8 @@ def _ball_stages(result: ShotResult, raw, conditioned, balls, glare, warnings: l
             warnings.append(
                 f"the flight direction given ({settings.flight_deg:g} deg) looks the wrong way "
                 "round: the air ahead of the ball (as given) moves with it and the air behind "
-                "does not; check the flight direction, or the shot's frames_swapped in "
-                "shots.csv (no separation proposed)"
+                f"does not; check the flight direction, or {SWAPPED_CHECK} (no separation "
+                "proposed)"
             )
             reason = (f"the flight direction given ({settings.flight_deg:g} deg) looks the "
                       "wrong way round, or the frames are swapped (see warnings)")

@@ -137,16 +137,16 @@ def test_pair_names_the_file_where_no_ball_was_found(tmp_path, capsys):
     assert "\n" not in err
 
 
-def test_pair_words_the_swapped_frames_remedy_for_its_two_files():
+def test_pair_words_the_swapped_frames_advice_for_its_two_files():
     # the measurement's advice is a session's (frames_swapped in shots.csv, import again);
     # `pair` reads no manifest: there the files go the other way round
-    from app.cli.pair import describe
-    from core.results import SeparationResult, SideProposal
-    from core.shot import SWAPPED_REMEDY
-    from core.summary import ShotSummary
+    from app.cli.pair import pair_wording
+    from core.shot import SWAPPED_CHECK, SWAPPED_REMEDY
 
-    warning = f"frames look swapped: ...; if the camera wrote them so, {SWAPPED_REMEDY} (...)"
-    text = describe(ShotSummary(SeparationResult(SideProposal(None), SideProposal(None)),
-                                warnings=(warning,)))
+    text = pair_wording(f"frames look swapped: ...; if the camera wrote them so, "
+                        f"{SWAPPED_REMEDY} (...)")
     assert "give the two frames the other way round" in text
     assert "shots.csv" not in text and "--correct-values" not in text
+    text = pair_wording(f"... looks the wrong way round: ...; check the flight direction, or "
+                        f"{SWAPPED_CHECK} (...)")
+    assert "the order of the two frames given" in text and "shots.csv" not in text

@@ -104,6 +104,7 @@ def run_pair(args: argparse.Namespace) -> int:
                 said = named + said.removeprefix(name)
         raise WakelineError(said) from None
     summary = result.summary()
+    summary["warnings"] = [pair_wording(w) for w in summary["warnings"]]  # JSON and screen
     if args.json:
         _write_text(args.json, json.dumps(summary, indent=2) + "\n")
     if args.vectors:
@@ -130,14 +131,19 @@ def write_vectors_csv(path: Path, field) -> None:
             writer.writerow([f"{x:.2f}", f"{y:.2f}", f"{dx:.4f}", f"{dy:.4f}", int(bool(ok))])
 
 
+def pair_wording(warning: str) -> str:
+    """A measurement's warning as it applies to two frame files given on the command line
+    (a session's advice names shots.csv)."""
+    from core.shot import SWAPPED_CHECK, SWAPPED_REMEDY
+
+    return (warning.replace(SWAPPED_REMEDY, "give the two frames the other way round")
+            .replace(SWAPPED_CHECK, "the order of the two frames given"))
+
+
 def describe(summary: ShotSummary) -> str:
     """A few human lines about a shot's result (the words of ``app.review.text``)."""
-    from core.shot import SWAPPED_REMEDY
-
     lines = [f"{label}: {text}" for label, text in shot_rows(summary)]
-    # frames that look swapped: here the remedy is the order of the two files given
-    lines += [f"warning: {w.replace(SWAPPED_REMEDY, 'give the two frames the other way round')}"
-              for w in summary.warnings]
+    lines += [f"warning: {w}" for w in summary.warnings]
     if summary.reynolds is None and summary.flight is not None:
         # said here: the other lines would leave it out without a word
         given = summary.settings
