@@ -26,6 +26,9 @@ def companion_files(path: Path) -> dict[str, Path]:
 
 _COMPANION_WORDS = {"journal": "its journal", "pending": "its folder of pending arrays",
                     "snapshot_tmp": "its half-written snapshot", "lock": "its lock"}
+#: What each companion's name adds to its session's ("S.h5" -> "S.h5.journal": ".journal").
+_COMPANION_SUFFIXES = {kind: file.name.removeprefix("S.h5")
+                       for kind, file in companion_files(Path("S.h5")).items()}
 
 
 def refuse_session_file(out: Path, path: Path) -> None:
@@ -79,15 +82,15 @@ def refuse_other_session(out: Path) -> None:
             raise WakelineError(f"{out}: is an HDF5 file (a session?) or cannot be read to "
                                 "tell; choose another output file")
         for place in (path, *path.parents):
-            for kind, word in _COMPANION_WORDS.items():
-                suffix = companion_files(Path("S.h5"))[kind].name[len("S.h5"):]
-                if len(place.name) <= len(suffix) or not place.name.endswith(suffix):
+            for kind, suffix in _COMPANION_SUFFIXES.items():
+                name = place.name.removesuffix(suffix)
+                if name in ("", place.name):  # not a companion's name (".lock" alone is not)
                     continue
-                owner = place.with_name(place.name[: -len(suffix)])
+                owner = place.with_name(name)
                 if owner.is_file() and _may_be_hdf5(owner):
                     where = "is" if place == path else "lies in"
-                    raise WakelineError(f"{out}: {where} {word} (of the session {owner.name}); "
-                                        "choose another output file")
+                    raise WakelineError(f"{out}: {where} {_COMPANION_WORDS[kind]} (of the "
+                                        f"session {owner.name}); choose another output file")
 
 
 def session_frame_files(session) -> list[Path]:
